@@ -1,1 +1,84 @@
-fn main(){}
+//! `waypath`: the command-line entry point.
+//!
+//! `waypath run NOTEBOOK.ipynb` executes a notebook headless, writing the
+//! executed notebook and a self-contained HTML report.
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use waypath_kernel::notebook::{run_notebook, RunOptions};
+
+const HELP: &str = "\
+waypath — causal questions of observational data, answered with Bayesian models
+
+usage:
+  waypath run NOTEBOOK.ipynb [--out EXECUTED.ipynb] [--html REPORT.html] [--keep-going]
+      Execute every code cell in order, headless (no Jupyter needed). Writes the
+      executed notebook (default: NOTEBOOK.executed.ipynb beside the input) and,
+      with --html, a self-contained report a colleague can open offline.
+      Paths inside cells are read relative to the notebook's folder.
+      The first failing cell stops the run and the exit code is 1, unless
+      --keep-going is given (failing cells are then recorded and skipped past).
+  waypath --help
+      This text.
+";
+
+fn main() -> ExitCode {
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    match args.first().map(String::as_str) {
+        Some("run") => run_command(&args[1..]),
+        None | Some("--help") | Some("-h") | Some("help") => {
+            print!("{HELP}");
+            ExitCode::SUCCESS
+        }
+        Some(other) => {
+            eprintln!("waypath: unknown command {other:?}\n\n{HELP}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn run_command(args: &[String]) -> ExitCode {
+    let options = match parse_run_args(args) {
+        Ok(o) => o,
+        Err(message) => {
+            eprintln!("waypath run: {message}\n\n{HELP}");
+            return ExitCode::from(2);
+        }
+    };
+    match run_notebook(&options) {
+        Ok(summary) => {
+            eprintln!("{}", summary.describe());
+            if summary.failed_cells.is_empty() { ExitCode::SUCCESS } else { ExitCode::from(1) }
+        }
+        Err(e) => {
+            eprintln!("waypath run: {e}");
+            ExitCode::from(1)
+        }
+    }
+}
+
+fn parse_run_args(args: &[String]) -> Result<RunOptions, String> {
+    let mut input: Option<PathBuf> = None;
+    let mut out: Option<PathBuf> = None;
+    let mut html: Option<PathBuf> = None;
+    let mut keep_going = false;
+    let mut i = 0;
+    while i < args.len() {
+        match args[i].as_str() {
+            "--out" | "--html" => {
+                let value = args.get(i + 1).ok_or_else(|| format!("{} needs a file name", args[i]))?;
+                if args[i] == "--out" { out = Some(value.into()) } else { html = Some(value.into()) }
+                i += 1;
+            }
+            "--keep-going" => keep_going = true,
+            flag if flag.starts_with("--") => return Err(format!("unknown option {flag}")),
+            path if input.is_none() => input = Some(path.into()),
+            extra => return Err(format!("one notebook at a time (also got {extra:?})")),
+        }
+        i += 1;
+    }
+    let input = input.ok_or("name the notebook to run")?;
+    let out = out.unwrap_or_else(|| input.with_extension("executed.ipynb"));
+    Ok(RunOptions { input, out, html, keep_going })
+}

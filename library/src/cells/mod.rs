@@ -1,1 +1,22 @@
-//! (module under construction)
+//! The cell language: what a scientist types into a notebook cell.
+//!
+//! A cell is a list of statements. A statement is one header line, followed
+//! by an indented body when its header ends with `:`. `#` starts a comment.
+//! [`parse::split_statements`] cuts a cell into statements (keeping cell line
+//! numbers for error messages); [`Session::run_cell`] executes them in order
+//! against the named objects of a session (tables, graphs, models, fits) and
+//! returns one [`Display`] per result, each carrying `text/plain`,
+//! `text/html`, `application/json` and, where the result has a shape,
+//! `image/svg+xml`.
+//!
+//! This is the top of the library: nothing here knows about Jupyter or
+//! notebooks; the kernel and the headless runner only move bytes in and out.
+
+pub mod output;
+pub mod parse;
+mod session;
+mod statements;
+
+pub use output::{CellError, CellOutcome, Display};
+pub use parse::{split_statements, SourceLine, Statement};
+pub use session::{RunControl, Session};

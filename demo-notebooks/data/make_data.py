@@ -1,0 +1,71 @@
+"""Generate the invented demo datasets (seeded, standard library only).
+
+Every scenario here is made up for the Waypath demos; no real measurements.
+Run from anywhere:  python3 demo-notebooks/data/make_data.py
+"""
+import csv
+import math
+import random
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+
+
+def write(name, header, rows):
+    with open(HERE / name, "w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(header)
+        w.writerows(rows)
+
+
+def orchard(seed=20261201, n=240):
+    """Apple trees on two rootstocks. Rootstock changes trunk girth and,
+    beyond girth, fruit yield. Unrecorded soil depth feeds girth and yield
+    (so the direct effect is confounded unless soil is measured)."""
+    rng = random.Random(seed)
+    rows = []
+    for i in range(n):
+        rootstock = "standard" if rng.random() < 0.5 else "dwarf"
+        soil = rng.gauss(0.0, 1.0)  # not written out: the hidden common cause
+        std = 1.0 if rootstock == "standard" else 0.0
+        girth = 24.0 + 7.0 * std + 1.5 * soil + rng.gauss(0.0, 3.0)
+        yield_kg = 4.0 + 0.9 * girth + 6.0 * std + 2.0 * soil + rng.gauss(0.0, 4.0)
+        block = rng.choice(["north", "south", "east"])
+        rows.append([f"T{i + 1:03d}", block, rootstock, round(girth, 1), round(yield_kg, 1)])
+    write("orchard.csv", ["tree", "block", "rootstock", "girth", "yield"], rows)
+
+
+def stream(seed=77, n=180):
+    """Daily water temperature at an invented upland stream gauge."""
+    rng = random.Random(seed)
+    rows = []
+    for _ in range(n):
+        day = rng.randint(1, 365)
+        seasonal = 9.5 - 6.5 * math.cos(2 * math.pi * (day - 20) / 365)
+        spring_melt = -2.0 * math.exp(-((day - 110) / 18) ** 2)
+        temp = seasonal + spring_melt + rng.gauss(0.0, 0.9)
+        rows.append([day, round(temp, 2)])
+    rows.sort()
+    write("stream.csv", ["day", "water_temp"], rows)
+
+
+def clinic(seed=4242, n=600):
+    """An invented outpatient clinic: age group affects who gets the new
+    dressing and how likely recovery within two weeks is."""
+    rng = random.Random(seed)
+    rows = []
+    for _ in range(n):
+        age = rng.choices(["young", "middle", "older"], weights=[0.3, 0.4, 0.3])[0]
+        age_shift = {"young": 0.6, "middle": 0.0, "older": -0.7}[age]
+        p_treat = {"young": 0.35, "middle": 0.5, "older": 0.65}[age]
+        treated = "new" if rng.random() < p_treat else "usual"
+        logit = -0.1 + age_shift + (0.55 if treated == "new" else 0.0)
+        recovered = 1 if rng.random() < 1 / (1 + math.exp(-logit)) else 0
+        rows.append([age, treated, recovered])
+    write("clinic.csv", ["age_group", "dressing", "recovered"], rows)
+
+
+if __name__ == "__main__":
+    orchard()
+    stream()
+    clinic()

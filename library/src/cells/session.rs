@@ -1,0 +1,134 @@
+//! A session: the named objects that cells create and later cells use.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicBool;
+
+use super::output::{CellError, CellOutcome};
+use super::parse::split_statements;
+use super::statements;
+use crate::graph::Graph;
+use crate::table::Table;
+
+/// How a running cell is steered from outside: a cancel flag (set by an
+/// interrupt) and a progress sink for long fits.
+pub struct RunControl<'a> {
+    pub cancel: &'a AtomicBool,
+    pub progress: &'a (dyn Fn(&str) + Sync),
+}
+
+/// Named tables, graphs and models, plus the folder that relative paths in
+/// cells are read from.
+#[derive(Debug, Default)]
+pub struct Session {
+    pub(crate) base_dir: PathBuf,
+    pub(crate) tables: BTreeMap<String, Table>,
+    pub(crate) graphs: BTreeMap<String, Graph>,
+}
+
+impl Session {
+    /// A new, empty session reading relative paths from `base_dir`.
+    pub fn new(base_dir: impl Into<PathBuf>) -> Session {
+        Session { base_dir: base_dir.into(), ..Session::default() }
+    }
+
+    /// The folder relative paths are read from.
+    pub fn base_dir(&self) -> &Path {
+        &self.base_dir
+    }
+
+    /// Resolve a path written in a cell against the session's folder.
+    pub fn resolve(&self, path: &str) -> PathBuf {
+        let p = Path::new(path);
+        if p.is_absolute() { p.to_path_buf() } else { self.base_dir.join(p) }
+    }
+
+    pub fn table(&self, name: &str) -> Option<&Table> {
+        self.tables.get(name)
+    }
+
+    pub fn graph(&self, name: &str) -> Option<&Graph> {
+        self.graphs.get(name)
+    }
+
+    /// Publish a table under `name` (used by Rust cells and by `simulate`).
+    pub fn put_table(&mut self, name: &str, mut table: Table) {
+        table.name = name.to_string();
+        self.tables.insert(name.to_string(), table);
+    }
+
+    /// Names of every object in the session, by kind (for completion).
+    pub fn names(&self) -> Vec<(String, &'static str)> {
+        let tables = self.tables.keys().map(|k| (k.clone(), "table"));
+        let graphs = self.graphs.keys().map(|k| (k.clone(), "graph"));
+        tables.chain(graphs).collect()
+    }
+
+    /// Run every statement of a cell in order. The first error stops the
+    /// cell; displays made before it are kept.
+    pub fn run_cell(&mut self, cell: &str, control: &RunControl) -> CellOutcome {
+        let mut outcome = CellOutcome::default();
+        let statements = match split_statements(cell) {
+            Ok(s) => s,
+            Err(e) => {
+                outcome.error = Some(e);
+                return outcome;
+            }
+        };
+        for st in &statements {
+            match statements::run(self, st, control, &mut outcome.warnings) {
+                Ok(displays) => outcome.displays.extend(displays),
+                Err(e) => {
+                    outcome.error = Some(e);
+                    break;
+                }
+            }
+        }
+        outcome
+    }
+
+    pub(crate) fn require_table(&self, name: &str, line: usize) -> Result<&Table, CellError> {
+        self.tables.get(name).ok_or_else(|| {
+            CellError::at(line, format!("there is no table named {name}{}", suggest(name, self.tables.keys())))
+        })
+    }
+
+    pub(crate) fn require_graph(&self, name: &str, line: usize) -> Result<&Graph, CellError> {
+        self.graphs.get(name).ok_or_else(|| {
+            CellError::at(line, format!("there is no graph named {name}{}", suggest(name, self.graphs.keys())))
+        })
+    }
+}
+
+/// " (did you mean a, b?)" for names within a small edit distance, or a list
+/// of what exists.
+pub(crate) fn suggest<'a>(name: &str, known: impl Iterator<Item = &'a String>) -> String {
+    let known: Vec<&String> = known.collect();
+    if known.is_empty() {
+        return "; none has been made in this session yet".to_string();
+    }
+    let mut near: Vec<&String> = known.iter().copied().filter(|k| edit_distance(k, name) <= 2).collect();
+    near.sort();
+    if near.is_empty() {
+        let list: Vec<&str> = known.iter().map(|s| s.as_str()).collect();
+        format!("; the session has: {}", list.join(", "))
+    } else {
+        let list: Vec<&str> = near.iter().map(|s| s.as_str()).collect();
+        format!(" (did you mean {}?)", list.join(" or "))
+    }
+}
+
+/// Levenshtein distance between two strings.
+pub(crate) fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut cur = vec![i + 1];
+        for (j, cb) in b.iter().enumerate() {
+            let sub = prev[j] + usize::from(ca != *cb);
+            cur.push(sub.min(prev[j + 1] + 1).min(cur[j] + 1));
+        }
+        prev = cur;
+    }
+    prev[b.len()]
+}

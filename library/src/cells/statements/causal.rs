@@ -1,0 +1,202 @@
+//! Statements about the causal graph alone: `graph`, `ask`, `paths`,
+//! `implications`. None of them touches data.
+
+use serde_json::json;
+
+use super::data::is_name;
+use super::{form_error, unquote};
+use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
+use crate::cells::parse::{split_commas, Statement};
+use crate::cells::session::Session;
+use crate::graph::{from_dot, Graph, GraphBuilder, Identification};
+
+const GRAPH_FORM: &str = "graph NAME:  (with edges such as `a -> b -> c` below)  or  graph NAME from \"FILE.dot\"";
+const ASK_FORM: &str = "ask total effect of X on Y in GRAPH  (or: ask direct effect of X on Y in GRAPH)";
+const PATHS_FORM: &str = "paths from X to Y in GRAPH [given A, B]";
+const IMPLICATIONS_FORM: &str = "implications of GRAPH";
+
+/// `graph NAME:` with a body of edges, or `graph NAME from "FILE.dot"`.
+pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let graph = match words.as_slice() {
+        ["graph", name] if is_name(name) && st.expects_body() => {
+            if st.body.is_empty() {
+                return Err(CellError::at(st.header.number, format!("graph {name} has no edges; list them indented below the header")));
+            }
+            let mut builder = GraphBuilder::new(*name);
+            for line in &st.body {
+                builder.add_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
+            }
+            builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
+        }
+        ["graph", name, "from", _] if is_name(name) && !st.expects_body() => {
+            let raw = st.head().split_once("from").map(|(_, p)| p.trim()).unwrap_or("");
+            let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FORM))?;
+            let file = session.resolve(path);
+            let text = std::fs::read_to_string(&file).map_err(|e| {
+                CellError::at(st.header.number, format!("cannot read the DOT file {path} ({e})"))
+            })?;
+            from_dot(name, &text).map_err(|e| CellError::at(st.header.number, format!("{path}: {e}")))?
+        }
+        _ => return Err(form_error(st, GRAPH_FORM)),
+    };
+    let display = describe_graph(&graph);
+    session.graphs.insert(graph.name().to_string(), graph);
+    Ok(vec![display])
+}
+
+fn describe_graph(graph: &Graph) -> Display {
+    let hidden: Vec<&str> = graph.nodes().iter().filter(|n| n.hidden).map(|n| n.name.as_str()).collect();
+    let edges = graph.edges();
+    let heading = format!(
+        "graph {}: {} nodes ({} hidden), {} edges",
+        graph.name(),
+        graph.nodes().len(),
+        hidden.len(),
+        edges.len()
+    );
+    let mut notes = vec![format!("causal order: {}", graph.topological_order().join(", "))];
+    if !hidden.is_empty() {
+        notes.push(format!("hidden (unmeasured): {}", hidden.join(", ")));
+    }
+    let edge_list: Vec<String> = edges.iter().map(|(a, b)| format!("{a} -> {b}")).collect();
+    notes.push(format!("edges: {}", edge_list.join("; ")));
+    let plain = format!("{heading}\n{}", notes.iter().map(|n| format!("• {n}")).collect::<Vec<_>>().join("\n"));
+    let json = json!({
+        "name": graph.name(),
+        "nodes": graph.nodes().iter().map(|n| json!({"name": n.name, "hidden": n.hidden})).collect::<Vec<_>>(),
+        "edges": edges.iter().map(|(a, b)| json!([a, b])).collect::<Vec<_>>(),
+    });
+    Display { plain, html: Some(html_block(&heading, &[html_list(&notes)])), svg: None, json: Some(json) }
+}
+
+/// `ask total|direct effect of X on Y in G`.
+pub(crate) fn ask(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (kind, x, y, g) = match words.as_slice() {
+        ["ask", kind @ ("total" | "direct"), "effect", "of", x, "on", y, "in", g] => (*kind, *x, *y, *g),
+        _ => return Err(form_error(st, ASK_FORM)),
+    };
+    let graph = session.require_graph(g, st.header.number)?;
+    let answer = if kind == "total" { graph.total_effect(x, y) } else { graph.direct_effect(x, y) };
+    let answer = answer.map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    Ok(vec![describe_identification(&answer)])
+}
+
+fn describe_identification(id: &Identification) -> Display {
+    let query = serde_json::to_value(id.query).unwrap_or_default();
+    let query = query.as_str().unwrap_or("effect").to_string();
+    let verdict = if id.identifiable { "identifiable" } else { "NOT identifiable by adjustment" };
+    let heading = format!("{query} of {} on {}: {verdict}", id.exposure, id.outcome);
+    let mut grid = Grid::new(&["option", "stratify by"]);
+    for (i, set) in id.adjustment_sets.iter().enumerate() {
+        let members = if set.is_empty() { "nothing (no adjustment needed)".to_string() } else { set.join(", ") };
+        grid.push(vec![format!("{}", i + 1), members]);
+    }
+    let mut plain = heading.clone();
+    let mut parts = Vec::new();
+    if id.identifiable && !id.adjustment_sets.is_empty() {
+        plain.push_str(&format!("\n{}", grid.to_text()));
+        parts.push(grid.to_html());
+    }
+    let mut notes = vec![id.reason.clone()];
+    if !id.search_complete {
+        notes.push("the search stopped at its limit; further minimal sets may exist".to_string());
+    }
+    notes.push("this answer rests on the graph as written: an arrow left out is a claim of no effect".to_string());
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    parts.push(html_list(&notes));
+    let json = json!({
+        "query": query,
+        "exposure": id.exposure,
+        "outcome": id.outcome,
+        "identifiable": id.identifiable,
+        "adjustment_sets": id.adjustment_sets,
+        "reason": id.reason,
+    });
+    Display { plain, html: Some(html_block(&heading, &parts)), svg: None, json: Some(json) }
+}
+
+/// `paths from X to Y in G [given A, B]`.
+pub(crate) fn paths(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let head = st.head();
+    let (main, given) = match head.split_once(" given ") {
+        Some((m, g)) => (m, split_commas(g)),
+        None => (head, Vec::new()),
+    };
+    let words: Vec<&str> = main.split_whitespace().collect();
+    let (x, y, g) = match words.as_slice() {
+        ["paths", "from", x, "to", y, "in", g] => (*x, *y, *g),
+        _ => return Err(form_error(st, PATHS_FORM)),
+    };
+    let graph = session.require_graph(g, st.header.number)?;
+    let reports = graph.paths(x, y, &given).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    let given_text = if given.is_empty() { "conditioning on nothing".to_string() } else { format!("given {}", given.join(", ")) };
+    let open = reports.iter().filter(|p| p.open).count();
+    let heading = format!("paths from {x} to {y} in {g}, {given_text}: {} found, {open} open", reports.len());
+    let mut grid = Grid::new(&["path", "kind", "status", "why"]);
+    for p in &reports {
+        let why = if p.open { p.opened_by.join("; ") } else { p.blocked_by.join("; ") };
+        grid.push(vec![
+            p.drawing(),
+            if p.is_backdoor { "backdoor" } else { "front" }.to_string(),
+            if p.open { "open" } else { "blocked" }.to_string(),
+            why,
+        ]);
+    }
+    let json = json!({ "paths": reports.iter().map(|p| json!({
+        "nodes": p.nodes, "arrows": p.arrows, "open": p.open, "blocked_by": p.blocked_by,
+        "opened_by": p.opened_by, "backdoor": p.is_backdoor,
+    })).collect::<Vec<_>>() });
+    let plain = if reports.is_empty() {
+        format!("{heading}\n• no path joins {x} and {y}")
+    } else {
+        format!("{heading}\n{}", grid.to_text())
+    };
+    Ok(vec![Display { plain, html: Some(html_block(&heading, &[grid.to_html()])), svg: None, json: Some(json) }])
+}
+
+/// `implications of G`: the independences the graph claims.
+pub(crate) fn implications(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let g = match words.as_slice() {
+        ["implications", "of", g] => *g,
+        _ => return Err(form_error(st, IMPLICATIONS_FORM)),
+    };
+    let graph = session.require_graph(g, st.header.number)?;
+    let imp = graph.implications();
+    let heading = format!(
+        "implications of {g}: {} testable independence(s), {} untestable pair(s)",
+        imp.testable.len(),
+        imp.untestable.len()
+    );
+    let mut grid = Grid::new(&["claim", "given"]);
+    for i in &imp.testable {
+        let given = if i.given.is_empty() { "nothing".to_string() } else { i.given.join(", ") };
+        grid.push(vec![format!("{} ⫫ {}", i.a, i.b), given]);
+    }
+    let untestable: Vec<String> = imp
+        .untestable
+        .iter()
+        .map(|p| format!("{} and {}: only hidden nodes separate them; the data cannot test this pair", p.a, p.b))
+        .collect();
+    let mut plain = heading.clone();
+    let mut parts = Vec::new();
+    if imp.testable.is_empty() {
+        plain.push_str("\n• every pair of observed nodes is joined by an edge or only hidden nodes separate it, so there is nothing to test");
+    } else {
+        plain.push_str(&format!("\n{}", grid.to_text()));
+        parts.push(grid.to_html());
+    }
+    for u in &untestable {
+        plain.push_str(&format!("\n• {u}"));
+    }
+    parts.push(html_list(&untestable));
+    let json = json!({
+        "independencies": imp.testable.iter().map(|i| json!({"a": i.a, "b": i.b, "given": i.given})).collect::<Vec<_>>(),
+        "untestable": imp.untestable.iter().map(|p| json!({"a": p.a, "b": p.b})).collect::<Vec<_>>(),
+    });
+    Ok(vec![Display { plain, html: Some(html_block(&heading, &parts)), svg: None, json: Some(json) }])
+}

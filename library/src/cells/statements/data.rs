@@ -1,0 +1,100 @@
+//! `table NAME from "FILE":` — read a CSV into the session.
+
+use super::{form_error, unquote};
+use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
+use crate::cells::parse::Statement;
+use crate::cells::session::Session;
+use crate::table::{load_table, parse_table_line, summary_json, LoadReport, Table, TableSpec};
+
+const FORM: &str = "table NAME from \"FILE.csv\"  (end with ':' to declare columns, `drop missing`, `keep where …` below)";
+
+/// Read the table, store it, and show its schema and what loading did.
+pub(crate) fn table(session: &mut Session, st: &Statement, _warnings: &mut [String]) -> Result<Vec<Display>, CellError> {
+    let (name, path) = parse_header(st.head()).ok_or_else(|| form_error(st, FORM))?;
+    let mut spec = TableSpec::new(name, session.resolve(path));
+    for line in &st.body {
+        let rule = parse_table_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
+        spec.add_rule(rule).map_err(|e| CellError::at(line.number, e.to_string()))?;
+    }
+    let (mut table, mut report) = load_table(&spec).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    table.name = name.to_string();
+    report.source = path.to_string();
+    let display = describe(&table, &report);
+    session.put_table(name, table);
+    Ok(vec![display])
+}
+
+/// `table NAME from "FILE"` → (NAME, FILE).
+fn parse_header(head: &str) -> Option<(&str, &str)> {
+    let rest = head.strip_prefix("table")?.trim_start();
+    let (name, rest) = rest.split_once(char::is_whitespace)?;
+    let path = unquote(rest.trim_start().strip_prefix("from")?.trim())?;
+    if name.is_empty() || path.is_empty() || !is_name(name) {
+        return None;
+    }
+    Some((name, path))
+}
+
+/// A name of letters, digits and `_`, not starting with a digit.
+pub(crate) fn is_name(s: &str) -> bool {
+    let mut chars = s.chars();
+    chars.next().is_some_and(|c| c.is_alphabetic() || c == '_') && chars.all(|c| c.is_alphanumeric() || c == '_')
+}
+
+fn describe(table: &Table, report: &LoadReport) -> Display {
+    let heading = format!(
+        "table {}: {} rows × {} columns from {}",
+        table.name,
+        table.nrows(),
+        table.columns.len(),
+        report.source
+    );
+    let mut grid = Grid::new(&["column", "kind", "unit", "levels (in order)", "missing", "kind was"]).numeric_columns(&[4]);
+    for column in &table.columns {
+        let col_report = report.columns.iter().find(|c| c.name == column.name);
+        grid.push(vec![
+            column.name.clone(),
+            column.data.kind().name().to_string(),
+            column.unit.clone().unwrap_or_default(),
+            column.data.levels().map(|l| l.join(", ")).unwrap_or_default(),
+            col_report.map_or(0, |c| c.missing).to_string(),
+            if col_report.is_some_and(|c| c.inferred) { "inferred" } else { "declared" }.to_string(),
+        ]);
+    }
+    let notes = load_notes(report);
+    let mut plain = format!("{heading}\n{}", grid.to_text());
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    Display {
+        plain,
+        html: Some(html_block(&heading, &[grid.to_html(), html_list(&notes)])),
+        svg: None,
+        json: Some(summary_json(table, report)),
+    }
+}
+
+/// Sentences saying which rows were left out and why (nothing is dropped silently).
+fn load_notes(report: &LoadReport) -> Vec<String> {
+    let mut notes = vec![format!("{} data rows read", report.rows_read)];
+    if report.dropped_missing > 0 {
+        let by_column: Vec<String> = report
+            .columns
+            .iter()
+            .filter(|c| c.missing > 0)
+            .map(|c| format!("{} in {}", c.missing, c.name))
+            .collect();
+        notes.push(format!(
+            "drop missing: {} rows left out (missing values: {})",
+            report.dropped_missing,
+            by_column.join(", ")
+        ));
+    }
+    for f in &report.filters {
+        notes.push(format!("keep where {}: kept {} of {} rows, left out {}", f.condition, f.kept, f.rows_before, f.dropped));
+    }
+    if report.dropped() == 0 {
+        notes.push("no rows were left out".to_string());
+    }
+    notes
+}
