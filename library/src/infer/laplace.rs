@@ -20,7 +20,9 @@ use crate::model::LogDensity;
 
 /// Most Newton steps before giving up.
 const MAX_STEPS: usize = 500;
-/// Converged when half the Newton decrement `gᵀ(−H)⁻¹g` is below this.
+/// Converged when half the Newton decrement `gᵀ(−H + λI)⁻¹g` is below this
+/// (λ = 0 unless damping was needed; a flat or saddle-shaped stationary point
+/// also stops here and is then reported by the curvature check).
 const DECREMENT_TOLERANCE: f64 = 1e-12;
 /// Relative step of the central differences of the gradient.
 const DIFFERENCE_STEP: f64 = 1e-5;
@@ -112,7 +114,7 @@ fn find_mode<D: LogDensity>(
     while steps < MAX_STEPS {
         let (direction, undamped) = newton_direction(&hessian(target, &theta), &grad);
         let slope = grad.dot(&direction);
-        if undamped && 0.5 * slope < DECREMENT_TOLERANCE {
+        if 0.5 * slope < DECREMENT_TOLERANCE {
             return Ok((theta, value, steps));
         }
         steps += 1;
