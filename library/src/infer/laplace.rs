@@ -193,11 +193,10 @@ fn flat_directions(negative_hessian: &DMatrix<f64>, label: &dyn Fn(usize) -> Str
     if flat.is_empty() {
         flat.push(eigen.eigenvalues.imin());
     }
-    let mut involved: Vec<usize> = (0..negative_hessian.nrows())
+    (0..negative_hessian.nrows())
         .filter(|&i| flat.iter().any(|&k| eigen.eigenvectors[(i, k)].abs() > 0.1))
-        .collect();
-    involved.dedup();
-    involved.into_iter().map(label).collect()
+        .map(label)
+        .collect()
 }
 
 /// `n` draws of `mode + L⁻ᵀz` with `LLᵀ = −H`, so their covariance is `(−H)⁻¹`.
