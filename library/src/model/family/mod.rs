@@ -1,0 +1,109 @@
+//! Outcome families and their links.
+//!
+//! Each family fixes the link between the linear predictor and the mean:
+//! normal — identity; bernoulli and binomial — logit; poisson — log. The
+//! likelihoods live in [`likelihood`] (row by row, for the GLM families) and
+//! [`gaussian`] (through sufficient statistics, for the normal family).
+
+pub mod gaussian;
+pub mod likelihood;
+
+use super::error::ModelError;
+
+/// The outcome distribution of a model.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Family {
+    /// Normal outcome, identity link, with a spread parameter.
+    Normal,
+    /// Yes/no outcome, logit link.
+    Bernoulli,
+    /// Successes out of a known number of trials (a count column), logit link.
+    Binomial { trials: String },
+    /// Count outcome, log link.
+    Poisson,
+}
+
+impl Family {
+    /// Read the rest of a `family` line: `normal`, `bernoulli`, `poisson`,
+    /// or `binomial trials <column>`.
+    pub fn parse(text: &str) -> Result<Family, ModelError> {
+        let words: Vec<&str> = text.split_whitespace().collect();
+        match words[..] {
+            ["normal"] => Ok(Family::Normal),
+            ["bernoulli"] => Ok(Family::Bernoulli),
+            ["poisson"] => Ok(Family::Poisson),
+            ["binomial", "trials", column] => Ok(Family::Binomial { trials: column.to_string() }),
+            ["binomial", ..] => Err(ModelError::syntax(
+                "a binomial outcome needs its number of trials: write `family binomial trials <column>`",
+            )),
+            _ => Err(ModelError::syntax(format!(
+                "`family {text}`: use normal, bernoulli, poisson or binomial trials <column>"
+            ))),
+        }
+    }
+
+    /// The family's word in the cell language.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Family::Normal => "normal",
+            Family::Bernoulli => "bernoulli",
+            Family::Binomial { .. } => "binomial",
+            Family::Poisson => "poisson",
+        }
+    }
+
+    /// The link's name, for printing.
+    pub fn link_name(&self) -> &'static str {
+        match self {
+            Family::Normal => "identity",
+            Family::Bernoulli | Family::Binomial { .. } => "logit",
+            Family::Poisson => "log",
+        }
+    }
+
+    /// Whether the family has a spread parameter.
+    pub fn has_spread(&self) -> bool {
+        matches!(self, Family::Normal)
+    }
+
+    /// The mean of one outcome (per trial, for binomial) from the linear predictor.
+    pub fn inverse_link(&self, eta: f64) -> f64 {
+        match self {
+            Family::Normal => eta,
+            Family::Bernoulli | Family::Binomial { .. } => logistic(eta),
+            Family::Poisson => eta.exp(),
+        }
+    }
+
+    /// The linear predictor that gives mean `mu` (clamped away from the
+    /// edges of the mean's range, for starting values and default priors).
+    pub fn link(&self, mu: f64) -> f64 {
+        match self {
+            Family::Normal => mu,
+            Family::Bernoulli | Family::Binomial { .. } => {
+                let p = mu.clamp(1e-3, 1.0 - 1e-3);
+                (p / (1.0 - p)).ln()
+            }
+            Family::Poisson => mu.max(1e-3).ln(),
+        }
+    }
+}
+
+/// The logistic function 1 / (1 + e^-x), computed without overflow.
+pub fn logistic(x: f64) -> f64 {
+    if x >= 0.0 {
+        1.0 / (1.0 + (-x).exp())
+    } else {
+        let e = x.exp();
+        e / (1.0 + e)
+    }
+}
+
+/// log(1 + e^x), computed without overflow or loss of precision.
+pub fn softplus(x: f64) -> f64 {
+    if x > 0.0 {
+        x + (-x).exp().ln_1p()
+    } else {
+        x.exp().ln_1p()
+    }
+}

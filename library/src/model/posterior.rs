@@ -1,0 +1,223 @@
+//! The built model and its log posterior density.
+//!
+//! The unconstrained parameter vector is the coefficients, in design-column
+//! order, followed (normal family only) by `log(spread)`. The density is the
+//! full log-likelihood plus the log priors plus `log(spread)`, the log
+//! Jacobian of `spread = e^u`; normalising constants are kept so values can
+//! be checked against reference libraries.
+
+use nalgebra::DMatrix;
+
+use super::defaults::PriorUse;
+use super::error::ModelError;
+use super::family::gaussian::GaussianStats;
+use super::family::likelihood::GlmData;
+use super::family::Family;
+use super::prior::Prior;
+use super::terms::TermRecipe;
+use super::LogDensity;
+
+/// How the likelihood is evaluated.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum Likelihood {
+    /// Normal family, through sufficient statistics, with the spread's prior.
+    Gaussian { stats: GaussianStats, spread_prior: Prior },
+    /// Bernoulli, binomial or poisson, row by row.
+    Glm(GlmData),
+}
+
+/// A regression model built against a table: a log posterior density over
+/// labelled parameters, with everything needed to predict for new rows.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Model {
+    pub(crate) name: String,
+    pub(crate) outcome: String,
+    pub(crate) table: String,
+    pub(crate) family: Family,
+    pub(crate) recipes: Vec<TermRecipe>,
+    pub(crate) labels: Vec<String>,
+    pub(crate) design: DMatrix<f64>,
+    pub(crate) y: Vec<f64>,
+    pub(crate) coefficient_priors: Vec<Prior>,
+    pub(crate) likelihood: Likelihood,
+    pub(crate) priors_used: Vec<PriorUse>,
+    pub(crate) notes: Vec<String>,
+    pub(crate) start: Vec<f64>,
+}
+
+impl Model {
+    /// The model's name from the cell header.
+    pub fn name(&self) -> &str {
+        &self.name
+    }
+
+    /// The outcome column's name.
+    pub fn outcome_name(&self) -> &str {
+        &self.outcome
+    }
+
+    /// The name of the table the model was built on.
+    pub fn table_name(&self) -> &str {
+        &self.table
+    }
+
+    /// The outcome family (and through it the link).
+    pub fn family(&self) -> &Family {
+        &self.family
+    }
+
+    /// Labels of the coefficients, in design-column order.
+    pub fn coefficient_names(&self) -> &[String] {
+        &self.labels
+    }
+
+    /// Labels of the constrained parameters: the coefficients, then
+    /// `spread` for a normal outcome.
+    pub fn parameter_names(&self) -> Vec<String> {
+        let mut names = self.labels.clone();
+        if self.has_spread() {
+            names.push("spread".into());
+        }
+        names
+    }
+
+    /// Labels of the unconstrained parameters (`log(spread)` for the spread).
+    pub fn unconstrained_names(&self) -> Vec<String> {
+        let mut names = self.labels.clone();
+        if self.has_spread() {
+            names.push("log(spread)".into());
+        }
+        names
+    }
+
+    /// Constrained parameters from an unconstrained point.
+    pub fn constrain(&self, theta: &[f64]) -> Vec<f64> {
+        let mut params = theta.to_vec();
+        if self.has_spread() {
+            if let Some(last) = params.last_mut() {
+                *last = last.exp();
+            }
+        }
+        params
+    }
+
+    /// The unconstrained point of constrained parameters (checks the length
+    /// and that the spread is positive).
+    pub fn unconstrain(&self, params: &[f64]) -> Result<Vec<f64>, ModelError> {
+        self.check_length(params)?;
+        let mut theta = params.to_vec();
+        if self.has_spread() {
+            let spread = theta[self.labels.len()];
+            if spread <= 0.0 || !spread.is_finite() {
+                return Err(ModelError::Parameters {
+                    message: format!("the spread must be positive, not {spread}"),
+                });
+            }
+            theta[self.labels.len()] = spread.ln();
+        }
+        Ok(theta)
+    }
+
+    /// A starting point for optimisers and samplers (unconstrained): the
+    /// intercepts at the outcome's mean on the link scale, other
+    /// coefficients at 0, the spread at the outcome's sd — each moved to
+    /// its prior's centre if outside the prior's support.
+    pub fn initial_point(&self) -> Vec<f64> {
+        self.start.clone()
+    }
+
+    /// Every prior in use, declared or default, for printing.
+    pub fn priors_used(&self) -> &[PriorUse] {
+        &self.priors_used
+    }
+
+    /// Plain-language notes on the choices made when building: coding of
+    /// categories, centres, polynomial scaling, spline knots.
+    pub fn notes(&self) -> &[String] {
+        &self.notes
+    }
+
+    /// The design matrix of the fitted data (rows × coefficients).
+    pub fn design_matrix(&self) -> &DMatrix<f64> {
+        &self.design
+    }
+
+    /// The outcome values of the fitted data.
+    pub fn outcome_values(&self) -> &[f64] {
+        &self.y
+    }
+
+    /// The full log-likelihood at constrained parameters `params`.
+    pub fn log_likelihood(&self, params: &[f64]) -> Result<f64, ModelError> {
+        let theta = self.unconstrain(params)?;
+        let p = self.labels.len();
+        let mut scratch = vec![0.0; p];
+        Ok(match &self.likelihood {
+            Likelihood::Gaussian { stats, .. } => stats.log_likelihood_and_gradient(&theta[..p], theta[p], &mut scratch).0,
+            Likelihood::Glm(glm) => glm.log_likelihood_and_gradient(&theta, &mut scratch),
+        })
+    }
+
+    /// Whether the model has a spread parameter (normal family).
+    pub fn has_spread(&self) -> bool {
+        matches!(self.likelihood, Likelihood::Gaussian { .. })
+    }
+
+    pub(crate) fn check_length(&self, params: &[f64]) -> Result<(), ModelError> {
+        let names = self.parameter_names();
+        if params.len() == names.len() {
+            Ok(())
+        } else {
+            Err(ModelError::Parameters {
+                message: format!(
+                    "model `{}` has {} parameters ({}), but {} values were given",
+                    self.name,
+                    names.len(),
+                    names.join(", "),
+                    params.len()
+                ),
+            })
+        }
+    }
+
+    /// Log prior of the coefficients, writing its gradient into `grad`.
+    fn log_prior_of_coefficients(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
+        let mut total = 0.0;
+        for ((prior, &b), g) in self.coefficient_priors.iter().zip(beta).zip(grad.iter_mut()) {
+            let (lp, d) = prior.log_density_and_derivative(b);
+            total += lp;
+            *g = d;
+        }
+        total
+    }
+}
+
+impl LogDensity for Model {
+    fn dim(&self) -> usize {
+        self.labels.len() + usize::from(self.has_spread())
+    }
+
+    fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let p = self.labels.len();
+        let mut total = self.log_prior_of_coefficients(&theta[..p], &mut grad[..p]);
+        if total == f64::NEG_INFINITY {
+            return f64::NEG_INFINITY;
+        }
+        match &self.likelihood {
+            Likelihood::Gaussian { stats, spread_prior } => {
+                let u = theta[p];
+                let (ll, d_u) = stats.log_likelihood_and_gradient(&theta[..p], u, &mut grad[..p]);
+                let spread = u.exp();
+                let (lp, d_spread) = spread_prior.log_density_and_derivative(spread);
+                total += ll + lp + u;
+                grad[p] = d_u + d_spread * spread + 1.0;
+            }
+            Likelihood::Glm(glm) => total += glm.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
+        }
+        if total.is_finite() {
+            total
+        } else {
+            f64::NEG_INFINITY
+        }
+    }
+}

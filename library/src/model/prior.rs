@@ -1,0 +1,245 @@
+//! Prior distributions and the parameter groups they are declared for.
+//!
+//! A prior is declared per group (`prior slopes: normal(0, 2)`); undeclared
+//! groups get defaults scaled to the data (see [`crate::model::defaults`]).
+//! Each prior gives its full log density (normalising constant included, so
+//! it can be checked against a reference library) and the derivative of that
+//! log density, which the model's analytic gradient needs.
+
+use std::f64::consts::PI;
+use std::fmt;
+
+use statrs::function::gamma::ln_gamma;
+
+use super::error::ModelError;
+
+/// The parameter groups a `prior` line can address.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum PriorGroup {
+    /// The intercept, or one intercept per level of the first category term.
+    Intercepts,
+    /// Slopes of real predictors (plain, per level, polynomial) and offsets
+    /// of later category terms.
+    Slopes,
+    /// Weights of spline basis functions.
+    Weights,
+    /// The residual spread of a normal outcome (positive).
+    Spread,
+}
+
+impl PriorGroup {
+    /// The word used for the group in a `prior` line.
+    pub fn name(self) -> &'static str {
+        match self {
+            PriorGroup::Intercepts => "intercepts",
+            PriorGroup::Slopes => "slopes",
+            PriorGroup::Weights => "weights",
+            PriorGroup::Spread => "spread",
+        }
+    }
+
+    /// Read a group word (`spline weights` is accepted for `weights`).
+    pub fn parse(word: &str) -> Option<Self> {
+        match word.split_whitespace().collect::<Vec<_>>().join(" ").as_str() {
+            "intercepts" | "intercept" => Some(PriorGroup::Intercepts),
+            "slopes" | "slope" => Some(PriorGroup::Slopes),
+            "weights" | "spline weights" => Some(PriorGroup::Weights),
+            "spread" => Some(PriorGroup::Spread),
+            _ => None,
+        }
+    }
+
+    /// Whether the group's parameters are positive.
+    pub fn is_positive(self) -> bool {
+        self == PriorGroup::Spread
+    }
+}
+
+/// A prior distribution for one parameter.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Prior {
+    Normal { mean: f64, sd: f64 },
+    StudentT { df: f64, location: f64, scale: f64 },
+    Exponential { rate: f64 },
+    HalfNormal { sd: f64 },
+    LogNormal { log_mean: f64, log_sd: f64 },
+    Uniform { lower: f64, upper: f64 },
+}
+
+impl Prior {
+    /// Read a prior such as `normal(0, 2)` or `student_t(3, 0, 1)`.
+    pub fn parse(text: &str) -> Result<Prior, ModelError> {
+        let text = text.trim();
+        let open = text.find('(').filter(|_| text.ends_with(')')).ok_or_else(|| {
+            ModelError::syntax(format!(
+                "`{text}` is not a distribution; write it like `normal(0, 2)`"
+            ))
+        })?;
+        let name = text[..open].trim();
+        let args = parse_numbers(&text[open + 1..text.len() - 1], text)?;
+        let prior = build_prior(name, &args, text)?;
+        prior.check_parameters(text)?;
+        Ok(prior)
+    }
+
+    /// Whether the prior puts all its mass on positive values.
+    pub fn is_positive_only(&self) -> bool {
+        match self {
+            Prior::Exponential { .. } | Prior::HalfNormal { .. } | Prior::LogNormal { .. } => true,
+            Prior::Uniform { lower, .. } => *lower >= 0.0,
+            Prior::Normal { .. } | Prior::StudentT { .. } => false,
+        }
+    }
+
+    /// Whether the prior gives positive mass to negative values.
+    pub fn allows_negative(&self) -> bool {
+        match self {
+            Prior::Uniform { lower, .. } => *lower < 0.0,
+            _ => !self.is_positive_only(),
+        }
+    }
+
+    /// Log density at `x` (full normalising constant) and its derivative.
+    /// Outside the support the log density is `-inf` and the derivative 0.
+    pub fn log_density_and_derivative(&self, x: f64) -> (f64, f64) {
+        match *self {
+            Prior::Normal { mean, sd } => normal_log_density(x, mean, sd),
+            Prior::StudentT { df, location, scale } => student_t_log_density(x, df, location, scale),
+            Prior::Exponential { rate } if x >= 0.0 => (rate.ln() - rate * x, -rate),
+            Prior::HalfNormal { sd } if x >= 0.0 => {
+                let (lp, d) = normal_log_density(x, 0.0, sd);
+                (lp + 2f64.ln(), d)
+            }
+            Prior::LogNormal { log_mean, log_sd } if x > 0.0 => {
+                let (lp, d) = normal_log_density(x.ln(), log_mean, log_sd);
+                (lp - x.ln(), (d - 1.0) / x)
+            }
+            Prior::Uniform { lower, upper } if x >= lower && x <= upper => (-(upper - lower).ln(), 0.0),
+            _ => (f64::NEG_INFINITY, 0.0),
+        }
+    }
+
+    /// A point well inside the support, used to start optimisers and
+    /// samplers when the data-based start falls outside it.
+    pub fn central_point(&self) -> f64 {
+        match *self {
+            Prior::Normal { mean, .. } => mean,
+            Prior::StudentT { location, .. } => location,
+            Prior::Exponential { rate } => 1.0 / rate,
+            Prior::HalfNormal { sd } => sd * (2.0 / PI).sqrt(),
+            Prior::LogNormal { log_mean, .. } => log_mean.exp(),
+            Prior::Uniform { lower, upper } => 0.5 * (lower + upper),
+        }
+    }
+
+    /// Whether `x` is in the prior's support.
+    pub fn contains(&self, x: f64) -> bool {
+        self.log_density_and_derivative(x).0 > f64::NEG_INFINITY
+    }
+
+    fn check_parameters(&self, text: &str) -> Result<(), ModelError> {
+        let bad = |what: &str| Err(ModelError::syntax(format!("`{text}`: {what}")));
+        match *self {
+            Prior::Normal { sd, .. } | Prior::HalfNormal { sd } if sd <= 0.0 => bad("the sd must be positive"),
+            Prior::LogNormal { log_sd, .. } if log_sd <= 0.0 => bad("the sd of the log must be positive"),
+            Prior::StudentT { df, scale, .. } if df <= 0.0 || scale <= 0.0 => {
+                bad("degrees of freedom and scale must be positive")
+            }
+            Prior::Exponential { rate } if rate <= 0.0 => bad("the rate must be positive"),
+            Prior::Uniform { lower, upper } if lower >= upper => bad("the lower end must be below the upper end"),
+            _ => Ok(()),
+        }
+    }
+}
+
+impl fmt::Display for Prior {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let n = short_number;
+        match *self {
+            Prior::Normal { mean, sd } => write!(f, "normal({}, {})", n(mean), n(sd)),
+            Prior::StudentT { df, location, scale } => {
+                write!(f, "student_t({}, {}, {})", n(df), n(location), n(scale))
+            }
+            Prior::Exponential { rate } => write!(f, "exponential({})", n(rate)),
+            Prior::HalfNormal { sd } => write!(f, "half_normal({})", n(sd)),
+            Prior::LogNormal { log_mean, log_sd } => write!(f, "lognormal({}, {})", n(log_mean), n(log_sd)),
+            Prior::Uniform { lower, upper } => write!(f, "uniform({}, {})", n(lower), n(upper)),
+        }
+    }
+}
+
+/// A number with four significant digits and no trailing zeros, for
+/// printing priors and notes.
+pub fn short_number(x: f64) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    if !(-4..6).contains(&magnitude) {
+        return format!("{x:.3e}");
+    }
+    let decimals = (3 - magnitude).max(0) as usize;
+    let text = format!("{x:.decimals$}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
+fn normal_log_density(x: f64, mean: f64, sd: f64) -> (f64, f64) {
+    let z = (x - mean) / sd;
+    (-0.5 * z * z - sd.ln() - 0.5 * (2.0 * PI).ln(), -z / sd)
+}
+
+fn student_t_log_density(x: f64, df: f64, location: f64, scale: f64) -> (f64, f64) {
+    let z = (x - location) / scale;
+    let constant = ln_gamma(0.5 * (df + 1.0)) - ln_gamma(0.5 * df) - 0.5 * (df * PI).ln() - scale.ln();
+    let lp = constant - 0.5 * (df + 1.0) * (z * z / df).ln_1p();
+    let d = -(df + 1.0) * z / (scale * (df + z * z));
+    (lp, d)
+}
+
+fn parse_numbers(inner: &str, whole: &str) -> Result<Vec<f64>, ModelError> {
+    inner
+        .split(',')
+        .map(|a| {
+            let a = a.trim();
+            a.parse::<f64>().ok().filter(|v| v.is_finite()).ok_or_else(|| {
+                ModelError::syntax(format!("`{whole}`: `{a}` is not a number"))
+            })
+        })
+        .collect()
+}
+
+fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError> {
+    match (name, args) {
+        ("normal", [mean, sd]) => Ok(Prior::Normal { mean: *mean, sd: *sd }),
+        ("student_t", [df, location, scale]) => {
+            Ok(Prior::StudentT { df: *df, location: *location, scale: *scale })
+        }
+        ("exponential", [rate]) => Ok(Prior::Exponential { rate: *rate }),
+        ("half_normal", [sd]) => Ok(Prior::HalfNormal { sd: *sd }),
+        ("lognormal", [m, s]) => Ok(Prior::LogNormal { log_mean: *m, log_sd: *s }),
+        ("uniform", [lower, upper]) => Ok(Prior::Uniform { lower: *lower, upper: *upper }),
+        _ => Err(unknown_prior(name, args.len(), text)),
+    }
+}
+
+fn unknown_prior(name: &str, given: usize, text: &str) -> ModelError {
+    let wanted = match name {
+        "normal" => "2 numbers (mean, sd)",
+        "student_t" => "3 numbers (degrees of freedom, location, scale)",
+        "exponential" => "1 number (rate)",
+        "half_normal" => "1 number (sd)",
+        "lognormal" => "2 numbers (mean and sd of the log)",
+        "uniform" => "2 numbers (lower, upper)",
+        _ => {
+            return ModelError::syntax(format!(
+                "`{text}`: unknown distribution `{name}`; use normal, student_t, exponential, \
+                 half_normal, lognormal or uniform"
+            ))
+        }
+    };
+    ModelError::syntax(format!("`{text}`: {name} takes {wanted}, not {given}"))
+}

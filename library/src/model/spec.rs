@@ -1,0 +1,330 @@
+//! The model specification: the body lines of a `model` cell, read one at a
+//! time, and the [`ModelSpec`] they assemble into.
+//!
+//! ```text
+//! model m_direct:
+//!     yield from rootstock, girth per rootstock using trees
+//!     family normal
+//!     prior intercepts: normal(20, 10)
+//!     prior spread: exponential(0.5)
+//! ```
+//!
+//! Line forms (one per line, `#` starts a comment):
+//! * `<outcome> from <term>, <term>, … using <table>` (or `<outcome> using <table>`
+//!   for an intercept-only model). Terms: a column name (a category gives one
+//!   intercept per level, a real column a slope), `<x> per <category>` (one
+//!   slope of x per level), `poly(<x>, <degree>)`, `spline(<x>, <functions>)`
+//!   or `spline(<x>, <functions>, knots <k1> <k2> …)`.
+//! * `family normal | bernoulli | poisson | binomial trials <column>`.
+//! * `prior <group>: <distribution>`, group one of intercepts, slopes,
+//!   weights (spline weights), spread.
+//! * `centre on | off` — whether real predictors are centred at their mean
+//!   (on by default).
+//!
+//! Parsing knows nothing of the data; [`crate::model::Model::build`] checks
+//! the names and kinds against the table.
+
+use std::fmt;
+
+use super::error::ModelError;
+use super::family::Family;
+use super::prior::{Prior, PriorGroup};
+
+/// One term of the right-hand side of the outcome line.
+#[derive(Debug, Clone, PartialEq)]
+pub enum TermSpec {
+    /// A bare column: intercepts per level for a category, a slope otherwise.
+    Column(String),
+    /// `x per c`: one slope of `x` per level of category `c`.
+    Per { predictor: String, by: String },
+    /// `poly(x, d)`: powers 1..=d of the standardised predictor.
+    Poly { predictor: String, degree: usize },
+    /// `spline(x, k)`: k cubic B-spline basis functions of `x`, interior knots
+    /// at quantiles unless listed.
+    Spline { predictor: String, functions: usize, knots: Option<Vec<f64>> },
+}
+
+impl TermSpec {
+    /// The column whose values enter the term (the `x` of `x per c`).
+    pub fn predictor(&self) -> &str {
+        match self {
+            TermSpec::Column(name) => name,
+            TermSpec::Per { predictor, .. }
+            | TermSpec::Poly { predictor, .. }
+            | TermSpec::Spline { predictor, .. } => predictor,
+        }
+    }
+}
+
+impl fmt::Display for TermSpec {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            TermSpec::Column(name) => write!(f, "{name}"),
+            TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
+            TermSpec::Poly { predictor, degree } => write!(f, "poly({predictor}, {degree})"),
+            TermSpec::Spline { predictor, functions, knots: None } => {
+                write!(f, "spline({predictor}, {functions})")
+            }
+            TermSpec::Spline { predictor, functions, knots: Some(k) } => {
+                let listed: Vec<String> = k.iter().map(|v| v.to_string()).collect();
+                write!(f, "spline({predictor}, {functions}, knots {})", listed.join(" "))
+            }
+        }
+    }
+}
+
+/// The outcome line: `yield from rootstock, girth using trees`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Formula {
+    pub outcome: String,
+    pub terms: Vec<TermSpec>,
+    pub table: String,
+}
+
+/// One parsed body line of a `model` cell.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ModelLine {
+    Formula(Formula),
+    Family(Family),
+    Prior { group: PriorGroup, prior: Prior },
+    Centring(bool),
+    /// A blank or comment-only line.
+    Blank,
+}
+
+/// A whole model specification, ready to be built against a table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ModelSpec {
+    pub name: String,
+    pub outcome: String,
+    pub terms: Vec<TermSpec>,
+    pub table: String,
+    pub family: Family,
+    /// Declared priors; groups not listed get data-scaled defaults.
+    pub priors: Vec<(PriorGroup, Prior)>,
+    /// Whether real predictors are centred at their mean.
+    pub centre: bool,
+    /// Cell line of the outcome line (1-based), used to place build errors.
+    pub formula_line: Option<usize>,
+}
+
+impl ModelSpec {
+    /// Assemble a specification from numbered body lines `(line, text)`.
+    /// Errors carry the line number.
+    pub fn from_lines<'a>(
+        name: &str,
+        lines: impl IntoIterator<Item = (usize, &'a str)>,
+    ) -> Result<ModelSpec, ModelError> {
+        let mut formula: Option<(usize, Formula)> = None;
+        let mut family: Option<(usize, Family)> = None;
+        let mut priors: Vec<(PriorGroup, Prior)> = Vec::new();
+        let mut centre = true;
+        for (line, text) in lines {
+            let at = |e: ModelError| e.at_line(line);
+            match parse_model_line(text).map_err(at)? {
+                ModelLine::Formula(f) => set_once(&mut formula, line, f, "outcome line").map_err(at)?,
+                ModelLine::Family(f) => set_once(&mut family, line, f, "family line").map_err(at)?,
+                ModelLine::Prior { group, prior } => {
+                    if priors.iter().any(|(g, _)| *g == group) {
+                        return Err(at(ModelError::syntax(format!(
+                            "a prior for {} is already declared; keep one",
+                            group.name()
+                        ))));
+                    }
+                    priors.push((group, prior));
+                }
+                ModelLine::Centring(on) => centre = on,
+                ModelLine::Blank => {}
+            }
+        }
+        let (formula_line, formula) = formula.ok_or_else(|| ModelError::Incomplete {
+            message: format!(
+                "model `{name}` has no outcome line; add one like `yield from girth using trees`"
+            ),
+        })?;
+        Ok(ModelSpec {
+            name: name.to_string(),
+            outcome: formula.outcome,
+            terms: formula.terms,
+            table: formula.table,
+            family: family.map(|(_, f)| f).unwrap_or(Family::Normal),
+            priors,
+            centre,
+            formula_line: Some(formula_line),
+        })
+    }
+
+    /// The declared prior for a group, if any.
+    pub fn declared_prior(&self, group: PriorGroup) -> Option<&Prior> {
+        self.priors.iter().find(|(g, _)| *g == group).map(|(_, p)| p)
+    }
+}
+
+fn set_once<T>(slot: &mut Option<(usize, T)>, line: usize, value: T, what: &str) -> Result<(), ModelError> {
+    if let Some((first, _)) = slot {
+        return Err(ModelError::syntax(format!(
+            "a second {what}; the model already has one on line {first}"
+        )));
+    }
+    *slot = Some((line, value));
+    Ok(())
+}
+
+/// Parse one body line of a `model` cell.
+pub fn parse_model_line(text: &str) -> Result<ModelLine, ModelError> {
+    let text = text.split('#').next().unwrap_or("").trim();
+    if text.is_empty() {
+        return Ok(ModelLine::Blank);
+    }
+    let (head, rest) = text.split_once(char::is_whitespace).unwrap_or((text, ""));
+    match head {
+        "family" => Family::parse(rest.trim()).map(ModelLine::Family),
+        "prior" => parse_prior_line(rest.trim()),
+        "centre" => parse_centring(rest.trim()),
+        _ => parse_formula(text).map(ModelLine::Formula),
+    }
+}
+
+fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
+    let (group_word, dist) = rest.split_once(':').ok_or_else(|| {
+        ModelError::syntax(format!(
+            "`prior {rest}` needs a colon, like `prior slopes: normal(0, 1)`"
+        ))
+    })?;
+    let group = PriorGroup::parse(group_word).ok_or_else(|| {
+        ModelError::syntax(format!(
+            "`{}` is not a prior group; use intercepts, slopes, weights or spread",
+            group_word.trim()
+        ))
+    })?;
+    Ok(ModelLine::Prior { group, prior: Prior::parse(dist)? })
+}
+
+fn parse_centring(rest: &str) -> Result<ModelLine, ModelError> {
+    match rest {
+        "on" => Ok(ModelLine::Centring(true)),
+        "off" => Ok(ModelLine::Centring(false)),
+        _ => Err(ModelError::syntax(format!("`centre {rest}`: write `centre on` or `centre off`"))),
+    }
+}
+
+fn parse_formula(text: &str) -> Result<Formula, ModelError> {
+    let (left, table) = text.rsplit_once(" using ").ok_or_else(|| {
+        ModelError::syntax(format!(
+            "`{text}` is not a model line; an outcome line ends with `using <table>`, \
+             other lines start with family, prior or centre"
+        ))
+    })?;
+    let table = identifier(table.trim(), "table name")?;
+    let (outcome, terms) = match left.split_once(" from ") {
+        Some((outcome, terms)) => (outcome, split_terms(terms)?),
+        None => (left, Vec::new()),
+    };
+    let outcome = identifier(outcome.trim(), "outcome")?;
+    Ok(Formula { outcome, terms, table })
+}
+
+fn split_terms(text: &str) -> Result<Vec<TermSpec>, ModelError> {
+    let mut terms = Vec::new();
+    let mut depth = 0i32;
+    let mut start = 0;
+    for (i, ch) in text.char_indices() {
+        match ch {
+            '(' => depth += 1,
+            ')' => depth -= 1,
+            ',' if depth == 0 => {
+                terms.push(parse_term(&text[start..i])?);
+                start = i + 1;
+            }
+            _ => {}
+        }
+    }
+    if depth != 0 {
+        return Err(ModelError::syntax(format!("`{}` has unbalanced brackets", text.trim())));
+    }
+    terms.push(parse_term(&text[start..])?);
+    Ok(terms)
+}
+
+fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
+    let text = text.trim();
+    if text.is_empty() {
+        return Err(ModelError::syntax("an empty term between commas; remove the extra comma"));
+    }
+    if let Some(inner) = call_arguments(text, "poly") {
+        return parse_poly(inner, text);
+    }
+    if let Some(inner) = call_arguments(text, "spline") {
+        return parse_spline(inner, text);
+    }
+    if let Some((x, by)) = text.split_once(" per ") {
+        return Ok(TermSpec::Per {
+            predictor: identifier(x.trim(), "predictor")?,
+            by: identifier(by.trim(), "category after `per`")?,
+        });
+    }
+    Ok(TermSpec::Column(identifier(text, "term")?))
+}
+
+/// The text inside `name( … )`, if `text` is such a call.
+fn call_arguments<'a>(text: &'a str, name: &str) -> Option<&'a str> {
+    let rest = text.strip_prefix(name)?.trim_start();
+    rest.strip_prefix('(')?.strip_suffix(')')
+}
+
+fn parse_poly(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
+    let parts: Vec<&str> = inner.split(',').map(str::trim).collect();
+    let [x, d] = parts[..] else {
+        return Err(ModelError::syntax(format!("`{whole}`: write poly(<column>, <degree>)")));
+    };
+    let degree = positive_integer(d, whole, "degree")?;
+    Ok(TermSpec::Poly { predictor: identifier(x, "predictor")?, degree })
+}
+
+fn parse_spline(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
+    let parts: Vec<&str> = inner.split(',').map(str::trim).collect();
+    let usage = || {
+        ModelError::syntax(format!(
+            "`{whole}`: write spline(<column>, <functions>) or spline(<column>, <functions>, knots <a> <b> …)"
+        ))
+    };
+    let (x, k, knots) = match parts[..] {
+        [x, k] => (x, k, None),
+        [x, k, listed] => (x, k, Some(parse_knots(listed, whole).ok_or_else(usage)??)),
+        _ => return Err(usage()),
+    };
+    let functions = positive_integer(k, whole, "number of basis functions")?;
+    Ok(TermSpec::Spline { predictor: identifier(x, "predictor")?, functions, knots })
+}
+
+fn parse_knots(listed: &str, whole: &str) -> Option<Result<Vec<f64>, ModelError>> {
+    let values = listed.strip_prefix("knots")?;
+    Some(
+        values
+            .split_whitespace()
+            .map(|v| {
+                v.parse::<f64>().ok().filter(|x| x.is_finite()).ok_or_else(|| {
+                    ModelError::syntax(format!("`{whole}`: knot `{v}` is not a number"))
+                })
+            })
+            .collect(),
+    )
+}
+
+fn positive_integer(text: &str, whole: &str, what: &str) -> Result<usize, ModelError> {
+    text.parse::<usize>().ok().filter(|&v| v > 0).ok_or_else(|| {
+        ModelError::syntax(format!("`{whole}`: the {what} `{text}` must be a whole number above 0"))
+    })
+}
+
+fn identifier(text: &str, what: &str) -> Result<String, ModelError> {
+    let mut chars = text.chars();
+    let first_ok = chars.next().is_some_and(|c| c.is_alphabetic() || c == '_');
+    if first_ok && chars.all(|c| c.is_alphanumeric() || c == '_' || c == '.') {
+        Ok(text.to_string())
+    } else {
+        Err(ModelError::syntax(format!(
+            "`{text}` is not a valid {what}; names are letters, digits, `_` and `.`, starting with a letter"
+        )))
+    }
+}

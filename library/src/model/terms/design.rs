@@ -1,0 +1,127 @@
+//! Evaluating term recipes on a table: the design matrix and the label,
+//! prior group and scale of each of its columns.
+//!
+//! Labels (documented for users in [`crate::model`]):
+//! `intercept`; `rootstock[dwarf]` (intercept of a level);
+//! `soil[sandy vs loam]` (offset of a level from the first level);
+//! `b_girth` (slope); `b_girth[dwarf]` (slope within a level);
+//! `b_girth^2` (polynomial power); `w_age[3]` (weight of spline function 3).
+
+use nalgebra::DMatrix;
+
+use crate::table::Table;
+
+use super::super::columns::{category_levels, find_column, real_values};
+use super::super::error::ModelError;
+use super::super::prior::PriorGroup;
+use super::recipe::TermRecipe;
+
+impl TermRecipe {
+    /// Labels of the term's coefficients.
+    pub fn labels(&self) -> Vec<String> {
+        match self {
+            TermRecipe::Intercept => vec!["intercept".to_string()],
+            TermRecipe::LevelIntercepts { column, levels } => {
+                levels.iter().map(|l| format!("{column}[{l}]")).collect()
+            }
+            TermRecipe::LevelOffsets { column, levels } => {
+                levels[1..].iter().map(|l| format!("{column}[{l} vs {}]", levels[0])).collect()
+            }
+            TermRecipe::Slope { column, .. } => vec![format!("b_{column}")],
+            TermRecipe::SlopePer { column, levels, .. } => {
+                levels.iter().map(|l| format!("b_{column}[{l}]")).collect()
+            }
+            TermRecipe::Poly { column, degree, .. } => (1..=*degree).map(|j| format!("b_{column}^{j}")).collect(),
+            TermRecipe::Spline { column, basis } => (2..=basis.len()).map(|j| format!("w_{column}[{j}]")).collect(),
+        }
+    }
+
+    /// The prior group of the term's coefficients.
+    pub fn group(&self) -> PriorGroup {
+        match self {
+            TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. } => PriorGroup::Intercepts,
+            TermRecipe::Spline { .. } => PriorGroup::Weights,
+            _ => PriorGroup::Slopes,
+        }
+    }
+
+    /// The sd of the predictor behind each coefficient on the fitted data
+    /// (1 for indicators and basis functions), for scaling default priors.
+    pub fn scales(&self) -> Vec<f64> {
+        match self {
+            TermRecipe::Slope { scale, .. } => vec![*scale],
+            TermRecipe::SlopePer { scale, levels, .. } => vec![*scale; levels.len()],
+            TermRecipe::Poly { power_scales, .. } => power_scales.clone(),
+            other => vec![1.0; other.labels().len()],
+        }
+    }
+
+    /// The term's design columns for every row of `table`.
+    pub fn columns(&self, table: &Table) -> Result<Vec<Vec<f64>>, ModelError> {
+        let n = table.nrows();
+        Ok(match self {
+            TermRecipe::Intercept => vec![vec![1.0; n]],
+            TermRecipe::LevelIntercepts { column, levels } => indicators(table, column, levels, 0)?,
+            TermRecipe::LevelOffsets { column, levels } => indicators(table, column, levels, 1)?,
+            TermRecipe::Slope { column, centre, .. } => vec![centred(table, column, *centre)?],
+            TermRecipe::SlopePer { column, centre, by, levels, .. } => {
+                let x = centred(table, column, *centre)?;
+                indicators(table, by, levels, 0)?
+                    .into_iter()
+                    .map(|ind| ind.iter().zip(&x).map(|(a, b)| a * b).collect())
+                    .collect()
+            }
+            TermRecipe::Poly { column, centre, scale, degree, .. } => {
+                let z: Vec<f64> = centred(table, column, *centre)?.iter().map(|v| v / scale).collect();
+                (1..=*degree).map(|j| z.iter().map(|v| v.powi(j as i32)).collect()).collect()
+            }
+            TermRecipe::Spline { column, basis } => {
+                let (lower, upper) = basis.range();
+                let x = real_values(find_column(table, column)?, "a spline")?;
+                let rows: Vec<Vec<f64>> = x.iter().map(|v| basis.row(v.clamp(lower, upper))).collect();
+                (1..basis.len()).map(|j| rows.iter().map(|r| r[j]).collect()).collect()
+            }
+        })
+    }
+}
+
+/// The design matrix of `recipes` on `table` (rows × coefficients).
+pub fn design_matrix(recipes: &[TermRecipe], table: &Table) -> Result<DMatrix<f64>, ModelError> {
+    let mut columns = Vec::new();
+    for recipe in recipes {
+        columns.extend(recipe.columns(table)?);
+    }
+    let n = table.nrows();
+    Ok(DMatrix::from_fn(n, columns.len(), |i, j| columns[j][i]))
+}
+
+fn centred(table: &Table, column: &str, centre: f64) -> Result<Vec<f64>, ModelError> {
+    let x = real_values(find_column(table, column)?, "a slope")?;
+    Ok(x.into_iter().map(|v| v - centre).collect())
+}
+
+/// 0/1 columns for `levels[skip..]` of category `column`, matching the
+/// table's labels to the planned levels by name.
+fn indicators(table: &Table, column: &str, levels: &[String], skip: usize) -> Result<Vec<Vec<f64>>, ModelError> {
+    let found = find_column(table, column)?;
+    let (codes, table_levels) = category_levels(found, "this term")?;
+    let mapping: Vec<Option<usize>> =
+        table_levels.iter().map(|label| levels.iter().position(|p| p == label)).collect();
+    let mut out = vec![vec![0.0; codes.len()]; levels.len() - skip];
+    for (row, &code) in codes.iter().enumerate() {
+        let level = mapping[code as usize].ok_or_else(|| ModelError::Value {
+            table: table.name.clone(),
+            row: row + 1,
+            column: column.to_string(),
+            message: format!(
+                "level `{}` was not in the data the model was built on (levels: {}); predict for known levels only",
+                table_levels[code as usize],
+                levels.join(", ")
+            ),
+        })?;
+        if level >= skip {
+            out[level - skip][row] = 1.0;
+        }
+    }
+    Ok(out)
+}

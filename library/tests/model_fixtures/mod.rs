@@ -1,0 +1,100 @@
+//! Invented orchard data for the model tests, generated with fixed seeds.
+//!
+//! Rows are trees: a rootstock (dwarf, standard), a soil (loam, sandy, clay),
+//! girth and age, and several outcomes — yield (normal), fruit count
+//! (poisson), blossoms set out of those visited by bees (binomial) and
+//! whether the tree is healthy (bernoulli).
+#![allow(dead_code)]
+
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Binomial, Distribution, Normal, Poisson};
+use waypath::model::{LogDensity, Model, ModelSpec};
+use waypath::table::{Column, ColumnData, Table};
+
+pub fn column(name: &str, data: ColumnData) -> Column {
+    Column { name: name.to_string(), unit: None, data }
+}
+
+pub fn category(codes: Vec<u32>, levels: &[&str]) -> ColumnData {
+    ColumnData::Category { codes, levels: levels.iter().map(|s| s.to_string()).collect() }
+}
+
+/// An orchard of `n` trees drawn with `seed`.
+pub fn orchard(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let mut rootstock = Vec::new();
+    let mut soil = Vec::new();
+    let mut girth = Vec::new();
+    let mut age = Vec::new();
+    let mut yield_kg = Vec::new();
+    let mut fruit = Vec::new();
+    let mut visits = Vec::new();
+    let mut set = Vec::new();
+    let mut healthy = Vec::new();
+    for _ in 0..n {
+        let standard = rng.random_range(0..2u32);
+        let s = rng.random_range(0..3u32);
+        let g = 22.0 + 6.0 * standard as f64 + 4.0 * noise.sample(&mut rng);
+        let a: f64 = rng.random_range(1.0..15.0);
+        let mu = 2.0 + 0.5 * g + 1.5 * standard as f64 + (a / 3.0).sin() * 2.0;
+        let lambda = (0.5 + 0.04 * g + 0.1 * s as f64).exp();
+        let m = rng.random_range(5..30u64);
+        let p = 1.0 / (1.0 + (-(-0.5 + 0.05 * (g - 25.0) + 0.4 * standard as f64)).exp());
+        rootstock.push(standard);
+        soil.push(s);
+        girth.push(g);
+        age.push(a);
+        yield_kg.push(mu + 3.0 * noise.sample(&mut rng));
+        fruit.push(Poisson::new(lambda).expect("valid rate").sample(&mut rng) as u64);
+        visits.push(m);
+        set.push(Binomial::new(m, p).expect("valid binomial").sample(&mut rng));
+        healthy.push(rng.random::<f64>() < p);
+    }
+    Table {
+        name: "trees".into(),
+        columns: vec![
+            column("rootstock", category(rootstock, &["dwarf", "standard"])),
+            column("soil", category(soil, &["loam", "sandy", "clay"])),
+            column("girth", ColumnData::Real(girth)),
+            column("age", ColumnData::Real(age)),
+            column("yield", ColumnData::Real(yield_kg)),
+            column("fruit", ColumnData::Count(fruit)),
+            column("visits", ColumnData::Count(visits)),
+            column("set", ColumnData::Count(set)),
+            column("healthy", ColumnData::Binary(healthy)),
+        ],
+    }
+}
+
+/// A spec from body lines numbered from 2 (line 1 is the header).
+pub fn spec(body: &str) -> ModelSpec {
+    try_spec(body).expect("spec parses")
+}
+
+pub fn try_spec(body: &str) -> Result<ModelSpec, waypath::model::ModelError> {
+    ModelSpec::from_lines("m", body.lines().enumerate().map(|(i, l)| (i + 2, l)))
+}
+
+pub fn build(body: &str, table: &Table) -> Model {
+    Model::build(&spec(body), table).expect("model builds")
+}
+
+/// The error text of building `body` on `table`.
+pub fn build_error(body: &str, table: &Table) -> String {
+    match try_spec(body) {
+        Err(e) => e.to_string(),
+        Ok(s) => match Model::build(&s, table) {
+            Err(e) => e.to_string(),
+            Ok(_) => panic!("expected `{body}` to fail"),
+        },
+    }
+}
+
+/// Log density and gradient as a pair.
+pub fn value_and_gradient<D: LogDensity>(target: &D, theta: &[f64]) -> (f64, Vec<f64>) {
+    let mut grad = vec![0.0; theta.len()];
+    let value = target.log_density_and_gradient(theta, &mut grad);
+    (value, grad)
+}

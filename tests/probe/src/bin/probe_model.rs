@@ -1,0 +1,109 @@
+//! Probe for the model and Laplace reference checks.
+//!
+//! Request (JSON on stdin), by `action`:
+//! * `fit` — `columns` (name → `{"real": [...]}`, `{"count": [...]}`,
+//!   `{"binary": [...]}` or `{"category": {"codes": [...], "levels": [...]}}`)
+//!   and `model` (body lines of a model cell). Answers `names`, `mode`
+//!   (constrained), `design` (rows), `notes`.
+//! * `log_likelihood` — as `fit`, plus `params` (constrained); answers
+//!   `log_likelihood` and `design`.
+//! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
+//! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`.
+
+use serde_json::{json, Value};
+use waypath::infer::laplace::laplace;
+use waypath::model::spline::BSplineBasis;
+use waypath::model::{Model, ModelSpec, Prior};
+use waypath::table::{Column, ColumnData, Table};
+
+fn main() {
+    let request = waypath_probe::read_request();
+    let answer = match request["action"].as_str() {
+        Some("fit") => fit(&request),
+        Some("log_likelihood") => log_likelihood(&request),
+        Some("basis") => basis(&request),
+        Some("prior") => prior(&request),
+        other => Err(format!("unknown action {other:?}")),
+    };
+    waypath_probe::write_answer(&answer.unwrap_or_else(|e| json!({ "error": e })));
+}
+
+fn numbers(value: &Value) -> Result<Vec<f64>, String> {
+    value
+        .as_array()
+        .ok_or("expected an array of numbers")?
+        .iter()
+        .map(|v| v.as_f64().ok_or_else(|| format!("{v} is not a number")))
+        .collect()
+}
+
+fn column_data(value: &Value) -> Result<ColumnData, String> {
+    if let Some(v) = value.get("real") {
+        return Ok(ColumnData::Real(numbers(v)?));
+    }
+    if let Some(v) = value.get("count") {
+        return Ok(ColumnData::Count(numbers(v)?.into_iter().map(|x| x as u64).collect()));
+    }
+    if let Some(v) = value.get("binary") {
+        return Ok(ColumnData::Binary(numbers(v)?.into_iter().map(|x| x != 0.0).collect()));
+    }
+    let category = value.get("category").ok_or("a column needs real, count, binary or category")?;
+    let codes = numbers(&category["codes"])?.into_iter().map(|x| x as u32).collect();
+    let levels = category["levels"]
+        .as_array()
+        .ok_or("category levels must be an array")?
+        .iter()
+        .map(|l| l.as_str().map(str::to_string).ok_or("levels must be strings"))
+        .collect::<Result<_, _>>()?;
+    Ok(ColumnData::Category { codes, levels })
+}
+
+fn model(request: &Value) -> Result<Model, String> {
+    let columns = request["columns"]
+        .as_object()
+        .ok_or("columns must be an object")?
+        .iter()
+        .map(|(name, v)| Ok(Column { name: name.clone(), unit: None, data: column_data(v)? }))
+        .collect::<Result<Vec<_>, String>>()?;
+    let table = Table { name: "data".into(), columns };
+    let text = request["model"].as_str().ok_or("model must be text")?;
+    let spec = ModelSpec::from_lines("probe", text.lines().enumerate().map(|(i, l)| (i + 2, l)))
+        .map_err(|e| e.to_string())?;
+    Model::build(&spec, &table).map_err(|e| e.to_string())
+}
+
+fn design_rows(model: &Model) -> Value {
+    let x = model.design_matrix();
+    json!((0..x.nrows()).map(|i| x.row(i).iter().copied().collect::<Vec<f64>>()).collect::<Vec<_>>())
+}
+
+fn fit(request: &Value) -> Result<Value, String> {
+    let model = model(request)?;
+    let fit = laplace(&model, &model.unconstrained_names(), &model.initial_point(), 0, 1).map_err(|e| e.to_string())?;
+    Ok(json!({
+        "names": model.parameter_names(),
+        "mode": model.constrain(&fit.mode),
+        "design": design_rows(&model),
+        "notes": model.notes(),
+    }))
+}
+
+fn log_likelihood(request: &Value) -> Result<Value, String> {
+    let model = model(request)?;
+    let params = numbers(&request["params"])?;
+    let value = model.log_likelihood(&params).map_err(|e| e.to_string())?;
+    Ok(json!({ "log_likelihood": value, "design": design_rows(&model), "names": model.parameter_names() }))
+}
+
+fn basis(request: &Value) -> Result<Value, String> {
+    let degree = request["degree"].as_u64().ok_or("degree must be a whole number")? as usize;
+    let basis = BSplineBasis::from_knots(numbers(&request["knots"])?, degree);
+    let rows: Vec<Vec<f64>> = numbers(&request["x"])?.into_iter().map(|x| basis.row(x)).collect();
+    Ok(json!({ "rows": rows }))
+}
+
+fn prior(request: &Value) -> Result<Value, String> {
+    let prior = Prior::parse(request["prior"].as_str().ok_or("prior must be text")?).map_err(|e| e.to_string())?;
+    let values: Vec<f64> = numbers(&request["x"])?.into_iter().map(|x| prior.log_density_and_derivative(x).0).collect();
+    Ok(json!({ "log_density": values }))
+}

@@ -1,0 +1,185 @@
+"""Reference checks of the model module and the Laplace mode.
+
+Sources named beside each check: statsmodels (OLS, GLM Binomial and Poisson
+maximum likelihood as the flat-prior limit), scipy.interpolate.BSpline
+(B-spline basis), scipy.stats (log densities), numpy.quantile (knots).
+Data: an invented orchard, generated with a fixed seed.
+"""
+import numpy as np
+import pytest
+import scipy.stats as st
+import statsmodels.api as sm
+from scipy.interpolate import BSpline
+
+WIDE = "prior intercepts: normal(0, 1000000)\nprior slopes: normal(0, 1000000)\n"
+WIDE_WEIGHTS = "prior weights: normal(0, 1000000)\n"
+
+
+def orchard(n=400, seed=11):
+    rng = np.random.default_rng(seed)
+    rootstock = rng.integers(0, 2, n)
+    soil = rng.integers(0, 3, n)
+    girth = 22 + 6 * rootstock + rng.normal(0, 4, n)
+    age = rng.uniform(1, 15, n)
+    yield_kg = 2 + 0.5 * girth + 1.5 * rootstock + 2 * np.sin(age / 3) + rng.normal(0, 3, n)
+    fruit = rng.poisson(np.exp(0.5 + 0.04 * girth + 0.1 * soil))
+    visits = rng.integers(5, 30, n)
+    p = 1 / (1 + np.exp(-(-0.5 + 0.05 * (girth - 25) + 0.4 * rootstock)))
+    set_ = rng.binomial(visits, p)
+    healthy = (rng.uniform(size=n) < p).astype(float)
+    return dict(rootstock=rootstock, soil=soil, girth=girth, age=age, yield_kg=yield_kg,
+                fruit=fruit, visits=visits, set=set_, healthy=healthy)
+
+
+def columns(d):
+    return {
+        "rootstock": {"category": {"codes": d["rootstock"].tolist(), "levels": ["dwarf", "standard"]}},
+        "soil": {"category": {"codes": d["soil"].tolist(), "levels": ["loam", "sandy", "clay"]}},
+        "girth": {"real": d["girth"].tolist()},
+        "age": {"real": d["age"].tolist()},
+        "yield": {"real": d["yield_kg"].tolist()},
+        "fruit": {"count": d["fruit"].tolist()},
+        "visits": {"count": d["visits"].tolist()},
+        "set": {"count": d["set"].tolist()},
+        "healthy": {"binary": d["healthy"].tolist()},
+    }
+
+
+def index_coding(codes, levels):
+    return np.column_stack([(codes == k).astype(float) for k in range(levels)])
+
+
+def fit(probe, d, model):
+    answer = probe("model", {"action": "fit", "columns": columns(d), "model": model})
+    assert "error" not in answer, answer
+    return answer
+
+
+def assert_relative(ours, reference, tol=1e-4):
+    ours, reference = np.asarray(ours), np.asarray(reference)
+    np.testing.assert_allclose(ours, reference, rtol=tol, atol=tol * np.max(np.abs(reference)))
+
+
+def test_normal_mode_with_wide_priors_matches_ols(probe):
+    """Flat-prior limit: the posterior mode of the coefficients is the
+    statsmodels OLS estimate; the mode of log(spread) with its Jacobian solves
+    −n + RSS/σ² + 1 = 0, so σ = sqrt(RSS / (n − 1)) with RSS from statsmodels."""
+    d = orchard()
+    answer = fit(probe, d, "yield from rootstock, girth per rootstock, poly(age, 2) using trees\n"
+                 + WIDE + "prior spread: exponential(0.000001)")
+    g = d["girth"] - d["girth"].mean()
+    z = (d["age"] - d["age"].mean()) / d["age"].std(ddof=1)
+    ind = index_coding(d["rootstock"], 2)
+    x = np.column_stack([ind, g * ind[:, 0], g * ind[:, 1], z, z ** 2])
+    ols = sm.OLS(d["yield_kg"], x).fit()
+    assert answer["names"] == ["rootstock[dwarf]", "rootstock[standard]", "b_girth[dwarf]",
+                               "b_girth[standard]", "b_age^1", "b_age^2", "spread"]
+    assert_relative(answer["mode"][:-1], ols.params)
+    assert_relative(answer["mode"][-1], np.sqrt(ols.ssr / (len(g) - 1)))
+
+
+def test_bernoulli_mode_with_wide_priors_matches_glm_binomial(probe):
+    """Flat-prior limit: statsmodels GLM Binomial (logit) maximum likelihood."""
+    d = orchard()
+    answer = fit(probe, d, "healthy from rootstock, girth using trees\nfamily bernoulli\n" + WIDE)
+    x = np.column_stack([index_coding(d["rootstock"], 2), d["girth"] - d["girth"].mean()])
+    mle = sm.GLM(d["healthy"], x, family=sm.families.Binomial()).fit(tol=1e-12)
+    assert_relative(answer["mode"], mle.params)
+
+
+def test_binomial_mode_with_wide_priors_matches_glm_binomial(probe):
+    """Flat-prior limit: statsmodels GLM Binomial with (successes, failures)."""
+    d = orchard()
+    answer = fit(probe, d, "set from soil, rootstock, girth using trees\nfamily binomial trials visits\n" + WIDE)
+    assert answer["names"] == ["soil[loam]", "soil[sandy]", "soil[clay]",
+                               "rootstock[standard vs dwarf]", "b_girth"]
+    x = np.column_stack([index_coding(d["soil"], 3), (d["rootstock"] == 1).astype(float),
+                         d["girth"] - d["girth"].mean()])
+    endog = np.column_stack([d["set"], d["visits"] - d["set"]])
+    mle = sm.GLM(endog, x, family=sm.families.Binomial()).fit(tol=1e-12)
+    assert_relative(answer["mode"], mle.params)
+
+
+def test_poisson_mode_with_wide_priors_matches_glm_poisson(probe):
+    """Flat-prior limit: statsmodels GLM Poisson (log link) maximum likelihood."""
+    d = orchard()
+    answer = fit(probe, d, "fruit from rootstock, soil, spline(girth, 5) using trees\nfamily poisson\n"
+                 + WIDE + WIDE_WEIGHTS)
+    interior = np.quantile(d["girth"], [0.5])
+    lo, hi = d["girth"].min(), d["girth"].max()
+    t = np.r_[[lo] * 4, interior, [hi] * 4]
+    basis = BSpline.design_matrix(d["girth"], t, 3).toarray()[:, 1:]
+    x = np.column_stack([index_coding(d["rootstock"], 2), (d["soil"] == 1).astype(float),
+                         (d["soil"] == 2).astype(float), basis])
+    mle = sm.GLM(d["fruit"], x, family=sm.families.Poisson()).fit(tol=1e-12)
+    assert_relative(answer["mode"], mle.params)
+
+
+@pytest.mark.parametrize("interior", [[1.0, 2.5, 2.6, 7.0], [3.0, 3.0, 6.0], [5.0]])
+def test_basis_matches_scipy_design_matrix(probe, interior):
+    """scipy.interpolate.BSpline.design_matrix on the same clamped knots,
+    including a repeated interior knot and both end points."""
+    t = np.r_[[0.0] * 4, interior, [10.0] * 4]
+    x = np.r_[np.linspace(0, 10, 201), np.random.default_rng(3).uniform(0, 10, 50)]
+    answer = probe("model", {"action": "basis", "x": x.tolist(), "knots": t.tolist(), "degree": 3})
+    reference = BSpline.design_matrix(x, t, 3).toarray()
+    np.testing.assert_allclose(np.array(answer["rows"]), reference, rtol=0, atol=1e-12)
+
+
+def test_model_spline_columns_use_quantile_knots(probe):
+    """Interior knots at numpy.quantile (linear interpolation) of the
+    predictor; the design holds scipy's basis without its first function."""
+    d = orchard(150, 5)
+    answer = fit(probe, d, "yield from spline(age, 8) using trees")
+    interior = np.quantile(d["age"], np.arange(1, 5) / 5)
+    t = np.r_[[d["age"].min()] * 4, interior, [d["age"].max()] * 4]
+    reference = BSpline.design_matrix(d["age"], t, 3).toarray()
+    design = np.array(answer["design"])
+    np.testing.assert_allclose(design[:, 0], 1.0)
+    np.testing.assert_allclose(design[:, 1:], reference[:, 1:], rtol=0, atol=1e-12)
+
+
+def log_likelihood(probe, d, model, params):
+    answer = probe("model", {"action": "log_likelihood", "columns": columns(d), "model": model,
+                             "params": list(params)})
+    assert "error" not in answer, answer
+    return answer["log_likelihood"]
+
+
+def test_gaussian_sufficient_statistics_match_row_loop(probe):
+    """Σ scipy.stats.norm.logpdf over rows, with the design built here."""
+    d = orchard()
+    params = [14.0, 16.5, 0.45, 2.9]
+    ours = log_likelihood(probe, d, "yield from rootstock, girth using trees", params)
+    x = np.column_stack([index_coding(d["rootstock"], 2), d["girth"] - d["girth"].mean()])
+    reference = st.norm.logpdf(d["yield_kg"], x @ params[:3], params[3]).sum()
+    assert ours == pytest.approx(reference, rel=1e-10)
+
+
+def test_glm_log_likelihoods_match_scipy(probe):
+    """Σ scipy.stats bernoulli / binom / poisson log pmf, constants included."""
+    d = orchard()
+    g = d["girth"] - d["girth"].mean()
+    eta = 0.2 + 0.07 * g
+    p = 1 / (1 + np.exp(-eta))
+    ours = log_likelihood(probe, d, "healthy from girth using trees\nfamily bernoulli", [0.2, 0.07])
+    assert ours == pytest.approx(st.bernoulli.logpmf(d["healthy"], p).sum(), rel=1e-10)
+    ours = log_likelihood(probe, d, "set from girth using trees\nfamily binomial trials visits", [0.2, 0.07])
+    assert ours == pytest.approx(st.binom.logpmf(d["set"], d["visits"], p).sum(), rel=1e-10)
+    ours = log_likelihood(probe, d, "fruit from girth using trees\nfamily poisson", [0.2, 0.07])
+    assert ours == pytest.approx(st.poisson.logpmf(d["fruit"], np.exp(eta)).sum(), rel=1e-10)
+
+
+@pytest.mark.parametrize("text, reference", [
+    ("normal(1.5, 2)", st.norm(1.5, 2)),
+    ("student_t(3, -1, 2.5)", st.t(3, -1, 2.5)),
+    ("exponential(0.5)", st.expon(scale=2.0)),
+    ("half_normal(3)", st.halfnorm(scale=3)),
+    ("lognormal(0.5, 0.75)", st.lognorm(s=0.75, scale=np.exp(0.5))),
+    ("uniform(-2, 6)", st.uniform(-2, 8)),
+])
+def test_prior_log_densities_match_scipy_stats(probe, text, reference):
+    """Prior log densities with normalising constants, against scipy.stats."""
+    x = np.array([0.1, 0.7, 2.0, 4.5])
+    answer = probe("model", {"action": "prior", "prior": text, "x": x.tolist()})
+    np.testing.assert_allclose(answer["log_density"], reference.logpdf(x), rtol=1e-12)
