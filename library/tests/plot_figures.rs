@@ -386,7 +386,7 @@ fn mismatched_band_names_the_group_and_what_to_give() {
 #[test]
 fn empty_contrast_draws_are_reported() {
     let err = contrast_figure("wet vs dry", &Quantity::new("difference"), &[f64::NAN]).unwrap_err();
-    expect_test::expect![[r#"contrast figure: the draws of wet vs dry has no finite values; give at least one number to draw it"#]]
+    expect_test::expect![[r#"contrast figure: the draws of wet vs dry holds nothing to draw (empty or not finite); supply at least one finite entry"#]]
         .assert_eq(&err.to_string());
 }
 

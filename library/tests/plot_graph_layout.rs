@@ -45,6 +45,14 @@ fn random_dag(seed: u64) -> GraphPicture {
     GraphPicture { title: format!("random graph {seed}"), nodes, edges }
 }
 
+fn fonts() -> usvg::Options<'static> {
+    let mut opt = usvg::Options::default();
+    let db = Arc::make_mut(&mut opt.fontdb);
+    db.load_fonts_dir("/usr/share/fonts/truetype/dejavu");
+    db.set_sans_serif_family("DejaVu Sans");
+    opt
+}
+
 fn inside(b: &NodeBox, x: f64, y: f64) -> bool {
     x > b.x + 1e-6 && x < b.x + b.width - 1e-6 && y > b.y + 1e-6 && y < b.y + b.height - 1e-6
 }
@@ -121,11 +129,8 @@ fn arrows_touch_their_boxes_and_avoid_all_others() {
 /// font's own metrics, laid out by usvg) lies inside its box.
 #[test]
 fn labels_fit_inside_their_boxes_with_a_real_font() {
-    let mut opt = usvg::Options::default();
-    let db = Arc::make_mut(&mut opt.fontdb);
-    db.load_fonts_dir("/usr/share/fonts/truetype/dejavu");
-    db.set_sans_serif_family("DejaVu Sans");
-    assert!(db.len() > 0, "install fonts-dejavu-core: this check measures labels with DejaVu Sans");
+    let opt = fonts();
+    assert!(opt.fontdb.len() > 0, "install fonts-dejavu-core: this check measures labels with DejaVu Sans");
     for seed in 0..30 {
         let g = random_dag(seed);
         let l = layout(&g).expect("a DAG lays out");
@@ -173,4 +178,20 @@ fn a_cycle_is_reported_with_a_node_on_it() {
             .unwrap_err()
             .to_string(),
     );
+}
+
+/// Writes a few random graphs to /tmp/waypath_graph_*.png for a person to
+/// look at: `cargo test --release -p waypath --test plot_graph_layout -- --ignored`.
+#[test]
+#[ignore]
+fn write_random_graphs_for_viewing() {
+    let opt = fonts();
+    for seed in [3, 17, 42, 77] {
+        let svg = graph_figure(&random_dag(seed)).expect("draws");
+        let tree = usvg::Tree::from_str(&svg, &opt).expect("parses");
+        let size = tree.size().to_int_size();
+        let mut pixmap = resvg::tiny_skia::Pixmap::new(size.width(), size.height()).expect("size");
+        resvg::render(&tree, resvg::tiny_skia::Transform::identity(), &mut pixmap.as_mut());
+        pixmap.save_png(format!("/tmp/waypath_graph_{seed}.png")).expect("png written");
+    }
 }

@@ -333,7 +333,7 @@ impl Frame {
 
     /// A left axis with ticks, labels and an optional rotated title.
     pub fn y_axis(&self, sheet: &mut Sheet, title: Option<&str>) {
-        let target = ((self.height / 50.0).round() as usize).clamp(2, 6);
+        let target = ((self.height / 50.0).round() as usize).clamp(3, 6);
         let (values, step) = ticks(self.y.0, self.y.1, target);
         let mut marks = String::new();
         let mut widest: f64 = 0.0;

@@ -125,11 +125,12 @@ pub fn trace_figure(subject: &str, chains: usize, parameters: &[TraceParameter])
             return Err(PlotError::Length { figure, what, found: p.draws.len(), expected, per: "draw of every chain" });
         }
     }
-    let entries: Vec<(Key, String)> =
+    let mut entries: Vec<(Key, String)> =
         (0..chains).map(|c| (Key::Stroke(series(c), 2.0, false), format!("chain {}", c + 1))).collect();
+    entries.push((Key::Stroke(INK, 1.0, true), "even ranks (right)".to_string()));
     let rows = legend_rows(&entries, WIDTH - 40.0);
     let first_top = HEADING + 8.0 + legend_height(rows) + 8.0;
-    let height = first_top + TRACE_ROW * parameters.len() as f64 + 8.0;
+    let height = first_top + TRACE_ROW * parameters.len() as f64 + 24.0;
     let desc = format!(
         "Traces and rank histograms of {} over {chains} chains of {} draws each; well-mixed chains overlap in the traces and give flat rank histograms.",
         parameters.iter().map(|p| p.name).collect::<Vec<_>>().join(", "),
@@ -137,17 +138,25 @@ pub fn trace_figure(subject: &str, chains: usize, parameters: &[TraceParameter])
     );
     let mut sheet = Sheet::new(WIDTH, height, figure, subject, &desc);
     legend(&mut sheet, 20.0, HEADING + 8.0, WIDTH - 40.0, &entries);
+    let left = parameters
+        .iter()
+        .map(|p| {
+            let v = extent(p.draws).unwrap_or((0.0, 1.0));
+            super::canvas::left_margin(padded(v.0, v.1, 0.04), false)
+        })
+        .fold(0.0, f64::max);
     for (i, p) in parameters.iter().enumerate() {
-        trace_row(&mut sheet, first_top + TRACE_ROW * i as f64, chains, p);
+        trace_row(&mut sheet, first_top + TRACE_ROW * i as f64, left, chains, p);
     }
+    let bottom = first_top + TRACE_ROW * parameters.len() as f64 - TRACE_ROW + 22.0 + TRACE_PANEL;
+    sheet.push(text((left + 370.0) / 2.0, bottom + 36.0, "draw (per chain)", MEDIUM, Anchor::Middle));
     Ok(sheet.finish())
 }
 
-fn trace_row(sheet: &mut Sheet, top: f64, chains: usize, p: &TraceParameter) {
+fn trace_row(sheet: &mut Sheet, top: f64, left: f64, chains: usize, p: &TraceParameter) {
     let per_chain = p.draws.len() / chains;
     let values = extent(p.draws).unwrap_or((0.0, 1.0));
     let y = padded(values.0, values.1, 0.04);
-    let left = super::canvas::left_margin(y, false);
     sheet.push(text(left, top + 14.0, p.name, MEDIUM, Anchor::Start).with("font-weight", "bold"));
     let panel_top = top + 22.0;
     let trace = Frame { left, top: panel_top, width: 370.0 - left, height: TRACE_PANEL, x: (0.0, (per_chain.max(2) - 1) as f64), y };
@@ -174,10 +183,10 @@ fn trace_row(sheet: &mut Sheet, top: f64, chains: usize, p: &TraceParameter) {
     }
     ranks.horizontal_reference(sheet, expected);
     sheet.push(line(ranks.left, ranks.bottom(), ranks.right(), ranks.bottom(), INK, 0.8));
+    sheet.push(text(ranks.left, top + 14.0, "rank histogram per chain", SMALL, Anchor::Start));
     sheet.push(text(ranks.left, ranks.bottom() + 17.0, "low", SMALL, Anchor::Start));
     sheet.push(text(ranks.right(), ranks.bottom() + 17.0, "high", SMALL, Anchor::End));
     sheet.push(text((ranks.left + ranks.right()) / 2.0, ranks.bottom() + 17.0, "rank", SMALL, Anchor::Middle));
-    sheet.push(text(ranks.right(), top + 14.0, "dashed: flat", SMALL, Anchor::End));
 }
 
 /// Counts per chain of pooled ranks falling in each of `bins` equal rank bins.

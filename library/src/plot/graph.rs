@@ -143,6 +143,9 @@ pub fn layout(picture: &GraphPicture) -> Result<GraphLayout, PlotError> {
 /// source. Errors on bad arrow ends and on cycles.
 fn longest_path_layers(picture: &GraphPicture) -> Result<Vec<usize>, PlotError> {
     let n = picture.nodes.len();
+    if n == 0 {
+        return Err(PlotError::Empty { figure: "causal graph", what: format!("graph {}", picture.title) });
+    }
     let mut indegree = vec![0usize; n];
     let mut children = vec![Vec::new(); n];
     for (i, e) in picture.edges.iter().enumerate() {

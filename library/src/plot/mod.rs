@@ -77,7 +77,7 @@ impl Quantity {
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum PlotError {
     /// An input the figure needs has no usable values.
-    #[error("{figure} figure: {what} has no finite values; give at least one number to draw it")]
+    #[error("{figure} figure: {what} holds nothing to draw (empty or not finite); supply at least one finite entry")]
     Empty { figure: &'static str, what: String },
     /// Two inputs that must line up have different lengths.
     #[error("{figure} figure: {what} has {found} values but {expected} were expected; give one value per {per}")]

@@ -6,7 +6,7 @@ use statrs::distribution::{Binomial, DiscreteCDF};
 
 use super::canvas::{
     circle, diamond, extent, fill_path, left_margin, legend, legend_height, line, padded,
-    polygon_d, rect, text, text_width, Anchor, Attr, Frame, Key, Sheet, HEADING, MEDIUM, WIDTH,
+    polygon_d, polyline_d, rect, stroke_path, text, text_width, Anchor, Attr, Frame, Key, Sheet, HEADING, MEDIUM, WIDTH,
 };
 use super::palette::{BLUE, INK, SKY_BLUE, VERMILLION};
 use super::{PlotError, Quantity};
@@ -41,6 +41,7 @@ pub fn recovery_figure(subject: &str, value: &Quantity, interval: &str, rows: &[
         (Key::Stroke(BLUE, 2.4, false), format!("posterior {interval}")),
         (Key::Dot(BLUE, true), "posterior mean".to_string()),
         (Key::Diamond(VERMILLION), "true value".to_string()),
+        (Key::Swatch(VERMILLION, 0.2), "interval misses it".to_string()),
     ];
     let top = HEADING + 8.0 + legend_height(1) + 10.0;
     let frame = Frame {
@@ -109,7 +110,9 @@ pub fn calibration_figure(subject: &str, ranks: &[usize], draws: usize, bins: us
     let y = (0.0, tallest * 1.12);
     let left = left_margin(y, true);
     let top = HEADING + 8.0 + legend_height(1) + 10.0;
-    let frame = Frame { left, top, width: WIDTH - left - 20.0, height: 260.0, x: (0.0, bins as f64), y };
+    let frame = Frame { left, top, width: WIDTH - left - 20.0, height: 260.0, x: (0.0, values as f64), y };
+    // bin b holds the rank values r with bin_of(r) == b: [start(b), start(b + 1))
+    let start = |b: usize| (b * values).div_ceil(bins) as f64;
     let outside = counts.iter().zip(&band).filter(|(c, b)| (**c as f64) < b.0 || (**c as f64) > b.2).count();
     let desc = format!(
         "Calibration ranks of {subject} from {} simulations with {draws} posterior draws each, in {bins} bins, against the {:.0}% range of a uniform histogram; {outside} bins fall outside it.",
@@ -122,21 +125,29 @@ pub fn calibration_figure(subject: &str, ranks: &[usize], draws: usize, bins: us
     ];
     let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, figure, subject, &desc);
     legend(&mut sheet, left, HEADING + 8.0, frame.width, &entries);
+    let steps = |pick: fn(&(f64, f64, f64)) -> f64| -> Vec<(f64, f64)> {
+        band.iter()
+            .enumerate()
+            .flat_map(|(b, v)| [(frame.px(start(b)), frame.py(pick(v))), (frame.px(start(b + 1)), frame.py(pick(v)))])
+            .collect()
+    };
+    let (upper, lower, expected) = (steps(|v| v.2), steps(|v| v.0), steps(|v| v.1));
+    let outline = upper.iter().copied().chain(lower.iter().rev().copied());
+    sheet.push(fill_path(polygon_d(outline), INK, 0.12));
     let bars: String = counts
         .iter()
         .enumerate()
         .map(|(b, c)| {
-            let (x0, x1) = (frame.px(b as f64 + 0.06), frame.px(b as f64 + 0.94));
+            let gap = 0.06 * (start(b + 1) - start(b));
+            let (x0, x1) = (frame.px(start(b) + gap), frame.px(start(b + 1) - gap));
             polygon_d([(x0, frame.py(0.0)), (x0, frame.py(*c as f64)), (x1, frame.py(*c as f64)), (x1, frame.py(0.0))])
         })
         .collect();
-    sheet.push(fill_path(bars, SKY_BLUE, 1.0));
-    let upper = band.iter().enumerate().flat_map(|(b, v)| [(frame.px(b as f64), frame.py(v.2)), (frame.px(b as f64 + 1.0), frame.py(v.2))]);
-    let lower = band.iter().enumerate().rev().flat_map(|(b, v)| [(frame.px(b as f64 + 1.0), frame.py(v.0)), (frame.px(b as f64), frame.py(v.0))]);
-    sheet.push(fill_path(polygon_d(upper.chain(lower)), INK, 0.15));
-    let mid: Vec<(f64, f64)> = band.iter().enumerate().flat_map(|(b, v)| [(frame.px(b as f64), frame.py(v.1)), (frame.px(b as f64 + 1.0), frame.py(v.1))]).collect();
-    sheet.push(super::canvas::stroke_path(super::canvas::polyline_d(mid), INK, 1.0).with("stroke-dasharray", "4 3"));
-    frame.x_axis(&mut sheet, Some("rank bin"));
+    sheet.push(fill_path(bars, SKY_BLUE, 0.85));
+    let edges = format!("{}{}", polyline_d(upper), polyline_d(lower));
+    sheet.push(stroke_path(edges, INK, 0.8));
+    sheet.push(stroke_path(polyline_d(expected), INK, 1.0).with("stroke-dasharray", "4 3"));
+    frame.x_axis(&mut sheet, Some("rank of the true value among the draws"));
     frame.y_axis(&mut sheet, Some("simulations"));
     Ok(sheet.finish())
 }

@@ -140,7 +140,7 @@ pub fn contrast_grid_figure(
     c: &GridContrast,
 ) -> Result<String, PlotError> {
     check_curve("contrast along a grid", subject, &c.grid, &c.mean, &c.lower, &c.upper)?;
-    let xs = extent(&c.grid).unwrap_or((0.0, 1.0));
+    let xs = extent(&c.grid).map_or((0.0, 1.0), |(lo, hi)| padded(lo, hi, 0.0));
     let ys = extent(c.lower.iter().chain(&c.upper).chain(&[0.0])).unwrap_or((0.0, 1.0));
     let entries = vec![
         (Key::Stroke(BLUE, 2.4, false), "posterior mean".to_string()),
@@ -205,7 +205,7 @@ pub fn basis_figure(subject: &str, x: &Quantity, y: &Quantity, p: &BasisPicture)
     let parts: Vec<Vec<f64>> =
         p.basis.iter().zip(&mean_w).map(|(b, w)| b.iter().map(|v| mean_a + v * w).collect()).collect();
 
-    let xs = extent(&p.grid).unwrap_or((0.0, 1.0));
+    let xs = extent(&p.grid).map_or((0.0, 1.0), |(lo, hi)| padded(lo, hi, 0.0));
     let ys = extent(
         mean.iter().chain(shown.iter().flatten()).chain(parts.iter().flatten()).chain(p.points.iter().map(|q| &q.1)),
     )
@@ -217,12 +217,12 @@ pub fn basis_figure(subject: &str, x: &Quantity, y: &Quantity, p: &BasisPicture)
     let entries = vec![
         (Key::Stroke(INK, 2.8, false), "posterior mean".to_string()),
         (Key::Stroke(MUTED, 1.0, false), format!("{} posterior draws", shown.len())),
-        (Key::Stroke(BLUE, 1.0, false), "basis × mean weight".to_string()),
+        (Key::Stroke(BLUE, 1.2, false), "each basis × its mean weight (colours as above)".to_string()),
     ];
     let legend_top = top.bottom() + 30.0;
     let bottom = Frame {
         left,
-        top: legend_top + legend_height(1) + 10.0,
+        top: legend_top + legend_height(legend_rows(&entries, width)) + 10.0,
         width,
         height: PANEL_HEIGHT - 40.0,
         x: xs,
@@ -243,8 +243,9 @@ pub fn basis_figure(subject: &str, x: &Quantity, y: &Quantity, p: &BasisPicture)
     top.y_axis(&mut sheet, Some("basis"));
     legend(&mut sheet, left, legend_top, width, &entries);
     sheet.push(dot_cloud(&bottom, &p.points, MUTED));
-    let part_lines: String = parts.iter().map(|c| bottom.curve_d(&p.grid, c)).collect();
-    sheet.push(stroke_path(part_lines, BLUE, 1.0).with("stroke-opacity", "0.7"));
+    for (k, c) in parts.iter().enumerate() {
+        sheet.push(stroke_path(bottom.curve_d(&p.grid, c), series(k), 1.2));
+    }
     let draw_lines: String = shown.iter().map(|c| bottom.curve_d(&p.grid, c)).collect();
     sheet.push(stroke_path(draw_lines, MUTED, 1.0).with("stroke-opacity", "0.8"));
     sheet.push(stroke_path(bottom.curve_d(&p.grid, &mean), INK, 2.8));
