@@ -196,7 +196,11 @@ pub fn ticks(lo: f64, hi: f64, target: usize) -> (Vec<f64>, f64) {
 pub fn tick_label(v: f64, step: f64) -> String {
     let decimals = (-step.log10().floor()).clamp(0.0, 6.0) as usize;
     let s = format!("{:.*}", decimals, v);
-    let s = if s.trim_start_matches('-').chars().all(|c| c == '0' || c == '.') {
+    let s = if s
+        .trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.')
+    {
         s.trim_start_matches('-').to_string()
     } else {
         s
@@ -321,7 +325,13 @@ impl Frame {
         for v in &values {
             let x = self.px(*v);
             marks.push_str(&format!("M{},{}v4", num(x), num(base)));
-            sheet.push(text(x, base + 17.0, &tick_label(*v, step), SMALL, Anchor::Middle));
+            sheet.push(text(
+                x,
+                base + 17.0,
+                &tick_label(*v, step),
+                SMALL,
+                Anchor::Middle,
+            ));
         }
         sheet.push(line(self.left, base, self.right(), base, INK, 0.8));
         sheet.push(stroke_path(marks, INK, 0.8));
@@ -344,7 +354,14 @@ impl Frame {
             widest = widest.max(text_width(&label, SMALL));
             sheet.push(text(self.left - 7.0, y + 4.0, &label, SMALL, Anchor::End));
         }
-        sheet.push(line(self.left, self.top, self.left, self.bottom(), INK, 0.8));
+        sheet.push(line(
+            self.left,
+            self.top,
+            self.left,
+            self.bottom(),
+            INK,
+            0.8,
+        ));
         sheet.push(stroke_path(marks, INK, 0.8));
         if let Some(t) = title {
             let x = self.left - widest - 16.0;
@@ -360,7 +377,9 @@ impl Frame {
     pub fn vertical_reference(&self, sheet: &mut Sheet, x: f64) {
         if x > self.x.0 && x < self.x.1 {
             let p = self.px(x);
-            sheet.push(line(p, self.top, p, self.bottom(), INK, 1.0).with("stroke-dasharray", "4 3"));
+            sheet.push(
+                line(p, self.top, p, self.bottom(), INK, 1.0).with("stroke-dasharray", "4 3"),
+            );
         }
     }
 
@@ -368,7 +387,9 @@ impl Frame {
     pub fn horizontal_reference(&self, sheet: &mut Sheet, y: f64) {
         if y > self.y.0 && y < self.y.1 {
             let p = self.py(y);
-            sheet.push(line(self.left, p, self.right(), p, INK, 1.0).with("stroke-dasharray", "4 3"));
+            sheet.push(
+                line(self.left, p, self.right(), p, INK, 1.0).with("stroke-dasharray", "4 3"),
+            );
         }
     }
 
@@ -379,8 +400,15 @@ impl Frame {
 
     /// Path data of the band between `lower` and `upper` over `xs`.
     pub fn band_d(&self, xs: &[f64], lower: &[f64], upper: &[f64]) -> String {
-        let top = xs.iter().zip(upper).map(|(x, y)| (self.px(*x), self.py(*y)));
-        let bottom = xs.iter().zip(lower).rev().map(|(x, y)| (self.px(*x), self.py(*y)));
+        let top = xs
+            .iter()
+            .zip(upper)
+            .map(|(x, y)| (self.px(*x), self.py(*y)));
+        let bottom = xs
+            .iter()
+            .zip(lower)
+            .rev()
+            .map(|(x, y)| (self.px(*x), self.py(*y)));
         polygon_d(top.chain(bottom))
     }
 }
@@ -440,7 +468,13 @@ pub fn legend(sheet: &mut Sheet, x: f64, y: f64, max_width: f64, entries: &[(Key
         }
         let mid = row_top + LEGEND_ROW / 2.0;
         group.append(key_mark(*key, cx, mid));
-        group.append(text(cx + KEY_WIDTH + 6.0, mid + 4.0, label, SMALL, Anchor::Start));
+        group.append(text(
+            cx + KEY_WIDTH + 6.0,
+            mid + 4.0,
+            label,
+            SMALL,
+            Anchor::Start,
+        ));
         cx += w;
     }
     sheet.push(group);
@@ -465,7 +499,12 @@ fn key_mark(key: Key, x: f64, mid: f64) -> Element {
             }
         }
         Key::Dot(colour, filled) => {
-            let c = circle(x + KEY_WIDTH / 2.0, mid, 4.5, if filled { colour } else { "#FFFFFF" });
+            let c = circle(
+                x + KEY_WIDTH / 2.0,
+                mid,
+                4.5,
+                if filled { colour } else { "#FFFFFF" },
+            );
             c.with("stroke", colour).with("stroke-width", "1.5")
         }
         Key::Diamond(colour) => diamond(x + KEY_WIDTH / 2.0, mid, 5.5, colour),
@@ -486,7 +525,11 @@ fn key_mark(key: Key, x: f64, mid: f64) -> Element {
 
 /// A filled diamond of half-diagonal `r` centred on `(x, y)`.
 pub fn diamond(x: f64, y: f64, r: f64, colour: &str) -> Element {
-    fill_path(polygon_d([(x, y - r), (x + r, y), (x, y + r), (x - r, y)]), colour, 1.0)
+    fill_path(
+        polygon_d([(x, y - r), (x + r, y), (x, y + r), (x - r, y)]),
+        colour,
+        1.0,
+    )
 }
 
 /// A light grey dot cloud, one path of tiny squares (small even for many points).

@@ -65,7 +65,10 @@ pub fn predictive_figure(
         .filter(|r| !r.is_empty())
         .collect();
     if chosen.is_empty() {
-        return Err(PlotError::Empty { figure, what: "the replicated data sets".into() });
+        return Err(PlotError::Empty {
+            figure,
+            what: "the replicated data sets".into(),
+        });
     }
     let pooled = sorted_finite(&chosen.concat());
     let mut lo = quantile(&pooled, 0.005);
@@ -75,24 +78,44 @@ pub fn predictive_figure(
         hi = hi.max(*last);
     }
     let (lo, hi) = padded(lo, hi, 0.05);
-    let curves: Vec<_> = chosen.iter().map(|r| kde(r, lo, hi, REPLICATE_GRID)).collect();
+    let curves: Vec<_> = chosen
+        .iter()
+        .map(|r| kde(r, lo, hi, REPLICATE_GRID))
+        .collect();
     let seen = (!observed.is_empty()).then(|| kde(&observed, lo, hi, 200));
-    let peak = curves.iter().flat_map(|c| c.ys.iter()).chain(seen.iter().flat_map(|c| c.ys.iter()));
+    let peak = curves
+        .iter()
+        .flat_map(|c| c.ys.iter())
+        .chain(seen.iter().flat_map(|c| c.ys.iter()));
     let peak = peak.copied().fold(0.0, f64::max).max(f64::MIN_POSITIVE);
-    let mut entries = vec![(Key::Stroke(SKY_BLUE, 1.2, false), format!("{} replicated data sets", chosen.len()))];
+    let mut entries = vec![(
+        Key::Stroke(SKY_BLUE, 1.2, false),
+        format!("{} replicated data sets", chosen.len()),
+    )];
     if seen.is_some() {
         entries.insert(0, (Key::Stroke(INK, 2.6, false), "observed".to_string()));
     }
     let y = (0.0, peak * 1.08);
     let left = super::canvas::left_margin(y, true);
     let top = HEADING + 8.0 + legend_height(1) + 10.0;
-    let frame = Frame { left, top, width: WIDTH - left - 20.0, height: 280.0, x: (lo, hi), y };
+    let frame = Frame {
+        left,
+        top,
+        width: WIDTH - left - 20.0,
+        height: 280.0,
+        x: (lo, hi),
+        y,
+    };
     let desc = format!(
         "{}: densities of {} in {} replicated data sets{}.",
         figure,
         outcome.name,
         chosen.len(),
-        if seen.is_some() { format!(" against the observed {} values", observed.len()) } else { String::new() }
+        if seen.is_some() {
+            format!(" against the observed {} values", observed.len())
+        } else {
+            String::new()
+        }
     );
     let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, figure, subject, &desc);
     legend(&mut sheet, left, HEADING + 8.0, frame.width, &entries);
@@ -113,21 +136,43 @@ const TRACE_PANEL: f64 = 100.0;
 
 /// Per parameter, a trace (draw index against value, one colour per chain)
 /// and rank histograms per chain (ranks over all chains pooled), stacked.
-pub fn trace_figure(subject: &str, chains: usize, parameters: &[TraceParameter]) -> Result<String, PlotError> {
+pub fn trace_figure(
+    subject: &str,
+    chains: usize,
+    parameters: &[TraceParameter],
+) -> Result<String, PlotError> {
     let figure = "trace";
     if parameters.is_empty() || chains == 0 {
-        return Err(PlotError::Empty { figure, what: "the list of parameters".into() });
+        return Err(PlotError::Empty {
+            figure,
+            what: "the list of parameters".into(),
+        });
     }
     for p in parameters {
         if p.draws.is_empty() || p.draws.len() % chains != 0 {
             let expected = (p.draws.len() / chains).max(1) * chains;
             let what = format!("parameter {}", p.name);
-            return Err(PlotError::Length { figure, what, found: p.draws.len(), expected, per: "draw of every chain" });
+            return Err(PlotError::Length {
+                figure,
+                what,
+                found: p.draws.len(),
+                expected,
+                per: "draw of every chain",
+            });
         }
     }
-    let mut entries: Vec<(Key, String)> =
-        (0..chains).map(|c| (Key::Stroke(series(c), 2.0, false), format!("chain {}", c + 1))).collect();
-    entries.push((Key::Stroke(INK, 1.0, true), "even ranks (right)".to_string()));
+    let mut entries: Vec<(Key, String)> = (0..chains)
+        .map(|c| {
+            (
+                Key::Stroke(series(c), 2.0, false),
+                format!("chain {}", c + 1),
+            )
+        })
+        .collect();
+    entries.push((
+        Key::Stroke(INK, 1.0, true),
+        "even ranks (right)".to_string(),
+    ));
     let rows = legend_rows(&entries, WIDTH - 40.0);
     let first_top = HEADING + 8.0 + legend_height(rows) + 8.0;
     let height = first_top + TRACE_ROW * parameters.len() as f64 + 24.0;
@@ -146,10 +191,22 @@ pub fn trace_figure(subject: &str, chains: usize, parameters: &[TraceParameter])
         })
         .fold(0.0, f64::max);
     for (i, p) in parameters.iter().enumerate() {
-        trace_row(&mut sheet, first_top + TRACE_ROW * i as f64, left, chains, p);
+        trace_row(
+            &mut sheet,
+            first_top + TRACE_ROW * i as f64,
+            left,
+            chains,
+            p,
+        );
     }
     let bottom = first_top + TRACE_ROW * parameters.len() as f64 - TRACE_ROW + 22.0 + TRACE_PANEL;
-    sheet.push(text((left + 370.0) / 2.0, bottom + 36.0, "draw (per chain)", MEDIUM, Anchor::Middle));
+    sheet.push(text(
+        (left + 370.0) / 2.0,
+        bottom + 36.0,
+        "draw (per chain)",
+        MEDIUM,
+        Anchor::Middle,
+    ));
     Ok(sheet.finish())
 }
 
@@ -159,19 +216,42 @@ fn trace_row(sheet: &mut Sheet, top: f64, left: f64, chains: usize, p: &TracePar
     let y = padded(values.0, values.1, 0.04);
     sheet.push(text(left, top + 14.0, p.name, MEDIUM, Anchor::Start).with("font-weight", "bold"));
     let panel_top = top + 22.0;
-    let trace = Frame { left, top: panel_top, width: 370.0 - left, height: TRACE_PANEL, x: (0.0, (per_chain.max(2) - 1) as f64), y };
+    let trace = Frame {
+        left,
+        top: panel_top,
+        width: 370.0 - left,
+        height: TRACE_PANEL,
+        x: (0.0, (per_chain.max(2) - 1) as f64),
+        y,
+    };
     let keep = thin_indices(per_chain, TRACE_POINTS);
     for c in 0..chains {
         let chain = &p.draws[c * per_chain..(c + 1) * per_chain];
-        let pts = keep.iter().map(|&i| (trace.px(i as f64), trace.py(chain[i])));
-        sheet.push(stroke_path(super::canvas::polyline_d(pts), series(c), 0.8).with("stroke-opacity", "0.8"));
+        let pts = keep
+            .iter()
+            .map(|&i| (trace.px(i as f64), trace.py(chain[i])));
+        sheet.push(
+            stroke_path(super::canvas::polyline_d(pts), series(c), 0.8)
+                .with("stroke-opacity", "0.8"),
+        );
     }
     trace.x_axis(sheet, None);
     trace.y_axis(sheet, None);
     let counts = rank_counts(p.draws, chains, RANK_BINS);
     let expected = per_chain as f64 / RANK_BINS as f64;
-    let tallest = counts.iter().flatten().copied().fold(expected, |a, b| a.max(b as f64));
-    let ranks = Frame { left: 420.0, top: panel_top, width: WIDTH - 420.0 - 16.0, height: TRACE_PANEL, x: (0.0, 1.0), y: (0.0, tallest * 1.1) };
+    let tallest = counts
+        .iter()
+        .flatten()
+        .copied()
+        .fold(expected, |a, b| a.max(b as f64));
+    let ranks = Frame {
+        left: 420.0,
+        top: panel_top,
+        width: WIDTH - 420.0 - 16.0,
+        height: TRACE_PANEL,
+        x: (0.0, 1.0),
+        y: (0.0, tallest * 1.1),
+    };
     for (c, row) in counts.iter().enumerate() {
         let mut pts = Vec::with_capacity(2 * RANK_BINS);
         for (b, n) in row.iter().enumerate() {
@@ -182,11 +262,42 @@ fn trace_row(sheet: &mut Sheet, top: f64, left: f64, chains: usize, p: &TracePar
         sheet.push(stroke_path(super::canvas::polyline_d(pts), series(c), 1.4));
     }
     ranks.horizontal_reference(sheet, expected);
-    sheet.push(line(ranks.left, ranks.bottom(), ranks.right(), ranks.bottom(), INK, 0.8));
-    sheet.push(text(ranks.left, top + 14.0, "rank histogram per chain", SMALL, Anchor::Start));
-    sheet.push(text(ranks.left, ranks.bottom() + 17.0, "low", SMALL, Anchor::Start));
-    sheet.push(text(ranks.right(), ranks.bottom() + 17.0, "high", SMALL, Anchor::End));
-    sheet.push(text((ranks.left + ranks.right()) / 2.0, ranks.bottom() + 17.0, "rank", SMALL, Anchor::Middle));
+    sheet.push(line(
+        ranks.left,
+        ranks.bottom(),
+        ranks.right(),
+        ranks.bottom(),
+        INK,
+        0.8,
+    ));
+    sheet.push(text(
+        ranks.left,
+        top + 14.0,
+        "rank histogram per chain",
+        SMALL,
+        Anchor::Start,
+    ));
+    sheet.push(text(
+        ranks.left,
+        ranks.bottom() + 17.0,
+        "low",
+        SMALL,
+        Anchor::Start,
+    ));
+    sheet.push(text(
+        ranks.right(),
+        ranks.bottom() + 17.0,
+        "high",
+        SMALL,
+        Anchor::End,
+    ));
+    sheet.push(text(
+        (ranks.left + ranks.right()) / 2.0,
+        ranks.bottom() + 17.0,
+        "rank",
+        SMALL,
+        Anchor::Middle,
+    ));
 }
 
 /// Counts per chain of pooled ranks falling in each of `bins` equal rank bins.
@@ -215,41 +326,95 @@ pub fn implications_figure(
     rows: &[ImplicationRow],
 ) -> Result<String, PlotError> {
     if rows.is_empty() {
-        return Err(PlotError::Empty { figure: "testable implications", what: "the list of implications".into() });
+        return Err(PlotError::Empty {
+            figure: "testable implications",
+            what: "the list of implications".into(),
+        });
     }
-    let label_width = rows.iter().map(|r| text_width(&r.statement, MEDIUM)).fold(0.0, f64::max);
+    let label_width = rows
+        .iter()
+        .map(|r| text_width(&r.statement, MEDIUM))
+        .fold(0.0, f64::max);
     let left = (label_width + 28.0).min(WIDTH * 0.55);
-    let xs = extent(rows.iter().flat_map(|r| [&r.lower, &r.upper, &r.estimate]).chain(&[0.0])).unwrap_or((-1.0, 1.0));
+    let xs = extent(
+        rows.iter()
+            .flat_map(|r| [&r.lower, &r.upper, &r.estimate])
+            .chain(&[0.0]),
+    )
+    .unwrap_or((-1.0, 1.0));
     let entries = vec![
         (Key::Dot(BLUE, false), format!("{interval} covers 0")),
         (Key::Dot(VERMILLION, true), format!("{interval} excludes 0")),
     ];
     let top = HEADING + 8.0 + legend_height(1) + 10.0;
     let height_panel = IMPLICATION_ROW * rows.len() as f64;
-    let frame = Frame { left, top, width: WIDTH - left - 20.0, height: height_panel, x: padded(xs.0, xs.1, 0.06), y: (0.0, rows.len() as f64) };
-    let flagged = rows.iter().filter(|r| r.lower > 0.0 || r.upper < 0.0).count();
+    let frame = Frame {
+        left,
+        top,
+        width: WIDTH - left - 20.0,
+        height: height_panel,
+        x: padded(xs.0, xs.1, 0.06),
+        y: (0.0, rows.len() as f64),
+    };
+    let flagged = rows
+        .iter()
+        .filter(|r| r.lower > 0.0 || r.upper < 0.0)
+        .count();
     let desc = format!(
         "Testable implications of {subject}: {} implied independences with their estimated {} and {interval}; {flagged} of them exclude zero.",
         rows.len(),
         association.name
     );
-    let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, "testable implications", subject, &desc);
+    let mut sheet = Sheet::new(
+        WIDTH,
+        frame.bottom() + 52.0,
+        "testable implications",
+        subject,
+        &desc,
+    );
     legend(&mut sheet, left, HEADING + 8.0, frame.width, &entries);
     for (i, r) in rows.iter().enumerate() {
         let mid = frame.top + IMPLICATION_ROW * (i as f64 + 0.5);
         let excludes = r.lower > 0.0 || r.upper < 0.0;
         if excludes {
-            sheet.push(rect(8.0, mid - IMPLICATION_ROW / 2.0 + 1.0, frame.right() - 8.0, IMPLICATION_ROW - 2.0, VERMILLION).with("fill-opacity", "0.1"));
+            sheet.push(
+                rect(
+                    8.0,
+                    mid - IMPLICATION_ROW / 2.0 + 1.0,
+                    frame.right() - 8.0,
+                    IMPLICATION_ROW - 2.0,
+                    VERMILLION,
+                )
+                .with("fill-opacity", "0.1"),
+            );
         }
-        sheet.push(text(left - 12.0, mid + 4.5, &r.statement, MEDIUM, Anchor::End));
+        sheet.push(text(
+            left - 12.0,
+            mid + 4.5,
+            &r.statement,
+            MEDIUM,
+            Anchor::End,
+        ));
     }
     frame.vertical_reference(&mut sheet, 0.0);
     for (i, r) in rows.iter().enumerate() {
         let mid = frame.top + IMPLICATION_ROW * (i as f64 + 0.5);
         let excludes = r.lower > 0.0 || r.upper < 0.0;
         let colour = if excludes { VERMILLION } else { BLUE };
-        sheet.push(line(frame.px(r.lower), mid, frame.px(r.upper), mid, colour, 2.2));
-        let dot = circle(frame.px(r.estimate), mid, 4.5, if excludes { VERMILLION } else { "#FFFFFF" });
+        sheet.push(line(
+            frame.px(r.lower),
+            mid,
+            frame.px(r.upper),
+            mid,
+            colour,
+            2.2,
+        ));
+        let dot = circle(
+            frame.px(r.estimate),
+            mid,
+            4.5,
+            if excludes { VERMILLION } else { "#FFFFFF" },
+        );
         sheet.push(dot.with("stroke", colour).with("stroke-width", "1.8"));
     }
     frame.x_axis(&mut sheet, Some(&association.label()));

@@ -144,7 +144,10 @@ pub fn layout(picture: &GraphPicture) -> Result<GraphLayout, PlotError> {
 fn longest_path_layers(picture: &GraphPicture) -> Result<Vec<usize>, PlotError> {
     let n = picture.nodes.len();
     if n == 0 {
-        return Err(PlotError::Empty { figure: "causal graph", what: format!("graph {}", picture.title) });
+        return Err(PlotError::Empty {
+            figure: "causal graph",
+            what: format!("graph {}", picture.title),
+        });
     }
     let mut indegree = vec![0usize; n];
     let mut children = vec![Vec::new(); n];
@@ -216,7 +219,13 @@ fn build_slots(picture: &GraphPicture, layers: &[usize]) -> (Vec<Slot>, Vec<Vec<
     for e in &picture.edges {
         let mut chain = vec![e.from];
         for layer in layers[e.from] + 1..layers[e.to] {
-            slots.push(Slot { node: None, layer, width: WAYPOINT_WIDTH, above: vec![], below: vec![] });
+            slots.push(Slot {
+                node: None,
+                layer,
+                width: WAYPOINT_WIDTH,
+                above: vec![],
+                below: vec![],
+            });
             chain.push(slots.len() - 1);
         }
         chain.push(e.to);
@@ -253,7 +262,11 @@ fn order_rows(slots: &[Slot], mut rows: Vec<Vec<usize>>) -> Vec<Vec<usize>> {
             let mut keyed: Vec<(f64, usize, usize)> = rows[l]
                 .iter()
                 .map(|&s| {
-                    let next = if downward { &slots[s].above } else { &slots[s].below };
+                    let next = if downward {
+                        &slots[s].above
+                    } else {
+                        &slots[s].below
+                    };
                     let bary = if next.is_empty() {
                         position[s] as f64
                     } else {
@@ -283,7 +296,12 @@ fn crossings(slots: &[Slot], rows: &[Vec<usize>], position: &[usize]) -> usize {
     for row in rows {
         let segments: Vec<(usize, usize)> = row
             .iter()
-            .flat_map(|&s| slots[s].below.iter().map(move |&t| (position[s], position[t])))
+            .flat_map(|&s| {
+                slots[s]
+                    .below
+                    .iter()
+                    .map(move |&t| (position[s], position[t]))
+            })
             .collect();
         for (i, a) in segments.iter().enumerate() {
             for b in &segments[i + 1..] {
@@ -333,11 +351,11 @@ fn place_rows(slots: &[Slot], rows: &[Vec<usize>]) -> Vec<f64> {
         }
     };
     for _ in 0..8 {
-        for l in 1..rows.len() {
-            pull(&mut centre, &rows[l], true, false);
+        for row in rows.iter().skip(1) {
+            pull(&mut centre, row, true, false);
         }
-        for l in (0..rows.len().saturating_sub(1)).rev() {
-            pull(&mut centre, &rows[l], false, true);
+        for row in rows.iter().rev().skip(1) {
+            pull(&mut centre, row, false, true);
         }
     }
     for row in rows {
@@ -348,7 +366,11 @@ fn place_rows(slots: &[Slot], rows: &[Vec<usize>]) -> Vec<f64> {
 
 /// Distance between the centres of two neighbouring slots.
 fn spacing(slots: &[Slot], a: usize, b: usize) -> f64 {
-    let gap = if slots[a].node.is_some() && slots[b].node.is_some() { NODE_GAP } else { NODE_GAP / 2.0 };
+    let gap = if slots[a].node.is_some() && slots[b].node.is_some() {
+        NODE_GAP
+    } else {
+        NODE_GAP / 2.0
+    };
     (slots[a].width + slots[b].width) / 2.0 + gap
 }
 
@@ -372,7 +394,10 @@ fn separate(desired: &[f64], gaps: &[f64]) -> Vec<f64> {
             }
             blocks.pop();
             let last = blocks.len() - 1;
-            blocks[last] = ((m1 * c1 as f64 + m2 * c2 as f64) / (c1 + c2) as f64, c1 + c2);
+            blocks[last] = (
+                (m1 * c1 as f64 + m2 * c2 as f64) / (c1 + c2) as f64,
+                c1 + c2,
+            );
         }
     }
     blocks
@@ -396,9 +421,21 @@ fn assemble(
     centre: &[f64],
     chains: &[Vec<usize>],
 ) -> GraphLayout {
-    let left = slots.iter().zip(centre).map(|(s, c)| c - s.width / 2.0).fold(f64::INFINITY, f64::min);
-    let right = slots.iter().zip(centre).map(|(s, c)| c + s.width / 2.0).fold(f64::NEG_INFINITY, f64::max);
-    let (left, right) = if left.is_finite() { (left, right) } else { (0.0, 0.0) };
+    let left = slots
+        .iter()
+        .zip(centre)
+        .map(|(s, c)| c - s.width / 2.0)
+        .fold(f64::INFINITY, f64::min);
+    let right = slots
+        .iter()
+        .zip(centre)
+        .map(|(s, c)| c + s.width / 2.0)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let (left, right) = if left.is_finite() {
+        (left, right)
+    } else {
+        (0.0, 0.0)
+    };
     let needed = right - left + 2.0 * MARGIN;
     let width = needed.max(WIDTH);
     let shift = (width - (right - left)) / 2.0 - left;
@@ -421,20 +458,34 @@ fn assemble(
         .enumerate()
         .map(|(e, mark)| {
             let chain = &chains[e];
-            let mut points = vec![(ports.exit(e, &boxes[mark.from]), boxes[mark.from].y + BOX_HEIGHT)];
+            let mut points = vec![(
+                ports.exit(e, &boxes[mark.from]),
+                boxes[mark.from].y + BOX_HEIGHT,
+            )];
             for &w in &chain[1..chain.len() - 1] {
                 let y = layer_centre(slots[w].layer);
                 points.push((x(w), y - BOX_HEIGHT / 2.0));
                 points.push((x(w), y + BOX_HEIGHT / 2.0));
             }
             points.push((ports.entry(e, &boxes[mark.to]), boxes[mark.to].y));
-            EdgeRoute { from: mark.from, to: mark.to, points, highlight: mark.highlight }
+            EdgeRoute {
+                from: mark.from,
+                to: mark.to,
+                points,
+                highlight: mark.highlight,
+            }
         })
         .collect();
     let depth = rows.len().max(1);
     let rows_of_legend = legend_rows(&legend_entries(picture), width - 2.0 * MARGIN);
     let height = layer_centre(depth - 1) + BOX_HEIGHT / 2.0 + 24.0 + legend_height(rows_of_legend);
-    GraphLayout { width, height, layers: layers.to_vec(), boxes, routes }
+    GraphLayout {
+        width,
+        height,
+        layers: layers.to_vec(),
+        boxes,
+        routes,
+    }
 }
 
 /// Where each arrow leaves its cause and reaches its effect: the arrows at
@@ -462,7 +513,10 @@ impl Ports {
                 entry_share[*e] = (k + 1) as f64 / (inc.len() + 1) as f64;
             }
         }
-        Ports { exit_share, entry_share }
+        Ports {
+            exit_share,
+            entry_share,
+        }
     }
 
     fn exit(&self, e: usize, b: &NodeBox) -> f64 {
@@ -490,7 +544,10 @@ fn legend_entries(picture: &GraphPicture) -> Vec<(Key, String)> {
         entries.push((Key::Outline(INK, 1.2, true), "unobserved".to_string()));
     }
     if picture.edges.iter().any(|e| e.highlight) {
-        entries.push((Key::Stroke(REDDISH_PURPLE, 2.6, false), "open path".to_string()));
+        entries.push((
+            Key::Stroke(REDDISH_PURPLE, 2.6, false),
+            "open path".to_string(),
+        ));
     }
     entries
 }
@@ -513,21 +570,41 @@ pub fn graph_figure(picture: &GraphPicture) -> Result<String, PlotError> {
             sheet.push(part);
         }
         let baseline = b.y + b.height / 2.0 + MEDIUM * 0.36;
-        sheet.push(text(b.x + b.width / 2.0, baseline, &mark.name, MEDIUM, Anchor::Middle));
+        sheet.push(text(
+            b.x + b.width / 2.0,
+            baseline,
+            &mark.name,
+            MEDIUM,
+            Anchor::Middle,
+        ));
     }
     let entries = legend_entries(picture);
     let rows = legend_rows(&entries, geometry.width - 2.0 * MARGIN);
     let top = geometry.height - legend_height(rows) - 8.0;
-    legend(&mut sheet, MARGIN, top, geometry.width - 2.0 * MARGIN, &entries);
+    legend(
+        &mut sheet,
+        MARGIN,
+        top,
+        geometry.width - 2.0 * MARGIN,
+        &entries,
+    );
     Ok(sheet.finish())
 }
 
 /// All plain arrows as one path and one set of heads, or the highlighted ones.
 fn draw_arrows(sheet: &mut Sheet, geometry: &GraphLayout, highlighted: bool) {
-    let (colour, width) = if highlighted { (REDDISH_PURPLE, 2.6) } else { (INK, 1.3) };
+    let (colour, width) = if highlighted {
+        (REDDISH_PURPLE, 2.6)
+    } else {
+        (INK, 1.3)
+    };
     let mut shafts = String::new();
     let mut heads = String::new();
-    for route in geometry.routes.iter().filter(|r| r.highlight == highlighted) {
+    for route in geometry
+        .routes
+        .iter()
+        .filter(|r| r.highlight == highlighted)
+    {
         shafts.push_str(&shaft_d(&route.points));
         let (tx, ty) = route.points[route.points.len() - 1];
         let half = if highlighted { 5.5 } else { 4.5 };
@@ -585,7 +662,9 @@ fn node_box(mark: &NodeMark, b: &NodeBox) -> Vec<Element> {
         Role::Adjusted => (Some(BLUISH_GREEN), 0.4, INK, 1.2),
     };
     let shape = |fill: &str| rect(b.x, b.y, b.width, b.height, fill).with("rx", "6");
-    let mut outline = shape("#FFFFFF").with("stroke", stroke).with("stroke-width", num(width));
+    let mut outline = shape("#FFFFFF")
+        .with("stroke", stroke)
+        .with("stroke-width", num(width));
     if mark.hidden {
         outline = outline.with("stroke-dasharray", "5 3");
     }
@@ -599,7 +678,12 @@ fn node_box(mark: &NodeMark, b: &NodeBox) -> Vec<Element> {
 /// The `<desc>` sentence of a graph figure.
 fn describe(picture: &GraphPicture) -> String {
     let names = |r: Role| -> Vec<&str> {
-        picture.nodes.iter().filter(|n| n.role == r).map(|n| n.name.as_str()).collect()
+        picture
+            .nodes
+            .iter()
+            .filter(|n| n.role == r)
+            .map(|n| n.name.as_str())
+            .collect()
     };
     let mut s = format!(
         "Causal graph {} with {} nodes and {} arrows, drawn top to bottom from causes to effects",
@@ -607,13 +691,22 @@ fn describe(picture: &GraphPicture) -> String {
         picture.nodes.len(),
         picture.edges.len()
     );
-    for (role, words) in [(Role::Exposure, "exposure"), (Role::Outcome, "outcome"), (Role::Adjusted, "adjusted for")] {
+    for (role, words) in [
+        (Role::Exposure, "exposure"),
+        (Role::Outcome, "outcome"),
+        (Role::Adjusted, "adjusted for"),
+    ] {
         let list = names(role);
         if !list.is_empty() {
             s.push_str(&format!("; {words} {}", list.join(", ")));
         }
     }
-    let hidden: Vec<&str> = picture.nodes.iter().filter(|n| n.hidden).map(|n| n.name.as_str()).collect();
+    let hidden: Vec<&str> = picture
+        .nodes
+        .iter()
+        .filter(|n| n.hidden)
+        .map(|n| n.name.as_str())
+        .collect();
     if !hidden.is_empty() {
         s.push_str(&format!("; unobserved {}", hidden.join(", ")));
     }

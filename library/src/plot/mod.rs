@@ -55,12 +55,18 @@ pub struct Quantity {
 impl Quantity {
     /// A quantity without a unit.
     pub fn new(name: impl Into<String>) -> Quantity {
-        Quantity { name: name.into(), unit: None }
+        Quantity {
+            name: name.into(),
+            unit: None,
+        }
     }
 
     /// A quantity with a unit.
     pub fn with_unit(name: impl Into<String>, unit: impl Into<String>) -> Quantity {
-        Quantity { name: name.into(), unit: Some(unit.into()) }
+        Quantity {
+            name: name.into(),
+            unit: Some(unit.into()),
+        }
     }
 
     /// The axis title: `"trunk girth (cm)"`, or the bare name without a unit.
@@ -81,16 +87,35 @@ pub enum PlotError {
     Empty { figure: &'static str, what: String },
     /// Two inputs that must line up have different lengths.
     #[error("{figure} figure: {what} has {found} values but {expected} were expected; give one value per {per}")]
-    Length { figure: &'static str, what: String, found: usize, expected: usize, per: &'static str },
+    Length {
+        figure: &'static str,
+        what: String,
+        found: usize,
+        expected: usize,
+        per: &'static str,
+    },
     /// A value outside the range the figure can show.
     #[error("{figure} figure: {what}; {fix}")]
-    OutOfRange { figure: &'static str, what: String, fix: String },
+    OutOfRange {
+        figure: &'static str,
+        what: String,
+        fix: String,
+    },
     /// An arrow names a node the picture does not have.
     #[error("graph {graph}: arrow {arrow} refers to node number {node}, but there are only {count} nodes; fix the arrow's ends")]
-    MissingNode { graph: String, arrow: usize, node: usize, count: usize },
+    MissingNode {
+        graph: String,
+        arrow: usize,
+        node: usize,
+        count: usize,
+    },
     /// An arrow from a node to itself.
     #[error("graph {graph}: arrow {arrow} runs from {node} to itself; remove it, a causal graph has no self-loops")]
-    SelfLoop { graph: String, arrow: usize, node: String },
+    SelfLoop {
+        graph: String,
+        arrow: usize,
+        node: String,
+    },
     /// The arrows form a cycle, so no top-to-bottom drawing exists.
     #[error("graph {graph}: node {node} lies on a cycle of arrows; remove one arrow of the cycle so the graph is acyclic")]
     Cycle { graph: String, node: String },

@@ -28,7 +28,15 @@ pub const INK: &str = "#333333";
 pub const MUTED: &str = "#8C8C8C";
 
 /// The order in which groups, chains and parameters take colours.
-const SERIES: [&str; 7] = [BLUE, ORANGE, BLUISH_GREEN, VERMILLION, SKY_BLUE, REDDISH_PURPLE, YELLOW];
+const SERIES: [&str; 7] = [
+    BLUE,
+    ORANGE,
+    BLUISH_GREEN,
+    VERMILLION,
+    SKY_BLUE,
+    REDDISH_PURPLE,
+    YELLOW,
+];
 
 /// Colour of the `i`-th series; cycles after seven.
 pub fn series(i: usize) -> &'static str {

@@ -58,28 +58,71 @@ pub struct BasisPicture {
 const MAX_POINTS: usize = 3000;
 const PANEL_HEIGHT: f64 = 300.0;
 
-fn check_len(figure: &'static str, what: String, found: usize, expected: usize) -> Result<(), PlotError> {
+fn check_len(
+    figure: &'static str,
+    what: String,
+    found: usize,
+    expected: usize,
+) -> Result<(), PlotError> {
     if found == expected {
         Ok(())
     } else {
-        Err(PlotError::Length { figure, what, found, expected, per: "grid value" })
+        Err(PlotError::Length {
+            figure,
+            what,
+            found,
+            expected,
+            per: "grid value",
+        })
     }
 }
 
-fn check_curve(figure: &'static str, owner: &str, grid: &[f64], mean: &[f64], lower: &[f64], upper: &[f64]) -> Result<(), PlotError> {
+fn check_curve(
+    figure: &'static str,
+    owner: &str,
+    grid: &[f64],
+    mean: &[f64],
+    lower: &[f64],
+    upper: &[f64],
+) -> Result<(), PlotError> {
     if extent(grid).is_none() {
-        return Err(PlotError::Empty { figure, what: format!("the grid of {owner}") });
+        return Err(PlotError::Empty {
+            figure,
+            what: format!("the grid of {owner}"),
+        });
     }
-    check_len(figure, format!("the mean of {owner}"), mean.len(), grid.len())?;
-    check_len(figure, format!("the lower bound of {owner}"), lower.len(), grid.len())?;
-    check_len(figure, format!("the upper bound of {owner}"), upper.len(), grid.len())
+    check_len(
+        figure,
+        format!("the mean of {owner}"),
+        mean.len(),
+        grid.len(),
+    )?;
+    check_len(
+        figure,
+        format!("the lower bound of {owner}"),
+        lower.len(),
+        grid.len(),
+    )?;
+    check_len(
+        figure,
+        format!("the upper bound of {owner}"),
+        upper.len(),
+        grid.len(),
+    )
 }
 
 /// Lay out one panel below a legend; returns the frame and figure height.
 fn single_panel(x: (f64, f64), y: (f64, f64), legend_rows: usize) -> (Frame, f64) {
     let left = left_margin(y, true);
     let top = HEADING + 8.0 + legend_height(legend_rows) + 10.0;
-    let frame = Frame { left, top, width: WIDTH - left - 20.0, height: PANEL_HEIGHT, x, y };
+    let frame = Frame {
+        left,
+        top,
+        width: WIDTH - left - 20.0,
+        height: PANEL_HEIGHT,
+        x,
+        y,
+    };
     (frame, frame.bottom() + 52.0)
 }
 
@@ -93,16 +136,38 @@ pub fn lines_figure(
     groups: &[LineGroup],
 ) -> Result<String, PlotError> {
     if groups.is_empty() {
-        return Err(PlotError::Empty { figure: "fitted lines", what: "the list of groups".into() });
+        return Err(PlotError::Empty {
+            figure: "fitted lines",
+            what: "the list of groups".into(),
+        });
     }
     for g in groups {
-        check_curve("fitted lines", &format!("group {}", g.label), &g.grid, &g.mean, &g.lower, &g.upper)?;
+        check_curve(
+            "fitted lines",
+            &format!("group {}", g.label),
+            &g.grid,
+            &g.mean,
+            &g.lower,
+            &g.upper,
+        )?;
     }
-    let xs = extent(groups.iter().flat_map(|g| g.grid.iter().chain(g.points.iter().map(|p| &p.0))));
-    let ys = extent(groups.iter().flat_map(|g| g.lower.iter().chain(&g.upper).chain(g.points.iter().map(|p| &p.1))));
+    let xs = extent(
+        groups
+            .iter()
+            .flat_map(|g| g.grid.iter().chain(g.points.iter().map(|p| &p.0))),
+    );
+    let ys = extent(groups.iter().flat_map(|g| {
+        g.lower
+            .iter()
+            .chain(&g.upper)
+            .chain(g.points.iter().map(|p| &p.1))
+    }));
     let (xs, ys) = (xs.unwrap_or((0.0, 1.0)), ys.unwrap_or((0.0, 1.0)));
-    let mut entries: Vec<(Key, String)> =
-        groups.iter().enumerate().map(|(i, g)| (Key::Stroke(series(i), 2.4, false), g.label.clone())).collect();
+    let mut entries: Vec<(Key, String)> = groups
+        .iter()
+        .enumerate()
+        .map(|(i, g)| (Key::Stroke(series(i), 2.4, false), g.label.clone()))
+        .collect();
     entries.push((Key::Swatch(INK, 0.18), format!("band: {interval}")));
     let rows = legend_rows(&entries, WIDTH - 100.0);
     let (frame, height) = single_panel(padded(xs.0, xs.1, 0.02), padded(ys.0, ys.1, 0.05), rows);
@@ -110,17 +175,28 @@ pub fn lines_figure(
         "Fitted {} against {} for {}, with {} bands over the observed data.",
         y.name,
         x.name,
-        groups.iter().map(|g| g.label.as_str()).collect::<Vec<_>>().join(", "),
+        groups
+            .iter()
+            .map(|g| g.label.as_str())
+            .collect::<Vec<_>>()
+            .join(", "),
         interval
     );
     let mut sheet = Sheet::new(WIDTH, height, "fitted lines", subject, &desc);
     legend(&mut sheet, frame.left, HEADING + 8.0, frame.width, &entries);
     for (i, g) in groups.iter().enumerate() {
-        let keep: Vec<(f64, f64)> = thin_indices(g.points.len(), MAX_POINTS).iter().map(|k| g.points[*k]).collect();
+        let keep: Vec<(f64, f64)> = thin_indices(g.points.len(), MAX_POINTS)
+            .iter()
+            .map(|k| g.points[*k])
+            .collect();
         sheet.push(dot_cloud(&frame, &keep, series(i)));
     }
     for (i, g) in groups.iter().enumerate() {
-        sheet.push(fill_path(frame.band_d(&g.grid, &g.lower, &g.upper), series(i), 0.2));
+        sheet.push(fill_path(
+            frame.band_d(&g.grid, &g.lower, &g.upper),
+            series(i),
+            0.2,
+        ));
     }
     for (i, g) in groups.iter().enumerate() {
         sheet.push(stroke_path(frame.curve_d(&g.grid, &g.mean), series(i), 2.4));
@@ -139,7 +215,14 @@ pub fn contrast_grid_figure(
     interval: &str,
     c: &GridContrast,
 ) -> Result<String, PlotError> {
-    check_curve("contrast along a grid", subject, &c.grid, &c.mean, &c.lower, &c.upper)?;
+    check_curve(
+        "contrast along a grid",
+        subject,
+        &c.grid,
+        &c.mean,
+        &c.lower,
+        &c.upper,
+    )?;
     let xs = extent(&c.grid).map_or((0.0, 1.0), |(lo, hi)| padded(lo, hi, 0.0));
     let ys = extent(c.lower.iter().chain(&c.upper).chain(&[0.0])).unwrap_or((0.0, 1.0));
     let entries = vec![
@@ -156,7 +239,11 @@ pub fn contrast_grid_figure(
     );
     let mut sheet = Sheet::new(WIDTH, height, "contrast along a grid", subject, &desc);
     legend(&mut sheet, frame.left, HEADING + 8.0, frame.width, &entries);
-    sheet.push(fill_path(frame.band_d(&c.grid, &c.lower, &c.upper), BLUE, 0.25));
+    sheet.push(fill_path(
+        frame.band_d(&c.grid, &c.lower, &c.upper),
+        BLUE,
+        0.25,
+    ));
     frame.horizontal_reference(&mut sheet, 0.0);
     sheet.push(stroke_path(frame.curve_d(&c.grid, &c.mean), BLUE, 2.4));
     frame.x_axis(&mut sheet, Some(&x.label()));
@@ -170,54 +257,107 @@ const BASIS_PANEL: f64 = 110.0;
 /// A B-spline fit: above, the basis functions; below, each basis function
 /// scaled by its posterior-mean weight (thin), a few posterior draws of the
 /// fitted curve (thin grey) and the posterior-mean curve (thick).
-pub fn basis_figure(subject: &str, x: &Quantity, y: &Quantity, p: &BasisPicture) -> Result<String, PlotError> {
+pub fn basis_figure(
+    subject: &str,
+    x: &Quantity,
+    y: &Quantity,
+    p: &BasisPicture,
+) -> Result<String, PlotError> {
     let figure = "B-spline";
     if extent(&p.grid).is_none() || p.basis.is_empty() {
-        return Err(PlotError::Empty { figure, what: "the grid or the basis".into() });
+        return Err(PlotError::Empty {
+            figure,
+            what: "the grid or the basis".into(),
+        });
     }
     if p.weights.is_empty() {
-        return Err(PlotError::Empty { figure, what: "the weight draws".into() });
+        return Err(PlotError::Empty {
+            figure,
+            what: "the weight draws".into(),
+        });
     }
     for (k, b) in p.basis.iter().enumerate() {
-        check_len(figure, format!("basis function {}", k + 1), b.len(), p.grid.len())?;
+        check_len(
+            figure,
+            format!("basis function {}", k + 1),
+            b.len(),
+            p.grid.len(),
+        )?;
     }
     for (d, w) in p.weights.iter().enumerate() {
         if w.len() != p.basis.len() {
             let what = format!("weight draw {}", d + 1);
-            return Err(PlotError::Length { figure, what, found: w.len(), expected: p.basis.len(), per: "basis function" });
+            return Err(PlotError::Length {
+                figure,
+                what,
+                found: w.len(),
+                expected: p.basis.len(),
+                per: "basis function",
+            });
         }
     }
     if !p.intercept.is_empty() && p.intercept.len() != p.weights.len() {
         let (found, expected) = (p.intercept.len(), p.weights.len());
-        return Err(PlotError::Length { figure, what: "the intercept draws".into(), found, expected, per: "weight draw" });
+        return Err(PlotError::Length {
+            figure,
+            what: "the intercept draws".into(),
+            found,
+            expected,
+            per: "weight draw",
+        });
     }
     let draws = p.weights.len();
     let intercept = |d: usize| p.intercept.get(d).copied().unwrap_or(0.0);
     let curve = |w: &[f64], a: f64| -> Vec<f64> {
-        (0..p.grid.len()).map(|i| a + p.basis.iter().zip(w).map(|(b, wk)| b[i] * wk).sum::<f64>()).collect()
+        (0..p.grid.len())
+            .map(|i| a + p.basis.iter().zip(w).map(|(b, wk)| b[i] * wk).sum::<f64>())
+            .collect()
     };
-    let mean_w: Vec<f64> =
-        (0..p.basis.len()).map(|k| p.weights.iter().map(|w| w[k]).sum::<f64>() / draws as f64).collect();
+    let mean_w: Vec<f64> = (0..p.basis.len())
+        .map(|k| p.weights.iter().map(|w| w[k]).sum::<f64>() / draws as f64)
+        .collect();
     let mean_a = (0..draws).map(intercept).sum::<f64>() / draws as f64;
     let mean = curve(&mean_w, mean_a);
-    let shown: Vec<Vec<f64>> =
-        thin_indices(draws, DRAWN_CURVES).into_iter().map(|d| curve(&p.weights[d], intercept(d))).collect();
-    let parts: Vec<Vec<f64>> =
-        p.basis.iter().zip(&mean_w).map(|(b, w)| b.iter().map(|v| mean_a + v * w).collect()).collect();
+    let shown: Vec<Vec<f64>> = thin_indices(draws, DRAWN_CURVES)
+        .into_iter()
+        .map(|d| curve(&p.weights[d], intercept(d)))
+        .collect();
+    let parts: Vec<Vec<f64>> = p
+        .basis
+        .iter()
+        .zip(&mean_w)
+        .map(|(b, w)| b.iter().map(|v| mean_a + v * w).collect())
+        .collect();
 
     let xs = extent(&p.grid).map_or((0.0, 1.0), |(lo, hi)| padded(lo, hi, 0.0));
     let ys = extent(
-        mean.iter().chain(shown.iter().flatten()).chain(parts.iter().flatten()).chain(p.points.iter().map(|q| &q.1)),
+        mean.iter()
+            .chain(shown.iter().flatten())
+            .chain(parts.iter().flatten())
+            .chain(p.points.iter().map(|q| &q.1)),
     )
     .unwrap_or((0.0, 1.0));
     let y_range = padded(ys.0, ys.1, 0.05);
     let left = left_margin(y_range, true);
     let width = WIDTH - left - 20.0;
-    let top = Frame { left, top: HEADING + 12.0, width, height: BASIS_PANEL, x: xs, y: (0.0, 1.05) };
+    let top = Frame {
+        left,
+        top: HEADING + 12.0,
+        width,
+        height: BASIS_PANEL,
+        x: xs,
+        y: (0.0, 1.05),
+    };
     let entries = vec![
         (Key::Stroke(INK, 2.8, false), "posterior mean".to_string()),
-        (Key::Stroke(MUTED, 1.0, false), format!("{} posterior draws", shown.len())),
-        (Key::Stroke(BLUE, 1.2, false), "each basis × its mean weight (colours as above)".to_string()),
+        (
+            Key::Stroke(MUTED, 1.0, false),
+            format!("{} posterior draws", shown.len()),
+        ),
+        (
+            Key::Stroke(BLUE, 1.2, false),
+            "each basis × its mean weight (colours as above)".to_string(),
+        ),
     ];
     let legend_top = top.bottom() + 30.0;
     let bottom = Frame {
