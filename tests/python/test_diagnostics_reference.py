@@ -125,3 +125,59 @@ def test_stuck_and_well_mixed_are_told_apart(probe):
     by_name = dict(CASES)
     assert probe("diagnostics", {"chains": by_name["stuck_chain_shifted"].tolist()})["rhat"] > 1.01
     assert probe("diagnostics", {"chains": by_name["well_mixed_iid"].tolist()})["rhat"] < 1.01
+
+
+# ---------------------------------------------------------------------------
+# Quantile intervals and HDI of draws (waypath::draws) against scipy.stats.
+# ---------------------------------------------------------------------------
+from scipy import stats
+from scipy.optimize import minimize_scalar
+
+N_DRAWS = 200_000
+
+
+def true_hdi(dist, mass):
+    """Shortest interval of a unimodal distribution: minimise ppf(p + mass) - ppf(p) over p."""
+    res = minimize_scalar(lambda p: dist.ppf(p + mass) - dist.ppf(p),
+                          bounds=(0.0, 1.0 - mass), method="bounded", options={"xatol": 1e-12})
+    return dist.ppf(res.x), dist.ppf(res.x + mass), res.x
+
+
+def quantile_se(dist, p, n):
+    """Large-sample standard error of a sample quantile: sqrt(p(1-p)/n) / f(q_p)."""
+    return np.sqrt(p * (1 - p) / n) / dist.pdf(dist.ppf(p))
+
+
+DISTS = [
+    ("normal", stats.norm(loc=2.0, scale=3.0), 0.9),
+    ("gamma", stats.gamma(a=3.0, scale=2.0), 0.9),
+    ("beta", stats.beta(a=2.0, b=5.0), 0.8),
+    ("lognormal", stats.lognorm(s=0.6), 0.95),
+]
+
+
+@pytest.mark.parametrize("name,dist,mass", DISTS, ids=[d[0] for d in DISTS])
+def test_intervals_match_scipy_distributions(probe, name, dist, mass):
+    draws = dist.rvs(size=N_DRAWS, random_state=np.random.default_rng(11))
+    got = probe("diagnostics", {"interval": {"draws": draws.tolist(), "mass": mass}})
+
+    # Same draws: quantiles by numpy's default (linear) rule, exactly.
+    tail = (1 - mass) / 2
+    assert got["quantile"] == pytest.approx(np.quantile(draws, [tail, 1 - tail]).tolist(), rel=1e-12)
+
+    # Same draws: the shortest window of ceil(mass * n) sorted draws
+    # (Chen & Shao 1999, Monte Carlo HPD interval estimate).
+    s = np.sort(draws)
+    k = int(np.ceil(mass * len(s)))
+    widths = s[k - 1:] - s[:len(s) - k + 1]
+    j = int(np.argmin(widths))
+    assert got["hdi"] == pytest.approx([s[j], s[j + k - 1]], rel=1e-12)
+
+    # Population: scipy.stats ppf for the quantile interval, and the shortest
+    # interval found from ppf for the HDI, within 6 Monte Carlo standard errors.
+    for value, p in zip(got["quantile"], (tail, 1 - tail)):
+        assert abs(value - dist.ppf(p)) < 6 * quantile_se(dist, p, N_DRAWS)
+    lo, hi, p_lo = true_hdi(dist, mass)
+    assert abs(got["hdi"][0] - lo) < 6 * quantile_se(dist, max(p_lo, 1e-3), N_DRAWS) + 1e-3 * dist.std()
+    assert abs(got["hdi"][1] - hi) < 6 * quantile_se(dist, min(p_lo + mass, 1 - 1e-3), N_DRAWS) + 1e-3 * dist.std()
+    assert (got["hdi"][1] - got["hdi"][0]) <= (got["quantile"][1] - got["quantile"][0]) + 1e-12

@@ -22,6 +22,7 @@
 
 use statrs::distribution::{ContinuousCDF, Normal};
 
+use crate::draws::summary::quantile;
 use crate::infer::nuts::NutsRun;
 
 /// R-hat above this is reported.
@@ -111,22 +112,6 @@ fn pooled(chains: &[Vec<f64>]) -> Vec<f64> {
 fn all_equal(chains: &[Vec<f64>]) -> bool {
     let first = chains[0][0];
     chains.iter().flatten().all(|&x| x == first)
-}
-
-/// Sample quantile by linear interpolation between order statistics
-/// (position `p (S − 1)` in the sorted draws).
-pub(crate) fn quantile(draws: &[f64], p: f64) -> f64 {
-    let mut sorted = draws.to_vec();
-    sorted.sort_by(f64::total_cmp);
-    quantile_sorted(&sorted, p)
-}
-
-/// [`quantile`] of draws already sorted ascending.
-pub(crate) fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    let h = p * (sorted.len() - 1) as f64;
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(sorted.len() - 1);
-    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
 }
 
 /// Pooled ranks (ties get the average of their ranks) mapped through the
