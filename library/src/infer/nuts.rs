@@ -97,7 +97,7 @@ pub struct NutsRun {
     pub seconds: f64,
 }
 
-/// Why a NUTS run gave no draws.
+/// Why a NUTS run gave no draws. Chains are numbered from 1 in these errors.
 #[derive(Debug, thiserror::Error, PartialEq)]
 pub enum NutsError {
     #[error("the sampler settings are not usable: {0}")]
@@ -159,7 +159,7 @@ pub fn sample_nuts<D: LogDensity>(
         seconds: 0.0,
     };
     for (chain, slot) in slots.into_iter().enumerate() {
-        let lost = || NutsError::Chain { chain, message: "its thread ended without a result".into() };
+        let lost = || NutsError::Chain { chain: chain + 1, message: "its thread ended without a result".into() };
         let run = slot.into_inner().map_err(|_| lost())?.ok_or_else(lost)??;
         out.draws.push(run.draws);
         out.divergences.push(run.divergences);
@@ -224,10 +224,10 @@ fn starting_points<D: LogDensity>(
             }
             for (chain, x) in points.iter().enumerate() {
                 if x.len() != dim {
-                    return Err(NutsError::InitLength { chain, expected: dim, got: x.len() });
+                    return Err(NutsError::InitLength { chain: chain + 1, expected: dim, got: x.len() });
                 }
                 if !finite(x, &mut grad) {
-                    return Err(NutsError::InitNotFinite { chain });
+                    return Err(NutsError::InitNotFinite { chain: chain + 1 });
                 }
             }
             Ok(points.clone())
@@ -243,7 +243,7 @@ fn starting_points<D: LogDensity>(
                         return Ok(x);
                     }
                 }
-                Err(NutsError::InitNotFinite { chain })
+                Err(NutsError::InitNotFinite { chain: chain + 1 })
             })
             .collect(),
     }
@@ -265,7 +265,7 @@ fn run_chain<D: LogDensity>(
     cancel: &AtomicBool,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<ChainRun, NutsError> {
-    let failed = |message: String| NutsError::Chain { chain, message };
+    let failed = |message: String| NutsError::Chain { chain: chain + 1, message };
     let mut options = DiagNutsSettings::default();
     options.num_tune = settings.warmup as u64;
     options.num_draws = settings.draws as u64;
@@ -284,7 +284,7 @@ fn run_chain<D: LogDensity>(
 
     let full_depth_steps = (1u64 << settings.max_depth) - 1;
     let mut run = ChainRun {
-        draws: Vec::with_capacity(settings.draws),
+        draws: Vec::with_capacity(settings.draws.min(10_000)),
         divergences: 0,
         depth_hits: 0,
         step_size: f64::NAN,
