@@ -181,3 +181,55 @@ fn given_starting_point_of_wrong_length_names_the_chain() {
     let err = sample_nuts(&target, &init, &settings, &AtomicBool::new(false), &quiet).unwrap_err();
     assert_eq!(err, NutsError::InitLength { chain: 2, expected: 2, got: 1 });
 }
+
+#[test]
+fn higher_target_acceptance_gives_smaller_steps() {
+    // Dual averaging tunes the step size so the mean acceptance statistic
+    // meets the target (Hoffman & Gelman 2014, section 3.2): a stricter
+    // target needs shorter steps.
+    let target = Gaussian::new(vec![0.0; 5], &ar_covariance(&[1.0; 5], 0.5));
+    let cancel = AtomicBool::new(false);
+    let step = |target_accept: f64| {
+        let settings = NutsSettings { target_accept, warmup: 500, draws: 100, ..Default::default() };
+        let run = sample_nuts(&target, &Init::default(), &settings, &cancel, &quiet).expect("run completes");
+        mean(&run.step_sizes)
+    };
+    assert!(step(0.95) < 0.8 * step(0.6));
+}
+
+#[test]
+fn shallow_tree_limit_is_counted_as_depth_hits() {
+    // With maximum depth 2 a trajectory has at most 3 leapfrog steps, far
+    // too few to cross a strongly correlated 20-D Gaussian before a U-turn.
+    let target = Gaussian::new(vec![0.0; 20], &ar_covariance(&[1.0; 20], 0.95));
+    let settings = NutsSettings { max_depth: 2, warmup: 300, draws: 200, ..Default::default() };
+    let run = sample_nuts(&target, &Init::default(), &settings, &AtomicBool::new(false), &quiet)
+        .expect("run completes");
+    assert!(run.depth_hits.iter().sum::<usize>() > 400, "depth hits {:?}", run.depth_hits);
+    let names: Vec<String> = (1..=20).map(|i| format!("x{i}")).collect();
+    assert!(run_warnings(&run, &names, 2).iter().any(|w| w.contains("maximum tree depth of 2")));
+}
+
+/// A normal with sd 10 cut to |x| < 1: the wall where the density stops
+/// makes trajectories that cross it divergent.
+struct Walled;
+
+impl LogDensity for Walled {
+    fn dim(&self) -> usize {
+        1
+    }
+
+    fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        grad[0] = -theta[0] / 100.0;
+        if theta[0].abs() < 1.0 { -theta[0] * theta[0] / 200.0 } else { f64::NEG_INFINITY }
+    }
+}
+
+#[test]
+fn trajectories_hitting_a_wall_are_counted_as_divergent() {
+    let settings = NutsSettings { warmup: 300, draws: 300, ..Default::default() };
+    let init = Init::Random { radius: 0.5 };
+    let run = sample_nuts(&Walled, &init, &settings, &AtomicBool::new(false), &quiet).expect("run completes");
+    assert!(run.divergences.iter().sum::<usize>() > 0);
+    assert!(run.draws.iter().flatten().all(|d| d[0].abs() < 1.0));
+}

@@ -195,7 +195,7 @@ fn ess(chains: &[Vec<f64>]) -> f64 {
     let n = chains[0].len();
     let s = (n * chains.len()) as f64;
     let (w, var_plus) = variance_parts(chains);
-    if !(var_plus > 0.0) {
+    if var_plus.is_nan() || var_plus <= 0.0 {
         return f64::NAN;
     }
     let means: Vec<f64> = chains.iter().map(|c| mean(c)).collect();
@@ -211,7 +211,7 @@ fn ess(chains: &[Vec<f64>]) -> f64 {
     let mut k = 0;
     while 2 * k + 1 < n {
         let pair = rho(2 * k) + rho(2 * k + 1);
-        if !(pair >= 0.0) {
+        if pair.is_nan() || pair < 0.0 {
             break;
         }
         let pair = pair.min(previous);

@@ -266,14 +266,16 @@ fn run_chain<D: LogDensity>(
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<ChainRun, NutsError> {
     let failed = |message: String| NutsError::Chain { chain: chain + 1, message };
-    let mut options = DiagNutsSettings::default();
-    options.num_tune = settings.warmup as u64;
-    options.num_draws = settings.draws as u64;
-    options.maxdepth = settings.max_depth as u64;
-    options.max_energy_error = DIVERGENCE_ENERGY;
+    let mut options = DiagNutsSettings {
+        num_tune: settings.warmup as u64,
+        num_draws: settings.draws as u64,
+        maxdepth: u64::from(settings.max_depth),
+        max_energy_error: DIVERGENCE_ENERGY,
+        num_chains: settings.chains,
+        seed: settings.seed,
+        ..Default::default()
+    };
     options.adapt_options.step_size_settings.target_accept = settings.target_accept;
-    options.num_chains = settings.chains;
-    options.seed = settings.seed;
 
     let total = settings.warmup + settings.draws;
     let mut rng = chain_rng(settings.seed, chain);
