@@ -4,9 +4,11 @@
 //! chain, chains spread over threads, cancellation, progress reports and the
 //! per-chain counts (divergences, tree-depth hits) a scientist must see. The
 //! transition itself — multinomial NUTS with the generalised U-turn check,
-//! step-size and diagonal mass-matrix adaptation during warm-up — comes from
-//! the `nuts-rs` crate, driven one draw at a time so that a cancel flag is
-//! seen between draws.
+//! dual-averaging step size and a diagonal mass matrix adapted during
+//! warm-up on the `nuts-rs` schedule (from draw and gradient variances, not
+//! fixed doubling windows) — comes from the `nuts-rs` crate, driven one draw
+//! at a time through `sample_sequentially` so that the cancel flag is seen
+//! between draws and each chain runs on a thread of ours.
 //!
 //! Each chain's random stream is derived from `(seed, chain)` alone, so the
 //! same seed gives the same draws whatever the number of threads.
@@ -73,8 +75,8 @@ impl Default for Init {
     }
 }
 
-/// One progress report: `chain` has finished `iteration` of `total`
-/// iterations (warm-up included).
+/// One progress report: the chain with index `chain` (counted from 0) has
+/// finished `iteration` of its `total` iterations (warm-up included).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Progress {
     pub chain: usize,
