@@ -4,6 +4,11 @@
 //! unconstrained scale, never a model's terms or data, so any density
 //! (a regression, a joint model, a test target) can be fitted the same way.
 //! [`laplace`] approximates the posterior by a normal distribution at its
-//! mode.
+//! mode; [`nuts`] runs several chains of the No-U-Turn sampler in parallel;
+//! [`diagnostics`] judges those chains (rank-normalised split R-hat, bulk and
+//! tail effective sample size) and words the warnings a scientist reads
+//! after a fit.
 
+pub mod diagnostics;
 pub mod laplace;
+pub mod nuts;
