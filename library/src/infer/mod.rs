@@ -10,5 +10,6 @@
 //! after a fit.
 
 pub mod diagnostics;
+pub mod fit;
 pub mod laplace;
 pub mod nuts;

@@ -1,0 +1,138 @@
+//! One call from a built model to labelled posterior draws.
+//!
+//! [`fit_model`] runs the chosen method on the model's unconstrained
+//! density, maps every draw back to the constrained scale, labels it with
+//! the model's parameter names, and gathers diagnostics and warnings. The
+//! cells and query layers see only the resulting [`Fit`].
+
+use std::sync::atomic::AtomicBool;
+
+use crate::draws::Draws;
+use crate::infer::diagnostics::{diagnose, run_warnings, ParamDiagnostics};
+use crate::infer::laplace::{laplace, InferError};
+use crate::infer::nuts::{sample_nuts, Init, NutsError, NutsSettings, Progress};
+use crate::model::Model;
+
+/// Default seed of a Laplace fit (NUTS has its own in [`NutsSettings`]).
+pub const LAPLACE_SEED: u64 = 20_261_201;
+/// Default number of Laplace draws.
+pub const LAPLACE_DRAWS: usize = 4000;
+
+/// How to fit.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Method {
+    /// Normal approximation at the posterior mode.
+    Laplace { draws: usize, seed: u64 },
+    /// The No-U-Turn sampler.
+    Nuts(NutsSettings),
+}
+
+impl Method {
+    /// The method's name and its settings, as printed with a fit.
+    pub fn describe(&self) -> String {
+        match self {
+            Method::Laplace { draws, seed } => format!("Laplace approximation, {draws} draws, seed {seed}"),
+            Method::Nuts(s) => format!(
+                "NUTS, {} chains × ({} warm-up + {} draws), target acceptance {}, max tree depth {}, seed {}",
+                s.chains, s.warmup, s.draws, s.target_accept, s.max_depth, s.seed
+            ),
+        }
+    }
+
+    /// `"laplace"` or `"nuts"`.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Method::Laplace { .. } => "laplace",
+            Method::Nuts(_) => "nuts",
+        }
+    }
+
+    /// The seed the method uses.
+    pub fn seed(&self) -> u64 {
+        match self {
+            Method::Laplace { seed, .. } => *seed,
+            Method::Nuts(s) => s.seed,
+        }
+    }
+}
+
+/// A fitted model: labelled draws on the constrained scale plus how they were made.
+#[derive(Debug, Clone)]
+pub struct Fit {
+    pub method: Method,
+    pub draws: Draws,
+    /// Per parameter, in `draws.names` order; `None` for Laplace fits.
+    pub diagnostics: Option<Vec<ParamDiagnostics>>,
+    pub divergences: usize,
+    pub warnings: Vec<String>,
+    pub seconds: f64,
+}
+
+/// Why a fit failed.
+#[derive(Debug, thiserror::Error)]
+pub enum FitError {
+    #[error(transparent)]
+    Laplace(#[from] InferError),
+    #[error(transparent)]
+    Nuts(#[from] NutsError),
+    #[error("the draws could not be stored: {0}")]
+    Draws(String),
+}
+
+/// Fit `model` with `method`. `cancel` stops a NUTS run early (an error);
+/// `progress` hears about every NUTS iteration.
+pub fn fit_model(
+    model: &Model,
+    method: &Method,
+    cancel: &AtomicBool,
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Result<Fit, FitError> {
+    let started = std::time::Instant::now();
+    let names = model.parameter_names();
+    let (chains, diagnostics, divergences, warnings) = match method {
+        Method::Laplace { draws, seed } => {
+            let fit = laplace(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed)?;
+            (vec![fit.draws], None, 0, Vec::new())
+        }
+        Method::Nuts(settings) => {
+            let init = Init::Given(jittered_starts(&model.initial_point(), settings.chains, settings.seed));
+            let run = sample_nuts(model, &init, settings, cancel, progress)?;
+            let warnings = run_warnings(&run, &names, settings.max_depth);
+            let divergences = run.divergences.iter().sum();
+            (run.draws, Some(()), divergences, warnings)
+        }
+    };
+    let constrained: Vec<Vec<Vec<f64>>> =
+        chains.iter().map(|chain| chain.iter().map(|theta| model.constrain(theta)).collect()).collect();
+    let draws = Draws::from_chains(names, constrained).map_err(|e| FitError::Draws(e.to_string()))?;
+    let diagnostics = diagnostics.map(|()| per_parameter_diagnostics(&draws));
+    Ok(Fit {
+        method: method.clone(),
+        draws,
+        diagnostics,
+        divergences,
+        warnings,
+        seconds: started.elapsed().as_secs_f64(),
+    })
+}
+
+/// One start per chain: the model's own start plus a small seeded jitter,
+/// so the chains do not begin identical (R-hat then means something).
+fn jittered_starts(start: &[f64], chains: usize, seed: u64) -> Vec<Vec<f64>> {
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, Normal};
+    let mut rng = rand::rngs::StdRng::seed_from_u64(seed ^ 0x5EED_57A7);
+    let jitter = Normal::new(0.0, 0.1).expect("fixed, valid sd");
+    (0..chains).map(|_| start.iter().map(|x| x + jitter.sample(&mut rng)).collect()).collect()
+}
+
+fn per_parameter_diagnostics(draws: &Draws) -> Vec<ParamDiagnostics> {
+    draws
+        .names
+        .iter()
+        .map(|name| {
+            let chains = draws.by_chain(name).unwrap_or_default();
+            diagnose(&chains)
+        })
+        .collect()
+}
