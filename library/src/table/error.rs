@@ -35,7 +35,7 @@ pub enum TableError {
     DuplicateColumn { file: String, column: String, first: usize, second: usize },
 
     /// A data row with more or fewer fields than the header.
-    #[error("{file} row {row} has {found} fields but the header names {expected} columns ({})", ragged_advice(*.found, *.expected))]
+    #[error("{file} row {row} has {} but the header names {expected} columns ({})", plural(*.found, "field", "fields"), ragged_advice(*.found, *.expected))]
     RaggedRow { file: String, row: usize, found: usize, expected: usize },
 
     /// A value that does not fit its column's kind.

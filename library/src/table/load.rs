@@ -284,8 +284,7 @@ fn real_advice(problem: ValueProblem, name: &str, inferred: bool) -> ValueProble
     }
     ValueProblem {
         advice: format!(
-            "{name} was read as real because most of its values are numbers; {}, or declare {name}: category",
-            problem.advice
+            "most values of {name} are numbers, so it was read as real; fix the row, write a missing value as NA and add \"drop missing\", or declare {name}: category"
         ),
         ..problem
     }

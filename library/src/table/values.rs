@@ -77,7 +77,7 @@ pub fn parse_count(field: &str) -> Result<u64, ValueProblem> {
             "is not a whole number",
             "fix the row, or declare the column real if fractional values are possible",
         )),
-        Err(_) => Err(ValueProblem::new("is not a count (a whole number, 0 or more)", MISSING_ADVICE)),
+        Err(_) => Err(ValueProblem::new("is not a count, a whole number 0 or more", MISSING_ADVICE)),
     }
 }
 
