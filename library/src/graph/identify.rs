@@ -205,12 +205,12 @@ impl Graph {
         let Some(path) = open.iter().find(|p| through_hidden(p)).or(open.first()) else {
             return String::new();
         };
-        let given = if candidates.is_empty() {
-            String::new()
+        let lead = if candidates.is_empty() {
+            ": the path".to_owned()
         } else {
-            format!(" given {}", self.owned_names(&z).join(", "))
+            format!(": even given {}, the path", self.owned_names(&z).join(", "))
         };
-        let mut story = format!(": even{given}, the path {} stays open", self.path_report(path).drawing());
+        let mut story = format!("{lead} {} stays open", self.path_report(path).drawing());
         let colliders: Vec<&str> = path
             .openings
             .iter()

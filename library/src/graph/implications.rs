@@ -73,7 +73,9 @@ impl Graph {
                     continue;
                 }
                 let (a_name, b_name) = (self.label(a).to_owned(), self.label(b).to_owned());
-                match self.dag.minimal_separator(a, b, &observed) {
+                // Shrinking from the later node's side first keeps the set near b,
+                // which for a fully observed graph is usually b's parents.
+                match self.dag.minimal_separator(b, a, &observed) {
                     Some(set) => out.testable.push(Implication {
                         a: a_name,
                         b: b_name,
