@@ -225,3 +225,19 @@ fn implications_through_hidden_nodes_are_untestable() {
     assert_eq!(imp.testable.len(), 1);
     assert!(imp.testable[0].given.is_empty());
 }
+
+#[test]
+fn identification_renders_verdict_sets_and_reason() {
+    // Backdoor: the confounder clinic_size is the one minimal set (as in confounder_is_the_adjustment_set).
+    let g = graph("clinics", &["clinic_size -> referral -> recovery", "clinic_size -> recovery"]);
+    expect![[r#"
+        total effect of referral on recovery: identifiable
+          condition on: clinic_size
+        Each set blocks every backdoor path from referral to recovery and holds no descendant of referral (backdoor criterion)."#]]
+    .assert_eq(&g.total_effect("referral", "recovery").unwrap().render());
+    expect![[r#"
+        total effect of rootstock on yield: identifiable
+          condition on: nothing
+        No backdoor path from rootstock to yield is open, so no adjustment is needed."#]]
+    .assert_eq(&orchard().total_effect("rootstock", "yield").unwrap().render());
+}

@@ -123,7 +123,7 @@ impl Graph {
     }
 
     /// True when every path between a node of `xs` and a node of `ys` is
-    /// blocked by conditioning on `zs` (d-separation, Pearl 2009 §1.2.3).
+    /// blocked by conditioning on `zs` (d-separation, Pearl 2009, Definition 1.2.3).
     ///
     /// The three sets must not share a node; an empty `xs` or `ys` is
     /// trivially separated.
