@@ -4,8 +4,10 @@
 //! 1. read the raw text of every field (the `csv` crate: RFC 4180 quoting,
 //!    CRLF or LF line ends, a UTF-8 byte-order mark skipped), checking the
 //!    header and that every row has as many fields as the header;
-//! 2. type each column as declared, or infer its kind
-//!    ([`super::values::infer_kind`]);
+//! 2. type each column as declared, or infer its kind from its non-missing
+//!    fields: all binary words or 0/1 → binary; all whole numbers ≥ 0 →
+//!    count; more than half numbers → real (the rest are reported as
+//!    errors); otherwise category with levels in order of first appearance;
 //! 3. apply the missing-value policy (error, or `drop missing`);
 //! 4. apply the `keep where` filters in the order written.
 //!
