@@ -1,0 +1,71 @@
+//! Probe for the graph reference checks.
+//!
+//! Request: `{"graphs": [{"name", "nodes": [{"name", "hidden"}], "edges": [[from, to]],
+//! "lines": [..] (optional, cell body lines), "dot": ".." (optional), "queries": [..]}]}`.
+//! A query is one of `{"kind": "dsep", "xs", "ys", "zs"}`, `{"kind": "total" | "direct",
+//! "exposure", "outcome"}`, `{"kind": "paths", "from", "to", "given"}`, `{"kind": "implications"}`.
+//!
+//! Answer: `{"graphs": [{"name", "error"?, "order", "answers": [..]}]}`, one answer per
+//! query, or `{"error": message}` in its place.
+
+use serde_json::{json, Value};
+use waypath::graph::{from_dot, Graph, GraphBuilder, GraphError};
+
+fn main() {
+    let request = waypath_probe::read_request();
+    let graphs: Vec<Value> = request["graphs"].as_array().cloned().unwrap_or_default().iter().map(answer_graph).collect();
+    waypath_probe::write_answer(&json!({ "graphs": graphs }));
+}
+
+/// Build one graph and answer its queries.
+fn answer_graph(spec: &Value) -> Value {
+    let name = spec["name"].as_str().unwrap_or("probe");
+    let graph = match build(name, spec) {
+        Ok(g) => g,
+        Err(e) => return json!({ "name": name, "error": e.to_string() }),
+    };
+    let answers: Vec<Value> = spec["queries"]
+        .as_array()
+        .cloned()
+        .unwrap_or_default()
+        .iter()
+        .map(|q| answer_query(&graph, q).unwrap_or_else(|e| json!({ "error": e.to_string() })))
+        .collect();
+    json!({ "name": name, "order": graph.topological_order(), "answers": answers })
+}
+
+/// A graph from DOT text, from cell lines, or from node and edge lists.
+fn build(name: &str, spec: &Value) -> Result<Graph, GraphError> {
+    if let Some(text) = spec["dot"].as_str() {
+        return from_dot(name, text);
+    }
+    let mut builder = GraphBuilder::new(name);
+    for line in strings(&spec["lines"]) {
+        builder.add_line(&line)?;
+    }
+    for node in spec["nodes"].as_array().cloned().unwrap_or_default() {
+        builder.add_node(node["name"].as_str().unwrap_or(""), node["hidden"].as_bool().unwrap_or(false));
+    }
+    for edge in spec["edges"].as_array().cloned().unwrap_or_default() {
+        builder.add_edge(edge[0].as_str().unwrap_or(""), edge[1].as_str().unwrap_or(""));
+    }
+    builder.finish()
+}
+
+/// Answer one query.
+fn answer_query(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
+    let text = |key: &str| q[key].as_str().unwrap_or("").to_owned();
+    Ok(match q["kind"].as_str().unwrap_or("") {
+        "dsep" => json!({ "separated": graph.d_separated(&strings(&q["xs"]), &strings(&q["ys"]), &strings(&q["zs"]))? }),
+        "total" => json!(graph.total_effect(&text("exposure"), &text("outcome"))?),
+        "direct" => json!(graph.direct_effect(&text("exposure"), &text("outcome"))?),
+        "paths" => json!(graph.paths(&text("from"), &text("to"), &strings(&q["given"]))?),
+        "implications" => json!(graph.implications()),
+        other => json!({ "error": format!("unknown query kind `{other}`") }),
+    })
+}
+
+/// A JSON list of strings (missing or malformed entries dropped).
+fn strings(v: &Value) -> Vec<String> {
+    v.as_array().map(|a| a.iter().filter_map(|s| s.as_str().map(str::to_owned)).collect()).unwrap_or_default()
+}
