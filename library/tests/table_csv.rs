@@ -352,3 +352,12 @@ fn a_million_numeric_rows_load_in_well_under_two_seconds() {
     eprintln!("loaded {} of 1000000 rows in {elapsed:?}", table.nrows());
     assert!(elapsed.as_secs_f64() < 2.0, "took {elapsed:?}");
 }
+
+#[test]
+fn errors_serialise_with_their_place() {
+    let error = load("girth\n20\nthick\n", &["girth: real"]).unwrap_err();
+    let value = serde_json::to_value(&error).unwrap();
+    assert_eq!(value["error"], "bad_value");
+    assert_eq!((value["row"].as_u64(), value["column"].as_str()), (Some(3), Some("girth")));
+    assert_eq!(error.row(), Some(3));
+}

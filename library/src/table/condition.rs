@@ -203,9 +203,9 @@ struct Context<'a> {
 impl Context<'_> {
     fn mismatch(&self, problem: String) -> TableError {
         TableError::ConditionMismatch {
-            file: self.file.to_string(),
-            condition: self.condition.to_string(),
-            problem,
+            file: self.file.into(),
+            condition: self.condition.into(),
+            problem: problem.into(),
         }
     }
 }
@@ -220,9 +220,9 @@ fn compare(
     let Some(column) = table.column(name) else {
         let names = table.column_names();
         return Err(TableError::UnknownConditionColumn {
-            file: context.file.to_string(),
-            condition: context.condition.to_string(),
-            column: name.to_string(),
+            file: context.file.into(),
+            condition: context.condition.into(),
+            column: name.into(),
             near: near_matches(name, names.iter().copied()),
             columns: names.iter().map(|s| s.to_string()).collect(),
         });
@@ -250,10 +250,10 @@ fn compare(
             let wanted = value.text();
             let Some(code) = levels.iter().position(|l| l == wanted) else {
                 return Err(TableError::UnknownConditionLevel {
-                    file: context.file.to_string(),
-                    condition: context.condition.to_string(),
-                    column: name.to_string(),
-                    level: wanted.to_string(),
+                    file: context.file.into(),
+                    condition: context.condition.into(),
+                    column: name.into(),
+                    level: wanted.into(),
                     near: near_matches(wanted, levels.iter().map(String::as_str)),
                     levels: levels.clone(),
                 });

@@ -8,54 +8,61 @@
 use super::suggest::{join_words, perhaps, row_list};
 
 /// Why a table could not be declared, read, typed or filtered.
-#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+///
+/// Text fields are `Box<str>` to keep the error small, as every `?` in
+/// the library carries it.
+///
+/// It also serialises (`{"error": "bad_value", "file": …, "row": …}`) so the
+/// cells module can point at the place as well as print the sentence.
+#[derive(Debug, Clone, PartialEq, thiserror::Error, serde::Serialize)]
+#[serde(tag = "error", rename_all = "snake_case")]
 pub enum TableError {
     /// The file could not be opened or read.
     #[error("could not read {file}: {reason} (check the file name, and that the path is relative to the notebook)")]
-    Io { file: String, reason: String },
+    Io { file: Box<str>, reason: Box<str> },
 
     /// A row holds bytes that are not UTF-8 text.
     #[error("{file} row {row} is not valid UTF-8 text (save the file with UTF-8 encoding and load it again)")]
-    NotUtf8 { file: String, row: usize },
+    NotUtf8 { file: Box<str>, row: usize },
 
     /// Nothing at all in the file.
     #[error("{file} is empty (it needs a header row naming the columns, then one row per record)")]
-    EmptyFile { file: String },
+    EmptyFile { file: Box<str> },
 
     /// A header but no data rows.
     #[error("{file} has a header row but no data rows (add rows under the header, or check that the cell names the right file)")]
-    HeaderOnly { file: String },
+    HeaderOnly { file: Box<str> },
 
     /// A header cell without a name.
     #[error("{file} row 1, column {position}: the header cell is empty (give every column a name, or delete the empty column)")]
-    UnnamedColumn { file: String, position: usize },
+    UnnamedColumn { file: Box<str>, position: usize },
 
     /// Two header cells with the same name.
     #[error("{file} row 1: the column name \"{column}\" appears twice, as columns {first} and {second} (rename one so each column can be told apart)")]
-    DuplicateColumn { file: String, column: String, first: usize, second: usize },
+    DuplicateColumn { file: Box<str>, column: Box<str>, first: usize, second: usize },
 
     /// A data row with more or fewer fields than the header.
     #[error("{file} row {row} has {} but the header names {expected} columns ({})", plural(*.found, "field", "fields"), ragged_advice(*.found, *.expected))]
-    RaggedRow { file: String, row: usize, found: usize, expected: usize },
+    RaggedRow { file: Box<str>, row: usize, found: usize, expected: usize },
 
     /// A value that does not fit its column's kind.
     #[error("{file} row {row}, column {column}: \"{value}\" {problem} ({advice})")]
     BadValue {
-        file: String,
+        file: Box<str>,
         row: usize,
-        column: String,
-        value: String,
-        problem: String,
-        advice: String,
+        column: Box<str>,
+        value: Box<str>,
+        problem: Box<str>,
+        advice: Box<str>,
     },
 
     /// A category value outside the declared levels.
     #[error("{file} row {row}, column {column}: \"{value}\" is not one of the declared levels {} (fix the row{}, or add the level to the declaration)", join_words(levels, "and"), near_level(near))]
     UnknownLevel {
-        file: String,
+        file: Box<str>,
         row: usize,
-        column: String,
-        value: String,
+        column: Box<str>,
+        value: Box<str>,
         levels: Vec<String>,
         near: Vec<String>,
     },
@@ -63,38 +70,38 @@ pub enum TableError {
     /// Missing values (empty or `NA`) without `drop missing`.
     #[error("{file}, column {column}: {} missing ({}){}; add \"drop missing\" to the table cell to leave those rows out, or fill the values in", plural(*.count, "value is", "values are"), row_list(rows, *.count), other_missing(others))]
     Missing {
-        file: String,
-        column: String,
+        file: Box<str>,
+        column: Box<str>,
         count: usize,
         /// The first few rows (spreadsheet numbering) with a missing value.
         rows: Vec<usize>,
         /// Other columns with missing values and their counts.
-        others: Vec<(String, usize)>,
+        others: Vec<(Box<str>, usize)>,
     },
 
     /// The table cell declares a column the file does not have.
     #[error("{file} has no column \"{column}\", which the table cell declares ({}the file's columns are {})", perhaps(near), join_words(columns, "and"))]
     DeclaredColumnAbsent {
-        file: String,
-        column: String,
+        file: Box<str>,
+        column: Box<str>,
         near: Vec<String>,
         columns: Vec<String>,
     },
 
     /// The same column declared on two lines.
     #[error("column \"{column}\" is declared twice in the table cell (keep one declaration)")]
-    DuplicateDeclaration { column: String },
+    DuplicateDeclaration { column: Box<str> },
 
     /// A table-cell line that could not be read.
     #[error("table cell line \"{line}\": {problem}")]
-    RuleSyntax { line: String, problem: String },
+    RuleSyntax { line: Box<str>, problem: Box<str> },
 
     /// A `keep where` condition names a column the table lacks.
     #[error("{file}, keep where {condition}: there is no column \"{column}\" ({}the columns are {})", perhaps(near), join_words(columns, "and"))]
     UnknownConditionColumn {
-        file: String,
-        condition: String,
-        column: String,
+        file: Box<str>,
+        condition: Box<str>,
+        column: Box<str>,
         near: Vec<String>,
         columns: Vec<String>,
     },
@@ -102,35 +109,35 @@ pub enum TableError {
     /// A `keep where` condition names a level the category lacks.
     #[error("{file}, keep where {condition}: \"{level}\" is not a level of {column} ({}the levels are {})", perhaps(near), join_words(levels, "and"))]
     UnknownConditionLevel {
-        file: String,
-        condition: String,
-        column: String,
-        level: String,
+        file: Box<str>,
+        condition: Box<str>,
+        column: Box<str>,
+        level: Box<str>,
         near: Vec<String>,
         levels: Vec<String>,
     },
 
     /// A `keep where` comparison that does not suit the column's kind.
     #[error("{file}, keep where {condition}: {problem}")]
-    ConditionMismatch { file: String, condition: String, problem: String },
+    ConditionMismatch { file: Box<str>, condition: Box<str>, problem: Box<str> },
 
     /// `drop missing` or a filter left nothing.
     #[error("{file}: no rows are left after \"{step}\" (loosen the condition, or check the data)")]
-    NoRowsLeft { file: String, step: String },
+    NoRowsLeft { file: Box<str>, step: Box<str> },
 
     /// Columns of unequal length given to [`super::Table::from_columns`].
     #[error("table {table}: column {column} has {found} values but column {first} has {expected} (give every column the same number of rows)")]
     UnequalLengths {
-        table: String,
-        column: String,
+        table: Box<str>,
+        column: Box<str>,
         found: usize,
-        first: String,
+        first: Box<str>,
         expected: usize,
     },
 
     /// A column given to [`super::Table::from_columns`] that cannot be used.
     #[error("table {table}, column {column}: {problem}")]
-    InvalidColumn { table: String, column: String, problem: String },
+    InvalidColumn { table: Box<str>, column: Box<str>, problem: Box<str> },
 }
 
 impl TableError {
@@ -162,7 +169,7 @@ fn near_level(near: &[String]) -> String {
     }
 }
 
-fn other_missing(others: &[(String, usize)]) -> String {
+fn other_missing(others: &[(Box<str>, usize)]) -> String {
     if others.is_empty() {
         return String::new();
     }

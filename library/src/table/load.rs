@@ -4,8 +4,10 @@
 //! 1. read the raw text of every field (the `csv` crate: RFC 4180 quoting,
 //!    CRLF or LF line ends, a UTF-8 byte-order mark skipped), checking the
 //!    header and that every row has as many fields as the header;
-//! 2. type each column as declared, or infer its kind
-//!    ([`super::values::infer_kind`]);
+//! 2. type each column as declared, or infer its kind from its non-missing
+//!    fields: all binary words or 0/1 → binary; all whole numbers ≥ 0 →
+//!    count; more than half numbers → real (the rest are reported as
+//!    errors); otherwise category with levels in order of first appearance;
 //! 3. apply the missing-value policy (error, or `drop missing`);
 //! 4. apply the `keep where` filters in the order written.
 //!
@@ -72,7 +74,7 @@ fn io_error(file: &str, error: &io::Error) -> TableError {
         io::ErrorKind::PermissionDenied => "permission was denied".to_string(),
         _ => error.to_string(),
     };
-    TableError::Io { file: file.to_string(), reason }
+    TableError::Io { file: file.into(), reason: reason.into() }
 }
 
 /// Maps a `csv` reader error; `row` is the row being read, used when the
@@ -81,10 +83,10 @@ fn csv_error(file: &str, error: csv::Error, row: usize) -> TableError {
     match error.kind() {
         csv::ErrorKind::Io(e) => io_error(file, e),
         csv::ErrorKind::Utf8 { pos, .. } => TableError::NotUtf8 {
-            file: file.to_string(),
+            file: file.into(),
             row: pos.as_ref().map_or(row, |p| p.record() as usize + 1),
         },
-        _ => TableError::Io { file: file.to_string(), reason: error.to_string() },
+        _ => TableError::Io { file: file.into(), reason: error.to_string().into() },
     }
 }
 
@@ -138,7 +140,7 @@ impl RawTable {
             let row = rows + 2;
             if record.len() != headers.len() {
                 return Err(TableError::RaggedRow {
-                    file: file.to_string(),
+                    file: file.into(),
                     row,
                     found: record.len(),
                     expected: headers.len(),
@@ -157,23 +159,23 @@ impl RawTable {
 /// An empty file, a header without rows, unnamed or repeated column names.
 fn check_header(file: &str, headers: &[String], has_row: bool) -> Result<(), TableError> {
     if headers.iter().all(String::is_empty) && !has_row {
-        return Err(TableError::EmptyFile { file: file.to_string() });
+        return Err(TableError::EmptyFile { file: file.into() });
     }
     if let Some(position) = headers.iter().position(String::is_empty) {
-        return Err(TableError::UnnamedColumn { file: file.to_string(), position: position + 1 });
+        return Err(TableError::UnnamedColumn { file: file.into(), position: position + 1 });
     }
     for (second, name) in headers.iter().enumerate() {
         if let Some(first) = headers[..second].iter().position(|h| h == name) {
             return Err(TableError::DuplicateColumn {
-                file: file.to_string(),
-                column: name.clone(),
+                file: file.into(),
+                column: name.as_str().into(),
                 first: first + 1,
                 second: second + 1,
             });
         }
     }
     if !has_row {
-        return Err(TableError::HeaderOnly { file: file.to_string() });
+        return Err(TableError::HeaderOnly { file: file.into() });
     }
     Ok(())
 }
@@ -182,12 +184,12 @@ fn check_header(file: &str, headers: &[String], has_row: bool) -> Result<(), Tab
 fn check_declarations(spec: &TableSpec, file: &str, headers: &[String]) -> Result<(), TableError> {
     for (i, decl) in spec.declared.iter().enumerate() {
         if spec.declared[..i].iter().any(|d| d.name == decl.name) {
-            return Err(TableError::DuplicateDeclaration { column: decl.name.clone() });
+            return Err(TableError::DuplicateDeclaration { column: decl.name.as_str().into() });
         }
         if !headers.contains(&decl.name) {
             return Err(TableError::DeclaredColumnAbsent {
-                file: file.to_string(),
-                column: decl.name.clone(),
+                file: file.into(),
+                column: decl.name.as_str().into(),
                 near: near_matches(&decl.name, headers.iter().map(String::as_str)),
                 columns: headers.to_vec(),
             });
@@ -235,12 +237,12 @@ struct Place<'a> {
 impl Place<'_> {
     fn bad_value(&self, index: usize, field: &str, problem: ValueProblem) -> TableError {
         TableError::BadValue {
-            file: self.file.to_string(),
+            file: self.file.into(),
             row: index + 2,
-            column: self.column.to_string(),
-            value: field.to_string(),
-            problem: problem.problem,
-            advice: problem.advice,
+            column: self.column.into(),
+            value: field.into(),
+            problem: problem.problem.into(),
+            advice: problem.advice.into(),
         }
     }
 }
@@ -327,10 +329,10 @@ fn read_declared_levels(
             codes.push(code);
         } else {
             return Err(TableError::UnknownLevel {
-                file: place.file.to_string(),
+                file: place.file.into(),
                 row: i + 2,
-                column: place.column.to_string(),
-                value: field.to_string(),
+                column: place.column.into(),
+                value: field.into(),
                 near: near_matches(field, levels.iter().map(String::as_str)),
                 levels: levels.to_vec(),
             });
@@ -369,11 +371,11 @@ fn apply_missing_policy(
     let mut with_missing = typed.iter().filter(|t| !t.missing.is_empty());
     if let (false, Some(first)) = (spec.drop_missing, with_missing.next()) {
         return Err(TableError::Missing {
-            file: file.to_string(),
-            column: first.column.name.clone(),
+            file: file.into(),
+            column: first.column.name.as_str().into(),
             count: first.missing.len(),
             rows: first.missing.iter().take(ROWS_SHOWN).map(|i| i + 2).collect(),
-            others: with_missing.map(|t| (t.column.name.clone(), t.missing.len())).collect(),
+            others: with_missing.map(|t| (t.column.name.as_str().into(), t.missing.len())).collect(),
         });
     }
     let mut complete = vec![true; rows_read];
@@ -382,7 +384,7 @@ fn apply_missing_policy(
     }
     let dropped_missing = complete.iter().filter(|keep| !**keep).count();
     if dropped_missing == rows_read {
-        return Err(TableError::NoRowsLeft { file: file.to_string(), step: "drop missing".into() });
+        return Err(TableError::NoRowsLeft { file: file.into(), step: "drop missing".into() });
     }
     let report = LoadReport {
         source: file.to_string(),
@@ -417,8 +419,8 @@ fn apply_filters(
         let kept = mask.iter().filter(|keep| **keep).count();
         if kept == 0 {
             return Err(TableError::NoRowsLeft {
-                file: file.to_string(),
-                step: format!("keep where {condition}"),
+                file: file.into(),
+                step: format!("keep where {condition}").into(),
             });
         }
         if kept < rows_before {

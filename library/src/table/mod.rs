@@ -18,10 +18,6 @@
 //!
 //! Parsing and loading never render; the cells module does.
 
-// Errors are the cold path and carry the facts a message names (file, row,
-// column, value, levels); boxing them would only add noise at every `?`.
-#![allow(clippy::result_large_err)]
-
 pub mod condition;
 pub mod error;
 pub mod load;
@@ -142,14 +138,14 @@ impl ColumnData {
     fn invalid_value(&self) -> Option<String> {
         match self {
             ColumnData::Real(v) => v.iter().position(|x| !x.is_finite()).map(|i| {
-                format!("value {} (row {}) is not a finite number; replace it or leave the row out", v[i], i + 1)
+                format!("value number {} is {}, not a finite number; replace it or leave that row out", i + 1, v[i])
             }),
             ColumnData::Category { codes, levels } => {
                 codes.iter().position(|&c| c as usize >= levels.len()).map(|i| {
                     format!(
-                        "code {} (row {}) has no level, as only {} levels are named; name every level",
-                        codes[i],
+                        "value number {} has code {}, but only {} levels are named; name every level",
                         i + 1,
+                        codes[i],
                         levels.len()
                     )
                 })
@@ -236,13 +232,17 @@ impl Table {
     pub fn from_columns(name: impl Into<String>, columns: Vec<Column>) -> Result<Table, TableError> {
         let table = name.into();
         let invalid = |column: &Column, problem: String| TableError::InvalidColumn {
-            table: table.clone(),
-            column: column.name.clone(),
-            problem,
+            table: table.as_str().into(),
+            column: column.name.as_str().into(),
+            problem: problem.into(),
         };
         for (i, column) in columns.iter().enumerate() {
             if column.name.trim().is_empty() {
-                return Err(invalid(column, format!("column {} has no name; name every column", i + 1)));
+                return Err(TableError::InvalidColumn {
+                    table: table.as_str().into(),
+                    column: (i + 1).to_string().into(),
+                    problem: "the column has no name; name every column".into(),
+                });
             }
             if columns[..i].iter().any(|c| c.name == column.name) {
                 return Err(invalid(column, "the name is used twice; give each column its own name".into()));
@@ -250,10 +250,10 @@ impl Table {
             let first = &columns[0];
             if column.data.len() != first.data.len() {
                 return Err(TableError::UnequalLengths {
-                    table,
-                    column: column.name.clone(),
+                    table: table.as_str().into(),
+                    column: column.name.as_str().into(),
                     found: column.data.len(),
-                    first: first.name.clone(),
+                    first: first.name.as_str().into(),
                     expected: first.data.len(),
                 });
             }

@@ -88,7 +88,7 @@ impl TableSpec {
         match rule {
             TableRule::Declare(decl) => {
                 if self.declaration(&decl.name).is_some() {
-                    return Err(TableError::DuplicateDeclaration { column: decl.name });
+                    return Err(TableError::DuplicateDeclaration { column: decl.name.into() });
                 }
                 self.declared.push(decl);
             }
@@ -113,7 +113,7 @@ impl TableSpec {
 /// ```
 pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
     let line = text.trim();
-    let fail = |problem: String| TableError::RuleSyntax { line: line.to_string(), problem };
+    let fail = |problem: String| TableError::RuleSyntax { line: line.into(), problem: problem.into() };
     let words: Vec<&str> = line.split_whitespace().collect();
     match words.as_slice() {
         ["drop", "missing"] => return Ok(TableRule::DropMissing),

@@ -56,7 +56,7 @@ fn describe(table: &Table, report: &LoadReport) -> Display {
             column.name.clone(),
             column.data.kind().name().to_string(),
             column.unit.clone().unwrap_or_default(),
-            column.data.levels().map(|l| l.join(", ")).unwrap_or_default(),
+            column.data.levels().map(level_list).unwrap_or_default(),
             col_report.map_or(0, |c| c.missing).to_string(),
             if col_report.is_some_and(|c| c.inferred) { "inferred" } else { "declared" }.to_string(),
         ]);
@@ -71,6 +71,16 @@ fn describe(table: &Table, report: &LoadReport) -> Display {
         html: Some(html_block(&heading, &[grid.to_html(), html_list(&notes)])),
         svg: None,
         json: Some(summary_json(table, report)),
+    }
+}
+
+/// Level labels in order; long lists show the first few and the count.
+fn level_list(levels: &[String]) -> String {
+    const SHOWN: usize = 6;
+    if levels.len() <= SHOWN {
+        levels.join(", ")
+    } else {
+        format!("{}, … ({} levels)", levels[..SHOWN].join(", "), levels.len())
     }
 }
 
