@@ -1,11 +1,14 @@
 //! `waypath`: the command-line entry point.
 //!
 //! `waypath run NOTEBOOK.ipynb` executes a notebook headless, writing the
-//! executed notebook and a self-contained HTML report.
+//! executed notebook and a self-contained HTML report. `waypath install`
+//! registers the Jupyter kernel; `waypath kernel` is what Jupyter starts.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use waypath_kernel::install::{install, this_program, InstallPlace};
+use waypath_kernel::kernel::run_kernel;
 use waypath_kernel::notebook::{run_notebook, RunOptions};
 
 const HELP: &str = "\
@@ -19,14 +22,28 @@ usage:
       Paths inside cells are read relative to the notebook's folder.
       The first failing cell stops the run and the exit code is 1, unless
       --keep-going is given (failing cells are then recorded and skipped past).
+  waypath install [--user | --sys-prefix | --prefix PATH]
+      Register the Waypath kernel with Jupyter (kernel.json and logos), pointing
+      at this program. --user (the default) writes to your Jupyter data folder,
+      --sys-prefix to the active Python environment, --prefix under
+      PATH/share/jupyter/kernels. Then pick Waypath in Jupyter.
+  waypath kernel --connection-file FILE
+      Run the Jupyter kernel (Jupyter starts this itself; FILE is the
+      connection file it writes). Cells starting with a %%rust line are
+      compiled and run as Rust with the waypath library available.
   waypath --help
       This text.
 ";
 
 fn main() -> ExitCode {
+    // A Rust cell's child process is this same program; this call turns it
+    // into that child and never returns there.
+    evcxr::runtime_hook();
     let args: Vec<String> = std::env::args().skip(1).collect();
     match args.first().map(String::as_str) {
         Some("run") => run_command(&args[1..]),
+        Some("install") => install_command(&args[1..]),
+        Some("kernel") => kernel_command(&args[1..]),
         None | Some("--help") | Some("-h") | Some("help") => {
             print!("{HELP}");
             ExitCode::SUCCESS
@@ -81,4 +98,44 @@ fn parse_run_args(args: &[String]) -> Result<RunOptions, String> {
     let input = input.ok_or("name the notebook to run")?;
     let out = out.unwrap_or_else(|| input.with_extension("executed.ipynb"));
     Ok(RunOptions { input, out, html, keep_going })
+}
+
+fn install_command(args: &[String]) -> ExitCode {
+    let place = match args {
+        [] => InstallPlace::User,
+        [flag] if flag == "--user" => InstallPlace::User,
+        [flag] if flag == "--sys-prefix" => InstallPlace::SysPrefix,
+        [flag, path] if flag == "--prefix" => InstallPlace::Prefix(path.into()),
+        _ => {
+            eprintln!("waypath install: expected one of --user, --sys-prefix, --prefix PATH\n\n{HELP}");
+            return ExitCode::from(2);
+        }
+    };
+    match this_program().and_then(|program| install(&place, &program)) {
+        Ok(dir) => {
+            eprintln!("installed the Waypath kernel in {}", dir.display());
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("waypath install: {e}");
+            ExitCode::from(1)
+        }
+    }
+}
+
+fn kernel_command(args: &[String]) -> ExitCode {
+    let file = match args {
+        [flag, file] if flag == "--connection-file" => file,
+        _ => {
+            eprintln!("waypath kernel: expected --connection-file FILE\n\n{HELP}");
+            return ExitCode::from(2);
+        }
+    };
+    match run_kernel(std::path::Path::new(file)) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("waypath kernel: {e}");
+            ExitCode::from(1)
+        }
+    }
 }

@@ -1,0 +1,250 @@
+//! The execution thread: it owns the [`Session`], the Rust cells and the
+//! history, and answers every shell request that reads or changes them.
+//!
+//! Cells run here, off the async runtime, so the control channel and the
+//! heartbeat stay responsive during a long fit. Outputs are broadcast on
+//! IOPub as they come through a channel that the IOPub task drains in order.
+
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{mpsc, Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use serde_json::{json, Value};
+use tokio::sync::{mpsc::UnboundedSender, oneshot};
+use waypath::cells::{CellError, CellOutcome, RunControl, Session};
+
+use super::language::{self, HistoryEntry};
+use crate::notebook::outputs_of;
+use crate::protocol::{Identity, Message};
+use crate::rust_cells::{rust_source, RustCells, RustInterrupt, StreamName};
+
+/// Shortest time between two progress updates of a running cell.
+const PROGRESS_EVERY: Duration = Duration::from_millis(250);
+
+/// A shell request and where its reply goes.
+pub struct Job {
+    pub request: Message,
+    pub reply: oneshot::Sender<Message>,
+}
+
+/// Broadcasts IOPub messages caused by one parent request.
+#[derive(Clone)]
+pub struct Publisher {
+    pub identity: Arc<Identity>,
+    pub iopub: UnboundedSender<Message>,
+}
+
+impl Publisher {
+    pub fn publish(&self, parent: &Value, msg_type: &str, content: Value) {
+        let _ = self.iopub.send(self.identity.broadcast(parent, msg_type, content));
+    }
+
+    pub fn status(&self, parent: &Value, state: &str) {
+        self.publish(parent, "status", json!({"execution_state": state}));
+    }
+
+    fn stream(&self, parent: &Value, name: StreamName, text: &str) {
+        self.publish(parent, "stream", json!({"name": name.as_str(), "text": text}));
+    }
+}
+
+/// What the async side needs to stop a running cell.
+#[derive(Clone, Default)]
+pub struct Interrupter {
+    pub cancel: Arc<AtomicBool>,
+    pub rust: Arc<Mutex<Option<RustInterrupt>>>,
+}
+
+impl Interrupter {
+    /// Ask the running cell to stop: a declarative cell sees the cancel
+    /// flag; a Rust cell's process is ended.
+    pub fn interrupt(&self) {
+        self.cancel.store(true, Ordering::SeqCst);
+        if let Some(rust) = self.rust.lock().unwrap_or_else(|p| p.into_inner()).as_ref() {
+            rust.interrupt();
+        }
+    }
+}
+
+/// The state the execution thread owns.
+struct Worker {
+    session: Session,
+    rust: RustCells,
+    execution_count: u64,
+    history: Vec<HistoryEntry>,
+    publisher: Publisher,
+    interrupter: Interrupter,
+}
+
+/// Start the execution thread; it ends when the job sender is dropped.
+pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -> mpsc::Sender<Job> {
+    let (jobs, inbox) = mpsc::channel::<Job>();
+    std::thread::Builder::new()
+        .name("waypath-cells".into())
+        .spawn(move || {
+            let rust = RustCells::new();
+            *interrupter.rust.lock().unwrap_or_else(|p| p.into_inner()) = Some(rust.interrupter());
+            let mut worker = Worker { session, rust, execution_count: 0, history: Vec::new(), publisher, interrupter };
+            for job in inbox {
+                let reply = worker.answer(&job.request);
+                let _ = job.reply.send(reply);
+            }
+        })
+        .expect("the operating system can start a thread");
+    jobs
+}
+
+impl Worker {
+    fn answer(&mut self, request: &Message) -> Message {
+        let identity = self.publisher.identity.clone();
+        let content = &request.content;
+        let cursor = content["cursor_pos"].as_u64().unwrap_or(0) as usize;
+        let code = content["code"].as_str().unwrap_or("");
+        match request.msg_type() {
+            "execute_request" => self.execute(request),
+            "complete_request" => {
+                identity.reply(request, "complete_reply", language::complete(&self.session, code, cursor))
+            }
+            "inspect_request" => {
+                identity.reply(request, "inspect_reply", language::inspect(&self.session, code, cursor))
+            }
+            "is_complete_request" => identity.reply(request, "is_complete_reply", language::is_complete(code)),
+            "history_request" => identity.reply(request, "history_reply", language::history(&self.history, content)),
+            other => identity.reply(
+                request,
+                &other.replace("_request", "_reply"),
+                json!({"status": "error", "ename": "UnknownRequest", "evalue": format!("{other} is not handled"), "traceback": []}),
+            ),
+        }
+    }
+
+    fn execute(&mut self, request: &Message) -> Message {
+        let content = &request.content;
+        let code = content["code"].as_str().unwrap_or("").to_string();
+        let silent = content["silent"].as_bool().unwrap_or(false);
+        let store_history = !silent && content["store_history"].as_bool().unwrap_or(true);
+        if store_history {
+            self.execution_count += 1;
+        }
+        let count = self.execution_count;
+        let parent = request.header.clone();
+        if !silent {
+            self.publisher.publish(&parent, "execute_input", json!({"code": code, "execution_count": count}));
+        }
+        self.interrupter.cancel.store(false, Ordering::SeqCst);
+        let outcome = self.run_guarded(&code, &parent, silent);
+        let outputs = outputs_of(&outcome, count as usize, count);
+        let mut result_text = None;
+        if !silent {
+            for output in &outputs {
+                if output["output_type"] == "execute_result" {
+                    result_text = output["data"]["text/plain"].as_str().map(str::to_string);
+                }
+                self.broadcast_output(&parent, output);
+            }
+        }
+        if store_history {
+            self.history.push(HistoryEntry { line: count, input: code, output: result_text });
+        }
+        let identity = &self.publisher.identity;
+        match outputs.iter().find(|o| o["output_type"] == "error") {
+            Some(error) => identity.reply(
+                request,
+                "execute_reply",
+                json!({"status": "error", "execution_count": count, "ename": error["ename"],
+                       "evalue": error["evalue"], "traceback": error["traceback"]}),
+            ),
+            None => identity.reply(
+                request,
+                "execute_reply",
+                json!({"status": "ok", "execution_count": count, "payload": [], "user_expressions": {}}),
+            ),
+        }
+    }
+
+    /// Run a cell; a panic anywhere inside becomes the cell's error.
+    fn run_guarded(&mut self, code: &str, parent: &Value, silent: bool) -> CellOutcome {
+        let publisher = self.publisher.clone();
+        let sink = move |name: StreamName, text: &str| {
+            if !silent {
+                publisher.stream(parent, name, text);
+            }
+        };
+        let progress = Progress::new(&self.publisher, parent, silent);
+        let cancel = self.interrupter.cancel.clone();
+        let outcome = catch_unwind(AssertUnwindSafe(|| match rust_source(code) {
+            Some(rust) => self.rust.run(rust, &mut self.session, &sink),
+            None => {
+                let report = |line: &str| progress.report(line);
+                let control = RunControl { cancel: &*cancel, progress: &report };
+                self.session.run_cell(code, &control)
+            }
+        }));
+        progress.finish();
+        outcome.unwrap_or_else(|panic| {
+            let what = panic
+                .downcast_ref::<String>()
+                .cloned()
+                .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
+                .unwrap_or_else(|| "an internal error".into());
+            CellOutcome {
+                error: Some(CellError {
+                    line: None,
+                    message: format!("the cell stopped on an internal error ({what}); the session is kept, please report this cell"),
+                }),
+                ..CellOutcome::default()
+            }
+        })
+    }
+
+    /// One nbformat output as the matching IOPub message.
+    fn broadcast_output(&self, parent: &Value, output: &Value) {
+        let kind = output["output_type"].as_str().unwrap_or("");
+        let mut content = output.clone();
+        if let Some(fields) = content.as_object_mut() {
+            fields.remove("output_type");
+            if kind == "display_data" {
+                fields.insert("transient".into(), json!({}));
+            }
+        }
+        self.publisher.publish(parent, kind, content);
+    }
+}
+
+/// Progress of a long statement as one updating stream line (`\r`),
+/// throttled; the last state is written with a newline at the end.
+struct Progress<'a> {
+    publisher: &'a Publisher,
+    parent: &'a Value,
+    silent: bool,
+    state: Mutex<(Option<Instant>, Option<String>)>,
+}
+
+impl<'a> Progress<'a> {
+    fn new(publisher: &'a Publisher, parent: &'a Value, silent: bool) -> Progress<'a> {
+        Progress { publisher, parent, silent, state: Mutex::new((None, None)) }
+    }
+
+    fn report(&self, line: &str) {
+        if self.silent {
+            return;
+        }
+        let mut state = self.state.lock().unwrap_or_else(|p| p.into_inner());
+        let due = state.0.is_none_or(|last| last.elapsed() >= PROGRESS_EVERY);
+        if due {
+            self.publisher.stream(self.parent, StreamName::Stderr, &format!("\r{line}"));
+            *state = (Some(Instant::now()), None);
+        } else {
+            state.1 = Some(line.to_string());
+        }
+    }
+
+    fn finish(&self) {
+        let state = self.state.lock().unwrap_or_else(|p| p.into_inner());
+        if state.0.is_some() {
+            let last = state.1.as_deref().map(|l| format!("\r{l}")).unwrap_or_default();
+            self.publisher.stream(self.parent, StreamName::Stderr, &format!("{last}\n"));
+        }
+    }
+}
