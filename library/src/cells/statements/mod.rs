@@ -1,14 +1,16 @@
 //! One function per statement family; [`run`] dispatches on the first word.
 
-mod data;
 mod causal;
+mod data;
+mod fitting;
 
 use super::output::{CellError, Display};
 use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
 
 /// The first words that start a statement, for error messages and completion.
-pub const KEYWORDS: &[&str] = &["table", "graph", "ask", "paths", "implications"];
+pub const KEYWORDS: &[&str] =
+    &["table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot"];
 
 /// Run one statement against the session.
 pub(crate) fn run(
@@ -17,7 +19,6 @@ pub(crate) fn run(
     control: &RunControl,
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
-    let _ = control;
     let head = st.head();
     let first = head.split_whitespace().next().unwrap_or("");
     if !st.expects_body() && matches!(first, "table" | "graph") && head.contains(':') {
@@ -29,6 +30,11 @@ pub(crate) fn run(
         "ask" => causal::ask(session, st),
         "paths" => causal::paths(session, st),
         "implications" => causal::implications(session, st),
+        "model" => fitting::model(session, st),
+        "fit" => fitting::fit(session, st, control, warnings),
+        "show" => fitting::show(session, st),
+        "export" => fitting::export(session, st),
+        "plot" => fitting::plot(session, st),
         other => Err(unknown_statement(other, st.header.number)),
     }
 }
