@@ -5,14 +5,11 @@
 
 use serde_json::{json, Value};
 use waypath::cells::parse::{is_incomplete, split_statements};
+use waypath::cells::statements::KEYWORDS;
 use waypath::cells::Session;
 use waypath::table::Table;
 
 use crate::rust_cells::{rust_source, RUST_MAGIC};
-
-/// The first words of statements. Mirrors `waypath::cells` statement
-/// dispatch until that module re-exports its keyword list.
-const STATEMENT_WORDS: &[&str] = &["table", "graph", "ask", "paths", "implications"];
 
 /// Indentation suggested for the next line of an open body.
 const BODY_INDENT: &str = "    ";
@@ -75,7 +72,7 @@ pub fn complete(session: &Session, code: &str, cursor_pos: usize) -> Value {
     let line_start = before.rsplit('\n').next().unwrap_or("");
     let at_statement_start = line_start.len() == word.len();
     let mut candidates: Vec<String> = if at_statement_start {
-        STATEMENT_WORDS.iter().map(|w| w.to_string()).chain([RUST_MAGIC.to_string()]).collect()
+        KEYWORDS.iter().map(|w| w.to_string()).chain([RUST_MAGIC.to_string()]).collect()
     } else {
         session_words(session)
     };
@@ -163,6 +160,9 @@ fn describe(session: &Session, word: &str) -> Option<String> {
         }
         return Some(text);
     }
+    if let Some(model) = session.names().iter().find(|(n, k)| n == word && *k == "model") {
+        return Some(describe_model(session, &model.0));
+    }
     for (name, kind) in session.names() {
         if kind != "table" {
             continue;
@@ -171,7 +171,23 @@ fn describe(session: &Session, word: &str) -> Option<String> {
             return Some(format!("column {word} of table {name}: {}", column.describe_kind()));
         }
     }
-    STATEMENT_WORDS.contains(&word).then(|| format!("{word}: a statement; run a cell starting with \"{word}\" to use it"))
+    KEYWORDS.contains(&word).then(|| format!("{word}: a statement; run a cell starting with \"{word}\" to use it"))
+}
+
+fn describe_model(session: &Session, name: &str) -> String {
+    match session.fit(name) {
+        Some(fit) => {
+            let draws = &fit.draws;
+            format!(
+                "model {name}: fitted, {} chains × {} draws of {} parameters\n    {}\n",
+                draws.chains,
+                draws.per_chain,
+                draws.names.len(),
+                draws.names.join(", ")
+            )
+        }
+        None => format!("model {name}: not fitted yet; run `fit {name}`\n"),
+    }
 }
 
 fn describe_table(table: &Table) -> String {

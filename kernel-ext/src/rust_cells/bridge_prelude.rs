@@ -10,8 +10,9 @@
 //! goes through the library's CSV loader with those declarations, so kinds,
 //! level order and units come back exactly. Before a cell the kernel writes
 //! the session's tables to `tables/`; a cell's `wp_publish` writes to
-//! `published/`, which the kernel reads back after the cell. Fit draws will
-//! travel the same way as `draws/FIT.csv` (one column per parameter label).
+//! `published/`, which the kernel reads back after the cell. The draws of
+//! each fitted model are in `draws/MODEL.csv` (columns `chain`, `draw`, then
+//! one per parameter label), read with [`wp_draws`].
 
 use std::path::{Path, PathBuf};
 
@@ -28,6 +29,20 @@ pub fn wp_table(name: &str) -> Table {
     match wp_read_table(&wp_exchange().join("tables"), name) {
         Ok(table) => table,
         Err(message) => panic!("{message}"),
+    }
+}
+
+/// The posterior draws of fitted model `model` as a table: columns `chain`,
+/// `draw` and one per parameter label (e.g. `.column("slope[girth]")`).
+pub fn wp_draws(model: &str) -> Table {
+    let path = wp_exchange().join("draws").join(format!("{model}.csv"));
+    let file = match std::fs::File::open(&path) {
+        Ok(file) => file,
+        Err(_) => panic!("model {model} has no draws in the session; run `fit {model}` in a cell above first"),
+    };
+    match Table::from_csv_reader(&TableSpec::new(model, &path), model, file) {
+        Ok((table, _)) => table,
+        Err(e) => panic!("draws of {model}: {e}"),
     }
 }
 

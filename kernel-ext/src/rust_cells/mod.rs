@@ -134,54 +134,108 @@ impl RustCells {
             return outcome;
         }
         self.interrupt.running.store(true, Ordering::SeqCst);
-        let result = eval_streaming(context, code, sink);
+        let (result, panic) = eval_streaming(context, code, sink);
         self.interrupt.running.store(false, Ordering::SeqCst);
-        match result {
-            Ok(outputs) => {
-                if let Some(display) = display_of(&outputs) {
-                    outcome.displays.push(display);
-                }
+        match (result, panic) {
+            (Err(error), _) => outcome.error = Some(describe_error(error, code)),
+            (Ok(_), Some(message)) => {
+                outcome.error = Some(CellError {
+                    line: None,
+                    message: format!(
+                        "the Rust cell panicked: {message}; variables it defined are dropped, earlier ones are kept"
+                    ),
+                })
             }
-            Err(error) => outcome.error = Some(describe_error(error, code)),
+            (Ok(outputs), None) => outcome.displays.extend(display_of(&outputs)),
         }
         import_published(session, &context.exchange, &mut outcome);
         outcome
     }
 }
 
-/// Run one evaluation while a scoped thread forwards printed lines.
+/// Run one evaluation while a scoped thread forwards printed lines; also
+/// returns the message of a panic in the cell (evcxr reports a panic only
+/// on the child's stderr).
 fn eval_streaming(
     context: &mut Context,
     code: &str,
     sink: &(dyn Fn(StreamName, &str) + Sync),
-) -> Result<evcxr::EvalOutputs, evcxr::Error> {
+) -> (Result<evcxr::EvalOutputs, evcxr::Error>, Option<String>) {
     let done = AtomicBool::new(false);
     let stdout = context.outputs.stdout.clone();
     let stderr = context.outputs.stderr.clone();
     std::thread::scope(|scope| {
-        scope.spawn(|| forward_lines(&stdout, &stderr, &done, sink));
+        let forwarder = scope.spawn(|| forward_lines(&stdout, &stderr, &done, sink));
         let result = context.commands.execute(code);
         done.store(true, Ordering::SeqCst);
-        result
+        let panic = forwarder.join().unwrap_or(None);
+        (result, panic)
     })
 }
 
-/// Pass lines to `sink` until `done`, then drain what is left.
+/// Pass lines to `sink` until `done`, then drain what is left. A panic
+/// report is taken out of stderr and returned as its message.
 fn forward_lines(
     stdout: &crossbeam_channel::Receiver<String>,
     stderr: &crossbeam_channel::Receiver<String>,
     done: &AtomicBool,
     sink: &(dyn Fn(StreamName, &str) + Sync),
-) {
+) -> Option<String> {
     let tick = Duration::from_millis(20);
+    let mut panic = PanicReport::default();
     let mut idle_after_done = false;
     while !idle_after_done {
         let finished = done.load(Ordering::SeqCst);
         crossbeam_channel::select! {
             recv(stdout) -> line => if let Ok(line) = line { sink(StreamName::Stdout, &format!("{line}\n")) },
-            recv(stderr) -> line => if let Ok(line) = line { sink(StreamName::Stderr, &format!("{line}\n")) },
+            recv(stderr) -> line => if let Ok(line) = line {
+                if !panic.absorb(&line) {
+                    sink(StreamName::Stderr, &format!("{line}\n"))
+                }
+            },
             default(tick) => idle_after_done = finished,
         }
+    }
+    panic.message
+}
+
+/// Recognises the standard panic report on stderr: `thread '…' panicked
+/// at …`, the message lines, an optional `stack backtrace:` block, and a
+/// closing `note:` line.
+#[derive(Default)]
+struct PanicReport {
+    message: Option<String>,
+    in_message: bool,
+    in_backtrace: bool,
+}
+
+impl PanicReport {
+    /// Whether `line` belongs to a panic report (and so is not shown).
+    fn absorb(&mut self, line: &str) -> bool {
+        if line.starts_with("thread '") && line.contains(" panicked at ") {
+            self.message = Some(String::new());
+            self.in_message = true;
+            return true;
+        }
+        if self.in_message {
+            if line == "stack backtrace:" {
+                self.in_message = false;
+                self.in_backtrace = true;
+            } else if line.starts_with("note: ") {
+                self.in_message = false;
+            } else if let Some(message) = self.message.as_mut() {
+                if !message.is_empty() {
+                    message.push(' ');
+                }
+                message.push_str(line.trim());
+            }
+            return true;
+        }
+        if self.in_backtrace {
+            self.in_backtrace = !line.starts_with("note: ");
+            return true;
+        }
+        false
     }
 }
 
@@ -197,13 +251,9 @@ fn display_of(outputs: &evcxr::EvalOutputs) -> Option<Display> {
 fn describe_error(error: evcxr::Error, code: &str) -> CellError {
     match error {
         evcxr::Error::CompilationErrors(errors) => {
-            let first_line = errors
-                .iter()
-                .filter_map(|e| e.primary_spanned_message().and_then(|m| m.span))
-                .map(|s| s.start_line)
-                .next();
             let text: Vec<String> = errors.iter().map(|e| compile_error_text(e, code)).collect();
-            CellError { line: first_line.map(|l| l + 1), message: text.join("\n") }
+            // Each message names its own cell line and column.
+            CellError { line: None, message: text.join("\n") }
         }
         evcxr::Error::SubprocessTerminated(why) if why.contains("signal: 9") || why.contains("SIGKILL") => {
             CellError {
@@ -243,6 +293,9 @@ fn start_context() -> Result<Context, String> {
     let exe = std::env::current_exe().map_err(|e| format!("cannot find the waypath program: {e}"))?;
     let mut child = Command::new(exe);
     child.env("WAYPATH_EXCHANGE", &exchange);
+    if let Some(dir) = rust_std_dir() {
+        child.env("LD_LIBRARY_PATH", with_search_dir(&dir));
+    }
     let (eval, outputs) = EvalContext::with_subprocess_command(child)
         .map_err(|e| format!("the Rust context did not start: {e}"))?;
     let mut commands = CommandContext::with_eval_context(eval);
@@ -251,6 +304,24 @@ fn start_context() -> Result<Context, String> {
     commands.execute(&setup).map_err(|e| format!("the Rust context cannot use the waypath library at {}: {e}", library.display()))?;
     commands.execute(&prelude_source()).map_err(|e| format!("the Rust cell bridge did not compile: {e}"))?;
     Ok(Context { commands, outputs, exchange, _slot_lock: lock })
+}
+
+/// The folder of the toolchain's shared `libstd`, which compiled cells link
+/// to. The run path cargo writes into a cell's library is relative to the
+/// build folder's depth and misses it under a deep persistent folder, so
+/// the child process gets it on its library search path instead.
+fn rust_std_dir() -> Option<String> {
+    let out = Command::new("rustc").args(["--print", "target-libdir"]).output().ok()?;
+    let dir = String::from_utf8(out.stdout).ok()?.trim().to_string();
+    (out.status.success() && !dir.is_empty()).then_some(dir)
+}
+
+/// `dir` in front of any existing `LD_LIBRARY_PATH`.
+fn with_search_dir(dir: &str) -> String {
+    match std::env::var("LD_LIBRARY_PATH") {
+        Ok(old) if !old.is_empty() => format!("{dir}:{old}"),
+        _ => dir.to_string(),
+    }
 }
 
 /// The library's source folder: `$WAYPATH_LIBRARY_DIR`, else the one this
@@ -288,16 +359,23 @@ fn claim_build_slot() -> Result<(PathBuf, File), String> {
     Err(format!("all 8 Rust build slots under {} are in use; close a kernel and retry", root.display()))
 }
 
-/// Write every session table to `exchange/tables/`, clearing `published/`.
+/// Write every session table to `exchange/tables/` and the draws of every
+/// fitted model to `exchange/draws/`, clearing `published/`.
 fn export_tables(session: &Session, exchange: &Path) -> Result<(), String> {
     let tables = exchange.join("tables");
-    let _ = std::fs::remove_dir_all(&tables);
-    let _ = std::fs::remove_dir_all(exchange.join("published"));
+    let draws = exchange.join("draws");
+    for dir in [&tables, &draws, &exchange.join("published")] {
+        let _ = std::fs::remove_dir_all(dir);
+    }
+    std::fs::create_dir_all(&draws).map_err(|e| format!("cannot write {}: {e}", draws.display()))?;
     for (name, kind) in session.names() {
-        if kind == "table" {
-            if let Some(table) = session.table(&name) {
-                bridge_prelude::wp_write_table(&tables, &name, table)?;
-            }
+        if let Some(table) = session.table(&name).filter(|_| kind == "table") {
+            bridge_prelude::wp_write_table(&tables, &name, table)?;
+        }
+        if let Some(fit) = session.fit(&name).filter(|_| kind == "model") {
+            let path = draws.join(format!("{name}.csv"));
+            let file = File::create(&path).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+            fit.draws.write_csv(std::io::BufWriter::new(file)).map_err(|e| format!("draws of {name}: {e}"))?;
         }
     }
     Ok(())
@@ -343,6 +421,24 @@ mod tests {
         assert_eq!(rust_source("\n%%rust  \nprintln!();"), Some("println!();"));
         assert_eq!(rust_source("%%rusty\nx"), None);
         assert_eq!(rust_source("graph g:\n    a -> b"), None);
+    }
+
+    #[test]
+    fn a_panic_report_on_stderr_becomes_its_message() {
+        // The default panic hook's layout (std::panic, Rust 1.95; recalled):
+        // header line, message, optional backtrace block, closing note.
+        let lines = [
+            "thread '<unnamed>' (23140) panicked at src/lib.rs:109:1:",
+            "sapling count went negative",
+            "stack backtrace:",
+            "   0: __rustc::rust_begin_unwind",
+            "note: Some details are omitted, run with `RUST_BACKTRACE=full` for a verbose backtrace.",
+            "an ordinary line",
+        ];
+        let mut report = PanicReport::default();
+        let shown: Vec<&str> = lines.iter().copied().filter(|l| !report.absorb(l)).collect();
+        assert_eq!(shown, ["an ordinary line"]);
+        assert_eq!(report.message.as_deref(), Some("sapling count went negative"));
     }
 
     #[test]
