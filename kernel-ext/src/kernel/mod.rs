@@ -4,8 +4,8 @@
 //! * shell (ROUTER): requests answered in order; each is wrapped in
 //!   busy/idle on IOPub. Requests that touch the session go to the
 //!   execution thread ([`worker`]); kernel_info and comm_info are answered
-//!   here. After an error with `stop_on_error`, execute requests already
-//!   queued are answered `aborted` without running.
+//!   here. After an error with `stop_on_error`, execute requests that
+//!   arrived while the failing cell ran are answered `aborted` unrun.
 //! * control (ROUTER): interrupt, shutdown and kernel_info, answered even
 //!   while a cell runs. SIGINT interrupts the same way.
 //! * IOPub (PUB): one task sends everything, in the order it was produced.
@@ -31,10 +31,6 @@ use zeromq::{PubSocket, RepSocket, RouterSocket, Socket, SocketRecv, SocketSend,
 use crate::protocol::{ConnectionInfo, Identity, Message, ProtocolError, Signer, PROTOCOL_VERSION};
 use worker::{Interrupter, Job, Publisher};
 
-/// After a failing cell, only requests that already arrived are aborted
-/// (polled once without waiting), as a client that waits for each reply
-/// expects its next request to run.
-const ABORT_WINDOW: Duration = Duration::ZERO;
 
 /// Why the kernel could not start or keep running.
 #[derive(Debug, thiserror::Error)]
@@ -159,39 +155,55 @@ async fn send(socket: &mut RouterSocket, kernel: &Kernel, message: &Message, cha
 }
 
 async fn serve_shell(mut socket: RouterSocket, kernel: Kernel, jobs: std::sync::mpsc::Sender<Job>) {
-    let mut aborting = false;
     loop {
-        let received = if aborting {
-            match tokio::time::timeout(ABORT_WINDOW, socket.recv()).await {
-                Ok(received) => received,
-                Err(_) => {
-                    aborting = false;
-                    continue;
-                }
-            }
-        } else {
-            socket.recv().await
-        };
+        let received = socket.recv().await;
         let Some(request) = accept("shell", received, &kernel.signer) else { continue };
-        let publisher = &kernel.publisher;
-        publisher.status(&request.header, "busy");
-        let reply = if aborting && request.msg_type() == "execute_request" {
-            Some(publisher.identity.reply(&request, "execute_reply", json!({"status": "aborted"})))
+        kernel.publisher.status(&request.header, "busy");
+        let reply = answer_shell(&request, &kernel, &jobs).await;
+        // Requests that arrived while the failing cell ran were sent before
+        // its error could be seen: take them now, before the error reply.
+        let queued = if stops_the_queue(&request, reply.as_ref()) {
+            take_arrived(&mut socket, &kernel.signer).await
         } else {
-            answer_shell(&request, &kernel, &jobs).await
+            Vec::new()
         };
-        if let Some(reply) = &reply {
-            send(&mut socket, &kernel, reply, "shell").await;
-            let failed = reply.content["status"] == "error";
-            let stop_on_error = request.content["stop_on_error"].as_bool().unwrap_or(true);
-            if request.msg_type() == "execute_request" && failed && stop_on_error {
-                aborting = true;
-            }
+        finish_shell(&mut socket, &kernel, &request, reply).await;
+        for request in queued {
+            kernel.publisher.status(&request.header, "busy");
+            let reply = if request.msg_type() == "execute_request" {
+                Some(kernel.publisher.identity.reply(&request, "execute_reply", json!({"status": "aborted"})))
+            } else {
+                answer_shell(&request, &kernel, &jobs).await
+            };
+            finish_shell(&mut socket, &kernel, &request, reply).await;
         }
-        publisher.status(&request.header, "idle");
-        if request.msg_type() == "shutdown_request" {
-            shut_down().await;
-        }
+    }
+}
+
+/// Whether `request` failed and asked for the queued cells to be skipped.
+fn stops_the_queue(request: &Message, reply: Option<&Message>) -> bool {
+    request.msg_type() == "execute_request"
+        && reply.is_some_and(|r| r.content["status"] == "error")
+        && request.content["stop_on_error"].as_bool().unwrap_or(true)
+}
+
+/// Every message already received on `socket`, without waiting for more.
+async fn take_arrived(socket: &mut RouterSocket, signer: &Signer) -> Vec<Message> {
+    let mut arrived = Vec::new();
+    while let Ok(received) = tokio::time::timeout(Duration::ZERO, socket.recv()).await {
+        arrived.extend(accept("shell", received, signer));
+    }
+    arrived
+}
+
+/// Send the reply (if any), go idle, and end the process after a shutdown.
+async fn finish_shell(socket: &mut RouterSocket, kernel: &Kernel, request: &Message, reply: Option<Message>) {
+    if let Some(reply) = &reply {
+        send(socket, kernel, reply, "shell").await;
+    }
+    kernel.publisher.status(&request.header, "idle");
+    if request.msg_type() == "shutdown_request" {
+        shut_down().await;
     }
 }
 
