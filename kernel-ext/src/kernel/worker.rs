@@ -177,7 +177,7 @@ impl Worker {
             Some(rust) => self.rust.run(rust, &mut self.session, &sink),
             None => {
                 let report = |line: &str| progress.report(line);
-                let control = RunControl { cancel: &*cancel, progress: &report };
+                let control = RunControl { cancel: &cancel, progress: &report };
                 self.session.run_cell(code, &control)
             }
         }));
