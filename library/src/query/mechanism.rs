@@ -185,7 +185,7 @@ fn parse_category(name: &str, items: &[&str]) -> Result<Mechanism, String> {
     }
     let total: f64 = shares.iter().sum();
     if (total - 1.0).abs() > 1e-6 {
-        return Err(format!("the shares of {name} add up to {total}, not 1; adjust them"));
+        return Err(format!("the shares of {name} add up to {}, not 1; adjust them", crate::model::prior::short_number(total)));
     }
     Ok(Mechanism::Category { levels, shares })
 }
