@@ -109,3 +109,19 @@ fn fitting_a_model_that_does_not_exist_names_what_does() {
     assert_eq!(err.line, Some(1));
     assert!(err.message.contains("no model named nothing_here"), "{}", err.message);
 }
+
+#[test]
+fn save_figure_writes_the_latest_figure_as_well_formed_svg() {
+    let dir = std::env::temp_dir().join(format!("wp-cells-save-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut session = Session::new(&dir);
+    let out = run(&mut session, "save figure to \"none.svg\"\n");
+    assert!(out.error.unwrap().message.contains("no figure"));
+    let out = run(&mut session, "graph g:\n    a -> b\nsave figure to \"g.svg\"\n");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let text = std::fs::read_to_string(dir.join("g.svg")).unwrap();
+    // Well-formed XML per the XML 1.0 rules as implemented by roxmltree.
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let title = doc.descendants().find(|n| n.has_tag_name("title")).unwrap();
+    assert_eq!(title.text(), Some("causal graph: g"));
+}

@@ -28,6 +28,8 @@ pub struct Session {
     pub(crate) graphs: BTreeMap<String, Graph>,
     pub(crate) models: BTreeMap<String, Model>,
     pub(crate) fits: BTreeMap<String, Fit>,
+    /// The most recent figure any statement drew, for `save figure`.
+    pub(crate) last_figure: Option<String>,
 }
 
 impl Session {
@@ -91,7 +93,12 @@ impl Session {
         };
         for st in &statements {
             match statements::run(self, st, control, &mut outcome.warnings) {
-                Ok(displays) => outcome.displays.extend(displays),
+                Ok(displays) => {
+                    if let Some(svg) = displays.iter().rev().find_map(|d| d.svg.clone()) {
+                        self.last_figure = Some(svg);
+                    }
+                    outcome.displays.extend(displays)
+                }
                 Err(e) => {
                     outcome.error = Some(e);
                     break;
