@@ -335,7 +335,7 @@ fn grid_points(
     place: &str,
     mass: f64,
 ) -> Result<Vec<GridPoint>, QueryError> {
-    if !predictors.iter().any(|p| *p == grid.variable) || grid.variable == pairing.variable {
+    if !predictors.contains(&grid.variable) || grid.variable == pairing.variable {
         return Err(QueryError::request(format!(
             "{place}: `along {}` needs another predictor of the model (its predictors: {})",
             grid.variable,
@@ -363,7 +363,7 @@ fn grid_points(
 /// The grid values from `from` to `to`, inclusive.
 fn grid_values(grid: &GridRequest, place: &str) -> Result<Vec<f64>, QueryError> {
     let span = grid.to - grid.from;
-    if !(span > 0.0) {
+    if !span.is_finite() || span <= 0.0 {
         return Err(QueryError::request(format!(
             "{place}: the grid of {} must run from a lower to a higher value, not {} to {}",
             grid.variable,
@@ -373,7 +373,7 @@ fn grid_values(grid: &GridRequest, place: &str) -> Result<Vec<f64>, QueryError> 
     }
     let step = grid.step.unwrap_or(span / (DEFAULT_GRID_POINTS - 1) as f64);
     let count = (span / step + 1e-9).floor() as usize + 1;
-    if !(step > 0.0) || count > MAX_GRID_POINTS {
+    if !step.is_finite() || step <= 0.0 || count > MAX_GRID_POINTS {
         return Err(QueryError::request(format!(
             "{place}: the step {} gives more than {MAX_GRID_POINTS} grid values; use a step above {}",
             short(step),

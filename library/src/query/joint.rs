@@ -41,7 +41,7 @@ use super::support::{require_column, stream_seed};
 #[derive(Debug, Clone, PartialEq)]
 pub enum NodeModel {
     /// A regression on the node's parents; `text` is its model body.
-    Regression { text: String, model: Model },
+    Regression { text: String, model: Box<Model> },
     /// A parentless category node, simulated from its level shares.
     LevelShares { levels: Vec<String>, shares: Vec<f64> },
     /// A node the joint model cannot simulate, and why.
@@ -276,5 +276,5 @@ fn regression(joint: &str, table: &Table, node: &str, lines: Vec<String>) -> Res
     let name = format!("{joint}:{node}");
     let spec = ModelSpec::from_lines(&name, lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))?;
     let model = Model::build(&spec, table)?;
-    Ok(NodeModel::Regression { text: lines.join("\n"), model })
+    Ok(NodeModel::Regression { text: lines.join("\n"), model: Box::new(model) })
 }

@@ -122,7 +122,7 @@ fn true_parameters(
     let residual = (x * &beta - &y).norm() / (y.len() as f64).sqrt();
     let mean = y.mean();
     let scale = (y.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / y.len() as f64).sqrt().max(1.0);
-    if !(residual <= EXACT * scale) {
+    if residual.is_nan() || residual > EXACT * scale {
         notes.push(format!(
             "the mechanism of {outcome} is not a linear combination of the model's terms (a hidden cause, a missing \
              parent or a non-linear term), so its coefficients have no single true value"

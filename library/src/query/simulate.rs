@@ -32,7 +32,6 @@ pub struct SimulationSettings {
 #[derive(Debug, Clone, PartialEq)]
 struct NodeMechanism {
     node: String,
-    hidden: bool,
     line: usize,
     mechanism: Mechanism,
 }
@@ -92,14 +91,14 @@ impl Simulation {
             let Some((node, mechanism)) = parse_mechanism_line(text).map_err(at)? else {
                 continue;
             };
-            let hidden = graph.is_hidden(&node).map_err(|_| {
+            graph.is_hidden(&node).map_err(|_| {
                 let nodes: Vec<&str> = graph.nodes().iter().map(|n| n.name.as_str()).collect();
                 at(format!("{node} is not a node of graph {} (its nodes: {}); give mechanisms for its nodes only", graph.name(), nodes.join(", ")))
             })?;
             if let Some(first) = found.iter().find(|m| m.node == node) {
                 return Err(at(format!("{node} already has a mechanism on line {}; keep one", first.line)));
             }
-            found.push(NodeMechanism { node, hidden, line, mechanism });
+            found.push(NodeMechanism { node, line, mechanism });
         }
         let mut nodes = Vec::new();
         for node in graph.topological_order() {
@@ -262,7 +261,7 @@ impl Simulation {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
                     let (mu, s) = (eval(mean, i), eval(sd, i));
-                    if !mu.is_finite() || !(s > 0.0) || !s.is_finite() {
+                    if !mu.is_finite() || !s.is_finite() || s <= 0.0 {
                         return Err(bad(i, format!("the mean is {} and the sd {}, but the sd must be positive and both finite", short(mu), short(s))));
                     }
                     let z: f64 = StandardNormal.sample(&mut rng);
@@ -285,7 +284,7 @@ impl Simulation {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
                     let r = if *log { eval(rate, i).exp() } else { eval(rate, i) };
-                    if !(r >= 0.0) || !r.is_finite() {
+                    if !r.is_finite() || r < 0.0 {
                         return Err(bad(i, format!("the rate is {}, but it must be a finite number ≥ 0", short(r))));
                     }
                     out.push(if r == 0.0 { 0 } else { Poisson::new(r).map_err(|e| bad(i, e.to_string()))?.sample(&mut rng) as u64 });
