@@ -125,3 +125,24 @@ fn save_figure_writes_the_latest_figure_as_well_formed_svg() {
     let title = doc.descendants().find(|n| n.has_tag_name("title")).unwrap();
     assert_eq!(title.text(), Some("causal graph: g"));
 }
+
+#[test]
+fn graph_from_a_dot_file_answers_like_the_same_graph_written_inline() {
+    // Graphviz DOT language (graphviz.org/doc/info/lang.html): a digraph with
+    // a chain, a quoted id and an attribute list that is ignored.
+    let dir = std::env::temp_dir().join(format!("wp-cells-dot-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    std::fs::write(dir.join("g.dot"), "digraph orchard {\n  rootstock -> \"girth\" -> yield [color=red];\n  rootstock -> yield;\n}\n").unwrap();
+    let mut session = Session::new(&dir);
+    let out = run(
+        &mut session,
+        "graph from_file from \"g.dot\"\ngraph inline:\n    rootstock -> girth -> yield\n    rootstock -> yield\n\
+         ask direct effect of rootstock on yield in from_file\nask direct effect of rootstock on yield in inline\n",
+    );
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let a = out.displays[2].json.as_ref().unwrap();
+    let b = out.displays[3].json.as_ref().unwrap();
+    assert_eq!(a["adjustment_sets"], b["adjustment_sets"]);
+    // Single-door criterion (Pearl 2009, Thm 5.3.1): the mediator girth must be held.
+    assert_eq!(a["adjustment_sets"], serde_json::json!([["girth"]]));
+}
