@@ -31,7 +31,7 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
             builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
         }
         ["graph", name, "from", _] if is_name(name) && !st.expects_body() => {
-            let raw = st.head().split_once("from").map(|(_, p)| p.trim()).unwrap_or("");
+            let raw = st.head().split_once(" from ").map(|(_, p)| p.trim()).unwrap_or("");
             let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FORM))?;
             let file = session.resolve(path);
             let text = std::fs::read_to_string(&file).map_err(|e| {
