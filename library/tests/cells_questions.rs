@@ -134,6 +134,13 @@ fn simulate_and_recover_cover_the_true_slope_and_effect() {
     let effect = json["effects"].as_array().unwrap().iter().find(|e| e["variable"] == "x").cloned().unwrap();
     // Wright (1934) path tracing: do(x + 1) moves the mean of y by 0.5.
     assert!((effect["truth"].as_f64().unwrap() - TRUE_EFFECT).abs() < 1e-9);
+    assert_eq!(effect["covered"], true);
+    // Wright (1934): z acts on y directly (0.7) and through x (0.8 × 0.5), total 1.1; the model
+    // holds x fixed, so its contrast of z is not compared with that truth.
+    let z = json["effects"].as_array().unwrap().iter().find(|e| e["variable"] == "z").cloned().unwrap();
+    assert!((z["truth"].as_f64().unwrap() - (0.7 + 0.8 * 0.5)).abs() < 1e-9);
+    assert_eq!(z["covered"], Value::Null);
+    assert_eq!(z["held_mediators"], serde_json::json!(["x"]));
     let out = run(&mut session, "recover m on field with laplace seed 2");
     assert!(out.displays[0].svg.as_deref().unwrap_or("").contains("<title>recovery"));
 }

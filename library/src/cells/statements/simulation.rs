@@ -25,6 +25,7 @@ use crate::cells::session::{suggest, RunControl, Session, SimulationRecord};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{Method, LAPLACE_DRAWS, LAPLACE_SEED};
 use crate::infer::nuts::Progress;
+use crate::model::prior::short_number;
 use crate::model::{Input, Model};
 use crate::plot::{DensityArrangement, ParameterDraws, Quantity};
 use crate::query::{
@@ -188,7 +189,7 @@ pub(crate) fn fit_joint(
         nodes_json.push(json!({"node": node.name, "parameters": params, "warnings": f.warnings}));
     }
     notes.push(format!("each node's regression gets its own seed stream derived from seed {}", method_seed(&method)));
-    notes.push(format!("intervals are central {}% quantile intervals of the draws", num(INTERVAL_MASS * 100.0)));
+    notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(INTERVAL_MASS * 100.0)));
     let seconds = started.elapsed().as_secs_f64();
     let heading = format!("fit {name}: {} node regressions in {seconds:.2} s — {}", fit.fits.iter().flatten().count(), method.describe());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
@@ -404,7 +405,11 @@ pub(crate) fn recover(
             num(e.estimate.mean),
             num(e.estimate.lower),
             num(e.estimate.upper),
-            if e.covered() { "yes" } else { "NO" }.to_string(),
+            match e.covered() {
+                Some(true) => "yes".to_string(),
+                Some(false) => "NO".to_string(),
+                None => format!("not comparable: the model holds {} fixed", e.mediators.join(", ")),
+            },
         ]);
     }
     let with_truth: Vec<_> = recovery.parameters.iter().filter_map(|p| p.covered).collect();
@@ -420,7 +425,7 @@ pub(crate) fn recover(
     }
     if !effects.is_empty() {
         notes.push(format!(
-            "true effects: the mechanisms simulated under both settings for {TRUTH_ROWS} units with shared noise (seed {}); the model's contrast is averaged over the rows of {t}. A model that holds a mediator fixed estimates another quantity than the total effect",
+            "true effects: the mechanisms simulated under both settings for {TRUTH_ROWS} units with shared noise (seed {}); the model's contrast is averaged over the rows of {t}; where the model holds a mediator fixed, its contrast is not the total effect and is not compared",
             sim.settings.seed
         ));
     }
@@ -436,7 +441,8 @@ pub(crate) fn recover(
         effects
             .iter()
             .map(|e| json!({"effect": e.effect, "variable": e.variable, "truth": e.truth, "mean": e.estimate.mean,
-                "lower": e.estimate.lower, "upper": e.estimate.upper, "covered": e.covered()}))
+                "lower": e.estimate.lower, "upper": e.estimate.upper, "covered": e.covered(),
+                "held_mediators": e.mediators}))
             .collect(),
     );
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
@@ -448,11 +454,15 @@ struct TrueEffect {
     variable: String,
     truth: f64,
     estimate: ContrastSummary,
+    /// Predictors of the model that lie on a causal path from the variable
+    /// to the outcome: holding them fixed, the contrast is not the total effect.
+    mediators: Vec<String>,
 }
 
 impl TrueEffect {
-    fn covered(&self) -> bool {
-        self.estimate.lower <= self.truth && self.truth <= self.estimate.upper
+    /// Whether the interval holds the truth; `None` when the model holds a mediator fixed.
+    fn covered(&self) -> Option<bool> {
+        self.mediators.is_empty().then(|| self.estimate.lower <= self.truth && self.truth <= self.estimate.upper)
     }
 }
 
@@ -488,7 +498,14 @@ fn true_effects(model: &Model, draws: &crate::draws::Draws, table: &crate::table
         let Ok(truth) = sim.true_effect(x, &to, &from, outcome, TRUTH_ROWS, sim.settings.seed) else { continue };
         let request = ContrastRequest { over_rows: true, mass: INTERVAL_MASS, ..ContrastRequest::new(x) }.between(to, from);
         let Ok(c) = crate::query::contrast(model, draws, table, &request) else { continue };
-        out.push(TrueEffect { effect: c.contrast.clone(), variable: x.to_string(), truth, estimate: c.summary() });
+        let descendants = sim.graph.descendants(x).unwrap_or_default();
+        let mediators = model
+            .inputs()
+            .iter()
+            .map(|i| i.column().to_string())
+            .filter(|m| descendants.contains(&m.as_str()) && sim.graph.descendants(m).is_ok_and(|d| d.contains(&outcome)))
+            .collect();
+        out.push(TrueEffect { effect: c.contrast.clone(), variable: x.to_string(), truth, estimate: c.summary(), mediators });
     }
     out
 }
@@ -596,7 +613,7 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
         grid.push(vec![stat.to_string(), num(observed), num(s.lower), num(s.upper), format!("{share:.2}")]);
         stats_json.push(json!({"statistic": stat, "observed": observed, "lower": s.lower, "upper": s.upper, "share_at_or_above": share}));
     }
-    let mut notes = vec![format!("the interval columns are the central {}% range of each statistic over the simulated sets", num(INTERVAL_MASS * 100.0))];
+    let mut notes = vec![format!("the interval columns are the central {}% range of each statistic over the simulated sets", short_number(INTERVAL_MASS * 100.0))];
     notes.push(if prior {
         "a prior check asks whether the priors allow outcomes of a plausible size before the data are seen".to_string()
     } else {
