@@ -72,7 +72,7 @@ pub(super) fn check_cancel(control: &RunControl, what: &str, line: usize) -> Res
 /// A progress sink that reports every 100th sampler iteration as `label: chain c — iteration i/n`.
 pub(super) fn sampler_progress<'a>(control: &'a RunControl, label: &'a str) -> impl Fn(Progress) + Sync + 'a {
     move |p: Progress| {
-        if p.iteration % 100 == 0 || p.iteration == p.total {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
             (control.progress)(&format!("{label}: chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
         }
     }
@@ -356,7 +356,7 @@ pub(crate) fn compare_routes(
     };
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
     let joint_progress = |node: &str, p: Progress| {
-        if p.iteration % 100 == 0 || p.iteration == p.total {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
             (control.progress)(&format!("{label}: joint model, node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
         }
     };

@@ -135,7 +135,7 @@ pub(crate) fn fit_joint(
     let joint = &session.joints[name];
     let label = format!("fit {name}");
     let progress = |node: &str, p: Progress| {
-        if p.iteration % 100 == 0 || p.iteration == p.total {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
             (control.progress)(&format!("{label}: node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
         }
     };
@@ -462,7 +462,7 @@ struct TrueEffect {
 impl TrueEffect {
     /// Whether the interval holds the truth; `None` when the model holds a mediator fixed.
     fn covered(&self) -> Option<bool> {
-        self.mediators.is_empty().then(|| self.estimate.lower <= self.truth && self.truth <= self.estimate.upper)
+        self.mediators.is_empty().then_some(self.estimate.lower <= self.truth && self.truth <= self.estimate.upper)
     }
 }
 
