@@ -31,7 +31,7 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
             builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
         }
         ["graph", name, "from", _] if is_name(name) && !st.expects_body() => {
-            let raw = st.head().split_once("from").map(|(_, p)| p.trim()).unwrap_or("");
+            let raw = st.head().split_once(" from ").map(|(_, p)| p.trim()).unwrap_or("");
             let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FORM))?;
             let file = session.resolve(path);
             let text = std::fs::read_to_string(&file).map_err(|e| {
@@ -89,7 +89,7 @@ pub(crate) fn ask(session: &mut Session, st: &Statement) -> Result<Vec<Display>,
     Ok(vec![display])
 }
 
-fn describe_identification(id: &Identification) -> Display {
+pub(crate) fn describe_identification(id: &Identification) -> Display {
     let query = serde_json::to_value(id.query).unwrap_or_default();
     let query = query.as_str().unwrap_or("effect").to_string();
     let verdict = if id.identifiable { "identifiable" } else { "NOT identifiable by adjustment" };

@@ -17,9 +17,9 @@ use crate::infer::nuts::{NutsSettings, Progress};
 use crate::model::{Model, ModelSpec};
 
 const MODEL_FORM: &str = "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)";
-const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
+pub(crate) const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
 const EXPORT_FORM: &str = "export NAME draws to \"FILE.csv\"";
-const PLOT_FORM: &str = "plot NAME posterior|trace [of PARAMETER, …]";
+const PLOT_FORM: &str = "plot NAME posterior|trace [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis";
 
 /// The interval every fit table shows.
 pub(crate) const INTERVAL_MASS: f64 = 0.9;
@@ -38,6 +38,7 @@ pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display
     let model = Model::build(&spec, table).map_err(|e| CellError::at(line, e.to_string()))?;
     let display = describe_model(&model, table.nrows());
     session.fits.remove(name);
+    session.specs.insert(name.to_string(), spec);
     session.models.insert(name.to_string(), model);
     Ok(vec![display])
 }
@@ -73,13 +74,19 @@ fn describe_model(model: &Model, rows: usize) -> Display {
 
 fn priors_grid(model: &Model) -> Grid {
     let mut grid = Grid::new(&["prior group", "parameters", "prior", "source"]);
+    let mut rows: Vec<(String, Vec<String>, String, bool)> = Vec::new();
     for p in model.priors_used() {
-        grid.push(vec![
-            p.group.name().to_string(),
-            p.parameters.join(", "),
-            p.prior.to_string(),
-            if p.declared { "declared" } else { "default (data scale)" }.to_string(),
-        ]);
+        let prior = p.prior.to_string();
+        match rows.last_mut() {
+            Some(last) if last.0 == p.group.name() && last.2 == prior && last.3 == p.declared => {
+                last.1.extend(p.parameters.iter().cloned())
+            }
+            _ => rows.push((p.group.name().to_string(), p.parameters.clone(), prior, p.declared)),
+        }
+    }
+    for (group, parameters, prior, declared) in rows {
+        let source = if declared { "declared" } else { "default (data scale)" };
+        grid.push(vec![group, parameters.join(", "), prior, source.to_string()]);
     }
     grid
 }
@@ -112,7 +119,7 @@ pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, w
 }
 
 /// Read `with laplace …` / `with nuts …` options.
-fn parse_method(words: &[&str]) -> Result<Method, String> {
+pub(crate) fn parse_method(words: &[&str]) -> Result<Method, String> {
     let (kind, rest) = match words {
         [] => ("nuts", &[][..]),
         ["with", kind, rest @ ..] => (*kind, rest),
@@ -287,12 +294,24 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         None => (head, Vec::new()),
     };
     let words: Vec<&str> = main.split_whitespace().collect();
-    let (name, kind) = match words.as_slice() {
-        ["plot", name, kind] => (*name, *kind),
+    let (name, kind, over) = match words.as_slice() {
+        ["plot", name, kind] => (*name, *kind, None),
+        ["plot", name, "lines", "over", x] => (*name, "lines", Some(*x)),
         _ => return Err(form_error(st, PLOT_FORM)),
     };
     let fit = require_fit(session, name, st.header.number)?;
     let model = &session.models[name];
+    if matches!(kind, "lines" | "basis") {
+        let table = session.require_table(model.table_name(), st.header.number)?;
+        let (svg, note) = if kind == "lines" {
+            figures::lines(model, fit, table, over)
+        } else {
+            figures::basis(model, fit, table).map(|svg| (svg, "thin lines: basis functions; thick: the fitted curve (posterior mean), faint: draws".to_string()))
+        }
+        .map_err(|e| CellError::at(st.header.number, e))?;
+        let text = format!("{kind} figure of {name}: {note}");
+        return Ok(vec![Display { plain: text, html: None, svg: Some(svg), json: None }]);
+    }
     for c in &chosen {
         if fit.draws.get(c).is_none() {
             return Err(CellError::at(

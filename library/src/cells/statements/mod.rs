@@ -3,14 +3,18 @@
 mod causal;
 mod data;
 mod fitting;
+mod questions;
+mod simulation;
 
 use super::output::{CellError, Display};
 use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
 
 /// The first words that start a statement, for error messages and completion.
-pub const KEYWORDS: &[&str] =
-    &["table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot"];
+pub const KEYWORDS: &[&str] = &[
+    "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save", "contrast",
+    "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+];
 
 /// Run one statement against the session.
 pub(crate) fn run(
@@ -27,16 +31,33 @@ pub(crate) fn run(
     match first {
         "table" => data::table(session, st, warnings),
         "graph" => causal::graph(session, st),
+        "ask" if has_word(head, "using") => questions::ask_using(session, st, control, warnings),
         "ask" => causal::ask(session, st),
         "paths" => causal::paths(session, st),
+        "implications" if head.contains(" checked against ") => questions::implications_checked(session, st, control),
         "implications" => causal::implications(session, st),
+        "contrast" => questions::contrast(session, st),
+        "compare" => questions::compare_routes(session, st, control, warnings),
         "model" => fitting::model(session, st),
+        "fit" if simulation::names_joint(session, head) => simulation::fit_joint(session, st, control, warnings),
         "fit" => fitting::fit(session, st, control, warnings),
+        "joint" => simulation::joint(session, st),
+        "intervene" => simulation::intervene(session, st),
+        "simulate" => simulation::simulate(session, st),
+        "recover" => simulation::recover(session, st, control, warnings),
+        "calibrate" => simulation::calibrate(session, st, control),
+        "prior" | "check" => simulation::predictive_check(session, st),
         "show" => fitting::show(session, st),
         "export" => fitting::export(session, st),
         "plot" => fitting::plot(session, st),
+        "save" => save_figure(session, st),
         other => Err(unknown_statement(other, st.header.number)),
     }
+}
+
+/// Whether `word` appears as a whole word in `head`.
+fn has_word(head: &str, word: &str) -> bool {
+    head.split_whitespace().any(|w| w == word)
 }
 
 fn unknown_statement(word: &str, line: usize) -> CellError {
@@ -57,4 +78,20 @@ pub(crate) fn form_error(st: &Statement, form: &str) -> CellError {
 /// Strip surrounding double quotes from a path argument.
 pub(crate) fn unquote(s: &str) -> Option<&str> {
     s.strip_prefix('"').and_then(|s| s.strip_suffix('"'))
+}
+
+/// `save figure to "FILE.svg"`: write the most recent figure of the session.
+fn save_figure(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    const FORM: &str = "save figure to \"FILE.svg\"";
+    let path = st
+        .head()
+        .strip_prefix("save figure to")
+        .and_then(|p| unquote(p.trim()))
+        .ok_or_else(|| form_error(st, FORM))?;
+    let svg = session.last_figure.clone().ok_or_else(|| {
+        CellError::at(st.header.number, "no figure has been drawn in this session yet; run a statement that draws one first")
+    })?;
+    let file = session.resolve(path);
+    std::fs::write(&file, &svg).map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
+    Ok(vec![Display::text(format!("saved the latest figure ({} KB) to {path}", svg.len().div_ceil(1024)))])
 }
