@@ -266,6 +266,13 @@ def test_interrupt_stops_a_long_fit_within_a_second(tmp_path):
         # The session kept the table and the model: a short fit now works.
         reply, _ = run(kc, "fit m with laplace draws 200 seed 7")
         assert reply["status"] == "ok", reply
+        # The fit's draws reach Rust cells: one row per requested draw, led by
+        # the chain and draw columns of the draws CSV layout.
+        code = '%%rust\nlet d = wp_draws("m");\nformat!("{} {}", d.nrows(), d.column_names()[..2].join(","))'
+        reply, msgs = run(kc, code, timeout=FIRST_RUST_CELL_TIMEOUT)
+        assert reply["status"] == "ok", reply
+        results = [m["content"]["data"]["text/plain"] for m in msgs if m["msg_type"] == "execute_result"]
+        assert results == ['"200 chain,draw"'], results
     finally:
         kc.stop_channels()
         km.shutdown_kernel(now=True)

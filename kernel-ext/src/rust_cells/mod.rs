@@ -137,15 +137,15 @@ impl RustCells {
         let (result, panic) = eval_streaming(context, code, sink);
         self.interrupt.running.store(false, Ordering::SeqCst);
         match (result, panic) {
-            (Err(error), _) => outcome.error = Some(describe_error(error, code)),
-            (Ok(_), Some(message)) => {
+            (_, Some(message)) => {
                 outcome.error = Some(CellError {
                     line: None,
                     message: format!(
-                        "the Rust cell panicked: {message}; variables it defined are dropped, earlier ones are kept"
+                        "the Rust cell panicked: {message}; the session's tables, graphs and fits are kept"
                     ),
                 })
             }
+            (Err(error), None) => outcome.error = Some(describe_error(error, code)),
             (Ok(outputs), None) => outcome.displays.extend(display_of(&outputs)),
         }
         import_published(session, &context.exchange, &mut outcome);
@@ -300,9 +300,15 @@ fn start_context() -> Result<Context, String> {
         .map_err(|e| format!("the Rust context did not start: {e}"))?;
     let mut commands = CommandContext::with_eval_context(eval);
     let library = library_dir();
-    let setup = format!(":offline 1\n:dep waypath = {{ path = {:?} }}\n", library.display().to_string());
-    commands.execute(&setup).map_err(|e| format!("the Rust context cannot use the waypath library at {}: {e}", library.display()))?;
-    commands.execute(&prelude_source()).map_err(|e| format!("the Rust cell bridge did not compile: {e}"))?;
+    // One build for the settings, the library and the bridge.
+    let setup = format!(
+        ":offline 1\n:dep waypath = {{ path = {:?} }}\n{}",
+        library.display().to_string(),
+        prelude_source()
+    );
+    commands.execute(&setup).map_err(|e| {
+        format!("the Rust context cannot build the waypath library at {} with the cell bridge: {e}", library.display())
+    })?;
     Ok(Context { commands, outputs, exchange, _slot_lock: lock })
 }
 
