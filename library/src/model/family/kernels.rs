@@ -54,50 +54,82 @@ const ATANH_TERMS: [f64; 11] = [
     1.0 / 9.0, 1.0 / 7.0, 1.0 / 5.0, 1.0 / 3.0, 1.0,
 ];
 
-/// `e^x` for `x ≤ 0` (larger `x` are not supported).
+// Each function below works on an array of `N` independent values, one
+// step at a time across all of them: the steps of different values do not
+// wait on each other, so the processor overlaps them, and each step over
+// the array compiles to a few vector instructions.
+
+/// `e^x` of every value, for values `x ≤ 0` (larger `x` are not supported).
 #[inline(always)]
-pub fn exp_nonpositive(x: f64) -> f64 {
-    let x = x.max(FLOOR);
-    let shifted = x * LOG2_E + ROUNDER;
-    let n = shifted - ROUNDER;
-    let r = (x - n * LN2_HI) - n * LN2_LO;
+pub fn exp_nonpositive<const N: usize>(x: &[f64; N]) -> [f64; N] {
+    let mut r = [0.0; N];
+    let mut scale = [0.0; N];
+    for k in 0..N {
+        let x = x[k].max(FLOOR);
+        let shifted = x * LOG2_E + ROUNDER;
+        let n = shifted - ROUNDER;
+        r[k] = (x - n * LN2_HI) - n * LN2_LO;
+        // The low bits of `shifted` hold n + 2⁵¹ (as an integer); rebuild 2ⁿ.
+        let n_bits = (shifted.to_bits() as i64).wrapping_sub(ROUNDER.to_bits() as i64);
+        scale[k] = f64::from_bits(((n_bits + 1023) << 52) as u64);
+    }
     // Taylor series of e^r to degree 13, Horner form.
-    let mut p = 0.0;
+    let mut p = [0.0; N];
     for &coefficient in &EXP_TERMS {
-        p = p * r + coefficient;
+        for k in 0..N {
+            p[k] = p[k] * r[k] + coefficient;
+        }
     }
-    // The low bits of `shifted` hold n + 2⁵¹ (as an integer); rebuild 2ⁿ.
-    let n_bits = (shifted.to_bits() as i64).wrapping_sub(ROUNDER.to_bits() as i64);
-    let scale = f64::from_bits(((n_bits + 1023) << 52) as u64);
-    p * scale
+    for k in 0..N {
+        p[k] *= scale[k];
+    }
+    p
 }
 
-/// `log(1 + t)` for `t` in [0, 1].
+/// `log(1 + t)` of every value, for values `t` in [0, 1].
 #[inline(always)]
-pub fn ln_1p_unit(t: f64) -> f64 {
-    let upper = t > SQRT_2 - 1.0;
-    let (numerator, denominator, offset) = if upper { (t - 1.0, t + 3.0, LN_2) } else { (t, t + 2.0, 0.0) };
-    let s = numerator / denominator;
-    let s2 = s * s;
+pub fn ln_1p_unit<const N: usize>(t: &[f64; N]) -> [f64; N] {
+    let mut s = [0.0; N];
+    let mut offset = [0.0; N];
+    for k in 0..N {
+        let upper = t[k] > SQRT_2 - 1.0;
+        let numerator = if upper { t[k] - 1.0 } else { t[k] };
+        let denominator = if upper { t[k] + 3.0 } else { t[k] + 2.0 };
+        offset[k] = if upper { LN_2 } else { 0.0 };
+        s[k] = numerator / denominator;
+    }
     // atanh(s) / s = Σ s^(2k) / (2k + 1), k = 0..=10, Horner in s².
-    let mut q = 0.0;
-    for &inverse in &ATANH_TERMS {
-        q = inverse + s2 * q;
+    let mut s2 = [0.0; N];
+    for k in 0..N {
+        s2[k] = s[k] * s[k];
     }
-    offset + 2.0 * s * q
+    let mut q = [0.0; N];
+    for &inverse in &ATANH_TERMS {
+        for k in 0..N {
+            q[k] = inverse + s2[k] * q[k];
+        }
+    }
+    for k in 0..N {
+        q[k] = offset[k] + 2.0 * s[k] * q[k];
+    }
+    q
 }
 
-/// `(softplus(η), logistic(η))` of four linear predictors, one
-/// exponential each. Four at once so the rows' arithmetic can overlap.
+/// `(softplus(η), logistic(η))` of every linear predictor, one exponential
+/// each.
 #[inline(always)]
-pub fn softplus_and_logistic(eta: [f64; 4]) -> ([f64; 4], [f64; 4]) {
-    let mut softplus = [0.0; 4];
-    let mut logistic = [0.0; 4];
-    for k in 0..4 {
-        let t = exp_nonpositive(-eta[k].abs());
-        softplus[k] = eta[k].max(0.0) + ln_1p_unit(t);
-        let numerator = if eta[k] >= 0.0 { 1.0 } else { t };
-        logistic[k] = numerator / (1.0 + t);
+pub fn softplus_and_logistic<const N: usize>(eta: &[f64; N]) -> ([f64; N], [f64; N]) {
+    let mut minus_abs = [0.0; N];
+    for k in 0..N {
+        minus_abs[k] = -eta[k].abs();
+    }
+    let t = exp_nonpositive(&minus_abs);
+    let mut softplus = ln_1p_unit(&t);
+    let mut logistic = [0.0; N];
+    for k in 0..N {
+        softplus[k] += eta[k].max(0.0);
+        let numerator = if eta[k] >= 0.0 { 1.0 } else { t[k] };
+        logistic[k] = numerator / (1.0 + t[k]);
     }
     (softplus, logistic)
 }
@@ -117,10 +149,11 @@ mod tests {
     fn exp_matches_the_standard_library_to_a_few_ulps() {
         for x in grid(-700.0, 0.0, 200_000).chain([-1e-300, -0.5 * LN_2, -LN_2, -708.0, 0.0]) {
             let want = x.max(FLOOR).exp();
-            let got = exp_nonpositive(x);
+            let got = exp_nonpositive(&[x])[0];
             assert!((got - want).abs() <= 4.0 * f64::EPSILON * want, "exp({x}): {got} vs {want}");
         }
-        assert!(exp_nonpositive(-1e6) < 1e-300 && exp_nonpositive(f64::NEG_INFINITY) < 1e-300);
+        let far = exp_nonpositive(&[-1e6, f64::NEG_INFINITY]);
+        assert!(far[0] < 1e-300 && far[1] < 1e-300);
     }
 
     /// Reference: the standard library's `ln_1p`.
@@ -128,7 +161,7 @@ mod tests {
     fn log_one_plus_matches_the_standard_library_to_a_few_ulps() {
         for t in grid(0.0, 1.0, 200_000).chain([1e-300, 1e-17, 1e-9, SQRT_2 - 1.0, 1.0]) {
             let want = t.ln_1p();
-            let got = ln_1p_unit(t);
+            let got = ln_1p_unit(&[t])[0];
             assert!((got - want).abs() <= 4.0 * f64::EPSILON * want, "ln_1p({t}): {got} vs {want}");
         }
     }
@@ -138,8 +171,9 @@ mod tests {
     #[test]
     fn softplus_and_logistic_match_their_definitions() {
         for eta in grid(-40.0, 40.0, 100_000).chain([-800.0, -700.5, 0.0, 700.5, 800.0]) {
-            let (sp, p) = softplus_and_logistic([eta, -eta, 0.5 * eta, 1.0]);
-            let (sp, p) = (sp[0], p[0]);
+            // Neighbouring lanes hold other values: lanes must not mix.
+            let (sp, p) = softplus_and_logistic(&[-eta, eta, 0.5 * eta, 1.0, 1e-3 * eta]);
+            let (sp, p) = (sp[1], p[1]);
             let (want_sp, want_p) = (softplus(eta), logistic(eta));
             assert!((sp - want_sp).abs() <= 8.0 * f64::EPSILON * want_sp + 1e-300, "softplus({eta})");
             assert!((p - want_p).abs() <= 8.0 * f64::EPSILON * want_p + 1e-300, "logistic({eta})");
