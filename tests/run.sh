@@ -18,6 +18,12 @@ if [ ! -x "$venv/bin/python" ] || ! cmp -s tests/requirements.txt "$venv/require
     cp tests/requirements.txt "$venv/requirements.txt"
 fi
 
+# The figure tests measure label widths with a real font (DejaVu Sans).
+if [ ! -d /usr/share/fonts/truetype/dejavu ] && [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null; then
+    echo "== installing fonts-dejavu-core for the figure tests"
+    apt-get install -y -q fonts-dejavu-core >/dev/null || { apt-get update -q >/dev/null && apt-get install -y -q fonts-dejavu-core >/dev/null; }
+fi
+
 echo "== building (release)"
 cargo build --release --workspace --locked
 

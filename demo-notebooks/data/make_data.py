@@ -49,7 +49,7 @@ def stream(seed=77, n=180):
     write("stream.csv", ["day", "water_temp"], rows)
 
 
-def clinic(seed=4242, n=600):
+def clinic(seed=11, n=1200):
     """An invented outpatient clinic: age group affects who gets the new
     dressing and how likely recovery within two weeks is."""
     rng = random.Random(seed)

@@ -12,10 +12,12 @@
 //! This is the top of the library: nothing here knows about Jupyter or
 //! notebooks; the kernel and the headless runner only move bytes in and out.
 
+pub mod figures;
+pub mod format;
 pub mod output;
 pub mod parse;
 mod session;
-mod statements;
+pub mod statements;
 
 pub use output::{CellError, CellOutcome, Display};
 pub use parse::{split_statements, SourceLine, Statement};

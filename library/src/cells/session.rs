@@ -8,6 +8,8 @@ use super::output::{CellError, CellOutcome};
 use super::parse::split_statements;
 use super::statements;
 use crate::graph::Graph;
+use crate::infer::fit::Fit;
+use crate::model::Model;
 use crate::table::Table;
 
 /// How a running cell is steered from outside: a cancel flag (set by an
@@ -19,11 +21,15 @@ pub struct RunControl<'a> {
 
 /// Named tables, graphs and models, plus the folder that relative paths in
 /// cells are read from.
-#[derive(Debug, Default)]
+#[derive(Default)]
 pub struct Session {
     pub(crate) base_dir: PathBuf,
     pub(crate) tables: BTreeMap<String, Table>,
     pub(crate) graphs: BTreeMap<String, Graph>,
+    pub(crate) models: BTreeMap<String, Model>,
+    pub(crate) fits: BTreeMap<String, Fit>,
+    /// The most recent figure any statement drew, for `save figure`.
+    pub(crate) last_figure: Option<String>,
 }
 
 impl Session {
@@ -51,6 +57,15 @@ impl Session {
         self.graphs.get(name)
     }
 
+    pub fn model(&self, name: &str) -> Option<&Model> {
+        self.models.get(name)
+    }
+
+    /// The latest fit of model `name`.
+    pub fn fit(&self, name: &str) -> Option<&Fit> {
+        self.fits.get(name)
+    }
+
     /// Publish a table under `name` (used by Rust cells and by `simulate`).
     pub fn put_table(&mut self, name: &str, mut table: Table) {
         table.name = name.to_string();
@@ -61,7 +76,8 @@ impl Session {
     pub fn names(&self) -> Vec<(String, &'static str)> {
         let tables = self.tables.keys().map(|k| (k.clone(), "table"));
         let graphs = self.graphs.keys().map(|k| (k.clone(), "graph"));
-        tables.chain(graphs).collect()
+        let models = self.models.keys().map(|k| (k.clone(), "model"));
+        tables.chain(graphs).chain(models).collect()
     }
 
     /// Run every statement of a cell in order. The first error stops the
@@ -77,7 +93,12 @@ impl Session {
         };
         for st in &statements {
             match statements::run(self, st, control, &mut outcome.warnings) {
-                Ok(displays) => outcome.displays.extend(displays),
+                Ok(displays) => {
+                    if let Some(svg) = displays.iter().rev().find_map(|d| d.svg.clone()) {
+                        self.last_figure = Some(svg);
+                    }
+                    outcome.displays.extend(displays)
+                }
                 Err(e) => {
                     outcome.error = Some(e);
                     break;

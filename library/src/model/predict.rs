@@ -112,3 +112,49 @@ fn whole_numbers(table: &Table, column: &str, values: &[f64]) -> Result<Vec<u64>
         })
         .collect()
 }
+
+impl Model {
+    /// The same model — design, recipes and priors unchanged — with new
+    /// outcome values `y` for the fitted rows: outcomes simulated from the
+    /// prior for simulation-based calibration, where the priors must not
+    /// move with the simulated data. Normal, bernoulli and poisson families.
+    pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
+        use super::family::gaussian::GaussianStats;
+        use super::family::likelihood::{GlmData, GlmOutcome};
+        use super::posterior::Likelihood;
+        use super::terms::TermRecipe;
+        if y.len() != self.y.len() {
+            return Err(ModelError::Parameters {
+                message: format!("{} outcome values were given for the {} rows of model `{}`", y.len(), self.y.len(), self.name),
+            });
+        }
+        let likelihood = match (&self.likelihood, &self.family) {
+            (Likelihood::Gaussian { spread_prior, .. }, _) => {
+                let mut intercepts = Vec::new();
+                let mut offset = 0;
+                for recipe in &self.recipes {
+                    let width = recipe.labels().len();
+                    if matches!(recipe, TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. }) {
+                        intercepts.extend(offset..offset + width);
+                    }
+                    offset += width;
+                }
+                Likelihood::Gaussian { stats: GaussianStats::new(&self.design, &y, intercepts), spread_prior: spread_prior.clone() }
+            }
+            (Likelihood::Glm(_), Family::Bernoulli | Family::Poisson) => {
+                let rows: Vec<f64> = self.design.transpose().as_slice().to_vec();
+                let outcome = match self.family {
+                    Family::Poisson => GlmOutcome::Poisson { y: y.clone() },
+                    _ => GlmOutcome::Bernoulli { y: y.clone() },
+                };
+                Likelihood::Glm(GlmData::new(rows, self.design.ncols(), outcome))
+            }
+            _ => {
+                return Err(ModelError::Parameters {
+                    message: format!("model `{}`: new outcomes for a binomial model are not supported yet", self.name),
+                })
+            }
+        };
+        Ok(Model { y, likelihood, ..self.clone() })
+    }
+}

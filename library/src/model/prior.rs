@@ -243,3 +243,30 @@ fn unknown_prior(name: &str, given: usize, text: &str) -> ModelError {
     };
     ModelError::syntax(format!("`{text}`: {name} takes {wanted}, not {given}"))
 }
+
+impl Prior {
+    /// One draw from the prior with `rng` (for prior predictive checks and
+    /// simulation-based calibration; seed the generator).
+    pub fn sample<R: rand::Rng + ?Sized>(&self, rng: &mut R) -> f64 {
+        use rand_distr::{Distribution, Exp, LogNormal, StandardNormal, StudentT};
+        match *self {
+            Prior::Normal { mean, sd } => {
+                let e: f64 = StandardNormal.sample(rng);
+                mean + sd * e
+            }
+            Prior::StudentT { df, location, scale } => match StudentT::new(df) {
+                Ok(t) => location + scale * t.sample(rng),
+                Err(_) => location,
+            },
+            Prior::Exponential { rate } => Exp::new(rate).map(|e| e.sample(rng)).unwrap_or(1.0 / rate),
+            Prior::HalfNormal { sd } => {
+                let e: f64 = StandardNormal.sample(rng);
+                (sd * e).abs()
+            }
+            Prior::LogNormal { log_mean, log_sd } => {
+                LogNormal::new(log_mean, log_sd).map(|d| d.sample(rng)).unwrap_or(log_mean.exp())
+            }
+            Prior::Uniform { lower, upper } => lower + (upper - lower) * rand::RngExt::random::<f64>(rng),
+        }
+    }
+}

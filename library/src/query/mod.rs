@@ -1,1 +1,46 @@
-//! (module under construction)
+//! Causal queries answered from posterior draws: what the scientist came for.
+//!
+//! Everything here takes fitted models (or a graph and a table) and returns
+//! plain result structs that serialise to JSON; the `cells` layer renders
+//! them. Every uncertain number is computed draw by draw and summarised last
+//! (paired draws, never "means first"), and every random step takes a seed.
+//!
+//! * [`contrast`]: contrasts between two settings of a predictor on the
+//!   posterior mean or on simulated outcomes, at stated values of the other
+//!   predictors or averaged over the table's rows, optionally along a grid.
+//! * [`answer`]: one call from a graph, a table and an effect to a fitted
+//!   adjustment model and its contrasts, with the reason for the set.
+//! * [`joint`]: one regression per observed node of a graph (a whole-graph
+//!   model), and [`intervene`]: simulated interventions through it.
+//! * [`mechanism`] and [`simulate`]: synthetic data from stated mechanisms,
+//!   with the true effect of an intervention; [`recover`]: posterior
+//!   intervals beside the true values.
+//! * [`calibrate`]: simulation-based calibration over the prior and prior /
+//!   posterior predictive outcome sets.
+//! * [`implications`]: the graph's testable implications checked against data.
+//!
+//! The query layer never reads files and never renders.
+
+pub mod answer;
+pub mod calibrate;
+pub mod contrast;
+mod error;
+pub mod implications;
+pub mod intervene;
+pub mod joint;
+pub mod mechanism;
+pub mod recover;
+pub mod simulate;
+mod support;
+
+pub use answer::{answer_effect, EffectAnswer};
+pub use calibrate::{calibrate, posterior_predictive, prior_predictive, Calibration, PredictiveSets};
+pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
+pub use error::QueryError;
+pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
+pub use intervene::{compare_routes, intervene, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
+pub use joint::{build_joint, fit_joint, JointFit, JointModel, JointNode, NodeModel};
+pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
+pub use recover::{recover, Recovery, RecoveryParameter};
+pub use simulate::{Simulation, SimulationSettings};
+pub use support::ContrastSummary;

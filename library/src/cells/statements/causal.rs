@@ -5,6 +5,7 @@ use serde_json::json;
 
 use super::data::is_name;
 use super::{form_error, unquote};
+use crate::cells::figures::{self, GraphMarks};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::{split_commas, Statement};
 use crate::cells::session::Session;
@@ -30,7 +31,7 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
             builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
         }
         ["graph", name, "from", _] if is_name(name) && !st.expects_body() => {
-            let raw = st.head().split_once("from").map(|(_, p)| p.trim()).unwrap_or("");
+            let raw = st.head().split_once(" from ").map(|(_, p)| p.trim()).unwrap_or("");
             let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FORM))?;
             let file = session.resolve(path);
             let text = std::fs::read_to_string(&file).map_err(|e| {
@@ -45,7 +46,7 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
     Ok(vec![display])
 }
 
-fn describe_graph(graph: &Graph) -> Display {
+pub(crate) fn describe_graph(graph: &Graph) -> Display {
     let hidden: Vec<&str> = graph.nodes().iter().filter(|n| n.hidden).map(|n| n.name.as_str()).collect();
     let edges = graph.edges();
     let heading = format!(
@@ -67,7 +68,8 @@ fn describe_graph(graph: &Graph) -> Display {
         "nodes": graph.nodes().iter().map(|n| json!({"name": n.name, "hidden": n.hidden})).collect::<Vec<_>>(),
         "edges": edges.iter().map(|(a, b)| json!([a, b])).collect::<Vec<_>>(),
     });
-    Display { plain, html: Some(html_block(&heading, &[html_list(&notes)])), svg: None, json: Some(json) }
+    let svg = figures::graph(graph, graph.name(), &GraphMarks::default()).ok();
+    Display { plain, html: Some(html_block(&heading, &[html_list(&notes)])), svg, json: Some(json) }
 }
 
 /// `ask total|direct effect of X on Y in G`.
@@ -80,7 +82,11 @@ pub(crate) fn ask(session: &mut Session, st: &Statement) -> Result<Vec<Display>,
     let graph = session.require_graph(g, st.header.number)?;
     let answer = if kind == "total" { graph.total_effect(x, y) } else { graph.direct_effect(x, y) };
     let answer = answer.map_err(|e| CellError::at(st.header.number, e.to_string()))?;
-    Ok(vec![describe_identification(&answer)])
+    let mut display = describe_identification(&answer);
+    let adjusted = answer.adjustment_sets.first().cloned().unwrap_or_default();
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new() };
+    display.svg = figures::graph(graph, &format!("{kind} effect of {x} on {y} in {g}"), &marks).ok();
+    Ok(vec![display])
 }
 
 fn describe_identification(id: &Identification) -> Display {
@@ -155,7 +161,28 @@ pub(crate) fn paths(session: &mut Session, st: &Statement) -> Result<Vec<Display
     } else {
         format!("{heading}\n{}", grid.to_text())
     };
-    Ok(vec![Display { plain, html: Some(html_block(&heading, &[grid.to_html()])), svg: None, json: Some(json) }])
+    let highlight = open_edges(&reports);
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &given, highlight };
+    let svg = figures::graph(graph, &format!("open paths from {x} to {y} in {g}"), &marks).ok();
+    Ok(vec![Display { plain, html: Some(html_block(&heading, &[grid.to_html()])), svg, json: Some(json) }])
+}
+
+/// Edges (cause, effect) that lie on an open path.
+fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
+    let mut edges = Vec::new();
+    for p in reports.iter().filter(|p| p.open) {
+        for (i, arrow) in p.arrows.iter().enumerate() {
+            let (a, b) = (&p.nodes[i], &p.nodes[i + 1]);
+            let edge = match arrow {
+                crate::graph::Arrow::Forward => (a.clone(), b.clone()),
+                crate::graph::Arrow::Backward => (b.clone(), a.clone()),
+            };
+            if !edges.contains(&edge) {
+                edges.push(edge);
+            }
+        }
+    }
+    edges
 }
 
 /// `implications of G`: the independences the graph claims.

@@ -41,6 +41,32 @@ pub(crate) fn is_name(s: &str) -> bool {
     chars.next().is_some_and(|c| c.is_alphabetic() || c == '_') && chars.all(|c| c.is_alphanumeric() || c == '_')
 }
 
+/// A table already in the session (made by a statement or a Rust cell).
+pub(crate) fn describe_loaded(table: &Table) -> Display {
+    let heading = format!("table {}: {} rows × {} columns", table.name, table.nrows(), table.columns.len());
+    let mut grid = Grid::new(&["column", "kind", "unit", "levels (in order)"]);
+    for column in &table.columns {
+        grid.push(vec![
+            column.name.clone(),
+            column.data.kind().name().to_string(),
+            column.unit.clone().unwrap_or_default(),
+            column.data.levels().map(level_list).unwrap_or_default(),
+        ]);
+    }
+    let columns: Vec<serde_json::Value> = table
+        .columns
+        .iter()
+        .map(|c| serde_json::json!({"name": c.name, "kind": c.data.kind().name(), "levels": c.data.levels(), "missing": 0}))
+        .collect();
+    let json = serde_json::json!({"name": table.name, "rows": table.nrows(), "columns": columns, "dropped": 0});
+    Display {
+        plain: format!("{heading}\n{}", grid.to_text()),
+        html: Some(html_block(&heading, &[grid.to_html()])),
+        svg: None,
+        json: Some(json),
+    }
+}
+
 fn describe(table: &Table, report: &LoadReport) -> Display {
     let heading = format!(
         "table {}: {} rows × {} columns from {}",

@@ -1,14 +1,16 @@
 //! One function per statement family; [`run`] dispatches on the first word.
 
-mod data;
 mod causal;
+mod data;
+mod fitting;
 
 use super::output::{CellError, Display};
 use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
 
 /// The first words that start a statement, for error messages and completion.
-pub const KEYWORDS: &[&str] = &["table", "graph", "ask", "paths", "implications"];
+pub const KEYWORDS: &[&str] =
+    &["table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save"];
 
 /// Run one statement against the session.
 pub(crate) fn run(
@@ -17,7 +19,6 @@ pub(crate) fn run(
     control: &RunControl,
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
-    let _ = control;
     let head = st.head();
     let first = head.split_whitespace().next().unwrap_or("");
     if !st.expects_body() && matches!(first, "table" | "graph") && head.contains(':') {
@@ -29,6 +30,12 @@ pub(crate) fn run(
         "ask" => causal::ask(session, st),
         "paths" => causal::paths(session, st),
         "implications" => causal::implications(session, st),
+        "model" => fitting::model(session, st),
+        "fit" => fitting::fit(session, st, control, warnings),
+        "show" => fitting::show(session, st),
+        "export" => fitting::export(session, st),
+        "plot" => fitting::plot(session, st),
+        "save" => save_figure(session, st),
         other => Err(unknown_statement(other, st.header.number)),
     }
 }
@@ -51,4 +58,20 @@ pub(crate) fn form_error(st: &Statement, form: &str) -> CellError {
 /// Strip surrounding double quotes from a path argument.
 pub(crate) fn unquote(s: &str) -> Option<&str> {
     s.strip_prefix('"').and_then(|s| s.strip_suffix('"'))
+}
+
+/// `save figure to "FILE.svg"`: write the most recent figure of the session.
+fn save_figure(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    const FORM: &str = "save figure to \"FILE.svg\"";
+    let path = st
+        .head()
+        .strip_prefix("save figure to")
+        .and_then(|p| unquote(p.trim()))
+        .ok_or_else(|| form_error(st, FORM))?;
+    let svg = session.last_figure.clone().ok_or_else(|| {
+        CellError::at(st.header.number, "no figure has been drawn in this session yet; run a statement that draws one first")
+    })?;
+    let file = session.resolve(path);
+    std::fs::write(&file, &svg).map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
+    Ok(vec![Display::text(format!("saved the latest figure ({} KB) to {path}", svg.len().div_ceil(1024)))])
 }

@@ -1,0 +1,272 @@
+//! Adapters from session objects to the plain inputs of [`crate::plot`].
+
+use crate::draws::summary::quantile;
+use crate::graph::Graph;
+use crate::infer::fit::Fit;
+use crate::model::{Family, Input, Model};
+use crate::plot::{
+    basis_figure, graph_figure, lines_figure, posterior_figure, trace_figure, BasisPicture, DensityArrangement,
+    EdgeMark, GraphPicture, LineGroup, NodeMark, ParameterDraws, PlotError, Quantity, Role,
+};
+use crate::table::{Column, ColumnData, Table};
+
+/// How to mark a graph drawing: exposure, outcome, an adjustment set, and
+/// edges to highlight (by cause and effect names).
+#[derive(Debug, Default)]
+pub struct GraphMarks<'a> {
+    pub exposure: Option<&'a str>,
+    pub outcome: Option<&'a str>,
+    pub adjusted: &'a [String],
+    pub highlight: Vec<(String, String)>,
+}
+
+/// The causal graph with the question's marks.
+pub fn graph(graph: &Graph, title: &str, marks: &GraphMarks) -> Result<String, PlotError> {
+    let nodes: Vec<NodeMark> = graph
+        .nodes()
+        .iter()
+        .map(|n| {
+            let role = if Some(n.name.as_str()) == marks.exposure {
+                Role::Exposure
+            } else if Some(n.name.as_str()) == marks.outcome {
+                Role::Outcome
+            } else if marks.adjusted.contains(&n.name) {
+                Role::Adjusted
+            } else {
+                Role::Plain
+            };
+            NodeMark { name: n.name.clone(), hidden: n.hidden, role }
+        })
+        .collect();
+    let index = |name: &str| graph.nodes().iter().position(|n| n.name == name).unwrap_or(0);
+    let edges = graph
+        .edges()
+        .iter()
+        .map(|(a, b)| EdgeMark {
+            from: index(a),
+            to: index(b),
+            highlight: marks.highlight.iter().any(|(x, y)| x == a && y == b),
+        })
+        .collect();
+    graph_figure(&GraphPicture { title: title.to_string(), nodes, edges })
+}
+
+/// Posterior densities of the coefficients (the spread is left out: it is
+/// on another scale and rarely the question).
+pub fn posterior(model: &Model, fit: &Fit) -> Result<String, PlotError> {
+    posterior_of(model, fit, &[])
+}
+
+/// Posterior densities of the chosen parameters (all coefficients if none chosen).
+pub fn posterior_of(model: &Model, fit: &Fit, chosen: &[String]) -> Result<String, PlotError> {
+    let names = chosen_or_coefficients(model, chosen);
+    let params: Vec<ParameterDraws> = names
+        .iter()
+        .filter_map(|n| fit.draws.get(n).map(|d| ParameterDraws { name: n.as_str(), draws: d }))
+        .collect();
+    let subject = format!("{} parameters", model.name());
+    posterior_figure(&subject, &Quantity::new("parameter value"), &params, DensityArrangement::Stacked)
+}
+
+/// Trace and rank plots per chain.
+pub fn trace(model: &Model, fit: &Fit, chosen: &[String]) -> Result<String, PlotError> {
+    let names = chosen_or_coefficients(model, chosen);
+    let params: Vec<ParameterDraws> = names
+        .iter()
+        .filter_map(|n| fit.draws.get(n).map(|d| ParameterDraws { name: n.as_str(), draws: d }))
+        .collect();
+    trace_figure(model.name(), fit.draws.chains, &params)
+}
+
+fn chosen_or_coefficients(model: &Model, chosen: &[String]) -> Vec<String> {
+    if chosen.is_empty() {
+        model.coefficient_names().iter().take(8).cloned().collect()
+    } else {
+        chosen.to_vec()
+    }
+}
+
+/// Fitted lines of the mean over a real predictor, one band per level of the
+/// first category input, over the observed data. `over` picks the predictor
+/// (default: the first real input). Other inputs are held at their centre or
+/// first level; the returned sentence says so.
+pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Result<(String, String), String> {
+    let inputs = model.inputs();
+    let x_name = match over {
+        Some(x) => inputs
+            .iter()
+            .find(|i| matches!(i, Input::Real { column, .. } if column == x))
+            .map(|i| i.column().to_string())
+            .ok_or_else(|| format!("model {} has no real predictor {x}", model.name()))?,
+        None => inputs
+            .iter()
+            .find(|i| matches!(i, Input::Real { .. }))
+            .map(|i| i.column().to_string())
+            .ok_or_else(|| format!("model {} has no real predictor to draw lines over", model.name()))?,
+    };
+    let group = inputs.iter().find_map(|i| match i {
+        Input::Category { column, levels } => Some((column.clone(), levels.clone())),
+        _ => None,
+    });
+    let x_data = table.column(&x_name).and_then(|c| c.data.as_reals()).ok_or("the predictor is not in the table")?;
+    let (lo, hi) = x_data.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    let grid: Vec<f64> = (0..GRID_POINTS).map(|i| lo + (hi - lo) * i as f64 / (GRID_POINTS - 1) as f64).collect();
+    let y_data = outcome_per_trial(model, table);
+    let levels: Vec<Option<(String, String, u32)>> = match &group {
+        Some((col, levels)) => levels.iter().enumerate().map(|(k, l)| Some((col.clone(), l.clone(), k as u32))).collect(),
+        None => vec![None],
+    };
+    let mut groups = Vec::new();
+    for level in &levels {
+        let rows = grid_table(&inputs, &x_name, &grid, level.as_ref().map(|(c, _, k)| (c.as_str(), *k)))?;
+        let band = mean_band(model, fit, &rows)?;
+        let points = observed_points(table, &x_data, &y_data, level.as_ref().map(|(c, l, _)| (c.as_str(), l.as_str())));
+        groups.push(LineGroup {
+            label: level.as_ref().map_or_else(|| "all rows".to_string(), |(_, l, _)| l.clone()),
+            points,
+            grid: grid.clone(),
+            mean: band.0,
+            lower: band.1,
+            upper: band.2,
+        });
+    }
+    let held = held_note(&inputs, &x_name, group.as_ref().map(|(c, _)| c.as_str()));
+    let x_q = quantity(table, &x_name);
+    let y_q = quantity(table, model.outcome_name());
+    let svg = lines_figure(&format!("{} mean over {x_name}", model.name()), &x_q, &y_q, "90% interval", &groups)
+        .map_err(|e| e.to_string())?;
+    Ok((svg, held))
+}
+
+/// The B-spline basis of the model's (first) spline term and the fitted
+/// curve it makes, with the data.
+pub fn basis(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> {
+    let terms = model.spline_terms();
+    let term = terms.first().ok_or_else(|| format!("model {} has no spline term", model.name()))?;
+    let (lo, hi) = term.basis.range();
+    let grid: Vec<f64> = (0..GRID_POINTS).map(|i| lo + (hi - lo) * i as f64 / (GRID_POINTS - 1) as f64).collect();
+    let rows: Vec<Vec<f64>> = grid.iter().map(|&x| term.basis.row(x)).collect();
+    let basis: Vec<Vec<f64>> = (1..term.basis.len()).map(|k| rows.iter().map(|r| r[k]).collect()).collect();
+    let names = &fit.draws.names;
+    let thin = thin_indices(fit.draws.len(), 400);
+    let weights: Vec<Vec<f64>> = thin
+        .iter()
+        .map(|&d| term.coefficients.iter().map(|&c| fit.draws.values[c][d]).collect())
+        .collect();
+    let intercept_index = names.iter().position(|n| n == "intercept").or_else(|| {
+        model.coefficient_names().iter().position(|n| n.contains('[') && !n.starts_with("b_") && !n.starts_with("w_"))
+    });
+    let intercept: Vec<f64> = match intercept_index {
+        Some(i) => thin.iter().map(|&d| fit.draws.values[i][d]).collect(),
+        None => Vec::new(),
+    };
+    let x = table.column(term.column).and_then(|c| c.data.as_reals()).unwrap_or_default();
+    let y = outcome_per_trial(model, table);
+    let points = x.iter().copied().zip(y.iter().copied()).collect();
+    let picture = BasisPicture { grid, basis, weights, intercept, points };
+    basis_figure(model.name(), &quantity(table, term.column), &quantity(table, model.outcome_name()), &picture)
+        .map_err(|e| e.to_string())
+}
+
+const GRID_POINTS: usize = 60;
+
+fn quantity(table: &Table, column: &str) -> Quantity {
+    match table.column(column).and_then(|c| c.unit.clone()) {
+        Some(unit) => Quantity::with_unit(column, unit),
+        None => Quantity::new(column),
+    }
+}
+
+/// The outcome as plotted: per trial for a binomial model.
+fn outcome_per_trial(model: &Model, table: &Table) -> Vec<f64> {
+    let y = table.column(model.outcome_name()).and_then(|c| c.data.as_reals()).unwrap_or_default();
+    match model.family() {
+        Family::Binomial { trials } => {
+            let n = table.column(trials).and_then(|c| c.data.as_reals()).unwrap_or_default();
+            y.iter().zip(&n).map(|(a, b)| if *b > 0.0 { a / b } else { f64::NAN }).collect()
+        }
+        _ => y,
+    }
+}
+
+/// A table of new rows: `x` over the grid, the chosen level for the group
+/// column, every other input at its centre or first level.
+fn grid_table(inputs: &[Input], x: &str, grid: &[f64], level: Option<(&str, u32)>) -> Result<Table, String> {
+    let n = grid.len();
+    let columns = inputs
+        .iter()
+        .map(|input| match input {
+            Input::Real { column, .. } if column == x => Column::new(column.clone(), ColumnData::Real(grid.to_vec())),
+            Input::Real { column, centre } => Column::new(column.clone(), ColumnData::Real(vec![*centre; n])),
+            Input::Category { column, levels } => {
+                let code = match level {
+                    Some((c, k)) if c == column => k,
+                    _ => 0,
+                };
+                Column::new(column.clone(), ColumnData::Category { codes: vec![code; n], levels: levels.clone() })
+            }
+        })
+        .collect();
+    Table::from_columns("grid", columns).map_err(|e| e.to_string())
+}
+
+/// Posterior mean and 90% band of the model's mean at each new row.
+fn mean_band(model: &Model, fit: &Fit, rows: &Table) -> Result<(Vec<f64>, Vec<f64>, Vec<f64>), String> {
+    let new_rows = model.new_rows(rows).map_err(|e| e.to_string())?;
+    let thin = thin_indices(fit.draws.len(), 1000);
+    let mut per_row: Vec<Vec<f64>> = vec![Vec::with_capacity(thin.len()); rows.nrows()];
+    for &d in &thin {
+        let params: Vec<f64> = fit.draws.values.iter().map(|v| v[d]).collect();
+        let p = model.predict_mean(&params, &new_rows).map_err(|e| e.to_string())?;
+        for (i, m) in p.mean.iter().enumerate() {
+            per_row[i].push(*m);
+        }
+    }
+    let mut out = (Vec::new(), Vec::new(), Vec::new());
+    for values in per_row {
+        let mean = values.iter().sum::<f64>() / values.len() as f64;
+        out.0.push(mean);
+        out.1.push(quantile(&values, 0.05));
+        out.2.push(quantile(&values, 0.95));
+    }
+    Ok(out)
+}
+
+fn observed_points(table: &Table, x: &[f64], y: &[f64], level: Option<(&str, &str)>) -> Vec<(f64, f64)> {
+    let keep: Vec<bool> = match level.and_then(|(c, l)| table.column(c).map(|col| (col, l))) {
+        Some((col, l)) => match &col.data {
+            ColumnData::Category { codes, levels } => {
+                let k = levels.iter().position(|v| v == l).map(|k| k as u32);
+                codes.iter().map(|c| Some(*c) == k).collect()
+            }
+            _ => vec![true; x.len()],
+        },
+        None => vec![true; x.len()],
+    };
+    x.iter().zip(y).zip(keep).filter(|(_, k)| *k).map(|((a, b), _)| (*a, *b)).collect()
+}
+
+fn held_note(inputs: &[Input], x: &str, group: Option<&str>) -> String {
+    let held: Vec<String> = inputs
+        .iter()
+        .filter(|i| i.column() != x && Some(i.column()) != group)
+        .map(|i| match i {
+            Input::Real { column, centre } => format!("{column} at {}", crate::cells::format::num(*centre)),
+            Input::Category { column, levels } => format!("{column} at {}", levels[0]),
+        })
+        .collect();
+    if held.is_empty() {
+        "lines show the posterior mean and 90% interval of the expected outcome".to_string()
+    } else {
+        format!("lines show the expected outcome with {} held fixed", held.join(", "))
+    }
+}
+
+/// Evenly spaced draw indices, at most `max` of them.
+fn thin_indices(total: usize, max: usize) -> Vec<usize> {
+    if total <= max {
+        (0..total).collect()
+    } else {
+        (0..max).map(|i| i * total / max).collect()
+    }
+}

@@ -1,0 +1,332 @@
+//! Statements about models: `model`, `fit`, `show`, `export`, `plot`.
+
+use std::sync::atomic::Ordering;
+
+use serde_json::json;
+
+use super::data::is_name;
+use super::{form_error, unquote};
+use crate::cells::figures;
+use crate::cells::format::num;
+use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
+use crate::cells::parse::Statement;
+use crate::cells::session::{suggest, RunControl, Session};
+use crate::draws::SummarySpec;
+use crate::infer::fit::{fit_model, Fit, Method, LAPLACE_DRAWS, LAPLACE_SEED};
+use crate::infer::nuts::{NutsSettings, Progress};
+use crate::model::{Model, ModelSpec};
+
+const MODEL_FORM: &str = "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)";
+const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
+const EXPORT_FORM: &str = "export NAME draws to \"FILE.csv\"";
+const PLOT_FORM: &str = "plot NAME posterior|trace [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis";
+
+/// The interval every fit table shows.
+pub(crate) const INTERVAL_MASS: f64 = 0.9;
+
+/// `model NAME:` — build the model against its table and describe it.
+pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let name = match words.as_slice() {
+        ["model", name] if is_name(name) && st.expects_body() => *name,
+        _ => return Err(form_error(st, MODEL_FORM)),
+    };
+    let lines = st.body.iter().map(|l| (l.number, l.text.as_str()));
+    let spec = ModelSpec::from_lines(name, lines).map_err(|e| model_error(st, e))?;
+    let line = spec.formula_line.unwrap_or(st.header.number);
+    let table = session.require_table(&spec.table, line)?;
+    let model = Model::build(&spec, table).map_err(|e| CellError::at(line, e.to_string()))?;
+    let display = describe_model(&model, table.nrows());
+    session.fits.remove(name);
+    session.models.insert(name.to_string(), model);
+    Ok(vec![display])
+}
+
+fn model_error(st: &Statement, e: crate::model::error::ModelError) -> CellError {
+    // ModelError messages already start with "model line N:" when they have a place.
+    CellError { line: None, message: format!("{} (model starting at cell line {})", e, st.header.number) }
+}
+
+fn describe_model(model: &Model, rows: usize) -> Display {
+    let names = model.parameter_names();
+    let heading = format!(
+        "model {}: {} ({} family, {} link) from table {}, {rows} rows, {} parameters",
+        model.name(),
+        model.outcome_name(),
+        model.family().name(),
+        model.family().link_name(),
+        model.table_name(),
+        names.len()
+    );
+    let grid = priors_grid(model);
+    let notes: Vec<String> = model.notes().to_vec();
+    let mut plain = format!("{heading}\n{}", grid.to_text());
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    let json = json!({
+        "model": model.name(), "outcome": model.outcome_name(), "family": model.family().name(),
+        "table": model.table_name(), "rows": rows, "parameters": names, "notes": notes,
+    });
+    Display { plain, html: Some(html_block(&heading, &[grid.to_html(), html_list(&notes)])), svg: None, json: Some(json) }
+}
+
+fn priors_grid(model: &Model) -> Grid {
+    let mut grid = Grid::new(&["prior group", "parameters", "prior", "source"]);
+    let mut rows: Vec<(String, Vec<String>, String, bool)> = Vec::new();
+    for p in model.priors_used() {
+        let prior = p.prior.to_string();
+        match rows.last_mut() {
+            Some(last) if last.0 == p.group.name() && last.2 == prior && last.3 == p.declared => {
+                last.1.extend(p.parameters.iter().cloned())
+            }
+            _ => rows.push((p.group.name().to_string(), p.parameters.clone(), prior, p.declared)),
+        }
+    }
+    for (group, parameters, prior, declared) in rows {
+        let source = if declared { "declared" } else { "default (data scale)" };
+        grid.push(vec![group, parameters.join(", "), prior, source.to_string()]);
+    }
+    grid
+}
+
+/// `fit NAME [with …]` — sample or approximate the posterior.
+pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, warnings: &mut Vec<String>) -> Result<Vec<Display>, CellError> {
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (name, options) = match words.as_slice() {
+        ["fit", name, rest @ ..] => (*name, rest),
+        _ => return Err(form_error(st, FIT_FORM)),
+    };
+    let method = parse_method(options).map_err(|m| CellError::at(st.header.number, format!("{m}; the form is: {FIT_FORM}")))?;
+    let model = session.models.get(name).ok_or_else(|| {
+        CellError::at(st.header.number, format!("there is no model named {name}{}", suggest(name, session.models.keys())))
+    })?;
+    let progress = |p: Progress| {
+        if p.iteration % 100 == 0 || p.iteration == p.total {
+            (control.progress)(&format!("fit {name}: chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
+        }
+    };
+    let fit = fit_model(model, &method, control.cancel, &progress).map_err(|e| {
+        let stopped = control.cancel.load(Ordering::Relaxed);
+        let message = if stopped { format!("fit {name} was interrupted; the session is unchanged") } else { format!("fit {name}: {e}") };
+        CellError::at(st.header.number, message)
+    })?;
+    warnings.extend(fit.warnings.iter().map(|w| format!("fit {name}: {w}")));
+    let display = describe_fit(model, &fit)?;
+    session.fits.insert(name.to_string(), fit);
+    Ok(vec![display])
+}
+
+/// Read `with laplace …` / `with nuts …` options.
+fn parse_method(words: &[&str]) -> Result<Method, String> {
+    let (kind, rest) = match words {
+        [] => ("nuts", &[][..]),
+        ["with", kind, rest @ ..] => (*kind, rest),
+        _ => return Err(format!("cannot read the options \"{}\"", words.join(" "))),
+    };
+    if rest.len() % 2 != 0 {
+        return Err(format!("options come in pairs like `draws 2000`; got \"{}\"", rest.join(" ")));
+    }
+    let pairs: Vec<(&str, &str)> = rest.chunks(2).map(|c| (c[0], c[1])).collect();
+    let count = |k: &str, v: &str| v.parse::<usize>().map_err(|_| format!("{k} takes a whole number, not \"{v}\""));
+    match kind {
+        "laplace" => {
+            let (mut draws, mut seed) = (LAPLACE_DRAWS, LAPLACE_SEED);
+            for (k, v) in pairs {
+                match k {
+                    "draws" => draws = count(k, v)?,
+                    "seed" => seed = count(k, v)? as u64,
+                    other => return Err(format!("laplace takes `draws` and `seed`, not `{other}`")),
+                }
+            }
+            Ok(Method::Laplace { draws, seed })
+        }
+        "nuts" => {
+            let mut s = NutsSettings::default();
+            for (k, v) in pairs {
+                match k {
+                    "chains" => s.chains = count(k, v)?,
+                    "warmup" => s.warmup = count(k, v)?,
+                    "draws" => s.draws = count(k, v)?,
+                    "seed" => s.seed = count(k, v)? as u64,
+                    "depth" => s.max_depth = count(k, v)? as u32,
+                    "accept" => {
+                        s.target_accept = v
+                            .parse::<f64>()
+                            .ok()
+                            .filter(|a| *a > 0.0 && *a < 1.0)
+                            .ok_or_else(|| format!("accept takes a number between 0 and 1, not \"{v}\""))?
+                    }
+                    other => return Err(format!("nuts takes chains, warmup, draws, seed, accept, depth — not `{other}`")),
+                }
+            }
+            Ok(Method::Nuts(s))
+        }
+        other => Err(format!("unknown method `{other}`; use `with nuts` or `with laplace`")),
+    }
+}
+
+/// The parameter table of a fit with its priors, diagnostics and warnings.
+pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellError> {
+    let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
+    let summaries = fit.draws.summarise(&spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
+    let pct = format!("{:.0}%", INTERVAL_MASS * 100.0);
+    let heading = format!(
+        "fit {}: {} draws in {:.2} s — {}",
+        model.name(),
+        fit.draws.len(),
+        fit.seconds,
+        fit.method.describe()
+    );
+    let lower = format!("{pct} lower");
+    let upper = format!("{pct} upper");
+    let mut grid = Grid::new(&["parameter", "mean", "sd", &lower, &upper, "P(>0)", "R-hat", "bulk ESS", "tail ESS"])
+        .numeric_columns(&[1, 2, 3, 4, 5, 6, 7, 8]);
+    let mut params_json = Vec::new();
+    for (i, s) in summaries.iter().enumerate() {
+        let d = fit.diagnostics.as_ref().map(|d| d[i]);
+        grid.push(vec![
+            s.name.clone(),
+            num(s.mean),
+            num(s.sd),
+            num(s.interval.lower),
+            num(s.interval.upper),
+            format!("{:.2}", s.prob_positive),
+            d.map_or("—".into(), |d| format!("{:.3}", d.rhat)),
+            d.map_or("—".into(), |d| format!("{:.0}", d.ess_bulk)),
+            d.map_or("—".into(), |d| format!("{:.0}", d.ess_tail)),
+        ]);
+        params_json.push(json!({
+            "name": s.name, "mean": s.mean, "sd": s.sd, "lower": s.interval.lower, "upper": s.interval.upper,
+            "p_positive": s.prob_positive,
+            "rhat": d.map(|d| d.rhat), "ess_bulk": d.map(|d| d.ess_bulk), "ess_tail": d.map(|d| d.ess_tail),
+        }));
+    }
+    let priors = priors_grid(model);
+    let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
+    if fit.diagnostics.is_none() {
+        notes.push("Laplace approximation: a normal fit at the posterior mode; R-hat and ESS do not apply".into());
+    } else if fit.warnings.is_empty() {
+        notes.push(format!("sampler checks passed: no divergences, every R-hat ≤ 1.01 and bulk ESS ≥ 400"));
+    }
+    notes.extend(fit.warnings.iter().map(|w| format!("warning: {w}")));
+    let mut plain = format!("{heading}\n{}\npriors:\n{}", grid.to_text(), priors.to_text());
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    let svg = figures::posterior(model, fit).ok();
+    let json = json!({
+        "model": model.name(), "method": fit.method.name(), "seed": fit.method.seed(),
+        "interval": INTERVAL_MASS, "parameters": params_json, "divergences": fit.divergences,
+        "seconds": fit.seconds, "warnings": fit.warnings,
+    });
+    let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
+    Ok(Display { plain, html: Some(html), svg, json: Some(json) })
+}
+
+/// `show NAME` — the latest result for a model, or a description of a table or graph.
+pub(crate) fn show(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let name = match words.as_slice() {
+        ["show", name] => *name,
+        _ => return Err(form_error(st, "show NAME")),
+    };
+    if let Some(model) = session.models.get(name) {
+        return match session.fits.get(name) {
+            Some(fit) => Ok(vec![describe_fit(model, fit)?]),
+            None => {
+                let rows = session.tables.get(model.table_name()).map_or(0, |t| t.nrows());
+                let mut d = describe_model(model, rows);
+                d.plain.push_str(&format!("\n• not fitted yet: run `fit {name}`"));
+                Ok(vec![d])
+            }
+        };
+    }
+    if let Some(graph) = session.graphs.get(name) {
+        return Ok(vec![super::causal::describe_graph(graph)]);
+    }
+    if let Some(table) = session.tables.get(name) {
+        return Ok(vec![super::data::describe_loaded(table)]);
+    }
+    let known = session.models.keys().chain(session.graphs.keys()).chain(session.tables.keys());
+    Err(CellError::at(st.header.number, format!("nothing is named {name}{}", suggest(name, known))))
+}
+
+/// `export NAME draws to "FILE.csv"`.
+pub(crate) fn export(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let head = st.head();
+    let words: Vec<&str> = head.split_whitespace().collect();
+    let name = match words.as_slice() {
+        ["export", name, "draws", "to", ..] => *name,
+        _ => return Err(form_error(st, EXPORT_FORM)),
+    };
+    let path = head.split_once(" to ").and_then(|(_, p)| unquote(p.trim())).ok_or_else(|| form_error(st, EXPORT_FORM))?;
+    let fit = require_fit(session, name, st.header.number)?;
+    let file = session.resolve(path);
+    let out = std::fs::File::create(&file)
+        .map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
+    fit.draws
+        .write_csv(std::io::BufWriter::new(out))
+        .map_err(|e| CellError::at(st.header.number, format!("writing {path}: {e}")))?;
+    let text = format!(
+        "exported {} draws of {} parameters of {name} to {path} (columns: chain, draw, {})",
+        fit.draws.len(),
+        fit.draws.names.len(),
+        fit.draws.names.join(", ")
+    );
+    let json = json!({"model": name, "file": path, "draws": fit.draws.len(), "columns": fit.draws.names});
+    Ok(vec![Display { plain: text.clone(), html: Some(html_block(&text, &[])), svg: None, json: Some(json) }])
+}
+
+pub(crate) fn require_fit<'s>(session: &'s Session, name: &str, line: usize) -> Result<&'s Fit, CellError> {
+    if !session.models.contains_key(name) {
+        return Err(CellError::at(line, format!("there is no model named {name}{}", suggest(name, session.models.keys()))));
+    }
+    session.fits.get(name).ok_or_else(|| CellError::at(line, format!("model {name} is not fitted yet; run `fit {name}` first")))
+}
+
+/// `plot NAME posterior|trace [of A, B]`.
+pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let head = st.head();
+    let (main, chosen) = match head.split_once(" of ") {
+        Some((m, list)) => (m, crate::cells::parse::split_commas(list)),
+        None => (head, Vec::new()),
+    };
+    let words: Vec<&str> = main.split_whitespace().collect();
+    let (name, kind, over) = match words.as_slice() {
+        ["plot", name, kind] => (*name, *kind, None),
+        ["plot", name, "lines", "over", x] => (*name, "lines", Some(*x)),
+        _ => return Err(form_error(st, PLOT_FORM)),
+    };
+    let fit = require_fit(session, name, st.header.number)?;
+    let model = &session.models[name];
+    if matches!(kind, "lines" | "basis") {
+        let table = session.require_table(model.table_name(), st.header.number)?;
+        let (svg, note) = if kind == "lines" {
+            figures::lines(model, fit, table, over)
+        } else {
+            figures::basis(model, fit, table).map(|svg| (svg, "thin lines: basis functions; thick: the fitted curve (posterior mean), faint: draws".to_string()))
+        }
+        .map_err(|e| CellError::at(st.header.number, e))?;
+        let text = format!("{kind} figure of {name}: {note}");
+        return Ok(vec![Display { plain: text, html: None, svg: Some(svg), json: None }]);
+    }
+    for c in &chosen {
+        if fit.draws.get(c).is_none() {
+            return Err(CellError::at(
+                st.header.number,
+                format!("model {name} has no parameter {c}; its parameters are {}", fit.draws.names.join(", ")),
+            ));
+        }
+    }
+    let svg = match kind {
+        "posterior" => figures::posterior_of(model, fit, &chosen),
+        "trace" => figures::trace(model, fit, &chosen),
+        other => {
+            return Err(CellError::at(st.header.number, format!("unknown figure `{other}`; the form is: {PLOT_FORM}")))
+        }
+    }
+    .map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    let text = format!("{kind} figure of {name}");
+    Ok(vec![Display { plain: text, html: None, svg: Some(svg), json: None }])
+}

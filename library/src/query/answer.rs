@@ -1,0 +1,188 @@
+//! One-statement answers: from a graph, a table, an exposure, an outcome and
+//! the kind of effect to a fitted adjustment model and its contrasts.
+//!
+//! The graph's first (smallest) adjustment set is used; the model is
+//! `outcome from exposure, set…` with the family read from the outcome's
+//! kind (real → normal, count → poisson, binary → bernoulli). Every term
+//! enters additively: for a direct effect the mediators are held in the
+//! model but the exposure's effect is taken to be the same at every mediator
+//! value (write a `model` cell with `x per c` terms for more). The
+//! contrasts are averaged over the table's rows (standardisation), the
+//! estimand a simulated intervention also targets: every level against the
+//! first for a category exposure, one unit above the mean against the mean
+//! for a numeric one. When the graph says the effect is not identifiable,
+//! nothing is fitted and the answer says why.
+
+use std::sync::atomic::AtomicBool;
+
+use serde::Serialize;
+
+use crate::graph::{EffectKind, Graph, Identification};
+use crate::infer::fit::{fit_model, Fit, Method};
+use crate::model::{Family, Model, ModelSpec};
+use crate::table::{ColumnData, Table};
+
+use super::contrast::{contrast, Contrast, ContrastRequest};
+use super::error::QueryError;
+use super::support::require_column;
+
+/// Most paths listed in the reason for a set.
+const PATHS_SHOWN: usize = 12;
+
+/// The answer to "what is the effect of X on Y?".
+#[derive(Debug, Clone, Serialize)]
+pub struct EffectAnswer {
+    /// The question in words.
+    pub question: String,
+    pub identification: Identification,
+    /// The set conditioned on, when the effect is identifiable.
+    pub adjustment_set: Option<Vec<String>>,
+    /// The model body the answer built (one line per model line).
+    pub model_text: Option<String>,
+    /// Why the set: the criterion and every path with its status given the set.
+    pub why: Vec<String>,
+    /// One contrast per comparison made.
+    pub contrasts: Vec<Contrast>,
+    /// The fit's method in words.
+    pub method: Option<String>,
+    /// Sampler warnings and notes on the choices made.
+    pub warnings: Vec<String>,
+    /// The built model (not serialised).
+    #[serde(skip)]
+    pub model: Option<Model>,
+    /// The fit (not serialised).
+    #[serde(skip)]
+    pub fit: Option<Fit>,
+}
+
+/// Identify, build, fit and contrast the `kind` effect of `exposure` on
+/// `outcome` in `graph`, with data from `table`, fitted by `method`.
+#[allow(clippy::too_many_arguments)]
+pub fn answer_effect(
+    graph: &Graph,
+    table: &Table,
+    exposure: &str,
+    outcome: &str,
+    kind: EffectKind,
+    method: &Method,
+    cancel: &AtomicBool,
+    mass: f64,
+) -> Result<EffectAnswer, QueryError> {
+    let identification = match kind {
+        EffectKind::Total => graph.total_effect(exposure, outcome)?,
+        EffectKind::Direct => graph.direct_effect(exposure, outcome)?,
+    };
+    let kind_words = match kind {
+        EffectKind::Total => "total",
+        EffectKind::Direct => "direct",
+    };
+    let question = format!("{kind_words} effect of {exposure} on {outcome} in {}", graph.name());
+    let mut answer = EffectAnswer {
+        question: question.clone(),
+        identification: identification.clone(),
+        adjustment_set: None,
+        model_text: None,
+        why: vec![identification.reason.clone()],
+        contrasts: Vec::new(),
+        method: None,
+        warnings: Vec::new(),
+        model: None,
+        fit: None,
+    };
+    let Some(set) = identification.adjustment_sets.first().filter(|_| identification.identifiable) else {
+        if identification.identifiable {
+            answer.why.push("no set of observed nodes lets the data check the graph's claim, so nothing was fitted".into());
+        } else {
+            answer.why.push("nothing was fitted".into());
+        }
+        return Ok(answer);
+    };
+    let place = format!("ask {question}");
+    for name in std::iter::once(exposure).chain(std::iter::once(outcome)).chain(set.iter().map(String::as_str)) {
+        require_column(table, name, &place)?;
+    }
+    answer.why.extend(set_reasons(graph, exposure, outcome, set, &identification)?);
+    let family = family_for(table, outcome, &place)?;
+    let mut terms = vec![exposure.to_string()];
+    terms.extend(set.iter().cloned());
+    let mut lines = vec![format!("{outcome} from {} using {}", terms.join(", "), table.name)];
+    if family != Family::Normal {
+        lines.push(format!("family {}", family.name()));
+    }
+    let name = format!("{kind_words}_{exposure}_on_{outcome}");
+    let spec = ModelSpec::from_lines(&name, lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))?;
+    let model = Model::build(&spec, table)?;
+    let fit = fit_model(&model, method, cancel, &|_| {})
+        .map_err(|e| QueryError::Fit { what: format!("model {name}"), message: e.to_string() })?;
+    answer.warnings.extend(fit.warnings.iter().cloned());
+    if kind == EffectKind::Direct && set.iter().any(|s| table.column(s).is_some_and(|c| c.data.levels().is_none())) {
+        answer.warnings.push(format!(
+            "the model takes the direct effect of {exposure} to be the same at every value of {}; \
+             write a model cell with per-level slopes to let it vary",
+            set.join(", ")
+        ));
+    }
+    answer.contrasts = comparisons(table, exposure, mass)?
+        .iter()
+        .map(|request| contrast(&model, &fit.draws, table, request))
+        .collect::<Result<_, _>>()?;
+    answer.adjustment_set = Some(set.clone());
+    answer.model_text = Some(lines.join("\n"));
+    answer.method = Some(method.describe());
+    answer.model = Some(model);
+    answer.fit = Some(fit);
+    Ok(answer)
+}
+
+/// The family of a model of `outcome`, from its kind.
+pub(crate) fn family_for(table: &Table, outcome: &str, place: &str) -> Result<Family, QueryError> {
+    match &require_column(table, outcome, place)?.data {
+        ColumnData::Real(_) => Ok(Family::Normal),
+        ColumnData::Count(_) => Ok(Family::Poisson),
+        ColumnData::Binary(_) => Ok(Family::Bernoulli),
+        ColumnData::Category { levels, .. } => Err(QueryError::request(format!(
+            "{place}: {outcome} is a category ({}), and models of a category outcome are not supported yet; \
+             recode it as a binary column",
+            levels.join(", ")
+        ))),
+    }
+}
+
+/// Every level against the first for a category exposure; centre + 1 vs
+/// centre for a numeric one; each averaged over rows.
+fn comparisons(table: &Table, exposure: &str, mass: f64) -> Result<Vec<ContrastRequest>, QueryError> {
+    let column = require_column(table, exposure, "ask")?;
+    let base = ContrastRequest { over_rows: true, mass, ..ContrastRequest::new(exposure) };
+    Ok(match column.data.levels() {
+        Some(levels) => levels[1..].iter().map(|l| base.clone().between(l.clone(), levels[0].clone())).collect(),
+        None => vec![base],
+    })
+}
+
+/// The criterion's verdict on the chosen set, and each path between
+/// exposure and outcome with its status given the set.
+fn set_reasons(
+    graph: &Graph,
+    exposure: &str,
+    outcome: &str,
+    set: &[String],
+    identification: &Identification,
+) -> Result<Vec<String>, QueryError> {
+    let mut why = Vec::new();
+    let members = if set.is_empty() { "nothing".to_string() } else { set.join(", ") };
+    why.push(format!("conditioning on {members}, the first (smallest) of the sets the graph allows"));
+    if identification.adjustment_sets.len() > 1 {
+        let others: Vec<String> = identification.adjustment_sets[1..]
+            .iter()
+            .map(|s| if s.is_empty() { "nothing".into() } else { s.join(", ") })
+            .collect();
+        why.push(format!("these sets would do as well: {}", others.join("; ")));
+    }
+    let paths = graph.paths(exposure, outcome, set)?;
+    let shown = paths.len().min(PATHS_SHOWN);
+    why.extend(paths[..shown].iter().map(|p| format!("path {}", p.render())));
+    if paths.len() > shown {
+        why.push(format!("… and {} longer paths", paths.len() - shown));
+    }
+    Ok(why)
+}

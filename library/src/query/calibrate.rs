@@ -1,0 +1,208 @@
+//! Checks of a model against its own assumptions: simulation-based
+//! calibration over the prior (Talts, Betancourt, Simpson, Vehtari & Gelman
+//! 2018), and prior / posterior predictive outcome sets (the numbers only;
+//! plotting is elsewhere).
+//!
+//! Calibration: for each replication, parameters are drawn from the model's
+//! priors, outcomes are simulated with the model's own design, the same
+//! model (same priors: they must not move with the simulated data) is
+//! refitted, and the rank of each true parameter among the posterior draws
+//! is recorded. If fitting is right, ranks are uniform; a chi-square test on
+//! binned ranks gives a p-value per parameter.
+
+use std::sync::atomic::AtomicBool;
+
+use rand::rngs::StdRng;
+use rand::SeedableRng;
+use serde::Serialize;
+use statrs::distribution::{ChiSquared, ContinuousCDF};
+
+use crate::draws::Draws;
+use crate::infer::fit::{fit_model, Method};
+use crate::model::{Model, NewRows};
+use crate::table::Table;
+
+use super::error::QueryError;
+use super::support::{parameter_rows, stream_seed};
+
+/// Most posterior draws each rank is computed among (draws are thinned to this).
+const RANK_DRAWS: usize = 99;
+/// Bins of the rank histogram.
+const BINS: usize = 10;
+
+/// Ranks and the uniformity test of one parameter.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CalibratedParameter {
+    pub name: String,
+    /// Rank of the true value among the posterior draws, each in `0..=draws_per_fit`.
+    pub ranks: Vec<usize>,
+    /// Chi-square statistic of the binned ranks and its p-value under uniform ranks.
+    pub chi_square: f64,
+    pub p_value: f64,
+}
+
+/// The result of a calibration run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Calibration {
+    pub model: String,
+    pub method: String,
+    pub seed: u64,
+    /// Replications that were fitted (failed fits are counted in `failures`).
+    pub reps: usize,
+    pub failures: usize,
+    pub draws_per_fit: usize,
+    pub bins: usize,
+    pub parameters: Vec<CalibratedParameter>,
+    pub notes: Vec<String>,
+}
+
+/// Simulation-based calibration of `model` with `reps` replications, each
+/// refitted with `method` (its seed replaced by a per-replication stream of
+/// `seed`).
+pub fn calibrate(model: &Model, reps: usize, method: &Method, seed: u64, cancel: &AtomicBool) -> Result<Calibration, QueryError> {
+    let names = model.parameter_names();
+    let rows = NewRows { design: model.design_matrix().clone(), trials: None };
+    let mut ranks = vec![Vec::with_capacity(reps); names.len()];
+    let mut failures = 0;
+    let mut draws_per_fit = 0;
+    for r in 0..reps {
+        let mut rng = StdRng::seed_from_u64(stream_seed(seed, r as u64, 3));
+        let truth = prior_draw(model, &mut rng)?;
+        let y = model.outcome_draw(&truth, &rows, &mut rng)?;
+        let refit = model.with_outcome(y)?;
+        let rep_method = reseeded(method, stream_seed(seed, r as u64, 4));
+        let Ok(fit) = fit_model(&refit, &rep_method, cancel, &|_| {}) else {
+            failures += 1;
+            continue;
+        };
+        let kept = thinned(&parameter_rows(model, &fit.draws)?);
+        draws_per_fit = kept.len();
+        for (j, slot) in ranks.iter_mut().enumerate() {
+            slot.push(kept.iter().filter(|row| row[j] < truth[j]).count());
+        }
+    }
+    let parameters = names
+        .iter()
+        .zip(ranks)
+        .map(|(name, ranks)| {
+            let (chi_square, p_value) = uniformity(&ranks, draws_per_fit);
+            CalibratedParameter { name: name.clone(), ranks, chi_square, p_value }
+        })
+        .collect();
+    let mut notes = vec![format!(
+        "ranks among {draws_per_fit} posterior draws, {BINS} bins; a p-value far below 0.01 for a parameter says its posterior is off"
+    )];
+    if failures > 0 {
+        notes.push(format!("{failures} of {reps} refits failed and were left out; the ranks of the rest may be biased"));
+    }
+    Ok(Calibration {
+        model: model.name().to_string(),
+        method: method.describe(),
+        seed,
+        reps: reps - failures,
+        failures,
+        draws_per_fit,
+        bins: BINS,
+        parameters,
+        notes,
+    })
+}
+
+/// One draw of every parameter from its prior, in parameter order.
+pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryError> {
+    model
+        .parameter_names()
+        .iter()
+        .map(|name| {
+            let used = model.priors_used().iter().find(|u| u.parameters.contains(name)).ok_or_else(|| {
+                QueryError::request(format!("model {}: parameter {name} has no prior", model.name()))
+            })?;
+            Ok(used.prior.sample(rng))
+        })
+        .collect()
+}
+
+/// `method` with its seed replaced.
+fn reseeded(method: &Method, seed: u64) -> Method {
+    match method {
+        Method::Laplace { draws, .. } => Method::Laplace { draws: *draws, seed },
+        Method::Nuts(s) => Method::Nuts(crate::infer::nuts::NutsSettings { seed, ..s.clone() }),
+    }
+}
+
+/// At most [`RANK_DRAWS`] rows, evenly spaced (thinning reduces the
+/// autocorrelation of sampler draws, which would bend the rank histogram).
+fn thinned(rows: &[Vec<f64>]) -> Vec<Vec<f64>> {
+    if rows.len() <= RANK_DRAWS {
+        return rows.to_vec();
+    }
+    (0..RANK_DRAWS).map(|k| rows[k * rows.len() / RANK_DRAWS].clone()).collect()
+}
+
+/// Chi-square statistic of ranks (each in `0..=draws`) binned into [`BINS`]
+/// bins, and its p-value, with expected counts proportional to the number of
+/// rank values each bin holds.
+fn uniformity(ranks: &[usize], draws: usize) -> (f64, f64) {
+    let values = draws + 1;
+    let bins = BINS.min(values);
+    if ranks.is_empty() || bins < 2 {
+        return (f64::NAN, f64::NAN);
+    }
+    let mut observed = vec![0.0; bins];
+    for &r in ranks {
+        observed[(r * bins / values).min(bins - 1)] += 1.0;
+    }
+    let mut width = vec![0.0; bins];
+    (0..values).for_each(|v| width[v * bins / values] += 1.0);
+    let n = ranks.len() as f64;
+    let statistic: f64 = observed.iter().zip(&width).map(|(o, w)| {
+        let e = n * w / values as f64;
+        (o - e) * (o - e) / e
+    }).sum();
+    let p = ChiSquared::new((bins - 1) as f64).map(|d| 1.0 - d.cdf(statistic)).unwrap_or(f64::NAN);
+    (statistic, p)
+}
+
+/// Observed outcomes and replicated outcome sets.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PredictiveSets {
+    pub model: String,
+    /// "prior" or "posterior".
+    pub kind: String,
+    pub seed: u64,
+    pub observed: Vec<f64>,
+    /// One simulated outcome set per entry, one value per row of the table.
+    pub replicated: Vec<Vec<f64>>,
+}
+
+/// `sets` outcome sets simulated from parameters drawn from the priors, for
+/// the rows of `table` (the model's own table).
+pub fn prior_predictive(model: &Model, table: &Table, sets: usize, seed: u64) -> Result<PredictiveSets, QueryError> {
+    let rows = model.new_rows(table)?;
+    let replicated = (0..sets)
+        .map(|s| {
+            let mut rng = StdRng::seed_from_u64(stream_seed(seed, s as u64, 5));
+            let theta = prior_draw(model, &mut rng)?;
+            Ok(model.outcome_draw(&theta, &rows, &mut rng)?)
+        })
+        .collect::<Result<_, QueryError>>()?;
+    Ok(PredictiveSets { model: model.name().into(), kind: "prior".into(), seed, observed: model.outcome_values().to_vec(), replicated })
+}
+
+/// `sets` outcome sets simulated at posterior draws spread evenly through
+/// `draws`, for the rows of `table` (the model's own table).
+pub fn posterior_predictive(model: &Model, draws: &Draws, table: &Table, sets: usize, seed: u64) -> Result<PredictiveSets, QueryError> {
+    let rows = model.new_rows(table)?;
+    let params = parameter_rows(model, draws)?;
+    if params.is_empty() {
+        return Err(QueryError::request(format!("model {} has no posterior draws; fit it first", model.name())));
+    }
+    let sets = sets.min(params.len());
+    let replicated = (0..sets)
+        .map(|s| {
+            let mut rng = StdRng::seed_from_u64(stream_seed(seed, s as u64, 6));
+            Ok(model.outcome_draw(&params[s * params.len() / sets], &rows, &mut rng)?)
+        })
+        .collect::<Result<_, QueryError>>()?;
+    Ok(PredictiveSets { model: model.name().into(), kind: "posterior".into(), seed, observed: model.outcome_values().to_vec(), replicated })
+}

@@ -1,0 +1,430 @@
+//! Contrasts from posterior draws: `contrast M: C b vs a [on outcomes]
+//! [along X from LO to HI [by STEP]] [over rows]`.
+//!
+//! For every posterior draw the model predicts at two settings of one
+//! predictor and the two predictions are subtracted, so the contrast keeps
+//! the pairing of the draws; summaries come last. Two scales:
+//!
+//! * on the mean (default): the difference of expected outcomes;
+//! * on outcomes: for each draw, one outcome simulated at each setting
+//!   (drawn independently from a seeded stream), so the contrast shows how
+//!   far apart two units' outcomes may lie, not only their means.
+//!
+//! Other predictors are either held at stated values (by default a real
+//! predictor at its table mean and a category at its first level), or the
+//! prediction is averaged over the table's rows with only the contrasted
+//! predictor changed (standardisation, `over rows`); the result says which.
+//! With `on outcomes` and `over rows`, each draw uses one row picked at
+//! random, so the values describe a unit drawn from the table.
+
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use serde::Serialize;
+
+use crate::draws::Draws;
+use crate::model::{Family, Model, NewRows};
+use crate::table::{ColumnData, Table};
+
+use super::error::QueryError;
+use super::support::{
+    column_mean, interval_words, parameter_rows, predictor_columns, require_column, short, stream_seed, with_column,
+    ContrastSummary, Setting,
+};
+
+/// Grid points when `along` gives no step.
+const DEFAULT_GRID_POINTS: usize = 21;
+/// Most grid points allowed.
+const MAX_GRID_POINTS: usize = 1001;
+
+/// The scale of a contrast.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum On {
+    /// The difference of posterior expected outcomes.
+    Means,
+    /// The difference of simulated outcomes, seeded.
+    Outcomes { seed: u64 },
+}
+
+/// `along X from LO to HI [by STEP]`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GridRequest {
+    pub variable: String,
+    pub from: f64,
+    pub to: f64,
+    /// Step between grid values; `None` gives 21 evenly spaced values.
+    pub step: Option<f64>,
+}
+
+/// What to contrast and how.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ContrastRequest {
+    /// The predictor whose settings are compared.
+    pub variable: String,
+    /// `(b, a)` for "b vs a", as written (a level label or a number).
+    /// `None`: the second level vs the first for a category, centre + 1 vs
+    /// centre for a numeric predictor.
+    pub values: Option<(String, String)>,
+    pub on: On,
+    pub along: Option<GridRequest>,
+    /// Average over the table's rows (standardisation) instead of holding
+    /// the other predictors at fixed values.
+    pub over_rows: bool,
+    /// Stated values for other predictors `(name, value)`.
+    pub held: Vec<(String, String)>,
+    /// Interval mass, 0.9 by default.
+    pub mass: f64,
+}
+
+impl ContrastRequest {
+    /// A contrast of `variable` with every option at its default.
+    pub fn new(variable: impl Into<String>) -> ContrastRequest {
+        ContrastRequest {
+            variable: variable.into(),
+            values: None,
+            on: On::Means,
+            along: None,
+            over_rows: false,
+            held: Vec::new(),
+            mass: crate::draws::summary::DEFAULT_MASS,
+        }
+    }
+
+    /// The same request comparing `b` with `a`.
+    pub fn between(mut self, b: impl Into<String>, a: impl Into<String>) -> ContrastRequest {
+        self.values = Some((b.into(), a.into()));
+        self
+    }
+}
+
+/// A value another predictor was held at, and why that value.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct HeldValue {
+    pub name: String,
+    pub value: String,
+    /// "stated", "table mean" or "first level".
+    pub source: String,
+}
+
+/// The contrast at one grid value.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct GridPoint {
+    pub x: f64,
+    pub mean: f64,
+    pub lower: f64,
+    pub upper: f64,
+    pub p_positive: f64,
+}
+
+/// A contrast: per-draw differences and their summary.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Contrast {
+    /// The contrast in words, e.g. "rootstock standard vs dwarf".
+    pub contrast: String,
+    pub model: String,
+    pub variable: String,
+    /// The two settings, as text: `to` minus `from`.
+    pub to: String,
+    pub from: String,
+    /// "means" or "outcomes".
+    pub on: String,
+    pub mean: f64,
+    pub lower: f64,
+    pub upper: f64,
+    pub p_positive: f64,
+    pub p_negative: f64,
+    /// Interval mass and its words.
+    pub mass: f64,
+    pub interval: String,
+    /// Values of the other predictors (empty when averaged over rows).
+    pub held: Vec<HeldValue>,
+    /// How the other predictors were treated, in words.
+    pub held_how: String,
+    pub over_rows: bool,
+    /// The grid variable, when the contrast runs along one.
+    pub along: Option<String>,
+    pub grid: Vec<GridPoint>,
+    /// Seed of simulated outcomes.
+    pub seed: Option<u64>,
+    /// Choices made that the reader should know of.
+    pub notes: Vec<String>,
+    /// Per-draw differences (at the held values; not serialised).
+    #[serde(skip)]
+    pub draws: Vec<f64>,
+}
+
+impl Contrast {
+    /// The summary part, for comparisons.
+    pub fn summary(&self) -> ContrastSummary {
+        ContrastSummary {
+            mean: self.mean,
+            lower: self.lower,
+            upper: self.upper,
+            p_positive: self.p_positive,
+            p_negative: self.p_negative,
+            mass: self.mass,
+        }
+    }
+}
+
+/// Compute the contrast `request` of `model` fitted as `draws` on `table`
+/// (the table the model was built on).
+pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastRequest) -> Result<Contrast, QueryError> {
+    let place = format!("contrast {}", model.name());
+    let predictors = predictor_columns(model);
+    let is_predictor = |name: &str| predictors.iter().any(|p| p == name);
+    if !is_predictor(&request.variable) {
+        return Err(QueryError::request(format!(
+            "{place}: `{}` is not a predictor of model {} (its predictors: {}); contrast one of those",
+            request.variable,
+            model.name(),
+            predictors.join(", ")
+        )));
+    }
+    for (name, _) in &request.held {
+        if !is_predictor(name) || *name == request.variable {
+            return Err(QueryError::request(format!(
+                "{place}: `{name}` cannot be held: it is not another predictor of model {}",
+                model.name()
+            )));
+        }
+    }
+    let mut notes = Vec::new();
+    let column = require_column(table, &request.variable, &place)?;
+    let (to, from) = settings(column, request.values.as_ref(), &place, &mut notes)?;
+    let params = parameter_rows(model, draws)?;
+    let (base, held) = if request.over_rows {
+        (table.clone(), Vec::new())
+    } else {
+        held_row(table, &predictors, trials_column(model), request, &place)?
+    };
+    let held_how = if request.over_rows {
+        format!(
+            "averaged over the {} rows of table {}, with only {} changed (standardisation)",
+            table.nrows(),
+            table.name,
+            request.variable
+        )
+    } else if held.is_empty() {
+        "no other predictors".to_string()
+    } else {
+        let listed: Vec<String> = held.iter().map(|h| format!("{} = {} ({})", h.name, h.value, h.source)).collect();
+        format!("other predictors held at {}", listed.join(", "))
+    };
+    let pairing = Pairing { model, params: &params, variable: &request.variable, to: &to, from: &from, on: request.on };
+    let values = pairing.draws(&base)?;
+    let summary = ContrastSummary::of(&values, request.mass)?;
+    let grid = match &request.along {
+        Some(g) => grid_points(&pairing, &base, g, &predictors, &place, request.mass)?,
+        None => Vec::new(),
+    };
+    if let On::Outcomes { .. } = request.on {
+        notes.push(if request.over_rows {
+            "each draw compares two outcomes simulated for one row picked at random from the table".into()
+        } else {
+            "each draw compares two outcomes simulated independently at the two settings".into()
+        });
+    }
+    Ok(Contrast {
+        contrast: format!("{} {} vs {}", request.variable, to.text(), from.text()),
+        model: model.name().to_string(),
+        variable: request.variable.clone(),
+        to: to.text(),
+        from: from.text(),
+        on: match request.on {
+            On::Means => "means".into(),
+            On::Outcomes { .. } => "outcomes".into(),
+        },
+        mean: summary.mean,
+        lower: summary.lower,
+        upper: summary.upper,
+        p_positive: summary.p_positive,
+        p_negative: summary.p_negative,
+        mass: request.mass,
+        interval: interval_words(request.mass),
+        held,
+        held_how,
+        over_rows: request.over_rows,
+        along: request.along.as_ref().map(|g| g.variable.clone()),
+        grid,
+        seed: match request.on {
+            On::Means => None,
+            On::Outcomes { seed } => Some(seed),
+        },
+        notes,
+        draws: values,
+    })
+}
+
+/// The two settings `(to, from)`, defaulted when none are given.
+fn settings(
+    column: &crate::table::Column,
+    values: Option<&(String, String)>,
+    place: &str,
+    notes: &mut Vec<String>,
+) -> Result<(Setting, Setting), QueryError> {
+    if let Some((b, a)) = values {
+        return Ok((Setting::read(column, b, place)?, Setting::read(column, a, place)?));
+    }
+    match &column.data {
+        ColumnData::Category { levels, .. } if levels.len() >= 2 => {
+            notes.push(format!("no levels given: {} vs {}, the second level against the first", levels[1], levels[0]));
+            Ok((Setting::Level { code: 1, levels: levels.clone() }, Setting::Level { code: 0, levels: levels.clone() }))
+        }
+        ColumnData::Category { .. } => Err(QueryError::request(format!(
+            "{place}: {} has a single level, so there is nothing to contrast",
+            column.name
+        ))),
+        _ => {
+            let centre = column_mean(column).unwrap_or(0.0);
+            notes.push(format!(
+                "no values given: {} at its mean {} plus 1 vs at its mean (the effect of one unit)",
+                column.name,
+                short(centre)
+            ));
+            Ok((Setting::Number(centre + 1.0), Setting::Number(centre)))
+        }
+    }
+}
+
+/// One row with every predictor at its held value.
+fn held_row(
+    table: &Table,
+    predictors: &[String],
+    trials: Option<&str>,
+    request: &ContrastRequest,
+    place: &str,
+) -> Result<(Table, Vec<HeldValue>), QueryError> {
+    let mut columns = Vec::new();
+    let mut held = Vec::new();
+    for name in predictors {
+        let column = require_column(table, name, place)?;
+        let stated = request.held.iter().find(|(n, _)| n == name);
+        let (setting, source) = match (stated, &column.data) {
+            (Some((_, text)), _) => (Setting::read(column, text, place)?, "stated"),
+            (None, ColumnData::Category { levels, .. }) => {
+                (Setting::Level { code: 0, levels: levels.clone() }, "first level")
+            }
+            (None, _) if trials == Some(name.as_str()) => {
+                (Setting::Number(column_mean(column).unwrap_or(1.0).round()), "table mean, rounded")
+            }
+            (None, _) => (Setting::Number(column_mean(column).unwrap_or(0.0)), "table mean"),
+        };
+        let skip = *name == request.variable || request.along.as_ref().is_some_and(|g| g.variable == *name);
+        if !skip {
+            held.push(HeldValue { name: name.clone(), value: setting.text(), source: source.into() });
+        }
+        columns.push(setting.column(name, 1));
+    }
+    Ok((Table::from_columns(table.name.clone(), columns)?, held))
+}
+
+/// The trials column of a binomial model.
+fn trials_column(model: &Model) -> Option<&str> {
+    match model.family() {
+        Family::Binomial { trials } => Some(trials),
+        _ => None,
+    }
+}
+
+/// The contrast at each value of the grid variable.
+fn grid_points(
+    pairing: &Pairing,
+    base: &Table,
+    grid: &GridRequest,
+    predictors: &[String],
+    place: &str,
+    mass: f64,
+) -> Result<Vec<GridPoint>, QueryError> {
+    if !predictors.contains(&grid.variable) || grid.variable == pairing.variable {
+        return Err(QueryError::request(format!(
+            "{place}: `along {}` needs another predictor of the model (its predictors: {})",
+            grid.variable,
+            predictors.join(", ")
+        )));
+    }
+    if base.column(&grid.variable).is_some_and(|c| c.data.levels().is_some()) {
+        return Err(QueryError::request(format!(
+            "{place}: {} is a category; `along` needs a numeric predictor",
+            grid.variable
+        )));
+    }
+    let values = grid_values(grid, place)?;
+    let n = base.nrows();
+    values
+        .into_iter()
+        .map(|x| {
+            let at = with_column(base, Setting::Number(x).column(&grid.variable, n));
+            let s = ContrastSummary::of(&pairing.draws(&at)?, mass)?;
+            Ok(GridPoint { x, mean: s.mean, lower: s.lower, upper: s.upper, p_positive: s.p_positive })
+        })
+        .collect()
+}
+
+/// The grid values from `from` to `to`, inclusive.
+fn grid_values(grid: &GridRequest, place: &str) -> Result<Vec<f64>, QueryError> {
+    let span = grid.to - grid.from;
+    if !span.is_finite() || span <= 0.0 {
+        return Err(QueryError::request(format!(
+            "{place}: the grid of {} must run from a lower to a higher value, not {} to {}",
+            grid.variable,
+            short(grid.from),
+            short(grid.to)
+        )));
+    }
+    let step = grid.step.unwrap_or(span / (DEFAULT_GRID_POINTS - 1) as f64);
+    let count = (span / step + 1e-9).floor() as usize + 1;
+    if !step.is_finite() || step <= 0.0 || count > MAX_GRID_POINTS {
+        return Err(QueryError::request(format!(
+            "{place}: the step {} gives more than {MAX_GRID_POINTS} grid values; use a step above {}",
+            short(step),
+            short(span / (MAX_GRID_POINTS - 1) as f64)
+        )));
+    }
+    Ok((0..count).map(|k| grid.from + k as f64 * step).collect())
+}
+
+/// Everything needed to compute per-draw differences at a base table.
+struct Pairing<'a> {
+    model: &'a Model,
+    params: &'a [Vec<f64>],
+    variable: &'a str,
+    to: &'a Setting,
+    from: &'a Setting,
+    on: On,
+}
+
+impl Pairing<'_> {
+    /// Per-draw differences with `variable` set to `to` and `from` in every
+    /// row of `base`.
+    fn draws(&self, base: &Table) -> Result<Vec<f64>, QueryError> {
+        let n = base.nrows();
+        let rows_to = self.model.new_rows(&with_column(base, self.to.column(self.variable, n)))?;
+        let rows_from = self.model.new_rows(&with_column(base, self.from.column(self.variable, n)))?;
+        self.params
+            .iter()
+            .enumerate()
+            .map(|(d, theta)| match self.on {
+                On::Means => {
+                    let a = self.model.predict_mean(theta, &rows_to)?.mean;
+                    let b = self.model.predict_mean(theta, &rows_from)?.mean;
+                    Ok(a.iter().zip(&b).map(|(x, y)| x - y).sum::<f64>() / n as f64)
+                }
+                On::Outcomes { seed } => {
+                    let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, 0));
+                    let r = if n == 1 { 0 } else { rng.random_range(0..n) };
+                    let a = self.model.outcome_draw(theta, &one_row(&rows_to, r), &mut rng)?;
+                    let b = self.model.outcome_draw(theta, &one_row(&rows_from, r), &mut rng)?;
+                    Ok(a[0] - b[0])
+                }
+            })
+            .collect()
+    }
+}
+
+/// Row `r` of new rows.
+fn one_row(rows: &NewRows, r: usize) -> NewRows {
+    NewRows {
+        design: rows.design.rows(r, 1).into_owned(),
+        trials: rows.trials.as_ref().map(|t| vec![t[r]]),
+    }
+}

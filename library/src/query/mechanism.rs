@@ -1,0 +1,369 @@
+//! Mechanisms of a `simulate` cell, one line per node:
+//!
+//! ```text
+//! rootstock = category(dwarf 0.5, standard 0.5)
+//! girth = normal(28 + 6 * [rootstock = standard], 4)
+//! healthy = bernoulli(logit = -1 + 0.1 * (girth - 28))
+//! fruit = poisson(log = 1 + 0.02 * girth)
+//! ```
+//!
+//! Distributions: `category(level share, …)` (shares sum to 1),
+//! `normal(mean, sd)`, `bernoulli(p)` or `bernoulli(logit = η)`,
+//! `poisson(rate)` or `poisson(log = η)`. Expressions use numbers, parent
+//! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
+//! `[c = level]` (1 when category c is at that level, else 0).
+//!
+//! Parsing knows nothing of the graph; [`super::simulate`] checks the names.
+
+use std::fmt;
+
+/// An arithmetic expression of a mechanism.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Expr {
+    Number(f64),
+    /// The value of a numeric node (binary as 0/1).
+    Name(String),
+    /// `[c = level]`.
+    Indicator { name: String, level: String },
+    Negate(Box<Expr>),
+    Add(Box<Expr>, Box<Expr>),
+    Subtract(Box<Expr>, Box<Expr>),
+    Multiply(Box<Expr>, Box<Expr>),
+    Divide(Box<Expr>, Box<Expr>),
+    Log(Box<Expr>),
+    Exp(Box<Expr>),
+}
+
+impl Expr {
+    /// Evaluate with `value(name)` for numeric nodes and `is_level(name,
+    /// level)` for indicators.
+    pub fn eval(&self, value: &dyn Fn(&str) -> f64, is_level: &dyn Fn(&str, &str) -> bool) -> f64 {
+        let e = |x: &Expr| x.eval(value, is_level);
+        match self {
+            Expr::Number(x) => *x,
+            Expr::Name(n) => value(n),
+            Expr::Indicator { name, level } => f64::from(u8::from(is_level(name, level))),
+            Expr::Negate(a) => -e(a),
+            Expr::Add(a, b) => e(a) + e(b),
+            Expr::Subtract(a, b) => e(a) - e(b),
+            Expr::Multiply(a, b) => e(a) * e(b),
+            Expr::Divide(a, b) => e(a) / e(b),
+            Expr::Log(a) => e(a).ln(),
+            Expr::Exp(a) => e(a).exp(),
+        }
+    }
+
+    /// Every node the expression reads, as `(name, Some(level))` for an
+    /// indicator and `(name, None)` for a numeric use.
+    pub fn uses(&self) -> Vec<(String, Option<String>)> {
+        let mut out = Vec::new();
+        self.collect_uses(&mut out);
+        out
+    }
+
+    fn collect_uses(&self, out: &mut Vec<(String, Option<String>)>) {
+        match self {
+            Expr::Number(_) => {}
+            Expr::Name(n) => out.push((n.clone(), None)),
+            Expr::Indicator { name, level } => out.push((name.clone(), Some(level.clone()))),
+            Expr::Negate(a) | Expr::Log(a) | Expr::Exp(a) => a.collect_uses(out),
+            Expr::Add(a, b) | Expr::Subtract(a, b) | Expr::Multiply(a, b) | Expr::Divide(a, b) => {
+                a.collect_uses(out);
+                b.collect_uses(out);
+            }
+        }
+    }
+}
+
+/// How one node is generated.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Mechanism {
+    /// Levels drawn with fixed shares, in declared order.
+    Category { levels: Vec<String>, shares: Vec<f64> },
+    Normal { mean: Expr, sd: Expr },
+    /// `p` is the probability, or its logit when `logit` is true.
+    Bernoulli { p: Expr, logit: bool },
+    /// `rate` is the rate, or its log when `log` is true.
+    Poisson { rate: Expr, log: bool },
+}
+
+impl Mechanism {
+    /// Every node the mechanism reads.
+    pub fn uses(&self) -> Vec<(String, Option<String>)> {
+        match self {
+            Mechanism::Category { .. } => Vec::new(),
+            Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
+            Mechanism::Bernoulli { p, .. } => p.uses(),
+            Mechanism::Poisson { rate, .. } => rate.uses(),
+        }
+    }
+}
+
+impl fmt::Display for Mechanism {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let name = match self {
+            Mechanism::Category { .. } => "category",
+            Mechanism::Normal { .. } => "normal",
+            Mechanism::Bernoulli { .. } => "bernoulli",
+            Mechanism::Poisson { .. } => "poisson",
+        };
+        f.write_str(name)
+    }
+}
+
+/// Read one body line: `None` for a blank or comment line, else the node
+/// name and its mechanism. The error is a sentence without the line number.
+pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, String> {
+    let text = text.split('#').next().unwrap_or("").trim();
+    if text.is_empty() {
+        return Ok(None);
+    }
+    let (name, rest) = text.split_once('=').ok_or_else(|| {
+        format!("`{text}` is not a mechanism; write `node = normal(mean, sd)` or another distribution")
+    })?;
+    let name = name.trim();
+    if !is_name(name) {
+        return Err(format!("`{name}` is not a node name; names are letters, digits and `_`, starting with a letter"));
+    }
+    let rest = rest.trim();
+    let open = rest.find('(').filter(|_| rest.ends_with(')')).ok_or_else(|| {
+        format!("the mechanism of {name} must be a distribution such as normal(mean, sd), not `{rest}`")
+    })?;
+    let dist = rest[..open].trim();
+    let args = split_top_level(&rest[open + 1..rest.len() - 1]);
+    let mechanism = match (dist, args.as_slice()) {
+        ("category", items) => parse_category(name, items)?,
+        ("normal", [mean, sd]) => Mechanism::Normal { mean: parse_expr(mean)?, sd: parse_expr(sd)? },
+        ("bernoulli", [p]) => match keyword_argument(p, "logit") {
+            Some(eta) => Mechanism::Bernoulli { p: parse_expr(eta)?, logit: true },
+            None => Mechanism::Bernoulli { p: parse_expr(p)?, logit: false },
+        },
+        ("poisson", [rate]) => match keyword_argument(rate, "log") {
+            Some(eta) => Mechanism::Poisson { rate: parse_expr(eta)?, log: true },
+            None => Mechanism::Poisson { rate: parse_expr(rate)?, log: false },
+        },
+        ("normal", _) => return Err(format!("normal takes 2 arguments (mean, sd), not {}", args.len())),
+        ("bernoulli", _) => return Err(format!("bernoulli takes 1 argument (p, or logit = …), not {}", args.len())),
+        ("poisson", _) => return Err(format!("poisson takes 1 argument (rate, or log = …), not {}", args.len())),
+        _ => {
+            return Err(format!(
+                "unknown distribution `{dist}`; use category, normal, bernoulli or poisson"
+            ))
+        }
+    };
+    Ok(Some((name.to_string(), mechanism)))
+}
+
+/// `logit = expr` → `expr` when the argument starts with that keyword.
+fn keyword_argument<'a>(arg: &'a str, keyword: &str) -> Option<&'a str> {
+    let rest = arg.trim().strip_prefix(keyword)?.trim_start();
+    rest.strip_prefix('=').filter(|r| !r.starts_with('=')).map(str::trim)
+}
+
+fn parse_category(name: &str, items: &[&str]) -> Result<Mechanism, String> {
+    let mut levels = Vec::new();
+    let mut shares = Vec::new();
+    for item in items {
+        let item = item.trim();
+        let (level, share) = item
+            .rsplit_once(char::is_whitespace)
+            .ok_or_else(|| format!("category item `{item}` needs a level and its share, like `dwarf 0.5`"))?;
+        let share: f64 = share
+            .parse()
+            .ok()
+            .filter(|s: &f64| (0.0..=1.0).contains(s))
+            .ok_or_else(|| format!("the share `{share}` of level {} must be a number from 0 to 1", level.trim()))?;
+        let level = level.trim().to_string();
+        if levels.contains(&level) {
+            return Err(format!("level {level} of {name} is listed twice; list each level once"));
+        }
+        levels.push(level);
+        shares.push(share);
+    }
+    if levels.len() < 2 {
+        return Err(format!("the category {name} needs at least two levels with their shares"));
+    }
+    let total: f64 = shares.iter().sum();
+    if (total - 1.0).abs() > 1e-6 {
+        return Err(format!("the shares of {name} add up to {}, not 1; adjust them", crate::model::prior::short_number(total)));
+    }
+    Ok(Mechanism::Category { levels, shares })
+}
+
+/// Split at commas outside brackets.
+fn split_top_level(text: &str) -> Vec<&str> {
+    let mut parts = Vec::new();
+    let (mut depth, mut start) = (0i32, 0);
+    for (i, ch) in text.char_indices() {
+        match ch {
+            '(' | '[' => depth += 1,
+            ')' | ']' => depth -= 1,
+            ',' if depth == 0 => {
+                parts.push(&text[start..i]);
+                start = i + 1;
+            }
+            _ => {}
+        }
+    }
+    parts.push(&text[start..]);
+    parts
+}
+
+fn is_name(text: &str) -> bool {
+    let mut chars = text.chars();
+    chars.next().is_some_and(|c| c.is_alphabetic() || c == '_') && chars.all(|c| c.is_alphanumeric() || c == '_')
+}
+
+/// Parse an expression.
+pub fn parse_expr(text: &str) -> Result<Expr, String> {
+    let mut parser = Parser { text, chars: text.char_indices().collect(), at: 0 };
+    let expr = parser.sum()?;
+    parser.skip_space();
+    match parser.peek() {
+        None => Ok(expr),
+        Some(c) => Err(format!("unexpected `{c}` in `{}`", text.trim())),
+    }
+}
+
+/// A recursive-descent parser over the characters of one expression.
+struct Parser<'a> {
+    text: &'a str,
+    chars: Vec<(usize, char)>,
+    at: usize,
+}
+
+impl Parser<'_> {
+    fn peek(&self) -> Option<char> {
+        self.chars.get(self.at).map(|&(_, c)| c)
+    }
+
+    fn skip_space(&mut self) {
+        while self.peek().is_some_and(char::is_whitespace) {
+            self.at += 1;
+        }
+    }
+
+    fn sum(&mut self) -> Result<Expr, String> {
+        let mut left = self.product()?;
+        loop {
+            self.skip_space();
+            match self.peek() {
+                Some('+') => {
+                    self.at += 1;
+                    left = Expr::Add(Box::new(left), Box::new(self.product()?));
+                }
+                Some('-') => {
+                    self.at += 1;
+                    left = Expr::Subtract(Box::new(left), Box::new(self.product()?));
+                }
+                _ => return Ok(left),
+            }
+        }
+    }
+
+    fn product(&mut self) -> Result<Expr, String> {
+        let mut left = self.unary()?;
+        loop {
+            self.skip_space();
+            match self.peek() {
+                Some('*') => {
+                    self.at += 1;
+                    left = Expr::Multiply(Box::new(left), Box::new(self.unary()?));
+                }
+                Some('/') => {
+                    self.at += 1;
+                    left = Expr::Divide(Box::new(left), Box::new(self.unary()?));
+                }
+                _ => return Ok(left),
+            }
+        }
+    }
+
+    fn unary(&mut self) -> Result<Expr, String> {
+        self.skip_space();
+        if self.peek() == Some('-') {
+            self.at += 1;
+            return Ok(Expr::Negate(Box::new(self.unary()?)));
+        }
+        self.primary()
+    }
+
+    fn primary(&mut self) -> Result<Expr, String> {
+        self.skip_space();
+        match self.peek() {
+            None => Err(format!("`{}` ends where a number or a name is expected", self.text.trim())),
+            Some('(') => {
+                self.at += 1;
+                let inner = self.sum()?;
+                self.expect(')')?;
+                Ok(inner)
+            }
+            Some('[') => self.indicator(),
+            Some(c) if c.is_ascii_digit() || c == '.' => self.number(),
+            Some(c) if c.is_alphabetic() || c == '_' => {
+                let word = self.word();
+                self.skip_space();
+                match (word.as_str(), self.peek()) {
+                    ("log" | "exp", Some('(')) => {
+                        self.at += 1;
+                        let inner = Box::new(self.sum()?);
+                        self.expect(')')?;
+                        Ok(if word == "log" { Expr::Log(inner) } else { Expr::Exp(inner) })
+                    }
+                    (_, Some('(')) => Err(format!("unknown function `{word}`; use log or exp")),
+                    _ => Ok(Expr::Name(word)),
+                }
+            }
+            Some(c) => Err(format!("unexpected `{c}` in `{}`", self.text.trim())),
+        }
+    }
+
+    fn expect(&mut self, wanted: char) -> Result<(), String> {
+        self.skip_space();
+        if self.peek() == Some(wanted) {
+            self.at += 1;
+            Ok(())
+        } else {
+            Err(format!("a `{wanted}` is missing in `{}`", self.text.trim()))
+        }
+    }
+
+    fn word(&mut self) -> String {
+        let start = self.at;
+        while self.peek().is_some_and(|c| c.is_alphanumeric() || c == '_') {
+            self.at += 1;
+        }
+        self.chars[start..self.at].iter().map(|&(_, c)| c).collect()
+    }
+
+    fn number(&mut self) -> Result<Expr, String> {
+        let start = self.at;
+        while self.peek().is_some_and(|c| c.is_ascii_digit() || c == '.' || c == 'e' || c == 'E') {
+            let exponent = matches!(self.peek(), Some('e' | 'E'));
+            self.at += 1;
+            if exponent && matches!(self.peek(), Some('-' | '+')) {
+                self.at += 1;
+            }
+        }
+        let text: String = self.chars[start..self.at].iter().map(|&(_, c)| c).collect();
+        text.parse::<f64>().map(Expr::Number).map_err(|_| format!("`{text}` is not a number"))
+    }
+
+    fn indicator(&mut self) -> Result<Expr, String> {
+        let start = self.chars[self.at].0 + 1;
+        let close = self.text[start..].find(']').ok_or_else(|| format!("a `]` is missing in `{}`", self.text.trim()))?;
+        let inside = &self.text[start..start + close];
+        let (name, level) = inside
+            .split_once('=')
+            .ok_or_else(|| format!("the indicator `[{inside}]` needs the form [category = level]"))?;
+        let (name, level) = (name.trim(), level.trim());
+        if !is_name(name) || level.is_empty() {
+            return Err(format!("the indicator `[{inside}]` needs the form [category = level]"));
+        }
+        let end = start + close + 1;
+        while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
+            self.at += 1;
+        }
+        Ok(Expr::Indicator { name: name.to_string(), level: level.to_string() })
+    }
+}

@@ -1,0 +1,338 @@
+//! Synthetic data with known truth: `simulate NAME from GRAPH rows N seed S:`
+//! with one mechanism per node ([`super::mechanism`]).
+//!
+//! Every node of the graph, hidden ones included, needs a mechanism that
+//! reads only its parents; nodes are generated in topological order, each
+//! from its own seeded random stream, so setting one node by intervention
+//! leaves the noise of every other node unchanged (common random numbers).
+//! Hidden nodes are generated but not written to the table. The same
+//! mechanisms give the true effect of an intervention by simulating it
+//! directly ([`Simulation::true_effect`]).
+
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, Poisson, StandardNormal};
+
+use crate::graph::Graph;
+use crate::model::family::logistic;
+use crate::table::{Column, ColumnData, Table};
+
+use super::error::QueryError;
+use super::mechanism::{parse_mechanism_line, Mechanism};
+use super::support::{short, stream_seed};
+
+/// Rows and seed of a simulation.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SimulationSettings {
+    pub rows: usize,
+    pub seed: u64,
+}
+
+/// One node's mechanism and the cell line it was written on.
+#[derive(Debug, Clone, PartialEq)]
+struct NodeMechanism {
+    node: String,
+    line: usize,
+    mechanism: Mechanism,
+}
+
+/// A checked set of mechanisms for every node of a graph.
+#[derive(Debug, Clone)]
+pub struct Simulation {
+    pub name: String,
+    pub graph: Graph,
+    pub settings: SimulationSettings,
+    /// In topological order.
+    nodes: Vec<NodeMechanism>,
+}
+
+/// Generated values of one node.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum NodeValues {
+    Real(Vec<f64>),
+    Count(Vec<u64>),
+    Binary(Vec<bool>),
+    Category(Vec<u32>),
+}
+
+impl NodeValues {
+    fn real_at(&self, i: usize) -> f64 {
+        match self {
+            NodeValues::Real(v) => v[i],
+            NodeValues::Count(v) => v[i] as f64,
+            NodeValues::Binary(v) => f64::from(u8::from(v[i])),
+            NodeValues::Category(v) => v[i] as f64,
+        }
+    }
+}
+
+/// Every node's generated values, in the simulation's node order.
+pub(crate) struct Generated {
+    pub(crate) values: Vec<NodeValues>,
+}
+
+/// A value an intervention sets a node to.
+enum Forced {
+    Code(u32),
+    Number(f64),
+}
+
+impl Simulation {
+    /// Check numbered body lines `(line, text)` against `graph`.
+    pub fn parse<'a>(
+        name: &str,
+        graph: &Graph,
+        settings: SimulationSettings,
+        lines: impl IntoIterator<Item = (usize, &'a str)>,
+    ) -> Result<Simulation, QueryError> {
+        let mut found: Vec<NodeMechanism> = Vec::new();
+        for (line, text) in lines {
+            let at = |message: String| QueryError::Mechanism { line, message };
+            let Some((node, mechanism)) = parse_mechanism_line(text).map_err(at)? else {
+                continue;
+            };
+            graph.is_hidden(&node).map_err(|_| {
+                let nodes: Vec<&str> = graph.nodes().iter().map(|n| n.name.as_str()).collect();
+                at(format!("{node} is not a node of graph {} (its nodes: {}); give mechanisms for its nodes only", graph.name(), nodes.join(", ")))
+            })?;
+            if let Some(first) = found.iter().find(|m| m.node == node) {
+                return Err(at(format!("{node} already has a mechanism on line {}; keep one", first.line)));
+            }
+            found.push(NodeMechanism { node, line, mechanism });
+        }
+        let mut nodes = Vec::new();
+        for node in graph.topological_order() {
+            let Some(m) = found.iter().find(|m| m.node == node) else {
+                return Err(QueryError::request(format!(
+                    "simulate {name}: node {node} of graph {} has no mechanism; add a line such as `{node} = normal(0, 1)`",
+                    graph.name()
+                )));
+            };
+            nodes.push(m.clone());
+        }
+        for m in &nodes {
+            check_uses(graph, &nodes, m)?;
+        }
+        Ok(Simulation { name: name.to_string(), graph: graph.clone(), settings, nodes })
+    }
+
+    /// The synthetic table: every observed node, in the graph's order of
+    /// mention, with category levels in declared order.
+    pub fn table(&self) -> Result<Table, QueryError> {
+        let generated = self.generate(self.settings.rows, self.settings.seed, None)?;
+        self.observed_table(&generated)
+    }
+
+    /// The table of the observed nodes of `generated`.
+    pub(crate) fn observed_table(&self, generated: &Generated) -> Result<Table, QueryError> {
+        let mut columns = Vec::new();
+        for node in self.graph.nodes().iter().filter(|n| !n.hidden) {
+            let Some(k) = self.nodes.iter().position(|m| m.node == node.name) else { continue };
+            let data = match (&generated.values[k], &self.nodes[k].mechanism) {
+                (NodeValues::Category(codes), Mechanism::Category { levels, .. }) => {
+                    ColumnData::Category { codes: codes.clone(), levels: levels.clone() }
+                }
+                (NodeValues::Real(v), _) => ColumnData::Real(v.clone()),
+                (NodeValues::Count(v), _) => ColumnData::Count(v.clone()),
+                (NodeValues::Binary(v), _) => ColumnData::Binary(v.clone()),
+                (NodeValues::Category(codes), _) => ColumnData::Count(codes.iter().map(|&c| c as u64).collect()),
+            };
+            columns.push(Column::new(node.name.clone(), data));
+        }
+        Ok(Table::from_columns(self.name.clone(), columns)?)
+    }
+
+    /// Generate `rows` rows with `seed`, and the full set of node values
+    /// (hidden nodes included) with the data's own seed.
+    pub(crate) fn generate_default(&self) -> Result<Generated, QueryError> {
+        self.generate(self.settings.rows, self.settings.seed, None)
+    }
+
+    /// The true effect of setting `variable` to `to` vs `from` on the mean
+    /// of `watch`, from `rows` units simulated under each setting with the
+    /// same noise (seeded); the large-sample truth a fitted model should find.
+    pub fn true_effect(&self, variable: &str, to: &str, from: &str, watch: &str, rows: usize, seed: u64) -> Result<f64, QueryError> {
+        let place = format!("simulate {}", self.name);
+        let k = self.index(variable, &place)?;
+        let w = self.index(watch, &place)?;
+        if matches!(self.nodes[w].mechanism, Mechanism::Category { .. }) {
+            return Err(QueryError::request(format!("{place}: {watch} is a category; watch a numeric node")));
+        }
+        let read = |text: &str| -> Result<Forced, QueryError> {
+            match &self.nodes[k].mechanism {
+                Mechanism::Category { levels, .. } => levels.iter().position(|l| l == text).map(|c| Forced::Code(c as u32)).ok_or_else(|| {
+                    QueryError::request(format!("{place}: `{text}` is not a level of {variable} (levels: {})", levels.join(", ")))
+                }),
+                _ => text.trim().parse::<f64>().map(Forced::Number).map_err(|_| {
+                    QueryError::request(format!("{place}: `{text}` is not a number, and {variable} is numeric"))
+                }),
+            }
+        };
+        let under_to = self.generate(rows, seed, Some((k, read(to)?)))?;
+        let under_from = self.generate(rows, seed, Some((k, read(from)?)))?;
+        let mean = |g: &Generated| (0..rows).map(|i| g.values[w].real_at(i)).sum::<f64>() / rows.max(1) as f64;
+        Ok(mean(&under_to) - mean(&under_from))
+    }
+
+    /// The node's mechanism, if it has one.
+    pub fn mechanism(&self, node: &str) -> Option<&Mechanism> {
+        self.nodes.iter().find(|m| m.node == node).map(|m| &m.mechanism)
+    }
+
+    /// The node's linear predictor on its link scale (identity for normal,
+    /// logit for bernoulli, log for poisson) in every generated row, and the
+    /// spread of a normal mechanism when it is a constant.
+    pub(crate) fn link_scale_truth(&self, node: &str, generated: &Generated) -> Option<(Vec<f64>, Option<f64>)> {
+        let k = self.nodes.iter().position(|m| m.node == node)?;
+        let n = generated.values.first().map_or(0, |v| match v {
+            NodeValues::Real(x) => x.len(),
+            NodeValues::Count(x) => x.len(),
+            NodeValues::Binary(x) => x.len(),
+            NodeValues::Category(x) => x.len(),
+        });
+        let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, generated, i);
+        match &self.nodes[k].mechanism {
+            Mechanism::Category { .. } => None,
+            Mechanism::Normal { mean, sd } => {
+                let spread = sd.uses().is_empty().then(|| eval(sd, 0));
+                Some(((0..n).map(|i| eval(mean, i)).collect(), spread))
+            }
+            Mechanism::Bernoulli { p, logit } => Some((
+                (0..n).map(|i| if *logit { eval(p, i) } else { let q = eval(p, i); (q / (1.0 - q)).ln() }).collect(),
+                None,
+            )),
+            Mechanism::Poisson { rate, log } => {
+                Some(((0..n).map(|i| if *log { eval(rate, i) } else { eval(rate, i).ln() }).collect(), None))
+            }
+        }
+    }
+
+    fn index(&self, node: &str, place: &str) -> Result<usize, QueryError> {
+        self.nodes.iter().position(|m| m.node == node).ok_or_else(|| {
+            QueryError::request(format!("{place}: {node} is not a node of graph {}", self.graph.name()))
+        })
+    }
+
+    fn eval_at(&self, expr: &super::mechanism::Expr, generated: &Generated, i: usize) -> f64 {
+        let position = |name: &str| self.nodes.iter().position(|m| m.node == name);
+        let value = |name: &str| position(name).map_or(f64::NAN, |k| generated.values[k].real_at(i));
+        let is_level = |name: &str, level: &str| {
+            position(name).is_some_and(|k| match (&self.nodes[k].mechanism, &generated.values[k]) {
+                (Mechanism::Category { levels, .. }, NodeValues::Category(codes)) => levels[codes[i] as usize] == level,
+                _ => false,
+            })
+        };
+        expr.eval(&value, &is_level)
+    }
+
+    /// Generate `rows` rows, optionally with node `forced.0` set to a value.
+    fn generate(&self, rows: usize, seed: u64, forced: Option<(usize, Forced)>) -> Result<Generated, QueryError> {
+        let mut generated = Generated { values: Vec::with_capacity(self.nodes.len()) };
+        for (k, m) in self.nodes.iter().enumerate() {
+            let values = match &forced {
+                Some((f, value)) if *f == k => forced_values(&m.mechanism, value, rows),
+                _ => self.draw_node(k, rows, seed, &generated)?,
+            };
+            generated.values.push(values);
+        }
+        Ok(generated)
+    }
+
+    /// Draw node `k` for every row from its own stream.
+    fn draw_node(&self, k: usize, rows: usize, seed: u64, so_far: &Generated) -> Result<NodeValues, QueryError> {
+        let m = &self.nodes[k];
+        let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 2));
+        let bad = |i: usize, what: String| QueryError::Mechanism {
+            line: m.line,
+            message: format!("in simulated row {}, {what}; change the mechanism of {}", i + 1, m.node),
+        };
+        let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, so_far, i);
+        Ok(match &m.mechanism {
+            Mechanism::Category { shares, .. } => NodeValues::Category(
+                (0..rows)
+                    .map(|_| {
+                        let u: f64 = rng.random();
+                        let mut total = 0.0;
+                        shares.iter().position(|s| { total += s; u < total }).unwrap_or(shares.len() - 1) as u32
+                    })
+                    .collect(),
+            ),
+            Mechanism::Normal { mean, sd } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    let (mu, s) = (eval(mean, i), eval(sd, i));
+                    if !mu.is_finite() || !s.is_finite() || s <= 0.0 {
+                        return Err(bad(i, format!("the mean is {} and the sd {}, but the sd must be positive and both finite", short(mu), short(s))));
+                    }
+                    let z: f64 = StandardNormal.sample(&mut rng);
+                    out.push(mu + s * z);
+                }
+                NodeValues::Real(out)
+            }
+            Mechanism::Bernoulli { p, logit } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    let q = if *logit { logistic(eval(p, i)) } else { eval(p, i) };
+                    if !(0.0..=1.0).contains(&q) {
+                        return Err(bad(i, format!("the probability is {}, outside 0 to 1", short(q))));
+                    }
+                    out.push(rng.random::<f64>() < q);
+                }
+                NodeValues::Binary(out)
+            }
+            Mechanism::Poisson { rate, log } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    let r = if *log { eval(rate, i).exp() } else { eval(rate, i) };
+                    if !r.is_finite() || r < 0.0 {
+                        return Err(bad(i, format!("the rate is {}, but it must be a finite number ≥ 0", short(r))));
+                    }
+                    out.push(if r == 0.0 { 0 } else { Poisson::new(r).map_err(|e| bad(i, e.to_string()))?.sample(&mut rng) as u64 });
+                }
+                NodeValues::Count(out)
+            }
+        })
+    }
+}
+
+/// A node's values when an intervention sets it.
+fn forced_values(mechanism: &Mechanism, value: &Forced, rows: usize) -> NodeValues {
+    match (mechanism, value) {
+        (_, Forced::Code(c)) => NodeValues::Category(vec![*c; rows]),
+        (Mechanism::Poisson { .. }, Forced::Number(x)) => NodeValues::Count(vec![x.max(0.0).round() as u64; rows]),
+        (Mechanism::Bernoulli { .. }, Forced::Number(x)) => NodeValues::Binary(vec![*x > 0.5; rows]),
+        (_, Forced::Number(x)) => NodeValues::Real(vec![*x; rows]),
+    }
+}
+
+/// A mechanism may read only its node's parents: numeric parents by name,
+/// category parents through indicators of their declared levels.
+fn check_uses(graph: &Graph, nodes: &[NodeMechanism], m: &NodeMechanism) -> Result<(), QueryError> {
+    let at = |message: String| QueryError::Mechanism { line: m.line, message };
+    let parents = graph.parents(&m.node)?;
+    for (name, level) in m.mechanism.uses() {
+        if !parents.contains(&name.as_str()) {
+            let known = nodes.iter().any(|n| n.node == name);
+            let listed = if parents.is_empty() { "none".to_string() } else { parents.join(", ") };
+            return Err(at(if known {
+                format!("the mechanism of {} uses {name}, which is not its parent in graph {} (its parents: {listed}); add the edge {name} -> {} or leave {name} out", m.node, graph.name(), m.node)
+            } else {
+                format!("the mechanism of {} uses {name}, which is not a node of graph {}; use its parents ({listed})", m.node, graph.name())
+            }));
+        }
+        let Some(parent) = nodes.iter().find(|n| n.node == name) else { continue };
+        match (&parent.mechanism, level) {
+            (Mechanism::Category { levels, .. }, Some(level)) if !levels.contains(&level) => {
+                return Err(at(format!("{name} has no level `{level}` (its levels: {}); use one of them", levels.join(", "))))
+            }
+            (Mechanism::Category { .. }, None) => {
+                return Err(at(format!("{name} is a category, so the mechanism of {} cannot use it as a number; write an indicator such as [{name} = level]", m.node)))
+            }
+            (other, Some(_)) if !matches!(other, Mechanism::Category { .. }) => {
+                return Err(at(format!("[{name} = …] needs a category, but {name} is {other}; use {name} as a number", )))
+            }
+            _ => {}
+        }
+    }
+    Ok(())
+}
