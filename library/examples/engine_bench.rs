@@ -22,7 +22,10 @@
 //! that ESS per wall second, and the peak resident memory of the case
 //! (`VmHWM` of `/proc/self/status`, reset before each case through
 //! `/proc/self/clear_refs` where the kernel allows it). Wall seconds cover
-//! everything the case does after its data exist, diagnostics included.
+//! everything the case does after its data exist, diagnostics included;
+//! CPU seconds are the processor time of all threads over the same span,
+//! which tells how a busy machine stretched the wall time (on an idle
+//! machine with as many cores as chains run at once, wall ≈ CPU / cores).
 
 use std::fmt::Write as _;
 use std::io::Write as _;
@@ -43,6 +46,8 @@ use waypath::table::{load_table, parse_table_line, Column, ColumnData, Table, Ta
 struct Row {
     case: String,
     seconds: f64,
+    /// Processor time of the whole process over the case (all threads).
+    cpu_seconds: f64,
     min_ess: Option<f64>,
     peak_mib: f64,
 }
@@ -70,7 +75,7 @@ fn main() {
 fn case_stratified() -> Row {
     let table = reaches(400, 11);
     reset_peak_memory();
-    let started = Instant::now();
+    let started = Clock::start();
     let model = build("m_reach", STRATIFIED_MODEL, &table);
     let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
     row("(a) stratified normal, n = 400, NUTS", started, &fit)
@@ -83,16 +88,16 @@ fn case_million() -> Vec<Row> {
     let path = std::env::temp_dir().join(format!("waypath_bench_reaches_{}.csv", std::process::id()));
     write_csv(&reaches(1_000_000, 12), &path);
     reset_peak_memory();
-    let started = Instant::now();
+    let started = Clock::start();
     let (model, steps) = million_to_model(&path);
     let fit = run_fit(&model, &Method::Laplace { draws: 4000, seed: 7 });
     let shown = summary_text(&fit);
     let laplace_row = row("(b) same, n = 1,000,000, CSV → Laplace summary", started, &fit);
-    eprintln!("{steps}laplace + summary {:.2} s\n{shown}", started.elapsed().as_secs_f64());
+    eprintln!("{steps}laplace + summary {:.2} s\n{shown}", started.wall.elapsed().as_secs_f64());
     let _ = std::fs::remove_file(&path);
 
     reset_peak_memory();
-    let started = Instant::now();
+    let started = Clock::start();
     let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
     vec![laplace_row, row("(b) same, n = 1,000,000, NUTS on the built model", started, &fit)]
 }
@@ -119,7 +124,7 @@ fn case_logistic() -> Row {
     let terms: Vec<String> = (1..=20).map(|j| format!("h{j}")).collect();
     let body = format!("nested from {} using plots\nfamily bernoulli", terms.join(", "));
     reset_peak_memory();
-    let started = Instant::now();
+    let started = Clock::start();
     let model = build("m_nest", &body, &table);
     let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
     row("(c) logistic, 20 predictors, n = 10,000, NUTS", started, &fit)
@@ -129,7 +134,7 @@ fn case_logistic() -> Row {
 fn case_spline() -> Row {
     let table = saplings(1000, 14);
     reset_peak_memory();
-    let started = Instant::now();
+    let started = Clock::start();
     let model = build("m_growth", "height from spline(age, 15) using saplings", &table);
     let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
     row("(d) B-spline, 15 functions, n = 1,000, NUTS", started, &fit)
@@ -149,13 +154,14 @@ fn run_fit(model: &Model, method: &Method) -> Fit {
     fit
 }
 
-fn row(case: &str, started: Instant, fit: &Fit) -> Row {
-    let seconds = started.elapsed().as_secs_f64();
+fn row(case: &str, started: Clock, fit: &Fit) -> Row {
+    let seconds = started.wall.elapsed().as_secs_f64();
+    let cpu_seconds = cpu_seconds() - started.cpu;
     let min_ess = fit
         .diagnostics
         .as_ref()
         .map(|d| d.iter().map(|p| p.ess_bulk).fold(f64::INFINITY, f64::min));
-    Row { case: case.to_string(), seconds, min_ess, peak_mib: peak_memory_mib() }
+    Row { case: case.to_string(), seconds, cpu_seconds, min_ess, peak_mib: peak_memory_mib() }
 }
 
 fn summary_text(fit: &Fit) -> String {
@@ -168,15 +174,47 @@ fn summary_text(fit: &Fit) -> String {
 }
 
 fn render(rows: &[Row]) -> String {
-    let mut out = String::from("| case | wall s | min bulk ESS | ESS/s | peak memory (MiB) |\n|---|---|---|---|---|\n");
+    let mut out = String::from(
+        "| case | wall s | CPU s | min bulk ESS | ESS/s | peak memory (MiB) |\n|---|---|---|---|---|---|\n",
+    );
     for r in rows {
         let (ess, rate) = match r.min_ess {
             Some(e) => (format!("{e:.0}"), format!("{:.0}", e / r.seconds)),
             None => ("—".into(), "—".into()),
         };
-        let _ = writeln!(out, "| {} | {:.2} | {ess} | {rate} | {:.0} |", r.case, r.seconds, r.peak_mib);
+        let _ = writeln!(
+            out,
+            "| {} | {:.2} | {:.2} | {ess} | {rate} | {:.0} |",
+            r.case, r.seconds, r.cpu_seconds, r.peak_mib
+        );
     }
     out
+}
+
+/// When a case started, by the wall clock and by processor time.
+#[derive(Clone, Copy)]
+struct Clock {
+    wall: Instant,
+    cpu: f64,
+}
+
+impl Clock {
+    fn start() -> Clock {
+        Clock { wall: Instant::now(), cpu: cpu_seconds() }
+    }
+}
+
+/// Processor time used by this process so far (user + system, all
+/// threads), from `/proc/self/stat` in clock ticks of 1/100 s.
+fn cpu_seconds() -> f64 {
+    let stat = std::fs::read_to_string("/proc/self/stat").unwrap_or_default();
+    // Fields after the command name (which is in brackets): utime is the 12th, stime the 13th.
+    let after = stat.rsplit_once(')').map_or("", |(_, rest)| rest);
+    let fields: Vec<f64> = after.split_whitespace().map(|f| f.parse().unwrap_or(f64::NAN)).collect();
+    match (fields.get(11), fields.get(12)) {
+        (Some(user), Some(system)) => (user + system) / 100.0,
+        _ => f64::NAN,
+    }
 }
 
 /// Peak resident memory of this process in MiB (`VmHWM`).
