@@ -5,9 +5,12 @@ use crate::graph::Graph;
 use crate::infer::fit::Fit;
 use crate::model::{Family, Input, Model};
 use crate::plot::{
-    basis_figure, graph_figure, lines_figure, posterior_figure, trace_figure, BasisPicture, DensityArrangement,
-    EdgeMark, GraphPicture, LineGroup, NodeMark, ParameterDraws, PlotError, Quantity, Role,
+    basis_figure, calibration_figure, contrast_figure, contrast_grid_figure, graph_figure, implications_figure,
+    lines_figure, posterior_figure, predictive_figure, recovery_figure, trace_figure, BasisPicture,
+    DensityArrangement, EdgeMark, GraphPicture, GridContrast, ImplicationRow, LineGroup, NodeMark, ParameterDraws,
+    PlotError, PredictiveKind, Quantity, RecoveryRow, Role,
 };
+use crate::query::{Calibration, Contrast, ImplicationsReport, PredictiveSets, Recovery};
 use crate::table::{Column, ColumnData, Table};
 
 /// How to mark a graph drawing: exposure, outcome, an adjustment set, and
@@ -269,4 +272,101 @@ fn thin_indices(total: usize, max: usize) -> Vec<usize> {
     } else {
         (0..max).map(|i| i * total / max).collect()
     }
+}
+
+/// The axis of a difference in `outcome` (with its unit when the table has one).
+fn difference_quantity(table: &Table, outcome: &str, on: &str) -> Quantity {
+    let base = quantity(table, outcome);
+    let name = if on == "outcomes" { format!("difference in simulated {outcome}") } else { format!("difference in mean {outcome}") };
+    Quantity { name, unit: base.unit }
+}
+
+/// A contrast: the density of its per-draw differences with both sides of
+/// zero shaded, or, along a grid, its band with a zero line.
+pub fn contrast(c: &Contrast, table: &Table, outcome: &str) -> Result<String, PlotError> {
+    let value = difference_quantity(table, outcome, &c.on);
+    let subject = format!("{} ({})", c.contrast, c.model);
+    match &c.along {
+        Some(x) => {
+            let picture = GridContrast {
+                grid: c.grid.iter().map(|p| p.x).collect(),
+                mean: c.grid.iter().map(|p| p.mean).collect(),
+                lower: c.grid.iter().map(|p| p.lower).collect(),
+                upper: c.grid.iter().map(|p| p.upper).collect(),
+            };
+            contrast_grid_figure(&subject, &quantity(table, x), &value, &interval_label(c.mass), &picture)
+        }
+        None => contrast_figure(&subject, &value, &c.draws),
+    }
+}
+
+/// Several per-draw quantities on the axis of a difference in `outcome`:
+/// one contrast figure for one, stacked (or shared-axis) densities for more.
+pub fn differences(
+    subject: &str,
+    table: &Table,
+    outcome: &str,
+    named: &[(String, &[f64])],
+    arrangement: DensityArrangement,
+) -> Result<String, PlotError> {
+    let value = difference_quantity(table, outcome, "means");
+    match named {
+        [(name, draws)] => contrast_figure(&format!("{subject}: {name}"), &value, draws),
+        _ => {
+            let params: Vec<ParameterDraws> = named.iter().map(|(n, d)| ParameterDraws { name: n, draws: d }).collect();
+            posterior_figure(subject, &value, &params, arrangement)
+        }
+    }
+}
+
+/// Each checked implication's association with its interval, against zero.
+pub fn implications(report: &ImplicationsReport) -> Result<String, PlotError> {
+    let rows: Vec<ImplicationRow> = report
+        .checks
+        .iter()
+        .flat_map(|c| {
+            let several = c.associations.len() > 1;
+            c.associations.iter().map(move |a| ImplicationRow {
+                statement: if several { format!("{} ({})", c.statement, a.label) } else { c.statement.clone() },
+                estimate: a.mean,
+                lower: a.lower,
+                upper: a.upper,
+            })
+        })
+        .collect();
+    let subject = format!("{} against table {}", report.graph, report.table);
+    implications_figure(&subject, &Quantity::new("association (regression coefficient)"), &interval_label(report.mass), &rows)
+}
+
+/// Posterior intervals beside the true values, for parameters that have one.
+pub fn recovery(r: &Recovery) -> Result<String, PlotError> {
+    let rows: Vec<RecoveryRow> = r
+        .parameters
+        .iter()
+        .filter_map(|p| {
+            p.truth.map(|t| RecoveryRow { name: p.name.clone(), truth: t, estimate: p.mean, lower: p.lower, upper: p.upper })
+        })
+        .collect();
+    let subject = format!("{} on {}", r.model, r.simulation);
+    recovery_figure(&subject, &Quantity::new("parameter value"), &interval_label(r.mass), &rows)
+}
+
+/// The rank histogram of one calibrated parameter.
+pub fn calibration(c: &Calibration, parameter: usize) -> Result<String, PlotError> {
+    let p = c.parameters.get(parameter).ok_or_else(|| PlotError::Empty {
+        figure: "calibration",
+        what: format!("parameter number {} of {}", parameter + 1, c.model),
+    })?;
+    calibration_figure(&format!("{} of {}", p.name, c.model), &p.ranks, c.draws_per_fit, c.bins)
+}
+
+/// Observed outcomes against outcome sets simulated from the prior or the posterior.
+pub fn predictive(sets: &PredictiveSets, table: &Table, outcome: &str) -> Result<String, PlotError> {
+    let kind = if sets.kind == "prior" { PredictiveKind::Prior } else { PredictiveKind::Posterior };
+    predictive_figure(kind, &sets.model, &quantity(table, outcome), &sets.observed, &sets.replicated)
+}
+
+/// "90% interval" for an interval mass.
+fn interval_label(mass: f64) -> String {
+    format!("{}% interval", crate::model::prior::short_number(mass * 100.0))
 }

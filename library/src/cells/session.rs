@@ -9,7 +9,8 @@ use super::parse::split_statements;
 use super::statements;
 use crate::graph::Graph;
 use crate::infer::fit::Fit;
-use crate::model::Model;
+use crate::model::{Model, ModelSpec};
+use crate::query::{JointFit, JointModel, Simulation};
 use crate::table::Table;
 
 /// How a running cell is steered from outside: a cancel flag (set by an
@@ -17,6 +18,13 @@ use crate::table::Table;
 pub struct RunControl<'a> {
     pub cancel: &'a AtomicBool,
     pub progress: &'a (dyn Fn(&str) + Sync),
+}
+
+/// A simulation and the mechanism lines it was written with, per node.
+pub(crate) struct SimulationRecord {
+    pub(crate) simulation: Simulation,
+    /// `(node, mechanism as written)`, in the order written.
+    pub(crate) mechanisms: Vec<(String, String)>,
 }
 
 /// Named tables, graphs and models, plus the folder that relative paths in
@@ -28,6 +36,13 @@ pub struct Session {
     pub(crate) graphs: BTreeMap<String, Graph>,
     pub(crate) models: BTreeMap<String, Model>,
     pub(crate) fits: BTreeMap<String, Fit>,
+    /// The specification each model was built from (for `recover`).
+    pub(crate) specs: BTreeMap<String, ModelSpec>,
+    /// Whole-graph models (`joint`) and their latest fits.
+    pub(crate) joints: BTreeMap<String, JointModel>,
+    pub(crate) joint_fits: BTreeMap<String, JointFit>,
+    /// Simulations (`simulate`), by the name of the table they made.
+    pub(crate) simulations: BTreeMap<String, SimulationRecord>,
     /// The most recent figure any statement drew, for `save figure`.
     pub(crate) last_figure: Option<String>,
 }
@@ -77,7 +92,8 @@ impl Session {
         let tables = self.tables.keys().map(|k| (k.clone(), "table"));
         let graphs = self.graphs.keys().map(|k| (k.clone(), "graph"));
         let models = self.models.keys().map(|k| (k.clone(), "model"));
-        tables.chain(graphs).chain(models).collect()
+        let joints = self.joints.keys().map(|k| (k.clone(), "joint model"));
+        tables.chain(graphs).chain(models).chain(joints).collect()
     }
 
     /// Run every statement of a cell in order. The first error stops the

@@ -19,6 +19,7 @@ use serde::Serialize;
 
 use crate::graph::{EffectKind, Graph, Identification};
 use crate::infer::fit::{fit_model, Fit, Method};
+use crate::infer::nuts::Progress;
 use crate::model::{Family, Model, ModelSpec};
 use crate::table::{ColumnData, Table};
 
@@ -68,6 +69,22 @@ pub fn answer_effect(
     cancel: &AtomicBool,
     mass: f64,
 ) -> Result<EffectAnswer, QueryError> {
+    answer_effect_with_progress(graph, table, exposure, outcome, kind, method, cancel, mass, &|_| {})
+}
+
+/// [`answer_effect`], reporting the sampler's progress to `progress`.
+#[allow(clippy::too_many_arguments)]
+pub fn answer_effect_with_progress(
+    graph: &Graph,
+    table: &Table,
+    exposure: &str,
+    outcome: &str,
+    kind: EffectKind,
+    method: &Method,
+    cancel: &AtomicBool,
+    mass: f64,
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Result<EffectAnswer, QueryError> {
     let identification = match kind {
         EffectKind::Total => graph.total_effect(exposure, outcome)?,
         EffectKind::Direct => graph.direct_effect(exposure, outcome)?,
@@ -112,7 +129,7 @@ pub fn answer_effect(
     let name = format!("{kind_words}_{exposure}_on_{outcome}");
     let spec = ModelSpec::from_lines(&name, lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))?;
     let model = Model::build(&spec, table)?;
-    let fit = fit_model(&model, method, cancel, &|_| {})
+    let fit = fit_model(&model, method, cancel, progress)
         .map_err(|e| QueryError::Fit { what: format!("model {name}"), message: e.to_string() })?;
     answer.warnings.extend(fit.warnings.iter().cloned());
     if kind == EffectKind::Direct && set.iter().any(|s| table.column(s).is_some_and(|c| c.data.levels().is_none())) {

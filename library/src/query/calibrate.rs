@@ -60,12 +60,25 @@ pub struct Calibration {
 /// refitted with `method` (its seed replaced by a per-replication stream of
 /// `seed`).
 pub fn calibrate(model: &Model, reps: usize, method: &Method, seed: u64, cancel: &AtomicBool) -> Result<Calibration, QueryError> {
+    calibrate_with_progress(model, reps, method, seed, cancel, &|_| {})
+}
+
+/// [`calibrate`], calling `progress(r)` as replication `r` (0-based) starts.
+pub fn calibrate_with_progress(
+    model: &Model,
+    reps: usize,
+    method: &Method,
+    seed: u64,
+    cancel: &AtomicBool,
+    progress: &(dyn Fn(usize) + Sync),
+) -> Result<Calibration, QueryError> {
     let names = model.parameter_names();
     let rows = NewRows { design: model.design_matrix().clone(), trials: None };
     let mut ranks = vec![Vec::with_capacity(reps); names.len()];
     let mut failures = 0;
     let mut draws_per_fit = 0;
     for r in 0..reps {
+        progress(r);
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, r as u64, 3));
         let truth = prior_draw(model, &mut rng)?;
         let y = model.outcome_draw(&truth, &rows, &mut rng)?;

@@ -30,6 +30,7 @@ use serde::Serialize;
 
 use crate::graph::Graph;
 use crate::infer::fit::{fit_model, Fit, Method};
+use crate::infer::nuts::Progress;
 use crate::model::{Family, Model, ModelSpec};
 use crate::table::{ColumnData, Table};
 
@@ -163,6 +164,17 @@ pub fn build_joint(
 /// Fit every regression of `joint` with `method`; each node gets its own
 /// seed stream derived from the method's seed.
 pub fn fit_joint(joint: &JointModel, method: &Method, cancel: &AtomicBool) -> Result<JointFit, QueryError> {
+    fit_joint_with_progress(joint, method, cancel, &|_, _| {})
+}
+
+/// [`fit_joint`], reporting each node's sampler progress (with the node's
+/// name) to `progress`.
+pub fn fit_joint_with_progress(
+    joint: &JointModel,
+    method: &Method,
+    cancel: &AtomicBool,
+    progress: &(dyn Fn(&str, Progress) + Sync),
+) -> Result<JointFit, QueryError> {
     let mut fits = Vec::new();
     for (i, node) in joint.nodes.iter().enumerate() {
         let NodeModel::Regression { model, .. } = &node.model else {
@@ -177,7 +189,7 @@ pub fn fit_joint(joint: &JointModel, method: &Method, cancel: &AtomicBool) -> Re
                 Method::Nuts(s)
             }
         };
-        let fit = fit_model(model, &node_method, cancel, &|_| {}).map_err(|e| QueryError::Fit {
+        let fit = fit_model(model, &node_method, cancel, &|p| progress(&node.name, p)).map_err(|e| QueryError::Fit {
             what: format!("the model of {} in joint {}", node.name, joint.name),
             message: e.to_string(),
         })?;

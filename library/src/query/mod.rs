@@ -33,14 +33,14 @@ pub mod recover;
 pub mod simulate;
 mod support;
 
-pub use answer::{answer_effect, EffectAnswer};
-pub use calibrate::{calibrate, posterior_predictive, prior_predictive, Calibration, PredictiveSets};
+pub use answer::{answer_effect, answer_effect_with_progress, EffectAnswer};
+pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, Calibration, PredictiveSets};
 pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use error::QueryError;
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
-pub use joint::{build_joint, fit_joint, JointFit, JointModel, JointNode, NodeModel};
+pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
-pub use recover::{recover, Recovery, RecoveryParameter};
+pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;

@@ -15,7 +15,8 @@ use std::sync::atomic::AtomicBool;
 use nalgebra::DVector;
 use serde::Serialize;
 
-use crate::infer::fit::{fit_model, Method};
+use crate::infer::fit::{fit_model, Fit, Method};
+use crate::infer::nuts::Progress;
 use crate::model::{Family, Model, ModelSpec};
 
 use super::error::QueryError;
@@ -61,10 +62,24 @@ pub fn recover(
     cancel: &AtomicBool,
     mass: f64,
 ) -> Result<Recovery, QueryError> {
+    recover_fitted(spec, simulation, method, cancel, mass, &|_| {}).map(|(recovery, _, _)| recovery)
+}
+
+/// [`recover`], reporting the sampler's progress, and returning the model
+/// built on the synthetic table and its fit beside the check (for contrasts
+/// against true intervention effects).
+pub fn recover_fitted(
+    spec: &ModelSpec,
+    simulation: &Simulation,
+    method: &Method,
+    cancel: &AtomicBool,
+    mass: f64,
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Result<(Recovery, Model, Fit), QueryError> {
     let generated = simulation.generate_default()?;
     let table = simulation.observed_table(&generated)?;
     let model = Model::build(spec, &table)?;
-    let fit = fit_model(&model, method, cancel, &|_| {})
+    let fit = fit_model(&model, method, cancel, progress)
         .map_err(|e| QueryError::Fit { what: format!("model {} on {}", spec.name, simulation.name), message: e.to_string() })?;
     let mut notes = fit.warnings.clone();
     let truths = true_parameters(&model, simulation, &generated, &mut notes);
@@ -85,7 +100,7 @@ pub fn recover(
             })
         })
         .collect::<Result<Vec<_>, QueryError>>()?;
-    Ok(Recovery {
+    let recovery = Recovery {
         model: spec.name.clone(),
         simulation: simulation.name.clone(),
         method: method.describe(),
@@ -93,7 +108,8 @@ pub fn recover(
         interval: interval_words(mass),
         parameters,
         notes,
-    })
+    };
+    Ok((recovery, model, fit))
 }
 
 /// The true value of each parameter (in parameter order), or `None` with a

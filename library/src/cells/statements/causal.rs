@@ -89,7 +89,7 @@ pub(crate) fn ask(session: &mut Session, st: &Statement) -> Result<Vec<Display>,
     Ok(vec![display])
 }
 
-fn describe_identification(id: &Identification) -> Display {
+pub(crate) fn describe_identification(id: &Identification) -> Display {
     let query = serde_json::to_value(id.query).unwrap_or_default();
     let query = query.as_str().unwrap_or("effect").to_string();
     let verdict = if id.identifiable { "identifiable" } else { "NOT identifiable by adjustment" };

@@ -17,7 +17,7 @@ use crate::infer::nuts::{NutsSettings, Progress};
 use crate::model::{Model, ModelSpec};
 
 const MODEL_FORM: &str = "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)";
-const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
+pub(crate) const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
 const EXPORT_FORM: &str = "export NAME draws to \"FILE.csv\"";
 const PLOT_FORM: &str = "plot NAME posterior|trace [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis";
 
@@ -38,6 +38,7 @@ pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display
     let model = Model::build(&spec, table).map_err(|e| CellError::at(line, e.to_string()))?;
     let display = describe_model(&model, table.nrows());
     session.fits.remove(name);
+    session.specs.insert(name.to_string(), spec);
     session.models.insert(name.to_string(), model);
     Ok(vec![display])
 }
@@ -118,7 +119,7 @@ pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, w
 }
 
 /// Read `with laplace …` / `with nuts …` options.
-fn parse_method(words: &[&str]) -> Result<Method, String> {
+pub(crate) fn parse_method(words: &[&str]) -> Result<Method, String> {
     let (kind, rest) = match words {
         [] => ("nuts", &[][..]),
         ["with", kind, rest @ ..] => (*kind, rest),

@@ -3,14 +3,18 @@
 mod causal;
 mod data;
 mod fitting;
+mod questions;
+mod simulation;
 
 use super::output::{CellError, Display};
 use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
 
 /// The first words that start a statement, for error messages and completion.
-pub const KEYWORDS: &[&str] =
-    &["table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save"];
+pub const KEYWORDS: &[&str] = &[
+    "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save", "contrast",
+    "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+];
 
 /// Run one statement against the session.
 pub(crate) fn run(
@@ -27,17 +31,33 @@ pub(crate) fn run(
     match first {
         "table" => data::table(session, st, warnings),
         "graph" => causal::graph(session, st),
+        "ask" if has_word(head, "using") => questions::ask_using(session, st, control, warnings),
         "ask" => causal::ask(session, st),
         "paths" => causal::paths(session, st),
+        "implications" if head.contains(" checked against ") => questions::implications_checked(session, st, control),
         "implications" => causal::implications(session, st),
+        "contrast" => questions::contrast(session, st),
+        "compare" => questions::compare_routes(session, st, control, warnings),
         "model" => fitting::model(session, st),
+        "fit" if simulation::names_joint(session, head) => simulation::fit_joint(session, st, control, warnings),
         "fit" => fitting::fit(session, st, control, warnings),
+        "joint" => simulation::joint(session, st),
+        "intervene" => simulation::intervene(session, st),
+        "simulate" => simulation::simulate(session, st),
+        "recover" => simulation::recover(session, st, control, warnings),
+        "calibrate" => simulation::calibrate(session, st, control),
+        "prior" | "check" => simulation::predictive_check(session, st),
         "show" => fitting::show(session, st),
         "export" => fitting::export(session, st),
         "plot" => fitting::plot(session, st),
         "save" => save_figure(session, st),
         other => Err(unknown_statement(other, st.header.number)),
     }
+}
+
+/// Whether `word` appears as a whole word in `head`.
+fn has_word(head: &str, word: &str) -> bool {
+    head.split_whitespace().any(|w| w == word)
 }
 
 fn unknown_statement(word: &str, line: usize) -> CellError {

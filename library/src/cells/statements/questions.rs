@@ -1,0 +1,500 @@
+//! Statements that ask an effect of fitted models and of data:
+//! `contrast`, `ask … using`, `compare routes for …` and
+//! `implications of G checked against T`.
+//!
+//! Each statement reads its header, calls one function of [`crate::query`]
+//! (which computes every uncertain number draw by draw and summarises last)
+//! and renders the result the same way: a heading sentence, aligned tables
+//! (text and HTML), notes that say what was held fixed or averaged, the
+//! query's own JSON structure, and a figure. Helpers shared with the
+//! simulation statements live here too.
+
+use std::sync::atomic::Ordering;
+
+use serde_json::{json, Value};
+
+use super::fitting::{parse_method, require_fit, FIT_FORM, INTERVAL_MASS};
+use super::form_error;
+use crate::cells::figures::{self, GraphMarks};
+use crate::cells::format::num;
+use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
+use crate::cells::parse::Statement;
+use crate::cells::session::{RunControl, Session};
+use crate::graph::EffectKind;
+use crate::infer::fit::Method;
+use crate::infer::nuts::Progress;
+use crate::model::ModelSpec;
+use crate::plot::DensityArrangement;
+use crate::query::{
+    answer_effect_with_progress, build_joint, check_implications, fit_joint_with_progress, intervene, Contrast,
+    ContrastRequest, ContrastSummary, GridRequest, InterventionRequest, On, QueryError,
+};
+use crate::table::Table;
+
+const CONTRAST_FORM: &str =
+    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows]";
+const ASK_USING_FORM: &str = "ask total|direct effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]";
+const ROUTES_FORM: &str = "compare routes for total effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]";
+const CHECKED_FORM: &str = "implications of GRAPH checked against TABLE [with laplace …|with nuts …]";
+
+/// The closing sentence of every causal answer.
+pub(super) const CAUSAL_NOTE: &str = "Causal readings of these numbers rest on the graph's assumptions.";
+
+/// The seed of simulated outcomes and interventions when none is written.
+pub(super) const DEFAULT_SEED: u64 = 31_415;
+
+/// A query error as a cell error: a simulate-body error keeps its own
+/// line, anything else is placed at `line`.
+pub(super) fn query_error(e: QueryError, line: usize) -> CellError {
+    match e {
+        QueryError::Mechanism { line: at, message } => CellError::at(at, message),
+        other => CellError::at(line, other.to_string()),
+    }
+}
+
+/// The error of a long step, saying so when the user interrupted it.
+pub(super) fn stopped_or(control: &RunControl, what: &str, line: usize, e: QueryError) -> CellError {
+    if control.cancel.load(Ordering::Relaxed) {
+        CellError::at(line, format!("{what} was interrupted; the session is unchanged"))
+    } else {
+        query_error(e, line)
+    }
+}
+
+/// An error when the cancel flag was set during a step that does not fail on it.
+pub(super) fn check_cancel(control: &RunControl, what: &str, line: usize) -> Result<(), CellError> {
+    if control.cancel.load(Ordering::Relaxed) {
+        return Err(CellError::at(line, format!("{what} was interrupted; the session is unchanged")));
+    }
+    Ok(())
+}
+
+/// A progress sink that reports every 100th sampler iteration as `label: chain c — iteration i/n`.
+pub(super) fn sampler_progress<'a>(control: &'a RunControl, label: &'a str) -> impl Fn(Progress) + Sync + 'a {
+    move |p: Progress| {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
+            (control.progress)(&format!("{label}: chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
+        }
+    }
+}
+
+/// The method of `with …` words, or `default` when there are none.
+pub(super) fn method_or(words: &[&str], default: Method, line: usize) -> Result<Method, CellError> {
+    if words.is_empty() {
+        return Ok(default);
+    }
+    parse_method(words).map_err(|m| CellError::at(line, format!("{m}; the options are those of: {FIT_FORM}")))
+}
+
+/// Plain text and HTML of a heading, tables and notes (notes as bullets).
+pub(super) fn render(heading: &str, lead: &[String], grids: &[(&str, &Grid)], notes: &[String]) -> (String, String) {
+    let mut plain = heading.to_string();
+    let mut parts = Vec::new();
+    for l in lead {
+        plain.push_str(&format!("\n{l}"));
+    }
+    if !lead.is_empty() {
+        parts.push(format!("<p class=\"wp-alert\">{}</p>", lead.iter().map(|l| crate::cells::output::escape_html(l)).collect::<Vec<_>>().join("<br>")));
+    }
+    for (title, grid) in grids {
+        if !title.is_empty() {
+            plain.push_str(&format!("\n{title}"));
+            parts.push(format!("<p class=\"wp-head\">{}</p>", crate::cells::output::escape_html(title)));
+        }
+        plain.push_str(&format!("\n{}", grid.to_text()));
+        parts.push(grid.to_html());
+    }
+    for n in notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    parts.push(html_list(notes));
+    (plain, html_block(heading, &parts))
+}
+
+/// "90% lower", "90% upper".
+pub(super) fn bounds(mass: f64) -> (String, String) {
+    let pct = crate::model::prior::short_number(mass * 100.0);
+    (format!("{pct}% lower"), format!("{pct}% upper"))
+}
+
+/// A summary row: mean, lower, upper, P(>0), P(<0).
+pub(super) fn summary_cells(s: &ContrastSummary) -> Vec<String> {
+    vec![num(s.mean), num(s.lower), num(s.upper), format!("{:.2}", s.p_positive), format!("{:.2}", s.p_negative)]
+}
+
+fn to_json<T: serde::Serialize>(value: &T) -> Value {
+    serde_json::to_value(value).unwrap_or(Value::Null)
+}
+
+/// `contrast M: C b vs a [on outcomes] [seed S] [at Z v, …] [along X from LO to HI [by STEP]] [over rows]`.
+pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let (left, right) = st.head().split_once(':').ok_or_else(|| form_error(st, CONTRAST_FORM))?;
+    let name = match left.split_whitespace().collect::<Vec<_>>().as_slice() {
+        ["contrast", name] => *name,
+        _ => return Err(form_error(st, CONTRAST_FORM)),
+    };
+    let request = parse_contrast(right).map_err(|m| CellError::at(line, format!("{m}; the form is: {CONTRAST_FORM}")))?;
+    let fit = require_fit(session, name, line)?;
+    let model = &session.models[name];
+    let table = session.require_table(model.table_name(), line)?;
+    let c = crate::query::contrast(model, &fit.draws, table, &request).map_err(|e| query_error(e, line))?;
+    Ok(vec![describe_contrast(&c, table, model.outcome_name(), &[])])
+}
+
+/// Read the part of a contrast header after the colon.
+fn parse_contrast(text: &str) -> Result<ContrastRequest, String> {
+    let words: Vec<&str> = text.split_whitespace().map(|w| w.trim_end_matches(',')).filter(|w| !w.is_empty()).collect();
+    let (variable, mut rest) = words.split_first().ok_or("name the predictor to contrast")?;
+    let mut request = ContrastRequest::new(*variable);
+    if let [b, "vs", a, tail @ ..] = rest {
+        request = request.between(*b, *a);
+        rest = tail;
+    }
+    let mut seed = None;
+    let mut outcomes = false;
+    let number = |w: &str, what: &str| w.parse::<f64>().map_err(|_| format!("{what} takes a number, not `{w}`"));
+    let keywords = ["on", "seed", "at", "along", "over"];
+    while let Some((word, tail)) = rest.split_first() {
+        rest = match (*word, tail) {
+            ("on", ["outcomes", t @ ..]) => {
+                outcomes = true;
+                t
+            }
+            ("on", ["means", t @ ..]) => t,
+            ("over", ["rows", t @ ..]) => {
+                request.over_rows = true;
+                t
+            }
+            ("seed", [s, t @ ..]) => {
+                seed = Some(s.parse::<u64>().map_err(|_| format!("seed takes a whole number, not `{s}`"))?);
+                t
+            }
+            ("along", [x, "from", lo, "to", hi, t @ ..]) => {
+                let (step, t) = match t {
+                    ["by", s, t2 @ ..] => (Some(number(s, "by")?), t2),
+                    _ => (None, t),
+                };
+                request.along =
+                    Some(GridRequest { variable: x.to_string(), from: number(lo, "from")?, to: number(hi, "to")?, step });
+                t
+            }
+            ("at", t) => {
+                let mut t = t;
+                while let [n, v, t2 @ ..] = t {
+                    if keywords.contains(n) {
+                        break;
+                    }
+                    request.held.push((n.to_string(), v.to_string()));
+                    t = t2;
+                }
+                t
+            }
+            (other, _) => return Err(format!("cannot read `{other}` here")),
+        };
+    }
+    if seed.is_some() && !outcomes {
+        return Err("a seed is only used with `on outcomes`".to_string());
+    }
+    if outcomes {
+        request.on = On::Outcomes { seed: seed.unwrap_or(DEFAULT_SEED) };
+    }
+    Ok(request)
+}
+
+/// The display of one contrast; `extra` notes go before the closing causal note.
+fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String]) -> Display {
+    let scale = if c.on == "outcomes" { format!("simulated {outcome}") } else { format!("mean {outcome}") };
+    let heading = format!(
+        "contrast {}: {} on {scale} = {} ({} {} to {})",
+        c.model,
+        c.contrast,
+        num(c.mean),
+        crate::model::prior::short_number(c.mass * 100.0) + "% interval",
+        num(c.lower),
+        num(c.upper)
+    );
+    let (lower, upper) = bounds(c.mass);
+    let mut grid = Grid::new(&["contrast", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    let summary = c.summary();
+    let mut row = vec![c.contrast.clone()];
+    row.extend(summary_cells(&summary));
+    grid.push(row);
+    let mut grids = vec![("", &grid)];
+    let along_grid;
+    if let Some(x) = &c.along {
+        let mut g = Grid::new(&[x.as_str(), "mean", &lower, &upper, "P(>0)"]).numeric_columns(&[0, 1, 2, 3, 4]);
+        for p in &c.grid {
+            g.push(vec![num(p.x), num(p.mean), num(p.lower), num(p.upper), format!("{:.2}", p.p_positive)]);
+        }
+        along_grid = g;
+        grids.push(("along the grid (the row above is at the held value):", &along_grid));
+    }
+    let mut notes = vec![c.held_how.clone()];
+    notes.extend(c.notes.iter().cloned());
+    notes.push(format!("{} draws; each draw's two predictions are subtracted first and the differences summarised last ({})", c.draws.len(), c.interval));
+    if let Some(seed) = c.seed {
+        notes.push(format!("simulated outcomes use seed {seed}"));
+    }
+    notes.extend(extra.iter().cloned());
+    notes.push(CAUSAL_NOTE.to_string());
+    let (plain, html) = render(&heading, &[], &grids, &notes);
+    let svg = figures::contrast(c, table, outcome).ok();
+    Display { plain, html: Some(html), svg, json: Some(to_json(c)) }
+}
+
+/// `ask total|direct effect of X on Y in G using T [with …]`.
+pub(crate) fn ask_using(
+    session: &mut Session,
+    st: &Statement,
+    control: &RunControl,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (kind, x, y, g, t, options) = match words.as_slice() {
+        ["ask", kind @ ("total" | "direct"), "effect", "of", x, "on", y, "in", g, "using", t, rest @ ..] => {
+            (*kind, *x, *y, *g, *t, rest)
+        }
+        _ => return Err(form_error(st, ASK_USING_FORM)),
+    };
+    let method = method_or(options, Method::Nuts(Default::default()), line)?;
+    let graph = session.require_graph(g, line)?;
+    let table = session.require_table(t, line)?;
+    let effect = if kind == "total" { EffectKind::Total } else { EffectKind::Direct };
+    let label = format!("ask {kind} effect of {x} on {y}");
+    (control.progress)(&format!("{label}: fitting with {}", method.describe()));
+    let progress = sampler_progress(control, &label);
+    let answer =
+        answer_effect_with_progress(graph, table, x, y, effect, &method, control.cancel, INTERVAL_MASS, &progress)
+            .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let mut first = super::causal::describe_identification(&answer.identification);
+    let adjusted = answer.adjustment_set.clone().unwrap_or_default();
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new() };
+    first.svg = figures::graph(graph, &format!("{kind} effect of {x} on {y} in {g}"), &marks).ok();
+    warnings.extend(answer.warnings.iter().map(|w| format!("{label}: {w}")));
+
+    let id = &answer.identification;
+    let mut json = json!({
+        "query": format!("{kind} effect"), "exposure": x, "outcome": y, "identifiable": id.identifiable,
+        "adjustment_sets": id.adjustment_sets, "reason": id.reason, "adjustment_set": answer.adjustment_set,
+        "table": t, "model": answer.model_text, "why": answer.why, "method": answer.method,
+        "contrasts": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "warnings": answer.warnings,
+    });
+    let (Some(model), Some(fit), Some(model_text)) = (answer.model, answer.fit, answer.model_text) else {
+        let heading = format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted");
+        let (plain, html) = render(&heading, &[], &[], &answer.why);
+        json["model_name"] = Value::Null;
+        return Ok(vec![first, Display { plain, html: Some(html), svg: None, json: Some(json) }]);
+    };
+    let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
+    let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, stratifying by {set_words}");
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["contrast", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    for c in &answer.contrasts {
+        let mut row = vec![c.contrast.clone()];
+        row.extend(summary_cells(&c.summary()));
+        grid.push(row);
+    }
+    let mut model_grid = Grid::new(&["model built"]);
+    model_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
+    let mut notes: Vec<String> = answer.why.clone();
+    if let Some(c) = answer.contrasts.first() {
+        notes.push(c.held_how.clone());
+        notes.push(c.interval.clone() + "s of per-draw differences");
+    }
+    notes.push(format!("fitted with {}", answer.method.clone().unwrap_or_default()));
+    notes.extend(answer.warnings.iter().map(|w| format!("warning: {w}")));
+    let name = model.name().to_string();
+    notes.push(format!("the model is kept as {name}: `show {name}`, `contrast {name}: …` and `check {name}` work on it"));
+    notes.push(CAUSAL_NOTE.to_string());
+    let (plain, html) = render(&heading, &[], &[("", &model_grid), ("contrasts:", &grid)], &notes);
+    let named: Vec<(String, &[f64])> = answer.contrasts.iter().map(|c| (c.contrast.clone(), c.draws.as_slice())).collect();
+    let svg = figures::differences(&format!("{kind} effect of {x} on {y}"), table, y, &named, DensityArrangement::Stacked).ok();
+    json["model_name"] = json!(name);
+    let spec = ModelSpec::from_lines(&name, model_text.lines().enumerate().map(|(i, l)| (i + 1, l))).ok();
+    if let Some(spec) = spec {
+        session.specs.insert(name.clone(), spec);
+    }
+    session.models.insert(name.clone(), model);
+    session.fits.insert(name, fit);
+    Ok(vec![first, Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// `compare routes for total effect of X on Y in G using T [with …]`:
+/// the adjustment-set contrast beside the simulated intervention through a
+/// joint model of the whole graph.
+pub(crate) fn compare_routes(
+    session: &mut Session,
+    st: &Statement,
+    control: &RunControl,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (x, y, g, t, options) = match words.as_slice() {
+        ["compare", "routes", "for", "total", "effect", "of", x, "on", y, "in", g, "using", t, rest @ ..] => {
+            (*x, *y, *g, *t, rest)
+        }
+        _ => return Err(form_error(st, ROUTES_FORM)),
+    };
+    let method = method_or(options, Method::Nuts(Default::default()), line)?;
+    let graph = session.require_graph(g, line)?;
+    let table = session.require_table(t, line)?;
+    let label = format!("compare routes for {x} on {y}");
+    let progress = sampler_progress(control, &label);
+    (control.progress)(&format!("{label}: fitting the adjustment model"));
+    let answer = answer_effect_with_progress(graph, table, x, y, EffectKind::Total, &method, control.cancel, INTERVAL_MASS, &progress)
+        .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let Some(adjustment) = answer.contrasts.first() else {
+        let heading = format!("total effect of {x} on {y} in {g}: no adjustment set exists, so there is no adjustment route to compare");
+        let (plain, html) = render(&heading, &[], &[], &answer.why);
+        let json = json!({"question": answer.question, "identifiable": false, "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
+        return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
+    };
+    let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
+    let joint_progress = |node: &str, p: Progress| {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
+            (control.progress)(&format!("{label}: joint model, node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
+        }
+    };
+    (control.progress)(&format!("{label}: fitting one regression per node of {g}"));
+    let joint_fit = fit_joint_with_progress(&joint, &method, control.cancel, &joint_progress)
+        .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let request = InterventionRequest {
+        variable: x.to_string(),
+        to: adjustment.to.clone(),
+        from: adjustment.from.clone(),
+        watch: vec![y.to_string()],
+        rows: None,
+        seed: DEFAULT_SEED,
+        mass: INTERVAL_MASS,
+    };
+    let simulated = intervene(&joint, &joint_fit, table, &request).map_err(|e| query_error(e, line))?;
+    let watched = &simulated.watched[0];
+    let routes = crate::query::compare_routes(adjustment, watched, INTERVAL_MASS).map_err(|e| query_error(e, line))?;
+    let set = answer.adjustment_set.clone().unwrap_or_default();
+    let set_words = if set.is_empty() { "nothing".to_string() } else { set.join(", ") };
+    let heading = format!(
+        "total effect of {x} on {y} in {g} ({}), two routes: adjustment {} vs joint model {}",
+        adjustment.contrast,
+        num(routes.adjustment.mean),
+        num(routes.joint.mean)
+    );
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["route", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    for (name, s) in [
+        (format!("adjustment (stratify by {set_words})"), &routes.adjustment),
+        ("joint model (simulated intervention)".to_string(), &routes.joint),
+        ("difference (adjustment − joint)".to_string(), &routes.difference),
+    ] {
+        let mut row = vec![name];
+        row.extend(summary_cells(s));
+        grid.push(row);
+    }
+    let mut notes = routes.notes.clone();
+    notes.push(format!(
+        "the joint model fits one regression per observed node of {g} and simulates do({x}) over {} (seed {})",
+        simulated.rows_source, simulated.seed
+    ));
+    notes.push("the two routes are fitted separately, so their difference pairs draws at random; it is wide by design".to_string());
+    notes.extend(simulated.warnings.iter().map(|w| format!("joint route: {w}")));
+    notes.extend(answer.warnings.iter().map(|w| format!("adjustment route: {w}")));
+    notes.push(format!("fitted with {}; intervals are {}s", method.describe(), adjustment.interval));
+    notes.push(CAUSAL_NOTE.to_string());
+    warnings.extend(simulated.warnings.iter().map(|w| format!("{label}: {w}")));
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let named: Vec<(String, &[f64])> =
+        vec![("adjustment route".to_string(), adjustment.draws.as_slice()), ("joint route".to_string(), watched.draws.as_slice())];
+    let svg = figures::differences(&format!("total effect of {x} on {y}, two routes"), table, y, &named, DensityArrangement::Shared).ok();
+    let summary = |s: &ContrastSummary| to_json(s);
+    let mut adjustment_json = summary(&routes.adjustment);
+    adjustment_json["adjustment_set"] = json!(set);
+    adjustment_json["model"] = json!(answer.model_text);
+    let mut joint_json = summary(&routes.joint);
+    joint_json["simulated"] = json!(simulated.simulated);
+    let json = json!({
+        "question": answer.question, "contrast": adjustment.contrast, "identifiable": true,
+        "adjustment": adjustment_json, "joint": joint_json, "difference": summary(&routes.difference),
+        "seed": simulated.seed, "notes": notes,
+    });
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// `implications of G checked against T [with …]`.
+pub(crate) fn implications_checked(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (g, t, options) = match words.as_slice() {
+        ["implications", "of", g, "checked", "against", t, rest @ ..] => (*g, *t, rest),
+        _ => return Err(form_error(st, CHECKED_FORM)),
+    };
+    let default = Method::Laplace { draws: crate::infer::fit::LAPLACE_DRAWS, seed: crate::infer::fit::LAPLACE_SEED };
+    let method = method_or(options, default, line)?;
+    let graph = session.require_graph(g, line)?;
+    let table = session.require_table(t, line)?;
+    let label = format!("implications of {g} checked against {t}");
+    (control.progress)(&format!("{label}: one regression per implication, {}", method.describe()));
+    let report = check_implications(graph, table, &method, control.cancel, INTERVAL_MASS)
+        .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let heading = if report.contradicted > 0 {
+        format!("{} of the {} checked implications of {g} are CONTRADICTED by table {t}", report.contradicted, report.checked)
+    } else {
+        format!("implications of {g} checked against table {t}: none of the {} checked is contradicted", report.checked)
+    };
+    let lead: Vec<String> = report
+        .checks
+        .iter()
+        .filter(|c| c.contradicted)
+        .map(|c| {
+            let parts: Vec<String> = c
+                .associations
+                .iter()
+                .filter(|a| a.lower > 0.0 || a.upper < 0.0)
+                .map(|a| format!("{} = {} ({} to {})", a.label, num(a.mean), num(a.lower), num(a.upper)))
+                .collect();
+            format!("⚠ contradicted: {} — {}; the graph may be missing an arrow or a common cause here", c.statement, parts.join("; "))
+        })
+        .collect();
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["implication", "regression", "association", "mean", &lower, &upper, "verdict"])
+        .numeric_columns(&[3, 4, 5]);
+    for c in report.checks.iter().filter(|c| c.checked) {
+        for a in &c.associations {
+            let verdict = if a.lower > 0.0 || a.upper < 0.0 { "contradicted" } else { "consistent" };
+            grid.push(vec![
+                c.statement.clone(),
+                c.regression.clone().unwrap_or_default(),
+                a.label.clone(),
+                num(a.mean),
+                num(a.lower),
+                num(a.upper),
+                verdict.to_string(),
+            ]);
+        }
+    }
+    let mut notes: Vec<String> = report
+        .checks
+        .iter()
+        .filter(|c| !c.checked)
+        .map(|c| format!("not checked: {} — {}", c.statement, c.note.clone().unwrap_or_default()))
+        .collect();
+    notes.extend(report.untestable.iter().map(|u| format!("not checkable: {u} (only hidden nodes separate them)")));
+    notes.extend(report.checks.iter().filter(|c| c.checked).filter_map(|c| c.note.as_ref().map(|n| format!("{}: {n}", c.statement))));
+    notes.push(format!(
+        "an implication is contradicted when the {} of the association excludes zero; with a correct graph about one check in ten is flagged by chance",
+        report.interval
+    ));
+    notes.push(format!("regressions fitted with {}", report.method));
+    let grids: Vec<(&str, &Grid)> = if grid.rows.is_empty() { Vec::new() } else { vec![("", &grid)] };
+    if report.checks.is_empty() {
+        notes.insert(0, format!("graph {g} implies no independence between observed nodes, so there is nothing to check"));
+    }
+    let (plain, html) = render(&heading, &lead, &grids, &notes);
+    let svg = if grid.rows.is_empty() { None } else { figures::implications(&report).ok() };
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&report)) }])
+}

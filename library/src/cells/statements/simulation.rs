@@ -1,0 +1,643 @@
+//! Statements about whole-graph models and synthetic data: `joint`, `fit`
+//! of a joint model, `intervene`, `simulate`, `recover`, `calibrate`,
+//! `prior check` and `check`.
+//!
+//! Like the question statements ([`super::questions`]), each one reads its
+//! header, calls [`crate::query`] and renders tables, notes, the query's
+//! JSON and a figure. Checks that refit a model (`recover`, `calibrate`)
+//! use the options written after `with`, else the method of the model's
+//! latest fit, else a Laplace approximation, and say which.
+
+use serde_json::{json, Value};
+
+use super::data::{describe_loaded, is_name};
+use super::fitting::INTERVAL_MASS;
+use super::form_error;
+use super::questions::{
+    bounds, check_cancel, method_or, query_error, render, sampler_progress, stopped_or, summary_cells, CAUSAL_NOTE,
+    DEFAULT_SEED,
+};
+use crate::cells::figures::{self, GraphMarks};
+use crate::cells::format::num;
+use crate::cells::output::{CellError, Display, Grid};
+use crate::cells::parse::Statement;
+use crate::cells::session::{suggest, RunControl, Session, SimulationRecord};
+use crate::draws::SummarySpec;
+use crate::infer::fit::{Method, LAPLACE_DRAWS, LAPLACE_SEED};
+use crate::infer::nuts::Progress;
+use crate::model::prior::short_number;
+use crate::model::{Input, Model};
+use crate::plot::{DensityArrangement, ParameterDraws, Quantity};
+use crate::query::{
+    build_joint, calibrate_with_progress, fit_joint_with_progress, parse_mechanism_line, posterior_predictive,
+    prior_predictive, recover_fitted, ContrastRequest, ContrastSummary, InterventionRequest, NodeModel, Simulation,
+    SimulationSettings,
+};
+use crate::table::ColumnData;
+
+const JOINT_FORM: &str = "joint NAME = GRAPH using TABLE  (end with ':' to override a node below, e.g. `girth from rootstock`)";
+const INTERVENE_FORM: &str = "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]";
+const SIMULATE_FORM: &str = "simulate NAME from GRAPH rows N seed S:  (then one mechanism per node, e.g. `girth = normal(28, 4)`)";
+const RECOVER_FORM: &str = "recover MODEL on SIMULATION [with laplace …|with nuts …]";
+const CALIBRATE_FORM: &str = "calibrate MODEL reps R [seed S] [with laplace …|with nuts …]";
+const CHECK_FORM: &str = "prior check MODEL [sets N] [seed S]  or  check MODEL [sets N] [seed S]";
+
+/// Units simulated under each setting for a true intervention effect.
+const TRUTH_ROWS: usize = 20_000;
+/// Outcome sets simulated by `prior check` and `check` by default.
+const DEFAULT_SETS: usize = 200;
+/// Most parameters drawn in a joint model's posterior figure.
+const FIGURE_PARAMETERS: usize = 10;
+
+fn laplace_default() -> Method {
+    Method::Laplace { draws: LAPLACE_DRAWS, seed: LAPLACE_SEED }
+}
+
+fn to_json<T: serde::Serialize>(value: &T) -> Value {
+    serde_json::to_value(value).unwrap_or(Value::Null)
+}
+
+/// Whether `fit NAME` names a joint model (and no model of that name).
+pub(crate) fn names_joint(session: &Session, head: &str) -> bool {
+    head.split_whitespace().nth(1).is_some_and(|n| session.joints.contains_key(n) && !session.models.contains_key(n))
+}
+
+/// `joint NAME = GRAPH using TABLE[:]` with optional per-node model lines.
+pub(crate) fn joint(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (name, g, t) = match words.as_slice() {
+        ["joint", name, "=", g, "using", t] if is_name(name) => (*name, *g, *t),
+        _ => return Err(form_error(st, JOINT_FORM)),
+    };
+    if session.models.contains_key(name) {
+        return Err(CellError::at(line, format!("a model is already named {name}; give the joint model another name")));
+    }
+    let graph = session.require_graph(g, line)?;
+    let table = session.require_table(t, line)?;
+    let mut overrides: Vec<(String, Vec<String>)> = Vec::new();
+    for body in &st.body {
+        let first = body.text.split_whitespace().next().unwrap_or("");
+        if matches!(first, "family" | "prior" | "centre") {
+            let Some((_, lines)) = overrides.last_mut() else {
+                return Err(CellError::at(body.number, format!("`{first}` must follow a node's model line such as `girth from rootstock`")));
+            };
+            lines.push(body.text.clone());
+        } else if graph.nodes().iter().any(|n| n.name == first) {
+            if overrides.iter().any(|(n, _)| n == first) {
+                return Err(CellError::at(body.number, format!("{first} already has a model line above; keep one per node")));
+            }
+            overrides.push((first.to_string(), vec![body.text.clone()]));
+        } else {
+            let nodes: Vec<&str> = graph.nodes().iter().map(|n| n.name.as_str()).collect();
+            return Err(CellError::at(
+                body.number,
+                format!("`{first}` is not a node of graph {g} (its nodes: {}); start a model line with the node it models", nodes.join(", ")),
+            ));
+        }
+    }
+    let model = build_joint(name, graph, table, &overrides).map_err(|e| query_error(e, line))?;
+    let heading = format!("joint {name}: one model per observed node of graph {g}, from table {t} ({} nodes)", model.nodes.len());
+    let mut grid = Grid::new(&["node", "parents", "model"]);
+    let summary = model.summary();
+    for s in &summary {
+        let parents = if s.parents.is_empty() { "none".to_string() } else { s.parents.join(", ") };
+        grid.push(vec![s.node.clone(), parents, s.model.clone()]);
+    }
+    let mut notes: Vec<String> = model.warnings.iter().map(|w| format!("warning: {w}")).collect();
+    if !overrides.is_empty() {
+        let listed: Vec<&str> = overrides.iter().map(|(n, _)| n.as_str()).collect();
+        notes.push(format!("models written in the cell for: {}", listed.join(", ")));
+    }
+    notes.push(format!("each node's model shares no parameter with the others; run `fit {name}` to fit them all"));
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let svg = figures::graph(graph, &format!("joint {name}"), &GraphMarks::default()).ok();
+    let json = json!({"joint": name, "graph": g, "table": t, "nodes": to_json(&summary), "warnings": model.warnings});
+    session.joint_fits.remove(name);
+    session.joints.insert(name.to_string(), model);
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// `fit NAME [with …]` for a joint model: every node's regression.
+pub(crate) fn fit_joint(
+    session: &mut Session,
+    st: &Statement,
+    control: &RunControl,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (name, options) = match words.as_slice() {
+        ["fit", name, rest @ ..] => (*name, rest),
+        _ => return Err(form_error(st, super::fitting::FIT_FORM)),
+    };
+    let method = method_or(options, Method::Nuts(Default::default()), line)?;
+    let joint = &session.joints[name];
+    let label = format!("fit {name}");
+    let progress = |node: &str, p: Progress| {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
+            (control.progress)(&format!("{label}: node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
+        }
+    };
+    let started = std::time::Instant::now();
+    let fit = fit_joint_with_progress(joint, &method, control.cancel, &progress).map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["node", "parameter", "mean", "sd", &lower, &upper, "P(>0)", "R-hat", "bulk ESS"])
+        .numeric_columns(&[2, 3, 4, 5, 6, 7, 8]);
+    let mut nodes_json = Vec::new();
+    let mut notes = Vec::new();
+    let mut figure_names: Vec<(String, usize, usize)> = Vec::new();
+    for (k, (node, node_fit)) in joint.nodes.iter().zip(&fit.fits).enumerate() {
+        let Some(f) = node_fit else {
+            let how = match &node.model {
+                NodeModel::LevelShares { .. } => "simulated from its level shares in the data; nothing to fit".to_string(),
+                NodeModel::Unsupported { reason } => format!("not fitted: {reason}"),
+                NodeModel::Regression { .. } => "not fitted".to_string(),
+            };
+            notes.push(format!("{}: {how}", node.name));
+            nodes_json.push(json!({"node": node.name, "parameters": [], "note": how}));
+            continue;
+        };
+        let summaries = f.draws.summarise(&spec).map_err(|e| CellError::at(line, format!("{label}: {e}")))?;
+        let mut params = Vec::new();
+        for (i, s) in summaries.iter().enumerate() {
+            let d = f.diagnostics.as_ref().map(|d| d[i]);
+            grid.push(vec![
+                node.name.clone(),
+                s.name.clone(),
+                num(s.mean),
+                num(s.sd),
+                num(s.interval.lower),
+                num(s.interval.upper),
+                format!("{:.2}", s.prob_positive),
+                d.map_or("—".into(), |d| format!("{:.3}", d.rhat)),
+                d.map_or("—".into(), |d| format!("{:.0}", d.ess_bulk)),
+            ]);
+            params.push(json!({
+                "name": s.name, "mean": s.mean, "sd": s.sd, "lower": s.interval.lower, "upper": s.interval.upper,
+                "p_positive": s.prob_positive, "rhat": d.map(|d| d.rhat), "ess_bulk": d.map(|d| d.ess_bulk),
+                "ess_tail": d.map(|d| d.ess_tail),
+            }));
+            if s.name != "spread" && figure_names.len() < FIGURE_PARAMETERS {
+                figure_names.push((format!("{}: {}", node.name, s.name), k, i));
+            }
+        }
+        warnings.extend(f.warnings.iter().map(|w| format!("{label}, node {}: {w}", node.name)));
+        notes.extend(f.warnings.iter().map(|w| format!("warning ({}): {w}", node.name)));
+        nodes_json.push(json!({"node": node.name, "parameters": params, "warnings": f.warnings}));
+    }
+    notes.push(format!("each node's regression gets its own seed stream derived from seed {}", method_seed(&method)));
+    notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(INTERVAL_MASS * 100.0)));
+    let seconds = started.elapsed().as_secs_f64();
+    let heading = format!("fit {name}: {} node regressions in {seconds:.2} s — {}", fit.fits.iter().flatten().count(), method.describe());
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let params: Vec<ParameterDraws> = figure_names
+        .iter()
+        .filter_map(|(label, k, i)| fit.fits[*k].as_ref().map(|f| ParameterDraws { name: label, draws: &f.draws.values[*i] }))
+        .collect();
+    let svg = crate::plot::posterior_figure(&format!("{name} node parameters"), &Quantity::new("parameter value"), &params, DensityArrangement::Stacked).ok();
+    let json = json!({
+        "joint": name, "method": method_name(&method), "seed": method_seed(&method), "interval": INTERVAL_MASS,
+        "nodes": nodes_json, "seconds": seconds,
+    });
+    session.joint_fits.insert(name.to_string(), fit);
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+fn method_seed(method: &Method) -> u64 {
+    match method {
+        Method::Laplace { seed, .. } => *seed,
+        Method::Nuts(s) => s.seed,
+    }
+}
+
+fn method_name(method: &Method) -> &'static str {
+    match method {
+        Method::Laplace { .. } => "laplace",
+        Method::Nuts(_) => "nuts",
+    }
+}
+
+/// `intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]`.
+pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let (left, right) = st.head().split_once(':').ok_or_else(|| form_error(st, INTERVENE_FORM))?;
+    let name = match left.split_whitespace().collect::<Vec<_>>().as_slice() {
+        ["intervene", name] => *name,
+        _ => return Err(form_error(st, INTERVENE_FORM)),
+    };
+    let request = parse_intervention(right).map_err(|m| CellError::at(line, format!("{m}; the form is: {INTERVENE_FORM}")))?;
+    let joint = session.joints.get(name).ok_or_else(|| {
+        CellError::at(line, format!("there is no joint model named {name}{}", suggest(name, session.joints.keys())))
+    })?;
+    let fit = session
+        .joint_fits
+        .get(name)
+        .ok_or_else(|| CellError::at(line, format!("joint model {name} is not fitted yet; run `fit {name}` first")))?;
+    let table = session.require_table(&joint.table, line)?;
+    let result = crate::query::intervene(joint, fit, table, &request).map_err(|e| query_error(e, line))?;
+    let heading = format!("intervene {name}: {}, over {}", result.intervention, result.rows_source);
+    let (lower, upper) = bounds(result.mass);
+    let mut grid = Grid::new(&["watched", "mean change", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    for w in &result.watched {
+        let s = ContrastSummary { mean: w.mean, lower: w.lower, upper: w.upper, p_positive: w.p_positive, p_negative: w.p_negative, mass: result.mass };
+        let mut row = vec![w.node.clone()];
+        row.extend(summary_cells(&s));
+        grid.push(row);
+    }
+    let simulated = if result.simulated.is_empty() { "none".to_string() } else { result.simulated.join(", ") };
+    let mut notes = vec![
+        format!("each draw sets {} in every row, keeps the nodes it does not cause as observed, and simulates {simulated} from their node models; the row means under the two settings are subtracted", request.variable),
+        format!("the two settings share each draw and its noise (seed {}); {}s of the per-draw changes", result.seed, result.interval),
+    ];
+    notes.extend(result.warnings.iter().map(|w| format!("warning: {w}")));
+    notes.push(CAUSAL_NOTE.to_string());
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let named: Vec<(String, &[f64])> = result.watched.iter().map(|w| (w.node.clone(), w.draws.as_slice())).collect();
+    let outcome = result.watched.first().map_or("", |w| w.node.as_str());
+    let svg = figures::differences(&format!("{name}: {}", result.intervention), table, outcome, &named, DensityArrangement::Stacked).ok();
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
+}
+
+/// Read `set X v1 vs v0, watch Y, Z [rows N] [seed S]`.
+fn parse_intervention(text: &str) -> Result<InterventionRequest, String> {
+    let text = text.trim();
+    let rest = text.strip_prefix("set ").ok_or("start with `set X v1 vs v0`")?;
+    let (set, watch) = rest.split_once(" watch ").ok_or("name the nodes to watch after `, watch`")?;
+    let set: Vec<&str> = set.trim().trim_end_matches(',').split_whitespace().collect();
+    let [variable, to, "vs", from] = set.as_slice() else {
+        return Err(format!("cannot read `set {}`; write `set X v1 vs v0`", set.join(" ")));
+    };
+    let mut request = InterventionRequest {
+        variable: variable.to_string(),
+        to: to.to_string(),
+        from: from.to_string(),
+        watch: Vec::new(),
+        rows: None,
+        seed: DEFAULT_SEED,
+        mass: INTERVAL_MASS,
+    };
+    let words: Vec<&str> = watch.split(|c: char| c == ',' || c.is_whitespace()).filter(|w| !w.is_empty()).collect();
+    let mut i = 0;
+    while i < words.len() {
+        match (words[i], words.get(i + 1)) {
+            ("rows", Some(n)) => {
+                request.rows = Some(n.parse().map_err(|_| format!("rows takes a whole number, not `{n}`"))?);
+                i += 2;
+            }
+            ("seed", Some(s)) => {
+                request.seed = s.parse().map_err(|_| format!("seed takes a whole number, not `{s}`"))?;
+                i += 2;
+            }
+            (node, _) => {
+                request.watch.push(node.to_string());
+                i += 1;
+            }
+        }
+    }
+    Ok(request)
+}
+
+/// `simulate NAME from GRAPH rows N seed S:` with one mechanism per node.
+pub(crate) fn simulate(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (name, g, rows, seed) = match words.as_slice() {
+        ["simulate", name, "from", g, "rows", n, "seed", s] if is_name(name) && st.expects_body() => (*name, *g, *n, *s),
+        _ => return Err(form_error(st, SIMULATE_FORM)),
+    };
+    let rows: usize = rows.parse().ok().filter(|n| *n > 0).ok_or_else(|| CellError::at(line, format!("rows takes a whole number above 0, not `{rows}`")))?;
+    let seed: u64 = seed.parse().map_err(|_| CellError::at(line, format!("seed takes a whole number, not `{seed}`")))?;
+    let graph = session.require_graph(g, line)?;
+    let lines = st.body.iter().map(|l| (l.number, l.text.as_str()));
+    let simulation = Simulation::parse(name, graph, SimulationSettings { rows, seed }, lines).map_err(|e| query_error(e, line))?;
+    let table = simulation.table().map_err(|e| query_error(e, line))?;
+    let mut mechanisms = Vec::new();
+    for body in &st.body {
+        if let Ok(Some((node, _))) = parse_mechanism_line(&body.text) {
+            mechanisms.push((node, body.text.split_once('=').map_or("", |(_, m)| m).trim().to_string()));
+        }
+    }
+    let mut display = describe_loaded(&table);
+    let mut grid = Grid::new(&["node", "mechanism", "in the table"]);
+    for (node, text) in &mechanisms {
+        let hidden = graph.is_hidden(node).unwrap_or(false);
+        grid.push(vec![node.clone(), text.clone(), if hidden { "no (hidden)" } else { "yes" }.to_string()]);
+    }
+    let note = format!("simulated from graph {g} with seed {seed}: each node from its own random stream, in causal order; hidden nodes are generated but left out of the table");
+    display.plain = format!("{}\nmechanisms:\n{}\n• {note}", display.plain, grid.to_text());
+    display.html = Some(format!(
+        "{}{}",
+        display.html.unwrap_or_default(),
+        crate::cells::output::html_block("mechanisms", &[grid.to_html(), crate::cells::output::html_list(&[note])])
+    ));
+    if let Some(Value::Object(map)) = display.json.as_mut() {
+        map.insert("graph".into(), json!(g));
+        map.insert("seed".into(), json!(seed));
+        let listed: Vec<Value> = mechanisms
+            .iter()
+            .map(|(n, m)| json!({"node": n, "mechanism": m, "hidden": graph.is_hidden(n).unwrap_or(false)}))
+            .collect();
+        map.insert("mechanisms".into(), Value::Array(listed));
+    }
+    session.put_table(name, table);
+    session.simulations.insert(name.to_string(), SimulationRecord { simulation, mechanisms });
+    Ok(vec![display])
+}
+
+/// The method of explicit options, else of the model's latest fit, else Laplace.
+fn check_method(session: &Session, model: &str, options: &[&str], line: usize) -> Result<Method, CellError> {
+    let fallback = session.fits.get(model).map_or_else(laplace_default, |f| f.method.clone());
+    method_or(options, fallback, line)
+}
+
+/// `recover MODEL on SIMULATION [with …]`.
+pub(crate) fn recover(
+    session: &mut Session,
+    st: &Statement,
+    control: &RunControl,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (m, t, options) = match words.as_slice() {
+        ["recover", m, "on", t, rest @ ..] => (*m, *t, rest),
+        _ => return Err(form_error(st, RECOVER_FORM)),
+    };
+    let mut spec = session.specs.get(m).cloned().ok_or_else(|| {
+        CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
+    })?;
+    let record = session.simulations.get(t).ok_or_else(|| {
+        CellError::at(line, format!("there is no simulation named {t}{}; make one with `{SIMULATE_FORM}`", suggest(t, session.simulations.keys())))
+    })?;
+    let method = check_method(session, m, options, line)?;
+    spec.table = t.to_string();
+    let label = format!("recover {m} on {t}");
+    (control.progress)(&format!("{label}: fitting with {}", method.describe()));
+    let progress = sampler_progress(control, &label);
+    let sim = &record.simulation;
+    let (recovery, model, fit) = recover_fitted(&spec, sim, &method, control.cancel, INTERVAL_MASS, &progress)
+        .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    warnings.extend(fit.warnings.iter().map(|w| format!("{label}: {w}")));
+    let table = sim.table().map_err(|e| query_error(e, line))?;
+    let effects = true_effects(&model, &fit.draws, &table, sim);
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["parameter", "true value", "mean", &lower, &upper, "interval holds the truth"]).numeric_columns(&[1, 2, 3, 4]);
+    for p in &recovery.parameters {
+        grid.push(vec![
+            p.name.clone(),
+            p.truth.map_or("—".into(), num),
+            num(p.mean),
+            num(p.lower),
+            num(p.upper),
+            p.covered.map_or("no single truth", |c| if c { "yes" } else { "NO" }).to_string(),
+        ]);
+    }
+    let mut effect_grid = Grid::new(&["intervention", "true effect", "model's contrast", &lower, &upper, "interval holds the truth"])
+        .numeric_columns(&[1, 2, 3, 4]);
+    for e in &effects {
+        effect_grid.push(vec![
+            e.effect.clone(),
+            num(e.truth),
+            num(e.estimate.mean),
+            num(e.estimate.lower),
+            num(e.estimate.upper),
+            match e.covered() {
+                Some(true) => "yes".to_string(),
+                Some(false) => "NO".to_string(),
+                None => format!("not comparable: the model holds {} fixed", e.mediators.join(", ")),
+            },
+        ]);
+    }
+    let with_truth: Vec<_> = recovery.parameters.iter().filter_map(|p| p.covered).collect();
+    let heading = format!(
+        "recover {m} on {t}: {} of {} parameters with a true value lie inside their {}",
+        with_truth.iter().filter(|c| **c).count(),
+        with_truth.len(),
+        recovery.interval
+    );
+    let mut notes = recovery.notes.clone();
+    if let Some((node, text)) = record.mechanisms.iter().find(|(n, _)| n == model.outcome_name()) {
+        notes.insert(0, format!("the mechanism that made {node}: {node} = {text}"));
+    }
+    if !effects.is_empty() {
+        notes.push(format!(
+            "true effects: the mechanisms simulated under both settings for {TRUTH_ROWS} units with shared noise (seed {}); the model's contrast is averaged over the rows of {t}; where the model holds a mediator fixed, its contrast is not the total effect and is not compared",
+            sim.settings.seed
+        ));
+    }
+    notes.push(format!("fitted with {}", recovery.method));
+    let mut grids = vec![("", &grid)];
+    if !effects.is_empty() {
+        grids.push(("true intervention effects on the mean of the outcome:", &effect_grid));
+    }
+    let (plain, html) = render(&heading, &[], &grids, &notes);
+    let svg = figures::recovery(&recovery).ok();
+    let mut json = to_json(&recovery);
+    json["effects"] = Value::Array(
+        effects
+            .iter()
+            .map(|e| json!({"effect": e.effect, "variable": e.variable, "truth": e.truth, "mean": e.estimate.mean,
+                "lower": e.estimate.lower, "upper": e.estimate.upper, "covered": e.covered(),
+                "held_mediators": e.mediators}))
+            .collect(),
+    );
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// A true intervention effect beside the model's contrast.
+struct TrueEffect {
+    effect: String,
+    variable: String,
+    truth: f64,
+    estimate: ContrastSummary,
+    /// Predictors of the model that lie on a causal path from the variable
+    /// to the outcome: holding them fixed, the contrast is not the total effect.
+    mediators: Vec<String>,
+}
+
+impl TrueEffect {
+    /// Whether the interval holds the truth; `None` when the model holds a mediator fixed.
+    fn covered(&self) -> Option<bool> {
+        self.mediators.is_empty().then_some(self.estimate.lower <= self.truth && self.truth <= self.estimate.upper)
+    }
+}
+
+/// For each predictor of `model` that causes its outcome in the simulation's
+/// graph: the true effect of a one-step change (second level vs first, one
+/// unit above the mean vs the mean, 1 vs 0) beside the model's contrast of
+/// the same change averaged over the rows. Predictors where either is not
+/// defined are left out.
+fn true_effects(model: &Model, draws: &crate::draws::Draws, table: &crate::table::Table, sim: &Simulation) -> Vec<TrueEffect> {
+    let outcome = model.outcome_name();
+    let mut out = Vec::new();
+    for input in model.inputs() {
+        let x = input.column();
+        if out.iter().any(|e: &TrueEffect| e.variable == x) {
+            continue;
+        }
+        let causes = sim.graph.descendants(x).is_ok_and(|d| d.contains(&outcome));
+        let Some(column) = table.column(x).filter(|_| causes) else { continue };
+        let (to, from) = match (&input, &column.data) {
+            (Input::Category { levels, .. }, _) if levels.len() >= 2 => (levels[1].clone(), levels[0].clone()),
+            (Input::Category { .. }, _) => continue,
+            (_, ColumnData::Binary(_)) => ("1".to_string(), "0".to_string()),
+            (_, ColumnData::Count(v)) => {
+                let centre = (v.iter().sum::<u64>() as f64 / v.len().max(1) as f64).round();
+                (format!("{}", centre + 1.0), format!("{centre}"))
+            }
+            (_, data) => {
+                let values = data.as_reals().unwrap_or_default();
+                let centre = values.iter().sum::<f64>() / values.len().max(1) as f64;
+                (format!("{}", centre + 1.0), format!("{centre}"))
+            }
+        };
+        let Ok(truth) = sim.true_effect(x, &to, &from, outcome, TRUTH_ROWS, sim.settings.seed) else { continue };
+        let request = ContrastRequest { over_rows: true, mass: INTERVAL_MASS, ..ContrastRequest::new(x) }.between(to, from);
+        let Ok(c) = crate::query::contrast(model, draws, table, &request) else { continue };
+        let descendants = sim.graph.descendants(x).unwrap_or_default();
+        let mediators = model
+            .inputs()
+            .iter()
+            .map(|i| i.column().to_string())
+            .filter(|m| descendants.contains(&m.as_str()) && sim.graph.descendants(m).is_ok_and(|d| d.contains(&outcome)))
+            .collect();
+        out.push(TrueEffect { effect: c.contrast.clone(), variable: x.to_string(), truth, estimate: c.summary(), mediators });
+    }
+    out
+}
+
+/// `calibrate MODEL reps R [seed S] [with …]`.
+pub(crate) fn calibrate(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (m, reps, mut rest) = match words.as_slice() {
+        ["calibrate", m, "reps", r, rest @ ..] => (*m, *r, rest),
+        _ => return Err(form_error(st, CALIBRATE_FORM)),
+    };
+    let reps: usize = reps.parse().ok().filter(|r| *r >= 2).ok_or_else(|| CellError::at(line, format!("reps takes a whole number of at least 2, not `{reps}`")))?;
+    let mut seed = DEFAULT_SEED;
+    if let ["seed", s, tail @ ..] = rest {
+        seed = s.parse().map_err(|_| CellError::at(line, format!("seed takes a whole number, not `{s}`")))?;
+        rest = tail;
+    }
+    let model = session.models.get(m).ok_or_else(|| {
+        CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
+    })?;
+    let method = check_method(session, m, rest, line)?;
+    let label = format!("calibrate {m}");
+    let progress = |r: usize| (control.progress)(&format!("{label}: replication {} of {reps}", r + 1));
+    let calibration = calibrate_with_progress(model, reps, &method, seed, control.cancel, &progress)
+        .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let mut grid = Grid::new(&["parameter", "chi-square", "p-value", "reading"]).numeric_columns(&[1, 2]);
+    for p in &calibration.parameters {
+        let reading = if p.p_value < 0.01 { "ranks far from uniform: check this parameter's posterior" } else { "ranks consistent with uniform" };
+        grid.push(vec![p.name.clone(), num(p.chi_square), format!("{:.3}", p.p_value), reading.to_string()]);
+    }
+    let worst = calibration
+        .parameters
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| p.p_value.is_finite())
+        .min_by(|a, b| a.1.p_value.total_cmp(&b.1.p_value))
+        .map(|(i, _)| i);
+    let heading = format!(
+        "calibrate {m}: {} replications (seed {seed}), ranks among {} posterior draws in {} bins",
+        calibration.reps, calibration.draws_per_fit, calibration.bins
+    );
+    let mut notes = calibration.notes.clone();
+    notes.push("each replication draws parameters from the priors, simulates outcomes with the model's own rows, refits and ranks the true value among the draws (Talts et al. 2018)".to_string());
+    if let Some(i) = worst {
+        notes.push(format!("the figure shows the rank histogram of {}, the parameter with the smallest p-value", calibration.parameters[i].name));
+    }
+    if reps < 50 {
+        notes.push(format!("{reps} replications make a coarse test; 100 or more show smaller departures"));
+    }
+    notes.push(format!("refitted with {}", calibration.method));
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let svg = worst.and_then(|i| figures::calibration(&calibration, i).ok());
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&calibration)) }])
+}
+
+/// `prior check MODEL [sets N] [seed S]` and `check MODEL [sets N] [seed S]`.
+pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let words: Vec<&str> = st.head().split_whitespace().collect();
+    let (prior, m, mut rest) = match words.as_slice() {
+        ["prior", "check", m, rest @ ..] => (true, *m, rest),
+        ["check", m, rest @ ..] => (false, *m, rest),
+        _ => return Err(form_error(st, CHECK_FORM)),
+    };
+    let (mut sets, mut seed) = (DEFAULT_SETS, DEFAULT_SEED);
+    while let [key, value, tail @ ..] = rest {
+        let parsed: u64 = value.parse().map_err(|_| CellError::at(line, format!("{key} takes a whole number, not `{value}`")))?;
+        match *key {
+            "sets" if parsed > 0 => sets = parsed as usize,
+            "seed" => seed = parsed,
+            _ => return Err(form_error(st, CHECK_FORM)),
+        }
+        rest = tail;
+    }
+    if !rest.is_empty() {
+        return Err(form_error(st, CHECK_FORM));
+    }
+    let model = session.models.get(m).ok_or_else(|| {
+        CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
+    })?;
+    let table = session.require_table(model.table_name(), line)?;
+    let result = if prior {
+        prior_predictive(model, table, sets, seed)
+    } else {
+        let fit = super::fitting::require_fit(session, m, line)?;
+        posterior_predictive(model, &fit.draws, table, sets, seed)
+    }
+    .map_err(|e| query_error(e, line))?;
+    let kind = if prior { "prior" } else { "posterior" };
+    let heading = format!(
+        "{kind} predictive check of {m}: {} outcome sets of {} rows simulated from the {kind} (seed {seed})",
+        result.replicated.len(),
+        result.observed.len()
+    );
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["statistic", "observed", &lower, &upper, "share of sets ≥ observed"]).numeric_columns(&[1, 2, 3, 4]);
+    let mut stats_json = Vec::new();
+    for (stat, f) in [("mean", mean as fn(&[f64]) -> f64), ("sd", sd), ("min", min), ("max", max)] {
+        let observed = f(&result.observed);
+        let replicated: Vec<f64> = result.replicated.iter().map(|r| f(r)).collect();
+        let s = ContrastSummary::of(&replicated, INTERVAL_MASS).map_err(|e| query_error(e, line))?;
+        let share = replicated.iter().filter(|v| **v >= observed).count() as f64 / replicated.len().max(1) as f64;
+        grid.push(vec![stat.to_string(), num(observed), num(s.lower), num(s.upper), format!("{share:.2}")]);
+        stats_json.push(json!({"statistic": stat, "observed": observed, "lower": s.lower, "upper": s.upper, "share_at_or_above": share}));
+    }
+    let mut notes = vec![format!("the interval columns are the central {}% range of each statistic over the simulated sets", short_number(INTERVAL_MASS * 100.0))];
+    notes.push(if prior {
+        "a prior check asks whether the priors allow outcomes of a plausible size before the data are seen".to_string()
+    } else {
+        "a share near 0 or 1 says the fitted model rarely makes data like the observed on that statistic".to_string()
+    });
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let svg = figures::predictive(&result, table, model.outcome_name()).ok();
+    let json = json!({"model": m, "kind": kind, "seed": seed, "sets": result.replicated.len(), "rows": result.observed.len(), "statistics": stats_json});
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+fn mean(v: &[f64]) -> f64 {
+    v.iter().sum::<f64>() / v.len().max(1) as f64
+}
+
+fn sd(v: &[f64]) -> f64 {
+    let m = mean(v);
+    (v.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (v.len().max(2) - 1) as f64).sqrt()
+}
+
+fn min(v: &[f64]) -> f64 {
+    v.iter().copied().fold(f64::INFINITY, f64::min)
+}
+
+fn max(v: &[f64]) -> f64 {
+    v.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+}

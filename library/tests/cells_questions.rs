@@ -1,0 +1,263 @@
+//! The question and simulation statements of the cell language, run against
+//! a session on invented data made by `simulate` with fixed seeds: each
+//! statement gives its documented JSON keys (README, "Output structures"),
+//! and the numbers agree with sources outside the code under test.
+
+use std::sync::atomic::AtomicBool;
+
+use serde_json::Value;
+use waypath::cells::{CellOutcome, RunControl, Session};
+
+fn run(session: &mut Session, cell: &str) -> CellOutcome {
+    let cancel = AtomicBool::new(false);
+    let progress = |_: &str| {};
+    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
+}
+
+/// Run a cell that must succeed; the JSON of its last display.
+fn last_json(session: &mut Session, cell: &str) -> Value {
+    let out = run(session, cell);
+    assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
+    out.displays.last().and_then(|d| d.json.clone()).expect("a JSON structure")
+}
+
+fn has_keys(json: &Value, keys: &[&str]) {
+    for k in keys {
+        assert!(json.get(k).is_some(), "missing key {k} in {json}");
+    }
+}
+
+/// A field of plots: shade z confounds cover x and insect count y.
+/// Mechanism coefficients: x = 0.8 z + e, y = 1 + 0.5 x + 0.7 z + e.
+const FIELD: &str = "graph g:
+    z -> x -> y
+    z -> y
+simulate field from g rows 400 seed 11:
+    z = normal(0, 1)
+    x = normal(0.8 * z, 1)
+    y = normal(1 + 0.5 * x + 0.7 * z, 1)
+";
+/// Wright (1934) path tracing: the total effect of x on y is the product of
+/// path coefficients along the one directed path x -> y.
+const TRUE_EFFECT: f64 = 0.5;
+
+fn field_session() -> Session {
+    let mut session = Session::new(".");
+    let json = last_json(&mut session, FIELD);
+    // the table statement's structure, plus the mechanisms listed
+    has_keys(&json, &["name", "rows", "columns", "graph", "seed", "mechanisms"]);
+    assert_eq!(json["rows"], 400);
+    assert_eq!(json["mechanisms"].as_array().map(Vec::len), Some(3));
+    session
+}
+
+fn logistic(t: f64) -> f64 {
+    1.0 / (1.0 + (-t).exp())
+}
+
+#[test]
+fn contrast_mean_is_the_mean_of_paired_per_draw_differences() {
+    let mut session = Session::new(".");
+    let cell = "graph g:
+    z -> x -> sick
+    z -> sick
+simulate plots from g rows 300 seed 5:
+    z = normal(0, 1)
+    x = bernoulli(0.5)
+    sick = bernoulli(logit = -0.5 + 1.2 * x + 0.8 * z)
+model m:
+    sick from x, z using plots
+    family bernoulli
+    centre off
+fit m with laplace draws 2000 seed 3
+";
+    let out = run(&mut session, cell);
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let json = last_json(&mut session, "contrast m: x 1 vs 0 along z from -1 to 1 by 0.5");
+    has_keys(&json, &["contrast", "on", "mean", "lower", "upper", "p_positive", "grid", "held_how"]);
+    let fit = session.fit("m").expect("fitted");
+    let (a, b, c) = (fit.draws.get("intercept").unwrap(), fit.draws.get("b_x").unwrap(), fit.draws.get("b_z").unwrap());
+    let z = session.table("plots").unwrap().column("z").unwrap().data.as_reals().unwrap();
+    let z_mean = z.iter().sum::<f64>() / z.len() as f64;
+    // Algebra of the logit link with `centre off`: P(sick) = logistic(a + b·x + c·z).
+    // The contrast pairs each draw's two predictions, then averages.
+    let paired = |zv: f64| {
+        (0..a.len()).map(|d| logistic(a[d] + b[d] + c[d] * zv) - logistic(a[d] + c[d] * zv)).sum::<f64>() / a.len() as f64
+    };
+    assert!((json["mean"].as_f64().unwrap() - paired(z_mean)).abs() < 1e-9, "{} vs {}", json["mean"], paired(z_mean));
+    let grid = json["grid"].as_array().unwrap();
+    assert_eq!(grid.len(), 5, "from -1 to 1 by 0.5 is five values");
+    // the grid point at z = 0
+    assert!((grid[2]["x"].as_f64().unwrap()).abs() < 1e-12);
+    assert!((grid[2]["mean"].as_f64().unwrap() - paired(0.0)).abs() < 1e-9);
+    // Summaries last: the "means first" number differs for a nonlinear link (Jensen's inequality).
+    let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    let means_first = logistic(mean(a) + mean(b) + mean(c) * z_mean) - logistic(mean(a) + mean(c) * z_mean);
+    assert!((means_first - paired(z_mean)).abs() > 1e-6);
+    let out = run(&mut session, "contrast m: x 1 vs 0 along z from -1 to 1 by 0.5");
+    assert!(out.displays[0].svg.as_deref().unwrap_or("").contains("<title>contrast along a grid"));
+    assert!(out.displays[0].plain.contains("90%"), "the interval width is printed");
+    assert!(out.displays[0].plain.trim_end().ends_with("rest on the graph's assumptions."));
+}
+
+#[test]
+fn contrast_on_outcomes_and_default_one_unit_contrast() {
+    let mut session = field_session();
+    last_json(&mut session, "model m:\n    y from x, z using field\nfit m with laplace seed 4");
+    let json = last_json(&mut session, "contrast m: x");
+    // Algebra: with an identity link the one-unit contrast of x is the slope, draw by draw.
+    let slope = session.fit("m").unwrap().draws.get("b_x").unwrap().to_vec();
+    let slope_mean = slope.iter().sum::<f64>() / slope.len() as f64;
+    assert!((json["mean"].as_f64().unwrap() - slope_mean).abs() < 1e-9);
+    let json = last_json(&mut session, "contrast m: x 1 vs 0 on outcomes seed 9");
+    assert_eq!(json["on"], "outcomes");
+    assert_eq!(json["seed"], 9);
+    // Outcomes of two units differ by the slope plus two independent normal errors of sd 1,
+    // so their spread is about sqrt(2) (mechanism algebra): the 90% interval is far wider than the slope's.
+    let width = json["upper"].as_f64().unwrap() - json["lower"].as_f64().unwrap();
+    assert!(width > 2.0 * 1.645 * 1.2 && width < 2.0 * 1.645 * 1.7, "width {width}");
+}
+
+#[test]
+fn simulate_and_recover_cover_the_true_slope_and_effect() {
+    let mut session = field_session();
+    let json = last_json(&mut session, "model m:\n    y from x, z using field\nrecover m on field with laplace seed 2");
+    has_keys(&json, &["model", "simulation", "parameters", "effects", "interval", "notes"]);
+    let param = |name: &str| json["parameters"].as_array().unwrap().iter().find(|p| p["name"] == name).cloned().unwrap();
+    let b_x = param("b_x");
+    // The mechanism's coefficient of x (algebra of a linear mechanism).
+    assert!((b_x["truth"].as_f64().unwrap() - 0.5).abs() < 1e-9);
+    let (lo, hi) = (b_x["lower"].as_f64().unwrap(), b_x["upper"].as_f64().unwrap());
+    assert!(lo <= 0.5 && 0.5 <= hi, "[{lo}, {hi}]");
+    assert_eq!(b_x["covered"], true);
+    assert!((param("spread")["truth"].as_f64().unwrap() - 1.0).abs() < 1e-12, "the mechanism's sd");
+    let effect = json["effects"].as_array().unwrap().iter().find(|e| e["variable"] == "x").cloned().unwrap();
+    // Wright (1934) path tracing: do(x + 1) moves the mean of y by 0.5.
+    assert!((effect["truth"].as_f64().unwrap() - TRUE_EFFECT).abs() < 1e-9);
+    assert_eq!(effect["covered"], true);
+    // Wright (1934): z acts on y directly (0.7) and through x (0.8 × 0.5), total 1.1; the model
+    // holds x fixed, so its contrast of z is not compared with that truth.
+    let z = json["effects"].as_array().unwrap().iter().find(|e| e["variable"] == "z").cloned().unwrap();
+    assert!((z["truth"].as_f64().unwrap() - (0.7 + 0.8 * 0.5)).abs() < 1e-9);
+    assert_eq!(z["covered"], Value::Null);
+    assert_eq!(z["held_mediators"], serde_json::json!(["x"]));
+    let out = run(&mut session, "recover m on field with laplace seed 2");
+    assert!(out.displays[0].svg.as_deref().unwrap_or("").contains("<title>recovery"));
+}
+
+#[test]
+fn ask_using_reports_the_set_it_adjusted_for_and_finds_the_effect() {
+    let mut session = field_session();
+    let json = last_json(&mut session, "ask total effect of x on y in g using field with laplace seed 8");
+    has_keys(&json, &["query", "exposure", "outcome", "identifiable", "adjustment_sets", "reason", "adjustment_set", "model", "contrasts"]);
+    // Backdoor criterion (Pearl 2009, §3.3): z is a common cause of x and y, so {z} is needed.
+    assert_eq!(json["adjustment_set"], serde_json::json!(["z"]));
+    let c = &json["contrasts"][0];
+    has_keys(c, &["contrast", "on", "mean", "lower", "upper", "p_positive", "grid"]);
+    let (lo, hi) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
+    assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "Wright (1934) truth 0.5 outside [{lo}, {hi}]");
+    // the built model stays in the session
+    let name = json["model_name"].as_str().unwrap().to_string();
+    assert!(session.fit(&name).is_some());
+
+    // A hidden common cause with no observed proxy: not identifiable (Pearl 2009, §3.3), nothing fitted.
+    let out = run(&mut session, "graph h:\n    x -> y\n    hidden u -> x, y\nask total effect of x on y in h using field with laplace");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let json = out.displays.last().unwrap().json.clone().unwrap();
+    assert_eq!(json["identifiable"], false);
+    assert_eq!(json["contrasts"], serde_json::json!([]));
+    assert!(out.displays.last().unwrap().plain.contains("nothing was fitted"));
+    // the plain `ask` without `using` still answers from the graph alone
+    let out = run(&mut session, "ask total effect of x on y in g");
+    assert_eq!(out.displays[0].json.as_ref().unwrap()["adjustment_sets"], serde_json::json!([["z"]]));
+}
+
+#[test]
+fn joint_intervene_and_routes_agree_with_path_tracing() {
+    let mut session = field_session();
+    let json = last_json(&mut session, "joint whole = g using field\nfit whole with laplace seed 6");
+    has_keys(&json, &["joint", "method", "seed", "nodes"]);
+    let json = last_json(&mut session, "intervene whole: set x 1 vs 0, watch y rows 300 seed 2");
+    has_keys(&json, &["joint", "intervention", "rows", "seed", "watched"]);
+    let w = &json["watched"][0];
+    has_keys(w, &["node", "mean", "lower", "upper", "p_positive"]);
+    let (lo, hi) = (w["lower"].as_f64().unwrap(), w["upper"].as_f64().unwrap());
+    // Wright (1934): the effect of setting x one unit higher on y is 0.5.
+    assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "[{lo}, {hi}]");
+    let json = last_json(&mut session, "compare routes for total effect of x on y in g using field with laplace seed 6");
+    has_keys(&json, &["question", "adjustment", "joint", "difference", "notes"]);
+    for route in ["adjustment", "joint"] {
+        let (lo, hi) = (json[route]["lower"].as_f64().unwrap(), json[route]["upper"].as_f64().unwrap());
+        assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "{route}: [{lo}, {hi}]");
+    }
+    // Both routes estimate one quantity, so their difference holds zero.
+    assert!(json["difference"]["lower"].as_f64().unwrap() < 0.0 && json["difference"]["upper"].as_f64().unwrap() > 0.0);
+}
+
+#[test]
+fn joint_override_lines_and_errors_name_their_cell_line() {
+    let mut session = field_session();
+    let json = last_json(&mut session, "joint whole = g using field:\n    y from x\n");
+    let y = json["nodes"].as_array().unwrap().iter().find(|n| n["node"] == "y").cloned().unwrap();
+    assert!(y["model"].as_str().unwrap().starts_with("y from x"), "{y}");
+    let out = run(&mut session, "joint whole = g using field:\n    y from x\n    w from x\n");
+    assert_eq!(out.error.unwrap().line, Some(3));
+}
+
+#[test]
+fn a_bad_mechanism_line_is_named_by_its_cell_line() {
+    let mut session = Session::new(".");
+    let unclosed = "graph g:\n    a -> b\nsimulate s from g rows 10 seed 1:\n    a = normal(0, 1)\n    b = normal(2 * a, 1\n";
+    let err = run(&mut session, unclosed).error.expect("an unclosed bracket is an error");
+    assert_eq!(err.line, Some(5));
+    let stranger = "graph g:\n    a -> b\n    c -> a\nsimulate s from g rows 10 seed 1:\n    a = normal(0, 1)\n    c = normal(0, 1)\n    b = normal(c, 1)\n";
+    let err = run(&mut session, stranger).error.expect("a mechanism may read only its parents");
+    assert_eq!(err.line, Some(7));
+    assert!(err.describe().starts_with("cell line 7:"), "{}", err.describe());
+    assert!(err.message.contains("not its parent"), "{}", err.message);
+}
+
+#[test]
+fn checked_implications_flag_the_contradicted_one_first() {
+    let mut session = field_session();
+    // This graph leaves out z -> y, so it claims z ⫫ y | x; the mechanism of y reads z
+    // with coefficient 0.7 (algebra), so the data contradict the claim.
+    let out = run(&mut session, "graph wrong:\n    z -> x -> y\nimplications of wrong checked against field");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let d = out.displays.last().unwrap();
+    let json = d.json.as_ref().unwrap();
+    has_keys(json, &["graph", "table", "checks", "untestable", "checked", "contradicted"]);
+    assert_eq!(json["contradicted"], 1);
+    let second = d.plain.lines().nth(1).unwrap();
+    assert!(second.starts_with("⚠ contradicted: z ⊥ y | x"), "{}", d.plain);
+    assert!(d.svg.as_deref().unwrap_or("").contains("<title>testable implications"));
+    // A pair separated only by a hidden node cannot be checked, and the output says so.
+    let out = run(&mut session, "graph veiled:\n    z -> x\n    hidden u -> z, y\n    x -> y\nimplications of veiled checked against field");
+    let d = out.displays.last().unwrap();
+    assert!(d.plain.contains("not checkable") || d.plain.contains("not checked"), "{}", d.plain);
+}
+
+#[test]
+fn calibration_and_predictive_checks_give_their_figures() {
+    let mut session = field_session();
+    last_json(&mut session, "model small:\n    y from x using field\nfit small with laplace seed 1");
+    let json = last_json(&mut session, "calibrate small reps 30 seed 4 with laplace draws 400");
+    has_keys(&json, &["model", "reps", "draws_per_fit", "bins", "parameters"]);
+    for p in json["parameters"].as_array().unwrap() {
+        assert_eq!(p["ranks"].as_array().unwrap().len(), 30);
+        // Talts et al. (2018): for a correct posterior the ranks are uniform; a chi-square
+        // p-value below 0.001 would say otherwise (a normal-linear model, near-normal posterior).
+        assert!(p["p_value"].as_f64().unwrap() > 0.001, "{p}");
+    }
+    let out = run(&mut session, "prior check small sets 50 seed 2\ncheck small");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let (prior, post) = (&out.displays[0], &out.displays[1]);
+    assert!(prior.svg.as_deref().unwrap().contains("<title>prior predictive check"));
+    assert!(post.svg.as_deref().unwrap().contains("<title>posterior predictive check"));
+    let json = post.json.as_ref().unwrap();
+    has_keys(json, &["model", "kind", "seed", "sets", "statistics"]);
+    // A posterior predictive check of the mean under a normal model with an intercept sits
+    // near one half, since the fit reproduces the sample mean (Gelman, Meng & Stern 1996, recalled).
+    let share = json["statistics"][0]["share_at_or_above"].as_f64().unwrap();
+    assert!(share > 0.1 && share < 0.9, "{share}");
+}
