@@ -6,6 +6,7 @@
 //! [`gaussian`] (through sufficient statistics, for the normal family).
 
 pub mod gaussian;
+mod kernels;
 pub mod likelihood;
 
 use super::error::ModelError;

@@ -1,0 +1,329 @@
+//! Engine benchmark: the whole path from data to posterior summary, timed on
+//! invented data generated here with fixed seeds.
+//!
+//! ```text
+//! cargo run --release -p waypath --example engine_bench            # every case
+//! cargo run --release -p waypath --example engine_bench -- a c     # chosen cases
+//! ```
+//!
+//! Cases (NUTS: 4 chains × (1000 warm-up + 1000 draws), the defaults):
+//! * `a` — stream reaches: `density from reach, depth per reach`, a
+//!   two-level category with its own intercept and slope, n = 400, NUTS;
+//! * `b` — the same model at n = 1,000,000, written to a CSV file in the
+//!   temporary directory first, then timed from reading the CSV through the
+//!   table, the model and a Laplace fit to the printed summary (also a NUTS
+//!   fit on the built model, timed on its own);
+//! * `c` — nesting success of birds on 10,000 plots against 20 habitat
+//!   measures, bernoulli family (logit link), NUTS;
+//! * `d` — sapling height along age, cubic B-spline with 15 basis
+//!   functions, n = 1,000, NUTS.
+//!
+//! Each row shows wall seconds, the smallest bulk ESS over the parameters,
+//! that ESS per wall second, and the peak resident memory of the case
+//! (`VmHWM` of `/proc/self/status`, reset before each case through
+//! `/proc/self/clear_refs` where the kernel allows it). Wall seconds cover
+//! everything the case does after its data exist, diagnostics included;
+//! CPU seconds are the processor time of all threads over the same span,
+//! which tells how a busy machine stretched the wall time (on an idle
+//! machine with as many cores as chains run at once, wall ≈ CPU / cores).
+
+use std::fmt::Write as _;
+use std::io::Write as _;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicBool;
+use std::time::Instant;
+
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, Normal};
+use waypath::draws::SummarySpec;
+use waypath::infer::fit::{fit_model, Fit, Method};
+use waypath::infer::nuts::NutsSettings;
+use waypath::model::{Model, ModelSpec};
+use waypath::table::{load_table, parse_table_line, Column, ColumnData, Table, TableSpec};
+
+/// One line of the result table.
+struct Row {
+    case: String,
+    seconds: f64,
+    /// Processor time of the whole process over the case (all threads).
+    cpu_seconds: f64,
+    min_ess: Option<f64>,
+    peak_mib: f64,
+}
+
+fn main() {
+    let chosen: Vec<String> = std::env::args().skip(1).collect();
+    let wants = |case: &str| chosen.is_empty() || chosen.iter().any(|c| c == case);
+    let mut rows = Vec::new();
+    if wants("a") {
+        rows.push(case_stratified());
+    }
+    if wants("b") {
+        rows.extend(case_million());
+    }
+    if wants("c") {
+        rows.push(case_logistic());
+    }
+    if wants("d") {
+        rows.push(case_spline());
+    }
+    println!("{}", render(&rows));
+}
+
+/// (a) A two-level category with its own intercept and slope, n = 400.
+fn case_stratified() -> Row {
+    let table = reaches(400, 11);
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_reach", STRATIFIED_MODEL, &table);
+    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    row("(a) stratified normal, n = 400, NUTS", started, &fit)
+}
+
+const STRATIFIED_MODEL: &str = "density from reach, depth per reach using reaches";
+
+/// (b) The same model on a million rows read from CSV.
+fn case_million() -> Vec<Row> {
+    let path = std::env::temp_dir().join(format!("waypath_bench_reaches_{}.csv", std::process::id()));
+    write_csv(&reaches(1_000_000, 12), &path);
+    reset_peak_memory();
+    let started = Clock::start();
+    let (model, steps) = million_to_model(&path);
+    let fit = run_fit(&model, &Method::Laplace { draws: 4000, seed: 7 });
+    let shown = summary_text(&fit);
+    let laplace_row = row("(b) same, n = 1,000,000, CSV → Laplace summary", started, &fit);
+    eprintln!("{steps}laplace + summary {:.2} s\n{shown}", started.wall.elapsed().as_secs_f64());
+    let _ = std::fs::remove_file(&path);
+
+    reset_peak_memory();
+    let started = Clock::start();
+    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    vec![laplace_row, row("(b) same, n = 1,000,000, NUTS on the built model", started, &fit)]
+}
+
+/// Read the CSV into a table and build the model, reporting the time of each step.
+fn million_to_model(path: &Path) -> (Model, String) {
+    let mut steps = String::new();
+    let started = Instant::now();
+    let mut spec = TableSpec::new("reaches", path);
+    for line in ["reach: category(upper, lower)", "depth: real", "density: real"] {
+        spec.add_rule(parse_table_line(line).expect("fixed table line")).expect("fixed table rule");
+    }
+    let (table, _) = load_table(&spec).expect("the benchmark CSV loads");
+    let _ = writeln!(steps, "CSV → table {:.2} s", started.elapsed().as_secs_f64());
+    let at = Instant::now();
+    let model = build("m_reach", STRATIFIED_MODEL, &table);
+    let _ = writeln!(steps, "table → model {:.2} s", at.elapsed().as_secs_f64());
+    (model, steps)
+}
+
+/// (c) Logistic regression on 20 predictors, n = 10,000.
+fn case_logistic() -> Row {
+    let table = plots(10_000, 13);
+    let terms: Vec<String> = (1..=20).map(|j| format!("h{j}")).collect();
+    let body = format!("nested from {} using plots\nfamily bernoulli", terms.join(", "));
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_nest", &body, &table);
+    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    row("(c) logistic, 20 predictors, n = 10,000, NUTS", started, &fit)
+}
+
+/// (d) A cubic B-spline with 15 basis functions, n = 1,000.
+fn case_spline() -> Row {
+    let table = saplings(1000, 14);
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_growth", "height from spline(age, 15) using saplings", &table);
+    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    row("(d) B-spline, 15 functions, n = 1,000, NUTS", started, &fit)
+}
+
+fn build(name: &str, body: &str, table: &Table) -> Model {
+    let spec = ModelSpec::from_lines(name, body.lines().enumerate()).expect("fixed model text parses");
+    Model::build(&spec, table).expect("benchmark model builds")
+}
+
+fn run_fit(model: &Model, method: &Method) -> Fit {
+    let cancel = AtomicBool::new(false);
+    let fit = fit_model(model, method, &cancel, &|_| {}).expect("benchmark fit runs");
+    for warning in &fit.warnings {
+        eprintln!("warning ({}): {warning}", model.name());
+    }
+    fit
+}
+
+fn row(case: &str, started: Clock, fit: &Fit) -> Row {
+    let seconds = started.wall.elapsed().as_secs_f64();
+    let cpu_seconds = cpu_seconds() - started.cpu;
+    let min_ess = fit
+        .diagnostics
+        .as_ref()
+        .map(|d| d.iter().map(|p| p.ess_bulk).fold(f64::INFINITY, f64::min));
+    Row { case: case.to_string(), seconds, cpu_seconds, min_ess, peak_mib: peak_memory_mib() }
+}
+
+fn summary_text(fit: &Fit) -> String {
+    let summaries = fit.draws.summarise(&SummarySpec::default()).expect("draws summarise");
+    summaries
+        .iter()
+        .map(|s| format!("  {:<18} mean {:>10.4}  sd {:.4}", s.name, s.mean, s.sd))
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+fn render(rows: &[Row]) -> String {
+    let mut out = String::from(
+        "| case | wall s | CPU s | min bulk ESS | ESS/s | peak memory (MiB) |\n|---|---|---|---|---|---|\n",
+    );
+    for r in rows {
+        let (ess, rate) = match r.min_ess {
+            Some(e) => (format!("{e:.0}"), format!("{:.0}", e / r.seconds)),
+            None => ("—".into(), "—".into()),
+        };
+        let _ = writeln!(
+            out,
+            "| {} | {:.2} | {:.2} | {ess} | {rate} | {:.0} |",
+            r.case, r.seconds, r.cpu_seconds, r.peak_mib
+        );
+    }
+    out
+}
+
+/// When a case started, by the wall clock and by processor time.
+#[derive(Clone, Copy)]
+struct Clock {
+    wall: Instant,
+    cpu: f64,
+}
+
+impl Clock {
+    fn start() -> Clock {
+        Clock { wall: Instant::now(), cpu: cpu_seconds() }
+    }
+}
+
+/// Processor time used by this process so far (user + system, all
+/// threads), from `/proc/self/stat` in clock ticks of 1/100 s.
+fn cpu_seconds() -> f64 {
+    let stat = std::fs::read_to_string("/proc/self/stat").unwrap_or_default();
+    // Fields after the command name (which is in brackets): utime is the 12th, stime the 13th.
+    let after = stat.rsplit_once(')').map_or("", |(_, rest)| rest);
+    let fields: Vec<f64> = after.split_whitespace().map(|f| f.parse().unwrap_or(f64::NAN)).collect();
+    match (fields.get(11), fields.get(12)) {
+        (Some(user), Some(system)) => (user + system) / 100.0,
+        _ => f64::NAN,
+    }
+}
+
+/// Peak resident memory of this process in MiB (`VmHWM`).
+fn peak_memory_mib() -> f64 {
+    let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    status
+        .lines()
+        .find_map(|l| l.strip_prefix("VmHWM:"))
+        .and_then(|v| v.split_whitespace().next()?.parse::<f64>().ok())
+        .map_or(f64::NAN, |kib| kib / 1024.0)
+}
+
+/// Reset the peak resident memory to the current one (Linux, `5` to
+/// `clear_refs`); without it the peak is that of the whole run so far.
+fn reset_peak_memory() {
+    let _ = std::fs::write("/proc/self/clear_refs", "5");
+}
+
+/// Invertebrate density in stream reaches: upper reaches are denser and
+/// fall off faster with depth than lower ones.
+fn reaches(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let mut reach = Vec::with_capacity(n);
+    let mut depth = Vec::with_capacity(n);
+    let mut density = Vec::with_capacity(n);
+    for _ in 0..n {
+        let lower = rng.random_range(0..2u32);
+        let d: f64 = rng.random_range(0.1..1.5);
+        let (a, b) = if lower == 1 { (30.0, -6.0) } else { (45.0, -14.0) };
+        reach.push(lower);
+        depth.push(d);
+        density.push(a + b * d + 4.0 * noise.sample(&mut rng));
+    }
+    table(
+        "reaches",
+        vec![
+            ("reach", ColumnData::Category { codes: reach, levels: vec!["upper".into(), "lower".into()] }),
+            ("depth", ColumnData::Real(depth)),
+            ("density", ColumnData::Real(density)),
+        ],
+    )
+}
+
+/// Whether a nest on a plot fledged young, against 20 standardised habitat
+/// measures `h1` … `h20` of which a handful matter.
+fn plots(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let effects: Vec<f64> = (0..20).map(|j| [0.8, -0.5, 0.3, 0.0, 0.0][j % 5] * if j < 10 { 1.0 } else { 0.5 }).collect();
+    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 20];
+    let mut nested = Vec::with_capacity(n);
+    for _ in 0..n {
+        let mut eta = -0.4;
+        for (column, effect) in columns.iter_mut().zip(&effects) {
+            let h = noise.sample(&mut rng);
+            column.push(h);
+            eta += effect * h;
+        }
+        nested.push(rng.random::<f64>() < 1.0 / (1.0 + (-eta as f64).exp()));
+    }
+    let mut named: Vec<(String, ColumnData)> =
+        columns.into_iter().enumerate().map(|(j, c)| (format!("h{}", j + 1), ColumnData::Real(c))).collect();
+    named.push(("nested".into(), ColumnData::Binary(nested)));
+    Table { name: "plots".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
+}
+
+/// Sapling height along age: a rise that levels off, with a dip.
+fn saplings(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let mut age = Vec::with_capacity(n);
+    let mut height = Vec::with_capacity(n);
+    for _ in 0..n {
+        let a: f64 = rng.random_range(0.0..12.0);
+        age.push(a);
+        height.push(120.0 * (1.0 - (-a / 4.0).exp()) + 10.0 * (a / 1.5).sin() + 6.0 * noise.sample(&mut rng));
+    }
+    table("saplings", vec![("age", ColumnData::Real(age)), ("height", ColumnData::Real(height))])
+}
+
+fn table(name: &str, columns: Vec<(&str, ColumnData)>) -> Table {
+    Table { name: name.into(), columns: columns.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
+}
+
+/// Write `table` as CSV (labels for categories) to `path`.
+fn write_csv(table: &Table, path: &PathBuf) {
+    let file = std::fs::File::create(path).expect("temporary file can be created");
+    let mut out = std::io::BufWriter::new(file);
+    let names: Vec<&str> = table.column_names();
+    writeln!(out, "{}", names.join(",")).expect("write header");
+    let mut line = String::new();
+    for i in 0..table.nrows() {
+        line.clear();
+        for (k, column) in table.columns.iter().enumerate() {
+            if k > 0 {
+                line.push(',');
+            }
+            match &column.data {
+                ColumnData::Category { codes, levels } => line.push_str(&levels[codes[i] as usize]),
+                ColumnData::Real(v) => {
+                    let _ = write!(line, "{:.6}", v[i]);
+                }
+                other => {
+                    let _ = write!(line, "{}", other.real_at(i).unwrap_or(f64::NAN));
+                }
+            }
+        }
+        writeln!(out, "{line}").expect("write row");
+    }
+    out.flush().expect("flush CSV");
+}
