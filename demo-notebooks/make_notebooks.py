@@ -364,6 +364,53 @@ model total_fit:
 recover total_fit on nursery with laplace
 """),
     md("""
+## A simulation written by hand
+
+`simulate` covers mechanisms that fit on one line. For anything else, a
+`%%rust` cell can build the data step by step — here a designed experiment
+where shade is assigned alternately rather than at random — and publish it
+to the session, where declarative cells use it like any table.
+"""),
+    code("""
+%%rust
+{
+    use waypath::rand::{rngs::StdRng, SeedableRng};
+    use waypath::rand_distr::{Distribution, Normal};
+    use waypath::table::{Column, ColumnData, Table};
+
+    let mut rng = StdRng::seed_from_u64(21);
+    let noise = |sd: f64| Normal::new(0.0, sd).expect("a positive sd");
+    // step 1: shade alternates open, shaded, open, … (a designed experiment)
+    let shade: Vec<u32> = (0..300).map(|i| (i % 2) as u32).collect();
+    // step 2: height responds to shade
+    let height: Vec<f64> = shade.iter().map(|&s| 40.0 - 8.0 * s as f64 + noise(5.0).sample(&mut rng)).collect();
+    // step 3: survival score responds to height and to shade directly
+    let survival: Vec<f64> = shade
+        .iter()
+        .zip(&height)
+        .map(|(&s, &h)| 20.0 + 0.5 * h - 3.0 * s as f64 + noise(4.0).sample(&mut rng))
+        .collect();
+    let levels = vec!["open".to_string(), "shaded".to_string()];
+    let table = Table::from_columns(
+        "by_hand",
+        vec![
+            Column::new("shade", ColumnData::Category { codes: shade, levels }),
+            Column::new("height", ColumnData::Real(height)),
+            Column::new("survival", ColumnData::Real(survival)),
+        ],
+    )
+    .expect("equal columns");
+    wp_publish("by_hand", &table);
+    println!("published by_hand: {} rows", table.nrows());
+}
+"""),
+    code("""
+model hand_fit:
+    survival from shade, height using by_hand
+
+fit hand_fit with laplace
+"""),
+    md("""
 ## Calibration
 
 Simulation-based calibration draws parameters from the priors, simulates

@@ -6,9 +6,12 @@
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
+use std::sync::Mutex;
 
 use serde_json::{json, Map, Value};
 use waypath::cells::{CellOutcome, RunControl, Session};
+
+use crate::rust_cells::{rust_source, RustCells, StreamName};
 
 /// What `waypath run` was asked to do.
 #[derive(Debug, Clone)]
@@ -110,6 +113,7 @@ fn execute_all(notebook: &mut Value, session: &mut Session, keep_going: bool) ->
     let control = RunControl { cancel: &cancel, progress: &progress };
     let mut stopped = false;
     let mut count = 0u64;
+    let mut rust: Option<RustCells> = None;
     upgrade_to_4_5(notebook);
     let cells = notebook["cells"].as_array_mut().expect("checked by read_notebook");
     for (index, cell) in cells.iter_mut().enumerate() {
@@ -124,10 +128,15 @@ fn execute_all(notebook: &mut Value, session: &mut Session, keep_going: bool) ->
         }
         count += 1;
         let source = cell_source(&Value::Object(cell.clone()));
-        let outcome = session.run_cell(&source, &control);
+        let (streams, outcome) = match rust_source(&source) {
+            Some(code) => run_rust_cell(rust.get_or_insert_with(RustCells::new), code, session),
+            None => (Vec::new(), session.run_cell(&source, &control)),
+        };
         summary.executed += 1;
         let failed = outcome.error.is_some();
-        cell.insert("outputs".into(), Value::Array(outputs_of(&outcome, index + 1, count)));
+        let mut outputs = streams;
+        outputs.extend(outputs_of(&outcome, index + 1, count));
+        cell.insert("outputs".into(), Value::Array(outputs));
         cell.insert("execution_count".into(), json!(count));
         if failed {
             summary.failed_cells.push(index + 1);
@@ -135,6 +144,27 @@ fn execute_all(notebook: &mut Value, session: &mut Session, keep_going: bool) ->
         }
     }
     summary
+}
+
+/// Run a `%%rust` cell; what it prints becomes nbformat stream outputs.
+fn run_rust_cell(rust: &mut RustCells, code: &str, session: &mut Session) -> (Vec<Value>, CellOutcome) {
+    let printed: Mutex<Vec<(StreamName, String)>> = Mutex::new(Vec::new());
+    let sink = |name: StreamName, text: &str| {
+        if let Ok(mut p) = printed.lock() {
+            match p.last_mut() {
+                Some((last, buffer)) if *last == name => buffer.push_str(text),
+                _ => p.push((name, text.to_string())),
+            }
+        }
+    };
+    let outcome = rust.run(code, session, &sink);
+    let streams = printed
+        .into_inner()
+        .unwrap_or_default()
+        .into_iter()
+        .map(|(name, text)| json!({"output_type": "stream", "name": name.as_str(), "text": text}))
+        .collect();
+    (streams, outcome)
 }
 
 /// nbformat outputs for one cell's outcome. Errors name the cell (its

@@ -27,3 +27,9 @@ pub mod draws;
 pub mod query;
 pub mod plot;
 pub mod cells;
+
+/// Random number generation, re-exported so `%%rust` cells can write
+/// seeded simulations with the same generators the library uses.
+pub use rand;
+/// Probability distributions for `%%rust` cells (see [`rand`]).
+pub use rand_distr;

@@ -240,9 +240,13 @@ impl PanicReport {
 }
 
 /// The cell's value as a display (plain text, plus HTML if it gave one).
+/// A block that ends in a statement has the value `()`, which shows nothing.
 fn display_of(outputs: &evcxr::EvalOutputs) -> Option<Display> {
     let plain = outputs.get("text/plain")?.to_string();
     let html = outputs.get("text/html").map(str::to_string);
+    if plain.trim() == "()" && html.is_none() {
+        return None;
+    }
     Some(Display { plain, html, ..Display::default() })
 }
 
