@@ -186,17 +186,10 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     let mut params_json = Vec::new();
     for (i, s) in summaries.iter().enumerate() {
         let d = fit.diagnostics.as_ref().map(|d| d[i]);
-        grid.push(vec![
-            s.name.clone(),
-            num(s.mean),
-            num(s.sd),
-            num(s.interval.lower),
-            num(s.interval.upper),
-            format!("{:.2}", s.prob_positive),
-            d.map_or("—".into(), |d| format!("{:.3}", d.rhat)),
-            d.map_or("—".into(), |d| format!("{:.0}", d.ess_bulk)),
-            d.map_or("—".into(), |d| format!("{:.0}", d.ess_tail)),
-        ]);
+        let mut row = vec![s.name.clone()];
+        row.extend(parameter_cells(s, d));
+        row.push(d.map_or("—".into(), |d| format!("{:.0}", d.ess_tail)));
+        grid.push(row);
         params_json.push(json!({
             "name": s.name, "mean": s.mean, "sd": s.sd, "lower": s.interval.lower, "upper": s.interval.upper,
             "p_positive": s.prob_positive,
@@ -223,6 +216,20 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     });
     let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
     Ok(Display { plain, html: Some(html), svg, json: Some(json) })
+}
+
+/// Mean, sd, interval, P(>0), R-hat and bulk ESS of one parameter as table
+/// cells ("—" where a Laplace fit has no diagnostics).
+pub(crate) fn parameter_cells(s: &crate::draws::Summary, d: Option<crate::infer::diagnostics::ParamDiagnostics>) -> Vec<String> {
+    vec![
+        num(s.mean),
+        num(s.sd),
+        num(s.interval.lower),
+        num(s.interval.upper),
+        format!("{:.2}", s.prob_positive),
+        d.map_or("—".into(), |d| format!("{:.3}", d.rhat)),
+        d.map_or("—".into(), |d| format!("{:.0}", d.ess_bulk)),
+    ]
 }
 
 /// `show NAME` — the latest result for a model, or a description of a table or graph.

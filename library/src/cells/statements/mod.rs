@@ -95,3 +95,13 @@ fn save_figure(session: &mut Session, st: &Statement) -> Result<Vec<Display>, Ce
     std::fs::write(&file, &svg).map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
     Ok(vec![Display::text(format!("saved the latest figure ({} KB) to {path}", svg.len().div_ceil(1024)))])
 }
+
+/// `KEYWORD NAME: REST` → (NAME, REST), for statements that name an object
+/// before a colon (`contrast m: …`, `intervene j: …`).
+pub(crate) fn named_header<'s>(st: &'s Statement, keyword: &str, form: &str) -> Result<(&'s str, &'s str), CellError> {
+    let (left, right) = st.head().split_once(':').ok_or_else(|| form_error(st, form))?;
+    match left.split_whitespace().collect::<Vec<_>>().as_slice() {
+        [k, name] if *k == keyword => Ok((name, right)),
+        _ => Err(form_error(st, form)),
+    }
+}

@@ -14,7 +14,7 @@ use std::sync::atomic::Ordering;
 use serde_json::{json, Value};
 
 use super::fitting::{parse_method, require_fit, FIT_FORM, INTERVAL_MASS};
-use super::form_error;
+use super::{form_error, named_header};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::format::num;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
@@ -129,11 +129,7 @@ fn to_json<T: serde::Serialize>(value: &T) -> Value {
 /// `contrast M: C b vs a [on outcomes] [seed S] [at Z v, …] [along X from LO to HI [by STEP]] [over rows]`.
 pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let (left, right) = st.head().split_once(':').ok_or_else(|| form_error(st, CONTRAST_FORM))?;
-    let name = match left.split_whitespace().collect::<Vec<_>>().as_slice() {
-        ["contrast", name] => *name,
-        _ => return Err(form_error(st, CONTRAST_FORM)),
-    };
+    let (name, right) = named_header(st, "contrast", CONTRAST_FORM)?;
     let request = parse_contrast(right).map_err(|m| CellError::at(line, format!("{m}; the form is: {CONTRAST_FORM}")))?;
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];

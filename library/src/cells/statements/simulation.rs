@@ -11,8 +11,8 @@
 use serde_json::{json, Value};
 
 use super::data::{describe_loaded, is_name};
-use super::fitting::INTERVAL_MASS;
-use super::form_error;
+use super::fitting::{parameter_cells, INTERVAL_MASS};
+use super::{form_error, named_header};
 use super::questions::{
     bounds, check_cancel, method_or, query_error, render, sampler_progress, stopped_or, summary_cells, CAUSAL_NOTE,
     DEFAULT_SEED,
@@ -164,17 +164,9 @@ pub(crate) fn fit_joint(
         let mut params = Vec::new();
         for (i, s) in summaries.iter().enumerate() {
             let d = f.diagnostics.as_ref().map(|d| d[i]);
-            grid.push(vec![
-                node.name.clone(),
-                s.name.clone(),
-                num(s.mean),
-                num(s.sd),
-                num(s.interval.lower),
-                num(s.interval.upper),
-                format!("{:.2}", s.prob_positive),
-                d.map_or("—".into(), |d| format!("{:.3}", d.rhat)),
-                d.map_or("—".into(), |d| format!("{:.0}", d.ess_bulk)),
-            ]);
+            let mut row = vec![node.name.clone(), s.name.clone()];
+            row.extend(parameter_cells(s, d));
+            grid.push(row);
             params.push(json!({
                 "name": s.name, "mean": s.mean, "sd": s.sd, "lower": s.interval.lower, "upper": s.interval.upper,
                 "p_positive": s.prob_positive, "rhat": d.map(|d| d.rhat), "ess_bulk": d.map(|d| d.ess_bulk),
@@ -223,11 +215,7 @@ fn method_name(method: &Method) -> &'static str {
 /// `intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]`.
 pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let (left, right) = st.head().split_once(':').ok_or_else(|| form_error(st, INTERVENE_FORM))?;
-    let name = match left.split_whitespace().collect::<Vec<_>>().as_slice() {
-        ["intervene", name] => *name,
-        _ => return Err(form_error(st, INTERVENE_FORM)),
-    };
+    let (name, right) = named_header(st, "intervene", INTERVENE_FORM)?;
     let request = parse_intervention(right).map_err(|m| CellError::at(line, format!("{m}; the form is: {INTERVENE_FORM}")))?;
     let joint = session.joints.get(name).ok_or_else(|| {
         CellError::at(line, format!("there is no joint model named {name}{}", suggest(name, session.joints.keys())))
