@@ -19,7 +19,8 @@ use crate::model::{Model, ModelSpec};
 const MODEL_FORM: &str = "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)";
 pub(crate) const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
 const EXPORT_FORM: &str = "export NAME draws to \"FILE.csv\"";
-const PLOT_FORM: &str = "plot NAME posterior|trace [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis";
+const PLOT_FORM: &str =
+    "plot NAME posterior|trace|rank [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis|prior|check";
 
 /// The interval every fit table shows.
 pub(crate) const INTERVAL_MASS: f64 = 0.9;
@@ -306,6 +307,12 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         ["plot", name, "lines", "over", x] => (*name, "lines", Some(*x)),
         _ => return Err(form_error(st, PLOT_FORM)),
     };
+    if matches!(kind, "prior" | "check") {
+        // The same figures as `prior check NAME` and `check NAME`.
+        let text = if kind == "prior" { format!("prior check {name}") } else { format!("check {name}") };
+        let alias = Statement { header: crate::cells::parse::SourceLine { number: st.header.number, text }, body: Vec::new() };
+        return super::simulation::predictive_check(session, &alias);
+    }
     let fit = require_fit(session, name, st.header.number)?;
     let model = &session.models[name];
     if matches!(kind, "lines" | "basis") {
@@ -329,7 +336,8 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
     }
     let svg = match kind {
         "posterior" => figures::posterior_of(model, fit, &chosen),
-        "trace" => figures::trace(model, fit, &chosen),
+        // Trace figures carry each chain's rank histogram beside its trace.
+        "trace" | "rank" => figures::trace(model, fit, &chosen),
         other => {
             return Err(CellError::at(st.header.number, format!("unknown figure `{other}`; the form is: {PLOT_FORM}")))
         }
