@@ -18,6 +18,8 @@ use serde::Deserialize;
 use serde_json::{json, Value};
 use sha2::Sha256;
 
+use crate::report::civil_from_days;
+
 /// The messaging protocol version this kernel speaks.
 pub const PROTOCOL_VERSION: &str = "5.3";
 
@@ -258,21 +260,6 @@ pub fn utc_timestamp(time: SystemTime) -> String {
         rem % 60,
         since.subsec_micros()
     )
-}
-
-/// Year, month, day of a count of days since 1970-01-01 (the proleptic
-/// Gregorian calendar; H. Hinnant's "civil_from_days" algorithm).
-fn civil_from_days(days: i64) -> (i64, u32, u32) {
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z.rem_euclid(146_097);
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let day = (doy - (153 * mp + 2) / 5 + 1) as u32;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
-    let year = yoe + era * 400 + i64::from(month <= 2);
-    (year, month, day)
 }
 
 #[cfg(test)]

@@ -133,7 +133,7 @@ fn utc_now_text() -> String {
 
 /// Days since 1970-01-01 to a proleptic Gregorian date (H. Hinnant's
 /// `civil_from_days` algorithm, "chrono-Compatible Low-Level Date Algorithms").
-fn civil_from_days(z: i64) -> (i64, u32, u32) {
+pub(crate) fn civil_from_days(z: i64) -> (i64, u32, u32) {
     let z = z + 719_468;
     let era = z.div_euclid(146_097);
     let doe = z - era * 146_097;

@@ -27,6 +27,7 @@ pub mod draws;
 pub mod query;
 pub mod plot;
 pub mod cells;
+pub mod names;
 
 /// Random number generation, re-exported so `%%rust` cells can write
 /// seeded simulations with the same generators the library uses.

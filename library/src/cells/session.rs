@@ -12,6 +12,7 @@ use crate::infer::fit::Fit;
 use crate::model::{Model, ModelSpec};
 use crate::query::{JointFit, JointModel, Simulation};
 use crate::table::Table;
+pub(crate) use crate::names::edit_distance;
 
 /// How a running cell is steered from outside: a cancel flag (set by an
 /// interrupt) and a progress sink for long fits.
@@ -155,17 +156,3 @@ pub(crate) fn suggest<'a>(name: &str, known: impl Iterator<Item = &'a String>) -
     }
 }
 
-/// Levenshtein distance between two strings.
-pub(crate) fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut cur = vec![i + 1];
-        for (j, cb) in b.iter().enumerate() {
-            let sub = prev[j] + usize::from(ca != *cb);
-            cur.push(sub.min(prev[j + 1] + 1).min(cur[j] + 1));
-        }
-        prev = cur;
-    }
-    prev[b.len()]
-}

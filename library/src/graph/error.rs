@@ -3,6 +3,8 @@
 
 use thiserror::Error;
 
+use crate::names::edit_distance;
+
 /// Everything that can go wrong while reading a graph or asking it a question.
 #[derive(Debug, Clone, PartialEq, Eq, Error)]
 pub enum GraphError {
@@ -62,33 +64,4 @@ pub(crate) fn near_matches<'a>(name: &str, candidates: impl Iterator<Item = &'a 
         .collect();
     scored.sort();
     scored.into_iter().take(3).map(|(_, c)| c.to_owned()).collect()
-}
-
-/// Levenshtein distance (insertions, deletions, substitutions) between two strings.
-fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut row: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut diagonal = row[0];
-        row[0] = i + 1;
-        for (j, &cb) in b.iter().enumerate() {
-            let above = row[j + 1];
-            row[j + 1] = (above + 1).min(row[j] + 1).min(diagonal + usize::from(ca != cb));
-            diagonal = above;
-        }
-    }
-    row[b.len()]
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn edit_distance_matches_textbook_examples() {
-        // Levenshtein (1966) distance; kitten/sitting = 3 is the classic worked example (recalled).
-        assert_eq!(edit_distance("kitten", "sitting"), 3);
-        assert_eq!(edit_distance("", "abc"), 3);
-        assert_eq!(edit_distance("yeild", "yield"), 2);
-    }
 }

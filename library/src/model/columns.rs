@@ -1,6 +1,7 @@
 //! Finding the columns a specification names, with a "did you mean" hint
 //! built from near matches when a name is not in the table.
 
+use crate::names::edit_distance;
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::ModelError;
@@ -53,18 +54,3 @@ fn near_match_hint(table: &Table, name: &str) -> String {
     }
 }
 
-/// Levenshtein distance between two strings (by characters).
-fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut row: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut diagonal = row[0];
-        row[0] = i + 1;
-        for (j, cb) in b.iter().enumerate() {
-            let above = row[j + 1];
-            row[j + 1] = (above + 1).min(row[j] + 1).min(diagonal + usize::from(ca != *cb));
-            diagonal = above;
-        }
-    }
-    row[b.len()]
-}
