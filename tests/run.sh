@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # The whole Waypath test suite in one command: Python reference venv, release
 # build, Rust tests, Python reference checks (networkx, scipy, statsmodels,
-# nbformat), and a headless run of every demo notebook.
+# nbformat), a headless run of every demo notebook, and demo notebook 1 run
+# in JupyterLab inside Debian's chromium (driven by playwright-core).
 #
 # The cargo target directory defaults to a folder outside the clone so that
 # repeated runs (and CI on the same machine) reuse the build.
@@ -18,11 +19,30 @@ if [ ! -x "$venv/bin/python" ] || ! cmp -s tests/requirements.txt "$venv/require
     cp tests/requirements.txt "$venv/requirements.txt"
 fi
 
+apt_install() {
+    apt-get install -y -q "$@" >/dev/null || { apt-get update -q >/dev/null && apt-get install -y -q "$@" >/dev/null; }
+}
+
 # The figure tests measure label widths with a real font (DejaVu Sans).
 if [ ! -d /usr/share/fonts/truetype/dejavu ] && [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null; then
     echo "== installing fonts-dejavu-core for the figure tests"
-    apt-get install -y -q fonts-dejavu-core >/dev/null || { apt-get update -q >/dev/null && apt-get install -y -q fonts-dejavu-core >/dev/null; }
+    apt_install fonts-dejavu-core
 fi
+
+# The real-browser check: Debian's chromium and playwright-core from npm
+# (pinned by tests/browser/package-lock.json, installed outside the clone).
+if [ ! -x /usr/bin/chromium ] && [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null; then
+    echo "== installing Debian's chromium for the JupyterLab check"
+    apt_install chromium
+fi
+node_dir="$CARGO_TARGET_DIR/browser-node"
+if [ ! -d "$node_dir/node_modules/playwright-core" ] || ! cmp -s tests/browser/package-lock.json "$node_dir/package-lock.json"; then
+    echo "== installing playwright-core into $node_dir"
+    rm -rf "$node_dir" && mkdir -p "$node_dir"
+    cp tests/browser/package.json tests/browser/package-lock.json "$node_dir/"
+    (cd "$node_dir" && npm ci --no-audit --no-fund --ignore-scripts --loglevel=error)
+fi
+export WAYPATH_NODE_MODULES="$node_dir/node_modules"
 
 echo "== building (release)"
 cargo build --release --workspace --locked

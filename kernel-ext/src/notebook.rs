@@ -175,14 +175,18 @@ pub fn outputs_of(outcome: &CellOutcome, cell_number: usize, execution_count: u6
         let text: String = outcome.warnings.iter().map(|w| format!("warning: {w}\n")).collect();
         outputs.push(json!({"output_type": "stream", "name": "stderr", "text": text}));
     }
+    // The cell's result is the written part of its last display (what
+    // history keeps); figures and earlier displays are display data.
     let last = outcome.displays.len();
     for (i, display) in outcome.displays.iter().enumerate() {
-        let data = Value::Object(display.mime_bundle());
-        if i + 1 == last && outcome.error.is_none() {
-            outputs.push(json!({"output_type": "execute_result", "execution_count": execution_count,
-                                "data": data, "metadata": {}}));
-        } else {
-            outputs.push(json!({"output_type": "display_data", "data": data, "metadata": {}}));
+        for (k, bundle) in display.notebook_bundles().into_iter().enumerate() {
+            let data = Value::Object(bundle);
+            if i + 1 == last && k == 0 && outcome.error.is_none() {
+                outputs.push(json!({"output_type": "execute_result", "execution_count": execution_count,
+                                    "data": data, "metadata": {}}));
+            } else {
+                outputs.push(json!({"output_type": "display_data", "data": data, "metadata": {}}));
+            }
         }
     }
     if let Some(error) = &outcome.error {

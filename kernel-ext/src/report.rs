@@ -85,9 +85,10 @@ fn render_output(output: &Value) -> String {
 
 fn render_bundle(data: &Value) -> String {
     let mut html = String::from("<div class=\"wp-out\">");
+    let figure_only = data.get("image/svg+xml").is_some() && data.get("text/html").is_none();
     if let Some(h) = data.get("text/html") {
         html.push_str(&text_of(h));
-    } else if let Some(t) = data.get("text/plain") {
+    } else if let (false, Some(t)) = (figure_only, data.get("text/plain")) {
         html.push_str(&format!("<pre>{}</pre>", escape_html(&text_of(t))));
     }
     if let Some(svg) = data.get("image/svg+xml") {

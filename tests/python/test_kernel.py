@@ -80,7 +80,9 @@ class WaypathKernelTests(jupyter_kernel_test.KernelTests):
     # 6 * 7 = 42 (arithmetic), shown by the Rust context's Debug formatting.
     code_execute_result = [{"code": "%%rust\n6 * 7", "result": "42"}]
     code_display_data = [
-        {"code": "graph g:\n    a -> b\npaths from a to b in g", "mime": "image/svg+xml"},
+        # A figure is its own display (front ends show one MIME type per output);
+        # the written result is the execute_result.
+        {"code": "graph g:\n    a -> b", "mime": "image/svg+xml"},
     ]
     completion_samples = [
         {"text": "pa", "matches": {"paths"}},
@@ -189,6 +191,38 @@ def wait_for_stream(kc, msg_id, marker, timeout=120):
     raise AssertionError(f"no output containing {marker!r} within {timeout} s")
 
 
+def wait_for_progress_updates(kc, msg_id, timeout=120):
+    """Read IOPub until request `msg_id` has shown a progress display and updated it; return its id."""
+    shown = None
+    deadline = time.time() + timeout
+    while time.time() < deadline:
+        try:
+            m = kc.get_iopub_msg(timeout=1)
+        except Exception:
+            continue
+        if m["parent_header"].get("msg_id") != msg_id:
+            continue
+        display_id = m["content"].get("transient", {}).get("display_id")
+        if m["msg_type"] == "display_data" and display_id and "fit m" in m["content"]["data"]["text/plain"]:
+            shown = display_id
+        elif m["msg_type"] == "update_display_data" and shown and display_id == shown:
+            return shown
+    raise AssertionError(f"no updating progress display within {timeout} s")
+
+
+def last_update_of(kc, msg_id, display_id, quiet=2.0):
+    """The content of the last update_display_data for `display_id` once IOPub goes quiet."""
+    last = None
+    while True:
+        try:
+            m = kc.get_iopub_msg(timeout=quiet)
+        except Exception:
+            return last
+        if (m["parent_header"].get("msg_id") == msg_id and m["msg_type"] == "update_display_data"
+                and m["content"]["transient"]["display_id"] == display_id):
+            last = m["content"]
+
+
 def reply_time(kc, msg_id, started):
     while True:
         reply = kc.get_shell_msg(timeout=10)
@@ -256,13 +290,17 @@ def test_interrupt_stops_a_long_fit_within_a_second(tmp_path):
         assert run(kc, TREES_CELL)[0]["status"] == "ok"
         assert run(kc, "model m:\n    girth from rootstock using trees")[0]["status"] == "ok"
         msg_id = kc.execute("fit m with nuts draws 1000000 seed 7")
-        # Progress comes as one updating line: stream text starting with a carriage return.
-        wait_for_stream(kc, msg_id, "\rfit m")
+        # Progress is one display updated in place (Jupyter messaging spec 5.x:
+        # display_data with transient.display_id, then update_display_data).
+        display_id = wait_for_progress_updates(kc, msg_id)
         started = time.monotonic()
         km.interrupt_kernel()
         reply, elapsed = reply_time(kc, msg_id, started)
         assert reply["status"] == "error" and "interrupted" in reply["evalue"], reply
         assert elapsed < 1.0, f"interrupt took {elapsed:.2f} s"
+        # When the statement ends the progress display is emptied.
+        last = last_update_of(kc, msg_id, display_id)
+        assert last["data"]["text/plain"] == "", last
         # The session kept the table and the model: a short fit now works.
         reply, _ = run(kc, "fit m with laplace draws 200 seed 7")
         assert reply["status"] == "ok", reply

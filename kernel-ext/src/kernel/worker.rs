@@ -212,39 +212,53 @@ impl Worker {
     }
 }
 
-/// Progress of a long statement as one updating stream line (`\r`),
-/// throttled; the last state is written with a newline at the end.
+/// Progress of a long statement as one display that updates in place
+/// (Jupyter's `update_display_data`), throttled. When the statement ends the
+/// display is emptied: the progress was for watching, the result says what
+/// was done. A stream would leave the last progress line behind, styled as
+/// an error output by notebook front ends.
 struct Progress<'a> {
     publisher: &'a Publisher,
     parent: &'a Value,
     silent: bool,
-    state: Mutex<(Option<Instant>, Option<String>)>,
+    /// When the display was last sent (None: not shown yet).
+    last_sent: Mutex<Option<Instant>>,
 }
 
 impl<'a> Progress<'a> {
     fn new(publisher: &'a Publisher, parent: &'a Value, silent: bool) -> Progress<'a> {
-        Progress { publisher, parent, silent, state: Mutex::new((None, None)) }
+        Progress { publisher, parent, silent, last_sent: Mutex::new(None) }
+    }
+
+    /// One display per request: its id is derived from the request's id.
+    fn display_id(&self) -> String {
+        format!("waypath-progress-{}", self.parent["msg_id"].as_str().unwrap_or("cell"))
+    }
+
+    fn show(&self, first: bool, text: &str) {
+        let kind = if first { "display_data" } else { "update_display_data" };
+        let content = json!({
+            "data": {"text/plain": text},
+            "metadata": {},
+            "transient": {"display_id": self.display_id()},
+        });
+        self.publisher.publish(self.parent, kind, content);
     }
 
     fn report(&self, line: &str) {
         if self.silent {
             return;
         }
-        let mut state = self.state.lock().unwrap_or_else(|p| p.into_inner());
-        let due = state.0.is_none_or(|last| last.elapsed() >= PROGRESS_EVERY);
-        if due {
-            self.publisher.stream(self.parent, StreamName::Stderr, &format!("\r{line}"));
-            *state = (Some(Instant::now()), None);
-        } else {
-            state.1 = Some(line.to_string());
+        let mut last_sent = self.last_sent.lock().unwrap_or_else(|p| p.into_inner());
+        if last_sent.is_none_or(|last| last.elapsed() >= PROGRESS_EVERY) {
+            self.show(last_sent.is_none(), line);
+            *last_sent = Some(Instant::now());
         }
     }
 
     fn finish(&self) {
-        let state = self.state.lock().unwrap_or_else(|p| p.into_inner());
-        if state.0.is_some() {
-            let last = state.1.as_deref().map(|l| format!("\r{l}")).unwrap_or_default();
-            self.publisher.stream(self.parent, StreamName::Stderr, &format!("{last}\n"));
+        if self.last_sent.lock().unwrap_or_else(|p| p.into_inner()).is_some() {
+            self.show(false, "");
         }
     }
 }

@@ -6,7 +6,7 @@
 //! numbers for error messages); [`Session::run_cell`] executes them in order
 //! against the named objects of a session (tables, graphs, models, fits) and
 //! returns one [`Display`] per result, each carrying `text/plain`,
-//! `text/html`, `application/json` and, where the result has a shape,
+//! `text/html`, a JSON structure (`application/vnd.waypath.result+json`) and, where the result has a shape,
 //! `image/svg+xml`.
 //!
 //! This is the top of the library: nothing here knows about Jupyter or
@@ -19,6 +19,6 @@ pub mod parse;
 mod session;
 pub mod statements;
 
-pub use output::{CellError, CellOutcome, Display};
+pub use output::{CellError, CellOutcome, Display, RESULT_MIME};
 pub use parse::{split_statements, SourceLine, Statement};
 pub use session::{RunControl, Session};

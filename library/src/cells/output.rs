@@ -1,11 +1,17 @@
 //! What a statement gives back: displays, warnings and errors.
 //!
 //! A [`Display`] is one rich result: always `text/plain`, and where it helps
-//! `text/html` (tables), `image/svg+xml` (figures) and `application/json`
-//! (a documented structure for programs). [`Grid`] renders the same rows as
+//! `text/html` (tables), `image/svg+xml` (figures) and [`RESULT_MIME`]
+//! (a documented JSON structure for programs). [`Grid`] renders the same rows as
 //! aligned plain text and as an HTML table so both views say the same thing.
 
 use serde_json::{Map, Value};
+
+/// The MIME type of a result's JSON structure. A vendor type rather than
+/// `application/json`: notebook front ends rank their JSON tree viewer above
+/// HTML, which would hide the written result from the reader; programs ask
+/// for this type by name.
+pub const RESULT_MIME: &str = "application/vnd.waypath.result+json";
 
 /// One rich result of a statement.
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -22,8 +28,26 @@ impl Display {
         Display { plain: plain.into(), ..Display::default() }
     }
 
+    /// The MIME bundles a notebook front end should show, in order.
+    ///
+    /// A front end shows one MIME type per output (its richest), and HTML
+    /// outranks SVG, so a display that has both a written result and a
+    /// figure becomes two outputs: the written result (plain, HTML, JSON),
+    /// then its figure (SVG, with its `<title>` as the plain-text stand-in),
+    /// so each figure sits under the statement it belongs to.
+    pub fn notebook_bundles(&self) -> Vec<Map<String, Value>> {
+        match &self.svg {
+            Some(svg) if self.html.is_some() || self.json.is_some() => {
+                let text = Display { svg: None, ..self.clone() };
+                let figure = Display { plain: figure_caption(svg), svg: Some(svg.clone()), ..Display::default() };
+                vec![text.mime_bundle(), figure.mime_bundle()]
+            }
+            _ => vec![self.mime_bundle()],
+        }
+    }
+
     /// The MIME bundle (`{"text/plain": …, "text/html": …}`) of this display.
-    pub fn mime_bundle(&self) -> Map<String, Value> {
+    fn mime_bundle(&self) -> Map<String, Value> {
         let mut bundle = Map::new();
         bundle.insert("text/plain".into(), Value::String(self.plain.clone()));
         if let Some(html) = &self.html {
@@ -33,10 +57,27 @@ impl Display {
             bundle.insert("image/svg+xml".into(), Value::String(svg.clone()));
         }
         if let Some(json) = &self.json {
-            bundle.insert("application/json".into(), json.clone());
+            bundle.insert(RESULT_MIME.into(), json.clone());
         }
         bundle
     }
+}
+
+/// `figure: <title>` for an SVG figure, the words a text-only reader gets.
+fn figure_caption(svg: &str) -> String {
+    let title = svg
+        .split_once("<title>")
+        .and_then(|(_, rest)| rest.split_once("</title>"))
+        .map(|(t, _)| t.trim())
+        .filter(|t| !t.is_empty());
+    match title {
+        Some(t) => format!("figure: {}", unescape_xml(t)),
+        None => "figure".to_string(),
+    }
+}
+
+fn unescape_xml(text: &str) -> String {
+    text.replace("&lt;", "<").replace("&gt;", ">").replace("&quot;", "\"").replace("&apos;", "'").replace("&amp;", "&")
 }
 
 /// An error that stops a cell, with the cell line it comes from.
@@ -192,6 +233,24 @@ pub fn html_list(items: &[String]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // JupyterLab shows the richest MIME type of an output and ranks text/html
+    // above image/svg+xml (seen in tests/python/test_browser_lab.py), so a
+    // figure must travel alone to be seen.
+    #[test]
+    fn a_display_with_words_and_a_figure_becomes_words_then_figure() {
+        let svg = "<svg><title>trace: m &amp; n</title></svg>".to_string();
+        let d = Display { plain: "m".into(), html: Some("<p>m</p>".into()), svg: Some(svg.clone()), json: None };
+        let bundles = d.notebook_bundles();
+        assert_eq!(bundles.len(), 2);
+        assert_eq!(bundles[0]["text/html"], Value::String("<p>m</p>".into()));
+        assert!(!bundles[0].contains_key("image/svg+xml"));
+        assert_eq!(bundles[1]["image/svg+xml"], Value::String(svg.clone()));
+        assert_eq!(bundles[1]["text/plain"], Value::String("figure: trace: m & n".into()));
+        assert!(!bundles[1].contains_key("text/html"));
+        let alone = Display { plain: "f".into(), svg: Some(svg), ..Display::default() };
+        assert_eq!(alone.notebook_bundles().len(), 1);
+    }
 
     #[test]
     fn grid_aligns_numbers_right_and_text_left() {
