@@ -372,23 +372,36 @@ fn after_fixed(form: &Form, tail: &[&str], next: &mut Next) {
         return;
     }
     let mut inside: Option<(&[Slot], usize)> = None;
+    let mut used: Vec<&str> = Vec::new();
     for w in tail {
         inside = match inside {
             Some((option, k)) if k < option.len() && option[k].accepts(w) => Some((option, k + 1)),
+            // a list goes on after an option that ends in a value (`given A, B`)
+            Some((option, k)) if k == option.len() && option[k - 1] == Value && !is_option_word(form, w) => {
+                Some((option, k))
+            }
             _ => form.options.iter().find(|o| o[0].accepts(w)).map(|o| (*o, 1)),
         };
+        if let Some((option, 1)) = inside {
+            used.extend(option[0].words());
+        }
     }
     match inside {
         Some((option, k)) if k < option.len() => next.slot(&option[k]),
         _ => {
-            next.add(&form.option_words());
+            let open: Vec<&'static str> = form.option_words().into_iter().filter(|w| !used.contains(w)).collect();
+            next.add(&open);
             if form.method {
                 next.add(&["with"]);
             }
-            // values written one after another (`given A, B`, `watch Y, Z`)
-            next.values |= !form.options.is_empty();
+            // after `given A` or `watch Y` the list may go on
+            next.values |= inside.is_some_and(|(option, k)| option[k - 1] == Value) || form.slots.last() == Some(&Word("watch"));
         }
     }
+}
+
+fn is_option_word(form: &Form, word: &str) -> bool {
+    form.option_words().contains(&word) || (form.method && word == "with")
 }
 
 /// What may follow `with` and the words after it.
