@@ -358,6 +358,7 @@ mod tests {
             ("contrast m: x 1 vs 0 on ", &["means", "outcomes"]),
             ("contrast m: x along z ", &["from"]),
             ("contrast m: x over ", &["rows"]),
+            ("contrast m: x 1 ", &["along", "at", "by", "on", "over", "seed", "vs"]),
         ];
         for (typed, want) in cases {
             assert_eq!(offered(&session, typed), *want, "after {typed:?}");
@@ -382,6 +383,16 @@ mod tests {
         assert_eq!(offered(&session, "paths from girth to yield in orchard "), ["given"]);
         assert_eq!(offered(&session, "paths from girth to yield in orchard given "), ["girth", "orchard", "rootstock", "yield"]);
         assert_eq!(offered(&session, "paths from girth to yield in orchard given rootstock, "), ["girth", "orchard", "rootstock", "yield"]);
+        // README: `contrast M: X b vs a …` — the settings b and a are values (levels)
+        session.put_table("trees", waypath::table::Table {
+            name: "trees".into(),
+            columns: vec![waypath::table::Column::new(
+                "rootstock",
+                waypath::table::ColumnData::Category { codes: vec![0, 1], levels: vec!["dwarf".into(), "standard".into()] },
+            )],
+        });
+        assert_eq!(offered(&session, "contrast m: rootstock sta"), ["standard"]);
+        assert_eq!(offered(&session, "contrast m: rootstock standard vs dw"), ["dwarf"]);
         // body lines are not headers: names only
         assert_eq!(offered(&session, "graph g:\n    gi"), ["girth"]);
         // the reply replaces the partial word (Jupyter messaging: cursor_start..cursor_end)

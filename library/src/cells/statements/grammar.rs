@@ -236,19 +236,29 @@ pub const SAVE: Form = Form {
     method: false,
     usage: "save figure to \"FILE.svg\"",
 };
+const CONTRAST_OPTIONS: &[&[Slot]] = &[
+    &[Word("on"), Choice(&["outcomes", "means"])],
+    SEED,
+    &[Word("at"), Value, Value],
+    &[Word("along"), Value, Word("from"), Value, Word("to"), Value],
+    &[Word("by"), Value],
+    &[Word("over"), Word("rows")],
+];
+const CONTRAST_USAGE: &str =
+    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows]";
+/// `contrast MODEL: X [options]` (one step of X).
 pub const CONTRAST: Form = Form {
     slots: &[Word("contrast"), Value, Word(":"), Value],
-    options: &[
-        &[Word("vs"), Value],
-        &[Word("on"), Choice(&["outcomes", "means"])],
-        SEED,
-        &[Word("at"), Value, Value],
-        &[Word("along"), Value, Word("from"), Value, Word("to"), Value],
-        &[Word("by"), Value],
-        &[Word("over"), Word("rows")],
-    ],
+    options: CONTRAST_OPTIONS,
     method: false,
-    usage: "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows]",
+    usage: CONTRAST_USAGE,
+};
+/// `contrast MODEL: X b vs a [options]` (two settings of X).
+pub const CONTRAST_BETWEEN: Form = Form {
+    slots: &[Word("contrast"), Value, Word(":"), Value, Value, Word("vs"), Value],
+    options: CONTRAST_OPTIONS,
+    method: false,
+    usage: CONTRAST_USAGE,
 };
 pub const COMPARE_ROUTES: Form = Form {
     slots: &[
@@ -298,7 +308,7 @@ pub const CHECK: Form = Form { slots: &[Word("check"), Value], options: CHECK_OP
 /// Every header form, in the order statement words are listed to users.
 pub const FORMS: &[Form] = &[
     TABLE, GRAPH, GRAPH_FILE, ASK, ASK_USING, PATHS, IMPLICATIONS, IMPLICATIONS_CHECKED, MODEL, FIT, SHOW, EXPORT, PLOT,
-    SAVE, CONTRAST, COMPARE_ROUTES, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK, CHECK,
+    SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK, CHECK,
 ];
 
 /// The words that start a statement, in [`FORMS`] order.
@@ -346,7 +356,9 @@ pub fn next_words(typed: &str) -> Next {
     let mut next = Next::default();
     for form in FORMS {
         let fixed = form.slots.len().min(words.len());
-        if !form.slots.iter().zip(&words).all(|(slot, w)| slot.accepts(w)) {
+        // a value place is not taken by a word that starts an option of the form
+        let fits = |slot: &Slot, w: &&str| slot.accepts(w) && !(*slot == Value && is_option_word(form, w));
+        if !form.slots.iter().zip(&words).all(|(slot, w)| fits(slot, w)) {
             continue;
         }
         if form.slots[..fixed].contains(&Quoted) {
@@ -440,8 +452,8 @@ mod tests {
     fn a_quoted_path_is_one_value_and_a_colon_is_a_word() {
         let r = TABLE.read("table t from \"my data, 2024.csv\"").unwrap();
         assert_eq!(r.kept, ["t", "\"my data, 2024.csv\""]);
-        let r = CONTRAST.read("contrast m: x 1 vs 0 at z 2, w 3").unwrap();
-        assert_eq!((r.kept, r.rest), (vec!["m", "x"], "1 vs 0 at z 2, w 3"));
+        let r = CONTRAST_BETWEEN.read("contrast m: x 1 vs 0 at z 2, w 3").unwrap();
+        assert_eq!((r.kept, r.rest), (vec!["m", "x", "1", "0"], "at z 2, w 3"));
     }
 
     #[test]

@@ -14,7 +14,7 @@ use std::sync::atomic::Ordering;
 use serde_json::{json, Value};
 
 use super::fitting::{parse_method, require_fit, INTERVAL_MASS};
-use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, FIT, IMPLICATIONS_CHECKED};
+use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
 use super::header;
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::format::num;
@@ -148,15 +148,16 @@ fn to_json<T: serde::Serialize>(value: &T) -> Value {
 /// `contrast M: C b vs a [on outcomes] [seed S] [at Z v, …] [along X from LO to HI [by STEP]] [over rows]`.
 pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let ([name, variable], rest) = match CONTRAST.read_n(st.head()) {
-        Ok(read) => read,
-        Err(at) if at.slot == 3 => {
+    let (name, mut request, rest) = match (CONTRAST_BETWEEN.read_n(st.head()), CONTRAST.read_n(st.head())) {
+        (Ok(([name, x, b, a], rest)), _) => (name, ContrastRequest::new(x).between(b, a), rest),
+        (_, Ok(([name, x], rest))) => (name, ContrastRequest::new(x), rest),
+        (_, Err(at)) if at.slot == 3 => {
             return Err(CellError::at(line, format!("name the predictor to contrast; the form is: {}", CONTRAST.usage)))
         }
-        Err(_) => return Err(super::form_error(st, CONTRAST.usage)),
+        _ => return Err(super::form_error(st, CONTRAST.usage)),
     };
-    let request =
-        parse_contrast(variable, rest).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", CONTRAST.usage)))?;
+    read_contrast_options(&mut request, rest)
+        .map_err(|m| CellError::at(line, format!("{m}; the form is: {}", CONTRAST.usage)))?;
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];
     let table = session.require_table(model.table_name(), line)?;
@@ -166,14 +167,9 @@ pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Disp
 
 /// Read the part of a contrast header after the predictor: its options
 /// start with the option words of [`CONTRAST`].
-fn parse_contrast(variable: &str, text: &str) -> Result<ContrastRequest, String> {
+fn read_contrast_options(request: &mut ContrastRequest, text: &str) -> Result<(), String> {
     let words: Vec<&str> = text.split_whitespace().map(|w| w.trim_end_matches(',')).filter(|w| !w.is_empty()).collect();
     let mut rest = words.as_slice();
-    let mut request = ContrastRequest::new(variable);
-    if let [b, "vs", a, tail @ ..] = rest {
-        request = request.between(*b, *a);
-        rest = tail;
-    }
     let mut seed = None;
     let mut outcomes = false;
     let number = |w: &str, what: &str| w.parse::<f64>().map_err(|_| format!("{what} takes a number, not `{w}`"));
@@ -222,7 +218,7 @@ fn parse_contrast(variable: &str, text: &str) -> Result<ContrastRequest, String>
     if outcomes {
         request.on = On::Outcomes { seed: seed.unwrap_or(DEFAULT_SEED) };
     }
-    Ok(request)
+    Ok(())
 }
 
 /// The display of one contrast; `extra` notes go before the closing causal note.
