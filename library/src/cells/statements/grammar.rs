@@ -406,8 +406,9 @@ fn after_fixed(form: &Form, tail: &[&str], next: &mut Next) {
             if form.method {
                 next.add(&["with"]);
             }
-            // after `given A` or `watch Y` the list may go on
-            next.values |= inside.is_some_and(|(option, k)| option[k - 1] == Value) || form.slots.last() == Some(&Word("watch"));
+            // a list of values goes on after an option ending in a value
+            // (`given A, B`) or after fixed places ending in a word (`watch Y, Z`)
+            next.values |= inside.is_some_and(|(option, k)| option[k - 1] == Value) || matches!(form.slots.last(), Some(Word(_)));
         }
     }
 }
@@ -437,6 +438,7 @@ fn method_next(after: &[&str], next: &mut Next) {
 
 #[cfg(test)]
 mod tests {
+    //! Headers written as the README's "Statements" table documents them.
     use super::*;
 
     #[test]
@@ -460,5 +462,15 @@ mod tests {
     fn every_form_starts_with_a_fixed_word() {
         assert!(FORMS.iter().all(|f| matches!(f.slots.first(), Some(Word(_)))));
         assert!(FORMS.iter().all(|f| f.options.iter().all(|o| matches!(o.first(), Some(Word(_))))));
+    }
+
+    /// The statement words of the README's "Statements" table, in its order.
+    #[test]
+    fn statement_words_are_those_the_readme_lists() {
+        let readme = [
+            "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save",
+            "contrast", "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+        ];
+        assert_eq!(statement_words(), readme);
     }
 }
