@@ -261,3 +261,59 @@ fn calibration_and_predictive_checks_give_their_figures() {
     let share = json["statistics"][0]["share_at_or_above"].as_f64().unwrap();
     assert!(share > 0.1 && share < 0.9, "{share}");
 }
+
+/// Thirty invented rows of flower visits (trials) and fruit set (successes)
+/// against warmth, made by arithmetic so the test needs no file.
+fn flowers() -> waypath::table::Table {
+    use waypath::table::{Column, ColumnData, Table};
+    let warmth: Vec<f64> = (0..30).map(|i| ((i * 13 % 30) as f64 - 14.5) / 6.0).collect();
+    let visits: Vec<u64> = (0..30).map(|i| 3 + (i * 5 % 8) as u64).collect();
+    let set: Vec<u64> = visits.iter().enumerate().map(|(i, v)| (i as u64 * 3) % (v + 1)).collect();
+    Table {
+        name: "flowers".into(),
+        columns: vec![
+            Column::new("warmth", ColumnData::Real(warmth)),
+            Column::new("visits", ColumnData::Count(visits)),
+            Column::new("set", ColumnData::Count(set)),
+        ],
+    }
+}
+
+#[test]
+fn calibrate_runs_on_a_binomial_fit_and_reports_pearsons_statistic() {
+    let mut session = Session::new(".");
+    session.put_table("flowers", flowers());
+    last_json(&mut session, "model fs:\n    set from warmth using flowers\n    family binomial trials visits\nfit fs with laplace seed 1");
+    let out = run(&mut session, "calibrate fs reps 40 seed 3");
+    assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
+    let display = out.displays.last().unwrap();
+    assert!(display.svg.as_deref().unwrap_or("").contains("<title>calibration: "), "a rank histogram is drawn");
+    let json = display.json.clone().unwrap();
+    has_keys(&json, &["model", "method", "seed", "reps", "failures", "draws_per_fit", "bins", "parameters", "notes"]);
+    assert_eq!((json["reps"].as_u64(), json["failures"].as_u64()), (Some(40), Some(0)));
+    let draws = json["draws_per_fit"].as_u64().unwrap() as usize;
+    let bins = json["bins"].as_u64().unwrap() as usize;
+    let names: Vec<&str> = json["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
+    assert_eq!(names, ["intercept", "b_warmth"]);
+    for p in json["parameters"].as_array().unwrap() {
+        let ranks: Vec<usize> = p["ranks"].as_array().unwrap().iter().map(|r| r.as_u64().unwrap() as usize).collect();
+        assert_eq!(ranks.len(), 40);
+        // Pearson (1900): Σ (O − E)² / E, each bin expecting its share of the draws + 1 rank values.
+        let mut observed = vec![0.0; bins];
+        let mut width = vec![0.0; bins];
+        for r in &ranks {
+            assert!(*r <= draws);
+            observed[r * bins / (draws + 1)] += 1.0;
+        }
+        (0..=draws).for_each(|v| width[v * bins / (draws + 1)] += 1.0);
+        let pearson: f64 = observed
+            .iter()
+            .zip(&width)
+            .map(|(o, w)| {
+                let e = 40.0 * w / (draws + 1) as f64;
+                (o - e) * (o - e) / e
+            })
+            .sum();
+        assert!((p["chi_square"].as_f64().unwrap() - pearson).abs() < 1e-9, "{p}");
+    }
+}

@@ -146,3 +146,35 @@ fn graph_from_a_dot_file_answers_like_the_same_graph_written_inline() {
     // Single-door criterion (Pearl 2009, Thm 5.3.1): the mediator girth must be held.
     assert_eq!(a["adjustment_sets"], serde_json::json!([["girth"]]));
 }
+
+/// The README's "Statements" table is the contract: a header that misses a
+/// connecting word is answered with its documented form, and the sampler
+/// options named there (`chains`, `warmup`, `draws`, `seed`, `accept`,
+/// `depth`) are the ones an unknown option is told about.
+#[test]
+fn malformed_headers_are_answered_with_their_documented_form() {
+    let mut session = Session::new(".");
+    let setup = "graph g:\n    z -> x -> y\n    z -> y\nsimulate field from g rows 30 seed 1:\n    z = normal(0, 1)\n    x = normal(z, 1)\n    y = normal(x + z, 1)\nmodel m:\n    y from x using field";
+    assert!(run(&mut session, setup).error.is_none());
+    let message = |session: &mut Session, cell: &str| run(session, cell).error.map(|e| e.message).unwrap_or_default();
+    let cases = [
+        ("ask total effect of x on y in g using", "ask total|direct effect of X on Y in GRAPH using TABLE"),
+        ("compare routes for total effect of x on y g using field", "compare routes for total effect of X on Y in GRAPH using TABLE"),
+        ("implications of g checked field", "implications of GRAPH"),
+        ("paths from x to y in g givn z", "paths from X to Y in GRAPH [given A, B]"),
+        ("recover m field", "recover MODEL on SIMULATION"),
+        ("calibrate m 20", "calibrate MODEL reps R [seed S]"),
+        ("joint j = g field", "joint NAME = GRAPH using TABLE"),
+        ("export m draws \"x.csv\"", "export NAME draws to \"FILE.csv\""),
+    ];
+    for (cell, form) in cases {
+        let m = message(&mut session, cell);
+        assert!(m.starts_with(&format!("cannot read \"{cell}\"; the form is: {form}")), "{cell}: {m}");
+    }
+    let m = message(&mut session, "fit m with nuts steps 3");
+    assert!(m.starts_with("nuts takes chains, warmup, draws, seed, accept, depth — not `steps`"), "{m}");
+    let m = message(&mut session, "calibrate m reps 20 seed 2 with laplace chains 2");
+    assert!(m.starts_with("laplace takes `draws` and `seed`, not `chains`"), "{m}");
+    let m = message(&mut session, "intervene j: set x 1 0, watch y");
+    assert!(m.starts_with("cannot read `set x 1 0`; write `set X v1 vs v0`"), "{m}");
+}

@@ -6,32 +6,29 @@
 //! Each replication draws the parameters from the priors declared in the
 //! model cell, simulates a table from them, builds the [`Model`] from its
 //! text and fits it with [`fit_model`] (one short NUTS chain). The rank of
-//! each true value among `KEPT` thinned posterior draws is uniform on
-//! `0..=KEPT` when model building, density, gradient and sampler are all
-//! right; Pearson's chi-square test on `BINS` equal bins (chi-square CDF
-//! from statrs) must give p > 0.01 for every parameter.
+//! each true value among the thinned posterior draws is uniform when model
+//! building, density, gradient and sampler are all right; Pearson's
+//! chi-square test ([`common::sbc`]) must give p > 0.01 for every parameter.
 //!
 //! Replications are spread over two threads; each has its own seed, so the
 //! ranks do not depend on the scheduling.
 
+mod common;
+
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::Mutex;
 
+use common::sbc::{assert_uniform, logistic, rank_of, uniformity_p_value, KEPT, THIN};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, LogNormal, Normal};
-use statrs::distribution::{ChiSquared, ContinuousCDF};
 use waypath::infer::fit::{fit_model, Method};
 use waypath::infer::nuts::NutsSettings;
 use waypath::model::{Model, ModelSpec};
 use waypath::table::{Column, ColumnData, Table};
 
 const REPLICATIONS: usize = 200;
-/// Posterior draws kept per replication after thinning; ranks are 0..=99.
-const KEPT: usize = 99;
-const THIN: usize = 3;
 const WARMUP: usize = 250;
-const BINS: usize = 10;
 
 /// One replication: the true parameters (in model order) and the table
 /// simulated from them.
@@ -71,28 +68,8 @@ fn one_replication(spec: &ModelSpec, seed: u64, simulate: &impl Fn(&mut StdRng) 
         .values
         .iter()
         .zip(&truth)
-        .map(|(draws, &t)| draws.iter().step_by(THIN).filter(|&&d| d < t).count())
+        .map(|(draws, &t)| rank_of(t, draws.iter().copied()))
         .collect()
-}
-
-/// Pearson chi-square p-value of ranks 0..=KEPT against the uniform
-/// distribution, in BINS equal bins.
-fn uniformity_p_value(ranks: &[usize]) -> f64 {
-    let mut counts = [0usize; BINS];
-    for &r in ranks {
-        counts[r * BINS / (KEPT + 1)] += 1;
-    }
-    let expected = ranks.len() as f64 / BINS as f64;
-    let stat: f64 = counts.iter().map(|&o| (o as f64 - expected).powi(2) / expected).sum();
-    let chi2 = ChiSquared::new((BINS - 1) as f64).expect("positive degrees of freedom");
-    1.0 - chi2.cdf(stat)
-}
-
-fn assert_uniform(names: &[&str], ranks: &[Vec<usize>]) {
-    let p_values: Vec<f64> = ranks.iter().map(|r| uniformity_p_value(r)).collect();
-    for (name, p) in names.iter().zip(&p_values) {
-        assert!(*p > 0.01, "{name}: SBC ranks not uniform, chi-square p = {p} (all: {p_values:?})");
-    }
 }
 
 fn table(name: &str, columns: Vec<(&str, ColumnData)>) -> Table {
@@ -175,7 +152,7 @@ fn logistic_regression_is_calibrated() {
         let mut sprouted = Vec::new();
         for _ in 0..40 {
             let (w, m) = (std_normal.sample(rng), std_normal.sample(rng));
-            let p = 1.0 / (1.0 + (-(truth[0] + truth[1] * w + truth[2] * m)).exp());
+            let p = logistic(truth[0] + truth[1] * w + truth[2] * m);
             warmth.push(w);
             wetness.push(m);
             sprouted.push(rng.random::<f64>() < p);

@@ -4,24 +4,21 @@
 //!
 //! For each replication: draw parameters from the prior, simulate data from
 //! them, sample the posterior, and record the rank of the prior draw among
-//! `L` thinned posterior draws. If the sampler is correct the ranks are
-//! uniform on `0..=L`; we bin them and apply Pearson's chi-square test
-//! (chi-square CDF from statrs), requiring p > 0.01.
+//! the thinned posterior draws. If the sampler is correct the ranks are
+//! uniform; Pearson's chi-square test ([`common::sbc`]) must give p > 0.01.
+
+mod common;
 
 use std::sync::atomic::AtomicBool;
 
+use common::sbc::{assert_uniform, logistic, rank_of, uniformity_p_value, KEPT, THIN};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Normal};
-use statrs::distribution::{ChiSquared, ContinuousCDF};
 use waypath::infer::nuts::{sample_nuts, Init, NutsSettings};
 use waypath::model::LogDensity;
 
 const REPLICATIONS: u64 = 500;
-/// Posterior draws kept per replication after thinning; ranks are 0..=99.
-const KEPT: usize = 99;
-const THIN: usize = 3;
-const BINS: usize = 10;
 
 /// y_i ~ Normal(mu, k exp(tau)), mu ~ Normal(0, 2), tau ~ Normal(0, 0.5);
 /// `k = 1` is the model the data come from, any other `k` a misspecified one.
@@ -75,7 +72,7 @@ impl LogDensity for Logistic {
         for (&x, &y) in self.x.iter().zip(&self.y) {
             let eta = a + b * x;
             lp += y * eta - log1p_exp(eta);
-            let resid = y - 1.0 / (1.0 + (-eta).exp());
+            let resid = y - logistic(eta);
             g[0] += resid;
             g[1] += resid * x;
         }
@@ -100,24 +97,10 @@ fn sbc_ranks<D: LogDensity>(simulate: impl Fn(&mut StdRng) -> (Vec<f64>, D)) -> 
         let run = sample_nuts(&target, &Init::default(), &settings, &AtomicBool::new(false), &|_| {})
             .expect("run completes");
         for (p, rank) in ranks.iter_mut().enumerate() {
-            let below = run.draws[0].iter().step_by(THIN).filter(|d| d[p] < truth[p]).count();
-            rank.push(below);
+            rank.push(rank_of(truth[p], run.draws[0].iter().map(|d| d[p])));
         }
     }
     ranks
-}
-
-/// Pearson chi-square p-value of ranks 0..=KEPT against the uniform
-/// distribution, in BINS equal bins.
-fn uniformity_p_value(ranks: &[usize]) -> f64 {
-    let mut counts = [0usize; BINS];
-    for &r in ranks {
-        counts[r * BINS / (KEPT + 1)] += 1;
-    }
-    let expected = ranks.len() as f64 / BINS as f64;
-    let stat: f64 = counts.iter().map(|&o| (o as f64 - expected).powi(2) / expected).sum();
-    let chi2 = ChiSquared::new((BINS - 1) as f64).expect("positive degrees of freedom");
-    1.0 - chi2.cdf(stat)
 }
 
 fn normal_model_ranks(k: f64) -> Vec<Vec<usize>> {
@@ -132,11 +115,7 @@ fn normal_model_ranks(k: f64) -> Vec<Vec<usize>> {
 
 #[test]
 fn normal_mean_and_log_scale_ranks_are_uniform() {
-    let ranks = normal_model_ranks(1.0);
-    for (name, r) in ["mu", "tau"].iter().zip(&ranks) {
-        let p = uniformity_p_value(r);
-        assert!(p > 0.01, "{name}: SBC ranks not uniform, chi-square p = {p}");
-    }
+    assert_uniform(&["mu", "tau"], &normal_model_ranks(1.0));
 }
 
 /// Negative control: a likelihood that assumes half the true noise scale
@@ -157,14 +136,10 @@ fn logistic_regression_ranks_are_uniform() {
         let y = x
             .iter()
             .map(|xi| {
-                let p = 1.0 / (1.0 + (-(a + b * xi)).exp());
-                if rng.random::<f64>() < p { 1.0 } else { 0.0 }
+                if rng.random::<f64>() < logistic(a + b * xi) { 1.0 } else { 0.0 }
             })
             .collect();
         (vec![a, b], Logistic { x, y })
     });
-    for (name, r) in ["a", "b"].iter().zip(&ranks) {
-        let p = uniformity_p_value(r);
-        assert!(p > 0.01, "{name}: SBC ranks not uniform, chi-square p = {p}");
-    }
+    assert_uniform(&["a", "b"], &ranks);
 }

@@ -3,6 +3,8 @@
 
 use std::sync::atomic::AtomicBool;
 
+use statrs::distribution::Discrete;
+
 use waypath::graph::{Graph, GraphBuilder};
 use waypath::infer::fit::{fit_model, Method};
 use waypath::infer::nuts::NutsSettings;
@@ -10,7 +12,7 @@ use waypath::model::{Model, ModelSpec};
 use waypath::query::{
     calibrate, posterior_predictive, prior_predictive, recover, QueryError, Simulation, SimulationSettings,
 };
-use waypath::table::ColumnData;
+use waypath::table::{Column, ColumnData, Table};
 
 fn graph(name: &str, lines: &[&str]) -> Graph {
     let mut b = GraphBuilder::new(name);
@@ -145,6 +147,88 @@ fn calibration_ranks_are_uniform_under_nuts() {
         assert!(p.ranks.iter().all(|&r| r <= 99));
         assert!(p.p_value > 0.001, "{}: chi-square {} p {}", p.name, p.chi_square, p.p_value);
     }
+}
+
+/// A binomial model of fruit set: `set` flowers of `visits` visited set fruit,
+/// against warmth. 30 invented rows (seeded); the outcome column is only a
+/// valid starting table, since calibration replaces it by simulated outcomes.
+fn binomial_calibration_model() -> Model {
+    let warmth: Vec<f64> = (0..30).map(|i| ((i * 17 % 30) as f64 - 14.5) / 8.0).collect();
+    let visits: Vec<u64> = (0..30).map(|i| 2 + (i * 7 % 9) as u64).collect();
+    let set: Vec<u64> = visits.iter().enumerate().map(|(i, v)| (i as u64 * 5) % (v + 1)).collect();
+    let table = Table {
+        name: "flowers".into(),
+        columns: vec![
+            Column::new("warmth", ColumnData::Real(warmth)),
+            Column::new("visits", ColumnData::Count(visits)),
+            Column::new("set", ColumnData::Count(set)),
+        ],
+    };
+    let text = "set from warmth using flowers\nfamily binomial trials visits\nprior intercepts: normal(0, 1)\nprior slopes: normal(0, 1)";
+    let spec = ModelSpec::from_lines("fruit_set", text.lines().enumerate().map(|(i, l)| (i + 2, l))).expect("spec");
+    Model::build(&spec, &table).expect("model")
+}
+
+/// Upper 1% point of the chi-square distribution with 9 degrees of freedom,
+/// from the NIST/SEMATECH e-Handbook of Statistical Methods, table 1.3.6.7.4
+/// (recalled): 21.666.
+const CHI_SQUARE_9_DF_UPPER_1_PERCENT: f64 = 21.666;
+
+/// Source: Talts et al. (2018) — ranks of prior draws among posterior draws
+/// are uniform when the posterior is right; Pearson's (1900) statistic
+/// Σ (O − E)² / E over 10 bins of 10 rank values each, recomputed here from
+/// the ranks, must stay below the handbook's 1% critical value for a
+/// binomial (logistic) model sampled by NUTS, whose simulated outcomes are
+/// successes out of each row's own number of trials.
+#[test]
+fn binomial_calibration_ranks_are_uniform_under_nuts() {
+    let model = binomial_calibration_model();
+    let nuts = Method::Nuts(NutsSettings { chains: 1, warmup: 300, draws: 297, threads: 1, seed: 0, ..NutsSettings::default() });
+    let reps = 200;
+    let c = calibrate(&model, reps, &nuts, 23, &AtomicBool::new(false)).expect("calibrate a binomial model");
+    assert_eq!((c.reps, c.failures, c.draws_per_fit, c.bins), (reps, 0, 99, 10));
+    assert_eq!(c.parameters.iter().map(|p| p.name.as_str()).collect::<Vec<_>>(), ["intercept", "b_warmth"]);
+    for p in &c.parameters {
+        assert_eq!(p.ranks.len(), reps);
+        let mut observed = [0.0f64; 10];
+        for &r in &p.ranks {
+            assert!(r <= 99, "{}: rank {r} above the number of draws", p.name);
+            observed[r / 10] += 1.0;
+        }
+        let expected = reps as f64 / 10.0;
+        let pearson: f64 = observed.iter().map(|o| (o - expected) * (o - expected) / expected).sum();
+        assert!((pearson - p.chi_square).abs() < 1e-9, "{}: reported {} vs Pearson {pearson}", p.name, p.chi_square);
+        assert!(pearson < CHI_SQUARE_9_DF_UPPER_1_PERCENT, "{}: ranks far from uniform, chi-square {pearson}", p.name);
+    }
+}
+
+/// Source: the binomial distribution's support — a simulated count of
+/// successes lies between 0 and its row's number of trials, so calibration
+/// must keep each row's trials when it swaps in simulated outcomes; with
+/// trials of 2 to 10 per row some simulated counts exceed 1 (not yes/no).
+#[test]
+fn simulated_binomial_outcomes_stay_within_each_rows_trials() {
+    use rand::SeedableRng;
+    let model = binomial_calibration_model();
+    let rows = model.fitted_rows();
+    let trials = rows.trials.clone().expect("the trials of the fitted rows");
+    let mut rng = rand::rngs::StdRng::seed_from_u64(5);
+    let y = model.outcome_draw(&[0.8, 0.5], &rows, &mut rng).expect("draw");
+    assert!(y.iter().zip(&trials).all(|(&s, &m)| s.fract() == 0.0 && s >= 0.0 && s <= m as f64), "{y:?}");
+    assert!(y.iter().any(|&s| s > 1.0));
+    let refit = model.with_outcome(y.clone()).expect("a binomial model takes new outcomes");
+    assert_eq!(refit.outcome_values(), y.as_slice());
+    // statrs' binomial log pmf, row by row, at each row's own trials: the refitted
+    // likelihood keeps the trials rather than reading the counts as yes/no.
+    let means = model.predict_mean(&[0.8, 0.5], &rows).expect("means").mean;
+    let reference: f64 = y
+        .iter()
+        .zip(&trials)
+        .zip(&means)
+        .map(|((&s, &m), &p)| statrs::distribution::Binomial::new(p, m).expect("valid").ln_pmf(s as u64))
+        .sum();
+    let ours = refit.log_likelihood(&[0.8, 0.5]).expect("log-likelihood");
+    assert!((ours - reference).abs() < 1e-9 * reference.abs(), "{ours} vs statrs {reference}");
 }
 
 /// Source: the Laplace approximation sits at the joint mode, where for a

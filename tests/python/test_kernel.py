@@ -90,6 +90,11 @@ class WaypathKernelTests(jupyter_kernel_test.KernelTests):
         {"text": "e", "matches": {"export"}},
         {"text": "%%r", "matches": {"%%rust"}},
         {"text": "paths from root", "matches": {"rootstock"}},
+        # connecting words of the README "Statements" forms, offered where the statement allows them
+        {"text": "paths from rootstock to yield in orchard gi", "matches": {"given"}},
+        {"text": "ask total effect of girth on yield in orchard us", "matches": {"using"}},
+        {"text": "table trees fr", "matches": {"from"}},
+        {"text": "fit m with nu", "matches": {"nuts"}},
     ]
     complete_code_samples = ["paths from a to b in g", "graph g:\n    a -> b\n\n", "%%rust\nlet x = 1;"]
     incomplete_code_samples = ["graph g:", "graph g:\n    a -> b\n", "%%rust\nfn grow() {"]

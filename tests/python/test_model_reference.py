@@ -183,3 +183,30 @@ def test_prior_log_densities_match_scipy_stats(probe, text, reference):
     x = np.array([0.1, 0.7, 2.0, 4.5])
     answer = probe("model", {"action": "prior", "prior": text, "x": x.tolist()})
     np.testing.assert_allclose(answer["log_density"], reference.logpdf(x), rtol=1e-12)
+
+
+def test_binomial_calibration_ranks_pass_scipy_chisquare(probe):
+    """Talts et al. (2018): ranks of prior draws among NUTS posterior draws are
+    uniform for a correct posterior; scipy.stats.chisquare on 10 equal bins of
+    the ranks (0..99) gives our statistic and p-value, and does not reject at 1%."""
+    rng = np.random.default_rng(29)
+    n = 30
+    visits = rng.integers(2, 11, n)
+    warmth = rng.normal(0, 1, n)
+    set_ = rng.binomial(visits, 0.4)
+    cols = {"warmth": {"real": warmth.tolist()}, "visits": {"count": visits.tolist()},
+            "set": {"count": set_.tolist()}}
+    model = ("set from warmth using flowers\nfamily binomial trials visits\n"
+             "prior intercepts: normal(0, 1)\nprior slopes: normal(0, 1)\n")
+    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
+                             "reps": 150, "seed": 41, "draws": 297})
+    assert "error" not in answer, answer
+    assert answer["reps"] == 150 and answer["failures"] == 0 and answer["draws_per_fit"] == 99
+    for p in answer["parameters"]:
+        ranks = np.asarray(p["ranks"])
+        assert ranks.min() >= 0 and ranks.max() <= 99
+        observed = np.bincount(ranks // 10, minlength=10)
+        reference = st.chisquare(observed)
+        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
+        assert p["p_value"] == pytest.approx(reference.pvalue, rel=1e-6, abs=1e-12)
+        assert reference.pvalue > 0.01, (p["name"], reference)

@@ -5,7 +5,7 @@
 
 use serde_json::{json, Value};
 use waypath::cells::parse::{is_incomplete, split_statements};
-use waypath::cells::statements::KEYWORDS;
+use waypath::cells::statements::grammar::{next_words, statement_words};
 use waypath::cells::Session;
 use waypath::table::Table;
 
@@ -64,17 +64,20 @@ fn rust_is_open(code: &str) -> bool {
     depth > 0
 }
 
-/// The `complete_reply` content: statement words at the start of a line,
-/// otherwise names of session objects, table columns and category levels.
+/// The `complete_reply` content: statement words at the start of a line;
+/// in a header, the connecting words its statement's grammar allows next
+/// (`from`, `given`, `using`, `with`, sampler options …) and, where a
+/// value fits, names of session objects, table columns, category levels
+/// and graph nodes; in a body line or a Rust cell, those names.
 pub fn complete(session: &Session, code: &str, cursor_pos: usize) -> Value {
     let (before, start) = text_before(code, cursor_pos);
     let word = current_word(&before);
     let line_start = before.rsplit('\n').next().unwrap_or("");
     let at_statement_start = line_start.len() == word.len();
     let mut candidates: Vec<String> = if at_statement_start {
-        KEYWORDS.iter().map(|w| w.to_string()).chain([RUST_MAGIC.to_string()]).collect()
+        statement_words().iter().map(|w| w.to_string()).chain([RUST_MAGIC.to_string()]).collect()
     } else {
-        session_words(session)
+        header_words(session, code, &line_start[..line_start.len() - word.len()])
     };
     candidates.retain(|c| c.starts_with(word));
     candidates.sort();
@@ -108,6 +111,23 @@ fn current_word(before: &str) -> &str {
         .map(|(i, _)| i)
         .unwrap_or(before.len());
     &before[start..]
+}
+
+/// Candidates inside a line that does not start a statement: `typed` is
+/// the line before the word being completed. A header line of the cell
+/// language gets what its grammar allows next; a body line, a Rust cell, or
+/// a header no form knows gets every session name.
+fn header_words(session: &Session, code: &str, typed: &str) -> Vec<String> {
+    let is_header = !typed.starts_with([' ', '\t']) && rust_source(code).is_none();
+    let next = if is_header { next_words(typed) } else { Default::default() };
+    if next.words.is_empty() && !next.values {
+        return session_words(session);
+    }
+    let mut words: Vec<String> = next.words.iter().map(|w| w.to_string()).collect();
+    if next.values {
+        words.extend(session_words(session));
+    }
+    words
 }
 
 /// Every name a cell could refer to: objects, columns, category levels.
@@ -171,7 +191,7 @@ fn describe(session: &Session, word: &str) -> Option<String> {
             return Some(format!("column {word} of table {name}: {}", column.describe_kind()));
         }
     }
-    KEYWORDS.contains(&word).then(|| format!("{word}: a statement; run a cell starting with \"{word}\" to use it"))
+    statement_words().contains(&word).then(|| format!("{word}: a statement; run a cell starting with \"{word}\" to use it"))
 }
 
 fn describe_model(session: &Session, name: &str) -> String {
@@ -289,6 +309,95 @@ mod tests {
         assert_eq!(is_complete("    graph g")["status"], "invalid");
         assert_eq!(is_complete("%%rust\nfn f() {")["status"], "incomplete");
         assert_eq!(is_complete("%%rust\nlet s = \"{\";")["status"], "complete");
+    }
+
+    /// The words offered after `typed` (the cursor at its end).
+    fn offered(session: &Session, typed: &str) -> Vec<String> {
+        let reply = complete(session, typed, typed.chars().count());
+        serde_json::from_value(reply["matches"].clone()).unwrap()
+    }
+
+    /// The connecting words of the README's "Statements" table: each form
+    /// there, cut before a connecting word, is offered that word.
+    #[test]
+    fn connecting_words_of_the_documented_forms_complete_in_headers() {
+        let session = Session::new(".");
+        let cases: &[(&str, &[&str])] = &[
+            ("table orchard ", &["from"]),
+            ("graph g ", &["from"]),
+            ("paths ", &["from"]),
+            ("paths from a ", &["to"]),
+            ("paths from a to b ", &["in"]),
+            ("paths from a to b in g ", &["given"]),
+            ("ask ", &["direct", "total"]),
+            ("ask total effect ", &["of"]),
+            ("ask total effect of x on y in g ", &["using"]),
+            ("ask total effect of x on y in g using t ", &["with"]),
+            ("implications of g ", &["checked"]),
+            ("implications of g checked ", &["against"]),
+            ("joint j ", &["="]),
+            ("joint j = g ", &["using"]),
+            ("simulate s from g ", &["rows"]),
+            ("simulate s from g rows 50 ", &["seed"]),
+            ("recover m ", &["on"]),
+            ("calibrate m ", &["reps"]),
+            ("calibrate m reps 40 ", &["seed", "with"]),
+            ("export m ", &["draws"]),
+            ("export m draws ", &["to"]),
+            ("save ", &["figure"]),
+            ("prior ", &["check"]),
+            ("check m ", &["seed", "sets"]),
+            ("intervene j: set x 1 ", &["vs"]),
+            ("intervene j: set x 1 vs 0 ", &["watch"]),
+            ("fit m ", &["with"]),
+            ("fit m with ", &["laplace", "nuts"]),
+            // README: NUTS options `chains`, `warmup`, `draws`, `seed`, `accept`, `depth`.
+            ("fit m with nuts ", &["accept", "chains", "depth", "draws", "seed", "warmup"]),
+            ("fit m with nuts chains 2 ", &["accept", "depth", "draws", "seed", "warmup"]),
+            ("fit m with laplace ", &["draws", "seed"]),
+            ("contrast m: x 1 vs 0 on ", &["means", "outcomes"]),
+            ("contrast m: x along z ", &["from"]),
+            ("contrast m: x over ", &["rows"]),
+            ("contrast m: x 1 ", &["along", "at", "by", "on", "over", "seed", "vs"]),
+        ];
+        for (typed, want) in cases {
+            assert_eq!(offered(&session, typed), *want, "after {typed:?}");
+        }
+        assert_eq!(offered(&session, "paths from a to b in g gi"), ["given"]);
+        assert_eq!(offered(&session, "fit m with nuts wa"), ["warmup"]);
+    }
+
+    /// Where a header takes a value, the session's names are offered with
+    /// any connecting word that may start an option.
+    #[test]
+    fn value_places_offer_session_names_and_option_words() {
+        let mut session = Session::new(".");
+        let cancel = std::sync::atomic::AtomicBool::new(false);
+        let progress = |_: &str| {};
+        let control = waypath::cells::RunControl { cancel: &cancel, progress: &progress };
+        let out = session.run_cell("graph orchard:\n    girth -> yield\n    rootstock -> girth", &control);
+        assert!(out.error.is_none(), "{:?}", out.error);
+        assert_eq!(offered(&session, "paths from gi"), ["girth"]);
+        assert_eq!(offered(&session, "paths from girth to yield in orchard given r"), ["rootstock"]);
+        // README: `paths from X to Y in G [given A, B]` — after G only `given`, after `given` nodes
+        assert_eq!(offered(&session, "paths from girth to yield in orchard "), ["given"]);
+        assert_eq!(offered(&session, "paths from girth to yield in orchard given "), ["girth", "orchard", "rootstock", "yield"]);
+        assert_eq!(offered(&session, "paths from girth to yield in orchard given rootstock, "), ["girth", "orchard", "rootstock", "yield"]);
+        // README: `contrast M: X b vs a …` — the settings b and a are values (levels)
+        session.put_table("trees", waypath::table::Table {
+            name: "trees".into(),
+            columns: vec![waypath::table::Column::new(
+                "rootstock",
+                waypath::table::ColumnData::Category { codes: vec![0, 1], levels: vec!["dwarf".into(), "standard".into()] },
+            )],
+        });
+        assert_eq!(offered(&session, "contrast m: rootstock sta"), ["standard"]);
+        assert_eq!(offered(&session, "contrast m: rootstock standard vs dw"), ["dwarf"]);
+        // body lines are not headers: names only
+        assert_eq!(offered(&session, "graph g:\n    gi"), ["girth"]);
+        // the reply replaces the partial word (Jupyter messaging: cursor_start..cursor_end)
+        let reply = complete(&session, "paths from a to b in g giv", 26);
+        assert_eq!((reply["cursor_start"].as_u64(), reply["cursor_end"].as_u64()), (Some(23), Some(26)));
     }
 
     #[test]

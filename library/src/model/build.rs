@@ -64,7 +64,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
 
 /// Indices of the design columns that are intercepts (exactly one of them
 /// is 1 in every row).
-fn intercept_columns(recipes: &[TermRecipe]) -> Vec<usize> {
+pub(super) fn intercept_columns(recipes: &[TermRecipe]) -> Vec<usize> {
     let mut columns = Vec::new();
     let mut offset = 0;
     for recipe in recipes {
@@ -77,7 +77,7 @@ fn intercept_columns(recipes: &[TermRecipe]) -> Vec<usize> {
     columns
 }
 
-fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &OutcomeValues) -> GlmData {
+pub(super) fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &OutcomeValues) -> GlmData {
     let rows: Vec<f64> = design.transpose().as_slice().to_vec();
     let y = outcome.y.clone();
     let glm_outcome = match (family, &outcome.trials) {

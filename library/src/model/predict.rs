@@ -11,10 +11,13 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 
 use crate::table::Table;
 
+use super::build::{glm_data, intercept_columns};
 use super::columns::real_values;
 use super::error::ModelError;
+use super::family::gaussian::GaussianStats;
 use super::family::Family;
-use super::posterior::Model;
+use super::outcome::OutcomeValues;
+use super::posterior::{Likelihood, Model};
 use super::terms::design_matrix;
 
 /// The design of new rows, with their numbers of trials for a binomial model.
@@ -114,45 +117,35 @@ fn whole_numbers(table: &Table, column: &str, values: &[f64]) -> Result<Vec<u64>
 }
 
 impl Model {
-    /// The same model — design, recipes and priors unchanged — with new
-    /// outcome values `y` for the fitted rows: outcomes simulated from the
-    /// prior for simulation-based calibration, where the priors must not
-    /// move with the simulated data. Normal, bernoulli and poisson families.
+    /// The design of the fitted rows, with their numbers of trials for a
+    /// binomial model: the rows outcomes are simulated for in
+    /// simulation-based calibration.
+    pub fn fitted_rows(&self) -> NewRows {
+        let trials = match &self.likelihood {
+            Likelihood::Glm(glm) => glm.trials().map(|m| m.iter().map(|&v| v as u64).collect()),
+            Likelihood::Gaussian { .. } => None,
+        };
+        NewRows { design: self.design.clone(), trials }
+    }
+
+    /// The same model — design, recipes, priors and binomial trials
+    /// unchanged — with new outcome values `y` for the fitted rows:
+    /// outcomes simulated from the prior for simulation-based calibration,
+    /// where the priors must not move with the simulated data.
     pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
-        use super::family::gaussian::GaussianStats;
-        use super::family::likelihood::{GlmData, GlmOutcome};
-        use super::posterior::Likelihood;
-        use super::terms::TermRecipe;
         if y.len() != self.y.len() {
             return Err(ModelError::Parameters {
                 message: format!("{} outcome values were given for the {} rows of model `{}`", y.len(), self.y.len(), self.name),
             });
         }
-        let likelihood = match (&self.likelihood, &self.family) {
-            (Likelihood::Gaussian { spread_prior, .. }, _) => {
-                let mut intercepts = Vec::new();
-                let mut offset = 0;
-                for recipe in &self.recipes {
-                    let width = recipe.labels().len();
-                    if matches!(recipe, TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. }) {
-                        intercepts.extend(offset..offset + width);
-                    }
-                    offset += width;
-                }
-                Likelihood::Gaussian { stats: GaussianStats::new(&self.design, &y, intercepts), spread_prior: spread_prior.clone() }
-            }
-            (Likelihood::Glm(_), Family::Bernoulli | Family::Poisson) => {
-                let rows: Vec<f64> = self.design.transpose().as_slice().to_vec();
-                let outcome = match self.family {
-                    Family::Poisson => GlmOutcome::Poisson { y: y.clone() },
-                    _ => GlmOutcome::Bernoulli { y: y.clone() },
-                };
-                Likelihood::Glm(GlmData::new(rows, self.design.ncols(), outcome))
-            }
-            _ => {
-                return Err(ModelError::Parameters {
-                    message: format!("model `{}`: new outcomes for a binomial model are not supported yet", self.name),
-                })
+        let likelihood = match &self.likelihood {
+            Likelihood::Gaussian { spread_prior, .. } => Likelihood::Gaussian {
+                stats: GaussianStats::new(&self.design, &y, intercept_columns(&self.recipes)),
+                spread_prior: spread_prior.clone(),
+            },
+            Likelihood::Glm(glm) => {
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec) };
+                Likelihood::Glm(glm_data(&self.design, &self.family, &outcome))
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })

@@ -4,7 +4,9 @@
 //! plotting is elsewhere).
 //!
 //! Calibration: for each replication, parameters are drawn from the model's
-//! priors, outcomes are simulated with the model's own design, the same
+//! priors, outcomes are simulated with the model's own design (and, for a
+//! binomial model, its own numbers of trials; a bernoulli model gets yes/no
+//! outcomes), the same
 //! model (same priors: they must not move with the simulated data) is
 //! refitted, and the rank of each true parameter among the posterior draws
 //! is recorded. If fitting is right, ranks are uniform; a chi-square test on
@@ -19,7 +21,7 @@ use statrs::distribution::{ChiSquared, ContinuousCDF};
 
 use crate::draws::Draws;
 use crate::infer::fit::{fit_model, Method};
-use crate::model::{Model, NewRows};
+use crate::model::Model;
 use crate::table::Table;
 
 use super::error::QueryError;
@@ -73,7 +75,7 @@ pub fn calibrate_with_progress(
     progress: &(dyn Fn(usize) + Sync),
 ) -> Result<Calibration, QueryError> {
     let names = model.parameter_names();
-    let rows = NewRows { design: model.design_matrix().clone(), trials: None };
+    let rows = model.fitted_rows();
     let mut ranks = vec![Vec::with_capacity(reps); names.len()];
     let mut failures = 0;
     let mut draws_per_fit = 0;

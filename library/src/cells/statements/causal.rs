@@ -4,42 +4,34 @@
 use serde_json::json;
 
 use super::data::is_name;
-use super::{form_error, unquote};
+use super::grammar::{ASK, GRAPH, GRAPH_FILE, IMPLICATIONS, PATHS};
+use super::{form_error, header, option_text, unquote};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::{split_commas, Statement};
 use crate::cells::session::Session;
 use crate::graph::{from_dot, Graph, GraphBuilder, Identification};
 
-const GRAPH_FORM: &str = "graph NAME:  (with edges such as `a -> b -> c` below)  or  graph NAME from \"FILE.dot\"";
-const ASK_FORM: &str = "ask total effect of X on Y in GRAPH  (or: ask direct effect of X on Y in GRAPH)";
-const PATHS_FORM: &str = "paths from X to Y in GRAPH [given A, B]";
-const IMPLICATIONS_FORM: &str = "implications of GRAPH";
-
 /// `graph NAME:` with a body of edges, or `graph NAME from "FILE.dot"`.
 pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let graph = match words.as_slice() {
-        ["graph", name] if is_name(name) && st.expects_body() => {
-            if st.body.is_empty() {
-                return Err(CellError::at(st.header.number, format!("graph {name} has no edges; list them indented below the header")));
-            }
-            let mut builder = GraphBuilder::new(*name);
-            for line in &st.body {
-                builder.add_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
-            }
-            builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
+    let graph = if let Some(([name], _)) = GRAPH.read_n(st.head()).ok().filter(|([name], _)| is_name(name) && st.expects_body()) {
+        if st.body.is_empty() {
+            return Err(CellError::at(st.header.number, format!("graph {name} has no edges; list them indented below the header")));
         }
-        ["graph", name, "from", _] if is_name(name) && !st.expects_body() => {
-            let raw = st.head().split_once(" from ").map(|(_, p)| p.trim()).unwrap_or("");
-            let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FORM))?;
-            let file = session.resolve(path);
-            let text = std::fs::read_to_string(&file).map_err(|e| {
-                CellError::at(st.header.number, format!("cannot read the DOT file {path} ({e})"))
-            })?;
-            from_dot(name, &text).map_err(|e| CellError::at(st.header.number, format!("{path}: {e}")))?
+        let mut builder = GraphBuilder::new(name);
+        for line in &st.body {
+            builder.add_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
         }
-        _ => return Err(form_error(st, GRAPH_FORM)),
+        builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
+    } else if let Some(([name, raw], _)) = GRAPH_FILE.read_n(st.head()).ok().filter(|([name, _], _)| is_name(name) && !st.expects_body()) {
+        let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FILE.usage))?;
+        let file = session.resolve(path);
+        let text = std::fs::read_to_string(&file).map_err(|e| {
+            CellError::at(st.header.number, format!("cannot read the DOT file {path} ({e})"))
+        })?;
+        from_dot(name, &text).map_err(|e| CellError::at(st.header.number, format!("{path}: {e}")))?
+    } else {
+        return Err(form_error(st, GRAPH.usage));
     };
     let display = describe_graph(&graph);
     session.graphs.insert(graph.name().to_string(), graph);
@@ -74,11 +66,7 @@ pub(crate) fn describe_graph(graph: &Graph) -> Display {
 
 /// `ask total|direct effect of X on Y in G`.
 pub(crate) fn ask(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (kind, x, y, g) = match words.as_slice() {
-        ["ask", kind @ ("total" | "direct"), "effect", "of", x, "on", y, "in", g] => (*kind, *x, *y, *g),
-        _ => return Err(form_error(st, ASK_FORM)),
-    };
+    let ([kind, x, y, g], _) = header(st, &ASK)?;
     let graph = session.require_graph(g, st.header.number)?;
     let answer = if kind == "total" { graph.total_effect(x, y) } else { graph.direct_effect(x, y) };
     let answer = answer.map_err(|e| CellError::at(st.header.number, e.to_string()))?;
@@ -127,15 +115,11 @@ pub(crate) fn describe_identification(id: &Identification) -> Display {
 
 /// `paths from X to Y in G [given A, B]`.
 pub(crate) fn paths(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let head = st.head();
-    let (main, given) = match head.split_once(" given ") {
-        Some((m, g)) => (m, split_commas(g)),
-        None => (head, Vec::new()),
-    };
-    let words: Vec<&str> = main.split_whitespace().collect();
-    let (x, y, g) = match words.as_slice() {
-        ["paths", "from", x, "to", y, "in", g] => (*x, *y, *g),
-        _ => return Err(form_error(st, PATHS_FORM)),
+    let ([x, y, g], rest) = header(st, &PATHS)?;
+    let given = match option_text(rest, "given") {
+        _ if rest.is_empty() => Vec::new(),
+        Some(list) if !list.is_empty() => split_commas(list),
+        _ => return Err(form_error(st, PATHS.usage)),
     };
     let graph = session.require_graph(g, st.header.number)?;
     let reports = graph.paths(x, y, &given).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
@@ -187,11 +171,7 @@ fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
 
 /// `implications of G`: the independences the graph claims.
 pub(crate) fn implications(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let g = match words.as_slice() {
-        ["implications", "of", g] => *g,
-        _ => return Err(form_error(st, IMPLICATIONS_FORM)),
-    };
+    let ([g], _) = header(st, &IMPLICATIONS)?;
     let graph = session.require_graph(g, st.header.number)?;
     let imp = graph.implications();
     let heading = format!(

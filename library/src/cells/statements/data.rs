@@ -1,16 +1,15 @@
 //! `table NAME from "FILE":` — read a CSV into the session.
 
+use super::grammar::TABLE;
 use super::{form_error, unquote};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
 use crate::cells::session::Session;
 use crate::table::{load_table, parse_table_line, summary_json, LoadReport, Table, TableSpec};
 
-const FORM: &str = "table NAME from \"FILE.csv\"  (end with ':' to declare columns, `drop missing`, `keep where …` below)";
-
 /// Read the table, store it, and show its schema and what loading did.
 pub(crate) fn table(session: &mut Session, st: &Statement, _warnings: &mut [String]) -> Result<Vec<Display>, CellError> {
-    let (name, path) = parse_header(st.head()).ok_or_else(|| form_error(st, FORM))?;
+    let (name, path) = parse_header(st.head()).ok_or_else(|| form_error(st, TABLE.usage))?;
     let mut spec = TableSpec::new(name, session.resolve(path));
     for line in &st.body {
         let rule = parse_table_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
@@ -26,10 +25,9 @@ pub(crate) fn table(session: &mut Session, st: &Statement, _warnings: &mut [Stri
 
 /// `table NAME from "FILE"` → (NAME, FILE).
 fn parse_header(head: &str) -> Option<(&str, &str)> {
-    let rest = head.strip_prefix("table")?.trim_start();
-    let (name, rest) = rest.split_once(char::is_whitespace)?;
-    let path = unquote(rest.trim_start().strip_prefix("from")?.trim())?;
-    if name.is_empty() || path.is_empty() || !is_name(name) {
+    let ([name, path], _) = TABLE.read_n(head).ok()?;
+    let path = unquote(path)?;
+    if path.is_empty() || !is_name(name) {
         return None;
     }
     Some((name, path))

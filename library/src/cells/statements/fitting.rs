@@ -5,7 +5,8 @@ use std::sync::atomic::Ordering;
 use serde_json::json;
 
 use super::data::is_name;
-use super::{form_error, unquote};
+use super::grammar::{EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, SHOW};
+use super::{form_error, header, option_text, unquote};
 use crate::cells::figures;
 use crate::cells::format::num;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
@@ -13,25 +14,19 @@ use crate::cells::parse::Statement;
 use crate::cells::session::{suggest, RunControl, Session};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{fit_model, Fit, Method, LAPLACE_DRAWS, LAPLACE_SEED};
-use crate::infer::nuts::{NutsSettings, Progress};
+use crate::infer::nuts::NutsSettings;
 use crate::model::{Model, ModelSpec};
 
-const MODEL_FORM: &str = "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)";
-pub(crate) const FIT_FORM: &str = "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]";
-const EXPORT_FORM: &str = "export NAME draws to \"FILE.csv\"";
-const PLOT_FORM: &str =
-    "plot NAME posterior|trace|rank [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis|prior|check";
 
 /// The interval every fit table shows.
 pub(crate) const INTERVAL_MASS: f64 = 0.9;
 
 /// `model NAME:` — build the model against its table and describe it.
 pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let name = match words.as_slice() {
-        ["model", name] if is_name(name) && st.expects_body() => *name,
-        _ => return Err(form_error(st, MODEL_FORM)),
-    };
+    let ([name], _) = header(st, &MODEL)?;
+    if !is_name(name) || !st.expects_body() {
+        return Err(form_error(st, MODEL.usage));
+    }
     let lines = st.body.iter().map(|l| (l.number, l.text.as_str()));
     let spec = ModelSpec::from_lines(name, lines).map_err(|e| model_error(st, e))?;
     let line = spec.formula_line.unwrap_or(st.header.number);
@@ -94,20 +89,13 @@ fn priors_grid(model: &Model) -> Grid {
 
 /// `fit NAME [with …]` — sample or approximate the posterior.
 pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, warnings: &mut Vec<String>) -> Result<Vec<Display>, CellError> {
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (name, options) = match words.as_slice() {
-        ["fit", name, rest @ ..] => (*name, rest),
-        _ => return Err(form_error(st, FIT_FORM)),
-    };
-    let method = parse_method(options).map_err(|m| CellError::at(st.header.number, format!("{m}; the form is: {FIT_FORM}")))?;
+    let ([name], options) = header(st, &FIT)?;
+    let method = parse_method(options).map_err(|m| CellError::at(st.header.number, format!("{m}; the form is: {}", FIT.usage)))?;
     let model = session.models.get(name).ok_or_else(|| {
         CellError::at(st.header.number, format!("there is no model named {name}{}", suggest(name, session.models.keys())))
     })?;
-    let progress = |p: Progress| {
-        if p.iteration % 100 == 0 || p.iteration == p.total {
-            (control.progress)(&format!("fit {name}: chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
-        }
-    };
+    let label = format!("fit {name}");
+    let progress = super::questions::sampler_progress(control, &label);
     let fit = fit_model(model, &method, control.cancel, &progress).map_err(|e| {
         let stopped = control.cancel.load(Ordering::Relaxed);
         let message = if stopped { format!("fit {name} was interrupted; the session is unchanged") } else { format!("fit {name}: {e}") };
@@ -119,9 +107,11 @@ pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, w
     Ok(vec![display])
 }
 
-/// Read `with laplace …` / `with nuts …` options.
-pub(crate) fn parse_method(words: &[&str]) -> Result<Method, String> {
-    let (kind, rest) = match words {
+/// Read `with laplace …` / `with nuts …` options (the words of
+/// [`METHODS`], [`LAPLACE_OPTIONS`] and [`NUTS_OPTIONS`]).
+pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
+    let words: Vec<&str> = text.split_whitespace().collect();
+    let (kind, rest) = match words.as_slice() {
         [] => ("nuts", &[][..]),
         ["with", kind, rest @ ..] => (*kind, rest),
         _ => return Err(format!("cannot read the options \"{}\"", words.join(" "))),
@@ -131,14 +121,20 @@ pub(crate) fn parse_method(words: &[&str]) -> Result<Method, String> {
     }
     let pairs: Vec<(&str, &str)> = rest.chunks(2).map(|c| (c[0], c[1])).collect();
     let count = |k: &str, v: &str| v.parse::<usize>().map_err(|_| format!("{k} takes a whole number, not \"{v}\""));
+    let unknown = |keys: &[&str], other: &str| match kind {
+        "laplace" => format!("laplace takes `{}`, not `{other}`", keys.join("` and `")),
+        _ => format!("nuts takes {} — not `{other}`", keys.join(", ")),
+    };
     match kind {
+        _ if !METHODS.contains(&kind) => Err(format!("unknown method `{kind}`; use `with nuts` or `with laplace`")),
         "laplace" => {
             let (mut draws, mut seed) = (LAPLACE_DRAWS, LAPLACE_SEED);
             for (k, v) in pairs {
                 match k {
+                    _ if !LAPLACE_OPTIONS.contains(&k) => return Err(unknown(LAPLACE_OPTIONS, k)),
                     "draws" => draws = count(k, v)?,
                     "seed" => seed = count(k, v)? as u64,
-                    other => return Err(format!("laplace takes `draws` and `seed`, not `{other}`")),
+                    other => return Err(unknown(LAPLACE_OPTIONS, other)),
                 }
             }
             Ok(Method::Laplace { draws, seed })
@@ -147,6 +143,7 @@ pub(crate) fn parse_method(words: &[&str]) -> Result<Method, String> {
             let mut s = NutsSettings::default();
             for (k, v) in pairs {
                 match k {
+                    _ if !NUTS_OPTIONS.contains(&k) => return Err(unknown(NUTS_OPTIONS, k)),
                     "chains" => s.chains = count(k, v)?,
                     "warmup" => s.warmup = count(k, v)?,
                     "draws" => s.draws = count(k, v)?,
@@ -159,7 +156,7 @@ pub(crate) fn parse_method(words: &[&str]) -> Result<Method, String> {
                             .filter(|a| *a > 0.0 && *a < 1.0)
                             .ok_or_else(|| format!("accept takes a number between 0 and 1, not \"{v}\""))?
                     }
-                    other => return Err(format!("nuts takes chains, warmup, draws, seed, accept, depth — not `{other}`")),
+                    other => return Err(unknown(NUTS_OPTIONS, other)),
                 }
             }
             Ok(Method::Nuts(s))
@@ -235,11 +232,7 @@ pub(crate) fn parameter_cells(s: &crate::draws::Summary, d: Option<crate::infer:
 
 /// `show NAME` — the latest result for a model, or a description of a table or graph.
 pub(crate) fn show(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let name = match words.as_slice() {
-        ["show", name] => *name,
-        _ => return Err(form_error(st, "show NAME")),
-    };
+    let ([name], _) = header(st, &SHOW)?;
     if let Some(model) = session.models.get(name) {
         return match session.fits.get(name) {
             Some(fit) => Ok(vec![describe_fit(model, fit)?]),
@@ -263,13 +256,8 @@ pub(crate) fn show(session: &mut Session, st: &Statement) -> Result<Vec<Display>
 
 /// `export NAME draws to "FILE.csv"`.
 pub(crate) fn export(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let head = st.head();
-    let words: Vec<&str> = head.split_whitespace().collect();
-    let name = match words.as_slice() {
-        ["export", name, "draws", "to", ..] => *name,
-        _ => return Err(form_error(st, EXPORT_FORM)),
-    };
-    let path = head.split_once(" to ").and_then(|(_, p)| unquote(p.trim())).ok_or_else(|| form_error(st, EXPORT_FORM))?;
+    let ([name, path], _) = header(st, &EXPORT)?;
+    let path = unquote(path).ok_or_else(|| form_error(st, EXPORT.usage))?;
     let fit = require_fit(session, name, st.header.number)?;
     let file = session.resolve(path);
     let out = std::fs::File::create(&file)
@@ -296,16 +284,19 @@ pub(crate) fn require_fit<'s>(session: &'s Session, name: &str, line: usize) -> 
 
 /// `plot NAME posterior|trace [of A, B]`.
 pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let head = st.head();
-    let (main, chosen) = match head.split_once(" of ") {
-        Some((m, list)) => (m, crate::cells::parse::split_commas(list)),
-        None => (head, Vec::new()),
+    let ([name, kind], rest) = match PLOT.read_n(st.head()) {
+        Ok(read) => read,
+        Err(at) if at.slot == 2 && st.head().split_whitespace().nth(2).is_some() => {
+            let other = st.head().split_whitespace().nth(2).unwrap_or("");
+            return Err(CellError::at(st.header.number, format!("unknown figure `{other}`; the form is: {}", PLOT.usage)));
+        }
+        Err(_) => return Err(form_error(st, PLOT.usage)),
     };
-    let words: Vec<&str> = main.split_whitespace().collect();
-    let (name, kind, over) = match words.as_slice() {
-        ["plot", name, kind] => (*name, *kind, None),
-        ["plot", name, "lines", "over", x] => (*name, "lines", Some(*x)),
-        _ => return Err(form_error(st, PLOT_FORM)),
+    let (chosen, over) = match (kind, option_text(rest, "over"), option_text(rest, "of")) {
+        _ if rest.is_empty() => (Vec::new(), None),
+        ("lines", Some(x), _) if !x.is_empty() && !x.contains(char::is_whitespace) => (Vec::new(), Some(x)),
+        (_, _, Some(list)) if !list.is_empty() => (crate::cells::parse::split_commas(list), None),
+        _ => return Err(form_error(st, PLOT.usage)),
     };
     if matches!(kind, "prior" | "check") {
         // The same figures as `prior check NAME` and `check NAME`.
@@ -334,13 +325,11 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
             ));
         }
     }
-    let svg = match kind {
-        "posterior" => figures::posterior_of(model, fit, &chosen),
-        // Trace figures carry each chain's rank histogram beside its trace.
-        "trace" | "rank" => figures::trace(model, fit, &chosen),
-        other => {
-            return Err(CellError::at(st.header.number, format!("unknown figure `{other}`; the form is: {PLOT_FORM}")))
-        }
+    let svg = if kind == "posterior" {
+        figures::posterior_of(model, fit, &chosen)
+    } else {
+        // `trace` and `rank`: trace figures carry each chain's rank histogram beside its trace.
+        figures::trace(model, fit, &chosen)
     }
     .map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     let text = format!("{kind} figure of {name}");

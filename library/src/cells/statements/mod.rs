@@ -3,18 +3,14 @@
 mod causal;
 mod data;
 mod fitting;
+pub mod grammar;
 mod questions;
 mod simulation;
 
 use super::output::{CellError, Display};
 use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
-
-/// The first words that start a statement, for error messages and completion.
-pub const KEYWORDS: &[&str] = &[
-    "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save", "contrast",
-    "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
-];
+use grammar::{statement_words, Form};
 
 /// Run one statement against the session.
 pub(crate) fn run(
@@ -61,9 +57,10 @@ fn has_word(head: &str, word: &str) -> bool {
 }
 
 fn unknown_statement(word: &str, line: usize) -> CellError {
-    let near: Vec<&str> = KEYWORDS.iter().copied().filter(|k| edit_distance(k, word) <= 2).collect();
+    let keywords = statement_words();
+    let near: Vec<&str> = keywords.iter().copied().filter(|k| edit_distance(k, word) <= 2).collect();
     let hint = if near.is_empty() {
-        format!("statements start with one of: {}", KEYWORDS.join(", "))
+        format!("statements start with one of: {}", keywords.join(", "))
     } else {
         format!("did you mean {}?", near.join(" or "))
     };
@@ -75,6 +72,18 @@ pub(crate) fn form_error(st: &Statement, form: &str) -> CellError {
     CellError::at(st.header.number, format!("cannot read \"{}\"; the form is: {form}", st.head()))
 }
 
+/// The kept words and the options of a header read by `form`; a header
+/// that does not fit gets the form's usage in its error.
+pub(crate) fn header<'s, const N: usize>(st: &'s Statement, form: &Form) -> Result<([&'s str; N], &'s str), CellError> {
+    form.read_n(st.head()).map_err(|_| form_error(st, form.usage))
+}
+
+/// The text after option word `word` when `rest` starts with it.
+pub(crate) fn option_text<'s>(rest: &'s str, word: &str) -> Option<&'s str> {
+    let (first, text) = rest.split_once(char::is_whitespace).unwrap_or((rest, ""));
+    (first == word).then(|| text.trim())
+}
+
 /// Strip surrounding double quotes from a path argument.
 pub(crate) fn unquote(s: &str) -> Option<&str> {
     s.strip_prefix('"').and_then(|s| s.strip_suffix('"'))
@@ -82,26 +91,12 @@ pub(crate) fn unquote(s: &str) -> Option<&str> {
 
 /// `save figure to "FILE.svg"`: write the most recent figure of the session.
 fn save_figure(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    const FORM: &str = "save figure to \"FILE.svg\"";
-    let path = st
-        .head()
-        .strip_prefix("save figure to")
-        .and_then(|p| unquote(p.trim()))
-        .ok_or_else(|| form_error(st, FORM))?;
+    let ([path], _) = header(st, &grammar::SAVE)?;
+    let path = unquote(path).ok_or_else(|| form_error(st, grammar::SAVE.usage))?;
     let svg = session.last_figure.clone().ok_or_else(|| {
         CellError::at(st.header.number, "no figure has been drawn in this session yet; run a statement that draws one first")
     })?;
     let file = session.resolve(path);
     std::fs::write(&file, &svg).map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
     Ok(vec![Display::text(format!("saved the latest figure ({} KB) to {path}", svg.len().div_ceil(1024)))])
-}
-
-/// `KEYWORD NAME: REST` → (NAME, REST), for statements that name an object
-/// before a colon (`contrast m: …`, `intervene j: …`).
-pub(crate) fn named_header<'s>(st: &'s Statement, keyword: &str, form: &str) -> Result<(&'s str, &'s str), CellError> {
-    let (left, right) = st.head().split_once(':').ok_or_else(|| form_error(st, form))?;
-    match left.split_whitespace().collect::<Vec<_>>().as_slice() {
-        [k, name] if *k == keyword => Ok((name, right)),
-        _ => Err(form_error(st, form)),
-    }
 }

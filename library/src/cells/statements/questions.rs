@@ -13,8 +13,9 @@ use std::sync::atomic::Ordering;
 
 use serde_json::{json, Value};
 
-use super::fitting::{parse_method, require_fit, FIT_FORM, INTERVAL_MASS};
-use super::{form_error, named_header};
+use super::fitting::{parse_method, require_fit, INTERVAL_MASS};
+use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
+use super::header;
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::format::num;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
@@ -30,12 +31,6 @@ use crate::query::{
     ContrastRequest, ContrastSummary, GridRequest, InterventionRequest, On, QueryError,
 };
 use crate::table::Table;
-
-const CONTRAST_FORM: &str =
-    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows]";
-const ASK_USING_FORM: &str = "ask total|direct effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]";
-const ROUTES_FORM: &str = "compare routes for total effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]";
-const CHECKED_FORM: &str = "implications of GRAPH checked against TABLE [with laplace …|with nuts …]";
 
 /// The closing sentence of every causal answer.
 pub(super) const CAUSAL_NOTE: &str = "Causal readings of these numbers rest on the graph's assumptions.";
@@ -78,12 +73,36 @@ pub(super) fn sampler_progress<'a>(control: &'a RunControl, label: &'a str) -> i
     }
 }
 
-/// The method of `with …` words, or `default` when there are none.
-pub(super) fn method_or(words: &[&str], default: Method, line: usize) -> Result<Method, CellError> {
-    if words.is_empty() {
+/// A progress sink for fitting a joint model: every 100th sampler
+/// iteration as `label: node N, chain c — iteration i/n` (`what` names the
+/// model, e.g. "joint model, " or "").
+pub(super) fn joint_progress<'a>(control: &'a RunControl, label: &'a str, what: &'a str) -> impl Fn(&str, Progress) + Sync + 'a {
+    move |node: &str, p: Progress| {
+        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
+            (control.progress)(&format!("{label}: {what}node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
+        }
+    }
+}
+
+/// The method of the `with …` options, or `default` when there are none.
+pub(super) fn method_or(options: &str, default: Method, line: usize) -> Result<Method, CellError> {
+    if options.is_empty() {
         return Ok(default);
     }
-    parse_method(words).map_err(|m| CellError::at(line, format!("{m}; the options are those of: {FIT_FORM}")))
+    parse_method(options).map_err(|m| CellError::at(line, format!("{m}; the options are those of: {}", FIT.usage)))
+}
+
+/// The method of the options (NUTS when there are none), the graph and
+/// the table a statement that fits from a graph and a table names.
+fn method_graph_table<'s>(
+    session: &'s Session,
+    options: &str,
+    g: &str,
+    t: &str,
+    line: usize,
+) -> Result<(Method, &'s crate::graph::Graph, &'s Table), CellError> {
+    let method = method_or(options, Method::Nuts(Default::default()), line)?;
+    Ok((method, session.require_graph(g, line)?, session.require_table(t, line)?))
 }
 
 /// Plain text and HTML of a heading, tables and notes (notes as bullets).
@@ -129,8 +148,16 @@ fn to_json<T: serde::Serialize>(value: &T) -> Value {
 /// `contrast M: C b vs a [on outcomes] [seed S] [at Z v, …] [along X from LO to HI [by STEP]] [over rows]`.
 pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let (name, right) = named_header(st, "contrast", CONTRAST_FORM)?;
-    let request = parse_contrast(right).map_err(|m| CellError::at(line, format!("{m}; the form is: {CONTRAST_FORM}")))?;
+    let (name, mut request, rest) = match (CONTRAST_BETWEEN.read_n(st.head()), CONTRAST.read_n(st.head())) {
+        (Ok(([name, x, b, a], rest)), _) => (name, ContrastRequest::new(x).between(b, a), rest),
+        (_, Ok(([name, x], rest))) => (name, ContrastRequest::new(x), rest),
+        (_, Err(at)) if at.slot == 3 => {
+            return Err(CellError::at(line, format!("name the predictor to contrast; the form is: {}", CONTRAST.usage)))
+        }
+        _ => return Err(super::form_error(st, CONTRAST.usage)),
+    };
+    read_contrast_options(&mut request, rest)
+        .map_err(|m| CellError::at(line, format!("{m}; the form is: {}", CONTRAST.usage)))?;
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];
     let table = session.require_table(model.table_name(), line)?;
@@ -138,19 +165,15 @@ pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Disp
     Ok(vec![describe_contrast(&c, table, model.outcome_name(), &[])])
 }
 
-/// Read the part of a contrast header after the colon.
-fn parse_contrast(text: &str) -> Result<ContrastRequest, String> {
+/// Read the part of a contrast header after the predictor: its options
+/// start with the option words of [`CONTRAST`].
+fn read_contrast_options(request: &mut ContrastRequest, text: &str) -> Result<(), String> {
     let words: Vec<&str> = text.split_whitespace().map(|w| w.trim_end_matches(',')).filter(|w| !w.is_empty()).collect();
-    let (variable, mut rest) = words.split_first().ok_or("name the predictor to contrast")?;
-    let mut request = ContrastRequest::new(*variable);
-    if let [b, "vs", a, tail @ ..] = rest {
-        request = request.between(*b, *a);
-        rest = tail;
-    }
+    let mut rest = words.as_slice();
     let mut seed = None;
     let mut outcomes = false;
     let number = |w: &str, what: &str| w.parse::<f64>().map_err(|_| format!("{what} takes a number, not `{w}`"));
-    let keywords = ["on", "seed", "at", "along", "over"];
+    let keywords = CONTRAST.option_words();
     while let Some((word, tail)) = rest.split_first() {
         rest = match (*word, tail) {
             ("on", ["outcomes", t @ ..]) => {
@@ -195,7 +218,7 @@ fn parse_contrast(text: &str) -> Result<ContrastRequest, String> {
     if outcomes {
         request.on = On::Outcomes { seed: seed.unwrap_or(DEFAULT_SEED) };
     }
-    Ok(request)
+    Ok(())
 }
 
 /// The display of one contrast; `extra` notes go before the closing causal note.
@@ -247,16 +270,8 @@ pub(crate) fn ask_using(
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (kind, x, y, g, t, options) = match words.as_slice() {
-        ["ask", kind @ ("total" | "direct"), "effect", "of", x, "on", y, "in", g, "using", t, rest @ ..] => {
-            (*kind, *x, *y, *g, *t, rest)
-        }
-        _ => return Err(form_error(st, ASK_USING_FORM)),
-    };
-    let method = method_or(options, Method::Nuts(Default::default()), line)?;
-    let graph = session.require_graph(g, line)?;
-    let table = session.require_table(t, line)?;
+    let ([kind, x, y, g, t], options) = header(st, &ASK_USING)?;
+    let (method, graph, table) = method_graph_table(session, options, g, t, line)?;
     let effect = if kind == "total" { EffectKind::Total } else { EffectKind::Direct };
     let label = format!("ask {kind} effect of {x} on {y}");
     (control.progress)(&format!("{label}: fitting with {}", method.describe()));
@@ -328,16 +343,8 @@ pub(crate) fn compare_routes(
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (x, y, g, t, options) = match words.as_slice() {
-        ["compare", "routes", "for", "total", "effect", "of", x, "on", y, "in", g, "using", t, rest @ ..] => {
-            (*x, *y, *g, *t, rest)
-        }
-        _ => return Err(form_error(st, ROUTES_FORM)),
-    };
-    let method = method_or(options, Method::Nuts(Default::default()), line)?;
-    let graph = session.require_graph(g, line)?;
-    let table = session.require_table(t, line)?;
+    let ([x, y, g, t], options) = header(st, &COMPARE_ROUTES)?;
+    let (method, graph, table) = method_graph_table(session, options, g, t, line)?;
     let label = format!("compare routes for {x} on {y}");
     let progress = sampler_progress(control, &label);
     (control.progress)(&format!("{label}: fitting the adjustment model"));
@@ -351,13 +358,9 @@ pub(crate) fn compare_routes(
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
-    let joint_progress = |node: &str, p: Progress| {
-        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
-            (control.progress)(&format!("{label}: joint model, node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
-        }
-    };
+    let node_progress = joint_progress(control, &label, "joint model, ");
     (control.progress)(&format!("{label}: fitting one regression per node of {g}"));
-    let joint_fit = fit_joint_with_progress(&joint, &method, control.cancel, &joint_progress)
+    let joint_fit = fit_joint_with_progress(&joint, &method, control.cancel, &node_progress)
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let request = InterventionRequest {
@@ -423,11 +426,7 @@ pub(crate) fn compare_routes(
 /// `implications of G checked against T [with …]`.
 pub(crate) fn implications_checked(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (g, t, options) = match words.as_slice() {
-        ["implications", "of", g, "checked", "against", t, rest @ ..] => (*g, *t, rest),
-        _ => return Err(form_error(st, CHECKED_FORM)),
-    };
+    let ([g, t], options) = header(st, &IMPLICATIONS_CHECKED)?;
     let default = Method::Laplace { draws: crate::infer::fit::LAPLACE_DRAWS, seed: crate::infer::fit::LAPLACE_SEED };
     let method = method_or(options, default, line)?;
     let graph = session.require_graph(g, line)?;

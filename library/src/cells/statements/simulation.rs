@@ -12,11 +12,12 @@ use serde_json::{json, Value};
 
 use super::data::{describe_loaded, is_name};
 use super::fitting::{parameter_cells, INTERVAL_MASS};
-use super::{form_error, named_header};
+use super::grammar::{CALIBRATE, CHECK, FIT, INTERVENE, JOINT, PRIOR_CHECK, RECOVER, SIMULATE};
 use super::questions::{
-    bounds, check_cancel, method_or, query_error, render, sampler_progress, stopped_or, summary_cells, CAUSAL_NOTE,
-    DEFAULT_SEED,
+    bounds, check_cancel, joint_progress, method_or, query_error, render, sampler_progress, stopped_or, summary_cells,
+    CAUSAL_NOTE, DEFAULT_SEED,
 };
+use super::{form_error, header, option_text};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::format::num;
 use crate::cells::output::{CellError, Display, Grid};
@@ -24,7 +25,6 @@ use crate::cells::parse::Statement;
 use crate::cells::session::{suggest, RunControl, Session, SimulationRecord};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{Method, LAPLACE_DRAWS, LAPLACE_SEED};
-use crate::infer::nuts::Progress;
 use crate::model::prior::short_number;
 use crate::model::{Input, Model};
 use crate::plot::{DensityArrangement, ParameterDraws, Quantity};
@@ -34,13 +34,6 @@ use crate::query::{
     SimulationSettings,
 };
 use crate::table::ColumnData;
-
-const JOINT_FORM: &str = "joint NAME = GRAPH using TABLE  (end with ':' to override a node below, e.g. `girth from rootstock`)";
-const INTERVENE_FORM: &str = "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]";
-const SIMULATE_FORM: &str = "simulate NAME from GRAPH rows N seed S:  (then one mechanism per node, e.g. `girth = normal(28, 4)`)";
-const RECOVER_FORM: &str = "recover MODEL on SIMULATION [with laplace …|with nuts …]";
-const CALIBRATE_FORM: &str = "calibrate MODEL reps R [seed S] [with laplace …|with nuts …]";
-const CHECK_FORM: &str = "prior check MODEL [sets N] [seed S]  or  check MODEL [sets N] [seed S]";
 
 /// Units simulated under each setting for a true intervention effect.
 const TRUTH_ROWS: usize = 20_000;
@@ -65,11 +58,10 @@ pub(crate) fn names_joint(session: &Session, head: &str) -> bool {
 /// `joint NAME = GRAPH using TABLE[:]` with optional per-node model lines.
 pub(crate) fn joint(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (name, g, t) = match words.as_slice() {
-        ["joint", name, "=", g, "using", t] if is_name(name) => (*name, *g, *t),
-        _ => return Err(form_error(st, JOINT_FORM)),
-    };
+    let ([name, g, t], _) = header(st, &JOINT)?;
+    if !is_name(name) {
+        return Err(form_error(st, JOINT.usage));
+    }
     if session.models.contains_key(name) {
         return Err(CellError::at(line, format!("a model is already named {name}; give the joint model another name")));
     }
@@ -126,19 +118,11 @@ pub(crate) fn fit_joint(
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (name, options) = match words.as_slice() {
-        ["fit", name, rest @ ..] => (*name, rest),
-        _ => return Err(form_error(st, super::fitting::FIT_FORM)),
-    };
+    let ([name], options) = header(st, &FIT)?;
     let method = method_or(options, Method::Nuts(Default::default()), line)?;
     let joint = &session.joints[name];
     let label = format!("fit {name}");
-    let progress = |node: &str, p: Progress| {
-        if p.iteration.is_multiple_of(100) || p.iteration == p.total {
-            (control.progress)(&format!("{label}: node {node}, chain {} — iteration {}/{}", p.chain + 1, p.iteration, p.total));
-        }
-    };
+    let progress = joint_progress(control, &label, "");
     let started = std::time::Instant::now();
     let fit = fit_joint_with_progress(joint, &method, control.cancel, &progress).map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
@@ -215,8 +199,8 @@ fn method_name(method: &Method) -> &'static str {
 /// `intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]`.
 pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let (name, right) = named_header(st, "intervene", INTERVENE_FORM)?;
-    let request = parse_intervention(right).map_err(|m| CellError::at(line, format!("{m}; the form is: {INTERVENE_FORM}")))?;
+    let (name, request) =
+        read_intervention(st.head()).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", INTERVENE.usage)))?;
     let joint = session.joints.get(name).ok_or_else(|| {
         CellError::at(line, format!("there is no joint model named {name}{}", suggest(name, session.joints.keys())))
     })?;
@@ -249,15 +233,22 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Dis
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
 }
 
-/// Read `set X v1 vs v0, watch Y, Z [rows N] [seed S]`.
-fn parse_intervention(text: &str) -> Result<InterventionRequest, String> {
-    let text = text.trim();
-    let rest = text.strip_prefix("set ").ok_or("start with `set X v1 vs v0`")?;
-    let (set, watch) = rest.split_once(" watch ").ok_or("name the nodes to watch after `, watch`")?;
-    let set: Vec<&str> = set.trim().trim_end_matches(',').split_whitespace().collect();
-    let [variable, to, "vs", from] = set.as_slice() else {
-        return Err(format!("cannot read `set {}`; write `set X v1 vs v0`", set.join(" ")));
-    };
+/// Read `intervene NAME: set X v1 vs v0, watch Y, Z [rows N] [seed S]`.
+fn read_intervention(head: &str) -> Result<(&str, InterventionRequest), String> {
+    let no_watch = "name the nodes to watch after `, watch`";
+    let ([name, variable, to, from], watch) = INTERVENE.read_n(head).map_err(|at| match at.slot {
+        0..=2 => format!("cannot read \"{head}\""),
+        3 => "start with `set X v1 vs v0`".to_string(),
+        _ if !head.contains(" watch ") => no_watch.to_string(),
+        _ => {
+            let set = head.split_once(':').map_or("", |(_, r)| r).trim();
+            let set = set.strip_prefix("set").unwrap_or(set).split(" watch ").next().unwrap_or("");
+            format!("cannot read `set {}`; write `set X v1 vs v0`", set.trim_end().trim_end_matches(',').split_whitespace().collect::<Vec<_>>().join(" "))
+        }
+    })?;
+    if watch.is_empty() {
+        return Err(no_watch.to_string());
+    }
     let mut request = InterventionRequest {
         variable: variable.to_string(),
         to: to.to_string(),
@@ -268,15 +259,17 @@ fn parse_intervention(text: &str) -> Result<InterventionRequest, String> {
         mass: INTERVAL_MASS,
     };
     let words: Vec<&str> = watch.split(|c: char| c == ',' || c.is_whitespace()).filter(|w| !w.is_empty()).collect();
+    let options = INTERVENE.option_words();
     let mut i = 0;
     while i < words.len() {
         match (words[i], words.get(i + 1)) {
-            ("rows", Some(n)) => {
-                request.rows = Some(n.parse().map_err(|_| format!("rows takes a whole number, not `{n}`"))?);
-                i += 2;
-            }
-            ("seed", Some(s)) => {
-                request.seed = s.parse().map_err(|_| format!("seed takes a whole number, not `{s}`"))?;
+            (key, Some(value)) if options.contains(&key) => {
+                let n: u64 = value.parse().map_err(|_| format!("{key} takes a whole number, not `{value}`"))?;
+                if key == "rows" {
+                    request.rows = Some(n as usize);
+                } else {
+                    request.seed = n;
+                }
                 i += 2;
             }
             (node, _) => {
@@ -285,17 +278,16 @@ fn parse_intervention(text: &str) -> Result<InterventionRequest, String> {
             }
         }
     }
-    Ok(request)
+    Ok((name, request))
 }
 
 /// `simulate NAME from GRAPH rows N seed S:` with one mechanism per node.
 pub(crate) fn simulate(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (name, g, rows, seed) = match words.as_slice() {
-        ["simulate", name, "from", g, "rows", n, "seed", s] if is_name(name) && st.expects_body() => (*name, *g, *n, *s),
-        _ => return Err(form_error(st, SIMULATE_FORM)),
-    };
+    let ([name, g, rows, seed], _) = header(st, &SIMULATE)?;
+    if !is_name(name) || !st.expects_body() {
+        return Err(form_error(st, SIMULATE.usage));
+    }
     let rows: usize = rows.parse().ok().filter(|n| *n > 0).ok_or_else(|| CellError::at(line, format!("rows takes a whole number above 0, not `{rows}`")))?;
     let seed: u64 = seed.parse().map_err(|_| CellError::at(line, format!("seed takes a whole number, not `{seed}`")))?;
     let graph = session.require_graph(g, line)?;
@@ -336,7 +328,7 @@ pub(crate) fn simulate(session: &mut Session, st: &Statement) -> Result<Vec<Disp
 }
 
 /// The method of explicit options, else of the model's latest fit, else Laplace.
-fn check_method(session: &Session, model: &str, options: &[&str], line: usize) -> Result<Method, CellError> {
+fn check_method(session: &Session, model: &str, options: &str, line: usize) -> Result<Method, CellError> {
     let fallback = session.fits.get(model).map_or_else(laplace_default, |f| f.method.clone());
     method_or(options, fallback, line)
 }
@@ -349,16 +341,12 @@ pub(crate) fn recover(
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (m, t, options) = match words.as_slice() {
-        ["recover", m, "on", t, rest @ ..] => (*m, *t, rest),
-        _ => return Err(form_error(st, RECOVER_FORM)),
-    };
+    let ([m, t], options) = header(st, &RECOVER)?;
     let mut spec = session.specs.get(m).cloned().ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
     })?;
     let record = session.simulations.get(t).ok_or_else(|| {
-        CellError::at(line, format!("there is no simulation named {t}{}; make one with `{SIMULATE_FORM}`", suggest(t, session.simulations.keys())))
+        CellError::at(line, format!("there is no simulation named {t}{}; make one with `{}`", suggest(t, session.simulations.keys()), SIMULATE.usage))
     })?;
     let method = check_method(session, m, options, line)?;
     spec.table = t.to_string();
@@ -501,16 +489,13 @@ fn true_effects(model: &Model, draws: &crate::draws::Draws, table: &crate::table
 /// `calibrate MODEL reps R [seed S] [with …]`.
 pub(crate) fn calibrate(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (m, reps, mut rest) = match words.as_slice() {
-        ["calibrate", m, "reps", r, rest @ ..] => (*m, *r, rest),
-        _ => return Err(form_error(st, CALIBRATE_FORM)),
-    };
+    let ([m, reps], mut rest) = header(st, &CALIBRATE)?;
     let reps: usize = reps.parse().ok().filter(|r| *r >= 2).ok_or_else(|| CellError::at(line, format!("reps takes a whole number of at least 2, not `{reps}`")))?;
     let mut seed = DEFAULT_SEED;
-    if let ["seed", s, tail @ ..] = rest {
+    if let Some(text) = option_text(rest, "seed") {
+        let (s, tail) = text.split_once(char::is_whitespace).unwrap_or((text, ""));
         seed = s.parse().map_err(|_| CellError::at(line, format!("seed takes a whole number, not `{s}`")))?;
-        rest = tail;
+        rest = tail.trim();
     }
     let model = session.models.get(m).ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
@@ -554,24 +539,26 @@ pub(crate) fn calibrate(session: &mut Session, st: &Statement, control: &RunCont
 /// `prior check MODEL [sets N] [seed S]` and `check MODEL [sets N] [seed S]`.
 pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let words: Vec<&str> = st.head().split_whitespace().collect();
-    let (prior, m, mut rest) = match words.as_slice() {
-        ["prior", "check", m, rest @ ..] => (true, *m, rest),
-        ["check", m, rest @ ..] => (false, *m, rest),
-        _ => return Err(form_error(st, CHECK_FORM)),
+    let (prior, m, options) = match (PRIOR_CHECK.read_n(st.head()), CHECK.read_n(st.head())) {
+        (Ok(([m], rest)), _) => (true, m, rest),
+        (_, Ok(([m], rest))) => (false, m, rest),
+        _ => return Err(form_error(st, CHECK.usage)),
     };
+    let words: Vec<&str> = options.split_whitespace().collect();
+    let mut rest = words.as_slice();
     let (mut sets, mut seed) = (DEFAULT_SETS, DEFAULT_SEED);
     while let [key, value, tail @ ..] = rest {
         let parsed: u64 = value.parse().map_err(|_| CellError::at(line, format!("{key} takes a whole number, not `{value}`")))?;
         match *key {
+            _ if !CHECK.option_words().contains(key) => return Err(form_error(st, CHECK.usage)),
             "sets" if parsed > 0 => sets = parsed as usize,
             "seed" => seed = parsed,
-            _ => return Err(form_error(st, CHECK_FORM)),
+            _ => return Err(form_error(st, CHECK.usage)),
         }
         rest = tail;
     }
     if !rest.is_empty() {
-        return Err(form_error(st, CHECK_FORM));
+        return Err(form_error(st, CHECK.usage));
     }
     let model = session.models.get(m).ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))

@@ -57,6 +57,14 @@ impl GlmData {
         GlmData { blocks, rows: n, width, outcome, constant }
     }
 
+    /// The number of trials of each row (binomial outcomes only).
+    pub fn trials(&self) -> Option<&[f64]> {
+        match &self.outcome {
+            GlmOutcome::Binomial { trials, .. } => Some(trials),
+            _ => None,
+        }
+    }
+
     /// The full log-likelihood at coefficients `beta`, adding its gradient
     /// into `grad`. Returns `-inf` where the likelihood underflows to zero.
     ///

@@ -9,9 +9,16 @@
 //!   `log_likelihood` and `design`.
 //! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
 //! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`.
+//! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
+//!   one chain, 300 warm-up); answers the calibration structure (ranks,
+//!   chi-square and p-value per parameter).
 
 use serde_json::{json, Value};
+use std::sync::atomic::AtomicBool;
+
+use waypath::infer::fit::Method;
 use waypath::infer::laplace::laplace;
+use waypath::infer::nuts::NutsSettings;
 use waypath::model::spline::BSplineBasis;
 use waypath::model::{Model, ModelSpec, Prior};
 use waypath::table::{Column, ColumnData, Table};
@@ -23,6 +30,7 @@ fn main() {
         Some("log_likelihood") => log_likelihood(&request),
         Some("basis") => basis(&request),
         Some("prior") => prior(&request),
+        Some("calibrate") => calibrate(&request),
         other => Err(format!("unknown action {other:?}")),
     };
     waypath_probe::write_answer(&answer.unwrap_or_else(|e| json!({ "error": e })));
@@ -106,4 +114,13 @@ fn prior(request: &Value) -> Result<Value, String> {
     let prior = Prior::parse(request["prior"].as_str().ok_or("prior must be text")?).map_err(|e| e.to_string())?;
     let values: Vec<f64> = numbers(&request["x"])?.into_iter().map(|x| prior.log_density_and_derivative(x).0).collect();
     Ok(json!({ "log_density": values }))
+}
+
+fn calibrate(request: &Value) -> Result<Value, String> {
+    let model = model(request)?;
+    let whole = |key: &str| request[key].as_u64().ok_or_else(|| format!("{key} must be a whole number"));
+    let settings = NutsSettings { chains: 1, warmup: 300, draws: whole("draws")? as usize, threads: 1, seed: 0, ..NutsSettings::default() };
+    let c = waypath::query::calibrate(&model, whole("reps")? as usize, &Method::Nuts(settings), whole("seed")?, &AtomicBool::new(false))
+        .map_err(|e| e.to_string())?;
+    serde_json::to_value(&c).map_err(|e| e.to_string())
 }

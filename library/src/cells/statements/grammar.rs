@@ -1,0 +1,476 @@
+//! The words of every statement header, as data.
+//!
+//! A [`Form`] lists the places of one header in order: fixed words (`from`,
+//! `using`, `checked against`), choices among fixed words (`total|direct`)
+//! and values the user writes (names, numbers, a quoted file). After the
+//! fixed places a header may carry options, each a short form of its own
+//! (`seed S`, `given A, B`), and the sampler options `with laplace …|with
+//! nuts …`.
+//!
+//! The statements read their headers through [`Form::read`], and the
+//! kernel's completion asks [`next_words`] what may follow the words typed
+//! so far: both read the same tables, so a word added to a statement is
+//! offered at the cursor without a second list to keep in step.
+
+/// One place in a header.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Slot {
+    /// A fixed word.
+    Word(&'static str),
+    /// One of a few fixed words; the word written is kept.
+    Choice(&'static [&'static str]),
+    /// A word the user chooses (a name, a level, a number); kept.
+    Value,
+    /// The rest of the header as written (a quoted file path); kept. Last.
+    Quoted,
+}
+
+impl Slot {
+    fn accepts(&self, word: &str) -> bool {
+        match self {
+            Slot::Word(w) => *w == word,
+            Slot::Choice(ws) => ws.contains(&word),
+            Slot::Value | Slot::Quoted => true,
+        }
+    }
+
+    fn kept(&self) -> bool {
+        !matches!(self, Slot::Word(_))
+    }
+
+    /// The fixed words this place allows (none for a value).
+    fn words(&self) -> Vec<&'static str> {
+        match self {
+            Slot::Word(w) => vec![*w],
+            Slot::Choice(ws) => ws.to_vec(),
+            Slot::Value | Slot::Quoted => Vec::new(),
+        }
+    }
+}
+
+use Slot::{Choice, Quoted, Value, Word};
+
+/// The grammar of one statement header.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Form {
+    /// The places every header of this form has, in order.
+    pub slots: &'static [Slot],
+    /// Options that may follow, each starting with a fixed word.
+    pub options: &'static [&'static [Slot]],
+    /// Whether `with laplace …|with nuts …` may end the header.
+    pub method: bool,
+    /// The form as error messages show it.
+    pub usage: &'static str,
+}
+
+/// A header read by its form: the words kept (choices, values, the quoted
+/// rest) in order, and the text after the fixed places (options).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Reading<'s> {
+    pub kept: Vec<&'s str>,
+    pub rest: &'s str,
+}
+
+/// Where a header left its form: the index of the first place it did not
+/// fill (`slots.len()` when words are left over that no option may take).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Mismatch {
+    pub slot: usize,
+}
+
+impl Form {
+    /// Read `head` (a header without its closing `:`) against the form.
+    pub fn read<'s>(&self, head: &'s str) -> Result<Reading<'s>, Mismatch> {
+        let tokens = tokens(head);
+        let mut kept = Vec::new();
+        for (i, slot) in self.slots.iter().enumerate() {
+            let &(at, word) = tokens.get(i).ok_or(Mismatch { slot: i })?;
+            if *slot == Quoted {
+                kept.push(head[at..].trim());
+                return Ok(Reading { kept, rest: "" });
+            }
+            if !slot.accepts(word) {
+                return Err(Mismatch { slot: i });
+            }
+            if slot.kept() {
+                kept.push(word);
+            }
+        }
+        let rest = tokens.get(self.slots.len()).map_or("", |&(at, _)| head[at..].trim());
+        if !rest.is_empty() && self.options.is_empty() && !self.method {
+            return Err(Mismatch { slot: self.slots.len() });
+        }
+        Ok(Reading { kept, rest })
+    }
+
+    /// [`Form::read`] with the kept words as an array of `N` (the number
+    /// of kept places of the form).
+    pub fn read_n<'s, const N: usize>(&self, head: &'s str) -> Result<([&'s str; N], &'s str), Mismatch> {
+        let reading = self.read(head)?;
+        let kept = reading.kept.try_into().map_err(|_| Mismatch { slot: self.slots.len() })?;
+        Ok((kept, reading.rest))
+    }
+
+    /// The first word of each option.
+    pub fn option_words(&self) -> Vec<&'static str> {
+        self.options.iter().flat_map(|o| o.first().map(Slot::words).unwrap_or_default()).collect()
+    }
+}
+
+/// The words of a header with their byte offsets: white space and commas
+/// separate words, `:` is a word of its own, and a double-quoted text is
+/// one word.
+fn tokens(head: &str) -> Vec<(usize, &str)> {
+    let mut out = Vec::new();
+    let mut start: Option<usize> = None;
+    let mut quoted = false;
+    for (i, c) in head.char_indices() {
+        if quoted {
+            if c == '"' {
+                quoted = false;
+            }
+            continue;
+        }
+        let separator = c.is_whitespace() || c == ',' || c == ':';
+        if separator {
+            if let Some(s) = start.take() {
+                out.push((s, &head[s..i]));
+            }
+            if c == ':' {
+                out.push((i, &head[i..i + 1]));
+            }
+        } else {
+            if start.is_none() {
+                start = Some(i);
+            }
+            quoted = c == '"';
+        }
+    }
+    if let Some(s) = start {
+        out.push((s, &head[s..]));
+    }
+    out
+}
+
+const EFFECT_KINDS: &[&str] = &["total", "direct"];
+/// The figures of `plot NAME KIND`.
+pub const PLOT_KINDS: &[&str] = &["posterior", "trace", "rank", "lines", "basis", "prior", "check"];
+/// The sampling methods after `with`.
+pub const METHODS: &[&str] = &["laplace", "nuts"];
+/// The options of `with laplace`, each followed by its value.
+pub const LAPLACE_OPTIONS: &[&str] = &["draws", "seed"];
+/// The options of `with nuts`, each followed by its value.
+pub const NUTS_OPTIONS: &[&str] = &["chains", "warmup", "draws", "seed", "accept", "depth"];
+
+const SEED: &[Slot] = &[Word("seed"), Value];
+
+pub const TABLE: Form = Form {
+    slots: &[Word("table"), Value, Word("from"), Quoted],
+    options: &[],
+    method: false,
+    usage: "table NAME from \"FILE.csv\"  (end with ':' to declare columns, `drop missing`, `keep where …` below)",
+};
+const GRAPH_USAGE: &str = "graph NAME:  (with edges such as `a -> b -> c` below)  or  graph NAME from \"FILE.dot\"";
+pub const GRAPH: Form = Form { slots: &[Word("graph"), Value], options: &[], method: false, usage: GRAPH_USAGE };
+pub const GRAPH_FILE: Form =
+    Form { slots: &[Word("graph"), Value, Word("from"), Quoted], options: &[], method: false, usage: GRAPH_USAGE };
+const ASK_SLOTS: [Slot; 9] =
+    [Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value];
+pub const ASK: Form = Form {
+    slots: &ASK_SLOTS,
+    options: &[],
+    method: false,
+    usage: "ask total effect of X on Y in GRAPH  (or: ask direct effect of X on Y in GRAPH)",
+};
+pub const ASK_USING: Form = Form {
+    slots: &[
+        Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value,
+        Word("using"), Value,
+    ],
+    options: &[],
+    method: true,
+    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]",
+};
+pub const PATHS: Form = Form {
+    slots: &[Word("paths"), Word("from"), Value, Word("to"), Value, Word("in"), Value],
+    options: &[&[Word("given"), Value]],
+    method: false,
+    usage: "paths from X to Y in GRAPH [given A, B]",
+};
+pub const IMPLICATIONS: Form =
+    Form { slots: &[Word("implications"), Word("of"), Value], options: &[], method: false, usage: "implications of GRAPH" };
+pub const IMPLICATIONS_CHECKED: Form = Form {
+    slots: &[Word("implications"), Word("of"), Value, Word("checked"), Word("against"), Value],
+    options: &[],
+    method: true,
+    usage: "implications of GRAPH checked against TABLE [with laplace …|with nuts …]",
+};
+pub const MODEL: Form = Form {
+    slots: &[Word("model"), Value],
+    options: &[],
+    method: false,
+    usage: "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)",
+};
+pub const FIT: Form = Form {
+    slots: &[Word("fit"), Value],
+    options: &[],
+    method: true,
+    usage: "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]",
+};
+pub const SHOW: Form = Form { slots: &[Word("show"), Value], options: &[], method: false, usage: "show NAME" };
+pub const EXPORT: Form = Form {
+    slots: &[Word("export"), Value, Word("draws"), Word("to"), Quoted],
+    options: &[],
+    method: false,
+    usage: "export NAME draws to \"FILE.csv\"",
+};
+pub const PLOT: Form = Form {
+    slots: &[Word("plot"), Value, Choice(PLOT_KINDS)],
+    options: &[&[Word("of"), Value], &[Word("over"), Value]],
+    method: false,
+    usage: "plot NAME posterior|trace|rank [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis|prior|check",
+};
+pub const SAVE: Form = Form {
+    slots: &[Word("save"), Word("figure"), Word("to"), Quoted],
+    options: &[],
+    method: false,
+    usage: "save figure to \"FILE.svg\"",
+};
+const CONTRAST_OPTIONS: &[&[Slot]] = &[
+    &[Word("on"), Choice(&["outcomes", "means"])],
+    SEED,
+    &[Word("at"), Value, Value],
+    &[Word("along"), Value, Word("from"), Value, Word("to"), Value],
+    &[Word("by"), Value],
+    &[Word("over"), Word("rows")],
+];
+const CONTRAST_USAGE: &str =
+    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows]";
+/// `contrast MODEL: X [options]` (one step of X).
+pub const CONTRAST: Form = Form {
+    slots: &[Word("contrast"), Value, Word(":"), Value],
+    options: CONTRAST_OPTIONS,
+    method: false,
+    usage: CONTRAST_USAGE,
+};
+/// `contrast MODEL: X b vs a [options]` (two settings of X).
+pub const CONTRAST_BETWEEN: Form = Form {
+    slots: &[Word("contrast"), Value, Word(":"), Value, Value, Word("vs"), Value],
+    options: CONTRAST_OPTIONS,
+    method: false,
+    usage: CONTRAST_USAGE,
+};
+pub const COMPARE_ROUTES: Form = Form {
+    slots: &[
+        Word("compare"), Word("routes"), Word("for"), Word("total"), Word("effect"), Word("of"), Value, Word("on"), Value,
+        Word("in"), Value, Word("using"), Value,
+    ],
+    options: &[],
+    method: true,
+    usage: "compare routes for total effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]",
+};
+pub const JOINT: Form = Form {
+    slots: &[Word("joint"), Value, Word("="), Value, Word("using"), Value],
+    options: &[],
+    method: false,
+    usage: "joint NAME = GRAPH using TABLE  (end with ':' to override a node below, e.g. `girth from rootstock`)",
+};
+pub const INTERVENE: Form = Form {
+    slots: &[Word("intervene"), Value, Word(":"), Word("set"), Value, Value, Word("vs"), Value, Word("watch")],
+    options: &[&[Word("rows"), Value], SEED],
+    method: false,
+    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]",
+};
+pub const SIMULATE: Form = Form {
+    slots: &[Word("simulate"), Value, Word("from"), Value, Word("rows"), Value, Word("seed"), Value],
+    options: &[],
+    method: false,
+    usage: "simulate NAME from GRAPH rows N seed S:  (then one mechanism per node, e.g. `girth = normal(28, 4)`)",
+};
+pub const RECOVER: Form = Form {
+    slots: &[Word("recover"), Value, Word("on"), Value],
+    options: &[],
+    method: true,
+    usage: "recover MODEL on SIMULATION [with laplace …|with nuts …]",
+};
+pub const CALIBRATE: Form = Form {
+    slots: &[Word("calibrate"), Value, Word("reps"), Value],
+    options: &[SEED],
+    method: true,
+    usage: "calibrate MODEL reps R [seed S] [with laplace …|with nuts …]",
+};
+const CHECK_USAGE: &str = "prior check MODEL [sets N] [seed S]  or  check MODEL [sets N] [seed S]";
+const CHECK_OPTIONS: &[&[Slot]] = &[&[Word("sets"), Value], SEED];
+pub const PRIOR_CHECK: Form =
+    Form { slots: &[Word("prior"), Word("check"), Value], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
+pub const CHECK: Form = Form { slots: &[Word("check"), Value], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
+
+/// Every header form, in the order statement words are listed to users.
+pub const FORMS: &[Form] = &[
+    TABLE, GRAPH, GRAPH_FILE, ASK, ASK_USING, PATHS, IMPLICATIONS, IMPLICATIONS_CHECKED, MODEL, FIT, SHOW, EXPORT, PLOT,
+    SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK, CHECK,
+];
+
+/// The words that start a statement, in [`FORMS`] order.
+pub fn statement_words() -> Vec<&'static str> {
+    let mut words: Vec<&'static str> = Vec::new();
+    for form in FORMS {
+        if let Some(Word(w)) = form.slots.first() {
+            if !words.contains(w) {
+                words.push(w);
+            }
+        }
+    }
+    words
+}
+
+/// What may come next in a header: fixed words, and whether a value (a
+/// name, a column, a level) fits there.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Next {
+    pub words: Vec<&'static str>,
+    pub values: bool,
+}
+
+impl Next {
+    fn add(&mut self, words: &[&'static str]) {
+        for w in words {
+            if !self.words.contains(w) {
+                self.words.push(w);
+            }
+        }
+    }
+
+    fn slot(&mut self, slot: &Slot) {
+        match slot {
+            Value | Quoted => self.values = true,
+            other => self.add(&other.words()),
+        }
+    }
+}
+
+/// What may follow `typed`, the complete words of a header before the
+/// cursor, by every form whose places those words fill.
+pub fn next_words(typed: &str) -> Next {
+    let words: Vec<&str> = tokens(typed).into_iter().map(|(_, w)| w).collect();
+    let mut next = Next::default();
+    for form in FORMS {
+        let fixed = form.slots.len().min(words.len());
+        // a value place is not taken by a word that starts an option of the form
+        let fits = |slot: &Slot, w: &&str| slot.accepts(w) && !(*slot == Value && is_option_word(form, w));
+        if !form.slots.iter().zip(&words).all(|(slot, w)| fits(slot, w)) {
+            continue;
+        }
+        if form.slots[..fixed].contains(&Quoted) {
+            continue;
+        }
+        match form.slots.get(words.len()) {
+            Some(slot) => next.slot(slot),
+            None => after_fixed(form, &words[fixed..], &mut next),
+        }
+    }
+    next
+}
+
+/// What may come once the fixed places of `form` are filled and `tail`
+/// words follow.
+fn after_fixed(form: &Form, tail: &[&str], next: &mut Next) {
+    if form.method {
+        if let Some(at) = tail.iter().position(|w| *w == "with") {
+            return method_next(&tail[at + 1..], next);
+        }
+    }
+    if form.options.is_empty() && !form.method {
+        return;
+    }
+    let mut inside: Option<(&[Slot], usize)> = None;
+    let mut used: Vec<&str> = Vec::new();
+    for w in tail {
+        inside = match inside {
+            Some((option, k)) if k < option.len() && option[k].accepts(w) => Some((option, k + 1)),
+            // a list goes on after an option that ends in a value (`given A, B`)
+            Some((option, k)) if k == option.len() && option[k - 1] == Value && !is_option_word(form, w) => {
+                Some((option, k))
+            }
+            _ => form.options.iter().find(|o| o[0].accepts(w)).map(|o| (*o, 1)),
+        };
+        if let Some((option, 1)) = inside {
+            used.extend(option[0].words());
+        }
+    }
+    match inside {
+        Some((option, k)) if k < option.len() => next.slot(&option[k]),
+        _ => {
+            let open: Vec<&'static str> = form.option_words().into_iter().filter(|w| !used.contains(w)).collect();
+            next.add(&open);
+            if form.method {
+                next.add(&["with"]);
+            }
+            // a list of values goes on after an option ending in a value
+            // (`given A, B`) or after fixed places ending in a word (`watch Y, Z`)
+            next.values |= inside.is_some_and(|(option, k)| option[k - 1] == Value) || matches!(form.slots.last(), Some(Word(_)));
+        }
+    }
+}
+
+fn is_option_word(form: &Form, word: &str) -> bool {
+    form.option_words().contains(&word) || (form.method && word == "with")
+}
+
+/// What may follow `with` and the words after it.
+fn method_next(after: &[&str], next: &mut Next) {
+    let Some((kind, options)) = after.split_first() else {
+        return next.add(METHODS);
+    };
+    let keys = match *kind {
+        "laplace" => LAPLACE_OPTIONS,
+        "nuts" => NUTS_OPTIONS,
+        _ => return,
+    };
+    if options.len() % 2 == 1 {
+        next.values = true;
+        return;
+    }
+    let used: Vec<&str> = options.iter().step_by(2).copied().collect();
+    let open: Vec<&'static str> = keys.iter().filter(|k| !used.contains(k)).copied().collect();
+    next.add(&open);
+}
+
+#[cfg(test)]
+mod tests {
+    //! Headers written as the README's "Statements" table documents them.
+    use super::*;
+
+    #[test]
+    fn a_header_keeps_its_values_and_hands_on_its_options() {
+        let (kept, rest) = ASK_USING.read_n::<5>("ask total effect of x on y in g using t with nuts seed 2").unwrap();
+        let [kind, x, y, g, t] = kept;
+        assert_eq!((kind, x, y, g, t, rest), ("total", "x", "y", "g", "t", "with nuts seed 2"));
+        assert_eq!(ASK.read("ask total effect of x on y in g using t"), Err(Mismatch { slot: 9 }));
+        assert_eq!(ASK.read("ask some effect of x on y in g"), Err(Mismatch { slot: 1 }));
+    }
+
+    #[test]
+    fn a_quoted_path_is_one_value_and_a_colon_is_a_word() {
+        let r = TABLE.read("table t from \"my data, 2024.csv\"").unwrap();
+        assert_eq!(r.kept, ["t", "\"my data, 2024.csv\""]);
+        let r = CONTRAST_BETWEEN.read("contrast m: x 1 vs 0 at z 2, w 3").unwrap();
+        assert_eq!((r.kept, r.rest), (vec!["m", "x", "1", "0"], "at z 2, w 3"));
+    }
+
+    #[test]
+    fn every_form_starts_with_a_fixed_word() {
+        assert!(FORMS.iter().all(|f| matches!(f.slots.first(), Some(Word(_)))));
+        assert!(FORMS.iter().all(|f| f.options.iter().all(|o| matches!(o.first(), Some(Word(_))))));
+    }
+
+    /// The statement words of the README's "Statements" table, in its order.
+    #[test]
+    fn statement_words_are_those_the_readme_lists() {
+        let readme = [
+            "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save",
+            "contrast", "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+        ];
+        assert_eq!(statement_words(), readme);
+    }
+}

@@ -1,0 +1,4 @@
+//! Helpers shared by several integration tests (each test file that uses
+//! them declares `mod common;`).
+
+pub mod sbc;
