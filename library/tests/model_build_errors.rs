@@ -52,8 +52,11 @@ fn outcome_must_fit_the_family() {
     // Binomial successes lie in 0..=trials.
     expect!["model line 2: table `trees` row 3, column `fruit`: 10 successes is not a whole number between 0 and the 9 trials in `set`"]
         .assert_eq(&build_error("fruit from girth using trees\nfamily binomial trials set", &t));
-    expect![[r#"model line 2: column `rootstock`: the outcome is a category (dwarf, standard); use a binary column with `family bernoulli` or a numeric column"#]]
-        .assert_eq(&build_error("rootstock from girth using trees", &t));
+    // A category outcome goes with the levels family only, and the levels family with a category only.
+    expect![[r#"model line 2: column `rootstock`: the outcome is a category (dwarf, standard), which goes with `family levels` (or leave the family line out); `family bernoulli` needs a numeric column"#]]
+        .assert_eq(&build_error("rootstock from girth using trees\nfamily bernoulli", &t));
+    expect![[r#"model line 2: column `yield`: `family levels` needs a category outcome, but this column is real; declare it as a category in the table or choose another family"#]]
+        .assert_eq(&build_error("yield from girth using trees\nfamily levels", &t));
 }
 
 #[test]

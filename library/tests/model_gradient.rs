@@ -95,3 +95,14 @@ fn poisson_gradient_matches_finite_differences() {
     check_gradient(&format!("fruit from {TERMS} using trees\nfamily poisson"), 11);
     check_gradient(&format!("fruit from {SPLINE_TERMS} using trees\nfamily poisson"), 12);
 }
+
+/// The levels family (softmax over soil's three levels; rootstock's two),
+/// with the family line written and left out (a category outcome takes the
+/// levels family by default).
+#[test]
+fn levels_gradient_matches_finite_differences() {
+    check_gradient("soil from rootstock, girth per rootstock, poly(age, 3) using trees", 13);
+    check_gradient("soil from rootstock, spline(age, 6), girth using trees\nfamily levels", 14);
+    check_gradient("soil from girth, fruit using trees\nfamily levels\nprior slopes: student_t(3, 0, 2)", 15);
+    check_gradient("rootstock from soil, girth using trees", 16);
+}

@@ -74,3 +74,58 @@ fn unknown_level_in_new_rows_names_the_row() {
     expect_test::expect![[r#"table `new` row 2, column `rootstock`: level `semi` was not in the data the model was built on (levels: dwarf, standard); predict for known levels only"#]]
         .assert_eq(&error.to_string());
 }
+
+/// Soil (loam, sandy, clay) as a levels-family outcome of rootstock: six
+/// coefficients, level by level after the reference loam.
+fn soil_model() -> waypath::model::Model {
+    build("soil from rootstock using trees", &orchard(60, 8))
+}
+
+/// Source: the softmax pₖ = e^ηₖ / Σⱼ e^ηⱼ with η_loam = 0 (Bishop 2006,
+/// eq. 4.104; recalled), written out by hand: for a standard tree with
+/// η_sandy = ln 2 and η_clay = ln 3 the probabilities are 1/6, 2/6, 3/6.
+#[test]
+fn level_probabilities_are_the_softmax_of_the_level_predictors() {
+    let model = soil_model();
+    assert_eq!(model.family(), &Family::Levels);
+    assert_eq!(model.outcome_levels(), Some(&["loam".to_string(), "sandy".into(), "clay".into()][..]));
+    assert_eq!(
+        model.parameter_names(),
+        [
+            "soil[sandy vs loam]: rootstock[dwarf]",
+            "soil[sandy vs loam]: rootstock[standard]",
+            "soil[clay vs loam]: rootstock[dwarf]",
+            "soil[clay vs loam]: rootstock[standard]",
+        ]
+    );
+    let params = [0.0, 2f64.ln(), -1.0, 3f64.ln()];
+    let rows = model.new_rows(&new_trees(vec![0, 1], vec![0.0, 0.0])).expect("rows");
+    let p = model.level_probabilities(&params, &rows).expect("probabilities");
+    // new_trees lists standard first: row 1 is standard, row 2 dwarf (η = 0, −1).
+    let dwarf_total = 1.0 + 1.0 + (-1f64).exp();
+    let want = [[1.0 / 6.0, 2.0 / 6.0, 3.0 / 6.0], [1.0 / dwarf_total, 1.0 / dwarf_total, (-1f64).exp() / dwarf_total]];
+    for (got, want) in p.iter().zip(want) {
+        for (g, w) in got.iter().zip(want) {
+            assert!((g - w).abs() < 1e-15, "{got:?} vs {want:?}");
+        }
+    }
+    let error = model.predict_mean(&params, &rows).expect_err("a category has no mean");
+    assert!(error.to_string().contains("probability of each level"), "{error}");
+}
+
+/// Source: each drawn level is a categorical draw with the row's
+/// probabilities, so over 30 000 rows each level's share lies within 4
+/// binomial standard errors √(p(1 − p)/n) of its probability.
+#[test]
+fn drawn_levels_follow_the_level_probabilities() {
+    let model = soil_model();
+    let n = 30_000;
+    let rows = model.new_rows(&new_trees(vec![0; n], vec![0.0; n])).expect("rows");
+    let params = [0.0, 0.5, 0.0, -0.7];
+    let p = model.level_probabilities(&params, &rows).expect("probabilities")[0].clone();
+    let draws = model.outcome_draw(&params, &rows, &mut StdRng::seed_from_u64(9)).expect("draws");
+    for (k, pk) in p.iter().enumerate() {
+        let share = draws.iter().filter(|&&d| d == k as f64).count() as f64 / n as f64;
+        assert!((share - pk).abs() < 4.0 * (pk * (1.0 - pk) / n as f64).sqrt(), "level {k}: {share} vs {pk}");
+    }
+}

@@ -82,7 +82,7 @@ fn line_error(text: &str) -> String {
 fn syntax_errors_say_what_to_write() {
     expect![[r#"a binomial outcome needs its number of trials: write `family binomial trials <column>`"#]]
         .assert_eq(&line_error("family binomial"));
-    expect![[r#"`family gamma`: use normal, bernoulli, poisson or binomial trials <column>"#]]
+    expect![[r#"`family gamma`: use normal, bernoulli, poisson, levels or binomial trials <column>"#]]
         .assert_eq(&line_error("family gamma"));
     expect![[r#"`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student_t, exponential, half_normal, lognormal or uniform"#]]
         .assert_eq(&line_error("prior slopes: cauchy(0, 1)"));

@@ -250,37 +250,3 @@ fn joint_model_follows_the_graph_and_compares_with_adjustment() {
     expect_test::expect![[r#"joint whole: the model given for girth uses yield, which is not a parent of girth in graph orchard; use only its parents (rootstock)"#]]
         .assert_eq(&wrong.to_string());
 }
-
-/// Source: the stated scope of joint models — a category node with parents
-/// would need a multinomial regression, which is not available, so the
-/// node is marked and an intervention that must simulate it says so, while
-/// one that does not pass through it still runs.
-#[test]
-fn category_node_with_parents_is_marked_unsupported() {
-    let g = graph("farm", &["rain -> soil_class -> crop", "rain -> crop"]);
-    let body = [
-        "rain = normal(50, 10)",
-        "soil_class = category(clay 0.5, loam 0.5)",
-        "crop = normal(10 + 0.1 * rain + 2 * [soil_class = loam], 1)",
-    ];
-    let table = simulate(&g, &body, 200, 6).table().expect("table");
-    let joint = build_joint("whole", &g, &table, &[]).expect("joint");
-    assert!(matches!(&joint.nodes[1].model, NodeModel::Unsupported { reason } if reason.contains("multinomial")));
-    let fit = fit_joint(&joint, &laplace(1), &AtomicBool::new(false)).expect("fit");
-    let request = |variable: &str, to: &str, from: &str| InterventionRequest {
-        variable: variable.into(),
-        to: to.into(),
-        from: from.into(),
-        watch: vec!["crop".into()],
-        rows: None,
-        seed: 1,
-        mass: 0.9,
-    };
-    let error = intervene(&joint, &fit, &table, &request("rain", "60", "50")).expect_err("must simulate soil_class");
-    assert!(error.to_string().contains("soil_class must be simulated"), "{error}");
-    // Setting soil_class itself leaves nothing unsupported downstream: the effect is the indicator's 2 (the mechanism).
-    let result = intervene(&joint, &fit, &table, &request("soil_class", "loam", "clay")).expect("intervene");
-    let w = &result.watched[0];
-    let sd = (w.upper - w.lower) / (2.0 * 1.645);
-    assert!((w.mean - 2.0).abs() < 4.0 * sd, "{}", w.mean);
-}

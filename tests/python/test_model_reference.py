@@ -210,3 +210,68 @@ def test_binomial_calibration_ranks_pass_scipy_chisquare(probe):
         assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
         assert p["p_value"] == pytest.approx(reference.pvalue, rel=1e-6, abs=1e-12)
         assert reference.pvalue > 0.01, (p["name"], reference)
+
+
+def saplings(n=600, seed=23):
+    """Invented saplings: soil (loam, sand, peat), canopy shade (0-1) and the
+    growth form each grew into (herb, shrub, tree), drawn from a softmax with
+    herb as the reference."""
+    rng = np.random.default_rng(seed)
+    soil = rng.integers(0, 3, n)
+    shade = rng.uniform(0, 1, n)
+    sand, peat = (soil == 1).astype(float), (soil == 2).astype(float)
+    eta = np.column_stack([np.zeros(n),
+                           -0.2 + 0.9 * sand - 0.4 * peat + 1.5 * shade,
+                           0.3 - 0.6 * sand + 0.8 * peat - 2.0 * shade])
+    p = np.exp(eta - eta.max(axis=1, keepdims=True))
+    p /= p.sum(axis=1, keepdims=True)
+    form = np.array([rng.choice(3, p=row) for row in p])
+    return dict(soil=soil, shade=shade, form=form)
+
+
+def sapling_columns(d):
+    return {
+        "soil": {"category": {"codes": d["soil"].tolist(), "levels": ["loam", "sand", "peat"]}},
+        "shade": {"real": d["shade"].tolist()},
+        "form": {"category": {"codes": d["form"].tolist(), "levels": ["herb", "shrub", "tree"]}},
+    }
+
+
+def sapling_design(d):
+    return np.column_stack([index_coding(d["soil"], 3), d["shade"] - d["shade"].mean()])
+
+
+def test_levels_mode_with_wide_priors_matches_mnlogit(probe):
+    """Flat-prior limit: statsmodels MNLogit maximum likelihood (first level
+    the reference, one coefficient column per other level), its fitted level
+    probabilities (MNLogitResults.predict), and the family a category
+    outcome takes without a family line."""
+    d = saplings()
+    answer = probe("model", {"action": "fit", "columns": sapling_columns(d),
+                             "model": "form from soil, shade using saplings\n" + WIDE})
+    assert "error" not in answer, answer
+    assert answer["family"] == "levels"
+    assert answer["levels"] == ["herb", "shrub", "tree"]
+    terms = ["soil[loam]", "soil[sand]", "soil[peat]", "b_shade"]
+    assert answer["names"] == [f"form[{lv} vs herb]: {t}" for lv in ["shrub", "tree"] for t in terms]
+    x = sapling_design(d)
+    mle = sm.MNLogit(d["form"], x).fit(method="newton", maxiter=100, tol=1e-12, disp=False)
+    # MNLogit params: one column per non-reference level; ours run level by level.
+    assert_relative(answer["mode"], np.asarray(mle.params).T.ravel())
+    np.testing.assert_allclose(np.array(answer["probabilities"]), mle.predict(x), rtol=0, atol=1e-6)
+
+
+def test_levels_log_likelihood_matches_scipy_log_softmax(probe):
+    """Σ over rows of scipy.special.log_softmax of (0, η_shrub, η_tree) at the
+    row's observed level."""
+    from scipy.special import log_softmax
+    d = saplings(200, 4)
+    params = [0.1, -0.4, 0.6, 1.2, -0.3, 0.5, 0.2, -1.7]
+    answer = probe("model", {"action": "log_likelihood", "columns": sapling_columns(d),
+                             "model": "form from soil, shade using saplings\nfamily levels", "params": params})
+    assert "error" not in answer, answer
+    x = sapling_design(d)
+    beta = np.array(params).reshape(2, 4)
+    eta = np.column_stack([np.zeros(len(x)), x @ beta[0], x @ beta[1]])
+    reference = log_softmax(eta, axis=1)[np.arange(len(x)), d["form"]].sum()
+    assert answer["log_likelihood"] == pytest.approx(reference, rel=1e-10)

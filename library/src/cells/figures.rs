@@ -144,6 +144,9 @@ pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Res
 /// The B-spline basis of the model's (first) spline term and the fitted
 /// curve it makes, with the data.
 pub fn basis(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> {
+    if model.outcome_levels().is_some() {
+        return Err(format!("model {} has a category outcome; its basis figure is not available", model.name()));
+    }
     let terms = model.spline_terms();
     let term = terms.first().ok_or_else(|| format!("model {} has no spline term", model.name()))?;
     let (lo, hi) = term.basis.range();

@@ -9,11 +9,16 @@
 //!   `normal(0, 2·s_y)`; spread `exponential(1/s_y)` (prior mean `s_y`).
 //! * logit and log links — intercepts `normal(link(ȳ), 2)` on the link
 //!   scale; slopes `normal(0, 2/s_x)`; weights and offsets `normal(0, 2)`.
+//! * levels family (softmax link) — as the logit link, once per level after
+//!   the first, with the intercepts of level k centred at
+//!   `log(share_k / share_reference)`, the log odds of the level's share in
+//!   the data (shares below 0.001 count as 0.001).
 //!
 //! Every assignment is recorded as a [`PriorUse`] so fit output can list
 //! the priors actually used.
 
 use super::error::ModelError;
+use super::family::softmax::level_prefix;
 use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::prior::{Prior, PriorGroup};
@@ -42,24 +47,63 @@ pub struct PriorPlan {
     pub uses: Vec<PriorUse>,
 }
 
-/// Assign priors to the coefficients of `recipes` (and the spread).
-pub fn assign_priors(spec: &ModelSpec, recipes: &[TermRecipe], outcome: &OutcomeValues) -> Result<PriorPlan, ModelError> {
+/// The coefficients of one linear predictor: every family has one, the
+/// levels family one per level after the first.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PredictorBlock {
+    /// Written before each term label (empty for a single predictor).
+    pub prefix: String,
+    /// The centre of its default intercept priors and starting values.
+    pub centre: f64,
+}
+
+/// The linear predictors of the model of `spec` on `outcome`.
+pub fn predictor_blocks(spec: &ModelSpec, outcome: &OutcomeValues) -> Vec<PredictorBlock> {
+    match &outcome.levels {
+        Some(levels) => {
+            let shares = outcome.level_shares();
+            let floor = |s: f64| s.max(1e-3);
+            levels
+                .iter()
+                .zip(&shares)
+                .skip(1)
+                .map(|(level, &share)| PredictorBlock {
+                    prefix: level_prefix(&spec.outcome, level, &levels[0]),
+                    centre: (floor(share) / floor(shares[0])).ln(),
+                })
+                .collect()
+        }
+        None => vec![PredictorBlock { prefix: String::new(), centre: OutcomeScale::new(&spec.family, outcome).centre }],
+    }
+}
+
+/// Assign priors to the coefficients of `recipes` in each linear
+/// predictor of `blocks` (and the spread).
+pub fn assign_priors(
+    spec: &ModelSpec,
+    recipes: &[TermRecipe],
+    outcome: &OutcomeValues,
+    blocks: &[PredictorBlock],
+) -> Result<PriorPlan, ModelError> {
     check_declared(spec, recipes)?;
     let scale = OutcomeScale::new(&spec.family, outcome);
     let mut plan = PriorPlan { coefficients: Vec::new(), spread: None, uses: Vec::new() };
-    for recipe in recipes {
-        let labels = recipe.labels();
-        let group = recipe.group();
-        match spec.declared_prior(group) {
-            Some(prior) => {
-                plan.coefficients.extend(std::iter::repeat_n(prior.clone(), labels.len()));
-                plan.uses.push(PriorUse { group, parameters: labels, prior: prior.clone(), declared: true });
-            }
-            None => {
-                for (label, column_scale) in labels.into_iter().zip(recipe.scales()) {
-                    let prior = scale.default_for(recipe, column_scale);
-                    plan.coefficients.push(prior.clone());
-                    plan.uses.push(PriorUse { group, parameters: vec![label], prior, declared: false });
+    for block in blocks {
+        let block_scale = OutcomeScale { centre: block.centre, spread: scale.spread };
+        for recipe in recipes {
+            let labels: Vec<String> = recipe.labels().iter().map(|l| format!("{}{l}", block.prefix)).collect();
+            let group = recipe.group();
+            match spec.declared_prior(group) {
+                Some(prior) => {
+                    plan.coefficients.extend(std::iter::repeat_n(prior.clone(), labels.len()));
+                    plan.uses.push(PriorUse { group, parameters: labels, prior: prior.clone(), declared: true });
+                }
+                None => {
+                    for (label, column_scale) in labels.into_iter().zip(recipe.scales()) {
+                        let prior = block_scale.default_for(recipe, column_scale);
+                        plan.coefficients.push(prior.clone());
+                        plan.uses.push(PriorUse { group, parameters: vec![label], prior, declared: false });
+                    }
                 }
             }
         }

@@ -46,6 +46,10 @@ pub enum ModelError {
     #[error("prior for {group}: {message}")]
     Prior { group: String, message: String },
 
+    /// A prediction the model's family does not make (a mean of a category).
+    #[error("{message}")]
+    Family { message: String },
+
     /// A parameter vector of the wrong length or with invalid values.
     #[error("{message}")]
     Parameters { message: String },

@@ -20,8 +20,18 @@
 //! | `poly(girth, 2)` | `b_girth^1`, `b_girth^2` | coefficients of powers of standardised girth |
 //! | `spline(age, 8)` | `w_age[2]` … `w_age[8]` | weights of basis functions 2–8 |
 //! | normal family | `spread` | residual sd (sampled as `log(spread)`) |
+//! | levels family, outcome `form` | `form[shrub vs herb]: b_girth`, … | each label above, once per level after the first (`herb`, the reference): that level's coefficient on the log odds against the reference |
 //!
 //! A column enters at most one term, so these labels never collide.
+//!
+//! # The levels family
+//! A category outcome with K levels (`family levels`, or no family line)
+//! has K − 1 linear predictors with the same terms, the first level's
+//! predictor fixed at 0, and a softmax link ([`family::softmax`]). The
+//! design matrix is shared; the coefficients run level by level. Priors
+//! come from the same groups, once per level. Such a model predicts level
+//! probabilities ([`Model::level_probabilities`]) and draws levels
+//! ([`Model::outcome_draw`] returns level indices), not means.
 //!
 //! # Choices (also reported by [`Model::notes`])
 //! * Real predictors are centred at their mean unless `centre off`.

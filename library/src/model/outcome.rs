@@ -1,7 +1,8 @@
 //! Reading and checking the outcome (and binomial trials) column against the
 //! family: a bernoulli outcome is 0/1, binomial successes are whole numbers
-//! within their trials, poisson counts are whole and non-negative, and no
-//! outcome is a category. Errors name the first offending row.
+//! within their trials, poisson counts are whole and non-negative, and a
+//! category outcome goes with the levels family (and only it). Errors name
+//! the first offending row.
 
 use crate::table::{ColumnData, Table};
 
@@ -9,11 +10,14 @@ use super::columns::{find_column, real_values};
 use super::error::ModelError;
 use super::family::Family;
 
-/// The outcome as reals, with the number of trials for a binomial family.
+/// The outcome as reals, with the number of trials for a binomial family
+/// and the level labels for the levels family (whose `y` holds the level
+/// index of each row, the reference level being 0).
 #[derive(Debug, Clone, PartialEq)]
 pub struct OutcomeValues {
     pub y: Vec<f64>,
     pub trials: Option<Vec<f64>>,
+    pub levels: Option<Vec<String>>,
 }
 
 impl OutcomeValues {
@@ -25,28 +29,45 @@ impl OutcomeValues {
             None => total / self.y.len() as f64,
         }
     }
+
+    /// The share of rows at each level (levels family; empty otherwise).
+    pub fn level_shares(&self) -> Vec<f64> {
+        let Some(levels) = &self.levels else { return Vec::new() };
+        let mut counts = vec![0.0; levels.len()];
+        for &v in &self.y {
+            counts[v as usize] += 1.0;
+        }
+        let n = self.y.len().max(1) as f64;
+        counts.iter().map(|c| c / n).collect()
+    }
 }
 
 /// Read column `name` of `table` as the outcome of `family`.
 pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<OutcomeValues, ModelError> {
     let column = find_column(table, name)?;
-    if let ColumnData::Category { levels, .. } = &column.data {
-        return Err(ModelError::Column {
-            column: name.to_string(),
-            message: format!(
-                "the outcome is a category ({}); use a binary column with `family bernoulli` \
-                 or a numeric column",
-                levels.join(", ")
-            ),
-        });
-    }
-    let y = real_values(column, "the outcome")?;
     if table.nrows() == 0 {
         return Err(ModelError::Column {
             column: name.to_string(),
             message: format!("table `{}` has no rows to fit the model to", table.name),
         });
     }
+    match (&column.data, family) {
+        (ColumnData::Category { codes, levels }, Family::Levels) => return read_levels(name, codes, levels),
+        (ColumnData::Category { levels, .. }, _) => {
+            return Err(ModelError::Column {
+                column: name.to_string(),
+                message: format!(
+                    "the outcome is a category ({}), which goes with `family levels` (or leave the family \
+                     line out); `family {}` needs a numeric column",
+                    levels.join(", "),
+                    family.name()
+                ),
+            })
+        }
+        _ => {}
+    }
+    let kind = column.data.kind().name();
+    let y = real_values(column, "the outcome")?;
     let place = |row: usize, message: String| ModelError::Value {
         table: table.name.clone(),
         row: row + 1,
@@ -54,15 +75,37 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         message,
     };
     match family {
-        Family::Normal => check_varies(&y, name).map(|_| OutcomeValues { y, trials: None }),
+        Family::Normal => check_varies(&y, name).map(|_| OutcomeValues { y, trials: None, levels: None }),
         Family::Bernoulli => first_bad(&y, |v| v == 0.0 || v == 1.0)
             .map(|row| Err(place(row, format!("{} is not 0 or 1, which a bernoulli outcome must be", y[row]))))
-            .unwrap_or(Ok(OutcomeValues { y, trials: None })),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Poisson => first_bad(&y, is_count)
             .map(|row| Err(place(row, format!("{} is not a whole number ≥ 0, which a poisson outcome must be", y[row]))))
-            .unwrap_or(Ok(OutcomeValues { y, trials: None })),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Binomial { trials } => read_binomial(table, name, y, trials),
+        Family::Levels => Err(ModelError::Column {
+            column: name.to_string(),
+            message: format!(
+                "`family levels` needs a category outcome, but this column is {kind}; declare it as a \
+                 category in the table or choose another family"
+            ),
+        }),
     }
+}
+
+/// A category outcome for the levels family: the level index of each row.
+fn read_levels(name: &str, codes: &[u32], levels: &[String]) -> Result<OutcomeValues, ModelError> {
+    if levels.len() < 2 {
+        return Err(ModelError::Column {
+            column: name.to_string(),
+            message: format!(
+                "the outcome has a single level ({}), so there is nothing to model",
+                levels.join(", ")
+            ),
+        });
+    }
+    let y = codes.iter().map(|&c| f64::from(c)).collect();
+    Ok(OutcomeValues { y, trials: None, levels: Some(levels.to_vec()) })
 }
 
 fn read_binomial(table: &Table, name: &str, y: Vec<f64>, trials_name: &str) -> Result<OutcomeValues, ModelError> {
@@ -85,7 +128,7 @@ fn read_binomial(table: &Table, name: &str, y: Vec<f64>, trials_name: &str) -> R
         );
         return Err(place(row, name, message));
     }
-    Ok(OutcomeValues { y, trials: Some(trials) })
+    Ok(OutcomeValues { y, trials: Some(trials), levels: None })
 }
 
 fn check_varies(y: &[f64], name: &str) -> Result<(), ModelError> {

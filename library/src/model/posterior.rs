@@ -1,7 +1,8 @@
 //! The built model and its log posterior density.
 //!
 //! The unconstrained parameter vector is the coefficients, in design-column
-//! order, followed (normal family only) by `log(spread)`. The density is the
+//! order (for the levels family, one run of design columns per level after
+//! the first), followed (normal family only) by `log(spread)`. The density is the
 //! full log-likelihood plus the log priors plus `log(spread)`, the log
 //! Jacobian of `spread = e^u`; normalising constants are kept so values can
 //! be checked against reference libraries.
@@ -12,6 +13,7 @@ use super::defaults::PriorUse;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::family::likelihood::GlmData;
+use super::family::softmax::SoftmaxData;
 use super::family::Family;
 use super::prior::Prior;
 use super::terms::TermRecipe;
@@ -24,6 +26,8 @@ pub(crate) enum Likelihood {
     Gaussian { stats: GaussianStats, spread_prior: Prior },
     /// Bernoulli, binomial or poisson, row by row.
     Glm(GlmData),
+    /// Levels family (category outcome), row by row.
+    Softmax(SoftmaxData),
 }
 
 /// A regression model built against a table: a log posterior density over
@@ -34,6 +38,8 @@ pub struct Model {
     pub(crate) outcome: String,
     pub(crate) table: String,
     pub(crate) family: Family,
+    /// The outcome's levels, reference first (levels family only).
+    pub(crate) outcome_levels: Option<Vec<String>>,
     pub(crate) recipes: Vec<TermRecipe>,
     pub(crate) labels: Vec<String>,
     pub(crate) design: DMatrix<f64>,
@@ -66,7 +72,15 @@ impl Model {
         &self.family
     }
 
-    /// Labels of the coefficients, in design-column order.
+    /// The outcome's levels for the levels family, reference level first
+    /// (the order of [`Model::level_probabilities`] and of the level indices
+    /// that [`Model::outcome_draw`] returns); `None` for other families.
+    pub fn outcome_levels(&self) -> Option<&[String]> {
+        self.outcome_levels.as_deref()
+    }
+
+    /// Labels of the coefficients, in design-column order (level by level
+    /// for the levels family).
     pub fn coefficient_names(&self) -> &[String] {
         &self.labels
     }
@@ -137,12 +151,14 @@ impl Model {
         &self.notes
     }
 
-    /// The design matrix of the fitted data (rows × coefficients).
+    /// The design matrix of the fitted data (rows × design columns; for the
+    /// levels family each level's coefficients multiply these same columns).
     pub fn design_matrix(&self) -> &DMatrix<f64> {
         &self.design
     }
 
-    /// The outcome values of the fitted data.
+    /// The outcome values of the fitted data (level indices, reference 0,
+    /// for the levels family).
     pub fn outcome_values(&self) -> &[f64] {
         &self.y
     }
@@ -155,6 +171,7 @@ impl Model {
         Ok(match &self.likelihood {
             Likelihood::Gaussian { stats, .. } => stats.log_likelihood_and_gradient(&theta[..p], theta[p], &mut scratch).0,
             Likelihood::Glm(glm) => glm.log_likelihood_and_gradient(&theta, &mut scratch),
+            Likelihood::Softmax(levels) => levels.log_likelihood_and_gradient(&theta, &mut scratch),
         })
     }
 
@@ -213,6 +230,7 @@ impl LogDensity for Model {
                 grad[p] = d_u + d_spread * spread + 1.0;
             }
             Likelihood::Glm(glm) => total += glm.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
+            Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
         }
         if total.is_finite() {
             total

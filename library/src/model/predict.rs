@@ -1,5 +1,8 @@
 //! Predictions for new rows: the linear predictor, the mean, and simulated
-//! outcomes for posterior predictive checks and contrasts on outcomes.
+//! outcomes for posterior predictive checks and contrasts on outcomes. A
+//! levels-family model (category outcome) has no mean: it predicts the
+//! probability of every level ([`Model::level_probabilities`]) and draws a
+//! level.
 //!
 //! New rows are turned into a design with the recipes planned on the fitted
 //! data (same centres, polynomial scaling, spline knots and level coding),
@@ -11,10 +14,11 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 
 use crate::table::Table;
 
-use super::build::{glm_data, intercept_columns};
+use super::build::{glm_data, intercept_columns, softmax_data};
 use super::columns::real_values;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
+use super::family::softmax::level_probabilities;
 use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::posterior::{Likelihood, Model};
@@ -51,18 +55,57 @@ impl Model {
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
-    /// draw, in [`Model::parameter_names`] order).
+    /// draw, in [`Model::parameter_names`] order). A levels-family model has
+    /// no mean and answers with an error naming
+    /// [`Model::level_probabilities`].
     pub fn predict_mean(&self, params: &[f64], rows: &NewRows) -> Result<Prediction, ModelError> {
         self.check_length(params)?;
+        if let Some(levels) = self.outcome_levels() {
+            return Err(ModelError::Family {
+                message: format!(
+                    "model `{}` has a category outcome, {} ({}): it predicts the probability of each level \
+                     rather than a mean, so a summary of means is not available for it",
+                    self.name,
+                    self.outcome,
+                    levels.join(", ")
+                ),
+            });
+        }
         let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
         let linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
     }
 
+    /// The probability of every outcome level (reference first, in
+    /// [`Model::outcome_levels`] order) for each new row, at constrained
+    /// parameters `params`: the softmax of the levels' linear predictors.
+    /// Levels family only.
+    pub fn level_probabilities(&self, params: &[f64], rows: &NewRows) -> Result<Vec<Vec<f64>>, ModelError> {
+        self.check_length(params)?;
+        let levels = self.outcome_levels().ok_or_else(|| ModelError::Family {
+            message: format!("model `{}` has a {} outcome, not a category, so it has no level probabilities", self.name, self.family.name()),
+        })?;
+        let width = rows.design.ncols();
+        let blocks: Vec<nalgebra::DVector<f64>> = (1..levels.len())
+            .map(|k| nalgebra::DVector::from_column_slice(&params[(k - 1) * width..k * width]))
+            .collect();
+        let eta: Vec<nalgebra::DVector<f64>> = blocks.iter().map(|b| &rows.design * b).collect();
+        Ok((0..rows.design.nrows())
+            .map(|i| level_probabilities(&eta.iter().map(|e| e[i]).collect::<Vec<f64>>()))
+            .collect())
+    }
+
     /// One simulated outcome per new row at constrained parameters `params`,
-    /// drawn with `rng` (seed it for reproducible draws).
+    /// drawn with `rng` (seed it for reproducible draws). For the levels
+    /// family each value is the index of the drawn level in
+    /// [`Model::outcome_levels`] (0 for the reference level), drawn from
+    /// [`Model::level_probabilities`]; callers turn it into a label.
     pub fn outcome_draw<R: Rng + ?Sized>(&self, params: &[f64], rows: &NewRows, rng: &mut R) -> Result<Vec<f64>, ModelError> {
+        if self.outcome_levels().is_some() {
+            let probabilities = self.level_probabilities(params, rows)?;
+            return Ok(probabilities.iter().map(|p| draw_level(p, rng.random::<f64>()) as f64).collect());
+        }
         let prediction = self.predict_mean(params, rows)?;
         let mut draws = Vec::with_capacity(prediction.mean.len());
         for (i, &mu) in prediction.mean.iter().enumerate() {
@@ -93,8 +136,22 @@ impl Model {
                 let poisson = Poisson::new(mu).map_err(|e| invalid(format!("cannot draw a poisson outcome ({e})")))?;
                 poisson.sample(rng)
             }
+            Family::Levels => return Err(invalid("a category outcome is drawn as a level".into())),
         })
     }
+}
+
+/// The level whose stretch of the cumulative probabilities holds `u` (in
+/// [0, 1)); the last level takes any rounding left over.
+fn draw_level(probabilities: &[f64], u: f64) -> usize {
+    let mut cumulative = 0.0;
+    for (k, p) in probabilities.iter().enumerate() {
+        cumulative += p;
+        if u < cumulative {
+            return k;
+        }
+    }
+    probabilities.len() - 1
 }
 
 fn whole_numbers(table: &Table, column: &str, values: &[f64]) -> Result<Vec<u64>, ModelError> {
@@ -123,7 +180,7 @@ impl Model {
     pub fn fitted_rows(&self) -> NewRows {
         let trials = match &self.likelihood {
             Likelihood::Glm(glm) => glm.trials().map(|m| m.iter().map(|&v| v as u64).collect()),
-            Likelihood::Gaussian { .. } => None,
+            Likelihood::Gaussian { .. } | Likelihood::Softmax(_) => None,
         };
         NewRows { design: self.design.clone(), trials }
     }
@@ -131,7 +188,8 @@ impl Model {
     /// The same model — design, recipes, priors and binomial trials
     /// unchanged — with new outcome values `y` for the fitted rows:
     /// outcomes simulated from the prior for simulation-based calibration,
-    /// where the priors must not move with the simulated data.
+    /// where the priors must not move with the simulated data. For the
+    /// levels family `y` holds level indices.
     pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
         if y.len() != self.y.len() {
             return Err(ModelError::Parameters {
@@ -144,8 +202,17 @@ impl Model {
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec) };
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
                 Likelihood::Glm(glm_data(&self.design, &self.family, &outcome))
+            }
+            Likelihood::Softmax(_) => {
+                let count = self.outcome_levels().map_or(0, <[String]>::len);
+                if let Some(bad) = y.iter().find(|&&v| !(v >= 0.0 && v.fract() == 0.0 && (v as usize) < count)) {
+                    return Err(ModelError::Parameters {
+                        message: format!("model `{}`: {bad} is not the index of one of its {count} outcome levels", self.name),
+                    });
+                }
+                Likelihood::Softmax(softmax_data(&self.design, &y, count))
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })

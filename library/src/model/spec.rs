@@ -15,7 +15,9 @@
 //!   intercept per level, a real column a slope), `<x> per <category>` (one
 //!   slope of x per level), `poly(<x>, <degree>)`, `spline(<x>, <functions>)`
 //!   or `spline(<x>, <functions>, knots <k1> <k2> …)`.
-//! * `family normal | bernoulli | poisson | binomial trials <column>`.
+//! * `family normal | bernoulli | poisson | levels | binomial trials <column>`.
+//!   Without a family line the family follows the outcome column: `levels`
+//!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
 //!   weights (spline weights), spread.
 //! * `centre on | off` — whether real predictors are centred at their mean
@@ -99,7 +101,12 @@ pub struct ModelSpec {
     pub outcome: String,
     pub terms: Vec<TermSpec>,
     pub table: String,
+    /// The family of the `family` line, or `normal` when there is none
+    /// (see [`ModelSpec::family_declared`]).
     pub family: Family,
+    /// Whether a `family` line was written; without one, a category outcome
+    /// takes the levels family when the model is built.
+    pub family_declared: bool,
     /// Declared priors; groups not listed get data-scaled defaults.
     pub priors: Vec<(PriorGroup, Prior)>,
     /// Whether real predictors are centred at their mean.
@@ -147,6 +154,7 @@ impl ModelSpec {
             outcome: formula.outcome,
             terms: formula.terms,
             table: formula.table,
+            family_declared: family.is_some(),
             family: family.map(|(_, f)| f).unwrap_or(Family::Normal),
             priors,
             centre,

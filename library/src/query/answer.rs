@@ -158,8 +158,8 @@ pub(crate) fn family_for(table: &Table, outcome: &str, place: &str) -> Result<Fa
         ColumnData::Count(_) => Ok(Family::Poisson),
         ColumnData::Binary(_) => Ok(Family::Bernoulli),
         ColumnData::Category { levels, .. } => Err(QueryError::request(format!(
-            "{place}: {outcome} is a category ({}), and models of a category outcome are not supported yet; \
-             recode it as a binary column",
+            "{place}: {outcome} is a category ({}), and this answer compares means, which a category does not \
+             have; watch {outcome} in a joint model's `intervene` for the change in its level shares",
             levels.join(", ")
         ))),
     }

@@ -170,6 +170,15 @@ impl Contrast {
 /// (the table the model was built on).
 pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastRequest) -> Result<Contrast, QueryError> {
     let place = format!("contrast {}", model.name());
+    if let Some(levels) = model.outcome_levels() {
+        return Err(QueryError::request(format!(
+            "{place}: the outcome {} is a category ({}), and contrasts compare numeric predictions; watch {} \
+             in a joint model's `intervene` for the change in its level shares",
+            model.outcome_name(),
+            levels.join(", "),
+            model.outcome_name()
+        )));
+    }
     let predictors = predictor_columns(model);
     let is_predictor = |name: &str| predictors.iter().any(|p| p == name);
     if !is_predictor(&request.variable) {

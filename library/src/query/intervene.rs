@@ -9,7 +9,10 @@
 //! topological order, with its own noise (the g-formula by simulation). The
 //! two settings share the draw index and the noise stream of each node, so
 //! their difference is a paired contrast; the watched value of a draw is
-//! the mean over rows.
+//! the mean over rows. A category node is drawn as one level per row from
+//! its levels-family model (the softmax probabilities of its levels); a
+//! watched category gives one contrast per level, of the share of rows at
+//! that level.
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
@@ -35,10 +38,18 @@ pub struct InterventionRequest {
     pub mass: f64,
 }
 
-/// The contrast of one watched node under the two interventions.
+/// The contrast of one watched node (or one level of a watched category
+/// node) under the two interventions.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct WatchedContrast {
     pub node: String,
+    /// For a category node: the level whose share of rows is watched.
+    pub level: Option<String>,
+    /// Posterior mean of the watched value (row mean, or level share)
+    /// under the first setting, and under the second.
+    pub mean_under_to: f64,
+    pub mean_under_from: f64,
+    /// Posterior mean of the change.
     pub mean: f64,
     pub lower: f64,
     pub upper: f64,
@@ -85,13 +96,12 @@ pub fn intervene(
     let column = require_column(table, x, &place)?;
     let to = Setting::read(column, &request.to, &place)?;
     let from = Setting::read(column, &request.from, &place)?;
+    let mut targets = Vec::new();
     for w in &request.watch {
         if joint.node(w).is_none() {
             return Err(QueryError::request(format!("{place}: {w} is not an observed node of the joint model; watch one")));
         }
-        if require_column(table, w, &place)?.data.levels().is_some() {
-            return Err(QueryError::request(format!("{place}: {w} is a category; watch a numeric node")));
-        }
+        targets.extend(Target::of(w, require_column(table, w, &place)?));
     }
     if request.watch.is_empty() {
         return Err(QueryError::request(format!("{place}: name at least one node to watch")));
@@ -102,28 +112,32 @@ pub fn intervene(
     let draws = fit.fits.iter().flatten().map(|f| f.draws.len()).min().ok_or_else(|| {
         QueryError::request(format!("{place}: the joint model has no fitted regression; fit it first"))
     })?;
-    let mut per_watch = vec![Vec::with_capacity(draws); request.watch.len()];
+    let mut per_target = vec![(Vec::with_capacity(draws), Vec::with_capacity(draws)); targets.len()];
     for d in 0..draws {
         let under_to = simulate_draw(&base, x, &to, &steps, d, request.seed)?;
         let under_from = simulate_draw(&base, x, &from, &steps, d, request.seed)?;
-        for (w, values) in request.watch.iter().zip(per_watch.iter_mut()) {
-            values.push(row_mean(&under_to, w) - row_mean(&under_from, w));
+        for (target, (values_to, values_from)) in targets.iter().zip(per_target.iter_mut()) {
+            values_to.push(target.value(&under_to));
+            values_from.push(target.value(&under_from));
         }
     }
-    let watched = request
-        .watch
-        .iter()
-        .zip(per_watch)
-        .map(|(node, values)| {
-            let s = ContrastSummary::of(&values, request.mass)?;
+    let watched = targets
+        .into_iter()
+        .zip(per_target)
+        .map(|(target, (values_to, values_from))| {
+            let changes: Vec<f64> = values_to.iter().zip(&values_from).map(|(a, b)| a - b).collect();
+            let s = ContrastSummary::of(&changes, request.mass)?;
             Ok(WatchedContrast {
-                node: node.clone(),
+                node: target.node,
+                level: target.level,
+                mean_under_to: mean(&values_to),
+                mean_under_from: mean(&values_from),
                 mean: s.mean,
                 lower: s.lower,
                 upper: s.upper,
                 p_positive: s.p_positive,
                 p_negative: s.p_negative,
-                draws: values,
+                draws: changes,
             })
         })
         .collect::<Result<Vec<_>, QueryError>>()?;
@@ -219,9 +233,6 @@ fn simulation_steps<'a>(
         }
         let model = match &node.model {
             NodeModel::Regression { model, .. } => model,
-            NodeModel::Unsupported { reason } => {
-                return Err(QueryError::request(format!("{place}: {} must be simulated, but {reason}", node.name)))
-            }
             NodeModel::LevelShares { .. } => continue,
         };
         let node_fit = fit.fits.get(i).and_then(Option::as_ref).ok_or_else(|| {
@@ -239,15 +250,58 @@ fn simulate_draw(base: &Table, x: &str, setting: &Setting, steps: &[Step], d: us
         let rows = step.model.new_rows(&current)?;
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, step.index + 1));
         let values = step.model.outcome_draw(&step.params[d], &rows, &mut rng)?;
-        current = with_column(&current, Column::new(step.node, ColumnData::Real(values)));
+        let data = match step.model.outcome_levels() {
+            Some(levels) => ColumnData::Category { codes: values.iter().map(|&v| v as u32).collect(), levels: levels.to_vec() },
+            None => ColumnData::Real(values),
+        };
+        current = with_column(&current, Column::new(step.node, data));
     }
     Ok(current)
 }
 
-/// Mean of a numeric column over the rows.
-fn row_mean(table: &Table, name: &str) -> f64 {
-    let values = table.column(name).and_then(|c| c.data.as_reals()).unwrap_or_default();
+/// One watched value: the row mean of a numeric node, or the share of rows
+/// at one level of a category node.
+struct Target {
+    node: String,
+    level: Option<String>,
+}
+
+impl Target {
+    /// The watched values of node `name`: itself, or one per level.
+    fn of(name: &str, column: &Column) -> Vec<Target> {
+        match column.data.levels() {
+            Some(levels) => {
+                levels.iter().map(|l| Target { node: name.to_string(), level: Some(l.clone()) }).collect()
+            }
+            None => vec![Target { node: name.to_string(), level: None }],
+        }
+    }
+
+    /// The watched value over the rows of `table`.
+    fn value(&self, table: &Table) -> f64 {
+        let Some(column) = table.column(&self.node) else { return f64::NAN };
+        match (&self.level, &column.data) {
+            (Some(level), ColumnData::Category { codes, levels }) => {
+                let at = codes.iter().filter(|&&c| levels[c as usize] == *level).count();
+                at as f64 / codes.len().max(1) as f64
+            }
+            _ => mean(&column.data.as_reals().unwrap_or_default()),
+        }
+    }
+}
+
+fn mean(values: &[f64]) -> f64 {
     values.iter().sum::<f64>() / values.len().max(1) as f64
+}
+
+impl WatchedContrast {
+    /// The watched value in words: `height`, or `share of form = shrub`.
+    pub fn label(&self) -> String {
+        match &self.level {
+            Some(level) => format!("share of {} = {level}", self.node),
+            None => self.node.clone(),
+        }
+    }
 }
 
 /// The adjustment route and the joint-model route side by side.

@@ -5,16 +5,16 @@
 //! The default model of a node:
 //!
 //! * outcome family from the node's kind: real → normal, count → poisson,
-//!   binary → bernoulli;
+//!   binary → bernoulli, category → levels (softmax over the node's levels,
+//!   its first level the reference);
 //! * category parents → one intercept per level of the first, offsets for
 //!   the others; real parents → slopes, or one slope per level of the first
 //!   category parent when there is one (`x per c`);
 //! * a category node without parents → its level shares in the data (no
 //!   regression is needed to simulate it, and an intervention never changes
 //!   a node upstream of it);
-//! * a category node with parents → not supported yet (a multinomial model
-//!   is missing); the node is marked and any intervention that must
-//!   simulate it says so.
+//! * a category node with parents → a levels-family regression on its
+//!   parents, from which interventions draw the node's level.
 //!
 //! A node's model can be overridden by model lines (the `using` part may be
 //! left out); the override must use only the node's parents. A node with a
@@ -45,8 +45,6 @@ pub enum NodeModel {
     Regression { text: String, model: Box<Model> },
     /// A parentless category node, simulated from its level shares.
     LevelShares { levels: Vec<String>, shares: Vec<f64> },
-    /// A node the joint model cannot simulate, and why.
-    Unsupported { reason: String },
 }
 
 /// One observed node of a joint model.
@@ -75,7 +73,7 @@ pub struct JointModel {
 pub struct JointNodeSummary {
     pub node: String,
     pub parents: Vec<String>,
-    /// The model body, the level shares, or why the node is not supported.
+    /// The model body or the level shares.
     pub model: String,
 }
 
@@ -107,7 +105,6 @@ impl JointModel {
                             levels.iter().zip(shares).map(|(l, s)| format!("{l} {:.3}", s)).collect();
                         format!("level shares in the data: {}", parts.join(", "))
                     }
-                    NodeModel::Unsupported { reason } => format!("not supported: {reason}"),
                 },
             })
             .collect()
@@ -201,25 +198,11 @@ pub fn fit_joint_with_progress(
 /// The default model of `node` given its observed `parents`.
 fn default_model(joint: &str, table: &Table, node: &str, parents: &[String]) -> Result<NodeModel, QueryError> {
     let place = format!("joint {joint}");
-    if let ColumnData::Category { codes, levels } = &require_column(table, node, &place)?.data {
-        if !parents.is_empty() {
-            return Ok(NodeModel::Unsupported {
-                reason: format!(
-                    "{node} is a category with parents ({}), and a model of a category given its parents \
-                     (multinomial) is not available yet",
-                    parents.join(", ")
-                ),
-            });
-        }
-        let mut counts = vec![0usize; levels.len()];
-        codes.iter().for_each(|&c| counts[c as usize] += 1);
-        let n = codes.len().max(1) as f64;
-        return Ok(NodeModel::LevelShares {
-            levels: levels.clone(),
-            shares: counts.iter().map(|&c| c as f64 / n).collect(),
-        });
-    }
-    let family = family_for(table, node, &place)?;
+    let family = match &require_column(table, node, &place)?.data {
+        ColumnData::Category { codes, levels } if parents.is_empty() => return Ok(level_shares(codes, levels)),
+        ColumnData::Category { .. } => Family::Levels,
+        _ => family_for(table, node, &place)?,
+    };
     let is_category = |p: &String| table.column(p).is_some_and(|c| c.data.levels().is_some());
     let first_category = parents.iter().find(|p| is_category(p));
     let terms: Vec<String> = parents
@@ -238,6 +221,14 @@ fn default_model(joint: &str, table: &Table, node: &str, parents: &[String]) -> 
         lines.push(format!("family {}", family.name()));
     }
     regression(joint, table, node, lines)
+}
+
+/// A parentless category node: its level shares in the data.
+fn level_shares(codes: &[u32], levels: &[String]) -> NodeModel {
+    let mut counts = vec![0usize; levels.len()];
+    codes.iter().for_each(|&c| counts[c as usize] += 1);
+    let n = codes.len().max(1) as f64;
+    NodeModel::LevelShares { levels: levels.to_vec(), shares: counts.iter().map(|&c| c as f64 / n).collect() }
 }
 
 /// A node model from override lines, checked against the node's parents.

@@ -137,7 +137,6 @@ pub(crate) fn fit_joint(
         let Some(f) = node_fit else {
             let how = match &node.model {
                 NodeModel::LevelShares { .. } => "simulated from its level shares in the data; nothing to fit".to_string(),
-                NodeModel::Unsupported { reason } => format!("not fitted: {reason}"),
                 NodeModel::Regression { .. } => "not fitted".to_string(),
             };
             notes.push(format!("{}: {how}", node.name));
@@ -215,7 +214,7 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Dis
     let mut grid = Grid::new(&["watched", "mean change", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
     for w in &result.watched {
         let s = ContrastSummary { mean: w.mean, lower: w.lower, upper: w.upper, p_positive: w.p_positive, p_negative: w.p_negative, mass: result.mass };
-        let mut row = vec![w.node.clone()];
+        let mut row = vec![w.label()];
         row.extend(summary_cells(&s));
         grid.push(row);
     }
@@ -224,11 +223,15 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Dis
         format!("each draw sets {} in every row, keeps the nodes it does not cause as observed, and simulates {simulated} from their node models; the row means under the two settings are subtracted", request.variable),
         format!("the two settings share each draw and its noise (seed {}); {}s of the per-draw changes", result.seed, result.interval),
     ];
+    if result.watched.iter().any(|w| w.level.is_some()) {
+        notes.push("a watched category gives one row per level: the change in the share of rows at that level, each row's level drawn from the softmax probabilities of its node model".to_string());
+    }
     notes.extend(result.warnings.iter().map(|w| format!("warning: {w}")));
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
-    let named: Vec<(String, &[f64])> = result.watched.iter().map(|w| (w.node.clone(), w.draws.as_slice())).collect();
-    let outcome = result.watched.first().map_or("", |w| w.node.as_str());
+    let named: Vec<(String, &[f64])> = result.watched.iter().map(|w| (w.label(), w.draws.as_slice())).collect();
+    let outcome = result.watched.first().map_or(String::new(), |w| w.label());
+    let outcome = outcome.as_str();
     let svg = figures::differences(&format!("{name}: {}", result.intervention), table, outcome, &named, DensityArrangement::Stacked).ok();
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
 }
@@ -563,6 +566,10 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
     let model = session.models.get(m).ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
     })?;
+    if let Some(levels) = model.outcome_levels() {
+        let levels = levels.join(", ");
+        return Err(CellError::at(line, format!("{m} has a category outcome ({levels}); predictive checks summarise numeric outcomes and are not available for it yet")));
+    }
     let table = session.require_table(model.table_name(), line)?;
     let result = if prior {
         prior_predictive(model, table, sets, seed)

@@ -2,12 +2,16 @@
 //!
 //! Each family fixes the link between the linear predictor and the mean:
 //! normal — identity; bernoulli and binomial — logit; poisson — log. The
-//! likelihoods live in [`likelihood`] (row by row, for the GLM families) and
-//! [`gaussian`] (through sufficient statistics, for the normal family).
+//! levels family (a category outcome with K levels) has K − 1 linear
+//! predictors, one per level after the first, and a softmax link to the
+//! level probabilities. The likelihoods live in [`likelihood`] (row by row,
+//! for the GLM families), [`gaussian`] (through sufficient statistics, for
+//! the normal family) and [`softmax`] (row by row, for the levels family).
 
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
+pub mod softmax;
 
 use super::error::ModelError;
 
@@ -22,23 +26,28 @@ pub enum Family {
     Binomial { trials: String },
     /// Count outcome, log link.
     Poisson,
+    /// Category outcome: one linear predictor per level after the first
+    /// (the reference, whose predictor is 0), softmax link. The levels come
+    /// from the outcome column when the model is built.
+    Levels,
 }
 
 impl Family {
     /// Read the rest of a `family` line: `normal`, `bernoulli`, `poisson`,
-    /// or `binomial trials <column>`.
+    /// `levels`, or `binomial trials <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
         match words[..] {
             ["normal"] => Ok(Family::Normal),
             ["bernoulli"] => Ok(Family::Bernoulli),
             ["poisson"] => Ok(Family::Poisson),
+            ["levels"] => Ok(Family::Levels),
             ["binomial", "trials", column] => Ok(Family::Binomial { trials: column.to_string() }),
             ["binomial", ..] => Err(ModelError::syntax(
                 "a binomial outcome needs its number of trials: write `family binomial trials <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson or binomial trials <column>"
+                "`family {text}`: use normal, bernoulli, poisson, levels or binomial trials <column>"
             ))),
         }
     }
@@ -50,6 +59,7 @@ impl Family {
             Family::Bernoulli => "bernoulli",
             Family::Binomial { .. } => "binomial",
             Family::Poisson => "poisson",
+            Family::Levels => "levels",
         }
     }
 
@@ -59,6 +69,7 @@ impl Family {
             Family::Normal => "identity",
             Family::Bernoulli | Family::Binomial { .. } => "logit",
             Family::Poisson => "log",
+            Family::Levels => "softmax",
         }
     }
 
@@ -67,21 +78,26 @@ impl Family {
         matches!(self, Family::Normal)
     }
 
-    /// The mean of one outcome (per trial, for binomial) from the linear predictor.
+    /// The mean of one outcome (per trial, for binomial) from the linear
+    /// predictor. For the levels family, the probability of a level against
+    /// the reference alone (the two-level softmax); the probabilities of all
+    /// levels come from [`softmax::level_probabilities`].
     pub fn inverse_link(&self, eta: f64) -> f64 {
         match self {
             Family::Normal => eta,
-            Family::Bernoulli | Family::Binomial { .. } => logistic(eta),
+            Family::Bernoulli | Family::Binomial { .. } | Family::Levels => logistic(eta),
             Family::Poisson => eta.exp(),
         }
     }
 
     /// The linear predictor that gives mean `mu` (clamped away from the
-    /// edges of the mean's range, for starting values and default priors).
+    /// edges of the mean's range, for starting values and default priors);
+    /// for the levels family, the log odds of a level against the reference
+    /// when `mu` is its share of the two.
     pub fn link(&self, mu: f64) -> f64 {
         match self {
             Family::Normal => mu,
-            Family::Bernoulli | Family::Binomial { .. } => {
+            Family::Bernoulli | Family::Binomial { .. } | Family::Levels => {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }

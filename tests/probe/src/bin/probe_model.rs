@@ -4,7 +4,9 @@
 //! * `fit` — `columns` (name → `{"real": [...]}`, `{"count": [...]}`,
 //!   `{"binary": [...]}` or `{"category": {"codes": [...], "levels": [...]}}`)
 //!   and `model` (body lines of a model cell). Answers `names`, `mode`
-//!   (constrained), `design` (rows), `notes`.
+//!   (constrained), `design` (rows), `notes`, `family`; for a category
+//!   outcome also `levels` and `probabilities` (each fitted row's level
+//!   probabilities at the mode).
 //! * `log_likelihood` — as `fit`, plus `params` (constrained); answers
 //!   `log_likelihood` and `design`.
 //! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
@@ -20,7 +22,7 @@ use waypath::infer::fit::Method;
 use waypath::infer::laplace::laplace;
 use waypath::infer::nuts::NutsSettings;
 use waypath::model::spline::BSplineBasis;
-use waypath::model::{Model, ModelSpec, Prior};
+use waypath::model::{Model, ModelSpec, NewRows, Prior};
 use waypath::table::{Column, ColumnData, Table};
 
 fn main() {
@@ -88,12 +90,20 @@ fn design_rows(model: &Model) -> Value {
 fn fit(request: &Value) -> Result<Value, String> {
     let model = model(request)?;
     let fit = laplace(&model, &model.unconstrained_names(), &model.initial_point(), 0, 1).map_err(|e| e.to_string())?;
-    Ok(json!({
+    let mode = model.constrain(&fit.mode);
+    let mut answer = json!({
         "names": model.parameter_names(),
-        "mode": model.constrain(&fit.mode),
+        "mode": mode,
         "design": design_rows(&model),
         "notes": model.notes(),
-    }))
+        "family": model.family().name(),
+    });
+    if let Some(levels) = model.outcome_levels() {
+        let rows = NewRows { design: model.design_matrix().clone(), trials: None };
+        answer["levels"] = json!(levels);
+        answer["probabilities"] = json!(model.level_probabilities(&mode, &rows).map_err(|e| e.to_string())?);
+    }
+    Ok(answer)
 }
 
 fn log_likelihood(request: &Value) -> Result<Value, String> {
