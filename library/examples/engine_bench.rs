@@ -53,7 +53,8 @@ struct Row {
 }
 
 fn main() {
-    let chosen: Vec<String> = std::env::args().skip(1).collect();
+    let mut chosen: Vec<String> = std::env::args().skip(1).collect();
+    let chart = take_chart_path(&mut chosen);
     let wants = |case: &str| chosen.is_empty() || chosen.iter().any(|c| c == case);
     let mut rows = Vec::new();
     if wants("a") {
@@ -69,6 +70,63 @@ fn main() {
         rows.push(case_spline());
     }
     println!("{}", render(&rows));
+    if let Some(path) = chart {
+        match draw_chart(&rows, &path) {
+            Ok(()) => eprintln!("wrote the ESS-per-second chart to {}", path.display()),
+            Err(e) => eprintln!("could not write the chart {}: {e}", path.display()),
+        }
+    }
+}
+
+/// `--chart FILE.svg` anywhere among the arguments: where to draw the chart.
+fn take_chart_path(args: &mut Vec<String>) -> Option<PathBuf> {
+    let at = args.iter().position(|a| a == "--chart")?;
+    args.remove(at);
+    (at < args.len()).then(|| PathBuf::from(args.remove(at)))
+}
+
+/// A developer's chart of the table (drawn with plotters; the figures users
+/// see are drawn by `waypath::plot`): one bar per sampled case, ESS per
+/// second on a log axis, so a regression in any case stands out.
+fn draw_chart(rows: &[Row], path: &Path) -> Result<(), Box<dyn std::error::Error>> {
+    use plotters::prelude::*;
+    let bars: Vec<(String, f64)> = rows
+        .iter()
+        .filter_map(|r| r.min_ess.map(|e| (r.case.chars().take(48).collect(), e / r.seconds)))
+        .collect();
+    if bars.is_empty() {
+        return Err("no sampled case to chart".into());
+    }
+    let height = 110 + 52 * bars.len() as u32;
+    let root = SVGBackend::new(path, (760, height)).into_drawing_area();
+    root.fill(&WHITE)?;
+    let top = bars.iter().map(|b| b.1).fold(10.0, f64::max) * 3.0;
+    let mut chart = ChartBuilder::on(&root)
+        .caption("minimum bulk ESS per second of wall time", ("sans-serif", 18))
+        .margin(12)
+        .x_label_area_size(36)
+        .y_label_area_size(330)
+        .build_cartesian_2d((1.0..top).log_scale(), (0..bars.len() - 1).into_segmented())?;
+    chart
+        .configure_mesh()
+        .disable_y_mesh()
+        .y_labels(bars.len())
+        .y_label_formatter(&|v| match v {
+            SegmentValue::CenterOf(i) => bars.get(*i).map(|b| b.0.clone()).unwrap_or_default(),
+            _ => String::new(),
+        })
+        .x_label_formatter(&|x| format!("{x:.0}"))
+        .x_desc("ESS / s (log scale)")
+        .draw()?;
+    let fill = RGBColor(0x2b, 0x6f, 0x8e);
+    chart.draw_series(bars.iter().enumerate().map(|(i, (_, rate))| {
+        let mut bar =
+            Rectangle::new([(1.0, SegmentValue::Exact(i)), (*rate, SegmentValue::Exact(i + 1))], fill.filled());
+        bar.set_margin(8, 8, 0, 0);
+        bar
+    }))?;
+    root.present()?;
+    Ok(())
 }
 
 /// (a) A two-level category with its own intercept and slope, n = 400.
