@@ -26,6 +26,9 @@ from conftest import bin_dir
 
 FIRST_RUST_CELL_TIMEOUT = 1200  # s: the one-time compile of the library for Rust cells
 CELL_TIMEOUT = 60
+# s: a later Rust cell compiles one small crate; on a loaded 2-core machine,
+# or after a panic restarted the Rust context, that can take minutes.
+RUST_CELL_TIMEOUT = 300
 
 
 def waypath() -> str:
@@ -56,8 +59,10 @@ def start(cwd=None):
     return km, kc
 
 
-def run(kc, code, timeout=CELL_TIMEOUT):
+def run(kc, code, timeout=None):
     """Execute `code`; return (reply content, iopub messages of this request)."""
+    if timeout is None:
+        timeout = RUST_CELL_TIMEOUT if code.startswith("%%rust") else CELL_TIMEOUT
     msgs = []
     reply = kc.execute_interactive(code, timeout=timeout, output_hook=msgs.append)
     return reply["content"], msgs
@@ -342,7 +347,7 @@ def test_panic_and_compile_error_become_error_replies():
         queued = [kc.execute("graph skipped:\n    a -> b"), kc.execute("graph skipped_too:\n    a -> b")]
         replies = {}
         while len(replies) < 3:
-            msg = kc.get_shell_msg(timeout=60)
+            msg = kc.get_shell_msg(timeout=RUST_CELL_TIMEOUT)
             replies[msg["parent_header"]["msg_id"]] = msg["content"]["status"]
         assert replies == {failing: "error", queued[0]: "aborted", queued[1]: "aborted"}
         kc.inspect("skipped", 7)
