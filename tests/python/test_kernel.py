@@ -185,16 +185,23 @@ def test_message_signed_with_another_key_gets_no_reply_and_runs_nothing():
 LONG_RUST_CELL = '%%rust\nprintln!("looping");\nloop { std::thread::sleep(std::time::Duration::from_millis(5)); }'
 
 
-def wait_for_stream(kc, msg_id, marker, timeout=120):
-    """Read IOPub until a stream of request `msg_id` contains `marker`; return the stream texts."""
-    texts = []
+def iopub_of(kc, msg_id, timeout):
+    """IOPub messages of request `msg_id`, as they come, until `timeout` s have passed."""
     deadline = time.time() + timeout
     while time.time() < deadline:
         try:
             m = kc.get_iopub_msg(timeout=1)
         except Exception:
             continue
-        if m["parent_header"].get("msg_id") == msg_id and m["msg_type"] == "stream":
+        if m["parent_header"].get("msg_id") == msg_id:
+            yield m
+
+
+def wait_for_stream(kc, msg_id, marker, timeout=120):
+    """Read IOPub until a stream of request `msg_id` contains `marker`; return the stream texts."""
+    texts = []
+    for m in iopub_of(kc, msg_id, timeout):
+        if m["msg_type"] == "stream":
             texts.append(m["content"]["text"])
             if marker in m["content"]["text"]:
                 return texts
@@ -204,14 +211,7 @@ def wait_for_stream(kc, msg_id, marker, timeout=120):
 def wait_for_progress_updates(kc, msg_id, timeout=120):
     """Read IOPub until request `msg_id` has shown a progress display and updated it; return its id."""
     shown = None
-    deadline = time.time() + timeout
-    while time.time() < deadline:
-        try:
-            m = kc.get_iopub_msg(timeout=1)
-        except Exception:
-            continue
-        if m["parent_header"].get("msg_id") != msg_id:
-            continue
+    for m in iopub_of(kc, msg_id, timeout):
         display_id = m["content"].get("transient", {}).get("display_id")
         if m["msg_type"] == "display_data" and display_id and "fit m" in m["content"]["data"]["text/plain"]:
             shown = display_id
