@@ -28,6 +28,14 @@ pub enum PriorGroup {
 }
 
 impl PriorGroup {
+    /// Every group, in the order prior lines are documented.
+    pub const ALL: [PriorGroup; 4] = [PriorGroup::Intercepts, PriorGroup::Slopes, PriorGroup::Weights, PriorGroup::Spread];
+
+    /// The group words of a `prior` line.
+    pub fn words() -> Vec<&'static str> {
+        Self::ALL.iter().map(|g| g.name()).collect()
+    }
+
     /// The word used for the group in a `prior` line.
     pub fn name(self) -> &'static str {
         match self {
@@ -40,11 +48,14 @@ impl PriorGroup {
 
     /// Read a group word (`spline weights` is accepted for `weights`).
     pub fn parse(word: &str) -> Option<Self> {
-        match word.split_whitespace().collect::<Vec<_>>().join(" ").as_str() {
-            "intercepts" | "intercept" => Some(PriorGroup::Intercepts),
-            "slopes" | "slope" => Some(PriorGroup::Slopes),
-            "weights" | "spline weights" => Some(PriorGroup::Weights),
-            "spread" => Some(PriorGroup::Spread),
+        let word = word.split_whitespace().collect::<Vec<_>>().join(" ");
+        if let Some(group) = Self::ALL.iter().find(|g| g.name() == word) {
+            return Some(*group);
+        }
+        match word.as_str() {
+            "intercept" => Some(PriorGroup::Intercepts),
+            "slope" => Some(PriorGroup::Slopes),
+            "spline weights" => Some(PriorGroup::Weights),
             _ => None,
         }
     }
@@ -212,7 +223,13 @@ fn parse_numbers(inner: &str, whole: &str) -> Result<Vec<f64>, ModelError> {
         .collect()
 }
 
+/// The distributions a `prior` line may name, each written as a call.
+pub const PRIOR_DISTRIBUTIONS: &[&str] = &["normal", "student_t", "exponential", "half_normal", "lognormal", "uniform"];
+
 fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError> {
+    if !PRIOR_DISTRIBUTIONS.contains(&name) {
+        return Err(unknown_prior(name, args.len(), text));
+    }
     match (name, args) {
         ("normal", [mean, sd]) => Ok(Prior::Normal { mean: *mean, sd: *sd }),
         ("student_t", [df, location, scale]) => {
@@ -236,8 +253,9 @@ fn unknown_prior(name: &str, given: usize, text: &str) -> ModelError {
         "uniform" => "2 numbers (lower, upper)",
         _ => {
             return ModelError::syntax(format!(
-                "`{text}`: unknown distribution `{name}`; use normal, student_t, exponential, \
-                 half_normal, lognormal or uniform"
+                "`{text}`: unknown distribution `{name}`; use {} or {}",
+                PRIOR_DISTRIBUTIONS[..PRIOR_DISTRIBUTIONS.len() - 1].join(", "),
+                PRIOR_DISTRIBUTIONS[PRIOR_DISTRIBUTIONS.len() - 1]
             ))
         }
     };
