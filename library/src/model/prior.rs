@@ -288,3 +288,22 @@ impl Prior {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every distribution completion offers is one the parser builds: the
+    /// list and the parser's match stay in step. Arguments inside each
+    /// distribution's support (README "Statements": `prior slopes: normal(0, 2)`).
+    #[test]
+    fn every_listed_distribution_parses() {
+        for name in PRIOR_DISTRIBUTIONS {
+            let built = ["(1)", "(0, 2)", "(3, 0, 2)"].iter().any(|args| Prior::parse(&format!("{name}{args}")).is_ok());
+            assert!(built, "{name} is listed but no argument count parses");
+        }
+        assert!(Prior::parse("cauchy(0, 1)").is_err());
+        let groups: Vec<Option<PriorGroup>> = PriorGroup::words().iter().map(|w| PriorGroup::parse(w)).collect();
+        assert_eq!(groups, PriorGroup::ALL.map(Some));
+    }
+}
