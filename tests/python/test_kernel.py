@@ -100,6 +100,11 @@ class WaypathKernelTests(jupyter_kernel_test.KernelTests):
         {"text": "ask total effect of girth on yield in orchard us", "matches": {"using"}},
         {"text": "table trees fr", "matches": {"from"}},
         {"text": "fit m with nu", "matches": {"nuts"}},
+        # body-line words of the README "Statements" examples (`family bernoulli`, `drop missing`,
+        # `x = normal(2 + 0.5 * z, 1)`), taken from the block's own parser
+        {"text": "model m:\n    yield from girth using trees\n    family bern", "matches": {"bernoulli"}},
+        {"text": "table trees from \"orchard.csv\":\n    drop mi", "matches": {"missing"}},
+        {"text": "simulate s from orchard rows 50 seed 7:\n    girth = nor", "matches": {"normal("}},
     ]
     complete_code_samples = ["paths from a to b in g", "graph g:\n    a -> b\n\n", "%%rust\nlet x = 1;"]
     incomplete_code_samples = ["graph g:", "graph g:\n    a -> b\n", "%%rust\nfn grow() {"]

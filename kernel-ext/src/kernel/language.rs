@@ -5,7 +5,8 @@
 
 use serde_json::{json, Value};
 use waypath::cells::parse::{is_incomplete, split_statements};
-use waypath::cells::statements::grammar::{next_words, statement_words};
+use waypath::cells::statements::body_grammar::{body_next_words, Block};
+use waypath::cells::statements::grammar::{next_words, statement_words, Next};
 use waypath::cells::Session;
 use waypath::table::Table;
 
@@ -66,9 +67,12 @@ fn rust_is_open(code: &str) -> bool {
 
 /// The `complete_reply` content: statement words at the start of a line;
 /// in a header, the connecting words its statement's grammar allows next
-/// (`from`, `given`, `using`, `with`, sampler options …) and, where a
-/// value fits, names of session objects, table columns, category levels
-/// and graph nodes; in a body line or a Rust cell, those names.
+/// (`from`, `given`, `using`, `with`, sampler options …); in a body line of
+/// a `model`, `joint`, `table` or `simulate` block, the words its parser
+/// allows next (`family`, `per`, `category(`, `keep where`, `normal(` …);
+/// and, where a value fits, names of session objects, table columns,
+/// category levels and graph nodes. In other bodies and Rust cells, those
+/// names.
 pub fn complete(session: &Session, code: &str, cursor_pos: usize) -> Value {
     let (before, start) = text_before(code, cursor_pos);
     let word = current_word(&before);
@@ -77,7 +81,7 @@ pub fn complete(session: &Session, code: &str, cursor_pos: usize) -> Value {
     let mut candidates: Vec<String> = if at_statement_start {
         statement_words().iter().map(|w| w.to_string()).chain([RUST_MAGIC.to_string()]).collect()
     } else {
-        header_words(session, code, &line_start[..line_start.len() - word.len()])
+        line_words(session, code, &before, &line_start[..line_start.len() - word.len()])
     };
     candidates.retain(|c| c.starts_with(word));
     candidates.sort();
@@ -114,20 +118,35 @@ fn current_word(before: &str) -> &str {
 }
 
 /// Candidates inside a line that does not start a statement: `typed` is
-/// the line before the word being completed. A header line of the cell
-/// language gets what its grammar allows next; a body line, a Rust cell, or
-/// a header no form knows gets every session name.
-fn header_words(session: &Session, code: &str, typed: &str) -> Vec<String> {
-    let is_header = !typed.starts_with([' ', '\t']) && rust_source(code).is_none();
-    let next = if is_header { next_words(typed) } else { Default::default() };
-    if next.words.is_empty() && !next.values {
+/// the line before the word being completed. A header line gets what its
+/// grammar allows next, a body line what the parser of its block allows;
+/// a Rust cell, a body of another block, or a line no grammar reads gets
+/// every session name.
+fn line_words(session: &Session, code: &str, before: &str, typed: &str) -> Vec<String> {
+    if rust_source(code).is_some() {
+        return session_words(session);
+    }
+    let next = if typed.starts_with([' ', '\t']) {
+        block_at(before).map(|block| body_next_words(block, typed)).unwrap_or_default()
+    } else {
+        next_words(typed)
+    };
+    if next == Next::default() {
         return session_words(session);
     }
     let mut words: Vec<String> = next.words.iter().map(|w| w.to_string()).collect();
+    words.extend(next.calls.iter().map(|c| format!("{c}(")));
     if next.values {
         words.extend(session_words(session));
     }
     words
+}
+
+/// The block whose body the cursor is in: the statement of the nearest
+/// header line (one that is not indented) above the cursor's line.
+fn block_at(before: &str) -> Option<Block> {
+    let header = before.lines().rev().skip(1).find(|l| !l.trim().is_empty() && !l.starts_with([' ', '\t']))?;
+    Block::of_header(header)
 }
 
 /// Every name a cell could refer to: objects, columns, category levels.
@@ -398,6 +417,178 @@ mod tests {
         // the reply replaces the partial word (Jupyter messaging: cursor_start..cursor_end)
         let reply = complete(&session, "paths from a to b in g giv", 26);
         assert_eq!((reply["cursor_start"].as_u64(), reply["cursor_end"].as_u64()), (Some(23), Some(26)));
+    }
+
+    /// The words offered in a body line of the block `header` opens.
+    fn offered_in(session: &Session, header: &str, line: &str) -> Vec<String> {
+        offered(session, &format!("{header}\n    {line}"))
+    }
+
+    /// A session with the orchard table of the README's examples: columns
+    /// girth (real) and rootstock (category dwarf, standard).
+    fn orchard_session() -> Session {
+        use waypath::table::{Column, ColumnData, Table};
+        let mut session = Session::new(".");
+        session.put_table("trees", Table {
+            name: "trees".into(),
+            columns: vec![
+                Column::new("girth", ColumnData::Real(vec![20.0, 31.0])),
+                Column::new("rootstock", ColumnData::Category { codes: vec![0, 1], levels: vec!["dwarf".into(), "standard".into()] }),
+            ],
+        });
+        session
+    }
+
+    /// README "Statements", `model NAME:`: `yield from rootstock, girth per
+    /// rootstock using trees`; `family bernoulli` (or `poisson`, `binomial
+    /// trials n`, `levels`), `prior slopes: normal(0, 2)`, `centre off`.
+    #[test]
+    fn model_body_lines_offer_the_words_of_the_model_parser() {
+        let empty = Session::new(".");
+        let cases: &[(&str, &[&str])] = &[
+            ("", &["centre", "family", "prior"]),
+            ("family ", &["bernoulli", "binomial", "levels", "normal", "poisson"]),
+            ("family binomial ", &["trials"]),
+            ("prior ", &["intercepts", "slopes", "spread", "weights"]),
+            ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student_t(", "uniform("]),
+            ("centre ", &["off", "on"]),
+            ("yield ", &["from", "using"]),
+            ("yield from rootstock ", &["per", "using"]),
+            ("yield from rootstock, girth per rootstock ", &["using"]),
+            ("yield from poly(girth, 2) ", &["using"]),
+            ("yield from spline(girth, 5, ", &["knots"]),
+            ("fam", &["family"]),
+            ("yield from rootstock, po", &["poly("]),
+        ];
+        for (line, want) in cases {
+            assert_eq!(offered_in(&empty, "model m:", line), *want, "after {line:?}");
+        }
+        let session = orchard_session();
+        // a value place keeps the names: columns and levels of the session's tables
+        assert_eq!(offered_in(&session, "model m:", "yield from rootstock, gi"), ["girth"]);
+        assert_eq!(offered_in(&session, "model m:", "yield from girth per r"), ["rootstock"]);
+        assert_eq!(offered_in(&session, "model m:", "yield from girth using t"), ["trees"]);
+        assert_eq!(offered_in(&session, "model m:", "family binomial trials gi"), ["girth"]);
+        // the block is found above earlier body lines
+        assert_eq!(offered(&empty, "model m:\n    yield from girth using trees\n    family be"), ["bernoulli"]);
+    }
+
+    /// README "Statements", `joint NAME = G using T[:]`: body lines such as
+    /// `girth from rootstock` (with `family …`, `prior …` below).
+    #[test]
+    fn joint_body_lines_offer_model_line_words() {
+        let session = Session::new(".");
+        let header = "joint j = orchard using trees:";
+        assert_eq!(offered_in(&session, header, ""), ["centre", "family", "prior"]);
+        assert_eq!(offered_in(&session, header, "girth "), ["from", "using"]);
+        assert_eq!(offered_in(&session, header, "girth from rootstock "), ["per", "using"]);
+        assert_eq!(offered(&session, &format!("{header}\n    girth from rootstock\n    family ")), ["bernoulli", "binomial", "levels", "normal", "poisson"]);
+    }
+
+    /// README "Statements", `table NAME from "FILE.csv":`: `x: real in cm`,
+    /// `c: category(a, b)`, `n: count`, `flag: binary`, `drop missing`,
+    /// `keep where COND`.
+    #[test]
+    fn table_body_lines_offer_the_words_of_the_table_parser() {
+        let empty = Session::new(".");
+        let header = "table trees from \"orchard.csv\":";
+        let cases: &[(&str, &[&str])] = &[
+            ("", &["drop", "keep"]),
+            ("drop ", &["missing"]),
+            ("keep ", &["where"]),
+            ("x: ", &["binary", "category", "category(", "count", "real"]),
+            ("x: real ", &["in"]),
+            ("c: category(a, b) ", &["in"]),
+            ("keep where ", &["not"]),
+            ("keep where girth > 0 ", &["and", "or"]),
+            ("keep where girth > 0 and ", &["not"]),
+        ];
+        for (line, want) in cases {
+            assert_eq!(offered_in(&empty, header, line), *want, "after {line:?}");
+        }
+        let session = orchard_session();
+        assert_eq!(offered_in(&session, header, "keep where girth > 0 and rootstock = st"), ["standard"]);
+        assert_eq!(offered_in(&session, header, "gi"), ["girth"]);
+    }
+
+    /// README "Statements", `simulate NAME from G rows N seed S:`: `c =
+    /// category(a 0.5, b 0.5)`, `x = normal(2 + 0.5 * z, 1)`, `f =
+    /// bernoulli(logit = …)`, `n = poisson(log = …)`.
+    #[test]
+    fn simulate_body_lines_offer_mechanism_words() {
+        let session = Session::new(".");
+        let header = "simulate s from orchard rows 50 seed 7:";
+        let cases: &[(&str, &[&str])] = &[
+            ("x ", &["="]),
+            ("x = ", &["bernoulli(", "category(", "normal(", "poisson("]),
+            ("f = bernoulli(", &["exp(", "log(", "logit"]),
+            ("n = poisson(", &["exp(", "log", "log("]),
+            ("x = normal(2 + 0.5 * ", &["exp(", "log("]),
+            ("x = no", &["normal("]),
+        ];
+        for (line, want) in cases {
+            assert_eq!(offered_in(&session, header, line), *want, "after {line:?}");
+        }
+    }
+
+    /// Every body-line example of the README's "Statements" table that its
+    /// block's parser reads: at each word, the completion of that place
+    /// offers the word, or the place takes a value. A word a parser gains
+    /// without the completion knowing fails here.
+    #[test]
+    fn readme_body_examples_are_offered_word_by_word() {
+        let readme = include_str!("../../../README.md");
+        let blocks = [
+            ("| `model NAME:`", Block::Model),
+            ("| `joint NAME = G using T[:]`", Block::Joint),
+            ("| `table NAME from \"FILE.csv\":`", Block::Table),
+            ("| `simulate NAME from G rows N seed S:`", Block::Simulate),
+        ];
+        let mut checked = 0;
+        for (row_start, block) in blocks {
+            let row = readme.lines().find(|l| l.starts_with(row_start)).unwrap_or_else(|| panic!("README row {row_start}"));
+            let examples: Vec<String> = row.split('`').skip(3).step_by(2).map(|e| e.replace('…', "1")).collect();
+            for example in examples.iter().filter(|e| parses(block, e)) {
+                for (at, word) in words_of_line(example) {
+                    let next = body_next_words(block, &example[..at]);
+                    let is_call = example[at + word.len()..].starts_with('(');
+                    let fixed = if is_call { next.calls.contains(&word) } else { next.words.contains(&word) };
+                    let free = next.values || next == Next::default();
+                    assert!(fixed || (free && !is_call), "{example:?}: `{word}` not offered after {:?}: {next:?}", &example[..at]);
+                    checked += 1;
+                }
+            }
+        }
+        assert!(checked >= 30, "only {checked} README words checked");
+    }
+
+    /// Whether the block's own parser reads `line` as a body line.
+    fn parses(block: Block, line: &str) -> bool {
+        match block {
+            Block::Model | Block::Joint => waypath::model::parse_model_line(line).is_ok(),
+            Block::Table => waypath::table::parse_table_line(line).is_ok(),
+            Block::Simulate => matches!(waypath::query::parse_mechanism_line(line), Ok(Some(_))),
+        }
+    }
+
+    /// The identifier-like words of a line (not numbers) with their offsets.
+    fn words_of_line(line: &str) -> Vec<(usize, &str)> {
+        let is_word_char = |c: char| c.is_alphanumeric() || c == '_';
+        let mut out = Vec::new();
+        let mut start = None;
+        for (i, c) in line.char_indices().chain([(line.len(), ' ')]) {
+            match (start, is_word_char(c)) {
+                (None, true) => start = Some(i),
+                (Some(s), false) => {
+                    if !line[s..i].starts_with(|c: char| c.is_ascii_digit()) {
+                        out.push((s, &line[s..i]));
+                    }
+                    start = None;
+                }
+                _ => {}
+            }
+        }
+        out
     }
 
     #[test]

@@ -28,6 +28,14 @@ pub enum PriorGroup {
 }
 
 impl PriorGroup {
+    /// Every group, in the order prior lines are documented.
+    pub const ALL: [PriorGroup; 4] = [PriorGroup::Intercepts, PriorGroup::Slopes, PriorGroup::Weights, PriorGroup::Spread];
+
+    /// The group words of a `prior` line.
+    pub fn words() -> Vec<&'static str> {
+        Self::ALL.iter().map(|g| g.name()).collect()
+    }
+
     /// The word used for the group in a `prior` line.
     pub fn name(self) -> &'static str {
         match self {
@@ -40,11 +48,14 @@ impl PriorGroup {
 
     /// Read a group word (`spline weights` is accepted for `weights`).
     pub fn parse(word: &str) -> Option<Self> {
-        match word.split_whitespace().collect::<Vec<_>>().join(" ").as_str() {
-            "intercepts" | "intercept" => Some(PriorGroup::Intercepts),
-            "slopes" | "slope" => Some(PriorGroup::Slopes),
-            "weights" | "spline weights" => Some(PriorGroup::Weights),
-            "spread" => Some(PriorGroup::Spread),
+        let word = word.split_whitespace().collect::<Vec<_>>().join(" ");
+        if let Some(group) = Self::ALL.iter().find(|g| g.name() == word) {
+            return Some(*group);
+        }
+        match word.as_str() {
+            "intercept" => Some(PriorGroup::Intercepts),
+            "slope" => Some(PriorGroup::Slopes),
+            "spline weights" => Some(PriorGroup::Weights),
             _ => None,
         }
     }
@@ -212,7 +223,13 @@ fn parse_numbers(inner: &str, whole: &str) -> Result<Vec<f64>, ModelError> {
         .collect()
 }
 
+/// The distributions a `prior` line may name, each written as a call.
+pub const PRIOR_DISTRIBUTIONS: &[&str] = &["normal", "student_t", "exponential", "half_normal", "lognormal", "uniform"];
+
 fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError> {
+    if !PRIOR_DISTRIBUTIONS.contains(&name) {
+        return Err(unknown_prior(name, args.len(), text));
+    }
     match (name, args) {
         ("normal", [mean, sd]) => Ok(Prior::Normal { mean: *mean, sd: *sd }),
         ("student_t", [df, location, scale]) => {
@@ -236,8 +253,9 @@ fn unknown_prior(name: &str, given: usize, text: &str) -> ModelError {
         "uniform" => "2 numbers (lower, upper)",
         _ => {
             return ModelError::syntax(format!(
-                "`{text}`: unknown distribution `{name}`; use normal, student_t, exponential, \
-                 half_normal, lognormal or uniform"
+                "`{text}`: unknown distribution `{name}`; use {} or {}",
+                PRIOR_DISTRIBUTIONS[..PRIOR_DISTRIBUTIONS.len() - 1].join(", "),
+                PRIOR_DISTRIBUTIONS[PRIOR_DISTRIBUTIONS.len() - 1]
             ))
         }
     };
@@ -268,5 +286,24 @@ impl Prior {
             }
             Prior::Uniform { lower, upper } => lower + (upper - lower) * rand::RngExt::random::<f64>(rng),
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every distribution completion offers is one the parser builds: the
+    /// list and the parser's match stay in step. Arguments inside each
+    /// distribution's support (README "Statements": `prior slopes: normal(0, 2)`).
+    #[test]
+    fn every_listed_distribution_parses() {
+        for name in PRIOR_DISTRIBUTIONS {
+            let built = ["(1)", "(0, 2)", "(3, 0, 2)"].iter().any(|args| Prior::parse(&format!("{name}{args}")).is_ok());
+            assert!(built, "{name} is listed but no argument count parses");
+        }
+        assert!(Prior::parse("cauchy(0, 1)").is_err());
+        let groups: Vec<Option<PriorGroup>> = PriorGroup::words().iter().map(|w| PriorGroup::parse(w)).collect();
+        assert_eq!(groups, PriorGroup::ALL.map(Some));
     }
 }

@@ -32,6 +32,31 @@ use super::error::ModelError;
 use super::family::Family;
 use super::prior::{Prior, PriorGroup};
 
+/// The first word of a family line.
+pub const FAMILY_LINE: &str = "family";
+/// The first word of a prior line.
+pub const PRIOR_LINE: &str = "prior";
+/// The first word of a centring line.
+pub const CENTRE_LINE: &str = "centre";
+/// The words that start a body line other than the outcome line.
+pub const LINE_WORDS: &[&str] = &[FAMILY_LINE, PRIOR_LINE, CENTRE_LINE];
+/// The settings of a centring line: on, off.
+pub const CENTRINGS: &[&str] = &["on", "off"];
+/// The word between the outcome and its terms.
+pub const FROM: &str = "from";
+/// The word before the table of the outcome line.
+pub const USING: &str = "using";
+/// The word between a predictor and the category of its per-level slopes.
+pub const PER: &str = "per";
+/// The polynomial term `poly(x, d)`.
+pub const POLY: &str = "poly";
+/// The B-spline term `spline(x, k[, knots …])`.
+pub const SPLINE: &str = "spline";
+/// The terms written as calls.
+pub const TERM_CALLS: &[&str] = &[POLY, SPLINE];
+/// The word before listed interior knots of a spline term.
+pub const KNOTS: &str = "knots";
+
 /// One term of the right-hand side of the outcome line.
 #[derive(Debug, Clone, PartialEq)]
 pub enum TermSpec {
@@ -186,9 +211,9 @@ pub fn parse_model_line(text: &str) -> Result<ModelLine, ModelError> {
     }
     let (head, rest) = text.split_once(char::is_whitespace).unwrap_or((text, ""));
     match head {
-        "family" => Family::parse(rest.trim()).map(ModelLine::Family),
-        "prior" => parse_prior_line(rest.trim()),
-        "centre" => parse_centring(rest.trim()),
+        FAMILY_LINE => Family::parse(rest.trim()).map(ModelLine::Family),
+        PRIOR_LINE => parse_prior_line(rest.trim()),
+        CENTRE_LINE => parse_centring(rest.trim()),
         _ => parse_formula(text).map(ModelLine::Formula),
     }
 }
@@ -209,22 +234,21 @@ fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
 }
 
 fn parse_centring(rest: &str) -> Result<ModelLine, ModelError> {
-    match rest {
-        "on" => Ok(ModelLine::Centring(true)),
-        "off" => Ok(ModelLine::Centring(false)),
-        _ => Err(ModelError::syntax(format!("`centre {rest}`: write `centre on` or `centre off`"))),
+    match CENTRINGS.iter().position(|w| *w == rest) {
+        Some(i) => Ok(ModelLine::Centring(i == 0)),
+        None => Err(ModelError::syntax(format!("`centre {rest}`: write `centre on` or `centre off`"))),
     }
 }
 
 fn parse_formula(text: &str) -> Result<Formula, ModelError> {
-    let (left, table) = text.rsplit_once(" using ").ok_or_else(|| {
+    let (left, table) = text.rsplit_once(&*format!(" {USING} ")).ok_or_else(|| {
         ModelError::syntax(format!(
             "`{text}` is not a model line; an outcome line ends with `using <table>`, \
              other lines start with family, prior or centre"
         ))
     })?;
     let table = identifier(table.trim(), "table name")?;
-    let (outcome, terms) = match left.split_once(" from ") {
+    let (outcome, terms) = match left.split_once(&*format!(" {FROM} ")) {
         Some((outcome, terms)) => (outcome, split_terms(terms)?),
         None => (left, Vec::new()),
     };
@@ -259,13 +283,13 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     if text.is_empty() {
         return Err(ModelError::syntax("an empty term between commas; remove the extra comma"));
     }
-    if let Some(inner) = call_arguments(text, "poly") {
+    if let Some(inner) = call_arguments(text, POLY) {
         return parse_poly(inner, text);
     }
-    if let Some(inner) = call_arguments(text, "spline") {
+    if let Some(inner) = call_arguments(text, SPLINE) {
         return parse_spline(inner, text);
     }
-    if let Some((x, by)) = text.split_once(" per ") {
+    if let Some((x, by)) = text.split_once(&*format!(" {PER} ")) {
         return Ok(TermSpec::Per {
             predictor: identifier(x.trim(), "predictor")?,
             by: identifier(by.trim(), "category after `per`")?,
@@ -306,7 +330,7 @@ fn parse_spline(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
 }
 
 fn parse_knots(listed: &str, whole: &str) -> Option<Result<Vec<f64>, ModelError>> {
-    let values = listed.strip_prefix("knots")?;
+    let values = listed.strip_prefix(KNOTS)?;
     Some(
         values
             .split_whitespace()

@@ -244,8 +244,8 @@ fn override_model(
         .iter()
         .map(|l| {
             let head = l.split_whitespace().next().unwrap_or("");
-            let is_formula = !l.trim().is_empty() && !["family", "prior", "centre"].contains(&head) && !l.trim_start().starts_with('#');
-            if is_formula && !l.contains(" using ") {
+            let is_formula = !l.trim().is_empty() && !crate::model::spec::LINE_WORDS.contains(&head) && !l.trim_start().starts_with('#');
+            if is_formula && !l.contains(&*format!(" {} ", crate::model::spec::USING)) {
                 format!("{} using {}", l.trim(), table.name)
             } else {
                 l.clone()

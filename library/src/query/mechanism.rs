@@ -17,6 +17,20 @@
 
 use std::fmt;
 
+/// The distributions of a mechanism, each written as a call.
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON];
+pub const CATEGORY: &str = "category";
+pub const NORMAL: &str = "normal";
+pub const BERNOULLI: &str = "bernoulli";
+pub const POISSON: &str = "poisson";
+/// The keyword of a bernoulli mechanism given on the logit scale.
+pub const LOGIT: &str = "logit";
+/// The keyword of a poisson mechanism given on the log scale.
+pub const LOG: &str = "log";
+/// The functions of a mechanism expression: `log(…)`, `exp(…)`.
+pub const FUNCTIONS: &[&str] = &[LOG, EXP];
+const EXP: &str = "exp";
+
 /// An arithmetic expression of a mechanism.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Expr {
@@ -102,10 +116,10 @@ impl Mechanism {
 impl fmt::Display for Mechanism {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let name = match self {
-            Mechanism::Category { .. } => "category",
-            Mechanism::Normal { .. } => "normal",
-            Mechanism::Bernoulli { .. } => "bernoulli",
-            Mechanism::Poisson { .. } => "poisson",
+            Mechanism::Category { .. } => CATEGORY,
+            Mechanism::Normal { .. } => NORMAL,
+            Mechanism::Bernoulli { .. } => BERNOULLI,
+            Mechanism::Poisson { .. } => POISSON,
         };
         f.write_str(name)
     }
@@ -132,22 +146,24 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
     let dist = rest[..open].trim();
     let args = split_top_level(&rest[open + 1..rest.len() - 1]);
     let mechanism = match (dist, args.as_slice()) {
-        ("category", items) => parse_category(name, items)?,
-        ("normal", [mean, sd]) => Mechanism::Normal { mean: parse_expr(mean)?, sd: parse_expr(sd)? },
-        ("bernoulli", [p]) => match keyword_argument(p, "logit") {
+        (CATEGORY, items) => parse_category(name, items)?,
+        (NORMAL, [mean, sd]) => Mechanism::Normal { mean: parse_expr(mean)?, sd: parse_expr(sd)? },
+        (BERNOULLI, [p]) => match keyword_argument(p, LOGIT) {
             Some(eta) => Mechanism::Bernoulli { p: parse_expr(eta)?, logit: true },
             None => Mechanism::Bernoulli { p: parse_expr(p)?, logit: false },
         },
-        ("poisson", [rate]) => match keyword_argument(rate, "log") {
+        (POISSON, [rate]) => match keyword_argument(rate, LOG) {
             Some(eta) => Mechanism::Poisson { rate: parse_expr(eta)?, log: true },
             None => Mechanism::Poisson { rate: parse_expr(rate)?, log: false },
         },
-        ("normal", _) => return Err(format!("normal takes 2 arguments (mean, sd), not {}", args.len())),
-        ("bernoulli", _) => return Err(format!("bernoulli takes 1 argument (p, or logit = …), not {}", args.len())),
-        ("poisson", _) => return Err(format!("poisson takes 1 argument (rate, or log = …), not {}", args.len())),
+        (NORMAL, _) => return Err(format!("normal takes 2 arguments (mean, sd), not {}", args.len())),
+        (BERNOULLI, _) => return Err(format!("bernoulli takes 1 argument (p, or logit = …), not {}", args.len())),
+        (POISSON, _) => return Err(format!("poisson takes 1 argument (rate, or log = …), not {}", args.len())),
         _ => {
             return Err(format!(
-                "unknown distribution `{dist}`; use category, normal, bernoulli or poisson"
+                "unknown distribution `{dist}`; use {} or {}",
+                DISTRIBUTIONS[..DISTRIBUTIONS.len() - 1].join(", "),
+                DISTRIBUTIONS[DISTRIBUTIONS.len() - 1]
             ))
         }
     };
@@ -304,13 +320,13 @@ impl Parser<'_> {
                 let word = self.word();
                 self.skip_space();
                 match (word.as_str(), self.peek()) {
-                    ("log" | "exp", Some('(')) => {
+                    (LOG | EXP, Some('(')) => {
                         self.at += 1;
                         let inner = Box::new(self.sum()?);
                         self.expect(')')?;
-                        Ok(if word == "log" { Expr::Log(inner) } else { Expr::Exp(inner) })
+                        Ok(if word == LOG { Expr::Log(inner) } else { Expr::Exp(inner) })
                     }
-                    (_, Some('(')) => Err(format!("unknown function `{word}`; use log or exp")),
+                    (_, Some('(')) => Err(format!("unknown function `{word}`; use {}", FUNCTIONS.join(" or "))),
                     _ => Ok(Expr::Name(word)),
                 }
             }

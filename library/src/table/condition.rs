@@ -12,6 +12,12 @@ use super::error::TableError;
 use super::suggest::{join_words, near_matches};
 use super::{ColumnData, Table};
 
+/// The words that join comparisons.
+pub const AND: &str = "and";
+pub const OR: &str = "or";
+/// The word that negates a condition.
+pub const NOT: &str = "not";
+
 /// A comparison operator.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 pub enum Comparison {
@@ -293,7 +299,7 @@ fn binary_for(name: &str, value: &Literal, context: &Context) -> Result<f64, Tab
 /// Writes a name in double quotes when it would not read back as one word.
 fn quote_if_needed(name: &str) -> String {
     let plain = !name.is_empty()
-        && !matches!(name, "and" | "or" | "not")
+        && ![AND, OR, NOT].contains(&name)
         && name.chars().all(|c| !c.is_whitespace() && !SPECIAL.contains(&c));
     if plain {
         name.to_string()
@@ -380,9 +386,9 @@ fn tokenize(text: &str) -> Result<Vec<Token>, String> {
 /// Classifies an unquoted word: keyword, finite number, or name.
 fn bare_word(text: String) -> Token {
     match text.as_str() {
-        "and" => return Token::And,
-        "or" => return Token::Or,
-        "not" => return Token::Not,
+        AND => return Token::And,
+        OR => return Token::Or,
+        NOT => return Token::Not,
         _ => {}
     }
     let starts_numeric = text.starts_with(|c: char| c.is_ascii_digit() || matches!(c, '-' | '+' | '.'));

@@ -23,6 +23,17 @@ use super::error::TableError;
 use super::suggest::{near_matches, perhaps};
 use super::ColumnKind;
 
+/// The words of the line that leaves out rows with a missing value.
+pub const DROP: &str = "drop";
+pub const MISSING: &str = "missing";
+/// The words that start a row filter.
+pub const KEEP: &str = "keep";
+pub const WHERE: &str = "where";
+/// The word before a column's unit.
+pub const IN: &str = "in";
+/// The word of the column kind that may list its levels in brackets.
+pub const CATEGORY: &str = "category";
+
 /// One declared column: `name: kind[(levels)] [in unit]`.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct ColumnDecl {
@@ -116,9 +127,9 @@ pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
     let fail = |problem: String| TableError::RuleSyntax { line: line.into(), problem: problem.into() };
     let words: Vec<&str> = line.split_whitespace().collect();
     match words.as_slice() {
-        ["drop", "missing"] => return Ok(TableRule::DropMissing),
-        ["keep", "where", ..] => {
-            let rest = line["keep".len()..].trim_start()["where".len()..].trim();
+        [DROP, MISSING] => return Ok(TableRule::DropMissing),
+        [KEEP, WHERE, ..] => {
+            let rest = line[KEEP.len()..].trim_start()[WHERE.len()..].trim();
             return Condition::parse(rest).map(TableRule::KeepWhere).map_err(fail);
         }
         _ => {}
@@ -128,18 +139,19 @@ pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
     }
     let problem = match words.first() {
         None => "the line is empty".to_string(),
-        Some(&"drop") => "write \"drop missing\" to leave out rows with a missing value".to_string(),
-        Some(&"keep") => "write \"keep where\" and a condition, e.g. keep where girth > 0".to_string(),
+        Some(&DROP) => "write \"drop missing\" to leave out rows with a missing value".to_string(),
+        Some(&KEEP) => "write \"keep where\" and a condition, e.g. keep where girth > 0".to_string(),
         Some(_) => "expected a column declaration such as \"girth: real in cm\", \"drop missing\" or \"keep where\" and a condition".to_string(),
     };
     Err(fail(problem))
 }
 
-const KINDS: [(&str, ColumnKind); 4] = [
+/// The column kinds of a declaration and the word of each.
+pub const KINDS: [(&str, ColumnKind); 4] = [
     ("real", ColumnKind::Real),
     ("count", ColumnKind::Count),
     ("binary", ColumnKind::Binary),
-    ("category", ColumnKind::Category),
+    (CATEGORY, ColumnKind::Category),
 ];
 
 /// `name` and `kind[(levels)] [in unit]` from either side of the colon.
@@ -231,7 +243,7 @@ fn parse_unit(rest: &str, kind_word: &str) -> Result<Option<String>, String> {
     if rest.is_empty() {
         return Ok(None);
     }
-    match rest.strip_prefix("in") {
+    match rest.strip_prefix(IN) {
         Some("") => Err("write the unit after \"in\", e.g. real in cm".into()),
         Some(unit) if unit.starts_with(char::is_whitespace) => Ok(Some(unquote(unit.trim()))),
         _ => Err(format!(

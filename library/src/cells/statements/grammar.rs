@@ -120,7 +120,7 @@ impl Form {
 /// The words of a header with their byte offsets: white space and commas
 /// separate words, `:` is a word of its own, and a double-quoted text is
 /// one word.
-fn tokens(head: &str) -> Vec<(usize, &str)> {
+pub(crate) fn tokens(head: &str) -> Vec<(usize, &str)> {
     let mut out = Vec::new();
     let mut start: Option<usize> = None;
     let mut quoted = false;
@@ -324,16 +324,18 @@ pub fn statement_words() -> Vec<&'static str> {
     words
 }
 
-/// What may come next in a header: fixed words, and whether a value (a
-/// name, a column, a level) fits there.
+/// What may come next in a header or a body line: fixed words, calls
+/// (words written with an opening bracket, such as `normal(`), and whether
+/// a value (a name, a column, a level) fits there.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Next {
     pub words: Vec<&'static str>,
+    pub calls: Vec<&'static str>,
     pub values: bool,
 }
 
 impl Next {
-    fn add(&mut self, words: &[&'static str]) {
+    pub(crate) fn add(&mut self, words: &[&'static str]) {
         for w in words {
             if !self.words.contains(w) {
                 self.words.push(w);

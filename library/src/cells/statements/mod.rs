@@ -1,5 +1,6 @@
 //! One function per statement family; [`run`] dispatches on the first word.
 
+pub mod body_grammar;
 mod causal;
 mod data;
 mod fitting;

@@ -70,7 +70,7 @@ pub(crate) fn joint(session: &mut Session, st: &Statement) -> Result<Vec<Display
     let mut overrides: Vec<(String, Vec<String>)> = Vec::new();
     for body in &st.body {
         let first = body.text.split_whitespace().next().unwrap_or("");
-        if matches!(first, "family" | "prior" | "centre") {
+        if crate::model::spec::LINE_WORDS.contains(&first) {
             let Some((_, lines)) = overrides.last_mut() else {
                 return Err(CellError::at(body.number, format!("`{first}` must follow a node's model line such as `girth from rootstock`")));
             };

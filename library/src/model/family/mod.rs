@@ -32,18 +32,29 @@ pub enum Family {
     Levels,
 }
 
+/// The family words of a `family` line (binomial then takes `trials <column>`).
+pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, LEVELS, BINOMIAL];
+const NORMAL: &str = "normal";
+const BERNOULLI: &str = "bernoulli";
+const POISSON: &str = "poisson";
+const LEVELS: &str = "levels";
+/// The family that takes `trials <column>` after it.
+pub const BINOMIAL: &str = "binomial";
+/// The word before the trials column of a binomial family.
+pub const TRIALS: &str = "trials";
+
 impl Family {
     /// Read the rest of a `family` line: `normal`, `bernoulli`, `poisson`,
     /// `levels`, or `binomial trials <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
         match words[..] {
-            ["normal"] => Ok(Family::Normal),
-            ["bernoulli"] => Ok(Family::Bernoulli),
-            ["poisson"] => Ok(Family::Poisson),
-            ["levels"] => Ok(Family::Levels),
-            ["binomial", "trials", column] => Ok(Family::Binomial { trials: column.to_string() }),
-            ["binomial", ..] => Err(ModelError::syntax(
+            [NORMAL] => Ok(Family::Normal),
+            [BERNOULLI] => Ok(Family::Bernoulli),
+            [POISSON] => Ok(Family::Poisson),
+            [LEVELS] => Ok(Family::Levels),
+            [BINOMIAL, TRIALS, column] => Ok(Family::Binomial { trials: column.to_string() }),
+            [BINOMIAL, ..] => Err(ModelError::syntax(
                 "a binomial outcome needs its number of trials: write `family binomial trials <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
@@ -55,11 +66,11 @@ impl Family {
     /// The family's word in the cell language.
     pub fn name(&self) -> &'static str {
         match self {
-            Family::Normal => "normal",
-            Family::Bernoulli => "bernoulli",
-            Family::Binomial { .. } => "binomial",
-            Family::Poisson => "poisson",
-            Family::Levels => "levels",
+            Family::Normal => NORMAL,
+            Family::Bernoulli => BERNOULLI,
+            Family::Binomial { .. } => BINOMIAL,
+            Family::Poisson => POISSON,
+            Family::Levels => LEVELS,
         }
     }
 

@@ -1,0 +1,186 @@
+//! What may follow the words typed so far in a body line of a block
+//! statement (`model`, `joint`, `table`, `simulate`).
+//!
+//! Each body line is read by its own parser (`model::spec`, `table::rules`
+//! and `table::condition`, `query::mechanism`); those parsers keep their
+//! words as `pub const` lists, and this module reads the same lists, so a
+//! word added to a parser is offered at the cursor without a second list
+//! to keep in step. Names (columns, levels, nodes) are not known here:
+//! [`Next::values`] says where one fits.
+
+use super::grammar::{tokens, Next};
+use crate::model::family::{BINOMIAL, FAMILY_WORDS, TRIALS};
+use crate::model::prior::PRIOR_DISTRIBUTIONS;
+use crate::model::spec::{CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, PER, PRIOR_LINE, SPLINE, TERM_CALLS, USING};
+use crate::model::PriorGroup;
+use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
+use crate::table::condition::{AND, NOT, OR};
+use crate::table::rules::{CATEGORY, DROP, IN, KEEP, KINDS, MISSING, WHERE};
+
+/// The block statements whose body lines have words of their own.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Block {
+    Model,
+    Joint,
+    Table,
+    Simulate,
+}
+
+impl Block {
+    /// The block a header line opens, by its statement word.
+    pub fn of_header(header: &str) -> Option<Block> {
+        match header.split_whitespace().next()? {
+            "model" => Some(Block::Model),
+            "joint" => Some(Block::Joint),
+            "table" => Some(Block::Table),
+            "simulate" => Some(Block::Simulate),
+            _ => None,
+        }
+    }
+}
+
+/// What may follow `typed`, the text of a body line of `block` before the
+/// word at the cursor.
+pub fn body_next_words(block: Block, typed: &str) -> Next {
+    let typed = typed.split('#').next().unwrap_or("").trim_start();
+    match block {
+        Block::Model | Block::Joint => model_line(typed),
+        Block::Table => table_line(typed),
+        Block::Simulate => mechanism_line(typed),
+    }
+}
+
+fn words_of(typed: &str) -> Vec<&str> {
+    tokens(typed).into_iter().map(|(_, w)| w).collect()
+}
+
+fn next(words: &[&'static str], calls: &[&'static str], values: bool) -> Next {
+    Next { words: words.to_vec(), calls: calls.to_vec(), values }
+}
+
+/// A `model` (or `joint`) body line: family, prior, centre or outcome line.
+fn model_line(typed: &str) -> Next {
+    let words = words_of(typed);
+    match words.as_slice() {
+        [] => next(LINE_WORDS, &[], true),
+        [FAMILY_LINE] => next(FAMILY_WORDS, &[], false),
+        [FAMILY_LINE, BINOMIAL] => next(&[TRIALS], &[], false),
+        [FAMILY_LINE, BINOMIAL, TRIALS] => next(&[], &[], true),
+        [PRIOR_LINE] => Next { words: PriorGroup::words(), calls: Vec::new(), values: false },
+        [PRIOR_LINE, .., ":"] => next(&[], PRIOR_DISTRIBUTIONS, false),
+        [CENTRE_LINE] => next(CENTRINGS, &[], false),
+        [first, ..] if LINE_WORDS.contains(first) => Next::default(),
+        _ => outcome_line(typed, &words),
+    }
+}
+
+/// `Y from TERM, TERM per C, poly(X, D), spline(X, K, knots …) using T`.
+fn outcome_line(typed: &str, words: &[&str]) -> Next {
+    if let Some((call, commas, _)) = open_call(typed) {
+        return match (call, commas) {
+            (_, 0) => next(&[], &[], true),
+            (SPLINE, 2) if !words.contains(&KNOTS) => next(&[KNOTS], &[], false),
+            _ => Next::default(),
+        };
+    }
+    let last = words[words.len() - 1];
+    let before_last = words.len().checked_sub(2).map(|i| words[i]);
+    if words.contains(&USING) && last != USING {
+        return Next::default();
+    }
+    if words.len() == 1 {
+        return next(&[FROM, USING], &[], false);
+    }
+    if last == FROM || typed.trim_end().ends_with(',') {
+        return next(&[], TERM_CALLS, true);
+    }
+    if last == PER || last == USING {
+        return next(&[], &[], true);
+    }
+    if !words.contains(&FROM) {
+        return Next::default();
+    }
+    if before_last == Some(PER) || last.ends_with(')') {
+        return next(&[USING], &[], false);
+    }
+    next(&[PER, USING], &[], false)
+}
+
+/// The innermost bracket left open in `typed`: the call word before it,
+/// the commas written inside it so far and whether nothing else is.
+fn open_call(typed: &str) -> Option<(&str, usize, bool)> {
+    let mut open: Vec<(usize, usize)> = Vec::new();
+    for (i, c) in typed.char_indices() {
+        match c {
+            '(' | '[' => open.push((i, 0)),
+            ')' | ']' => {
+                open.pop();
+            }
+            ',' => {
+                if let Some(last) = open.last_mut() {
+                    last.1 += 1;
+                }
+            }
+            _ => {}
+        }
+    }
+    let &(at, commas) = open.last()?;
+    let before = typed[..at].trim_end();
+    let word_start = before.rfind(|c: char| !(c.is_alphanumeric() || c == '_')).map_or(0, |i| i + 1);
+    Some((&before[word_start..], commas, typed[at + 1..].trim().is_empty()))
+}
+
+/// A `table` body line: a column declaration, `drop missing` or `keep where …`.
+fn table_line(typed: &str) -> Next {
+    let words = words_of(typed);
+    match words.as_slice() {
+        [] => next(&[DROP, KEEP], &[], true),
+        [DROP] => next(&[MISSING], &[], false),
+        [KEEP] => next(&[WHERE], &[], false),
+        [KEEP, WHERE, condition @ ..] => condition_next(condition),
+        [_, ":"] => {
+            let kinds: Vec<&'static str> = KINDS.iter().map(|(w, _)| *w).collect();
+            Next { words: kinds, calls: vec![CATEGORY], values: false }
+        }
+        [_, ":", ..] if open_call(typed).is_some() => next(&[], &[], true),
+        [_, ":", _] => next(&[IN], &[], false),
+        [_, ":", kind, ..] if kind.starts_with(CATEGORY) && words.last().is_some_and(|w| w.ends_with(')')) && !words.contains(&IN) => {
+            next(&[IN], &[], false)
+        }
+        _ => Next::default(),
+    }
+}
+
+/// The next place of a `keep where` condition: a column (or `not`), an
+/// operator, a value, then `and` / `or`.
+fn condition_next(words: &[&str]) -> Next {
+    let is_operator = |w: &str| !w.is_empty() && w.chars().all(|c| "<>=!".contains(c));
+    let is_joint = |w: &str| [AND, OR, NOT].contains(&w) || w.ends_with('(');
+    match words.last() {
+        None => next(&[NOT], &[], true),
+        Some(w) if is_joint(w) => next(&[NOT], &[], true),
+        Some(w) if is_operator(w) => next(&[], &[], true),
+        Some(_) if words.len() >= 2 && is_operator(words[words.len() - 2]) => next(&[AND, OR], &[], false),
+        Some(_) => Next::default(),
+    }
+}
+
+/// A `simulate` body line: `node = distribution(…)`.
+fn mechanism_line(typed: &str) -> Next {
+    let words = words_of(typed);
+    if let Some((call, _, empty)) = open_call(typed) {
+        return match call {
+            BERNOULLI if empty => next(&[LOGIT], FUNCTIONS, true),
+            POISSON if empty => next(&[LOG], FUNCTIONS, true),
+            // the levels of a category mechanism are names the line gives
+            SHARES => next(&[], &[], true),
+            _ => next(&[], FUNCTIONS, true),
+        };
+    }
+    match words.as_slice() {
+        [] => next(&[], &[], true),
+        [_] => next(&["="], &[], false),
+        [_, "="] => next(&[], DISTRIBUTIONS, false),
+        _ => Next::default(),
+    }
+}
