@@ -319,11 +319,12 @@ pub fn intervention(subject: &str, table: &Table, watched: &[WatchedContrast]) -
         .iter()
         .map(|w| if w.level.is_some() { w.label() } else { quantity(table, &w.node).label() })
         .collect();
-    let value = if watched.iter().all(|w| w.level.is_some()) {
-        Quantity::new("change in share of rows")
-    } else {
-        Quantity::new("change in the mean, in each panel's unit (a share as a fraction of rows)")
-    };
+    let shares = watched.iter().filter(|w| w.level.is_some()).count();
+    let value = Quantity::new(match shares {
+        0 => "change in the mean, in each panel's unit",
+        n if n == watched.len() => "change in share of rows",
+        _ => "change in the mean, in each panel's unit (a share as a fraction of rows)",
+    });
     let params: Vec<ParameterDraws> =
         names.iter().zip(watched).map(|(name, w)| ParameterDraws { name, draws: &w.draws }).collect();
     posterior_figure(subject, &value, &params, DensityArrangement::Stacked)
