@@ -276,7 +276,8 @@ Notebook 1 estimated the effect of rootstock on yield from one regression per
 question. Here we model **every node** of the graph from its parents (a joint
 model) and simulate the intervention "graft every tree on standard rather
 than dwarf" through girth to yield. If the graph and models are right, both
-routes must agree — a check on the whole analysis. Invented data.
+routes must agree — a check on the whole analysis. The last section does the
+same for a graph with a category node in the middle. Invented data.
 """),
     code("""
 table trees from "data/orchard.csv":
@@ -324,6 +325,76 @@ Waypath says so:
 """),
     code("""
 joint whole_soil = orchard_soil using trees
+"""),
+    md("""
+## A category in the middle: growth form in regenerating woodland
+
+A second invented scenario. In 600 regeneration plots of 1 m², the tallest
+recruit after two seasons was recorded: its **growth form** (herb, shrub or
+tree) and its **height** in cm. The soil (loam, sand or peat) and the canopy
+shade over the plot (the fraction of sky covered, 0 to 1) decide which form
+wins the plot; form and shade then decide height. Growth form is a category
+with parents, so its node model predicts the share of each form.
+"""),
+    code("""
+table plots from "data/saplings.csv":
+    soil: category(loam, sand, peat)
+    shade: real in fraction of canopy cover
+    form: category(herb, shrub, tree)
+    height: real in cm
+
+graph regrowth:
+    soil -> form -> height
+    shade -> form
+    shade -> height
+"""),
+    code("""
+joint woodland = regrowth using plots
+"""),
+    md("""
+The `form` row reads `family levels`: a softmax regression with herb, the
+first level, as the reference. It has one set of coefficients for shrub
+against herb and one for tree against herb, each with an intercept per soil
+and a slope of shade within each soil. Height gets a mean per growth form
+and a slope of shade within each form. Intercepts and means are at the
+plots' average shade (0.50). A Laplace approximation is enough for a quick
+look; use NUTS (`fit woodland`) before reporting.
+"""),
+    code("""
+fit woodland with laplace
+"""),
+    md("""
+Coefficients such as `form[tree vs herb]: b_shade[loam]` are log-odds of a
+tree rather than a herb per unit of shade on loam: hard to read on their
+own. The question a forester asks is about plots: what if the canopy were
+thinned from 0.6 to 0.2 cover everywhere? The joint model simulates it,
+plot by plot, keeping each plot's soil as observed.
+"""),
+    code("""
+intervene woodland: set shade 0.2 vs 0.6, watch form, height
+"""),
+    md("""
+The three `share of form` rows are changes in the share of plots won by
+each form; they sum to zero. Under the thinner canopy herbs lose about a
+fifth of the plots and shrubs and trees gain them. Height rises for two
+reasons that the joint model adds up: within a form, less shade means
+taller recruits (about 15 cm per unit of cover, so about 6 cm for this
+change), and more plots are won by the taller woody forms.
+
+The data were made with a thinner canopy shifting the shares by −0.19
+(herb), +0.05 (shrub) and +0.14 (tree), and height by +15 cm, averaged over
+these plots' soils. Height and the herb and tree shares come back within
+their intervals; the shrub gain comes out larger, because these 600 plots
+happen to hold more shrubs in light shade than the mechanism's average
+(half of the plots under 0.4 cover, where the mechanism gives 0.42). A 90%
+interval is expected to miss now and then.
+
+These are causal readings only if the graph is right: nothing unrecorded
+(browsing deer, say, or seed rain from nearby trees) may affect both shade
+and growth form, and a thinning that changed the soil as well would be a
+different intervention. The settings 0.2 and 0.6 lie inside the observed
+range of shade (0.05 to 0.95); outside it the answer would rest on the
+model's form alone.
 """),
 ]
 

@@ -65,7 +65,42 @@ def clinic(seed=11, n=1200):
     write("clinic.csv", ["age_group", "dressing", "recovered"], rows)
 
 
+# Growth-form log-odds against herb, per soil: intercept, sand, peat, shade.
+SAPLING_SHRUB = (0.5, 0.6, -0.3, -1.5)
+SAPLING_TREE = (0.3, -0.8, 0.9, -3.0)
+SAPLING_HEIGHT = {"herb": 30.0, "shrub": 55.0, "tree": 90.0}  # cm at shade 0
+SAPLING_SHADE_SLOPE = -15.0  # cm per unit of canopy cover, within a form
+
+
+def sapling_form_shares(soil, shade):
+    """Chance of each growth form (herb, shrub, tree) in a plot: softmax
+    with herb as the reference."""
+    def eta(b):
+        return b[0] + b[1] * (soil == "sand") + b[2] * (soil == "peat") + b[3] * shade
+
+    e = [1.0, math.exp(eta(SAPLING_SHRUB)), math.exp(eta(SAPLING_TREE))]
+    total = sum(e)
+    return [x / total for x in e]
+
+
+def saplings(seed=5150, n=600):
+    """Regeneration plots in an invented woodland: in each 1 m² plot the
+    tallest recruit after two seasons is recorded. Soil and canopy shade
+    decide which growth form wins the plot (herb, shrub or tree); form and
+    shade decide its height."""
+    rng = random.Random(seed)
+    rows = []
+    for i in range(n):
+        soil = rng.choices(["loam", "sand", "peat"], weights=[0.4, 0.3, 0.3])[0]
+        shade = rng.uniform(0.05, 0.95)
+        form = rng.choices(["herb", "shrub", "tree"], weights=sapling_form_shares(soil, shade))[0]
+        height = SAPLING_HEIGHT[form] + SAPLING_SHADE_SLOPE * shade + rng.gauss(0.0, 5.0)
+        rows.append([f"P{i + 1:03d}", soil, round(shade, 2), form, round(height, 1)])
+    write("saplings.csv", ["plot", "soil", "shade", "form", "height"], rows)
+
+
 if __name__ == "__main__":
     orchard()
     stream()
     clinic()
+    saplings()

@@ -355,6 +355,7 @@ fn saplings_csv(dir: &std::path::Path, rows: usize) -> Vec<f64> {
 const SAPLINGS: &str = "table saplings from \"saplings.csv\":
     soil: category(loam, sand, peat)
     form: category(herb, shrub, tree)
+    height: real in cm
 graph nursery:
     soil -> form
     shade -> form -> height
@@ -376,11 +377,17 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     let text = form["model"].as_str().unwrap();
     assert!(text.contains("family levels") && !text.contains("not supported"), "{form}");
 
-    let json = last_json(&mut session, "fit whole with nuts chains 2 warmup 300 draws 300 seed 4");
+    let out = run(&mut session, "fit whole with nuts chains 2 warmup 300 draws 300 seed 4");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let json = out.displays[0].json.clone().unwrap();
+    let fit_svg = out.displays[0].svg.clone().expect("a joint fit figure");
     let form = json["nodes"].as_array().unwrap().iter().find(|n| n["node"] == "form").cloned().unwrap();
     let names: Vec<&str> = form["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
     assert!(names.contains(&"form[shrub vs herb]: soil[sand]") && names.contains(&"form[tree vs herb]: b_shade[peat]"), "{names:?}");
     assert_eq!(names.len(), 12, "two levels after herb × (3 soil intercepts + 3 shade slopes)");
+    // The figure names a levels coefficient as the fit's JSON does, once, not
+    // prefixed by its node a second time.
+    assert!(fit_svg.contains(">form[shrub vs herb]: soil[loam]<") && !fit_svg.contains("form: form["), "figure labels");
 
     let out = run(&mut session, "intervene whole: set soil sand vs loam, watch form seed 2");
     assert!(out.error.is_none(), "{:?}", out.error);
@@ -395,6 +402,16 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
         assert!((mean - truth).abs() < 3.0 * sd, "level {k}: {mean} vs truth {truth} (sd {sd})");
     }
     assert!(out.displays[0].plain.contains("share of form = shrub"), "{}", out.displays[0].plain);
+
+    // Watching a category and a number together: the figure stacks one panel per
+    // watched value, each named with its own unit as declared in the table cell
+    // above (`height: real in cm`), and the shared axis claims no single node.
+    let out = run(&mut session, "intervene whole: set soil sand vs loam, watch form, height seed 2");
+    let svg = out.displays[0].svg.clone().expect("an intervention figure");
+    for panel in ["share of form = herb", "share of form = tree", "height (cm)"] {
+        assert!(svg.contains(&format!(">{panel}<")), "panel {panel} missing");
+    }
+    assert!(!svg.contains("difference in mean share"), "the axis names the first panel only");
 
     // A model cell with a category outcome takes the levels family; contrasts say where to go instead.
     let json = last_json(&mut session, "model m:\n    form from soil, shade using saplings");

@@ -10,7 +10,7 @@ use crate::plot::{
     DensityArrangement, EdgeMark, GraphPicture, GridContrast, ImplicationRow, LineGroup, NodeMark, ParameterDraws,
     PlotError, PredictiveKind, Quantity, RecoveryRow, Role,
 };
-use crate::query::{Calibration, Contrast, ImplicationsReport, PredictiveSets, Recovery};
+use crate::query::{Calibration, Contrast, ImplicationsReport, PredictiveSets, Recovery, WatchedContrast};
 use crate::table::{Column, ColumnData, Table};
 
 /// How to mark a graph drawing: exposure, outcome, an adjustment set, and
@@ -301,6 +301,33 @@ pub fn contrast(c: &Contrast, table: &Table, outcome: &str) -> Result<String, Pl
         }
         None => contrast_figure(&subject, &value, &c.draws),
     }
+}
+
+/// The changes of a simulated intervention. One watched value is drawn as a
+/// contrast on its own axis; several are stacked, and since they differ in
+/// scale and unit (a level's share of rows, cm, kg) each panel names its own
+/// unit and the common axis names none.
+pub fn intervention(subject: &str, table: &Table, watched: &[WatchedContrast]) -> Result<String, PlotError> {
+    if let [w] = watched {
+        let value = match &w.level {
+            Some(_) => Quantity::new(format!("change in {}", w.label())),
+            None => difference_quantity(table, &w.node, "means"),
+        };
+        return contrast_figure(&format!("{subject}: {}", w.label()), &value, &w.draws);
+    }
+    let names: Vec<String> = watched
+        .iter()
+        .map(|w| if w.level.is_some() { w.label() } else { quantity(table, &w.node).label() })
+        .collect();
+    let shares = watched.iter().filter(|w| w.level.is_some()).count();
+    let value = Quantity::new(match shares {
+        0 => "change in the mean, in each panel's unit",
+        n if n == watched.len() => "change in share of rows",
+        _ => "change in the mean, in each panel's unit (a share as a fraction of rows)",
+    });
+    let params: Vec<ParameterDraws> =
+        names.iter().zip(watched).map(|(name, w)| ParameterDraws { name, draws: &w.draws }).collect();
+    posterior_figure(subject, &value, &params, DensityArrangement::Stacked)
 }
 
 /// Several per-draw quantities on the axis of a difference in `outcome`:

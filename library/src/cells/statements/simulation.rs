@@ -156,7 +156,7 @@ pub(crate) fn fit_joint(
                 "ess_tail": d.map(|d| d.ess_tail),
             }));
             if s.name != "spread" && figure_names.len() < FIGURE_PARAMETERS {
-                figure_names.push((format!("{}: {}", node.name, s.name), k, i));
+                figure_names.push((figure_label(&node.name, &s.name), k, i));
             }
         }
         warnings.extend(f.warnings.iter().map(|w| format!("{label}, node {}: {w}", node.name)));
@@ -195,6 +195,18 @@ fn method_name(method: &Method) -> &'static str {
     }
 }
 
+/// A node parameter's name in the joint fit figure: prefixed by its node,
+/// unless it already starts with it (a levels-family coefficient such as
+/// `form[shrub vs herb]: soil[sand]`; no other parameter is named after its
+/// own node, whose parents are other nodes).
+fn figure_label(node: &str, parameter: &str) -> String {
+    if parameter.starts_with(&format!("{node}[")) {
+        parameter.to_string()
+    } else {
+        format!("{node}: {parameter}")
+    }
+}
+
 /// `intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]`.
 pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
@@ -229,10 +241,7 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Dis
     notes.extend(result.warnings.iter().map(|w| format!("warning: {w}")));
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
-    let named: Vec<(String, &[f64])> = result.watched.iter().map(|w| (w.label(), w.draws.as_slice())).collect();
-    let outcome = result.watched.first().map_or(String::new(), |w| w.label());
-    let outcome = outcome.as_str();
-    let svg = figures::differences(&format!("{name}: {}", result.intervention), table, outcome, &named, DensityArrangement::Stacked).ok();
+    let svg = figures::intervention(&format!("{name}: {}", result.intervention), table, &result.watched).ok();
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
 }
 
