@@ -388,6 +388,14 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     // The figure names a levels coefficient as the fit's JSON does, once, not
     // prefixed by its node a second time.
     assert!(fit_svg.contains(">form[shrub vs herb]: soil[loam]<") && !fit_svg.contains("form: form["), "figure labels");
+    // More parameters than the figure draws: the reader is told how many are left out.
+    let all: usize = json["nodes"].as_array().unwrap().iter()
+        .flat_map(|n| n["parameters"].as_array().unwrap())
+        .filter(|p| p["name"] != "spread")
+        .count();
+    assert!(all > 10, "{all}");
+    let told = format!("the figure draws the first 10 of {all} node parameters");
+    assert!(out.displays[0].plain.contains(&told), "{}", out.displays[0].plain);
 
     let out = run(&mut session, "intervene whole: set soil sand vs loam, watch form seed 2");
     assert!(out.error.is_none(), "{:?}", out.error);

@@ -133,6 +133,7 @@ pub(crate) fn fit_joint(
     let mut nodes_json = Vec::new();
     let mut notes = Vec::new();
     let mut figure_names: Vec<(String, usize, usize)> = Vec::new();
+    let mut drawable = 0;
     for (k, (node, node_fit)) in joint.nodes.iter().zip(&fit.fits).enumerate() {
         let Some(f) = node_fit else {
             let how = match &node.model {
@@ -155,13 +156,22 @@ pub(crate) fn fit_joint(
                 "p_positive": s.prob_positive, "rhat": d.map(|d| d.rhat), "ess_bulk": d.map(|d| d.ess_bulk),
                 "ess_tail": d.map(|d| d.ess_tail),
             }));
-            if s.name != "spread" && figure_names.len() < FIGURE_PARAMETERS {
-                figure_names.push((figure_label(&node.name, &s.name), k, i));
+            if s.name != "spread" {
+                drawable += 1;
+                if figure_names.len() < FIGURE_PARAMETERS {
+                    figure_names.push((figure_label(&node.name, &s.name), k, i));
+                }
             }
         }
         warnings.extend(f.warnings.iter().map(|w| format!("{label}, node {}: {w}", node.name)));
         notes.extend(f.warnings.iter().map(|w| format!("warning ({}): {w}", node.name)));
         nodes_json.push(json!({"node": node.name, "parameters": params, "warnings": f.warnings}));
+    }
+    if drawable > figure_names.len() {
+        notes.push(format!(
+            "the figure draws the first {} of {drawable} node parameters (spreads left out); the table lists them all",
+            figure_names.len()
+        ));
     }
     notes.push(format!("each node's regression gets its own seed stream derived from seed {}", method_seed(&method)));
     notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(INTERVAL_MASS * 100.0)));
