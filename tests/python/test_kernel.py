@@ -14,6 +14,7 @@ import signal
 import subprocess
 import tempfile
 import time
+from contextlib import contextmanager
 from pathlib import Path
 
 import jupyter_kernel_test
@@ -49,14 +50,20 @@ def install_kernelspec() -> Path:
     return share / "kernels" / "waypath"
 
 
-def start(cwd=None):
+@contextmanager
+def running_kernel(cwd=None):
+    """A started Waypath kernel and its client, shut down afterwards."""
     install_kernelspec()
     km = KernelManager(kernel_name="waypath")
     km.start_kernel(cwd=str(cwd) if cwd else None)
     kc = km.client()
     kc.start_channels()
-    kc.wait_for_ready(timeout=60)
-    return km, kc
+    try:
+        kc.wait_for_ready(timeout=60)
+        yield km, kc
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)
 
 
 def run(kc, code, timeout=None):
@@ -154,8 +161,7 @@ def test_kernelspec_points_at_this_program_with_logos():
 
 
 def test_message_signed_with_another_key_gets_no_reply_and_runs_nothing():
-    km, kc = start()
-    try:
+    with running_kernel() as (km, kc):
         # A client Session with a different key signs the same request wrongly
         # (jupyter_client.session.Session, HMAC-SHA256).
         forger = Session(key=b"not-the-connection-key", signature_scheme="hmac-sha256")
@@ -182,9 +188,6 @@ def test_message_signed_with_another_key_gets_no_reply_and_runs_nothing():
         assert kc.get_shell_msg(timeout=10)["content"]["found"] is False
         reply, _ = run(kc, "graph kept:\n    a -> b")
         assert reply["status"] == "ok"
-    finally:
-        kc.stop_channels()
-        km.shutdown_kernel(now=True)
 
 
 LONG_RUST_CELL = '%%rust\nprintln!("looping");\nloop { std::thread::sleep(std::time::Duration::from_millis(5)); }'
@@ -255,8 +258,7 @@ def interrupted_within_a_second(km, kc, how):
 
 
 def test_interrupt_message_stops_a_running_cell_and_keeps_the_session():
-    km, kc = start()
-    try:
+    with running_kernel() as (km, kc):
         assert run(kc, "graph orchard:\n    rootstock -> yield")[0]["status"] == "ok"
         reply, elapsed = interrupted_within_a_second(km, kc, km.interrupt_kernel)
         assert reply["status"] == "error" and "interrupted" in reply["evalue"]
@@ -267,22 +269,15 @@ def test_interrupt_message_stops_a_running_cell_and_keeps_the_session():
         assert reply["status"] == "ok"
         # 2 + 3 = 5 (arithmetic)
         assert any(m["msg_type"] == "execute_result" and m["content"]["data"]["text/plain"] == "5" for m in msgs)
-    finally:
-        kc.stop_channels()
-        km.shutdown_kernel(now=True)
 
 
 def test_sigint_stops_a_running_cell():
-    km, kc = start()
-    try:
+    with running_kernel() as (km, kc):
         pid = km.provisioner.process.pid
         reply, elapsed = interrupted_within_a_second(km, kc, lambda: os.kill(pid, signal.SIGINT))
         assert reply["status"] == "error"
         assert elapsed < 1.0, f"SIGINT took {elapsed:.2f} s"
         assert run(kc, "%%rust\n1 + 1")[0]["status"] == "ok"
-    finally:
-        kc.stop_channels()
-        km.shutdown_kernel(now=True)
 
 
 def orchard_csv(folder: Path) -> pd.DataFrame:
@@ -300,8 +295,7 @@ TREES_CELL = 'table trees from "trees.csv":\n    rootstock: category(dwarf, stan
 
 def test_interrupt_stops_a_long_fit_within_a_second(tmp_path):
     orchard_csv(tmp_path)
-    km, kc = start(cwd=tmp_path)
-    try:
+    with running_kernel(cwd=tmp_path) as (km, kc):
         assert run(kc, TREES_CELL)[0]["status"] == "ok"
         assert run(kc, "model m:\n    girth from rootstock using trees")[0]["status"] == "ok"
         msg_id = kc.execute("fit m with nuts draws 1000000 seed 7")
@@ -326,14 +320,10 @@ def test_interrupt_stops_a_long_fit_within_a_second(tmp_path):
         assert reply["status"] == "ok", reply
         results = [m["content"]["data"]["text/plain"] for m in msgs if m["msg_type"] == "execute_result"]
         assert results == ['"200 chain,draw"'], results
-    finally:
-        kc.stop_channels()
-        km.shutdown_kernel(now=True)
 
 
 def test_panic_and_compile_error_become_error_replies():
-    km, kc = start()
-    try:
+    with running_kernel() as (km, kc):
         run(kc, "%%rust\n0", timeout=FIRST_RUST_CELL_TIMEOUT)
         reply, _ = run(kc, '%%rust\npanic!("sapling count went negative");')
         assert reply["status"] == "error" and "sapling count went negative" in reply["evalue"]
@@ -358,15 +348,11 @@ def test_panic_and_compile_error_become_error_replies():
         kc.inspect("skipped", 7)
         assert kc.get_shell_msg(timeout=10)["content"]["found"] is False
         assert run(kc, "graph after:\n    a -> b")[0]["status"] == "ok"
-    finally:
-        kc.stop_channels()
-        km.shutdown_kernel(now=True)
 
 
 def test_rust_cells_read_session_tables_and_publish_new_ones(tmp_path):
     trees = orchard_csv(tmp_path)
-    km, kc = start(cwd=tmp_path)
-    try:
+    with running_kernel(cwd=tmp_path) as (km, kc):
         reply, _ = run(kc, TREES_CELL)
         assert reply["status"] == "ok", reply
         code = (
@@ -396,6 +382,3 @@ def test_rust_cells_read_session_tables_and_publish_new_ones(tmp_path):
         reply, msgs = run(kc, '%%rust\nlet h = wp_table("fake");\nh.column("height").unwrap().data.as_reals().unwrap().iter().sum::<f64>()')
         # 10 + 12.5 + 15 + 17.5 + 20 = 75 (arithmetic)
         assert any(m["msg_type"] == "execute_result" and m["content"]["data"]["text/plain"] == "75.0" for m in msgs)
-    finally:
-        kc.stop_channels()
-        km.shutdown_kernel(now=True)
