@@ -36,9 +36,6 @@ usage:
 ";
 
 fn main() -> ExitCode {
-    // A Rust cell's child process is this same program; this call turns it
-    // into that child and never returns there.
-    evcxr::runtime_hook();
     let args: Vec<String> = std::env::args().skip(1).collect();
     match args.first().map(String::as_str) {
         Some("run") => run_command(&args[1..]),

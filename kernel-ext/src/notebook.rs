@@ -9,7 +9,7 @@ use std::sync::atomic::AtomicBool;
 use std::sync::Mutex;
 
 use serde_json::{json, Map, Value};
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::{CellError, CellOutcome, RunControl, Session};
 
 use crate::rust_cells::{rust_source, RustCells, StreamName};
 
@@ -157,6 +157,11 @@ fn run_rust_cell(rust: &mut RustCells, code: &str, session: &mut Session) -> (Ve
             }
         }
     };
+    // The one-time start-up reports its progress on the terminal, not in
+    // the notebook.
+    if let Err(message) = rust.start(&|line| eprintln!("{line}")) {
+        return (Vec::new(), CellOutcome { error: Some(CellError { line: None, message }), ..CellOutcome::default() });
+    }
     let outcome = rust.run(code, session, &sink);
     let streams = printed
         .into_inner()

@@ -267,6 +267,7 @@ fn shutdown_content(request: &Message) -> Value {
 /// new one for a restart). Rust cell processes end when their input closes.
 async fn shut_down() {
     tokio::time::sleep(Duration::from_millis(100)).await;
+    crate::rust_cells::remove_exchange_folders();
     std::process::exit(0);
 }
 

@@ -1,28 +1,46 @@
-//! `%%rust` cells: Rust code run in an embedded evcxr context that has the
-//! `waypath` library and the bridge functions of [`bridge_prelude`] in scope.
+//! `%%rust` cells: Rust code compiled and run by the `waypath-rust` program
+//! (an evcxr context in its own process, see `kernel-ext/rust-host`) with
+//! the `waypath` library and the bridge functions of [`bridge_prelude`] in
+//! scope.
 //!
-//! The context starts on the first Rust cell (so notebooks without one never
-//! pay for it). Its build folder persists under `~/.cache/waypath/evcxr`
-//! (or `$WAYPATH_EVCXR_DIR`), so the library is compiled for Rust cells once
-//! per machine, not once per kernel; a lock file gives a second kernel its
-//! own slot. Cells compile offline. Before each cell the session's tables
-//! are written to an exchange folder; after it, tables the cell published
-//! are read back into the session. A compile error, a panic or a killed
-//! child process becomes the cell's error; the session is untouched by it.
+//! Why it is shaped so:
+//! * The runner is a program of its own, so `waypath` does not carry evcxr
+//!   and a notebook without Rust cells never waits for it. When it is not
+//!   built, the first Rust cell says which command builds it.
+//! * Cells link to a prebuilt Rust dynamic library of the library (crate
+//!   `waypath_cells` of package `waypath-rust-host`, see [`cells_library`]) made from the same build and
+//!   the workspace's `Cargo.lock`: the one-time work for Rust cells is one
+//!   link, not a compile of the library and its dependencies, and nothing is
+//!   resolved or downloaded when a cell runs.
+//! * The runner's evcxr build folder is a slot under `~/.cache/waypath/evcxr`
+//!   (or `$WAYPATH_EVCXR_DIR`); a lock file gives a second kernel its own
+//!   slot, which costs it only the compile of its first cell.
+//! * Before each cell the session's tables and draws are written to a
+//!   private exchange folder (mode 0700, unpredictable name, removed when
+//!   the kernel ends); after it, tables the cell published are read back.
+//!   A compile error, a panic or an interrupt becomes the cell's error; the
+//!   session is untouched by it, and an interrupt names the Rust variables
+//!   it cost.
 //!
 //! The same component serves the kernel and `waypath run`.
 
 pub mod bridge_prelude;
 
-use std::fs::File;
-use std::path::{Path, PathBuf};
-use std::process::{Child, Command};
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, Mutex};
-use std::time::Duration;
+pub mod cells_library;
+mod exchange;
 
-use evcxr::{CommandContext, EvalContext, EvalContextOutputs};
+use std::fs::File;
+use std::io::{BufRead, BufReader, Write};
+use std::path::{Path, PathBuf};
+use std::process::{Child, ChildStdin, ChildStdout, Command, Stdio};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{mpsc, Arc, Mutex};
+
+use serde_json::{json, Value};
 use waypath::cells::{CellError, CellOutcome, Display, Session};
+
+use exchange::Exchange;
+pub use exchange::remove_exchange_folders;
 
 /// The marker line that makes a cell a Rust cell.
 pub const RUST_MAGIC: &str = "%%rust";
@@ -56,12 +74,12 @@ pub fn rust_source(cell: &str) -> Option<&str> {
     }
 }
 
-/// Stops a running Rust cell from another thread (by ending the child
-/// process that runs it; the next cell starts a fresh one).
+/// Stops a running Rust cell from another thread: the runner ends the
+/// process that runs it and reports the variables that went with it.
 #[derive(Clone, Default)]
 pub struct RustInterrupt {
     running: Arc<AtomicBool>,
-    child: Arc<Mutex<Option<Arc<Mutex<Child>>>>>,
+    runner_input: Arc<Mutex<Option<ChildStdin>>>,
 }
 
 impl RustInterrupt {
@@ -70,21 +88,19 @@ impl RustInterrupt {
         if !self.running.load(Ordering::SeqCst) {
             return false;
         }
-        let guard = self.child.lock().unwrap_or_else(|p| p.into_inner());
-        if let Some(child) = guard.as_ref() {
-            let _ = child.lock().unwrap_or_else(|p| p.into_inner()).kill();
+        let mut guard = self.runner_input.lock().unwrap_or_else(|p| p.into_inner());
+        if let Some(input) = guard.as_mut() {
+            let _ = writeln!(input, "{}", json!({"interrupt": true}));
+            let _ = input.flush();
         }
         true
     }
 }
 
-/// A started evcxr context and where it trades tables.
+/// The started runner and where it trades tables.
 struct Context {
-    commands: CommandContext,
-    outputs: EvalContextOutputs,
-    exchange: PathBuf,
-    /// Held for the life of the context: the build slot is ours.
-    _slot_lock: File,
+    runner: Runner,
+    exchange: Exchange,
 }
 
 /// Runs `%%rust` cells; one per session.
@@ -105,8 +121,21 @@ impl RustCells {
         self.interrupt.clone()
     }
 
+    /// Start the Rust context now if it is not running, telling `progress`
+    /// what the one-time work is doing. A second call does nothing.
+    pub fn start(&mut self, progress: &dyn Fn(&str)) -> Result<(), String> {
+        if self.context.is_some() {
+            return Ok(());
+        }
+        let exchange = Exchange::create()?;
+        let runner = Runner::start(&exchange, progress, self.interrupt.runner_input.clone())?;
+        self.context = Some(Context { runner, exchange });
+        Ok(())
+    }
+
     /// Run the Rust code of one cell against `session`. Printed lines go to
-    /// `sink` as they come; the final expression's value becomes a display.
+    /// `sink` as they come (the one-time start-up's progress to its stderr);
+    /// the final expression's value becomes a display.
     pub fn run(
         &mut self,
         code: &str,
@@ -114,240 +143,185 @@ impl RustCells {
         sink: &(dyn Fn(StreamName, &str) + Sync),
     ) -> CellOutcome {
         let mut outcome = CellOutcome::default();
-        if self.context.is_none() {
-            sink(StreamName::Stderr, "starting the Rust context (the first time on this machine compiles the waypath library for it)…\n");
-            match start_context() {
-                Ok(context) => {
-                    *self.interrupt.child.lock().unwrap_or_else(|p| p.into_inner()) =
-                        Some(context.commands.process_handle());
-                    self.context = Some(context);
-                }
-                Err(message) => {
-                    outcome.error = Some(CellError { line: None, message });
-                    return outcome;
-                }
-            }
+        if let Err(message) = self.start(&|line| sink(StreamName::Stderr, &format!("{line}\n"))) {
+            outcome.error = Some(CellError { line: None, message });
+            return outcome;
         }
         let Some(context) = self.context.as_mut() else { return outcome };
-        if let Err(message) = export_tables(session, &context.exchange) {
+        if let Err(message) = export_tables(session, context.exchange.path()) {
             outcome.error = Some(CellError { line: None, message });
             return outcome;
         }
         self.interrupt.running.store(true, Ordering::SeqCst);
-        let (result, panic) = eval_streaming(context, code, sink);
+        let done = context.runner.run(code, sink);
         self.interrupt.running.store(false, Ordering::SeqCst);
-        match (result, panic) {
-            (_, Some(message)) => {
-                outcome.error = Some(CellError {
-                    line: None,
-                    message: format!(
-                        "the Rust cell panicked: {message}; the session's tables, graphs and fits are kept"
-                    ),
-                })
+        match done {
+            Ok(done) => {
+                if let Some(message) = done.error {
+                    outcome.error = Some(CellError { line: None, message });
+                } else if let Some(plain) = done.plain {
+                    outcome.displays.push(Display { plain, html: done.html, ..Display::default() });
+                }
             }
-            (Err(error), None) => outcome.error = Some(describe_error(error, code)),
-            (Ok(outputs), None) => outcome.displays.extend(display_of(&outputs)),
+            Err(message) => {
+                self.context = None;
+                outcome.error = Some(CellError { line: None, message });
+                return outcome;
+            }
         }
-        import_published(session, &context.exchange, &mut outcome);
+        import_published(session, context.exchange.path(), &mut outcome);
         outcome
     }
+
+    /// `NAME: TYPE = VALUE` of a variable of the running Rust context, or
+    /// `None` when there is no context or no such variable.
+    pub fn describe(&mut self, name: &str) -> Option<String> {
+        let context = self.context.as_mut()?;
+        context.runner.describe(name)
+    }
 }
 
-/// Run one evaluation while a scoped thread forwards printed lines; also
-/// returns the message of a panic in the cell (evcxr reports a panic only
-/// on the child's stderr).
-fn eval_streaming(
-    context: &mut Context,
-    code: &str,
-    sink: &(dyn Fn(StreamName, &str) + Sync),
-) -> (Result<evcxr::EvalOutputs, evcxr::Error>, Option<String>) {
-    let done = AtomicBool::new(false);
-    let stdout = context.outputs.stdout.clone();
-    let stderr = context.outputs.stderr.clone();
-    std::thread::scope(|scope| {
-        let forwarder = scope.spawn(|| forward_lines(&stdout, &stderr, &done, sink));
-        let result = context.commands.execute(code);
-        done.store(true, Ordering::SeqCst);
-        let panic = forwarder.join().unwrap_or(None);
-        (result, panic)
-    })
+/// The `waypath-rust` process and the lines it sends.
+struct Runner {
+    process: Child,
+    input: Arc<Mutex<Option<ChildStdin>>>,
+    events: mpsc::Receiver<Value>,
+    /// Held for the life of the runner: the evcxr build slot is ours.
+    _slot_lock: File,
 }
 
-/// Pass lines to `sink` until `done`, then drain what is left. A panic
-/// report is taken out of stderr and returned as its message.
-fn forward_lines(
-    stdout: &crossbeam_channel::Receiver<String>,
-    stderr: &crossbeam_channel::Receiver<String>,
-    done: &AtomicBool,
-    sink: &(dyn Fn(StreamName, &str) + Sync),
-) -> Option<String> {
-    let tick = Duration::from_millis(20);
-    let mut panic = PanicReport::default();
-    let mut idle_after_done = false;
-    while !idle_after_done {
-        let finished = done.load(Ordering::SeqCst);
-        crossbeam_channel::select! {
-            recv(stdout) -> line => if let Ok(line) = line { sink(StreamName::Stdout, &format!("{line}\n")) },
-            recv(stderr) -> line => if let Ok(line) = line {
-                if !panic.absorb(&line) {
-                    sink(StreamName::Stderr, &format!("{line}\n"))
+impl Runner {
+    /// Make sure the prebuilt library is current, start the runner in a free
+    /// build slot, and wait until it has compiled its first cell.
+    /// `input` receives the runner's standard input, shared with [`RustInterrupt`].
+    fn start(
+        exchange: &Exchange,
+        progress: &dyn Fn(&str),
+        input: Arc<Mutex<Option<ChildStdin>>>,
+    ) -> Result<Runner, String> {
+        let program = cells_library::runner_program()?;
+        let library = cells_library::prepare(progress)?;
+        let (slot, lock) = claim_build_slot()?;
+        let mut command = Command::new(&program);
+        command
+            .arg("--cells-lib")
+            .arg(&library.dylib)
+            .arg("--deps")
+            .arg(&library.deps)
+            .env("EVCXR_TMPDIR", &slot)
+            .env("WAYPATH_EXCHANGE", exchange.path())
+            .env("LD_LIBRARY_PATH", library.search_path())
+            .stdin(Stdio::piped())
+            .stdout(Stdio::piped());
+        let mut process =
+            command.spawn().map_err(|e| format!("cannot start the Rust cell runner {}: {e}", program.display()))?;
+        *input.lock().unwrap_or_else(|p| p.into_inner()) = process.stdin.take();
+        let events = read_events(process.stdout.take());
+        let mut runner = Runner { process, input, events, _slot_lock: lock };
+        runner.wait_ready(progress)?;
+        Ok(runner)
+    }
+
+    /// Forward progress until the runner says it is ready or why it is not.
+    fn wait_ready(&mut self, progress: &dyn Fn(&str)) -> Result<(), String> {
+        loop {
+            let event = self.next_event()?;
+            match event["event"].as_str() {
+                Some("ready") => return Ok(()),
+                Some("failed") => {
+                    let headline = event["headline"].as_str().unwrap_or("the Rust context did not start");
+                    return Err(with_folded_log(headline, event["log"].as_str().unwrap_or("")));
                 }
-            },
-            default(tick) => idle_after_done = finished,
-        }
-    }
-    panic.message
-}
-
-/// Recognises the standard panic report on stderr: `thread '…' panicked
-/// at …`, the message lines, an optional `stack backtrace:` block, and a
-/// closing `note:` line.
-#[derive(Default)]
-struct PanicReport {
-    message: Option<String>,
-    in_message: bool,
-    in_backtrace: bool,
-}
-
-impl PanicReport {
-    /// Whether `line` belongs to a panic report (and so is not shown).
-    fn absorb(&mut self, line: &str) -> bool {
-        if line.starts_with("thread '") && line.contains(" panicked at ") {
-            self.message = Some(String::new());
-            self.in_message = true;
-            return true;
-        }
-        if self.in_message {
-            if line == "stack backtrace:" {
-                self.in_message = false;
-                self.in_backtrace = true;
-            } else if line.starts_with("note: ") {
-                self.in_message = false;
-            } else if let Some(message) = self.message.as_mut() {
-                if !message.is_empty() {
-                    message.push(' ');
-                }
-                message.push_str(line.trim());
-            }
-            return true;
-        }
-        if self.in_backtrace {
-            self.in_backtrace = !line.starts_with("note: ");
-            return true;
-        }
-        false
-    }
-}
-
-/// The cell's value as a display (plain text, plus HTML if it gave one).
-/// A block that ends in a statement has the value `()`, which shows nothing.
-fn display_of(outputs: &evcxr::EvalOutputs) -> Option<Display> {
-    let plain = outputs.get("text/plain")?.to_string();
-    let html = outputs.get("text/html").map(str::to_string);
-    if plain.trim() == "()" && html.is_none() {
-        return None;
-    }
-    Some(Display { plain, html, ..Display::default() })
-}
-
-/// One error naming the cell line and column (counted from the line after
-/// `%%rust`), with the compiler's advice.
-fn describe_error(error: evcxr::Error, code: &str) -> CellError {
-    match error {
-        evcxr::Error::CompilationErrors(errors) => {
-            let text: Vec<String> = errors.iter().map(|e| compile_error_text(e, code)).collect();
-            // Each message names its own cell line and column.
-            CellError { line: None, message: text.join("\n") }
-        }
-        evcxr::Error::SubprocessTerminated(why) if why.contains("signal: 9") || why.contains("SIGKILL") => {
-            CellError {
-                line: None,
-                message: "the Rust cell was interrupted; variables defined in earlier Rust cells are gone, \
-                          the session's tables, graphs and fits are kept"
-                    .into(),
+                Some("stdout" | "stderr") => progress(event["text"].as_str().unwrap_or("").trim_end()),
+                _ => {}
             }
         }
-        other => CellError { line: None, message: format!("the Rust cell failed: {}", other.to_string().trim()) },
+    }
+
+    /// The next event, or an error when the runner has ended.
+    fn next_event(&mut self) -> Result<Value, String> {
+        self.events.recv().map_err(|_| {
+            let status = self.process.wait().map(|s| s.to_string()).unwrap_or_else(|e| e.to_string());
+            format!(
+                "the Rust cell runner ended unexpectedly ({status}); the session's tables, graphs and fits are kept, \
+                 Rust variables are gone; the next Rust cell starts a new runner"
+            )
+        })
+    }
+
+    fn send(&self, request: Value) -> Result<(), String> {
+        let mut guard = self.input.lock().unwrap_or_else(|p| p.into_inner());
+        let input = guard.as_mut().ok_or("the Rust cell runner has no input")?;
+        writeln!(input, "{request}").and_then(|_| input.flush()).map_err(|e| format!("the Rust cell runner cannot be reached: {e}"))
+    }
+
+    /// Run a cell; `Err` only when the runner itself is gone.
+    fn run(&mut self, code: &str, sink: &(dyn Fn(StreamName, &str) + Sync)) -> Result<Done, String> {
+        self.send(json!({"run": code}))?;
+        loop {
+            let event = self.next_event()?;
+            match event["event"].as_str() {
+                Some("stdout") => sink(StreamName::Stdout, event["text"].as_str().unwrap_or("")),
+                Some("stderr") => sink(StreamName::Stderr, event["text"].as_str().unwrap_or("")),
+                Some("done") => {
+                    let text = |key: &str| event[key].as_str().map(str::to_string);
+                    return Ok(Done { plain: text("plain"), html: text("html"), error: text("error") });
+                }
+                _ => {}
+            }
+        }
+    }
+
+    fn describe(&mut self, name: &str) -> Option<String> {
+        self.send(json!({"describe": name})).ok()?;
+        loop {
+            let event = self.next_event().ok()?;
+            if event["event"] == "described" {
+                return event["text"].as_str().map(str::to_string);
+            }
+        }
     }
 }
 
-/// "line 2, column 5: cannot find value `x` in this scope" (lines of the
-/// whole cell, so the `%%rust` line is line 1).
-fn compile_error_text(error: &evcxr::CompilationError, code: &str) -> String {
-    let place = error.primary_spanned_message().and_then(|m| m.span).map(|s| {
-        let source_line = code.lines().nth(s.start_line.saturating_sub(1)).unwrap_or("");
-        format!("cell line {}, column {}: `{}`: ", s.start_line + 1, s.start_column, source_line.trim())
-    });
-    let mut text = format!("{}{}", place.unwrap_or_default(), error.message());
-    for help in error.help() {
-        text.push_str(&format!(" (help: {help})"));
-    }
-    text
-}
-
-/// Start evcxr in a persistent build slot, offline, with `waypath` and the
-/// bridge functions.
-fn start_context() -> Result<Context, String> {
-    let (slot, lock) = claim_build_slot()?;
-    // evcxr reads its build folder from this variable when the context starts.
-    std::env::set_var("EVCXR_TMPDIR", &slot);
-    let exchange = std::env::temp_dir().join(format!("waypath-exchange-{}", std::process::id()));
-    std::fs::create_dir_all(&exchange)
-        .map_err(|e| format!("cannot make the exchange folder {}: {e}", exchange.display()))?;
-    let exe = std::env::current_exe().map_err(|e| format!("cannot find the waypath program: {e}"))?;
-    let mut child = Command::new(exe);
-    child.env("WAYPATH_EXCHANGE", &exchange);
-    if let Some(dir) = rust_std_dir() {
-        child.env("LD_LIBRARY_PATH", with_search_dir(&dir));
-    }
-    let (eval, outputs) = EvalContext::with_subprocess_command(child)
-        .map_err(|e| format!("the Rust context did not start: {e}"))?;
-    let mut commands = CommandContext::with_eval_context(eval);
-    let library = library_dir();
-    // One build for the settings, the library and the bridge.
-    let setup = format!(
-        ":offline 1\n:dep waypath = {{ path = {:?} }}\n{}",
-        library.display().to_string(),
-        prelude_source()
-    );
-    commands.execute(&setup).map_err(|e| {
-        format!("the Rust context cannot build the waypath library at {} with the cell bridge: {e}", library.display())
-    })?;
-    Ok(Context { commands, outputs, exchange, _slot_lock: lock })
-}
-
-/// The folder of the toolchain's shared `libstd`, which compiled cells link
-/// to. The run path cargo writes into a cell's library is relative to the
-/// build folder's depth and misses it under a deep persistent folder, so
-/// the child process gets it on its library search path instead.
-fn rust_std_dir() -> Option<String> {
-    let out = Command::new("rustc").args(["--print", "target-libdir"]).output().ok()?;
-    let dir = String::from_utf8(out.stdout).ok()?.trim().to_string();
-    (out.status.success() && !dir.is_empty()).then_some(dir)
-}
-
-/// `dir` in front of any existing `LD_LIBRARY_PATH`.
-fn with_search_dir(dir: &str) -> String {
-    match std::env::var("LD_LIBRARY_PATH") {
-        Ok(old) if !old.is_empty() => format!("{dir}:{old}"),
-        _ => dir.to_string(),
+impl Drop for Runner {
+    fn drop(&mut self) {
+        let _ = self.process.kill();
+        let _ = self.process.wait();
     }
 }
 
-/// The library's source folder: `$WAYPATH_LIBRARY_DIR`, else the one this
-/// program was built from.
-fn library_dir() -> PathBuf {
-    match std::env::var_os("WAYPATH_LIBRARY_DIR") {
-        Some(dir) => PathBuf::from(dir),
-        None => Path::new(env!("CARGO_MANIFEST_DIR")).join("..").join("library"),
-    }
-    .canonicalize()
-    .unwrap_or_else(|_| Path::new(env!("CARGO_MANIFEST_DIR")).join("../library"))
+/// How a cell ended, as the runner reported it.
+struct Done {
+    plain: Option<String>,
+    html: Option<String>,
+    error: Option<String>,
 }
 
-/// The bridge source without its module doc lines.
-fn prelude_source() -> String {
-    include_str!("bridge_prelude.rs").lines().filter(|l| !l.starts_with("//!")).collect::<Vec<_>>().join("\n")
+/// Read the runner's JSON lines on a thread of their own.
+fn read_events(stdout: Option<ChildStdout>) -> mpsc::Receiver<Value> {
+    let (send, receive) = mpsc::channel();
+    if let Some(stdout) = stdout {
+        std::thread::spawn(move || {
+            for line in BufReader::new(stdout).lines().map_while(Result::ok) {
+                if let Ok(event) = serde_json::from_str::<Value>(&line) {
+                    if send.send(event).is_err() {
+                        break;
+                    }
+                }
+            }
+        });
+    }
+    receive
+}
+
+/// One line that says what went wrong, then the build log folded below it.
+fn with_folded_log(headline: &str, log: &str) -> String {
+    let log = log.trim();
+    if log.is_empty() {
+        return headline.to_string();
+    }
+    let folded: String = log.lines().map(|l| format!("    | {l}\n")).collect();
+    format!("{headline}\n  details:\n{folded}")
 }
 
 /// The first build slot whose lock file we can hold.
@@ -412,14 +386,6 @@ fn import_published(session: &mut Session, exchange: &Path, outcome: &mut CellOu
     }
 }
 
-impl Drop for RustCells {
-    fn drop(&mut self) {
-        if let Some(context) = &self.context {
-            let _ = std::fs::remove_dir_all(&context.exchange);
-        }
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -431,24 +397,6 @@ mod tests {
         assert_eq!(rust_source("\n%%rust  \nprintln!();"), Some("println!();"));
         assert_eq!(rust_source("%%rusty\nx"), None);
         assert_eq!(rust_source("graph g:\n    a -> b"), None);
-    }
-
-    #[test]
-    fn a_panic_report_on_stderr_becomes_its_message() {
-        // The default panic hook's layout (std::panic, Rust 1.95; recalled):
-        // header line, message, optional backtrace block, closing note.
-        let lines = [
-            "thread '<unnamed>' (23140) panicked at src/lib.rs:109:1:",
-            "sapling count went negative",
-            "stack backtrace:",
-            "   0: __rustc::rust_begin_unwind",
-            "note: Some details are omitted, run with `RUST_BACKTRACE=full` for a verbose backtrace.",
-            "an ordinary line",
-        ];
-        let mut report = PanicReport::default();
-        let shown: Vec<&str> = lines.iter().copied().filter(|l| !report.absorb(l)).collect();
-        assert_eq!(shown, ["an ordinary line"]);
-        assert_eq!(report.message.as_deref(), Some("sapling count went negative"));
     }
 
     #[test]
