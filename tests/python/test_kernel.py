@@ -271,6 +271,32 @@ def test_interrupt_message_stops_a_running_cell_and_keeps_the_session():
         assert any(m["msg_type"] == "execute_result" and m["content"]["data"]["text/plain"] == "5" for m in msgs)
 
 
+def test_an_interrupt_names_the_rust_variables_it_cost():
+    with running_kernel() as (km, kc):
+        assert run(kc, "%%rust\nlet kept_seed: u64 = 7;", timeout=FIRST_RUST_CELL_TIMEOUT)[0]["status"] == "ok"
+        msg_id = kc.execute(LONG_RUST_CELL)
+        wait_for_stream(kc, msg_id, "looping")
+        km.interrupt_kernel()
+        reply, _ = reply_time(kc, msg_id, time.monotonic())
+        assert reply["status"] == "error" and "interrupted" in reply["evalue"], reply
+        # The message lists what the restarted context no longer has.
+        assert "kept_seed: u64" in reply["evalue"], reply["evalue"]
+        reply, _ = run(kc, "%%rust\nkept_seed")
+        assert reply["status"] == "error", "the variable is really gone"
+
+
+def test_inspect_describes_a_rust_variable_with_type_and_value():
+    with running_kernel() as (km, kc):
+        code = "%%rust\nlet sapling_heights: Vec<f64> = vec![1.5, 2.25];"
+        assert run(kc, code, timeout=FIRST_RUST_CELL_TIMEOUT)[0]["status"] == "ok"
+        probe = "%%rust\nsapling_heights"
+        kc.inspect(probe, len(probe))
+        reply = kc.get_shell_msg(timeout=RUST_CELL_TIMEOUT)["content"]
+        assert reply["found"] is True, reply
+        # Rust's Debug form of a Vec<f64> (the standard library's formatting).
+        assert reply["data"]["text/plain"] == "sapling_heights: Vec<f64> = [1.5, 2.25]", reply
+
+
 def test_sigint_stops_a_running_cell():
     with running_kernel() as (km, kc):
         pid = km.provisioner.process.pid

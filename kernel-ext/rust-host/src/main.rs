@@ -17,6 +17,7 @@
 
 mod protocol;
 mod session;
+mod type_view;
 
 use std::path::PathBuf;
 use std::process::ExitCode;

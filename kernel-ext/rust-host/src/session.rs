@@ -11,9 +11,11 @@ use std::time::Duration;
 use evcxr::{CommandContext, EvalContext, EvalContextOutputs};
 
 use crate::protocol::{Done, Events, Failure, Interrupter};
+use crate::type_view;
 
-/// The bridge functions every cell can call without a `use` line.
-const BRIDGE_USE: &str = "use waypath::{wp_table, wp_draws, wp_publish, wp_exchange};";
+/// The bridge functions (`wp_table`, `wp_draws`, `wp_publish`), compiled
+/// into the context from source.
+const BRIDGE_SOURCE: &str = include_str!("../../src/rust_cells/bridge_prelude.rs");
 
 /// A started Rust context.
 pub struct Runner {
@@ -37,21 +39,28 @@ impl Runner {
             headline: format!("cannot find the waypath-rust program itself: {e}"),
             log: String::new(),
         })?;
-        let (eval, outputs) = EvalContext::with_subprocess_command(Command::new(exe)).map_err(|e| Failure {
+        let (mut eval, outputs) = EvalContext::with_subprocess_command(Command::new(exe)).map_err(|e| Failure {
             headline: "the Rust context did not start".into(),
             log: e.to_string(),
         })?;
-        let mut commands = CommandContext::with_eval_context(eval);
-        let child = commands.process_handle();
-        let setup = [":offline 1".to_string(), build_flags(cells_lib, deps)];
-        for line in &setup {
-            commands.execute(line).map_err(|e| Failure { headline: format!("evcxr refused `{line}`"), log: e.to_string() })?;
-        }
-        events.stream("stderr", "compiling the first cell of the Rust context (a few seconds)…\n");
-        commands.execute(BRIDGE_USE).map_err(|e| {
+        let mut state = eval.state();
+        state.set_offline_mode(true);
+        state.set_build_env("CARGO_ENCODED_RUSTFLAGS", &build_flags(cells_lib, deps));
+        let (placeholder, config) = type_view::dependency_lines(&slot_dir()?).map_err(|e| Failure {
+            headline: "cannot prepare the Rust context's view of the library".into(),
+            log: e,
+        })?;
+        state.add_dep(placeholder, &config).map_err(|e| Failure {
+            headline: "evcxr refused the view of the library".into(),
+            log: e.to_string(),
+        })?;
+        events.stream("stderr", "compiling the bridge into the Rust context (once per kernel, seconds)…\n");
+        eval.eval_with_state(&prelude_source(), state).map_err(|e| {
             let log = e.to_string();
             Failure { headline: format!("cannot compile a cell against {}: {}", cells_lib.display(), first_error_line(&log)), log }
         })?;
+        let commands = CommandContext::with_eval_context(eval);
+        let child = commands.process_handle();
         Ok(Runner { commands, outputs, child, interrupted: Arc::new(AtomicBool::new(false)) })
     }
 
@@ -79,14 +88,17 @@ impl Runner {
     /// `None` when there is no such variable.
     pub fn describe(&mut self, name: &str) -> Option<String> {
         let ty = self.variables().into_iter().find(|(n, _)| n == name)?.1;
-        while self.outputs.stdout.try_recv().is_ok() {}
-        let probe = format!("println!(\"{{:?}}\", &{name});");
-        let value = match self.commands.execute(&probe) {
-            Ok(_) => {
-                let lines: Vec<String> = self.outputs.stdout.try_iter().collect();
-                Some(shorten(&lines.join(" "), 160))
+        let printed = std::sync::Mutex::new(Vec::new());
+        let collect = |stream: &str, text: &str| {
+            if stream == "stdout" {
+                printed.lock().unwrap_or_else(|p| p.into_inner()).push(text.trim_end().to_string());
             }
-            Err(_) => None,
+        };
+        let probe = format!("println!(\"{{:?}}\", &{name});");
+        let (result, panic) = self.eval_streaming(&probe, &collect);
+        let value = match (result, panic) {
+            (Ok(_), None) => Some(shorten(&printed.into_inner().unwrap_or_default().join(" "), 160)),
+            _ => None,
         };
         Some(match value {
             Some(value) => format!("{name}: {ty} = {value}"),
@@ -98,7 +110,7 @@ impl Runner {
     pub fn run(&mut self, code: &str, events: &Events) {
         let before = self.variables();
         self.interrupted.store(false, Ordering::SeqCst);
-        let (result, panic) = self.eval_streaming(code, events);
+        let (result, panic) = self.eval_streaming(code, &|stream: &str, text: &str| events.stream(stream, text));
         let mut done = Done::default();
         match (result, panic) {
             (_, Some(message)) => done.error = Some(format!("the Rust cell panicked: {message}")),
@@ -116,12 +128,18 @@ impl Runner {
         events.done(&done);
     }
 
-    fn eval_streaming(&mut self, code: &str, events: &Events) -> (Result<evcxr::EvalOutputs, evcxr::Error>, Option<String>) {
+    /// Evaluate while a scoped thread passes printed lines to `sink` (evcxr's
+    /// output channels must be read while a cell runs, or the cell waits).
+    fn eval_streaming(
+        &mut self,
+        code: &str,
+        sink: &(dyn Fn(&str, &str) + Sync),
+    ) -> (Result<evcxr::EvalOutputs, evcxr::Error>, Option<String>) {
         let finished = AtomicBool::new(false);
         let stdout = self.outputs.stdout.clone();
         let stderr = self.outputs.stderr.clone();
         std::thread::scope(|scope| {
-            let forwarder = scope.spawn(|| forward_lines(&stdout, &stderr, &finished, events));
+            let forwarder = scope.spawn(|| forward_lines(&stdout, &stderr, &finished, sink));
             let result = self.commands.execute(code);
             finished.store(true, Ordering::SeqCst);
             let panic = forwarder.join().unwrap_or(None);
@@ -159,8 +177,9 @@ fn lost_variables(before: &[(String, String)]) -> String {
     )
 }
 
-/// The compiler flags that hand every cell the prebuilt library as `waypath`.
-/// Cargo's encoded form (fields separated by 0x1f) keeps paths with spaces whole.
+/// The compiler flags that hand every cell the prebuilt library as
+/// `waypath`, in cargo's encoded form (fields separated by 0x1f, so paths
+/// with spaces stay whole).
 fn build_flags(cells_lib: &Path, deps: &Path) -> String {
     let flags = [
         "-Cprefer-dynamic".to_string(),
@@ -169,16 +188,29 @@ fn build_flags(cells_lib: &Path, deps: &Path) -> String {
         "-L".to_string(),
         format!("dependency={}", deps.display()),
     ];
-    format!(":build_env CARGO_ENCODED_RUSTFLAGS={}", flags.join("\u{1f}"))
+    flags.join("\u{1f}")
 }
 
-/// Pass lines to `events` until `finished`, then drain what is left. A panic
+/// The bridge source without its module doc lines.
+fn prelude_source() -> String {
+    BRIDGE_SOURCE.lines().filter(|l| !l.starts_with("//!")).collect::<Vec<_>>().join("\n")
+}
+
+/// The evcxr build folder the kernel gave this runner.
+fn slot_dir() -> Result<std::path::PathBuf, Failure> {
+    std::env::var_os("EVCXR_TMPDIR").map(std::path::PathBuf::from).ok_or_else(|| Failure {
+        headline: "the Rust cell runner was started without its build folder (EVCXR_TMPDIR)".into(),
+        log: String::new(),
+    })
+}
+
+/// Pass lines to `sink` until `finished`, then drain what is left. A panic
 /// report is taken out of stderr and returned as its message.
 fn forward_lines(
     stdout: &crossbeam_channel::Receiver<String>,
     stderr: &crossbeam_channel::Receiver<String>,
     finished: &AtomicBool,
-    events: &Events,
+    sink: &(dyn Fn(&str, &str) + Sync),
 ) -> Option<String> {
     let tick = Duration::from_millis(20);
     let mut panic = PanicReport::default();
@@ -186,10 +218,10 @@ fn forward_lines(
     while !idle_after_finish {
         let was_finished = finished.load(Ordering::SeqCst);
         crossbeam_channel::select! {
-            recv(stdout) -> line => if let Ok(line) = line { events.stream("stdout", &format!("{line}\n")) },
+            recv(stdout) -> line => if let Ok(line) = line { sink("stdout", &format!("{line}\n")) },
             recv(stderr) -> line => if let Ok(line) = line {
                 if !panic.absorb(&line) {
-                    events.stream("stderr", &format!("{line}\n"))
+                    sink("stderr", &format!("{line}\n"))
                 }
             },
             default(tick) => idle_after_finish = was_finished,

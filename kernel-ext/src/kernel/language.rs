@@ -173,10 +173,19 @@ fn session_words(session: &Session) -> Vec<String> {
 
 /// The `inspect_reply` content: what the word under the cursor names.
 pub fn inspect(session: &Session, code: &str, cursor_pos: usize) -> Value {
+    inspect_reply(describe(session, &word_at(code, cursor_pos)))
+}
+
+/// The word (letters, digits, `_`) around the cursor.
+pub fn word_at(code: &str, cursor_pos: usize) -> String {
     let (before, _) = text_before(code, cursor_pos);
     let after: String = code.chars().skip(cursor_pos).take_while(|c| c.is_alphanumeric() || *c == '_').collect();
-    let word = format!("{}{after}", current_word(&before));
-    match describe(session, &word) {
+    format!("{}{after}", current_word(&before))
+}
+
+/// The `inspect_reply` content for a description, or for nothing found.
+pub fn inspect_reply(text: Option<String>) -> Value {
+    match text {
         Some(text) => json!({"status": "ok", "found": true, "data": {"text/plain": text}, "metadata": {}}),
         None => json!({"status": "ok", "found": false, "data": {}, "metadata": {}}),
     }

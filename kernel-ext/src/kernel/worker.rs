@@ -107,7 +107,13 @@ impl Worker {
                 identity.reply(request, "complete_reply", language::complete(&self.session, code, cursor))
             }
             "inspect_request" => {
-                identity.reply(request, "inspect_reply", language::inspect(&self.session, code, cursor))
+                // In a Rust cell, a variable of the Rust context comes first.
+                let rust = rust_source(code).and_then(|_| self.rust.describe(&language::word_at(code, cursor)));
+                let content = match rust {
+                    Some(text) => language::inspect_reply(Some(text)),
+                    None => language::inspect(&self.session, code, cursor),
+                };
+                identity.reply(request, "inspect_reply", content)
             }
             "is_complete_request" => identity.reply(request, "is_complete_reply", language::is_complete(code)),
             "history_request" => identity.reply(request, "history_reply", language::history(&self.history, content)),

@@ -85,11 +85,13 @@ pub fn wp_read_table(dir: &Path, name: &str) -> Result<Table, String> {
     load_table(&spec).map(|(table, _)| table).map_err(|e| format!("table {name}: {e}"))
 }
 
-/// Table names become file names: letters, digits and `_` only.
+/// Table names become file names: the session's own rule for names
+/// (letters of any script, digits and `_`, not starting with a digit), so
+/// every table a declarative cell can make crosses the bridge.
 fn wp_check_name(name: &str) -> Result<(), String> {
     let mut chars = name.chars();
-    let starts_well = chars.next().is_some_and(|c| c.is_ascii_alphabetic() || c == '_');
-    if starts_well && chars.all(|c| c.is_ascii_alphanumeric() || c == '_') {
+    let starts_well = chars.next().is_some_and(|c| c.is_alphabetic() || c == '_');
+    if starts_well && chars.all(|c| c.is_alphanumeric() || c == '_') {
         Ok(())
     } else {
         Err(format!("{name:?} cannot name a table; use letters, digits and _ and start with a letter"))

@@ -400,6 +400,19 @@ mod tests {
     }
 
     #[test]
+    fn names_in_any_script_cross_the_exchange_and_bad_names_are_refused() {
+        let dir = std::env::temp_dir().join(format!("waypath-bridge-names-{}", std::process::id()));
+        let height = Column::new("höhe", ColumnData::Real(vec![1.5, 2.25]));
+        let table = Table::from_columns("sämlinge", vec![height]).expect("valid columns");
+        bridge_prelude::wp_write_table(&dir, "sämlinge", &table).expect("a name with letters beyond ASCII is accepted");
+        let back = bridge_prelude::wp_read_table(&dir, "sämlinge");
+        let refused = bridge_prelude::wp_write_table(&dir, "1st/../x", &table);
+        let _ = std::fs::remove_dir_all(&dir);
+        assert_eq!(back.expect("reads"), table);
+        assert!(refused.expect_err("a path is not a name").contains("cannot name a table"));
+    }
+
+    #[test]
     fn tables_cross_the_exchange_with_kinds_levels_and_units() {
         let dir = std::env::temp_dir().join(format!("waypath-bridge-test-{}", std::process::id()));
         let mut girth = Column::new("girth", ColumnData::Real(vec![21.5, 30.0, 0.1]));
