@@ -1,8 +1,10 @@
 #!/usr/bin/env bash
 # The whole Waypath test suite in one command: Python reference venv, release
 # build, Rust tests, Python reference checks (networkx, scipy, statsmodels,
-# nbformat), a headless run of every demo notebook, and demo notebook 1 run
-# in JupyterLab inside Debian's chromium (driven by playwright-core).
+# nbformat), a headless run of every demo notebook, Rust cells on a fresh
+# machine (an empty cargo home filled by `cargo fetch --target HOST`, then
+# offline), and demo notebook 1 run in JupyterLab inside Debian's chromium
+# (driven by playwright-core).
 #
 # The cargo target directory defaults to a folder outside the clone so that
 # repeated runs (and CI on the same machine) reuse the build.
@@ -45,6 +47,10 @@ fi
 export WAYPATH_NODE_MODULES="$node_dir/node_modules"
 
 echo "== building (release)"
+# The Rust-cell runner alone first, as the README builds it: the library that
+# Rust cells link to is made with this package's own feature resolution, so
+# the kernel checks' first Rust cell only links it.
+cargo build --release --locked -p waypath-rust-host
 cargo build --release --workspace --locked
 
 echo "== Rust tests"

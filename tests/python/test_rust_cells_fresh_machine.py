@@ -12,7 +12,8 @@ other platforms (web-assembly ones) and fails here.
 
 The target folder is kept between runs under $CARGO_TARGET_DIR/fresh-machine
 (the cargo home is made anew each time at the same path, so the build is
-reused); the first run on a machine compiles the README's build once more.
+reused); the first run on a machine compiles the Rust-cell runner's build
+once more (registry sources at a new path are new to cargo).
 Checks: nbformat validates the executed notebook; jupyter_client (BlockingKernelClient)
 speaks to the kernel; plain arithmetic for the cell's value.
 """
@@ -29,7 +30,7 @@ import pytest
 from jupyter_client import BlockingKernelClient
 from jupyter_client.connect import write_connection_file
 
-from conftest import REPO
+from conftest import REPO, bin_dir
 
 BUILD_TIMEOUT = 3600  # s: the first run on a machine compiles the README's build
 
@@ -78,13 +79,15 @@ def fresh():
     # What the README's build downloads: this platform's packages only.
     cargo(["fetch", "--locked", "--target", host_triple()], env, timeout=900)
     env["CARGO_NET_OFFLINE"] = "true"
-    # The README's builds, as separate commands, offline.
-    cargo(["build", "--release", "--locked", "-p", "waypath-kernel"], env)
+    # The README's build of the Rust-cell runner, offline. The `waypath`
+    # program itself is the suite's own build, copied beside it (its build
+    # does not touch Rust cells, and building it again would cost CI minutes).
     cargo(["build", "--release", "--locked", "-p", "waypath-rust-host"], env)
+    release = root / "target" / "release"
+    shutil.copy2(bin_dir() / "waypath", release / "waypath")
     evcxr_dir = tempfile.mkdtemp(prefix="waypath-fresh-evcxr-")
     env["WAYPATH_EVCXR_DIR"] = evcxr_dir
-    bin_dir = root / "target" / "release"
-    yield {"env": env, "home": home, "waypath": bin_dir / "waypath"}
+    yield {"env": env, "home": home, "waypath": release / "waypath"}
     shutil.rmtree(evcxr_dir, ignore_errors=True)
 
 
