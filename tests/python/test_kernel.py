@@ -357,6 +357,8 @@ def test_panic_and_compile_error_become_error_replies():
         assert reply["status"] == "error"
         # The mismatch is on the cell's second line, at the string literal (column 19).
         assert "cell line 2, column 19" in reply["evalue"], reply["evalue"]
+        # The compiler's own expected/found note survives (rustc's E0308 label).
+        assert "expected `u32`, found `&str`" in reply["evalue"], reply["evalue"]
         reply, _ = run(kc, "%%rust\n40 + 2")
         assert reply["status"] == "ok"
         reply, _ = run(kc, "ask total effect of a on b in missing_graph")

@@ -279,7 +279,7 @@ fn compile_error_text(error: &evcxr::CompilationError, code: &str) -> String {
         format!("cell line {}, column {}: `{}`: ", s.start_line + 1, s.start_column, source_line.trim())
     });
     let mut text = format!("{}{}", place.unwrap_or_default(), error.message());
-    for note in error.spanned_messages().iter().map(|m| m.label.as_str()).filter(|l| !l.is_empty()) {
+    for note in error.spanned_messages().iter().filter(|m| m.is_primary).map(|m| m.label.as_str()).filter(|l| !l.is_empty()) {
         if !text.contains(note) {
             text.push_str(&format!(" ({note})"));
         }
