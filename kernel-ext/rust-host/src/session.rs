@@ -160,7 +160,17 @@ impl Runner {
                 };
                 format!("{cause}; {}; the session's tables, graphs and fits are kept", lost_variables(before))
             }
-            other => format!("the Rust cell failed: {}", other.to_string().trim()),
+            other => {
+                let text = other.to_string();
+                let hint = if text.contains("Couldn't automatically determine type of variable") {
+                    " (Rust cells keep a variable for later cells only when its type can be named: write it, as in \
+                     `let heights: Vec<f64> = …`, or put the code that uses the value in a block `{ … }`; values of the \
+                     library's dependencies, such as a random generator, always need it written)"
+                } else {
+                    ""
+                };
+                format!("the Rust cell failed: {}{hint}", text.trim().replace("\nPlease give it an explicit type.", ""))
+            }
         }
     }
 }

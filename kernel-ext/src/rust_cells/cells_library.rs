@@ -102,12 +102,55 @@ pub fn prepare(progress: &dyn Fn(&str)) -> Result<CellsLibrary, String> {
             return Err(build_failure(&place, &second));
         }
     }
+    if let Some(note) = ensure_std_sources(progress) {
+        progress(&note);
+    }
     let out = place.target.join(&place.profile);
     let dylib = out.join(format!("{}waypath_cells{}", std::env::consts::DLL_PREFIX, std::env::consts::DLL_SUFFIX));
     if !dylib.is_file() {
         return Err(format!("cargo finished but {} was not written", dylib.display()));
     }
     Ok(CellsLibrary { dylib, deps: out.join("deps"), std_dir: rust_std_dir() })
+}
+
+/// evcxr names the types of variables kept between cells with
+/// rust-analyzer, which reads the standard library's source as a cargo
+/// workspace (`rust-src`) and so needs that workspace's own packages in the
+/// cargo cache. They are checked offline; when missing they are fetched
+/// once (with `RUSTC_BOOTSTRAP=1`, as rust-analyzer itself reads that
+/// workspace); when that is impossible the answer is a note, not an error:
+/// cells still run, and variables of standard-library types then need their
+/// type written.
+fn ensure_std_sources(progress: &dyn Fn(&str)) -> Option<String> {
+    let manifest = rustc_print("sysroot")
+        .map(|root| root.join("lib/rustlib/src/rust/library/Cargo.toml"))
+        .filter(|m| m.is_file())?;
+    let cargo = std::env::var_os("CARGO").unwrap_or_else(|| "cargo".into());
+    let run = |verb: &[&str]| {
+        Command::new(&cargo)
+            .args(verb)
+            .arg("--manifest-path")
+            .arg(&manifest)
+            .arg("--locked")
+            .env("RUSTC_BOOTSTRAP", "1")
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .status()
+            .is_ok_and(|s| s.success())
+    };
+    if run(&["metadata", "--format-version", "1", "--offline"]) {
+        return None;
+    }
+    progress("fetching the standard library's own packages once, so that Rust cells can name the types of their variables…");
+    if run(&["fetch"]) {
+        return None;
+    }
+    Some(format!(
+        "note: without a network the standard library's packages could not be fetched, so variables kept between Rust \
+         cells need their type written (`let heights: Vec<f64> = …`); to lift this, run once with a network: \
+         RUSTC_BOOTSTRAP=1 cargo fetch --locked --manifest-path {}",
+        manifest.display()
+    ))
 }
 
 /// The cargo command that links the library; its own tools' paths come
@@ -175,8 +218,13 @@ fn build_failure(place: &BuildPlace, log: &str) -> String {
 /// The folder of the toolchain's shared `libstd`, which compiled cells and
 /// the library link to.
 fn rust_std_dir() -> Option<PathBuf> {
+    rustc_print("target-libdir")
+}
+
+/// A folder rustc reports with `--print WHAT`.
+fn rustc_print(what: &str) -> Option<PathBuf> {
     let rustc = std::env::var_os("RUSTC").unwrap_or_else(|| "rustc".into());
-    let out = Command::new(rustc).args(["--print", "target-libdir"]).output().ok()?;
+    let out = Command::new(rustc).args(["--print", what]).output().ok()?;
     let dir = String::from_utf8(out.stdout).ok()?.trim().to_string();
     (out.status.success() && !dir.is_empty()).then(|| PathBuf::from(dir))
 }
