@@ -145,7 +145,7 @@ impl Dag {
 
     /// Undirected neighbours in the moral graph of the sub-graph on `keep`
     /// (an ancestral set): parent–child links plus links between co-parents.
-    fn moral_graph(&self, keep: &[bool]) -> Vec<Vec<usize>> {
+    pub(crate) fn moral_graph(&self, keep: &[bool]) -> Vec<Vec<usize>> {
         let mut nbrs = vec![Vec::new(); self.len()];
         let link = |a: usize, b: usize, nbrs: &mut Vec<Vec<usize>>| {
             if a != b && !nbrs[a].contains(&b) {

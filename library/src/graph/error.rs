@@ -36,6 +36,10 @@ pub enum GraphError {
     #[error("graph {graph}: `{node}` is named as both exposure and outcome; name two different nodes")]
     SameNode { graph: String, node: String },
 
+    /// The cancel flag was set (an interrupt) while a question was answered.
+    #[error("graph {graph}: the question was interrupted before it was answered")]
+    Interrupted { graph: String },
+
     /// Too many paths to list.
     #[error("graph {graph} has more than {limit} paths between {from} and {to}; ask about a smaller graph or a closer pair of nodes")]
     TooManyPaths { graph: String, from: String, to: String, limit: usize },

@@ -35,15 +35,16 @@ mod error;
 mod identify;
 mod implications;
 mod paths;
+mod separators;
 
 use std::collections::HashMap;
 
-pub use build::GraphBuilder;
-pub use dot::from_dot;
+pub use build::{GraphBuilder, MAX_EDGES};
+pub use dot::{from_dot, MAX_DOT_NESTING};
 pub use error::GraphError;
 pub use identify::{EffectKind, Identification};
 pub use implications::{Implication, Implications, UntestablePair};
-pub use paths::{Arrow, PathReport};
+pub use paths::{Arrow, PathListing, PathReport};
 
 use dag::Dag;
 
