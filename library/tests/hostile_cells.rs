@@ -303,3 +303,17 @@ fn ten_two_way_choices_list_sixty_four_sets_and_say_the_list_is_cut() {
     }
     assert!(display.plain.contains("further minimal sets may exist"), "{}", display.plain);
 }
+
+#[test]
+fn a_csv_file_larger_than_the_memory_is_refused_before_reading() {
+    let dir = folder("huge-file");
+    // A sparse file of 1 TiB: no disk is used, but its table would need terabytes.
+    let file = std::fs::File::create(dir.join("huge.csv")).unwrap();
+    file.set_len(1 << 40).unwrap();
+    drop(file);
+    let mut session = Session::new(&dir);
+    let error = error_of(&mut session, "table huge from \"huge.csv\"");
+    assert!(error.starts_with("cell line 1:") && error.contains("would need about") && error.contains("available"), "{error}");
+    std::fs::remove_file(dir.join("huge.csv")).unwrap();
+    assert_usable(&mut session);
+}

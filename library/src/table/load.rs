@@ -23,6 +23,8 @@ use std::fs::File;
 use std::io::{self, Read};
 use std::sync::atomic::{AtomicBool, Ordering};
 
+use crate::limits::{check_memory, describe_bytes};
+
 use super::error::TableError;
 use super::report::{ColumnReport, FilterReport, LoadReport};
 use super::rules::{ColumnDecl, TableSpec};
@@ -32,6 +34,9 @@ use super::{Column, ColumnData, ColumnKind, Table};
 
 /// How many missing rows an error lists before saying "and N more".
 const ROWS_SHOWN: usize = 5;
+/// Bytes of memory a loaded table takes per byte of its CSV file (an
+/// estimate: the raw fields, their ends and the typed values).
+const MEMORY_PER_BYTE: u128 = 4;
 /// Rows read between two reads of the cancel flag.
 const CANCEL_EVERY: usize = 4096;
 
@@ -46,6 +51,11 @@ pub fn load_table(spec: &TableSpec) -> Result<(Table, LoadReport), TableError> {
 pub fn load_table_with_cancel(spec: &TableSpec, cancel: &AtomicBool) -> Result<(Table, LoadReport), TableError> {
     let label = spec.path.display().to_string();
     let file = File::open(&spec.path).map_err(|e| io_error(&label, &e))?;
+    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
+    // Raw field text, field ends and typed values: about four times the file.
+    let bytes = u128::from(size).saturating_mul(MEMORY_PER_BYTE);
+    check_memory(&format!("a table from a file of {}", describe_bytes(size as f64)), bytes)
+        .map_err(|message| TableError::TooLarge { file: label.as_str().into(), message: message.into() })?;
     Table::from_csv_reader_with_cancel(spec, &label, file, cancel)
 }
 
