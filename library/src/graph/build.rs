@@ -210,13 +210,17 @@ fn topological_order(dag: &Dag) -> Result<Vec<usize>, Vec<usize>> {
 /// cycle is returned in edge direction, from its earliest-declared node.
 fn find_cycle(dag: &Dag, waiting: &[usize]) -> Vec<usize> {
     let stuck = |i: usize| waiting[i] > 0;
-    let mut walk: Vec<usize> = vec![(0..dag.len()).find(|&i| stuck(i)).unwrap_or(0)];
+    let first = (0..dag.len()).find(|&i| stuck(i)).unwrap_or(0);
+    let mut walk: Vec<usize> = vec![first];
+    // Where each node sits on the walk, so a repeat is found in constant time.
+    let mut position: Vec<Option<usize>> = vec![None; dag.len()];
+    position[first] = Some(0);
     loop {
         let here = walk[walk.len() - 1];
         let Some(&next) = dag.parents[here].iter().find(|&&p| stuck(p)) else {
             return walk;
         };
-        if let Some(pos) = walk.iter().position(|&i| i == next) {
+        if let Some(pos) = position[next] {
             let mut cycle: Vec<usize> = walk[pos..].to_vec();
             cycle.reverse();
             // Start at the earliest-declared node so the message is stable.
@@ -225,6 +229,7 @@ fn find_cycle(dag: &Dag, waiting: &[usize]) -> Vec<usize> {
             cycle.push(cycle[0]);
             return cycle;
         }
+        position[next] = Some(walk.len());
         walk.push(next);
     }
 }
