@@ -141,6 +141,7 @@ fn numbers_out_of_their_range_are_errors() {
     let mut session = stream_session(&dir);
     // 4294967297 = 2^32 + 1, which a 32-bit cast turns into 1.
     let error = error_of(&mut session, "fit m with nuts depth 4294967297");
+    assert!(error.starts_with("cell line 1:"), "{error}");
     assert!(error.contains("depth takes a whole number from 1 to 30, not 4294967297"), "{error}");
     let error = error_of(&mut session, "fit m with nuts chains 100000");
     assert!(error.contains("chains takes a whole number from 1 to 64"), "{error}");
@@ -172,7 +173,11 @@ fn values_near_1e200_are_named_at_model_build() {
 fn a_set_interrupt_stops_every_long_statement_and_keeps_the_session() {
     let dir = folder("interrupt");
     let mut session = stream_session(&dir);
-    let out = run(&mut session, "joint whole = g using stream\nfit whole with laplace draws 100 seed 3");
+    let out = run(
+        &mut session,
+        "joint whole = g using stream\nfit whole with laplace draws 100 seed 3\n\
+         simulate made from g rows 50 seed 1:\n    shade = normal(0, 1)\n    temp = normal(shade, 1)\n    trout = normal(temp, 1)\n",
+    );
     assert!(out.error.is_none(), "{:?}", out.error);
     let cells = [
         "table again from \"stream.csv\"",
@@ -184,6 +189,8 @@ fn a_set_interrupt_stops_every_long_statement_and_keeps_the_session() {
         "calibrate m reps 20 with laplace",
         "simulate fake from g rows 100 seed 1:\n    shade = normal(0, 1)\n    temp = normal(shade, 1)\n    trout = normal(temp, 1)\n",
         "intervene whole: set shade 1 vs 0, watch trout seed 2",
+        "ask total effect of shade on trout in g using stream with laplace",
+        "recover m on made with laplace",
     ];
     let cancel = AtomicBool::new(true);
     for cell in cells {
