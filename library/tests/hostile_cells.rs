@@ -74,6 +74,10 @@ fn a_condition_with_20000_nested_parentheses_is_refused() {
     let chain = vec!["shade > 0"; 5000].join(" or ");
     let error = error_of(&mut session, &format!("table deep from \"stream.csv\":\n    keep where {chain}\n"));
     assert!(error.contains("deeper than 200 levels"), "{error}");
+    // Nesting below the limit is still read: 150 parentheses keep the rows with shade > 0.
+    let fine = format!("{}shade > 0{}", "(".repeat(150), ")".repeat(150));
+    let out = run(&mut session, &format!("table shaded from \"stream.csv\":\n    keep where {fine}\n"));
+    assert!(out.error.is_none(), "{:?}", out.error);
     let nots = format!("{}shade > 0", "not ".repeat(50_000));
     assert!(error_of(&mut session, &format!("table deep from \"stream.csv\":\n    keep where {nots}\n")).contains("deeper than 200"));
     assert_usable(&mut session);
@@ -86,6 +90,10 @@ fn a_mechanism_with_200000_minus_signs_is_refused() {
     let cell = format!("graph g:\n    a -> b\nsimulate fake from g rows 10 seed 1:\n    a = normal({minus}1, 1)\n    b = normal(a, 1)\n");
     let error = error_of(&mut session, &cell);
     assert!(error.contains("line 4") && error.contains("deeper than 200 levels"), "{error}");
+    // 150 minus signs in a row are still read (an even count: the value itself).
+    let fine = format!("graph g:\n    a -> b\nsimulate fine from g rows 10 seed 1:\n    a = normal({}1, 1)\n    b = normal(a, 1)\n", "-".repeat(150));
+    let out = run(&mut session, &fine);
+    assert!(out.error.is_none(), "{:?}", out.error);
     let sum = vec!["a"; 10_000].join(" + ");
     let cell = format!("graph g:\n    a -> b\nsimulate fake from g rows 10 seed 1:\n    a = normal(0, 1)\n    b = normal({sum}, 1)\n");
     assert!(error_of(&mut session, &cell).contains("deeper than 200 levels"));

@@ -104,7 +104,7 @@ pub fn laplace_with_cancel<D: LogDensity>(
     }
     let label = |i: usize| names.get(i).cloned().unwrap_or_else(|| format!("parameter {}", i + 1));
     let (mode, log_density_at_mode, steps) = find_mode(target, init, &label, cancel)?;
-    let negative_hessian = -hessian_with_cancel(target, &mode, cancel)?;
+    let negative_hessian = -hessian(target, &mode, cancel)?;
     let cholesky = Cholesky::new(negative_hessian.clone())
         .ok_or_else(|| InferError::NotPositiveDefinite { parameters: flat_directions(&negative_hessian, &label) })?;
     let draws = normal_draws(&mode, &cholesky, n_draws, seed, cancel)?;
@@ -133,7 +133,7 @@ fn find_mode<D: LogDensity>(
     }
     let mut steps = 0;
     while steps < MAX_STEPS {
-        let (direction, undamped) = newton_direction(&hessian_with_cancel(target, &theta, cancel)?, &grad);
+        let (direction, undamped) = newton_direction(&hessian(target, &theta, cancel)?, &grad);
         let slope = grad.dot(&direction);
         if 0.5 * slope < DECREMENT_TOLERANCE {
             return Ok((theta, value, steps));
@@ -187,13 +187,9 @@ fn backtrack<D: LogDensity>(
     None
 }
 
-/// The Hessian by symmetrised central differences of the gradient.
-pub fn hessian<D: LogDensity>(target: &D, theta: &DVector<f64>) -> DMatrix<f64> {
-    hessian_with_cancel(target, theta, &AtomicBool::new(false)).unwrap_or_else(|_| DMatrix::zeros(theta.len(), theta.len()))
-}
-
-/// [`hessian`], reading `cancel` before each pair of gradient calls.
-fn hessian_with_cancel<D: LogDensity>(target: &D, theta: &DVector<f64>, cancel: &AtomicBool) -> Result<DMatrix<f64>, InferError> {
+/// The Hessian by symmetrised central differences of the gradient, reading
+/// `cancel` before each pair of gradient calls.
+pub fn hessian<D: LogDensity>(target: &D, theta: &DVector<f64>, cancel: &AtomicBool) -> Result<DMatrix<f64>, InferError> {
     let dim = theta.len();
     let mut h = DMatrix::zeros(dim, dim);
     for j in 0..dim {
