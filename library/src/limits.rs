@@ -89,10 +89,11 @@ pub fn whole_number(key: &str, text: &str, low: u64, high: u64) -> Result<u64, S
     let digits = text.strip_prefix('+').unwrap_or(text);
     let all_digits = !digits.is_empty() && digits.chars().all(|c| c.is_ascii_digit());
     let value = if all_digits { digits.parse::<u64>().ok() } else { None };
+    let top = if high == u64::MAX { "2^64 − 1".to_string() } else { high.to_string() };
     match value {
         Some(v) if (low..=high).contains(&v) => Ok(v),
-        Some(_) | None if all_digits => Err(format!("{key} takes a whole number from {low} to {high}, not {text}")),
-        _ => Err(format!("{key} takes a whole number from {low} to {high}, not \"{text}\"")),
+        Some(_) | None if all_digits => Err(format!("{key} takes a whole number from {low} to {top}, not {text}")),
+        _ => Err(format!("{key} takes a whole number from {low} to {top}, not \"{text}\"")),
     }
 }
 

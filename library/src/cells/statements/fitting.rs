@@ -123,7 +123,8 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
     let pairs: Vec<(&str, &str)> = rest.chunks(2).map(|c| (c[0], c[1])).collect();
     let count = |k: &str, v: &str| {
         let (low, high) = option_range(k);
-        whole_number(k, v, low, high).map(|n| n as usize)
+        let n = whole_number(k, v, low, high)?;
+        usize::try_from(n).map_err(|_| format!("{k} {n} is more than this machine can address; ask for less"))
     };
     let unknown = |keys: &[&str], other: &str| match kind {
         "laplace" => format!("laplace takes `{}`, not `{other}`", keys.join("` and `")),
@@ -175,7 +176,7 @@ fn option_range(key: &str) -> (u64, u64) {
     match key {
         "chains" => (1, MAX_CHAINS),
         "warmup" => (0, MAX_WARMUP),
-        _ => (1, usize::MAX as u64),
+        _ => (1, u64::MAX),
     }
 }
 
