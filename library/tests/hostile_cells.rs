@@ -116,6 +116,13 @@ fn a_dot_file_with_200000_nested_braces_is_refused() {
     std::fs::write(dir.join("wide.dot"), format!("digraph {{ {{{}}} -> {{{}}} }}", left.join(" "), right.join(" "))).unwrap();
     let error = error_of(&mut session, "graph wide from \"wide.dot\"");
     assert!(error.contains("more than 1000000 edges"), "{error}");
+    // A large graph that is accepted is described briefly, without a figure.
+    let chain: Vec<String> = (0..5000).map(|i| format!("c{i}")).collect();
+    std::fs::write(dir.join("long.dot"), format!("digraph {{ {} }}", chain.join(" -> "))).unwrap();
+    let out = run(&mut session, "graph long from \"long.dot\"");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    assert!(out.displays[0].plain.contains("too large to list") && out.displays[0].svg.is_none(), "{:.300}", out.displays[0].plain);
+    assert!(out.displays[0].plain.len() < 1000);
     assert_usable(&mut session);
 }
 

@@ -12,6 +12,9 @@ use crate::cells::parse::{split_commas, Statement};
 use crate::cells::session::{RunControl, Session};
 use crate::graph::{from_dot, Graph, GraphBuilder, Identification, PathListing};
 
+/// The most edges a graph's description lists one by one.
+const LISTED_EDGES: usize = figures::FIGURE_EDGES;
+
 /// The largest DOT file read (a causal graph file is a few kilobytes; a
 /// bigger one is most likely the wrong file).
 const MAX_DOT_BYTES: u64 = 64 << 20;
@@ -59,12 +62,21 @@ pub(crate) fn describe_graph(graph: &Graph) -> Display {
         hidden.len(),
         edges.len()
     );
-    let mut notes = vec![format!("causal order: {}", graph.topological_order().join(", "))];
-    if !hidden.is_empty() {
-        notes.push(format!("hidden (unmeasured): {}", hidden.join(", ")));
+    let mut notes = Vec::new();
+    if edges.len() > LISTED_EDGES || graph.nodes().len() > figures::FIGURE_NODES {
+        notes.push(format!(
+            "the graph is too large to list its causal order and edges or to draw here ({} nodes, {} edges); ask questions of parts of it",
+            graph.nodes().len(),
+            edges.len()
+        ));
+    } else {
+        notes.push(format!("causal order: {}", graph.topological_order().join(", ")));
+        if !hidden.is_empty() {
+            notes.push(format!("hidden (unmeasured): {}", hidden.join(", ")));
+        }
+        let edge_list: Vec<String> = edges.iter().map(|(a, b)| format!("{a} -> {b}")).collect();
+        notes.push(format!("edges: {}", edge_list.join("; ")));
     }
-    let edge_list: Vec<String> = edges.iter().map(|(a, b)| format!("{a} -> {b}")).collect();
-    notes.push(format!("edges: {}", edge_list.join("; ")));
     let plain = format!("{heading}\n{}", notes.iter().map(|n| format!("• {n}")).collect::<Vec<_>>().join("\n"));
     let json = json!({
         "name": graph.name(),
