@@ -136,7 +136,6 @@ fn sizes_past_the_memory_are_refused_with_the_estimate() {
         "fit m with laplace draws 10000000000",
         "fit m with nuts draws 10000000000",
         "model wiggly:\n    temp from spline(shade, 10000000000) using stream\n",
-        "prior check m sets 10000000000",
     ];
     for cell in cells {
         let error = error_of(&mut session, cell);
@@ -162,6 +161,8 @@ fn numbers_out_of_their_range_are_errors() {
     assert!(error.contains("chains takes a whole number from 1 to 64"), "{error}");
     let error = error_of(&mut session, "fit m with nuts warmup 99999999999");
     assert!(error.contains("warmup takes a whole number from 0 to 1000000"), "{error}");
+    let error = error_of(&mut session, "prior check m sets 10000000000");
+    assert!(error.contains("sets takes a whole number from 1 to 100000, not 10000000000"), "{error}");
     let error = error_of(&mut session, "fit m with laplace seed 99999999999999999999999");
     assert!(error.contains("seed takes a whole number from 0 to 2^64 − 1"), "{error}");
     assert_usable(&mut session);

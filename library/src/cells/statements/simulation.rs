@@ -39,6 +39,8 @@ use crate::table::ColumnData;
 const TRUTH_ROWS: usize = 20_000;
 /// Outcome sets simulated by `prior check` and `check` by default.
 const DEFAULT_SETS: usize = 200;
+/// The most outcome sets a predictive check draws (each is a full set of rows).
+const MAX_SETS: u64 = 100_000;
 /// Most parameters drawn in a joint model's posterior figure.
 const FIGURE_PARAMETERS: usize = 10;
 
@@ -571,10 +573,11 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
     let mut rest = words.as_slice();
     let (mut sets, mut seed) = (DEFAULT_SETS, DEFAULT_SEED);
     while let [key, value, tail @ ..] = rest {
-        let parsed: u64 = value.parse().map_err(|_| CellError::at(line, format!("{key} takes a whole number, not `{value}`")))?;
+        let (low, high) = if *key == "sets" { (1, MAX_SETS) } else { (0, u64::MAX) };
+        let parsed = crate::limits::whole_number(key, value, low, high).map_err(|m| CellError::at(line, m))?;
         match *key {
             _ if !CHECK.option_words().contains(key) => return Err(form_error(st, CHECK.usage)),
-            "sets" if parsed > 0 => sets = parsed as usize,
+            "sets" => sets = parsed as usize,
             "seed" => seed = parsed,
             _ => return Err(form_error(st, CHECK.usage)),
         }
