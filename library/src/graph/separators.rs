@@ -23,8 +23,9 @@
 //! Every minimal separator inside the allowed nodes is reached this way, since
 //! each step can move the x side strictly closer to that of any target
 //! separator without passing it (the argument of Berry, Bordat & Cogis 1999
-//! for listing all minimal separators, restricted here to allowed nodes). Each
-//! step costs one graph search, so a set costs O(n · (n + e)) to find.
+//! for listing all minimal separators, restricted here to allowed nodes). A
+//! set is listed as soon as its own successors are found, so at most |Z|
+//! graph searches, O(n · (n + e)), pass between two sets listed.
 //!
 //! The brute-force search over subsets stays in the tests as the oracle.
 
@@ -66,10 +67,13 @@ pub(crate) fn minimal_adjustment_sets(
         return Ok(SetSearch { sets: Vec::new(), complete: true });
     };
     let mut seen: HashSet<Vec<usize>> = HashSet::from([first.clone()]);
-    let mut queue: VecDeque<Vec<usize>> = VecDeque::from([first.clone()]);
-    let mut sets = vec![first];
-    let mut complete = true;
-    'walk: while let Some(z) = queue.pop_front() {
+    let mut queue: VecDeque<Vec<usize>> = VecDeque::from([first]);
+    let mut sets = Vec::new();
+    // A set is listed when it is taken from the queue and its successors are
+    // queued at once, so one walk step (|Z| graph searches) separates two sets
+    // listed: polynomial delay.
+    while sets.len() < SET_LIMIT {
+        let Some(z) = queue.pop_front() else { break };
         let x_side = walk.component(x, &walk.mask(&z));
         for &member in &z {
             if cancel.load(Ordering::Relaxed) {
@@ -77,17 +81,15 @@ pub(crate) fn minimal_adjustment_sets(
             }
             let mut seed = x_side.clone();
             seed[member] = true;
-            let Some(next) = walk.separator_beyond(&seed) else { continue };
-            if seen.insert(next.clone()) {
-                if sets.len() == SET_LIMIT {
-                    complete = false;
-                    break 'walk;
+            if let Some(next) = walk.separator_beyond(&seed) {
+                if seen.insert(next.clone()) {
+                    queue.push_back(next);
                 }
-                sets.push(next.clone());
-                queue.push_back(next);
             }
         }
+        sets.push(z);
     }
+    let complete = queue.is_empty();
     let rank = rank_of(order, dag.len());
     for set in &mut sets {
         set.sort_by_key(|&i| rank[i]);
@@ -266,5 +268,32 @@ mod tests {
         let dag = Dag::new(4, &[(1, 0), (1, 3), (2, 1), (2, 3)]);
         let cancel = AtomicBool::new(true);
         assert!(minimal_adjustment_sets(&dag, 0, 3, &[1, 2], &[0, 1, 2, 3], &cancel).is_err());
+    }
+
+    /// `k` backdoor paths x <- u_i -> v_i -> y, each blocked by u_i or v_i:
+    /// 2^k minimal sets (one choice per path).
+    fn choices(k: usize) -> (Dag, Vec<usize>) {
+        let (x, y) = (0, 1);
+        let mut edges = vec![(x, y)];
+        for i in 0..k {
+            let (u, v) = (2 + 2 * i, 3 + 2 * i);
+            edges.extend([(u, x), (u, v), (v, y)]);
+        }
+        let dag = Dag::new(2 + 2 * k, &edges).keep_edges(|a, _| a != x);
+        (dag, (2..2 + 2 * k).collect())
+    }
+
+    #[test]
+    fn the_limit_is_reported_only_when_more_sets_exist() {
+        // 2^6 = 64 sets: exactly the limit, so the list is complete; 2^7 = 128 is not.
+        let never = AtomicBool::new(false);
+        let (dag, candidates) = choices(6);
+        let order: Vec<usize> = (0..dag.len()).collect();
+        let Ok(search) = minimal_adjustment_sets(&dag, 0, 1, &candidates, &order, &never) else { panic!("cancelled") };
+        assert_eq!((search.sets.len(), search.complete), (64, true));
+        let (dag, candidates) = choices(7);
+        let order: Vec<usize> = (0..dag.len()).collect();
+        let Ok(search) = minimal_adjustment_sets(&dag, 0, 1, &candidates, &order, &never) else { panic!("cancelled") };
+        assert_eq!((search.sets.len(), search.complete), (64, false));
     }
 }
