@@ -8,9 +8,10 @@
 //! and the report says so, because that is the usual surprise.
 //!
 //! A dense graph has exponentially many paths, so the listing is lazy and
-//! bounded: the depth-first search only steps to a node from which the far
-//! end can still be reached without revisiting the path (one graph search per
-//! step, so every step leads to a path and none is wasted on dead ends), it
+//! bounded: where the depth-first search has a choice, it only steps to a
+//! node from which the far end can still be reached without revisiting the
+//! path (one graph search per branching step, so no step is wasted on dead
+//! ends once the search has made its first choice), it
 //! stops after [`PATH_LIMIT`] paths or [`WORK_BUDGET`] visited nodes, and it
 //! says when it stopped. What stays exact however large the graph: whether
 //! the ends are d-separated, and the number of directed paths between them
@@ -299,11 +300,21 @@ impl PathSearch<'_> {
 
     /// The neighbours of `here` (path end) from which the target can still be
     /// reached without touching the path, in index order.
+    ///
+    /// With one free neighbour there is nothing to choose: if the target
+    /// was reachable from `here`, it is reachable through that neighbour, so
+    /// the search steps on without a graph search (a long chain then costs
+    /// its length, not its length squared).
     fn viable(&mut self, here: usize) -> Result<Vec<usize>, Cancelled> {
         if self.cancel.load(Ordering::Relaxed) {
             return Err(Cancelled);
         }
         let dag = self.dag;
+        let free: Vec<usize> = dag.parents[here].iter().chain(&dag.children[here]).copied().filter(|&n| !self.on_path[n]).collect();
+        self.work += 1 + free.len();
+        if free.len() <= 1 {
+            return Ok(free);
+        }
         let mut reach = vec![false; dag.len()];
         reach[self.target] = true;
         let mut stack = vec![self.target];
@@ -317,7 +328,7 @@ impl PathSearch<'_> {
             }
         }
         self.work += dag.len();
-        let mut next: Vec<usize> = dag.parents[here].iter().chain(&dag.children[here]).copied().filter(|&n| !self.on_path[n] && reach[n]).collect();
+        let mut next: Vec<usize> = free.into_iter().filter(|&n| reach[n]).collect();
         next.sort_unstable();
         Ok(next)
     }

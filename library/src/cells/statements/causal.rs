@@ -212,6 +212,7 @@ fn count_words(count: f64) -> String {
 /// Edges (cause, effect) that lie on an open path.
 fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
     let mut edges = Vec::new();
+    let mut seen = std::collections::HashSet::new();
     for p in reports.iter().filter(|p| p.open) {
         for (i, arrow) in p.arrows.iter().enumerate() {
             let (a, b) = (&p.nodes[i], &p.nodes[i + 1]);
@@ -219,7 +220,7 @@ fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
                 crate::graph::Arrow::Forward => (a.clone(), b.clone()),
                 crate::graph::Arrow::Backward => (b.clone(), a.clone()),
             };
-            if !edges.contains(&edge) {
+            if seen.insert(edge.clone()) {
                 edges.push(edge);
             }
         }
