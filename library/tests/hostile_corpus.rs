@@ -43,6 +43,17 @@ const TEMPLATES: &[&str] = &[
     "prior check m sets #n seed #n",
     "implications of g",
     "graph h:\n    #v -> #v -> #v",
+    "graph u:\n    é -> 💥 -> #v",
+    "table t3 from \"stream.csv\":\n    shade: category(#n, #n)\n    trout: count",
+    "contrast m: shade #n vs #n along shade from #n to #n by #n",
+    "contrast m: shade #n vs #n on outcomes seed #n",
+    "plot m posterior",
+    "show #v",
+    "joint j = g using t",
+    "fit j with laplace draws #n seed #n",
+    "intervene j: set shade #n vs #n, watch #v rows #n seed #n",
+    "recover m on s with laplace draws #n",
+    "implications of g checked against t with laplace draws #n",
 ];
 
 /// A filler for slot kind `kind` (`n`, `v` or `k`).
