@@ -8,8 +8,9 @@
 //! narrower type are read with their range, so `depth 4294967297` is an
 //! error rather than a silent wrap to 1.
 //!
-//! The memory the machine has is read from `/proc/meminfo` (`MemAvailable`);
-//! where that file does not exist a fixed [`ASSUMED_MEMORY`] stands in.
+//! The memory the machine has is read from `/proc/meminfo` (`MemAvailable`),
+//! lowered to what a cgroup v2 cap (`/sys/fs/cgroup/memory.max`) leaves;
+//! where `/proc/meminfo` does not exist a fixed [`ASSUMED_MEMORY`] stands in.
 
 /// The most NUTS chains one fit may run (each is a thread's work and a
 /// full set of draws).
@@ -29,9 +30,20 @@ pub const ASSUMED_MEMORY: u64 = 4 << 30;
 /// for the session's tables, draws and figures.
 const SHARE: f64 = 0.5;
 
-/// Bytes of memory available to the process now.
+/// Bytes of memory available to the process now: the system's available
+/// memory, or less when a control group (a container) caps the process.
 pub fn available_memory() -> u64 {
-    std::fs::read_to_string("/proc/meminfo").ok().and_then(|text| mem_available(&text)).unwrap_or(ASSUMED_MEMORY)
+    let system = std::fs::read_to_string("/proc/meminfo").ok().and_then(|text| mem_available(&text)).unwrap_or(ASSUMED_MEMORY);
+    let read = |file: &str| std::fs::read_to_string(format!("/sys/fs/cgroup/{file}")).ok();
+    match (read("memory.max").as_deref().and_then(cgroup_bytes), read("memory.current").as_deref().and_then(cgroup_bytes)) {
+        (Some(cap), Some(used)) => system.min(cap.saturating_sub(used)),
+        _ => system,
+    }
+}
+
+/// A byte count from a cgroup file; `None` for "max" (no cap) or an unreadable value.
+fn cgroup_bytes(text: &str) -> Option<u64> {
+    text.trim().parse().ok()
 }
 
 /// The `MemAvailable` line of a `/proc/meminfo` text, in bytes.
@@ -107,6 +119,13 @@ mod tests {
         let text = "MemTotal:       16384000 kB\nMemFree:  100 kB\nMemAvailable:    2048 kB\n";
         assert_eq!(mem_available(text), Some(2048 * 1024));
         assert_eq!(mem_available("MemTotal: 5 kB\n"), None);
+    }
+
+    #[test]
+    fn a_cgroup_cap_of_max_means_no_cap() {
+        // cgroup v2 writes "max" for no limit (kernel cgroup-v2 documentation, recalled).
+        assert_eq!(cgroup_bytes("max\n"), None);
+        assert_eq!(cgroup_bytes("1073741824\n"), Some(1 << 30));
     }
 
     #[test]
