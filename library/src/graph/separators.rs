@@ -1,4 +1,4 @@
-//! Every minimal adjustment set, listed in polynomial time per set.
+//! Every minimal adjustment set, listed with polynomial delay.
 //!
 //! The sets an effect question lists are the minimal sets of allowed nodes
 //! that d-separate exposure `x` and outcome `y` in a modified graph (the
@@ -10,9 +10,10 @@
 //! sets in causal graphs: complete criteria and an algorithmic framework",
 //! Artificial Intelligence 2019), every minimal d-separator lies among the
 //! ancestors of {x, y}, and there a set d-separates exactly when it separates
-//! x and y in the moral graph of that ancestral set (Lauritzen, Dawid, Larsen
-//! & Leimer 1990). So the minimal adjustment sets are the minimal x–y vertex
-//! separators of that moral graph whose members are all allowed.
+//! x and y in the moral graph of that ancestral set (Lauritzen, Dawid,
+//! Larsen & Leimer 1990, recalled). So the minimal adjustment sets are the
+//! minimal x–y vertex separators of that moral graph whose members are all
+//! allowed.
 //!
 //! A minimal vertex separator Z is fixed by the component C of x left when
 //! Z is removed (Z = N(C), and every member of Z borders both C and the
@@ -23,7 +24,8 @@
 //! Every minimal separator inside the allowed nodes is reached this way, since
 //! each step can move the x side strictly closer to that of any target
 //! separator without passing it (the argument of Berry, Bordat & Cogis 1999
-//! for listing all minimal separators, restricted here to allowed nodes). A
+//! for listing all minimal separators, recalled, restricted here to allowed
+//! nodes; the exhaustive test against subset search checks the result). A
 //! set is listed as soon as its own successors are found, so at most |Z|
 //! graph searches, O(n · (n + e)), pass between two sets listed.
 //!
