@@ -28,6 +28,7 @@ pub mod query;
 pub mod plot;
 pub mod cells;
 pub mod names;
+pub mod limits;
 
 /// Random number generation, re-exported so `%%rust` cells can write
 /// seeded simulations with the same generators the library uses.

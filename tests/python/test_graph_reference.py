@@ -316,3 +316,45 @@ def test_path_listing_matches_networkx_simple_paths_and_d_separation():
         assert (not any(p["open"] for p in listed)) == separated  # networkx.is_d_separator
         for p in listed:
             assert p["open"] == (not p["blocked_by"])
+
+
+def test_path_listing_counts_directed_paths_and_cuts_dense_graphs():
+    """The bounded listing: its directed-path count equals the number of
+    networkx.all_simple_paths in the directed graph (both directions), its
+    d-separation verdict equals networkx.is_d_separator, and on complete DAGs
+    (too many paths to list) it says the list is cut yet keeps both exact."""
+    rng = random.Random(SEED + 2)
+    graphs, expectations = [], []
+    for index in range(60):
+        if index % 6 == 0:
+            n = rng.randint(11, 13)  # complete DAG: far more than 2000 undirected paths
+            g = nx.DiGraph([(f"c{index}_{i}", f"c{index}_{j}") for i in range(n) for j in range(i + 1, n)])
+        else:
+            g, _ = random_dag(rng, 1000 + index)
+        nodes = sorted(g.nodes)
+        x, y = rng.sample(nodes, 2)
+        rest = [v for v in nodes if v not in (x, y)]
+        z = rng.sample(rest, rng.randint(0, min(2, len(rest))))
+        graphs.append({
+            "name": f"listing{index}",
+            "nodes": [{"name": v, "hidden": False} for v in nodes],
+            "edges": [list(e) for e in g.edges],
+            "queries": [{"kind": "listing", "from": x, "to": y, "given": z}],
+        })
+        directed = sum(1 for _ in nx.all_simple_paths(g, x, y)) + sum(1 for _ in nx.all_simple_paths(g, y, x))
+        dense = index % 6 == 0
+        simple = None if dense else sorted(tuple(p) for p in nx.all_simple_paths(g.to_undirected(), x, y))
+        expectations.append((directed, nx.is_d_separator(g, {x}, {y}, set(z)), simple))
+    answer = run_probe("graph", {"graphs": graphs})
+    cut = 0
+    for (directed, separated, simple), a in zip(expectations, answer["graphs"]):
+        listing = a["answers"][0]
+        assert listing["directed_paths"] == directed  # networkx.all_simple_paths on the DiGraph
+        assert listing["separated"] == separated  # networkx.is_d_separator
+        if simple is None:
+            cut += 1
+            assert not listing["complete"] and len(listing["paths"]) == 2000
+        else:
+            assert listing["complete"]
+            assert sorted(tuple(p["nodes"]) for p in listing["paths"]) == simple  # networkx.all_simple_paths
+    assert cut == 10

@@ -23,8 +23,21 @@ pub struct GraphMarks<'a> {
     pub highlight: Vec<(String, String)>,
 }
 
+/// The largest graph drawn as a figure (the layered layout grows faster
+/// than linearly, and a bigger picture cannot be read anyway).
+pub const FIGURE_NODES: usize = 400;
+/// The most edges drawn in a graph figure.
+pub const FIGURE_EDGES: usize = 2000;
+
 /// The causal graph with the question's marks.
 pub fn graph(graph: &Graph, title: &str, marks: &GraphMarks) -> Result<String, PlotError> {
+    if graph.nodes().len() > FIGURE_NODES || graph.edges().len() > FIGURE_EDGES {
+        return Err(PlotError::OutOfRange {
+            figure: "graph",
+            what: format!("{} nodes and {} edges are more than a figure can show legibly", graph.nodes().len(), graph.edges().len()),
+            fix: format!("graphs of up to {FIGURE_NODES} nodes and {FIGURE_EDGES} edges are drawn"),
+        });
+    }
     let nodes: Vec<NodeMark> = graph
         .nodes()
         .iter()
@@ -41,7 +54,9 @@ pub fn graph(graph: &Graph, title: &str, marks: &GraphMarks) -> Result<String, P
             NodeMark { name: n.name.clone(), hidden: n.hidden, role }
         })
         .collect();
-    let index = |name: &str| graph.nodes().iter().position(|n| n.name == name).unwrap_or(0);
+    let positions: std::collections::HashMap<&str, usize> =
+        graph.nodes().iter().enumerate().map(|(i, n)| (n.name.as_str(), i)).collect();
+    let index = |name: &str| positions.get(name).copied().unwrap_or(0);
     let edges = graph
         .edges()
         .iter()

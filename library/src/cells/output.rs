@@ -163,7 +163,10 @@ impl Grid {
                 .enumerate()
                 .map(|(c, &w)| {
                     let s = cells.get(c).map(String::as_str).unwrap_or("");
-                    if self.numeric[c] { format!("{s:>w$}") } else { format!("{s:<w$}") }
+                    // Padding by hand: a `{:w$}` width above 65535 panics, and a cell
+                    // may hold a path through thousands of nodes.
+                    let pad = " ".repeat(w.saturating_sub(s.chars().count()));
+                    if self.numeric[c] { format!("{pad}{s}") } else { format!("{s}{pad}") }
                 })
                 .collect();
             parts.join("  ").trim_end().to_string()

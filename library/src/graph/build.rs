@@ -7,11 +7,16 @@
 //! `a, b -> c` fans in. A leading `hidden` marks the first group as
 //! unobserved; a bare name declares an isolated node.
 
-use std::collections::{BinaryHeap, HashMap};
+use std::collections::{BinaryHeap, HashMap, HashSet};
 use std::cmp::Reverse;
 
 use super::dag::Dag;
 use super::{Graph, GraphError, Node};
+
+/// The most edges a graph may have: every graph question is at least linear
+/// in the edges, and a line such as `{a1 … a9999} -> {b1 … b9999}` would
+/// otherwise ask for a hundred million of them.
+pub const MAX_EDGES: usize = 1_000_000;
 
 /// Collects nodes and edges, then checks them into a [`Graph`].
 #[derive(Debug, Clone)]
@@ -20,13 +25,22 @@ pub struct GraphBuilder {
     nodes: Vec<Node>,
     index: HashMap<String, usize>,
     edges: Vec<(usize, usize)>,
+    /// The edges again, for a constant-time repeat check.
+    edge_set: HashSet<(usize, usize)>,
     lines_read: usize,
 }
 
 impl GraphBuilder {
     /// An empty graph called `name`.
     pub fn new(name: impl Into<String>) -> GraphBuilder {
-        GraphBuilder { name: name.into(), nodes: Vec::new(), index: HashMap::new(), edges: Vec::new(), lines_read: 0 }
+        GraphBuilder {
+            name: name.into(),
+            nodes: Vec::new(),
+            index: HashMap::new(),
+            edges: Vec::new(),
+            edge_set: HashSet::new(),
+            lines_read: 0,
+        }
     }
 
     /// Read one body line (comments already stripped). Blank lines are
@@ -44,12 +58,12 @@ impl GraphBuilder {
         if trimmed.is_empty() {
             return Ok(());
         }
-        let groups = parse_line(trimmed).map_err(|problem| GraphError::Line {
-            graph: self.name.clone(),
-            line: self.lines_read,
-            text: trimmed.to_owned(),
-            problem,
-        })?;
+        let line_error = |problem| GraphError::Line { graph: self.name.clone(), line: self.lines_read, text: trimmed.to_owned(), problem };
+        let groups = parse_line(trimmed).map_err(line_error)?;
+        let new_edges: usize = groups.groups.windows(2).map(|pair| pair[0].len().saturating_mul(pair[1].len())).fold(0, usize::saturating_add);
+        if new_edges.saturating_add(self.edges.len()) > MAX_EDGES {
+            return Err(line_error(format!("this line would give the graph more than {MAX_EDGES} edges; a causal graph that large cannot be questioned")));
+        }
         for (k, group) in groups.groups.iter().enumerate() {
             for name in group {
                 self.add_node(name, k == 0 && groups.hidden);
@@ -76,9 +90,14 @@ impl GraphBuilder {
     /// edge is kept once.
     pub fn add_edge(&mut self, from: &str, to: &str) {
         let edge = (self.node_index(from), self.node_index(to));
-        if !self.edges.contains(&edge) {
+        if self.edge_set.insert(edge) {
             self.edges.push(edge);
         }
+    }
+
+    /// How many distinct edges have been added so far.
+    pub fn edge_count(&self) -> usize {
+        self.edges.len()
     }
 
     /// Check the graph (non-empty, acyclic) and freeze it.
@@ -191,13 +210,17 @@ fn topological_order(dag: &Dag) -> Result<Vec<usize>, Vec<usize>> {
 /// cycle is returned in edge direction, from its earliest-declared node.
 fn find_cycle(dag: &Dag, waiting: &[usize]) -> Vec<usize> {
     let stuck = |i: usize| waiting[i] > 0;
-    let mut walk: Vec<usize> = vec![(0..dag.len()).find(|&i| stuck(i)).unwrap_or(0)];
+    let first = (0..dag.len()).find(|&i| stuck(i)).unwrap_or(0);
+    let mut walk: Vec<usize> = vec![first];
+    // Where each node sits on the walk, so a repeat is found in constant time.
+    let mut position: Vec<Option<usize>> = vec![None; dag.len()];
+    position[first] = Some(0);
     loop {
         let here = walk[walk.len() - 1];
         let Some(&next) = dag.parents[here].iter().find(|&&p| stuck(p)) else {
             return walk;
         };
-        if let Some(pos) = walk.iter().position(|&i| i == next) {
+        if let Some(pos) = position[next] {
             let mut cycle: Vec<usize> = walk[pos..].to_vec();
             cycle.reverse();
             // Start at the earliest-declared node so the message is stable.
@@ -206,6 +229,7 @@ fn find_cycle(dag: &Dag, waiting: &[usize]) -> Vec<usize> {
             cycle.push(cycle[0]);
             return cycle;
         }
+        position[next] = Some(walk.len());
         walk.push(next);
     }
 }

@@ -145,22 +145,23 @@ impl Dag {
 
     /// Undirected neighbours in the moral graph of the sub-graph on `keep`
     /// (an ancestral set): parent–child links plus links between co-parents.
-    fn moral_graph(&self, keep: &[bool]) -> Vec<Vec<usize>> {
+    pub(crate) fn moral_graph(&self, keep: &[bool]) -> Vec<Vec<usize>> {
         let mut nbrs = vec![Vec::new(); self.len()];
-        let link = |a: usize, b: usize, nbrs: &mut Vec<Vec<usize>>| {
-            if a != b && !nbrs[a].contains(&b) {
-                nbrs[a].push(b);
-                nbrs[b].push(a);
-            }
-        };
         for child in (0..self.len()).filter(|&c| keep[c]) {
             let ps = &self.parents[child];
             for (k, &p) in ps.iter().enumerate() {
-                link(p, child, &mut nbrs);
+                nbrs[p].push(child);
+                nbrs[child].push(p);
                 for &q in &ps[k + 1..] {
-                    link(p, q, &mut nbrs);
+                    nbrs[p].push(q);
+                    nbrs[q].push(p);
                 }
             }
+        }
+        // Two children of the same co-parents link them twice; keep one link.
+        for list in &mut nbrs {
+            list.sort_unstable();
+            list.dedup();
         }
         nbrs
     }

@@ -8,7 +8,14 @@
 //! unobserved. Undirected graphs (`graph`, `--`) are refused, since a causal
 //! graph needs a direction on every edge.
 
+use std::collections::HashSet;
+
+use super::build::MAX_EDGES;
 use super::{Graph, GraphBuilder, GraphError};
+
+/// The deepest brace groups may nest (`{ { … } }`). Reading a group recurses,
+/// so the limit keeps a hostile file from overflowing the stack.
+pub const MAX_DOT_NESTING: usize = 100;
 
 /// One lexical token with its 1-based line.
 #[derive(Debug, Clone, PartialEq)]
@@ -33,7 +40,7 @@ enum Tok {
 /// ```
 pub fn from_dot(name: &str, text: &str) -> Result<Graph, GraphError> {
     let tokens = tokenize(text).map_err(|(line, problem)| GraphError::Dot { graph: name.to_owned(), line, problem })?;
-    let mut parser = Parser { tokens, pos: 0, builder: GraphBuilder::new(name) };
+    let mut parser = Parser { tokens, pos: 0, builder: GraphBuilder::new(name), nesting: 0 };
     parser.graph().map_err(|(line, problem)| GraphError::Dot { graph: name.to_owned(), line, problem })?;
     parser.builder.finish()
 }
@@ -167,6 +174,8 @@ struct Parser {
     tokens: Vec<(Tok, usize)>,
     pos: usize,
     builder: GraphBuilder,
+    /// Brace groups open around the current token.
+    nesting: usize,
 }
 
 impl Parser {
@@ -196,18 +205,26 @@ impl Parser {
     /// Statements up to and including the matching `}`; returns the node
     /// names they mention, in first-mention order.
     fn statements(&mut self) -> Result<Vec<String>, Problem> {
+        self.nesting += 1;
+        if self.nesting > MAX_DOT_NESTING {
+            return Err(self.problem(&format!(
+                "brace groups nest deeper than {MAX_DOT_NESTING} levels here; flatten the groups or write the edges one by one"
+            )));
+        }
         let mut mentioned: Vec<String> = Vec::new();
+        let mut seen: HashSet<String> = HashSet::new();
         loop {
             match self.peek() {
                 None => return Err(self.problem("the graph is never closed with `}`")),
                 Some(Tok::Close) => {
                     self.pos += 1;
+                    self.nesting -= 1;
                     return Ok(mentioned);
                 }
                 Some(Tok::Separator) => self.pos += 1,
                 _ => {
                     for name in self.statement()? {
-                        if !mentioned.contains(&name) {
+                        if seen.insert(name.clone()) {
                             mentioned.push(name);
                         }
                     }
@@ -243,6 +260,10 @@ impl Parser {
             for node in &ends[0] {
                 self.builder.add_node(node, hidden);
             }
+        }
+        let edges: usize = ends.windows(2).map(|pair| pair[0].len().saturating_mul(pair[1].len())).fold(0, usize::saturating_add);
+        if edges.saturating_add(self.builder.edge_count()) > MAX_EDGES {
+            return Err(self.problem(&format!("this statement would give the graph more than {MAX_EDGES} edges; a causal graph that large cannot be questioned")));
         }
         for pair in ends.windows(2) {
             for from in &pair[0] {

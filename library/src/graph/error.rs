@@ -17,7 +17,7 @@ pub enum GraphError {
     Dot { graph: String, line: usize, problem: String },
 
     /// The edges form a directed cycle; `cycle` starts and ends at the same node.
-    #[error("graph {graph} has a cycle {}; a causal graph must be acyclic, so remove or reverse one of these edges", cycle.join(" -> "))]
+    #[error("graph {graph} has a cycle {}; a causal graph must be acyclic, so remove or reverse one of these edges", cycle_words(cycle))]
     Cycle { graph: String, cycle: Vec<String> },
 
     /// The graph has no node at all.
@@ -36,9 +36,27 @@ pub enum GraphError {
     #[error("graph {graph}: `{node}` is named as both exposure and outcome; name two different nodes")]
     SameNode { graph: String, node: String },
 
+    /// The cancel flag was set (an interrupt) while a question was answered.
+    #[error("graph {graph}: the question was interrupted before it was answered")]
+    Interrupted { graph: String },
+
     /// Too many paths to list.
     #[error("graph {graph} has more than {limit} paths between {from} and {to}; ask about a smaller graph or a closer pair of nodes")]
     TooManyPaths { graph: String, from: String, to: String, limit: usize },
+}
+
+/// The most nodes of a cycle an error spells out.
+const CYCLE_SHOWN: usize = 12;
+
+/// A cycle as `a -> b -> a`; a long one shows its first and last nodes and
+/// how many are left out between them.
+fn cycle_words(cycle: &[String]) -> String {
+    if cycle.len() <= CYCLE_SHOWN {
+        return cycle.join(" -> ");
+    }
+    let head = cycle[..CYCLE_SHOWN / 2].join(" -> ");
+    let tail = cycle[cycle.len() - CYCLE_SHOWN / 2..].join(" -> ");
+    format!("{head} -> … ({} more nodes) … -> {tail}", cycle.len() - CYCLE_SHOWN)
 }
 
 /// The tail of an unknown-node message: near matches, or none.

@@ -11,19 +11,18 @@
 //!   removed. It holds the mediators fixed and must also close the paths
 //!   that conditioning on a mediator opens.
 //!
-//! Both answers list every *minimal* valid set (no proper subset is valid)
-//! found by a search over subsets in order of size.
+//! Both answers list every *minimal* valid set (no proper subset is valid),
+//! smallest first, found by the walk over minimal separators in
+//! [`super::separators`].
+
+use std::sync::atomic::AtomicBool;
 
 use serde::Serialize;
 
 use super::dag::Dag;
 use super::paths::{all_paths, Opening, RawPath};
+use super::separators::{minimal_adjustment_sets, SetSearch};
 use super::{Graph, GraphError};
-
-/// The most subsets tested for validity in one search.
-const TEST_BUDGET: usize = 1 << 20;
-/// The most minimal sets listed.
-const SET_LIMIT: usize = 64;
 
 /// Which effect a question asks about.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -82,16 +81,16 @@ impl Identification {
     }
 }
 
-/// The minimal sets found by [`minimal_sets`].
-struct SetSearch {
-    sets: Vec<Vec<usize>>,
-    complete: bool,
-}
-
 impl Graph {
     /// Which sets identify the total effect of `exposure` on `outcome`
     /// (backdoor criterion, Pearl 2009 §3.3).
     pub fn total_effect(&self, exposure: &str, outcome: &str) -> Result<Identification, GraphError> {
+        self.total_effect_with_cancel(exposure, outcome, &AtomicBool::new(false))
+    }
+
+    /// [`Graph::total_effect`], stopping with [`GraphError::Interrupted`]
+    /// soon after `cancel` is set.
+    pub fn total_effect_with_cancel(&self, exposure: &str, outcome: &str, cancel: &AtomicBool) -> Result<Identification, GraphError> {
         let (x, y) = self.pair(exposure, outcome)?;
         let answer = |identifiable, sets, reason: String, complete| self.identification(EffectKind::Total, x, y, identifiable, sets, reason, complete);
         if !self.dag.ancestors_of(&[y])[x] {
@@ -113,7 +112,7 @@ impl Graph {
             );
             return Ok(answer(false, Vec::new(), reason, true));
         }
-        let search = minimal_sets(self.dag.len(), &candidates, valid);
+        let search = self.minimal_sets(&cut, x, y, &candidates, cancel)?;
         let reason = if search.sets == [Vec::<usize>::new()] {
             format!("No backdoor path from {exposure} to {outcome} is open, so no adjustment is needed.")
         } else {
@@ -125,6 +124,12 @@ impl Graph {
     /// Which sets identify the controlled direct effect of `exposure` on
     /// `outcome` (single-door criterion, Pearl 2009 Theorem 5.3.1).
     pub fn direct_effect(&self, exposure: &str, outcome: &str) -> Result<Identification, GraphError> {
+        self.direct_effect_with_cancel(exposure, outcome, &AtomicBool::new(false))
+    }
+
+    /// [`Graph::direct_effect`], stopping with [`GraphError::Interrupted`]
+    /// soon after `cancel` is set.
+    pub fn direct_effect_with_cancel(&self, exposure: &str, outcome: &str, cancel: &AtomicBool) -> Result<Identification, GraphError> {
         let (x, y) = self.pair(exposure, outcome)?;
         let answer = |identifiable, sets, reason: String, complete| self.identification(EffectKind::Direct, x, y, identifiable, sets, reason, complete);
         let has_edge = self.dag.children[x].contains(&y);
@@ -138,7 +143,7 @@ impl Graph {
             if !separable {
                 return Ok(answer(true, Vec::new(), format!("{zero} No set of observed nodes separates them, so the data cannot check that zero."), true));
             }
-            let search = minimal_sets(self.dag.len(), &candidates, valid);
+            let search = self.minimal_sets(&cut, x, y, &candidates, cancel)?;
             return Ok(answer(true, search.sets, format!("{zero} Each set listed separates them, which the data can check."), search.complete));
         }
         if let Some(reason) = self.hidden_end(x, y) {
@@ -151,11 +156,17 @@ impl Graph {
             );
             return Ok(answer(false, Vec::new(), reason, true));
         }
-        let search = minimal_sets(self.dag.len(), &candidates, valid);
+        let search = self.minimal_sets(&cut, x, y, &candidates, cancel)?;
         let reason = format!(
             "Each set blocks every path from {exposure} to {outcome} other than the edge {exposure} -> {outcome} and holds no descendant of {outcome} (single-door criterion)."
         );
         Ok(answer(true, search.sets, reason, search.complete))
+    }
+
+    /// Every minimal adjustment set among `candidates` in `cut`.
+    fn minimal_sets(&self, cut: &Dag, x: usize, y: usize, candidates: &[usize], cancel: &AtomicBool) -> Result<SetSearch, GraphError> {
+        minimal_adjustment_sets(cut, x, y, candidates, &self.order, cancel)
+            .map_err(|_| GraphError::Interrupted { graph: self.name.clone() })
     }
 
     /// Resolve exposure and outcome, which must differ.
@@ -250,69 +261,5 @@ impl Graph {
             reason,
             search_complete,
         }
-    }
-}
-
-/// Every minimal subset of `candidates` for which `valid` holds, smallest first.
-///
-/// Subsets are visited in order of size, so a valid subset is minimal exactly
-/// when it contains no set found before it; supersets of found sets are
-/// skipped without a test. The search stops after [`TEST_BUDGET`] tests or
-/// [`SET_LIMIT`] sets and then reports itself incomplete.
-fn minimal_sets(n: usize, candidates: &[usize], valid: impl Fn(&[bool]) -> bool) -> SetSearch {
-    let m = candidates.len();
-    let mut sets: Vec<Vec<usize>> = Vec::new();
-    let mut tests = 0;
-    let mut mask = vec![false; n];
-    for size in 0..=m {
-        let mut pick: Vec<usize> = (0..size).collect();
-        loop {
-            let chosen: Vec<usize> = pick.iter().map(|&k| candidates[k]).collect();
-            if !sets.iter().any(|s| s.iter().all(|i| chosen.contains(i))) {
-                if tests == TEST_BUDGET || sets.len() == SET_LIMIT {
-                    return SetSearch { sets, complete: false };
-                }
-                tests += 1;
-                chosen.iter().for_each(|&i| mask[i] = true);
-                if valid(&mask) {
-                    sets.push(chosen.clone());
-                }
-                chosen.iter().for_each(|&i| mask[i] = false);
-            }
-            if !next_combination(&mut pick, m) {
-                break;
-            }
-        }
-    }
-    SetSearch { sets, complete: true }
-}
-
-/// Advance `pick` (strictly increasing indices below `m`) to the next
-/// combination in lexicographic order; false after the last one.
-fn next_combination(pick: &mut [usize], m: usize) -> bool {
-    let k = pick.len();
-    let Some(i) = (0..k).rev().find(|&i| pick[i] < m - k + i) else {
-        return false;
-    };
-    pick[i] += 1;
-    for j in i + 1..k {
-        pick[j] = pick[j - 1] + 1;
-    }
-    true
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn combinations_of_four_choose_two_are_six_in_order() {
-        // C(4, 2) = 6, listed in lexicographic order (any combinatorics text).
-        let mut pick = vec![0, 1];
-        let mut seen = vec![pick.clone()];
-        while next_combination(&mut pick, 4) {
-            seen.push(pick.clone());
-        }
-        assert_eq!(seen, vec![vec![0, 1], vec![0, 2], vec![0, 3], vec![1, 2], vec![1, 3], vec![2, 3]]);
     }
 }

@@ -7,9 +7,11 @@
 //! or say that only hidden nodes could separate it, so the data cannot test
 //! the claim directly.
 
+use std::sync::atomic::{AtomicBool, Ordering};
+
 use serde::Serialize;
 
-use super::Graph;
+use super::{Graph, GraphError};
 
 /// "`a` is independent of `b` given `given`", claimed by the graph.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -65,10 +67,20 @@ impl Graph {
     /// One minimal separating set of observed nodes for every non-adjacent
     /// pair of observed nodes, or the pair marked untestable.
     pub fn implications(&self) -> Implications {
+        let never = AtomicBool::new(false);
+        self.implications_with_cancel(&never).unwrap_or(Implications { testable: Vec::new(), untestable: Vec::new() })
+    }
+
+    /// [`Graph::implications`], reading `cancel` before each pair and
+    /// stopping with [`GraphError::Interrupted`] once it is set.
+    pub fn implications_with_cancel(&self, cancel: &AtomicBool) -> Result<Implications, GraphError> {
         let observed = self.observed();
         let mut out = Implications { testable: Vec::new(), untestable: Vec::new() };
         for (k, &a) in self.order.iter().enumerate() {
             for &b in &self.order[k + 1..] {
+                if cancel.load(Ordering::Relaxed) {
+                    return Err(GraphError::Interrupted { graph: self.name.clone() });
+                }
                 if !observed[a] || !observed[b] || self.dag.adjacent(a, b) {
                     continue;
                 }
@@ -85,6 +97,6 @@ impl Graph {
                 }
             }
         }
-        out
+        Ok(out)
     }
 }

@@ -35,15 +35,16 @@ mod error;
 mod identify;
 mod implications;
 mod paths;
+mod separators;
 
 use std::collections::HashMap;
 
-pub use build::GraphBuilder;
-pub use dot::from_dot;
+pub use build::{GraphBuilder, MAX_EDGES};
+pub use dot::{from_dot, MAX_DOT_NESTING};
 pub use error::GraphError;
 pub use identify::{EffectKind, Identification};
 pub use implications::{Implication, Implications, UntestablePair};
-pub use paths::{Arrow, PathReport};
+pub use paths::{Arrow, PathListing, PathReport};
 
 use dag::Dag;
 
@@ -169,9 +170,10 @@ impl Graph {
     /// The indices of several node names (duplicates dropped).
     fn resolve_all<S: AsRef<str>>(&self, names: &[S]) -> Result<Vec<usize>, GraphError> {
         let mut out = Vec::with_capacity(names.len());
+        let mut seen = vec![false; self.nodes.len()];
         for name in names {
             let i = self.resolve(name.as_ref())?;
-            if !out.contains(&i) {
+            if !std::mem::replace(&mut seen[i], true) {
                 out.push(i);
             }
         }
@@ -180,7 +182,8 @@ impl Graph {
 
     /// An error when a node appears in two sets that must be disjoint.
     fn check_disjoint(&self, a: &[usize], a_role: &str, b: &[usize], b_role: &str) -> Result<(), GraphError> {
-        match a.iter().find(|i| b.contains(i)) {
+        let in_b = self.dag.mask_of(b);
+        match a.iter().find(|&&i| in_b[i]) {
             Some(&i) => Err(GraphError::Overlap {
                 graph: self.name.clone(),
                 node: self.label(i).to_owned(),

@@ -9,8 +9,9 @@ use std::sync::atomic::AtomicBool;
 
 use crate::draws::Draws;
 use crate::infer::diagnostics::{diagnose, run_warnings, ParamDiagnostics};
-use crate::infer::laplace::{laplace, InferError};
+use crate::infer::laplace::{laplace_with_cancel, InferError};
 use crate::infer::nuts::{sample_nuts, Init, NutsError, NutsSettings, Progress};
+use crate::limits::{bytes_for, check_memory};
 use crate::model::Model;
 
 /// Default seed of a Laplace fit (NUTS has its own in [`NutsSettings`]).
@@ -77,9 +78,11 @@ pub enum FitError {
     Nuts(#[from] NutsError),
     #[error("the draws could not be stored: {0}")]
     Draws(String),
+    #[error("{0}")]
+    TooLarge(String),
 }
 
-/// Fit `model` with `method`. `cancel` stops a NUTS run early (an error);
+/// Fit `model` with `method`. `cancel` stops a run early (an error);
 /// `progress` hears about every NUTS iteration.
 pub fn fit_model(
     model: &Model,
@@ -87,11 +90,12 @@ pub fn fit_model(
     cancel: &AtomicBool,
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<Fit, FitError> {
+    check_fit_memory(model, method).map_err(FitError::TooLarge)?;
     let started = std::time::Instant::now();
     let names = model.parameter_names();
     let (chains, diagnostics, divergences, warnings) = match method {
         Method::Laplace { draws, seed } => {
-            let fit = laplace(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed)?;
+            let fit = laplace_with_cancel(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed, cancel)?;
             (vec![fit.draws], None, 0, Vec::new())
         }
         Method::Nuts(settings) => {
@@ -114,6 +118,25 @@ pub fn fit_model(
         warnings,
         seconds: started.elapsed().as_secs_f64(),
     })
+}
+
+/// Refuse a fit whose draws (or, for Laplace, curvature matrices) would not
+/// fit in memory. The draws are held three times over while a fit is made:
+/// on the unconstrained scale, constrained, and in the labelled store.
+fn check_fit_memory(model: &Model, method: &Method) -> Result<(), String> {
+    let dim = model.parameter_names().len().max(1);
+    let (what, bytes) = match method {
+        Method::Laplace { draws, .. } => {
+            // The Hessian, its Cholesky factor and the covariance: three dim × dim matrices.
+            let matrices = bytes_for(&[dim, dim, 3]);
+            (format!("{draws} Laplace draws of {dim} parameters"), bytes_for(&[*draws, dim, 3]).saturating_add(matrices))
+        }
+        Method::Nuts(s) => (
+            format!("{} chains of {} draws of {dim} parameters", s.chains, s.draws),
+            bytes_for(&[s.chains, s.draws, dim, 3]),
+        ),
+    };
+    check_memory(&what, bytes)
 }
 
 /// One start per chain: the model's own start plus a small seeded jitter,

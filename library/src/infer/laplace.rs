@@ -10,6 +10,8 @@
 //! damped (a multiple of the identity is added) until it is. Everything is
 //! on the unconstrained scale; constrain draws with the model afterwards.
 
+use std::sync::atomic::{AtomicBool, Ordering};
+
 use nalgebra::{Cholesky, DMatrix, DVector, Dyn, SymmetricEigen};
 use rand::rngs::StdRng;
 use rand::SeedableRng;
@@ -52,6 +54,10 @@ pub enum InferError {
         parameters.join(", ")
     )]
     NotPositiveDefinite { parameters: Vec<String> },
+
+    /// The cancel flag was set (an interrupt).
+    #[error("the fit was interrupted before it finished")]
+    Cancelled,
 }
 
 /// A Laplace approximation on the unconstrained scale.
@@ -79,15 +85,29 @@ pub fn laplace<D: LogDensity>(
     n_draws: usize,
     seed: u64,
 ) -> Result<LaplaceFit, InferError> {
+    laplace_with_cancel(target, names, init, n_draws, seed, &AtomicBool::new(false))
+}
+
+/// [`laplace`] that reads `cancel` between Newton steps, between the
+/// gradient calls of each Hessian and between draws, and returns
+/// [`InferError::Cancelled`] once it is set.
+pub fn laplace_with_cancel<D: LogDensity>(
+    target: &D,
+    names: &[String],
+    init: &[f64],
+    n_draws: usize,
+    seed: u64,
+    cancel: &AtomicBool,
+) -> Result<LaplaceFit, InferError> {
     if init.len() != target.dim() {
         return Err(InferError::Dimension { given: init.len(), dim: target.dim() });
     }
     let label = |i: usize| names.get(i).cloned().unwrap_or_else(|| format!("parameter {}", i + 1));
-    let (mode, log_density_at_mode, steps) = find_mode(target, init, &label)?;
-    let negative_hessian = -hessian(target, &mode);
+    let (mode, log_density_at_mode, steps) = find_mode(target, init, &label, cancel)?;
+    let negative_hessian = -hessian(target, &mode, cancel)?;
     let cholesky = Cholesky::new(negative_hessian.clone())
         .ok_or_else(|| InferError::NotPositiveDefinite { parameters: flat_directions(&negative_hessian, &label) })?;
-    let draws = normal_draws(&mode, &cholesky, n_draws, seed);
+    let draws = normal_draws(&mode, &cholesky, n_draws, seed, cancel)?;
     Ok(LaplaceFit { mode: mode.as_slice().to_vec(), log_density_at_mode, covariance: cholesky.inverse(), draws, steps })
 }
 
@@ -104,6 +124,7 @@ fn find_mode<D: LogDensity>(
     target: &D,
     init: &[f64],
     label: &dyn Fn(usize) -> String,
+    cancel: &AtomicBool,
 ) -> Result<(DVector<f64>, f64, usize), InferError> {
     let mut theta = DVector::from_column_slice(init);
     let (mut value, mut grad) = evaluate(target, &theta);
@@ -112,7 +133,7 @@ fn find_mode<D: LogDensity>(
     }
     let mut steps = 0;
     while steps < MAX_STEPS {
-        let (direction, undamped) = newton_direction(&hessian(target, &theta), &grad);
+        let (direction, undamped) = newton_direction(&hessian(target, &theta, cancel)?, &grad);
         let slope = grad.dot(&direction);
         if 0.5 * slope < DECREMENT_TOLERANCE {
             return Ok((theta, value, steps));
@@ -166,11 +187,13 @@ fn backtrack<D: LogDensity>(
     None
 }
 
-/// The Hessian by symmetrised central differences of the gradient.
-pub fn hessian<D: LogDensity>(target: &D, theta: &DVector<f64>) -> DMatrix<f64> {
+/// The Hessian by symmetrised central differences of the gradient, reading
+/// `cancel` before each pair of gradient calls.
+pub fn hessian<D: LogDensity>(target: &D, theta: &DVector<f64>, cancel: &AtomicBool) -> Result<DMatrix<f64>, InferError> {
     let dim = theta.len();
     let mut h = DMatrix::zeros(dim, dim);
     for j in 0..dim {
+        stop_if_cancelled(cancel)?;
         let step = DIFFERENCE_STEP * theta[j].abs().max(1.0);
         let mut ahead = theta.clone();
         let mut behind = theta.clone();
@@ -179,7 +202,15 @@ pub fn hessian<D: LogDensity>(target: &D, theta: &DVector<f64>) -> DMatrix<f64> 
         let column = (evaluate(target, &ahead).1 - evaluate(target, &behind).1) / (2.0 * step);
         h.set_column(j, &column);
     }
-    (&h + h.transpose()) * 0.5
+    Ok((&h + h.transpose()) * 0.5)
+}
+
+/// [`InferError::Cancelled`] once `cancel` is set.
+fn stop_if_cancelled(cancel: &AtomicBool) -> Result<(), InferError> {
+    if cancel.load(Ordering::Relaxed) {
+        return Err(InferError::Cancelled);
+    }
+    Ok(())
 }
 
 /// Parameters that load on the directions of non-positive (or, failing
@@ -200,14 +231,23 @@ fn flat_directions(negative_hessian: &DMatrix<f64>, label: &dyn Fn(usize) -> Str
 }
 
 /// `n` draws of `mode + L⁻ᵀz` with `LLᵀ = −H`, so their covariance is `(−H)⁻¹`.
-fn normal_draws(mode: &DVector<f64>, cholesky: &Cholesky<f64, Dyn>, n: usize, seed: u64) -> Vec<Vec<f64>> {
+fn normal_draws(
+    mode: &DVector<f64>,
+    cholesky: &Cholesky<f64, Dyn>,
+    n: usize,
+    seed: u64,
+    cancel: &AtomicBool,
+) -> Result<Vec<Vec<f64>>, InferError> {
     let mut rng = StdRng::seed_from_u64(seed);
     let upper = cholesky.l().transpose();
     (0..n)
-        .map(|_| {
+        .map(|i| {
+            if i % 1024 == 0 {
+                stop_if_cancelled(cancel)?;
+            }
             let z = DVector::from_fn(mode.len(), |_, _| StandardNormal.sample(&mut rng));
             let offset = upper.solve_upper_triangular_unchecked(&z);
-            (mode + offset).as_slice().to_vec()
+            Ok((mode + offset).as_slice().to_vec())
         })
         .collect()
 }

@@ -14,6 +14,7 @@ use crate::table::Table;
 use super::defaults::{assign_priors, predictor_blocks, PredictorBlock};
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
+use super::guards::{check_design_size, check_scales};
 use super::family::likelihood::{GlmData, GlmOutcome};
 use super::family::softmax::SoftmaxData;
 use super::family::Family;
@@ -39,6 +40,8 @@ impl Model {
 fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     let spec = &settle_family(spec, table);
     let outcome = read_outcome(table, &spec.outcome, &spec.family)?;
+    check_scales(spec, table)?;
+    check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
     let blocks = predictor_blocks(spec, &outcome);
     let priors = assign_priors(spec, &recipes, &outcome, &blocks)?;

@@ -44,6 +44,7 @@ mod build;
 mod columns;
 mod defaults;
 mod density;
+pub mod guards;
 pub mod error;
 pub mod family;
 mod inputs;

@@ -86,8 +86,8 @@ pub fn answer_effect_with_progress(
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<EffectAnswer, QueryError> {
     let identification = match kind {
-        EffectKind::Total => graph.total_effect(exposure, outcome)?,
-        EffectKind::Direct => graph.direct_effect(exposure, outcome)?,
+        EffectKind::Total => graph.total_effect_with_cancel(exposure, outcome, cancel)?,
+        EffectKind::Direct => graph.direct_effect_with_cancel(exposure, outcome, cancel)?,
     };
     let kind_words = match kind {
         EffectKind::Total => "total",

@@ -21,6 +21,7 @@ use statrs::distribution::{ChiSquared, ContinuousCDF};
 
 use crate::draws::Draws;
 use crate::infer::fit::{fit_model, Method};
+use crate::limits::{bytes_for, check_memory};
 use crate::model::Model;
 use crate::table::Table;
 
@@ -75,11 +76,15 @@ pub fn calibrate_with_progress(
     progress: &(dyn Fn(usize) + Sync),
 ) -> Result<Calibration, QueryError> {
     let names = model.parameter_names();
+    let place = format!("calibrate {}", model.name());
+    check_memory(&format!("{place}: {reps} replications of {} parameters", names.len()), bytes_for(&[reps, names.len().max(1)]))
+        .map_err(QueryError::request)?;
     let rows = model.fitted_rows();
     let mut ranks = vec![Vec::with_capacity(reps); names.len()];
     let mut failures = 0;
     let mut draws_per_fit = 0;
     for r in 0..reps {
+        QueryError::stop_if(cancel, &place)?;
         progress(r);
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, r as u64, 3));
         let truth = prior_draw(model, &mut rng)?;

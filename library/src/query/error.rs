@@ -35,6 +35,10 @@ pub enum QueryError {
     #[error("{message}")]
     Request { message: String },
 
+    /// The cancel flag was set (an interrupt) while `what` ran.
+    #[error("{what} was interrupted")]
+    Interrupted { what: String },
+
     /// A line of a `simulate` body that cannot be used (1-based cell line).
     #[error("simulate line {line}: {message}")]
     Mechanism { line: usize, message: String },
@@ -44,5 +48,13 @@ impl QueryError {
     /// A request error with the given message.
     pub(crate) fn request(message: impl Into<String>) -> Self {
         QueryError::Request { message: message.into() }
+    }
+
+    /// [`QueryError::Interrupted`] when `cancel` is set.
+    pub(crate) fn stop_if(cancel: &std::sync::atomic::AtomicBool, what: &str) -> Result<(), Self> {
+        if cancel.load(std::sync::atomic::Ordering::Relaxed) {
+            return Err(QueryError::Interrupted { what: what.to_string() });
+        }
+        Ok(())
     }
 }

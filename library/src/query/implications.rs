@@ -74,10 +74,11 @@ pub fn check_implications(
     cancel: &AtomicBool,
     mass: f64,
 ) -> Result<ImplicationsReport, QueryError> {
-    let implications = graph.implications();
+    let implications = graph.implications_with_cancel(cancel)?;
     let mut checks = Vec::new();
     for imp in &implications.testable {
         let place = format!("implications of {}", graph.name());
+        QueryError::stop_if(cancel, &place)?;
         for name in std::iter::once(&imp.a).chain(std::iter::once(&imp.b)).chain(&imp.given) {
             require_column(table, name, &place)?;
         }

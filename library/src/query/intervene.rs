@@ -14,10 +14,13 @@
 //! watched category gives one contrast per level, of the share of rows at
 //! that level.
 
+use std::sync::atomic::AtomicBool;
+
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use serde::Serialize;
 
+use crate::limits::{bytes_for, check_memory};
 use crate::table::{Column, ColumnData, Table};
 
 use super::contrast::Contrast;
@@ -85,6 +88,18 @@ pub fn intervene(
     table: &Table,
     request: &InterventionRequest,
 ) -> Result<InterventionResult, QueryError> {
+    intervene_with_cancel(joint, fit, table, request, &AtomicBool::new(false))
+}
+
+/// [`intervene`], reading `cancel` before each posterior draw is simulated
+/// and stopping with [`QueryError::Interrupted`] once it is set.
+pub fn intervene_with_cancel(
+    joint: &JointModel,
+    fit: &JointFit,
+    table: &Table,
+    request: &InterventionRequest,
+    cancel: &AtomicBool,
+) -> Result<InterventionResult, QueryError> {
     let place = format!("intervene {}", joint.name);
     let x = &request.variable;
     if joint.node(x).is_none() {
@@ -107,6 +122,7 @@ pub fn intervene(
         return Err(QueryError::request(format!("{place}: name at least one node to watch")));
     }
     let simulated = nodes_to_simulate(joint, x, &request.watch)?;
+    check_rows_memory(table, request, simulated.len(), &place)?;
     let (base, rows_source) = base_rows(table, request)?;
     let steps = simulation_steps(joint, fit, &simulated, &place)?;
     let draws = fit.fits.iter().flatten().map(|f| f.draws.len()).min().ok_or_else(|| {
@@ -114,6 +130,7 @@ pub fn intervene(
     })?;
     let mut per_target = vec![(Vec::with_capacity(draws), Vec::with_capacity(draws)); targets.len()];
     for d in 0..draws {
+        QueryError::stop_if(cancel, &place)?;
         let under_to = simulate_draw(&base, x, &to, &steps, d, request.seed)?;
         let under_from = simulate_draw(&base, x, &from, &steps, d, request.seed)?;
         for (target, (values_to, values_from)) in targets.iter().zip(per_target.iter_mut()) {
@@ -179,6 +196,16 @@ fn nodes_to_simulate(joint: &JointModel, x: &str, watch: &[String]) -> Result<Ve
         }
     }
     Ok(out)
+}
+
+/// Refuse rows whose simulated tables would not fit in memory. Each draw
+/// holds, under both settings, one copy of the rows per simulated node plus
+/// the base rows and the set column.
+fn check_rows_memory(table: &Table, request: &InterventionRequest, simulated: usize, place: &str) -> Result<(), QueryError> {
+    let rows = request.rows.unwrap_or(table.nrows());
+    let columns = table.columns.len() + simulated;
+    let bytes = bytes_for(&[rows, columns.max(1), simulated + 2, 2]);
+    check_memory(&format!("{place}: {rows} rows of {columns} columns"), bytes).map_err(QueryError::request)
 }
 
 /// The table's rows, or `rows` of them resampled with replacement.

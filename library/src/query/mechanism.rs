@@ -30,6 +30,10 @@ pub const LOG: &str = "log";
 /// The functions of a mechanism expression: `log(…)`, `exp(…)`.
 pub const FUNCTIONS: &[&str] = &[LOG, EXP];
 const EXP: &str = "exp";
+/// The deepest an expression may nest: parentheses, signs, functions and
+/// every operator of a chain each add one level. Evaluation recurses this
+/// deep, so the limit keeps a hostile line from overflowing the stack.
+pub const MAX_EXPRESSION_DEPTH: usize = 200;
 
 /// An arithmetic expression of a mechanism.
 #[derive(Debug, Clone, PartialEq)]
@@ -232,8 +236,8 @@ fn is_name(text: &str) -> bool {
 
 /// Parse an expression.
 pub fn parse_expr(text: &str) -> Result<Expr, String> {
-    let mut parser = Parser { text, chars: text.char_indices().collect(), at: 0 };
-    let expr = parser.sum()?;
+    let mut parser = Parser { text, chars: text.char_indices().collect(), at: 0, nesting: 0 };
+    let (expr, _) = parser.sum()?;
     parser.skip_space();
     match parser.peek() {
         None => Ok(expr),
@@ -241,11 +245,33 @@ pub fn parse_expr(text: &str) -> Result<Expr, String> {
     }
 }
 
-/// A recursive-descent parser over the characters of one expression.
+/// A recursive-descent parser over the characters of one expression. Each
+/// step returns the expression and the depth of its tree; `nesting` counts
+/// the open recursive calls. Both stop at [`MAX_EXPRESSION_DEPTH`].
 struct Parser<'a> {
     text: &'a str,
     chars: Vec<(usize, char)>,
     at: usize,
+    nesting: usize,
+}
+
+/// A parsed expression and the depth of its tree.
+type Parsed = (Expr, usize);
+
+fn too_deep() -> String {
+    format!(
+        "the expression nests deeper than {MAX_EXPRESSION_DEPTH} levels (brackets, signs, functions and chained operators); \
+         write it more simply"
+    )
+}
+
+/// The depth of a node over children of depths `a` and `b`, within the limit.
+fn deeper(a: usize, b: usize) -> Result<usize, String> {
+    let depth = a.max(b) + 1;
+    if depth > MAX_EXPRESSION_DEPTH {
+        return Err(too_deep());
+    }
+    Ok(depth)
 }
 
 impl Parser<'_> {
@@ -259,52 +285,63 @@ impl Parser<'_> {
         }
     }
 
-    fn sum(&mut self) -> Result<Expr, String> {
-        let mut left = self.product()?;
+    /// Count one more open recursive call, refusing past the limit.
+    fn enter(&mut self) -> Result<(), String> {
+        self.nesting += 1;
+        if self.nesting > MAX_EXPRESSION_DEPTH {
+            return Err(too_deep());
+        }
+        Ok(())
+    }
+
+    fn sum(&mut self) -> Result<Parsed, String> {
+        self.enter()?;
+        let (mut left, mut depth) = self.product()?;
         loop {
             self.skip_space();
-            match self.peek() {
-                Some('+') => {
-                    self.at += 1;
-                    left = Expr::Add(Box::new(left), Box::new(self.product()?));
-                }
-                Some('-') => {
-                    self.at += 1;
-                    left = Expr::Subtract(Box::new(left), Box::new(self.product()?));
-                }
-                _ => return Ok(left),
-            }
+            let op: fn(Box<Expr>, Box<Expr>) -> Expr = match self.peek() {
+                Some('+') => Expr::Add,
+                Some('-') => Expr::Subtract,
+                _ => break,
+            };
+            self.at += 1;
+            let (right, right_depth) = self.product()?;
+            depth = deeper(depth, right_depth)?;
+            left = op(Box::new(left), Box::new(right));
+        }
+        self.nesting -= 1;
+        Ok((left, depth))
+    }
+
+    fn product(&mut self) -> Result<Parsed, String> {
+        let (mut left, mut depth) = self.unary()?;
+        loop {
+            self.skip_space();
+            let op: fn(Box<Expr>, Box<Expr>) -> Expr = match self.peek() {
+                Some('*') => Expr::Multiply,
+                Some('/') => Expr::Divide,
+                _ => return Ok((left, depth)),
+            };
+            self.at += 1;
+            let (right, right_depth) = self.unary()?;
+            depth = deeper(depth, right_depth)?;
+            left = op(Box::new(left), Box::new(right));
         }
     }
 
-    fn product(&mut self) -> Result<Expr, String> {
-        let mut left = self.unary()?;
-        loop {
-            self.skip_space();
-            match self.peek() {
-                Some('*') => {
-                    self.at += 1;
-                    left = Expr::Multiply(Box::new(left), Box::new(self.unary()?));
-                }
-                Some('/') => {
-                    self.at += 1;
-                    left = Expr::Divide(Box::new(left), Box::new(self.unary()?));
-                }
-                _ => return Ok(left),
-            }
-        }
-    }
-
-    fn unary(&mut self) -> Result<Expr, String> {
+    fn unary(&mut self) -> Result<Parsed, String> {
         self.skip_space();
         if self.peek() == Some('-') {
             self.at += 1;
-            return Ok(Expr::Negate(Box::new(self.unary()?)));
+            self.enter()?;
+            let (inner, depth) = self.unary()?;
+            self.nesting -= 1;
+            return Ok((Expr::Negate(Box::new(inner)), deeper(depth, 0)?));
         }
         self.primary()
     }
 
-    fn primary(&mut self) -> Result<Expr, String> {
+    fn primary(&mut self) -> Result<Parsed, String> {
         self.skip_space();
         match self.peek() {
             None => Err(format!("`{}` ends where a number or a name is expected", self.text.trim())),
@@ -314,20 +351,21 @@ impl Parser<'_> {
                 self.expect(')')?;
                 Ok(inner)
             }
-            Some('[') => self.indicator(),
-            Some(c) if c.is_ascii_digit() || c == '.' => self.number(),
+            Some('[') => Ok((self.indicator()?, 1)),
+            Some(c) if c.is_ascii_digit() || c == '.' => Ok((self.number()?, 1)),
             Some(c) if c.is_alphabetic() || c == '_' => {
                 let word = self.word();
                 self.skip_space();
                 match (word.as_str(), self.peek()) {
                     (LOG | EXP, Some('(')) => {
                         self.at += 1;
-                        let inner = Box::new(self.sum()?);
+                        let (inner, depth) = self.sum()?;
                         self.expect(')')?;
-                        Ok(if word == LOG { Expr::Log(inner) } else { Expr::Exp(inner) })
+                        let inner = Box::new(inner);
+                        Ok((if word == LOG { Expr::Log(inner) } else { Expr::Exp(inner) }, deeper(depth, 0)?))
                     }
                     (_, Some('(')) => Err(format!("unknown function `{word}`; use {}", FUNCTIONS.join(" or "))),
-                    _ => Ok(Expr::Name(word)),
+                    _ => Ok((Expr::Name(word), 1)),
                 }
             }
             Some(c) => Err(format!("unexpected `{c}` in `{}`", self.text.trim())),

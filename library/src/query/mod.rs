@@ -38,7 +38,7 @@ pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, pr
 pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use error::QueryError;
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
-pub use intervene::{compare_routes, intervene, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
+pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};

@@ -9,17 +9,23 @@
 //! mechanisms give the true effect of an intervention by simulating it
 //! directly ([`Simulation::true_effect`]).
 
+use std::sync::atomic::AtomicBool;
+
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Poisson, StandardNormal};
 
 use crate::graph::Graph;
+use crate::limits::{bytes_for, check_memory};
 use crate::model::family::logistic;
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::QueryError;
 use super::mechanism::{parse_mechanism_line, Mechanism};
 use super::support::{short, stream_seed};
+
+/// Rows generated between two reads of the cancel flag.
+const CANCEL_EVERY: usize = 4096;
 
 /// Rows and seed of a simulation.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -113,13 +119,22 @@ impl Simulation {
         for m in &nodes {
             check_uses(graph, &nodes, m)?;
         }
+        // Generated values and the table made of them: two copies of every node's rows.
+        let bytes = bytes_for(&[settings.rows, nodes.len().max(1), 2]);
+        check_memory(&format!("simulate {name}: {} rows of {} nodes", settings.rows, nodes.len()), bytes).map_err(QueryError::request)?;
         Ok(Simulation { name: name.to_string(), graph: graph.clone(), settings, nodes })
     }
 
     /// The synthetic table: every observed node, in the graph's order of
     /// mention, with category levels in declared order.
     pub fn table(&self) -> Result<Table, QueryError> {
-        let generated = self.generate(self.settings.rows, self.settings.seed, None)?;
+        self.table_with_cancel(&AtomicBool::new(false))
+    }
+
+    /// [`Simulation::table`], stopping with [`QueryError::Interrupted`]
+    /// soon after `cancel` is set.
+    pub fn table_with_cancel(&self, cancel: &AtomicBool) -> Result<Table, QueryError> {
+        let generated = self.generate(self.settings.rows, self.settings.seed, None, cancel)?;
         self.observed_table(&generated)
     }
 
@@ -145,7 +160,7 @@ impl Simulation {
     /// Generate `rows` rows with `seed`, and the full set of node values
     /// (hidden nodes included) with the data's own seed.
     pub(crate) fn generate_default(&self) -> Result<Generated, QueryError> {
-        self.generate(self.settings.rows, self.settings.seed, None)
+        self.generate(self.settings.rows, self.settings.seed, None, &AtomicBool::new(false))
     }
 
     /// The true effect of setting `variable` to `to` vs `from` on the mean
@@ -168,8 +183,9 @@ impl Simulation {
                 }),
             }
         };
-        let under_to = self.generate(rows, seed, Some((k, read(to)?)))?;
-        let under_from = self.generate(rows, seed, Some((k, read(from)?)))?;
+        let never = AtomicBool::new(false);
+        let under_to = self.generate(rows, seed, Some((k, read(to)?)), &never)?;
+        let under_from = self.generate(rows, seed, Some((k, read(from)?)), &never)?;
         let mean = |g: &Generated| (0..rows).map(|i| g.values[w].real_at(i)).sum::<f64>() / rows.max(1) as f64;
         Ok(mean(&under_to) - mean(&under_from))
     }
@@ -226,12 +242,13 @@ impl Simulation {
     }
 
     /// Generate `rows` rows, optionally with node `forced.0` set to a value.
-    fn generate(&self, rows: usize, seed: u64, forced: Option<(usize, Forced)>) -> Result<Generated, QueryError> {
+    fn generate(&self, rows: usize, seed: u64, forced: Option<(usize, Forced)>, cancel: &AtomicBool) -> Result<Generated, QueryError> {
         let mut generated = Generated { values: Vec::with_capacity(self.nodes.len()) };
         for (k, m) in self.nodes.iter().enumerate() {
+            QueryError::stop_if(cancel, &format!("simulate {}", self.name))?;
             let values = match &forced {
                 Some((f, value)) if *f == k => forced_values(&m.mechanism, value, rows),
-                _ => self.draw_node(k, rows, seed, &generated)?,
+                _ => self.draw_node(k, rows, seed, &generated, cancel)?,
             };
             generated.values.push(values);
         }
@@ -239,7 +256,7 @@ impl Simulation {
     }
 
     /// Draw node `k` for every row from its own stream.
-    fn draw_node(&self, k: usize, rows: usize, seed: u64, so_far: &Generated) -> Result<NodeValues, QueryError> {
+    fn draw_node(&self, k: usize, rows: usize, seed: u64, so_far: &Generated, cancel: &AtomicBool) -> Result<NodeValues, QueryError> {
         let m = &self.nodes[k];
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 2));
         let bad = |i: usize, what: String| QueryError::Mechanism {
@@ -247,19 +264,23 @@ impl Simulation {
             message: format!("in simulated row {}, {what}; change the mechanism of {}", i + 1, m.node),
         };
         let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, so_far, i);
+        let what = format!("simulate {}", self.name);
+        let stop = |i: usize| if i % CANCEL_EVERY == 0 { QueryError::stop_if(cancel, &what) } else { Ok(()) };
         Ok(match &m.mechanism {
-            Mechanism::Category { shares, .. } => NodeValues::Category(
-                (0..rows)
-                    .map(|_| {
-                        let u: f64 = rng.random();
-                        let mut total = 0.0;
-                        shares.iter().position(|s| { total += s; u < total }).unwrap_or(shares.len() - 1) as u32
-                    })
-                    .collect(),
-            ),
+            Mechanism::Category { shares, .. } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    stop(i)?;
+                    let u: f64 = rng.random();
+                    let mut total = 0.0;
+                    out.push(shares.iter().position(|s| { total += s; u < total }).unwrap_or(shares.len() - 1) as u32);
+                }
+                NodeValues::Category(out)
+            }
             Mechanism::Normal { mean, sd } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
+                    stop(i)?;
                     let (mu, s) = (eval(mean, i), eval(sd, i));
                     if !mu.is_finite() || !s.is_finite() || s <= 0.0 {
                         return Err(bad(i, format!("the mean is {} and the sd {}, but the sd must be positive and both finite", short(mu), short(s))));
@@ -272,6 +293,7 @@ impl Simulation {
             Mechanism::Bernoulli { p, logit } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
+                    stop(i)?;
                     let q = if *logit { logistic(eval(p, i)) } else { eval(p, i) };
                     if !(0.0..=1.0).contains(&q) {
                         return Err(bad(i, format!("the probability is {}, outside 0 to 1", short(q))));
@@ -283,6 +305,7 @@ impl Simulation {
             Mechanism::Poisson { rate, log } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
+                    stop(i)?;
                     let r = if *log { eval(rate, i).exp() } else { eval(rate, i) };
                     if !r.is_finite() || r < 0.0 {
                         return Err(bad(i, format!("the rate is {}, but it must be a finite number ≥ 0", short(r))));

@@ -17,6 +17,11 @@ pub const AND: &str = "and";
 pub const OR: &str = "or";
 /// The word that negates a condition.
 pub const NOT: &str = "not";
+/// The deepest a condition may nest: parentheses, `not`, and every
+/// comparison joined by `and` / `or` each add one level. Evaluating,
+/// printing and dropping a condition recurse this deep, so the limit keeps a
+/// hostile line from overflowing the stack.
+pub const MAX_CONDITION_DEPTH: usize = 200;
 
 /// A comparison operator.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -98,8 +103,8 @@ impl Condition {
         if tokens.is_empty() {
             return Err("\"keep where\" needs a condition, e.g. keep where girth > 0".into());
         }
-        let mut parser = Parser { tokens: &tokens, at: 0 };
-        let condition = parser.or_expression()?;
+        let mut parser = Parser { tokens: &tokens, at: 0, nesting: 0 };
+        let (condition, _) = parser.or_expression()?;
         match parser.peek() {
             None => Ok(condition),
             Some(Token::RightParen) => Err("there is a \")\" without a matching \"(\"".into()),
@@ -398,10 +403,32 @@ fn bare_word(text: String) -> Token {
     }
 }
 
-/// Recursive descent over the tokens: or → and → not → comparison.
+/// Recursive descent over the tokens: or → and → not → comparison. Each
+/// step returns the condition and the depth of its tree; `nesting` counts the
+/// open recursive calls. Both stop at [`MAX_CONDITION_DEPTH`].
 struct Parser<'a> {
     tokens: &'a [Token],
     at: usize,
+    nesting: usize,
+}
+
+/// A parsed condition and the depth of its tree.
+type Parsed = (Condition, usize);
+
+fn too_deep() -> String {
+    format!(
+        "the condition nests deeper than {MAX_CONDITION_DEPTH} levels (parentheses, not, and comparisons joined by and / or); \
+         split it over several keep where lines"
+    )
+}
+
+/// The depth of a node over children of depths `a` and `b`, within the limit.
+fn deeper(a: usize, b: usize) -> Result<usize, String> {
+    let depth = a.max(b) + 1;
+    if depth > MAX_CONDITION_DEPTH {
+        return Err(too_deep());
+    }
+    Ok(depth)
 }
 
 impl Parser<'_> {
@@ -415,41 +442,57 @@ impl Parser<'_> {
         token
     }
 
-    fn or_expression(&mut self) -> Result<Condition, String> {
-        let mut left = self.and_expression()?;
+    /// Count one more open recursive call, refusing past the limit.
+    fn enter(&mut self) -> Result<(), String> {
+        self.nesting += 1;
+        if self.nesting > MAX_CONDITION_DEPTH {
+            return Err(too_deep());
+        }
+        Ok(())
+    }
+
+    fn or_expression(&mut self) -> Result<Parsed, String> {
+        self.enter()?;
+        let (mut left, mut depth) = self.and_expression()?;
         while self.peek() == Some(&Token::Or) {
             self.at += 1;
-            let right = self.and_expression()?;
+            let (right, right_depth) = self.and_expression()?;
+            depth = deeper(depth, right_depth)?;
             left = Condition::Or(Box::new(left), Box::new(right));
         }
-        Ok(left)
+        self.nesting -= 1;
+        Ok((left, depth))
     }
 
-    fn and_expression(&mut self) -> Result<Condition, String> {
-        let mut left = self.not_expression()?;
+    fn and_expression(&mut self) -> Result<Parsed, String> {
+        let (mut left, mut depth) = self.not_expression()?;
         while self.peek() == Some(&Token::And) {
             self.at += 1;
-            let right = self.not_expression()?;
+            let (right, right_depth) = self.not_expression()?;
+            depth = deeper(depth, right_depth)?;
             left = Condition::And(Box::new(left), Box::new(right));
         }
-        Ok(left)
+        Ok((left, depth))
     }
 
-    fn not_expression(&mut self) -> Result<Condition, String> {
+    fn not_expression(&mut self) -> Result<Parsed, String> {
         match self.peek() {
             Some(Token::Not) => {
                 self.at += 1;
-                Ok(Condition::Not(Box::new(self.not_expression()?)))
+                self.enter()?;
+                let (inner, depth) = self.not_expression()?;
+                self.nesting -= 1;
+                Ok((Condition::Not(Box::new(inner)), deeper(depth, 0)?))
             }
             Some(Token::LeftParen) => {
                 self.at += 1;
-                let inner = self.or_expression()?;
+                let (inner, depth) = self.or_expression()?;
                 match self.next() {
-                    Some(Token::RightParen) => Ok(inner),
+                    Some(Token::RightParen) => Ok((inner, depth)),
                     _ => Err(format!("the \"(\" before \"{inner}\" is not closed")),
                 }
             }
-            _ => self.comparison(),
+            _ => Ok((self.comparison()?, 1)),
         }
     }
 

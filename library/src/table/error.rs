@@ -138,6 +138,14 @@ pub enum TableError {
     /// A column given to [`super::Table::from_columns`] that cannot be used.
     #[error("table {table}, column {column}: {problem}")]
     InvalidColumn { table: Box<str>, column: Box<str>, problem: Box<str> },
+
+    /// The file is larger than the memory its table would need.
+    #[error("{file}: {message}")]
+    TooLarge { file: Box<str>, message: Box<str> },
+
+    /// The cancel flag was set (an interrupt) while the file was read.
+    #[error("{file}: reading was interrupted at row {row}; the table was not made")]
+    Interrupted { file: Box<str>, row: usize },
 }
 
 impl TableError {

@@ -18,8 +18,12 @@
 //! first data row is row 2 (blank lines, which CSV readers skip, are not
 //! counted).
 
+use std::collections::{HashMap, HashSet};
 use std::fs::File;
 use std::io::{self, Read};
+use std::sync::atomic::{AtomicBool, Ordering};
+
+use crate::limits::{check_memory, describe_bytes};
 
 use super::error::TableError;
 use super::report::{ColumnReport, FilterReport, LoadReport};
@@ -30,13 +34,29 @@ use super::{Column, ColumnData, ColumnKind, Table};
 
 /// How many missing rows an error lists before saying "and N more".
 const ROWS_SHOWN: usize = 5;
+/// Bytes of memory a loaded table takes per byte of its CSV file (an
+/// estimate: the raw fields, their ends and the typed values).
+const MEMORY_PER_BYTE: u128 = 4;
+/// Rows read between two reads of the cancel flag.
+const CANCEL_EVERY: usize = 4096;
 
 /// Opens the file the spec names and loads it. The file is named in errors
 /// as the spec's path is written.
 pub fn load_table(spec: &TableSpec) -> Result<(Table, LoadReport), TableError> {
+    load_table_with_cancel(spec, &AtomicBool::new(false))
+}
+
+/// [`load_table`], stopping with [`TableError::Interrupted`] soon after
+/// `cancel` is set.
+pub fn load_table_with_cancel(spec: &TableSpec, cancel: &AtomicBool) -> Result<(Table, LoadReport), TableError> {
     let label = spec.path.display().to_string();
     let file = File::open(&spec.path).map_err(|e| io_error(&label, &e))?;
-    Table::from_csv_reader(spec, &label, file)
+    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
+    // Raw field text, field ends and typed values: about four times the file.
+    let bytes = u128::from(size).saturating_mul(MEMORY_PER_BYTE);
+    check_memory(&format!("a table from a file of {}", describe_bytes(size as f64)), bytes)
+        .map_err(|message| TableError::TooLarge { file: label.as_str().into(), message: message.into() })?;
+    Table::from_csv_reader_with_cancel(spec, &label, file, cancel)
 }
 
 impl Table {
@@ -58,7 +78,18 @@ impl Table {
         source_label: &str,
         reader: R,
     ) -> Result<(Table, LoadReport), TableError> {
-        let raw = RawTable::read(source_label, reader)?;
+        Table::from_csv_reader_with_cancel(spec, source_label, reader, &AtomicBool::new(false))
+    }
+
+    /// [`Table::from_csv_reader`], reading `cancel` every few thousand rows
+    /// and stopping with [`TableError::Interrupted`] once it is set.
+    pub fn from_csv_reader_with_cancel<R: Read>(
+        spec: &TableSpec,
+        source_label: &str,
+        reader: R,
+        cancel: &AtomicBool,
+    ) -> Result<(Table, LoadReport), TableError> {
+        let raw = RawTable::read(source_label, reader, cancel)?;
         check_declarations(spec, source_label, &raw.headers)?;
         let typed = type_columns(spec, source_label, &raw)?;
         let rows_read = raw.rows;
@@ -116,7 +147,7 @@ struct RawTable {
 }
 
 impl RawTable {
-    fn read<R: Read>(file: &str, reader: R) -> Result<RawTable, TableError> {
+    fn read<R: Read>(file: &str, reader: R, cancel: &AtomicBool) -> Result<RawTable, TableError> {
         let mut csv = csv::ReaderBuilder::new()
             .flexible(true)
             .trim(csv::Trim::All)
@@ -138,6 +169,9 @@ impl RawTable {
         let mut rows = 0;
         while has_row {
             let row = rows + 2;
+            if rows % CANCEL_EVERY == 0 && cancel.load(Ordering::Relaxed) {
+                return Err(TableError::Interrupted { file: file.into(), row });
+            }
             if record.len() != headers.len() {
                 return Err(TableError::RaggedRow {
                     file: file.into(),
@@ -164,8 +198,9 @@ fn check_header(file: &str, headers: &[String], has_row: bool) -> Result<(), Tab
     if let Some(position) = headers.iter().position(String::is_empty) {
         return Err(TableError::UnnamedColumn { file: file.into(), position: position + 1 });
     }
+    let mut first_seen: HashMap<&str, usize> = HashMap::with_capacity(headers.len());
     for (second, name) in headers.iter().enumerate() {
-        if let Some(first) = headers[..second].iter().position(|h| h == name) {
+        if let Some(&first) = first_seen.get(name.as_str()) {
             return Err(TableError::DuplicateColumn {
                 file: file.into(),
                 column: name.as_str().into(),
@@ -173,6 +208,7 @@ fn check_header(file: &str, headers: &[String], has_row: bool) -> Result<(), Tab
                 second: second + 1,
             });
         }
+        first_seen.insert(name, second);
     }
     if !has_row {
         return Err(TableError::HeaderOnly { file: file.into() });
@@ -182,11 +218,13 @@ fn check_header(file: &str, headers: &[String], has_row: bool) -> Result<(), Tab
 
 /// Every declared column must exist in the file, and be declared once.
 fn check_declarations(spec: &TableSpec, file: &str, headers: &[String]) -> Result<(), TableError> {
-    for (i, decl) in spec.declared.iter().enumerate() {
-        if spec.declared[..i].iter().any(|d| d.name == decl.name) {
+    let present: HashSet<&str> = headers.iter().map(String::as_str).collect();
+    let mut declared: HashSet<&str> = HashSet::with_capacity(spec.declared.len());
+    for decl in &spec.declared {
+        if !declared.insert(decl.name.as_str()) {
             return Err(TableError::DuplicateDeclaration { column: decl.name.as_str().into() });
         }
-        if !headers.contains(&decl.name) {
+        if !present.contains(decl.name.as_str()) {
             return Err(TableError::DeclaredColumnAbsent {
                 file: file.into(),
                 column: decl.name.as_str().into(),

@@ -28,7 +28,7 @@ mod values;
 
 pub use condition::{Comparison, Condition, Literal};
 pub use error::TableError;
-pub use load::load_table;
+pub use load::{load_table, load_table_with_cancel};
 pub use report::{summary_json, ColumnReport, FilterReport, LoadReport};
 pub use rules::{parse_table_line, ColumnDecl, TableRule, TableSpec};
 
@@ -236,6 +236,7 @@ impl Table {
             column: column.name.as_str().into(),
             problem: problem.into(),
         };
+        let mut names: std::collections::HashSet<&str> = std::collections::HashSet::with_capacity(columns.len());
         for (i, column) in columns.iter().enumerate() {
             if column.name.trim().is_empty() {
                 return Err(TableError::InvalidColumn {
@@ -244,7 +245,7 @@ impl Table {
                     problem: "the column has no name; name every column".into(),
                 });
             }
-            if columns[..i].iter().any(|c| c.name == column.name) {
+            if !names.insert(column.name.as_str()) {
                 return Err(invalid(column, "the name is used twice; give each column its own name".into()));
             }
             let first = &columns[0];

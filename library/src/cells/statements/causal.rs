@@ -9,8 +9,15 @@ use super::{form_error, header, option_text, unquote};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::{split_commas, Statement};
-use crate::cells::session::Session;
-use crate::graph::{from_dot, Graph, GraphBuilder, Identification};
+use crate::cells::session::{RunControl, Session};
+use crate::graph::{from_dot, Graph, GraphBuilder, Identification, PathListing};
+
+/// The most edges a graph's description lists one by one.
+const LISTED_EDGES: usize = figures::FIGURE_EDGES;
+
+/// The largest DOT file read (a causal graph file is a few kilobytes; a
+/// bigger one is most likely the wrong file).
+const MAX_DOT_BYTES: u64 = 64 << 20;
 
 /// `graph NAME:` with a body of edges, or `graph NAME from "FILE.dot"`.
 pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
@@ -26,6 +33,13 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
     } else if let Some(([name, raw], _)) = GRAPH_FILE.read_n(st.head()).ok().filter(|([name, _], _)| is_name(name) && !st.expects_body()) {
         let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FILE.usage))?;
         let file = session.resolve(path);
+        let size = std::fs::metadata(&file).map(|m| m.len()).unwrap_or(0);
+        if size > MAX_DOT_BYTES {
+            return Err(CellError::at(
+                st.header.number,
+                format!("the DOT file {path} holds {} bytes, more than the {MAX_DOT_BYTES} a graph file may have; check that it is the right file", size),
+            ));
+        }
         let text = std::fs::read_to_string(&file).map_err(|e| {
             CellError::at(st.header.number, format!("cannot read the DOT file {path} ({e})"))
         })?;
@@ -48,12 +62,21 @@ pub(crate) fn describe_graph(graph: &Graph) -> Display {
         hidden.len(),
         edges.len()
     );
-    let mut notes = vec![format!("causal order: {}", graph.topological_order().join(", "))];
-    if !hidden.is_empty() {
-        notes.push(format!("hidden (unmeasured): {}", hidden.join(", ")));
+    let mut notes = Vec::new();
+    if edges.len() > LISTED_EDGES || graph.nodes().len() > figures::FIGURE_NODES {
+        notes.push(format!(
+            "the graph is too large to list its causal order and edges or to draw here ({} nodes, {} edges); ask questions of parts of it",
+            graph.nodes().len(),
+            edges.len()
+        ));
+    } else {
+        notes.push(format!("causal order: {}", graph.topological_order().join(", ")));
+        if !hidden.is_empty() {
+            notes.push(format!("hidden (unmeasured): {}", hidden.join(", ")));
+        }
+        let edge_list: Vec<String> = edges.iter().map(|(a, b)| format!("{a} -> {b}")).collect();
+        notes.push(format!("edges: {}", edge_list.join("; ")));
     }
-    let edge_list: Vec<String> = edges.iter().map(|(a, b)| format!("{a} -> {b}")).collect();
-    notes.push(format!("edges: {}", edge_list.join("; ")));
     let plain = format!("{heading}\n{}", notes.iter().map(|n| format!("• {n}")).collect::<Vec<_>>().join("\n"));
     let json = json!({
         "name": graph.name(),
@@ -65,10 +88,14 @@ pub(crate) fn describe_graph(graph: &Graph) -> Display {
 }
 
 /// `ask total|direct effect of X on Y in G`.
-pub(crate) fn ask(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+pub(crate) fn ask(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let ([kind, x, y, g], _) = header(st, &ASK)?;
     let graph = session.require_graph(g, st.header.number)?;
-    let answer = if kind == "total" { graph.total_effect(x, y) } else { graph.direct_effect(x, y) };
+    let answer = if kind == "total" {
+        graph.total_effect_with_cancel(x, y, control.cancel)
+    } else {
+        graph.direct_effect_with_cancel(x, y, control.cancel)
+    };
     let answer = answer.map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     let mut display = describe_identification(&answer);
     let adjusted = answer.adjustment_sets.first().cloned().unwrap_or_default();
@@ -114,7 +141,7 @@ pub(crate) fn describe_identification(id: &Identification) -> Display {
 }
 
 /// `paths from X to Y in G [given A, B]`.
-pub(crate) fn paths(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+pub(crate) fn paths(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let ([x, y, g], rest) = header(st, &PATHS)?;
     let given = match option_text(rest, "given") {
         _ if rest.is_empty() => Vec::new(),
@@ -122,12 +149,15 @@ pub(crate) fn paths(session: &mut Session, st: &Statement) -> Result<Vec<Display
         _ => return Err(form_error(st, PATHS.usage)),
     };
     let graph = session.require_graph(g, st.header.number)?;
-    let reports = graph.paths(x, y, &given).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    let listing = graph.path_listing(x, y, &given, control.cancel).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    let reports = &listing.paths;
     let given_text = if given.is_empty() { "conditioning on nothing".to_string() } else { format!("given {}", given.join(", ")) };
     let open = reports.iter().filter(|p| p.open).count();
-    let heading = format!("paths from {x} to {y} in {g}, {given_text}: {} found, {open} open", reports.len());
+    let found = if listing.complete { format!("{} found", reports.len()) } else { format!("the first {} listed", reports.len()) };
+    let heading = format!("paths from {x} to {y} in {g}, {given_text}: {found}, {open} open");
+    let notes = if listing.complete { Vec::new() } else { cut_list_notes(x, y, &listing) };
     let mut grid = Grid::new(&["path", "kind", "status", "why"]);
-    for p in &reports {
+    for p in reports {
         let why = if p.open { p.opened_by.join("; ") } else { p.blocked_by.join("; ") };
         grid.push(vec![
             p.drawing(),
@@ -136,24 +166,53 @@ pub(crate) fn paths(session: &mut Session, st: &Statement) -> Result<Vec<Display
             why,
         ]);
     }
-    let json = json!({ "paths": reports.iter().map(|p| json!({
+    let mut json = json!({ "paths": reports.iter().map(|p| json!({
         "nodes": p.nodes, "arrows": p.arrows, "open": p.open, "blocked_by": p.blocked_by,
         "opened_by": p.opened_by, "backdoor": p.is_backdoor,
     })).collect::<Vec<_>>() });
-    let plain = if reports.is_empty() {
+    if !listing.complete {
+        json["complete"] = json!(false);
+        json["separated"] = json!(listing.separated);
+        json["directed_paths"] = json!(listing.directed_paths);
+    }
+    let mut plain = if reports.is_empty() {
         format!("{heading}\n• no path joins {x} and {y}")
     } else {
         format!("{heading}\n{}", grid.to_text())
     };
-    let highlight = open_edges(&reports);
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    let highlight = open_edges(reports);
     let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &given, highlight };
     let svg = figures::graph(graph, &format!("open paths from {x} to {y} in {g}"), &marks).ok();
-    Ok(vec![Display { plain, html: Some(html_block(&heading, &[grid.to_html()])), svg, json: Some(json) }])
+    let mut parts = vec![grid.to_html()];
+    if !notes.is_empty() {
+        parts.push(html_list(&notes));
+    }
+    Ok(vec![Display { plain, html: Some(html_block(&heading, &parts)), svg, json: Some(json) }])
+}
+
+/// What a cut path list still says exactly: the d-separation verdict and
+/// the number of directed paths.
+fn cut_list_notes(x: &str, y: &str, listing: &PathListing) -> Vec<String> {
+    let verdict = if listing.separated { "every path is blocked (they are d-separated)" } else { "at least one path is open (they are d-connected)" };
+    vec![
+        format!("the list stops at its limit: more paths join {x} and {y} than are shown, so ask about a closer pair or a smaller graph to see them all"),
+        format!("whatever the list shows, {verdict}, found directly by the d-separation test"),
+        format!("directed (causal) paths between {x} and {y}: {}, counted exactly over the causal order", count_words(listing.directed_paths)),
+    ]
+}
+
+/// A path count in words: whole below 10^15, else in powers of ten.
+fn count_words(count: f64) -> String {
+    if count < 1e15 { format!("{count:.0}") } else { format!("about {count:.3e}") }
 }
 
 /// Edges (cause, effect) that lie on an open path.
 fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
     let mut edges = Vec::new();
+    let mut seen = std::collections::HashSet::new();
     for p in reports.iter().filter(|p| p.open) {
         for (i, arrow) in p.arrows.iter().enumerate() {
             let (a, b) = (&p.nodes[i], &p.nodes[i + 1]);
@@ -161,7 +220,7 @@ fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
                 crate::graph::Arrow::Forward => (a.clone(), b.clone()),
                 crate::graph::Arrow::Backward => (b.clone(), a.clone()),
             };
-            if !edges.contains(&edge) {
+            if seen.insert(edge.clone()) {
                 edges.push(edge);
             }
         }
@@ -170,10 +229,10 @@ fn open_edges(reports: &[crate::graph::PathReport]) -> Vec<(String, String)> {
 }
 
 /// `implications of G`: the independences the graph claims.
-pub(crate) fn implications(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+pub(crate) fn implications(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let ([g], _) = header(st, &IMPLICATIONS)?;
     let graph = session.require_graph(g, st.header.number)?;
-    let imp = graph.implications();
+    let imp = graph.implications_with_cancel(control.cancel).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     let heading = format!(
         "implications of {g}: {} testable independence(s), {} untestable pair(s)",
         imp.testable.len(),

@@ -4,18 +4,18 @@ use super::grammar::TABLE;
 use super::{form_error, unquote};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
-use crate::cells::session::Session;
-use crate::table::{load_table, parse_table_line, summary_json, LoadReport, Table, TableSpec};
+use crate::cells::session::{RunControl, Session};
+use crate::table::{load_table_with_cancel, parse_table_line, summary_json, LoadReport, Table, TableSpec};
 
 /// Read the table, store it, and show its schema and what loading did.
-pub(crate) fn table(session: &mut Session, st: &Statement, _warnings: &mut [String]) -> Result<Vec<Display>, CellError> {
+pub(crate) fn table(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let (name, path) = parse_header(st.head()).ok_or_else(|| form_error(st, TABLE.usage))?;
     let mut spec = TableSpec::new(name, session.resolve(path));
     for line in &st.body {
         let rule = parse_table_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
         spec.add_rule(rule).map_err(|e| CellError::at(line.number, e.to_string()))?;
     }
-    let (mut table, mut report) = load_table(&spec).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    let (mut table, mut report) = load_table_with_cancel(&spec, control.cancel).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     table.name = name.to_string();
     report.source = path.to_string();
     let display = describe(&table, &report);

@@ -15,6 +15,7 @@ use crate::cells::session::{suggest, RunControl, Session};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{fit_model, Fit, Method, LAPLACE_DRAWS, LAPLACE_SEED};
 use crate::infer::nuts::NutsSettings;
+use crate::limits::{whole_number, MAX_CHAINS, MAX_TREE_DEPTH, MAX_WARMUP};
 use crate::model::{Model, ModelSpec};
 
 
@@ -120,7 +121,11 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
         return Err(format!("options come in pairs like `draws 2000`; got \"{}\"", rest.join(" ")));
     }
     let pairs: Vec<(&str, &str)> = rest.chunks(2).map(|c| (c[0], c[1])).collect();
-    let count = |k: &str, v: &str| v.parse::<usize>().map_err(|_| format!("{k} takes a whole number, not \"{v}\""));
+    let count = |k: &str, v: &str| {
+        let (low, high) = option_range(k);
+        let n = whole_number(k, v, low, high)?;
+        usize::try_from(n).map_err(|_| format!("{k} {n} is more than this machine can address; ask for less"))
+    };
     let unknown = |keys: &[&str], other: &str| match kind {
         "laplace" => format!("laplace takes `{}`, not `{other}`", keys.join("` and `")),
         _ => format!("nuts takes {} — not `{other}`", keys.join(", ")),
@@ -133,7 +138,7 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
                 match k {
                     _ if !LAPLACE_OPTIONS.contains(&k) => return Err(unknown(LAPLACE_OPTIONS, k)),
                     "draws" => draws = count(k, v)?,
-                    "seed" => seed = count(k, v)? as u64,
+                    "seed" => seed = whole_number(k, v, 0, u64::MAX)?,
                     other => return Err(unknown(LAPLACE_OPTIONS, other)),
                 }
             }
@@ -147,8 +152,8 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
                     "chains" => s.chains = count(k, v)?,
                     "warmup" => s.warmup = count(k, v)?,
                     "draws" => s.draws = count(k, v)?,
-                    "seed" => s.seed = count(k, v)? as u64,
-                    "depth" => s.max_depth = count(k, v)? as u32,
+                    "seed" => s.seed = whole_number(k, v, 0, u64::MAX)?,
+                    "depth" => s.max_depth = whole_number(k, v, 1, MAX_TREE_DEPTH)? as u32,
                     "accept" => {
                         s.target_accept = v
                             .parse::<f64>()
@@ -162,6 +167,16 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
             Ok(Method::Nuts(s))
         }
         other => Err(format!("unknown method `{other}`; use `with nuts` or `with laplace`")),
+    }
+}
+
+/// The range of a whole-number fitting option; sizes whose memory depends
+/// on the model (draws) are checked again against the memory when fitting.
+fn option_range(key: &str) -> (u64, u64) {
+    match key {
+        "chains" => (1, MAX_CHAINS),
+        "warmup" => (0, MAX_WARMUP),
+        _ => (1, u64::MAX),
     }
 }
 

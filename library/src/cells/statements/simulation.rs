@@ -39,6 +39,8 @@ use crate::table::ColumnData;
 const TRUTH_ROWS: usize = 20_000;
 /// Outcome sets simulated by `prior check` and `check` by default.
 const DEFAULT_SETS: usize = 200;
+/// The most outcome sets a predictive check draws (each is a full set of rows).
+const MAX_SETS: u64 = 100_000;
 /// Most parameters drawn in a joint model's posterior figure.
 const FIGURE_PARAMETERS: usize = 10;
 
@@ -218,7 +220,7 @@ fn figure_label(node: &str, parameter: &str) -> String {
 }
 
 /// `intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]`.
-pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let (name, request) =
         read_intervention(st.head()).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", INTERVENE.usage)))?;
@@ -230,7 +232,8 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement) -> Result<Vec<Dis
         .get(name)
         .ok_or_else(|| CellError::at(line, format!("joint model {name} is not fitted yet; run `fit {name}` first")))?;
     let table = session.require_table(&joint.table, line)?;
-    let result = crate::query::intervene(joint, fit, table, &request).map_err(|e| query_error(e, line))?;
+    let result = crate::query::intervene_with_cancel(joint, fit, table, &request, control.cancel)
+        .map_err(|e| stopped_or(control, &format!("intervene {name}"), line, e))?;
     let heading = format!("intervene {name}: {}, over {}", result.intervention, result.rows_source);
     let (lower, upper) = bounds(result.mass);
     let mut grid = Grid::new(&["watched", "mean change", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
@@ -304,7 +307,7 @@ fn read_intervention(head: &str) -> Result<(&str, InterventionRequest), String> 
 }
 
 /// `simulate NAME from GRAPH rows N seed S:` with one mechanism per node.
-pub(crate) fn simulate(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+pub(crate) fn simulate(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([name, g, rows, seed], _) = header(st, &SIMULATE)?;
     if !is_name(name) || !st.expects_body() {
@@ -315,7 +318,7 @@ pub(crate) fn simulate(session: &mut Session, st: &Statement) -> Result<Vec<Disp
     let graph = session.require_graph(g, line)?;
     let lines = st.body.iter().map(|l| (l.number, l.text.as_str()));
     let simulation = Simulation::parse(name, graph, SimulationSettings { rows, seed }, lines).map_err(|e| query_error(e, line))?;
-    let table = simulation.table().map_err(|e| query_error(e, line))?;
+    let table = simulation.table_with_cancel(control.cancel).map_err(|e| stopped_or(control, &format!("simulate {name}"), line, e))?;
     let mut mechanisms = Vec::new();
     for body in &st.body {
         if let Ok(Some((node, _))) = parse_mechanism_line(&body.text) {
@@ -380,7 +383,7 @@ pub(crate) fn recover(
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     warnings.extend(fit.warnings.iter().map(|w| format!("{label}: {w}")));
-    let table = sim.table().map_err(|e| query_error(e, line))?;
+    let table = sim.table_with_cancel(control.cancel).map_err(|e| stopped_or(control, &label, line, e))?;
     let effects = true_effects(&model, &fit.draws, &table, sim);
     let (lower, upper) = bounds(INTERVAL_MASS);
     let mut grid = Grid::new(&["parameter", "true value", "mean", &lower, &upper, "interval holds the truth"]).numeric_columns(&[1, 2, 3, 4]);
@@ -570,10 +573,11 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
     let mut rest = words.as_slice();
     let (mut sets, mut seed) = (DEFAULT_SETS, DEFAULT_SEED);
     while let [key, value, tail @ ..] = rest {
-        let parsed: u64 = value.parse().map_err(|_| CellError::at(line, format!("{key} takes a whole number, not `{value}`")))?;
+        let (low, high) = if *key == "sets" { (1, MAX_SETS) } else { (0, u64::MAX) };
+        let parsed = crate::limits::whole_number(key, value, low, high).map_err(|m| CellError::at(line, m))?;
         match *key {
             _ if !CHECK.option_words().contains(key) => return Err(form_error(st, CHECK.usage)),
-            "sets" if parsed > 0 => sets = parsed as usize,
+            "sets" => sets = parsed as usize,
             "seed" => seed = parsed,
             _ => return Err(form_error(st, CHECK.usage)),
         }
@@ -590,6 +594,8 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
         return Err(CellError::at(line, format!("{m} has a category outcome ({levels}); predictive checks summarise numeric outcomes and are not available for it yet")));
     }
     let table = session.require_table(model.table_name(), line)?;
+    let bytes = crate::limits::bytes_for(&[sets, table.nrows().max(1), 2]);
+    crate::limits::check_memory(&format!("{sets} predictive sets of {} rows", table.nrows()), bytes).map_err(|m| CellError::at(line, m))?;
     let result = if prior {
         prior_predictive(model, table, sets, seed)
     } else {

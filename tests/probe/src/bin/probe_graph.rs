@@ -3,7 +3,9 @@
 //! Request: `{"graphs": [{"name", "nodes": [{"name", "hidden"}], "edges": [[from, to]],
 //! "lines": [..] (optional, cell body lines), "dot": ".." (optional), "queries": [..]}]}`.
 //! A query is one of `{"kind": "dsep", "xs", "ys", "zs"}`, `{"kind": "total" | "direct",
-//! "exposure", "outcome"}`, `{"kind": "paths", "from", "to", "given"}`, `{"kind": "implications"}`.
+//! "exposure", "outcome"}`, `{"kind": "paths" | "listing", "from", "to", "given"}`,
+//! `{"kind": "implications"}`. `listing` answers with the bounded path listing
+//! (`paths`, `complete`, `separated`, `directed_paths`).
 //!
 //! Answer: `{"graphs": [{"name", "error"?, "order", "answers": [..]}]}`, one answer per
 //! query, or `{"error": message}` in its place.
@@ -60,6 +62,10 @@ fn answer_query(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
         "total" => json!(graph.total_effect(&text("exposure"), &text("outcome"))?),
         "direct" => json!(graph.direct_effect(&text("exposure"), &text("outcome"))?),
         "paths" => json!(graph.paths(&text("from"), &text("to"), &strings(&q["given"]))?),
+        "listing" => {
+            let never = std::sync::atomic::AtomicBool::new(false);
+            json!(graph.path_listing(&text("from"), &text("to"), &strings(&q["given"]), &never)?)
+        }
         "implications" => json!(graph.implications()),
         other => json!({ "error": format!("unknown query kind `{other}`") }),
     })
