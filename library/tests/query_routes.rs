@@ -250,3 +250,29 @@ fn joint_model_follows_the_graph_and_compares_with_adjustment() {
     expect_test::expect![[r#"joint whole: the model given for girth uses yield, which is not a parent of girth in graph orchard; use only its parents (rootstock)"#]]
         .assert_eq(&wrong.to_string());
 }
+
+/// Source: Wright (1934) path tracing. With cover -> hidden litter ->
+/// insects and cover -> insects, the total effect of cover is 0.3 + 0.5 ×
+/// 0.7 = 0.65, of which the joint model (no model for the hidden litter)
+/// would see only the direct 0.3 and report it as the whole effect. The
+/// intervention must be refused, naming the hidden route, and the joint
+/// model's warning must call litter a mediator, not a confounder.
+#[test]
+fn a_hidden_mediator_makes_intervene_refuse() {
+    let g = graph("stream", &["hidden litter", "shade -> cover", "shade -> insects", "cover -> litter -> insects", "cover -> insects"]);
+    let table = simulate(&g, &MECHANISMS, 300, 4).table().expect("table");
+    let joint = build_joint("whole", &g, &table, &[]).expect("joint");
+    assert!(joint.warnings.iter().any(|w| w.contains("hidden parent litter, a mediator downstream of")), "{:?}", joint.warnings);
+    let fit = fit_joint(&joint, &laplace(1), &AtomicBool::new(false)).expect("fit");
+    let request = InterventionRequest {
+        variable: "cover".into(),
+        to: "1".into(),
+        from: "0".into(),
+        watch: vec!["insects".into()],
+        rows: None,
+        seed: 1,
+        mass: 0.9,
+    };
+    let error = intervene(&joint, &fit, &table, &request).expect_err("refused").to_string();
+    assert!(error.contains("runs through the hidden node litter") && error.contains("not identifiable"), "{error}");
+}
