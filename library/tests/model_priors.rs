@@ -175,3 +175,16 @@ fn centring_does_not_move_the_slope_under_a_logit_link() {
     }
     assert!((slopes[0] - slopes[1]).abs() < 1e-6, "{slopes:?}");
 }
+
+#[test]
+fn uniform_priors_with_hard_ends_are_refused() {
+    // A uniform prior's density drops to zero at its ends, so the log
+    // posterior has −∞ walls there (the definition of the uniform density):
+    // refused with what to use instead, for a coefficient and for the spread.
+    let table = orchard(60, 2);
+    for (line, group) in [("prior slopes: uniform(-50, 50)", "slopes"), ("prior spread: uniform(0, 40)", "spread")] {
+        let text = model_fixtures::build_error(&format!("yield from girth using trees\n{line}"), &table);
+        assert!(text.contains(&format!("uniform(-50, 50) stops the {group}")) || text.contains(&format!("uniform(0, 40) stops the {group}")), "{text}");
+        assert!(text.contains("use a prior without ends"), "{text}");
+    }
+}

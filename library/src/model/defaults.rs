@@ -35,7 +35,7 @@ use super::error::ModelError;
 use super::family::softmax::level_prefix;
 use super::family::Family;
 use super::outcome::OutcomeValues;
-use super::prior::{Prior, PriorGroup};
+use super::prior::{short_number, Prior, PriorGroup};
 use super::spec::ModelSpec;
 use super::terms::recipe::{mean_and_sd, TermRecipe};
 
@@ -203,15 +203,29 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelE
         if !present {
             return problem(format!("this model has no {}; remove the prior line", group.name()));
         }
+        if let Prior::Uniform { lower, upper } = prior {
+            // A flat prior with hard ends puts a cliff in the density at each
+            // end: NUTS diverges there and a normal approximation is poor near it.
+            let instead = if group.is_positive() {
+                format!("half_normal({}) or lognormal", short_number(*upper / 2.0))
+            } else {
+                format!("normal({}, {})", short_number((lower + upper) / 2.0), short_number((upper - lower) / 4.0))
+            };
+            return problem(format!(
+                "{prior} stops the {} at hard ends, where sampling fails and approximations are poor; \
+                 use a prior without ends such as {instead}",
+                group.name()
+            ));
+        }
         if group.is_positive() && prior.allows_negative() {
             return problem(format!(
-                "{prior} allows negative values but the spread is positive; use exponential, half_normal, \
-                 lognormal or uniform with a lower end ≥ 0"
+                "{prior} allows negative values but the spread is positive; use exponential, half_normal \
+                 or lognormal"
             ));
         }
         if !group.is_positive() && prior.is_positive_only() {
             return problem(format!(
-                "{prior} allows only positive values but {} can be negative; use normal, student_t or uniform",
+                "{prior} allows only positive values but {} can be negative; use normal or student_t",
                 group.name()
             ));
         }
