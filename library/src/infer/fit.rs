@@ -10,6 +10,7 @@ use std::sync::atomic::AtomicBool;
 use crate::draws::Draws;
 use crate::infer::diagnostics::{diagnose, run_warnings, ParamDiagnostics};
 use crate::infer::laplace::{laplace, InferError};
+use crate::infer::normal_exact::normal_exact_draws;
 use crate::infer::nuts::{sample_nuts, Init, NutsError, NutsSettings, Progress};
 use crate::model::Model;
 
@@ -21,7 +22,9 @@ pub const LAPLACE_DRAWS: usize = 4000;
 /// How to fit.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Method {
-    /// Normal approximation at the posterior mode.
+    /// Normal approximation at the posterior mode; exact draws instead
+    /// for a normal model with normal coefficient priors
+    /// ([`crate::infer::normal_exact`]).
     Laplace { draws: usize, seed: u64 },
     /// The No-U-Turn sampler.
     Nuts(NutsSettings),
@@ -31,7 +34,10 @@ impl Method {
     /// The method's name and its settings, as printed with a fit.
     pub fn describe(&self) -> String {
         match self {
-            Method::Laplace { draws, seed } => format!("Laplace approximation, {draws} draws, seed {seed}"),
+            Method::Laplace { draws, seed } => format!(
+                "Laplace approximation (exact for a normal outcome with normal coefficient priors: the spread's \
+                 marginal on a grid, the coefficients drawn given it), {draws} draws, seed {seed}"
+            ),
             Method::Nuts(s) => format!(
                 "NUTS, {} chains × ({} warm-up + {} draws), target acceptance {}, max tree depth {}, seed {}",
                 s.chains, s.warmup, s.draws, s.target_accept, s.max_depth, s.seed
@@ -90,10 +96,13 @@ pub fn fit_model(
     let started = std::time::Instant::now();
     let names = model.parameter_names();
     let (run, max_depth) = match method {
-        Method::Laplace { draws, seed } => {
-            let fit = laplace(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed)?;
-            (Err(fit.draws), 0)
-        }
+        Method::Laplace { draws, seed } => match model.normal_linear().and_then(|p| normal_exact_draws(&p, *draws, *seed)) {
+            Some(exact) => (Err(exact), 0),
+            None => {
+                let fit = laplace(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed)?;
+                (Err(fit.draws), 0)
+            }
+        },
         Method::Nuts(settings) => {
             let init = Init::Given(dispersed_starts(model, settings.chains, settings.seed));
             (Ok(sample_nuts(model, &init, settings, cancel, progress)?), settings.max_depth)
@@ -134,27 +143,35 @@ pub fn fit_model(
 /// in a seeded random order (a different order per coordinate, so the
 /// starts do not all lie on one diagonal); [`Model::dispersed_point`] turns
 /// the scores into a point, one prior typical distance per unit. One chain
-/// starts at the model's own starting point.
+/// starts near the model's own starting point.
 fn dispersed_starts(model: &Model, chains: usize, seed: u64) -> Vec<Vec<f64>> {
     let scores = stratified_scores(model.initial_point().len(), chains, seed);
     scores.iter().map(|z| model.dispersed_point(z)).collect()
 }
 
+/// Seeded jitter added to every score, so that no start (one chain's start
+/// in particular) sits exactly on a symmetric point where a gradient
+/// component is exactly zero, which the sampler refuses as a start.
+const JITTER: f64 = 0.05;
+
 /// `chains` rows of `dim` standard scores: each column holds the stratified
-/// scores `Φ⁻¹((c + ½)/chains)` in a seeded random order.
+/// scores `Φ⁻¹((c + ½)/chains)` in a seeded random order, plus a small
+/// seeded jitter ([`JITTER`]).
 pub fn stratified_scores(dim: usize, chains: usize, seed: u64) -> Vec<Vec<f64>> {
     use rand::seq::SliceRandom;
     use rand::SeedableRng;
-    use statrs::distribution::{ContinuousCDF, Normal};
-    let normal = Normal::standard();
+    use rand_distr::{Distribution, Normal};
+    use statrs::distribution::ContinuousCDF;
+    let normal = statrs::distribution::Normal::standard();
     let strata: Vec<f64> = (0..chains).map(|c| normal.inverse_cdf((c as f64 + 0.5) / chains as f64)).collect();
     let mut rng = rand::rngs::StdRng::seed_from_u64(seed ^ 0x5EED_57A7);
+    let jitter = Normal::new(0.0, JITTER).expect("fixed, valid sd");
     let mut rows = vec![vec![0.0; dim]; chains];
     for j in 0..dim {
         let mut column = strata.clone();
         column.shuffle(&mut rng);
         for (row, z) in rows.iter_mut().zip(column) {
-            row[j] = z;
+            row[j] = z + jitter.sample(&mut rng);
         }
     }
     rows
