@@ -159,9 +159,9 @@ impl Model {
         for block in 0..p / width {
             let at = block * width;
             let shift = self.average_row_shift(&self.start[at..at + width], at);
-            for k in at..at + width {
-                if self.at_average_row[k] {
-                    values[k] += shift;
+            for (value, &anchored) in values[at..at + width].iter_mut().zip(&self.at_average_row[at..at + width]) {
+                if anchored {
+                    *value += shift;
                 }
             }
         }
@@ -279,9 +279,9 @@ impl Model {
         for block in 0..p / width {
             let at = block * width;
             let shift = self.average_row_shift(&values[at..at + width], at);
-            for k in at..at + width {
-                if self.at_average_row[k] {
-                    values[k] -= shift;
+            for (value, &anchored) in values[at..at + width].iter_mut().zip(&self.at_average_row[at..at + width]) {
+                if anchored {
+                    *value -= shift;
                 }
             }
         }

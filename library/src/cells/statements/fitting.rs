@@ -201,9 +201,13 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
     if fit.diagnostics.is_none() {
-        notes.push("Laplace approximation: a normal fit at the posterior mode; R-hat and ESS do not apply".into());
+        notes.push(
+            "laplace method: independent draws (exact for a normal outcome with normal coefficient priors, \
+             otherwise a normal fit at the posterior mode); R-hat and ESS do not apply"
+                .into(),
+        );
     } else if fit.warnings.is_empty() {
-        notes.push(format!("sampler checks passed: no divergences, every R-hat ≤ 1.01 and bulk ESS ≥ 400"));
+        notes.push("sampler checks passed: no divergences, every R-hat ≤ 1.01, bulk and tail ESS ≥ 400".into());
     }
     notes.extend(fit.warnings.iter().map(|w| format!("warning: {w}")));
     let mut plain = format!("{heading}\n{}\npriors:\n{}", grid.to_text(), priors.to_text());
