@@ -89,8 +89,9 @@ paths from rootstock to yield in orchard given girth
 
 For the total effect, yield is modelled by rootstock alone: one intercept per
 rootstock. For the direct effect, girth enters too, with its own slope within
-each rootstock. Priors we do not declare are set from the data's own scale and
-listed with the fit.
+each rootstock. Priors we do not declare are Waypath's defaults: the predictors
+share one budget on the outcome's scale, and intercepts are priced at the
+average row. The fit lists every prior and who set it.
 """),
     code("""
 model m_total:

@@ -1,13 +1,19 @@
-//! Diagnostics on draws whose mixing is known in closed form, and the
-//! wording of the run warnings. (The exact agreement with the published
-//! definitions is checked in tests/python/test_diagnostics_reference.py.)
+//! Diagnostics on draws whose mixing is known in closed form, the wording
+//! of the run warnings, and the power of dispersed chain starts. (The
+//! agreement with the published definitions, written out a second time,
+//! and with analytic values is checked in
+//! tests/python/test_diagnostics_reference.py.)
 
 use expect_test::expect;
 use rand::rngs::StdRng;
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
-use waypath::infer::diagnostics::{diagnose, run_warnings};
-use waypath::infer::nuts::NutsRun;
+use std::sync::atomic::AtomicBool;
+
+use waypath::infer::diagnostics::{diagnose, diagnose_run, run_warnings};
+use waypath::infer::fit::stratified_scores;
+use waypath::infer::nuts::{sample_nuts, Init, NutsRun, NutsSettings};
+use waypath::model::LogDensity;
 
 /// Stationary AR(1) chains x_t = phi x_{t-1} + e_t.
 fn ar1_chains(chains: usize, n: usize, phi: f64, seed: u64) -> Vec<Vec<f64>> {
@@ -76,11 +82,100 @@ fn warnings_name_the_parameter_the_number_and_what_to_try() {
         step_sizes: vec![0.1; 4],
         seconds: 1.0,
     };
-    let text = run_warnings(&run, &["slope[girth]".to_string()], 10).join("\n");
+    let text = run_warnings(&run, &["slope[girth]".to_string()], &diagnose_run(&run), 10).join("\n");
     expect![[r#"
         5 of 800 draws came from a divergent trajectory (chains 2, 4): the sampler could not follow the posterior's curvature there, so some regions may be missed and the estimates biased. Try a higher target acceptance such as 0.95, tighter priors, or a non-centred form for group-level effects.
         R-hat of slope[girth] is 1.423, above 1.01: the chains disagree about it, so they have not settled on one posterior. Look at its trace for a chain stuck apart, and run longer warm-up and more draws.
         Bulk ESS of slope[girth] is 9, below 400: its mean and central interval rest on few effectively independent draws and carry extra Monte Carlo error. Run more draws, or simplify the model if the chains move slowly.
+        Tail ESS of slope[girth] is 38, below 400: the ends of its interval are tail quantiles and rest on few effectively independent draws there. Run more draws before reading the interval's ends.
         7 of 800 draws reached the maximum tree depth of 10 (chain 1): their trajectories were cut short, which costs efficiency rather than correctness. Raise the maximum tree depth, or put the predictors on a scale near 1."#]]
     .assert_eq(&text);
+}
+
+#[test]
+fn a_stuck_run_is_warned_about() {
+    // Every draw equal: R-hat and ESS are undefined (0/0 in the paper's
+    // variance ratio), which must not pass silently as "no warning".
+    let run = NutsRun {
+        draws: vec![vec![vec![1.5]; 100]; 4],
+        divergences: vec![0; 4],
+        depth_hits: vec![0; 4],
+        step_sizes: vec![0.1; 4],
+        seconds: 1.0,
+    };
+    let warnings = run_warnings(&run, &["spread".to_string()], &diagnose_run(&run), 10);
+    assert_eq!(warnings.len(), 1, "{warnings:?}");
+    assert!(warnings[0].starts_with("Every draw of spread is the same value"), "{warnings:?}");
+}
+
+#[test]
+fn low_tail_ess_is_warned_about_even_when_bulk_ess_is_fine() {
+    // Vehtari et al. (2021), section 4.3: the ends of an interval are tail
+    // quantiles, whose ESS can be low while the bulk is fine. Chains of
+    // 600 independent normal draws whose tails are replaced by one slowly
+    // moving value: the indicator of the 5% quantile then barely changes
+    // from draw to draw, while the ranks of the bulk stay nearly independent.
+    let mut chains = ar1_chains(4, 600, 0.0, 21);
+    for chain in chains.iter_mut() {
+        let mut tail = -3.0;
+        for x in chain.iter_mut() {
+            if *x < -1.2 {
+                tail += 0.0001;
+                *x = tail;
+            }
+        }
+    }
+    let d = diagnose(&slices(&chains));
+    let run = NutsRun {
+        draws: (0..4).map(|c| chains[c].iter().map(|&x| vec![x]).collect()).collect(),
+        divergences: vec![0; 4],
+        depth_hits: vec![0; 4],
+        step_sizes: vec![0.1; 4],
+        seconds: 1.0,
+    };
+    let warnings = run_warnings(&run, &["b_shade".to_string()], &[d], 10);
+    assert!(d.ess_bulk >= 400.0, "bulk {d:?}");
+    assert!(warnings.iter().any(|w| w.starts_with("Tail ESS of b_shade")), "{d:?}: {warnings:?}");
+}
+
+/// Two equal normal modes at ±3 (sd 0.5): a target on which one chain
+/// cannot reach the other mode, since the density between them is e^-18 of
+/// the peaks'.
+struct TwoModes;
+
+impl LogDensity for TwoModes {
+    fn dim(&self) -> usize {
+        1
+    }
+
+    fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let x = theta[0];
+        let (a, b) = ((x + 3.0) / 0.5, (x - 3.0) / 0.5);
+        let (la, lb) = (-0.5 * a * a, -0.5 * b * b);
+        let top = la.max(lb);
+        let (wa, wb) = ((la - top).exp(), (lb - top).exp());
+        grad[0] = (wa * (-a / 0.5) + wb * (-b / 0.5)) / (wa + wb);
+        top + (wa + wb).ln()
+    }
+}
+
+#[test]
+fn dispersed_starts_let_rhat_see_a_second_mode() {
+    // Vehtari et al. (2021), section 2: R-hat can only see what the chains
+    // found, so starts must be dispersed relative to the target. Starts one
+    // prior sd (4) apart around a data-based point inside one mode (3)
+    // reach both modes and R-hat flags the run; the former scheme, jitter of
+    // sd 0.1 around that one point, keeps every chain in one mode and R-hat
+    // stays near 1 — no warning, a wrong answer trusted.
+    let settings = NutsSettings { chains: 4, warmup: 200, draws: 200, seed: 3, threads: 1, ..NutsSettings::default() };
+    let cancel = AtomicBool::new(false);
+    let run_from = |starts: Vec<Vec<f64>>| sample_nuts(&TwoModes, &Init::Given(starts), &settings, &cancel, &|_| {}).expect("run");
+    let dispersed: Vec<Vec<f64>> = stratified_scores(1, 4, 3).iter().map(|z| vec![3.0 + 4.0 * z[0]]).collect();
+    let run = run_from(dispersed);
+    let rhat = diagnose_run(&run)[0].rhat;
+    assert!(rhat > 1.5, "dispersed starts: R-hat {rhat}");
+    assert!(run_warnings(&run, &["x".into()], &diagnose_run(&run), 10).iter().any(|w| w.starts_with("R-hat of x")));
+    let clustered: Vec<Vec<f64>> = (0..4).map(|c| vec![3.0 + 0.1 * (c as f64 - 1.5)]).collect();
+    let rhat = diagnose_run(&run_from(clustered))[0].rhat;
+    assert!(rhat < 1.05, "clustered starts cannot see the second mode: R-hat {rhat}");
 }

@@ -162,9 +162,23 @@ fn no_directed_path_means_zero_total_effect() {
     // No directed path from trout to shading: by the graph the total effect is zero.
     let g = graph("stream", &["shading -> trout"]);
     let answer = g.total_effect("trout", "shading").unwrap();
-    assert!(answer.identifiable);
-    assert_eq!(answer.adjustment_sets, vec![Vec::<String>::new()]);
+    assert!(answer.identifiable && answer.zero_by_graph);
+    // The only path, trout <- shading, is a backdoor path into trout with
+    // nothing observed on it to block it, so the zero cannot be checked.
+    assert!(answer.adjustment_sets.is_empty());
     assert!(answer.reason.contains("total effect on shading is zero"));
+}
+
+#[test]
+fn zero_total_effect_lists_the_backdoor_sets_that_check_it() {
+    // Pearl 2009 Def. 3.3.1: with flow -> shading and flow -> trout, the path
+    // shading <- flow -> trout is a backdoor path, so the zero can only be
+    // checked given flow; conditioning on nothing leaves it confounded.
+    let g = graph("stream", &["flow -> shading", "flow -> trout"]);
+    let answer = g.total_effect("shading", "trout").unwrap();
+    assert!(answer.zero_by_graph);
+    assert_eq!(answer.adjustment_sets, vec![vec!["flow".to_owned()]]);
+    assert!(answer.render().contains("zero by the graph"), "{}", answer.render());
 }
 
 #[test]

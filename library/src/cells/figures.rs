@@ -302,7 +302,8 @@ fn difference_quantity(table: &Table, outcome: &str, on: &str) -> Quantity {
 /// A contrast: the density of its per-draw differences with both sides of
 /// zero shaded, or, along a grid, its band with a zero line.
 pub fn contrast(c: &Contrast, table: &Table, outcome: &str) -> Result<String, PlotError> {
-    let value = difference_quantity(table, outcome, &c.on);
+    let unit = if c.in_outcome_unit { quantity(table, outcome).unit } else { None };
+    let value = Quantity { name: format!("difference in {}", c.scale), unit };
     let subject = format!("{} ({})", c.contrast, c.model);
     match &c.along {
         Some(x) => {

@@ -62,16 +62,30 @@ pub struct Identification {
     pub reason: String,
     /// False when the search stopped at its limits, so more minimal sets may exist.
     pub search_complete: bool,
+    /// True when the graph itself says the effect is zero (no directed path
+    /// for a total effect, no edge for a direct one); the sets listed then
+    /// serve to check that zero against data.
+    pub zero_by_graph: bool,
 }
 
 impl Identification {
+    /// The same answer, marked as the graph's zero.
+    fn zero(self) -> Self {
+        Identification { zero_by_graph: true, ..self }
+    }
+
     /// A short text block: verdict, one line per set, the reason.
     pub fn render(&self) -> String {
-        let verdict = if self.identifiable { "identifiable" } else { "not identifiable by adjustment" };
+        let verdict = match (self.zero_by_graph, self.identifiable) {
+            (true, _) => "zero by the graph",
+            (false, true) => "identifiable",
+            (false, false) => "not identifiable by adjustment",
+        };
         let mut out = format!("{} of {} on {}: {verdict}\n", self.query.words(), self.exposure, self.outcome);
         for set in &self.adjustment_sets {
             let members = if set.is_empty() { "nothing".to_owned() } else { set.join(", ") };
-            out.push_str(&format!("  condition on: {members}\n"));
+            let lead = if self.zero_by_graph { "to check it, condition on" } else { "condition on" };
+            out.push_str(&format!("  {lead}: {members}\n"));
         }
         out.push_str(&self.reason);
         if !self.search_complete {
@@ -93,18 +107,26 @@ impl Graph {
     pub fn total_effect_with_cancel(&self, exposure: &str, outcome: &str, cancel: &AtomicBool) -> Result<Identification, GraphError> {
         let (x, y) = self.pair(exposure, outcome)?;
         let answer = |identifiable, sets, reason: String, complete| self.identification(EffectKind::Total, x, y, identifiable, sets, reason, complete);
-        if !self.dag.ancestors_of(&[y])[x] {
-            let reason = format!("{exposure} is not an ancestor of {outcome}, so by the graph's assumptions its total effect on {outcome} is zero.");
-            return Ok(answer(true, vec![Vec::new()], reason, true));
-        }
-        if let Some(reason) = self.hidden_end(x, y) {
-            return Ok(answer(false, Vec::new(), reason, true));
-        }
         // Backdoor paths are exactly the paths left once the edges out of x are removed.
         let cut = self.dag.keep_edges(|a, _| a != x);
         let forbidden = self.dag.descendants_of(&[x]);
         let candidates = self.candidates(&cut, x, y, &forbidden);
         let valid = |z: &[bool]| cut.d_separated(&[x], &[y], z);
+        if !self.dag.ancestors_of(&[y])[x] {
+            // The zero is the graph's claim; a backdoor set of the cut graph
+            // is what an estimate checking that claim must condition on.
+            let zero = format!("{exposure} is not an ancestor of {outcome}, so by the graph's assumptions its total effect on {outcome} is zero.");
+            if self.hidden_end(x, y).is_some() || !valid(&self.dag.mask_of(&candidates)) {
+                let reason = format!("{zero} No set of observed nodes blocks every backdoor path, so the data cannot check that zero.");
+                return Ok(answer(true, Vec::new(), reason, true).zero());
+            }
+            let search = self.minimal_sets(&cut, x, y, &candidates, cancel)?;
+            let reason = format!("{zero} Each set listed blocks every backdoor path (backdoor criterion), so an estimate given it can check that zero.");
+            return Ok(answer(true, search.sets, reason, search.complete).zero());
+        }
+        if let Some(reason) = self.hidden_end(x, y) {
+            return Ok(answer(false, Vec::new(), reason, true));
+        }
         if !valid(&self.dag.mask_of(&candidates)) {
             let reason = format!(
                 "No set of observed nodes blocks every backdoor path from {exposure} to {outcome}{}.",
@@ -141,10 +163,10 @@ impl Graph {
         if !has_edge {
             let zero = format!("The graph has no edge {exposure} -> {outcome}, so by its assumptions the direct effect is zero.");
             if !separable {
-                return Ok(answer(true, Vec::new(), format!("{zero} No set of observed nodes separates them, so the data cannot check that zero."), true));
+                return Ok(answer(true, Vec::new(), format!("{zero} No set of observed nodes separates them, so the data cannot check that zero."), true).zero());
             }
             let search = self.minimal_sets(&cut, x, y, &candidates, cancel)?;
-            return Ok(answer(true, search.sets, format!("{zero} Each set listed separates them, which the data can check."), search.complete));
+            return Ok(answer(true, search.sets, format!("{zero} Each set listed separates them, which the data can check."), search.complete).zero());
         }
         if let Some(reason) = self.hidden_end(x, y) {
             return Ok(answer(false, Vec::new(), reason, true));
@@ -260,6 +282,7 @@ impl Graph {
             adjustment_sets: sets.iter().map(|s| self.owned_names(&self.dag.mask_of(s))).collect(),
             reason,
             search_complete,
+            zero_by_graph: false,
         }
     }
 }

@@ -8,17 +8,23 @@
 //! * chains are split in halves (the middle draw of an odd-length chain is
 //!   left out), so a trend inside one chain shows up as disagreement;
 //! * draws are rank-normalised: pooled ranks `r` (ties averaged) become
-//!   `Φ⁻¹((r − 3/8) / (S − 1/4))`;
+//!   `Φ⁻¹((r − 3/8) / (S + 1/4))` (the paper's §4.1, Blom's offset);
 //! * R-hat is the larger of the bulk value (rank-normalised draws) and the
 //!   tail value (rank-normalised draws folded about the median);
 //! * bulk ESS is the effective sample size of the rank-normalised split
 //!   chains; tail ESS is the smaller of the ESS of the indicators
 //!   `θ ≤ q₀.₀₅` and `θ ≤ q₀.₉₅`;
 //! * the ESS uses the multi-chain autocorrelation with Geyer's initial
-//!   monotone sequence, from direct sums over the lags it needs.
+//!   monotone sequence, from direct sums over the lags it needs, and, as
+//!   the paper's §3.2 prescribes for antithetic chains, averages the sum
+//!   truncated at the usual odd lag with the one running to the next even
+//!   lag: `τ = −1 + 2 Σ P_k + ρ̂_{2k+2}`.
 //!
 //! Every function takes one slice of draws per chain, so it serves any
 //! sampler. Warnings are returned as data (sentences), never printed here.
+//! They are computed on the same draws as the parameter table: the
+//! constrained parameters (`spread`, not `log(spread)`), so a warning and
+//! the table never disagree (tail R-hat is not invariant to the change).
 
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -29,6 +35,9 @@ use crate::infer::nuts::NutsRun;
 pub const RHAT_LIMIT: f64 = 1.01;
 /// Bulk ESS below this is reported.
 pub const ESS_BULK_LIMIT: f64 = 400.0;
+/// Tail ESS below this is reported: the default interval's ends are tail
+/// quantiles, and the paper (§5) asks the same 400 of them.
+pub const ESS_TAIL_LIMIT: f64 = 400.0;
 
 /// The three diagnostics of one parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -136,7 +145,7 @@ fn rank_normalise(chains: &[Vec<f64>]) -> Vec<Vec<f64>> {
     }
     let normal = Normal::standard();
     let z: Vec<f64> =
-        ranks.iter().map(|r| normal.inverse_cdf((r - 0.375) / (s as f64 - 0.25))).collect();
+        ranks.iter().map(|r| normal.inverse_cdf((r - 0.375) / (s as f64 + 0.25))).collect();
     let mut out = Vec::with_capacity(chains.len());
     let mut at = 0;
     for chain in chains {
@@ -188,9 +197,10 @@ fn autocovariance(chain: &[f64], chain_mean: f64, lag: usize) -> f64 {
 ///
 /// `ρ̂_t = 1 − (W − mean_m(ρ̂_{t,m} s²_m)) / var⁺`, where `ρ̂_{t,m} s²_m` is
 /// chain `m`'s autocorrelation at lag `t` times its unbiased variance. Pairs
-/// `P_k = ρ̂_{2k} + ρ̂_{2k+1}` are summed while positive, each capped by the
-/// one before; `τ = −1 + 2 Σ P_k`, and `ESS = S / τ`, capped at `S log₁₀ S`
-/// as the paper advises for antithetic chains.
+/// `P_k = ρ̂_{2k} + ρ̂_{2k+1}` are summed while above 0, each capped by the
+/// one before; `τ = −1 + 2 Σ P_k + ρ̂_{2k+2}` (the last term averages the
+/// sums ending at the odd and at the next even lag, when that lag exists),
+/// and `ESS = S / τ`, capped at `S log₁₀ S` as the paper advises.
 fn ess(chains: &[Vec<f64>]) -> f64 {
     let n = chains[0].len();
     let s = (n * chains.len()) as f64;
@@ -211,7 +221,8 @@ fn ess(chains: &[Vec<f64>]) -> f64 {
     let mut k = 0;
     while 2 * k + 1 < n {
         let pair = rho(2 * k) + rho(2 * k + 1);
-        if pair.is_nan() || pair < 0.0 {
+        // Geyer's initial positive sequence: keep pairs while P_k > 0.
+        if pair.is_nan() || pair <= 0.0 {
             break;
         }
         let pair = pair.min(previous);
@@ -219,7 +230,9 @@ fn ess(chains: &[Vec<f64>]) -> f64 {
         previous = pair;
         k += 1;
     }
-    let tau = -1.0 + 2.0 * sum;
+    // k is now the first pair not summed; its even lag closes the sum.
+    let last = if 2 * k < n { rho(2 * k) } else { 0.0 };
+    let tau = -1.0 + 2.0 * sum + if last.is_nan() { 0.0 } else { last };
     (s / tau).min(s * s.log10())
 }
 
@@ -237,10 +250,12 @@ pub fn diagnose_run(run: &NutsRun) -> Vec<ParamDiagnostics> {
 }
 
 /// Sentences for a scientist about anything doubtful in a run: divergent
-/// trajectories, R-hat above 1.01, bulk ESS below 400, and trajectories cut
-/// at the maximum tree depth. `names` labels the parameters of the run in
-/// order; an empty list means the run looks sound.
-pub fn run_warnings(run: &NutsRun, names: &[String], max_depth: u32) -> Vec<String> {
+/// trajectories, parameters that never moved, R-hat above 1.01, bulk or
+/// tail ESS below 400, and trajectories cut at the maximum tree depth.
+/// `names` labels the parameters and `diagnostics` holds their diagnostics
+/// on the scale the parameter table shows, both in parameter order; an
+/// empty list means the run looks sound.
+pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnostics], max_depth: u32) -> Vec<String> {
     let total: usize = run.draws.iter().map(Vec::len).sum();
     let mut out = Vec::new();
     let divergent: usize = run.divergences.iter().sum();
@@ -254,25 +269,8 @@ pub fn run_warnings(run: &NutsRun, names: &[String], max_depth: u32) -> Vec<Stri
         ));
     }
     let label = |p: usize| names.get(p).cloned().unwrap_or_else(|| format!("parameter {}", p + 1));
-    for (p, d) in diagnose_run(run).iter().enumerate() {
-        if d.rhat > RHAT_LIMIT {
-            out.push(format!(
-                "R-hat of {} is {:.3}, above {RHAT_LIMIT}: the chains disagree about it, so they \
-                 have not settled on one posterior. Look at its trace for a chain stuck apart, \
-                 and run longer warm-up and more draws.",
-                label(p),
-                d.rhat
-            ));
-        }
-        if d.ess_bulk < ESS_BULK_LIMIT {
-            out.push(format!(
-                "Bulk ESS of {} is {:.0}, below {ESS_BULK_LIMIT:.0}: its mean and central \
-                 interval rest on few effectively independent draws and carry extra Monte Carlo \
-                 error. Run more draws, or simplify the model if the chains move slowly.",
-                label(p),
-                d.ess_bulk
-            ));
-        }
+    for (p, d) in diagnostics.iter().enumerate() {
+        out.extend(parameter_warnings(&label(p), d));
     }
     let hits: usize = run.depth_hits.iter().sum();
     if hits > 0 {
@@ -281,6 +279,43 @@ pub fn run_warnings(run: &NutsRun, names: &[String], max_depth: u32) -> Vec<Stri
              trajectories were cut short, which costs efficiency rather than correctness. Raise \
              the maximum tree depth, or put the predictors on a scale near 1.",
             chains_phrase(&run.depth_hits)
+        ));
+    }
+    out
+}
+
+/// The warnings about one parameter's diagnostics (its label given).
+pub fn parameter_warnings(label: &str, d: &ParamDiagnostics) -> Vec<String> {
+    if d.rhat.is_nan() && d.ess_bulk.is_nan() {
+        return vec![format!(
+            "Every draw of {label} is the same value: the sampler never moved it, so neither R-hat \
+             nor ESS can be computed and its summary is not a posterior. Check the model for a \
+             parameter the data and priors do not constrain, and the starting point."
+        )];
+    }
+    let mut out = Vec::new();
+    if d.rhat > RHAT_LIMIT {
+        out.push(format!(
+            "R-hat of {label} is {:.3}, above {RHAT_LIMIT}: the chains disagree about it, so they \
+             have not settled on one posterior. Look at its trace for a chain stuck apart, \
+             and run longer warm-up and more draws.",
+            d.rhat
+        ));
+    }
+    if d.ess_bulk < ESS_BULK_LIMIT {
+        out.push(format!(
+            "Bulk ESS of {label} is {:.0}, below {ESS_BULK_LIMIT:.0}: its mean and central \
+             interval rest on few effectively independent draws and carry extra Monte Carlo \
+             error. Run more draws, or simplify the model if the chains move slowly.",
+            d.ess_bulk
+        ));
+    }
+    if d.ess_tail < ESS_TAIL_LIMIT {
+        out.push(format!(
+            "Tail ESS of {label} is {:.0}, below {ESS_TAIL_LIMIT:.0}: the ends of its interval \
+             are tail quantiles and rest on few effectively independent draws there. Run more \
+             draws before reading the interval's ends.",
+            d.ess_tail
         ));
     }
     out

@@ -10,6 +10,7 @@ use std::sync::atomic::AtomicBool;
 use crate::draws::Draws;
 use crate::infer::diagnostics::{diagnose, run_warnings, ParamDiagnostics};
 use crate::infer::laplace::{laplace_with_cancel, InferError};
+use crate::infer::normal_exact::normal_exact_draws;
 use crate::infer::nuts::{sample_nuts, Init, NutsError, NutsSettings, Progress};
 use crate::limits::{bytes_for, check_memory};
 use crate::model::Model;
@@ -22,7 +23,9 @@ pub const LAPLACE_DRAWS: usize = 4000;
 /// How to fit.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Method {
-    /// Normal approximation at the posterior mode.
+    /// Normal approximation at the posterior mode; exact draws instead
+    /// for a normal model with normal coefficient priors
+    /// ([`crate::infer::normal_exact`]).
     Laplace { draws: usize, seed: u64 },
     /// The No-U-Turn sampler.
     Nuts(NutsSettings),
@@ -32,7 +35,10 @@ impl Method {
     /// The method's name and its settings, as printed with a fit.
     pub fn describe(&self) -> String {
         match self {
-            Method::Laplace { draws, seed } => format!("Laplace approximation, {draws} draws, seed {seed}"),
+            Method::Laplace { draws, seed } => format!(
+                "Laplace approximation (exact for a normal outcome with normal coefficient priors: the spread's \
+                 marginal on a grid, the coefficients drawn given it), {draws} draws, seed {seed}"
+            ),
             Method::Nuts(s) => format!(
                 "NUTS, {} chains × ({} warm-up + {} draws), target acceptance {}, max tree depth {}, seed {}",
                 s.chains, s.warmup, s.draws, s.target_accept, s.max_depth, s.seed
@@ -93,23 +99,35 @@ pub fn fit_model(
     check_fit_memory(model, method).map_err(FitError::TooLarge)?;
     let started = std::time::Instant::now();
     let names = model.parameter_names();
-    let (chains, diagnostics, divergences, warnings) = match method {
-        Method::Laplace { draws, seed } => {
-            let fit = laplace_with_cancel(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed, cancel)?;
-            (vec![fit.draws], None, 0, Vec::new())
-        }
+    let (run, max_depth) = match method {
+        Method::Laplace { draws, seed } => match model.normal_linear().and_then(|p| normal_exact_draws(&p, *draws, *seed)) {
+            Some(exact) => (Err(exact), 0),
+            None => {
+                let fit = laplace_with_cancel(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed, cancel)?;
+                (Err(fit.draws), 0)
+            }
+        },
         Method::Nuts(settings) => {
-            let init = Init::Given(jittered_starts(&model.initial_point(), settings.chains, settings.seed));
-            let run = sample_nuts(model, &init, settings, cancel, progress)?;
-            let warnings = run_warnings(&run, &names, settings.max_depth);
-            let divergences = run.divergences.iter().sum();
-            (run.draws, Some(()), divergences, warnings)
+            let init = Init::Given(dispersed_starts(model, settings.chains, settings.seed));
+            (Ok(sample_nuts(model, &init, settings, cancel, progress)?), settings.max_depth)
         }
+    };
+    let chains = match &run {
+        Ok(run) => &run.draws,
+        Err(draws) => std::slice::from_ref(draws),
     };
     let constrained: Vec<Vec<Vec<f64>>> =
         chains.iter().map(|chain| chain.iter().map(|theta| model.constrain(theta)).collect()).collect();
-    let draws = Draws::from_chains(names, constrained).map_err(|e| FitError::Draws(e.to_string()))?;
-    let diagnostics = diagnostics.map(|()| per_parameter_diagnostics(&draws));
+    let draws = Draws::from_chains(names.clone(), constrained).map_err(|e| FitError::Draws(e.to_string()))?;
+    let (diagnostics, divergences, warnings) = match &run {
+        Err(_) => (None, 0, Vec::new()),
+        Ok(run) => {
+            // Diagnostics and warnings on one scale: the constrained draws the table shows.
+            let diagnostics = per_parameter_diagnostics(&draws);
+            let warnings = run_warnings(run, &names, &diagnostics, max_depth);
+            (Some(diagnostics), run.divergences.iter().sum(), warnings)
+        }
+    };
     Ok(Fit {
         method: method.clone(),
         draws,
@@ -139,14 +157,47 @@ fn check_fit_memory(model: &Model, method: &Method) -> Result<(), String> {
     check_memory(&what, bytes)
 }
 
-/// One start per chain: the model's own start plus a small seeded jitter,
-/// so the chains do not begin identical (R-hat then means something).
-fn jittered_starts(start: &[f64], chains: usize, seed: u64) -> Vec<Vec<f64>> {
+/// One start per chain, spread out so that R-hat can see chains that
+/// settle apart (Vehtari et al. 2021, §2: starting points should be
+/// dispersed relative to the target).
+///
+/// Waypath's scheme: with `C` chains, each unconstrained coordinate takes
+/// the `C` stratified standard scores `Φ⁻¹((c + ½)/C)`, dealt to the chains
+/// in a seeded random order (a different order per coordinate, so the
+/// starts do not all lie on one diagonal); [`Model::dispersed_point`] turns
+/// the scores into a point, one prior typical distance per unit. One chain
+/// starts near the model's own starting point.
+fn dispersed_starts(model: &Model, chains: usize, seed: u64) -> Vec<Vec<f64>> {
+    let scores = stratified_scores(model.initial_point().len(), chains, seed);
+    scores.iter().map(|z| model.dispersed_point(z)).collect()
+}
+
+/// Seeded jitter added to every score, so that no start (one chain's start
+/// in particular) sits exactly on a symmetric point where a gradient
+/// component is exactly zero, which the sampler refuses as a start.
+const JITTER: f64 = 0.05;
+
+/// `chains` rows of `dim` standard scores: each column holds the stratified
+/// scores `Φ⁻¹((c + ½)/chains)` in a seeded random order, plus a small
+/// seeded jitter ([`JITTER`]).
+pub fn stratified_scores(dim: usize, chains: usize, seed: u64) -> Vec<Vec<f64>> {
+    use rand::seq::SliceRandom;
     use rand::SeedableRng;
     use rand_distr::{Distribution, Normal};
+    use statrs::distribution::ContinuousCDF;
+    let normal = statrs::distribution::Normal::standard();
+    let strata: Vec<f64> = (0..chains).map(|c| normal.inverse_cdf((c as f64 + 0.5) / chains as f64)).collect();
     let mut rng = rand::rngs::StdRng::seed_from_u64(seed ^ 0x5EED_57A7);
-    let jitter = Normal::new(0.0, 0.1).expect("fixed, valid sd");
-    (0..chains).map(|_| start.iter().map(|x| x + jitter.sample(&mut rng)).collect()).collect()
+    let jitter = Normal::new(0.0, JITTER).expect("fixed, valid sd");
+    let mut rows = vec![vec![0.0; dim]; chains];
+    for j in 0..dim {
+        let mut column = strata.clone();
+        column.shuffle(&mut rng);
+        for (row, z) in rows.iter_mut().zip(column) {
+            row[j] = z + jitter.sample(&mut rng);
+        }
+    }
+    rows
 }
 
 fn per_parameter_diagnostics(draws: &Draws) -> Vec<ParamDiagnostics> {

@@ -4,7 +4,8 @@
 //! unconstrained scale, never a model's terms or data, so any density
 //! (a regression, a joint model, a test target) can be fitted the same way.
 //! [`laplace`] approximates the posterior by a normal distribution at its
-//! mode; [`nuts`] runs several chains of the No-U-Turn sampler in parallel;
+//! mode ([`normal_exact`] replaces it with exact draws for a normal model
+//! whose coefficient priors are normal); [`nuts`] runs several chains of the No-U-Turn sampler in parallel;
 //! [`diagnostics`] judges those chains (rank-normalised split R-hat, bulk and
 //! tail effective sample size) and words the warnings a scientist reads
 //! after a fit.
@@ -12,4 +13,5 @@
 pub mod diagnostics;
 pub mod fit;
 pub mod laplace;
+pub mod normal_exact;
 pub mod nuts;

@@ -11,7 +11,7 @@ use nalgebra::DMatrix;
 
 use crate::table::Table;
 
-use super::defaults::{assign_priors, predictor_blocks, PredictorBlock};
+use super::defaults::{assign_priors, predictor_blocks, ColumnSpread, PredictorBlock};
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
@@ -44,12 +44,26 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
     let blocks = predictor_blocks(spec, &outcome);
-    let priors = assign_priors(spec, &recipes, &outcome, &blocks)?;
     let design = design_matrix(&recipes, table)?;
+    let columns = column_spread(&design);
+    let priors = assign_priors(spec, &recipes, &outcome, &blocks, &columns)?;
     let term_labels: Vec<String> = recipes.iter().flat_map(TermRecipe::labels).collect();
     let labels: Vec<String> =
         blocks.iter().flat_map(|b| term_labels.iter().map(move |l| format!("{}{l}", b.prefix))).collect();
     let intercepts = intercept_columns(&recipes);
+    if priors.at_average_row.iter().any(|&a| a) {
+        notes.push(
+            "default intercept priors are on the prediction at the average row (every other design column at its \
+             mean), so they mean the same whatever the centring"
+                .into(),
+        );
+    }
+    let average_row: Vec<f64> = (0..priors.coefficients.len())
+        .map(|j| {
+            let column = j % design.ncols().max(1);
+            if intercepts.contains(&column) { 0.0 } else { columns.mean[column] }
+        })
+        .collect();
     let start = starting_point(&blocks, &outcome, &priors.coefficients, priors.spread.as_ref(), &intercepts);
     let likelihood = match (priors.spread.clone(), &outcome.levels) {
         (Some(spread_prior), _) => {
@@ -73,11 +87,19 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         design,
         y: outcome.y,
         coefficient_priors: priors.coefficients,
+        at_average_row: priors.at_average_row,
+        average_row,
         likelihood,
         priors_used: priors.uses,
         notes,
         start,
     })
+}
+
+/// The sd and mean of every design column over the fitted rows.
+fn column_spread(design: &DMatrix<f64>) -> ColumnSpread {
+    let (mean, sd) = (0..design.ncols()).map(|j| mean_and_sd(design.column(j).as_slice())).unzip();
+    ColumnSpread { sd, mean }
 }
 
 /// `spec`, with the levels family when the outcome is a category and no

@@ -1,32 +1,48 @@
 //! Assigning a prior to every parameter: the declared prior of its group, or
-//! a weakly informative default on the data's own scale.
+//! Waypath's default, derived from one principle.
 //!
-//! Defaults (`s_y` the outcome's sd, `s_x` a predictor's sd):
-//! * normal family — intercepts `normal(ȳ, 2·s_y)`; slopes
-//!   `normal(0, 2·s_y/s_x)` (in a one-predictor regression the slope is at
-//!   most `s_y/s_x` in size, since |correlation| ≤ 1; twice that leaves room
-//!   for predictors acting together); spline weights and level offsets
-//!   `normal(0, 2·s_y)`; spread `exponential(1/s_y)` (prior mean `s_y`).
-//! * logit and log links — intercepts `normal(link(ȳ), 2)` on the link
-//!   scale; slopes `normal(0, 2/s_x)`; weights and offsets `normal(0, 2)`.
-//! * levels family (softmax link) — as the logit link, once per level after
-//!   the first, with the intercepts of level k centred at
-//!   `log(share_k / share_reference)`, the log odds of the level's share in
-//!   the data (shares below 0.001 count as 0.001).
+//! **The shared budget.** Before the data speak, the part of the linear
+//! predictor that varies from row to row (every non-intercept design column
+//! times its coefficient) should vary across the fitted rows by about one
+//! *target* `T` on the link scale — no more than the outcome itself varies —
+//! and the predictors share that budget: with `K` non-intercept columns,
+//! column `j` (sd `s_j` over the rows) gets `normal(0, T / (s_j·√K))`, so
+//! the prior variance of the varying part, summed over independent columns,
+//! is `T²` whatever `K`. Targets: the outcome's sd `s_y` for a normal
+//! outcome; 1.5 on the log-odds scale for logit and softmax links (about
+//! 0.05 to 0.95 for ±2 targets around a share of one half); 1 on the log
+//! scale for a log link (rates within a factor of about e² ≈ 7.4).
+//!
+//! **Intercepts** get `normal(centre, T)` where the centre is the outcome's
+//! mean on the link scale (for the levels family, the log odds of each
+//! level's share against the reference, shares below 0.001 counting as
+//! 0.001). The prior is placed on the prediction *at the average row* —
+//! the intercept plus every other column at its mean times its coefficient —
+//! not on the raw intercept, so it means the same whatever the centring
+//! (`centre off`, splines and polynomials whose columns do not average 0).
+//! That shift is linear with unit diagonal, so it adds no Jacobian term.
+//! With a category term's per-level intercepts each level's intercept has
+//! its own `normal(centre, T)`, so the levels may differ by about √2·`T` on
+//! top of the slopes' budget.
+//!
+//! **Spread** (normal family): `half_normal(s_y)`: with no predictor at all
+//! the spread is `s_y`; the prior keeps it below about 2·`s_y`.
 //!
 //! Every assignment is recorded as a [`PriorUse`] so fit output can list
-//! the priors actually used.
+//! the priors actually used and who set them.
 
 use super::error::ModelError;
 use super::family::softmax::level_prefix;
 use super::family::Family;
 use super::outcome::OutcomeValues;
-use super::prior::{Prior, PriorGroup};
+use super::prior::{short_number, Prior, PriorGroup};
 use super::spec::ModelSpec;
 use super::terms::recipe::{mean_and_sd, TermRecipe};
 
-/// Width of default priors in units of the data's scale.
-const DEFAULT_WIDTH: f64 = 2.0;
+/// The shared budget's target on the log-odds scale (logit and softmax links).
+const LOG_ODDS_TARGET: f64 = 1.5;
+/// The shared budget's target on the log scale (log link).
+const LOG_TARGET: f64 = 1.0;
 
 /// One prior as used by a built model, for listing in output.
 #[derive(Debug, Clone, PartialEq)]
@@ -37,12 +53,18 @@ pub struct PriorUse {
     pub prior: Prior,
     /// `true` if declared in the cell, `false` for a default.
     pub declared: bool,
+    /// `true` for a default intercept prior placed on the prediction at the
+    /// average row rather than on the raw intercept.
+    pub at_average_row: bool,
 }
 
 /// Priors of every coefficient, of the spread (normal family), and the list
 /// of uses for output.
 pub struct PriorPlan {
     pub coefficients: Vec<Prior>,
+    /// Per coefficient: whether its prior is on the prediction at the
+    /// average row (default intercepts) rather than on the coefficient.
+    pub at_average_row: Vec<bool>,
     pub spread: Option<Prior>,
     pub uses: Vec<PriorUse>,
 }
@@ -73,79 +95,100 @@ pub fn predictor_blocks(spec: &ModelSpec, outcome: &OutcomeValues) -> Vec<Predic
                 })
                 .collect()
         }
-        None => vec![PredictorBlock { prefix: String::new(), centre: OutcomeScale::new(&spec.family, outcome).centre }],
+        None => vec![PredictorBlock { prefix: String::new(), centre: outcome_centre(&spec.family, outcome) }],
     }
 }
 
+/// The sd and mean of every design column over the fitted rows.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ColumnSpread {
+    pub sd: Vec<f64>,
+    pub mean: Vec<f64>,
+}
+
 /// Assign priors to the coefficients of `recipes` in each linear
-/// predictor of `blocks` (and the spread).
+/// predictor of `blocks` (and the spread); `columns` describes the design.
 pub fn assign_priors(
     spec: &ModelSpec,
     recipes: &[TermRecipe],
     outcome: &OutcomeValues,
     blocks: &[PredictorBlock],
+    columns: &ColumnSpread,
 ) -> Result<PriorPlan, ModelError> {
     check_declared(spec, recipes)?;
-    let scale = OutcomeScale::new(&spec.family, outcome);
-    let mut plan = PriorPlan { coefficients: Vec::new(), spread: None, uses: Vec::new() };
+    let target = budget_target(&spec.family, outcome);
+    let intercepts = super::build::intercept_columns(recipes);
+    let varying = columns.sd.len() - intercepts.len();
+    let mut plan = PriorPlan { coefficients: Vec::new(), at_average_row: Vec::new(), spread: None, uses: Vec::new() };
     for block in blocks {
-        let block_scale = OutcomeScale { centre: block.centre, spread: scale.spread };
+        let mut column = 0;
         for recipe in recipes {
             let labels: Vec<String> = recipe.labels().iter().map(|l| format!("{}{l}", block.prefix)).collect();
             let group = recipe.group();
+            let intercept = matches!(recipe, TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. });
+            let width = labels.len();
             match spec.declared_prior(group) {
                 Some(prior) => {
-                    plan.coefficients.extend(std::iter::repeat_n(prior.clone(), labels.len()));
-                    plan.uses.push(PriorUse { group, parameters: labels, prior: prior.clone(), declared: true });
+                    plan.coefficients.extend(std::iter::repeat_n(prior.clone(), width));
+                    plan.at_average_row.extend(std::iter::repeat_n(false, width));
+                    plan.uses.push(PriorUse { group, parameters: labels, prior: prior.clone(), declared: true, at_average_row: false });
                 }
                 None => {
-                    for (label, column_scale) in labels.into_iter().zip(recipe.scales()) {
-                        let prior = block_scale.default_for(recipe, column_scale);
+                    for (k, label) in labels.into_iter().enumerate() {
+                        let prior = if intercept {
+                            Prior::Normal { mean: block.centre, sd: target }
+                        } else {
+                            Prior::Normal { mean: 0.0, sd: share_of_budget(target, columns.sd[column + k], varying) }
+                        };
                         plan.coefficients.push(prior.clone());
-                        plan.uses.push(PriorUse { group, parameters: vec![label], prior, declared: false });
+                        plan.at_average_row.push(intercept);
+                        plan.uses.push(PriorUse { group, parameters: vec![label], prior, declared: false, at_average_row: intercept });
                     }
                 }
             }
+            column += width;
         }
     }
     if spec.family.has_spread() {
         let declared = spec.declared_prior(PriorGroup::Spread);
-        let prior = declared.cloned().unwrap_or(Prior::Exponential { rate: 1.0 / scale.spread });
+        let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target });
         plan.uses.push(PriorUse {
             group: PriorGroup::Spread,
             parameters: vec!["spread".into()],
             prior: prior.clone(),
             declared: declared.is_some(),
+            at_average_row: false,
         });
         plan.spread = Some(prior);
     }
     Ok(plan)
 }
 
-/// The data's scale on the link scale: a centre for intercepts and a spread.
-struct OutcomeScale {
-    centre: f64,
-    spread: f64,
+/// The outcome's mean on the link scale: the centre of intercept priors.
+fn outcome_centre(family: &Family, outcome: &OutcomeValues) -> f64 {
+    match family {
+        Family::Normal => mean_and_sd(&outcome.y).0,
+        _ => family.link(outcome.mean_per_trial()),
+    }
 }
 
-impl OutcomeScale {
-    fn new(family: &Family, outcome: &OutcomeValues) -> Self {
-        match family {
-            Family::Normal => {
-                let (mean, sd) = mean_and_sd(&outcome.y);
-                OutcomeScale { centre: mean, spread: sd }
-            }
-            _ => OutcomeScale { centre: family.link(outcome.mean_per_trial()), spread: 1.0 },
+/// The shared budget's target `T` on the link scale (module docs).
+fn budget_target(family: &Family, outcome: &OutcomeValues) -> f64 {
+    match family {
+        Family::Normal => {
+            let sd = mean_and_sd(&outcome.y).1;
+            if sd.is_finite() && sd > 0.0 { sd } else { 1.0 }
         }
+        Family::Poisson => LOG_TARGET,
+        _ => LOG_ODDS_TARGET,
     }
+}
 
-    fn default_for(&self, recipe: &TermRecipe, column_scale: f64) -> Prior {
-        let width = DEFAULT_WIDTH * self.spread;
-        match recipe {
-            TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. } => Prior::Normal { mean: self.centre, sd: width },
-            _ => Prior::Normal { mean: 0.0, sd: width / column_scale },
-        }
-    }
+/// One column's prior sd: its share `T/√K` of the budget, per unit of the
+/// column (a column that never varies counts as sd 1).
+fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
+    let sd = if column_sd.is_finite() && column_sd > 0.0 { column_sd } else { 1.0 };
+    target / (sd * (varying.max(1) as f64).sqrt())
 }
 
 /// Declared priors must suit their group, and the group must exist.
@@ -160,15 +203,29 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelE
         if !present {
             return problem(format!("this model has no {}; remove the prior line", group.name()));
         }
+        if let Prior::Uniform { lower, upper } = prior {
+            // A flat prior with hard ends puts a cliff in the density at each
+            // end: NUTS diverges there and a normal approximation is poor near it.
+            let instead = if group.is_positive() {
+                format!("half_normal({}) or lognormal", short_number(*upper / 2.0))
+            } else {
+                format!("normal({}, {})", short_number((lower + upper) / 2.0), short_number((upper - lower) / 4.0))
+            };
+            return problem(format!(
+                "{prior} stops the {} at hard ends, where sampling fails and approximations are poor; \
+                 use a prior without ends such as {instead}",
+                group.name()
+            ));
+        }
         if group.is_positive() && prior.allows_negative() {
             return problem(format!(
-                "{prior} allows negative values but the spread is positive; use exponential, half_normal, \
-                 lognormal or uniform with a lower end ≥ 0"
+                "{prior} allows negative values but the spread is positive; use exponential, half_normal \
+                 or lognormal"
             ));
         }
         if !group.is_positive() && prior.is_positive_only() {
             return problem(format!(
-                "{prior} allows only positive values but {} can be negative; use normal, student_t or uniform",
+                "{prior} allows only positive values but {} can be negative; use normal or student_t",
                 group.name()
             ));
         }

@@ -42,6 +42,7 @@
 
 mod build;
 mod columns;
+mod conjugate;
 mod defaults;
 mod density;
 pub mod guards;
@@ -56,6 +57,7 @@ pub mod spec;
 pub mod spline;
 pub mod terms;
 
+pub use conjugate::NormalLinear;
 pub use defaults::PriorUse;
 pub use density::LogDensity;
 pub use error::ModelError;

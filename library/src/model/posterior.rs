@@ -45,6 +45,12 @@ pub struct Model {
     pub(crate) design: DMatrix<f64>,
     pub(crate) y: Vec<f64>,
     pub(crate) coefficient_priors: Vec<Prior>,
+    /// Per coefficient: whether its prior is on the prediction at the
+    /// average row (default intercepts, see `model::defaults`).
+    pub(crate) at_average_row: Vec<bool>,
+    /// Per coefficient: its column's mean over the fitted rows (0 for
+    /// intercept columns), the weights of that prediction.
+    pub(crate) average_row: Vec<f64>,
     pub(crate) likelihood: Likelihood,
     pub(crate) priors_used: Vec<PriorUse>,
     pub(crate) notes: Vec<String>,
@@ -140,6 +146,39 @@ impl Model {
         self.start.clone()
     }
 
+    /// A starting point moved away from [`Model::initial_point`] by `z`
+    /// (one standard score per unconstrained coordinate): each coefficient
+    /// by `z` times its prior's typical distance — an intercept priced at
+    /// the average row keeps that row's prediction at `centre + z·distance`
+    /// whatever the slopes do — and `log(spread)` by `z` itself. A
+    /// coordinate that would leave its prior's support stays at the start.
+    pub fn dispersed_point(&self, z: &[f64]) -> Vec<f64> {
+        let p = self.labels.len();
+        let mut values: Vec<f64> = self.start[..p].to_vec();
+        let width = self.design.ncols().max(1);
+        for block in 0..p / width {
+            let at = block * width;
+            let shift = self.average_row_shift(&self.start[at..at + width], at);
+            for (value, &anchored) in values[at..at + width].iter_mut().zip(&self.at_average_row[at..at + width]) {
+                if anchored {
+                    *value += shift;
+                }
+            }
+        }
+        for (j, value) in values.iter_mut().enumerate() {
+            let prior = &self.coefficient_priors[j];
+            let moved = *value + z.get(j).copied().unwrap_or(0.0) * prior.typical_distance();
+            if prior.contains(moved) {
+                *value = moved;
+            }
+        }
+        let mut point = self.from_prior_values(values);
+        if self.has_spread() {
+            point.push(self.start[p] + z.get(p).copied().unwrap_or(0.0));
+        }
+        point
+    }
+
     /// Every prior in use, declared or default, for printing.
     pub fn priors_used(&self) -> &[PriorUse] {
         &self.priors_used
@@ -198,14 +237,55 @@ impl Model {
     }
 
     /// Log prior of the coefficients, writing its gradient into `grad`.
+    ///
+    /// A prior marked `at_average_row` is evaluated at the intercept plus
+    /// the block's other coefficients times their column means; its
+    /// derivative then also reaches those coefficients.
     fn log_prior_of_coefficients(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
+        let width = self.design.ncols().max(1);
         let mut total = 0.0;
-        for ((prior, &b), g) in self.coefficient_priors.iter().zip(beta).zip(grad.iter_mut()) {
-            let (lp, d) = prior.log_density_and_derivative(b);
-            total += lp;
-            *g = d;
+        grad.iter_mut().for_each(|g| *g = 0.0);
+        for (block, (betas, grads)) in beta.chunks(width).zip(grad.chunks_mut(width)).enumerate() {
+            let at = block * width;
+            let shift = self.average_row_shift(betas, at);
+            for (k, &b) in betas.iter().enumerate() {
+                let anchored = self.at_average_row[at + k];
+                let (lp, d) = self.coefficient_priors[at + k].log_density_and_derivative(if anchored { b + shift } else { b });
+                total += lp;
+                grads[k] += d;
+                if anchored {
+                    for (m, g) in self.average_row[at..at + betas.len()].iter().zip(grads.iter_mut()) {
+                        *g += d * m;
+                    }
+                }
+            }
         }
         total
+    }
+
+    /// Σ βⱼ·mean(column j) over one block's non-intercept columns, the
+    /// block's coefficients starting at index `at`.
+    fn average_row_shift(&self, betas: &[f64], at: usize) -> f64 {
+        betas.iter().zip(&self.average_row[at..]).map(|(b, m)| b * m).sum()
+    }
+
+    /// Constrained parameters from values drawn independently from the
+    /// priors as listed (`priors_used`): an intercept drawn from a prior at
+    /// the average row becomes the raw intercept by subtracting the block's
+    /// shift. Prior predictive checks and calibration draw through this.
+    pub fn from_prior_values(&self, mut values: Vec<f64>) -> Vec<f64> {
+        let width = self.design.ncols().max(1);
+        let p = self.labels.len();
+        for block in 0..p / width {
+            let at = block * width;
+            let shift = self.average_row_shift(&values[at..at + width], at);
+            for (value, &anchored) in values[at..at + width].iter_mut().zip(&self.at_average_row[at..at + width]) {
+                if anchored {
+                    *value -= shift;
+                }
+            }
+        }
+        values
     }
 }
 

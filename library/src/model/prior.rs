@@ -143,6 +143,19 @@ impl Prior {
         }
     }
 
+    /// A typical distance of a draw from [`Prior::central_point`]: the sd or
+    /// scale where the prior has one, a quarter of a uniform's width.
+    /// Chains start this many units apart (see `infer::fit`).
+    pub fn typical_distance(&self) -> f64 {
+        match *self {
+            Prior::Normal { sd, .. } | Prior::HalfNormal { sd } => sd,
+            Prior::StudentT { scale, .. } => scale,
+            Prior::Exponential { rate } => 1.0 / rate,
+            Prior::LogNormal { log_mean, log_sd } => log_mean.exp() * log_sd,
+            Prior::Uniform { lower, upper } => 0.25 * (upper - lower),
+        }
+    }
+
     /// Whether `x` is in the prior's support.
     pub fn contains(&self, x: f64) -> bool {
         self.log_density_and_derivative(x).0 > f64::NEG_INFINITY

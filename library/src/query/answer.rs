@@ -11,7 +11,11 @@
 //! estimand a simulated intervention also targets: every level against the
 //! first for a category exposure, one unit above the mean against the mean
 //! for a numeric one. When the graph says the effect is not identifiable,
-//! nothing is fitted and the answer says why.
+//! nothing is fitted and the answer says why. When the graph itself says the
+//! effect is zero (no directed path, or no edge for a direct effect), that is
+//! the answer: nothing is fitted unless the caller asks to check the zero,
+//! which then fits the model given the first set that blocks the backdoor
+//! (or other) paths — never an unadjusted association.
 
 use std::sync::atomic::AtomicBool;
 
@@ -42,6 +46,8 @@ pub struct EffectAnswer {
     pub model_text: Option<String>,
     /// Why the set: the criterion and every path with its status given the set.
     pub why: Vec<String>,
+    /// What the contrasts estimate, in words.
+    pub estimand: Option<String>,
     /// One contrast per comparison made.
     pub contrasts: Vec<Contrast>,
     /// The fit's method in words.
@@ -69,10 +75,20 @@ pub fn answer_effect(
     cancel: &AtomicBool,
     mass: f64,
 ) -> Result<EffectAnswer, QueryError> {
-    answer_effect_with_progress(graph, table, exposure, outcome, kind, method, cancel, mass, &|_| {})
+    answer_effect_with_progress(graph, table, exposure, outcome, kind, &AskOptions::default(), method, cancel, mass, &|_| {})
 }
 
-/// [`answer_effect`], reporting the sampler's progress to `progress`.
+/// What a question may ask beyond the defaults.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct AskOptions {
+    /// Fit a model even where the graph says the effect is zero.
+    pub check_zero: bool,
+    /// For a direct effect: nodes of the set held at stated values in every
+    /// row, `(name, value)` — the controlled direct effect at those values.
+    pub held: Vec<(String, String)>,
+}
+
+/// [`answer_effect`] with `options`, reporting the sampler's progress to `progress`.
 #[allow(clippy::too_many_arguments)]
 pub fn answer_effect_with_progress(
     graph: &Graph,
@@ -80,6 +96,7 @@ pub fn answer_effect_with_progress(
     exposure: &str,
     outcome: &str,
     kind: EffectKind,
+    options: &AskOptions,
     method: &Method,
     cancel: &AtomicBool,
     mass: f64,
@@ -100,12 +117,20 @@ pub fn answer_effect_with_progress(
         adjustment_set: None,
         model_text: None,
         why: vec![identification.reason.clone()],
+        estimand: None,
         contrasts: Vec::new(),
         method: None,
         warnings: Vec::new(),
         model: None,
         fit: None,
     };
+    if identification.zero_by_graph && !options.check_zero {
+        answer.why.push(format!(
+            "the graph says this effect is zero, so nothing was fitted; add `checking zero` to the statement to estimate it{}",
+            if identification.adjustment_sets.is_empty() { " (no set of observed nodes allows that here)" } else { " given the first set listed" }
+        ));
+        return Ok(answer);
+    }
     let Some(set) = identification.adjustment_sets.first().filter(|_| identification.identifiable) else {
         if identification.identifiable {
             answer.why.push("no set of observed nodes lets the data check the graph's claim, so nothing was fitted".into());
@@ -118,6 +143,7 @@ pub fn answer_effect_with_progress(
     for name in std::iter::once(exposure).chain(std::iter::once(outcome)).chain(set.iter().map(String::as_str)) {
         require_column(table, name, &place)?;
     }
+    check_held(kind, set, &options.held, &place)?;
     answer.why.extend(set_reasons(graph, exposure, outcome, set, &identification)?);
     let family = family_for(table, outcome, &place)?;
     let mut terms = vec![exposure.to_string()];
@@ -139,7 +165,8 @@ pub fn answer_effect_with_progress(
             set.join(", ")
         ));
     }
-    answer.contrasts = comparisons(table, exposure, mass)?
+    answer.estimand = Some(estimand(kind, &family, set, &options.held));
+    answer.contrasts = comparisons(table, exposure, mass, &options.held)?
         .iter()
         .map(|request| contrast(&model, &fit.draws, table, request))
         .collect::<Result<_, _>>()?;
@@ -149,6 +176,61 @@ pub fn answer_effect_with_progress(
     answer.model = Some(model);
     answer.fit = Some(fit);
     Ok(answer)
+}
+
+/// `at …` holds members of a direct effect's conditioning set only.
+fn check_held(kind: EffectKind, set: &[String], held: &[(String, String)], place: &str) -> Result<(), QueryError> {
+    if held.is_empty() {
+        return Ok(());
+    }
+    if kind == EffectKind::Total {
+        return Err(QueryError::request(format!(
+            "{place}: `at` holds mediators fixed, which a total effect does not do; ask the direct effect with `at`"
+        )));
+    }
+    match held.iter().find(|(name, _)| !set.contains(name)) {
+        Some((name, _)) => Err(QueryError::request(format!(
+            "{place}: {name} is not in the set conditioned on ({}), so it cannot be held; hold one of those",
+            if set.is_empty() { "nothing".to_string() } else { set.join(", ") }
+        ))),
+        None => Ok(()),
+    }
+}
+
+/// What the answer's contrasts estimate, in words.
+///
+/// A total effect standardised over the rows is the average total effect
+/// on the outcome's mean (the g-formula by standardisation). A direct
+/// effect averaged over rows holds the conditioning set at each row's
+/// observed values: on an identity link with additive terms that equals
+/// the controlled direct effect at any mediator value, but under a logit or
+/// log link it is an average of controlled direct effects over the observed
+/// mediator values — neither the controlled direct effect at one value nor
+/// a natural direct effect. `at m v` sets m to v in every row, which gives
+/// the controlled direct effect at that value (averaged over the rest).
+pub fn estimand(kind: EffectKind, family: &Family, set: &[String], held: &[(String, String)]) -> String {
+    let others = || if set.is_empty() { "no other node".to_string() } else { set.join(", ") };
+    match kind {
+        EffectKind::Total => format!("average total effect on the mean outcome, standardised over the rows' {}", others()),
+        EffectKind::Direct if !held.is_empty() => {
+            let at: Vec<String> = held.iter().map(|(n, v)| format!("{n} = {v}")).collect();
+            let rest: Vec<&str> = set.iter().filter(|s| !held.iter().any(|(n, _)| n == *s)).map(String::as_str).collect();
+            let averaged = if rest.is_empty() { String::new() } else { format!(", averaged over the rows' {}", rest.join(", ")) };
+            format!("controlled direct effect with {} set in every row{averaged}", at.join(", "))
+        }
+        EffectKind::Direct if *family == Family::Normal => format!(
+            "controlled direct effect on the mean outcome: with additive terms on the identity link it is the same at \
+             every value of {}",
+            others()
+        ),
+        EffectKind::Direct => format!(
+            "average of controlled direct effects, each with {} at a row's observed values, averaged over rows; \
+             under the {} link this differs from the controlled direct effect at any one value (state values \
+             with `at NODE VALUE`) and from a natural direct effect",
+            others(),
+            family.link_name()
+        ),
+    }
 }
 
 /// The family of a model of `outcome`, from its kind.
@@ -167,9 +249,9 @@ pub(crate) fn family_for(table: &Table, outcome: &str, place: &str) -> Result<Fa
 
 /// Every level against the first for a category exposure; centre + 1 vs
 /// centre for a numeric one; each averaged over rows.
-fn comparisons(table: &Table, exposure: &str, mass: f64) -> Result<Vec<ContrastRequest>, QueryError> {
+fn comparisons(table: &Table, exposure: &str, mass: f64, held: &[(String, String)]) -> Result<Vec<ContrastRequest>, QueryError> {
     let column = require_column(table, exposure, "ask")?;
-    let base = ContrastRequest { over_rows: true, mass, ..ContrastRequest::new(exposure) };
+    let base = ContrastRequest { over_rows: true, mass, held: held.to_vec(), ..ContrastRequest::new(exposure) };
     Ok(match column.data.levels() {
         Some(levels) => levels[1..].iter().map(|l| base.clone().between(l.clone(), levels[0].clone())).collect(),
         None => vec![base],

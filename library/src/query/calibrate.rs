@@ -32,6 +32,9 @@ use super::support::{parameter_rows, stream_seed};
 const RANK_DRAWS: usize = 99;
 /// Bins of the rank histogram.
 const BINS: usize = 10;
+/// Fewest expected ranks per bin for the chi-square p-value (the usual rule
+/// for Pearson's test, e.g. Cochran 1954, recalled).
+pub const MIN_EXPECTED: f64 = 5.0;
 
 /// Ranks and the uniformity test of one parameter.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -39,9 +42,11 @@ pub struct CalibratedParameter {
     pub name: String,
     /// Rank of the true value among the posterior draws, each in `0..=draws_per_fit`.
     pub ranks: Vec<usize>,
-    /// Chi-square statistic of the binned ranks and its p-value under uniform ranks.
+    /// Chi-square statistic of the binned ranks and its p-value under
+    /// uniform ranks; the p-value is `None` when some bin expects fewer than
+    /// [`MIN_EXPECTED`] ranks, where the chi-square approximation fails.
     pub chi_square: f64,
-    pub p_value: f64,
+    pub p_value: Option<f64>,
 }
 
 /// The result of a calibration run.
@@ -101,7 +106,7 @@ pub fn calibrate_with_progress(
             slot.push(kept.iter().filter(|row| row[j] < truth[j]).count());
         }
     }
-    let parameters = names
+    let parameters: Vec<CalibratedParameter> = names
         .iter()
         .zip(ranks)
         .map(|(name, ranks)| {
@@ -114,6 +119,14 @@ pub fn calibrate_with_progress(
     )];
     if failures > 0 {
         notes.push(format!("{failures} of {reps} refits failed and were left out; the ranks of the rest may be biased"));
+    }
+    if parameters.iter().any(|p| p.p_value.is_none()) {
+        notes.push(format!(
+            "with {} replications some of the {BINS} bins expect fewer than {MIN_EXPECTED} ranks, so no chi-square \
+             p-value is computed; read the ranks, or run at least {} replications",
+            reps - failures,
+            (MIN_EXPECTED * BINS as f64).ceil() as usize + 1
+        ));
     }
     Ok(Calibration {
         model: model.name().to_string(),
@@ -130,7 +143,7 @@ pub fn calibrate_with_progress(
 
 /// One draw of every parameter from its prior, in parameter order.
 pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryError> {
-    model
+    let values: Vec<f64> = model
         .parameter_names()
         .iter()
         .map(|name| {
@@ -139,7 +152,8 @@ pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryErro
             })?;
             Ok(used.prior.sample(rng))
         })
-        .collect()
+        .collect::<Result<_, QueryError>>()?;
+    Ok(model.from_prior_values(values))
 }
 
 /// `method` with its seed replaced.
@@ -161,12 +175,13 @@ fn thinned(rows: &[Vec<f64>]) -> Vec<Vec<f64>> {
 
 /// Chi-square statistic of ranks (each in `0..=draws`) binned into [`BINS`]
 /// bins, and its p-value, with expected counts proportional to the number of
-/// rank values each bin holds.
-fn uniformity(ranks: &[usize], draws: usize) -> (f64, f64) {
+/// rank values each bin holds; no p-value when a bin expects fewer than
+/// [`MIN_EXPECTED`].
+fn uniformity(ranks: &[usize], draws: usize) -> (f64, Option<f64>) {
     let values = draws + 1;
     let bins = BINS.min(values);
     if ranks.is_empty() || bins < 2 {
-        return (f64::NAN, f64::NAN);
+        return (f64::NAN, None);
     }
     let mut observed = vec![0.0; bins];
     for &r in ranks {
@@ -179,7 +194,11 @@ fn uniformity(ranks: &[usize], draws: usize) -> (f64, f64) {
         let e = n * w / values as f64;
         (o - e) * (o - e) / e
     }).sum();
-    let p = ChiSquared::new((bins - 1) as f64).map(|d| 1.0 - d.cdf(statistic)).unwrap_or(f64::NAN);
+    let fewest = width.iter().fold(f64::INFINITY, |m, w| m.min(n * w / values as f64));
+    if fewest < MIN_EXPECTED {
+        return (statistic, None);
+    }
+    let p = ChiSquared::new((bins - 1) as f64).map(|d| 1.0 - d.cdf(statistic)).ok();
     (statistic, p)
 }
 

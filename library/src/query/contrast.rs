@@ -13,7 +13,8 @@
 //! Other predictors are either held at stated values (by default a real
 //! predictor at its table mean and a category at its first level), or the
 //! prediction is averaged over the table's rows with only the contrasted
-//! predictor changed (standardisation, `over rows`); the result says which.
+//! predictor changed (standardisation, `over rows`; stated values then set
+//! their predictor in every row); the result says which.
 //! With `on outcomes` and `over rows`, each draw uses one row picked at
 //! random, so the values describe a unit drawn from the table.
 
@@ -127,6 +128,12 @@ pub struct Contrast {
     pub from: String,
     /// "means" or "outcomes".
     pub on: String,
+    /// The scale the difference is on, in words (a per-trial probability,
+    /// a count out of each row's trials, a mean in the outcome's unit…).
+    pub scale: String,
+    /// Whether the difference is in the outcome column's own unit (false
+    /// for a probability).
+    pub in_outcome_unit: bool,
     pub mean: f64,
     pub lower: f64,
     pub upper: f64,
@@ -135,7 +142,7 @@ pub struct Contrast {
     /// Interval mass and its words.
     pub mass: f64,
     pub interval: String,
-    /// Values of the other predictors (empty when averaged over rows).
+    /// Values of the other predictors (over rows: only those stated).
     pub held: Vec<HeldValue>,
     /// How the other predictors were treated, in words.
     pub held_how: String,
@@ -202,13 +209,15 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
     let (to, from) = settings(column, request.values.as_ref(), &place, &mut notes)?;
     let params = parameter_rows(model, draws)?;
     let (base, held) = if request.over_rows {
-        (table.clone(), Vec::new())
+        held_in_every_row(table, request, &place)?
     } else {
         held_row(table, &predictors, trials_column(model), request, &place)?
     };
     let held_how = if request.over_rows {
+        let set: Vec<String> = held.iter().map(|h| format!("{} = {}", h.name, h.value)).collect();
+        let and_set = if set.is_empty() { String::new() } else { format!(" and {} set in every row", set.join(", ")) };
         format!(
-            "averaged over the {} rows of table {}, with only {} changed (standardisation)",
+            "averaged over the {} rows of table {}, with only {} changed{and_set} (standardisation)",
             table.nrows(),
             table.name,
             request.variable
@@ -243,6 +252,8 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
             On::Means => "means".into(),
             On::Outcomes { .. } => "outcomes".into(),
         },
+        scale: scale_words(model, request.on, request.over_rows),
+        in_outcome_unit: !is_probability(model, request.on),
         mean: summary.mean,
         lower: summary.lower,
         upper: summary.upper,
@@ -295,6 +306,19 @@ fn settings(
     }
 }
 
+/// The table with each stated predictor set to its value in every row
+/// (the rest keep their observed values), for averages over rows.
+fn held_in_every_row(table: &Table, request: &ContrastRequest, place: &str) -> Result<(Table, Vec<HeldValue>), QueryError> {
+    let mut base = table.clone();
+    let mut held = Vec::new();
+    for (name, text) in &request.held {
+        let setting = Setting::read(require_column(table, name, place)?, text, place)?;
+        held.push(HeldValue { name: name.clone(), value: setting.text(), source: "stated".into() });
+        base = with_column(&base, setting.column(name, table.nrows()));
+    }
+    Ok((base, held))
+}
+
 /// One row with every predictor at its held value.
 fn held_row(
     table: &Table,
@@ -325,6 +349,31 @@ fn held_row(
         columns.push(setting.column(name, 1));
     }
     Ok((Table::from_columns(table.name.clone(), columns)?, held))
+}
+
+/// The scale of a contrast of `model` on `on`, in words. A binomial model
+/// is the case where the two scales differ in kind: its mean is a per-trial
+/// probability, its outcome a count out of a number of trials.
+pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
+    let y = model.outcome_name();
+    let means = matches!(on, On::Means);
+    match (model.family(), means) {
+        (Family::Binomial { trials }, true) => format!("per-trial probability of {y} (a share of {trials})"),
+        (Family::Binomial { trials }, false) if over_rows => format!("count {y} out of each row's {trials} trials"),
+        (Family::Binomial { trials }, false) => format!("count {y} out of the held number of {trials} trials"),
+        (Family::Bernoulli, true) => format!("probability that {y} is yes"),
+        (Family::Bernoulli, false) => format!("simulated {y} as 1 (yes) or 0 (no)"),
+        (Family::Poisson, true) => format!("expected count of {y}"),
+        (Family::Poisson, false) => format!("simulated count of {y}"),
+        (_, true) => format!("mean {y}"),
+        (_, false) => format!("simulated {y}"),
+    }
+}
+
+/// Whether the contrast is on a probability scale rather than in the
+/// outcome's unit.
+fn is_probability(model: &Model, on: On) -> bool {
+    matches!(on, On::Means) && matches!(model.family(), Family::Binomial { .. } | Family::Bernoulli)
 }
 
 /// The trials column of a binomial model.

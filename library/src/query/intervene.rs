@@ -12,7 +12,9 @@
 //! the mean over rows. A category node is drawn as one level per row from
 //! its levels-family model (the softmax probabilities of its levels); a
 //! watched category gives one contrast per level, of the share of rows at
-//! that level.
+//! that level. When a watched node depends on X through a hidden node (a
+//! hidden mediator), the joint model has nothing to simulate that route
+//! with, and the intervention is refused rather than reported without it.
 
 use std::sync::atomic::AtomicBool;
 
@@ -121,6 +123,7 @@ pub fn intervene_with_cancel(
     if request.watch.is_empty() {
         return Err(QueryError::request(format!("{place}: name at least one node to watch")));
     }
+    refuse_hidden_routes(joint, x, &request.watch, &place)?;
     let simulated = nodes_to_simulate(joint, x, &request.watch)?;
     check_rows_memory(table, request, simulated.len(), &place)?;
     let (base, rows_source) = base_rows(table, request)?;
@@ -176,6 +179,32 @@ pub fn intervene_with_cancel(
         watched,
         warnings,
     })
+}
+
+/// An error when a watched node depends on `x` through a hidden node: the
+/// joint model has no model of the hidden node, so the effect along that
+/// route would silently be zero. Such an intervention is not identifiable
+/// by this joint model.
+fn refuse_hidden_routes(joint: &JointModel, x: &str, watch: &[String], place: &str) -> Result<(), QueryError> {
+    let graph = &joint.graph;
+    let descendants = graph.descendants(x)?;
+    for w in watch {
+        let ancestors = graph.ancestors(w)?;
+        let hidden: Vec<&str> = descendants
+            .iter()
+            .copied()
+            .filter(|h| ancestors.contains(h) && graph.is_hidden(h).unwrap_or(false))
+            .collect();
+        if let Some(h) = hidden.first() {
+            return Err(QueryError::request(format!(
+                "{place}: part of the effect of {x} on {w} runs through the hidden node {h} ({x} → … → {h} → … → {w}), \
+                 which the joint model cannot simulate, so this intervention is not identifiable by the joint model; \
+                 observe {h}, or ask for the total effect by adjustment (`ask total effect of {x} on {w} in {} using …`)",
+                graph.name()
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// Observed descendants of `x` that are watched or lead to a watched node,

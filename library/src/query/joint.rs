@@ -111,6 +111,31 @@ impl JointModel {
     }
 }
 
+/// What leaving the hidden parent `h` of `node` out of its model costs: a
+/// hidden mediator (an observed node causes `h`) loses a route; a hidden
+/// root only confounds.
+fn hidden_parent_warning(graph: &Graph, node: &str, h: &str) -> Result<String, QueryError> {
+    let mut causes = Vec::new();
+    for a in graph.ancestors(h)? {
+        if !graph.is_hidden(a)? {
+            causes.push(a);
+        }
+    }
+    Ok(if causes.is_empty() {
+        format!(
+            "{node} has the hidden parent {h}; the joint model leaves that cause out, so simulated \
+             interventions treat {h} as if it confounded nothing"
+        )
+    } else {
+        format!(
+            "{node} has the hidden parent {h}, a mediator downstream of {}: the joint model loses the route \
+             through {h} into {node}, so `intervene` refuses to set {} when watching {node} or what it causes",
+            causes.join(", "),
+            causes.join(" or ")
+        )
+    })
+}
+
 /// Build the joint model `name` of `graph` on `table`; `overrides` give a
 /// node's model lines in place of the default.
 pub fn build_joint(
@@ -142,12 +167,8 @@ pub fn build_joint(
                 parents.push(p.to_string());
             }
         }
-        if !hidden_parents.is_empty() {
-            warnings.push(format!(
-                "{node} has the hidden parent {}; the joint model leaves that cause out, so simulated \
-                 interventions treat it as if it confounded nothing",
-                hidden_parents.join(", ")
-            ));
+        for h in &hidden_parents {
+            warnings.push(hidden_parent_warning(graph, node, h)?);
         }
         let model = match overrides.iter().find(|(n, _)| n == node) {
             Some((_, lines)) => override_model(name, graph, table, node, &parents, lines)?,

@@ -33,8 +33,8 @@ pub mod recover;
 pub mod simulate;
 mod support;
 
-pub use answer::{answer_effect, answer_effect_with_progress, EffectAnswer};
-pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, Calibration, PredictiveSets};
+pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectAnswer};
+pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
 pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use error::QueryError;
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};

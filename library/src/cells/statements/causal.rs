@@ -107,9 +107,14 @@ pub(crate) fn ask(session: &mut Session, st: &Statement, control: &RunControl) -
 pub(crate) fn describe_identification(id: &Identification) -> Display {
     let query = serde_json::to_value(id.query).unwrap_or_default();
     let query = query.as_str().unwrap_or("effect").to_string();
-    let verdict = if id.identifiable { "identifiable" } else { "NOT identifiable by adjustment" };
+    let verdict = match (id.zero_by_graph, id.identifiable) {
+        (true, _) => "zero by the graph",
+        (false, true) => "identifiable",
+        (false, false) => "NOT identifiable by adjustment",
+    };
     let heading = format!("{query} of {} on {}: {verdict}", id.exposure, id.outcome);
-    let mut grid = Grid::new(&["option", "stratify by"]);
+    let set_column = if id.zero_by_graph { "to check the zero, stratify by" } else { "stratify by" };
+    let mut grid = Grid::new(&["option", set_column]);
     for (i, set) in id.adjustment_sets.iter().enumerate() {
         let members = if set.is_empty() { "nothing (no adjustment needed)".to_string() } else { set.join(", ") };
         grid.push(vec![format!("{}", i + 1), members]);
@@ -134,6 +139,7 @@ pub(crate) fn describe_identification(id: &Identification) -> Display {
         "exposure": id.exposure,
         "outcome": id.outcome,
         "identifiable": id.identifiable,
+        "zero_by_graph": id.zero_by_graph,
         "adjustment_sets": id.adjustment_sets,
         "reason": id.reason,
     });

@@ -70,19 +70,23 @@ fn describe_model(model: &Model, rows: usize) -> Display {
 }
 
 fn priors_grid(model: &Model) -> Grid {
-    let mut grid = Grid::new(&["prior group", "parameters", "prior", "source"]);
-    let mut rows: Vec<(String, Vec<String>, String, bool)> = Vec::new();
+    let mut grid = Grid::new(&["prior group", "parameters", "prior", "set by"]);
+    let mut rows: Vec<(String, Vec<String>, String, &'static str)> = Vec::new();
     for p in model.priors_used() {
         let prior = p.prior.to_string();
+        let source = match (p.declared, p.at_average_row) {
+            (true, _) => "declared in the cell",
+            (false, true) => "Waypath default (shared budget), on the average row",
+            (false, false) => "Waypath default (shared budget)",
+        };
         match rows.last_mut() {
-            Some(last) if last.0 == p.group.name() && last.2 == prior && last.3 == p.declared => {
+            Some(last) if last.0 == p.group.name() && last.2 == prior && last.3 == source => {
                 last.1.extend(p.parameters.iter().cloned())
             }
-            _ => rows.push((p.group.name().to_string(), p.parameters.clone(), prior, p.declared)),
+            _ => rows.push((p.group.name().to_string(), p.parameters.clone(), prior, source)),
         }
     }
-    for (group, parameters, prior, declared) in rows {
-        let source = if declared { "declared" } else { "default (data scale)" };
+    for (group, parameters, prior, source) in rows {
         grid.push(vec![group, parameters.join(", "), prior, source.to_string()]);
     }
     grid
@@ -212,9 +216,13 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
     if fit.diagnostics.is_none() {
-        notes.push("Laplace approximation: a normal fit at the posterior mode; R-hat and ESS do not apply".into());
+        notes.push(
+            "laplace method: independent draws (exact for a normal outcome with normal coefficient priors, \
+             otherwise a normal fit at the posterior mode); R-hat and ESS do not apply"
+                .into(),
+        );
     } else if fit.warnings.is_empty() {
-        notes.push(format!("sampler checks passed: no divergences, every R-hat ≤ 1.01 and bulk ESS ≥ 400"));
+        notes.push("sampler checks passed: no divergences, every R-hat ≤ 1.01, bulk and tail ESS ≥ 400".into());
     }
     notes.extend(fit.warnings.iter().map(|w| format!("warning: {w}")));
     let mut plain = format!("{heading}\n{}\npriors:\n{}", grid.to_text(), priors.to_text());

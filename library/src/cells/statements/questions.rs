@@ -15,7 +15,7 @@ use serde_json::{json, Value};
 
 use super::fitting::{parse_method, require_fit, INTERVAL_MASS};
 use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
-use super::header;
+use super::{header, option_text};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::format::num;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
@@ -27,7 +27,7 @@ use crate::infer::nuts::Progress;
 use crate::model::ModelSpec;
 use crate::plot::DensityArrangement;
 use crate::query::{
-    answer_effect_with_progress, build_joint, check_implications, fit_joint_with_progress, intervene, Contrast,
+    answer_effect_with_progress, build_joint, AskOptions, check_implications, fit_joint_with_progress, intervene, Contrast,
     ContrastRequest, ContrastSummary, GridRequest, InterventionRequest, On, QueryError,
 };
 use crate::table::Table;
@@ -223,20 +223,20 @@ fn read_contrast_options(request: &mut ContrastRequest, text: &str) -> Result<()
 
 /// The display of one contrast; `extra` notes go before the closing causal note.
 fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String]) -> Display {
-    let scale = if c.on == "outcomes" { format!("simulated {outcome}") } else { format!("mean {outcome}") };
     let heading = format!(
-        "contrast {}: {} on {scale} = {} ({} {} to {})",
+        "contrast {}: {} on the scale of {} = {} ({} {} to {})",
         c.model,
         c.contrast,
+        c.scale,
         num(c.mean),
         crate::model::prior::short_number(c.mass * 100.0) + "% interval",
         num(c.lower),
         num(c.upper)
     );
     let (lower, upper) = bounds(c.mass);
-    let mut grid = Grid::new(&["contrast", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    let mut grid = Grid::new(&["contrast", "scale", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[2, 3, 4, 5, 6]);
     let summary = c.summary();
-    let mut row = vec![c.contrast.clone()];
+    let mut row = vec![c.contrast.clone(), c.scale.clone()];
     row.extend(summary_cells(&summary));
     grid.push(row);
     let mut grids = vec![("", &grid)];
@@ -249,7 +249,7 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
         along_grid = g;
         grids.push(("along the grid (the row above is at the held value):", &along_grid));
     }
-    let mut notes = vec![c.held_how.clone()];
+    let mut notes = vec![format!("scale: {}", c.scale), c.held_how.clone()];
     notes.extend(c.notes.iter().cloned());
     notes.push(format!("{} draws; each draw's two predictions are subtracted first and the differences summarised last ({})", c.draws.len(), c.interval));
     if let Some(seed) = c.seed {
@@ -262,7 +262,37 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
     Display { plain, html: Some(html), svg, json: Some(to_json(c)) }
 }
 
-/// `ask total|direct effect of X on Y in G using T [with …]`.
+/// The options of `ask … using T` before `with …`: `checking zero` and
+/// `at NODE VALUE [NODE VALUE …]`; the rest (the method) is returned.
+fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
+    let mut options = AskOptions::default();
+    let mut rest = text.trim();
+    loop {
+        if let Some(tail) = option_text(rest, "checking") {
+            rest = tail.strip_prefix("zero").ok_or("`checking` is followed by `zero`")?.trim();
+            options.check_zero = true;
+        } else if let Some(tail) = option_text(rest, "at") {
+            let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
+            let mut used = 0;
+            while let Some(name) = words.next_if(|w| !["with", "checking"].contains(w)) {
+                let value = words.next().ok_or(format!("`at {name}` needs a value"))?;
+                options.held.push((name.to_string(), value.to_string()));
+                used += 1;
+            }
+            if used == 0 {
+                return Err("`at` is followed by a node and its value".into());
+            }
+            rest = match tail.find(" with ").or_else(|| tail.find(" checking ")) {
+                Some(i) => tail[i..].trim(),
+                None => "",
+            };
+        } else {
+            return Ok((options, rest));
+        }
+    }
+}
+
+/// `ask total|direct effect of X on Y in G using T [checking zero] [at M V …] [with …]`.
 pub(crate) fn ask_using(
     session: &mut Session,
     st: &Statement,
@@ -271,13 +301,14 @@ pub(crate) fn ask_using(
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([kind, x, y, g, t], options) = header(st, &ASK_USING)?;
+    let (ask, options) = ask_options(options).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", ASK_USING.usage)))?;
     let (method, graph, table) = method_graph_table(session, options, g, t, line)?;
     let effect = if kind == "total" { EffectKind::Total } else { EffectKind::Direct };
     let label = format!("ask {kind} effect of {x} on {y}");
     (control.progress)(&format!("{label}: fitting with {}", method.describe()));
     let progress = sampler_progress(control, &label);
     let answer =
-        answer_effect_with_progress(graph, table, x, y, effect, &method, control.cancel, INTERVAL_MASS, &progress)
+        answer_effect_with_progress(graph, table, x, y, effect, &ask, &method, control.cancel, INTERVAL_MASS, &progress)
             .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let mut first = super::causal::describe_identification(&answer.identification);
@@ -288,13 +319,17 @@ pub(crate) fn ask_using(
 
     let id = &answer.identification;
     let mut json = json!({
-        "query": format!("{kind} effect"), "exposure": x, "outcome": y, "identifiable": id.identifiable,
+        "query": format!("{kind} effect"), "exposure": x, "outcome": y, "identifiable": id.identifiable, "zero_by_graph": id.zero_by_graph,
         "adjustment_sets": id.adjustment_sets, "reason": id.reason, "adjustment_set": answer.adjustment_set,
-        "table": t, "model": answer.model_text, "why": answer.why, "method": answer.method,
+        "table": t, "model": answer.model_text, "why": answer.why, "method": answer.method, "estimand": answer.estimand,
         "contrasts": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "warnings": answer.warnings,
     });
     let (Some(model), Some(fit), Some(model_text)) = (answer.model, answer.fit, answer.model_text) else {
-        let heading = format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted");
+        let heading = if id.zero_by_graph {
+            format!("{kind} effect of {x} on {y} in {g}: zero by the graph's assumptions, so nothing was fitted")
+        } else {
+            format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted")
+        };
         let (plain, html) = render(&heading, &[], &[], &answer.why);
         json["model_name"] = Value::Null;
         return Ok(vec![first, Display { plain, html: Some(html), svg: None, json: Some(json) }]);
@@ -302,15 +337,16 @@ pub(crate) fn ask_using(
     let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
     let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, stratifying by {set_words}");
     let (lower, upper) = bounds(INTERVAL_MASS);
-    let mut grid = Grid::new(&["contrast", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    let mut grid = Grid::new(&["contrast", "scale", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[2, 3, 4, 5, 6]);
     for c in &answer.contrasts {
-        let mut row = vec![c.contrast.clone()];
+        let mut row = vec![c.contrast.clone(), c.scale.clone()];
         row.extend(summary_cells(&c.summary()));
         grid.push(row);
     }
     let mut model_grid = Grid::new(&["model built"]);
     model_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
-    let mut notes: Vec<String> = answer.why.clone();
+    let mut notes: Vec<String> = answer.estimand.iter().map(|e| format!("estimand: {e}")).collect();
+    notes.extend(answer.why.iter().cloned());
     if let Some(c) = answer.contrasts.first() {
         notes.push(c.held_how.clone());
         notes.push(c.interval.clone() + "s of per-draw differences");
@@ -348,7 +384,7 @@ pub(crate) fn compare_routes(
     let label = format!("compare routes for {x} on {y}");
     let progress = sampler_progress(control, &label);
     (control.progress)(&format!("{label}: fitting the adjustment model"));
-    let answer = answer_effect_with_progress(graph, table, x, y, EffectKind::Total, &method, control.cancel, INTERVAL_MASS, &progress)
+    let answer = answer_effect_with_progress(graph, table, x, y, EffectKind::Total, &AskOptions::default(), &method, control.cancel, INTERVAL_MASS, &progress)
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let Some(adjustment) = answer.contrasts.first() else {

@@ -533,15 +533,22 @@ pub(crate) fn calibrate(session: &mut Session, st: &Statement, control: &RunCont
     check_cancel(control, &label, line)?;
     let mut grid = Grid::new(&["parameter", "chi-square", "p-value", "reading"]).numeric_columns(&[1, 2]);
     for p in &calibration.parameters {
-        let reading = if p.p_value < 0.01 { "ranks far from uniform: check this parameter's posterior" } else { "ranks consistent with uniform" };
-        grid.push(vec![p.name.clone(), num(p.chi_square), format!("{:.3}", p.p_value), reading.to_string()]);
+        let (p_text, reading) = match p.p_value {
+            None => ("not computed".to_string(), "too few replications for a p-value: read the ranks"),
+            Some(v) if v < 0.01 => (format!("{v:.3}"), "ranks far from uniform: check this parameter's posterior"),
+            Some(v) => (format!("{v:.3}"), "ranks consistent with uniform"),
+        };
+        grid.push(vec![p.name.clone(), num(p.chi_square), p_text, reading.to_string()]);
     }
+    // The parameter to draw: the smallest p-value, or without p-values the
+    // largest chi-square statistic.
+    let key = |p: &crate::query::CalibratedParameter| p.p_value.map_or(-p.chi_square, |v| v - 1e9);
     let worst = calibration
         .parameters
         .iter()
         .enumerate()
-        .filter(|(_, p)| p.p_value.is_finite())
-        .min_by(|a, b| a.1.p_value.total_cmp(&b.1.p_value))
+        .filter(|(_, p)| p.chi_square.is_finite())
+        .min_by(|a, b| key(a.1).total_cmp(&key(b.1)))
         .map(|(i, _)| i);
     let heading = format!(
         "calibrate {m}: {} replications (seed {seed}), ranks among {} posterior draws in {} bins",
@@ -550,7 +557,8 @@ pub(crate) fn calibrate(session: &mut Session, st: &Statement, control: &RunCont
     let mut notes = calibration.notes.clone();
     notes.push("each replication draws parameters from the priors, simulates outcomes with the model's own rows, refits and ranks the true value among the draws (Talts et al. 2018)".to_string());
     if let Some(i) = worst {
-        notes.push(format!("the figure shows the rank histogram of {}, the parameter with the smallest p-value", calibration.parameters[i].name));
+        let why = if calibration.parameters[i].p_value.is_some() { "the smallest p-value" } else { "the largest chi-square statistic" };
+        notes.push(format!("the figure shows the rank histogram of {}, the parameter with {why}", calibration.parameters[i].name));
     }
     if reps < 50 {
         notes.push(format!("{reps} replications make a coarse test; 100 or more show smaller departures"));

@@ -56,6 +56,12 @@ impl GaussianStats {
         (value, -self.n + rss * precision)
     }
 
+    /// `(XᵀX, Xᵀyc, ycᵀyc, n, ȳ, intercept columns)` with `yc = y − ȳ`.
+    #[allow(clippy::type_complexity)]
+    pub(crate) fn parts(&self) -> (&DMatrix<f64>, &DVector<f64>, f64, f64, f64, &[usize]) {
+        (&self.xtx, &self.xty, self.yty, self.n, self.y_mean, &self.intercept_columns)
+    }
+
     fn shifted(&self, beta: &[f64]) -> DVector<f64> {
         let mut shifted = DVector::from_column_slice(beta);
         for &j in &self.intercept_columns {

@@ -14,6 +14,10 @@
 //! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
 //!   one chain, 300 warm-up); answers the calibration structure (ranks,
 //!   chi-square and p-value per parameter).
+//! * `contrast` — as `fit`, plus `variable`, `draws` and `seed`: a Laplace
+//!   fit, then the default contrast of `variable` averaged over rows;
+//!   answers `names`, `params` (constrained draws), `to`, `from` and
+//!   `differences` (per draw).
 
 use serde_json::{json, Value};
 use std::sync::atomic::AtomicBool;
@@ -33,6 +37,7 @@ fn main() {
         Some("basis") => basis(&request),
         Some("prior") => prior(&request),
         Some("calibrate") => calibrate(&request),
+        Some("contrast") => contrast(&request),
         other => Err(format!("unknown action {other:?}")),
     };
     waypath_probe::write_answer(&answer.unwrap_or_else(|e| json!({ "error": e })));
@@ -68,14 +73,18 @@ fn column_data(value: &Value) -> Result<ColumnData, String> {
     Ok(ColumnData::Category { codes, levels })
 }
 
-fn model(request: &Value) -> Result<Model, String> {
+fn table(request: &Value) -> Result<Table, String> {
     let columns = request["columns"]
         .as_object()
         .ok_or("columns must be an object")?
         .iter()
         .map(|(name, v)| Ok(Column { name: name.clone(), unit: None, data: column_data(v)? }))
         .collect::<Result<Vec<_>, String>>()?;
-    let table = Table { name: "data".into(), columns };
+    Ok(Table { name: "data".into(), columns })
+}
+
+fn model(request: &Value) -> Result<Model, String> {
+    let table = table(request)?;
     let text = request["model"].as_str().ok_or("model must be text")?;
     let spec = ModelSpec::from_lines("probe", text.lines().enumerate().map(|(i, l)| (i + 2, l)))
         .map_err(|e| e.to_string())?;
@@ -133,4 +142,19 @@ fn calibrate(request: &Value) -> Result<Value, String> {
     let c = waypath::query::calibrate(&model, whole("reps")? as usize, &Method::Nuts(settings), whole("seed")?, &AtomicBool::new(false))
         .map_err(|e| e.to_string())?;
     serde_json::to_value(&c).map_err(|e| e.to_string())
+}
+
+fn contrast(request: &Value) -> Result<Value, String> {
+    let model = model(request)?;
+    let table = table(request)?;
+    let whole = |key: &str| request[key].as_u64().ok_or_else(|| format!("{key} must be a whole number"));
+    let method = Method::Laplace { draws: whole("draws")? as usize, seed: whole("seed")? };
+    let fit = waypath::infer::fit::fit_model(&model, &method, &AtomicBool::new(false), &|_| {}).map_err(|e| e.to_string())?;
+    let variable = request["variable"].as_str().ok_or("variable must be text")?;
+    let ask = waypath::query::ContrastRequest { over_rows: true, ..waypath::query::ContrastRequest::new(variable) };
+    let c = waypath::query::contrast(&model, &fit.draws, &table, &ask).map_err(|e| e.to_string())?;
+    let names = model.parameter_names();
+    let columns: Vec<&[f64]> = names.iter().map(|n| fit.draws.get(n).ok_or("missing draws")).collect::<Result<_, _>>()?;
+    let params: Vec<Vec<f64>> = (0..fit.draws.len()).map(|d| columns.iter().map(|c| c[d]).collect()).collect();
+    Ok(json!({ "names": names, "params": params, "to": c.to, "from": c.from, "differences": c.draws, "scale": c.scale }))
 }
