@@ -196,6 +196,7 @@ pub mod __bench {
     }
 }
 
+pub use crate::codec::FRAME_ALLOWANCE;
 pub use crate::dealer::*;
 pub use crate::endpoint::{Endpoint, Host, Transport, TryIntoEndpoint};
 pub use crate::error::{ZmqError, ZmqResult};
@@ -353,6 +354,9 @@ pub struct SocketOptions {
     // Shared by read preparation and decoder reservation.
     pub(crate) read_buffer_max_size: usize,
     pub(crate) read_buffer_short_reads: usize,
+    // Largest multipart message (frame bodies plus a per-frame allowance) a
+    // peer may announce; checked before any memory is reserved for it.
+    pub(crate) max_message_size: Option<usize>,
 }
 
 impl Default for SocketOptions {
@@ -363,6 +367,7 @@ impl Default for SocketOptions {
             read_buffer_initial_size: 128,
             read_buffer_max_size: 64 * 1024,
             read_buffer_short_reads: 2,
+            max_message_size: None,
         }
     }
 }
@@ -416,6 +421,16 @@ impl SocketOptions {
         self.read_buffer_initial_size = initial_size;
         self.read_buffer_max_size = max_size;
         self.read_buffer_short_reads = short_reads;
+        self
+    }
+
+    /// Refuse, before reserving memory for it, any incoming message (or
+    /// handshake command) whose frames would exceed `max_size` bytes. Each
+    /// frame counts its body plus [`FRAME_ALLOWANCE`] bytes, so a flood of
+    /// empty frames is bounded too. A peer that announces more is
+    /// disconnected. Unlimited by default.
+    pub fn max_message_size(&mut self, max_size: usize) -> &mut Self {
+        self.max_message_size = Some(max_size);
         self
     }
 

@@ -14,7 +14,7 @@ pub(crate) use error::CodecResult;
 pub use framed::ZmqFramedRead;
 pub(crate) use framed::{FrameableWrite, FramedIo, ZmqFramedWrite};
 pub(crate) use greeting::{ZmqGreeting, ZmtpVersion};
-pub use zmq_codec::ZmqCodec;
+pub use zmq_codec::{ZmqCodec, FRAME_ALLOWANCE};
 
 use crate::message::ZmqMessage;
 

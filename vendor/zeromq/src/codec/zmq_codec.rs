@@ -33,7 +33,18 @@ pub struct ZmqCodec {
     // internal details to higher levels
     buffered_message: Option<ZmqMessage>,
     max_read_chunk_size: usize,
+    // Largest message accepted (see `SocketOptions::max_message_size`).
+    max_message_size: Option<usize>,
+    // What the frames of the message being received count so far.
+    message_size: usize,
 }
+
+/// What each frame counts toward the message size besides its body: the
+/// bookkeeping a received frame costs, so empty frames are not free.
+pub const FRAME_ALLOWANCE: usize = 64;
+
+/// The most the decoder reserves beyond the bytes already buffered.
+const RESERVE_AHEAD: usize = 1 << 20;
 
 impl ZmqCodec {
     pub fn new() -> Self {
@@ -46,7 +57,25 @@ impl ZmqCodec {
             waiting_for: 64, // len of the greeting frame
             buffered_message: None,
             max_read_chunk_size: options.read_buffer_max_size,
+            max_message_size: options.max_message_size,
+            message_size: 0,
         }
+    }
+
+    /// Count a frame of `len` bytes toward the current message, refusing it
+    /// when the message would exceed the maximum size.
+    fn admit_frame(&mut self, len: usize) -> Result<(), CodecError> {
+        let size = self
+            .message_size
+            .saturating_add(len)
+            .saturating_add(FRAME_ALLOWANCE);
+        if self.max_message_size.is_some_and(|max| size > max) {
+            return Err(CodecError::Decode(
+                "Message exceeds the socket's maximum message size",
+            ));
+        }
+        self.message_size = size;
+        Ok(())
     }
 
     /// Returns the minimum additional bytes needed before decode can progress.
@@ -82,6 +111,9 @@ impl Decoder for ZmqCodec {
                 } else {
                     self.waiting_for
                 };
+                // Reserve for what has arrived, not for what was announced: an
+                // announced length costs memory only as its bytes come in.
+                let reserve_to = reserve_to.min(src.len().saturating_add(RESERVE_AHEAD));
                 src.reserve(reserve_to - src.len());
                 return Ok(None);
             }
@@ -123,6 +155,7 @@ impl Decoder for ZmqCodec {
                     } else {
                         usize::from(src.get_u8())
                     };
+                    self.admit_frame(frame_len)?;
                     self.state = DecoderState::Frame(frame);
                     self.waiting_for = frame_len;
                 }
@@ -130,6 +163,9 @@ impl Decoder for ZmqCodec {
                     let data = src.split_to(self.waiting_for);
                     self.state = DecoderState::FrameHeader;
                     self.waiting_for = 1;
+                    if frame.command || !frame.more {
+                        self.message_size = 0;
+                    }
                     if frame.command {
                         return Ok(Some(Message::Command(ZmqCommand::try_from(data.freeze())?)));
                     }
