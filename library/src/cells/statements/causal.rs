@@ -26,6 +26,7 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
     } else if let Some(([name, raw], _)) = GRAPH_FILE.read_n(st.head()).ok().filter(|([name, _], _)| is_name(name) && !st.expects_body()) {
         let path = unquote(raw).ok_or_else(|| form_error(st, GRAPH_FILE.usage))?;
         let file = session.resolve(path);
+        session.data_files.remember(&file);
         let text = std::fs::read_to_string(&file).map_err(|e| {
             CellError::at(st.header.number, format!("cannot read the DOT file {path} ({e})"))
         })?;
