@@ -163,7 +163,10 @@ impl Grid {
                 .enumerate()
                 .map(|(c, &w)| {
                     let s = cells.get(c).map(String::as_str).unwrap_or("");
-                    if self.numeric[c] { format!("{s:>w$}") } else { format!("{s:<w$}") }
+                    // Padded by hand: `format!` widths stop at 65,535 and a
+                    // cell may hold a longer value (a long mechanism line).
+                    let pad = " ".repeat(w.saturating_sub(s.chars().count()));
+                    if self.numeric[c] { format!("{pad}{s}") } else { format!("{s}{pad}") }
                 })
                 .collect();
             parts.join("  ").trim_end().to_string()
@@ -250,6 +253,18 @@ mod tests {
         assert!(!bundles[1].contains_key("text/html"));
         let alone = Display { plain: "f".into(), svg: Some(svg), ..Display::default() };
         assert_eq!(alone.notebook_bundles().len(), 1);
+    }
+
+    #[test]
+    fn a_grid_cell_longer_than_any_format_width_is_shown_whole() {
+        // std::fmt takes widths up to u16::MAX (65,535); this cell is longer.
+        let long = "-".repeat(70_000);
+        let mut g = Grid::new(&["node", "mechanism"]);
+        g.push(vec!["girth".into(), long.clone()]);
+        g.push(vec!["yield".into(), "normal(girth, 1)".into()]);
+        let text = g.to_text();
+        assert!(text.lines().nth(2).unwrap().ends_with(&long));
+        assert!(text.lines().nth(3).unwrap().starts_with("yield  normal(girth, 1)"));
     }
 
     #[test]
