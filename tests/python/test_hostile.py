@@ -185,7 +185,7 @@ SIZE_CELLS = {
 # The refusals are the library's side of issue 12 (size limits, interrupt
 # in library loops, range checks). Until that lands these cases end the
 # kernel or pass silently; strict: once they pass, drop the mark.
-LIBRARY_SIDE = pytest.mark.xfail(strict=True, reason="library side of issue 12 (size limits) not merged yet")
+LIBRARY_SIDE = pytest.mark.xfail(strict=True, reason="library side of issue 12 (size limits, interrupt, linear checks) not merged yet")
 
 
 @pytest.mark.parametrize("case", [pytest.param(c, marks=LIBRARY_SIDE) for c in sorted(SIZE_CELLS)])
@@ -203,6 +203,61 @@ def test_values_near_1e200_give_a_clear_error_or_a_fit(own_kernel):
     reply = execute(km, kc, 'table huge from "huge.csv"\nmodel hm:\n    flow from reach using huge\nfit hm with laplace seed 2')
     if reply["status"] == "error":
         assert_clear_error(reply, "fit hm")
+    assert_still_serving(km, kc)
+
+
+# --- interrupt stops every long statement (issue 12, section 4) ------------
+
+LONG_CELLS = {
+    # Honoured before issue 12: the control case.
+    "NUTS sampling": "fit m with nuts draws 2000000 seed 4",
+    "calibrate reps": "calibrate m reps 1000000 seed 2 with laplace",
+}
+
+
+@pytest.mark.parametrize("case", [pytest.param(c, marks=[] if c == "NUTS sampling" else LIBRARY_SIDE)
+                                  for c in sorted(LONG_CELLS)])
+def test_interrupt_ends_a_long_statement_and_keeps_the_session(own_kernel, case):
+    km, kc, _ = own_kernel
+    code = LONG_CELLS[case]
+    msg_id = kc.execute(code, stop_on_error=False)
+    time.sleep(1.5)  # running by now (each runs for far longer without an interrupt)
+    sent = time.time()
+    km.interrupt_kernel()
+    reply = None
+    while reply is None and time.time() - sent < INTERRUPT_LIMIT:
+        try:
+            msg = kc.get_shell_msg(timeout=0.2)
+        except Exception:
+            continue
+        if msg["parent_header"].get("msg_id") == msg_id:
+            reply = msg["content"]
+    assert reply is not None, f"{case}: no reply {INTERRUPT_LIMIT} s after the interrupt"
+    # The issue asks for 1 s; a loaded 2-core machine gets 3.
+    assert time.time() - sent < 3, f"{case}: the interrupt took {time.time() - sent:.1f} s"
+    assert "interrupt" in assert_clear_error(reply, code).lower()
+    reply = execute(km, kc, "show trees")  # the session (its table) is kept
+    assert reply["status"] == "ok", reply
+    assert_still_serving(km, kc)
+
+
+@LIBRARY_SIDE
+def test_a_csv_with_100000_columns_loads_within_seconds(own_kernel):
+    # Issue 12, section 6: the duplicate-header check was quadratic (36 s).
+    km, kc, work = own_kernel
+    n = 100_000
+    (work / "wide.csv").write_text(",".join(f"flow{i}" for i in range(n)) + "\n" + ",".join(["1"] * n) + "\n")
+    started = time.time()
+    reply = execute(km, kc, 'table wide from "wide.csv"')
+    assert reply["status"] == "ok" and "interrupted_after" not in reply, reply
+    assert time.time() - started < 10, f"{time.time() - started:.0f} s"
+    assert_still_serving(km, kc)
+
+
+def test_a_csv_with_a_repeated_header_is_a_clear_error(kernel):
+    km, kc, work = kernel
+    (work / "twice.csv").write_text("flow,depth,flow\n1,2,3\n")
+    assert "flow" in assert_clear_error(execute(km, kc, 'table twice from "twice.csv"'), "table twice")
     assert_still_serving(km, kc)
 
 
