@@ -406,6 +406,25 @@ mod tests {
     }
 
     #[test]
+    fn endpoints_bracket_ipv6_addresses() {
+        // RFC 3986 §3.2.2: an IPv6 literal in a URI authority is bracketed.
+        let info = |ip: &str| ConnectionInfo {
+            transport: "tcp".into(),
+            ip: ip.into(),
+            key: String::new(),
+            signature_scheme: default_scheme(),
+            shell_port: 1,
+            iopub_port: 2,
+            stdin_port: 3,
+            control_port: 4,
+            hb_port: 5,
+        };
+        assert_eq!(info("127.0.0.1").endpoint(5555), "tcp://127.0.0.1:5555");
+        assert_eq!(info("::1").endpoint(5555), "tcp://[::1]:5555");
+        assert_eq!(info("localhost").endpoint(80), "tcp://localhost:80");
+    }
+
+    #[test]
     fn timestamps_follow_the_civil_calendar() {
         // 951_782_400 s after the epoch is 2000-02-29T00:00:00Z (a leap day;
         // `date -u -d @951782400`).

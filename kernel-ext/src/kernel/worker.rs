@@ -97,13 +97,11 @@ pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -
 }
 
 impl Worker {
-    /// Answer one request; a panic while answering becomes an error reply
-    /// (execute guards its cell itself, so its count and history stay right).
+    /// Answer one request; a panic while answering becomes an error reply,
+    /// so no request can end this thread. (Execute also guards its cell on
+    /// its own, so a failing cell still gets its count and history entry.)
     fn answer(&mut self, request: &Message) -> Message {
-        if request.msg_type() == "execute_request" {
-            return self.execute(request);
-        }
-        match cell_thread::guarded(|| self.answer_other(request)) {
+        match cell_thread::guarded(|| self.answer_unguarded(request)) {
             Ok(reply) => reply,
             Err(what) => {
                 let kind = request.msg_type().replace("_request", "_reply");
@@ -111,19 +109,20 @@ impl Worker {
                 self.publisher.identity.reply(
                     request,
                     &kind,
-                    json!({"status": "error", "ename": "WaypathError", "evalue": message, "traceback": [message]}),
+                    json!({"status": "error", "execution_count": self.execution_count, "ename": "WaypathError",
+                           "evalue": message, "traceback": [message]}),
                 )
             }
         }
     }
 
-    /// Answer a request other than execute.
-    fn answer_other(&mut self, request: &Message) -> Message {
+    fn answer_unguarded(&mut self, request: &Message) -> Message {
         let identity = self.publisher.identity.clone();
         let content = &request.content;
         let cursor = content["cursor_pos"].as_u64().unwrap_or(0) as usize;
         let code = content["code"].as_str().unwrap_or("");
         match request.msg_type() {
+            "execute_request" => self.execute(request),
             "complete_request" => {
                 identity.reply(request, "complete_reply", language::complete(&self.session, code, cursor))
             }
