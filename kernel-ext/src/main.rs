@@ -165,3 +165,27 @@ fn parse_mib(text: &str) -> Result<usize, String> {
         _ => Err(format!("--max-message-mib takes a whole number of MiB from 1 to 65536, not {text:?}")),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn args(list: &[&str]) -> Vec<String> {
+        list.iter().map(|s| s.to_string()).collect()
+    }
+
+    #[test]
+    fn the_message_cap_is_read_in_mib_and_checked() {
+        let (file, settings) = parse_kernel_args(&args(&["--connection-file", "k.json"])).unwrap();
+        assert_eq!(file, PathBuf::from("k.json"));
+        assert_eq!(settings.max_message_bytes, 256 * 1024 * 1024);
+        let (_, settings) = parse_kernel_args(&args(&["--max-message-mib", "3", "--connection-file", "k.json"])).unwrap();
+        assert_eq!(settings.max_message_bytes, 3 * 1024 * 1024);
+        for bad in ["0", "-1", "1.5", "65537", "lots"] {
+            let err = parse_kernel_args(&args(&["--connection-file", "k.json", "--max-message-mib", bad])).unwrap_err();
+            assert!(err.contains("from 1 to 65536"), "{bad}: {err}");
+        }
+        assert!(parse_kernel_args(&args(&["--max-message-mib", "4"])).unwrap_err().contains("--connection-file"));
+        assert!(parse_kernel_args(&args(&["--connection-file"])).unwrap_err().contains("needs a value"));
+    }
+}
