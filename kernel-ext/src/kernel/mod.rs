@@ -118,7 +118,7 @@ async fn serve(info: ConnectionInfo, settings: KernelSettings) -> Result<(), Ker
     let (iopub_tx, iopub_rx) = unbounded_channel();
     let publisher = Publisher { identity: Arc::new(Identity::new()), iopub: iopub_tx };
     let kernel = Kernel { signer: signer.clone(), publisher, interrupter: Interrupter::default() };
-    let jobs = worker::spawn(Session::new(working_dir()), kernel.publisher.clone(), kernel.interrupter.clone());
+    let jobs = worker::spawn(Session::new(working_dir()), kernel.publisher.clone(), kernel.interrupter.clone())?;
     tokio::spawn(send_iopub(iopub, iopub_rx, signer));
     tokio::spawn(echo_heartbeat(heartbeat));
     tokio::spawn(interrupt_on_sigint(kernel.interrupter.clone()));

@@ -81,7 +81,8 @@ struct Worker {
 }
 
 /// Start the execution thread; it ends when the job sender is dropped.
-pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -> mpsc::Sender<Job> {
+/// Fails only when the system cannot give the thread its stack.
+pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -> std::io::Result<mpsc::Sender<Job>> {
     let (jobs, inbox) = mpsc::channel::<Job>();
     cell_thread::spawn("waypath-cells", move || {
         let rust = RustCells::new();
@@ -91,9 +92,8 @@ pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -
             let reply = worker.answer(&job.request);
             let _ = job.reply.send(reply);
         }
-    })
-    .expect("the operating system can start a thread");
-    jobs
+    })?;
+    Ok(jobs)
 }
 
 impl Worker {
