@@ -4,6 +4,7 @@
 //! Everything statistical lives in the `waypath` library; this crate only
 //! moves cells in and rich outputs out.
 
+pub mod cell_thread;
 pub mod install;
 pub mod kernel;
 pub mod notebook;

@@ -8,7 +8,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use waypath_kernel::install::{install, this_program, InstallPlace};
-use waypath_kernel::kernel::run_kernel;
+use waypath_kernel::kernel::{run_kernel, KernelSettings};
 use waypath_kernel::notebook::{run_notebook, RunOptions};
 
 const HELP: &str = "\
@@ -27,10 +27,12 @@ usage:
       at this program. --user (the default) writes to your Jupyter data folder,
       --sys-prefix to the active Python environment, --prefix under
       PATH/share/jupyter/kernels. Then pick Waypath in Jupyter.
-  waypath kernel --connection-file FILE
+  waypath kernel --connection-file FILE [--max-message-mib N]
       Run the Jupyter kernel (Jupyter starts this itself; FILE is the
       connection file it writes). Cells starting with a %%rust line are
       compiled and run as Rust with the waypath library available.
+      The kernel listens only on the address the file gives and drops any
+      client that sends a message larger than N MiB (default 256).
   waypath --help
       This text.
 ";
@@ -121,18 +123,66 @@ fn install_command(args: &[String]) -> ExitCode {
 }
 
 fn kernel_command(args: &[String]) -> ExitCode {
-    let file = match args {
-        [flag, file] if flag == "--connection-file" => file,
-        _ => {
-            eprintln!("waypath kernel: expected --connection-file FILE\n\n{HELP}");
+    let (file, settings) = match parse_kernel_args(args) {
+        Ok(parsed) => parsed,
+        Err(message) => {
+            eprintln!("waypath kernel: {message}\n\n{HELP}");
             return ExitCode::from(2);
         }
     };
-    match run_kernel(std::path::Path::new(file)) {
+    match run_kernel(&file, settings) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
             eprintln!("waypath kernel: {e}");
             ExitCode::from(1)
         }
+    }
+}
+
+fn parse_kernel_args(args: &[String]) -> Result<(PathBuf, KernelSettings), String> {
+    let mut file: Option<PathBuf> = None;
+    let mut settings = KernelSettings::default();
+    let mut i = 0;
+    while i < args.len() {
+        let value = || args.get(i + 1).ok_or_else(|| format!("{} needs a value", args[i]));
+        match args[i].as_str() {
+            "--connection-file" => file = Some(value()?.into()),
+            "--max-message-mib" => settings.max_message_bytes = parse_mib(value()?)?,
+            other => return Err(format!("unknown option {other:?}")),
+        }
+        i += 2;
+    }
+    Ok((file.ok_or("expected --connection-file FILE")?, settings))
+}
+
+/// A message-size cap in MiB: a whole number from 1 to 65536 (64 GiB).
+fn parse_mib(text: &str) -> Result<usize, String> {
+    match text.parse::<usize>() {
+        Ok(mib) if (1..=65_536).contains(&mib) => Ok(mib << 20),
+        _ => Err(format!("--max-message-mib takes a whole number of MiB from 1 to 65536, not {text:?}")),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn args(list: &[&str]) -> Vec<String> {
+        list.iter().map(|s| s.to_string()).collect()
+    }
+
+    #[test]
+    fn the_message_cap_is_read_in_mib_and_checked() {
+        let (file, settings) = parse_kernel_args(&args(&["--connection-file", "k.json"])).unwrap();
+        assert_eq!(file, PathBuf::from("k.json"));
+        assert_eq!(settings.max_message_bytes, 256 * 1024 * 1024);
+        let (_, settings) = parse_kernel_args(&args(&["--max-message-mib", "3", "--connection-file", "k.json"])).unwrap();
+        assert_eq!(settings.max_message_bytes, 3 * 1024 * 1024);
+        for bad in ["0", "-1", "1.5", "65537", "lots"] {
+            let err = parse_kernel_args(&args(&["--connection-file", "k.json", "--max-message-mib", bad])).unwrap_err();
+            assert!(err.contains("from 1 to 65536"), "{bad}: {err}");
+        }
+        assert!(parse_kernel_args(&args(&["--max-message-mib", "4"])).unwrap_err().contains("--connection-file"));
+        assert!(parse_kernel_args(&args(&["--connection-file"])).unwrap_err().contains("needs a value"));
     }
 }

@@ -3,14 +3,25 @@
 //! Cells run in order in one [`Session`] whose folder is the notebook's, so
 //! relative paths in cells mean the same as in Jupyter. The executed notebook
 //! is written as nbformat 4.5 (every cell has an `id`).
+//!
+//! No run loses its work: cells run on the large-stack cell thread
+//! ([`crate::cell_thread`]), each under a panic guard; the executed notebook
+//! and the report are written when the run starts (stale outputs cleared) and
+//! again after every cell, each time to a temporary file renamed over the
+//! old one, so a reader never sees half a file and an older output never
+//! looks current. The notebook's `metadata.waypath.run` says whether the
+//! run is `in progress`, `complete` or `stopped`; a failing cell carries
+//! `metadata.waypath.failed = true` and the report marks it.
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
 use std::sync::Mutex;
 
 use serde_json::{json, Map, Value};
+use waypath::cells::files::write_atomically;
 use waypath::cells::{CellError, CellOutcome, RunControl, Session};
 
+use crate::cell_thread::{self, internal_error_message};
 use crate::rust_cells::{rust_source, RustCells, StreamName};
 
 /// What `waypath run` was asked to do.
@@ -50,8 +61,32 @@ pub enum NotebookError {
     Read { path: String, source: std::io::Error },
     #[error("{path}: not a notebook file ({message})")]
     Format { path: String, message: String },
-    #[error("{path}: cannot write ({source})")]
+    #[error("{path}: cannot write ({source}); check that its folder exists and is writable")]
     Write { path: String, source: std::io::Error },
+    #[error("{0}")]
+    Thread(String),
+}
+
+/// Where the run's results go, written whole each time.
+struct Destinations<'a> {
+    options: &'a RunOptions,
+    title: String,
+}
+
+impl Destinations<'_> {
+    /// Write the executed notebook (and the report, if asked) as they stand.
+    fn save(&self, notebook: &Value) -> Result<(), NotebookError> {
+        let text = serde_json::to_string_pretty(notebook).unwrap_or_default();
+        write_file(&self.options.out, &text)?;
+        if let Some(html) = &self.options.html {
+            write_file(html, &crate::report::render_report(notebook, &self.title))?;
+        }
+        Ok(())
+    }
+
+    fn written(&self) -> Vec<PathBuf> {
+        std::iter::once(self.options.out.clone()).chain(self.options.html.clone()).collect()
+    }
 }
 
 /// Run every code cell of `options.input`; write the executed notebook and,
@@ -59,42 +94,59 @@ pub enum NotebookError {
 pub fn run_notebook(options: &RunOptions) -> Result<RunSummary, NotebookError> {
     let mut notebook = read_notebook(&options.input)?;
     let base = options.input.parent().map(Path::to_path_buf).unwrap_or_default();
-    let mut session = Session::new(if base.as_os_str().is_empty() { PathBuf::from(".") } else { base });
-    let summary = execute_all(&mut notebook, &mut session, options.keep_going);
-    let mut summary = summary;
-    write_file(&options.out, &serde_json::to_string_pretty(&notebook).unwrap_or_default())?;
-    summary.written.push(options.out.clone());
-    if let Some(html) = &options.html {
-        let title = options.input.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
-        write_file(html, &crate::report::render_report(&notebook, &title))?;
-        summary.written.push(html.clone());
-    }
+    let base = if base.as_os_str().is_empty() { PathBuf::from(".") } else { base };
+    let title = options.input.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
+    let destinations = Destinations { options, title };
+    let mut summary = cell_thread::run(|| {
+        let mut session = Session::new(base);
+        execute_all(&mut notebook, &mut session, options.keep_going, &destinations)
+    })
+    .map_err(|what| NotebookError::Thread(internal_error_message(&what)))??;
+    summary.written = destinations.written();
     Ok(summary)
 }
 
 fn write_file(path: &Path, text: &str) -> Result<(), NotebookError> {
-    std::fs::write(path, text).map_err(|source| NotebookError::Write { path: path.display().to_string(), source })
+    write_atomically(path, text.as_bytes())
+        .map_err(|source| NotebookError::Write { path: path.display().to_string(), source })
 }
 
-/// Read and check an nbformat 4 notebook.
+/// Read and check an nbformat 4 notebook: valid JSON, nbformat 4, a list
+/// of cells each of which is an object.
 pub fn read_notebook(path: &Path) -> Result<Value, NotebookError> {
     let shown = path.display().to_string();
     let text = std::fs::read_to_string(path).map_err(|source| NotebookError::Read { path: shown.clone(), source })?;
     let notebook: Value = serde_json::from_str(&text)
         .map_err(|e| NotebookError::Format { path: shown.clone(), message: format!("invalid JSON: {e}") })?;
+    let format = |message: String| NotebookError::Format { path: shown.clone(), message };
     match notebook.get("nbformat").and_then(Value::as_u64) {
         Some(4) => {}
-        other => {
-            return Err(NotebookError::Format {
-                path: shown,
-                message: format!("nbformat {other:?} found; Waypath reads nbformat 4"),
-            })
-        }
+        other => return Err(format(format!("nbformat {other:?} found; Waypath reads nbformat 4"))),
     }
-    if !notebook.get("cells").is_some_and(Value::is_array) {
-        return Err(NotebookError::Format { path: shown, message: "it has no list of cells".into() });
+    let Some(cells) = notebook.get("cells").and_then(Value::as_array) else {
+        return Err(format("it has no list of cells".into()));
+    };
+    if let Some((i, cell)) = cells.iter().enumerate().find(|(_, c)| !c.is_object()) {
+        return Err(format(format!(
+            "cell {} is {} where nbformat expects an object with \"cell_type\" and \"source\"; \
+             fix that cell in the file or re-save the notebook from Jupyter",
+            i + 1,
+            json_kind(cell)
+        )));
     }
     Ok(notebook)
+}
+
+/// "a string", "a number" …: what a JSON value is, for format errors.
+fn json_kind(value: &Value) -> &'static str {
+    match value {
+        Value::Null => "null",
+        Value::Bool(_) => "a true/false value",
+        Value::Number(_) => "a number",
+        Value::String(_) => "a string",
+        Value::Array(_) => "a list",
+        Value::Object(_) => "an object",
+    }
 }
 
 /// The source of a cell, which nbformat stores as a string or a list of lines.
@@ -106,44 +158,86 @@ pub fn cell_source(cell: &Value) -> String {
     }
 }
 
-fn execute_all(notebook: &mut Value, session: &mut Session, keep_going: bool) -> RunSummary {
+/// Run the code cells in order, saving the notebook before the first and
+/// after each one.
+fn execute_all(
+    notebook: &mut Value,
+    session: &mut Session,
+    keep_going: bool,
+    destinations: &Destinations,
+) -> Result<RunSummary, NotebookError> {
     let mut summary = RunSummary::default();
     let cancel = AtomicBool::new(false);
     let progress = |_: &str| {};
     let control = RunControl { cancel: &cancel, progress: &progress };
-    let mut stopped = false;
     let mut count = 0u64;
     let mut rust: Option<RustCells> = None;
     upgrade_to_4_5(notebook);
-    let cells = notebook["cells"].as_array_mut().expect("checked by read_notebook");
-    for (index, cell) in cells.iter_mut().enumerate() {
-        if cell.get("cell_type").and_then(Value::as_str) != Some("code") {
-            continue;
-        }
-        let cell = cell.as_object_mut().expect("a cell is an object");
-        if stopped {
-            cell.insert("outputs".into(), json!([]));
-            cell.insert("execution_count".into(), Value::Null);
-            continue;
-        }
+    clear_outputs(notebook);
+    set_run_state(notebook, "in progress", &summary);
+    destinations.save(notebook)?;
+    let code_cells: Vec<usize> = code_cell_indices(notebook);
+    for index in code_cells {
         count += 1;
-        let source = cell_source(&Value::Object(cell.clone()));
-        let (streams, outcome) = match rust_source(&source) {
+        let source = cell_source(&notebook["cells"][index]);
+        let (streams, outcome) = run_guarded(|| match rust_source(&source) {
             Some(code) => run_rust_cell(rust.get_or_insert_with(RustCells::new), code, session),
             None => (Vec::new(), session.run_cell(&source, &control)),
-        };
+        });
         summary.executed += 1;
         let failed = outcome.error.is_some();
         let mut outputs = streams;
         outputs.extend(outputs_of(&outcome, index + 1, count));
-        cell.insert("outputs".into(), Value::Array(outputs));
-        cell.insert("execution_count".into(), json!(count));
+        let cell = &mut notebook["cells"][index];
+        cell["outputs"] = Value::Array(outputs);
+        cell["execution_count"] = json!(count);
         if failed {
+            cell["metadata"]["waypath"] = json!({"failed": true});
             summary.failed_cells.push(index + 1);
-            stopped = !keep_going;
+        }
+        let stop = failed && !keep_going;
+        set_run_state(notebook, if stop { "stopped" } else { "in progress" }, &summary);
+        destinations.save(notebook)?;
+        if stop {
+            return Ok(summary);
         }
     }
-    summary
+    set_run_state(notebook, "complete", &summary);
+    destinations.save(notebook)?;
+    Ok(summary)
+}
+
+/// Run one cell under the panic guard; a panic becomes the cell's error.
+fn run_guarded(work: impl FnOnce() -> (Vec<Value>, CellOutcome)) -> (Vec<Value>, CellOutcome) {
+    cell_thread::guarded(work).unwrap_or_else(|what| {
+        let error = CellError { line: None, message: internal_error_message(&what) };
+        (Vec::new(), CellOutcome { error: Some(error), ..CellOutcome::default() })
+    })
+}
+
+/// Positions of the code cells.
+fn code_cell_indices(notebook: &Value) -> Vec<usize> {
+    let cells = notebook["cells"].as_array().map(Vec::as_slice).unwrap_or_default();
+    (0..cells.len()).filter(|&i| cells[i].get("cell_type").and_then(Value::as_str) == Some("code")).collect()
+}
+
+/// Empty every code cell's outputs and count: what the file held came from
+/// an earlier run and must not pass for this one's.
+fn clear_outputs(notebook: &mut Value) {
+    for index in code_cell_indices(notebook) {
+        let cell = &mut notebook["cells"][index];
+        cell["outputs"] = json!([]);
+        cell["execution_count"] = Value::Null;
+        if let Some(meta) = cell["metadata"].as_object_mut() {
+            meta.remove("waypath");
+        }
+    }
+}
+
+/// Record in the notebook's metadata how far the run got.
+fn set_run_state(notebook: &mut Value, state: &str, summary: &RunSummary) {
+    notebook["metadata"]["waypath"] =
+        json!({"run": state, "cells_run": summary.executed, "failed_cells": summary.failed_cells});
 }
 
 /// Run a `%%rust` cell; what it prints becomes nbformat stream outputs.
@@ -202,8 +296,8 @@ pub fn outputs_of(outcome: &CellOutcome, cell_number: usize, execution_count: u6
     outputs
 }
 
-/// Give every cell an `id` and set nbformat_minor to at least 5, with the
-/// Waypath kernelspec in the metadata.
+/// Give every cell an `id` and a metadata object, and set nbformat_minor
+/// to at least 5, with the Waypath kernelspec in the metadata.
 fn upgrade_to_4_5(notebook: &mut Value) {
     let minor = notebook.get("nbformat_minor").and_then(Value::as_u64).unwrap_or(0);
     notebook["nbformat_minor"] = json!(minor.max(5));
@@ -212,7 +306,7 @@ fn upgrade_to_4_5(notebook: &mut Value) {
             if cell.get("id").and_then(Value::as_str).is_none() {
                 cell["id"] = json!(format!("wp-cell-{:03}", i + 1));
             }
-            if cell.get("cell_type").and_then(Value::as_str) == Some("code") && cell.get("metadata").is_none() {
+            if !cell.get("metadata").is_some_and(Value::is_object) {
                 cell["metadata"] = json!({});
             }
         }

@@ -5,12 +5,16 @@
 //! `identities…, "<IDS|MSG>", signature, header, parent_header, metadata,
 //! content, buffers…`. The signature is the hex HMAC-SHA256, under the
 //! connection file's key, of the four JSON frames after it. Decoding refuses
-//! a message whose signature is missing or wrong, so nothing unsigned reaches
-//! the kernel; the caller logs and drops it. Everything here is synchronous
-//! and socket-free so it can be tested on bytes alone.
+//! a message whose signature is missing or wrong, and one whose signature was
+//! already seen (a replay, refused as jupyter_client's `Session` does), so
+//! nothing unsigned or repeated reaches the kernel; the caller logs and drops
+//! it. Everything here is synchronous and socket-free so it can be tested on
+//! bytes alone.
 
+use std::collections::{HashSet, VecDeque};
 use std::path::Path;
 use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{Arc, Mutex};
 use std::time::{SystemTime, UNIX_EPOCH};
 
 use hmac::{Hmac, KeyInit, Mac};
@@ -39,6 +43,8 @@ pub enum ProtocolError {
     TooFewFrames(usize),
     #[error("the message signature is missing or does not match the connection key")]
     BadSignature,
+    #[error("the message repeats the signature of an earlier message (a replay)")]
+    Replayed,
     #[error("the message's {part} frame is not valid JSON ({reason})")]
     BadJson { part: &'static str, reason: String },
 }
@@ -76,22 +82,62 @@ impl ConnectionInfo {
         Ok(info)
     }
 
-    /// The endpoint string (`tcp://127.0.0.1:5555`) of one port.
+    /// The endpoint string (`tcp://127.0.0.1:5555`, `tcp://[::1]:5555`) of
+    /// one port.
     pub fn endpoint(&self, port: u16) -> String {
-        format!("{}://{}:{}", self.transport, self.ip, port)
+        let ip = self.ip.trim();
+        let host = match ip.parse::<std::net::Ipv6Addr>() {
+            Ok(v6) => format!("[{v6}]"),
+            Err(_) => ip.to_string(),
+        };
+        format!("{}://{}:{}", self.transport, host, port)
     }
 }
 
+/// How many signatures are remembered to refuse replays (jupyter_client's
+/// `Session.digest_history_size` is 2^16 too).
+pub const REMEMBERED_SIGNATURES: usize = 1 << 16;
+
 /// Signs and checks messages with the connection key. An empty key means
-/// the client asked for no authentication (allowed by the protocol).
+/// the client asked for no authentication (allowed by the protocol); then
+/// nothing is signed and nothing can be checked for replay.
 #[derive(Clone)]
 pub struct Signer {
     key: Vec<u8>,
+    seen: Arc<Mutex<SeenSignatures>>,
+}
+
+/// The signatures of accepted messages, oldest forgotten first.
+#[derive(Default)]
+struct SeenSignatures {
+    set: HashSet<Vec<u8>>,
+    order: VecDeque<Vec<u8>>,
+}
+
+impl SeenSignatures {
+    /// Remember `signature`; false if it was already there.
+    fn insert(&mut self, signature: &[u8]) -> bool {
+        if !self.set.insert(signature.to_vec()) {
+            return false;
+        }
+        self.order.push_back(signature.to_vec());
+        if self.order.len() > REMEMBERED_SIGNATURES {
+            if let Some(oldest) = self.order.pop_front() {
+                self.set.remove(&oldest);
+            }
+        }
+        true
+    }
 }
 
 impl Signer {
     pub fn new(key: &str) -> Signer {
-        Signer { key: key.as_bytes().to_vec() }
+        Signer { key: key.as_bytes().to_vec(), seen: Arc::default() }
+    }
+
+    /// Whether messages are authenticated (the key is not empty).
+    pub fn authenticates(&self) -> bool {
+        !self.key.is_empty()
     }
 
     fn mac(&self, parts: &[&[u8]]) -> Option<Hmac<Sha256>> {
@@ -124,6 +170,22 @@ impl Signer {
             },
         }
     }
+
+    /// Accept an incoming message's signature: it must verify and must not
+    /// have been accepted before (by any channel sharing this signer). The
+    /// decoded bytes are remembered, so a signature spelled in other letter
+    /// cases is the same signature.
+    pub fn accept(&self, signature: &[u8], parts: &[&[u8]]) -> Result<(), ProtocolError> {
+        if !self.verify(signature, parts) {
+            return Err(ProtocolError::BadSignature);
+        }
+        if !self.authenticates() {
+            return Ok(());
+        }
+        let digest = hex::decode(signature).map_err(|_| ProtocolError::BadSignature)?;
+        let fresh = self.seen.lock().unwrap_or_else(|p| p.into_inner()).insert(&digest);
+        if fresh { Ok(()) } else { Err(ProtocolError::Replayed) }
+    }
 }
 
 /// One decoded message.
@@ -144,7 +206,8 @@ impl Message {
         self.header.get("msg_type").and_then(Value::as_str).unwrap_or("")
     }
 
-    /// Decode frames, refusing a message whose signature does not verify.
+    /// Decode frames, refusing a message whose signature does not verify or
+    /// repeats an accepted one.
     pub fn decode(frames: &[Vec<u8>], signer: &Signer) -> Result<Message, ProtocolError> {
         let split = frames.iter().position(|f| f == DELIMITER).ok_or(ProtocolError::NoDelimiter)?;
         let rest = &frames[split + 1..];
@@ -152,13 +215,11 @@ impl Message {
             return Err(ProtocolError::TooFewFrames(rest.len()));
         }
         let parts: Vec<&[u8]> = rest[1..5].iter().map(Vec::as_slice).collect();
-        if !signer.verify(&rest[0], &parts) {
-            return Err(ProtocolError::BadSignature);
-        }
         let json = |part: &'static str, bytes: &[u8]| {
             serde_json::from_slice::<Value>(bytes)
                 .map_err(|e| ProtocolError::BadJson { part, reason: e.to_string() })
         };
+        signer.accept(&rest[0], &parts)?;
         Ok(Message {
             identities: frames[..split].to_vec(),
             header: json("header", parts[0])?,
@@ -292,6 +353,75 @@ mod tests {
         let back = Message::decode(&msg.encode(&ours), &ours).expect("own signature verifies");
         assert_eq!(back.msg_type(), "kernel_info_request");
         assert_eq!(back.identities, vec![b"client".to_vec()]);
+    }
+
+    fn orchard_request(identity: &Identity) -> Message {
+        Message {
+            identities: vec![b"client".to_vec()],
+            header: identity.header("execute_request"),
+            parent_header: json!({}),
+            metadata: json!({}),
+            content: json!({"code": "graph g:\n    a -> b"}),
+            buffers: vec![],
+        }
+    }
+
+    #[test]
+    fn a_replayed_message_is_refused() {
+        // jupyter_client's Session.deserialize raises "Duplicate Signature"
+        // for a signature already in its digest history.
+        let signer = Signer::new("orchard-key");
+        let frames = orchard_request(&Identity::new()).encode(&signer);
+        assert!(Message::decode(&frames, &signer).is_ok());
+        assert!(matches!(Message::decode(&frames, &signer), Err(ProtocolError::Replayed)));
+        // The same signature in capitals is the same digest (hex is case-blind).
+        let mut shouted = frames.clone();
+        let at = shouted.iter().position(|f| f == DELIMITER).unwrap() + 1;
+        shouted[at] = shouted[at].to_ascii_uppercase();
+        assert!(matches!(Message::decode(&shouted, &signer), Err(ProtocolError::Replayed)));
+        // A clone (another channel of the same kernel) shares the history.
+        assert!(matches!(Message::decode(&frames, &signer.clone()), Err(ProtocolError::Replayed)));
+        // A new message (new msg_id) is accepted.
+        assert!(Message::decode(&orchard_request(&Identity::new()).encode(&signer), &signer).is_ok());
+    }
+
+    #[test]
+    fn the_oldest_signatures_are_forgotten_past_the_limit() {
+        let mut seen = SeenSignatures::default();
+        for i in 0..=REMEMBERED_SIGNATURES {
+            assert!(seen.insert(&(i as u64).to_be_bytes()));
+        }
+        assert_eq!(seen.set.len(), REMEMBERED_SIGNATURES);
+        assert!(seen.insert(&0u64.to_be_bytes()), "the oldest was forgotten");
+        assert!(!seen.insert(&(REMEMBERED_SIGNATURES as u64).to_be_bytes()), "the newest is kept");
+    }
+
+    #[test]
+    fn without_a_key_nothing_is_checked_for_replay() {
+        // jupyter_client checks signatures and digests only when `auth` is set.
+        let signer = Signer::new("");
+        let frames = orchard_request(&Identity::new()).encode(&signer);
+        assert!(Message::decode(&frames, &signer).is_ok());
+        assert!(Message::decode(&frames, &signer).is_ok());
+    }
+
+    #[test]
+    fn endpoints_bracket_ipv6_addresses() {
+        // RFC 3986 §3.2.2: an IPv6 literal in a URI authority is bracketed.
+        let info = |ip: &str| ConnectionInfo {
+            transport: "tcp".into(),
+            ip: ip.into(),
+            key: String::new(),
+            signature_scheme: default_scheme(),
+            shell_port: 1,
+            iopub_port: 2,
+            stdin_port: 3,
+            control_port: 4,
+            hb_port: 5,
+        };
+        assert_eq!(info("127.0.0.1").endpoint(5555), "tcp://127.0.0.1:5555");
+        assert_eq!(info("::1").endpoint(5555), "tcp://[::1]:5555");
+        assert_eq!(info("localhost").endpoint(80), "tcp://localhost:80");
     }
 
     #[test]

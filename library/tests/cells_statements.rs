@@ -178,3 +178,42 @@ fn malformed_headers_are_answered_with_their_documented_form() {
     let m = message(&mut session, "intervene j: set x 1 0, watch y");
     assert!(m.starts_with("cannot read `set x 1 0`; write `set X v1 vs v0`"), "{m}");
 }
+
+#[test]
+fn export_and_save_never_overwrite_a_file_the_session_read_as_data() {
+    let dir = std::env::temp_dir().join(format!("wp-cells-guard-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    orchard_csv(&dir);
+    std::fs::write(dir.join("orchard.dot"), "digraph orchard { girth -> yield; }\n").unwrap();
+    let before = std::fs::read(dir.join("trees.csv")).unwrap();
+    let mut session = Session::new(&dir);
+    let out = run(
+        &mut session,
+        "table trees from \"trees.csv\":\n    rootstock: category(dwarf, standard)\n    keep where girth > 0\n\
+         model m:\n    yield from rootstock using trees\nfit m with laplace seed 5\ngraph g from \"orchard.dot\"\n",
+    );
+    assert!(out.error.is_none(), "{:?}", out.error);
+    // The table's own CSV, spelled another way, and the DOT file read as a graph.
+    for (cell, line) in [
+        ("export m draws to \"./trees.csv\"\n", 1),
+        ("graph h:\n    a -> b\nsave figure to \"orchard.dot\"\n", 3),
+    ] {
+        let err = run(&mut session, cell).error.expect("writing over data is refused");
+        assert_eq!(err.line, Some(line), "{}", err.message);
+        assert!(err.message.contains("read as data"), "{}", err.message);
+    }
+    assert_eq!(std::fs::read(dir.join("trees.csv")).unwrap(), before, "the data file is untouched");
+    assert!(std::fs::read_to_string(dir.join("orchard.dot")).unwrap().starts_with("digraph"));
+    // Another name is written, whole, with no temporary file left beside it.
+    let out = run(&mut session, "export m draws to \"draws.csv\"\n");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let text = std::fs::read_to_string(dir.join("draws.csv")).unwrap();
+    assert!(text.starts_with("chain,draw,"), "{text}");
+    let leftovers: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with(".partial"))
+        .collect();
+    assert!(leftovers.is_empty(), "{leftovers:?}");
+}

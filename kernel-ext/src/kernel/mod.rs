@@ -12,8 +12,12 @@
 //! * stdin (ROUTER): bound; cells never ask for input.
 //! * heartbeat (REP): echoes.
 //!
-//! A message whose signature is missing or wrong is logged to stderr and
-//! dropped: it is never run and never answered.
+//! A message whose signature is missing, wrong or replayed is logged to
+//! stderr and dropped: it is never run and never answered. Every socket is
+//! bound to the connection file's address only, and refuses (before reserving
+//! memory for it) a message larger than [`KernelSettings::max_message_bytes`];
+//! the transport then drops that peer's connection. With an empty key
+//! (authentication off) the log says so once, at start.
 
 pub mod language;
 pub mod worker;
@@ -26,11 +30,27 @@ use serde_json::{json, Value};
 use tokio::sync::mpsc::{unbounded_channel, UnboundedReceiver};
 use tokio::sync::oneshot;
 use waypath::cells::Session;
-use zeromq::{PubSocket, RepSocket, RouterSocket, Socket, SocketRecv, SocketSend, ZmqMessage};
+use zeromq::{PubSocket, RepSocket, RouterSocket, Socket, SocketOptions, SocketRecv, SocketSend, ZmqMessage};
 
 use crate::protocol::{ConnectionInfo, Identity, Message, ProtocolError, Signer, PROTOCOL_VERSION};
 use worker::{Interrupter, Job, Publisher};
 
+/// The largest message a client may send unless `--max-message-mib` says
+/// otherwise: far above any cell or reply, far below what a machine holds.
+pub const DEFAULT_MAX_MESSAGE_BYTES: usize = 256 << 20;
+
+/// How the kernel is run, beyond the connection file.
+#[derive(Debug, Clone, Copy)]
+pub struct KernelSettings {
+    /// Largest incoming message (all frames) any socket accepts.
+    pub max_message_bytes: usize,
+}
+
+impl Default for KernelSettings {
+    fn default() -> Self {
+        KernelSettings { max_message_bytes: DEFAULT_MAX_MESSAGE_BYTES }
+    }
+}
 
 /// Why the kernel could not start or keep running.
 #[derive(Debug, thiserror::Error)]
@@ -39,19 +59,34 @@ pub enum KernelError {
     Protocol(#[from] ProtocolError),
     #[error("cannot listen on {endpoint}: {reason}; is another kernel using that port?")]
     Bind { endpoint: String, reason: String },
+    #[error("the connection file asks to listen on {endpoint}, which names no single address; give an IP address such as 127.0.0.1")]
+    Wildcard { endpoint: String },
     #[error("cannot start the kernel's runtime: {0}")]
     Runtime(#[from] std::io::Error),
 }
 
 /// Run the kernel for a connection file until a shutdown request.
-pub fn run_kernel(connection_file: &Path) -> Result<(), KernelError> {
+pub fn run_kernel(connection_file: &Path, settings: KernelSettings) -> Result<(), KernelError> {
     let info = ConnectionInfo::read(connection_file)?;
     let runtime = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
-    runtime.block_on(serve(info))
+    runtime.block_on(serve(info, settings))
 }
 
+/// The options every socket of the kernel is made with.
+fn socket_options(settings: KernelSettings) -> SocketOptions {
+    let mut options = SocketOptions::default();
+    options.max_message_size(settings.max_message_bytes);
+    options
+}
+
+/// Bind `socket` to the connection file's address and `port`, and nothing
+/// wider. `*` (every interface) names no address and is refused; an address
+/// the file spells out (even `0.0.0.0`) is the user's choice and is kept.
 async fn bind<S: Socket>(mut socket: S, info: &ConnectionInfo, port: u16) -> Result<S, KernelError> {
     let endpoint = info.endpoint(port);
+    if info.ip.trim() == "*" || info.ip.trim().is_empty() {
+        return Err(KernelError::Wildcard { endpoint });
+    }
     socket.bind(&endpoint).await.map_err(|e| KernelError::Bind { endpoint, reason: e.to_string() })?;
     Ok(socket)
 }
@@ -64,17 +99,26 @@ struct Kernel {
     interrupter: Interrupter,
 }
 
-async fn serve(info: ConnectionInfo) -> Result<(), KernelError> {
-    let shell = bind(RouterSocket::new(), &info, info.shell_port).await?;
-    let control = bind(RouterSocket::new(), &info, info.control_port).await?;
-    let stdin = bind(RouterSocket::new(), &info, info.stdin_port).await?;
-    let iopub = bind(PubSocket::new(), &info, info.iopub_port).await?;
-    let heartbeat = bind(RepSocket::new(), &info, info.hb_port).await?;
+async fn serve(info: ConnectionInfo, settings: KernelSettings) -> Result<(), KernelError> {
+    let options = || socket_options(settings);
+    let shell = bind(RouterSocket::with_options(options()), &info, info.shell_port).await?;
+    let control = bind(RouterSocket::with_options(options()), &info, info.control_port).await?;
+    let stdin = bind(RouterSocket::with_options(options()), &info, info.stdin_port).await?;
+    let iopub = bind(PubSocket::with_options(options()), &info, info.iopub_port).await?;
+    let heartbeat = bind(RepSocket::with_options(options()), &info, info.hb_port).await?;
     let signer = Signer::new(&info.key);
+    if !signer.authenticates() {
+        eprintln!(
+            "waypath kernel: warning: the connection file's key is empty, so messages are not \
+             authenticated; anyone who can reach {} can run cells. Start the kernel from Jupyter \
+             (which writes a key) to turn authentication on.",
+            info.ip
+        );
+    }
     let (iopub_tx, iopub_rx) = unbounded_channel();
     let publisher = Publisher { identity: Arc::new(Identity::new()), iopub: iopub_tx };
     let kernel = Kernel { signer: signer.clone(), publisher, interrupter: Interrupter::default() };
-    let jobs = worker::spawn(Session::new(working_dir()), kernel.publisher.clone(), kernel.interrupter.clone());
+    let jobs = worker::spawn(Session::new(working_dir()), kernel.publisher.clone(), kernel.interrupter.clone())?;
     tokio::spawn(send_iopub(iopub, iopub_rx, signer));
     tokio::spawn(echo_heartbeat(heartbeat));
     tokio::spawn(interrupt_on_sigint(kernel.interrupter.clone()));

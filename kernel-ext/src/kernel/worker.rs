@@ -2,10 +2,12 @@
 //! history, and answers every shell request that reads or changes them.
 //!
 //! Cells run here, off the async runtime, so the control channel and the
-//! heartbeat stay responsive during a long fit. Outputs are broadcast on
-//! IOPub as they come through a channel that the IOPub task drains in order.
+//! heartbeat stay responsive during a long fit. The thread has the large
+//! stack of [`crate::cell_thread`], and every request it answers (execute,
+//! complete, inspect, is_complete, history) runs under a panic guard, so no
+//! request can end the thread. Outputs are broadcast on IOPub as they come
+//! through a channel that the IOPub task drains in order.
 
-use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{mpsc, Arc, Mutex};
 use std::time::{Duration, Instant};
@@ -15,6 +17,7 @@ use tokio::sync::{mpsc::UnboundedSender, oneshot};
 use waypath::cells::{CellError, CellOutcome, RunControl, Session};
 
 use super::language::{self, HistoryEntry};
+use crate::cell_thread::{self, internal_error_message};
 use crate::notebook::outputs_of;
 use crate::protocol::{Identity, Message};
 use crate::rust_cells::{rust_source, RustCells, RustInterrupt, StreamName};
@@ -78,25 +81,42 @@ struct Worker {
 }
 
 /// Start the execution thread; it ends when the job sender is dropped.
-pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -> mpsc::Sender<Job> {
+/// Fails only when the system cannot give the thread its stack.
+pub fn spawn(session: Session, publisher: Publisher, interrupter: Interrupter) -> std::io::Result<mpsc::Sender<Job>> {
     let (jobs, inbox) = mpsc::channel::<Job>();
-    std::thread::Builder::new()
-        .name("waypath-cells".into())
-        .spawn(move || {
-            let rust = RustCells::new();
-            *interrupter.rust.lock().unwrap_or_else(|p| p.into_inner()) = Some(rust.interrupter());
-            let mut worker = Worker { session, rust, execution_count: 0, history: Vec::new(), publisher, interrupter };
-            for job in inbox {
-                let reply = worker.answer(&job.request);
-                let _ = job.reply.send(reply);
-            }
-        })
-        .expect("the operating system can start a thread");
-    jobs
+    cell_thread::spawn("waypath-cells", move || {
+        let rust = RustCells::new();
+        *interrupter.rust.lock().unwrap_or_else(|p| p.into_inner()) = Some(rust.interrupter());
+        let mut worker = Worker { session, rust, execution_count: 0, history: Vec::new(), publisher, interrupter };
+        for job in inbox {
+            let reply = worker.answer(&job.request);
+            let _ = job.reply.send(reply);
+        }
+    })?;
+    Ok(jobs)
 }
 
 impl Worker {
+    /// Answer one request; a panic while answering becomes an error reply,
+    /// so no request can end this thread. (Execute also guards its cell on
+    /// its own, so a failing cell still gets its count and history entry.)
     fn answer(&mut self, request: &Message) -> Message {
+        match cell_thread::guarded(|| self.answer_unguarded(request)) {
+            Ok(reply) => reply,
+            Err(what) => {
+                let kind = request.msg_type().replace("_request", "_reply");
+                let message = format!("the {} stopped on an internal error ({what}); the session is kept", request.msg_type());
+                self.publisher.identity.reply(
+                    request,
+                    &kind,
+                    json!({"status": "error", "execution_count": self.execution_count, "ename": "WaypathError",
+                           "evalue": message, "traceback": [message]}),
+                )
+            }
+        }
+    }
+
+    fn answer_unguarded(&mut self, request: &Message) -> Message {
         let identity = self.publisher.identity.clone();
         let content = &request.content;
         let cursor = content["cursor_pos"].as_u64().unwrap_or(0) as usize;
@@ -179,28 +199,18 @@ impl Worker {
         };
         let progress = Progress::new(&self.publisher, parent, silent);
         let cancel = self.interrupter.cancel.clone();
-        let outcome = catch_unwind(AssertUnwindSafe(|| match rust_source(code) {
+        let outcome = cell_thread::guarded(|| match rust_source(code) {
             Some(rust) => self.rust.run(rust, &mut self.session, &sink),
             None => {
                 let report = |line: &str| progress.report(line);
                 let control = RunControl { cancel: &cancel, progress: &report };
                 self.session.run_cell(code, &control)
             }
-        }));
+        });
         progress.finish();
-        outcome.unwrap_or_else(|panic| {
-            let what = panic
-                .downcast_ref::<String>()
-                .cloned()
-                .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
-                .unwrap_or_else(|| "an internal error".into());
-            CellOutcome {
-                error: Some(CellError {
-                    line: None,
-                    message: format!("the cell stopped on an internal error ({what}); the session is kept, please report this cell"),
-                }),
-                ..CellOutcome::default()
-            }
+        outcome.unwrap_or_else(|what| CellOutcome {
+            error: Some(CellError { line: None, message: internal_error_message(&what) }),
+            ..CellOutcome::default()
         })
     }
 

@@ -13,6 +13,7 @@
 //! notebooks; the kernel and the headless runner only move bytes in and out.
 
 pub mod figures;
+pub mod files;
 pub mod format;
 pub mod output;
 pub mod parse;

@@ -256,6 +256,18 @@ mod tests {
     }
 
     #[test]
+    fn a_grid_cell_longer_than_any_format_width_is_shown_whole() {
+        // std::fmt takes widths up to u16::MAX (65,535); this cell is longer.
+        let long = "-".repeat(70_000);
+        let mut g = Grid::new(&["node", "mechanism"]);
+        g.push(vec!["girth".into(), long.clone()]);
+        g.push(vec!["yield".into(), "normal(girth, 1)".into()]);
+        let text = g.to_text();
+        assert!(text.lines().nth(2).unwrap().ends_with(&long));
+        assert!(text.lines().nth(3).unwrap().starts_with("yield  normal(girth, 1)"));
+    }
+
+    #[test]
     fn grid_aligns_numbers_right_and_text_left() {
         let mut g = Grid::new(&["level", "mean"]).numeric_columns(&[1]);
         g.push(vec!["dwarf".into(), "1.5".into()]);

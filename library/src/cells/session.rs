@@ -4,6 +4,7 @@ use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
 
+use super::files::DataFiles;
 use super::output::{CellError, CellOutcome};
 use super::parse::split_statements;
 use super::statements;
@@ -46,6 +47,8 @@ pub struct Session {
     pub(crate) simulations: BTreeMap<String, SimulationRecord>,
     /// The most recent figure any statement drew, for `save figure`.
     pub(crate) last_figure: Option<String>,
+    /// The files read as data (tables, DOT graphs): never written over.
+    pub(crate) data_files: DataFiles,
 }
 
 impl Session {
@@ -63,6 +66,19 @@ impl Session {
     pub fn resolve(&self, path: &str) -> PathBuf {
         let p = Path::new(path);
         if p.is_absolute() { p.to_path_buf() } else { self.base_dir.join(p) }
+    }
+
+    /// Resolve a path a statement on cell line `line` will write, refusing
+    /// a file this session read as data.
+    pub(crate) fn output_path(&self, path: &str, line: usize) -> Result<PathBuf, CellError> {
+        let file = self.resolve(path);
+        match self.data_files.overwritten_by(&file) {
+            Some(data) => Err(CellError::at(
+                line,
+                format!("{path} is {}, which this session read as data; write to another file name", data.display()),
+            )),
+            None => Ok(file),
+        }
     }
 
     pub fn table(&self, name: &str) -> Option<&Table> {

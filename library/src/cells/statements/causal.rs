@@ -40,6 +40,7 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
                 format!("the DOT file {path} holds {} bytes, more than the {MAX_DOT_BYTES} a graph file may have; check that it is the right file", size),
             ));
         }
+        session.data_files.remember(&file);
         let text = std::fs::read_to_string(&file).map_err(|e| {
             CellError::at(st.header.number, format!("cannot read the DOT file {path} ({e})"))
         })?;

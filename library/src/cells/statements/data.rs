@@ -11,6 +11,7 @@ use crate::table::{load_table_with_cancel, parse_table_line, summary_json, LoadR
 pub(crate) fn table(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let (name, path) = parse_header(st.head()).ok_or_else(|| form_error(st, TABLE.usage))?;
     let mut spec = TableSpec::new(name, session.resolve(path));
+    session.data_files.remember(&spec.path);
     for line in &st.body {
         let rule = parse_table_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
         spec.add_rule(rule).map_err(|e| CellError::at(line.number, e.to_string()))?;

@@ -8,6 +8,7 @@ use super::data::is_name;
 use super::grammar::{EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, SHOW};
 use super::{form_error, header, option_text, unquote};
 use crate::cells::figures;
+use crate::cells::files::write_atomically;
 use crate::cells::format::num;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
@@ -282,12 +283,11 @@ pub(crate) fn export(session: &mut Session, st: &Statement) -> Result<Vec<Displa
     let ([name, path], _) = header(st, &EXPORT)?;
     let path = unquote(path).ok_or_else(|| form_error(st, EXPORT.usage))?;
     let fit = require_fit(session, name, st.header.number)?;
-    let file = session.resolve(path);
-    let out = std::fs::File::create(&file)
-        .map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
-    fit.draws
-        .write_csv(std::io::BufWriter::new(out))
-        .map_err(|e| CellError::at(st.header.number, format!("writing {path}: {e}")))?;
+    let file = session.output_path(path, st.header.number)?;
+    let mut csv = Vec::new();
+    fit.draws.write_csv(&mut csv).map_err(|e| CellError::at(st.header.number, format!("writing {path}: {e}")))?;
+    write_atomically(&file, &csv)
+        .map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e}); check that its folder exists and is writable")))?;
     let text = format!(
         "exported {} draws of {} parameters of {name} to {path} (columns: chain, draw, {})",
         fit.draws.len(),

@@ -8,6 +8,7 @@ pub mod grammar;
 mod questions;
 mod simulation;
 
+use super::files::write_atomically;
 use super::output::{CellError, Display};
 use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
@@ -97,7 +98,8 @@ fn save_figure(session: &mut Session, st: &Statement) -> Result<Vec<Display>, Ce
     let svg = session.last_figure.clone().ok_or_else(|| {
         CellError::at(st.header.number, "no figure has been drawn in this session yet; run a statement that draws one first")
     })?;
-    let file = session.resolve(path);
-    std::fs::write(&file, &svg).map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e})")))?;
+    let file = session.output_path(path, st.header.number)?;
+    write_atomically(&file, svg.as_bytes())
+        .map_err(|e| CellError::at(st.header.number, format!("cannot write {path} ({e}); check that its folder exists and is writable")))?;
     Ok(vec![Display::text(format!("saved the latest figure ({} KB) to {path}", svg.len().div_ceil(1024)))])
 }
