@@ -182,13 +182,10 @@ SIZE_CELLS = {
 }
 
 
-# The refusals are the library's side of issue 12 (size limits, interrupt
-# in library loops, range checks). Until that lands these cases end the
-# kernel or pass silently; strict: once they pass, drop the mark.
-LIBRARY_SIDE = pytest.mark.xfail(strict=True, reason="library side of issue 12 (size limits, interrupt, linear checks) not merged yet")
-
-
-@pytest.mark.parametrize("case", [pytest.param(c, marks=LIBRARY_SIDE) for c in sorted(SIZE_CELLS)])
+# The refusals come from the library's side of issue 12 (size limits,
+# interrupt in library loops, range checks); before it these cases ended the
+# kernel or passed silently.
+@pytest.mark.parametrize("case", sorted(SIZE_CELLS))
 def test_unbounded_sizes_end_as_clear_errors(own_kernel, case):
     km, kc, _ = own_kernel
     reply = execute(km, kc, SIZE_CELLS[case])
@@ -215,8 +212,7 @@ LONG_CELLS = {
 }
 
 
-@pytest.mark.parametrize("case", [pytest.param(c, marks=[] if c == "NUTS sampling" else LIBRARY_SIDE)
-                                  for c in sorted(LONG_CELLS)])
+@pytest.mark.parametrize("case", sorted(LONG_CELLS))
 def test_interrupt_ends_a_long_statement_and_keeps_the_session(own_kernel, case):
     km, kc, _ = own_kernel
     code = LONG_CELLS[case]
@@ -241,7 +237,6 @@ def test_interrupt_ends_a_long_statement_and_keeps_the_session(own_kernel, case)
     assert_still_serving(km, kc)
 
 
-@LIBRARY_SIDE
 def test_a_csv_with_100000_columns_loads_within_seconds(own_kernel):
     # Issue 12, section 6: the duplicate-header check was quadratic (36 s).
     km, kc, work = own_kernel
