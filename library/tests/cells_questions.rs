@@ -450,6 +450,10 @@ fn a_total_effect_the_graph_calls_zero_is_not_estimated_from_an_association() {
     let c = &json["contrasts"][0];
     let (lo, hi) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
     assert!((lo..=hi).contains(&TRUE_EFFECT) && hi < 0.75, "[{lo}, {hi}]");
+    // Route comparison says the same zero rather than "no adjustment set".
+    let json = last_json(&mut session, "compare routes for total effect of x on y in r using field with laplace seed 3");
+    assert_eq!(json["zero_by_graph"].as_bool(), Some(true), "{json}");
+    assert!(json["adjustment"].is_null(), "{json}");
 }
 
 /// A bernoulli outcome through a mediator: x -> m -> y and x -> y, with

@@ -388,9 +388,15 @@ pub(crate) fn compare_routes(
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let Some(adjustment) = answer.contrasts.first() else {
-        let heading = format!("total effect of {x} on {y} in {g}: no adjustment set exists, so there is no adjustment route to compare");
+        let zero = answer.identification.zero_by_graph;
+        let heading = if zero {
+            format!("total effect of {x} on {y} in {g}: zero by the graph ({x} is not an ancestor of {y}), so there are no routes to compare")
+        } else {
+            format!("total effect of {x} on {y} in {g}: no adjustment set exists, so there is no adjustment route to compare")
+        };
         let (plain, html) = render(&heading, &[], &[], &answer.why);
-        let json = json!({"question": answer.question, "identifiable": false, "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
+        let json = json!({"question": answer.question, "identifiable": answer.identification.identifiable, "zero_by_graph": zero,
+                          "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
