@@ -101,7 +101,9 @@ pub fn fit_model(
     let names = model.parameter_names();
     let (run, max_depth) = match method {
         Method::Laplace { draws, seed } => match model.normal_linear().and_then(|p| normal_exact_draws(&p, *draws, *seed)) {
-            Some(exact) => (Err(exact), 0),
+            // The exact route is one short pass; the interrupt is read after it.
+            Some(exact) if !cancelled(cancel) => (Err(exact), 0),
+            Some(_) => return Err(InferError::Cancelled.into()),
             None => {
                 let fit = laplace_with_cancel(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed, cancel)?;
                 (Err(fit.draws), 0)
@@ -136,6 +138,10 @@ pub fn fit_model(
         warnings,
         seconds: started.elapsed().as_secs_f64(),
     })
+}
+
+fn cancelled(cancel: &AtomicBool) -> bool {
+    cancel.load(std::sync::atomic::Ordering::SeqCst)
 }
 
 /// Refuse a fit whose draws (or, for Laplace, curvature matrices) would not
