@@ -360,7 +360,8 @@ mod tests {
             ("ask ", &["direct", "total"]),
             ("ask total effect ", &["of"]),
             ("ask total effect of x on y in g ", &["using"]),
-            ("ask total effect of x on y in g using t ", &["with"]),
+            // README: `ask … using T [checking zero] [at M v, …] [with …]`.
+            ("ask total effect of x on y in g using t ", &["at", "checking", "with"]),
             ("implications of g ", &["checked"]),
             ("implications of g checked ", &["against"]),
             ("joint j ", &["="]),
