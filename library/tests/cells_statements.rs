@@ -68,6 +68,22 @@ fn errors_name_the_cell_line_of_the_body() {
     let out = run(&mut session, "graph g:\n    a -> b\n    b -> -> c\n");
     let err = out.error.expect("a malformed edge line is an error");
     assert_eq!(err.line, Some(3));
+    assert!(!err.message.contains("line"), "one line number, the cell's: {}", err.describe());
+}
+
+#[test]
+fn every_bad_line_of_a_graph_body_is_reported_at_once() {
+    let mut session = Session::new(".");
+    let out = run(&mut session, "graph g:\n    a -> b\n    b -> -> c\n    c - d\n    x -> y\n    y <- z\n");
+    let err = out.error.expect("malformed edge lines are an error");
+    assert_eq!(err.line, Some(3), "placed at the first bad line");
+    let text = err.describe();
+    assert!(!text.contains('\n'), "one line: {text}");
+    for (n, shown) in [(3, "`b -> -> c`"), (4, "`c - d`"), (6, "`y <- z`")] {
+        assert!(text.contains(&format!("line {n} {shown}")), "line {n} missing from: {text}");
+    }
+    assert!(text.contains("3 body lines"), "{text}");
+    assert!(!text.contains("line 5"), "a good line is not listed: {text}");
 }
 
 #[test]

@@ -86,7 +86,7 @@ pub fn calibrate_with_progress(
         .map_err(QueryError::request)?;
     let rows = model.fitted_rows();
     let mut ranks = vec![Vec::with_capacity(reps); names.len()];
-    let mut failures = 0;
+    let mut failed: Vec<(usize, String)> = Vec::new();
     let mut draws_per_fit = 0;
     for r in 0..reps {
         QueryError::stop_if(cancel, &place)?;
@@ -96,9 +96,12 @@ pub fn calibrate_with_progress(
         let y = model.outcome_draw(&truth, &rows, &mut rng)?;
         let refit = model.with_outcome(y)?;
         let rep_method = reseeded(method, stream_seed(seed, r as u64, 4));
-        let Ok(fit) = fit_model(&refit, &rep_method, cancel, &|_| {}) else {
-            failures += 1;
-            continue;
+        let fit = match fit_model(&refit, &rep_method, cancel, &|_| {}) {
+            Ok(fit) => fit,
+            Err(e) => {
+                failed.push((r + 1, e.to_string()));
+                continue;
+            }
         };
         let kept = thinned(&parameter_rows(model, &fit.draws)?);
         draws_per_fit = kept.len();
@@ -117,8 +120,9 @@ pub fn calibrate_with_progress(
     let mut notes = vec![format!(
         "ranks among {draws_per_fit} posterior draws, {BINS} bins; a p-value far below 0.01 for a parameter says its posterior is off"
     )];
+    let failures = failed.len();
     if failures > 0 {
-        notes.push(format!("{failures} of {reps} refits failed and were left out; the ranks of the rest may be biased"));
+        notes.push(failure_note(reps, &failed));
     }
     if parameters.iter().any(|p| p.p_value.is_none()) {
         notes.push(format!(
@@ -139,6 +143,39 @@ pub fn calibrate_with_progress(
         parameters,
         notes,
     })
+}
+
+/// Distinct reasons shown for failed refits.
+const REASONS_SHOWN: usize = 3;
+
+/// How many refits failed and why: each distinct reason once, with the
+/// replications it stopped (the first few of them).
+fn failure_note(reps: usize, failed: &[(usize, String)]) -> String {
+    let mut reasons: Vec<(&str, Vec<usize>)> = Vec::new();
+    for (rep, reason) in failed {
+        match reasons.iter_mut().find(|(r, _)| r == reason) {
+            Some((_, reps)) => reps.push(*rep),
+            None => reasons.push((reason, vec![*rep])),
+        }
+    }
+    let mut said: Vec<String> = reasons
+        .iter()
+        .take(REASONS_SHOWN)
+        .map(|(reason, which)| {
+            let listed: Vec<String> = which.iter().take(5).map(usize::to_string).collect();
+            let more = if which.len() > 5 { format!(" and {} more", which.len() - 5) } else { String::new() };
+            let label = if which.len() == 1 { "replication" } else { "replications" };
+            format!("{label} {}{more}: {reason}", listed.join(", "))
+        })
+        .collect();
+    if reasons.len() > REASONS_SHOWN {
+        said.push(format!("{} other reasons", reasons.len() - REASONS_SHOWN));
+    }
+    format!(
+        "{} of {reps} refits failed and were left out ({}); the ranks of the rest may be biased",
+        failed.len(),
+        said.join("; ")
+    )
 }
 
 /// One draw of every parameter from its prior, in parameter order.
@@ -244,4 +281,23 @@ pub fn posterior_predictive(model: &Model, draws: &Draws, table: &Table, sets: u
         })
         .collect::<Result<_, QueryError>>()?;
     Ok(PredictiveSets { model: model.name().into(), kind: "posterior".into(), seed, observed: model.outcome_values().to_vec(), replicated })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::failure_note;
+
+    #[test]
+    fn a_failed_refit_note_gives_each_reason_once_with_its_replications() {
+        let failed = vec![
+            (3, "the step size fell to zero".to_string()),
+            (7, "the mode search did not converge".to_string()),
+            (9, "the step size fell to zero".to_string()),
+        ];
+        let note = failure_note(30, &failed);
+        assert!(note.starts_with("3 of 30 refits failed"), "{note}");
+        assert!(note.contains("replications 3, 9: the step size fell to zero"), "{note}");
+        assert!(note.contains("replication 7: the mode search did not converge"), "{note}");
+        assert_eq!(note.matches("the step size fell to zero").count(), 1, "{note}");
+    }
 }

@@ -190,6 +190,22 @@ impl Simulation {
         Ok(mean(&under_to) - mean(&under_from))
     }
 
+    /// Parents in the graph that a node's mechanism does not read, as
+    /// `(node, cell line, unused parents)`: the simulated data then carry no
+    /// effect along an edge the graph draws, which is rarely what was meant.
+    pub fn unused_parents(&self) -> Result<Vec<(String, usize, Vec<String>)>, QueryError> {
+        let mut found = Vec::new();
+        for m in &self.nodes {
+            let used: Vec<String> = m.mechanism.uses().into_iter().map(|(name, _)| name).collect();
+            let unused: Vec<String> =
+                self.graph.parents(&m.node)?.into_iter().filter(|p| !used.iter().any(|u| u == p)).map(str::to_string).collect();
+            if !unused.is_empty() {
+                found.push((m.node.clone(), m.line, unused));
+            }
+        }
+        Ok(found)
+    }
+
     /// The node's mechanism, if it has one.
     pub fn mechanism(&self, node: &str) -> Option<&Mechanism> {
         self.nodes.iter().find(|m| m.node == node).map(|m| &m.mechanism)

@@ -4,6 +4,8 @@
 //! one JSON shape the cells module renders. Wording and layout belong to the
 //! cells module, not here.
 
+use std::collections::HashMap;
+
 use serde::Serialize;
 use serde_json::{json, Value};
 
@@ -46,6 +48,11 @@ pub struct LoadReport {
 }
 
 impl LoadReport {
+    /// Each column's report by name, for lookups that stay linear in wide tables.
+    pub fn by_name(&self) -> HashMap<&str, &ColumnReport> {
+        self.columns.iter().map(|c| (c.name.as_str(), c)).collect()
+    }
+
     /// Columns whose kind was inferred, so the cell can show the schema it guessed.
     pub fn inferred(&self) -> impl Iterator<Item = &ColumnReport> {
         self.columns.iter().filter(|c| c.inferred)
@@ -75,15 +82,12 @@ impl LoadReport {
 /// missing before any row was dropped (0 for a column the report does not
 /// know); `dropped` is the rows left out by `drop missing` and filters.
 pub fn summary_json(table: &Table, report: &LoadReport) -> Value {
+    let reports = report.by_name();
     let columns: Vec<Value> = table
         .columns
         .iter()
         .map(|column| {
-            let missing = report
-                .columns
-                .iter()
-                .find(|c| c.name == column.name)
-                .map_or(0, |c| c.missing);
+            let missing = reports.get(column.name.as_str()).map_or(0, |c| c.missing);
             json!({
                 "name": column.name,
                 "kind": column.data.kind().name(),

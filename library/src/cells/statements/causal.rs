@@ -10,7 +10,7 @@ use crate::cells::figures::{self, GraphMarks};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::{split_commas, Statement};
 use crate::cells::session::{RunControl, Session};
-use crate::graph::{from_dot, Graph, GraphBuilder, Identification, PathListing};
+use crate::graph::{from_dot, Graph, GraphBuilder, GraphError, Identification, PathListing};
 
 /// The most edges a graph's description lists one by one.
 const LISTED_EDGES: usize = figures::FIGURE_EDGES;
@@ -19,6 +19,34 @@ const LISTED_EDGES: usize = figures::FIGURE_EDGES;
 /// bigger one is most likely the wrong file).
 const MAX_DOT_BYTES: u64 = 64 << 20;
 
+/// The most unreadable body lines one error lists by name.
+const BAD_LINES_LISTED: usize = 10;
+
+/// What is wrong with one body line, without the builder's own line count
+/// (the cell line is the one number the scientist sees).
+fn body_line_problem(error: GraphError) -> String {
+    match error {
+        GraphError::Line { text, problem, .. } => format!("`{text}`: {problem}"),
+        other => other.to_string(),
+    }
+}
+
+/// One error for every unreadable body line, placed at the first of them.
+fn bad_lines_error(graph: &str, bad: &[(usize, String)]) -> Option<CellError> {
+    let (first_line, first_problem) = bad.first()?;
+    if bad.len() == 1 {
+        return Some(CellError::at(*first_line, format!("graph {graph}: {first_problem}")));
+    }
+    let mut listed: Vec<String> = bad.iter().take(BAD_LINES_LISTED).map(|(n, p)| format!("line {n} {p}")).collect();
+    if bad.len() > BAD_LINES_LISTED {
+        listed.push(format!("and {} more", bad.len() - BAD_LINES_LISTED));
+    }
+    Some(CellError::at(
+        *first_line,
+        format!("graph {graph} has {} body lines it cannot read: {}", bad.len(), listed.join("; ")),
+    ))
+}
+
 /// `graph NAME:` with a body of edges, or `graph NAME from "FILE.dot"`.
 pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let graph = if let Some(([name], _)) = GRAPH.read_n(st.head()).ok().filter(|([name], _)| is_name(name) && st.expects_body()) {
@@ -26,8 +54,14 @@ pub(crate) fn graph(session: &mut Session, st: &Statement) -> Result<Vec<Display
             return Err(CellError::at(st.header.number, format!("graph {name} has no edges; list them indented below the header")));
         }
         let mut builder = GraphBuilder::new(name);
+        let mut bad_lines = Vec::new();
         for line in &st.body {
-            builder.add_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
+            if let Err(e) = builder.add_line(&line.text) {
+                bad_lines.push((line.number, body_line_problem(e)));
+            }
+        }
+        if let Some(error) = bad_lines_error(name, &bad_lines) {
+            return Err(error);
         }
         builder.finish().map_err(|e| CellError::at(st.header.number, e.to_string()))?
     } else if let Some(([name, raw], _)) = GRAPH_FILE.read_n(st.head()).ok().filter(|([name, _], _)| is_name(name) && !st.expects_body()) {

@@ -44,7 +44,7 @@ pub(crate) fn is_name(s: &str) -> bool {
 pub(crate) fn describe_loaded(table: &Table) -> Display {
     let heading = format!("table {}: {} rows × {} columns", table.name, table.nrows(), table.columns.len());
     let mut grid = Grid::new(&["column", "kind", "unit", "levels (in order)"]);
-    for column in &table.columns {
+    for column in table.columns.iter().take(COLUMNS_SHOWN) {
         grid.push(vec![
             column.name.clone(),
             column.data.kind().name().to_string(),
@@ -58,9 +58,14 @@ pub(crate) fn describe_loaded(table: &Table) -> Display {
         .map(|c| serde_json::json!({"name": c.name, "kind": c.data.kind().name(), "levels": c.data.levels(), "missing": 0}))
         .collect();
     let json = serde_json::json!({"name": table.name, "rows": table.nrows(), "columns": columns, "dropped": 0});
+    let notes: Vec<String> = columns_not_shown(table).into_iter().collect();
+    let mut plain = format!("{heading}\n{}", grid.to_text());
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
     Display {
-        plain: format!("{heading}\n{}", grid.to_text()),
-        html: Some(html_block(&heading, &[grid.to_html()])),
+        plain,
+        html: Some(html_block(&heading, &[grid.to_html(), if notes.is_empty() { String::new() } else { html_list(&notes) }])),
         svg: None,
         json: Some(json),
     }
@@ -75,8 +80,9 @@ fn describe(table: &Table, report: &LoadReport) -> Display {
         report.source
     );
     let mut grid = Grid::new(&["column", "kind", "unit", "levels (in order)", "missing", "kind was"]).numeric_columns(&[4]);
-    for column in &table.columns {
-        let col_report = report.columns.iter().find(|c| c.name == column.name);
+    let reports = report.by_name();
+    for column in table.columns.iter().take(COLUMNS_SHOWN) {
+        let col_report = reports.get(column.name.as_str());
         grid.push(vec![
             column.name.clone(),
             column.data.kind().name().to_string(),
@@ -86,7 +92,8 @@ fn describe(table: &Table, report: &LoadReport) -> Display {
             if col_report.is_some_and(|c| c.inferred) { "inferred" } else { "declared" }.to_string(),
         ]);
     }
-    let notes = load_notes(report);
+    let mut notes = load_notes(report);
+    notes.extend(columns_not_shown(table));
     let mut plain = format!("{heading}\n{}", grid.to_text());
     for n in &notes {
         plain.push_str(&format!("\n• {n}"));
@@ -97,6 +104,17 @@ fn describe(table: &Table, report: &LoadReport) -> Display {
         svg: None,
         json: Some(summary_json(table, report)),
     }
+}
+
+/// Columns listed in a table's written summary; the JSON lists them all.
+const COLUMNS_SHOWN: usize = 200;
+
+/// The sentence that says how many columns the written summary leaves out.
+fn columns_not_shown(table: &Table) -> Option<String> {
+    let hidden = table.columns.len().saturating_sub(COLUMNS_SHOWN);
+    (hidden > 0).then(|| {
+        format!("the list above shows the first {COLUMNS_SHOWN} columns; {hidden} more are in the table (every column is in the result's JSON)")
+    })
 }
 
 /// Level labels in order; long lists show the first few and the count.
@@ -113,12 +131,13 @@ fn level_list(levels: &[String]) -> String {
 fn load_notes(report: &LoadReport) -> Vec<String> {
     let mut notes = vec![format!("{} data rows read", report.rows_read)];
     if report.dropped_missing > 0 {
-        let by_column: Vec<String> = report
-            .columns
-            .iter()
-            .filter(|c| c.missing > 0)
-            .map(|c| format!("{} in {}", c.missing, c.name))
-            .collect();
+        const NAMED: usize = 20;
+        let with_missing: Vec<_> = report.columns.iter().filter(|c| c.missing > 0).collect();
+        let mut by_column: Vec<String> =
+            with_missing.iter().take(NAMED).map(|c| format!("{} in {}", c.missing, c.name)).collect();
+        if with_missing.len() > NAMED {
+            by_column.push(format!("and {} more columns", with_missing.len() - NAMED));
+        }
         notes.push(format!(
             "drop missing: {} rows left out (missing values: {})",
             report.dropped_missing,

@@ -30,8 +30,8 @@ use crate::model::{Input, Model};
 use crate::plot::{DensityArrangement, ParameterDraws, Quantity};
 use crate::query::{
     build_joint, calibrate_with_progress, fit_joint_with_progress, parse_mechanism_line, posterior_predictive,
-    prior_predictive, recover_fitted, ContrastRequest, ContrastSummary, InterventionRequest, NodeModel, Simulation,
-    SimulationSettings,
+    prior_predictive, recover_fitted, ContrastRequest, ContrastSummary, InterventionRequest, Mechanism, NodeModel,
+    QueryError, Simulation, SimulationSettings,
 };
 use crate::table::ColumnData;
 
@@ -331,12 +331,17 @@ pub(crate) fn simulate(session: &mut Session, st: &Statement, control: &RunContr
         let hidden = graph.is_hidden(node).unwrap_or(false);
         grid.push(vec![node.clone(), text.clone(), if hidden { "no (hidden)" } else { "yes" }.to_string()]);
     }
-    let note = format!("simulated from graph {g} with seed {seed}: each node from its own random stream, in causal order; hidden nodes are generated but left out of the table");
-    display.plain = format!("{}\nmechanisms:\n{}\n• {note}", display.plain, grid.to_text());
+    let warnings = unused_parent_warnings(&simulation, g).map_err(|e| query_error(e, line))?;
+    let mut notes: Vec<String> = warnings.iter().map(|w| format!("warning: {w}")).collect();
+    notes.push(format!("simulated from graph {g} with seed {seed}: each node from its own random stream, in causal order; hidden nodes are generated but left out of the table"));
+    display.plain = format!("{}\nmechanisms:\n{}", display.plain, grid.to_text());
+    for n in &notes {
+        display.plain.push_str(&format!("\n• {n}"));
+    }
     display.html = Some(format!(
         "{}{}",
         display.html.unwrap_or_default(),
-        crate::cells::output::html_block("mechanisms", &[grid.to_html(), crate::cells::output::html_list(&[note])])
+        crate::cells::output::html_block("mechanisms", &[grid.to_html(), crate::cells::output::html_list(&notes)])
     ));
     if let Some(Value::Object(map)) = display.json.as_mut() {
         map.insert("graph".into(), json!(g));
@@ -346,10 +351,30 @@ pub(crate) fn simulate(session: &mut Session, st: &Statement, control: &RunContr
             .map(|(n, m)| json!({"node": n, "mechanism": m, "hidden": graph.is_hidden(n).unwrap_or(false)}))
             .collect();
         map.insert("mechanisms".into(), Value::Array(listed));
+        map.insert("warnings".into(), json!(warnings));
     }
     session.put_table(name, table);
     session.simulations.insert(name.to_string(), SimulationRecord { simulation, mechanisms });
     Ok(vec![display])
+}
+
+/// A warning for each mechanism that leaves out a parent the graph gives it.
+fn unused_parent_warnings(simulation: &Simulation, graph: &str) -> Result<Vec<String>, QueryError> {
+    Ok(simulation
+        .unused_parents()?
+        .into_iter()
+        .map(|(node, line, unused)| {
+            let (them, it) = if unused.len() == 1 { ("its parent", "it") } else { ("its parents", "them") };
+            let why = match simulation.mechanism(&node) {
+                Some(Mechanism::Category { .. }) => format!("a category mechanism draws fixed shares, so {node} cannot depend on {it} here"),
+                _ => format!("use {it} in the mechanism, or remove the edge if {node} should not depend on {it}"),
+            };
+            format!(
+                "cell line {line}: the mechanism of {node} does not use {them} {} in graph {graph}, so the simulated data carry no effect along that edge; {why}",
+                unused.join(", ")
+            )
+        })
+        .collect())
 }
 
 /// The method of explicit options, else of the model's latest fit, else Laplace.
@@ -413,13 +438,7 @@ pub(crate) fn recover(
             },
         ]);
     }
-    let with_truth: Vec<_> = recovery.parameters.iter().filter_map(|p| p.covered).collect();
-    let heading = format!(
-        "recover {m} on {t}: {} of {} parameters with a true value lie inside their {}",
-        with_truth.iter().filter(|c| **c).count(),
-        with_truth.len(),
-        recovery.interval
-    );
+    let heading = recovery_heading(&format!("recover {m} on {t}"), &recovery, &effects);
     let mut notes = recovery.notes.clone();
     if let Some((node, text)) = record.mechanisms.iter().find(|(n, _)| n == model.outcome_name()) {
         notes.insert(0, format!("the mechanism that made {node}: {node} = {text}"));
@@ -447,6 +466,33 @@ pub(crate) fn recover(
             .collect(),
     );
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// The heading leads with what could be checked: parameters with a single
+/// true value, else the true intervention effects, else says neither exists.
+fn recovery_heading(label: &str, recovery: &crate::query::Recovery, effects: &[TrueEffect]) -> String {
+    let params: Vec<bool> = recovery.parameters.iter().filter_map(|p| p.covered).collect();
+    let compared: Vec<bool> = effects.iter().filter_map(TrueEffect::covered).collect();
+    let inside = |v: &[bool]| v.iter().filter(|c| **c).count();
+    let interval = &recovery.interval;
+    match (params.is_empty(), compared.is_empty()) {
+        (false, true) => format!("{label}: {} of {} parameters with a true value lie inside their {interval}", inside(&params), params.len()),
+        (false, false) => format!(
+            "{label}: {} of {} parameters with a true value and {} of {} true intervention effects lie inside their {interval}",
+            inside(&params),
+            params.len(),
+            inside(&compared),
+            compared.len()
+        ),
+        (true, false) => format!(
+            "{label}: {} of {} true intervention effects lie inside the model's {interval} (no parameter of this model has a single true value in the simulation)",
+            inside(&compared),
+            compared.len()
+        ),
+        (true, true) => format!(
+            "{label}: nothing to compare: no parameter of this model has a single true value in the simulation and no intervention effect could be compared; the rows show the fitted values"
+        ),
+    }
 }
 
 /// A true intervention effect beside the model's contrast.
