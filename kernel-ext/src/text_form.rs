@@ -412,7 +412,15 @@ pub fn transcribe(options: &TranscribeOptions) -> Result<String, TranscribeError
         AnalysisForm::Notebook => {
             let notebook = read_notebook(input)?;
             let (text, left_out) = notebook_to_text(&notebook, &shown)?;
-            let cells = parse_text(&text, &out.display().to_string())?;
+            // Read back before writing: a notebook past the text limits (a
+            // pasted image as one long line, say) is refused, not half kept.
+            let cells = parse_text(&text, &out.display().to_string()).map_err(|e| match e {
+                TextError::Line { line, message, .. } => refuse(format!(
+                    "{shown}: cannot be written as text: {message} (line {line} of the text it would make); \
+                     keep this analysis as a notebook"
+                )),
+                other => TranscribeError::Text(other),
+            })?;
             let mut account = format!("{} cell(s){}", cells.len(), kinds_note(cells.iter().map(|c| c.kind)));
             if let Some(note) = left_out.describe() {
                 account.push_str("; ");

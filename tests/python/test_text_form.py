@@ -109,6 +109,18 @@ def test_text_that_looks_like_a_marker_and_rust_cells_survive_the_round_trip(tmp
     assert cells_of(made) == cells_of(nb)
 
 
+def test_a_notebook_past_the_text_limits_is_refused_not_cut(tmp_path):
+    nb = nbformat.v4.new_notebook()
+    pasted = "<img src=\"data:image/png;base64," + "A" * 150_000 + "\">"
+    nb.cells = [nbformat.v4.new_markdown_cell("Quadrat photo\n" + pasted)]
+    src = tmp_path / "photo.ipynb"
+    nbformat.write(nb, src)
+    done = run(["transcribe", str(src)])
+    assert done.returncode == 1
+    assert "photo.ipynb: cannot be written as text" in done.stderr and "line 3 of the text" in done.stderr, done.stderr
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["photo.ipynb"]
+
+
 def test_going_to_text_says_what_it_left_out(tmp_path):
     nb = nbformat.v4.new_notebook()
     nb.cells = [nbformat.v4.new_markdown_cell("![plot](attachment:p.png)"),
