@@ -14,9 +14,9 @@
 //! A marker line is `=== code` (Waypath statements, or Rust when the cell's
 //! first line is `%%rust`, as in a notebook), `=== notes` (Markdown) or
 //! `=== raw` (kept as written, not run). Any other line starting with `===`
-//! and a word is refused, so a mistyped marker never runs as part of the
-//! cell above it; a line of `=` signs alone (a Markdown heading underline)
-//! is text. A cell line that would read as a marker is written with a
+//! and then something other than `=` is refused, so a mistyped marker never
+//! runs as part of the cell above it; a line of `=` signs alone (a Markdown
+//! heading underline) is text. A cell line that would read as a marker is written with a
 //! backslash in front (`\=== code`), and reading removes one backslash.
 //! Blank lines at the end of a cell separate it from the next marker and
 //! are not part of it; nothing but blank lines may come before the first
