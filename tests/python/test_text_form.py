@@ -315,10 +315,14 @@ def test_install_confirms_on_standard_output(tmp_path, monkeypatch):
     assert done.returncode == 0, done.stderr
     assert done.stderr == ""
     assert done.stdout.startswith("installed the Waypath kernel in ")
-    from jupyter_client.kernelspec import KernelSpecManager
+    from jupyter_client.kernelspec import KernelSpec
+    from jupyter_core.paths import jupyter_data_dir
     monkeypatch.setenv("JUPYTER_DATA_DIR", str(tmp_path / "data"))
-    found = KernelSpecManager().find_kernel_specs()
-    assert Path(found["waypath"]) == Path(done.stdout.split(" in ", 1)[1].strip())
+    installed = Path(done.stdout.split(" in ", 1)[1].strip())
+    # jupyter_core's idea of the user's data folder is where --user writes
+    assert installed == Path(jupyter_data_dir()) / "kernels" / "waypath"
+    spec = KernelSpec.from_resource_dir(str(installed))
+    assert Path(spec.argv[0]).resolve() == Path(waypath()).resolve() and spec.display_name == "Waypath"
 
 
 MEASURE = """<script>
