@@ -1,7 +1,8 @@
-"""Write the demo notebooks (.ipynb, nbformat 4.5) from the cell lists below.
+"""Write the demo notebooks (.ipynb, nbformat 4.5) from the cell lists below,
+and the plain-text form (.waypath) of the demos listed in TEXT_VERSIONS.
 
 Editing a demo: change its cells here, run `python3 demo-notebooks/make_notebooks.py`,
-and commit both this file and the notebook. Standard library only.
+and commit this file, the notebook and its text form. Standard library only.
 """
 import json
 from pathlib import Path
@@ -15,6 +16,17 @@ def md(text):
 
 def code(text):
     return ("code", text.strip("\n"))
+
+
+def text_form(cells):
+    """The plain-text analysis: each cell opens with a marker line
+    (`=== code` or `=== notes`), one blank line between cells."""
+    kinds = {"code": "code", "markdown": "notes"}
+    blocks = []
+    for kind, text in cells:
+        assert not any(line.startswith("===") for line in text.splitlines()), "a cell line would read as a marker"
+        blocks.append(f"=== {kinds[kind]}\n{text}\n")
+    return "\n".join(blocks)
 
 
 def notebook(cells):
@@ -510,6 +522,11 @@ NOTEBOOKS = {
     "clinic.ipynb": CLINIC,
 }
 
+# Demos that also have a text form (the README's first tour runs orchard.waypath).
+TEXT_VERSIONS = {"orchard.waypath": ORCHARD}
+
 if __name__ == "__main__":
     for name, cells in NOTEBOOKS.items():
         (HERE / name).write_text(json.dumps(notebook(cells), indent=1) + "\n")
+    for name, cells in TEXT_VERSIONS.items():
+        (HERE / name).write_text(text_form(cells), encoding="utf-8")

@@ -1,5 +1,6 @@
-//! Waypath's delivery: the Jupyter kernel, the headless notebook runner and
-//! its HTML report.
+//! Waypath's delivery: the Jupyter kernel, the headless runner of notebooks
+//! and plain-text analyses, its HTML report, and conversion between the
+//! two forms of an analysis.
 //!
 //! Everything statistical lives in the `waypath` library; this crate only
 //! moves cells in and rich outputs out.
@@ -11,3 +12,4 @@ pub mod notebook;
 pub mod protocol;
 pub mod report;
 pub mod rust_cells;
+pub mod text_form;

@@ -1,8 +1,11 @@
 //! `waypath`: the command-line entry point.
 //!
-//! `waypath run NOTEBOOK.ipynb` executes a notebook headless, writing the
-//! executed notebook and a self-contained HTML report. `waypath install`
-//! registers the Jupyter kernel; `waypath kernel` is what Jupyter starts.
+//! `waypath run ANALYSIS` executes a notebook or a plain-text analysis
+//! headless, writing the executed notebook and a self-contained HTML report.
+//! `waypath transcribe` turns one form of an analysis into the other.
+//! `waypath install` registers the Jupyter kernel; `waypath kernel` is what
+//! Jupyter starts. Confirmations go to standard output, errors to standard
+//! error.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -10,18 +13,28 @@ use std::process::ExitCode;
 use waypath_kernel::install::{install, this_program, InstallPlace};
 use waypath_kernel::kernel::{run_kernel, KernelSettings};
 use waypath_kernel::notebook::{run_notebook, RunOptions};
+use waypath_kernel::text_form::{transcribe, TranscribeOptions};
 
 const HELP: &str = "\
 waypath — causal questions of observational data, answered with Bayesian models
 
 usage:
-  waypath run NOTEBOOK.ipynb [--out EXECUTED.ipynb] [--html REPORT.html] [--keep-going]
-      Execute every code cell in order, headless (no Jupyter needed). Writes the
-      executed notebook (default: NOTEBOOK.executed.ipynb beside the input) and,
-      with --html, a self-contained report a colleague can open offline.
-      Paths inside cells are read relative to the notebook's folder.
+  waypath run ANALYSIS [--out EXECUTED.ipynb] [--html REPORT.html] [--keep-going]
+      Execute every code cell in order, headless (no Jupyter needed). ANALYSIS is
+      a notebook (.ipynb) or a plain-text analysis (.waypath). Writes the executed
+      notebook (default: ANALYSIS.executed.ipynb beside the input) and, with
+      --html, a self-contained report a colleague can open offline.
+      Paths inside cells are read relative to the analysis file's folder.
       The first failing cell stops the run and the exit code is 1, unless
       --keep-going is given (failing cells are then recorded and skipped past).
+  waypath transcribe FILE [--out OUTPUT] [--replace]
+      Turn a plain-text analysis (.waypath) into a notebook (.ipynb) that opens
+      in JupyterLab, or a notebook into text (outputs and metadata left out;
+      it says what it left out). OUTPUT defaults to FILE with the other
+      extension; an existing OUTPUT is kept unless --replace is given, and the
+      input is never written over.
+      Text form: each cell opens with a marker line, `=== code` (statements,
+      or Rust after a %%rust first line), `=== notes` (Markdown) or `=== raw`.
   waypath install [--user | --sys-prefix | --prefix PATH]
       Register the Waypath kernel with Jupyter (kernel.json and logos), pointing
       at this program. --user (the default) writes to your Jupyter data folder,
@@ -41,6 +54,7 @@ fn main() -> ExitCode {
     let args: Vec<String> = std::env::args().skip(1).collect();
     match args.first().map(String::as_str) {
         Some("run") => run_command(&args[1..]),
+        Some("transcribe") => transcribe_command(&args[1..]),
         Some("install") => install_command(&args[1..]),
         Some("kernel") => kernel_command(&args[1..]),
         None | Some("--help") | Some("-h") | Some("help") => {
@@ -90,13 +104,55 @@ fn parse_run_args(args: &[String]) -> Result<RunOptions, String> {
             "--keep-going" => keep_going = true,
             flag if flag.starts_with("--") => return Err(format!("unknown option {flag}")),
             path if input.is_none() => input = Some(path.into()),
-            extra => return Err(format!("one notebook at a time (also got {extra:?})")),
+            extra => return Err(format!("one analysis at a time (also got {extra:?})")),
         }
         i += 1;
     }
-    let input = input.ok_or("name the notebook to run")?;
+    let input = input.ok_or("name the notebook or text analysis to run")?;
     let out = out.unwrap_or_else(|| input.with_extension("executed.ipynb"));
     Ok(RunOptions { input, out, html, keep_going })
+}
+
+fn transcribe_command(args: &[String]) -> ExitCode {
+    let options = match parse_transcribe_args(args) {
+        Ok(o) => o,
+        Err(message) => {
+            eprintln!("waypath transcribe: {message}\n\n{HELP}");
+            return ExitCode::from(2);
+        }
+    };
+    match transcribe(&options) {
+        Ok(account) => {
+            println!("{account}");
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("waypath transcribe: {e}");
+            ExitCode::from(1)
+        }
+    }
+}
+
+fn parse_transcribe_args(args: &[String]) -> Result<TranscribeOptions, String> {
+    let mut input: Option<PathBuf> = None;
+    let mut out: Option<PathBuf> = None;
+    let mut replace = false;
+    let mut i = 0;
+    while i < args.len() {
+        match args[i].as_str() {
+            "--out" => {
+                out = Some(args.get(i + 1).ok_or("--out needs a file name")?.into());
+                i += 1;
+            }
+            "--replace" => replace = true,
+            flag if flag.starts_with("--") => return Err(format!("unknown option {flag}")),
+            path if input.is_none() => input = Some(path.into()),
+            extra => return Err(format!("one file at a time (also got {extra:?})")),
+        }
+        i += 1;
+    }
+    let input = input.ok_or("name the .waypath or .ipynb file to convert")?;
+    Ok(TranscribeOptions { input, out, replace })
 }
 
 fn install_command(args: &[String]) -> ExitCode {
@@ -112,7 +168,7 @@ fn install_command(args: &[String]) -> ExitCode {
     };
     match this_program().and_then(|program| install(&place, &program)) {
         Ok(dir) => {
-            eprintln!("installed the Waypath kernel in {}", dir.display());
+            println!("installed the Waypath kernel in {}", dir.display());
             ExitCode::SUCCESS
         }
         Err(e) => {

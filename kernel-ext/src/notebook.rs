@@ -1,8 +1,12 @@
-//! Headless execution of a notebook file (nbformat 4) and the executed copy.
+//! Headless execution of an analysis — a notebook (nbformat 4) or its plain
+//! text form ([`crate::text_form`]) — and the executed notebook.
 //!
-//! Cells run in order in one [`Session`] whose folder is the notebook's, so
-//! relative paths in cells mean the same as in Jupyter. The executed notebook
-//! is written as nbformat 4.5 (every cell has an `id`).
+//! Cells run in order in one [`Session`] whose folder is the analysis file's,
+//! so relative paths in cells mean the same as in Jupyter. The executed
+//! notebook is written as nbformat 4.5 (every cell has an `id`). A cell is
+//! named as the user sees it, by its execution count (`cell [3]`), and for
+//! a text analysis also by the file line, since that is what its author
+//! edits.
 //!
 //! No run loses its work: cells run on the large-stack cell thread
 //! ([`crate::cell_thread`]), each under a panic guard; the executed notebook
@@ -37,18 +41,20 @@ pub struct RunOptions {
 #[derive(Debug, Clone, Default)]
 pub struct RunSummary {
     pub executed: usize,
-    pub failed_cells: Vec<usize>,
+    /// The failing cells by execution count.
+    pub failed_cells: Vec<u64>,
+    /// How each failing cell is named to the user (`[3]`, or `[3] (from a.waypath line 12)`).
+    pub failed_labels: Vec<String>,
     pub written: Vec<PathBuf>,
 }
 
 impl RunSummary {
     pub fn describe(&self) -> String {
         let written: Vec<String> = self.written.iter().map(|p| p.display().to_string()).collect();
-        let failed = if self.failed_cells.is_empty() {
+        let failed = if self.failed_labels.is_empty() {
             "no cell failed".to_string()
         } else {
-            let cells: Vec<String> = self.failed_cells.iter().map(|c| c.to_string()).collect();
-            format!("failed cell(s): {}", cells.join(", "))
+            format!("failed cell(s): {}", self.failed_labels.join(", "))
         };
         format!("ran {} code cell(s), {failed}; wrote {}", self.executed, written.join(" and "))
     }
@@ -63,6 +69,10 @@ pub enum NotebookError {
     Format { path: String, message: String },
     #[error("{path}: cannot write ({source}); check that its folder exists and is writable")]
     Write { path: String, source: std::io::Error },
+    #[error(transparent)]
+    Text(#[from] crate::text_form::TextError),
+    #[error("{0}")]
+    Refused(String),
     #[error("{0}")]
     Thread(String),
 }
@@ -89,17 +99,69 @@ impl Destinations<'_> {
     }
 }
 
+/// Where a text analysis's cells start, to name file lines in errors.
+#[derive(Debug, Clone)]
+pub struct TextLines {
+    /// The file's name as shown.
+    pub file: String,
+    /// For each cell (by position), the file line its source starts on.
+    pub first_lines: Vec<usize>,
+}
+
+/// Where one cell of a text analysis starts.
+#[derive(Debug, Clone, Copy)]
+pub struct CellPlace<'a> {
+    pub file: &'a str,
+    pub first_line: usize,
+}
+
+/// Read an analysis: a `.waypath` file as text (with its cells' lines),
+/// anything else as an nbformat 4 notebook.
+pub fn read_analysis(path: &Path) -> Result<(Value, Option<TextLines>), NotebookError> {
+    if crate::text_form::AnalysisForm::of(path) == Some(crate::text_form::AnalysisForm::Text) {
+        let cells = crate::text_form::read_text_file(path)?;
+        let file = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
+        let lines = TextLines { file, first_lines: cells.iter().map(|c| c.first_line).collect() };
+        return Ok((crate::text_form::text_to_notebook(&cells), Some(lines)));
+    }
+    Ok((read_notebook(path)?, None))
+}
+
+/// Refuse outputs that would write over the input, or over each other.
+fn check_destinations(options: &RunOptions) -> Result<(), NotebookError> {
+    let same = crate::text_form::is_same_file;
+    let refuse = |what: &str, path: &Path| {
+        Err(NotebookError::Refused(format!("{}: {what} names the analysis being run; name another file", path.display())))
+    };
+    if options.out == options.input || same(&options.input, &options.out) {
+        return refuse("--out", &options.out);
+    }
+    if let Some(html) = &options.html {
+        if html == &options.input || same(&options.input, html) {
+            return refuse("--html", html);
+        }
+        if html == &options.out || same(&options.out, html) {
+            return Err(NotebookError::Refused(format!(
+                "{}: --out and --html name the same file; name two files",
+                html.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Run every code cell of `options.input`; write the executed notebook and,
 /// if asked, the HTML report.
 pub fn run_notebook(options: &RunOptions) -> Result<RunSummary, NotebookError> {
-    let mut notebook = read_notebook(&options.input)?;
+    check_destinations(options)?;
+    let (mut notebook, text_lines) = read_analysis(&options.input)?;
     let base = options.input.parent().map(Path::to_path_buf).unwrap_or_default();
     let base = if base.as_os_str().is_empty() { PathBuf::from(".") } else { base };
     let title = options.input.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
     let destinations = Destinations { options, title };
     let mut summary = cell_thread::run(|| {
         let mut session = Session::new(base);
-        execute_all(&mut notebook, &mut session, options.keep_going, &destinations)
+        execute_all(&mut notebook, text_lines.as_ref(), &mut session, options.keep_going, &destinations)
     })
     .map_err(|what| NotebookError::Thread(internal_error_message(&what)))??;
     summary.written = destinations.written();
@@ -111,13 +173,30 @@ fn write_file(path: &Path, text: &str) -> Result<(), NotebookError> {
         .map_err(|source| NotebookError::Write { path: path.display().to_string(), source })
 }
 
-/// Read and check an nbformat 4 notebook: valid JSON, nbformat 4, a list
-/// of cells each of which is an object.
+/// The largest notebook file read (bytes): outputs make notebooks large,
+/// but a JSON tree takes several times its text in memory.
+pub const MAX_NOTEBOOK_BYTES: u64 = 256 << 20;
+
+/// Read and check an nbformat 4 notebook: at most [`MAX_NOTEBOOK_BYTES`],
+/// valid JSON, nbformat 4, a list of cells each of which is an object.
 pub fn read_notebook(path: &Path) -> Result<Value, NotebookError> {
     let shown = path.display().to_string();
-    let text = std::fs::read_to_string(path).map_err(|source| NotebookError::Read { path: shown.clone(), source })?;
-    let notebook: Value = serde_json::from_str(&text)
-        .map_err(|e| NotebookError::Format { path: shown.clone(), message: format!("invalid JSON: {e}") })?;
+    let read_error = |source| NotebookError::Read { path: shown.clone(), source };
+    if std::fs::metadata(path).map_err(read_error)?.len() > MAX_NOTEBOOK_BYTES {
+        return Err(NotebookError::Format {
+            path: shown.clone(),
+            message: format!("larger than {} MiB; clear its outputs in Jupyter first", MAX_NOTEBOOK_BYTES >> 20),
+        });
+    }
+    let text = std::fs::read_to_string(path).map_err(read_error)?;
+    let notebook: Value = serde_json::from_str(&text).map_err(|e| {
+        let hint = if text.trim_start().starts_with("===") {
+            format!("; a plain-text analysis needs the .{} extension", crate::text_form::EXTENSION)
+        } else {
+            String::new()
+        };
+        NotebookError::Format { path: shown.clone(), message: format!("invalid JSON: {e}{hint}") }
+    })?;
     let format = |message: String| NotebookError::Format { path: shown.clone(), message };
     match notebook.get("nbformat").and_then(Value::as_u64) {
         Some(4) => {}
@@ -162,6 +241,7 @@ pub fn cell_source(cell: &Value) -> String {
 /// after each one.
 fn execute_all(
     notebook: &mut Value,
+    text_lines: Option<&TextLines>,
     session: &mut Session,
     keep_going: bool,
     destinations: &Destinations,
@@ -186,14 +266,21 @@ fn execute_all(
         });
         summary.executed += 1;
         let failed = outcome.error.is_some();
+        let place = text_lines.and_then(|t| {
+            t.first_lines.get(index).map(|&first_line| CellPlace { file: &t.file, first_line })
+        });
         let mut outputs = streams;
-        outputs.extend(outputs_of(&outcome, index + 1, count));
+        outputs.extend(outputs_of(&outcome, count, place));
         let cell = &mut notebook["cells"][index];
         cell["outputs"] = Value::Array(outputs);
         cell["execution_count"] = json!(count);
         if failed {
             cell["metadata"]["waypath"] = json!({"failed": true});
-            summary.failed_cells.push(index + 1);
+            summary.failed_cells.push(count);
+            summary.failed_labels.push(match place {
+                Some(p) => format!("[{count}] (from {} line {})", p.file, p.first_line),
+                None => format!("[{count}]"),
+            });
         }
         let stop = failed && !keep_going;
         set_run_state(notebook, if stop { "stopped" } else { "in progress" }, &summary);
@@ -266,9 +353,11 @@ fn run_rust_cell(rust: &mut RustCells, code: &str, session: &mut Session) -> (Ve
     (streams, outcome)
 }
 
-/// nbformat outputs for one cell's outcome. Errors name the cell (its
-/// 1-based position in the notebook) and the line within it.
-pub fn outputs_of(outcome: &CellOutcome, cell_number: usize, execution_count: u64) -> Vec<Value> {
+/// nbformat outputs for one cell's outcome. Errors name the cell by its
+/// execution count, as the notebook and the report label it (`cell [3]`),
+/// and the line within it; for a cell of a text analysis, `place` adds the
+/// file line.
+pub fn outputs_of(outcome: &CellOutcome, execution_count: u64, place: Option<CellPlace>) -> Vec<Value> {
     let mut outputs: Vec<Value> = Vec::new();
     if !outcome.warnings.is_empty() {
         let text: String = outcome.warnings.iter().map(|w| format!("warning: {w}\n")).collect();
@@ -289,11 +378,32 @@ pub fn outputs_of(outcome: &CellOutcome, cell_number: usize, execution_count: u6
         }
     }
     if let Some(error) = &outcome.error {
-        let evalue = format!("cell {cell_number}, {}", error.describe());
+        let evalue = error_text(error, execution_count, place);
         outputs.push(json!({"output_type": "error", "ename": "WaypathError", "evalue": evalue,
                             "traceback": [evalue]}));
     }
     outputs
+}
+
+/// An error as the user reads it: `cell [3], cell line 2: …`, and for a
+/// text analysis `cell [3], cell line 2 (a.waypath line 14): …`.
+pub fn error_text(error: &CellError, execution_count: u64, place: Option<CellPlace>) -> String {
+    let label = format!("cell [{execution_count}]");
+    let message = &error.message;
+    match (error.line, place) {
+        (Some(n), None) => format!("{label}, cell line {n}: {message}"),
+        (None, None) => format!("{label}: {message}"),
+        (Some(n), Some(p)) => format!("{label}, cell line {n} ({} line {}): {message}", p.file, (p.first_line + n).saturating_sub(1)),
+        (None, Some(p)) => format!("{label} (from {} line {}): {message}", p.file, p.first_line),
+    }
+}
+
+/// The notebook metadata of a Waypath notebook: kernelspec and language.
+pub fn waypath_notebook_metadata() -> Value {
+    json!({
+        "kernelspec": {"name": "waypath", "display_name": "Waypath", "language": "waypath"},
+        "language_info": {"name": "waypath", "file_extension": ".wp", "mimetype": "text/x-waypath"},
+    })
 }
 
 /// Give every cell an `id` and a metadata object, and set nbformat_minor
@@ -314,8 +424,7 @@ fn upgrade_to_4_5(notebook: &mut Value) {
     if !notebook.get("metadata").is_some_and(Value::is_object) {
         notebook["metadata"] = Value::Object(Map::new());
     }
-    notebook["metadata"]["kernelspec"] =
-        json!({"name": "waypath", "display_name": "Waypath", "language": "waypath"});
-    notebook["metadata"]["language_info"] =
-        json!({"name": "waypath", "file_extension": ".wp", "mimetype": "text/x-waypath"});
+    let standard = waypath_notebook_metadata();
+    notebook["metadata"]["kernelspec"] = standard["kernelspec"].clone();
+    notebook["metadata"]["language_info"] = standard["language_info"].clone();
 }

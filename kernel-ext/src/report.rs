@@ -7,7 +7,9 @@
 //! and frames are removed, while headings, lists, tables, emphasis, code,
 //! plain links and the `class` names of Waypath's own tables are kept.
 //! Figures are Waypath's own SVG. A run that stopped early or had not
-//! finished says so at the top, and a failing cell is marked.
+//! finished says so at the top, and a failing cell is marked. Code and text
+//! blocks wrap long lines at the page width rather than scrolling sideways,
+//! so a printed report loses nothing.
 
 use std::sync::OnceLock;
 
@@ -25,10 +27,11 @@ section.wp-cell{margin:1.2rem 0}
 section.wp-failed{border-left:4px solid #D55E00;padding-left:.6rem}
 p.wp-failed-note{color:#9b1c00;font-weight:600;margin:.2rem 0}
 p.wp-run-note{color:#9b1c00;font-weight:600}
-.wp-src{background:#f4f6f8;border-left:3px solid #56B4E9;padding:.5rem .8rem;overflow-x:auto;font-size:.88rem}
+pre{white-space:pre-wrap;overflow-wrap:anywhere}
+.wp-src{background:#f4f6f8;border-left:3px solid #56B4E9;padding:.5rem .8rem;font-size:.88rem}
 .wp-count{color:#777;font-size:.75rem;font-family:monospace}
 .wp-out{margin:.4rem 0 .4rem 1rem}
-.wp-out pre{margin:.2rem 0;font-size:.85rem;white-space:pre-wrap}
+.wp-out pre{margin:.2rem 0;font-size:.85rem}
 .wp-warn{color:#8a4b00;background:#fff6e5;padding:.3rem .6rem}
 .wp-err{color:#9b1c00;background:#fdecea;padding:.3rem .6rem;border-left:3px solid #D55E00}
 table.wp-grid{border-collapse:collapse;font-size:.85rem;margin:.3rem 0}

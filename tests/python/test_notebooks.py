@@ -63,7 +63,7 @@ def test_failing_cell_is_recorded_with_cell_and_line_and_run_exits_nonzero(tmp_p
     nbformat.validate(nb)
     err = [o for o in nb.cells[1].outputs if o.output_type == "error"]
     assert len(err) == 1
-    assert err[0].evalue.startswith("cell 2, cell line 1:")
+    assert err[0].evalue.startswith("cell [2], cell line 1:")  # the execution count, as the report shows it
     assert "c" in err[0].evalue
     # the run stopped: the third cell was not executed
     assert nb.cells[2].execution_count is None

@@ -160,7 +160,7 @@ impl Worker {
         }
         self.interrupter.cancel.store(false, Ordering::SeqCst);
         let outcome = self.run_guarded(&code, &parent, silent);
-        let outputs = outputs_of(&outcome, count as usize, count);
+        let outputs = outputs_of(&outcome, count, None);
         let mut result_text = None;
         if !silent {
             for output in &outputs {
