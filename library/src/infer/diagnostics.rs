@@ -261,10 +261,12 @@ pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnos
     let divergent: usize = run.divergences.iter().sum();
     if divergent > 0 {
         out.push(format!(
-            "{divergent} of {total} draws came from a divergent trajectory ({}): the sampler \
-             could not follow the posterior's curvature there, so some regions may be missed \
-             and the estimates biased. Try a higher target acceptance such as 0.95, tighter \
-             priors, or a non-centred form for group-level effects.",
+            "{divergent} of {total} draws, in {}, ended a trajectory whose energy blew up: the \
+             posterior bends there more sharply than the sampler's steps can follow, so that \
+             region may be under-visited and the summaries pulled away from it. Treat the table \
+             as provisional: ask for a higher acceptance target in `fit … with nuts` (nearer 1 \
+             means smaller steps), give the slopes firmer priors, or drop a term that nearly \
+             repeats another, and fit again until none is left.",
             chains_phrase(&run.divergences)
         ));
     }
@@ -275,9 +277,11 @@ pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnos
     let hits: usize = run.depth_hits.iter().sum();
     if hits > 0 {
         out.push(format!(
-            "{hits} of {total} draws reached the maximum tree depth of {max_depth} ({}): their \
-             trajectories were cut short, which costs efficiency rather than correctness. Raise \
-             the maximum tree depth, or put the predictors on a scale near 1.",
+            "{hits} of {total} draws, in {}, stopped at the longest trajectory allowed (tree \
+             depth {max_depth}). Such draws are still sound, but each moves the chain less far \
+             than it might, so mixing is slow and ESS drops. If ESS is low too, allow a deeper \
+             tree in `fit … with nuts`, or give predictors units that keep their values near 1 \
+             (metres rather than millimetres).",
             chains_phrase(&run.depth_hits)
         ));
     }
