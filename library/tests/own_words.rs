@@ -142,3 +142,49 @@ fn the_statement_grammar_offers_no_retired_word() {
     let lines: Vec<String> = found.iter().map(|(hit, text)| format!("{hit}, e.g. in {text:?}")).collect();
     assert!(lines.is_empty(), "the grammar offers retired words:\n{}", lines.join("\n"));
 }
+
+/// README "Output structures", the paragraph on parameter labels: every term
+/// kind's label as documented, the same in the fit's JSON, the draws CSV
+/// header and a `plot … of` list (typed with extra spaces).
+#[test]
+fn labels_read_as_the_readme_documents_them_everywhere() {
+    use std::sync::atomic::AtomicBool;
+    use waypath::cells::{RunControl, Session};
+    let dir = std::env::temp_dir().join(format!("wp-own-words-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    // Invented rows: 40 trees, two rootstocks, three real predictors.
+    let mut csv = String::from("rootstock,girth,age,light,yield\n");
+    for i in 0..40 {
+        let (r, g, a, l) = (if i % 2 == 0 { "dwarf" } else { "standard" }, 20.0 + (i * 7 % 13) as f64, 2.0 + (i % 9) as f64, (i * 5 % 17) as f64);
+        csv.push_str(&format!("{r},{g},{a},{l},{}\n", 10.0 + 0.8 * g + 0.3 * a * a + (l * 0.4).sin() + (i % 3) as f64 * 0.5));
+    }
+    std::fs::write(dir.join("trees.csv"), csv).unwrap();
+    let mut session = Session::new(&dir);
+    let cancel = AtomicBool::new(false);
+    let progress = |_: &str| {};
+    let mut run = |cell: &str| {
+        let out = session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress });
+        assert!(out.error.is_none(), "{cell}: {}", out.error.map(|e| e.describe()).unwrap_or_default());
+        out.displays
+    };
+    let fitted = run(
+        "table trees from \"trees.csv\":\n    rootstock: category(dwarf, standard)\n\
+         model m:\n    yield from rootstock, girth per rootstock, powers(age, 2), spline(light, 4) using trees\n\
+         fit m with laplace seed 3\n",
+    );
+    let json = fitted.last().and_then(|d| d.json.clone()).expect("the fit's JSON");
+    let names: Vec<&str> = json["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
+    let documented = [
+        "rootstock[dwarf]", "rootstock[standard]", "girth slope[dwarf]", "girth slope[standard]", "age power 1", "age power 2",
+        "light spline 2", "light spline 3", "light spline 4", "spread",
+    ];
+    assert_eq!(names, documented);
+    run("export m draws to \"draws.csv\"\n");
+    let header = std::fs::read_to_string(dir.join("draws.csv")).unwrap().lines().next().unwrap().to_string();
+    assert_eq!(header, format!("chain,draw,{}", documented.join(",")));
+    let plotted = run("plot m posterior of girth   slope[dwarf],  age power 2\n");
+    let svg = plotted.iter().find_map(|d| d.svg.clone()).expect("a figure");
+    assert!(svg.contains("girth slope[dwarf]") && svg.contains("age power 2"), "the figure names the parameters");
+    assert!(found_in(&svg).is_empty() && found_in(&json.to_string()).is_empty());
+}
