@@ -300,25 +300,26 @@ pub fn parameter_warnings(label: &str, d: &ParamDiagnostics) -> Vec<String> {
     let mut out = Vec::new();
     if d.rhat > RHAT_LIMIT {
         out.push(format!(
-            "R-hat of {label} is {:.3}, above {RHAT_LIMIT}: the chains disagree about it, so they \
-             have not settled on one posterior. Look at its trace for a chain stuck apart, \
-             and run longer warm-up and more draws.",
+            "R-hat of {label} is {:.3}, above {RHAT_LIMIT}: its chains have not settled on one \
+             posterior; at least one still sits apart from the others. Draw its chains to see \
+             which, then fit again with a longer tuning phase and more draws in `fit … with nuts`.",
             d.rhat
         ));
     }
     if d.ess_bulk < ESS_BULK_LIMIT {
         out.push(format!(
-            "Bulk ESS of {label} is {:.0}, below {ESS_BULK_LIMIT:.0}: its mean and central \
-             interval rest on few effectively independent draws and carry extra Monte Carlo \
-             error. Run more draws, or simplify the model if the chains move slowly.",
+            "Bulk ESS of {label} is {:.0}, below {ESS_BULK_LIMIT:.0}: its draws follow one another \
+             so closely that they count for few independent ones, and its mean and interval \
+             carry more Monte Carlo error than their digits suggest. Fit again with more draws; \
+             if the chains still crawl, look for a term that repeats another.",
             d.ess_bulk
         ));
     }
     if d.ess_tail < ESS_TAIL_LIMIT {
         out.push(format!(
-            "Tail ESS of {label} is {:.0}, below {ESS_TAIL_LIMIT:.0}: the ends of its interval \
-             are tail quantiles and rest on few effectively independent draws there. Run more \
-             draws before reading the interval's ends.",
+            "Tail ESS of {label} is {:.0}, below {ESS_TAIL_LIMIT:.0}: few independent draws fall \
+             near the ends of its interval, so those ends may shift on a refit. Fit again with \
+             more draws before quoting them.",
             d.ess_tail
         ));
     }
