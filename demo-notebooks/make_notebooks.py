@@ -183,23 +183,24 @@ table stream from "data/stream.csv":
     water_temp: real in °C
 """),
     md("""
-## A polynomial
+## Powers of the day
 
-A degree-4 polynomial in the (standardised) day is smooth and needs few
-parameters, but every coefficient acts on the whole year at once.
+The first four powers of the standardised day, `powers(day, 4)`, make a
+smooth curve with few parameters (`day power 1` to `day power 4`), but every
+coefficient acts on the whole year at once.
 """),
     code("""
-model poly4:
-    water_temp from poly(day, 4) using stream
+model day_powers:
+    water_temp from powers(day, 4) using stream
 
-fit poly4
-plot poly4 lines
+fit day_powers
+plot day_powers lines
 """),
     md("""
-Look at the two ends of the year: the polynomial must bend the whole curve
+Look at the two ends of the year: the powers must bend the whole curve
 to follow the melt dip, and near day 1 and day 365 the band widens and the
-curve turns where the data do not. A polynomial's edges are driven by the
-middle of the data.
+curve turns where the data do not. A curve made of powers has its edges
+driven by the middle of the data.
 
 ## A B-spline
 
@@ -377,7 +378,7 @@ look; use NUTS (`fit woodland`) before reporting.
 fit woodland with laplace
 """),
     md("""
-Coefficients such as `form[tree vs herb]: b_shade[loam]` are log-odds of a
+Coefficients such as `form[tree vs herb]: shade slope[loam]` are log-odds of a
 tree rather than a herb per unit of shade on loam: hard to read on their
 own. The question a forester asks is about plots: what if the canopy were
 thinned from 0.6 to 0.2 cover everywhere? The joint model simulates it,

@@ -76,7 +76,7 @@ fit m with laplace draws 2000 seed 3
     let json = last_json(&mut session, "contrast m: x 1 vs 0 along z from -1 to 1 by 0.5");
     has_keys(&json, &["contrast", "on", "mean", "lower", "upper", "p_positive", "grid", "held_how"]);
     let fit = session.fit("m").expect("fitted");
-    let (a, b, c) = (fit.draws.get("intercept").unwrap(), fit.draws.get("b_x").unwrap(), fit.draws.get("b_z").unwrap());
+    let (a, b, c) = (fit.draws.get("intercept").unwrap(), fit.draws.get("x slope").unwrap(), fit.draws.get("z slope").unwrap());
     let z = session.table("plots").unwrap().column("z").unwrap().data.as_reals().unwrap();
     let z_mean = z.iter().sum::<f64>() / z.len() as f64;
     // Algebra of the logit link with `centre off`: P(sick) = logistic(a + b·x + c·z).
@@ -106,7 +106,7 @@ fn contrast_on_outcomes_and_default_one_unit_contrast() {
     last_json(&mut session, "model m:\n    y from x, z using field\nfit m with laplace seed 4");
     let json = last_json(&mut session, "contrast m: x");
     // Algebra: with an identity link the one-unit contrast of x is the slope, draw by draw.
-    let slope = session.fit("m").unwrap().draws.get("b_x").unwrap().to_vec();
+    let slope = session.fit("m").unwrap().draws.get("x slope").unwrap().to_vec();
     let slope_mean = slope.iter().sum::<f64>() / slope.len() as f64;
     assert!((json["mean"].as_f64().unwrap() - slope_mean).abs() < 1e-9);
     let json = last_json(&mut session, "contrast m: x 1 vs 0 on outcomes seed 9");
@@ -124,12 +124,12 @@ fn simulate_and_recover_cover_the_true_slope_and_effect() {
     let json = last_json(&mut session, "model m:\n    y from x, z using field\nrecover m on field with laplace seed 2");
     has_keys(&json, &["model", "simulation", "parameters", "effects", "interval", "notes"]);
     let param = |name: &str| json["parameters"].as_array().unwrap().iter().find(|p| p["name"] == name).cloned().unwrap();
-    let b_x = param("b_x");
+    let x_slope = param("x slope");
     // The mechanism's coefficient of x (algebra of a linear mechanism).
-    assert!((b_x["truth"].as_f64().unwrap() - 0.5).abs() < 1e-9);
-    let (lo, hi) = (b_x["lower"].as_f64().unwrap(), b_x["upper"].as_f64().unwrap());
+    assert!((x_slope["truth"].as_f64().unwrap() - 0.5).abs() < 1e-9);
+    let (lo, hi) = (x_slope["lower"].as_f64().unwrap(), x_slope["upper"].as_f64().unwrap());
     assert!(lo <= 0.5 && 0.5 <= hi, "[{lo}, {hi}]");
-    assert_eq!(b_x["covered"], true);
+    assert_eq!(x_slope["covered"], true);
     assert!((param("spread")["truth"].as_f64().unwrap() - 1.0).abs() < 1e-12, "the mechanism's sd");
     let effect = json["effects"].as_array().unwrap().iter().find(|e| e["variable"] == "x").cloned().unwrap();
     // Wright (1934) path tracing: do(x + 1) moves the mean of y by 0.5.
@@ -283,7 +283,7 @@ fn flowers() -> waypath::table::Table {
 fn calibrate_runs_on_a_binomial_fit_and_reports_pearsons_statistic() {
     let mut session = Session::new(".");
     session.put_table("flowers", flowers());
-    last_json(&mut session, "model fs:\n    set from warmth using flowers\n    family binomial trials visits\nfit fs with laplace seed 1");
+    last_json(&mut session, "model fs:\n    set from warmth using flowers\n    family binomial out of visits\nfit fs with laplace seed 1");
     let out = run(&mut session, "calibrate fs reps 40 seed 3");
     assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
     let display = out.displays.last().unwrap();
@@ -294,7 +294,7 @@ fn calibrate_runs_on_a_binomial_fit_and_reports_pearsons_statistic() {
     let draws = json["draws_per_fit"].as_u64().unwrap() as usize;
     let bins = json["bins"].as_u64().unwrap() as usize;
     let names: Vec<&str> = json["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
-    assert_eq!(names, ["intercept", "b_warmth"]);
+    assert_eq!(names, ["intercept", "warmth slope"]);
     for p in json["parameters"].as_array().unwrap() {
         let ranks: Vec<usize> = p["ranks"].as_array().unwrap().iter().map(|r| r.as_u64().unwrap() as usize).collect();
         assert_eq!(ranks.len(), 40);
@@ -383,7 +383,7 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     let fit_svg = out.displays[0].svg.clone().expect("a joint fit figure");
     let form = json["nodes"].as_array().unwrap().iter().find(|n| n["node"] == "form").cloned().unwrap();
     let names: Vec<&str> = form["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
-    assert!(names.contains(&"form[shrub vs herb]: soil[sand]") && names.contains(&"form[tree vs herb]: b_shade[peat]"), "{names:?}");
+    assert!(names.contains(&"form[shrub vs herb]: soil[sand]") && names.contains(&"form[tree vs herb]: shade slope[peat]"), "{names:?}");
     assert_eq!(names.len(), 12, "two levels after herb × (3 soil intercepts + 3 shade slopes)");
     // The figure names a levels coefficient as the fit's JSON does, once, not
     // prefixed by its node a second time.

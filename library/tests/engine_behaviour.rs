@@ -45,7 +45,7 @@ fn same_seed_gives_identical_laplace_draws() {
 }
 
 /// The orchard with a second girth column in inches: perfectly collinear
-/// with girth, so only `b_girth + 2.54·b_girth_in` is pinned by the data.
+/// with girth, so only `girth slope` + 2.54 × `girth_in slope` is pinned by the data.
 fn orchard_with_inches(n: usize, seed: u64) -> Table {
     let mut table = orchard(n, seed);
     let girth = table.column("girth").and_then(|c| c.data.as_reals()).expect("girth");
@@ -66,13 +66,13 @@ fn collinear_predictors_raise_mixing_warnings() {
     let body = "yield from rootstock, girth, girth_in using trees\nprior slopes: normal(0, 50)";
     let fit = nuts(&build(body, &table), SETTINGS);
     let mixing: Vec<&String> =
-        fit.warnings.iter().filter(|w| w.starts_with("R-hat of b_girth") || w.starts_with("Bulk ESS of b_girth")).collect();
+        fit.warnings.iter().filter(|w| w.starts_with("R-hat of girth slope") || w.starts_with("Bulk ESS of girth slope")).collect();
     assert!(!mixing.is_empty(), "expected R-hat or ESS warnings on the slopes, got {:?}", fit.warnings);
     let diagnostics = fit.diagnostics.expect("NUTS diagnostics");
-    let slope = fit.draws.names.iter().position(|n| n == "b_girth").expect("b_girth");
+    let slope = fit.draws.names.iter().position(|n| n == "girth slope").expect("girth slope");
     assert!(
         diagnostics[slope].rhat > 1.01 || diagnostics[slope].ess_bulk < 400.0,
-        "b_girth diagnostics {:?}",
+        "girth slope diagnostics {:?}",
         diagnostics[slope]
     );
 }

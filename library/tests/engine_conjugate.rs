@@ -170,7 +170,7 @@ fn bulk_ess(fit: &Fit, count: usize) -> Vec<f64> {
     diagnostics[..count].iter().map(|d| d.ess_bulk).collect()
 }
 
-const COEFFICIENTS: [&str; 3] = ["rootstock[dwarf]", "rootstock[standard]", "b_girth"];
+const COEFFICIENTS: [&str; 3] = ["rootstock[dwarf]", "rootstock[standard]", "girth slope"];
 
 #[test]
 fn nuts_and_laplace_match_the_known_spread_posterior() {
@@ -196,7 +196,7 @@ fn nuts_matches_the_unknown_spread_posterior_from_its_one_dimensional_marginal()
     let body = format!("yield from rootstock, girth using trees\n{PRIORS}\nprior spread: exponential({rate})");
     let model = build(&body, &table);
     let exact = exact_unknown_spread(&table, rate);
-    let names = ["rootstock[dwarf]", "rootstock[standard]", "b_girth", "spread"];
+    let names = ["rootstock[dwarf]", "rootstock[standard]", "girth slope", "spread"];
 
     let nuts = fit(&model, Method::Nuts(NutsSettings { seed: 43, ..Default::default() }));
     assert!(nuts.warnings.is_empty(), "warnings: {:?}", nuts.warnings);

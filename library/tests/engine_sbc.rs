@@ -123,7 +123,7 @@ fn plots_model(intercept_prior: &str) -> String {
 #[test]
 fn gaussian_regression_with_category_intercepts_is_calibrated() {
     let ranks = sbc_ranks(&plots_model("normal(10, 3)"), 5_000, simulate_plots);
-    assert_uniform(&["site[north]", "site[ridge]", "site[south]", "b_shade", "spread"], &ranks);
+    assert_uniform(&["site[north]", "site[ridge]", "site[south]", "shade slope", "spread"], &ranks);
 }
 
 /// Negative control: a model cell whose intercept prior, normal(14, 1),
@@ -167,5 +167,5 @@ fn logistic_regression_is_calibrated() {
         );
         (truth, data)
     });
-    assert_uniform(&["intercept", "b_warmth", "b_wetness"], &ranks);
+    assert_uniform(&["intercept", "warmth slope", "wetness slope"], &ranks);
 }

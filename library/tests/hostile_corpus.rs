@@ -23,7 +23,7 @@ const TOKENS: &[&str] = &[
     "nuts", "draws", "chains", "warmup", "depth", "seed", "reps", "rows", "sets", "given", "effect", "total", "direct",
     "set", "vs", "watch", "keep", "where", "and", "or", "not", "->", "<-", ",", ":", "(", ")", "[", "]", "=", "\"",
     "#", "0", "1", "-1", "2.5", "1e308", "-1e308", "nan", "inf", "10000000000", "4294967297",
-    "18446744073709551616", "spline(temp, 9)", "poly(temp, 40)", "normal(0, 1)", "\"stream.csv\"", "\"missing.csv\"",
+    "18446744073709551616", "spline(temp, 9)", "powers(temp, 40)", "normal(0, 1)", "\"stream.csv\"", "\"missing.csv\"",
     "é", "💥", "\u{0}", "\t", "\u{feff}",
 ];
 
@@ -39,7 +39,7 @@ const TEMPLATES: &[&str] = &[
     "simulate s from g rows #n seed #n:\n    shade = normal(#n, 1)\n    temp = normal(shade * #n, 1)\n    trout = poisson(log = #n)",
     "table t2 from \"stream.csv\":\n    keep where shade > #n and (temp < #n or not trout = #n)",
     "model m2:\n    temp from spline(shade, #n) using t",
-    "model m3:\n    trout from poly(temp, #n) using t\n    family poisson",
+    "model m3:\n    trout from powers(temp, #n) using t\n    family poisson",
     "prior check m sets #n seed #n",
     "implications of g",
     "graph h:\n    #v -> #v -> #v",

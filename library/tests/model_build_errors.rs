@@ -51,7 +51,7 @@ fn outcome_must_fit_the_family() {
         .assert_eq(&build_error("yield from girth using trees\nfamily poisson", &t));
     // Binomial successes lie in 0..=trials.
     expect!["model line 2: table `trees` row 3, column `fruit`: 10 successes is not a whole number between 0 and the 9 trials in `set`"]
-        .assert_eq(&build_error("fruit from girth using trees\nfamily binomial trials set", &t));
+        .assert_eq(&build_error("fruit from girth using trees\nfamily binomial out of set", &t));
     // A category outcome goes with the levels family only, and the levels family with a category only.
     expect![[r#"model line 2: column `rootstock`: the outcome is a category (dwarf, standard), which goes with `family levels` (or leave the family line out); `family bernoulli` needs a numeric column"#]]
         .assert_eq(&build_error("rootstock from girth using trees\nfamily bernoulli", &t));
@@ -64,7 +64,7 @@ fn priors_must_suit_their_group() {
     let t = orchard(30, 2);
     expect!["prior for spread: normal(0, 1) allows negative values but the spread is positive; use exponential, half_normal or lognormal"]
         .assert_eq(&build_error("yield from girth using trees\nprior spread: normal(0, 1)", &t));
-    expect!["prior for slopes: exponential(1) allows only positive values but slopes can be negative; use normal or student_t"]
+    expect!["prior for slopes: exponential(1) allows only positive values but slopes can be negative; use normal or student"]
         .assert_eq(&build_error("yield from girth using trees\nprior slopes: exponential(1)", &t));
     expect![[r#"prior for spread: this model has no spread; remove the prior line"#]]
         .assert_eq(&build_error("fruit from girth using trees\nfamily poisson\nprior spread: exponential(1)", &t));

@@ -50,7 +50,7 @@ fn check_gradient(body: &str, seed: u64) {
     }
 }
 
-const TERMS: &str = "rootstock, soil, girth per rootstock, poly(age, 3)";
+const TERMS: &str = "rootstock, soil, girth per rootstock, powers(age, 3)";
 const SPLINE_TERMS: &str = "rootstock, spline(age, 6), girth";
 
 #[test]
@@ -69,13 +69,13 @@ fn normal_gradient_with_every_spread_prior() {
 
 #[test]
 fn normal_gradient_with_every_coefficient_prior() {
-    for prior in ["normal(0, 2)", "student_t(3, 0, 2)"] {
+    for prior in ["normal(0, 2)", "student(0, 2, 3)"] {
         check_gradient(
             &format!("yield from {SPLINE_TERMS} using trees\nprior slopes: {prior}\nprior weights: {prior}"),
             5,
         );
     }
-    check_gradient("yield from rootstock using trees\nprior intercepts: student_t(4, 20, 10)", 6);
+    check_gradient("yield from rootstock using trees\nprior intercepts: student(20, 10, 4)", 6);
 }
 
 #[test]
@@ -86,8 +86,8 @@ fn bernoulli_gradient_matches_finite_differences() {
 
 #[test]
 fn binomial_gradient_matches_finite_differences() {
-    check_gradient(&format!("set from {TERMS} using trees\nfamily binomial trials visits"), 9);
-    check_gradient(&format!("set from {SPLINE_TERMS} using trees\nfamily binomial trials visits"), 10);
+    check_gradient(&format!("set from {TERMS} using trees\nfamily binomial out of visits"), 9);
+    check_gradient(&format!("set from {SPLINE_TERMS} using trees\nfamily binomial out of visits"), 10);
 }
 
 #[test]
@@ -101,8 +101,8 @@ fn poisson_gradient_matches_finite_differences() {
 /// levels family by default).
 #[test]
 fn levels_gradient_matches_finite_differences() {
-    check_gradient("soil from rootstock, girth per rootstock, poly(age, 3) using trees", 13);
+    check_gradient("soil from rootstock, girth per rootstock, powers(age, 3) using trees", 13);
     check_gradient("soil from rootstock, spline(age, 6), girth using trees\nfamily levels", 14);
-    check_gradient("soil from girth, fruit using trees\nfamily levels\nprior slopes: student_t(3, 0, 2)", 15);
+    check_gradient("soil from girth, fruit using trees\nfamily levels\nprior slopes: student(0, 2, 3)", 15);
     check_gradient("rootstock from soil, girth using trees", 16);
 }

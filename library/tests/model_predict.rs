@@ -28,7 +28,7 @@ fn mean_uses_the_fitted_centre_and_level_labels() {
     let model = build("yield from rootstock, girth per rootstock using trees", &table);
     let girth = table.column("girth").and_then(|c| c.data.as_reals()).expect("girth");
     let centre = girth.iter().sum::<f64>() / girth.len() as f64;
-    let params = [10.0, 12.0, 0.5, 0.8, 3.0]; // dwarf, standard, b_girth[dwarf], b_girth[standard], spread
+    let params = [10.0, 12.0, 0.5, 0.8, 3.0]; // dwarf, standard, girth slope[dwarf], girth slope[standard], spread
     let rows = model.new_rows(&new_trees(vec![0, 1], vec![30.0, 20.0])).expect("rows");
     let prediction = model.predict_mean(&params, &rows).expect("prediction");
     let expected = [12.0 + 0.8 * (30.0 - centre), 10.0 + 0.5 * (20.0 - centre)];

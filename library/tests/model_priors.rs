@@ -152,7 +152,7 @@ fn centre_off_leaves_the_slope_where_least_squares_puts_it() {
     for body in ["yield from girth using trees", "yield from girth using trees\ncentre off"] {
         let model = build(body, &table);
         let fit = fit_model(&model, &nuts, &AtomicBool::new(false), &|_| {}).expect("fit");
-        let slope = fit.draws.get("b_girth").expect("slope draws");
+        let slope = fit.draws.get("girth slope").expect("slope draws");
         let (mean, sd) = (slope.mean(), slope.std_dev());
         // The Monte Carlo error of the mean of 1000 draws is under 0.05 sd.
         assert!((mean - ols).abs() < 0.25 * sd, "{body}: slope {mean} against least squares {ols} (sd {sd})");

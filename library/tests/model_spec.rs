@@ -25,9 +25,9 @@ fn outcome_line_of_the_design_example_reads_as_terms() {
 }
 
 #[test]
-fn spline_and_poly_terms_read_with_their_arguments() {
+fn spline_and_powers_terms_read_with_their_arguments() {
     let ModelLine::Formula(f) =
-        parse_model_line("height from spline(age, 8, knots 2 5 9), poly(light, 2), spline(age2, 12) using saplings")
+        parse_model_line("height from spline(age, 8, knots 2 5 9), powers(light, 2), spline(age2, 12) using saplings")
             .expect("parses")
     else {
         panic!("not an outcome line")
@@ -36,7 +36,7 @@ fn spline_and_poly_terms_read_with_their_arguments() {
         f.terms,
         vec![
             TermSpec::Spline { predictor: "age".into(), functions: 8, knots: Some(vec![2.0, 5.0, 9.0]) },
-            TermSpec::Poly { predictor: "light".into(), degree: 2 },
+            TermSpec::Powers { predictor: "light".into(), degree: 2 },
             TermSpec::Spline { predictor: "age2".into(), functions: 12, knots: None },
         ]
     );
@@ -46,7 +46,7 @@ fn spline_and_poly_terms_read_with_their_arguments() {
 fn family_prior_and_centring_lines() {
     assert_eq!(parse_model_line("family normal"), Ok(ModelLine::Family(Family::Normal)));
     assert_eq!(
-        parse_model_line("family binomial trials visits"),
+        parse_model_line("family binomial out of visits"),
         Ok(ModelLine::Family(Family::Binomial { trials: "visits".into() }))
     );
     assert_eq!(
@@ -54,7 +54,7 @@ fn family_prior_and_centring_lines() {
         Ok(ModelLine::Prior { group: PriorGroup::Intercepts, prior: Prior::Normal { mean: 20.0, sd: 10.0 } })
     );
     assert_eq!(
-        parse_model_line("prior spline weights: student_t(3, 0, 2.5)"),
+        parse_model_line("prior spline weights: student(0, 2.5, 3)"),
         Ok(ModelLine::Prior {
             group: PriorGroup::Weights,
             prior: Prior::StudentT { df: 3.0, location: 0.0, scale: 2.5 }
@@ -80,11 +80,11 @@ fn line_error(text: &str) -> String {
 
 #[test]
 fn syntax_errors_say_what_to_write() {
-    expect![[r#"a binomial outcome needs its number of trials: write `family binomial trials <column>`"#]]
+    expect!["a binomial outcome needs the column that holds each row's number of trials: write `family binomial out of <column>`"]
         .assert_eq(&line_error("family binomial"));
-    expect![[r#"`family gamma`: use normal, bernoulli, poisson, levels or binomial trials <column>"#]]
+    expect!["`family gamma`: use normal, bernoulli, poisson, levels or binomial out of <column>"]
         .assert_eq(&line_error("family gamma"));
-    expect![[r#"`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student_t, exponential, half_normal, lognormal or uniform"#]]
+    expect!["`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student, exponential, half_normal, lognormal or uniform"]
         .assert_eq(&line_error("prior slopes: cauchy(0, 1)"));
     expect![[r#"`normal(0)`: normal takes 2 numbers (mean, sd), not 1"#]].assert_eq(&line_error("prior slopes: normal(0)"));
     expect![[r#"`normal(0, -1)`: the sd must be positive"#]].assert_eq(&line_error("prior slopes: normal(0, -1)"));
@@ -94,8 +94,8 @@ fn syntax_errors_say_what_to_write() {
         .assert_eq(&line_error("yield from girth"));
     expect![[r#"`spline(age, 8, 2 5 9)`: write spline(<column>, <functions>) or spline(<column>, <functions>, knots <a> <b> …)"#]]
         .assert_eq(&line_error("h from spline(age, 8, 2 5 9) using t"));
-    expect![[r#"`poly(age, 0)`: the degree `0` must be a whole number above 0"#]]
-        .assert_eq(&line_error("h from poly(age, 0) using t"));
+    expect!["`powers(age, 0)`: the highest power `0` must be a whole number above 0"]
+        .assert_eq(&line_error("h from powers(age, 0) using t"));
 }
 
 #[test]

@@ -89,7 +89,7 @@ fn nonlinear_contrast_is_the_mean_of_per_draw_probabilities() {
 /// Source: algebra — in a linear model without interactions the average
 /// over rows of (x·β with the exposure at b) − (x·β with it at a) is the
 /// same for every row, so the standardised contrast equals the contrast at
-/// the held values, draw by draw; for a slope, `girth 30 vs 20` is 10·b_girth.
+/// the held values, draw by draw; for a slope, `girth 30 vs 20` is 10 × `girth slope`.
 #[test]
 fn standardised_contrast_equals_held_contrast_without_interactions() {
     let table = orchard(200, 3);
@@ -106,7 +106,7 @@ fn standardised_contrast_equals_held_contrast_without_interactions() {
         }
     }
     let slope = contrast(&model, &fit.draws, &table, &ContrastRequest::new("girth").between("30", "20")).expect("slope");
-    let b = fit.draws.get("b_girth").expect("b_girth");
+    let b = fit.draws.get("girth slope").expect("girth slope");
     assert!((slope.mean - 10.0 * mean(b)).abs() < 1e-9);
 }
 
@@ -168,7 +168,7 @@ fn contrast_along_a_grid_follows_the_per_level_slopes() {
     let centre = mean(&girth);
     let m = |n: &str| mean(fit.draws.get(n).expect("param"));
     for g in &c.grid {
-        let want = m("rootstock[standard]") - m("rootstock[dwarf]") + (m("b_girth[standard]") - m("b_girth[dwarf]")) * (g.x - centre);
+        let want = m("rootstock[standard]") - m("rootstock[dwarf]") + (m("girth slope[standard]") - m("girth slope[dwarf]")) * (g.x - centre);
         assert!((g.mean - want).abs() < 1e-9, "{} vs {want}", g.mean);
         assert!(g.lower < g.mean && g.mean < g.upper);
     }
@@ -186,7 +186,7 @@ fn real_exposure_without_values_is_one_unit_above_the_centre() {
     let table = orchard(150, 8);
     let (model, fit) = fitted("yield from girth using trees", &table);
     let c = contrast(&model, &fit.draws, &table, &ContrastRequest::new("girth")).expect("contrast");
-    let b = fit.draws.get("b_girth").expect("b_girth");
+    let b = fit.draws.get("girth slope").expect("girth slope");
     assert!((c.mean - mean(b)).abs() < 1e-9);
     assert!(c.notes.iter().any(|n| n.contains("plus 1")), "{:?}", c.notes);
     assert_eq!(c.interval, "90% central quantile interval");

@@ -103,7 +103,7 @@ fn recovery_lays_intervals_beside_the_mechanism_values() {
     let method = Method::Laplace { draws: 4000, seed: 2 };
     let r = recover(&spec("yield from rootstock, girth using fake"), &sim, &method, &cancel, 0.9).expect("recover");
     let truth = |name: &str| r.parameters.iter().find(|p| p.name == name).and_then(|p| p.truth);
-    assert!((truth("b_girth").expect("slope") - 0.55).abs() < 1e-9);
+    assert!((truth("girth slope").expect("slope") - 0.55).abs() < 1e-9);
     assert!((truth("spread").expect("spread") - 3.0).abs() < 1e-12);
     // The level offset is the indicator's coefficient 1.5 (standard minus dwarf at equal girth).
     let offset = truth("rootstock[standard]").expect("level") - truth("rootstock[dwarf]").expect("level");
@@ -164,7 +164,7 @@ fn binomial_calibration_model() -> Model {
             Column::new("set", ColumnData::Count(set)),
         ],
     };
-    let text = "set from warmth using flowers\nfamily binomial trials visits\nprior intercepts: normal(0, 1)\nprior slopes: normal(0, 1)";
+    let text = "set from warmth using flowers\nfamily binomial out of visits\nprior intercepts: normal(0, 1)\nprior slopes: normal(0, 1)";
     let spec = ModelSpec::from_lines("fruit_set", text.lines().enumerate().map(|(i, l)| (i + 2, l))).expect("spec");
     Model::build(&spec, &table).expect("model")
 }
@@ -187,7 +187,7 @@ fn binomial_calibration_ranks_are_uniform_under_nuts() {
     let reps = 200;
     let c = calibrate(&model, reps, &nuts, 23, &AtomicBool::new(false)).expect("calibrate a binomial model");
     assert_eq!((c.reps, c.failures, c.draws_per_fit, c.bins), (reps, 0, 99, 10));
-    assert_eq!(c.parameters.iter().map(|p| p.name.as_str()).collect::<Vec<_>>(), ["intercept", "b_warmth"]);
+    assert_eq!(c.parameters.iter().map(|p| p.name.as_str()).collect::<Vec<_>>(), ["intercept", "warmth slope"]);
     for p in &c.parameters {
         assert_eq!(p.ranks.len(), reps);
         let mut observed = [0.0f64; 10];

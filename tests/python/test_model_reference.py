@@ -65,15 +65,15 @@ def test_normal_mode_with_wide_priors_matches_ols(probe):
     statsmodels OLS estimate; the mode of log(spread) with its Jacobian solves
     −n + RSS/σ² + 1 = 0, so σ = sqrt(RSS / (n − 1)) with RSS from statsmodels."""
     d = orchard()
-    answer = fit(probe, d, "yield from rootstock, girth per rootstock, poly(age, 2) using trees\n"
+    answer = fit(probe, d, "yield from rootstock, girth per rootstock, powers(age, 2) using trees\n"
                  + WIDE + "prior spread: exponential(0.000001)")
     g = d["girth"] - d["girth"].mean()
     z = (d["age"] - d["age"].mean()) / d["age"].std(ddof=1)
     ind = index_coding(d["rootstock"], 2)
     x = np.column_stack([ind, g * ind[:, 0], g * ind[:, 1], z, z ** 2])
     ols = sm.OLS(d["yield_kg"], x).fit()
-    assert answer["names"] == ["rootstock[dwarf]", "rootstock[standard]", "b_girth[dwarf]",
-                               "b_girth[standard]", "b_age^1", "b_age^2", "spread"]
+    assert answer["names"] == ["rootstock[dwarf]", "rootstock[standard]", "girth slope[dwarf]",
+                               "girth slope[standard]", "age power 1", "age power 2", "spread"]
     assert_relative(answer["mode"][:-1], ols.params)
     assert_relative(answer["mode"][-1], np.sqrt(ols.ssr / (len(g) - 1)))
 
@@ -90,9 +90,9 @@ def test_bernoulli_mode_with_wide_priors_matches_glm_binomial(probe):
 def test_binomial_mode_with_wide_priors_matches_glm_binomial(probe):
     """Flat-prior limit: statsmodels GLM Binomial with (successes, failures)."""
     d = orchard()
-    answer = fit(probe, d, "set from soil, rootstock, girth using trees\nfamily binomial trials visits\n" + WIDE)
+    answer = fit(probe, d, "set from soil, rootstock, girth using trees\nfamily binomial out of visits\n" + WIDE)
     assert answer["names"] == ["soil[loam]", "soil[sandy]", "soil[clay]",
-                               "rootstock[standard vs dwarf]", "b_girth"]
+                               "rootstock[standard vs dwarf]", "girth slope"]
     x = np.column_stack([index_coding(d["soil"], 3), (d["rootstock"] == 1).astype(float),
                          d["girth"] - d["girth"].mean()])
     endog = np.column_stack([d["set"], d["visits"] - d["set"]])
@@ -164,7 +164,7 @@ def test_glm_log_likelihoods_match_scipy(probe):
     p = 1 / (1 + np.exp(-eta))
     ours = log_likelihood(probe, d, "healthy from girth using trees\nfamily bernoulli", [0.2, 0.07])
     assert ours == pytest.approx(st.bernoulli.logpmf(d["healthy"], p).sum(), rel=1e-10)
-    ours = log_likelihood(probe, d, "set from girth using trees\nfamily binomial trials visits", [0.2, 0.07])
+    ours = log_likelihood(probe, d, "set from girth using trees\nfamily binomial out of visits", [0.2, 0.07])
     assert ours == pytest.approx(st.binom.logpmf(d["set"], d["visits"], p).sum(), rel=1e-10)
     ours = log_likelihood(probe, d, "fruit from girth using trees\nfamily poisson", [0.2, 0.07])
     assert ours == pytest.approx(st.poisson.logpmf(d["fruit"], np.exp(eta)).sum(), rel=1e-10)
@@ -172,7 +172,7 @@ def test_glm_log_likelihoods_match_scipy(probe):
 
 @pytest.mark.parametrize("text, reference", [
     ("normal(1.5, 2)", st.norm(1.5, 2)),
-    ("student_t(3, -1, 2.5)", st.t(3, -1, 2.5)),
+    ("student(-1, 2.5, 3)", st.t(3, -1, 2.5)),
     ("exponential(0.5)", st.expon(scale=2.0)),
     ("half_normal(3)", st.halfnorm(scale=3)),
     ("lognormal(0.5, 0.75)", st.lognorm(s=0.75, scale=np.exp(0.5))),
@@ -196,7 +196,7 @@ def test_binomial_calibration_ranks_pass_scipy_chisquare(probe):
     set_ = rng.binomial(visits, 0.4)
     cols = {"warmth": {"real": warmth.tolist()}, "visits": {"count": visits.tolist()},
             "set": {"count": set_.tolist()}}
-    model = ("set from warmth using flowers\nfamily binomial trials visits\n"
+    model = ("set from warmth using flowers\nfamily binomial out of visits\n"
              "prior intercepts: normal(0, 1)\nprior slopes: normal(0, 1)\n")
     answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
                              "reps": 150, "seed": 41, "draws": 297})
@@ -252,7 +252,7 @@ def test_levels_mode_with_wide_priors_matches_mnlogit(probe):
     assert "error" not in answer, answer
     assert answer["family"] == "levels"
     assert answer["levels"] == ["herb", "shrub", "tree"]
-    terms = ["soil[loam]", "soil[sand]", "soil[peat]", "b_shade"]
+    terms = ["soil[loam]", "soil[sand]", "soil[peat]", "shade slope"]
     assert answer["names"] == [f"form[{lv} vs herb]: {t}" for lv in ["shrub", "tree"] for t in terms]
     x = sapling_design(d)
     mle = sm.MNLogit(d["form"], x).fit(method="newton", maxiter=100, tol=1e-12, disp=False)
@@ -294,7 +294,7 @@ def test_logit_contrast_over_rows_is_the_per_draw_average_of_statsmodels_predict
     answer = probe("model", {"action": "contrast", "columns": cols, "model": model,
                              "variable": "x", "draws": 200, "seed": 5})
     assert "error" not in answer, answer
-    assert answer["names"] == ["intercept", "b_x", "b_z"], answer["names"]
+    assert answer["names"] == ["intercept", "x slope", "z slope"], answer["names"]
     assert answer["scale"].startswith("probability that y is yes"), answer["scale"]
     # the default settings: x at its mean plus 1 against its mean (printed rounded)
     to, frm = x.mean() + 1, x.mean()

@@ -11,6 +11,7 @@ from pathlib import Path
 import nbformat
 import pytest
 
+import retired_words
 from conftest import REPO, bin_dir
 
 DEMOS = sorted((REPO / "demo-notebooks").glob("*.ipynb"))
@@ -27,13 +28,26 @@ def run(args, cwd=None):
     return subprocess.run([waypath(), *args], capture_output=True, text=True, timeout=900, cwd=cwd)
 
 
+_RUNS = {}
+
+
+def run_demo(demo, tmp_path_factory):
+    """Run `demo` headless once per test session, in a copy of its folder;
+    the finished process, the executed notebook and the report."""
+    if demo not in _RUNS:
+        tmp_path = tmp_path_factory.mktemp(demo.stem)
+        work = tmp_path / "demo"
+        shutil.copytree(demo.parent, work, ignore=shutil.ignore_patterns("*.executed.ipynb", "*.html"))
+        out = tmp_path / "out.ipynb"
+        html = tmp_path / "report.html"
+        done = run(["run", str(work / demo.name), "--out", str(out), "--html", str(html)])
+        _RUNS[demo] = (done, out, html)
+    return _RUNS[demo]
+
+
 @pytest.mark.parametrize("demo", DEMOS, ids=[d.stem for d in DEMOS])
-def test_demo_notebook_runs_headless_into_a_valid_notebook(demo, tmp_path):
-    work = tmp_path / "demo"
-    shutil.copytree(demo.parent, work, ignore=shutil.ignore_patterns("*.executed.ipynb", "*.html"))
-    out = tmp_path / "out.ipynb"
-    html = tmp_path / "report.html"
-    done = run(["run", str(work / demo.name), "--out", str(out), "--html", str(html)])
+def test_demo_notebook_runs_headless_into_a_valid_notebook(demo, tmp_path_factory):
+    done, out, html = run_demo(demo, tmp_path_factory)
     assert done.returncode == 0, done.stderr
     nb = nbformat.read(out, as_version=4)
     nbformat.validate(nb)  # nbformat's own schema check (nbformat 4.5)
@@ -46,6 +60,40 @@ def test_demo_notebook_runs_headless_into_a_valid_notebook(demo, tmp_path):
     report = html.read_text()
     assert report.startswith("<!DOCTYPE html>") and demo.name in report
     assert "<script" not in report  # self-contained, nothing executes
+
+
+def strings_in(value):
+    """Every string inside a JSON value, keys included (unescaped, so a word
+    at the start of an output line is seen at a word start)."""
+    if isinstance(value, str):
+        yield value
+    elif isinstance(value, list):
+        for v in value:
+            yield from strings_in(v)
+    elif isinstance(value, dict):
+        for k, v in value.items():
+            yield k
+            yield from strings_in(v)
+
+
+def test_the_retired_word_check_sees_a_label_at_a_line_start_and_not_inside_a_word():
+    text = "\n".join(strings_in({"text/plain": ["parameter  mean\n", "b_girth  0.4\n"], "sub_total": 1}))
+    assert [hit.split(" ")[0] for hit in retired_words.found_in(text)] == ["`b_`"]
+    assert retired_words.found_in("sub_total, draw_count, web_page, family binomial out of n") == []
+
+
+@pytest.mark.parametrize("demo", DEMOS, ids=[d.stem for d in DEMOS])
+def test_demo_output_speaks_our_own_words(demo, tmp_path_factory):
+    """Issue 14, "Keep it so": no retired label or word (tests/retired-words.txt)
+    in the executed demo, its cells' sources or any output (text, HTML, JSON,
+    figures), nor in its report."""
+    done, out, html = run_demo(demo, tmp_path_factory)
+    assert done.returncode == 0, done.stderr
+    executed = json.loads(out.read_text(encoding="utf-8"))
+    texts = list(strings_in(executed))
+    assert any(c.get("outputs") for c in executed["cells"]), "no output to look into"
+    found = retired_words.found_in("\n".join(texts)) + retired_words.found_in(html.read_text(encoding="utf-8"))
+    assert found == [], f"{demo.name} shows retired words: {sorted(set(found))}"
 
 
 def notebook_with(cells, path):

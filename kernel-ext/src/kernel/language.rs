@@ -451,24 +451,25 @@ mod tests {
 
     /// README "Statements", `model NAME:`: `yield from rootstock, girth per
     /// rootstock using trees`; `family bernoulli` (or `poisson`, `binomial
-    /// trials n`, `levels`), `prior slopes: normal(0, 2)`, `centre off`.
+    /// out of n`, `levels`), `prior slopes: normal(0, 2)`, `centre off`.
     #[test]
     fn model_body_lines_offer_the_words_of_the_model_parser() {
         let empty = Session::new(".");
         let cases: &[(&str, &[&str])] = &[
             ("", &["centre", "family", "prior"]),
             ("family ", &["bernoulli", "binomial", "levels", "normal", "poisson"]),
-            ("family binomial ", &["trials"]),
+            ("family binomial ", &["out"]),
+            ("family binomial out ", &["of"]),
             ("prior ", &["intercepts", "slopes", "spread", "weights"]),
-            ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student_t(", "uniform("]),
+            ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student(", "uniform("]),
             ("centre ", &["off", "on"]),
             ("yield ", &["from", "using"]),
             ("yield from rootstock ", &["per", "using"]),
             ("yield from rootstock, girth per rootstock ", &["using"]),
-            ("yield from poly(girth, 2) ", &["using"]),
+            ("yield from powers(girth, 2) ", &["using"]),
             ("yield from spline(girth, 5, ", &["knots"]),
             ("fam", &["family"]),
-            ("yield from rootstock, po", &["poly("]),
+            ("yield from rootstock, po", &["powers("]),
         ];
         for (line, want) in cases {
             assert_eq!(offered_in(&empty, "model m:", line), *want, "after {line:?}");
@@ -478,7 +479,7 @@ mod tests {
         assert_eq!(offered_in(&session, "model m:", "yield from rootstock, gi"), ["girth"]);
         assert_eq!(offered_in(&session, "model m:", "yield from girth per r"), ["rootstock"]);
         assert_eq!(offered_in(&session, "model m:", "yield from girth using t"), ["trees"]);
-        assert_eq!(offered_in(&session, "model m:", "family binomial trials gi"), ["girth"]);
+        assert_eq!(offered_in(&session, "model m:", "family binomial out of gi"), ["girth"]);
         // the block is found above earlier body lines
         assert_eq!(offered(&empty, "model m:\n    yield from girth using trees\n    family be"), ["bernoulli"]);
     }

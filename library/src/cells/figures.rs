@@ -168,16 +168,12 @@ pub fn basis(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> 
     let grid: Vec<f64> = (0..GRID_POINTS).map(|i| lo + (hi - lo) * i as f64 / (GRID_POINTS - 1) as f64).collect();
     let rows: Vec<Vec<f64>> = grid.iter().map(|&x| term.basis.row(x)).collect();
     let basis: Vec<Vec<f64>> = (1..term.basis.len()).map(|k| rows.iter().map(|r| r[k]).collect()).collect();
-    let names = &fit.draws.names;
     let thin = thin_indices(fit.draws.len(), 400);
     let weights: Vec<Vec<f64>> = thin
         .iter()
         .map(|&d| term.coefficients.iter().map(|&c| fit.draws.values[c][d]).collect())
         .collect();
-    let intercept_index = names.iter().position(|n| n == "intercept").or_else(|| {
-        model.coefficient_names().iter().position(|n| n.contains('[') && !n.starts_with("b_") && !n.starts_with("w_"))
-    });
-    let intercept: Vec<f64> = match intercept_index {
+    let intercept: Vec<f64> = match model.intercept_position() {
         Some(i) => thin.iter().map(|&d| fit.draws.values[i][d]).collect(),
         None => Vec::new(),
     };

@@ -261,10 +261,12 @@ pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnos
     let divergent: usize = run.divergences.iter().sum();
     if divergent > 0 {
         out.push(format!(
-            "{divergent} of {total} draws came from a divergent trajectory ({}): the sampler \
-             could not follow the posterior's curvature there, so some regions may be missed \
-             and the estimates biased. Try a higher target acceptance such as 0.95, tighter \
-             priors, or a non-centred form for group-level effects.",
+            "{divergent} of {total} draws, in {}, ended a trajectory whose energy blew up: the \
+             posterior bends there more sharply than the sampler's steps can follow, so that \
+             region may be under-visited and the summaries pulled away from it. Treat the table \
+             as provisional: ask for a higher acceptance target in `fit … with nuts` (nearer 1 \
+             means smaller steps), give the slopes firmer priors, or drop a term that nearly \
+             repeats another, and fit again until none is left.",
             chains_phrase(&run.divergences)
         ));
     }
@@ -275,9 +277,11 @@ pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnos
     let hits: usize = run.depth_hits.iter().sum();
     if hits > 0 {
         out.push(format!(
-            "{hits} of {total} draws reached the maximum tree depth of {max_depth} ({}): their \
-             trajectories were cut short, which costs efficiency rather than correctness. Raise \
-             the maximum tree depth, or put the predictors on a scale near 1.",
+            "{hits} of {total} draws, in {}, stopped at the longest trajectory allowed (tree \
+             depth {max_depth}). Such draws are still sound, but each moves the chain less far \
+             than it might, so mixing is slow and ESS drops. If ESS is low too, allow a deeper \
+             tree in `fit … with nuts`, or give predictors units that keep their values near 1 \
+             (metres rather than millimetres).",
             chains_phrase(&run.depth_hits)
         ));
     }
@@ -296,25 +300,26 @@ pub fn parameter_warnings(label: &str, d: &ParamDiagnostics) -> Vec<String> {
     let mut out = Vec::new();
     if d.rhat > RHAT_LIMIT {
         out.push(format!(
-            "R-hat of {label} is {:.3}, above {RHAT_LIMIT}: the chains disagree about it, so they \
-             have not settled on one posterior. Look at its trace for a chain stuck apart, \
-             and run longer warm-up and more draws.",
+            "R-hat of {label} is {:.3}, above {RHAT_LIMIT}: its chains have not settled on one \
+             posterior; at least one still sits apart from the others. Draw its chains to see \
+             which, then fit again with a longer tuning phase and more draws in `fit … with nuts`.",
             d.rhat
         ));
     }
     if d.ess_bulk < ESS_BULK_LIMIT {
         out.push(format!(
-            "Bulk ESS of {label} is {:.0}, below {ESS_BULK_LIMIT:.0}: its mean and central \
-             interval rest on few effectively independent draws and carry extra Monte Carlo \
-             error. Run more draws, or simplify the model if the chains move slowly.",
+            "Bulk ESS of {label} is {:.0}, below {ESS_BULK_LIMIT:.0}: its draws follow one another \
+             so closely that they count for few independent ones, and its mean and interval \
+             carry more Monte Carlo error than their digits suggest. Fit again with more draws; \
+             if the chains still crawl, look for a term that repeats another.",
             d.ess_bulk
         ));
     }
     if d.ess_tail < ESS_TAIL_LIMIT {
         out.push(format!(
-            "Tail ESS of {label} is {:.0}, below {ESS_TAIL_LIMIT:.0}: the ends of its interval \
-             are tail quantiles and rest on few effectively independent draws there. Run more \
-             draws before reading the interval's ends.",
+            "Tail ESS of {label} is {:.0}, below {ESS_TAIL_LIMIT:.0}: few independent draws fall \
+             near the ends of its interval, so those ends may shift on a refit. Fit again with \
+             more draws before quoting them.",
             d.ess_tail
         ));
     }

@@ -225,7 +225,7 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelE
         }
         if !group.is_positive() && prior.is_positive_only() {
             return problem(format!(
-                "{prior} allows only positive values but {} can be negative; use normal or student_t",
+                "{prior} allows only positive values but {} can be negative; use normal or student",
                 group.name()
             ));
         }

@@ -76,7 +76,7 @@ pub fn check_design_size(spec: &ModelSpec, table: &Table) -> Result<(), ModelErr
     for term in &spec.terms {
         let width = match term {
             TermSpec::Spline { functions, .. } => *functions,
-            TermSpec::Poly { degree, .. } => *degree,
+            TermSpec::Powers { degree, .. } => *degree,
             TermSpec::Column(_) | TermSpec::Per { .. } => continue,
         };
         check_memory(&format!("the term {term}: {width} columns over {rows} rows"), bytes_for(&[rows.max(1), width, 3]))

@@ -47,7 +47,7 @@ impl Model {
                 TermRecipe::LevelIntercepts { column, levels } | TermRecipe::LevelOffsets { column, levels } => {
                     push(Input::Category { column: column.clone(), levels: levels.clone() })
                 }
-                TermRecipe::Slope { column, centre, .. } | TermRecipe::Poly { column, centre, .. } => {
+                TermRecipe::Slope { column, centre, .. } | TermRecipe::Powers { column, centre, .. } => {
                     push(Input::Real { column: column.clone(), centre: *centre })
                 }
                 TermRecipe::SlopePer { column, centre, by, levels, .. } => {
@@ -61,6 +61,19 @@ impl Model {
             }
         }
         inputs
+    }
+
+    /// The coefficient position of the intercept, or of the first level's
+    /// intercept when a category term gives one intercept per level.
+    pub fn intercept_position(&self) -> Option<usize> {
+        let mut start = 0;
+        for recipe in &self.recipes {
+            if matches!(recipe, TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. }) {
+                return Some(start);
+            }
+            start += recipe.labels().len();
+        }
+        None
     }
 
     /// The spline terms of the model.

@@ -15,14 +15,19 @@
 //! | (no category term) | `intercept` | mean outcome (link scale) at the centres |
 //! | first category `rootstock` | `rootstock[dwarf]`, `rootstock[standard]` | one intercept per level |
 //! | later category `soil` | `soil[sandy vs loam]` | offset of a level from the first level |
-//! | real `girth` | `b_girth` | slope per unit of girth |
-//! | `girth per rootstock` | `b_girth[dwarf]`, … | slope within each level |
-//! | `poly(girth, 2)` | `b_girth^1`, `b_girth^2` | coefficients of powers of standardised girth |
-//! | `spline(age, 8)` | `w_age[2]` … `w_age[8]` | weights of basis functions 2–8 |
+//! | real `girth` | `girth slope` | slope per unit of girth |
+//! | `girth per rootstock` | `girth slope[dwarf]`, … | slope within each level |
+//! | `powers(girth, 2)` | `girth power 1`, `girth power 2` | coefficients of powers of standardised girth |
+//! | `spline(age, 8)` | `age spline 2` … `age spline 8` | weights of basis functions 2–8 |
 //! | normal family | `spread` | residual sd (sampled as `log(spread)`) |
-//! | levels family, outcome `form` | `form[shrub vs herb]: b_girth`, … | each label above, once per level after the first (`herb`, the reference): that level's coefficient on the log odds against the reference |
+//! | levels family, outcome `form` | `form[shrub vs herb]: girth slope`, … | each label above, once per level after the first (`herb`, the reference): that level's coefficient on the log odds against the reference |
 //!
-//! A column enters at most one term, so these labels never collide.
+//! Labels read as words, the column first, then the role (`slope`, `power`,
+//! `spline`), then a level in square brackets or a number; square brackets
+//! always hold a category level. A column enters at most one term and
+//! column names hold no spaces, so these labels never collide.
+//! [`terms::design::slope_label`] writes a slope's label for code that looks
+//! one up.
 //!
 //! # The levels family
 //! A category outcome with K levels (`family levels`, or no family line)
@@ -35,8 +40,9 @@
 //!
 //! # Choices (also reported by [`Model::notes`])
 //! * Real predictors are centred at their mean unless `centre off`.
-//! * `poly(x, d)` uses raw powers of `z = (x − mean) / sd`, not orthogonal
-//!   polynomials: the coefficients keep a plain meaning on the z scale.
+//! * `powers(x, d)` uses raw powers of `z = (x − mean) / sd`, not orthogonal
+//!   polynomials (hence its name): the coefficients keep a plain meaning on
+//!   the z scale.
 //! * `spline(x, k)` is a clamped cubic B-spline basis with `k` functions;
 //!   the first is dropped because the intercepts already span their sum.
 

@@ -78,7 +78,9 @@ pub enum Prior {
 }
 
 impl Prior {
-    /// Read a prior such as `normal(0, 2)` or `student_t(3, 0, 1)`.
+    /// Read a prior such as `normal(0, 2)` or `student(0, 1, 3)` (Student's t
+    /// written like the normal, centre and scale first, then the degrees of
+    /// freedom that set how heavy its tails are).
     pub fn parse(text: &str) -> Result<Prior, ModelError> {
         let text = text.trim();
         let open = text.find('(').filter(|_| text.ends_with(')')).ok_or_else(|| {
@@ -182,7 +184,7 @@ impl fmt::Display for Prior {
         match *self {
             Prior::Normal { mean, sd } => write!(f, "normal({}, {})", n(mean), n(sd)),
             Prior::StudentT { df, location, scale } => {
-                write!(f, "student_t({}, {}, {})", n(df), n(location), n(scale))
+                write!(f, "{STUDENT}({}, {}, {})", n(location), n(scale), n(df))
             }
             Prior::Exponential { rate } => write!(f, "exponential({})", n(rate)),
             Prior::HalfNormal { sd } => write!(f, "half_normal({})", n(sd)),
@@ -236,8 +238,10 @@ fn parse_numbers(inner: &str, whole: &str) -> Result<Vec<f64>, ModelError> {
         .collect()
 }
 
+/// Student's t as a `prior` line writes it: `student(centre, scale, df)`.
+pub const STUDENT: &str = "student";
 /// The distributions a `prior` line may name, each written as a call.
-pub const PRIOR_DISTRIBUTIONS: &[&str] = &["normal", "student_t", "exponential", "half_normal", "lognormal", "uniform"];
+pub const PRIOR_DISTRIBUTIONS: &[&str] = &["normal", STUDENT, "exponential", "half_normal", "lognormal", "uniform"];
 
 fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError> {
     if !PRIOR_DISTRIBUTIONS.contains(&name) {
@@ -245,9 +249,7 @@ fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError
     }
     match (name, args) {
         ("normal", [mean, sd]) => Ok(Prior::Normal { mean: *mean, sd: *sd }),
-        ("student_t", [df, location, scale]) => {
-            Ok(Prior::StudentT { df: *df, location: *location, scale: *scale })
-        }
+        (STUDENT, [location, scale, df]) => Ok(Prior::StudentT { df: *df, location: *location, scale: *scale }),
         ("exponential", [rate]) => Ok(Prior::Exponential { rate: *rate }),
         ("half_normal", [sd]) => Ok(Prior::HalfNormal { sd: *sd }),
         ("lognormal", [m, s]) => Ok(Prior::LogNormal { log_mean: *m, log_sd: *s }),
@@ -259,7 +261,7 @@ fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError
 fn unknown_prior(name: &str, given: usize, text: &str) -> ModelError {
     let wanted = match name {
         "normal" => "2 numbers (mean, sd)",
-        "student_t" => "3 numbers (degrees of freedom, location, scale)",
+        STUDENT => "3 numbers (centre, scale, degrees of freedom)",
         "exponential" => "1 number (rate)",
         "half_normal" => "1 number (sd)",
         "lognormal" => "2 numbers (mean and sd of the log)",
@@ -312,7 +314,7 @@ mod tests {
     #[test]
     fn every_listed_distribution_parses() {
         for name in PRIOR_DISTRIBUTIONS {
-            let built = ["(1)", "(0, 2)", "(3, 0, 2)"].iter().any(|args| Prior::parse(&format!("{name}{args}")).is_ok());
+            let built = ["(1)", "(0, 2)", "(0, 2, 3)"].iter().any(|args| Prior::parse(&format!("{name}{args}")).is_ok());
             assert!(built, "{name} is listed but no argument count parses");
         }
         assert!(Prior::parse("cauchy(0, 1)").is_err());

@@ -13,9 +13,10 @@
 //! * `<outcome> from <term>, <term>, … using <table>` (or `<outcome> using <table>`
 //!   for an intercept-only model). Terms: a column name (a category gives one
 //!   intercept per level, a real column a slope), `<x> per <category>` (one
-//!   slope of x per level), `poly(<x>, <degree>)`, `spline(<x>, <functions>)`
+//!   slope of x per level), `powers(<x>, <degree>)` (raw powers 1 to degree of
+//!   the standardised x), `spline(<x>, <functions>)`
 //!   or `spline(<x>, <functions>, knots <k1> <k2> …)`.
-//! * `family normal | bernoulli | poisson | levels | binomial trials <column>`.
+//! * `family normal | bernoulli | poisson | levels | binomial out of <column>`.
 //!   Without a family line the family follows the outcome column: `levels`
 //!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
@@ -48,12 +49,13 @@ pub const FROM: &str = "from";
 pub const USING: &str = "using";
 /// The word between a predictor and the category of its per-level slopes.
 pub const PER: &str = "per";
-/// The polynomial term `poly(x, d)`.
-pub const POLY: &str = "poly";
+/// The term `powers(x, d)`: raw powers 1 to d of the standardised x (not
+/// orthogonal polynomials, so the word names what the columns are).
+pub const POWERS: &str = "powers";
 /// The B-spline term `spline(x, k[, knots …])`.
 pub const SPLINE: &str = "spline";
 /// The terms written as calls.
-pub const TERM_CALLS: &[&str] = &[POLY, SPLINE];
+pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE];
 /// The word before listed interior knots of a spline term.
 pub const KNOTS: &str = "knots";
 
@@ -64,8 +66,8 @@ pub enum TermSpec {
     Column(String),
     /// `x per c`: one slope of `x` per level of category `c`.
     Per { predictor: String, by: String },
-    /// `poly(x, d)`: powers 1..=d of the standardised predictor.
-    Poly { predictor: String, degree: usize },
+    /// `powers(x, d)`: powers 1..=d of the standardised predictor.
+    Powers { predictor: String, degree: usize },
     /// `spline(x, k)`: k cubic B-spline basis functions of `x`, interior knots
     /// at quantiles unless listed.
     Spline { predictor: String, functions: usize, knots: Option<Vec<f64>> },
@@ -77,7 +79,7 @@ impl TermSpec {
         match self {
             TermSpec::Column(name) => name,
             TermSpec::Per { predictor, .. }
-            | TermSpec::Poly { predictor, .. }
+            | TermSpec::Powers { predictor, .. }
             | TermSpec::Spline { predictor, .. } => predictor,
         }
     }
@@ -88,7 +90,7 @@ impl fmt::Display for TermSpec {
         match self {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
-            TermSpec::Poly { predictor, degree } => write!(f, "poly({predictor}, {degree})"),
+            TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
             TermSpec::Spline { predictor, functions, knots: None } => {
                 write!(f, "spline({predictor}, {functions})")
             }
@@ -283,8 +285,8 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     if text.is_empty() {
         return Err(ModelError::syntax("an empty term between commas; remove the extra comma"));
     }
-    if let Some(inner) = call_arguments(text, POLY) {
-        return parse_poly(inner, text);
+    if let Some(inner) = call_arguments(text, POWERS) {
+        return parse_powers(inner, text);
     }
     if let Some(inner) = call_arguments(text, SPLINE) {
         return parse_spline(inner, text);
@@ -304,13 +306,13 @@ fn call_arguments<'a>(text: &'a str, name: &str) -> Option<&'a str> {
     rest.strip_prefix('(')?.strip_suffix(')')
 }
 
-fn parse_poly(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
+fn parse_powers(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
     let parts: Vec<&str> = inner.split(',').map(str::trim).collect();
     let [x, d] = parts[..] else {
-        return Err(ModelError::syntax(format!("`{whole}`: write poly(<column>, <degree>)")));
+        return Err(ModelError::syntax(format!("`{whole}`: write {POWERS}(<column>, <highest power>)")));
     };
-    let degree = positive_integer(d, whole, "degree")?;
-    Ok(TermSpec::Poly { predictor: identifier(x, "predictor")?, degree })
+    let degree = positive_integer(d, whole, "highest power")?;
+    Ok(TermSpec::Powers { predictor: identifier(x, "predictor")?, degree })
 }
 
 fn parse_spline(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {

@@ -26,7 +26,7 @@ use super::support::{interval_words, require_column, with_column, ContrastSummar
 /// The estimated association of the predictor with the response.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Association {
-    /// The coefficient's label, e.g. `b_girth` or `soil[sandy vs loam]`.
+    /// The coefficient's label, e.g. `girth slope` or `soil[sandy vs loam]`.
     pub label: String,
     pub mean: f64,
     pub lower: f64,
@@ -179,7 +179,7 @@ fn as_binary_if_two_levels(table: &Table, name: &str) -> (Table, Option<String>)
 /// level's difference from the first level.
 fn associations(model: &Model, draws: &crate::draws::Draws, predictor: &str, mass: f64) -> Result<Vec<Association>, QueryError> {
     let names = model.parameter_names();
-    let slope = format!("b_{predictor}");
+    let slope = crate::model::terms::design::slope_label(predictor);
     let summarise = |label: String, values: Vec<f64>| -> Result<Association, QueryError> {
         let s = ContrastSummary::of(&values, mass)?;
         Ok(Association { label, mean: s.mean, lower: s.lower, upper: s.upper })

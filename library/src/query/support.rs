@@ -155,7 +155,7 @@ pub fn predictor_columns(model: &Model) -> Vec<String> {
             TermRecipe::LevelIntercepts { column, .. }
             | TermRecipe::LevelOffsets { column, .. }
             | TermRecipe::Slope { column, .. }
-            | TermRecipe::Poly { column, .. }
+            | TermRecipe::Powers { column, .. }
             | TermRecipe::Spline { column, .. } => add(column),
             TermRecipe::SlopePer { column, by, .. } => {
                 add(column);

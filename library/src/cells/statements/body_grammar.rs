@@ -9,7 +9,7 @@
 //! [`Next::values`] says where one fits.
 
 use super::grammar::{tokens, Next};
-use crate::model::family::{BINOMIAL, FAMILY_WORDS, TRIALS};
+use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, PER, PRIOR_LINE, SPLINE, TERM_CALLS, USING};
 use crate::model::PriorGroup;
@@ -64,8 +64,9 @@ fn model_line(typed: &str) -> Next {
     match words.as_slice() {
         [] => next(LINE_WORDS, &[], true),
         [FAMILY_LINE] => next(FAMILY_WORDS, &[], false),
-        [FAMILY_LINE, BINOMIAL] => next(&[TRIALS], &[], false),
-        [FAMILY_LINE, BINOMIAL, TRIALS] => next(&[], &[], true),
+        [FAMILY_LINE, BINOMIAL] => next(&OUT_OF[..1], &[], false),
+        [FAMILY_LINE, BINOMIAL, out] if *out == OUT_OF[0] => next(&OUT_OF[1..], &[], false),
+        [FAMILY_LINE, BINOMIAL, out, of] if [*out, *of] == OUT_OF => next(&[], &[], true),
         [PRIOR_LINE] => Next { words: PriorGroup::words(), calls: Vec::new(), values: false },
         [PRIOR_LINE, .., ":"] => next(&[], PRIOR_DISTRIBUTIONS, false),
         [CENTRE_LINE] => next(CENTRINGS, &[], false),
@@ -74,7 +75,7 @@ fn model_line(typed: &str) -> Next {
     }
 }
 
-/// `Y from TERM, TERM per C, poly(X, D), spline(X, K, knots …) using T`.
+/// `Y from TERM, TERM per C, powers(X, D), spline(X, K, knots …) using T`.
 fn outcome_line(typed: &str, words: &[&str]) -> Next {
     if let Some((call, commas, _)) = open_call(typed) {
         return match (call, commas) {

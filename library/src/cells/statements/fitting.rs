@@ -305,6 +305,14 @@ pub(crate) fn require_fit<'s>(session: &'s Session, name: &str, line: usize) -> 
     session.fits.get(name).ok_or_else(|| CellError::at(line, format!("model {name} is not fitted yet; run `fit {name}` first")))
 }
 
+/// The parameter label that `typed` names: the same words (`girth slope[dwarf]`),
+/// however many spaces were typed between them.
+fn parameter_named(typed: &str, names: &[String]) -> Option<String> {
+    let words = |s: &str| s.split_whitespace().collect::<Vec<_>>().join(" ");
+    let typed = words(typed);
+    names.iter().find(|n| words(n) == typed).cloned()
+}
+
 /// `plot NAME posterior|trace [of A, B]`.
 pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let ([name, kind], rest) = match PLOT.read_n(st.head()) {
@@ -340,14 +348,17 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         let text = format!("{kind} figure of {name}: {note}");
         return Ok(vec![Display { plain: text, html: None, svg: Some(svg), json: None }]);
     }
-    for c in &chosen {
-        if fit.draws.get(c).is_none() {
-            return Err(CellError::at(
-                st.header.number,
-                format!("model {name} has no parameter {c}; its parameters are {}", fit.draws.names.join(", ")),
-            ));
-        }
-    }
+    let chosen = chosen
+        .iter()
+        .map(|c| {
+            parameter_named(c, &fit.draws.names).ok_or_else(|| {
+                CellError::at(
+                    st.header.number,
+                    format!("model {name} has no parameter {c}; its parameters are {}", fit.draws.names.join(", ")),
+                )
+            })
+        })
+        .collect::<Result<Vec<_>, _>>()?;
     let svg = if kind == "posterior" {
         figures::posterior_of(model, fit, &chosen)
     } else {

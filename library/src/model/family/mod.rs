@@ -32,20 +32,21 @@ pub enum Family {
     Levels,
 }
 
-/// The family words of a `family` line (binomial then takes `trials <column>`).
+/// The family words of a `family` line (binomial then takes `out of <column>`).
 pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, LEVELS, BINOMIAL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
 const LEVELS: &str = "levels";
-/// The family that takes `trials <column>` after it.
+/// The family that takes `out of <column>` after it.
 pub const BINOMIAL: &str = "binomial";
-/// The word before the trials column of a binomial family.
-pub const TRIALS: &str = "trials";
+/// The words between `binomial` and the column that holds each row's
+/// number of trials: successes *out of* that many.
+pub const OUT_OF: [&str; 2] = ["out", "of"];
 
 impl Family {
     /// Read the rest of a `family` line: `normal`, `bernoulli`, `poisson`,
-    /// `levels`, or `binomial trials <column>`.
+    /// `levels`, or `binomial out of <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
         match words[..] {
@@ -53,12 +54,13 @@ impl Family {
             [BERNOULLI] => Ok(Family::Bernoulli),
             [POISSON] => Ok(Family::Poisson),
             [LEVELS] => Ok(Family::Levels),
-            [BINOMIAL, TRIALS, column] => Ok(Family::Binomial { trials: column.to_string() }),
+            [BINOMIAL, out, of, column] if [out, of] == OUT_OF => Ok(Family::Binomial { trials: column.to_string() }),
             [BINOMIAL, ..] => Err(ModelError::syntax(
-                "a binomial outcome needs its number of trials: write `family binomial trials <column>`",
+                "a binomial outcome needs the column that holds each row's number of trials: \
+                 write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, levels or binomial trials <column>"
+                "`family {text}`: use normal, bernoulli, poisson, levels or binomial out of <column>"
             ))),
         }
     }

@@ -95,7 +95,7 @@ pub fn level_probabilities(eta_after_reference: &[f64]) -> Vec<f64> {
 
 /// The start of the labels of level `level`'s coefficients,
 /// `form[shrub vs herb]: ` (followed by the term's label, as in
-/// `form[shrub vs herb]: b_shade`): each coefficient moves the log odds of
+/// `form[shrub vs herb]: shade slope`): each coefficient moves the log odds of
 /// that level against the reference level.
 pub fn level_prefix(outcome: &str, level: &str, reference: &str) -> String {
     format!("{outcome}[{level} vs {reference}]: ")

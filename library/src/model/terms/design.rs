@@ -1,11 +1,14 @@
 //! Evaluating term recipes on a table: the design matrix and the label,
 //! prior group and scale of each of its columns.
 //!
-//! Labels (documented for users in [`crate::model`]):
-//! `intercept`; `rootstock[dwarf]` (intercept of a level);
+//! Labels (documented for users in [`crate::model`]) read as words: the
+//! column, then the coefficient's role, then a level in square brackets or
+//! a number. `intercept`; `rootstock[dwarf]` (intercept of a level);
 //! `soil[sandy vs loam]` (offset of a level from the first level);
-//! `b_girth` (slope); `b_girth[dwarf]` (slope within a level);
-//! `b_girth^2` (polynomial power); `w_age[3]` (weight of spline function 3).
+//! `girth slope`; `girth slope[dwarf]` (slope within a level);
+//! `day power 2` (coefficient of the squared standardised day);
+//! `age spline 3` (weight of B-spline function 3). Column names hold no
+//! spaces, so a label with a role word never equals a column-based one.
 
 use nalgebra::DMatrix;
 
@@ -15,6 +18,18 @@ use super::super::columns::{category_levels, find_column, real_values};
 use super::super::error::ModelError;
 use super::super::prior::PriorGroup;
 use super::recipe::TermRecipe;
+
+/// The role word of a slope's label.
+pub const SLOPE: &str = "slope";
+/// The role word of a power's label.
+pub const POWER: &str = "power";
+/// The role word of a spline weight's label.
+pub const SPLINE: &str = "spline";
+
+/// The label of the slope of real column `column`: `girth slope`.
+pub fn slope_label(column: &str) -> String {
+    format!("{column} {SLOPE}")
+}
 
 impl TermRecipe {
     /// Labels of the term's coefficients.
@@ -27,12 +42,12 @@ impl TermRecipe {
             TermRecipe::LevelOffsets { column, levels } => {
                 levels[1..].iter().map(|l| format!("{column}[{l} vs {}]", levels[0])).collect()
             }
-            TermRecipe::Slope { column, .. } => vec![format!("b_{column}")],
+            TermRecipe::Slope { column, .. } => vec![slope_label(column)],
             TermRecipe::SlopePer { column, levels, .. } => {
-                levels.iter().map(|l| format!("b_{column}[{l}]")).collect()
+                levels.iter().map(|l| format!("{}[{l}]", slope_label(column))).collect()
             }
-            TermRecipe::Poly { column, degree, .. } => (1..=*degree).map(|j| format!("b_{column}^{j}")).collect(),
-            TermRecipe::Spline { column, basis } => (2..=basis.len()).map(|j| format!("w_{column}[{j}]")).collect(),
+            TermRecipe::Powers { column, degree, .. } => (1..=*degree).map(|j| format!("{column} {POWER} {j}")).collect(),
+            TermRecipe::Spline { column, basis } => (2..=basis.len()).map(|j| format!("{column} {SPLINE} {j}")).collect(),
         }
     }
 
@@ -51,7 +66,7 @@ impl TermRecipe {
         match self {
             TermRecipe::Slope { scale, .. } => vec![*scale],
             TermRecipe::SlopePer { scale, levels, .. } => vec![*scale; levels.len()],
-            TermRecipe::Poly { power_scales, .. } => power_scales.clone(),
+            TermRecipe::Powers { power_scales, .. } => power_scales.clone(),
             other => vec![1.0; other.labels().len()],
         }
     }
@@ -71,7 +86,7 @@ impl TermRecipe {
                     .map(|ind| ind.iter().zip(&x).map(|(a, b)| a * b).collect())
                     .collect()
             }
-            TermRecipe::Poly { column, centre, scale, degree, .. } => {
+            TermRecipe::Powers { column, centre, scale, degree, .. } => {
                 let z: Vec<f64> = centred(table, column, *centre)?.iter().map(|v| v / scale).collect();
                 (1..=*degree).map(|j| z.iter().map(|v| v.powi(j as i32)).collect()).collect()
             }

@@ -10,7 +10,7 @@ use crate::table::Table;
 use super::super::columns::{category_levels, find_column, real_values};
 use super::super::error::ModelError;
 use super::super::prior::short_number;
-use super::super::spec::{ModelSpec, TermSpec};
+use super::super::spec::{ModelSpec, TermSpec, POWERS};
 use super::super::spline::{quantile_knots, BSplineBasis};
 
 /// Degree of spline bases (cubic).
@@ -31,7 +31,7 @@ pub enum TermRecipe {
     SlopePer { column: String, centre: f64, scale: f64, by: String, levels: Vec<String> },
     /// `z^1 … z^degree` with `z = (x − centre) / scale`; `power_scales`
     /// are the sample sds of the powers on the fitted data.
-    Poly { column: String, centre: f64, scale: f64, degree: usize, power_scales: Vec<f64> },
+    Powers { column: String, centre: f64, scale: f64, degree: usize, power_scales: Vec<f64> },
     /// B-spline basis functions 2..=k of `x` (the first is dropped).
     Spline { column: String, basis: BSplineBasis },
 }
@@ -71,7 +71,7 @@ impl Planner<'_> {
         match term {
             TermSpec::Column(name) => self.plan_column(name),
             TermSpec::Per { predictor, by } => self.plan_per(predictor, by),
-            TermSpec::Poly { predictor, degree } => self.plan_poly(predictor, *degree),
+            TermSpec::Powers { predictor, degree } => self.plan_powers(predictor, *degree),
             TermSpec::Spline { predictor, functions, knots } => {
                 self.plan_spline(predictor, *functions, knots.as_deref())
             }
@@ -144,11 +144,11 @@ impl Planner<'_> {
         Ok(())
     }
 
-    fn plan_poly(&mut self, predictor: &str, degree: usize) -> Result<(), ModelError> {
-        let x = self.numeric(predictor, "a polynomial term")?;
+    fn plan_powers(&mut self, predictor: &str, degree: usize) -> Result<(), ModelError> {
+        let x = self.numeric(predictor, "a powers term")?;
         if distinct_count(&x) <= degree {
             return Err(ModelError::syntax(format!(
-                "{predictor} has only {} distinct values, too few for degree {degree}; lower the degree",
+                "{predictor} has only {} distinct values, too few for powers up to {degree}; lower the highest power",
                 distinct_count(&x)
             )));
         }
@@ -158,12 +158,12 @@ impl Planner<'_> {
             .map(|j| mean_and_sd(&x.iter().map(|v| ((v - centre) / scale).powi(j as i32)).collect::<Vec<_>>()).1)
             .collect();
         self.notes.push(format!(
-            "poly({predictor}, {degree}): raw powers 1 to {degree} of z = ({predictor} − {}) / {} \
+            "{POWERS}({predictor}, {degree}): raw powers 1 to {degree} of z = ({predictor} − {}) / {} \
              (centred and scaled by its mean and sd, not orthogonalised)",
             short_number(centre),
             short_number(scale)
         ));
-        self.recipes.push(TermRecipe::Poly { column: predictor.to_string(), centre, scale, degree, power_scales });
+        self.recipes.push(TermRecipe::Powers { column: predictor.to_string(), centre, scale, degree, power_scales });
         Ok(())
     }
 
