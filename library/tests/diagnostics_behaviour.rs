@@ -167,7 +167,7 @@ fn dispersed_starts_let_rhat_see_a_second_mode() {
     // reach both modes and R-hat flags the run; the former scheme, jitter of
     // sd 0.1 around that one point, keeps every chain in one mode and R-hat
     // stays near 1 — no warning, a wrong answer trusted.
-    let settings = NutsSettings { chains: 4, warmup: 200, draws: 200, seed: 3, threads: 1, ..NutsSettings::default() };
+    let settings = NutsSettings { chains: 4, settle: 200, draws: 200, seed: 3, threads: 1, ..NutsSettings::default() };
     let cancel = AtomicBool::new(false);
     let run_from = |starts: Vec<Vec<f64>>| sample_nuts(&TwoModes, &Init::Given(starts), &settings, &cancel, &|_| {}).expect("run");
     let dispersed: Vec<Vec<f64>> = stratified_scores(1, 4, 3).iter().map(|z| vec![3.0 + 4.0 * z[0]]).collect();
