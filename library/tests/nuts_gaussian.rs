@@ -84,8 +84,9 @@ fn correlated_2d_gaussian_moments_and_correlation_are_recovered() {
     let run = sample_nuts(&target, &Init::default(), &NutsSettings::default(), &AtomicBool::new(false), &quiet)
         .expect("run completes");
 
-    assert_eq!(run.draws.len(), 4);
-    assert!(run.draws.iter().all(|c| c.len() == 1000));
+    // The defaults are applied: their number of chains, each with their kept draws.
+    assert_eq!(run.draws.len(), waypath::infer::nuts::CHAINS);
+    assert!(run.draws.iter().all(|c| c.len() == waypath::infer::nuts::DRAWS));
     assert_moments(&run, &mu, &sigma);
 
     // Sample correlation: se ≈ (1 - ρ²)/√n for a bivariate normal (recalled,
