@@ -50,20 +50,18 @@ pub fn estimates_grid(lead: &[&str], rows: &[(Vec<String>, &Summary)], mass: f64
     grid
 }
 
-/// `mean (lower to upper)` per summary, each number padded to the widest of
-/// its kind so that a column of them lines up in plain text.
+/// `mean (lower to upper)` per summary: the means padded to the widest
+/// and the bracketed intervals to the widest, so that in a right-aligned
+/// column of them the means and the brackets line up in plain text.
 pub fn estimate_cells(summaries: &[&Summary]) -> Vec<String> {
-    let parts: Vec<[String; 3]> =
-        summaries.iter().map(|s| [num(s.mean), num(s.interval.lower), num(s.interval.upper)]).collect();
-    let width = |k: usize| parts.iter().map(|p| p[k].chars().count()).max().unwrap_or(0);
-    let (wm, wl, wu) = (width(0), width(1), width(2));
-    parts
+    let parts: Vec<(String, String)> = summaries
         .iter()
-        .map(|[m, l, u]| {
-            let pad = |s: &str, w: usize| format!("{}{s}", " ".repeat(w.saturating_sub(s.chars().count())));
-            format!("{} ({} to {})", pad(m, wm), pad(l, wl), pad(u, wu))
-        })
-        .collect()
+        .map(|s| (num(s.mean), format!("({} to {})", num(s.interval.lower), num(s.interval.upper))))
+        .collect();
+    let wm = parts.iter().map(|p| p.0.chars().count()).max().unwrap_or(0);
+    let wi = parts.iter().map(|p| p.1.chars().count()).max().unwrap_or(0);
+    let pad = |s: &str, w: usize| format!("{}{s}", " ".repeat(w.saturating_sub(s.chars().count())));
+    parts.iter().map(|(m, i)| format!("{} {}", pad(m, wm), pad(i, wi))).collect()
 }
 
 /// A share of draws as a percentage: `100%` and `0%` only when every draw
@@ -229,6 +227,21 @@ mod tests {
         assert_eq!(share_above_zero(0.0002), "<0.1%");
         assert_eq!(share_above_zero(0.0), "0%");
         assert_eq!(share_above_zero(0.4375), "43.8%");
+    }
+
+    #[test]
+    fn estimates_line_up_by_mean_and_by_bracket() {
+        let summary = |mean: f64, lower: f64, upper: f64| Summary {
+            name: "p".into(),
+            mean,
+            sd: 1.0,
+            interval: crate::draws::Interval { lower, upper, mass: 0.9 },
+            hdi: None,
+            prob_positive: 1.0,
+        };
+        let (a, b) = (summary(29.89, 28.92, 30.84), summary(1.113, 0.9257, 1.296));
+        let cells = estimate_cells(&[&a, &b]);
+        assert_eq!(cells, ["29.89  (28.92 to 30.84)", "1.113 (0.9257 to 1.296)"]);
     }
 
     #[test]

@@ -201,13 +201,7 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
     let summaries = fit.draws.summarise(&spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
     let pct = format!("{:.0}%", INTERVAL_MASS * 100.0);
-    let heading = format!(
-        "fit {}: {} draws in {:.2} s — {}",
-        model.name(),
-        fit.draws.len(),
-        fit.seconds,
-        fit.method.describe()
-    );
+    let heading = format!("fit {}, {:.2} s: {}", model.name(), fit.seconds, fit.method.describe());
     let rows: Vec<(Vec<String>, &crate::draws::Summary)> = summaries.iter().map(|s| (vec![s.name.clone()], s)).collect();
     let grid = fit_summary::estimates_grid(&["parameter"], &rows, INTERVAL_MASS);
     let estimates: Vec<_> = summaries.iter().map(|s| fit_summary::estimate_json(&s.name, s)).collect();
