@@ -104,6 +104,13 @@ rootstock. For the direct effect, girth enters too, with its own slope within
 each rootstock. Priors we do not declare are Waypath's defaults: the predictors
 share one budget on the outcome's scale, and intercepts are priced at the
 average row. The fit lists every prior and who set it.
+
+Each fit reads in two parts. First the estimates: every parameter's posterior
+mean with its 90% interval in one cell, the sd of its draws, and the share of
+draws above zero. Then, apart, one sentence on the sampler's health: the
+parameter with the largest R-hat and those with the fewest effective draws in
+the bulk and in the tails, divergent trajectories, and how deep the
+trajectories went. Warnings follow only when a check fails.
 """),
     code("""
 model m_total:

@@ -4,9 +4,13 @@
 //! ```text
 //! cargo run --release -p waypath --example engine_bench            # every case
 //! cargo run --release -p waypath --example engine_bench -- a c     # chosen cases
+//! cargo run --release -p waypath --example engine_bench -- a c d --settle 300 --draws 600 --seed 2
 //! ```
 //!
-//! Cases (NUTS: 4 chains × (1000 warm-up + 1000 draws), the defaults):
+//! NUTS runs with Waypath's default settings unless the sampler options of
+//! `fit … with nuts` are given as flags (`--chains`, `--settle`, `--draws`,
+//! `--acceptance`, `--doublings`, `--seed`): that is how the defaults were
+//! chosen (README, Performance). Cases:
 //! * `a` — stream reaches: `density from reach, depth per reach`, a
 //!   two-level category with its own intercept and slope, n = 400, NUTS;
 //! * `b` — the same model at n = 1,000,000, written to a CSV file in the
@@ -19,7 +23,9 @@
 //!   functions, n = 1,000, NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
-//! that ESS per wall second, and the peak resident memory of the case
+//! that ESS per wall second, the smallest tail ESS, the largest R-hat,
+//! divergent trajectories, the deepest trajectory (doublings) and the draws
+//! that reached the doubling limit, and the peak resident memory of the case
 //! (`VmHWM` of `/proc/self/status`, reset before each case through
 //! `/proc/self/clear_refs` where the kernel allows it). Wall seconds cover
 //! everything the case does after its data exist, diagnostics included;
@@ -49,25 +55,40 @@ struct Row {
     /// Processor time of the whole process over the case (all threads).
     cpu_seconds: f64,
     min_ess: Option<f64>,
+    /// Smallest tail ESS and largest R-hat over the parameters (NUTS only).
+    min_tail: Option<f64>,
+    max_rhat: Option<f64>,
+    divergences: usize,
+    deepest: u32,
+    depth_hits: usize,
     peak_mib: f64,
 }
 
 fn main() {
     let mut chosen: Vec<String> = std::env::args().skip(1).collect();
     let chart = take_chart_path(&mut chosen);
+    let nuts = match take_settings(&mut chosen) {
+        Ok(settings) => settings,
+        Err(message) => {
+            eprintln!("{message}");
+            std::process::exit(2);
+        }
+    };
+    eprintln!("{}", Method::Nuts(nuts.clone()).describe());
+    let nuts = &nuts;
     let wants = |case: &str| chosen.is_empty() || chosen.iter().any(|c| c == case);
     let mut rows = Vec::new();
     if wants("a") {
-        rows.push(case_stratified());
+        rows.push(case_stratified(nuts));
     }
     if wants("b") {
-        rows.extend(case_million());
+        rows.extend(case_million(nuts));
     }
     if wants("c") {
-        rows.push(case_logistic());
+        rows.push(case_logistic(nuts));
     }
     if wants("d") {
-        rows.push(case_spline());
+        rows.push(case_spline(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -83,6 +104,21 @@ fn take_chart_path(args: &mut Vec<String>) -> Option<PathBuf> {
     let at = args.iter().position(|a| a == "--chart")?;
     args.remove(at);
     (at < args.len()).then(|| PathBuf::from(args.remove(at)))
+}
+
+/// The sampler flags (`--settle 300` …) among the arguments: Waypath's
+/// defaults with those given replaced, read as `fit … with nuts` reads them.
+fn take_settings(args: &mut Vec<String>) -> Result<NutsSettings, String> {
+    let mut options = Vec::new();
+    while let Some(at) = args.iter().position(|a| a.starts_with("--") && a != "--chart") {
+        let flag = args.remove(at);
+        let value = (at < args.len()).then(|| args.remove(at)).ok_or_else(|| format!("{flag} needs a value"))?;
+        options.push(format!("{} {value}", &flag[2..]));
+    }
+    match waypath::cells::statements::parse_method(&format!("with nuts {}", options.join(" ")))? {
+        Method::Nuts(settings) => Ok(settings),
+        Method::Laplace { .. } => Err("the flags set NUTS options only".into()),
+    }
 }
 
 /// A developer's chart of the table (drawn with plotters; the figures users
@@ -130,19 +166,19 @@ fn draw_chart(rows: &[Row], path: &Path) -> Result<(), Box<dyn std::error::Error
 }
 
 /// (a) A two-level category with its own intercept and slope, n = 400.
-fn case_stratified() -> Row {
+fn case_stratified(nuts: &NutsSettings) -> Row {
     let table = reaches(400, 11);
     reset_peak_memory();
     let started = Clock::start();
     let model = build("m_reach", STRATIFIED_MODEL, &table);
-    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(a) stratified normal, n = 400, NUTS", started, &fit)
 }
 
 const STRATIFIED_MODEL: &str = "density from reach, depth per reach using reaches";
 
 /// (b) The same model on a million rows read from CSV.
-fn case_million() -> Vec<Row> {
+fn case_million(nuts: &NutsSettings) -> Vec<Row> {
     let path = std::env::temp_dir().join(format!("waypath_bench_reaches_{}.csv", std::process::id()));
     write_csv(&reaches(1_000_000, 12), &path);
     reset_peak_memory();
@@ -156,7 +192,7 @@ fn case_million() -> Vec<Row> {
 
     reset_peak_memory();
     let started = Clock::start();
-    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     vec![laplace_row, row("(b) same, n = 1,000,000, NUTS on the built model", started, &fit)]
 }
 
@@ -177,24 +213,24 @@ fn million_to_model(path: &Path) -> (Model, String) {
 }
 
 /// (c) Logistic regression on 20 predictors, n = 10,000.
-fn case_logistic() -> Row {
+fn case_logistic(nuts: &NutsSettings) -> Row {
     let table = plots(10_000, 13);
     let terms: Vec<String> = (1..=20).map(|j| format!("h{j}")).collect();
     let body = format!("nested from {} using plots\nfamily bernoulli", terms.join(", "));
     reset_peak_memory();
     let started = Clock::start();
     let model = build("m_nest", &body, &table);
-    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(c) logistic, 20 predictors, n = 10,000, NUTS", started, &fit)
 }
 
 /// (d) A cubic B-spline with 15 basis functions, n = 1,000.
-fn case_spline() -> Row {
+fn case_spline(nuts: &NutsSettings) -> Row {
     let table = saplings(1000, 14);
     reset_peak_memory();
     let started = Clock::start();
     let model = build("m_growth", "height from spline(age, 15) using saplings", &table);
-    let fit = run_fit(&model, &Method::Nuts(NutsSettings::default()));
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(d) B-spline, 15 functions, n = 1,000, NUTS", started, &fit)
 }
 
@@ -215,11 +251,24 @@ fn run_fit(model: &Model, method: &Method) -> Fit {
 fn row(case: &str, started: Clock, fit: &Fit) -> Row {
     let seconds = started.wall.elapsed().as_secs_f64();
     let cpu_seconds = cpu_seconds() - started.cpu;
-    let min_ess = fit
-        .diagnostics
-        .as_ref()
-        .map(|d| d.iter().map(|p| p.ess_bulk).fold(f64::INFINITY, f64::min));
-    Row { case: case.to_string(), seconds, cpu_seconds, min_ess, peak_mib: peak_memory_mib() }
+    let over = |value: fn(&waypath::infer::diagnostics::ParamDiagnostics) -> f64, largest: bool| {
+        fit.diagnostics.as_ref().map(|d| {
+            let values = d.iter().map(value);
+            if largest { values.fold(f64::NEG_INFINITY, f64::max) } else { values.fold(f64::INFINITY, f64::min) }
+        })
+    };
+    Row {
+        case: case.to_string(),
+        seconds,
+        cpu_seconds,
+        min_ess: over(|p| p.ess_bulk, false),
+        min_tail: over(|p| p.ess_tail, false),
+        max_rhat: over(|p| p.rhat, true),
+        divergences: fit.divergences,
+        deepest: fit.deepest,
+        depth_hits: fit.depth_hits,
+        peak_mib: peak_memory_mib(),
+    }
 }
 
 fn summary_text(fit: &Fit) -> String {
@@ -233,17 +282,21 @@ fn summary_text(fit: &Fit) -> String {
 
 fn render(rows: &[Row]) -> String {
     let mut out = String::from(
-        "| case | wall s | CPU s | min bulk ESS | ESS/s | peak memory (MiB) |\n|---|---|---|---|---|---|\n",
+        "| case | wall s | CPU s | min bulk ESS | ESS/s | min tail ESS | max R-hat | divergent | deepest (at limit) | peak memory (MiB) |\n\
+         |---|---|---|---|---|---|---|---|---|---|\n",
     );
     for r in rows {
         let (ess, rate) = match r.min_ess {
             Some(e) => (format!("{e:.0}"), format!("{:.0}", e / r.seconds)),
             None => ("—".into(), "—".into()),
         };
+        let tail = r.min_tail.map_or("—".into(), |t| format!("{t:.0}"));
+        let rhat = r.max_rhat.map_or("—".into(), |x| format!("{x:.3}"));
+        let depth = if r.min_ess.is_some() { format!("{} ({})", r.deepest, r.depth_hits) } else { "—".into() };
         let _ = writeln!(
             out,
-            "| {} | {:.2} | {:.2} | {ess} | {rate} | {:.0} |",
-            r.case, r.seconds, r.cpu_seconds, r.peak_mib
+            "| {} | {:.2} | {:.2} | {ess} | {rate} | {tail} | {rhat} | {} | {depth} | {:.0} |",
+            r.case, r.seconds, r.cpu_seconds, r.divergences, r.peak_mib
         );
     }
     out

@@ -5,7 +5,7 @@
 //! `10000000000` must be refused with one sentence that says how much memory
 //! it would take and how much the machine has, instead of aborting the
 //! process when the allocation fails. Numbers that a setting stores in a
-//! narrower type are read with their range, so `depth 4294967297` is an
+//! narrower type are read with their range, so `doublings 4294967297` is an
 //! error rather than a silent wrap to 1.
 //!
 //! The memory the machine has is read from `/proc/meminfo` (`MemAvailable`),
@@ -15,10 +15,10 @@
 /// The most NUTS chains one fit may run (each is a thread's work and a
 /// full set of draws).
 pub const MAX_CHAINS: u64 = 64;
-/// The most warm-up iterations per chain.
-pub const MAX_WARMUP: u64 = 1_000_000;
-/// The largest NUTS tree depth (a trajectory then has up to 2^30 steps).
-pub const MAX_TREE_DEPTH: u64 = 30;
+/// The most settling iterations per chain.
+pub const MAX_SETTLE: u64 = 1_000_000;
+/// The most doublings of a NUTS trajectory (it then has up to 2^30 steps).
+pub const MAX_DOUBLINGS: u64 = 30;
 
 /// Bytes of one stored number (`f64`).
 pub const VALUE_BYTES: u128 = 8;

@@ -377,12 +377,12 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     let text = form["model"].as_str().unwrap();
     assert!(text.contains("family levels") && !text.contains("not supported"), "{form}");
 
-    let out = run(&mut session, "fit whole with nuts chains 2 warmup 300 draws 300 seed 4");
+    let out = run(&mut session, "fit whole with nuts chains 2 settle 300 draws 300 seed 4");
     assert!(out.error.is_none(), "{:?}", out.error);
     let json = out.displays[0].json.clone().unwrap();
     let fit_svg = out.displays[0].svg.clone().expect("a joint fit figure");
     let form = json["nodes"].as_array().unwrap().iter().find(|n| n["node"] == "form").cloned().unwrap();
-    let names: Vec<&str> = form["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
+    let names: Vec<&str> = form["estimates"].as_array().unwrap().iter().map(|p| p["parameter"].as_str().unwrap()).collect();
     assert!(names.contains(&"form[shrub vs herb]: soil[sand]") && names.contains(&"form[tree vs herb]: shade slope[peat]"), "{names:?}");
     assert_eq!(names.len(), 12, "two levels after herb × (3 soil intercepts + 3 shade slopes)");
     // The figure names a levels coefficient as the fit's JSON does, once, not
@@ -390,8 +390,8 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     assert!(fit_svg.contains(">form[shrub vs herb]: soil[loam]<") && !fit_svg.contains("form: form["), "figure labels");
     // More parameters than the figure draws: the reader is told how many are left out.
     let all: usize = json["nodes"].as_array().unwrap().iter()
-        .flat_map(|n| n["parameters"].as_array().unwrap())
-        .filter(|p| p["name"] != "spread")
+        .flat_map(|n| n["estimates"].as_array().unwrap())
+        .filter(|p| p["parameter"] != "spread")
         .count();
     assert!(all > 10, "{all}");
     let told = format!("the figure draws the first 10 of {all} node parameters");

@@ -107,12 +107,14 @@ fn fit_reports_labelled_parameters_in_the_documented_structure() {
     );
     assert!(out.error.is_none(), "{:?}", out.error);
     let json = out.displays[2].json.as_ref().unwrap();
-    let names: Vec<&str> = json["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
+    let names: Vec<&str> = json["estimates"].as_array().unwrap().iter().map(|p| p["parameter"].as_str().unwrap()).collect();
     assert_eq!(names, ["rootstock[dwarf]", "rootstock[standard]", "spread"]);
-    for key in ["model", "method", "seed", "divergences", "seconds"] {
+    for key in ["model", "method", "seed", "settings", "interval_mass", "health", "warnings", "seconds"] {
         assert!(json.get(key).is_some(), "missing {key}");
     }
     assert_eq!(json["seed"], 5);
+    // A Laplace fit has no sampler whose health could be judged.
+    assert_eq!(json["health"], serde_json::Value::Null);
     // Category levels are shown by label, never by index code.
     assert!(!out.displays[2].plain.contains("rootstock[0]"));
 }
@@ -165,8 +167,9 @@ fn graph_from_a_dot_file_answers_like_the_same_graph_written_inline() {
 
 /// The README's "Statements" table is the contract: a header that misses a
 /// connecting word is answered with its documented form, and the sampler
-/// options named there (`chains`, `warmup`, `draws`, `seed`, `accept`,
-/// `depth`) are the ones an unknown option is told about.
+/// options named there (`chains`, `settle`, `draws`, `acceptance`,
+/// `doublings`, `seed`) are the ones an unknown option is told about; an
+/// option word of earlier versions is answered with the word that replaced it.
 #[test]
 fn malformed_headers_are_answered_with_their_documented_form() {
     let mut session = Session::new(".");
@@ -188,7 +191,11 @@ fn malformed_headers_are_answered_with_their_documented_form() {
         assert!(m.starts_with(&format!("cannot read \"{cell}\"; the form is: {form}")), "{cell}: {m}");
     }
     let m = message(&mut session, "fit m with nuts steps 3");
-    assert!(m.starts_with("nuts takes chains, warmup, draws, seed, accept, depth — not `steps`"), "{m}");
+    assert!(m.starts_with("nuts takes chains, settle, draws, acceptance, doublings, seed — not `steps`"), "{m}");
+    for (old, new) in [("warmup", "settle"), ("accept", "acceptance"), ("depth", "doublings")] {
+        let m = message(&mut session, &format!("fit m with nuts {old} 3"));
+        assert!(m.starts_with(&format!("the nuts option `{old}` is now called `{new}`")), "{m}");
+    }
     let m = message(&mut session, "calibrate m reps 20 seed 2 with laplace chains 2");
     assert!(m.starts_with("laplace takes `draws` and `seed`, not `chains`"), "{m}");
     let m = message(&mut session, "intervene j: set x 1 0, watch y");

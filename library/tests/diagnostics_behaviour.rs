@@ -79,6 +79,7 @@ fn warnings_name_the_parameter_the_number_and_what_to_try() {
         draws: (0..4).map(|c| chains[c].iter().map(|&x| vec![x]).collect()).collect(),
         divergences: vec![0, 3, 0, 2],
         depth_hits: vec![7, 0, 0, 0],
+        deepest: vec![10, 4, 4, 4],
         step_sizes: vec![0.1; 4],
         seconds: 1.0,
     };
@@ -100,6 +101,7 @@ fn a_stuck_run_is_warned_about() {
         draws: vec![vec![vec![1.5]; 100]; 4],
         divergences: vec![0; 4],
         depth_hits: vec![0; 4],
+        deepest: vec![4; 4],
         step_sizes: vec![0.1; 4],
         seconds: 1.0,
     };
@@ -130,6 +132,7 @@ fn low_tail_ess_is_warned_about_even_when_bulk_ess_is_fine() {
         draws: (0..4).map(|c| chains[c].iter().map(|&x| vec![x]).collect()).collect(),
         divergences: vec![0; 4],
         depth_hits: vec![0; 4],
+        deepest: vec![4; 4],
         step_sizes: vec![0.1; 4],
         seconds: 1.0,
     };
@@ -167,7 +170,7 @@ fn dispersed_starts_let_rhat_see_a_second_mode() {
     // reach both modes and R-hat flags the run; the former scheme, jitter of
     // sd 0.1 around that one point, keeps every chain in one mode and R-hat
     // stays near 1 — no warning, a wrong answer trusted.
-    let settings = NutsSettings { chains: 4, warmup: 200, draws: 200, seed: 3, threads: 1, ..NutsSettings::default() };
+    let settings = NutsSettings { chains: 4, settle: 200, draws: 200, seed: 3, threads: 1, ..NutsSettings::default() };
     let cancel = AtomicBool::new(false);
     let run_from = |starts: Vec<Vec<f64>>| sample_nuts(&TwoModes, &Init::Given(starts), &settings, &cancel, &|_| {}).expect("run");
     let dispersed: Vec<Vec<f64>> = stratified_scores(1, 4, 3).iter().map(|z| vec![3.0 + 4.0 * z[0]]).collect();

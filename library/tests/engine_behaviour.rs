@@ -24,7 +24,7 @@ fn nuts(model: &Model, settings: NutsSettings) -> Fit {
 fn same_seed_gives_identical_draws_on_any_number_of_threads() {
     let table = orchard(50, 3);
     let model = build("yield from rootstock, girth per rootstock using trees", &table);
-    let settings = NutsSettings { warmup: 200, draws: 200, seed: 77, ..Default::default() };
+    let settings = NutsSettings { settle: 200, draws: 200, seed: 77, ..Default::default() };
     let one = nuts(&model, NutsSettings { threads: 1, ..settings.clone() });
     let two = nuts(&model, NutsSettings { threads: 2, ..settings.clone() });
     assert_eq!(one.draws, two.draws);
@@ -55,7 +55,7 @@ fn orchard_with_inches(n: usize, seed: u64) -> Table {
 }
 
 const SETTINGS: NutsSettings =
-    NutsSettings { chains: 4, warmup: 500, draws: 500, target_accept: 0.8, max_depth: 10, seed: 91, threads: 0 };
+    NutsSettings { chains: 4, settle: 500, draws: 500, acceptance: 0.8, doublings: 10, seed: 91, threads: 0 };
 
 /// A ridge of near-constant density along which the chains drift slowly
 /// (flat-ish slope priors of sd 50 against a data-determined width near

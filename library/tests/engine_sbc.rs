@@ -28,7 +28,7 @@ use waypath::model::{Model, ModelSpec};
 use waypath::table::{Column, ColumnData, Table};
 
 const REPLICATIONS: usize = 200;
-const WARMUP: usize = 250;
+const SETTLE: usize = 250;
 
 /// One replication: the true parameters (in model order) and the table
 /// simulated from them.
@@ -61,7 +61,7 @@ fn one_replication(spec: &ModelSpec, seed: u64, simulate: &impl Fn(&mut StdRng) 
     let (truth, table) = simulate(&mut rng);
     let model = Model::build(spec, &table).expect("simulated table fits the model");
     let settings =
-        NutsSettings { chains: 1, warmup: WARMUP, draws: KEPT * THIN, seed, threads: 1, ..Default::default() };
+        NutsSettings { chains: 1, settle: SETTLE, draws: KEPT * THIN, seed, threads: 1, ..Default::default() };
     let fit = fit_model(&model, &Method::Nuts(settings), &AtomicBool::new(false), &|_| {}).expect("fit runs");
     assert_eq!(fit.draws.names.len(), truth.len(), "one true value per parameter");
     fit.draws

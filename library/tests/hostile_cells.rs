@@ -154,13 +154,15 @@ fn numbers_out_of_their_range_are_errors() {
     let dir = folder("ranges");
     let mut session = stream_session(&dir);
     // 4294967297 = 2^32 + 1, which a 32-bit cast turns into 1.
-    let error = error_of(&mut session, "fit m with nuts depth 4294967297");
+    let error = error_of(&mut session, "fit m with nuts doublings 4294967297");
     assert!(error.starts_with("cell line 1:"), "{error}");
-    assert!(error.contains("depth takes a whole number from 1 to 30, not 4294967297"), "{error}");
+    assert!(error.contains("doublings takes a whole number from 1 to 30, not 4294967297"), "{error}");
     let error = error_of(&mut session, "fit m with nuts chains 100000");
     assert!(error.contains("chains takes a whole number from 1 to 64"), "{error}");
-    let error = error_of(&mut session, "fit m with nuts warmup 99999999999");
-    assert!(error.contains("warmup takes a whole number from 0 to 1000000"), "{error}");
+    let error = error_of(&mut session, "fit m with nuts settle 99999999999");
+    assert!(error.contains("settle takes a whole number from 0 to 1000000"), "{error}");
+    let error = error_of(&mut session, "fit m with nuts acceptance 1");
+    assert!(error.contains("acceptance takes a number between 0 and 1 (exclusive), not \"1\""), "{error}");
     let error = error_of(&mut session, "prior check m sets 10000000000");
     assert!(error.contains("sets takes a whole number from 1 to 100000, not 10000000000"), "{error}");
     let error = error_of(&mut session, "fit m with laplace seed 99999999999999999999999");

@@ -20,7 +20,7 @@ use waypath::cells::{CellOutcome, RunControl, Session};
 /// Words and tokens random statements are made of.
 const TOKENS: &[&str] = &[
     "g", "m", "t", "j", "x", "y", "shade", "temp", "trout", "of", "on", "in", "from", "to", "using", "with", "laplace",
-    "nuts", "draws", "chains", "warmup", "depth", "seed", "reps", "rows", "sets", "given", "effect", "total", "direct",
+    "nuts", "draws", "chains", "settle", "doublings", "warmup", "seed", "reps", "rows", "sets", "given", "effect", "total", "direct",
     "set", "vs", "watch", "keep", "where", "and", "or", "not", "->", "<-", ",", ":", "(", ")", "[", "]", "=", "\"",
     "#", "0", "1", "-1", "2.5", "1e308", "-1e308", "nan", "inf", "10000000000", "4294967297",
     "18446744073709551616", "spline(temp, 9)", "powers(temp, 40)", "normal(0, 1)", "\"stream.csv\"", "\"missing.csv\"",
@@ -34,7 +34,7 @@ const TEMPLATES: &[&str] = &[
     "paths from #v to #v in g given #v",
     "ask #k effect of #v on #v in g",
     "fit m with laplace draws #n seed #n",
-    "fit m with nuts chains #n warmup #n draws #n depth #n",
+    "fit m with nuts chains #n settle #n draws #n doublings #n",
     "calibrate m reps #n with laplace draws #n",
     "simulate s from g rows #n seed #n:\n    shade = normal(#n, 1)\n    temp = normal(shade * #n, 1)\n    trout = poisson(log = #n)",
     "table t2 from \"stream.csv\":\n    keep where shade > #n and (temp < #n or not trout = #n)",

@@ -148,7 +148,7 @@ fn centre_off_leaves_the_slope_where_least_squares_puts_it() {
     let sxy: f64 = x.iter().zip(&y).map(|(a, b)| (a - xm) * (b - ym)).sum();
     let sxx: f64 = x.iter().map(|a| (a - xm).powi(2)).sum();
     let ols = sxy / sxx;
-    let nuts = Method::Nuts(NutsSettings { chains: 2, warmup: 500, draws: 500, seed: 1, threads: 1, ..NutsSettings::default() });
+    let nuts = Method::Nuts(NutsSettings { chains: 2, settle: 500, draws: 500, seed: 1, threads: 1, ..NutsSettings::default() });
     for body in ["yield from girth using trees", "yield from girth using trees\ncentre off"] {
         let model = build(body, &table);
         let fit = fit_model(&model, &nuts, &AtomicBool::new(false), &|_| {}).expect("fit");

@@ -84,8 +84,9 @@ fn correlated_2d_gaussian_moments_and_correlation_are_recovered() {
     let run = sample_nuts(&target, &Init::default(), &NutsSettings::default(), &AtomicBool::new(false), &quiet)
         .expect("run completes");
 
-    assert_eq!(run.draws.len(), 4);
-    assert!(run.draws.iter().all(|c| c.len() == 1000));
+    // The defaults are applied: their number of chains, each with their kept draws.
+    assert_eq!(run.draws.len(), waypath::infer::nuts::CHAINS);
+    assert!(run.draws.iter().all(|c| c.len() == waypath::infer::nuts::DRAWS));
     assert_moments(&run, &mu, &sigma);
 
     // Sample correlation: se ≈ (1 - ρ²)/√n for a bivariate normal (recalled,
@@ -120,7 +121,7 @@ fn correlated_10d_gaussian_with_mixed_scales_moments_are_recovered() {
 fn same_seed_gives_identical_draws_on_one_thread_and_on_four() {
     let target = Gaussian::new(vec![0.5, 0.0, -1.0], &ar_covariance(&[1.0, 2.0, 0.5], 0.7));
     let cancel = AtomicBool::new(false);
-    let short = NutsSettings { warmup: 300, draws: 200, seed: 99, ..Default::default() };
+    let short = NutsSettings { settle: 300, draws: 200, seed: 99, ..Default::default() };
     let one = sample_nuts(&target, &Init::default(), &NutsSettings { threads: 1, ..short.clone() }, &cancel, &quiet)
         .expect("run completes");
     let four = sample_nuts(&target, &Init::default(), &NutsSettings { threads: 4, ..short.clone() }, &cancel, &quiet)
@@ -137,7 +138,7 @@ fn same_seed_gives_identical_draws_on_one_thread_and_on_four() {
 #[test]
 fn cancel_flag_stops_a_long_run_within_a_second() {
     let target = Gaussian::new(vec![0.0; 50], &ar_covariance(&[1.0; 50], 0.95));
-    let long = NutsSettings { warmup: 1000, draws: 10_000_000, ..Default::default() };
+    let long = NutsSettings { settle: 1000, draws: 10_000_000, ..Default::default() };
     let cancel = AtomicBool::new(false);
     let started = Instant::now();
     let outcome = std::thread::scope(|s| {
@@ -155,7 +156,7 @@ fn cancel_flag_stops_a_long_run_within_a_second() {
 #[test]
 fn progress_is_reported_for_every_iteration_of_every_chain() {
     let target = Gaussian::new(vec![0.0], &ar_covariance(&[1.0], 0.0));
-    let settings = NutsSettings { chains: 3, warmup: 50, draws: 70, ..Default::default() };
+    let settings = NutsSettings { chains: 3, settle: 50, draws: 70, ..Default::default() };
     let calls = AtomicUsize::new(0);
     let finished = AtomicUsize::new(0);
     let report = |p: Progress| {
@@ -190,7 +191,7 @@ fn higher_target_acceptance_gives_smaller_steps() {
     let target = Gaussian::new(vec![0.0; 5], &ar_covariance(&[1.0; 5], 0.5));
     let cancel = AtomicBool::new(false);
     let step = |target_accept: f64| {
-        let settings = NutsSettings { target_accept, warmup: 500, draws: 100, ..Default::default() };
+        let settings = NutsSettings { acceptance: target_accept, settle: 500, draws: 100, ..Default::default() };
         let run = sample_nuts(&target, &Init::default(), &settings, &cancel, &quiet).expect("run completes");
         mean(&run.step_sizes)
     };
@@ -202,7 +203,7 @@ fn shallow_tree_limit_is_counted_as_depth_hits() {
     // With maximum depth 2 a trajectory has at most 3 leapfrog steps, far
     // too few to cross a strongly correlated 20-D Gaussian before a U-turn.
     let target = Gaussian::new(vec![0.0; 20], &ar_covariance(&[1.0; 20], 0.95));
-    let settings = NutsSettings { max_depth: 2, warmup: 300, draws: 200, ..Default::default() };
+    let settings = NutsSettings { doublings: 2, settle: 300, draws: 200, ..Default::default() };
     let run = sample_nuts(&target, &Init::default(), &settings, &AtomicBool::new(false), &quiet)
         .expect("run completes");
     assert!(run.depth_hits.iter().sum::<usize>() > 400, "depth hits {:?}", run.depth_hits);
@@ -227,7 +228,7 @@ impl LogDensity for Walled {
 
 #[test]
 fn trajectories_hitting_a_wall_are_counted_as_divergent() {
-    let settings = NutsSettings { warmup: 300, draws: 300, ..Default::default() };
+    let settings = NutsSettings { settle: 300, draws: 300, ..Default::default() };
     let init = Init::Random { radius: 0.5 };
     let run = sample_nuts(&Walled, &init, &settings, &AtomicBool::new(false), &quiet).expect("run completes");
     assert!(run.divergences.iter().sum::<usize>() > 0);

@@ -88,7 +88,7 @@ fn sbc_ranks<D: LogDensity>(simulate: impl Fn(&mut StdRng) -> (Vec<f64>, D)) -> 
         let (truth, target) = simulate(&mut rng);
         let settings = NutsSettings {
             chains: 1,
-            warmup: 200,
+            settle: 200,
             draws: KEPT * THIN,
             seed: rep,
             threads: 1,

@@ -126,7 +126,7 @@ fn pearson(pairs: &[(f64, f64)]) -> f64 {
 fn nuts_and_laplace_agree_on_both_routes() {
     let g = graph("stream", &STREAM);
     let table = simulate(&g, &MECHANISMS, 400, 77).table().expect("table");
-    let nuts = Method::Nuts(NutsSettings { chains: 2, warmup: 400, draws: 500, threads: 1, seed: 5, ..NutsSettings::default() });
+    let nuts = Method::Nuts(NutsSettings { chains: 2, settle: 400, draws: 500, threads: 1, seed: 5, ..NutsSettings::default() });
     let by_nuts = both_routes(&table, &g, &nuts);
     let by_laplace = both_routes(&table, &g, &Method::Laplace { draws: 4000, seed: 5 });
     for (n, l) in [(by_nuts.adjustment, by_laplace.adjustment), (by_nuts.joint, by_laplace.joint)] {

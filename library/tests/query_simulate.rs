@@ -139,7 +139,7 @@ fn calibration_model() -> Model {
 #[test]
 fn calibration_ranks_are_uniform_under_nuts() {
     let model = calibration_model();
-    let nuts = Method::Nuts(NutsSettings { chains: 1, warmup: 300, draws: 297, threads: 1, seed: 0, ..NutsSettings::default() });
+    let nuts = Method::Nuts(NutsSettings { chains: 1, settle: 300, draws: 297, threads: 1, seed: 0, ..NutsSettings::default() });
     let c = calibrate(&model, 200, &nuts, 17, &AtomicBool::new(false)).expect("calibrate");
     assert_eq!((c.reps, c.failures, c.draws_per_fit, c.bins), (200, 0, 99, 10));
     for p in &c.parameters {
@@ -183,7 +183,7 @@ const CHI_SQUARE_9_DF_UPPER_1_PERCENT: f64 = 21.666;
 #[test]
 fn binomial_calibration_ranks_are_uniform_under_nuts() {
     let model = binomial_calibration_model();
-    let nuts = Method::Nuts(NutsSettings { chains: 1, warmup: 300, draws: 297, threads: 1, seed: 0, ..NutsSettings::default() });
+    let nuts = Method::Nuts(NutsSettings { chains: 1, settle: 300, draws: 297, threads: 1, seed: 0, ..NutsSettings::default() });
     let reps = 200;
     let c = calibrate(&model, reps, &nuts, 23, &AtomicBool::new(false)).expect("calibrate a binomial model");
     assert_eq!((c.reps, c.failures, c.draws_per_fit, c.bins), (reps, 0, 99, 10));

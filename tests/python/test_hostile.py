@@ -178,7 +178,7 @@ SIZE_CELLS = {
     "a Laplace fit with 10^10 draws": "fit m with laplace draws 10000000000",
     "a spline with 10^10 functions": "model sp:\n    yield from spline(girth, 10000000000) using trees",
     "NUTS with 10^10 chains": "fit m with nuts chains 10000000000",
-    "tree depth 2^32 + 1": "fit m with nuts depth 4294967297",
+    "trajectory doublings 2^32 + 1": "fit m with nuts doublings 4294967297",
 }
 
 
@@ -327,7 +327,7 @@ WORDS = ["table", "graph", "ask", "total", "direct", "effect", "of", "on", "in",
          "intervene", "set", "watch", "simulate", "seed", "recover", "calibrate", "reps", "prior", "check", "sets",
          "trees", "orchard", "m", "girth", "yield", "rootstock", "dwarf", "standard", "->", ":", ",", "(", ")",
          "=", "+", "-", "*", "normal(", "category(", "spline(", "\"trees.csv\"", "\"x.dot\"", "0", "1", "-1",
-         "1e308", "nan", "inf", "99999999999999999999", "chains", "depth", "warmup", "accept", "\u00e9t\u00e9",
+         "1e308", "nan", "inf", "99999999999999999999", "chains", "settle", "doublings", "acceptance", "warmup", "\u00e9t\u00e9",
          "%%rust"]
 
 

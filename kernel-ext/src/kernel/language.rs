@@ -227,9 +227,11 @@ fn describe_model(session: &Session, name: &str) -> String {
         Some(fit) => {
             let draws = &fit.draws;
             format!(
-                "model {name}: fitted, {} chains × {} draws of {} parameters\n    {}\n",
+                "model {name}: fitted ({}), {} draws from {} chain{} of {} parameters\n    {}\n",
+                fit.method.name(),
+                draws.chains * draws.per_chain,
                 draws.chains,
-                draws.per_chain,
+                if draws.chains == 1 { "" } else { "s" },
                 draws.names.len(),
                 draws.names.join(", ")
             )
@@ -380,9 +382,9 @@ mod tests {
             ("intervene j: set x 1 vs 0 ", &["watch"]),
             ("fit m ", &["with"]),
             ("fit m with ", &["laplace", "nuts"]),
-            // README: NUTS options `chains`, `warmup`, `draws`, `seed`, `accept`, `depth`.
-            ("fit m with nuts ", &["accept", "chains", "depth", "draws", "seed", "warmup"]),
-            ("fit m with nuts chains 2 ", &["accept", "depth", "draws", "seed", "warmup"]),
+            // README: NUTS options `chains`, `settle`, `draws`, `acceptance`, `doublings`, `seed`.
+            ("fit m with nuts ", &["acceptance", "chains", "doublings", "draws", "seed", "settle"]),
+            ("fit m with nuts chains 2 ", &["acceptance", "doublings", "draws", "seed", "settle"]),
             ("fit m with laplace ", &["draws", "seed"]),
             ("contrast m: x 1 vs 0 on ", &["means", "outcomes"]),
             ("contrast m: x along z ", &["from"]),
@@ -393,7 +395,7 @@ mod tests {
             assert_eq!(offered(&session, typed), *want, "after {typed:?}");
         }
         assert_eq!(offered(&session, "paths from a to b in g gi"), ["given"]);
-        assert_eq!(offered(&session, "fit m with nuts wa"), ["warmup"]);
+        assert_eq!(offered(&session, "fit m with nuts se"), ["seed", "settle"]);
     }
 
     /// Where a header takes a value, the session's names are offered with

@@ -14,6 +14,7 @@
 
 pub mod figures;
 pub mod files;
+pub mod fit_summary;
 pub mod format;
 pub mod output;
 pub mod parse;

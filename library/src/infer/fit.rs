@@ -40,8 +40,15 @@ impl Method {
                  marginal on a grid, the coefficients drawn given it), {draws} draws, seed {seed}"
             ),
             Method::Nuts(s) => format!(
-                "NUTS, {} chains × ({} warm-up + {} draws), target acceptance {}, max tree depth {}, seed {}",
-                s.chains, s.warmup, s.draws, s.target_accept, s.max_depth, s.seed
+                "NUTS on {} chains, each keeping {} draws after settling for {} ({} draws in all); \
+                 acceptance {}, up to {} doublings per trajectory, seed {}",
+                s.chains,
+                s.draws,
+                s.settle,
+                s.chains.saturating_mul(s.draws),
+                s.acceptance,
+                s.doublings,
+                s.seed
             ),
         }
     }
@@ -71,6 +78,10 @@ pub struct Fit {
     /// Per parameter, in `draws.names` order; `None` for Laplace fits.
     pub diagnostics: Option<Vec<ParamDiagnostics>>,
     pub divergences: usize,
+    /// Kept draws whose trajectory reached the doubling limit (NUTS only).
+    pub depth_hits: usize,
+    /// The most doublings any kept trajectory made (NUTS only; 0 otherwise).
+    pub deepest: u32,
     pub warnings: Vec<String>,
     pub seconds: f64,
 }
@@ -111,7 +122,7 @@ pub fn fit_model(
         },
         Method::Nuts(settings) => {
             let init = Init::Given(dispersed_starts(model, settings.chains, settings.seed));
-            (Ok(sample_nuts(model, &init, settings, cancel, progress)?), settings.max_depth)
+            (Ok(sample_nuts(model, &init, settings, cancel, progress)?), settings.doublings)
         }
     };
     let chains = match &run {
@@ -121,13 +132,14 @@ pub fn fit_model(
     let constrained: Vec<Vec<Vec<f64>>> =
         chains.iter().map(|chain| chain.iter().map(|theta| model.constrain(theta)).collect()).collect();
     let draws = Draws::from_chains(names.clone(), constrained).map_err(|e| FitError::Draws(e.to_string()))?;
-    let (diagnostics, divergences, warnings) = match &run {
-        Err(_) => (None, 0, Vec::new()),
+    let (diagnostics, divergences, depth_hits, deepest, warnings) = match &run {
+        Err(_) => (None, 0, 0, 0, Vec::new()),
         Ok(run) => {
             // Diagnostics and warnings on one scale: the constrained draws the table shows.
             let diagnostics = per_parameter_diagnostics(&draws);
             let warnings = run_warnings(run, &names, &diagnostics, max_depth);
-            (Some(diagnostics), run.divergences.iter().sum(), warnings)
+            let deepest = run.deepest.iter().copied().max().unwrap_or(0);
+            (Some(diagnostics), run.divergences.iter().sum(), run.depth_hits.iter().sum(), deepest, warnings)
         }
     };
     Ok(Fit {
@@ -135,6 +147,8 @@ pub fn fit_model(
         draws,
         diagnostics,
         divergences,
+        depth_hits,
+        deepest,
         warnings,
         seconds: started.elapsed().as_secs_f64(),
     })

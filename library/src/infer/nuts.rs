@@ -5,7 +5,7 @@
 //! per-chain counts (divergences, tree-depth hits) a scientist must see. The
 //! transition itself — multinomial NUTS with the generalised U-turn check,
 //! dual-averaging step size and a diagonal mass matrix adapted during
-//! warm-up on the `nuts-rs` schedule (from draw and gradient variances, not
+//! settling in, on the `nuts-rs` schedule (from draw and gradient variances, not
 //! fixed doubling windows) — comes from the `nuts-rs` crate, driven one draw
 //! at a time through `sample_sequentially` so that the cancel flag is seen
 //! between draws and each chain runs on a thread of ours.
@@ -23,21 +23,26 @@ use rand::{RngExt, SeedableRng};
 
 use crate::model::LogDensity;
 
-/// Settings of a NUTS run. [`Default`] gives 4 chains, 1000 warm-up
-/// iterations, 1000 draws per chain, target acceptance 0.8, maximum tree
-/// depth 10, seed 20_240_613 and all cores.
+/// Settings of a NUTS run. [`Default`] gives Waypath's defaults, chosen
+/// from the measurements in the README's Performance section: [`CHAINS`]
+/// chains that each settle for [`SETTLE`] iterations and then keep
+/// [`DRAWS`] draws, step size tuned to acceptance [`ACCEPTANCE`],
+/// trajectories doubled at most [`DOUBLINGS`] times, seed 20_240_613 and
+/// all cores.
 #[derive(Debug, Clone, PartialEq)]
 pub struct NutsSettings {
     /// Number of independent chains.
     pub chains: usize,
-    /// Warm-up (adaptation) iterations per chain; these are not returned.
-    pub warmup: usize,
+    /// Iterations per chain spent settling in (step size and mass matrix
+    /// adapted, the start forgotten) before draws are kept; not returned.
+    pub settle: usize,
     /// Kept draws per chain.
     pub draws: usize,
     /// Mean acceptance statistic the step size is tuned to reach, in (0, 1).
-    pub target_accept: f64,
-    /// Largest tree depth; a trajectory has at most `2^max_depth - 1` steps.
-    pub max_depth: u32,
+    pub acceptance: f64,
+    /// How many times a trajectory may double (the NUTS tree depth); a
+    /// trajectory has at most `2^doublings - 1` steps.
+    pub doublings: u32,
     /// Seed of every random choice in the run.
     pub seed: u64,
     /// Threads to spread the chains over; 0 means one per available core.
@@ -47,16 +52,36 @@ pub struct NutsSettings {
 impl Default for NutsSettings {
     fn default() -> Self {
         NutsSettings {
-            chains: 4,
-            warmup: 1000,
-            draws: 1000,
-            target_accept: 0.8,
-            max_depth: 10,
+            chains: CHAINS,
+            settle: SETTLE,
+            draws: DRAWS,
+            acceptance: ACCEPTANCE,
+            doublings: DOUBLINGS,
             seed: 20_240_613,
             threads: 0,
         }
     }
 }
+
+// Waypath's defaults, measured with the engine benchmark (README,
+// Performance). The B-spline case binds: its effective draws per kept draw
+// are about 0.1 whatever the acceptance or the settling length, so it needs
+// about 8000 kept draws for R-hat ≤ 1.01 and bulk and tail ESS ≥ 400 on
+// every one of 20 seeds (4 × 1000 met them on 12 of 20); settling beyond
+// 400 iterations changed nothing there; acceptance 0.85 gave the most ESS
+// per CPU second on the logistic case without a divergence anywhere; the
+// deepest trajectory of any case was 7 doublings, so 12 leaves a factor 32.
+
+/// Default number of chains (even, so two cores finish together).
+pub const CHAINS: usize = 4;
+/// Default settling iterations per chain.
+pub const SETTLE: usize = 400;
+/// Default kept draws per chain.
+pub const DRAWS: usize = 2000;
+/// Default acceptance the step size is tuned to.
+pub const ACCEPTANCE: f64 = 0.85;
+/// Default limit on trajectory doublings.
+pub const DOUBLINGS: u32 = 12;
 
 /// Where chains start.
 #[derive(Debug, Clone, PartialEq)]
@@ -76,7 +101,7 @@ impl Default for Init {
 }
 
 /// One progress report: the chain with index `chain` (counted from 0) has
-/// finished `iteration` of its `total` iterations (warm-up included).
+/// finished `iteration` of its `total` iterations (settling included).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Progress {
     pub chain: usize,
@@ -89,10 +114,12 @@ pub struct Progress {
 pub struct NutsRun {
     /// Kept draws, `[chain][draw][parameter]`, on the unconstrained scale.
     pub draws: Vec<Vec<Vec<f64>>>,
-    /// Divergent transitions (energy error above 1000) after warm-up, per chain.
+    /// Divergent transitions (energy error above 1000) among kept draws, per chain.
     pub divergences: Vec<usize>,
-    /// Kept draws whose trajectory reached the maximum tree depth, per chain.
+    /// Kept draws whose trajectory reached the doubling limit, per chain.
     pub depth_hits: Vec<usize>,
+    /// The most doublings any kept draw's trajectory made, per chain.
+    pub deepest: Vec<u32>,
     /// Adapted step size of each chain.
     pub step_sizes: Vec<f64>,
     /// Wall-clock time of the run.
@@ -157,6 +184,7 @@ pub fn sample_nuts<D: LogDensity>(
         draws: Vec::with_capacity(settings.chains),
         divergences: Vec::with_capacity(settings.chains),
         depth_hits: Vec::with_capacity(settings.chains),
+        deepest: Vec::with_capacity(settings.chains),
         step_sizes: Vec::with_capacity(settings.chains),
         seconds: 0.0,
     };
@@ -166,6 +194,7 @@ pub fn sample_nuts<D: LogDensity>(
         out.draws.push(run.draws);
         out.divergences.push(run.divergences);
         out.depth_hits.push(run.depth_hits);
+        out.deepest.push(run.deepest);
         out.step_sizes.push(run.step_size);
     }
     out.seconds = start.elapsed().as_secs_f64();
@@ -176,16 +205,16 @@ fn check_settings(settings: &NutsSettings) -> Result<(), NutsError> {
     if settings.chains == 0 || settings.draws == 0 {
         return Err(NutsError::Settings("ask for at least one chain and one draw".into()));
     }
-    if !(settings.target_accept > 0.0 && settings.target_accept < 1.0) {
+    if !(settings.acceptance > 0.0 && settings.acceptance < 1.0) {
         return Err(NutsError::Settings(format!(
-            "target acceptance {} must lie strictly between 0 and 1",
-            settings.target_accept
+            "acceptance {} must lie strictly between 0 and 1",
+            settings.acceptance
         )));
     }
-    if settings.max_depth == 0 || settings.max_depth > 30 {
+    if settings.doublings == 0 || settings.doublings > 30 {
         return Err(NutsError::Settings(format!(
-            "maximum tree depth {} must be between 1 and 30",
-            settings.max_depth
+            "doublings {} must be between 1 and 30",
+            settings.doublings
         )));
     }
     Ok(())
@@ -256,6 +285,7 @@ struct ChainRun {
     draws: Vec<Vec<f64>>,
     divergences: usize,
     depth_hits: usize,
+    deepest: u32,
     step_size: f64,
 }
 
@@ -269,28 +299,29 @@ fn run_chain<D: LogDensity>(
 ) -> Result<ChainRun, NutsError> {
     let failed = |message: String| NutsError::Chain { chain: chain + 1, message };
     let mut options = DiagNutsSettings {
-        num_tune: settings.warmup as u64,
+        num_tune: settings.settle as u64,
         num_draws: settings.draws as u64,
-        maxdepth: u64::from(settings.max_depth),
+        maxdepth: u64::from(settings.doublings),
         max_energy_error: DIVERGENCE_ENERGY,
         num_chains: settings.chains,
         seed: settings.seed,
         ..Default::default()
     };
-    options.adapt_options.step_size_settings.target_accept = settings.target_accept;
+    options.adapt_options.step_size_settings.target_accept = settings.acceptance;
 
-    let total = settings.warmup + settings.draws;
+    let total = settings.settle + settings.draws;
     let mut rng = chain_rng(settings.seed, chain);
     let math = CpuMath::new(DensityAdapter { target });
     let iterations =
         nuts_rs::sample_sequentially(math, options, start, total as u64, chain as u64, &mut rng)
             .map_err(|e| failed(e.to_string()))?;
 
-    let full_depth_steps = (1u64 << settings.max_depth) - 1;
+    let full_depth_steps = (1u64 << settings.doublings) - 1;
     let mut run = ChainRun {
         draws: Vec::with_capacity(settings.draws.min(10_000)),
         divergences: 0,
         depth_hits: 0,
+        deepest: 0,
         step_size: f64::NAN,
     };
     for (iteration, step) in iterations.enumerate() {
@@ -298,15 +329,23 @@ fn run_chain<D: LogDensity>(
             return Err(NutsError::Cancelled);
         }
         let (position, info) = step.map_err(|e| failed(e.to_string()))?;
-        if iteration >= settings.warmup {
+        if iteration >= settings.settle {
             run.draws.push(position.into_vec());
             run.divergences += usize::from(info.diverging);
             run.depth_hits += usize::from(info.num_steps >= full_depth_steps);
+            run.deepest = run.deepest.max(doublings_of(info.num_steps));
             run.step_size = info.step_size;
         }
         progress(Progress { chain, iteration: iteration + 1, total });
     }
     Ok(run)
+}
+
+/// The doublings a trajectory of `steps` leapfrog steps made: a tree after
+/// `d` doublings has at most `2^d - 1` steps, so `d` is the bit length of
+/// `steps`.
+fn doublings_of(steps: u64) -> u32 {
+    u64::BITS - steps.leading_zeros()
 }
 
 /// Presents a [`LogDensity`] to `nuts-rs`.

@@ -5,18 +5,18 @@ use std::sync::atomic::Ordering;
 use serde_json::json;
 
 use super::data::is_name;
-use super::grammar::{EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, SHOW};
+use super::grammar::{EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, RETIRED_NUTS_OPTIONS, SHOW};
 use super::{form_error, header, option_text, unquote};
 use crate::cells::figures;
 use crate::cells::files::write_atomically;
-use crate::cells::format::num;
+use crate::cells::fit_summary;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
 use crate::cells::session::{suggest, RunControl, Session};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{fit_model, Fit, Method, LAPLACE_DRAWS, LAPLACE_SEED};
 use crate::infer::nuts::NutsSettings;
-use crate::limits::{whole_number, MAX_CHAINS, MAX_TREE_DEPTH, MAX_WARMUP};
+use crate::limits::{whole_number, MAX_CHAINS, MAX_DOUBLINGS, MAX_SETTLE};
 use crate::model::{Model, ModelSpec};
 
 
@@ -114,8 +114,17 @@ pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, w
 }
 
 /// Read `with laplace …` / `with nuts …` options (the words of
-/// [`METHODS`], [`LAPLACE_OPTIONS`] and [`NUTS_OPTIONS`]).
-pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
+/// [`METHODS`], [`LAPLACE_OPTIONS`] and [`NUTS_OPTIONS`]); an empty text is
+/// NUTS with Waypath's defaults.
+///
+/// ```
+/// use waypath::cells::statements::parse_method;
+/// use waypath::infer::fit::Method;
+/// let Ok(Method::Nuts(s)) = parse_method("with nuts chains 2 settle 300 seed 7") else { panic!() };
+/// assert_eq!((s.chains, s.settle, s.seed), (2, 300, 7));
+/// assert!(parse_method("with nuts warmup 300").unwrap_err().contains("now called `settle`"));
+/// ```
+pub fn parse_method(text: &str) -> Result<Method, String> {
     let words: Vec<&str> = text.split_whitespace().collect();
     let (kind, rest) = match words.as_slice() {
         [] => ("nuts", &[][..]),
@@ -131,8 +140,9 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
         let n = whole_number(k, v, low, high)?;
         usize::try_from(n).map_err(|_| format!("{k} {n} is more than this machine can address; ask for less"))
     };
-    let unknown = |keys: &[&str], other: &str| match kind {
-        "laplace" => format!("laplace takes `{}`, not `{other}`", keys.join("` and `")),
+    let unknown = |keys: &[&str], other: &str| match (kind, RETIRED_NUTS_OPTIONS.iter().find(|(old, _)| *old == other)) {
+        ("laplace", _) => format!("laplace takes `{}`, not `{other}`", keys.join("` and `")),
+        (_, Some((old, new))) => format!("the nuts option `{old}` is now called `{new}`; write `{new}` with the same value"),
         _ => format!("nuts takes {} — not `{other}`", keys.join(", ")),
     };
     match kind {
@@ -155,16 +165,16 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
                 match k {
                     _ if !NUTS_OPTIONS.contains(&k) => return Err(unknown(NUTS_OPTIONS, k)),
                     "chains" => s.chains = count(k, v)?,
-                    "warmup" => s.warmup = count(k, v)?,
+                    "settle" => s.settle = count(k, v)?,
                     "draws" => s.draws = count(k, v)?,
                     "seed" => s.seed = whole_number(k, v, 0, u64::MAX)?,
-                    "depth" => s.max_depth = whole_number(k, v, 1, MAX_TREE_DEPTH)? as u32,
-                    "accept" => {
-                        s.target_accept = v
+                    "doublings" => s.doublings = whole_number(k, v, 1, MAX_DOUBLINGS)? as u32,
+                    "acceptance" => {
+                        s.acceptance = v
                             .parse::<f64>()
                             .ok()
                             .filter(|a| *a > 0.0 && *a < 1.0)
-                            .ok_or_else(|| format!("accept takes a number between 0 and 1, not \"{v}\""))?
+                            .ok_or_else(|| format!("acceptance takes a number between 0 and 1 (exclusive), not \"{v}\""))?
                     }
                     other => return Err(unknown(NUTS_OPTIONS, other)),
                 }
@@ -180,50 +190,31 @@ pub(crate) fn parse_method(text: &str) -> Result<Method, String> {
 fn option_range(key: &str) -> (u64, u64) {
     match key {
         "chains" => (1, MAX_CHAINS),
-        "warmup" => (0, MAX_WARMUP),
+        "settle" => (0, MAX_SETTLE),
         _ => (1, u64::MAX),
     }
 }
 
-/// The parameter table of a fit with its priors, diagnostics and warnings.
+/// The fit summary: the estimates table, its priors, the sampler's health
+/// in one sentence, and the warnings ([`crate::cells::fit_summary`]).
 pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellError> {
     let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
     let summaries = fit.draws.summarise(&spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
     let pct = format!("{:.0}%", INTERVAL_MASS * 100.0);
-    let heading = format!(
-        "fit {}: {} draws in {:.2} s — {}",
-        model.name(),
-        fit.draws.len(),
-        fit.seconds,
-        fit.method.describe()
-    );
-    let lower = format!("{pct} lower");
-    let upper = format!("{pct} upper");
-    let mut grid = Grid::new(&["parameter", "mean", "sd", &lower, &upper, "P(>0)", "R-hat", "bulk ESS", "tail ESS"])
-        .numeric_columns(&[1, 2, 3, 4, 5, 6, 7, 8]);
-    let mut params_json = Vec::new();
-    for (i, s) in summaries.iter().enumerate() {
-        let d = fit.diagnostics.as_ref().map(|d| d[i]);
-        let mut row = vec![s.name.clone()];
-        row.extend(parameter_cells(s, d));
-        row.push(d.map_or("—".into(), |d| format!("{:.0}", d.ess_tail)));
-        grid.push(row);
-        params_json.push(json!({
-            "name": s.name, "mean": s.mean, "sd": s.sd, "lower": s.interval.lower, "upper": s.interval.upper,
-            "p_positive": s.prob_positive,
-            "rhat": d.map(|d| d.rhat), "ess_bulk": d.map(|d| d.ess_bulk), "ess_tail": d.map(|d| d.ess_tail),
-        }));
-    }
+    let heading = format!("fit {}, {:.2} s: {}", model.name(), fit.seconds, fit.method.describe());
+    let rows: Vec<(Vec<String>, &crate::draws::Summary)> = summaries.iter().map(|s| (vec![s.name.clone()], s)).collect();
+    let grid = fit_summary::estimates_grid(&["parameter"], &rows, INTERVAL_MASS);
+    let estimates: Vec<_> = summaries.iter().map(|s| fit_summary::estimate_json(&s.name, s)).collect();
+    let health = fit_summary::health(&[(fit, fit.draws.names.clone())]);
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
-    if fit.diagnostics.is_none() {
-        notes.push(
+    match &health {
+        Some(h) => notes.push(h.sentence.clone()),
+        None => notes.push(
             "laplace method: independent draws (exact for a normal outcome with normal coefficient priors, \
              otherwise a normal fit at the posterior mode); R-hat and ESS do not apply"
                 .into(),
-        );
-    } else if fit.warnings.is_empty() {
-        notes.push("sampler checks passed: no divergences, every R-hat ≤ 1.01, bulk and tail ESS ≥ 400".into());
+        ),
     }
     notes.extend(fit.warnings.iter().map(|w| format!("warning: {w}")));
     let mut plain = format!("{heading}\n{}\npriors:\n{}", grid.to_text(), priors.to_text());
@@ -233,25 +224,22 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     let svg = figures::posterior(model, fit).ok();
     let json = json!({
         "model": model.name(), "method": fit.method.name(), "seed": fit.method.seed(),
-        "interval": INTERVAL_MASS, "parameters": params_json, "divergences": fit.divergences,
-        "seconds": fit.seconds, "warnings": fit.warnings,
+        "settings": method_settings(&fit.method), "interval_mass": INTERVAL_MASS, "estimates": estimates,
+        "health": health.map(|h| h.json), "warnings": fit.warnings, "seconds": fit.seconds,
     });
     let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
     Ok(Display { plain, html: Some(html), svg, json: Some(json) })
 }
 
-/// Mean, sd, interval, P(>0), R-hat and bulk ESS of one parameter as table
-/// cells ("—" where a Laplace fit has no diagnostics).
-pub(crate) fn parameter_cells(s: &crate::draws::Summary, d: Option<crate::infer::diagnostics::ParamDiagnostics>) -> Vec<String> {
-    vec![
-        num(s.mean),
-        num(s.sd),
-        num(s.interval.lower),
-        num(s.interval.upper),
-        format!("{:.2}", s.prob_positive),
-        d.map_or("—".into(), |d| format!("{:.3}", d.rhat)),
-        d.map_or("—".into(), |d| format!("{:.0}", d.ess_bulk)),
-    ]
+/// A method's settings as the fit JSON carries them, under the option words.
+pub(crate) fn method_settings(method: &Method) -> serde_json::Value {
+    match method {
+        Method::Laplace { draws, seed } => json!({"draws": draws, "seed": seed}),
+        Method::Nuts(s) => json!({
+            "chains": s.chains, "settle": s.settle, "draws": s.draws, "acceptance": s.acceptance,
+            "doublings": s.doublings, "seed": s.seed,
+        }),
+    }
 }
 
 /// `show NAME` — the latest result for a model, or a description of a table or graph.

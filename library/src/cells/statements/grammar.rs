@@ -160,7 +160,11 @@ pub const METHODS: &[&str] = &["laplace", "nuts"];
 /// The options of `with laplace`, each followed by its value.
 pub const LAPLACE_OPTIONS: &[&str] = &["draws", "seed"];
 /// The options of `with nuts`, each followed by its value.
-pub const NUTS_OPTIONS: &[&str] = &["chains", "warmup", "draws", "seed", "accept", "depth"];
+pub const NUTS_OPTIONS: &[&str] = &["chains", "settle", "draws", "acceptance", "doublings", "seed"];
+/// Sampler option words of earlier versions of Waypath, each with the word
+/// that replaced it: a notebook that still writes one gets an error naming
+/// the new word rather than a silent change of meaning.
+pub const RETIRED_NUTS_OPTIONS: &[(&str, &str)] = &[("warmup", "settle"), ("accept", "acceptance"), ("depth", "doublings")];
 
 const SEED: &[Slot] = &[Word("seed"), Value];
 
@@ -215,7 +219,7 @@ pub const FIT: Form = Form {
     slots: &[Word("fit"), Value],
     options: &[],
     method: true,
-    usage: "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [warmup N] [draws N] [seed N] [accept P] [depth N]]",
+    usage: "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [seed N]]",
 };
 pub const SHOW: Form = Form { slots: &[Word("show"), Value], options: &[], method: false, usage: "show NAME" };
 pub const EXPORT: Form = Form {

@@ -14,6 +14,8 @@ use super::parse::Statement;
 use super::session::{edit_distance, RunControl, Session};
 use grammar::{statement_words, Form};
 
+pub use fitting::parse_method;
+
 /// Run one statement against the session.
 pub(crate) fn run(
     session: &mut Session,

@@ -11,7 +11,7 @@
 use serde_json::{json, Value};
 
 use super::data::{describe_loaded, is_name};
-use super::fitting::{parameter_cells, INTERVAL_MASS};
+use super::fitting::{method_settings, INTERVAL_MASS};
 use super::grammar::{CALIBRATE, CHECK, FIT, INTERVENE, JOINT, PRIOR_CHECK, RECOVER, SIMULATE};
 use super::questions::{
     bounds, check_cancel, joint_progress, method_or, query_error, render, sampler_progress, stopped_or, summary_cells,
@@ -19,6 +19,7 @@ use super::questions::{
 };
 use super::{form_error, header, option_text};
 use crate::cells::figures::{self, GraphMarks};
+use crate::cells::fit_summary;
 use crate::cells::format::num;
 use crate::cells::output::{CellError, Display, Grid};
 use crate::cells::parse::Statement;
@@ -129,13 +130,12 @@ pub(crate) fn fit_joint(
     let fit = fit_joint_with_progress(joint, &method, control.cancel, &progress).map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
-    let (lower, upper) = bounds(INTERVAL_MASS);
-    let mut grid = Grid::new(&["node", "parameter", "mean", "sd", &lower, &upper, "P(>0)", "R-hat", "bulk ESS"])
-        .numeric_columns(&[2, 3, 4, 5, 6, 7, 8]);
     let mut nodes_json = Vec::new();
     let mut notes = Vec::new();
     let mut figure_names: Vec<(String, usize, usize)> = Vec::new();
     let mut drawable = 0;
+    let mut node_summaries = Vec::new();
+    let mut fitted = Vec::new();
     for (k, (node, node_fit)) in joint.nodes.iter().zip(&fit.fits).enumerate() {
         let Some(f) = node_fit else {
             let how = match &node.model {
@@ -143,21 +143,11 @@ pub(crate) fn fit_joint(
                 NodeModel::Regression { .. } => "not fitted".to_string(),
             };
             notes.push(format!("{}: {how}", node.name));
-            nodes_json.push(json!({"node": node.name, "parameters": [], "note": how}));
+            nodes_json.push(json!({"node": node.name, "estimates": [], "note": how}));
             continue;
         };
         let summaries = f.draws.summarise(&spec).map_err(|e| CellError::at(line, format!("{label}: {e}")))?;
-        let mut params = Vec::new();
         for (i, s) in summaries.iter().enumerate() {
-            let d = f.diagnostics.as_ref().map(|d| d[i]);
-            let mut row = vec![node.name.clone(), s.name.clone()];
-            row.extend(parameter_cells(s, d));
-            grid.push(row);
-            params.push(json!({
-                "name": s.name, "mean": s.mean, "sd": s.sd, "lower": s.interval.lower, "upper": s.interval.upper,
-                "p_positive": s.prob_positive, "rhat": d.map(|d| d.rhat), "ess_bulk": d.map(|d| d.ess_bulk),
-                "ess_tail": d.map(|d| d.ess_tail),
-            }));
             if s.name != "spread" {
                 drawable += 1;
                 if figure_names.len() < FIGURE_PARAMETERS {
@@ -165,10 +155,19 @@ pub(crate) fn fit_joint(
                 }
             }
         }
+        let estimates: Vec<Value> = summaries.iter().map(|s| fit_summary::estimate_json(&s.name, s)).collect();
+        let node_health = fit_summary::health(&[(f, f.draws.names.clone())]).map(|h| h.json);
         warnings.extend(f.warnings.iter().map(|w| format!("{label}, node {}: {w}", node.name)));
-        notes.extend(f.warnings.iter().map(|w| format!("warning ({}): {w}", node.name)));
-        nodes_json.push(json!({"node": node.name, "parameters": params, "warnings": f.warnings}));
+        nodes_json.push(json!({"node": node.name, "estimates": estimates, "health": node_health, "warnings": f.warnings}));
+        fitted.push((f, f.draws.names.iter().map(|p| figure_label(&node.name, p)).collect::<Vec<_>>()));
+        node_summaries.push((node.name.clone(), summaries));
     }
+    let rows: Vec<(Vec<String>, &crate::draws::Summary)> = node_summaries
+        .iter()
+        .flat_map(|(node, summaries)| summaries.iter().map(move |s| (vec![node.clone(), s.name.clone()], s)))
+        .collect();
+    let grid = fit_summary::estimates_grid(&["node", "parameter"], &rows, INTERVAL_MASS);
+    let health = fit_summary::health(&fitted);
     if drawable > figure_names.len() {
         notes.push(format!(
             "the figure draws the first {} of {drawable} node parameters (spreads left out); the table lists them all",
@@ -177,6 +176,14 @@ pub(crate) fn fit_joint(
     }
     notes.push(format!("each node's regression gets its own seed stream derived from seed {}", method_seed(&method)));
     notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(INTERVAL_MASS * 100.0)));
+    if let Some(h) = &health {
+        notes.push(h.sentence.clone());
+    }
+    for (node, f) in joint.nodes.iter().zip(&fit.fits) {
+        if let Some(f) = f {
+            notes.extend(f.warnings.iter().map(|w| format!("warning ({}): {w}", node.name)));
+        }
+    }
     let seconds = started.elapsed().as_secs_f64();
     let heading = format!("fit {name}: {} node regressions in {seconds:.2} s — {}", fit.fits.iter().flatten().count(), method.describe());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
@@ -186,8 +193,9 @@ pub(crate) fn fit_joint(
         .collect();
     let svg = crate::plot::posterior_figure(&format!("{name} node parameters"), &Quantity::new("parameter value"), &params, DensityArrangement::Stacked).ok();
     let json = json!({
-        "joint": name, "method": method_name(&method), "seed": method_seed(&method), "interval": INTERVAL_MASS,
-        "nodes": nodes_json, "seconds": seconds,
+        "joint": name, "method": method_name(&method), "seed": method_seed(&method),
+        "settings": method_settings(&method), "interval_mass": INTERVAL_MASS, "nodes": nodes_json,
+        "health": health.map(|h| h.json), "seconds": seconds,
     });
     session.joint_fits.insert(name.to_string(), fit);
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])

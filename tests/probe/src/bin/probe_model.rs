@@ -12,7 +12,7 @@
 //! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
 //! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`.
 //! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
-//!   one chain, 300 warm-up); answers the calibration structure (ranks,
+//!   one chain, 300 settling iterations); answers the calibration structure (ranks,
 //!   chi-square and p-value per parameter).
 //! * `contrast` — as `fit`, plus `variable`, `draws` and `seed`: a Laplace
 //!   fit, then the default contrast of `variable` averaged over rows;
@@ -138,7 +138,7 @@ fn prior(request: &Value) -> Result<Value, String> {
 fn calibrate(request: &Value) -> Result<Value, String> {
     let model = model(request)?;
     let whole = |key: &str| request[key].as_u64().ok_or_else(|| format!("{key} must be a whole number"));
-    let settings = NutsSettings { chains: 1, warmup: 300, draws: whole("draws")? as usize, threads: 1, seed: 0, ..NutsSettings::default() };
+    let settings = NutsSettings { chains: 1, settle: 300, draws: whole("draws")? as usize, threads: 1, seed: 0, ..NutsSettings::default() };
     let c = waypath::query::calibrate(&model, whole("reps")? as usize, &Method::Nuts(settings), whole("seed")?, &AtomicBool::new(false))
         .map_err(|e| e.to_string())?;
     serde_json::to_value(&c).map_err(|e| e.to_string())
