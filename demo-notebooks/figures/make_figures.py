@@ -22,12 +22,14 @@ HERE = Path(__file__).resolve().parent
 DEMOS = HERE.parent
 REPO = DEMOS.parent
 
-# file written: (demo notebook, a statement the cell holds, how the figure's <title> starts)
+# file written: (demo notebook, a statement the cell holds, how the figure's
+# <title> starts, which of the cell's figures with that title: 0 the first)
 FIGURES = {
-    "open-path.svg": ("whole-graph.ipynb", "paths from rootstock to yield in orchard_soil given girth", "<title>causal graph"),
-    "contrast.svg": ("orchard.ipynb", "contrast m_total: rootstock standard vs dwarf\n", "<title>contrast"),
-    "intervention.svg": ("whole-graph.ipynb", "intervene whole: set rootstock standard vs dwarf", "<title>posterior"),
-    "spline-fit.svg": ("stream.ipynb", "plot spline10 spline", "<title>spline fit"),
+    "open-path.svg": ("whole-graph.ipynb", "paths from rootstock to yield in orchard_soil given girth",
+                      "<title>causal graph: open paths", 0),
+    "contrast.svg": ("orchard.ipynb", "contrast m_total: rootstock standard vs dwarf on outcomes", "<title>contrast", 1),
+    "intervention.svg": ("whole-graph.ipynb", "intervene whole: set rootstock standard vs dwarf", "<title>posterior", 0),
+    "spline-fit.svg": ("stream.ipynb", "plot spline10 spline", "<title>spline fit", 0),
 }
 
 
@@ -56,7 +58,7 @@ def executed(program, demo, folder):
     return json.loads(out.read_text())
 
 
-def figure(notebook, statement, title):
+def figure(notebook, statement, title, which):
     for cell in notebook["cells"]:
         if cell["cell_type"] != "code" or statement not in "".join(cell["source"]) + "\n":
             continue
@@ -66,7 +68,9 @@ def figure(notebook, statement, title):
                 continue
             svg = "".join(svg) if isinstance(svg, list) else svg
             if title in svg:
-                return svg
+                if which == 0:
+                    return svg
+                which -= 1
     return None
 
 
@@ -76,8 +80,8 @@ def main():
     args = parser.parse_args()
     program = waypath_program(args.bin)
     with tempfile.TemporaryDirectory() as folder:
-        for name, (demo, statement, title) in FIGURES.items():
-            svg = figure(executed(program, demo, folder), statement, title)
+        for name, (demo, statement, title, which) in FIGURES.items():
+            svg = figure(executed(program, demo, folder), statement, title, which)
             if svg is None:
                 sys.exit(f"{demo}: no figure starting {title!r} in the cell with {statement.strip()!r}")
             (HERE / name).write_text(svg if svg.endswith("\n") else svg + "\n")

@@ -199,8 +199,11 @@ pub fn predictive_figure(
     if !seen.is_empty() {
         let line = polyline_d(seen.iter().map(|(x, p)| (frame.px(*x), frame.py(*p))));
         sheet.push(stroke_path(line, INK, 2.0));
+        // each step lies outside a pointwise band with chance 1 − OUTER when
+        // the model fits; neighbouring steps move together, so counts vary
+        let expected = ((1.0 - OUTER) * inner_shares.len() as f64).round();
         let note = format!(
-            "observed outside the {} band: {outside} of {} steps",
+            "outside the {} band: {outside} of {} steps ({expected} expected if the model fits)",
             percent(OUTER),
             inner_shares.len()
         );
@@ -238,6 +241,10 @@ const TRACE_PANEL: f64 = 72.0;
 const TILE_ROW: f64 = 10.0;
 /// Departure from even, in standard errors, at which a tile is fully shaded.
 const FULL_SHADE: f64 = 4.0;
+/// Departures up to this many standard errors leave a tile white: the
+/// everyday scatter of well-mixed chains (whose draws are autocorrelated,
+/// so their counts vary somewhat more than independent draws would).
+const NO_SHADE: f64 = 1.0;
 
 /// The dash pattern of the `c`-th chain (solid, dashed, dotted, dash-dot),
 /// so that chains stay apart without colour.
@@ -338,15 +345,14 @@ pub fn mixing_figure(
         })
         .collect();
     entries.push((Key::Swatch(VERMILLION, 0.8), "more draws than even".to_string()));
-    entries.push((Key::Swatch(BLUE, 0.8), "fewer".to_string()));
+    entries.push((Key::Swatch(BLUE, 0.8), "fewer than even".to_string()));
     let rows = legend_rows(&entries, WIDTH - 40.0);
     let first_top = HEADING + 8.0 + legend_height(rows) + 6.0;
     let block = NAME_ROW + TRACE_PANEL + 24.0 + TILE_ROW * chains as f64 + 34.0;
     let height = first_top + block * parameters.len() as f64 + 4.0;
     let desc = format!(
-        "Mixing of {} over {chains} chains of {per_chain} draws each: traces, and tiles of each chain's share of {bins} bins of the pooled ranks, shaded by its departure from even (full shade at {} standard errors); well-mixed chains overlap in the traces and leave the tiles pale.",
+        "Mixing of {} over {chains} chains of {per_chain} draws each: traces, and tiles of each chain's share of {bins} bins of the pooled ranks, shaded by its departure from even (white within {NO_SHADE} standard error, full shade at {FULL_SHADE}); well-mixed chains overlap in the traces and leave the tiles pale.",
         parameters.iter().map(|p| p.name).collect::<Vec<_>>().join(", "),
-        FULL_SHADE
     );
     let mut sheet = Sheet::new(WIDTH, height, figure, subject, &desc);
     legend(&mut sheet, 20.0, HEADING + 8.0, WIDTH - 40.0, &entries);
@@ -414,7 +420,7 @@ fn mixing_block(
             sample.with("stroke-dasharray", chain_dashes(c))
         });
         for (b, z) in row.iter().enumerate() {
-            let shade = (z.abs() / FULL_SHADE).min(1.0) * 0.85;
+            let shade = ((z.abs() - NO_SHADE) / (FULL_SHADE - NO_SHADE)).clamp(0.0, 1.0) * 0.85;
             if shade < 0.02 {
                 continue;
             }

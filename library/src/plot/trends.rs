@@ -8,7 +8,7 @@
 
 use super::canvas::{
     diamond, dot_cloud, extent, fill_path, left_margin, legend, legend_height, legend_rows, num,
-    padded, stroke_path, Attr, Frame, Key, Sheet, HEADING, WIDTH,
+    padded, stroke_path, Frame, Key, Sheet, HEADING, WIDTH,
 };
 use super::density::{quantile, thin_indices};
 use super::palette::{series, BLUE, INK, MUTED};
@@ -400,13 +400,6 @@ pub fn spline_figure(
     main.x_axis(&mut sheet, None);
     main.y_axis(&mut sheet, Some(&y.label()));
 
-    let guides: String = weights
-        .iter()
-        .map(|w| format!("M{},{}v{}", num(main.px(w.0)), num(main.bottom()), num(strip.top - main.bottom())))
-        .collect();
-    sheet.push(
-        stroke_path(guides, MUTED, 0.8).with("stroke-dasharray", "2 3"),
-    );
     strip.horizontal_reference(&mut sheet, 0.0);
     let bars: String = weights
         .iter()
