@@ -203,11 +203,13 @@ pub fn predictive_figure(
         // the model fits; neighbouring steps move together, so counts vary
         let expected = ((1.0 - OUTER) * inner_shares.len() as f64).round();
         let note = format!(
-            "outside the {} band: {outside} of {} steps ({expected} expected if the model fits)",
+            "outside the {} band: {outside} of {} steps (about {expected} if the data came from the model)",
             percent(OUTER),
             inner_shares.len()
         );
-        sheet.push(text(frame.right() - 6.0, frame.bottom() - 10.0, &note, SMALL, Anchor::End));
+        // the top left of a cumulative-share panel stays empty: no curve
+        // reaches a high share at the lowest values
+        sheet.push(text(frame.left + 8.0, frame.top + 16.0, &note, SMALL, Anchor::Start));
     }
     frame.x_axis(&mut sheet, Some(&outcome.label()));
     frame.y_axis(&mut sheet, Some("share of rows at or below"));
