@@ -202,14 +202,16 @@ pub fn predictive_figure(
         // each step lies outside a pointwise band with chance 1 − OUTER when
         // the model fits; neighbouring steps move together, so counts vary
         let expected = ((1.0 - OUTER) * inner_shares.len() as f64).round();
-        let note = format!(
-            "outside the {} band: {outside} of {} steps (about {expected} if the data came from the model)",
-            percent(OUTER),
-            inner_shares.len()
-        );
+        let lines = [
+            format!("{outside} of {} steps outside the {} band", inner_shares.len(), percent(OUTER)),
+            format!("(about {expected} if the data came from the model)"),
+        ];
         // the top left of a cumulative-share panel stays empty: no curve
         // reaches a high share at the lowest values
-        sheet.push(text(frame.left + 8.0, frame.top + 16.0, &note, SMALL, Anchor::Start));
+        for (k, note) in lines.iter().enumerate() {
+            let y = frame.top + 16.0 + 16.0 * k as f64;
+            sheet.push(text(frame.left + 8.0, y, note, SMALL, Anchor::Start));
+        }
     }
     frame.x_axis(&mut sheet, Some(&outcome.label()));
     frame.y_axis(&mut sheet, Some("share of rows at or below"));
