@@ -124,7 +124,15 @@ model m_direct:
     yield from rootstock, girth per rootstock using trees
 
 fit m_direct with nuts seed 11
-plot m_direct trace
+plot m_direct mixing
+"""),
+    md("""
+The mixing figure shows each parameter's chains across the page (each chain
+with its own colour and dash pattern) and, under them, one row of tiles per
+chain over bins of the ranks pooled across chains. Chains that explore the
+same distribution share every bin evenly and leave the tiles pale; a chain
+stuck high or low darkens its row (vermillion: more draws than even, blue:
+fewer).
 """),
     md("""
 ## Contrasts, computed from the draws
@@ -221,7 +229,13 @@ model spline10:
     prior weights: normal(0, 8)
 
 fit spline10
-plot spline10 basis
+plot spline10 spline
+"""),
+    md("""
+The spline figure draws the fitted curve with its 90% band over the data,
+and under it each weight's 90% interval at the day where its basis function
+peaks: a weight governs the curve near its own stretch of the year, so the
+melt dip shows up as the weights around it pulling down.
 """),
     code("""
 plot spline10 lines
@@ -514,6 +528,12 @@ calibrate total_fit reps 100 seed 8 with laplace
 """),
     md("""
 ## Prior and posterior predictive checks
+
+Each check draws the outcome's distribution as the share of rows at or below
+each value: the bands hold the central 90% and 50% of that curve over the
+simulated outcome sets, and the dark line is the observed rows. Before the
+fit the band should be wide but plausible; after it, the observed line
+should stay inside.
 """),
     code("""
 prior check total_fit

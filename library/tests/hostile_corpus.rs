@@ -47,7 +47,7 @@ const TEMPLATES: &[&str] = &[
     "table t3 from \"stream.csv\":\n    shade: category(#n, #n)\n    trout: count",
     "contrast m: shade #n vs #n along shade from #n to #n by #n",
     "contrast m: shade #n vs #n on outcomes seed #n",
-    "plot m posterior",
+    "plot m estimates",
     "show #v",
     "joint j = g using t",
     "fit j with laplace draws #n seed #n",

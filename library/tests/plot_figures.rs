@@ -3,6 +3,8 @@
 //!
 //! The data are invented orchard and stream scenarios drawn with fixed seeds.
 
+mod common;
+
 use std::sync::Arc;
 
 use rand::rngs::StdRng;
@@ -228,9 +230,9 @@ fn all_figures() -> Vec<Figure> {
     };
     let height = Quantity::with_unit("sapling height", "cm");
     add(
-        "B-spline",
+        "spline fit",
         "growth",
-        basis_figure(
+        spline_figure(
             "growth",
             &Quantity::with_unit("age", "years"),
             &height,
@@ -272,20 +274,20 @@ fn all_figures() -> Vec<Figure> {
         .flat_map(|c| normals(40 + c, 1000, 3.1 + 0.05 * c as f64, 0.2))
         .collect();
     let traced = [
-        TraceParameter {
+        ParameterDraws {
             name: "intercept[dwarf]",
             draws: &chains,
         },
-        TraceParameter {
+        ParameterDraws {
             name: "slope[girth]",
             draws: &chains_b,
         },
-        TraceParameter {
+        ParameterDraws {
             name: "spread",
             draws: &chains_s,
         },
     ];
-    add("trace", "m_direct", trace_figure("m_direct", 4, &traced));
+    add("mixing", "m_direct", mixing_figure("m_direct", 4, &traced));
 
     let rows = implication_rows();
     add(
@@ -495,6 +497,17 @@ fn every_colour_comes_from_the_palette() {
 fn figures_from_4000_draws_stay_under_200_kb() {
     for f in all_figures() {
         assert!(f.svg.len() < 200_000, "{} is {} bytes", f.kind, f.svg.len());
+    }
+}
+
+/// With DejaVu Sans laid out by usvg, every text of every figure (titles,
+/// legends, tick labels, notes) stays on the canvas.
+#[test]
+fn every_text_stays_on_the_canvas_with_a_real_font() {
+    let opt = common::text_boxes::dejavu();
+    for f in all_figures() {
+        let outside = common::text_boxes::texts_outside_canvas(&f.svg, &opt);
+        assert!(outside.is_empty(), "{}: {outside:#?}", f.kind);
     }
 }
 

@@ -5,8 +5,8 @@ use crate::graph::Graph;
 use crate::infer::fit::Fit;
 use crate::model::{Family, Input, Model};
 use crate::plot::{
-    basis_figure, calibration_figure, contrast_figure, contrast_grid_figure, graph_figure, implications_figure,
-    lines_figure, posterior_figure, predictive_figure, recovery_figure, trace_figure, BasisPicture,
+    calibration_figure, contrast_figure, contrast_grid_figure, graph_figure, implications_figure, lines_figure,
+    mixing_figure, posterior_figure, predictive_figure, recovery_figure, spline_figure, BasisPicture,
     DensityArrangement, EdgeMark, GraphPicture, GridContrast, ImplicationRow, LineGroup, NodeMark, ParameterDraws,
     PlotError, PredictiveKind, Quantity, RecoveryRow, Role,
 };
@@ -86,14 +86,14 @@ pub fn posterior_of(model: &Model, fit: &Fit, chosen: &[String]) -> Result<Strin
     posterior_figure(&subject, &Quantity::new("parameter value"), &params, DensityArrangement::Stacked)
 }
 
-/// Trace and rank plots per chain.
-pub fn trace(model: &Model, fit: &Fit, chosen: &[String]) -> Result<String, PlotError> {
+/// Traces and rank-share tiles per chain: did the chains mix?
+pub fn mixing(model: &Model, fit: &Fit, chosen: &[String]) -> Result<String, PlotError> {
     let names = chosen_or_coefficients(model, chosen);
     let params: Vec<ParameterDraws> = names
         .iter()
         .filter_map(|n| fit.draws.get(n).map(|d| ParameterDraws { name: n.as_str(), draws: d }))
         .collect();
-    trace_figure(model.name(), fit.draws.chains, &params)
+    mixing_figure(model.name(), fit.draws.chains, &params)
 }
 
 fn chosen_or_coefficients(model: &Model, chosen: &[String]) -> Vec<String> {
@@ -156,11 +156,11 @@ pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Res
     Ok((svg, held))
 }
 
-/// The B-spline basis of the model's (first) spline term and the fitted
-/// curve it makes, with the data.
-pub fn basis(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> {
+/// The fitted curve of the model's (first) spline term with its band over
+/// the data, and its weights at the peaks of their basis functions.
+pub fn spline(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> {
     if model.outcome_levels().is_some() {
-        return Err(format!("model {} has a category outcome; its basis figure is not available", model.name()));
+        return Err(format!("model {} has a category outcome; its spline figure is not available", model.name()));
     }
     let terms = model.spline_terms();
     let term = terms.first().ok_or_else(|| format!("model {} has no spline term", model.name()))?;
@@ -181,7 +181,7 @@ pub fn basis(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> 
     let y = outcome_per_trial(model, table);
     let points = x.iter().copied().zip(y.iter().copied()).collect();
     let picture = BasisPicture { grid, basis, weights, intercept, points };
-    basis_figure(model.name(), &quantity(table, term.column), &quantity(table, model.outcome_name()), &picture)
+    spline_figure(model.name(), &quantity(table, term.column), &quantity(table, model.outcome_name()), &picture)
         .map_err(|e| e.to_string())
 }
 

@@ -242,14 +242,14 @@ mod tests {
     // figure must travel alone to be seen.
     #[test]
     fn a_display_with_words_and_a_figure_becomes_words_then_figure() {
-        let svg = "<svg><title>trace: m &amp; n</title></svg>".to_string();
+        let svg = "<svg><title>mixing: m &amp; n</title></svg>".to_string();
         let d = Display { plain: "m".into(), html: Some("<p>m</p>".into()), svg: Some(svg.clone()), json: None };
         let bundles = d.notebook_bundles();
         assert_eq!(bundles.len(), 2);
         assert_eq!(bundles[0]["text/html"], Value::String("<p>m</p>".into()));
         assert!(!bundles[0].contains_key("image/svg+xml"));
         assert_eq!(bundles[1]["image/svg+xml"], Value::String(svg.clone()));
-        assert_eq!(bundles[1]["text/plain"], Value::String("figure: trace: m & n".into()));
+        assert_eq!(bundles[1]["text/plain"], Value::String("figure: mixing: m & n".into()));
         assert!(!bundles[1].contains_key("text/html"));
         let alone = Display { plain: "f".into(), svg: Some(svg), ..Display::default() };
         assert_eq!(alone.notebook_bundles().len(), 1);

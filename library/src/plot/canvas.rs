@@ -426,6 +426,10 @@ pub enum Key {
     Diamond(&'static str),
     /// A box outline of the colour and width, with a tint, dashed or solid.
     Outline(&'static str, f64, bool),
+    /// A band of the colour and width with a thin white line down its middle.
+    Cased(&'static str, f64),
+    /// A short line of the colour and width in a dash pattern (`""`: solid).
+    Pattern(&'static str, f64, &'static str),
 }
 
 const KEY_WIDTH: f64 = 22.0;
@@ -508,6 +512,20 @@ fn key_mark(key: Key, x: f64, mid: f64) -> Element {
             c.with("stroke", colour).with("stroke-width", "1.5")
         }
         Key::Diamond(colour) => diamond(x + KEY_WIDTH / 2.0, mid, 5.5, colour),
+        Key::Pattern(colour, width, dashes) => {
+            let l = line(x, mid, x + KEY_WIDTH, mid, colour, width);
+            if dashes.is_empty() {
+                l
+            } else {
+                l.with("stroke-dasharray", dashes)
+            }
+        }
+        Key::Cased(colour, width) => {
+            let mut g = Element::new("g");
+            g.append(line(x, mid, x + KEY_WIDTH, mid, colour, width));
+            g.append(line(x, mid, x + KEY_WIDTH, mid, "#FFFFFF", 1.6));
+            g
+        }
         Key::Outline(colour, width, dashed) => {
             let r = rect(x + 1.0, mid - 7.0, KEY_WIDTH - 2.0, 14.0, colour)
                 .with("fill-opacity", "0.18")

@@ -1,13 +1,22 @@
 //! Figures that check a model or a graph rather than report an effect:
-//! predictive checks, sampler traces with rank histograms, and the testable
+//! predictive checks, the mixing of sampler chains, and the testable
 //! implications of a graph against the data.
+//!
+//! Waypath's own looks: a predictive check shows the outcome's cumulative
+//! shares as bands over the simulated sets with the observed rows as one
+//! line (a figure that also says at how many steps the observed curve
+//! leaves the band); the mixing figure puts each parameter's traces
+//! across the page, chains told apart by dash pattern as well as colour,
+//! over a strip of tiles that stays pale when the chains share the ranks
+//! evenly.
 
 use super::canvas::{
-    circle, extent, legend, legend_height, legend_rows, line, padded, rect, stroke_path, text,
-    text_width, Anchor, Attr, Frame, Key, Sheet, HEADING, MEDIUM, SMALL, WIDTH,
+    circle, extent, fill_path, legend, legend_height, legend_rows, line, num, padded,
+    polygon_d, polyline_d, rect, stroke_path, text, text_width, Anchor, Attr, Frame, Key, Sheet,
+    HEADING, MEDIUM, SMALL, WIDTH,
 };
-use super::density::{kde, quantile, sorted_finite, thin_indices};
-use super::palette::{series, BLUE, INK, SKY_BLUE, VERMILLION};
+use super::density::{quantile, sorted_finite, thin_indices};
+use super::palette::{series, BLUE, BLUISH_GREEN, INK, VERMILLION};
 use super::posterior::ParameterDraws;
 use super::{PlotError, Quantity};
 
@@ -29,9 +38,6 @@ impl PredictiveKind {
     }
 }
 
-/// Parameter draws for a trace row; draws are stored chain after chain.
-pub type TraceParameter<'a> = ParameterDraws<'a>;
-
 /// One testable implication of a graph and its estimated association.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ImplicationRow {
@@ -45,11 +51,46 @@ pub struct ImplicationRow {
     pub upper: f64,
 }
 
-const REPLICATES: usize = 40;
-const REPLICATE_GRID: usize = 120;
+/// Replicated sets kept for the bands (thinned evenly beyond this).
+const BAND_SETS: usize = 400;
+/// Shares of rows at which the replicated quantiles are summarised.
+const BAND_STEPS: usize = 100;
+/// Points of the observed quantile curve.
+const OBSERVED_STEPS: usize = 400;
+/// The outer and inner bands: central shares of the replicated sets.
+const OUTER: f64 = 0.9;
+const INNER: f64 = 0.5;
 
-/// Observed outcome density (thick) against densities of replicated data
-/// sets (thin, translucent). `observed` may be empty for a prior check.
+/// At each share `p` of rows, the central `mass` range of the replicated
+/// sets' `p`-quantiles: `(lower, upper)` per entry of `shares`.
+///
+/// Each set's quantile is the linear interpolation of Hyndman & Fan (1996,
+/// definition 7); the range across sets is taken the same way. Sets with no
+/// finite value are skipped; with none left the result is empty.
+pub fn quantile_bands(replicated: &[Vec<f64>], shares: &[f64], mass: f64) -> Vec<(f64, f64)> {
+    let sets: Vec<Vec<f64>> = replicated
+        .iter()
+        .map(|r| sorted_finite(r))
+        .filter(|r| !r.is_empty())
+        .collect();
+    if sets.is_empty() {
+        return Vec::new();
+    }
+    let tail = (1.0 - mass.clamp(0.0, 1.0)) / 2.0;
+    shares
+        .iter()
+        .map(|&p| {
+            let mut at: Vec<f64> = sets.iter().map(|r| quantile(r, p)).collect();
+            at.sort_by(f64::total_cmp);
+            (quantile(&at, tail), quantile(&at, 1.0 - tail))
+        })
+        .collect()
+}
+
+/// The outcome's distribution as the share of rows at or below each value:
+/// the observed rows as a line against bands (the central 90% and 50%) of
+/// the same curve over the replicated outcome sets. `observed` may be empty
+/// for a prior check.
 pub fn predictive_figure(
     kind: PredictiveKind,
     subject: &str,
@@ -59,7 +100,7 @@ pub fn predictive_figure(
 ) -> Result<String, PlotError> {
     let figure = kind.title();
     let observed = sorted_finite(observed);
-    let chosen: Vec<Vec<f64>> = thin_indices(replicated.len(), REPLICATES)
+    let chosen: Vec<Vec<f64>> = thin_indices(replicated.len(), BAND_SETS)
         .into_iter()
         .map(|i| sorted_finite(&replicated[i]))
         .filter(|r| !r.is_empty())
@@ -70,34 +111,57 @@ pub fn predictive_figure(
             what: "the replicated data sets".into(),
         });
     }
-    let pooled = sorted_finite(&chosen.concat());
-    let mut lo = quantile(&pooled, 0.005);
-    let mut hi = quantile(&pooled, 0.995);
-    if let (Some(first), Some(last)) = (observed.first(), observed.last()) {
-        lo = lo.min(*first);
-        hi = hi.max(*last);
-    }
-    let (lo, hi) = padded(lo, hi, 0.05);
-    let curves: Vec<_> = chosen
-        .iter()
-        .map(|r| kde(r, lo, hi, REPLICATE_GRID))
+    let shares: Vec<f64> = (0..=BAND_STEPS)
+        .map(|k| k as f64 / BAND_STEPS as f64)
         .collect();
-    let seen = (!observed.is_empty()).then(|| kde(&observed, lo, hi, 200));
-    let peak = curves
-        .iter()
-        .flat_map(|c| c.ys.iter())
-        .chain(seen.iter().flat_map(|c| c.ys.iter()));
-    let peak = peak.copied().fold(0.0, f64::max).max(f64::MIN_POSITIVE);
-    let mut entries = vec![(
-        Key::Stroke(SKY_BLUE, 1.2, false),
-        format!("{} replicated data sets", chosen.len()),
-    )];
-    if seen.is_some() {
-        entries.insert(0, (Key::Stroke(INK, 2.6, false), "observed".to_string()));
+    let outer = quantile_bands(&chosen, &shares, OUTER);
+    let inner = quantile_bands(&chosen, &shares, INNER);
+    let middle = quantile_bands(&chosen, &shares, 0.0);
+    let seen: Vec<(f64, f64)> = (0..=OBSERVED_STEPS)
+        .map(|k| {
+            let p = k as f64 / OBSERVED_STEPS as f64;
+            (quantile(&observed, p), p)
+        })
+        .filter(|(x, _)| x.is_finite())
+        .collect();
+    let inner_shares = &shares[1..BAND_STEPS];
+    let outside = if observed.is_empty() {
+        0
+    } else {
+        inner_shares
+            .iter()
+            .zip(&outer[1..BAND_STEPS])
+            .filter(|(p, (lo, hi))| {
+                let q = quantile(&observed, **p);
+                q < *lo || q > *hi
+            })
+            .count()
+    };
+    let xs = extent(
+        outer
+            .iter()
+            .flat_map(|(a, b)| [a, b])
+            .chain(seen.iter().map(|(x, _)| x)),
+    )
+    .unwrap_or((0.0, 1.0));
+    let (lo, hi) = padded(xs.0, xs.1, 0.04);
+    let mut entries = vec![
+        (
+            Key::Swatch(BLUISH_GREEN, 0.22),
+            format!("central {} of {} simulated sets", percent(OUTER), chosen.len()),
+        ),
+        (
+            Key::Swatch(BLUISH_GREEN, 0.5),
+            format!("central {}", percent(INNER)),
+        ),
+    ];
+    if !observed.is_empty() {
+        entries.push((Key::Stroke(INK, 2.0, false), "observed rows".to_string()));
     }
-    let y = (0.0, peak * 1.08);
+    let rows = legend_rows(&entries, WIDTH - 40.0);
+    let y = (0.0, 1.0);
     let left = super::canvas::left_margin(y, true);
-    let top = HEADING + 8.0 + legend_height(1) + 10.0;
+    let top = HEADING + 8.0 + legend_height(rows) + 10.0;
     let frame = Frame {
         left,
         top,
@@ -106,42 +170,155 @@ pub fn predictive_figure(
         x: (lo, hi),
         y,
     };
+    let verdict = if observed.is_empty() {
+        String::new()
+    } else {
+        format!(
+            "; the observed curve leaves the central {} band at {outside} of {} inner steps",
+            percent(OUTER),
+            inner_shares.len()
+        )
+    };
     let desc = format!(
-        "{}: densities of {} in {} replicated data sets{}.",
+        "{}: the share of rows at or below each value of {}, as bands over {} simulated outcome sets{}{verdict}.",
         figure,
         outcome.name,
         chosen.len(),
-        if seen.is_some() {
-            format!(" against the observed {} values", observed.len())
-        } else {
+        if observed.is_empty() {
             String::new()
+        } else {
+            format!(" against the {} observed values", observed.len())
         }
     );
     let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, figure, subject, &desc);
-    legend(&mut sheet, left, HEADING + 8.0, frame.width, &entries);
-    let lines: String = curves.iter().map(|c| frame.curve_d(&c.xs, &c.ys)).collect();
-    sheet.push(stroke_path(lines, SKY_BLUE, 1.0).with("stroke-opacity", "0.5"));
-    if let Some(c) = &seen {
-        sheet.push(stroke_path(frame.curve_d(&c.xs, &c.ys), INK, 2.6));
+    legend(&mut sheet, 20.0, HEADING + 8.0, WIDTH - 40.0, &entries);
+    sheet.push(fill_path(sideways_band(&frame, &shares, &outer), BLUISH_GREEN, 0.22));
+    sheet.push(fill_path(sideways_band(&frame, &shares, &inner), BLUISH_GREEN, 0.5));
+    let mid = polyline_d(middle.iter().zip(&shares).map(|((x, _), p)| (frame.px(*x), frame.py(*p))));
+    sheet.push(stroke_path(mid, BLUISH_GREEN, 1.2).with("stroke-dasharray", "1.5 2.5"));
+    if !seen.is_empty() {
+        let line = polyline_d(seen.iter().map(|(x, p)| (frame.px(*x), frame.py(*p))));
+        sheet.push(stroke_path(line, INK, 2.0));
+        // each step lies outside a pointwise band with chance 1 − OUTER when
+        // the model fits; neighbouring steps move together, so counts vary
+        let expected = ((1.0 - OUTER) * inner_shares.len() as f64).round();
+        let lines = [
+            format!("{outside} of {} steps outside the {} band", inner_shares.len(), percent(OUTER)),
+            format!("(about {expected} if the data came from the model)"),
+        ];
+        // the top left of a cumulative-share panel stays empty: no curve
+        // reaches a high share at the lowest values
+        for (k, note) in lines.iter().enumerate() {
+            let y = frame.top + 16.0 + 16.0 * k as f64;
+            sheet.push(text(frame.left + 8.0, y, note, SMALL, Anchor::Start));
+        }
     }
     frame.x_axis(&mut sheet, Some(&outcome.label()));
-    frame.y_axis(&mut sheet, Some("density"));
+    frame.y_axis(&mut sheet, Some("share of rows at or below"));
     Ok(sheet.finish())
 }
 
-const TRACE_POINTS: usize = 400;
-const RANK_BINS: usize = 20;
-const TRACE_ROW: f64 = 150.0;
-const TRACE_PANEL: f64 = 100.0;
+/// A share such as 0.9 written as "90%".
+fn percent(share: f64) -> String {
+    format!("{}%", (share * 100.0).round())
+}
 
-/// Per parameter, a trace (draw index against value, one colour per chain)
-/// and rank histograms per chain (ranks over all chains pooled), stacked.
-pub fn trace_figure(
+/// Path data of a band that runs up the page: at each share `p` (a height)
+/// it spans the values `(lower, upper)` across.
+fn sideways_band(frame: &Frame, shares: &[f64], band: &[(f64, f64)]) -> String {
+    let left = shares
+        .iter()
+        .zip(band)
+        .map(|(p, (lo, _))| (frame.px(*lo), frame.py(*p)));
+    let right = shares
+        .iter()
+        .zip(band)
+        .rev()
+        .map(|(p, (_, hi))| (frame.px(*hi), frame.py(*p)));
+    polygon_d(left.chain(right))
+}
+
+/// Draws shown per chain in a trace, at most.
+const TRACE_POINTS: usize = 400;
+const NAME_ROW: f64 = 20.0;
+const TRACE_PANEL: f64 = 72.0;
+const TILE_ROW: f64 = 10.0;
+/// Departure from even, in standard errors, at which a tile is fully shaded.
+const FULL_SHADE: f64 = 4.0;
+/// Departures up to this many standard errors leave a tile white: the
+/// everyday scatter of well-mixed chains (whose draws are autocorrelated,
+/// so their counts vary somewhat more than independent draws would).
+const NO_SHADE: f64 = 1.0;
+
+/// The dash pattern of the `c`-th chain (solid, dashed, dotted, dash-dot),
+/// so that chains stay apart without colour.
+pub fn chain_dashes(c: usize) -> &'static str {
+    const DASHES: [&str; 4] = ["", "7 3", "1.5 2.5", "9 3 2 3"];
+    DASHES[c % DASHES.len()]
+}
+
+/// How many rank bins the mixing tiles use for `per_chain` draws per chain:
+/// about 50 draws of a chain expected per tile, between 4 and 16 tiles.
+pub fn rank_bins(per_chain: usize) -> usize {
+    (per_chain / 50).clamp(4, 16)
+}
+
+/// For each chain and each of `bins` equal bins of the ranks pooled over
+/// all chains: how far the chain's count in the bin departs from what
+/// well-mixed chains give, in standard errors.
+///
+/// When the chains are draws from one distribution, the ranks are spread
+/// over the chains at random, so a chain's count in a bin of `K` ranks out
+/// of `N` follows the hypergeometric law of `S` draws without replacement
+/// (`S` draws per chain): mean `S·K/N`, variance
+/// `S·(K/N)·(1 − K/N)·(N − S)/(N − 1)`. With one chain there is nothing to
+/// compare and every departure is zero.
+pub fn rank_departures(draws: &[f64], chains: usize, bins: usize) -> Vec<Vec<f64>> {
+    let total = draws.len();
+    if chains == 0 || bins == 0 || total == 0 {
+        return Vec::new();
+    }
+    let per_chain = total / chains;
+    let mut order: Vec<usize> = (0..total).collect();
+    order.sort_by(|a, b| draws[*a].total_cmp(&draws[*b]));
+    let mut counts = vec![vec![0usize; bins]; chains];
+    let mut sizes = vec![0usize; bins];
+    for (rank, &i) in order.iter().enumerate() {
+        let bin = (rank * bins / total).min(bins - 1);
+        counts[(i / per_chain).min(chains - 1)][bin] += 1;
+        sizes[bin] += 1;
+    }
+    let (n, s) = (total as f64, per_chain as f64);
+    counts
+        .iter()
+        .map(|row| {
+            row.iter()
+                .zip(&sizes)
+                .map(|(&count, &size)| {
+                    let share = size as f64 / n;
+                    let var = s * share * (1.0 - share) * (n - s) / (n - 1.0).max(1.0);
+                    if var > 0.0 {
+                        (count as f64 - s * share) / var.sqrt()
+                    } else {
+                        0.0
+                    }
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// Per parameter: the chains' traces (one colour and one dash pattern per
+/// chain) across the page, and under them a strip of tiles, one row per
+/// chain and one column per bin of the pooled ranks, shaded by how far the
+/// chain's share of the bin departs from even (vermillion: more draws than
+/// even, blue: fewer). Well-mixed chains leave the strip pale.
+pub fn mixing_figure(
     subject: &str,
     chains: usize,
-    parameters: &[TraceParameter],
+    parameters: &[ParameterDraws],
 ) -> Result<String, PlotError> {
-    let figure = "trace";
+    let figure = "mixing";
     if parameters.is_empty() || chains == 0 {
         return Err(PlotError::Empty {
             figure,
@@ -161,25 +338,25 @@ pub fn trace_figure(
             });
         }
     }
+    let per_chain = parameters[0].draws.len() / chains;
+    let bins = rank_bins(per_chain);
     let mut entries: Vec<(Key, String)> = (0..chains)
         .map(|c| {
             (
-                Key::Stroke(series(c), 2.0, false),
+                Key::Pattern(series(c), 2.0, chain_dashes(c)),
                 format!("chain {}", c + 1),
             )
         })
         .collect();
-    entries.push((
-        Key::Stroke(INK, 1.0, true),
-        "even ranks (right)".to_string(),
-    ));
+    entries.push((Key::Swatch(VERMILLION, 0.8), "more draws than even".to_string()));
+    entries.push((Key::Swatch(BLUE, 0.8), "fewer than even".to_string()));
     let rows = legend_rows(&entries, WIDTH - 40.0);
-    let first_top = HEADING + 8.0 + legend_height(rows) + 8.0;
-    let height = first_top + TRACE_ROW * parameters.len() as f64 + 24.0;
+    let first_top = HEADING + 8.0 + legend_height(rows) + 6.0;
+    let block = NAME_ROW + TRACE_PANEL + 24.0 + TILE_ROW * chains as f64 + 34.0;
+    let height = first_top + block * parameters.len() as f64 + 4.0;
     let desc = format!(
-        "Traces and rank histograms of {} over {chains} chains of {} draws each; well-mixed chains overlap in the traces and give flat rank histograms.",
+        "Mixing of {} over {chains} chains of {per_chain} draws each: traces, and tiles of each chain's share of {bins} bins of the pooled ranks, shaded by its departure from even (white within {NO_SHADE} standard error, full shade at {FULL_SHADE}); well-mixed chains overlap in the traces and leave the tiles pale.",
         parameters.iter().map(|p| p.name).collect::<Vec<_>>().join(", "),
-        parameters[0].draws.len() / chains
     );
     let mut sheet = Sheet::new(WIDTH, height, figure, subject, &desc);
     legend(&mut sheet, 20.0, HEADING + 8.0, WIDTH - 40.0, &entries);
@@ -189,40 +366,35 @@ pub fn trace_figure(
             let v = extent(p.draws).unwrap_or((0.0, 1.0));
             super::canvas::left_margin(padded(v.0, v.1, 0.04), false)
         })
-        .fold(0.0, f64::max);
+        .fold(KEY_SAMPLE + 12.0, f64::max);
     for (i, p) in parameters.iter().enumerate() {
-        trace_row(
-            &mut sheet,
-            first_top + TRACE_ROW * i as f64,
-            left,
-            chains,
-            p,
-        );
+        mixing_block(&mut sheet, first_top + block * i as f64, left, chains, bins, p);
     }
-    let bottom = first_top + TRACE_ROW * parameters.len() as f64 - TRACE_ROW + 22.0 + TRACE_PANEL;
-    sheet.push(text(
-        (left + 370.0) / 2.0,
-        bottom + 36.0,
-        "draw (per chain)",
-        MEDIUM,
-        Anchor::Middle,
-    ));
     Ok(sheet.finish())
 }
 
-fn trace_row(sheet: &mut Sheet, top: f64, left: f64, chains: usize, p: &TraceParameter) {
+/// Length of the line-style sample drawn left of each chain's tile row.
+const KEY_SAMPLE: f64 = 30.0;
+
+fn mixing_block(
+    sheet: &mut Sheet,
+    top: f64,
+    left: f64,
+    chains: usize,
+    bins: usize,
+    p: &ParameterDraws,
+) {
     let per_chain = p.draws.len() / chains;
     let values = extent(p.draws).unwrap_or((0.0, 1.0));
-    let y = padded(values.0, values.1, 0.04);
+    let width = WIDTH - left - 20.0;
     sheet.push(text(left, top + 14.0, p.name, MEDIUM, Anchor::Start).with("font-weight", "bold"));
-    let panel_top = top + 22.0;
     let trace = Frame {
         left,
-        top: panel_top,
-        width: 370.0 - left,
+        top: top + NAME_ROW,
+        width,
         height: TRACE_PANEL,
         x: (0.0, (per_chain.max(2) - 1) as f64),
-        y,
+        y: padded(values.0, values.1, 0.04),
     };
     let keep = thin_indices(per_chain, TRACE_POINTS);
     for c in 0..chains {
@@ -230,88 +402,54 @@ fn trace_row(sheet: &mut Sheet, top: f64, left: f64, chains: usize, p: &TracePar
         let pts = keep
             .iter()
             .map(|&i| (trace.px(i as f64), trace.py(chain[i])));
-        sheet.push(
-            stroke_path(super::canvas::polyline_d(pts), series(c), 0.8)
-                .with("stroke-opacity", "0.8"),
-        );
+        let mut path = stroke_path(polyline_d(pts), series(c), 1.0).with("stroke-opacity", "0.85");
+        if !chain_dashes(c).is_empty() {
+            path = path.with("stroke-dasharray", chain_dashes(c));
+        }
+        sheet.push(path);
     }
     trace.x_axis(sheet, None);
     trace.y_axis(sheet, None);
-    let counts = rank_counts(p.draws, chains, RANK_BINS);
-    let expected = per_chain as f64 / RANK_BINS as f64;
-    let tallest = counts
-        .iter()
-        .flatten()
-        .copied()
-        .fold(expected, |a, b| a.max(b as f64));
-    let ranks = Frame {
-        left: 420.0,
-        top: panel_top,
-        width: WIDTH - 420.0 - 16.0,
-        height: TRACE_PANEL,
-        x: (0.0, 1.0),
-        y: (0.0, tallest * 1.1),
-    };
-    for (c, row) in counts.iter().enumerate() {
-        let mut pts = Vec::with_capacity(2 * RANK_BINS);
-        for (b, n) in row.iter().enumerate() {
-            let yv = ranks.py(*n as f64);
-            pts.push((ranks.px(b as f64 / RANK_BINS as f64), yv));
-            pts.push((ranks.px((b + 1) as f64 / RANK_BINS as f64), yv));
-        }
-        sheet.push(stroke_path(super::canvas::polyline_d(pts), series(c), 1.4));
-    }
-    ranks.horizontal_reference(sheet, expected);
-    sheet.push(line(
-        ranks.left,
-        ranks.bottom(),
-        ranks.right(),
-        ranks.bottom(),
-        INK,
-        0.8,
-    ));
-    sheet.push(text(
-        ranks.left,
-        top + 14.0,
-        "rank histogram per chain",
-        SMALL,
-        Anchor::Start,
-    ));
-    sheet.push(text(
-        ranks.left,
-        ranks.bottom() + 17.0,
-        "low",
-        SMALL,
-        Anchor::Start,
-    ));
-    sheet.push(text(
-        ranks.right(),
-        ranks.bottom() + 17.0,
-        "high",
-        SMALL,
-        Anchor::End,
-    ));
-    sheet.push(text(
-        (ranks.left + ranks.right()) / 2.0,
-        ranks.bottom() + 17.0,
-        "rank",
-        SMALL,
-        Anchor::Middle,
-    ));
-}
+    sheet.push(text(trace.right(), top + 14.0, "draw (per chain) →", SMALL, Anchor::End));
 
-/// Counts per chain of pooled ranks falling in each of `bins` equal rank bins.
-fn rank_counts(draws: &[f64], chains: usize, bins: usize) -> Vec<Vec<usize>> {
-    let per_chain = draws.len() / chains;
-    let mut order: Vec<usize> = (0..draws.len()).collect();
-    order.sort_by(|a, b| draws[*a].total_cmp(&draws[*b]));
-    let mut counts = vec![vec![0usize; bins]; chains];
-    let total = draws.len();
-    for (rank, &i) in order.iter().enumerate() {
-        let bin = (rank * bins / total).min(bins - 1);
-        counts[i / per_chain][bin] += 1;
+    let strip_top = trace.bottom() + 24.0;
+    let tile = width / bins as f64;
+    let departures = rank_departures(p.draws, chains, bins);
+    for (c, row) in departures.iter().enumerate() {
+        let y = strip_top + TILE_ROW * c as f64;
+        let sample = line(left - KEY_SAMPLE - 6.0, y + TILE_ROW / 2.0, left - 6.0, y + TILE_ROW / 2.0, series(c), 2.0);
+        sheet.push(if chain_dashes(c).is_empty() {
+            sample
+        } else {
+            sample.with("stroke-dasharray", chain_dashes(c))
+        });
+        for (b, z) in row.iter().enumerate() {
+            let shade = ((z.abs() - NO_SHADE) / (FULL_SHADE - NO_SHADE)).clamp(0.0, 1.0) * 0.85;
+            if shade < 0.02 {
+                continue;
+            }
+            let colour = if *z > 0.0 { VERMILLION } else { BLUE };
+            sheet.push(
+                rect(left + tile * b as f64, y, tile, TILE_ROW, colour)
+                    .with("fill-opacity", format!("{shade:.2}")),
+            );
+        }
     }
-    counts
+    let strip_height = TILE_ROW * chains as f64;
+    let grid: String = (1..bins)
+        .map(|b| format!("M{},{}v{}", num(left + tile * b as f64), num(strip_top), num(strip_height)))
+        .chain((1..chains).map(|c| format!("M{},{}h{}", num(left), num(strip_top + TILE_ROW * c as f64), num(width))))
+        .collect();
+    sheet.push(stroke_path(grid, "#FFFFFF", 1.0));
+    sheet.push(
+        rect(left, strip_top, width, strip_height, "none")
+            .with("stroke", INK)
+            .with("stroke-width", "0.8"),
+    );
+    let below = strip_top + strip_height + 15.0;
+    sheet.push(text(left, below, "lowest ranks", SMALL, Anchor::Start));
+    sheet.push(text(left + width / 2.0, below, &format!("pooled ranks in {bins} bins"), SMALL, Anchor::Middle));
+    sheet.push(text(left + width, below, "highest", SMALL, Anchor::End));
 }
 
 const IMPLICATION_ROW: f64 = 28.0;

@@ -16,7 +16,7 @@ use super::canvas::{
     legend, legend_height, legend_rows, num, polygon_d, rect, stroke_path, text, text_width,
     Anchor, Attr, Key, Sheet, HEADING, MEDIUM, WIDTH,
 };
-use super::palette::{BLUE, BLUISH_GREEN, INK, REDDISH_PURPLE, VERMILLION};
+use super::palette::{BLUE, BLUISH_GREEN, INK, ORANGE, VERMILLION};
 use super::PlotError;
 
 /// What a node stands for in the question asked of the graph.
@@ -544,10 +544,7 @@ fn legend_entries(picture: &GraphPicture) -> Vec<(Key, String)> {
         entries.push((Key::Outline(INK, 1.2, true), "unobserved".to_string()));
     }
     if picture.edges.iter().any(|e| e.highlight) {
-        entries.push((
-            Key::Stroke(REDDISH_PURPLE, 2.6, false),
-            "open path".to_string(),
-        ));
+        entries.push((Key::Cased(ORANGE, OPEN_WIDTH), "open path".to_string()));
     }
     entries
 }
@@ -591,10 +588,16 @@ pub fn graph_figure(picture: &GraphPicture) -> Result<String, PlotError> {
     Ok(sheet.finish())
 }
 
+/// Width of an open-path arrow's orange band; a white line runs down its
+/// middle (a cased line, Waypath's mark for an open path, readable in grey
+/// print and apart from the dashed outline of an unobserved node).
+pub const OPEN_WIDTH: f64 = 5.4;
+const OPEN_CORE: f64 = 1.6;
+
 /// All plain arrows as one path and one set of heads, or the highlighted ones.
 fn draw_arrows(sheet: &mut Sheet, geometry: &GraphLayout, highlighted: bool) {
     let (colour, width) = if highlighted {
-        (REDDISH_PURPLE, 2.6)
+        (ORANGE, OPEN_WIDTH)
     } else {
         (INK, 1.3)
     };
@@ -607,7 +610,7 @@ fn draw_arrows(sheet: &mut Sheet, geometry: &GraphLayout, highlighted: bool) {
     {
         shafts.push_str(&shaft_d(&route.points));
         let (tx, ty) = route.points[route.points.len() - 1];
-        let half = if highlighted { 5.5 } else { 4.5 };
+        let half = if highlighted { 6.5 } else { 4.5 };
         heads.push_str(&polygon_d([
             (tx, ty),
             (tx - half, ty - ARROW_LENGTH - 1.0),
@@ -615,7 +618,10 @@ fn draw_arrows(sheet: &mut Sheet, geometry: &GraphLayout, highlighted: bool) {
         ]));
     }
     if !shafts.is_empty() {
-        sheet.push(stroke_path(shafts, colour, width));
+        sheet.push(stroke_path(shafts.clone(), colour, width));
+        if highlighted {
+            sheet.push(stroke_path(shafts, "#FFFFFF", OPEN_CORE));
+        }
         sheet.push(Element::new("path").with("d", heads).with("fill", colour));
     }
 }

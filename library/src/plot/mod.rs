@@ -31,8 +31,8 @@ mod recovery;
 mod trends;
 
 pub use checks::{
-    implications_figure, predictive_figure, trace_figure, ImplicationRow, PredictiveKind,
-    TraceParameter,
+    chain_dashes, implications_figure, mixing_figure, predictive_figure, quantile_bands,
+    rank_bins, rank_departures, ImplicationRow, PredictiveKind,
 };
 pub use graph::{
     graph_figure, layout, EdgeMark, EdgeRoute, GraphLayout, GraphPicture, NodeBox, NodeMark, Role,
@@ -40,7 +40,7 @@ pub use graph::{
 pub use posterior::{contrast_figure, posterior_figure, DensityArrangement, ParameterDraws};
 pub use recovery::{calibration_figure, recovery_figure, RecoveryRow};
 pub use trends::{
-    basis_figure, contrast_grid_figure, lines_figure, BasisPicture, GridContrast, LineGroup,
+    contrast_grid_figure, lines_figure, spline_figure, BasisPicture, GridContrast, LineGroup,
 };
 
 /// A quantity shown on an axis: its name in words and, when known, its unit.

@@ -27,14 +27,18 @@ pub const INK: &str = "#333333";
 /// Light grey for context such as data points behind fitted lines.
 pub const MUTED: &str = "#8C8C8C";
 
-/// The order in which groups, chains and parameters take colours.
+/// The order in which groups, chains and parameters take colours: Waypath's
+/// own: a green and a purple first (opposite hues that two groups of a
+/// category usually take), then the dark blue and the orange, then the
+/// lighter colours; yellow, pale on white, comes last. Chains in the mixing
+/// figure take line styles as well, so no reading rests on hue alone.
 const SERIES: [&str; 7] = [
+    BLUISH_GREEN,
+    REDDISH_PURPLE,
     BLUE,
     ORANGE,
-    BLUISH_GREEN,
-    VERMILLION,
     SKY_BLUE,
-    REDDISH_PURPLE,
+    VERMILLION,
     YELLOW,
 ];
 

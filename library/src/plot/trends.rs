@@ -1,16 +1,16 @@
 //! Curves along a predictor: fitted lines with interval bands over the data,
-//! a contrast along a grid, and a B-spline fit shown with its basis.
+//! a contrast along a grid, and a B-spline fit with its weights.
 //!
 //! Callers pass curves already summarised on a grid (mean, lower, upper),
 //! so this module draws and never computes a posterior summary itself —
 //! except the spline figure, which forms the weighted sums from the weight
-//! draws because the basis is part of what it shows.
+//! draws, because its band and its weight strip come from the same draws.
 
 use super::canvas::{
-    dot_cloud, extent, fill_path, left_margin, legend, legend_height, legend_rows, padded,
-    stroke_path, Attr, Frame, Key, Sheet, HEADING, WIDTH,
+    diamond, dot_cloud, extent, fill_path, left_margin, legend, legend_height, legend_rows, num,
+    padded, stroke_path, Frame, Key, Sheet, HEADING, WIDTH,
 };
-use super::density::thin_indices;
+use super::density::{quantile, thin_indices};
 use super::palette::{series, BLUE, INK, MUTED};
 use super::{PlotError, Quantity};
 
@@ -251,19 +251,21 @@ pub fn contrast_grid_figure(
     Ok(sheet.finish())
 }
 
-const DRAWN_CURVES: usize = 20;
-const BASIS_PANEL: f64 = 110.0;
+const WEIGHT_PANEL: f64 = 96.0;
+const BAND_MASS: f64 = 0.9;
 
-/// A B-spline fit: above, the basis functions; below, each basis function
-/// scaled by its posterior-mean weight (thin), a few posterior draws of the
-/// fitted curve (thin grey) and the posterior-mean curve (thick).
-pub fn basis_figure(
+/// A B-spline fit the way a scientist reads it: the fitted curve (posterior
+/// mean) with its pointwise 90% band over the data, and under it, on the
+/// same axis, a strip with each weight's 90% interval and mean drawn where
+/// its basis function peaks, so a wide or sign-changing weight shows which
+/// stretch of the predictor it governs.
+pub fn spline_figure(
     subject: &str,
     x: &Quantity,
     y: &Quantity,
     p: &BasisPicture,
 ) -> Result<String, PlotError> {
-    let figure = "B-spline";
+    let figure = "spline fit";
     if extent(&p.grid).is_none() || p.basis.is_empty() {
         return Err(PlotError::Empty {
             figure,
@@ -308,88 +310,106 @@ pub fn basis_figure(
     }
     let draws = p.weights.len();
     let intercept = |d: usize| p.intercept.get(d).copied().unwrap_or(0.0);
-    let curve = |w: &[f64], a: f64| -> Vec<f64> {
-        (0..p.grid.len())
-            .map(|i| a + p.basis.iter().zip(w).map(|(b, wk)| b[i] * wk).sum::<f64>())
-            .collect()
-    };
-    let mean_w: Vec<f64> = (0..p.basis.len())
-        .map(|k| p.weights.iter().map(|w| w[k]).sum::<f64>() / draws as f64)
+    // curves[i][d]: the fitted curve of draw d at grid point i
+    let curves: Vec<Vec<f64>> = (0..p.grid.len())
+        .map(|i| {
+            let mut at: Vec<f64> = (0..draws)
+                .map(|d| {
+                    intercept(d)
+                        + p.basis.iter().zip(&p.weights[d]).map(|(b, w)| b[i] * w).sum::<f64>()
+                })
+                .collect();
+            at.sort_by(f64::total_cmp);
+            at
+        })
         .collect();
-    let mean_a = (0..draws).map(intercept).sum::<f64>() / draws as f64;
-    let mean = curve(&mean_w, mean_a);
-    let shown: Vec<Vec<f64>> = thin_indices(draws, DRAWN_CURVES)
-        .into_iter()
-        .map(|d| curve(&p.weights[d], intercept(d)))
-        .collect();
-    let parts: Vec<Vec<f64>> = p
+    let tail = (1.0 - BAND_MASS) / 2.0;
+    let mean: Vec<f64> = curves.iter().map(|c| c.iter().sum::<f64>() / draws as f64).collect();
+    let lower: Vec<f64> = curves.iter().map(|c| quantile(c, tail)).collect();
+    let upper: Vec<f64> = curves.iter().map(|c| quantile(c, 1.0 - tail)).collect();
+    // one summary per weight: where its basis function peaks, mean, interval
+    let weights: Vec<(f64, f64, f64, f64)> = p
         .basis
         .iter()
-        .zip(&mean_w)
-        .map(|(b, w)| b.iter().map(|v| mean_a + v * w).collect())
+        .enumerate()
+        .map(|(k, b)| {
+            let peak = b
+                .iter()
+                .enumerate()
+                .max_by(|a, c| a.1.total_cmp(c.1))
+                .map_or(0, |(i, _)| i);
+            let mut w: Vec<f64> = p.weights.iter().map(|d| d[k]).collect();
+            w.sort_by(f64::total_cmp);
+            let m = w.iter().sum::<f64>() / draws as f64;
+            (p.grid[peak], m, quantile(&w, tail), quantile(&w, 1.0 - tail))
+        })
         .collect();
 
-    let xs = extent(&p.grid).map_or((0.0, 1.0), |(lo, hi)| padded(lo, hi, 0.0));
+    let xs = extent(&p.grid).map_or((0.0, 1.0), |(lo, hi)| padded(lo, hi, 0.02));
     let ys = extent(
-        mean.iter()
-            .chain(shown.iter().flatten())
-            .chain(parts.iter().flatten())
+        lower
+            .iter()
+            .chain(&upper)
             .chain(p.points.iter().map(|q| &q.1)),
     )
     .unwrap_or((0.0, 1.0));
     let y_range = padded(ys.0, ys.1, 0.05);
-    let left = left_margin(y_range, true);
+    let ws = extent(weights.iter().flat_map(|w| [&w.2, &w.3]).chain(&[0.0])).unwrap_or((0.0, 1.0));
+    let w_range = padded(ws.0, ws.1, 0.08);
+    let left = left_margin(y_range, true).max(left_margin(w_range, true));
     let width = WIDTH - left - 20.0;
-    let top = Frame {
-        left,
-        top: HEADING + 12.0,
-        width,
-        height: BASIS_PANEL,
-        x: xs,
-        y: (0.0, 1.05),
-    };
+    let colour = series(0);
+    let interval = format!("{}% interval", (BAND_MASS * 100.0).round());
     let entries = vec![
-        (Key::Stroke(INK, 2.8, false), "posterior mean".to_string()),
-        (
-            Key::Stroke(MUTED, 1.0, false),
-            format!("{} posterior draws", shown.len()),
-        ),
-        (
-            Key::Stroke(BLUE, 1.2, false),
-            "each basis × its mean weight (colours as above)".to_string(),
-        ),
+        (Key::Stroke(colour, 2.4, false), "posterior mean".to_string()),
+        (Key::Swatch(colour, 0.25), format!("band: {interval}")),
+        (Key::Diamond(colour), format!("weight: mean and {interval}")),
     ];
-    let legend_top = top.bottom() + 30.0;
-    let bottom = Frame {
+    let rows = legend_rows(&entries, width);
+    let main = Frame {
         left,
-        top: legend_top + legend_height(legend_rows(&entries, width)) + 10.0,
+        top: HEADING + 8.0 + legend_height(rows) + 10.0,
         width,
         height: PANEL_HEIGHT - 40.0,
         x: xs,
         y: y_range,
     };
+    let strip = Frame {
+        left,
+        top: main.bottom() + 30.0,
+        width,
+        height: WEIGHT_PANEL,
+        x: xs,
+        y: w_range,
+    };
     let desc = format!(
-        "B-spline fit of {} along {} with {} basis functions: the basis (top), and below the weighted basis functions, {} posterior draws of the curve and its posterior mean.",
+        "B-spline fit of {} along {} with {} basis functions: the posterior mean curve and its pointwise {interval} over the data, and below each weight's {interval} at the peak of its basis function.",
         y.name,
         x.name,
         p.basis.len(),
-        shown.len()
     );
-    let mut sheet = Sheet::new(WIDTH, bottom.bottom() + 52.0, "B-spline", subject, &desc);
-    for (k, b) in p.basis.iter().enumerate() {
-        sheet.push(stroke_path(top.curve_d(&p.grid, b), series(k), 1.3));
+    let mut sheet = Sheet::new(WIDTH, strip.bottom() + 52.0, figure, subject, &desc);
+    legend(&mut sheet, left, HEADING + 8.0, width, &entries);
+    let keep: Vec<(f64, f64)> = thin_indices(p.points.len(), MAX_POINTS)
+        .iter()
+        .map(|k| p.points[*k])
+        .collect();
+    sheet.push(dot_cloud(&main, &keep, MUTED));
+    sheet.push(fill_path(main.band_d(&p.grid, &lower, &upper), colour, 0.25));
+    sheet.push(stroke_path(main.curve_d(&p.grid, &mean), colour, 2.4));
+    main.x_axis(&mut sheet, None);
+    main.y_axis(&mut sheet, Some(&y.label()));
+
+    strip.horizontal_reference(&mut sheet, 0.0);
+    let bars: String = weights
+        .iter()
+        .map(|w| format!("M{},{}V{}", num(strip.px(w.0)), num(strip.py(w.2)), num(strip.py(w.3))))
+        .collect();
+    sheet.push(stroke_path(bars, INK, 2.4));
+    for w in &weights {
+        sheet.push(diamond(strip.px(w.0), strip.py(w.1), 4.5, colour));
     }
-    top.x_axis(&mut sheet, None);
-    top.y_axis(&mut sheet, Some("basis"));
-    legend(&mut sheet, left, legend_top, width, &entries);
-    sheet.push(dot_cloud(&bottom, &p.points, MUTED));
-    for (k, c) in parts.iter().enumerate() {
-        sheet.push(stroke_path(bottom.curve_d(&p.grid, c), series(k), 1.2));
-    }
-    let draw_lines: String = shown.iter().map(|c| bottom.curve_d(&p.grid, c)).collect();
-    sheet.push(stroke_path(draw_lines, MUTED, 1.0).with("stroke-opacity", "0.8"));
-    sheet.push(stroke_path(bottom.curve_d(&p.grid, &mean), INK, 2.8));
-    bottom.x_axis(&mut sheet, Some(&x.label()));
-    bottom.y_axis(&mut sheet, Some(&y.label()));
+    strip.x_axis(&mut sheet, Some(&x.label()));
+    strip.y_axis(&mut sheet, Some("weight"));
     Ok(sheet.finish())
 }

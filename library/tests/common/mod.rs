@@ -2,3 +2,4 @@
 //! them declares `mod common;`).
 
 pub mod sbc;
+pub mod text_boxes;

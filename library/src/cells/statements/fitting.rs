@@ -5,7 +5,9 @@ use std::sync::atomic::Ordering;
 use serde_json::json;
 
 use super::data::is_name;
-use super::grammar::{EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, RETIRED_NUTS_OPTIONS, SHOW};
+use super::grammar::{
+    EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, RETIRED_NUTS_OPTIONS, RETIRED_PLOT_KINDS, SHOW,
+};
 use super::{form_error, header, option_text, unquote};
 use crate::cells::figures;
 use crate::cells::files::write_atomically;
@@ -301,13 +303,22 @@ fn parameter_named(typed: &str, names: &[String]) -> Option<String> {
     names.iter().find(|n| words(n) == typed).cloned()
 }
 
-/// `plot NAME posterior|trace [of A, B]`.
+/// `plot NAME estimates|mixing [of A, B]`, `plot NAME lines [over X]`,
+/// `plot NAME spline|prior|check`.
 pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let ([name, kind], rest) = match PLOT.read_n(st.head()) {
         Ok(read) => read,
         Err(at) if at.slot == 2 && st.head().split_whitespace().nth(2).is_some() => {
             let other = st.head().split_whitespace().nth(2).unwrap_or("");
-            return Err(CellError::at(st.header.number, format!("unknown figure `{other}`; the form is: {}", PLOT.usage)));
+            let name = st.head().split_whitespace().nth(1).unwrap_or("NAME");
+            let message = match RETIRED_PLOT_KINDS.iter().find(|(old, _)| *old == other) {
+                Some((old, new)) => format!(
+                    "the figure `{old}` is now called `{new}`: write `plot {name} {new}`; the form is: {}",
+                    PLOT.usage
+                ),
+                None => format!("unknown figure `{other}`; the form is: {}", PLOT.usage),
+            };
+            return Err(CellError::at(st.header.number, message));
         }
         Err(_) => return Err(form_error(st, PLOT.usage)),
     };
@@ -325,12 +336,14 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
     }
     let fit = require_fit(session, name, st.header.number)?;
     let model = &session.models[name];
-    if matches!(kind, "lines" | "basis") {
+    if matches!(kind, "lines" | "spline") {
         let table = session.require_table(model.table_name(), st.header.number)?;
         let (svg, note) = if kind == "lines" {
             figures::lines(model, fit, table, over)
         } else {
-            figures::basis(model, fit, table).map(|svg| (svg, "thin lines: basis functions; thick: the fitted curve (posterior mean), faint: draws".to_string()))
+            figures::spline(model, fit, table).map(|svg| {
+                (svg, "the fitted curve (posterior mean) with its 90% band over the data; below, each weight's 90% interval at the peak of its basis function".to_string())
+            })
         }
         .map_err(|e| CellError::at(st.header.number, e))?;
         let text = format!("{kind} figure of {name}: {note}");
@@ -347,11 +360,10 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
             })
         })
         .collect::<Result<Vec<_>, _>>()?;
-    let svg = if kind == "posterior" {
+    let svg = if kind == "estimates" {
         figures::posterior_of(model, fit, &chosen)
     } else {
-        // `trace` and `rank`: trace figures carry each chain's rank histogram beside its trace.
-        figures::trace(model, fit, &chosen)
+        figures::mixing(model, fit, &chosen)
     }
     .map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     let text = format!("{kind} figure of {name}");

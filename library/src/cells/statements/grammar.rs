@@ -153,8 +153,15 @@ pub(crate) fn tokens(head: &str) -> Vec<(usize, &str)> {
 }
 
 const EFFECT_KINDS: &[&str] = &["total", "direct"];
-/// The figures of `plot NAME KIND`.
-pub const PLOT_KINDS: &[&str] = &["posterior", "trace", "rank", "lines", "basis", "prior", "check"];
+/// The figures of `plot NAME KIND`, named by what they let a scientist see:
+/// the parameters' `estimates`, whether the chains `mixing` agree, the
+/// fitted `lines` over the data, the `spline` curve with its weights, and
+/// outcome sets simulated from the `prior` or compared in a `check`.
+pub const PLOT_KINDS: &[&str] = &["estimates", "mixing", "lines", "spline", "prior", "check"];
+/// Figure words of earlier versions, each with the word that replaced it;
+/// `plot` refuses them with an error naming the new word.
+pub const RETIRED_PLOT_KINDS: &[(&str, &str)] =
+    &[("posterior", "estimates"), ("trace", "mixing"), ("rank", "mixing"), ("basis", "spline")];
 /// The sampling methods after `with`.
 pub const METHODS: &[&str] = &["laplace", "nuts"];
 /// The options of `with laplace`, each followed by its value.
@@ -232,7 +239,7 @@ pub const PLOT: Form = Form {
     slots: &[Word("plot"), Value, Choice(PLOT_KINDS)],
     options: &[&[Word("of"), Value], &[Word("over"), Value]],
     method: false,
-    usage: "plot NAME posterior|trace|rank [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME basis|prior|check",
+    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME spline|prior|check",
 };
 pub const SAVE: Form = Form {
     slots: &[Word("save"), Word("figure"), Word("to"), Quoted],
