@@ -85,11 +85,11 @@ fn warnings_name_the_parameter_the_number_and_what_to_try() {
     };
     let text = run_warnings(&run, &["girth slope".to_string()], &diagnose_run(&run), 10).join("\n");
     expect![[r#"
-        5 of 800 draws, in chains 2, 4, ended a trajectory whose energy blew up: the posterior bends there more sharply than the sampler's steps can follow, so that region may be under-visited and the summaries pulled away from it. Treat the table as provisional: ask for a higher acceptance target in `fit … with nuts` (nearer 1 means smaller steps), give the slopes firmer priors, or drop a term that nearly repeats another, and fit again until none is left.
-        R-hat of girth slope is 1.423, above 1.01: its chains have not settled on one posterior; at least one still sits apart from the others. Draw its chains to see which, then fit again with a longer tuning phase and more draws in `fit … with nuts`.
+        5 of 800 draws, in chains 2, 4, ended a trajectory whose energy blew up: the posterior bends there more sharply than the sampler's steps can follow, so that region may be under-visited and the summaries pulled away from it. Treat the table as provisional: raise `acceptance` in `fit … with nuts` (nearer 1 means smaller steps), give the slopes firmer priors, or drop a term that nearly repeats another, and fit again until none is left.
+        R-hat of girth slope is 1.423, above 1.01: its chains have not settled on one posterior; at least one still sits apart from the others. `plot NAME mixing` shows which; then fit again with a longer `settle` and more `draws` in `fit … with nuts`.
         Bulk ESS of girth slope is 9, below 400: its draws follow one another so closely that they count for few independent ones, and its mean and interval carry more Monte Carlo error than their digits suggest. Fit again with more draws; if the chains still crawl, look for a term that repeats another.
         Tail ESS of girth slope is 38, below 400: few independent draws fall near the ends of its interval, so those ends may shift on a refit. Fit again with more draws before quoting them.
-        7 of 800 draws, in chain 1, stopped at the longest trajectory allowed (tree depth 10). Such draws are still sound, but each moves the chain less far than it might, so mixing is slow and ESS drops. If ESS is low too, allow a deeper tree in `fit … with nuts`, or give predictors units that keep their values near 1 (metres rather than millimetres)."#]]
+        7 of 800 draws, in chain 1, stopped at the longest trajectory allowed (10 doublings). Such draws are still sound, but each moves the chain less far than it might, so mixing is slow and ESS drops. If ESS is low too, allow more `doublings` in `fit … with nuts`, or give predictors units that keep their values near 1 (metres rather than millimetres)."#]]
     .assert_eq(&text);
 }
 

@@ -208,7 +208,7 @@ fn shallow_tree_limit_is_counted_as_depth_hits() {
         .expect("run completes");
     assert!(run.depth_hits.iter().sum::<usize>() > 400, "depth hits {:?}", run.depth_hits);
     let names: Vec<String> = (1..=20).map(|i| format!("x{i}")).collect();
-    assert!(run_warnings(&run, &names, &diagnose_run(&run), 2).iter().any(|w| w.contains("longest trajectory allowed (tree depth 2)")));
+    assert!(run_warnings(&run, &names, &diagnose_run(&run), 2).iter().any(|w| w.contains("longest trajectory allowed (2 doublings)")));
 }
 
 /// A normal with sd 10 cut to |x| < 1: the wall where the density stops

@@ -174,7 +174,7 @@ fn labels_read_as_the_readme_documents_them_everywhere() {
          fit m with laplace seed 3\n",
     );
     let json = fitted.last().and_then(|d| d.json.clone()).expect("the fit's JSON");
-    let names: Vec<&str> = json["parameters"].as_array().unwrap().iter().map(|p| p["name"].as_str().unwrap()).collect();
+    let names: Vec<&str> = json["estimates"].as_array().unwrap().iter().map(|p| p["parameter"].as_str().unwrap()).collect();
     let documented = [
         "rootstock[dwarf]", "rootstock[standard]", "girth slope[dwarf]", "girth slope[standard]", "age power 1", "age power 2",
         "light spline 2", "light spline 3", "light spline 4", "spread",
@@ -183,7 +183,7 @@ fn labels_read_as_the_readme_documents_them_everywhere() {
     run("export m draws to \"draws.csv\"\n");
     let header = std::fs::read_to_string(dir.join("draws.csv")).unwrap().lines().next().unwrap().to_string();
     assert_eq!(header, format!("chain,draw,{}", documented.join(",")));
-    let plotted = run("plot m posterior of girth   slope[dwarf],  age power 2\n");
+    let plotted = run("plot m estimates of girth   slope[dwarf],  age power 2\n");
     let svg = plotted.iter().find_map(|d| d.svg.clone()).expect("a figure");
     assert!(svg.contains("girth slope[dwarf]") && svg.contains("age power 2"), "the figure names the parameters");
     assert!(found_in(&svg).is_empty() && found_in(&json.to_string()).is_empty());

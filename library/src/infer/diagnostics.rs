@@ -251,7 +251,7 @@ pub fn diagnose_run(run: &NutsRun) -> Vec<ParamDiagnostics> {
 
 /// Sentences for a scientist about anything doubtful in a run: divergent
 /// trajectories, parameters that never moved, R-hat above 1.01, bulk or
-/// tail ESS below 400, and trajectories cut at the maximum tree depth.
+/// tail ESS below 400, and trajectories cut at the doubling limit.
 /// `names` labels the parameters and `diagnostics` holds their diagnostics
 /// on the scale the parameter table shows, both in parameter order; an
 /// empty list means the run looks sound.
@@ -264,7 +264,7 @@ pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnos
             "{divergent} of {total} draws, in {}, ended a trajectory whose energy blew up: the \
              posterior bends there more sharply than the sampler's steps can follow, so that \
              region may be under-visited and the summaries pulled away from it. Treat the table \
-             as provisional: ask for a higher acceptance target in `fit … with nuts` (nearer 1 \
+             as provisional: raise `acceptance` in `fit … with nuts` (nearer 1 \
              means smaller steps), give the slopes firmer priors, or drop a term that nearly \
              repeats another, and fit again until none is left.",
             chains_phrase(&run.divergences)
@@ -277,10 +277,10 @@ pub fn run_warnings(run: &NutsRun, names: &[String], diagnostics: &[ParamDiagnos
     let hits: usize = run.depth_hits.iter().sum();
     if hits > 0 {
         out.push(format!(
-            "{hits} of {total} draws, in {}, stopped at the longest trajectory allowed (tree \
-             depth {max_depth}). Such draws are still sound, but each moves the chain less far \
-             than it might, so mixing is slow and ESS drops. If ESS is low too, allow a deeper \
-             tree in `fit … with nuts`, or give predictors units that keep their values near 1 \
+            "{hits} of {total} draws, in {}, stopped at the longest trajectory allowed ({max_depth} \
+             doublings). Such draws are still sound, but each moves the chain less far \
+             than it might, so mixing is slow and ESS drops. If ESS is low too, allow more \
+             `doublings` in `fit … with nuts`, or give predictors units that keep their values near 1 \
              (metres rather than millimetres).",
             chains_phrase(&run.depth_hits)
         ));
@@ -301,8 +301,8 @@ pub fn parameter_warnings(label: &str, d: &ParamDiagnostics) -> Vec<String> {
     if d.rhat > RHAT_LIMIT {
         out.push(format!(
             "R-hat of {label} is {:.3}, above {RHAT_LIMIT}: its chains have not settled on one \
-             posterior; at least one still sits apart from the others. Draw its chains to see \
-             which, then fit again with a longer tuning phase and more draws in `fit … with nuts`.",
+             posterior; at least one still sits apart from the others. `plot NAME mixing` shows \
+             which; then fit again with a longer `settle` and more `draws` in `fit … with nuts`.",
             d.rhat
         ));
     }
