@@ -117,6 +117,42 @@ fn fit_reports_labelled_parameters_in_the_documented_structure() {
     assert_eq!(json["health"], serde_json::Value::Null);
     // Category levels are shown by label, never by index code.
     assert!(!out.displays[2].plain.contains("rootstock[0]"));
+    // The spread cannot be negative, so its share of draws above zero says
+    // nothing and is left out; the intercepts keep theirs.
+    let estimates = json["estimates"].as_array().unwrap();
+    assert_eq!(estimates[2]["share_above_zero"], serde_json::Value::Null);
+    assert!(estimates[0]["share_above_zero"].is_number());
+    let spread_row = out.displays[2].plain.lines().find(|l| l.starts_with("spread")).expect("a spread row");
+    assert!(spread_row.trim_end().ends_with('—') && !spread_row.contains('%'), "{spread_row}");
+    // Chains are what the mixing figure compares; Laplace draws have none.
+    let mixing = run(&mut session, "plot m mixing\n");
+    let error = mixing.error.expect("the mixing figure needs a NUTS fit").describe();
+    assert!(error.contains("laplace") && error.contains("fit m"), "{error}");
+    assert!(mixing.displays.iter().all(|d| d.svg.is_none()));
+}
+
+#[test]
+fn a_level_left_empty_or_nearly_by_a_filter_is_named_in_a_warning() {
+    let dir = std::env::temp_dir().join(format!("wp-cells-sparse-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    orchard_csv(&dir);
+    let mut session = Session::new(&dir);
+    // Every dwarf tree has a girth of 25 cm or less, so the filter empties that level
+    // and leaves four standard trees.
+    let out = run(
+        &mut session,
+        "table trees from \"trees.csv\":\n    rootstock: category(dwarf, standard)\n    keep where girth > 25\n\
+         model m:\n    yield from rootstock using trees\n",
+    );
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let model = &out.displays[1];
+    assert!(model.plain.contains("level dwarf of rootstock has no rows in table trees"), "{}", model.plain);
+    assert!(model.plain.contains("level standard of rootstock has only 4 rows"), "{}", model.plain);
+    let notes = model.json.as_ref().unwrap()["notes"].as_array().unwrap();
+    assert!(notes.iter().any(|n| n.as_str().unwrap().contains("rest on the priors alone")));
+    // A table with enough rows in every level gets no such warning.
+    let out = run(&mut session, "model m2:\n    yield from girth using trees\n");
+    assert!(!out.displays[0].plain.contains("warning: level"), "{}", out.displays[0].plain);
 }
 
 #[test]

@@ -44,7 +44,8 @@ pub fn estimates_grid(lead: &[&str], rows: &[(Vec<String>, &Summary)], mass: f64
     let cells = estimate_cells(&rows.iter().map(|(_, s)| *s).collect::<Vec<_>>());
     for ((lead_cells, s), estimate) in rows.iter().zip(cells) {
         let mut row = lead_cells.clone();
-        row.extend([estimate, num(s.sd), share_above_zero(s.prob_positive)]);
+        let above = if lead_cells.last().is_some_and(|l| positive_only(l)) { "—".to_string() } else { share_above_zero(s.prob_positive) };
+        row.extend([estimate, num(s.sd), above]);
         grid.push(row);
     }
     grid
@@ -87,12 +88,19 @@ pub fn share_above_zero(share: f64) -> String {
     }
 }
 
-/// One parameter's estimate in the fit JSON.
+/// Parameters that cannot be negative (the residual spread): their share of
+/// draws above zero is always all of them and says nothing, so it is left out.
+pub fn positive_only(label: &str) -> bool {
+    label == "spread"
+}
+
+/// One parameter's estimate in the fit JSON (`share_above_zero` null for a
+/// parameter that cannot be negative).
 pub fn estimate_json(label: &str, s: &Summary) -> Value {
     json!({
         "parameter": label, "mean": s.mean, "sd": s.sd,
         "interval": {"lower": s.interval.lower, "upper": s.interval.upper},
-        "share_above_zero": s.prob_positive,
+        "share_above_zero": (!positive_only(label)).then_some(s.prob_positive),
     })
 }
 

@@ -36,11 +36,75 @@ pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display
     let line = spec.formula_line.unwrap_or(st.header.number);
     let table = session.require_table(&spec.table, line)?;
     let model = Model::build(&spec, table).map_err(|e| CellError::at(line, e.to_string()))?;
-    let display = describe_model(&model, table.nrows());
+    let mut display = describe_model(&model, table.nrows());
+    add_notes(&mut display, &sparse_level_warnings(&spec, table));
     session.fits.remove(name);
     session.specs.insert(name.to_string(), spec);
     session.models.insert(name.to_string(), model);
     Ok(vec![display])
+}
+
+/// Levels with fewer rows than this are named in a warning: their
+/// parameters lean mostly on the priors.
+const FEW_ROWS: usize = 5;
+
+/// A warning for every level of a category the model stratifies by that has
+/// no rows or very few (a `keep where` may have emptied it): its parameters
+/// rest on the priors alone, or nearly, and contrasts on it are not estimates
+/// from data.
+fn sparse_level_warnings(spec: &crate::model::ModelSpec, table: &crate::table::Table) -> Vec<String> {
+    let mut categories: Vec<&str> = Vec::new();
+    for term in &spec.terms {
+        let named = match term {
+            crate::model::TermSpec::Column(c) => Some(c.as_str()),
+            crate::model::TermSpec::Per { by, .. } => Some(by.as_str()),
+            _ => None,
+        };
+        if let Some(c) = named.filter(|c| !categories.contains(c)) {
+            categories.push(c);
+        }
+    }
+    let mut out = Vec::new();
+    for name in categories {
+        let Some(crate::table::ColumnData::Category { codes, levels }) = table.column(name).map(|c| &c.data) else { continue };
+        let mut counts = vec![0usize; levels.len()];
+        for &code in codes {
+            if let Some(n) = counts.get_mut(code as usize) {
+                *n += 1;
+            }
+        }
+        for (level, &n) in levels.iter().zip(&counts) {
+            if n == 0 {
+                out.push(format!(
+                    "warning: level {level} of {name} has no rows in table {} (a `keep where` or `drop missing` may have removed them); its parameters rest on the priors alone, so a contrast with {level} is not an estimate from data",
+                    spec.table
+                ));
+            } else if n < FEW_ROWS {
+                out.push(format!(
+                    "warning: level {level} of {name} has only {n} row{} in table {}; its parameters lean mostly on the priors",
+                    if n == 1 { "" } else { "s" },
+                    spec.table
+                ));
+            }
+        }
+    }
+    out
+}
+
+/// Append notes to a display's written forms and to its JSON `notes`.
+fn add_notes(display: &mut Display, notes: &[String]) {
+    if notes.is_empty() {
+        return;
+    }
+    for n in notes {
+        display.plain.push_str(&format!("\n• {n}"));
+    }
+    if let Some(html) = display.html.as_mut() {
+        html.push_str(&html_list(notes));
+    }
+    if let Some(serde_json::Value::Array(list)) = display.json.as_mut().and_then(|j| j.get_mut("notes")) {
+        list.extend(notes.iter().map(|n| serde_json::Value::String(n.clone())));
+    }
 }
 
 fn model_error(st: &Statement, e: crate::model::error::ModelError) -> CellError {
@@ -360,6 +424,15 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
             })
         })
         .collect::<Result<Vec<_>, _>>()?;
+    if kind == "mixing" && fit.diagnostics.is_none() {
+        return Err(CellError::at(
+            st.header.number,
+            format!(
+                "the mixing figure compares the chains of a NUTS fit, and {name} was last fitted with {}, whose draws come from no chains; run `fit {name}` (NUTS) first, or draw `plot {name} estimates`",
+                fit.method.name()
+            ),
+        ));
+    }
     let svg = if kind == "estimates" {
         figures::posterior_of(model, fit, &chosen)
     } else {
