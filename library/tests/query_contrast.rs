@@ -68,6 +68,23 @@ fn contrast_pairs_draws_and_summarises_last() {
     assert_eq!((c.held[0].name.as_str(), c.held[0].source.as_str()), ("girth", "table mean"));
 }
 
+#[test]
+fn the_grid_variable_is_reported_where_the_contrast_row_holds_it() {
+    let table = orchard(300, 1);
+    let (model, fit) = fitted("yield from rootstock, girth using trees", &table);
+    let girth = table.column("girth").unwrap().data.as_reals().unwrap();
+    let table_mean = girth.iter().sum::<f64>() / girth.len() as f64;
+    let request = ContrastRequest {
+        along: Some(GridRequest { variable: "girth".into(), from: 20.0, to: 30.0, step: Some(5.0) }),
+        ..ContrastRequest::new("rootstock").between("standard", "dwarf")
+    };
+    let c = contrast(&model, &fit.draws, &table, &request).expect("contrast");
+    let held: Vec<_> = c.held.iter().filter(|h| h.name == "girth").collect();
+    assert_eq!(held.len(), 1, "{:?}", c.held);
+    assert_eq!(held[0].source, "table mean");
+    assert!((held[0].value.parse::<f64>().unwrap() - table_mean).abs() < 1e-3 * table_mean.abs(), "{} vs {table_mean}", held[0].value);
+}
+
 /// Source: a posterior expectation of a nonlinear function is the mean of
 /// the function over draws, not the function of the mean draw (Jensen's
 /// inequality makes the two differ); the logistic function 1/(1 + e^−η)

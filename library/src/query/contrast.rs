@@ -342,8 +342,8 @@ fn held_row(
             }
             (None, _) => (Setting::Number(column_mean(column).unwrap_or(0.0)), "table mean"),
         };
-        let skip = *name == request.variable || request.along.as_ref().is_some_and(|g| g.variable == *name);
-        if !skip {
+        // The grid variable is listed too: the contrast's own row holds it there.
+        if *name != request.variable {
             held.push(HeldValue { name: name.clone(), value: setting.text(), source: source.into() });
         }
         columns.push(setting.column(name, 1));

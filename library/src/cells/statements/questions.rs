@@ -221,6 +221,18 @@ fn read_contrast_options(request: &mut ContrastRequest, text: &str) -> Result<()
     Ok(())
 }
 
+/// Where the contrast's own row holds the grid variable: `girth held at its
+/// table mean, 27.59 cm` (with the column's unit when it has one).
+fn held_value_phrase(c: &Contrast, table: &Table, x: &str) -> String {
+    let unit = table.column(x).and_then(|col| col.unit.clone()).map(|u| format!(" {u}")).unwrap_or_default();
+    match c.held.iter().find(|h| h.name == x) {
+        Some(h) if h.source == "stated" => format!("{x} held at {}{unit}, as stated", h.value),
+        Some(h) => format!("{x} held at its {}, {}{unit}", h.source, h.value),
+        None if c.over_rows => format!("{x} as observed in each row"),
+        None => format!("{x} at its held value"),
+    }
+}
+
 /// The display of one contrast; `extra` notes go before the closing causal note.
 fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String]) -> Display {
     let heading = format!(
@@ -241,13 +253,15 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
     grid.push(row);
     let mut grids = vec![("", &grid)];
     let along_grid;
+    let along_caption;
     if let Some(x) = &c.along {
         let mut g = Grid::new(&[x.as_str(), "mean", &lower, &upper, "P(>0)"]).numeric_columns(&[0, 1, 2, 3, 4]);
         for p in &c.grid {
             g.push(vec![num(p.x), num(p.mean), num(p.lower), num(p.upper), format!("{:.2}", p.p_positive)]);
         }
         along_grid = g;
-        grids.push(("along the grid (the row above is at the held value):", &along_grid));
+        along_caption = format!("along the grid (the row above is at {}):", held_value_phrase(c, table, x));
+        grids.push((along_caption.as_str(), &along_grid));
     }
     let mut notes = vec![format!("scale: {}", c.scale), c.held_how.clone()];
     notes.extend(c.notes.iter().cloned());
