@@ -490,3 +490,17 @@ fn a_direct_effect_under_a_logit_link_names_its_estimand_and_holds_stated_mediat
     let estimand = json["estimand"].as_str().unwrap();
     assert!(estimand.starts_with("average of controlled direct effects") && estimand.contains("logit"), "{estimand}");
 }
+
+#[test]
+fn a_yes_no_outcome_is_drawn_as_a_difference_in_probability() {
+    // The mean of a 0/1 outcome is the probability of yes, so a figure of its
+    // differences must not call it a "mean".
+    let mut session = Session::new(".");
+    last_json(&mut session, SHOOTS);
+    let out = run(&mut session, "compare routes for total effect of x on y in s using shoots with laplace seed 4");
+    assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
+    let svgs: Vec<&String> = out.displays.iter().filter_map(|d| d.svg.as_ref()).collect();
+    assert!(!svgs.is_empty(), "compare routes draws a figure");
+    assert!(svgs.iter().any(|s| s.contains("difference in the probability that y is yes")), "no probability axis");
+    assert!(svgs.iter().all(|s| !s.contains("difference in mean y")));
+}

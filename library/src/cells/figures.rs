@@ -291,8 +291,15 @@ fn thin_indices(total: usize, max: usize) -> Vec<usize> {
 /// The axis of a difference in `outcome` (with its unit when the table has one).
 fn difference_quantity(table: &Table, outcome: &str, on: &str) -> Quantity {
     let base = quantity(table, outcome);
-    let name = if on == "outcomes" { format!("difference in simulated {outcome}") } else { format!("difference in mean {outcome}") };
-    Quantity { name, unit: base.unit }
+    let binary = table.column(outcome).is_some_and(|c| matches!(c.data, crate::table::ColumnData::Binary(_)));
+    let name = match (binary, on == "outcomes") {
+        // The mean of a yes/no outcome is a probability: say so, not "mean".
+        (true, false) => format!("difference in the probability that {outcome} is yes"),
+        (true, true) => format!("difference in the share of simulated {outcome} that is yes"),
+        (false, true) => format!("difference in simulated {outcome}"),
+        (false, false) => format!("difference in mean {outcome}"),
+    };
+    Quantity { name, unit: if binary { None } else { base.unit } }
 }
 
 /// A contrast: the density of its per-draw differences with both sides of
