@@ -2,8 +2,9 @@
 //! boxes never overlap, labels fit their boxes, arrows point down the
 //! layers, start and end on box edges, and never run through a box.
 
-use std::sync::Arc;
+mod common;
 
+use common::text_boxes::{dejavu, text_boxes};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use resvg::usvg;
@@ -59,14 +60,6 @@ fn random_dag(seed: u64) -> GraphPicture {
         nodes,
         edges,
     }
-}
-
-fn fonts() -> usvg::Options<'static> {
-    let mut opt = usvg::Options::default();
-    let db = Arc::make_mut(&mut opt.fontdb);
-    db.load_fonts_dir("/usr/share/fonts/truetype/dejavu");
-    db.set_sans_serif_family("DejaVu Sans");
-    opt
 }
 
 fn inside(b: &NodeBox, x: f64, y: f64) -> bool {
@@ -178,18 +171,12 @@ fn arrows_touch_their_boxes_and_avoid_all_others() {
 /// font's own metrics, laid out by usvg) lies inside its box.
 #[test]
 fn labels_fit_inside_their_boxes_with_a_real_font() {
-    let opt = fonts();
-    assert!(
-        !opt.fontdb.is_empty(),
-        "install fonts-dejavu-core: this check measures labels with DejaVu Sans"
-    );
+    let opt = dejavu();
     for seed in 0..30 {
         let g = random_dag(seed);
         let l = layout(&g).expect("a DAG lays out");
         let svg = graph_figure(&g).expect("draws");
-        let tree = usvg::Tree::from_str(&svg, &opt).expect("parses");
-        let mut texts = Vec::new();
-        collect_text_boxes(tree.root(), &mut texts);
+        let (_, texts) = text_boxes(&svg, &opt);
         for (name, b) in g.nodes.iter().map(|n| &n.name).zip(&l.boxes) {
             let (_, rect) = texts
                 .iter()
@@ -204,19 +191,6 @@ fn labels_fit_inside_their_boxes_with_a_real_font() {
                 rect.top() >= b.y as f32 && rect.bottom() <= (b.y + b.height) as f32,
                 "seed {seed}: label {name} vertical"
             );
-        }
-    }
-}
-
-fn collect_text_boxes(group: &usvg::Group, out: &mut Vec<(String, usvg::Rect)>) {
-    for node in group.children() {
-        match node {
-            usvg::Node::Group(g) => collect_text_boxes(g, out),
-            usvg::Node::Text(t) => {
-                let content: String = t.chunks().iter().map(|c| c.text()).collect();
-                out.push((content, t.abs_bounding_box()));
-            }
-            _ => {}
         }
     }
 }
@@ -266,7 +240,7 @@ fn a_cycle_is_reported_with_a_node_on_it() {
 #[test]
 #[ignore]
 fn write_random_graphs_for_viewing() {
-    let opt = fonts();
+    let opt = dejavu();
     for seed in [3, 17, 42, 77] {
         let svg = graph_figure(&random_dag(seed)).expect("draws");
         let tree = usvg::Tree::from_str(&svg, &opt).expect("parses");
