@@ -74,7 +74,7 @@ fit m with laplace draws 2000 seed 3
     let out = run(&mut session, cell);
     assert!(out.error.is_none(), "{:?}", out.error);
     let json = last_json(&mut session, "contrast m: x 1 vs 0 along z from -1 to 1 by 0.5");
-    has_keys(&json, &["contrast", "on", "mean", "lower", "upper", "p_positive", "grid", "held_how"]);
+    has_keys(&json, &["contrast", "on", "mean", "lower", "upper", "share_above_zero", "grid", "held_how"]);
     let fit = session.fit("m").expect("fitted");
     let (a, b, c) = (fit.draws.get("intercept").unwrap(), fit.draws.get("x slope").unwrap(), fit.draws.get("z slope").unwrap());
     let z = session.table("plots").unwrap().column("z").unwrap().data.as_reals().unwrap();
@@ -153,7 +153,7 @@ fn ask_using_reports_the_set_it_adjusted_for_and_finds_the_effect() {
     // Backdoor criterion (Pearl 2009, §3.3): z is a common cause of x and y, so {z} is needed.
     assert_eq!(json["adjustment_set"], serde_json::json!(["z"]));
     let c = &json["contrasts"][0];
-    has_keys(c, &["contrast", "on", "mean", "lower", "upper", "p_positive", "grid"]);
+    has_keys(c, &["contrast", "on", "mean", "lower", "upper", "share_above_zero", "grid"]);
     let (lo, hi) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
     assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "Wright (1934) truth 0.5 outside [{lo}, {hi}]");
     // the built model stays in the session
@@ -180,7 +180,7 @@ fn joint_intervene_and_routes_agree_with_path_tracing() {
     let json = last_json(&mut session, "intervene whole: set x 1 vs 0, watch y rows 300 seed 2");
     has_keys(&json, &["joint", "intervention", "rows", "seed", "watched"]);
     let w = &json["watched"][0];
-    has_keys(w, &["node", "mean", "lower", "upper", "p_positive"]);
+    has_keys(w, &["node", "mean", "lower", "upper", "share_above_zero"]);
     let (lo, hi) = (w["lower"].as_f64().unwrap(), w["upper"].as_f64().unwrap());
     // Wright (1934): the effect of setting x one unit higher on y is 0.5.
     assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "[{lo}, {hi}]");

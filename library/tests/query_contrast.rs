@@ -190,7 +190,7 @@ fn contrast_along_a_grid_follows_the_per_level_slopes() {
         assert!(g.lower < g.mean && g.mean < g.upper);
     }
     let json = serde_json::to_value(&c).expect("json");
-    for key in ["contrast", "on", "mean", "lower", "upper", "p_positive", "grid", "held", "interval"] {
+    for key in ["contrast", "on", "mean", "lower", "upper", "share_above_zero", "grid", "held", "interval"] {
         assert!(json.get(key).is_some(), "missing {key}");
     }
     assert!(json["grid"][0].get("x").is_some());

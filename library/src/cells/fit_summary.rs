@@ -34,21 +34,34 @@ pub fn estimate_head(mass: f64) -> String {
 pub const ABOVE_ZERO_HEAD: &str = "draws above 0";
 
 /// The estimates table: `lead` columns (e.g. `node`, `parameter`) given per
-/// row, then the estimate with its interval, the sd and the share above zero.
-pub fn estimates_grid(lead: &[&str], rows: &[(Vec<String>, &Summary)], mass: f64) -> Grid {
+/// row, then the unit of the parameter (blank where it has none), the
+/// estimate with its interval, the sd and the share above zero.
+pub fn estimates_grid(lead: &[&str], rows: &[EstimateRow], mass: f64) -> Grid {
     let estimate = estimate_head(mass);
     let mut heads: Vec<&str> = lead.to_vec();
-    heads.extend([estimate.as_str(), "sd", ABOVE_ZERO_HEAD]);
-    let first = lead.len();
+    heads.extend([UNIT_HEAD, estimate.as_str(), "sd", ABOVE_ZERO_HEAD]);
+    let first = lead.len() + 1;
     let mut grid = Grid::new(&heads).numeric_columns(&[first, first + 1, first + 2]);
-    let cells = estimate_cells(&rows.iter().map(|(_, s)| *s).collect::<Vec<_>>());
-    for ((lead_cells, s), estimate) in rows.iter().zip(cells) {
-        let mut row = lead_cells.clone();
-        let above = if lead_cells.last().is_some_and(|l| positive_only(l)) { "—".to_string() } else { share_above_zero(s.prob_positive) };
-        row.extend([estimate, num(s.sd), above]);
+    let cells = estimate_cells(&rows.iter().map(|r| r.summary).collect::<Vec<_>>());
+    for (r, estimate) in rows.iter().zip(cells) {
+        let mut row = r.lead.clone();
+        let above =
+            if r.lead.last().is_some_and(|l| positive_only(l)) { "—".to_string() } else { share_above_zero(r.summary.prob_positive) };
+        row.extend([r.unit.clone().unwrap_or_default(), estimate, num(r.summary.sd), above]);
         grid.push(row);
     }
     grid
+}
+
+/// Head of the unit column of estimate tables.
+pub const UNIT_HEAD: &str = "unit";
+
+/// One row of an estimates table: its lead cells (the parameter label
+/// last), the parameter's unit and its summary.
+pub struct EstimateRow<'s> {
+    pub lead: Vec<String>,
+    pub unit: Option<String>,
+    pub summary: &'s Summary,
 }
 
 /// `mean (lower to upper)` per summary: the means padded to the widest
@@ -95,10 +108,10 @@ pub fn positive_only(label: &str) -> bool {
 }
 
 /// One parameter's estimate in the fit JSON (`share_above_zero` null for a
-/// parameter that cannot be negative).
-pub fn estimate_json(label: &str, s: &Summary) -> Value {
+/// parameter that cannot be negative; `unit` null where it has none).
+pub fn estimate_json(label: &str, unit: Option<&str>, s: &Summary) -> Value {
     json!({
-        "parameter": label, "mean": s.mean, "sd": s.sd,
+        "parameter": label, "unit": unit, "mean": s.mean, "sd": s.sd,
         "interval": {"lower": s.interval.lower, "upper": s.interval.upper},
         "share_above_zero": (!positive_only(label)).then_some(s.prob_positive),
     })

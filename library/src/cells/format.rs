@@ -23,6 +23,14 @@ pub fn num(x: f64) -> String {
     format!("{x:.decimals$}")
 }
 
+/// A number followed by its unit (`2.310 kg`), or alone when it has none.
+pub fn with_unit(x: f64, unit: Option<&str>) -> String {
+    match unit {
+        Some(u) if !u.is_empty() => format!("{} {u}", num(x)),
+        _ => num(x),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::num;

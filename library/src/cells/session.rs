@@ -49,12 +49,21 @@ pub struct Session {
     pub(crate) last_figure: Option<String>,
     /// The files read as data (tables, DOT graphs): never written over.
     pub(crate) data_files: DataFiles,
+    /// The mass of intervals set by an `intervals P%` statement (`None`:
+    /// [`crate::draws::summary::DEFAULT_MASS`]).
+    pub(crate) interval_setting: Option<f64>,
 }
 
 impl Session {
     /// A new, empty session reading relative paths from `base_dir`.
     pub fn new(base_dir: impl Into<PathBuf>) -> Session {
         Session { base_dir: base_dir.into(), ..Session::default() }
+    }
+
+    /// The interval mass a statement uses: its own `intervals P%` option,
+    /// else the session's setting, else 90%.
+    pub(crate) fn interval_mass(&self, option: Option<f64>) -> f64 {
+        option.or(self.interval_setting).unwrap_or(crate::draws::summary::DEFAULT_MASS)
     }
 
     /// The folder relative paths are read from.

@@ -101,6 +101,26 @@ impl Model {
         names
     }
 
+    /// The unit of each constrained parameter ([`Model::parameter_names`]
+    /// order) read from `table`'s column units: on an identity link
+    /// (normal family) intercepts, offsets, powers, spline weights and the
+    /// spread are in the outcome's unit and a slope is outcome unit per
+    /// predictor unit ([`TermRecipe::units`]); on a logit, log or softmax
+    /// link a coefficient is on the link scale and has no unit (`None`).
+    pub fn parameter_units(&self, table: &crate::table::Table) -> Vec<Option<String>> {
+        let n = self.parameter_names().len();
+        if !matches!(self.family, Family::Normal) {
+            return vec![None; n];
+        }
+        let outcome_unit = table.column(&self.outcome).and_then(|c| c.unit.as_deref());
+        let mut units: Vec<Option<String>> = self.recipes.iter().flat_map(|r| r.units(outcome_unit, table)).collect();
+        units.resize(self.labels.len(), None);
+        if self.has_spread() {
+            units.push(outcome_unit.map(str::to_string));
+        }
+        units
+    }
+
     /// Labels of the unconstrained parameters (`log(spread)` for the spread).
     pub fn unconstrained_names(&self) -> Vec<String> {
         let mut names = self.labels.clone();

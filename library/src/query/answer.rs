@@ -86,6 +86,10 @@ pub struct AskOptions {
     /// For a direct effect: nodes of the set held at stated values in every
     /// row, `(name, value)` — the controlled direct effect at those values.
     pub held: Vec<(String, String)>,
+    /// The two settings of the exposure to compare, `(to, from)` as
+    /// written; `None`: every level against the first (a category), or
+    /// one unit above the mean against the mean (a number).
+    pub settings: Option<(String, String)>,
 }
 
 /// [`answer_effect`] with `options`, reporting the sampler's progress to `progress`.
@@ -166,7 +170,7 @@ pub fn answer_effect_with_progress(
         ));
     }
     answer.estimand = Some(estimand(kind, &family, set, &options.held));
-    answer.contrasts = comparisons(table, exposure, mass, &options.held)?
+    answer.contrasts = comparisons(table, exposure, mass, options)?
         .iter()
         .map(|request| contrast(&model, &fit.draws, table, request))
         .collect::<Result<_, _>>()?;
@@ -247,11 +251,15 @@ pub(crate) fn family_for(table: &Table, outcome: &str, place: &str) -> Result<Fa
     }
 }
 
-/// Every level against the first for a category exposure; centre + 1 vs
-/// centre for a numeric one; each averaged over rows.
-fn comparisons(table: &Table, exposure: &str, mass: f64, held: &[(String, String)]) -> Result<Vec<ContrastRequest>, QueryError> {
+/// The two settings asked for; else every level against the first for a
+/// category exposure, centre + 1 vs centre for a numeric one; each
+/// averaged over rows.
+fn comparisons(table: &Table, exposure: &str, mass: f64, options: &AskOptions) -> Result<Vec<ContrastRequest>, QueryError> {
     let column = require_column(table, exposure, "ask")?;
-    let base = ContrastRequest { over_rows: true, mass, held: held.to_vec(), ..ContrastRequest::new(exposure) };
+    let base = ContrastRequest { over_rows: true, mass, held: options.held.clone(), ..ContrastRequest::new(exposure) };
+    if let Some((to, from)) = &options.settings {
+        return Ok(vec![base.between(to.clone(), from.clone())]);
+    }
     Ok(match column.data.levels() {
         Some(levels) => levels[1..].iter().map(|l| base.clone().between(l.clone(), levels[0].clone())).collect(),
         None => vec![base],

@@ -113,7 +113,7 @@ pub struct GridPoint {
     pub mean: f64,
     pub lower: f64,
     pub upper: f64,
-    pub p_positive: f64,
+    pub share_above_zero: f64,
 }
 
 /// A contrast: per-draw differences and their summary.
@@ -134,11 +134,14 @@ pub struct Contrast {
     /// Whether the difference is in the outcome column's own unit (false
     /// for a probability).
     pub in_outcome_unit: bool,
+    /// The unit of the difference: the outcome column's declared unit when
+    /// the difference is in it, else none.
+    pub unit: Option<String>,
     pub mean: f64,
     pub lower: f64,
     pub upper: f64,
-    pub p_positive: f64,
-    pub p_negative: f64,
+    pub share_above_zero: f64,
+    pub share_below_zero: f64,
     /// Interval mass and its words.
     pub mass: f64,
     pub interval: String,
@@ -166,8 +169,8 @@ impl Contrast {
             mean: self.mean,
             lower: self.lower,
             upper: self.upper,
-            p_positive: self.p_positive,
-            p_negative: self.p_negative,
+            share_above_zero: self.share_above_zero,
+            share_below_zero: self.share_below_zero,
             mass: self.mass,
         }
     }
@@ -254,11 +257,16 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
         },
         scale: scale_words(model, request.on, request.over_rows),
         in_outcome_unit: !is_probability(model, request.on),
+        unit: if is_probability(model, request.on) {
+            None
+        } else {
+            table.column(model.outcome_name()).and_then(|c| c.unit.clone())
+        },
         mean: summary.mean,
         lower: summary.lower,
         upper: summary.upper,
-        p_positive: summary.p_positive,
-        p_negative: summary.p_negative,
+        share_above_zero: summary.share_above_zero,
+        share_below_zero: summary.share_below_zero,
         mass: request.mass,
         interval: interval_words(request.mass),
         held,
@@ -413,7 +421,7 @@ fn grid_points(
         .map(|x| {
             let at = with_column(base, Setting::Number(x).column(&grid.variable, n));
             let s = ContrastSummary::of(&pairing.draws(&at)?, mass)?;
-            Ok(GridPoint { x, mean: s.mean, lower: s.lower, upper: s.upper, p_positive: s.p_positive })
+            Ok(GridPoint { x, mean: s.mean, lower: s.lower, upper: s.upper, share_above_zero: s.share_above_zero })
         })
         .collect()
 }

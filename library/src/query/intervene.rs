@@ -54,12 +54,15 @@ pub struct WatchedContrast {
     /// under the first setting, and under the second.
     pub mean_under_to: f64,
     pub mean_under_from: f64,
+    /// The unit of the watched value and its change: the node column's
+    /// declared unit; none for a level's share of rows.
+    pub unit: Option<String>,
     /// Posterior mean of the change.
     pub mean: f64,
     pub lower: f64,
     pub upper: f64,
-    pub p_positive: f64,
-    pub p_negative: f64,
+    pub share_above_zero: f64,
+    pub share_below_zero: f64,
     /// Per-draw differences of the row mean (not serialised).
     #[serde(skip)]
     pub draws: Vec<f64>,
@@ -147,7 +150,9 @@ pub fn intervene_with_cancel(
         .map(|(target, (values_to, values_from))| {
             let changes: Vec<f64> = values_to.iter().zip(&values_from).map(|(a, b)| a - b).collect();
             let s = ContrastSummary::of(&changes, request.mass)?;
+            let unit = if target.level.is_none() { table.column(&target.node).and_then(|c| c.unit.clone()) } else { None };
             Ok(WatchedContrast {
+                unit,
                 node: target.node,
                 level: target.level,
                 mean_under_to: mean(&values_to),
@@ -155,8 +160,8 @@ pub fn intervene_with_cancel(
                 mean: s.mean,
                 lower: s.lower,
                 upper: s.upper,
-                p_positive: s.p_positive,
-                p_negative: s.p_negative,
+                share_above_zero: s.share_above_zero,
+                share_below_zero: s.share_below_zero,
                 draws: changes,
             })
         })

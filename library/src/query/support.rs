@@ -21,9 +21,9 @@ pub struct ContrastSummary {
     /// Upper end of the central quantile interval.
     pub upper: f64,
     /// Share of draws above zero.
-    pub p_positive: f64,
+    pub share_above_zero: f64,
     /// Share of draws below zero.
-    pub p_negative: f64,
+    pub share_below_zero: f64,
     /// Probability mass of the interval (0.9 by default).
     pub mass: f64,
 }
@@ -37,8 +37,8 @@ impl ContrastSummary {
             mean: s.mean,
             lower: s.interval.lower,
             upper: s.interval.upper,
-            p_positive: s.prob_positive,
-            p_negative: below,
+            share_above_zero: s.prob_positive,
+            share_below_zero: below,
             mass,
         })
     }

@@ -8,7 +8,7 @@ use super::data::is_name;
 use super::grammar::{
     EXPORT, FIT, LAPLACE_OPTIONS, METHODS, MODEL, NUTS_OPTIONS, PLOT, RETIRED_NUTS_OPTIONS, RETIRED_PLOT_KINDS, SHOW,
 };
-use super::{form_error, header, option_text, unquote};
+use super::{form_error, header, interval_option, option_text, unquote};
 use crate::cells::figures;
 use crate::cells::files::write_atomically;
 use crate::cells::fit_summary;
@@ -21,9 +21,6 @@ use crate::infer::nuts::NutsSettings;
 use crate::limits::{whole_number, MAX_CHAINS, MAX_DOUBLINGS, MAX_SETTLE};
 use crate::model::{Model, ModelSpec};
 
-
-/// The interval every fit table shows.
-pub(crate) const INTERVAL_MASS: f64 = 0.9;
 
 /// `model NAME:` — build the model against its table and describe it.
 pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
@@ -162,7 +159,9 @@ fn priors_grid(model: &Model) -> Grid {
 /// `fit NAME [with …]` — sample or approximate the posterior.
 pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, warnings: &mut Vec<String>) -> Result<Vec<Display>, CellError> {
     let ([name], options) = header(st, &FIT)?;
-    let method = parse_method(options).map_err(|m| CellError::at(st.header.number, format!("{m}; the form is: {}", FIT.usage)))?;
+    let (mass, options) = interval_option(options, st.header.number)?;
+    let mass = session.interval_mass(mass);
+    let method = parse_method(&options).map_err(|m| CellError::at(st.header.number, format!("{m}; the form is: {}", FIT.usage)))?;
     let model = session.models.get(name).ok_or_else(|| {
         CellError::at(st.header.number, format!("there is no model named {name}{}", suggest(name, session.models.keys())))
     })?;
@@ -174,7 +173,7 @@ pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, w
         CellError::at(st.header.number, message)
     })?;
     warnings.extend(fit.warnings.iter().map(|w| format!("fit {name}: {w}")));
-    let display = describe_fit(model, &fit)?;
+    let display = describe_fit(model, &fit, session.tables.get(model.table_name()), mass)?;
     session.fits.insert(name.to_string(), fit);
     Ok(vec![display])
 }
@@ -261,16 +260,22 @@ fn option_range(key: &str) -> (u64, u64) {
     }
 }
 
-/// The fit summary: the estimates table, its priors, the sampler's health
-/// in one sentence, and the warnings ([`crate::cells::fit_summary`]).
-pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellError> {
-    let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
+/// The fit summary: the estimates table (units from the columns of
+/// `table`, the model's table), its priors, the sampler's health in one
+/// sentence, and the warnings ([`crate::cells::fit_summary`]).
+pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table::Table>, mass: f64) -> Result<Display, CellError> {
+    let spec = SummarySpec { mass, hdi: false };
     let summaries = fit.draws.summarise(&spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
-    let pct = format!("{:.0}%", INTERVAL_MASS * 100.0);
+    let pct = format!("{}%", crate::model::prior::short_number(mass * 100.0));
     let heading = format!("fit {}, {:.2} s: {}", model.name(), fit.seconds, fit.method.describe());
-    let rows: Vec<(Vec<String>, &crate::draws::Summary)> = summaries.iter().map(|s| (vec![s.name.clone()], s)).collect();
-    let grid = fit_summary::estimates_grid(&["parameter"], &rows, INTERVAL_MASS);
-    let estimates: Vec<_> = summaries.iter().map(|s| fit_summary::estimate_json(&s.name, s)).collect();
+    let units = parameter_units(model, table, &fit.draws.names);
+    let rows: Vec<fit_summary::EstimateRow> = summaries
+        .iter()
+        .zip(&units)
+        .map(|(s, u)| fit_summary::EstimateRow { lead: vec![s.name.clone()], unit: u.clone(), summary: s })
+        .collect();
+    let grid = fit_summary::estimates_grid(&["parameter"], &rows, mass);
+    let estimates: Vec<_> = summaries.iter().zip(&units).map(|(s, u)| fit_summary::estimate_json(&s.name, u.as_deref(), s)).collect();
     let health = fit_summary::health(&[(fit, fit.draws.names.clone())]);
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
@@ -290,11 +295,19 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit) -> Result<Display, CellErro
     let svg = figures::posterior(model, fit).ok();
     let json = json!({
         "model": model.name(), "method": fit.method.name(), "seed": fit.method.seed(),
-        "settings": method_settings(&fit.method), "interval_mass": INTERVAL_MASS, "estimates": estimates,
+        "settings": method_settings(&fit.method), "interval_mass": mass, "estimates": estimates,
         "health": health.map(|h| h.json), "warnings": fit.warnings, "seconds": fit.seconds,
     });
     let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
     Ok(Display { plain, html: Some(html), svg, json: Some(json) })
+}
+
+/// The unit of each parameter named in `names` (the draws' order), from
+/// the model's table; none when the table is not at hand.
+pub(crate) fn parameter_units(model: &Model, table: Option<&crate::table::Table>, names: &[String]) -> Vec<Option<String>> {
+    let Some(table) = table else { return vec![None; names.len()] };
+    let by_label: Vec<(String, Option<String>)> = model.parameter_names().into_iter().zip(model.parameter_units(table)).collect();
+    names.iter().map(|n| by_label.iter().find(|(l, _)| l == n).and_then(|(_, u)| u.clone())).collect()
 }
 
 /// A method's settings as the fit JSON carries them, under the option words.
@@ -310,10 +323,15 @@ pub(crate) fn method_settings(method: &Method) -> serde_json::Value {
 
 /// `show NAME` — the latest result for a model, or a description of a table or graph.
 pub(crate) fn show(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let ([name], _) = header(st, &SHOW)?;
+    let ([name], options) = header(st, &SHOW)?;
+    let (mass, rest) = interval_option(options, st.header.number)?;
+    if !rest.is_empty() {
+        return Err(form_error(st, SHOW.usage));
+    }
+    let mass = session.interval_mass(mass);
     if let Some(model) = session.models.get(name) {
         return match session.fits.get(name) {
-            Some(fit) => Ok(vec![describe_fit(model, fit)?]),
+            Some(fit) => Ok(vec![describe_fit(model, fit, session.tables.get(model.table_name()), mass)?]),
             None => {
                 let rows = session.tables.get(model.table_name()).map_or(0, |t| t.nrows());
                 let mut d = describe_model(model, rows);

@@ -174,6 +174,17 @@ pub const NUTS_OPTIONS: &[&str] = &["chains", "settle", "draws", "acceptance", "
 pub const RETIRED_NUTS_OPTIONS: &[(&str, &str)] = &[("warmup", "settle"), ("accept", "acceptance"), ("depth", "doublings")];
 
 const SEED: &[Slot] = &[Word("seed"), Value];
+/// The word of the interval option (`intervals 80%`) and of the session
+/// statement that sets it for every later statement.
+pub const INTERVALS_WORD: &str = "intervals";
+const INTERVALS_OPTION: &[Slot] = &[Word(INTERVALS_WORD), Value];
+/// `intervals P%`: the interval mass of every later statement.
+pub const INTERVALS: Form = Form {
+    slots: &[Word(INTERVALS_WORD), Value],
+    options: &[],
+    method: false,
+    usage: "intervals P%  (the mass of every later interval, e.g. intervals 80% or intervals 0.8; 90% until set)",
+};
 
 pub const TABLE: Form = Form {
     slots: &[Word("table"), Value, Word("from"), Quoted],
@@ -198,9 +209,9 @@ pub const ASK_USING: Form = Form {
         Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value,
         Word("using"), Value,
     ],
-    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value]],
+    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value], INTERVALS_OPTION],
     method: true,
-    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [with nuts …|with laplace …]",
+    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const PATHS: Form = Form {
     slots: &[Word("paths"), Word("from"), Value, Word("to"), Value, Word("in"), Value],
@@ -212,9 +223,9 @@ pub const IMPLICATIONS: Form =
     Form { slots: &[Word("implications"), Word("of"), Value], options: &[], method: false, usage: "implications of GRAPH" };
 pub const IMPLICATIONS_CHECKED: Form = Form {
     slots: &[Word("implications"), Word("of"), Value, Word("checked"), Word("against"), Value],
-    options: &[],
+    options: &[INTERVALS_OPTION],
     method: true,
-    usage: "implications of GRAPH checked against TABLE [with laplace …|with nuts …]",
+    usage: "implications of GRAPH checked against TABLE [intervals P%] [with laplace …|with nuts …]",
 };
 pub const MODEL: Form = Form {
     slots: &[Word("model"), Value],
@@ -224,11 +235,12 @@ pub const MODEL: Form = Form {
 };
 pub const FIT: Form = Form {
     slots: &[Word("fit"), Value],
-    options: &[],
+    options: &[INTERVALS_OPTION],
     method: true,
-    usage: "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [seed N]]",
+    usage: "fit NAME [intervals P%] [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [seed N]]",
 };
-pub const SHOW: Form = Form { slots: &[Word("show"), Value], options: &[], method: false, usage: "show NAME" };
+pub const SHOW: Form =
+    Form { slots: &[Word("show"), Value], options: &[INTERVALS_OPTION], method: false, usage: "show NAME [intervals P%]" };
 pub const EXPORT: Form = Form {
     slots: &[Word("export"), Value, Word("draws"), Word("to"), Quoted],
     options: &[],
@@ -254,9 +266,10 @@ const CONTRAST_OPTIONS: &[&[Slot]] = &[
     &[Word("along"), Value, Word("from"), Value, Word("to"), Value],
     &[Word("by"), Value],
     &[Word("over"), Word("rows")],
+    INTERVALS_OPTION,
 ];
 const CONTRAST_USAGE: &str =
-    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows]";
+    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows] [intervals P%]";
 /// `contrast MODEL: X [options]` (one step of X).
 pub const CONTRAST: Form = Form {
     slots: &[Word("contrast"), Value, Word(":"), Value],
@@ -276,9 +289,9 @@ pub const COMPARE_ROUTES: Form = Form {
         Word("compare"), Word("routes"), Word("for"), Word("total"), Word("effect"), Word("of"), Value, Word("on"), Value,
         Word("in"), Value, Word("using"), Value,
     ],
-    options: &[],
+    options: &[&[Word("setting"), Value, Word("vs"), Value], INTERVALS_OPTION],
     method: true,
-    usage: "compare routes for total effect of X on Y in GRAPH using TABLE [with nuts …|with laplace …]",
+    usage: "compare routes for total effect of X on Y in GRAPH using TABLE [setting v1 vs v0] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const JOINT: Form = Form {
     slots: &[Word("joint"), Value, Word("="), Value, Word("using"), Value],
@@ -288,9 +301,9 @@ pub const JOINT: Form = Form {
 };
 pub const INTERVENE: Form = Form {
     slots: &[Word("intervene"), Value, Word(":"), Word("set"), Value, Value, Word("vs"), Value, Word("watch")],
-    options: &[&[Word("rows"), Value], SEED],
+    options: &[&[Word("rows"), Value], SEED, INTERVALS_OPTION],
     method: false,
-    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]",
+    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S] [intervals P%]",
 };
 pub const SIMULATE: Form = Form {
     slots: &[Word("simulate"), Value, Word("from"), Value, Word("rows"), Value, Word("seed"), Value],
@@ -300,9 +313,9 @@ pub const SIMULATE: Form = Form {
 };
 pub const RECOVER: Form = Form {
     slots: &[Word("recover"), Value, Word("on"), Value],
-    options: &[],
+    options: &[INTERVALS_OPTION],
     method: true,
-    usage: "recover MODEL on SIMULATION [with laplace …|with nuts …]",
+    usage: "recover MODEL on SIMULATION [intervals P%] [with laplace …|with nuts …]",
 };
 pub const CALIBRATE: Form = Form {
     slots: &[Word("calibrate"), Value, Word("reps"), Value],
@@ -320,6 +333,7 @@ pub const CHECK: Form = Form { slots: &[Word("check"), Value], options: CHECK_OP
 pub const FORMS: &[Form] = &[
     TABLE, GRAPH, GRAPH_FILE, ASK, ASK_USING, PATHS, IMPLICATIONS, IMPLICATIONS_CHECKED, MODEL, FIT, SHOW, EXPORT, PLOT,
     SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK, CHECK,
+    INTERVALS,
 ];
 
 /// The words that start a statement, in [`FORMS`] order.
@@ -482,7 +496,7 @@ mod tests {
     fn statement_words_are_those_the_readme_lists() {
         let readme = [
             "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save",
-            "contrast", "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+            "contrast", "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check", "intervals",
         ];
         assert_eq!(statement_words(), readme);
     }

@@ -51,6 +51,7 @@ pub(crate) fn run(
         "export" => fitting::export(session, st),
         "plot" => fitting::plot(session, st),
         "save" => save_figure(session, st),
+        "intervals" => interval_setting(session, st),
         other => Err(unknown_statement(other, st.header.number)),
     }
 }
@@ -86,6 +87,52 @@ pub(crate) fn header<'s, const N: usize>(st: &'s Statement, form: &Form) -> Resu
 pub(crate) fn option_text<'s>(rest: &'s str, word: &str) -> Option<&'s str> {
     let (first, text) = rest.split_once(char::is_whitespace).unwrap_or((rest, ""));
     (first == word).then(|| text.trim())
+}
+
+/// An interval mass as written: a percentage (`80%`) strictly between 0%
+/// and 100%, or a share (`0.8`) strictly between 0 and 1.
+pub fn parse_mass(text: &str) -> Result<f64, String> {
+    let wrong = || {
+        format!(
+            "`{text}` is not an interval mass; write a percentage between 0% and 100% (exclusive), e.g. 80%, \
+             or a share between 0 and 1, e.g. 0.8"
+        )
+    };
+    let mass = match text.strip_suffix('%') {
+        Some(pct) => pct.trim().parse::<f64>().map_err(|_| wrong())? / 100.0,
+        None => text.parse::<f64>().map_err(|_| wrong())?,
+    };
+    if mass.is_finite() && mass > 0.0 && mass < 1.0 { Ok(mass) } else { Err(wrong()) }
+}
+
+/// Take the `intervals P%` option out of a header's option text: its mass
+/// (if written) and the text without it, for the statement's own option
+/// reader. The sampler options after `with` never use the word.
+pub(crate) fn interval_option(rest: &str, line: usize) -> Result<(Option<f64>, String), CellError> {
+    let words: Vec<&str> = rest.split_whitespace().collect();
+    let Some(at) = words.iter().position(|w| *w == grammar::INTERVALS_WORD) else {
+        return Ok((None, rest.to_string()));
+    };
+    let value = words.get(at + 1).map(|v| v.trim_end_matches(',')).ok_or_else(|| {
+        CellError::at(line, "`intervals` is followed by the interval's mass, e.g. `intervals 80%`")
+    })?;
+    let mass = parse_mass(value).map_err(|m| CellError::at(line, m))?;
+    let kept: Vec<&str> = words[..at].iter().chain(&words[at + 2..]).copied().collect();
+    if kept.contains(&grammar::INTERVALS_WORD) {
+        return Err(CellError::at(line, "write `intervals` once"));
+    }
+    Ok((Some(mass), kept.join(" ")))
+}
+
+/// `intervals P%`: the mass of every interval from here on.
+fn interval_setting(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let ([value], _) = header(st, &grammar::INTERVALS)?;
+    let mass = parse_mass(value).map_err(|m| CellError::at(st.header.number, m))?;
+    session.interval_setting = Some(mass);
+    let pct = crate::model::prior::short_number(mass * 100.0);
+    Ok(vec![Display::text(format!(
+        "intervals from here on: the central {pct}% of the draws (a statement's own `intervals P%` option overrides it)"
+    ))])
 }
 
 /// Strip surrounding double quotes from a path argument.

@@ -13,11 +13,12 @@ use std::sync::atomic::Ordering;
 
 use serde_json::{json, Value};
 
-use super::fitting::{parse_method, require_fit, INTERVAL_MASS};
+use super::fitting::{parse_method, require_fit};
 use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
-use super::{header, option_text};
+use super::{header, interval_option, option_text};
 use crate::cells::figures::{self, GraphMarks};
-use crate::cells::format::num;
+use crate::cells::fit_summary::{share_above_zero, ABOVE_ZERO_HEAD, UNIT_HEAD};
+use crate::cells::format::{num, with_unit};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
 use crate::cells::session::{RunControl, Session};
@@ -136,9 +137,29 @@ pub(super) fn bounds(mass: f64) -> (String, String) {
     (format!("{pct}% lower"), format!("{pct}% upper"))
 }
 
-/// A summary row: mean, lower, upper, P(>0), P(<0).
-pub(super) fn summary_cells(s: &ContrastSummary) -> Vec<String> {
-    vec![num(s.mean), num(s.lower), num(s.upper), format!("{:.2}", s.p_positive), format!("{:.2}", s.p_negative)]
+/// Head of the column with the share of draws below zero.
+pub(super) const BELOW_ZERO_HEAD: &str = "draws below 0";
+
+/// The heads of a summary table after its `lead` columns: unit, mean,
+/// the interval's ends, draws above and below 0 (the cells of [`summary_cells`]).
+pub(super) fn summary_grid(lead: &[&str], mass: f64) -> Grid {
+    let (lower, upper) = bounds(mass);
+    let mut heads = lead.to_vec();
+    heads.extend([UNIT_HEAD, "mean", &lower, &upper, ABOVE_ZERO_HEAD, BELOW_ZERO_HEAD]);
+    let n = lead.len();
+    Grid::new(&heads).numeric_columns(&[n + 1, n + 2, n + 3, n + 4, n + 5])
+}
+
+/// A summary row: unit, mean, lower, upper, draws above 0, draws below 0.
+pub(super) fn summary_cells(s: &ContrastSummary, unit: Option<&str>) -> Vec<String> {
+    vec![
+        unit.unwrap_or_default().to_string(),
+        num(s.mean),
+        num(s.lower),
+        num(s.upper),
+        share_above_zero(s.share_above_zero),
+        share_above_zero(s.share_below_zero),
+    ]
 }
 
 fn to_json<T: serde::Serialize>(value: &T) -> Value {
@@ -156,7 +177,9 @@ pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Disp
         }
         _ => return Err(super::form_error(st, CONTRAST.usage)),
     };
-    read_contrast_options(&mut request, rest)
+    let (mass, rest) = interval_option(rest, line)?;
+    request.mass = session.interval_mass(mass);
+    read_contrast_options(&mut request, &rest)
         .map_err(|m| CellError::at(line, format!("{m}; the form is: {}", CONTRAST.usage)))?;
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];
@@ -235,32 +258,39 @@ fn held_value_phrase(c: &Contrast, table: &Table, x: &str) -> String {
 
 /// The display of one contrast; `extra` notes go before the closing causal note.
 fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String]) -> Display {
+    let unit = c.unit.as_deref();
     let heading = format!(
         "contrast {}: {} on the scale of {} = {} ({} {} to {})",
         c.model,
         c.contrast,
         c.scale,
-        num(c.mean),
+        with_unit(c.mean, unit),
         crate::model::prior::short_number(c.mass * 100.0) + "% interval",
         num(c.lower),
-        num(c.upper)
+        with_unit(c.upper, unit)
     );
     let (lower, upper) = bounds(c.mass);
-    let mut grid = Grid::new(&["contrast", "scale", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[2, 3, 4, 5, 6]);
+    let mut grid = summary_grid(&["contrast", "scale"], c.mass);
     let summary = c.summary();
     let mut row = vec![c.contrast.clone(), c.scale.clone()];
-    row.extend(summary_cells(&summary));
+    row.extend(summary_cells(&summary, unit));
     grid.push(row);
     let mut grids = vec![("", &grid)];
     let along_grid;
     let along_caption;
     if let Some(x) = &c.along {
-        let mut g = Grid::new(&[x.as_str(), "mean", &lower, &upper, "P(>0)"]).numeric_columns(&[0, 1, 2, 3, 4]);
+        let x_unit = table.column(x).and_then(|col| col.unit.clone());
+        let x_head = match &x_unit {
+            Some(u) => format!("{x} in {u}"),
+            None => x.clone(),
+        };
+        let mut g = Grid::new(&[x_head.as_str(), "mean", &lower, &upper, ABOVE_ZERO_HEAD]).numeric_columns(&[0, 1, 2, 3, 4]);
         for p in &c.grid {
-            g.push(vec![num(p.x), num(p.mean), num(p.lower), num(p.upper), format!("{:.2}", p.p_positive)]);
+            g.push(vec![num(p.x), num(p.mean), num(p.lower), num(p.upper), share_above_zero(p.share_above_zero)]);
         }
         along_grid = g;
-        along_caption = format!("along the grid (the row above is at {}):", held_value_phrase(c, table, x));
+        let in_unit = unit.map(|u| format!("differences in {u}; ")).unwrap_or_default();
+        along_caption = format!("along the grid ({in_unit}the row above is at {}):", held_value_phrase(c, table, x));
         grids.push((along_caption.as_str(), &along_grid));
     }
     let mut notes = vec![format!("scale: {}", c.scale), c.held_how.clone()];
@@ -315,14 +345,16 @@ pub(crate) fn ask_using(
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([kind, x, y, g, t], options) = header(st, &ASK_USING)?;
-    let (ask, options) = ask_options(options).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", ASK_USING.usage)))?;
+    let (mass, options) = interval_option(options, line)?;
+    let mass = session.interval_mass(mass);
+    let (ask, options) = ask_options(&options).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", ASK_USING.usage)))?;
     let (method, graph, table) = method_graph_table(session, options, g, t, line)?;
     let effect = if kind == "total" { EffectKind::Total } else { EffectKind::Direct };
     let label = format!("ask {kind} effect of {x} on {y}");
     (control.progress)(&format!("{label}: fitting with {}", method.describe()));
     let progress = sampler_progress(control, &label);
     let answer =
-        answer_effect_with_progress(graph, table, x, y, effect, &ask, &method, control.cancel, INTERVAL_MASS, &progress)
+        answer_effect_with_progress(graph, table, x, y, effect, &ask, &method, control.cancel, mass, &progress)
             .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let mut first = super::causal::describe_identification(&answer.identification);
@@ -350,11 +382,10 @@ pub(crate) fn ask_using(
     };
     let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
     let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, stratifying by {set_words}");
-    let (lower, upper) = bounds(INTERVAL_MASS);
-    let mut grid = Grid::new(&["contrast", "scale", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[2, 3, 4, 5, 6]);
+    let mut grid = summary_grid(&["contrast", "scale"], mass);
     for c in &answer.contrasts {
         let mut row = vec![c.contrast.clone(), c.scale.clone()];
-        row.extend(summary_cells(&c.summary()));
+        row.extend(summary_cells(&c.summary(), c.unit.as_deref()));
         grid.push(row);
     }
     let mut model_grid = Grid::new(&["model built"]);
@@ -394,11 +425,16 @@ pub(crate) fn compare_routes(
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([x, y, g, t], options) = header(st, &COMPARE_ROUTES)?;
-    let (method, graph, table) = method_graph_table(session, options, g, t, line)?;
+    let (mass, options) = interval_option(options, line)?;
+    let mass = session.interval_mass(mass);
+    let (settings, options) = route_settings(&options).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", COMPARE_ROUTES.usage)))?;
+    let (method, graph, table) = method_graph_table(session, &options, g, t, line)?;
+    let chosen = check_settings(table, x, settings.as_ref()).map_err(|m| CellError::at(line, m))?;
+    let ask = AskOptions { settings: settings.clone(), ..AskOptions::default() };
     let label = format!("compare routes for {x} on {y}");
     let progress = sampler_progress(control, &label);
     (control.progress)(&format!("{label}: fitting the adjustment model"));
-    let answer = answer_effect_with_progress(graph, table, x, y, EffectKind::Total, &AskOptions::default(), &method, control.cancel, INTERVAL_MASS, &progress)
+    let answer = answer_effect_with_progress(graph, table, x, y, EffectKind::Total, &ask, &method, control.cancel, mass, &progress)
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let Some(adjustment) = answer.contrasts.first() else {
@@ -426,31 +462,34 @@ pub(crate) fn compare_routes(
         watch: vec![y.to_string()],
         rows: None,
         seed: DEFAULT_SEED,
-        mass: INTERVAL_MASS,
+        mass,
     };
     let simulated = intervene(&joint, &joint_fit, table, &request).map_err(|e| query_error(e, line))?;
     let watched = &simulated.watched[0];
-    let routes = crate::query::compare_routes(adjustment, watched, INTERVAL_MASS).map_err(|e| query_error(e, line))?;
+    let routes = crate::query::compare_routes(adjustment, watched, mass).map_err(|e| query_error(e, line))?;
     let set = answer.adjustment_set.clone().unwrap_or_default();
     let set_words = if set.is_empty() { "nothing".to_string() } else { set.join(", ") };
+    let unit = adjustment.unit.as_deref();
     let heading = format!(
-        "total effect of {x} on {y} in {g} ({}), two routes: adjustment {} vs joint model {}",
+        "total effect of {x} on {y} in {g}, {} (setting {} against {}), two routes: adjustment {} vs joint model {}",
         adjustment.contrast,
-        num(routes.adjustment.mean),
-        num(routes.joint.mean)
+        adjustment.to,
+        adjustment.from,
+        with_unit(routes.adjustment.mean, unit),
+        with_unit(routes.joint.mean, unit)
     );
-    let (lower, upper) = bounds(INTERVAL_MASS);
-    let mut grid = Grid::new(&["route", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    let mut grid = summary_grid(&["route"], mass);
     for (name, s) in [
         (format!("adjustment (stratify by {set_words})"), &routes.adjustment),
         ("joint model (simulated intervention)".to_string(), &routes.joint),
         ("difference (adjustment − joint)".to_string(), &routes.difference),
     ] {
         let mut row = vec![name];
-        row.extend(summary_cells(s));
+        row.extend(summary_cells(s, unit));
         grid.push(row);
     }
     let mut notes = routes.notes.clone();
+    notes.extend(chosen);
     notes.push(format!(
         "the joint model fits one regression per observed node of {g} and simulates do({x}) over {} (seed {})",
         simulated.rows_source, simulated.seed
@@ -464,7 +503,7 @@ pub(crate) fn compare_routes(
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
     let named: Vec<(String, &[f64])> =
         vec![("adjustment route".to_string(), adjustment.draws.as_slice()), ("joint route".to_string(), watched.draws.as_slice())];
-    let svg = figures::differences(&format!("total effect of {x} on {y}, two routes"), table, y, &named, DensityArrangement::Shared).ok();
+    let svg = figures::differences(&format!("total effect of {x} on {y}, {}: two routes", adjustment.contrast), table, y, &named, DensityArrangement::Shared).ok();
     let summary = |s: &ContrastSummary| to_json(s);
     let mut adjustment_json = summary(&routes.adjustment);
     adjustment_json["adjustment_set"] = json!(set);
@@ -472,24 +511,68 @@ pub(crate) fn compare_routes(
     let mut joint_json = summary(&routes.joint);
     joint_json["simulated"] = json!(simulated.simulated);
     let json = json!({
-        "question": answer.question, "contrast": adjustment.contrast, "identifiable": true,
+        "question": answer.question, "contrast": adjustment.contrast, "to": adjustment.to, "from": adjustment.from,
+        "unit": adjustment.unit, "interval_mass": mass, "identifiable": true,
         "adjustment": adjustment_json, "joint": joint_json, "difference": summary(&routes.difference),
         "seed": simulated.seed, "notes": notes,
     });
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
 }
 
+/// The `setting b vs a` option of `compare routes` (`(b, a)`), and the
+/// options text without it.
+fn route_settings(text: &str) -> Result<(Option<(String, String)>, String), String> {
+    let words: Vec<&str> = text.split_whitespace().collect();
+    match words.as_slice() {
+        ["setting", b, "vs", a, rest @ ..] => Ok((Some((b.to_string(), a.to_string())), rest.join(" "))),
+        ["setting", ..] => Err("`setting` is followed by the two settings to compare, `setting b vs a`".into()),
+        _ => Ok((None, text.to_string())),
+    }
+}
+
+/// Refuse settings that are not levels (or numbers) of the exposure
+/// before anything is fitted; without settings, a note on the two the
+/// comparison takes (the second level against the first).
+fn check_settings(table: &Table, x: &str, settings: Option<&(String, String)>) -> Result<Option<String>, String> {
+    let Some(column) = table.column(x) else { return Ok(None) };
+    let levels = column.data.levels();
+    if let Some((b, a)) = settings {
+        for v in [b, a] {
+            match levels {
+                Some(levels) if !levels.contains(v) => {
+                    return Err(format!("`{v}` is not a level of {x} (its levels: {})", levels.join(", ")))
+                }
+                None if v.parse::<f64>().is_err() => return Err(format!("{x} is numeric; `{v}` is not a number")),
+                _ => {}
+            }
+        }
+        if b == a {
+            return Err(format!("the two settings of {x} are the same (`{b}`); name two different ones"));
+        }
+        return Ok(None);
+    }
+    Ok(match levels {
+        Some(levels) if levels.len() > 2 => Some(format!(
+            "no settings named: {x} {} vs {}, the second level against the first; name others with `setting b vs a`",
+            levels[1], levels[0]
+        )),
+        _ => None,
+    })
+}
+
 /// `implications of G checked against T [with …]`.
 pub(crate) fn implications_checked(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([g, t], options) = header(st, &IMPLICATIONS_CHECKED)?;
+    let (mass, options) = interval_option(options, line)?;
+    let mass = session.interval_mass(mass);
     let default = Method::Laplace { draws: crate::infer::fit::LAPLACE_DRAWS, seed: crate::infer::fit::LAPLACE_SEED };
-    let method = method_or(options, default, line)?;
+    let method = method_or(&options, default, line)?;
     let graph = session.require_graph(g, line)?;
     let table = session.require_table(t, line)?;
     let label = format!("implications of {g} checked against {t}");
     (control.progress)(&format!("{label}: one regression per implication, {}", method.describe()));
-    let report = check_implications(graph, table, &method, control.cancel, INTERVAL_MASS)
+    let report = check_implications(graph, table, &method, control.cancel, mass)
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let heading = if report.contradicted > 0 {
@@ -511,7 +594,7 @@ pub(crate) fn implications_checked(session: &mut Session, st: &Statement, contro
             format!("⚠ contradicted: {} — {}; the graph may be missing an arrow or a common cause here", c.statement, parts.join("; "))
         })
         .collect();
-    let (lower, upper) = bounds(INTERVAL_MASS);
+    let (lower, upper) = bounds(mass);
     let mut grid = Grid::new(&["implication", "regression", "association", "mean", &lower, &upper, "verdict"])
         .numeric_columns(&[3, 4, 5]);
     for c in report.checks.iter().filter(|c| c.checked) {

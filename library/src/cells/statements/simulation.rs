@@ -11,10 +11,11 @@
 use serde_json::{json, Value};
 
 use super::data::{describe_loaded, is_name};
-use super::fitting::{method_settings, INTERVAL_MASS};
+use super::fitting::{method_settings, parameter_units};
+use super::interval_option;
 use super::grammar::{CALIBRATE, CHECK, FIT, INTERVENE, JOINT, PRIOR_CHECK, RECOVER, SIMULATE};
 use super::questions::{
-    bounds, check_cancel, joint_progress, method_or, query_error, render, sampler_progress, stopped_or, summary_cells,
+    bounds, check_cancel, joint_progress, method_or, query_error, render, sampler_progress, stopped_or, summary_cells, summary_grid,
     CAUSAL_NOTE, DEFAULT_SEED,
 };
 use super::{form_error, header, option_text};
@@ -122,14 +123,17 @@ pub(crate) fn fit_joint(
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([name], options) = header(st, &FIT)?;
-    let method = method_or(options, Method::Nuts(Default::default()), line)?;
+    let (mass, options) = interval_option(options, line)?;
+    let mass = session.interval_mass(mass);
+    let method = method_or(&options, Method::Nuts(Default::default()), line)?;
     let joint = &session.joints[name];
+    let joint_table = session.tables.get(&joint.table);
     let label = format!("fit {name}");
     let progress = joint_progress(control, &label, "");
     let started = std::time::Instant::now();
     let fit = fit_joint_with_progress(joint, &method, control.cancel, &progress).map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
-    let spec = SummarySpec { mass: INTERVAL_MASS, hdi: false };
+    let spec = SummarySpec { mass, hdi: false };
     let mut nodes_json = Vec::new();
     let mut notes = Vec::new();
     let mut figure_names: Vec<(String, usize, usize)> = Vec::new();
@@ -155,18 +159,29 @@ pub(crate) fn fit_joint(
                 }
             }
         }
-        let estimates: Vec<Value> = summaries.iter().map(|s| fit_summary::estimate_json(&s.name, s)).collect();
+        let units = match &node.model {
+            NodeModel::Regression { model, .. } => parameter_units(model, joint_table, &f.draws.names),
+            NodeModel::LevelShares { .. } => vec![None; f.draws.names.len()],
+        };
+        let estimates: Vec<Value> =
+            summaries.iter().zip(&units).map(|(s, u)| fit_summary::estimate_json(&s.name, u.as_deref(), s)).collect();
         let node_health = fit_summary::health(&[(f, f.draws.names.clone())]).map(|h| h.json);
         warnings.extend(f.warnings.iter().map(|w| format!("{label}, node {}: {w}", node.name)));
         nodes_json.push(json!({"node": node.name, "estimates": estimates, "health": node_health, "warnings": f.warnings}));
         fitted.push((f, f.draws.names.iter().map(|p| figure_label(&node.name, p)).collect::<Vec<_>>()));
-        node_summaries.push((node.name.clone(), summaries));
+        node_summaries.push((node.name.clone(), summaries, units));
     }
-    let rows: Vec<(Vec<String>, &crate::draws::Summary)> = node_summaries
+    let rows: Vec<fit_summary::EstimateRow> = node_summaries
         .iter()
-        .flat_map(|(node, summaries)| summaries.iter().map(move |s| (vec![node.clone(), s.name.clone()], s)))
+        .flat_map(|(node, summaries, units)| {
+            summaries.iter().zip(units).map(move |(s, u)| fit_summary::EstimateRow {
+                lead: vec![node.clone(), s.name.clone()],
+                unit: u.clone(),
+                summary: s,
+            })
+        })
         .collect();
-    let grid = fit_summary::estimates_grid(&["node", "parameter"], &rows, INTERVAL_MASS);
+    let grid = fit_summary::estimates_grid(&["node", "parameter"], &rows, mass);
     let health = fit_summary::health(&fitted);
     if drawable > figure_names.len() {
         notes.push(format!(
@@ -175,7 +190,7 @@ pub(crate) fn fit_joint(
         ));
     }
     notes.push(format!("each node's regression gets its own seed stream derived from seed {}", method_seed(&method)));
-    notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(INTERVAL_MASS * 100.0)));
+    notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(mass * 100.0)));
     if let Some(h) = &health {
         notes.push(h.sentence.clone());
     }
@@ -194,7 +209,7 @@ pub(crate) fn fit_joint(
     let svg = crate::plot::posterior_figure(&format!("{name} node parameters"), &Quantity::new("parameter value"), &params, DensityArrangement::Stacked).ok();
     let json = json!({
         "joint": name, "method": method_name(&method), "seed": method_seed(&method),
-        "settings": method_settings(&method), "interval_mass": INTERVAL_MASS, "nodes": nodes_json,
+        "settings": method_settings(&method), "interval_mass": mass, "nodes": nodes_json,
         "health": health.map(|h| h.json), "seconds": seconds,
     });
     session.joint_fits.insert(name.to_string(), fit);
@@ -230,8 +245,9 @@ fn figure_label(node: &str, parameter: &str) -> String {
 /// `intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S]`.
 pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let (name, request) =
-        read_intervention(st.head()).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", INTERVENE.usage)))?;
+    let (name, mut request, mass) =
+        read_intervention(st.head(), line).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", INTERVENE.usage)))?;
+    request.mass = session.interval_mass(mass);
     let joint = session.joints.get(name).ok_or_else(|| {
         CellError::at(line, format!("there is no joint model named {name}{}", suggest(name, session.joints.keys())))
     })?;
@@ -243,12 +259,11 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunCont
     let result = crate::query::intervene_with_cancel(joint, fit, table, &request, control.cancel)
         .map_err(|e| stopped_or(control, &format!("intervene {name}"), line, e))?;
     let heading = format!("intervene {name}: {}, over {}", result.intervention, result.rows_source);
-    let (lower, upper) = bounds(result.mass);
-    let mut grid = Grid::new(&["watched", "mean change", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[1, 2, 3, 4, 5]);
+    let mut grid = summary_grid(&["watched"], result.mass);
     for w in &result.watched {
-        let s = ContrastSummary { mean: w.mean, lower: w.lower, upper: w.upper, p_positive: w.p_positive, p_negative: w.p_negative, mass: result.mass };
+        let s = ContrastSummary { mean: w.mean, lower: w.lower, upper: w.upper, share_above_zero: w.share_above_zero, share_below_zero: w.share_below_zero, mass: result.mass };
         let mut row = vec![w.label()];
-        row.extend(summary_cells(&s));
+        row.extend(summary_cells(&s, w.unit.as_deref()));
         grid.push(row);
     }
     let simulated = if result.simulated.is_empty() { "none".to_string() } else { result.simulated.join(", ") };
@@ -266,8 +281,9 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunCont
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
 }
 
-/// Read `intervene NAME: set X v1 vs v0, watch Y, Z [rows N] [seed S]`.
-fn read_intervention(head: &str) -> Result<(&str, InterventionRequest), String> {
+/// Read `intervene NAME: set X v1 vs v0, watch Y, Z [rows N] [seed S] [intervals P%]`
+/// (the interval's mass is returned apart, `None` when not written).
+fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionRequest, Option<f64>), String> {
     let no_watch = "name the nodes to watch after `, watch`";
     let ([name, variable, to, from], watch) = INTERVENE.read_n(head).map_err(|at| match at.slot {
         0..=2 => format!("cannot read \"{head}\""),
@@ -279,6 +295,7 @@ fn read_intervention(head: &str) -> Result<(&str, InterventionRequest), String> 
             format!("cannot read `set {}`; write `set X v1 vs v0`", set.trim_end().trim_end_matches(',').split_whitespace().collect::<Vec<_>>().join(" "))
         }
     })?;
+    let (mass, watch) = interval_option(watch, line).map_err(|e| e.message)?;
     if watch.is_empty() {
         return Err(no_watch.to_string());
     }
@@ -289,14 +306,14 @@ fn read_intervention(head: &str) -> Result<(&str, InterventionRequest), String> 
         watch: Vec::new(),
         rows: None,
         seed: DEFAULT_SEED,
-        mass: INTERVAL_MASS,
+        mass: crate::draws::summary::DEFAULT_MASS,
     };
     let words: Vec<&str> = watch.split(|c: char| c == ',' || c.is_whitespace()).filter(|w| !w.is_empty()).collect();
     let options = INTERVENE.option_words();
     let mut i = 0;
     while i < words.len() {
         match (words[i], words.get(i + 1)) {
-            (key, Some(value)) if options.contains(&key) => {
+            (key, Some(value)) if options.contains(&key) && key != super::grammar::INTERVALS_WORD => {
                 let n: u64 = value.parse().map_err(|_| format!("{key} takes a whole number, not `{value}`"))?;
                 if key == "rows" {
                     request.rows = Some(n as usize);
@@ -311,7 +328,7 @@ fn read_intervention(head: &str) -> Result<(&str, InterventionRequest), String> 
             }
         }
     }
-    Ok((name, request))
+    Ok((name, request, mass))
 }
 
 /// `simulate NAME from GRAPH rows N seed S:` with one mechanism per node.
@@ -400,6 +417,9 @@ pub(crate) fn recover(
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([m, t], options) = header(st, &RECOVER)?;
+    let (mass, options) = interval_option(options, line)?;
+    let mass = session.interval_mass(mass);
+    let options = options.as_str();
     let mut spec = session.specs.get(m).cloned().ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
     })?;
@@ -412,17 +432,24 @@ pub(crate) fn recover(
     (control.progress)(&format!("{label}: fitting with {}", method.describe()));
     let progress = sampler_progress(control, &label);
     let sim = &record.simulation;
-    let (recovery, model, fit) = recover_fitted(&spec, sim, &method, control.cancel, INTERVAL_MASS, &progress)
+    let (recovery, model, fit) = recover_fitted(&spec, sim, &method, control.cancel, mass, &progress)
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     warnings.extend(fit.warnings.iter().map(|w| format!("{label}: {w}")));
     let table = sim.table_with_cancel(control.cancel).map_err(|e| stopped_or(control, &label, line, e))?;
-    let effects = true_effects(&model, &fit.draws, &table, sim);
-    let (lower, upper) = bounds(INTERVAL_MASS);
-    let mut grid = Grid::new(&["parameter", "true value", "mean", &lower, &upper, "interval holds the truth"]).numeric_columns(&[1, 2, 3, 4]);
-    for p in &recovery.parameters {
+    let effects = true_effects(&model, &fit.draws, &table, sim, mass);
+    // The simulation stands in for the model's own table: its columns carry that table's units.
+    let unit_table = session.models.get(m).and_then(|own| session.tables.get(own.table_name()));
+    let names: Vec<String> = recovery.parameters.iter().map(|p| p.name.clone()).collect();
+    let units = parameter_units(&model, unit_table, &names);
+    let outcome_unit = unit_table.and_then(|t| t.column(model.outcome_name())).and_then(|c| c.unit.clone());
+    let (lower, upper) = bounds(mass);
+    let mut grid = Grid::new(&["parameter", "unit", "true value", "mean", &lower, &upper, "interval holds the truth"])
+        .numeric_columns(&[2, 3, 4, 5]);
+    for (p, unit) in recovery.parameters.iter().zip(&units) {
         grid.push(vec![
             p.name.clone(),
+            unit.clone().unwrap_or_default(),
             p.truth.map_or("—".into(), num),
             num(p.mean),
             num(p.lower),
@@ -430,11 +457,13 @@ pub(crate) fn recover(
             p.covered.map_or("no single truth", |c| if c { "yes" } else { "NO" }).to_string(),
         ]);
     }
-    let mut effect_grid = Grid::new(&["intervention", "true effect", "model's contrast", &lower, &upper, "interval holds the truth"])
-        .numeric_columns(&[1, 2, 3, 4]);
+    let mut effect_grid =
+        Grid::new(&["intervention", "unit", "true effect", "model's contrast", &lower, &upper, "interval holds the truth"])
+            .numeric_columns(&[2, 3, 4, 5]);
     for e in &effects {
         effect_grid.push(vec![
             e.effect.clone(),
+            outcome_unit.clone().unwrap_or_default(),
             num(e.truth),
             num(e.estimate.mean),
             num(e.estimate.lower),
@@ -465,10 +494,15 @@ pub(crate) fn recover(
     let (plain, html) = render(&heading, &[], &grids, &notes);
     let svg = figures::recovery(&recovery).ok();
     let mut json = to_json(&recovery);
+    if let Some(Value::Array(parameters)) = json.get_mut("parameters") {
+        for (p, unit) in parameters.iter_mut().zip(&units) {
+            p["unit"] = json!(unit);
+        }
+    }
     json["effects"] = Value::Array(
         effects
             .iter()
-            .map(|e| json!({"effect": e.effect, "variable": e.variable, "truth": e.truth, "mean": e.estimate.mean,
+            .map(|e| json!({"effect": e.effect, "variable": e.variable, "unit": outcome_unit, "truth": e.truth, "mean": e.estimate.mean,
                 "lower": e.estimate.lower, "upper": e.estimate.upper, "covered": e.covered(),
                 "held_mediators": e.mediators}))
             .collect(),
@@ -526,7 +560,7 @@ impl TrueEffect {
 /// unit above the mean vs the mean, 1 vs 0) beside the model's contrast of
 /// the same change averaged over the rows. Predictors where either is not
 /// defined are left out.
-fn true_effects(model: &Model, draws: &crate::draws::Draws, table: &crate::table::Table, sim: &Simulation) -> Vec<TrueEffect> {
+fn true_effects(model: &Model, draws: &crate::draws::Draws, table: &crate::table::Table, sim: &Simulation, mass: f64) -> Vec<TrueEffect> {
     let outcome = model.outcome_name();
     let mut out = Vec::new();
     for input in model.inputs() {
@@ -551,7 +585,7 @@ fn true_effects(model: &Model, draws: &crate::draws::Draws, table: &crate::table
             }
         };
         let Ok(truth) = sim.true_effect(x, &to, &from, outcome, TRUTH_ROWS, sim.settings.seed) else { continue };
-        let request = ContrastRequest { over_rows: true, mass: INTERVAL_MASS, ..ContrastRequest::new(x) }.between(to, from);
+        let request = ContrastRequest { over_rows: true, mass, ..ContrastRequest::new(x) }.between(to, from);
         let Ok(c) = crate::query::contrast(model, draws, table, &request) else { continue };
         let descendants = sim.graph.descendants(x).unwrap_or_default();
         let mediators = model
@@ -671,18 +705,23 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
         result.replicated.len(),
         result.observed.len()
     );
-    let (lower, upper) = bounds(INTERVAL_MASS);
-    let mut grid = Grid::new(&["statistic", "observed", &lower, &upper, "share of sets ≥ observed"]).numeric_columns(&[1, 2, 3, 4]);
+    let mass = session.interval_mass(None);
+    // a yes/no or out-of-trials outcome is summarised as shares, which have no unit
+    let shares = matches!(model.family(), crate::model::Family::Bernoulli | crate::model::Family::Binomial { .. });
+    let unit = if shares { None } else { table.column(model.outcome_name()).and_then(|c| c.unit.clone()) };
+    let (lower, upper) = bounds(mass);
+    let mut grid =
+        Grid::new(&["statistic", "unit", "observed", &lower, &upper, "share of sets ≥ observed"]).numeric_columns(&[2, 3, 4, 5]);
     let mut stats_json = Vec::new();
     for (stat, f) in [("mean", mean as fn(&[f64]) -> f64), ("sd", sd), ("min", min), ("max", max)] {
         let observed = f(&result.observed);
         let replicated: Vec<f64> = result.replicated.iter().map(|r| f(r)).collect();
-        let s = ContrastSummary::of(&replicated, INTERVAL_MASS).map_err(|e| query_error(e, line))?;
+        let s = ContrastSummary::of(&replicated, mass).map_err(|e| query_error(e, line))?;
         let share = replicated.iter().filter(|v| **v >= observed).count() as f64 / replicated.len().max(1) as f64;
-        grid.push(vec![stat.to_string(), num(observed), num(s.lower), num(s.upper), format!("{share:.2}")]);
-        stats_json.push(json!({"statistic": stat, "observed": observed, "lower": s.lower, "upper": s.upper, "share_at_or_above": share}));
+        grid.push(vec![stat.to_string(), unit.clone().unwrap_or_default(), num(observed), num(s.lower), num(s.upper), format!("{share:.2}")]);
+        stats_json.push(json!({"statistic": stat, "unit": unit, "observed": observed, "lower": s.lower, "upper": s.upper, "share_at_or_above": share}));
     }
-    let mut notes = vec![format!("the interval columns are the central {}% range of each statistic over the simulated sets", short_number(INTERVAL_MASS * 100.0))];
+    let mut notes = vec![format!("the interval columns are the central {}% range of each statistic over the simulated sets", short_number(mass * 100.0))];
     notes.push(if prior {
         "a prior check asks whether the priors allow outcomes of a plausible size before the data are seen".to_string()
     } else {
@@ -690,7 +729,7 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
     });
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
     let svg = figures::predictive(&result, table, model.outcome_name()).ok();
-    let json = json!({"model": m, "kind": kind, "seed": seed, "sets": result.replicated.len(), "rows": result.observed.len(), "statistics": stats_json});
+    let json = json!({"model": m, "kind": kind, "seed": seed, "sets": result.replicated.len(), "rows": result.observed.len(), "interval_mass": mass, "statistics": stats_json});
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
 }
 

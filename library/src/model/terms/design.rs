@@ -31,6 +31,16 @@ pub fn slope_label(column: &str) -> String {
     format!("{column} {SLOPE}")
 }
 
+/// The unit of a slope of `column`: outcome unit per predictor unit.
+pub fn slope_unit(outcome_unit: Option<&str>, predictor_unit: Option<&str>, column: &str) -> Option<String> {
+    match (outcome_unit, predictor_unit) {
+        (Some(o), Some(p)) => Some(format!("{o} per {p}")),
+        (Some(o), None) => Some(format!("{o} per unit of {column}")),
+        (None, Some(p)) => Some(format!("per {p}")),
+        (None, None) => None,
+    }
+}
+
 impl TermRecipe {
     /// Labels of the term's coefficients.
     pub fn labels(&self) -> Vec<String> {
@@ -48,6 +58,23 @@ impl TermRecipe {
             }
             TermRecipe::Powers { column, degree, .. } => (1..=*degree).map(|j| format!("{column} {POWER} {j}")).collect(),
             TermRecipe::Spline { column, basis } => (2..=basis.len()).map(|j| format!("{column} {SPLINE} {j}")).collect(),
+        }
+    }
+
+    /// The unit of each coefficient of the term on an identity link, given
+    /// the outcome's unit and the table (for a slope's predictor unit).
+    /// Intercepts, level offsets, power coefficients (of a standardised,
+    /// unitless column) and spline weights (of unitless basis functions)
+    /// are in the outcome's unit; a slope is outcome unit per predictor
+    /// unit (`kg per cm`, or `kg per unit of age` when age has none, or
+    /// `per cm` when the outcome has none). `None` where no unit is known.
+    pub fn units(&self, outcome_unit: Option<&str>, table: &Table) -> Vec<Option<String>> {
+        let n = self.labels().len();
+        match self {
+            TermRecipe::Slope { column, .. } | TermRecipe::SlopePer { column, .. } => {
+                vec![slope_unit(outcome_unit, table.column(column).and_then(|c| c.unit.as_deref()), column); n]
+            }
+            _ => vec![outcome_unit.map(str::to_string); n],
         }
     }
 
