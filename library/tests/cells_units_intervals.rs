@@ -43,7 +43,9 @@ fn error_of(session: &mut Session, cell: &str) -> String {
 /// in kg (yield = 5 + 2 [semi] + 4 [standard] + 0.3 girth + noise), and a
 /// yes/no `pruned` that depends on girth. Noise from a fixed LCG.
 fn orchard() -> Session {
-    let dir = std::env::temp_dir().join(format!("waypath-units-{}", std::process::id()));
+    static NEXT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+    let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let dir = std::env::temp_dir().join(format!("waypath-units-{}-{n}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let mut state: u64 = 12345;
     let mut uniform = move || {
@@ -185,4 +187,48 @@ fn compare_routes_compares_the_settings_named_and_names_them() {
     let (plain, _) =
         last(&mut session, "compare routes for total effect of rootstock on yield in g using trees with laplace");
     assert!(plain.contains("name others with `setting b vs a`"), "{plain}");
+}
+
+/// The rows of the orchard CSV that a filter keeps, counted from the file.
+fn csv_rows(session: &Session, keep: impl Fn(&str, f64) -> bool) -> usize {
+    let text = std::fs::read_to_string(session.base_dir().join("orchard.csv")).unwrap();
+    text.lines().skip(1).filter(|l| {
+        let f: Vec<&str> = l.split(',').collect();
+        keep(f[0], f[1].parse().unwrap())
+    }).count()
+}
+
+#[test]
+fn parameters_and_contrasts_on_a_thinned_level_are_marked() {
+    let mut session = orchard();
+    last(
+        &mut session,
+        "table few from \"orchard.csv\":
+    rootstock: category(dwarf, semi, standard)
+    girth: real in cm
+    yield: real in kg
+    pruned: binary
+    keep where rootstock != semi or girth < 20.12",
+    );
+    // counted from the file, not from the table the filter made
+    let semi = csv_rows(&session, |stock, girth| stock == "semi" && girth < 20.12);
+    let dwarf = csv_rows(&session, |stock, _| stock == "dwarf");
+    assert!(semi < 5 && dwarf >= 5, "the invented data should leave a few semi rows: {semi}");
+    last(&mut session, "model t:\n    yield from rootstock, girth per rootstock using few");
+    let (plain, json) = last(&mut session, "fit t with laplace");
+    for (parameter, rows) in [("rootstock[semi]", semi), ("girth slope[semi]", semi), ("rootstock[dwarf]", dwarf)] {
+        let e = estimate(&json, parameter);
+        assert_eq!(e["rows_behind"].as_u64(), Some(rows as u64), "{parameter}: {e}");
+        assert_eq!(e["sparse"], rows < 5, "{parameter}: {e}");
+    }
+    let semi_row = plain.lines().find(|l| l.contains("rootstock[semi]")).unwrap();
+    assert!(semi_row.contains('⚠'), "{semi_row}");
+    assert!(!plain.lines().find(|l| l.contains("rootstock[dwarf]")).unwrap().contains('⚠'));
+
+    let (plain, json) = last(&mut session, "contrast t: rootstock semi vs dwarf");
+    assert_eq!(json["sparse"], true);
+    assert!(json["sparse_levels"][0].as_str().unwrap().starts_with("semi of rootstock"), "{json}");
+    assert!(plain.contains("⚠ this contrast rests on levels"), "{plain}");
+    let (_, json) = last(&mut session, "contrast t: rootstock standard vs dwarf");
+    assert_eq!(json["sparse"], false);
 }

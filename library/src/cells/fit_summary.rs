@@ -41,6 +41,10 @@ pub fn estimates_grid(lead: &[&str], rows: &[EstimateRow], mass: f64) -> Grid {
     let mut heads: Vec<&str> = lead.to_vec();
     heads.extend([UNIT_HEAD, estimate.as_str(), "sd", ABOVE_ZERO_HEAD]);
     let first = lead.len() + 1;
+    let marked = rows.iter().any(|r| r.rows_behind.is_some_and(is_sparse));
+    if marked {
+        heads.push(SPARSE_HEAD);
+    }
     let mut grid = Grid::new(&heads).numeric_columns(&[first, first + 1, first + 2]);
     let cells = estimate_cells(&rows.iter().map(|r| r.summary).collect::<Vec<_>>());
     for (r, estimate) in rows.iter().zip(cells) {
@@ -48,19 +52,48 @@ pub fn estimates_grid(lead: &[&str], rows: &[EstimateRow], mass: f64) -> Grid {
         let above =
             if r.lead.last().is_some_and(|l| positive_only(l)) { "—".to_string() } else { share_above_zero(r.summary.prob_positive) };
         row.extend([r.unit.clone().unwrap_or_default(), estimate, num(r.summary.sd), above]);
+        if marked {
+            row.push(r.rows_behind.map(sparse_marker).unwrap_or_default());
+        }
         grid.push(row);
     }
     grid
+}
+
+/// Fewer fitted rows than this behind a parameter (or a level) and its
+/// estimate leans mostly on the prior: the output marks it.
+pub const FEW_ROWS: usize = 5;
+
+/// Head of the column that marks parameters resting on few or no rows
+/// (shown only when one does).
+pub const SPARSE_HEAD: &str = "rows behind";
+
+/// Whether `rows` fitted rows are too few to inform a parameter.
+pub fn is_sparse(rows: usize) -> bool {
+    rows < FEW_ROWS
+}
+
+/// The marker of a parameter informed by `rows` rows: blank when enough,
+/// else `⚠ none: prior only` or `⚠ 3 rows`.
+pub fn sparse_marker(rows: usize) -> String {
+    match rows {
+        0 => "⚠ none: prior only".to_string(),
+        1 => "⚠ 1 row".to_string(),
+        n if is_sparse(n) => format!("⚠ {n} rows"),
+        _ => String::new(),
+    }
 }
 
 /// Head of the unit column of estimate tables.
 pub const UNIT_HEAD: &str = "unit";
 
 /// One row of an estimates table: its lead cells (the parameter label
-/// last), the parameter's unit and its summary.
+/// last), the parameter's unit, the fitted rows behind it (when known) and
+/// its summary.
 pub struct EstimateRow<'s> {
     pub lead: Vec<String>,
     pub unit: Option<String>,
+    pub rows_behind: Option<usize>,
     pub summary: &'s Summary,
 }
 
@@ -108,10 +141,12 @@ pub fn positive_only(label: &str) -> bool {
 }
 
 /// One parameter's estimate in the fit JSON (`share_above_zero` null for a
-/// parameter that cannot be negative; `unit` null where it has none).
-pub fn estimate_json(label: &str, unit: Option<&str>, s: &Summary) -> Value {
+/// parameter that cannot be negative; `unit` null where it has none;
+/// `sparse` true when fewer than [`FEW_ROWS`] fitted rows inform it).
+pub fn estimate_json(label: &str, unit: Option<&str>, rows_behind: Option<usize>, s: &Summary) -> Value {
     json!({
-        "parameter": label, "unit": unit, "mean": s.mean, "sd": s.sd,
+        "parameter": label, "unit": unit, "rows_behind": rows_behind, "sparse": rows_behind.is_some_and(is_sparse),
+        "mean": s.mean, "sd": s.sd,
         "interval": {"lower": s.interval.lower, "upper": s.interval.upper},
         "share_above_zero": (!positive_only(label)).then_some(s.prob_positive),
     })

@@ -6,7 +6,7 @@
 //! made draw by draw with [`Draws::derive`], so their uncertainty carries the
 //! full joint posterior (paired differences, not differences of summaries).
 //!
-//! * [`summary`] — mean, sd, quantile interval, HDI and P(>0) per parameter;
+//! * [`summary`] — mean, sd, quantile interval, HDI and the share of draws above zero per parameter;
 //! * [`export`] — the draws as CSV, one row per draw.
 
 pub mod export;

@@ -121,6 +121,24 @@ impl Model {
         units
     }
 
+    /// How many fitted rows inform each constrained parameter
+    /// ([`Model::parameter_names`] order): the rows where the
+    /// coefficient's design column is not zero (every row for an intercept
+    /// or a plain slope, the rows of its level for a level's intercept,
+    /// offset or slope, the rows inside a spline function's support), and
+    /// every row for the spread. A parameter with no rows rests on its
+    /// prior alone.
+    pub fn rows_behind(&self) -> Vec<usize> {
+        let width = self.design.ncols().max(1);
+        let per_column: Vec<usize> =
+            (0..self.design.ncols()).map(|j| self.design.column(j).iter().filter(|v| **v != 0.0).count()).collect();
+        let mut counts: Vec<usize> = (0..self.labels.len()).map(|k| per_column.get(k % width).copied().unwrap_or(0)).collect();
+        if self.has_spread() {
+            counts.push(self.design.nrows());
+        }
+        counts
+    }
+
     /// Labels of the unconstrained parameters (`log(spread)` for the spread).
     pub fn unconstrained_names(&self) -> Vec<String> {
         let mut names = self.labels.clone();

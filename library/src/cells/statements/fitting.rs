@@ -43,7 +43,7 @@ pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display
 
 /// Levels with fewer rows than this are named in a warning: their
 /// parameters lean mostly on the priors.
-const FEW_ROWS: usize = 5;
+use crate::cells::fit_summary::FEW_ROWS;
 
 /// A warning for every level of a category the model stratifies by that has
 /// no rows or very few (a `keep where` may have emptied it): its parameters
@@ -269,16 +269,36 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table
     let pct = format!("{}%", crate::model::prior::short_number(mass * 100.0));
     let heading = format!("fit {}, {:.2} s: {}", model.name(), fit.seconds, fit.method.describe());
     let units = parameter_units(model, table, &fit.draws.names);
+    let behind = rows_behind(model, &fit.draws.names);
     let rows: Vec<fit_summary::EstimateRow> = summaries
         .iter()
-        .zip(&units)
-        .map(|(s, u)| fit_summary::EstimateRow { lead: vec![s.name.clone()], unit: u.clone(), summary: s })
+        .zip(units.iter().zip(&behind))
+        .map(|(s, (u, b))| fit_summary::EstimateRow { lead: vec![s.name.clone()], unit: u.clone(), rows_behind: *b, summary: s })
         .collect();
     let grid = fit_summary::estimates_grid(&["parameter"], &rows, mass);
-    let estimates: Vec<_> = summaries.iter().zip(&units).map(|(s, u)| fit_summary::estimate_json(&s.name, u.as_deref(), s)).collect();
+    let estimates: Vec<_> = summaries
+        .iter()
+        .zip(units.iter().zip(&behind))
+        .map(|(s, (u, b))| fit_summary::estimate_json(&s.name, u.as_deref(), *b, s))
+        .collect();
     let health = fit_summary::health(&[(fit, fit.draws.names.clone())]);
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
+    let sparse: Vec<&str> = fit
+        .draws
+        .names
+        .iter()
+        .zip(&behind)
+        .filter(|(_, b)| b.is_some_and(fit_summary::is_sparse))
+        .map(|(n, _)| n.as_str())
+        .collect();
+    if !sparse.is_empty() {
+        notes.push(format!(
+            "⚠ {} rest on fewer than {FEW_ROWS} rows of the data (column `{}`): those estimates lean mostly or wholly on the priors",
+            sparse.join(", "),
+            fit_summary::SPARSE_HEAD
+        ));
+    }
     match &health {
         Some(h) => notes.push(h.sentence.clone()),
         None => notes.push(
@@ -308,6 +328,12 @@ pub(crate) fn parameter_units(model: &Model, table: Option<&crate::table::Table>
     let Some(table) = table else { return vec![None; names.len()] };
     let by_label: Vec<(String, Option<String>)> = model.parameter_names().into_iter().zip(model.parameter_units(table)).collect();
     names.iter().map(|n| by_label.iter().find(|(l, _)| l == n).and_then(|(_, u)| u.clone())).collect()
+}
+
+/// The fitted rows behind each parameter named in `names` ([`Model::rows_behind`]).
+pub(crate) fn rows_behind(model: &Model, names: &[String]) -> Vec<Option<usize>> {
+    let by_label: Vec<(String, usize)> = model.parameter_names().into_iter().zip(model.rows_behind()).collect();
+    names.iter().map(|n| by_label.iter().find(|(l, _)| l == n).map(|(_, r)| *r)).collect()
 }
 
 /// A method's settings as the fit JSON carries them, under the option words.

@@ -17,7 +17,7 @@ use super::fitting::{parse_method, require_fit};
 use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
 use super::{header, interval_option, option_text};
 use crate::cells::figures::{self, GraphMarks};
-use crate::cells::fit_summary::{share_above_zero, ABOVE_ZERO_HEAD, UNIT_HEAD};
+use crate::cells::fit_summary::{share_above_zero, ABOVE_ZERO_HEAD, FEW_ROWS, UNIT_HEAD};
 use crate::cells::format::{num, with_unit};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
@@ -256,6 +256,32 @@ fn held_value_phrase(c: &Contrast, table: &Table, x: &str) -> String {
     }
 }
 
+/// The category levels a contrast compares or holds that have fewer than
+/// [`FEW_ROWS`] rows in `table`, in words (`semi of rootstock: 2 rows`).
+fn sparse_levels(c: &Contrast, table: &Table) -> Vec<String> {
+    let mut used: Vec<(&str, &str)> = vec![(c.variable.as_str(), c.to.as_str()), (c.variable.as_str(), c.from.as_str())];
+    used.extend(c.held.iter().map(|h| (h.name.as_str(), h.value.as_str())));
+    let mut out = Vec::new();
+    for (name, level) in used {
+        let Some(crate::table::ColumnData::Category { codes, levels }) = table.column(name).map(|col| &col.data) else { continue };
+        let Some(k) = levels.iter().position(|l| l == level) else { continue };
+        let n = codes.iter().filter(|&&code| code as usize == k).count();
+        let words = format!("{level} of {name}: {}", if n == 0 { "no rows".to_string() } else if n == 1 { "1 row".to_string() } else { format!("{n} rows") });
+        if n < FEW_ROWS && !out.contains(&words) {
+            out.push(words);
+        }
+    }
+    out
+}
+
+/// The warning line of a contrast on sparse levels.
+fn sparse_alert(sparse: &[String]) -> String {
+    format!(
+        "⚠ this contrast rests on levels with fewer than {FEW_ROWS} rows ({}): it leans mostly or wholly on the priors, not on data",
+        sparse.join("; ")
+    )
+}
+
 /// The display of one contrast; `extra` notes go before the closing causal note.
 fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String]) -> Display {
     let unit = c.unit.as_deref();
@@ -301,9 +327,14 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
     }
     notes.extend(extra.iter().cloned());
     notes.push(CAUSAL_NOTE.to_string());
-    let (plain, html) = render(&heading, &[], &grids, &notes);
+    let sparse = sparse_levels(c, table);
+    let lead: Vec<String> = if sparse.is_empty() { Vec::new() } else { vec![sparse_alert(&sparse)] };
+    let (plain, html) = render(&heading, &lead, &grids, &notes);
     let svg = figures::contrast(c, table, outcome).ok();
-    Display { plain, html: Some(html), svg, json: Some(to_json(c)) }
+    let mut json = to_json(c);
+    json["sparse"] = json!(!sparse.is_empty());
+    json["sparse_levels"] = json!(sparse);
+    Display { plain, html: Some(html), svg, json: Some(json) }
 }
 
 /// The options of `ask … using T` before `with …`: `checking zero` and
@@ -383,11 +414,14 @@ pub(crate) fn ask_using(
     let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
     let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, stratifying by {set_words}");
     let mut grid = summary_grid(&["contrast", "scale"], mass);
+    let mut sparse = Vec::new();
     for c in &answer.contrasts {
         let mut row = vec![c.contrast.clone(), c.scale.clone()];
         row.extend(summary_cells(&c.summary(), c.unit.as_deref()));
         grid.push(row);
+        sparse.extend(sparse_levels(c, table).into_iter().filter(|s| !sparse.contains(s)).collect::<Vec<_>>());
     }
+    json["sparse_levels"] = json!(sparse);
     let mut model_grid = Grid::new(&["model built"]);
     model_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
     let mut notes: Vec<String> = answer.estimand.iter().map(|e| format!("estimand: {e}")).collect();
@@ -401,7 +435,8 @@ pub(crate) fn ask_using(
     let name = model.name().to_string();
     notes.push(format!("the model is kept as {name}: `show {name}`, `contrast {name}: …` and `check {name}` work on it"));
     notes.push(CAUSAL_NOTE.to_string());
-    let (plain, html) = render(&heading, &[], &[("", &model_grid), ("contrasts:", &grid)], &notes);
+    let lead: Vec<String> = if sparse.is_empty() { Vec::new() } else { vec![sparse_alert(&sparse)] };
+    let (plain, html) = render(&heading, &lead, &[("", &model_grid), ("contrasts:", &grid)], &notes);
     let named: Vec<(String, &[f64])> = answer.contrasts.iter().map(|c| (c.contrast.clone(), c.draws.as_slice())).collect();
     let svg = figures::differences(&format!("{kind} effect of {x} on {y}"), table, y, &named, DensityArrangement::Stacked).ok();
     json["model_name"] = json!(name);

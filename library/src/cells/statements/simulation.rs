@@ -11,7 +11,7 @@
 use serde_json::{json, Value};
 
 use super::data::{describe_loaded, is_name};
-use super::fitting::{method_settings, parameter_units};
+use super::fitting::{method_settings, parameter_units, rows_behind};
 use super::interval_option;
 use super::grammar::{CALIBRATE, CHECK, FIT, INTERVENE, JOINT, PRIOR_CHECK, RECOVER, SIMULATE};
 use super::questions::{
@@ -159,24 +159,30 @@ pub(crate) fn fit_joint(
                 }
             }
         }
-        let units = match &node.model {
-            NodeModel::Regression { model, .. } => parameter_units(model, joint_table, &f.draws.names),
-            NodeModel::LevelShares { .. } => vec![None; f.draws.names.len()],
+        let (units, behind) = match &node.model {
+            NodeModel::Regression { model, .. } => {
+                (parameter_units(model, joint_table, &f.draws.names), rows_behind(model, &f.draws.names))
+            }
+            NodeModel::LevelShares { .. } => (vec![None; f.draws.names.len()], vec![None; f.draws.names.len()]),
         };
-        let estimates: Vec<Value> =
-            summaries.iter().zip(&units).map(|(s, u)| fit_summary::estimate_json(&s.name, u.as_deref(), s)).collect();
+        let estimates: Vec<Value> = summaries
+            .iter()
+            .zip(units.iter().zip(&behind))
+            .map(|(s, (u, b))| fit_summary::estimate_json(&s.name, u.as_deref(), *b, s))
+            .collect();
         let node_health = fit_summary::health(&[(f, f.draws.names.clone())]).map(|h| h.json);
         warnings.extend(f.warnings.iter().map(|w| format!("{label}, node {}: {w}", node.name)));
         nodes_json.push(json!({"node": node.name, "estimates": estimates, "health": node_health, "warnings": f.warnings}));
         fitted.push((f, f.draws.names.iter().map(|p| figure_label(&node.name, p)).collect::<Vec<_>>()));
-        node_summaries.push((node.name.clone(), summaries, units));
+        node_summaries.push((node.name.clone(), summaries, units, behind));
     }
     let rows: Vec<fit_summary::EstimateRow> = node_summaries
         .iter()
-        .flat_map(|(node, summaries, units)| {
-            summaries.iter().zip(units).map(move |(s, u)| fit_summary::EstimateRow {
+        .flat_map(|(node, summaries, units, behind)| {
+            summaries.iter().zip(units.iter().zip(behind)).map(move |(s, (u, b))| fit_summary::EstimateRow {
                 lead: vec![node.clone(), s.name.clone()],
                 unit: u.clone(),
+                rows_behind: *b,
                 summary: s,
             })
         })
