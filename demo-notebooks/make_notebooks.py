@@ -105,9 +105,10 @@ each rootstock. Priors we do not declare are Waypath's defaults: the predictors
 share one budget on the outcome's scale, and intercepts are priced at the
 average row. The fit lists every prior and who set it.
 
-Each fit reads in two parts. First the estimates: every parameter's posterior
-mean with its 90% interval in one cell, the sd of its draws, and the share of
-draws above zero. Then, apart, one sentence on the sampler's health: the
+Each fit reads in two parts. First the estimates: every parameter's unit (the
+table declares yield in kg and girth in cm, so an intercept is in kg and a
+girth slope in kg per cm), its posterior mean with its 90% interval in one
+cell, the sd of its draws, and the share of draws above zero. Then, apart, one sentence on the sampler's health: the
 parameter with the largest R-hat and those with the fewest effective draws in
 the bulk and in the tails, divergent trajectories, and how deep the
 trajectories went. Warnings follow only when a check fails.
@@ -140,11 +141,15 @@ fewer).
 The question is a difference between rootstocks. Waypath computes it draw by
 draw (standard minus dwarf within each posterior draw) and summarises last.
 On the mean, it is the effect on the expected yield; on predicted outcomes it
-also carries tree-to-tree variation — what one new tree might do.
+also carries tree-to-tree variation — what one new tree might do. Intervals
+hold 90% of the draws unless a statement asks for another mass
+(`intervals 50%` here; the statement `intervals 80%` would set it for every
+later cell).
 """),
     code("""
 contrast m_total: rootstock standard vs dwarf
 contrast m_total: rootstock standard vs dwarf on outcomes
+contrast m_total: rootstock standard vs dwarf intervals 50%
 """),
     md("""
 The direct effect depends on girth, because each rootstock has its own
@@ -335,7 +340,7 @@ intervene whole: set rootstock standard vs dwarf, watch girth, yield
 ## Both routes side by side
 """),
     code("""
-compare routes for total effect of rootstock on yield in orchard using trees with laplace
+compare routes for total effect of rootstock on yield in orchard using trees setting standard vs dwarf with laplace
 """),
     md("""
 ## What if soil depth matters and was never measured?

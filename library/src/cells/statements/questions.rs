@@ -506,10 +506,8 @@ pub(crate) fn compare_routes(
     let set_words = if set.is_empty() { "nothing".to_string() } else { set.join(", ") };
     let unit = adjustment.unit.as_deref();
     let heading = format!(
-        "total effect of {x} on {y} in {g}, {} (setting {} against {}), two routes: adjustment {} vs joint model {}",
+        "total effect of {x} on {y} in {g}, {}: two routes, adjustment {} vs joint model {}",
         adjustment.contrast,
-        adjustment.to,
-        adjustment.from,
         with_unit(routes.adjustment.mean, unit),
         with_unit(routes.joint.mean, unit)
     );
