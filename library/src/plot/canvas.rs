@@ -52,6 +52,27 @@ pub fn text_width(s: &str, size: f64) -> f64 {
     em * size
 }
 
+/// `s` shortened with a closing `…` so that its estimated width at `size`
+/// stays within `max` pixels (unchanged when it fits). Figures write the
+/// full text in their `<desc>` or beside the figure.
+pub fn clip_to_width(s: &str, size: f64, max: f64) -> String {
+    if text_width(s, size) <= max {
+        return s.to_string();
+    }
+    let budget = max - text_width("…", size);
+    let mut out = String::new();
+    let mut used = 0.0;
+    for c in s.chars() {
+        let w = text_width(&c.to_string(), size);
+        if used + w > budget {
+            break;
+        }
+        used += w;
+        out.push(c);
+    }
+    format!("{}…", out.trim_end())
+}
+
 /// Builder methods on a bare SVG element.
 pub trait Attr: Sized {
     /// Set an attribute and return the element.
@@ -192,6 +213,20 @@ pub fn ticks(lo: f64, hi: f64, target: usize) -> (Vec<f64>, f64) {
     (values, step)
 }
 
+/// Ticks for an axis `width` pixels long: about `target`, but at least
+/// three where their labels fit side by side (a lone tick gives no scale).
+pub fn axis_ticks(x: (f64, f64), target: usize, width: f64) -> (Vec<f64>, f64) {
+    let first = ticks(x.0, x.1, target);
+    let fits = |(values, step): &(Vec<f64>, f64)| {
+        let widest = values.iter().map(|v| text_width(&tick_label(*v, *step), SMALL)).fold(0.0, f64::max);
+        (widest + 8.0) * values.len() as f64 <= width
+    };
+    if first.0.len() >= 3 {
+        return first;
+    }
+    (target + 1..target + 12).map(|t| ticks(x.0, x.1, t)).find(|c| c.0.len() >= 3 && fits(c)).unwrap_or(first)
+}
+
 /// A tick value written with as many decimals as its step needs.
 pub fn tick_label(v: f64, step: f64) -> String {
     let decimals = (-step.log10().floor()).clamp(0.0, 6.0) as usize;
@@ -259,7 +294,9 @@ impl Sheet {
         root.append(title);
         root.append(description);
         root.append(rect(0.0, 0.0, width, height, "#FFFFFF"));
-        root.append(text(12.0, 21.0, &heading, LARGE, Anchor::Start).with("font-weight", "bold"));
+        // bold text runs wider than the estimate's regular face: keep a tenth in hand
+        let shown = clip_to_width(&heading, LARGE * 1.1, width - 24.0);
+        root.append(text(12.0, 21.0, &shown, LARGE, Anchor::Start).with("font-weight", "bold"));
         Sheet { root }
     }
 
@@ -320,7 +357,7 @@ impl Frame {
     pub fn x_axis(&self, sheet: &mut Sheet, title: Option<&str>) {
         let base = self.bottom();
         let target = ((self.width / 80.0).round() as usize).clamp(2, 8);
-        let (values, step) = ticks(self.x.0, self.x.1, target);
+        let (values, step) = axis_ticks(self.x, target, self.width);
         let mut marks = String::new();
         for v in &values {
             let x = self.px(*v);
@@ -337,7 +374,7 @@ impl Frame {
         sheet.push(stroke_path(marks, INK, 0.8));
         if let Some(t) = title {
             let cx = self.left + self.width / 2.0;
-            sheet.push(text(cx, base + 36.0, t, MEDIUM, Anchor::Middle));
+            sheet.push(text(cx, base + 36.0, &clip_to_width(t, MEDIUM, self.width), MEDIUM, Anchor::Middle));
         }
     }
 
@@ -367,7 +404,7 @@ impl Frame {
             let x = self.left - widest - 16.0;
             let y = self.top + self.height / 2.0;
             sheet.push(
-                text(x, y, t, MEDIUM, Anchor::Middle)
+                text(x, y, &clip_to_width(t, MEDIUM, self.height), MEDIUM, Anchor::Middle)
                     .with("transform", format!("rotate(-90 {} {})", num(x), num(y))),
             );
         }

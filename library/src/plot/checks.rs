@@ -11,7 +11,7 @@
 //! evenly.
 
 use super::canvas::{
-    circle, extent, fill_path, legend, legend_height, legend_rows, line, num, padded,
+    circle, clip_to_width, extent, fill_path, legend, legend_height, legend_rows, line, num, padded,
     polygon_d, polyline_d, rect, stroke_path, text, text_width, Anchor, Attr, Frame, Key, Sheet,
     HEADING, MEDIUM, SMALL, WIDTH,
 };
@@ -373,6 +373,9 @@ pub fn mixing_figure(
     Ok(sheet.finish())
 }
 
+/// The note over each trace panel that says what its x-axis counts.
+const DRAW_NOTE: &str = "draw (per chain) →";
+
 /// Length of the line-style sample drawn left of each chain's tile row.
 const KEY_SAMPLE: f64 = 30.0;
 
@@ -387,7 +390,10 @@ fn mixing_block(
     let per_chain = p.draws.len() / chains;
     let values = extent(p.draws).unwrap_or((0.0, 1.0));
     let width = WIDTH - left - 20.0;
-    sheet.push(text(left, top + 14.0, p.name, MEDIUM, Anchor::Start).with("font-weight", "bold"));
+    // the name (bold, so estimated a tenth wider) stops short of the note on the right
+    let room = width - text_width(DRAW_NOTE, SMALL) - 16.0;
+    let name = clip_to_width(p.name, MEDIUM * 1.1, room);
+    sheet.push(text(left, top + 14.0, &name, MEDIUM, Anchor::Start).with("font-weight", "bold"));
     let trace = Frame {
         left,
         top: top + NAME_ROW,
@@ -410,7 +416,7 @@ fn mixing_block(
     }
     trace.x_axis(sheet, None);
     trace.y_axis(sheet, None);
-    sheet.push(text(trace.right(), top + 14.0, "draw (per chain) →", SMALL, Anchor::End));
+    sheet.push(text(trace.right(), top + 14.0, DRAW_NOTE, SMALL, Anchor::End));
 
     let strip_top = trace.bottom() + 24.0;
     let tile = width / bins as f64;
@@ -529,7 +535,7 @@ pub fn implications_figure(
         sheet.push(text(
             left - 12.0,
             mid + 4.5,
-            &r.statement,
+            &clip_to_width(&r.statement, MEDIUM, left - 20.0),
             MEDIUM,
             Anchor::End,
         ));

@@ -5,7 +5,7 @@
 use statrs::distribution::{Binomial, DiscreteCDF};
 
 use super::canvas::{
-    circle, diamond, extent, fill_path, left_margin, legend, legend_height, line, padded,
+    circle, clip_to_width, diamond, extent, fill_path, left_margin, legend, legend_height, legend_rows, line, padded,
     polygon_d, polyline_d, rect, stroke_path, text, text_width, Anchor, Attr, Frame, Key, Sheet,
     HEADING, MEDIUM, WIDTH,
 };
@@ -27,10 +27,15 @@ pub struct RecoveryRow {
     pub upper: f64,
 }
 
-const ROW: f64 = 28.0;
+/// Height of one parameter's row: its interval, mean and truth, then its
+/// own axis with tick labels below.
+const ROW: f64 = 50.0;
 
 /// Posterior intervals per parameter with the true values beside them as
-/// diamonds; rows whose interval misses the truth get a tinted band.
+/// diamonds; rows whose interval misses the truth get a tinted band. Each
+/// parameter gets its own axis, scaled to its interval and truth, so that an
+/// intercept near 30 does not squeeze a slope's interval of width 0.05 into
+/// a dot.
 pub fn recovery_figure(
     subject: &str,
     value: &Quantity,
@@ -47,12 +52,7 @@ pub fn recovery_figure(
         .iter()
         .map(|r| text_width(&r.name, MEDIUM))
         .fold(0.0, f64::max);
-    let left = (label_width + 28.0).min(WIDTH * 0.5);
-    let xs = extent(
-        rows.iter()
-            .flat_map(|r| [&r.lower, &r.upper, &r.truth, &r.estimate]),
-    )
-    .unwrap_or((0.0, 1.0));
+    let left = (label_width + 28.0).min(WIDTH * 0.4);
     let entries = vec![
         (
             Key::Stroke(BLUE, 2.4, false),
@@ -65,50 +65,45 @@ pub fn recovery_figure(
             "interval misses it".to_string(),
         ),
     ];
-    let top = HEADING + 8.0 + legend_height(1) + 10.0;
-    let frame = Frame {
-        left,
-        top,
-        width: WIDTH - left - 20.0,
-        height: ROW * rows.len() as f64,
-        x: padded(xs.0, xs.1, 0.06),
-        y: (0.0, rows.len() as f64),
-    };
+    let width = WIDTH - left - 28.0;
+    let top = HEADING + 8.0 + legend_height(legend_rows(&entries, width)) + 10.0;
     let missed = rows
         .iter()
         .filter(|r| r.truth < r.lower || r.truth > r.upper)
         .count();
     let desc = format!(
-        "Recovery check {subject}: posterior {interval} of {} parameters beside the true values; {missed} intervals miss the true value.",
-        rows.len()
+        "Recovery check {subject}: posterior {interval} of {} parameters ({}) beside the true values, each on its own scale; {missed} intervals miss the true value.",
+        rows.len(),
+        rows.iter().map(|r| r.name.as_str()).collect::<Vec<_>>().join(", ")
     );
-    let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, "recovery", subject, &desc);
-    legend(&mut sheet, left, HEADING + 8.0, frame.width, &entries);
+    let bottom = top + ROW * rows.len() as f64;
+    let mut sheet = Sheet::new(WIDTH, bottom + 34.0, "recovery", subject, &desc);
+    legend(&mut sheet, left, HEADING + 8.0, width, &entries);
     for (i, r) in rows.iter().enumerate() {
-        let mid = frame.top + ROW * (i as f64 + 0.5);
+        let row_top = top + ROW * i as f64;
+        let mid = row_top + 14.0;
+        let xs = extent([&r.lower, &r.upper, &r.truth, &r.estimate]).unwrap_or((0.0, 1.0));
+        let frame = Frame {
+            left,
+            top: row_top,
+            width,
+            height: 28.0,
+            x: padded(xs.0, xs.1, 0.08),
+            y: (0.0, 1.0),
+        };
         if r.truth < r.lower || r.truth > r.upper {
-            let band = rect(
-                8.0,
-                mid - ROW / 2.0 + 1.0,
-                frame.right() - 8.0,
-                ROW - 2.0,
-                VERMILLION,
-            );
+            let band = rect(8.0, row_top + 1.0, frame.right() - 8.0, ROW - 2.0, VERMILLION);
             sheet.push(band.with("fill-opacity", "0.1"));
         }
-        sheet.push(text(left - 12.0, mid + 4.5, &r.name, MEDIUM, Anchor::End));
-        sheet.push(line(
-            frame.px(r.lower),
-            mid - 3.0,
-            frame.px(r.upper),
-            mid - 3.0,
-            BLUE,
-            2.4,
-        ));
+        let label = clip_to_width(&r.name, MEDIUM, left - 20.0);
+        sheet.push(text(left - 12.0, mid + 4.5, &label, MEDIUM, Anchor::End));
+        sheet.push(line(frame.px(r.lower), mid - 3.0, frame.px(r.upper), mid - 3.0, BLUE, 2.4));
         sheet.push(circle(frame.px(r.estimate), mid - 3.0, 4.0, BLUE));
         sheet.push(diamond(frame.px(r.truth), mid + 5.0, 5.5, VERMILLION));
+        frame.x_axis(&mut sheet, None);
     }
-    frame.x_axis(&mut sheet, Some(&value.label()));
+    let caption = clip_to_width(&format!("{}, each parameter on its own scale", value.label()), MEDIUM, WIDTH - 24.0);
+    sheet.push(text(WIDTH / 2.0, bottom + 22.0, &caption, MEDIUM, Anchor::Middle));
     Ok(sheet.finish())
 }
 

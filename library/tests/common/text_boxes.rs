@@ -55,3 +55,20 @@ pub fn texts_outside_canvas(svg: &str, opt: &usvg::Options) -> Vec<String> {
         .map(|(t, r)| format!("{t:?} at {r:?} on a {}×{} canvas", size.width(), size.height()))
         .collect()
 }
+
+/// The pairs of texts whose boxes overlap (by more than `slack` pixels in
+/// both directions, which lets glyph boxes that merely touch pass).
+pub fn overlapping_texts(svg: &str, opt: &usvg::Options, slack: f32) -> Vec<String> {
+    let (_, boxes) = text_boxes(svg, opt);
+    let mut out = Vec::new();
+    for (i, (a, ra)) in boxes.iter().enumerate() {
+        for (b, rb) in &boxes[i + 1..] {
+            let dx = ra.right().min(rb.right()) - ra.left().max(rb.left());
+            let dy = ra.bottom().min(rb.bottom()) - ra.top().max(rb.top());
+            if dx > slack && dy > slack {
+                out.push(format!("{a:?} at {ra:?} overlaps {b:?} at {rb:?}"));
+            }
+        }
+    }
+    out
+}
