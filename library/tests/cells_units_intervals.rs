@@ -232,3 +232,21 @@ fn parameters_and_contrasts_on_a_thinned_level_are_marked() {
     let (_, json) = last(&mut session, "contrast t: rootstock standard vs dwarf");
     assert_eq!(json["sparse"], false);
 }
+
+/// Issue 15, section 4: a figure that leaves the spread out says so in its
+/// heading, and one that names it draws it.
+#[test]
+fn figures_say_when_they_leave_the_spread_out() {
+    let mut session = orchard();
+    let out = run(&mut session, "fit m with laplace");
+    let svg = out.displays.last().and_then(|d| d.svg.clone()).expect("a figure");
+    let title = svg.split("<title>").nth(1).and_then(|t| t.split("</title>").next()).unwrap();
+    assert!(title.contains("not drawn: spread"), "{title}");
+    let out = run(&mut session, "plot m estimates of spread, girth slope");
+    assert!(out.error.is_none());
+    let d = out.displays.last().unwrap();
+    assert!(!d.plain.contains("not drawn"), "{}", d.plain);
+    let title = d.svg.as_deref().unwrap().split("<title>").nth(1).unwrap().split("</title>").next().unwrap().to_string();
+    assert!(!title.contains("not drawn"), "{title}");
+    assert!(d.svg.as_deref().unwrap().contains("spread"));
+}

@@ -70,9 +70,26 @@ pub fn graph(graph: &Graph, title: &str, marks: &GraphMarks) -> Result<String, P
 }
 
 /// Posterior densities of the coefficients (the spread is left out: it is
-/// on another scale and rarely the question).
+/// on another scale and rarely the question; the figure's heading says so).
 pub fn posterior(model: &Model, fit: &Fit) -> Result<String, PlotError> {
     posterior_of(model, fit, &[])
+}
+
+/// The parameters a figure without an `of` list leaves out, in words, with
+/// how to draw them (`None` when a list was given or nothing is left out).
+pub fn left_out(model: &Model, chosen: &[String]) -> Option<String> {
+    if !chosen.is_empty() {
+        return None;
+    }
+    let coefficients = model.coefficient_names();
+    let mut out = Vec::new();
+    if coefficients.len() > FIGURE_COEFFICIENTS {
+        out.push(format!("{} coefficients after the first {FIGURE_COEFFICIENTS}", coefficients.len() - FIGURE_COEFFICIENTS));
+    }
+    if model.has_spread() {
+        out.push("spread (on its own scale)".to_string());
+    }
+    (!out.is_empty()).then(|| format!("not drawn: {}; name them with `of`", out.join(", ")))
 }
 
 /// Posterior densities of the chosen parameters (all coefficients if none chosen).
@@ -82,7 +99,10 @@ pub fn posterior_of(model: &Model, fit: &Fit, chosen: &[String]) -> Result<Strin
         .iter()
         .filter_map(|n| fit.draws.get(n).map(|d| ParameterDraws { name: n.as_str(), draws: d }))
         .collect();
-    let subject = format!("{} parameters", model.name());
+    let subject = match left_out(model, chosen) {
+        Some(note) => format!("{} parameters ({note})", model.name()),
+        None => format!("{} parameters", model.name()),
+    };
     posterior_figure(&subject, &Quantity::new("parameter value"), &params, DensityArrangement::Stacked)
 }
 
@@ -93,12 +113,19 @@ pub fn mixing(model: &Model, fit: &Fit, chosen: &[String]) -> Result<String, Plo
         .iter()
         .filter_map(|n| fit.draws.get(n).map(|d| ParameterDraws { name: n.as_str(), draws: d }))
         .collect();
-    mixing_figure(model.name(), fit.draws.chains, &params)
+    let subject = match left_out(model, chosen) {
+        Some(note) => format!("{} ({note})", model.name()),
+        None => model.name().to_string(),
+    };
+    mixing_figure(&subject, fit.draws.chains, &params)
 }
+
+/// The coefficients a figure draws when no `of` list names them.
+const FIGURE_COEFFICIENTS: usize = 8;
 
 fn chosen_or_coefficients(model: &Model, chosen: &[String]) -> Vec<String> {
     if chosen.is_empty() {
-        model.coefficient_names().iter().take(8).cloned().collect()
+        model.coefficient_names().iter().take(FIGURE_COEFFICIENTS).cloned().collect()
     } else {
         chosen.to_vec()
     }

@@ -483,6 +483,9 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         figures::mixing(model, fit, &chosen)
     }
     .map_err(|e| CellError::at(st.header.number, e.to_string()))?;
-    let text = format!("{kind} figure of {name}");
+    let text = match figures::left_out(model, &chosen) {
+        Some(note) => format!("{kind} figure of {name} ({note})"),
+        None => format!("{kind} figure of {name}"),
+    };
     Ok(vec![Display { plain: text, html: None, svg: Some(svg), json: None }])
 }
