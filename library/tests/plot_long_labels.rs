@@ -125,3 +125,21 @@ fn long_non_ascii_labels_stay_on_the_canvas_and_apart() {
     }
     assert!(problems.is_empty(), "{problems:#?}");
 }
+
+/// Issue 15, section 4: with long row labels the implications figure's
+/// panel is narrow, and a narrow range of associations once left a single
+/// tick on its x-axis, which gives no scale. Counted from the laid-out texts
+/// that read as numbers.
+#[test]
+fn a_narrow_implications_panel_still_gets_a_scale() {
+    let opt = common::text_boxes::dejavu();
+    let rows = vec![
+        ImplicationRow { statement: format!("{A} ⊥ {B} | {C}"), estimate: 0.004, lower: -0.011, upper: 0.019 },
+        ImplicationRow { statement: format!("{C} ⊥ {B}"), estimate: 0.006, lower: -0.003, upper: 0.016 },
+    ];
+    let svg = implications_figure(C, &Quantity::new("partielle Korrelation"), "90% interval", &rows).unwrap();
+    let (_, boxes) = common::text_boxes::text_boxes(&svg, &opt);
+    let ticks: Vec<f64> = boxes.iter().filter_map(|(t, _)| t.replace('\u{2212}', "-").parse::<f64>().ok()).collect();
+    assert!(ticks.len() >= 3, "x ticks: {ticks:?}");
+    assert!(ticks.windows(2).all(|w| w[1] > w[0]), "ticks increase: {ticks:?}");
+}
