@@ -362,8 +362,8 @@ mod tests {
             ("ask ", &["direct", "total"]),
             ("ask total effect ", &["of"]),
             ("ask total effect of x on y in g ", &["using"]),
-            // README: `ask … using T [checking zero] [at M v, …] [with …]`.
-            ("ask total effect of x on y in g using t ", &["at", "checking", "with"]),
+            // README: `ask … using T [checking zero] [at M v, …] [intervals P%] [with …]`.
+            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "with"]),
             ("implications of g ", &["checked"]),
             ("implications of g checked ", &["against"]),
             ("joint j ", &["="]),
@@ -380,7 +380,7 @@ mod tests {
             ("check m ", &["seed", "sets"]),
             ("intervene j: set x 1 ", &["vs"]),
             ("intervene j: set x 1 vs 0 ", &["watch"]),
-            ("fit m ", &["with"]),
+            ("fit m ", &["intervals", "with"]),
             ("fit m with ", &["laplace", "nuts"]),
             // README: NUTS options `chains`, `settle`, `draws`, `acceptance`, `doublings`, `seed`.
             ("fit m with nuts ", &["acceptance", "chains", "doublings", "draws", "seed", "settle"]),
@@ -389,7 +389,8 @@ mod tests {
             ("contrast m: x 1 vs 0 on ", &["means", "outcomes"]),
             ("contrast m: x along z ", &["from"]),
             ("contrast m: x over ", &["rows"]),
-            ("contrast m: x 1 ", &["along", "at", "by", "on", "over", "seed", "vs"]),
+            ("contrast m: x 1 ", &["along", "at", "by", "intervals", "on", "over", "seed", "vs"]),
+            ("compare routes for total effect of x on y in g using t ", &["intervals", "setting", "with"]),
         ];
         for (typed, want) in cases {
             assert_eq!(offered(&session, typed), *want, "after {typed:?}");
