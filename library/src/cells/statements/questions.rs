@@ -327,7 +327,7 @@ pub(crate) fn ask_using(
     check_cancel(control, &label, line)?;
     let mut first = super::causal::describe_identification(&answer.identification);
     let adjusted = answer.adjustment_set.clone().unwrap_or_default();
-    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new() };
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new(), ..Default::default() };
     first.svg = figures::graph(graph, &format!("{kind} effect of {x} on {y} in {g}"), &marks).ok();
     warnings.extend(answer.warnings.iter().map(|w| format!("{label}: {w}")));
 
