@@ -55,7 +55,10 @@ pub struct Hedge {
 #[serde(tag = "verdict", rename_all = "snake_case")]
 pub enum Complete {
     /// The effect equals this function of the observed distribution.
-    Identified { formula: Formula },
+    /// `also_set` lists nodes the algorithm set as well because they
+    /// cannot reach an outcome once the exposures are set (line 3): the
+    /// formula takes a value for each but equals the effect at every value.
+    Identified { formula: Formula, also_set: Vec<String> },
     /// Not identifiable; the hedge shows why.
     NotIdentified { hedge: Hedge },
 }
@@ -113,7 +116,11 @@ impl Graph {
         let n = self.nodes.len();
         let (xm, ym) = (self.dag.mask_of(&x), self.dag.mask_of(&y));
         match run.id(&ym, &xm, Dist::Observed { given: Vec::new() }, &observed) {
-            Ok(formula) => Ok(Complete::Identified { formula }),
+            Ok(formula) => {
+                let free = formula.free_nodes();
+                let also: Vec<usize> = (0..n).filter(|&i| free.contains(self.label(i)) && !xm[i] && !ym[i]).collect();
+                Ok(Complete::Identified { formula, also_set: self.owned_names(&self.dag.mask_of(&also)) })
+            }
             Err(Stop::Hedge(outer, inner)) => {
                 let joining: Vec<bool> = (0..n)
                     .map(|h| self.nodes[h].hidden && hidden_reach(&self.dag, &observed, &self.dag.children[h]).iter().filter(|&&a| outer[a]).count() >= 2)

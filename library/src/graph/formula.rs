@@ -86,6 +86,16 @@ impl Formula {
         out
     }
 
+    /// The nodes the formula takes as given values (not bound by a sum), sorted.
+    pub fn free_nodes(&self) -> BTreeSet<String> {
+        match self {
+            Formula::Probability { of, given } => of.iter().chain(given).cloned().collect(),
+            Formula::Product { factors } => factors.iter().flat_map(Formula::free_nodes).collect(),
+            Formula::Sum { over, body } => body.free_nodes().into_iter().filter(|v| !over.contains(v)).collect(),
+            Formula::Ratio { numerator, denominator } => numerator.free_nodes().into_iter().chain(denominator.free_nodes()).collect(),
+        }
+    }
+
     fn collect_nodes(&self, out: &mut BTreeSet<String>) {
         match self {
             Formula::Probability { of, given } => out.extend(of.iter().chain(given).cloned()),

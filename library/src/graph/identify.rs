@@ -89,6 +89,8 @@ pub struct Beyond {
     pub formula_text: Option<String>,
     /// The observed nodes the formula uses.
     pub formula_nodes: Vec<String>,
+    /// Nodes the formula takes a value of without depending on it (see [`Complete::Identified`]).
+    pub also_set: Vec<String>,
     /// Why the effect is not identifiable, when it is not.
     pub hedge: Option<Hedge>,
     /// Observed nodes that qualify as instruments for the effect.
@@ -242,11 +244,20 @@ impl Graph {
         let (exposure, outcome) = (self.label(x).to_owned(), self.label(y).to_owned());
         let instruments = self.instruments(x, y);
         let set = [exposure.clone()];
-        let found = |route: &str, m: Vec<String>, formula: Formula, reason: String| Beyond {
+        let found = |route: &str, m: Vec<String>, formula: Formula, also: Vec<String>, reason: String| Beyond {
             identified: true,
             route: route.to_owned(),
             front_door_set: m,
-            formula_text: Some(format!("Pr[{outcome} | do({exposure})] = {}", formula.render(&set))),
+            formula_text: Some(format!(
+                "Pr[{outcome} | do({exposure})] = {}{}",
+                formula.render(&set),
+                if also.is_empty() {
+                    String::new()
+                } else {
+                    format!(", at any values of {} (the formula takes them but does not depend on them)", also.join(", "))
+                }
+            )),
+            also_set: also,
             formula_nodes: self.owned_names(&self.dag.mask_of(&self.resolve_all(&formula.nodes().into_iter().collect::<Vec<_>>()).unwrap_or_default())),
             formula: Some(formula),
             hedge: None,
@@ -260,15 +271,15 @@ impl Graph {
                 m.join(", "),
                 if m.len() == 1 { "it" } else { "together they" }
             );
-            return Ok(found("front door", m, formula, reason));
+            return Ok(found("front door", m, formula, Vec::new(), reason));
         }
         match self.identify_intervention_with_cancel(&set, &[outcome.clone()], cancel)? {
-            Complete::Identified { formula } => {
+            Complete::Identified { formula, also_set } => {
                 let reason = format!(
                     "No front-door set exists, but the complete identification algorithm (Shpitser & Pearl 2006; Tian & Pearl 2002) \
                      expresses the effect of {exposure} on {outcome} through observed probabilities: it is identifiable by the formula below."
                 );
-                Ok(found("complete algorithm", Vec::new(), formula, reason))
+                Ok(found("complete algorithm", Vec::new(), formula, also_set, reason))
             }
             Complete::NotIdentified { hedge } => {
                 let reason = format!(
@@ -285,6 +296,7 @@ impl Graph {
                     formula: None,
                     formula_text: None,
                     formula_nodes: Vec::new(),
+                    also_set: Vec::new(),
                     hedge: Some(hedge),
                     instruments,
                     reason,

@@ -25,6 +25,7 @@ pub mod answer;
 pub mod calibrate;
 pub mod contrast;
 mod error;
+pub mod front_door;
 pub mod implications;
 pub mod intervene;
 pub mod joint;
@@ -37,6 +38,7 @@ pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectA
 pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
 pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use error::QueryError;
+pub use front_door::{front_door_estimate, FrontDoorFit, FRONT_DOOR_SEED};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};

@@ -327,7 +327,8 @@ pub(crate) fn ask_using(
     check_cancel(control, &label, line)?;
     let mut first = super::causal::describe_identification(&answer.identification);
     let adjusted = answer.adjustment_set.clone().unwrap_or_default();
-    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new(), ..Default::default() };
+    let (formula_nodes, hedge_nodes) = super::causal::beyond_marks(&answer.identification);
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new(), formula: &formula_nodes, hedge: &hedge_nodes };
     first.svg = figures::graph(graph, &format!("{kind} effect of {x} on {y} in {g}"), &marks).ok();
     warnings.extend(answer.warnings.iter().map(|w| format!("{label}: {w}")));
 
@@ -335,21 +336,26 @@ pub(crate) fn ask_using(
     let mut json = json!({
         "query": format!("{kind} effect"), "exposure": x, "outcome": y, "identifiable": id.identifiable, "zero_by_graph": id.zero_by_graph,
         "adjustment_sets": id.adjustment_sets, "reason": id.reason, "adjustment_set": answer.adjustment_set,
-        "table": t, "model": answer.model_text, "why": answer.why, "method": answer.method, "estimand": answer.estimand,
+        "table": t, "model": answer.model_text, "route": answer.route, "beyond_adjustment": id.beyond, "why": answer.why, "method": answer.method, "estimand": answer.estimand,
         "contrasts": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "warnings": answer.warnings,
     });
     let (Some(model), Some(fit), Some(model_text)) = (answer.model, answer.fit, answer.model_text) else {
-        let heading = if id.zero_by_graph {
-            format!("{kind} effect of {x} on {y} in {g}: zero by the graph's assumptions, so nothing was fitted")
-        } else {
-            format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted")
+        let heading = match &id.beyond {
+            _ if id.zero_by_graph => format!("{kind} effect of {x} on {y} in {g}: zero by the graph's assumptions, so nothing was fitted"),
+            Some(b) if b.identified => format!("{kind} effect of {x} on {y} in {g}: identifiable by a formula Waypath does not yet estimate, so nothing was fitted"),
+            Some(_) => format!("{kind} effect of {x} on {y} in {g}: not identifiable, so nothing was fitted"),
+            None => format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted"),
         };
         let (plain, html) = render(&heading, &[], &[], &answer.why);
         json["model_name"] = Value::Null;
         return Ok(vec![first, Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
     let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
-    let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, stratifying by {set_words}");
+    let route_words = match id.beyond.as_ref().filter(|_| answer.route.as_deref() == Some("front door")) {
+        Some(b) => format!("through the front door via {}", b.front_door_set.join(", ")),
+        None => format!("stratifying by {set_words}"),
+    };
+    let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, {route_words}");
     let (lower, upper) = bounds(INTERVAL_MASS);
     let mut grid = Grid::new(&["contrast", "scale", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[2, 3, 4, 5, 6]);
     for c in &answer.contrasts {
@@ -358,6 +364,9 @@ pub(crate) fn ask_using(
         grid.push(row);
     }
     let mut model_grid = Grid::new(&["model built"]);
+    if let Some((_, _, m_text)) = &answer.mediator_model {
+        m_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
+    }
     model_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
     let mut notes: Vec<String> = answer.estimand.iter().map(|e| format!("estimand: {e}")).collect();
     notes.extend(answer.why.iter().cloned());
@@ -369,6 +378,9 @@ pub(crate) fn ask_using(
     notes.extend(answer.warnings.iter().map(|w| format!("warning: {w}")));
     let name = model.name().to_string();
     notes.push(format!("the model is kept as {name}: `show {name}`, `contrast {name}: …` and `check {name}` work on it"));
+    if let Some((m_model, _, _)) = &answer.mediator_model {
+        notes.push(format!("the mediator's model is kept as {}", m_model.name()));
+    }
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &model_grid), ("contrasts:", &grid)], &notes);
     let named: Vec<(String, &[f64])> = answer.contrasts.iter().map(|c| (c.contrast.clone(), c.draws.as_slice())).collect();
@@ -380,6 +392,14 @@ pub(crate) fn ask_using(
     }
     session.models.insert(name.clone(), model);
     session.fits.insert(name, fit);
+    if let Some((m_model, m_fit, m_text)) = answer.mediator_model {
+        let m_name = m_model.name().to_string();
+        if let Ok(spec) = ModelSpec::from_lines(&m_name, m_text.lines().enumerate().map(|(i, l)| (i + 1, l))) {
+            session.specs.insert(m_name.clone(), spec);
+        }
+        session.models.insert(m_name.clone(), m_model);
+        session.fits.insert(m_name, m_fit);
+    }
     Ok(vec![first, Display { plain, html: Some(html), svg, json: Some(json) }])
 }
 
