@@ -104,3 +104,52 @@ fn plain_ask_prints_the_formula_and_a_not_identifiable_one_its_hedge() {
     assert_eq!(display.json.as_ref().unwrap()["beyond_adjustment"]["hedge"]["outer"], serde_json::json!(["shading", "trout"]));
     assert!(display.svg.as_deref().unwrap().contains("hedge"), "the figure marks the hedge");
 }
+
+#[test]
+fn joint_intervene_refuses_an_effect_a_hedge_makes_unidentifiable() {
+    // The bow arc (Pearl 2009 §3.5, recalled): a hidden cause of exposure and
+    // outcome and nothing else; Shpitser & Pearl (2006) prove P(y | do(x))
+    // not identifiable, so the joint model must not report one.
+    let mut session = Session::new(".");
+    let cells = "graph bow:
+    hidden u -> shading, trout
+    shading -> trout
+simulate water from bow rows 300 seed 5:
+    u = normal(0, 1)
+    shading = normal(0.8 * u, 1)
+    trout = normal(0.5 * shading + 0.9 * u, 1)
+joint whole = bow using water
+fit whole with laplace seed 2
+";
+    last_json(&mut session, cells);
+    let out = run(&mut session, "intervene whole: set shading 1 vs 0, watch trout");
+    let error = out.error.expect("refused").describe();
+    assert!(error.contains("not identifiable") && error.contains("{shading, trout} and {trout}") && error.contains("hidden common cause u"), "{error}");
+    // The front-door graph's effect is identifiable, but not by the joint
+    // model's regressions of each node on its observed parents (trout from
+    // algae absorbs the hidden canopy): refused, pointing to the formula.
+    last_json(&mut session, &reach(3));
+    let out = run(&mut session, "joint fd = reach using water\nfit fd with laplace seed 2\nintervene fd: set shading 1 vs 0, watch trout");
+    let error = out.error.expect("refused").describe();
+    assert!(error.contains("identifiable by a formula") && error.contains("common cause of trout and shading"), "{error}");
+    // A hidden cause of two nodes the intervention leaves alone changes nothing:
+    // still simulated (soil -> rootstock? no: a hidden cause of two pre-exposure nodes).
+    let cells = "graph calm:
+    hidden dust -> wind, rain
+    wind -> shading
+    rain -> shading
+    shading -> trout
+simulate calm_water from calm rows 2000 seed 6:
+    dust = normal(0, 1)
+    wind = normal(dust, 1)
+    rain = normal(dust, 1)
+    shading = normal(0.5 * wind + 0.5 * rain, 1)
+    trout = normal(0.4 * shading, 1)
+joint quiet = calm using calm_water
+fit quiet with laplace seed 2
+intervene quiet: set shading 1 vs 0, watch trout";
+    let json = last_json(&mut session, cells);
+    let w = &json["watched"][0];
+    // Wright (1934): the one directed path shading -> trout, 0.4.
+    assert!(w["lower"].as_f64().unwrap() <= 0.4 && 0.4 <= w["upper"].as_f64().unwrap(), "{w}");
+}
