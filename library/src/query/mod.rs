@@ -31,6 +31,7 @@ pub mod intervene;
 pub mod joint;
 pub mod mechanism;
 pub mod recover;
+pub mod robustness;
 pub mod simulate;
 mod support;
 
@@ -43,6 +44,7 @@ pub use implications::{check_implications, ImplicationCheck, ImplicationsReport}
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
+pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;
