@@ -489,7 +489,7 @@ mod tests {
     fn statement_words_are_those_the_readme_lists() {
         let readme = [
             "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save",
-            "contrast", "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+            "contrast", "compare", "robustness", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
         ];
         assert_eq!(statement_words(), readme);
     }
