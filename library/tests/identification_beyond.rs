@@ -131,3 +131,22 @@ fn hidden_exposure_is_refused_by_the_complete_algorithm() {
     let e = g.identify_intervention(&["u"], &["y"]).unwrap_err().to_string();
     assert!(e.contains("`u` is hidden"), "{e}");
 }
+
+#[test]
+fn a_hidden_cause_of_thousands_of_nodes_is_refused_before_it_is_projected() {
+    // Bad input: one hidden node with 2,100 observed children would join
+    // about 2.2 million pairs; the answer says the question is too large
+    // instead of building them.
+    let mut b = GraphBuilder::new("wide");
+    b.add_node("h", true);
+    for line in ["x -> y", "h -> x", "h -> y"] {
+        b.add_line(line).unwrap();
+    }
+    for i in 0..2100 {
+        b.add_edge("h", &format!("c{i}"));
+    }
+    let g = b.finish().unwrap();
+    let beyond = g.total_effect("x", "y").unwrap().beyond.unwrap();
+    assert_eq!(beyond.route, "undetermined");
+    assert!(beyond.reason.contains("more than 2000000 pairs"), "{}", beyond.reason);
+}

@@ -31,12 +31,16 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use serde::Serialize;
 
 use super::formula::Formula;
-use super::projection::{hidden_reach, Projection};
+use super::projection::{hidden_reach, Projection, MAX_HIDDEN_PAIRS};
 use super::{Graph, GraphError};
 
 /// The most recursive steps of one identification (the algorithm is
 /// polynomial, but a guard keeps a pathological graph from running long).
 pub const IDENTIFY_STEPS: usize = 20_000;
+
+/// The most node-and-edge visits one identification may make; a large
+/// graph gets fewer steps.
+const IDENTIFY_WORK: usize = 400_000_000;
 
 /// The witness that an effect is not identifiable (Shpitser & Pearl 2006,
 /// Definition 5 and Theorem 4, recalled).
@@ -86,6 +90,7 @@ struct Run<'g> {
     graph: &'g Graph,
     proj: Projection,
     steps: usize,
+    limit: usize,
     cancel: &'g AtomicBool,
 }
 
@@ -112,8 +117,15 @@ impl Graph {
             return Err(GraphError::Hidden { graph: self.name.clone(), node: self.label(h).to_owned() });
         }
         let observed = self.observed();
-        let mut run = Run { graph: self, proj: Projection::new(&self.dag, &observed), steps: 0, cancel };
         let n = self.nodes.len();
+        let Some(proj) = Projection::new(&self.dag, &observed) else {
+            return Err(GraphError::TooHard {
+                graph: self.name.clone(),
+                what: format!("its hidden nodes join more than {MAX_HIDDEN_PAIRS} pairs of observed nodes, too many to identify an effect among"),
+            });
+        };
+        let limit = IDENTIFY_STEPS.min(IDENTIFY_WORK / (n + self.edges.len() + 1)).max(1);
+        let mut run = Run { graph: self, proj, steps: 0, limit, cancel };
         let (xm, ym) = (self.dag.mask_of(&x), self.dag.mask_of(&y));
         match run.id(&ym, &xm, Dist::Observed { given: Vec::new() }, &observed) {
             Ok(formula) => {
@@ -131,7 +143,7 @@ impl Graph {
             Err(Stop::Interrupted) => Err(GraphError::Interrupted { graph: self.name.clone() }),
             Err(Stop::Budget) => Err(GraphError::TooHard {
                 graph: self.name.clone(),
-                what: format!("identifying the effect took more than {IDENTIFY_STEPS} steps on {n} nodes"),
+                what: format!("identifying the effect took more than {limit} steps on {n} nodes"),
             }),
         }
     }
@@ -140,7 +152,7 @@ impl Graph {
 impl Run<'_> {
     fn id(&mut self, y: &[bool], x: &[bool], p: Dist, v: &[bool]) -> Result<Formula, Stop> {
         self.steps += 1;
-        if self.steps > IDENTIFY_STEPS {
+        if self.steps > self.limit {
             return Err(Stop::Budget);
         }
         if self.cancel.load(Ordering::Relaxed) {

@@ -25,11 +25,15 @@ use super::{Graph, GraphError};
 /// The most candidate sets the front-door search tests.
 pub const FRONT_DOOR_TRIES: usize = 20_000;
 
+/// The most node-and-edge visits the whole search may make (each try walks
+/// the graph a few times), so a large graph tries fewer sets.
+const FRONT_DOOR_WORK: usize = 200_000_000;
+
 impl Graph {
     /// The smallest set of observed nodes satisfying the front-door
     /// criterion for the effect of `exposure` on `outcome`, with its formula,
     /// or `None` when no set among the observed mediators does (or the
-    /// search reached [`FRONT_DOOR_TRIES`]).
+    /// search reached [`FRONT_DOOR_TRIES`], fewer on a large graph).
     pub fn front_door(&self, exposure: &str, outcome: &str) -> Result<Option<(Vec<String>, Formula)>, GraphError> {
         self.front_door_with_cancel(exposure, outcome, &AtomicBool::new(false))
     }
@@ -45,19 +49,22 @@ impl Graph {
         let to_y = self.dag.ancestors_of(&[y]);
         let candidates: Vec<usize> =
             self.order.iter().copied().filter(|&i| i != x && i != y && from_x[i] && to_y[i] && !self.nodes[i].hidden).collect();
+        let size = self.nodes.len() + self.edges.len() + 1;
+        let limit = FRONT_DOOR_TRIES.min(FRONT_DOOR_WORK / size).max(1);
+        let cut_x = self.dag.keep_edges(|a, _| a != x);
         let mut tries = 0;
         for size in 1..=candidates.len() {
             let mut chosen: Vec<usize> = (0..size).collect();
             loop {
                 tries += 1;
-                if tries > FRONT_DOOR_TRIES {
+                if tries > limit {
                     return Ok(None);
                 }
                 if cancel.load(Ordering::Relaxed) {
                     return Err(GraphError::Interrupted { graph: self.name.clone() });
                 }
                 let m: Vec<usize> = chosen.iter().map(|&k| candidates[k]).collect();
-                if self.is_front_door(x, y, &m) {
+                if self.is_front_door(&cut_x, x, y, &m) {
                     let names = self.owned_names(&self.dag.mask_of(&m));
                     return Ok(Some((names.clone(), front_door_formula(self.label(x), self.label(y), &names))));
                 }
@@ -70,12 +77,12 @@ impl Graph {
     }
 
     /// The three conditions of the front-door criterion for the set `m`.
-    fn is_front_door(&self, x: usize, y: usize, m: &[usize]) -> bool {
+    fn is_front_door(&self, cut_x: &super::dag::Dag, x: usize, y: usize, m: &[usize]) -> bool {
         let in_m = self.dag.mask_of(m);
         let intercepts = !self.dag.keep_edges(|_, b| !in_m[b]).descendants_of(&[x])[y];
         let none = vec![false; self.nodes.len()];
         intercepts
-            && self.dag.keep_edges(|a, _| a != x).d_separated(&[x], m, &none)
+            && cut_x.d_separated(&[x], m, &none)
             && self.dag.keep_edges(|a, _| !in_m[a]).d_separated(m, &[y], &self.dag.mask_of(&[x]))
     }
 }

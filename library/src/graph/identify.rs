@@ -79,7 +79,8 @@ pub struct Identification {
 pub struct Beyond {
     /// True when a formula identifies the effect.
     pub identified: bool,
-    /// `front door`, `complete algorithm`, or `none`.
+    /// `front door`, `complete algorithm`, `none`, or `undetermined` (the
+    /// graph was too large for the algorithm's step limits).
     pub route: String,
     /// The mediators of the front-door formula (empty for other routes).
     pub front_door_set: Vec<String>,
@@ -273,7 +274,24 @@ impl Graph {
             );
             return Ok(found("front door", m, formula, Vec::new(), reason));
         }
-        match self.identify_intervention_with_cancel(&set, &[outcome.clone()], cancel)? {
+        let complete = match self.identify_intervention_with_cancel(&set, &[outcome.clone()], cancel) {
+            Err(e @ GraphError::TooHard { .. }) => {
+                return Ok(Beyond {
+                    identified: false,
+                    route: "undetermined".to_owned(),
+                    front_door_set: Vec::new(),
+                    formula: None,
+                    formula_text: None,
+                    formula_nodes: Vec::new(),
+                    also_set: Vec::new(),
+                    hedge: None,
+                    instruments,
+                    reason: format!("No front-door set was found, and the complete identification algorithm was not run to the end: {e}."),
+                })
+            }
+            other => other?,
+        };
+        match complete {
             Complete::Identified { formula, also_set } => {
                 let reason = format!(
                     "No front-door set exists, but the complete identification algorithm (Shpitser & Pearl 2006; Tian & Pearl 2002) \

@@ -13,7 +13,13 @@
 //! *c-components* (confounded components): the classes of nodes joined by
 //! chains of `<->` inside the set.
 
+use std::collections::HashSet;
+
 use super::dag::Dag;
+
+/// The most pairs of observed nodes joined by hidden common causes a
+/// projection builds (a hidden node with k observed children joins k²/2).
+pub const MAX_HIDDEN_PAIRS: usize = 2_000_000;
 
 /// Directed and bidirected edges among the observed nodes of a graph;
 /// indices are those of the original graph, hidden nodes have no edges.
@@ -25,8 +31,9 @@ pub(crate) struct Projection {
 }
 
 impl Projection {
-    /// Project the hidden nodes of `dag` out.
-    pub(crate) fn new(dag: &Dag, observed: &[bool]) -> Projection {
+    /// Project the hidden nodes of `dag` out; `None` when the hidden common
+    /// causes would make more than [`MAX_HIDDEN_PAIRS`] bidirected edges.
+    pub(crate) fn new(dag: &Dag, observed: &[bool]) -> Option<Projection> {
         let n = dag.len();
         let mut p = Projection { parents: vec![Vec::new(); n], children: vec![Vec::new(); n], siblings: vec![Vec::new(); n] };
         for a in (0..n).filter(|&a| observed[a]) {
@@ -35,8 +42,13 @@ impl Projection {
                 p.children[a].push(b);
             }
         }
+        let mut pairs = 0usize;
         for h in (0..n).filter(|&h| !observed[h]) {
             let reached = hidden_reach(dag, observed, &dag.children[h]);
+            pairs = pairs.saturating_add(reached.len().saturating_mul(reached.len()) / 2);
+            if pairs > MAX_HIDDEN_PAIRS {
+                return None;
+            }
             for (k, &a) in reached.iter().enumerate() {
                 for &b in &reached[k + 1..] {
                     p.siblings[a].push(b);
@@ -48,7 +60,7 @@ impl Projection {
             list.sort_unstable();
             list.dedup();
         }
-        p
+        Some(p)
     }
 
     /// Nodes of `within` with a directed path (inside `within`) into a node
@@ -103,11 +115,11 @@ impl Projection {
 /// Observed nodes reached from `starts` along directed paths whose nodes
 /// before the last are hidden (an observed start is reached itself).
 pub(crate) fn hidden_reach(dag: &Dag, observed: &[bool], starts: &[usize]) -> Vec<usize> {
-    let mut seen = vec![false; dag.len()];
+    let mut seen = HashSet::new();
     let mut out = Vec::new();
     let mut stack = starts.to_vec();
     while let Some(i) = stack.pop() {
-        if std::mem::replace(&mut seen[i], true) {
+        if !seen.insert(i) {
             continue;
         }
         if observed[i] {
