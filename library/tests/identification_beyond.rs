@@ -81,6 +81,10 @@ fn napkin_graph_is_identified_by_the_complete_algorithm_only() {
     assert!(beyond.front_door_set.is_empty());
     // The formula must use z (the napkin's instrument-like node) and w.
     assert_eq!(beyond.formula_nodes, names(&["w", "z", "x", "y"]));
+    assert_eq!(beyond.also_set, names(&["z"]));
+    // A sum over the outcome inside the formula writes it primed.
+    let text = beyond.formula_text.unwrap();
+    assert!(text.contains("sum over y′, w of") && text.contains("Pr[y′ | w, z, x]"), "{text}");
 }
 
 #[test]

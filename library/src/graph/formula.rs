@@ -111,8 +111,9 @@ impl Formula {
         }
     }
 
-    /// The formula in Waypath's notation; nodes in `set` (the intervention)
-    /// get a prime inside a sum over them.
+    /// The formula in Waypath's notation; nodes in `set` (those the
+    /// question fixes: exposure and outcome) get a prime inside a sum over
+    /// them.
     pub fn render(&self, set: &[String]) -> String {
         let mut primed = BTreeSet::new();
         self.render_with(set, &mut primed)

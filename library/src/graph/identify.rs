@@ -245,13 +245,15 @@ impl Graph {
         let (exposure, outcome) = (self.label(x).to_owned(), self.label(y).to_owned());
         let instruments = self.instruments(x, y);
         let set = [exposure.clone()];
+        // Bound copies of the exposure and of the outcome are written primed.
+        let free = [exposure.clone(), outcome.clone()];
         let found = |route: &str, m: Vec<String>, formula: Formula, also: Vec<String>, reason: String| Beyond {
             identified: true,
             route: route.to_owned(),
             front_door_set: m,
             formula_text: Some(format!(
                 "Pr[{outcome} | do({exposure})] = {}{}",
-                formula.render(&set),
+                formula.render(&free),
                 if also.is_empty() {
                     String::new()
                 } else {
@@ -274,7 +276,7 @@ impl Graph {
             );
             return Ok(found("front door", m, formula, Vec::new(), reason));
         }
-        let complete = match self.identify_intervention_with_cancel(&set, &[outcome.clone()], cancel) {
+        let complete = match self.identify_intervention_with_cancel(&set, std::slice::from_ref(&outcome), cancel) {
             Err(e @ GraphError::TooHard { .. }) => {
                 return Ok(Beyond {
                     identified: false,
