@@ -55,6 +55,11 @@ fn front_door_answer_covers_the_truth_where_the_plain_regression_is_biased() {
     let c = &json["contrasts"][0];
     let (lo, hi) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
     assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "truth {TRUE_EFFECT} outside [{lo}, {hi}]");
+    // `compare routes` has one route here: the front door.
+    let routes = last_json(&mut session, "compare routes for total effect of shading on trout in reach using water with laplace seed 4");
+    assert_eq!(routes["route"], "front door");
+    assert!(routes["joint"].is_null());
+    assert_eq!(routes["front_door"][0]["mean"], c["mean"], "the same seeded estimate as `ask … using`");
     // Both regressions are kept in the session.
     assert!(session.fit("front_door_algae_from_shading").is_some());
     assert!(session.fit(json["model_name"].as_str().unwrap()).is_some());

@@ -433,6 +433,9 @@ pub(crate) fn compare_routes(
                           "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
+    if answer.route.as_deref() == Some("front door") {
+        return Ok(vec![front_door_only(&answer, x, y, g)]);
+    }
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
     let node_progress = joint_progress(control, &label, "joint model, ");
     (control.progress)(&format!("{label}: fitting one regression per node of {g}"));
@@ -497,6 +500,29 @@ pub(crate) fn compare_routes(
         "seed": simulated.seed, "notes": notes,
     });
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// The answer of `compare routes` when the effect runs through the front
+/// door: the joint model (each node from its observed parents) cannot
+/// simulate a hidden common cause, so there is one route only.
+fn front_door_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &str) -> Display {
+    let heading = format!(
+        "total effect of {x} on {y} in {g}: one route only — the front door; no adjustment set exists and the joint model cannot simulate the hidden common cause"
+    );
+    let (lower, upper) = bounds(INTERVAL_MASS);
+    let mut grid = Grid::new(&["route", "contrast", "mean", &lower, &upper, "P(>0)", "P(<0)"]).numeric_columns(&[2, 3, 4, 5, 6]);
+    for c in &answer.contrasts {
+        let mut row = vec!["front door".to_string(), c.contrast.clone()];
+        row.extend(summary_cells(&c.summary()));
+        grid.push(row);
+    }
+    let mut notes = answer.why.clone();
+    notes.push(CAUSAL_NOTE.to_string());
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let json = json!({"question": answer.question, "identifiable": false, "route": "front door",
+                      "front_door": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": null,
+                      "difference": null, "notes": notes});
+    Display { plain, html: Some(html), svg: None, json: Some(json) }
 }
 
 /// `robustness of M: X`: the one-unit contrast of X under an assumed
