@@ -7,6 +7,8 @@
 //! The check fits both models independently; Waypath computes the yardstick
 //! from the long model and the data only.
 
+mod common;
+
 use std::sync::atomic::AtomicBool;
 
 use serde_json::Value;
@@ -71,6 +73,9 @@ fn robustness_draws_a_figure_and_refuses_what_the_formula_cannot_take() {
     assert!(d.plain.contains("γ·δ reaches"), "{}", d.plain);
     let svg = d.svg.as_deref().expect("a figure");
     assert!(svg.contains("mean reaches 0") && svg.contains("moisture"));
+    // With DejaVu Sans laid out by usvg, every text stays on the canvas.
+    let outside = common::text_boxes::texts_outside_canvas(svg, &common::text_boxes::dejavu());
+    assert!(outside.is_empty(), "{outside:#?}");
     let out = run(&mut session, "robustness of long: clover");
     assert!(out.error.unwrap().describe().contains("not a predictor"));
     let out = run(&mut session, "robustness of nothing_here: grazing");
