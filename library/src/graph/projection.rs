@@ -26,7 +26,6 @@ pub const MAX_HIDDEN_PAIRS: usize = 2_000_000;
 #[derive(Debug, Clone)]
 pub(crate) struct Projection {
     pub(crate) parents: Vec<Vec<usize>>,
-    pub(crate) children: Vec<Vec<usize>>,
     pub(crate) siblings: Vec<Vec<usize>>,
 }
 
@@ -35,11 +34,10 @@ impl Projection {
     /// causes would make more than [`MAX_HIDDEN_PAIRS`] bidirected edges.
     pub(crate) fn new(dag: &Dag, observed: &[bool]) -> Option<Projection> {
         let n = dag.len();
-        let mut p = Projection { parents: vec![Vec::new(); n], children: vec![Vec::new(); n], siblings: vec![Vec::new(); n] };
+        let mut p = Projection { parents: vec![Vec::new(); n], siblings: vec![Vec::new(); n] };
         for a in (0..n).filter(|&a| observed[a]) {
             for b in hidden_reach(dag, observed, &dag.children[a]) {
                 p.parents[b].push(a);
-                p.children[a].push(b);
             }
         }
         let mut pairs = 0usize;
@@ -56,7 +54,7 @@ impl Projection {
                 }
             }
         }
-        for list in p.parents.iter_mut().chain(p.children.iter_mut()).chain(p.siblings.iter_mut()) {
+        for list in p.parents.iter_mut().chain(p.siblings.iter_mut()) {
             list.sort_unstable();
             list.dedup();
         }
