@@ -21,6 +21,10 @@ pub struct GraphMarks<'a> {
     pub outcome: Option<&'a str>,
     pub adjusted: &'a [String],
     pub highlight: Vec<(String, String)>,
+    /// Nodes an identifying formula uses.
+    pub formula: &'a [String],
+    /// Nodes of a hedge and the hidden causes joining it.
+    pub hedge: &'a [String],
 }
 
 /// The largest graph drawn as a figure (the layered layout grows faster
@@ -48,6 +52,10 @@ pub fn graph(graph: &Graph, title: &str, marks: &GraphMarks) -> Result<String, P
                 Role::Outcome
             } else if marks.adjusted.contains(&n.name) {
                 Role::Adjusted
+            } else if marks.hedge.contains(&n.name) {
+                Role::Hedge
+            } else if marks.formula.contains(&n.name) {
+                Role::InFormula
             } else {
                 Role::Plain
             };

@@ -40,6 +40,14 @@ pub enum GraphError {
     #[error("graph {graph}: the question was interrupted before it was answered")]
     Interrupted { graph: String },
 
+    /// An intervention or outcome named a hidden node.
+    #[error("graph {graph}: `{node}` is hidden, so an effect on or of it cannot be estimated from data; name observed nodes")]
+    Hidden { graph: String, node: String },
+
+    /// A question whose answer would take longer than its step limit.
+    #[error("graph {graph}: {what}; ask about a smaller part of the graph")]
+    TooHard { graph: String, what: String },
+
     /// Too many paths to list.
     #[error("graph {graph} has more than {limit} paths between {from} and {to}; ask about a smaller graph or a closer pair of nodes")]
     TooManyPaths { graph: String, from: String, to: String, limit: usize },

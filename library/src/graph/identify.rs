@@ -19,7 +19,10 @@ use std::sync::atomic::AtomicBool;
 
 use serde::Serialize;
 
+use super::complete::{Complete, Hedge};
 use super::dag::Dag;
+use super::formula::Formula;
+use super::instruments::{Instrument, INSTRUMENT_ASSUMPTION};
 use super::paths::{all_paths, Opening, RawPath};
 use super::separators::{minimal_adjustment_sets, SetSearch};
 use super::{Graph, GraphError};
@@ -66,6 +69,53 @@ pub struct Identification {
     /// for a total effect, no edge for a direct one); the sets listed then
     /// serve to check that zero against data.
     pub zero_by_graph: bool,
+    /// For a total effect no adjustment set identifies: the front door, the
+    /// complete algorithm's formula or hedge, and any instruments.
+    pub beyond: Option<Beyond>,
+}
+
+/// What identifies a total effect when adjustment cannot.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct Beyond {
+    /// True when a formula identifies the effect.
+    pub identified: bool,
+    /// `front door`, `complete algorithm`, `none`, or `undetermined` (the
+    /// graph was too large for the algorithm's step limits).
+    pub route: String,
+    /// The mediators of the front-door formula (empty for other routes).
+    pub front_door_set: Vec<String>,
+    /// The identifying formula of the outcome's distribution under the intervention.
+    pub formula: Option<Formula>,
+    /// The formula in Waypath's notation.
+    pub formula_text: Option<String>,
+    /// The observed nodes the formula uses.
+    pub formula_nodes: Vec<String>,
+    /// Nodes the formula takes a value of without depending on it (see [`Complete::Identified`]).
+    pub also_set: Vec<String>,
+    /// Why the effect is not identifiable, when it is not.
+    pub hedge: Option<Hedge>,
+    /// Observed nodes that qualify as instruments for the effect.
+    pub instruments: Vec<Instrument>,
+    /// Sentences saying what was found and why.
+    pub reason: String,
+}
+
+impl Beyond {
+    /// The text lines of this part of an answer.
+    pub fn lines(&self) -> Vec<String> {
+        let mut out = vec![self.reason.clone()];
+        if let Some(text) = &self.formula_text {
+            out.push(format!("identifying formula: {text}"));
+        }
+        for i in &self.instruments {
+            let given = if i.given.is_empty() { String::new() } else { format!(" given {}", i.given.join(", ")) };
+            out.push(format!("instrument: {}{given}", i.node));
+        }
+        if !self.instruments.is_empty() {
+            out.push(INSTRUMENT_ASSUMPTION.to_owned());
+        }
+        out
+    }
 }
 
 impl Identification {
@@ -90,6 +140,9 @@ impl Identification {
         out.push_str(&self.reason);
         if !self.search_complete {
             out.push_str(" The search stopped at its limit, so further minimal sets may exist.");
+        }
+        for line in self.beyond.iter().flat_map(Beyond::lines) {
+            out.push_str(&format!("\n{line}"));
         }
         out
     }
@@ -132,7 +185,8 @@ impl Graph {
                 "No set of observed nodes blocks every backdoor path from {exposure} to {outcome}{}.",
                 self.open_path_story(&cut, x, y, &candidates)
             );
-            return Ok(answer(false, Vec::new(), reason, true));
+            let beyond = self.beyond_adjustment(x, y, cancel)?;
+            return Ok(Identification { beyond: Some(beyond), ..answer(false, Vec::new(), reason, true) });
         }
         let search = self.minimal_sets(&cut, x, y, &candidates, cancel)?;
         let reason = if search.sets == [Vec::<usize>::new()] {
@@ -185,6 +239,92 @@ impl Graph {
         Ok(answer(true, search.sets, reason, search.complete))
     }
 
+    /// The front door, then the complete algorithm, and the instruments,
+    /// for a total effect no adjustment set identifies.
+    fn beyond_adjustment(&self, x: usize, y: usize, cancel: &AtomicBool) -> Result<Beyond, GraphError> {
+        let (exposure, outcome) = (self.label(x).to_owned(), self.label(y).to_owned());
+        let instruments = self.instruments(x, y);
+        let set = [exposure.clone()];
+        // Bound copies of the exposure and of the outcome are written primed.
+        let free = [exposure.clone(), outcome.clone()];
+        let found = |route: &str, m: Vec<String>, formula: Formula, also: Vec<String>, reason: String| Beyond {
+            identified: true,
+            route: route.to_owned(),
+            front_door_set: m,
+            formula_text: Some(format!(
+                "Pr[{outcome} | do({exposure})] = {}{}",
+                formula.render(&free),
+                if also.is_empty() {
+                    String::new()
+                } else {
+                    format!(", at any values of {} (the formula takes them but does not depend on them)", also.join(", "))
+                }
+            )),
+            also_set: also,
+            formula_nodes: self.owned_names(&self.dag.mask_of(&self.resolve_all(&formula.nodes().into_iter().collect::<Vec<_>>()).unwrap_or_default())),
+            formula: Some(formula),
+            hedge: None,
+            instruments: instruments.clone(),
+            reason,
+        };
+        if let Some((m, formula)) = self.front_door_with_cancel(&exposure, &outcome, cancel)? {
+            let reason = format!(
+                "The front-door criterion holds through {} (Pearl 2009, Causality, §3.3.2): {} carries every directed path from {exposure} to {outcome}, \
+                 no backdoor path from {exposure} to it is open, and {exposure} blocks its backdoor paths to {outcome}. The effect is identifiable by the formula below.",
+                m.join(", "),
+                if m.len() == 1 { "it" } else { "together they" }
+            );
+            return Ok(found("front door", m, formula, Vec::new(), reason));
+        }
+        let complete = match self.identify_intervention_with_cancel(&set, std::slice::from_ref(&outcome), cancel) {
+            Err(e @ GraphError::TooHard { .. }) => {
+                return Ok(Beyond {
+                    identified: false,
+                    route: "undetermined".to_owned(),
+                    front_door_set: Vec::new(),
+                    formula: None,
+                    formula_text: None,
+                    formula_nodes: Vec::new(),
+                    also_set: Vec::new(),
+                    hedge: None,
+                    instruments,
+                    reason: format!("No front-door set was found, and the complete identification algorithm was not run to the end: {e}."),
+                })
+            }
+            other => other?,
+        };
+        match complete {
+            Complete::Identified { formula, also_set } => {
+                let reason = format!(
+                    "No front-door set exists, but the complete identification algorithm (Shpitser & Pearl 2006; Tian & Pearl 2002) \
+                     expresses the effect of {exposure} on {outcome} through observed probabilities: it is identifiable by the formula below."
+                );
+                Ok(found("complete algorithm", Vec::new(), formula, also_set, reason))
+            }
+            Complete::NotIdentified { hedge } => {
+                let reason = format!(
+                    "Not identifiable from the observed nodes by any route (Shpitser & Pearl 2006): the hedge {{{}}} ⊃ {{{}}} — \
+                     both sets are joined by hidden common causes and share their last nodes, and only the larger holds {exposure} — \
+                     lets two causal models agree on every observed probability yet differ in the effect.",
+                    hedge.outer.join(", "),
+                    hedge.inner.join(", ")
+                );
+                Ok(Beyond {
+                    identified: false,
+                    route: "none".to_owned(),
+                    front_door_set: Vec::new(),
+                    formula: None,
+                    formula_text: None,
+                    formula_nodes: Vec::new(),
+                    also_set: Vec::new(),
+                    hedge: Some(hedge),
+                    instruments,
+                    reason,
+                })
+            }
+        }
+    }
+
     /// Every minimal adjustment set among `candidates` in `cut`.
     fn minimal_sets(&self, cut: &Dag, x: usize, y: usize, candidates: &[usize], cancel: &AtomicBool) -> Result<SetSearch, GraphError> {
         minimal_adjustment_sets(cut, x, y, candidates, &self.order, cancel)
@@ -192,7 +332,7 @@ impl Graph {
     }
 
     /// Resolve exposure and outcome, which must differ.
-    fn pair(&self, exposure: &str, outcome: &str) -> Result<(usize, usize), GraphError> {
+    pub(super) fn pair(&self, exposure: &str, outcome: &str) -> Result<(usize, usize), GraphError> {
         let x = self.resolve(exposure)?;
         let y = self.resolve(outcome)?;
         if x == y {
@@ -283,6 +423,7 @@ impl Graph {
             reason,
             search_complete,
             zero_by_graph: false,
+            beyond: None,
         }
     }
 }

@@ -6,7 +6,12 @@
 //! between two nodes with the reason each is open or blocked, the adjustment
 //! sets for a total effect (backdoor criterion), the sets that isolate a
 //! direct effect (single-door criterion), and the conditional independences
-//! the graph implies for the data.
+//! the graph implies for the data. When no adjustment set exists, a total
+//! effect may still be identified through a measured mechanism (the front
+//! door, `front_door`) or by the complete algorithm on the graph with its
+//! hidden nodes projected to hidden common causes (`projection`,
+//! `complete`), whose answer is a [`Formula`] or a [`Hedge`]; instruments
+//! are named too (`instruments`).
 //!
 //! A [`Graph`] is immutable once built and speaks node *names* at its
 //! boundary: every query takes names, every answer carries names, and an
@@ -29,12 +34,17 @@
 //! ```
 
 mod build;
+mod complete;
 mod dag;
 mod dot;
 mod error;
+mod formula;
+mod front_door;
 mod identify;
 mod implications;
+mod instruments;
 mod paths;
+mod projection;
 mod separators;
 
 use std::collections::HashMap;
@@ -42,7 +52,11 @@ use std::collections::HashMap;
 pub use build::{GraphBuilder, MAX_EDGES};
 pub use dot::{from_dot, MAX_DOT_NESTING};
 pub use error::GraphError;
-pub use identify::{EffectKind, Identification};
+pub use complete::{Complete, Hedge, IDENTIFY_STEPS};
+pub use formula::Formula;
+pub use front_door::FRONT_DOOR_TRIES;
+pub use identify::{Beyond, EffectKind, Identification};
+pub use instruments::{Instrument, INSTRUMENT_ASSUMPTION};
 pub use implications::{Implication, Implications, UntestablePair};
 pub use paths::{Arrow, PathListing, PathReport};
 

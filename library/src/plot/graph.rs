@@ -16,7 +16,7 @@ use super::canvas::{
     legend, legend_height, legend_rows, num, polygon_d, rect, stroke_path, text, text_width,
     Anchor, Attr, Key, Sheet, HEADING, MEDIUM, WIDTH,
 };
-use super::palette::{BLUE, BLUISH_GREEN, INK, ORANGE, VERMILLION};
+use super::palette::{BLUE, BLUISH_GREEN, INK, ORANGE, REDDISH_PURPLE, SKY_BLUE, VERMILLION};
 use super::PlotError;
 
 /// What a node stands for in the question asked of the graph.
@@ -31,6 +31,11 @@ pub enum Role {
     Outcome,
     /// A member of the adjustment set.
     Adjusted,
+    /// A node the identifying formula uses (beyond adjustment).
+    InFormula,
+    /// A node of the hedge that shows an effect is not identifiable, or a
+    /// hidden common cause joining it.
+    Hedge,
 }
 
 /// One node of the picture.
@@ -540,6 +545,12 @@ fn legend_entries(picture: &GraphPicture) -> Vec<(Key, String)> {
     if has(Role::Adjusted) {
         entries.push((Key::Swatch(BLUISH_GREEN, 0.4), "adjusted for".to_string()));
     }
+    if has(Role::InFormula) {
+        entries.push((Key::Swatch(SKY_BLUE, 0.4), "in the formula".to_string()));
+    }
+    if has(Role::Hedge) {
+        entries.push((Key::Swatch(REDDISH_PURPLE, 0.4), "hedge (blocks identification)".to_string()));
+    }
     if picture.nodes.iter().any(|n| n.hidden) {
         entries.push((Key::Outline(INK, 1.2, true), "unobserved".to_string()));
     }
@@ -666,6 +677,8 @@ fn node_box(mark: &NodeMark, b: &NodeBox) -> Vec<Element> {
         Role::Exposure => (Some(BLUE), 0.18, BLUE, 2.4),
         Role::Outcome => (Some(VERMILLION), 0.18, VERMILLION, 2.4),
         Role::Adjusted => (Some(BLUISH_GREEN), 0.4, INK, 1.2),
+        Role::InFormula => (Some(SKY_BLUE), 0.4, INK, 1.2),
+        Role::Hedge => (Some(REDDISH_PURPLE), 0.4, INK, 1.2),
     };
     let shape = |fill: &str| rect(b.x, b.y, b.width, b.height, fill).with("rx", "6");
     let mut outline = shape("#FFFFFF")
@@ -701,6 +714,8 @@ fn describe(picture: &GraphPicture) -> String {
         (Role::Exposure, "exposure"),
         (Role::Outcome, "outcome"),
         (Role::Adjusted, "adjusted for"),
+        (Role::InFormula, "in the identifying formula"),
+        (Role::Hedge, "hedge"),
     ] {
         let list = names(role);
         if !list.is_empty() {

@@ -29,6 +29,7 @@ use crate::table::{ColumnData, Table};
 
 use super::contrast::{contrast, Contrast, ContrastRequest};
 use super::error::QueryError;
+use super::front_door::front_door_estimate;
 use super::support::require_column;
 
 /// Most paths listed in the reason for a set.
@@ -60,6 +61,12 @@ pub struct EffectAnswer {
     /// The fit (not serialised).
     #[serde(skip)]
     pub fit: Option<Fit>,
+    /// How the effect was estimated: `adjustment`, `front door`, or none.
+    pub route: Option<String>,
+    /// The front door's mediator model, its fit and its body (not
+    /// serialised); the outcome model is `model`, its body `model_text`.
+    #[serde(skip)]
+    pub mediator_model: Option<(Model, Fit, String)>,
 }
 
 /// Identify, build, fit and contrast the `kind` effect of `exposure` on
@@ -127,12 +134,42 @@ pub fn answer_effect_with_progress(
         warnings: Vec::new(),
         model: None,
         fit: None,
+        route: None,
+        mediator_model: None,
     };
     if identification.zero_by_graph && !options.check_zero {
         answer.why.push(format!(
             "the graph says this effect is zero, so nothing was fitted; add `checking zero` to the statement to estimate it{}",
             if identification.adjustment_sets.is_empty() { " (no set of observed nodes allows that here)" } else { " given the first set listed" }
         ));
+        return Ok(answer);
+    }
+    let front_door = identification.beyond.as_ref().filter(|b| b.route == "front door" && kind == EffectKind::Total);
+    if let (false, Some(beyond)) = (identification.identifiable, front_door) {
+        let [m] = beyond.front_door_set.as_slice() else {
+            answer.why.push(format!(
+                "the front door runs through {} nodes together ({}); Waypath estimates it through one mediator only, so nothing was fitted",
+                beyond.front_door_set.len(),
+                beyond.front_door_set.join(", ")
+            ));
+            return Ok(answer);
+        };
+        let fd = front_door_estimate(table, exposure, m, outcome, method, cancel, mass, progress)?;
+        answer.why.extend(beyond.lines());
+        answer.estimand = Some(format!(
+            "average total effect on the mean outcome by the front-door formula through {m}: {m}'s response to {exposure}, \
+             combined with {outcome}'s response to {m} given the rows' own {exposure}"
+        ));
+        let [m_text, y_text] = fd.texts;
+        answer.model_text = Some(y_text);
+        answer.method = Some(method.describe());
+        answer.warnings.extend(fd.warnings);
+        answer.contrasts = fd.contrasts;
+        answer.route = Some("front door".into());
+        answer.adjustment_set = None;
+        answer.model = Some(fd.outcome.0);
+        answer.fit = Some(fd.outcome.1);
+        answer.mediator_model = Some((fd.mediator.0, fd.mediator.1, m_text));
         return Ok(answer);
     }
     let Some(set) = identification.adjustment_sets.first().filter(|_| identification.identifiable) else {
@@ -175,6 +212,7 @@ pub fn answer_effect_with_progress(
         .map(|request| contrast(&model, &fit.draws, table, request))
         .collect::<Result<_, _>>()?;
     answer.adjustment_set = Some(set.clone());
+    answer.route = Some("adjustment".into());
     answer.model_text = Some(lines.join("\n"));
     answer.method = Some(method.describe());
     answer.model = Some(model);

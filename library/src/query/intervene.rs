@@ -128,6 +128,7 @@ pub fn intervene_with_cancel(
     }
     refuse_hidden_routes(joint, x, &request.watch, &place)?;
     let simulated = nodes_to_simulate(joint, x, &request.watch)?;
+    refuse_hidden_confounding(joint, x, &request.watch, &simulated, &place, cancel)?;
     check_rows_memory(table, request, simulated.len(), &place)?;
     let (base, rows_source) = base_rows(table, request)?;
     let steps = simulation_steps(joint, fit, &simulated, &place)?;
@@ -210,6 +211,78 @@ fn refuse_hidden_routes(joint: &JointModel, x: &str, watch: &[String], place: &s
         }
     }
     Ok(())
+}
+
+/// An error when a hidden common cause touches what the joint model would
+/// simulate. The joint model fits every node from its observed parents, so
+/// a hidden cause of a simulated node and of the exposure, of another
+/// simulated node, or of a simulated node's observed parent would be left
+/// out of the simulation and bias it. Then the complete algorithm
+/// (Shpitser & Pearl 2006) decides what to say: not identifiable (the
+/// hedge), or identifiable by a formula the joint model does not simulate.
+fn refuse_hidden_confounding(joint: &JointModel, x: &str, watch: &[String], simulated: &[String], place: &str, cancel: &AtomicBool) -> Result<(), QueryError> {
+    let graph = &joint.graph;
+    let mut touched: Vec<String> = vec![x.to_string()];
+    touched.extend(simulated.iter().cloned());
+    for s in simulated {
+        touched.extend(graph.parents(s)?.into_iter().map(str::to_string));
+    }
+    let mut culprit = None;
+    for h in graph.nodes().iter().filter(|n| n.hidden) {
+        let reached = hidden_reach(graph, &h.name)?;
+        let a = reached.iter().find(|r| simulated.contains(r));
+        let b = a.and_then(|a| reached.iter().find(|r| *r != a && touched.contains(r)));
+        if let (Some(a), Some(b)) = (a, b) {
+            culprit = Some((h.name.clone(), a.clone(), b.clone()));
+            break;
+        }
+    }
+    let Some((h, a, b)) = culprit else {
+        return Ok(());
+    };
+    let g = graph.name();
+    match graph.identify_intervention_with_cancel(&[x.to_string()], watch, cancel)? {
+        crate::graph::Complete::Identified { .. } => Err(QueryError::request(format!(
+            "{place}: the hidden node {h} is a common cause of {a} and {b}, which the joint model (one regression per node \
+             from its observed parents) cannot simulate; the effect of setting {x} is identifiable by a formula instead: \
+             ask `ask total effect of {x} on {} in {g}` for it, and add `using TABLE` to estimate it when it runs through the front door",
+            watch.join(", ")
+        ))),
+        crate::graph::Complete::NotIdentified { hedge } => Err(QueryError::request(format!(
+            "{place}: the effect of setting {x} on {} is not identifiable in graph {g}: the hidden common cause{} {} join{} \
+             {{{}}} and {{{}}} (a hedge, Shpitser & Pearl 2006), so models that agree on every observed value differ in this \
+             effect, and a joint model that leaves the hidden nodes out would report a number the data cannot back; \
+             measure one of the hidden causes",
+            watch.join(", "),
+            if hedge.hidden_causes.len() == 1 { "" } else { "s" },
+            hedge.hidden_causes.join(", "),
+            if hedge.hidden_causes.len() == 1 { "s" } else { "" },
+            hedge.outer.join(", "),
+            hedge.inner.join(", "),
+        ))),
+    }
+}
+
+/// Observed nodes reached from the hidden node `h` along directed paths
+/// whose inner nodes are hidden.
+fn hidden_reach(graph: &crate::graph::Graph, h: &str) -> Result<Vec<String>, QueryError> {
+    let mut out = Vec::new();
+    let mut seen = vec![h.to_string()];
+    let mut stack = vec![h.to_string()];
+    while let Some(node) = stack.pop() {
+        for c in graph.children(&node)? {
+            if seen.iter().any(|s| s == c) {
+                continue;
+            }
+            seen.push(c.to_string());
+            if graph.is_hidden(c)? {
+                stack.push(c.to_string());
+            } else {
+                out.push(c.to_string());
+            }
+        }
+    }
+    Ok(out)
 }
 
 /// Observed descendants of `x` that are watched or lead to a watched node,

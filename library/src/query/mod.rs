@@ -25,11 +25,13 @@ pub mod answer;
 pub mod calibrate;
 pub mod contrast;
 mod error;
+pub mod front_door;
 pub mod implications;
 pub mod intervene;
 pub mod joint;
 pub mod mechanism;
 pub mod recover;
+pub mod robustness;
 pub mod simulate;
 mod support;
 
@@ -37,10 +39,12 @@ pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectA
 pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
 pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use error::QueryError;
+pub use front_door::{front_door_estimate, FrontDoorFit, FRONT_DOOR_SEED};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
+pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;

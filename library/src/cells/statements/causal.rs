@@ -134,18 +134,32 @@ pub(crate) fn ask(session: &mut Session, st: &Statement, control: &RunControl) -
     let answer = answer.map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     let mut display = describe_identification(&answer);
     let adjusted = answer.adjustment_sets.first().cloned().unwrap_or_default();
-    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new() };
+    let (formula, hedge) = beyond_marks(&answer);
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new(), formula: &formula, hedge: &hedge };
     display.svg = figures::graph(graph, &format!("{kind} effect of {x} on {y} in {g}"), &marks).ok();
     Ok(vec![display])
+}
+
+/// The nodes a figure marks as used by the identifying formula, and as
+/// the hedge (with the hidden causes joining it).
+pub(crate) fn beyond_marks(id: &Identification) -> (Vec<String>, Vec<String>) {
+    let Some(beyond) = &id.beyond else {
+        return (Vec::new(), Vec::new());
+    };
+    let hedge = beyond.hedge.iter().flat_map(|h| h.outer.iter().chain(&h.hidden_causes).cloned()).collect();
+    (beyond.formula_nodes.clone(), hedge)
 }
 
 pub(crate) fn describe_identification(id: &Identification) -> Display {
     let query = serde_json::to_value(id.query).unwrap_or_default();
     let query = query.as_str().unwrap_or("effect").to_string();
-    let verdict = match (id.zero_by_graph, id.identifiable) {
-        (true, _) => "zero by the graph",
-        (false, true) => "identifiable",
-        (false, false) => "NOT identifiable by adjustment",
+    let verdict = match (id.zero_by_graph, id.identifiable, &id.beyond) {
+        (true, _, _) => "zero by the graph",
+        (false, true, _) => "identifiable",
+        (false, false, Some(b)) if b.identified && b.route == "front door" => "identifiable through the front door (not by adjustment)",
+        (false, false, Some(b)) if b.identified => "identifiable by the complete algorithm (not by adjustment)",
+        (false, false, Some(_)) => "NOT identifiable",
+        (false, false, None) => "NOT identifiable by adjustment",
     };
     let heading = format!("{query} of {} on {}: {verdict}", id.exposure, id.outcome);
     let set_column = if id.zero_by_graph { "to check the zero, stratify by" } else { "stratify by" };
@@ -164,6 +178,9 @@ pub(crate) fn describe_identification(id: &Identification) -> Display {
     if !id.search_complete {
         notes.push("the search stopped at its limit; further minimal sets may exist".to_string());
     }
+    if let Some(beyond) = &id.beyond {
+        notes.extend(beyond.lines());
+    }
     notes.push("this answer rests on the graph as written: an arrow left out is a claim of no effect".to_string());
     for n in &notes {
         plain.push_str(&format!("\n• {n}"));
@@ -177,6 +194,7 @@ pub(crate) fn describe_identification(id: &Identification) -> Display {
         "zero_by_graph": id.zero_by_graph,
         "adjustment_sets": id.adjustment_sets,
         "reason": id.reason,
+        "beyond_adjustment": id.beyond,
     });
     Display { plain, html: Some(html_block(&heading, &parts)), svg: None, json: Some(json) }
 }
@@ -225,7 +243,7 @@ pub(crate) fn paths(session: &mut Session, st: &Statement, control: &RunControl)
         plain.push_str(&format!("\n• {n}"));
     }
     let highlight = open_edges(reports);
-    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &given, highlight };
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &given, highlight, ..Default::default() };
     let svg = figures::graph(graph, &format!("open paths from {x} to {y} in {g}"), &marks).ok();
     let mut parts = vec![grid.to_html()];
     if !notes.is_empty() {

@@ -299,6 +299,13 @@ pub const JOINT: Form = Form {
     method: false,
     usage: "joint NAME = GRAPH using TABLE  (end with ':' to override a node below, e.g. `girth from rootstock`)",
 };
+/// `robustness of MODEL: X` — the contrast under an assumed hidden common cause.
+pub const ROBUSTNESS: Form = Form {
+    slots: &[Word("robustness"), Word("of"), Value, Word(":"), Value],
+    options: &[INTERVALS_OPTION],
+    method: false,
+    usage: "robustness of MODEL: X [intervals P%]",
+};
 pub const INTERVENE: Form = Form {
     slots: &[Word("intervene"), Value, Word(":"), Word("set"), Value, Value, Word("vs"), Value, Word("watch")],
     options: &[&[Word("rows"), Value], SEED, INTERVALS_OPTION],
@@ -332,8 +339,8 @@ pub const CHECK: Form = Form { slots: &[Word("check"), Value], options: CHECK_OP
 /// Every header form, in the order statement words are listed to users.
 pub const FORMS: &[Form] = &[
     TABLE, GRAPH, GRAPH_FILE, ASK, ASK_USING, PATHS, IMPLICATIONS, IMPLICATIONS_CHECKED, MODEL, FIT, SHOW, EXPORT, PLOT,
-    SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK, CHECK,
-    INTERVALS,
+    SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, ROBUSTNESS, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK,
+    CHECK, INTERVALS,
 ];
 
 /// The words that start a statement, in [`FORMS`] order.
@@ -496,7 +503,8 @@ mod tests {
     fn statement_words_are_those_the_readme_lists() {
         let readme = [
             "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save",
-            "contrast", "compare", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check", "intervals",
+            "contrast", "compare", "robustness", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+            "intervals",
         ];
         assert_eq!(statement_words(), readme);
     }

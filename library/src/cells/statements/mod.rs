@@ -38,6 +38,7 @@ pub(crate) fn run(
         "implications" => causal::implications(session, st, control),
         "contrast" => questions::contrast(session, st),
         "compare" => questions::compare_routes(session, st, control, warnings),
+        "robustness" => questions::robustness(session, st),
         "model" => fitting::model(session, st),
         "fit" if simulation::names_joint(session, head) => simulation::fit_joint(session, st, control, warnings),
         "fit" => fitting::fit(session, st, control, warnings),

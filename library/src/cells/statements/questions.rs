@@ -14,7 +14,7 @@ use std::sync::atomic::Ordering;
 use serde_json::{json, Value};
 
 use super::fitting::{parse_method, require_fit};
-use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
+use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED, ROBUSTNESS};
 use super::{header, interval_option, option_text};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::fit_summary::{share_above_zero, ABOVE_ZERO_HEAD, FEW_ROWS, UNIT_HEAD};
@@ -390,7 +390,8 @@ pub(crate) fn ask_using(
     check_cancel(control, &label, line)?;
     let mut first = super::causal::describe_identification(&answer.identification);
     let adjusted = answer.adjustment_set.clone().unwrap_or_default();
-    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new() };
+    let (formula_nodes, hedge_nodes) = super::causal::beyond_marks(&answer.identification);
+    let marks = GraphMarks { exposure: Some(x), outcome: Some(y), adjusted: &adjusted, highlight: Vec::new(), formula: &formula_nodes, hedge: &hedge_nodes };
     first.svg = figures::graph(graph, &format!("{kind} effect of {x} on {y} in {g}"), &marks).ok();
     warnings.extend(answer.warnings.iter().map(|w| format!("{label}: {w}")));
 
@@ -398,21 +399,26 @@ pub(crate) fn ask_using(
     let mut json = json!({
         "query": format!("{kind} effect"), "exposure": x, "outcome": y, "identifiable": id.identifiable, "zero_by_graph": id.zero_by_graph,
         "adjustment_sets": id.adjustment_sets, "reason": id.reason, "adjustment_set": answer.adjustment_set,
-        "table": t, "model": answer.model_text, "why": answer.why, "method": answer.method, "estimand": answer.estimand,
+        "table": t, "model": answer.model_text, "route": answer.route, "beyond_adjustment": id.beyond, "why": answer.why, "method": answer.method, "estimand": answer.estimand,
         "contrasts": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "warnings": answer.warnings,
     });
     let (Some(model), Some(fit), Some(model_text)) = (answer.model, answer.fit, answer.model_text) else {
-        let heading = if id.zero_by_graph {
-            format!("{kind} effect of {x} on {y} in {g}: zero by the graph's assumptions, so nothing was fitted")
-        } else {
-            format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted")
+        let heading = match &id.beyond {
+            _ if id.zero_by_graph => format!("{kind} effect of {x} on {y} in {g}: zero by the graph's assumptions, so nothing was fitted"),
+            Some(b) if b.identified => format!("{kind} effect of {x} on {y} in {g}: identifiable by a formula Waypath does not yet estimate, so nothing was fitted"),
+            Some(_) => format!("{kind} effect of {x} on {y} in {g}: not identifiable, so nothing was fitted"),
+            None => format!("{kind} effect of {x} on {y} in {g}: not identifiable by adjustment, so nothing was fitted"),
         };
         let (plain, html) = render(&heading, &[], &[], &answer.why);
         json["model_name"] = Value::Null;
         return Ok(vec![first, Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
     let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
-    let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, stratifying by {set_words}");
+    let route_words = match id.beyond.as_ref().filter(|_| answer.route.as_deref() == Some("front door")) {
+        Some(b) => format!("through the front door via {}", b.front_door_set.join(", ")),
+        None => format!("stratifying by {set_words}"),
+    };
+    let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, {route_words}");
     let mut grid = summary_grid(&["contrast", "scale"], mass);
     let mut sparse = Vec::new();
     for c in &answer.contrasts {
@@ -423,6 +429,9 @@ pub(crate) fn ask_using(
     }
     json["sparse_levels"] = json!(sparse);
     let mut model_grid = Grid::new(&["model built"]);
+    if let Some((_, _, m_text)) = &answer.mediator_model {
+        m_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
+    }
     model_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
     let mut notes: Vec<String> = answer.estimand.iter().map(|e| format!("estimand: {e}")).collect();
     notes.extend(answer.why.iter().cloned());
@@ -434,6 +443,9 @@ pub(crate) fn ask_using(
     notes.extend(answer.warnings.iter().map(|w| format!("warning: {w}")));
     let name = model.name().to_string();
     notes.push(format!("the model is kept as {name}: `show {name}`, `contrast {name}: …` and `check {name}` work on it"));
+    if let Some((m_model, _, _)) = &answer.mediator_model {
+        notes.push(format!("the mediator's model is kept as {}", m_model.name()));
+    }
     notes.push(CAUSAL_NOTE.to_string());
     let lead: Vec<String> = if sparse.is_empty() { Vec::new() } else { vec![sparse_alert(&sparse)] };
     let (plain, html) = render(&heading, &lead, &[("", &model_grid), ("contrasts:", &grid)], &notes);
@@ -446,6 +458,14 @@ pub(crate) fn ask_using(
     }
     session.models.insert(name.clone(), model);
     session.fits.insert(name, fit);
+    if let Some((m_model, m_fit, m_text)) = answer.mediator_model {
+        let m_name = m_model.name().to_string();
+        if let Ok(spec) = ModelSpec::from_lines(&m_name, m_text.lines().enumerate().map(|(i, l)| (i + 1, l))) {
+            session.specs.insert(m_name.clone(), spec);
+        }
+        session.models.insert(m_name.clone(), m_model);
+        session.fits.insert(m_name, m_fit);
+    }
     Ok(vec![first, Display { plain, html: Some(html), svg, json: Some(json) }])
 }
 
@@ -484,6 +504,9 @@ pub(crate) fn compare_routes(
                           "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
+    if answer.route.as_deref() == Some("front door") {
+        return Ok(vec![front_door_only(&answer, x, y, g, mass)]);
+    }
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
     let node_progress = joint_progress(control, &label, "joint model, ");
     (control.progress)(&format!("{label}: fitting one regression per node of {g}"));
@@ -591,6 +614,87 @@ fn check_settings(table: &Table, x: &str, settings: Option<&(String, String)>) -
         )),
         _ => None,
     })
+}
+
+/// The answer of `compare routes` when the effect runs through the front
+/// door: the joint model (each node from its observed parents) cannot
+/// simulate a hidden common cause, so there is one route only.
+fn front_door_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &str, mass: f64) -> Display {
+    let heading = format!(
+        "total effect of {x} on {y} in {g}: one route only — the front door; no adjustment set exists and the joint model cannot simulate the hidden common cause"
+    );
+    let mut grid = summary_grid(&["route", "contrast"], mass);
+    for c in &answer.contrasts {
+        let mut row = vec!["front door".to_string(), c.contrast.clone()];
+        row.extend(summary_cells(&c.summary(), c.unit.as_deref()));
+        grid.push(row);
+    }
+    let mut notes = answer.why.clone();
+    notes.push(CAUSAL_NOTE.to_string());
+    let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
+    let json = json!({"question": answer.question, "identifiable": false, "route": "front door",
+                      "front_door": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": null,
+                      "difference": null, "notes": notes});
+    Display { plain, html: Some(html), svg: None, json: Some(json) }
+}
+
+/// `robustness of M: X`: the one-unit contrast of X under an assumed
+/// hidden common cause of X and M's outcome, over both strengths.
+pub(crate) fn robustness(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let ([name, x], options) = header(st, &ROBUSTNESS)?;
+    let (mass, _) = interval_option(options, line)?;
+    let mass = session.interval_mass(mass);
+    let fit = require_fit(session, name, line)?;
+    let model = &session.models[name];
+    let table = session.require_table(model.table_name(), line)?;
+    let r = crate::query::robustness(model, &fit.draws, table, x, mass).map_err(|e| query_error(e, line))?;
+    let y = &r.outcome;
+    let heading = format!(
+        "robustness of {name}: {x} on {y} = {} ({} {} to {}); a hidden common cause moves it to zero once γ·δ reaches {}",
+        num(r.mean),
+        r.interval,
+        num(r.lower),
+        num(r.upper),
+        num(r.explain_away)
+    );
+    let mut grid = Grid::new(&["yardstick", "δ (→ exposure)", "γ (→ outcome)", "γ·δ", "mean if a hidden cause were as strong"])
+        .numeric_columns(&[1, 2, 3, 4]);
+    for ys in &r.yardsticks {
+        grid.push(vec![ys.node.clone(), num(ys.to_exposure), num(ys.to_outcome), num(ys.to_exposure * ys.to_outcome), num(ys.adjusted_mean)]);
+    }
+    let mut notes = vec![
+        format!("δ: the hidden cause's mean difference, in its standard deviations, per unit of {x}, given the other predictors"),
+        format!("γ: the change in {y}'s mean per standard deviation of the hidden cause, given {x} and the other predictors"),
+        format!("the mean reaches zero where γ·δ = {}", num(r.explain_away)),
+        if r.interval_reaches_zero > 0.0 {
+            format!("the {} first holds zero where γ·δ = {}", r.interval, num(r.interval_reaches_zero))
+        } else {
+            format!("the fitted {} already holds zero", r.interval)
+        },
+    ];
+    notes.extend(r.notes.iter().cloned());
+    notes.push("a yardstick places an observed predictor on the same axes; a hidden cause like it is an assumption, not a finding".to_string());
+    notes.push(CAUSAL_NOTE.to_string());
+    let grids: Vec<(&str, &Grid)> = if grid.rows.is_empty() { Vec::new() } else { vec![("observed predictors as yardsticks:", &grid)] };
+    let (plain, html) = render(&heading, &[], &grids, &notes);
+    let yard: Vec<(String, f64, f64)> = r.yardsticks.iter().map(|y| (y.node.clone(), y.to_exposure, y.to_outcome)).collect();
+    let picture = crate::plot::RobustnessPicture {
+        subject: name,
+        exposure: x,
+        outcome: y,
+        to_exposure: &r.to_exposure,
+        to_outcome: &r.to_outcome,
+        adjusted_mean: &r.adjusted_mean,
+        still_excludes_zero: &r.still_excludes_zero,
+        sign: if r.mean >= 0.0 { 1.0 } else { -1.0 },
+        explain_away: r.explain_away,
+        interval_reaches_zero: r.interval_reaches_zero,
+        interval: &r.interval,
+        yardsticks: &yard,
+    };
+    let svg = crate::plot::robustness_figure(&picture).ok();
+    Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&r)) }])
 }
 
 /// `implications of G checked against T [with …]`.

@@ -4,7 +4,9 @@
 //! "lines": [..] (optional, cell body lines), "dot": ".." (optional), "queries": [..]}]}`.
 //! A query is one of `{"kind": "dsep", "xs", "ys", "zs"}`, `{"kind": "total" | "direct",
 //! "exposure", "outcome"}`, `{"kind": "paths" | "listing", "from", "to", "given"}`,
-//! `{"kind": "implications"}`. `listing` answers with the bounded path listing
+//! `{"kind": "implications"}`, `{"kind": "identify", "set": [..], "watch": [..]}` (the complete
+//! algorithm: `{"verdict": "identified", "formula"}` or `{"verdict": "not_identified", "hedge"}`),
+//! `{"kind": "front_door", "exposure", "outcome"}` (`[set, formula]` or null). `listing` answers with the bounded path listing
 //! (`paths`, `complete`, `separated`, `directed_paths`).
 //!
 //! Answer: `{"graphs": [{"name", "error"?, "order", "answers": [..]}]}`, one answer per
@@ -67,6 +69,8 @@ fn answer_query(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
             json!(graph.path_listing(&text("from"), &text("to"), &strings(&q["given"]), &never)?)
         }
         "implications" => json!(graph.implications()),
+        "identify" => json!(graph.identify_intervention(&strings(&q["set"]), &strings(&q["watch"]))?),
+        "front_door" => json!(graph.front_door(&text("exposure"), &text("outcome"))?),
         other => json!({ "error": format!("unknown query kind `{other}`") }),
     })
 }
