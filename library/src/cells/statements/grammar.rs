@@ -49,6 +49,7 @@ impl Slot {
 }
 
 use Slot::{Choice, Quoted, Value, Word};
+use crate::infer::nuts::MASS_WORDS;
 
 /// The grammar of one statement header.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -167,7 +168,7 @@ pub const METHODS: &[&str] = &["laplace", "nuts"];
 /// The options of `with laplace`, each followed by its value.
 pub const LAPLACE_OPTIONS: &[&str] = &["draws", "seed"];
 /// The options of `with nuts`, each followed by its value.
-pub const NUTS_OPTIONS: &[&str] = &["chains", "settle", "draws", "acceptance", "doublings", "seed"];
+pub const NUTS_OPTIONS: &[&str] = &["chains", "settle", "draws", "acceptance", "doublings", "mass", "seed"];
 /// Sampler option words of earlier versions of Waypath, each with the word
 /// that replaced it: a notebook that still writes one gets an error naming
 /// the new word rather than a silent change of meaning.
@@ -226,7 +227,7 @@ pub const FIT: Form = Form {
     slots: &[Word("fit"), Value],
     options: &[],
     method: true,
-    usage: "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [seed N]]",
+    usage: "fit NAME [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [mass diagonal|low-rank] [seed N]]",
 };
 pub const SHOW: Form = Form { slots: &[Word("show"), Value], options: &[], method: false, usage: "show NAME" };
 pub const EXPORT: Form = Form {
@@ -441,7 +442,10 @@ fn method_next(after: &[&str], next: &mut Next) {
         _ => return,
     };
     if options.len() % 2 == 1 {
-        next.values = true;
+        match options.last() {
+            Some(&"mass") if *kind == "nuts" => next.add(MASS_WORDS),
+            _ => next.values = true,
+        }
         return;
     }
     let used: Vec<&str> = options.iter().step_by(2).copied().collect();
