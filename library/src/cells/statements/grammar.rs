@@ -458,6 +458,16 @@ mod tests {
     //! Headers written as the README's "Statements" table documents them.
     use super::*;
 
+    /// README, Statements: `mass` takes `diagonal` or `low-rank`, and an
+    /// option once given is not offered again.
+    #[test]
+    fn the_mass_option_offers_its_two_words() {
+        assert_eq!(next_words("fit m with nuts mass").words, MASS_WORDS);
+        let after = next_words("fit m with nuts mass low-rank").words;
+        assert!(after.contains(&"seed") && !after.contains(&"mass"), "{after:?}");
+        assert!(!next_words("fit m with nuts seed").words.contains(&"diagonal"));
+    }
+
     #[test]
     fn a_header_keeps_its_values_and_hands_on_its_options() {
         let (kept, rest) = ASK_USING.read_n::<5>("ask total effect of x on y in g using t with nuts seed 2").unwrap();
