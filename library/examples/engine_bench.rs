@@ -20,12 +20,20 @@
 //! * `c` — nesting success of birds on 10,000 plots against 20 habitat
 //!   measures, bernoulli family (logit link), NUTS;
 //! * `d` — sapling height along age, cubic B-spline with 15 basis
-//!   functions, n = 1,000, NUTS.
+//!   functions, n = 1,000, NUTS;
+//! * `e` — mayfly nymph counts in 20,000 stream samples against 10 water
+//!   measures (pairs of them correlated), poisson family (log link), NUTS;
+//! * `f` — seeds that germinated out of the 1 to 40 sown in each of 5,000
+//!   trays against 5 soil measures, binomial family (logit link), NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
-//! that ESS per wall second, the smallest tail ESS, the largest R-hat,
-//! divergent trajectories, the deepest trajectory (doublings) and the draws
-//! that reached the doubling limit, and the peak resident memory of the case
+//! that ESS per wall second and per CPU second, the smallest tail ESS, the
+//! largest R-hat, divergent trajectories, the deepest trajectory (doublings)
+//! and the draws that reached the doubling limit, the leapfrog steps per
+//! kept draw and the adapted step size (so that a gain in ESS per second can
+//! be told from a sampler that stopped exploring), the mass matrix the fit
+//! ran with and the design's condition number that chose it
+//! (`infer::fit::mass_matrix_for`), and the peak resident memory of the case
 //! (`VmHWM` of `/proc/self/status`, reset before each case through
 //! `/proc/self/clear_refs` where the kernel allows it). Wall seconds cover
 //! everything the case does after its data exist, diagnostics included;
@@ -43,7 +51,7 @@ use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Normal};
 use waypath::draws::SummarySpec;
-use waypath::infer::fit::{fit_model, Fit, Method};
+use waypath::infer::fit::{design_condition, fit_model, Fit, Method};
 use waypath::infer::nuts::NutsSettings;
 use waypath::model::{Model, ModelSpec};
 use waypath::table::{load_table, parse_table_line, Column, ColumnData, Table, TableSpec};
@@ -61,6 +69,10 @@ struct Row {
     divergences: usize,
     deepest: u32,
     depth_hits: usize,
+    steps_per_draw: Option<f64>,
+    step_size: Option<f64>,
+    /// The mass matrix the fit ran with, and the design's condition number.
+    mass: Option<(String, f64)>,
     peak_mib: f64,
 }
 
@@ -89,6 +101,12 @@ fn main() {
     }
     if wants("d") {
         rows.push(case_spline(nuts));
+    }
+    if wants("e") {
+        rows.push(case_poisson(nuts));
+    }
+    if wants("f") {
+        rows.push(case_binomial(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -172,7 +190,7 @@ fn case_stratified(nuts: &NutsSettings) -> Row {
     let started = Clock::start();
     let model = build("m_reach", STRATIFIED_MODEL, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
-    row("(a) stratified normal, n = 400, NUTS", started, &fit)
+    row("(a) stratified normal, n = 400, NUTS", started, &fit, &model)
 }
 
 const STRATIFIED_MODEL: &str = "density from reach, depth per reach using reaches";
@@ -186,14 +204,14 @@ fn case_million(nuts: &NutsSettings) -> Vec<Row> {
     let (model, steps) = million_to_model(&path);
     let fit = run_fit(&model, &Method::Laplace { draws: 4000, seed: 7 });
     let shown = summary_text(&fit);
-    let laplace_row = row("(b) same, n = 1,000,000, CSV → Laplace summary", started, &fit);
+    let laplace_row = row("(b) same, n = 1,000,000, CSV → Laplace summary", started, &fit, &model);
     eprintln!("{steps}laplace + summary {:.2} s\n{shown}", started.wall.elapsed().as_secs_f64());
     let _ = std::fs::remove_file(&path);
 
     reset_peak_memory();
     let started = Clock::start();
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
-    vec![laplace_row, row("(b) same, n = 1,000,000, NUTS on the built model", started, &fit)]
+    vec![laplace_row, row("(b) same, n = 1,000,000, NUTS on the built model", started, &fit, &model)]
 }
 
 /// Read the CSV into a table and build the model, reporting the time of each step.
@@ -221,7 +239,7 @@ fn case_logistic(nuts: &NutsSettings) -> Row {
     let started = Clock::start();
     let model = build("m_nest", &body, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
-    row("(c) logistic, 20 predictors, n = 10,000, NUTS", started, &fit)
+    row("(c) logistic, 20 predictors, n = 10,000, NUTS", started, &fit, &model)
 }
 
 /// (d) A cubic B-spline with 15 basis functions, n = 1,000.
@@ -231,7 +249,30 @@ fn case_spline(nuts: &NutsSettings) -> Row {
     let started = Clock::start();
     let model = build("m_growth", "height from spline(age, 15) using saplings", &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
-    row("(d) B-spline, 15 functions, n = 1,000, NUTS", started, &fit)
+    row("(d) B-spline, 15 functions, n = 1,000, NUTS", started, &fit, &model)
+}
+
+/// (e) Poisson regression on 10 predictors, n = 20,000.
+fn case_poisson(nuts: &NutsSettings) -> Row {
+    let table = samples(20_000, 15);
+    let terms: Vec<String> = (1..=10).map(|j| format!("w{j}")).collect();
+    let body = format!("nymphs from {} using samples\nfamily poisson", terms.join(", "));
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_nymphs", &body, &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(e) poisson, 10 predictors, n = 20,000, NUTS", started, &fit, &model)
+}
+
+/// (f) Binomial regression on 5 predictors, n = 5,000, trials 1 to 40.
+fn case_binomial(nuts: &NutsSettings) -> Row {
+    let table = trays(5_000, 16);
+    let body = "sprouted from s1, s2, s3, s4, s5 using trays\nfamily binomial out of sown";
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_trays", body, &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(f) binomial, 5 predictors, n = 5,000, NUTS", started, &fit, &model)
 }
 
 fn build(name: &str, body: &str, table: &Table) -> Model {
@@ -248,7 +289,7 @@ fn run_fit(model: &Model, method: &Method) -> Fit {
     fit
 }
 
-fn row(case: &str, started: Clock, fit: &Fit) -> Row {
+fn row(case: &str, started: Clock, fit: &Fit, model: &Model) -> Row {
     let seconds = started.wall.elapsed().as_secs_f64();
     let cpu_seconds = cpu_seconds() - started.cpu;
     let over = |value: fn(&waypath::infer::diagnostics::ParamDiagnostics) -> f64, largest: bool| {
@@ -267,6 +308,12 @@ fn row(case: &str, started: Clock, fit: &Fit) -> Row {
         divergences: fit.divergences,
         deepest: fit.deepest,
         depth_hits: fit.depth_hits,
+        steps_per_draw: fit.steps_per_draw,
+        step_size: fit.step_size,
+        mass: match &fit.method {
+            Method::Nuts(s) => Some((s.mass.word().to_string(), design_condition(model.design_matrix()))),
+            Method::Laplace { .. } => None,
+        },
         peak_mib: peak_memory_mib(),
     }
 }
@@ -282,20 +329,23 @@ fn summary_text(fit: &Fit) -> String {
 
 fn render(rows: &[Row]) -> String {
     let mut out = String::from(
-        "| case | wall s | CPU s | min bulk ESS | ESS/s | min tail ESS | max R-hat | divergent | deepest (at limit) | peak memory (MiB) |\n\
-         |---|---|---|---|---|---|---|---|---|---|\n",
+        "| case | wall s | CPU s | min bulk ESS | ESS/s | ESS/CPU s | min tail ESS | max R-hat | divergent | deepest (at limit) | steps/draw | step size | mass matrix (design condition) | peak memory (MiB) |\n\
+         |---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n",
     );
+    let or_dash = |value: Option<String>| value.unwrap_or_else(|| "—".into());
     for r in rows {
-        let (ess, rate) = match r.min_ess {
-            Some(e) => (format!("{e:.0}"), format!("{:.0}", e / r.seconds)),
-            None => ("—".into(), "—".into()),
-        };
-        let tail = r.min_tail.map_or("—".into(), |t| format!("{t:.0}"));
-        let rhat = r.max_rhat.map_or("—".into(), |x| format!("{x:.3}"));
-        let depth = if r.min_ess.is_some() { format!("{} ({})", r.deepest, r.depth_hits) } else { "—".into() };
+        let ess = or_dash(r.min_ess.map(|e| format!("{e:.0}")));
+        let rate = or_dash(r.min_ess.map(|e| format!("{:.0}", e / r.seconds)));
+        let cpu_rate = or_dash(r.min_ess.map(|e| format!("{:.0}", e / r.cpu_seconds)));
+        let tail = or_dash(r.min_tail.map(|t| format!("{t:.0}")));
+        let rhat = or_dash(r.max_rhat.map(|x| format!("{x:.3}")));
+        let depth = or_dash(r.min_ess.map(|_| format!("{} ({})", r.deepest, r.depth_hits)));
+        let steps = or_dash(r.steps_per_draw.map(|x| format!("{x:.2}")));
+        let step_size = or_dash(r.step_size.map(|x| format!("{x:.3}")));
+        let mass = or_dash(r.mass.as_ref().map(|(word, condition)| format!("{word} ({condition:.1})")));
         let _ = writeln!(
             out,
-            "| {} | {:.2} | {:.2} | {ess} | {rate} | {tail} | {rhat} | {} | {depth} | {:.0} |",
+            "| {} | {:.2} | {:.2} | {ess} | {rate} | {cpu_rate} | {tail} | {rhat} | {} | {depth} | {steps} | {step_size} | {mass} | {:.0} |",
             r.case, r.seconds, r.cpu_seconds, r.divergences, r.peak_mib
         );
     }
@@ -391,6 +441,72 @@ fn plots(n: usize, seed: u64) -> Table {
         columns.into_iter().enumerate().map(|(j, c)| (format!("h{}", j + 1), ColumnData::Real(c))).collect();
     named.push(("nested".into(), ColumnData::Binary(nested)));
     Table { name: "plots".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
+}
+
+/// Mayfly nymphs counted in stream samples against 10 standardised water
+/// measures `w1` … `w10`; each even-numbered measure is correlated 0.6
+/// with the one before it (warmth and oxygen, flow and gravel, …).
+fn samples(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let effects = [0.3, -0.2, 0.15, 0.0, -0.25, 0.1, 0.0, 0.05, 0.2, -0.1];
+    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 10];
+    let mut nymphs = Vec::with_capacity(n);
+    for _ in 0..n {
+        let mut eta = 1.2;
+        let mut previous = 0.0;
+        for (j, (column, effect)) in columns.iter_mut().zip(&effects).enumerate() {
+            let fresh = noise.sample(&mut rng);
+            let w = if j % 2 == 1 { 0.6 * previous + 0.8 * fresh } else { fresh };
+            previous = w;
+            column.push(w);
+            eta += effect * w;
+        }
+        nymphs.push(poisson_draw(eta.exp(), &mut rng));
+    }
+    let mut named: Vec<(String, ColumnData)> =
+        columns.into_iter().enumerate().map(|(j, c)| (format!("w{}", j + 1), ColumnData::Real(c))).collect();
+    named.push(("nymphs".into(), ColumnData::Count(nymphs)));
+    Table { name: "samples".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
+}
+
+/// A Poisson draw by counting unit-rate arrivals (Knuth's multiplication
+/// method; fine for the small means here).
+fn poisson_draw(mean: f64, rng: &mut StdRng) -> u64 {
+    let limit = (-mean).exp();
+    let (mut count, mut product) = (0, rng.random::<f64>());
+    while product > limit {
+        count += 1;
+        product *= rng.random::<f64>();
+    }
+    count
+}
+
+/// Seed trays: how many of the seeds sown (1 to 40) sprouted, against 5
+/// standardised soil measures `s1` … `s5`.
+fn trays(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let effects = [0.5, -0.3, 0.2, 0.0, 0.1];
+    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 5];
+    let (mut sown, mut sprouted) = (Vec::with_capacity(n), Vec::with_capacity(n));
+    for _ in 0..n {
+        let mut eta = 0.3;
+        for (column, effect) in columns.iter_mut().zip(&effects) {
+            let s = noise.sample(&mut rng);
+            column.push(s);
+            eta += effect * s;
+        }
+        let m: u64 = rng.random_range(1..=40);
+        let p = 1.0 / (1.0 + (-eta as f64).exp());
+        sprouted.push((0..m).filter(|_| rng.random::<f64>() < p).count() as u64);
+        sown.push(m);
+    }
+    let mut named: Vec<(String, ColumnData)> =
+        columns.into_iter().enumerate().map(|(j, c)| (format!("s{}", j + 1), ColumnData::Real(c))).collect();
+    named.push(("sown".into(), ColumnData::Count(sown)));
+    named.push(("sprouted".into(), ColumnData::Count(sprouted)));
+    Table { name: "trays".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
 }
 
 /// Sapling height along age: a rise that levels off, with a dip.

@@ -227,7 +227,7 @@ fn malformed_headers_are_answered_with_their_documented_form() {
         assert!(m.starts_with(&format!("cannot read \"{cell}\"; the form is: {form}")), "{cell}: {m}");
     }
     let m = message(&mut session, "fit m with nuts steps 3");
-    assert!(m.starts_with("nuts takes chains, settle, draws, acceptance, doublings, seed — not `steps`"), "{m}");
+    assert!(m.starts_with("nuts takes chains, settle, draws, acceptance, doublings, mass, seed — not `steps`"), "{m}");
     for (old, new) in [("warmup", "settle"), ("accept", "acceptance"), ("depth", "doublings")] {
         let m = message(&mut session, &format!("fit m with nuts {old} 3"));
         assert!(m.starts_with(&format!("the nuts option `{old}` is now called `{new}`")), "{m}");

@@ -81,6 +81,7 @@ fn warnings_name_the_parameter_the_number_and_what_to_try() {
         depth_hits: vec![7, 0, 0, 0],
         deepest: vec![10, 4, 4, 4],
         step_sizes: vec![0.1; 4],
+        leapfrog_steps: vec![0; 4],
         seconds: 1.0,
     };
     let text = run_warnings(&run, &["girth slope".to_string()], &diagnose_run(&run), 10).join("\n");
@@ -103,6 +104,7 @@ fn a_stuck_run_is_warned_about() {
         depth_hits: vec![0; 4],
         deepest: vec![4; 4],
         step_sizes: vec![0.1; 4],
+        leapfrog_steps: vec![0; 4],
         seconds: 1.0,
     };
     let warnings = run_warnings(&run, &["spread".to_string()], &diagnose_run(&run), 10);
@@ -134,6 +136,7 @@ fn low_tail_ess_is_warned_about_even_when_bulk_ess_is_fine() {
         depth_hits: vec![0; 4],
         deepest: vec![4; 4],
         step_sizes: vec![0.1; 4],
+        leapfrog_steps: vec![0; 4],
         seconds: 1.0,
     };
     let warnings = run_warnings(&run, &["shade slope".to_string()], &[d], 10);

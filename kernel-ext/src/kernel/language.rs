@@ -382,9 +382,9 @@ mod tests {
             ("intervene j: set x 1 vs 0 ", &["watch"]),
             ("fit m ", &["intervals", "with"]),
             ("fit m with ", &["laplace", "nuts"]),
-            // README: NUTS options `chains`, `settle`, `draws`, `acceptance`, `doublings`, `seed`.
-            ("fit m with nuts ", &["acceptance", "chains", "doublings", "draws", "seed", "settle"]),
-            ("fit m with nuts chains 2 ", &["acceptance", "doublings", "draws", "seed", "settle"]),
+            // README: NUTS options `chains`, `settle`, `draws`, `acceptance`, `doublings`, `mass`, `seed`.
+            ("fit m with nuts ", &["acceptance", "chains", "doublings", "draws", "mass", "seed", "settle"]),
+            ("fit m with nuts chains 2 ", &["acceptance", "doublings", "draws", "mass", "seed", "settle"]),
             ("fit m with laplace ", &["draws", "seed"]),
             ("contrast m: x 1 vs 0 on ", &["means", "outcomes"]),
             ("contrast m: x along z ", &["from"]),

@@ -11,7 +11,7 @@ use crate::draws::Draws;
 use crate::infer::diagnostics::{diagnose, run_warnings, ParamDiagnostics};
 use crate::infer::laplace::{laplace_with_cancel, InferError};
 use crate::infer::normal_exact::normal_exact_draws;
-use crate::infer::nuts::{sample_nuts, Init, NutsError, NutsSettings, Progress};
+use crate::infer::nuts::{sample_nuts, Init, MassMatrix, NutsError, NutsSettings, Progress};
 use crate::limits::{bytes_for, check_memory};
 use crate::model::Model;
 
@@ -41,13 +41,14 @@ impl Method {
             ),
             Method::Nuts(s) => format!(
                 "NUTS on {} chains, each keeping {} draws after settling for {} ({} draws in all); \
-                 acceptance {}, up to {} doublings per trajectory, seed {}",
+                 acceptance {}, up to {} doublings per trajectory, mass matrix {}, seed {}",
                 s.chains,
                 s.draws,
                 s.settle,
                 s.chains.saturating_mul(s.draws),
                 s.acceptance,
                 s.doublings,
+                s.mass.word(),
                 s.seed
             ),
         }
@@ -82,6 +83,11 @@ pub struct Fit {
     pub depth_hits: usize,
     /// The most doublings any kept trajectory made (NUTS only; 0 otherwise).
     pub deepest: u32,
+    /// Leapfrog steps (gradient evaluations) per kept draw, over all
+    /// chains (NUTS only).
+    pub steps_per_draw: Option<f64>,
+    /// The adapted step size, averaged over the chains (NUTS only).
+    pub step_size: Option<f64>,
     pub warnings: Vec<String>,
     pub seconds: f64,
 }
@@ -110,6 +116,7 @@ pub fn fit_model(
     check_fit_memory(model, method).map_err(FitError::TooLarge)?;
     let started = std::time::Instant::now();
     let names = model.parameter_names();
+    let method = &with_mass_matrix_chosen(model, method);
     let (run, max_depth) = match method {
         Method::Laplace { draws, seed } => match model.normal_linear().and_then(|p| normal_exact_draws(&p, *draws, *seed)) {
             // The exact route is one short pass; the interrupt is read after it.
@@ -132,6 +139,15 @@ pub fn fit_model(
     let constrained: Vec<Vec<Vec<f64>>> =
         chains.iter().map(|chain| chain.iter().map(|theta| model.constrain(theta)).collect()).collect();
     let draws = Draws::from_chains(names.clone(), constrained).map_err(|e| FitError::Draws(e.to_string()))?;
+    let (steps_per_draw, step_size) = match &run {
+        Err(_) => (None, None),
+        Ok(run) => {
+            let kept: usize = run.draws.iter().map(Vec::len).sum();
+            let steps: u64 = run.leapfrog_steps.iter().sum();
+            let mean_step = run.step_sizes.iter().sum::<f64>() / run.step_sizes.len().max(1) as f64;
+            (Some(steps as f64 / kept.max(1) as f64), Some(mean_step))
+        }
+    };
     let (diagnostics, divergences, depth_hits, deepest, warnings) = match &run {
         Err(_) => (None, 0, 0, 0, Vec::new()),
         Ok(run) => {
@@ -149,9 +165,90 @@ pub fn fit_model(
         divergences,
         depth_hits,
         deepest,
+        steps_per_draw,
+        step_size,
         warnings,
         seconds: started.elapsed().as_secs_f64(),
     })
+}
+
+/// The method with a NUTS mass matrix left to the model replaced by
+/// [`mass_matrix_for`]'s choice, so that the fit records (and its settings
+/// line shows) the mass matrix it ran with.
+fn with_mass_matrix_chosen(model: &Model, method: &Method) -> Method {
+    match method {
+        Method::Nuts(s) if s.mass == MassMatrix::ByModel => {
+            Method::Nuts(NutsSettings { mass: mass_matrix_for(model), ..s.clone() })
+        }
+        other => other.clone(),
+    }
+}
+
+/// Above this condition number of the scaled design cross-product
+/// ([`design_condition`]) a model is fitted with the low-rank mass matrix.
+/// Two columns correlated ρ give (1 + ρ)/(1 − ρ), so 2 is one pair at
+/// ρ = 1/3. Measured (README, Performance): the benchmark's poisson case
+/// (pairs at ρ = 0.6, condition 4.2) gained half again in ESS with the
+/// low-rank matrix and the B-spline case (510) twentyfold; the cases at
+/// 1.1–1.2 gained nothing worth an eigen-decomposition.
+pub const LOW_RANK_CONDITION: f64 = 2.0;
+
+/// Waypath's rule for the mass matrix of a NUTS fit: low-rank when the
+/// design's columns overlap — the condition number of `XᵀX` scaled to a
+/// unit diagonal exceeds [`LOW_RANK_CONDITION`] — and diagonal otherwise.
+///
+/// Why the design: the curvature of a regression's log-likelihood is
+/// `XᵀWX` (W the rows' weights), so overlapping columns make correlated
+/// coefficients, whose posterior a diagonal mass matrix cannot round out
+/// (it only rescales each parameter, which is what the unit diagonal
+/// leaves aside). Columns that barely overlap leave a posterior the
+/// diagonal adaptation already handles, with no eigen-decompositions while
+/// settling. The benchmark measurements behind the threshold are in the
+/// README (Performance).
+pub fn mass_matrix_for(model: &Model) -> MassMatrix {
+    if design_condition(model.design_matrix()) > LOW_RANK_CONDITION {
+        MassMatrix::LowRank
+    } else {
+        MassMatrix::Diagonal
+    }
+}
+
+/// Rows of the design the mass-matrix rule reads at most (evenly spaced),
+/// so that the rule costs little next to the fit on any table.
+const RULE_ROWS: usize = 20_000;
+
+/// The condition number (largest over smallest eigenvalue) of the design's
+/// cross-product `XᵀX` scaled to a unit diagonal, from at most
+/// [`RULE_ROWS`] evenly spaced rows; columns that are zero on those rows
+/// are left out. Infinite when the columns are linearly dependent; 1 for
+/// orthogonal columns (and for a design of one column).
+pub fn design_condition(design: &nalgebra::DMatrix<f64>) -> f64 {
+    let (n, p) = design.shape();
+    let stride = n.div_ceil(RULE_ROWS).max(1);
+    let mut cross = nalgebra::DMatrix::<f64>::zeros(p, p);
+    for i in (0..n).step_by(stride) {
+        let row = design.row(i);
+        for j in 0..p {
+            for k in 0..=j {
+                cross[(j, k)] += row[j] * row[k];
+            }
+        }
+    }
+    let kept: Vec<usize> = (0..p).filter(|&j| cross[(j, j)] > 0.0).collect();
+    if kept.len() < 2 {
+        return 1.0;
+    }
+    let scaled = nalgebra::DMatrix::from_fn(kept.len(), kept.len(), |a, b| {
+        let (j, k) = (kept[a].max(kept[b]), kept[a].min(kept[b]));
+        cross[(j, k)] / (cross[(j, j)] * cross[(k, k)]).sqrt()
+    });
+    let eigenvalues = scaled.symmetric_eigenvalues();
+    let (low, high) = eigenvalues.iter().fold((f64::INFINITY, 0.0_f64), |(l, h), &v| (l.min(v), h.max(v)));
+    if low <= high * f64::EPSILON * kept.len() as f64 {
+        f64::INFINITY
+    } else {
+        high / low
+    }
 }
 
 fn cancelled(cancel: &AtomicBool) -> bool {
@@ -229,4 +326,44 @@ fn per_parameter_diagnostics(draws: &Draws) -> Vec<ParamDiagnostics> {
             diagnose(&chains)
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use nalgebra::DMatrix;
+
+    /// Two columns with cosine ρ scale to [[1, ρ], [ρ, 1]], whose
+    /// eigenvalues are 1 ± ρ: condition (1 + ρ)/(1 − ρ) (the 2 × 2
+    /// symmetric eigenproblem, any linear algebra text).
+    #[test]
+    fn condition_of_two_columns_is_one_plus_over_one_minus_their_cosine() {
+        let n = 1000;
+        let z: Vec<f64> = (0..n).map(|i| ((i * 7919 % 1000) as f64 / 1000.0 - 0.4995) * 2.0).collect();
+        let design = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { 0.8 + z[i] });
+        let column = design.column(1);
+        let rho = column.sum() / (n as f64 * column.dot(&column)).sqrt();
+        let want = (1.0 + rho) / (1.0 - rho);
+        let got = design_condition(&design);
+        assert!((got - want).abs() < 1e-9 * want, "{got} vs {want} (cosine {rho})");
+        assert!(got > LOW_RANK_CONDITION);
+    }
+
+    /// Orthogonal columns (an intercept, a centred ±1 column, and category
+    /// indicators of disjoint rows) give 1; a repeated column gives
+    /// infinity; an all-zero column is left out.
+    #[test]
+    fn orthogonal_columns_give_one_and_dependent_columns_infinity() {
+        let design = DMatrix::from_fn(8, 4, |i, j| match j {
+            0 => 1.0,
+            1 => if i % 2 == 0 { 1.0 } else { -1.0 },
+            2 => f64::from(u8::from(i < 4)) - f64::from(u8::from(i >= 4)),
+            _ => 0.0,
+        });
+        assert!((design_condition(&design) - 1.0).abs() < 1e-12);
+        let indicators = DMatrix::from_fn(6, 3, |i, j| f64::from(u8::from(i % 3 == j)));
+        assert!((design_condition(&indicators) - 1.0).abs() < 1e-12);
+        let repeated = DMatrix::from_fn(5, 2, |i, _| i as f64 + 1.0);
+        assert_eq!(design_condition(&repeated), f64::INFINITY);
+    }
 }

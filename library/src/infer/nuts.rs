@@ -4,11 +4,12 @@
 //! chain, chains spread over threads, cancellation, progress reports and the
 //! per-chain counts (divergences, tree-depth hits) a scientist must see. The
 //! transition itself — multinomial NUTS with the generalised U-turn check,
-//! dual-averaging step size and a diagonal mass matrix adapted during
-//! settling in, on the `nuts-rs` schedule (from draw and gradient variances, not
-//! fixed doubling windows) — comes from the `nuts-rs` crate, driven one draw
-//! at a time through `sample_sequentially` so that the cancel flag is seen
-//! between draws and each chain runs on a thread of ours.
+//! dual-averaging step size and a mass matrix adapted during settling in,
+//! on the `nuts-rs` schedule (from draw and gradient variances, not fixed
+//! doubling windows), diagonal or diagonal plus a low-rank correction
+//! ([`MassMatrix`]) — comes from the `nuts-rs` crate, driven one draw at a
+//! time so that the cancel flag is seen between draws and each chain runs
+//! on a thread of ours.
 //!
 //! Each chain's random stream is derived from `(seed, chain)` alone, so the
 //! same seed gives the same draws whatever the number of threads.
@@ -17,7 +18,9 @@ use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::Mutex;
 use std::time::Instant;
 
-use nuts_rs::{CpuLogpFunc, CpuMath, CpuMathError, DiagNutsSettings, HasDims, LogpError};
+use nuts_rs::{
+    Chain, CpuLogpFunc, CpuMath, CpuMathError, DiagNutsSettings, HasDims, LogpError, LowRankNutsSettings, Settings,
+};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 
@@ -27,8 +30,8 @@ use crate::model::LogDensity;
 /// from the measurements in the README's Performance section: [`CHAINS`]
 /// chains that each settle for [`SETTLE`] iterations and then keep
 /// [`DRAWS`] draws, step size tuned to acceptance [`ACCEPTANCE`],
-/// trajectories doubled at most [`DOUBLINGS`] times, seed 20_240_613 and
-/// all cores.
+/// trajectories doubled at most [`DOUBLINGS`] times, seed 20_240_613,
+/// all cores, and the mass matrix chosen per model.
 #[derive(Debug, Clone, PartialEq)]
 pub struct NutsSettings {
     /// Number of independent chains.
@@ -47,6 +50,47 @@ pub struct NutsSettings {
     pub seed: u64,
     /// Threads to spread the chains over; 0 means one per available core.
     pub threads: usize,
+    /// How the mass matrix is adapted while settling.
+    pub mass: MassMatrix,
+}
+
+/// The mass matrix NUTS adapts while settling (the shape of the momentum
+/// distribution, matched to the posterior's scales and correlations).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum MassMatrix {
+    /// Chosen for each model when it is fitted (`infer::fit`, the rule
+    /// there); a target that is not a model gets [`MassMatrix::Diagonal`].
+    ByModel,
+    /// One scale per parameter: cheap, and all a posterior with little
+    /// correlation between parameters needs.
+    Diagonal,
+    /// The diagonal scales plus a correction along the few directions where
+    /// the draws' covariance and the gradients' disagree most with them
+    /// (`nuts-rs`'s low-rank adaptation): for correlated parameters.
+    LowRank,
+}
+
+/// The words of the `mass` option of `fit … with nuts`.
+pub const MASS_WORDS: &[&str] = &["diagonal", "low-rank"];
+
+impl MassMatrix {
+    /// Read a `mass` option value ([`MASS_WORDS`]).
+    pub fn from_word(word: &str) -> Option<MassMatrix> {
+        match word {
+            "diagonal" => Some(MassMatrix::Diagonal),
+            "low-rank" => Some(MassMatrix::LowRank),
+            _ => None,
+        }
+    }
+
+    /// The value's word ([`MASS_WORDS`]), or "chosen per model".
+    pub fn word(self) -> &'static str {
+        match self {
+            MassMatrix::ByModel => "chosen per model",
+            MassMatrix::Diagonal => MASS_WORDS[0],
+            MassMatrix::LowRank => MASS_WORDS[1],
+        }
+    }
 }
 
 impl Default for NutsSettings {
@@ -59,6 +103,7 @@ impl Default for NutsSettings {
             doublings: DOUBLINGS,
             seed: 20_240_613,
             threads: 0,
+            mass: MassMatrix::ByModel,
         }
     }
 }
@@ -122,6 +167,8 @@ pub struct NutsRun {
     pub deepest: Vec<u32>,
     /// Adapted step size of each chain.
     pub step_sizes: Vec<f64>,
+    /// Leapfrog steps (gradient evaluations) of the kept draws, per chain.
+    pub leapfrog_steps: Vec<u64>,
     /// Wall-clock time of the run.
     pub seconds: f64,
 }
@@ -186,6 +233,7 @@ pub fn sample_nuts<D: LogDensity>(
         depth_hits: Vec::with_capacity(settings.chains),
         deepest: Vec::with_capacity(settings.chains),
         step_sizes: Vec::with_capacity(settings.chains),
+        leapfrog_steps: Vec::with_capacity(settings.chains),
         seconds: 0.0,
     };
     for (chain, slot) in slots.into_iter().enumerate() {
@@ -196,6 +244,7 @@ pub fn sample_nuts<D: LogDensity>(
         out.depth_hits.push(run.depth_hits);
         out.deepest.push(run.deepest);
         out.step_sizes.push(run.step_size);
+        out.leapfrog_steps.push(run.steps);
     }
     out.seconds = start.elapsed().as_secs_f64();
     Ok(out)
@@ -287,6 +336,7 @@ struct ChainRun {
     depth_hits: usize,
     deepest: u32,
     step_size: f64,
+    steps: u64,
 }
 
 fn run_chain<D: LogDensity>(
@@ -298,23 +348,19 @@ fn run_chain<D: LogDensity>(
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<ChainRun, NutsError> {
     let failed = |message: String| NutsError::Chain { chain: chain + 1, message };
-    let mut options = DiagNutsSettings {
-        num_tune: settings.settle as u64,
-        num_draws: settings.draws as u64,
-        maxdepth: u64::from(settings.doublings),
-        max_energy_error: DIVERGENCE_ENERGY,
-        num_chains: settings.chains,
-        seed: settings.seed,
-        ..Default::default()
-    };
-    options.adapt_options.step_size_settings.target_accept = settings.acceptance;
-
     let total = settings.settle + settings.draws;
     let mut rng = chain_rng(settings.seed, chain);
     let math = CpuMath::new(DensityAdapter { target });
-    let iterations =
-        nuts_rs::sample_sequentially(math, options, start, total as u64, chain as u64, &mut rng)
-            .map_err(|e| failed(e.to_string()))?;
+    let mut draw: Box<dyn FnMut() -> Result<(Box<[f64]>, nuts_rs::Progress), String> + '_> = match settings.mass {
+        MassMatrix::LowRank => {
+            start_chain(with_settings(LowRankNutsSettings::default(), settings), math, chain, start, &mut rng)
+        }
+        MassMatrix::Diagonal | MassMatrix::ByModel => {
+            start_chain(with_settings(DiagNutsSettings::default(), settings), math, chain, start, &mut rng)
+        }
+    }
+    .map_err(failed)?;
+    let iterations = (0..total).map(|_| draw());
 
     let full_depth_steps = (1u64 << settings.doublings) - 1;
     let mut run = ChainRun {
@@ -323,6 +369,7 @@ fn run_chain<D: LogDensity>(
         depth_hits: 0,
         deepest: 0,
         step_size: f64::NAN,
+        steps: 0,
     };
     for (iteration, step) in iterations.enumerate() {
         if cancel.load(Ordering::Relaxed) {
@@ -335,10 +382,61 @@ fn run_chain<D: LogDensity>(
             run.depth_hits += usize::from(info.num_steps >= full_depth_steps);
             run.deepest = run.deepest.max(doublings_of(info.num_steps));
             run.step_size = info.step_size;
+            run.steps += info.num_steps;
         }
         progress(Progress { chain, iteration: iteration + 1, total });
     }
     Ok(run)
+}
+
+/// `nuts-rs` settings of one kind (diagonal or low-rank adaptation, with
+/// that kind's own adaptation defaults) carrying Waypath's run settings.
+fn with_settings<A: std::fmt::Debug + Copy + Default + serde::Serialize>(
+    mut options: nuts_rs::NutsSettings<A>,
+    settings: &NutsSettings,
+) -> nuts_rs::NutsSettings<A>
+where
+    nuts_rs::NutsSettings<A>: HasStepSize,
+{
+    options.num_tune = settings.settle as u64;
+    options.num_draws = settings.draws as u64;
+    options.maxdepth = u64::from(settings.doublings);
+    options.max_energy_error = DIVERGENCE_ENERGY;
+    options.num_chains = settings.chains;
+    options.seed = settings.seed;
+    options.set_target_acceptance(settings.acceptance);
+    options
+}
+
+/// The step-size target of either kind of `nuts-rs` settings.
+trait HasStepSize {
+    fn set_target_acceptance(&mut self, acceptance: f64);
+}
+
+impl HasStepSize for DiagNutsSettings {
+    fn set_target_acceptance(&mut self, acceptance: f64) {
+        self.adapt_options.step_size_settings.target_accept = acceptance;
+    }
+}
+
+impl HasStepSize for LowRankNutsSettings {
+    fn set_target_acceptance(&mut self, acceptance: f64) {
+        self.adapt_options.step_size_settings.target_accept = acceptance;
+    }
+}
+
+/// A chain of the given `nuts-rs` settings, placed at `start`, as a
+/// function that makes the next draw.
+fn start_chain<'a, S: Settings, R: rand::Rng + ?Sized>(
+    options: S,
+    math: CpuMath<DensityAdapter<'a, impl LogDensity>>,
+    chain: usize,
+    start: &[f64],
+    rng: &mut R,
+) -> Result<Box<dyn FnMut() -> Result<(Box<[f64]>, nuts_rs::Progress), String> + 'a>, String> {
+    let mut sampler = options.new_chain(chain as u64, math, rng).map_err(|e| e.to_string())?;
+    sampler.set_position(start).map_err(|e| e.to_string())?;
+    Ok(Box::new(move || sampler.draw().map_err(|e| e.to_string())))
 }
 
 /// The doublings a trajectory of `steps` leapfrog steps made: a tree after

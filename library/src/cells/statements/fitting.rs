@@ -17,7 +17,7 @@ use crate::cells::parse::Statement;
 use crate::cells::session::{suggest, RunControl, Session};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{fit_model, Fit, Method, LAPLACE_DRAWS, LAPLACE_SEED};
-use crate::infer::nuts::NutsSettings;
+use crate::infer::nuts::{MassMatrix, NutsSettings, MASS_WORDS};
 use crate::limits::{whole_number, MAX_CHAINS, MAX_DOUBLINGS, MAX_SETTLE};
 use crate::model::{Model, ModelSpec};
 
@@ -188,6 +188,10 @@ pub(crate) fn fit(session: &mut Session, st: &Statement, control: &RunControl, w
 /// let Ok(Method::Nuts(s)) = parse_method("with nuts chains 2 settle 300 seed 7") else { panic!() };
 /// assert_eq!((s.chains, s.settle, s.seed), (2, 300, 7));
 /// assert!(parse_method("with nuts warmup 300").unwrap_err().contains("now called `settle`"));
+/// use waypath::infer::nuts::MassMatrix;
+/// let Ok(Method::Nuts(s)) = parse_method("with nuts mass low-rank") else { panic!() };
+/// assert_eq!(s.mass, MassMatrix::LowRank);
+/// assert!(parse_method("with nuts mass dense").unwrap_err().contains("diagonal or low-rank"));
 /// ```
 pub fn parse_method(text: &str) -> Result<Method, String> {
     let words: Vec<&str> = text.split_whitespace().collect();
@@ -234,6 +238,11 @@ pub fn parse_method(text: &str) -> Result<Method, String> {
                     "draws" => s.draws = count(k, v)?,
                     "seed" => s.seed = whole_number(k, v, 0, u64::MAX)?,
                     "doublings" => s.doublings = whole_number(k, v, 1, MAX_DOUBLINGS)? as u32,
+                    "mass" => {
+                        s.mass = MassMatrix::from_word(v).ok_or_else(|| {
+                            format!("mass takes {}, not \"{v}\" (leave it out to let Waypath choose for the model)", MASS_WORDS.join(" or "))
+                        })?
+                    }
                     "acceptance" => {
                         s.acceptance = v
                             .parse::<f64>()
@@ -342,7 +351,7 @@ pub(crate) fn method_settings(method: &Method) -> serde_json::Value {
         Method::Laplace { draws, seed } => json!({"draws": draws, "seed": seed}),
         Method::Nuts(s) => json!({
             "chains": s.chains, "settle": s.settle, "draws": s.draws, "acceptance": s.acceptance,
-            "doublings": s.doublings, "seed": s.seed,
+            "doublings": s.doublings, "mass": s.mass.word(), "seed": s.seed,
         }),
     }
 }

@@ -49,6 +49,7 @@ impl Slot {
 }
 
 use Slot::{Choice, Quoted, Value, Word};
+use crate::infer::nuts::MASS_WORDS;
 
 /// The grammar of one statement header.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -167,7 +168,7 @@ pub const METHODS: &[&str] = &["laplace", "nuts"];
 /// The options of `with laplace`, each followed by its value.
 pub const LAPLACE_OPTIONS: &[&str] = &["draws", "seed"];
 /// The options of `with nuts`, each followed by its value.
-pub const NUTS_OPTIONS: &[&str] = &["chains", "settle", "draws", "acceptance", "doublings", "seed"];
+pub const NUTS_OPTIONS: &[&str] = &["chains", "settle", "draws", "acceptance", "doublings", "mass", "seed"];
 /// Sampler option words of earlier versions of Waypath, each with the word
 /// that replaced it: a notebook that still writes one gets an error naming
 /// the new word rather than a silent change of meaning.
@@ -237,7 +238,7 @@ pub const FIT: Form = Form {
     slots: &[Word("fit"), Value],
     options: &[INTERVALS_OPTION],
     method: true,
-    usage: "fit NAME [intervals P%] [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [seed N]]",
+    usage: "fit NAME [intervals P%] [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [mass diagonal|low-rank] [seed N]]",
 };
 pub const SHOW: Form =
     Form { slots: &[Word("show"), Value], options: &[INTERVALS_OPTION], method: false, usage: "show NAME [intervals P%]" };
@@ -462,7 +463,10 @@ fn method_next(after: &[&str], next: &mut Next) {
         _ => return,
     };
     if options.len() % 2 == 1 {
-        next.values = true;
+        match options.last() {
+            Some(&"mass") if *kind == "nuts" => next.add(MASS_WORDS),
+            _ => next.values = true,
+        }
         return;
     }
     let used: Vec<&str> = options.iter().step_by(2).copied().collect();
@@ -474,6 +478,16 @@ fn method_next(after: &[&str], next: &mut Next) {
 mod tests {
     //! Headers written as the README's "Statements" table documents them.
     use super::*;
+
+    /// README, Statements: `mass` takes `diagonal` or `low-rank`, and an
+    /// option once given is not offered again.
+    #[test]
+    fn the_mass_option_offers_its_two_words() {
+        assert_eq!(next_words("fit m with nuts mass").words, MASS_WORDS);
+        let after = next_words("fit m with nuts mass low-rank").words;
+        assert!(after.contains(&"seed") && !after.contains(&"mass"), "{after:?}");
+        assert!(!next_words("fit m with nuts seed").words.contains(&"diagonal"));
+    }
 
     #[test]
     fn a_header_keeps_its_values_and_hands_on_its_options() {

@@ -4,24 +4,36 @@
 //! Each row contributes `y·η − m·softplus(η)` (logit link, `m` trials) or
 //! `y·η − e^η` (log link), plus a constant that does not depend on the
 //! coefficients; its derivative in η is `y − m·logistic(η)` or `y − e^η`.
+//! With `r` the vector of these derivatives (the rows' slopes), the
+//! gradient is `Xᵀ·r`.
 //!
 //! This is the hot loop of every GLM fit (NUTS evaluates it thousands of
 //! times), so the design is stored for it: rows are cut into blocks of
 //! [`BLOCK`], and each block is stored column by column (the last block
-//! padded with zero rows). A block's linear predictors are then a sum of
-//! contiguous columns times coefficients, and its gradient contribution a
-//! lane-wise product of each column with the slopes; both run in vector
-//! registers, and the block's predictors and slopes stay on the stack.
-//! Sums are kept per lane and added up once, in a fixed order, so the
-//! result does not depend on the register width. The logit link's softplus
-//! and logistic come from one exponential ([`super::kernels`]).
+//! padded with zero rows). One pass over the blocks does everything: a
+//! block's linear predictors `X_b·β` ([`fixed_effects_product`]), its rows'
+//! terms and slopes, and its share `X_bᵀ·r_b` of the gradient
+//! ([`fixed_effects_gradient`]), while the block (a few kilobytes) is still
+//! in the first-level cache. Both products run down contiguous columns in
+//! vector registers, with fused multiply-adds. Sums are kept in lanes and
+//! added up once, in a fixed order, so the result does not depend on the
+//! register width: every build (portable, AVX2, AVX-512) gives the same
+//! bits. The logit link's softplus and logistic come from one exponential
+//! ([`super::kernels`]).
+//!
+//! Terms that add to the linear predictor beyond the fixed-effect design
+//! (group effects) belong beside [`fixed_effects_product`] in
+//! [`GlmData::evaluate`], taking their gradient from the same slopes.
 
 use statrs::function::gamma::ln_gamma;
 
-use super::kernels::softplus_and_logistic;
+use super::kernels::{exp, softplus_and_logistic};
 
 /// Rows per block of the stored design.
 const BLOCK: usize = 64;
+/// Lanes of the gradient's partial sums: each column's block product is
+/// summed in this many lanes (row `i` of a block into lane `i mod LANES`).
+const LANES: usize = 8;
 
 /// The outcome of a GLM family, as reals.
 #[derive(Debug, Clone, PartialEq)]
@@ -68,33 +80,50 @@ impl GlmData {
     /// The full log-likelihood at coefficients `beta`, adding its gradient
     /// into `grad`. Returns `-inf` where the likelihood underflows to zero.
     ///
-    /// On x86-64 processors with AVX2 the same code is compiled a second
-    /// time for the wider registers and chosen at run time. Every operation
-    /// is lane by lane and every sum has a fixed order, so both versions
+    /// On x86-64 the same code is compiled twice more, for AVX-512 and for
+    /// AVX2 with FMA, and the widest the processor has is chosen at run
+    /// time. Every operation is lane by lane, every product added on is a
+    /// fused multiply-add and every sum has a fixed order, so all versions
     /// give the same bits.
     pub fn log_likelihood_and_gradient(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
         #[cfg(target_arch = "x86_64")]
-        if std::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked just above.
-            return unsafe { self.evaluate_avx2(beta, grad) };
+        {
+            if std::is_x86_feature_detected!("avx512f") && std::is_x86_feature_detected!("fma") {
+                // SAFETY: the processor supports AVX-512F and FMA, checked just above.
+                return unsafe { self.evaluate_avx512(beta, grad) };
+            }
+            if std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma") {
+                // SAFETY: the processor supports AVX2 and FMA, checked just above.
+                return unsafe { self.evaluate_avx2(beta, grad) };
+            }
         }
         self.evaluate(beta, grad)
     }
 
-    /// [`GlmData::evaluate`] compiled for AVX2.
+    /// [`GlmData::evaluate`] compiled for AVX-512.
     ///
     /// # Safety
-    /// Call only on a processor with AVX2.
+    /// Call only on a processor with AVX-512F and FMA.
     #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2")]
+    #[target_feature(enable = "avx512f,avx2,fma")]
+    unsafe fn evaluate_avx512(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
+        self.evaluate(beta, grad)
+    }
+
+    /// [`GlmData::evaluate`] compiled for AVX2 with FMA.
+    ///
+    /// # Safety
+    /// Call only on a processor with AVX2 and FMA.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2,fma")]
     unsafe fn evaluate_avx2(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
         self.evaluate(beta, grad)
     }
 
-    /// The log-likelihood and gradient, block by block. Sums run in
-    /// `BLOCK` lanes (row `i` adds into lane `i mod BLOCK`) across all
-    /// blocks, and each lane set is added up once at the end in a fixed
-    /// order; lane-wise updates vectorise, per-block totals would not.
+    /// The log-likelihood and gradient in one pass over the blocks (module
+    /// doc). Row terms are summed in `BLOCK` lanes and gradient entries in
+    /// [`LANES`] lanes across all blocks, and each lane set is added up
+    /// once at the end in a fixed order.
     #[inline(always)]
     fn evaluate(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
         let width = self.width;
@@ -105,15 +134,15 @@ impl GlmData {
         let mut eta = [0.0; BLOCK];
         let mut slope = [0.0; BLOCK];
         let mut terms = [0.0; BLOCK];
-        let mut gradient_lanes = vec![0.0; width * BLOCK];
+        let mut gradient_lanes = vec![0.0; width * LANES];
         for (b, block) in self.blocks.chunks_exact(BLOCK * width).enumerate() {
             let first = b * BLOCK;
             let used = (self.rows - first).min(BLOCK);
-            linear_predictors(block, beta, &mut eta);
+            fixed_effects_product(block, beta, &mut eta);
             self.block_terms(first, used, &eta, &mut terms, &mut slope);
-            add_weighted_columns(block, &slope, &mut gradient_lanes);
+            fixed_effects_gradient(block, &slope, &mut gradient_lanes);
         }
-        for (g, lanes) in grad.iter_mut().zip(gradient_lanes.chunks_exact(BLOCK)) {
+        for (g, lanes) in grad.iter_mut().zip(gradient_lanes.chunks_exact(LANES)) {
             *g += sum_in_fixed_order(lanes);
         }
         let total = self.constant + sum_in_fixed_order(&terms);
@@ -143,29 +172,30 @@ impl GlmData {
             GlmOutcome::Bernoulli { y } => {
                 let (softplus, p) = softplus_and_logistic(eta);
                 for (i, &y) in y[rows].iter().enumerate() {
-                    terms[i] += y * eta[i] - softplus[i];
+                    terms[i] += y.mul_add(eta[i], -softplus[i]);
                     slope[i] = y - p[i];
                 }
             }
             GlmOutcome::Binomial { y, trials } => {
                 let (softplus, p) = softplus_and_logistic(eta);
                 for (i, (&y, &m)) in y[rows.clone()].iter().zip(&trials[rows]).enumerate() {
-                    terms[i] += y * eta[i] - m * softplus[i];
-                    slope[i] = y - m * p[i];
+                    terms[i] += y.mul_add(eta[i], -m * softplus[i]);
+                    slope[i] = (-m).mul_add(p[i], y);
                 }
             }
             GlmOutcome::Poisson { y } => {
+                let mu = exp(eta);
                 for (i, &y) in y[rows].iter().enumerate() {
-                    let mu = eta[i].exp();
-                    terms[i] += y * eta[i] - mu;
-                    slope[i] = y - mu;
+                    terms[i] += y.mul_add(eta[i], -mu[i]);
+                    slope[i] = y - mu[i];
                 }
             }
         }
     }
 }
 
-/// The sum of `BLOCK` lanes: eight partial sums, then a fixed tree.
+/// The sum of a multiple of eight lanes: eight partial sums, then a fixed
+/// tree.
 #[inline(always)]
 fn sum_in_fixed_order(lanes: &[f64]) -> f64 {
     let mut acc = [0.0; 8];
@@ -180,29 +210,60 @@ fn sum_in_fixed_order(lanes: &[f64]) -> f64 {
 /// Rows whose predictors are accumulated together (in registers).
 const GROUP: usize = 32;
 
-/// `eta = X_block · beta` for one column-major block, `GROUP` rows at a
-/// time so their sums stay in registers.
+/// The fixed-effect part of the linear predictor, `eta = X_b·β`, for one
+/// column-major block: `GROUP` rows at a time, so their sums stay in
+/// registers while the columns go by.
 #[inline(always)]
-fn linear_predictors(block: &[f64], beta: &[f64], eta: &mut [f64; BLOCK]) {
+pub(crate) fn fixed_effects_product(block: &[f64], beta: &[f64], eta: &mut [f64; BLOCK]) {
     for (g, out) in eta.chunks_exact_mut(GROUP).enumerate() {
         let mut acc = [0.0; GROUP];
         for (column, &b) in block.chunks_exact(BLOCK).zip(beta) {
             let xs = &column[g * GROUP..(g + 1) * GROUP];
             for k in 0..GROUP {
-                acc[k] += xs[k] * b;
+                acc[k] = xs[k].mul_add(b, acc[k]);
             }
         }
         out.copy_from_slice(&acc);
     }
 }
 
-/// `lanes[j][i] += slope_i · X_block[i, j]` for every column `j` and row
-/// `i` of the block.
+/// Columns whose block products are accumulated together: independent
+/// sums the processor can overlap.
+const COLUMNS_AT_ONCE: usize = 4;
+
+/// The block's share of the fixed-effect gradient, `X_bᵀ·slope`: for each
+/// column, the products with the slopes summed in [`LANES`] lanes and
+/// added onto that column's lanes in `lanes` (`width · LANES` values).
 #[inline(always)]
-fn add_weighted_columns(block: &[f64], slope: &[f64; BLOCK], lanes: &mut [f64]) {
-    for (column, column_lanes) in block.chunks_exact(BLOCK).zip(lanes.chunks_exact_mut(BLOCK)) {
-        for ((lane, &x), &s) in column_lanes.iter_mut().zip(column).zip(slope) {
-            *lane += x * s;
+pub(crate) fn fixed_effects_gradient(block: &[f64], slope: &[f64; BLOCK], lanes: &mut [f64]) {
+    let mut columns = block.chunks_exact(COLUMNS_AT_ONCE * BLOCK);
+    let mut outputs = lanes.chunks_exact_mut(COLUMNS_AT_ONCE * LANES);
+    for (quad, out) in (&mut columns).zip(&mut outputs) {
+        column_products::<COLUMNS_AT_ONCE>(quad, slope, out);
+    }
+    let (rest, rest_out) = (columns.remainder(), outputs.into_remainder());
+    for (column, out) in rest.chunks_exact(BLOCK).zip(rest_out.chunks_exact_mut(LANES)) {
+        column_products::<1>(column, slope, out);
+    }
+}
+
+/// `out[c][k] += Σ_chunk x[c][chunk·LANES + k] · slope[chunk·LANES + k]`
+/// for `C` columns of a block, chunk by chunk in order.
+#[inline(always)]
+fn column_products<const C: usize>(columns: &[f64], slope: &[f64; BLOCK], out: &mut [f64]) {
+    let mut acc = [[0.0; LANES]; C];
+    for chunk in 0..BLOCK / LANES {
+        let s = &slope[chunk * LANES..(chunk + 1) * LANES];
+        for (c, acc) in acc.iter_mut().enumerate() {
+            let x = &columns[c * BLOCK + chunk * LANES..c * BLOCK + (chunk + 1) * LANES];
+            for k in 0..LANES {
+                acc[k] = x[k].mul_add(s[k], acc[k]);
+            }
+        }
+    }
+    for (c, acc) in acc.iter().enumerate() {
+        for k in 0..LANES {
+            out[c * LANES + k] += acc[k];
         }
     }
 }
@@ -284,23 +345,94 @@ mod tests {
         }
     }
 
-    /// The AVX2 build of the loop must give the portable build's bits, so
-    /// a seed gives the same draws on any x86-64 processor.
+    /// Random designs of several widths (each a different mix of the
+    /// four-column and single-column gradient paths) and row counts (full
+    /// and padded blocks), all three families: the fused pass equals the
+    /// plain definition — `X·β` row by row, the standard library's exp and
+    /// ln_1p, then `Xᵀ·r` — to 1e-12 relative to the size of each sum
+    /// (Σ|term| for the value, Σ|rᵢ·xᵢⱼ| for gradient entry j).
+    #[test]
+    fn fused_pass_equals_the_plain_products_on_random_designs() {
+        use rand::rngs::StdRng;
+        use rand::{RngExt, SeedableRng};
+        let mut rng = StdRng::seed_from_u64(20_261_203);
+        for (n, width) in [(1, 1), (63, 2), (64, 4), (200, 5), (517, 7), (1000, 21), (3001, 11)] {
+            let rows: Vec<f64> = (0..n * width)
+                .map(|k| if k % width == 0 { 1.0 } else { 3.0 * (rng.random::<f64>() - 0.5) })
+                .collect();
+            let beta: Vec<f64> = (0..width).map(|_| rng.random::<f64>() - 0.5).collect();
+            let trials: Vec<f64> = (0..n).map(|_| f64::from(rng.random_range(1..40u32))).collect();
+            let successes: Vec<f64> = trials.iter().map(|&m| (rng.random::<f64>() * (m + 1.0)).floor().min(m)).collect();
+            let yes: Vec<f64> = (0..n).map(|_| f64::from(rng.random::<bool>())).collect();
+            for outcome in [
+                GlmOutcome::Bernoulli { y: yes.clone() },
+                GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
+                GlmOutcome::Poisson { y: successes.clone() },
+            ] {
+                let data = GlmData::new(rows.clone(), width, outcome.clone());
+                let mut grad = vec![0.0; width];
+                let value = data.log_likelihood_and_gradient(&beta, &mut grad);
+                let (want, want_grad) = by_definition(&rows, width, &outcome, &beta);
+                let (value_scale, gradient_scales) = sum_sizes(&rows, width, &outcome, &beta);
+                assert!((value - want).abs() <= 1e-12 * value_scale, "{n}×{width} {outcome:?}: {value} vs {want}");
+                for (j, (g, w)) in grad.iter().zip(&want_grad).enumerate() {
+                    assert!((g - w).abs() <= 1e-12 * gradient_scales[j], "{n}×{width}: gradient {j}: {g} vs {w}");
+                }
+            }
+        }
+    }
+
+    /// Σ|row term| (with the constant) and, per column j, Σ|slopeᵢ·xᵢⱼ|: the
+    /// sizes against which the rounding of the sums is judged.
+    fn sum_sizes(rows: &[f64], width: usize, outcome: &GlmOutcome, beta: &[f64]) -> (f64, Vec<f64>) {
+        let mut value = log_likelihood_constant(outcome).abs();
+        let mut gradient = vec![0.0; width];
+        for (i, row) in rows.chunks_exact(width).enumerate() {
+            let eta: f64 = row.iter().zip(beta).map(|(x, b)| x * b).sum();
+            let (term, slope) = match outcome {
+                GlmOutcome::Bernoulli { y } => (y[i] * eta - softplus(eta), y[i] - logistic(eta)),
+                GlmOutcome::Binomial { y, trials } => (y[i] * eta - trials[i] * softplus(eta), y[i] - trials[i] * logistic(eta)),
+                GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
+            };
+            value += term.abs() + (y_of(outcome, i) * eta).abs();
+            for (g, x) in gradient.iter_mut().zip(row) {
+                *g += (slope * x).abs();
+            }
+        }
+        (value, gradient)
+    }
+
+    fn y_of(outcome: &GlmOutcome, i: usize) -> f64 {
+        match outcome {
+            GlmOutcome::Bernoulli { y } | GlmOutcome::Binomial { y, .. } | GlmOutcome::Poisson { y } => y[i],
+        }
+    }
+
+    /// The AVX2 and AVX-512 builds of the loop must give the portable
+    /// build's bits, so a seed gives the same draws on any x86-64
+    /// processor. A 7-column design takes both gradient paths.
     #[cfg(target_arch = "x86_64")]
     #[test]
     fn wide_registers_give_the_same_bits() {
-        if !std::is_x86_feature_detected!("avx2") {
-            return;
-        }
-        let (rows, width) = design();
+        let width = 7;
+        let rows: Vec<f64> = (0..150 * width).map(|k| ((k * 37 % 101) as f64 / 101.0 - 0.5) * 4.0).collect();
+        let beta = [0.2, -0.7, 0.4, 0.1, -0.3, 0.25, -0.05];
         for outcome in outcomes() {
             let data = GlmData::new(rows.clone(), width, outcome);
-            let (mut plain, mut wide) = (vec![0.0; width], vec![0.0; width]);
-            let a = data.evaluate(&[0.2, -0.7, 0.4], &mut plain);
-            // SAFETY: AVX2 support was checked above.
-            let b = unsafe { data.evaluate_avx2(&[0.2, -0.7, 0.4], &mut wide) };
-            assert_eq!(a.to_bits(), b.to_bits());
-            assert_eq!(plain, wide);
+            let mut plain = vec![0.0; width];
+            let a = data.evaluate(&beta, &mut plain);
+            if std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma") {
+                let mut wide = vec![0.0; width];
+                // SAFETY: AVX2 and FMA support were checked just above.
+                let b = unsafe { data.evaluate_avx2(&beta, &mut wide) };
+                assert_eq!((a.to_bits(), &plain), (b.to_bits(), &wide));
+            }
+            if std::is_x86_feature_detected!("avx512f") && std::is_x86_feature_detected!("fma") {
+                let mut wide = vec![0.0; width];
+                // SAFETY: AVX-512F and FMA support were checked just above.
+                let b = unsafe { data.evaluate_avx512(&beta, &mut wide) };
+                assert_eq!((a.to_bits(), &plain), (b.to_bits(), &wide));
+            }
         }
     }
 }
