@@ -14,7 +14,7 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 
 use crate::table::Table;
 
-use super::build::{glm_data, intercept_columns, softmax_data};
+use super::build::{glm_data, intercept_columns, softmax_data, with_departure_columns};
 use super::columns::real_values;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
@@ -30,6 +30,26 @@ pub struct NewRows {
     pub design: DMatrix<f64>,
     /// Trials per row (binomial family, when the table has the trials column).
     pub trials: Option<Vec<u64>>,
+    /// Per pooled group, each row's level (`None`: a level the fitted data
+    /// did not have, or a table without the group's column — a new group,
+    /// whose departure is taken as 0, the population's own prediction).
+    pub groups: Vec<Vec<Option<usize>>>,
+}
+
+impl NewRows {
+    /// Rows without pooled groups (or of a new group in each).
+    pub fn from_design(design: DMatrix<f64>, trials: Option<Vec<u64>>) -> NewRows {
+        NewRows { design, trials, groups: Vec::new() }
+    }
+
+    /// The rows at `indices`, in that order.
+    pub fn select(&self, indices: &[usize]) -> NewRows {
+        NewRows {
+            design: self.design.select_rows(indices),
+            trials: self.trials.as_ref().map(|t| indices.iter().map(|&i| t[i]).collect()),
+            groups: self.groups.iter().map(|g| indices.iter().map(|&i| g[i]).collect()).collect(),
+        }
+    }
 }
 
 /// The linear predictor and the mean of each new row (per trial for binomial).
@@ -51,7 +71,8 @@ impl Model {
             },
             _ => None,
         };
-        Ok(NewRows { design, trials })
+        let groups = self.groups.iter().map(|g| g.level_of_rows(table)).collect::<Result<_, _>>()?;
+        Ok(NewRows { design, trials, groups })
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
@@ -72,7 +93,8 @@ impl Model {
             });
         }
         let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
-        let linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
+        let mut linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
+        self.add_departures(params, rows, &mut linear);
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
     }
@@ -112,6 +134,21 @@ impl Model {
             draws.push(self.draw_one(params, rows, i, mu, rng)?);
         }
         Ok(draws)
+    }
+
+    /// Add each row's departure in every pooled group to its linear
+    /// predictor (nothing for a row of a new group).
+    fn add_departures(&self, params: &[f64], rows: &NewRows, linear: &mut [f64]) {
+        let mut at = self.first_group_index();
+        for (group, levels) in self.groups.iter().zip(&rows.groups) {
+            let departures = &params[at + 1..at + 1 + group.levels.len()];
+            for (eta, level) in linear.iter_mut().zip(levels) {
+                if let Some(l) = level {
+                    *eta += departures[*l];
+                }
+            }
+            at += 1 + group.levels.len();
+        }
     }
 
     fn draw_one<R: Rng + ?Sized>(&self, params: &[f64], rows: &NewRows, i: usize, mu: f64, rng: &mut R) -> Result<f64, ModelError> {
@@ -182,7 +219,8 @@ impl Model {
             Likelihood::Glm(glm) => glm.trials().map(|m| m.iter().map(|&v| v as u64).collect()),
             Likelihood::Gaussian { .. } | Likelihood::Softmax(_) => None,
         };
-        NewRows { design: self.design.clone(), trials }
+        let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
+        NewRows { design: self.design.clone(), trials, groups }
     }
 
     /// The same model — design, recipes, priors and binomial trials
@@ -198,12 +236,12 @@ impl Model {
         }
         let likelihood = match &self.likelihood {
             Likelihood::Gaussian { spread_prior, .. } => Likelihood::Gaussian {
-                stats: GaussianStats::new(&self.design, &y, intercept_columns(&self.recipes)),
+                stats: GaussianStats::new(&self.likelihood_design(), &y, intercept_columns(&self.recipes)),
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
                 let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
-                Likelihood::Glm(glm_data(&self.design, &self.family, &outcome))
+                Likelihood::Glm(glm_data(&self.likelihood_design(), &self.family, &outcome))
             }
             Likelihood::Softmax(_) => {
                 let count = self.outcome_levels().map_or(0, <[String]>::len);
@@ -216,5 +254,13 @@ impl Model {
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })
+    }
+}
+
+impl Model {
+    /// The design the likelihood evaluates: the fitted design followed by
+    /// the pooled groups' level indicators.
+    fn likelihood_design(&self) -> DMatrix<f64> {
+        with_departure_columns(&self.design, &self.groups, &self.group_rows)
     }
 }

@@ -481,8 +481,5 @@ impl Pairing<'_> {
 
 /// Row `r` of new rows.
 fn one_row(rows: &NewRows, r: usize) -> NewRows {
-    NewRows {
-        design: rows.design.rows(r, 1).into_owned(),
-        trials: rows.trials.as_ref().map(|t| vec![t[r]]),
-    }
+    rows.select(&[r])
 }

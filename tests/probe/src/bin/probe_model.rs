@@ -108,7 +108,7 @@ fn fit(request: &Value) -> Result<Value, String> {
         "family": model.family().name(),
     });
     if let Some(levels) = model.outcome_levels() {
-        let rows = NewRows { design: model.design_matrix().clone(), trials: None };
+        let rows = NewRows::from_design(model.design_matrix().clone(), None);
         answer["levels"] = json!(levels);
         answer["probabilities"] = json!(model.level_probabilities(&mode, &rows).map_err(|e| e.to_string())?);
     }
