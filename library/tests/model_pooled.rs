@@ -90,13 +90,23 @@ fn gradient_of_every_family_and_layout_matches_finite_differences() {
         "yield from girth, pooled plot using trees\nprior pooled spreads: exponential(0.5)\nprior spread: lognormal(1, 1)",
         30,
     );
+    // A single intercept: the first centred group is sampled around it.
+    for family in ["normal", "bernoulli"] {
+        let outcome = if family == "normal" { "yield" } else { "healthy" };
+        check_gradient(
+            &format!("{outcome} from girth, pooled plot, pooled row using trees\nfamily {family}\nparameterise plot centred\nparameterise row centred"),
+            31,
+        );
+    }
 }
 
 /// Change of variables (any probability text, e.g. Casella & Berger,
 /// Statistical Inference, 2nd ed., Thm 2.1.5; recalled): with departures
 /// `a = τ·z`, the non-centred density at `z` equals the centred density at
-/// `a = τz` plus `J·log τ`, the log Jacobian of the J departures. The two
-/// layouts must also give the same constrained parameters.
+/// `a = τz` plus `J·log τ`, the log Jacobian of the J departures (the
+/// centred group here is sampled as level means `intercept + a`, a shift
+/// with unit Jacobian). The two layouts must also give the same
+/// constrained parameters.
 #[test]
 fn centred_and_noncentred_layouts_are_one_density() {
     let table = orchard_with_plots(150, 3);
@@ -104,6 +114,8 @@ fn centred_and_noncentred_layouts_are_one_density() {
     let centred = build(&body("centred"), &table);
     let noncentred = build(&body("noncentred"), &table);
     let first = centred.first_group_index();
+    assert_eq!(centred.unconstrained_names()[first + 1], "intercept + plot departure[P1]");
+    assert_eq!(noncentred.unconstrained_names()[first + 1], "plot departure[P1] / plot spread");
     let mut rng = StdRng::seed_from_u64(4);
     for _ in 0..5 {
         let mut z: Vec<f64> = noncentred.initial_point();
@@ -113,7 +125,7 @@ fn centred_and_noncentred_layouts_are_one_density() {
         let log_tau = z[first];
         let mut a = z.clone();
         for v in a[first + 1..].iter_mut() {
-            *v *= log_tau.exp();
+            *v = *v * log_tau.exp() + z[0];
         }
         let levels = (a.len() - first - 1) as f64;
         let (value_z, _) = value_and_gradient(&noncentred, &z);

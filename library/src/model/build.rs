@@ -60,7 +60,15 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         group.settle_layout(declared, information, &means);
         notes.push(group.note());
     }
-    let pooling = Pooling::new(&groups, &priors.group_spreads);
+    let single_intercept = recipes.iter().position(|r| matches!(r, TermRecipe::Intercept)).map(|_| 0);
+    let pooling = Pooling::new(&groups, &priors.group_spreads, single_intercept);
+    if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
+        notes.push(format!(
+            "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
+             departure), which the data pin down apart from the intercept; its draws are still the departures",
+            group.column
+        ));
+    }
     let likelihood_design = with_departure_columns(&design, &groups, &group_rows);
     let term_labels: Vec<String> = recipes.iter().flat_map(TermRecipe::labels).collect();
     let labels: Vec<String> =
@@ -80,7 +88,8 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         })
         .collect();
     let mut start = starting_point(&blocks, &outcome, &priors.coefficients, priors.spread.as_ref(), &intercepts);
-    start.extend(pooling.start(&[]));
+    let anchor = pooling.anchor(&start);
+    start.extend(pooling.start(&[], anchor));
     let likelihood = match (priors.spread.clone(), &outcome.levels) {
         (Some(spread_prior), _) => {
             notes.push("spread is sampled as log(spread), with the Jacobian of that change included".into());

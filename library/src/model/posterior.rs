@@ -117,7 +117,9 @@ impl Model {
         if self.has_spread() {
             names.push("log(spread)".into());
         }
-        names.extend(self.groups.iter().flat_map(GroupTerm::unconstrained_labels));
+        for (group, pooled) in self.groups.iter().zip(&self.pooling.groups) {
+            names.extend(group.unconstrained_labels(pooled.around_intercept));
+        }
         names
     }
 
@@ -131,7 +133,7 @@ impl Model {
             }
         }
         if theta.len() > first_group {
-            params.extend(self.pooling.constrain(&theta[first_group..]));
+            params.extend(self.pooling.constrain(&theta[first_group..], self.pooling.anchor(theta)));
         }
         params
     }
@@ -163,7 +165,7 @@ impl Model {
             theta[self.labels.len()] = spread.ln();
         }
         let first_group = self.first_group_index();
-        let pooled = self.pooling.unconstrain(&params[first_group..]).map_err(|at| ModelError::Parameters {
+        let pooled = self.pooling.unconstrain(&params[first_group..], self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
             message: format!("{} must be positive, not {}", self.parameter_names()[first_group + at], params[first_group + at]),
         })?;
         theta.truncate(first_group);
@@ -210,7 +212,10 @@ impl Model {
             point.push(self.start[p] + z.get(p).copied().unwrap_or(0.0));
         }
         let first_group = self.first_group_index();
-        point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[])));
+        // Level means sampled around the intercept start near the data (the
+        // undispersed intercept), not wherever a wide intercept prior sent it.
+        let anchor = self.pooling.anchor(&self.start);
+        point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[]), anchor));
         point
     }
 
@@ -255,7 +260,7 @@ impl Model {
     fn coefficients_with_departures(&self, theta: &[f64]) -> Vec<f64> {
         let p = self.labels.len();
         let mut out = theta[..p].to_vec();
-        out.extend(self.pooling.departures(&theta[self.first_group_index()..]));
+        out.extend(self.pooling.departures(&theta[self.first_group_index()..], self.pooling.anchor(theta)));
         out
     }
 
@@ -393,7 +398,13 @@ impl Model {
         for (g, d) in grad[..p].iter_mut().zip(&d_coefficients) {
             *g += d;
         }
-        total += self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], &mut grad[first_group..]);
+        let anchor = self.pooling.anchor(theta);
+        let (groups, d_anchor) =
+            self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], anchor, &mut grad[first_group..]);
+        total += groups;
+        if let Some(j) = self.pooling.intercept {
+            grad[j] += d_anchor;
+        }
         if total.is_finite() {
             total
         } else {

@@ -48,15 +48,19 @@ impl GroupTerm {
     }
 
     /// Labels of the group's unconstrained parameters: `log(block spread)`,
-    /// then the departures (centred) or their standard scores
-    /// (`block departure[B1] / block spread`, non-centred).
-    pub fn unconstrained_labels(&self) -> Vec<String> {
+    /// then the departures (centred), the level means when the group is
+    /// sampled `around_intercept` (`intercept + block departure[B1]`), or
+    /// the departures' standard scores (`block departure[B1] / block spread`,
+    /// non-centred).
+    pub fn unconstrained_labels(&self, around_intercept: bool) -> Vec<String> {
         let spread = group_spread_label(&self.column);
         let mut labels = self.labels();
         labels[0] = format!("log({spread})");
-        if self.layout == GroupLayout::NonCentred {
-            for label in &mut labels[1..] {
-                *label = format!("{label} / {spread}");
+        for label in &mut labels[1..] {
+            match self.layout {
+                GroupLayout::NonCentred => *label = format!("{label} / {spread}"),
+                GroupLayout::Centred if around_intercept => *label = format!("intercept + {label}"),
+                GroupLayout::Centred => {}
             }
         }
         labels
