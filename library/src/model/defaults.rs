@@ -267,8 +267,9 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
         }
         if group.is_positive() && prior.allows_negative() {
             return problem(format!(
-                "{prior} allows negative values but a spread is positive; use exponential, half_normal \
-                 or lognormal"
+                "{prior} allows negative values but {} positive; use exponential, half_normal \
+                 or lognormal",
+                if *group == PriorGroup::Spread { "the spread is" } else { "pooled spreads are" }
             ));
         }
         if !group.is_positive() && prior.is_positive_only() {
