@@ -80,6 +80,14 @@ impl Model {
     /// no mean and answers with an error naming
     /// [`Model::level_probabilities`].
     pub fn predict_mean(&self, params: &[f64], rows: &NewRows) -> Result<Prediction, ModelError> {
+        self.predict_mean_in_new_groups(params, rows, &[])
+    }
+
+    /// [`Model::predict_mean`], with `new_group[g]` as the departure of
+    /// every row that belongs to no fitted level of pooled group `g` (a new
+    /// group; 0 where `new_group` is shorter). Draw them with
+    /// [`Model::new_group_departures`].
+    pub fn predict_mean_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Prediction, ModelError> {
         self.check_length(params)?;
         if let Some(levels) = self.outcome_levels() {
             return Err(ModelError::Family {
@@ -94,7 +102,7 @@ impl Model {
         }
         let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
         let mut linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
-        self.add_departures(params, rows, &mut linear);
+        self.add_departures(params, rows, new_group, &mut linear);
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
     }
@@ -124,11 +132,23 @@ impl Model {
     /// [`Model::outcome_levels`] (0 for the reference level), drawn from
     /// [`Model::level_probabilities`]; callers turn it into a label.
     pub fn outcome_draw<R: Rng + ?Sized>(&self, params: &[f64], rows: &NewRows, rng: &mut R) -> Result<Vec<f64>, ModelError> {
+        self.outcome_draw_in_new_groups(params, rows, &[], rng)
+    }
+
+    /// [`Model::outcome_draw`] with `new_group` as in
+    /// [`Model::predict_mean_in_new_groups`].
+    pub fn outcome_draw_in_new_groups<R: Rng + ?Sized>(
+        &self,
+        params: &[f64],
+        rows: &NewRows,
+        new_group: &[f64],
+        rng: &mut R,
+    ) -> Result<Vec<f64>, ModelError> {
         if self.outcome_levels().is_some() {
             let probabilities = self.level_probabilities(params, rows)?;
             return Ok(probabilities.iter().map(|p| draw_level(p, rng.random::<f64>()) as f64).collect());
         }
-        let prediction = self.predict_mean(params, rows)?;
+        let prediction = self.predict_mean_in_new_groups(params, rows, new_group)?;
         let mut draws = Vec::with_capacity(prediction.mean.len());
         for (i, &mu) in prediction.mean.iter().enumerate() {
             draws.push(self.draw_one(params, rows, i, mu, rng)?);
@@ -137,18 +157,30 @@ impl Model {
     }
 
     /// Add each row's departure in every pooled group to its linear
-    /// predictor (nothing for a row of a new group).
-    fn add_departures(&self, params: &[f64], rows: &NewRows, linear: &mut [f64]) {
+    /// predictor (`new_group[g]`, or nothing, for a row of a new group).
+    fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear: &mut [f64]) {
         let mut at = self.first_group_index();
-        for (group, levels) in self.groups.iter().zip(&rows.groups) {
+        for (g, (group, levels)) in self.groups.iter().zip(&rows.groups).enumerate() {
             let departures = &params[at + 1..at + 1 + group.levels.len()];
+            let new = new_group.get(g).copied().unwrap_or(0.0);
             for (eta, level) in linear.iter_mut().zip(levels) {
-                if let Some(l) = level {
-                    *eta += departures[*l];
-                }
+                *eta += level.map_or(new, |l| departures[l]);
             }
             at += 1 + group.levels.len();
         }
+    }
+
+    /// One departure per pooled group for a new group drawn from the
+    /// population at constrained `params`: `spread · z`, z standard normal.
+    pub fn new_group_departures<R: Rng + ?Sized>(&self, params: &[f64], rng: &mut R) -> Vec<f64> {
+        let mut at = self.first_group_index();
+        let mut out = Vec::with_capacity(self.groups.len());
+        for group in &self.groups {
+            let z: f64 = rand_distr::StandardNormal.sample(rng);
+            out.push(params[at] * z);
+            at += 1 + group.levels.len();
+        }
+        out
     }
 
     fn draw_one<R: Rng + ?Sized>(&self, params: &[f64], rows: &NewRows, i: usize, mu: f64, rng: &mut R) -> Result<f64, ModelError> {
