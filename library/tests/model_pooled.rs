@@ -267,3 +267,46 @@ fn bad_pooled_cells_are_refused_with_the_place_named() {
     let negative = build_error("yield from girth, pooled plot using trees\nprior pooled spreads: normal(0, 1)", &table);
     assert!(negative.contains("positive"), "{negative}");
 }
+
+/// The funnel (Neal 2003, Annals of Statistics 31, 705–767, §8; recalled;
+/// Betancourt & Girolami 2015 for hierarchical models): 60 groups of 2
+/// rows whose true spread is small against the noise. Centred, the
+/// posterior of (log spread, departures) is a funnel whose neck is hard for
+/// NUTS to enter; the automatic choice must take the non-centred form here
+/// and sample without a divergent trajectory.
+#[test]
+fn a_funnel_is_sampled_without_divergences_by_the_automatic_choice() {
+    let (groups, per) = (60usize, 2usize);
+    let mut rng = StdRng::seed_from_u64(21);
+    let unit = Normal::new(0.0, 1.0).expect("valid normal");
+    let (mut y, mut codes) = (Vec::new(), Vec::new());
+    for j in 0..groups {
+        let departure = 0.02 * unit.sample(&mut rng);
+        for _ in 0..per {
+            y.push(5.0 + departure + unit.sample(&mut rng));
+            codes.push(j as u32);
+        }
+    }
+    let names: Vec<String> = (1..=groups).map(|k| format!("C{k}")).collect();
+    let names: Vec<&str> = names.iter().map(String::as_str).collect();
+    let table = Table {
+        name: "t".into(),
+        columns: vec![column("y", ColumnData::Real(y)), column("clinic", category(codes, &names))],
+    };
+    let settings = waypath::infer::nuts::NutsSettings {
+        chains: 2,
+        settle: 300,
+        draws: 500,
+        seed: 8,
+        ..waypath::infer::nuts::NutsSettings::default()
+    };
+    let run = |body: &str| {
+        let model = build(body, &table);
+        let fit = fit_model(&model, &Method::Nuts(settings.clone()), &AtomicBool::new(false), &|_| {}).expect("NUTS fit");
+        (model, fit.divergences)
+    };
+    let (automatic, divergences) = run("y from pooled clinic using t");
+    let note = automatic.notes().iter().find(|n| n.starts_with("pooled clinic")).expect("a note on the group");
+    assert!(note.contains("sampled noncentred (chosen from the data"), "{note}");
+    assert_eq!(divergences, 0, "the automatic choice diverged");
+}
