@@ -198,9 +198,9 @@ pub const ASK_USING: Form = Form {
         Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value,
         Word("using"), Value,
     ],
-    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value]],
+    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value], &[Word("pooling"), Value]],
     method: true,
-    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [with nuts …|with laplace …]",
+    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [pooling COLUMN …] [with nuts …|with laplace …]",
 };
 pub const PATHS: Form = Form {
     slots: &[Word("paths"), Word("from"), Value, Word("to"), Value, Word("in"), Value],
