@@ -245,6 +245,10 @@ fn pooled_groups_are_labelled_by_level_and_named_spreads() {
         ["soil spread", "soil departure[loam]", "soil departure[sandy]", "soil departure[clay]"]
     );
     assert_eq!(names[first - 1], "spread");
+    // README, output structures: a spread's share above zero is left out (it cannot be negative).
+    use waypath::model::terms::design::is_spread_label;
+    assert!(is_spread_label(&names[first]) && is_spread_label("spread"));
+    assert!(names[first + 1..].iter().all(|n| !is_spread_label(n)), "{names:?}");
     let used: Vec<&str> = model.priors_used().iter().map(|u| u.group.name()).collect();
     assert!(used.contains(&"pooled spreads"), "{used:?}");
 }

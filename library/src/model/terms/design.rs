@@ -33,6 +33,13 @@ pub const DEPARTURE: &str = "departure";
 /// The word after a pooled group's column in its spread's label.
 pub const GROUP_SPREAD: &str = "spread";
 
+/// Whether `label` names a spread — the residual `spread` or a pooled
+/// group's `block spread` (also behind a joint model's `node: ` prefix) —
+/// a parameter that cannot be negative.
+pub fn is_spread_label(label: &str) -> bool {
+    label == GROUP_SPREAD || label.ends_with(&format!(" {GROUP_SPREAD}"))
+}
+
 /// The label of the spread of pooled group `column`: `block spread`.
 pub fn group_spread_label(column: &str) -> String {
     format!("{column} {GROUP_SPREAD}")
