@@ -25,6 +25,9 @@
 //!   measures (pairs of them correlated), poisson family (log link), NUTS;
 //! * `f` — seeds that germinated out of the 1 to 40 sown in each of 5,000
 //!   trays against 5 soil measures, binomial family (logit link), NUTS.
+//! * `g` — clinics: whether a patient recovered against 3 measures, with
+//!   the clinic pooled (`pooled clinic`, varying intercepts), 60 clinics,
+//!   6,000 rows, bernoulli family, NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
@@ -107,6 +110,9 @@ fn main() {
     }
     if wants("f") {
         rows.push(case_binomial(nuts));
+    }
+    if wants("g") {
+        rows.push(case_clinics(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -273,6 +279,16 @@ fn case_binomial(nuts: &NutsSettings) -> Row {
     let model = build("m_trays", body, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(f) binomial, 5 predictors, n = 5,000, NUTS", started, &fit, &model)
+}
+
+/// (g) Bernoulli with a pooled clinic: 60 clinics, 6,000 rows, 3 predictors.
+fn case_clinics(nuts: &NutsSettings) -> Row {
+    let table = clinics(6000, 60, 16);
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_clinic", "recovered from dose, age, weight, pooled clinic using patients\nfamily bernoulli", &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(g) bernoulli, pooled clinic (60), 3 predictors, n = 6,000, NUTS", started, &fit, &model)
 }
 
 fn build(name: &str, body: &str, table: &Table) -> Model {
@@ -507,6 +523,37 @@ fn trays(n: usize, seed: u64) -> Table {
     named.push(("sown".into(), ColumnData::Count(sown)));
     named.push(("sprouted".into(), ColumnData::Count(sprouted)));
     Table { name: "trays".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
+
+}
+
+/// Patients of `groups` clinics, each clinic shifting the log odds of
+/// recovery by a normal(0, 0.6) departure; three standardised measures.
+fn clinics(n: usize, groups: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let departures: Vec<f64> = (0..groups).map(|_| 0.6 * noise.sample(&mut rng)).collect();
+    let (mut clinic, mut dose, mut age, mut weight, mut recovered) = (Vec::new(), Vec::new(), Vec::new(), Vec::new(), Vec::new());
+    for i in 0..n {
+        let c = (i * groups / n) as u32;
+        let (d, a, w): (f64, f64, f64) = (noise.sample(&mut rng), noise.sample(&mut rng), noise.sample(&mut rng));
+        let eta = 0.2 + 0.7 * d - 0.4 * a + 0.1 * w + departures[c as usize];
+        clinic.push(c);
+        dose.push(d);
+        age.push(a);
+        weight.push(w);
+        recovered.push(rng.random::<f64>() < 1.0 / (1.0 + (-eta).exp()));
+    }
+    let levels = (1..=groups).map(|k| format!("C{k:02}")).collect();
+    table(
+        "patients",
+        vec![
+            ("clinic", ColumnData::Category { codes: clinic, levels }),
+            ("dose", ColumnData::Real(dose)),
+            ("age", ColumnData::Real(age)),
+            ("weight", ColumnData::Real(weight)),
+            ("recovered", ColumnData::Binary(recovered)),
+        ],
+    )
 }
 
 /// Sapling height along age: a rise that levels off, with a dip.

@@ -504,3 +504,39 @@ fn a_yes_no_outcome_is_drawn_as_a_difference_in_probability() {
     assert!(svgs.iter().any(|s| s.contains("difference in the probability that y is yes")), "no probability axis");
     assert!(svgs.iter().all(|s| !s.contains("difference in mean y")));
 }
+
+/// `ask … using T pooling C`: the model pools the clusters of C, and the
+/// contrast (over the rows) says it averages over the observed clusters.
+/// The sites shift y by up to 1.5 but do not touch x, so the total effect
+/// of x on y is still 0.5 by path tracing (Wright 1934).
+#[test]
+fn ask_using_pools_the_named_cluster_column() {
+    let mut session = Session::new(".");
+    last_json(
+        &mut session,
+        "graph g:
+    z -> x -> y
+    z -> y
+    site -> y
+simulate field from g rows 400 seed 5:
+    z = normal(0, 1)
+    site = category(s1 0.2, s2 0.2, s3 0.2, s4 0.2, s5 0.2)
+    x = normal(0.8 * z, 1)
+    y = normal(1 + 0.5 * x + 0.7 * z + 1.5 * [site = s2] - 1 * [site = s4], 1)
+",
+    );
+    let json = last_json(
+        &mut session,
+        "ask total effect of x on y in g using field pooling site with nuts chains 2 settle 300 draws 400 seed 3",
+    );
+    let text = json["model"].as_str().expect("model text");
+    assert!(text.starts_with("y from x, z, pooled site using field"), "{text}");
+    let c = &json["contrasts"][0];
+    let (lower, upper) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
+    assert!(lower < TRUE_EFFECT && TRUE_EFFECT < upper, "{c}");
+    let notes = c["notes"].as_array().expect("notes");
+    assert!(notes.iter().any(|n| n.as_str().unwrap().contains("averaged over the observed site levels")), "{notes:?}");
+    let refused = run(&mut session, "ask total effect of x on y in g using field pooling x");
+    let message = refused.error.map(|e| e.describe()).unwrap_or_default();
+    assert!(message.contains("cannot also be pooled"), "{message}");
+}

@@ -169,3 +169,56 @@ fn logistic_regression_is_calibrated() {
     });
     assert_uniform(&["intercept", "warmth slope", "wetness slope"], &ranks);
 }
+
+/// Pooled sites: 6 sites of 4 plots, each site departing from the
+/// population by `a_j ~ normal(0, τ)`. Truth from intercept normal(10, 2),
+/// spread lognormal(0, 0.3), site spread lognormal(−0.5, 0.5); sampled
+/// centred (around the intercept) and non-centred.
+fn pooled_sites_are_calibrated(layout: &str, seed: u64) {
+    let body = format!(
+        "moisture from pooled site using plots\n\
+         prior intercepts: normal(10, 2)\n\
+         prior spread: lognormal(0, 0.3)\n\
+         prior pooled spreads: lognormal(-0.5, 0.5)\n\
+         parameterise site {layout}"
+    );
+    let ranks = sbc_ranks(&body, seed, |rng| {
+        let std_normal = Normal::<f64>::new(0.0, 1.0).expect("valid");
+        let intercept = 10.0 + 2.0 * std_normal.sample(rng);
+        let sigma = LogNormal::new(0.0, 0.3).expect("valid").sample(rng);
+        let tau = LogNormal::new(-0.5, 0.5).expect("valid").sample(rng);
+        let departures: Vec<f64> = (0..6).map(|_| tau * std_normal.sample(rng)).collect();
+        let (mut site, mut moisture) = (Vec::new(), Vec::new());
+        for (s, a) in departures.iter().enumerate() {
+            for _ in 0..4 {
+                site.push(s as u32);
+                moisture.push(intercept + a + sigma * std_normal.sample(rng));
+            }
+        }
+        let levels = (1..=6).map(|k| format!("S{k}")).collect();
+        let data = table(
+            "plots",
+            vec![("site", ColumnData::Category { codes: site, levels }), ("moisture", ColumnData::Real(moisture))],
+        );
+        let mut truth = vec![intercept, sigma, tau];
+        truth.extend(departures);
+        (truth, data)
+    });
+    let names: Vec<String> = ["intercept", "spread", "site spread"]
+        .iter()
+        .map(|s| s.to_string())
+        .chain((1..=6).map(|k| format!("site departure[S{k}]")))
+        .collect();
+    let names: Vec<&str> = names.iter().map(String::as_str).collect();
+    assert_uniform(&names, &ranks);
+}
+
+#[test]
+fn pooled_groups_are_calibrated_centred() {
+    pooled_sites_are_calibrated("centred", 12_000);
+}
+
+#[test]
+fn pooled_groups_are_calibrated_noncentred() {
+    pooled_sites_are_calibrated("noncentred", 13_000);
+}

@@ -88,7 +88,7 @@ fn syntax_errors_say_what_to_write() {
         .assert_eq(&line_error("prior slopes: cauchy(0, 1)"));
     expect![[r#"`normal(0)`: normal takes 2 numbers (mean, sd), not 1"#]].assert_eq(&line_error("prior slopes: normal(0)"));
     expect![[r#"`normal(0, -1)`: the sd must be positive"#]].assert_eq(&line_error("prior slopes: normal(0, -1)"));
-    expect![[r#"`noise` is not a prior group; use intercepts, slopes, weights or spread"#]]
+    expect![[r#"`noise` is not a prior group; use intercepts, slopes, weights, spread or pooled spreads"#]]
         .assert_eq(&line_error("prior noise: exponential(1)"));
     expect![[r#"`yield from girth` is not a model line; an outcome line ends with `using <table>`, other lines start with family, prior or centre"#]]
         .assert_eq(&line_error("yield from girth"));

@@ -362,8 +362,8 @@ mod tests {
             ("ask ", &["direct", "total"]),
             ("ask total effect ", &["of"]),
             ("ask total effect of x on y in g ", &["using"]),
-            // README: `ask … using T [checking zero] [at M v, …] [intervals P%] [with …]`.
-            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "with"]),
+            // README: `ask … using T [checking zero] [at M v, …] [pooling C …] [intervals P%] [with …]`.
+            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "pooling", "with"]),
             ("implications of g ", &["checked"]),
             ("implications of g checked ", &["against"]),
             ("joint j ", &["="]),
@@ -459,20 +459,24 @@ mod tests {
     fn model_body_lines_offer_the_words_of_the_model_parser() {
         let empty = Session::new(".");
         let cases: &[(&str, &[&str])] = &[
-            ("", &["centre", "family", "prior"]),
+            ("", &["centre", "family", "parameterise", "prior"]),
             ("family ", &["bernoulli", "binomial", "levels", "normal", "poisson"]),
             ("family binomial ", &["out"]),
             ("family binomial out ", &["of"]),
-            ("prior ", &["intercepts", "slopes", "spread", "weights"]),
+            ("prior ", &["intercepts", "pooled spreads", "slopes", "spread", "weights"]),
             ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student(", "uniform("]),
             ("centre ", &["off", "on"]),
             ("yield ", &["from", "using"]),
             ("yield from rootstock ", &["per", "using"]),
             ("yield from rootstock, girth per rootstock ", &["using"]),
+            // README "Pooled groups": `pooled block`, `parameterise block centred|noncentred`.
+            ("yield from girth, pooled block ", &["using"]),
+            ("yield from girth, po", &["pooled", "powers("]),
+            ("parameterise block ", &["centred", "noncentred"]),
             ("yield from powers(girth, 2) ", &["using"]),
             ("yield from spline(girth, 5, ", &["knots"]),
             ("fam", &["family"]),
-            ("yield from rootstock, po", &["powers("]),
+            ("yield from rootstock, pow", &["powers("]),
         ];
         for (line, want) in cases {
             assert_eq!(offered_in(&empty, "model m:", line), *want, "after {line:?}");
@@ -493,7 +497,7 @@ mod tests {
     fn joint_body_lines_offer_model_line_words() {
         let session = Session::new(".");
         let header = "joint j = orchard using trees:";
-        assert_eq!(offered_in(&session, header, ""), ["centre", "family", "prior"]);
+        assert_eq!(offered_in(&session, header, ""), ["centre", "family", "parameterise", "prior"]);
         assert_eq!(offered_in(&session, header, "girth "), ["from", "using"]);
         assert_eq!(offered_in(&session, header, "girth from rootstock "), ["per", "using"]);
         assert_eq!(offered(&session, &format!("{header}\n    girth from rootstock\n    family ")), ["bernoulli", "binomial", "levels", "normal", "poisson"]);

@@ -134,10 +134,11 @@ pub fn share_above_zero(share: f64) -> String {
     }
 }
 
-/// Parameters that cannot be negative (the residual spread): their share of
-/// draws above zero is always all of them and says nothing, so it is left out.
+/// Parameters that cannot be negative (the residual spread, pooled groups'
+/// spreads): their share of draws above zero is always all of them and says
+/// nothing, so it is left out.
 pub fn positive_only(label: &str) -> bool {
-    label == "spread"
+    crate::model::terms::design::is_spread_label(label)
 }
 
 /// One parameter's estimate in the fit JSON (`share_above_zero` null for a

@@ -103,6 +103,12 @@ pub enum FitError {
     Draws(String),
     #[error("{0}")]
     TooLarge(String),
+    /// A Laplace fit of a model with pooled groups failed, as it usually does.
+    #[error(
+        "{0}; a Laplace approximation suits pooled groups poorly (the joint mode of a spread and its departures \
+         sits at a spread of 0): fit with nuts"
+    )]
+    LaplacePooled(InferError),
 }
 
 /// Fit `model` with `method`. `cancel` stops a run early (an error);
@@ -123,7 +129,12 @@ pub fn fit_model(
             Some(exact) if !cancelled(cancel) => (Err(exact), 0),
             Some(_) => return Err(InferError::Cancelled.into()),
             None => {
-                let fit = laplace_with_cancel(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed, cancel)?;
+                let fit = laplace_with_cancel(model, &model.unconstrained_names(), &model.initial_point(), *draws, *seed, cancel)
+                    .map_err(|e| match e {
+                        InferError::Cancelled => FitError::Laplace(e),
+                        _ if !model.pooled_groups().is_empty() => FitError::LaplacePooled(e),
+                        _ => FitError::Laplace(e),
+                    })?;
                 (Err(fit.draws), 0)
             }
         },

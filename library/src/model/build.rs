@@ -11,7 +11,10 @@ use nalgebra::DMatrix;
 
 use crate::table::Table;
 
-use super::defaults::{assign_priors, predictor_blocks, ColumnSpread, PredictorBlock};
+use crate::limits::{bytes_for, check_memory};
+
+use super::defaults::{assign_priors, predictor_blocks, row_information, ColumnSpread, PredictorBlock};
+use super::family::pooling::Pooling;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
@@ -21,9 +24,9 @@ use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
-use super::spec::ModelSpec;
+use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
-use super::terms::{design_matrix, plan_terms, TermRecipe};
+use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
 
 impl Model {
     /// Build the model of `spec` on `table` (the table `spec.table` names;
@@ -43,10 +46,30 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_scales(spec, table)?;
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
+    let mut groups = plan_groups(spec, table)?;
     let blocks = predictor_blocks(spec, &outcome);
     let design = design_matrix(&recipes, table)?;
     let columns = column_spread(&design);
-    let priors = assign_priors(spec, &recipes, &outcome, &blocks, &columns)?;
+    let priors = assign_priors(spec, &recipes, &outcome, &blocks, &columns, &groups)?;
+    check_layout_lines(spec, &groups)?;
+    let information = row_information(&spec.family, &outcome);
+    let group_rows = fitted_group_rows(&groups, table)?;
+    for (group, rows) in groups.iter_mut().zip(&group_rows) {
+        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| *l);
+        let means = level_link_means(&spec.family, &outcome, rows, group.levels.len());
+        group.settle_layout(declared, information, &means);
+        notes.push(group.note());
+    }
+    let single_intercept = recipes.iter().position(|r| matches!(r, TermRecipe::Intercept)).map(|_| 0);
+    let pooling = Pooling::new(&groups, &priors.group_spreads, single_intercept);
+    if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
+        notes.push(format!(
+            "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
+             departure), which the data pin down apart from the intercept; its draws are still the departures",
+            group.column
+        ));
+    }
+    let likelihood_design = with_departure_columns(&design, &groups, &group_rows);
     let term_labels: Vec<String> = recipes.iter().flat_map(TermRecipe::labels).collect();
     let labels: Vec<String> =
         blocks.iter().flat_map(|b| term_labels.iter().map(move |l| format!("{}{l}", b.prefix))).collect();
@@ -64,17 +87,26 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             if intercepts.contains(&column) { 0.0 } else { columns.mean[column] }
         })
         .collect();
-    let start = starting_point(&blocks, &outcome, &priors.coefficients, priors.spread.as_ref(), &intercepts);
+    let mut start = starting_point(&blocks, &outcome, &priors.coefficients, priors.spread.as_ref(), &intercepts);
+    let anchor = pooling.anchor(&start);
+    start.extend(pooling.start(&[], anchor));
     let likelihood = match (priors.spread.clone(), &outcome.levels) {
         (Some(spread_prior), _) => {
             notes.push("spread is sampled as log(spread), with the Jacobian of that change included".into());
-            Likelihood::Gaussian { stats: GaussianStats::new(&design, &outcome.y, intercepts), spread_prior }
+            if !groups.is_empty() {
+                notes.push(
+                    "the normal likelihood keeps its sufficient statistics: cross-products of the design and the \
+                     groups' level indicators, computed once, so a gradient costs the same whatever the rows"
+                        .into(),
+                );
+            }
+            Likelihood::Gaussian { stats: GaussianStats::new(&likelihood_design, &outcome.y, intercepts), spread_prior }
         }
         (None, Some(levels)) => {
             notes.extend(level_notes(spec, levels, &outcome));
             Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len()))
         }
-        (None, None) => Likelihood::Glm(glm_data(&design, &spec.family, &outcome)),
+        (None, None) => Likelihood::Glm(glm_data(&likelihood_design, &spec.family, &outcome)),
     };
     Ok(Model {
         name: spec.name.clone(),
@@ -93,7 +125,99 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         priors_used: priors.uses,
         notes,
         start,
+        groups,
+        group_rows,
+        pooling,
     })
+}
+
+/// The pooled groups of `spec` planned on `table`; refused for the levels
+/// family and checked against the memory the likelihood's copy of their
+/// indicator columns needs.
+fn plan_groups(spec: &ModelSpec, table: &Table) -> Result<Vec<GroupTerm>, ModelError> {
+    let mut groups = Vec::new();
+    for term in &spec.terms {
+        let TermSpec::Pooled { by } = term else { continue };
+        if spec.family == Family::Levels {
+            return Err(ModelError::Term {
+                term: term.to_string(),
+                message: format!(
+                    "pooled groups are not available for a category outcome (family levels) yet; model {} with \
+                     `{by}` as an ordinary term (one intercept or offset per level) instead",
+                    spec.outcome
+                ),
+            });
+        }
+        let group = GroupTerm::plan(by, table).map_err(|e| match e {
+            ModelError::Syntax { message } => ModelError::Term { term: term.to_string(), message },
+            other => other,
+        })?;
+        let rows = table.nrows();
+        check_memory(
+            &format!("the term {term}: {} indicator columns over {rows} rows", group.levels.len()),
+            bytes_for(&[rows.max(1), group.levels.len(), 3]),
+        )
+        .map_err(|message| ModelError::Term { term: term.to_string(), message })?;
+        groups.push(group);
+    }
+    Ok(groups)
+}
+
+/// A `parameterise` line must name a pooled group of the model.
+fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), ModelError> {
+    for (name, _) in &spec.layouts {
+        if !groups.iter().any(|g| g.column == *name) {
+            let pooled: Vec<&str> = groups.iter().map(|g| g.column.as_str()).collect();
+            return Err(ModelError::syntax(format!(
+                "`parameterise {name}`: {name} is not a pooled group of this model ({}); add `pooled {name}` to \
+                 the outcome line or remove the line",
+                if pooled.is_empty() { "it has none".to_string() } else { format!("pooled: {}", pooled.join(", ")) }
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// Each level's raw mean outcome (per trial) on the link scale; `None`
+/// for a level without rows.
+fn level_link_means(family: &Family, outcome: &OutcomeValues, rows: &[usize], levels: usize) -> Vec<Option<f64>> {
+    let mut sums = vec![(0.0, 0.0); levels];
+    for (i, &level) in rows.iter().enumerate() {
+        let trials = outcome.trials.as_ref().map_or(1.0, |m| m[i]);
+        sums[level].0 += outcome.y[i];
+        sums[level].1 += trials;
+    }
+    sums.into_iter().map(|(y, m)| (m > 0.0).then(|| family.link(y / m))).collect()
+}
+
+/// Every fitted row's level in each group.
+fn fitted_group_rows(groups: &[GroupTerm], table: &Table) -> Result<Vec<Vec<usize>>, ModelError> {
+    groups
+        .iter()
+        .map(|g| Ok(g.level_of_rows(table)?.into_iter().map(|l| l.unwrap_or(0)).collect()))
+        .collect()
+}
+
+/// The design the likelihood evaluates: the fixed-effect columns followed
+/// by each group's level indicators, so that the coefficients followed by
+/// the departures give every row's linear predictor (`family::pooling`).
+/// Without groups, the design itself.
+pub(super) fn with_departure_columns(design: &DMatrix<f64>, groups: &[GroupTerm], rows: &[Vec<usize>]) -> DMatrix<f64> {
+    if groups.is_empty() {
+        return design.clone();
+    }
+    let p = design.ncols();
+    let width = p + groups.iter().map(|g| g.levels.len()).sum::<usize>();
+    let mut out = DMatrix::zeros(design.nrows(), width);
+    out.columns_mut(0, p).copy_from(design);
+    let mut at = p;
+    for (group, levels) in groups.iter().zip(rows) {
+        for (i, &level) in levels.iter().enumerate() {
+            out[(i, at + level)] = 1.0;
+        }
+        at += group.levels.len();
+    }
+    out
 }
 
 /// The sd and mean of every design column over the fitted rows.

@@ -38,6 +38,10 @@ impl Model {
         let Likelihood::Gaussian { stats, spread_prior } = &self.likelihood else {
             return None;
         };
+        if !self.pooling.is_empty() {
+            // The departures' prior depends on their spread: not this layout.
+            return None;
+        }
         let (xtx, xty, yty, n, y_mean, intercepts) = stats.parts();
         let p = self.labels.len();
         let mut shift = DVector::zeros(p);

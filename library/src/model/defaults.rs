@@ -28,6 +28,13 @@
 //! **Spread** (normal family): `half_normal(s_y)`: with no predictor at all
 //! the spread is `s_y`; the prior keeps it below about 2·`s_y`.
 //!
+//! **Pooled spreads.** A pooled group's departures vary from row to row
+//! too, so each pooled group takes one share of the budget beside the `K`
+//! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every
+//! group spread `half_normal(T/√(K + G))` — a group spread of that size
+//! makes the departures vary across rows by that share, and the prior
+//! keeps it below about twice the share.
+//!
 //! Every assignment is recorded as a [`PriorUse`] so fit output can list
 //! the priors actually used and who set them.
 
@@ -37,7 +44,9 @@ use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::prior::{short_number, Prior, PriorGroup};
 use super::spec::ModelSpec;
+use super::terms::design::group_spread_label;
 use super::terms::recipe::{mean_and_sd, TermRecipe};
+use super::terms::GroupTerm;
 
 /// The shared budget's target on the log-odds scale (logit and softmax links).
 const LOG_ODDS_TARGET: f64 = 1.5;
@@ -66,6 +75,8 @@ pub struct PriorPlan {
     /// average row (default intercepts) rather than on the coefficient.
     pub at_average_row: Vec<bool>,
     pub spread: Option<Prior>,
+    /// The spread prior of each pooled group, in the groups' order.
+    pub group_spreads: Vec<Prior>,
     pub uses: Vec<PriorUse>,
 }
 
@@ -114,12 +125,19 @@ pub fn assign_priors(
     outcome: &OutcomeValues,
     blocks: &[PredictorBlock],
     columns: &ColumnSpread,
+    groups: &[GroupTerm],
 ) -> Result<PriorPlan, ModelError> {
-    check_declared(spec, recipes)?;
+    check_declared(spec, recipes, groups)?;
     let target = budget_target(&spec.family, outcome);
     let intercepts = super::build::intercept_columns(recipes);
-    let varying = columns.sd.len() - intercepts.len();
-    let mut plan = PriorPlan { coefficients: Vec::new(), at_average_row: Vec::new(), spread: None, uses: Vec::new() };
+    let varying = columns.sd.len() - intercepts.len() + groups.len();
+    let mut plan = PriorPlan {
+        coefficients: Vec::new(),
+        at_average_row: Vec::new(),
+        spread: None,
+        group_spreads: Vec::new(),
+        uses: Vec::new(),
+    };
     for block in blocks {
         let mut column = 0;
         for recipe in recipes {
@@ -161,7 +179,35 @@ pub fn assign_priors(
         });
         plan.spread = Some(prior);
     }
+    let declared = spec.declared_prior(PriorGroup::PooledSpreads);
+    for group in groups {
+        let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target / (varying.max(1) as f64).sqrt() });
+        plan.uses.push(PriorUse {
+            group: PriorGroup::PooledSpreads,
+            parameters: vec![group_spread_label(&group.column)],
+            prior: prior.clone(),
+            declared: declared.is_some(),
+            at_average_row: false,
+        });
+        plan.group_spreads.push(prior);
+    }
     Ok(plan)
+}
+
+/// The information one row carries about the linear predictor at the
+/// outcome's mean (the Fisher information of the family there): `1/s_y²`
+/// normal, `p(1 − p)` bernoulli, `m̄·p(1 − p)` binomial, the mean count
+/// poisson. Used to choose how pooled groups are sampled.
+pub fn row_information(family: &Family, outcome: &OutcomeValues) -> f64 {
+    match family {
+        Family::Normal => 1.0 / budget_target(family, outcome).powi(2),
+        Family::Poisson => outcome.mean_per_trial().max(1e-3),
+        _ => {
+            let p = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
+            let trials = outcome.trials.as_ref().map_or(1.0, |m| mean_and_sd(m).0.max(1.0));
+            trials * p * (1.0 - p)
+        }
+    }
 }
 
 /// The outcome's mean on the link scale: the centre of intercept priors.
@@ -192,11 +238,13 @@ fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
 }
 
 /// Declared priors must suit their group, and the group must exist.
-fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelError> {
+fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]) -> Result<(), ModelError> {
     for (group, prior) in &spec.priors {
         let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
         let present = if *group == PriorGroup::Spread {
             spec.family.has_spread()
+        } else if *group == PriorGroup::PooledSpreads {
+            !groups.is_empty()
         } else {
             recipes.iter().any(|r| r.group() == *group)
         };
@@ -219,8 +267,9 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelE
         }
         if group.is_positive() && prior.allows_negative() {
             return problem(format!(
-                "{prior} allows negative values but the spread is positive; use exponential, half_normal \
-                 or lognormal"
+                "{prior} allows negative values but {} positive; use exponential, half_normal \
+                 or lognormal",
+                if *group == PriorGroup::Spread { "the spread is" } else { "pooled spreads are" }
             ));
         }
         if !group.is_positive() && prior.is_positive_only() {

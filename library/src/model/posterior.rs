@@ -2,7 +2,9 @@
 //!
 //! The unconstrained parameter vector is the coefficients, in design-column
 //! order (for the levels family, one run of design columns per level after
-//! the first), followed (normal family only) by `log(spread)`. The density is the
+//! the first), followed (normal family only) by `log(spread)`, then each
+//! pooled group's `log(spread)` and departure coordinates
+//! ([`super::family::pooling`]). The density is the
 //! full log-likelihood plus the log priors plus `log(spread)`, the log
 //! Jacobian of `spread = e^u`; normalising constants are kept so values can
 //! be checked against reference libraries.
@@ -14,9 +16,10 @@ use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::family::likelihood::GlmData;
 use super::family::softmax::SoftmaxData;
+use super::family::pooling::Pooling;
 use super::family::Family;
 use super::prior::Prior;
-use super::terms::TermRecipe;
+use super::terms::{GroupTerm, TermRecipe};
 use super::LogDensity;
 
 /// How the likelihood is evaluated.
@@ -55,6 +58,12 @@ pub struct Model {
     pub(crate) priors_used: Vec<PriorUse>,
     pub(crate) notes: Vec<String>,
     pub(crate) start: Vec<f64>,
+    /// Pooled groups, planned on the fitted data.
+    pub(crate) groups: Vec<GroupTerm>,
+    /// Per pooled group, every fitted row's level.
+    pub(crate) group_rows: Vec<Vec<usize>>,
+    /// The pooled groups' part of the density.
+    pub(crate) pooling: Pooling,
 }
 
 impl Model {
@@ -98,6 +107,7 @@ impl Model {
         if self.has_spread() {
             names.push("spread".into());
         }
+        names.extend(self.groups.iter().flat_map(GroupTerm::labels));
         names
     }
 
@@ -145,18 +155,37 @@ impl Model {
         if self.has_spread() {
             names.push("log(spread)".into());
         }
+        for (group, pooled) in self.groups.iter().zip(&self.pooling.groups) {
+            names.extend(group.unconstrained_labels(pooled.around_intercept));
+        }
         names
     }
 
     /// Constrained parameters from an unconstrained point.
     pub fn constrain(&self, theta: &[f64]) -> Vec<f64> {
-        let mut params = theta.to_vec();
+        let first_group = self.first_group_index();
+        let mut params = theta[..first_group.min(theta.len())].to_vec();
         if self.has_spread() {
             if let Some(last) = params.last_mut() {
                 *last = last.exp();
             }
         }
+        if theta.len() > first_group {
+            params.extend(self.pooling.constrain(&theta[first_group..], self.pooling.anchor(theta)));
+        }
         params
+    }
+
+    /// The index of the first pooled group's parameter (after the
+    /// coefficients and the spread) in [`Model::parameter_names`]; each
+    /// group then has its spread followed by one departure per level.
+    pub fn first_group_index(&self) -> usize {
+        self.labels.len() + usize::from(self.has_spread())
+    }
+
+    /// Pooled groups of the model, planned on the fitted data.
+    pub fn pooled_groups(&self) -> &[GroupTerm] {
+        &self.groups
     }
 
     /// The unconstrained point of constrained parameters (checks the length
@@ -173,6 +202,12 @@ impl Model {
             }
             theta[self.labels.len()] = spread.ln();
         }
+        let first_group = self.first_group_index();
+        let pooled = self.pooling.unconstrain(&params[first_group..], self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
+            message: format!("{} must be positive, not {}", self.parameter_names()[first_group + at], params[first_group + at]),
+        })?;
+        theta.truncate(first_group);
+        theta.extend(pooled);
         Ok(theta)
     }
 
@@ -214,6 +249,11 @@ impl Model {
         if self.has_spread() {
             point.push(self.start[p] + z.get(p).copied().unwrap_or(0.0));
         }
+        let first_group = self.first_group_index();
+        // Level means sampled around the intercept start near the data (the
+        // undispersed intercept), not wherever a wide intercept prior sent it.
+        let anchor = self.pooling.anchor(&self.start);
+        point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[]), anchor));
         point
     }
 
@@ -244,12 +284,22 @@ impl Model {
     pub fn log_likelihood(&self, params: &[f64]) -> Result<f64, ModelError> {
         let theta = self.unconstrain(params)?;
         let p = self.labels.len();
-        let mut scratch = vec![0.0; p];
+        let coefficients = self.coefficients_with_departures(&theta);
+        let mut scratch = vec![0.0; coefficients.len()];
         Ok(match &self.likelihood {
-            Likelihood::Gaussian { stats, .. } => stats.log_likelihood_and_gradient(&theta[..p], theta[p], &mut scratch).0,
-            Likelihood::Glm(glm) => glm.log_likelihood_and_gradient(&theta, &mut scratch),
-            Likelihood::Softmax(levels) => levels.log_likelihood_and_gradient(&theta, &mut scratch),
+            Likelihood::Gaussian { stats, .. } => stats.log_likelihood_and_gradient(&coefficients, theta[p], &mut scratch).0,
+            Likelihood::Glm(glm) => glm.log_likelihood_and_gradient(&coefficients, &mut scratch),
+            Likelihood::Softmax(levels) => levels.log_likelihood_and_gradient(&coefficients, &mut scratch),
         })
+    }
+
+    /// The coefficients followed by the pooled groups' departures: what the
+    /// likelihood multiplies its design by (`build::with_departure_columns`).
+    fn coefficients_with_departures(&self, theta: &[f64]) -> Vec<f64> {
+        let p = self.labels.len();
+        let mut out = theta[..p].to_vec();
+        out.extend(self.pooling.departures(&theta[self.first_group_index()..], self.pooling.anchor(theta)));
+        out
     }
 
     /// Whether the model has a spread parameter (normal family).
@@ -329,7 +379,7 @@ impl Model {
 
 impl LogDensity for Model {
     fn dim(&self) -> usize {
-        self.labels.len() + usize::from(self.has_spread())
+        self.first_group_index() + self.pooling.dim()
     }
 
     fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
@@ -337,6 +387,9 @@ impl LogDensity for Model {
         let mut total = self.log_prior_of_coefficients(&theta[..p], &mut grad[..p]);
         if total == f64::NEG_INFINITY {
             return f64::NEG_INFINITY;
+        }
+        if !self.pooling.is_empty() {
+            return self.pooled_log_density_and_gradient(theta, grad, total);
         }
         match &self.likelihood {
             Likelihood::Gaussian { stats, spread_prior } => {
@@ -349,6 +402,46 @@ impl LogDensity for Model {
             }
             Likelihood::Glm(glm) => total += glm.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
             Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
+        }
+        if total.is_finite() {
+            total
+        } else {
+            f64::NEG_INFINITY
+        }
+    }
+}
+
+impl Model {
+    /// The log density of a model with pooled groups, given the log prior of
+    /// its coefficients (`total`, gradient already in `grad[..p]`): the
+    /// likelihood at the coefficients and departures, the spread's prior
+    /// (normal family) and the groups' part ([`Pooling`]).
+    fn pooled_log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64], mut total: f64) -> f64 {
+        let p = self.labels.len();
+        let first_group = self.first_group_index();
+        let coefficients = self.coefficients_with_departures(theta);
+        let mut d_coefficients = vec![0.0; coefficients.len()];
+        match &self.likelihood {
+            Likelihood::Gaussian { stats, spread_prior } => {
+                let u = theta[p];
+                let (ll, d_u) = stats.log_likelihood_and_gradient(&coefficients, u, &mut d_coefficients);
+                let spread = u.exp();
+                let (lp, d_spread) = spread_prior.log_density_and_derivative(spread);
+                total += ll + lp + u;
+                grad[p] = d_u + d_spread * spread + 1.0;
+            }
+            Likelihood::Glm(glm) => total += glm.log_likelihood_and_gradient(&coefficients, &mut d_coefficients),
+            Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&coefficients, &mut d_coefficients),
+        }
+        for (g, d) in grad[..p].iter_mut().zip(&d_coefficients) {
+            *g += d;
+        }
+        let anchor = self.pooling.anchor(theta);
+        let (groups, d_anchor) =
+            self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], anchor, &mut grad[first_group..]);
+        total += groups;
+        if let Some(j) = self.pooling.intercept {
+            grad[j] += d_anchor;
         }
         if total.is_finite() {
             total

@@ -14,7 +14,7 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 
 use crate::table::Table;
 
-use super::build::{glm_data, intercept_columns, softmax_data};
+use super::build::{glm_data, intercept_columns, softmax_data, with_departure_columns};
 use super::columns::real_values;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
@@ -30,6 +30,26 @@ pub struct NewRows {
     pub design: DMatrix<f64>,
     /// Trials per row (binomial family, when the table has the trials column).
     pub trials: Option<Vec<u64>>,
+    /// Per pooled group, each row's level (`None`: a level the fitted data
+    /// did not have, or a table without the group's column — a new group,
+    /// whose departure is taken as 0, the population's own prediction).
+    pub groups: Vec<Vec<Option<usize>>>,
+}
+
+impl NewRows {
+    /// Rows without pooled groups (or of a new group in each).
+    pub fn from_design(design: DMatrix<f64>, trials: Option<Vec<u64>>) -> NewRows {
+        NewRows { design, trials, groups: Vec::new() }
+    }
+
+    /// The rows at `indices`, in that order.
+    pub fn select(&self, indices: &[usize]) -> NewRows {
+        NewRows {
+            design: self.design.select_rows(indices),
+            trials: self.trials.as_ref().map(|t| indices.iter().map(|&i| t[i]).collect()),
+            groups: self.groups.iter().map(|g| indices.iter().map(|&i| g[i]).collect()).collect(),
+        }
+    }
 }
 
 /// The linear predictor and the mean of each new row (per trial for binomial).
@@ -51,7 +71,8 @@ impl Model {
             },
             _ => None,
         };
-        Ok(NewRows { design, trials })
+        let groups = self.groups.iter().map(|g| g.level_of_rows(table)).collect::<Result<_, _>>()?;
+        Ok(NewRows { design, trials, groups })
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
@@ -59,6 +80,14 @@ impl Model {
     /// no mean and answers with an error naming
     /// [`Model::level_probabilities`].
     pub fn predict_mean(&self, params: &[f64], rows: &NewRows) -> Result<Prediction, ModelError> {
+        self.predict_mean_in_new_groups(params, rows, &[])
+    }
+
+    /// [`Model::predict_mean`], with `new_group[g]` as the departure of
+    /// every row that belongs to no fitted level of pooled group `g` (a new
+    /// group; 0 where `new_group` is shorter). Draw them with
+    /// [`Model::new_group_departures`].
+    pub fn predict_mean_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Prediction, ModelError> {
         self.check_length(params)?;
         if let Some(levels) = self.outcome_levels() {
             return Err(ModelError::Family {
@@ -72,7 +101,8 @@ impl Model {
             });
         }
         let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
-        let linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
+        let mut linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
+        self.add_departures(params, rows, new_group, &mut linear);
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
     }
@@ -102,16 +132,55 @@ impl Model {
     /// [`Model::outcome_levels`] (0 for the reference level), drawn from
     /// [`Model::level_probabilities`]; callers turn it into a label.
     pub fn outcome_draw<R: Rng + ?Sized>(&self, params: &[f64], rows: &NewRows, rng: &mut R) -> Result<Vec<f64>, ModelError> {
+        self.outcome_draw_in_new_groups(params, rows, &[], rng)
+    }
+
+    /// [`Model::outcome_draw`] with `new_group` as in
+    /// [`Model::predict_mean_in_new_groups`].
+    pub fn outcome_draw_in_new_groups<R: Rng + ?Sized>(
+        &self,
+        params: &[f64],
+        rows: &NewRows,
+        new_group: &[f64],
+        rng: &mut R,
+    ) -> Result<Vec<f64>, ModelError> {
         if self.outcome_levels().is_some() {
             let probabilities = self.level_probabilities(params, rows)?;
             return Ok(probabilities.iter().map(|p| draw_level(p, rng.random::<f64>()) as f64).collect());
         }
-        let prediction = self.predict_mean(params, rows)?;
+        let prediction = self.predict_mean_in_new_groups(params, rows, new_group)?;
         let mut draws = Vec::with_capacity(prediction.mean.len());
         for (i, &mu) in prediction.mean.iter().enumerate() {
             draws.push(self.draw_one(params, rows, i, mu, rng)?);
         }
         Ok(draws)
+    }
+
+    /// Add each row's departure in every pooled group to its linear
+    /// predictor (`new_group[g]`, or nothing, for a row of a new group).
+    fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear: &mut [f64]) {
+        let mut at = self.first_group_index();
+        for (g, (group, levels)) in self.groups.iter().zip(&rows.groups).enumerate() {
+            let departures = &params[at + 1..at + 1 + group.levels.len()];
+            let new = new_group.get(g).copied().unwrap_or(0.0);
+            for (eta, level) in linear.iter_mut().zip(levels) {
+                *eta += level.map_or(new, |l| departures[l]);
+            }
+            at += 1 + group.levels.len();
+        }
+    }
+
+    /// One departure per pooled group for a new group drawn from the
+    /// population at constrained `params`: `spread · z`, z standard normal.
+    pub fn new_group_departures<R: Rng + ?Sized>(&self, params: &[f64], rng: &mut R) -> Vec<f64> {
+        let mut at = self.first_group_index();
+        let mut out = Vec::with_capacity(self.groups.len());
+        for group in &self.groups {
+            let z: f64 = rand_distr::StandardNormal.sample(rng);
+            out.push(params[at] * z);
+            at += 1 + group.levels.len();
+        }
+        out
     }
 
     fn draw_one<R: Rng + ?Sized>(&self, params: &[f64], rows: &NewRows, i: usize, mu: f64, rng: &mut R) -> Result<f64, ModelError> {
@@ -182,7 +251,8 @@ impl Model {
             Likelihood::Glm(glm) => glm.trials().map(|m| m.iter().map(|&v| v as u64).collect()),
             Likelihood::Gaussian { .. } | Likelihood::Softmax(_) => None,
         };
-        NewRows { design: self.design.clone(), trials }
+        let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
+        NewRows { design: self.design.clone(), trials, groups }
     }
 
     /// The same model — design, recipes, priors and binomial trials
@@ -198,12 +268,12 @@ impl Model {
         }
         let likelihood = match &self.likelihood {
             Likelihood::Gaussian { spread_prior, .. } => Likelihood::Gaussian {
-                stats: GaussianStats::new(&self.design, &y, intercept_columns(&self.recipes)),
+                stats: GaussianStats::new(&self.likelihood_design(), &y, intercept_columns(&self.recipes)),
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
                 let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
-                Likelihood::Glm(glm_data(&self.design, &self.family, &outcome))
+                Likelihood::Glm(glm_data(&self.likelihood_design(), &self.family, &outcome))
             }
             Likelihood::Softmax(_) => {
                 let count = self.outcome_levels().map_or(0, <[String]>::len);
@@ -216,5 +286,13 @@ impl Model {
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })
+    }
+}
+
+impl Model {
+    /// The design the likelihood evaluates: the fitted design followed by
+    /// the pooled groups' level indicators.
+    fn likelihood_design(&self) -> DMatrix<f64> {
+        with_departure_columns(&self.design, &self.groups, &self.group_rows)
     }
 }

@@ -25,11 +25,14 @@ pub enum PriorGroup {
     Weights,
     /// The residual spread of a normal outcome (positive).
     Spread,
+    /// The spreads of pooled groups' departures (positive).
+    PooledSpreads,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 4] = [PriorGroup::Intercepts, PriorGroup::Slopes, PriorGroup::Weights, PriorGroup::Spread];
+    pub const ALL: [PriorGroup; 5] =
+        [PriorGroup::Intercepts, PriorGroup::Slopes, PriorGroup::Weights, PriorGroup::Spread, PriorGroup::PooledSpreads];
 
     /// The group words of a `prior` line.
     pub fn words() -> Vec<&'static str> {
@@ -43,6 +46,7 @@ impl PriorGroup {
             PriorGroup::Slopes => "slopes",
             PriorGroup::Weights => "weights",
             PriorGroup::Spread => "spread",
+            PriorGroup::PooledSpreads => "pooled spreads",
         }
     }
 
@@ -62,7 +66,7 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        self == PriorGroup::Spread
+        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads)
     }
 }
 

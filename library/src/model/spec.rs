@@ -16,13 +16,19 @@
 //!   slope of x per level), `powers(<x>, <degree>)` (raw powers 1 to degree of
 //!   the standardised x), `spline(<x>, <functions>)`
 //!   or `spline(<x>, <functions>, knots <k1> <k2> …)`.
+//! * A term `pooled <category>`: each level of the category departs from
+//!   the population's prediction by its own amount, the departures drawn
+//!   from `normal(0, <category> spread)` with the spread learned (partial
+//!   pooling: a level with few rows is pulled towards the population).
 //! * `family normal | bernoulli | poisson | levels | binomial out of <column>`.
 //!   Without a family line the family follows the outcome column: `levels`
 //!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
-//!   weights (spline weights), spread.
+//!   weights (spline weights), spread, pooled spreads.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
+//! * `parameterise <category> centred | noncentred` — how a pooled group's
+//!   departures are sampled (Waypath chooses from the data otherwise).
 //!
 //! Parsing knows nothing of the data; [`crate::model::Model::build`] checks
 //! the names and kinds against the table.
@@ -32,6 +38,7 @@ use std::fmt;
 use super::error::ModelError;
 use super::family::Family;
 use super::prior::{Prior, PriorGroup};
+pub use super::terms::groups::GroupLayout;
 
 /// The first word of a family line.
 pub const FAMILY_LINE: &str = "family";
@@ -40,7 +47,7 @@ pub const PRIOR_LINE: &str = "prior";
 /// The first word of a centring line.
 pub const CENTRE_LINE: &str = "centre";
 /// The words that start a body line other than the outcome line.
-pub const LINE_WORDS: &[&str] = &[FAMILY_LINE, PRIOR_LINE, CENTRE_LINE];
+pub const LINE_WORDS: &[&str] = &[FAMILY_LINE, PRIOR_LINE, CENTRE_LINE, PARAMETERISE_LINE];
 /// The settings of a centring line: on, off.
 pub const CENTRINGS: &[&str] = &["on", "off"];
 /// The word between the outcome and its terms.
@@ -58,6 +65,13 @@ pub const SPLINE: &str = "spline";
 pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE];
 /// The word before listed interior knots of a spline term.
 pub const KNOTS: &str = "knots";
+/// The term `pooled <category>`: one departure per level of the category,
+/// drawn from a normal population whose spread the data teach (partial
+/// pooling; [`crate::model::terms::groups`]).
+pub const POOLED: &str = "pooled";
+/// The first word of a line that sets how a pooled group's departures are
+/// sampled: `parameterise <category> centred | noncentred`.
+pub const PARAMETERISE_LINE: &str = "parameterise";
 
 /// One term of the right-hand side of the outcome line.
 #[derive(Debug, Clone, PartialEq)]
@@ -71,13 +85,16 @@ pub enum TermSpec {
     /// `spline(x, k)`: k cubic B-spline basis functions of `x`, interior knots
     /// at quantiles unless listed.
     Spline { predictor: String, functions: usize, knots: Option<Vec<f64>> },
+    /// `pooled c`: one departure per level of category `c` from the
+    /// population, the departures normal around 0 with a learned spread.
+    Pooled { by: String },
 }
 
 impl TermSpec {
     /// The column whose values enter the term (the `x` of `x per c`).
     pub fn predictor(&self) -> &str {
         match self {
-            TermSpec::Column(name) => name,
+            TermSpec::Column(name) | TermSpec::Pooled { by: name } => name,
             TermSpec::Per { predictor, .. }
             | TermSpec::Powers { predictor, .. }
             | TermSpec::Spline { predictor, .. } => predictor,
@@ -91,6 +108,7 @@ impl fmt::Display for TermSpec {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
             TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
+            TermSpec::Pooled { by } => write!(f, "{POOLED} {by}"),
             TermSpec::Spline { predictor, functions, knots: None } => {
                 write!(f, "spline({predictor}, {functions})")
             }
@@ -117,6 +135,8 @@ pub enum ModelLine {
     Family(Family),
     Prior { group: PriorGroup, prior: Prior },
     Centring(bool),
+    /// `parameterise <category> centred | noncentred`.
+    Parameterise { group: String, layout: GroupLayout },
     /// A blank or comment-only line.
     Blank,
 }
@@ -140,6 +160,9 @@ pub struct ModelSpec {
     pub centre: bool,
     /// Cell line of the outcome line (1-based), used to place build errors.
     pub formula_line: Option<usize>,
+    /// Pooled groups whose parameterisation a `parameterise` line sets
+    /// (otherwise Waypath chooses from the data).
+    pub layouts: Vec<(String, GroupLayout)>,
 }
 
 impl ModelSpec {
@@ -153,6 +176,7 @@ impl ModelSpec {
         let mut family: Option<(usize, Family)> = None;
         let mut priors: Vec<(PriorGroup, Prior)> = Vec::new();
         let mut centre = true;
+        let mut layouts: Vec<(String, GroupLayout)> = Vec::new();
         for (line, text) in lines {
             let at = |e: ModelError| e.at_line(line);
             match parse_model_line(text).map_err(at)? {
@@ -168,6 +192,14 @@ impl ModelSpec {
                     priors.push((group, prior));
                 }
                 ModelLine::Centring(on) => centre = on,
+                ModelLine::Parameterise { group, layout } => {
+                    if layouts.iter().any(|(g, _)| *g == group) {
+                        return Err(at(ModelError::syntax(format!(
+                            "`{group}` is already parameterised on an earlier line; keep one"
+                        ))));
+                    }
+                    layouts.push((group, layout));
+                }
                 ModelLine::Blank => {}
             }
         }
@@ -186,6 +218,7 @@ impl ModelSpec {
             priors,
             centre,
             formula_line: Some(formula_line),
+            layouts,
         })
     }
 
@@ -216,6 +249,7 @@ pub fn parse_model_line(text: &str) -> Result<ModelLine, ModelError> {
         FAMILY_LINE => Family::parse(rest.trim()).map(ModelLine::Family),
         PRIOR_LINE => parse_prior_line(rest.trim()),
         CENTRE_LINE => parse_centring(rest.trim()),
+        PARAMETERISE_LINE => parse_parameterise(rest.trim()),
         _ => parse_formula(text).map(ModelLine::Formula),
     }
 }
@@ -228,7 +262,7 @@ fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
     })?;
     let group = PriorGroup::parse(group_word).ok_or_else(|| {
         ModelError::syntax(format!(
-            "`{}` is not a prior group; use intercepts, slopes, weights or spread",
+            "`{}` is not a prior group; use intercepts, slopes, weights, spread or pooled spreads",
             group_word.trim()
         ))
     })?;
@@ -240,6 +274,20 @@ fn parse_centring(rest: &str) -> Result<ModelLine, ModelError> {
         Some(i) => Ok(ModelLine::Centring(i == 0)),
         None => Err(ModelError::syntax(format!("`centre {rest}`: write `centre on` or `centre off`"))),
     }
+}
+
+fn parse_parameterise(rest: &str) -> Result<ModelLine, ModelError> {
+    let usage = || {
+        ModelError::syntax(format!(
+            "`{PARAMETERISE_LINE} {rest}`: write `{PARAMETERISE_LINE} <pooled category> {}` or `… {}`",
+            GroupLayout::Centred.word(),
+            GroupLayout::NonCentred.word()
+        ))
+    };
+    let words: Vec<&str> = rest.split_whitespace().collect();
+    let [group, layout] = words[..] else { return Err(usage()) };
+    let layout = GroupLayout::parse(layout).ok_or_else(usage)?;
+    Ok(ModelLine::Parameterise { group: identifier(group, "pooled category")?, layout })
 }
 
 fn parse_formula(text: &str) -> Result<Formula, ModelError> {
@@ -290,6 +338,9 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     }
     if let Some(inner) = call_arguments(text, SPLINE) {
         return parse_spline(inner, text);
+    }
+    if let Some(by) = text.strip_prefix(POOLED).filter(|rest| rest.starts_with(char::is_whitespace)) {
+        return Ok(TermSpec::Pooled { by: identifier(by.trim(), "category after `pooled`")? });
     }
     if let Some((x, by)) = text.split_once(&*format!(" {PER} ")) {
         return Ok(TermSpec::Per {

@@ -97,6 +97,9 @@ pub struct AskOptions {
     /// written; `None`: every level against the first (a category), or
     /// one unit above the mean against the mean (a number).
     pub settings: Option<(String, String)>,
+    /// Category columns whose clusters the model pools (`pooling c`): each
+    /// enters as `pooled c`, and the contrasts average over its observed levels.
+    pub pooled: Vec<String>,
 }
 
 /// [`answer_effect`] with `options`, reporting the sampler's progress to `progress`.
@@ -189,6 +192,16 @@ pub fn answer_effect_with_progress(
     let family = family_for(table, outcome, &place)?;
     let mut terms = vec![exposure.to_string()];
     terms.extend(set.iter().cloned());
+    for cluster in &options.pooled {
+        require_column(table, cluster, &place)?;
+        if terms.contains(cluster) || cluster == outcome {
+            return Err(QueryError::request(format!(
+                "{place}: {cluster} already enters the model as the exposure, the outcome or a member of the \
+                 adjustment set, so it cannot also be pooled; pool a column that only marks the clusters"
+            )));
+        }
+        terms.push(format!("pooled {cluster}"));
+    }
     let mut lines = vec![format!("{outcome} from {} using {}", terms.join(", "), table.name)];
     if family != Family::Normal {
         lines.push(format!("family {}", family.name()));

@@ -178,18 +178,29 @@ fn failure_note(reps: usize, failed: &[(usize, String)]) -> String {
     )
 }
 
-/// One draw of every parameter from its prior, in parameter order.
+/// One draw of every parameter from its prior, in parameter order. A
+/// pooled group draws its spread from the spread's prior, then each
+/// departure from `normal(0, spread)`.
 pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryError> {
-    let values: Vec<f64> = model
-        .parameter_names()
-        .iter()
-        .map(|name| {
-            let used = model.priors_used().iter().find(|u| u.parameters.contains(name)).ok_or_else(|| {
-                QueryError::request(format!("model {}: parameter {name} has no prior", model.name()))
-            })?;
-            Ok(used.prior.sample(rng))
-        })
-        .collect::<Result<_, QueryError>>()?;
+    let names = model.parameter_names();
+    let sample = |name: &String, rng: &mut StdRng| -> Result<f64, QueryError> {
+        let used = model.priors_used().iter().find(|u| u.parameters.contains(name)).ok_or_else(|| {
+            QueryError::request(format!("model {}: parameter {name} has no prior", model.name()))
+        })?;
+        Ok(used.prior.sample(rng))
+    };
+    let first_group = model.first_group_index();
+    let mut values: Vec<f64> = names[..first_group].iter().map(|n| sample(n, rng)).collect::<Result<_, QueryError>>()?;
+    let mut at = first_group;
+    for group in model.pooled_groups() {
+        let spread = sample(&names[at], rng)?;
+        values.push(spread);
+        for _ in &group.levels {
+            let z: f64 = rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng);
+            values.push(spread * z);
+        }
+        at += 1 + group.levels.len();
+    }
     Ok(model.from_prior_values(values))
 }
 

@@ -199,8 +199,9 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
             predictors.join(", ")
         )));
     }
+    let pooled: Vec<String> = model.pooled_groups().iter().map(|g| g.column.clone()).collect();
     for (name, _) in &request.held {
-        if !is_predictor(name) || *name == request.variable {
+        if !(is_predictor(name) || pooled.contains(name)) || *name == request.variable {
             return Err(QueryError::request(format!(
                 "{place}: `{name}` cannot be held: it is not another predictor of model {}",
                 model.name()
@@ -231,7 +232,20 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
         let listed: Vec<String> = held.iter().map(|h| format!("{} = {} ({})", h.name, h.value, h.source)).collect();
         format!("other predictors held at {}", listed.join(", "))
     };
-    let pairing = Pairing { model, params: &params, variable: &request.variable, to: &to, from: &from, on: request.on };
+    let new_group_seed = match request.on {
+        On::Outcomes { seed } => seed,
+        On::Means => NEW_GROUP_SEED,
+    };
+    let new_groups = notes_on_groups(model, request, table, new_group_seed, &mut notes);
+    let pairing = Pairing {
+        model,
+        params: &params,
+        variable: &request.variable,
+        to: &to,
+        from: &from,
+        on: request.on,
+        new_groups: new_groups.then_some(new_group_seed),
+    };
     let values = pairing.draws(&base)?;
     let summary = ContrastSummary::of(&values, request.mass)?;
     let grid = match &request.along {
@@ -316,6 +330,35 @@ fn settings(
 
 /// The table with each stated predictor set to its value in every row
 /// (the rest keep their observed values), for averages over rows.
+/// Seed of the departures drawn for a new group in a contrast on means.
+pub const NEW_GROUP_SEED: u64 = 31_415;
+
+/// Which of the three questions a contrast of a model with pooled groups
+/// answers, per group, said in `notes`; `true` when some group is a new
+/// one (its departure drawn per draw from the population).
+fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed: u64, notes: &mut Vec<String>) -> bool {
+    let mut any_new = false;
+    for group in model.pooled_groups() {
+        let name = &group.column;
+        let stated = request.held.iter().find(|(n, _)| n == name);
+        notes.push(match stated {
+            Some((_, level)) => format!("pooled {name}: for the existing {name} {level}, with its own departure"),
+            None if request.over_rows && table.column(name).is_some() => format!(
+                "pooled {name}: averaged over the observed {name} levels, each row keeping its own {name}'s departure"
+            ),
+            None => {
+                any_new = true;
+                format!(
+                    "pooled {name}: for a new {name} drawn from the population: each draw adds one departure drawn \
+                     from normal(0, {name} spread) to both settings (seed {seed}); `at {name} <level>` asks for an \
+                     existing one, `over rows` averages over the observed ones"
+                )
+            }
+        });
+    }
+    any_new
+}
+
 fn held_in_every_row(table: &Table, request: &ContrastRequest, place: &str) -> Result<(Table, Vec<HeldValue>), QueryError> {
     let mut base = table.clone();
     let mut held = Vec::new();
@@ -354,6 +397,12 @@ fn held_row(
         if *name != request.variable {
             held.push(HeldValue { name: name.clone(), value: setting.text(), source: source.into() });
         }
+        columns.push(setting.column(name, 1));
+    }
+    // A pooled group's column named by `at`: an existing group.
+    for (name, text) in request.held.iter().filter(|(n, _)| !predictors.contains(n)) {
+        let setting = Setting::read(require_column(table, name, place)?, text, place)?;
+        held.push(HeldValue { name: name.clone(), value: setting.text(), source: "stated".into() });
         columns.push(setting.column(name, 1));
     }
     Ok((Table::from_columns(table.name.clone(), columns)?, held))
@@ -457,6 +506,8 @@ struct Pairing<'a> {
     to: &'a Setting,
     from: &'a Setting,
     on: On,
+    /// The seed of new-group departures, when a pooled group is a new one.
+    new_groups: Option<u64>,
 }
 
 impl Pairing<'_> {
@@ -471,15 +522,17 @@ impl Pairing<'_> {
             .enumerate()
             .map(|(d, theta)| match self.on {
                 On::Means => {
-                    let a = self.model.predict_mean(theta, &rows_to)?.mean;
-                    let b = self.model.predict_mean(theta, &rows_from)?.mean;
+                    let new = self.new_group(theta, d);
+                    let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
+                    let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
                     Ok(a.iter().zip(&b).map(|(x, y)| x - y).sum::<f64>() / n as f64)
                 }
                 On::Outcomes { seed } => {
+                    let new = self.new_group(theta, d);
                     let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, 0));
                     let r = if n == 1 { 0 } else { rng.random_range(0..n) };
-                    let a = self.model.outcome_draw(theta, &one_row(&rows_to, r), &mut rng)?;
-                    let b = self.model.outcome_draw(theta, &one_row(&rows_from, r), &mut rng)?;
+                    let a = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_to, r), &new, &mut rng)?;
+                    let b = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_from, r), &new, &mut rng)?;
                     Ok(a[0] - b[0])
                 }
             })
@@ -487,10 +540,21 @@ impl Pairing<'_> {
     }
 }
 
+impl Pairing<'_> {
+    /// Draw `d`'s departures of a new group in every pooled group (none
+    /// when no group is a new one), from their own seeded stream.
+    fn new_group(&self, theta: &[f64], d: usize) -> Vec<f64> {
+        match self.new_groups {
+            Some(seed) => {
+                let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, 1));
+                self.model.new_group_departures(theta, &mut rng)
+            }
+            None => Vec::new(),
+        }
+    }
+}
+
 /// Row `r` of new rows.
 fn one_row(rows: &NewRows, r: usize) -> NewRows {
-    NewRows {
-        design: rows.design.rows(r, 1).into_owned(),
-        trials: rows.trials.as_ref().map(|t| vec![t[r]]),
-    }
+    rows.select(&[r])
 }

@@ -11,7 +11,10 @@
 use super::grammar::{tokens, Next};
 use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
-use crate::model::spec::{CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, PER, PRIOR_LINE, SPLINE, TERM_CALLS, USING};
+use crate::model::spec::{
+    GroupLayout, CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, PARAMETERISE_LINE, PER, POOLED, PRIOR_LINE,
+    SPLINE, TERM_CALLS, USING,
+};
 use crate::model::PriorGroup;
 use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
 use crate::table::condition::{AND, NOT, OR};
@@ -70,6 +73,8 @@ fn model_line(typed: &str) -> Next {
         [PRIOR_LINE] => Next { words: PriorGroup::words(), calls: Vec::new(), values: false },
         [PRIOR_LINE, .., ":"] => next(&[], PRIOR_DISTRIBUTIONS, false),
         [CENTRE_LINE] => next(CENTRINGS, &[], false),
+        [PARAMETERISE_LINE] => next(&[], &[], true),
+        [PARAMETERISE_LINE, _] => next(&GroupLayout::WORDS, &[], false),
         [first, ..] if LINE_WORDS.contains(first) => Next::default(),
         _ => outcome_line(typed, &words),
     }
@@ -93,15 +98,15 @@ fn outcome_line(typed: &str, words: &[&str]) -> Next {
         return next(&[FROM, USING], &[], false);
     }
     if last == FROM || typed.trim_end().ends_with(',') {
-        return next(&[], TERM_CALLS, true);
+        return next(&[POOLED], TERM_CALLS, true);
     }
-    if last == PER || last == USING {
+    if last == PER || last == USING || last == POOLED {
         return next(&[], &[], true);
     }
     if !words.contains(&FROM) {
         return Next::default();
     }
-    if before_last == Some(PER) || last.ends_with(')') {
+    if before_last == Some(PER) || before_last == Some(POOLED) || last.ends_with(')') {
         return next(&[USING], &[], false);
     }
     next(&[PER, USING], &[], false)

@@ -210,9 +210,9 @@ pub const ASK_USING: Form = Form {
         Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value,
         Word("using"), Value,
     ],
-    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value], INTERVALS_OPTION],
+    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value], &[Word("pooling"), Value], INTERVALS_OPTION],
     method: true,
-    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [intervals P%] [with nuts …|with laplace …]",
+    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [pooling COLUMN …] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const PATHS: Form = Form {
     slots: &[Word("paths"), Word("from"), Value, Word("to"), Value, Word("in"), Value],

@@ -337,8 +337,9 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
     Display { plain, html: Some(html), svg, json: Some(json) }
 }
 
-/// The options of `ask … using T` before `with …`: `checking zero` and
-/// `at NODE VALUE [NODE VALUE …]`; the rest (the method) is returned.
+/// The options of `ask … using T` before `with …`: `checking zero`,
+/// `at NODE VALUE [NODE VALUE …]` and `pooling C [C …]`; the rest (the
+/// method) is returned.
 fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
     let mut options = AskOptions::default();
     let mut rest = text.trim();
@@ -346,10 +347,22 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
         if let Some(tail) = option_text(rest, "checking") {
             rest = tail.strip_prefix("zero").ok_or("`checking` is followed by `zero`")?.trim();
             options.check_zero = true;
+        } else if let Some(tail) = option_text(rest, "pooling") {
+            let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
+            while let Some(name) = words.next_if(|w| !["with", "checking", "at"].contains(w)) {
+                options.pooled.push(name.to_string());
+            }
+            if options.pooled.is_empty() {
+                return Err("`pooling` is followed by the column that marks the clusters".into());
+            }
+            rest = match [" with ", " checking ", " at "].iter().filter_map(|w| tail.find(w)).min() {
+                Some(i) => tail[i..].trim(),
+                None => "",
+            };
         } else if let Some(tail) = option_text(rest, "at") {
             let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
             let mut used = 0;
-            while let Some(name) = words.next_if(|w| !["with", "checking"].contains(w)) {
+            while let Some(name) = words.next_if(|w| !["with", "checking", "pooling"].contains(w)) {
                 let value = words.next().ok_or(format!("`at {name}` needs a value"))?;
                 options.held.push((name.to_string(), value.to_string()));
                 used += 1;
@@ -357,7 +370,7 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
             if used == 0 {
                 return Err("`at` is followed by a node and its value".into());
             }
-            rest = match tail.find(" with ").or_else(|| tail.find(" checking ")) {
+            rest = match [" with ", " checking ", " pooling "].iter().filter_map(|w| tail.find(w)).min() {
                 Some(i) => tail[i..].trim(),
                 None => "",
             };
@@ -367,7 +380,7 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
     }
 }
 
-/// `ask total|direct effect of X on Y in G using T [checking zero] [at M V …] [with …]`.
+/// `ask total|direct effect of X on Y in G using T [checking zero] [at M V …] [pooling C …] [with …]`.
 pub(crate) fn ask_using(
     session: &mut Session,
     st: &Statement,

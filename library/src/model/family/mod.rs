@@ -6,11 +6,14 @@
 //! predictors, one per level after the first, and a softmax link to the
 //! level probabilities. The likelihoods live in [`likelihood`] (row by row,
 //! for the GLM families), [`gaussian`] (through sufficient statistics, for
-//! the normal family) and [`softmax`] (row by row, for the levels family).
+//! the normal family) and [`softmax`] (row by row, for the levels family);
+//! pooled groups add their departures to the linear predictor and their
+//! population prior to the density through [`pooling`].
 
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
+pub mod pooling;
 pub mod softmax;
 
 use super::error::ModelError;

@@ -7,7 +7,8 @@
 //! `soil[sandy vs loam]` (offset of a level from the first level);
 //! `girth slope`; `girth slope[dwarf]` (slope within a level);
 //! `day power 2` (coefficient of the squared standardised day);
-//! `age spline 3` (weight of B-spline function 3). Column names hold no
+//! `age spline 3` (weight of B-spline function 3); for a pooled group
+//! `block spread` and `block departure[B1]`. Column names hold no
 //! spaces, so a label with a role word never equals a column-based one.
 
 use nalgebra::DMatrix;
@@ -17,6 +18,7 @@ use crate::table::Table;
 use super::super::columns::{category_levels, find_column, real_values};
 use super::super::error::ModelError;
 use super::super::prior::PriorGroup;
+use super::groups::{GroupLayout, GroupTerm};
 use super::recipe::TermRecipe;
 
 /// The role word of a slope's label.
@@ -25,6 +27,52 @@ pub const SLOPE: &str = "slope";
 pub const POWER: &str = "power";
 /// The role word of a spline weight's label.
 pub const SPLINE: &str = "spline";
+
+/// The role word of a pooled group's departures.
+pub const DEPARTURE: &str = "departure";
+/// The word after a pooled group's column in its spread's label.
+pub const GROUP_SPREAD: &str = "spread";
+
+/// Whether `label` names a spread — the residual `spread` or a pooled
+/// group's `block spread` (also behind a joint model's `node: ` prefix) —
+/// a parameter that cannot be negative.
+pub fn is_spread_label(label: &str) -> bool {
+    label == GROUP_SPREAD || label.ends_with(&format!(" {GROUP_SPREAD}"))
+}
+
+/// The label of the spread of pooled group `column`: `block spread`.
+pub fn group_spread_label(column: &str) -> String {
+    format!("{column} {GROUP_SPREAD}")
+}
+
+impl GroupTerm {
+    /// Labels of the group's parameters: its spread, then one departure per
+    /// level (`block spread`, `block departure[B1]`, …).
+    pub fn labels(&self) -> Vec<String> {
+        std::iter::once(group_spread_label(&self.column))
+            .chain(self.levels.iter().map(|l| format!("{} {DEPARTURE}[{l}]", self.column)))
+            .collect()
+    }
+
+    /// Labels of the group's unconstrained parameters: `log(block spread)`,
+    /// then the departures (centred), the level means when the group is
+    /// sampled `around_intercept` (`intercept + block departure[B1]`), or
+    /// the departures' standard scores (`block departure[B1] / block spread`,
+    /// non-centred).
+    pub fn unconstrained_labels(&self, around_intercept: bool) -> Vec<String> {
+        let spread = group_spread_label(&self.column);
+        let mut labels = self.labels();
+        labels[0] = format!("log({spread})");
+        for label in &mut labels[1..] {
+            match self.layout {
+                GroupLayout::NonCentred => *label = format!("{label} / {spread}"),
+                GroupLayout::Centred if around_intercept => *label = format!("intercept + {label}"),
+                GroupLayout::Centred => {}
+            }
+        }
+        labels
+    }
+}
 
 /// The label of the slope of real column `column`: `girth slope`.
 pub fn slope_label(column: &str) -> String {

@@ -3,7 +3,9 @@
 //! ([`design`]) — the fitted data or new rows for prediction.
 
 pub mod design;
+pub mod groups;
 pub mod recipe;
 
 pub use design::design_matrix;
+pub use groups::{GroupLayout, GroupTerm};
 pub use recipe::{plan_terms, TermRecipe};

@@ -75,6 +75,8 @@ impl Planner<'_> {
             TermSpec::Spline { predictor, functions, knots } => {
                 self.plan_spline(predictor, *functions, knots.as_deref())
             }
+            // Planned as a group (`terms::groups`), not as design columns.
+            TermSpec::Pooled { .. } => Ok(()),
         }
     }
 

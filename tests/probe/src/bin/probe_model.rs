@@ -14,6 +14,9 @@
 //! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
 //!   one chain, 300 settling iterations); answers the calibration structure (ranks,
 //!   chi-square and p-value per parameter).
+//! * `nuts` — as `fit`, plus `chains`, `settle`, `draws` and `seed`: a
+//!   NUTS fit; answers `names`, and per parameter `mean`, `median` and `sd`
+//!   of the draws and `r_hat`, with `divergences` and `largest_r_hat`.
 //! * `contrast` — as `fit`, plus `variable`, `draws` and `seed`: a Laplace
 //!   fit, then the default contrast of `variable` averaged over rows;
 //!   answers `names`, `params` (constrained draws), `to`, `from` and
@@ -38,6 +41,7 @@ fn main() {
         Some("prior") => prior(&request),
         Some("calibrate") => calibrate(&request),
         Some("contrast") => contrast(&request),
+        Some("nuts") => nuts(&request),
         other => Err(format!("unknown action {other:?}")),
     };
     waypath_probe::write_answer(&answer.unwrap_or_else(|e| json!({ "error": e })));
@@ -108,7 +112,7 @@ fn fit(request: &Value) -> Result<Value, String> {
         "family": model.family().name(),
     });
     if let Some(levels) = model.outcome_levels() {
-        let rows = NewRows { design: model.design_matrix().clone(), trials: None };
+        let rows = NewRows::from_design(model.design_matrix().clone(), None);
         answer["levels"] = json!(levels);
         answer["probabilities"] = json!(model.level_probabilities(&mode, &rows).map_err(|e| e.to_string())?);
     }
@@ -157,4 +161,33 @@ fn contrast(request: &Value) -> Result<Value, String> {
     let columns: Vec<&[f64]> = names.iter().map(|n| fit.draws.get(n).ok_or("missing draws")).collect::<Result<_, _>>()?;
     let params: Vec<Vec<f64>> = (0..fit.draws.len()).map(|d| columns.iter().map(|c| c[d]).collect()).collect();
     Ok(json!({ "names": names, "params": params, "to": c.to, "from": c.from, "differences": c.draws, "scale": c.scale }))
+}
+
+fn nuts(request: &Value) -> Result<Value, String> {
+    let model = model(request)?;
+    let whole = |key: &str| request[key].as_u64().ok_or_else(|| format!("{key} must be a whole number"));
+    let settings = NutsSettings {
+        chains: whole("chains")? as usize,
+        settle: whole("settle")? as usize,
+        draws: whole("draws")? as usize,
+        seed: whole("seed")?,
+        ..NutsSettings::default()
+    };
+    let fit = waypath::infer::fit::fit_model(&model, &Method::Nuts(settings), &AtomicBool::new(false), &|_| {})
+        .map_err(|e| e.to_string())?;
+    let names = model.parameter_names();
+    let (mut mean, mut median, mut sd) = (Vec::new(), Vec::new(), Vec::new());
+    for name in &names {
+        let mut v = fit.draws.get(name).ok_or("missing draws")?.to_vec();
+        let n = v.len() as f64;
+        let m = v.iter().sum::<f64>() / n;
+        sd.push((v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt());
+        mean.push(m);
+        v.sort_by(f64::total_cmp);
+        median.push(v[v.len() / 2]);
+    }
+    let r_hat: Vec<f64> = fit.diagnostics.iter().flatten().map(|d| d.rhat).collect();
+    let largest_r_hat = r_hat.iter().copied().fold(0.0_f64, f64::max);
+    Ok(json!({ "names": names, "mean": mean, "median": median, "sd": sd, "divergences": fit.divergences,
+               "largest_r_hat": largest_r_hat, "r_hat": r_hat }))
 }

@@ -1,0 +1,221 @@
+//! Pooled groups: the layout of a `pooled <category>` term.
+//!
+//! Clustered rows (trees in orchard blocks, patients in clinics) share
+//! something the predictors do not name. A pooled group gives every level of
+//! its category a *departure* from the population's prediction on the link
+//! scale, and treats the departures as draws from `normal(0, spread)` whose
+//! spread is learned from the data: a level with many rows keeps close to
+//! its own rows, one with few is pulled towards the population (partial
+//! pooling). The departures are not design columns; they enter the linear
+//! predictor as a contribution of their own (`model::family::pooling`), so
+//! the fixed-effect design and its priors are untouched.
+//!
+//! This module plans a group once on the fitted data — its levels in the
+//! table's order, the rows per level, how its departures are sampled — and
+//! maps the rows of any table to level indices. Labels are written by
+//! [`super::design`] (`block spread`, `block departure[B1]`).
+//!
+//! # Centred or non-centred
+//!
+//! The departures can be sampled as themselves (*centred*) or as standard
+//! scores times the spread (*non-centred*). When each level's rows say
+//! little about its departure the posterior of (spread, departures) is a
+//! funnel that the centred form samples badly (divergences); when they say
+//! a lot, the non-centred form is the awkward one. Waypath's rule, from the
+//! data before fitting:
+//!
+//! 1. `I`, the information one row carries about the linear predictor at
+//!    the outcome's mean: `1/s_y²` normal, `p(1 − p)` bernoulli,
+//!    `m̄·p(1 − p)` binomial, the mean count poisson.
+//! 2. A rough spread of the departures from the raw level means on the link
+//!    scale `mⱼ` (levels with rows only): the moment estimate
+//!    `τ̂² = var(mⱼ) − mean(1/(nⱼ·I))` — the spread of the level means less
+//!    what their own noise explains (0 when that is negative, or with fewer
+//!    than 3 levels with rows).
+//! 3. A level's *information ratio* `nⱼ·I·τ̂²`: how much more its rows tell
+//!    about its departure than the population does.
+//!
+//! The group is centred when the median level's ratio is at least
+//! [`CENTRED_AT`], non-centred otherwise — so a group whose levels hardly
+//! differ (a spread near 0, the funnel's neck) is non-centred whatever its
+//! size. The predictors are not taken out of the level means, so the rule
+//! is a guide; a `parameterise` line overrides it, and the model's notes
+//! say which form was taken and why.
+
+use crate::table::Table;
+
+use super::super::columns::{category_levels, find_column};
+use super::super::error::ModelError;
+
+/// The median information ratio at and above which a group is centred.
+pub const CENTRED_AT: f64 = 5.0;
+
+/// How a pooled group's departures are sampled.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum GroupLayout {
+    /// The departures themselves, with `normal(0, spread)` as their prior.
+    Centred,
+    /// Standard scores `z` with `departure = spread · z`.
+    NonCentred,
+}
+
+impl GroupLayout {
+    /// The word of a `parameterise` line.
+    pub fn word(self) -> &'static str {
+        match self {
+            GroupLayout::Centred => "centred",
+            GroupLayout::NonCentred => "noncentred",
+        }
+    }
+
+    /// Read the word of a `parameterise` line.
+    pub fn parse(word: &str) -> Option<GroupLayout> {
+        [GroupLayout::Centred, GroupLayout::NonCentred].into_iter().find(|l| l.word() == word)
+    }
+
+    /// The words a `parameterise` line takes after the category.
+    pub const WORDS: [&'static str; 2] = ["centred", "noncentred"];
+}
+
+/// Why a group has its layout.
+#[derive(Debug, Clone, PartialEq)]
+pub enum LayoutChoice {
+    /// Written in the cell.
+    Declared,
+    /// Waypath's rule, with the median information ratio it saw and the
+    /// rough spread of the departures behind it.
+    FromData { median_ratio: f64, rough_spread: f64 },
+}
+
+/// One pooled group, planned on the fitted data.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GroupTerm {
+    /// The category column.
+    pub column: String,
+    /// Its levels, in the table's order (the order of the departures).
+    pub levels: Vec<String>,
+    /// Fitted rows per level.
+    pub rows_per_level: Vec<usize>,
+    pub layout: GroupLayout,
+    pub choice: LayoutChoice,
+}
+
+impl GroupTerm {
+    /// Plan the group of category `column` on `table`; the layout is set
+    /// later by [`GroupTerm::settle_layout`].
+    pub fn plan(column: &str, table: &Table) -> Result<GroupTerm, ModelError> {
+        let (codes, levels) = category_levels(find_column(table, column)?, "the column after `pooled`")?;
+        let mut rows_per_level = vec![0usize; levels.len()];
+        for &code in codes {
+            rows_per_level[code as usize] += 1;
+        }
+        if levels.len() < 2 {
+            return Err(ModelError::Column {
+                column: column.to_string(),
+                message: format!(
+                    "a pooled group needs at least 2 levels to learn how they vary, but `{column}` has {}",
+                    levels.len()
+                ),
+            });
+        }
+        Ok(GroupTerm {
+            column: column.to_string(),
+            levels: levels.to_vec(),
+            rows_per_level,
+            layout: GroupLayout::NonCentred,
+            choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0 },
+        })
+    }
+
+    /// Set the layout: the declared one, else the rule of the module docs
+    /// with `row_information` (`I`, one row's information about the linear
+    /// predictor at the outcome's mean) and `level_means` (each level's raw
+    /// mean outcome on the link scale, `None` for a level without rows).
+    pub fn settle_layout(&mut self, declared: Option<GroupLayout>, row_information: f64, level_means: &[Option<f64>]) {
+        if let Some(layout) = declared {
+            self.layout = layout;
+            self.choice = LayoutChoice::Declared;
+            return;
+        }
+        let rough_spread = rough_departure_spread(&self.rows_per_level, row_information, level_means);
+        let mut ratios: Vec<f64> = self
+            .rows_per_level
+            .iter()
+            .filter(|&&n| n > 0)
+            .map(|&n| n as f64 * row_information * rough_spread * rough_spread)
+            .collect();
+        ratios.sort_by(f64::total_cmp);
+        let median_ratio = median_of_sorted(&ratios);
+        self.layout = if median_ratio >= CENTRED_AT { GroupLayout::Centred } else { GroupLayout::NonCentred };
+        self.choice = LayoutChoice::FromData { median_ratio, rough_spread };
+    }
+
+    /// The level index of every row of `table` (`None` for a level the
+    /// fitted data did not have, or for every row when the table lacks the
+    /// column: such rows belong to a new group).
+    pub fn level_of_rows(&self, table: &Table) -> Result<Vec<Option<usize>>, ModelError> {
+        let Some(found) = table.column(&self.column) else {
+            return Ok(vec![None; table.nrows()]);
+        };
+        let (codes, table_levels) = category_levels(found, "a pooled group")?;
+        let mapping: Vec<Option<usize>> =
+            table_levels.iter().map(|label| self.levels.iter().position(|l| l == label)).collect();
+        Ok(codes.iter().map(|&c| mapping[c as usize]).collect())
+    }
+
+    /// A note on the group for the model table: levels, rows, the layout
+    /// and why.
+    pub fn note(&self) -> String {
+        let (fewest, most) = (
+            self.rows_per_level.iter().copied().min().unwrap_or(0),
+            self.rows_per_level.iter().copied().max().unwrap_or(0),
+        );
+        let why = match &self.choice {
+            LayoutChoice::Declared => "as the parameterise line says".to_string(),
+            LayoutChoice::FromData { median_ratio, rough_spread } => format!(
+                "chosen from the data: the level means suggest a spread of about {} on the link scale, and with \
+                 it the median level's rows tell {} times what the population does about its departure; \
+                 centred from {CENTRED_AT}; a `parameterise {} centred|noncentred` line overrides this",
+                super::super::prior::short_number(*rough_spread),
+                super::super::prior::short_number(*median_ratio),
+                self.column
+            ),
+        };
+        format!(
+            "pooled {}: {} levels ({} to {} rows each), each departing from the population by its own amount on \
+             the link scale, the departures normal(0, {} spread) with the spread learned; sampled {} ({why})",
+            self.column,
+            self.levels.len(),
+            fewest,
+            most,
+            self.column,
+            self.layout.word()
+        )
+    }
+}
+
+/// `τ̂` of the module docs: the spread of the level means less what their
+/// own noise explains, 0 when that is negative or fewer than 3 levels have rows.
+pub fn rough_departure_spread(rows_per_level: &[usize], row_information: f64, level_means: &[Option<f64>]) -> f64 {
+    let seen: Vec<(f64, f64)> = rows_per_level
+        .iter()
+        .zip(level_means)
+        .filter_map(|(&n, m)| m.filter(|_| n > 0).map(|m| (n as f64, m)))
+        .collect();
+    if seen.len() < 3 || !(row_information > 0.0) {
+        return 0.0;
+    }
+    let k = seen.len() as f64;
+    let mean = seen.iter().map(|(_, m)| m).sum::<f64>() / k;
+    let between = seen.iter().map(|(_, m)| (m - mean).powi(2)).sum::<f64>() / (k - 1.0);
+    let noise = seen.iter().map(|(n, _)| 1.0 / (n * row_information)).sum::<f64>() / k;
+    (between - noise).max(0.0).sqrt()
+}
+
+fn median_of_sorted(values: &[f64]) -> f64 {
+    match values.len() {
+        0 => 0.0,
+        n if n % 2 == 1 => values[n / 2],
+        n => 0.5 * (values[n / 2 - 1] + values[n / 2]),
+    }
+}

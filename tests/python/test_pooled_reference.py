@@ -1,0 +1,64 @@
+"""Reference checks of pooled groups (`pooled <category>`, partial pooling).
+
+Source: statsmodels MixedLM fitted by REML. With a flat prior on the fixed
+effects, the REML criterion is the marginal likelihood of the variance
+components with the fixed effects integrated out (Harville 1977, JASA 72,
+320-338; recalled), so on a large simulated set with wide priors Waypath's
+posterior of the fixed effects centres on the REML estimates (within a
+fraction of their standard errors) and the posterior of the group spread
+and the residual spread sits on REML's variance components.
+Data: invented sites and plots, generated with a fixed seed.
+"""
+import numpy as np
+import statsmodels.formula.api as smf
+
+WIDE = ("prior intercepts: normal(0, 1000)\nprior slopes: normal(0, 1000)\n"
+        "prior spread: half_normal(100)\nprior pooled spreads: half_normal(100)\n")
+
+
+def sites(groups=60, per=40, seed=16):
+    rng = np.random.default_rng(seed)
+    sizes = rng.integers(per // 2, per * 3 // 2, groups)
+    site = np.repeat(np.arange(groups), sizes)
+    n = len(site)
+    moisture = rng.normal(30, 6, n)
+    shift = rng.normal(0, 1.8, groups)
+    growth = 12 + 0.4 * moisture + shift[site] + rng.normal(0, 2.5, n)
+    return site, moisture, growth
+
+
+def test_normal_pooled_intercepts_match_mixedlm_reml(probe):
+    site, moisture, growth = sites()
+    levels = [f"S{k + 1}" for k in range(site.max() + 1)]
+    answer = probe("model", {
+        "action": "nuts", "chains": 2, "settle": 300, "draws": 600, "seed": 5,
+        "columns": {"site": {"category": {"codes": site.tolist(), "levels": levels}},
+                    "moisture": {"real": moisture.tolist()}, "growth": {"real": growth.tolist()}},
+        "model": "growth from moisture, pooled site using plots\n" + WIDE,
+    })
+    assert "error" not in answer, answer
+    names = answer["names"]
+    mean = dict(zip(names, answer["mean"]))
+    median = dict(zip(names, answer["median"]))
+    sd = dict(zip(names, answer["sd"]))
+    assert answer["divergences"] == 0, answer["divergences"]
+    worst = int(np.argmax(answer["r_hat"]))
+    assert answer["largest_r_hat"] < 1.05, (names[worst], answer["largest_r_hat"], answer.get("notes"))
+
+    centred = moisture - moisture.mean()
+    reml = smf.mixedlm("growth ~ centred", {"growth": growth, "centred": centred, "site": site},
+                       groups="site").fit(reml=True)
+    # Fixed effects: the intercept at the mean moisture and the slope.
+    for ours, theirs in [("intercept", "Intercept"), ("moisture slope", "centred")]:
+        se = reml.bse[theirs]
+        assert abs(mean[ours] - reml.params[theirs]) < 0.25 * se, (ours, mean[ours], reml.params[theirs], se)
+        assert abs(sd[ours] / se - 1) < 0.2, (ours, sd[ours], se)
+    # Variance components: group spread and residual spread.
+    tau = np.sqrt(reml.cov_re.iloc[0, 0])
+    sigma = np.sqrt(reml.scale)
+    assert abs(median["site spread"] / tau - 1) < 0.06, (median["site spread"], tau)
+    assert abs(median["spread"] / sigma - 1) < 0.01, (median["spread"], sigma)
+    # Departures: the REML predictions of the random effects (BLUPs).
+    blups = np.array([reml.random_effects[k].iloc[0] for k in range(len(levels))])
+    ours = np.array([mean[f"site departure[{lv}]"] for lv in levels])
+    assert np.max(np.abs(ours - blups)) < 0.15, np.max(np.abs(ours - blups))
