@@ -7,9 +7,13 @@
 //! full joint posterior (paired differences, not differences of summaries).
 //!
 //! * [`summary`] — mean, sd, quantile interval, HDI and the share of draws above zero per parameter;
-//! * [`export`] — the draws as CSV, one row per draw.
+//! * [`export`] — the draws as CSV, one row per draw;
+//! * [`pareto`] — the generalised Pareto distribution and its fit to a tail of draws;
+//! * [`importance`] — Pareto-smoothed importance sampling of a row's left-out predictive density.
 
 pub mod export;
+pub mod importance;
+pub mod pareto;
 pub mod summary;
 
 pub use summary::{hdi, quantile_interval, Interval, Summary, SummarySpec};

@@ -56,6 +56,7 @@ pub mod error;
 pub mod family;
 mod inputs;
 mod outcome;
+mod pointwise;
 mod posterior;
 mod predict;
 pub mod prior;

@@ -18,6 +18,9 @@
 //! * [`calibrate`]: simulation-based calibration over the prior and prior /
 //!   posterior predictive outcome sets.
 //! * [`implications`]: the graph's testable implications checked against data.
+//! * [`left_out`]: fitted models of one outcome scored by their predictions
+//!   of left-out rows (Pareto-smoothed importance sampling, exact refits
+//!   of the rows it cannot handle).
 //!
 //! The query layer never reads files and never renders.
 
@@ -29,6 +32,7 @@ pub mod front_door;
 pub mod implications;
 pub mod intervene;
 pub mod joint;
+pub mod left_out;
 pub mod mechanism;
 pub mod recover;
 pub mod robustness;
@@ -43,6 +47,7 @@ pub use front_door::{front_door_estimate, FrontDoorFit, FRONT_DOOR_SEED};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};
+pub use left_out::{score_predictions, HardRow, ModelScore, PredictiveScores};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};

@@ -337,10 +337,21 @@ pub const PRIOR_CHECK: Form =
     Form { slots: &[Word("prior"), Word("check"), Value], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
 pub const CHECK: Form = Form { slots: &[Word("check"), Value], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
 
+/// The option of `score predictions of …` that bounds the exact refits.
+pub const REFITS_WORD: &str = "refits";
+/// `score predictions of M1, M2, … [refits N]`: fitted models of one
+/// outcome scored by their predictions of left-out rows.
+pub const SCORE: Form = Form {
+    slots: &[Word("score"), Word("predictions"), Word("of")],
+    options: &[&[Word(REFITS_WORD), Value]],
+    method: false,
+    usage: "score predictions of MODEL[, MODEL …] [refits N]  (fitted models of one outcome on the same rows; N rows at most refitted exactly per model, 5 unless set)",
+};
+
 /// Every header form, in the order statement words are listed to users.
 pub const FORMS: &[Form] = &[
     TABLE, GRAPH, GRAPH_FILE, ASK, ASK_USING, PATHS, IMPLICATIONS, IMPLICATIONS_CHECKED, MODEL, FIT, SHOW, EXPORT, PLOT,
-    SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, ROBUSTNESS, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK,
+    SAVE, CONTRAST, CONTRAST_BETWEEN, COMPARE_ROUTES, ROBUSTNESS, SCORE, JOINT, INTERVENE, SIMULATE, RECOVER, CALIBRATE, PRIOR_CHECK,
     CHECK, INTERVALS,
 ];
 
@@ -517,7 +528,7 @@ mod tests {
     fn statement_words_are_those_the_readme_lists() {
         let readme = [
             "table", "graph", "ask", "paths", "implications", "model", "fit", "show", "export", "plot", "save",
-            "contrast", "compare", "robustness", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
+            "contrast", "compare", "robustness", "score", "joint", "intervene", "simulate", "recover", "calibrate", "prior", "check",
             "intervals",
         ];
         assert_eq!(statement_words(), readme);

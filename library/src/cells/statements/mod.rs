@@ -6,6 +6,7 @@ mod data;
 mod fitting;
 pub mod grammar;
 mod questions;
+mod scoring;
 mod simulation;
 
 use super::files::write_atomically;
@@ -39,6 +40,7 @@ pub(crate) fn run(
         "contrast" => questions::contrast(session, st),
         "compare" => questions::compare_routes(session, st, control, warnings),
         "robustness" => questions::robustness(session, st),
+        "score" => scoring::score(session, st, control, warnings),
         "model" => fitting::model(session, st),
         "fit" if simulation::names_joint(session, head) => simulation::fit_joint(session, st, control, warnings),
         "fit" => fitting::fit(session, st, control, warnings),
