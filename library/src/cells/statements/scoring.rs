@@ -24,6 +24,12 @@ pub(super) const PREDICTION_IS_NOT_CAUSATION: &str = "A better score means bette
      graph — the adjustment set that `ask total effect of X on Y in G` names — and a predictor that raises the score \
      (a mediator, a collider, a consequence of the outcome) can bias the effect.";
 
+/// Rows hard to leave out named in a model's cell of the main table.
+const ROWS_NAMED: usize = 8;
+/// Rows hard to leave out listed per model in the table of them (the JSON
+/// has every one).
+const ROWS_LISTED: usize = 40;
+
 /// The models named after `of`, and the `refits N` option.
 fn read_names(rest: &str, line: usize) -> Result<(Vec<&str>, usize), CellError> {
     let words: Vec<&str> = rest.split([' ', '\t', ',']).filter(|w| !w.is_empty()).collect();
@@ -88,8 +94,13 @@ fn display(scores: &PredictiveScores) -> Display {
         let refitted = m.hard_rows.iter().all(|h| h.refitted);
         let rows_cell = match rows.len() {
             0 => "none".to_string(),
-            n if refitted => format!("{n}, refitted: {}", row_list(&rows)),
-            n => format!("{n}, not refitted: {}", row_list(&rows)),
+            n => format!(
+                "{} {}{} ({})",
+                if n == 1 { "row" } else { "rows" },
+                row_list(&rows[..n.min(ROWS_NAMED)]),
+                if n > ROWS_NAMED { format!(" and {} more", n - ROWS_NAMED) } else { String::new() },
+                if refitted { "refitted" } else { "not refitted" }
+            ),
         };
         if !rows.is_empty() && !refitted {
             lead.push(format!(
@@ -108,11 +119,15 @@ fn display(scores: &PredictiveScores) -> Display {
             num(m.seen_rows_score),
             rows_cell,
         ]);
-        for h in &m.hard_rows {
+        for h in m.hard_rows.iter().take(ROWS_LISTED) {
             hard.push(vec![m.model.clone(), h.row.to_string(), num(h.shape), num(h.smoothed), h.exact.map_or("not refitted".to_string(), num)]);
         }
+        if m.hard_rows.len() > ROWS_LISTED {
+            let more = m.hard_rows.len() - ROWS_LISTED;
+            hard.push(vec![m.model.clone(), format!("{more} more (in the JSON)"), String::new(), String::new(), String::new()]);
+        }
     }
-    let limit = num(scores.shape_limit);
+    let limit = crate::model::prior::short_number(scores.shape_limit);
     let notes = vec![
         "left-out score: the sum over the rows of the log density a model gives a row's observed outcome when that row \
          is left out of the fit, estimated from the fit's draws by Pareto-smoothed importance sampling (Vehtari, Gelman \
