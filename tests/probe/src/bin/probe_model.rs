@@ -9,6 +9,12 @@
 //!   probabilities at the mode).
 //! * `log_likelihood` — as `fit`, plus `params` (constrained); answers
 //!   `log_likelihood` and `design`.
+//! * `pointwise` — as `log_likelihood`; answers `log_densities` (each
+//!   fitted row's log density at `params`) and `names`.
+//! * `tail_fit` — `x` (exceedances); answers the generalised Pareto fit
+//!   `shape` and `scale` (Zhang–Stephens) and `regularised_shape`.
+//! * `tail_functions` — `shape`, `scale`, `p` and `at`; answers `quantiles`
+//!   at the shares `p` and `log_densities` at the values `at`.
 //! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
 //! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`.
 //! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
@@ -37,6 +43,9 @@ fn main() {
     let answer = match request["action"].as_str() {
         Some("fit") => fit(&request),
         Some("log_likelihood") => log_likelihood(&request),
+        Some("pointwise") => pointwise(&request),
+        Some("tail_fit") => tail_fit(&request),
+        Some("tail_functions") => tail_functions(&request),
         Some("basis") => basis(&request),
         Some("prior") => prior(&request),
         Some("calibrate") => calibrate(&request),
@@ -124,6 +133,28 @@ fn log_likelihood(request: &Value) -> Result<Value, String> {
     let params = numbers(&request["params"])?;
     let value = model.log_likelihood(&params).map_err(|e| e.to_string())?;
     Ok(json!({ "log_likelihood": value, "design": design_rows(&model), "names": model.parameter_names() }))
+}
+
+fn pointwise(request: &Value) -> Result<Value, String> {
+    let model = model(request)?;
+    let params = numbers(&request["params"])?;
+    let values = model.pointwise_log_likelihood(&params, &model.fitted_rows()).map_err(|e| e.to_string())?;
+    Ok(json!({ "log_densities": values, "names": model.parameter_names() }))
+}
+
+fn tail_fit(request: &Value) -> Result<Value, String> {
+    let x = numbers(&request["x"])?;
+    let fit = waypath::draws::pareto::fit_tail(&x).ok_or("no fit")?;
+    let regularised = waypath::draws::pareto::weakly_regularised_shape(fit.shape, x.len());
+    Ok(json!({ "shape": fit.shape, "scale": fit.scale, "regularised_shape": regularised }))
+}
+
+fn tail_functions(request: &Value) -> Result<Value, String> {
+    let number = |key: &str| request[key].as_f64().ok_or_else(|| format!("{key} must be a number"));
+    let fit = waypath::draws::pareto::TailFit { shape: number("shape")?, scale: number("scale")? };
+    let quantiles: Vec<f64> = numbers(&request["p"])?.into_iter().map(|p| fit.quantile(p)).collect();
+    let log_densities: Vec<f64> = numbers(&request["at"])?.into_iter().map(|x| fit.log_density(x)).collect();
+    Ok(json!({ "quantiles": quantiles, "log_densities": log_densities }))
 }
 
 fn basis(request: &Value) -> Result<Value, String> {
