@@ -391,6 +391,10 @@ mod tests {
             ("contrast m: x over ", &["rows"]),
             ("contrast m: x 1 ", &["along", "at", "by", "intervals", "on", "over", "seed", "vs"]),
             ("compare routes for total effect of x on y in g using t ", &["intervals", "setting", "with"]),
+            // README: `score predictions of M1, M2 … [refits N]`.
+            ("score ", &["predictions"]),
+            ("score predictions ", &["of"]),
+            ("score predictions of a, b ", &["refits"]),
         ];
         for (typed, want) in cases {
             assert_eq!(offered(&session, typed), *want, "after {typed:?}");
