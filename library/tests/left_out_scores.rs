@@ -321,3 +321,78 @@ fn show_the_text() {
     );
     println!("{plain}");
 }
+
+/// Leave-one-out by rebuilding, for a model `text` on `table` fitted by
+/// NUTS, against the statement's smoothed densities (rows with a shape
+/// beyond the limit are refitted by the statement itself).
+fn check_against_rebuilding(table: &Table, text: &str, tolerance_small: f64) {
+    let spec = ModelSpec::from_lines("m", text.lines().enumerate().map(|(i, l)| (i + 2, l))).unwrap();
+    let model = Model::build(&spec, table).unwrap();
+    let method = Method::Nuts(NutsSettings { chains: 2, settle: 500, draws: 2000, seed: 6, ..NutsSettings::default() });
+    let fit = fit_model(&model, &method, &AtomicBool::new(false), &|_| {}).unwrap();
+    let scores = score_predictions(&[(&model, &fit)], 5, &AtomicBool::new(false), &|_, _| {}).unwrap();
+    let exact = exact_by_rebuilding(&spec, table, &method);
+    let score = &scores.models[0];
+    for (i, (a, b)) in score.rows_left_out.iter().zip(&exact).enumerate() {
+        let refitted = score.hard_rows.iter().any(|h| h.row == i + 1 && h.refitted);
+        let allowed = if refitted { 1e-9 } else { tolerance(score.tail_shapes[i].unwrap(), tolerance_small) };
+        assert!((a - b).abs() < allowed, "row {}: {a} against refitted {b} (shape {:?})", i + 1, score.tail_shapes[i]);
+    }
+    // both sides carry the Monte Carlo error of NUTS draws row by row; the
+    // sums must agree far more closely than the seen-row score does
+    let (ours, theirs) = (score.left_out_score, exact.iter().sum::<f64>());
+    assert!((ours - theirs).abs() < 0.4, "{ours} against {theirs}");
+    assert!(score.seen_rows_score - theirs > 1.0, "the check could not tell rows seen from rows left out");
+}
+
+/// A category outcome (levels family) and a poisson count with a pooled
+/// group: invented saplings in three forms and seedlings at four sites.
+#[test]
+fn levels_and_pooled_models_agree_with_exact_refits_without_each_row() {
+    use waypath::table::{Column, ColumnData};
+    let mut rng = rand::rngs::StdRng::seed_from_u64(31);
+    let n = 24;
+    let light: Vec<f64> = (0..n).map(|_| Normal::new(0.0, 1.0).unwrap().sample(&mut rng)).collect();
+    let form: Vec<u32> = light.iter().map(|&l| if l < -0.4 { 0 } else if l < 0.5 { 1 } else { 2 }).collect();
+    let mut form = form;
+    form.swap(0, 5);
+    form.swap(3, 11);
+    let site: Vec<u32> = (0..n).map(|i| (i % 4) as u32).collect();
+    let seedlings: Vec<u64> = light
+        .iter()
+        .zip(&site)
+        .map(|(&l, &s)| {
+            let mean = (0.8 + 0.4 * l + [0.3, -0.3, 0.1, -0.1][s as usize]).exp();
+            rand_distr::Poisson::new(mean).unwrap().sample(&mut rng) as u64
+        })
+        .collect();
+    let table = Table::from_columns(
+        "saplings",
+        vec![
+            Column::new("light", ColumnData::Real(light)),
+            Column::new("form", ColumnData::Category { codes: form, levels: vec!["herb".into(), "shrub".into(), "tree".into()] }),
+            Column::new("site", ColumnData::Category { codes: site, levels: vec!["a".into(), "b".into(), "c".into(), "d".into()] }),
+            Column::new("seedlings", ColumnData::Count(seedlings)),
+        ],
+    )
+    .unwrap();
+    check_against_rebuilding(&table, "form from light using saplings\ncentre off\nprior intercepts: normal(0, 2)\nprior slopes: normal(0, 2)\n", 0.1);
+    check_against_rebuilding(
+        &table,
+        "seedlings from light, pooled site using saplings\nfamily poisson\ncentre off\nprior intercepts: normal(0, 2)\n\
+         prior slopes: normal(0, 1)\nprior pooled spreads: half_normal(1)\n",
+        0.1,
+    );
+}
+
+/// An interrupt stops the scoring between draws (README, Interrupt).
+#[test]
+fn an_interrupt_stops_the_scoring() {
+    let mut session = Session::new(".");
+    last_json(&mut session, PLOTS);
+    let table = session.table("plots").unwrap().clone();
+    let (_, model) = declared_model(&table, "yield from girth using plots", "");
+    let fit = fit_model(&model, &Method::Laplace { draws: 1000, seed: 1 }, &AtomicBool::new(false), &|_| {}).unwrap();
+    let error = score_predictions(&[(&model, &fit)], 5, &AtomicBool::new(true), &|_, _| {}).unwrap_err();
+    assert!(error.to_string().contains("interrupted"), "{error}");
+}
