@@ -216,6 +216,16 @@ fn the_statement_ranks_models_and_says_prediction_does_not_choose_a_causal_model
              score predictions of b, a"
         ),
     );
+    // README, Output structures: `score predictions`
+    for key in ["outcome", "table", "rows", "shape_limit", "refit_limit", "models", "notes"] {
+        assert!(json.get(key).is_some(), "no {key} in {json}");
+    }
+    for key in [
+        "model", "method", "draws", "left_out_score", "standard_error", "seen_rows_score", "shortfall",
+        "shortfall_standard_error", "rows_left_out", "tail_shapes", "hard_rows", "refit_warnings",
+    ] {
+        assert!(json["models"][0].get(key).is_some(), "no {key} in {}", json["models"][0]);
+    }
     let models = json["models"].as_array().unwrap();
     // the data were made with shade in the mechanism (−0.8 kg per unit, sd 1,
     // noise sd 1.2), so the model with shade predicts left-out rows better

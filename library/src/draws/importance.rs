@@ -11,7 +11,9 @@
 //! Pareto distribution fitted to their exceedances over the largest ratio
 //! outside the tail ([`super::pareto`], shape weakly regularised towards ½),
 //! no smoothed ratio exceeds the largest raw one, and every weight is
-//! truncated at `S^(3/4)` times the mean weight. The fitted shape `k` says
+//! truncated at `S^(3/4)` times the mean weight (the 2017 paper's guard;
+//! recalled). The tail length treats the draws as independent (no
+//! correction for the chains' autocorrelation). The fitted shape `k` says
 //! how far the estimate can be trusted: above [`SHAPE_LIMIT`] the
 //! importance-sampling estimate is unreliable and the row is better
 //! refitted without it.
