@@ -156,7 +156,7 @@ fn display(scores: &PredictiveScores) -> Display {
     ];
     let mut grids: Vec<(&str, &Grid)> = vec![("", &grid)];
     if !hard.rows.is_empty() {
-        grids.push((&"rows hard to leave out:"[..], &hard));
+        grids.push(("rows hard to leave out:", &hard));
     }
     let (plain, html) = render(&heading, &lead, &grids, &notes);
     let mut json = serde_json::to_value(scores).unwrap_or(serde_json::Value::Null);
