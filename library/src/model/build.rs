@@ -18,7 +18,7 @@ use super::family::pooling::Pooling;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
-use super::family::likelihood::{GlmData, GlmOutcome};
+use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
 use super::family::softmax::SoftmaxData;
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
@@ -69,7 +69,6 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             group.column
         ));
     }
-    let likelihood_design = with_departure_columns(&design, &groups, &group_rows);
     let term_labels: Vec<String> = recipes.iter().flat_map(TermRecipe::labels).collect();
     let labels: Vec<String> =
         blocks.iter().flat_map(|b| term_labels.iter().map(move |l| format!("{}{l}", b.prefix))).collect();
@@ -100,13 +99,14 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
                         .into(),
                 );
             }
+            let likelihood_design = with_departure_columns(&design, &groups, &group_rows);
             Likelihood::Gaussian { stats: GaussianStats::new(&likelihood_design, &outcome.y, intercepts), spread_prior }
         }
         (None, Some(levels)) => {
             notes.extend(level_notes(spec, levels, &outcome));
             Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len()))
         }
-        (None, None) => Likelihood::Glm(glm_data(&likelihood_design, &spec.family, &outcome)),
+        (None, None) => Likelihood::Glm(glm_data(&design, &spec.family, &outcome).with_groups(group_indices(&groups, &group_rows))),
     };
     Ok(Model {
         name: spec.name.clone(),
@@ -198,10 +198,12 @@ fn fitted_group_rows(groups: &[GroupTerm], table: &Table) -> Result<Vec<Vec<usiz
         .collect()
 }
 
-/// The design the likelihood evaluates: the fixed-effect columns followed
-/// by each group's level indicators, so that the coefficients followed by
-/// the departures give every row's linear predictor (`family::pooling`).
-/// Without groups, the design itself.
+/// The design the normal likelihood's sufficient statistics are computed
+/// from: the fixed-effect columns followed by each group's level
+/// indicators, so that the coefficients followed by the departures give
+/// every row's linear predictor (`family::pooling`). Without groups, the
+/// design itself. (The GLM families take the levels by index instead,
+/// [`group_indices`].)
 pub(super) fn with_departure_columns(design: &DMatrix<f64>, groups: &[GroupTerm], rows: &[Vec<usize>]) -> DMatrix<f64> {
     if groups.is_empty() {
         return design.clone();
@@ -218,6 +220,19 @@ pub(super) fn with_departure_columns(design: &DMatrix<f64>, groups: &[GroupTerm]
         at += group.levels.len();
     }
     out
+}
+
+/// Every group's fitted rows by level index, for the GLM likelihood's
+/// gather and scatter (`family::likelihood`).
+pub(super) fn group_indices(groups: &[GroupTerm], rows: &[Vec<usize>]) -> Vec<GroupIndices> {
+    groups
+        .iter()
+        .zip(rows)
+        .map(|(group, levels)| GroupIndices {
+            level_of_row: levels.iter().map(|&l| l as u32).collect(),
+            levels: group.levels.len(),
+        })
+        .collect()
 }
 
 /// The sd and mean of every design column over the fitted rows.

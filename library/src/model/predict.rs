@@ -14,7 +14,7 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 
 use crate::table::Table;
 
-use super::build::{glm_data, intercept_columns, softmax_data, with_departure_columns};
+use super::build::{glm_data, group_indices, intercept_columns, softmax_data, with_departure_columns};
 use super::columns::real_values;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
@@ -273,7 +273,9 @@ impl Model {
             },
             Likelihood::Glm(glm) => {
                 let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
-                Likelihood::Glm(glm_data(&self.likelihood_design(), &self.family, &outcome))
+                Likelihood::Glm(
+                    glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.groups, &self.group_rows)),
+                )
             }
             Likelihood::Softmax(_) => {
                 let count = self.outcome_levels().map_or(0, <[String]>::len);
@@ -290,8 +292,8 @@ impl Model {
 }
 
 impl Model {
-    /// The design the likelihood evaluates: the fitted design followed by
-    /// the pooled groups' level indicators.
+    /// The design the normal likelihood's sufficient statistics come from:
+    /// the fitted design followed by the pooled groups' level indicators.
     fn likelihood_design(&self) -> DMatrix<f64> {
         with_departure_columns(&self.design, &self.groups, &self.group_rows)
     }

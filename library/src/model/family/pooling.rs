@@ -27,8 +27,9 @@
 //! `ηᵢ = xᵢβ + a[level of row i]`, so its derivative in `aⱼ` is the sum of
 //! the rows' derivatives in η over level `j`'s rows. The caller evaluates
 //! the likelihood on the fixed-effect coefficients followed by the
-//! departures (the departures' indicator columns appended to the design)
-//! and hands their derivatives here; [`Pooling::log_density_and_gradient`]
+//! departures (the normal family through sufficient statistics of the
+//! design with the level indicators appended, the GLM families by each
+//! row's level index) and hands their derivatives here; [`Pooling::log_density_and_gradient`]
 //! adds the chain rule through `a = τz` and the priors.
 
 use super::super::prior::Prior;
