@@ -47,14 +47,17 @@ pub enum GlmOutcome {
     Poisson { y: Vec<f64> },
 }
 
-/// One pooled group's rows as the likelihood sees them: each row's level
-/// and the number of levels (its run of departures).
+/// One run of pooled departures as the likelihood sees it: each row's
+/// level, the number of levels, and for a varying slope each row's value
+/// of the predictor (the departure is multiplied by it).
 #[derive(Debug, Clone, PartialEq)]
 pub struct GroupIndices {
     /// The level of every fitted row.
     pub level_of_row: Vec<u32>,
     /// The number of levels.
     pub levels: usize,
+    /// Every fitted row's multiplier (`None`: 1, a varying intercept).
+    pub weights: Option<Vec<f64>>,
 }
 
 /// Design and outcome of a GLM, ready for repeated likelihood evaluations.
@@ -94,6 +97,7 @@ impl GlmData {
     pub fn with_groups(mut self, groups: Vec<GroupIndices>) -> Self {
         for group in &groups {
             assert_eq!(group.level_of_row.len(), self.rows, "one level per row");
+            assert!(group.weights.as_ref().is_none_or(|w| w.len() == self.rows), "one weight per row");
             assert!(group.level_of_row.iter().all(|&l| (l as usize) < group.levels), "levels in range");
         }
         self.groups = groups;
@@ -276,8 +280,18 @@ fn add_departures(groups: &[GroupIndices], departures: &[f64], first: usize, use
     let mut at = 0;
     for group in groups {
         let run = &departures[at..at + group.levels];
-        for (e, &level) in eta.iter_mut().zip(&group.level_of_row[first..first + used]) {
-            *e += run[level as usize];
+        let levels = &group.level_of_row[first..first + used];
+        match &group.weights {
+            None => {
+                for (e, &level) in eta.iter_mut().zip(levels) {
+                    *e += run[level as usize];
+                }
+            }
+            Some(weights) => {
+                for ((e, &level), &w) in eta.iter_mut().zip(levels).zip(&weights[first..first + used]) {
+                    *e = w.mul_add(run[level as usize], *e);
+                }
+            }
         }
         at += group.levels;
     }
@@ -291,8 +305,18 @@ fn add_departure_gradient(groups: &[GroupIndices], slope: &[f64; BLOCK], first: 
     let mut at = 0;
     for group in groups {
         let run = &mut d_departures[at..at + group.levels];
-        for (&s, &level) in slope.iter().zip(&group.level_of_row[first..first + used]) {
-            run[level as usize] += s;
+        let levels = &group.level_of_row[first..first + used];
+        match &group.weights {
+            None => {
+                for (&s, &level) in slope.iter().zip(levels) {
+                    run[level as usize] += s;
+                }
+            }
+            Some(weights) => {
+                for ((&s, &level), &w) in slope.iter().zip(levels).zip(&weights[first..first + used]) {
+                    run[level as usize] = w.mul_add(s, run[level as usize]);
+                }
+            }
         }
         at += group.levels;
     }
@@ -482,24 +506,29 @@ mod tests {
     /// Pooled groups by level index against their definition: the same
     /// rows with each group's level indicators appended as columns, and the
     /// coefficients followed by the departures, evaluated row by row
-    /// (`by_definition`). Two groups (7 and 3 levels) over 517 rows
+    /// (`by_definition`). Two groups (7 and 3 levels) and a varying slope by
+    /// the first (its indicator columns times the predictor) over 517 rows
     /// (padded last block), every family.
     #[test]
     fn departures_by_level_index_equal_indicator_columns() {
         use rand::rngs::StdRng;
         use rand::{RngExt, SeedableRng};
         let mut rng = StdRng::seed_from_u64(20_261_204);
-        let (n, width, level_counts) = (517, 4, [7usize, 3]);
+        let (n, width, level_counts) = (517, 4, [7usize, 3, 7]);
         let rows: Vec<f64> =
             (0..n * width).map(|k| if k % width == 0 { 1.0 } else { 3.0 * (rng.random::<f64>() - 0.5) }).collect();
-        let levels: Vec<Vec<u32>> =
+        let mut levels: Vec<Vec<u32>> =
             level_counts.iter().map(|&l| (0..n).map(|_| rng.random_range(0..l as u32)).collect()).collect();
+        // The third run is a varying slope of the design's second column, by the first group's levels.
+        levels[2] = levels[0].clone();
+        let slope_of: Vec<f64> = (0..n).map(|i| rows[i * width + 1]).collect();
+        let weight = |g: usize, i: usize| if g == 2 { slope_of[i] } else { 1.0 };
         let wide = width + level_counts.iter().sum::<usize>();
         let mut dense = Vec::with_capacity(n * wide);
         for i in 0..n {
             dense.extend_from_slice(&rows[i * width..(i + 1) * width]);
             for (g, &count) in level_counts.iter().enumerate() {
-                dense.extend((0..count).map(|l| f64::from(levels[g][i] as usize == l)));
+                dense.extend((0..count).map(|l| if levels[g][i] as usize == l { weight(g, i) } else { 0.0 }));
             }
         }
         let beta: Vec<f64> = (0..wide).map(|_| rng.random::<f64>() - 0.5).collect();
@@ -514,7 +543,12 @@ mod tests {
             let groups = levels
                 .iter()
                 .zip(level_counts)
-                .map(|(l, count)| GroupIndices { level_of_row: l.clone(), levels: count })
+                .enumerate()
+                .map(|(g, (l, count))| GroupIndices {
+                    level_of_row: l.clone(),
+                    levels: count,
+                    weights: (g == 2).then(|| slope_of.clone()),
+                })
                 .collect();
             let data = GlmData::new(rows.clone(), width, outcome.clone()).with_groups(groups);
             let mut grad = vec![0.0; wide];
@@ -540,7 +574,7 @@ mod tests {
         let beta = [0.2, -0.7, 0.4, 0.1, -0.3, 0.25, -0.05, 0.3, -0.2, 0.1, 0.05, -0.4];
         let width = beta.len();
         for outcome in outcomes() {
-            let group = GroupIndices { level_of_row: (0..150).map(|i| (i * 7 % 5) as u32).collect(), levels: 5 };
+            let group = GroupIndices { level_of_row: (0..150).map(|i| (i * 7 % 5) as u32).collect(), levels: 5, weights: None };
             let data = GlmData::new(rows.clone(), 7, outcome).with_groups(vec![group]);
             let mut plain = vec![0.0; width];
             let a = data.evaluate(&beta, &mut plain);

@@ -1,0 +1,187 @@
+//! Varying slopes (`pooled plot with girth`): the density's gradient in
+//! every family, the LKJ density on the Cholesky factor against the
+//! published density of the correlation matrix, the constrained ↔
+//! unconstrained round trip, labels, and the errors a cell can meet.
+
+mod model_fixtures;
+
+use model_fixtures::{build, build_error, category, column, orchard, value_and_gradient};
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, Normal};
+use waypath::model::{LogDensity, Model};
+use waypath::table::Table;
+
+/// The orchard of the model tests with a `plot` column of 12 levels
+/// (plots of unequal size) and a `row` column of 4 levels.
+fn orchard_with_plots(n: usize, seed: u64) -> Table {
+    let mut table = orchard(n, seed);
+    let mut rng = StdRng::seed_from_u64(seed + 100);
+    let plots: Vec<u32> = (0..n).map(|_| (rng.random::<f64>().powi(2) * 12.0) as u32).collect();
+    let rows: Vec<u32> = (0..n).map(|i| (i % 4) as u32).collect();
+    let names: Vec<String> = (1..=12).map(|k| format!("P{k}")).collect();
+    let names: Vec<&str> = names.iter().map(String::as_str).collect();
+    table.columns.push(column("plot", category(plots, &names)));
+    table.columns.push(column("row", category(rows, &["r1", "r2", "r3", "r4"])));
+    table
+}
+
+/// Richardson-extrapolated central difference (Nocedal & Wright, Numerical
+/// Optimization, 2nd ed., §8.1; recalled).
+fn numeric_partial(model: &Model, theta: &[f64], j: usize) -> f64 {
+    let central = |h: f64| {
+        let (mut ahead, mut behind) = (theta.to_vec(), theta.to_vec());
+        ahead[j] += h;
+        behind[j] -= h;
+        (value_and_gradient(model, &ahead).0 - value_and_gradient(model, &behind).0) / (2.0 * h)
+    };
+    let h = 1e-4 * theta[j].abs().max(1.0);
+    (4.0 * central(h / 2.0) - central(h)) / 3.0
+}
+
+fn check_gradient(body: &str, seed: u64) {
+    let table = orchard_with_plots(150, 7);
+    let model = build(body, &table);
+    assert!(model.dim() > model.coefficient_names().len() + 24, "{body}: the slope adds coordinates");
+    let mut rng = StdRng::seed_from_u64(seed);
+    let jitter = Normal::new(0.0, 0.4).expect("valid normal");
+    for _ in 0..4 {
+        let theta: Vec<f64> = model.initial_point().iter().map(|v| v + jitter.sample(&mut rng)).collect();
+        let (value, grad) = value_and_gradient(&model, &theta);
+        assert!(value.is_finite(), "{body}: log density not finite");
+        for j in 0..model.dim() {
+            let numeric = numeric_partial(&model, &theta, j);
+            let error = (grad[j] - numeric).abs() / grad[j].abs().max(1.0);
+            assert!(
+                error < 1e-6,
+                "{body}: {} analytic {} vs numeric {numeric} (relative error {error:e})",
+                model.unconstrained_names()[j],
+                grad[j]
+            );
+        }
+    }
+}
+
+#[test]
+fn gradient_of_every_family_matches_finite_differences() {
+    for (k, layout) in ["centred", "noncentred"].iter().enumerate() {
+        let row = format!("parameterise row {layout}");
+        let seed = 10 * k as u64;
+        check_gradient(&format!("yield from rootstock, girth, pooled plot with girth, pooled row using trees\n{row}"), seed + 1);
+        check_gradient(
+            &format!("healthy from girth, pooled plot with girth, pooled row using trees\nfamily bernoulli\n{row}"),
+            seed + 2,
+        );
+        check_gradient(
+            &format!("set from rootstock, girth, pooled plot with girth, pooled row using trees\nfamily binomial out of visits\n{row}"),
+            seed + 3,
+        );
+        check_gradient(
+            &format!("fruit from girth, pooled plot with girth, pooled row using trees\nfamily poisson\n{row}"),
+            seed + 4,
+        );
+    }
+    check_gradient(
+        "yield from girth, pooled plot with girth using trees\nprior pooled spreads: exponential(0.5)\nprior pooled correlations: lkj(3.5)",
+        30,
+    );
+    check_gradient("healthy from girth, pooled plot with girth using trees\nfamily bernoulli\ncentre off", 31);
+}
+
+/// The LKJ density (Lewandowski, Kurowicka & Joe 2009, J. Multivariate
+/// Analysis 100, 1989–2001, eq. 16): `p(Ω) ∝ det(Ω)^(η−1)`. With every
+/// standard score at 0 the departures are 0 whatever the correlation, so
+/// the log density changes with the correlation's coordinate `v` only
+/// through the LKJ prior and the Jacobian of `v ↦ ρ`. Here that change is
+/// computed apart from the model's formula: `det Ω` of the 2×2 correlation
+/// matrix by nalgebra's LU determinant, and `|dρ/dv|` by a central
+/// difference of the model's own `constrain` — so the check covers the
+/// Cholesky parameterisation and its Jacobian together, for several η.
+#[test]
+fn lkj_density_on_the_cholesky_factor_matches_the_correlation_matrix() {
+    let table = orchard_with_plots(150, 7);
+    for eta in [1.0, 2.0, 4.5] {
+        let model = build(&format!("yield from girth, pooled plot with girth using trees\nprior pooled correlations: lkj({eta})"), &table);
+        let names = model.unconstrained_names();
+        let v_at = names.iter().position(|n| n.starts_with("atanh(plot correlation")).expect("correlation coordinate");
+        let mut theta = model.initial_point();
+        for (j, name) in names.iter().enumerate() {
+            if name.contains("departure") {
+                theta[j] = 0.0;
+            }
+        }
+        let rho_of = |v: f64| {
+            let mut t = theta.clone();
+            t[v_at] = v;
+            *model.constrain(&t).last().expect("correlation last")
+        };
+        let independent = |v: f64| {
+            let rho = rho_of(v);
+            let omega = nalgebra::Matrix2::new(1.0, rho, rho, 1.0);
+            let h = 1e-5;
+            let jacobian = ((rho_of(v + h) - rho_of(v - h)) / (2.0 * h)).abs();
+            (eta - 1.0) * omega.determinant().ln() + jacobian.ln()
+        };
+        let model_at = |v: f64| {
+            let mut t = theta.clone();
+            t[v_at] = v;
+            value_and_gradient(&model, &t).0
+        };
+        for (a, b) in [(0.0, 0.7), (-1.3, 0.2), (0.4, 2.1)] {
+            let want = independent(b) - independent(a);
+            let got = model_at(b) - model_at(a);
+            assert!((got - want).abs() < 1e-7, "lkj({eta}) from v = {a} to {b}: {got} vs {want}");
+        }
+    }
+}
+
+/// Constrained → unconstrained → constrained gives the parameters back,
+/// and the labels follow the group's order.
+#[test]
+fn parameters_round_trip_and_are_labelled() {
+    let table = orchard_with_plots(150, 7);
+    let model = build("yield from girth, pooled plot with girth using trees", &table);
+    let names = model.parameter_names();
+    let first = model.first_group_index();
+    assert_eq!(names[first], "plot spread");
+    assert_eq!(names[first + 1], "plot departure[P1]");
+    assert_eq!(names[first + 13], "plot girth spread");
+    assert_eq!(names[first + 14], "plot girth departure[P1]");
+    assert_eq!(names[first + 26], "plot correlation[intercept, girth]");
+    assert_eq!(names.len(), first + 27);
+    let mut rng = StdRng::seed_from_u64(5);
+    let jitter = Normal::new(0.0, 0.7).expect("valid normal");
+    let theta: Vec<f64> = model.initial_point().iter().map(|v| v + jitter.sample(&mut rng)).collect();
+    let params = model.constrain(&theta);
+    assert!(params[first + 26].abs() < 1.0);
+    let back = model.unconstrain(&params).expect("valid parameters");
+    for (a, b) in theta.iter().zip(&back) {
+        assert!((a - b).abs() < 1e-9 * a.abs().max(1.0), "{a} vs {b}");
+    }
+    let mut bad = params.clone();
+    bad[first + 26] = 1.0;
+    let message = model.unconstrain(&bad).expect_err("a correlation of 1").to_string();
+    assert!(message.contains("between −1 and 1"), "{message}");
+}
+
+#[test]
+fn bad_varying_slopes_are_refused_with_the_reason() {
+    let table = orchard_with_plots(150, 7);
+    let cases = [
+        ("yield from rootstock, pooled plot with girth using trees", "add `girth`"),
+        ("yield from girth, pooled plot with girth using trees\nparameterise plot centred", "always sampled noncentred"),
+        ("yield from girth, pooled plot with girth, rootstock using trees", ""),
+        ("yield from girth, pooled plot with girth age using trees", "one varying slope"),
+        ("yield from girth, pooled plot using trees\nprior pooled correlations: lkj(2)", "no pooled group with a varying slope"),
+        ("yield from girth, pooled plot with girth using trees\nprior pooled correlations: lkj(0)", "η > 0"),
+        ("yield from girth, pooled plot with girth using trees\nprior pooled correlations: normal(0, 1)", "lkj(η)"),
+    ];
+    for (body, needle) in cases {
+        if needle.is_empty() {
+            build(body, &table);
+            continue;
+        }
+        let message = build_error(body, &table);
+        assert!(message.contains(needle), "{body}: {message}");
+    }
+}
