@@ -65,7 +65,7 @@ fn check_gradient(body: &str, seed: u64) {
 #[test]
 fn gradient_of_every_family_matches_finite_differences() {
     for (k, layout) in ["centred", "noncentred"].iter().enumerate() {
-        let row = format!("parameterise row {layout}");
+        let row = format!("parameterise row {layout}\nparameterise plot {layout}");
         let seed = 10 * k as u64;
         check_gradient(&format!("yield from rootstock, girth, pooled plot with girth, pooled row using trees\n{row}"), seed + 1);
         check_gradient(
@@ -86,6 +86,18 @@ fn gradient_of_every_family_matches_finite_differences() {
         30,
     );
     check_gradient("healthy from girth, pooled plot with girth using trees\nfamily bernoulli\ncentre off", 31);
+    // The first centred group sampled around the intercept and the population slope.
+    for family in ["normal", "poisson"] {
+        let outcome = if family == "normal" { "yield" } else { "fruit" };
+        check_gradient(
+            &format!("{outcome} from girth, pooled plot with girth, pooled row using trees\nfamily {family}\nparameterise plot centred\nparameterise row noncentred"),
+            32,
+        );
+        check_gradient(
+            &format!("{outcome} from girth, pooled row, pooled plot with girth using trees\nfamily {family}\nparameterise plot centred\nparameterise row centred\nprior pooled correlations: lkj(1.5)"),
+            33,
+        );
+    }
 }
 
 /// The LKJ density (Lewandowski, Kurowicka & Joe 2009, J. Multivariate
@@ -101,7 +113,10 @@ fn gradient_of_every_family_matches_finite_differences() {
 fn lkj_density_on_the_cholesky_factor_matches_the_correlation_matrix() {
     let table = orchard_with_plots(150, 7);
     for eta in [1.0, 2.0, 4.5] {
-        let model = build(&format!("yield from girth, pooled plot with girth using trees\nprior pooled correlations: lkj({eta})"), &table);
+        let model = build(
+            &format!("yield from girth, pooled plot with girth using trees\nparameterise plot noncentred\nprior pooled correlations: lkj({eta})"),
+            &table,
+        );
         let names = model.unconstrained_names();
         let v_at = names.iter().position(|n| n.starts_with("atanh(plot correlation")).expect("correlation coordinate");
         let mut theta = model.initial_point();
@@ -140,7 +155,12 @@ fn lkj_density_on_the_cholesky_factor_matches_the_correlation_matrix() {
 #[test]
 fn parameters_round_trip_and_are_labelled() {
     let table = orchard_with_plots(150, 7);
-    let model = build("yield from girth, pooled plot with girth using trees", &table);
+    for layout in ["centred", "noncentred"] {
+        round_trip(&build(&format!("yield from girth, pooled plot with girth using trees\nparameterise plot {layout}"), &table));
+    }
+}
+
+fn round_trip(model: &Model) {
     let names = model.parameter_names();
     let first = model.first_group_index();
     assert_eq!(names[first], "plot spread");
@@ -169,7 +189,6 @@ fn bad_varying_slopes_are_refused_with_the_reason() {
     let table = orchard_with_plots(150, 7);
     let cases = [
         ("yield from rootstock, pooled plot with girth using trees", "add `girth`"),
-        ("yield from girth, pooled plot with girth using trees\nparameterise plot centred", "always sampled noncentred"),
         ("yield from girth, pooled plot with girth, rootstock using trees", ""),
         ("yield from girth, pooled plot with girth age using trees", "one varying slope"),
         ("yield from girth, pooled plot using trees\nprior pooled correlations: lkj(2)", "no pooled group with a varying slope"),
@@ -183,5 +202,41 @@ fn bad_varying_slopes_are_refused_with_the_reason() {
         }
         let message = build_error(body, &table);
         assert!(message.contains(needle), "{body}: {message}");
+    }
+}
+
+/// Change of variables (e.g. Casella & Berger, Statistical Inference, 2nd
+/// ed., Thm 4.3.2 for the bivariate case; recalled): each level's
+/// departures are `(a₀, a₁) = diag(τ₀, τ₁)·L·(z₀, z₁)` with `L` the
+/// Cholesky factor of the correlation matrix, whose determinant is
+/// `τ₀τ₁√(1 − ρ²)`. So the non-centred density at `z` equals the centred
+/// density (bivariate normal departures, sampled around the intercept and
+/// population slope — a shift with unit Jacobian) at the same constrained
+/// point plus `J·(log τ₀ + log τ₁ + ½·log(1 − ρ²))`.
+#[test]
+fn centred_and_noncentred_slope_groups_are_one_density() {
+    let table = orchard_with_plots(150, 3);
+    let body = |layout: &str| format!("yield from girth, pooled plot with girth using trees\nparameterise plot {layout}");
+    let (centred, noncentred) = (build(&body("centred"), &table), build(&body("noncentred"), &table));
+    let first = centred.first_group_index();
+    assert_eq!(centred.unconstrained_names()[first + 1], "intercept + plot departure[P1]");
+    assert_eq!(centred.unconstrained_names()[first + 14], "girth slope + plot girth departure[P1]");
+    let levels = 12.0;
+    let mut rng = StdRng::seed_from_u64(4);
+    for _ in 0..5 {
+        let z: Vec<f64> = noncentred.initial_point().iter().map(|v| v + rng.random_range(-0.8..0.8)).collect();
+        let params = noncentred.constrain(&z);
+        let a = centred.unconstrain(&params).expect("valid parameters");
+        let (t0, t1, rho) = (params[first], params[first + 13], params[first + 26]);
+        let log_jacobian = levels * (t0.ln() + t1.ln() + 0.5 * (1.0 - rho * rho).ln());
+        let (value_z, _) = value_and_gradient(&noncentred, &z);
+        let (value_a, _) = value_and_gradient(&centred, &a);
+        assert!(
+            (value_z - (value_a + log_jacobian)).abs() < 1e-9 * value_z.abs(),
+            "non-centred {value_z} vs centred {value_a} + log Jacobian {log_jacobian}"
+        );
+        for (x, y) in params.iter().zip(&centred.constrain(&a)) {
+            assert!((x - y).abs() < 1e-10 * x.abs().max(1.0), "constrained {x} vs {y}");
+        }
     }
 }

@@ -27,7 +27,7 @@ use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
 use super::terms::groups::VaryingSlope;
-use super::terms::{design_matrix, plan_terms, GroupLayout, GroupTerm, TermRecipe};
+use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
 use super::prior::short_number;
 
 impl Model {
@@ -208,19 +208,9 @@ fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String
     ))
 }
 
-/// A `parameterise` line must name a pooled group of the model, and one
-/// with a varying slope is always non-centred.
+/// A `parameterise` line must name a pooled group of the model.
 fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), ModelError> {
-    for (name, layout) in &spec.layouts {
-        if let Some(group) = groups.iter().find(|g| g.column == *name && g.slope.is_some()) {
-            if *layout == GroupLayout::Centred {
-                return Err(ModelError::syntax(format!(
-                    "`parameterise {name} centred`: pooled {name} has a varying slope of {}, which is always sampled \
-                     noncentred (through the Cholesky factor of its correlation matrix); remove the line",
-                    group.slope.as_ref().map_or("", |s| s.column.as_str())
-                )));
-            }
-        }
+    for (name, _) in &spec.layouts {
         if !groups.iter().any(|g| g.column == *name) {
             let pooled: Vec<&str> = groups.iter().map(|g| g.column.as_str()).collect();
             return Err(ModelError::syntax(format!(

@@ -453,7 +453,10 @@ impl Model {
             self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], anchor, &mut grad[first_group..]);
         total += groups;
         if let Some(j) = self.pooling.intercept {
-            grad[j] += d_anchor;
+            grad[j] += d_anchor.intercept;
+        }
+        if let Some(j) = self.pooling.slope_anchor_position() {
+            grad[j] += d_anchor.slope;
         }
         if total.is_finite() {
             total

@@ -60,8 +60,10 @@ pub struct PooledGroup {
     /// Sampled as level means around the intercept (module docs).
     pub around_intercept: bool,
     /// A varying slope: its spread's prior and the LKJ η of the
-    /// correlation (always sampled non-centred).
+    /// correlation.
     pub slope: Option<SlopePrior>,
+    /// The coefficient position of the varying slope's population slope.
+    pub slope_coefficient: Option<usize>,
 }
 
 /// The priors of a group's varying slope.
@@ -73,6 +75,12 @@ pub struct SlopePrior {
 }
 
 impl PooledGroup {
+    /// What the group's intercept and slope coordinates are shifted by
+    /// (centred around the intercept and the population slope, else 0).
+    fn shifts(&self, anchor: Anchor) -> (f64, f64) {
+        if self.around_intercept { (anchor.intercept, anchor.slope) } else { (0.0, 0.0) }
+    }
+
     /// Unconstrained coordinates of the group.
     pub fn dim(&self) -> usize {
         if self.slope.is_some() { 2 * self.levels + 3 } else { 1 + self.levels }
@@ -95,6 +103,15 @@ pub struct Pooling {
 
 const HALF_LOG_TWO_PI: f64 = 0.918_938_533_204_672_7;
 
+/// What a group sampled around the intercept is sampled around: the
+/// intercept's value and, for a varying slope, the population slope's
+/// (both 0 when no group is sampled around them).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Anchor {
+    pub intercept: f64,
+    pub slope: f64,
+}
+
 impl Pooling {
     /// The density's view of `terms` with their spreads' priors;
     /// `intercept` is the position of a single intercept column, if the
@@ -113,6 +130,7 @@ impl Pooling {
                     spread_prior: p.clone(),
                     around_intercept: around == Some(k),
                     slope: slope_priors.get(k).cloned().flatten(),
+                    slope_coefficient: t.slope.as_ref().map(|s| s.design_column),
                 })
                 .collect(),
             intercept: around.and(intercept),
@@ -125,9 +143,20 @@ impl Pooling {
     }
 
     /// The intercept's value in `coefficients` when a group is sampled
-    /// around it, else 0 (nothing to subtract).
-    pub fn anchor(&self, coefficients: &[f64]) -> f64 {
-        self.intercept.map_or(0.0, |j| coefficients[j])
+    /// around it, else 0 (nothing to subtract); likewise the population
+    /// slope of that group's varying slope.
+    pub fn anchor(&self, coefficients: &[f64]) -> Anchor {
+        Anchor {
+            intercept: self.intercept.map_or(0.0, |j| coefficients[j]),
+            slope: self.slope_anchor_position().map_or(0.0, |j| coefficients[j]),
+        }
+    }
+
+    /// The coefficient position of the population slope that the group
+    /// sampled around the intercept is also sampled around (it has a
+    /// varying slope).
+    pub fn slope_anchor_position(&self) -> Option<usize> {
+        self.groups.iter().find(|g| g.around_intercept).and_then(|g| g.slope_coefficient)
     }
 
     /// Whether the model has no pooled group.
@@ -147,19 +176,27 @@ impl Pooling {
 
     /// The departures, group after group, at unconstrained `theta` (the
     /// groups' block); `anchor` is [`Pooling::anchor`] of the coefficients.
-    pub fn departures(&self, theta: &[f64], anchor: f64) -> Vec<f64> {
+    pub fn departures(&self, theta: &[f64], anchor: Anchor) -> Vec<f64> {
         let mut out = Vec::with_capacity(self.departure_count());
         let mut at = 0;
         for g in &self.groups {
             if g.slope.is_some() {
-                out.extend(SlopeCoordinates::read(&theta[at..at + g.dim()], g.levels).departures());
+                let c = SlopeCoordinates::read(&theta[at..at + g.dim()], g.levels);
+                match g.layout {
+                    GroupLayout::NonCentred => out.extend(c.departures()),
+                    GroupLayout::Centred => {
+                        let (s0, s1) = g.shifts(anchor);
+                        out.extend(c.z0.iter().map(|b| b - s0));
+                        out.extend(c.z1.iter().map(|b| b - s1));
+                    }
+                }
                 at += g.dim();
                 continue;
             }
             let spread = theta[at].exp();
             let coordinates = &theta[at + 1..at + 1 + g.levels];
             match g.layout {
-                GroupLayout::Centred if g.around_intercept => out.extend(coordinates.iter().map(|b| b - anchor)),
+                GroupLayout::Centred if g.around_intercept => out.extend(coordinates.iter().map(|b| b - anchor.intercept)),
                 GroupLayout::Centred => out.extend_from_slice(coordinates),
                 GroupLayout::NonCentred => out.extend(coordinates.iter().map(|z| spread * z)),
             }
@@ -179,16 +216,20 @@ impl Pooling {
         &self,
         theta: &[f64],
         d_departures: &[f64],
-        anchor: f64,
+        anchor: Anchor,
         grad: &mut [f64],
-    ) -> (f64, f64) {
+    ) -> (f64, Anchor) {
         let mut total = 0.0;
-        let mut d_anchor = 0.0;
+        let mut d_anchor = Anchor::default();
         let (mut at, mut d_at) = (0, 0);
         for g in &self.groups {
             if let Some(slope) = &g.slope {
                 let d_lik = &d_departures[d_at..d_at + g.departure_count()];
-                total += slope_group_density(g, slope, &theta[at..at + g.dim()], d_lik, &mut grad[at..at + g.dim()]);
+                let (theta, grad) = (&theta[at..at + g.dim()], &mut grad[at..at + g.dim()]);
+                total += match g.layout {
+                    GroupLayout::NonCentred => slope_group_density(g, slope, theta, d_lik, grad),
+                    GroupLayout::Centred => centred_slope_group_density(g, slope, theta, d_lik, anchor, grad, &mut d_anchor),
+                };
                 at += g.dim();
                 d_at += g.departure_count();
                 continue;
@@ -204,14 +245,14 @@ impl Pooling {
             match g.layout {
                 GroupLayout::Centred => {
                     let precision = (-2.0 * u).exp();
-                    let shift = if g.around_intercept { anchor } else { 0.0 };
+                    let shift = if g.around_intercept { anchor.intercept } else { 0.0 };
                     for ((out, &b), &d) in grads.iter_mut().zip(coordinates).zip(d_lik) {
                         let a = b - shift;
                         total += -0.5 * a * a * precision - u - HALF_LOG_TWO_PI;
                         *out = d - a * precision;
                         d_u += a * a * precision - 1.0;
                         if g.around_intercept {
-                            d_anchor -= *out;
+                            d_anchor.intercept -= *out;
                         }
                     }
                 }
@@ -232,7 +273,7 @@ impl Pooling {
 
     /// Constrained values (each group's spread, then its departures) from
     /// unconstrained `theta`.
-    pub fn constrain(&self, theta: &[f64], anchor: f64) -> Vec<f64> {
+    pub fn constrain(&self, theta: &[f64], anchor: Anchor) -> Vec<f64> {
         let departures = self.departures(theta, anchor);
         let mut out = Vec::with_capacity(theta.len());
         let (mut at, mut d_at) = (0, 0);
@@ -253,7 +294,7 @@ impl Pooling {
 
     /// Unconstrained coordinates from constrained values; an error names
     /// the position of a spread that is not positive.
-    pub fn unconstrain(&self, params: &[f64], anchor: f64) -> Result<Vec<f64>, usize> {
+    pub fn unconstrain(&self, params: &[f64], anchor: Anchor) -> Result<Vec<f64>, usize> {
         let mut out = Vec::with_capacity(params.len());
         let mut at = 0;
         for g in &self.groups {
@@ -262,14 +303,21 @@ impl Pooling {
                 return Err(at);
             }
             if g.slope.is_some() {
-                out.extend(slope_coordinates(&params[at..at + g.dim()], g.levels).map_err(|k| at + k)?);
+                let mut coordinates = slope_coordinates(&params[at..at + g.dim()], g.levels).map_err(|k| at + k)?;
+                if g.layout == GroupLayout::Centred {
+                    let (s0, s1) = g.shifts(anchor);
+                    let n = g.levels;
+                    coordinates[1..=n].iter_mut().zip(&params[at + 1..at + 1 + n]).for_each(|(c, a)| *c = a + s0);
+                    coordinates[2 + n..2 + 2 * n].iter_mut().zip(&params[at + 2 + n..at + 2 + 2 * n]).for_each(|(c, a)| *c = a + s1);
+                }
+                out.extend(coordinates);
                 at += g.dim();
                 continue;
             }
             out.push(spread.ln());
             let departures = &params[at + 1..at + 1 + g.levels];
             match g.layout {
-                GroupLayout::Centred if g.around_intercept => out.extend(departures.iter().map(|a| a + anchor)),
+                GroupLayout::Centred if g.around_intercept => out.extend(departures.iter().map(|a| a + anchor.intercept)),
                 GroupLayout::Centred => out.extend_from_slice(departures),
                 GroupLayout::NonCentred => out.extend(departures.iter().map(|a| a / spread)),
             }
@@ -282,16 +330,27 @@ impl Pooling {
     /// departure 0; moved by standard scores `z` (one unit of `log(spread)`,
     /// and one spread of departure per unit). `anchor` is the intercept's
     /// starting value.
-    pub fn start(&self, z: &[f64], anchor: f64) -> Vec<f64> {
+    pub fn start(&self, z: &[f64], anchor: Anchor) -> Vec<f64> {
         let mut out = Vec::with_capacity(self.dim());
         let mut at = 0;
         for g in &self.groups {
             let score = |k: usize| z.get(at + k).copied().unwrap_or(0.0);
             if let Some(slope) = &g.slope {
-                out.push(g.spread_prior.central_point().ln() + score(0));
-                out.extend((1..=g.levels).map(score));
-                out.push(slope.spread_prior.central_point().ln() + score(g.levels + 1));
-                out.extend((g.levels + 2..2 * g.levels + 2).map(score));
+                let (u0, u1) = (
+                    g.spread_prior.central_point().ln() + score(0),
+                    slope.spread_prior.central_point().ln() + score(g.levels + 1),
+                );
+                let (s0, s1, t0, t1) = match g.layout {
+                    GroupLayout::NonCentred => (0.0, 0.0, 1.0, 1.0),
+                    GroupLayout::Centred => {
+                        let (s0, s1) = g.shifts(anchor);
+                        (s0, s1, u0.exp(), u1.exp())
+                    }
+                };
+                out.push(u0);
+                out.extend((1..=g.levels).map(|k| s0 + t0 * score(k)));
+                out.push(u1);
+                out.extend((g.levels + 2..2 * g.levels + 2).map(|k| s1 + t1 * score(k)));
                 // atanh ρ moved by a quarter of a score: the correlation starts near 0.
                 out.push(0.25 * score(2 * g.levels + 2));
                 at += g.dim();
@@ -301,7 +360,7 @@ impl Pooling {
             out.push(u);
             for k in 1..=g.levels {
                 out.push(match g.layout {
-                    GroupLayout::Centred if g.around_intercept => anchor + u.exp() * score(k),
+                    GroupLayout::Centred if g.around_intercept => anchor.intercept + u.exp() * score(k),
                     GroupLayout::Centred => u.exp() * score(k),
                     GroupLayout::NonCentred => score(k),
                 });
@@ -406,4 +465,56 @@ fn slope_coordinates(params: &[f64], levels: usize) -> Result<Vec<f64>, usize> {
     out.extend(z0.iter().zip(a1).map(|(z0, a1)| (a1 / t1 - rho * z0) / s));
     out.push(rho.atanh());
     Ok(out)
+}
+
+/// The log prior of a centred varying-slope group: coordinates `u₀`, the
+/// intercept departures (as level means around the intercept when the
+/// group is sampled around it), `u₁`, the slope departures (around the
+/// population slope), `v`. Each level's pair is bivariate normal with sds
+/// `τ₀, τ₁` and correlation ρ: with `x = a₀/τ₀`, `y = a₁/τ₁`, `D = 1 − ρ²`,
+/// `q = x² − 2ρxy + y²`, its log density is
+/// `−log 2π − u₀ − u₁ − ½·log D − q/(2D)`. Writes the gradient (prior plus
+/// likelihood) into `grad` and subtracts the shifted coordinates' gradient
+/// from the anchors' derivatives in `d_anchor`.
+fn centred_slope_group_density(
+    g: &PooledGroup,
+    slope: &SlopePrior,
+    theta: &[f64],
+    d_lik: &[f64],
+    anchor: Anchor,
+    grad: &mut [f64],
+    d_anchor: &mut Anchor,
+) -> f64 {
+    let j = g.levels;
+    let c = SlopeCoordinates::read(theta, j);
+    let (s0, s1) = g.shifts(anchor);
+    let (t0, t1, rho) = (c.u0.exp(), c.u1.exp(), c.v.tanh());
+    let d = 1.0 - rho * rho;
+    let (d0, d1) = d_lik.split_at(j);
+    let (lp0, dp0) = g.spread_prior.log_density_and_derivative(t0);
+    let (lp1, dp1) = slope.spread_prior.log_density_and_derivative(t1);
+    let log_d = log_one_minus_tanh_squared(c.v);
+    let mut total = lp0 + c.u0 + lp1 + c.u1 + slope.lkj * log_d;
+    let (mut g_u0, mut g_u1, mut g_rho) = (dp0 * t0 + 1.0, dp1 * t1 + 1.0, 0.0);
+    for k in 0..j {
+        let (x, y) = ((c.z0[k] - s0) / t0, (c.z1[k] - s1) / t1);
+        let q = x * x - 2.0 * rho * x * y + y * y;
+        total += -2.0 * HALF_LOG_TWO_PI - c.u0 - c.u1 - 0.5 * log_d - 0.5 * q / d;
+        let (rx, ry) = ((x - rho * y) / d, (y - rho * x) / d);
+        let out0 = d0[k] - rx / t0;
+        let out1 = d1[k] - ry / t1;
+        grad[1 + k] = out0;
+        grad[2 + j + k] = out1;
+        if g.around_intercept {
+            d_anchor.intercept -= out0;
+            d_anchor.slope -= out1;
+        }
+        g_u0 += x * rx - 1.0;
+        g_u1 += y * ry - 1.0;
+        g_rho += rho / d + x * y / d - rho * q / (d * d);
+    }
+    grad[0] = g_u0;
+    grad[1 + j] = g_u1;
+    grad[2 + 2 * j] = g_rho * d - 2.0 * slope.lkj * rho;
+    total
 }

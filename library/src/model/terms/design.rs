@@ -76,15 +76,25 @@ impl GroupTerm {
         let spread = group_spread_label(&self.column);
         let mut labels = self.labels();
         if let Some(slope) = &self.slope {
-            // Standard scores of the Cholesky form (`family::pooling`).
+            // Standard scores of the Cholesky form, or the departures
+            // (around the population's intercept and slope) when centred.
             let n = self.levels.len();
             let slope_spread = labels[1 + n].clone();
             let correlation = labels[2 + 2 * n].clone();
+            let population_slope = slope_label(&slope.column);
             for label in &mut labels[1..=n] {
-                *label = format!("{label} / {spread}");
+                match self.layout {
+                    GroupLayout::NonCentred => *label = format!("{label} / {spread}"),
+                    GroupLayout::Centred if around_intercept => *label = format!("intercept + {label}"),
+                    GroupLayout::Centred => {}
+                }
             }
             for label in &mut labels[2 + n..2 + 2 * n] {
-                *label = format!("{label}: {} score", slope.column);
+                match self.layout {
+                    GroupLayout::NonCentred => *label = format!("{label}: {} score", slope.column),
+                    GroupLayout::Centred if around_intercept => *label = format!("{population_slope} + {label}"),
+                    GroupLayout::Centred => {}
+                }
             }
             labels[0] = format!("log({spread})");
             labels[1 + n] = format!("log({slope_spread})");

@@ -82,9 +82,6 @@ impl GroupLayout {
 pub enum LayoutChoice {
     /// Written in the cell.
     Declared,
-    /// A group with a varying slope is always non-centred, through the
-    /// Cholesky factor of its correlation matrix (`family::pooling`).
-    WithSlope,
     /// Waypath's rule, with the median information ratio it saw and the
     /// rough spread of the departures behind it.
     FromData { median_ratio: f64, rough_spread: f64 },
@@ -149,11 +146,6 @@ impl GroupTerm {
     /// predictor at the outcome's mean) and `level_means` (each level's raw
     /// mean outcome on the link scale, `None` for a level without rows).
     pub fn settle_layout(&mut self, declared: Option<GroupLayout>, row_information: f64, level_means: &[Option<f64>]) {
-        if self.slope.is_some() {
-            self.layout = GroupLayout::NonCentred;
-            self.choice = LayoutChoice::WithSlope;
-            return;
-        }
         if let Some(layout) = declared {
             self.layout = layout;
             self.choice = LayoutChoice::Declared;
@@ -194,9 +186,7 @@ impl GroupTerm {
         );
         let why = match &self.choice {
             LayoutChoice::Declared => "as the parameterise line says".to_string(),
-            LayoutChoice::WithSlope => "always so with a varying slope: standard scores through the Cholesky factor of \
-                the intercept–slope correlation matrix"
-                .to_string(),
+
             LayoutChoice::FromData { median_ratio, rough_spread } => format!(
                 "chosen from the data: the level means suggest a spread of about {} on the link scale, and with \
                  it the median level's rows tell {} times what the population does about its departure; \
