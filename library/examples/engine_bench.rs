@@ -27,7 +27,10 @@
 //!   trays against 5 soil measures, binomial family (logit link), NUTS.
 //! * `g` — clinics: whether a patient recovered against 3 measures, with
 //!   the clinic pooled (`pooled clinic`, varying intercepts), 60 clinics,
-//!   6,000 rows, bernoulli family, NUTS.
+//!   6,000 rows, bernoulli family, NUTS;
+//! * `h` — streams: water temperature against canopy shade in 40 streams
+//!   of 100 readings, each stream with its own intercept and shade slope,
+//!   correlated (`pooled stream with shade`), normal family, NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
@@ -113,6 +116,9 @@ fn main() {
     }
     if wants("g") {
         rows.push(case_clinics(nuts));
+    }
+    if wants("h") {
+        rows.push(case_streams(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -289,6 +295,17 @@ fn case_clinics(nuts: &NutsSettings) -> Row {
     let model = build("m_clinic", "recovered from dose, age, weight, pooled clinic using patients\nfamily bernoulli", &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(g) bernoulli, pooled clinic (60), 3 predictors, n = 6,000, NUTS", started, &fit, &model)
+}
+
+/// (h) Normal with a varying intercept and slope, correlated: 40 streams
+/// of 100 readings.
+fn case_streams(nuts: &NutsSettings) -> Row {
+    let table = streams(40, 100, 17);
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_streams", "temperature from shade, pooled stream with shade using readings", &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(h) normal, pooled stream with shade (40 × 100), correlated, NUTS", started, &fit, &model)
 }
 
 fn build(name: &str, body: &str, table: &Table) -> Model {
@@ -552,6 +569,39 @@ fn clinics(n: usize, groups: usize, seed: u64) -> Table {
             ("age", ColumnData::Real(age)),
             ("weight", ColumnData::Real(weight)),
             ("recovered", ColumnData::Binary(recovered)),
+        ],
+    )
+}
+
+/// Water temperature (°C) against canopy shade (share 0–1) in `streams`
+/// streams of `per` readings: each stream's intercept departs by sd 1.5
+/// and its shade slope by sd 2, correlated −0.5; noise sd 0.8.
+fn streams(streams: usize, per: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let rho: f64 = -0.5;
+    let effects: Vec<(f64, f64)> = (0..streams)
+        .map(|_| {
+            let (z0, z1) = (noise.sample(&mut rng), noise.sample(&mut rng));
+            (1.5 * z0, 2.0 * (rho * z0 + (1.0 - rho * rho).sqrt() * z1))
+        })
+        .collect();
+    let (mut stream, mut shade, mut temperature) = (Vec::new(), Vec::new(), Vec::new());
+    for (s, (a, b)) in effects.iter().enumerate() {
+        for _ in 0..per {
+            let x: f64 = rng.random_range(0.0..1.0);
+            stream.push(s as u32);
+            shade.push(x);
+            temperature.push(16.0 + a + (b - 4.0) * x + 0.8 * noise.sample(&mut rng));
+        }
+    }
+    let levels = (1..=streams).map(|k| format!("S{k:02}")).collect();
+    table(
+        "readings",
+        vec![
+            ("stream", ColumnData::Category { codes: stream, levels }),
+            ("shade", ColumnData::Real(shade)),
+            ("temperature", ColumnData::Real(temperature)),
         ],
     )
 }

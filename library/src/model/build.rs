@@ -14,11 +14,11 @@ use crate::table::Table;
 use crate::limits::{bytes_for, check_memory};
 
 use super::defaults::{assign_priors, predictor_blocks, row_information, ColumnSpread, PredictorBlock};
-use super::family::pooling::Pooling;
+use super::family::pooling::{Pooling, SlopePrior};
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
-use super::family::likelihood::{GlmData, GlmOutcome};
+use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
 use super::family::softmax::SoftmaxData;
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
@@ -26,7 +26,9 @@ use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
+use super::terms::groups::VaryingSlope;
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
+use super::prior::short_number;
 
 impl Model {
     /// Build the model of `spec` on `table` (the table `spec.table` names;
@@ -46,7 +48,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_scales(spec, table)?;
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
-    let mut groups = plan_groups(spec, table)?;
+    let mut groups = plan_groups(spec, table, &recipes)?;
     let blocks = predictor_blocks(spec, &outcome);
     let design = design_matrix(&recipes, table)?;
     let columns = column_spread(&design);
@@ -61,7 +63,20 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         notes.push(group.note());
     }
     let single_intercept = recipes.iter().position(|r| matches!(r, TermRecipe::Intercept)).map(|_| 0);
-    let pooling = Pooling::new(&groups, &priors.group_spreads, single_intercept);
+    let slope_priors: Vec<Option<SlopePrior>> = priors
+        .slope_spreads
+        .iter()
+        .map(|p| p.clone().map(|spread_prior| SlopePrior { spread_prior, lkj: priors.correlation_lkj }))
+        .collect();
+    if groups.iter().any(|g| g.slope.is_some()) {
+        notes.push(format!(
+            "the correlation of a group's intercept and slope departures has the prior lkj({}) on its correlation \
+             matrix{}",
+            short_number(priors.correlation_lkj),
+            if spec.correlation_prior.is_some() { "" } else { " (the default; `prior pooled correlations: lkj(η)` sets η)" }
+        ));
+    }
+    let pooling = Pooling::new(&groups, &priors.group_spreads, &slope_priors, single_intercept);
     if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
         notes.push(format!(
             "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
@@ -69,7 +84,6 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             group.column
         ));
     }
-    let likelihood_design = with_departure_columns(&design, &groups, &group_rows);
     let term_labels: Vec<String> = recipes.iter().flat_map(TermRecipe::labels).collect();
     let labels: Vec<String> =
         blocks.iter().flat_map(|b| term_labels.iter().map(move |l| format!("{}{l}", b.prefix))).collect();
@@ -100,13 +114,16 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
                         .into(),
                 );
             }
+            let likelihood_design = with_departure_columns(&design, &groups, &group_rows);
             Likelihood::Gaussian { stats: GaussianStats::new(&likelihood_design, &outcome.y, intercepts), spread_prior }
         }
         (None, Some(levels)) => {
             notes.extend(level_notes(spec, levels, &outcome));
             Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len()))
         }
-        (None, None) => Likelihood::Glm(glm_data(&likelihood_design, &spec.family, &outcome)),
+        (None, None) => {
+            Likelihood::Glm(glm_data(&design, &spec.family, &outcome).with_groups(group_indices(&design, &groups, &group_rows)))
+        }
     };
     Ok(Model {
         name: spec.name.clone(),
@@ -134,10 +151,10 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
 /// The pooled groups of `spec` planned on `table`; refused for the levels
 /// family and checked against the memory the likelihood's copy of their
 /// indicator columns needs.
-fn plan_groups(spec: &ModelSpec, table: &Table) -> Result<Vec<GroupTerm>, ModelError> {
+fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Result<Vec<GroupTerm>, ModelError> {
     let mut groups = Vec::new();
     for term in &spec.terms {
-        let TermSpec::Pooled { by } = term else { continue };
+        let TermSpec::Pooled { by, with } = term else { continue };
         if spec.family == Family::Levels {
             return Err(ModelError::Term {
                 term: term.to_string(),
@@ -148,10 +165,22 @@ fn plan_groups(spec: &ModelSpec, table: &Table) -> Result<Vec<GroupTerm>, ModelE
                 ),
             });
         }
-        let group = GroupTerm::plan(by, table).map_err(|e| match e {
+        let mut group = GroupTerm::plan(by, table).map_err(|e| match e {
             ModelError::Syntax { message } => ModelError::Term { term: term.to_string(), message },
             other => other,
         })?;
+        if let Some(x) = with {
+            group.slope = Some(varying_slope(x, recipes).map_err(|message| ModelError::Term { term: term.to_string(), message })?);
+            if spec.family != Family::Normal && !matches!(spec.family, Family::Bernoulli | Family::Binomial { .. } | Family::Poisson) {
+                return Err(ModelError::Term { term: term.to_string(), message: "varying slopes need a normal, bernoulli, binomial or poisson outcome".into() });
+            }
+        }
+        if groups.iter().any(|g: &GroupTerm| g.column == group.column) {
+            return Err(ModelError::Term {
+                term: term.to_string(),
+                message: format!("`{by}` is pooled twice; keep one `pooled {by}` term (with its slope, if any)"),
+            });
+        }
         let rows = table.nrows();
         check_memory(
             &format!("the term {term}: {} indicator columns over {rows} rows", group.levels.len()),
@@ -161,6 +190,22 @@ fn plan_groups(spec: &ModelSpec, table: &Table) -> Result<Vec<GroupTerm>, ModelE
         groups.push(group);
     }
     Ok(groups)
+}
+
+/// The varying slope of predictor `x`: `x` must enter the model as a plain
+/// slope (the population slope the levels depart from).
+fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String> {
+    let mut offset = 0;
+    for recipe in recipes {
+        if matches!(recipe, TermRecipe::Slope { column, .. } if column == x) {
+            return Ok(VaryingSlope { column: x.to_string(), design_column: offset });
+        }
+        offset += recipe.labels().len();
+    }
+    Err(format!(
+        "a varying slope of `{x}` departs from the population's slope of `{x}`, which the model does not have: add \
+         `{x}` (a numeric column) to the outcome line's terms"
+    ))
 }
 
 /// A `parameterise` line must name a pooled group of the model.
@@ -198,26 +243,45 @@ fn fitted_group_rows(groups: &[GroupTerm], table: &Table) -> Result<Vec<Vec<usiz
         .collect()
 }
 
-/// The design the likelihood evaluates: the fixed-effect columns followed
-/// by each group's level indicators, so that the coefficients followed by
-/// the departures give every row's linear predictor (`family::pooling`).
-/// Without groups, the design itself.
+/// The design the normal likelihood's sufficient statistics are computed
+/// from: the fixed-effect columns followed by each group's level
+/// indicators, so that the coefficients followed by the departures give
+/// every row's linear predictor (`family::pooling`). Without groups, the
+/// design itself. (The GLM families take the levels by index instead,
+/// [`group_indices`].)
 pub(super) fn with_departure_columns(design: &DMatrix<f64>, groups: &[GroupTerm], rows: &[Vec<usize>]) -> DMatrix<f64> {
     if groups.is_empty() {
         return design.clone();
     }
+    let runs = group_indices(design, groups, rows);
     let p = design.ncols();
-    let width = p + groups.iter().map(|g| g.levels.len()).sum::<usize>();
+    let width = p + runs.iter().map(|r| r.levels).sum::<usize>();
     let mut out = DMatrix::zeros(design.nrows(), width);
     out.columns_mut(0, p).copy_from(design);
     let mut at = p;
-    for (group, levels) in groups.iter().zip(rows) {
-        for (i, &level) in levels.iter().enumerate() {
-            out[(i, at + level)] = 1.0;
+    for run in &runs {
+        for (i, &level) in run.level_of_row.iter().enumerate() {
+            out[(i, at + level as usize)] = run.weights.as_ref().map_or(1.0, |w| w[i]);
         }
-        at += group.levels.len();
+        at += run.levels;
     }
     out
+}
+
+/// Every group's fitted rows by level index, for the GLM likelihood's
+/// gather and scatter (`family::likelihood`): one run per group, and a
+/// second, weighted by the predictor's design column, for a varying slope.
+pub(super) fn group_indices(design: &DMatrix<f64>, groups: &[GroupTerm], rows: &[Vec<usize>]) -> Vec<GroupIndices> {
+    let mut runs = Vec::new();
+    for (group, levels) in groups.iter().zip(rows) {
+        let level_of_row: Vec<u32> = levels.iter().map(|&l| l as u32).collect();
+        runs.push(GroupIndices { level_of_row: level_of_row.clone(), levels: group.levels.len(), weights: None });
+        if let Some(slope) = &group.slope {
+            let weights = design.column(slope.design_column).iter().copied().collect();
+            runs.push(GroupIndices { level_of_row, levels: group.levels.len(), weights: Some(weights) });
+        }
+    }
+    runs
 }
 
 /// The sd and mean of every design column over the fitted rows.

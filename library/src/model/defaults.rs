@@ -35,6 +35,20 @@
 //! makes the departures vary across rows by that share, and the prior
 //! keeps it below about twice the share.
 //!
+//! A group's **varying slope** (`pooled block with girth`) varies from row
+//! to row as well and takes a share of its own: `K + G` counts it too, and
+//! its spread gets `half_normal(T/(s_x·√(K + G)))`, `s_x` the sd of the
+//! predictor's design column, like the slope columns.
+//!
+//! **Correlations** between a group's intercept and slope departures:
+//! `lkj(2)` ([`DEFAULT_LKJ`]). For two effects the LKJ density makes the
+//! correlation `ρ = 2B − 1` with `B ~ beta(η, η)` (Lewandowski, Kurowicka
+//! & Joe 2009, §3.2), so η = 1 is flat on (−1, 1) and leaves a positive
+//! density at ±1, where a few groups can push the draws against the edge;
+//! η = 2, density ∝ 1 − ρ², is the smallest whole η whose density falls to
+//! 0 at ±1, and the flattest such: ρ has sd 1/√5 ≈ 0.45 and its central
+//! 90% runs from about −0.73 to 0.73.
+//!
 //! Every assignment is recorded as a [`PriorUse`] so fit output can list
 //! the priors actually used and who set them.
 
@@ -52,6 +66,9 @@ use super::terms::GroupTerm;
 const LOG_ODDS_TARGET: f64 = 1.5;
 /// The shared budget's target on the log scale (log link).
 const LOG_TARGET: f64 = 1.0;
+/// The default η of the LKJ prior on a group's intercept–slope correlation
+/// (module docs).
+pub const DEFAULT_LKJ: f64 = 2.0;
 
 /// One prior as used by a built model, for listing in output.
 #[derive(Debug, Clone, PartialEq)]
@@ -77,6 +94,10 @@ pub struct PriorPlan {
     pub spread: Option<Prior>,
     /// The spread prior of each pooled group, in the groups' order.
     pub group_spreads: Vec<Prior>,
+    /// The spread prior of each group's varying slope (`None` without one).
+    pub slope_spreads: Vec<Option<Prior>>,
+    /// The η of the LKJ prior on every group's intercept–slope correlation.
+    pub correlation_lkj: f64,
     pub uses: Vec<PriorUse>,
 }
 
@@ -130,12 +151,15 @@ pub fn assign_priors(
     check_declared(spec, recipes, groups)?;
     let target = budget_target(&spec.family, outcome);
     let intercepts = super::build::intercept_columns(recipes);
-    let varying = columns.sd.len() - intercepts.len() + groups.len();
+    let slopes = groups.iter().filter(|g| g.slope.is_some()).count();
+    let varying = columns.sd.len() - intercepts.len() + groups.len() + slopes;
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
         spread: None,
         group_spreads: Vec::new(),
+        slope_spreads: Vec::new(),
+        correlation_lkj: spec.correlation_prior.unwrap_or(DEFAULT_LKJ),
         uses: Vec::new(),
     };
     for block in blocks {
@@ -190,6 +214,27 @@ pub fn assign_priors(
             at_average_row: false,
         });
         plan.group_spreads.push(prior);
+        let slope_prior = group.slope.as_ref().map(|slope| {
+            let share = share_of_budget(target, columns.sd[slope.design_column], varying);
+            let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: share });
+            plan.uses.push(PriorUse {
+                group: PriorGroup::PooledSpreads,
+                parameters: vec![group_spread_label(&format!("{} {}", group.column, slope.column))],
+                prior: prior.clone(),
+                declared: declared.is_some(),
+                at_average_row: false,
+            });
+            prior
+        });
+        plan.slope_spreads.push(slope_prior);
+    }
+    if spec.correlation_prior.is_some() && slopes == 0 {
+        return Err(ModelError::Prior {
+            group: super::spec::POOLED_CORRELATIONS.into(),
+            message: "this model has no pooled group with a varying slope, so no correlation; remove the prior line \
+                      or write `pooled <category> with <predictor>`"
+                .into(),
+        });
     }
     Ok(plan)
 }

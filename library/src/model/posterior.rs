@@ -19,6 +19,7 @@ use super::family::softmax::SoftmaxData;
 use super::family::pooling::Pooling;
 use super::family::Family;
 use super::prior::Prior;
+use super::terms::design::is_spread_label;
 use super::terms::{GroupTerm, TermRecipe};
 use super::LogDensity;
 
@@ -188,6 +189,12 @@ impl Model {
         &self.groups
     }
 
+    /// The η of the LKJ prior on the intercept–slope correlation of the
+    /// groups with a varying slope (the default when none has one).
+    pub fn correlation_lkj(&self) -> f64 {
+        self.pooling.groups.iter().find_map(|g| g.slope.as_ref().map(|s| s.lkj)).unwrap_or(super::defaults::DEFAULT_LKJ)
+    }
+
     /// The unconstrained point of constrained parameters (checks the length
     /// and that the spread is positive).
     pub fn unconstrain(&self, params: &[f64]) -> Result<Vec<f64>, ModelError> {
@@ -204,7 +211,12 @@ impl Model {
         }
         let first_group = self.first_group_index();
         let pooled = self.pooling.unconstrain(&params[first_group..], self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
-            message: format!("{} must be positive, not {}", self.parameter_names()[first_group + at], params[first_group + at]),
+            message: format!(
+                "{} must be {}, not {}",
+                self.parameter_names()[first_group + at],
+                if is_spread_label(&self.parameter_names()[first_group + at]) { "positive" } else { "between −1 and 1" },
+                params[first_group + at]
+            ),
         })?;
         theta.truncate(first_group);
         theta.extend(pooled);
@@ -441,7 +453,10 @@ impl Model {
             self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], anchor, &mut grad[first_group..]);
         total += groups;
         if let Some(j) = self.pooling.intercept {
-            grad[j] += d_anchor;
+            grad[j] += d_anchor.intercept;
+        }
+        if let Some(j) = self.pooling.slope_anchor_position() {
+            grad[j] += d_anchor.slope;
         }
         if total.is_finite() {
             total

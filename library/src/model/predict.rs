@@ -14,7 +14,7 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 
 use crate::table::Table;
 
-use super::build::{glm_data, intercept_columns, softmax_data, with_departure_columns};
+use super::build::{glm_data, group_indices, intercept_columns, softmax_data, with_departure_columns};
 use super::columns::real_values;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
@@ -83,9 +83,10 @@ impl Model {
         self.predict_mean_in_new_groups(params, rows, &[])
     }
 
-    /// [`Model::predict_mean`], with `new_group[g]` as the departure of
-    /// every row that belongs to no fitted level of pooled group `g` (a new
-    /// group; 0 where `new_group` is shorter). Draw them with
+    /// [`Model::predict_mean`], with `new_group` as the departures of
+    /// every row that belongs to no fitted level of a pooled group (a new
+    /// group): one per group, and a second, of the slope, for a group with
+    /// a varying slope (0 where `new_group` is shorter). Draw them with
     /// [`Model::new_group_departures`].
     pub fn predict_mean_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Prediction, ModelError> {
         self.check_length(params)?;
@@ -158,27 +159,51 @@ impl Model {
 
     /// Add each row's departure in every pooled group to its linear
     /// predictor (`new_group[g]`, or nothing, for a row of a new group).
+    /// A varying slope's departure is multiplied by the row's value of the
+    /// predictor's design column.
     fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear: &mut [f64]) {
         let mut at = self.first_group_index();
-        for (g, (group, levels)) in self.groups.iter().zip(&rows.groups).enumerate() {
-            let departures = &params[at + 1..at + 1 + group.levels.len()];
-            let new = new_group.get(g).copied().unwrap_or(0.0);
+        let mut run = 0;
+        for (group, levels) in self.groups.iter().zip(&rows.groups) {
+            let n = group.levels.len();
+            let departures = &params[at + 1..at + 1 + n];
+            let new = new_group.get(run).copied().unwrap_or(0.0);
             for (eta, level) in linear.iter_mut().zip(levels) {
                 *eta += level.map_or(new, |l| departures[l]);
             }
-            at += 1 + group.levels.len();
+            run += 1;
+            at += 1 + n;
+            if let Some(slope) = &group.slope {
+                let departures = &params[at + 1..at + 1 + n];
+                let new = new_group.get(run).copied().unwrap_or(0.0);
+                let x = rows.design.column(slope.design_column);
+                for ((eta, level), x) in linear.iter_mut().zip(levels).zip(x.iter()) {
+                    *eta += x * level.map_or(new, |l| departures[l]);
+                }
+                run += 1;
+                at += 2 + n;
+            }
         }
     }
 
     /// One departure per pooled group for a new group drawn from the
-    /// population at constrained `params`: `spread · z`, z standard normal.
+    /// population at constrained `params`: `spread · z`, z standard normal;
+    /// a group with a varying slope adds the slope's departure, drawn
+    /// jointly: `slope spread · (ρ·z + √(1 − ρ²)·z₂)`.
     pub fn new_group_departures<R: Rng + ?Sized>(&self, params: &[f64], rng: &mut R) -> Vec<f64> {
         let mut at = self.first_group_index();
-        let mut out = Vec::with_capacity(self.groups.len());
+        let mut out = Vec::with_capacity(2 * self.groups.len());
         for group in &self.groups {
+            let n = group.levels.len();
             let z: f64 = rand_distr::StandardNormal.sample(rng);
             out.push(params[at] * z);
-            at += 1 + group.levels.len();
+            at += 1 + n;
+            if group.slope.is_some() {
+                let z2: f64 = rand_distr::StandardNormal.sample(rng);
+                let (spread, rho) = (params[at], params[at + 1 + n]);
+                out.push(spread * rho.mul_add(z, (1.0 - rho * rho).sqrt() * z2));
+                at += 2 + n;
+            }
         }
         out
     }
@@ -273,7 +298,9 @@ impl Model {
             },
             Likelihood::Glm(glm) => {
                 let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
-                Likelihood::Glm(glm_data(&self.likelihood_design(), &self.family, &outcome))
+                Likelihood::Glm(
+                    glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
+                )
             }
             Likelihood::Softmax(_) => {
                 let count = self.outcome_levels().map_or(0, <[String]>::len);
@@ -290,8 +317,8 @@ impl Model {
 }
 
 impl Model {
-    /// The design the likelihood evaluates: the fitted design followed by
-    /// the pooled groups' level indicators.
+    /// The design the normal likelihood's sufficient statistics come from:
+    /// the fitted design followed by the pooled groups' level indicators.
     fn likelihood_design(&self) -> DMatrix<f64> {
         with_departure_columns(&self.design, &self.groups, &self.group_rows)
     }

@@ -69,6 +69,15 @@ pub const KNOTS: &str = "knots";
 /// drawn from a normal population whose spread the data teach (partial
 /// pooling; [`crate::model::terms::groups`]).
 pub const POOLED: &str = "pooled";
+/// The word after a pooled category that names the numeric predictor whose
+/// slope varies with the category's intercept: `pooled block with girth`.
+pub const POOLED_WITH: &str = "with";
+/// The prior group of the correlation between a pooled group's intercept
+/// and its varying slope: `prior pooled correlations: lkj(2)`.
+pub const POOLED_CORRELATIONS: &str = "pooled correlations";
+/// The only distribution `prior pooled correlations` takes: the LKJ
+/// density on correlation matrices, `lkj(η)` with η > 0.
+pub const LKJ: &str = "lkj";
 /// The first word of a line that sets how a pooled group's departures are
 /// sampled: `parameterise <category> centred | noncentred`.
 pub const PARAMETERISE_LINE: &str = "parameterise";
@@ -86,15 +95,17 @@ pub enum TermSpec {
     /// at quantiles unless listed.
     Spline { predictor: String, functions: usize, knots: Option<Vec<f64>> },
     /// `pooled c`: one departure per level of category `c` from the
-    /// population, the departures normal around 0 with a learned spread.
-    Pooled { by: String },
+    /// population, the departures normal around 0 with a learned spread;
+    /// `pooled c with x` also gives each level a departure of the slope of
+    /// `x`, the two departures jointly normal with a learned correlation.
+    Pooled { by: String, with: Option<String> },
 }
 
 impl TermSpec {
     /// The column whose values enter the term (the `x` of `x per c`).
     pub fn predictor(&self) -> &str {
         match self {
-            TermSpec::Column(name) | TermSpec::Pooled { by: name } => name,
+            TermSpec::Column(name) | TermSpec::Pooled { by: name, .. } => name,
             TermSpec::Per { predictor, .. }
             | TermSpec::Powers { predictor, .. }
             | TermSpec::Spline { predictor, .. } => predictor,
@@ -108,7 +119,8 @@ impl fmt::Display for TermSpec {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
             TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
-            TermSpec::Pooled { by } => write!(f, "{POOLED} {by}"),
+            TermSpec::Pooled { by, with: None } => write!(f, "{POOLED} {by}"),
+            TermSpec::Pooled { by, with: Some(x) } => write!(f, "{POOLED} {by} {POOLED_WITH} {x}"),
             TermSpec::Spline { predictor, functions, knots: None } => {
                 write!(f, "spline({predictor}, {functions})")
             }
@@ -137,6 +149,8 @@ pub enum ModelLine {
     Centring(bool),
     /// `parameterise <category> centred | noncentred`.
     Parameterise { group: String, layout: GroupLayout },
+    /// `prior pooled correlations: lkj(η)`.
+    CorrelationPrior(f64),
     /// A blank or comment-only line.
     Blank,
 }
@@ -163,6 +177,8 @@ pub struct ModelSpec {
     /// Pooled groups whose parameterisation a `parameterise` line sets
     /// (otherwise Waypath chooses from the data).
     pub layouts: Vec<(String, GroupLayout)>,
+    /// The η of a `prior pooled correlations: lkj(η)` line, if written.
+    pub correlation_prior: Option<f64>,
 }
 
 impl ModelSpec {
@@ -177,6 +193,7 @@ impl ModelSpec {
         let mut priors: Vec<(PriorGroup, Prior)> = Vec::new();
         let mut centre = true;
         let mut layouts: Vec<(String, GroupLayout)> = Vec::new();
+        let mut correlation_prior: Option<(usize, f64)> = None;
         for (line, text) in lines {
             let at = |e: ModelError| e.at_line(line);
             match parse_model_line(text).map_err(at)? {
@@ -190,6 +207,9 @@ impl ModelSpec {
                         ))));
                     }
                     priors.push((group, prior));
+                }
+                ModelLine::CorrelationPrior(eta) => {
+                    set_once(&mut correlation_prior, line, eta, "prior for pooled correlations").map_err(at)?;
                 }
                 ModelLine::Centring(on) => centre = on,
                 ModelLine::Parameterise { group, layout } => {
@@ -219,6 +239,7 @@ impl ModelSpec {
             centre,
             formula_line: Some(formula_line),
             layouts,
+            correlation_prior: correlation_prior.map(|(_, eta)| eta),
         })
     }
 
@@ -260,6 +281,9 @@ fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
             "`prior {rest}` needs a colon, like `prior slopes: normal(0, 1)`"
         ))
     })?;
+    if group_word.split_whitespace().collect::<Vec<_>>().join(" ") == POOLED_CORRELATIONS {
+        return parse_lkj(dist.trim()).map(ModelLine::CorrelationPrior);
+    }
     let group = PriorGroup::parse(group_word).ok_or_else(|| {
         ModelError::syntax(format!(
             "`{}` is not a prior group; use intercepts, slopes, weights, spread or pooled spreads",
@@ -267,6 +291,19 @@ fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
         ))
     })?;
     Ok(ModelLine::Prior { group, prior: Prior::parse(dist)? })
+}
+
+/// `lkj(η)`, η a positive finite number.
+fn parse_lkj(text: &str) -> Result<f64, ModelError> {
+    let usage = || {
+        ModelError::syntax(format!(
+            "`prior {POOLED_CORRELATIONS}: {text}`: write `{LKJ}(η)` with η > 0 (1 is flat over correlations, \
+             larger values favour correlations near 0)"
+        ))
+    };
+    let inner = call_arguments(text, LKJ).ok_or_else(usage)?;
+    let eta: f64 = inner.trim().parse().map_err(|_| usage())?;
+    if eta > 0.0 && eta.is_finite() { Ok(eta) } else { Err(usage()) }
 }
 
 fn parse_centring(rest: &str) -> Result<ModelLine, ModelError> {
@@ -339,8 +376,21 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     if let Some(inner) = call_arguments(text, SPLINE) {
         return parse_spline(inner, text);
     }
-    if let Some(by) = text.strip_prefix(POOLED).filter(|rest| rest.starts_with(char::is_whitespace)) {
-        return Ok(TermSpec::Pooled { by: identifier(by.trim(), "category after `pooled`")? });
+    if let Some(rest) = text.strip_prefix(POOLED).filter(|rest| rest.starts_with(char::is_whitespace)) {
+        let words: Vec<&str> = rest.split_whitespace().collect();
+        return match words[..] {
+            [by] => Ok(TermSpec::Pooled { by: identifier(by, "category after `pooled`")?, with: None }),
+            [by, w, x] if w == POOLED_WITH => Ok(TermSpec::Pooled {
+                by: identifier(by, "category after `pooled`")?,
+                with: Some(identifier(x, "predictor after `with`")?),
+            }),
+            [_, w, _, ..] if w == POOLED_WITH => Err(ModelError::syntax(format!(
+                "`{text}`: one varying slope per pooled group for now; write `{POOLED} <category> {POOLED_WITH} <predictor>`"
+            ))),
+            _ => Err(ModelError::syntax(format!(
+                "`{text}`: write `{POOLED} <category>` or `{POOLED} <category> {POOLED_WITH} <predictor>`"
+            ))),
+        };
     }
     if let Some((x, by)) = text.split_once(&*format!(" {PER} ")) {
         return Ok(TermSpec::Per {

@@ -180,7 +180,9 @@ fn failure_note(reps: usize, failed: &[(usize, String)]) -> String {
 
 /// One draw of every parameter from its prior, in parameter order. A
 /// pooled group draws its spread from the spread's prior, then each
-/// departure from `normal(0, spread)`.
+/// departure from `normal(0, spread)`; a varying slope draws its spread,
+/// the correlation from its LKJ prior, and each level's slope departure
+/// jointly with its intercept departure.
 pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryError> {
     let names = model.parameter_names();
     let sample = |name: &String, rng: &mut StdRng| -> Result<f64, QueryError> {
@@ -195,11 +197,26 @@ pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryErro
     for group in model.pooled_groups() {
         let spread = sample(&names[at], rng)?;
         values.push(spread);
-        for _ in &group.levels {
-            let z: f64 = rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng);
-            values.push(spread * z);
-        }
+        let scores: Vec<f64> =
+            group.levels.iter().map(|_| rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng)).collect();
+        values.extend(scores.iter().map(|z| spread * z));
         at += 1 + group.levels.len();
+        if group.slope.is_some() {
+            // The correlation of two effects under lkj(η) is 2B − 1 with
+            // B ~ beta(η, η) (Lewandowski, Kurowicka & Joe 2009, §3.2).
+            let eta = model.correlation_lkj();
+            let beta = rand_distr::Beta::new(eta, eta)
+                .map_err(|e| QueryError::request(format!("model {}: lkj({eta}) cannot be drawn ({e})", model.name())))?;
+            let rho = 2.0 * rand_distr::Distribution::sample(&beta, rng) - 1.0;
+            let slope_spread = sample(&names[at], rng)?;
+            values.push(slope_spread);
+            for z in &scores {
+                let z2: f64 = rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng);
+                values.push(slope_spread * rho.mul_add(*z, (1.0 - rho * rho).sqrt() * z2));
+            }
+            values.push(rho);
+            at += 2 + group.levels.len();
+        }
     }
     Ok(model.from_prior_values(values))
 }

@@ -348,10 +348,18 @@ fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed
             ),
             None => {
                 any_new = true;
+                let drawn = match &group.slope {
+                    None => format!("one departure drawn from normal(0, {name} spread)"),
+                    Some(slope) => format!(
+                        "one departure of the intercept and one of the {x} slope, drawn jointly with spreads {name} \
+                         spread and {name} {x} spread and correlation {name} correlation[intercept, {x}],",
+                        x = slope.column
+                    ),
+                };
                 format!(
-                    "pooled {name}: for a new {name} drawn from the population: each draw adds one departure drawn \
-                     from normal(0, {name} spread) to both settings (seed {seed}); `at {name} <level>` asks for an \
-                     existing one, `over rows` averages over the observed ones"
+                    "pooled {name}: for a new {name} drawn from the population: each draw adds {drawn} to both \
+                     settings (seed {seed}); `at {name} <level>` asks for an existing one, `over rows` averages over \
+                     the observed ones"
                 )
             }
         });

@@ -12,8 +12,8 @@ use super::grammar::{tokens, Next};
 use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{
-    GroupLayout, CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, PARAMETERISE_LINE, PER, POOLED, PRIOR_LINE,
-    SPLINE, TERM_CALLS, USING,
+    GroupLayout, CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, LKJ, PARAMETERISE_LINE, PER, POOLED,
+    POOLED_CORRELATIONS, POOLED_WITH, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
 };
 use crate::model::PriorGroup;
 use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
@@ -70,7 +70,14 @@ fn model_line(typed: &str) -> Next {
         [FAMILY_LINE, BINOMIAL] => next(&OUT_OF[..1], &[], false),
         [FAMILY_LINE, BINOMIAL, out] if *out == OUT_OF[0] => next(&OUT_OF[1..], &[], false),
         [FAMILY_LINE, BINOMIAL, out, of] if [*out, *of] == OUT_OF => next(&[], &[], true),
-        [PRIOR_LINE] => Next { words: PriorGroup::words(), calls: Vec::new(), values: false },
+        [PRIOR_LINE] => {
+            let mut words = PriorGroup::words();
+            words.push(POOLED_CORRELATIONS);
+            Next { words, calls: Vec::new(), values: false }
+        }
+        [PRIOR_LINE, pooled, correlations, ":"] if format!("{pooled} {correlations}") == POOLED_CORRELATIONS => {
+            next(&[], &[LKJ], false)
+        }
         [PRIOR_LINE, .., ":"] => next(&[], PRIOR_DISTRIBUTIONS, false),
         [CENTRE_LINE] => next(CENTRINGS, &[], false),
         [PARAMETERISE_LINE] => next(&[], &[], true),
@@ -100,13 +107,16 @@ fn outcome_line(typed: &str, words: &[&str]) -> Next {
     if last == FROM || typed.trim_end().ends_with(',') {
         return next(&[POOLED], TERM_CALLS, true);
     }
-    if last == PER || last == USING || last == POOLED {
+    if last == PER || last == USING || last == POOLED || last == POOLED_WITH {
         return next(&[], &[], true);
     }
     if !words.contains(&FROM) {
         return Next::default();
     }
-    if before_last == Some(PER) || before_last == Some(POOLED) || last.ends_with(')') {
+    if before_last == Some(POOLED) {
+        return next(&[POOLED_WITH, USING], &[], false);
+    }
+    if before_last == Some(PER) || before_last == Some(POOLED_WITH) || last.ends_with(')') {
         return next(&[USING], &[], false);
     }
     next(&[PER, USING], &[], false)

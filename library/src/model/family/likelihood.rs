@@ -21,9 +21,13 @@
 //! bits. The logit link's softplus and logistic come from one exponential
 //! ([`super::kernels`]).
 //!
-//! Terms that add to the linear predictor beyond the fixed-effect design
-//! (group effects) belong beside [`fixed_effects_product`] in
-//! [`GlmData::evaluate`], taking their gradient from the same slopes.
+//! Pooled groups add each row's departure to the linear predictor by the
+//! row's level index ([`GroupIndices`]): after the block's fixed-effect
+//! product, a gather `ηᵢ += a[level of row i]` ([`add_departures`]); after
+//! its slopes, a scatter-add `∂a[level] += rᵢ` ([`add_departure_gradient`]).
+//! This costs one load per row and group, where indicator columns would
+//! cost one multiply-add per row and level. The scatter runs in row order,
+//! so it too gives the same bits in every build.
 
 use statrs::function::gamma::ln_gamma;
 
@@ -43,6 +47,19 @@ pub enum GlmOutcome {
     Poisson { y: Vec<f64> },
 }
 
+/// One run of pooled departures as the likelihood sees it: each row's
+/// level, the number of levels, and for a varying slope each row's value
+/// of the predictor (the departure is multiplied by it).
+#[derive(Debug, Clone, PartialEq)]
+pub struct GroupIndices {
+    /// The level of every fitted row.
+    pub level_of_row: Vec<u32>,
+    /// The number of levels.
+    pub levels: usize,
+    /// Every fitted row's multiplier (`None`: 1, a varying intercept).
+    pub weights: Option<Vec<f64>>,
+}
+
 /// Design and outcome of a GLM, ready for repeated likelihood evaluations.
 #[derive(Debug, Clone, PartialEq)]
 pub struct GlmData {
@@ -52,6 +69,8 @@ pub struct GlmData {
     width: usize,
     outcome: GlmOutcome,
     constant: f64,
+    /// Pooled groups, whose departures follow the coefficients.
+    groups: Vec<GroupIndices>,
 }
 
 impl GlmData {
@@ -66,7 +85,28 @@ impl GlmData {
                 blocks[base + j * BLOCK] = x;
             }
         }
-        GlmData { blocks, rows: n, width, outcome, constant }
+        GlmData { blocks, rows: n, width, outcome, constant, groups: Vec::new() }
+    }
+
+    /// The same data with pooled groups: the likelihood then takes the
+    /// coefficients followed by each group's departures (levels in order,
+    /// group after group), and writes their derivatives in the same order.
+    ///
+    /// # Panics
+    /// When a group's levels do not cover the rows (a build error).
+    pub fn with_groups(mut self, groups: Vec<GroupIndices>) -> Self {
+        for group in &groups {
+            assert_eq!(group.level_of_row.len(), self.rows, "one level per row");
+            assert!(group.weights.as_ref().is_none_or(|w| w.len() == self.rows), "one weight per row");
+            assert!(group.level_of_row.iter().all(|&l| (l as usize) < group.levels), "levels in range");
+        }
+        self.groups = groups;
+        self
+    }
+
+    /// The number of departures of every group together.
+    fn departures(&self) -> usize {
+        self.groups.iter().map(|g| g.levels).sum()
     }
 
     /// The number of trials of each row (binomial outcomes only).
@@ -77,7 +117,8 @@ impl GlmData {
         }
     }
 
-    /// The full log-likelihood at coefficients `beta`, adding its gradient
+    /// The full log-likelihood at coefficients `beta` (followed by the
+    /// groups' departures, [`GlmData::with_groups`]), adding its gradient
     /// into `grad`. Returns `-inf` where the likelihood underflows to zero.
     ///
     /// On x86-64 the same code is compiled twice more, for AVX-512 and for
@@ -130,7 +171,9 @@ impl GlmData {
         if width == 0 {
             return self.constant;
         }
-        let (beta, grad) = (&beta[..width], &mut grad[..width]);
+        let total_width = width + self.departures();
+        let (beta, departures) = beta[..total_width].split_at(width);
+        let (grad, d_departures) = grad[..total_width].split_at_mut(width);
         let mut eta = [0.0; BLOCK];
         let mut slope = [0.0; BLOCK];
         let mut terms = [0.0; BLOCK];
@@ -139,8 +182,10 @@ impl GlmData {
             let first = b * BLOCK;
             let used = (self.rows - first).min(BLOCK);
             fixed_effects_product(block, beta, &mut eta);
+            add_departures(&self.groups, departures, first, used, &mut eta);
             self.block_terms(first, used, &eta, &mut terms, &mut slope);
             fixed_effects_gradient(block, &slope, &mut gradient_lanes);
+            add_departure_gradient(&self.groups, &slope, first, used, d_departures);
         }
         for (g, lanes) in grad.iter_mut().zip(gradient_lanes.chunks_exact(LANES)) {
             *g += sum_in_fixed_order(lanes);
@@ -224,6 +269,56 @@ pub(crate) fn fixed_effects_product(block: &[f64], beta: &[f64], eta: &mut [f64;
             }
         }
         out.copy_from_slice(&acc);
+    }
+}
+
+/// Each of the block's rows `first..first + used` gets its level's
+/// departure of every group added to its linear predictor (a gather by
+/// level index; `departures` holds the groups' runs one after another).
+#[inline(always)]
+fn add_departures(groups: &[GroupIndices], departures: &[f64], first: usize, used: usize, eta: &mut [f64; BLOCK]) {
+    let mut at = 0;
+    for group in groups {
+        let run = &departures[at..at + group.levels];
+        let levels = &group.level_of_row[first..first + used];
+        match &group.weights {
+            None => {
+                for (e, &level) in eta.iter_mut().zip(levels) {
+                    *e += run[level as usize];
+                }
+            }
+            Some(weights) => {
+                for ((e, &level), &w) in eta.iter_mut().zip(levels).zip(&weights[first..first + used]) {
+                    *e = w.mul_add(run[level as usize], *e);
+                }
+            }
+        }
+        at += group.levels;
+    }
+}
+
+/// The block's share of the derivatives in the departures: each row's
+/// slope added onto its level's departure of every group (a scatter-add
+/// by level index, in row order).
+#[inline(always)]
+fn add_departure_gradient(groups: &[GroupIndices], slope: &[f64; BLOCK], first: usize, used: usize, d_departures: &mut [f64]) {
+    let mut at = 0;
+    for group in groups {
+        let run = &mut d_departures[at..at + group.levels];
+        let levels = &group.level_of_row[first..first + used];
+        match &group.weights {
+            None => {
+                for (&s, &level) in slope.iter().zip(levels) {
+                    run[level as usize] += s;
+                }
+            }
+            Some(weights) => {
+                for ((&s, &level), &w) in slope.iter().zip(levels).zip(&weights[first..first + used]) {
+                    run[level as usize] = w.mul_add(s, run[level as usize]);
+                }
+            }
+        }
+        at += group.levels;
     }
 }
 
@@ -408,17 +503,79 @@ mod tests {
         }
     }
 
+    /// Pooled groups by level index against their definition: the same
+    /// rows with each group's level indicators appended as columns, and the
+    /// coefficients followed by the departures, evaluated row by row
+    /// (`by_definition`). Two groups (7 and 3 levels) and a varying slope by
+    /// the first (its indicator columns times the predictor) over 517 rows
+    /// (padded last block), every family.
+    #[test]
+    fn departures_by_level_index_equal_indicator_columns() {
+        use rand::rngs::StdRng;
+        use rand::{RngExt, SeedableRng};
+        let mut rng = StdRng::seed_from_u64(20_261_204);
+        let (n, width, level_counts) = (517, 4, [7usize, 3, 7]);
+        let rows: Vec<f64> =
+            (0..n * width).map(|k| if k % width == 0 { 1.0 } else { 3.0 * (rng.random::<f64>() - 0.5) }).collect();
+        let mut levels: Vec<Vec<u32>> =
+            level_counts.iter().map(|&l| (0..n).map(|_| rng.random_range(0..l as u32)).collect()).collect();
+        // The third run is a varying slope of the design's second column, by the first group's levels.
+        levels[2] = levels[0].clone();
+        let slope_of: Vec<f64> = (0..n).map(|i| rows[i * width + 1]).collect();
+        let weight = |g: usize, i: usize| if g == 2 { slope_of[i] } else { 1.0 };
+        let wide = width + level_counts.iter().sum::<usize>();
+        let mut dense = Vec::with_capacity(n * wide);
+        for i in 0..n {
+            dense.extend_from_slice(&rows[i * width..(i + 1) * width]);
+            for (g, &count) in level_counts.iter().enumerate() {
+                dense.extend((0..count).map(|l| if levels[g][i] as usize == l { weight(g, i) } else { 0.0 }));
+            }
+        }
+        let beta: Vec<f64> = (0..wide).map(|_| rng.random::<f64>() - 0.5).collect();
+        let trials: Vec<f64> = (0..n).map(|_| f64::from(rng.random_range(1..30u32))).collect();
+        let successes: Vec<f64> = trials.iter().map(|&m| (rng.random::<f64>() * (m + 1.0)).floor().min(m)).collect();
+        let yes: Vec<f64> = (0..n).map(|_| f64::from(rng.random::<bool>())).collect();
+        for outcome in [
+            GlmOutcome::Bernoulli { y: yes },
+            GlmOutcome::Binomial { y: successes.clone(), trials },
+            GlmOutcome::Poisson { y: successes },
+        ] {
+            let groups = levels
+                .iter()
+                .zip(level_counts)
+                .enumerate()
+                .map(|(g, (l, count))| GroupIndices {
+                    level_of_row: l.clone(),
+                    levels: count,
+                    weights: (g == 2).then(|| slope_of.clone()),
+                })
+                .collect();
+            let data = GlmData::new(rows.clone(), width, outcome.clone()).with_groups(groups);
+            let mut grad = vec![0.0; wide];
+            let value = data.log_likelihood_and_gradient(&beta, &mut grad);
+            let (want, want_grad) = by_definition(&dense, wide, &outcome, &beta);
+            let (value_scale, gradient_scales) = sum_sizes(&dense, wide, &outcome, &beta);
+            assert!((value - want).abs() <= 1e-12 * value_scale, "{outcome:?}: {value} vs {want}");
+            for (j, (g, w)) in grad.iter().zip(&want_grad).enumerate() {
+                assert!((g - w).abs() <= 1e-12 * gradient_scales[j], "gradient {j}: {g} vs {w}");
+            }
+        }
+    }
+
     /// The AVX2 and AVX-512 builds of the loop must give the portable
     /// build's bits, so a seed gives the same draws on any x86-64
-    /// processor. A 7-column design takes both gradient paths.
+    /// processor. A 7-column design takes both gradient paths; a pooled
+    /// group of 5 levels adds the gather and scatter.
     #[cfg(target_arch = "x86_64")]
     #[test]
     fn wide_registers_give_the_same_bits() {
         let width = 7;
         let rows: Vec<f64> = (0..150 * width).map(|k| ((k * 37 % 101) as f64 / 101.0 - 0.5) * 4.0).collect();
-        let beta = [0.2, -0.7, 0.4, 0.1, -0.3, 0.25, -0.05];
+        let beta = [0.2, -0.7, 0.4, 0.1, -0.3, 0.25, -0.05, 0.3, -0.2, 0.1, 0.05, -0.4];
+        let width = beta.len();
         for outcome in outcomes() {
-            let data = GlmData::new(rows.clone(), width, outcome);
+            let group = GroupIndices { level_of_row: (0..150).map(|i| (i * 7 % 5) as u32).collect(), levels: 5, weights: None };
+            let data = GlmData::new(rows.clone(), 7, outcome).with_groups(vec![group]);
             let mut plain = vec![0.0; width];
             let a = data.evaluate(&beta, &mut plain);
             if std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma") {

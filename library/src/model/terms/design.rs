@@ -32,6 +32,8 @@ pub const SPLINE: &str = "spline";
 pub const DEPARTURE: &str = "departure";
 /// The word after a pooled group's column in its spread's label.
 pub const GROUP_SPREAD: &str = "spread";
+/// The word of a pooled group's intercept–slope correlation label.
+pub const CORRELATION: &str = "correlation";
 
 /// Whether `label` names a spread — the residual `spread` or a pooled
 /// group's `block spread` (also behind a joint model's `node: ` prefix) —
@@ -48,10 +50,21 @@ pub fn group_spread_label(column: &str) -> String {
 impl GroupTerm {
     /// Labels of the group's parameters: its spread, then one departure per
     /// level (`block spread`, `block departure[B1]`, …).
+    ///
+    /// A group with a varying slope of `girth` goes on with the slope's
+    /// spread, its departures and the correlation: `block girth spread`,
+    /// `block girth departure[B1]`, …, `block correlation[intercept, girth]`.
     pub fn labels(&self) -> Vec<String> {
-        std::iter::once(group_spread_label(&self.column))
+        let mut labels: Vec<String> = std::iter::once(group_spread_label(&self.column))
             .chain(self.levels.iter().map(|l| format!("{} {DEPARTURE}[{l}]", self.column)))
-            .collect()
+            .collect();
+        if let Some(slope) = &self.slope {
+            let prefix = format!("{} {}", self.column, slope.column);
+            labels.push(group_spread_label(&prefix));
+            labels.extend(self.levels.iter().map(|l| format!("{prefix} {DEPARTURE}[{l}]")));
+            labels.push(format!("{} {CORRELATION}[intercept, {}]", self.column, slope.column));
+        }
+        labels
     }
 
     /// Labels of the group's unconstrained parameters: `log(block spread)`,
@@ -62,6 +75,32 @@ impl GroupTerm {
     pub fn unconstrained_labels(&self, around_intercept: bool) -> Vec<String> {
         let spread = group_spread_label(&self.column);
         let mut labels = self.labels();
+        if let Some(slope) = &self.slope {
+            // Standard scores of the Cholesky form, or the departures
+            // (around the population's intercept and slope) when centred.
+            let n = self.levels.len();
+            let slope_spread = labels[1 + n].clone();
+            let correlation = labels[2 + 2 * n].clone();
+            let population_slope = slope_label(&slope.column);
+            for label in &mut labels[1..=n] {
+                match self.layout {
+                    GroupLayout::NonCentred => *label = format!("{label} / {spread}"),
+                    GroupLayout::Centred if around_intercept => *label = format!("intercept + {label}"),
+                    GroupLayout::Centred => {}
+                }
+            }
+            for label in &mut labels[2 + n..2 + 2 * n] {
+                match self.layout {
+                    GroupLayout::NonCentred => *label = format!("{label}: {} score", slope.column),
+                    GroupLayout::Centred if around_intercept => *label = format!("{population_slope} + {label}"),
+                    GroupLayout::Centred => {}
+                }
+            }
+            labels[0] = format!("log({spread})");
+            labels[1 + n] = format!("log({slope_spread})");
+            labels[2 + 2 * n] = format!("atanh({correlation})");
+            return labels;
+        }
         labels[0] = format!("log({spread})");
         for label in &mut labels[1..] {
             match self.layout {

@@ -98,6 +98,19 @@ pub struct GroupTerm {
     pub rows_per_level: Vec<usize>,
     pub layout: GroupLayout,
     pub choice: LayoutChoice,
+    /// The numeric predictor whose slope varies with the group
+    /// (`pooled block with girth`), if any.
+    pub slope: Option<VaryingSlope>,
+}
+
+/// The predictor of a group's varying slope: its column and the design
+/// column (a plain slope of the same model) whose values multiply each
+/// level's slope departure, so the departure is on the slope's own scale
+/// (the model's centring included).
+#[derive(Debug, Clone, PartialEq)]
+pub struct VaryingSlope {
+    pub column: String,
+    pub design_column: usize,
 }
 
 impl GroupTerm {
@@ -124,6 +137,7 @@ impl GroupTerm {
             rows_per_level,
             layout: GroupLayout::NonCentred,
             choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0 },
+            slope: None,
         })
     }
 
@@ -172,6 +186,7 @@ impl GroupTerm {
         );
         let why = match &self.choice {
             LayoutChoice::Declared => "as the parameterise line says".to_string(),
+
             LayoutChoice::FromData { median_ratio, rough_spread } => format!(
                 "chosen from the data: the level means suggest a spread of about {} on the link scale, and with \
                  it the median level's rows tell {} times what the population does about its departure; \
@@ -181,14 +196,22 @@ impl GroupTerm {
                 self.column
             ),
         };
+        let what = match &self.slope {
+            None => format!("the departures normal(0, {} spread) with the spread learned", self.column),
+            Some(slope) => format!(
+                "and the slope of {x} departing too: each level's two departures jointly normal around 0 with \
+                 spreads {c} spread and {c} {x} spread and correlation {c} correlation[intercept, {x}], all learned",
+                x = slope.column,
+                c = self.column
+            ),
+        };
         format!(
             "pooled {}: {} levels ({} to {} rows each), each departing from the population by its own amount on \
-             the link scale, the departures normal(0, {} spread) with the spread learned; sampled {} ({why})",
+             the link scale, {what}; sampled {} ({why})",
             self.column,
             self.levels.len(),
             fewest,
             most,
-            self.column,
             self.layout.word()
         )
     }
