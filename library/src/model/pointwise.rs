@@ -28,7 +28,7 @@
 
 use statrs::function::gamma::ln_gamma;
 
-use super::build::{glm_data, intercept_columns, softmax_data, with_departure_columns};
+use super::build::{glm_data, group_indices, intercept_columns, softmax_data, with_departure_columns};
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::family::Family;
@@ -122,7 +122,9 @@ impl Model {
             },
             Likelihood::Glm(glm) => {
                 let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None };
-                Likelihood::Glm(glm_data(&with_departure_columns(&design, &self.groups, &group_rows), &self.family, &outcome))
+                Likelihood::Glm(
+                    glm_data(&design, &self.family, &outcome).with_groups(group_indices(&design, &self.groups, &group_rows)),
+                )
             }
             Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len))),
         };
