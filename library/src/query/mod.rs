@@ -32,6 +32,7 @@ pub mod joint;
 pub mod mechanism;
 pub mod recover;
 pub mod robustness;
+pub mod shrinkage;
 pub mod simulate;
 mod support;
 
@@ -46,5 +47,6 @@ pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, Joint
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
+pub use shrinkage::{shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;
