@@ -449,6 +449,13 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
         ),
         format!("population (a new level, no departure): {} ({} to {})", number(centre), number(low), number(high)),
     ];
+    let mut notes = notes;
+    if !matches!(model.family(), crate::model::Family::Normal) {
+        notes.push(
+            "a level whose rows are all 0 or all at the top (a share of 0 or 1, a mean count of 0) has no finite own value on the link scale; it is shown as if its share were 0.001 or 0.999 (its mean count 0.001)"
+                .into(),
+        );
+    }
     let heading = format!("shrinkage of {group} in {name}");
     let plain = format!("{heading}\n{}\n{}", grid.to_text(), notes.iter().map(|n| format!("• {n}")).collect::<Vec<_>>().join("\n"));
     let html = html_block(&heading, &[grid.to_html(), html_list(&notes)]);
