@@ -21,16 +21,26 @@ def write(name, header, rows):
 def orchard(seed=20261201, n=240):
     """Apple trees on two rootstocks. Rootstock changes trunk girth and,
     beyond girth, fruit yield. Unrecorded soil depth feeds girth and yield
-    (so the direct effect is confounded unless soil is measured)."""
+    (so the direct effect is confounded unless soil is measured).
+
+    The trees stand in eight blocks of unequal size (the small ones are
+    corners of the orchard). Each block shifts yield by its own amount —
+    frost pockets, shelter, irrigation runs — drawn once from
+    normal(0, 2.5 kg), so a pooled model of the blocks has a spread to learn.
+    Blocks come from their own stream, so the other columns are as before."""
     rng = random.Random(seed)
+    block_rng = random.Random(seed + 1)
+    blocks = ["north", "south", "east", "west", "hollow", "ridge", "creek", "gate"]
+    block_weights = [0.22, 0.2, 0.16, 0.14, 0.1, 0.08, 0.06, 0.04]
+    block_shift = {b: block_rng.gauss(0.0, 2.5) for b in blocks}
     rows = []
     for i in range(n):
         rootstock = "standard" if rng.random() < 0.5 else "dwarf"
         soil = rng.gauss(0.0, 1.0)  # not written out: the hidden common cause
         std = 1.0 if rootstock == "standard" else 0.0
         girth = 24.0 + 7.0 * std + 1.5 * soil + rng.gauss(0.0, 3.0)
-        yield_kg = 4.0 + 0.9 * girth + 6.0 * std + 2.0 * soil + rng.gauss(0.0, 4.0)
-        block = rng.choice(["north", "south", "east"])
+        block = block_rng.choices(blocks, weights=block_weights)[0]
+        yield_kg = 4.0 + 0.9 * girth + 6.0 * std + 2.0 * soil + block_shift[block] + rng.gauss(0.0, 4.0)
         rows.append([f"T{i + 1:03d}", block, rootstock, round(girth, 1), round(yield_kg, 1)])
     write("orchard.csv", ["tree", "block", "rootstock", "girth", "yield"], rows)
 

@@ -30,6 +30,7 @@ FIGURES = {
     "contrast.svg": ("orchard.ipynb", "contrast m_total: rootstock standard vs dwarf on outcomes", "<title>contrast", 1),
     "intervention.svg": ("whole-graph.ipynb", "intervene whole: set rootstock standard vs dwarf", "<title>posterior", 0),
     "spline-fit.svg": ("stream.ipynb", "plot spline10 spline", "<title>spline fit", 0),
+    "shrinkage.svg": ("orchard.ipynb", "plot total_rootstock_on_yield shrinkage", "<title>shrinkage", 0),
 }
 
 

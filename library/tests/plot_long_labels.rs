@@ -106,6 +106,12 @@ fn long_figures() -> Vec<(&'static str, String)> {
         RecoveryRow { name: C.into(), truth: 3.0, estimate: 3.4, lower: 3.1, upper: 3.7 },
     ];
     add("recovery", recovery_figure(B, &Quantity::new("Wert des Parameters"), "90% interval", &recovery));
+    let shrinkage = vec![
+        ShrinkageRow { label: A.into(), rows: 40, raw: Some(31.0), mean: 30.6, lower: 29.4, upper: 31.8 },
+        ShrinkageRow { label: B.into(), rows: 3, raw: Some(36.0), mean: 32.5, lower: 29.0, upper: 36.1 },
+        ShrinkageRow { label: C.into(), rows: 12, raw: None, mean: 30.1, lower: 27.0, upper: 33.2 },
+    ];
+    add("shrinkage", shrinkage_figure(C, &Quantity::with_unit(B, "kg"), "90% interval", [30.5, 28.9, 32.0], &shrinkage));
     let ranks: Vec<usize> = (0..300).map(|i| (i * 37) % 100).collect();
     add("calibration", calibration_figure(A, &ranks, 99, 20));
     out

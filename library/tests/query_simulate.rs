@@ -306,7 +306,7 @@ fn mechanism_errors_name_the_line_and_the_fix() {
         .assert_eq(&error(&unknown));
     let mut bare_category = ORCHARD.to_vec();
     bare_category[1] = "girth = normal(28 + 6 * rootstock, 4)";
-    expect_test::expect![[r#"simulate line 3: rootstock is a category, so the mechanism of girth cannot use it as a number; write an indicator such as [rootstock = level]"#]]
+    expect_test::expect!["simulate line 3: rootstock is a category, so the mechanism of girth cannot use it as a number; write an indicator such as [rootstock = level] or departure(rootstock, spread)"]
         .assert_eq(&error(&bare_category));
     let mut level = ORCHARD.to_vec();
     level[1] = "girth = normal(28 + 6 * [rootstock = semi], 4)";

@@ -8,7 +8,7 @@ use crate::plot::{
     calibration_figure, contrast_figure, contrast_grid_figure, graph_figure, implications_figure, lines_figure,
     mixing_figure, posterior_figure, predictive_figure, recovery_figure, spline_figure, BasisPicture,
     DensityArrangement, EdgeMark, GraphPicture, GridContrast, ImplicationRow, LineGroup, NodeMark, ParameterDraws,
-    PlotError, PredictiveKind, Quantity, RecoveryRow, Role,
+    PlotError, PredictiveKind, Quantity, RecoveryRow, Role, shrinkage_figure, ShrinkageRow,
 };
 use crate::query::{Calibration, Contrast, ImplicationsReport, PredictiveSets, Recovery, WatchedContrast};
 use crate::table::{Column, ColumnData, Table};
@@ -335,6 +335,22 @@ fn difference_quantity(table: &Table, outcome: &str, on: &str) -> Quantity {
         (false, false) => format!("difference in mean {outcome}"),
     };
     Quantity { name, unit: if binary { None } else { base.unit } }
+}
+
+/// The shrinkage of a pooled group: for a normal outcome the axis is the
+/// outcome in its unit; on a logit or log link it has none.
+pub fn shrinkage(s: &crate::query::Shrinkage, model: &Model, table: &Table) -> Result<String, PlotError> {
+    let unit = match model.family() {
+        Family::Normal => quantity(table, model.outcome_name()).unit,
+        _ => None,
+    };
+    let value = Quantity { name: format!("{}, averaged over a level's rows", s.scale), unit };
+    let rows: Vec<ShrinkageRow> = s
+        .levels
+        .iter()
+        .map(|l| ShrinkageRow { label: l.level.clone(), rows: l.rows, raw: l.raw, mean: l.mean, lower: l.lower, upper: l.upper })
+        .collect();
+    shrinkage_figure(&format!("{} levels of {}", s.model, s.group), &value, &interval_label(s.mass), s.population, &rows)
 }
 
 /// A contrast: the density of its per-draw differences with both sides of

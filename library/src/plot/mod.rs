@@ -29,6 +29,7 @@ pub mod palette;
 mod posterior;
 mod recovery;
 mod robustness;
+mod shrinkage;
 mod trends;
 
 pub use checks::{
@@ -40,6 +41,7 @@ pub use graph::{
 };
 pub use posterior::{contrast_figure, posterior_figure, DensityArrangement, ParameterDraws};
 pub use robustness::{robustness_figure, RobustnessPicture};
+pub use shrinkage::{shrinkage_figure, ShrinkageRow};
 pub use recovery::{calibration_figure, recovery_figure, RecoveryRow};
 pub use trends::{
     contrast_grid_figure, lines_figure, spline_figure, BasisPicture, GridContrast, LineGroup,

@@ -11,7 +11,12 @@
 //! `normal(mean, sd)`, `bernoulli(p)` or `bernoulli(logit = η)`,
 //! `poisson(rate)` or `poisson(log = η)`. Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
-//! `[c = level]` (1 when category c is at that level, else 0).
+//! `[c = level]` (1 when category c is at that level, else 0), and
+//! `departure(c, spread)`: clustered data. Each level of category c gets its
+//! own departure, drawn once per simulation from `normal(0, spread)` (the
+//! spread a positive number), and a row takes the departure of its level —
+//! what a pooled group (`pooled c`) of a model assumes. A node's mechanism
+//! may name each category in at most one `departure(…)`.
 //!
 //! Parsing knows nothing of the graph; [`super::simulate`] checks the names.
 
@@ -27,9 +32,12 @@ pub const POISSON: &str = "poisson";
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
 pub const LOG: &str = "log";
-/// The functions of a mechanism expression: `log(…)`, `exp(…)`.
-pub const FUNCTIONS: &[&str] = &[LOG, EXP];
+/// The functions of a mechanism expression: `log(…)`, `exp(…)`,
+/// `departure(category, spread)`.
+pub const FUNCTIONS: &[&str] = &[LOG, EXP, DEPARTURE];
 const EXP: &str = "exp";
+/// The word of a per-level departure drawn from a stated spread.
+pub const DEPARTURE: &str = "departure";
 /// The deepest an expression may nest: parentheses, signs, functions and
 /// every operator of a chain each add one level. Evaluation recurses this
 /// deep, so the limit keeps a hostile line from overflowing the stack.
@@ -50,13 +58,28 @@ pub enum Expr {
     Divide(Box<Expr>, Box<Expr>),
     Log(Box<Expr>),
     Exp(Box<Expr>),
+    /// `departure(group, spread)`: the departure of the row's level of
+    /// category `group`, the levels' departures drawn from `normal(0, spread)`.
+    Departure { group: String, spread: f64 },
+}
+
+/// How an expression reads a node.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Use {
+    /// Its value, as a number.
+    Number,
+    /// Whether a category is at this level (`[c = level]`).
+    Level(String),
+    /// A category's levels, each with its own departure (`departure(c, …)`).
+    Group,
 }
 
 impl Expr {
-    /// Evaluate with `value(name)` for numeric nodes and `is_level(name,
-    /// level)` for indicators.
-    pub fn eval(&self, value: &dyn Fn(&str) -> f64, is_level: &dyn Fn(&str, &str) -> bool) -> f64 {
-        let e = |x: &Expr| x.eval(value, is_level);
+    /// Evaluate with `value(name)` for numeric nodes, `is_level(name,
+    /// level)` for indicators and `departure(group)` for the row's departure
+    /// in a group.
+    pub fn eval(&self, value: &dyn Fn(&str) -> f64, is_level: &dyn Fn(&str, &str) -> bool, departure: &dyn Fn(&str) -> f64) -> f64 {
+        let e = |x: &Expr| x.eval(value, is_level, departure);
         match self {
             Expr::Number(x) => *x,
             Expr::Name(n) => value(n),
@@ -68,22 +91,37 @@ impl Expr {
             Expr::Divide(a, b) => e(a) / e(b),
             Expr::Log(a) => e(a).ln(),
             Expr::Exp(a) => e(a).exp(),
+            Expr::Departure { group, .. } => departure(group),
         }
     }
 
-    /// Every node the expression reads, as `(name, Some(level))` for an
-    /// indicator and `(name, None)` for a numeric use.
-    pub fn uses(&self) -> Vec<(String, Option<String>)> {
+    /// Every node the expression reads, and how.
+    pub fn uses(&self) -> Vec<(String, Use)> {
         let mut out = Vec::new();
         self.collect_uses(&mut out);
         out
     }
 
-    fn collect_uses(&self, out: &mut Vec<(String, Option<String>)>) {
+    /// Every `departure(group, spread)` of the expression, in reading order.
+    pub fn departures(&self) -> Vec<(String, f64)> {
+        match self {
+            Expr::Departure { group, spread } => vec![(group.clone(), *spread)],
+            Expr::Number(_) | Expr::Name(_) | Expr::Indicator { .. } => Vec::new(),
+            Expr::Negate(a) | Expr::Log(a) | Expr::Exp(a) => a.departures(),
+            Expr::Add(a, b) | Expr::Subtract(a, b) | Expr::Multiply(a, b) | Expr::Divide(a, b) => {
+                let mut out = a.departures();
+                out.extend(b.departures());
+                out
+            }
+        }
+    }
+
+    fn collect_uses(&self, out: &mut Vec<(String, Use)>) {
         match self {
             Expr::Number(_) => {}
-            Expr::Name(n) => out.push((n.clone(), None)),
-            Expr::Indicator { name, level } => out.push((name.clone(), Some(level.clone()))),
+            Expr::Name(n) => out.push((n.clone(), Use::Number)),
+            Expr::Indicator { name, level } => out.push((name.clone(), Use::Level(level.clone()))),
+            Expr::Departure { group, .. } => out.push((group.clone(), Use::Group)),
             Expr::Negate(a) | Expr::Log(a) | Expr::Exp(a) => a.collect_uses(out),
             Expr::Add(a, b) | Expr::Subtract(a, b) | Expr::Multiply(a, b) | Expr::Divide(a, b) => {
                 a.collect_uses(out);
@@ -106,8 +144,30 @@ pub enum Mechanism {
 }
 
 impl Mechanism {
+    /// Every `departure(group, spread)` the mechanism draws, in reading order.
+    pub fn departures(&self) -> Vec<(String, f64)> {
+        match self {
+            Mechanism::Category { .. } => Vec::new(),
+            Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
+            Mechanism::Bernoulli { p, .. } => p.departures(),
+            Mechanism::Poisson { rate, .. } => rate.departures(),
+        }
+    }
+
+    /// The `departure(group, spread)`s written in the linear predictor on the
+    /// link scale (the mean of a normal, `logit =` of a bernoulli, `log =` of
+    /// a poisson): those a pooled group of a model of the node stands for.
+    pub fn link_departures(&self) -> Vec<(String, f64)> {
+        match self {
+            Mechanism::Normal { mean, .. } => mean.departures(),
+            Mechanism::Bernoulli { p, logit: true } => p.departures(),
+            Mechanism::Poisson { rate, log: true } => rate.departures(),
+            _ => Vec::new(),
+        }
+    }
+
     /// Every node the mechanism reads.
-    pub fn uses(&self) -> Vec<(String, Option<String>)> {
+    pub fn uses(&self) -> Vec<(String, Use)> {
         match self {
             Mechanism::Category { .. } => Vec::new(),
             Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
@@ -171,6 +231,12 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ))
         }
     };
+    let groups = mechanism.departures();
+    if let Some((group, _)) = groups.iter().enumerate().find(|(i, (g, _))| groups[..*i].iter().any(|(h, _)| h == g)).map(|(_, d)| d) {
+        return Err(format!(
+            "the mechanism of {name} names departure({group}, …) twice; each level of {group} has one departure, so write it once"
+        ));
+    }
     Ok(Some((name.to_string(), mechanism)))
 }
 
@@ -357,6 +423,10 @@ impl Parser<'_> {
                 let word = self.word();
                 self.skip_space();
                 match (word.as_str(), self.peek()) {
+                    (DEPARTURE, Some('(')) => {
+                        self.at += 1;
+                        Ok((self.departure()?, 1))
+                    }
                     (LOG | EXP, Some('(')) => {
                         self.at += 1;
                         let (inner, depth) = self.sum()?;
@@ -401,6 +471,31 @@ impl Parser<'_> {
         }
         let text: String = self.chars[start..self.at].iter().map(|&(_, c)| c).collect();
         text.parse::<f64>().map(Expr::Number).map_err(|_| format!("`{text}` is not a number"))
+    }
+
+    /// The inside of `departure(group, spread)` after its `(`, up to and
+    /// including the `)`.
+    fn departure(&mut self) -> Result<Expr, String> {
+        let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8)";
+        let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
+        let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
+        let inside = &self.text[start..start + close];
+        let (group, spread) = inside.split_once(',').ok_or_else(|| format!("`departure({inside})` needs the form {form}"))?;
+        let group = group.trim();
+        if !is_name(group) {
+            return Err(format!("`{group}` in `departure({inside})` is not a node name; write {form}"));
+        }
+        let spread: f64 = spread
+            .trim()
+            .parse()
+            .ok()
+            .filter(|s: &f64| s.is_finite() && *s > 0.0)
+            .ok_or_else(|| format!("the spread `{}` in `departure({inside})` must be a positive number; write {form}", spread.trim()))?;
+        let end = start + close + 1;
+        while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
+            self.at += 1;
+        }
+        Ok(Expr::Departure { group: group.to_string(), spread })
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

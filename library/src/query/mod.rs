@@ -36,6 +36,7 @@ pub mod left_out;
 pub mod mechanism;
 pub mod recover;
 pub mod robustness;
+pub mod shrinkage;
 pub mod simulate;
 mod support;
 
@@ -51,5 +52,6 @@ pub use left_out::{score_predictions, HardRow, ModelScore, PredictiveScores};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
+pub use shrinkage::{shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;

@@ -9,6 +9,11 @@
 //! a constant sd of a normal mechanism is the true spread. A hidden cause,
 //! a missing parent or a non-linear term leaves a residual, and the check
 //! says the coefficients have no single true value instead of guessing.
+//!
+//! A pooled group `pooled c` has a truth when the outcome's mechanism draws
+//! `departure(c, spread)`: the stated spread is the group's true spread, the
+//! departures the simulation drew are the levels' true departures, and they
+//! are taken out of the link scale before the coefficients are solved for.
 
 use std::sync::atomic::AtomicBool;
 
@@ -113,7 +118,7 @@ pub fn recover_fitted(
 }
 
 /// The true value of each parameter (in parameter order), or `None` with a
-/// note when the mechanism is not in the model's span.
+/// note when the mechanism is not of the model's family.
 fn true_parameters(
     model: &Model,
     simulation: &Simulation,
@@ -121,14 +126,6 @@ fn true_parameters(
     notes: &mut Vec<String>,
 ) -> Option<Vec<Option<f64>>> {
     let outcome = model.outcome_name();
-    if !model.pooled_groups().is_empty() {
-        notes.push(format!(
-            "model {} has pooled groups, whose departures a simulation does not record, so no parameter has a \
-             true value to compare; the effects below still have one",
-            model.name()
-        ));
-        return None;
-    }
     let matches = matches!(
         (simulation.mechanism(outcome), model.family()),
         (Some(Mechanism::Normal { .. }), Family::Normal)
@@ -139,10 +136,69 @@ fn true_parameters(
         notes.push(format!("the mechanism of {outcome} is not of the model's family, so no parameter has a true value"));
         return None;
     }
-    let (eta, spread) = simulation.link_scale_truth(outcome, generated)?;
+    let (mut eta, spread) = simulation.link_scale_truth(outcome, generated)?;
+    let on_link = simulation.mechanism(outcome).map(Mechanism::link_departures).unwrap_or_default();
+    let all_draws = simulation.group_draws(outcome, generated);
+    let draws: Vec<_> = all_draws.iter().filter(|d| on_link.iter().any(|(g, _)| *g == d.group)).collect();
+    if draws.len() < all_draws.len() {
+        notes.push(format!(
+            "the mechanism of {outcome} draws a departure outside its linear predictor on the link scale (in an sd, \
+             a probability or a rate), which no pooled group stands for"
+        ));
+    }
+    let mut group_truths = Vec::new();
+    for group in model.pooled_groups() {
+        let Some(draw) = draws.iter().find(|d| d.group == group.column) else {
+            notes.push(format!(
+                "the mechanism of {outcome} draws no departure({}, …), so the levels of {} share one mean there and \
+                 pooled {} has no true spread or departures to compare (its spread should come out near 0)",
+                group.column, group.column, group.column
+            ));
+            group_truths.extend(std::iter::repeat_n(None, 1 + group.levels.len()));
+            continue;
+        };
+        for (e, d) in eta.iter_mut().zip(simulation.departure_in_rows(draw, generated)) {
+            *e -= d;
+        }
+        group_truths.push(Some(draw.spread));
+        for level in &group.levels {
+            group_truths.push(draw.levels.iter().position(|l| l == level).map(|i| draw.departures[i]));
+        }
+        let k = draw.departures.len() as f64;
+        let mean = draw.departures.iter().sum::<f64>() / k.max(1.0);
+        let sd = (draw.departures.iter().map(|d| (d - mean).powi(2)).sum::<f64>() / (k - 1.0).max(1.0)).sqrt();
+        notes.push(format!(
+            "{} spread: the true value is the stated {}; the {} departures the simulation drew have a sample sd of {} \
+             (their own mean {}, which the intercept takes up)",
+            group.column,
+            super::support::short(draw.spread),
+            draw.departures.len(),
+            super::support::short(sd),
+            super::support::short(mean)
+        ));
+    }
+    for draw in draws.iter().filter(|d| !model.pooled_groups().iter().any(|g| g.column == d.group)) {
+        notes.push(format!(
+            "the mechanism of {outcome} draws departure({}, {}), which model {} does not pool",
+            draw.group,
+            super::support::short(draw.spread),
+            model.name()
+        ));
+    }
+    let mut truth = fixed_truths(model, eta, spread, notes);
+    truth.extend(group_truths);
+    Some(truth)
+}
+
+/// The true coefficients (and spread) from the link scale of the outcome's
+/// mechanism without pooled departures, each `None` when that is not in
+/// the span of the model's design.
+fn fixed_truths(model: &Model, eta: Vec<f64>, spread: Option<f64>, notes: &mut Vec<String>) -> Vec<Option<f64>> {
+    let outcome = model.outcome_name();
+    let unknown = || vec![None; model.first_group_index()];
     let x = model.design_matrix();
     let y = DVector::from_vec(eta);
-    let beta = x.clone().svd(true, true).solve(&y, 1e-12).ok()?;
+    let Ok(beta) = x.clone().svd(true, true).solve(&y, 1e-12) else { return unknown() };
     let residual = (x * &beta - &y).norm() / (y.len() as f64).sqrt();
     let mean = y.mean();
     let scale = (y.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / y.len() as f64).sqrt().max(1.0);
@@ -151,7 +207,7 @@ fn true_parameters(
             "the mechanism of {outcome} is not a linear combination of the model's terms (a hidden cause, a missing \
              parent or a non-linear term), so its coefficients have no single true value"
         ));
-        return None;
+        return unknown();
     }
     let mut truth: Vec<Option<f64>> = beta.iter().map(|&b| Some(b)).collect();
     if model.has_spread() {
@@ -160,5 +216,5 @@ fn true_parameters(
         }
         truth.push(spread);
     }
-    Some(truth)
+    truth
 }

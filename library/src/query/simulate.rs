@@ -8,6 +8,12 @@
 //! Hidden nodes are generated but not written to the table. The same
 //! mechanisms give the true effect of an intervention by simulating it
 //! directly ([`Simulation::true_effect`]).
+//!
+//! A `departure(c, spread)` in a mechanism draws one departure per level of
+//! category c from `normal(0, spread)`, once per simulation and from the
+//! node's own stream, before its rows; they are kept with the generated
+//! values ([`GroupDraw`]) so that `recover` can set them beside a pooled
+//! model's departures, and an intervention elsewhere leaves them as they were.
 
 use std::sync::atomic::AtomicBool;
 
@@ -21,7 +27,7 @@ use crate::model::family::logistic;
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::QueryError;
-use super::mechanism::{parse_mechanism_line, Mechanism};
+use super::mechanism::{parse_mechanism_line, Mechanism, Use};
 use super::support::{short, stream_seed};
 
 /// Rows generated between two reads of the cancel flag.
@@ -72,9 +78,24 @@ impl NodeValues {
     }
 }
 
+/// The departures one node's mechanism drew for the levels of a category.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct GroupDraw {
+    /// The category.
+    pub(crate) group: String,
+    /// Its levels, in declared order.
+    pub(crate) levels: Vec<String>,
+    /// The stated spread.
+    pub(crate) spread: f64,
+    /// One departure per level.
+    pub(crate) departures: Vec<f64>,
+}
+
 /// Every node's generated values, in the simulation's node order.
 pub(crate) struct Generated {
     pub(crate) values: Vec<NodeValues>,
+    /// Per node, the departures its mechanism drew.
+    pub(crate) departures: Vec<Vec<GroupDraw>>,
 }
 
 /// A value an intervention sets a node to.
@@ -222,7 +243,8 @@ impl Simulation {
             NodeValues::Binary(x) => x.len(),
             NodeValues::Category(x) => x.len(),
         });
-        let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, generated, i);
+        let own = &generated.departures[k];
+        let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, generated, own, i);
         match &self.nodes[k].mechanism {
             Mechanism::Category { .. } => None,
             Mechanism::Normal { mean, sd } => {
@@ -245,7 +267,21 @@ impl Simulation {
         })
     }
 
-    fn eval_at(&self, expr: &super::mechanism::Expr, generated: &Generated, i: usize) -> f64 {
+    /// The departures node `node`'s mechanism drew, when it drew any.
+    pub(crate) fn group_draws<'g>(&self, node: &str, generated: &'g Generated) -> &'g [GroupDraw] {
+        self.nodes.iter().position(|m| m.node == node).and_then(|k| generated.departures.get(k)).map_or(&[], Vec::as_slice)
+    }
+
+    /// Each generated row's departure in `draw` (that of its level of the category).
+    pub(crate) fn departure_in_rows(&self, draw: &GroupDraw, generated: &Generated) -> Vec<f64> {
+        let codes = self.nodes.iter().position(|m| m.node == draw.group).and_then(|k| match &generated.values[k] {
+            NodeValues::Category(codes) => Some(codes),
+            _ => None,
+        });
+        codes.map_or_else(Vec::new, |codes| codes.iter().map(|&c| draw.departures.get(c as usize).copied().unwrap_or(f64::NAN)).collect())
+    }
+
+    fn eval_at(&self, expr: &super::mechanism::Expr, generated: &Generated, own: &[GroupDraw], i: usize) -> f64 {
         let position = |name: &str| self.nodes.iter().position(|m| m.node == name);
         let value = |name: &str| position(name).map_or(f64::NAN, |k| generated.values[k].real_at(i));
         let is_level = |name: &str, level: &str| {
@@ -254,32 +290,62 @@ impl Simulation {
                 _ => false,
             })
         };
-        expr.eval(&value, &is_level)
+        let departure = |group: &str| {
+            let level = position(group).and_then(|k| match &generated.values[k] {
+                NodeValues::Category(codes) => Some(codes[i] as usize),
+                _ => None,
+            });
+            own.iter().find(|d| d.group == group).zip(level).and_then(|(d, l)| d.departures.get(l).copied()).unwrap_or(f64::NAN)
+        };
+        expr.eval(&value, &is_level, &departure)
     }
 
     /// Generate `rows` rows, optionally with node `forced.0` set to a value.
     fn generate(&self, rows: usize, seed: u64, forced: Option<(usize, Forced)>, cancel: &AtomicBool) -> Result<Generated, QueryError> {
-        let mut generated = Generated { values: Vec::with_capacity(self.nodes.len()) };
+        let mut generated = Generated { values: Vec::with_capacity(self.nodes.len()), departures: Vec::with_capacity(self.nodes.len()) };
         for (k, m) in self.nodes.iter().enumerate() {
             QueryError::stop_if(cancel, &format!("simulate {}", self.name))?;
+            let own = self.draw_departures(k, seed);
             let values = match &forced {
                 Some((f, value)) if *f == k => forced_values(&m.mechanism, value, rows),
-                _ => self.draw_node(k, rows, seed, &generated, cancel)?,
+                _ => self.draw_node(k, rows, seed, &generated, &own, cancel)?,
             };
             generated.values.push(values);
+            generated.departures.push(own);
         }
         Ok(generated)
     }
 
+    /// The departures of node `k`'s mechanism: for its `g`-th
+    /// `departure(c, spread)`, one `normal(0, spread)` draw per level of c,
+    /// in declared order, from a stream of their own.
+    fn draw_departures(&self, k: usize, seed: u64) -> Vec<GroupDraw> {
+        let m = &self.nodes[k];
+        m.mechanism
+            .departures()
+            .into_iter()
+            .enumerate()
+            .map(|(g, (group, spread))| {
+                let levels = match self.mechanism(&group) {
+                    Some(Mechanism::Category { levels, .. }) => levels.clone(),
+                    _ => Vec::new(),
+                };
+                let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
+                let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
+                GroupDraw { group, levels, spread, departures }
+            })
+            .collect()
+    }
+
     /// Draw node `k` for every row from its own stream.
-    fn draw_node(&self, k: usize, rows: usize, seed: u64, so_far: &Generated, cancel: &AtomicBool) -> Result<NodeValues, QueryError> {
+    fn draw_node(&self, k: usize, rows: usize, seed: u64, so_far: &Generated, own: &[GroupDraw], cancel: &AtomicBool) -> Result<NodeValues, QueryError> {
         let m = &self.nodes[k];
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 2));
         let bad = |i: usize, what: String| QueryError::Mechanism {
             line: m.line,
             message: format!("in simulated row {}, {what}; change the mechanism of {}", i + 1, m.node),
         };
-        let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, so_far, i);
+        let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, so_far, own, i);
         let what = format!("simulate {}", self.name);
         let stop = |i: usize| if i % CANCEL_EVERY == 0 { QueryError::stop_if(cancel, &what) } else { Ok(()) };
         Ok(match &m.mechanism {
@@ -345,7 +411,8 @@ fn forced_values(mechanism: &Mechanism, value: &Forced, rows: usize) -> NodeValu
 }
 
 /// A mechanism may read only its node's parents: numeric parents by name,
-/// category parents through indicators of their declared levels.
+/// category parents through indicators of their declared levels or their
+/// departures.
 fn check_uses(graph: &Graph, nodes: &[NodeMechanism], m: &NodeMechanism) -> Result<(), QueryError> {
     let at = |message: String| QueryError::Mechanism { line: m.line, message };
     let parents = graph.parents(&m.node)?;
@@ -361,14 +428,17 @@ fn check_uses(graph: &Graph, nodes: &[NodeMechanism], m: &NodeMechanism) -> Resu
         }
         let Some(parent) = nodes.iter().find(|n| n.node == name) else { continue };
         match (&parent.mechanism, level) {
-            (Mechanism::Category { levels, .. }, Some(level)) if !levels.contains(&level) => {
+            (Mechanism::Category { levels, .. }, Use::Level(level)) if !levels.contains(&level) => {
                 return Err(at(format!("{name} has no level `{level}` (its levels: {}); use one of them", levels.join(", "))))
             }
-            (Mechanism::Category { .. }, None) => {
-                return Err(at(format!("{name} is a category, so the mechanism of {} cannot use it as a number; write an indicator such as [{name} = level]", m.node)))
+            (Mechanism::Category { .. }, Use::Number) => {
+                return Err(at(format!("{name} is a category, so the mechanism of {} cannot use it as a number; write an indicator such as [{name} = level] or departure({name}, spread)", m.node)))
             }
-            (other, Some(_)) if !matches!(other, Mechanism::Category { .. }) => {
+            (other, Use::Level(_)) if !matches!(other, Mechanism::Category { .. }) => {
                 return Err(at(format!("[{name} = …] needs a category, but {name} is {other}; use {name} as a number", )))
+            }
+            (other, Use::Group) if !matches!(other, Mechanism::Category { .. }) => {
+                return Err(at(format!("departure({name}, …) needs a category whose levels each get a departure, but {name} is {other}; use {name} as a number")))
             }
             _ => {}
         }

@@ -405,6 +405,64 @@ pub(crate) fn export(session: &mut Session, st: &Statement) -> Result<Vec<Displa
     Ok(vec![Display { plain: text.clone(), html: Some(html_block(&text, &[])), svg: None, json: Some(json) }])
 }
 
+/// `plot NAME shrinkage [of GROUP]`: each level's own rows against its
+/// pooled estimate, the figure with a short table and the numbers as JSON.
+fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[String]) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let fit = require_fit(session, name, line)?;
+    let model = &session.models[name];
+    let pooled: Vec<&str> = model.pooled_groups().iter().map(|g| g.column.as_str()).collect();
+    let group = match (chosen, pooled.as_slice()) {
+        ([], []) => {
+            return Err(CellError::at(
+                line,
+                format!("model {name} has no pooled group to show; add `pooled COLUMN` to its outcome line (such as `pooled block`) and fit it again"),
+            ))
+        }
+        ([], [only]) => only.to_string(),
+        ([], _) => {
+            return Err(CellError::at(line, format!("model {name} pools {}; name one: `plot {name} shrinkage of {}`", pooled.join(" and "), pooled[0])))
+        }
+        ([one], _) => one.trim().to_string(),
+        _ => return Err(CellError::at(line, format!("the shrinkage figure shows one pooled group at a time; write `plot {name} shrinkage of GROUP`"))),
+    };
+    let mass = session.interval_mass(None);
+    let result = crate::query::shrinkage(model, &fit.draws, &group, mass).map_err(|e| CellError::at(line, e.to_string()))?;
+    let table = session.require_table(model.table_name(), line)?;
+    let svg = figures::shrinkage(&result, model, table).map_err(|e| CellError::at(line, e.to_string()))?;
+    let pooled_head = format!("pooled {}", fit_summary::estimate_head(mass));
+    let mut grid = Grid::new(&["level", "rows", "own rows' mean", &pooled_head]).numeric_columns(&[1, 2]);
+    let number = crate::cells::format::num;
+    for l in &result.levels {
+        grid.push(vec![
+            l.level.clone(),
+            l.rows.to_string(),
+            l.raw.map_or_else(|| "—".to_string(), number),
+            format!("{} ({} to {})", number(l.mean), number(l.lower), number(l.upper)),
+        ]);
+    }
+    let [centre, low, high] = result.population;
+    let notes = vec![
+        format!(
+            "on the scale of {}: each level's own rows' mean beside the model's fitted value averaged over the same rows; pooling pulls a level with few rows towards the population",
+            result.scale
+        ),
+        format!("population (a new level, no departure): {} ({} to {})", number(centre), number(low), number(high)),
+    ];
+    let mut notes = notes;
+    if !matches!(model.family(), crate::model::Family::Normal) {
+        notes.push(
+            "a level whose rows are all 0 or all at the top (a share of 0 or 1, a mean count of 0) has no finite own value on the link scale; it is shown as if its share were 0.001 or 0.999 (its mean count 0.001)"
+                .into(),
+        );
+    }
+    let heading = format!("shrinkage of {group} in {name}");
+    let plain = format!("{heading}\n{}\n{}", grid.to_text(), notes.iter().map(|n| format!("• {n}")).collect::<Vec<_>>().join("\n"));
+    let html = html_block(&heading, &[grid.to_html(), html_list(&notes)]);
+    let json = serde_json::to_value(&result).unwrap_or(serde_json::Value::Null);
+    Ok(vec![Display { plain, html: Some(html), svg: Some(svg), json: Some(json) }])
+}
+
 pub(crate) fn require_fit<'s>(session: &'s Session, name: &str, line: usize) -> Result<&'s Fit, CellError> {
     if !session.models.contains_key(name) {
         return Err(CellError::at(line, format!("there is no model named {name}{}", suggest(name, session.models.keys()))));
@@ -421,7 +479,7 @@ fn parameter_named(typed: &str, names: &[String]) -> Option<String> {
 }
 
 /// `plot NAME estimates|mixing [of A, B]`, `plot NAME lines [over X]`,
-/// `plot NAME spline|prior|check`.
+/// `plot NAME spline|prior|check`, `plot NAME shrinkage [of GROUP]`.
 pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let ([name, kind], rest) = match PLOT.read_n(st.head()) {
         Ok(read) => read,
@@ -465,6 +523,9 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         .map_err(|e| CellError::at(st.header.number, e))?;
         let text = format!("{kind} figure of {name}: {note}");
         return Ok(vec![Display { plain: text, html: None, svg: Some(svg), json: None }]);
+    }
+    if kind == "shrinkage" {
+        return shrinkage_plot(session, st, name, &chosen);
     }
     let chosen = chosen
         .iter()

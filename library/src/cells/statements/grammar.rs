@@ -157,8 +157,9 @@ const EFFECT_KINDS: &[&str] = &["total", "direct"];
 /// The figures of `plot NAME KIND`, named by what they let a scientist see:
 /// the parameters' `estimates`, whether the chains `mixing` agree, the
 /// fitted `lines` over the data, the `spline` curve with its weights, and
-/// outcome sets simulated from the `prior` or compared in a `check`.
-pub const PLOT_KINDS: &[&str] = &["estimates", "mixing", "lines", "spline", "prior", "check"];
+/// outcome sets simulated from the `prior` or compared in a `check`, and how
+/// far partial pooling pulled each level of a pooled group (`shrinkage`).
+pub const PLOT_KINDS: &[&str] = &["estimates", "mixing", "lines", "spline", "prior", "check", "shrinkage"];
 /// Figure words of earlier versions, each with the word that replaced it;
 /// `plot` refuses them with an error naming the new word.
 pub const RETIRED_PLOT_KINDS: &[(&str, &str)] =
@@ -252,7 +253,7 @@ pub const PLOT: Form = Form {
     slots: &[Word("plot"), Value, Choice(PLOT_KINDS)],
     options: &[&[Word("of"), Value], &[Word("over"), Value]],
     method: false,
-    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME spline|prior|check",
+    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME spline|prior|check  or  plot NAME shrinkage [of GROUP]",
 };
 pub const SAVE: Form = Form {
     slots: &[Word("save"), Word("figure"), Word("to"), Quoted],

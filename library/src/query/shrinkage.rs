@@ -1,0 +1,140 @@
+//! Shrinkage of a pooled group: how far the model pulls each level towards
+//! the population, the question a scientist asks of partial pooling.
+//!
+//! For every level of the group, two numbers on the link scale, both about
+//! the same rows: the *raw* estimate — the level's own rows' mean outcome
+//! taken to the link scale (the mean, the log-odds of the share of
+//! successes, the log of the mean count), what a model fitting each level
+//! alone would put at its rows' average — and the *pooled* estimate, the
+//! posterior of the fitted linear predictor averaged over the level's rows
+//! (fixed part plus the level's departure), summarised last. The
+//! population's line is the fitted linear predictor averaged over every
+//! fitted row with no departure (a new level's centre). A level with few
+//! rows moves far from its raw value towards the population; one with many
+//! stays close.
+
+use serde::Serialize;
+
+use crate::draws::Draws;
+use crate::model::{Family, Model};
+
+use super::error::QueryError;
+use super::support::{interval_words, ContrastSummary};
+
+/// One level of a pooled group.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LevelShrinkage {
+    pub level: String,
+    /// Fitted rows of the level.
+    pub rows: usize,
+    /// The rows' own mean outcome on the link scale (`None` without rows).
+    pub raw: Option<f64>,
+    /// Posterior mean and interval of the fitted linear predictor averaged over its rows.
+    pub mean: f64,
+    pub lower: f64,
+    pub upper: f64,
+}
+
+/// The shrinkage of one pooled group of a fitted model.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Shrinkage {
+    pub model: String,
+    pub group: String,
+    /// What the numbers are, in words (`yield`, `log-odds of recovered`).
+    pub scale: String,
+    /// The interval's mass and its words.
+    pub mass: f64,
+    pub interval: String,
+    /// The population's line: mean and interval of the fitted linear
+    /// predictor over every fitted row without departures.
+    pub population: [f64; 3],
+    pub levels: Vec<LevelShrinkage>,
+}
+
+/// The shrinkage of pooled group `group` (its column) of `model` from its `draws`.
+pub fn shrinkage(model: &Model, draws: &Draws, group: &str, mass: f64) -> Result<Shrinkage, QueryError> {
+    let groups = model.pooled_groups();
+    let Some(g) = groups.iter().position(|t| t.column == group) else {
+        let pooled: Vec<&str> = groups.iter().map(|t| t.column.as_str()).collect();
+        return Err(QueryError::request(if pooled.is_empty() {
+            format!("model {} has no pooled group; add `pooled {group}` to its outcome line and fit it again", model.name())
+        } else {
+            format!("model {} does not pool {group}; its pooled groups: {}", model.name(), pooled.join(", "))
+        }));
+    };
+    let term = &groups[g];
+    let rows = model.fitted_rows();
+    let level_of: &[Option<usize>] = &rows.groups[g];
+    let mut no_departures = rows.clone();
+    for levels in &mut no_departures.groups {
+        levels.iter_mut().for_each(|l| *l = None);
+    }
+    let names = model.parameter_names();
+    let columns = names.iter().map(|n| draws.require(n)).collect::<Result<Vec<_>, _>>()?;
+    let k = term.levels.len();
+    let mut per_level: Vec<Vec<f64>> = vec![Vec::with_capacity(draws.len()); k];
+    let mut population = Vec::with_capacity(draws.len());
+    let mut params = vec![0.0; names.len()];
+    for s in 0..draws.len() {
+        for (p, column) in params.iter_mut().zip(&columns) {
+            *p = column[s];
+        }
+        let fitted = model.predict_mean(&params, &rows)?.linear;
+        let centre = model.predict_mean(&params, &no_departures)?.linear;
+        population.push(centre.iter().sum::<f64>() / centre.len().max(1) as f64);
+        let mut sums = vec![0.0; k];
+        for (eta, level) in fitted.iter().zip(level_of) {
+            if let Some(l) = level {
+                sums[*l] += eta;
+            }
+        }
+        for (l, sum) in sums.iter().enumerate() {
+            if term.rows_per_level[l] > 0 {
+                per_level[l].push(sum / term.rows_per_level[l] as f64);
+            }
+        }
+    }
+    let raw = raw_level_means(model, level_of, k, rows.trials.as_deref());
+    let mut levels = Vec::with_capacity(k);
+    for (l, label) in term.levels.iter().enumerate() {
+        if per_level[l].is_empty() {
+            continue;
+        }
+        let s = ContrastSummary::of(&per_level[l], mass)?;
+        levels.push(LevelShrinkage { level: label.clone(), rows: term.rows_per_level[l], raw: raw[l], mean: s.mean, lower: s.lower, upper: s.upper });
+    }
+    let p = ContrastSummary::of(&population, mass)?;
+    Ok(Shrinkage {
+        model: model.name().to_string(),
+        group: group.to_string(),
+        scale: scale_words(model),
+        mass,
+        interval: interval_words(mass),
+        population: [p.mean, p.lower, p.upper],
+        levels,
+    })
+}
+
+/// Each level's own rows' mean outcome, on the link scale (successes over
+/// trials for binomial); the link's clamp keeps a level with no successes finite.
+fn raw_level_means(model: &Model, level_of: &[Option<usize>], k: usize, trials: Option<&[u64]>) -> Vec<Option<f64>> {
+    let y = model.outcome_values();
+    let (mut sum, mut count) = (vec![0.0; k], vec![0.0; k]);
+    for (i, level) in level_of.iter().enumerate() {
+        if let Some(l) = level {
+            sum[*l] += y[i];
+            count[*l] += trials.map_or(1.0, |t| t[i] as f64);
+        }
+    }
+    (0..k).map(|l| (count[l] > 0.0).then(|| model.family().link(sum[l] / count[l]))).collect()
+}
+
+/// The words for the link scale of `model`'s outcome.
+fn scale_words(model: &Model) -> String {
+    let outcome = model.outcome_name();
+    match model.family() {
+        Family::Normal => outcome.to_string(),
+        Family::Bernoulli | Family::Binomial { .. } | Family::Levels => format!("log-odds of {outcome}"),
+        Family::Poisson => format!("log of mean {outcome}"),
+    }
+}

@@ -1,0 +1,284 @@
+//! Clustered data end to end: `departure(c, spread)` in a simulation's
+//! mechanisms, `recover` of a pooled model against the drawn truth, and the
+//! shrinkage figure (`plot M shrinkage`) against numbers computed here from
+//! the table and from the exported draws.
+
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::sync::atomic::AtomicBool;
+
+use statrs::distribution::{ChiSquared, ContinuousCDF};
+
+use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::graph::{Graph, GraphBuilder};
+use waypath::infer::fit::Method;
+use waypath::infer::nuts::NutsSettings;
+use waypath::model::ModelSpec;
+use waypath::query::{recover, QueryError, Simulation, SimulationSettings};
+use waypath::table::{ColumnData, Table};
+
+fn graph(lines: &[&str]) -> Graph {
+    let mut b = GraphBuilder::new("sites");
+    for l in lines {
+        b.add_line(l).expect("graph line");
+    }
+    b.finish().expect("graph")
+}
+
+fn simulate(g: &Graph, body: &[String], rows: usize, seed: u64) -> Result<Simulation, QueryError> {
+    Simulation::parse("fake", g, SimulationSettings { rows, seed }, body.iter().enumerate().map(|(i, l)| (i + 2, l.as_str())))
+}
+
+/// `site = category(s1 share, …)` with `k` equally likely sites.
+fn sites_line(k: usize) -> String {
+    let share = 1.0 / k as f64;
+    let items: Vec<String> = (1..=k).map(|i| format!("s{i} {share}")).collect();
+    format!("site = category({})", items.join(", "))
+}
+
+fn reals(table: &Table, name: &str) -> Vec<f64> {
+    table.column(name).and_then(|c| c.data.as_reals()).expect("numeric column")
+}
+
+fn codes(table: &Table, name: &str) -> (Vec<u32>, Vec<String>) {
+    match table.column(name).map(|c| &c.data) {
+        Some(ColumnData::Category { codes, levels }) => (codes.clone(), levels.clone()),
+        _ => panic!("{name} is not a category"),
+    }
+}
+
+/// Each level's departure read off a table whose outcome is `departure(site,
+/// spread)` plus noise of sd 1e-9: the rows of a level agree to that noise.
+fn departures_from_rows(table: &Table, outcome: &str, minus: impl Fn(usize) -> f64) -> BTreeMap<String, f64> {
+    let y = reals(table, outcome);
+    let (site, levels) = codes(table, "site");
+    let mut found: BTreeMap<String, f64> = BTreeMap::new();
+    for (i, c) in site.iter().enumerate() {
+        let d = y[i] - minus(i);
+        let level = levels[*c as usize].clone();
+        if let Some(seen) = found.get(&level) {
+            assert!((seen - d).abs() < 1e-6, "rows of {level} share one departure: {seen} vs {d}");
+        }
+        found.insert(level, d);
+    }
+    found
+}
+
+/// Source: for n independent normal(0, σ²) draws, (n − 1)·s²/σ² follows a
+/// chi-square distribution with n − 1 degrees of freedom (Cochran's theorem;
+/// quantiles from statrs' ChiSquared), and their mean is normal(0, σ²/n).
+/// 400 sites, spread 0.8: the sample sd must lie within the 0.05% and
+/// 99.95% chi-square bounds, the mean within 4 standard errors.
+#[test]
+fn drawn_departures_follow_the_stated_spread() {
+    let g = graph(&["site -> y"]);
+    let body = vec![sites_line(400), "y = normal(departure(site, 0.8), 0.000000001)".to_string()];
+    let sim = simulate(&g, &body, 20_000, 5).expect("mechanisms");
+    let table = sim.table().expect("table");
+    let found = departures_from_rows(&table, "y", |_| 0.0);
+    let d: Vec<f64> = found.values().copied().collect();
+    let n = d.len() as f64;
+    assert!(d.len() >= 395, "almost every one of 400 sites holds a row among 20 000: {}", d.len());
+    let mean = d.iter().sum::<f64>() / n;
+    let s2 = d.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    let chi = ChiSquared::new(n - 1.0).unwrap();
+    let statistic = (n - 1.0) * s2 / (0.8 * 0.8);
+    assert!(
+        chi.cdf(statistic) > 0.0005 && chi.cdf(statistic) < 0.9995,
+        "sample sd {} against the stated 0.8: chi-square {statistic} on {} df",
+        s2.sqrt(),
+        n - 1.0
+    );
+    assert!(mean.abs() < 4.0 * 0.8 / n.sqrt(), "mean departure {mean}");
+
+    // Seeded: the same seed gives the same departures, another seed others.
+    let again = departures_from_rows(&simulate(&g, &body, 20_000, 5).unwrap().table().unwrap(), "y", |_| 0.0);
+    assert_eq!(found, again);
+    let other = departures_from_rows(&simulate(&g, &body, 20_000, 6).unwrap().table().unwrap(), "y", |_| 0.0);
+    assert!(found.iter().filter(|(k, v)| other.get(*k).is_some_and(|o| (o - *v).abs() < 1e-9)).count() < 5);
+}
+
+#[test]
+fn bad_departures_are_refused_with_the_line_named() {
+    let g = graph(&["site -> y", "x -> y"]);
+    let base = |y: &str| vec![sites_line(3), "x = normal(0, 1)".to_string(), y.to_string()];
+    let cases = [
+        ("y = normal(departure(site, -1), 1)", "must be a positive number"),
+        ("y = normal(departure(site), 1)", "needs the form"),
+        ("y = normal(departure(x, 1), 1)", "needs a category"),
+        ("y = normal(departure(site, 1) + departure(site, 2), 1)", "twice"),
+        ("y = normal(departure(elsewhere, 1), 1)", "not a node of graph"),
+    ];
+    for (line, words) in cases {
+        match simulate(&g, &base(line), 10, 1) {
+            Err(QueryError::Mechanism { line: at, message }) => {
+                assert_eq!(at, 4, "{line}");
+                assert!(message.contains(words), "{line}: {message}");
+            }
+            other => panic!("{line} should be refused, got {other:?}"),
+        }
+    }
+}
+
+/// The truth `recover` sets beside a pooled model: the stated spread, and
+/// departures equal to those a noiseless twin of the simulation (same seed,
+/// outcome sd 1e-9) shows in its rows; the coefficients are the mechanism's
+/// own (intercept 10 at x = 0 with centring off, slope 2). Coverage: of 16
+/// departures with 90% intervals, at least 11 hold their truth (binomial(16,
+/// 0.9) gives fewer than 11 with probability 0.0033, scipy.stats.binom.cdf(10,
+/// 16, 0.9), computed in the reference venv).
+#[test]
+fn recover_sets_the_drawn_departures_beside_a_pooled_model() {
+    let g = graph(&["site -> y", "x -> y"]);
+    let body = |sd: &str| vec![sites_line(16), "x = normal(0, 1)".to_string(), format!("y = normal(10 + 2 * x + departure(site, 1.5), {sd})")];
+    let sim = simulate(&g, &body("1"), 800, 21).expect("mechanisms");
+    let twin = simulate(&g, &body("0.000000001"), 800, 21).unwrap().table().unwrap();
+    let x = reals(&twin, "x");
+    let truth = departures_from_rows(&twin, "y", |i| 10.0 + 2.0 * x[i]);
+    let spec = ModelSpec::from_lines("m", [(2, "y from x, pooled site using fake"), (3, "centre off")]).expect("spec");
+    let method = Method::Nuts(NutsSettings { chains: 2, settle: 400, draws: 600, seed: 3, ..NutsSettings::default() });
+    let r = recover(&spec, &sim, &method, &AtomicBool::new(false), 0.9).expect("recover");
+    let by_name = |name: &str| r.parameters.iter().find(|p| p.name == name).unwrap_or_else(|| panic!("no {name}: {:?}", r.parameters));
+    assert_eq!(by_name("site spread").truth, Some(1.5));
+    assert!((by_name("intercept").truth.unwrap() - 10.0).abs() < 1e-9);
+    assert!((by_name("x slope").truth.unwrap() - 2.0).abs() < 1e-9);
+    let mut covered = 0;
+    for (level, d) in &truth {
+        let p = by_name(&format!("site departure[{level}]"));
+        assert!((p.truth.unwrap() - d).abs() < 1e-6, "{level}: {:?} vs {d}", p.truth);
+        covered += usize::from(p.covered == Some(true));
+    }
+    assert_eq!(truth.len(), 16);
+    assert!(covered >= 11, "{covered} of 16 departure intervals hold the truth");
+    assert!(r.notes.iter().any(|n| n.contains("site spread: the true value is the stated 1.5")), "{:?}", r.notes);
+}
+
+fn run(session: &mut Session, cell: &str) -> CellOutcome {
+    let cancel = AtomicBool::new(false);
+    let progress = |_: &str| {};
+    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
+}
+
+/// Invented clinics of unequal size, a normal outcome in mmHg and a yes/no
+/// outcome; a small linear congruential generator makes the rows.
+fn clinics_csv(dir: &std::path::Path) {
+    let mut f = std::fs::File::create(dir.join("clinics.csv")).unwrap();
+    writeln!(f, "clinic,drop,settled").unwrap();
+    let mut state: u64 = 12345;
+    let mut uniform = move || {
+        state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let clinics = [("harbour", 40, 2.0), ("valley", 12, -1.5), ("mill", 4, 3.0), ("upland", 25, 0.0), ("ferry", 2, -2.5)];
+    for (name, rows, shift) in clinics {
+        for _ in 0..rows {
+            let noise = (0..12).map(|_| uniform()).sum::<f64>() - 6.0;
+            let settled = uniform() < 0.3 + 0.08 * shift;
+            writeln!(f, "{name},{:.2},{}", 8.0 + shift + 3.0 * noise, if settled { "yes" } else { "no" }).unwrap();
+        }
+    }
+}
+
+fn read_csv(path: &std::path::Path) -> (Vec<String>, Vec<Vec<String>>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    let head = lines.next().unwrap().split(',').map(|s| s.trim_matches('"').to_string()).collect();
+    (head, lines.map(|l| l.split(',').map(str::to_string).collect()).collect())
+}
+
+/// Per level, the mean of `column` over that level's rows of the CSV.
+fn level_means(rows: &[Vec<String>], value: impl Fn(&[String]) -> f64) -> BTreeMap<String, (f64, usize)> {
+    let mut sums: BTreeMap<String, (f64, usize)> = BTreeMap::new();
+    for r in rows {
+        let e = sums.entry(r[0].clone()).or_insert((0.0, 0));
+        e.0 += value(r);
+        e.1 += 1;
+    }
+    sums.into_iter().map(|(k, (s, n))| (k, (s / n as f64, n))).collect()
+}
+
+/// Per level, the mean over exported draws of `intercept + departure`.
+fn pooled_from_draws(path: &std::path::Path, group: &str) -> (BTreeMap<String, f64>, f64) {
+    let (head, rows) = read_csv(path);
+    let at = |name: &str| head.iter().position(|h| h == name).unwrap_or_else(|| panic!("no column {name} in {head:?}"));
+    let intercept = at("intercept");
+    let value = |r: &Vec<String>, j: usize| r[j].parse::<f64>().unwrap();
+    let n = rows.len() as f64;
+    let population = rows.iter().map(|r| value(r, intercept)).sum::<f64>() / n;
+    let prefix = format!("{group} departure[");
+    let levels = head.iter().enumerate().filter_map(|(j, h)| h.strip_prefix(&prefix).map(|l| (l.trim_end_matches(']').to_string(), j)));
+    let pooled = levels.map(|(l, j)| (l, rows.iter().map(|r| value(r, intercept) + value(r, j)).sum::<f64>() / n)).collect();
+    (pooled, population)
+}
+
+/// Source: the definitions in the README (Pooled groups). For a model
+/// `y from pooled clinic`, a level's pooled estimate on the link scale is
+/// intercept + departure in each draw and the population's is the
+/// intercept; the raw estimate is the level's rows' mean (normal) or the
+/// log-odds of its share of yes (bernoulli), computed here from the CSV.
+#[test]
+fn shrinkage_figure_numbers_match_the_table_and_the_draws() {
+    let dir = std::env::temp_dir().join(format!("wp-shrinkage-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    clinics_csv(&dir);
+    let (_, rows) = read_csv(&dir.join("clinics.csv"));
+    let mut session = Session::new(&dir);
+    let setup = "table visits from \"clinics.csv\":\n    drop: real in mmHg\n    settled: binary\n";
+    assert!(run(&mut session, setup).error.is_none());
+    for (outcome, family, raw_of, unit) in [
+        ("drop", "", Box::new(|r: &[String]| r[1].parse::<f64>().unwrap()) as Box<dyn Fn(&[String]) -> f64>, Some("mmHg")),
+        ("settled", "    family bernoulli\n", Box::new(|r: &[String]| f64::from(u8::from(r[2] == "yes"))), None),
+    ] {
+        let cell = format!(
+            "model m_{outcome}:\n    {outcome} from pooled clinic using visits\n{family}\nfit m_{outcome} with nuts chains 2 settle 400 draws 800 seed 5\nexport m_{outcome} draws to \"d_{outcome}.csv\"\nplot m_{outcome} shrinkage\n"
+        );
+        let out = run(&mut session, &cell);
+        assert!(out.error.is_none(), "{:?}", out.error);
+        let shown = out.displays.last().unwrap();
+        let json = shown.json.as_ref().expect("json");
+        let svg = shown.svg.as_ref().expect("svg");
+        let raw = level_means(&rows, &raw_of);
+        let (pooled, population) = pooled_from_draws(&dir.join(format!("d_{outcome}.csv")), "clinic");
+        let levels = json["levels"].as_array().unwrap();
+        assert_eq!(levels.len(), 5);
+        for l in levels {
+            let name = l["level"].as_str().unwrap();
+            let (mean, n) = raw[name];
+            // A share of 0 or 1 has infinite log-odds; the README says it is shown at 0.001 or 0.999.
+            let share = mean.clamp(0.001, 0.999);
+            let expected_raw = if family.is_empty() { mean } else { (share / (1.0 - share)).ln() };
+            assert_eq!(l["rows"].as_u64().unwrap() as usize, n, "{name}");
+            assert!((l["raw"].as_f64().unwrap() - expected_raw).abs() < 1e-9, "{outcome} {name}: {l} vs {expected_raw}");
+            assert!((l["mean"].as_f64().unwrap() - pooled[name]).abs() < 1e-6, "{outcome} {name}: {l} vs {}", pooled[name]);
+            assert!(l["lower"].as_f64().unwrap() < pooled[name] && pooled[name] < l["upper"].as_f64().unwrap());
+            assert!(svg.contains(&format!("{name} ({n} rows)")), "label of {name}");
+        }
+        assert!((json["population"][0].as_f64().unwrap() - population).abs() < 1e-6);
+        // What the figure must show: its kind, a legend, the axis with its unit, the circles' meaning.
+        assert!(svg.contains(&format!("<title>shrinkage: m_{outcome} levels of clinic</title>")));
+        for words in ["level's own rows (area: rows)", "pooled, 90% interval", "population, a new level", "circle area grows with the level's rows: 2 to 40"] {
+            assert!(svg.contains(words), "{outcome}: {words}");
+        }
+        match unit {
+            Some(u) => assert!(svg.contains(&format!("{outcome}, averaged over a level's rows ({u})"))),
+            None => assert!(svg.contains(&format!("log-odds of {outcome}, averaged over a level's rows<"))),
+        }
+        // One open circle per level (and one in the legend), their sizes as many as the five row counts.
+        let radii: Vec<String> = svg
+            .split("<circle")
+            .skip(1)
+            .map(|c| c.split('>').next().unwrap_or(""))
+            .filter(|c| c.contains("fill=\"none\""))
+            .filter_map(|c| c.split("r=\"").nth(1).and_then(|r| r.split('"').next()).map(str::to_string))
+            .collect();
+        assert_eq!(radii.len(), 5, "{radii:?}");
+        let mut distinct = radii.clone();
+        distinct.sort();
+        distinct.dedup();
+        assert_eq!(distinct.len(), 5, "circle sizes follow five different row counts: {radii:?}");
+    }
+    let refused = run(&mut session, "model plain:\n    drop from settled using visits\n\nfit plain with nuts draws 200 seed 1\nplot plain shrinkage\n");
+    let message = refused.error.expect("a model without a pooled group is refused").describe();
+    assert!(message.contains("has no pooled group"), "{message}");
+    let _ = std::fs::remove_dir_all(&dir);
+}
