@@ -269,10 +269,13 @@ fn ratio_yardsticks(
     Ok(out)
 }
 
+/// Each row's part index, and the setting that stands for each part.
+type Parts = (Vec<usize>, Vec<Setting>);
+
 /// Each row's part of predictor `name` (its level or yes/no value, or for a numeric column
 /// the half at or below the median (0) or above it (1)) and the setting
 /// that stands for each part; `None` when it has a single part.
-fn parts_of(table: &Table, name: &str, place: &str) -> Result<Option<(Vec<usize>, Vec<Setting>)>, QueryError> {
+fn parts_of(table: &Table, name: &str, place: &str) -> Result<Option<Parts>, QueryError> {
     let column = require_column(table, name, place)?;
     if let ColumnData::Binary(v) = &column.data {
         let parts: Vec<usize> = v.iter().map(|b| usize::from(*b)).collect();
