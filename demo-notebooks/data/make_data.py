@@ -109,8 +109,31 @@ def saplings(seed=5150, n=600):
     write("saplings.csv", ["plot", "soil", "shade", "form", "height"], rows)
 
 
+def reaches(seed=1717, n=400):
+    """Stream reaches in an invented catchment. Upstream land use (how much
+    of the catchment above a reach is farmed) is never measured: farmed
+    catchments leave fewer planted buffer strips along the banks and also
+    send down fine sediment that smothers mayfly and stonefly nymphs. A
+    planted buffer shades the water; cooler water suits the nymphs. Stream
+    gradient (measured) helps both insects through faster, cleaner riffles."""
+    rng = random.Random(seed)
+    rows = []
+    for i in range(n):
+        land_use = rng.gauss(0.0, 1.0)  # not written out: the hidden common cause
+        planted = rng.random() < 1 / (1 + math.exp(0.9 * land_use))
+        temp = 16.0 - 2.5 * planted + rng.gauss(0.0, 1.2)
+        gradient = rng.uniform(0.5, 6.0)
+        mayflies = 120.0 - 6.0 * temp + 4.0 * gradient - 10.0 * land_use + rng.gauss(0.0, 8.0)
+        logit = 0.8 - 0.45 * (temp - 14.0) + 0.25 * (gradient - 3.0) - 0.8 * land_use
+        stoneflies = 1 if rng.random() < 1 / (1 + math.exp(-logit)) else 0
+        rows.append([f"R{i + 1:03d}", "planted" if planted else "none", round(temp, 1), round(gradient, 2),
+                     round(mayflies, 1), stoneflies])
+    write("reaches.csv", ["reach", "buffer", "temp", "gradient", "mayflies", "stoneflies"], rows)
+
+
 if __name__ == "__main__":
     orchard()
     stream()
     clinic()
     saplings()
+    reaches()

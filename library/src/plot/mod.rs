@@ -40,7 +40,7 @@ pub use graph::{
     graph_figure, layout, EdgeMark, EdgeRoute, GraphLayout, GraphPicture, NodeBox, NodeMark, Role,
 };
 pub use posterior::{contrast_figure, posterior_figure, DensityArrangement, ParameterDraws};
-pub use robustness::{robustness_figure, RobustnessPicture};
+pub use robustness::{robustness_figure, RobustnessPicture, StrengthScale};
 pub use shrinkage::{shrinkage_figure, ShrinkageRow};
 pub use recovery::{calibration_figure, recovery_figure, RecoveryRow};
 pub use trends::{

@@ -160,6 +160,11 @@ pub struct Contrast {
     /// Per-draw differences (at the held values; not serialised).
     #[serde(skip)]
     pub draws: Vec<f64>,
+    /// Per-draw expected outcomes `(at to, at from)` behind `draws` (on
+    /// means only; empty on outcomes; not serialised), for scales other
+    /// than the difference, such as a ratio of risks.
+    #[serde(skip)]
+    pub means: Vec<(f64, f64)>,
 }
 
 impl Contrast {
@@ -246,7 +251,14 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
         on: request.on,
         new_groups: new_groups.then_some(new_group_seed),
     };
-    let values = pairing.draws(&base)?;
+    let means = match request.on {
+        On::Means => pairing.means(&base)?,
+        On::Outcomes { .. } => Vec::new(),
+    };
+    let values = match request.on {
+        On::Means => means.iter().map(|(a, b)| a - b).collect(),
+        On::Outcomes { .. } => pairing.draws(&base)?,
+    };
     let summary = ContrastSummary::of(&values, request.mass)?;
     let grid = match &request.along {
         Some(g) => grid_points(&pairing, &base, g, &predictors, &place, request.mass)?,
@@ -294,6 +306,7 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
         },
         notes,
         draws: values,
+        means,
     })
 }
 
@@ -520,35 +533,48 @@ struct Pairing<'a> {
 
 impl Pairing<'_> {
     /// Per-draw differences with `variable` set to `to` and `from` in every
-    /// row of `base`.
+    /// row of `base` (on outcomes, one row picked at random per draw).
     fn draws(&self, base: &Table) -> Result<Vec<f64>, QueryError> {
+        let On::Outcomes { seed } = self.on else {
+            return Ok(self.means(base)?.iter().map(|(a, b)| a - b).collect());
+        };
         let n = base.nrows();
         let rows_to = self.model.new_rows(&with_column(base, self.to.column(self.variable, n)))?;
         let rows_from = self.model.new_rows(&with_column(base, self.from.column(self.variable, n)))?;
         self.params
             .iter()
             .enumerate()
-            .map(|(d, theta)| match self.on {
-                On::Means => {
-                    let new = self.new_group(theta, d);
-                    let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
-                    let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
-                    Ok(a.iter().zip(&b).map(|(x, y)| x - y).sum::<f64>() / n as f64)
-                }
-                On::Outcomes { seed } => {
-                    let new = self.new_group(theta, d);
-                    let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, 0));
-                    let r = if n == 1 { 0 } else { rng.random_range(0..n) };
-                    let a = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_to, r), &new, &mut rng)?;
-                    let b = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_from, r), &new, &mut rng)?;
-                    Ok(a[0] - b[0])
-                }
+            .map(|(d, theta)| {
+                let new = self.new_group(theta, d);
+                let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, 0));
+                let r = if n == 1 { 0 } else { rng.random_range(0..n) };
+                let a = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_to, r), &new, &mut rng)?;
+                let b = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_from, r), &new, &mut rng)?;
+                Ok(a[0] - b[0])
             })
             .collect()
     }
 }
 
 impl Pairing<'_> {
+    /// Per-draw expected outcomes `(at to, at from)`, each averaged over
+    /// the rows of `base`.
+    fn means(&self, base: &Table) -> Result<Vec<(f64, f64)>, QueryError> {
+        let n = base.nrows();
+        let rows_to = self.model.new_rows(&with_column(base, self.to.column(self.variable, n)))?;
+        let rows_from = self.model.new_rows(&with_column(base, self.from.column(self.variable, n)))?;
+        self.params
+            .iter()
+            .enumerate()
+            .map(|(d, theta)| {
+                let new = self.new_group(theta, d);
+                let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
+                let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
+                Ok((a.iter().sum::<f64>() / n as f64, b.iter().sum::<f64>() / n as f64))
+            })
+            .collect()
+    }
+
     /// Draw `d`'s departures of a new group in every pooled group (none
     /// when no group is a new one), from their own seeded stream.
     fn new_group(&self, theta: &[f64], d: usize) -> Vec<f64> {

@@ -91,11 +91,13 @@ pub fn front_door_estimate(
     for (to, from) in settings(column, &place)? {
         QueryError::stop_if(cancel, &place)?;
         let mut changes = Vec::with_capacity(draws);
+        let mut means = Vec::with_capacity(draws);
         for d in 0..draws {
             QueryError::stop_if(cancel, &place)?;
             let under_to = mean_under(table, x, &to, m, &m_model, &m_params[d], &y_model, &y_params[d], d)?;
             let under_from = mean_under(table, x, &from, m, &m_model, &m_params[d], &y_model, &y_params[d], d)?;
             changes.push(under_to - under_from);
+            means.push((under_to, under_from));
         }
         let s = ContrastSummary::of(&changes, mass)?;
         let is_probability = matches!(y_family, Family::Bernoulli | Family::Binomial { .. });
@@ -128,6 +130,7 @@ pub fn front_door_estimate(
             seed: Some(FRONT_DOOR_SEED),
             notes: Vec::new(),
             draws: changes,
+            means,
         });
     }
     Ok(FrontDoorFit { mediator: (m_model, m_fit), outcome: (y_model, y_fit), texts: [m_text, y_text], contrasts, warnings })

@@ -21,12 +21,16 @@
 //! * [`left_out`]: fitted models of one outcome scored by their predictions
 //!   of left-out rows (Pareto-smoothed importance sampling, exact refits
 //!   of the rows it cannot handle).
+//! * [`robustness`] and [`e_value`]: how a fitted contrast moves under an
+//!   assumed hidden common cause (a normal outcome's slope; a yes/no
+//!   outcome's risk ratio with its E-value).
 //!
 //! The query layer never reads files and never renders.
 
 pub mod answer;
 pub mod calibrate;
 pub mod contrast;
+pub mod e_value;
 mod error;
 pub mod front_door;
 pub mod implications;
@@ -43,6 +47,7 @@ mod support;
 pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectAnswer};
 pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
 pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
+pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RISK_RATIO_STEPS};
 pub use error::QueryError;
 pub use front_door::{front_door_estimate, FrontDoorFit, FRONT_DOOR_SEED};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};

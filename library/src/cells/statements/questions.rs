@@ -14,7 +14,7 @@ use std::sync::atomic::Ordering;
 use serde_json::{json, Value};
 
 use super::fitting::{parse_method, require_fit};
-use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED, ROBUSTNESS};
+use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
 use super::{header, interval_option, option_text};
 use crate::cells::figures::{self, GraphMarks};
 use crate::cells::fit_summary::{share_above_zero, ABOVE_ZERO_HEAD, FEW_ROWS, UNIT_HEAD};
@@ -649,65 +649,6 @@ fn front_door_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &st
                       "front_door": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": null,
                       "difference": null, "notes": notes});
     Display { plain, html: Some(html), svg: None, json: Some(json) }
-}
-
-/// `robustness of M: X`: the one-unit contrast of X under an assumed
-/// hidden common cause of X and M's outcome, over both strengths.
-pub(crate) fn robustness(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
-    let line = st.header.number;
-    let ([name, x], options) = header(st, &ROBUSTNESS)?;
-    let (mass, _) = interval_option(options, line)?;
-    let mass = session.interval_mass(mass);
-    let fit = require_fit(session, name, line)?;
-    let model = &session.models[name];
-    let table = session.require_table(model.table_name(), line)?;
-    let r = crate::query::robustness(model, &fit.draws, table, x, mass).map_err(|e| query_error(e, line))?;
-    let y = &r.outcome;
-    let heading = format!(
-        "robustness of {name}: {x} on {y} = {} ({} {} to {}); a hidden common cause moves it to zero once γ·δ reaches {}",
-        num(r.mean),
-        r.interval,
-        num(r.lower),
-        num(r.upper),
-        num(r.explain_away)
-    );
-    let mut grid = Grid::new(&["yardstick", "δ (→ exposure)", "γ (→ outcome)", "γ·δ", "mean if a hidden cause were as strong"])
-        .numeric_columns(&[1, 2, 3, 4]);
-    for ys in &r.yardsticks {
-        grid.push(vec![ys.node.clone(), num(ys.to_exposure), num(ys.to_outcome), num(ys.to_exposure * ys.to_outcome), num(ys.adjusted_mean)]);
-    }
-    let mut notes = vec![
-        format!("δ: the hidden cause's mean difference, in its standard deviations, per unit of {x}, given the other predictors"),
-        format!("γ: the change in {y}'s mean per standard deviation of the hidden cause, given {x} and the other predictors"),
-        format!("the mean reaches zero where γ·δ = {}", num(r.explain_away)),
-        if r.interval_reaches_zero > 0.0 {
-            format!("the {} first holds zero where γ·δ = {}", r.interval, num(r.interval_reaches_zero))
-        } else {
-            format!("the fitted {} already holds zero", r.interval)
-        },
-    ];
-    notes.extend(r.notes.iter().cloned());
-    notes.push("a yardstick places an observed predictor on the same axes; a hidden cause like it is an assumption, not a finding".to_string());
-    notes.push(CAUSAL_NOTE.to_string());
-    let grids: Vec<(&str, &Grid)> = if grid.rows.is_empty() { Vec::new() } else { vec![("observed predictors as yardsticks:", &grid)] };
-    let (plain, html) = render(&heading, &[], &grids, &notes);
-    let yard: Vec<(String, f64, f64)> = r.yardsticks.iter().map(|y| (y.node.clone(), y.to_exposure, y.to_outcome)).collect();
-    let picture = crate::plot::RobustnessPicture {
-        subject: name,
-        exposure: x,
-        outcome: y,
-        to_exposure: &r.to_exposure,
-        to_outcome: &r.to_outcome,
-        adjusted_mean: &r.adjusted_mean,
-        still_excludes_zero: &r.still_excludes_zero,
-        sign: if r.mean >= 0.0 { 1.0 } else { -1.0 },
-        explain_away: r.explain_away,
-        interval_reaches_zero: r.interval_reaches_zero,
-        interval: &r.interval,
-        yardsticks: &yard,
-    };
-    let svg = crate::plot::robustness_figure(&picture).ok();
-    Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&r)) }])
 }
 
 /// `implications of G checked against T [with …]`.
