@@ -538,7 +538,8 @@ mod tests {
 
     /// README "Statements", `simulate NAME from G rows N seed S:`: `c =
     /// category(a 0.5, b 0.5)`, `x = normal(2 + 0.5 * z, 1)`, `f =
-    /// bernoulli(logit = …)`, `n = poisson(log = …)`.
+    /// bernoulli(logit = …)`, `n = poisson(log = …)`, and a pooled group's
+    /// `departure(c, spread)` wherever a term may stand.
     #[test]
     fn simulate_body_lines_offer_mechanism_words() {
         let session = Session::new(".");
@@ -546,9 +547,9 @@ mod tests {
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
             ("x = ", &["bernoulli(", "category(", "normal(", "poisson("]),
-            ("f = bernoulli(", &["exp(", "log(", "logit"]),
-            ("n = poisson(", &["exp(", "log", "log("]),
-            ("x = normal(2 + 0.5 * ", &["exp(", "log("]),
+            ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
+            ("n = poisson(", &["departure(", "exp(", "log", "log("]),
+            ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),
             ("x = no", &["normal("]),
         ];
         for (line, want) in cases {
