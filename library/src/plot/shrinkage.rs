@@ -10,7 +10,11 @@ use super::canvas::{
     circle, clip_to_width, extent, legend, legend_height, legend_rows, line, padded, rect, text, text_width, Anchor, Frame,
     Key, Sheet, HEADING, MEDIUM, SMALL, WIDTH,
 };
-use super::palette::{BLUE, INK, MUTED, ORANGE};
+use super::palette::{BLUISH_GREEN, INK, MUTED, REDDISH_PURPLE};
+/// The pooled estimates and the population take the first two colours of
+/// the palette's series order.
+const POOLED: &str = BLUISH_GREEN;
+const POPULATION: &str = REDDISH_PURPLE;
 use super::{PlotError, Quantity};
 
 /// One level of a pooled group, as the figure draws it.
@@ -67,8 +71,8 @@ pub fn shrinkage_figure(
     let entries = vec![
         (Key::Dot(INK, false), "level's own rows (area: rows)".to_string()),
         (Key::Stroke(MUTED, 1.2, false), "pull of pooling".to_string()),
-        (Key::Dot(BLUE, true), format!("pooled, {interval}")),
-        (Key::Stroke(ORANGE, 1.6, true), format!("population, a new level (band: {interval})")),
+        (Key::Dot(POOLED, true), format!("pooled, {interval}")),
+        (Key::Stroke(POPULATION, 1.6, true), format!("population, a new level (band: {interval})")),
     ];
     let legend_top = HEADING + 8.0;
     let top = legend_top + legend_height(legend_rows(&entries, WIDTH - 24.0)) + 14.0;
@@ -95,13 +99,13 @@ pub fn shrinkage_figure(
     let mut sheet = Sheet::new(WIDTH, caption_top + 20.0, figure, subject, &desc);
     legend(&mut sheet, 12.0, legend_top, WIDTH - 24.0, &entries);
     let band_left = frame.px(population[1]);
-    sheet.push(rect(band_left, top, frame.px(population[2]) - band_left, height, ORANGE).with("fill-opacity", "0.15"));
+    sheet.push(rect(band_left, top, frame.px(population[2]) - band_left, height, POPULATION).with("fill-opacity", "0.15"));
     let mid = frame.px(population[0]);
-    sheet.push(line(mid, top, mid, frame.bottom(), ORANGE, 1.6).with("stroke-dasharray", "5 3"));
+    sheet.push(line(mid, top, mid, frame.bottom(), POPULATION, 1.6).with("stroke-dasharray", "5 3"));
     for (i, (r, label)) in shown.iter().zip(&labels).enumerate() {
         let y = top + ROW * (i as f64 + 0.5);
         sheet.push(text(left - 10.0, y + 4.0, &clip_to_width(label, SMALL, left - 16.0), SMALL, Anchor::End));
-        sheet.push(line(frame.px(r.lower), y, frame.px(r.upper), y, BLUE, 2.6).with("stroke-opacity", "0.55"));
+        sheet.push(line(frame.px(r.lower), y, frame.px(r.upper), y, POOLED, 2.6).with("stroke-opacity", "0.55"));
         if let Some(raw) = r.raw {
             sheet.push(line(frame.px(raw), y, frame.px(r.mean), y, MUTED, 1.2));
             sheet.push(
@@ -110,7 +114,7 @@ pub fn shrinkage_figure(
                     .with("stroke-width", "1.4"),
             );
         }
-        sheet.push(circle(frame.px(r.mean), y, 3.6, BLUE));
+        sheet.push(circle(frame.px(r.mean), y, 3.6, POOLED));
     }
     frame.x_axis(&mut sheet, Some(&value.label()));
     let (fewest, most) = (shown.iter().map(|r| r.rows).min().unwrap_or(0), shown.iter().map(|r| r.rows).max().unwrap_or(0));
