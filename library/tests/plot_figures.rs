@@ -237,6 +237,7 @@ fn all_figures() -> Vec<Figure> {
             &Quantity::with_unit("age", "years"),
             &height,
             &picture,
+            0.9,
         ),
     );
 
