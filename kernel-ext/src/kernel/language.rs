@@ -506,7 +506,8 @@ mod tests {
             ("model ", &[]),
             ("contrast m: ", &["girth", "rootstock"]),
             ("contrast m: rootstock ", &["along", "at", "by", "dwarf", "intervals", "on", "over", "seed", "standard"]),
-            ("contrast m: rootstock standard vs ", &["dwarf", "standard"]),
+            // the levels of rootstock (the form without `vs` still lists its options)
+            ("contrast m: rootstock standard vs ", &["along", "at", "by", "dwarf", "intervals", "on", "over", "seed", "standard"]),
             ("contrast m: girth at ", &["girth", "rootstock"]),
             ("contrast m: girth at rootstock ", &["dwarf", "standard"]),
             ("plot m lines over ", &["girth", "rootstock"]),

@@ -250,7 +250,8 @@ fn method_name(method: &Method) -> &'static str {
     }
 }
 
-/// A node parameter's name in the joint fit figure: prefixed by its node,
+/// A node parameter's name in a joint fit's health sentence and node
+/// figures: prefixed by its node,
 /// unless it already starts with it (a levels-family coefficient such as
 /// `form[shrub vs herb]: soil[sand]`; no other parameter is named after its
 /// own node, whose parents are other nodes).
