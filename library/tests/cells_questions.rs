@@ -18,7 +18,8 @@ fn run(session: &mut Session, cell: &str) -> CellOutcome {
 fn last_json(session: &mut Session, cell: &str) -> Value {
     let out = run(session, cell);
     assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
-    out.displays.last().and_then(|d| d.json.clone()).expect("a JSON structure")
+    // the written result: a joint fit's node figures follow it
+    out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure")
 }
 
 fn has_keys(json: &Value, keys: &[&str]) {
@@ -380,7 +381,8 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     let out = run(&mut session, "fit whole with nuts chains 2 settle 300 draws 300 seed 4");
     assert!(out.error.is_none(), "{:?}", out.error);
     let json = out.displays[0].json.clone().unwrap();
-    let fit_svg = out.displays[0].svg.clone().expect("a joint fit figure");
+    let form_figure = out.displays.iter().find(|d| d.plain.contains("node form:")).expect("a figure of node form");
+    let fit_svg = form_figure.svg.clone().expect("a figure of node form");
     let form = json["nodes"].as_array().unwrap().iter().find(|n| n["node"] == "form").cloned().unwrap();
     let names: Vec<&str> = form["estimates"].as_array().unwrap().iter().map(|p| p["parameter"].as_str().unwrap()).collect();
     assert!(names.contains(&"form[shrub vs herb]: soil[sand]") && names.contains(&"form[tree vs herb]: shade slope[peat]"), "{names:?}");
@@ -388,14 +390,11 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     // The figure names a levels coefficient as the fit's JSON does, once, not
     // prefixed by its node a second time.
     assert!(fit_svg.contains(">form[shrub vs herb]: soil[loam]<") && !fit_svg.contains("form: form["), "figure labels");
-    // More parameters than the figure draws: the reader is told how many are left out.
-    let all: usize = json["nodes"].as_array().unwrap().iter()
-        .flat_map(|n| n["estimates"].as_array().unwrap())
-        .filter(|p| p["parameter"] != "spread")
-        .count();
-    assert!(all > 10, "{all}");
-    let told = format!("the figure draws the first 10 of {all} node parameters");
-    assert!(out.displays[0].plain.contains(&told), "{}", out.displays[0].plain);
+    // One figure per fitted node, each drawing every coefficient of its node.
+    let figures: Vec<&str> = out.displays[1..].iter().map(|d| d.plain.as_str()).collect();
+    assert!(figures.contains(&"whole, node form: posterior densities of its 12 coefficients"), "{figures:?}");
+    let fitted = json["nodes"].as_array().unwrap().iter().filter(|n| !n["estimates"].as_array().unwrap().is_empty()).count();
+    assert_eq!(figures.len(), fitted, "one figure per fitted node: {figures:?}");
 
     let out = run(&mut session, "intervene whole: set soil sand vs loam, watch form seed 2");
     assert!(out.error.is_none(), "{:?}", out.error);
@@ -421,12 +420,50 @@ fn joint_model_fits_a_category_node_with_parents_and_watches_its_levels() {
     }
     assert!(!svg.contains("difference in mean share"), "the axis names the first panel only");
 
-    // A model cell with a category outcome takes the levels family; contrasts say where to go instead.
+    // A model cell with a category outcome takes the levels family; its
+    // contrasts compare each level's share, against the same g-formula truth.
     let json = last_json(&mut session, "model m:\n    form from soil, shade using saplings");
     assert_eq!(json["family"], "levels");
-    let out = run(&mut session, "fit m with laplace seed 2\ncontrast m: soil sand vs loam");
-    let error = out.error.expect("a category outcome has no numeric contrast");
-    assert!(error.message.contains("intervene"), "{}", error.message);
+    let json = last_json(&mut session, "fit m with laplace seed 2\ncontrast m: soil sand vs loam over rows");
+    let levels = json["levels"].as_array().expect("one contrast per level");
+    assert_eq!(levels.len(), 3);
+    let mut sum_of_means = 0.0;
+    for (k, c) in levels.iter().enumerate() {
+        assert_eq!(c["level"], ["herb", "shrub", "tree"][k]);
+        assert!(c["unit"].is_null() && c["scale"].as_str().unwrap().starts_with("probability that form is"), "{c}");
+        let truth: f64 = shades.iter().map(|&z| sapling_probabilities(1, z)[k] - sapling_probabilities(0, z)[k]).sum::<f64>() / shades.len() as f64;
+        let (mean, lo, hi) = (c["mean"].as_f64().unwrap(), c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
+        let sd = (hi - lo) / (2.0 * 1.645);
+        assert!((mean - truth).abs() < 3.0 * sd, "level {k}: {mean} vs truth {truth} (sd {sd})");
+        sum_of_means += mean;
+    }
+    assert!(sum_of_means.abs() < 1e-9, "the shares' changes sum to zero: {sum_of_means}");
+
+    // `ask … using` answers a category outcome level by level too.
+    let json = last_json(&mut session, "ask total effect of soil on form in nursery using saplings with laplace seed 2");
+    let contrasts = json["contrasts"].as_array().unwrap();
+    assert_eq!(contrasts.len(), 6, "two soils against loam × three forms");
+    assert_eq!(contrasts[0]["level"], "herb");
+    assert!(json["estimand"].as_str().unwrap().contains("each outcome level's probability"), "{json}");
+
+    // Lines: one per level of the outcome, the band as the option says.
+    let out = run(&mut session, "plot m lines over shade intervals 50%");
+    assert!(out.error.is_none(), "{:?}", out.error.map(|e| e.describe()));
+    let svg = out.displays[0].svg.clone().unwrap();
+    for level in ["herb", "shrub", "tree", "band: 50% interval"] {
+        assert!(svg.contains(&format!(">{level}<")), "{level} missing from the lines figure");
+    }
+
+    // Check: each level's observed row count (counted here from the CSV) against the simulated counts.
+    let csv = std::fs::read_to_string(dir.join("saplings.csv")).unwrap();
+    let json = last_json(&mut session, "check m sets 100 seed 3");
+    for (k, form) in ["herb", "shrub", "tree"].iter().enumerate() {
+        let counted = csv.lines().skip(1).filter(|l| l.split(',').nth(2) == Some(form)).count() as f64;
+        let level = &json["levels"][k];
+        assert_eq!((level["level"].as_str(), level["observed"].as_f64()), (Some(*form), Some(counted)), "{json}");
+        let (lo, hi) = (level["lower"].as_f64().unwrap(), level["upper"].as_f64().unwrap());
+        assert!(lo <= counted && counted <= hi, "{form}: {counted} outside [{lo}, {hi}]");
+    }
 }
 
 #[test]

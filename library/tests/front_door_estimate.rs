@@ -21,7 +21,8 @@ fn run(session: &mut Session, cell: &str) -> CellOutcome {
 fn last_json(session: &mut Session, cell: &str) -> Value {
     let out = run(session, cell);
     assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
-    out.displays.last().and_then(|d| d.json.clone()).expect("a JSON structure")
+    // the written result (a joint fit's node figures follow it)
+    out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure")
 }
 
 /// A stream reach: unmeasured canopy u shades the bank (x) and feeds trout (y)

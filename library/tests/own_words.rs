@@ -90,14 +90,14 @@ fn header_texts() -> Vec<String> {
     texts
 }
 
-/// Every body-line text the `model`, `joint`, `table` and `simulate`
+/// Every body-line text the `model`, `joint`, `table`, `simulate` and `graph`
 /// grammars offer, walked from an empty line and from each `prior GROUP :`
 /// (the colon is written by the user, never offered).
 fn body_texts() -> Vec<String> {
     let mut seeds = vec![String::new()];
     seeds.extend(PriorGroup::words().iter().map(|g| format!("prior {g} :")));
     let mut texts = Vec::new();
-    for block in [Block::Model, Block::Joint, Block::Table, Block::Simulate] {
+    for block in [Block::Model, Block::Joint, Block::Table, Block::Simulate, Block::Graph] {
         texts.extend(walk(&seeds, &|typed| body_next_words(block, typed), 10, 50_000));
     }
     texts

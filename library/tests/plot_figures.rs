@@ -237,6 +237,7 @@ fn all_figures() -> Vec<Figure> {
             &Quantity::with_unit("age", "years"),
             &height,
             &picture,
+            0.9,
         ),
     );
 
@@ -671,4 +672,21 @@ fn write_figures_for_viewing() {
         p.save_png(&name).expect("png written");
         std::fs::write(name.replace(".png", ".svg"), &f.svg).expect("svg written");
     }
+}
+
+/// The spline figure's band and weight intervals hold the mass asked for
+/// (`intervals P%`, issue 15): the legend and description name it, and a
+/// mass outside (0, 1) is refused.
+#[test]
+fn spline_band_follows_the_interval_mass() {
+    let grid: Vec<f64> = (0..=20).map(|i| i as f64 * 0.5).collect();
+    let basis = bspline_basis(&grid, &[0.0, 5.0, 10.0], 3);
+    let weights: Vec<Vec<f64>> = (0..200).map(|d| normals(40 + d, basis.len(), 1.0, 0.3)).collect();
+    let picture = BasisPicture { grid, basis, weights, intercept: Vec::new(), points: Vec::new() };
+    let (x, y) = (Quantity::new("age"), Quantity::new("height"));
+    let half = spline_figure("growth", &x, &y, &picture, 0.5).expect("figure");
+    assert!(half.contains(">band: 50% interval<") && half.contains("weight: mean and 50% interval"), "legend");
+    assert!(!half.contains("90%"), "no fixed 90% left");
+    let err = spline_figure("growth", &x, &y, &picture, 1.5).unwrap_err().to_string();
+    assert!(err.contains("between 0 and 1"), "{err}");
 }

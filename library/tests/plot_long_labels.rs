@@ -83,11 +83,17 @@ fn long_figures() -> Vec<(&'static str, String)> {
         intercept: normals(9, 500, 10.0, 0.2),
         points: grid.iter().map(|g| (*g, 10.0 + 0.1 * g)).collect(),
     };
-    add("spline", spline_figure(C, &x, &value, &picture));
+    add("spline", spline_figure(C, &x, &value, &picture, 0.9));
     let observed = normals(10, 200, 20.0, 4.0);
     let replicated: Vec<Vec<f64>> = (0..200).map(|r| normals(200 + r, 200, 20.0, 4.0)).collect();
     add("check", predictive_figure(PredictiveKind::Posterior, A, &value, &observed, &replicated));
     add("prior check", predictive_figure(PredictiveKind::Prior, A, &value, &[], &replicated));
+    let counts = [A, B, C]
+        .iter()
+        .enumerate()
+        .map(|(k, l)| LevelCount { level: l.to_string(), observed: 60.0 + 10.0 * k as f64, replicated: normals(50 + k as u64, 200, 65.0, 6.0) })
+        .collect::<Vec<_>>();
+    add("level check", level_count_figure(PredictiveKind::Posterior, A, B, &counts));
     let chains: Vec<Vec<f64>> = (0..3).map(|p| (0..4).flat_map(|c| normals(20 + 4 * p + c, 500, 1.0, 0.2)).collect()).collect();
     let traced = [
         ParameterDraws { name: A, draws: &chains[0] },

@@ -112,6 +112,9 @@ class WaypathKernelTests(jupyter_kernel_test.KernelTests):
         {"text": "model m:\n    yield from girth using trees\n    family bern", "matches": {"bernoulli"}},
         {"text": "table trees from \"orchard.csv\":\n    drop mi", "matches": {"missing"}},
         {"text": "simulate s from orchard rows 50 seed 7:\n    girth = nor", "matches": {"normal("}},
+        # graph bodies and symbols: `hidden soil -> girth` (README "Statements", `graph NAME:`)
+        {"text": "graph g:\n    hid", "matches": {"hidden"}},
+        {"text": "graph g:\n    soil -", "matches": {"->"}},
     ]
     complete_code_samples = ["paths from a to b in g", "graph g:\n    a -> b\n\n", "%%rust\nlet x = 1;"]
     incomplete_code_samples = ["graph g:", "graph g:\n    a -> b\n", "%%rust\nfn grow() {"]

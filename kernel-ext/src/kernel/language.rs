@@ -6,7 +6,7 @@
 use serde_json::{json, Value};
 use waypath::cells::parse::{is_incomplete, split_statements};
 use waypath::cells::statements::body_grammar::{body_next_words, Block};
-use waypath::cells::statements::grammar::{next_words, statement_words, Next};
+use waypath::cells::statements::grammar::{next_words, statement_words, Names, Next, Wanted};
 use waypath::cells::Session;
 use waypath::table::Table;
 
@@ -66,13 +66,16 @@ fn rust_is_open(code: &str) -> bool {
 }
 
 /// The `complete_reply` content: statement words at the start of a line;
-/// in a header, the connecting words its statement's grammar allows next
-/// (`from`, `given`, `using`, `with`, sampler options …); in a body line of
-/// a `model`, `joint`, `table` or `simulate` block, the words its parser
-/// allows next (`family`, `per`, `category(`, `keep where`, `normal(` …);
-/// and, where a value fits, names of session objects, table columns,
-/// category levels and graph nodes. In other bodies and Rust cells, those
-/// names.
+/// in a header, the connecting words and symbols its statement's grammar
+/// allows next (`from`, `given`, `using`, `with`, `:`, `,`, sampler options
+/// …); in a body line of a `model`, `joint`, `table`, `simulate` or `graph`
+/// block, the words its parser allows next (`family`, `per`, `category(`,
+/// `keep where`, comparison operators, `normal(`, `hidden`, `->` …); and,
+/// where a value fits, the names that fit the place: tables where a table
+/// goes, models where a model goes, the columns of the header's table or
+/// model, the levels of the column just named, the nodes of the header's
+/// graph — every name of the session where the place takes any. In Rust
+/// cells, every name.
 pub fn complete(session: &Session, code: &str, cursor_pos: usize) -> Value {
     let (before, start) = text_before(code, cursor_pos);
     let word = current_word(&before);
@@ -104,17 +107,18 @@ fn text_before(code: &str, cursor_pos: usize) -> (String, usize) {
     (before, n)
 }
 
-/// The identifier-like word ending at the end of `before` (`%` included so
-/// the Rust cell marker completes).
+/// The word ending at the end of `before`: identifier-like (`%` included
+/// so the Rust cell marker completes), or a run of symbol characters
+/// (`-` of `->`, `<` of `<=`).
 fn current_word(before: &str) -> &str {
-    let start = before
-        .char_indices()
-        .rev()
-        .take_while(|(_, c)| c.is_alphanumeric() || *c == '_' || *c == '%')
-        .last()
-        .map(|(i, _)| i)
-        .unwrap_or(before.len());
-    &before[start..]
+    let run = |keep: fn(char) -> bool| {
+        before.char_indices().rev().take_while(|(_, c)| keep(*c)).last().map(|(i, _)| i).unwrap_or(before.len())
+    };
+    let start = run(|c| c.is_alphanumeric() || c == '_' || c == '%');
+    if start < before.len() {
+        return &before[start..];
+    }
+    &before[run(|c| "-<>=!".contains(c))..]
 }
 
 /// Candidates inside a line that does not start a statement: `typed` is
@@ -136,10 +140,51 @@ fn line_words(session: &Session, code: &str, before: &str, typed: &str) -> Vec<S
     }
     let mut words: Vec<String> = next.words.iter().map(|w| w.to_string()).collect();
     words.extend(next.calls.iter().map(|c| format!("{c}(")));
-    if next.values {
+    if next.values && next.names.is_empty() {
         words.extend(session_words(session));
     }
+    for wanted in &next.names {
+        words.extend(names_for(session, wanted));
+    }
     words
+}
+
+/// The session's names of the kind `wanted` asks for.
+fn names_for(session: &Session, wanted: &Wanted) -> Vec<String> {
+    let objects = |kinds: &[&str]| -> Vec<String> {
+        session.names().into_iter().filter(|(_, k)| kinds.contains(k)).map(|(n, _)| n).collect()
+    };
+    match wanted.names {
+        Names::Any => session_words(session),
+        Names::New => Vec::new(),
+        Names::Table => objects(&["table"]),
+        Names::Graph => objects(&["graph"]),
+        Names::Model => objects(&["model", "joint model"]),
+        Names::Column => tables_of(session, &wanted.of).iter().flat_map(|t| t.columns.iter().map(|c| c.name.clone())).collect(),
+        Names::Node => {
+            let named: Vec<&str> = wanted.of.iter().map(String::as_str).filter(|g| session.graph(g).is_some()).collect();
+            let graphs = if named.is_empty() { objects(&["graph"]) } else { named.iter().map(|g| g.to_string()).collect() };
+            graphs.iter().filter_map(|g| session.graph(g)).flat_map(|g| g.nodes().iter().map(|n| n.name.clone())).collect()
+        }
+        Names::Level => {
+            let Some((column, sources)) = wanted.of.split_first() else { return Vec::new() };
+            tables_of(session, sources)
+                .iter()
+                .filter_map(|t| t.column(column))
+                .flat_map(|c| c.data.levels().unwrap_or(&[]).iter().cloned())
+                .collect()
+        }
+    }
+}
+
+/// The tables behind the tables or models `named` (every table of the
+/// session when none of them is known).
+fn tables_of<'s>(session: &'s Session, named: &[String]) -> Vec<&'s Table> {
+    let found: Vec<&Table> = named.iter().filter_map(|n| session.table(n).or_else(|| session.table_of(n))).collect();
+    if !found.is_empty() {
+        return found;
+    }
+    session.names().into_iter().filter(|(_, k)| *k == "table").filter_map(|(n, _)| session.table(&n)).collect()
 }
 
 /// The block whose body the cursor is in: the statement of the nearest
@@ -394,7 +439,10 @@ mod tests {
             // README: `score predictions of M1, M2 … [refits N]`.
             ("score ", &["predictions"]),
             ("score predictions ", &["of"]),
-            ("score predictions of a, b ", &["refits"]),
+            ("score predictions of a, b ", &[",", "refits"]),
+            // a symbol the form takes next: `contrast M: X`, `joint NAME = G`
+            ("contrast m ", &[":"]),
+            ("robustness of m ", &[":"]),
         ];
         for (typed, want) in cases {
             assert_eq!(offered(&session, typed), *want, "after {typed:?}");
@@ -417,8 +465,10 @@ mod tests {
         assert_eq!(offered(&session, "paths from girth to yield in orchard given r"), ["rootstock"]);
         // README: `paths from X to Y in G [given A, B]` — after G only `given`, after `given` nodes
         assert_eq!(offered(&session, "paths from girth to yield in orchard "), ["given"]);
-        assert_eq!(offered(&session, "paths from girth to yield in orchard given "), ["girth", "orchard", "rootstock", "yield"]);
-        assert_eq!(offered(&session, "paths from girth to yield in orchard given rootstock, "), ["girth", "orchard", "rootstock", "yield"]);
+        // a node goes there: the nodes of the graph named, not the graph itself
+        assert_eq!(offered(&session, "paths from girth to yield in orchard given "), ["girth", "rootstock", "yield"]);
+        assert_eq!(offered(&session, "paths from girth to yield in orchard given rootstock, "), ["girth", "rootstock", "yield"]);
+        assert_eq!(offered(&session, "paths from girth to yield in orchard given rootstock "), [",", "girth", "rootstock", "yield"]);
         // README: `contrast M: X b vs a …` — the settings b and a are values (levels)
         session.put_table("trees", waypath::table::Table {
             name: "trees".into(),
@@ -434,6 +484,68 @@ mod tests {
         // the reply replaces the partial word (Jupyter messaging: cursor_start..cursor_end)
         let reply = complete(&session, "paths from a to b in g giv", 26);
         assert_eq!((reply["cursor_start"].as_u64(), reply["cursor_end"].as_u64()), (Some(23), Some(26)));
+    }
+
+    /// README "Statements": each value place takes one kind of name — a
+    /// table after `using` and `against`, a model after `fit`, `contrast`
+    /// and `check`, a graph after `in`, the columns of the model's (or the
+    /// header's) table, the levels of the column just named, the nodes of
+    /// the header's graph — and a new name (`model NAME:`) is offered none.
+    #[test]
+    fn value_places_offer_only_the_names_that_fit() {
+        let mut session = orchard_session();
+        let cancel = std::sync::atomic::AtomicBool::new(false);
+        let progress = |_: &str| {};
+        let control = waypath::cells::RunControl { cancel: &cancel, progress: &progress };
+        let out = session.run_cell("graph orchard:\n    rootstock -> girth -> yield\nmodel m:\n    girth from rootstock using trees", &control);
+        assert!(out.error.is_none(), "{:?}", out.error.map(|e| e.describe()));
+        let cases: &[(&str, &[&str])] = &[
+            ("fit ", &["m"]),
+            ("check ", &["m"]),
+            ("contrast ", &["m"]),
+            ("model ", &[]),
+            ("contrast m: ", &["girth", "rootstock"]),
+            ("contrast m: rootstock ", &["along", "at", "by", "dwarf", "intervals", "on", "over", "seed", "standard"]),
+            // the levels of rootstock (the form without `vs` still lists its options)
+            ("contrast m: rootstock standard vs ", &["along", "at", "by", "dwarf", "intervals", "on", "over", "seed", "standard"]),
+            ("contrast m: girth at ", &["girth", "rootstock"]),
+            ("contrast m: girth at rootstock ", &["dwarf", "standard"]),
+            ("plot m lines over ", &["girth", "rootstock"]),
+            ("implications of ", &["orchard"]),
+            ("implications of orchard checked against ", &["trees"]),
+            ("ask total effect of ", &["girth", "rootstock", "yield"]),
+            ("ask total effect of rootstock on yield in ", &["orchard"]),
+            ("ask total effect of rootstock on yield in orchard using ", &["trees"]),
+            ("ask direct effect of rootstock on yield in orchard using trees at girth ", &[]),
+            ("ask direct effect of rootstock on yield in orchard using trees pooling ", &["girth", "rootstock"]),
+            ("joint j = ", &["orchard"]),
+            ("joint j = orchard using ", &["trees"]),
+        ];
+        for (typed, want) in cases {
+            assert_eq!(offered(&session, typed), *want, "after {typed:?}");
+        }
+    }
+
+    /// README "Statements", `graph NAME:` (`hidden soil -> girth`, `a -> b
+    /// -> c`, `rootstock, soil -> girth`) and `keep where` conditions
+    /// (`=`, `!=`, `<`, `<=`, `>`, `>=`): the symbols and words of the
+    /// graph and condition parsers, offered where they fit.
+    #[test]
+    fn graph_bodies_and_conditions_offer_their_symbols() {
+        let session = Session::new(".");
+        assert_eq!(offered_in(&session, "graph g:", ""), ["hidden"]);
+        assert_eq!(offered_in(&session, "graph g:", "hid"), ["hidden"]);
+        assert_eq!(offered_in(&session, "graph g:", "soil "), [",", "->"]);
+        assert_eq!(offered_in(&session, "graph g:", "hidden soil -"), ["->"]);
+        assert_eq!(offered_in(&session, "graph g:", "soil -> "), Vec::<String>::new());
+        assert_eq!(offered_in(&session, "graph g:", "soil, "), Vec::<String>::new());
+        let header = "table trees from \"orchard.csv\":";
+        assert_eq!(offered_in(&session, header, "keep where girth "), ["!=", "<", "<=", "=", ">", ">="]);
+        assert_eq!(offered_in(&session, header, "keep where girth <"), ["<", "<="]);
+        // the reply replaces the symbols typed (cursor_start before the `-`)
+        let typed = "graph g:\n    a -";
+        let reply = complete(&session, typed, typed.chars().count());
+        assert_eq!(reply["cursor_start"].as_u64(), Some(typed.chars().count() as u64 - 1));
     }
 
     /// The words offered in a body line of the block `header` opens.
@@ -594,6 +706,7 @@ mod tests {
             Block::Model | Block::Joint => waypath::model::parse_model_line(line).is_ok(),
             Block::Table => waypath::table::parse_table_line(line).is_ok(),
             Block::Simulate => matches!(waypath::query::parse_mechanism_line(line), Ok(Some(_))),
+            Block::Graph => waypath::graph::GraphBuilder::new("g").add_line(line).is_ok(),
         }
     }
 

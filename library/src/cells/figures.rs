@@ -142,8 +142,10 @@ fn chosen_or_coefficients(model: &Model, chosen: &[String]) -> Vec<String> {
 /// Fitted lines of the mean over a real predictor, one band per level of the
 /// first category input, over the observed data. `over` picks the predictor
 /// (default: the first real input). Other inputs are held at their centre or
-/// first level; the returned sentence says so.
-pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Result<(String, String), String> {
+/// first level; the returned sentence says so. Bands are central intervals
+/// of `mass`. A category outcome gets one line per outcome level instead:
+/// that level's probability ([`level_lines`]).
+pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>, mass: f64) -> Result<(String, String), String> {
     let inputs = model.inputs();
     let x_name = match over {
         Some(x) => inputs
@@ -164,6 +166,9 @@ pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Res
     let x_data = table.column(&x_name).and_then(|c| c.data.as_reals()).ok_or("the predictor is not in the table")?;
     let (lo, hi) = x_data.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
     let grid: Vec<f64> = (0..GRID_POINTS).map(|i| lo + (hi - lo) * i as f64 / (GRID_POINTS - 1) as f64).collect();
+    if let Some(outcome_levels) = model.outcome_levels() {
+        return level_lines(model, fit, table, &x_name, &grid, outcome_levels, mass);
+    }
     let y_data = outcome_per_trial(model, table);
     let levels: Vec<Option<(String, String, u32)>> = match &group {
         Some((col, levels)) => levels.iter().enumerate().map(|(k, l)| Some((col.clone(), l.clone(), k as u32))).collect(),
@@ -172,7 +177,7 @@ pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Res
     let mut groups = Vec::new();
     for level in &levels {
         let rows = grid_table(&inputs, &x_name, &grid, level.as_ref().map(|(c, _, k)| (c.as_str(), *k)))?;
-        let band = mean_band(model, fit, &rows)?;
+        let band = summarise_band(&mean_draws(model, fit, &rows)?, mass);
         let points = observed_points(table, &x_data, &y_data, level.as_ref().map(|(c, l, _)| (c.as_str(), l.as_str())));
         groups.push(LineGroup {
             label: level.as_ref().map_or_else(|| "all rows".to_string(), |(_, l, _)| l.clone()),
@@ -183,17 +188,69 @@ pub fn lines(model: &Model, fit: &Fit, table: &Table, over: Option<&str>) -> Res
             upper: band.2,
         });
     }
-    let held = held_note(&inputs, &x_name, group.as_ref().map(|(c, _)| c.as_str()));
+    let held = held_note(&inputs, &x_name, group.as_ref().map(|(c, _)| c.as_str()), mass);
     let x_q = quantity(table, &x_name);
     let y_q = quantity(table, model.outcome_name());
-    let svg = lines_figure(&format!("{} mean over {x_name}", model.name()), &x_q, &y_q, "90% interval", &groups)
+    let svg = lines_figure(&format!("{} mean over {x_name}", model.name()), &x_q, &y_q, &interval_label(mass), &groups)
         .map_err(|e| e.to_string())?;
     Ok((svg, held))
 }
 
+/// The lines of a category outcome over `x_name`: one line and band per
+/// outcome level, its probability at each grid value, every other input
+/// held at its centre or first level. The observed rows are not drawn (a
+/// row is at one level, not at a probability).
+fn level_lines(
+    model: &Model,
+    fit: &Fit,
+    table: &Table,
+    x_name: &str,
+    grid: &[f64],
+    levels: &[String],
+    mass: f64,
+) -> Result<(String, String), String> {
+    let inputs = model.inputs();
+    let rows = grid_table(&inputs, x_name, grid, None)?;
+    let new_rows = model.new_rows(&rows).map_err(|e| e.to_string())?;
+    let thin = thin_indices(fit.draws.len(), 1000);
+    // per_level[k][i]: draws of level k's probability at grid value i
+    let mut per_level: Vec<Vec<Vec<f64>>> = vec![vec![Vec::with_capacity(thin.len()); grid.len()]; levels.len()];
+    for &d in &thin {
+        let params: Vec<f64> = fit.draws.values.iter().map(|v| v[d]).collect();
+        let probabilities = model.level_probabilities(&params, &new_rows).map_err(|e| e.to_string())?;
+        for (i, p) in probabilities.iter().enumerate() {
+            for (k, share) in p.iter().enumerate() {
+                per_level[k][i].push(*share);
+            }
+        }
+    }
+    let groups: Vec<LineGroup> = levels
+        .iter()
+        .zip(&per_level)
+        .map(|(level, draws)| {
+            let (mean, lower, upper) = summarise_band(draws, mass);
+            LineGroup { label: level.clone(), points: Vec::new(), grid: grid.to_vec(), mean, lower, upper }
+        })
+        .collect();
+    let y = model.outcome_name();
+    let y_q = Quantity::new(format!("probability of each level of {y}"));
+    let svg = lines_figure(&format!("{} levels of {y} over {x_name}", model.name()), &quantity(table, x_name), &y_q, &interval_label(mass), &groups)
+        .map_err(|e| e.to_string())?;
+    let held: Vec<String> = inputs
+        .iter()
+        .filter(|i| i.column() != x_name)
+        .map(|i| match i {
+            Input::Real { column, centre } => format!("{column} at {}", crate::cells::format::num(*centre)),
+            Input::Category { column, levels } => format!("{column} at {}", levels[0]),
+        })
+        .collect();
+    let fixed = if held.is_empty() { String::new() } else { format!(", with {} held fixed", held.join(", ")) };
+    Ok((svg, format!("one line per level of {y}: its probability (posterior mean and {}){fixed}", interval_label(mass))))
+}
+
 /// The fitted curve of the model's (first) spline term with its band over
 /// the data, and its weights at the peaks of their basis functions.
-pub fn spline(model: &Model, fit: &Fit, table: &Table) -> Result<String, String> {
+pub fn spline(model: &Model, fit: &Fit, table: &Table, mass: f64) -> Result<String, String> {
     if model.outcome_levels().is_some() {
         return Err(format!("model {} has a category outcome; its spline figure is not available", model.name()));
     }
@@ -216,7 +273,7 @@ pub fn spline(model: &Model, fit: &Fit, table: &Table) -> Result<String, String>
     let y = outcome_per_trial(model, table);
     let points = x.iter().copied().zip(y.iter().copied()).collect();
     let picture = BasisPicture { grid, basis, weights, intercept, points };
-    spline_figure(model.name(), &quantity(table, term.column), &quantity(table, model.outcome_name()), &picture)
+    spline_figure(model.name(), &quantity(table, term.column), &quantity(table, model.outcome_name()), &picture, mass)
         .map_err(|e| e.to_string())
 }
 
@@ -262,8 +319,8 @@ fn grid_table(inputs: &[Input], x: &str, grid: &[f64], level: Option<(&str, u32)
     Table::from_columns("grid", columns).map_err(|e| e.to_string())
 }
 
-/// Posterior mean and 90% band of the model's mean at each new row.
-fn mean_band(model: &Model, fit: &Fit, rows: &Table) -> Result<(Vec<f64>, Vec<f64>, Vec<f64>), String> {
+/// Draws of the model's mean at each new row (`[row][draw]`).
+fn mean_draws(model: &Model, fit: &Fit, rows: &Table) -> Result<Vec<Vec<f64>>, String> {
     let new_rows = model.new_rows(rows).map_err(|e| e.to_string())?;
     let thin = thin_indices(fit.draws.len(), 1000);
     let mut per_row: Vec<Vec<f64>> = vec![Vec::with_capacity(thin.len()); rows.nrows()];
@@ -274,14 +331,20 @@ fn mean_band(model: &Model, fit: &Fit, rows: &Table) -> Result<(Vec<f64>, Vec<f6
             per_row[i].push(*m);
         }
     }
+    Ok(per_row)
+}
+
+/// Posterior mean and central band of `mass` at each row of draws.
+fn summarise_band(per_row: &[Vec<f64>], mass: f64) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+    let tail = (1.0 - mass) / 2.0;
     let mut out = (Vec::new(), Vec::new(), Vec::new());
     for values in per_row {
         let mean = values.iter().sum::<f64>() / values.len() as f64;
         out.0.push(mean);
-        out.1.push(quantile(&values, 0.05));
-        out.2.push(quantile(&values, 0.95));
+        out.1.push(quantile(values, tail));
+        out.2.push(quantile(values, 1.0 - tail));
     }
-    Ok(out)
+    out
 }
 
 fn observed_points(table: &Table, x: &[f64], y: &[f64], level: Option<(&str, &str)>) -> Vec<(f64, f64)> {
@@ -298,7 +361,7 @@ fn observed_points(table: &Table, x: &[f64], y: &[f64], level: Option<(&str, &st
     x.iter().zip(y).zip(keep).filter(|(_, k)| *k).map(|((a, b), _)| (*a, *b)).collect()
 }
 
-fn held_note(inputs: &[Input], x: &str, group: Option<&str>) -> String {
+fn held_note(inputs: &[Input], x: &str, group: Option<&str>, mass: f64) -> String {
     let held: Vec<String> = inputs
         .iter()
         .filter(|i| i.column() != x && Some(i.column()) != group)
@@ -308,9 +371,9 @@ fn held_note(inputs: &[Input], x: &str, group: Option<&str>) -> String {
         })
         .collect();
     if held.is_empty() {
-        "lines show the posterior mean and 90% interval of the expected outcome".to_string()
+        format!("lines show the posterior mean and {} of the expected outcome", interval_label(mass))
     } else {
-        format!("lines show the expected outcome with {} held fixed", held.join(", "))
+        format!("lines show the expected outcome (posterior mean and {}) with {} held fixed", interval_label(mass), held.join(", "))
     }
 }
 
@@ -327,6 +390,10 @@ fn thin_indices(total: usize, max: usize) -> Vec<usize> {
 fn difference_quantity(table: &Table, outcome: &str, on: &str) -> Quantity {
     let base = quantity(table, outcome);
     let binary = table.column(outcome).is_some_and(|c| matches!(c.data, crate::table::ColumnData::Binary(_)));
+    if table.column(outcome).is_some_and(|c| c.data.levels().is_some()) {
+        // a category outcome's contrasts are level by level, in probability
+        return Quantity::new(format!("difference in the probability of a level of {outcome}"));
+    }
     let name = match (binary, on == "outcomes") {
         // The mean of a yes/no outcome is a probability: say so, not "mean".
         (true, false) => format!("difference in the probability that {outcome} is yes"),
@@ -370,6 +437,38 @@ pub fn contrast(c: &Contrast, table: &Table, outcome: &str) -> Result<String, Pl
             contrast_grid_figure(&subject, &quantity(table, x), &value, &interval_label(c.mass), &picture)
         }
         None => contrast_figure(&subject, &value, &c.draws),
+    }
+}
+
+/// The per-level contrasts of a category outcome: each level's change in
+/// probability as a stacked density, or, along a grid, as one band per level.
+pub fn level_contrasts(cs: &[Contrast], table: &Table, outcome: &str) -> Result<String, PlotError> {
+    let first = cs.first().ok_or_else(|| PlotError::Empty { figure: "contrast", what: "the list of levels".into() })?;
+    let subject = format!("{} {} vs {} ({})", first.variable, first.to, first.from, first.model);
+    let label = |c: &Contrast| c.level.clone().unwrap_or_default();
+    match &first.along {
+        Some(x) => {
+            let groups: Vec<LineGroup> = cs
+                .iter()
+                .map(|c| LineGroup {
+                    label: label(c),
+                    points: Vec::new(),
+                    grid: c.grid.iter().map(|p| p.x).collect(),
+                    mean: c.grid.iter().map(|p| p.mean).collect(),
+                    lower: c.grid.iter().map(|p| p.lower).collect(),
+                    upper: c.grid.iter().map(|p| p.upper).collect(),
+                })
+                .collect();
+            let value = Quantity::new(format!("difference in the probability of each level of {outcome}"));
+            lines_figure(&subject, &quantity(table, x), &value, &interval_label(first.mass), &groups)
+        }
+        None => {
+            let names: Vec<String> = cs.iter().map(label).collect();
+            let params: Vec<ParameterDraws> =
+                names.iter().zip(cs).map(|(name, c)| ParameterDraws { name, draws: &c.draws }).collect();
+            let value = Quantity::new(format!("difference in the probability of each level of {outcome}"));
+            posterior_figure(&subject, &value, &params, DensityArrangement::Stacked)
+        }
     }
 }
 

@@ -102,6 +102,16 @@ impl Session {
         self.models.get(name)
     }
 
+    /// The table model or joint model `name` was built on.
+    pub fn table_of(&self, name: &str) -> Option<&Table> {
+        let table = match (self.models.get(name), self.joints.get(name)) {
+            (Some(model), _) => model.table_name(),
+            (None, Some(joint)) => joint.table.as_str(),
+            (None, None) => return None,
+        };
+        self.tables.get(table)
+    }
+
     /// The latest fit of model `name`.
     pub fn fit(&self, name: &str) -> Option<&Fit> {
         self.fits.get(name)

@@ -129,6 +129,11 @@ impl GraphBuilder {
     }
 }
 
+/// The word that marks a body line's first node as hidden.
+pub const HIDDEN: &str = "hidden";
+/// The arrow of an edge in a body line.
+pub const ARROW: &str = "->";
+
 /// One parsed body line: the `->`-separated groups and the `hidden` flag.
 struct LineGroups {
     hidden: bool,
@@ -140,7 +145,7 @@ fn parse_line(text: &str) -> Result<LineGroups, String> {
     if text.contains("<-") {
         return Err("write every edge left to right with `->` (for example `b -> a` instead of `a <- b`)".to_owned());
     }
-    let (hidden, rest) = match text.strip_prefix("hidden") {
+    let (hidden, rest) = match text.strip_prefix(HIDDEN) {
         Some(rest) if rest.is_empty() || rest.starts_with(char::is_whitespace) => (true, rest.trim()),
         _ => (false, text),
     };
@@ -148,7 +153,7 @@ fn parse_line(text: &str) -> Result<LineGroups, String> {
         return Err("`hidden` needs the node it marks, as in `hidden soil -> girth`".to_owned());
     }
     let mut groups = Vec::new();
-    for (k, part) in rest.split("->").enumerate() {
+    for (k, part) in rest.split(ARROW).enumerate() {
         let part = part.trim();
         if part.is_empty() {
             let place = if k == 0 { "before the first `->`" } else { "after a `->`" };
@@ -177,7 +182,7 @@ fn check_name(name: &str) -> Result<(), String> {
             "`{name}` is not a node name; use letters, digits and `_`, starting with a letter, and join nodes with `->` or `,`"
         ));
     }
-    if name == "hidden" {
+    if name == HIDDEN {
         return Err("`hidden` is a keyword and must come first on the line, as in `hidden soil -> girth`".to_owned());
     }
     Ok(())

@@ -49,7 +49,7 @@ mod separators;
 
 use std::collections::HashMap;
 
-pub use build::{GraphBuilder, MAX_EDGES};
+pub use build::{GraphBuilder, ARROW, HIDDEN, MAX_EDGES};
 pub use dot::{from_dot, MAX_DOT_NESTING};
 pub use error::GraphError;
 pub use complete::{Complete, Hedge, IDENTIFY_STEPS};

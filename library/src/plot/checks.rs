@@ -564,3 +564,80 @@ pub fn implications_figure(
     frame.x_axis(&mut sheet, Some(&association.label()));
     Ok(sheet.finish())
 }
+
+/// One level of a category outcome in a predictive check: the number of
+/// observed rows at it and that number in each simulated set.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LevelCount {
+    pub level: String,
+    pub observed: f64,
+    pub replicated: Vec<f64>,
+}
+
+/// A predictive check of a category outcome: each level a row, the central
+/// 90% and 50% of its row count over the simulated sets as a pale and a
+/// darker band, and the observed count as a dot — hollow inside the outer
+/// band, filled vermillion on a tinted row outside it.
+pub fn level_count_figure(kind: PredictiveKind, subject: &str, outcome: &str, levels: &[LevelCount]) -> Result<String, PlotError> {
+    let figure = kind.title();
+    if levels.is_empty() || levels.iter().any(|l| sorted_finite(&l.replicated).is_empty()) {
+        return Err(PlotError::Empty { figure, what: "the levels' simulated counts".into() });
+    }
+    let band = |l: &LevelCount, mass: f64| {
+        let sorted = sorted_finite(&l.replicated);
+        let tail = (1.0 - mass) / 2.0;
+        (quantile(&sorted, tail), quantile(&sorted, 1.0 - tail))
+    };
+    let label_width = levels.iter().map(|l| text_width(&l.level, MEDIUM)).fold(0.0, f64::max);
+    let left = (label_width + 28.0).min(WIDTH * 0.55);
+    let xs = extent(levels.iter().flat_map(|l| {
+        let (lo, hi) = band(l, OUTER);
+        [lo, hi, l.observed]
+    }).collect::<Vec<f64>>().iter())
+    .unwrap_or((0.0, 1.0));
+    let outer = format!("{}% of simulated sets", (OUTER * 100.0).round());
+    let inner = format!("{}%", (INNER * 100.0).round());
+    let entries = vec![
+        (Key::Swatch(BLUE, 0.2), outer.clone()),
+        (Key::Swatch(BLUE, 0.45), inner),
+        (Key::Dot(INK, false), "observed rows".to_string()),
+    ];
+    let width = WIDTH - left - 20.0;
+    let rows = legend_rows(&entries, width);
+    let top = HEADING + 8.0 + legend_height(rows) + 10.0;
+    let frame = Frame {
+        left,
+        top,
+        width,
+        height: IMPLICATION_ROW * levels.len() as f64,
+        x: padded(xs.0.min(0.0), xs.1, 0.06),
+        y: (0.0, levels.len() as f64),
+    };
+    let outside = levels.iter().filter(|l| {
+        let (lo, hi) = band(l, OUTER);
+        l.observed < lo || l.observed > hi
+    }).count();
+    let desc = format!(
+        "{figure} of {subject}: the rows at each of {} levels of {outcome} against the {outer}; {outside} observed counts fall outside.",
+        levels.len()
+    );
+    let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, figure, subject, &desc);
+    legend(&mut sheet, left, HEADING + 8.0, width, &entries);
+    for (i, l) in levels.iter().enumerate() {
+        let mid = frame.top + IMPLICATION_ROW * (i as f64 + 0.5);
+        let (lo, hi) = band(l, OUTER);
+        let (inner_lo, inner_hi) = band(l, INNER);
+        let missed = l.observed < lo || l.observed > hi;
+        if missed {
+            sheet.push(rect(8.0, mid - IMPLICATION_ROW / 2.0 + 1.0, frame.right() - 8.0, IMPLICATION_ROW - 2.0, VERMILLION).with("fill-opacity", "0.1"));
+        }
+        sheet.push(text(left - 12.0, mid + 4.5, &clip_to_width(&l.level, MEDIUM, left - 20.0), MEDIUM, Anchor::End));
+        sheet.push(rect(frame.px(lo), mid - 7.0, (frame.px(hi) - frame.px(lo)).max(1.0), 14.0, BLUE).with("fill-opacity", "0.2"));
+        sheet.push(rect(frame.px(inner_lo), mid - 7.0, (frame.px(inner_hi) - frame.px(inner_lo)).max(1.0), 14.0, BLUE).with("fill-opacity", "0.45"));
+        let colour = if missed { VERMILLION } else { INK };
+        let dot = circle(frame.px(l.observed), mid, 4.5, if missed { VERMILLION } else { "#FFFFFF" });
+        sheet.push(dot.with("stroke", colour).with("stroke-width", "1.8"));
+    }
+    frame.x_axis(&mut sheet, Some(&format!("rows at the level, of {outcome}")));
+    Ok(sheet.finish())
+}

@@ -33,8 +33,8 @@ mod shrinkage;
 mod trends;
 
 pub use checks::{
-    chain_dashes, implications_figure, mixing_figure, predictive_figure, quantile_bands,
-    rank_bins, rank_departures, ImplicationRow, PredictiveKind,
+    chain_dashes, implications_figure, level_count_figure, mixing_figure, predictive_figure, quantile_bands,
+    rank_bins, rank_departures, ImplicationRow, LevelCount, PredictiveKind,
 };
 pub use graph::{
     graph_figure, layout, EdgeMark, EdgeRoute, GraphLayout, GraphPicture, NodeBox, NodeMark, Role,

@@ -252,20 +252,28 @@ pub fn contrast_grid_figure(
 }
 
 const WEIGHT_PANEL: f64 = 96.0;
-const BAND_MASS: f64 = 0.9;
 
 /// A B-spline fit the way a scientist reads it: the fitted curve (posterior
-/// mean) with its pointwise 90% band over the data, and under it, on the
-/// same axis, a strip with each weight's 90% interval and mean drawn where
-/// its basis function peaks, so a wide or sign-changing weight shows which
-/// stretch of the predictor it governs.
+/// mean) with its pointwise central band of `mass` (0.9 for 90%) over the
+/// data, and under it, on the same axis, a strip with each weight's
+/// interval of the same mass and mean drawn where its basis function
+/// peaks, so a wide or sign-changing weight shows which stretch of the
+/// predictor it governs.
 pub fn spline_figure(
     subject: &str,
     x: &Quantity,
     y: &Quantity,
     p: &BasisPicture,
+    mass: f64,
 ) -> Result<String, PlotError> {
     let figure = "spline fit";
+    if !(mass > 0.0 && mass < 1.0) {
+        return Err(PlotError::OutOfRange {
+            figure,
+            what: format!("an interval mass of {mass}"),
+            fix: "give a mass between 0 and 1 (0.9 for 90%)".into(),
+        });
+    }
     if extent(&p.grid).is_none() || p.basis.is_empty() {
         return Err(PlotError::Empty {
             figure,
@@ -323,7 +331,7 @@ pub fn spline_figure(
             at
         })
         .collect();
-    let tail = (1.0 - BAND_MASS) / 2.0;
+    let tail = (1.0 - mass) / 2.0;
     let mean: Vec<f64> = curves.iter().map(|c| c.iter().sum::<f64>() / draws as f64).collect();
     let lower: Vec<f64> = curves.iter().map(|c| quantile(c, tail)).collect();
     let upper: Vec<f64> = curves.iter().map(|c| quantile(c, 1.0 - tail)).collect();
@@ -359,7 +367,7 @@ pub fn spline_figure(
     let left = left_margin(y_range, true).max(left_margin(w_range, true));
     let width = WIDTH - left - 20.0;
     let colour = series(0);
-    let interval = format!("{}% interval", (BAND_MASS * 100.0).round());
+    let interval = format!("{}% interval", (mass * 1000.0).round() / 10.0);
     let entries = vec![
         (Key::Stroke(colour, 2.4, false), "posterior mean".to_string()),
         (Key::Swatch(colour, 0.25), format!("band: {interval}")),

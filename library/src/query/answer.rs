@@ -27,7 +27,7 @@ use crate::infer::nuts::Progress;
 use crate::model::{Family, Model, ModelSpec};
 use crate::table::{ColumnData, Table};
 
-use super::contrast::{contrast, Contrast, ContrastRequest};
+use super::contrast::{level_contrasts, Contrast, ContrastRequest};
 use super::error::QueryError;
 use super::front_door::front_door_estimate;
 use super::support::require_column;
@@ -189,7 +189,11 @@ pub fn answer_effect_with_progress(
     }
     check_held(kind, set, &options.held, &place)?;
     answer.why.extend(set_reasons(graph, exposure, outcome, set, &identification)?);
-    let family = family_for(table, outcome, &place)?;
+    // a category outcome's model gives each level's share (levels family)
+    let family = match require_column(table, outcome, &place)?.data {
+        ColumnData::Category { .. } => Family::Levels,
+        _ => family_for(table, outcome, &place)?,
+    };
     let mut terms = vec![exposure.to_string()];
     terms.extend(set.iter().cloned());
     for cluster in &options.pooled {
@@ -222,8 +226,11 @@ pub fn answer_effect_with_progress(
     answer.estimand = Some(estimand(kind, &family, set, &options.held));
     answer.contrasts = comparisons(table, exposure, mass, options)?
         .iter()
-        .map(|request| contrast(&model, &fit.draws, table, request))
-        .collect::<Result<_, _>>()?;
+        .map(|request| level_contrasts(&model, &fit.draws, table, request))
+        .collect::<Result<Vec<_>, _>>()?
+        .into_iter()
+        .flatten()
+        .collect();
     answer.adjustment_set = Some(set.clone());
     answer.route = Some("adjustment".into());
     answer.model_text = Some(lines.join("\n"));
@@ -265,8 +272,9 @@ fn check_held(kind: EffectKind, set: &[String], held: &[(String, String)], place
 /// the controlled direct effect at that value (averaged over the rest).
 pub fn estimand(kind: EffectKind, family: &Family, set: &[String], held: &[(String, String)]) -> String {
     let others = || if set.is_empty() { "no other node".to_string() } else { set.join(", ") };
+    let on = if *family == Family::Levels { "each outcome level's probability" } else { "the mean outcome" };
     match kind {
-        EffectKind::Total => format!("average total effect on the mean outcome, standardised over the rows' {}", others()),
+        EffectKind::Total => format!("average total effect on {on}, standardised over the rows' {}", others()),
         EffectKind::Direct if !held.is_empty() => {
             let at: Vec<String> = held.iter().map(|(n, v)| format!("{n} = {v}")).collect();
             let rest: Vec<&str> = set.iter().filter(|s| !held.iter().any(|(n, _)| n == *s)).map(String::as_str).collect();

@@ -119,8 +119,12 @@ pub struct GridPoint {
 /// A contrast: per-draw differences and their summary.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Contrast {
-    /// The contrast in words, e.g. "rootstock standard vs dwarf".
+    /// The contrast in words, e.g. "rootstock standard vs dwarf" (for a
+    /// category outcome followed by the level whose share it compares).
     pub contrast: String,
+    /// For a category outcome, the level whose share (probability) is
+    /// compared; `None` for a numeric or yes/no outcome.
+    pub level: Option<String>,
     pub model: String,
     pub variable: String,
     /// The two settings, as text: `to` minus `from`.
@@ -182,18 +186,46 @@ impl Contrast {
 }
 
 /// Compute the contrast `request` of `model` fitted as `draws` on `table`
-/// (the table the model was built on).
+/// (the table the model was built on). A model of a category outcome has
+/// one contrast per level: ask [`level_contrasts`] for them.
 pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastRequest) -> Result<Contrast, QueryError> {
-    let place = format!("contrast {}", model.name());
     if let Some(levels) = model.outcome_levels() {
         return Err(QueryError::request(format!(
-            "{place}: the outcome {} is a category ({}), and contrasts compare numeric predictions; watch {} \
-             in a joint model's `intervene` for the change in its level shares",
+            "contrast {}: the outcome {} is a category ({}), whose contrasts compare each level's share one by one",
+            model.name(),
             model.outcome_name(),
-            levels.join(", "),
-            model.outcome_name()
+            levels.join(", ")
         )));
     }
+    contrast_of(model, draws, table, request, None)
+}
+
+/// The contrasts of `request`: one for a numeric or yes/no outcome (as
+/// [`contrast`]), and for a category outcome one per level, each the
+/// difference in that level's probability (its expected share of rows),
+/// computed from the same paired draws (on outcomes, the same simulated
+/// levels, so each draw's differences sum to zero across the levels).
+pub fn level_contrasts(model: &Model, draws: &Draws, table: &Table, request: &ContrastRequest) -> Result<Vec<Contrast>, QueryError> {
+    match model.outcome_levels() {
+        Some(levels) => (0..levels.len()).map(|k| contrast_of(model, draws, table, request, Some(k))).collect(),
+        None => Ok(vec![contrast_of(model, draws, table, request, None)?]),
+    }
+}
+
+/// [`contrast`] of the mean, or of the probability of outcome level
+/// `level` (a category outcome).
+fn contrast_of(
+    model: &Model,
+    draws: &Draws,
+    table: &Table,
+    request: &ContrastRequest,
+    level: Option<usize>,
+) -> Result<Contrast, QueryError> {
+    let place = format!("contrast {}", model.name());
+    let level_name = match (level, model.outcome_levels()) {
+        (Some(k), Some(levels)) => Some(levels[k].clone()),
+        _ => None,
+    };
     let predictors = predictor_columns(model);
     let is_predictor = |name: &str| predictors.iter().any(|p| p == name);
     if !is_predictor(&request.variable) {
@@ -250,6 +282,7 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
         from: &from,
         on: request.on,
         new_groups: new_groups.then_some(new_group_seed),
+        level,
     };
     let means = match request.on {
         On::Means => pairing.means(&base)?,
@@ -271,8 +304,18 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
             "each draw compares two outcomes simulated independently at the two settings".into()
         });
     }
+    let scale = match &level_name {
+        Some(l) => level_scale_words(model.outcome_name(), l, request.on),
+        None => scale_words(model, request.on, request.over_rows),
+    };
+    let probability = level.is_some() || is_probability(model, request.on);
+    let compared = format!("{} {} vs {}", request.variable, to.text(), from.text());
     Ok(Contrast {
-        contrast: format!("{} {} vs {}", request.variable, to.text(), from.text()),
+        contrast: match &level_name {
+            Some(l) => format!("{compared}, {} {l}", model.outcome_name()),
+            None => compared,
+        },
+        level: level_name,
         model: model.name().to_string(),
         variable: request.variable.clone(),
         to: to.text(),
@@ -281,9 +324,9 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
             On::Means => "means".into(),
             On::Outcomes { .. } => "outcomes".into(),
         },
-        scale: scale_words(model, request.on, request.over_rows),
-        in_outcome_unit: !is_probability(model, request.on),
-        unit: if is_probability(model, request.on) {
+        scale,
+        in_outcome_unit: !probability,
+        unit: if probability {
             None
         } else {
             table.column(model.outcome_name()).and_then(|c| c.unit.clone())
@@ -448,6 +491,14 @@ pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
     }
 }
 
+/// The scale of a contrast of one level's share of a category outcome.
+fn level_scale_words(y: &str, level: &str, on: On) -> String {
+    match on {
+        On::Means => format!("probability that {y} is {level}"),
+        On::Outcomes { .. } => format!("simulated {y} being {level}, as 1 (yes) or 0 (no)"),
+    }
+}
+
 /// Whether the contrast is on a probability scale rather than in the
 /// outcome's unit.
 fn is_probability(model: &Model, on: On) -> bool {
@@ -529,6 +580,8 @@ struct Pairing<'a> {
     on: On,
     /// The seed of new-group departures, when a pooled group is a new one.
     new_groups: Option<u64>,
+    /// The outcome level whose probability is compared (a category outcome).
+    level: Option<usize>,
 }
 
 impl Pairing<'_> {
@@ -550,7 +603,11 @@ impl Pairing<'_> {
                 let r = if n == 1 { 0 } else { rng.random_range(0..n) };
                 let a = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_to, r), &new, &mut rng)?;
                 let b = self.model.outcome_draw_in_new_groups(theta, &one_row(&rows_from, r), &new, &mut rng)?;
-                Ok(a[0] - b[0])
+                Ok(match self.level {
+                    // a drawn level index against the compared level: 1 or 0
+                    Some(k) => f64::from(u8::from(a[0] as usize == k)) - f64::from(u8::from(b[0] as usize == k)),
+                    None => a[0] - b[0],
+                })
             })
             .collect()
     }
@@ -567,12 +624,23 @@ impl Pairing<'_> {
             .iter()
             .enumerate()
             .map(|(d, theta)| {
-                let new = self.new_group(theta, d);
-                let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
-                let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
+                let (a, b) = match self.level {
+                    Some(k) => (self.level_share(theta, &rows_to, k)?, self.level_share(theta, &rows_from, k)?),
+                    None => {
+                        let new = self.new_group(theta, d);
+                        let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
+                        let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
+                        (a, b)
+                    }
+                };
                 Ok((a.iter().sum::<f64>() / n as f64, b.iter().sum::<f64>() / n as f64))
             })
             .collect()
+    }
+
+    /// Each row's probability of outcome level `k` at parameters `theta`.
+    fn level_share(&self, theta: &[f64], rows: &NewRows, k: usize) -> Result<Vec<f64>, QueryError> {
+        Ok(self.model.level_probabilities(theta, rows)?.iter().map(|p| p[k]).collect())
     }
 
     /// Draw `d`'s departures of a new group in every pooled group (none

@@ -103,6 +103,7 @@ pub fn front_door_estimate(
         let is_probability = matches!(y_family, Family::Bernoulli | Family::Binomial { .. });
         contrasts.push(Contrast {
             contrast: format!("{x} {} vs {}", to.text(), from.text()),
+            level: None,
             model: y_model.name().to_string(),
             variable: x.to_string(),
             to: to.text(),

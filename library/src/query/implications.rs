@@ -4,8 +4,11 @@
 //! one node is regressed on the other and on Z, and the other's
 //! coefficient(s) are read off. The later node `b` is the response when its
 //! kind allows (real → normal, count → poisson, binary or two-level category
-//! → bernoulli), else `a`; a pair of categories with more than two levels
-//! each cannot be checked yet and is said so. The data contradict the
+//! → bernoulli), else `a`; of a pair of categories with more than two
+//! levels each, `b` is the response of a softmax regression and the
+//! associations are the changes in its level shares between the levels of
+//! `a`, averaged over rows (coefficients of a softmax regression are log
+//! odds against a reference level, harder to read). The data contradict the
 //! implication when an interval of the coefficient excludes zero; at a 90%
 //! interval about one check in ten is flagged by chance when the graph is
 //! right (more for a category with several levels, one interval per level).
@@ -20,6 +23,7 @@ use crate::model::{Model, ModelSpec};
 use crate::table::{Column, ColumnData, Table};
 
 use super::answer::family_for;
+use super::contrast::{level_contrasts, ContrastRequest};
 use super::error::QueryError;
 use super::support::{interval_words, require_column, with_column, ContrastSummary};
 
@@ -139,7 +143,7 @@ fn check_one(
     } else if response_kind_ok(table, a) {
         (a, b)
     } else {
-        return Err(format!("{a} and {b} are both categories with more than two levels, which cannot be checked yet"));
+        return check_categories(table, a, b, given, method, cancel, mass);
     };
     let (data, note) = as_binary_if_two_levels(table, response);
     let family = family_for(&data, response, "implications").map_err(|e| e.to_string())?;
@@ -156,6 +160,44 @@ fn check_one(
     let fit = fit_model(&model, method, cancel, &|_| {}).map_err(|e| format!("the regression could not be fitted: {e}"))?;
     let associations = associations(&model, &fit.draws, predictor, mass).map_err(|e| e.to_string())?;
     Ok((regression, associations, note))
+}
+
+/// The check of two categories with more than two levels each: `b` is the
+/// response of a levels-family (softmax) regression on `a` and the given
+/// nodes, and the associations are the changes in each level's share of
+/// `b` between each level of `a` and its first, averaged over the rows
+/// (all zero when the implication holds).
+fn check_categories(
+    table: &Table,
+    a: &str,
+    b: &str,
+    given: &[String],
+    method: &Method,
+    cancel: &AtomicBool,
+    mass: f64,
+) -> Result<(String, Vec<Association>, Option<String>), String> {
+    let mut terms = vec![a.to_string()];
+    terms.extend(given.iter().cloned());
+    let regression = format!("{b} from {}", terms.join(", "));
+    let lines = [format!("{regression} using {}", table.name), format!("family {}", crate::model::Family::Levels.name())];
+    let spec = ModelSpec::from_lines("implication", lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))
+        .map_err(|e| e.to_string())?;
+    let model = Model::build(&spec, table).map_err(|e| format!("the regression could not be built: {e}"))?;
+    let fit = fit_model(&model, method, cancel, &|_| {}).map_err(|e| format!("the regression could not be fitted: {e}"))?;
+    let levels = require_column(table, a, "implications").map_err(|e| e.to_string())?.data.levels().unwrap_or_default().to_vec();
+    let mut associations = Vec::new();
+    for level in levels.iter().skip(1) {
+        let request = ContrastRequest { over_rows: true, mass, ..ContrastRequest::new(a) }.between(level.clone(), levels[0].clone());
+        for c in level_contrasts(&model, &fit.draws, table, &request).map_err(|e| e.to_string())? {
+            let share = c.level.unwrap_or_default();
+            associations.push(Association { label: format!("{b} {share}: {a} {level} vs {}", levels[0]), mean: c.mean, lower: c.lower, upper: c.upper });
+        }
+    }
+    let note = format!(
+        "{b} and {a} both have more than two levels: each association is the change in one level's share of {b} between \
+         a level of {a} and its first, averaged over the rows (softmax regression)"
+    );
+    Ok((regression, associations, Some(note)))
 }
 
 /// Whether a node can be the response of a check.

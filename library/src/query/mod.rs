@@ -46,7 +46,7 @@ mod support;
 
 pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectAnswer};
 pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
-pub use contrast::{contrast, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
+pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RISK_RATIO_STEPS};
 pub use error::QueryError;
 pub use front_door::{front_door_estimate, FrontDoorFit, FRONT_DOOR_SEED};

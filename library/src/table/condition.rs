@@ -35,6 +35,16 @@ pub enum Comparison {
 }
 
 impl Comparison {
+    /// Every comparison, in the order completion offers their symbols.
+    pub const ALL: [Comparison; 6] = [
+        Comparison::Equal,
+        Comparison::NotEqual,
+        Comparison::Less,
+        Comparison::LessOrEqual,
+        Comparison::Greater,
+        Comparison::GreaterOrEqual,
+    ];
+
     /// The operator as written in a cell.
     pub fn symbol(self) -> &'static str {
         match self {

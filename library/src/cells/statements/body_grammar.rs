@@ -1,5 +1,5 @@
 //! What may follow the words typed so far in a body line of a block
-//! statement (`model`, `joint`, `table`, `simulate`).
+//! statement (`model`, `joint`, `table`, `simulate`, `graph`).
 //!
 //! Each body line is read by its own parser (`model::spec`, `table::rules`
 //! and `table::condition`, `query::mechanism`); those parsers keep their
@@ -17,7 +17,8 @@ use crate::model::spec::{
 };
 use crate::model::PriorGroup;
 use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
-use crate::table::condition::{AND, NOT, OR};
+use crate::graph::{ARROW, HIDDEN};
+use crate::table::condition::{Comparison, AND, NOT, OR};
 use crate::table::rules::{CATEGORY, DROP, IN, KEEP, KINDS, MISSING, WHERE};
 
 /// The block statements whose body lines have words of their own.
@@ -27,6 +28,7 @@ pub enum Block {
     Joint,
     Table,
     Simulate,
+    Graph,
 }
 
 impl Block {
@@ -37,6 +39,7 @@ impl Block {
             "joint" => Some(Block::Joint),
             "table" => Some(Block::Table),
             "simulate" => Some(Block::Simulate),
+            "graph" => Some(Block::Graph),
             _ => None,
         }
     }
@@ -50,6 +53,7 @@ pub fn body_next_words(block: Block, typed: &str) -> Next {
         Block::Model | Block::Joint => model_line(typed),
         Block::Table => table_line(typed),
         Block::Simulate => mechanism_line(typed),
+        Block::Graph => graph_line(typed),
     }
 }
 
@@ -58,7 +62,7 @@ fn words_of(typed: &str) -> Vec<&str> {
 }
 
 fn next(words: &[&'static str], calls: &[&'static str], values: bool) -> Next {
-    Next { words: words.to_vec(), calls: calls.to_vec(), values }
+    Next { words: words.to_vec(), calls: calls.to_vec(), values, names: Vec::new() }
 }
 
 /// A `model` (or `joint`) body line: family, prior, centre or outcome line.
@@ -73,7 +77,7 @@ fn model_line(typed: &str) -> Next {
         [PRIOR_LINE] => {
             let mut words = PriorGroup::words();
             words.push(POOLED_CORRELATIONS);
-            Next { words, calls: Vec::new(), values: false }
+            next(&words, &[], false)
         }
         [PRIOR_LINE, pooled, correlations, ":"] if format!("{pooled} {correlations}") == POOLED_CORRELATIONS => {
             next(&[], &[LKJ], false)
@@ -156,7 +160,7 @@ fn table_line(typed: &str) -> Next {
         [KEEP, WHERE, condition @ ..] => condition_next(condition),
         [_, ":"] => {
             let kinds: Vec<&'static str> = KINDS.iter().map(|(w, _)| *w).collect();
-            Next { words: kinds, calls: vec![CATEGORY], values: false }
+            next(&kinds, &[CATEGORY], false)
         }
         [_, ":", ..] if open_call(typed).is_some() => next(&[], &[], true),
         [_, ":", _] => next(&[IN], &[], false),
@@ -177,7 +181,20 @@ fn condition_next(words: &[&str]) -> Next {
         Some(w) if is_joint(w) => next(&[NOT], &[], true),
         Some(w) if is_operator(w) => next(&[], &[], true),
         Some(_) if words.len() >= 2 && is_operator(words[words.len() - 2]) => next(&[AND, OR], &[], false),
-        Some(_) => Next::default(),
+        // a column: its comparison
+        Some(_) => next(&Comparison::ALL.map(Comparison::symbol), &[], false),
+    }
+}
+
+/// A `graph` body line: `[hidden] a -> b, c -> d`, node names joined by
+/// arrows, several nodes at one step separated by commas.
+fn graph_line(typed: &str) -> Next {
+    let words = words_of(typed);
+    let after_name = words.last().is_some_and(|w| *w != HIDDEN && *w != ARROW) && !typed.trim_end().ends_with(',');
+    match words.as_slice() {
+        [] => next(&[HIDDEN], &[], true),
+        _ if after_name => next(&[ARROW, ","], &[], false),
+        _ => next(&[], &[], true),
     }
 }
 

@@ -497,6 +497,14 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         }
         Err(_) => return Err(form_error(st, PLOT.usage)),
     };
+    let (mass, rest) = interval_option(rest, st.header.number)?;
+    if mass.is_some() && !matches!(kind, "lines" | "spline") {
+        return Err(CellError::at(
+            st.header.number,
+            format!("`intervals` sets the bands of the lines and spline figures; the form is: {}", PLOT.usage),
+        ));
+    }
+    let rest = rest.as_str();
     let (chosen, over) = match (kind, option_text(rest, "over"), option_text(rest, "of")) {
         _ if rest.is_empty() => (Vec::new(), None),
         ("lines", Some(x), _) if !x.is_empty() && !x.contains(char::is_whitespace) => (Vec::new(), Some(x)),
@@ -513,11 +521,13 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
     let model = &session.models[name];
     if matches!(kind, "lines" | "spline") {
         let table = session.require_table(model.table_name(), st.header.number)?;
+        let mass = session.interval_mass(mass);
+        let pct = crate::model::prior::short_number(mass * 100.0);
         let (svg, note) = if kind == "lines" {
-            figures::lines(model, fit, table, over)
+            figures::lines(model, fit, table, over, mass)
         } else {
-            figures::spline(model, fit, table).map(|svg| {
-                (svg, "the fitted curve (posterior mean) with its 90% band over the data; below, each weight's 90% interval at the peak of its basis function".to_string())
+            figures::spline(model, fit, table, mass).map(|svg| {
+                (svg, format!("the fitted curve (posterior mean) with its {pct}% band over the data; below, each weight's {pct}% interval at the peak of its basis function"))
             })
         }
         .map_err(|e| CellError::at(st.header.number, e))?;

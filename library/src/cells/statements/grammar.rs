@@ -21,8 +21,41 @@ pub enum Slot {
     Choice(&'static [&'static str]),
     /// A word the user chooses (a name, a level, a number); kept.
     Value,
+    /// A name of one kind (a table, a column of the header's table …);
+    /// kept. Read like [`Slot::Value`]; completion offers only such names.
+    Name(Names),
     /// The rest of the header as written (a quoted file path); kept. Last.
     Quoted,
+}
+
+/// The kind of name a [`Slot::Name`] place takes.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Names {
+    /// Any name, level or number (every name of the session fits).
+    Any,
+    /// A name the statement gives (nothing to offer).
+    New,
+    Table,
+    Graph,
+    /// A model (or joint model) of the session.
+    Model,
+    /// A column of the table or model named earlier in the header.
+    Column,
+    /// A node of the graph named in the header.
+    Node,
+    /// A level of the column or node named just before (in a `b vs a`
+    /// pair, the last column or node named).
+    Level,
+}
+
+/// A kind of name wanted at the cursor, with the names typed earlier in
+/// the header that it belongs to: for a column, the table or model; for a
+/// node, the graph; for a level, the column or node first, then the table
+/// or model.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Wanted {
+    pub names: Names,
+    pub of: Vec<String>,
 }
 
 impl Slot {
@@ -30,8 +63,13 @@ impl Slot {
         match self {
             Slot::Word(w) => *w == word,
             Slot::Choice(ws) => ws.contains(&word),
-            Slot::Value | Slot::Quoted => true,
+            Slot::Value | Slot::Name(_) | Slot::Quoted => true,
         }
+    }
+
+    /// Whether the place takes a word the user chooses.
+    fn is_value(&self) -> bool {
+        matches!(self, Slot::Value | Slot::Name(_))
     }
 
     fn kept(&self) -> bool {
@@ -43,12 +81,13 @@ impl Slot {
         match self {
             Slot::Word(w) => vec![*w],
             Slot::Choice(ws) => ws.to_vec(),
-            Slot::Value | Slot::Quoted => Vec::new(),
+            Slot::Value | Slot::Name(_) | Slot::Quoted => Vec::new(),
         }
     }
 }
 
-use Slot::{Choice, Quoted, Value, Word};
+use Slot::{Choice, Name, Quoted, Value, Word};
+use Names::{Column as Col, Graph as Gr, Level as Lv, Model as Md, New, Node as Nd, Table as Tb};
 use crate::infer::nuts::MASS_WORDS;
 
 /// The grammar of one statement header.
@@ -189,17 +228,17 @@ pub const INTERVALS: Form = Form {
 };
 
 pub const TABLE: Form = Form {
-    slots: &[Word("table"), Value, Word("from"), Quoted],
+    slots: &[Word("table"), Name(New), Word("from"), Quoted],
     options: &[],
     method: false,
     usage: "table NAME from \"FILE.csv\"  (end with ':' to declare columns, `drop missing`, `keep where …` below)",
 };
 const GRAPH_USAGE: &str = "graph NAME:  (with edges such as `a -> b -> c` below)  or  graph NAME from \"FILE.dot\"";
-pub const GRAPH: Form = Form { slots: &[Word("graph"), Value], options: &[], method: false, usage: GRAPH_USAGE };
+pub const GRAPH: Form = Form { slots: &[Word("graph"), Name(New)], options: &[], method: false, usage: GRAPH_USAGE };
 pub const GRAPH_FILE: Form =
-    Form { slots: &[Word("graph"), Value, Word("from"), Quoted], options: &[], method: false, usage: GRAPH_USAGE };
+    Form { slots: &[Word("graph"), Name(New), Word("from"), Quoted], options: &[], method: false, usage: GRAPH_USAGE };
 const ASK_SLOTS: [Slot; 9] =
-    [Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value];
+    [Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Name(Nd), Word("on"), Name(Nd), Word("in"), Name(Gr)];
 pub const ASK: Form = Form {
     slots: &ASK_SLOTS,
     options: &[],
@@ -208,35 +247,35 @@ pub const ASK: Form = Form {
 };
 pub const ASK_USING: Form = Form {
     slots: &[
-        Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Value, Word("on"), Value, Word("in"), Value,
-        Word("using"), Value,
+        Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Name(Nd), Word("on"), Name(Nd), Word("in"), Name(Gr),
+        Word("using"), Name(Tb),
     ],
-    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Value, Value], &[Word("pooling"), Value], INTERVALS_OPTION],
+    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Name(Nd), Name(Lv)], &[Word("pooling"), Name(Col)], INTERVALS_OPTION],
     method: true,
     usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [pooling COLUMN …] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const PATHS: Form = Form {
-    slots: &[Word("paths"), Word("from"), Value, Word("to"), Value, Word("in"), Value],
-    options: &[&[Word("given"), Value]],
+    slots: &[Word("paths"), Word("from"), Name(Nd), Word("to"), Name(Nd), Word("in"), Name(Gr)],
+    options: &[&[Word("given"), Name(Nd)]],
     method: false,
     usage: "paths from X to Y in GRAPH [given A, B]",
 };
 pub const IMPLICATIONS: Form =
-    Form { slots: &[Word("implications"), Word("of"), Value], options: &[], method: false, usage: "implications of GRAPH" };
+    Form { slots: &[Word("implications"), Word("of"), Name(Gr)], options: &[], method: false, usage: "implications of GRAPH" };
 pub const IMPLICATIONS_CHECKED: Form = Form {
-    slots: &[Word("implications"), Word("of"), Value, Word("checked"), Word("against"), Value],
+    slots: &[Word("implications"), Word("of"), Name(Gr), Word("checked"), Word("against"), Name(Tb)],
     options: &[INTERVALS_OPTION],
     method: true,
     usage: "implications of GRAPH checked against TABLE [intervals P%] [with laplace …|with nuts …]",
 };
 pub const MODEL: Form = Form {
-    slots: &[Word("model"), Value],
+    slots: &[Word("model"), Name(New)],
     options: &[],
     method: false,
     usage: "model NAME:  (then indented: `Y from TERMS using TABLE`, optional `family …`, `prior GROUP: dist(…)`)",
 };
 pub const FIT: Form = Form {
-    slots: &[Word("fit"), Value],
+    slots: &[Word("fit"), Name(Md)],
     options: &[INTERVALS_OPTION],
     method: true,
     usage: "fit NAME [intervals P%] [with laplace [draws N] [seed N] | with nuts [chains N] [settle N] [draws N] [acceptance P] [doublings N] [mass diagonal|low-rank] [seed N]]",
@@ -244,16 +283,16 @@ pub const FIT: Form = Form {
 pub const SHOW: Form =
     Form { slots: &[Word("show"), Value], options: &[INTERVALS_OPTION], method: false, usage: "show NAME [intervals P%]" };
 pub const EXPORT: Form = Form {
-    slots: &[Word("export"), Value, Word("draws"), Word("to"), Quoted],
+    slots: &[Word("export"), Name(Md), Word("draws"), Word("to"), Quoted],
     options: &[],
     method: false,
     usage: "export NAME draws to \"FILE.csv\"",
 };
 pub const PLOT: Form = Form {
-    slots: &[Word("plot"), Value, Choice(PLOT_KINDS)],
-    options: &[&[Word("of"), Value], &[Word("over"), Value]],
+    slots: &[Word("plot"), Name(Md), Choice(PLOT_KINDS)],
+    options: &[&[Word("of"), Value], &[Word("over"), Name(Col)], INTERVALS_OPTION],
     method: false,
-    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X]  or  plot NAME spline|prior|check  or  plot NAME shrinkage [of GROUP]",
+    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X] [intervals P%]  or  plot NAME spline [intervals P%]  or  plot NAME prior|check  or  plot NAME shrinkage [of GROUP]",
 };
 pub const SAVE: Form = Form {
     slots: &[Word("save"), Word("figure"), Word("to"), Quoted],
@@ -264,8 +303,8 @@ pub const SAVE: Form = Form {
 const CONTRAST_OPTIONS: &[&[Slot]] = &[
     &[Word("on"), Choice(&["outcomes", "means"])],
     SEED,
-    &[Word("at"), Value, Value],
-    &[Word("along"), Value, Word("from"), Value, Word("to"), Value],
+    &[Word("at"), Name(Col), Name(Lv)],
+    &[Word("along"), Name(Col), Word("from"), Value, Word("to"), Value],
     &[Word("by"), Value],
     &[Word("over"), Word("rows")],
     INTERVALS_OPTION,
@@ -274,60 +313,60 @@ const CONTRAST_USAGE: &str =
     "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows] [intervals P%]";
 /// `contrast MODEL: X [options]` (one step of X).
 pub const CONTRAST: Form = Form {
-    slots: &[Word("contrast"), Value, Word(":"), Value],
+    slots: &[Word("contrast"), Name(Md), Word(":"), Name(Col)],
     options: CONTRAST_OPTIONS,
     method: false,
     usage: CONTRAST_USAGE,
 };
 /// `contrast MODEL: X b vs a [options]` (two settings of X).
 pub const CONTRAST_BETWEEN: Form = Form {
-    slots: &[Word("contrast"), Value, Word(":"), Value, Value, Word("vs"), Value],
+    slots: &[Word("contrast"), Name(Md), Word(":"), Name(Col), Name(Lv), Word("vs"), Name(Lv)],
     options: CONTRAST_OPTIONS,
     method: false,
     usage: CONTRAST_USAGE,
 };
 pub const COMPARE_ROUTES: Form = Form {
     slots: &[
-        Word("compare"), Word("routes"), Word("for"), Word("total"), Word("effect"), Word("of"), Value, Word("on"), Value,
-        Word("in"), Value, Word("using"), Value,
+        Word("compare"), Word("routes"), Word("for"), Word("total"), Word("effect"), Word("of"), Name(Nd), Word("on"), Name(Nd),
+        Word("in"), Name(Gr), Word("using"), Name(Tb),
     ],
-    options: &[&[Word("setting"), Value, Word("vs"), Value], INTERVALS_OPTION],
+    options: &[&[Word("setting"), Name(Lv), Word("vs"), Name(Lv)], INTERVALS_OPTION],
     method: true,
     usage: "compare routes for total effect of X on Y in GRAPH using TABLE [setting v1 vs v0] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const JOINT: Form = Form {
-    slots: &[Word("joint"), Value, Word("="), Value, Word("using"), Value],
+    slots: &[Word("joint"), Name(New), Word("="), Name(Gr), Word("using"), Name(Tb)],
     options: &[],
     method: false,
     usage: "joint NAME = GRAPH using TABLE  (end with ':' to override a node below, e.g. `girth from rootstock`)",
 };
 /// `robustness of MODEL: X` — the contrast under an assumed hidden common cause.
 pub const ROBUSTNESS: Form = Form {
-    slots: &[Word("robustness"), Word("of"), Value, Word(":"), Value],
+    slots: &[Word("robustness"), Word("of"), Name(Md), Word(":"), Name(Col)],
     options: &[INTERVALS_OPTION],
     method: false,
     usage: "robustness of MODEL: X [intervals P%]",
 };
 pub const INTERVENE: Form = Form {
-    slots: &[Word("intervene"), Value, Word(":"), Word("set"), Value, Value, Word("vs"), Value, Word("watch")],
+    slots: &[Word("intervene"), Name(Md), Word(":"), Word("set"), Name(Col), Name(Lv), Word("vs"), Name(Lv), Word("watch")],
     options: &[&[Word("rows"), Value], SEED, INTERVALS_OPTION],
     method: false,
     usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S] [intervals P%]",
 };
 pub const SIMULATE: Form = Form {
-    slots: &[Word("simulate"), Value, Word("from"), Value, Word("rows"), Value, Word("seed"), Value],
+    slots: &[Word("simulate"), Name(New), Word("from"), Name(Gr), Word("rows"), Value, Word("seed"), Value],
     options: &[],
     method: false,
     usage: "simulate NAME from GRAPH rows N seed S:  (then one mechanism per node, e.g. `girth = normal(28, 4)`)",
 };
 pub const RECOVER: Form = Form {
-    slots: &[Word("recover"), Value, Word("on"), Value],
+    slots: &[Word("recover"), Name(Md), Word("on"), Value],
     options: &[INTERVALS_OPTION],
     method: true,
     usage: "recover MODEL on SIMULATION [intervals P%] [with laplace …|with nuts …]",
 };
 pub const CALIBRATE: Form = Form {
-    slots: &[Word("calibrate"), Value, Word("reps"), Value],
+    slots: &[Word("calibrate"), Name(Md), Word("reps"), Value],
     options: &[SEED],
     method: true,
     usage: "calibrate MODEL reps R [seed S] [with laplace …|with nuts …]",
@@ -335,8 +374,8 @@ pub const CALIBRATE: Form = Form {
 const CHECK_USAGE: &str = "prior check MODEL [sets N] [seed S]  or  check MODEL [sets N] [seed S]";
 const CHECK_OPTIONS: &[&[Slot]] = &[&[Word("sets"), Value], SEED];
 pub const PRIOR_CHECK: Form =
-    Form { slots: &[Word("prior"), Word("check"), Value], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
-pub const CHECK: Form = Form { slots: &[Word("check"), Value], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
+    Form { slots: &[Word("prior"), Word("check"), Name(Md)], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
+pub const CHECK: Form = Form { slots: &[Word("check"), Name(Md)], options: CHECK_OPTIONS, method: false, usage: CHECK_USAGE };
 
 /// The option of `score predictions of …` that bounds the exact refits.
 pub const REFITS_WORD: &str = "refits";
@@ -369,14 +408,16 @@ pub fn statement_words() -> Vec<&'static str> {
     words
 }
 
-/// What may come next in a header or a body line: fixed words, calls
-/// (words written with an opening bracket, such as `normal(`), and whether
-/// a value (a name, a column, a level) fits there.
+/// What may come next in a header or a body line: fixed words and
+/// symbols (`:`, `,`, `->`, `<=` …), calls (words written with an opening
+/// bracket, such as `normal(`), whether a value (a name, a column, a level)
+/// fits there, and which kinds of name do (none listed: any name).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Next {
     pub words: Vec<&'static str>,
     pub calls: Vec<&'static str>,
     pub values: bool,
+    pub names: Vec<Wanted>,
 }
 
 impl Next {
@@ -388,40 +429,74 @@ impl Next {
         }
     }
 
-    fn slot(&mut self, slot: &Slot) {
+    /// The place `slot`, after the words `filled` typed in the places
+    /// before it.
+    fn slot(&mut self, slot: &Slot, filled: &[(Slot, &str)]) {
         match slot {
-            Value | Quoted => self.values = true,
+            Value | Quoted => self.want(Wanted { names: Names::Any, of: Vec::new() }),
+            Name(names) => self.want(wanted(*names, filled)),
             other => self.add(&other.words()),
         }
     }
+
+    fn want(&mut self, wanted: Wanted) {
+        self.values = true;
+        if !self.names.contains(&wanted) {
+            self.names.push(wanted);
+        }
+    }
+}
+
+/// The names a place of kind `names` takes, given the words typed in the
+/// places before it (see [`Wanted`]).
+fn wanted(names: Names, filled: &[(Slot, &str)]) -> Wanted {
+    let typed_in = |kinds: &[Names]| -> Vec<String> {
+        filled.iter().filter(|(s, _)| matches!(s, Name(n) if kinds.contains(n))).map(|(_, w)| w.to_string()).collect()
+    };
+    let of = match names {
+        Col => typed_in(&[Tb, Md]),
+        Nd => typed_in(&[Gr]),
+        Lv => {
+            // the column or node just named, else the first one named (`x b vs a`)
+            let named = match filled.last() {
+                Some((Name(Col | Nd), w)) => Some(w.to_string()),
+                _ => typed_in(&[Col, Nd]).into_iter().next(),
+            };
+            named.into_iter().chain(typed_in(&[Tb, Md])).collect()
+        }
+        _ => Vec::new(),
+    };
+    Wanted { names, of }
 }
 
 /// What may follow `typed`, the complete words of a header before the
 /// cursor, by every form whose places those words fill.
 pub fn next_words(typed: &str) -> Next {
     let words: Vec<&str> = tokens(typed).into_iter().map(|(_, w)| w).collect();
+    let after_comma = typed.trim_end().ends_with(',');
     let mut next = Next::default();
     for form in FORMS {
         let fixed = form.slots.len().min(words.len());
         // a value place is not taken by a word that starts an option of the form
-        let fits = |slot: &Slot, w: &&str| slot.accepts(w) && !(*slot == Value && is_option_word(form, w));
+        let fits = |slot: &Slot, w: &&str| slot.accepts(w) && !(slot.is_value() && is_option_word(form, w));
         if !form.slots.iter().zip(&words).all(|(slot, w)| fits(slot, w)) {
             continue;
         }
         if form.slots[..fixed].contains(&Quoted) {
             continue;
         }
+        let filled: Vec<(Slot, &str)> = form.slots.iter().copied().zip(words.iter().copied()).collect();
         match form.slots.get(words.len()) {
-            Some(slot) => next.slot(slot),
-            None => after_fixed(form, &words[fixed..], &mut next),
+            Some(slot) => next.slot(slot, &filled),
+            None => after_fixed(form, &filled, &words[fixed..], after_comma, &mut next),
         }
     }
     next
 }
 
-/// What may come once the fixed places of `form` are filled and `tail`
-/// words follow.
-fn after_fixed(form: &Form, tail: &[&str], next: &mut Next) {
+/// What may come once the fixed places of `form` are filled (`filled`)
+/// and `tail` words follow; `after_comma` when the text typed ends in one.
+fn after_fixed(form: &Form, filled: &[(Slot, &str)], tail: &[&str], after_comma: bool, next: &mut Next) {
     if form.method {
         if let Some(at) = tail.iter().position(|w| *w == "with") {
             return method_next(&tail[at + 1..], next);
@@ -430,23 +505,26 @@ fn after_fixed(form: &Form, tail: &[&str], next: &mut Next) {
     if form.options.is_empty() && !form.method {
         return;
     }
+    // the option being read and how many of its words are typed (a list
+    // such as `given A, B` or `at z 2, w 3` repeats its values past the end)
     let mut inside: Option<(&[Slot], usize)> = None;
     let mut used: Vec<&str> = Vec::new();
+    let mut typed: Vec<(Slot, &str)> = filled.to_vec();
     for w in tail {
         inside = match inside {
             Some((option, k)) if k < option.len() && option[k].accepts(w) => Some((option, k + 1)),
-            // a list goes on after an option that ends in a value (`given A, B`)
-            Some((option, k)) if k == option.len() && option[k - 1] == Value && !is_option_word(form, w) => {
-                Some((option, k))
-            }
+            Some((option, k)) if k >= option.len() && is_list(option) && !is_option_word(form, w) => Some((option, k + 1)),
             _ => form.options.iter().find(|o| o[0].accepts(w)).map(|o| (*o, 1)),
         };
-        if let Some((option, 1)) = inside {
-            used.extend(option[0].words());
+        if let Some((option, k)) = inside {
+            typed.push((place(option, k - 1), *w));
+            if k == 1 {
+                used.extend(option[0].words());
+            }
         }
     }
     match inside {
-        Some((option, k)) if k < option.len() => next.slot(&option[k]),
+        Some((option, k)) if k < option.len() => next.slot(&option[k], &typed),
         _ => {
             let open: Vec<&'static str> = form.option_words().into_iter().filter(|w| !used.contains(w)).collect();
             next.add(&open);
@@ -455,8 +533,39 @@ fn after_fixed(form: &Form, tail: &[&str], next: &mut Next) {
             }
             // a list of values goes on after an option ending in a value
             // (`given A, B`) or after fixed places ending in a word (`watch Y, Z`)
-            next.values |= inside.is_some_and(|(option, k)| option[k - 1] == Value) || matches!(form.slots.last(), Some(Word(_)));
+            let (list, boundary) = match inside {
+                Some((option, k)) if is_list(option) => (Some(place(option, k)), (k - 1) % (option.len() - 1) == 0),
+                None if matches!(form.slots.last(), Some(Word(_))) => (Some(Value), true),
+                _ => (None, false),
+            };
+            if let Some(slot) = list {
+                let before: Vec<(Slot, &str)> = match slot {
+                    // a level's column is the word just typed, not the list's last
+                    Name(Lv) => typed.clone(),
+                    _ => filled.to_vec(),
+                };
+                next.slot(&slot, &before);
+                let names_a_list = matches!(slot, Name(_)) || inside.is_none();
+                if names_a_list && boundary && !after_comma && !tail.is_empty() {
+                    next.add(&[","]);
+                }
+            }
         }
+    }
+}
+
+/// Whether an option takes a list: its places after the first word are values.
+fn is_list(option: &[Slot]) -> bool {
+    option.len() >= 2 && option[1..].iter().all(Slot::is_value)
+}
+
+/// The place of an option's `i`-th word (0 is the option word), its values
+/// repeating past the end for a list.
+fn place(option: &[Slot], i: usize) -> Slot {
+    if i < option.len() {
+        option[i]
+    } else {
+        option[1 + (i - 1) % (option.len() - 1)]
     }
 }
 

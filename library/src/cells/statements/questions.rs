@@ -184,8 +184,65 @@ pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Disp
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];
     let table = session.require_table(model.table_name(), line)?;
-    let c = crate::query::contrast(model, &fit.draws, table, &request).map_err(|e| query_error(e, line))?;
-    Ok(vec![describe_contrast(&c, table, model.outcome_name(), &[])])
+    let contrasts = crate::query::level_contrasts(model, &fit.draws, table, &request).map_err(|e| query_error(e, line))?;
+    Ok(vec![match contrasts.as_slice() {
+        [c] => describe_contrast(c, table, model.outcome_name(), &[]),
+        levels => describe_level_contrasts(levels, table, model.outcome_name()),
+    }])
+}
+
+/// The display of the per-level contrasts of a category outcome: one row
+/// per level (and, along a grid, one line per level), each the change in
+/// that level's probability.
+fn describe_level_contrasts(cs: &[Contrast], table: &Table, outcome: &str) -> Display {
+    let first = &cs[0];
+    let compared = format!("{} {} vs {}", first.variable, first.to, first.from);
+    let heading = format!(
+        "contrast {}: {compared} on the share of each level of {outcome} ({} levels, {} interval)",
+        first.model,
+        cs.len(),
+        crate::model::prior::short_number(first.mass * 100.0) + "%"
+    );
+    let level_head = format!("level of {outcome}");
+    let mut grid = summary_grid(&[level_head.as_str(), "scale"], first.mass);
+    for c in cs {
+        let mut row = vec![c.level.clone().unwrap_or_default(), c.scale.clone()];
+        row.extend(summary_cells(&c.summary(), None));
+        grid.push(row);
+    }
+    let mut grids = vec![(String::new(), grid)];
+    if let Some(x) = &first.along {
+        let (lower, upper) = bounds(first.mass);
+        let mut g = Grid::new(&[x.as_str(), "level", "mean", &lower, &upper, ABOVE_ZERO_HEAD]).numeric_columns(&[0, 2, 3, 4, 5]);
+        for c in cs {
+            for p in &c.grid {
+                let level = c.level.clone().unwrap_or_default();
+                g.push(vec![num(p.x), level, num(p.mean), num(p.lower), num(p.upper), share_above_zero(p.share_above_zero)]);
+            }
+        }
+        grids.push((format!("along the grid (the rows above are at {}):", held_value_phrase(first, table, x)), g));
+    }
+    let mut notes = vec![first.held_how.clone()];
+    notes.extend(first.notes.iter().cloned());
+    notes.push(format!(
+        "{} draws; in each draw the level probabilities at both settings are subtracted level by level, so the changes sum to zero across the levels; summarised last ({})",
+        first.draws.len(),
+        first.interval
+    ));
+    if let Some(seed) = first.seed {
+        notes.push(format!("simulated outcomes use seed {seed}"));
+    }
+    notes.push(CAUSAL_NOTE.to_string());
+    let sparse: Vec<String> = sparse_levels(first, table);
+    let lead: Vec<String> = if sparse.is_empty() { Vec::new() } else { vec![sparse_alert(&sparse)] };
+    let grid_refs: Vec<(&str, &Grid)> = grids.iter().map(|(t, g)| (t.as_str(), g)).collect();
+    let (plain, html) = render(&heading, &lead, &grid_refs, &notes);
+    let svg = figures::level_contrasts(cs, table, outcome).ok();
+    let json = json!({
+        "model": first.model, "outcome": outcome, "contrast": compared, "interval_mass": first.mass,
+        "levels": cs.iter().map(to_json).collect::<Vec<_>>(), "sparse": !sparse.is_empty(), "sparse_levels": sparse,
+    });
+    Display { plain, html: Some(html), svg, json: Some(json) }
 }
 
 /// Read the part of a contrast header after the predictor: its options
@@ -519,6 +576,15 @@ pub(crate) fn compare_routes(
     };
     if answer.route.as_deref() == Some("front door") {
         return Ok(vec![front_door_only(&answer, x, y, g, mass)]);
+    }
+    if adjustment.level.is_some() {
+        return Err(CellError::at(
+            line,
+            format!(
+                "{y} is a category: compare routes compares one number per route; `ask total effect of {x} on {y} in {g} using {t}` \
+                 gives each level's share by adjustment, and `intervene` on a joint model watches the same shares"
+            ),
+        ));
     }
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
     let node_progress = joint_progress(control, &label, "joint model, ");

@@ -43,8 +43,9 @@ const TRUTH_ROWS: usize = 20_000;
 const DEFAULT_SETS: usize = 200;
 /// The most outcome sets a predictive check draws (each is a full set of rows).
 const MAX_SETS: u64 = 100_000;
-/// Most parameters drawn in a joint model's posterior figure.
-const FIGURE_PARAMETERS: usize = 10;
+/// Most coefficients drawn in one node's figure of a joint fit (the
+/// estimates table lists them all).
+const NODE_FIGURE_COEFFICIENTS: usize = 40;
 
 fn laplace_default() -> Method {
     Method::Laplace { draws: LAPLACE_DRAWS, seed: LAPLACE_SEED }
@@ -136,11 +137,9 @@ pub(crate) fn fit_joint(
     let spec = SummarySpec { mass, hdi: false };
     let mut nodes_json = Vec::new();
     let mut notes = Vec::new();
-    let mut figure_names: Vec<(String, usize, usize)> = Vec::new();
-    let mut drawable = 0;
     let mut node_summaries = Vec::new();
     let mut fitted = Vec::new();
-    for (k, (node, node_fit)) in joint.nodes.iter().zip(&fit.fits).enumerate() {
+    for (node, node_fit) in joint.nodes.iter().zip(&fit.fits) {
         let Some(f) = node_fit else {
             let how = match &node.model {
                 NodeModel::LevelShares { .. } => "simulated from its level shares in the data; nothing to fit".to_string(),
@@ -151,14 +150,6 @@ pub(crate) fn fit_joint(
             continue;
         };
         let summaries = f.draws.summarise(&spec).map_err(|e| CellError::at(line, format!("{label}: {e}")))?;
-        for (i, s) in summaries.iter().enumerate() {
-            if s.name != "spread" {
-                drawable += 1;
-                if figure_names.len() < FIGURE_PARAMETERS {
-                    figure_names.push((figure_label(&node.name, &s.name), k, i));
-                }
-            }
-        }
         let (units, behind) = match &node.model {
             NodeModel::Regression { model, .. } => {
                 (parameter_units(model, joint_table, &f.draws.names), rows_behind(model, &f.draws.names))
@@ -189,12 +180,7 @@ pub(crate) fn fit_joint(
         .collect();
     let grid = fit_summary::estimates_grid(&["node", "parameter"], &rows, mass);
     let health = fit_summary::health(&fitted);
-    if drawable > figure_names.len() {
-        notes.push(format!(
-            "the figure draws the first {} of {drawable} node parameters (spreads left out); the table lists them all",
-            figure_names.len()
-        ));
-    }
+    notes.push("each fitted node's parameters are drawn in a figure of their own below (spreads left out: they are on another scale)".to_string());
     notes.push(format!("each node's regression gets its own seed stream derived from seed {}", method_seed(&method)));
     notes.push(format!("intervals are central {}% quantile intervals of the draws", short_number(mass * 100.0)));
     if let Some(h) = &health {
@@ -208,18 +194,46 @@ pub(crate) fn fit_joint(
     let seconds = started.elapsed().as_secs_f64();
     let heading = format!("fit {name}: {} node regressions in {seconds:.2} s — {}", fit.fits.iter().flatten().count(), method.describe());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
-    let params: Vec<ParameterDraws> = figure_names
-        .iter()
-        .filter_map(|(label, k, i)| fit.fits[*k].as_ref().map(|f| ParameterDraws { name: label, draws: &f.draws.values[*i] }))
-        .collect();
-    let svg = crate::plot::posterior_figure(&format!("{name} node parameters"), &Quantity::new("parameter value"), &params, DensityArrangement::Stacked).ok();
+    let figures = node_figures(name, joint, &fit);
     let json = json!({
         "joint": name, "method": method_name(&method), "seed": method_seed(&method),
         "settings": method_settings(&method), "interval_mass": mass, "nodes": nodes_json,
         "health": health.map(|h| h.json), "seconds": seconds,
     });
     session.joint_fits.insert(name.to_string(), fit);
-    Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+    let mut displays = vec![Display { plain, html: Some(html), svg: None, json: Some(json) }];
+    displays.extend(figures);
+    Ok(displays)
+}
+
+/// One figure per fitted node of a joint model: the posterior densities of
+/// its coefficients (at most [`NODE_FIGURE_COEFFICIENTS`], the sentence
+/// beside it saying how many are left out), named as the fit's table
+/// names them.
+fn node_figures(name: &str, joint: &crate::query::JointModel, fit: &crate::query::JointFit) -> Vec<Display> {
+    let mut out = Vec::new();
+    for (node, node_fit) in joint.nodes.iter().zip(&fit.fits) {
+        let (NodeModel::Regression { model, .. }, Some(f)) = (&node.model, node_fit) else { continue };
+        let coefficients = model.coefficient_names();
+        let labels: Vec<String> =
+            coefficients.iter().take(NODE_FIGURE_COEFFICIENTS).map(|p| figure_label(&node.name, p)).collect();
+        let params: Vec<ParameterDraws> = coefficients
+            .iter()
+            .zip(&labels)
+            .filter_map(|(p, label)| f.draws.get(p).map(|d| ParameterDraws { name: label, draws: d }))
+            .collect();
+        let left = coefficients.len() - labels.len();
+        let subject = format!("{name}, node {}", node.name);
+        let Ok(svg) = crate::plot::posterior_figure(&subject, &Quantity::new("parameter value"), &params, DensityArrangement::Stacked) else {
+            continue;
+        };
+        let mut text = format!("{subject}: posterior densities of its {} coefficients", labels.len());
+        if left > 0 {
+            text.push_str(&format!(" (the first {} of {}; the table lists them all)", labels.len(), coefficients.len()));
+        }
+        out.push(Display { plain: text, html: None, svg: Some(svg), json: None });
+    }
+    out
 }
 
 fn method_seed(method: &Method) -> u64 {
@@ -236,7 +250,8 @@ fn method_name(method: &Method) -> &'static str {
     }
 }
 
-/// A node parameter's name in the joint fit figure: prefixed by its node,
+/// A node parameter's name in a joint fit's health sentence and node
+/// figures: prefixed by its node,
 /// unless it already starts with it (a levels-family coefficient such as
 /// `form[shrub vs herb]: soil[sand]`; no other parameter is named after its
 /// own node, whose parents are other nodes).
@@ -691,10 +706,6 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
     let model = session.models.get(m).ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
     })?;
-    if let Some(levels) = model.outcome_levels() {
-        let levels = levels.join(", ");
-        return Err(CellError::at(line, format!("{m} has a category outcome ({levels}); predictive checks summarise numeric outcomes and are not available for it yet")));
-    }
     let table = session.require_table(model.table_name(), line)?;
     let bytes = crate::limits::bytes_for(&[sets, table.nrows().max(1), 2]);
     crate::limits::check_memory(&format!("{sets} predictive sets of {} rows", table.nrows()), bytes).map_err(|m| CellError::at(line, m))?;
@@ -712,6 +723,9 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
         result.observed.len()
     );
     let mass = session.interval_mass(None);
+    if model.outcome_levels().is_some() {
+        return Ok(vec![level_count_check(model, kind, seed, &heading, &result, mass, line)?]);
+    }
     // a yes/no or out-of-trials outcome is summarised as shares, which have no unit
     let shares = matches!(model.family(), crate::model::Family::Bernoulli | crate::model::Family::Binomial { .. });
     let unit = if shares { None } else { table.column(model.outcome_name()).and_then(|c| c.unit.clone()) };
@@ -737,6 +751,48 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
     let svg = figures::predictive(&result, table, model.outcome_name()).ok();
     let json = json!({"model": m, "kind": kind, "seed": seed, "sets": result.replicated.len(), "rows": result.observed.len(), "interval_mass": mass, "statistics": stats_json});
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
+}
+
+/// A predictive check of a category outcome: for each level, the observed
+/// number of rows at it against the central interval of that count over
+/// the simulated sets (whose values are level indices, named here by label).
+fn level_count_check(
+    model: &Model,
+    kind: &str,
+    seed: u64,
+    heading: &str,
+    result: &crate::query::PredictiveSets,
+    mass: f64,
+    line: usize,
+) -> Result<Display, CellError> {
+    let (m, levels) = (model.name(), model.outcome_levels().unwrap_or_default());
+    let count = |values: &[f64], k: usize| values.iter().filter(|v| **v as usize == k).count() as f64;
+    let (lower, upper) = bounds(mass);
+    let mut grid = Grid::new(&["level", "observed rows", &lower, &upper, "share of sets ≥ observed"]).numeric_columns(&[1, 2, 3, 4]);
+    let mut levels_json = Vec::new();
+    let mut counts = Vec::new();
+    for (k, level) in levels.iter().enumerate() {
+        let observed = count(&result.observed, k);
+        let replicated: Vec<f64> = result.replicated.iter().map(|r| count(r, k)).collect();
+        let s = ContrastSummary::of(&replicated, mass).map_err(|e| query_error(e, line))?;
+        let share = replicated.iter().filter(|v| **v >= observed).count() as f64 / replicated.len().max(1) as f64;
+        grid.push(vec![level.clone(), num(observed), num(s.lower), num(s.upper), format!("{share:.2}")]);
+        levels_json.push(json!({"level": level, "observed": observed, "lower": s.lower, "upper": s.upper, "share_at_or_above": share}));
+        counts.push(crate::plot::LevelCount { level: level.clone(), observed, replicated });
+    }
+    let notes = vec![
+        format!(
+            "each row counts the rows at one level; the interval columns are the central {}% range of that count over the simulated sets",
+            short_number(mass * 100.0)
+        ),
+        "a share near 0 or 1 says the model rarely makes as many (or as few) rows at that level as the data have".to_string(),
+    ];
+    let (plain, html) = render(heading, &[], &[("", &grid)], &notes);
+    let figure_kind = if kind == "prior" { crate::plot::PredictiveKind::Prior } else { crate::plot::PredictiveKind::Posterior };
+    let svg = crate::plot::level_count_figure(figure_kind, m, model.outcome_name(), &counts).ok();
+    let json = json!({"model": m, "kind": kind, "seed": seed, "sets": result.replicated.len(), "rows": result.observed.len(),
+                      "interval_mass": mass, "levels": levels_json});
+    Ok(Display { plain, html: Some(html), svg, json: Some(json) })
 }
 
 fn mean(v: &[f64]) -> f64 {

@@ -26,7 +26,12 @@
 //! * `contrast` — as `fit`, plus `variable`, `draws` and `seed`: a Laplace
 //!   fit, then the default contrast of `variable` averaged over rows;
 //!   answers `names`, `params` (constrained draws), `to`, `from` and
-//!   `differences` (per draw).
+//!   `differences` (per draw); for a category outcome, `levels` (one
+//!   `{level, differences}` per outcome level) in place of `differences`.
+//!   An optional `between` (`[b, a]`) compares `b` with `a`.
+//! * `implications` — `columns`, `graph` (body lines), `draws`, `seed` and
+//!   `mass`: the graph's implications checked against the columns with a
+//!   Laplace fit; answers the report (checks with their associations).
 
 use serde_json::{json, Value};
 use std::sync::atomic::AtomicBool;
@@ -51,6 +56,7 @@ fn main() {
         Some("calibrate") => calibrate(&request),
         Some("contrast") => contrast(&request),
         Some("nuts") => nuts(&request),
+        Some("implications") => implications(&request),
         other => Err(format!("unknown action {other:?}")),
     };
     waypath_probe::write_answer(&answer.unwrap_or_else(|e| json!({ "error": e })));
@@ -186,12 +192,36 @@ fn contrast(request: &Value) -> Result<Value, String> {
     let method = Method::Laplace { draws: whole("draws")? as usize, seed: whole("seed")? };
     let fit = waypath::infer::fit::fit_model(&model, &method, &AtomicBool::new(false), &|_| {}).map_err(|e| e.to_string())?;
     let variable = request["variable"].as_str().ok_or("variable must be text")?;
-    let ask = waypath::query::ContrastRequest { over_rows: true, ..waypath::query::ContrastRequest::new(variable) };
-    let c = waypath::query::contrast(&model, &fit.draws, &table, &ask).map_err(|e| e.to_string())?;
+    let mut ask = waypath::query::ContrastRequest { over_rows: true, ..waypath::query::ContrastRequest::new(variable) };
+    if let Some([b, a]) = request["between"].as_array().map(Vec::as_slice) {
+        ask = ask.between(b.as_str().ok_or("between takes text")?, a.as_str().ok_or("between takes text")?);
+    }
+    let contrasts = waypath::query::level_contrasts(&model, &fit.draws, &table, &ask).map_err(|e| e.to_string())?;
     let names = model.parameter_names();
     let columns: Vec<&[f64]> = names.iter().map(|n| fit.draws.get(n).ok_or("missing draws")).collect::<Result<_, _>>()?;
     let params: Vec<Vec<f64>> = (0..fit.draws.len()).map(|d| columns.iter().map(|c| c[d]).collect()).collect();
-    Ok(json!({ "names": names, "params": params, "to": c.to, "from": c.from, "differences": c.draws, "scale": c.scale }))
+    let c = &contrasts[0];
+    let mut answer = json!({ "names": names, "params": params, "to": c.to, "from": c.from, "scale": c.scale });
+    if c.level.is_some() {
+        answer["levels"] = json!(contrasts.iter().map(|c| json!({"level": c.level, "differences": c.draws})).collect::<Vec<_>>());
+    } else {
+        answer["differences"] = json!(c.draws);
+    }
+    Ok(answer)
+}
+
+fn implications(request: &Value) -> Result<Value, String> {
+    let table = table(request)?;
+    let mut builder = waypath::graph::GraphBuilder::new("probe");
+    for line in request["graph"].as_array().ok_or("graph must be a list of lines")? {
+        builder.add_line(line.as_str().ok_or("graph lines are text")?).map_err(|e| e.to_string())?;
+    }
+    let graph = builder.finish().map_err(|e| e.to_string())?;
+    let whole = |key: &str| request[key].as_u64().ok_or_else(|| format!("{key} must be a whole number"));
+    let method = Method::Laplace { draws: whole("draws")? as usize, seed: whole("seed")? };
+    let mass = request["mass"].as_f64().ok_or("mass must be a number")?;
+    let report = waypath::query::check_implications(&graph, &table, &method, &AtomicBool::new(false), mass).map_err(|e| e.to_string())?;
+    serde_json::to_value(&report).map_err(|e| e.to_string())
 }
 
 fn nuts(request: &Value) -> Result<Value, String> {
