@@ -91,4 +91,24 @@ mod with_the_feature {
         assert_eq!(report.rows_read, 3);
         assert_eq!(table.column("depth").unwrap().data.as_reals().unwrap(), vec![1.0, 1.5, 2.0]);
     }
+
+    #[test]
+    fn a_session_never_writes_over_a_file_of_a_folder_it_read() {
+        use waypath::cells::{RunControl, Session};
+        let dir = folder("guard");
+        std::fs::create_dir(dir.join("parts")).unwrap();
+        let depths = [0.2, 0.4, 0.5, 0.7, 0.9, 1.1];
+        write(&dir.join("parts/a.parquet"), &["pool", "run", "pool", "run", "pool", "run"], &depths, 4);
+        let before = std::fs::read(dir.join("parts/a.parquet")).unwrap();
+        let mut session = Session::new(&dir);
+        let cancel = AtomicBool::new(false);
+        let progress = |_: &str| {};
+        let control = RunControl { cancel: &cancel, progress: &progress };
+        let cell = "table s from \"parts\"\nmodel m:\n    depth from site using s\nfit m with laplace seed 3\n";
+        let out = session.run_cell(cell, &control);
+        assert!(out.error.is_none(), "{:?}", out.error);
+        let err = session.run_cell("export m draws to \"parts/a.parquet\"\n", &control).error.expect("refused");
+        assert!(err.message.contains("read as data"), "{}", err.message);
+        assert_eq!(std::fs::read(dir.join("parts/a.parquet")).unwrap(), before, "the data file is untouched");
+    }
 }

@@ -24,7 +24,7 @@
 //! Built without the feature, a columnar file is refused with the feature
 //! to build, and nothing else changes.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
 
 use super::error::TableError;
@@ -57,6 +57,21 @@ pub fn columnar_format(path: &Path) -> Option<ColumnarFormat> {
         "arrow" => Some(ColumnarFormat::ArrowIpc),
         _ => None,
     }
+}
+
+/// The `.parquet` files of a folder, in name order (other entries are
+/// passed over). Also used by the session to guard every file it read.
+pub fn folder_parts(folder: &Path) -> std::io::Result<Vec<PathBuf>> {
+    let mut files = Vec::new();
+    for entry in std::fs::read_dir(folder)? {
+        let path = entry?.path();
+        let is_parquet = path.extension().and_then(|e| e.to_str()).is_some_and(|e| e.eq_ignore_ascii_case("parquet"));
+        if is_parquet && path.is_file() {
+            files.push(path);
+        }
+    }
+    files.sort();
+    Ok(files)
 }
 
 /// Loads a columnar source as [`super::load_table`] loads a CSV.

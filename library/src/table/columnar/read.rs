@@ -83,21 +83,12 @@ fn columnar_error(file: &str, problem: impl Into<Box<str>>) -> TableError {
     TableError::Columnar { file: file.into(), problem: problem.into() }
 }
 
-/// The `.parquet` files of a folder, in name order.
+/// The `.parquet` files of a folder, in name order; none is an error.
 fn folder_files(folder: &Path, label: &str) -> Result<Vec<PathBuf>, TableError> {
-    let entries = std::fs::read_dir(folder).map_err(|e| io_error(label, &e))?;
-    let mut files = Vec::new();
-    for entry in entries {
-        let path = entry.map_err(|e| io_error(label, &e))?.path();
-        let is_parquet = path.extension().and_then(|e| e.to_str()).is_some_and(|e| e.eq_ignore_ascii_case("parquet"));
-        if is_parquet && path.is_file() {
-            files.push(path);
-        }
-    }
+    let files = super::folder_parts(folder).map_err(|e| io_error(label, &e))?;
     if files.is_empty() {
         return Err(columnar_error(label, "the folder holds no .parquet files (a folder is read as the Parquet files in it)"));
     }
-    files.sort();
     Ok(files)
 }
 
