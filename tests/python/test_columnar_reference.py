@@ -232,3 +232,10 @@ def test_arrow_block_beyond_the_file_is_refused_before_reading(tmp_path):
     cut.write_bytes(data[: len(data) // 2])
     error = load(cut, [])["error"]
     assert "cut.arrow" in error and "not a readable Arrow IPC file" in error
+
+
+def test_a_codec_left_out_is_named(tmp_path):
+    """zstd is not among the codecs the `columnar` feature builds (Snappy and none are)."""
+    pq.write_table(pa.table({"depth": [0.1, 0.2, 0.3]}), tmp_path / "z.parquet", compression="zstd")
+    error = load(tmp_path / "z.parquet", [])["error"]
+    assert "z.parquet, row group 1" not in error and "z.parquet: row group 1 is compressed with zstd" in error

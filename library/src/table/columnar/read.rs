@@ -136,7 +136,7 @@ fn read_parquet(
         let reader = builder
             .with_batch_size(BATCH_ROWS)
             .build()
-            .map_err(|e| columnar_error(&part.label, format!("the file could not be read ({e})")))?;
+            .map_err(|e| damaged(part, gathered.rows, &e.to_string()))?;
         for batch in reader {
             if cancel.load(Ordering::Relaxed) {
                 return Err(TableError::Interrupted { file: label.into(), row: gathered.rows + FIRST_ROW });
@@ -171,10 +171,21 @@ fn declared_bytes(metadata: &ParquetMetaData) -> u128 {
     metadata.row_groups().iter().map(|g| u128::try_from(g.total_byte_size()).unwrap_or(0)).sum()
 }
 
-/// A read failure, placed at the row group where reading stopped.
+/// A read failure, placed at the row group where reading stopped: a
+/// compression this build leaves out, or damage.
 fn damaged(part: &Part, rows_so_far: usize, reason: &str) -> TableError {
     let (block, _) = block_of(part, rows_so_far.saturating_sub(part.start));
-    columnar_error(&part.label, format!("row group {block} could not be read: {reason}; the file is damaged or cut short"))
+    const LEFT_OUT: &str = "Disabled feature at compile time: ";
+    match reason.find(LEFT_OUT) {
+        Some(at) => {
+            let codec = reason[at + LEFT_OUT.len()..].split_whitespace().next().unwrap_or("its codec");
+            columnar_error(
+                &part.label,
+                format!("row group {block} is compressed with {codec}, which Waypath does not read (write the file with Snappy compression or none; Snappy is pyarrow's default)"),
+            )
+        }
+        None => columnar_error(&part.label, format!("row group {block} could not be read: {reason}; the file is damaged or cut short")),
+    }
 }
 
 /// The 1-based block holding the 0-based row `row` of a part, and the row's
