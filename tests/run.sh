@@ -56,6 +56,12 @@ cargo build --release --workspace --locked
 echo "== Rust tests"
 cargo test --release --workspace --locked
 
+echo "== the columnar feature (Parquet and Arrow tables)"
+# Built last so the probes the Python checks call read Parquet; the default
+# builds above stay without it, as the README's first command builds.
+cargo build --release --locked -p waypath-probe --features columnar
+cargo test --release --locked -p waypath --features columnar --test table_columnar
+
 echo "== Python reference checks"
 export WAYPATH_BIN_DIR="$CARGO_TARGET_DIR/release"
 "$venv/bin/python" -m pytest tests/python -q -p no:cacheprovider

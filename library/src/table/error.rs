@@ -143,6 +143,16 @@ pub enum TableError {
     #[error("{file}: {message}")]
     TooLarge { file: Box<str>, message: Box<str> },
 
+    /// A Parquet or Arrow file asked of a build without the `columnar` feature.
+    #[error("{file} is a columnar file (Parquet or Arrow), and this build of Waypath cannot read those (build it with the cargo feature \"{feature}\", e.g. cargo build --release -p waypath-kernel --features {feature}, or save the data as CSV)")]
+    FeatureMissing { file: Box<str>, feature: Box<str> },
+
+    /// A Parquet or Arrow file that cannot be read as a table: damaged,
+    /// of another layout than its folder, or holding a column of a kind a
+    /// table cannot take.
+    #[error("{file}: {problem}")]
+    Columnar { file: Box<str>, problem: Box<str> },
+
     /// The cancel flag was set (an interrupt) while the file was read.
     #[error("{file}: reading was interrupted at row {row}; the table was not made")]
     Interrupted { file: Box<str>, row: usize },

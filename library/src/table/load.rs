@@ -1,4 +1,5 @@
-//! CSV in, typed table out: the only place the library reads data files.
+//! CSV in, typed table out; also the typing, missing-value and filter steps
+//! that [`super::columnar`] shares for Parquet and Arrow files.
 //!
 //! Loading runs in fixed steps, each with its own errors:
 //! 1. read the raw text of every field (the `csv` crate: RFC 4180 quoting,
@@ -39,6 +40,8 @@ const ROWS_SHOWN: usize = 5;
 const MEMORY_PER_BYTE: u128 = 4;
 /// Rows read between two reads of the cancel flag.
 const CANCEL_EVERY: usize = 4096;
+/// The number a CSV file's first data row has (the header is row 1).
+const CSV_FIRST_ROW: usize = 2;
 
 /// Opens the file the spec names and loads it. The file is named in errors
 /// as the spec's path is written.
@@ -50,6 +53,9 @@ pub fn load_table(spec: &TableSpec) -> Result<(Table, LoadReport), TableError> {
 /// `cancel` is set.
 pub fn load_table_with_cancel(spec: &TableSpec, cancel: &AtomicBool) -> Result<(Table, LoadReport), TableError> {
     let label = spec.path.display().to_string();
+    if let Some(format) = super::columnar::columnar_format(&spec.path) {
+        return super::columnar::load_columnar(spec, &label, format, cancel);
+    }
     let file = File::open(&spec.path).map_err(|e| io_error(&label, &e))?;
     let size = file.metadata().map(|m| m.len()).unwrap_or(0);
     // Raw field text, field ends and typed values: about four times the file.
@@ -91,15 +97,15 @@ impl Table {
     ) -> Result<(Table, LoadReport), TableError> {
         let raw = RawTable::read(source_label, reader, cancel)?;
         check_declarations(spec, source_label, &raw.headers)?;
-        let typed = type_columns(spec, source_label, &raw)?;
+        let typed = type_columns(spec, source_label, &raw.headers, &raw.columns, CSV_FIRST_ROW)?;
         let rows_read = raw.rows;
         drop(raw);
-        let (table, report) = apply_missing_policy(spec, source_label, typed, rows_read)?;
+        let (table, report) = apply_missing_policy(spec, source_label, typed, rows_read, CSV_FIRST_ROW)?;
         apply_filters(spec, source_label, table, report)
     }
 }
 
-fn io_error(file: &str, error: &io::Error) -> TableError {
+pub(super) fn io_error(file: &str, error: &io::Error) -> TableError {
     let reason = match error.kind() {
         io::ErrorKind::NotFound => "there is no such file".to_string(),
         io::ErrorKind::PermissionDenied => "permission was denied".to_string(),
@@ -122,13 +128,14 @@ fn csv_error(file: &str, error: csv::Error, row: usize) -> TableError {
 }
 
 /// The raw text of one column's fields, back to back.
-struct RawColumn {
+#[derive(Default)]
+pub(super) struct RawColumn {
     text: String,
     ends: Vec<usize>,
 }
 
 impl RawColumn {
-    fn push(&mut self, field: &str) {
+    pub(super) fn push(&mut self, field: &str) {
         self.text.push_str(field);
         self.ends.push(self.text.len());
     }
@@ -217,7 +224,7 @@ fn check_header(file: &str, headers: &[String], has_row: bool) -> Result<(), Tab
 }
 
 /// Every declared column must exist in the file, and be declared once.
-fn check_declarations(spec: &TableSpec, file: &str, headers: &[String]) -> Result<(), TableError> {
+pub(super) fn check_declarations(spec: &TableSpec, file: &str, headers: &[String]) -> Result<(), TableError> {
     let present: HashSet<&str> = headers.iter().map(String::as_str).collect();
     let mut declared: HashSet<&str> = HashSet::with_capacity(spec.declared.len());
     for decl in &spec.declared {
@@ -237,7 +244,7 @@ fn check_declarations(spec: &TableSpec, file: &str, headers: &[String]) -> Resul
 }
 
 /// A typed column before the missing-value policy.
-struct TypedColumn {
+pub(super) struct TypedColumn {
     column: Column,
     inferred: bool,
     /// 0-based data-row indices of missing values.
@@ -245,12 +252,20 @@ struct TypedColumn {
 }
 
 /// Step 2: every column typed; of several bad values, the one in the
-/// earliest row (then leftmost column) is reported.
-fn type_columns(spec: &TableSpec, file: &str, raw: &RawTable) -> Result<Vec<TypedColumn>, TableError> {
-    let mut typed = Vec::with_capacity(raw.columns.len());
+/// earliest row (then leftmost column) is reported. Rows are numbered from
+/// `first_row`.
+pub(super) fn type_columns(
+    spec: &TableSpec,
+    file: &str,
+    headers: &[String],
+    columns: &[RawColumn],
+    first_row: usize,
+) -> Result<Vec<TypedColumn>, TableError> {
+    let mut typed = Vec::with_capacity(columns.len());
     let mut first_error: Option<TableError> = None;
-    for (name, column) in raw.headers.iter().zip(&raw.columns) {
-        match type_column(file, name, spec.declaration(name), column) {
+    for (name, column) in headers.iter().zip(columns) {
+        let place = Place { file, column: name, first_row };
+        match type_column(&place, spec.declaration(name), column) {
             Ok(t) => typed.push(t),
             Err(e) => {
                 let earlier = first_error.as_ref().is_none_or(|f| e.row() < f.row());
@@ -270,13 +285,15 @@ fn type_columns(spec: &TableSpec, file: &str, raw: &RawTable) -> Result<Vec<Type
 struct Place<'a> {
     file: &'a str,
     column: &'a str,
+    /// The number of the first data row.
+    first_row: usize,
 }
 
 impl Place<'_> {
     fn bad_value(&self, index: usize, field: &str, problem: ValueProblem) -> TableError {
         TableError::BadValue {
             file: self.file.into(),
-            row: index + 2,
+            row: index + self.first_row,
             column: self.column.into(),
             value: field.into(),
             problem: problem.problem.into(),
@@ -285,30 +302,25 @@ impl Place<'_> {
     }
 }
 
-fn type_column(
-    file: &str,
-    name: &str,
-    decl: Option<&ColumnDecl>,
-    raw: &RawColumn,
-) -> Result<TypedColumn, TableError> {
-    let place = Place { file, column: name };
+fn type_column(place: &Place, decl: Option<&ColumnDecl>, raw: &RawColumn) -> Result<TypedColumn, TableError> {
+    let name = place.column;
     let inferred = decl.is_none();
     let kind = decl.map_or_else(|| values::infer_kind(raw.fields()), |d| d.kind.clone());
     let (data, missing) = match kind {
         ColumnKind::Real => {
-            let (v, m) = read_fields(raw, &place, |field| values::parse_real(field).map_err(|p| real_advice(p, name, inferred)))?;
+            let (v, m) = read_fields(raw, place, |field| values::parse_real(field).map_err(|p| real_advice(p, name, inferred)))?;
             (ColumnData::Real(v), m)
         }
         ColumnKind::Count => {
-            let (v, m) = read_fields(raw, &place, values::parse_count)?;
+            let (v, m) = read_fields(raw, place, values::parse_count)?;
             (ColumnData::Count(v), m)
         }
         ColumnKind::Binary => {
-            let (v, m) = read_fields(raw, &place, values::parse_binary_field)?;
+            let (v, m) = read_fields(raw, place, values::parse_binary_field)?;
             (ColumnData::Binary(v), m)
         }
         ColumnKind::Category => match decl.and_then(|d| d.levels.as_ref()) {
-            Some(levels) => read_declared_levels(raw, &place, levels)?,
+            Some(levels) => read_declared_levels(raw, place, levels)?,
             None => read_levels_by_appearance(raw),
         },
     };
@@ -368,7 +380,7 @@ fn read_declared_levels(
         } else {
             return Err(TableError::UnknownLevel {
                 file: place.file.into(),
-                row: i + 2,
+                row: i + place.first_row,
                 column: place.column.into(),
                 value: field.into(),
                 near: near_matches(field, levels.iter().map(String::as_str)),
@@ -399,12 +411,14 @@ fn read_levels_by_appearance(raw: &RawColumn) -> (ColumnData, Vec<usize>) {
     (ColumnData::Category { codes, levels }, missing)
 }
 
-/// Step 3: fail on missing values, or leave out their rows under `drop missing`.
-fn apply_missing_policy(
+/// Step 3: fail on missing values, or leave out their rows under `drop
+/// missing`. Rows are numbered from `first_row` in the error.
+pub(super) fn apply_missing_policy(
     spec: &TableSpec,
     file: &str,
     typed: Vec<TypedColumn>,
     rows_read: usize,
+    first_row: usize,
 ) -> Result<(Table, LoadReport), TableError> {
     let mut with_missing = typed.iter().filter(|t| !t.missing.is_empty());
     if let (false, Some(first)) = (spec.drop_missing, with_missing.next()) {
@@ -412,7 +426,7 @@ fn apply_missing_policy(
             file: file.into(),
             column: first.column.name.as_str().into(),
             count: first.missing.len(),
-            rows: first.missing.iter().take(ROWS_SHOWN).map(|i| i + 2).collect(),
+            rows: first.missing.iter().take(ROWS_SHOWN).map(|i| i + first_row).collect(),
             others: with_missing.map(|t| (t.column.name.as_str().into(), t.missing.len())).collect(),
         });
     }
@@ -445,7 +459,7 @@ fn apply_missing_policy(
 }
 
 /// Step 4: the `keep where` filters, in the order written.
-fn apply_filters(
+pub(super) fn apply_filters(
     spec: &TableSpec,
     file: &str,
     mut table: Table,

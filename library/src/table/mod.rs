@@ -12,12 +12,16 @@
 //!   gather into a [`TableSpec`].
 //! * [`load`]: CSV → typed [`Table`] plus a [`LoadReport`] ([`load_table`],
 //!   [`Table::from_csv_reader`]).
+//! * [`columnar`]: Parquet files, folders of them and Arrow IPC files, typed
+//!   by the same steps as CSV (cargo feature `columnar`; without it such a
+//!   file is refused with the feature named).
 //! * [`condition`]: `keep where` conditions.
 //! * [`report`]: what loading did, and [`summary_json`] for the cells module.
 //! * [`error`]: [`TableError`], one sentence per failure.
 //!
 //! Parsing and loading never render; the cells module does.
 
+pub mod columnar;
 pub mod condition;
 pub mod error;
 pub mod load;

@@ -1,10 +1,12 @@
-//! `table NAME from "FILE":` — read a CSV into the session.
+//! `table NAME from "FILE":` — read a CSV (or, with the feature `columnar`,
+//! Parquet or Arrow data) into the session.
 
 use super::grammar::TABLE;
 use super::{form_error, unquote};
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
 use crate::cells::session::{RunControl, Session};
+use crate::table::columnar::folder_parts;
 use crate::table::{load_table_with_cancel, parse_table_line, summary_json, LoadReport, Table, TableSpec};
 
 /// Read the table, store it, and show its schema and what loading did.
@@ -12,6 +14,12 @@ pub(crate) fn table(session: &mut Session, st: &Statement, control: &RunControl)
     let (name, path) = parse_header(st.head()).ok_or_else(|| form_error(st, TABLE.usage))?;
     let mut spec = TableSpec::new(name, session.resolve(path));
     session.data_files.remember(&spec.path);
+    if spec.path.is_dir() {
+        // A folder of Parquet files: each of them is data not to be written over.
+        for part in folder_parts(&spec.path).unwrap_or_default() {
+            session.data_files.remember(&part);
+        }
+    }
     for line in &st.body {
         let rule = parse_table_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
         spec.add_rule(rule).map_err(|e| CellError::at(line.number, e.to_string()))?;
