@@ -30,7 +30,10 @@
 //!   6,000 rows, bernoulli family, NUTS;
 //! * `h` — streams: water temperature against canopy shade in 40 streams
 //!   of 100 readings, each stream with its own intercept and shade slope,
-//!   correlated (`pooled stream with shade`), normal family, NUTS.
+//!   correlated (`pooled stream with shade`), normal family, NUTS;
+//! * `i` — the nymph counts of `e` with each sample's rate multiplied by a
+//!   gamma variable of mean 1 and sd 0.5, gamma-poisson family (learned
+//!   overdispersion), 10 predictors, n = 20,000, NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
@@ -55,7 +58,7 @@ use std::time::Instant;
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
-use rand_distr::{Distribution, Normal};
+use rand_distr::{Distribution, Gamma, Normal};
 use waypath::draws::SummarySpec;
 use waypath::infer::fit::{design_condition, fit_model, Fit, Method};
 use waypath::infer::nuts::NutsSettings;
@@ -119,6 +122,9 @@ fn main() {
     }
     if wants("h") {
         rows.push(case_streams(nuts));
+    }
+    if wants("i") {
+        rows.push(case_overdispersed(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -274,6 +280,18 @@ fn case_poisson(nuts: &NutsSettings) -> Row {
     let model = build("m_nymphs", &body, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(e) poisson, 10 predictors, n = 20,000, NUTS", started, &fit, &model)
+}
+
+/// (i) Gamma-poisson regression on 10 predictors, n = 20,000, overdispersion 0.5.
+fn case_overdispersed(nuts: &NutsSettings) -> Row {
+    let table = samples_with(20_000, 15, 0.5);
+    let terms: Vec<String> = (1..=10).map(|j| format!("w{j}")).collect();
+    let body = format!("nymphs from {} using samples\nfamily gamma_poisson", terms.join(", "));
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_nymphs_overdispersed", &body, &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(i) gamma-poisson, 10 predictors, n = 20,000, NUTS", started, &fit, &model)
 }
 
 /// (f) Binomial regression on 5 predictors, n = 5,000, trials 1 to 40.
@@ -480,7 +498,15 @@ fn plots(n: usize, seed: u64) -> Table {
 /// measures `w1` … `w10`; each even-numbered measure is correlated 0.6
 /// with the one before it (warmth and oxygen, flow and gravel, …).
 fn samples(n: usize, seed: u64) -> Table {
+    samples_with(n, seed, 0.0)
+}
+
+/// [`samples`] with each rate multiplied by a gamma variable of mean 1
+/// and sd `overdispersion` (none when it is 0), drawn after the measures.
+fn samples_with(n: usize, seed: u64, overdispersion: f64) -> Table {
     let mut rng = StdRng::seed_from_u64(seed);
+    let shape = 1.0 / (overdispersion * overdispersion);
+    let multiplier = (overdispersion > 0.0).then(|| Gamma::new(shape, 1.0 / shape).expect("valid gamma"));
     let noise = Normal::new(0.0, 1.0).expect("valid normal");
     let effects = [0.3, -0.2, 0.15, 0.0, -0.25, 0.1, 0.0, 0.05, 0.2, -0.1];
     let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 10];
@@ -495,7 +521,8 @@ fn samples(n: usize, seed: u64) -> Table {
             column.push(w);
             eta += effect * w;
         }
-        nymphs.push(poisson_draw(eta.exp(), &mut rng));
+        let rate = eta.exp() * multiplier.as_ref().map_or(1.0, |g| g.sample(&mut rng));
+        nymphs.push(poisson_draw(rate, &mut rng));
     }
     let mut named: Vec<(String, ColumnData)> =
         columns.into_iter().enumerate().map(|(j, c)| (format!("w{}", j + 1), ColumnData::Real(c))).collect();

@@ -96,6 +96,23 @@ fn poisson_gradient_matches_finite_differences() {
     check_gradient(&format!("fruit from {SPLINE_TERMS} using trees\nfamily poisson"), 12);
 }
 
+/// The gamma-poisson family: the coefficients and log(overdispersion),
+/// with the default prior and declared ones (`family::shaped` has the row's
+/// formula against its plain definition).
+#[test]
+fn gamma_poisson_gradient_matches_finite_differences() {
+    check_gradient(&format!("fruit from {TERMS} using trees\nfamily gamma_poisson"), 17);
+    check_gradient(&format!("fruit from {SPLINE_TERMS} using trees\nfamily gamma_poisson"), 18);
+    for prior in ["exponential(2)", "lognormal(-1, 0.5)"] {
+        check_gradient(&format!("fruit from girth, soil using trees\nfamily gamma_poisson\nprior overdispersion: {prior}"), 19);
+    }
+    // Pooled departures sit after the overdispersion in the parameter vector.
+    for layout in ["centred", "noncentred"] {
+        check_gradient(&format!("fruit from girth, pooled soil using trees\nfamily gamma_poisson\nparameterise soil {layout}"), 20);
+        check_gradient("fruit from girth, pooled soil with girth using trees\nfamily gamma_poisson", 21);
+    }
+}
+
 /// The levels family (softmax over soil's three levels; rootstock's two),
 /// with the family line written and left out (a category outcome takes the
 /// levels family by default).

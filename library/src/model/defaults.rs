@@ -28,6 +28,16 @@
 //! **Spread** (normal family): `half_normal(s_y)`: with no predictor at all
 //! the spread is `s_y`; the prior keeps it below about 2·`s_y`.
 //!
+//! **Overdispersion** (gamma-poisson family): `half_normal(T)` with the log
+//! link's `T = 1`, by the rule of the spread. The overdispersion κ is the sd
+//! of the gamma multiplier of each row's rate, which for small κ is the sd
+//! of the log rate's row-to-row noise (`family::shaped`): residual
+//! variation on the link scale, as the spread is on the identity scale, so
+//! it gets the same prior, `half_normal` of the target. It keeps κ below
+//! about 2 (a multiplier that often halves or triples the rate), and its
+//! density is highest at κ = 0, the poisson model, so the data must show
+//! extra variation before the fit leaves it.
+//!
 //! **Pooled spreads.** A pooled group's departures vary from row to row
 //! too, so each pooled group takes one share of the budget beside the `K`
 //! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every
@@ -91,7 +101,9 @@ pub struct PriorPlan {
     /// Per coefficient: whether its prior is on the prediction at the
     /// average row (default intercepts) rather than on the coefficient.
     pub at_average_row: Vec<bool>,
-    pub spread: Option<Prior>,
+    /// The prior of the family's positive parameter: the spread (normal)
+    /// or the overdispersion (gamma-poisson).
+    pub family_parameter: Option<Prior>,
     /// The spread prior of each pooled group, in the groups' order.
     pub group_spreads: Vec<Prior>,
     /// The spread prior of each group's varying slope (`None` without one).
@@ -156,7 +168,7 @@ pub fn assign_priors(
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
-        spread: None,
+        family_parameter: None,
         group_spreads: Vec::new(),
         slope_spreads: Vec::new(),
         correlation_lkj: spec.correlation_prior.unwrap_or(DEFAULT_LKJ),
@@ -191,17 +203,18 @@ pub fn assign_priors(
             column += width;
         }
     }
-    if spec.family.has_spread() {
-        let declared = spec.declared_prior(PriorGroup::Spread);
+    if let Some(label) = spec.family.family_parameter() {
+        let group = family_parameter_group(&spec.family);
+        let declared = spec.declared_prior(group);
         let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target });
         plan.uses.push(PriorUse {
-            group: PriorGroup::Spread,
-            parameters: vec!["spread".into()],
+            group,
+            parameters: vec![label.into()],
             prior: prior.clone(),
             declared: declared.is_some(),
             at_average_row: false,
         });
-        plan.spread = Some(prior);
+        plan.family_parameter = Some(prior);
     }
     let declared = spec.declared_prior(PriorGroup::PooledSpreads);
     for group in groups {
@@ -247,6 +260,13 @@ pub fn row_information(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
         Family::Normal => 1.0 / budget_target(family, outcome).powi(2),
         Family::Poisson => outcome.mean_per_trial().max(1e-3),
+        // The negative binomial's information about log μ, μφ/(φ + μ), at
+        // the starting overdispersion (φ = 1/κ²).
+        Family::GammaPoisson => {
+            let mu = outcome.mean_per_trial().max(1e-3);
+            let kappa = super::family::shaped::moment_overdispersion(&outcome.y);
+            mu / (1.0 + kappa * kappa * mu)
+        }
         _ => {
             let p = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
             let trials = outcome.trials.as_ref().map_or(1.0, |m| mean_and_sd(m).0.max(1.0));
@@ -263,6 +283,14 @@ fn outcome_centre(family: &Family, outcome: &OutcomeValues) -> f64 {
     }
 }
 
+/// The prior group of the family's parameter beside the coefficients.
+fn family_parameter_group(family: &Family) -> PriorGroup {
+    match family {
+        Family::GammaPoisson => PriorGroup::Overdispersion,
+        _ => PriorGroup::Spread,
+    }
+}
+
 /// The shared budget's target `T` on the link scale (module docs).
 fn budget_target(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
@@ -270,7 +298,7 @@ fn budget_target(family: &Family, outcome: &OutcomeValues) -> f64 {
             let sd = mean_and_sd(&outcome.y).1;
             if sd.is_finite() && sd > 0.0 { sd } else { 1.0 }
         }
-        Family::Poisson => LOG_TARGET,
+        Family::Poisson | Family::GammaPoisson => LOG_TARGET,
         _ => LOG_ODDS_TARGET,
     }
 }
@@ -286,8 +314,8 @@ fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
 fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]) -> Result<(), ModelError> {
     for (group, prior) in &spec.priors {
         let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
-        let present = if *group == PriorGroup::Spread {
-            spec.family.has_spread()
+        let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion) {
+            spec.family.family_parameter().is_some() && family_parameter_group(&spec.family) == *group
         } else if *group == PriorGroup::PooledSpreads {
             !groups.is_empty()
         } else {
@@ -314,7 +342,11 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
             return problem(format!(
                 "{prior} allows negative values but {} positive; use exponential, half_normal \
                  or lognormal",
-                if *group == PriorGroup::Spread { "the spread is" } else { "pooled spreads are" }
+                match group {
+                    PriorGroup::Spread => "the spread is",
+                    PriorGroup::Overdispersion => "the overdispersion is",
+                    _ => "pooled spreads are",
+                }
             ));
         }
         if !group.is_positive() && prior.is_positive_only() {

@@ -15,6 +15,8 @@
 //! * binomial out of m: `log C(m, y)` plus the same with y successes and
 //!   m − y failures;
 //! * poisson: `y η − e^η − log y!`;
+//! * gamma-poisson: the negative binomial row of `family::shaped`, minus
+//!   `log y!`;
 //! * levels: the log of the observed level's probability (floored at the
 //!   smallest positive double, which only a share below 10⁻³⁰⁸ reaches).
 //!
@@ -31,6 +33,7 @@ use statrs::function::gamma::ln_gamma;
 use super::build::{glm_data, group_indices, intercept_columns, softmax_data, with_departure_columns};
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
+use super::family::shaped::{gamma_poisson_row, GammaShape};
 use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::posterior::{Likelihood, Model};
@@ -94,6 +97,10 @@ impl Model {
                     .collect()
             }
             Family::Poisson => linear.iter().zip(y).map(|(&eta, &v)| v * eta - eta.exp() - ln_gamma(v + 1.0)).collect(),
+            Family::GammaPoisson => {
+                let shape = GammaShape::from_log_overdispersion(params[self.labels.len()].ln());
+                linear.iter().zip(y).map(|(&eta, &v)| gamma_poisson_row(v, eta, shape).0 - ln_gamma(v + 1.0)).collect()
+            }
             Family::Levels => unreachable!("a levels model answered above"),
         })
     }

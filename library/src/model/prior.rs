@@ -27,12 +27,20 @@ pub enum PriorGroup {
     Spread,
     /// The spreads of pooled groups' departures (positive).
     PooledSpreads,
+    /// The overdispersion of a gamma-poisson outcome (positive).
+    Overdispersion,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 5] =
-        [PriorGroup::Intercepts, PriorGroup::Slopes, PriorGroup::Weights, PriorGroup::Spread, PriorGroup::PooledSpreads];
+    pub const ALL: [PriorGroup; 6] = [
+        PriorGroup::Intercepts,
+        PriorGroup::Slopes,
+        PriorGroup::Weights,
+        PriorGroup::Spread,
+        PriorGroup::PooledSpreads,
+        PriorGroup::Overdispersion,
+    ];
 
     /// The group words of a `prior` line.
     pub fn words() -> Vec<&'static str> {
@@ -47,6 +55,7 @@ impl PriorGroup {
             PriorGroup::Weights => "weights",
             PriorGroup::Spread => "spread",
             PriorGroup::PooledSpreads => "pooled spreads",
+            PriorGroup::Overdispersion => "overdispersion",
         }
     }
 
@@ -66,7 +75,7 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads)
+        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion)
     }
 }
 

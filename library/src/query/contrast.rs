@@ -441,8 +441,8 @@ pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
         (Family::Binomial { trials }, false) => format!("count {y} out of the held number of {trials} trials"),
         (Family::Bernoulli, true) => format!("probability that {y} is yes"),
         (Family::Bernoulli, false) => format!("simulated {y} as 1 (yes) or 0 (no)"),
-        (Family::Poisson, true) => format!("expected count of {y}"),
-        (Family::Poisson, false) => format!("simulated count of {y}"),
+        (Family::Poisson | Family::GammaPoisson, true) => format!("expected count of {y}"),
+        (Family::Poisson | Family::GammaPoisson, false) => format!("simulated count of {y}"),
         (_, true) => format!("mean {y}"),
         (_, false) => format!("simulated {y}"),
     }

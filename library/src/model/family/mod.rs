@@ -1,7 +1,8 @@
 //! Outcome families and their links.
 //!
 //! Each family fixes the link between the linear predictor and the mean:
-//! normal — identity; bernoulli and binomial — logit; poisson — log. The
+//! normal — identity; bernoulli and binomial — logit; poisson and
+//! gamma-poisson — log. The
 //! levels family (a category outcome with K levels) has K − 1 linear
 //! predictors, one per level after the first, and a softmax link to the
 //! level probabilities. The likelihoods live in [`likelihood`] (row by row,
@@ -9,11 +10,17 @@
 //! the normal family) and [`softmax`] (row by row, for the levels family);
 //! pooled groups add their departures to the linear predictor and their
 //! population prior to the density through [`pooling`].
+//!
+//! Besides the coefficients, the normal family has a spread and the
+//! gamma-poisson family an overdispersion ([`Family::family_parameter`]):
+//! one positive parameter, sampled on the log scale, placed after the
+//! coefficients. The gamma-poisson rows' arithmetic is in [`shaped`].
 
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
 pub mod pooling;
+pub mod shaped;
 pub mod softmax;
 
 use super::error::ModelError;
@@ -29,6 +36,10 @@ pub enum Family {
     Binomial { trials: String },
     /// Count outcome, log link.
     Poisson,
+    /// Count outcome, log link, more varied than a poisson count: the rate
+    /// of each row is the mean times a gamma multiplier of mean 1 and sd
+    /// `overdispersion` (learned), so the variance is `μ + overdispersion²·μ²`.
+    GammaPoisson,
     /// Category outcome: one linear predictor per level after the first
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
@@ -36,11 +47,16 @@ pub enum Family {
 }
 
 /// The family words of a `family` line (binomial then takes `out of <column>`).
-pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, LEVELS, BINOMIAL];
+pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, LEVELS, BINOMIAL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
+const GAMMA_POISSON: &str = "gamma_poisson";
 const LEVELS: &str = "levels";
+/// The label of the normal family's residual sd.
+pub const SPREAD: &str = "spread";
+/// The label of the gamma-poisson family's sd of the rate multiplier.
+pub const OVERDISPERSION: &str = "overdispersion";
 /// The family that takes `out of <column>` after it.
 pub const BINOMIAL: &str = "binomial";
 /// The words between `binomial` and the column that holds each row's
@@ -49,13 +65,14 @@ pub const OUT_OF: [&str; 2] = ["out", "of"];
 
 impl Family {
     /// Read the rest of a `family` line: `normal`, `bernoulli`, `poisson`,
-    /// `levels`, or `binomial out of <column>`.
+    /// `gamma_poisson`, `levels`, or `binomial out of <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
         match words[..] {
             [NORMAL] => Ok(Family::Normal),
             [BERNOULLI] => Ok(Family::Bernoulli),
             [POISSON] => Ok(Family::Poisson),
+            [GAMMA_POISSON] => Ok(Family::GammaPoisson),
             [LEVELS] => Ok(Family::Levels),
             [BINOMIAL, out, of, column] if [out, of] == OUT_OF => Ok(Family::Binomial { trials: column.to_string() }),
             [BINOMIAL, ..] => Err(ModelError::syntax(
@@ -63,7 +80,7 @@ impl Family {
                  write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, levels or binomial out of <column>"
+                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, levels or binomial out of <column>"
             ))),
         }
     }
@@ -75,6 +92,7 @@ impl Family {
             Family::Bernoulli => BERNOULLI,
             Family::Binomial { .. } => BINOMIAL,
             Family::Poisson => POISSON,
+            Family::GammaPoisson => GAMMA_POISSON,
             Family::Levels => LEVELS,
         }
     }
@@ -84,7 +102,7 @@ impl Family {
         match self {
             Family::Normal => "identity",
             Family::Bernoulli | Family::Binomial { .. } => "logit",
-            Family::Poisson => "log",
+            Family::Poisson | Family::GammaPoisson => "log",
             Family::Levels => "softmax",
         }
     }
@@ -92,6 +110,22 @@ impl Family {
     /// Whether the family has a spread parameter.
     pub fn has_spread(&self) -> bool {
         matches!(self, Family::Normal)
+    }
+
+    /// The label of the family's positive parameter beside the
+    /// coefficients (sampled as its log): `spread` for the normal family,
+    /// `overdispersion` for the gamma-poisson family; `None` for the others.
+    pub fn family_parameter(&self) -> Option<&'static str> {
+        match self {
+            Family::Normal => Some(SPREAD),
+            Family::GammaPoisson => Some(OVERDISPERSION),
+            _ => None,
+        }
+    }
+
+    /// Whether the outcome is a count with a log link (poisson or gamma-poisson).
+    pub fn is_count(&self) -> bool {
+        matches!(self, Family::Poisson | Family::GammaPoisson)
     }
 
     /// The mean of one outcome (per trial, for binomial) from the linear
@@ -102,7 +136,7 @@ impl Family {
         match self {
             Family::Normal => eta,
             Family::Bernoulli | Family::Binomial { .. } | Family::Levels => logistic(eta),
-            Family::Poisson => eta.exp(),
+            Family::Poisson | Family::GammaPoisson => eta.exp(),
         }
     }
 
@@ -117,7 +151,7 @@ impl Family {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }
-            Family::Poisson => mu.max(1e-3).ln(),
+            Family::Poisson | Family::GammaPoisson => mu.max(1e-3).ln(),
         }
     }
 }
