@@ -54,6 +54,11 @@ fn outcome_must_fit_the_family() {
         .assert_eq(&build_error("yield from girth using trees\nfamily gamma_poisson", &t));
     expect![[r#"model line 2: column `soil`: the outcome is a category (loam, sandy, clay), which goes with `family levels` (or leave the family line out); `family gamma_poisson` needs a numeric column"#]]
         .assert_eq(&build_error("soil from girth using trees\nfamily gamma_poisson", &t));
+    // The beta density lives on the open interval (0, 1): a 0 or a 1 has none.
+    expect![[r#""#]]
+        .assert_eq(&build_error("healthy from girth using trees\nfamily beta", &t));
+    expect![[r#""#]]
+        .assert_eq(&build_error("yield from girth using trees\nfamily beta", &t));
     // Binomial successes lie in 0..=trials.
     expect!["model line 2: table `trees` row 3, column `fruit`: 10 successes is not a whole number between 0 and the 9 trials in `set`"]
         .assert_eq(&build_error("fruit from girth using trees\nfamily binomial out of set", &t));

@@ -58,16 +58,14 @@ fn variance(v: &[f64]) -> f64 {
 
 /// Source: a poisson count whose rate is μ times a gamma variable of mean 1
 /// and variance κ² has mean μ and variance μ + κ²μ² (the negative binomial
-/// "NB2" moments; Hilbe, Negative Binomial Regression, 2011, recalled). With
-/// no parents the mechanism's rate is one number: 60,000 rows, checked to
+/// "NB2" moments; Hilbe, Negative Binomial Regression, 2011, recalled). A
+/// mechanism that reads no parent has one rate: 60,000 rows, checked to
 /// within 4.5 standard errors (the variance's from the NB's fourth moment,
 /// bounded here by twice the squared variance over n, generous for κ ≤ 1).
 #[test]
 fn simulated_counts_have_the_negative_binomial_moments() {
-    let mut b = GraphBuilder::new("one");
-    b.add_line("seedlings").expect("node");
-    let g = b.finish().expect("graph");
-    let sim = Simulation::parse("s", &g, SimulationSettings { rows: 60_000, seed: 4 }, [(2, "seedlings = gamma_poisson(6, 0.8)")].into_iter())
+    let body = [PLOTS[0], PLOTS[1], "seedlings = gamma_poisson(6, 0.8)"];
+    let sim = Simulation::parse("s", &plots_graph(), SimulationSettings { rows: 60_000, seed: 4 }, body.iter().enumerate().map(|(i, l)| (i + 2, *l)))
         .expect("mechanism");
     let y = counts(&sim.table().expect("table"), "seedlings");
     let (mu, kappa) = (6.0, 0.8);

@@ -19,6 +19,7 @@ use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
 use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
+use super::family::shaped::{moment_overdispersion, moment_precision, BetaShare};
 use super::family::softmax::SoftmaxData;
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
@@ -107,11 +108,18 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     start.extend(pooling.start(&[], anchor));
     let gaussian_spread = priors.family_parameter.clone().filter(|_| spec.family == Family::Normal);
     let family_prior = priors.family_parameter.clone().filter(|_| spec.family != Family::Normal);
-    if spec.family == Family::GammaPoisson {
-        notes.push(
-            "overdispersion is the sd of the gamma multiplier of each row's rate (variance mean +              overdispersion²·mean²), sampled as log(overdispersion) with the Jacobian of that change included"
+    match spec.family {
+        Family::GammaPoisson => notes.push(
+            "overdispersion is the sd of the gamma multiplier of each row's rate (variance mean + \
+             overdispersion²·mean²), sampled as log(overdispersion) with the Jacobian of that change included"
                 .into(),
-        );
+        ),
+        Family::Beta => notes.push(
+            "each share is beta distributed around its mean with the precision φ (variance \
+             mean·(1 − mean)/(1 + φ)), sampled as log(precision) with the Jacobian of that change included"
+                .into(),
+        ),
+        _ => {}
     }
     let likelihood = match (gaussian_spread, &outcome.levels) {
         (Some(spread_prior), _) => {
@@ -354,6 +362,7 @@ pub(super) fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &Outcome
         (Family::Binomial { .. }, Some(trials)) => GlmOutcome::Binomial { y, trials: trials.clone() },
         (Family::Poisson, _) => GlmOutcome::Poisson { y },
         (Family::GammaPoisson, _) => GlmOutcome::GammaPoisson { y },
+        (Family::Beta, _) => GlmOutcome::Beta { shares: y.iter().map(|&v| BetaShare::new(v)).collect(), y },
         _ => GlmOutcome::Bernoulli { y },
     };
     GlmData::new(rows, design.ncols(), glm_outcome)
@@ -366,10 +375,11 @@ pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize) -> S
 }
 
 /// The family parameter's starting value: the outcome's sd for the
-/// spread, the moment estimate for the overdispersion.
+/// spread, the moment estimate for the overdispersion or the precision.
 fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
-        Family::GammaPoisson => super::family::shaped::moment_overdispersion(&outcome.y),
+        Family::GammaPoisson => moment_overdispersion(&outcome.y),
+        Family::Beta => moment_precision(&outcome.y),
         _ => mean_and_sd(&outcome.y).1,
     }
 }

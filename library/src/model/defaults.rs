@@ -38,6 +38,16 @@
 //! density is highest at κ = 0, the poisson model, so the data must show
 //! extra variation before the fit leaves it.
 //!
+//! **Precision** (beta family): the residual sd of a share around its mean
+//! μ is `√(μ(1 − μ)/(1 + φ))`. With no predictor that residual is the
+//! outcome's own sd `s_y`, at `φ₀ = ȳ(1 − ȳ)/s_y² − 1` (kept within
+//! [1, 1000]); predictors shrink it. The default `lognormal(log φ₀ + 1, 1)`
+//! makes the log of (residual sd / `s_y`) about normal with mean −½ and sd
+//! ½: a residual sd with median 0.61·`s_y` (near the median the spread's
+//! `half_normal(s_y)` gives, 0.67·`s_y`) and central 95% from 0.23·`s_y`
+//! to 1.6·`s_y`. A precision has no natural zero to shrink to, so unlike
+//! the spread its prior is centred on the data's scale rather than at 0.
+//!
 //! **Pooled spreads.** A pooled group's departures vary from row to row
 //! too, so each pooled group takes one share of the budget beside the `K`
 //! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every
@@ -63,6 +73,7 @@
 //! the priors actually used and who set them.
 
 use super::error::ModelError;
+use super::family::shaped::{moment_overdispersion, moment_precision};
 use super::family::softmax::level_prefix;
 use super::family::Family;
 use super::outcome::OutcomeValues;
@@ -206,7 +217,10 @@ pub fn assign_priors(
     if let Some(label) = spec.family.family_parameter() {
         let group = family_parameter_group(&spec.family);
         let declared = spec.declared_prior(group);
-        let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target });
+        let prior = declared.cloned().unwrap_or_else(|| match spec.family {
+            Family::Beta => Prior::LogNormal { log_mean: moment_precision(&outcome.y).ln() + 1.0, log_sd: 1.0 },
+            _ => Prior::HalfNormal { sd: target },
+        });
         plan.uses.push(PriorUse {
             group,
             parameters: vec![label.into()],
@@ -264,8 +278,13 @@ pub fn row_information(family: &Family, outcome: &OutcomeValues) -> f64 {
         // the starting overdispersion (φ = 1/κ²).
         Family::GammaPoisson => {
             let mu = outcome.mean_per_trial().max(1e-3);
-            let kappa = super::family::shaped::moment_overdispersion(&outcome.y);
+            let kappa = moment_overdispersion(&outcome.y);
             mu / (1.0 + kappa * kappa * mu)
+        }
+        // The quasi-likelihood information about η: (dμ/dη)² / var = μ(1 − μ)(1 + φ).
+        Family::Beta => {
+            let mu = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
+            mu * (1.0 - mu) * (1.0 + moment_precision(&outcome.y))
         }
         _ => {
             let p = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
@@ -287,6 +306,7 @@ fn outcome_centre(family: &Family, outcome: &OutcomeValues) -> f64 {
 fn family_parameter_group(family: &Family) -> PriorGroup {
     match family {
         Family::GammaPoisson => PriorGroup::Overdispersion,
+        Family::Beta => PriorGroup::Precision,
         _ => PriorGroup::Spread,
     }
 }
@@ -314,7 +334,7 @@ fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
 fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]) -> Result<(), ModelError> {
     for (group, prior) in &spec.priors {
         let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
-        let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion) {
+        let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision) {
             spec.family.family_parameter().is_some() && family_parameter_group(&spec.family) == *group
         } else if *group == PriorGroup::PooledSpreads {
             !groups.is_empty()
@@ -345,6 +365,7 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
                 match group {
                     PriorGroup::Spread => "the spread is",
                     PriorGroup::Overdispersion => "the overdispersion is",
+                    PriorGroup::Precision => "the precision is",
                     _ => "pooled spreads are",
                 }
             ));

@@ -1,7 +1,7 @@
 //! Reading and checking the outcome (and binomial trials) column against the
 //! family: a bernoulli outcome is 0/1, binomial successes are whole numbers
 //! within their trials, poisson and gamma-poisson counts are whole and
-//! non-negative, and a
+//! non-negative, beta shares lie strictly between 0 and 1, and a
 //! category outcome goes with the levels family (and only it). Errors name
 //! the first offending row.
 
@@ -87,6 +87,16 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
             })
             .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Binomial { trials } => read_binomial(table, name, y, trials),
+        Family::Beta => first_bad(&y, |v| v > 0.0 && v < 1.0)
+            .map(|row| {
+                let message = format!(
+                    "{} is not strictly between 0 and 1, which a beta outcome (a share) must be; a share of exactly \
+                     0 or 1 has no beta density: model the counts behind it with `family binomial out of <column>`",
+                    y[row]
+                );
+                Err(place(row, message))
+            })
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Levels => Err(ModelError::Column {
             column: name.to_string(),
             message: format!(

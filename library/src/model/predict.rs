@@ -10,7 +10,7 @@
 
 use nalgebra::DMatrix;
 use rand::{Rng, RngExt};
-use rand_distr::{Binomial, Distribution, Gamma, Normal, Poisson};
+use rand_distr::{Beta, Binomial, Distribution, Gamma, Normal, Poisson};
 
 use crate::table::Table;
 
@@ -233,6 +233,13 @@ impl Model {
                 let gamma = Gamma::new(shape, mu / shape)
                     .map_err(|e| invalid(format!("cannot draw a gamma-poisson outcome's rate ({e})")))?;
                 poisson_draw(gamma.sample(rng), rng).map_err(invalid)?
+            }
+            Family::Beta => {
+                let precision = params[self.labels.len()];
+                let beta = Beta::new(mu * precision, (1.0 - mu) * precision)
+                    .map_err(|e| invalid(format!("cannot draw a beta outcome ({e})")))?;
+                // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share must lie.
+                beta.sample(rng).clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON)
             }
             Family::Levels => return Err(invalid("a category outcome is drawn as a level".into())),
         })

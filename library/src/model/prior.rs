@@ -29,17 +29,20 @@ pub enum PriorGroup {
     PooledSpreads,
     /// The overdispersion of a gamma-poisson outcome (positive).
     Overdispersion,
+    /// The precision of a beta outcome (positive).
+    Precision,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 6] = [
+    pub const ALL: [PriorGroup; 7] = [
         PriorGroup::Intercepts,
         PriorGroup::Slopes,
         PriorGroup::Weights,
         PriorGroup::Spread,
         PriorGroup::PooledSpreads,
         PriorGroup::Overdispersion,
+        PriorGroup::Precision,
     ];
 
     /// The group words of a `prior` line.
@@ -56,6 +59,7 @@ impl PriorGroup {
             PriorGroup::Spread => "spread",
             PriorGroup::PooledSpreads => "pooled spreads",
             PriorGroup::Overdispersion => "overdispersion",
+            PriorGroup::Precision => "precision",
         }
     }
 
@@ -75,7 +79,7 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion)
+        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion | PriorGroup::Precision)
     }
 }
 

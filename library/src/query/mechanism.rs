@@ -12,7 +12,10 @@
 //! `poisson(rate)` or `poisson(log = η)`, and `gamma_poisson(rate, κ)` or
 //! `gamma_poisson(log = η, κ)`: a poisson count whose rate is multiplied,
 //! row by row, by a gamma variable of mean 1 and sd κ (a positive
-//! expression, the overdispersion of a `gamma_poisson` model). Expressions use numbers, parent
+//! expression, the overdispersion of a `gamma_poisson` model), and
+//! `beta(mean, φ)` or `beta(logit = η, φ)`: a share in (0, 1) with that
+//! mean and precision φ (a positive expression, the precision of a `beta`
+//! model). Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
 //! `[c = level]` (1 when category c is at that level, else 0), and
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
@@ -26,12 +29,13 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
 pub const POISSON: &str = "poisson";
 pub const GAMMA_POISSON: &str = "gamma_poisson";
+pub const BETA: &str = "beta";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -147,6 +151,9 @@ pub enum Mechanism {
     /// `overdispersion` κ (gamma-poisson) the rate is multiplied by a gamma
     /// variable of mean 1 and sd κ.
     Poisson { rate: Expr, log: bool, overdispersion: Option<Expr> },
+    /// A share with mean `mean` (or its logit when `logit` is true) and
+    /// precision `precision`.
+    Beta { mean: Expr, logit: bool, precision: Expr },
 }
 
 impl Mechanism {
@@ -159,6 +166,7 @@ impl Mechanism {
             Mechanism::Poisson { rate, overdispersion, .. } => {
                 rate.departures().into_iter().chain(overdispersion.iter().flat_map(Expr::departures)).collect()
             }
+            Mechanism::Beta { mean, precision, .. } => mean.departures().into_iter().chain(precision.departures()).collect(),
         }
     }
 
@@ -170,6 +178,7 @@ impl Mechanism {
             Mechanism::Normal { mean, .. } => mean.departures(),
             Mechanism::Bernoulli { p, logit: true } => p.departures(),
             Mechanism::Poisson { rate, log: true, .. } => rate.departures(),
+            Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
             _ => Vec::new(),
         }
     }
@@ -183,6 +192,7 @@ impl Mechanism {
             Mechanism::Poisson { rate, overdispersion, .. } => {
                 rate.uses().into_iter().chain(overdispersion.iter().flat_map(Expr::uses)).collect()
             }
+            Mechanism::Beta { mean, precision, .. } => mean.uses().into_iter().chain(precision.uses()).collect(),
         }
     }
 }
@@ -195,6 +205,7 @@ impl fmt::Display for Mechanism {
             Mechanism::Bernoulli { .. } => BERNOULLI,
             Mechanism::Poisson { overdispersion: None, .. } => POISSON,
             Mechanism::Poisson { overdispersion: Some(_), .. } => GAMMA_POISSON,
+            Mechanism::Beta { .. } => BETA,
         };
         f.write_str(name)
     }
@@ -241,6 +252,14 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
         (NORMAL, _) => return Err(format!("normal takes 2 arguments (mean, sd), not {}", args.len())),
         (BERNOULLI, _) => return Err(format!("bernoulli takes 1 argument (p, or logit = …), not {}", args.len())),
         (POISSON, _) => return Err(format!("poisson takes 1 argument (rate, or log = …), not {}", args.len())),
+        (BETA, [mean, precision]) => {
+            let precision = parse_expr(precision)?;
+            match keyword_argument(mean, LOGIT) {
+                Some(eta) => Mechanism::Beta { mean: parse_expr(eta)?, logit: true, precision },
+                None => Mechanism::Beta { mean: parse_expr(mean)?, logit: false, precision },
+            }
+        }
+        (BETA, _) => return Err(format!("beta takes 2 arguments (mean, or logit = …, then the precision), not {}", args.len())),
         (GAMMA_POISSON, _) => {
             return Err(format!(
                 "gamma_poisson takes 2 arguments (rate, or log = …, then the overdispersion), not {}",

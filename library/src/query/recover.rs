@@ -132,6 +132,7 @@ fn true_parameters(
             | (Some(Mechanism::Bernoulli { .. }), Family::Bernoulli)
             | (Some(Mechanism::Poisson { overdispersion: None, .. }), Family::Poisson)
             | (Some(Mechanism::Poisson { overdispersion: Some(_), .. }), Family::GammaPoisson)
+            | (Some(Mechanism::Beta { .. }), Family::Beta)
     );
     if !matches {
         notes.push(format!("the mechanism of {outcome} is not of the model's family, so no parameter has a true value"));

@@ -32,7 +32,7 @@
 use statrs::function::gamma::ln_gamma;
 
 use super::kernels::{exp, softplus_and_logistic};
-use super::shaped::{gamma_poisson_row, GammaShape};
+use super::shaped::{beta_row, gamma_poisson_row, BetaPrecision, BetaShare, GammaShape};
 
 /// Rows per block of the stored design.
 const BLOCK: usize = 64;
@@ -48,6 +48,9 @@ pub enum GlmOutcome {
     Poisson { y: Vec<f64> },
     /// Gamma-poisson counts: the likelihood also takes `log(overdispersion)`.
     GammaPoisson { y: Vec<f64> },
+    /// Beta shares in (0, 1), kept as their logs: the likelihood also takes
+    /// `log(precision)`.
+    Beta { y: Vec<f64>, shares: Vec<BetaShare> },
 }
 
 /// One run of pooled departures as the likelihood sees it: each row's
@@ -135,7 +138,8 @@ impl GlmData {
 
     /// [`GlmData::log_likelihood_and_gradient`] for a family with a
     /// positive parameter beside the coefficients (gamma-poisson:
-    /// `u = log(overdispersion)`, [`super::shaped`]): also returns the
+    /// `u = log(overdispersion)`; beta: `u = log(precision)`;
+    /// [`super::shaped`]): also returns the
     /// derivative in `u` (0 for the families without one, which ignore `u`).
     pub fn log_likelihood_and_gradients(&self, beta: &[f64], u: f64, grad: &mut [f64]) -> (f64, f64) {
         #[cfg(target_arch = "x86_64")]
@@ -150,11 +154,6 @@ impl GlmData {
             }
         }
         self.evaluate(beta, u, grad)
-    }
-
-    /// Whether the likelihood takes a family parameter beside the coefficients.
-    pub fn has_family_parameter(&self) -> bool {
-        matches!(self.outcome, GlmOutcome::GammaPoisson { .. })
     }
 
     /// [`GlmData::evaluate`] compiled for AVX-512.
@@ -188,7 +187,7 @@ impl GlmData {
         if width == 0 {
             return (self.constant, 0.0);
         }
-        let shape = GammaShape::from_log_overdispersion(u);
+        let shape = FamilyShape { gamma: GammaShape::from_log_overdispersion(u), beta: BetaPrecision::from_log_precision(u) };
         let mut d_u = [0.0; BLOCK];
         let total_width = width + self.departures();
         let (beta, departures) = beta[..total_width].split_at(width);
@@ -228,7 +227,7 @@ impl GlmData {
         first: usize,
         used: usize,
         eta: &[f64; BLOCK],
-        shape: GammaShape,
+        shape: FamilyShape,
         terms: &mut [f64; BLOCK],
         slope: &mut [f64; BLOCK],
         d_u: &mut [f64; BLOCK],
@@ -259,7 +258,15 @@ impl GlmData {
             }
             GlmOutcome::GammaPoisson { y } => {
                 for (i, &y) in y[rows].iter().enumerate() {
-                    let (term, d_eta, d_shape) = gamma_poisson_row(y, eta[i], shape);
+                    let (term, d_eta, d_shape) = gamma_poisson_row(y, eta[i], shape.gamma);
+                    terms[i] += term;
+                    slope[i] = d_eta;
+                    d_u[i] += d_shape;
+                }
+            }
+            GlmOutcome::Beta { shares, .. } => {
+                for (i, &share) in shares[rows].iter().enumerate() {
+                    let (term, d_eta, d_shape) = beta_row(share, eta[i], shape.beta);
                     terms[i] += term;
                     slope[i] = d_eta;
                     d_u[i] += d_shape;
@@ -267,6 +274,13 @@ impl GlmData {
             }
         }
     }
+}
+
+/// The family parameter as each family's rows use it, from its log `u`.
+#[derive(Debug, Clone, Copy)]
+struct FamilyShape {
+    gamma: GammaShape,
+    beta: BetaPrecision,
 }
 
 /// The sum of a multiple of eight lanes: eight partial sums, then a fixed
@@ -394,7 +408,8 @@ fn column_products<const C: usize>(columns: &[f64], slope: &[f64; BLOCK], out: &
 }
 
 /// The part of the log-likelihood free of coefficients: Σ log C(m, y) for
-/// binomial, −Σ log y! for poisson and gamma-poisson, 0 for bernoulli.
+/// binomial, −Σ log y! for poisson and gamma-poisson, −Σ log(y(1 − y))
+/// for beta, 0 for bernoulli.
 fn log_likelihood_constant(outcome: &GlmOutcome) -> f64 {
     let log_factorial = |v: f64| ln_gamma(v + 1.0);
     match outcome {
@@ -405,6 +420,7 @@ fn log_likelihood_constant(outcome: &GlmOutcome) -> f64 {
             .map(|(&s, &m)| log_factorial(m) - log_factorial(s) - log_factorial(m - s))
             .sum(),
         GlmOutcome::Poisson { y } | GlmOutcome::GammaPoisson { y } => -y.iter().map(|&v| log_factorial(v)).sum::<f64>(),
+        GlmOutcome::Beta { y, shares } => -y.iter().zip(shares).map(|(&v, s)| v.ln() + s.log_complement).sum::<f64>(),
     }
 }
 
@@ -427,10 +443,23 @@ mod tests {
         let successes: Vec<f64> = trials.iter().enumerate().map(|(i, m)| (i % 8) as f64 % (m + 1.0)).collect();
         vec![
             GlmOutcome::Bernoulli { y },
-            GlmOutcome::Binomial { y: successes.clone(), trials },
+            GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
             GlmOutcome::Poisson { y: successes.clone() },
-            GlmOutcome::GammaPoisson { y: successes },
+            GlmOutcome::GammaPoisson { y: successes.clone() },
+            shares_of(&successes, &trials),
         ]
+    }
+
+    /// Beta shares `(s + ½)/(m + 1)`, strictly inside (0, 1).
+    fn shares_of(successes: &[f64], trials: &[f64]) -> GlmOutcome {
+        let y: Vec<f64> = successes.iter().zip(trials).map(|(s, m)| (s + 0.5) / (m + 1.0)).collect();
+        GlmOutcome::Beta { shares: y.iter().map(|&v| BetaShare::new(v)).collect(), y }
+    }
+
+    /// A beta row at precision 1 (`u = 0`), as [`gamma_poisson_at_one`].
+    fn beta_at_one(share: BetaShare, eta: f64) -> (f64, f64) {
+        let (term, slope, _) = beta_row(share, eta, BetaPrecision::from_log_precision(0.0));
+        (term, slope)
     }
 
     /// A gamma-poisson row at overdispersion 1 (`u = 0`, the value
@@ -456,6 +485,7 @@ mod tests {
                 }
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
                 GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
+                GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
             };
             total += value;
             for (g, x) in grad.iter_mut().zip(row) {
@@ -505,6 +535,7 @@ mod tests {
                 GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
                 GlmOutcome::Poisson { y: successes.clone() },
                 GlmOutcome::GammaPoisson { y: successes.clone() },
+                shares_of(&successes, &trials),
             ] {
                 let data = GlmData::new(rows.clone(), width, outcome.clone());
                 let mut grad = vec![0.0; width];
@@ -531,6 +562,7 @@ mod tests {
                 GlmOutcome::Binomial { y, trials } => (y[i] * eta - trials[i] * softplus(eta), y[i] - trials[i] * logistic(eta)),
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
                 GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
+                GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
             };
             value += term.abs() + (y_of(outcome, i) * eta).abs();
             for (g, x) in gradient.iter_mut().zip(row) {
@@ -545,7 +577,8 @@ mod tests {
             GlmOutcome::Bernoulli { y }
             | GlmOutcome::Binomial { y, .. }
             | GlmOutcome::Poisson { y }
-            | GlmOutcome::GammaPoisson { y } => y[i],
+            | GlmOutcome::GammaPoisson { y }
+            | GlmOutcome::Beta { y, .. } => y[i],
         }
     }
 
@@ -583,9 +616,10 @@ mod tests {
         let yes: Vec<f64> = (0..n).map(|_| f64::from(rng.random::<bool>())).collect();
         for outcome in [
             GlmOutcome::Bernoulli { y: yes },
-            GlmOutcome::Binomial { y: successes.clone(), trials },
+            GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
             GlmOutcome::Poisson { y: successes.clone() },
-            GlmOutcome::GammaPoisson { y: successes },
+            GlmOutcome::GammaPoisson { y: successes.clone() },
+            shares_of(&successes, &trials),
         ] {
             let groups = levels
                 .iter()
