@@ -33,8 +33,10 @@
 //!   correlated (`pooled stream with shade`), normal family, NUTS;
 //! * `i` — the nymph counts of `e` with each sample's rate multiplied by a
 //!   gamma variable of mean 1 and sd 0.5, gamma-poisson family (learned
-//!   overdispersion), 10 predictors, n = 20,000, NUTS.
-//!
+//!   overdispersion), 10 predictors, n = 20,000, NUTS;
+//! * `j` — the share of each tray's seedlings that were healthy (strictly
+//!   between 0 and 1) against the 5 soil measures of `f`, beta family
+//!   (learned precision), n = 5,000, NUTS.
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
 //! largest R-hat, divergent trajectories, the deepest trajectory (doublings)
@@ -58,7 +60,7 @@ use std::time::Instant;
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
-use rand_distr::{Distribution, Gamma, Normal};
+use rand_distr::{Beta, Distribution, Gamma, Normal};
 use waypath::draws::SummarySpec;
 use waypath::infer::fit::{design_condition, fit_model, Fit, Method};
 use waypath::infer::nuts::NutsSettings;
@@ -125,6 +127,9 @@ fn main() {
     }
     if wants("i") {
         rows.push(case_overdispersed(nuts));
+    }
+    if wants("j") {
+        rows.push(case_shares(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -292,6 +297,17 @@ fn case_overdispersed(nuts: &NutsSettings) -> Row {
     let model = build("m_nymphs_overdispersed", &body, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(i) gamma-poisson, 10 predictors, n = 20,000, NUTS", started, &fit, &model)
+}
+
+/// (j) Beta regression on 5 predictors, n = 5,000, precision 20.
+fn case_shares(nuts: &NutsSettings) -> Row {
+    let table = healthy_shares(5_000, 17);
+    let body = "healthy from s1, s2, s3, s4, s5 using trays\nfamily beta";
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_healthy", body, &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(j) beta, 5 predictors, n = 5,000, NUTS", started, &fit, &model)
 }
 
 /// (f) Binomial regression on 5 predictors, n = 5,000, trials 1 to 40.
@@ -540,6 +556,32 @@ fn poisson_draw(mean: f64, rng: &mut StdRng) -> u64 {
         product *= rng.random::<f64>();
     }
     count
+}
+
+/// Seed trays: the share of each tray's seedlings that were healthy, beta
+/// with mean logistic(η) and precision 20, against 5 standardised soil
+/// measures `s1` … `s5`.
+fn healthy_shares(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let effects = [0.4, -0.2, 0.3, 0.0, -0.1];
+    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 5];
+    let mut healthy = Vec::with_capacity(n);
+    for _ in 0..n {
+        let mut eta = 0.8;
+        for (column, effect) in columns.iter_mut().zip(&effects) {
+            let s = noise.sample(&mut rng);
+            column.push(s);
+            eta += effect * s;
+        }
+        let mu = 1.0 / (1.0 + (-eta as f64).exp());
+        let share: f64 = Beta::new(20.0 * mu, 20.0 * (1.0 - mu)).expect("valid beta").sample(&mut rng);
+        healthy.push(share.clamp(1e-9, 1.0 - 1e-9));
+    }
+    let mut named: Vec<(String, ColumnData)> =
+        columns.into_iter().enumerate().map(|(j, c)| (format!("s{}", j + 1), ColumnData::Real(c))).collect();
+    named.push(("healthy".into(), ColumnData::Real(healthy)));
+    Table { name: "trays".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
 }
 
 /// Seed trays: how many of the seeds sown (1 to 40) sprouted, against 5

@@ -55,9 +55,9 @@ fn outcome_must_fit_the_family() {
     expect![[r#"model line 2: column `soil`: the outcome is a category (loam, sandy, clay), which goes with `family levels` (or leave the family line out); `family gamma_poisson` needs a numeric column"#]]
         .assert_eq(&build_error("soil from girth using trees\nfamily gamma_poisson", &t));
     // The beta density lives on the open interval (0, 1): a 0 or a 1 has none.
-    expect![[r#""#]]
+    expect!["model line 2: table `trees` row 1, column `healthy`: 0 is not strictly between 0 and 1, which a beta outcome (a share) must be; a share of exactly 0 or 1 has no beta density: model the counts behind it with `family binomial out of <column>`"]
         .assert_eq(&build_error("healthy from girth using trees\nfamily beta", &t));
-    expect![[r#""#]]
+    expect!["model line 2: table `trees` row 1, column `yield`: 8.067481021968991 is not strictly between 0 and 1, which a beta outcome (a share) must be; write the outcome as a share of its whole, or choose another family"]
         .assert_eq(&build_error("yield from girth using trees\nfamily beta", &t));
     // Binomial successes lie in 0..=trials.
     expect!["model line 2: table `trees` row 3, column `fruit`: 10 successes is not a whole number between 0 and the 9 trials in `set`"]

@@ -89,12 +89,13 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         Family::Binomial { trials } => read_binomial(table, name, y, trials),
         Family::Beta => first_bad(&y, |v| v > 0.0 && v < 1.0)
             .map(|row| {
-                let message = format!(
-                    "{} is not strictly between 0 and 1, which a beta outcome (a share) must be; a share of exactly \
-                     0 or 1 has no beta density: model the counts behind it with `family binomial out of <column>`",
-                    y[row]
-                );
-                Err(place(row, message))
+                let hint = if y[row] == 0.0 || y[row] == 1.0 {
+                    "a share of exactly 0 or 1 has no beta density: model the counts behind it with `family binomial \
+                     out of <column>`"
+                } else {
+                    "write the outcome as a share of its whole, or choose another family"
+                };
+                Err(place(row, format!("{} is not strictly between 0 and 1, which a beta outcome (a share) must be; {hint}", y[row])))
             })
             .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Levels => Err(ModelError::Column {
