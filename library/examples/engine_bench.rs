@@ -37,6 +37,7 @@
 //! * `j` — the share of each tray's seedlings that were healthy (strictly
 //!   between 0 and 1) against the 5 soil measures of `f`, beta family
 //!   (learned precision), n = 5,000, NUTS.
+//!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
 //! largest R-hat, divergent trajectories, the deepest trajectory (doublings)
@@ -574,7 +575,7 @@ fn healthy_shares(n: usize, seed: u64) -> Table {
             column.push(s);
             eta += effect * s;
         }
-        let mu = 1.0 / (1.0 + (-eta as f64).exp());
+        let mu = 1.0 / (1.0 + (-eta).exp());
         let share: f64 = Beta::new(20.0 * mu, 20.0 * (1.0 - mu)).expect("valid beta").sample(&mut rng);
         healthy.push(share.clamp(1e-9, 1.0 - 1e-9));
     }

@@ -418,7 +418,9 @@ impl Simulation {
                     stop(i)?;
                     let q = if *logit { logistic(eval(mean, i)) } else { eval(mean, i) };
                     let phi = eval(precision, i);
-                    if !(q > 0.0 && q < 1.0) || !phi.is_finite() || phi <= 0.0 {
+                    // Written so that a mean of NaN is refused too.
+                    let inside = q > 0.0 && q < 1.0;
+                    if !inside || !phi.is_finite() || phi <= 0.0 {
                         return Err(bad(i, format!(
                             "the mean is {} and the precision {}, but the mean must lie strictly between 0 and 1 and the precision be positive",
                             short(q),
