@@ -30,7 +30,13 @@
 //!   6,000 rows, bernoulli family, NUTS;
 //! * `h` — streams: water temperature against canopy shade in 40 streams
 //!   of 100 readings, each stream with its own intercept and shade slope,
-//!   correlated (`pooled stream with shade`), normal family, NUTS.
+//!   correlated (`pooled stream with shade`), normal family, NUTS;
+//! * `i` — the nymph counts of `e` with each sample's rate multiplied by a
+//!   gamma variable of mean 1 and sd 0.5, gamma-poisson family (learned
+//!   overdispersion), 10 predictors, n = 20,000, NUTS;
+//! * `j` — the share of each tray's seedlings that were healthy (strictly
+//!   between 0 and 1) against the 5 soil measures of `f`, beta family
+//!   (learned precision), n = 5,000, NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
@@ -55,7 +61,7 @@ use std::time::Instant;
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
-use rand_distr::{Distribution, Normal};
+use rand_distr::{Beta, Distribution, Gamma, Normal};
 use waypath::draws::SummarySpec;
 use waypath::infer::fit::{design_condition, fit_model, Fit, Method};
 use waypath::infer::nuts::NutsSettings;
@@ -119,6 +125,12 @@ fn main() {
     }
     if wants("h") {
         rows.push(case_streams(nuts));
+    }
+    if wants("i") {
+        rows.push(case_overdispersed(nuts));
+    }
+    if wants("j") {
+        rows.push(case_shares(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -274,6 +286,29 @@ fn case_poisson(nuts: &NutsSettings) -> Row {
     let model = build("m_nymphs", &body, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(e) poisson, 10 predictors, n = 20,000, NUTS", started, &fit, &model)
+}
+
+/// (i) Gamma-poisson regression on 10 predictors, n = 20,000, overdispersion 0.5.
+fn case_overdispersed(nuts: &NutsSettings) -> Row {
+    let table = samples_with(20_000, 15, 0.5);
+    let terms: Vec<String> = (1..=10).map(|j| format!("w{j}")).collect();
+    let body = format!("nymphs from {} using samples\nfamily gamma_poisson", terms.join(", "));
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_nymphs_overdispersed", &body, &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(i) gamma-poisson, 10 predictors, n = 20,000, NUTS", started, &fit, &model)
+}
+
+/// (j) Beta regression on 5 predictors, n = 5,000, precision 20.
+fn case_shares(nuts: &NutsSettings) -> Row {
+    let table = healthy_shares(5_000, 17);
+    let body = "healthy from s1, s2, s3, s4, s5 using trays\nfamily beta";
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_healthy", body, &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(j) beta, 5 predictors, n = 5,000, NUTS", started, &fit, &model)
 }
 
 /// (f) Binomial regression on 5 predictors, n = 5,000, trials 1 to 40.
@@ -480,7 +515,15 @@ fn plots(n: usize, seed: u64) -> Table {
 /// measures `w1` … `w10`; each even-numbered measure is correlated 0.6
 /// with the one before it (warmth and oxygen, flow and gravel, …).
 fn samples(n: usize, seed: u64) -> Table {
+    samples_with(n, seed, 0.0)
+}
+
+/// [`samples`] with each rate multiplied by a gamma variable of mean 1
+/// and sd `overdispersion` (none when it is 0), drawn after the measures.
+fn samples_with(n: usize, seed: u64, overdispersion: f64) -> Table {
     let mut rng = StdRng::seed_from_u64(seed);
+    let shape = 1.0 / (overdispersion * overdispersion);
+    let multiplier = (overdispersion > 0.0).then(|| Gamma::new(shape, 1.0 / shape).expect("valid gamma"));
     let noise = Normal::new(0.0, 1.0).expect("valid normal");
     let effects = [0.3, -0.2, 0.15, 0.0, -0.25, 0.1, 0.0, 0.05, 0.2, -0.1];
     let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 10];
@@ -495,7 +538,8 @@ fn samples(n: usize, seed: u64) -> Table {
             column.push(w);
             eta += effect * w;
         }
-        nymphs.push(poisson_draw(eta.exp(), &mut rng));
+        let rate = eta.exp() * multiplier.as_ref().map_or(1.0, |g| g.sample(&mut rng));
+        nymphs.push(poisson_draw(rate, &mut rng));
     }
     let mut named: Vec<(String, ColumnData)> =
         columns.into_iter().enumerate().map(|(j, c)| (format!("w{}", j + 1), ColumnData::Real(c))).collect();
@@ -513,6 +557,32 @@ fn poisson_draw(mean: f64, rng: &mut StdRng) -> u64 {
         product *= rng.random::<f64>();
     }
     count
+}
+
+/// Seed trays: the share of each tray's seedlings that were healthy, beta
+/// with mean logistic(η) and precision 20, against 5 standardised soil
+/// measures `s1` … `s5`.
+fn healthy_shares(n: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let effects = [0.4, -0.2, 0.3, 0.0, -0.1];
+    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 5];
+    let mut healthy = Vec::with_capacity(n);
+    for _ in 0..n {
+        let mut eta = 0.8;
+        for (column, effect) in columns.iter_mut().zip(&effects) {
+            let s = noise.sample(&mut rng);
+            column.push(s);
+            eta += effect * s;
+        }
+        let mu = 1.0 / (1.0 + (-eta).exp());
+        let share: f64 = Beta::new(20.0 * mu, 20.0 * (1.0 - mu)).expect("valid beta").sample(&mut rng);
+        healthy.push(share.clamp(1e-9, 1.0 - 1e-9));
+    }
+    let mut named: Vec<(String, ColumnData)> =
+        columns.into_iter().enumerate().map(|(j, c)| (format!("s{}", j + 1), ColumnData::Real(c))).collect();
+    named.push(("healthy".into(), ColumnData::Real(healthy)));
+    Table { name: "trays".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
 }
 
 /// Seed trays: how many of the seeds sown (1 to 40) sprouted, against 5

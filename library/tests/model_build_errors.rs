@@ -49,6 +49,16 @@ fn outcome_must_fit_the_family() {
     // Poisson support is the non-negative integers.
     expect!["model line 2: table `trees` row 1, column `yield`: 8.067481021968991 is not a whole number ≥ 0, which a poisson outcome must be"]
         .assert_eq(&build_error("yield from girth using trees\nfamily poisson", &t));
+    // The gamma-poisson (negative binomial) support is the non-negative integers too.
+    expect!["model line 2: table `trees` row 1, column `yield`: 8.067481021968991 is not a whole number ≥ 0, which a gamma_poisson outcome must be"]
+        .assert_eq(&build_error("yield from girth using trees\nfamily gamma_poisson", &t));
+    expect![[r#"model line 2: column `soil`: the outcome is a category (loam, sandy, clay), which goes with `family levels` (or leave the family line out); `family gamma_poisson` needs a numeric column"#]]
+        .assert_eq(&build_error("soil from girth using trees\nfamily gamma_poisson", &t));
+    // The beta density lives on the open interval (0, 1): a 0 or a 1 has none.
+    expect!["model line 2: table `trees` row 1, column `healthy`: 0 is not strictly between 0 and 1, which a beta outcome (a share) must be; a share of exactly 0 or 1 has no beta density: model the counts behind it with `family binomial out of <column>`"]
+        .assert_eq(&build_error("healthy from girth using trees\nfamily beta", &t));
+    expect!["model line 2: table `trees` row 1, column `yield`: 8.067481021968991 is not strictly between 0 and 1, which a beta outcome (a share) must be; write the outcome as a share of its whole, or choose another family"]
+        .assert_eq(&build_error("yield from girth using trees\nfamily beta", &t));
     // Binomial successes lie in 0..=trials.
     expect!["model line 2: table `trees` row 3, column `fruit`: 10 successes is not a whole number between 0 and the 9 trials in `set`"]
         .assert_eq(&build_error("fruit from girth using trees\nfamily binomial out of set", &t));
@@ -68,6 +78,13 @@ fn priors_must_suit_their_group() {
         .assert_eq(&build_error("yield from girth using trees\nprior slopes: exponential(1)", &t));
     expect![[r#"prior for spread: this model has no spread; remove the prior line"#]]
         .assert_eq(&build_error("fruit from girth using trees\nfamily poisson\nprior spread: exponential(1)", &t));
+    // The overdispersion is the gamma-poisson family's own parameter, and positive (sd of the rate multiplier).
+    expect![[r#"prior for overdispersion: this model has no overdispersion; remove the prior line"#]]
+        .assert_eq(&build_error("fruit from girth using trees\nfamily poisson\nprior overdispersion: exponential(1)", &t));
+    expect![[r#"prior for spread: this model has no spread; remove the prior line"#]]
+        .assert_eq(&build_error("fruit from girth using trees\nfamily gamma_poisson\nprior spread: exponential(1)", &t));
+    expect!["prior for overdispersion: normal(0, 1) allows negative values but the overdispersion is positive; use exponential, half_normal or lognormal"]
+        .assert_eq(&build_error("fruit from girth using trees\nfamily gamma_poisson\nprior overdispersion: normal(0, 1)", &t));
     expect![[r#"prior for weights: this model has no weights; remove the prior line"#]]
         .assert_eq(&build_error("yield from girth using trees\nprior weights: normal(0, 1)", &t));
 }

@@ -8,7 +8,7 @@
 
 mod model_fixtures;
 
-use model_fixtures::{build, orchard, value_and_gradient};
+use model_fixtures::{build, orchard, orchard_with_cover, value_and_gradient};
 use rand::rngs::StdRng;
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
@@ -29,8 +29,12 @@ fn numeric_partial(model: &Model, theta: &[f64], j: usize) -> f64 {
 
 /// Check the gradient at five random points around the initial point.
 fn check_gradient(body: &str, seed: u64) {
-    let table = orchard(120, 7);
-    let model = build(body, &table);
+    check_gradient_on(body, &orchard(120, 7), seed);
+}
+
+/// [`check_gradient`] on `table`.
+fn check_gradient_on(body: &str, table: &waypath::table::Table, seed: u64) {
+    let model = build(body, table);
     let mut rng = StdRng::seed_from_u64(seed);
     let jitter = Normal::new(0.0, 0.3).expect("valid normal");
     for _ in 0..5 {
@@ -94,6 +98,33 @@ fn binomial_gradient_matches_finite_differences() {
 fn poisson_gradient_matches_finite_differences() {
     check_gradient(&format!("fruit from {TERMS} using trees\nfamily poisson"), 11);
     check_gradient(&format!("fruit from {SPLINE_TERMS} using trees\nfamily poisson"), 12);
+}
+
+/// The gamma-poisson family: the coefficients and log(overdispersion),
+/// with the default prior and declared ones (`family::shaped` has the row's
+/// formula against its plain definition).
+#[test]
+fn gamma_poisson_gradient_matches_finite_differences() {
+    check_gradient(&format!("fruit from {TERMS} using trees\nfamily gamma_poisson"), 17);
+    check_gradient(&format!("fruit from {SPLINE_TERMS} using trees\nfamily gamma_poisson"), 18);
+    for prior in ["exponential(2)", "lognormal(-1, 0.5)"] {
+        check_gradient(&format!("fruit from girth, soil using trees\nfamily gamma_poisson\nprior overdispersion: {prior}"), 19);
+    }
+    // Pooled departures sit after the overdispersion in the parameter vector.
+    for layout in ["centred", "noncentred"] {
+        check_gradient(&format!("fruit from girth, pooled soil using trees\nfamily gamma_poisson\nparameterise soil {layout}"), 20);
+        check_gradient("fruit from girth, pooled soil with girth using trees\nfamily gamma_poisson", 21);
+    }
+}
+
+/// The beta family: the coefficients and log(precision), with the
+/// default prior, a declared one and a pooled group.
+#[test]
+fn beta_gradient_matches_finite_differences() {
+    let table = orchard_with_cover(120, 7);
+    check_gradient_on(&format!("cover from {TERMS} using trees\nfamily beta"), &table, 22);
+    check_gradient_on(&format!("cover from {SPLINE_TERMS} using trees\nfamily beta\nprior precision: exponential(0.1)"), &table, 23);
+    check_gradient_on("cover from girth, pooled soil using trees\nfamily beta", &table, 24);
 }
 
 /// The levels family (softmax over soil's three levels; rootstock's two),

@@ -82,13 +82,13 @@ fn line_error(text: &str) -> String {
 fn syntax_errors_say_what_to_write() {
     expect!["a binomial outcome needs the column that holds each row's number of trials: write `family binomial out of <column>`"]
         .assert_eq(&line_error("family binomial"));
-    expect!["`family gamma`: use normal, bernoulli, poisson, levels or binomial out of <column>"]
+    expect!["`family gamma`: use normal, bernoulli, poisson, gamma_poisson, beta, levels or binomial out of <column>"]
         .assert_eq(&line_error("family gamma"));
     expect!["`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student, exponential, half_normal, lognormal or uniform"]
         .assert_eq(&line_error("prior slopes: cauchy(0, 1)"));
     expect![[r#"`normal(0)`: normal takes 2 numbers (mean, sd), not 1"#]].assert_eq(&line_error("prior slopes: normal(0)"));
     expect![[r#"`normal(0, -1)`: the sd must be positive"#]].assert_eq(&line_error("prior slopes: normal(0, -1)"));
-    expect![[r#"`noise` is not a prior group; use intercepts, slopes, weights, spread or pooled spreads"#]]
+    expect![[r#"`noise` is not a prior group; use intercepts, slopes, weights, spread, pooled spreads, overdispersion or precision"#]]
         .assert_eq(&line_error("prior noise: exponential(1)"));
     expect![[r#"`yield from girth` is not a model line; an outcome line ends with `using <table>`, other lines start with family, prior or centre"#]]
         .assert_eq(&line_error("yield from girth"));

@@ -77,8 +77,8 @@ pub fn graph(graph: &Graph, title: &str, marks: &GraphMarks) -> Result<String, P
     graph_figure(&GraphPicture { title: title.to_string(), nodes, edges })
 }
 
-/// Posterior densities of the coefficients (the spread is left out: it is
-/// on another scale and rarely the question; the figure's heading says so).
+/// Posterior densities of the coefficients (the spread or overdispersion
+/// is left out: it is on another scale and rarely the question; the figure's heading says so).
 pub fn posterior(model: &Model, fit: &Fit) -> Result<String, PlotError> {
     posterior_of(model, fit, &[])
 }
@@ -94,8 +94,8 @@ pub fn left_out(model: &Model, chosen: &[String]) -> Option<String> {
     if coefficients.len() > FIGURE_COEFFICIENTS {
         out.push(format!("{} coefficients after the first {FIGURE_COEFFICIENTS}", coefficients.len() - FIGURE_COEFFICIENTS));
     }
-    if model.has_spread() {
-        out.push("spread (on its own scale)".to_string());
+    if let Some(name) = model.family_parameter() {
+        out.push(format!("{name} (on its own scale)"));
     }
     (!out.is_empty()).then(|| format!("not drawn: {}; name them with `of`", out.join(", ")))
 }

@@ -19,6 +19,7 @@ use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
 use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
+use super::family::shaped::{moment_overdispersion, moment_precision, BetaShare};
 use super::family::softmax::SoftmaxData;
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
@@ -101,10 +102,26 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             if intercepts.contains(&column) { 0.0 } else { columns.mean[column] }
         })
         .collect();
-    let mut start = starting_point(&blocks, &outcome, &priors.coefficients, priors.spread.as_ref(), &intercepts);
+    let family_start = priors.family_parameter.as_ref().map(|prior| (prior, family_parameter_start(&spec.family, &outcome)));
+    let mut start = starting_point(&blocks, &priors.coefficients, family_start, &intercepts);
     let anchor = pooling.anchor(&start);
     start.extend(pooling.start(&[], anchor));
-    let likelihood = match (priors.spread.clone(), &outcome.levels) {
+    let gaussian_spread = priors.family_parameter.clone().filter(|_| spec.family == Family::Normal);
+    let family_prior = priors.family_parameter.clone().filter(|_| spec.family != Family::Normal);
+    match spec.family {
+        Family::GammaPoisson => notes.push(
+            "overdispersion is the sd of the gamma multiplier of each row's rate (variance mean + \
+             overdispersion²·mean²), sampled as log(overdispersion) with the Jacobian of that change included"
+                .into(),
+        ),
+        Family::Beta => notes.push(
+            "each share is beta distributed around its mean with the precision φ (variance \
+             mean·(1 − mean)/(1 + φ)), sampled as log(precision) with the Jacobian of that change included"
+                .into(),
+        ),
+        _ => {}
+    }
+    let likelihood = match (gaussian_spread, &outcome.levels) {
         (Some(spread_prior), _) => {
             notes.push("spread is sampled as log(spread), with the Jacobian of that change included".into());
             if !groups.is_empty() {
@@ -145,6 +162,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         groups,
         group_rows,
         pooling,
+        family_prior,
     })
 }
 
@@ -171,8 +189,8 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
         })?;
         if let Some(x) = with {
             group.slope = Some(varying_slope(x, recipes).map_err(|message| ModelError::Term { term: term.to_string(), message })?);
-            if spec.family != Family::Normal && !matches!(spec.family, Family::Bernoulli | Family::Binomial { .. } | Family::Poisson) {
-                return Err(ModelError::Term { term: term.to_string(), message: "varying slopes need a normal, bernoulli, binomial or poisson outcome".into() });
+            if spec.family == Family::Levels {
+                return Err(ModelError::Term { term: term.to_string(), message: "varying slopes need a normal, bernoulli, binomial, poisson or gamma_poisson outcome".into() });
             }
         }
         if groups.iter().any(|g: &GroupTerm| g.column == group.column) {
@@ -343,6 +361,8 @@ pub(super) fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &Outcome
     let glm_outcome = match (family, &outcome.trials) {
         (Family::Binomial { .. }, Some(trials)) => GlmOutcome::Binomial { y, trials: trials.clone() },
         (Family::Poisson, _) => GlmOutcome::Poisson { y },
+        (Family::GammaPoisson, _) => GlmOutcome::GammaPoisson { y },
+        (Family::Beta, _) => GlmOutcome::Beta { shares: y.iter().map(|&v| BetaShare::new(v)).collect(), y },
         _ => GlmOutcome::Bernoulli { y },
     };
     GlmData::new(rows, design.ncols(), glm_outcome)
@@ -354,13 +374,23 @@ pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize) -> S
     SoftmaxData::new(rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels)
 }
 
+/// The family parameter's starting value: the outcome's sd for the
+/// spread, the moment estimate for the overdispersion or the precision.
+fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -> f64 {
+    match family {
+        Family::GammaPoisson => moment_overdispersion(&outcome.y),
+        Family::Beta => moment_precision(&outcome.y),
+        _ => mean_and_sd(&outcome.y).1,
+    }
+}
+
 /// Intercepts at each linear predictor's centre, other coefficients at 0,
-/// the spread at the outcome's sd — each moved inside its prior's support.
+/// the family's parameter at `family_start` (its prior and value) — each
+/// moved inside its prior's support.
 fn starting_point(
     blocks: &[PredictorBlock],
-    outcome: &OutcomeValues,
     priors: &[Prior],
-    spread_prior: Option<&Prior>,
+    family_start: Option<(&Prior, f64)>,
     intercepts: &[usize],
 ) -> Vec<f64> {
     let width = priors.len() / blocks.len().max(1);
@@ -373,8 +403,8 @@ fn starting_point(
             inside(prior, if intercepts.contains(&(j % width.max(1))) { centre } else { 0.0 })
         })
         .collect();
-    if let Some(prior) = spread_prior {
-        start.push(inside(prior, mean_and_sd(&outcome.y).1).ln());
+    if let Some((prior, value)) = family_start {
+        start.push(inside(prior, value).ln());
     }
     start
 }

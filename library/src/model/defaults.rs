@@ -28,6 +28,26 @@
 //! **Spread** (normal family): `half_normal(s_y)`: with no predictor at all
 //! the spread is `s_y`; the prior keeps it below about 2·`s_y`.
 //!
+//! **Overdispersion** (gamma-poisson family): `half_normal(T)` with the log
+//! link's `T = 1`, by the rule of the spread. The overdispersion κ is the sd
+//! of the gamma multiplier of each row's rate, which for small κ is the sd
+//! of the log rate's row-to-row noise (`family::shaped`): residual
+//! variation on the link scale, as the spread is on the identity scale, so
+//! it gets the same prior, `half_normal` of the target. It keeps κ below
+//! about 2 (a multiplier that often halves or triples the rate), and its
+//! density is highest at κ = 0, the poisson model, so the data must show
+//! extra variation before the fit leaves it.
+//!
+//! **Precision** (beta family): the residual sd of a share around its mean
+//! μ is `√(μ(1 − μ)/(1 + φ))`. With no predictor that residual is the
+//! outcome's own sd `s_y`, at `φ₀ = ȳ(1 − ȳ)/s_y² − 1` (kept within
+//! [1, 1000]); predictors shrink it. The default `lognormal(log φ₀ + 1, 1)`
+//! makes the log of (residual sd / `s_y`) about normal with mean −½ and sd
+//! ½: a residual sd with median 0.61·`s_y` (near the median the spread's
+//! `half_normal(s_y)` gives, 0.67·`s_y`) and central 95% from 0.23·`s_y`
+//! to 1.6·`s_y`. A precision has no natural zero to shrink to, so unlike
+//! the spread its prior is centred on the data's scale rather than at 0.
+//!
 //! **Pooled spreads.** A pooled group's departures vary from row to row
 //! too, so each pooled group takes one share of the budget beside the `K`
 //! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every
@@ -53,6 +73,7 @@
 //! the priors actually used and who set them.
 
 use super::error::ModelError;
+use super::family::shaped::{moment_overdispersion, moment_precision};
 use super::family::softmax::level_prefix;
 use super::family::Family;
 use super::outcome::OutcomeValues;
@@ -91,7 +112,9 @@ pub struct PriorPlan {
     /// Per coefficient: whether its prior is on the prediction at the
     /// average row (default intercepts) rather than on the coefficient.
     pub at_average_row: Vec<bool>,
-    pub spread: Option<Prior>,
+    /// The prior of the family's positive parameter: the spread (normal)
+    /// or the overdispersion (gamma-poisson).
+    pub family_parameter: Option<Prior>,
     /// The spread prior of each pooled group, in the groups' order.
     pub group_spreads: Vec<Prior>,
     /// The spread prior of each group's varying slope (`None` without one).
@@ -156,7 +179,7 @@ pub fn assign_priors(
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
-        spread: None,
+        family_parameter: None,
         group_spreads: Vec::new(),
         slope_spreads: Vec::new(),
         correlation_lkj: spec.correlation_prior.unwrap_or(DEFAULT_LKJ),
@@ -191,17 +214,21 @@ pub fn assign_priors(
             column += width;
         }
     }
-    if spec.family.has_spread() {
-        let declared = spec.declared_prior(PriorGroup::Spread);
-        let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target });
+    if let Some(label) = spec.family.family_parameter() {
+        let group = family_parameter_group(&spec.family);
+        let declared = spec.declared_prior(group);
+        let prior = declared.cloned().unwrap_or_else(|| match spec.family {
+            Family::Beta => Prior::LogNormal { log_mean: moment_precision(&outcome.y).ln() + 1.0, log_sd: 1.0 },
+            _ => Prior::HalfNormal { sd: target },
+        });
         plan.uses.push(PriorUse {
-            group: PriorGroup::Spread,
-            parameters: vec!["spread".into()],
+            group,
+            parameters: vec![label.into()],
             prior: prior.clone(),
             declared: declared.is_some(),
             at_average_row: false,
         });
-        plan.spread = Some(prior);
+        plan.family_parameter = Some(prior);
     }
     let declared = spec.declared_prior(PriorGroup::PooledSpreads);
     for group in groups {
@@ -247,6 +274,18 @@ pub fn row_information(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
         Family::Normal => 1.0 / budget_target(family, outcome).powi(2),
         Family::Poisson => outcome.mean_per_trial().max(1e-3),
+        // The negative binomial's information about log μ, μφ/(φ + μ), at
+        // the starting overdispersion (φ = 1/κ²).
+        Family::GammaPoisson => {
+            let mu = outcome.mean_per_trial().max(1e-3);
+            let kappa = moment_overdispersion(&outcome.y);
+            mu / (1.0 + kappa * kappa * mu)
+        }
+        // The quasi-likelihood information about η: (dμ/dη)² / var = μ(1 − μ)(1 + φ).
+        Family::Beta => {
+            let mu = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
+            mu * (1.0 - mu) * (1.0 + moment_precision(&outcome.y))
+        }
         _ => {
             let p = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
             let trials = outcome.trials.as_ref().map_or(1.0, |m| mean_and_sd(m).0.max(1.0));
@@ -263,6 +302,15 @@ fn outcome_centre(family: &Family, outcome: &OutcomeValues) -> f64 {
     }
 }
 
+/// The prior group of the family's parameter beside the coefficients.
+fn family_parameter_group(family: &Family) -> PriorGroup {
+    match family {
+        Family::GammaPoisson => PriorGroup::Overdispersion,
+        Family::Beta => PriorGroup::Precision,
+        _ => PriorGroup::Spread,
+    }
+}
+
 /// The shared budget's target `T` on the link scale (module docs).
 fn budget_target(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
@@ -270,7 +318,7 @@ fn budget_target(family: &Family, outcome: &OutcomeValues) -> f64 {
             let sd = mean_and_sd(&outcome.y).1;
             if sd.is_finite() && sd > 0.0 { sd } else { 1.0 }
         }
-        Family::Poisson => LOG_TARGET,
+        Family::Poisson | Family::GammaPoisson => LOG_TARGET,
         _ => LOG_ODDS_TARGET,
     }
 }
@@ -286,8 +334,8 @@ fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
 fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]) -> Result<(), ModelError> {
     for (group, prior) in &spec.priors {
         let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
-        let present = if *group == PriorGroup::Spread {
-            spec.family.has_spread()
+        let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision) {
+            spec.family.family_parameter().is_some() && family_parameter_group(&spec.family) == *group
         } else if *group == PriorGroup::PooledSpreads {
             !groups.is_empty()
         } else {
@@ -314,7 +362,12 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
             return problem(format!(
                 "{prior} allows negative values but {} positive; use exponential, half_normal \
                  or lognormal",
-                if *group == PriorGroup::Spread { "the spread is" } else { "pooled spreads are" }
+                match group {
+                    PriorGroup::Spread => "the spread is",
+                    PriorGroup::Overdispersion => "the overdispersion is",
+                    PriorGroup::Precision => "the precision is",
+                    _ => "pooled spreads are",
+                }
             ));
         }
         if !group.is_positive() && prior.is_positive_only() {

@@ -1,6 +1,7 @@
 //! Reading and checking the outcome (and binomial trials) column against the
 //! family: a bernoulli outcome is 0/1, binomial successes are whole numbers
-//! within their trials, poisson counts are whole and non-negative, and a
+//! within their trials, poisson and gamma-poisson counts are whole and
+//! non-negative, beta shares lie strictly between 0 and 1, and a
 //! category outcome goes with the levels family (and only it). Errors name
 //! the first offending row.
 
@@ -79,10 +80,24 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         Family::Bernoulli => first_bad(&y, |v| v == 0.0 || v == 1.0)
             .map(|row| Err(place(row, format!("{} is not 0 or 1, which a bernoulli outcome must be", y[row]))))
             .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
-        Family::Poisson => first_bad(&y, is_count)
-            .map(|row| Err(place(row, format!("{} is not a whole number ≥ 0, which a poisson outcome must be", y[row]))))
+        Family::Poisson | Family::GammaPoisson => first_bad(&y, is_count)
+            .map(|row| {
+                let message = format!("{} is not a whole number ≥ 0, which a {} outcome must be", y[row], family.name());
+                Err(place(row, message))
+            })
             .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Binomial { trials } => read_binomial(table, name, y, trials),
+        Family::Beta => first_bad(&y, |v| v > 0.0 && v < 1.0)
+            .map(|row| {
+                let hint = if y[row] == 0.0 || y[row] == 1.0 {
+                    "a share of exactly 0 or 1 has no beta density: model the counts behind it with `family binomial \
+                     out of <column>`"
+                } else {
+                    "write the outcome as a share of its whole, or choose another family"
+                };
+                Err(place(row, format!("{} is not strictly between 0 and 1, which a beta outcome (a share) must be; {hint}", y[row])))
+            })
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
         Family::Levels => Err(ModelError::Column {
             column: name.to_string(),
             message: format!(

@@ -15,6 +15,9 @@
 //! * binomial out of m: `log C(m, y)` plus the same with y successes and
 //!   m − y failures;
 //! * poisson: `y η − e^η − log y!`;
+//! * gamma-poisson: the negative binomial row of `family::shaped`, minus
+//!   `log y!`;
+//! * beta: the beta row of `family::shaped`, minus `log y + log(1 − y)`;
 //! * levels: the log of the observed level's probability (floored at the
 //!   smallest positive double, which only a share below 10⁻³⁰⁸ reaches).
 //!
@@ -31,6 +34,7 @@ use statrs::function::gamma::ln_gamma;
 use super::build::{glm_data, group_indices, intercept_columns, softmax_data, with_departure_columns};
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
+use super::family::shaped::{beta_row, gamma_poisson_row, BetaPrecision, BetaShare, GammaShape};
 use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::posterior::{Likelihood, Model};
@@ -94,6 +98,21 @@ impl Model {
                     .collect()
             }
             Family::Poisson => linear.iter().zip(y).map(|(&eta, &v)| v * eta - eta.exp() - ln_gamma(v + 1.0)).collect(),
+            Family::GammaPoisson => {
+                let shape = GammaShape::from_log_overdispersion(params[self.labels.len()].ln());
+                linear.iter().zip(y).map(|(&eta, &v)| gamma_poisson_row(v, eta, shape).0 - ln_gamma(v + 1.0)).collect()
+            }
+            Family::Beta => {
+                let precision = BetaPrecision::from_log_precision(params[self.labels.len()].ln());
+                linear
+                    .iter()
+                    .zip(y)
+                    .map(|(&eta, &v)| {
+                        let share = BetaShare::new(v);
+                        beta_row(share, eta, precision).0 - v.ln() - share.log_complement
+                    })
+                    .collect()
+            }
             Family::Levels => unreachable!("a levels model answered above"),
         })
     }

@@ -2,11 +2,12 @@
 //!
 //! The unconstrained parameter vector is the coefficients, in design-column
 //! order (for the levels family, one run of design columns per level after
-//! the first), followed (normal family only) by `log(spread)`, then each
+//! the first), followed by the log of the family's positive parameter
+//! (`log(spread)` normal, `log(overdispersion)` gamma-poisson), then each
 //! pooled group's `log(spread)` and departure coordinates
 //! ([`super::family::pooling`]). The density is the
-//! full log-likelihood plus the log priors plus `log(spread)`, the log
-//! Jacobian of `spread = e^u`; normalising constants are kept so values can
+//! full log-likelihood plus the log priors plus `u`, the log Jacobian of
+//! `spread = e^u` (or overdispersion); normalising constants are kept so values can
 //! be checked against reference libraries.
 
 use nalgebra::DMatrix;
@@ -28,7 +29,7 @@ use super::LogDensity;
 pub(crate) enum Likelihood {
     /// Normal family, through sufficient statistics, with the spread's prior.
     Gaussian { stats: GaussianStats, spread_prior: Prior },
-    /// Bernoulli, binomial or poisson, row by row.
+    /// Bernoulli, binomial, poisson or gamma-poisson, row by row.
     Glm(GlmData),
     /// Levels family (category outcome), row by row.
     Softmax(SoftmaxData),
@@ -65,6 +66,10 @@ pub struct Model {
     pub(crate) group_rows: Vec<Vec<usize>>,
     /// The pooled groups' part of the density.
     pub(crate) pooling: Pooling,
+    /// The prior of the family's parameter beside the coefficients for a
+    /// GLM family that has one (gamma-poisson: the overdispersion); the
+    /// normal family keeps its spread's prior in [`Likelihood::Gaussian`].
+    pub(crate) family_prior: Option<Prior>,
 }
 
 impl Model {
@@ -101,12 +106,13 @@ impl Model {
         &self.labels
     }
 
-    /// Labels of the constrained parameters: the coefficients, then
-    /// `spread` for a normal outcome.
+    /// Labels of the constrained parameters: the coefficients, then the
+    /// family's positive parameter (`spread` for a normal outcome,
+    /// `overdispersion` for a gamma-poisson one), then the pooled groups'.
     pub fn parameter_names(&self) -> Vec<String> {
         let mut names = self.labels.clone();
-        if self.has_spread() {
-            names.push("spread".into());
+        if let Some(name) = self.family_parameter() {
+            names.push(name.into());
         }
         names.extend(self.groups.iter().flat_map(GroupTerm::labels));
         names
@@ -144,17 +150,18 @@ impl Model {
         let per_column: Vec<usize> =
             (0..self.design.ncols()).map(|j| self.design.column(j).iter().filter(|v| **v != 0.0).count()).collect();
         let mut counts: Vec<usize> = (0..self.labels.len()).map(|k| per_column.get(k % width).copied().unwrap_or(0)).collect();
-        if self.has_spread() {
+        if self.family_parameter().is_some() {
             counts.push(self.design.nrows());
         }
         counts
     }
 
-    /// Labels of the unconstrained parameters (`log(spread)` for the spread).
+    /// Labels of the unconstrained parameters (`log(spread)` for the
+    /// spread, and so on for the family's parameter).
     pub fn unconstrained_names(&self) -> Vec<String> {
         let mut names = self.labels.clone();
-        if self.has_spread() {
-            names.push("log(spread)".into());
+        if let Some(name) = self.family_parameter() {
+            names.push(format!("log({name})"));
         }
         for (group, pooled) in self.groups.iter().zip(&self.pooling.groups) {
             names.extend(group.unconstrained_labels(pooled.around_intercept));
@@ -166,7 +173,7 @@ impl Model {
     pub fn constrain(&self, theta: &[f64]) -> Vec<f64> {
         let first_group = self.first_group_index();
         let mut params = theta[..first_group.min(theta.len())].to_vec();
-        if self.has_spread() {
+        if self.family_parameter().is_some() {
             if let Some(last) = params.last_mut() {
                 *last = last.exp();
             }
@@ -178,10 +185,11 @@ impl Model {
     }
 
     /// The index of the first pooled group's parameter (after the
-    /// coefficients and the spread) in [`Model::parameter_names`]; each
-    /// group then has its spread followed by one departure per level.
+    /// coefficients and the family's parameter) in
+    /// [`Model::parameter_names`]; each group then has its spread followed
+    /// by one departure per level.
     pub fn first_group_index(&self) -> usize {
-        self.labels.len() + usize::from(self.has_spread())
+        self.labels.len() + usize::from(self.family_parameter().is_some())
     }
 
     /// Pooled groups of the model, planned on the fitted data.
@@ -196,18 +204,18 @@ impl Model {
     }
 
     /// The unconstrained point of constrained parameters (checks the length
-    /// and that the spread is positive).
+    /// and that the spread, or the family's other parameter, is positive).
     pub fn unconstrain(&self, params: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.check_length(params)?;
         let mut theta = params.to_vec();
-        if self.has_spread() {
-            let spread = theta[self.labels.len()];
-            if spread <= 0.0 || !spread.is_finite() {
+        if let Some(name) = self.family_parameter() {
+            let value = theta[self.labels.len()];
+            if value <= 0.0 || !value.is_finite() {
                 return Err(ModelError::Parameters {
-                    message: format!("the spread must be positive, not {spread}"),
+                    message: format!("the {name} must be positive, not {value}"),
                 });
             }
-            theta[self.labels.len()] = spread.ln();
+            theta[self.labels.len()] = value.ln();
         }
         let first_group = self.first_group_index();
         let pooled = self.pooling.unconstrain(&params[first_group..], self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
@@ -258,7 +266,7 @@ impl Model {
             }
         }
         let mut point = self.from_prior_values(values);
-        if self.has_spread() {
+        if self.family_parameter().is_some() {
             point.push(self.start[p] + z.get(p).copied().unwrap_or(0.0));
         }
         let first_group = self.first_group_index();
@@ -300,7 +308,7 @@ impl Model {
         let mut scratch = vec![0.0; coefficients.len()];
         Ok(match &self.likelihood {
             Likelihood::Gaussian { stats, .. } => stats.log_likelihood_and_gradient(&coefficients, theta[p], &mut scratch).0,
-            Likelihood::Glm(glm) => glm.log_likelihood_and_gradient(&coefficients, &mut scratch),
+            Likelihood::Glm(glm) => glm.log_likelihood_and_gradients(&coefficients, theta.get(p).copied().unwrap_or(0.0), &mut scratch).0,
             Likelihood::Softmax(levels) => levels.log_likelihood_and_gradient(&coefficients, &mut scratch),
         })
     }
@@ -317,6 +325,32 @@ impl Model {
     /// Whether the model has a spread parameter (normal family).
     pub fn has_spread(&self) -> bool {
         matches!(self.likelihood, Likelihood::Gaussian { .. })
+    }
+
+    /// The label of the family's positive parameter after the
+    /// coefficients (`spread`, `overdispersion`), if the family has one.
+    pub fn family_parameter(&self) -> Option<&'static str> {
+        self.family.family_parameter()
+    }
+
+    /// The GLM likelihood at `coefficients` (with departures), its
+    /// gradient added into `d_coefficients`; for a family with a parameter
+    /// beside the coefficients (gamma-poisson), also that parameter's
+    /// prior and the log Jacobian `u` of `value = e^u`, with the derivative
+    /// in `u = theta[p]` written to `grad_u`.
+    fn glm_part(&self, glm: &GlmData, coefficients: &[f64], theta: &[f64], d_coefficients: &mut [f64], grad_u: Option<&mut f64>) -> f64 {
+        let p = self.labels.len();
+        match (&self.family_prior, grad_u) {
+            (Some(prior), Some(grad_u)) => {
+                let u = theta[p];
+                let (ll, d_u) = glm.log_likelihood_and_gradients(coefficients, u, d_coefficients);
+                let value = u.exp();
+                let (lp, d_value) = prior.log_density_and_derivative(value);
+                *grad_u = d_u + d_value * value + 1.0;
+                ll + lp + u
+            }
+            _ => glm.log_likelihood_and_gradient(coefficients, d_coefficients),
+        }
     }
 
     pub(crate) fn check_length(&self, params: &[f64]) -> Result<(), ModelError> {
@@ -412,7 +446,10 @@ impl LogDensity for Model {
                 total += ll + lp + u;
                 grad[p] = d_u + d_spread * spread + 1.0;
             }
-            Likelihood::Glm(glm) => total += glm.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
+            Likelihood::Glm(glm) => {
+                let (coefficients, rest) = grad.split_at_mut(p);
+                total += self.glm_part(glm, &theta[..p], theta, coefficients, rest.first_mut());
+            }
             Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
         }
         if total.is_finite() {
@@ -442,7 +479,10 @@ impl Model {
                 total += ll + lp + u;
                 grad[p] = d_u + d_spread * spread + 1.0;
             }
-            Likelihood::Glm(glm) => total += glm.log_likelihood_and_gradient(&coefficients, &mut d_coefficients),
+            Likelihood::Glm(glm) => {
+                let grad_u = if self.family_prior.is_some() { grad.get_mut(p) } else { None };
+                total += self.glm_part(glm, &coefficients, theta, &mut d_coefficients, grad_u);
+            }
             Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&coefficients, &mut d_coefficients),
         }
         for (g, d) in grad[..p].iter_mut().zip(&d_coefficients) {

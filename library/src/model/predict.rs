@@ -10,7 +10,7 @@
 
 use nalgebra::DMatrix;
 use rand::{Rng, RngExt};
-use rand_distr::{Binomial, Distribution, Normal, Poisson};
+use rand_distr::{Beta, Binomial, Distribution, Gamma, Normal, Poisson};
 
 use crate::table::Table;
 
@@ -225,14 +225,34 @@ impl Model {
                 let binomial = Binomial::new(m, mu).map_err(|e| invalid(format!("cannot draw a binomial outcome ({e})")))?;
                 binomial.sample(rng) as f64
             }
-            Family::Poisson if mu == 0.0 => 0.0,
-            Family::Poisson => {
-                let poisson = Poisson::new(mu).map_err(|e| invalid(format!("cannot draw a poisson outcome ({e})")))?;
-                poisson.sample(rng)
+            Family::Poisson => poisson_draw(mu, rng).map_err(invalid)?,
+            Family::GammaPoisson => {
+                // The rate is the mean times a gamma multiplier of mean 1 and sd κ (shape 1/κ²).
+                let kappa = params[self.labels.len()];
+                let shape = 1.0 / (kappa * kappa);
+                let gamma = Gamma::new(shape, mu / shape)
+                    .map_err(|e| invalid(format!("cannot draw a gamma-poisson outcome's rate ({e})")))?;
+                poisson_draw(gamma.sample(rng), rng).map_err(invalid)?
+            }
+            Family::Beta => {
+                let precision = params[self.labels.len()];
+                let beta = Beta::new(mu * precision, (1.0 - mu) * precision)
+                    .map_err(|e| invalid(format!("cannot draw a beta outcome ({e})")))?;
+                // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share must lie.
+                beta.sample(rng).clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON)
             }
             Family::Levels => return Err(invalid("a category outcome is drawn as a level".into())),
         })
     }
+}
+
+/// A poisson count of rate `rate` (0 for a rate of 0).
+fn poisson_draw<R: Rng + ?Sized>(rate: f64, rng: &mut R) -> Result<f64, String> {
+    if rate == 0.0 {
+        return Ok(0.0);
+    }
+    let poisson = Poisson::new(rate).map_err(|e| format!("cannot draw a poisson outcome ({e})"))?;
+    Ok(poisson.sample(rng))
 }
 
 /// The level whose stretch of the cumulative probabilities holds `u` (in

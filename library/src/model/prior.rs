@@ -27,12 +27,23 @@ pub enum PriorGroup {
     Spread,
     /// The spreads of pooled groups' departures (positive).
     PooledSpreads,
+    /// The overdispersion of a gamma-poisson outcome (positive).
+    Overdispersion,
+    /// The precision of a beta outcome (positive).
+    Precision,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 5] =
-        [PriorGroup::Intercepts, PriorGroup::Slopes, PriorGroup::Weights, PriorGroup::Spread, PriorGroup::PooledSpreads];
+    pub const ALL: [PriorGroup; 7] = [
+        PriorGroup::Intercepts,
+        PriorGroup::Slopes,
+        PriorGroup::Weights,
+        PriorGroup::Spread,
+        PriorGroup::PooledSpreads,
+        PriorGroup::Overdispersion,
+        PriorGroup::Precision,
+    ];
 
     /// The group words of a `prior` line.
     pub fn words() -> Vec<&'static str> {
@@ -47,6 +58,8 @@ impl PriorGroup {
             PriorGroup::Weights => "weights",
             PriorGroup::Spread => "spread",
             PriorGroup::PooledSpreads => "pooled spreads",
+            PriorGroup::Overdispersion => "overdispersion",
+            PriorGroup::Precision => "precision",
         }
     }
 
@@ -66,7 +79,7 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads)
+        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion | PriorGroup::Precision)
     }
 }
 

@@ -20,11 +20,11 @@
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
 //!   pooling: a level with few rows is pulled towards the population).
-//! * `family normal | bernoulli | poisson | levels | binomial out of <column>`.
+//! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`.
 //!   Without a family line the family follows the outcome column: `levels`
 //!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
-//!   weights (spline weights), spread, pooled spreads.
+//!   weights (spline weights), spread, pooled spreads, overdispersion, precision.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
 //! * `parameterise <category> centred | noncentred` — how a pooled group's
@@ -286,7 +286,7 @@ fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
     }
     let group = PriorGroup::parse(group_word).ok_or_else(|| {
         ModelError::syntax(format!(
-            "`{}` is not a prior group; use intercepts, slopes, weights, spread or pooled spreads",
+            "`{}` is not a prior group; use intercepts, slopes, weights, spread, pooled spreads, overdispersion or precision",
             group_word.trim()
         ))
     })?;

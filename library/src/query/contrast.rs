@@ -484,8 +484,10 @@ pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
         (Family::Binomial { trials }, false) => format!("count {y} out of the held number of {trials} trials"),
         (Family::Bernoulli, true) => format!("probability that {y} is yes"),
         (Family::Bernoulli, false) => format!("simulated {y} as 1 (yes) or 0 (no)"),
-        (Family::Poisson, true) => format!("expected count of {y}"),
-        (Family::Poisson, false) => format!("simulated count of {y}"),
+        (Family::Poisson | Family::GammaPoisson, true) => format!("expected count of {y}"),
+        (Family::Poisson | Family::GammaPoisson, false) => format!("simulated count of {y}"),
+        (Family::Beta, true) => format!("mean share of {y}"),
+        (Family::Beta, false) => format!("simulated share of {y}"),
         (_, true) => format!("mean {y}"),
         (_, false) => format!("simulated {y}"),
     }
@@ -502,7 +504,7 @@ fn level_scale_words(y: &str, level: &str, on: On) -> String {
 /// Whether the contrast is on a probability scale rather than in the
 /// outcome's unit.
 fn is_probability(model: &Model, on: On) -> bool {
-    matches!(on, On::Means) && matches!(model.family(), Family::Binomial { .. } | Family::Bernoulli)
+    matches!(on, On::Means) && matches!(model.family(), Family::Binomial { .. } | Family::Bernoulli | Family::Beta)
 }
 
 /// The trials column of a binomial model.

@@ -9,7 +9,13 @@
 //!
 //! Distributions: `category(level share, …)` (shares sum to 1),
 //! `normal(mean, sd)`, `bernoulli(p)` or `bernoulli(logit = η)`,
-//! `poisson(rate)` or `poisson(log = η)`. Expressions use numbers, parent
+//! `poisson(rate)` or `poisson(log = η)`, and `gamma_poisson(rate, κ)` or
+//! `gamma_poisson(log = η, κ)`: a poisson count whose rate is multiplied,
+//! row by row, by a gamma variable of mean 1 and sd κ (a positive
+//! expression, the overdispersion of a `gamma_poisson` model), and
+//! `beta(mean, φ)` or `beta(logit = η, φ)`: a share in (0, 1) with that
+//! mean and precision φ (a positive expression, the precision of a `beta`
+//! model). Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
 //! `[c = level]` (1 when category c is at that level, else 0), and
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
@@ -23,11 +29,13 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
 pub const POISSON: &str = "poisson";
+pub const GAMMA_POISSON: &str = "gamma_poisson";
+pub const BETA: &str = "beta";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -139,8 +147,13 @@ pub enum Mechanism {
     Normal { mean: Expr, sd: Expr },
     /// `p` is the probability, or its logit when `logit` is true.
     Bernoulli { p: Expr, logit: bool },
-    /// `rate` is the rate, or its log when `log` is true.
-    Poisson { rate: Expr, log: bool },
+    /// `rate` is the rate, or its log when `log` is true; with an
+    /// `overdispersion` κ (gamma-poisson) the rate is multiplied by a gamma
+    /// variable of mean 1 and sd κ.
+    Poisson { rate: Expr, log: bool, overdispersion: Option<Expr> },
+    /// A share with mean `mean` (or its logit when `logit` is true) and
+    /// precision `precision`.
+    Beta { mean: Expr, logit: bool, precision: Expr },
 }
 
 impl Mechanism {
@@ -150,7 +163,10 @@ impl Mechanism {
             Mechanism::Category { .. } => Vec::new(),
             Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
             Mechanism::Bernoulli { p, .. } => p.departures(),
-            Mechanism::Poisson { rate, .. } => rate.departures(),
+            Mechanism::Poisson { rate, overdispersion, .. } => {
+                rate.departures().into_iter().chain(overdispersion.iter().flat_map(Expr::departures)).collect()
+            }
+            Mechanism::Beta { mean, precision, .. } => mean.departures().into_iter().chain(precision.departures()).collect(),
         }
     }
 
@@ -161,7 +177,8 @@ impl Mechanism {
         match self {
             Mechanism::Normal { mean, .. } => mean.departures(),
             Mechanism::Bernoulli { p, logit: true } => p.departures(),
-            Mechanism::Poisson { rate, log: true } => rate.departures(),
+            Mechanism::Poisson { rate, log: true, .. } => rate.departures(),
+            Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
             _ => Vec::new(),
         }
     }
@@ -172,7 +189,10 @@ impl Mechanism {
             Mechanism::Category { .. } => Vec::new(),
             Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
             Mechanism::Bernoulli { p, .. } => p.uses(),
-            Mechanism::Poisson { rate, .. } => rate.uses(),
+            Mechanism::Poisson { rate, overdispersion, .. } => {
+                rate.uses().into_iter().chain(overdispersion.iter().flat_map(Expr::uses)).collect()
+            }
+            Mechanism::Beta { mean, precision, .. } => mean.uses().into_iter().chain(precision.uses()).collect(),
         }
     }
 }
@@ -183,7 +203,9 @@ impl fmt::Display for Mechanism {
             Mechanism::Category { .. } => CATEGORY,
             Mechanism::Normal { .. } => NORMAL,
             Mechanism::Bernoulli { .. } => BERNOULLI,
-            Mechanism::Poisson { .. } => POISSON,
+            Mechanism::Poisson { overdispersion: None, .. } => POISSON,
+            Mechanism::Poisson { overdispersion: Some(_), .. } => GAMMA_POISSON,
+            Mechanism::Beta { .. } => BETA,
         };
         f.write_str(name)
     }
@@ -217,12 +239,33 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             None => Mechanism::Bernoulli { p: parse_expr(p)?, logit: false },
         },
         (POISSON, [rate]) => match keyword_argument(rate, LOG) {
-            Some(eta) => Mechanism::Poisson { rate: parse_expr(eta)?, log: true },
-            None => Mechanism::Poisson { rate: parse_expr(rate)?, log: false },
+            Some(eta) => Mechanism::Poisson { rate: parse_expr(eta)?, log: true, overdispersion: None },
+            None => Mechanism::Poisson { rate: parse_expr(rate)?, log: false, overdispersion: None },
         },
+        (GAMMA_POISSON, [rate, kappa]) => {
+            let overdispersion = Some(parse_expr(kappa)?);
+            match keyword_argument(rate, LOG) {
+                Some(eta) => Mechanism::Poisson { rate: parse_expr(eta)?, log: true, overdispersion },
+                None => Mechanism::Poisson { rate: parse_expr(rate)?, log: false, overdispersion },
+            }
+        }
         (NORMAL, _) => return Err(format!("normal takes 2 arguments (mean, sd), not {}", args.len())),
         (BERNOULLI, _) => return Err(format!("bernoulli takes 1 argument (p, or logit = …), not {}", args.len())),
         (POISSON, _) => return Err(format!("poisson takes 1 argument (rate, or log = …), not {}", args.len())),
+        (BETA, [mean, precision]) => {
+            let precision = parse_expr(precision)?;
+            match keyword_argument(mean, LOGIT) {
+                Some(eta) => Mechanism::Beta { mean: parse_expr(eta)?, logit: true, precision },
+                None => Mechanism::Beta { mean: parse_expr(mean)?, logit: false, precision },
+            }
+        }
+        (BETA, _) => return Err(format!("beta takes 2 arguments (mean, or logit = …, then the precision), not {}", args.len())),
+        (GAMMA_POISSON, _) => {
+            return Err(format!(
+                "gamma_poisson takes 2 arguments (rate, or log = …, then the overdispersion), not {}",
+                args.len()
+            ))
+        }
         _ => {
             return Err(format!(
                 "unknown distribution `{dist}`; use {} or {}",

@@ -130,7 +130,9 @@ fn true_parameters(
         (simulation.mechanism(outcome), model.family()),
         (Some(Mechanism::Normal { .. }), Family::Normal)
             | (Some(Mechanism::Bernoulli { .. }), Family::Bernoulli)
-            | (Some(Mechanism::Poisson { .. }), Family::Poisson)
+            | (Some(Mechanism::Poisson { overdispersion: None, .. }), Family::Poisson)
+            | (Some(Mechanism::Poisson { overdispersion: Some(_), .. }), Family::GammaPoisson)
+            | (Some(Mechanism::Beta { .. }), Family::Beta)
     );
     if !matches {
         notes.push(format!("the mechanism of {outcome} is not of the model's family, so no parameter has a true value"));
@@ -210,9 +212,10 @@ fn fixed_truths(model: &Model, eta: Vec<f64>, spread: Option<f64>, notes: &mut V
         return unknown();
     }
     let mut truth: Vec<Option<f64>> = beta.iter().map(|&b| Some(b)).collect();
-    if model.has_spread() {
+    if let Some(name) = model.family_parameter() {
         if spread.is_none() {
-            notes.push(format!("the sd of {outcome} varies between rows, so the spread has no single true value"));
+            let what = if model.has_spread() { "sd" } else { name };
+            notes.push(format!("the {what} of {outcome} varies between rows, so the {name} has no single true value"));
         }
         truth.push(spread);
     }

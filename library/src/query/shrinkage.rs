@@ -135,6 +135,7 @@ fn scale_words(model: &Model) -> String {
     match model.family() {
         Family::Normal => outcome.to_string(),
         Family::Bernoulli | Family::Binomial { .. } | Family::Levels => format!("log-odds of {outcome}"),
-        Family::Poisson => format!("log of mean {outcome}"),
+        Family::Beta => format!("log-odds of mean {outcome}"),
+        Family::Poisson | Family::GammaPoisson => format!("log of mean {outcome}"),
     }
 }

@@ -19,7 +19,7 @@ use std::sync::atomic::AtomicBool;
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
-use rand_distr::{Distribution, Poisson, StandardNormal};
+use rand_distr::{Beta, Distribution, Gamma, Poisson, StandardNormal};
 
 use crate::graph::Graph;
 use crate::limits::{bytes_for, check_memory};
@@ -255,8 +255,15 @@ impl Simulation {
                 (0..n).map(|i| if *logit { eval(p, i) } else { let q = eval(p, i); (q / (1.0 - q)).ln() }).collect(),
                 None,
             )),
-            Mechanism::Poisson { rate, log } => {
-                Some(((0..n).map(|i| if *log { eval(rate, i) } else { eval(rate, i).ln() }).collect(), None))
+            Mechanism::Poisson { rate, log, overdispersion } => {
+                // A gamma-poisson node's second truth is its overdispersion, when it is one number.
+                let kappa = overdispersion.as_ref().and_then(|k| k.uses().is_empty().then(|| eval(k, 0)));
+                Some(((0..n).map(|i| if *log { eval(rate, i) } else { eval(rate, i).ln() }).collect(), kappa))
+            }
+            Mechanism::Beta { mean, logit, precision } => {
+                let phi = precision.uses().is_empty().then(|| eval(precision, 0));
+                let eta = |i: usize| if *logit { eval(mean, i) } else { let q = eval(mean, i); (q / (1.0 - q)).ln() };
+                Some(((0..n).map(eta).collect(), phi))
             }
         }
     }
@@ -384,17 +391,47 @@ impl Simulation {
                 }
                 NodeValues::Binary(out)
             }
-            Mechanism::Poisson { rate, log } => {
+            Mechanism::Poisson { rate, log, overdispersion } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
                     stop(i)?;
-                    let r = if *log { eval(rate, i).exp() } else { eval(rate, i) };
+                    let mut r = if *log { eval(rate, i).exp() } else { eval(rate, i) };
                     if !r.is_finite() || r < 0.0 {
                         return Err(bad(i, format!("the rate is {}, but it must be a finite number ≥ 0", short(r))));
+                    }
+                    if let Some(kappa) = overdispersion {
+                        let k = eval(kappa, i);
+                        if !k.is_finite() || k <= 0.0 {
+                            return Err(bad(i, format!("the overdispersion is {}, but it must be a positive number", short(k))));
+                        }
+                        // Gamma multiplier of mean 1 and sd k: shape 1/k², scale k².
+                        let multiplier = Gamma::new(1.0 / (k * k), k * k).map_err(|e| bad(i, e.to_string()))?;
+                        r *= multiplier.sample(&mut rng);
                     }
                     out.push(if r == 0.0 { 0 } else { Poisson::new(r).map_err(|e| bad(i, e.to_string()))?.sample(&mut rng) as u64 });
                 }
                 NodeValues::Count(out)
+            }
+            Mechanism::Beta { mean, logit, precision } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    stop(i)?;
+                    let q = if *logit { logistic(eval(mean, i)) } else { eval(mean, i) };
+                    let phi = eval(precision, i);
+                    // Written so that a mean of NaN is refused too.
+                    let inside = q > 0.0 && q < 1.0;
+                    if !inside || !phi.is_finite() || phi <= 0.0 {
+                        return Err(bad(i, format!(
+                            "the mean is {} and the precision {}, but the mean must lie strictly between 0 and 1 and the precision be positive",
+                            short(q),
+                            short(phi)
+                        )));
+                    }
+                    let share = Beta::new(q * phi, (1.0 - q) * phi).map_err(|e| bad(i, e.to_string()))?.sample(&mut rng);
+                    // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share lies.
+                    out.push(share.clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON));
+                }
+                NodeValues::Real(out)
             }
         })
     }

@@ -68,6 +68,17 @@ pub fn orchard(n: usize, seed: u64) -> Table {
     }
 }
 
+/// The orchard with one more outcome, `cover`: the share of each tree's
+/// crown in leaf, (set + ½)/(visits + 1), strictly between 0 and 1 (for the
+/// beta family).
+pub fn orchard_with_cover(n: usize, seed: u64) -> Table {
+    let mut table = orchard(n, seed);
+    let as_reals = |name: &str| table.column(name).and_then(|c| c.data.as_reals()).expect("count column");
+    let cover = as_reals("set").iter().zip(as_reals("visits")).map(|(s, m)| (s + 0.5) / (m + 1.0)).collect();
+    table.columns.push(column("cover", ColumnData::Real(cover)));
+    table
+}
+
 /// A spec from body lines numbered from 2 (line 1 is the header).
 pub fn spec(body: &str) -> ModelSpec {
     try_spec(body).expect("spec parses")

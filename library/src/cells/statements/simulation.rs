@@ -727,7 +727,10 @@ pub(crate) fn predictive_check(session: &mut Session, st: &Statement) -> Result<
         return Ok(vec![level_count_check(model, kind, seed, &heading, &result, mass, line)?]);
     }
     // a yes/no or out-of-trials outcome is summarised as shares, which have no unit
-    let shares = matches!(model.family(), crate::model::Family::Bernoulli | crate::model::Family::Binomial { .. });
+    let shares = matches!(
+        model.family(),
+        crate::model::Family::Bernoulli | crate::model::Family::Binomial { .. } | crate::model::Family::Beta
+    );
     let unit = if shares { None } else { table.column(model.outcome_name()).and_then(|c| c.unit.clone()) };
     let (lower, upper) = bounds(mass);
     let mut grid =

@@ -32,6 +32,7 @@
 use statrs::function::gamma::ln_gamma;
 
 use super::kernels::{exp, softplus_and_logistic};
+use super::shaped::{beta_row, gamma_poisson_row, BetaPrecision, BetaShare, GammaShape};
 
 /// Rows per block of the stored design.
 const BLOCK: usize = 64;
@@ -45,6 +46,11 @@ pub enum GlmOutcome {
     Bernoulli { y: Vec<f64> },
     Binomial { y: Vec<f64>, trials: Vec<f64> },
     Poisson { y: Vec<f64> },
+    /// Gamma-poisson counts: the likelihood also takes `log(overdispersion)`.
+    GammaPoisson { y: Vec<f64> },
+    /// Beta shares in (0, 1), kept as their logs: the likelihood also takes
+    /// `log(precision)`.
+    Beta { y: Vec<f64>, shares: Vec<BetaShare> },
 }
 
 /// One run of pooled departures as the likelihood sees it: each row's
@@ -127,18 +133,27 @@ impl GlmData {
     /// fused multiply-add and every sum has a fixed order, so all versions
     /// give the same bits.
     pub fn log_likelihood_and_gradient(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
+        self.log_likelihood_and_gradients(beta, 0.0, grad).0
+    }
+
+    /// [`GlmData::log_likelihood_and_gradient`] for a family with a
+    /// positive parameter beside the coefficients (gamma-poisson:
+    /// `u = log(overdispersion)`; beta: `u = log(precision)`;
+    /// [`super::shaped`]): also returns the
+    /// derivative in `u` (0 for the families without one, which ignore `u`).
+    pub fn log_likelihood_and_gradients(&self, beta: &[f64], u: f64, grad: &mut [f64]) -> (f64, f64) {
         #[cfg(target_arch = "x86_64")]
         {
             if std::is_x86_feature_detected!("avx512f") && std::is_x86_feature_detected!("fma") {
                 // SAFETY: the processor supports AVX-512F and FMA, checked just above.
-                return unsafe { self.evaluate_avx512(beta, grad) };
+                return unsafe { self.evaluate_avx512(beta, u, grad) };
             }
             if std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma") {
                 // SAFETY: the processor supports AVX2 and FMA, checked just above.
-                return unsafe { self.evaluate_avx2(beta, grad) };
+                return unsafe { self.evaluate_avx2(beta, u, grad) };
             }
         }
-        self.evaluate(beta, grad)
+        self.evaluate(beta, u, grad)
     }
 
     /// [`GlmData::evaluate`] compiled for AVX-512.
@@ -147,8 +162,8 @@ impl GlmData {
     /// Call only on a processor with AVX-512F and FMA.
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx512f,avx2,fma")]
-    unsafe fn evaluate_avx512(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
-        self.evaluate(beta, grad)
+    unsafe fn evaluate_avx512(&self, beta: &[f64], u: f64, grad: &mut [f64]) -> (f64, f64) {
+        self.evaluate(beta, u, grad)
     }
 
     /// [`GlmData::evaluate`] compiled for AVX2 with FMA.
@@ -157,20 +172,23 @@ impl GlmData {
     /// Call only on a processor with AVX2 and FMA.
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx2,fma")]
-    unsafe fn evaluate_avx2(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
-        self.evaluate(beta, grad)
+    unsafe fn evaluate_avx2(&self, beta: &[f64], u: f64, grad: &mut [f64]) -> (f64, f64) {
+        self.evaluate(beta, u, grad)
     }
 
     /// The log-likelihood and gradient in one pass over the blocks (module
     /// doc). Row terms are summed in `BLOCK` lanes and gradient entries in
     /// [`LANES`] lanes across all blocks, and each lane set is added up
-    /// once at the end in a fixed order.
+    /// once at the end in a fixed order, as are the rows' derivatives in
+    /// the family parameter `u`.
     #[inline(always)]
-    fn evaluate(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
+    fn evaluate(&self, beta: &[f64], u: f64, grad: &mut [f64]) -> (f64, f64) {
         let width = self.width;
         if width == 0 {
-            return self.constant;
+            return (self.constant, 0.0);
         }
+        let shape = FamilyShape { gamma: GammaShape::from_log_overdispersion(u), beta: BetaPrecision::from_log_precision(u) };
+        let mut d_u = [0.0; BLOCK];
         let total_width = width + self.departures();
         let (beta, departures) = beta[..total_width].split_at(width);
         let (grad, d_departures) = grad[..total_width].split_at_mut(width);
@@ -183,7 +201,7 @@ impl GlmData {
             let used = (self.rows - first).min(BLOCK);
             fixed_effects_product(block, beta, &mut eta);
             add_departures(&self.groups, departures, first, used, &mut eta);
-            self.block_terms(first, used, &eta, &mut terms, &mut slope);
+            self.block_terms(first, used, &eta, shape, &mut terms, &mut slope, &mut d_u);
             fixed_effects_gradient(block, &slope, &mut gradient_lanes);
             add_departure_gradient(&self.groups, &slope, first, used, d_departures);
         }
@@ -192,24 +210,27 @@ impl GlmData {
         }
         let total = self.constant + sum_in_fixed_order(&terms);
         if total.is_nan() {
-            f64::NEG_INFINITY
+            (f64::NEG_INFINITY, 0.0)
         } else {
-            total
+            (total, sum_in_fixed_order(&d_u))
         }
     }
 
     /// The log-likelihood terms (without constant) of the first `used`
     /// rows of the block starting at row `first`, added into their lanes of
     /// `terms`; their derivatives in η go to `slope` (0 for the padding rows
-    /// past `used`).
+    /// past `used`), those in the family parameter into the lanes of `d_u`.
     #[inline(always)]
+    #[allow(clippy::too_many_arguments)]
     fn block_terms(
         &self,
         first: usize,
         used: usize,
         eta: &[f64; BLOCK],
+        shape: FamilyShape,
         terms: &mut [f64; BLOCK],
         slope: &mut [f64; BLOCK],
+        d_u: &mut [f64; BLOCK],
     ) {
         let rows = first..first + used;
         *slope = [0.0; BLOCK];
@@ -235,8 +256,31 @@ impl GlmData {
                     slope[i] = y - mu[i];
                 }
             }
+            GlmOutcome::GammaPoisson { y } => {
+                for (i, &y) in y[rows].iter().enumerate() {
+                    let (term, d_eta, d_shape) = gamma_poisson_row(y, eta[i], shape.gamma);
+                    terms[i] += term;
+                    slope[i] = d_eta;
+                    d_u[i] += d_shape;
+                }
+            }
+            GlmOutcome::Beta { shares, .. } => {
+                for (i, &share) in shares[rows].iter().enumerate() {
+                    let (term, d_eta, d_shape) = beta_row(share, eta[i], shape.beta);
+                    terms[i] += term;
+                    slope[i] = d_eta;
+                    d_u[i] += d_shape;
+                }
+            }
         }
     }
+}
+
+/// The family parameter as each family's rows use it, from its log `u`.
+#[derive(Debug, Clone, Copy)]
+struct FamilyShape {
+    gamma: GammaShape,
+    beta: BetaPrecision,
 }
 
 /// The sum of a multiple of eight lanes: eight partial sums, then a fixed
@@ -364,7 +408,8 @@ fn column_products<const C: usize>(columns: &[f64], slope: &[f64; BLOCK], out: &
 }
 
 /// The part of the log-likelihood free of coefficients: Σ log C(m, y) for
-/// binomial, −Σ log y! for poisson, 0 for bernoulli.
+/// binomial, −Σ log y! for poisson and gamma-poisson, −Σ log(y(1 − y))
+/// for beta, 0 for bernoulli.
 fn log_likelihood_constant(outcome: &GlmOutcome) -> f64 {
     let log_factorial = |v: f64| ln_gamma(v + 1.0);
     match outcome {
@@ -374,7 +419,8 @@ fn log_likelihood_constant(outcome: &GlmOutcome) -> f64 {
             .zip(trials)
             .map(|(&s, &m)| log_factorial(m) - log_factorial(s) - log_factorial(m - s))
             .sum(),
-        GlmOutcome::Poisson { y } => -y.iter().map(|&v| log_factorial(v)).sum::<f64>(),
+        GlmOutcome::Poisson { y } | GlmOutcome::GammaPoisson { y } => -y.iter().map(|&v| log_factorial(v)).sum::<f64>(),
+        GlmOutcome::Beta { y, shares } => -y.iter().zip(shares).map(|(&v, s)| v.ln() + s.log_complement).sum::<f64>(),
     }
 }
 
@@ -397,9 +443,32 @@ mod tests {
         let successes: Vec<f64> = trials.iter().enumerate().map(|(i, m)| (i % 8) as f64 % (m + 1.0)).collect();
         vec![
             GlmOutcome::Bernoulli { y },
-            GlmOutcome::Binomial { y: successes.clone(), trials },
-            GlmOutcome::Poisson { y: successes },
+            GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
+            GlmOutcome::Poisson { y: successes.clone() },
+            GlmOutcome::GammaPoisson { y: successes.clone() },
+            shares_of(&successes, &trials),
         ]
+    }
+
+    /// Beta shares `(s + ½)/(m + 1)`, strictly inside (0, 1).
+    fn shares_of(successes: &[f64], trials: &[f64]) -> GlmOutcome {
+        let y: Vec<f64> = successes.iter().zip(trials).map(|(s, m)| (s + 0.5) / (m + 1.0)).collect();
+        GlmOutcome::Beta { shares: y.iter().map(|&v| BetaShare::new(v)).collect(), y }
+    }
+
+    /// A beta row at precision 1 (`u = 0`), as [`gamma_poisson_at_one`].
+    fn beta_at_one(share: BetaShare, eta: f64) -> (f64, f64) {
+        let (term, slope, _) = beta_row(share, eta, BetaPrecision::from_log_precision(0.0));
+        (term, slope)
+    }
+
+    /// A gamma-poisson row at overdispersion 1 (`u = 0`, the value
+    /// `log_likelihood_and_gradient` passes): its own formula is checked
+    /// against the plain definition in `family::shaped`; here it checks
+    /// the blocking.
+    fn gamma_poisson_at_one(y: f64, eta: f64) -> (f64, f64) {
+        let (term, slope, _) = gamma_poisson_row(y, eta, GammaShape::from_log_overdispersion(0.0));
+        (term, slope)
     }
 
     /// The row-by-row definition in the module doc, with the standard
@@ -415,6 +484,8 @@ mod tests {
                     (y[i] * eta - trials[i] * softplus(eta), y[i] - trials[i] * logistic(eta))
                 }
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
+                GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
+                GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
             };
             total += value;
             for (g, x) in grad.iter_mut().zip(row) {
@@ -463,6 +534,8 @@ mod tests {
                 GlmOutcome::Bernoulli { y: yes.clone() },
                 GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
                 GlmOutcome::Poisson { y: successes.clone() },
+                GlmOutcome::GammaPoisson { y: successes.clone() },
+                shares_of(&successes, &trials),
             ] {
                 let data = GlmData::new(rows.clone(), width, outcome.clone());
                 let mut grad = vec![0.0; width];
@@ -488,6 +561,8 @@ mod tests {
                 GlmOutcome::Bernoulli { y } => (y[i] * eta - softplus(eta), y[i] - logistic(eta)),
                 GlmOutcome::Binomial { y, trials } => (y[i] * eta - trials[i] * softplus(eta), y[i] - trials[i] * logistic(eta)),
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
+                GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
+                GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
             };
             value += term.abs() + (y_of(outcome, i) * eta).abs();
             for (g, x) in gradient.iter_mut().zip(row) {
@@ -499,7 +574,11 @@ mod tests {
 
     fn y_of(outcome: &GlmOutcome, i: usize) -> f64 {
         match outcome {
-            GlmOutcome::Bernoulli { y } | GlmOutcome::Binomial { y, .. } | GlmOutcome::Poisson { y } => y[i],
+            GlmOutcome::Bernoulli { y }
+            | GlmOutcome::Binomial { y, .. }
+            | GlmOutcome::Poisson { y }
+            | GlmOutcome::GammaPoisson { y }
+            | GlmOutcome::Beta { y, .. } => y[i],
         }
     }
 
@@ -537,8 +616,10 @@ mod tests {
         let yes: Vec<f64> = (0..n).map(|_| f64::from(rng.random::<bool>())).collect();
         for outcome in [
             GlmOutcome::Bernoulli { y: yes },
-            GlmOutcome::Binomial { y: successes.clone(), trials },
-            GlmOutcome::Poisson { y: successes },
+            GlmOutcome::Binomial { y: successes.clone(), trials: trials.clone() },
+            GlmOutcome::Poisson { y: successes.clone() },
+            GlmOutcome::GammaPoisson { y: successes.clone() },
+            shares_of(&successes, &trials),
         ] {
             let groups = levels
                 .iter()
@@ -577,18 +658,18 @@ mod tests {
             let group = GroupIndices { level_of_row: (0..150).map(|i| (i * 7 % 5) as u32).collect(), levels: 5, weights: None };
             let data = GlmData::new(rows.clone(), 7, outcome).with_groups(vec![group]);
             let mut plain = vec![0.0; width];
-            let a = data.evaluate(&beta, &mut plain);
+            let a = data.evaluate(&beta, -0.4, &mut plain);
             if std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma") {
                 let mut wide = vec![0.0; width];
                 // SAFETY: AVX2 and FMA support were checked just above.
-                let b = unsafe { data.evaluate_avx2(&beta, &mut wide) };
-                assert_eq!((a.to_bits(), &plain), (b.to_bits(), &wide));
+                let b = unsafe { data.evaluate_avx2(&beta, -0.4, &mut wide) };
+                assert_eq!((a.0.to_bits(), a.1.to_bits(), &plain), (b.0.to_bits(), b.1.to_bits(), &wide));
             }
             if std::is_x86_feature_detected!("avx512f") && std::is_x86_feature_detected!("fma") {
                 let mut wide = vec![0.0; width];
                 // SAFETY: AVX-512F and FMA support were checked just above.
-                let b = unsafe { data.evaluate_avx512(&beta, &mut wide) };
-                assert_eq!((a.to_bits(), &plain), (b.to_bits(), &wide));
+                let b = unsafe { data.evaluate_avx512(&beta, -0.4, &mut wide) };
+                assert_eq!((a.0.to_bits(), a.1.to_bits(), &plain), (b.0.to_bits(), b.1.to_bits(), &wide));
             }
         }
     }

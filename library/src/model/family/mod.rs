@@ -1,7 +1,8 @@
 //! Outcome families and their links.
 //!
 //! Each family fixes the link between the linear predictor and the mean:
-//! normal — identity; bernoulli and binomial — logit; poisson — log. The
+//! normal — identity; bernoulli, binomial and beta — logit; poisson and
+//! gamma-poisson — log. The
 //! levels family (a category outcome with K levels) has K − 1 linear
 //! predictors, one per level after the first, and a softmax link to the
 //! level probabilities. The likelihoods live in [`likelihood`] (row by row,
@@ -9,11 +10,18 @@
 //! the normal family) and [`softmax`] (row by row, for the levels family);
 //! pooled groups add their departures to the linear predictor and their
 //! population prior to the density through [`pooling`].
+//!
+//! Besides the coefficients, the normal family has a spread, the
+//! gamma-poisson family an overdispersion and the beta family a precision
+//! ([`Family::family_parameter`]): one positive parameter, sampled on the
+//! log scale, placed after the coefficients. The gamma-poisson and beta
+//! rows' arithmetic is in [`shaped`].
 
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
 pub mod pooling;
+pub mod shaped;
 pub mod softmax;
 
 use super::error::ModelError;
@@ -29,6 +37,14 @@ pub enum Family {
     Binomial { trials: String },
     /// Count outcome, log link.
     Poisson,
+    /// Count outcome, log link, more varied than a poisson count: the rate
+    /// of each row is the mean times a gamma multiplier of mean 1 and sd
+    /// `overdispersion` (learned), so the variance is `μ + overdispersion²·μ²`.
+    GammaPoisson,
+    /// Share strictly between 0 and 1, logit link to its mean μ, beta
+    /// distributed with `precision` φ (learned): shape parameters μφ and
+    /// (1 − μ)φ, variance μ(1 − μ)/(1 + φ).
+    Beta,
     /// Category outcome: one linear predictor per level after the first
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
@@ -36,11 +52,19 @@ pub enum Family {
 }
 
 /// The family words of a `family` line (binomial then takes `out of <column>`).
-pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, LEVELS, BINOMIAL];
+pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, BINOMIAL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
+const GAMMA_POISSON: &str = "gamma_poisson";
+const BETA: &str = "beta";
 const LEVELS: &str = "levels";
+/// The label of the normal family's residual sd.
+pub const SPREAD: &str = "spread";
+/// The label of the gamma-poisson family's sd of the rate multiplier.
+pub const OVERDISPERSION: &str = "overdispersion";
+/// The label of the beta family's precision.
+pub const PRECISION: &str = "precision";
 /// The family that takes `out of <column>` after it.
 pub const BINOMIAL: &str = "binomial";
 /// The words between `binomial` and the column that holds each row's
@@ -49,13 +73,15 @@ pub const OUT_OF: [&str; 2] = ["out", "of"];
 
 impl Family {
     /// Read the rest of a `family` line: `normal`, `bernoulli`, `poisson`,
-    /// `levels`, or `binomial out of <column>`.
+    /// `gamma_poisson`, `beta`, `levels`, or `binomial out of <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
         match words[..] {
             [NORMAL] => Ok(Family::Normal),
             [BERNOULLI] => Ok(Family::Bernoulli),
             [POISSON] => Ok(Family::Poisson),
+            [GAMMA_POISSON] => Ok(Family::GammaPoisson),
+            [BETA] => Ok(Family::Beta),
             [LEVELS] => Ok(Family::Levels),
             [BINOMIAL, out, of, column] if [out, of] == OUT_OF => Ok(Family::Binomial { trials: column.to_string() }),
             [BINOMIAL, ..] => Err(ModelError::syntax(
@@ -63,7 +89,7 @@ impl Family {
                  write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, levels or binomial out of <column>"
+                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels or binomial out of <column>"
             ))),
         }
     }
@@ -75,6 +101,8 @@ impl Family {
             Family::Bernoulli => BERNOULLI,
             Family::Binomial { .. } => BINOMIAL,
             Family::Poisson => POISSON,
+            Family::GammaPoisson => GAMMA_POISSON,
+            Family::Beta => BETA,
             Family::Levels => LEVELS,
         }
     }
@@ -83,8 +111,8 @@ impl Family {
     pub fn link_name(&self) -> &'static str {
         match self {
             Family::Normal => "identity",
-            Family::Bernoulli | Family::Binomial { .. } => "logit",
-            Family::Poisson => "log",
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta => "logit",
+            Family::Poisson | Family::GammaPoisson => "log",
             Family::Levels => "softmax",
         }
     }
@@ -94,6 +122,19 @@ impl Family {
         matches!(self, Family::Normal)
     }
 
+    /// The label of the family's positive parameter beside the
+    /// coefficients (sampled as its log): `spread` for the normal family,
+    /// `overdispersion` for the gamma-poisson family, `precision` for the
+    /// beta family; `None` for the others.
+    pub fn family_parameter(&self) -> Option<&'static str> {
+        match self {
+            Family::Normal => Some(SPREAD),
+            Family::GammaPoisson => Some(OVERDISPERSION),
+            Family::Beta => Some(PRECISION),
+            _ => None,
+        }
+    }
+
     /// The mean of one outcome (per trial, for binomial) from the linear
     /// predictor. For the levels family, the probability of a level against
     /// the reference alone (the two-level softmax); the probabilities of all
@@ -101,8 +142,8 @@ impl Family {
     pub fn inverse_link(&self, eta: f64) -> f64 {
         match self {
             Family::Normal => eta,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Levels => logistic(eta),
-            Family::Poisson => eta.exp(),
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => logistic(eta),
+            Family::Poisson | Family::GammaPoisson => eta.exp(),
         }
     }
 
@@ -113,11 +154,11 @@ impl Family {
     pub fn link(&self, mu: f64) -> f64 {
         match self {
             Family::Normal => mu,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Levels => {
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }
-            Family::Poisson => mu.max(1e-3).ln(),
+            Family::Poisson | Family::GammaPoisson => mu.max(1e-3).ln(),
         }
     }
 }
