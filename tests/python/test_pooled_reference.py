@@ -127,3 +127,104 @@ def test_normal_varying_slopes_match_mixedlm_reml(probe):
     ours1 = np.array([mean[f"site moisture departure[{lv}]"] for lv in levels])
     assert np.max(np.abs(ours0 - blups[:, 0])) < 0.15, np.max(np.abs(ours0 - blups[:, 0]))
     assert np.max(np.abs(ours1 - blups[:, 1])) < 0.015, np.max(np.abs(ours1 - blups[:, 1]))
+
+
+def sites_with_two_slopes(groups=60, per=40, seed=36):
+    """Each site departs in its intercept (sd 1.8), its moisture slope (sd
+    0.15) and its light slope (sd 0.5), with correlations 0.4, -0.3 and
+    0.2."""
+    rng = np.random.default_rng(seed)
+    sizes = rng.integers(per // 2, per * 3 // 2, groups)
+    site = np.repeat(np.arange(groups), sizes)
+    n = len(site)
+    moisture = rng.normal(30, 6, n)
+    light = rng.normal(5, 2, n)
+    sd = np.array([1.8, 0.15, 0.5])
+    corr = np.array([[1.0, 0.4, -0.3], [0.4, 1.0, 0.2], [-0.3, 0.2, 1.0]])
+    shift = rng.multivariate_normal(np.zeros(3), corr * np.outer(sd, sd), groups)
+    cm, cl = moisture - moisture.mean(), light - light.mean()
+    growth = (24 + 0.4 * cm - 0.8 * cl + shift[site, 0] + shift[site, 1] * cm + shift[site, 2] * cl
+              + rng.normal(0, 2.5, n))
+    return site, moisture, light, growth
+
+
+def test_normal_two_varying_slopes_match_mixedlm_reml(probe):
+    """`pooled site with (moisture, light)` against MixedLM with a random
+    intercept and two random slopes with their full covariance
+    (re_formula "~cm + cl"), REML; lkj(1) is flat over correlation
+    matrices."""
+    site, moisture, light, growth = sites_with_two_slopes()
+    levels = [f"S{k + 1}" for k in range(site.max() + 1)]
+    answer = probe("model", {
+        "action": "nuts", "chains": 2, "settle": 400, "draws": 800, "seed": 7,
+        "columns": {"site": {"category": {"codes": site.tolist(), "levels": levels}},
+                    "moisture": {"real": moisture.tolist()}, "light": {"real": light.tolist()},
+                    "growth": {"real": growth.tolist()}},
+        "model": "growth from moisture, light, pooled site with (moisture, light) using plots\n" + WIDE
+                 + "prior pooled correlations: lkj(1)\n",
+    })
+    assert "error" not in answer, answer
+    names = answer["names"]
+    mean = dict(zip(names, answer["mean"]))
+    median = dict(zip(names, answer["median"]))
+    sd = dict(zip(names, answer["sd"]))
+    assert answer["divergences"] <= 8, answer["divergences"]
+    worst = int(np.argmax(answer["r_hat"]))
+    assert answer["largest_r_hat"] < 1.05, (names[worst], answer["largest_r_hat"])
+
+    cm, cl = moisture - moisture.mean(), light - light.mean()
+    reml = smf.mixedlm("growth ~ cm + cl", {"growth": growth, "cm": cm, "cl": cl, "site": site},
+                       groups="site", re_formula="~cm + cl").fit(reml=True)
+    for ours, theirs in [("intercept", "Intercept"), ("moisture slope", "cm"), ("light slope", "cl")]:
+        se = reml.bse[theirs]
+        assert abs(mean[ours] - reml.params[theirs]) < 0.25 * se, (ours, mean[ours], reml.params[theirs], se)
+        assert abs(sd[ours] / se - 1) < 0.2, (ours, sd[ours], se)
+    cov = reml.cov_re.values
+    spreads = np.sqrt(np.diag(cov))
+    for k, label in enumerate(["site spread", "site moisture spread", "site light spread"]):
+        assert abs(median[label] / spreads[k] - 1) < 0.1, (label, median[label], spreads[k])
+    corr = cov / np.outer(spreads, spreads)
+    for (i, j), pair in [((1, 0), "intercept, moisture"), ((2, 0), "intercept, light"), ((2, 1), "moisture, light")]:
+        ours = median[f"site correlation[{pair}]"]
+        assert abs(ours - corr[i, j]) < 0.12, (pair, ours, corr[i, j])
+    assert abs(median["spread"] / np.sqrt(reml.scale) - 1) < 0.01, (median["spread"], np.sqrt(reml.scale))
+    blups = np.array([reml.random_effects[k].values for k in range(len(levels))])
+    for k, (prefix, tolerance) in enumerate([("site", 0.15), ("site moisture", 0.015), ("site light", 0.05)]):
+        ours = np.array([mean[f"{prefix} departure[{lv}]"] for lv in levels])
+        assert np.max(np.abs(ours - blups[:, k])) < tolerance, (prefix, np.max(np.abs(ours - blups[:, k])))
+
+
+def test_lkj_prior_draws_have_the_published_beta_marginals(probe):
+    """Under lkj(eta) each correlation of a K x K matrix is 2B - 1 with
+    B ~ beta(eta - 1 + K/2, eta - 1 + K/2) (Lewandowski, Kurowicka & Joe
+    2009, J. Multivariate Analysis 100, section 3.2); scipy.stats.beta is
+    the outside check of the prior draws that `calibrate` and `prior
+    check` start from, for three and four effects."""
+    from scipy import stats
+    rng = np.random.default_rng(3)
+    n = 60
+    columns = {"block": {"category": {"codes": (np.arange(n) % 6).tolist(), "levels": [f"B{k}" for k in range(6)]}},
+               "a": {"real": rng.normal(size=n).tolist()}, "b": {"real": rng.normal(size=n).tolist()},
+               "c": {"real": rng.normal(size=n).tolist()}, "y": {"real": rng.normal(size=n).tolist()}}
+    for slopes, k, eta in [("a, b", 3, 2.0), ("a, b, c", 4, 1.5)]:
+        answer = probe("model", {
+            "action": "prior_draws", "draws": 4000, "seed": 11, "columns": columns,
+            "model": f"y from {slopes}, pooled block with ({slopes}) using t\nprior pooled correlations: lkj({eta})\n",
+        })
+        assert "error" not in answer, answer
+        draws = np.array(answer["draws"])
+        at = [i for i, name in enumerate(answer["names"]) if name.startswith("block correlation[")]
+        assert len(at) == k * (k - 1) // 2
+        shape = eta - 1 + k / 2
+        for i in at:
+            share = (draws[:, i] + 1) / 2
+            p = stats.kstest(share, stats.beta(shape, shape).cdf).pvalue
+            assert p > 0.001, (k, answer["names"][i], p)
+        # Every drawn matrix is a correlation matrix (positive definite).
+        for row in draws[:200]:
+            omega = np.eye(k)
+            lower = iter(row[at])
+            for r in range(1, k):
+                for c in range(r):
+                    omega[r, c] = omega[c, r] = next(lower)
+            assert np.linalg.eigvalsh(omega).min() > 0

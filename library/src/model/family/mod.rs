@@ -13,6 +13,7 @@
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
+pub mod correlated;
 pub mod pooling;
 pub mod softmax;
 
