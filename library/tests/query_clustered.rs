@@ -108,6 +108,11 @@ fn bad_departures_are_refused_with_the_line_named() {
         ("y = normal(departure(x, 1), 1)", "needs a category"),
         ("y = normal(departure(site, 1) + departure(site, 2), 1)", "twice"),
         ("y = normal(departure(elsewhere, 1), 1)", "not a node of graph"),
+        ("y = normal(departure(site, 1, x) + departure(site, 2, x), 1)", "twice"),
+        ("y = normal(departure(site, 1, x, x), 1)", "needs the form"),
+        ("y = normal(departure(site, 1, 2x), 1)", "not a node name"),
+        ("y = normal(departure(site, 1, site), 1)", "cannot use it as a number"),
+        ("y = normal(departure(site, 1, elsewhere), 1)", "not a node of graph"),
     ];
     for (line, words) in cases {
         match simulate(&g, &base(line), 10, 1) {
@@ -117,6 +122,120 @@ fn bad_departures_are_refused_with_the_line_named() {
             }
             other => panic!("{line} should be refused, got {other:?}"),
         }
+    }
+}
+
+/// `departure(site, 0.6, x)`: each site's slope departure, read off a
+/// noiseless table (its rows on one line in x), with a sample sd
+/// inside the chi-square bounds for 300 draws from normal(0, 0.6)
+/// (Cochran's theorem, quantiles from statrs), and the intercept's and the
+/// slope's departures of one site drawn apart (no correlation beyond what
+/// 300 independent pairs show: |r| < 4/√300, the normal approximation to
+/// the sample correlation of independent normals; recalled).
+#[test]
+fn slope_departures_multiply_their_parent_and_follow_the_stated_spread() {
+    let g = graph(&["site -> y", "x -> y"]);
+    let body = vec![
+        sites_line(300),
+        "x = normal(2, 1)".to_string(),
+        "y = normal(departure(site, 1.2) + departure(site, 0.6, x), 0.000000001)".to_string(),
+    ];
+    let both = simulate(&g, &body, 12_000, 8).expect("mechanisms").table().expect("table");
+    let (x, y) = (reals(&both, "x"), reals(&both, "y"));
+    let (site, levels) = codes(&both, "site");
+    let mut rows_of: BTreeMap<String, Vec<usize>> = BTreeMap::new();
+    for (i, c) in site.iter().enumerate() {
+        rows_of.entry(levels[*c as usize].clone()).or_default().push(i);
+    }
+    // Two rows of a site give its intercept and slope departures; every
+    // other row of the site lies on that line.
+    let mut intercepts: BTreeMap<String, f64> = BTreeMap::new();
+    let mut slopes: BTreeMap<String, f64> = BTreeMap::new();
+    for (level, rows) in rows_of.iter().filter(|(_, r)| r.len() >= 3) {
+        let (i, j) = (rows[0], rows[1]);
+        let b = (y[i] - y[j]) / (x[i] - x[j]);
+        let a = y[i] - b * x[i];
+        for &r in &rows[2..] {
+            assert!((a + b * x[r] - y[r]).abs() < 1e-5, "{level}: row {r} off the line");
+        }
+        intercepts.insert(level.clone(), a);
+        slopes.insert(level.clone(), b);
+    }
+    let d: Vec<f64> = slopes.values().copied().collect();
+    let n = d.len() as f64;
+    let mean = d.iter().sum::<f64>() / n;
+    let s2 = d.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    let chi = ChiSquared::new(n - 1.0).unwrap();
+    let statistic = (n - 1.0) * s2 / 0.36;
+    assert!(chi.cdf(statistic) > 0.0005 && chi.cdf(statistic) < 0.9995, "slope departures' sd {}", s2.sqrt());
+    let pairs: Vec<(f64, f64)> = intercepts.iter().filter_map(|(l, a)| slopes.get(l).map(|b| (*a, *b))).collect();
+    let k = pairs.len() as f64;
+    let (ma, mb) = (pairs.iter().map(|p| p.0).sum::<f64>() / k, pairs.iter().map(|p| p.1).sum::<f64>() / k);
+    let cov = pairs.iter().map(|(a, b)| (a - ma) * (b - mb)).sum::<f64>();
+    let r = cov / (pairs.iter().map(|p| (p.0 - ma).powi(2)).sum::<f64>() * pairs.iter().map(|p| (p.1 - mb).powi(2)).sum::<f64>()).sqrt();
+    assert!(r.abs() < 4.0 / k.sqrt(), "intercept and slope departures drawn apart: r = {r}");
+}
+
+/// `recover` of a varying slope against a simulation with
+/// `departure(site, 1.5) + departure(site, 0.4, x)`: with centring off the
+/// truths are the stated spreads, the departures of a noiseless twin and a
+/// correlation of 0 (drawn apart). With centring on, the model's slope
+/// column is `x − c` (c = x's mean over the rows), so its intercept
+/// departures are `a₀ + c·a₁` — computed here from the twin — with spread
+/// `√(1.5² + c²·0.4²)` and correlation `c·0.4 / that` with the slope (the
+/// variance and covariance of a sum of independent normals). Coverage: at
+/// least 11 of 16 slope departures' 90% intervals hold their truth (see
+/// the intercept-only check above for the bound).
+#[test]
+fn recover_sets_drawn_slope_departures_beside_a_varying_slope() {
+    let g = graph(&["site -> y", "x -> y"]);
+    let body = |sd: &str| {
+        vec![sites_line(16), "x = normal(3, 1)".to_string(), format!("y = normal(10 + 2 * x + departure(site, 1.5) + departure(site, 0.4, x), {sd})")]
+    };
+    let sim = simulate(&g, &body("1"), 1_600, 31).expect("mechanisms");
+    let mut slope_only = body("0.000000001");
+    slope_only[2] = "y = normal(departure(site, 1.5) + departure(site, 0.4, x), 0.000000001)".to_string();
+    let twin = simulate(&g, &slope_only, 1_600, 31).unwrap().table().unwrap();
+    let (x, y) = (reals(&twin, "x"), reals(&twin, "y"));
+    let (site, levels) = codes(&twin, "site");
+    // Two rows of a site give its intercept and slope departures exactly.
+    let mut rows_of: BTreeMap<String, Vec<usize>> = BTreeMap::new();
+    for (i, c) in site.iter().enumerate() {
+        rows_of.entry(levels[*c as usize].clone()).or_default().push(i);
+    }
+    let truth: BTreeMap<String, (f64, f64)> = rows_of
+        .iter()
+        .map(|(l, rows)| {
+            let (i, j) = (rows[0], rows[1]);
+            let b = (y[i] - y[j]) / (x[i] - x[j]);
+            (l.clone(), (y[i] - b * x[i], b))
+        })
+        .collect();
+    let c = x.iter().sum::<f64>() / x.len() as f64;
+    let method = Method::Nuts(NutsSettings { chains: 2, settle: 400, draws: 600, seed: 3, ..NutsSettings::default() });
+    for centred in [false, true] {
+        let lines = if centred { vec![(2, "y from x, pooled site with x using fake")] } else { vec![(2, "y from x, pooled site with x using fake"), (3, "centre off")] };
+        let spec = ModelSpec::from_lines("m", lines).expect("spec");
+        let r = recover(&spec, &sim, &method, &AtomicBool::new(false), 0.9).expect("recover");
+        let by_name = |name: &str| r.parameters.iter().find(|p| p.name == name).unwrap_or_else(|| panic!("no {name}: {:?}", r.parameters));
+        let shift = if centred { c } else { 0.0 };
+        let spread0 = (1.5f64.powi(2) + shift * shift * 0.16).sqrt();
+        assert!((by_name("site spread").truth.unwrap() - spread0).abs() < 1e-9);
+        assert_eq!(by_name("site x spread").truth, Some(0.4));
+        let rho = by_name("site correlation[intercept, x]").truth.unwrap();
+        assert!((rho - shift * 0.4 / spread0).abs() < 1e-9, "centred {centred}: {rho}");
+        let mut covered = 0;
+        for (level, (a0, a1)) in &truth {
+            let p0 = by_name(&format!("site departure[{level}]"));
+            let p1 = by_name(&format!("site x departure[{level}]"));
+            assert!((p0.truth.unwrap() - (a0 + shift * a1)).abs() < 1e-6, "{level}: {:?} vs {}", p0.truth, a0 + shift * a1);
+            assert!((p1.truth.unwrap() - a1).abs() < 1e-6, "{level}: {:?} vs {a1}", p1.truth);
+            covered += usize::from(p1.covered == Some(true));
+        }
+        assert_eq!(truth.len(), 16);
+        assert!(covered >= 11, "centred {centred}: {covered} of 16 slope departure intervals hold the truth");
+        assert!((by_name("x slope").truth.unwrap() - 2.0).abs() < 1e-9);
+        assert!(r.notes.iter().any(|n| n.contains("site x spread: the true value is the stated 0.4")), "{:?}", r.notes);
     }
 }
 

@@ -14,7 +14,7 @@ use crate::table::Table;
 use crate::limits::{bytes_for, check_memory};
 
 use super::defaults::{assign_priors, predictor_blocks, row_information, ColumnSpread, PredictorBlock};
-use super::family::pooling::{Pooling, SlopePrior};
+use super::family::pooling::Pooling;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
@@ -27,7 +27,7 @@ use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
-use super::terms::groups::VaryingSlope;
+use super::terms::groups::{SlopeEvidence, VaryingSlope};
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
 use super::prior::short_number;
 
@@ -60,24 +60,21 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     for (group, rows) in groups.iter_mut().zip(&group_rows) {
         let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| *l);
         let means = level_link_means(&spec.family, &outcome, rows, group.levels.len());
-        group.settle_layout(declared, information, &means);
+        let evidence: Vec<SlopeEvidence> =
+            group.slopes.iter().map(|s| slope_evidence(&spec.family, &outcome, design.column(s.design_column).as_slice(), rows, group.levels.len())).collect();
+        group.settle_layout(declared, information, &means, &evidence);
         notes.push(group.note());
     }
     let single_intercept = recipes.iter().position(|r| matches!(r, TermRecipe::Intercept)).map(|_| 0);
-    let slope_priors: Vec<Option<SlopePrior>> = priors
-        .slope_spreads
-        .iter()
-        .map(|p| p.clone().map(|spread_prior| SlopePrior { spread_prior, lkj: priors.correlation_lkj }))
-        .collect();
-    if groups.iter().any(|g| g.slope.is_some()) {
+    if groups.iter().any(|g| !g.slopes.is_empty()) {
         notes.push(format!(
-            "the correlation of a group's intercept and slope departures has the prior lkj({}) on its correlation \
-             matrix{}",
+            "the correlations of a group's intercept and slope departures have the prior lkj({}) on their \
+             correlation matrix{}",
             short_number(priors.correlation_lkj),
             if spec.correlation_prior.is_some() { "" } else { " (the default; `prior pooled correlations: lkj(η)` sets η)" }
         ));
     }
-    let pooling = Pooling::new(&groups, &priors.group_spreads, &slope_priors, single_intercept);
+    let pooling = Pooling::new(&groups, &priors.group_spreads, &priors.slope_spreads, priors.correlation_lkj, single_intercept);
     if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
         notes.push(format!(
             "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
@@ -105,7 +102,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     let family_start = priors.family_parameter.as_ref().map(|prior| (prior, family_parameter_start(&spec.family, &outcome)));
     let mut start = starting_point(&blocks, &priors.coefficients, family_start, &intercepts);
     let anchor = pooling.anchor(&start);
-    start.extend(pooling.start(&[], anchor));
+    start.extend(pooling.start(&[], &anchor));
     let gaussian_spread = priors.family_parameter.clone().filter(|_| spec.family == Family::Normal);
     let family_prior = priors.family_parameter.clone().filter(|_| spec.family != Family::Normal);
     match spec.family {
@@ -187,11 +184,8 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
             ModelError::Syntax { message } => ModelError::Term { term: term.to_string(), message },
             other => other,
         })?;
-        if let Some(x) = with {
-            group.slope = Some(varying_slope(x, recipes).map_err(|message| ModelError::Term { term: term.to_string(), message })?);
-            if spec.family == Family::Levels {
-                return Err(ModelError::Term { term: term.to_string(), message: "varying slopes need a normal, bernoulli, binomial, poisson or gamma_poisson outcome".into() });
-            }
+        for x in with {
+            group.slopes.push(varying_slope(x, recipes).map_err(|message| ModelError::Term { term: term.to_string(), message })?);
         }
         if groups.iter().any(|g: &GroupTerm| g.column == group.column) {
             return Err(ModelError::Term {
@@ -201,8 +195,8 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
         }
         let rows = table.nrows();
         check_memory(
-            &format!("the term {term}: {} indicator columns over {rows} rows", group.levels.len()),
-            bytes_for(&[rows.max(1), group.levels.len(), 3]),
+            &format!("the term {term}: {} indicator columns over {rows} rows", group.levels.len() * (1 + group.slopes.len())),
+            bytes_for(&[rows.max(1), group.levels.len() * (1 + group.slopes.len()), 3]),
         )
         .map_err(|message| ModelError::Term { term: term.to_string(), message })?;
         groups.push(group);
@@ -253,6 +247,45 @@ fn level_link_means(family: &Family, outcome: &OutcomeValues, rows: &[usize], le
     sums.into_iter().map(|(y, m)| (m > 0.0).then(|| family.link(y / m))).collect()
 }
 
+/// What the rows of each level say about a varying slope of design column
+/// `x` (`terms::groups::SlopeEvidence`): the column's sum of squared
+/// deviations within the level and the level's least-squares slope of the
+/// outcome per trial on it, times the link's derivative at the outcome's
+/// mean (so on the link scale).
+fn slope_evidence(family: &Family, outcome: &OutcomeValues, x: &[f64], rows: &[usize], levels: usize) -> SlopeEvidence {
+    let per_trial = |i: usize| outcome.y[i] / outcome.trials.as_ref().map_or(1.0, |m| m[i].max(1.0));
+    let mut sums = vec![(0.0, 0.0, 0.0); levels];
+    for (i, &level) in rows.iter().enumerate() {
+        sums[level].0 += 1.0;
+        sums[level].1 += x[i];
+        sums[level].2 += per_trial(i);
+    }
+    let means: Vec<(f64, f64)> = sums.iter().map(|&(n, sx, sy)| if n > 0.0 { (sx / n, sy / n) } else { (0.0, 0.0) }).collect();
+    let mut cross = vec![(0.0, 0.0); levels];
+    for (i, &level) in rows.iter().enumerate() {
+        let dx = x[i] - means[level].0;
+        cross[level].0 += dx * dx;
+        cross[level].1 += dx * (per_trial(i) - means[level].1);
+    }
+    let mean = outcome.mean_per_trial();
+    let link_slope = match family {
+        Family::Normal => 1.0,
+        Family::Poisson => 1.0 / mean.max(1e-3),
+        _ => {
+            let p = mean.clamp(1e-3, 1.0 - 1e-3);
+            1.0 / (p * (1.0 - p))
+        }
+    };
+    SlopeEvidence {
+        spread_sums: cross.iter().map(|c| c.0).collect(),
+        slopes: cross
+            .iter()
+            .zip(&sums)
+            .map(|(&(sxx, sxy), &(n, _, _))| (n >= 2.0 && sxx > 0.0).then(|| link_slope * sxy / sxx))
+            .collect(),
+    }
+}
+
 /// Every fitted row's level in each group.
 fn fitted_group_rows(groups: &[GroupTerm], table: &Table) -> Result<Vec<Vec<usize>>, ModelError> {
     groups
@@ -287,16 +320,16 @@ pub(super) fn with_departure_columns(design: &DMatrix<f64>, groups: &[GroupTerm]
 }
 
 /// Every group's fitted rows by level index, for the GLM likelihood's
-/// gather and scatter (`family::likelihood`): one run per group, and a
-/// second, weighted by the predictor's design column, for a varying slope.
+/// gather and scatter (`family::likelihood`): one run per group, and one
+/// more per varying slope, weighted by the predictor's design column.
 pub(super) fn group_indices(design: &DMatrix<f64>, groups: &[GroupTerm], rows: &[Vec<usize>]) -> Vec<GroupIndices> {
     let mut runs = Vec::new();
     for (group, levels) in groups.iter().zip(rows) {
         let level_of_row: Vec<u32> = levels.iter().map(|&l| l as u32).collect();
         runs.push(GroupIndices { level_of_row: level_of_row.clone(), levels: group.levels.len(), weights: None });
-        if let Some(slope) = &group.slope {
+        for slope in &group.slopes {
             let weights = design.column(slope.design_column).iter().copied().collect();
-            runs.push(GroupIndices { level_of_row, levels: group.levels.len(), weights: Some(weights) });
+            runs.push(GroupIndices { level_of_row: level_of_row.clone(), levels: group.levels.len(), weights: Some(weights) });
         }
     }
     runs

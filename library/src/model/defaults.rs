@@ -55,9 +55,9 @@
 //! makes the departures vary across rows by that share, and the prior
 //! keeps it below about twice the share.
 //!
-//! A group's **varying slope** (`pooled block with girth`) varies from row
-//! to row as well and takes a share of its own: `K + G` counts it too, and
-//! its spread gets `half_normal(T/(s_x·√(K + G)))`, `s_x` the sd of the
+//! A group's **varying slope** (`pooled block with girth`; each of several)
+//! varies from row to row as well and takes a share of its own: `K + G`
+//! counts it too, and its spread gets `half_normal(T/(s_x·√(K + G)))`, `s_x` the sd of the
 //! predictor's design column, like the slope columns.
 //!
 //! **Correlations** between a group's intercept and slope departures:
@@ -67,7 +67,10 @@
 //! density at ±1, where a few groups can push the draws against the edge;
 //! η = 2, density ∝ 1 − ρ², is the smallest whole η whose density falls to
 //! 0 at ±1, and the flattest such: ρ has sd 1/√5 ≈ 0.45 and its central
-//! 90% runs from about −0.73 to 0.73.
+//! 90% runs from about −0.73 to 0.73. With `K` effects (several slopes)
+//! each correlation's marginal is `2B − 1`, `B ~ beta(η − 1 + K/2, same)`
+//! (the same paper), so lkj(2) keeps every correlation at least as far
+//! from ±1 as with one slope.
 //!
 //! Every assignment is recorded as a [`PriorUse`] so fit output can list
 //! the priors actually used and who set them.
@@ -117,8 +120,8 @@ pub struct PriorPlan {
     pub family_parameter: Option<Prior>,
     /// The spread prior of each pooled group, in the groups' order.
     pub group_spreads: Vec<Prior>,
-    /// The spread prior of each group's varying slope (`None` without one).
-    pub slope_spreads: Vec<Option<Prior>>,
+    /// The spread priors of each group's varying slopes (empty without).
+    pub slope_spreads: Vec<Vec<Prior>>,
     /// The η of the LKJ prior on every group's intercept–slope correlation.
     pub correlation_lkj: f64,
     pub uses: Vec<PriorUse>,
@@ -174,7 +177,7 @@ pub fn assign_priors(
     check_declared(spec, recipes, groups)?;
     let target = budget_target(&spec.family, outcome);
     let intercepts = super::build::intercept_columns(recipes);
-    let slopes = groups.iter().filter(|g| g.slope.is_some()).count();
+    let slopes = groups.iter().map(|g| g.slopes.len()).sum::<usize>();
     let varying = columns.sd.len() - intercepts.len() + groups.len() + slopes;
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
@@ -241,19 +244,23 @@ pub fn assign_priors(
             at_average_row: false,
         });
         plan.group_spreads.push(prior);
-        let slope_prior = group.slope.as_ref().map(|slope| {
-            let share = share_of_budget(target, columns.sd[slope.design_column], varying);
-            let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: share });
-            plan.uses.push(PriorUse {
-                group: PriorGroup::PooledSpreads,
-                parameters: vec![group_spread_label(&format!("{} {}", group.column, slope.column))],
-                prior: prior.clone(),
-                declared: declared.is_some(),
-                at_average_row: false,
-            });
-            prior
-        });
-        plan.slope_spreads.push(slope_prior);
+        let slope_priors: Vec<Prior> = group
+            .slopes
+            .iter()
+            .map(|slope| {
+                let share = share_of_budget(target, columns.sd[slope.design_column], varying);
+                let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: share });
+                plan.uses.push(PriorUse {
+                    group: PriorGroup::PooledSpreads,
+                    parameters: vec![group_spread_label(&format!("{} {}", group.column, slope.column))],
+                    prior: prior.clone(),
+                    declared: declared.is_some(),
+                    at_average_row: false,
+                });
+                prior
+            })
+            .collect();
+        plan.slope_spreads.push(slope_priors);
     }
     if spec.correlation_prior.is_some() && slopes == 0 {
         return Err(ModelError::Prior {

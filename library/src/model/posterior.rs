@@ -179,7 +179,7 @@ impl Model {
             }
         }
         if theta.len() > first_group {
-            params.extend(self.pooling.constrain(&theta[first_group..], self.pooling.anchor(theta)));
+            params.extend(self.pooling.constrain(&theta[first_group..], &self.pooling.anchor(theta)));
         }
         params
     }
@@ -197,10 +197,10 @@ impl Model {
         &self.groups
     }
 
-    /// The η of the LKJ prior on the intercept–slope correlation of the
-    /// groups with a varying slope (the default when none has one).
+    /// The η of the LKJ prior on the intercept–slope correlations of the
+    /// groups with varying slopes (the default when none has one).
     pub fn correlation_lkj(&self) -> f64 {
-        self.pooling.groups.iter().find_map(|g| g.slope.as_ref().map(|s| s.lkj)).unwrap_or(super::defaults::DEFAULT_LKJ)
+        self.pooling.groups.iter().find(|g| !g.slopes.is_empty()).map_or(super::defaults::DEFAULT_LKJ, |g| g.lkj)
     }
 
     /// The unconstrained point of constrained parameters (checks the length
@@ -218,11 +218,15 @@ impl Model {
             theta[self.labels.len()] = value.ln();
         }
         let first_group = self.first_group_index();
-        let pooled = self.pooling.unconstrain(&params[first_group..], self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
+        let pooled = self.pooling.unconstrain(&params[first_group..], &self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
             message: format!(
                 "{} must be {}, not {}",
                 self.parameter_names()[first_group + at],
-                if is_spread_label(&self.parameter_names()[first_group + at]) { "positive" } else { "between −1 and 1" },
+                if is_spread_label(&self.parameter_names()[first_group + at]) {
+                    "positive"
+                } else {
+                    "between −1 and 1, and with the group's other correlations form a correlation matrix (positive definite)"
+                },
                 params[first_group + at]
             ),
         })?;
@@ -273,7 +277,7 @@ impl Model {
         // Level means sampled around the intercept start near the data (the
         // undispersed intercept), not wherever a wide intercept prior sent it.
         let anchor = self.pooling.anchor(&self.start);
-        point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[]), anchor));
+        point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[]), &anchor));
         point
     }
 
@@ -318,7 +322,7 @@ impl Model {
     fn coefficients_with_departures(&self, theta: &[f64]) -> Vec<f64> {
         let p = self.labels.len();
         let mut out = theta[..p].to_vec();
-        out.extend(self.pooling.departures(&theta[self.first_group_index()..], self.pooling.anchor(theta)));
+        out.extend(self.pooling.departures(&theta[self.first_group_index()..], &self.pooling.anchor(theta)));
         out
     }
 
@@ -490,13 +494,13 @@ impl Model {
         }
         let anchor = self.pooling.anchor(theta);
         let (groups, d_anchor) =
-            self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], anchor, &mut grad[first_group..]);
+            self.pooling.log_density_and_gradient(&theta[first_group..], &d_coefficients[p..], &anchor, &mut grad[first_group..]);
         total += groups;
         if let Some(j) = self.pooling.intercept {
             grad[j] += d_anchor.intercept;
         }
-        if let Some(j) = self.pooling.slope_anchor_position() {
-            grad[j] += d_anchor.slope;
+        for (&j, d) in self.pooling.slope_anchor_positions().iter().zip(&d_anchor.slopes) {
+            grad[j] += d;
         }
         if total.is_finite() {
             total

@@ -17,6 +17,7 @@ use crate::table::Table;
 use super::build::{glm_data, group_indices, intercept_columns, softmax_data, with_departure_columns};
 use super::columns::real_values;
 use super::error::ModelError;
+use super::family::correlated::{cholesky_of_correlations, lower_times, pair_count};
 use super::family::gaussian::GaussianStats;
 use super::family::softmax::level_probabilities;
 use super::family::Family;
@@ -158,52 +159,47 @@ impl Model {
     }
 
     /// Add each row's departure in every pooled group to its linear
-    /// predictor (`new_group[g]`, or nothing, for a row of a new group).
-    /// A varying slope's departure is multiplied by the row's value of the
+    /// predictor (`new_group[run]`, or nothing, for a row of a new group;
+    /// one run per group and per varying slope, in parameter order). A
+    /// varying slope's departure is multiplied by the row's value of the
     /// predictor's design column.
     fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear: &mut [f64]) {
         let mut at = self.first_group_index();
         let mut run = 0;
         for (group, levels) in self.groups.iter().zip(&rows.groups) {
             let n = group.levels.len();
-            let departures = &params[at + 1..at + 1 + n];
-            let new = new_group.get(run).copied().unwrap_or(0.0);
-            for (eta, level) in linear.iter_mut().zip(levels) {
-                *eta += level.map_or(new, |l| departures[l]);
-            }
-            run += 1;
-            at += 1 + n;
-            if let Some(slope) = &group.slope {
+            let weights = std::iter::once(None).chain(group.slopes.iter().map(|s| Some(rows.design.column(s.design_column))));
+            for weight in weights {
                 let departures = &params[at + 1..at + 1 + n];
                 let new = new_group.get(run).copied().unwrap_or(0.0);
-                let x = rows.design.column(slope.design_column);
-                for ((eta, level), x) in linear.iter_mut().zip(levels).zip(x.iter()) {
-                    *eta += x * level.map_or(new, |l| departures[l]);
+                for (i, (eta, level)) in linear.iter_mut().zip(levels).enumerate() {
+                    *eta += weight.map_or(1.0, |x| x[i]) * level.map_or(new, |l| departures[l]);
                 }
                 run += 1;
-                at += 2 + n;
+                at += 1 + n;
             }
+            at += pair_count(1 + group.slopes.len());
         }
     }
 
-    /// One departure per pooled group for a new group drawn from the
-    /// population at constrained `params`: `spread · z`, z standard normal;
-    /// a group with a varying slope adds the slope's departure, drawn
-    /// jointly: `slope spread · (ρ·z + √(1 − ρ²)·z₂)`.
+    /// One departure per pooled group and varying slope for a new group
+    /// drawn from the population at constrained `params`: `spread · z`, z
+    /// standard normal, for intercepts only; a group with varying slopes
+    /// draws its departures jointly, `τₑ·(L·z)ₑ` with `L` the Cholesky
+    /// factor of its correlation matrix.
     pub fn new_group_departures<R: Rng + ?Sized>(&self, params: &[f64], rng: &mut R) -> Vec<f64> {
         let mut at = self.first_group_index();
         let mut out = Vec::with_capacity(2 * self.groups.len());
         for group in &self.groups {
-            let n = group.levels.len();
-            let z: f64 = rand_distr::StandardNormal.sample(rng);
-            out.push(params[at] * z);
-            at += 1 + n;
-            if group.slope.is_some() {
-                let z2: f64 = rand_distr::StandardNormal.sample(rng);
-                let (spread, rho) = (params[at], params[at + 1 + n]);
-                out.push(spread * rho.mul_add(z, (1.0 - rho * rho).sqrt() * z2));
-                at += 2 + n;
+            let (n, k) = (group.levels.len(), 1 + group.slopes.len());
+            let z: Vec<f64> = (0..k).map(|_| rand_distr::StandardNormal.sample(rng)).collect();
+            let correlations = &params[at + k * (1 + n)..at + k * (1 + n) + pair_count(k)];
+            // The constrained correlations come from a Cholesky factor, so they are positive definite.
+            let l = cholesky_of_correlations(correlations, k).unwrap_or_else(|| identity(k));
+            for (e, mixed) in lower_times(&l, &z, k).into_iter().enumerate() {
+                out.push(params[at + e * (1 + n)] * mixed);
             }
+            at += k * (1 + n) + pair_count(k);
         }
         out
     }
@@ -342,4 +338,9 @@ impl Model {
     fn likelihood_design(&self) -> DMatrix<f64> {
         with_departure_columns(&self.design, &self.groups, &self.group_rows)
     }
+}
+
+/// The `k × k` identity, row-major.
+fn identity(k: usize) -> Vec<f64> {
+    (0..k * k).map(|i| if i % (k + 1) == 0 { 1.0 } else { 0.0 }).collect()
 }

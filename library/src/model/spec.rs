@@ -70,10 +70,11 @@ pub const KNOTS: &str = "knots";
 /// pooling; [`crate::model::terms::groups`]).
 pub const POOLED: &str = "pooled";
 /// The word after a pooled category that names the numeric predictor whose
-/// slope varies with the category's intercept: `pooled block with girth`.
+/// slope varies with the category's intercept: `pooled block with girth`,
+/// or several in brackets: `pooled block with (girth, age)`.
 pub const POOLED_WITH: &str = "with";
-/// The prior group of the correlation between a pooled group's intercept
-/// and its varying slope: `prior pooled correlations: lkj(2)`.
+/// The prior group of the correlations between a pooled group's intercept
+/// and its varying slopes: `prior pooled correlations: lkj(2)`.
 pub const POOLED_CORRELATIONS: &str = "pooled correlations";
 /// The only distribution `prior pooled correlations` takes: the LKJ
 /// density on correlation matrices, `lkj(η)` with η > 0.
@@ -97,8 +98,9 @@ pub enum TermSpec {
     /// `pooled c`: one departure per level of category `c` from the
     /// population, the departures normal around 0 with a learned spread;
     /// `pooled c with x` also gives each level a departure of the slope of
-    /// `x`, the two departures jointly normal with a learned correlation.
-    Pooled { by: String, with: Option<String> },
+    /// `x`, the two departures jointly normal with a learned correlation;
+    /// `pooled c with (x, w)` one per listed slope, all jointly normal.
+    Pooled { by: String, with: Vec<String> },
 }
 
 impl TermSpec {
@@ -119,8 +121,11 @@ impl fmt::Display for TermSpec {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
             TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
-            TermSpec::Pooled { by, with: None } => write!(f, "{POOLED} {by}"),
-            TermSpec::Pooled { by, with: Some(x) } => write!(f, "{POOLED} {by} {POOLED_WITH} {x}"),
+            TermSpec::Pooled { by, with } => match with.as_slice() {
+                [] => write!(f, "{POOLED} {by}"),
+                [x] => write!(f, "{POOLED} {by} {POOLED_WITH} {x}"),
+                several => write!(f, "{POOLED} {by} {POOLED_WITH} ({})", several.join(", ")),
+            },
             TermSpec::Spline { predictor, functions, knots: None } => {
                 write!(f, "spline({predictor}, {functions})")
             }
@@ -365,6 +370,42 @@ fn split_terms(text: &str) -> Result<Vec<TermSpec>, ModelError> {
     Ok(terms)
 }
 
+/// `pooled c`, `pooled c with x` or `pooled c with (x, w, …)` (`rest` is
+/// what follows `pooled`).
+fn parse_pooled(rest: &str, text: &str) -> Result<TermSpec, ModelError> {
+    let form = || {
+        ModelError::syntax(format!(
+            "`{text}`: write `{POOLED} <category>`, `{POOLED} <category> {POOLED_WITH} <predictor>` or, for several \
+             varying slopes, `{POOLED} <category> {POOLED_WITH} (<predictor>, <predictor>, …)`"
+        ))
+    };
+    let (by, after) = rest.split_once(char::is_whitespace).unwrap_or((rest, ""));
+    let by = identifier(by, "category after `pooled`")?;
+    let after = after.trim();
+    if after.is_empty() {
+        return Ok(TermSpec::Pooled { by, with: Vec::new() });
+    }
+    let listed = after
+        .strip_prefix(POOLED_WITH)
+        .filter(|l| l.starts_with(char::is_whitespace) || l.trim_start().starts_with('('))
+        .map(str::trim)
+        .ok_or_else(form)?;
+    let names: Vec<&str> = match listed.strip_prefix('(') {
+        Some(inner) => inner.strip_suffix(')').ok_or_else(form)?.split(',').map(str::trim).collect(),
+        None if !listed.contains(char::is_whitespace) => vec![listed],
+        None => return Err(form()),
+    };
+    let mut with: Vec<String> = Vec::with_capacity(names.len());
+    for name in names {
+        let name = identifier(name, "predictor after `with`")?;
+        if with.contains(&name) {
+            return Err(ModelError::syntax(format!("`{text}`: `{name}` is listed twice after `{POOLED_WITH}`")));
+        }
+        with.push(name);
+    }
+    Ok(TermSpec::Pooled { by, with })
+}
+
 fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     let text = text.trim();
     if text.is_empty() {
@@ -377,20 +418,7 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
         return parse_spline(inner, text);
     }
     if let Some(rest) = text.strip_prefix(POOLED).filter(|rest| rest.starts_with(char::is_whitespace)) {
-        let words: Vec<&str> = rest.split_whitespace().collect();
-        return match words[..] {
-            [by] => Ok(TermSpec::Pooled { by: identifier(by, "category after `pooled`")?, with: None }),
-            [by, w, x] if w == POOLED_WITH => Ok(TermSpec::Pooled {
-                by: identifier(by, "category after `pooled`")?,
-                with: Some(identifier(x, "predictor after `with`")?),
-            }),
-            [_, w, _, ..] if w == POOLED_WITH => Err(ModelError::syntax(format!(
-                "`{text}`: one varying slope per pooled group for now; write `{POOLED} <category> {POOLED_WITH} <predictor>`"
-            ))),
-            _ => Err(ModelError::syntax(format!(
-                "`{text}`: write `{POOLED} <category>` or `{POOLED} <category> {POOLED_WITH} <predictor>`"
-            ))),
-        };
+        return parse_pooled(rest.trim(), text);
     }
     if let Some((x, by)) = text.split_once(&*format!(" {PER} ")) {
         return Ok(TermSpec::Per {

@@ -22,6 +22,7 @@ use statrs::distribution::{ChiSquared, ContinuousCDF};
 use crate::draws::Draws;
 use crate::infer::fit::{fit_model, Method};
 use crate::limits::{bytes_for, check_memory};
+use crate::model::family::correlated::{cholesky_from_partial, correlations_of, lower_times, pair_count, pair_index, partial_correlation_beta};
 use crate::model::Model;
 use crate::table::Table;
 
@@ -180,9 +181,10 @@ fn failure_note(reps: usize, failed: &[(usize, String)]) -> String {
 
 /// One draw of every parameter from its prior, in parameter order. A
 /// pooled group draws its spread from the spread's prior, then each
-/// departure from `normal(0, spread)`; a varying slope draws its spread,
-/// the correlation from its LKJ prior, and each level's slope departure
-/// jointly with its intercept departure.
+/// departure from `normal(0, spread)`; a group with varying slopes draws
+/// each slope's spread, the correlation matrix from its LKJ prior (through
+/// independent partial correlations, `model::family::correlated`), and
+/// each level's departures jointly.
 pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryError> {
     let names = model.parameter_names();
     let sample = |name: &String, rng: &mut StdRng| -> Result<f64, QueryError> {
@@ -195,30 +197,42 @@ pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryErro
     let mut values: Vec<f64> = names[..first_group].iter().map(|n| sample(n, rng)).collect::<Result<_, QueryError>>()?;
     let mut at = first_group;
     for group in model.pooled_groups() {
-        let spread = sample(&names[at], rng)?;
-        values.push(spread);
-        let scores: Vec<f64> =
-            group.levels.iter().map(|_| rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng)).collect();
-        values.extend(scores.iter().map(|z| spread * z));
-        at += 1 + group.levels.len();
-        if group.slope.is_some() {
-            // The correlation of two effects under lkj(η) is 2B − 1 with
-            // B ~ beta(η, η) (Lewandowski, Kurowicka & Joe 2009, §3.2).
-            let eta = model.correlation_lkj();
-            let beta = rand_distr::Beta::new(eta, eta)
-                .map_err(|e| QueryError::request(format!("model {}: lkj({eta}) cannot be drawn ({e})", model.name())))?;
-            let rho = 2.0 * rand_distr::Distribution::sample(&beta, rng) - 1.0;
-            let slope_spread = sample(&names[at], rng)?;
-            values.push(slope_spread);
-            for z in &scores {
-                let z2: f64 = rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng);
-                values.push(slope_spread * rho.mul_add(*z, (1.0 - rho * rho).sqrt() * z2));
+        let (n, k) = (group.levels.len(), 1 + group.slopes.len());
+        let spreads: Vec<f64> = (0..k).map(|e| sample(&names[at + e * (1 + n)], rng)).collect::<Result<_, _>>()?;
+        let l = lkj_cholesky_draw(model, k, rng)?;
+        let mut departures = vec![vec![0.0; n]; k];
+        for level in 0..n {
+            let z: Vec<f64> = (0..k).map(|_| rand_distr::Distribution::sample(&rand_distr::StandardNormal, rng)).collect();
+            for (e, mixed) in lower_times(&l, &z, k).into_iter().enumerate() {
+                departures[e][level] = spreads[e] * mixed;
             }
-            values.push(rho);
-            at += 2 + group.levels.len();
         }
+        for (spread, run) in spreads.iter().zip(&departures) {
+            values.push(*spread);
+            values.extend_from_slice(run);
+        }
+        values.extend(correlations_of(&l, k));
+        at += k * (1 + n) + pair_count(k);
     }
     Ok(model.from_prior_values(values))
+}
+
+/// The Cholesky factor of a `k × k` correlation matrix drawn from the
+/// model's lkj(η): partial correlation `(i, j)` is `2B − 1` with
+/// `B ~ beta(βⱼ, βⱼ)`, `βⱼ = η + (k − 2 − j)/2` (Lewandowski, Kurowicka &
+/// Joe 2009, §2.4 and §3.2). The identity for `k = 1`.
+fn lkj_cholesky_draw(model: &Model, k: usize, rng: &mut StdRng) -> Result<Vec<f64>, QueryError> {
+    let eta = model.correlation_lkj();
+    let mut z = vec![0.0; pair_count(k)];
+    for i in 1..k {
+        for j in 0..i {
+            let b = partial_correlation_beta(eta, k, j);
+            let beta = rand_distr::Beta::new(b, b)
+                .map_err(|e| QueryError::request(format!("model {}: lkj({eta}) cannot be drawn ({e})", model.name())))?;
+            z[pair_index(i, j)] = 2.0 * rand_distr::Distribution::sample(&beta, rng) - 1.0;
+        }
+    }
+    Ok(cholesky_from_partial(&z, k))
 }
 
 /// `method` with its seed replaced.

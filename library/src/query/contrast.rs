@@ -404,13 +404,21 @@ fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed
             ),
             None => {
                 any_new = true;
-                let drawn = match &group.slope {
-                    None => format!("one departure drawn from normal(0, {name} spread)"),
-                    Some(slope) => format!(
+                let drawn = match group.slopes.as_slice() {
+                    [] => format!("one departure drawn from normal(0, {name} spread)"),
+                    [slope] => format!(
                         "one departure of the intercept and one of the {x} slope, drawn jointly with spreads {name} \
                          spread and {name} {x} spread and correlation {name} correlation[intercept, {x}],",
                         x = slope.column
                     ),
+                    slopes => {
+                        let names: Vec<&str> = slopes.iter().map(|s| s.column.as_str()).collect();
+                        format!(
+                            "one departure of the intercept and one of each slope ({}), drawn jointly with the \
+                             learned spreads ({name} spread, {name} <slope> spread) and {name} correlations,",
+                            names.join(", ")
+                        )
+                    }
                 };
                 format!(
                     "pooled {name}: for a new {name} drawn from the population: each draw adds {drawn} to both \

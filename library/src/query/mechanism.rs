@@ -21,8 +21,14 @@
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
 //! own departure, drawn once per simulation from `normal(0, spread)` (the
 //! spread a positive number), and a row takes the departure of its level —
-//! what a pooled group (`pooled c`) of a model assumes. A node's mechanism
-//! may name each category in at most one `departure(…)`.
+//! what a pooled group (`pooled c`) of a model assumes.
+//! `departure(c, spread, x)` is a departure of the slope of numeric parent
+//! `x` instead: each level of c gets its own slope departure, drawn once
+//! from `normal(0, spread)` independently of every other departure, and a
+//! row takes its level's slope departure times its own `x` — what a varying
+//! slope (`pooled c with x`) assumes, with every correlation 0. A node's
+//! mechanism may name each category in at most one `departure(c, …)` and
+//! each pair of category and slope in at most one `departure(c, …, x)`.
 //!
 //! Parsing knows nothing of the graph; [`super::simulate`] checks the names.
 
@@ -67,8 +73,32 @@ pub enum Expr {
     Log(Box<Expr>),
     Exp(Box<Expr>),
     /// `departure(group, spread)`: the departure of the row's level of
-    /// category `group`, the levels' departures drawn from `normal(0, spread)`.
-    Departure { group: String, spread: f64 },
+    /// category `group`, the levels' departures drawn from `normal(0, spread)`;
+    /// with a `slope` (`departure(group, spread, x)`), the level's slope
+    /// departure times the row's `x`.
+    Departure(DepartureTerm),
+}
+
+/// One `departure(…)` of a mechanism.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DepartureTerm {
+    /// The category whose levels depart.
+    pub group: String,
+    /// The stated spread of the departures.
+    pub spread: f64,
+    /// The numeric parent whose slope departs (`None`: the intercept's departure).
+    pub slope: Option<String>,
+}
+
+impl DepartureTerm {
+    /// `departure(block, 0.8)` or `departure(block, 0.1, girth)`, with the
+    /// spread written out by `spread`.
+    pub fn written(&self, spread: &str) -> String {
+        match &self.slope {
+            None => format!("{DEPARTURE}({}, {spread})", self.group),
+            Some(x) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
+        }
+    }
 }
 
 /// How an expression reads a node.
@@ -84,9 +114,10 @@ pub enum Use {
 
 impl Expr {
     /// Evaluate with `value(name)` for numeric nodes, `is_level(name,
-    /// level)` for indicators and `departure(group)` for the row's departure
-    /// in a group.
-    pub fn eval(&self, value: &dyn Fn(&str) -> f64, is_level: &dyn Fn(&str, &str) -> bool, departure: &dyn Fn(&str) -> f64) -> f64 {
+    /// level)` for indicators and `departure(term)` for the row's departure
+    /// in a group (its level's slope departure for a slope's term, which the
+    /// evaluation multiplies by the row's value of the slope's parent).
+    pub fn eval(&self, value: &dyn Fn(&str) -> f64, is_level: &dyn Fn(&str, &str) -> bool, departure: &dyn Fn(&DepartureTerm) -> f64) -> f64 {
         let e = |x: &Expr| x.eval(value, is_level, departure);
         match self {
             Expr::Number(x) => *x,
@@ -99,7 +130,7 @@ impl Expr {
             Expr::Divide(a, b) => e(a) / e(b),
             Expr::Log(a) => e(a).ln(),
             Expr::Exp(a) => e(a).exp(),
-            Expr::Departure { group, .. } => departure(group),
+            Expr::Departure(term) => departure(term) * term.slope.as_deref().map_or(1.0, value),
         }
     }
 
@@ -110,10 +141,10 @@ impl Expr {
         out
     }
 
-    /// Every `departure(group, spread)` of the expression, in reading order.
-    pub fn departures(&self) -> Vec<(String, f64)> {
+    /// Every `departure(…)` of the expression, in reading order.
+    pub fn departures(&self) -> Vec<DepartureTerm> {
         match self {
-            Expr::Departure { group, spread } => vec![(group.clone(), *spread)],
+            Expr::Departure(term) => vec![term.clone()],
             Expr::Number(_) | Expr::Name(_) | Expr::Indicator { .. } => Vec::new(),
             Expr::Negate(a) | Expr::Log(a) | Expr::Exp(a) => a.departures(),
             Expr::Add(a, b) | Expr::Subtract(a, b) | Expr::Multiply(a, b) | Expr::Divide(a, b) => {
@@ -129,7 +160,12 @@ impl Expr {
             Expr::Number(_) => {}
             Expr::Name(n) => out.push((n.clone(), Use::Number)),
             Expr::Indicator { name, level } => out.push((name.clone(), Use::Level(level.clone()))),
-            Expr::Departure { group, .. } => out.push((group.clone(), Use::Group)),
+            Expr::Departure(term) => {
+                out.push((term.group.clone(), Use::Group));
+                if let Some(x) = &term.slope {
+                    out.push((x.clone(), Use::Number));
+                }
+            }
             Expr::Negate(a) | Expr::Log(a) | Expr::Exp(a) => a.collect_uses(out),
             Expr::Add(a, b) | Expr::Subtract(a, b) | Expr::Multiply(a, b) | Expr::Divide(a, b) => {
                 a.collect_uses(out);
@@ -157,8 +193,8 @@ pub enum Mechanism {
 }
 
 impl Mechanism {
-    /// Every `departure(group, spread)` the mechanism draws, in reading order.
-    pub fn departures(&self) -> Vec<(String, f64)> {
+    /// Every `departure(…)` the mechanism draws, in reading order.
+    pub fn departures(&self) -> Vec<DepartureTerm> {
         match self {
             Mechanism::Category { .. } => Vec::new(),
             Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
@@ -170,10 +206,10 @@ impl Mechanism {
         }
     }
 
-    /// The `departure(group, spread)`s written in the linear predictor on the
-    /// link scale (the mean of a normal, `logit =` of a bernoulli, `log =` of
-    /// a poisson): those a pooled group of a model of the node stands for.
-    pub fn link_departures(&self) -> Vec<(String, f64)> {
+    /// The `departure(…)`s written in the linear predictor on the link
+    /// scale (the mean of a normal, `logit =` of a bernoulli, `log =` of a
+    /// poisson): those a pooled group of a model of the node stands for.
+    pub fn link_departures(&self) -> Vec<DepartureTerm> {
         match self {
             Mechanism::Normal { mean, .. } => mean.departures(),
             Mechanism::Bernoulli { p, logit: true } => p.departures(),
@@ -274,11 +310,18 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ))
         }
     };
-    let groups = mechanism.departures();
-    if let Some((group, _)) = groups.iter().enumerate().find(|(i, (g, _))| groups[..*i].iter().any(|(h, _)| h == g)).map(|(_, d)| d) {
-        return Err(format!(
-            "the mechanism of {name} names departure({group}, …) twice; each level of {group} has one departure, so write it once"
-        ));
+    let terms = mechanism.departures();
+    let same = |a: &DepartureTerm, b: &DepartureTerm| a.group == b.group && a.slope == b.slope;
+    if let Some(term) = terms.iter().enumerate().find(|(i, t)| terms[..*i].iter().any(|u| same(u, t))).map(|(_, t)| t) {
+        let group = &term.group;
+        return Err(match &term.slope {
+            None => format!(
+                "the mechanism of {name} names departure({group}, …) twice; each level of {group} has one departure, so write it once"
+            ),
+            Some(x) => format!(
+                "the mechanism of {name} names departure({group}, …, {x}) twice; each level of {group} has one departure of the {x} slope, so write it once"
+            ),
+        });
     }
     Ok(Some((name.to_string(), mechanism)))
 }
@@ -516,29 +559,35 @@ impl Parser<'_> {
         text.parse::<f64>().map(Expr::Number).map_err(|_| format!("`{text}` is not a number"))
     }
 
-    /// The inside of `departure(group, spread)` after its `(`, up to and
-    /// including the `)`.
+    /// The inside of `departure(group, spread)` or `departure(group,
+    /// spread, slope)` after its `(`, up to and including the `)`.
     fn departure(&mut self) -> Result<Expr, String> {
-        let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8)";
+        let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8), \
+                    or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth)";
         let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
         let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
         let inside = &self.text[start..start + close];
-        let (group, spread) = inside.split_once(',').ok_or_else(|| format!("`departure({inside})` needs the form {form}"))?;
-        let group = group.trim();
-        if !is_name(group) {
-            return Err(format!("`{group}` in `departure({inside})` is not a node name; write {form}"));
+        let parts: Vec<&str> = inside.split(',').map(str::trim).collect();
+        let (group, spread, slope) = match parts[..] {
+            [group, spread] => (group, spread, None),
+            [group, spread, slope] => (group, spread, Some(slope)),
+            _ => return Err(format!("`departure({inside})` needs the form {form}")),
+        };
+        for name in std::iter::once(group).chain(slope) {
+            if !is_name(name) {
+                return Err(format!("`{name}` in `departure({inside})` is not a node name; write {form}"));
+            }
         }
         let spread: f64 = spread
-            .trim()
             .parse()
             .ok()
             .filter(|s: &f64| s.is_finite() && *s > 0.0)
-            .ok_or_else(|| format!("the spread `{}` in `departure({inside})` must be a positive number; write {form}", spread.trim()))?;
+            .ok_or_else(|| format!("the spread `{spread}` in `departure({inside})` must be a positive number; write {form}"))?;
         let end = start + close + 1;
         while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
             self.at += 1;
         }
-        Ok(Expr::Departure { group: group.to_string(), spread })
+        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string) }))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

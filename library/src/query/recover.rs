@@ -22,11 +22,12 @@ use serde::Serialize;
 
 use crate::infer::fit::{fit_model, Fit, Method};
 use crate::infer::nuts::Progress;
+use crate::model::terms::GroupTerm;
 use crate::model::{Family, Model, ModelSpec};
 
 use super::error::QueryError;
-use super::mechanism::Mechanism;
-use super::simulate::Simulation;
+use super::mechanism::{DepartureTerm, Mechanism};
+use super::simulate::{GroupDraw, Simulation};
 use super::support::{interval_words, ContrastSummary};
 
 /// Largest residual, relative to the spread of the truth, that still counts
@@ -141,7 +142,8 @@ fn true_parameters(
     let (mut eta, spread) = simulation.link_scale_truth(outcome, generated)?;
     let on_link = simulation.mechanism(outcome).map(Mechanism::link_departures).unwrap_or_default();
     let all_draws = simulation.group_draws(outcome, generated);
-    let draws: Vec<_> = all_draws.iter().filter(|d| on_link.iter().any(|(g, _)| *g == d.group)).collect();
+    let draws: Vec<&GroupDraw> =
+        all_draws.iter().filter(|d| on_link.iter().any(|t| t.group == d.group && t.slope == d.slope)).collect();
     if draws.len() < all_draws.len() {
         notes.push(format!(
             "the mechanism of {outcome} draws a departure outside its linear predictor on the link scale (in an sd, \
@@ -149,47 +151,134 @@ fn true_parameters(
         ));
     }
     let mut group_truths = Vec::new();
+    let mut used = vec![false; draws.len()];
     for group in model.pooled_groups() {
-        let Some(draw) = draws.iter().find(|d| d.group == group.column) else {
+        let find = |slope: Option<&str>| draws.iter().position(|d| d.group == group.column && d.slope.as_deref() == slope);
+        let intercept = find(None);
+        let slopes: Vec<Option<usize>> = group.slopes.iter().map(|s| find(Some(&s.column))).collect();
+        if intercept.is_none() && slopes.iter().all(Option::is_none) {
             notes.push(format!(
                 "the mechanism of {outcome} draws no departure({}, …), so the levels of {} share one mean there and \
                  pooled {} has no true spread or departures to compare (its spread should come out near 0)",
                 group.column, group.column, group.column
             ));
-            group_truths.extend(std::iter::repeat_n(None, 1 + group.levels.len()));
+            group_truths.extend(std::iter::repeat_n(None, group.labels().len()));
             continue;
-        };
-        for (e, d) in eta.iter_mut().zip(simulation.departure_in_rows(draw, generated)) {
-            *e -= d;
         }
-        group_truths.push(Some(draw.spread));
-        for level in &group.levels {
-            group_truths.push(draw.levels.iter().position(|l| l == level).map(|i| draw.departures[i]));
+        for &k in intercept.iter().chain(slopes.iter().flatten()) {
+            used[k] = true;
+            for (e, d) in eta.iter_mut().zip(simulation.departure_in_rows(draws[k], generated)) {
+                *e -= d;
+            }
         }
-        let k = draw.departures.len() as f64;
-        let mean = draw.departures.iter().sum::<f64>() / k.max(1.0);
-        let sd = (draw.departures.iter().map(|d| (d - mean).powi(2)).sum::<f64>() / (k - 1.0).max(1.0)).sqrt();
-        notes.push(format!(
-            "{} spread: the true value is the stated {}; the {} departures the simulation drew have a sample sd of {} \
-             (their own mean {}, which the intercept takes up)",
-            group.column,
-            super::support::short(draw.spread),
-            draw.departures.len(),
-            super::support::short(sd),
-            super::support::short(mean)
-        ));
+        let shifts: Vec<f64> = group.slopes.iter().map(|s| centring_of(model, simulation, generated, &s.column, s.design_column)).collect();
+        group_truths.extend(group_truth(group, intercept.map(|k| draws[k]), &slopes.iter().map(|k| k.map(|k| draws[k])).collect::<Vec<_>>(), &shifts, notes));
     }
-    for draw in draws.iter().filter(|d| !model.pooled_groups().iter().any(|g| g.column == d.group)) {
+    for (draw, _) in draws.iter().zip(&used).filter(|(_, u)| !**u) {
         notes.push(format!(
-            "the mechanism of {outcome} draws departure({}, {}), which model {} does not pool",
-            draw.group,
-            super::support::short(draw.spread),
+            "the mechanism of {outcome} draws {}, which model {} does not pool",
+            DepartureTerm { group: draw.group.clone(), spread: draw.spread, slope: draw.slope.clone() }.written(&super::support::short(draw.spread)),
             model.name()
         ));
     }
     let mut truth = fixed_truths(model, eta, spread, notes);
     truth.extend(group_truths);
     Some(truth)
+}
+
+/// The truth of pooled group `group`'s parameters (in its label order)
+/// from the draws of its intercept's and slopes' departures (`None` where
+/// the mechanism drew none). With centring, a slope's design column is the
+/// predictor less `c` (`shifts`), so the model's intercept departures are
+/// `a₀ⱼ + Σₓ cₓ·aₓⱼ`, of spread `√(τ₀² + Σ cₓ²τₓ²)` and correlation
+/// `cₓτₓ / that` with slope `x`; the slopes' departures were drawn
+/// independently, so their correlations are 0.
+fn group_truth(
+    group: &GroupTerm,
+    intercept: Option<&GroupDraw>,
+    slopes: &[Option<&GroupDraw>],
+    shifts: &[f64],
+    notes: &mut Vec<String>,
+) -> Vec<Option<f64>> {
+    let at_level = |draw: &GroupDraw, level: &str| draw.levels.iter().position(|l| l == level).map(|i| draw.departures[i]);
+    let shifted = slopes.iter().zip(shifts).any(|(d, c)| d.is_some() && *c != 0.0);
+    let spread0 = intercept.map(|d| {
+        let extra: f64 = slopes.iter().zip(shifts).map(|(d, c)| d.map_or(0.0, |d| (c * d.spread).powi(2))).sum();
+        (d.spread * d.spread + extra).sqrt()
+    });
+    let mut truth = vec![spread0];
+    for level in &group.levels {
+        truth.push(intercept.and_then(|d| {
+            let mut value = at_level(d, level)?;
+            for (slope, c) in slopes.iter().zip(shifts) {
+                if let Some(s) = slope {
+                    value += c * at_level(s, level)?;
+                }
+            }
+            Some(value)
+        }));
+    }
+    if let Some(d) = intercept {
+        notes.push(departures_note(&group.column, d, shifted));
+    }
+    for (slope, draw) in group.slopes.iter().zip(slopes) {
+        truth.push(draw.map(|d| d.spread));
+        truth.extend(group.levels.iter().map(|level| draw.and_then(|d| at_level(d, level))));
+        if let Some(d) = draw {
+            notes.push(departures_note(&format!("{} {}", group.column, slope.column), d, false));
+        }
+    }
+    for i in 1..=slopes.len() {
+        for j in 0..i {
+            truth.push(match (j, spread0) {
+                (0, Some(s0)) => slopes[i - 1].map(|d| shifts[i - 1] * d.spread / s0),
+                (0, None) => None,
+                _ => slopes[i - 1].zip(slopes[j - 1]).map(|_| 0.0),
+            });
+        }
+    }
+    if !slopes.is_empty() && intercept.is_some() && slopes.iter().all(Option::is_some) {
+        notes.push(format!(
+            "{} correlations: the simulation draws every departure independently, so the true correlations are 0{}",
+            group.column,
+            if shifted { " — except the intercept's with each slope, which centring makes c·(slope spread)/(intercept spread) (c the centring value)" } else { "" }
+        ));
+    }
+    truth
+}
+
+/// A note on the truth of a group's spread: the stated spread (or, when
+/// `shifted`, its mixture with the slopes' through centring) and the
+/// departures' sample sd.
+fn departures_note(label: &str, draw: &GroupDraw, shifted: bool) -> String {
+    let k = draw.departures.len() as f64;
+    let mean = draw.departures.iter().sum::<f64>() / k.max(1.0);
+    let sd = (draw.departures.iter().map(|d| (d - mean).powi(2)).sum::<f64>() / (k - 1.0).max(1.0)).sqrt();
+    let stated = if shifted {
+        format!(
+            "the stated {} combined with the slopes' through the centring of their columns (the model's intercept \
+             departures take in each level's slope departures times the centring value)",
+            super::support::short(draw.spread)
+        )
+    } else {
+        format!("the stated {}", super::support::short(draw.spread))
+    };
+    format!(
+        "{label} spread: the true value is {stated}; the {} departures the simulation drew have a sample sd of {} \
+         (their own mean {}, which the intercept takes up)",
+        draw.departures.len(),
+        super::support::short(sd),
+        super::support::short(mean)
+    )
+}
+
+/// The value `c` that the model's design column `column` takes off
+/// predictor `x` (its centring; 0 without), from the generated rows.
+fn centring_of(model: &Model, simulation: &Simulation, generated: &super::simulate::Generated, x: &str, column: usize) -> f64 {
+    let design = model.design_matrix();
+    let Some(values) = simulation.values_of(x, generated) else { return 0.0 };
+    let n = values.len().min(design.nrows());
+    (0..n).map(|i| values[i] - design[(i, column)]).sum::<f64>() / n.max(1) as f64
 }
 
 /// The true coefficients (and spread) from the link scale of the outcome's

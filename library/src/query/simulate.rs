@@ -27,7 +27,7 @@ use crate::model::family::logistic;
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::QueryError;
-use super::mechanism::{parse_mechanism_line, Mechanism, Use};
+use super::mechanism::{parse_mechanism_line, DepartureTerm, Mechanism, Use};
 use super::support::{short, stream_seed};
 
 /// Rows generated between two reads of the cancel flag.
@@ -68,6 +68,15 @@ pub(crate) enum NodeValues {
 }
 
 impl NodeValues {
+    fn len(&self) -> usize {
+        match self {
+            NodeValues::Real(v) => v.len(),
+            NodeValues::Count(v) => v.len(),
+            NodeValues::Binary(v) => v.len(),
+            NodeValues::Category(v) => v.len(),
+        }
+    }
+
     fn real_at(&self, i: usize) -> f64 {
         match self {
             NodeValues::Real(v) => v[i],
@@ -87,6 +96,9 @@ pub(crate) struct GroupDraw {
     pub(crate) levels: Vec<String>,
     /// The stated spread.
     pub(crate) spread: f64,
+    /// The numeric parent whose slope departs (`departure(c, spread, x)`),
+    /// `None` for the intercept's departure.
+    pub(crate) slope: Option<String>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
 }
@@ -274,18 +286,38 @@ impl Simulation {
         })
     }
 
+    /// The generated values of numeric node `node`.
+    pub(crate) fn values_of(&self, node: &str, generated: &Generated) -> Option<Vec<f64>> {
+        let k = self.nodes.iter().position(|m| m.node == node)?;
+        let n = generated.values[k].len();
+        Some((0..n).map(|i| generated.values[k].real_at(i)).collect())
+    }
+
     /// The departures node `node`'s mechanism drew, when it drew any.
     pub(crate) fn group_draws<'g>(&self, node: &str, generated: &'g Generated) -> &'g [GroupDraw] {
         self.nodes.iter().position(|m| m.node == node).and_then(|k| generated.departures.get(k)).map_or(&[], Vec::as_slice)
     }
 
-    /// Each generated row's departure in `draw` (that of its level of the category).
+    /// Each generated row's departure in `draw` (that of its level of the
+    /// category; for a slope's departure, times the row's value of the slope's parent).
     pub(crate) fn departure_in_rows(&self, draw: &GroupDraw, generated: &Generated) -> Vec<f64> {
         let codes = self.nodes.iter().position(|m| m.node == draw.group).and_then(|k| match &generated.values[k] {
             NodeValues::Category(codes) => Some(codes),
             _ => None,
         });
-        codes.map_or_else(Vec::new, |codes| codes.iter().map(|&c| draw.departures.get(c as usize).copied().unwrap_or(f64::NAN)).collect())
+        let slope = draw.slope.as_ref().map(|x| self.nodes.iter().position(|m| m.node == *x));
+        let Some(codes) = codes else { return Vec::new() };
+        codes
+            .iter()
+            .enumerate()
+            .map(|(i, &c)| {
+                let times = match slope {
+                    None => 1.0,
+                    Some(k) => k.map_or(f64::NAN, |k| generated.values[k].real_at(i)),
+                };
+                draw.departures.get(c as usize).copied().unwrap_or(f64::NAN) * times
+            })
+            .collect()
     }
 
     fn eval_at(&self, expr: &super::mechanism::Expr, generated: &Generated, own: &[GroupDraw], i: usize) -> f64 {
@@ -297,12 +329,16 @@ impl Simulation {
                 _ => false,
             })
         };
-        let departure = |group: &str| {
-            let level = position(group).and_then(|k| match &generated.values[k] {
+        let departure = |term: &DepartureTerm| {
+            let level = position(&term.group).and_then(|k| match &generated.values[k] {
                 NodeValues::Category(codes) => Some(codes[i] as usize),
                 _ => None,
             });
-            own.iter().find(|d| d.group == group).zip(level).and_then(|(d, l)| d.departures.get(l).copied()).unwrap_or(f64::NAN)
+            own.iter()
+                .find(|d| d.group == term.group && d.slope == term.slope)
+                .zip(level)
+                .and_then(|(d, l)| d.departures.get(l).copied())
+                .unwrap_or(f64::NAN)
         };
         expr.eval(&value, &is_level, &departure)
     }
@@ -324,7 +360,7 @@ impl Simulation {
     }
 
     /// The departures of node `k`'s mechanism: for its `g`-th
-    /// `departure(c, spread)`, one `normal(0, spread)` draw per level of c,
+    /// `departure(c, spread[, x])`, one `normal(0, spread)` draw per level of c,
     /// in declared order, from a stream of their own.
     fn draw_departures(&self, k: usize, seed: u64) -> Vec<GroupDraw> {
         let m = &self.nodes[k];
@@ -332,14 +368,14 @@ impl Simulation {
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, (group, spread))| {
+            .map(|(g, DepartureTerm { group, spread, slope })| {
                 let levels = match self.mechanism(&group) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
                 };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, departures }
+                GroupDraw { group, levels, spread, slope, departures }
             })
             .collect()
     }

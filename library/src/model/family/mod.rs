@@ -20,6 +20,7 @@
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
+pub mod correlated;
 pub mod pooling;
 pub mod shaped;
 pub mod softmax;

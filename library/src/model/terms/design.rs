@@ -18,7 +18,7 @@ use crate::table::Table;
 use super::super::columns::{category_levels, find_column, real_values};
 use super::super::error::ModelError;
 use super::super::prior::PriorGroup;
-use super::groups::{GroupLayout, GroupTerm};
+use super::groups::GroupTerm;
 use super::recipe::TermRecipe;
 
 /// The role word of a slope's label.
@@ -51,18 +51,26 @@ impl GroupTerm {
     /// Labels of the group's parameters: its spread, then one departure per
     /// level (`block spread`, `block departure[B1]`, …).
     ///
-    /// A group with a varying slope of `girth` goes on with the slope's
-    /// spread, its departures and the correlation: `block girth spread`,
-    /// `block girth departure[B1]`, …, `block correlation[intercept, girth]`.
+    /// A group with varying slopes goes on with each slope's spread and
+    /// departures (`block girth spread`, `block girth departure[B1]`, …),
+    /// then the correlations of its effects, row by row of the lower
+    /// triangle: `block correlation[intercept, girth]`, and with a second
+    /// slope `block correlation[intercept, age]`,
+    /// `block correlation[girth, age]`.
     pub fn labels(&self) -> Vec<String> {
         let mut labels: Vec<String> = std::iter::once(group_spread_label(&self.column))
             .chain(self.levels.iter().map(|l| format!("{} {DEPARTURE}[{l}]", self.column)))
             .collect();
-        if let Some(slope) = &self.slope {
+        for slope in &self.slopes {
             let prefix = format!("{} {}", self.column, slope.column);
             labels.push(group_spread_label(&prefix));
             labels.extend(self.levels.iter().map(|l| format!("{prefix} {DEPARTURE}[{l}]")));
-            labels.push(format!("{} {CORRELATION}[intercept, {}]", self.column, slope.column));
+        }
+        let effects: Vec<&str> = std::iter::once("intercept").chain(self.slopes.iter().map(|s| s.column.as_str())).collect();
+        for i in 1..effects.len() {
+            for j in 0..i {
+                labels.push(correlation_label(&self.column, effects[j], effects[i]));
+            }
         }
         labels
     }
@@ -71,46 +79,58 @@ impl GroupTerm {
     /// then the departures (centred), the level means when the group is
     /// sampled `around_intercept` (`intercept + block departure[B1]`), or
     /// the departures' standard scores (`block departure[B1] / block spread`,
-    /// non-centred).
+    /// non-centred). A slope's run is alike (`girth slope + block girth
+    /// departure[B1]` around the population slope; `block girth
+    /// departure[B1]: girth score` for the standard score that the Cholesky
+    /// factor mixes into it), and each correlation's coordinate is the
+    /// `atanh` of the partial correlation that stands for it
+    /// (`model::family::correlated`): the correlation itself for a pair
+    /// with the intercept, `atanh(block correlation[girth, age] given
+    /// intercept)` for a later pair.
     pub fn unconstrained_labels(&self, around_intercept: bool) -> Vec<String> {
-        let spread = group_spread_label(&self.column);
         let mut labels = self.labels();
-        if let Some(slope) = &self.slope {
-            // Standard scores of the Cholesky form, or the departures
-            // (around the population's intercept and slope) when centred.
-            let n = self.levels.len();
-            let slope_spread = labels[1 + n].clone();
-            let correlation = labels[2 + 2 * n].clone();
-            let population_slope = slope_label(&slope.column);
-            for label in &mut labels[1..=n] {
-                match self.layout {
-                    GroupLayout::NonCentred => *label = format!("{label} / {spread}"),
-                    GroupLayout::Centred if around_intercept => *label = format!("intercept + {label}"),
-                    GroupLayout::Centred => {}
-                }
+        let n = self.levels.len();
+        let effects: Vec<Option<&str>> = std::iter::once(None).chain(self.slopes.iter().map(|s| Some(s.column.as_str()))).collect();
+        for (e, effect) in effects.iter().enumerate() {
+            let at = e * (1 + n);
+            let spread = labels[at].clone();
+            for label in &mut labels[at + 1..at + 1 + n] {
+                let centred = e < self.layout.centred_effects(effects.len());
+                *label = match (centred, effect) {
+                    (false, None) => format!("{label} / {spread}"),
+                    (false, Some(x)) => format!("{label}: {x} score"),
+                    (true, None) if around_intercept => format!("intercept + {label}"),
+                    (true, Some(x)) if around_intercept => format!("{} + {label}", slope_label(x)),
+                    (true, _) => label.clone(),
+                };
             }
-            for label in &mut labels[2 + n..2 + 2 * n] {
-                match self.layout {
-                    GroupLayout::NonCentred => *label = format!("{label}: {} score", slope.column),
-                    GroupLayout::Centred if around_intercept => *label = format!("{population_slope} + {label}"),
-                    GroupLayout::Centred => {}
-                }
-            }
-            labels[0] = format!("log({spread})");
-            labels[1 + n] = format!("log({slope_spread})");
-            labels[2 + 2 * n] = format!("atanh({correlation})");
-            return labels;
+            labels[at] = format!("log({spread})");
         }
-        labels[0] = format!("log({spread})");
-        for label in &mut labels[1..] {
-            match self.layout {
-                GroupLayout::NonCentred => *label = format!("{label} / {spread}"),
-                GroupLayout::Centred if around_intercept => *label = format!("intercept + {label}"),
-                GroupLayout::Centred => {}
+        let mut at = effects.len() * (1 + n);
+        for i in 1..effects.len() {
+            for j in 0..i {
+                let label = &mut labels[at];
+                *label = match j {
+                    0 => format!("atanh({label})"),
+                    _ => format!("atanh({label} given {})", names_of(&effects[..j]).join(", ")),
+                };
+                at += 1;
             }
         }
         labels
     }
+}
+
+/// The names of a group's effects (`intercept` for `None`).
+fn names_of(effects: &[Option<&str>]) -> Vec<String> {
+    effects.iter().map(|e| e.unwrap_or("intercept").to_string()).collect()
+}
+
+/// The label of the correlation of effects `first` and `second` (each
+/// `intercept` or a slope's column) of pooled group `column`:
+/// `block correlation[intercept, girth]`.
+pub fn correlation_label(column: &str, first: &str, second: &str) -> String {
+    format!("{column} {CORRELATION}[{first}, {second}]")
 }
 
 /// The label of the slope of real column `column`: `girth slope`.

@@ -38,17 +38,45 @@
 //! The group is centred when the median level's ratio is at least
 //! [`CENTRED_AT`], non-centred otherwise — so a group whose levels hardly
 //! differ (a spread near 0, the funnel's neck) is non-centred whatever its
-//! size. The predictors are not taken out of the level means, so the rule
-//! is a guide; a `parameterise` line overrides it, and the model's notes
-//! say which form was taken and why.
+//! size.
+//!
+//! **Varying slopes** have a ratio each, from the same reasoning: what a
+//! level's rows say about its slope grows with their number and with the
+//! spread of the slope's column among them, `I·Sₓₓ,ⱼ` (`Sₓₓ,ⱼ` the sum of
+//! squared deviations of the column within level `j`), and a rough spread
+//! of the slope departures comes from the levels' own slopes `bⱼ` (least
+//! squares of the outcome per trial on the column within the level,
+//! carried to the link scale by the link's derivative at the outcome's
+//! mean): `τ̂ₓ² = var(bⱼ) − mean(1/(I·Sₓₓ,ⱼ))`. Level `j`'s ratio is
+//! `I·Sₓₓ,ⱼ·τ̂ₓ²`. When the intercept is centred, the slopes (as written)
+//! are centred too up to the first whose median ratio is below
+//! [`SLOPE_CENTRED_AT`], and that one and the rest non-centred
+//! ([`GroupLayout::CentredFirst`]; the density's form in
+//! `model::family::correlated`): a slope whose levels' rows tell less
+//! about it than the population does is the funnel's neck for that slope
+//! even when the intercepts are well pinned. The bar is lower than the
+//! intercept's because `I` here comes from the outcome's whole spread,
+//! which the other predictors and the intercepts' departures inflate, so
+//! a slope's ratio runs low; a slope between the two bars stays centred
+//! (a slope of 60 sites with a ratio near 2 sampled non-centred mixed far
+//! worse than centred in the MixedLM reference check).
+//!
+//! The predictors are not taken out of the level means or slopes, so the
+//! rule is a guide; a `parameterise` line overrides it, and the model's
+//! notes say which form was taken and why.
 
 use crate::table::Table;
 
 use super::super::columns::{category_levels, find_column};
 use super::super::error::ModelError;
+use super::super::prior::short_number;
 
 /// The median information ratio at and above which a group is centred.
 pub const CENTRED_AT: f64 = 5.0;
+
+/// The median information ratio below which a varying slope (and every
+/// slope after it) is non-centred in a group whose intercept is centred.
+pub const SLOPE_CENTRED_AT: f64 = 1.0;
 
 /// How a pooled group's departures are sampled.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -57,14 +85,29 @@ pub enum GroupLayout {
     Centred,
     /// Standard scores `z` with `departure = spread · z`.
     NonCentred,
+    /// A group with varying slopes whose first `n` effects (the intercept,
+    /// then slopes in the order written) are centred and the rest
+    /// non-centred; chosen from the data only.
+    CentredFirst(usize),
 }
 
 impl GroupLayout {
-    /// The word of a `parameterise` line.
+    /// The word of a `parameterise` line (`partly centred` for a layout
+    /// that no line can ask for).
     pub fn word(self) -> &'static str {
         match self {
             GroupLayout::Centred => "centred",
             GroupLayout::NonCentred => "noncentred",
+            GroupLayout::CentredFirst(_) => "partly centred",
+        }
+    }
+
+    /// How many of a group's `effects` (intercept and slopes) are centred.
+    pub fn centred_effects(self, effects: usize) -> usize {
+        match self {
+            GroupLayout::Centred => effects,
+            GroupLayout::NonCentred => 0,
+            GroupLayout::CentredFirst(n) => n.min(effects),
         }
     }
 
@@ -83,8 +126,20 @@ pub enum LayoutChoice {
     /// Written in the cell.
     Declared,
     /// Waypath's rule, with the median information ratio it saw and the
-    /// rough spread of the departures behind it.
-    FromData { median_ratio: f64, rough_spread: f64 },
+    /// rough spread of the departures behind it, for the intercept and
+    /// then each varying slope.
+    FromData { median_ratio: f64, rough_spread: f64, slopes: Vec<(f64, f64)> },
+}
+
+/// What the fitted rows say about a varying slope, level by level: the
+/// spread of the slope's design column within the level (`Sₓₓ`, the sum of
+/// squared deviations from the level's mean) and the level's own rough
+/// slope on the link scale (`None` for a level with fewer than 2 rows or
+/// no spread in the column).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SlopeEvidence {
+    pub spread_sums: Vec<f64>,
+    pub slopes: Vec<Option<f64>>,
 }
 
 /// One pooled group, planned on the fitted data.
@@ -98,12 +153,13 @@ pub struct GroupTerm {
     pub rows_per_level: Vec<usize>,
     pub layout: GroupLayout,
     pub choice: LayoutChoice,
-    /// The numeric predictor whose slope varies with the group
-    /// (`pooled block with girth`), if any.
-    pub slope: Option<VaryingSlope>,
+    /// The numeric predictors whose slopes vary with the group
+    /// (`pooled block with girth`, `pooled block with (girth, age)`), in
+    /// the order written; empty for varying intercepts only.
+    pub slopes: Vec<VaryingSlope>,
 }
 
-/// The predictor of a group's varying slope: its column and the design
+/// The predictor of one of a group's varying slopes: its column and the design
 /// column (a plain slope of the same model) whose values multiply each
 /// level's slope departure, so the departure is on the slope's own scale
 /// (the model's centring included).
@@ -136,32 +192,48 @@ impl GroupTerm {
             levels: levels.to_vec(),
             rows_per_level,
             layout: GroupLayout::NonCentred,
-            choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0 },
-            slope: None,
+            choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0, slopes: Vec::new() },
+            slopes: Vec::new(),
         })
     }
 
     /// Set the layout: the declared one, else the rule of the module docs
     /// with `row_information` (`I`, one row's information about the linear
-    /// predictor at the outcome's mean) and `level_means` (each level's raw
-    /// mean outcome on the link scale, `None` for a level without rows).
-    pub fn settle_layout(&mut self, declared: Option<GroupLayout>, row_information: f64, level_means: &[Option<f64>]) {
+    /// predictor at the outcome's mean), `level_means` (each level's raw
+    /// mean outcome on the link scale, `None` for a level without rows) and
+    /// `slope_evidence` (one per varying slope, in order).
+    pub fn settle_layout(
+        &mut self,
+        declared: Option<GroupLayout>,
+        row_information: f64,
+        level_means: &[Option<f64>],
+        slope_evidence: &[SlopeEvidence],
+    ) {
         if let Some(layout) = declared {
             self.layout = layout;
             self.choice = LayoutChoice::Declared;
             return;
         }
         let rough_spread = rough_departure_spread(&self.rows_per_level, row_information, level_means);
-        let mut ratios: Vec<f64> = self
+        let ratios: Vec<f64> = self
             .rows_per_level
             .iter()
             .filter(|&&n| n > 0)
             .map(|&n| n as f64 * row_information * rough_spread * rough_spread)
             .collect();
-        ratios.sort_by(f64::total_cmp);
-        let median_ratio = median_of_sorted(&ratios);
-        self.layout = if median_ratio >= CENTRED_AT { GroupLayout::Centred } else { GroupLayout::NonCentred };
-        self.choice = LayoutChoice::FromData { median_ratio, rough_spread };
+        let median_ratio = median(ratios);
+        let slopes: Vec<(f64, f64)> = slope_evidence.iter().map(|e| slope_ratio(e, row_information)).collect();
+        let centred = if median_ratio >= CENTRED_AT {
+            1 + slopes.iter().take_while(|(ratio, _)| *ratio >= SLOPE_CENTRED_AT).count()
+        } else {
+            0
+        };
+        self.layout = match centred {
+            0 => GroupLayout::NonCentred,
+            n if n == 1 + slopes.len() => GroupLayout::Centred,
+            n => GroupLayout::CentredFirst(n),
+        };
+        self.choice = LayoutChoice::FromData { median_ratio, rough_spread, slopes };
     }
 
     /// The level index of every row of `table` (`None` for a level the
@@ -187,23 +259,57 @@ impl GroupTerm {
         let why = match &self.choice {
             LayoutChoice::Declared => "as the parameterise line says".to_string(),
 
-            LayoutChoice::FromData { median_ratio, rough_spread } => format!(
-                "chosen from the data: the level means suggest a spread of about {} on the link scale, and with \
-                 it the median level's rows tell {} times what the population does about its departure; \
-                 centred from {CENTRED_AT}; a `parameterise {} centred|noncentred` line overrides this",
-                super::super::prior::short_number(*rough_spread),
-                super::super::prior::short_number(*median_ratio),
-                self.column
-            ),
+            LayoutChoice::FromData { median_ratio, rough_spread, slopes } => {
+                let mut why = format!(
+                    "chosen from the data: the level means suggest a spread of about {} on the link scale, and with \
+                     it the median level's rows tell {} times what the population does about its departure",
+                    short_number(*rough_spread),
+                    short_number(*median_ratio)
+                );
+                for (slope, (ratio, spread)) in self.slopes.iter().zip(slopes) {
+                    why.push_str(&format!(
+                        "; the levels' own {x} slopes suggest a spread of about {} for its departures, and the median \
+                         level's rows (with their spread in {x}) tell {} times what the population does",
+                        short_number(*spread),
+                        short_number(*ratio),
+                        x = slope.column
+                    ));
+                }
+                let split = match self.layout {
+                    GroupLayout::CentredFirst(n) => format!(
+                        "; slopes below {SLOPE_CENTRED_AT} are sampled non-centred, with every slope after them (centred: {})",
+                        std::iter::once("intercept").chain(self.slopes.iter().map(|s| s.column.as_str())).take(n).collect::<Vec<_>>().join(", ")
+                    ),
+                    _ => String::new(),
+                };
+                format!(
+                    "{why}; centred from {CENTRED_AT}{split}; a `parameterise {} centred|noncentred` line overrides this",
+                    self.column
+                )
+            }
         };
-        let what = match &self.slope {
-            None => format!("the departures normal(0, {} spread) with the spread learned", self.column),
-            Some(slope) => format!(
+        let what = match self.slopes.as_slice() {
+            [] => format!("the departures normal(0, {} spread) with the spread learned", self.column),
+            [slope] => format!(
                 "and the slope of {x} departing too: each level's two departures jointly normal around 0 with \
                  spreads {c} spread and {c} {x} spread and correlation {c} correlation[intercept, {x}], all learned",
                 x = slope.column,
                 c = self.column
             ),
+            slopes => {
+                let names: Vec<&str> = slopes.iter().map(|s| s.column.as_str()).collect();
+                let spreads: Vec<String> = names.iter().map(|x| format!("{} {x} spread", self.column)).collect();
+                format!(
+                    "and the slopes of {} departing too: each level's {} departures jointly normal around 0 with \
+                     spreads {} spread, {} and the {} correlations {c} correlation[…] between them, all learned",
+                    names.join(", "),
+                    slopes.len() + 1,
+                    self.column,
+                    spreads.join(", "),
+                    (slopes.len() + 1) * slopes.len() / 2,
+                    c = self.column
+                )
+            }
         };
         format!(
             "pooled {}: {} levels ({} to {} rows each), each departing from the population by its own amount on \
@@ -235,10 +341,34 @@ pub fn rough_departure_spread(rows_per_level: &[usize], row_information: f64, le
     (between - noise).max(0.0).sqrt()
 }
 
-fn median_of_sorted(values: &[f64]) -> f64 {
+/// The median of `values` (0 for none).
+fn median(mut values: Vec<f64>) -> f64 {
+    values.sort_by(f64::total_cmp);
     match values.len() {
         0 => 0.0,
         n if n % 2 == 1 => values[n / 2],
         n => 0.5 * (values[n / 2 - 1] + values[n / 2]),
     }
+}
+
+/// A varying slope's median information ratio and rough spread (module
+/// docs): `τ̂ₓ² = var(bⱼ) − mean(1/(I·Sₓₓ,ⱼ))` over the levels with a
+/// slope of their own (0 when negative or with fewer than 3 such levels),
+/// and level `j`'s ratio `I·Sₓₓ,ⱼ·τ̂ₓ²`.
+pub fn slope_ratio(evidence: &SlopeEvidence, row_information: f64) -> (f64, f64) {
+    let seen: Vec<(f64, f64)> = evidence
+        .spread_sums
+        .iter()
+        .zip(&evidence.slopes)
+        .filter_map(|(&sxx, b)| b.filter(|_| sxx > 0.0).map(|b| (sxx, b)))
+        .collect();
+    if seen.len() < 3 || !(row_information > 0.0) {
+        return (0.0, 0.0);
+    }
+    let k = seen.len() as f64;
+    let mean = seen.iter().map(|(_, b)| b).sum::<f64>() / k;
+    let between = seen.iter().map(|(_, b)| (b - mean).powi(2)).sum::<f64>() / (k - 1.0);
+    let noise = seen.iter().map(|(sxx, _)| 1.0 / (sxx * row_information)).sum::<f64>() / k;
+    let spread = (between - noise).max(0.0).sqrt();
+    (median(seen.iter().map(|(sxx, _)| row_information * sxx * spread * spread).collect()), spread)
 }

@@ -23,6 +23,10 @@
 //! * `nuts` — as `fit`, plus `chains`, `settle`, `draws` and `seed`: a
 //!   NUTS fit; answers `names`, and per parameter `mean`, `median` and `sd`
 //!   of the draws and `r_hat`, with `divergences` and `largest_r_hat`.
+//! * `prior_draws` — as `fit`, plus `draws` and `seed`: that many draws of
+//!   every parameter from the model's priors (`query::calibrate::prior_draw`,
+//!   which `calibrate` and `prior check` use); answers `names` and `draws`
+//!   (one row per draw).
 //! * `contrast` — as `fit`, plus `variable`, `draws` and `seed`: a Laplace
 //!   fit, then the default contrast of `variable` averaged over rows;
 //!   answers `names`, `params` (constrained draws), `to`, `from` and
@@ -57,6 +61,7 @@ fn main() {
         Some("contrast") => contrast(&request),
         Some("nuts") => nuts(&request),
         Some("implications") => implications(&request),
+        Some("prior_draws") => prior_draws(&request),
         other => Err(format!("unknown action {other:?}")),
     };
     waypath_probe::write_answer(&answer.unwrap_or_else(|e| json!({ "error": e })));
@@ -251,4 +256,15 @@ fn nuts(request: &Value) -> Result<Value, String> {
     let largest_r_hat = r_hat.iter().copied().fold(0.0_f64, f64::max);
     Ok(json!({ "names": names, "mean": mean, "median": median, "sd": sd, "divergences": fit.divergences,
                "largest_r_hat": largest_r_hat, "r_hat": r_hat }))
+}
+
+fn prior_draws(request: &Value) -> Result<Value, String> {
+    use waypath::rand::SeedableRng;
+    let model = model(request)?;
+    let whole = |key: &str| request[key].as_u64().ok_or_else(|| format!("{key} must be a whole number"));
+    let mut rng = waypath::rand::rngs::StdRng::seed_from_u64(whole("seed")?);
+    let draws: Vec<Vec<f64>> = (0..whole("draws")?)
+        .map(|_| waypath::query::calibrate::prior_draw(&model, &mut rng).map_err(|e| e.to_string()))
+        .collect::<Result<_, _>>()?;
+    Ok(json!({ "names": model.parameter_names(), "draws": draws }))
 }
