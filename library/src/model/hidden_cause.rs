@@ -120,15 +120,24 @@ impl<'m> HiddenCause<'m> {
         }
     }
 
-    /// A starting point: the model's own start for the outcome, the
-    /// exposure's least-squares-free start (zero coefficients, unit spread),
-    /// the strengths at their priors' centres and every latent at 0.
-    pub fn start(&self, outcome_start: &[f64]) -> Vec<f64> {
+    /// A starting point from standard scores `z` (one per parameter, such
+    /// as [`crate::infer::fit::stratified_scores`] gives): the model's own
+    /// start for the outcome (given, unconstrained), a tenth of a score for
+    /// each exposure coefficient and log spread, each strength a score's
+    /// share of its prior's typical distance from the prior's centre, and
+    /// each latent its score. Nothing starts exactly at a prior's centre,
+    /// where every derivative in a strength would be zero.
+    pub fn start(&self, outcome_start: &[f64], z: &[f64]) -> Vec<f64> {
         let l = self.layout();
-        let mut theta = vec![0.0; l.dim];
+        let score = |i: usize| z.get(i).copied().unwrap_or(0.0);
+        let mut theta: Vec<f64> = (0..l.dim).map(|i| 0.1 * score(i)).collect();
         theta[..=l.outcome_spread].copy_from_slice(&outcome_start[..=l.outcome_spread]);
-        theta[l.to_exposure] = self.to_exposure.central_point();
-        theta[l.to_outcome] = self.to_outcome.central_point();
+        for (k, prior) in [(l.to_exposure, &self.to_exposure), (l.to_outcome, &self.to_outcome)] {
+            theta[k] = prior.central_point() + 0.5 * score(k) * prior.typical_distance();
+        }
+        for (i, t) in theta[l.latent..].iter_mut().enumerate() {
+            *t = score(l.latent + i);
+        }
         theta
     }
 }

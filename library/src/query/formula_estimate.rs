@@ -237,23 +237,24 @@ fn how_words(plan: &Plan, x: &str, y: &str, rows: usize) -> String {
         if copy.role == Role::Outcome {
             continue;
         }
-        let given: Vec<String> = f.given.iter().map(|&g| copy_words(&plan.copies[g], x)).collect();
-        let text = if given.is_empty() { copy.column.clone() } else { format!("{} given {}", copy.column, given.join(", ")) };
         match source {
-            Source::Rows => taken.push(text),
-            Source::Fitted(_) => drawn.push(text),
+            Source::Rows => taken.push(copy_words(copy, x)),
+            Source::Fitted(_) => {
+                let given: Vec<String> = f.given.iter().map(|&g| copy_words(&plan.copies[g], x)).collect();
+                drawn.push(if given.is_empty() { copy.column.clone() } else { format!("{} from {}", copy.column, given.join(", ")) });
+            }
         }
     }
     let mut parts = Vec::new();
     if !taken.is_empty() {
-        parts.push(format!("the rows' own values of {}", taken.join("; ")));
+        parts.push(format!("{} taken from each row", taken.join(", ")));
     }
     if !drawn.is_empty() {
-        parts.push(format!("{} drawn from their fitted models in every row", drawn.join("; ")));
+        parts.push(format!("{} drawn in every row from fitted models", drawn.join("; ")));
     }
     format!(
         "identifying formula by simulation with {x} set: {}; {y}'s mean from its model at those values, averaged over the {rows} rows (seed {FORMULA_SEED})",
-        if parts.is_empty() { "nothing else simulated".to_string() } else { parts.join(", and ") }
+        if parts.is_empty() { "nothing else simulated".to_string() } else { parts.join("; then ") }
     )
 }
 

@@ -108,13 +108,13 @@ pub fn hidden_refit(
     let names = model.parameter_names();
     let fitted_draws = draws.require(&names[slope])?.to_vec();
     let fitted = ContrastSummary::of(&fitted_draws, mass)?;
-    let scores = stratified_scores(layout.outcome_spread + 1, settings.chains, settings.seed);
+    let scores = stratified_scores(layout.dim, settings.chains, settings.seed);
     let starts: Vec<Vec<f64>> = scores
         .iter()
         .map(|z| {
-            let mut outcome = model.dispersed_point(z);
+            let mut outcome = model.dispersed_point(&z[..=layout.outcome_spread]);
             outcome.truncate(layout.outcome_spread + 1);
-            density.start(&outcome)
+            density.start(&outcome, z)
         })
         .collect();
     let run = sample_nuts(&density, &Init::Given(starts), settings, cancel, progress).map_err(|e| match e {
