@@ -60,9 +60,9 @@ fn front_door_answer_covers_the_truth_where_the_plain_regression_is_biased() {
     let routes = last_json(&mut session, "compare routes for total effect of shading on trout in reach using water with laplace seed 4");
     assert_eq!(routes["route"], "front door");
     assert!(routes["joint"].is_null());
-    assert_eq!(routes["front_door"][0]["mean"], c["mean"], "the same seeded estimate as `ask … using`");
+    assert_eq!(routes["formula_route"][0]["mean"], c["mean"], "the same seeded estimate as `ask … using`");
     // Both regressions are kept in the session.
-    assert!(session.fit("front_door_algae_from_shading").is_some());
+    assert!(session.fit("formula_algae_from_shading").is_some());
     assert!(session.fit(json["model_name"].as_str().unwrap()).is_some());
     // The plain regression of trout on shading absorbs the hidden canopy:
     // its slope is 0.35 + 0.8 × 0.9 / (0.8² + 1) ≈ 0.79 (omitted-variable bias).

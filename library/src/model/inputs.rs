@@ -76,6 +76,34 @@ impl Model {
         None
     }
 
+    /// The coefficient position of `column`'s one linear slope, when the
+    /// column enters the model through that slope alone (no powers,
+    /// spline, per-level slopes, and not as the category of a per-level
+    /// slope); its design column is `column − centre`.
+    pub fn linear_slope_position(&self, column: &str) -> Option<usize> {
+        let mut start = 0;
+        let mut found = None;
+        for recipe in &self.recipes {
+            let reads = match recipe {
+                TermRecipe::Intercept => false,
+                TermRecipe::LevelIntercepts { column: c, .. } | TermRecipe::LevelOffsets { column: c, .. } => c == column,
+                TermRecipe::Slope { column: c, .. } => {
+                    if c == column {
+                        found = Some(start);
+                    }
+                    false
+                }
+                TermRecipe::SlopePer { column: c, by, .. } => c == column || by == column,
+                TermRecipe::Powers { column: c, .. } | TermRecipe::Spline { column: c, .. } => c == column,
+            };
+            if reads {
+                return None;
+            }
+            start += recipe.labels().len();
+        }
+        found
+    }
+
     /// The spline terms of the model.
     pub fn spline_terms(&self) -> Vec<SplineTerm<'_>> {
         let mut start = 0;

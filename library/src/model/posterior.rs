@@ -401,6 +401,25 @@ impl Model {
         total
     }
 
+    /// The log prior of a model without pooled groups on the
+    /// unconstrained scale: the coefficients' priors and, for the normal
+    /// family, the spread's prior with the Jacobian of its log, at
+    /// `theta[..p]` (and `theta[p]`, the log spread); the gradient goes into
+    /// `grad` (same length as `theta`). A density that adds its own
+    /// likelihood to this prior keeps the model's priors exactly.
+    pub fn log_prior_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let p = self.labels.len();
+        let mut total = self.log_prior_of_coefficients(&theta[..p], &mut grad[..p]);
+        if let Likelihood::Gaussian { spread_prior, .. } = &self.likelihood {
+            let u = theta[p];
+            let spread = u.exp();
+            let (lp, d_spread) = spread_prior.log_density_and_derivative(spread);
+            total += lp + u;
+            grad[p] = d_spread * spread + 1.0;
+        }
+        total
+    }
+
     /// Σ βⱼ·mean(column j) over one block's non-intercept columns, the
     /// block's coefficients starting at index `at`.
     fn average_row_shift(&self, betas: &[f64], at: usize) -> f64 {

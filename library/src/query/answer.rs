@@ -10,8 +10,10 @@
 //! contrasts are averaged over the table's rows (standardisation), the
 //! estimand a simulated intervention also targets: every level against the
 //! first for a category exposure, one unit above the mean against the mean
-//! for a numeric one. When the graph says the effect is not identifiable,
-//! nothing is fitted and the answer says why. When the graph itself says the
+//! for a numeric one. A total effect that no set identifies but a formula
+//! does (the front door, the complete algorithm) is estimated from that
+//! formula ([`super::formula_estimate`]). When the graph says the effect is
+//! not identifiable, nothing is fitted and the answer says why. When the graph itself says the
 //! effect is zero (no directed path, or no edge for a direct effect), that is
 //! the answer: nothing is fitted unless the caller asks to check the zero,
 //! which then fits the model given the first set that blocks the backdoor
@@ -29,7 +31,7 @@ use crate::table::{ColumnData, Table};
 
 use super::contrast::{level_contrasts, Contrast, ContrastRequest};
 use super::error::QueryError;
-use super::front_door::front_door_estimate;
+use super::formula_estimate::{check_formula, formula_estimate};
 use super::support::require_column;
 
 /// Most paths listed in the reason for a set.
@@ -61,12 +63,14 @@ pub struct EffectAnswer {
     /// The fit (not serialised).
     #[serde(skip)]
     pub fit: Option<Fit>,
-    /// How the effect was estimated: `adjustment`, `front door`, or none.
+    /// How the effect was estimated: `adjustment`, `front door`,
+    /// `complete algorithm`, or none.
     pub route: Option<String>,
-    /// The front door's mediator model, its fit and its body (not
-    /// serialised); the outcome model is `model`, its body `model_text`.
+    /// The other conditionals an identifying formula needed (a front
+    /// door's mediators, …), each with its fit and body (not serialised);
+    /// the outcome's model is `model`, its body `model_text`.
     #[serde(skip)]
-    pub mediator_model: Option<(Model, Fit, String)>,
+    pub other_models: Vec<(Model, Fit, String)>,
 }
 
 /// Identify, build, fit and contrast the `kind` effect of `exposure` on
@@ -138,7 +142,7 @@ pub fn answer_effect_with_progress(
         model: None,
         fit: None,
         route: None,
-        mediator_model: None,
+        other_models: Vec::new(),
     };
     if identification.zero_by_graph && !options.check_zero {
         answer.why.push(format!(
@@ -147,32 +151,26 @@ pub fn answer_effect_with_progress(
         ));
         return Ok(answer);
     }
-    let front_door = identification.beyond.as_ref().filter(|b| b.route == "front door" && kind == EffectKind::Total);
-    if let (false, Some(beyond)) = (identification.identifiable, front_door) {
-        let [m] = beyond.front_door_set.as_slice() else {
-            answer.why.push(format!(
-                "the front door runs through {} nodes together ({}); Waypath estimates it through one mediator only, so nothing was fitted",
-                beyond.front_door_set.len(),
-                beyond.front_door_set.join(", ")
-            ));
+    let formula_route = identification.beyond.as_ref().filter(|b| b.identified && kind == EffectKind::Total);
+    if let (false, Some(beyond), Some(formula)) = (identification.identifiable, formula_route, formula_route.and_then(|b| b.formula.as_ref())) {
+        if let Err(why) = check_formula(formula, exposure, outcome, &beyond.also_set) {
+            answer.why.extend(beyond.lines());
+            answer.why.push(format!("{why}; nothing was fitted"));
             return Ok(answer);
-        };
-        let fd = front_door_estimate(table, exposure, m, outcome, method, cancel, mass, progress)?;
+        }
+        let estimate = formula_estimate(table, exposure, outcome, formula, &beyond.also_set, method, cancel, mass, progress)?;
         answer.why.extend(beyond.lines());
-        answer.estimand = Some(format!(
-            "average total effect on the mean outcome by the front-door formula through {m}: {m}'s response to {exposure}, \
-             combined with {outcome}'s response to {m} given the rows' own {exposure}"
-        ));
-        let [m_text, y_text] = fd.texts;
-        answer.model_text = Some(y_text);
+        answer.estimand = Some(formula_estimand(beyond, exposure, outcome));
         answer.method = Some(method.describe());
-        answer.warnings.extend(fd.warnings);
-        answer.contrasts = fd.contrasts;
-        answer.route = Some("front door".into());
-        answer.adjustment_set = None;
-        answer.model = Some(fd.outcome.0);
-        answer.fit = Some(fd.outcome.1);
-        answer.mediator_model = Some((fd.mediator.0, fd.mediator.1, m_text));
+        answer.warnings.extend(estimate.warnings);
+        answer.contrasts = estimate.contrasts;
+        answer.route = Some(beyond.route.clone());
+        let mut fitted: Vec<(Model, Fit, String)> = estimate.conditionals.into_iter().map(|c| (c.model, c.fit, c.text)).collect();
+        let (y_model, y_fit, y_text) = fitted.pop().expect("the outcome's conditional is fitted last");
+        answer.model_text = Some(y_text);
+        answer.model = Some(y_model);
+        answer.fit = Some(y_fit);
+        answer.other_models = fitted;
         return Ok(answer);
     }
     let Some(set) = identification.adjustment_sets.first().filter(|_| identification.identifiable) else {
@@ -238,6 +236,22 @@ pub fn answer_effect_with_progress(
     answer.model = Some(model);
     answer.fit = Some(fit);
     Ok(answer)
+}
+
+/// What a formula route's contrasts estimate, in words.
+fn formula_estimand(beyond: &crate::graph::Beyond, exposure: &str, outcome: &str) -> String {
+    if beyond.route == "front door" {
+        let m = beyond.front_door_set.join(", ");
+        return format!(
+            "average total effect on the mean outcome by the front-door formula through {m}: the response of {m} to {exposure}, \
+             combined with {outcome}'s response to {m} given the rows' own {exposure}"
+        );
+    }
+    format!(
+        "average total effect on the mean outcome by the identifying formula of the complete algorithm, evaluated from \
+         regressions of the observed conditionals it names ({})",
+        beyond.formula_nodes.join(", ")
+    )
 }
 
 /// `at …` holds members of a direct effect's conditioning set only.

@@ -28,7 +28,7 @@ use crate::table::{Column, ColumnData, Table};
 use super::contrast::Contrast;
 use super::error::QueryError;
 use super::joint::{JointFit, JointModel, NodeModel};
-use super::support::{interval_words, parameter_rows, require_column, stream_seed, with_column, ContrastSummary, Setting};
+use super::support::{drawn_column, interval_words, parameter_rows, require_column, stream_seed, with_column, ContrastSummary, Setting};
 
 /// `set X to vs from, watch …`.
 #[derive(Debug, Clone, PartialEq)]
@@ -245,7 +245,7 @@ fn refuse_hidden_confounding(joint: &JointModel, x: &str, watch: &[String], simu
         crate::graph::Complete::Identified { .. } => Err(QueryError::request(format!(
             "{place}: the hidden node {h} is a common cause of {a} and {b}, which the joint model (one regression per node \
              from its observed parents) cannot simulate; the effect of setting {x} is identifiable by a formula instead: \
-             ask `ask total effect of {x} on {} in {g}` for it, and add `using TABLE` to estimate it when it runs through the front door",
+             ask `ask total effect of {x} on {} in {g} using TABLE` to see it and estimate it from its fitted conditionals",
             watch.join(", ")
         ))),
         crate::graph::Complete::NotIdentified { hedge } => Err(QueryError::request(format!(
@@ -384,11 +384,7 @@ fn simulate_draw(base: &Table, x: &str, setting: &Setting, steps: &[Step], d: us
         let rows = step.model.new_rows(&current)?;
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, step.index + 1));
         let values = step.model.outcome_draw(&step.params[d], &rows, &mut rng)?;
-        let data = match step.model.outcome_levels() {
-            Some(levels) => ColumnData::Category { codes: values.iter().map(|&v| v as u32).collect(), levels: levels.to_vec() },
-            None => ColumnData::Real(values),
-        };
-        current = with_column(&current, Column::new(step.node, data));
+        current = with_column(&current, drawn_column(step.model, step.node, values));
     }
     Ok(current)
 }

@@ -9,7 +9,10 @@
 //!   posterior mean or on simulated outcomes, at stated values of the other
 //!   predictors or averaged over the table's rows, optionally along a grid.
 //! * [`answer`]: one call from a graph, a table and an effect to a fitted
-//!   adjustment model and its contrasts, with the reason for the set.
+//!   adjustment model and its contrasts, with the reason for the set, or,
+//!   where no set exists but a formula identifies the effect,
+//!   [`formula_estimate`]: the formula evaluated per posterior draw from
+//!   fitted conditionals.
 //! * [`joint`]: one regression per observed node of a graph (a whole-graph
 //!   model), and [`intervene`]: simulated interventions through it.
 //! * [`mechanism`] and [`simulate`]: synthetic data from stated mechanisms,
@@ -23,7 +26,9 @@
 //!   of the rows it cannot handle).
 //! * [`robustness`] and [`e_value`]: how a fitted contrast moves under an
 //!   assumed hidden common cause (a normal outcome's slope; a yes/no
-//!   outcome's risk ratio with its E-value).
+//!   outcome's risk ratio with its E-value), and [`hidden_refit`]: the
+//!   model refitted beside a simulated hidden node whose strengths have
+//!   stated priors.
 //!
 //! The query layer never reads files and never renders.
 
@@ -32,7 +37,8 @@ pub mod calibrate;
 pub mod contrast;
 pub mod e_value;
 mod error;
-pub mod front_door;
+pub mod formula_estimate;
+pub mod hidden_refit;
 pub mod implications;
 pub mod intervene;
 pub mod joint;
@@ -49,7 +55,8 @@ pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, pr
 pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RISK_RATIO_STEPS};
 pub use error::QueryError;
-pub use front_door::{front_door_estimate, FrontDoorFit, FRONT_DOOR_SEED};
+pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
+pub use hidden_refit::{hidden_refit, HiddenRefit, StrengthSummary};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};

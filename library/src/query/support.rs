@@ -78,6 +78,16 @@ pub fn stream_seed(seed: u64, a: u64, b: u64) -> u64 {
     z ^ (z >> 31)
 }
 
+/// The column of values `model` drew for its outcome (a category's drawn
+/// level indices turned back into labels), named `name`.
+pub fn drawn_column(model: &Model, name: &str, drawn: Vec<f64>) -> Column {
+    let data = match model.outcome_levels() {
+        Some(levels) => ColumnData::Category { codes: drawn.iter().map(|&v| v as u32).collect(), levels: levels.to_vec() },
+        None => ColumnData::Real(drawn),
+    };
+    Column::new(name, data)
+}
+
 /// A value a column is set to: a level of a category, or a number.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Setting {

@@ -340,12 +340,16 @@ pub const JOINT: Form = Form {
     method: false,
     usage: "joint NAME = GRAPH using TABLE  (end with ':' to override a node below, e.g. `girth from rootstock`)",
 };
-/// `robustness of MODEL: X` — the contrast under an assumed hidden common cause.
+/// The words that open the refit option of `robustness`.
+pub const REFIT_WORDS: &[&str] = &["refit", "with", "hidden", "to"];
+/// `robustness of MODEL: X` — the contrast under an assumed hidden common
+/// cause; with `refit with hidden to X PRIOR and to Y PRIOR`, the model
+/// refitted beside a simulated hidden node whose strengths take those priors.
 pub const ROBUSTNESS: Form = Form {
     slots: &[Word("robustness"), Word("of"), Name(Md), Word(":"), Name(Col)],
-    options: &[INTERVALS_OPTION],
-    method: false,
-    usage: "robustness of MODEL: X [intervals P%]",
+    options: &[INTERVALS_OPTION, &[Word("refit"), Word("with"), Word("hidden"), Word("to"), Value]],
+    method: true,
+    usage: "robustness of MODEL: X [refit with hidden to X PRIOR and to Y PRIOR [with nuts …]] [intervals P%]",
 };
 pub const INTERVENE: Form = Form {
     slots: &[Word("intervene"), Name(Md), Word(":"), Word("set"), Name(Col), Name(Lv), Word("vs"), Name(Lv), Word("watch")],

@@ -40,7 +40,7 @@ pub(crate) fn run(
         "implications" => causal::implications(session, st, control),
         "contrast" => questions::contrast(session, st),
         "compare" => questions::compare_routes(session, st, control, warnings),
-        "robustness" => sensitivity::robustness(session, st),
+        "robustness" => sensitivity::robustness(session, st, control),
         "score" => scoring::score(session, st, control, warnings),
         "model" => fitting::model(session, st),
         "fit" if simulation::names_joint(session, head) => simulation::fit_joint(session, st, control, warnings),

@@ -484,9 +484,10 @@ pub(crate) fn ask_using(
         return Ok(vec![first, Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
     let set_words = if adjusted.is_empty() { "nothing".to_string() } else { adjusted.join(", ") };
-    let route_words = match id.beyond.as_ref().filter(|_| answer.route.as_deref() == Some("front door")) {
-        Some(b) => format!("through the front door via {}", b.front_door_set.join(", ")),
-        None => format!("stratifying by {set_words}"),
+    let route_words = match (answer.route.as_deref(), id.beyond.as_ref()) {
+        (Some("front door"), Some(b)) => format!("through the front door via {}", b.front_door_set.join(", ")),
+        (Some("complete algorithm"), _) => "by the identifying formula of the complete algorithm".to_string(),
+        _ => format!("stratifying by {set_words}"),
     };
     let heading = format!("{kind} effect of {x} on {y} in {g}, from table {t}, {route_words}");
     let mut grid = summary_grid(&["contrast", "scale"], mass);
@@ -499,8 +500,8 @@ pub(crate) fn ask_using(
     }
     json["sparse_levels"] = json!(sparse);
     let mut model_grid = Grid::new(&["model built"]);
-    if let Some((_, _, m_text)) = &answer.mediator_model {
-        m_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
+    for (_, _, text) in &answer.other_models {
+        text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
     }
     model_text.lines().for_each(|l| model_grid.push(vec![l.to_string()]));
     let mut notes: Vec<String> = answer.estimand.iter().map(|e| format!("estimand: {e}")).collect();
@@ -513,8 +514,9 @@ pub(crate) fn ask_using(
     notes.extend(answer.warnings.iter().map(|w| format!("warning: {w}")));
     let name = model.name().to_string();
     notes.push(format!("the model is kept as {name}: `show {name}`, `contrast {name}: …` and `check {name}` work on it"));
-    if let Some((m_model, _, _)) = &answer.mediator_model {
-        notes.push(format!("the mediator's model is kept as {}", m_model.name()));
+    if !answer.other_models.is_empty() {
+        let names: Vec<&str> = answer.other_models.iter().map(|(m, _, _)| m.name()).collect();
+        notes.push(format!("the formula's other models are kept as {}", names.join(", ")));
     }
     notes.push(CAUSAL_NOTE.to_string());
     let lead: Vec<String> = if sparse.is_empty() { Vec::new() } else { vec![sparse_alert(&sparse)] };
@@ -528,7 +530,7 @@ pub(crate) fn ask_using(
     }
     session.models.insert(name.clone(), model);
     session.fits.insert(name, fit);
-    if let Some((m_model, m_fit, m_text)) = answer.mediator_model {
+    for (m_model, m_fit, m_text) in answer.other_models {
         let m_name = m_model.name().to_string();
         if let Ok(spec) = ModelSpec::from_lines(&m_name, m_text.lines().enumerate().map(|(i, l)| (i + 1, l))) {
             session.specs.insert(m_name.clone(), spec);
@@ -574,8 +576,8 @@ pub(crate) fn compare_routes(
                           "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
-    if answer.route.as_deref() == Some("front door") {
-        return Ok(vec![front_door_only(&answer, x, y, g, mass)]);
+    if answer.route.as_deref() != Some("adjustment") {
+        return Ok(vec![formula_only(&answer, x, y, g, mass)]);
     }
     if adjustment.level.is_some() {
         return Err(CellError::at(
@@ -695,24 +697,27 @@ fn check_settings(table: &Table, x: &str, settings: Option<&(String, String)>) -
     })
 }
 
-/// The answer of `compare routes` when the effect runs through the front
-/// door: the joint model (each node from its observed parents) cannot
-/// simulate a hidden common cause, so there is one route only.
-fn front_door_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &str, mass: f64) -> Display {
+/// The answer of `compare routes` when the effect is identified by a
+/// formula (the front door, the complete algorithm): the joint model (each
+/// node from its observed parents) cannot simulate a hidden common cause,
+/// so there is one route only.
+fn formula_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &str, mass: f64) -> Display {
+    let route = answer.route.clone().unwrap_or_default();
     let heading = format!(
-        "total effect of {x} on {y} in {g}: one route only — the front door; no adjustment set exists and the joint model cannot simulate the hidden common cause"
+        "total effect of {x} on {y} in {g}: one route only — {}; no adjustment set exists and the joint model cannot simulate the hidden common cause",
+        if route == "front door" { "the front door".to_string() } else { format!("the identifying formula of the {route}") }
     );
     let mut grid = summary_grid(&["route", "contrast"], mass);
     for c in &answer.contrasts {
-        let mut row = vec!["front door".to_string(), c.contrast.clone()];
+        let mut row = vec![route.clone(), c.contrast.clone()];
         row.extend(summary_cells(&c.summary(), c.unit.as_deref()));
         grid.push(row);
     }
     let mut notes = answer.why.clone();
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
-    let json = json!({"question": answer.question, "identifiable": false, "route": "front door",
-                      "front_door": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": null,
+    let json = json!({"question": answer.question, "identifiable": false, "route": route,
+                      "formula_route": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": null,
                       "difference": null, "notes": notes});
     Display { plain, html: Some(html), svg: None, json: Some(json) }
 }

@@ -1,0 +1,514 @@
+//! The Bayesian estimate of a total effect from its identifying formula:
+//! the one evaluator for effects that no adjustment set identifies (the
+//! front door through any number of mediators, and the formula of the
+//! complete identification algorithm, [`crate::graph::Complete`]).
+//!
+//! An identifying formula ([`Formula`]) is built from products, sums over
+//! observed nodes and observed conditionals `Pr[v | given]`. Without
+//! ratios it is a generative recipe, which is how it is evaluated here:
+//!
+//! 1. *Flatten.* Every sum binds fresh copies of its nodes (an inner sum
+//!    over the exposure runs over its values, not the value set), so the
+//!    formula becomes one product of conditionals over distinct node
+//!    copies, summed over every bound copy. A joint `Pr[a, b | g]` is split
+//!    into `Pr[a | g] · Pr[b | g, a]` (the product rule, in the graph's
+//!    order). Each bound copy and the outcome must be drawn by exactly one
+//!    factor, and the factors must chain (each given copy drawn before), or
+//!    the formula is refused.
+//! 2. *Take what the rows give.* A sum over observed values of observed
+//!    probabilities is an average over the rows: factors that form a chain
+//!    of observed conditionals from nothing (`Pr[a] · Pr[b | a] · …`, each
+//!    given every copy taken before it) take the rows' own values.
+//! 3. *Fit the rest.* Every other factor `Pr[v | g1, g2, …]` becomes an
+//!    additive regression `v from g1, g2, … using T` with the family read
+//!    from v's kind (the answer's own model builder); identical
+//!    conditionals share one fit.
+//! 4. *Simulate per posterior draw.* For each draw, in chain order, each
+//!    fitted copy is drawn from its regression over the rows, the exposure
+//!    set; the outcome's factor gives its mean, averaged over rows. The two
+//!    settings share draw index and noise streams, so their difference is a
+//!    paired contrast, summarised last.
+//!
+//! The regressions are fitted separately and their draws paired by index.
+//! For the front door they are two factors of one joint density with
+//! independent priors, so that pairing gives joint posterior draws; for a
+//! general formula the conditionals need not factorise one density, and
+//! pairing treats their posteriors as independent.
+
+use std::collections::BTreeMap;
+use std::sync::atomic::AtomicBool;
+
+use rand::rngs::StdRng;
+use rand::SeedableRng;
+
+use crate::graph::Formula;
+use crate::infer::fit::{fit_model, Fit, Method};
+use crate::infer::nuts::Progress;
+use crate::limits::{bytes_for, check_memory};
+use crate::model::{Family, Model, ModelSpec};
+use crate::table::{Column, Table};
+
+use super::answer::family_for;
+use super::contrast::{scale_words, Contrast, On};
+use super::error::QueryError;
+use super::support::{column_mean, drawn_column, interval_words, parameter_rows, require_column, stream_seed, ContrastSummary, Setting};
+
+/// The seed of the simulated node values.
+pub const FORMULA_SEED: u64 = 16_180;
+
+/// One fitted conditional of the formula.
+pub struct FittedConditional {
+    /// The node drawn.
+    pub node: String,
+    /// The nodes it is drawn given (columns of the table).
+    pub given: Vec<String>,
+    /// Its regression, the fit and the body as written.
+    pub model: Model,
+    pub fit: Fit,
+    pub text: String,
+}
+
+/// The fitted parts and contrasts of a formula estimate.
+pub struct FormulaFit {
+    /// Every fitted conditional, the outcome's last.
+    pub conditionals: Vec<FittedConditional>,
+    /// The nodes whose values are the rows' own (an average over rows).
+    pub from_rows: Vec<String>,
+    /// One contrast per comparison of exposure settings.
+    pub contrasts: Vec<Contrast>,
+    /// Sampler warnings of every fit, and notes on the pairing.
+    pub warnings: Vec<String>,
+}
+
+/// What plays a node copy's part in the flattened formula.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Role {
+    /// The exposure at the value set.
+    Set,
+    /// A node the formula takes but does not depend on: the rows' values.
+    Fixed,
+    /// The outcome.
+    Outcome,
+    /// A copy bound by a sum.
+    Bound,
+}
+
+/// A copy of an observed node.
+#[derive(Debug, Clone)]
+struct Copy {
+    column: String,
+    role: Role,
+}
+
+/// `Pr[of | given]` over copies.
+#[derive(Debug, Clone)]
+struct Factor {
+    of: usize,
+    given: Vec<usize>,
+}
+
+/// How a factor is evaluated.
+#[derive(Debug, Clone, PartialEq)]
+enum Source {
+    /// The rows' own values of its node.
+    Rows,
+    /// Drawn (or, for the outcome, its mean) from fitted conditional `k`.
+    Fitted(usize),
+}
+
+/// The formula as a simulation: copies, factors in chain order, and how
+/// each is evaluated.
+#[derive(Debug)]
+struct Plan {
+    copies: Vec<Copy>,
+    steps: Vec<(Factor, Source)>,
+    /// Distinct conditionals to fit: (node, given columns).
+    conditionals: Vec<(String, Vec<String>)>,
+}
+
+/// Fit the conditionals `formula` needs and contrast `E[y | do(x)]`
+/// between the settings the answer compares; `also_set` are nodes the
+/// formula takes without depending on them (their rows' values are used).
+#[allow(clippy::too_many_arguments)]
+pub fn formula_estimate(
+    table: &Table,
+    x: &str,
+    y: &str,
+    formula: &Formula,
+    also_set: &[String],
+    method: &Method,
+    cancel: &AtomicBool,
+    mass: f64,
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Result<FormulaFit, QueryError> {
+    let place = format!("ask total effect of {x} on {y} by its identifying formula");
+    let plan = plan(formula, x, y, also_set, &place)?;
+    for c in &plan.copies {
+        require_column(table, &c.column, &place)?;
+    }
+    let y_family = family_for(table, y, &place)?;
+    let n = table.nrows();
+    check_memory(&format!("{place}: {} simulated node copies over {n} rows", plan.copies.len()), bytes_for(&[n.max(1), plan.copies.len().max(1), 2]))
+        .map_err(QueryError::request)?;
+    let mut conditionals = Vec::with_capacity(plan.conditionals.len());
+    for (node, given) in &plan.conditionals {
+        QueryError::stop_if(cancel, &place)?;
+        conditionals.push(fit_conditional(table, node, given, method, cancel, progress, &place)?);
+    }
+    let mut warnings: Vec<String> = conditionals.iter().flat_map(|c| c.fit.warnings.iter().cloned()).collect();
+    let params: Vec<Vec<Vec<f64>>> = conditionals.iter().map(|c| parameter_rows(&c.model, &c.fit.draws)).collect::<Result<_, _>>()?;
+    let draws = params.iter().map(Vec::len).min().unwrap_or(0);
+    if params.iter().any(|p| p.len() != draws) {
+        warnings.push(format!("the fits kept different numbers of draws; the first {draws} of each are paired"));
+    }
+    if draws == 0 {
+        return Err(QueryError::request(format!("{place}: the fits kept no draws")));
+    }
+    let column = require_column(table, x, &place)?;
+    let outcome_model = &conditionals.last().expect("the outcome's conditional is fitted").model;
+    let mut contrasts = Vec::new();
+    for (to, from) in settings(column, &place)? {
+        let mut changes = Vec::with_capacity(draws);
+        let mut means = Vec::with_capacity(draws);
+        for d in 0..draws {
+            QueryError::stop_if(cancel, &place)?;
+            let under_to = mean_under(&plan, table, &to, &conditionals, &params, d)?;
+            let under_from = mean_under(&plan, table, &from, &conditionals, &params, d)?;
+            changes.push(under_to - under_from);
+            means.push((under_to, under_from));
+        }
+        let s = ContrastSummary::of(&changes, mass)?;
+        let is_probability = matches!(y_family, Family::Bernoulli | Family::Binomial { .. });
+        contrasts.push(Contrast {
+            contrast: format!("{x} {} vs {}", to.text(), from.text()),
+            model: outcome_model.name().to_string(),
+            variable: x.to_string(),
+            to: to.text(),
+            from: from.text(),
+            on: "means".to_string(),
+            scale: scale_words(outcome_model, On::Means, true),
+            in_outcome_unit: !is_probability,
+            unit: if is_probability { None } else { table.column(y).and_then(|c| c.unit.clone()) },
+            mean: s.mean,
+            lower: s.lower,
+            upper: s.upper,
+            share_above_zero: s.share_above_zero,
+            share_below_zero: s.share_below_zero,
+            mass,
+            interval: interval_words(mass),
+            held: Vec::new(),
+            held_how: how_words(&plan, x, y, n),
+            over_rows: true,
+            along: None,
+            grid: Vec::new(),
+            seed: Some(FORMULA_SEED),
+            notes: Vec::new(),
+            draws: changes,
+            means,
+            level: None,
+        });
+    }
+    let from_rows = plan.steps.iter().filter(|(_, s)| *s == Source::Rows).map(|(f, _)| plan.copies[f.of].column.clone()).collect();
+    Ok(FormulaFit { conditionals, from_rows, contrasts, warnings })
+}
+
+/// Whether `formula` can be evaluated by simulation (see the module
+/// notes); the error says why not.
+pub fn check_formula(formula: &Formula, x: &str, y: &str, also_set: &[String]) -> Result<(), QueryError> {
+    plan(formula, x, y, also_set, &format!("ask total effect of {x} on {y} by its identifying formula")).map(|_| ())
+}
+
+/// Every level against the first for a category exposure; mean + 1 vs mean
+/// for a numeric one (as the adjustment answer compares).
+pub(crate) fn settings(column: &Column, place: &str) -> Result<Vec<(Setting, Setting)>, QueryError> {
+    if let Some(levels) = column.data.levels() {
+        let first = Setting::read(column, &levels[0], place)?;
+        return levels[1..].iter().map(|l| Ok((Setting::read(column, l, place)?, first.clone()))).collect();
+    }
+    let centre = column_mean(column).ok_or_else(|| QueryError::request(format!("{place}: {} has no values", column.name)))?;
+    Ok(vec![(Setting::Number(centre + 1.0), Setting::Number(centre))])
+}
+
+/// The simulation in words, for the contrast's `held_how`.
+fn how_words(plan: &Plan, x: &str, y: &str, rows: usize) -> String {
+    let mut drawn = Vec::new();
+    let mut taken = Vec::new();
+    for (f, source) in &plan.steps {
+        let copy = &plan.copies[f.of];
+        if copy.role == Role::Outcome {
+            continue;
+        }
+        match source {
+            Source::Rows => taken.push(copy_words(copy, x)),
+            Source::Fitted(_) => {
+                let given: Vec<String> = f.given.iter().map(|&g| copy_words(&plan.copies[g], x)).collect();
+                drawn.push(if given.is_empty() { copy.column.clone() } else { format!("{} from {}", copy.column, given.join(", ")) });
+            }
+        }
+    }
+    let mut parts = Vec::new();
+    if !taken.is_empty() {
+        parts.push(format!("{} taken from each row", taken.join(", ")));
+    }
+    if !drawn.is_empty() {
+        parts.push(format!("{} drawn in every row from fitted models", drawn.join("; ")));
+    }
+    format!(
+        "identifying formula by simulation with {x} set: {}; {y}'s mean from its model at those values, averaged over the {rows} rows (seed {FORMULA_SEED})",
+        if parts.is_empty() { "nothing else simulated".to_string() } else { parts.join("; then ") }
+    )
+}
+
+fn copy_words(copy: &Copy, x: &str) -> String {
+    match copy.role {
+        Role::Set => format!("{x} as set"),
+        Role::Bound if copy.column == x => format!("{x} as observed"),
+        _ => copy.column.clone(),
+    }
+}
+
+/// Flatten `formula`, check that it chains, and decide each factor's source.
+fn plan(formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -> Result<Plan, QueryError> {
+    let mut copies = vec![Copy { column: x.to_string(), role: Role::Set }, Copy { column: y.to_string(), role: Role::Outcome }];
+    let mut scope: BTreeMap<String, usize> = BTreeMap::from([(x.to_string(), 0), (y.to_string(), 1)]);
+    for a in also_set {
+        scope.insert(a.clone(), copies.len());
+        copies.push(Copy { column: a.clone(), role: Role::Fixed });
+    }
+    let mut factors = Vec::new();
+    flatten(formula, &scope, &mut copies, &mut factors, place)?;
+    let mut drawn_by = vec![None; copies.len()];
+    for (k, f) in factors.iter().enumerate() {
+        let copy = &copies[f.of];
+        if matches!(copy.role, Role::Set | Role::Fixed) || drawn_by[f.of].is_some() {
+            return Err(unsupported(place, &format!("it gives {} more than one distribution", copy.column)));
+        }
+        drawn_by[f.of] = Some(k);
+    }
+    if let Some(c) = copies.iter().enumerate().find(|(i, c)| matches!(c.role, Role::Outcome | Role::Bound) && drawn_by[*i].is_none()) {
+        return Err(unsupported(place, &format!("it sums over {} without a distribution for it", c.1.column)));
+    }
+    let steps = chain(&copies, factors, place)?;
+    let mut conditionals: Vec<(String, Vec<String>)> = Vec::new();
+    let mut outcome_step = None;
+    let steps = steps
+        .into_iter()
+        .map(|(f, from_rows)| {
+            if from_rows {
+                return (f, Source::Rows);
+            }
+            let node = copies[f.of].column.clone();
+            let given: Vec<String> = f.given.iter().map(|&g| copies[g].column.clone()).collect();
+            if copies[f.of].role == Role::Outcome {
+                outcome_step = Some((node, given));
+                return (f, Source::Fitted(usize::MAX));
+            }
+            let k = conditionals.iter().position(|c| c.0 == node && same_set(&c.1, &given)).unwrap_or_else(|| {
+                conditionals.push((node, given));
+                conditionals.len() - 1
+            });
+            (f, Source::Fitted(k))
+        })
+        .collect::<Vec<_>>();
+    // The outcome's conditional is fitted last, so it is easy to find.
+    let outcome = outcome_step.ok_or_else(|| unsupported(place, &format!("it gives no distribution for {y}")))?;
+    conditionals.push(outcome);
+    let last = conditionals.len() - 1;
+    let steps = steps.into_iter().map(|(f, s)| (f, if s == Source::Fitted(usize::MAX) { Source::Fitted(last) } else { s })).collect();
+    Ok(Plan { copies, steps, conditionals })
+}
+
+fn same_set(a: &[String], b: &[String]) -> bool {
+    a.len() == b.len() && a.iter().all(|v| b.contains(v))
+}
+
+fn unsupported(place: &str, why: &str) -> QueryError {
+    QueryError::request(format!(
+        "{place}: the formula cannot be evaluated by simulation because {why}; Waypath evaluates formulas built from \
+         products and sums of observed conditionals — the identification and its formula above still hold"
+    ))
+}
+
+/// Append the factors of `formula` to `factors`, binding names through `scope`.
+fn flatten(formula: &Formula, scope: &BTreeMap<String, usize>, copies: &mut Vec<Copy>, factors: &mut Vec<Factor>, place: &str) -> Result<(), QueryError> {
+    let lookup = |name: &String| scope.get(name).copied().ok_or_else(|| unsupported(place, &format!("it leaves {name} unbound")));
+    match formula {
+        Formula::Probability { of, given } => {
+            let mut before: Vec<usize> = given.iter().map(lookup).collect::<Result<_, _>>()?;
+            for o in of {
+                let copy = lookup(o)?;
+                factors.push(Factor { of: copy, given: before.clone() });
+                before.push(copy);
+            }
+        }
+        Formula::Product { factors: parts } => {
+            for part in parts {
+                flatten(part, scope, copies, factors, place)?;
+            }
+        }
+        Formula::Sum { over, body } => {
+            let mut inner = scope.clone();
+            for v in over {
+                inner.insert(v.clone(), copies.len());
+                copies.push(Copy { column: v.clone(), role: Role::Bound });
+            }
+            flatten(body, &inner, copies, factors, place)?;
+        }
+        Formula::Ratio { .. } => return Err(unsupported(place, "it divides one sum by another")),
+    }
+    Ok(())
+}
+
+/// The factors in an order where each one's given copies come first,
+/// marking those that take the rows' own values: a factor does when every
+/// copy taken from the rows so far is exactly what it is given (a chain of
+/// observed conditionals), its node is not yet taken from the rows, and it
+/// is not the outcome's.
+fn chain(copies: &[Copy], mut left: Vec<Factor>, place: &str) -> Result<Vec<(Factor, bool)>, QueryError> {
+    let mut ready = vec![false; copies.len()];
+    copies.iter().enumerate().filter(|(_, c)| matches!(c.role, Role::Set | Role::Fixed)).for_each(|(i, _)| ready[i] = true);
+    let mut rows: Vec<usize> = Vec::new();
+    let mut out = Vec::with_capacity(left.len());
+    while !left.is_empty() {
+        let can_run = |f: &Factor| f.given.iter().all(|&g| ready[g]);
+        let takes_rows = |f: &Factor| {
+            copies[f.of].role == Role::Bound
+                && f.given.len() == rows.len()
+                && f.given.iter().all(|g| rows.contains(g))
+                && !rows.iter().any(|&r| copies[r].column == copies[f.of].column)
+        };
+        let pick = left.iter().position(|f| can_run(f) && takes_rows(f)).or_else(|| left.iter().position(can_run));
+        let Some(k) = pick else {
+            let stuck: Vec<&str> = left.iter().map(|f| copies[f.of].column.as_str()).collect();
+            return Err(unsupported(place, &format!("its factors for {} do not chain (each needs another drawn first)", stuck.join(", "))));
+        };
+        let f = left.remove(k);
+        let from_rows = takes_rows(&f);
+        if from_rows {
+            rows.push(f.of);
+        }
+        ready[f.of] = true;
+        out.push((f, from_rows));
+    }
+    Ok(out)
+}
+
+/// Build and fit `node from given… using T`, with the family of the node's kind.
+fn fit_conditional(
+    table: &Table,
+    node: &str,
+    given: &[String],
+    method: &Method,
+    cancel: &AtomicBool,
+    progress: &(dyn Fn(Progress) + Sync),
+    place: &str,
+) -> Result<FittedConditional, QueryError> {
+    let category = require_column(table, node, place)?.data.levels().is_some();
+    let mut lines = vec![if given.is_empty() {
+        format!("{node} using {}", table.name)
+    } else {
+        format!("{node} from {} using {}", given.join(", "), table.name)
+    }];
+    if !category {
+        let family = family_for(table, node, place)?;
+        if family != Family::Normal {
+            lines.push(format!("family {}", family.name()));
+        }
+    }
+    let name = if given.is_empty() { format!("formula_{node}") } else { format!("formula_{node}_from_{}", given.join("_")) };
+    let spec = ModelSpec::from_lines(&name, lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))?;
+    let model = Model::build(&spec, table)?;
+    let fit = fit_model(&model, method, cancel, progress).map_err(|e| QueryError::Fit { what: format!("model {name}"), message: e.to_string() })?;
+    Ok(FittedConditional { node: node.to_string(), given: given.to_vec(), model, fit, text: lines.join("\n") })
+}
+
+/// `E[y | do(x = setting)]` at posterior draw `d`: the chain simulated
+/// over the rows, the outcome's mean averaged.
+fn mean_under(
+    plan: &Plan,
+    table: &Table,
+    setting: &Setting,
+    conditionals: &[FittedConditional],
+    params: &[Vec<Vec<f64>>],
+    d: usize,
+) -> Result<f64, QueryError> {
+    let n = table.nrows();
+    let mut values: Vec<Option<Column>> = vec![None; plan.copies.len()];
+    for (i, copy) in plan.copies.iter().enumerate() {
+        values[i] = match copy.role {
+            Role::Set => Some(setting.column(&copy.column, n)),
+            Role::Fixed => table.column(&copy.column).cloned(),
+            _ => None,
+        };
+    }
+    for (step, (f, source)) in plan.steps.iter().enumerate() {
+        let column = &plan.copies[f.of].column;
+        let k = match source {
+            Source::Rows => {
+                values[f.of] = table.column(column).cloned();
+                continue;
+            }
+            Source::Fitted(k) => *k,
+        };
+        let given = Table { name: table.name.clone(), columns: f.given.iter().filter_map(|&g| values[g].clone()).collect() };
+        let model = &conditionals[k].model;
+        let rows = if f.given.is_empty() { model.new_rows(table)? } else { model.new_rows(&given)? };
+        if plan.copies[f.of].role == Role::Outcome {
+            let mean = model.predict_mean(&params[k][d], &rows)?.mean;
+            return Ok(mean.iter().sum::<f64>() / mean.len().max(1) as f64);
+        }
+        let mut rng = StdRng::seed_from_u64(stream_seed(FORMULA_SEED, d as u64, step as u64 + 1));
+        let drawn = model.outcome_draw(&params[k][d], &rows, &mut rng)?;
+        values[f.of] = Some(drawn_column(model, column, drawn));
+    }
+    Err(QueryError::request("the formula's simulation ended before the outcome"))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn s(v: &[&str]) -> Vec<String> {
+        v.iter().map(|x| x.to_string()).collect()
+    }
+
+    #[test]
+    fn front_door_takes_the_exposure_from_the_rows_and_draws_the_mediator() {
+        // Pearl 2009, eq. 3.42 (recalled): sum_m P(m|x) sum_x' P(y|x',m) P(x').
+        let inner = Formula::sum(s(&["x"]), Formula::product(vec![Formula::probability(s(&["y"]), s(&["x", "m"])), Formula::probability(s(&["x"]), vec![])]));
+        let f = Formula::sum(s(&["m"]), Formula::product(vec![Formula::probability(s(&["m"]), s(&["x"])), inner]));
+        let plan = plan(&f, "x", "y", &[], "test").unwrap();
+        let sources: Vec<(String, bool)> = plan.steps.iter().map(|(f, s)| (plan.copies[f.of].column.clone(), *s == Source::Rows)).collect();
+        assert_eq!(sources, vec![("x".into(), true), ("m".into(), false), ("y".into(), false)]);
+        assert_eq!(plan.conditionals, vec![("m".to_string(), s(&["x"])), ("y".to_string(), s(&["x", "m"]))]);
+        // The outcome's x is the copy from the rows, not the set one.
+        let (y_factor, _) = &plan.steps[2];
+        assert_eq!(plan.copies[y_factor.given[0]].role, Role::Bound);
+    }
+
+    #[test]
+    fn two_independent_marginals_are_not_both_taken_from_one_row() {
+        // sum_a sum_b P(a) P(b) P(y | x, a, b): a and b independent; one row
+        // holds them jointly, so only the first comes from the rows.
+        let f = Formula::sum(
+            s(&["a", "b"]),
+            Formula::product(vec![Formula::probability(s(&["a"]), vec![]), Formula::probability(s(&["b"]), vec![]), Formula::probability(s(&["y"]), s(&["x", "a", "b"]))]),
+        );
+        let plan = plan(&f, "x", "y", &[], "test").unwrap();
+        let from_rows: Vec<bool> = plan.steps.iter().map(|(_, s)| *s == Source::Rows).collect();
+        assert_eq!(from_rows, vec![true, false, false]);
+    }
+
+    #[test]
+    fn ratios_and_unchained_factors_are_refused() {
+        let ratio = Formula::ratio(Formula::probability(s(&["y"]), s(&["x"])), Formula::probability(s(&["x"]), vec![]));
+        let e = plan(&ratio, "x", "y", &[], "test").unwrap_err().to_string();
+        assert!(e.contains("divides"), "{e}");
+        let cycle = Formula::sum(
+            s(&["a", "b"]),
+            Formula::product(vec![Formula::probability(s(&["a"]), s(&["b"])), Formula::probability(s(&["b"]), s(&["a"])), Formula::probability(s(&["y"]), s(&["x", "a"]))]),
+        );
+        let e = plan(&cycle, "x", "y", &[], "test").unwrap_err().to_string();
+        assert!(e.contains("do not chain"), "{e}");
+    }
+}
