@@ -27,7 +27,7 @@ use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
-use super::terms::groups::{SlopeEvidence, VaryingSlope};
+use super::terms::groups::{GroupLayout, SlopeEvidence, VaryingSlope};
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
 use super::prior::short_number;
 
@@ -58,7 +58,11 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     let information = row_information(&spec.family, &outcome);
     let group_rows = fitted_group_rows(&groups, table)?;
     for (group, rows) in groups.iter_mut().zip(&group_rows) {
-        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| *l);
+        let effects = 1 + group.slopes.len();
+        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| match *l {
+            GroupLayout::CentredFirst(n) if n >= effects => GroupLayout::Centred,
+            l => l,
+        });
         let (family, outcome, information) = match group.outcome_level {
             Some(ref level) => {
                 let one = one_level_outcome(&outcome, level.block + 1);
@@ -239,9 +243,21 @@ fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String
     ))
 }
 
-/// A `parameterise` line must name a pooled group of the model.
+/// A `parameterise` line must name a pooled group of the model, and
+/// `centred N` no more effects than the group has.
 fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), ModelError> {
-    for (name, _) in &spec.layouts {
+    for (name, layout) in &spec.layouts {
+        if let (GroupLayout::CentredFirst(n), Some(group)) = (layout, groups.iter().find(|g| g.column == *name)) {
+            let effects = 1 + group.slopes.len();
+            if *n > effects {
+                let names: Vec<&str> = std::iter::once("intercept").chain(group.slopes.iter().map(|s| s.column.as_str())).collect();
+                return Err(ModelError::syntax(format!(
+                    "`parameterise {name} centred {n}`: pooled {name} has {effects} effect{} ({}), so at most {effects} can be centred",
+                    if effects == 1 { "" } else { "s" },
+                    names.join(", ")
+                )));
+            }
+        }
         if !groups.iter().any(|g| g.column == *name) {
             let pooled: Vec<&str> = groups.iter().map(|g| g.column.as_str()).collect();
             return Err(ModelError::syntax(format!(

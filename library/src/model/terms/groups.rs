@@ -87,7 +87,7 @@ pub enum GroupLayout {
     NonCentred,
     /// A group with varying slopes whose first `n` effects (the intercept,
     /// then slopes in the order written) are centred and the rest
-    /// non-centred; chosen from the data only.
+    /// non-centred; chosen from the data, or by `parameterise c centred n`.
     CentredFirst(usize),
 }
 
@@ -290,8 +290,14 @@ impl GroupTerm {
             self.rows_per_level.iter().copied().min().unwrap_or(0),
             self.rows_per_level.iter().copied().max().unwrap_or(0),
         );
+        let centred_names = |n: usize| -> String {
+            std::iter::once("intercept").chain(self.slopes.iter().map(|s| s.column.as_str())).take(n).collect::<Vec<_>>().join(", ")
+        };
         let why = match &self.choice {
-            LayoutChoice::Declared => "as the parameterise line says".to_string(),
+            LayoutChoice::Declared => match self.layout {
+                GroupLayout::CentredFirst(n) => format!("as the parameterise line says; centred: {}, the rest non-centred", centred_names(n)),
+                _ => "as the parameterise line says".to_string(),
+            },
 
             LayoutChoice::FromData { median_ratio, rough_spread, slopes } => {
                 let mut why = format!(
@@ -312,12 +318,12 @@ impl GroupTerm {
                 let split = match self.layout {
                     GroupLayout::CentredFirst(n) => format!(
                         "; slopes below {SLOPE_CENTRED_AT} are sampled non-centred, with every slope after them (centred: {})",
-                        std::iter::once("intercept").chain(self.slopes.iter().map(|s| s.column.as_str())).take(n).collect::<Vec<_>>().join(", ")
+                        centred_names(n)
                     ),
                     _ => String::new(),
                 };
                 format!(
-                    "{why}; centred from {CENTRED_AT}{split}; a `parameterise {} centred|noncentred` line overrides this",
+                    "{why}; centred from {CENTRED_AT}{split}; a `parameterise {} centred|noncentred|centred N` line overrides this",
                     self.column
                 )
             }
