@@ -207,3 +207,44 @@ fn pooled_node_models_are_refused_where_the_graph_says_no() {
     let e = intervene(&joint, &fit, &table, &request(GroupQuestion::New { column: "site".into() })).expect_err("nothing pools site");
     assert!(e.to_string().contains("pools site"), "{e}");
 }
+
+/// The same three questions asked in cells: `in new site`, `in site s2`
+/// and neither, each named in the result's `pooled` notes; a lone `in` is
+/// refused with the form to write. (The numbers are checked above.)
+#[test]
+fn intervene_cells_name_the_question_they_answer() {
+    use waypath::cells::{RunControl, Session};
+    let mut session = Session::new(".");
+    let cancel = AtomicBool::new(false);
+    let progress = |_: &str| {};
+    let mut run = |cell: &str| session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress });
+    let setup = "graph g:
+    cover -> litter -> insects
+    cover -> insects
+    site -> litter
+    site -> insects
+simulate field from g rows 400 seed 11:
+    site = category(s1 0.25, s2 0.25, s3 0.25, s4 0.25)
+    cover = normal(0, 1)
+    litter = normal(1 + 0.5 * cover + departure(site, 0.8), 0.5)
+    insects = normal(2 + 0.7 * litter + 0.3 * cover + departure(site, 0.6), 0.5)
+joint whole = g using field:
+    litter from cover, pooled site
+    insects from litter, cover, pooled site
+fit whole with nuts chains 1 settle 200 draws 200 seed 3
+";
+    let out = run(setup);
+    assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
+    for (words, said) in [(" in new site", "every row in one new site"), (" in site s2", "existing site s2"), ("", "own site")] {
+        let out = run(&format!("intervene whole: set cover 1 vs 0, watch insects{words} seed 4"));
+        assert!(out.error.is_none(), "{words}: {}", out.error.map(|e| e.describe()).unwrap_or_default());
+        let json = out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure");
+        let pooled: Vec<String> = json["pooled"].as_array().expect("pooled notes").iter().map(|v| v.as_str().unwrap().to_string()).collect();
+        assert_eq!(pooled.len(), 2, "{pooled:?}");
+        assert!(pooled.iter().all(|n| n.contains(said)), "{words}: {pooled:?}");
+        assert!(out.displays.iter().any(|d| d.plain.contains(said)), "{words}: the notes say it");
+    }
+    let out = run("intervene whole: set cover 1 vs 0, watch insects in site");
+    let e = out.error.expect("a lone `in` is refused").describe();
+    assert!(e.contains("`in` takes a pooled column"), "{e}");
+}
