@@ -588,3 +588,32 @@ fn a_declared_partly_centred_group_is_one_density_with_the_centred_one() {
     let none = build_error(&body("centred 0"), &table);
     assert!(none.contains("noncentred"), "{none}");
 }
+
+/// The model cell's table says which effects a `centred N` line centres.
+#[test]
+fn the_model_cell_names_the_centred_effects() {
+    use std::sync::atomic::AtomicBool;
+    use waypath::cells::{RunControl, Session};
+    let mut session = Session::new(".");
+    let cancel = AtomicBool::new(false);
+    let progress = |_: &str| {};
+    let cell = "graph g:
+    x -> y
+    w -> y
+    site -> y
+simulate t from g rows 120 seed 4:
+    site = category(s1 0.25, s2 0.25, s3 0.25, s4 0.25)
+    x = normal(0, 1)
+    w = normal(0, 1)
+    y = normal(1 + x + w + departure(site, 0.5), 1)
+model m:
+    y from x, w, pooled site with (x, w) using t
+    parameterise site centred 2
+";
+    let out = session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress });
+    assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
+    let shown = out.displays.last().expect("the model's table");
+    let said = "sampled partly centred (as the parameterise line says; centred: intercept, x, the rest non-centred)";
+    assert!(shown.plain.contains(said), "{}", shown.plain);
+    assert!(shown.html.as_deref().is_some_and(|h| h.contains("centred: intercept, x")), "the HTML too");
+}
