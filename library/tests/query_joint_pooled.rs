@@ -244,6 +244,20 @@ fit whole with nuts chains 1 settle 200 draws 200 seed 3
         assert!(pooled.iter().all(|n| n.contains(said)), "{words}: {pooled:?}");
         assert!(out.displays.iter().any(|d| d.plain.contains(said)), "{words}: the notes say it");
     }
+    // A pooled column the intervened node causes cannot be held at one level.
+    let downstream = "graph h:
+    cover -> site -> insects
+    cover -> insects
+simulate plots from h rows 300 seed 12:
+    cover = normal(0, 1)
+    site = category(s1 0.5, s2 0.5)
+    insects = normal(cover + departure(site, 0.5), 1)
+joint down = h using plots:
+    insects from cover, pooled site
+fit down with nuts chains 1 settle 100 draws 100 seed 3
+intervene down: set cover 1 vs 0, watch insects in site s1";
+    let e = run(downstream).error.expect("a pooled column downstream of the exposure").describe();
+    assert!(e.contains("site is caused by cover"), "{e}");
     let out = run("intervene whole: set cover 1 vs 0, watch insects in site");
     let e = out.error.expect("a lone `in` is refused").describe();
     assert!(e.contains("`in` takes a pooled column"), "{e}");

@@ -162,6 +162,7 @@ pub fn intervene_with_cancel(
     let (base, rows_source) = base_rows(table, request)?;
     let steps = simulation_steps(joint, fit, &simulated, &place)?;
     let pooled = group_question_notes(&steps, &request.groups, &place)?;
+    refuse_groups_downstream(joint, x, &request.groups, &place)?;
     let base = match &request.groups {
         GroupQuestion::Existing { column, level } => {
             let setting = Setting::read(require_column(table, column, &place)?, level, &place)?;
@@ -227,6 +228,21 @@ pub fn intervene_with_cancel(
         pooled,
         warnings,
     })
+}
+
+/// An error when `in …` names a pooled column that the intervened node
+/// causes: putting every row in one of its levels would cut the effect
+/// that runs through it.
+fn refuse_groups_downstream(joint: &JointModel, x: &str, question: &GroupQuestion, place: &str) -> Result<(), QueryError> {
+    let (GroupQuestion::Existing { column, .. } | GroupQuestion::New { column }) = question else { return Ok(()) };
+    if joint.graph.nodes().iter().any(|n| n.name == *column) && joint.graph.descendants(x)?.contains(&column.as_str()) {
+        return Err(QueryError::request(format!(
+            "{place}: {column} is caused by {x} in graph {}, so placing every row in one {column} would cut part of the \
+             effect; leave out `in …` to let {column} follow the intervention",
+            joint.graph.name()
+        )));
+    }
+    Ok(())
 }
 
 /// What each simulated node model with pooled groups answers under
