@@ -256,8 +256,6 @@ fn pooled_groups_are_labelled_by_level_and_named_spreads() {
 #[test]
 fn bad_pooled_cells_are_refused_with_the_place_named() {
     let table = orchard_with_plots(80, 1);
-    let levels = build_error("soil from girth, pooled plot using trees", &table);
-    assert!(levels.contains("pooled plot") && levels.contains("levels"), "{levels}");
     let real = build_error("yield from pooled girth using trees", &table);
     assert!(real.contains("girth") && real.contains("category"), "{real}");
     let twice = build_error("yield from soil, pooled soil using trees", &table);

@@ -67,6 +67,7 @@ fn both_routes(table: &Table, g: &Graph, method: &Method) -> RouteEstimates {
         rows: None,
         seed: 9,
         mass: 0.9,
+        groups: waypath::query::GroupQuestion::Observed,
     };
     let result = intervene(&joint, &fit, table, &request).expect("intervene");
     let w = &result.watched[0];
@@ -243,6 +244,7 @@ fn joint_model_follows_the_graph_and_compares_with_adjustment() {
         rows: Some(500),
         seed: 3,
         mass: 0.9,
+        groups: waypath::query::GroupQuestion::Observed,
     };
     let result = intervene(&joint, &fit, &table, &request).expect("intervene");
     assert_eq!(result.simulated, vec!["girth", "yield"]);
@@ -279,6 +281,7 @@ fn a_hidden_mediator_makes_intervene_refuse() {
         rows: None,
         seed: 1,
         mass: 0.9,
+        groups: waypath::query::GroupQuestion::Observed,
     };
     let error = intervene(&joint, &fit, &table, &request).expect_err("refused").to_string();
     assert!(error.contains("runs through the hidden node litter") && error.contains("not identifiable"), "{error}");

@@ -20,14 +20,14 @@ use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
 use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
 use super::family::shaped::{moment_overdispersion, moment_precision, BetaShare};
-use super::family::softmax::SoftmaxData;
+use super::family::softmax::{level_prefix, DepartureRun, SoftmaxData};
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
-use super::terms::groups::{SlopeEvidence, VaryingSlope};
+use super::terms::groups::{GroupLayout, SlopeEvidence, VaryingSlope};
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
 use super::prior::short_number;
 
@@ -49,7 +49,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_scales(spec, table)?;
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
-    let mut groups = plan_groups(spec, table, &recipes)?;
+    let mut groups = for_outcome_levels(plan_groups(spec, table, &recipes)?, spec, outcome.levels.as_deref());
     let blocks = predictor_blocks(spec, &outcome);
     let design = design_matrix(&recipes, table)?;
     let columns = column_spread(&design);
@@ -58,10 +58,22 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     let information = row_information(&spec.family, &outcome);
     let group_rows = fitted_group_rows(&groups, table)?;
     for (group, rows) in groups.iter_mut().zip(&group_rows) {
-        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| *l);
-        let means = level_link_means(&spec.family, &outcome, rows, group.levels.len());
+        let effects = 1 + group.slopes.len();
+        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| match *l {
+            GroupLayout::CentredFirst(n) if n >= effects => GroupLayout::Centred,
+            l => l,
+        });
+        let (family, outcome, information) = match group.outcome_level {
+            Some(ref level) => {
+                let one = one_level_outcome(&outcome, level.block + 1);
+                let information = row_information(&Family::Bernoulli, &one);
+                (Family::Bernoulli, one, information)
+            }
+            None => (spec.family.clone(), outcome.clone(), information),
+        };
+        let means = level_link_means(&family, &outcome, rows, group.levels.len());
         let evidence: Vec<SlopeEvidence> =
-            group.slopes.iter().map(|s| slope_evidence(&spec.family, &outcome, design.column(s.design_column).as_slice(), rows, group.levels.len())).collect();
+            group.slopes.iter().map(|s| slope_evidence(&family, &outcome, design.column(s.design_column).as_slice(), rows, group.levels.len())).collect();
         group.settle_layout(declared, information, &means, &evidence);
         notes.push(group.note());
     }
@@ -74,7 +86,8 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             if spec.correlation_prior.is_some() { "" } else { " (the default; `prior pooled correlations: lkj(η)` sets η)" }
         ));
     }
-    let pooling = Pooling::new(&groups, &priors.group_spreads, &priors.slope_spreads, priors.correlation_lkj, single_intercept);
+    let pooling =
+        Pooling::new(&groups, &priors.group_spreads, &priors.slope_spreads, priors.correlation_lkj, single_intercept, design.ncols());
     if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
         notes.push(format!(
             "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
@@ -133,7 +146,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         }
         (None, Some(levels)) => {
             notes.extend(level_notes(spec, levels, &outcome));
-            Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len()))
+            Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len(), &groups, &group_rows))
         }
         (None, None) => {
             Likelihood::Glm(glm_data(&design, &spec.family, &outcome).with_groups(group_indices(&design, &groups, &group_rows)))
@@ -163,23 +176,12 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     })
 }
 
-/// The pooled groups of `spec` planned on `table`; refused for the levels
-/// family and checked against the memory the likelihood's copy of their
-/// indicator columns needs.
+/// The pooled groups of `spec` planned on `table`, checked against the
+/// memory the likelihood's copy of their indicator columns needs.
 fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Result<Vec<GroupTerm>, ModelError> {
     let mut groups = Vec::new();
     for term in &spec.terms {
         let TermSpec::Pooled { by, with } = term else { continue };
-        if spec.family == Family::Levels {
-            return Err(ModelError::Term {
-                term: term.to_string(),
-                message: format!(
-                    "pooled groups are not available for a category outcome (family levels) yet; model {} with \
-                     `{by}` as an ordinary term (one intercept or offset per level) instead",
-                    spec.outcome
-                ),
-            });
-        }
         let mut group = GroupTerm::plan(by, table).map_err(|e| match e {
             ModelError::Syntax { message } => ModelError::Term { term: term.to_string(), message },
             other => other,
@@ -204,6 +206,27 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
     Ok(groups)
 }
 
+/// A category outcome's pooled groups: each planned group once per outcome
+/// level after the reference (`levels`, reference first), each copy with
+/// its own spread and departures on that level's log odds; other
+/// outcomes' groups unchanged.
+fn for_outcome_levels(groups: Vec<GroupTerm>, spec: &ModelSpec, levels: Option<&[String]>) -> Vec<GroupTerm> {
+    let Some(levels) = levels.filter(|_| spec.family == Family::Levels) else { return groups };
+    groups
+        .iter()
+        .flat_map(|g| {
+            levels[1..].iter().enumerate().map(|(block, level)| g.for_outcome_level(block, level_prefix(&spec.outcome, level, &levels[0])))
+        })
+        .collect()
+}
+
+/// A category outcome as a yes/no outcome of level `level` (index), for
+/// choosing how that level's pooled departures are sampled.
+fn one_level_outcome(outcome: &OutcomeValues, level: usize) -> OutcomeValues {
+    let y = outcome.y.iter().map(|&v| f64::from(u8::from(v as usize == level))).collect();
+    OutcomeValues { y, trials: None, levels: None }
+}
+
 /// The varying slope of predictor `x`: `x` must enter the model as a plain
 /// slope (the population slope the levels depart from).
 fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String> {
@@ -220,9 +243,21 @@ fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String
     ))
 }
 
-/// A `parameterise` line must name a pooled group of the model.
+/// A `parameterise` line must name a pooled group of the model, and
+/// `centred N` no more effects than the group has.
 fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), ModelError> {
-    for (name, _) in &spec.layouts {
+    for (name, layout) in &spec.layouts {
+        if let (GroupLayout::CentredFirst(n), Some(group)) = (layout, groups.iter().find(|g| g.column == *name)) {
+            let effects = 1 + group.slopes.len();
+            if *n > effects {
+                let names: Vec<&str> = std::iter::once("intercept").chain(group.slopes.iter().map(|s| s.column.as_str())).collect();
+                return Err(ModelError::syntax(format!(
+                    "`parameterise {name} centred {n}`: pooled {name} has {effects} effect{} ({}), so at most {effects} can be centred",
+                    if effects == 1 { "" } else { "s" },
+                    names.join(", ")
+                )));
+            }
+        }
         if !groups.iter().any(|g| g.column == *name) {
             let pooled: Vec<&str> = groups.iter().map(|g| g.column.as_str()).collect();
             return Err(ModelError::syntax(format!(
@@ -401,10 +436,14 @@ pub(super) fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &Outcome
     GlmData::new(rows, design.ncols(), glm_outcome)
 }
 
-/// The design as rows for the levels family, with each row's level index.
-pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize) -> SoftmaxData {
-    let rows: Vec<f64> = design.transpose().as_slice().to_vec();
-    SoftmaxData::new(rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels)
+/// The design as rows for the levels family, with each row's level index
+/// and the pooled groups' runs of departures, each on its outcome level's
+/// linear predictor.
+pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize, groups: &[GroupTerm], rows: &[Vec<usize>]) -> SoftmaxData {
+    let design_rows: Vec<f64> = design.transpose().as_slice().to_vec();
+    let blocks = groups.iter().flat_map(|g| std::iter::repeat_n(g.block(), 1 + g.slopes.len()));
+    let runs = blocks.zip(group_indices(design, groups, rows)).map(|(block, indices)| DepartureRun { block, indices }).collect();
+    SoftmaxData::new(design_rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels).with_runs(runs)
 }
 
 /// The family parameter's starting value: the outcome's sd for the

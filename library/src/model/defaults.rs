@@ -177,8 +177,11 @@ pub fn assign_priors(
     check_declared(spec, recipes, groups)?;
     let target = budget_target(&spec.family, outcome);
     let intercepts = super::build::intercept_columns(recipes);
-    let slopes = groups.iter().map(|g| g.slopes.len()).sum::<usize>();
-    let varying = columns.sd.len() - intercepts.len() + groups.len() + slopes;
+    // A category outcome pools each column once per linear predictor; the
+    // budget is per linear predictor, so count the first predictor's groups.
+    let first_block = || groups.iter().filter(|g| g.block() == 0);
+    let slopes = first_block().map(|g| g.slopes.len()).sum::<usize>();
+    let varying = columns.sd.len() - intercepts.len() + first_block().count() + slopes;
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
@@ -238,7 +241,7 @@ pub fn assign_priors(
         let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target / (varying.max(1) as f64).sqrt() });
         plan.uses.push(PriorUse {
             group: PriorGroup::PooledSpreads,
-            parameters: vec![group_spread_label(&group.column)],
+            parameters: vec![format!("{}{}", group.label_prefix(), group_spread_label(&group.column))],
             prior: prior.clone(),
             declared: declared.is_some(),
             at_average_row: false,
@@ -252,7 +255,7 @@ pub fn assign_priors(
                 let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: share });
                 plan.uses.push(PriorUse {
                     group: PriorGroup::PooledSpreads,
-                    parameters: vec![group_spread_label(&format!("{} {}", group.column, slope.column))],
+                    parameters: vec![format!("{}{}", group.label_prefix(), group_spread_label(&format!("{} {}", group.column, slope.column)))],
                     prior: prior.clone(),
                     declared: declared.is_some(),
                     at_average_row: false,

@@ -145,7 +145,7 @@ impl Model {
                     glm_data(&design, &self.family, &outcome).with_groups(group_indices(&design, &self.groups, &group_rows)),
                 )
             }
-            Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len))),
+            Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len), &self.groups, &group_rows)),
         };
         Ok(Model { design, y, group_rows, likelihood, ..self.clone() })
     }

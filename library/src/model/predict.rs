@@ -103,8 +103,9 @@ impl Model {
             });
         }
         let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
-        let mut linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
+        let mut linear = vec![(&rows.design * beta).iter().copied().collect::<Vec<f64>>()];
         self.add_departures(params, rows, new_group, &mut linear);
+        let linear = linear.swap_remove(0);
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
     }
@@ -114,6 +115,14 @@ impl Model {
     /// parameters `params`: the softmax of the levels' linear predictors.
     /// Levels family only.
     pub fn level_probabilities(&self, params: &[f64], rows: &NewRows) -> Result<Vec<Vec<f64>>, ModelError> {
+        self.level_probabilities_in_new_groups(params, rows, &[])
+    }
+
+    /// [`Model::level_probabilities`] with `new_group` as in
+    /// [`Model::predict_mean_in_new_groups`]: for a category outcome one
+    /// departure per outcome level after the reference (and per varying
+    /// slope), in parameter order.
+    pub fn level_probabilities_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Vec<Vec<f64>>, ModelError> {
         self.check_length(params)?;
         let levels = self.outcome_levels().ok_or_else(|| ModelError::Family {
             message: format!("model `{}` has a {} outcome, not a category, so it has no level probabilities", self.name, self.family.name()),
@@ -122,7 +131,8 @@ impl Model {
         let blocks: Vec<nalgebra::DVector<f64>> = (1..levels.len())
             .map(|k| nalgebra::DVector::from_column_slice(&params[(k - 1) * width..k * width]))
             .collect();
-        let eta: Vec<nalgebra::DVector<f64>> = blocks.iter().map(|b| &rows.design * b).collect();
+        let mut eta: Vec<Vec<f64>> = blocks.iter().map(|b| (&rows.design * b).iter().copied().collect()).collect();
+        self.add_departures(params, rows, new_group, &mut eta);
         Ok((0..rows.design.nrows())
             .map(|i| level_probabilities(&eta.iter().map(|e| e[i]).collect::<Vec<f64>>()))
             .collect())
@@ -147,7 +157,7 @@ impl Model {
         rng: &mut R,
     ) -> Result<Vec<f64>, ModelError> {
         if self.outcome_levels().is_some() {
-            let probabilities = self.level_probabilities(params, rows)?;
+            let probabilities = self.level_probabilities_in_new_groups(params, rows, new_group)?;
             return Ok(probabilities.iter().map(|p| draw_level(p, rng.random::<f64>()) as f64).collect());
         }
         let prediction = self.predict_mean_in_new_groups(params, rows, new_group)?;
@@ -162,12 +172,15 @@ impl Model {
     /// predictor (`new_group[run]`, or nothing, for a row of a new group;
     /// one run per group and per varying slope, in parameter order). A
     /// varying slope's departure is multiplied by the row's value of the
-    /// predictor's design column.
-    fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear: &mut [f64]) {
+    /// predictor's design column. `linear` holds one linear predictor per
+    /// block (a category outcome's levels after the reference; one for
+    /// other families), and each group adds to its own block's.
+    fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear_by_block: &mut [Vec<f64>]) {
         let mut at = self.first_group_index();
         let mut run = 0;
         for (group, levels) in self.groups.iter().zip(&rows.groups) {
             let n = group.levels.len();
+            let linear = &mut linear_by_block[group.block()];
             let weights = std::iter::once(None).chain(group.slopes.iter().map(|s| Some(rows.design.column(s.design_column))));
             for weight in weights {
                 let departures = &params[at + 1..at + 1 + n];
@@ -325,7 +338,7 @@ impl Model {
                         message: format!("model `{}`: {bad} is not the index of one of its {count} outcome levels", self.name),
                     });
                 }
-                Likelihood::Softmax(softmax_data(&self.design, &y, count))
+                Likelihood::Softmax(softmax_data(&self.design, &y, count, &self.groups, &self.group_rows))
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })

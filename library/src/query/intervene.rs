@@ -15,6 +15,18 @@
 //! that level. When a watched node depends on X through a hidden node (a
 //! hidden mediator), the joint model has nothing to simulate that route
 //! with, and the intervention is refused rather than reported without it.
+//!
+//! **Pooled node models.** A node model may pool a column (`y from m,
+//! pooled site`), and the simulation then answers one of three questions,
+//! named in the result ([`GroupQuestion`]): each row keeps its own
+//! group's departure (the observed groups, in the rows' proportions — the
+//! default), every row sits in one existing group (`in site north`), or
+//! every row sits in one new group whose departures each draw takes from
+//! the population (`in new site`: per draw and node model, the departures
+//! a new group gets from its spreads and correlations, the same under both
+//! settings so the contrast stays paired). A pooled column that is not a
+//! node of the graph is taken as a marker of clusters fixed before any
+//! intervention.
 
 use std::sync::atomic::AtomicBool;
 
@@ -41,6 +53,20 @@ pub struct InterventionRequest {
     pub rows: Option<usize>,
     pub seed: u64,
     pub mass: f64,
+    /// Which groups the rows sit in, for node models with pooled groups.
+    pub groups: GroupQuestion,
+}
+
+/// Which of three questions a simulation through pooled node models answers.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum GroupQuestion {
+    /// Each row keeps its own group's departure (the observed groups).
+    Observed,
+    /// Every row in the existing level `level` of pooled column `column`.
+    Existing { column: String, level: String },
+    /// Every row in one new group of pooled column `column`, its
+    /// departures drawn from the population per posterior draw.
+    New { column: String },
 }
 
 /// The contrast of one watched node (or one level of a watched category
@@ -83,6 +109,9 @@ pub struct InterventionResult {
     /// The nodes drawn from their models (descendants of the intervened node).
     pub simulated: Vec<String>,
     pub watched: Vec<WatchedContrast>,
+    /// Which question each simulated node model with pooled groups
+    /// answers, in words (empty when none pools a column).
+    pub pooled: Vec<String>,
     pub warnings: Vec<String>,
 }
 
@@ -132,14 +161,27 @@ pub fn intervene_with_cancel(
     check_rows_memory(table, request, simulated.len(), &place)?;
     let (base, rows_source) = base_rows(table, request)?;
     let steps = simulation_steps(joint, fit, &simulated, &place)?;
+    let pooled = group_question_notes(&steps, &request.groups, &place)?;
+    refuse_groups_downstream(joint, x, &request.groups, &place)?;
+    let base = match &request.groups {
+        GroupQuestion::Existing { column, level } => {
+            let setting = Setting::read(require_column(table, column, &place)?, level, &place)?;
+            with_column(&base, setting.column(column, base.nrows()))
+        }
+        _ => base,
+    };
+    let new_column = match &request.groups {
+        GroupQuestion::New { column } => Some(column.as_str()),
+        _ => None,
+    };
     let draws = fit.fits.iter().flatten().map(|f| f.draws.len()).min().ok_or_else(|| {
         QueryError::request(format!("{place}: the joint model has no fitted regression; fit it first"))
     })?;
     let mut per_target = vec![(Vec::with_capacity(draws), Vec::with_capacity(draws)); targets.len()];
     for d in 0..draws {
         QueryError::stop_if(cancel, &place)?;
-        let under_to = simulate_draw(&base, x, &to, &steps, d, request.seed)?;
-        let under_from = simulate_draw(&base, x, &from, &steps, d, request.seed)?;
+        let under_to = simulate_draw(&base, x, &to, &steps, d, request.seed, new_column)?;
+        let under_from = simulate_draw(&base, x, &from, &steps, d, request.seed, new_column)?;
         for (target, (values_to, values_from)) in targets.iter().zip(per_target.iter_mut()) {
             values_to.push(target.value(&under_to));
             values_from.push(target.value(&under_from));
@@ -183,8 +225,71 @@ pub fn intervene_with_cancel(
         interval: interval_words(request.mass),
         simulated,
         watched,
+        pooled,
         warnings,
     })
+}
+
+/// An error when `in …` names a pooled column that the intervened node
+/// causes: putting every row in one of its levels would cut the effect
+/// that runs through it.
+fn refuse_groups_downstream(joint: &JointModel, x: &str, question: &GroupQuestion, place: &str) -> Result<(), QueryError> {
+    let (GroupQuestion::Existing { column, .. } | GroupQuestion::New { column }) = question else { return Ok(()) };
+    if joint.graph.nodes().iter().any(|n| n.name == *column) && joint.graph.descendants(x)?.contains(&column.as_str()) {
+        return Err(QueryError::request(format!(
+            "{place}: {column} is caused by {x} in graph {}, so placing every row in one {column} would cut part of the \
+             effect; leave out `in …` to let {column} follow the intervention",
+            joint.graph.name()
+        )));
+    }
+    Ok(())
+}
+
+/// What each simulated node model with pooled groups answers under
+/// `question`; an error when the question names a column no simulated
+/// node model pools.
+fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -> Result<Vec<String>, QueryError> {
+    let pools = |step: &Step, column: &str| step.model.pooled_groups().iter().any(|g| g.column == column);
+    let asked = match question {
+        GroupQuestion::Observed => None,
+        GroupQuestion::Existing { column, .. } | GroupQuestion::New { column } => Some(column.as_str()),
+    };
+    if let Some(column) = asked.filter(|c| !steps.iter().any(|s| pools(s, c))) {
+        let pooling: Vec<&str> = steps.iter().filter(|s| !s.model.pooled_groups().is_empty()).map(|s| s.node).collect();
+        return Err(QueryError::request(format!(
+            "{place}: no node model this intervention simulates pools {column} ({}); name a column one of them pools, or \
+             leave out `in …` to keep each row's own group",
+            if pooling.is_empty() { "none pools a column".to_string() } else { format!("pooled: {}", pooling.join(", ")) }
+        )));
+    }
+    let mut notes = Vec::new();
+    for step in steps {
+        let mut seen: Vec<&str> = Vec::new();
+        for group in step.model.pooled_groups() {
+            let c = group.column.as_str();
+            if seen.contains(&c) {
+                continue;
+            }
+            seen.push(c);
+            notes.push(match question {
+                GroupQuestion::Existing { column, level } if column == c => {
+                    format!("{}: pooled {c}, every row in the existing {c} {level}, with its own departure", step.node)
+                }
+                GroupQuestion::New { column } if column == c => format!(
+                    "{}: pooled {c}, every row in one new {c} drawn from the population: each draw takes that {c}'s \
+                     departures from the learned spread{}, the same under both settings",
+                    step.node,
+                    if group.slopes.is_empty() { "" } else { "s and correlations" }
+                ),
+                _ => format!(
+                    "{}: pooled {c}, each row keeping its own {c}'s departure (averaged over the observed {c} levels in \
+                     the rows); `in {c} LEVEL` asks for an existing one, `in new {c}` for a new one",
+                    step.node
+                ),
+            });
+        }
+    }
+    Ok(notes)
 }
 
 /// An error when a watched node depends on `x` through a hidden node: the
@@ -345,6 +450,10 @@ fn pick_rows(data: &ColumnData, picks: &[usize]) -> ColumnData {
     }
 }
 
+/// Mixed into the seed of a new group's departures, so that they do not
+/// share a stream with the outcomes' noise.
+const NEW_GROUP_STREAM: u64 = 0x6e65_775f_6772_6f75;
+
 /// One simulated node: its model, its index (for the noise stream) and
 /// its parameter rows.
 struct Step<'a> {
@@ -377,13 +486,33 @@ fn simulation_steps<'a>(
     Ok(steps)
 }
 
-/// The rows after do(x = setting) at draw `d`.
-fn simulate_draw(base: &Table, x: &str, setting: &Setting, steps: &[Step], d: usize, seed: u64) -> Result<Table, QueryError> {
+/// The rows after do(x = setting) at draw `d`; with `new_column`, every
+/// row of a node model that pools it sits in one new group, whose
+/// departures come from their own stream (the same under both settings).
+fn simulate_draw(
+    base: &Table,
+    x: &str,
+    setting: &Setting,
+    steps: &[Step],
+    d: usize,
+    seed: u64,
+    new_column: Option<&str>,
+) -> Result<Table, QueryError> {
     let mut current = with_column(base, setting.column(x, base.nrows()));
     for step in steps {
-        let rows = step.model.new_rows(&current)?;
+        let mut rows = step.model.new_rows(&current)?;
+        let mut new = Vec::new();
+        if let Some(column) = new_column {
+            let mut group_rng = StdRng::seed_from_u64(stream_seed(seed ^ NEW_GROUP_STREAM, d as u64, step.index + 1));
+            new = step.model.new_group_departures(&step.params[d], &mut group_rng);
+            for (group, levels) in step.model.pooled_groups().iter().zip(rows.groups.iter_mut()) {
+                if group.column == column {
+                    levels.iter_mut().for_each(|l| *l = None);
+                }
+            }
+        }
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, step.index + 1));
-        let values = step.model.outcome_draw(&step.params[d], &rows, &mut rng)?;
+        let values = step.model.outcome_draw_in_new_groups(&step.params[d], &rows, &new, &mut rng)?;
         current = with_column(&current, drawn_column(step.model, step.node, values));
     }
     Ok(current)

@@ -26,7 +26,14 @@
 //! `x` instead: each level of c gets its own slope departure, drawn once
 //! from `normal(0, spread)` independently of every other departure, and a
 //! row takes its level's slope departure times its own `x` — what a varying
-//! slope (`pooled c with x`) assumes, with every correlation 0. A node's
+//! slope (`pooled c with x`) assumes, with every correlation 0.
+//! `departure(c, spread, x, correlation r)` states the correlation `r`
+//! (strictly between −1 and 1) of the slope's departures with the
+//! intercept's `departure(c, …)` of the same mechanism, which must be
+//! there: level j's slope departure is `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
+//! `z₀ⱼ` the intercept departure's standard score, so two slopes each
+//! correlated with the intercept correlate with each other by the product
+//! of their correlations. A node's
 //! mechanism may name each category in at most one `departure(c, …)` and
 //! each pair of category and slope in at most one `departure(c, …, x)`.
 //!
@@ -52,6 +59,9 @@ pub const FUNCTIONS: &[&str] = &[LOG, EXP, DEPARTURE];
 const EXP: &str = "exp";
 /// The word of a per-level departure drawn from a stated spread.
 pub const DEPARTURE: &str = "departure";
+/// The word before a slope departure's stated correlation with the
+/// intercept's (`departure(block, 0.1, girth, correlation 0.5)`).
+pub const CORRELATION_WORD: &str = "correlation";
 /// The deepest an expression may nest: parentheses, signs, functions and
 /// every operator of a chain each add one level. Evaluation recurses this
 /// deep, so the limit keeps a hostile line from overflowing the stack.
@@ -88,15 +98,19 @@ pub struct DepartureTerm {
     pub spread: f64,
     /// The numeric parent whose slope departs (`None`: the intercept's departure).
     pub slope: Option<String>,
+    /// A slope's stated correlation with the intercept's departures
+    /// (`None`: drawn independently of them).
+    pub correlation: Option<f64>,
 }
 
 impl DepartureTerm {
     /// `departure(block, 0.8)` or `departure(block, 0.1, girth)`, with the
     /// spread written out by `spread`.
     pub fn written(&self, spread: &str) -> String {
-        match &self.slope {
-            None => format!("{DEPARTURE}({}, {spread})", self.group),
-            Some(x) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
+        match (&self.slope, self.correlation) {
+            (None, _) => format!("{DEPARTURE}({}, {spread})", self.group),
+            (Some(x), None) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
+            (Some(x), Some(r)) => format!("{DEPARTURE}({}, {spread}, {x}, {CORRELATION_WORD} {r})", self.group),
         }
     }
 }
@@ -323,7 +337,26 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ),
         });
     }
+    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.group == t.group && u.slope.is_none())) {
+        return Err(format!(
+            "the mechanism of {name} states a correlation for departure({g}, …, {x}) with the intercept's departures, but draws \
+             no departure({g}, spread) for the intercept; add one, or leave the correlation out",
+            g = term.group,
+            x = term.slope.as_deref().unwrap_or("")
+        ));
+    }
     Ok(Some((name.to_string(), mechanism)))
+}
+
+/// The `correlation r` of `departure(c, spread, x, correlation r)`: r
+/// strictly between −1 and 1.
+fn read_correlation(stated: &str, inside: &str, form: &str) -> Result<f64, String> {
+    let value = stated.strip_prefix(CORRELATION_WORD).map(str::trim).ok_or_else(|| {
+        format!("the fourth part of `departure({inside})` must read `{CORRELATION_WORD} r`, not `{stated}`; write {form}")
+    })?;
+    value.parse().ok().filter(|r: &f64| r.abs() < 1.0).ok_or_else(|| {
+        format!("the correlation `{value}` in `departure({inside})` must be a number strictly between −1 and 1")
+    })
 }
 
 /// `logit = expr` → `expr` when the argument starts with that keyword.
@@ -563,14 +596,16 @@ impl Parser<'_> {
     /// spread, slope)` after its `(`, up to and including the `)`.
     fn departure(&mut self) -> Result<Expr, String> {
         let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8), \
-                    or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth)";
+                    or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth), \
+                    optionally correlated with the intercept's, like departure(block, 0.1, girth, correlation 0.5)";
         let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
         let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
         let inside = &self.text[start..start + close];
         let parts: Vec<&str> = inside.split(',').map(str::trim).collect();
-        let (group, spread, slope) = match parts[..] {
-            [group, spread] => (group, spread, None),
-            [group, spread, slope] => (group, spread, Some(slope)),
+        let (group, spread, slope, correlation) = match parts[..] {
+            [group, spread] => (group, spread, None, None),
+            [group, spread, slope] => (group, spread, Some(slope), None),
+            [group, spread, slope, stated] => (group, spread, Some(slope), Some(read_correlation(stated, inside, form)?)),
             _ => return Err(format!("`departure({inside})` needs the form {form}")),
         };
         for name in std::iter::once(group).chain(slope) {
@@ -587,7 +622,7 @@ impl Parser<'_> {
         while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
             self.at += 1;
         }
-        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string) }))
+        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string), correlation }))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

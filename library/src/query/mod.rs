@@ -58,7 +58,7 @@ pub use error::QueryError;
 pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
 pub use hidden_refit::{hidden_refit, HiddenRefit, StrengthSummary};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
-pub use intervene::{compare_routes, intervene, intervene_with_cancel, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
+pub use intervene::{compare_routes, intervene, intervene_with_cancel, GroupQuestion, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast};
 pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, JointModel, JointNode, NodeModel};
 pub use left_out::{score_predictions, HardRow, ModelScore, PredictiveScores};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};

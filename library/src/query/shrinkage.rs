@@ -53,6 +53,15 @@ pub struct Shrinkage {
 
 /// The shrinkage of pooled group `group` (its column) of `model` from its `draws`.
 pub fn shrinkage(model: &Model, draws: &Draws, group: &str, mass: f64) -> Result<Shrinkage, QueryError> {
+    if let Some(levels) = model.outcome_levels() {
+        return Err(QueryError::request(format!(
+            "model {} has a category outcome ({} levels): its pooled {group} departs on the log odds of each level \
+             after the first, so there is no single scale to show; read the departures in `fit {}`'s table",
+            model.name(),
+            levels.len(),
+            model.name()
+        )));
+    }
     let groups = model.pooled_groups();
     let Some(g) = groups.iter().position(|t| t.column == group) else {
         let pooled: Vec<&str> = groups.iter().map(|t| t.column.as_str()).collect();

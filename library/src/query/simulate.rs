@@ -99,8 +99,32 @@ pub(crate) struct GroupDraw {
     /// The numeric parent whose slope departs (`departure(c, spread, x)`),
     /// `None` for the intercept's departure.
     pub(crate) slope: Option<String>,
+    /// The stated correlation of a slope's departures with the
+    /// intercept's (`None`: independent).
+    pub(crate) correlation: Option<f64>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
+}
+
+/// Mix each slope departure with a stated correlation into its group's
+/// intercept departures: level j's becomes `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
+/// `z₀ⱼ` the intercept departure over its spread and `zⱼ` the slope's own
+/// standard normal draw (a bivariate normal with correlation r; the
+/// mechanism's parser made sure the intercept's departure is there).
+fn correlate_with_intercepts(draws: &mut [GroupDraw]) {
+    let intercepts: Vec<(String, Vec<f64>)> = draws
+        .iter()
+        .filter(|d| d.slope.is_none())
+        .map(|d| (d.group.clone(), d.departures.iter().map(|a| a / d.spread).collect()))
+        .collect();
+    for draw in draws.iter_mut() {
+        let (Some(r), Some(_)) = (draw.correlation, &draw.slope) else { continue };
+        let Some((_, scores)) = intercepts.iter().find(|(g, _)| *g == draw.group) else { continue };
+        let rest = (1.0 - r * r).sqrt();
+        for (a, z0) in draw.departures.iter_mut().zip(scores) {
+            *a = draw.spread * (r * z0 + rest * (*a / draw.spread));
+        }
+    }
 }
 
 /// Every node's generated values, in the simulation's node order.
@@ -364,20 +388,23 @@ impl Simulation {
     /// in declared order, from a stream of their own.
     fn draw_departures(&self, k: usize, seed: u64) -> Vec<GroupDraw> {
         let m = &self.nodes[k];
-        m.mechanism
+        let mut draws: Vec<GroupDraw> = m
+            .mechanism
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, DepartureTerm { group, spread, slope })| {
+            .map(|(g, DepartureTerm { group, spread, slope, correlation })| {
                 let levels = match self.mechanism(&group) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
                 };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, slope, departures }
+                GroupDraw { group, levels, spread, slope, correlation, departures }
             })
-            .collect()
+            .collect();
+        correlate_with_intercepts(&mut draws);
+        draws
     }
 
     /// Draw node `k` for every row from its own stream.

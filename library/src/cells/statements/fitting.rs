@@ -411,7 +411,7 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
     let line = st.header.number;
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];
-    let pooled: Vec<&str> = model.pooled_groups().iter().map(|g| g.column.as_str()).collect();
+    let pooled: Vec<&str> = model.pooled_groups().iter().filter(|g| g.block() == 0).map(|g| g.column.as_str()).collect();
     let group = match (chosen, pooled.as_slice()) {
         ([], []) => {
             return Err(CellError::at(

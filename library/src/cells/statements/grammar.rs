@@ -353,9 +353,9 @@ pub const ROBUSTNESS: Form = Form {
 };
 pub const INTERVENE: Form = Form {
     slots: &[Word("intervene"), Name(Md), Word(":"), Word("set"), Name(Col), Name(Lv), Word("vs"), Name(Lv), Word("watch")],
-    options: &[&[Word("rows"), Value], SEED, INTERVALS_OPTION],
+    options: &[&[Word("rows"), Value], SEED, &[Word("in"), Value, Value], INTERVALS_OPTION],
     method: false,
-    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S] [intervals P%]",
+    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S] [in new C | in C LEVEL] [intervals P%]",
 };
 pub const SIMULATE: Form = Form {
     slots: &[Word("simulate"), Name(New), Word("from"), Name(Gr), Word("rows"), Value, Word("seed"), Value],

@@ -602,6 +602,7 @@ pub(crate) fn compare_routes(
         rows: None,
         seed: DEFAULT_SEED,
         mass,
+        groups: crate::query::GroupQuestion::Observed,
     };
     let simulated = intervene(&joint, &joint_fit, table, &request).map_err(|e| query_error(e, line))?;
     let watched = &simulated.watched[0];

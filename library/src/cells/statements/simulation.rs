@@ -295,6 +295,7 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunCont
     if result.watched.iter().any(|w| w.level.is_some()) {
         notes.push("a watched category gives one row per level: the change in the share of rows at that level, each row's level drawn from the softmax probabilities of its node model".to_string());
     }
+    notes.extend(result.pooled.iter().cloned());
     notes.extend(result.warnings.iter().map(|w| format!("warning: {w}")));
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
@@ -328,11 +329,17 @@ fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionReque
         rows: None,
         seed: DEFAULT_SEED,
         mass: crate::draws::summary::DEFAULT_MASS,
+        groups: crate::query::GroupQuestion::Observed,
     };
     let words: Vec<&str> = watch.split(|c: char| c == ',' || c.is_whitespace()).filter(|w| !w.is_empty()).collect();
     let options = INTERVENE.option_words();
     let mut i = 0;
     while i < words.len() {
+        if words[i] == GROUPS_WORD {
+            request.groups = read_group_question(words.get(i + 1).copied(), words.get(i + 2).copied())?;
+            i += 3;
+            continue;
+        }
         match (words[i], words.get(i + 1)) {
             (key, Some(value)) if options.contains(&key) && key != super::grammar::INTERVALS_WORD => {
                 let n: u64 = value.parse().map_err(|_| format!("{key} takes a whole number, not `{value}`"))?;
@@ -350,6 +357,20 @@ fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionReque
         }
     }
     Ok((name, request, mass))
+}
+
+/// The word that opens `in new C` / `in C LEVEL` of `intervene`.
+const GROUPS_WORD: &str = "in";
+
+/// `in new C` (a new group of pooled column C) or `in C LEVEL` (its
+/// existing level LEVEL), the two words after `in`.
+fn read_group_question(first: Option<&str>, second: Option<&str>) -> Result<crate::query::GroupQuestion, String> {
+    use crate::query::GroupQuestion;
+    match (first, second) {
+        (Some("new"), Some(column)) => Ok(GroupQuestion::New { column: column.to_string() }),
+        (Some(column), Some(level)) => Ok(GroupQuestion::Existing { column: column.to_string(), level: level.to_string() }),
+        _ => Err("`in` takes a pooled column and one of its levels (`in site north`) or `new` and the column (`in new site`)".to_string()),
+    }
 }
 
 /// `simulate NAME from GRAPH rows N seed S:` with one mechanism per node.
