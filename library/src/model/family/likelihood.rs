@@ -478,7 +478,23 @@ mod tests {
             GlmOutcome::Poisson { y: successes.clone() },
             GlmOutcome::GammaPoisson { y: successes.clone() },
             shares_of(&successes, &trials),
+            times_of(&successes),
         ]
+    }
+
+    /// Exponential times `s + ½`, every fourth row cut short.
+    fn times_of(successes: &[f64]) -> GlmOutcome {
+        let y: Vec<f64> = successes.iter().map(|s| s + 0.5).collect();
+        let rows = y.iter().enumerate().map(|(i, &t)| TimeRow::new(t, i % 4 == 0)).collect();
+        GlmOutcome::Times { y, rows, form: TimeForm::Exponential }
+    }
+
+    /// An exponential row by its definition (mean e^η, module doc of
+    /// `family::survival`) without `−δ·log y`: `δ·(log y − η) − y·e^−η`,
+    /// and its derivative in η, `y·e^−η − δ`.
+    fn exponential_by_definition(row: TimeRow, eta: f64) -> (f64, f64) {
+        let y = row.log_time.exp();
+        (row.event * (row.log_time - eta) - y * (-eta).exp(), y * (-eta).exp() - row.event)
     }
 
     /// Beta shares `(s + ½)/(m + 1)`, strictly inside (0, 1).
@@ -517,6 +533,7 @@ mod tests {
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
                 GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
                 GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
+                GlmOutcome::Times { rows, .. } => exponential_by_definition(rows[i], eta),
             };
             total += value;
             for (g, x) in grad.iter_mut().zip(row) {
@@ -594,6 +611,7 @@ mod tests {
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
                 GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
                 GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
+                GlmOutcome::Times { rows, .. } => exponential_by_definition(rows[i], eta),
             };
             value += term.abs() + (y_of(outcome, i) * eta).abs();
             for (g, x) in gradient.iter_mut().zip(row) {
@@ -609,7 +627,8 @@ mod tests {
             | GlmOutcome::Binomial { y, .. }
             | GlmOutcome::Poisson { y }
             | GlmOutcome::GammaPoisson { y }
-            | GlmOutcome::Beta { y, .. } => y[i],
+            | GlmOutcome::Beta { y, .. }
+            | GlmOutcome::Times { y, .. } => y[i],
         }
     }
 

@@ -247,7 +247,7 @@ mod tests {
     /// `exp(−y·e^−η)` (mean e^η).
     #[test]
     fn shape_one_is_the_exponential() {
-        for &(y, eta) in &[(0.3, 0.0), (12.0, 2.2), (4.0, -1.0)] {
+        for &(y, eta) in &[(0.3, 0.0f64), (12.0, 2.2), (4.0, -1.0)] {
             let rate = (-eta).exp();
             let event = time_row_log_density(TimeRow::new(y, false), eta, TimeShape::exponential());
             assert!((event - (rate.ln() - y * rate)).abs() < 1e-12);
