@@ -168,3 +168,25 @@ fn contrast_is_on_the_mean_time() {
     }
     assert!(c.mean < 0.0, "warmer trays sprout sooner: {}", c.mean);
 }
+
+/// The check figure marks each row cut short with an open vermillion ring
+/// on the observed line and says so in its legend; without such rows it has
+/// neither.
+#[test]
+fn the_check_figure_rings_the_rows_cut_short() {
+    use waypath::plot::{predictive_figure_with_cut, PredictiveKind, Quantity};
+    let table = orchard_with_times(80, 5);
+    let model = build("ripening from girth using trees\nfamily weibull cut short by season_over", &table);
+    let fit = fit_model(&model, &Method::Laplace { draws: 400, seed: 1 }, &AtomicBool::new(false), &|_| {}).expect("fit");
+    let sets = posterior_predictive(&model, &fit.draws, &table, 40, 3).expect("sets");
+    let flags = sets.cut_short.clone().expect("cut rows known");
+    let cut: Vec<f64> = sets.observed.iter().zip(&flags).filter(|(_, &c)| c).map(|(&v, _)| v).collect();
+    assert_eq!(cut.len(), 20);
+    let q = Quantity::new("ripening");
+    let svg = predictive_figure_with_cut(PredictiveKind::Posterior, "m", &q, &sets.observed, &cut, &sets.replicated).expect("figure");
+    let rings = svg.matches("stroke=\"#D55E00\"").count();
+    assert!(rings > cut.len(), "one ring per row cut short plus the legend key: {rings}");
+    assert!(svg.contains("20 rows cut short"), "legend");
+    let plain = predictive_figure_with_cut(PredictiveKind::Posterior, "m", &q, &sets.observed, &[], &sets.replicated).expect("figure");
+    assert!(!plain.contains("cut short") && !plain.contains("stroke=\"#D55E00\""));
+}
