@@ -611,9 +611,9 @@ fn germination(n: usize, seed: u64) -> Table {
     let mut rng = StdRng::seed_from_u64(seed);
     let noise = Normal::new(0.0, 1.0).expect("valid normal");
     let (effects, shape) = ([0.3, -0.2, 0.1, 0.0, 0.15], 1.6f64);
-    // Γ(1 + 1/1.6) = Γ(1.625) ≈ 0.8966 (recalled): the scale whose mean is e^η.
+    // Γ(1 + 1/1.6) = Γ(1.625) ≈ 0.8966 (scipy.special.gamma): the scale whose mean is e^η.
     let mean_over_scale = 0.8966;
-    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 5];
+    let mut columns: Vec<Vec<f64>> = (0..5).map(|_| Vec::with_capacity(n)).collect();
     let (mut days, mut unsprouted) = (Vec::with_capacity(n), Vec::with_capacity(n));
     for _ in 0..n {
         let mut eta = 3.0;
