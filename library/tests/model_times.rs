@@ -190,3 +190,20 @@ fn the_check_figure_rings_the_rows_cut_short() {
     let plain = predictive_figure_with_cut(PredictiveKind::Posterior, "m", &q, &sets.observed, &[], &sets.replicated).expect("figure");
     assert!(!plain.contains("cut short") && !plain.contains("stroke=\"#D55E00\""));
 }
+
+/// Leaving a row out (exact refits of `score predictions`) keeps every other
+/// row's censoring: the reduced model's log-likelihood is the full one less
+/// the row's own log density (or log survival, for a row cut short).
+#[test]
+fn leaving_a_row_out_keeps_the_others_cut_short() {
+    let table = orchard_with_times(40, 6);
+    let model = build("ripening from girth using trees\nfamily weibull cut short by season_over", &table);
+    let params = [3.4, 0.01, 1.7];
+    let rows = model.pointwise_log_likelihood(&params, &model.fitted_rows()).expect("rows");
+    let full = model.log_likelihood(&params).expect("full");
+    assert!((rows.iter().sum::<f64>() - full).abs() < 1e-9 * full.abs());
+    for row in [0, 1, 4, 39] {
+        let reduced = model.leaving_out(row).expect("reduced").log_likelihood(&params).expect("reduced");
+        assert!((full - rows[row] - reduced).abs() < 1e-9 * full.abs(), "row {row}: {} vs {reduced}", full - rows[row]);
+    }
+}
