@@ -8,7 +8,7 @@
 
 mod model_fixtures;
 
-use model_fixtures::{build, orchard, orchard_with_cover, value_and_gradient};
+use model_fixtures::{build, orchard, orchard_with_cover, orchard_with_times, value_and_gradient};
 use rand::rngs::StdRng;
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
@@ -125,6 +125,18 @@ fn beta_gradient_matches_finite_differences() {
     check_gradient_on(&format!("cover from {TERMS} using trees\nfamily beta"), &table, 22);
     check_gradient_on(&format!("cover from {SPLINE_TERMS} using trees\nfamily beta\nprior precision: exponential(0.1)"), &table, 23);
     check_gradient_on("cover from girth, pooled soil using trees\nfamily beta", &table, 24);
+}
+
+/// The time families: exponential (coefficients only) and Weibull (and
+/// log(shape)), with rows cut short, the default shape prior and a declared
+/// one, and a pooled group after the shape.
+#[test]
+fn time_gradients_match_finite_differences() {
+    let table = orchard_with_times(120, 7);
+    check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily exponential cut short by season_over"), &table, 25);
+    check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily weibull cut short by season_over"), &table, 26);
+    check_gradient_on(&format!("ripening from {SPLINE_TERMS} using trees\nfamily weibull\nprior shape: exponential(0.5)"), &table, 27);
+    check_gradient_on("ripening from girth, pooled soil using trees\nfamily weibull cut short by season_over", &table, 28);
 }
 
 /// The levels family (softmax over soil's three levels; rootstock's two),

@@ -21,6 +21,7 @@ use super::guards::{check_design_size, check_scales};
 use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
 use super::family::shaped::{moment_overdispersion, moment_precision, BetaShare};
 use super::family::softmax::{level_prefix, DepartureRun, SoftmaxData};
+use super::family::survival::time_notes;
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
@@ -118,7 +119,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     start.extend(pooling.start(&[], &anchor));
     let gaussian_spread = priors.family_parameter.clone().filter(|_| spec.family == Family::Normal);
     let family_prior = priors.family_parameter.clone().filter(|_| spec.family != Family::Normal);
-    match spec.family {
+    match &spec.family {
         Family::GammaPoisson => notes.push(
             "overdispersion is the sd of the gamma multiplier of each row's rate (variance mean + \
              overdispersion²·mean²), sampled as log(overdispersion) with the Jacobian of that change included"
@@ -129,6 +130,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
              mean·(1 − mean)/(1 + φ)), sampled as log(precision) with the Jacobian of that change included"
                 .into(),
         ),
+        Family::Times { form, cut_short } => notes.extend(time_notes(*form, cut_short.as_deref(), outcome.cut_short.as_deref())),
         _ => {}
     }
     let likelihood = match (gaussian_spread, &outcome.levels) {
@@ -275,7 +277,9 @@ fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), Mode
 fn level_link_means(family: &Family, outcome: &OutcomeValues, rows: &[usize], levels: usize) -> Vec<Option<f64>> {
     let mut sums = vec![(0.0, 0.0); levels];
     for (i, &level) in rows.iter().enumerate() {
-        let trials = outcome.trials.as_ref().map_or(1.0, |m| m[i]);
+        // Time followed over events for times cut short (the exponential mean).
+        let event = outcome.cut_short.as_ref().map_or(1.0, |c| if c[i] { 0.0 } else { 1.0 });
+        let trials = outcome.trials.as_ref().map_or(event, |m| m[i]);
         sums[level].0 += outcome.y[i];
         sums[level].1 += trials;
     }
@@ -431,6 +435,7 @@ pub(super) fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &Outcome
         (Family::Poisson, _) => GlmOutcome::Poisson { y },
         (Family::GammaPoisson, _) => GlmOutcome::GammaPoisson { y },
         (Family::Beta, _) => GlmOutcome::Beta { shares: y.iter().map(|&v| BetaShare::new(v)).collect(), y },
+        (Family::Times { form, .. }, _) => GlmOutcome::Times { rows: outcome.time_rows(), y, form: *form },
         _ => GlmOutcome::Bernoulli { y },
     };
     GlmData::new(rows, design.ncols(), glm_outcome)
@@ -452,6 +457,7 @@ fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
         Family::GammaPoisson => moment_overdispersion(&outcome.y),
         Family::Beta => moment_precision(&outcome.y),
+        Family::Times { .. } => 1.0,
         _ => mean_and_sd(&outcome.y).1,
     }
 }

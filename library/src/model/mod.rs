@@ -60,6 +60,7 @@ mod outcome;
 mod pointwise;
 mod posterior;
 mod predict;
+mod times;
 pub mod prior;
 pub mod spec;
 pub mod spline;

@@ -20,8 +20,9 @@ use super::error::ModelError;
 use super::family::correlated::{cholesky_of_correlations, lower_times, pair_count};
 use super::family::gaussian::GaussianStats;
 use super::family::softmax::level_probabilities;
+use super::family::survival::{draw_time, TimeForm, TimeShape};
 use super::family::Family;
-use super::outcome::OutcomeValues;
+use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::terms::design_matrix;
 
@@ -35,12 +36,15 @@ pub struct NewRows {
     /// did not have, or a table without the group's column — a new group,
     /// whose departure is taken as 0, the population's own prediction).
     pub groups: Vec<Vec<Option<usize>>>,
+    /// Per row, whether its follow-up was cut short (time families, when the
+    /// table has the `cut short by` column; `None`: every row an event).
+    pub cut_short: Option<Vec<bool>>,
 }
 
 impl NewRows {
     /// Rows without pooled groups (or of a new group in each).
     pub fn from_design(design: DMatrix<f64>, trials: Option<Vec<u64>>) -> NewRows {
-        NewRows { design, trials, groups: Vec::new() }
+        NewRows { design, trials, groups: Vec::new(), cut_short: None }
     }
 
     /// The rows at `indices`, in that order.
@@ -49,6 +53,7 @@ impl NewRows {
             design: self.design.select_rows(indices),
             trials: self.trials.as_ref().map(|t| indices.iter().map(|&i| t[i]).collect()),
             groups: self.groups.iter().map(|g| indices.iter().map(|&i| g[i]).collect()).collect(),
+            cut_short: self.cut_short.as_ref().map(|c| indices.iter().map(|&i| c[i]).collect()),
         }
     }
 }
@@ -73,7 +78,13 @@ impl Model {
             _ => None,
         };
         let groups = self.groups.iter().map(|g| g.level_of_rows(table)).collect::<Result<_, _>>()?;
-        Ok(NewRows { design, trials, groups })
+        let cut_short = match &self.family {
+            Family::Times { cut_short: Some(column), .. } if table.column(column).is_some() => {
+                read_outcome(table, &self.outcome, &self.family).ok().and_then(|o| o.cut_short)
+            }
+            _ => None,
+        };
+        Ok(NewRows { design, trials, groups, cut_short })
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
@@ -250,6 +261,13 @@ impl Model {
                 // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share must lie.
                 beta.sample(rng).clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON)
             }
+            Family::Times { form, .. } => {
+                let shape = match form {
+                    TimeForm::Exponential => TimeShape::exponential(),
+                    TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
+                };
+                draw_time(mu.ln(), shape, rng)
+            }
             Family::Levels => return Err(invalid("a category outcome is drawn as a level".into())),
         })
     }
@@ -306,27 +324,29 @@ impl Model {
             Likelihood::Gaussian { .. } | Likelihood::Softmax(_) => None,
         };
         let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
-        NewRows { design: self.design.clone(), trials, groups }
+        NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows() }
     }
 
     /// The same model — design, recipes, priors and binomial trials
     /// unchanged — with new outcome values `y` for the fitted rows:
     /// outcomes simulated from the prior for simulation-based calibration,
     /// where the priors must not move with the simulated data. For the
-    /// levels family `y` holds level indices.
+    /// levels family `y` holds level indices; a time model cuts the new
+    /// times short where the data were ([`Model::cut_like_the_data`]).
     pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
         if y.len() != self.y.len() {
             return Err(ModelError::Parameters {
                 message: format!("{} outcome values were given for the {} rows of model `{}`", y.len(), self.y.len(), self.name),
             });
         }
+        let (y, cut_short) = self.cut_like_the_data(y);
         let likelihood = match &self.likelihood {
             Likelihood::Gaussian { spread_prior, .. } => Likelihood::Gaussian {
                 stats: GaussianStats::new(&self.likelihood_design(), &y, intercept_columns(&self.recipes)),
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None, cut_short };
                 Likelihood::Glm(
                     glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
                 )

@@ -20,11 +20,14 @@
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
 //!   pooling: a level with few rows is pulled towards the population).
-//! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`.
+//! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`,
+//!   or `family exponential | weibull`, optionally followed by
+//!   `cut short by <column>` (a yes/no column: the follow-up ended first).
 //!   Without a family line the family follows the outcome column: `levels`
 //!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
-//!   weights (spline weights), spread, pooled spreads, overdispersion, precision.
+//!   weights (spline weights), spread, pooled spreads, overdispersion, precision,
+//!   shape.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
 //! * `parameterise <category> centred | noncentred | centred N` — how a

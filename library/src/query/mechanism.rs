@@ -15,7 +15,10 @@
 //! expression, the overdispersion of a `gamma_poisson` model), and
 //! `beta(mean, φ)` or `beta(logit = η, φ)`: a share in (0, 1) with that
 //! mean and precision φ (a positive expression, the precision of a `beta`
-//! model). Expressions use numbers, parent
+//! model), and `exponential(mean)` or `exponential(log = η)` and
+//! `weibull(mean, k)` or `weibull(log = η, k)`: a positive time with that
+//! mean (Weibull with shape k, a positive expression, the shape of a
+//! `weibull` model). Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
 //! `[c = level]` (1 when category c is at that level, else 0), and
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
@@ -42,13 +45,15 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, EXPONENTIAL, WEIBULL];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
 pub const POISSON: &str = "poisson";
 pub const GAMMA_POISSON: &str = "gamma_poisson";
 pub const BETA: &str = "beta";
+pub const EXPONENTIAL: &str = "exponential";
+pub const WEIBULL: &str = "weibull";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -204,6 +209,9 @@ pub enum Mechanism {
     /// A share with mean `mean` (or its logit when `logit` is true) and
     /// precision `precision`.
     Beta { mean: Expr, logit: bool, precision: Expr },
+    /// A positive time with mean `mean` (or its log when `log` is true):
+    /// exponential without a `shape`, Weibull with one.
+    Time { mean: Expr, log: bool, shape: Option<Expr> },
 }
 
 impl Mechanism {
@@ -217,6 +225,7 @@ impl Mechanism {
                 rate.departures().into_iter().chain(overdispersion.iter().flat_map(Expr::departures)).collect()
             }
             Mechanism::Beta { mean, precision, .. } => mean.departures().into_iter().chain(precision.departures()).collect(),
+            Mechanism::Time { mean, shape, .. } => mean.departures().into_iter().chain(shape.iter().flat_map(Expr::departures)).collect(),
         }
     }
 
@@ -229,6 +238,7 @@ impl Mechanism {
             Mechanism::Bernoulli { p, logit: true } => p.departures(),
             Mechanism::Poisson { rate, log: true, .. } => rate.departures(),
             Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
+            Mechanism::Time { mean, log: true, .. } => mean.departures(),
             _ => Vec::new(),
         }
     }
@@ -243,6 +253,7 @@ impl Mechanism {
                 rate.uses().into_iter().chain(overdispersion.iter().flat_map(Expr::uses)).collect()
             }
             Mechanism::Beta { mean, precision, .. } => mean.uses().into_iter().chain(precision.uses()).collect(),
+            Mechanism::Time { mean, shape, .. } => mean.uses().into_iter().chain(shape.iter().flat_map(Expr::uses)).collect(),
         }
     }
 }
@@ -256,9 +267,19 @@ impl fmt::Display for Mechanism {
             Mechanism::Poisson { overdispersion: None, .. } => POISSON,
             Mechanism::Poisson { overdispersion: Some(_), .. } => GAMMA_POISSON,
             Mechanism::Beta { .. } => BETA,
+            Mechanism::Time { shape: None, .. } => EXPONENTIAL,
+            Mechanism::Time { shape: Some(_), .. } => WEIBULL,
         };
         f.write_str(name)
     }
+}
+
+/// A time mechanism from its mean argument (`log = η` or the mean) and shape.
+fn time_mechanism(mean: &str, shape: Option<Expr>) -> Result<Mechanism, String> {
+    Ok(match keyword_argument(mean, LOG) {
+        Some(eta) => Mechanism::Time { mean: parse_expr(eta)?, log: true, shape },
+        None => Mechanism::Time { mean: parse_expr(mean)?, log: false, shape },
+    })
 }
 
 /// Read one body line: `None` for a blank or comment line, else the node
@@ -308,6 +329,12 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
                 Some(eta) => Mechanism::Beta { mean: parse_expr(eta)?, logit: true, precision },
                 None => Mechanism::Beta { mean: parse_expr(mean)?, logit: false, precision },
             }
+        }
+        (EXPONENTIAL, [mean]) => time_mechanism(mean, None)?,
+        (WEIBULL, [mean, shape]) => time_mechanism(mean, Some(parse_expr(shape)?))?,
+        (EXPONENTIAL, _) => return Err(format!("exponential takes 1 argument (the mean time, or log = …), not {}", args.len())),
+        (WEIBULL, _) => {
+            return Err(format!("weibull takes 2 arguments (the mean time, or log = …, then the shape), not {}", args.len()))
         }
         (BETA, _) => return Err(format!("beta takes 2 arguments (mean, or logit = …, then the precision), not {}", args.len())),
         (GAMMA_POISSON, _) => {

@@ -22,6 +22,7 @@ use serde::Serialize;
 
 use crate::infer::fit::{fit_model, Fit, Method};
 use crate::infer::nuts::Progress;
+use crate::model::family::survival::TimeForm;
 use crate::model::terms::GroupTerm;
 use crate::model::{Family, Model, ModelSpec};
 
@@ -134,6 +135,8 @@ fn true_parameters(
             | (Some(Mechanism::Poisson { overdispersion: None, .. }), Family::Poisson)
             | (Some(Mechanism::Poisson { overdispersion: Some(_), .. }), Family::GammaPoisson)
             | (Some(Mechanism::Beta { .. }), Family::Beta)
+            | (Some(Mechanism::Time { shape: None, .. }), Family::Times { form: TimeForm::Exponential, .. })
+            | (Some(Mechanism::Time { shape: Some(_), .. }), Family::Times { form: TimeForm::Weibull, .. })
     );
     if !matches {
         notes.push(format!("the mechanism of {outcome} is not of the model's family, so no parameter has a true value"));

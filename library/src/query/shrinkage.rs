@@ -125,14 +125,17 @@ pub fn shrinkage(model: &Model, draws: &Draws, group: &str, mass: f64) -> Result
 }
 
 /// Each level's own rows' mean outcome, on the link scale (successes over
-/// trials for binomial); the link's clamp keeps a level with no successes finite.
+/// trials for binomial; for times cut short, time followed over events);
+/// the link's clamp keeps a level with no successes finite.
 fn raw_level_means(model: &Model, level_of: &[Option<usize>], k: usize, trials: Option<&[u64]>) -> Vec<Option<f64>> {
     let y = model.outcome_values();
+    let cut = model.cut_short_rows();
     let (mut sum, mut count) = (vec![0.0; k], vec![0.0; k]);
     for (i, level) in level_of.iter().enumerate() {
         if let Some(l) = level {
             sum[*l] += y[i];
-            count[*l] += trials.map_or(1.0, |t| t[i] as f64);
+            let event = cut.as_ref().map_or(1.0, |c| if c[i] { 0.0 } else { 1.0 });
+            count[*l] += trials.map_or(event, |t| t[i] as f64);
         }
     }
     (0..k).map(|l| (count[l] > 0.0).then(|| model.family().link(sum[l] / count[l]))).collect()
@@ -145,6 +148,6 @@ fn scale_words(model: &Model) -> String {
         Family::Normal => outcome.to_string(),
         Family::Bernoulli | Family::Binomial { .. } | Family::Levels => format!("log-odds of {outcome}"),
         Family::Beta => format!("log-odds of mean {outcome}"),
-        Family::Poisson | Family::GammaPoisson => format!("log of mean {outcome}"),
+        Family::Poisson | Family::GammaPoisson | Family::Times { .. } => format!("log of mean {outcome}"),
     }
 }

@@ -24,6 +24,7 @@ use rand_distr::{Beta, Distribution, Gamma, Poisson, StandardNormal};
 use crate::graph::Graph;
 use crate::limits::{bytes_for, check_memory};
 use crate::model::family::logistic;
+use crate::model::family::survival::{draw_time, TimeShape};
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::QueryError;
@@ -301,6 +302,11 @@ impl Simulation {
                 let eta = |i: usize| if *logit { eval(mean, i) } else { let q = eval(mean, i); (q / (1.0 - q)).ln() };
                 Some(((0..n).map(eta).collect(), phi))
             }
+            Mechanism::Time { mean, log, shape } => {
+                // A Weibull node's second truth is its shape, when it is one number.
+                let k = shape.as_ref().and_then(|k| k.uses().is_empty().then(|| eval(k, 0)));
+                Some(((0..n).map(|i| if *log { eval(mean, i) } else { eval(mean, i).ln() }).collect(), k))
+            }
         }
     }
 
@@ -493,6 +499,26 @@ impl Simulation {
                     let share = Beta::new(q * phi, (1.0 - q) * phi).map_err(|e| bad(i, e.to_string()))?.sample(&mut rng);
                     // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share lies.
                     out.push(share.clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON));
+                }
+                NodeValues::Real(out)
+            }
+            Mechanism::Time { mean, log, shape } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    stop(i)?;
+                    let eta = if *log { eval(mean, i) } else { eval(mean, i).ln() };
+                    let k = shape.as_ref().map_or(1.0, |k| eval(k, i));
+                    // Written so that a NaN mean or shape is refused too.
+                    if !(eta.is_finite() && k.is_finite() && k > 0.0) {
+                        return Err(bad(i, format!(
+                            "the mean time is {} and the shape {}, but both must be positive and finite",
+                            short(eta.exp()),
+                            short(k)
+                        )));
+                    }
+                    let time = draw_time(eta, TimeShape::from_log_shape(k.ln()), &mut rng);
+                    // A draw rounded to 0 (a tiny shape) is moved up to the smallest positive time.
+                    out.push(time.max(f64::MIN_POSITIVE));
                 }
                 NodeValues::Real(out)
             }

@@ -79,6 +79,20 @@ pub fn orchard_with_cover(n: usize, seed: u64) -> Table {
     table
 }
 
+/// The orchard with a time, `ripening` (days from flowering to the first
+/// ripe fruit, positive, longer on girthier trees), and whether the season
+/// ended before it (`season_over`, yes on every fourth tree, the time then
+/// being the days followed).
+pub fn orchard_with_times(n: usize, seed: u64) -> Table {
+    let mut table = orchard(n, seed);
+    let girth = table.column("girth").and_then(|c| c.data.as_reals()).expect("girth");
+    let visits = table.column("visits").and_then(|c| c.data.as_reals()).expect("visits");
+    let ripening = girth.iter().zip(&visits).map(|(g, v)| 20.0 + 0.5 * g.abs() + 3.0 * v).collect();
+    table.columns.push(column("ripening", ColumnData::Real(ripening)));
+    table.columns.push(column("season_over", ColumnData::Binary((0..n).map(|i| i % 4 == 0).collect())));
+    table
+}
+
 /// A spec from body lines numbered from 2 (line 1 is the header).
 pub fn spec(body: &str) -> ModelSpec {
     try_spec(body).expect("spec parses")

@@ -16,6 +16,10 @@
 //! ([`Family::family_parameter`]): one positive parameter, sampled on the
 //! log scale, placed after the coefficients. The gamma-poisson and beta
 //! rows' arithmetic is in [`shaped`].
+//!
+//! The time families (exponential, Weibull; log link to the mean time, rows
+//! cut short adding their log survival) and the Weibull `shape` are in
+//! [`survival`].
 
 pub mod gaussian;
 mod kernels;
@@ -24,8 +28,10 @@ pub mod correlated;
 pub mod pooling;
 pub mod shaped;
 pub mod softmax;
+pub mod survival;
 
 use super::error::ModelError;
+use survival::{parse_time_family, TimeForm};
 
 /// The outcome distribution of a model.
 #[derive(Debug, Clone, PartialEq)]
@@ -46,6 +52,10 @@ pub enum Family {
     /// distributed with `precision` φ (learned): shape parameters μφ and
     /// (1 − μ)φ, variance μ(1 − μ)/(1 + φ).
     Beta,
+    /// Positive time, log link to its mean, exponential or Weibull
+    /// (`shape` learned); rows where the column `cut_short` is yes add their
+    /// log survival ([`survival`]).
+    Times { form: TimeForm, cut_short: Option<String> },
     /// Category outcome: one linear predictor per level after the first
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
@@ -53,7 +63,8 @@ pub enum Family {
 }
 
 /// The family words of a `family` line (binomial then takes `out of <column>`).
-pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, BINOMIAL];
+pub const FAMILY_WORDS: &[&str] =
+    &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, BINOMIAL, survival::EXPONENTIAL, survival::WEIBULL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
@@ -77,6 +88,9 @@ impl Family {
     /// `gamma_poisson`, `beta`, `levels`, or `binomial out of <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
+        if let Some(times) = parse_time_family(&words) {
+            return times.map(|(form, cut_short)| Family::Times { form, cut_short });
+        }
         match words[..] {
             [NORMAL] => Ok(Family::Normal),
             [BERNOULLI] => Ok(Family::Bernoulli),
@@ -90,7 +104,8 @@ impl Family {
                  write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels or binomial out of <column>"
+                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, binomial out of <column>, \
+                 exponential or weibull (either with `cut short by <column>`)"
             ))),
         }
     }
@@ -105,6 +120,7 @@ impl Family {
             Family::GammaPoisson => GAMMA_POISSON,
             Family::Beta => BETA,
             Family::Levels => LEVELS,
+            Family::Times { form, .. } => form.word(),
         }
     }
 
@@ -113,7 +129,7 @@ impl Family {
         match self {
             Family::Normal => "identity",
             Family::Bernoulli | Family::Binomial { .. } | Family::Beta => "logit",
-            Family::Poisson | Family::GammaPoisson => "log",
+            Family::Poisson | Family::GammaPoisson | Family::Times { .. } => "log",
             Family::Levels => "softmax",
         }
     }
@@ -132,6 +148,7 @@ impl Family {
             Family::Normal => Some(SPREAD),
             Family::GammaPoisson => Some(OVERDISPERSION),
             Family::Beta => Some(PRECISION),
+            Family::Times { form: TimeForm::Weibull, .. } => Some(survival::SHAPE),
             _ => None,
         }
     }
@@ -144,7 +161,7 @@ impl Family {
         match self {
             Family::Normal => eta,
             Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => logistic(eta),
-            Family::Poisson | Family::GammaPoisson => eta.exp(),
+            Family::Poisson | Family::GammaPoisson | Family::Times { .. } => eta.exp(),
         }
     }
 
@@ -159,7 +176,7 @@ impl Family {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }
-            Family::Poisson | Family::GammaPoisson => mu.max(1e-3).ln(),
+            Family::Poisson | Family::GammaPoisson | Family::Times { .. } => mu.max(1e-3).ln(),
         }
     }
 }
