@@ -53,13 +53,13 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         });
     }
     match (&column.data, family) {
-        (ColumnData::Category { codes, levels }, Family::Levels) => return read_levels(name, codes, levels),
+        (ColumnData::Category { codes, levels }, Family::Levels | Family::Graded) => return read_levels(name, codes, levels),
         (ColumnData::Category { levels, .. }, _) => {
             return Err(ModelError::Column {
                 column: name.to_string(),
                 message: format!(
                     "the outcome is a category ({}), which goes with `family levels` (or leave the family \
-                     line out); `family {}` needs a numeric column",
+                     line out), or `family graded` when its levels are ordered; `family {}` needs a numeric column",
                     levels.join(", "),
                     family.name()
                 ),
@@ -98,11 +98,12 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
                 Err(place(row, format!("{} is not strictly between 0 and 1, which a beta outcome (a share) must be; {hint}", y[row])))
             })
             .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
-        Family::Levels => Err(ModelError::Column {
+        Family::Levels | Family::Graded => Err(ModelError::Column {
             column: name.to_string(),
             message: format!(
-                "`family levels` needs a category outcome, but this column is {kind}; declare it as a \
-                 category in the table or choose another family"
+                "`family {}` needs a category outcome, but this column is {kind}; declare it as a \
+                 category in the table (for `graded`, its levels lowest first) or choose another family",
+                family.name()
             ),
         }),
     }

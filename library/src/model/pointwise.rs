@@ -113,7 +113,7 @@ impl Model {
                     })
                     .collect()
             }
-            Family::Levels => unreachable!("a levels model answered above"),
+            Family::Levels | Family::Graded => unreachable!("a model of a category outcome answered above"),
         })
     }
 
@@ -146,6 +146,9 @@ impl Model {
                 )
             }
             Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len))),
+            Likelihood::Graded(graded) => {
+                Likelihood::Graded(graded.with_rows(design.transpose().as_slice().to_vec(), y.iter().map(|&v| v as usize).collect()))
+            }
         };
         Ok(Model { design, y, group_rows, likelihood, ..self.clone() })
     }

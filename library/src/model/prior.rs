@@ -31,11 +31,13 @@ pub enum PriorGroup {
     Overdispersion,
     /// The precision of a beta outcome (positive).
     Precision,
+    /// The gaps between the cut points of a graded outcome (positive).
+    Gaps,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 7] = [
+    pub const ALL: [PriorGroup; 8] = [
         PriorGroup::Intercepts,
         PriorGroup::Slopes,
         PriorGroup::Weights,
@@ -43,6 +45,7 @@ impl PriorGroup {
         PriorGroup::PooledSpreads,
         PriorGroup::Overdispersion,
         PriorGroup::Precision,
+        PriorGroup::Gaps,
     ];
 
     /// The group words of a `prior` line.
@@ -60,6 +63,7 @@ impl PriorGroup {
             PriorGroup::PooledSpreads => "pooled spreads",
             PriorGroup::Overdispersion => "overdispersion",
             PriorGroup::Precision => "precision",
+            PriorGroup::Gaps => "gaps",
         }
     }
 
@@ -79,7 +83,10 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion | PriorGroup::Precision)
+        matches!(
+            self,
+            PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Gaps
+        )
     }
 }
 

@@ -21,6 +21,7 @@ pub mod gaussian;
 mod kernels;
 pub mod likelihood;
 pub mod correlated;
+pub mod ordered;
 pub mod pooling;
 pub mod shaped;
 pub mod softmax;
@@ -50,16 +51,22 @@ pub enum Family {
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
     Levels,
+    /// Ordered category outcome: one linear predictor, a latent logistic
+    /// score cut into the levels at learned, ordered cut points
+    /// (cumulative logit, [`ordered`]). The levels and their order come
+    /// from the outcome column's declaration.
+    Graded,
 }
 
 /// The family words of a `family` line (binomial then takes `out of <column>`).
-pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, BINOMIAL];
+pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, GRADED, BINOMIAL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
 const GAMMA_POISSON: &str = "gamma_poisson";
 const BETA: &str = "beta";
 const LEVELS: &str = "levels";
+const GRADED: &str = "graded";
 /// The label of the normal family's residual sd.
 pub const SPREAD: &str = "spread";
 /// The label of the gamma-poisson family's sd of the rate multiplier.
@@ -84,13 +91,14 @@ impl Family {
             [GAMMA_POISSON] => Ok(Family::GammaPoisson),
             [BETA] => Ok(Family::Beta),
             [LEVELS] => Ok(Family::Levels),
+            [GRADED] => Ok(Family::Graded),
             [BINOMIAL, out, of, column] if [out, of] == OUT_OF => Ok(Family::Binomial { trials: column.to_string() }),
             [BINOMIAL, ..] => Err(ModelError::syntax(
                 "a binomial outcome needs the column that holds each row's number of trials: \
                  write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels or binomial out of <column>"
+                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, graded or binomial out of <column>"
             ))),
         }
     }
@@ -105,6 +113,7 @@ impl Family {
             Family::GammaPoisson => GAMMA_POISSON,
             Family::Beta => BETA,
             Family::Levels => LEVELS,
+            Family::Graded => GRADED,
         }
     }
 
@@ -115,6 +124,7 @@ impl Family {
             Family::Bernoulli | Family::Binomial { .. } | Family::Beta => "logit",
             Family::Poisson | Family::GammaPoisson => "log",
             Family::Levels => "softmax",
+            Family::Graded => "cumulative logit",
         }
     }
 
@@ -143,7 +153,7 @@ impl Family {
     pub fn inverse_link(&self, eta: f64) -> f64 {
         match self {
             Family::Normal => eta,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => logistic(eta),
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels | Family::Graded => logistic(eta),
             Family::Poisson | Family::GammaPoisson => eta.exp(),
         }
     }
@@ -155,7 +165,7 @@ impl Family {
     pub fn link(&self, mu: f64) -> f64 {
         match self {
             Family::Normal => mu,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => {
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels | Family::Graded => {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }
