@@ -33,7 +33,6 @@
 //! `∂/∂a = −F(a) − 1/expm1(b − a)`; `∂/∂η = −(∂/∂a + ∂/∂b)`.
 
 use super::super::prior::Prior;
-use super::{logistic, softplus};
 
 /// Design, outcome levels and gap priors of a graded-family model, ready
 /// for repeated density evaluations.
@@ -161,15 +160,31 @@ pub fn row_log_probability(level: usize, eta: f64, cuts: &[f64]) -> (f64, f64, f
     let lower = level.checked_sub(1).map(|k| cuts[k] - eta);
     let upper = cuts.get(level).map(|c| c - eta);
     match (lower, upper) {
-        (None, Some(b)) => (-softplus(-b), 0.0, logistic(-b)),
-        (Some(a), None) => (-softplus(a), -logistic(a), 0.0),
+        (None, Some(b)) => {
+            let (softplus_b, logistic_b) = softplus_and_logistic(-b);
+            (-softplus_b, 0.0, logistic_b)
+        }
+        (Some(a), None) => {
+            let (softplus_a, logistic_a) = softplus_and_logistic(a);
+            (-softplus_a, -logistic_a, 0.0)
+        }
         (Some(a), Some(b)) => {
-            let inverse = 1.0 / (b - a).exp_m1();
-            let term = -softplus(-b) - softplus(a) + (-(a - b).exp_m1()).ln();
-            (term, -logistic(a) - inverse, logistic(-b) + inverse)
+            let (softplus_a, logistic_a) = softplus_and_logistic(a);
+            let (softplus_b, logistic_b) = softplus_and_logistic(-b);
+            // d = e^(a−b) − 1 < 0; 1/expm1(b − a) = (1 + d)/(−d).
+            let d = (a - b).exp_m1();
+            let inverse = -(1.0 + d) / d;
+            (-softplus_b - softplus_a + (-d).ln(), -logistic_a - inverse, logistic_b + inverse)
         }
         (None, None) => (0.0, 0.0, 0.0),
     }
+}
+
+/// `(softplus(x), logistic(x))` from one exponential, `e^−|x|`.
+fn softplus_and_logistic(x: f64) -> (f64, f64) {
+    let e = (-x.abs()).exp();
+    let logistic = if x >= 0.0 { 1.0 / (1.0 + e) } else { e / (1.0 + e) };
+    (x.max(0.0) + e.ln_1p(), logistic)
 }
 
 /// The probability of every level (lowest first) at linear predictor
