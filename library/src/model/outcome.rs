@@ -102,8 +102,9 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
             column: name.to_string(),
             message: format!(
                 "`family {}` needs a category outcome, but this column is {kind}; declare it as a \
-                 category in the table (for `graded`, its levels lowest first) or choose another family",
-                family.name()
+                 category in the table{} or choose another family",
+                family.name(),
+                if *family == Family::Graded { " (its levels lowest first)" } else { "" }
             ),
         }),
     }
