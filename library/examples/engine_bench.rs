@@ -610,7 +610,7 @@ fn blight_grades(n: usize, seed: u64) -> Table {
     let noise = Normal::new(0.0, 1.0).expect("valid normal");
     let effects = [0.6, -0.4, 0.3, 0.0, 0.2];
     let cuts = [-1.0, 0.5, 2.0];
-    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 5];
+    let mut columns: Vec<Vec<f64>> = (0..5).map(|_| Vec::with_capacity(n)).collect();
     let mut grade = Vec::with_capacity(n);
     for _ in 0..n {
         let mut score = 0.0;
