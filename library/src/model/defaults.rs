@@ -48,6 +48,17 @@
 //! to 1.6·`s_y`. A precision has no natural zero to shrink to, so unlike
 //! the spread its prior is centred on the data's scale rather than at 0.
 //!
+//! **Gaps** (graded family, [`super::family::ordered`]): with one linear
+//! predictor for every row, the level shares would put the cut above level
+//! k at `logit(F_k)`, `F_k` the share of rows at or below it; the gaps
+//! `d_k` between those cuts ([`marginal_cuts`]) centre each gap's default
+//! `lognormal(log d_k, 1)` (95% within a factor of about 7; predictors
+//! widen the latent scale, so the fitted gaps usually come out larger than
+//! the marginal ones). The intercept's centre is the score that gives the
+//! lowest level its share with the first cut at 0, `−logit(F_0)`. A gap,
+//! like a precision, has no natural zero, so its prior sits on the data's
+//! scale.
+//!
 //! **Pooled spreads.** A pooled group's departures vary from row to row
 //! too, so each pooled group takes one share of the budget beside the `K`
 //! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every

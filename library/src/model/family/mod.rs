@@ -5,7 +5,9 @@
 //! gamma-poisson — log. The
 //! levels family (a category outcome with K levels) has K − 1 linear
 //! predictors, one per level after the first, and a softmax link to the
-//! level probabilities. The likelihoods live in [`likelihood`] (row by row,
+//! level probabilities. The graded family (an ordered category outcome)
+//! has one linear predictor, a latent logistic score cut into the levels
+//! at learned, ordered cut points ([`ordered`]). The likelihoods live in [`likelihood`] (row by row,
 //! for the GLM families), [`gaussian`] (through sufficient statistics, for
 //! the normal family) and [`softmax`] (row by row, for the levels family);
 //! pooled groups add their departures to the linear predictor and their
