@@ -576,10 +576,10 @@ mod tests {
         let empty = Session::new(".");
         let cases: &[(&str, &[&str])] = &[
             ("", &["centre", "family", "parameterise", "prior"]),
-            ("family ", &["bernoulli", "beta", "binomial", "gamma_poisson", "levels", "normal", "poisson"]),
+            ("family ", &["bernoulli", "beta", "binomial", "exponential", "gamma_poisson", "graded", "levels", "normal", "poisson", "weibull"]),
             ("family binomial ", &["out"]),
             ("family binomial out ", &["of"]),
-            ("prior ", &["intercepts", "overdispersion", "pooled correlations", "pooled spreads", "precision", "slopes", "spread", "weights"]),
+            ("prior ", &["gaps", "intercepts", "overdispersion", "pooled correlations", "pooled spreads", "precision", "shape", "slopes", "spread", "weights"]),
             ("prior pooled correlations: ", &["lkj("]),
             ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student(", "uniform("]),
             ("centre ", &["off", "on"]),
@@ -619,7 +619,7 @@ mod tests {
         assert_eq!(offered_in(&session, header, ""), ["centre", "family", "parameterise", "prior"]);
         assert_eq!(offered_in(&session, header, "girth "), ["from", "using"]);
         assert_eq!(offered_in(&session, header, "girth from rootstock "), ["per", "using"]);
-        assert_eq!(offered(&session, &format!("{header}\n    girth from rootstock\n    family ")), ["bernoulli", "beta", "binomial", "gamma_poisson", "levels", "normal", "poisson"]);
+        assert_eq!(offered(&session, &format!("{header}\n    girth from rootstock\n    family ")), ["bernoulli", "beta", "binomial", "exponential", "gamma_poisson", "graded", "levels", "normal", "poisson", "weibull"]);
     }
 
     /// README "Statements", `table NAME from "FILE.csv":`: `x: real in cm`,
@@ -658,7 +658,7 @@ mod tests {
         let header = "simulate s from orchard rows 50 seed 7:";
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
-            ("x = ", &["bernoulli(", "beta(", "category(", "gamma_poisson(", "normal(", "poisson("]),
+            ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "normal(", "poisson(", "weibull("]),
             ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
             ("n = poisson(", &["departure(", "exp(", "log", "log("]),
             ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),

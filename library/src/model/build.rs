@@ -22,6 +22,7 @@ use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
 use super::family::shaped::{moment_overdispersion, moment_precision, BetaShare};
 use super::family::softmax::{level_prefix, DepartureRun, SoftmaxData};
 use super::family::survival::time_notes;
+use super::family::ordered::{marginal_cuts, GradedData};
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
@@ -115,6 +116,9 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         .collect();
     let family_start = priors.family_parameter.as_ref().map(|prior| (prior, family_parameter_start(&spec.family, &outcome)));
     let mut start = starting_point(&blocks, &priors.coefficients, family_start, &intercepts);
+    if spec.family == Family::Graded {
+        start.extend(marginal_cuts(&outcome.level_shares()).1);
+    }
     let anchor = pooling.anchor(&start);
     start.extend(pooling.start(&[], &anchor));
     let gaussian_spread = priors.family_parameter.clone().filter(|_| spec.family == Family::Normal);
@@ -134,6 +138,10 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         _ => {}
     }
     let likelihood = match (gaussian_spread, &outcome.levels) {
+        (None, Some(levels)) if spec.family == Family::Graded => {
+            notes.extend(graded_notes(spec, levels, &outcome));
+            Likelihood::Graded(graded_data(&design, &outcome.y, levels.len(), priors.gaps.clone()))
+        }
         (Some(spread_prior), _) => {
             notes.push("spread is sampled as log(spread), with the Jacobian of that change included".into());
             if !groups.is_empty() {
@@ -184,6 +192,16 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
     let mut groups = Vec::new();
     for term in &spec.terms {
         let TermSpec::Pooled { by, with } = term else { continue };
+        if spec.family == Family::Graded {
+            return Err(ModelError::Term {
+                term: term.to_string(),
+                message: format!(
+                    "pooled groups are not available for an ordered outcome (family graded) yet; model {} with \
+                     `{by}` as an ordinary term (one intercept or offset per level) instead",
+                    spec.outcome
+                ),
+            });
+        }
         let mut group = GroupTerm::plan(by, table).map_err(|e| match e {
             ModelError::Syntax { message } => ModelError::Term { term: term.to_string(), message },
             other => other,
@@ -226,7 +244,7 @@ fn for_outcome_levels(groups: Vec<GroupTerm>, spec: &ModelSpec, levels: Option<&
 /// choosing how that level's pooled departures are sampled.
 fn one_level_outcome(outcome: &OutcomeValues, level: usize) -> OutcomeValues {
     let y = outcome.y.iter().map(|&v| f64::from(u8::from(v as usize == level))).collect();
-    OutcomeValues { y, trials: None, levels: None }
+    OutcomeValues { y, trials: None, levels: None, cut_short: None }
 }
 
 /// The varying slope of predictor `x`: `x` must enter the model as a plain
@@ -412,6 +430,26 @@ fn level_notes(spec: &ModelSpec, levels: &[String], outcome: &OutcomeValues) -> 
     notes
 }
 
+/// What a graded-family model assumes, and levels without rows.
+fn graded_notes(spec: &ModelSpec, levels: &[String], outcome: &OutcomeValues) -> Vec<String> {
+    let mut notes = vec![format!(
+        "{}: {} ordered levels, lowest first ({}); each row has a latent score, its linear predictor plus a \
+         logistic error, and falls in the level between the cuts around that score (cumulative logit); the cut \
+         below {} is fixed at 0, so the intercepts place the scores against it, and the gaps between later cuts \
+         are sampled as their logs with the Jacobian of that change included",
+        spec.outcome,
+        levels.len(),
+        levels.join(", "),
+        levels[1]
+    )];
+    for (level, share) in levels.iter().zip(outcome.level_shares()) {
+        if share == 0.0 {
+            notes.push(format!("level {level} of {} has no rows; the cuts around it rest on their priors", spec.outcome));
+        }
+    }
+    notes
+}
+
 /// Indices of the design columns that are intercepts (exactly one of them
 /// is 1 in every row).
 pub(super) fn intercept_columns(recipes: &[TermRecipe]) -> Vec<usize> {
@@ -449,6 +487,13 @@ pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize, grou
     let blocks = groups.iter().flat_map(|g| std::iter::repeat_n(g.block(), 1 + g.slopes.len()));
     let runs = blocks.zip(group_indices(design, groups, rows)).map(|(block, indices)| DepartureRun { block, indices }).collect();
     SoftmaxData::new(design_rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels).with_runs(runs)
+}
+
+/// The design as rows for the graded family, with each row's level index
+/// and the gaps' priors.
+pub(super) fn graded_data(design: &DMatrix<f64>, y: &[f64], levels: usize, gaps: Vec<Prior>) -> GradedData {
+    let rows: Vec<f64> = design.transpose().as_slice().to_vec();
+    GradedData::new(rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels, gaps)
 }
 
 /// The family parameter's starting value: the outcome's sd for the

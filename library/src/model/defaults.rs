@@ -60,6 +60,17 @@
 //! steeply) down to 0.18 (times within about a fifth of their mean, a
 //! hazard rising steeply). The exponential family has no shape.
 //!
+//! **Gaps** (graded family, [`super::family::ordered`]): with one linear
+//! predictor for every row, the level shares would put the cut above level
+//! k at `logit(F_k)`, `F_k` the share of rows at or below it; the gaps
+//! `d_k` between those cuts ([`marginal_cuts`]) centre each gap's default
+//! `lognormal(log d_k, 1)` (95% within a factor of about 7; predictors
+//! widen the latent scale, so the fitted gaps usually come out larger than
+//! the marginal ones). The intercept's centre is the score that gives the
+//! lowest level its share with the first cut at 0, `−logit(F_0)`. A gap,
+//! like a precision, has no natural zero, so its prior sits on the data's
+//! scale.
+//!
 //! **Pooled spreads.** A pooled group's departures vary from row to row
 //! too, so each pooled group takes one share of the budget beside the `K`
 //! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every
@@ -89,6 +100,7 @@
 
 use super::error::ModelError;
 use super::family::shaped::{moment_overdispersion, moment_precision};
+use super::family::ordered::{cut_label, marginal_cuts};
 use super::family::softmax::level_prefix;
 use super::family::survival::mean_time;
 use super::family::Family;
@@ -131,6 +143,9 @@ pub struct PriorPlan {
     /// The prior of the family's positive parameter: the spread (normal)
     /// or the overdispersion (gamma-poisson).
     pub family_parameter: Option<Prior>,
+    /// The prior of each gap between cut points (graded family; empty
+    /// otherwise).
+    pub gaps: Vec<Prior>,
     /// The spread prior of each pooled group, in the groups' order.
     pub group_spreads: Vec<Prior>,
     /// The spread priors of each group's varying slopes (empty without).
@@ -152,6 +167,9 @@ pub struct PredictorBlock {
 
 /// The linear predictors of the model of `spec` on `outcome`.
 pub fn predictor_blocks(spec: &ModelSpec, outcome: &OutcomeValues) -> Vec<PredictorBlock> {
+    if spec.family == Family::Graded {
+        return vec![PredictorBlock { prefix: String::new(), centre: marginal_cuts(&outcome.level_shares()).0 }];
+    }
     match &outcome.levels {
         Some(levels) => {
             let shares = outcome.level_shares();
@@ -199,6 +217,7 @@ pub fn assign_priors(
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
         family_parameter: None,
+        gaps: Vec::new(),
         group_spreads: Vec::new(),
         slope_spreads: Vec::new(),
         correlation_lkj: spec.correlation_prior.unwrap_or(DEFAULT_LKJ),
@@ -250,6 +269,9 @@ pub fn assign_priors(
         });
         plan.family_parameter = Some(prior);
     }
+    if spec.family == Family::Graded {
+        plan.gaps = gap_priors(spec, outcome, &mut plan.uses);
+    }
     let declared = spec.declared_prior(PriorGroup::PooledSpreads);
     for group in groups {
         let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target / (varying.max(1) as f64).sqrt() });
@@ -288,6 +310,31 @@ pub fn assign_priors(
         });
     }
     Ok(plan)
+}
+
+/// The prior of each gap between a graded outcome's cut points: the
+/// declared `gaps` prior, else `lognormal(log d, 1)` with `d` the gap the
+/// level shares give with one linear predictor for every row
+/// ([`marginal_cuts`]), recorded under the label of the cut above the gap.
+fn gap_priors(spec: &ModelSpec, outcome: &OutcomeValues, uses: &mut Vec<PriorUse>) -> Vec<Prior> {
+    let Some(levels) = &outcome.levels else { return Vec::new() };
+    let declared = spec.declared_prior(PriorGroup::Gaps);
+    let (_, log_gaps) = marginal_cuts(&outcome.level_shares());
+    log_gaps
+        .iter()
+        .zip(levels.iter().skip(2))
+        .map(|(&log_gap, level)| {
+            let prior = declared.cloned().unwrap_or(Prior::LogNormal { log_mean: log_gap, log_sd: 1.0 });
+            uses.push(PriorUse {
+                group: PriorGroup::Gaps,
+                parameters: vec![cut_label(&spec.outcome, level)],
+                prior: prior.clone(),
+                declared: declared.is_some(),
+                at_average_row: false,
+            });
+            prior
+        })
+        .collect()
 }
 
 /// The information one row carries about the linear predictor at the
@@ -365,6 +412,8 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
         let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
         let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Shape) {
             spec.family.family_parameter().is_some() && family_parameter_group(&spec.family) == *group
+        } else if *group == PriorGroup::Gaps {
+            spec.family == Family::Graded
         } else if *group == PriorGroup::PooledSpreads {
             !groups.is_empty()
         } else {
@@ -396,6 +445,7 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
                     PriorGroup::Overdispersion => "the overdispersion is",
                     PriorGroup::Precision => "the precision is",
                     PriorGroup::Shape => "the shape is",
+                    PriorGroup::Gaps => "the gaps between cut points are",
                     _ => "pooled spreads are",
                 }
             ));

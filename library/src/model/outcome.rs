@@ -65,13 +65,13 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         });
     }
     match (&column.data, family) {
-        (ColumnData::Category { codes, levels }, Family::Levels) => return read_levels(name, codes, levels),
+        (ColumnData::Category { codes, levels }, Family::Levels | Family::Graded) => return read_levels(name, codes, levels),
         (ColumnData::Category { levels, .. }, _) => {
             return Err(ModelError::Column {
                 column: name.to_string(),
                 message: format!(
                     "the outcome is a category ({}), which goes with `family levels` (or leave the family \
-                     line out); `family {}` needs a numeric column",
+                     line out), or `family graded` when its levels are ordered; `family {}` needs a numeric column",
                     levels.join(", "),
                     family.name()
                 ),
@@ -111,11 +111,13 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
             })
             .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
         Family::Times { cut_short, .. } => read_times(table, name, y, cut_short.as_deref()),
-        Family::Levels => Err(ModelError::Column {
+        Family::Levels | Family::Graded => Err(ModelError::Column {
             column: name.to_string(),
             message: format!(
-                "`family levels` needs a category outcome, but this column is {kind}; declare it as a \
-                 category in the table or choose another family"
+                "`family {}` needs a category outcome, but this column is {kind}; declare it as a \
+                 category in the table{} or choose another family",
+                family.name(),
+                if *family == Family::Graded { " (its levels lowest first)" } else { "" }
             ),
         }),
     }

@@ -124,7 +124,7 @@ impl Model {
                 let cut = |i: usize| rows.cut_short.as_ref().is_some_and(|c| c[i]);
                 linear.iter().zip(y).enumerate().map(|(i, (&eta, &v))| time_row_log_density(TimeRow::new(v, cut(i)), eta, shape)).collect()
             }
-            Family::Levels => unreachable!("a levels model answered above"),
+            Family::Levels | Family::Graded => unreachable!("a model of a category outcome answered above"),
         })
     }
 
@@ -158,6 +158,9 @@ impl Model {
                 )
             }
             Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len), &self.groups, &group_rows)),
+            Likelihood::Graded(graded) => {
+                Likelihood::Graded(graded.with_rows(design.transpose().as_slice().to_vec(), y.iter().map(|&v| v as usize).collect()))
+            }
         };
         Ok(Model { design, y, group_rows, likelihood, ..self.clone() })
     }

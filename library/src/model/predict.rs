@@ -19,6 +19,7 @@ use super::columns::real_values;
 use super::error::ModelError;
 use super::family::correlated::{cholesky_of_correlations, lower_times, pair_count};
 use super::family::gaussian::GaussianStats;
+use super::family::ordered::level_probabilities as graded_level_probabilities;
 use super::family::softmax::level_probabilities;
 use super::family::survival::{draw_time, TimeForm, TimeShape};
 use super::family::Family;
@@ -138,6 +139,9 @@ impl Model {
         let levels = self.outcome_levels().ok_or_else(|| ModelError::Family {
             message: format!("model `{}` has a {} outcome, not a category, so it has no level probabilities", self.name, self.family.name()),
         })?;
+        if let Likelihood::Graded(_) = self.likelihood {
+            return Ok(self.graded_probabilities(params, rows));
+        }
         let width = rows.design.ncols();
         let blocks: Vec<nalgebra::DVector<f64>> = (1..levels.len())
             .map(|k| nalgebra::DVector::from_column_slice(&params[(k - 1) * width..k * width]))
@@ -147,6 +151,17 @@ impl Model {
         Ok((0..rows.design.nrows())
             .map(|i| level_probabilities(&eta.iter().map(|e| e[i]).collect::<Vec<f64>>()))
             .collect())
+    }
+
+    /// A graded model's level probabilities (lowest first) for each new
+    /// row: the differences of the cumulative logistic probabilities at
+    /// the cuts ([`super::family::ordered`]).
+    fn graded_probabilities(&self, params: &[f64], rows: &NewRows) -> Vec<Vec<f64>> {
+        let p = self.labels.len();
+        let mut cuts = vec![0.0];
+        cuts.extend_from_slice(&params[p..self.first_group_index()]);
+        let eta = &rows.design * nalgebra::DVector::from_column_slice(&params[..p]);
+        eta.iter().map(|&e| graded_level_probabilities(e, &cuts)).collect()
     }
 
     /// One simulated outcome per new row at constrained parameters `params`,
@@ -268,7 +283,7 @@ impl Model {
                 };
                 draw_time(mu.ln(), shape, rng)
             }
-            Family::Levels => return Err(invalid("a category outcome is drawn as a level".into())),
+            Family::Levels | Family::Graded => return Err(invalid("a category outcome is drawn as a level".into())),
         })
     }
 }
@@ -321,7 +336,7 @@ impl Model {
     pub fn fitted_rows(&self) -> NewRows {
         let trials = match &self.likelihood {
             Likelihood::Glm(glm) => glm.trials().map(|m| m.iter().map(|&v| v as u64).collect()),
-            Likelihood::Gaussian { .. } | Likelihood::Softmax(_) => None,
+            Likelihood::Gaussian { .. } | Likelihood::Softmax(_) | Likelihood::Graded(_) => None,
         };
         let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
         NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows() }
@@ -359,6 +374,15 @@ impl Model {
                     });
                 }
                 Likelihood::Softmax(softmax_data(&self.design, &y, count, &self.groups, &self.group_rows))
+            }
+            Likelihood::Graded(graded) => {
+                let count = graded.levels();
+                if let Some(bad) = y.iter().find(|&&v| !(v >= 0.0 && v.fract() == 0.0 && (v as usize) < count)) {
+                    return Err(ModelError::Parameters {
+                        message: format!("model `{}`: {bad} is not the index of one of its {count} outcome levels", self.name),
+                    });
+                }
+                Likelihood::Graded(graded.with_rows(self.design.transpose().as_slice().to_vec(), y.iter().map(|&v| v as usize).collect()))
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })

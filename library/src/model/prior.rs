@@ -33,11 +33,13 @@ pub enum PriorGroup {
     Precision,
     /// The shape of a Weibull time (positive).
     Shape,
+    /// The gaps between the cut points of a graded outcome (positive).
+    Gaps,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 8] = [
+    pub const ALL: [PriorGroup; 9] = [
         PriorGroup::Intercepts,
         PriorGroup::Slopes,
         PriorGroup::Weights,
@@ -46,6 +48,7 @@ impl PriorGroup {
         PriorGroup::Overdispersion,
         PriorGroup::Precision,
         PriorGroup::Shape,
+        PriorGroup::Gaps,
     ];
 
     /// The group words of a `prior` line.
@@ -64,6 +67,7 @@ impl PriorGroup {
             PriorGroup::Overdispersion => "overdispersion",
             PriorGroup::Precision => "precision",
             PriorGroup::Shape => "shape",
+            PriorGroup::Gaps => "gaps",
         }
     }
 
@@ -83,7 +87,15 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Shape)
+        matches!(
+            self,
+            PriorGroup::Spread
+                | PriorGroup::PooledSpreads
+                | PriorGroup::Overdispersion
+                | PriorGroup::Precision
+                | PriorGroup::Shape
+                | PriorGroup::Gaps
+        )
     }
 }
 

@@ -18,7 +18,11 @@
 //! model), and `exponential(mean)` or `exponential(log = η)` and
 //! `weibull(mean, k)` or `weibull(log = η, k)`: a positive time with that
 //! mean (Weibull with shape k, a positive expression, the shape of a
-//! `weibull` model). Expressions use numbers, parent
+//! `weibull` model), and `graded(score, lowest, level cut, …)`: an ordered category
+//! whose row falls in the level between the cuts around its latent score,
+//! `score` plus a standard logistic error — the levels lowest first, each
+//! after the first with the cut below it (increasing numbers), what a
+//! `graded` model assumes. Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
 //! `[c = level]` (1 when category c is at that level, else 0), and
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
@@ -45,7 +49,7 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, EXPONENTIAL, WEIBULL];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, EXPONENTIAL, WEIBULL];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
@@ -54,6 +58,7 @@ pub const GAMMA_POISSON: &str = "gamma_poisson";
 pub const BETA: &str = "beta";
 pub const EXPONENTIAL: &str = "exponential";
 pub const WEIBULL: &str = "weibull";
+pub const GRADED: &str = "graded";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -197,8 +202,9 @@ impl Expr {
 /// How one node is generated.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Mechanism {
-    /// Levels drawn with fixed shares, in declared order.
-    Category { levels: Vec<String>, shares: Vec<f64> },
+    /// Levels in declared order, drawn with fixed shares, or for a graded
+    /// category (`score` given) by cutting each row's latent score.
+    Category { levels: Vec<String>, shares: Vec<f64>, score: Option<LatentScore> },
     Normal { mean: Expr, sd: Expr },
     /// `p` is the probability, or its logit when `logit` is true.
     Bernoulli { p: Expr, logit: bool },
@@ -214,11 +220,20 @@ pub enum Mechanism {
     Time { mean: Expr, log: bool, shape: Option<Expr> },
 }
 
+/// The latent score of a graded category: `score` plus a standard
+/// logistic error, cut at `cuts` (one below each level after the first,
+/// increasing).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LatentScore {
+    pub score: Expr,
+    pub cuts: Vec<f64>,
+}
+
 impl Mechanism {
     /// Every `departure(…)` the mechanism draws, in reading order.
     pub fn departures(&self) -> Vec<DepartureTerm> {
         match self {
-            Mechanism::Category { .. } => Vec::new(),
+            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.departures()).collect(),
             Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
             Mechanism::Bernoulli { p, .. } => p.departures(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
@@ -239,6 +254,7 @@ impl Mechanism {
             Mechanism::Poisson { rate, log: true, .. } => rate.departures(),
             Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
             Mechanism::Time { mean, log: true, .. } => mean.departures(),
+            Mechanism::Category { score: Some(s), .. } => s.score.departures(),
             _ => Vec::new(),
         }
     }
@@ -246,7 +262,7 @@ impl Mechanism {
     /// Every node the mechanism reads.
     pub fn uses(&self) -> Vec<(String, Use)> {
         match self {
-            Mechanism::Category { .. } => Vec::new(),
+            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.uses()).collect(),
             Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
             Mechanism::Bernoulli { p, .. } => p.uses(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
@@ -261,7 +277,8 @@ impl Mechanism {
 impl fmt::Display for Mechanism {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let name = match self {
-            Mechanism::Category { .. } => CATEGORY,
+            Mechanism::Category { score: None, .. } => CATEGORY,
+            Mechanism::Category { score: Some(_), .. } => GRADED,
             Mechanism::Normal { .. } => NORMAL,
             Mechanism::Bernoulli { .. } => BERNOULLI,
             Mechanism::Poisson { overdispersion: None, .. } => POISSON,
@@ -304,6 +321,14 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
     let args = split_top_level(&rest[open + 1..rest.len() - 1]);
     let mechanism = match (dist, args.as_slice()) {
         (CATEGORY, items) => parse_category(name, items)?,
+        (GRADED, [score, lowest, rest @ ..]) if !rest.is_empty() => parse_graded(name, score, lowest, rest)?,
+        (GRADED, _) => {
+            return Err(format!(
+                "graded takes the latent score, the lowest level, then each higher level with the cut below it \
+                 (`graded(0.3 * shade, none, mild 0, marked 1.5)`), not {} arguments",
+                args.len()
+            ))
+        }
         (NORMAL, [mean, sd]) => Mechanism::Normal { mean: parse_expr(mean)?, sd: parse_expr(sd)? },
         (BERNOULLI, [p]) => match keyword_argument(p, LOGIT) {
             Some(eta) => Mechanism::Bernoulli { p: parse_expr(eta)?, logit: true },
@@ -419,7 +444,40 @@ fn parse_category(name: &str, items: &[&str]) -> Result<Mechanism, String> {
     if (total - 1.0).abs() > 1e-6 {
         return Err(format!("the shares of {name} add up to {}, not 1; adjust them", crate::model::prior::short_number(total)));
     }
-    Ok(Mechanism::Category { levels, shares })
+    Ok(Mechanism::Category { levels, shares, score: None })
+}
+
+/// `graded(score, lowest, level cut, …)`: the levels lowest first, each
+/// after the first with the cut below it; the cuts must increase.
+fn parse_graded(name: &str, score: &str, lowest: &str, rest: &[&str]) -> Result<Mechanism, String> {
+    let mut levels = vec![lowest.trim().to_string()];
+    if !is_name(&levels[0]) {
+        return Err(format!("`{}` is not a level name for {name}; the second argument of graded is the lowest level", levels[0]));
+    }
+    let mut cuts: Vec<f64> = Vec::new();
+    for item in rest {
+        let item = item.trim();
+        let (level, cut) = item
+            .rsplit_once(char::is_whitespace)
+            .ok_or_else(|| format!("graded item `{item}` needs a level and the cut below it, like `mild 0.5`"))?;
+        let level = level.trim().to_string();
+        let cut: f64 = cut
+            .parse()
+            .ok()
+            .filter(|c: &f64| c.is_finite())
+            .ok_or_else(|| format!("the cut `{cut}` below level {level} of {name} must be a number"))?;
+        if levels.contains(&level) {
+            return Err(format!("level {level} of {name} is listed twice; list each level once"));
+        }
+        if let Some(&below) = cuts.last().filter(|&&below| cut <= below) {
+            return Err(format!(
+                "the cut below level {level} of {name} is {cut}, not above the cut before it ({below}); cuts must increase"
+            ));
+        }
+        levels.push(level);
+        cuts.push(cut);
+    }
+    Ok(Mechanism::Category { levels, shares: Vec::new(), score: Some(LatentScore { score: parse_expr(score)?, cuts }) })
 }
 
 /// Split at commas outside brackets.

@@ -119,6 +119,24 @@ pub fn recover_fitted(
     Ok((recovery, model, fit))
 }
 
+/// The true cuts of a graded model above its first (fixed at 0): the
+/// mechanism's cuts less its first; `None` each when the mechanism has
+/// another number of levels.
+fn cut_truths(model: &Model, mechanism: Option<&Mechanism>, notes: &mut Vec<String>) -> Vec<Option<f64>> {
+    let wanted = model.first_group_index() - model.coefficient_names().len();
+    match mechanism {
+        Some(Mechanism::Category { score: Some(latent), .. }) if latent.cuts.len() == wanted + 1 => {
+            notes.push(format!(
+                "the cuts' true values are the mechanism's cuts less its first ({}), which the model fixes at 0; the \
+                 intercepts' are the score's less the same",
+                super::support::short(latent.cuts[0])
+            ));
+            latent.cuts[1..].iter().map(|c| Some(c - latent.cuts[0])).collect()
+        }
+        _ => vec![None; wanted],
+    }
+}
+
 /// The true value of each parameter (in parameter order), or `None` with a
 /// note when the mechanism is not of the model's family.
 fn true_parameters(
@@ -137,6 +155,7 @@ fn true_parameters(
             | (Some(Mechanism::Beta { .. }), Family::Beta)
             | (Some(Mechanism::Time { shape: None, .. }), Family::Times { form: TimeForm::Exponential, .. })
             | (Some(Mechanism::Time { shape: Some(_), .. }), Family::Times { form: TimeForm::Weibull, .. })
+            | (Some(Mechanism::Category { score: Some(_), .. }), Family::Graded)
     );
     if !matches {
         notes.push(format!("the mechanism of {outcome} is not of the model's family, so no parameter has a true value"));
@@ -185,6 +204,9 @@ fn true_parameters(
         ));
     }
     let mut truth = fixed_truths(model, eta, spread, notes);
+    if truth.len() < model.first_group_index() {
+        truth.extend(cut_truths(model, simulation.mechanism(outcome), notes));
+    }
     truth.extend(group_truths);
     Some(truth)
 }

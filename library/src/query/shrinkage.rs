@@ -146,7 +146,7 @@ fn scale_words(model: &Model) -> String {
     let outcome = model.outcome_name();
     match model.family() {
         Family::Normal => outcome.to_string(),
-        Family::Bernoulli | Family::Binomial { .. } | Family::Levels => format!("log-odds of {outcome}"),
+        Family::Bernoulli | Family::Binomial { .. } | Family::Levels | Family::Graded => format!("log-odds of {outcome}"),
         Family::Beta => format!("log-odds of mean {outcome}"),
         Family::Poisson | Family::GammaPoisson | Family::Times { .. } => format!("log of mean {outcome}"),
     }

@@ -283,6 +283,11 @@ impl Simulation {
         let own = &generated.departures[k];
         let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, generated, own, i);
         match &self.nodes[k].mechanism {
+            // The model fixes its first cut at 0, so its linear predictor is the score less that cut.
+            Mechanism::Category { score: Some(latent), .. } => {
+                let first = latent.cuts.first().copied().unwrap_or(0.0);
+                Some(((0..n).map(|i| eval(&latent.score, i) - first).collect(), None))
+            }
             Mechanism::Category { .. } => None,
             Mechanism::Normal { mean, sd } => {
                 let spread = sd.uses().is_empty().then(|| eval(sd, 0));
@@ -425,6 +430,21 @@ impl Simulation {
         let what = format!("simulate {}", self.name);
         let stop = |i: usize| if i % CANCEL_EVERY == 0 { QueryError::stop_if(cancel, &what) } else { Ok(()) };
         Ok(match &m.mechanism {
+            Mechanism::Category { score: Some(latent), .. } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    stop(i)?;
+                    let score = eval(&latent.score, i);
+                    if !score.is_finite() {
+                        return Err(bad(i, format!("the latent score is {}, but it must be a finite number", short(score))));
+                    }
+                    // A standard logistic error by inversion of its distribution function.
+                    let u: f64 = rng.random::<f64>().max(f64::MIN_POSITIVE);
+                    let value = score + (u / (1.0 - u)).ln();
+                    out.push(latent.cuts.iter().filter(|&&c| value >= c).count() as u32);
+                }
+                NodeValues::Category(out)
+            }
             Mechanism::Category { shares, .. } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {

@@ -433,7 +433,7 @@ fn unused_parent_warnings(simulation: &Simulation, graph: &str) -> Result<Vec<St
         .map(|(node, line, unused)| {
             let (them, it) = if unused.len() == 1 { ("its parent", "it") } else { ("its parents", "them") };
             let why = match simulation.mechanism(&node) {
-                Some(Mechanism::Category { .. }) => format!("a category mechanism draws fixed shares, so {node} cannot depend on {it} here"),
+                Some(Mechanism::Category { score: None, .. }) => format!("a category mechanism draws fixed shares, so {node} cannot depend on {it} here"),
                 _ => format!("use {it} in the mechanism, or remove the edge if {node} should not depend on {it}"),
             };
             format!(

@@ -5,7 +5,9 @@
 //! gamma-poisson — log. The
 //! levels family (a category outcome with K levels) has K − 1 linear
 //! predictors, one per level after the first, and a softmax link to the
-//! level probabilities. The likelihoods live in [`likelihood`] (row by row,
+//! level probabilities. The graded family (an ordered category outcome)
+//! has one linear predictor, a latent logistic score cut into the levels
+//! at learned, ordered cut points ([`ordered`]). The likelihoods live in [`likelihood`] (row by row,
 //! for the GLM families), [`gaussian`] (through sufficient statistics, for
 //! the normal family) and [`softmax`] (row by row, for the levels family);
 //! pooled groups add their departures to the linear predictor and their
@@ -25,6 +27,7 @@ pub mod gaussian;
 mod kernels;
 pub mod likelihood;
 pub mod correlated;
+pub mod ordered;
 pub mod pooling;
 pub mod shaped;
 pub mod softmax;
@@ -60,17 +63,23 @@ pub enum Family {
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
     Levels,
+    /// Ordered category outcome: one linear predictor, a latent logistic
+    /// score cut into the levels at learned, ordered cut points
+    /// (cumulative logit, [`ordered`]). The levels and their order come
+    /// from the outcome column's declaration.
+    Graded,
 }
 
 /// The family words of a `family` line (binomial then takes `out of <column>`).
 pub const FAMILY_WORDS: &[&str] =
-    &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, BINOMIAL, survival::EXPONENTIAL, survival::WEIBULL];
+    &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, GRADED, BINOMIAL, survival::EXPONENTIAL, survival::WEIBULL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
 const GAMMA_POISSON: &str = "gamma_poisson";
 const BETA: &str = "beta";
 const LEVELS: &str = "levels";
+const GRADED: &str = "graded";
 /// The label of the normal family's residual sd.
 pub const SPREAD: &str = "spread";
 /// The label of the gamma-poisson family's sd of the rate multiplier.
@@ -98,14 +107,15 @@ impl Family {
             [GAMMA_POISSON] => Ok(Family::GammaPoisson),
             [BETA] => Ok(Family::Beta),
             [LEVELS] => Ok(Family::Levels),
+            [GRADED] => Ok(Family::Graded),
             [BINOMIAL, out, of, column] if [out, of] == OUT_OF => Ok(Family::Binomial { trials: column.to_string() }),
             [BINOMIAL, ..] => Err(ModelError::syntax(
                 "a binomial outcome needs the column that holds each row's number of trials: \
                  write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, binomial out of <column>, \
-                 exponential or weibull (either with `cut short by <column>`)"
+                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, graded, binomial out of \
+                 <column>, exponential or weibull (either with `cut short by <column>`)"
             ))),
         }
     }
@@ -121,6 +131,7 @@ impl Family {
             Family::Beta => BETA,
             Family::Levels => LEVELS,
             Family::Times { form, .. } => form.word(),
+            Family::Graded => GRADED,
         }
     }
 
@@ -131,6 +142,7 @@ impl Family {
             Family::Bernoulli | Family::Binomial { .. } | Family::Beta => "logit",
             Family::Poisson | Family::GammaPoisson | Family::Times { .. } => "log",
             Family::Levels => "softmax",
+            Family::Graded => "cumulative logit",
         }
     }
 
@@ -160,7 +172,7 @@ impl Family {
     pub fn inverse_link(&self, eta: f64) -> f64 {
         match self {
             Family::Normal => eta,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => logistic(eta),
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels | Family::Graded => logistic(eta),
             Family::Poisson | Family::GammaPoisson | Family::Times { .. } => eta.exp(),
         }
     }
@@ -172,7 +184,7 @@ impl Family {
     pub fn link(&self, mu: f64) -> f64 {
         match self {
             Family::Normal => mu,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => {
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels | Family::Graded => {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }
