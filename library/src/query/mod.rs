@@ -54,7 +54,7 @@ mod support;
 pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectAnswer};
 pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
 pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
-pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RISK_RATIO_STEPS};
+pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RATE_RATIO, RISK_RATIO, RISK_RATIO_STEPS};
 pub use error::QueryError;
 pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
 pub use hidden_refit::{hidden_refit, HiddenRefit, StrengthSummary};
