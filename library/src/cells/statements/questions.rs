@@ -395,8 +395,8 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
 }
 
 /// The options of `ask … using T` before `with …`: `checking zero`,
-/// `at NODE VALUE [NODE VALUE …]` and `pooling C [C …]`; the rest (the
-/// method) is returned.
+/// `at NODE VALUE [NODE VALUE …]`, `pooling C [C …]` and `varying by C`;
+/// the rest (the method) is returned.
 fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
     let mut options = AskOptions::default();
     let mut rest = text.trim();
@@ -406,20 +406,20 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
             options.check_zero = true;
         } else if let Some(tail) = option_text(rest, "pooling") {
             let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
-            while let Some(name) = words.next_if(|w| !["with", "checking", "at"].contains(w)) {
+            while let Some(name) = words.next_if(|w| !["with", "checking", "at", "varying"].contains(w)) {
                 options.pooled.push(name.to_string());
             }
             if options.pooled.is_empty() {
                 return Err("`pooling` is followed by the column that marks the clusters".into());
             }
-            rest = match [" with ", " checking ", " at "].iter().filter_map(|w| tail.find(w)).min() {
+            rest = match [" with ", " checking ", " at ", " varying "].iter().filter_map(|w| tail.find(w)).min() {
                 Some(i) => tail[i..].trim(),
                 None => "",
             };
         } else if let Some(tail) = option_text(rest, "at") {
             let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
             let mut used = 0;
-            while let Some(name) = words.next_if(|w| !["with", "checking", "pooling"].contains(w)) {
+            while let Some(name) = words.next_if(|w| !["with", "checking", "pooling", "varying"].contains(w)) {
                 let value = words.next().ok_or(format!("`at {name}` needs a value"))?;
                 options.held.push((name.to_string(), value.to_string()));
                 used += 1;
@@ -427,10 +427,20 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
             if used == 0 {
                 return Err("`at` is followed by a node and its value".into());
             }
-            rest = match [" with ", " checking ", " pooling "].iter().filter_map(|w| tail.find(w)).min() {
+            rest = match [" with ", " checking ", " pooling ", " varying "].iter().filter_map(|w| tail.find(w)).min() {
                 Some(i) => tail[i..].trim(),
                 None => "",
             };
+        } else if let Some(tail) = option_text(rest, "varying") {
+            let tail = tail.strip_prefix("by").ok_or("`varying` is followed by `by` and a category of the set, `varying by C`")?.trim();
+            let (name, after) = tail.split_once(char::is_whitespace).unwrap_or((tail, ""));
+            if name.is_empty() || ["with", "checking", "pooling", "at"].contains(&name) {
+                return Err("`varying by` is followed by a category of the set conditioned on".into());
+            }
+            if options.varying_by.replace(name.to_string()).is_some() {
+                return Err("`varying by` is given twice; slopes vary by one category".into());
+            }
+            rest = after.trim();
         } else {
             return Ok((options, rest));
         }
