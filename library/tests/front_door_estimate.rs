@@ -56,10 +56,14 @@ fn front_door_answer_covers_the_truth_where_the_plain_regression_is_biased() {
     let c = &json["contrasts"][0];
     let (lo, hi) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
     assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "truth {TRUE_EFFECT} outside [{lo}, {hi}]");
-    // `compare routes` has one route here: the front door.
+    // `compare routes` sets the joint model's route beside the front door:
+    // `intervene` takes the complete algorithm's formula (written
+    // differently, fitted anew), and it too covers Wright's 0.35.
     let routes = last_json(&mut session, "compare routes for total effect of shading on trout in reach using water with laplace seed 4");
     assert_eq!(routes["route"], "front door");
-    assert!(routes["joint"].is_null());
+    let joint = &routes["joint"];
+    assert!(joint["formulas"][0].as_str().unwrap().starts_with("Pr[trout | do(shading)] ="), "{joint}");
+    assert!(joint["lower"].as_f64().unwrap() <= TRUE_EFFECT && TRUE_EFFECT <= joint["upper"].as_f64().unwrap(), "{joint}");
     assert_eq!(routes["formula_route"][0]["mean"], c["mean"], "the same seeded estimate as `ask … using`");
     // Both regressions are kept in the session.
     assert!(session.fit("formula_algae_from_shading").is_some());

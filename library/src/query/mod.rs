@@ -46,6 +46,7 @@ pub mod joint;
 pub mod left_out;
 pub mod mechanism;
 pub mod recover;
+pub mod routes;
 pub mod robustness;
 pub mod shrinkage;
 pub mod simulate;
@@ -65,6 +66,7 @@ pub use joint::{build_joint, fit_joint, fit_joint_with_progress, JointFit, Joint
 pub use left_out::{score_predictions, HardRow, ModelScore, PredictiveScores};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
+pub use routes::{front_door_route, FrontDoorRoute};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
 pub use shrinkage::{shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};
