@@ -680,7 +680,7 @@ pub(crate) fn compare_routes(
         ));
         notes.extend(f.warnings.iter().map(|w| format!("front-door route: {w}")));
     }
-    notes.push("the two routes are fitted separately, so their difference pairs draws at random; it is wide by design".to_string());
+    notes.push("the routes are fitted separately, so each difference pairs draws at random; it is wide by design".to_string());
     notes.extend(simulated.warnings.iter().map(|w| format!("joint route: {w}")));
     notes.extend(answer.warnings.iter().map(|w| format!("adjustment route: {w}")));
     notes.push(format!("fitted with {}; intervals are {}s", method.describe(), adjustment.interval));
@@ -762,6 +762,10 @@ fn check_settings(table: &Table, x: &str, settings: Option<&(String, String)>) -
     })
 }
 
+/// The joint model's route beside a formula answer: its watched contrast
+/// and formulas, or a note why it is not taken.
+type SecondRoute = Result<(crate::query::WatchedContrast, Vec<String>), String>;
+
 /// The joint model's route to an effect an identifying formula answers:
 /// `intervene` on a joint model of the graph, which evaluates the complete
 /// algorithm's formula where hidden nodes touch its simulation. `Err` of a
@@ -779,7 +783,7 @@ fn joint_formula_route(
     control: &RunControl,
     label: &str,
     line: usize,
-) -> Result<Result<(crate::query::WatchedContrast, Vec<String>), String>, CellError> {
+) -> Result<SecondRoute, CellError> {
     let Some(first) = answer.contrasts.first() else { return Ok(Err("nothing was estimated, so there is no second route".into())) };
     let beyond_formula = answer.identification.beyond.as_ref().and_then(|b| b.formula.clone());
     if let Ok(crate::graph::Complete::Identified { formula, .. }) = graph.identify_intervention_with_cancel(&[x], &[y], control.cancel) {
@@ -811,7 +815,7 @@ fn formula_routes(
     y: &str,
     g: &str,
     mass: f64,
-    second: Result<(crate::query::WatchedContrast, Vec<String>), String>,
+    second: SecondRoute,
 ) -> Display {
     let route = answer.route.clone().unwrap_or_default();
     let first = if route == "front door" { "the front door".to_string() } else { format!("the identifying formula of the {route}") };
