@@ -39,6 +39,7 @@ use crate::table::{Column, ColumnData, Table};
 
 use super::contrast::Contrast;
 use super::error::QueryError;
+use super::intervene_formula::{hidden_obstacle, FormulaRoute, FormulaUsed};
 use super::joint::{JointFit, JointModel, NodeModel};
 use super::support::{drawn_column, interval_words, parameter_rows, require_column, stream_seed, with_column, ContrastSummary, Setting};
 
@@ -112,8 +113,20 @@ pub struct InterventionResult {
     /// Which question each simulated node model with pooled groups
     /// answers, in words (empty when none pools a column).
     pub pooled: Vec<String>,
+    /// How the watched changes were simulated: [`JOINT_ROUTE`], or
+    /// [`FORMULA_ROUTE`] when hidden nodes touch what the joint model would
+    /// simulate and the identifying formula is evaluated instead.
+    pub route: String,
+    /// For the formula route: each watched node's formula and the
+    /// conditionals fitted for it.
+    pub formulas: Vec<FormulaUsed>,
     pub warnings: Vec<String>,
 }
+
+/// The route of an intervention through the joint model's own node models.
+pub const JOINT_ROUTE: &str = "joint model";
+/// The route of an intervention through its identifying formula.
+pub const FORMULA_ROUTE: &str = "identifying formula";
 
 /// Simulate `request` through `joint` fitted as `fit`, over rows of `table`.
 pub fn intervene(
@@ -155,10 +168,19 @@ pub fn intervene_with_cancel(
     if request.watch.is_empty() {
         return Err(QueryError::request(format!("{place}: name at least one node to watch")));
     }
-    refuse_hidden_routes(joint, x, &request.watch, &place)?;
     let simulated = nodes_to_simulate(joint, x, &request.watch)?;
-    refuse_hidden_confounding(joint, x, &request.watch, &simulated, &place, cancel)?;
     check_rows_memory(table, request, simulated.len(), &place)?;
+    if let Some(obstacle) = hidden_obstacle(&joint.graph, x, &request.watch, &simulated)? {
+        if !matches!(request.groups, GroupQuestion::Observed) {
+            return Err(QueryError::request(format!(
+                "{place}: {obstacle}, so the change is taken from the identifying formula, whose regressions pool no \
+                 column; leave out `in …`"
+            )));
+        }
+        let (base, rows_source) = base_rows(table, request)?;
+        let route = FormulaRoute { joint, fit, table, base: &base, request, to: &to, from: &from, simulated: &simulated, place: &place };
+        return route.estimate(obstacle, rows_source, cancel);
+    }
     let (base, rows_source) = base_rows(table, request)?;
     let steps = simulation_steps(joint, fit, &simulated, &place)?;
     let pooled = group_question_notes(&steps, &request.groups, &place)?;
@@ -226,6 +248,8 @@ pub fn intervene_with_cancel(
         simulated,
         watched,
         pooled,
+        route: JOINT_ROUTE.to_string(),
+        formulas: Vec::new(),
         warnings,
     })
 }
@@ -291,105 +315,6 @@ fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -
     }
     Ok(notes)
 }
-
-/// An error when a watched node depends on `x` through a hidden node: the
-/// joint model has no model of the hidden node, so the effect along that
-/// route would silently be zero. Such an intervention is not identifiable
-/// by this joint model.
-fn refuse_hidden_routes(joint: &JointModel, x: &str, watch: &[String], place: &str) -> Result<(), QueryError> {
-    let graph = &joint.graph;
-    let descendants = graph.descendants(x)?;
-    for w in watch {
-        let ancestors = graph.ancestors(w)?;
-        let hidden: Vec<&str> = descendants
-            .iter()
-            .copied()
-            .filter(|h| ancestors.contains(h) && graph.is_hidden(h).unwrap_or(false))
-            .collect();
-        if let Some(h) = hidden.first() {
-            return Err(QueryError::request(format!(
-                "{place}: part of the effect of {x} on {w} runs through the hidden node {h} ({x} → … → {h} → … → {w}), \
-                 which the joint model cannot simulate, so this intervention is not identifiable by the joint model; \
-                 observe {h}, or ask for the total effect by adjustment (`ask total effect of {x} on {w} in {} using …`)",
-                graph.name()
-            )));
-        }
-    }
-    Ok(())
-}
-
-/// An error when a hidden common cause touches what the joint model would
-/// simulate. The joint model fits every node from its observed parents, so
-/// a hidden cause of a simulated node and of the exposure, of another
-/// simulated node, or of a simulated node's observed parent would be left
-/// out of the simulation and bias it. Then the complete algorithm
-/// (Shpitser & Pearl 2006) decides what to say: not identifiable (the
-/// hedge), or identifiable by a formula the joint model does not simulate.
-fn refuse_hidden_confounding(joint: &JointModel, x: &str, watch: &[String], simulated: &[String], place: &str, cancel: &AtomicBool) -> Result<(), QueryError> {
-    let graph = &joint.graph;
-    let mut touched: Vec<String> = vec![x.to_string()];
-    touched.extend(simulated.iter().cloned());
-    for s in simulated {
-        touched.extend(graph.parents(s)?.into_iter().map(str::to_string));
-    }
-    let mut culprit = None;
-    for h in graph.nodes().iter().filter(|n| n.hidden) {
-        let reached = hidden_reach(graph, &h.name)?;
-        let a = reached.iter().find(|r| simulated.contains(r));
-        let b = a.and_then(|a| reached.iter().find(|r| *r != a && touched.contains(r)));
-        if let (Some(a), Some(b)) = (a, b) {
-            culprit = Some((h.name.clone(), a.clone(), b.clone()));
-            break;
-        }
-    }
-    let Some((h, a, b)) = culprit else {
-        return Ok(());
-    };
-    let g = graph.name();
-    match graph.identify_intervention_with_cancel(&[x.to_string()], watch, cancel)? {
-        crate::graph::Complete::Identified { .. } => Err(QueryError::request(format!(
-            "{place}: the hidden node {h} is a common cause of {a} and {b}, which the joint model (one regression per node \
-             from its observed parents) cannot simulate; the effect of setting {x} is identifiable by a formula instead: \
-             ask `ask total effect of {x} on {} in {g} using TABLE` to see it and estimate it from its fitted conditionals",
-            watch.join(", ")
-        ))),
-        crate::graph::Complete::NotIdentified { hedge } => Err(QueryError::request(format!(
-            "{place}: the effect of setting {x} on {} is not identifiable in graph {g}: the hidden common cause{} {} join{} \
-             {{{}}} and {{{}}} (a hedge, Shpitser & Pearl 2006), so models that agree on every observed value differ in this \
-             effect, and a joint model that leaves the hidden nodes out would report a number the data cannot back; \
-             measure one of the hidden causes",
-            watch.join(", "),
-            if hedge.hidden_causes.len() == 1 { "" } else { "s" },
-            hedge.hidden_causes.join(", "),
-            if hedge.hidden_causes.len() == 1 { "s" } else { "" },
-            hedge.outer.join(", "),
-            hedge.inner.join(", "),
-        ))),
-    }
-}
-
-/// Observed nodes reached from the hidden node `h` along directed paths
-/// whose inner nodes are hidden.
-fn hidden_reach(graph: &crate::graph::Graph, h: &str) -> Result<Vec<String>, QueryError> {
-    let mut out = Vec::new();
-    let mut seen = vec![h.to_string()];
-    let mut stack = vec![h.to_string()];
-    while let Some(node) = stack.pop() {
-        for c in graph.children(&node)? {
-            if seen.iter().any(|s| s == c) {
-                continue;
-            }
-            seen.push(c.to_string());
-            if graph.is_hidden(c)? {
-                stack.push(c.to_string());
-            } else {
-                out.push(c.to_string());
-            }
-        }
-    }
-    Ok(out)
-}
-
 /// Observed descendants of `x` that are watched or lead to a watched node,
 /// in topological order.
 fn nodes_to_simulate(joint: &JointModel, x: &str, watch: &[String]) -> Result<Vec<String>, QueryError> {
@@ -520,14 +445,14 @@ fn simulate_draw(
 
 /// One watched value: the row mean of a numeric node, or the share of rows
 /// at one level of a category node.
-struct Target {
-    node: String,
-    level: Option<String>,
+pub(super) struct Target {
+    pub(super) node: String,
+    pub(super) level: Option<String>,
 }
 
 impl Target {
     /// The watched values of node `name`: itself, or one per level.
-    fn of(name: &str, column: &Column) -> Vec<Target> {
+    pub(super) fn of(name: &str, column: &Column) -> Vec<Target> {
         match column.data.levels() {
             Some(levels) => {
                 levels.iter().map(|l| Target { node: name.to_string(), level: Some(l.clone()) }).collect()
@@ -537,7 +462,7 @@ impl Target {
     }
 
     /// The watched value over the rows of `table`.
-    fn value(&self, table: &Table) -> f64 {
+    pub(super) fn value(&self, table: &Table) -> f64 {
         let Some(column) = table.column(&self.node) else { return f64::NAN };
         match (&self.level, &column.data) {
             (Some(level), ColumnData::Category { codes, levels }) => {
@@ -549,7 +474,7 @@ impl Target {
     }
 }
 
-fn mean(values: &[f64]) -> f64 {
+pub(super) fn mean(values: &[f64]) -> f64 {
     values.iter().sum::<f64>() / values.len().max(1) as f64
 }
 

@@ -20,8 +20,9 @@
 //! left out); the override must use only the node's parents, apart from
 //! pooled columns (`pooled site`): a pooled column that is a node must be
 //! a parent, and one outside the graph marks clusters (a note says so). A
-//! node with a hidden parent gets a warning: the joint model leaves that
-//! cause out.
+//! node with a hidden parent gets a warning: its model leaves that
+//! cause out (and
+//! `intervene` turns to the identifying formula where that would bias it).
 //!
 //! The node models share no parameters and have independent priors, so the
 //! joint posterior is the product of the node posteriors and draws of
@@ -126,13 +127,14 @@ fn hidden_parent_warning(graph: &Graph, node: &str, h: &str) -> Result<String, Q
     }
     Ok(if causes.is_empty() {
         format!(
-            "{node} has the hidden parent {h}; the joint model leaves that cause out, so simulated \
-             interventions treat {h} as if it confounded nothing"
+            "{node} has the hidden parent {h}; the node models leave that cause out, so `intervene` takes \
+             an effect whose simulation it touches from the identifying formula instead (or refuses when none exists)"
         )
     } else {
         format!(
-            "{node} has the hidden parent {h}, a mediator downstream of {}: the joint model loses the route \
-             through {h} into {node}, so `intervene` refuses to set {} when watching {node} or what it causes",
+            "{node} has the hidden parent {h}, a mediator downstream of {}: the node models lose the route \
+             through {h} into {node}, so `intervene` setting {} and watching {node} or what it causes takes the \
+             identifying formula instead (or refuses when none exists)",
             causes.join(", "),
             causes.join(" or ")
         )

@@ -287,11 +287,8 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunCont
         row.extend(summary_cells(&s, w.unit.as_deref()));
         grid.push(row);
     }
-    let simulated = if result.simulated.is_empty() { "none".to_string() } else { result.simulated.join(", ") };
-    let mut notes = vec![
-        format!("each draw sets {} in every row, keeps the nodes it does not cause as observed, and simulates {simulated} from their node models; the row means under the two settings are subtracted", request.variable),
-        format!("the two settings share each draw and its noise (seed {}); {}s of the per-draw changes", result.seed, result.interval),
-    ];
+    let mut notes = intervention_route_notes(&result, &request.variable);
+    notes.push(format!("the two settings share each draw and its noise (seed {}); {}s of the per-draw changes", result.seed, result.interval));
     if result.watched.iter().any(|w| w.level.is_some()) {
         notes.push("a watched category gives one row per level: the change in the share of rows at that level, each row's level drawn from the softmax probabilities of its node model".to_string());
     }
@@ -301,6 +298,30 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunCont
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
     let svg = figures::intervention(&format!("{name}: {}", result.intervention), table, &result.watched).ok();
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
+}
+
+/// How the intervention was simulated: through the joint model's node
+/// models, or through each watched node's identifying formula (with the
+/// formula and the regressions fitted for it).
+fn intervention_route_notes(result: &crate::query::InterventionResult, x: &str) -> Vec<String> {
+    if result.route != crate::query::FORMULA_ROUTE {
+        let simulated = if result.simulated.is_empty() { "none".to_string() } else { result.simulated.join(", ") };
+        return vec![format!(
+            "each draw sets {x} in every row, keeps the nodes it does not cause as observed, and simulates {simulated} from their node models; the row means under the two settings are subtracted"
+        )];
+    }
+    let mut notes = vec![format!(
+        "hidden nodes touch what the joint model would simulate, so each watched node's change comes from its identifying formula \
+         (Shpitser & Pearl 2006), evaluated as `ask total effect … using` does: its conditionals fitted as regressions with the joint fit's method, \
+         then per draw {x} set in every row and the formula's other nodes drawn in its order"
+    )];
+    for f in &result.formulas {
+        notes.push(format!("{}; fitted: {}", f.formula, f.fitted.join(" | ")));
+        if !f.from_rows.is_empty() {
+            notes.push(format!("{}'s formula takes {} from each row", f.node, f.from_rows.join(", ")));
+        }
+    }
+    notes
 }
 
 /// Read `intervene NAME: set X v1 vs v0, watch Y, Z [rows N] [seed S] [intervals P%]`
