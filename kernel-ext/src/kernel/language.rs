@@ -408,7 +408,7 @@ mod tests {
             ("ask total effect ", &["of"]),
             ("ask total effect of x on y in g ", &["using"]),
             // README: `ask … using T [checking zero] [at M v, …] [pooling C …] [intervals P%] [with …]`.
-            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "pooling", "with"]),
+            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "pooling", "varying", "with"]),
             ("implications of g ", &["checked"]),
             ("implications of g checked ", &["against"]),
             ("joint j ", &["="]),
