@@ -90,6 +90,47 @@ fn gamma_difference(y: f64, phi: f64) -> (f64, f64) {
     }
 }
 
+/// The counts of a gamma-poisson outcome as (value, rows with it), in
+/// increasing order: the gamma difference depends on the count and φ only,
+/// so a likelihood pass takes it once per distinct count
+/// ([`gamma_difference_total`]) instead of once per row.
+pub fn count_tally(y: &[f64]) -> Vec<(f64, f64)> {
+    let mut sorted = y.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    let mut tally: Vec<(f64, f64)> = Vec::new();
+    for v in sorted {
+        match tally.last_mut() {
+            Some((last, n)) if *last == v => *n += 1.0,
+            _ => tally.push((v, 1.0)),
+        }
+    }
+    tally
+}
+
+/// `Σ_rows (log Γ(y + φ) − log Γ(φ))` and `Σ_rows (ψ(y + φ) − ψ(φ))` from
+/// the tally of [`count_tally`]: the small counts share one running sum of
+/// `log(φ + k)` and `1/(φ + k)` up to the largest of them, the others take
+/// the gamma functions, one call per distinct count.
+pub fn gamma_difference_total(tally: &[(f64, f64)], phi: f64) -> (f64, f64) {
+    let (mut logs, mut inverses, mut k) = (0.0, 0.0, 0.0);
+    let (mut total, mut d_total) = (0.0, 0.0);
+    for &(y, rows) in tally {
+        let (difference, d_difference) = if y < SUMMED_BELOW {
+            while k < y {
+                logs += (phi + k).ln();
+                inverses += 1.0 / (phi + k);
+                k += 1.0;
+            }
+            (logs, inverses)
+        } else {
+            gamma_difference(y, phi)
+        };
+        total += rows * difference;
+        d_total += rows * d_difference;
+    }
+    (total, d_total)
+}
+
 /// One row's log probability without `−log y!`, and its derivatives in η
 /// and in `u = log κ` (module doc).
 pub fn gamma_poisson_row(y: f64, eta: f64, shape: GammaShape) -> (f64, f64, f64) {
