@@ -45,6 +45,9 @@ if [ ! -d "$node_dir/node_modules/playwright-core" ] || ! cmp -s tests/browser/p
     (cd "$node_dir" && npm ci --no-audit --no-fund --ignore-scripts --loglevel=error)
 fi
 export WAYPATH_NODE_MODULES="$node_dir/node_modules"
+# Rust cells link against this clone's sources, whichever clone built the
+# kernel binary that cargo reuses from the shared target folder.
+export WAYPATH_CELLS_WORKSPACE="$PWD"
 
 echo "== building (release)"
 # The Rust-cell runner alone first, as the README builds it: the library that

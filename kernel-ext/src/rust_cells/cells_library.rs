@@ -61,9 +61,40 @@ fn build_place() -> Result<BuildPlace, String> {
         Some(dir) => PathBuf::from(dir),
         None => exe_target.ok_or("the waypath program is not inside a cargo target folder")?.to_path_buf(),
     };
-    let workspace = Path::new(env!("CARGO_MANIFEST_DIR")).join("..");
-    let workspace = workspace.canonicalize().unwrap_or(workspace);
+    let workspace = workspace_root()?;
     Ok(BuildPlace { workspace, target, profile })
+}
+
+/// The Waypath workspace whose `waypath-rust-host` the cells link to: the
+/// first of `$WAYPATH_CELLS_WORKSPACE`, the `CARGO_MANIFEST_DIR` that
+/// `cargo run` and `cargo test` hand this process, and the folder this
+/// program was compiled in, that lies in a workspace holding the runner's
+/// package. A binary built in one clone and reused by cargo in another
+/// (same sources, same target folder) would otherwise link against a
+/// folder that may be gone or hold other sources.
+fn workspace_root() -> Result<PathBuf, String> {
+    let candidates: Vec<PathBuf> = [std::env::var_os("WAYPATH_CELLS_WORKSPACE"), std::env::var_os("CARGO_MANIFEST_DIR")]
+        .into_iter()
+        .flatten()
+        .map(PathBuf::from)
+        .chain([PathBuf::from(env!("CARGO_MANIFEST_DIR"))])
+        .collect();
+    candidates
+        .iter()
+        .find_map(|start| start.ancestors().find(|dir| holds_the_runner(dir)).map(Path::to_path_buf))
+        .map(|dir| dir.canonicalize().unwrap_or(dir))
+        .ok_or_else(|| {
+            format!(
+                "cannot find the Waypath workspace that Rust cells are built in (looked above {}); set WAYPATH_CELLS_WORKSPACE \
+                 to the folder of Waypath's top-level Cargo.toml",
+                candidates.iter().map(|c| c.display().to_string()).collect::<Vec<_>>().join(", ")
+            )
+        })
+}
+
+/// A workspace folder whose `Cargo.toml` lists the runner's package.
+fn holds_the_runner(dir: &Path) -> bool {
+    std::fs::read_to_string(dir.join("Cargo.toml")).is_ok_and(|text| text.contains("[workspace]") && text.contains("kernel-ext/rust-host"))
 }
 
 /// The `waypath-rust` program beside this one (or `$WAYPATH_RUST_RUNNER`),
@@ -240,6 +271,19 @@ mod tests {
         let log = "error: failed to download `bumpalo v3.20.4`\n\nCaused by:\n  attempting to make an HTTP request, but --offline was specified";
         assert!(wants_network(log));
         assert!(!wants_network("error[E0425]: cannot find value `x` in this scope"));
+    }
+
+    /// The workspace is found from where the program runs (cargo's
+    /// run-time `CARGO_MANIFEST_DIR`, here `kernel-ext`), by its own
+    /// top-level `Cargo.toml`; a folder without it is not taken.
+    #[test]
+    fn the_workspace_is_the_folder_whose_manifest_lists_the_runner() {
+        let root = workspace_root().expect("the test runs inside the workspace");
+        let manifest = std::fs::read_to_string(root.join("Cargo.toml")).unwrap();
+        assert!(manifest.contains("\"kernel-ext/rust-host\""), "{}", root.display());
+        assert!(root.join("kernel-ext").join("rust-host").is_dir());
+        assert!(!holds_the_runner(&root.join("kernel-ext")));
+        assert!(!holds_the_runner(&std::env::temp_dir()));
     }
 
     #[test]
