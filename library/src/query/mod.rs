@@ -58,7 +58,7 @@ pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoi
 pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RATE_RATIO, RISK_RATIO, RISK_RATIO_STEPS};
 pub use error::QueryError;
 pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
-pub use hidden_refit::{hidden_refit, HiddenRefit, StrengthSummary};
+pub use hidden_refit::{hidden_refit, HiddenRefit, RefitDiagnostics, StrengthSummary};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, GroupQuestion, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast, FORMULA_ROUTE, JOINT_ROUTE};
 pub use intervene_formula::FormulaUsed;
