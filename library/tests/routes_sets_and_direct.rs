@@ -107,7 +107,15 @@ fn direct_effect_routes_cover_the_edge_coefficient() {
     let truth = truth_model.edge("x", "y");
     let (mut session, dir) = session_in("direct", &truth_model, 3000, 42);
     last_json(&mut session, PLANT_GRAPH);
-    let json = last_json(&mut session, "compare routes for direct effect of x on y in plant using runs intervals 98% with laplace seed 5");
+    let cell = "compare routes for direct effect of x on y in plant using runs intervals 98% with laplace seed 5";
+    let out = run(&mut session, cell);
+    let plain = out.displays.last().map(|d| d.plain.clone()).unwrap_or_default();
+    eprintln!("{plain}");
+    assert!(plain.starts_with("direct effect of x on y in plant, ") && plain.contains(": 3 routes"), "{plain}");
+    assert!(plain.contains("joint model (controlled direct effect, m = "), "{plain}");
+    // y's parents besides x are w and m, a set fitted above: the note says the routes coincide.
+    assert!(plain.contains("y's parents other than x (w, m) are also a set fitted above"), "{plain}");
+    let json = last_json(&mut session, cell);
     // The single-door sets: {c, m} and {m, w}, one the answer's, one a further route.
     let others = json["other_sets"].as_array().unwrap();
     assert_eq!(others.len(), 1, "{json}");

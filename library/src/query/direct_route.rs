@@ -32,6 +32,9 @@ use super::support::require_column;
 pub struct DirectRoute {
     /// The mediators held, `(node, value)`.
     pub held: Vec<(String, String)>,
+    /// Y's observed parents other than X: the set its regression
+    /// conditions on.
+    pub parents: Vec<String>,
     /// Y's node regression body.
     pub model_text: String,
     pub contrast: Contrast,
@@ -83,7 +86,8 @@ pub fn controlled_direct_route(
         .into_iter()
         .next()
         .ok_or_else(|| QueryError::request(format!("{place}: the regression gave no contrast")))?;
-    Ok(Ok(DirectRoute { held, model_text: text.replace('\n', "; "), contrast, warnings: fit.warnings.clone() }))
+    let parents = node.parents.iter().filter(|p| *p != x).cloned().collect();
+    Ok(Ok(DirectRoute { held, parents, model_text: text.replace('\n', "; "), contrast, warnings: fit.warnings.clone() }))
 }
 
 /// The value a mediator is held at: a numeric column's mean (four

@@ -31,7 +31,7 @@ pub(super) fn other_set_rows(first: &Contrast, others: &[SetRoute], mass: f64) -
         let estimate = route.contrast.summary();
         let difference = paired_difference(&first.draws, &route.contrast.draws, mass)?;
         out.rows.push((format!("adjustment (stratify by {words})"), estimate.clone()));
-        out.rows.push((format!("difference (first set − {words})"), difference.clone()));
+        out.rows.push(("difference (first set − this set)".to_string(), difference.clone()));
         let mut j = json_of(&estimate);
         j["adjustment_set"] = json!(route.set);
         j["model"] = json!(route.model_text);
@@ -77,6 +77,14 @@ impl DirectRoutes<'_> {
                     held_words(&route.held),
                     route.model_text
                 ));
+                let same = |set: &[String]| set.len() == route.parents.len() && set.iter().all(|m| route.parents.contains(m));
+                if same(&set) || self.answer.identification.adjustment_sets.iter().take(1 + self.others.json.len()).any(|s| same(s)) {
+                    notes.push(format!(
+                        "{y}'s parents other than {x} ({}) are also a set fitted above, so the joint route conditions on the same nodes; \
+                         it checks more than that set's route only where the joint model's node regression differs from the additive one (per-level slopes, another family)",
+                        set_words(&route.parents)
+                    ));
+                }
                 notes.extend(route.warnings.iter().map(|w| format!("joint route: {w}")));
                 let mut j = json_of(&s);
                 j["route"] = json!("controlled direct effect");
