@@ -129,7 +129,7 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     let widened = (r.refitted.upper - r.refitted.lower) / (r.fitted.upper - r.fitted.lower).max(f64::MIN_POSITIVE);
     let mut notes = vec![
         format!(
-            "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value); {y}'s regression keeps the model's priors",
+            "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value), and integrates it out: each row's {x} and {y} are then jointly normal; {y}'s regression keeps the model's priors",
             r.rows
         ),
         format!(
