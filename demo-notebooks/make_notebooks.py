@@ -683,10 +683,10 @@ never mapped, cool some reaches by about half a degree and also carry
 cleaner water worth a few nymphs per m² (per standard deviation of
 "springiness"). `refit with hidden` states that idea as priors on the two
 strengths and refits the model beside a simulated hidden value per reach,
-so the uncertainty about the hidden cause widens the slope's interval. A
-hidden value per row makes a posterior the sampler explores slowly: read its
-warnings before the numbers, and refit with more `draws` or a higher
-`acceptance` (`… with nuts acceptance 0.95`) when it names any.
+so the uncertainty about the hidden cause widens the slope's interval. The
+hidden values are integrated out, so the refit samples only the model's own
+parameters and a few more; still read its warnings before the numbers, and
+refit with more `draws` (`… with nuts draws 4000`) when it names any.
 """),
     code("""
 robustness of nymphs: temp refit with hidden to temp normal(-0.5, 0.25) and to mayflies normal(3, 1.5)

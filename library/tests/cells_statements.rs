@@ -214,7 +214,7 @@ fn malformed_headers_are_answered_with_their_documented_form() {
     let message = |session: &mut Session, cell: &str| run(session, cell).error.map(|e| e.message).unwrap_or_default();
     let cases = [
         ("ask total effect of x on y in g using", "ask total|direct effect of X on Y in GRAPH using TABLE"),
-        ("compare routes for total effect of x on y g using field", "compare routes for total effect of X on Y in GRAPH using TABLE"),
+        ("compare routes for total effect of x on y g using field", "compare routes for total|direct effect of X on Y in GRAPH using TABLE"),
         ("implications of g checked field", "implications of GRAPH"),
         ("paths from x to y in g givn z", "paths from X to Y in GRAPH [given A, B]"),
         ("recover m field", "recover MODEL on SIMULATION"),

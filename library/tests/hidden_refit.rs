@@ -133,3 +133,79 @@ fn refit_refuses_what_it_cannot_do() {
         assert!(error.contains(expected), "{cell}: {error}");
     }
 }
+
+/// The hidden-causes demo's refit, cell for cell from
+/// `demo-notebooks/make_notebooks.py` on its own `reaches.csv`, with the
+/// default sampler settings: with each reach's hidden value integrated out
+/// the chains settle (R-hat at most 1.01, the limit of Vehtari et al. 2021)
+/// and the slope's draws count for many independent ones.
+#[test]
+fn the_demo_refit_mixes() {
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("../demo-notebooks");
+    let mut session = Session::new(&demo);
+    last_json(
+        &mut session,
+        "table reaches from \"data/reaches.csv\":\n    buffer: category(none, planted)\n    temp: real in °C\n    gradient: real in %\n    mayflies: real in nymphs per m²\n    stoneflies: binary\n\
+         model nymphs:\n    mayflies from temp, gradient, buffer using reaches\nfit nymphs",
+    );
+    let json = last_json(&mut session, "robustness of nymphs: temp refit with hidden to temp normal(-0.5, 0.25) and to mayflies normal(3, 1.5)");
+    let diagnostics = json["diagnostics"].as_array().unwrap();
+    assert_eq!(diagnostics.len(), 2, "{diagnostics:?}");
+    for d in diagnostics {
+        let (rhat, bulk, tail) = (d["rhat"].as_f64().unwrap(), d["ess_bulk"].as_f64().unwrap(), d["ess_tail"].as_f64().unwrap());
+        eprintln!("{}: R-hat {rhat:.4}, bulk ESS {bulk:.0}, tail ESS {tail:.0}", d["quantity"]);
+        assert!(rhat <= 1.01, "{d}");
+        assert!(bulk >= 800.0 && tail >= 800.0, "{d}");
+    }
+    assert!(json["warnings"].as_array().unwrap().is_empty(), "{}", json["warnings"]);
+    // Omitted-variable bias of a linear slope (Wooldridge, Introductory
+    // Econometrics §3.3, recalled): leaving out a cause u of both gives a
+    // slope of temp larger by b·a / var(temp | gradient, buffer), so the
+    // refit moves it by about minus the product's mean over temp's
+    // residual variance, here worked out by least squares from the CSV.
+    let (fitted, refitted) = (json["fitted"]["mean"].as_f64().unwrap(), json["refitted"]["mean"].as_f64().unwrap());
+    let product = json["product"]["mean"].as_f64().unwrap();
+    let residual_variance = temp_residual_variance(&demo.join("data/reaches.csv"));
+    let expected = -product / residual_variance;
+    eprintln!("fitted {fitted:.3}, refitted {refitted:.3}, product {product:.3}, residual variance {residual_variance:.3}, expected shift {expected:.3}");
+    assert!(((refitted - fitted) / expected - 1.0).abs() < 0.1, "shift {} against {expected}", refitted - fitted);
+}
+
+/// The residual variance of temp regressed on an intercept, gradient and
+/// a planted buffer (normal equations solved by Cramer's rule).
+fn temp_residual_variance(csv: &Path) -> f64 {
+    let text = std::fs::read_to_string(csv).unwrap();
+    let rows: Vec<[f64; 4]> = text
+        .lines()
+        .skip(1)
+        .map(|line| {
+            let f: Vec<&str> = line.split(',').collect();
+            [1.0, f[3].parse().unwrap(), if f[1] == "planted" { 1.0 } else { 0.0 }, f[2].parse().unwrap()]
+        })
+        .collect();
+    let mut xtx = [[0.0; 3]; 3];
+    let mut xty = [0.0; 3];
+    for r in &rows {
+        for j in 0..3 {
+            xty[j] += r[j] * r[3];
+            for k in 0..3 {
+                xtx[j][k] += r[j] * r[k];
+            }
+        }
+    }
+    let det3 = |m: &[[f64; 3]; 3]| {
+        m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1]) - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0]) + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+    };
+    let whole = det3(&xtx);
+    let coefficients: Vec<f64> = (0..3)
+        .map(|j| {
+            let mut m = xtx;
+            for (k, row) in m.iter_mut().enumerate() {
+                row[j] = xty[k];
+            }
+            det3(&m) / whole
+        })
+        .collect();
+    let sum: f64 = rows.iter().map(|r| (r[3] - (0..3).map(|j| coefficients[j] * r[j]).sum::<f64>()).powi(2)).sum();
+    sum / (rows.len() - 3) as f64
+}

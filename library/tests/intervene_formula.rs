@@ -80,7 +80,7 @@ fn formula_route_covers_the_path_traced_effect_and_refusals_name_a_hedge() {
             if let Some(error) = out.error {
                 let message = error.describe();
                 if message.contains("cannot be evaluated by simulation") {
-                    continue; // a formula with a ratio: named, not estimated
+                    continue; // a formula the evaluator cannot simulate (a ratio not of the normalised form): named, not estimated
                 }
                 assert!(message.contains("not identifiable") && message.contains("a hedge"), "seed {seed} v{x} -> v{y}: {message}");
                 // The hidden causes named join the hedge: each has a child in it.

@@ -1,7 +1,7 @@
 //! A normal outcome's regression refitted beside a simulated hidden common
 //! cause of one of its predictors (the exposure) and the outcome.
 //!
-//! Each row gets its own latent value `uᵢ ~ normal(0, 1)`. The exposure is
+//! Each row has its own hidden value `uᵢ ~ normal(0, 1)`. The exposure is
 //! modelled from the model's other design columns plus `a·uᵢ`, the outcome
 //! by the model's own design plus `b·uᵢ`:
 //!
@@ -14,14 +14,24 @@
 //!   `σy` ([`Model::log_prior_and_gradient`]);
 //! * `a` and `b` take the priors the user states.
 //!
+//! The hidden values are not sampled: they are integrated out. Given the
+//! other terms, the strengths and the spreads, a row's residuals
+//! `rx = x − w·α` and `ry = y − z·β` are `(a_s·u + εx, b·u + εy)` with
+//! `a_s = a / sd(x)`, a bivariate normal with variances `a_s² + σx²`,
+//! `b² + σy²` and covariance `a_s·b` (the outcome's mean takes the observed
+//! `x`, and the change from `(x, y)` to `(x, ry)` has Jacobian 1). Sampling
+//! one latent per row instead gives a posterior of n + p dimensions whose
+//! strengths mix slowly; the marginal one has the model's parameters and
+//! four more. The whole likelihood needs only the residuals' three sums of
+//! squares and products, and its gradient is analytic.
+//!
 //! The data cannot tell `b·a` apart from the exposure's own slope, so the
 //! priors on the two strengths carry the assumption, and the posterior of
 //! the slope widens by what they leave open. With both strengths held at
 //! zero the outcome's part is the model's own posterior.
 //!
 //! Unconstrained parameters, in order: `β` (the model's coefficients),
-//! `log σy`, `α`, `log σx`, `a`, `b`, then `u₁ … uₙ`. The gradient is
-//! analytic.
+//! `log σy`, `α`, `log σx`, `a`, `b`.
 
 use nalgebra::{DMatrix, DVector};
 
@@ -60,7 +70,6 @@ pub struct HiddenLayout {
     pub exposure_spread: usize,
     pub to_exposure: usize,
     pub to_outcome: usize,
-    pub latent: usize,
     pub dim: usize,
 }
 
@@ -115,18 +124,17 @@ impl<'m> HiddenCause<'m> {
             exposure_spread,
             to_exposure: exposure_spread + 1,
             to_outcome: exposure_spread + 2,
-            latent: exposure_spread + 3,
-            dim: exposure_spread + 3 + self.y.len(),
+            dim: exposure_spread + 3,
         }
     }
 
     /// A starting point from standard scores `z` (one per parameter, such
     /// as [`crate::infer::fit::stratified_scores`] gives): the model's own
     /// start for the outcome (given, unconstrained), a tenth of a score for
-    /// each exposure coefficient and log spread, each strength a score's
-    /// share of its prior's typical distance from the prior's centre, and
-    /// each latent its score. Nothing starts exactly at a prior's centre,
-    /// where every derivative in a strength would be zero.
+    /// each exposure coefficient and log spread, and each strength a score's
+    /// share of its prior's typical distance from the prior's centre.
+    /// Nothing starts exactly at a prior's centre, where every derivative in
+    /// a strength centred at 0 would be zero.
     pub fn start(&self, outcome_start: &[f64], z: &[f64]) -> Vec<f64> {
         let l = self.layout();
         let score = |i: usize| z.get(i).copied().unwrap_or(0.0);
@@ -135,10 +143,71 @@ impl<'m> HiddenCause<'m> {
         for (k, prior) in [(l.to_exposure, &self.to_exposure), (l.to_outcome, &self.to_outcome)] {
             theta[k] = prior.central_point() + 0.5 * score(k) * prior.typical_distance();
         }
-        for (i, t) in theta[l.latent..].iter_mut().enumerate() {
-            *t = score(l.latent + i);
-        }
         theta
+    }
+
+    /// Each row's log density of its standardised exposure and its outcome
+    /// with the hidden value integrated out, at `theta` (every constant
+    /// kept; the exposure's is the density of its standardised value).
+    pub fn row_log_densities(&self, theta: &[f64]) -> Vec<f64> {
+        let pair = self.pair(theta);
+        let (rx, ry) = self.residuals(theta);
+        (0..self.y.len()).map(|i| pair.log_density(rx[i] * rx[i], ry[i] * ry[i], rx[i] * ry[i], 1.0)).collect()
+    }
+
+    /// The residuals of the standardised exposure from `w·α` and of the
+    /// outcome from `z·β`.
+    fn residuals(&self, theta: &[f64]) -> (DVector<f64>, DVector<f64>) {
+        let l = self.layout();
+        let beta = DVector::from_column_slice(&theta[..l.outcome_spread]);
+        let alpha = DVector::from_column_slice(&theta[l.exposure_coefficients..l.exposure_spread]);
+        let mean_y = self.design * &beta;
+        let mean_x = &self.others * &alpha;
+        let rx = DVector::from_iterator(self.x.len(), self.x.iter().zip(mean_x.iter()).map(|(x, m)| x - m));
+        let ry = DVector::from_iterator(self.y.len(), self.y.iter().zip(mean_y.iter()).map(|(y, m)| y - m));
+        (rx, ry)
+    }
+
+    /// The residual pair's covariance at `theta`.
+    fn pair(&self, theta: &[f64]) -> Pair {
+        let l = self.layout();
+        let a_std = theta[l.to_exposure] / self.x_sd;
+        let b = theta[l.to_outcome];
+        let (vx, vy) = ((2.0 * theta[l.exposure_spread]).exp(), (2.0 * theta[l.outcome_spread]).exp());
+        Pair { xx: a_std * a_std + vx, yy: b * b + vy, xy: a_std * b }
+    }
+}
+
+/// The covariance of a row's two residuals once the hidden value is
+/// integrated out: `[[xx, xy], [xy, yy]]`.
+#[derive(Debug, Clone, Copy)]
+struct Pair {
+    xx: f64,
+    yy: f64,
+    xy: f64,
+}
+
+impl Pair {
+    fn determinant(&self) -> f64 {
+        self.xx * self.yy - self.xy * self.xy
+    }
+
+    /// The log density of `rows` residual pairs with sums of squares
+    /// `sxx`, `syy` and of products `sxy` (one row: its own squares).
+    fn log_density(&self, sxx: f64, syy: f64, sxy: f64, rows: f64) -> f64 {
+        let det = self.determinant();
+        let form = (self.yy * sxx - 2.0 * self.xy * sxy + self.xx * syy) / det;
+        -rows * (std::f64::consts::TAU.ln() + 0.5 * det.ln()) - 0.5 * form
+    }
+
+    /// The derivatives of [`Pair::log_density`] in `xx`, `yy` and `xy`.
+    fn derivatives(&self, sxx: f64, syy: f64, sxy: f64, rows: f64) -> (f64, f64, f64) {
+        let det = self.determinant();
+        let form = (self.yy * sxx - 2.0 * self.xy * sxy + self.xx * syy) / det;
+        let d_xx = -0.5 * rows * self.yy / det - 0.5 * (syy - form * self.yy) / det;
+        let d_yy = -0.5 * rows * self.xx / det - 0.5 * (sxx - form * self.xx) / det;
+        let d_xy = rows * self.xy / det - 0.5 * (-2.0 * sxy + 2.0 * self.xy * form) / det;
+        (d_xx, d_yy, d_xy)
     }
 }
 
@@ -149,55 +218,44 @@ impl LogDensity for HiddenCause<'_> {
 
     fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
         let l = self.layout();
-        let n = self.y.len();
+        let n = self.y.len() as f64;
         grad.iter_mut().for_each(|g| *g = 0.0);
         let mut total = self.model.log_prior_and_gradient(&theta[..=l.outcome_spread], &mut grad[..=l.outcome_spread]);
-        let (a, b) = (theta[l.to_exposure], theta[l.to_outcome]);
-        let a_std = a / self.x_sd;
-        let u = &theta[l.latent..];
-        let beta = DVector::from_column_slice(&theta[..l.outcome_spread]);
-        let alpha = DVector::from_column_slice(&theta[l.exposure_coefficients..l.exposure_spread]);
-        let (log_sy, log_sx) = (theta[l.outcome_spread], theta[l.exposure_spread]);
-        let (prec_y, prec_x) = ((-2.0 * log_sy).exp(), (-2.0 * log_sx).exp());
-        let mean_y = self.design * &beta;
-        let mean_x = &self.others * &alpha;
-        let mut scaled_y = DVector::zeros(n);
-        let mut scaled_x = DVector::zeros(n);
-        let (mut sq_y, mut sq_x, mut d_a, mut d_b) = (0.0, 0.0, 0.0, 0.0);
-        for i in 0..n {
-            let ry = self.y[i] - mean_y[i] - b * u[i];
-            let rx = self.x[i] - mean_x[i] - a_std * u[i];
-            sq_y += ry * ry;
-            sq_x += rx * rx;
-            scaled_y[i] = ry * prec_y;
-            scaled_x[i] = rx * prec_x;
-            d_a += scaled_x[i] * u[i] / self.x_sd;
-            d_b += scaled_y[i] * u[i];
-            total -= 0.5 * u[i] * u[i];
-            grad[l.latent + i] = -u[i] + a_std * scaled_x[i] + b * scaled_y[i];
-        }
-        let nf = n as f64;
-        total += -0.5 * sq_y * prec_y - nf * log_sy - 0.5 * sq_x * prec_x - nf * log_sx;
-        let d_beta = self.design.tr_mul(&scaled_y);
+        let (rx, ry) = self.residuals(theta);
+        let (sxx, syy, sxy) = (rx.dot(&rx), ry.dot(&ry), rx.dot(&ry));
+        let pair = self.pair(theta);
+        total += pair.log_density(sxx, syy, sxy, n);
+        // Each row's residuals: d/drx = −(yy·rx − xy·ry)/det, d/dry = −(xx·ry − xy·rx)/det;
+        // a residual falls by its design row, so the coefficients' gradients are Xᵀ of the negatives.
+        let det = pair.determinant();
+        let pull_x = (&rx * pair.yy - &ry * pair.xy) / det;
+        let pull_y = (&ry * pair.xx - &rx * pair.xy) / det;
+        let d_beta = self.design.tr_mul(&pull_y);
         for (g, d) in grad[..l.outcome_spread].iter_mut().zip(d_beta.iter()) {
             *g += d;
         }
-        grad[l.outcome_spread] += sq_y * prec_y - nf;
-        let d_alpha = self.others.tr_mul(&scaled_x);
+        let d_alpha = self.others.tr_mul(&pull_x);
+        let alpha = &theta[l.exposure_coefficients..l.exposure_spread];
         for (k, prior) in self.others_priors.iter().enumerate() {
             let (lp, d) = prior.log_density_and_derivative(alpha[k]);
             total += lp;
             grad[l.exposure_coefficients + k] = d_alpha[k] + d;
         }
+        let (d_xx, d_yy, d_xy) = pair.derivatives(sxx, syy, sxy, n);
+        let (a, b) = (theta[l.to_exposure], theta[l.to_outcome]);
+        let a_std = a / self.x_sd;
+        let (log_sy, log_sx) = (theta[l.outcome_spread], theta[l.exposure_spread]);
+        let (vy, vx) = ((2.0 * log_sy).exp(), (2.0 * log_sx).exp());
+        grad[l.outcome_spread] += d_yy * 2.0 * vy;
         let sx = log_sx.exp();
         let (lp, d_spread) = self.spread_prior.log_density_and_derivative(sx);
         total += lp + log_sx;
-        grad[l.exposure_spread] = sq_x * prec_x - nf + d_spread * sx + 1.0;
+        grad[l.exposure_spread] = d_xx * 2.0 * vx + d_spread * sx + 1.0;
         let (lp_a, dp_a) = self.to_exposure.log_density_and_derivative(a);
         let (lp_b, dp_b) = self.to_outcome.log_density_and_derivative(b);
         total += lp_a + lp_b;
-        grad[l.to_exposure] = d_a + dp_a;
-        grad[l.to_outcome] = d_b + dp_b;
+        grad[l.to_exposure] = (d_xx * 2.0 * a_std + d_xy * b) / self.x_sd + dp_a;
+        grad[l.to_outcome] = d_yy * 2.0 * b + d_xy * a_std + dp_b;
         if total.is_finite() {
             total
         } else {
@@ -231,24 +289,104 @@ mod tests {
         Model::build(&spec, &table).unwrap()
     }
 
+    fn density(m: &Model) -> HiddenCause<'_> {
+        let slope = m.linear_slope_position("x").unwrap();
+        HiddenCause::new(m, slope, Prior::Normal { mean: 0.4, sd: 0.2 }, Prior::Normal { mean: -0.3, sd: 0.5 }).unwrap()
+    }
+
+    /// Points away from every symmetry: strengths of both signs, spreads
+    /// off 1, coefficients near their fitted size.
+    fn points(dim: usize) -> Vec<Vec<f64>> {
+        [0.3, 1.1, -0.7].iter().map(|&scale| (0..dim).map(|i| scale * ((i as f64) * 0.7 + scale).sin()).collect()).collect()
+    }
+
     #[test]
     fn gradient_matches_central_differences() {
         let m = model();
-        let slope = m.linear_slope_position("x").unwrap();
-        let d = HiddenCause::new(&m, slope, Prior::Normal { mean: 0.4, sd: 0.2 }, Prior::Normal { mean: -0.3, sd: 0.5 }).unwrap();
+        let d = density(&m);
         let dim = d.dim();
-        let theta: Vec<f64> = (0..dim).map(|i| 0.3 * ((i as f64) * 0.7).sin()).collect();
-        let mut grad = vec![0.0; dim];
-        let f = d.log_density_and_gradient(&theta, &mut grad);
-        assert!(f.is_finite());
-        let mut scratch = vec![0.0; dim];
-        for i in 0..dim {
-            let h = 1e-5;
-            let (mut up, mut down) = (theta.clone(), theta.clone());
-            up[i] += h;
-            down[i] -= h;
-            let numeric = (d.log_density_and_gradient(&up, &mut scratch) - d.log_density_and_gradient(&down, &mut scratch)) / (2.0 * h);
-            assert!((numeric - grad[i]).abs() <= 1e-5 * (1.0 + numeric.abs()), "parameter {i}: analytic {} numeric {numeric}", grad[i]);
+        for theta in points(dim) {
+            let mut grad = vec![0.0; dim];
+            let f = d.log_density_and_gradient(&theta, &mut grad);
+            assert!(f.is_finite());
+            let mut scratch = vec![0.0; dim];
+            for i in 0..dim {
+                let h = 1e-5;
+                let (mut up, mut down) = (theta.clone(), theta.clone());
+                up[i] += h;
+                down[i] -= h;
+                let numeric = (d.log_density_and_gradient(&up, &mut scratch) - d.log_density_and_gradient(&down, &mut scratch)) / (2.0 * h);
+                assert!((numeric - grad[i]).abs() <= 1e-5 * (1.0 + numeric.abs()), "parameter {i}: analytic {} numeric {numeric}", grad[i]);
+            }
         }
+    }
+
+    /// The row density with the hidden value integrated out, against the
+    /// definition integrated numerically: `∫ φ(u)·N(rx; a_s·u, σx)·N(ry; b·u, σy) du`
+    /// by composite Simpson over u in [−12, 12] (4000 panels), the residuals
+    /// worked out here from the design and the standardised exposure.
+    #[test]
+    fn row_density_matches_the_integral_over_the_hidden_value() {
+        let m = model();
+        let d = density(&m);
+        let l = d.layout();
+        let design = m.design_matrix();
+        let slope = m.linear_slope_position("x").unwrap();
+        let raw: Vec<f64> = design.column(slope).iter().copied().collect();
+        let (mean, sd) = mean_sd(&raw);
+        let normal = |v: f64, s: f64| (-0.5 * (v / s).powi(2)).exp() / (s * std::f64::consts::TAU.sqrt());
+        for theta in points(l.dim) {
+            let rows = d.row_log_densities(&theta);
+            let (a_s, b) = (theta[l.to_exposure] / sd, theta[l.to_outcome]);
+            let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread].exp());
+            let mut others = 0;
+            for i in 0..design.nrows() {
+                let mut mean_y = 0.0;
+                let mut mean_x = 0.0;
+                others = 0;
+                for j in 0..design.ncols() {
+                    mean_y += design[(i, j)] * theta[j];
+                    if j != slope {
+                        mean_x += design[(i, j)] * theta[l.exposure_coefficients + others];
+                        others += 1;
+                    }
+                }
+                let (rx, ry) = ((raw[i] - mean) / sd - mean_x, m.outcome_values()[i] - mean_y);
+                let panels = 4000;
+                let h = 24.0 / panels as f64;
+                let integral: f64 = (0..=panels)
+                    .map(|k| {
+                        let u = -12.0 + k as f64 * h;
+                        let weight = if k == 0 || k == panels { 1.0 } else if k % 2 == 1 { 4.0 } else { 2.0 };
+                        weight * normal(u, 1.0) * normal(rx - a_s * u, sx) * normal(ry - b * u, sy)
+                    })
+                    .sum::<f64>()
+                    * h
+                    / 3.0;
+                assert!((rows[i] - integral.ln()).abs() < 1e-8, "row {i}: closed form {} integral {}", rows[i], integral.ln());
+            }
+            assert_eq!(others, l.exposure_spread - l.exposure_coefficients);
+        }
+    }
+
+    /// With both strengths at zero the two residuals are independent, so
+    /// the row density is the sum of two normal log densities.
+    #[test]
+    fn strengths_at_zero_give_two_independent_normals() {
+        let m = model();
+        let d = density(&m);
+        let l = d.layout();
+        let mut theta = points(l.dim)[1].clone();
+        theta[l.to_exposure] = 0.0;
+        theta[l.to_outcome] = 0.0;
+        let pair = d.pair(&theta);
+        let (rx, ry) = d.residuals(&theta);
+        let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread].exp());
+        let log_normal = |r: f64, s: f64| -0.5 * (r / s).powi(2) - s.ln() - 0.5 * std::f64::consts::TAU.ln();
+        for (i, row) in d.row_log_densities(&theta).iter().enumerate() {
+            let expected = log_normal(rx[i], sx) + log_normal(ry[i], sy);
+            assert!((row - expected).abs() < 1e-10, "row {i}: {row} vs {expected}");
+        }
+        assert_eq!(pair.xy, 0.0);
     }
 }

@@ -190,30 +190,8 @@ pub fn answer_effect_with_progress(
     }
     check_held(kind, set, &options.held, &place)?;
     answer.why.extend(set_reasons(graph, exposure, outcome, set, &identification)?);
-    // a category outcome's model gives each level's share (levels family)
-    let family = match require_column(table, outcome, &place)?.data {
-        ColumnData::Category { .. } => Family::Levels,
-        _ => family_for(table, outcome, &place)?,
-    };
-    let mut terms = vec![exposure_term(table, exposure, set, options.varying_by.as_deref(), &place)?];
-    terms.extend(set.iter().cloned());
-    for cluster in &options.pooled {
-        require_column(table, cluster, &place)?;
-        if terms.contains(cluster) || cluster == outcome {
-            return Err(QueryError::request(format!(
-                "{place}: {cluster} already enters the model as the exposure, the outcome or a member of the \
-                 adjustment set, so it cannot also be pooled; pool a column that only marks the clusters"
-            )));
-        }
-        terms.push(format!("pooled {cluster}"));
-    }
-    let mut lines = vec![format!("{outcome} from {} using {}", terms.join(", "), table.name)];
-    if family != Family::Normal {
-        lines.push(format!("family {}", family.name()));
-    }
     let name = format!("{kind_words}_{exposure}_on_{outcome}");
-    let spec = ModelSpec::from_lines(&name, lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))?;
-    let model = Model::build(&spec, table)?;
+    let SetModel { model, family, lines } = set_model(table, exposure, outcome, set, options, &name, &place)?;
     let fit = fit_model(&model, method, cancel, progress)
         .map_err(|e| QueryError::Fit { what: format!("model {name}"), message: e.to_string() })?;
     answer.warnings.extend(fit.warnings.iter().cloned());
@@ -245,6 +223,53 @@ pub fn answer_effect_with_progress(
     answer.model = Some(model);
     answer.fit = Some(fit);
     Ok(answer)
+}
+
+/// The model an adjustment set asks for, its family and its body.
+pub(crate) struct SetModel {
+    pub model: Model,
+    pub family: Family,
+    pub lines: Vec<String>,
+}
+
+/// Build `outcome from exposure, set…` (with `options`' varying slope and
+/// pooled columns) on `table` as model `name`: the family from the
+/// outcome's kind, a category outcome's a levels model.
+pub(crate) fn set_model(
+    table: &Table,
+    exposure: &str,
+    outcome: &str,
+    set: &[String],
+    options: &AskOptions,
+    name: &str,
+    place: &str,
+) -> Result<SetModel, QueryError> {
+    for column in std::iter::once(exposure).chain(std::iter::once(outcome)).chain(set.iter().map(String::as_str)) {
+        require_column(table, column, place)?;
+    }
+    let family = match require_column(table, outcome, place)?.data {
+        ColumnData::Category { .. } => Family::Levels,
+        _ => family_for(table, outcome, place)?,
+    };
+    let mut terms = vec![exposure_term(table, exposure, set, options.varying_by.as_deref(), place)?];
+    terms.extend(set.iter().cloned());
+    for cluster in &options.pooled {
+        require_column(table, cluster, place)?;
+        if terms.contains(cluster) || cluster == outcome {
+            return Err(QueryError::request(format!(
+                "{place}: {cluster} already enters the model as the exposure, the outcome or a member of the \
+                 adjustment set, so it cannot also be pooled; pool a column that only marks the clusters"
+            )));
+        }
+        terms.push(format!("pooled {cluster}"));
+    }
+    let mut lines = vec![format!("{outcome} from {} using {}", terms.join(", "), table.name)];
+    if family != Family::Normal {
+        lines.push(format!("family {}", family.name()));
+    }
+    let spec = ModelSpec::from_lines(name, lines.iter().enumerate().map(|(i, l)| (i + 1, l.as_str())))?;
+    let model = Model::build(&spec, table)?;
+    Ok(SetModel { model, family, lines })
 }
 
 /// The exposure's term: `x`, or `x per c` when its slope varies by the
@@ -357,7 +382,7 @@ pub(crate) fn family_for(table: &Table, outcome: &str, place: &str) -> Result<Fa
 /// The two settings asked for; else every level against the first for a
 /// category exposure, centre + 1 vs centre for a numeric one; each
 /// averaged over rows.
-fn comparisons(table: &Table, exposure: &str, mass: f64, options: &AskOptions) -> Result<Vec<ContrastRequest>, QueryError> {
+pub(crate) fn comparisons(table: &Table, exposure: &str, mass: f64, options: &AskOptions) -> Result<Vec<ContrastRequest>, QueryError> {
     let column = require_column(table, exposure, "ask")?;
     let base = ContrastRequest { over_rows: true, mass, held: options.held.clone(), ..ContrastRequest::new(exposure) };
     if let Some((to, from)) = &options.settings {

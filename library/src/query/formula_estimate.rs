@@ -29,6 +29,18 @@
 //!    settings share draw index and noise streams, so their difference is a
 //!    paired contrast, summarised last.
 //!
+//! A ratio is evaluated when it is the outcome's expectation normalised:
+//! the denominator is the numerator with the outcome summed out (the
+//! napkin graph's `(sum over w of Pr[w]·Pr[x | w, z]·Pr[y | w, z, x]) ÷
+//! (sum over y′, w of …)`). The factors that give the probability of the
+//! value set (the exposure, or a node the formula holds at any value) are
+//! then weights: each row's simulated values are weighted by those
+//! factors' densities at the set values under their fitted regressions, and
+//! the outcome's mean is the weighted average over the rows, per draw
+//! (self-normalised importance weighting of the rows). A node the formula
+//! holds at any value is held at one (a numeric one's mean, a category's
+//! most frequent level), as the weights need one value.
+//!
 //! The regressions are fitted separately and their draws paired by index.
 //! For the front door they are two factors of one joint density with
 //! independent priors, so that pairing gives joint posterior draws; for a
@@ -46,7 +58,7 @@ use crate::infer::fit::{fit_model, Fit, Method};
 use crate::infer::nuts::Progress;
 use crate::limits::{bytes_for, check_memory};
 use crate::model::{Family, Model, ModelSpec};
-use crate::table::{Column, Table};
+use crate::table::{Column, ColumnData, Table};
 
 use super::answer::family_for;
 use super::contrast::{scale_words, Contrast, On};
@@ -55,6 +67,10 @@ use super::support::{column_mean, drawn_column, interval_words, parameter_rows, 
 
 /// The seed of the simulated node values.
 pub const FORMULA_SEED: u64 = 16_180;
+
+/// Below this share of the rows, the effective number of a ratio's
+/// weighted rows earns a warning.
+const WEIGHT_SHARE_WARNING: f64 = 0.05;
 
 /// One fitted conditional of the formula.
 pub struct FittedConditional {
@@ -124,6 +140,16 @@ struct Plan {
     steps: Vec<(Factor, Source)>,
     /// Distinct conditionals to fit: (node, given columns).
     conditionals: Vec<(String, Vec<String>)>,
+    /// For a ratio: the factors of a value set, evaluated as densities at
+    /// that value (each with its conditional), after the chain.
+    weights: Vec<(Factor, usize)>,
+}
+
+impl Plan {
+    /// Whether the formula is a ratio evaluated by weighting the rows.
+    fn weighted(&self) -> bool {
+        !self.weights.is_empty()
+    }
 }
 
 /// How a formula estimate is simulated: the exposure settings compared
@@ -198,14 +224,17 @@ pub(crate) fn formula_estimate_with(
         return Err(QueryError::request(format!("{place}: the fits kept no draws")));
     }
     let outcome_model = &conditionals.last().expect("the outcome's conditional is fitted").model;
+    let held = held_values(&plan, simulation.rows, &place)?;
     let mut contrasts = Vec::new();
+    let mut least_share = 1.0_f64;
     for (to, from) in &simulation.settings {
         let mut changes = Vec::with_capacity(draws);
         let mut means = Vec::with_capacity(draws);
         for d in 0..draws {
             QueryError::stop_if(cancel, &place)?;
-            let under_to = mean_under(&plan, simulation, to, &conditionals, &params, d)?;
-            let under_from = mean_under(&plan, simulation, from, &conditionals, &params, d)?;
+            let (under_to, share_to) = mean_under(&plan, simulation, to, &held, &conditionals, &params, d)?;
+            let (under_from, share_from) = mean_under(&plan, simulation, from, &held, &conditionals, &params, d)?;
+            least_share = least_share.min(share_to).min(share_from);
             changes.push(under_to - under_from);
             means.push((under_to, under_from));
         }
@@ -229,7 +258,7 @@ pub(crate) fn formula_estimate_with(
             mass,
             interval: interval_words(mass),
             held: Vec::new(),
-            held_how: how_words(&plan, x, y, n, simulation.seed),
+            held_how: how_words(&plan, &held, x, y, n, simulation.seed),
             over_rows: true,
             along: None,
             grid: Vec::new(),
@@ -239,6 +268,13 @@ pub(crate) fn formula_estimate_with(
             means,
             level: None,
         });
+    }
+    if plan.weighted() && least_share < WEIGHT_SHARE_WARNING {
+        warnings.push(format!(
+            "the ratio's weights rest on few rows: at some draw they count for {:.1}% of the {n} rows (Kish's effective number); \
+             the settings compared may lie where the rows give {x} little density, so treat the interval as rough",
+            100.0 * least_share
+        ));
     }
     let from_rows = plan.steps.iter().filter(|(_, s)| *s == Source::Rows).map(|(f, _)| plan.copies[f.of].column.clone()).collect();
     Ok(FormulaFit { conditionals, from_rows, contrasts, warnings })
@@ -262,7 +298,7 @@ pub(crate) fn settings(column: &Column, place: &str) -> Result<Vec<(Setting, Set
 }
 
 /// The simulation in words, for the contrast's `held_how`.
-fn how_words(plan: &Plan, x: &str, y: &str, rows: usize, seed: u64) -> String {
+fn how_words(plan: &Plan, held: &[Option<Setting>], x: &str, y: &str, rows: usize, seed: u64) -> String {
     let mut drawn = Vec::new();
     let mut taken = Vec::new();
     for (f, source) in &plan.steps {
@@ -285,10 +321,52 @@ fn how_words(plan: &Plan, x: &str, y: &str, rows: usize, seed: u64) -> String {
     if !drawn.is_empty() {
         parts.push(format!("{} drawn in every row from fitted models", drawn.join("; ")));
     }
+    if plan.weighted() {
+        let weights: Vec<String> = plan
+            .weights
+            .iter()
+            .map(|(f, _)| {
+                let given: Vec<String> = f.given.iter().map(|&g| copy_words(&plan.copies[g], x)).collect();
+                format!("{} given {}", copy_words(&plan.copies[f.of], x), given.join(", "))
+            })
+            .collect();
+        let at: Vec<String> = plan.copies.iter().zip(held).filter_map(|(c, h)| h.as_ref().map(|h| format!("{} = {}", c.column, h.text()))).collect();
+        return format!(
+            "identifying formula (a ratio) by simulation with {x} set{}: {}; {y}'s mean from its model at those values, averaged over the {rows} rows \
+             weighted by the fitted density of {} (seed {seed})",
+            if at.is_empty() { String::new() } else { format!(" and {} held", at.join(", ")) },
+            if parts.is_empty() { "nothing else simulated".to_string() } else { parts.join("; then ") },
+            weights.join(" and ")
+        );
+    }
     format!(
         "identifying formula by simulation with {x} set: {}; {y}'s mean from its model at those values, averaged over the {rows} rows (seed {seed})",
         if parts.is_empty() { "nothing else simulated".to_string() } else { parts.join("; then ") }
     )
+}
+
+/// For a ratio, the one value each node held at any value takes: a numeric
+/// column's mean, a category's most frequent level (`None` elsewhere, and
+/// for every copy of a formula without a ratio, whose held nodes keep the
+/// rows' values).
+fn held_values(plan: &Plan, rows: &Table, place: &str) -> Result<Vec<Option<Setting>>, QueryError> {
+    plan.copies
+        .iter()
+        .map(|c| {
+            if !plan.weighted() || c.role != Role::Fixed {
+                return Ok(None);
+            }
+            let column = require_column(rows, &c.column, place)?;
+            if let ColumnData::Category { codes, levels } = &column.data {
+                let mut counts = vec![0usize; levels.len()];
+                codes.iter().for_each(|&k| counts[k as usize] += 1);
+                let most = (0..levels.len()).max_by_key(|&k| (counts[k], std::cmp::Reverse(k))).unwrap_or(0);
+                return Ok(Some(Setting::read(column, &levels[most], place)?));
+            }
+            let mean = column_mean(column).ok_or_else(|| QueryError::request(format!("{place}: {} has no values to hold it at", c.column)))?;
+            Ok(Some(Setting::Number(mean)))
+        })
+        .collect()
 }
 
 fn copy_words(copy: &Copy, x: &str) -> String {
@@ -299,8 +377,53 @@ fn copy_words(copy: &Copy, x: &str) -> String {
     }
 }
 
-/// Flatten `formula`, check that it chains, and decide each factor's source.
+/// Flatten `formula`, check that it chains, and decide each factor's
+/// source; a ratio must be the outcome's expectation normalised.
 fn plan(formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -> Result<Plan, QueryError> {
+    let Formula::Ratio { numerator, denominator } = formula else {
+        let (copies, factors) = flat(formula, x, y, also_set, place)?;
+        return build_plan(copies, factors, Vec::new(), place);
+    };
+    let (copies, factors) = flat(numerator, x, y, also_set, place)?;
+    let (d_copies, d_factors) = flat(denominator, x, y, also_set, place)?;
+    if factors.iter().any(|f| f.given.iter().any(|&g| copies[g].role == Role::Outcome)) {
+        return Err(unsupported(place, &format!("its numerator draws a node given {y}, so summing {y} out does not leave the rest")));
+    }
+    let mut expected: Vec<String> = factors.iter().map(|f| signature(&copies, f)).collect();
+    let mut found: Vec<String> = d_factors.iter().map(|f| signature(&d_copies, f)).collect();
+    expected.sort();
+    found.sort();
+    if expected != found || d_copies.iter().enumerate().any(|(i, c)| c.role == Role::Outcome && d_factors.iter().any(|f| f.of == i || f.given.contains(&i))) {
+        return Err(unsupported(place, &format!("its denominator is not its numerator with {y} summed out")));
+    }
+    let (weights, drawn): (Vec<Factor>, Vec<Factor>) = factors.into_iter().partition(|f| matches!(copies[f.of].role, Role::Set | Role::Fixed));
+    if weights.is_empty() {
+        return Err(unsupported(place, "its ratio weights nothing by the value set"));
+    }
+    build_plan(copies, drawn, weights, place)
+}
+
+/// A factor in words that two flattenings of one body share: its node
+/// and given nodes, each with whether it is the value set, a node held,
+/// or drawn (a bound copy or the outcome, which the denominator sums out).
+fn signature(copies: &[Copy], f: &Factor) -> String {
+    let word = |i: usize| {
+        let c = &copies[i];
+        let kind = match c.role {
+            Role::Set => "set",
+            Role::Fixed => "held",
+            Role::Outcome | Role::Bound => "drawn",
+        };
+        format!("{}:{kind}", c.column)
+    };
+    let mut given: Vec<String> = f.given.iter().map(|&g| word(g)).collect();
+    given.sort();
+    format!("{} | {}", word(f.of), given.join(", "))
+}
+
+/// The copies and factors of `formula` flattened, the exposure, the
+/// outcome and `also_set` free.
+fn flat(formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -> Result<(Vec<Copy>, Vec<Factor>), QueryError> {
     let mut copies = vec![Copy { column: x.to_string(), role: Role::Set }, Copy { column: y.to_string(), role: Role::Outcome }];
     let mut scope: BTreeMap<String, usize> = BTreeMap::from([(x.to_string(), 0), (y.to_string(), 1)]);
     for a in also_set {
@@ -309,6 +432,13 @@ fn plan(formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -
     }
     let mut factors = Vec::new();
     flatten(formula, &scope, &mut copies, &mut factors, place)?;
+    Ok((copies, factors))
+}
+
+/// Chain the `factors` that draw, decide each one's source, and give each
+/// weight factor its conditional.
+fn build_plan(copies: Vec<Copy>, factors: Vec<Factor>, weight_factors: Vec<Factor>, place: &str) -> Result<Plan, QueryError> {
+    let y = copies[1].column.clone();
     let mut drawn_by = vec![None; copies.len()];
     for (k, f) in factors.iter().enumerate() {
         let copy = &copies[f.of];
@@ -342,12 +472,22 @@ fn plan(formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -
             (f, Source::Fitted(k))
         })
         .collect::<Vec<_>>();
+    let mut weights = Vec::with_capacity(weight_factors.len());
+    for f in weight_factors {
+        let node = copies[f.of].column.clone();
+        let given: Vec<String> = f.given.iter().map(|&g| copies[g].column.clone()).collect();
+        let k = conditionals.iter().position(|c| c.0 == node && same_set(&c.1, &given)).unwrap_or_else(|| {
+            conditionals.push((node, given));
+            conditionals.len() - 1
+        });
+        weights.push((f, k));
+    }
     // The outcome's conditional is fitted last, so it is easy to find.
     let outcome = outcome_step.ok_or_else(|| unsupported(place, &format!("it gives no distribution for {y}")))?;
     conditionals.push(outcome);
     let last = conditionals.len() - 1;
     let steps = steps.into_iter().map(|(f, s)| (f, if s == Source::Fitted(usize::MAX) { Source::Fitted(last) } else { s })).collect();
-    Ok(Plan { copies, steps, conditionals })
+    Ok(Plan { copies, steps, conditionals, weights })
 }
 
 fn same_set(a: &[String], b: &[String]) -> bool {
@@ -386,7 +526,7 @@ fn flatten(formula: &Formula, scope: &BTreeMap<String, usize>, copies: &mut Vec<
             }
             flatten(body, &inner, copies, factors, place)?;
         }
-        Formula::Ratio { .. } => return Err(unsupported(place, "it divides one sum by another")),
+        Formula::Ratio { .. } => return Err(unsupported(place, "it divides inside a sum or a product")),
     }
     Ok(())
 }
@@ -455,25 +595,35 @@ fn fit_conditional(
 }
 
 /// `E[y | do(x = setting)]` at posterior draw `d`: the chain simulated
-/// over the rows, the outcome's mean averaged.
+/// over the rows, the outcome's mean averaged (for a ratio, weighted by the
+/// weight factors' densities), and the weights' effective share of the
+/// rows (1 without weights).
+#[allow(clippy::too_many_arguments)]
 fn mean_under(
     plan: &Plan,
     simulation: &FormulaSimulation,
     setting: &Setting,
+    held: &[Option<Setting>],
     conditionals: &[FittedConditional],
     params: &[Vec<Vec<f64>>],
     d: usize,
-) -> Result<f64, QueryError> {
+) -> Result<(f64, f64), QueryError> {
     let table = simulation.rows;
     let n = table.nrows();
     let mut values: Vec<Option<Column>> = vec![None; plan.copies.len()];
     for (i, copy) in plan.copies.iter().enumerate() {
-        values[i] = match copy.role {
-            Role::Set => Some(setting.column(&copy.column, n)),
-            Role::Fixed => table.column(&copy.column).cloned(),
+        values[i] = match (copy.role, &held[i]) {
+            (Role::Set, _) => Some(setting.column(&copy.column, n)),
+            (Role::Fixed, Some(h)) => Some(h.column(&copy.column, n)),
+            (Role::Fixed, None) => table.column(&copy.column).cloned(),
             _ => None,
         };
     }
+    let given_rows = |f: &Factor, model: &Model, values: &[Option<Column>]| -> Result<crate::model::NewRows, QueryError> {
+        let given = Table { name: table.name.clone(), columns: f.given.iter().filter_map(|&g| values[g].clone()).collect() };
+        Ok(if f.given.is_empty() { model.new_rows(table)? } else { model.new_rows(&given)? })
+    };
+    let mut outcome_means = None;
     for (step, (f, source)) in plan.steps.iter().enumerate() {
         let column = &plan.copies[f.of].column;
         let k = match source {
@@ -483,18 +633,49 @@ fn mean_under(
             }
             Source::Fitted(k) => *k,
         };
-        let given = Table { name: table.name.clone(), columns: f.given.iter().filter_map(|&g| values[g].clone()).collect() };
         let model = &conditionals[k].model;
-        let rows = if f.given.is_empty() { model.new_rows(table)? } else { model.new_rows(&given)? };
+        let rows = given_rows(f, model, &values)?;
         if plan.copies[f.of].role == Role::Outcome {
             let mean = model.predict_mean(&params[k][d], &rows)?.mean;
-            return Ok(mean.iter().sum::<f64>() / mean.len().max(1) as f64);
+            if !plan.weighted() {
+                return Ok((mean.iter().sum::<f64>() / mean.len().max(1) as f64, 1.0));
+            }
+            outcome_means = Some(mean);
+            continue;
         }
         let mut rng = StdRng::seed_from_u64(stream_seed(simulation.seed, d as u64, step as u64 + 1));
         let drawn = model.outcome_draw(&params[k][d], &rows, &mut rng)?;
         values[f.of] = Some(drawn_column(model, column, drawn));
     }
-    Err(QueryError::request("the formula's simulation ended before the outcome"))
+    let means = outcome_means.ok_or_else(|| QueryError::request("the formula's simulation ended before the outcome"))?;
+    let mut log_weights = vec![0.0; n];
+    for (f, k) in &plan.weights {
+        let model = &conditionals[*k].model;
+        let rows = given_rows(f, model, &values)?;
+        let at = match (&plan.copies[f.of].role, &held[f.of]) {
+            (Role::Fixed, Some(h)) => h,
+            _ => setting,
+        };
+        let value = match at {
+            Setting::Level { code, .. } => *code as f64,
+            Setting::Number(v) => *v,
+        };
+        let densities = model.log_density_of_rows(&params[*k][d], &rows, &vec![value; n])?;
+        log_weights.iter_mut().zip(densities).for_each(|(w, l)| *w += l);
+    }
+    Ok(weighted_mean(&means, &log_weights))
+}
+
+/// The mean of `values` under weights `exp(log_weights)` (scaled by their
+/// largest first), and the weights' effective share of the rows,
+/// `(Σw)² / (n·Σw²)` (Kish 1965).
+fn weighted_mean(values: &[f64], log_weights: &[f64]) -> (f64, f64) {
+    let top = log_weights.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let weights: Vec<f64> = log_weights.iter().map(|l| (l - top).exp()).collect();
+    let total: f64 = weights.iter().sum();
+    let squares: f64 = weights.iter().map(|w| w * w).sum();
+    let mean = weights.iter().zip(values).map(|(w, v)| w * v).sum::<f64>() / total;
+    (mean, total * total / (squares * values.len().max(1) as f64))
 }
 
 #[cfg(test)]
@@ -532,11 +713,57 @@ mod tests {
         assert_eq!(from_rows, vec![true, false, false]);
     }
 
+    /// The napkin graph's formula as the complete algorithm gives it
+    /// (its closed form, Pearl & Mackenzie 2018, ch. 7, recalled:
+    /// `sum_w P(x, y | z, w) P(w) / sum_w P(x | z, w) P(w)`, any z).
+    fn napkin(denominator_over: &[&str]) -> Formula {
+        let body = || {
+            Formula::product(vec![
+                Formula::probability(s(&["w"]), vec![]),
+                Formula::probability(s(&["x"]), s(&["w", "z"])),
+                Formula::probability(s(&["y"]), s(&["w", "z", "x"])),
+            ])
+        };
+        Formula::ratio(Formula::sum(s(&["w"]), body()), Formula::sum(s(denominator_over), body()))
+    }
+
+    #[test]
+    fn the_napkin_ratio_weights_rows_by_the_exposure_density() {
+        let plan = plan(&napkin(&["y", "w"]), "x", "y", &s(&["z"]), "test").unwrap();
+        let sources: Vec<(String, bool)> = plan.steps.iter().map(|(f, s)| (plan.copies[f.of].column.clone(), *s == Source::Rows)).collect();
+        assert_eq!(sources, vec![("w".into(), true), ("y".into(), false)]);
+        assert_eq!(plan.weights.len(), 1);
+        let (f, k) = &plan.weights[0];
+        assert_eq!(plan.copies[f.of].role, Role::Set);
+        assert_eq!(plan.conditionals[*k], ("x".to_string(), s(&["w", "z"])));
+        assert_eq!(plan.conditionals.last().unwrap(), &("y".to_string(), s(&["w", "z", "x"])));
+        // A denominator that keeps y free is not the numerator normalised.
+        let e = super::plan(&napkin(&["w"]), "x", "y", &s(&["z"]), "test").unwrap_err().to_string();
+        assert!(e.contains("not its numerator with y summed out"), "{e}");
+    }
+
+    /// Self-normalised weights: equal weights give the plain mean and a
+    /// share of 1; one row carrying all the weight gives its value and a
+    /// share of 1/n (Kish's effective number over n).
+    #[test]
+    fn weighted_mean_and_effective_share() {
+        let (m, share) = weighted_mean(&[1.0, 2.0, 3.0, 6.0], &[0.5; 4]);
+        assert!((m - 3.0).abs() < 1e-12 && (share - 1.0).abs() < 1e-12);
+        let (m, share) = weighted_mean(&[1.0, 2.0, 3.0, 6.0], &[-800.0, 0.0, -800.0, -800.0]);
+        assert!((m - 2.0).abs() < 1e-12 && (share - 0.25).abs() < 1e-12);
+        // weights 1 and 3 (log 0 and log 3): (1·2 + 3·6) / 4 = 5; (4)² / (2·10) = 0.8.
+        let (m, share) = weighted_mean(&[2.0, 6.0], &[0.0, 3f64.ln()]);
+        assert!((m - 5.0).abs() < 1e-12 && (share - 0.8).abs() < 1e-12, "{m} {share}");
+    }
+
     #[test]
     fn ratios_and_unchained_factors_are_refused() {
         let ratio = Formula::ratio(Formula::probability(s(&["y"]), s(&["x"])), Formula::probability(s(&["x"]), vec![]));
         let e = plan(&ratio, "x", "y", &[], "test").unwrap_err().to_string();
-        assert!(e.contains("divides"), "{e}");
+        assert!(e.contains("not its numerator with y summed out"), "{e}");
+        let nested = Formula::product(vec![ratio.clone(), Formula::probability(s(&["m"]), s(&["x"]))]);
+        let e = plan(&nested, "x", "y", &[], "test").unwrap_err().to_string();
+        assert!(e.contains("divides inside"), "{e}");
         let cycle = Formula::sum(
             s(&["a", "b"]),
             Formula::product(vec![Formula::probability(s(&["a"]), s(&["b"])), Formula::probability(s(&["b"]), s(&["a"])), Formula::probability(s(&["y"]), s(&["x", "a"]))]),

@@ -4,10 +4,11 @@
 //! widened interval beside the fitted one.
 //!
 //! The density is [`crate::model::HiddenCause`]: one standard normal
-//! latent per row, entering the exposure with strength `a` (exposure units
-//! per standard deviation of the hidden node) and the outcome with
-//! strength `b` (outcome units per standard deviation), the outcome's
-//! regression keeping the model's own priors. The data cannot separate
+//! hidden value per row, entering the exposure with strength `a` (exposure
+//! units per standard deviation of the hidden node) and the outcome with
+//! strength `b` (outcome units per standard deviation), integrated out so
+//! that each row's exposure and outcome are bivariate normal; the outcome's
+//! regression keeps the model's own priors. The data cannot separate
 //! `a·b` from the slope, so the strengths' priors decide how far the slope
 //! may move, and the posterior carries that uncertainty draw by draw
 //! rather than moving one number over a grid (compare
@@ -42,6 +43,15 @@ pub struct StrengthSummary {
     pub upper: f64,
 }
 
+/// R-hat and ESS of one quantity of the refit.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RefitDiagnostics {
+    pub quantity: String,
+    pub rhat: f64,
+    pub ess_bulk: f64,
+    pub ess_tail: f64,
+}
+
 /// The slope fitted without and with the simulated hidden node.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct HiddenRefit {
@@ -60,11 +70,13 @@ pub struct HiddenRefit {
     pub product: ContrastSummary,
     pub interval: String,
     pub mass: f64,
-    /// Rows and latent values.
+    /// Rows, each with its hidden value integrated out.
     pub rows: usize,
     /// The refit's sampler, in words.
     pub method: String,
     pub warnings: Vec<String>,
+    /// The sampler's diagnostics of the refitted slope and of the product.
+    pub diagnostics: Vec<RefitDiagnostics>,
     /// Per-draw slopes of the fit and the refit (not serialised).
     #[serde(skip)]
     pub fitted_draws: Vec<f64>,
@@ -129,6 +141,7 @@ pub fn hidden_refit(
         .collect();
     let slope_chains = column(slope);
     let mut warnings = Vec::new();
+    let mut diagnostics = Vec::new();
     let divergent: usize = run.divergences.iter().sum();
     if divergent > 0 {
         warnings.push(format!(
@@ -138,7 +151,9 @@ pub fn hidden_refit(
     }
     for (label, chains) in [(format!("{x}'s slope in the refit"), &slope_chains), ("the product of the two strengths".to_string(), &product_chains)] {
         let slices: Vec<&[f64]> = chains.iter().map(Vec::as_slice).collect();
-        warnings.extend(parameter_warnings(&label, &diagnose(&slices)));
+        let d = diagnose(&slices);
+        warnings.extend(parameter_warnings(&label, &d));
+        diagnostics.push(RefitDiagnostics { quantity: label, rhat: d.rhat, ess_bulk: d.ess_bulk, ess_tail: d.ess_tail });
     }
     let refitted_draws: Vec<f64> = slope_chains.concat();
     let summary = |label: &str, prior: &str, k: usize| -> Result<StrengthSummary, QueryError> {
@@ -162,7 +177,7 @@ pub fn hidden_refit(
         mass,
         rows,
         method: format!(
-            "NUTS on the model with one hidden value per row ({rows} rows, {} parameters): {} chains, {} settling and {} kept draws each, seed {}",
+            "NUTS on the model with each row's hidden value integrated out ({rows} rows, {} parameters): {} chains, {} settling and {} kept draws each, seed {}",
             density.dim(),
             settings.chains,
             settings.settle,
@@ -170,6 +185,7 @@ pub fn hidden_refit(
             settings.seed
         ),
         warnings,
+        diagnostics,
         fitted_draws,
         refitted_draws,
     })

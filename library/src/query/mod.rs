@@ -29,6 +29,9 @@
 //!   outcome's risk ratio with its E-value), and [`hidden_refit`]: the
 //!   model refitted beside a simulated hidden node whose strengths have
 //!   stated priors.
+//! * [`routes`], [`set_routes`] and [`direct_route`]: the further routes of
+//!   `compare routes` — the front door, the graph's other adjustment sets,
+//!   and a joint model's controlled direct effect.
 //!
 //! The query layer never reads files and never renders.
 
@@ -47,6 +50,8 @@ pub mod left_out;
 pub mod mechanism;
 pub mod recover;
 pub mod routes;
+pub mod set_routes;
+pub mod direct_route;
 pub mod robustness;
 pub mod shrinkage;
 pub mod simulate;
@@ -58,7 +63,7 @@ pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoi
 pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RATE_RATIO, RISK_RATIO, RISK_RATIO_STEPS};
 pub use error::QueryError;
 pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
-pub use hidden_refit::{hidden_refit, HiddenRefit, StrengthSummary};
+pub use hidden_refit::{hidden_refit, HiddenRefit, RefitDiagnostics, StrengthSummary};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
 pub use intervene::{compare_routes, intervene, intervene_with_cancel, GroupQuestion, InterventionRequest, InterventionResult, RouteComparison, WatchedContrast, FORMULA_ROUTE, JOINT_ROUTE};
 pub use intervene_formula::FormulaUsed;
@@ -67,6 +72,8 @@ pub use left_out::{score_predictions, HardRow, ModelScore, PredictiveScores};
 pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use routes::{front_door_route, FrontDoorRoute};
+pub use set_routes::{other_set_routes, SetRoute, MOST_OTHER_SETS};
+pub use direct_route::{controlled_direct_route, DirectRoute};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
 pub use shrinkage::{shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};

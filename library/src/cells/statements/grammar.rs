@@ -333,12 +333,12 @@ pub const CONTRAST_BETWEEN: Form = Form {
 };
 pub const COMPARE_ROUTES: Form = Form {
     slots: &[
-        Word("compare"), Word("routes"), Word("for"), Word("total"), Word("effect"), Word("of"), Name(Nd), Word("on"), Name(Nd),
+        Word("compare"), Word("routes"), Word("for"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Name(Nd), Word("on"), Name(Nd),
         Word("in"), Name(Gr), Word("using"), Name(Tb),
     ],
     options: &[&[Word("setting"), Name(Lv), Word("vs"), Name(Lv)], INTERVALS_OPTION],
     method: true,
-    usage: "compare routes for total effect of X on Y in GRAPH using TABLE [setting v1 vs v0] [intervals P%] [with nuts …|with laplace …]",
+    usage: "compare routes for total|direct effect of X on Y in GRAPH using TABLE [setting v1 vs v0] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const JOINT: Form = Form {
     slots: &[Word("joint"), Name(New), Word("="), Name(Gr), Word("using"), Name(Tb)],

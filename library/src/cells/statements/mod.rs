@@ -4,6 +4,7 @@ pub mod body_grammar;
 mod causal;
 mod data;
 mod fitting;
+mod further_routes;
 pub mod grammar;
 mod questions;
 mod scoring;

@@ -14,6 +14,7 @@ use std::sync::atomic::Ordering;
 use serde_json::{json, Value};
 
 use super::fitting::{parse_method, require_fit};
+use super::further_routes::{other_set_rows, DirectRoutes};
 use super::grammar::{ASK_USING, COMPARE_ROUTES, CONTRAST, CONTRAST_BETWEEN, FIT, IMPLICATIONS_CHECKED};
 use super::{header, interval_option, option_text};
 use crate::cells::figures::{self, GraphMarks};
@@ -551,9 +552,11 @@ pub(crate) fn ask_using(
     Ok(vec![first, Display { plain, html: Some(html), svg, json: Some(json) }])
 }
 
-/// `compare routes for total effect of X on Y in G using T [with …]`:
+/// `compare routes for total|direct effect of X on Y in G using T [with …]`:
 /// the adjustment-set contrast beside the simulated intervention through a
-/// joint model of the whole graph.
+/// joint model of the whole graph (for a direct effect, its controlled
+/// direct effect), and the graph's other adjustment sets as routes of
+/// their own.
 pub(crate) fn compare_routes(
     session: &mut Session,
     st: &Statement,
@@ -561,7 +564,8 @@ pub(crate) fn compare_routes(
     warnings: &mut Vec<String>,
 ) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
-    let ([x, y, g, t], options) = header(st, &COMPARE_ROUTES)?;
+    let ([kind, x, y, g, t], options) = header(st, &COMPARE_ROUTES)?;
+    let effect = if kind == "total" { EffectKind::Total } else { EffectKind::Direct };
     let (mass, options) = interval_option(options, line)?;
     let mass = session.interval_mass(mass);
     let (settings, options) = route_settings(&options).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", COMPARE_ROUTES.usage)))?;
@@ -571,15 +575,15 @@ pub(crate) fn compare_routes(
     let label = format!("compare routes for {x} on {y}");
     let progress = sampler_progress(control, &label);
     (control.progress)(&format!("{label}: fitting the adjustment model"));
-    let answer = answer_effect_with_progress(graph, table, x, y, EffectKind::Total, &ask, &method, control.cancel, mass, &progress)
+    let answer = answer_effect_with_progress(graph, table, x, y, effect, &ask, &method, control.cancel, mass, &progress)
         .map_err(|e| stopped_or(control, &label, line, e))?;
     check_cancel(control, &label, line)?;
     let Some(adjustment) = answer.contrasts.first() else {
         let zero = answer.identification.zero_by_graph;
-        let heading = if zero {
-            format!("total effect of {x} on {y} in {g}: zero by the graph ({x} is not an ancestor of {y}), so there are no routes to compare")
-        } else {
-            format!("total effect of {x} on {y} in {g}: no adjustment set exists, so there is no adjustment route to compare")
+        let heading = match (zero, effect) {
+            (true, EffectKind::Total) => format!("total effect of {x} on {y} in {g}: zero by the graph ({x} is not an ancestor of {y}), so there are no routes to compare"),
+            (true, EffectKind::Direct) => format!("direct effect of {x} on {y} in {g}: zero by the graph (no edge {x} -> {y}), so there are no routes to compare"),
+            (false, _) => format!("{kind} effect of {x} on {y} in {g}: no adjustment set exists, so there is no adjustment route to compare"),
         };
         let (plain, html) = render(&heading, &[], &[], &answer.why);
         let json = json!({"question": answer.question, "identifiable": answer.identification.identifiable, "zero_by_graph": zero,
@@ -594,10 +598,24 @@ pub(crate) fn compare_routes(
         return Err(CellError::at(
             line,
             format!(
-                "{y} is a category: compare routes compares one number per route; `ask total effect of {x} on {y} in {g} using {t}` \
+                "{y} is a category: compare routes compares one number per route; `ask {kind} effect of {x} on {y} in {g} using {t}` \
                  gives each level's share by adjustment, and `intervene` on a joint model watches the same shares"
             ),
         ));
+    }
+    (control.progress)(&format!("{label}: fitting the graph's other adjustment sets"));
+    let (other_routes, others_note) =
+        crate::query::other_set_routes(&answer, table, x, y, effect, (&adjustment.to, &adjustment.from), &method, control.cancel, mass, &progress)
+            .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let others = other_set_rows(adjustment, &other_routes, mass).map_err(|e| query_error(e, line))?;
+    if effect == EffectKind::Direct {
+        (control.progress)(&format!("{label}: fitting {y}'s regression of the joint model"));
+        let joint = crate::query::controlled_direct_route(graph, table, x, y, (&adjustment.to, &adjustment.from), &method, control.cancel, mass, &progress)
+            .map_err(|e| stopped_or(control, &label, line, e))?;
+        check_cancel(control, &label, line)?;
+        let routes = DirectRoutes { answer: &answer, first: adjustment, others, others_note, joint, graph_name: g, method: method.describe(), mass };
+        return Ok(vec![routes.display(table, x, y).map_err(|e| query_error(e, line))?]);
     }
     let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
     let node_progress = joint_progress(control, &label, "joint model, ");
@@ -634,8 +652,9 @@ pub(crate) fn compare_routes(
     let set = answer.adjustment_set.clone().unwrap_or_default();
     let set_words = if set.is_empty() { "nothing".to_string() } else { set.join(", ") };
     let unit = adjustment.unit.as_deref();
+    let count = 2 + usize::from(front.is_some()) + others.json.len();
     let heading = format!(
-        "total effect of {x} on {y} in {g}, {}: two routes, adjustment {} vs joint model {}",
+        "total effect of {x} on {y} in {g}, {}: {count} routes, adjustment {} vs joint model {}",
         adjustment.contrast,
         with_unit(routes.adjustment.mean, unit),
         with_unit(routes.joint.mean, unit)
@@ -652,6 +671,7 @@ pub(crate) fn compare_routes(
         rows.push((format!("front door (through {})", f.mediators.join(", ")), fs));
         rows.push(("difference (adjustment − front door)".to_string(), fd));
     }
+    rows.extend(others.rows.iter().map(|(name, s)| (name.clone(), s)));
     let mut grid = summary_grid(&["route"], mass);
     for (name, s) in rows {
         let mut row = vec![name];
@@ -681,6 +701,8 @@ pub(crate) fn compare_routes(
         ));
         notes.extend(f.warnings.iter().map(|w| format!("front-door route: {w}")));
     }
+    notes.extend(others_note);
+    notes.extend(others.notes.iter().cloned());
     notes.push("the routes are fitted separately, so each difference pairs draws at random; it is wide by design".to_string());
     notes.extend(simulated.warnings.iter().map(|w| format!("joint route: {w}")));
     notes.extend(answer.warnings.iter().map(|w| format!("adjustment route: {w}")));
@@ -693,7 +715,10 @@ pub(crate) fn compare_routes(
     if let Some(f) = &front {
         named.push(("front-door route".to_string(), f.contrast.draws.as_slice()));
     }
-    let svg = figures::differences(&format!("total effect of {x} on {y}, {}: two routes", adjustment.contrast), table, y, &named, DensityArrangement::Shared).ok();
+    for route in &other_routes {
+        named.push((format!("set {{{}}}", route.set.join(", ")), route.contrast.draws.as_slice()));
+    }
+    let svg = figures::differences(&format!("total effect of {x} on {y}, {}: {count} routes", adjustment.contrast), table, y, &named, DensityArrangement::Shared).ok();
     let summary = |s: &ContrastSummary| to_json(s);
     let mut adjustment_json = summary(&routes.adjustment);
     adjustment_json["adjustment_set"] = json!(set);
@@ -717,7 +742,7 @@ pub(crate) fn compare_routes(
         "unit": adjustment.unit, "interval_mass": mass, "identifiable": true,
         "adjustment": adjustment_json, "joint": joint_json, "difference": summary(&routes.difference),
         "front_door": front_json, "difference_front_door": front_difference.as_ref().map(summary),
-        "seed": simulated.seed, "notes": notes,
+        "other_sets": others.json, "seed": simulated.seed, "notes": notes,
     });
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
 }

@@ -37,16 +37,16 @@ pub(crate) fn robustness(session: &mut Session, st: &Statement, control: &RunCon
     let table = session.require_table(model.table_name(), line)?;
     if !rest.trim().is_empty() {
         let refit = read_refit(&rest, x, model.outcome_name()).map_err(|m| CellError::at(line, format!("{m}; the form is: {}", ROBUSTNESS.usage)))?;
-        let default = Method::Nuts(NutsSettings { settle: REFIT_SETTLE, ..Default::default() });
+        let default = Method::Nuts(NutsSettings::default());
         let settings = match method_or(&refit.method, default, line)? {
             Method::Nuts(settings) => settings,
             Method::Laplace { .. } => {
-                return Err(CellError::at(line, "the refit samples one hidden value per row, which a normal approximation at the mode describes poorly; use `with nuts …` or no method"))
+                return Err(CellError::at(line, "the refit's posterior runs along a ridge the data cannot resolve (the strengths' product against the slope), which a normal approximation at the mode describes poorly; use `with nuts …` or no method"))
             }
         };
         let label = format!("robustness of {name}: {x} refit");
         let progress = sampler_progress(control, &label);
-        (control.progress)(&format!("{label}: NUTS beside one hidden value per row"));
+        (control.progress)(&format!("{label}: NUTS beside a hidden value per row, integrated out"));
         let r = crate::query::hidden_refit(model, &fit.draws, table, x, (&refit.to_exposure.0, refit.to_exposure.1), (&refit.to_outcome.0, refit.to_outcome.1), &settings, mass, control.cancel, &progress)
             .map_err(|e| stopped_or(control, &label, line, e))?;
         check_cancel(control, &label, line)?;
@@ -59,11 +59,6 @@ pub(crate) fn robustness(session: &mut Session, st: &Statement, control: &RunCon
     let r = crate::query::robustness(model, &fit.draws, table, x, mass).map_err(|e| query_error(e, line))?;
     Ok(vec![slope_display(name, &r)])
 }
-
-/// Settling iterations of the refit when no method is written: one latent
-/// value per row makes a posterior the default settling does not always
-/// reach (the hidden-causes demo's refit kept an R-hat of 1.02 after 400).
-const REFIT_SETTLE: usize = 1000;
 
 /// The refit option as read: each strength's prior (as written, parsed)
 /// and the sampler options after it.
@@ -134,7 +129,7 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     let widened = (r.refitted.upper - r.refitted.lower) / (r.fitted.upper - r.fitted.lower).max(f64::MIN_POSITIVE);
     let mut notes = vec![
         format!(
-            "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value); {y}'s regression keeps the model's priors",
+            "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value), and integrates it out: each row's {x} and {y} are then jointly normal; {y}'s regression keeps the model's priors",
             r.rows
         ),
         format!(
