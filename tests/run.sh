@@ -62,6 +62,12 @@ echo "== the columnar feature (Parquet and Arrow tables)"
 cargo build --release --locked -p waypath-probe --features columnar
 cargo test --release --locked -p waypath --features columnar --test table_columnar
 
+echo "== the on_disk feature (tables that stay on disk: the DataFusion engine)"
+# Last of the builds: the probes then read Parquet and run cells on tables on
+# disk (probe_cells); the engine's crates are built only here.
+cargo build --release --locked -p waypath-probe --features columnar,on_disk
+cargo test --release --locked -p waypath --features on_disk --test table_on_disk
+
 echo "== Python reference checks"
 export WAYPATH_BIN_DIR="$CARGO_TARGET_DIR/release"
 "$venv/bin/python" -m pytest tests/python -q -p no:cacheprovider
