@@ -259,7 +259,7 @@ fn the_laplace_mode_of_a_logistic_model_on_disk_is_the_in_memory_mode() {
     let model = model_spec(&["blight from region, ground, trees, irrigated using plots", "family bernoulli"]);
     let on_disk = Model::build_on_disk(&model, &disk_table, &cancel).unwrap();
     let in_memory = Model::build(&model, &memory_table).unwrap();
-    assert_eq!(on_disk.initial_point(), in_memory.initial_point(), "the same default priors give the same start");
+    assert!(relative(&on_disk.initial_point(), &in_memory.initial_point()) < 1e-12, "the same default priors give the same start");
     let disk = waypath::infer::on_disk::disk_laplace(&on_disk, 500, 3, &cancel).unwrap();
     let names = in_memory.unconstrained_names();
     let memory = waypath::infer::laplace::laplace(&in_memory, &names, &in_memory.initial_point(), 500, 3).unwrap();

@@ -232,7 +232,8 @@ fn route(model: &Model, passes_before: usize) -> Option<String> {
             "on the normal family's sufficient statistics (XᵀX, Xᵀy, yᵀy), no further pass".to_string()
         };
         return Some(format!(
-            "table on disk: {} rows of {} stayed there; the embedded engine (DataFusion) made {} {} while the model              was built ({:.2} s); fitted {how}",
+            "table on disk: {} rows of {} stayed there; the embedded engine (DataFusion) made {} {} while the model \
+             was built ({:.2} s); fitted {how}",
             disk.rows(),
             disk.source(),
             passes_before,
@@ -249,7 +250,10 @@ fn route(model: &Model, passes_before: usize) -> Option<String> {
 fn nuts_on_disk_refusal(model: &Model) -> String {
     let rows = model.on_disk().map_or(0, |d| d.rows());
     format!(
-        "NUTS is not run on this table on disk: a {} likelihood has no sufficient statistics, so every gradient          (hundreds per draw) would be a pass over its {rows} rows, and the rows are not loaded into memory; fit it          `with laplace` (Newton steps, one pass each), or load the table into memory (without "stay on disk")          if it fits there. Nothing was sampled.",
+        "NUTS is not run on this table on disk: a {} likelihood has no sufficient statistics, so every gradient \
+         (hundreds per draw) would be a pass over its {rows} rows, and the rows are not loaded into memory; fit it \
+         `with laplace` (Newton steps, one pass each), or load the table into memory (without \"stay on disk\") \
+         if it fits there. Nothing was sampled.",
         model.family().name()
     )
 }

@@ -19,6 +19,7 @@
 //! hold whole numbers of at least 0. Missing means null, and for text
 //! also an empty value or `NA`, as in a CSV.
 
+use std::ops::Not;
 use std::path::Path;
 use std::sync::atomic::AtomicBool;
 use std::sync::Arc;
