@@ -19,7 +19,7 @@
 //!
 //! Each line names a pass (the table's counting, the means and sds, the
 //! cross-products, each Newton step), its seconds, and rows per second per
-//! core (rows over seconds over the cores the engine uses); the summary
+//! core (rows over seconds over the engine's threads, one); the summary
 //! line gives the whole fit's seconds and the peak resident memory
 //! (`VmHWM`, reset after the file is written).
 
@@ -52,8 +52,8 @@ fn main() {
     };
     let dir = std::env::temp_dir().join(format!("waypath-on-disk-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir).expect("temporary folder");
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
-    println!("engine cores: {cores}");
+    let cores = waypath::table::on_disk::ENGINE_THREADS;
+    println!("engine threads: {cores}");
     let normal = rows("--normal-rows", 10_000_000);
     if normal > 0 {
         let path = dir.join("harvests.parquet");

@@ -28,6 +28,7 @@ use datafusion::arrow::array::{Array, ArrayRef, AsArray, BinaryArray};
 use datafusion::arrow::datatypes::{DataType, Float64Type};
 use datafusion::common::ScalarValue;
 use datafusion::error::{DataFusionError, Result as EngineResult};
+use datafusion::logical_expr::function::{AccumulatorArgs, AccumulatorFactoryFunction};
 use datafusion::logical_expr::{create_udaf, Accumulator, Expr, Volatility};
 
 use crate::table::on_disk::DiskTable;
@@ -392,9 +393,9 @@ fn run_aggregate<S: RowSums>(
     let (arguments, types) = layout.arguments(table, outcome)?;
     let length = rows.length();
     let (layout, rows, flag) = (Arc::new(layout.clone()), Arc::new(rows), Arc::clone(cancel));
-    let factory = Arc::new(move |_: datafusion::logical_expr::function::AccumulatorArgs<'_>| {
+    let factory: AccumulatorFactoryFunction = Arc::new(move |_: AccumulatorArgs<'_>| {
         let accumulator = SumsAccumulator { layout: Arc::clone(&layout), rows: Arc::clone(&rows), sums: vec![0.0; length], cancel: Arc::clone(&flag) };
-        Ok(Box::new(accumulator) as Box<dyn Accumulator>)
+        Ok::<Box<dyn Accumulator>, DataFusionError>(Box::new(accumulator))
     });
     let function = create_udaf(name, types, Arc::new(DataType::Binary), Volatility::Immutable, factory, Arc::new(vec![DataType::Binary]));
     let frame = table.frame.clone().aggregate(vec![], vec![function.call(arguments).alias("sums")]).map_err(|e| e.to_string())?;

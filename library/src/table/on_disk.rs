@@ -59,8 +59,13 @@ pub struct DiskColumn {
     pub text: bool,
 }
 
-/// The engine that runs a table's plans: one runtime for the session's
-/// tables on disk, with a worker thread per core.
+/// Threads the engine runs its plans on. Tokio's current-thread runtime
+/// keeps the build to the scheduler DataFusion itself needs (the
+/// multi-thread one would be one more part of tokio to compile), so a
+/// table's passes run on one core.
+pub const ENGINE_THREADS: usize = 1;
+
+/// The engine that runs a table's plans: a runtime and a session context.
 pub struct Engine {
     runtime: tokio::runtime::Runtime,
     context: SessionContext,
@@ -74,12 +79,11 @@ impl std::fmt::Debug for Engine {
 
 impl Engine {
     fn new(label: &str) -> Result<Engine, TableError> {
-        let runtime = tokio::runtime::Builder::new_multi_thread()
-            .thread_name("waypath-engine")
+        let runtime = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
             .build()
             .map_err(|e| columnar(label, format!("the engine could not start: {e}")))?;
-        let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
-        let config = SessionConfig::new().with_target_partitions(cores).with_batch_size(8192);
+        let config = SessionConfig::new().with_target_partitions(ENGINE_THREADS).with_batch_size(8192);
         Ok(Engine { runtime, context: SessionContext::new_with_config(config) })
     }
 
@@ -382,7 +386,7 @@ fn drop_missing(
     report: &mut LoadReport,
     label: &str,
 ) -> Result<DataFrame, TableError> {
-    let with_missing: Vec<(&DiskColumn, usize)> = columns.iter().zip(&counted.missing).filter(|(_, &m)| m > 0).map(|(c, &m)| (c, m)).collect();
+    let with_missing: Vec<(&DiskColumn, usize)> = columns.iter().zip(&counted.missing).filter(|(_, m)| **m > 0).map(|(c, m)| (c, *m)).collect();
     let Some(&(first, first_count)) = with_missing.first() else { return Ok(frame) };
     if !spec.drop_missing {
         return Err(TableError::Columnar {
