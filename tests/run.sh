@@ -62,11 +62,10 @@ echo "== the columnar feature (Parquet and Arrow tables)"
 cargo build --release --locked -p waypath-probe --features columnar
 cargo test --release --locked -p waypath --features columnar --test table_columnar
 
-echo "== the on_disk feature (tables that stay on disk: the DataFusion engine)"
-# Last of the builds: the probes then read Parquet and run cells on tables on
-# disk (probe_cells); the engine's crates are built only here.
-cargo build --release --locked -p waypath-probe --features columnar,on_disk
-cargo test --release --locked -p waypath --features on_disk --test table_on_disk
+# The feature `on_disk` (tables that stay on disk, DataFusion) is not built
+# here yet: its code has not been compiled or tested (README, Limits). When
+# it has, build `-p waypath-probe --features columnar,on_disk` and run
+# `-p waypath --features on_disk --test table_on_disk` in this place.
 
 echo "== Python reference checks"
 export WAYPATH_BIN_DIR="$CARGO_TARGET_DIR/release"
