@@ -290,3 +290,25 @@ fn stay_on_disk_without_the_feature_is_refused_with_the_feature_named() {
     assert!(error.contains("\"stay on disk\" needs a Waypath built with the cargo feature \"on_disk\""), "{error}");
     assert!(session.table("plots").is_none());
 }
+
+/// README "Default priors": the coefficients' defaults are shares of one
+/// budget, while the family's own parameter (here the spread, whose
+/// default is `half_normal` of the outcome's sd) is set from the outcome;
+/// the model table's `set by` column says which, row by row.
+#[test]
+fn the_model_table_says_which_defaults_come_from_the_shared_budget() {
+    let dir = std::env::temp_dir().join(format!("wp-cells-set-by-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    orchard_csv(&dir);
+    let mut session = Session::new(&dir);
+    let out = run(
+        &mut session,
+        "table trees from \"trees.csv\":\n    keep where girth > 0\nmodel m:\n    yield from girth using trees\n    prior intercepts: normal(30, 10)\n",
+    );
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let plain = &out.displays[1].plain;
+    let row = |group: &str| plain.lines().find(|l| l.starts_with(group)).unwrap_or_else(|| panic!("a {group} row in\n{plain}"));
+    assert!(row("slopes").trim_end().ends_with("Waypath default (shared budget)"), "{plain}");
+    assert!(row("spread").trim_end().ends_with("Waypath default (family parameter)"), "{plain}");
+    assert!(row("intercepts").trim_end().ends_with("declared in the cell"), "{plain}");
+}

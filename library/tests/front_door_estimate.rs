@@ -56,10 +56,14 @@ fn front_door_answer_covers_the_truth_where_the_plain_regression_is_biased() {
     let c = &json["contrasts"][0];
     let (lo, hi) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap());
     assert!(lo <= TRUE_EFFECT && TRUE_EFFECT <= hi, "truth {TRUE_EFFECT} outside [{lo}, {hi}]");
-    // `compare routes` has one route here: the front door.
+    // `compare routes` sets the joint model's route beside the front door:
+    // `intervene` takes the complete algorithm's formula (written
+    // differently, fitted anew), and it too covers Wright's 0.35.
     let routes = last_json(&mut session, "compare routes for total effect of shading on trout in reach using water with laplace seed 4");
     assert_eq!(routes["route"], "front door");
-    assert!(routes["joint"].is_null());
+    let joint = &routes["joint"];
+    assert!(joint["formulas"][0].as_str().unwrap().starts_with("Pr[trout | do(shading)] ="), "{joint}");
+    assert!(joint["lower"].as_f64().unwrap() <= TRUE_EFFECT && TRUE_EFFECT <= joint["upper"].as_f64().unwrap(), "{joint}");
     assert_eq!(routes["formula_route"][0]["mean"], c["mean"], "the same seeded estimate as `ask … using`");
     // Both regressions are kept in the session.
     assert!(session.fit("formula_algae_from_shading").is_some());
@@ -112,7 +116,7 @@ fn plain_ask_prints_the_formula_and_a_not_identifiable_one_its_hedge() {
 }
 
 #[test]
-fn joint_intervene_refuses_an_effect_a_hedge_makes_unidentifiable() {
+fn joint_intervene_refuses_a_hedge_and_takes_the_formula_where_one_exists() {
     // The bow arc (Pearl 2009 §3.5, recalled): a hidden cause of exposure and
     // outcome and nothing else; Shpitser & Pearl (2006) prove P(y | do(x))
     // not identifiable, so the joint model must not report one.
@@ -133,11 +137,19 @@ fit whole with laplace seed 2
     assert!(error.contains("not identifiable") && error.contains("{shading, trout} and {trout}") && error.contains("hidden common cause u"), "{error}");
     // The front-door graph's effect is identifiable, but not by the joint
     // model's regressions of each node on its observed parents (trout from
-    // algae absorbs the hidden canopy): refused, pointing to the formula.
+    // algae absorbs the hidden canopy): the front-door formula is evaluated
+    // instead, and its interval covers Wright's 0.35 where the joint
+    // model's own simulation would give about 0.35 + the canopy's bias.
     last_json(&mut session, &reach(3));
-    let out = run(&mut session, "joint fd = reach using water\nfit fd with laplace seed 2\nintervene fd: set shading 1 vs 0, watch trout");
-    let error = out.error.expect("refused").describe();
-    assert!(error.contains("identifiable by a formula") && error.contains("common cause of trout and shading"), "{error}");
+    let json = last_json(&mut session, "joint fd = reach using water\nfit fd with laplace seed 2\nintervene fd: set shading 1 vs 0, watch trout, algae");
+    assert_eq!(json["route"], "identifying formula");
+    assert!(json["warnings"][0].as_str().unwrap().contains("common cause of trout and shading"), "{json}");
+    assert!(json["formulas"][0]["formula"].as_str().unwrap().starts_with("Pr[trout | do(shading)] = sum over algae of"), "{json}");
+    let trout = &json["watched"][0];
+    assert!(trout["lower"].as_f64().unwrap() <= TRUE_EFFECT && TRUE_EFFECT <= trout["upper"].as_f64().unwrap(), "{trout}");
+    // algae's own effect, 0.7 (Wright 1934: the one edge).
+    let algae = &json["watched"][1];
+    assert!(algae["lower"].as_f64().unwrap() <= 0.7 && 0.7 <= algae["upper"].as_f64().unwrap(), "{algae}");
     // A hidden cause of two nodes the intervention leaves alone changes nothing:
     // still simulated (soil -> rootstock? no: a hidden cause of two pre-exposure nodes).
     let cells = "graph calm:

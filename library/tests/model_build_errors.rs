@@ -52,7 +52,7 @@ fn outcome_must_fit_the_family() {
     // The gamma-poisson (negative binomial) support is the non-negative integers too.
     expect!["model line 2: table `trees` row 1, column `yield`: 8.067481021968991 is not a whole number ≥ 0, which a gamma_poisson outcome must be"]
         .assert_eq(&build_error("yield from girth using trees\nfamily gamma_poisson", &t));
-    expect![[r#"model line 2: column `soil`: the outcome is a category (loam, sandy, clay), which goes with `family levels` (or leave the family line out); `family gamma_poisson` needs a numeric column"#]]
+    expect!["model line 2: column `soil`: the outcome is a category (loam, sandy, clay), which goes with `family levels` (or leave the family line out), or `family graded` when its levels are ordered; `family gamma_poisson` needs a numeric column"]
         .assert_eq(&build_error("soil from girth using trees\nfamily gamma_poisson", &t));
     // The beta density lives on the open interval (0, 1): a 0 or a 1 has none.
     expect!["model line 2: table `trees` row 1, column `healthy`: 0 is not strictly between 0 and 1, which a beta outcome (a share) must be; a share of exactly 0 or 1 has no beta density: model the counts behind it with `family binomial out of <column>`"]
@@ -63,10 +63,20 @@ fn outcome_must_fit_the_family() {
     expect!["model line 2: table `trees` row 3, column `fruit`: 10 successes is not a whole number between 0 and the 9 trials in `set`"]
         .assert_eq(&build_error("fruit from girth using trees\nfamily binomial out of set", &t));
     // A category outcome goes with the levels family only, and the levels family with a category only.
-    expect![[r#"model line 2: column `rootstock`: the outcome is a category (dwarf, standard), which goes with `family levels` (or leave the family line out); `family bernoulli` needs a numeric column"#]]
+    expect!["model line 2: column `rootstock`: the outcome is a category (dwarf, standard), which goes with `family levels` (or leave the family line out), or `family graded` when its levels are ordered; `family bernoulli` needs a numeric column"]
         .assert_eq(&build_error("rootstock from girth using trees\nfamily bernoulli", &t));
-    expect![[r#"model line 2: column `yield`: `family levels` needs a category outcome, but this column is real; declare it as a category in the table or choose another family"#]]
+    expect!["model line 2: column `yield`: `family levels` needs a category outcome, but this column is real; declare it as a category in the table or choose another family"]
         .assert_eq(&build_error("yield from girth using trees\nfamily levels", &t));
+    // The graded family (McCullagh 1980) cuts a latent score into ordered levels: it needs a category outcome,
+    // and its cuts have no pooled departures or prior outside the family.
+    expect!["model line 2: column `yield`: `family graded` needs a category outcome, but this column is real; declare it as a category in the table (its levels lowest first) or choose another family"]
+        .assert_eq(&build_error("yield from girth using trees\nfamily graded", &t));
+    expect!["model line 2: term `pooled rootstock`: pooled groups are not available for an ordered outcome (family graded) yet; model soil with `rootstock` as an ordinary term (one intercept or offset per level) instead"]
+        .assert_eq(&build_error("soil from girth, pooled rootstock using trees\nfamily graded", &t));
+    expect!["prior for gaps: this model has no gaps; remove the prior line"]
+        .assert_eq(&build_error("yield from girth using trees\nprior gaps: lognormal(0, 1)", &t));
+    expect!["prior for gaps: normal(0, 1) allows negative values but the gaps between cut points are positive; use exponential, half_normal or lognormal"]
+        .assert_eq(&build_error("soil from girth using trees\nfamily graded\nprior gaps: normal(0, 1)", &t));
 }
 
 #[test]

@@ -8,24 +8,7 @@
 
 mod model_fixtures;
 
-use model_fixtures::{build, orchard, orchard_with_cover, value_and_gradient};
-use rand::rngs::StdRng;
-use rand::SeedableRng;
-use rand_distr::{Distribution, Normal};
-use waypath::model::{LogDensity, Model};
-
-/// Richardson-extrapolated central difference of the log density in `j`.
-fn numeric_partial(model: &Model, theta: &[f64], j: usize) -> f64 {
-    let central = |h: f64| {
-        let mut ahead = theta.to_vec();
-        let mut behind = theta.to_vec();
-        ahead[j] += h;
-        behind[j] -= h;
-        (value_and_gradient(model, &ahead).0 - value_and_gradient(model, &behind).0) / (2.0 * h)
-    };
-    let h = 1e-4 * theta[j].abs().max(1.0);
-    (4.0 * central(h / 2.0) - central(h)) / 3.0
-}
+use model_fixtures::{assert_gradient_matches, build, orchard, orchard_with_cover, orchard_with_times};
 
 /// Check the gradient at five random points around the initial point.
 fn check_gradient(body: &str, seed: u64) {
@@ -34,24 +17,7 @@ fn check_gradient(body: &str, seed: u64) {
 
 /// [`check_gradient`] on `table`.
 fn check_gradient_on(body: &str, table: &waypath::table::Table, seed: u64) {
-    let model = build(body, table);
-    let mut rng = StdRng::seed_from_u64(seed);
-    let jitter = Normal::new(0.0, 0.3).expect("valid normal");
-    for _ in 0..5 {
-        let theta: Vec<f64> = model.initial_point().iter().map(|v| v + jitter.sample(&mut rng)).collect();
-        let (value, grad) = value_and_gradient(&model, &theta);
-        assert!(value.is_finite(), "{body}: log density not finite at {theta:?}");
-        for j in 0..model.dim() {
-            let numeric = numeric_partial(&model, &theta, j);
-            let error = (grad[j] - numeric).abs() / grad[j].abs().max(1.0);
-            assert!(
-                error < 1e-6,
-                "{body}: parameter {} analytic {} vs numeric {numeric} (relative error {error:e})",
-                model.unconstrained_names()[j],
-                grad[j]
-            );
-        }
-    }
+    assert_gradient_matches(&build(body, table), body, seed, 5, 0.3);
 }
 
 const TERMS: &str = "rootstock, soil, girth per rootstock, powers(age, 3)";
@@ -125,6 +91,18 @@ fn beta_gradient_matches_finite_differences() {
     check_gradient_on(&format!("cover from {TERMS} using trees\nfamily beta"), &table, 22);
     check_gradient_on(&format!("cover from {SPLINE_TERMS} using trees\nfamily beta\nprior precision: exponential(0.1)"), &table, 23);
     check_gradient_on("cover from girth, pooled soil using trees\nfamily beta", &table, 24);
+}
+
+/// The time families: exponential (coefficients only) and Weibull (and
+/// log(shape)), with rows cut short, the default shape prior and a declared
+/// one, and a pooled group after the shape.
+#[test]
+fn time_gradients_match_finite_differences() {
+    let table = orchard_with_times(120, 7);
+    check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily exponential cut short by season_over"), &table, 25);
+    check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily weibull cut short by season_over"), &table, 26);
+    check_gradient_on(&format!("ripening from {SPLINE_TERMS} using trees\nfamily weibull\nprior shape: exponential(0.5)"), &table, 27);
+    check_gradient_on("ripening from girth, pooled soil using trees\nfamily weibull cut short by season_over", &table, 28);
 }
 
 /// The levels family (softmax over soil's three levels; rootstock's two),

@@ -82,7 +82,7 @@ fn line_error(text: &str) -> String {
 fn syntax_errors_say_what_to_write() {
     expect!["a binomial outcome needs the column that holds each row's number of trials: write `family binomial out of <column>`"]
         .assert_eq(&line_error("family binomial"));
-    expect!["`family gamma`: use normal, bernoulli, poisson, gamma_poisson, beta, levels or binomial out of <column>"]
+    expect!["`family gamma`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, graded, binomial out of <column>, exponential or weibull (either with `cut short by <column>`)"]
         .assert_eq(&line_error("family gamma"));
     expect!["`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student, exponential, half_normal, lognormal or uniform"]
         .assert_eq(&line_error("prior slopes: cauchy(0, 1)"));

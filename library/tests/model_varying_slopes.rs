@@ -5,7 +5,7 @@
 
 mod model_fixtures;
 
-use model_fixtures::{build, build_error, category, column, orchard, value_and_gradient};
+use model_fixtures::{assert_gradient_matches, build, build_error, category, column, orchard, value_and_gradient};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Normal};
@@ -26,40 +26,11 @@ fn orchard_with_plots(n: usize, seed: u64) -> Table {
     table
 }
 
-/// Richardson-extrapolated central difference (Nocedal & Wright, Numerical
-/// Optimization, 2nd ed., §8.1; recalled).
-fn numeric_partial(model: &Model, theta: &[f64], j: usize) -> f64 {
-    let central = |h: f64| {
-        let (mut ahead, mut behind) = (theta.to_vec(), theta.to_vec());
-        ahead[j] += h;
-        behind[j] -= h;
-        (value_and_gradient(model, &ahead).0 - value_and_gradient(model, &behind).0) / (2.0 * h)
-    };
-    let h = 1e-4 * theta[j].abs().max(1.0);
-    (4.0 * central(h / 2.0) - central(h)) / 3.0
-}
-
 fn check_gradient(body: &str, seed: u64) {
     let table = orchard_with_plots(150, 7);
     let model = build(body, &table);
     assert!(model.dim() > model.coefficient_names().len() + 24, "{body}: the slope adds coordinates");
-    let mut rng = StdRng::seed_from_u64(seed);
-    let jitter = Normal::new(0.0, 0.4).expect("valid normal");
-    for _ in 0..4 {
-        let theta: Vec<f64> = model.initial_point().iter().map(|v| v + jitter.sample(&mut rng)).collect();
-        let (value, grad) = value_and_gradient(&model, &theta);
-        assert!(value.is_finite(), "{body}: log density not finite");
-        for j in 0..model.dim() {
-            let numeric = numeric_partial(&model, &theta, j);
-            let error = (grad[j] - numeric).abs() / grad[j].abs().max(1.0);
-            assert!(
-                error < 1e-6,
-                "{body}: {} analytic {} vs numeric {numeric} (relative error {error:e})",
-                model.unconstrained_names()[j],
-                grad[j]
-            );
-        }
-    }
+    assert_gradient_matches(&model, body, seed, 4, 0.4);
 }
 
 #[test]
@@ -545,4 +516,75 @@ fn a_slope_funnel_is_sampled_without_divergences_by_the_automatic_choice() {
     assert!(note.contains("centred: intercept)"), "{note}");
     let fit = fit_model(&model, &Method::Nuts(settings), &AtomicBool::new(false), &|_| {}).expect("NUTS fit");
     assert_eq!(fit.divergences, 0, "the automatic choice diverged");
+}
+
+/// `parameterise plot centred 2` on `pooled plot with (girth, age)`: the
+/// intercept and girth centred, age non-centred. Its density against the
+/// fully centred one at the same constrained point: only age's departures
+/// change coordinates, `a_age = τ_age·(L·z)_age` with the other scores
+/// fixed by the centred departures, so the log Jacobian per level is
+/// `log τ_age + log L₂₂`, and `L₂₂² = det Ω / det Ω₀₁` (the Schur
+/// complement of the leading 2 × 2 block; Horn & Johnson, Matrix
+/// Analysis, §0.8.5; recalled), `det Ω₀₁ = 1 − ρ²(intercept, girth)`.
+/// The gradient goes against finite differences, the model's notes say
+/// which effects are centred, and too many centred effects are refused.
+#[test]
+fn a_declared_partly_centred_group_is_one_density_with_the_centred_one() {
+    let table = orchard_with_plots(150, 3);
+    let body = |layout: &str| format!("yield from girth, age, pooled plot with (girth, age) using trees\nparameterise plot {layout}");
+    check_gradient(&body("centred 2"), 71);
+    check_gradient(&format!("{}\nfamily bernoulli", body("centred 1").replace("yield", "healthy")), 72);
+    let (centred, partly) = (build(&body("centred"), &table), build(&body("centred 2"), &table));
+    let first = centred.first_group_index();
+    let names = partly.unconstrained_names();
+    assert_eq!(names[first + 14], "girth slope + plot girth departure[P1]", "{names:?}");
+    assert_eq!(names[first + 27], "plot age departure[P1]: age score", "{names:?}");
+    let note = partly.notes().iter().find(|n| n.starts_with("pooled plot")).expect("a note on the group");
+    assert!(note.contains("sampled partly centred (as the parameterise line says; centred: intercept, girth, the rest non-centred)"), "{note}");
+    let mut rng = StdRng::seed_from_u64(8);
+    for _ in 0..5 {
+        let z: Vec<f64> = partly.initial_point().iter().map(|v| v + rng.random_range(-0.8..0.8)).collect();
+        let params = partly.constrain(&z);
+        let a = centred.unconstrain(&params).expect("valid parameters");
+        let correlations = &params[first + 39..];
+        let det = determinant(&correlation_matrix(correlations, 3), 3);
+        let leading = 1.0 - correlations[0] * correlations[0];
+        let log_jacobian = 12.0 * (params[first + 26].ln() + 0.5 * (det / leading).ln());
+        let (value_z, _) = value_and_gradient(&partly, &z);
+        let (value_a, _) = value_and_gradient(&centred, &a);
+        assert!((value_z - (value_a + log_jacobian)).abs() < 1e-9 * value_z.abs(), "{value_z} vs {value_a} + {log_jacobian}");
+    }
+    let too_many = build_error(&body("centred 4"), &table);
+    assert!(too_many.contains("at most 3") && too_many.contains("intercept, girth, age"), "{too_many}");
+    let none = build_error(&body("centred 0"), &table);
+    assert!(none.contains("noncentred"), "{none}");
+}
+
+/// The model cell's table says which effects a `centred N` line centres.
+#[test]
+fn the_model_cell_names_the_centred_effects() {
+    use std::sync::atomic::AtomicBool;
+    use waypath::cells::{RunControl, Session};
+    let mut session = Session::new(".");
+    let cancel = AtomicBool::new(false);
+    let progress = |_: &str| {};
+    let cell = "graph g:
+    x -> y
+    w -> y
+    site -> y
+simulate t from g rows 120 seed 4:
+    site = category(s1 0.25, s2 0.25, s3 0.25, s4 0.25)
+    x = normal(0, 1)
+    w = normal(0, 1)
+    y = normal(1 + x + w + departure(site, 0.5), 1)
+model m:
+    y from x, w, pooled site with (x, w) using t
+    parameterise site centred 2
+";
+    let out = session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress });
+    assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
+    let shown = out.displays.last().expect("the model's table");
+    let said = "sampled partly centred (as the parameterise line says; centred: intercept, x, the rest non-centred)";
+    assert!(shown.plain.contains(said), "{}", shown.plain);
+    assert!(shown.html.as_deref().is_some_and(|h| h.contains("centred: intercept, x")), "the HTML too");
 }

@@ -7,7 +7,7 @@
 
 mod common;
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 
 use rand::rngs::StdRng;
@@ -20,8 +20,12 @@ use waypath::cells::{CellOutcome, RunControl, Session};
 use waypath::plot::palette::{self, BLUE, BLUISH_GREEN, ORANGE, REDDISH_PURPLE, VERMILLION};
 use waypath::plot::*;
 
+/// The repository, from the `CARGO_MANIFEST_DIR` cargo sets when it runs
+/// the test (a binary reused from a clone elsewhere keeps its build path).
 fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).parent().expect("library/ sits in the repository").to_path_buf()
+    let manifest = std::env::var_os("CARGO_MANIFEST_DIR").map(PathBuf::from);
+    let manifest = manifest.unwrap_or_else(|| PathBuf::from(env!("CARGO_MANIFEST_DIR")));
+    manifest.parent().expect("library/ sits in the repository").to_path_buf()
 }
 
 fn run(session: &mut Session, cell: &str) -> CellOutcome {

@@ -109,7 +109,10 @@ fn bad_departures_are_refused_with_the_line_named() {
         ("y = normal(departure(site, 1) + departure(site, 2), 1)", "twice"),
         ("y = normal(departure(elsewhere, 1), 1)", "not a node of graph"),
         ("y = normal(departure(site, 1, x) + departure(site, 2, x), 1)", "twice"),
-        ("y = normal(departure(site, 1, x, x), 1)", "needs the form"),
+        ("y = normal(departure(site, 1, x, x), 1)", "must read `correlation r`"),
+        ("y = normal(departure(site, 1, x, x, x), 1)", "needs the form"),
+        ("y = normal(departure(site, 1) + departure(site, 1, x, correlation 1.5), 1)", "strictly between −1 and 1"),
+        ("y = normal(departure(site, 1, x, correlation 0.5), 1)", "draws no departure(site, spread)"),
         ("y = normal(departure(site, 1, 2x), 1)", "not a node name"),
         ("y = normal(departure(site, 1, site), 1)", "cannot use it as a number"),
         ("y = normal(departure(site, 1, elsewhere), 1)", "not a node of graph"),
@@ -174,6 +177,85 @@ fn slope_departures_multiply_their_parent_and_follow_the_stated_spread() {
     let cov = pairs.iter().map(|(a, b)| (a - ma) * (b - mb)).sum::<f64>();
     let r = cov / (pairs.iter().map(|p| (p.0 - ma).powi(2)).sum::<f64>() * pairs.iter().map(|p| (p.1 - mb).powi(2)).sum::<f64>()).sqrt();
     assert!(r.abs() < 4.0 / k.sqrt(), "intercept and slope departures drawn apart: r = {r}");
+}
+
+/// `departure(site, 0.6, x, correlation 0.7)` beside `departure(site,
+/// 1.2)`: the intercept and slope departures of 300 sites, read off a
+/// noiseless table, have a sample correlation whose Fisher transform
+/// `atanh(r)` is about normal(atanh(0.7), 1/(n − 3)) (Fisher 1915;
+/// recalled), so it must lie within 4 of those sds; the slope departures'
+/// sd stays inside the chi-square bounds of normal(0, 0.6) (Cochran's
+/// theorem, quantiles from statrs).
+#[test]
+fn slope_departures_take_their_stated_correlation_with_the_intercepts() {
+    let g = graph(&["site -> y", "x -> y"]);
+    let body = vec![
+        sites_line(300),
+        "x = normal(2, 1)".to_string(),
+        "y = normal(departure(site, 1.2) + departure(site, 0.6, x, correlation 0.7), 0.000000001)".to_string(),
+    ];
+    let table = simulate(&g, &body, 12_000, 9).expect("mechanisms").table().expect("table");
+    let (x, y) = (reals(&table, "x"), reals(&table, "y"));
+    let (site, levels) = codes(&table, "site");
+    let mut rows_of: BTreeMap<String, Vec<usize>> = BTreeMap::new();
+    for (i, c) in site.iter().enumerate() {
+        rows_of.entry(levels[*c as usize].clone()).or_default().push(i);
+    }
+    let pairs: Vec<(f64, f64)> = rows_of
+        .values()
+        .filter(|r| r.len() >= 2)
+        .map(|rows| {
+            let (i, j) = (rows[0], rows[1]);
+            let b = (y[i] - y[j]) / (x[i] - x[j]);
+            (y[i] - b * x[i], b)
+        })
+        .collect();
+    let k = pairs.len() as f64;
+    let (ma, mb) = (pairs.iter().map(|p| p.0).sum::<f64>() / k, pairs.iter().map(|p| p.1).sum::<f64>() / k);
+    let (saa, sbb) = (pairs.iter().map(|p| (p.0 - ma).powi(2)).sum::<f64>(), pairs.iter().map(|p| (p.1 - mb).powi(2)).sum::<f64>());
+    let r = pairs.iter().map(|(a, b)| (a - ma) * (b - mb)).sum::<f64>() / (saa * sbb).sqrt();
+    assert!((r.atanh() - 0.7f64.atanh()).abs() < 4.0 / (k - 3.0).sqrt(), "sample correlation {r} against the stated 0.7");
+    let chi = ChiSquared::new(k - 1.0).unwrap();
+    let statistic = sbb / 0.36;
+    assert!(chi.cdf(statistic) > 0.0005 && chi.cdf(statistic) < 0.9995, "slope departures' sd {}", (sbb / (k - 1.0)).sqrt());
+}
+
+/// `recover` with a stated correlation: `departure(site, 1.5) +
+/// departure(site, 0.4, x, correlation −0.6)`. With centring (c = x's mean
+/// over the rows) the model's intercept departures are `a₀ + c·a₁`, so by
+/// the variance and covariance of a sum of correlated normals the true
+/// spread is `√(1.5² + 2c·(−0.6)·1.5·0.4 + c²·0.4²)` and the correlation
+/// `(−0.6·1.5·0.4 + c·0.4²) / (that · 0.4)`; without centring the stated
+/// −0.6 itself. The posterior interval of the correlation must hold it.
+#[test]
+fn recover_checks_a_stated_correlation() {
+    let g = graph(&["site -> y", "x -> y"]);
+    let body = vec![
+        sites_line(20),
+        "x = normal(3, 1)".to_string(),
+        "y = normal(10 + 2 * x + departure(site, 1.5) + departure(site, 0.4, x, correlation -0.6), 1)".to_string(),
+    ];
+    let sim = simulate(&g, &body, 2_000, 41).expect("mechanisms");
+    let x = reals(&sim.table().expect("table"), "x");
+    let c = x.iter().sum::<f64>() / x.len() as f64;
+    let method = Method::Nuts(NutsSettings { chains: 2, settle: 400, draws: 600, seed: 5, ..NutsSettings::default() });
+    for centred in [false, true] {
+        let mut lines = vec![(2, "y from x, pooled site with x using fake")];
+        if !centred {
+            lines.push((3, "centre off"));
+        }
+        let spec = ModelSpec::from_lines("m", lines).expect("spec");
+        let r = recover(&spec, &sim, &method, &AtomicBool::new(false), 0.9).expect("recover");
+        let by_name = |name: &str| r.parameters.iter().find(|p| p.name == name).unwrap_or_else(|| panic!("no {name}: {:?}", r.parameters));
+        let shift = if centred { c } else { 0.0 };
+        let spread0 = (1.5f64.powi(2) + 2.0 * shift * -0.6 * 1.5 * 0.4 + shift * shift * 0.16).sqrt();
+        let rho = (-0.6 * 1.5 * 0.4 + shift * 0.16) / (spread0 * 0.4);
+        assert!((by_name("site spread").truth.unwrap() - spread0).abs() < 1e-9, "centred {centred}");
+        let p = by_name("site correlation[intercept, x]");
+        assert!((p.truth.unwrap() - rho).abs() < 1e-9, "centred {centred}: {:?} vs {rho}", p.truth);
+        assert_eq!(p.covered, Some(true), "centred {centred}: the correlation's interval misses {rho}: {p:?}");
+        assert!(r.notes.iter().any(|n| n.contains("as stated")), "{:?}", r.notes);
+    }
 }
 
 /// `recover` of a varying slope against a simulation with

@@ -110,6 +110,7 @@ fn intervention_moves_level_shares_as_the_softmax_truth_says() {
         rows: None,
         seed: 8,
         mass: 0.9,
+        groups: waypath::query::GroupQuestion::Observed,
     };
     let result = intervene(&joint, &fit, &table, &request).expect("intervene");
     assert_eq!(result.simulated, ["form", "height"]);
@@ -178,6 +179,7 @@ fn intervention_through_a_category_with_parents_runs_and_setting_it_gives_the_me
         rows: None,
         seed: 1,
         mass: 0.9,
+        groups: waypath::query::GroupQuestion::Observed,
     };
     let through = intervene(&joint, &fit, &table, &request("rain", "60", "50")).expect("rain simulates soil_class");
     assert_eq!(through.simulated, ["soil_class", "crop"]);

@@ -31,7 +31,10 @@ fn error_text(csv: &str, lines: &[&str]) -> String {
 }
 
 fn fixture(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/data/table").join(name)
+    // cargo sets the variable when it runs the test; a binary reused from a
+    // clone elsewhere keeps its build path in `env!`
+    let manifest = std::env::var_os("CARGO_MANIFEST_DIR").map(PathBuf::from);
+    manifest.unwrap_or_else(|| PathBuf::from(env!("CARGO_MANIFEST_DIR"))).join("tests/data/table").join(name)
 }
 
 fn reals(table: &Table, column: &str) -> Vec<f64> {

@@ -408,7 +408,7 @@ mod tests {
             ("ask total effect ", &["of"]),
             ("ask total effect of x on y in g ", &["using"]),
             // README: `ask … using T [checking zero] [at M v, …] [pooling C …] [intervals P%] [with …]`.
-            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "pooling", "with"]),
+            ("ask total effect of x on y in g using t ", &["at", "checking", "intervals", "pooling", "varying", "with"]),
             ("implications of g ", &["checked"]),
             ("implications of g checked ", &["against"]),
             ("joint j ", &["="]),
@@ -576,10 +576,10 @@ mod tests {
         let empty = Session::new(".");
         let cases: &[(&str, &[&str])] = &[
             ("", &["centre", "family", "parameterise", "prior"]),
-            ("family ", &["bernoulli", "binomial", "levels", "normal", "poisson"]),
+            ("family ", &["bernoulli", "beta", "binomial", "exponential", "gamma_poisson", "graded", "levels", "normal", "poisson", "weibull"]),
             ("family binomial ", &["out"]),
             ("family binomial out ", &["of"]),
-            ("prior ", &["intercepts", "pooled correlations", "pooled spreads", "slopes", "spread", "weights"]),
+            ("prior ", &["gaps", "intercepts", "overdispersion", "pooled correlations", "pooled spreads", "precision", "shape", "slopes", "spread", "weights"]),
             ("prior pooled correlations: ", &["lkj("]),
             ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student(", "uniform("]),
             ("centre ", &["off", "on"]),
@@ -607,7 +607,7 @@ mod tests {
         assert_eq!(offered_in(&session, "model m:", "yield from girth using t"), ["trees"]);
         assert_eq!(offered_in(&session, "model m:", "family binomial out of gi"), ["girth"]);
         // the block is found above earlier body lines
-        assert_eq!(offered(&empty, "model m:\n    yield from girth using trees\n    family be"), ["bernoulli"]);
+        assert_eq!(offered(&empty, "model m:\n    yield from girth using trees\n    family bi"), ["binomial"]);
     }
 
     /// README "Statements", `joint NAME = G using T[:]`: body lines such as
@@ -619,7 +619,7 @@ mod tests {
         assert_eq!(offered_in(&session, header, ""), ["centre", "family", "parameterise", "prior"]);
         assert_eq!(offered_in(&session, header, "girth "), ["from", "using"]);
         assert_eq!(offered_in(&session, header, "girth from rootstock "), ["per", "using"]);
-        assert_eq!(offered(&session, &format!("{header}\n    girth from rootstock\n    family ")), ["bernoulli", "binomial", "levels", "normal", "poisson"]);
+        assert_eq!(offered(&session, &format!("{header}\n    girth from rootstock\n    family ")), ["bernoulli", "beta", "binomial", "exponential", "gamma_poisson", "graded", "levels", "normal", "poisson", "weibull"]);
     }
 
     /// README "Statements", `table NAME from "FILE.csv":`: `x: real in cm`,
@@ -658,7 +658,7 @@ mod tests {
         let header = "simulate s from orchard rows 50 seed 7:";
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
-            ("x = ", &["bernoulli(", "category(", "normal(", "poisson("]),
+            ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "normal(", "poisson(", "weibull("]),
             ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
             ("n = poisson(", &["departure(", "exp(", "log", "log("]),
             ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),

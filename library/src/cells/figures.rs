@@ -6,7 +6,7 @@ use crate::infer::fit::Fit;
 use crate::model::{Family, Input, Model};
 use crate::plot::{
     calibration_figure, contrast_figure, contrast_grid_figure, graph_figure, implications_figure, lines_figure,
-    mixing_figure, posterior_figure, predictive_figure, recovery_figure, spline_figure, BasisPicture,
+    mixing_figure, posterior_figure, predictive_figure_with_cut, recovery_figure, spline_figure, BasisPicture,
     DensityArrangement, EdgeMark, GraphPicture, GridContrast, ImplicationRow, LineGroup, NodeMark, ParameterDraws,
     PlotError, PredictiveKind, Quantity, RecoveryRow, Role, shrinkage_figure, ShrinkageRow,
 };
@@ -562,7 +562,11 @@ pub fn calibration(c: &Calibration, parameter: usize) -> Result<String, PlotErro
 /// Observed outcomes against outcome sets simulated from the prior or the posterior.
 pub fn predictive(sets: &PredictiveSets, table: &Table, outcome: &str) -> Result<String, PlotError> {
     let kind = if sets.kind == "prior" { PredictiveKind::Prior } else { PredictiveKind::Posterior };
-    predictive_figure(kind, &sets.model, &quantity(table, outcome), &sets.observed, &sets.replicated)
+    let cut: Vec<f64> = match &sets.cut_short {
+        Some(flags) => sets.observed.iter().zip(flags).filter(|(_, &c)| c).map(|(&v, _)| v).collect(),
+        None => Vec::new(),
+    };
+    predictive_figure_with_cut(kind, &sets.model, &quantity(table, outcome), &sets.observed, &cut, &sets.replicated)
 }
 
 /// "90% interval" for an interval mass.

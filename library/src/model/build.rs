@@ -20,14 +20,16 @@ use super::family::gaussian::GaussianStats;
 use super::guards::{check_design_size, check_scales};
 use super::family::likelihood::{GlmData, GlmOutcome, GroupIndices};
 use super::family::shaped::{moment_overdispersion, moment_precision, BetaShare};
-use super::family::softmax::SoftmaxData;
+use super::family::softmax::{level_prefix, DepartureRun, SoftmaxData};
+use super::family::survival::time_notes;
+use super::family::ordered::{marginal_cuts, GradedData};
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
 use super::terms::recipe::mean_and_sd;
-use super::terms::groups::{SlopeEvidence, VaryingSlope};
+use super::terms::groups::{GroupLayout, SlopeEvidence, VaryingSlope};
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
 use super::prior::short_number;
 
@@ -49,7 +51,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_scales(spec, table)?;
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
-    let mut groups = plan_groups(spec, table, &recipes)?;
+    let mut groups = for_outcome_levels(plan_groups(spec, table, &recipes)?, spec, outcome.levels.as_deref());
     let blocks = predictor_blocks(spec, &outcome);
     let design = design_matrix(&recipes, table)?;
     let columns = column_spread(&design);
@@ -58,10 +60,22 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     let information = row_information(&spec.family, &outcome);
     let group_rows = fitted_group_rows(&groups, table)?;
     for (group, rows) in groups.iter_mut().zip(&group_rows) {
-        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| *l);
-        let means = level_link_means(&spec.family, &outcome, rows, group.levels.len());
+        let effects = 1 + group.slopes.len();
+        let declared = spec.layouts.iter().find(|(g, _)| *g == group.column).map(|(_, l)| match *l {
+            GroupLayout::CentredFirst(n) if n >= effects => GroupLayout::Centred,
+            l => l,
+        });
+        let (family, outcome, information) = match group.outcome_level {
+            Some(ref level) => {
+                let one = one_level_outcome(&outcome, level.block + 1);
+                let information = row_information(&Family::Bernoulli, &one);
+                (Family::Bernoulli, one, information)
+            }
+            None => (spec.family.clone(), outcome.clone(), information),
+        };
+        let means = level_link_means(&family, &outcome, rows, group.levels.len());
         let evidence: Vec<SlopeEvidence> =
-            group.slopes.iter().map(|s| slope_evidence(&spec.family, &outcome, design.column(s.design_column).as_slice(), rows, group.levels.len())).collect();
+            group.slopes.iter().map(|s| slope_evidence(&family, &outcome, design.column(s.design_column).as_slice(), rows, group.levels.len())).collect();
         group.settle_layout(declared, information, &means, &evidence);
         notes.push(group.note());
     }
@@ -74,7 +88,8 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             if spec.correlation_prior.is_some() { "" } else { " (the default; `prior pooled correlations: lkj(η)` sets η)" }
         ));
     }
-    let pooling = Pooling::new(&groups, &priors.group_spreads, &priors.slope_spreads, priors.correlation_lkj, single_intercept);
+    let pooling =
+        Pooling::new(&groups, &priors.group_spreads, &priors.slope_spreads, priors.correlation_lkj, single_intercept, design.ncols());
     if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
         notes.push(format!(
             "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
@@ -101,11 +116,14 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         .collect();
     let family_start = priors.family_parameter.as_ref().map(|prior| (prior, family_parameter_start(&spec.family, &outcome)));
     let mut start = starting_point(&blocks, &priors.coefficients, family_start, &intercepts);
+    if spec.family == Family::Graded {
+        start.extend(marginal_cuts(&outcome.level_shares()).1);
+    }
     let anchor = pooling.anchor(&start);
     start.extend(pooling.start(&[], &anchor));
     let gaussian_spread = priors.family_parameter.clone().filter(|_| spec.family == Family::Normal);
     let family_prior = priors.family_parameter.clone().filter(|_| spec.family != Family::Normal);
-    match spec.family {
+    match &spec.family {
         Family::GammaPoisson => notes.push(
             "overdispersion is the sd of the gamma multiplier of each row's rate (variance mean + \
              overdispersion²·mean²), sampled as log(overdispersion) with the Jacobian of that change included"
@@ -116,9 +134,14 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
              mean·(1 − mean)/(1 + φ)), sampled as log(precision) with the Jacobian of that change included"
                 .into(),
         ),
+        Family::Times { form, cut_short } => notes.extend(time_notes(*form, cut_short.as_deref(), outcome.cut_short.as_deref())),
         _ => {}
     }
     let likelihood = match (gaussian_spread, &outcome.levels) {
+        (None, Some(levels)) if spec.family == Family::Graded => {
+            notes.extend(graded_notes(spec, levels, &outcome));
+            Likelihood::Graded(graded_data(&design, &outcome.y, levels.len(), priors.gaps.clone()))
+        }
         (Some(spread_prior), _) => {
             notes.push("spread is sampled as log(spread), with the Jacobian of that change included".into());
             if !groups.is_empty() {
@@ -133,7 +156,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         }
         (None, Some(levels)) => {
             notes.extend(level_notes(spec, levels, &outcome));
-            Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len()))
+            Likelihood::Softmax(softmax_data(&design, &outcome.y, levels.len(), &groups, &group_rows))
         }
         (None, None) => {
             Likelihood::Glm(glm_data(&design, &spec.family, &outcome).with_groups(group_indices(&design, &groups, &group_rows)))
@@ -165,18 +188,17 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     })
 }
 
-/// The pooled groups of `spec` planned on `table`; refused for the levels
-/// family and checked against the memory the likelihood's copy of their
-/// indicator columns needs.
+/// The pooled groups of `spec` planned on `table`, checked against the
+/// memory the likelihood's copy of their indicator columns needs.
 fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Result<Vec<GroupTerm>, ModelError> {
     let mut groups = Vec::new();
     for term in &spec.terms {
         let TermSpec::Pooled { by, with } = term else { continue };
-        if spec.family == Family::Levels {
+        if spec.family == Family::Graded {
             return Err(ModelError::Term {
                 term: term.to_string(),
                 message: format!(
-                    "pooled groups are not available for a category outcome (family levels) yet; model {} with \
+                    "pooled groups are not available for an ordered outcome (family graded) yet; model {} with \
                      `{by}` as an ordinary term (one intercept or offset per level) instead",
                     spec.outcome
                 ),
@@ -206,6 +228,27 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
     Ok(groups)
 }
 
+/// A category outcome's pooled groups: each planned group once per outcome
+/// level after the reference (`levels`, reference first), each copy with
+/// its own spread and departures on that level's log odds; other
+/// outcomes' groups unchanged.
+fn for_outcome_levels(groups: Vec<GroupTerm>, spec: &ModelSpec, levels: Option<&[String]>) -> Vec<GroupTerm> {
+    let Some(levels) = levels.filter(|_| spec.family == Family::Levels) else { return groups };
+    groups
+        .iter()
+        .flat_map(|g| {
+            levels[1..].iter().enumerate().map(|(block, level)| g.for_outcome_level(block, level_prefix(&spec.outcome, level, &levels[0])))
+        })
+        .collect()
+}
+
+/// A category outcome as a yes/no outcome of level `level` (index), for
+/// choosing how that level's pooled departures are sampled.
+fn one_level_outcome(outcome: &OutcomeValues, level: usize) -> OutcomeValues {
+    let y = outcome.y.iter().map(|&v| f64::from(u8::from(v as usize == level))).collect();
+    OutcomeValues { y, trials: None, levels: None, cut_short: None }
+}
+
 /// The varying slope of predictor `x`: `x` must enter the model as a plain
 /// slope (the population slope the levels depart from).
 fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String> {
@@ -222,9 +265,21 @@ fn varying_slope(x: &str, recipes: &[TermRecipe]) -> Result<VaryingSlope, String
     ))
 }
 
-/// A `parameterise` line must name a pooled group of the model.
+/// A `parameterise` line must name a pooled group of the model, and
+/// `centred N` no more effects than the group has.
 fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), ModelError> {
-    for (name, _) in &spec.layouts {
+    for (name, layout) in &spec.layouts {
+        if let (GroupLayout::CentredFirst(n), Some(group)) = (layout, groups.iter().find(|g| g.column == *name)) {
+            let effects = 1 + group.slopes.len();
+            if *n > effects {
+                let names: Vec<&str> = std::iter::once("intercept").chain(group.slopes.iter().map(|s| s.column.as_str())).collect();
+                return Err(ModelError::syntax(format!(
+                    "`parameterise {name} centred {n}`: pooled {name} has {effects} effect{} ({}), so at most {effects} can be centred",
+                    if effects == 1 { "" } else { "s" },
+                    names.join(", ")
+                )));
+            }
+        }
         if !groups.iter().any(|g| g.column == *name) {
             let pooled: Vec<&str> = groups.iter().map(|g| g.column.as_str()).collect();
             return Err(ModelError::syntax(format!(
@@ -242,7 +297,9 @@ fn check_layout_lines(spec: &ModelSpec, groups: &[GroupTerm]) -> Result<(), Mode
 fn level_link_means(family: &Family, outcome: &OutcomeValues, rows: &[usize], levels: usize) -> Vec<Option<f64>> {
     let mut sums = vec![(0.0, 0.0); levels];
     for (i, &level) in rows.iter().enumerate() {
-        let trials = outcome.trials.as_ref().map_or(1.0, |m| m[i]);
+        // Time followed over events for times cut short (the exponential mean).
+        let event = outcome.cut_short.as_ref().map_or(1.0, |c| if c[i] { 0.0 } else { 1.0 });
+        let trials = outcome.trials.as_ref().map_or(event, |m| m[i]);
         sums[level].0 += outcome.y[i];
         sums[level].1 += trials;
     }
@@ -375,6 +432,26 @@ fn level_notes(spec: &ModelSpec, levels: &[String], outcome: &OutcomeValues) -> 
     notes
 }
 
+/// What a graded-family model assumes, and levels without rows.
+fn graded_notes(spec: &ModelSpec, levels: &[String], outcome: &OutcomeValues) -> Vec<String> {
+    let mut notes = vec![format!(
+        "{}: {} ordered levels, lowest first ({}); each row has a latent score, its linear predictor plus a \
+         logistic error, and falls in the level between the cuts around that score (cumulative logit); the cut \
+         below {} is fixed at 0, so the intercepts place the scores against it, and the gaps between later cuts \
+         are sampled as their logs with the Jacobian of that change included",
+        spec.outcome,
+        levels.len(),
+        levels.join(", "),
+        levels[1]
+    )];
+    for (level, share) in levels.iter().zip(outcome.level_shares()) {
+        if share == 0.0 {
+            notes.push(format!("level {level} of {} has no rows; the cuts around it rest on their priors", spec.outcome));
+        }
+    }
+    notes
+}
+
 /// Indices of the design columns that are intercepts (exactly one of them
 /// is 1 in every row).
 pub(super) fn intercept_columns(recipes: &[TermRecipe]) -> Vec<usize> {
@@ -398,15 +475,27 @@ pub(super) fn glm_data(design: &DMatrix<f64>, family: &Family, outcome: &Outcome
         (Family::Poisson, _) => GlmOutcome::Poisson { y },
         (Family::GammaPoisson, _) => GlmOutcome::GammaPoisson { y },
         (Family::Beta, _) => GlmOutcome::Beta { shares: y.iter().map(|&v| BetaShare::new(v)).collect(), y },
+        (Family::Times { form, .. }, _) => GlmOutcome::Times { rows: outcome.time_rows(), y, form: *form },
         _ => GlmOutcome::Bernoulli { y },
     };
     GlmData::new(rows, design.ncols(), glm_outcome)
 }
 
-/// The design as rows for the levels family, with each row's level index.
-pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize) -> SoftmaxData {
+/// The design as rows for the levels family, with each row's level index
+/// and the pooled groups' runs of departures, each on its outcome level's
+/// linear predictor.
+pub(super) fn softmax_data(design: &DMatrix<f64>, y: &[f64], levels: usize, groups: &[GroupTerm], rows: &[Vec<usize>]) -> SoftmaxData {
+    let design_rows: Vec<f64> = design.transpose().as_slice().to_vec();
+    let blocks = groups.iter().flat_map(|g| std::iter::repeat_n(g.block(), 1 + g.slopes.len()));
+    let runs = blocks.zip(group_indices(design, groups, rows)).map(|(block, indices)| DepartureRun { block, indices }).collect();
+    SoftmaxData::new(design_rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels).with_runs(runs)
+}
+
+/// The design as rows for the graded family, with each row's level index
+/// and the gaps' priors.
+pub(super) fn graded_data(design: &DMatrix<f64>, y: &[f64], levels: usize, gaps: Vec<Prior>) -> GradedData {
     let rows: Vec<f64> = design.transpose().as_slice().to_vec();
-    SoftmaxData::new(rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels)
+    GradedData::new(rows, design.ncols(), y.iter().map(|&v| v as usize).collect(), levels, gaps)
 }
 
 /// The family parameter's starting value: the outcome's sd for the
@@ -415,6 +504,7 @@ pub(super) fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -
     match family {
         Family::GammaPoisson => moment_overdispersion(&outcome.y),
         Family::Beta => moment_precision(&outcome.y),
+        Family::Times { .. } => 1.0,
         _ => mean_and_sd(&outcome.y).1,
     }
 }

@@ -48,6 +48,29 @@
 //! to 1.6·`s_y`. A precision has no natural zero to shrink to, so unlike
 //! the spread its prior is centred on the data's scale rather than at 0.
 //!
+//! **Shape** (Weibull family): the log of a Weibull time varies around
+//! its mean by an sd of `π/(k·√6) ≈ 1.28/k` whatever the scale (the log
+//! of a Weibull time is a reversed Gumbel variable; Johnson, Kotz &
+//! Balakrishnan 1994, ch. 21; recalled): the shape is the residual
+//! variation on the log link's scale, read upside down. The default
+//! `lognormal(0, 1)` puts its median at k = 1, the exponential (constant
+//! hazard; residual sd 1.28 on the log scale, about the log link's target
+//! `T = 1`), and its central 95% from k = 0.14 to 7.1: residual sds of log
+//! time from 9 (times spread over orders of magnitude, a hazard falling
+//! steeply) down to 0.18 (times within about a fifth of their mean, a
+//! hazard rising steeply). The exponential family has no shape.
+//!
+//! **Gaps** (graded family, [`super::family::ordered`]): with one linear
+//! predictor for every row, the level shares would put the cut above level
+//! k at `logit(F_k)`, `F_k` the share of rows at or below it; the gaps
+//! `d_k` between those cuts ([`marginal_cuts`]) centre each gap's default
+//! `lognormal(log d_k, 1)` (95% within a factor of about 7; predictors
+//! widen the latent scale, so the fitted gaps usually come out larger than
+//! the marginal ones). The intercept's centre is the score that gives the
+//! lowest level its share with the first cut at 0, `−logit(F_0)`. A gap,
+//! like a precision, has no natural zero, so its prior sits on the data's
+//! scale.
+//!
 //! **Pooled spreads.** A pooled group's departures vary from row to row
 //! too, so each pooled group takes one share of the budget beside the `K`
 //! columns: with `G` groups every column gets `T/(s_j·√(K + G))` and every
@@ -77,7 +100,9 @@
 
 use super::error::ModelError;
 use super::family::shaped::{moment_overdispersion, moment_precision};
+use super::family::ordered::{cut_label, marginal_cuts};
 use super::family::softmax::level_prefix;
+use super::family::survival::mean_time;
 use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::prior::{short_number, Prior, PriorGroup};
@@ -118,6 +143,9 @@ pub struct PriorPlan {
     /// The prior of the family's positive parameter: the spread (normal)
     /// or the overdispersion (gamma-poisson).
     pub family_parameter: Option<Prior>,
+    /// The prior of each gap between cut points (graded family; empty
+    /// otherwise).
+    pub gaps: Vec<Prior>,
     /// The spread prior of each pooled group, in the groups' order.
     pub group_spreads: Vec<Prior>,
     /// The spread priors of each group's varying slopes (empty without).
@@ -139,6 +167,9 @@ pub struct PredictorBlock {
 
 /// The linear predictors of the model of `spec` on `outcome`.
 pub fn predictor_blocks(spec: &ModelSpec, outcome: &OutcomeValues) -> Vec<PredictorBlock> {
+    if spec.family == Family::Graded {
+        return vec![PredictorBlock { prefix: String::new(), centre: marginal_cuts(&outcome.level_shares()).0 }];
+    }
     match &outcome.levels {
         Some(levels) => {
             let shares = outcome.level_shares();
@@ -177,12 +208,16 @@ pub fn assign_priors(
     check_declared(spec, recipes, groups)?;
     let target = budget_target(&spec.family, outcome);
     let intercepts = super::build::intercept_columns(recipes);
-    let slopes = groups.iter().map(|g| g.slopes.len()).sum::<usize>();
-    let varying = columns.sd.len() - intercepts.len() + groups.len() + slopes;
+    // A category outcome pools each column once per linear predictor; the
+    // budget is per linear predictor, so count the first predictor's groups.
+    let first_block = || groups.iter().filter(|g| g.block() == 0);
+    let slopes = first_block().map(|g| g.slopes.len()).sum::<usize>();
+    let varying = columns.sd.len() - intercepts.len() + first_block().count() + slopes;
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
         family_parameter: None,
+        gaps: Vec::new(),
         group_spreads: Vec::new(),
         slope_spreads: Vec::new(),
         correlation_lkj: spec.correlation_prior.unwrap_or(DEFAULT_LKJ),
@@ -222,6 +257,7 @@ pub fn assign_priors(
         let declared = spec.declared_prior(group);
         let prior = declared.cloned().unwrap_or_else(|| match spec.family {
             Family::Beta => Prior::LogNormal { log_mean: moment_precision(&outcome.y).ln() + 1.0, log_sd: 1.0 },
+            Family::Times { .. } => Prior::LogNormal { log_mean: 0.0, log_sd: 1.0 },
             _ => Prior::HalfNormal { sd: target },
         });
         plan.uses.push(PriorUse {
@@ -233,12 +269,15 @@ pub fn assign_priors(
         });
         plan.family_parameter = Some(prior);
     }
+    if spec.family == Family::Graded {
+        plan.gaps = gap_priors(spec, outcome, &mut plan.uses);
+    }
     let declared = spec.declared_prior(PriorGroup::PooledSpreads);
     for group in groups {
         let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target / (varying.max(1) as f64).sqrt() });
         plan.uses.push(PriorUse {
             group: PriorGroup::PooledSpreads,
-            parameters: vec![group_spread_label(&group.column)],
+            parameters: vec![format!("{}{}", group.label_prefix(), group_spread_label(&group.column))],
             prior: prior.clone(),
             declared: declared.is_some(),
             at_average_row: false,
@@ -252,7 +291,7 @@ pub fn assign_priors(
                 let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: share });
                 plan.uses.push(PriorUse {
                     group: PriorGroup::PooledSpreads,
-                    parameters: vec![group_spread_label(&format!("{} {}", group.column, slope.column))],
+                    parameters: vec![format!("{}{}", group.label_prefix(), group_spread_label(&format!("{} {}", group.column, slope.column)))],
                     prior: prior.clone(),
                     declared: declared.is_some(),
                     at_average_row: false,
@@ -271,6 +310,31 @@ pub fn assign_priors(
         });
     }
     Ok(plan)
+}
+
+/// The prior of each gap between a graded outcome's cut points: the
+/// declared `gaps` prior, else `lognormal(log d, 1)` with `d` the gap the
+/// level shares give with one linear predictor for every row
+/// ([`marginal_cuts`]), recorded under the label of the cut above the gap.
+fn gap_priors(spec: &ModelSpec, outcome: &OutcomeValues, uses: &mut Vec<PriorUse>) -> Vec<Prior> {
+    let Some(levels) = &outcome.levels else { return Vec::new() };
+    let declared = spec.declared_prior(PriorGroup::Gaps);
+    let (_, log_gaps) = marginal_cuts(&outcome.level_shares());
+    log_gaps
+        .iter()
+        .zip(levels.iter().skip(2))
+        .map(|(&log_gap, level)| {
+            let prior = declared.cloned().unwrap_or(Prior::LogNormal { log_mean: log_gap, log_sd: 1.0 });
+            uses.push(PriorUse {
+                group: PriorGroup::Gaps,
+                parameters: vec![cut_label(&spec.outcome, level)],
+                prior: prior.clone(),
+                declared: declared.is_some(),
+                at_average_row: false,
+            });
+            prior
+        })
+        .collect()
 }
 
 /// The information one row carries about the linear predictor at the
@@ -293,6 +357,9 @@ pub fn row_information(family: &Family, outcome: &OutcomeValues) -> f64 {
             let mu = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
             mu * (1.0 - mu) * (1.0 + moment_precision(&outcome.y))
         }
+        // An exponential row's information about log μ is its chance of
+        // showing the event: 1 when followed to it, less when cut short.
+        Family::Times { .. } => outcome.time_rows().iter().map(|r| r.event).sum::<f64>().max(1.0) / outcome.y.len().max(1) as f64,
         _ => {
             let p = outcome.mean_per_trial().clamp(1e-3, 1.0 - 1e-3);
             let trials = outcome.trials.as_ref().map_or(1.0, |m| mean_and_sd(m).0.max(1.0));
@@ -305,6 +372,7 @@ pub fn row_information(family: &Family, outcome: &OutcomeValues) -> f64 {
 fn outcome_centre(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
         Family::Normal => mean_and_sd(&outcome.y).0,
+        Family::Times { .. } => family.link(mean_time(&outcome.time_rows())),
         _ => family.link(outcome.mean_per_trial()),
     }
 }
@@ -314,6 +382,7 @@ fn family_parameter_group(family: &Family) -> PriorGroup {
     match family {
         Family::GammaPoisson => PriorGroup::Overdispersion,
         Family::Beta => PriorGroup::Precision,
+        Family::Times { .. } => PriorGroup::Shape,
         _ => PriorGroup::Spread,
     }
 }
@@ -325,7 +394,7 @@ fn budget_target(family: &Family, outcome: &OutcomeValues) -> f64 {
             let sd = mean_and_sd(&outcome.y).1;
             if sd.is_finite() && sd > 0.0 { sd } else { 1.0 }
         }
-        Family::Poisson | Family::GammaPoisson => LOG_TARGET,
+        Family::Poisson | Family::GammaPoisson | Family::Times { .. } => LOG_TARGET,
         _ => LOG_ODDS_TARGET,
     }
 }
@@ -341,8 +410,10 @@ fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
 fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]) -> Result<(), ModelError> {
     for (group, prior) in &spec.priors {
         let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
-        let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision) {
+        let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Shape) {
             spec.family.family_parameter().is_some() && family_parameter_group(&spec.family) == *group
+        } else if *group == PriorGroup::Gaps {
+            spec.family == Family::Graded
         } else if *group == PriorGroup::PooledSpreads {
             !groups.is_empty()
         } else {
@@ -373,6 +444,8 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
                     PriorGroup::Spread => "the spread is",
                     PriorGroup::Overdispersion => "the overdispersion is",
                     PriorGroup::Precision => "the precision is",
+                    PriorGroup::Shape => "the shape is",
+                    PriorGroup::Gaps => "the gaps between cut points are",
                     _ => "pooled spreads are",
                 }
             ));

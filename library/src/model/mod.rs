@@ -20,6 +20,7 @@
 //! | `powers(girth, 2)` | `girth power 1`, `girth power 2` | coefficients of powers of standardised girth |
 //! | `spline(age, 8)` | `age spline 2` … `age spline 8` | weights of basis functions 2–8 |
 //! | normal family | `spread` | residual sd (sampled as `log(spread)`) |
+//! | graded family, outcome `blight` | `blight cut[marked]`, … | the cut below each level after the second on the latent scale (the cut below the second is 0) |
 //! | levels family, outcome `form` | `form[shrub vs herb]: girth slope`, … | each label above, once per level after the first (`herb`, the reference): that level's coefficient on the log odds against the reference |
 //!
 //! Labels read as words, the column first, then the role (`slope`, `power`,
@@ -64,6 +65,7 @@ mod outcome;
 mod pointwise;
 mod posterior;
 mod predict;
+mod times;
 pub mod prior;
 pub mod spec;
 pub mod spline;

@@ -1,7 +1,8 @@
 //! Reading and checking the outcome (and binomial trials) column against the
 //! family: a bernoulli outcome is 0/1, binomial successes are whole numbers
 //! within their trials, poisson and gamma-poisson counts are whole and
-//! non-negative, beta shares lie strictly between 0 and 1, and a
+//! non-negative, beta shares lie strictly between 0 and 1, times are
+//! positive with a yes/no (or 0/1) `cut short by` column, and a
 //! category outcome goes with the levels family (and only it). Errors name
 //! the first offending row.
 
@@ -9,6 +10,7 @@ use crate::table::{ColumnData, Table};
 
 use super::columns::{find_column, real_values};
 use super::error::ModelError;
+use super::family::survival::TimeRow;
 use super::family::Family;
 
 /// The outcome as reals, with the number of trials for a binomial family
@@ -19,6 +21,9 @@ pub struct OutcomeValues {
     pub y: Vec<f64>,
     pub trials: Option<Vec<f64>>,
     pub levels: Option<Vec<String>>,
+    /// Per row, whether its follow-up was cut short before the event (time
+    /// families with a `cut short by` column).
+    pub cut_short: Option<Vec<bool>>,
 }
 
 impl OutcomeValues {
@@ -39,6 +44,13 @@ impl OutcomeValues {
             Some(m) => total / m.iter().sum::<f64>().max(1.0),
             None => total / self.y.len() as f64,
         }
+    }
+
+    /// The rows of a time family as its likelihood keeps them (every row an
+    /// event when nothing was cut short).
+    pub fn time_rows(&self) -> Vec<TimeRow> {
+        let cut = |i: usize| self.cut_short.as_ref().is_some_and(|c| c[i]);
+        self.y.iter().enumerate().map(|(i, &t)| TimeRow::new(t, cut(i))).collect()
     }
 
     /// The share of rows at each level (levels family; empty otherwise).
@@ -63,13 +75,13 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         });
     }
     match (&column.data, family) {
-        (ColumnData::Category { codes, levels }, Family::Levels) => return read_levels(name, codes, levels),
+        (ColumnData::Category { codes, levels }, Family::Levels | Family::Graded) => return read_levels(name, codes, levels),
         (ColumnData::Category { levels, .. }, _) => {
             return Err(ModelError::Column {
                 column: name.to_string(),
                 message: format!(
                     "the outcome is a category ({}), which goes with `family levels` (or leave the family \
-                     line out); `family {}` needs a numeric column",
+                     line out), or `family graded` when its levels are ordered; `family {}` needs a numeric column",
                     levels.join(", "),
                     family.name()
                 ),
@@ -86,16 +98,16 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         message,
     };
     match family {
-        Family::Normal => check_varies(&y, name).map(|_| OutcomeValues { y, trials: None, levels: None }),
+        Family::Normal => check_varies(&y, name).map(|_| OutcomeValues { y, trials: None, levels: None, cut_short: None }),
         Family::Bernoulli => first_bad(&y, |v| v == 0.0 || v == 1.0)
             .map(|row| Err(place(row, format!("{} is not 0 or 1, which a bernoulli outcome must be", y[row]))))
-            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
         Family::Poisson | Family::GammaPoisson => first_bad(&y, is_count)
             .map(|row| {
                 let message = format!("{} is not a whole number ≥ 0, which a {} outcome must be", y[row], family.name());
                 Err(place(row, message))
             })
-            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
         Family::Binomial { trials } => read_binomial(table, name, y, trials),
         Family::Beta => first_bad(&y, |v| v > 0.0 && v < 1.0)
             .map(|row| {
@@ -107,12 +119,15 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
                 };
                 Err(place(row, format!("{} is not strictly between 0 and 1, which a beta outcome (a share) must be; {hint}", y[row])))
             })
-            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None })),
-        Family::Levels => Err(ModelError::Column {
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
+        Family::Times { cut_short, .. } => read_times(table, name, y, cut_short.as_deref()),
+        Family::Levels | Family::Graded => Err(ModelError::Column {
             column: name.to_string(),
             message: format!(
-                "`family levels` needs a category outcome, but this column is {kind}; declare it as a \
-                 category in the table or choose another family"
+                "`family {}` needs a category outcome, but this column is {kind}; declare it as a \
+                 category in the table{} or choose another family",
+                family.name(),
+                if *family == Family::Graded { " (its levels lowest first)" } else { "" }
             ),
         }),
     }
@@ -130,7 +145,7 @@ fn read_levels(name: &str, codes: &[u32], levels: &[String]) -> Result<OutcomeVa
         });
     }
     let y = codes.iter().map(|&c| f64::from(c)).collect();
-    Ok(OutcomeValues { y, trials: None, levels: Some(levels.to_vec()) })
+    Ok(OutcomeValues { y, trials: None, levels: Some(levels.to_vec()), cut_short: None })
 }
 
 fn read_binomial(table: &Table, name: &str, y: Vec<f64>, trials_name: &str) -> Result<OutcomeValues, ModelError> {
@@ -153,7 +168,60 @@ fn read_binomial(table: &Table, name: &str, y: Vec<f64>, trials_name: &str) -> R
         );
         return Err(place(row, name, message));
     }
-    Ok(OutcomeValues { y, trials: Some(trials), levels: None })
+    Ok(OutcomeValues { y, trials: Some(trials), levels: None, cut_short: None })
+}
+
+/// Positive times, with each row's censoring from the `cut short by`
+/// column: a yes/no column, or numbers that are all 0 or 1.
+fn read_times(table: &Table, name: &str, y: Vec<f64>, cut_short: Option<&str>) -> Result<OutcomeValues, ModelError> {
+    let place = |row: usize, column: &str, message: String| ModelError::Value {
+        table: table.name.clone(),
+        row: row + 1,
+        column: column.to_string(),
+        message,
+    };
+    if let Some(row) = first_bad(&y, |v| v > 0.0 && v.is_finite()) {
+        let message = format!(
+            "{} is not a positive time, which the outcome of a time family must be (a time of 0 has no density: \
+             record when the event was first seen, or leave the row out with `keep where`)",
+            y[row]
+        );
+        return Err(place(row, name, message));
+    }
+    let Some(column_name) = cut_short else {
+        return Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None });
+    };
+    let column = find_column(table, column_name)?;
+    let flags = match &column.data {
+        ColumnData::Binary(values) => values.clone(),
+        ColumnData::Category { levels, .. } => {
+            return Err(ModelError::Column {
+                column: column_name.to_string(),
+                message: format!(
+                    "the column after `cut short by` must say yes/no (or 1/0) per row, but it is a category ({}); \
+                     declare it as binary in the table",
+                    levels.join(", ")
+                ),
+            })
+        }
+        _ => {
+            let values = real_values(column, "the cut-short column")?;
+            if let Some(row) = first_bad(&values, |v| v == 0.0 || v == 1.0) {
+                let message = format!("{} is not 0 or 1 (yes: the follow-up ended before the event)", values[row]);
+                return Err(place(row, column_name, message));
+            }
+            values.iter().map(|&v| v == 1.0).collect()
+        }
+    };
+    if !flags.contains(&false) {
+        return Err(ModelError::Column {
+            column: column_name.to_string(),
+            message: "every row's follow-up was cut short, so no event was seen and the times say nothing about \
+                      when events happen"
+                .into(),
+        });
+    }
+    Ok(OutcomeValues { y, trials: None, levels: None, cut_short: Some(flags) })
 }
 
 fn check_varies(y: &[f64], name: &str) -> Result<(), ModelError> {

@@ -18,6 +18,8 @@
 //! * gamma-poisson: the negative binomial row of `family::shaped`, minus
 //!   `log y!`;
 //! * beta: the beta row of `family::shaped`, minus `log y + log(1 − y)`;
+//! * exponential and Weibull times: the log density, or for a row cut short
+//!   (`NewRows::cut_short`) the log survival function, `family::survival`;
 //! * levels: the log of the observed level's probability (floored at the
 //!   smallest positive double, which only a share below 10⁻³⁰⁸ reaches).
 //!
@@ -35,6 +37,7 @@ use super::build::{glm_data, group_indices, intercept_columns, softmax_data, wit
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::family::shaped::{beta_row, gamma_poisson_row, BetaPrecision, BetaShare, GammaShape};
+use super::family::survival::{time_row_log_density, TimeForm, TimeRow, TimeShape};
 use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::posterior::{Likelihood, Model};
@@ -113,7 +116,15 @@ impl Model {
                     })
                     .collect()
             }
-            Family::Levels => unreachable!("a levels model answered above"),
+            Family::Times { form, .. } => {
+                let shape = match form {
+                    TimeForm::Exponential => TimeShape::exponential(),
+                    TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
+                };
+                let cut = |i: usize| rows.cut_short.as_ref().is_some_and(|c| c[i]);
+                linear.iter().zip(y).enumerate().map(|(i, (&eta, &v))| time_row_log_density(TimeRow::new(v, cut(i)), eta, shape)).collect()
+            }
+            Family::Levels | Family::Graded => unreachable!("a model of a category outcome answered above"),
         })
     }
 
@@ -140,12 +151,16 @@ impl Model {
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None };
+                let cut_short = self.cut_short_rows().map(|c| c.into_iter().enumerate().filter(|(i, _)| *i != row).map(|(_, c)| c).collect());
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short };
                 Likelihood::Glm(
                     glm_data(&design, &self.family, &outcome).with_groups(group_indices(&design, &self.groups, &group_rows)),
                 )
             }
-            Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len))),
+            Likelihood::Softmax(_) => Likelihood::Softmax(softmax_data(&design, &y, self.outcome_levels().map_or(0, <[String]>::len), &self.groups, &group_rows)),
+            Likelihood::Graded(graded) => {
+                Likelihood::Graded(graded.with_rows(design.transpose().as_slice().to_vec(), y.iter().map(|&v| v as usize).collect()))
+            }
         };
         Ok(Model { design, y, group_rows, likelihood, ..self.clone() })
     }

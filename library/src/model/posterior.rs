@@ -16,6 +16,7 @@ use super::defaults::PriorUse;
 use super::error::ModelError;
 use super::family::gaussian::GaussianStats;
 use super::family::likelihood::GlmData;
+use super::family::ordered::{cut_label, cut_points, log_gaps_of, GradedData};
 use super::family::softmax::SoftmaxData;
 use super::family::pooling::Pooling;
 use super::family::Family;
@@ -33,6 +34,9 @@ pub(crate) enum Likelihood {
     Glm(GlmData),
     /// Levels family (category outcome), row by row.
     Softmax(SoftmaxData),
+    /// Graded family (ordered category outcome), row by row, with the
+    /// priors of the gaps between its cut points.
+    Graded(GradedData),
 }
 
 /// A regression model built against a table: a log posterior density over
@@ -114,9 +118,7 @@ impl Model {
     /// `overdispersion` for a gamma-poisson one), then the pooled groups'.
     pub fn parameter_names(&self) -> Vec<String> {
         let mut names = self.labels.clone();
-        if let Some(name) = self.family_parameter() {
-            names.push(name.into());
-        }
+        names.extend(self.family_labels());
         names.extend(self.groups.iter().flat_map(GroupTerm::labels));
         names
     }
@@ -161,9 +163,7 @@ impl Model {
         let per_column: Vec<usize> =
             (0..self.design.ncols()).map(|j| self.design.column(j).iter().filter(|v| **v != 0.0).count()).collect();
         let mut counts: Vec<usize> = (0..self.labels.len()).map(|k| per_column.get(k % width).copied().unwrap_or(0)).collect();
-        if self.family_parameter().is_some() {
-            counts.push(self.design.nrows());
-        }
+        counts.extend(std::iter::repeat_n(self.design.nrows(), self.family_width()));
         counts
     }
 
@@ -173,6 +173,9 @@ impl Model {
         let mut names = self.labels.clone();
         if let Some(name) = self.family_parameter() {
             names.push(format!("log({name})"));
+        }
+        if let Likelihood::Graded(_) = self.likelihood {
+            names.extend(self.family_labels().iter().map(|cut| format!("log(gap below {cut})")));
         }
         for (group, pooled) in self.groups.iter().zip(&self.pooling.groups) {
             names.extend(group.unconstrained_labels(pooled.around_intercept));
@@ -189,6 +192,11 @@ impl Model {
                 *last = last.exp();
             }
         }
+        if let Likelihood::Graded(_) = self.likelihood {
+            let p = self.labels.len();
+            let cuts = cut_points(&params[p..]);
+            params[p..].copy_from_slice(&cuts[1..]);
+        }
         if theta.len() > first_group {
             params.extend(self.pooling.constrain(&theta[first_group..], &self.pooling.anchor(theta)));
         }
@@ -200,7 +208,28 @@ impl Model {
     /// [`Model::parameter_names`]; each group then has its spread followed
     /// by one departure per level.
     pub fn first_group_index(&self) -> usize {
-        self.labels.len() + usize::from(self.family_parameter().is_some())
+        self.labels.len() + self.family_width()
+    }
+
+    /// The labels of the family's parameters after the coefficients: its
+    /// positive parameter, or a graded outcome's cuts above the first
+    /// (`rating cut[good]`, [`super::family::ordered`]).
+    pub fn family_labels(&self) -> Vec<String> {
+        match &self.likelihood {
+            Likelihood::Graded(_) => {
+                let levels = self.outcome_levels().unwrap_or_default();
+                levels.iter().skip(2).map(|level| cut_label(&self.outcome, level)).collect()
+            }
+            _ => self.family_parameter().map(String::from).into_iter().collect(),
+        }
+    }
+
+    /// How many parameters the family has after the coefficients.
+    fn family_width(&self) -> usize {
+        match &self.likelihood {
+            Likelihood::Graded(graded) => graded.levels().saturating_sub(2),
+            _ => usize::from(self.family_parameter().is_some()),
+        }
     }
 
     /// Pooled groups of the model, planned on the fitted data.
@@ -227,6 +256,17 @@ impl Model {
                 });
             }
             theta[self.labels.len()] = value.ln();
+        }
+        if let Likelihood::Graded(_) = self.likelihood {
+            let p = self.labels.len();
+            let gaps = log_gaps_of(&params[p..self.first_group_index()]).map_err(|at| ModelError::Parameters {
+                message: format!(
+                    "the cut points must increase from the first, fixed at 0, but {} is {}",
+                    self.family_labels()[at],
+                    params[p + at]
+                ),
+            })?;
+            theta[p..p + gaps.len()].copy_from_slice(&gaps);
         }
         let first_group = self.first_group_index();
         let pooled = self.pooling.unconstrain(&params[first_group..], &self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
@@ -281,8 +321,8 @@ impl Model {
             }
         }
         let mut point = self.from_prior_values(values);
-        if self.family_parameter().is_some() {
-            point.push(self.start[p] + z.get(p).copied().unwrap_or(0.0));
+        for j in p..self.first_group_index() {
+            point.push(self.start[j] + z.get(j).copied().unwrap_or(0.0));
         }
         let first_group = self.first_group_index();
         // Level means sampled around the intercept start near the data (the
@@ -325,6 +365,10 @@ impl Model {
             Likelihood::Gaussian { stats, .. } => stats.log_likelihood_and_gradient(&coefficients, theta[p], &mut scratch).0,
             Likelihood::Glm(glm) => glm.log_likelihood_and_gradients(&coefficients, theta.get(p).copied().unwrap_or(0.0), &mut scratch).0,
             Likelihood::Softmax(levels) => levels.log_likelihood_and_gradient(&coefficients, &mut scratch),
+            Likelihood::Graded(graded) => {
+                let mut d_gaps = vec![0.0; graded.levels().saturating_sub(2)];
+                graded.log_likelihood_and_gradient(&coefficients, &theta[p..self.first_group_index()], &mut scratch, &mut d_gaps)
+            }
         })
     }
 
@@ -440,10 +484,20 @@ impl Model {
     /// Constrained parameters from values drawn independently from the
     /// priors as listed (`priors_used`): an intercept drawn from a prior at
     /// the average row becomes the raw intercept by subtracting the block's
-    /// shift. Prior predictive checks and calibration draw through this.
+    /// shift; a graded outcome's gaps, drawn from the gaps' priors under
+    /// the labels of the cuts above them, become the cuts, each the sum of
+    /// the gaps below it. Prior predictive checks and calibration draw
+    /// through this.
     pub fn from_prior_values(&self, mut values: Vec<f64>) -> Vec<f64> {
         let width = self.design.ncols().max(1);
         let p = self.labels.len();
+        if let (Likelihood::Graded(_), Some(gaps)) = (&self.likelihood, values.get_mut(p..self.first_group_index())) {
+            let mut at = 0.0;
+            for value in gaps.iter_mut() {
+                at += *value;
+                *value = at;
+            }
+        }
         for block in 0..p / width {
             let at = block * width;
             let shift = self.average_row_shift(&values[at..at + width], at);
@@ -485,6 +539,7 @@ impl LogDensity for Model {
                 total += self.glm_part(glm, &theta[..p], theta, coefficients, rest.first_mut());
             }
             Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&theta[..p], &mut grad[..p]),
+            Likelihood::Graded(graded) => total += graded_part(graded, &theta[..p], theta, p, grad),
         }
         if total.is_finite() {
             total
@@ -518,6 +573,12 @@ impl Model {
                 total += self.glm_part(glm, &coefficients, theta, &mut d_coefficients, grad_u);
             }
             Likelihood::Softmax(levels) => total += levels.log_likelihood_and_gradient(&coefficients, &mut d_coefficients),
+            Likelihood::Graded(graded) => {
+                let mut beside = vec![0.0; grad.len()];
+                total += graded_part(graded, &coefficients[..p], theta, p, &mut beside);
+                d_coefficients[..p].iter_mut().zip(&beside[..p]).for_each(|(d, b)| *d += b);
+                grad[p..first_group].iter_mut().zip(&beside[p..first_group]).for_each(|(g, b)| *g += b);
+            }
         }
         for (g, d) in grad[..p].iter_mut().zip(&d_coefficients) {
             *g += d;
@@ -538,4 +599,16 @@ impl Model {
             f64::NEG_INFINITY
         }
     }
+}
+
+/// A graded model's likelihood at `coefficients` and the log gaps
+/// `theta[p..]`, with the gaps' priors and log Jacobian: the coefficients'
+/// gradient added into `grad[..p]`, the gaps' written to `grad[p..]`.
+fn graded_part(graded: &GradedData, coefficients: &[f64], theta: &[f64], p: usize, grad: &mut [f64]) -> f64 {
+    let width = graded.levels().saturating_sub(2);
+    let log_gaps = &theta[p..p + width];
+    let (d_coefficients, rest) = grad.split_at_mut(p);
+    let d_gaps = &mut rest[..width];
+    d_gaps.iter_mut().for_each(|d| *d = 0.0);
+    graded.log_likelihood_and_gradient(coefficients, log_gaps, d_coefficients, d_gaps) + graded.log_prior_of_gaps(log_gaps, d_gaps)
 }

@@ -19,9 +19,11 @@ use super::columns::real_values;
 use super::error::ModelError;
 use super::family::correlated::{cholesky_of_correlations, lower_times, pair_count};
 use super::family::gaussian::GaussianStats;
+use super::family::ordered::level_probabilities as graded_level_probabilities;
 use super::family::softmax::level_probabilities;
+use super::family::survival::{draw_time, TimeForm, TimeShape};
 use super::family::Family;
-use super::outcome::OutcomeValues;
+use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::terms::design_matrix;
 
@@ -35,12 +37,15 @@ pub struct NewRows {
     /// did not have, or a table without the group's column — a new group,
     /// whose departure is taken as 0, the population's own prediction).
     pub groups: Vec<Vec<Option<usize>>>,
+    /// Per row, whether its follow-up was cut short (time families, when the
+    /// table has the `cut short by` column; `None`: every row an event).
+    pub cut_short: Option<Vec<bool>>,
 }
 
 impl NewRows {
     /// Rows without pooled groups (or of a new group in each).
     pub fn from_design(design: DMatrix<f64>, trials: Option<Vec<u64>>) -> NewRows {
-        NewRows { design, trials, groups: Vec::new() }
+        NewRows { design, trials, groups: Vec::new(), cut_short: None }
     }
 
     /// The rows at `indices`, in that order.
@@ -49,6 +54,7 @@ impl NewRows {
             design: self.design.select_rows(indices),
             trials: self.trials.as_ref().map(|t| indices.iter().map(|&i| t[i]).collect()),
             groups: self.groups.iter().map(|g| indices.iter().map(|&i| g[i]).collect()).collect(),
+            cut_short: self.cut_short.as_ref().map(|c| indices.iter().map(|&i| c[i]).collect()),
         }
     }
 }
@@ -73,7 +79,13 @@ impl Model {
             _ => None,
         };
         let groups = self.groups.iter().map(|g| g.level_of_rows(table)).collect::<Result<_, _>>()?;
-        Ok(NewRows { design, trials, groups })
+        let cut_short = match &self.family {
+            Family::Times { cut_short: Some(column), .. } if table.column(column).is_some() => {
+                read_outcome(table, &self.outcome, &self.family).ok().and_then(|o| o.cut_short)
+            }
+            _ => None,
+        };
+        Ok(NewRows { design, trials, groups, cut_short })
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
@@ -103,8 +115,9 @@ impl Model {
             });
         }
         let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
-        let mut linear: Vec<f64> = (&rows.design * beta).iter().copied().collect();
+        let mut linear = vec![(&rows.design * beta).iter().copied().collect::<Vec<f64>>()];
         self.add_departures(params, rows, new_group, &mut linear);
+        let linear = linear.swap_remove(0);
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
     }
@@ -114,18 +127,41 @@ impl Model {
     /// parameters `params`: the softmax of the levels' linear predictors.
     /// Levels family only.
     pub fn level_probabilities(&self, params: &[f64], rows: &NewRows) -> Result<Vec<Vec<f64>>, ModelError> {
+        self.level_probabilities_in_new_groups(params, rows, &[])
+    }
+
+    /// [`Model::level_probabilities`] with `new_group` as in
+    /// [`Model::predict_mean_in_new_groups`]: for a category outcome one
+    /// departure per outcome level after the reference (and per varying
+    /// slope), in parameter order.
+    pub fn level_probabilities_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Vec<Vec<f64>>, ModelError> {
         self.check_length(params)?;
         let levels = self.outcome_levels().ok_or_else(|| ModelError::Family {
             message: format!("model `{}` has a {} outcome, not a category, so it has no level probabilities", self.name, self.family.name()),
         })?;
+        if let Likelihood::Graded(_) = self.likelihood {
+            return Ok(self.graded_probabilities(params, rows));
+        }
         let width = rows.design.ncols();
         let blocks: Vec<nalgebra::DVector<f64>> = (1..levels.len())
             .map(|k| nalgebra::DVector::from_column_slice(&params[(k - 1) * width..k * width]))
             .collect();
-        let eta: Vec<nalgebra::DVector<f64>> = blocks.iter().map(|b| &rows.design * b).collect();
+        let mut eta: Vec<Vec<f64>> = blocks.iter().map(|b| (&rows.design * b).iter().copied().collect()).collect();
+        self.add_departures(params, rows, new_group, &mut eta);
         Ok((0..rows.design.nrows())
             .map(|i| level_probabilities(&eta.iter().map(|e| e[i]).collect::<Vec<f64>>()))
             .collect())
+    }
+
+    /// A graded model's level probabilities (lowest first) for each new
+    /// row: the differences of the cumulative logistic probabilities at
+    /// the cuts ([`super::family::ordered`]).
+    fn graded_probabilities(&self, params: &[f64], rows: &NewRows) -> Vec<Vec<f64>> {
+        let p = self.labels.len();
+        let mut cuts = vec![0.0];
+        cuts.extend_from_slice(&params[p..self.first_group_index()]);
+        let eta = &rows.design * nalgebra::DVector::from_column_slice(&params[..p]);
+        eta.iter().map(|&e| graded_level_probabilities(e, &cuts)).collect()
     }
 
     /// One simulated outcome per new row at constrained parameters `params`,
@@ -147,7 +183,7 @@ impl Model {
         rng: &mut R,
     ) -> Result<Vec<f64>, ModelError> {
         if self.outcome_levels().is_some() {
-            let probabilities = self.level_probabilities(params, rows)?;
+            let probabilities = self.level_probabilities_in_new_groups(params, rows, new_group)?;
             return Ok(probabilities.iter().map(|p| draw_level(p, rng.random::<f64>()) as f64).collect());
         }
         let prediction = self.predict_mean_in_new_groups(params, rows, new_group)?;
@@ -162,12 +198,15 @@ impl Model {
     /// predictor (`new_group[run]`, or nothing, for a row of a new group;
     /// one run per group and per varying slope, in parameter order). A
     /// varying slope's departure is multiplied by the row's value of the
-    /// predictor's design column.
-    fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear: &mut [f64]) {
+    /// predictor's design column. `linear` holds one linear predictor per
+    /// block (a category outcome's levels after the reference; one for
+    /// other families), and each group adds to its own block's.
+    fn add_departures(&self, params: &[f64], rows: &NewRows, new_group: &[f64], linear_by_block: &mut [Vec<f64>]) {
         let mut at = self.first_group_index();
         let mut run = 0;
         for (group, levels) in self.groups.iter().zip(&rows.groups) {
             let n = group.levels.len();
+            let linear = &mut linear_by_block[group.block()];
             let weights = std::iter::once(None).chain(group.slopes.iter().map(|s| Some(rows.design.column(s.design_column))));
             for weight in weights {
                 let departures = &params[at + 1..at + 1 + n];
@@ -237,7 +276,14 @@ impl Model {
                 // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share must lie.
                 beta.sample(rng).clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON)
             }
-            Family::Levels => return Err(invalid("a category outcome is drawn as a level".into())),
+            Family::Times { form, .. } => {
+                let shape = match form {
+                    TimeForm::Exponential => TimeShape::exponential(),
+                    TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
+                };
+                draw_time(mu.ln(), shape, rng)
+            }
+            Family::Levels | Family::Graded => return Err(invalid("a category outcome is drawn as a level".into())),
         })
     }
 }
@@ -290,30 +336,32 @@ impl Model {
     pub fn fitted_rows(&self) -> NewRows {
         let trials = match &self.likelihood {
             Likelihood::Glm(glm) => glm.trials().map(|m| m.iter().map(|&v| v as u64).collect()),
-            Likelihood::Gaussian { .. } | Likelihood::Softmax(_) => None,
+            Likelihood::Gaussian { .. } | Likelihood::Softmax(_) | Likelihood::Graded(_) => None,
         };
         let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
-        NewRows { design: self.design.clone(), trials, groups }
+        NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows() }
     }
 
     /// The same model — design, recipes, priors and binomial trials
     /// unchanged — with new outcome values `y` for the fitted rows:
     /// outcomes simulated from the prior for simulation-based calibration,
     /// where the priors must not move with the simulated data. For the
-    /// levels family `y` holds level indices.
+    /// levels family `y` holds level indices; a time model cuts the new
+    /// times short where the data were ([`Model::cut_like_the_data`]).
     pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
         if y.len() != self.y.len() {
             return Err(ModelError::Parameters {
                 message: format!("{} outcome values were given for the {} rows of model `{}`", y.len(), self.y.len(), self.name),
             });
         }
+        let (y, cut_short) = self.cut_like_the_data(y);
         let likelihood = match &self.likelihood {
             Likelihood::Gaussian { spread_prior, .. } => Likelihood::Gaussian {
                 stats: GaussianStats::new(&self.likelihood_design(), &y, intercept_columns(&self.recipes)),
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None };
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None, cut_short };
                 Likelihood::Glm(
                     glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
                 )
@@ -325,7 +373,16 @@ impl Model {
                         message: format!("model `{}`: {bad} is not the index of one of its {count} outcome levels", self.name),
                     });
                 }
-                Likelihood::Softmax(softmax_data(&self.design, &y, count))
+                Likelihood::Softmax(softmax_data(&self.design, &y, count, &self.groups, &self.group_rows))
+            }
+            Likelihood::Graded(graded) => {
+                let count = graded.levels();
+                if let Some(bad) = y.iter().find(|&&v| !(v >= 0.0 && v.fract() == 0.0 && (v as usize) < count)) {
+                    return Err(ModelError::Parameters {
+                        message: format!("model `{}`: {bad} is not the index of one of its {count} outcome levels", self.name),
+                    });
+                }
+                Likelihood::Graded(graded.with_rows(self.design.transpose().as_slice().to_vec(), y.iter().map(|&v| v as usize).collect()))
             }
         };
         Ok(Model { y, likelihood, ..self.clone() })

@@ -31,11 +31,15 @@ pub enum PriorGroup {
     Overdispersion,
     /// The precision of a beta outcome (positive).
     Precision,
+    /// The shape of a Weibull time (positive).
+    Shape,
+    /// The gaps between the cut points of a graded outcome (positive).
+    Gaps,
 }
 
 impl PriorGroup {
     /// Every group, in the order prior lines are documented.
-    pub const ALL: [PriorGroup; 7] = [
+    pub const ALL: [PriorGroup; 9] = [
         PriorGroup::Intercepts,
         PriorGroup::Slopes,
         PriorGroup::Weights,
@@ -43,6 +47,8 @@ impl PriorGroup {
         PriorGroup::PooledSpreads,
         PriorGroup::Overdispersion,
         PriorGroup::Precision,
+        PriorGroup::Shape,
+        PriorGroup::Gaps,
     ];
 
     /// The group words of a `prior` line.
@@ -60,6 +66,8 @@ impl PriorGroup {
             PriorGroup::PooledSpreads => "pooled spreads",
             PriorGroup::Overdispersion => "overdispersion",
             PriorGroup::Precision => "precision",
+            PriorGroup::Shape => "shape",
+            PriorGroup::Gaps => "gaps",
         }
     }
 
@@ -79,7 +87,15 @@ impl PriorGroup {
 
     /// Whether the group's parameters are positive.
     pub fn is_positive(self) -> bool {
-        matches!(self, PriorGroup::Spread | PriorGroup::PooledSpreads | PriorGroup::Overdispersion | PriorGroup::Precision)
+        matches!(
+            self,
+            PriorGroup::Spread
+                | PriorGroup::PooledSpreads
+                | PriorGroup::Overdispersion
+                | PriorGroup::Precision
+                | PriorGroup::Shape
+                | PriorGroup::Gaps
+        )
     }
 }
 

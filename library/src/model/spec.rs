@@ -20,15 +20,20 @@
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
 //!   pooling: a level with few rows is pulled towards the population).
-//! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`.
+//! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`,
+//!   or `family exponential | weibull`, optionally followed by
+//!   `cut short by <column>` (a yes/no column: the follow-up ended first).
 //!   Without a family line the family follows the outcome column: `levels`
 //!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
-//!   weights (spline weights), spread, pooled spreads, overdispersion, precision.
+//!   weights (spline weights), spread, pooled spreads, overdispersion, precision,
+//!   shape.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
-//! * `parameterise <category> centred | noncentred` — how a pooled group's
-//!   departures are sampled (Waypath chooses from the data otherwise).
+//! * `parameterise <category> centred | noncentred | centred N` — how a
+//!   pooled group's departures are sampled (Waypath chooses from the data
+//!   otherwise); `centred N` centres the first N effects of a group with
+//!   varying slopes (the intercept, then slopes as written) and not the rest.
 //!
 //! Parsing knows nothing of the data; [`crate::model::Model::build`] checks
 //! the names and kinds against the table.
@@ -321,15 +326,31 @@ fn parse_centring(rest: &str) -> Result<ModelLine, ModelError> {
 fn parse_parameterise(rest: &str) -> Result<ModelLine, ModelError> {
     let usage = || {
         ModelError::syntax(format!(
-            "`{PARAMETERISE_LINE} {rest}`: write `{PARAMETERISE_LINE} <pooled category> {}` or `… {}`",
+            "`{PARAMETERISE_LINE} {rest}`: write `{PARAMETERISE_LINE} <pooled category> {}`, `… {}` or, for a group \
+             with varying slopes, `… {} N` (the intercept and the first N − 1 slopes centred, the rest non-centred)",
             GroupLayout::Centred.word(),
-            GroupLayout::NonCentred.word()
+            GroupLayout::NonCentred.word(),
+            GroupLayout::Centred.word()
         ))
     };
     let words: Vec<&str> = rest.split_whitespace().collect();
-    let [group, layout] = words[..] else { return Err(usage()) };
-    let layout = GroupLayout::parse(layout).ok_or_else(usage)?;
-    Ok(ModelLine::Parameterise { group: identifier(group, "pooled category")?, layout })
+    let layout = match words[..] {
+        [_, layout] => GroupLayout::parse(layout).ok_or_else(usage)?,
+        [_, layout, count] if layout == GroupLayout::Centred.word() => {
+            let n = crate::limits::whole_number("centred", count, 0, 1000).map_err(|e| {
+                ModelError::syntax(format!("`{PARAMETERISE_LINE} {rest}`: {e}; write how many effects are centred, such as `centred 2`"))
+            })? as usize;
+            if n == 0 {
+                return Err(ModelError::syntax(format!(
+                    "`{PARAMETERISE_LINE} {rest}`: no effect centred is `{}`; write that, or a count of at least 1",
+                    GroupLayout::NonCentred.word()
+                )));
+            }
+            GroupLayout::CentredFirst(n)
+        }
+        _ => return Err(usage()),
+    };
+    Ok(ModelLine::Parameterise { group: identifier(words[0], "pooled category")?, layout })
 }
 
 fn parse_formula(text: &str) -> Result<Formula, ModelError> {

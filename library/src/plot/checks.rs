@@ -98,6 +98,22 @@ pub fn predictive_figure(
     observed: &[f64],
     replicated: &[Vec<f64>],
 ) -> Result<String, PlotError> {
+    predictive_figure_with_cut(kind, subject, outcome, observed, &[], replicated)
+}
+
+/// [`predictive_figure`] for times some of which were cut short: `cut` holds
+/// the observed values of those rows (also in `observed`), each marked on
+/// the observed curve by an open ring — a value the event came after, not
+/// when it came. The simulated sets are to be cut the same way by the
+/// caller.
+pub fn predictive_figure_with_cut(
+    kind: PredictiveKind,
+    subject: &str,
+    outcome: &Quantity,
+    observed: &[f64],
+    cut: &[f64],
+    replicated: &[Vec<f64>],
+) -> Result<String, PlotError> {
     let figure = kind.title();
     let observed = sorted_finite(observed);
     let chosen: Vec<Vec<f64>> = thin_indices(replicated.len(), BAND_SETS)
@@ -158,6 +174,9 @@ pub fn predictive_figure(
     if !observed.is_empty() {
         entries.push((Key::Stroke(INK, 2.0, false), "observed rows".to_string()));
     }
+    if !cut.is_empty() {
+        entries.push((Key::Dot(VERMILLION, false), format!("{} rows cut short: the event came later", cut.len())));
+    }
     let rows = legend_rows(&entries, WIDTH - 40.0);
     let y = (0.0, 1.0);
     let left = super::canvas::left_margin(y, true);
@@ -199,6 +218,11 @@ pub fn predictive_figure(
     if !seen.is_empty() {
         let line = polyline_d(seen.iter().map(|(x, p)| (frame.px(*x), frame.py(*p))));
         sheet.push(stroke_path(line, INK, 2.0));
+        for &x in cut.iter().filter(|x| x.is_finite()) {
+            let share = observed.partition_point(|&v| v <= x) as f64 / observed.len() as f64;
+            let ring = circle(frame.px(x), frame.py(share), 3.0, "#FFFFFF");
+            sheet.push(ring.with("stroke", VERMILLION).with("stroke-width", "1.2"));
+        }
         // each step lies outside a pointwise band with chance 1 − OUTER when
         // the model fits; neighbouring steps move together, so counts vary
         let expected = ((1.0 - OUTER) * inner_shares.len() as f64).round();

@@ -33,7 +33,7 @@ mod shrinkage;
 mod trends;
 
 pub use checks::{
-    chain_dashes, implications_figure, level_count_figure, mixing_figure, predictive_figure, quantile_bands,
+    chain_dashes, implications_figure, level_count_figure, mixing_figure, predictive_figure, predictive_figure_with_cut, quantile_bands,
     rank_bins, rank_departures, ImplicationRow, LevelCount, PredictiveKind,
 };
 pub use graph::{

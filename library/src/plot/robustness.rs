@@ -27,6 +27,9 @@ pub enum StrengthScale {
     /// A risk ratio moved by the bounding factor of two risk ratios; curves
     /// where the factor is a given value.
     RiskRatio,
+    /// A count outcome's rate ratio, moved as a risk ratio is; the
+    /// outcome's axis is the hidden cause's rate ratio with it.
+    RateRatio,
 }
 
 /// What the figure shows (plain data, so `plot` knows nothing of queries).
@@ -62,7 +65,7 @@ pub fn robustness_figure(p: &RobustnessPicture) -> Result<String, PlotError> {
     let (x0, dx, y0, dy) = (p.to_exposure[0], p.to_exposure[nx - 1], p.to_outcome[0], p.to_outcome[ny - 1]);
     let (none, product_words) = match p.scale {
         StrengthScale::Product => ("0", "the product of the two strengths"),
-        StrengthScale::RiskRatio => ("1", "the most the two risk ratios can move it by"),
+        StrengthScale::RiskRatio | StrengthScale::RateRatio => ("1", "the most the two ratios can move it by"),
     };
     let mut entries = vec![
         (Key::Swatch(BLUE, 0.35), format!("{} still excludes {none}", p.interval)),
@@ -129,6 +132,10 @@ pub fn robustness_figure(p: &RobustnessPicture) -> Result<String, PlotError> {
             format!("hidden cause → {}: risk ratio", p.exposure),
             format!("hidden cause → {}: risk ratio", p.outcome),
         ),
+        StrengthScale::RateRatio => (
+            format!("hidden cause → {}: risk ratio", p.exposure),
+            format!("hidden cause → {}: rate ratio", p.outcome),
+        ),
     };
     frame.x_axis(&mut sheet, Some(&x_title));
     frame.y_axis(&mut sheet, Some(&y_title));
@@ -145,7 +152,7 @@ fn level_curve(scale: StrengthScale, k: f64, x: (f64, f64), top: f64) -> Option<
         .map(|i| x.0 + (x.1 - x.0) * i as f64 / 400.0)
         .filter_map(|a| match scale {
             StrengthScale::Product if k > 0.0 => Some((a, k / a)),
-            StrengthScale::RiskRatio if k > 1.0 && a > k => Some((a, k * (a - 1.0) / (a - k))),
+            StrengthScale::RiskRatio | StrengthScale::RateRatio if k > 1.0 && a > k => Some((a, k * (a - 1.0) / (a - k))),
             _ => None,
         })
         .filter(|(_, b)| *b <= top)

@@ -104,6 +104,9 @@ pub struct AskOptions {
     /// Category columns whose clusters the model pools (`pooling c`): each
     /// enters as `pooled c`, and the contrasts average over its observed levels.
     pub pooled: Vec<String>,
+    /// A category of the set by whose levels the numeric exposure's slope
+    /// varies (`varying by c`): the exposure enters as `x per c`.
+    pub varying_by: Option<String>,
 }
 
 /// [`answer_effect`] with `options`, reporting the sampler's progress to `progress`.
@@ -192,7 +195,7 @@ pub fn answer_effect_with_progress(
         ColumnData::Category { .. } => Family::Levels,
         _ => family_for(table, outcome, &place)?,
     };
-    let mut terms = vec![exposure.to_string()];
+    let mut terms = vec![exposure_term(table, exposure, set, options.varying_by.as_deref(), &place)?];
     terms.extend(set.iter().cloned());
     for cluster in &options.pooled {
         require_column(table, cluster, &place)?;
@@ -214,11 +217,17 @@ pub fn answer_effect_with_progress(
     let fit = fit_model(&model, method, cancel, progress)
         .map_err(|e| QueryError::Fit { what: format!("model {name}"), message: e.to_string() })?;
     answer.warnings.extend(fit.warnings.iter().cloned());
-    if kind == EffectKind::Direct && set.iter().any(|s| table.column(s).is_some_and(|c| c.data.levels().is_none())) {
+    if kind == EffectKind::Direct && options.varying_by.is_none() && set.iter().any(|s| table.column(s).is_some_and(|c| c.data.levels().is_none())) {
         answer.warnings.push(format!(
             "the model takes the direct effect of {exposure} to be the same at every value of {}; \
-             write a model cell with per-level slopes to let it vary",
+             add `varying by C` for a category C of the set, or write a model cell, to let it vary",
             set.join(", ")
+        ));
+    }
+    if let Some(c) = &options.varying_by {
+        answer.warnings.push(format!(
+            "{exposure}'s slope is fitted for each level of {c}; the contrasts average each row's own level's slope over the rows \
+             (hold {c} with `at {c} LEVEL` for one level's)"
         ));
     }
     answer.estimand = Some(estimand(kind, &family, set, &options.held));
@@ -236,6 +245,27 @@ pub fn answer_effect_with_progress(
     answer.model = Some(model);
     answer.fit = Some(fit);
     Ok(answer)
+}
+
+/// The exposure's term: `x`, or `x per c` when its slope varies by the
+/// levels of category `c`, which must be in the set and `x` numeric.
+fn exposure_term(table: &Table, exposure: &str, set: &[String], varying_by: Option<&str>, place: &str) -> Result<String, QueryError> {
+    let Some(c) = varying_by else { return Ok(exposure.to_string()) };
+    if !set.iter().any(|s| s == c) {
+        return Err(QueryError::request(format!(
+            "{place}: `varying by {c}` needs {c} in the set conditioned on ({}); name one of those",
+            if set.is_empty() { "nothing".to_string() } else { set.join(", ") }
+        )));
+    }
+    if require_column(table, c, place)?.data.levels().is_none() {
+        return Err(QueryError::request(format!("{place}: `varying by {c}`: {c} is numeric; slopes vary by the levels of a category")));
+    }
+    if require_column(table, exposure, place)?.data.levels().is_some() {
+        return Err(QueryError::request(format!(
+            "{place}: `varying by {c}`: {exposure} is a category, so it has no slope; its level contrasts already come per row"
+        )));
+    }
+    Ok(format!("{exposure} per {c}"))
 }
 
 /// What a formula route's contrasts estimate, in words.

@@ -291,6 +291,10 @@ pub struct PredictiveSets {
     pub observed: Vec<f64>,
     /// One simulated outcome set per entry, one value per row of the table.
     pub replicated: Vec<Vec<f64>>,
+    /// Per observed row, whether its follow-up was cut short (a time model
+    /// with a `cut short by` column, whose simulated sets are cut the same
+    /// way, `Model::cut_like_the_data`).
+    pub cut_short: Option<Vec<bool>>,
 }
 
 /// `sets` outcome sets simulated from parameters drawn from the priors, for
@@ -301,10 +305,11 @@ pub fn prior_predictive(model: &Model, table: &Table, sets: usize, seed: u64) ->
         .map(|s| {
             let mut rng = StdRng::seed_from_u64(stream_seed(seed, s as u64, 5));
             let theta = prior_draw(model, &mut rng)?;
-            Ok(model.outcome_draw(&theta, &rows, &mut rng)?)
+            Ok(model.cut_like_the_data(model.outcome_draw(&theta, &rows, &mut rng)?).0)
         })
         .collect::<Result<_, QueryError>>()?;
-    Ok(PredictiveSets { model: model.name().into(), kind: "prior".into(), seed, observed: model.outcome_values().to_vec(), replicated })
+    let (observed, cut_short) = (model.outcome_values().to_vec(), model.cut_short_rows());
+    Ok(PredictiveSets { model: model.name().into(), kind: "prior".into(), seed, observed, replicated, cut_short })
 }
 
 /// `sets` outcome sets simulated at posterior draws spread evenly through
@@ -319,10 +324,11 @@ pub fn posterior_predictive(model: &Model, draws: &Draws, table: &Table, sets: u
     let replicated = (0..sets)
         .map(|s| {
             let mut rng = StdRng::seed_from_u64(stream_seed(seed, s as u64, 6));
-            Ok(model.outcome_draw(&params[s * params.len() / sets], &rows, &mut rng)?)
+            Ok(model.cut_like_the_data(model.outcome_draw(&params[s * params.len() / sets], &rows, &mut rng)?).0)
         })
         .collect::<Result<_, QueryError>>()?;
-    Ok(PredictiveSets { model: model.name().into(), kind: "posterior".into(), seed, observed: model.outcome_values().to_vec(), replicated })
+    let (observed, cut_short) = (model.outcome_values().to_vec(), model.cut_short_rows());
+    Ok(PredictiveSets { model: model.name().into(), kind: "posterior".into(), seed, observed, replicated, cut_short })
 }
 
 #[cfg(test)]

@@ -394,7 +394,8 @@ pub const NEW_GROUP_SEED: u64 = 31_415;
 /// one (its departure drawn per draw from the population).
 fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed: u64, notes: &mut Vec<String>) -> bool {
     let mut any_new = false;
-    for group in model.pooled_groups() {
+    // A category outcome pools each column once per outcome level: one note per column.
+    for group in model.pooled_groups().iter().filter(|g| g.block() == 0) {
         let name = &group.column;
         let stated = request.held.iter().find(|(n, _)| n == name);
         notes.push(match stated {
@@ -405,6 +406,11 @@ fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed
             None => {
                 any_new = true;
                 let drawn = match group.slopes.as_slice() {
+                    _ if group.outcome_level.is_some() => format!(
+                        "one departure per outcome level after the reference, each drawn from normal(0, that \
+                         level's {name} spread){},",
+                        if group.slopes.is_empty() { "" } else { " jointly with its slope departures" }
+                    ),
                     [] => format!("one departure drawn from normal(0, {name} spread)"),
                     [slope] => format!(
                         "one departure of the intercept and one of the {x} slope, drawn jointly with spreads {name} \
@@ -634,10 +640,10 @@ impl Pairing<'_> {
             .iter()
             .enumerate()
             .map(|(d, theta)| {
+                let new = self.new_group(theta, d);
                 let (a, b) = match self.level {
-                    Some(k) => (self.level_share(theta, &rows_to, k)?, self.level_share(theta, &rows_from, k)?),
+                    Some(k) => (self.level_share(theta, &rows_to, k, &new)?, self.level_share(theta, &rows_from, k, &new)?),
                     None => {
-                        let new = self.new_group(theta, d);
                         let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
                         let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
                         (a, b)
@@ -648,9 +654,10 @@ impl Pairing<'_> {
             .collect()
     }
 
-    /// Each row's probability of outcome level `k` at parameters `theta`.
-    fn level_share(&self, theta: &[f64], rows: &NewRows, k: usize) -> Result<Vec<f64>, QueryError> {
-        Ok(self.model.level_probabilities(theta, rows)?.iter().map(|p| p[k]).collect())
+    /// Each row's probability of outcome level `k` at parameters `theta`
+    /// (a new group's departures `new`).
+    fn level_share(&self, theta: &[f64], rows: &NewRows, k: usize, new: &[f64]) -> Result<Vec<f64>, QueryError> {
+        Ok(self.model.level_probabilities_in_new_groups(theta, rows, new)?.iter().map(|p| p[k]).collect())
     }
 
     /// Draw `d`'s departures of a new group in every pooled group (none

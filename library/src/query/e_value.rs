@@ -1,10 +1,16 @@
 //! How strong a hidden common cause would have to be to explain away a
-//! yes/no outcome's effect on the risk-ratio scale.
+//! yes/no, binomial or count outcome's effect on a ratio scale.
 //!
 //! For a bernoulli model the exposure's contrast is taken as a ratio of
 //! risks: per posterior draw, the model's probability of a yes averaged
 //! over the table's rows with the exposure set to one value, divided by the
-//! same with it set to the other (standardisation; summaries last).
+//! same with it set to the other (standardisation; summaries last). A
+//! binomial model's ratio is of the probability of a success per trial
+//! (a risk ratio per trial); a poisson model's of the mean count (a rate
+//! ratio). The bound and the E-value below are proven for risk ratios; a
+//! rate ratio takes them as VanderWeele & Ding (2017) do, as an
+//! approximation that holds when the outcome is rare (recalled), and the
+//! result says so with the share of rows whose count is 0.
 //!
 //! A hidden cause U whose risk ratio with the exposure is at most `a` and
 //! with the outcome (given the exposure) at most `b` can move the risk
@@ -68,12 +74,17 @@ pub struct RatioYardstick {
     pub adjusted_mean: f64,
 }
 
-/// The risk ratio under assumed hidden common causes of growing strength.
+/// The ratio under assumed hidden common causes of growing strength.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RiskRatioRobustness {
     pub model: String,
     pub exposure: String,
     pub outcome: String,
+    /// `risk ratio` (bernoulli, binomial) or `rate ratio` (poisson).
+    pub ratio: String,
+    /// What each side of the ratio is, averaged over the rows: `probability
+    /// that y is yes`, `probability of a success per trial of y`, `mean count of y`.
+    pub measure: String,
     /// The two exposure settings compared, `to` over `from`.
     pub to: String,
     pub from: String,
@@ -114,14 +125,25 @@ pub fn risk_ratio_robustness(
     mass: f64,
 ) -> Result<RiskRatioRobustness, QueryError> {
     let place = format!("robustness of {}: {x}", model.name());
-    if *model.family() != Family::Bernoulli {
-        return Err(QueryError::request(format!(
-            "{place}: model {} has a {} outcome; the risk-ratio scale and E-value are for a yes/no (bernoulli) outcome",
-            model.name(),
-            model.family().name()
-        )));
-    }
-    let predictors = predictor_columns(model);
+    let y = model.outcome_name();
+    let (ratio, measure) = match model.family() {
+        Family::Bernoulli => (RISK_RATIO, format!("probability that {y} is yes")),
+        Family::Binomial { trials } => (RISK_RATIO, format!("probability of a success per trial of {y} (out of {trials})")),
+        Family::Poisson => (RATE_RATIO, format!("mean count of {y}")),
+        other => {
+            return Err(QueryError::request(format!(
+                "{place}: model {} has a {} outcome; the ratio scale and E-value are for a yes/no (bernoulli), binomial or poisson outcome",
+                model.name(),
+                other.name()
+            )))
+        }
+    };
+    // A binomial model's trials column is read with the rows, not a predictor.
+    let trials = match model.family() {
+        Family::Binomial { trials } => Some(trials.clone()),
+        _ => None,
+    };
+    let predictors: Vec<String> = predictor_columns(model).into_iter().filter(|p| Some(p) != trials.as_ref()).collect();
     if !predictors.iter().any(|p| p == x) {
         return Err(QueryError::request(format!("{place}: {x} is not a predictor of model {} ({})", model.name(), predictors.join(", "))));
     }
@@ -134,7 +156,7 @@ pub fn risk_ratio_robustness(
     let ratios: Vec<f64> = c.means.iter().map(|(a, b)| a / b).collect();
     if ratios.iter().any(|r| !(r.is_finite() && *r > 0.0)) {
         return Err(QueryError::request(format!(
-            "{place}: some draws give a risk of 0 at {x} = {}, so the ratio is undefined",
+            "{place}: some draws give a {measure} of 0 at {x} = {}, so the ratio is undefined",
             c.from
         )));
     }
@@ -149,16 +171,13 @@ pub fn risk_ratio_robustness(
     let risk_to = c.means.iter().map(|m| m.0).sum::<f64>() / n;
     let risk_from = c.means.iter().map(|m| m.1).sum::<f64>() / n;
     let mut notes = vec![
-        format!(
-            "risk ratio per draw: the probability that {} is yes averaged over the {} rows with {x} = {}, over the same with {x} = {}",
-            model.outcome_name(),
-            table.nrows(),
-            c.to,
-            c.from
-        ),
+        format!("{ratio} per draw: the {measure} averaged over the {} rows with {x} = {}, over the same with {x} = {}", table.nrows(), c.to, c.from),
         "each draw is moved towards 1 by the most a hidden cause of the two strengths can move it (bounding factor a·b/(a + b − 1), Ding & VanderWeele 2016); a weaker or differently built hidden cause moves it less".to_string(),
-        "E-value: the risk ratio a hidden cause would need with both the exposure and the outcome to move the estimate to 1 (VanderWeele & Ding 2017)".to_string(),
+        format!("E-value: the {ratio} a hidden cause would need with both the exposure and the outcome to move the estimate to 1 (VanderWeele & Ding 2017)"),
     ];
+    if ratio == RATE_RATIO {
+        notes.push(rare_outcome_caveat(table, y, &place)?);
+    }
     notes.extend(c.notes.iter().cloned());
     let yardsticks = ratio_yardsticks(model, draws, table, x, &c.to, &c.from, s.mean, &predictors, &place, &mut notes)?;
     let strongest = yardsticks.iter().map(|y| y.to_exposure.max(y.to_outcome)).fold(e_value_of_mean, f64::max);
@@ -176,6 +195,8 @@ pub fn risk_ratio_robustness(
         model: model.name().to_string(),
         exposure: x.to_string(),
         outcome: model.outcome_name().to_string(),
+        ratio: ratio.to_string(),
+        measure,
         to: c.to.clone(),
         from: c.from.clone(),
         risk_to,
@@ -196,6 +217,32 @@ pub fn risk_ratio_robustness(
         notes,
     })
 }
+
+/// A rate ratio's caveat: the bound and the E-value hold for risk ratios,
+/// and a rate ratio approximates one when events are rare; the share of
+/// rows with no event says how rare they are here.
+fn rare_outcome_caveat(table: &Table, y: &str, place: &str) -> Result<String, QueryError> {
+    let counts = require_column(table, y, place)?.data.as_reals().unwrap_or_default();
+    let zeros = counts.iter().filter(|v| **v == 0.0).count();
+    let share = zeros as f64 / counts.len().max(1) as f64;
+    Ok(format!(
+        "{y} is a count, so the ratio is a rate ratio; the bounding factor and the E-value are proven for risk ratios, and apply to a rate ratio \
+         as an approximation when the outcome is rare (VanderWeele & Ding 2017): {zeros} of the {} rows ({:.0}%) have a count of 0{}",
+        counts.len(),
+        100.0 * share,
+        if share < RARE_ZERO_SHARE { ", so events are not rare here and these E-values are rough" } else { "" }
+    ))
+}
+
+/// Below this share of rows without an event, a count outcome is not
+/// called rare (a risk of an event under 10% per row, a common reading of
+/// "rare" beside the E-value, recalled).
+const RARE_ZERO_SHARE: f64 = 0.9;
+
+/// The ratio of a yes/no or binomial outcome.
+pub const RISK_RATIO: &str = "risk ratio";
+/// The ratio of a count outcome.
+pub const RATE_RATIO: &str = "rate ratio";
 
 /// Observed predictors on the risk-ratio axes; none (with a note) when the
 /// exposure does not split the rows into the two groups compared.

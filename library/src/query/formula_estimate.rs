@@ -126,6 +126,16 @@ struct Plan {
     conditionals: Vec<(String, Vec<String>)>,
 }
 
+/// How a formula estimate is simulated: the exposure settings compared
+/// (`(to, from)` pairs), the rows the simulation runs over and averages
+/// (the fitted table's, or rows resampled from it), and the seed of the
+/// drawn node values.
+pub(crate) struct FormulaSimulation<'a> {
+    pub(crate) settings: Vec<(Setting, Setting)>,
+    pub(crate) rows: &'a Table,
+    pub seed: u64,
+}
+
 /// Fit the conditionals `formula` needs and contrast `E[y | do(x)]`
 /// between the settings the answer compares; `also_set` are nodes the
 /// formula takes without depending on them (their rows' values are used).
@@ -142,12 +152,35 @@ pub fn formula_estimate(
     progress: &(dyn Fn(Progress) + Sync),
 ) -> Result<FormulaFit, QueryError> {
     let place = format!("ask total effect of {x} on {y} by its identifying formula");
+    let column = require_column(table, x, &place)?;
+    let simulation = FormulaSimulation { settings: settings(column, &place)?, rows: table, seed: FORMULA_SEED };
+    formula_estimate_with(table, x, y, formula, also_set, method, cancel, mass, progress, &simulation)
+}
+
+/// [`formula_estimate`] with the settings, rows and seed of `simulation`:
+/// the conditionals are fitted on `table`, the chain simulated over
+/// `simulation.rows`.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn formula_estimate_with(
+    table: &Table,
+    x: &str,
+    y: &str,
+    formula: &Formula,
+    also_set: &[String],
+    method: &Method,
+    cancel: &AtomicBool,
+    mass: f64,
+    progress: &(dyn Fn(Progress) + Sync),
+    simulation: &FormulaSimulation,
+) -> Result<FormulaFit, QueryError> {
+    let place = format!("ask total effect of {x} on {y} by its identifying formula");
     let plan = plan(formula, x, y, also_set, &place)?;
     for c in &plan.copies {
         require_column(table, &c.column, &place)?;
+        require_column(simulation.rows, &c.column, &place)?;
     }
     let y_family = family_for(table, y, &place)?;
-    let n = table.nrows();
+    let n = simulation.rows.nrows();
     check_memory(&format!("{place}: {} simulated node copies over {n} rows", plan.copies.len()), bytes_for(&[n.max(1), plan.copies.len().max(1), 2]))
         .map_err(QueryError::request)?;
     let mut conditionals = Vec::with_capacity(plan.conditionals.len());
@@ -164,16 +197,15 @@ pub fn formula_estimate(
     if draws == 0 {
         return Err(QueryError::request(format!("{place}: the fits kept no draws")));
     }
-    let column = require_column(table, x, &place)?;
     let outcome_model = &conditionals.last().expect("the outcome's conditional is fitted").model;
     let mut contrasts = Vec::new();
-    for (to, from) in settings(column, &place)? {
+    for (to, from) in &simulation.settings {
         let mut changes = Vec::with_capacity(draws);
         let mut means = Vec::with_capacity(draws);
         for d in 0..draws {
             QueryError::stop_if(cancel, &place)?;
-            let under_to = mean_under(&plan, table, &to, &conditionals, &params, d)?;
-            let under_from = mean_under(&plan, table, &from, &conditionals, &params, d)?;
+            let under_to = mean_under(&plan, simulation, to, &conditionals, &params, d)?;
+            let under_from = mean_under(&plan, simulation, from, &conditionals, &params, d)?;
             changes.push(under_to - under_from);
             means.push((under_to, under_from));
         }
@@ -197,11 +229,11 @@ pub fn formula_estimate(
             mass,
             interval: interval_words(mass),
             held: Vec::new(),
-            held_how: how_words(&plan, x, y, n),
+            held_how: how_words(&plan, x, y, n, simulation.seed),
             over_rows: true,
             along: None,
             grid: Vec::new(),
-            seed: Some(FORMULA_SEED),
+            seed: Some(simulation.seed),
             notes: Vec::new(),
             draws: changes,
             means,
@@ -230,7 +262,7 @@ pub(crate) fn settings(column: &Column, place: &str) -> Result<Vec<(Setting, Set
 }
 
 /// The simulation in words, for the contrast's `held_how`.
-fn how_words(plan: &Plan, x: &str, y: &str, rows: usize) -> String {
+fn how_words(plan: &Plan, x: &str, y: &str, rows: usize, seed: u64) -> String {
     let mut drawn = Vec::new();
     let mut taken = Vec::new();
     for (f, source) in &plan.steps {
@@ -254,7 +286,7 @@ fn how_words(plan: &Plan, x: &str, y: &str, rows: usize) -> String {
         parts.push(format!("{} drawn in every row from fitted models", drawn.join("; ")));
     }
     format!(
-        "identifying formula by simulation with {x} set: {}; {y}'s mean from its model at those values, averaged over the {rows} rows (seed {FORMULA_SEED})",
+        "identifying formula by simulation with {x} set: {}; {y}'s mean from its model at those values, averaged over the {rows} rows (seed {seed})",
         if parts.is_empty() { "nothing else simulated".to_string() } else { parts.join("; then ") }
     )
 }
@@ -426,12 +458,13 @@ fn fit_conditional(
 /// over the rows, the outcome's mean averaged.
 fn mean_under(
     plan: &Plan,
-    table: &Table,
+    simulation: &FormulaSimulation,
     setting: &Setting,
     conditionals: &[FittedConditional],
     params: &[Vec<Vec<f64>>],
     d: usize,
 ) -> Result<f64, QueryError> {
+    let table = simulation.rows;
     let n = table.nrows();
     let mut values: Vec<Option<Column>> = vec![None; plan.copies.len()];
     for (i, copy) in plan.copies.iter().enumerate() {
@@ -457,7 +490,7 @@ fn mean_under(
             let mean = model.predict_mean(&params[k][d], &rows)?.mean;
             return Ok(mean.iter().sum::<f64>() / mean.len().max(1) as f64);
         }
-        let mut rng = StdRng::seed_from_u64(stream_seed(FORMULA_SEED, d as u64, step as u64 + 1));
+        let mut rng = StdRng::seed_from_u64(stream_seed(simulation.seed, d as u64, step as u64 + 1));
         let drawn = model.outcome_draw(&params[k][d], &rows, &mut rng)?;
         values[f.of] = Some(drawn_column(model, column, drawn));
     }

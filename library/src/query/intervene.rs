@@ -15,6 +15,18 @@
 //! that level. When a watched node depends on X through a hidden node (a
 //! hidden mediator), the joint model has nothing to simulate that route
 //! with, and the intervention is refused rather than reported without it.
+//!
+//! **Pooled node models.** A node model may pool a column (`y from m,
+//! pooled site`), and the simulation then answers one of three questions,
+//! named in the result ([`GroupQuestion`]): each row keeps its own
+//! group's departure (the observed groups, in the rows' proportions — the
+//! default), every row sits in one existing group (`in site north`), or
+//! every row sits in one new group whose departures each draw takes from
+//! the population (`in new site`: per draw and node model, the departures
+//! a new group gets from its spreads and correlations, the same under both
+//! settings so the contrast stays paired). A pooled column that is not a
+//! node of the graph is taken as a marker of clusters fixed before any
+//! intervention.
 
 use std::sync::atomic::AtomicBool;
 
@@ -27,6 +39,7 @@ use crate::table::{Column, ColumnData, Table};
 
 use super::contrast::Contrast;
 use super::error::QueryError;
+use super::intervene_formula::{hidden_obstacle, FormulaRoute, FormulaUsed};
 use super::joint::{JointFit, JointModel, NodeModel};
 use super::support::{drawn_column, interval_words, parameter_rows, require_column, stream_seed, with_column, ContrastSummary, Setting};
 
@@ -41,6 +54,20 @@ pub struct InterventionRequest {
     pub rows: Option<usize>,
     pub seed: u64,
     pub mass: f64,
+    /// Which groups the rows sit in, for node models with pooled groups.
+    pub groups: GroupQuestion,
+}
+
+/// Which of three questions a simulation through pooled node models answers.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum GroupQuestion {
+    /// Each row keeps its own group's departure (the observed groups).
+    Observed,
+    /// Every row in the existing level `level` of pooled column `column`.
+    Existing { column: String, level: String },
+    /// Every row in one new group of pooled column `column`, its
+    /// departures drawn from the population per posterior draw.
+    New { column: String },
 }
 
 /// The contrast of one watched node (or one level of a watched category
@@ -83,8 +110,23 @@ pub struct InterventionResult {
     /// The nodes drawn from their models (descendants of the intervened node).
     pub simulated: Vec<String>,
     pub watched: Vec<WatchedContrast>,
+    /// Which question each simulated node model with pooled groups
+    /// answers, in words (empty when none pools a column).
+    pub pooled: Vec<String>,
+    /// How the watched changes were simulated: [`JOINT_ROUTE`], or
+    /// [`FORMULA_ROUTE`] when hidden nodes touch what the joint model would
+    /// simulate and the identifying formula is evaluated instead.
+    pub route: String,
+    /// For the formula route: each watched node's formula and the
+    /// conditionals fitted for it.
+    pub formulas: Vec<FormulaUsed>,
     pub warnings: Vec<String>,
 }
+
+/// The route of an intervention through the joint model's own node models.
+pub const JOINT_ROUTE: &str = "joint model";
+/// The route of an intervention through its identifying formula.
+pub const FORMULA_ROUTE: &str = "identifying formula";
 
 /// Simulate `request` through `joint` fitted as `fit`, over rows of `table`.
 pub fn intervene(
@@ -126,20 +168,42 @@ pub fn intervene_with_cancel(
     if request.watch.is_empty() {
         return Err(QueryError::request(format!("{place}: name at least one node to watch")));
     }
-    refuse_hidden_routes(joint, x, &request.watch, &place)?;
     let simulated = nodes_to_simulate(joint, x, &request.watch)?;
-    refuse_hidden_confounding(joint, x, &request.watch, &simulated, &place, cancel)?;
     check_rows_memory(table, request, simulated.len(), &place)?;
+    if let Some(obstacle) = hidden_obstacle(&joint.graph, x, &request.watch, &simulated)? {
+        if !matches!(request.groups, GroupQuestion::Observed) {
+            return Err(QueryError::request(format!(
+                "{place}: {obstacle}, so the change is taken from the identifying formula, whose regressions pool no \
+                 column; leave out `in …`"
+            )));
+        }
+        let (base, rows_source) = base_rows(table, request)?;
+        let route = FormulaRoute { joint, fit, table, base: &base, request, to: &to, from: &from, simulated: &simulated, place: &place };
+        return route.estimate(obstacle, rows_source, cancel);
+    }
     let (base, rows_source) = base_rows(table, request)?;
     let steps = simulation_steps(joint, fit, &simulated, &place)?;
+    let pooled = group_question_notes(&steps, &request.groups, &place)?;
+    refuse_groups_downstream(joint, x, &request.groups, &place)?;
+    let base = match &request.groups {
+        GroupQuestion::Existing { column, level } => {
+            let setting = Setting::read(require_column(table, column, &place)?, level, &place)?;
+            with_column(&base, setting.column(column, base.nrows()))
+        }
+        _ => base,
+    };
+    let new_column = match &request.groups {
+        GroupQuestion::New { column } => Some(column.as_str()),
+        _ => None,
+    };
     let draws = fit.fits.iter().flatten().map(|f| f.draws.len()).min().ok_or_else(|| {
         QueryError::request(format!("{place}: the joint model has no fitted regression; fit it first"))
     })?;
     let mut per_target = vec![(Vec::with_capacity(draws), Vec::with_capacity(draws)); targets.len()];
     for d in 0..draws {
         QueryError::stop_if(cancel, &place)?;
-        let under_to = simulate_draw(&base, x, &to, &steps, d, request.seed)?;
-        let under_from = simulate_draw(&base, x, &from, &steps, d, request.seed)?;
+        let under_to = simulate_draw(&base, x, &to, &steps, d, request.seed, new_column)?;
+        let under_from = simulate_draw(&base, x, &from, &steps, d, request.seed, new_column)?;
         for (target, (values_to, values_from)) in targets.iter().zip(per_target.iter_mut()) {
             values_to.push(target.value(&under_to));
             values_from.push(target.value(&under_from));
@@ -183,108 +247,74 @@ pub fn intervene_with_cancel(
         interval: interval_words(request.mass),
         simulated,
         watched,
+        pooled,
+        route: JOINT_ROUTE.to_string(),
+        formulas: Vec::new(),
         warnings,
     })
 }
 
-/// An error when a watched node depends on `x` through a hidden node: the
-/// joint model has no model of the hidden node, so the effect along that
-/// route would silently be zero. Such an intervention is not identifiable
-/// by this joint model.
-fn refuse_hidden_routes(joint: &JointModel, x: &str, watch: &[String], place: &str) -> Result<(), QueryError> {
-    let graph = &joint.graph;
-    let descendants = graph.descendants(x)?;
-    for w in watch {
-        let ancestors = graph.ancestors(w)?;
-        let hidden: Vec<&str> = descendants
-            .iter()
-            .copied()
-            .filter(|h| ancestors.contains(h) && graph.is_hidden(h).unwrap_or(false))
-            .collect();
-        if let Some(h) = hidden.first() {
-            return Err(QueryError::request(format!(
-                "{place}: part of the effect of {x} on {w} runs through the hidden node {h} ({x} → … → {h} → … → {w}), \
-                 which the joint model cannot simulate, so this intervention is not identifiable by the joint model; \
-                 observe {h}, or ask for the total effect by adjustment (`ask total effect of {x} on {w} in {} using …`)",
-                graph.name()
-            )));
-        }
+/// An error when `in …` names a pooled column that the intervened node
+/// causes: putting every row in one of its levels would cut the effect
+/// that runs through it.
+fn refuse_groups_downstream(joint: &JointModel, x: &str, question: &GroupQuestion, place: &str) -> Result<(), QueryError> {
+    let (GroupQuestion::Existing { column, .. } | GroupQuestion::New { column }) = question else { return Ok(()) };
+    if joint.graph.nodes().iter().any(|n| n.name == *column) && joint.graph.descendants(x)?.contains(&column.as_str()) {
+        return Err(QueryError::request(format!(
+            "{place}: {column} is caused by {x} in graph {}, so placing every row in one {column} would cut part of the \
+             effect; leave out `in …` to let {column} follow the intervention",
+            joint.graph.name()
+        )));
     }
     Ok(())
 }
 
-/// An error when a hidden common cause touches what the joint model would
-/// simulate. The joint model fits every node from its observed parents, so
-/// a hidden cause of a simulated node and of the exposure, of another
-/// simulated node, or of a simulated node's observed parent would be left
-/// out of the simulation and bias it. Then the complete algorithm
-/// (Shpitser & Pearl 2006) decides what to say: not identifiable (the
-/// hedge), or identifiable by a formula the joint model does not simulate.
-fn refuse_hidden_confounding(joint: &JointModel, x: &str, watch: &[String], simulated: &[String], place: &str, cancel: &AtomicBool) -> Result<(), QueryError> {
-    let graph = &joint.graph;
-    let mut touched: Vec<String> = vec![x.to_string()];
-    touched.extend(simulated.iter().cloned());
-    for s in simulated {
-        touched.extend(graph.parents(s)?.into_iter().map(str::to_string));
-    }
-    let mut culprit = None;
-    for h in graph.nodes().iter().filter(|n| n.hidden) {
-        let reached = hidden_reach(graph, &h.name)?;
-        let a = reached.iter().find(|r| simulated.contains(r));
-        let b = a.and_then(|a| reached.iter().find(|r| *r != a && touched.contains(r)));
-        if let (Some(a), Some(b)) = (a, b) {
-            culprit = Some((h.name.clone(), a.clone(), b.clone()));
-            break;
-        }
-    }
-    let Some((h, a, b)) = culprit else {
-        return Ok(());
+/// What each simulated node model with pooled groups answers under
+/// `question`; an error when the question names a column no simulated
+/// node model pools.
+fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -> Result<Vec<String>, QueryError> {
+    let pools = |step: &Step, column: &str| step.model.pooled_groups().iter().any(|g| g.column == column);
+    let asked = match question {
+        GroupQuestion::Observed => None,
+        GroupQuestion::Existing { column, .. } | GroupQuestion::New { column } => Some(column.as_str()),
     };
-    let g = graph.name();
-    match graph.identify_intervention_with_cancel(&[x.to_string()], watch, cancel)? {
-        crate::graph::Complete::Identified { .. } => Err(QueryError::request(format!(
-            "{place}: the hidden node {h} is a common cause of {a} and {b}, which the joint model (one regression per node \
-             from its observed parents) cannot simulate; the effect of setting {x} is identifiable by a formula instead: \
-             ask `ask total effect of {x} on {} in {g} using TABLE` to see it and estimate it from its fitted conditionals",
-            watch.join(", ")
-        ))),
-        crate::graph::Complete::NotIdentified { hedge } => Err(QueryError::request(format!(
-            "{place}: the effect of setting {x} on {} is not identifiable in graph {g}: the hidden common cause{} {} join{} \
-             {{{}}} and {{{}}} (a hedge, Shpitser & Pearl 2006), so models that agree on every observed value differ in this \
-             effect, and a joint model that leaves the hidden nodes out would report a number the data cannot back; \
-             measure one of the hidden causes",
-            watch.join(", "),
-            if hedge.hidden_causes.len() == 1 { "" } else { "s" },
-            hedge.hidden_causes.join(", "),
-            if hedge.hidden_causes.len() == 1 { "s" } else { "" },
-            hedge.outer.join(", "),
-            hedge.inner.join(", "),
-        ))),
+    if let Some(column) = asked.filter(|c| !steps.iter().any(|s| pools(s, c))) {
+        let pooling: Vec<&str> = steps.iter().filter(|s| !s.model.pooled_groups().is_empty()).map(|s| s.node).collect();
+        return Err(QueryError::request(format!(
+            "{place}: no node model this intervention simulates pools {column} ({}); name a column one of them pools, or \
+             leave out `in …` to keep each row's own group",
+            if pooling.is_empty() { "none pools a column".to_string() } else { format!("pooled: {}", pooling.join(", ")) }
+        )));
     }
-}
-
-/// Observed nodes reached from the hidden node `h` along directed paths
-/// whose inner nodes are hidden.
-fn hidden_reach(graph: &crate::graph::Graph, h: &str) -> Result<Vec<String>, QueryError> {
-    let mut out = Vec::new();
-    let mut seen = vec![h.to_string()];
-    let mut stack = vec![h.to_string()];
-    while let Some(node) = stack.pop() {
-        for c in graph.children(&node)? {
-            if seen.iter().any(|s| s == c) {
+    let mut notes = Vec::new();
+    for step in steps {
+        let mut seen: Vec<&str> = Vec::new();
+        for group in step.model.pooled_groups() {
+            let c = group.column.as_str();
+            if seen.contains(&c) {
                 continue;
             }
-            seen.push(c.to_string());
-            if graph.is_hidden(c)? {
-                stack.push(c.to_string());
-            } else {
-                out.push(c.to_string());
-            }
+            seen.push(c);
+            notes.push(match question {
+                GroupQuestion::Existing { column, level } if column == c => {
+                    format!("{}: pooled {c}, every row in the existing {c} {level}, with its own departure", step.node)
+                }
+                GroupQuestion::New { column } if column == c => format!(
+                    "{}: pooled {c}, every row in one new {c} drawn from the population: each draw takes that {c}'s \
+                     departures from the learned spread{}, the same under both settings",
+                    step.node,
+                    if group.slopes.is_empty() { "" } else { "s and correlations" }
+                ),
+                _ => format!(
+                    "{}: pooled {c}, each row keeping its own {c}'s departure (averaged over the observed {c} levels in \
+                     the rows); `in {c} LEVEL` asks for an existing one, `in new {c}` for a new one",
+                    step.node
+                ),
+            });
         }
     }
-    Ok(out)
+    Ok(notes)
 }
-
 /// Observed descendants of `x` that are watched or lead to a watched node,
 /// in topological order.
 fn nodes_to_simulate(joint: &JointModel, x: &str, watch: &[String]) -> Result<Vec<String>, QueryError> {
@@ -345,6 +375,10 @@ fn pick_rows(data: &ColumnData, picks: &[usize]) -> ColumnData {
     }
 }
 
+/// Mixed into the seed of a new group's departures, so that they do not
+/// share a stream with the outcomes' noise.
+const NEW_GROUP_STREAM: u64 = 0x6e65_775f_6772_6f75;
+
 /// One simulated node: its model, its index (for the noise stream) and
 /// its parameter rows.
 struct Step<'a> {
@@ -377,13 +411,33 @@ fn simulation_steps<'a>(
     Ok(steps)
 }
 
-/// The rows after do(x = setting) at draw `d`.
-fn simulate_draw(base: &Table, x: &str, setting: &Setting, steps: &[Step], d: usize, seed: u64) -> Result<Table, QueryError> {
+/// The rows after do(x = setting) at draw `d`; with `new_column`, every
+/// row of a node model that pools it sits in one new group, whose
+/// departures come from their own stream (the same under both settings).
+fn simulate_draw(
+    base: &Table,
+    x: &str,
+    setting: &Setting,
+    steps: &[Step],
+    d: usize,
+    seed: u64,
+    new_column: Option<&str>,
+) -> Result<Table, QueryError> {
     let mut current = with_column(base, setting.column(x, base.nrows()));
     for step in steps {
-        let rows = step.model.new_rows(&current)?;
+        let mut rows = step.model.new_rows(&current)?;
+        let mut new = Vec::new();
+        if let Some(column) = new_column {
+            let mut group_rng = StdRng::seed_from_u64(stream_seed(seed ^ NEW_GROUP_STREAM, d as u64, step.index + 1));
+            new = step.model.new_group_departures(&step.params[d], &mut group_rng);
+            for (group, levels) in step.model.pooled_groups().iter().zip(rows.groups.iter_mut()) {
+                if group.column == column {
+                    levels.iter_mut().for_each(|l| *l = None);
+                }
+            }
+        }
         let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, step.index + 1));
-        let values = step.model.outcome_draw(&step.params[d], &rows, &mut rng)?;
+        let values = step.model.outcome_draw_in_new_groups(&step.params[d], &rows, &new, &mut rng)?;
         current = with_column(&current, drawn_column(step.model, step.node, values));
     }
     Ok(current)
@@ -391,14 +445,14 @@ fn simulate_draw(base: &Table, x: &str, setting: &Setting, steps: &[Step], d: us
 
 /// One watched value: the row mean of a numeric node, or the share of rows
 /// at one level of a category node.
-struct Target {
-    node: String,
-    level: Option<String>,
+pub(super) struct Target {
+    pub(super) node: String,
+    pub(super) level: Option<String>,
 }
 
 impl Target {
     /// The watched values of node `name`: itself, or one per level.
-    fn of(name: &str, column: &Column) -> Vec<Target> {
+    pub(super) fn of(name: &str, column: &Column) -> Vec<Target> {
         match column.data.levels() {
             Some(levels) => {
                 levels.iter().map(|l| Target { node: name.to_string(), level: Some(l.clone()) }).collect()
@@ -408,7 +462,7 @@ impl Target {
     }
 
     /// The watched value over the rows of `table`.
-    fn value(&self, table: &Table) -> f64 {
+    pub(super) fn value(&self, table: &Table) -> f64 {
         let Some(column) = table.column(&self.node) else { return f64::NAN };
         match (&self.level, &column.data) {
             (Some(level), ColumnData::Category { codes, levels }) => {
@@ -420,7 +474,7 @@ impl Target {
     }
 }
 
-fn mean(values: &[f64]) -> f64 {
+pub(super) fn mean(values: &[f64]) -> f64 {
     values.iter().sum::<f64>() / values.len().max(1) as f64
 }
 

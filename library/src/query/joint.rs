@@ -17,8 +17,12 @@
 //!   parents, from which interventions draw the node's level.
 //!
 //! A node's model can be overridden by model lines (the `using` part may be
-//! left out); the override must use only the node's parents. A node with a
-//! hidden parent gets a warning: the joint model leaves that cause out.
+//! left out); the override must use only the node's parents, apart from
+//! pooled columns (`pooled site`): a pooled column that is a node must be
+//! a parent, and one outside the graph marks clusters (a note says so). A
+//! node with a hidden parent gets a warning: its model leaves that
+//! cause out (and
+//! `intervene` turns to the identifying formula where that would bias it).
 //!
 //! The node models share no parameters and have independent priors, so the
 //! joint posterior is the product of the node posteriors and draws of
@@ -123,13 +127,14 @@ fn hidden_parent_warning(graph: &Graph, node: &str, h: &str) -> Result<String, Q
     }
     Ok(if causes.is_empty() {
         format!(
-            "{node} has the hidden parent {h}; the joint model leaves that cause out, so simulated \
-             interventions treat {h} as if it confounded nothing"
+            "{node} has the hidden parent {h}; the node models leave that cause out, so `intervene` takes \
+             an effect whose simulation it touches from the identifying formula instead (or refuses when none exists)"
         )
     } else {
         format!(
-            "{node} has the hidden parent {h}, a mediator downstream of {}: the joint model loses the route \
-             through {h} into {node}, so `intervene` refuses to set {} when watching {node} or what it causes",
+            "{node} has the hidden parent {h}, a mediator downstream of {}: the node models lose the route \
+             through {h} into {node}, so `intervene` setting {} and watching {node} or what it causes takes the \
+             identifying formula instead (or refuses when none exists)",
             causes.join(", "),
             causes.join(" or ")
         )
@@ -174,6 +179,7 @@ pub fn build_joint(
             Some((_, lines)) => override_model(name, graph, table, node, &parents, lines)?,
             None => default_model(name, table, node, &parents)?,
         };
+        warnings.extend(pooled_columns(name, graph, node, &parents, &model)?);
         nodes.push(JointNode { name: node.to_string(), parents, hidden_parents, model });
     }
     Ok(JointModel { name: name.to_string(), graph: graph.clone(), table: table.name.clone(), nodes, warnings })
@@ -293,6 +299,34 @@ fn override_model(
         }
     }
     Ok(model)
+}
+
+/// A node model's pooled columns against the graph: a column that is a
+/// node must be a parent of `node` (else the model would let it act where
+/// the graph has no edge); a column outside the graph marks clusters, taken
+/// as fixed before any intervention (said in the returned notes).
+fn pooled_columns(joint: &str, graph: &Graph, node: &str, parents: &[String], model: &NodeModel) -> Result<Vec<String>, QueryError> {
+    let NodeModel::Regression { model, .. } = model else { return Ok(Vec::new()) };
+    let mut notes = Vec::new();
+    for group in model.pooled_groups().iter().filter(|g| g.block() == 0) {
+        let c = &group.column;
+        let is_node = graph.nodes().iter().any(|n| n.name == *c);
+        if is_node && !parents.contains(c) {
+            return Err(QueryError::request(format!(
+                "joint {joint}: the model given for {node} pools {c}, a node of graph {} that is not a parent of {node}; \
+                 pool a parent, or a column outside the graph that marks clusters (sites, clinics)",
+                graph.name()
+            )));
+        }
+        if !is_node {
+            notes.push(format!(
+                "{node} pools {c}, which is not a node of graph {}: it is taken as a marker of clusters that no \
+                 intervention changes and that causes nothing the graph names beside {node}'s own departures",
+                graph.name()
+            ));
+        }
+    }
+    Ok(notes)
 }
 
 /// Build the regression of `node` from model body lines.

@@ -15,7 +15,14 @@
 //! expression, the overdispersion of a `gamma_poisson` model), and
 //! `beta(mean, φ)` or `beta(logit = η, φ)`: a share in (0, 1) with that
 //! mean and precision φ (a positive expression, the precision of a `beta`
-//! model). Expressions use numbers, parent
+//! model), and `exponential(mean)` or `exponential(log = η)` and
+//! `weibull(mean, k)` or `weibull(log = η, k)`: a positive time with that
+//! mean (Weibull with shape k, a positive expression, the shape of a
+//! `weibull` model), and `graded(score, lowest, level cut, …)`: an ordered category
+//! whose row falls in the level between the cuts around its latent score,
+//! `score` plus a standard logistic error — the levels lowest first, each
+//! after the first with the cut below it (increasing numbers), what a
+//! `graded` model assumes. Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
 //! `[c = level]` (1 when category c is at that level, else 0), and
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
@@ -26,7 +33,14 @@
 //! `x` instead: each level of c gets its own slope departure, drawn once
 //! from `normal(0, spread)` independently of every other departure, and a
 //! row takes its level's slope departure times its own `x` — what a varying
-//! slope (`pooled c with x`) assumes, with every correlation 0. A node's
+//! slope (`pooled c with x`) assumes, with every correlation 0.
+//! `departure(c, spread, x, correlation r)` states the correlation `r`
+//! (strictly between −1 and 1) of the slope's departures with the
+//! intercept's `departure(c, …)` of the same mechanism, which must be
+//! there: level j's slope departure is `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
+//! `z₀ⱼ` the intercept departure's standard score, so two slopes each
+//! correlated with the intercept correlate with each other by the product
+//! of their correlations. A node's
 //! mechanism may name each category in at most one `departure(c, …)` and
 //! each pair of category and slope in at most one `departure(c, …, x)`.
 //!
@@ -35,13 +49,16 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, EXPONENTIAL, WEIBULL];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
 pub const POISSON: &str = "poisson";
 pub const GAMMA_POISSON: &str = "gamma_poisson";
 pub const BETA: &str = "beta";
+pub const EXPONENTIAL: &str = "exponential";
+pub const WEIBULL: &str = "weibull";
+pub const GRADED: &str = "graded";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -52,6 +69,9 @@ pub const FUNCTIONS: &[&str] = &[LOG, EXP, DEPARTURE];
 const EXP: &str = "exp";
 /// The word of a per-level departure drawn from a stated spread.
 pub const DEPARTURE: &str = "departure";
+/// The word before a slope departure's stated correlation with the
+/// intercept's (`departure(block, 0.1, girth, correlation 0.5)`).
+pub const CORRELATION_WORD: &str = "correlation";
 /// The deepest an expression may nest: parentheses, signs, functions and
 /// every operator of a chain each add one level. Evaluation recurses this
 /// deep, so the limit keeps a hostile line from overflowing the stack.
@@ -88,15 +108,19 @@ pub struct DepartureTerm {
     pub spread: f64,
     /// The numeric parent whose slope departs (`None`: the intercept's departure).
     pub slope: Option<String>,
+    /// A slope's stated correlation with the intercept's departures
+    /// (`None`: drawn independently of them).
+    pub correlation: Option<f64>,
 }
 
 impl DepartureTerm {
     /// `departure(block, 0.8)` or `departure(block, 0.1, girth)`, with the
     /// spread written out by `spread`.
     pub fn written(&self, spread: &str) -> String {
-        match &self.slope {
-            None => format!("{DEPARTURE}({}, {spread})", self.group),
-            Some(x) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
+        match (&self.slope, self.correlation) {
+            (None, _) => format!("{DEPARTURE}({}, {spread})", self.group),
+            (Some(x), None) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
+            (Some(x), Some(r)) => format!("{DEPARTURE}({}, {spread}, {x}, {CORRELATION_WORD} {r})", self.group),
         }
     }
 }
@@ -178,8 +202,9 @@ impl Expr {
 /// How one node is generated.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Mechanism {
-    /// Levels drawn with fixed shares, in declared order.
-    Category { levels: Vec<String>, shares: Vec<f64> },
+    /// Levels in declared order, drawn with fixed shares, or for a graded
+    /// category (`score` given) by cutting each row's latent score.
+    Category { levels: Vec<String>, shares: Vec<f64>, score: Option<LatentScore> },
     Normal { mean: Expr, sd: Expr },
     /// `p` is the probability, or its logit when `logit` is true.
     Bernoulli { p: Expr, logit: bool },
@@ -190,19 +215,32 @@ pub enum Mechanism {
     /// A share with mean `mean` (or its logit when `logit` is true) and
     /// precision `precision`.
     Beta { mean: Expr, logit: bool, precision: Expr },
+    /// A positive time with mean `mean` (or its log when `log` is true):
+    /// exponential without a `shape`, Weibull with one.
+    Time { mean: Expr, log: bool, shape: Option<Expr> },
+}
+
+/// The latent score of a graded category: `score` plus a standard
+/// logistic error, cut at `cuts` (one below each level after the first,
+/// increasing).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LatentScore {
+    pub score: Expr,
+    pub cuts: Vec<f64>,
 }
 
 impl Mechanism {
     /// Every `departure(…)` the mechanism draws, in reading order.
     pub fn departures(&self) -> Vec<DepartureTerm> {
         match self {
-            Mechanism::Category { .. } => Vec::new(),
+            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.departures()).collect(),
             Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
             Mechanism::Bernoulli { p, .. } => p.departures(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
                 rate.departures().into_iter().chain(overdispersion.iter().flat_map(Expr::departures)).collect()
             }
             Mechanism::Beta { mean, precision, .. } => mean.departures().into_iter().chain(precision.departures()).collect(),
+            Mechanism::Time { mean, shape, .. } => mean.departures().into_iter().chain(shape.iter().flat_map(Expr::departures)).collect(),
         }
     }
 
@@ -215,6 +253,8 @@ impl Mechanism {
             Mechanism::Bernoulli { p, logit: true } => p.departures(),
             Mechanism::Poisson { rate, log: true, .. } => rate.departures(),
             Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
+            Mechanism::Time { mean, log: true, .. } => mean.departures(),
+            Mechanism::Category { score: Some(s), .. } => s.score.departures(),
             _ => Vec::new(),
         }
     }
@@ -222,13 +262,14 @@ impl Mechanism {
     /// Every node the mechanism reads.
     pub fn uses(&self) -> Vec<(String, Use)> {
         match self {
-            Mechanism::Category { .. } => Vec::new(),
+            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.uses()).collect(),
             Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
             Mechanism::Bernoulli { p, .. } => p.uses(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
                 rate.uses().into_iter().chain(overdispersion.iter().flat_map(Expr::uses)).collect()
             }
             Mechanism::Beta { mean, precision, .. } => mean.uses().into_iter().chain(precision.uses()).collect(),
+            Mechanism::Time { mean, shape, .. } => mean.uses().into_iter().chain(shape.iter().flat_map(Expr::uses)).collect(),
         }
     }
 }
@@ -236,15 +277,26 @@ impl Mechanism {
 impl fmt::Display for Mechanism {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let name = match self {
-            Mechanism::Category { .. } => CATEGORY,
+            Mechanism::Category { score: None, .. } => CATEGORY,
+            Mechanism::Category { score: Some(_), .. } => GRADED,
             Mechanism::Normal { .. } => NORMAL,
             Mechanism::Bernoulli { .. } => BERNOULLI,
             Mechanism::Poisson { overdispersion: None, .. } => POISSON,
             Mechanism::Poisson { overdispersion: Some(_), .. } => GAMMA_POISSON,
             Mechanism::Beta { .. } => BETA,
+            Mechanism::Time { shape: None, .. } => EXPONENTIAL,
+            Mechanism::Time { shape: Some(_), .. } => WEIBULL,
         };
         f.write_str(name)
     }
+}
+
+/// A time mechanism from its mean argument (`log = η` or the mean) and shape.
+fn time_mechanism(mean: &str, shape: Option<Expr>) -> Result<Mechanism, String> {
+    Ok(match keyword_argument(mean, LOG) {
+        Some(eta) => Mechanism::Time { mean: parse_expr(eta)?, log: true, shape },
+        None => Mechanism::Time { mean: parse_expr(mean)?, log: false, shape },
+    })
 }
 
 /// Read one body line: `None` for a blank or comment line, else the node
@@ -269,6 +321,14 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
     let args = split_top_level(&rest[open + 1..rest.len() - 1]);
     let mechanism = match (dist, args.as_slice()) {
         (CATEGORY, items) => parse_category(name, items)?,
+        (GRADED, [score, lowest, rest @ ..]) if !rest.is_empty() => parse_graded(name, score, lowest, rest)?,
+        (GRADED, _) => {
+            return Err(format!(
+                "graded takes the latent score, the lowest level, then each higher level with the cut below it \
+                 (`graded(0.3 * shade, none, mild 0, marked 1.5)`), not {} arguments",
+                args.len()
+            ))
+        }
         (NORMAL, [mean, sd]) => Mechanism::Normal { mean: parse_expr(mean)?, sd: parse_expr(sd)? },
         (BERNOULLI, [p]) => match keyword_argument(p, LOGIT) {
             Some(eta) => Mechanism::Bernoulli { p: parse_expr(eta)?, logit: true },
@@ -294,6 +354,12 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
                 Some(eta) => Mechanism::Beta { mean: parse_expr(eta)?, logit: true, precision },
                 None => Mechanism::Beta { mean: parse_expr(mean)?, logit: false, precision },
             }
+        }
+        (EXPONENTIAL, [mean]) => time_mechanism(mean, None)?,
+        (WEIBULL, [mean, shape]) => time_mechanism(mean, Some(parse_expr(shape)?))?,
+        (EXPONENTIAL, _) => return Err(format!("exponential takes 1 argument (the mean time, or log = …), not {}", args.len())),
+        (WEIBULL, _) => {
+            return Err(format!("weibull takes 2 arguments (the mean time, or log = …, then the shape), not {}", args.len()))
         }
         (BETA, _) => return Err(format!("beta takes 2 arguments (mean, or logit = …, then the precision), not {}", args.len())),
         (GAMMA_POISSON, _) => {
@@ -323,7 +389,26 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ),
         });
     }
+    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.group == t.group && u.slope.is_none())) {
+        return Err(format!(
+            "the mechanism of {name} states a correlation for departure({g}, …, {x}) with the intercept's departures, but draws \
+             no departure({g}, spread) for the intercept; add one, or leave the correlation out",
+            g = term.group,
+            x = term.slope.as_deref().unwrap_or("")
+        ));
+    }
     Ok(Some((name.to_string(), mechanism)))
+}
+
+/// The `correlation r` of `departure(c, spread, x, correlation r)`: r
+/// strictly between −1 and 1.
+fn read_correlation(stated: &str, inside: &str, form: &str) -> Result<f64, String> {
+    let value = stated.strip_prefix(CORRELATION_WORD).map(str::trim).ok_or_else(|| {
+        format!("the fourth part of `departure({inside})` must read `{CORRELATION_WORD} r`, not `{stated}`; write {form}")
+    })?;
+    value.parse().ok().filter(|r: &f64| r.abs() < 1.0).ok_or_else(|| {
+        format!("the correlation `{value}` in `departure({inside})` must be a number strictly between −1 and 1")
+    })
 }
 
 /// `logit = expr` → `expr` when the argument starts with that keyword.
@@ -359,7 +444,40 @@ fn parse_category(name: &str, items: &[&str]) -> Result<Mechanism, String> {
     if (total - 1.0).abs() > 1e-6 {
         return Err(format!("the shares of {name} add up to {}, not 1; adjust them", crate::model::prior::short_number(total)));
     }
-    Ok(Mechanism::Category { levels, shares })
+    Ok(Mechanism::Category { levels, shares, score: None })
+}
+
+/// `graded(score, lowest, level cut, …)`: the levels lowest first, each
+/// after the first with the cut below it; the cuts must increase.
+fn parse_graded(name: &str, score: &str, lowest: &str, rest: &[&str]) -> Result<Mechanism, String> {
+    let mut levels = vec![lowest.trim().to_string()];
+    if !is_name(&levels[0]) {
+        return Err(format!("`{}` is not a level name for {name}; the second argument of graded is the lowest level", levels[0]));
+    }
+    let mut cuts: Vec<f64> = Vec::new();
+    for item in rest {
+        let item = item.trim();
+        let (level, cut) = item
+            .rsplit_once(char::is_whitespace)
+            .ok_or_else(|| format!("graded item `{item}` needs a level and the cut below it, like `mild 0.5`"))?;
+        let level = level.trim().to_string();
+        let cut: f64 = cut
+            .parse()
+            .ok()
+            .filter(|c: &f64| c.is_finite())
+            .ok_or_else(|| format!("the cut `{cut}` below level {level} of {name} must be a number"))?;
+        if levels.contains(&level) {
+            return Err(format!("level {level} of {name} is listed twice; list each level once"));
+        }
+        if let Some(&below) = cuts.last().filter(|&&below| cut <= below) {
+            return Err(format!(
+                "the cut below level {level} of {name} is {cut}, not above the cut before it ({below}); cuts must increase"
+            ));
+        }
+        levels.push(level);
+        cuts.push(cut);
+    }
+    Ok(Mechanism::Category { levels, shares: Vec::new(), score: Some(LatentScore { score: parse_expr(score)?, cuts }) })
 }
 
 /// Split at commas outside brackets.
@@ -563,14 +681,16 @@ impl Parser<'_> {
     /// spread, slope)` after its `(`, up to and including the `)`.
     fn departure(&mut self) -> Result<Expr, String> {
         let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8), \
-                    or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth)";
+                    or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth), \
+                    optionally correlated with the intercept's, like departure(block, 0.1, girth, correlation 0.5)";
         let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
         let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
         let inside = &self.text[start..start + close];
         let parts: Vec<&str> = inside.split(',').map(str::trim).collect();
-        let (group, spread, slope) = match parts[..] {
-            [group, spread] => (group, spread, None),
-            [group, spread, slope] => (group, spread, Some(slope)),
+        let (group, spread, slope, correlation) = match parts[..] {
+            [group, spread] => (group, spread, None, None),
+            [group, spread, slope] => (group, spread, Some(slope), None),
+            [group, spread, slope, stated] => (group, spread, Some(slope), Some(read_correlation(stated, inside, form)?)),
             _ => return Err(format!("`departure({inside})` needs the form {form}")),
         };
         for name in std::iter::once(group).chain(slope) {
@@ -587,7 +707,7 @@ impl Parser<'_> {
         while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
             self.at += 1;
         }
-        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string) }))
+        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string), correlation }))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

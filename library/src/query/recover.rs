@@ -22,6 +22,7 @@ use serde::Serialize;
 
 use crate::infer::fit::{fit_model, Fit, Method};
 use crate::infer::nuts::Progress;
+use crate::model::family::survival::TimeForm;
 use crate::model::terms::GroupTerm;
 use crate::model::{Family, Model, ModelSpec};
 
@@ -118,6 +119,24 @@ pub fn recover_fitted(
     Ok((recovery, model, fit))
 }
 
+/// The true cuts of a graded model above its first (fixed at 0): the
+/// mechanism's cuts less its first; `None` each when the mechanism has
+/// another number of levels.
+fn cut_truths(model: &Model, mechanism: Option<&Mechanism>, notes: &mut Vec<String>) -> Vec<Option<f64>> {
+    let wanted = model.first_group_index() - model.coefficient_names().len();
+    match mechanism {
+        Some(Mechanism::Category { score: Some(latent), .. }) if latent.cuts.len() == wanted + 1 => {
+            notes.push(format!(
+                "the cuts' true values are the mechanism's cuts less its first ({}), which the model fixes at 0; the \
+                 intercepts' are the score's less the same",
+                super::support::short(latent.cuts[0])
+            ));
+            latent.cuts[1..].iter().map(|c| Some(c - latent.cuts[0])).collect()
+        }
+        _ => vec![None; wanted],
+    }
+}
+
 /// The true value of each parameter (in parameter order), or `None` with a
 /// note when the mechanism is not of the model's family.
 fn true_parameters(
@@ -134,6 +153,9 @@ fn true_parameters(
             | (Some(Mechanism::Poisson { overdispersion: None, .. }), Family::Poisson)
             | (Some(Mechanism::Poisson { overdispersion: Some(_), .. }), Family::GammaPoisson)
             | (Some(Mechanism::Beta { .. }), Family::Beta)
+            | (Some(Mechanism::Time { shape: None, .. }), Family::Times { form: TimeForm::Exponential, .. })
+            | (Some(Mechanism::Time { shape: Some(_), .. }), Family::Times { form: TimeForm::Weibull, .. })
+            | (Some(Mechanism::Category { score: Some(_), .. }), Family::Graded)
     );
     if !matches {
         notes.push(format!("the mechanism of {outcome} is not of the model's family, so no parameter has a true value"));
@@ -177,11 +199,14 @@ fn true_parameters(
     for (draw, _) in draws.iter().zip(&used).filter(|(_, u)| !**u) {
         notes.push(format!(
             "the mechanism of {outcome} draws {}, which model {} does not pool",
-            DepartureTerm { group: draw.group.clone(), spread: draw.spread, slope: draw.slope.clone() }.written(&super::support::short(draw.spread)),
+            DepartureTerm { group: draw.group.clone(), spread: draw.spread, slope: draw.slope.clone(), correlation: draw.correlation }.written(&super::support::short(draw.spread)),
             model.name()
         ));
     }
     let mut truth = fixed_truths(model, eta, spread, notes);
+    if truth.len() < model.first_group_index() {
+        truth.extend(cut_truths(model, simulation.mechanism(outcome), notes));
+    }
     truth.extend(group_truths);
     Some(truth)
 }
@@ -202,10 +227,8 @@ fn group_truth(
 ) -> Vec<Option<f64>> {
     let at_level = |draw: &GroupDraw, level: &str| draw.levels.iter().position(|l| l == level).map(|i| draw.departures[i]);
     let shifted = slopes.iter().zip(shifts).any(|(d, c)| d.is_some() && *c != 0.0);
-    let spread0 = intercept.map(|d| {
-        let extra: f64 = slopes.iter().zip(shifts).map(|(d, c)| d.map_or(0.0, |d| (c * d.spread).powi(2))).sum();
-        (d.spread * d.spread + extra).sqrt()
-    });
+    let covariance = StatedCovariance::of(intercept, slopes);
+    let spread0 = intercept.map(|_| covariance.intercept_variance(shifts).sqrt());
     let mut truth = vec![spread0];
     for level in &group.levels {
         truth.push(intercept.and_then(|d| {
@@ -231,20 +254,70 @@ fn group_truth(
     for i in 1..=slopes.len() {
         for j in 0..i {
             truth.push(match (j, spread0) {
-                (0, Some(s0)) => slopes[i - 1].map(|d| shifts[i - 1] * d.spread / s0),
+                (0, Some(s0)) => slopes[i - 1].map(|d| covariance.intercept_covariance(i, shifts) / (s0 * d.spread)),
                 (0, None) => None,
-                _ => slopes[i - 1].zip(slopes[j - 1]).map(|_| 0.0),
+                _ => slopes[i - 1].zip(slopes[j - 1]).map(|_| covariance.0[i][j] / (covariance.0[i][i] * covariance.0[j][j]).sqrt()),
             });
         }
     }
+    let stated = slopes.iter().flatten().any(|d| d.correlation.is_some());
     if !slopes.is_empty() && intercept.is_some() && slopes.iter().all(Option::is_some) {
         notes.push(format!(
-            "{} correlations: the simulation draws every departure independently, so the true correlations are 0{}",
+            "{} correlations: {}{}",
             group.column,
-            if shifted { " — except the intercept's with each slope, which centring makes c·(slope spread)/(intercept spread) (c the centring value)" } else { "" }
+            if stated {
+                "the intercept's with each slope as stated (0 where none is), and between two slopes the product of their stated correlations with the intercept"
+            } else {
+                "the simulation draws every departure independently, so the true correlations are 0"
+            },
+            if shifted { " — with centring, the model's intercept departures take in c times each slope's (c the centring value), and their spread and correlations are worked out from the stated covariance" } else { "" }
         ));
     }
     truth
+}
+
+/// The covariance matrix of a group's stated departures, intercept first
+/// then each slope: spreads τ on the diagonal, `r·τ₀·τₓ` between the
+/// intercept and a slope with stated correlation r, `rₓ·r_w·τₓ·τ_w`
+/// between two slopes (both mixed from the intercept's scores,
+/// `simulate::correlate_with_intercepts`); 0 where a departure is missing.
+struct StatedCovariance(Vec<Vec<f64>>);
+
+impl StatedCovariance {
+    fn of(intercept: Option<&GroupDraw>, slopes: &[Option<&GroupDraw>]) -> StatedCovariance {
+        let k = 1 + slopes.len();
+        let spread = |e: usize| if e == 0 { intercept.map_or(0.0, |d| d.spread) } else { slopes[e - 1].map_or(0.0, |d| d.spread) };
+        let with_intercept = |e: usize| match (e, intercept) {
+            (0, _) => 1.0,
+            (_, Some(_)) => slopes[e - 1].and_then(|d| d.correlation).unwrap_or(0.0),
+            (_, None) => 0.0,
+        };
+        let matrix = (0..k)
+            .map(|i| {
+                (0..k)
+                    .map(|j| match (i, j) {
+                        _ if i == j => spread(i) * spread(i),
+                        (0, e) | (e, 0) => with_intercept(e) * spread(0) * spread(e),
+                        _ => with_intercept(i) * with_intercept(j) * spread(i) * spread(j),
+                    })
+                    .collect()
+            })
+            .collect();
+        StatedCovariance(matrix)
+    }
+
+    /// The variance of the model's intercept departure `a₀ + Σ cₓ·aₓ` (`shifts` the centring values c).
+    fn intercept_variance(&self, shifts: &[f64]) -> f64 {
+        let weights: Vec<f64> = std::iter::once(1.0).chain(shifts.iter().copied()).collect();
+        let m = &self.0;
+        (0..m.len()).flat_map(|i| (0..m.len()).map(move |j| (i, j))).map(|(i, j)| weights[i] * weights[j] * m[i][j]).sum()
+    }
+
+    /// The covariance of the model's intercept departure with slope `e`'s departure.
+    fn intercept_covariance(&self, e: usize, shifts: &[f64]) -> f64 {
+        let weights: Vec<f64> = std::iter::once(1.0).chain(shifts.iter().copied()).collect();
+        (0..self.0.len()).map(|i| weights[i] * self.0[i][e]).sum()
+    }
 }
 
 /// A note on the truth of a group's spread: the stated spread (or, when

@@ -81,7 +81,7 @@ pub fn robustness(model: &Model, draws: &Draws, table: &Table, x: &str, mass: f6
     let place = format!("robustness of {}: {x}", model.name());
     if *model.family() != Family::Normal {
         return Err(QueryError::request(format!(
-            "{place}: model {} has a {} outcome; robustness covers a normal outcome's linear slope and a yes/no (bernoulli) outcome's risk ratio",
+            "{place}: model {} has a {} outcome; robustness covers a normal outcome's linear slope, a yes/no (bernoulli) or binomial outcome's risk ratio and a poisson outcome's rate ratio",
             model.name(),
             model.family().name()
         )));

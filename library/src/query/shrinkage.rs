@@ -53,6 +53,15 @@ pub struct Shrinkage {
 
 /// The shrinkage of pooled group `group` (its column) of `model` from its `draws`.
 pub fn shrinkage(model: &Model, draws: &Draws, group: &str, mass: f64) -> Result<Shrinkage, QueryError> {
+    if let Some(levels) = model.outcome_levels() {
+        return Err(QueryError::request(format!(
+            "model {} has a category outcome ({} levels): its pooled {group} departs on the log odds of each level \
+             after the first, so there is no single scale to show; read the departures in `fit {}`'s table",
+            model.name(),
+            levels.len(),
+            model.name()
+        )));
+    }
     let groups = model.pooled_groups();
     let Some(g) = groups.iter().position(|t| t.column == group) else {
         let pooled: Vec<&str> = groups.iter().map(|t| t.column.as_str()).collect();
@@ -116,14 +125,17 @@ pub fn shrinkage(model: &Model, draws: &Draws, group: &str, mass: f64) -> Result
 }
 
 /// Each level's own rows' mean outcome, on the link scale (successes over
-/// trials for binomial); the link's clamp keeps a level with no successes finite.
+/// trials for binomial; for times cut short, time followed over events);
+/// the link's clamp keeps a level with no successes finite.
 fn raw_level_means(model: &Model, level_of: &[Option<usize>], k: usize, trials: Option<&[u64]>) -> Vec<Option<f64>> {
     let y = model.outcome_values();
+    let cut = model.cut_short_rows();
     let (mut sum, mut count) = (vec![0.0; k], vec![0.0; k]);
     for (i, level) in level_of.iter().enumerate() {
         if let Some(l) = level {
             sum[*l] += y[i];
-            count[*l] += trials.map_or(1.0, |t| t[i] as f64);
+            let event = cut.as_ref().map_or(1.0, |c| if c[i] { 0.0 } else { 1.0 });
+            count[*l] += trials.map_or(event, |t| t[i] as f64);
         }
     }
     (0..k).map(|l| (count[l] > 0.0).then(|| model.family().link(sum[l] / count[l]))).collect()
@@ -134,8 +146,8 @@ fn scale_words(model: &Model) -> String {
     let outcome = model.outcome_name();
     match model.family() {
         Family::Normal => outcome.to_string(),
-        Family::Bernoulli | Family::Binomial { .. } | Family::Levels => format!("log-odds of {outcome}"),
+        Family::Bernoulli | Family::Binomial { .. } | Family::Levels | Family::Graded => format!("log-odds of {outcome}"),
         Family::Beta => format!("log-odds of mean {outcome}"),
-        Family::Poisson | Family::GammaPoisson => format!("log of mean {outcome}"),
+        Family::Poisson | Family::GammaPoisson | Family::Times { .. } => format!("log of mean {outcome}"),
     }
 }

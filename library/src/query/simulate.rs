@@ -24,6 +24,7 @@ use rand_distr::{Beta, Distribution, Gamma, Poisson, StandardNormal};
 use crate::graph::Graph;
 use crate::limits::{bytes_for, check_memory};
 use crate::model::family::logistic;
+use crate::model::family::survival::{draw_time, TimeShape};
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::QueryError;
@@ -99,8 +100,32 @@ pub(crate) struct GroupDraw {
     /// The numeric parent whose slope departs (`departure(c, spread, x)`),
     /// `None` for the intercept's departure.
     pub(crate) slope: Option<String>,
+    /// The stated correlation of a slope's departures with the
+    /// intercept's (`None`: independent).
+    pub(crate) correlation: Option<f64>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
+}
+
+/// Mix each slope departure with a stated correlation into its group's
+/// intercept departures: level j's becomes `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
+/// `z₀ⱼ` the intercept departure over its spread and `zⱼ` the slope's own
+/// standard normal draw (a bivariate normal with correlation r; the
+/// mechanism's parser made sure the intercept's departure is there).
+fn correlate_with_intercepts(draws: &mut [GroupDraw]) {
+    let intercepts: Vec<(String, Vec<f64>)> = draws
+        .iter()
+        .filter(|d| d.slope.is_none())
+        .map(|d| (d.group.clone(), d.departures.iter().map(|a| a / d.spread).collect()))
+        .collect();
+    for draw in draws.iter_mut() {
+        let (Some(r), Some(_)) = (draw.correlation, &draw.slope) else { continue };
+        let Some((_, scores)) = intercepts.iter().find(|(g, _)| *g == draw.group) else { continue };
+        let rest = (1.0 - r * r).sqrt();
+        for (a, z0) in draw.departures.iter_mut().zip(scores) {
+            *a = draw.spread * (r * z0 + rest * (*a / draw.spread));
+        }
+    }
 }
 
 /// Every node's generated values, in the simulation's node order.
@@ -258,6 +283,11 @@ impl Simulation {
         let own = &generated.departures[k];
         let eval = |e: &super::mechanism::Expr, i: usize| self.eval_at(e, generated, own, i);
         match &self.nodes[k].mechanism {
+            // The model fixes its first cut at 0, so its linear predictor is the score less that cut.
+            Mechanism::Category { score: Some(latent), .. } => {
+                let first = latent.cuts.first().copied().unwrap_or(0.0);
+                Some(((0..n).map(|i| eval(&latent.score, i) - first).collect(), None))
+            }
             Mechanism::Category { .. } => None,
             Mechanism::Normal { mean, sd } => {
                 let spread = sd.uses().is_empty().then(|| eval(sd, 0));
@@ -276,6 +306,11 @@ impl Simulation {
                 let phi = precision.uses().is_empty().then(|| eval(precision, 0));
                 let eta = |i: usize| if *logit { eval(mean, i) } else { let q = eval(mean, i); (q / (1.0 - q)).ln() };
                 Some(((0..n).map(eta).collect(), phi))
+            }
+            Mechanism::Time { mean, log, shape } => {
+                // A Weibull node's second truth is its shape, when it is one number.
+                let k = shape.as_ref().and_then(|k| k.uses().is_empty().then(|| eval(k, 0)));
+                Some(((0..n).map(|i| if *log { eval(mean, i) } else { eval(mean, i).ln() }).collect(), k))
             }
         }
     }
@@ -364,20 +399,23 @@ impl Simulation {
     /// in declared order, from a stream of their own.
     fn draw_departures(&self, k: usize, seed: u64) -> Vec<GroupDraw> {
         let m = &self.nodes[k];
-        m.mechanism
+        let mut draws: Vec<GroupDraw> = m
+            .mechanism
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, DepartureTerm { group, spread, slope })| {
+            .map(|(g, DepartureTerm { group, spread, slope, correlation })| {
                 let levels = match self.mechanism(&group) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
                 };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, slope, departures }
+                GroupDraw { group, levels, spread, slope, correlation, departures }
             })
-            .collect()
+            .collect();
+        correlate_with_intercepts(&mut draws);
+        draws
     }
 
     /// Draw node `k` for every row from its own stream.
@@ -392,6 +430,21 @@ impl Simulation {
         let what = format!("simulate {}", self.name);
         let stop = |i: usize| if i % CANCEL_EVERY == 0 { QueryError::stop_if(cancel, &what) } else { Ok(()) };
         Ok(match &m.mechanism {
+            Mechanism::Category { score: Some(latent), .. } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    stop(i)?;
+                    let score = eval(&latent.score, i);
+                    if !score.is_finite() {
+                        return Err(bad(i, format!("the latent score is {}, but it must be a finite number", short(score))));
+                    }
+                    // A standard logistic error by inversion of its distribution function.
+                    let u: f64 = rng.random::<f64>().max(f64::MIN_POSITIVE);
+                    let value = score + (u / (1.0 - u)).ln();
+                    out.push(latent.cuts.iter().filter(|&&c| value >= c).count() as u32);
+                }
+                NodeValues::Category(out)
+            }
             Mechanism::Category { shares, .. } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
@@ -466,6 +519,26 @@ impl Simulation {
                     let share = Beta::new(q * phi, (1.0 - q) * phi).map_err(|e| bad(i, e.to_string()))?.sample(&mut rng);
                     // A draw rounded onto 0 or 1 (tiny shapes) is moved just inside, where a share lies.
                     out.push(share.clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON));
+                }
+                NodeValues::Real(out)
+            }
+            Mechanism::Time { mean, log, shape } => {
+                let mut out = Vec::with_capacity(rows);
+                for i in 0..rows {
+                    stop(i)?;
+                    let eta = if *log { eval(mean, i) } else { eval(mean, i).ln() };
+                    let k = shape.as_ref().map_or(1.0, |k| eval(k, i));
+                    // Written so that a NaN mean or shape is refused too.
+                    if !(eta.is_finite() && k.is_finite() && k > 0.0) {
+                        return Err(bad(i, format!(
+                            "the mean time is {} and the shape {}, but both must be positive and finite",
+                            short(eta.exp()),
+                            short(k)
+                        )));
+                    }
+                    let time = draw_time(eta, TimeShape::from_log_shape(k.ln()), &mut rng);
+                    // A draw rounded to 0 (a tiny shape) is moved up to the smallest positive time.
+                    out.push(time.max(f64::MIN_POSITIVE));
                 }
                 NodeValues::Real(out)
             }

@@ -9,6 +9,7 @@
 //! [`Next::values`] says where one fits.
 
 use super::grammar::{tokens, Next};
+use crate::model::family::survival::{TimeForm, CUT_SHORT_BY};
 use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{
@@ -74,6 +75,15 @@ fn model_line(typed: &str) -> Next {
         [FAMILY_LINE, BINOMIAL] => next(&OUT_OF[..1], &[], false),
         [FAMILY_LINE, BINOMIAL, out] if *out == OUT_OF[0] => next(&OUT_OF[1..], &[], false),
         [FAMILY_LINE, BINOMIAL, out, of] if [*out, *of] == OUT_OF => next(&[], &[], true),
+        [FAMILY_LINE, form, rest @ ..] if TimeForm::from_word(form).is_some() && rest.len() < CUT_SHORT_BY.len() => {
+            match CUT_SHORT_BY.get(rest.len()).filter(|_| rest.iter().zip(CUT_SHORT_BY).all(|(a, b)| *a == b)) {
+                Some(word) => next(&[*word], &[], false),
+                None => Next::default(),
+            }
+        }
+        [FAMILY_LINE, form, c, s, b] if TimeForm::from_word(form).is_some() && [*c, *s, *b] == CUT_SHORT_BY => {
+            next(&[], &[], true)
+        }
         [PRIOR_LINE] => {
             let mut words = PriorGroup::words();
             words.push(POOLED_CORRELATIONS);

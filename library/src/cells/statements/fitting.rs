@@ -14,6 +14,7 @@ use crate::cells::files::write_atomically;
 use crate::cells::fit_summary;
 use crate::cells::output::{html_block, html_list, CellError, Display, Grid};
 use crate::cells::parse::Statement;
+use crate::model::prior::PriorGroup;
 use crate::cells::session::{suggest, RunControl, Session};
 use crate::draws::SummarySpec;
 use crate::infer::fit::{fit_model, Fit, Method, LAPLACE_DRAWS, LAPLACE_SEED};
@@ -148,10 +149,18 @@ fn priors_grid(model: &Model) -> Grid {
     let mut rows: Vec<(String, Vec<String>, String, &'static str)> = Vec::new();
     for p in model.priors_used() {
         let prior = p.prior.to_string();
-        let source = match (p.declared, p.at_average_row) {
-            (true, _) => "declared in the cell",
-            (false, true) => "Waypath default (shared budget), on the average row",
-            (false, false) => "Waypath default (shared budget)",
+        // the family's own parameter (spread, overdispersion, precision,
+        // shape, gaps) takes its default from the outcome, not from a share
+        // of the coefficients' budget (`model::defaults`)
+        let own = matches!(
+            p.group,
+            PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Shape | PriorGroup::Gaps
+        );
+        let source = match (p.declared, p.at_average_row, own) {
+            (true, _, _) => "declared in the cell",
+            (false, true, _) => "Waypath default (shared budget), on the average row",
+            (false, false, true) => "Waypath default (family parameter)",
+            (false, false, false) => "Waypath default (shared budget)",
         };
         match rows.last_mut() {
             Some(last) if last.0 == p.group.name() && last.2 == prior && last.3 == source => {
@@ -425,7 +434,7 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
     let line = st.header.number;
     let fit = require_fit(session, name, line)?;
     let model = &session.models[name];
-    let pooled: Vec<&str> = model.pooled_groups().iter().map(|g| g.column.as_str()).collect();
+    let pooled: Vec<&str> = model.pooled_groups().iter().filter(|g| g.block() == 0).map(|g| g.column.as_str()).collect();
     let group = match (chosen, pooled.as_slice()) {
         ([], []) => {
             return Err(CellError::at(

@@ -250,9 +250,15 @@ pub const ASK_USING: Form = Form {
         Word("ask"), Choice(EFFECT_KINDS), Word("effect"), Word("of"), Name(Nd), Word("on"), Name(Nd), Word("in"), Name(Gr),
         Word("using"), Name(Tb),
     ],
-    options: &[&[Word("checking"), Word("zero")], &[Word("at"), Name(Nd), Name(Lv)], &[Word("pooling"), Name(Col)], INTERVALS_OPTION],
+    options: &[
+        &[Word("checking"), Word("zero")],
+        &[Word("at"), Name(Nd), Name(Lv)],
+        &[Word("pooling"), Name(Col)],
+        &[Word("varying"), Word("by"), Name(Nd)],
+        INTERVALS_OPTION,
+    ],
     method: true,
-    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [pooling COLUMN …] [intervals P%] [with nuts …|with laplace …]",
+    usage: "ask total|direct effect of X on Y in GRAPH using TABLE [checking zero] [at NODE VALUE …] [pooling COLUMN …] [varying by CATEGORY] [intervals P%] [with nuts …|with laplace …]",
 };
 pub const PATHS: Form = Form {
     slots: &[Word("paths"), Word("from"), Name(Nd), Word("to"), Name(Nd), Word("in"), Name(Gr)],
@@ -353,9 +359,9 @@ pub const ROBUSTNESS: Form = Form {
 };
 pub const INTERVENE: Form = Form {
     slots: &[Word("intervene"), Name(Md), Word(":"), Word("set"), Name(Col), Name(Lv), Word("vs"), Name(Lv), Word("watch")],
-    options: &[&[Word("rows"), Value], SEED, INTERVALS_OPTION],
+    options: &[&[Word("rows"), Value], SEED, &[Word("in"), Value, Value], INTERVALS_OPTION],
     method: false,
-    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S] [intervals P%]",
+    usage: "intervene NAME: set X v1 vs v0, watch Y[, Z] [rows N] [seed S] [in new C | in C LEVEL] [intervals P%]",
 };
 pub const SIMULATE: Form = Form {
     slots: &[Word("simulate"), Name(New), Word("from"), Name(Gr), Word("rows"), Value, Word("seed"), Value],

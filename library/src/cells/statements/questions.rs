@@ -395,8 +395,8 @@ fn describe_contrast(c: &Contrast, table: &Table, outcome: &str, extra: &[String
 }
 
 /// The options of `ask … using T` before `with …`: `checking zero`,
-/// `at NODE VALUE [NODE VALUE …]` and `pooling C [C …]`; the rest (the
-/// method) is returned.
+/// `at NODE VALUE [NODE VALUE …]`, `pooling C [C …]` and `varying by C`;
+/// the rest (the method) is returned.
 fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
     let mut options = AskOptions::default();
     let mut rest = text.trim();
@@ -406,20 +406,20 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
             options.check_zero = true;
         } else if let Some(tail) = option_text(rest, "pooling") {
             let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
-            while let Some(name) = words.next_if(|w| !["with", "checking", "at"].contains(w)) {
+            while let Some(name) = words.next_if(|w| !["with", "checking", "at", "varying"].contains(w)) {
                 options.pooled.push(name.to_string());
             }
             if options.pooled.is_empty() {
                 return Err("`pooling` is followed by the column that marks the clusters".into());
             }
-            rest = match [" with ", " checking ", " at "].iter().filter_map(|w| tail.find(w)).min() {
+            rest = match [" with ", " checking ", " at ", " varying "].iter().filter_map(|w| tail.find(w)).min() {
                 Some(i) => tail[i..].trim(),
                 None => "",
             };
         } else if let Some(tail) = option_text(rest, "at") {
             let mut words = tail.split(|c: char| c.is_whitespace() || c == ',').filter(|w| !w.is_empty()).peekable();
             let mut used = 0;
-            while let Some(name) = words.next_if(|w| !["with", "checking", "pooling"].contains(w)) {
+            while let Some(name) = words.next_if(|w| !["with", "checking", "pooling", "varying"].contains(w)) {
                 let value = words.next().ok_or(format!("`at {name}` needs a value"))?;
                 options.held.push((name.to_string(), value.to_string()));
                 used += 1;
@@ -427,10 +427,20 @@ fn ask_options(text: &str) -> Result<(AskOptions, &str), String> {
             if used == 0 {
                 return Err("`at` is followed by a node and its value".into());
             }
-            rest = match [" with ", " checking ", " pooling "].iter().filter_map(|w| tail.find(w)).min() {
+            rest = match [" with ", " checking ", " pooling ", " varying "].iter().filter_map(|w| tail.find(w)).min() {
                 Some(i) => tail[i..].trim(),
                 None => "",
             };
+        } else if let Some(tail) = option_text(rest, "varying") {
+            let tail = tail.strip_prefix("by").ok_or("`varying` is followed by `by` and a category of the set, `varying by C`")?.trim();
+            let (name, after) = tail.split_once(char::is_whitespace).unwrap_or((tail, ""));
+            if name.is_empty() || ["with", "checking", "pooling", "at"].contains(&name) {
+                return Err("`varying by` is followed by a category of the set conditioned on".into());
+            }
+            if options.varying_by.replace(name.to_string()).is_some() {
+                return Err("`varying by` is given twice; slopes vary by one category".into());
+            }
+            rest = after.trim();
         } else {
             return Ok((options, rest));
         }
@@ -577,7 +587,8 @@ pub(crate) fn compare_routes(
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
     if answer.route.as_deref() != Some("adjustment") {
-        return Ok(vec![formula_only(&answer, x, y, g, mass)]);
+        let second = joint_formula_route(&answer, graph, table, x, y, &method, mass, control, &label, line)?;
+        return Ok(vec![formula_routes(&answer, x, y, g, mass, second)]);
     }
     if adjustment.level.is_some() {
         return Err(CellError::at(
@@ -602,10 +613,24 @@ pub(crate) fn compare_routes(
         rows: None,
         seed: DEFAULT_SEED,
         mass,
+        groups: crate::query::GroupQuestion::Observed,
     };
     let simulated = intervene(&joint, &joint_fit, table, &request).map_err(|e| query_error(e, line))?;
     let watched = &simulated.watched[0];
     let routes = crate::query::compare_routes(adjustment, watched, mass).map_err(|e| query_error(e, line))?;
+    (control.progress)(&format!("{label}: looking for a front-door route"));
+    let front = crate::query::front_door_route(graph, table, x, y, &adjustment.to, &adjustment.from, &method, control.cancel, mass)
+        .map_err(|e| stopped_or(control, &label, line, e))?;
+    check_cancel(control, &label, line)?;
+    let front_difference = front
+        .as_ref()
+        .map(|f| {
+            let n = adjustment.draws.len().min(f.contrast.draws.len());
+            let d: Vec<f64> = (0..n).map(|i| adjustment.draws[i] - f.contrast.draws[i]).collect();
+            ContrastSummary::of(&d, mass)
+        })
+        .transpose()
+        .map_err(|e| query_error(e, line))?;
     let set = answer.adjustment_set.clone().unwrap_or_default();
     let set_words = if set.is_empty() { "nothing".to_string() } else { set.join(", ") };
     let unit = adjustment.unit.as_deref();
@@ -615,31 +640,59 @@ pub(crate) fn compare_routes(
         with_unit(routes.adjustment.mean, unit),
         with_unit(routes.joint.mean, unit)
     );
-    let mut grid = summary_grid(&["route"], mass);
-    for (name, s) in [
+    let by_formula = simulated.route == crate::query::FORMULA_ROUTE;
+    let joint_name = if by_formula { "joint model (its identifying formula)" } else { "joint model (simulated intervention)" };
+    let front_summary = front.as_ref().map(|f| f.contrast.summary());
+    let mut rows: Vec<(String, &ContrastSummary)> = vec![
         (format!("adjustment (stratify by {set_words})"), &routes.adjustment),
-        ("joint model (simulated intervention)".to_string(), &routes.joint),
+        (joint_name.to_string(), &routes.joint),
         ("difference (adjustment − joint)".to_string(), &routes.difference),
-    ] {
+    ];
+    if let (Some(f), Some(fs), Some(fd)) = (&front, &front_summary, &front_difference) {
+        rows.push((format!("front door (through {})", f.mediators.join(", ")), fs));
+        rows.push(("difference (adjustment − front door)".to_string(), fd));
+    }
+    let mut grid = summary_grid(&["route"], mass);
+    for (name, s) in rows {
         let mut row = vec![name];
         row.extend(summary_cells(s, unit));
         grid.push(row);
     }
     let mut notes = routes.notes.clone();
     notes.extend(chosen);
-    notes.push(format!(
-        "the joint model fits one regression per observed node of {g} and simulates do({x}) over {} (seed {})",
-        simulated.rows_source, simulated.seed
-    ));
-    notes.push("the two routes are fitted separately, so their difference pairs draws at random; it is wide by design".to_string());
+    if by_formula {
+        notes.push(format!(
+            "hidden nodes touch what the joint model would simulate, so its route evaluates the identifying formula: {}",
+            simulated.formulas.iter().map(|f| format!("{}; fitted: {}", f.formula, f.fitted.join(" | "))).collect::<Vec<_>>().join("; ")
+        ));
+    } else {
+        notes.push(format!(
+            "the joint model fits one regression per observed node of {g} and simulates do({x}) over {} (seed {})",
+            simulated.rows_source, simulated.seed
+        ));
+    }
+    if let Some(f) = &front {
+        notes.push(format!(
+            "the front door through {} is a third route (Pearl 2009, §3.3.2): {}; fitted: {}; it uses the mediators' response to {x} and {y}'s to them, \
+             not the adjustment set, so agreement between the routes is a check on the graph",
+            f.mediators.join(", "),
+            f.formula,
+            f.fitted.join(" | ")
+        ));
+        notes.extend(f.warnings.iter().map(|w| format!("front-door route: {w}")));
+    }
+    notes.push("the routes are fitted separately, so each difference pairs draws at random; it is wide by design".to_string());
     notes.extend(simulated.warnings.iter().map(|w| format!("joint route: {w}")));
     notes.extend(answer.warnings.iter().map(|w| format!("adjustment route: {w}")));
     notes.push(format!("fitted with {}; intervals are {}s", method.describe(), adjustment.interval));
     notes.push(CAUSAL_NOTE.to_string());
     warnings.extend(simulated.warnings.iter().map(|w| format!("{label}: {w}")));
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
-    let named: Vec<(String, &[f64])> =
+    let mut named: Vec<(String, &[f64])> =
         vec![("adjustment route".to_string(), adjustment.draws.as_slice()), ("joint route".to_string(), watched.draws.as_slice())];
+    if let Some(f) = &front {
+        named.push(("front-door route".to_string(), f.contrast.draws.as_slice()));
+    }
     let svg = figures::differences(&format!("total effect of {x} on {y}, {}: two routes", adjustment.contrast), table, y, &named, DensityArrangement::Shared).ok();
     let summary = |s: &ContrastSummary| to_json(s);
     let mut adjustment_json = summary(&routes.adjustment);
@@ -647,10 +700,23 @@ pub(crate) fn compare_routes(
     adjustment_json["model"] = json!(answer.model_text);
     let mut joint_json = summary(&routes.joint);
     joint_json["simulated"] = json!(simulated.simulated);
+    joint_json["route"] = json!(simulated.route);
+    joint_json["formulas"] = json!(simulated.formulas);
+    let front_json = match (&front, &front_summary) {
+        (Some(f), Some(fs)) => {
+            let mut j = summary(fs);
+            j["mediators"] = json!(f.mediators);
+            j["formula"] = json!(f.formula);
+            j["fitted"] = json!(f.fitted);
+            j
+        }
+        _ => Value::Null,
+    };
     let json = json!({
         "question": answer.question, "contrast": adjustment.contrast, "to": adjustment.to, "from": adjustment.from,
         "unit": adjustment.unit, "interval_mass": mass, "identifiable": true,
         "adjustment": adjustment_json, "joint": joint_json, "difference": summary(&routes.difference),
+        "front_door": front_json, "difference_front_door": front_difference.as_ref().map(summary),
         "seed": simulated.seed, "notes": notes,
     });
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(json) }])
@@ -697,16 +763,67 @@ fn check_settings(table: &Table, x: &str, settings: Option<&(String, String)>) -
     })
 }
 
+/// The joint model's route beside a formula answer: its watched contrast
+/// and formulas, or a note why it is not taken.
+type SecondRoute = Result<(crate::query::WatchedContrast, Vec<String>), String>;
+
+/// The joint model's route to an effect an identifying formula answers:
+/// `intervene` on a joint model of the graph, which evaluates the complete
+/// algorithm's formula where hidden nodes touch its simulation. `Err` of a
+/// note when it adds nothing (the same formula as the answer's) or cannot
+/// be taken; otherwise the watched contrast and its formulas.
+#[allow(clippy::too_many_arguments)]
+fn joint_formula_route(
+    answer: &crate::query::EffectAnswer,
+    graph: &crate::graph::Graph,
+    table: &Table,
+    x: &str,
+    y: &str,
+    method: &Method,
+    mass: f64,
+    control: &RunControl,
+    label: &str,
+    line: usize,
+) -> Result<SecondRoute, CellError> {
+    let Some(first) = answer.contrasts.first() else { return Ok(Err("nothing was estimated, so there is no second route".into())) };
+    let beyond_formula = answer.identification.beyond.as_ref().and_then(|b| b.formula.clone());
+    if let Ok(crate::graph::Complete::Identified { formula, .. }) = graph.identify_intervention_with_cancel(&[x], &[y], control.cancel) {
+        if Some(formula) == beyond_formula {
+            return Ok(Err("the joint model's route would evaluate the same formula with the same fits, so it is not repeated".into()));
+        }
+    }
+    let joint = build_joint(&format!("routes_{x}_{y}"), graph, table, &[]).map_err(|e| query_error(e, line))?;
+    let node_progress = joint_progress(control, label, "joint model, ");
+    (control.progress)(&format!("{label}: fitting one regression per node of {}", graph.name()));
+    let joint_fit = fit_joint_with_progress(&joint, method, control.cancel, &node_progress).map_err(|e| stopped_or(control, label, line, e))?;
+    check_cancel(control, label, line)?;
+    let request = InterventionRequest { variable: x.to_string(), to: first.to.clone(), from: first.from.clone(), watch: vec![y.to_string()], rows: None, seed: DEFAULT_SEED, mass, groups: crate::query::GroupQuestion::Observed };
+    match intervene(&joint, &joint_fit, table, &request) {
+        Ok(mut result) => {
+            let formulas = result.formulas.iter().map(|f| format!("{}; fitted: {}", f.formula, f.fitted.join(" | "))).collect();
+            Ok(Ok((result.watched.remove(0), formulas)))
+        }
+        Err(e) => Ok(Err(format!("the joint model's route was not taken: {e}"))),
+    }
+}
+
 /// The answer of `compare routes` when the effect is identified by a
-/// formula (the front door, the complete algorithm): the joint model (each
-/// node from its observed parents) cannot simulate a hidden common cause,
-/// so there is one route only.
-fn formula_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &str, mass: f64) -> Display {
+/// formula: that estimate, and the joint model's route beside it when it
+/// evaluates another formula (else a note why not).
+fn formula_routes(
+    answer: &crate::query::EffectAnswer,
+    x: &str,
+    y: &str,
+    g: &str,
+    mass: f64,
+    second: SecondRoute,
+) -> Display {
     let route = answer.route.clone().unwrap_or_default();
-    let heading = format!(
-        "total effect of {x} on {y} in {g}: one route only — {}; no adjustment set exists and the joint model cannot simulate the hidden common cause",
-        if route == "front door" { "the front door".to_string() } else { format!("the identifying formula of the {route}") }
-    );
+    let first = if route == "front door" { "the front door".to_string() } else { format!("the identifying formula of the {route}") };
+    let heading = match &second {
+        Ok(_) => format!("total effect of {x} on {y} in {g}: two routes — {first}, and the joint model's identifying formula; no adjustment set exists"),
+        Err(_) => format!("total effect of {x} on {y} in {g}: one route only — {first}; no adjustment set exists"),
+    };
     let mut grid = summary_grid(&["route", "contrast"], mass);
     for c in &answer.contrasts {
         let mut row = vec![route.clone(), c.contrast.clone()];
@@ -714,11 +831,35 @@ fn formula_only(answer: &crate::query::EffectAnswer, x: &str, y: &str, g: &str, 
         grid.push(row);
     }
     let mut notes = answer.why.clone();
+    let mut joint_json = Value::Null;
+    let mut difference_json = Value::Null;
+    match &second {
+        Ok((w, formulas)) => {
+            let first = &answer.contrasts[0];
+            let s = ContrastSummary { mean: w.mean, lower: w.lower, upper: w.upper, share_above_zero: w.share_above_zero, share_below_zero: w.share_below_zero, mass };
+            let mut row = vec!["joint model (its identifying formula)".to_string(), first.contrast.clone()];
+            row.extend(summary_cells(&s, first.unit.as_deref()));
+            grid.push(row);
+            let n = first.draws.len().min(w.draws.len());
+            let d: Vec<f64> = (0..n).map(|i| first.draws[i] - w.draws[i]).collect();
+            if let Ok(ds) = ContrastSummary::of(&d, mass) {
+                let mut row = vec![format!("difference ({route} − joint)"), first.contrast.clone()];
+                row.extend(summary_cells(&ds, first.unit.as_deref()));
+                grid.push(row);
+                difference_json = to_json(&ds);
+            }
+            notes.push(format!("the joint model's route: {}", formulas.join("; ")));
+            notes.push("the two routes are fitted separately, so their difference pairs draws at random; it is wide by design".to_string());
+            joint_json = to_json(&s);
+            joint_json["formulas"] = json!(formulas);
+        }
+        Err(why) => notes.push(why.clone()),
+    }
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
     let json = json!({"question": answer.question, "identifiable": false, "route": route,
-                      "formula_route": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": null,
-                      "difference": null, "notes": notes});
+                      "formula_route": answer.contrasts.iter().map(to_json).collect::<Vec<_>>(), "adjustment": null, "joint": joint_json,
+                      "difference": difference_json, "notes": notes});
     Display { plain, html: Some(html), svg: None, json: Some(json) }
 }
 

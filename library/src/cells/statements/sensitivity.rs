@@ -2,9 +2,9 @@
 //! hidden common cause of X and M's outcome.
 //!
 //! A normal outcome's one-unit slope is moved by the product of the two
-//! strengths ([`crate::query::robustness`]); a yes/no outcome's risk ratio
-//! by the most two risk ratios can move it, with its E-value
-//! ([`crate::query::risk_ratio_robustness`]). Both render the same way: a
+//! strengths ([`crate::query::robustness`]); a yes/no or binomial outcome's
+//! risk ratio, or a poisson outcome's rate ratio, by the most two ratios
+//! can move it, with its E-value ([`crate::query::risk_ratio_robustness`]). Both render the same way: a
 //! heading sentence, the yardsticks' table, notes, JSON and the figure over
 //! the two strengths. With `refit with hidden to X PRIOR and to Y PRIOR`
 //! the model is refitted beside a simulated hidden node instead
@@ -52,7 +52,7 @@ pub(crate) fn robustness(session: &mut Session, st: &Statement, control: &RunCon
         check_cancel(control, &label, line)?;
         return Ok(vec![refit_display(name, table, &r)]);
     }
-    if *model.family() == Family::Bernoulli {
+    if matches!(model.family(), Family::Bernoulli | Family::Binomial { .. } | Family::Poisson) {
         let r = crate::query::risk_ratio_robustness(model, &fit.draws, table, x, mass).map_err(|e| query_error(e, line))?;
         return Ok(vec![risk_ratio_display(name, &r)]);
     }
@@ -213,12 +213,13 @@ fn slope_display(name: &str, r: &Robustness) -> Display {
     Display { plain, html: Some(html), svg, json: Some(json) }
 }
 
-/// A yes/no outcome's risk ratio, its E-values and the figure over the two
-/// risk ratios of a hidden cause.
+/// A yes/no or binomial outcome's risk ratio (a count's rate ratio), its
+/// E-values and the figure over the two ratios of a hidden cause.
 fn risk_ratio_display(name: &str, r: &RiskRatioRobustness) -> Display {
     let (x, y) = (&r.exposure, &r.outcome);
+    let ratio = r.ratio.as_str();
     let heading = format!(
-        "robustness of {name}: risk ratio of {y} for {x} {} vs {} = {} ({} {} to {}); E-value {} for the mean, {} for the interval",
+        "robustness of {name}: {ratio} of {y} for {x} {} vs {} = {} ({} {} to {}); E-value {} for the mean, {} for the interval",
         r.to,
         r.from,
         num(r.mean),
@@ -229,17 +230,19 @@ fn risk_ratio_display(name: &str, r: &RiskRatioRobustness) -> Display {
         num(r.e_value_of_interval)
     );
     let lead = vec![format!(
-        "probability that {y} is yes, averaged over the rows: {} with {x} = {}, {} with {x} = {} (posterior means); {} of the draws give a ratio above 1",
+        "{}, averaged over the rows: {} with {x} = {}, {} with {x} = {} (posterior means); {} of the draws give a ratio above 1",
+        r.measure,
         num(r.risk_to),
         r.to,
         num(r.risk_from),
         r.from,
         crate::cells::fit_summary::share_above_zero(r.share_above_one)
     )];
+    let with_outcome = format!("with the outcome ({ratio})");
     let mut grid = Grid::new(&[
         "yardstick",
         "with the exposure (risk ratio)",
-        "with the outcome (risk ratio)",
+        &with_outcome,
         "most they move the ratio by",
         "mean if a hidden cause were as strong",
     ])
@@ -255,11 +258,11 @@ fn risk_ratio_display(name: &str, r: &RiskRatioRobustness) -> Display {
     }
     let mut notes = vec![
         format!(
-            "a hidden cause tied to both {x} and {y} by a risk ratio of {} each, beyond the model's predictors, could move the mean to 1; one weaker on both could not",
+            "a hidden cause tied to both {x} and {y} by a {ratio} of {} each, beyond the model's predictors, could move the mean to 1; one weaker on both could not",
             num(r.e_value_of_mean)
         ),
         if r.e_value_of_interval > 1.0 {
-            format!("to move the {}'s end nearer 1 to 1, both risk ratios must reach {}", r.interval, num(r.e_value_of_interval))
+            format!("to move the {}'s end nearer 1 to 1, both ratios must reach {}", r.interval, num(r.e_value_of_interval))
         } else {
             format!("the fitted {} already holds 1, so its E-value is 1", r.interval)
         },
@@ -283,7 +286,7 @@ fn risk_ratio_display(name: &str, r: &RiskRatioRobustness) -> Display {
         subject: &subject,
         exposure: x,
         outcome: y,
-        scale: StrengthScale::RiskRatio,
+        scale: if ratio == crate::query::RATE_RATIO { StrengthScale::RateRatio } else { StrengthScale::RiskRatio },
         to_exposure: &r.to_exposure,
         to_outcome: &r.to_outcome,
         crossed: &crossed,
@@ -296,6 +299,6 @@ fn risk_ratio_display(name: &str, r: &RiskRatioRobustness) -> Display {
     };
     let svg = crate::plot::robustness_figure(&picture).ok();
     let mut json = serde_json::to_value(r).unwrap_or_default();
-    json["scale"] = "risk ratio".into();
+    json["scale"] = ratio.into();
     Display { plain, html: Some(html), svg, json: Some(json) }
 }

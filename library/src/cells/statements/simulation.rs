@@ -287,19 +287,41 @@ pub(crate) fn intervene(session: &mut Session, st: &Statement, control: &RunCont
         row.extend(summary_cells(&s, w.unit.as_deref()));
         grid.push(row);
     }
-    let simulated = if result.simulated.is_empty() { "none".to_string() } else { result.simulated.join(", ") };
-    let mut notes = vec![
-        format!("each draw sets {} in every row, keeps the nodes it does not cause as observed, and simulates {simulated} from their node models; the row means under the two settings are subtracted", request.variable),
-        format!("the two settings share each draw and its noise (seed {}); {}s of the per-draw changes", result.seed, result.interval),
-    ];
+    let mut notes = intervention_route_notes(&result, &request.variable);
+    notes.push(format!("the two settings share each draw and its noise (seed {}); {}s of the per-draw changes", result.seed, result.interval));
     if result.watched.iter().any(|w| w.level.is_some()) {
         notes.push("a watched category gives one row per level: the change in the share of rows at that level, each row's level drawn from the softmax probabilities of its node model".to_string());
     }
+    notes.extend(result.pooled.iter().cloned());
     notes.extend(result.warnings.iter().map(|w| format!("warning: {w}")));
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &grid)], &notes);
     let svg = figures::intervention(&format!("{name}: {}", result.intervention), table, &result.watched).ok();
     Ok(vec![Display { plain, html: Some(html), svg, json: Some(to_json(&result)) }])
+}
+
+/// How the intervention was simulated: through the joint model's node
+/// models, or through each watched node's identifying formula (with the
+/// formula and the regressions fitted for it).
+fn intervention_route_notes(result: &crate::query::InterventionResult, x: &str) -> Vec<String> {
+    if result.route != crate::query::FORMULA_ROUTE {
+        let simulated = if result.simulated.is_empty() { "none".to_string() } else { result.simulated.join(", ") };
+        return vec![format!(
+            "each draw sets {x} in every row, keeps the nodes it does not cause as observed, and simulates {simulated} from their node models; the row means under the two settings are subtracted"
+        )];
+    }
+    let mut notes = vec![format!(
+        "hidden nodes touch what the joint model would simulate, so each watched node's change comes from its identifying formula \
+         (Shpitser & Pearl 2006), evaluated as `ask total effect … using` does: its conditionals fitted as regressions with the joint fit's method, \
+         then per draw {x} set in every row and the formula's other nodes drawn in its order"
+    )];
+    for f in &result.formulas {
+        notes.push(format!("{}; fitted: {}", f.formula, f.fitted.join(" | ")));
+        if !f.from_rows.is_empty() {
+            notes.push(format!("{}'s formula takes {} from each row", f.node, f.from_rows.join(", ")));
+        }
+    }
+    notes
 }
 
 /// Read `intervene NAME: set X v1 vs v0, watch Y, Z [rows N] [seed S] [intervals P%]`
@@ -328,11 +350,17 @@ fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionReque
         rows: None,
         seed: DEFAULT_SEED,
         mass: crate::draws::summary::DEFAULT_MASS,
+        groups: crate::query::GroupQuestion::Observed,
     };
     let words: Vec<&str> = watch.split(|c: char| c == ',' || c.is_whitespace()).filter(|w| !w.is_empty()).collect();
     let options = INTERVENE.option_words();
     let mut i = 0;
     while i < words.len() {
+        if words[i] == GROUPS_WORD {
+            request.groups = read_group_question(words.get(i + 1).copied(), words.get(i + 2).copied())?;
+            i += 3;
+            continue;
+        }
         match (words[i], words.get(i + 1)) {
             (key, Some(value)) if options.contains(&key) && key != super::grammar::INTERVALS_WORD => {
                 let n: u64 = value.parse().map_err(|_| format!("{key} takes a whole number, not `{value}`"))?;
@@ -350,6 +378,20 @@ fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionReque
         }
     }
     Ok((name, request, mass))
+}
+
+/// The word that opens `in new C` / `in C LEVEL` of `intervene`.
+const GROUPS_WORD: &str = "in";
+
+/// `in new C` (a new group of pooled column C) or `in C LEVEL` (its
+/// existing level LEVEL), the two words after `in`.
+fn read_group_question(first: Option<&str>, second: Option<&str>) -> Result<crate::query::GroupQuestion, String> {
+    use crate::query::GroupQuestion;
+    match (first, second) {
+        (Some("new"), Some(column)) => Ok(GroupQuestion::New { column: column.to_string() }),
+        (Some(column), Some(level)) => Ok(GroupQuestion::Existing { column: column.to_string(), level: level.to_string() }),
+        _ => Err("`in` takes a pooled column and one of its levels (`in site north`) or `new` and the column (`in new site`)".to_string()),
+    }
 }
 
 /// `simulate NAME from GRAPH rows N seed S:` with one mechanism per node.
@@ -412,7 +454,7 @@ fn unused_parent_warnings(simulation: &Simulation, graph: &str) -> Result<Vec<St
         .map(|(node, line, unused)| {
             let (them, it) = if unused.len() == 1 { ("its parent", "it") } else { ("its parents", "them") };
             let why = match simulation.mechanism(&node) {
-                Some(Mechanism::Category { .. }) => format!("a category mechanism draws fixed shares, so {node} cannot depend on {it} here"),
+                Some(Mechanism::Category { score: None, .. }) => format!("a category mechanism draws fixed shares, so {node} cannot depend on {it} here"),
                 _ => format!("use {it} in the mechanism, or remove the edge if {node} should not depend on {it}"),
             };
             format!(

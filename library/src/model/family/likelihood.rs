@@ -1,5 +1,6 @@
 //! Row-by-row log-likelihoods of the GLM families (bernoulli, binomial,
-//! poisson) and their gradients with respect to the coefficients.
+//! poisson; the gamma-poisson, beta and time rows come from `shaped` and
+//! `survival`) and their gradients with respect to the coefficients.
 //!
 //! Each row contributes `y·η − m·softplus(η)` (logit link, `m` trials) or
 //! `y·η − e^η` (log link), plus a constant that does not depend on the
@@ -33,6 +34,7 @@ use statrs::function::gamma::ln_gamma;
 
 use super::kernels::{exp, softplus_and_logistic};
 use super::shaped::{beta_row, gamma_poisson_row, BetaPrecision, BetaShare, GammaShape};
+use super::survival::{time_row, TimeForm, TimeRow, TimeShape};
 
 /// Rows per block of the stored design.
 const BLOCK: usize = 64;
@@ -51,6 +53,9 @@ pub enum GlmOutcome {
     /// Beta shares in (0, 1), kept as their logs: the likelihood also takes
     /// `log(precision)`.
     Beta { y: Vec<f64>, shares: Vec<BetaShare> },
+    /// Positive times, each with its event indicator: a Weibull likelihood
+    /// also takes `log(shape)`, an exponential one has shape 1.
+    Times { y: Vec<f64>, rows: Vec<TimeRow>, form: TimeForm },
 }
 
 /// One run of pooled departures as the likelihood sees it: each row's
@@ -123,6 +128,15 @@ impl GlmData {
         }
     }
 
+    /// Each row's event indicator (time families only): 1 for an event, 0
+    /// for a row cut short.
+    pub fn time_rows(&self) -> Option<&[TimeRow]> {
+        match &self.outcome {
+            GlmOutcome::Times { rows, .. } => Some(rows),
+            _ => None,
+        }
+    }
+
     /// The full log-likelihood at coefficients `beta` (followed by the
     /// groups' departures, [`GlmData::with_groups`]), adding its gradient
     /// into `grad`. Returns `-inf` where the likelihood underflows to zero.
@@ -187,7 +201,14 @@ impl GlmData {
         if width == 0 {
             return (self.constant, 0.0);
         }
-        let shape = FamilyShape { gamma: GammaShape::from_log_overdispersion(u), beta: BetaPrecision::from_log_precision(u) };
+        let shape = FamilyShape {
+            gamma: GammaShape::from_log_overdispersion(u),
+            beta: BetaPrecision::from_log_precision(u),
+            times: match &self.outcome {
+                GlmOutcome::Times { form: TimeForm::Exponential, .. } => TimeShape::exponential(),
+                _ => TimeShape::from_log_shape(u),
+            },
+        };
         let mut d_u = [0.0; BLOCK];
         let total_width = width + self.departures();
         let (beta, departures) = beta[..total_width].split_at(width);
@@ -272,6 +293,14 @@ impl GlmData {
                     d_u[i] += d_shape;
                 }
             }
+            GlmOutcome::Times { rows: times, .. } => {
+                for (i, &row) in times[rows].iter().enumerate() {
+                    let (term, d_eta, d_shape) = time_row(row, eta[i], shape.times);
+                    terms[i] += term;
+                    slope[i] = d_eta;
+                    d_u[i] += d_shape;
+                }
+            }
         }
     }
 }
@@ -281,6 +310,7 @@ impl GlmData {
 struct FamilyShape {
     gamma: GammaShape,
     beta: BetaPrecision,
+    times: TimeShape,
 }
 
 /// The sum of a multiple of eight lanes: eight partial sums, then a fixed
@@ -421,6 +451,7 @@ fn log_likelihood_constant(outcome: &GlmOutcome) -> f64 {
             .sum(),
         GlmOutcome::Poisson { y } | GlmOutcome::GammaPoisson { y } => -y.iter().map(|&v| log_factorial(v)).sum::<f64>(),
         GlmOutcome::Beta { y, shares } => -y.iter().zip(shares).map(|(&v, s)| v.ln() + s.log_complement).sum::<f64>(),
+        GlmOutcome::Times { rows, .. } => -rows.iter().map(|r| r.event * r.log_time).sum::<f64>(),
     }
 }
 
@@ -447,7 +478,23 @@ mod tests {
             GlmOutcome::Poisson { y: successes.clone() },
             GlmOutcome::GammaPoisson { y: successes.clone() },
             shares_of(&successes, &trials),
+            times_of(&successes),
         ]
+    }
+
+    /// Exponential times `s + ½`, every fourth row cut short.
+    fn times_of(successes: &[f64]) -> GlmOutcome {
+        let y: Vec<f64> = successes.iter().map(|s| s + 0.5).collect();
+        let rows = y.iter().enumerate().map(|(i, &t)| TimeRow::new(t, i % 4 == 0)).collect();
+        GlmOutcome::Times { y, rows, form: TimeForm::Exponential }
+    }
+
+    /// An exponential row by its definition (mean e^η, module doc of
+    /// `family::survival`) without `−δ·log y`: `δ·(log y − η) − y·e^−η`,
+    /// and its derivative in η, `y·e^−η − δ`.
+    fn exponential_by_definition(row: TimeRow, eta: f64) -> (f64, f64) {
+        let y = row.log_time.exp();
+        (row.event * (row.log_time - eta) - y * (-eta).exp(), y * (-eta).exp() - row.event)
     }
 
     /// Beta shares `(s + ½)/(m + 1)`, strictly inside (0, 1).
@@ -486,6 +533,7 @@ mod tests {
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
                 GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
                 GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
+                GlmOutcome::Times { rows, .. } => exponential_by_definition(rows[i], eta),
             };
             total += value;
             for (g, x) in grad.iter_mut().zip(row) {
@@ -563,6 +611,7 @@ mod tests {
                 GlmOutcome::Poisson { y } => (y[i] * eta - eta.exp(), y[i] - eta.exp()),
                 GlmOutcome::GammaPoisson { y } => gamma_poisson_at_one(y[i], eta),
                 GlmOutcome::Beta { shares, .. } => beta_at_one(shares[i], eta),
+                GlmOutcome::Times { rows, .. } => exponential_by_definition(rows[i], eta),
             };
             value += term.abs() + (y_of(outcome, i) * eta).abs();
             for (g, x) in gradient.iter_mut().zip(row) {
@@ -578,7 +627,8 @@ mod tests {
             | GlmOutcome::Binomial { y, .. }
             | GlmOutcome::Poisson { y }
             | GlmOutcome::GammaPoisson { y }
-            | GlmOutcome::Beta { y, .. } => y[i],
+            | GlmOutcome::Beta { y, .. }
+            | GlmOutcome::Times { y, .. } => y[i],
         }
     }
 

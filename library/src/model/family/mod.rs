@@ -5,7 +5,9 @@
 //! gamma-poisson — log. The
 //! levels family (a category outcome with K levels) has K − 1 linear
 //! predictors, one per level after the first, and a softmax link to the
-//! level probabilities. The likelihoods live in [`likelihood`] (row by row,
+//! level probabilities. The graded family (an ordered category outcome)
+//! has one linear predictor, a latent logistic score cut into the levels
+//! at learned, ordered cut points ([`ordered`]). The likelihoods live in [`likelihood`] (row by row,
 //! for the GLM families), [`gaussian`] (through sufficient statistics, for
 //! the normal family) and [`softmax`] (row by row, for the levels family);
 //! pooled groups add their departures to the linear predictor and their
@@ -16,16 +18,23 @@
 //! ([`Family::family_parameter`]): one positive parameter, sampled on the
 //! log scale, placed after the coefficients. The gamma-poisson and beta
 //! rows' arithmetic is in [`shaped`].
+//!
+//! The time families (exponential, Weibull; log link to the mean time, rows
+//! cut short adding their log survival) and the Weibull `shape` are in
+//! [`survival`].
 
 pub mod gaussian;
 mod kernels;
 pub mod likelihood;
 pub mod correlated;
+pub mod ordered;
 pub mod pooling;
 pub mod shaped;
 pub mod softmax;
+pub mod survival;
 
 use super::error::ModelError;
+use survival::{parse_time_family, TimeForm};
 
 /// The outcome distribution of a model.
 #[derive(Debug, Clone, PartialEq)]
@@ -46,20 +55,31 @@ pub enum Family {
     /// distributed with `precision` φ (learned): shape parameters μφ and
     /// (1 − μ)φ, variance μ(1 − μ)/(1 + φ).
     Beta,
+    /// Positive time, log link to its mean, exponential or Weibull
+    /// (`shape` learned); rows where the column `cut_short` is yes add their
+    /// log survival ([`survival`]).
+    Times { form: TimeForm, cut_short: Option<String> },
     /// Category outcome: one linear predictor per level after the first
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
     Levels,
+    /// Ordered category outcome: one linear predictor, a latent logistic
+    /// score cut into the levels at learned, ordered cut points
+    /// (cumulative logit, [`ordered`]). The levels and their order come
+    /// from the outcome column's declaration.
+    Graded,
 }
 
 /// The family words of a `family` line (binomial then takes `out of <column>`).
-pub const FAMILY_WORDS: &[&str] = &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, BINOMIAL];
+pub const FAMILY_WORDS: &[&str] =
+    &[NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, LEVELS, GRADED, BINOMIAL, survival::EXPONENTIAL, survival::WEIBULL];
 const NORMAL: &str = "normal";
 const BERNOULLI: &str = "bernoulli";
 const POISSON: &str = "poisson";
 const GAMMA_POISSON: &str = "gamma_poisson";
 const BETA: &str = "beta";
 const LEVELS: &str = "levels";
+const GRADED: &str = "graded";
 /// The label of the normal family's residual sd.
 pub const SPREAD: &str = "spread";
 /// The label of the gamma-poisson family's sd of the rate multiplier.
@@ -77,6 +97,9 @@ impl Family {
     /// `gamma_poisson`, `beta`, `levels`, or `binomial out of <column>`.
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
+        if let Some(times) = parse_time_family(&words) {
+            return times.map(|(form, cut_short)| Family::Times { form, cut_short });
+        }
         match words[..] {
             [NORMAL] => Ok(Family::Normal),
             [BERNOULLI] => Ok(Family::Bernoulli),
@@ -84,13 +107,15 @@ impl Family {
             [GAMMA_POISSON] => Ok(Family::GammaPoisson),
             [BETA] => Ok(Family::Beta),
             [LEVELS] => Ok(Family::Levels),
+            [GRADED] => Ok(Family::Graded),
             [BINOMIAL, out, of, column] if [out, of] == OUT_OF => Ok(Family::Binomial { trials: column.to_string() }),
             [BINOMIAL, ..] => Err(ModelError::syntax(
                 "a binomial outcome needs the column that holds each row's number of trials: \
                  write `family binomial out of <column>`",
             )),
             _ => Err(ModelError::syntax(format!(
-                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels or binomial out of <column>"
+                "`family {text}`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, graded, binomial out of \
+                 <column>, exponential or weibull (either with `cut short by <column>`)"
             ))),
         }
     }
@@ -105,6 +130,8 @@ impl Family {
             Family::GammaPoisson => GAMMA_POISSON,
             Family::Beta => BETA,
             Family::Levels => LEVELS,
+            Family::Times { form, .. } => form.word(),
+            Family::Graded => GRADED,
         }
     }
 
@@ -113,8 +140,9 @@ impl Family {
         match self {
             Family::Normal => "identity",
             Family::Bernoulli | Family::Binomial { .. } | Family::Beta => "logit",
-            Family::Poisson | Family::GammaPoisson => "log",
+            Family::Poisson | Family::GammaPoisson | Family::Times { .. } => "log",
             Family::Levels => "softmax",
+            Family::Graded => "cumulative logit",
         }
     }
 
@@ -132,6 +160,7 @@ impl Family {
             Family::Normal => Some(SPREAD),
             Family::GammaPoisson => Some(OVERDISPERSION),
             Family::Beta => Some(PRECISION),
+            Family::Times { form: TimeForm::Weibull, .. } => Some(survival::SHAPE),
             _ => None,
         }
     }
@@ -143,8 +172,8 @@ impl Family {
     pub fn inverse_link(&self, eta: f64) -> f64 {
         match self {
             Family::Normal => eta,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => logistic(eta),
-            Family::Poisson | Family::GammaPoisson => eta.exp(),
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels | Family::Graded => logistic(eta),
+            Family::Poisson | Family::GammaPoisson | Family::Times { .. } => eta.exp(),
         }
     }
 
@@ -155,11 +184,11 @@ impl Family {
     pub fn link(&self, mu: f64) -> f64 {
         match self {
             Family::Normal => mu,
-            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels => {
+            Family::Bernoulli | Family::Binomial { .. } | Family::Beta | Family::Levels | Family::Graded => {
                 let p = mu.clamp(1e-3, 1.0 - 1e-3);
                 (p / (1.0 - p)).ln()
             }
-            Family::Poisson | Family::GammaPoisson => mu.max(1e-3).ln(),
+            Family::Poisson | Family::GammaPoisson | Family::Times { .. } => mu.max(1e-3).ln(),
         }
     }
 }

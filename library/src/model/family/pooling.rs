@@ -121,7 +121,18 @@ impl Pooling {
     /// design has one (the first centred group is then sampled around it).
     /// `slope_priors[k]` are group k's varying slopes' spread priors, `lkj`
     /// the η of their correlation matrices.
-    pub fn new(terms: &[GroupTerm], spread_priors: &[Prior], slope_priors: &[Vec<Prior>], lkj: f64, intercept: Option<usize>) -> Pooling {
+    ///
+    /// A category outcome's groups (`GroupTerm::block`) sit on their
+    /// outcome level's run of `width` coefficients: the intercept and
+    /// slopes they are sampled around are that run's.
+    pub fn new(
+        terms: &[GroupTerm],
+        spread_priors: &[Prior],
+        slope_priors: &[Vec<Prior>],
+        lkj: f64,
+        intercept: Option<usize>,
+        width: usize,
+    ) -> Pooling {
         let centred = |t: &GroupTerm| t.layout.centred_effects(1 + t.slopes.len());
         let around = intercept.and_then(|_| terms.iter().position(|t| centred(t) > 0));
         Pooling {
@@ -136,10 +147,10 @@ impl Pooling {
                     around_intercept: around == Some(k),
                     slopes: slope_priors.get(k).cloned().unwrap_or_default(),
                     lkj,
-                    slope_coefficients: t.slopes.iter().map(|s| s.design_column).collect(),
+                    slope_coefficients: t.slopes.iter().map(|s| s.design_column + t.block() * width).collect(),
                 })
                 .collect(),
-            intercept: around.and(intercept),
+            intercept: around.and_then(|k| intercept.map(|j| j + terms[k].block() * width)),
         }
     }
 

@@ -13,6 +13,15 @@
 //! after subtracting the largest predictor, so large predictors neither
 //! overflow nor lose the small probabilities. Rows are summed in order, so
 //! the result does not depend on the number of threads.
+//!
+//! **Pooled groups.** A pooled column gives every outcome level after the
+//! reference its own departures, one per group level: `ηₖ(i) = xᵢ·βₖ +
+//! aₖ[level of row i]` (plus `xᵢ·aₖₓ[…]` for a varying slope of `x`). Each
+//! run of departures ([`DepartureRun`]) names the linear predictor it adds
+//! to; the coefficients handed in are the `(K − 1)·p` coefficients followed
+//! by every run's departures, so the derivative in a departure is the sum
+//! over its level's rows of `([y = k] − pₖ)` (times `xᵢ` for a slope's) —
+//! the same residual that multiplies the design in βₖ's gradient.
 
 /// Design and outcome levels of a levels-family model, ready for repeated
 /// likelihood evaluations.
@@ -24,13 +33,36 @@ pub struct SoftmaxData {
     /// The outcome level of each row (0 is the reference).
     outcome: Vec<usize>,
     levels: usize,
+    /// Pooled departures, run by run in parameter order.
+    runs: Vec<DepartureRun>,
+}
+
+/// One run of pooled departures on one linear predictor.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DepartureRun {
+    /// The outcome level after the reference (0 for the first) whose
+    /// linear predictor the departures move.
+    pub block: usize,
+    /// The rows' group levels and, for a varying slope, their multipliers.
+    pub indices: super::likelihood::GroupIndices,
 }
 
 impl SoftmaxData {
     /// From a row-major design (`rows.len() == n · width`), the outcome
     /// level of each row and the number of levels K (at least 2).
     pub fn new(rows: Vec<f64>, width: usize, outcome: Vec<usize>, levels: usize) -> Self {
-        SoftmaxData { rows, width, outcome, levels }
+        SoftmaxData { rows, width, outcome, levels, runs: Vec::new() }
+    }
+
+    /// The same data with pooled departures (module docs); each run has
+    /// one level per row and a block below K − 1.
+    pub fn with_runs(mut self, runs: Vec<DepartureRun>) -> Self {
+        for run in &runs {
+            assert_eq!(run.indices.level_of_row.len(), self.outcome.len(), "one level per row");
+            assert!(run.block + 1 < self.levels, "a block per level after the reference");
+        }
+        self.runs = runs;
+        self
     }
 
     /// The full log-likelihood at coefficients `beta` (level by level, see
@@ -38,11 +70,15 @@ impl SoftmaxData {
     /// where the likelihood is not finite.
     pub fn log_likelihood_and_gradient(&self, beta: &[f64], grad: &mut [f64]) -> f64 {
         let (p, k) = (self.width, self.levels);
+        let starts = self.run_starts(k);
         let mut eta = vec![0.0; k];
         let mut probabilities = vec![0.0; k];
         let mut total = 0.0;
-        for (x, &y) in self.rows.chunks_exact(p.max(1)).zip(&self.outcome) {
+        for (i, (x, &y)) in self.rows.chunks_exact(p.max(1)).zip(&self.outcome).enumerate() {
             linear_predictors(x, beta, &mut eta);
+            for (run, &start) in self.runs.iter().zip(&starts) {
+                eta[run.block + 1] += run.weight(i) * beta[start + run.indices.level_of_row[i] as usize];
+            }
             let log_sum = log_sum_exp(&eta);
             total += eta[y] - log_sum;
             for (level, pr) in probabilities.iter_mut().enumerate() {
@@ -55,12 +91,39 @@ impl SoftmaxData {
                     *gj += slope * xj;
                 }
             }
+            for (run, &start) in self.runs.iter().zip(&starts) {
+                let slope = f64::from(u8::from(y == run.block + 1)) - probabilities[run.block + 1];
+                grad[start + run.indices.level_of_row[i] as usize] += run.weight(i) * slope;
+            }
         }
         if total.is_nan() {
             f64::NEG_INFINITY
         } else {
             total
         }
+    }
+}
+
+impl SoftmaxData {
+    /// Where each run's departures start among the coefficients handed to
+    /// the likelihood (after the `(K − 1)·p` coefficients).
+    fn run_starts(&self, k: usize) -> Vec<usize> {
+        let mut at = (k - 1) * self.width;
+        self.runs
+            .iter()
+            .map(|run| {
+                let start = at;
+                at += run.indices.levels;
+                start
+            })
+            .collect()
+    }
+}
+
+impl DepartureRun {
+    /// Row `i`'s multiplier of its departure (1 for a varying intercept).
+    fn weight(&self, i: usize) -> f64 {
+        self.indices.weights.as_ref().map_or(1.0, |w| w[i])
     }
 }
 

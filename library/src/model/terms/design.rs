@@ -49,7 +49,9 @@ pub fn group_spread_label(column: &str) -> String {
 
 impl GroupTerm {
     /// Labels of the group's parameters: its spread, then one departure per
-    /// level (`block spread`, `block departure[B1]`, …).
+    /// level (`block spread`, `block departure[B1]`, …); a category
+    /// outcome's group starts each with its outcome level's prefix
+    /// (`form[shrub vs herb]: block spread`).
     ///
     /// A group with varying slopes goes on with each slope's spread and
     /// departures (`block girth spread`, `block girth departure[B1]`, …),
@@ -71,6 +73,10 @@ impl GroupTerm {
             for j in 0..i {
                 labels.push(correlation_label(&self.column, effects[j], effects[i]));
             }
+        }
+        let prefix = self.label_prefix();
+        if !prefix.is_empty() {
+            labels.iter_mut().for_each(|l| l.insert_str(0, prefix));
         }
         labels
     }

@@ -87,7 +87,7 @@ pub enum GroupLayout {
     NonCentred,
     /// A group with varying slopes whose first `n` effects (the intercept,
     /// then slopes in the order written) are centred and the rest
-    /// non-centred; chosen from the data only.
+    /// non-centred; chosen from the data, or by `parameterise c centred n`.
     CentredFirst(usize),
 }
 
@@ -157,6 +157,22 @@ pub struct GroupTerm {
     /// (`pooled block with girth`, `pooled block with (girth, age)`), in
     /// the order written; empty for varying intercepts only.
     pub slopes: Vec<VaryingSlope>,
+    /// For a category outcome (family levels), the outcome level whose log
+    /// odds against the reference these departures move; `None` for every
+    /// other family. Such a model pools a column once per outcome level
+    /// after the reference, each with a spread of its own.
+    pub outcome_level: Option<OutcomeLevel>,
+}
+
+/// The outcome level (after the reference) a levels-family group's
+/// departures belong to.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OutcomeLevel {
+    /// 0 for the first level after the reference: the level's run of
+    /// coefficients and its linear predictor.
+    pub block: usize,
+    /// The level's label prefix, `form[shrub vs herb]: `.
+    pub prefix: String,
 }
 
 /// The predictor of one of a group's varying slopes: its column and the design
@@ -194,7 +210,25 @@ impl GroupTerm {
             layout: GroupLayout::NonCentred,
             choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0, slopes: Vec::new() },
             slopes: Vec::new(),
+            outcome_level: None,
         })
+    }
+
+    /// The same group for outcome level `block + 1` of a category outcome,
+    /// its labels starting with `prefix` (`form[shrub vs herb]: `).
+    pub fn for_outcome_level(&self, block: usize, prefix: String) -> GroupTerm {
+        GroupTerm { outcome_level: Some(OutcomeLevel { block, prefix }), ..self.clone() }
+    }
+
+    /// The linear predictor the departures are added to (0 but for a
+    /// category outcome's later levels).
+    pub fn block(&self) -> usize {
+        self.outcome_level.as_ref().map_or(0, |o| o.block)
+    }
+
+    /// The start of the group's labels: the outcome level's prefix, or nothing.
+    pub fn label_prefix(&self) -> &str {
+        self.outcome_level.as_ref().map_or("", |o| o.prefix.as_str())
     }
 
     /// Set the layout: the declared one, else the rule of the module docs
@@ -256,8 +290,14 @@ impl GroupTerm {
             self.rows_per_level.iter().copied().min().unwrap_or(0),
             self.rows_per_level.iter().copied().max().unwrap_or(0),
         );
+        let centred_names = |n: usize| -> String {
+            std::iter::once("intercept").chain(self.slopes.iter().map(|s| s.column.as_str())).take(n).collect::<Vec<_>>().join(", ")
+        };
         let why = match &self.choice {
-            LayoutChoice::Declared => "as the parameterise line says".to_string(),
+            LayoutChoice::Declared => match self.layout {
+                GroupLayout::CentredFirst(n) => format!("as the parameterise line says; centred: {}, the rest non-centred", centred_names(n)),
+                _ => "as the parameterise line says".to_string(),
+            },
 
             LayoutChoice::FromData { median_ratio, rough_spread, slopes } => {
                 let mut why = format!(
@@ -278,12 +318,12 @@ impl GroupTerm {
                 let split = match self.layout {
                     GroupLayout::CentredFirst(n) => format!(
                         "; slopes below {SLOPE_CENTRED_AT} are sampled non-centred, with every slope after them (centred: {})",
-                        std::iter::once("intercept").chain(self.slopes.iter().map(|s| s.column.as_str())).take(n).collect::<Vec<_>>().join(", ")
+                        centred_names(n)
                     ),
                     _ => String::new(),
                 };
                 format!(
-                    "{why}; centred from {CENTRED_AT}{split}; a `parameterise {} centred|noncentred` line overrides this",
+                    "{why}; centred from {CENTRED_AT}{split}; a `parameterise {} centred|noncentred|centred N` line overrides this",
                     self.column
                 )
             }
@@ -311,8 +351,12 @@ impl GroupTerm {
                 )
             }
         };
+        let outcome_level = match &self.outcome_level {
+            Some(o) => format!(" on the log odds of {}", o.prefix.trim_end_matches([':', ' '])),
+            None => String::new(),
+        };
         format!(
-            "pooled {}: {} levels ({} to {} rows each), each departing from the population by its own amount on \
+            "pooled {}{outcome_level}: {} levels ({} to {} rows each), each departing from the population by its own amount on \
              the link scale, {what}; sampled {} ({why})",
             self.column,
             self.levels.len(),

@@ -1,0 +1,45 @@
+//! What a time model (exponential, Weibull) knows of its rows cut short,
+//! for the code that simulates outcomes like the data's.
+//!
+//! A row cut short has, as its time, the end of its follow-up; a row with
+//! its event was followed at least that long, by an amount the data do not
+//! say. Simulated times (for calibration and predictive checks) are cut the
+//! same way: at each cut-short row's follow-up end, and not at all on the
+//! rows with an event. The ends are fixed, not drawn from the parameters, so
+//! calibration stays exact (the cutting does not depend on what is
+//! estimated), and a predictive set of times has the data's censoring.
+
+use super::family::survival::cut_at_follow_up;
+use super::family::Family;
+use super::posterior::{Likelihood, Model};
+
+impl Model {
+    /// Per fitted row, whether its follow-up was cut short (`None` for a
+    /// model that is not a time model with a `cut short by` column).
+    pub fn cut_short_rows(&self) -> Option<Vec<bool>> {
+        match (&self.family, &self.likelihood) {
+            (Family::Times { cut_short: Some(_), .. }, Likelihood::Glm(glm)) => {
+                glm.time_rows().map(|rows| rows.iter().map(|r| r.event == 0.0).collect())
+            }
+            _ => None,
+        }
+    }
+
+    /// Per fitted row, the end of its follow-up when it was cut short.
+    fn follow_up_ends(&self) -> Option<Vec<Option<f64>>> {
+        let cut = self.cut_short_rows()?;
+        Some(cut.iter().zip(&self.y).map(|(&c, &t)| c.then_some(t)).collect())
+    }
+
+    /// Simulated outcomes `y` of the fitted rows, cut like the data's (module
+    /// doc), with whether each was cut; other models' outcomes unchanged.
+    pub fn cut_like_the_data(&self, y: Vec<f64>) -> (Vec<f64>, Option<Vec<bool>>) {
+        match self.follow_up_ends() {
+            Some(ends) if ends.len() == y.len() => {
+                let (times, cut) = cut_at_follow_up(&y, &ends);
+                (times, Some(cut))
+            }
+            _ => (y, None),
+        }
+    }
+}
