@@ -166,7 +166,7 @@ fn build(spec: &ModelSpec, table: &DiskTable, cancel: &AtomicBool) -> Result<Mod
             let stats = GaussianStats::from_sums(xtx.clone(), DVector::from_vec(sums.xty.clone()), sums.yty, n, y_mean, intercepts);
             Likelihood::Gaussian { stats, spread_prior }
         }
-        _ => Likelihood::Glm(glm_data(&DMatrix::zeros(0, p), &spec.family, &OutcomeValues { y: Vec::new(), trials: None, levels: None })),
+        _ => Likelihood::Glm(glm_data(&DMatrix::zeros(0, p), &spec.family, &OutcomeValues { y: Vec::new(), trials: None, levels: None, cut_short: None })),
     };
     notes.push(format!(
         "the table stays on disk ({}): the engine gathered the sums this model needs over its {} rows",
@@ -192,7 +192,7 @@ fn build(spec: &ModelSpec, table: &DiskTable, cancel: &AtomicBool) -> Result<Mod
         start,
         groups: Vec::new(),
         group_rows: Vec::new(),
-        pooling: Pooling::new(&[], &[], &[], priors.correlation_lkj, None),
+        pooling: Pooling::new(&[], &[], &[], priors.correlation_lkj, None, p),
         family_prior: None,
         on_disk: Some(OnDisk { table: table.clone(), layout, rows: n as usize, nonzero: sums.nonzero, xtx, passes }),
     })

@@ -34,7 +34,7 @@ impl OutcomeValues {
     #[cfg(feature = "on_disk")]
     pub(crate) fn with_moments(mean: f64, sd: f64) -> Self {
         let half = sd / std::f64::consts::SQRT_2;
-        OutcomeValues { y: vec![mean - half, mean + half], trials: None, levels: None }
+        OutcomeValues { y: vec![mean - half, mean + half], trials: None, levels: None, cut_short: None }
     }
 
     /// The mean outcome per trial (per row for families without trials).
