@@ -59,11 +59,13 @@ cargo build --release --workspace --locked
 echo "== Rust tests"
 cargo test --release --workspace --locked
 
-echo "== the columnar feature (Parquet and Arrow tables)"
-# Built last so the probes the Python checks call read Parquet; the default
-# builds above stay without it, as the README's first command builds.
-cargo build --release --locked -p waypath-probe --features columnar
-cargo test --release --locked -p waypath --features columnar --test table_columnar
+echo "== the features columnar (Parquet and Arrow tables) and on_disk (DataFusion)"
+# Built after the default builds above, which stay without them as the
+# README's first command builds. on_disk includes columnar, so one build of
+# the library serves both tests and the probes the Python checks call (the
+# cell probe runs tables on disk, the table probe reads Parquet).
+cargo build --release --locked -p waypath-probe --features columnar,on_disk
+cargo test --release --locked -p waypath --features on_disk --test table_columnar --test table_on_disk
 
 echo "== Python reference checks"
 export WAYPATH_BIN_DIR="$CARGO_TARGET_DIR/release"

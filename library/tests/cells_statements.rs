@@ -277,6 +277,20 @@ fn export_and_save_never_overwrite_a_file_the_session_read_as_data() {
     assert!(leftovers.is_empty(), "{leftovers:?}");
 }
 
+/// Without the feature `on_disk`, `stay on disk` is refused with the feature
+/// named and the build command, and no table is made.
+#[cfg(not(feature = "on_disk"))]
+#[test]
+fn stay_on_disk_without_the_feature_is_refused_with_the_feature_named() {
+    let dir = std::env::temp_dir().join(format!("waypath-stay-on-disk-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut session = Session::new(&dir);
+    let outcome = run(&mut session, "table plots from \"plots.parquet\":\n    stay on disk");
+    let error = outcome.error.expect("refused").to_string();
+    assert!(error.contains("\"stay on disk\" needs a Waypath built with the cargo feature \"on_disk\""), "{error}");
+    assert!(session.table("plots").is_none());
+}
+
 /// README "Default priors": the coefficients' defaults are shares of one
 /// budget, while the family's own parameter (here the spread, whose
 /// default is `half_normal` of the outcome's sd) is set from the outcome;

@@ -124,3 +124,12 @@ fn unrecognised_lines_say_what_a_line_can_be() {
     expect![[r#"table cell line "girth real": expected a column declaration such as "girth: real in cm", "drop missing" or "keep where" and a condition"#]]
         .assert_eq(&problem("girth real"));
 }
+
+#[test]
+fn stay_on_disk_is_a_rule_and_sets_the_spec() {
+    assert_eq!(parse_table_line("stay  on disk").unwrap(), TableRule::StayOnDisk);
+    let spec = waypath::table::TableSpec::with_rules("t", "plots.parquet", [TableRule::StayOnDisk]).unwrap();
+    assert!(spec.on_disk);
+    let error = parse_table_line("stay here").unwrap_err().to_string();
+    assert!(error.contains("write \"stay on disk\""), "{error}");
+}

@@ -35,6 +35,9 @@ pub(crate) struct SimulationRecord {
 pub struct Session {
     pub(crate) base_dir: PathBuf,
     pub(crate) tables: BTreeMap<String, Table>,
+    /// Tables whose rows stay on disk (`stay on disk`, feature `on_disk`).
+    #[cfg(feature = "on_disk")]
+    pub(crate) disk_tables: BTreeMap<String, crate::table::on_disk::DiskTable>,
     pub(crate) graphs: BTreeMap<String, Graph>,
     pub(crate) models: BTreeMap<String, Model>,
     pub(crate) fits: BTreeMap<String, Fit>,
@@ -120,7 +123,28 @@ impl Session {
     /// Publish a table under `name` (used by Rust cells and by `simulate`).
     pub fn put_table(&mut self, name: &str, mut table: Table) {
         table.name = name.to_string();
+        #[cfg(feature = "on_disk")]
+        self.disk_tables.remove(name);
         self.tables.insert(name.to_string(), table);
+    }
+
+    /// Publish a table whose rows stay on disk under `name`.
+    #[cfg(feature = "on_disk")]
+    pub fn put_disk_table(&mut self, name: &str, mut table: crate::table::on_disk::DiskTable) {
+        table.name = name.to_string();
+        self.tables.remove(name);
+        self.disk_tables.insert(name.to_string(), table);
+    }
+
+    /// Refuses a statement that needs the rows of model `model`'s table
+    /// when they stay on disk, saying what does work there.
+    pub(crate) fn refuse_on_disk(&self, model: &Model, line: usize) -> Result<(), CellError> {
+        #[cfg(feature = "on_disk")]
+        if model.on_disk().is_some() {
+            return Err(on_disk_refusal(model.table_name(), line));
+        }
+        let _ = (model, line);
+        Ok(())
     }
 
     /// Names of every object in the session, by kind (for completion).
@@ -161,6 +185,10 @@ impl Session {
     }
 
     pub(crate) fn require_table(&self, name: &str, line: usize) -> Result<&Table, CellError> {
+        #[cfg(feature = "on_disk")]
+        if self.disk_tables.contains_key(name) {
+            return Err(on_disk_refusal(name, line));
+        }
         self.tables.get(name).ok_or_else(|| {
             CellError::at(line, format!("there is no table named {name}{}", suggest(name, self.tables.keys())))
         })
@@ -171,6 +199,19 @@ impl Session {
             CellError::at(line, format!("there is no graph named {name}{}", suggest(name, self.graphs.keys())))
         })
     }
+}
+
+/// Why a statement that needs rows in memory does not run on a table on disk.
+#[cfg(feature = "on_disk")]
+fn on_disk_refusal(table: &str, line: usize) -> CellError {
+    CellError::at(
+        line,
+        format!(
+            "table {table} stays on disk, and this statement needs its rows in memory; on a table on disk, `model`, \
+             `fit`, `show`, `export … draws` and `plot … estimates|mixing` run (remove \"stay on disk\" to load the \
+             table into memory if it fits there)"
+        ),
+    )
 }
 
 /// " (did you mean a, b?)" for names within a small edit distance, or a list

@@ -90,6 +90,9 @@ pub struct Fit {
     pub step_size: Option<f64>,
     pub warnings: Vec<String>,
     pub seconds: f64,
+    /// Which path the fit took when its table stayed on disk (the engine's
+    /// passes and what they gathered); `None` in memory.
+    pub route: Option<String>,
 }
 
 /// Why a fit failed.
@@ -103,6 +106,9 @@ pub enum FitError {
     Draws(String),
     #[error("{0}")]
     TooLarge(String),
+    /// A fit a table on disk cannot take, or an engine pass that failed.
+    #[error("{0}")]
+    OnDisk(String),
     /// A Laplace fit of a model with pooled groups failed, as it usually does.
     #[error(
         "{0}; a Laplace approximation suits pooled groups poorly (the joint mode of a spread and its departures \
@@ -123,7 +129,20 @@ pub fn fit_model(
     let started = std::time::Instant::now();
     let names = model.parameter_names();
     let method = &with_mass_matrix_chosen(model, method);
+    let passes_before = disk_passes(model);
     let (run, max_depth) = match method {
+        #[cfg(feature = "on_disk")]
+        Method::Laplace { draws, seed } if model.on_disk().is_some() && model.likelihood_in_file() => {
+            let fit = crate::infer::on_disk::disk_laplace(model, *draws, *seed, cancel).map_err(|e| match e {
+                crate::infer::on_disk::DiskFitError::Laplace(e) => FitError::Laplace(e),
+                crate::infer::on_disk::DiskFitError::Engine(e) => FitError::OnDisk(e),
+            })?;
+            (Err(fit.draws), 0)
+        }
+        #[cfg(feature = "on_disk")]
+        Method::Nuts(_) if model.on_disk().is_some() && model.likelihood_in_file() => {
+            return Err(FitError::OnDisk(nuts_on_disk_refusal(model)));
+        }
         Method::Laplace { draws, seed } => match model.normal_linear().and_then(|p| normal_exact_draws(&p, *draws, *seed)) {
             // The exact route is one short pass; the interrupt is read after it.
             Some(exact) if !cancelled(cancel) => (Err(exact), 0),
@@ -180,7 +199,63 @@ pub fn fit_model(
         step_size,
         warnings,
         seconds: started.elapsed().as_secs_f64(),
+        route: route(model, passes_before),
     })
+}
+
+/// Passes the engine has made for a model on disk so far (0 in memory).
+fn disk_passes(model: &Model) -> usize {
+    #[cfg(feature = "on_disk")]
+    if let Some(disk) = model.on_disk() {
+        return disk.passes().len();
+    }
+    let _ = model;
+    0
+}
+
+/// Which path the fit took, for the summary: `None` for a table in memory.
+fn route(model: &Model, passes_before: usize) -> Option<String> {
+    #[cfg(feature = "on_disk")]
+    if let Some(disk) = model.on_disk() {
+        let passes = disk.passes();
+        let built: f64 = passes[..passes_before.min(passes.len())].iter().map(|p| p.seconds).sum();
+        let fitted = &passes[passes_before.min(passes.len())..];
+        let fit_seconds: f64 = fitted.iter().map(|p| p.seconds).sum();
+        let how = if model.likelihood_in_file() {
+            format!(
+                "{} Newton {} over the file ({:.2} s), each gathering the log-likelihood, its gradient and XᵀWX",
+                fitted.len(),
+                if fitted.len() == 1 { "pass" } else { "passes" },
+                fit_seconds
+            )
+        } else {
+            "on the normal family's sufficient statistics (XᵀX, Xᵀy, yᵀy), no further pass".to_string()
+        };
+        return Some(format!(
+            "table on disk: {} rows of {} stayed there; the embedded engine (DataFusion) made {} {} while the model \
+             was built ({:.2} s); fitted {how}",
+            disk.rows(),
+            disk.source(),
+            passes_before,
+            if passes_before == 1 { "pass" } else { "passes" },
+            built
+        ));
+    }
+    let _ = (model, passes_before);
+    None
+}
+
+/// Why NUTS is not run on a bernoulli or poisson table on disk.
+#[cfg(feature = "on_disk")]
+fn nuts_on_disk_refusal(model: &Model) -> String {
+    let rows = model.on_disk().map_or(0, |d| d.rows());
+    format!(
+        "NUTS is not run on this table on disk: a {} likelihood has no sufficient statistics, so every gradient \
+         (hundreds per draw) would be a pass over its {rows} rows, and the rows are not loaded into memory; fit it \
+         `with laplace` (Newton steps, one pass each), or load the table into memory (without \"stay on disk\") \
+         if it fits there. Nothing was sampled.",
+        model.family().name()
+    )
 }
 
 /// The method with a NUTS mass matrix left to the model replaced by
@@ -217,6 +292,10 @@ pub const LOW_RANK_CONDITION: f64 = 2.0;
 /// settling. The benchmark measurements behind the threshold are in the
 /// README (Performance).
 pub fn mass_matrix_for(model: &Model) -> MassMatrix {
+    #[cfg(feature = "on_disk")]
+    if let Some(disk) = model.on_disk() {
+        return if cross_condition(&disk.cross_products()) > LOW_RANK_CONDITION { MassMatrix::LowRank } else { MassMatrix::Diagonal };
+    }
     if design_condition(model.design_matrix()) > LOW_RANK_CONDITION {
         MassMatrix::LowRank
     } else {
@@ -245,6 +324,13 @@ pub fn design_condition(design: &nalgebra::DMatrix<f64>) -> f64 {
             }
         }
     }
+    cross_condition(&cross)
+}
+
+/// The condition number of a cross-product `XᵀX` (lower triangle read)
+/// scaled to a unit diagonal; columns that are all 0 are left out.
+pub fn cross_condition(cross: &nalgebra::DMatrix<f64>) -> f64 {
+    let p = cross.nrows();
     let kept: Vec<usize> = (0..p).filter(|&j| cross[(j, j)] > 0.0).collect();
     if kept.len() < 2 {
         return 1.0;

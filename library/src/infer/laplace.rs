@@ -215,7 +215,7 @@ fn stop_if_cancelled(cancel: &AtomicBool) -> Result<(), InferError> {
 
 /// Parameters that load on the directions of non-positive (or, failing
 /// that, the smallest) curvature.
-fn flat_directions(negative_hessian: &DMatrix<f64>, label: &dyn Fn(usize) -> String) -> Vec<String> {
+pub(crate) fn flat_directions(negative_hessian: &DMatrix<f64>, label: &dyn Fn(usize) -> String) -> Vec<String> {
     let eigen = SymmetricEigen::new(negative_hessian.clone());
     let largest = eigen.eigenvalues.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
     let mut flat: Vec<usize> = (0..eigen.eigenvalues.len())
@@ -231,7 +231,7 @@ fn flat_directions(negative_hessian: &DMatrix<f64>, label: &dyn Fn(usize) -> Str
 }
 
 /// `n` draws of `mode + L⁻ᵀz` with `LLᵀ = −H`, so their covariance is `(−H)⁻¹`.
-fn normal_draws(
+pub(crate) fn normal_draws(
     mode: &DVector<f64>,
     cholesky: &Cholesky<f64, Dyn>,
     n: usize,

@@ -15,3 +15,5 @@ pub mod fit;
 pub mod laplace;
 pub mod normal_exact;
 pub mod nuts;
+#[cfg(feature = "on_disk")]
+pub mod on_disk;

@@ -183,6 +183,8 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         group_rows,
         pooling,
         family_prior,
+        #[cfg(feature = "on_disk")]
+        on_disk: None,
     })
 }
 
@@ -498,7 +500,7 @@ pub(super) fn graded_data(design: &DMatrix<f64>, y: &[f64], levels: usize, gaps:
 
 /// The family parameter's starting value: the outcome's sd for the
 /// spread, the moment estimate for the overdispersion or the precision.
-fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -> f64 {
+pub(super) fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -> f64 {
     match family {
         Family::GammaPoisson => moment_overdispersion(&outcome.y),
         Family::Beta => moment_precision(&outcome.y),
@@ -510,7 +512,7 @@ fn family_parameter_start(family: &Family, outcome: &OutcomeValues) -> f64 {
 /// Intercepts at each linear predictor's centre, other coefficients at 0,
 /// the family's parameter at `family_start` (its prior and value) — each
 /// moved inside its prior's support.
-fn starting_point(
+pub(super) fn starting_point(
     blocks: &[PredictorBlock],
     priors: &[Prior],
     family_start: Option<(&Prior, f64)>,

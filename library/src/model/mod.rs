@@ -52,11 +52,15 @@ mod columns;
 mod conjugate;
 mod defaults;
 mod density;
+#[cfg(feature = "on_disk")]
+mod disk_sums;
 pub mod guards;
 mod hidden_cause;
 pub mod error;
 pub mod family;
 mod inputs;
+#[cfg(feature = "on_disk")]
+pub mod on_disk;
 mod outcome;
 mod pointwise;
 mod posterior;

@@ -27,6 +27,16 @@ pub struct OutcomeValues {
 }
 
 impl OutcomeValues {
+    /// A stand-in of two values with mean `mean` and sample sd `sd`, for a
+    /// table on disk whose rows are not in memory: the default priors and
+    /// starting point of the normal, bernoulli and poisson families read the
+    /// outcome only through its mean and sd (`model::defaults`).
+    #[cfg(feature = "on_disk")]
+    pub(crate) fn with_moments(mean: f64, sd: f64) -> Self {
+        let half = sd / std::f64::consts::SQRT_2;
+        OutcomeValues { y: vec![mean - half, mean + half], trials: None, levels: None, cut_short: None }
+    }
+
     /// The mean outcome per trial (per row for families without trials).
     pub fn mean_per_trial(&self) -> f64 {
         let total: f64 = self.y.iter().sum();

@@ -74,6 +74,9 @@ pub struct Model {
     /// GLM family that has one (gamma-poisson: the overdispersion); the
     /// normal family keeps its spread's prior in [`Likelihood::Gaussian`].
     pub(crate) family_prior: Option<Prior>,
+    /// The table on disk the model was built on (no rows in `design`).
+    #[cfg(feature = "on_disk")]
+    pub(crate) on_disk: Option<super::on_disk::OnDisk>,
 }
 
 impl Model {
@@ -148,6 +151,14 @@ impl Model {
     /// every row for the spread. A parameter with no rows rests on its
     /// prior alone.
     pub fn rows_behind(&self) -> Vec<usize> {
+        #[cfg(feature = "on_disk")]
+        if let Some(disk) = &self.on_disk {
+            let mut counts = disk.nonzero.clone();
+            if self.family_parameter().is_some() {
+                counts.push(disk.rows);
+            }
+            return counts;
+        }
         let width = self.design.ncols().max(1);
         let per_column: Vec<usize> =
             (0..self.design.ncols()).map(|j| self.design.column(j).iter().filter(|v| **v != 0.0).count()).collect();

@@ -22,6 +22,8 @@
 //! Parsing and loading never render; the cells module does.
 
 pub mod columnar;
+#[cfg(feature = "on_disk")]
+pub mod on_disk;
 pub mod condition;
 pub mod error;
 pub mod load;

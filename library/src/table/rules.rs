@@ -29,6 +29,11 @@ pub const MISSING: &str = "missing";
 /// The words that start a row filter.
 pub const KEEP: &str = "keep";
 pub const WHERE: &str = "where";
+/// The words that keep a table's rows in its Parquet file or folder
+/// (`stay on disk`, cargo feature `on_disk`).
+pub const STAY: &str = "stay";
+pub const ON: &str = "on";
+pub const DISK: &str = "disk";
 /// The word before a column's unit.
 pub const IN: &str = "in";
 /// The word of the column kind that may list its levels in brackets.
@@ -55,6 +60,9 @@ pub enum TableRule {
     DropMissing,
     /// Keep only the rows where the condition holds.
     KeepWhere(Condition),
+    /// Leave the rows in the file: the engine plans the rules and a
+    /// model's sums over it (`table::on_disk`).
+    StayOnDisk,
 }
 
 /// Everything a `table` cell asks for: where the data is, the declared
@@ -66,6 +74,8 @@ pub struct TableSpec {
     pub declared: Vec<ColumnDecl>,
     pub drop_missing: bool,
     pub filters: Vec<Condition>,
+    /// `stay on disk`: the rows are never loaded into memory.
+    pub on_disk: bool,
 }
 
 impl TableSpec {
@@ -78,6 +88,7 @@ impl TableSpec {
             declared: Vec::new(),
             drop_missing: false,
             filters: Vec::new(),
+            on_disk: false,
         }
     }
 
@@ -105,6 +116,7 @@ impl TableSpec {
             }
             TableRule::DropMissing => self.drop_missing = true,
             TableRule::KeepWhere(condition) => self.filters.push(condition),
+            TableRule::StayOnDisk => self.on_disk = true,
         }
         Ok(())
     }
@@ -128,6 +140,7 @@ pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
     let words: Vec<&str> = line.split_whitespace().collect();
     match words.as_slice() {
         [DROP, MISSING] => return Ok(TableRule::DropMissing),
+        [STAY, ON, DISK] => return Ok(TableRule::StayOnDisk),
         [KEEP, WHERE, ..] => {
             let rest = line[KEEP.len()..].trim_start()[WHERE.len()..].trim();
             return Condition::parse(rest).map(TableRule::KeepWhere).map_err(fail);
@@ -141,6 +154,7 @@ pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
         None => "the line is empty".to_string(),
         Some(&DROP) => "write \"drop missing\" to leave out rows with a missing value".to_string(),
         Some(&KEEP) => "write \"keep where\" and a condition, e.g. keep where girth > 0".to_string(),
+        Some(&STAY) => "write \"stay on disk\" to keep the rows in their Parquet file".to_string(),
         Some(_) => "expected a column declaration such as \"girth: real in cm\", \"drop missing\" or \"keep where\" and a condition".to_string(),
     };
     Err(fail(problem))

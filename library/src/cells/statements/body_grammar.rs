@@ -20,7 +20,7 @@ use crate::model::PriorGroup;
 use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
 use crate::graph::{ARROW, HIDDEN};
 use crate::table::condition::{Comparison, AND, NOT, OR};
-use crate::table::rules::{CATEGORY, DROP, IN, KEEP, KINDS, MISSING, WHERE};
+use crate::table::rules::{CATEGORY, DISK, DROP, IN, KEEP, KINDS, MISSING, ON, STAY, WHERE};
 
 /// The block statements whose body lines have words of their own.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -160,12 +160,15 @@ fn open_call(typed: &str) -> Option<(&str, usize, bool)> {
     Some((&before[word_start..], commas, typed[at + 1..].trim().is_empty()))
 }
 
-/// A `table` body line: a column declaration, `drop missing` or `keep where …`.
+/// A `table` body line: a column declaration, `drop missing`, `keep where …`
+/// or `stay on disk`.
 fn table_line(typed: &str) -> Next {
     let words = words_of(typed);
     match words.as_slice() {
-        [] => next(&[DROP, KEEP], &[], true),
+        [] => next(&[DROP, KEEP, STAY], &[], true),
         [DROP] => next(&[MISSING], &[], false),
+        [STAY] => next(&[ON], &[], false),
+        [STAY, ON] => next(&[DISK], &[], false),
         [KEEP] => next(&[WHERE], &[], false),
         [KEEP, WHERE, condition @ ..] => condition_next(condition),
         [_, ":"] => {

@@ -24,12 +24,74 @@ pub(crate) fn table(session: &mut Session, st: &Statement, control: &RunControl)
         let rule = parse_table_line(&line.text).map_err(|e| CellError::at(line.number, e.to_string()))?;
         spec.add_rule(rule).map_err(|e| CellError::at(line.number, e.to_string()))?;
     }
+    if spec.on_disk {
+        return on_disk(session, &spec, name, path, st, control);
+    }
     let (mut table, mut report) = load_table_with_cancel(&spec, control.cancel).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     table.name = name.to_string();
     report.source = path.to_string();
     let display = describe(&table, &report);
     session.put_table(name, table);
     Ok(vec![display])
+}
+
+/// A table whose rows stay in their Parquet file or folder (`stay on disk`).
+#[cfg(feature = "on_disk")]
+fn on_disk(session: &mut Session, spec: &TableSpec, name: &str, path: &str, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
+    let mut table = crate::table::on_disk::DiskTable::open(spec, control.cancel).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    table.report.source = path.to_string();
+    table.source = path.to_string();
+    let display = describe_on_disk(name, &table);
+    session.put_disk_table(name, table);
+    Ok(vec![display])
+}
+
+/// Without the feature: the command that builds it.
+#[cfg(not(feature = "on_disk"))]
+fn on_disk(_: &mut Session, _: &TableSpec, _: &str, path: &str, st: &Statement, _: &RunControl) -> Result<Vec<Display>, CellError> {
+    Err(CellError::at(
+        st.header.number,
+        format!(
+            "{path}: \"stay on disk\" needs a Waypath built with the cargo feature \"on_disk\" (cargo build --release \
+             -p waypath-kernel --features on_disk); without the line the table is loaded into memory"
+        ),
+    ))
+}
+
+/// The columns of a table on disk and what its rules did to the rows.
+#[cfg(feature = "on_disk")]
+fn describe_on_disk(name: &str, table: &crate::table::on_disk::DiskTable) -> Display {
+    let heading = format!("table {name}: {} rows × {} columns, staying on disk in {}", table.rows(), table.columns.len(), table.source);
+    let mut grid = Grid::new(&["column", "kind", "unit", "levels (in order)", "missing", "kind was"]).numeric_columns(&[4]);
+    let reports = table.report.by_name();
+    for column in table.columns.iter().take(COLUMNS_SHOWN) {
+        let col_report = reports.get(column.name.as_str());
+        grid.push(vec![
+            column.name.clone(),
+            column.kind.name().to_string(),
+            column.unit.clone().unwrap_or_default(),
+            column.levels.as_deref().map(level_list).unwrap_or_else(|| if column.text { "(not declared)".into() } else { String::new() }),
+            col_report.map_or(0, |c| c.missing).to_string(),
+            if col_report.is_some_and(|c| c.inferred) { "from the stored type" } else { "declared" }.to_string(),
+        ]);
+    }
+    let mut notes = load_notes(&table.report);
+    notes.push(
+        "the rows stay on disk: the embedded engine counted them and plans every model's sums over the file; \
+         statements that need rows in memory (contrast, check, score, robustness …) are refused"
+            .into(),
+    );
+    let mut plain = format!("{heading}\n{}", grid.to_text());
+    for n in &notes {
+        plain.push_str(&format!("\n• {n}"));
+    }
+    let columns: Vec<serde_json::Value> = table
+        .columns
+        .iter()
+        .map(|c| serde_json::json!({"name": c.name, "kind": c.kind.name(), "levels": c.levels, "missing": reports.get(c.name.as_str()).map_or(0, |r| r.missing)}))
+        .collect();
+    let json = serde_json::json!({"name": name, "rows": table.rows(), "columns": columns, "on_disk": true, "load": table.report});
+    Display { plain, html: Some(html_block(&heading, &[grid.to_html(), html_list(&notes)])), svg: None, json: Some(json) }
 }
 
 /// `table NAME from "FILE"` → (NAME, FILE).

@@ -24,7 +24,7 @@ use crate::model::{Model, ModelSpec};
 
 
 /// `model NAME:` — build the model against its table and describe it.
-pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
+pub(crate) fn model(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let ([name], _) = header(st, &MODEL)?;
     if !is_name(name) || !st.expects_body() {
         return Err(form_error(st, MODEL.usage));
@@ -32,6 +32,16 @@ pub(crate) fn model(session: &mut Session, st: &Statement) -> Result<Vec<Display
     let lines = st.body.iter().map(|l| (l.number, l.text.as_str()));
     let spec = ModelSpec::from_lines(name, lines).map_err(|e| model_error(st, e))?;
     let line = spec.formula_line.unwrap_or(st.header.number);
+    #[cfg(feature = "on_disk")]
+    if let Some(table) = session.disk_tables.get(&spec.table) {
+        let model = Model::build_on_disk(&spec, table, control.cancel).map_err(|e| CellError::at(line, e.to_string()))?;
+        let display = describe_model(&model, model.on_disk().map_or(0, |d| d.rows()));
+        session.fits.remove(name);
+        session.specs.insert(name.to_string(), spec);
+        session.models.insert(name.to_string(), model);
+        return Ok(vec![display]);
+    }
+    let _ = control;
     let table = session.require_table(&spec.table, line)?;
     let model = Model::build(&spec, table).map_err(|e| CellError::at(line, e.to_string()))?;
     let mut display = describe_model(&model, table.nrows());
@@ -302,6 +312,9 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table
     let health = fit_summary::health(&[(fit, fit.draws.names.clone())]);
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
+    if let Some(route) = &fit.route {
+        notes.insert(0, route.clone());
+    }
     let sparse: Vec<&str> = fit
         .draws
         .names
@@ -335,6 +348,7 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table
         "model": model.name(), "method": fit.method.name(), "seed": fit.method.seed(),
         "settings": method_settings(&fit.method), "interval_mass": mass, "estimates": estimates,
         "health": health.map(|h| h.json), "warnings": fit.warnings, "seconds": fit.seconds,
+        "path": if fit.route.is_some() { "on disk" } else { "in memory" }, "route": fit.route,
     });
     let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
     Ok(Display { plain, html: Some(html), svg, json: Some(json) })
@@ -398,7 +412,7 @@ pub(crate) fn show(session: &mut Session, st: &Statement) -> Result<Vec<Display>
 pub(crate) fn export(session: &mut Session, st: &Statement) -> Result<Vec<Display>, CellError> {
     let ([name, path], _) = header(st, &EXPORT)?;
     let path = unquote(path).ok_or_else(|| form_error(st, EXPORT.usage))?;
-    let fit = require_fit(session, name, st.header.number)?;
+    let fit = require_any_fit(session, name, st.header.number)?;
     let file = session.output_path(path, st.header.number)?;
     let mut csv = Vec::new();
     fit.draws.write_csv(&mut csv).map_err(|e| CellError::at(st.header.number, format!("writing {path}: {e}")))?;
@@ -472,7 +486,17 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
     Ok(vec![Display { plain, html: Some(html), svg: Some(svg), json: Some(json) }])
 }
 
+/// The latest fit of model `name`, for a statement that needs the model's
+/// rows: refused for a model whose table stays on disk.
 pub(crate) fn require_fit<'s>(session: &'s Session, name: &str, line: usize) -> Result<&'s Fit, CellError> {
+    if let Some(model) = session.models.get(name) {
+        session.refuse_on_disk(model, line)?;
+    }
+    require_any_fit(session, name, line)
+}
+
+/// The latest fit of model `name` (`show`, `export`, `plot` read only its draws).
+fn require_any_fit<'s>(session: &'s Session, name: &str, line: usize) -> Result<&'s Fit, CellError> {
     if !session.models.contains_key(name) {
         return Err(CellError::at(line, format!("there is no model named {name}{}", suggest(name, session.models.keys()))));
     }
@@ -526,7 +550,7 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         let alias = Statement { header: crate::cells::parse::SourceLine { number: st.header.number, text }, body: Vec::new() };
         return super::simulation::predictive_check(session, &alias);
     }
-    let fit = require_fit(session, name, st.header.number)?;
+    let fit = require_any_fit(session, name, st.header.number)?;
     let model = &session.models[name];
     if matches!(kind, "lines" | "spline") {
         let table = session.require_table(model.table_name(), st.header.number)?;

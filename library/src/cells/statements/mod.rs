@@ -43,7 +43,7 @@ pub(crate) fn run(
         "compare" => questions::compare_routes(session, st, control, warnings),
         "robustness" => sensitivity::robustness(session, st, control),
         "score" => scoring::score(session, st, control, warnings),
-        "model" => fitting::model(session, st),
+        "model" => fitting::model(session, st, control),
         "fit" if simulation::names_joint(session, head) => simulation::fit_joint(session, st, control, warnings),
         "fit" => fitting::fit(session, st, control, warnings),
         "joint" => simulation::joint(session, st),

@@ -676,6 +676,7 @@ pub(crate) fn calibrate(session: &mut Session, st: &Statement, control: &RunCont
     let model = session.models.get(m).ok_or_else(|| {
         CellError::at(line, format!("there is no model named {m}{}", suggest(m, session.models.keys())))
     })?;
+    session.refuse_on_disk(model, line)?;
     let method = check_method(session, m, rest, line)?;
     let label = format!("calibrate {m}");
     let progress = |r: usize| (control.progress)(&format!("{label}: replication {} of {reps}", r + 1));

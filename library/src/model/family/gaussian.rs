@@ -41,6 +41,13 @@ impl GaussianStats {
         }
     }
 
+    /// Statistics gathered elsewhere (a table on disk, `model::disk_sums`):
+    /// `xty` and `yty` of the outcome centred at `y_mean`.
+    #[cfg(feature = "on_disk")]
+    pub(crate) fn from_sums(xtx: DMatrix<f64>, xty: DVector<f64>, yty: f64, n: f64, y_mean: f64, intercept_columns: Vec<usize>) -> Self {
+        GaussianStats { xtx, xty, yty, n, y_mean, intercept_columns }
+    }
+
     /// The log-likelihood at `beta` and `sigma = e^log_sigma`, with its
     /// gradient in `beta` added to `grad_beta`; returns the value and the
     /// derivative in `log_sigma`.
