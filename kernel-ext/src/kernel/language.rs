@@ -588,7 +588,8 @@ mod tests {
             ("yield from rootstock, girth per rootstock ", &["using"]),
             // README "Pooled groups": `pooled block`, `pooled block with girth`,
             // `parameterise block centred|noncentred`.
-            ("yield from girth, pooled block ", &["using", "with"]),
+            ("yield from girth, pooled block ", &["using", "with", "within"]),
+            ("yield from girth, pooled plot within site ", &["using", "with"]),
             ("yield from girth, pooled block with girth ", &["using"]),
             ("yield from girth, po", &["pooled", "powers("]),
             ("parameterise block ", &["centred", "noncentred"]),

@@ -286,6 +286,16 @@ fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -
             if pooling.is_empty() { "none pools a column".to_string() } else { format!("pooled: {}", pooling.join(", ")) }
         )));
     }
+    if let GroupQuestion::Existing { column, level } = question {
+        let nested = steps.iter().flat_map(|s| s.model.pooled_groups()).find_map(|g| g.outer().filter(|_| g.column == *column));
+        if let Some(outer) = nested {
+            return Err(QueryError::request(format!(
+                "{place}: pooled {column} is nested within {outer}, so `in {column} {level}` names no single {column} \
+                 (each {outer} has its own {column} {level}); ask `in new {column}`, or leave out `in …` to keep each \
+                 row's own {column}"
+            )));
+        }
+    }
     let mut notes = Vec::new();
     for step in steps {
         let mut seen: Vec<&str> = Vec::new();

@@ -175,6 +175,18 @@ fn true_parameters(
     let mut group_truths = Vec::new();
     let mut used = vec![false; draws.len()];
     for group in model.pooled_groups() {
+        if let Some(outer) = group.outer() {
+            notes.push(format!(
+                "pooled {} has no true values here: `departure({}, …)` draws one departure per {} label, not per \
+                 pair of {} and {outer} labels, so its truths would not be the nested group's",
+                group.written(),
+                group.column,
+                group.column,
+                group.column
+            ));
+            group_truths.extend(std::iter::repeat_n(None, group.labels().len()));
+            continue;
+        }
         let find = |slope: Option<&str>| draws.iter().position(|d| d.group == group.column && d.slope.as_deref() == slope);
         let intercept = find(None);
         let slopes: Vec<Option<usize>> = group.slopes.iter().map(|s| find(Some(&s.column))).collect();
