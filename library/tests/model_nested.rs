@@ -1,0 +1,294 @@
+//! Nested pooled groups (`pooled plot within site`): plots labelled per
+//! site (`p1` again in every site) are pooled as pairs of labels. Checked
+//! here: the levels and rows against the test's own counts of pairs, the
+//! closed-form posterior of normal–normal hierarchical models (one nested
+//! group; a site group with plots nested in it), contrasts for an existing
+//! plot of a site, and the errors a cell can meet.
+
+mod model_fixtures;
+
+use std::collections::BTreeMap;
+use std::sync::atomic::AtomicBool;
+
+use model_fixtures::{build, build_error, category, column, orchard};
+use nalgebra::{DMatrix, DVector};
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, Normal};
+use waypath::infer::fit::{fit_model, Method};
+use waypath::table::{ColumnData, Table};
+
+const SITES: [&str; 4] = ["A", "B", "C", "D"];
+const PLOTS: [&str; 3] = ["p1", "p2", "p3"];
+
+/// The orchard with a `site` (A–D) and a `plot` (p1–p3, labels repeated in
+/// every site); site D has no plot p3.
+fn orchard_with_sites(n: usize, seed: u64) -> Table {
+    let mut table = orchard(n, seed);
+    let mut rng = StdRng::seed_from_u64(seed + 7);
+    let mut sites = Vec::with_capacity(n);
+    let mut plots = Vec::with_capacity(n);
+    for _ in 0..n {
+        let s = rng.random_range(0..4u32);
+        let p = rng.random_range(0..if s == 3 { 2u32 } else { 3 });
+        sites.push(s);
+        plots.push(p);
+    }
+    table.columns.push(column("site", category(sites, &SITES)));
+    table.columns.push(column("plot", category(plots, &PLOTS)));
+    table
+}
+
+fn category_codes(table: &Table, name: &str) -> Vec<u32> {
+    match &table.column(name).expect("column").data {
+        ColumnData::Category { codes, .. } => codes.clone(),
+        _ => panic!("{name} is not a category"),
+    }
+}
+
+#[test]
+fn nested_levels_are_the_pairs_of_labels_the_rows_hold() {
+    let table = orchard_with_sites(200, 3);
+    let model = build("yield from girth, pooled plot within site using trees", &table);
+    let (sites, plots) = (category_codes(&table, "site"), category_codes(&table, "plot"));
+    // The test's own count of rows per (site, plot) pair, in site then plot order.
+    let mut counted: BTreeMap<(u32, u32), usize> = BTreeMap::new();
+    for (s, p) in sites.iter().zip(&plots) {
+        *counted.entry((*s, *p)).or_insert(0) += 1;
+    }
+    assert_eq!(counted.len(), 11, "four sites of three plots, site D without p3");
+    let group = &model.pooled_groups()[0];
+    let want: Vec<String> = counted.keys().map(|&(s, p)| format!("{} in {}", PLOTS[p as usize], SITES[s as usize])).collect();
+    assert_eq!(group.levels, want);
+    assert_eq!(group.rows_per_level, counted.values().copied().collect::<Vec<_>>());
+    let names = model.parameter_names();
+    let first = model.first_group_index();
+    assert_eq!(names[first], "plot spread");
+    assert_eq!(names[first + 1], "plot departure[p1 in A]");
+    assert!(!names.iter().any(|n| n.contains("p3 in D")), "a pair the rows lack has no departure");
+    let note = model.notes().iter().find(|n| n.starts_with("pooled plot within site")).expect("a note on the group");
+    assert!(note.contains("11 levels") && note.contains("pair"), "{note}");
+    // Every fitted row falls in its own pair.
+    let rows = model.fitted_rows();
+    for (i, level) in rows.groups[0].iter().enumerate() {
+        let (s, p) = (sites[i] as usize, plots[i] as usize);
+        assert_eq!(group.levels[level.expect("a fitted pair")], format!("{} in {}", PLOTS[p], SITES[s]));
+    }
+}
+
+#[test]
+fn bad_nested_cells_are_refused_with_the_place_named() {
+    let table = orchard_with_sites(120, 1);
+    let itself = build_error("yield from girth, pooled plot within plot using trees", &table);
+    assert!(itself.contains("plot") && itself.contains("itself"), "{itself}");
+    let real = build_error("yield from rootstock, pooled plot within girth using trees", &table);
+    assert!(real.contains("girth") && real.contains("category"), "{real}");
+    let outcome = build_error("yield from girth, pooled plot within yield using trees", &table);
+    assert!(outcome.contains("yield") && outcome.contains("outcome"), "{outcome}");
+    let missing = build_error("yield from girth, pooled plot within farm using trees", &table);
+    assert!(missing.contains("farm"), "{missing}");
+    let twice = build_error("yield from girth, pooled plot, pooled plot within site using trees", &table);
+    assert!(twice.contains("plot"), "{twice}");
+    let stray = build_error("yield from girth, pooled plot within site using trees\nparameterise site centred", &table);
+    assert!(stray.contains("site") && stray.contains("not a pooled group"), "{stray}");
+}
+
+/// Rows of a normal outcome in pairs of (site, plot), with plot labels
+/// repeated across sites, and the codes of both.
+struct NestedRows {
+    y: Vec<f64>,
+    site: Vec<u32>,
+    plot: Vec<u32>,
+}
+
+/// `sizes[s][p]` rows in plot `p` of site `s` (0 for a pair not present),
+/// `y = mu + site departure + plot departure + noise`.
+fn nested_rows(sizes: &[[usize; 3]], mu: f64, tau: f64, sigma: f64, seed: u64) -> NestedRows {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let unit = Normal::new(0.0, 1.0).expect("valid normal");
+    let mut rows = NestedRows { y: Vec::new(), site: Vec::new(), plot: Vec::new() };
+    for (s, plots) in sizes.iter().enumerate() {
+        let a = tau * unit.sample(&mut rng);
+        for (p, &n) in plots.iter().enumerate() {
+            let b = tau * unit.sample(&mut rng);
+            for _ in 0..n {
+                rows.y.push(mu + a + b + sigma * unit.sample(&mut rng));
+                rows.site.push(s as u32);
+                rows.plot.push(p as u32);
+            }
+        }
+    }
+    rows
+}
+
+fn nested_table(rows: &NestedRows) -> Table {
+    Table {
+        name: "t".into(),
+        columns: vec![
+            column("y", ColumnData::Real(rows.y.clone())),
+            column("site", category(rows.site.clone(), &SITES)),
+            column("plot", category(rows.plot.clone(), &PLOTS)),
+        ],
+    }
+}
+
+const SIZES: [[usize; 3]; 4] = [[2, 9, 4], [15, 3, 6], [1, 5, 25], [7, 12, 0]];
+
+fn laplace_draws(body: &str, table: &Table) -> waypath::draws::Draws {
+    let model = build(body, table);
+    fit_model(&model, &Method::Laplace { draws: 40_000, seed: 9 }, &AtomicBool::new(false), &|_| {})
+        .expect("Laplace fit")
+        .draws
+}
+
+fn mean_and_sd(values: &[f64]) -> (f64, f64) {
+    let m = values.iter().sum::<f64>() / values.len() as f64;
+    let s = (values.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (values.len() - 1) as f64).sqrt();
+    (m, s)
+}
+
+/// Pinned spreads: lognormal priors of log-sd 0.0005 at `sigma` and `tau`,
+/// and an intercept prior flat against the data.
+fn pinned(sigma: f64, tau: f64) -> String {
+    format!(
+        "prior intercepts: normal(0, 1000)\nprior spread: lognormal({}, 0.0005)\nprior pooled spreads: lognormal({}, 0.0005)",
+        sigma.ln(),
+        tau.ln()
+    )
+}
+
+/// One nested group alone is a normal–normal hierarchical model whose
+/// groups are the (site, plot) pairs: Gelman et al., Bayesian Data
+/// Analysis, 3rd ed., §5.4 (recalled), the formulas as in
+/// `model_pooled.rs`: `E θⱼ = Vⱼ(ȳⱼ/σⱼ² + μ̂/τ²)`, `var θⱼ = Vⱼ + (Vⱼ/τ²)²·V_μ`.
+/// The pairs and their means are taken here from the codes; a model that
+/// pooled the plot labels alone (three groups) would miss by far.
+#[test]
+fn a_nested_group_matches_the_normal_normal_closed_form_over_pairs() {
+    let (sigma, tau) = (2.0_f64, 1.5_f64);
+    let rows = nested_rows(&SIZES, 10.0, tau, sigma, 41);
+    let table = nested_table(&rows);
+    let mut pairs: BTreeMap<(u32, u32), Vec<f64>> = BTreeMap::new();
+    for i in 0..rows.y.len() {
+        pairs.entry((rows.site[i], rows.plot[i])).or_default().push(rows.y[i]);
+    }
+    let means: Vec<f64> = pairs.values().map(|v| v.iter().sum::<f64>() / v.len() as f64).collect();
+    let noise: Vec<f64> = pairs.values().map(|v| sigma * sigma / v.len() as f64).collect();
+    let weights: Vec<f64> = noise.iter().map(|s| 1.0 / (s + tau * tau)).collect();
+    let v_mu = 1.0 / weights.iter().sum::<f64>();
+    let mu_hat = v_mu * means.iter().zip(&weights).map(|(m, w)| m * w).sum::<f64>();
+    for layout in ["centred", "noncentred"] {
+        let body = format!("y from pooled plot within site using t\n{}\nparameterise plot {layout}", pinned(sigma, tau));
+        let draws = laplace_draws(&body, &table);
+        let intercept = draws.get("intercept").expect("intercept draws");
+        for (j, &(s, p)) in pairs.keys().enumerate() {
+            let v = 1.0 / (1.0 / noise[j] + 1.0 / (tau * tau));
+            let want = v * (means[j] / noise[j] + mu_hat / (tau * tau));
+            let want_sd = (v + (v / (tau * tau)).powi(2) * v_mu).sqrt();
+            let label = format!("plot departure[{} in {}]", PLOTS[p as usize], SITES[s as usize]);
+            let departure = draws.get(&label).unwrap_or_else(|| panic!("{label}"));
+            let theta: Vec<f64> = intercept.iter().zip(departure).map(|(a, b)| a + b).collect();
+            let (m, sd) = mean_and_sd(&theta);
+            assert!((m - want).abs() < 0.03 * want_sd, "{layout} {label}: mean {m} vs closed form {want} (sd {want_sd})");
+            assert!((sd / want_sd - 1.0).abs() < 0.03, "{layout} {label}: sd {sd} vs closed form {want_sd}");
+        }
+    }
+}
+
+/// Sites with plots nested in them, `y = μ + aₛ + b₍ₛ,ₚ₎ + e`, all
+/// variances known, `μ` with a `normal(0, 1000)` prior: a linear model with
+/// normal priors, whose posterior is normal with precision
+/// `H = XᵀX/σ² + diag(prior precisions)` and mean `H⁻¹Xᵀy/σ²`, X the
+/// columns of the intercept, the site indicators and the pair indicators
+/// (Lindley & Smith 1972, JRSS B 34, 1–41, the known-variance case;
+/// recalled — Henderson's mixed-model equations are the same system).
+/// Solved here with nalgebra from the test's own indicator columns.
+#[test]
+fn sites_with_nested_plots_match_the_known_variance_posterior() {
+    let (sigma, tau) = (1.5_f64, 1.2_f64);
+    let rows = nested_rows(&SIZES, 4.0, tau, sigma, 42);
+    let table = nested_table(&rows);
+    let pairs: Vec<(u32, u32)> = {
+        let mut seen: Vec<(u32, u32)> = rows.site.iter().copied().zip(rows.plot.iter().copied()).collect();
+        seen.sort_unstable();
+        seen.dedup();
+        seen
+    };
+    let width = 1 + SITES.len() + pairs.len();
+    let n = rows.y.len();
+    let mut x = DMatrix::<f64>::zeros(n, width);
+    for i in 0..n {
+        x[(i, 0)] = 1.0;
+        x[(i, 1 + rows.site[i] as usize)] = 1.0;
+        let k = pairs.iter().position(|&q| q == (rows.site[i], rows.plot[i])).expect("pair");
+        x[(i, 1 + SITES.len() + k)] = 1.0;
+    }
+    let mut precision = x.transpose() * &x / (sigma * sigma);
+    precision[(0, 0)] += 1.0 / (1000.0 * 1000.0);
+    for j in 1..width {
+        precision[(j, j)] += 1.0 / (tau * tau);
+    }
+    let covariance = precision.clone().try_inverse().expect("invertible");
+    let mean = &covariance * (x.transpose() * DVector::from_vec(rows.y.clone())) / (sigma * sigma);
+    let mut labels = vec!["intercept".to_string()];
+    labels.extend(SITES.iter().map(|s| format!("site departure[{s}]")));
+    labels.extend(pairs.iter().map(|&(s, p)| format!("plot departure[{} in {}]", PLOTS[p as usize], SITES[s as usize])));
+    for layout in ["centred", "noncentred"] {
+        let body = format!(
+            "y from pooled site, pooled plot within site using t\n{}\nparameterise site {layout}\nparameterise plot {layout}",
+            pinned(sigma, tau)
+        );
+        let draws = laplace_draws(&body, &table);
+        for (j, label) in labels.iter().enumerate() {
+            let (m, sd) = mean_and_sd(draws.get(label).unwrap_or_else(|| panic!("{label}")));
+            let (want, want_sd) = (mean[j], covariance[(j, j)].sqrt());
+            assert!((m - want).abs() < 0.03 * want_sd, "{layout} {label}: mean {m} vs {want} (sd {want_sd})");
+            assert!((sd / want_sd - 1.0).abs() < 0.03, "{layout} {label}: sd {sd} vs {want_sd}");
+        }
+    }
+}
+
+/// A contrast for an existing plot of a site, at one parameter point
+/// repeated as every draw (bernoulli, logit link; one intercept per
+/// rootstock): `logistic(β₁ + aₛ + b₍ₛ,ₚ₎) − logistic(β₀ + aₛ + b₍ₛ,ₚ₎)`, the model's own definition of the
+/// mean; the plot must be named with its site, and a pair the rows lack is
+/// refused.
+#[test]
+fn contrasts_for_an_existing_plot_of_a_site() {
+    use waypath::draws::Draws;
+    use waypath::query::{contrast, ContrastRequest};
+    let table = orchard_with_sites(200, 2);
+    let model = build("healthy from rootstock, pooled site, pooled plot within site using trees\nfamily bernoulli", &table);
+    let names = model.parameter_names();
+    let value = |name: &str| -> f64 {
+        match name {
+            "rootstock[dwarf]" => -0.4,
+            "rootstock[standard]" => 1.1,
+            "site spread" | "plot spread" => 1.0,
+            "site departure[B]" => 0.8,
+            "plot departure[p2 in B]" => -1.3,
+            "plot departure[p2 in C]" => 0.9,
+            _ => 0.05,
+        }
+    };
+    assert!(names.contains(&"rootstock[standard]".to_string()), "{names:?}");
+    let point: Vec<f64> = names.iter().map(|n| value(n)).collect();
+    let draws = Draws::from_chains(names.clone(), vec![vec![point; 200]]).expect("draws");
+    let logistic = |x: f64| 1.0 / (1.0 + (-x).exp());
+    let at = |held: &[(&str, &str)]| ContrastRequest {
+        held: held.iter().map(|(a, b)| (a.to_string(), b.to_string())).collect(),
+        ..ContrastRequest::new("rootstock")
+    };
+    let c = contrast(&model, &draws, &table, &at(&[("site", "B"), ("plot", "p2")])).expect("contrast");
+    let shift = 0.8 - 1.3;
+    let want = logistic(1.1 + shift) - logistic(-0.4 + shift);
+    assert!((c.mean - want).abs() < 1e-12, "existing plot: {} vs {want}", c.mean);
+    assert!(c.notes.iter().any(|n| n.contains("existing plot p2 of site B")), "{:?}", c.notes);
+    let alone = contrast(&model, &draws, &table, &at(&[("plot", "p2")])).expect_err("a plot without its site");
+    assert!(alone.to_string().contains("at site <level>, plot p2"), "{alone}");
+    let absent = contrast(&model, &draws, &table, &at(&[("site", "D"), ("plot", "p3")])).expect_err("no such pair");
+    assert!(absent.to_string().contains("p3 in site D"), "{absent}");
+    // A new plot in an existing site: the site's departure, the plot's drawn.
+    let c = contrast(&model, &draws, &table, &at(&[("site", "B")])).expect("contrast");
+    assert!(c.notes.iter().any(|n| n.contains("pooled plot within site: for a new plot")), "{:?}", c.notes);
+}
