@@ -292,3 +292,64 @@ fn contrasts_for_an_existing_plot_of_a_site() {
     let c = contrast(&model, &draws, &table, &at(&[("site", "B")])).expect("contrast");
     assert!(c.notes.iter().any(|n| n.contains("pooled plot within site: for a new plot")), "{:?}", c.notes);
 }
+
+/// The shrinkage of a category outcome's nested group, one per outcome
+/// level after the reference, at one parameter point repeated as every
+/// draw. Expected from the README's definitions, computed here from the
+/// table: a pair's pooled value is the level's intercept, plus its girth
+/// slope times the pair's mean girth less the table's (the model centres
+/// girth), plus the pair's departure; the population's drops the
+/// departure; the raw value is the log of the pair's share of the outcome
+/// level over its share of the reference level (loam).
+#[test]
+fn a_category_outcome_has_one_shrinkage_per_outcome_level() {
+    use waypath::draws::Draws;
+    use waypath::query::{level_shrinkages, shrinkage};
+    let table = orchard_with_sites(300, 4);
+    let model = build("soil from girth, pooled plot within site using trees\nfamily levels", &table);
+    let names = model.parameter_names();
+    let (sites, plots, soil) = (category_codes(&table, "site"), category_codes(&table, "plot"), category_codes(&table, "soil"));
+    let girth = table.column("girth").and_then(|c| c.data.as_reals()).expect("girth");
+    let girth_mean = girth.iter().sum::<f64>() / girth.len() as f64;
+    // Values by outcome level (sandy, clay): intercept, girth slope, and a departure per pair.
+    let departure = |k: usize, s: u32, p: u32| 0.3 * (k as f64 + 1.0) * ((s * 3 + p) as f64 - 5.0) / 5.0;
+    let value = |name: &str| -> f64 {
+        let k = if name.starts_with("soil[sandy vs loam]") { 0 } else { 1 };
+        let tail = name.split(": ").nth(1).expect("a prefixed label");
+        match tail {
+            "intercept" => [0.4, -0.7][k],
+            "girth slope" => [0.05, -0.08][k],
+            "plot spread" => 1.0,
+            other => {
+                let pair = other.strip_prefix("plot departure[").and_then(|r| r.strip_suffix(']')).expect(other);
+                let (p, s) = pair.split_once(" in ").expect("plot in site");
+                let s = SITES.iter().position(|x| *x == s).expect("site") as u32;
+                let p = PLOTS.iter().position(|x| *x == p).expect("plot") as u32;
+                departure(k, s, p)
+            }
+        }
+    };
+    let point: Vec<f64> = names.iter().map(|n| value(n)).collect();
+    let draws = Draws::from_chains(names.clone(), vec![vec![point; 50]]).expect("draws");
+    let refused = shrinkage(&model, &draws, "plot", 0.9).expect_err("one scale is refused");
+    assert!(refused.to_string().contains("sandy, clay"), "{refused}");
+    let results = level_shrinkages(&model, &draws, "plot", 0.9).expect("shrinkages");
+    assert_eq!(results.len(), 2);
+    for (k, result) in results.iter().enumerate() {
+        assert_eq!(result.outcome_level.as_deref(), Some(["sandy", "clay"][k]));
+        let (intercept, slope) = ([0.4, -0.7][k], [0.05, -0.08][k]);
+        assert!((result.population[0] - intercept).abs() < 1e-9, "{}: population {:?}", k, result.population);
+        for level in &result.levels {
+            let (p, s) = level.level.split_once(" in ").expect("plot in site");
+            let (s, p) = (SITES.iter().position(|x| *x == s).unwrap() as u32, PLOTS.iter().position(|x| *x == p).unwrap() as u32);
+            let rows: Vec<usize> = (0..sites.len()).filter(|&i| sites[i] == s && plots[i] == p).collect();
+            let mean_girth = rows.iter().map(|&i| girth[i]).sum::<f64>() / rows.len() as f64;
+            let want = intercept + slope * (mean_girth - girth_mean) + departure(k, s, p);
+            assert_eq!(level.rows, rows.len(), "{}", level.level);
+            assert!((level.mean - want).abs() < 1e-9, "{} {}: {} vs {want}", k, level.level, level.mean);
+            let share = |code: u32| (rows.iter().filter(|&&i| soil[i] == code).count() as f64 / rows.len() as f64).max(0.001);
+            let raw = (share(k as u32 + 1) / share(0)).ln();
+            assert!((level.raw.expect("rows") - raw).abs() < 1e-9, "{} {}: raw {:?} vs {raw}", k, level.level, level.raw);
+        }
+    }
+}

@@ -68,6 +68,6 @@ pub use mechanism::{parse_mechanism_line, Expr, Mechanism};
 pub use robustness::{robustness, Robustness, Yardstick, ROBUSTNESS_STEPS};
 pub use routes::{front_door_route, FrontDoorRoute};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
-pub use shrinkage::{shrinkage, LevelShrinkage, Shrinkage};
+pub use shrinkage::{level_shrinkages, shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;
