@@ -353,3 +353,45 @@ fn a_category_outcome_has_one_shrinkage_per_outcome_level() {
         }
     }
 }
+
+/// A joint model's node model with a nested group: its outer column is
+/// checked against the graph like the inner one, and `intervene … in plot
+/// p1` is refused (the label names one plot per site) while `in new plot`
+/// answers.
+#[test]
+fn joint_models_check_and_refuse_what_a_nested_group_cannot_mean() {
+    use waypath::graph::GraphBuilder;
+    use waypath::infer::nuts::NutsSettings;
+    use waypath::query::{build_joint, fit_joint, intervene, GroupQuestion, InterventionRequest};
+    let table = orchard_with_sites(160, 5);
+    let graph = |lines: &[&str]| {
+        let mut b = GraphBuilder::new("g");
+        for l in lines {
+            b.add_line(l).expect("graph line");
+        }
+        b.finish().expect("graph")
+    };
+    let nested = vec![("yield".to_string(), vec!["yield from girth, pooled plot within site".to_string()])];
+    let site_elsewhere = graph(&["girth -> yield", "site -> girth"]);
+    let e = build_joint("j", &site_elsewhere, &table, &nested).expect_err("site is a node but no parent of yield").to_string();
+    assert!(e.contains("site") && e.contains("not a parent of yield"), "{e}");
+    let g = graph(&["girth -> yield"]);
+    let joint = build_joint("j", &g, &table, &nested).expect("joint");
+    let method = Method::Nuts(NutsSettings { chains: 1, settle: 150, draws: 100, seed: 3, threads: 1, ..Default::default() });
+    let fit = fit_joint(&joint, &method, &AtomicBool::new(false)).expect("fit");
+    let request = |groups: GroupQuestion| InterventionRequest {
+        variable: "girth".into(),
+        to: "30".into(),
+        from: "20".into(),
+        watch: vec!["yield".into()],
+        rows: None,
+        seed: 5,
+        mass: 0.9,
+        groups,
+    };
+    let e = intervene(&joint, &fit, &table, &request(GroupQuestion::Existing { column: "plot".into(), level: "p1".into() }))
+        .expect_err("a plot label without its site");
+    assert!(e.to_string().contains("nested within site") && e.to_string().contains("in new plot"), "{e}");
+    let new = intervene(&joint, &fit, &table, &request(GroupQuestion::New { column: "plot".into() })).expect("a new plot");
+    assert!(new.pooled.iter().any(|n| n.contains("one new plot")), "{:?}", new.pooled);
+}
