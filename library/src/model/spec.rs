@@ -19,7 +19,9 @@
 //! * A term `pooled <category>`: each level of the category departs from
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
-//!   pooling: a level with few rows is pulled towards the population).
+//!   pooling: a level with few rows is pulled towards the population);
+//!   `pooled <category> within <outer>` for a category nested in another
+//!   whose labels repeat across the outer levels (its levels are the pairs).
 //! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`,
 //!   or `family exponential | weibull`, optionally followed by
 //!   `cut short by <column>` (a yes/no column: the follow-up ended first).
