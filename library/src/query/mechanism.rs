@@ -72,6 +72,9 @@ pub const DEPARTURE: &str = "departure";
 /// The word before a slope departure's stated correlation with the
 /// intercept's (`departure(block, 0.1, girth, correlation 0.5)`).
 pub const CORRELATION_WORD: &str = "correlation";
+/// The word before the other slope of a correlation between two slopes'
+/// departures (`departure(block, 0.1, age, correlation 0.3 with girth)`).
+pub const CORRELATION_WITH: &str = "with";
 /// The deepest an expression may nest: parentheses, signs, functions and
 /// every operator of a chain each add one level. Evaluation recurses this
 /// deep, so the limit keeps a hostile line from overflowing the stack.
@@ -111,17 +114,20 @@ pub struct DepartureTerm {
     /// A slope's stated correlation with the intercept's departures
     /// (`None`: drawn independently of them).
     pub correlation: Option<f64>,
+    /// A slope's stated correlations with other slopes' departures of the
+    /// same category (`correlation q with x`), by the other slope's parent.
+    pub with_slopes: Vec<(String, f64)>,
 }
 
 impl DepartureTerm {
     /// `departure(block, 0.8)` or `departure(block, 0.1, girth)`, with the
     /// spread written out by `spread`.
     pub fn written(&self, spread: &str) -> String {
-        match (&self.slope, self.correlation) {
-            (None, _) => format!("{DEPARTURE}({}, {spread})", self.group),
-            (Some(x), None) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
-            (Some(x), Some(r)) => format!("{DEPARTURE}({}, {spread}, {x}, {CORRELATION_WORD} {r})", self.group),
-        }
+        let Some(x) = &self.slope else { return format!("{DEPARTURE}({}, {spread})", self.group) };
+        let mut parts = vec![self.group.clone(), spread.to_string(), x.clone()];
+        parts.extend(self.correlation.map(|r| format!("{CORRELATION_WORD} {r}")));
+        parts.extend(self.with_slopes.iter().map(|(w, q)| format!("{CORRELATION_WORD} {q} {CORRELATION_WITH} {w}")));
+        format!("{DEPARTURE}({})", parts.join(", "))
     }
 }
 
@@ -397,18 +403,111 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             x = term.slope.as_deref().unwrap_or("")
         ));
     }
+    check_slope_correlations(name, &terms)?;
     Ok(Some((name.to_string(), mechanism)))
 }
 
-/// The `correlation r` of `departure(c, spread, x, correlation r)`: r
-/// strictly between −1 and 1.
-fn read_correlation(stated: &str, inside: &str, form: &str) -> Result<f64, String> {
-    let value = stated.strip_prefix(CORRELATION_WORD).map(str::trim).ok_or_else(|| {
-        format!("the fourth part of `departure({inside})` must read `{CORRELATION_WORD} r`, not `{stated}`; write {form}")
+/// Each `correlation q with x` names another slope departure of the same
+/// category in the mechanism, each pair once, and every category's stated
+/// correlations make a correlation matrix (positive definite).
+fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), String> {
+    for term in terms {
+        for (w, _) in &term.with_slopes {
+            let other = terms.iter().find(|u| u.group == term.group && u.slope.as_deref() == Some(w.as_str()));
+            let x = term.slope.as_deref().unwrap_or("");
+            let Some(other) = other else {
+                return Err(format!(
+                    "the mechanism of {name} states a correlation of departure({g}, …, {x}) with {w}'s, but draws no \
+                     departure({g}, spread, {w}); add one, or leave the correlation out",
+                    g = term.group
+                ));
+            };
+            if other.with_slopes.iter().any(|(v, _)| v == x) {
+                return Err(format!(
+                    "the mechanism of {name} states the correlation of the {x} and {w} slopes' departures of {} twice \
+                     (once in each departure); keep one",
+                    term.group
+                ));
+            }
+        }
+    }
+    for group in departure_groups(terms) {
+        let effects: Vec<&DepartureTerm> = group_effects(terms, group);
+        if effects.len() > 1 && correlation_factor(&effects).is_none() {
+            return Err(format!(
+                "the correlations stated for the departures of {group} in the mechanism of {name} do not make a \
+                 correlation matrix (it is not positive definite; between two slopes without a stated correlation it \
+                 is the product of their correlations with the intercept); state smaller or other correlations"
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The categories `terms` draw departures for, each once.
+pub fn departure_groups(terms: &[DepartureTerm]) -> Vec<&str> {
+    let mut groups: Vec<&str> = terms.iter().map(|t| t.group.as_str()).collect();
+    groups.sort_unstable();
+    groups.dedup();
+    groups
+}
+
+/// The departures of category `group` among `terms`: the intercept's first
+/// (when drawn), then the slopes' in reading order.
+pub fn group_effects<'t>(terms: &'t [DepartureTerm], group: &str) -> Vec<&'t DepartureTerm> {
+    let of = terms.iter().filter(|t| t.group == group);
+    of.clone().filter(|t| t.slope.is_none()).chain(of.filter(|t| t.slope.is_some())).collect()
+}
+
+/// The stated correlation of two departures of one category: 1 with
+/// itself; a slope's with the intercept's as stated (0 without); two
+/// slopes' as stated by either (`correlation q with x`), else the product
+/// of their correlations with the intercept.
+pub fn stated_correlation(a: &DepartureTerm, b: &DepartureTerm) -> f64 {
+    match (&a.slope, &b.slope) {
+        (None, None) => 1.0,
+        (None, Some(_)) => b.correlation.unwrap_or(0.0),
+        (Some(_), None) => a.correlation.unwrap_or(0.0),
+        (Some(x), Some(w)) if x == w => 1.0,
+        (Some(x), Some(w)) => {
+            let named = |t: &DepartureTerm, other: &str| t.with_slopes.iter().find(|(v, _)| v == other).map(|(_, q)| *q);
+            named(a, w).or_else(|| named(b, x)).unwrap_or(a.correlation.unwrap_or(0.0) * b.correlation.unwrap_or(0.0))
+        }
+    }
+}
+
+/// The lower Cholesky factor of the stated correlation matrix of
+/// `effects` (in their order), `None` when it is not positive definite.
+pub fn correlation_factor(effects: &[&DepartureTerm]) -> Option<nalgebra::DMatrix<f64>> {
+    let k = effects.len();
+    let matrix = nalgebra::DMatrix::from_fn(k, k, |i, j| stated_correlation(effects[i], effects[j]));
+    matrix.cholesky().map(|c| c.l())
+}
+
+/// A `correlation r` (with the intercept's departures) or `correlation q
+/// with x` (with slope x's) of `departure(c, spread, x, …)`: the number
+/// strictly between −1 and 1, and the other slope if named.
+fn read_correlation(stated: &str, inside: &str, form: &str) -> Result<(f64, Option<String>), String> {
+    let rest = stated.strip_prefix(CORRELATION_WORD).map(str::trim).ok_or_else(|| {
+        format!(
+            "`departure({inside})` needs the form {form}: the parts after the slope must read `{CORRELATION_WORD} r` or \
+             `{CORRELATION_WORD} q {CORRELATION_WITH} <slope>`, not `{stated}`"
+        )
     })?;
-    value.parse().ok().filter(|r: &f64| r.abs() < 1.0).ok_or_else(|| {
+    let (value, other) = match rest.split_once(char::is_whitespace) {
+        Some((value, tail)) => {
+            let other = tail.trim().strip_prefix(CORRELATION_WITH).filter(|o| o.starts_with(char::is_whitespace)).map(str::trim);
+            match other {
+                Some(o) if !o.is_empty() => (value, Some(o.to_string())),
+                _ => return Err(format!("`{stated}` in `departure({inside})`: write `{CORRELATION_WORD} q {CORRELATION_WITH} <slope>`")),
+            }
+        }
+        None => (rest, None),
+    };
+    let r = value.parse().ok().filter(|r: &f64| r.abs() < 1.0).ok_or_else(|| {
         format!("the correlation `{value}` in `departure({inside})` must be a number strictly between −1 and 1")
-    })
+    })?;
+    Ok((r, other))
 }
 
 /// `logit = expr` → `expr` when the argument starts with that keyword.
@@ -682,18 +781,35 @@ impl Parser<'_> {
     fn departure(&mut self) -> Result<Expr, String> {
         let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8), \
                     or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth), \
-                    optionally correlated with the intercept's, like departure(block, 0.1, girth, correlation 0.5)";
+                    optionally correlated with the intercept's, like departure(block, 0.1, girth, correlation 0.5), and \
+                    with another slope's departures, like departure(block, 0.1, age, correlation 0.3 with girth)";
         let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
         let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
         let inside = &self.text[start..start + close];
         let parts: Vec<&str> = inside.split(',').map(str::trim).collect();
-        let (group, spread, slope, correlation) = match parts[..] {
-            [group, spread] => (group, spread, None, None),
-            [group, spread, slope] => (group, spread, Some(slope), None),
-            [group, spread, slope, stated] => (group, spread, Some(slope), Some(read_correlation(stated, inside, form)?)),
+        let (group, spread, slope, stated) = match parts[..] {
+            [group, spread] => (group, spread, None, &[][..]),
+            [group, spread, slope, ref stated @ ..] => (group, spread, Some(slope), stated),
             _ => return Err(format!("`departure({inside})` needs the form {form}")),
         };
-        for name in std::iter::once(group).chain(slope) {
+        let mut correlation = None;
+        let mut with_slopes: Vec<(String, f64)> = Vec::new();
+        for part in stated {
+            match read_correlation(part, inside, form)? {
+                (r, None) if correlation.is_none() => correlation = Some(r),
+                (_, None) => return Err(format!("`departure({inside})` states the correlation with the intercept twice; keep one")),
+                (q, Some(w)) => {
+                    if slope == Some(w.as_str()) || with_slopes.iter().any(|(v, _)| *v == w) {
+                        return Err(format!(
+                            "`departure({inside})` states a correlation with {w} {}; name each other slope once",
+                            if slope == Some(w.as_str()) { "for the departures of the same slope" } else { "twice" }
+                        ));
+                    }
+                    with_slopes.push((w, q));
+                }
+            }
+        }
+        for name in std::iter::once(group).chain(slope).chain(with_slopes.iter().map(|(w, _)| w.as_str())) {
             if !is_name(name) {
                 return Err(format!("`{name}` in `departure({inside})` is not a node name; write {form}"));
             }
@@ -707,7 +823,7 @@ impl Parser<'_> {
         while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
             self.at += 1;
         }
-        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string), correlation }))
+        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string), correlation, with_slopes }))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

@@ -27,7 +27,7 @@ use crate::model::terms::GroupTerm;
 use crate::model::{Family, Model, ModelSpec};
 
 use super::error::QueryError;
-use super::mechanism::{DepartureTerm, Mechanism};
+use super::mechanism::{stated_correlation, Mechanism};
 use super::simulate::{GroupDraw, Simulation};
 use super::support::{interval_words, ContrastSummary};
 
@@ -211,7 +211,7 @@ fn true_parameters(
     for (draw, _) in draws.iter().zip(&used).filter(|(_, u)| !**u) {
         notes.push(format!(
             "the mechanism of {outcome} draws {}, which model {} does not pool",
-            DepartureTerm { group: draw.group.clone(), spread: draw.spread, slope: draw.slope.clone(), correlation: draw.correlation }.written(&super::support::short(draw.spread)),
+            draw.term().written(&super::support::short(draw.spread)),
             model.name()
         ));
     }
@@ -272,13 +272,13 @@ fn group_truth(
             });
         }
     }
-    let stated = slopes.iter().flatten().any(|d| d.correlation.is_some());
+    let stated = slopes.iter().flatten().any(|d| d.correlation.is_some() || !d.with_slopes.is_empty());
     if !slopes.is_empty() && intercept.is_some() && slopes.iter().all(Option::is_some) {
         notes.push(format!(
             "{} correlations: {}{}",
             group.column,
             if stated {
-                "the intercept's with each slope as stated (0 where none is), and between two slopes the product of their stated correlations with the intercept"
+                "the intercept's with each slope as stated (0 where none is), and between two slopes as stated (`correlation q with x`), else the product of their stated correlations with the intercept"
             } else {
                 "the simulation draws every departure independently, so the true correlations are 0"
             },
@@ -290,9 +290,10 @@ fn group_truth(
 
 /// The covariance matrix of a group's stated departures, intercept first
 /// then each slope: spreads τ on the diagonal, `r·τ₀·τₓ` between the
-/// intercept and a slope with stated correlation r, `rₓ·r_w·τₓ·τ_w`
-/// between two slopes (both mixed from the intercept's scores,
-/// `simulate::correlate_with_intercepts`); 0 where a departure is missing.
+/// intercept and a slope with stated correlation r, `q·τₓ·τ_w` between two
+/// slopes with stated correlation q, else `rₓ·r_w·τₓ·τ_w`
+/// (`mechanism::stated_correlation`, what `simulate::correlate_departures`
+/// draws); 0 where a departure is missing.
 struct StatedCovariance(Vec<Vec<f64>>);
 
 impl StatedCovariance {
@@ -310,7 +311,9 @@ impl StatedCovariance {
                     .map(|j| match (i, j) {
                         _ if i == j => spread(i) * spread(i),
                         (0, e) | (e, 0) => with_intercept(e) * spread(0) * spread(e),
-                        _ => with_intercept(i) * with_intercept(j) * spread(i) * spread(j),
+                        _ => slopes[i - 1].zip(slopes[j - 1]).map_or(0.0, |(a, b)| stated_correlation(&a.term(), &b.term()))
+                            * spread(i)
+                            * spread(j),
                     })
                     .collect()
             })

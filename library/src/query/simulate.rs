@@ -103,27 +103,51 @@ pub(crate) struct GroupDraw {
     /// The stated correlation of a slope's departures with the
     /// intercept's (`None`: independent).
     pub(crate) correlation: Option<f64>,
+    /// The stated correlations of a slope's departures with other slopes'
+    /// (`correlation q with x`).
+    pub(crate) with_slopes: Vec<(String, f64)>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
 }
 
-/// Mix each slope departure with a stated correlation into its group's
-/// intercept departures: level j's becomes `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
-/// `z₀ⱼ` the intercept departure over its spread and `zⱼ` the slope's own
-/// standard normal draw (a bivariate normal with correlation r; the
-/// mechanism's parser made sure the intercept's departure is there).
-fn correlate_with_intercepts(draws: &mut [GroupDraw]) {
-    let intercepts: Vec<(String, Vec<f64>)> = draws
-        .iter()
-        .filter(|d| d.slope.is_none())
-        .map(|d| (d.group.clone(), d.departures.iter().map(|a| a / d.spread).collect()))
-        .collect();
-    for draw in draws.iter_mut() {
-        let (Some(r), Some(_)) = (draw.correlation, &draw.slope) else { continue };
-        let Some((_, scores)) = intercepts.iter().find(|(g, _)| *g == draw.group) else { continue };
-        let rest = (1.0 - r * r).sqrt();
-        for (a, z0) in draw.departures.iter_mut().zip(scores) {
-            *a = draw.spread * (r * z0 + rest * (*a / draw.spread));
+impl GroupDraw {
+    /// The `departure(…)` this draw comes from.
+    pub(crate) fn term(&self) -> DepartureTerm {
+        DepartureTerm {
+            group: self.group.clone(),
+            spread: self.spread,
+            slope: self.slope.clone(),
+            correlation: self.correlation,
+            with_slopes: self.with_slopes.clone(),
+        }
+    }
+}
+
+/// Give each category's departures their stated correlations: with `L`
+/// the lower Cholesky factor of the stated correlation matrix of the
+/// category's effects (intercept first, then slopes in reading order;
+/// `mechanism::stated_correlation`) and `zₘⱼ` effect m's own standard
+/// normal draw for level j, effect e's departure of level j becomes
+/// `spreadₑ·Σₘ Lₑₘ·zₘⱼ`, so the effects of a level are jointly normal with
+/// that correlation matrix (`L·Lᵀ`). With only correlations with the
+/// intercept stated, a slope's row of `L` is `(r, 0, …, √(1 − r²))`: the
+/// slope's departure is `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`. The mechanism's
+/// parser made sure the matrix is positive definite.
+fn correlate_departures(draws: &mut [GroupDraw]) {
+    let terms: Vec<DepartureTerm> = draws.iter().map(GroupDraw::term).collect();
+    for group in super::mechanism::departure_groups(&terms) {
+        let effects = super::mechanism::group_effects(&terms, group);
+        if effects.iter().all(|t| t.correlation.is_none() && t.with_slopes.is_empty()) {
+            continue;
+        }
+        let Some(l) = super::mechanism::correlation_factor(&effects) else { continue };
+        let at: Vec<usize> = effects.iter().filter_map(|e| terms.iter().position(|t| std::ptr::eq(t, *e))).collect();
+        let scores: Vec<Vec<f64>> = at.iter().map(|&i| draws[i].departures.iter().map(|a| a / draws[i].spread).collect()).collect();
+        for (e, &i) in at.iter().enumerate() {
+            let spread = draws[i].spread;
+            for (j, a) in draws[i].departures.iter_mut().enumerate() {
+                *a = spread * (0..=e).map(|m| l[(e, m)] * scores[m][j]).sum::<f64>();
+            }
         }
     }
 }
@@ -404,17 +428,17 @@ impl Simulation {
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, DepartureTerm { group, spread, slope, correlation })| {
+            .map(|(g, DepartureTerm { group, spread, slope, correlation, with_slopes })| {
                 let levels = match self.mechanism(&group) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
                 };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, slope, correlation, departures }
+                GroupDraw { group, levels, spread, slope, correlation, with_slopes, departures }
             })
             .collect();
-        correlate_with_intercepts(&mut draws);
+        correlate_departures(&mut draws);
         draws
     }
 
