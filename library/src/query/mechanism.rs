@@ -40,7 +40,11 @@
 //! there: level j's slope departure is `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
 //! `z₀ⱼ` the intercept departure's standard score, so two slopes each
 //! correlated with the intercept correlate with each other by the product
-//! of their correlations. A node's
+//! of their correlations, unless a `correlation q with w` part of one of
+//! them states the correlation with slope w's departures (of the same
+//! category, in the same mechanism). A category's departures are drawn
+//! jointly through the Cholesky factor of that correlation matrix, which
+//! the parser checks is positive definite. A node's
 //! mechanism may name each category in at most one `departure(c, …)` and
 //! each pair of category and slope in at most one `departure(c, …, x)`.
 //!
