@@ -395,3 +395,85 @@ fn joint_models_check_and_refuse_what_a_nested_group_cannot_mean() {
     let new = intervene(&joint, &fit, &table, &request(GroupQuestion::New { column: "plot".into() })).expect("a new plot");
     assert!(new.pooled.iter().any(|n| n.contains("one new plot")), "{:?}", new.pooled);
 }
+
+fn nested_simulation(y: &str, rows: usize, seed: u64) -> waypath::query::Simulation {
+    use waypath::graph::GraphBuilder;
+    use waypath::query::{Simulation, SimulationSettings};
+    let mut b = GraphBuilder::new("g");
+    for l in ["site -> y", "plot -> y"] {
+        b.add_line(l).expect("graph line");
+    }
+    let g = b.finish().expect("graph");
+    let body = [
+        "site = category(s1 0.125, s2 0.125, s3 0.125, s4 0.125, s5 0.125, s6 0.125, s7 0.125, s8 0.125)".to_string(),
+        "plot = category(p1 0.3, p2 0.3, p3 0.4)".to_string(),
+        y.to_string(),
+    ];
+    Simulation::parse("fake", &g, SimulationSettings { rows, seed }, body.iter().enumerate().map(|(i, l)| (i + 2, l.as_str())))
+        .expect("mechanisms")
+}
+
+/// `departure(plot within site, 0.6)` in a simulation draws one departure
+/// per (site, plot) pair: on a noiseless outcome the rows of a pair agree
+/// and plot p1 differs between sites. `recover` of `pooled site, pooled
+/// plot within site` sets beside the model's pairs the drawn departures,
+/// read here off the noiseless twin (same seed, the nested departure first
+/// in both, so drawn from the same stream), and the stated spread.
+#[test]
+fn simulated_nested_departures_are_drawn_per_pair_and_recovered() {
+    use waypath::infer::nuts::NutsSettings;
+    use waypath::model::ModelSpec;
+    use waypath::query::recover;
+    let twin = nested_simulation("y = normal(3 + departure(plot within site, 0.6), 0.000000001)", 2_000, 17);
+    let table = twin.table().expect("table");
+    let (sites, plots) = (category_codes(&table, "site"), category_codes(&table, "plot"));
+    let y = table.column("y").and_then(|c| c.data.as_reals()).expect("y");
+    let mut pairs: BTreeMap<(u32, u32), f64> = BTreeMap::new();
+    for i in 0..y.len() {
+        let seen = *pairs.entry((sites[i], plots[i])).or_insert(y[i] - 3.0);
+        assert!((seen - (y[i] - 3.0)).abs() < 1e-6, "rows of one pair share its departure");
+    }
+    assert_eq!(pairs.len(), 24);
+    assert!((pairs[&(0, 0)] - pairs[&(1, 0)]).abs() > 1e-6, "p1 of s1 is not p1 of s2");
+
+    let sim = nested_simulation("y = normal(3 + departure(plot within site, 0.6) + departure(site, 1), 0.5)", 2_000, 17);
+    let method = Method::Nuts(NutsSettings { chains: 2, settle: 300, draws: 300, seed: 4, ..NutsSettings::default() });
+    let spec = ModelSpec::from_lines("m", vec![(2, "y from pooled site, pooled plot within site using fake")]).expect("spec");
+    let r = recover(&spec, &sim, &method, &AtomicBool::new(false), 0.9).expect("recover");
+    let by_name = |name: &str| r.parameters.iter().find(|p| p.name == name).unwrap_or_else(|| panic!("no {name}"));
+    assert_eq!(by_name("plot spread").truth, Some(0.6));
+    assert_eq!(by_name("site spread").truth, Some(1.0));
+    let levels = ["s1", "s2", "s3", "s4", "s5", "s6", "s7", "s8"];
+    let labels = ["p1", "p2", "p3"];
+    for (&(s, p), &value) in &pairs {
+        let name = format!("plot departure[{} in {}]", labels[p as usize], levels[s as usize]);
+        let truth = by_name(&name).truth.expect("a truth");
+        assert!((truth - value).abs() < 1e-6, "{name}: {truth} vs the twin's {value}");
+    }
+}
+
+#[test]
+fn bad_nested_departures_are_refused_with_the_line_named() {
+    use waypath::graph::GraphBuilder;
+    use waypath::query::{QueryError, Simulation, SimulationSettings};
+    let mut b = GraphBuilder::new("g");
+    for l in ["site -> y", "plot -> y", "x -> y"] {
+        b.add_line(l).expect("graph line");
+    }
+    let g = b.finish().expect("graph");
+    for (line, words) in [
+        ("y = normal(departure(plot within plot, 1), 1)", "nested within itself"),
+        ("y = normal(departure(plot within ghost, 1), 1)", "ghost"),
+        ("y = normal(departure(plot within x, 1), 1)", "x"),
+        ("y = normal(departure(plot within site, 1) + departure(plot within site, 2), 1)", "twice"),
+    ] {
+        let body = ["site = category(a 0.5, b 0.5)", "plot = category(p1 0.5, p2 0.5)", "x = normal(0, 1)", line];
+        match Simulation::parse("fake", &g, SimulationSettings { rows: 10, seed: 1 }, body.iter().enumerate().map(|(i, l)| (i + 2, *l))) {
+            Err(QueryError::Mechanism { line: at, message }) => {
+                assert_eq!(at, 5, "{line}");
+                assert!(message.contains(words), "{line}: {message}");
+            }
+            other => panic!("{line} should be refused, got {:?}", other.map(|_| ())),
+        }
+    }
+}

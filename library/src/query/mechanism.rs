@@ -79,6 +79,9 @@ pub const CORRELATION_WORD: &str = "correlation";
 /// The word before the other slope of a correlation between two slopes'
 /// departures (`departure(block, 0.1, age, correlation 0.3 with girth)`).
 pub const CORRELATION_WITH: &str = "with";
+/// The word between a nested category and the category it sits in
+/// (`departure(plot within site, 0.5)`), as in a model's pooled term.
+pub const DEPARTURE_WITHIN: &str = "within";
 /// The deepest an expression may nest: parentheses, signs, functions and
 /// every operator of a chain each add one level. Evaluation recurses this
 /// deep, so the limit keeps a hostile line from overflowing the stack.
@@ -121,14 +124,22 @@ pub struct DepartureTerm {
     /// A slope's stated correlations with other slopes' departures of the
     /// same category (`correlation q with x`), by the other slope's parent.
     pub with_slopes: Vec<(String, f64)>,
+    /// For departures of `group` nested in another category
+    /// (`departure(plot within site, spread)`), that category: one
+    /// departure per pair of their levels.
+    pub within: Option<String>,
 }
 
 impl DepartureTerm {
     /// `departure(block, 0.8)` or `departure(block, 0.1, girth)`, with the
     /// spread written out by `spread`.
     pub fn written(&self, spread: &str) -> String {
-        let Some(x) = &self.slope else { return format!("{DEPARTURE}({}, {spread})", self.group) };
-        let mut parts = vec![self.group.clone(), spread.to_string(), x.clone()];
+        let group = match &self.within {
+            Some(outer) => format!("{} {DEPARTURE_WITHIN} {outer}", self.group),
+            None => self.group.clone(),
+        };
+        let Some(x) = &self.slope else { return format!("{DEPARTURE}({group}, {spread})") };
+        let mut parts = vec![group, spread.to_string(), x.clone()];
         parts.extend(self.correlation.map(|r| format!("{CORRELATION_WORD} {r}")));
         parts.extend(self.with_slopes.iter().map(|(w, q)| format!("{CORRELATION_WORD} {q} {CORRELATION_WITH} {w}")));
         format!("{DEPARTURE}({})", parts.join(", "))
@@ -196,6 +207,7 @@ impl Expr {
             Expr::Indicator { name, level } => out.push((name.clone(), Use::Level(level.clone()))),
             Expr::Departure(term) => {
                 out.push((term.group.clone(), Use::Group));
+                out.extend(term.within.iter().map(|outer| (outer.clone(), Use::Group)));
                 if let Some(x) = &term.slope {
                     out.push((x.clone(), Use::Number));
                 }
@@ -387,7 +399,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
         }
     };
     let terms = mechanism.departures();
-    let same = |a: &DepartureTerm, b: &DepartureTerm| a.group == b.group && a.slope == b.slope;
+    let same = |a: &DepartureTerm, b: &DepartureTerm| a.group == b.group && a.within == b.within && a.slope == b.slope;
     if let Some(term) = terms.iter().enumerate().find(|(i, t)| terms[..*i].iter().any(|u| same(u, t))).map(|(_, t)| t) {
         let group = &term.group;
         return Err(match &term.slope {
@@ -399,7 +411,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ),
         });
     }
-    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.group == t.group && u.slope.is_none())) {
+    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.group == t.group && u.within == t.within && u.slope.is_none())) {
         return Err(format!(
             "the mechanism of {name} states a correlation for departure({g}, …, {x}) with the intercept's departures, but draws \
              no departure({g}, spread) for the intercept; add one, or leave the correlation out",
@@ -417,7 +429,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
 fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), String> {
     for term in terms {
         for (w, _) in &term.with_slopes {
-            let other = terms.iter().find(|u| u.group == term.group && u.slope.as_deref() == Some(w.as_str()));
+            let other = terms.iter().find(|u| u.group == term.group && u.within == term.within && u.slope.as_deref() == Some(w.as_str()));
             let x = term.slope.as_deref().unwrap_or("");
             let Some(other) = other else {
                 return Err(format!(
@@ -435,8 +447,8 @@ fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), S
             }
         }
     }
-    for group in departure_groups(terms) {
-        let effects: Vec<&DepartureTerm> = group_effects(terms, group);
+    for (group, within) in departure_groups(terms) {
+        let effects: Vec<&DepartureTerm> = group_effects(terms, group, within);
         if effects.len() > 1 && correlation_factor(&effects).is_none() {
             return Err(format!(
                 "the correlations stated for the departures of {group} in the mechanism of {name} do not make a \
@@ -448,18 +460,19 @@ fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), S
     Ok(())
 }
 
-/// The categories `terms` draw departures for, each once.
-pub fn departure_groups(terms: &[DepartureTerm]) -> Vec<&str> {
-    let mut groups: Vec<&str> = terms.iter().map(|t| t.group.as_str()).collect();
+/// The categories `terms` draw departures for (each with the category it
+/// is nested in, if any), each once.
+pub fn departure_groups(terms: &[DepartureTerm]) -> Vec<(&str, Option<&str>)> {
+    let mut groups: Vec<(&str, Option<&str>)> = terms.iter().map(|t| (t.group.as_str(), t.within.as_deref())).collect();
     groups.sort_unstable();
     groups.dedup();
     groups
 }
 
-/// The departures of category `group` among `terms`: the intercept's first
-/// (when drawn), then the slopes' in reading order.
-pub fn group_effects<'t>(terms: &'t [DepartureTerm], group: &str) -> Vec<&'t DepartureTerm> {
-    let of = terms.iter().filter(|t| t.group == group);
+/// The departures of category `group` (nested `within`, if any) among
+/// `terms`: the intercept's first (when drawn), then the slopes' in reading order.
+pub fn group_effects<'t>(terms: &'t [DepartureTerm], group: &str, within: Option<&str>) -> Vec<&'t DepartureTerm> {
+    let of = terms.iter().filter(|t| t.group == group && t.within.as_deref() == within);
     of.clone().filter(|t| t.slope.is_none()).chain(of.filter(|t| t.slope.is_some())).collect()
 }
 
@@ -813,7 +826,14 @@ impl Parser<'_> {
                 }
             }
         }
-        for name in std::iter::once(group).chain(slope).chain(with_slopes.iter().map(|(w, _)| w.as_str())) {
+        let (group, within) = match group.split_once(&*format!(" {DEPARTURE_WITHIN} ")) {
+            Some((inner, outer)) => (inner.trim(), Some(outer.trim())),
+            None => (group, None),
+        };
+        if within == Some(group) {
+            return Err(format!("`departure({inside})`: {group} cannot be nested within itself"));
+        }
+        for name in std::iter::once(group).chain(within).chain(slope).chain(with_slopes.iter().map(|(w, _)| w.as_str())) {
             if !is_name(name) {
                 return Err(format!("`{name}` in `departure({inside})` is not a node name; write {form}"));
             }
@@ -827,7 +847,14 @@ impl Parser<'_> {
         while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
             self.at += 1;
         }
-        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string), correlation, with_slopes }))
+        Ok(Expr::Departure(DepartureTerm {
+            group: group.to_string(),
+            spread,
+            slope: slope.map(str::to_string),
+            correlation,
+            with_slopes,
+            within: within.map(str::to_string),
+        }))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

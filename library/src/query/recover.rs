@@ -165,7 +165,7 @@ fn true_parameters(
     let on_link = simulation.mechanism(outcome).map(Mechanism::link_departures).unwrap_or_default();
     let all_draws = simulation.group_draws(outcome, generated);
     let draws: Vec<&GroupDraw> =
-        all_draws.iter().filter(|d| on_link.iter().any(|t| t.group == d.group && t.slope == d.slope)).collect();
+        all_draws.iter().filter(|d| on_link.iter().any(|t| t.group == d.group && t.within == d.within && t.slope == d.slope)).collect();
     if draws.len() < all_draws.len() {
         notes.push(format!(
             "the mechanism of {outcome} draws a departure outside its linear predictor on the link scale (in an sd, \
@@ -175,19 +175,10 @@ fn true_parameters(
     let mut group_truths = Vec::new();
     let mut used = vec![false; draws.len()];
     for group in model.pooled_groups() {
-        if let Some(outer) = group.outer() {
-            notes.push(format!(
-                "pooled {} has no true values here: `departure({}, …)` draws one departure per {} label, not per \
-                 pair of {} and {outer} labels, so its truths would not be the nested group's",
-                group.written(),
-                group.column,
-                group.column,
-                group.column
-            ));
-            group_truths.extend(std::iter::repeat_n(None, group.labels().len()));
-            continue;
-        }
-        let find = |slope: Option<&str>| draws.iter().position(|d| d.group == group.column && d.slope.as_deref() == slope);
+        // A nested group stands for `departure(plot within site, …)`, whose levels are the same pairs.
+        let find = |slope: Option<&str>| {
+            draws.iter().position(|d| d.group == group.column && d.within.as_deref() == group.outer() && d.slope.as_deref() == slope)
+        };
         let intercept = find(None);
         let slopes: Vec<Option<usize>> = group.slopes.iter().map(|s| find(Some(&s.column))).collect();
         if intercept.is_none() && slopes.iter().all(Option::is_none) {

@@ -30,6 +30,7 @@ use crate::table::{Column, ColumnData, Table};
 use super::error::QueryError;
 use super::mechanism::{parse_mechanism_line, DepartureTerm, Mechanism, Use};
 use super::support::{short, stream_seed};
+use crate::model::terms::groups::nested_level;
 
 /// Rows generated between two reads of the cancel flag.
 const CANCEL_EVERY: usize = 4096;
@@ -106,6 +107,10 @@ pub(crate) struct GroupDraw {
     /// The stated correlations of a slope's departures with other slopes'
     /// (`correlation q with x`).
     pub(crate) with_slopes: Vec<(String, f64)>,
+    /// The category `group` is nested in (`departure(plot within site, …)`):
+    /// then `levels` are every pair, shown `p1 in A` like a nested pooled
+    /// group's, outer level by outer level.
+    pub(crate) within: Option<String>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
 }
@@ -119,6 +124,7 @@ impl GroupDraw {
             slope: self.slope.clone(),
             correlation: self.correlation,
             with_slopes: self.with_slopes.clone(),
+            within: self.within.clone(),
         }
     }
 }
@@ -135,8 +141,8 @@ impl GroupDraw {
 /// parser made sure the matrix is positive definite.
 fn correlate_departures(draws: &mut [GroupDraw]) {
     let terms: Vec<DepartureTerm> = draws.iter().map(GroupDraw::term).collect();
-    for group in super::mechanism::departure_groups(&terms) {
-        let effects = super::mechanism::group_effects(&terms, group);
+    for (group, within) in super::mechanism::departure_groups(&terms) {
+        let effects = super::mechanism::group_effects(&terms, group, within);
         if effects.iter().all(|t| t.correlation.is_none() && t.with_slopes.is_empty()) {
             continue;
         }
@@ -360,12 +366,8 @@ impl Simulation {
     /// Each generated row's departure in `draw` (that of its level of the
     /// category; for a slope's departure, times the row's value of the slope's parent).
     pub(crate) fn departure_in_rows(&self, draw: &GroupDraw, generated: &Generated) -> Vec<f64> {
-        let codes = self.nodes.iter().position(|m| m.node == draw.group).and_then(|k| match &generated.values[k] {
-            NodeValues::Category(codes) => Some(codes),
-            _ => None,
-        });
         let slope = draw.slope.as_ref().map(|x| self.nodes.iter().position(|m| m.node == *x));
-        let Some(codes) = codes else { return Vec::new() };
+        let Some(codes) = self.departure_levels(&draw.group, draw.within.as_deref(), generated) else { return Vec::new() };
         codes
             .iter()
             .enumerate()
@@ -379,6 +381,25 @@ impl Simulation {
             .collect()
     }
 
+    /// Each generated row's level index among the departures of `group`
+    /// (nested `within` another category: the pair's index, outer level by
+    /// outer level); `None` when a category was not generated.
+    fn departure_levels(&self, group: &str, within: Option<&str>, generated: &Generated) -> Option<Vec<u32>> {
+        let codes_of = |c: &str| {
+            self.nodes.iter().position(|m| m.node == c).and_then(|k| match generated.values.get(k)? {
+                NodeValues::Category(codes) => Some(codes),
+                _ => None,
+            })
+        };
+        let inner = codes_of(group)?;
+        let Some(outer) = within else { return Some(inner.clone()) };
+        let width = match self.mechanism(group) {
+            Some(Mechanism::Category { levels, .. }) => levels.len() as u32,
+            _ => return None,
+        };
+        Some(codes_of(outer)?.iter().zip(inner).map(|(o, i)| o * width + i).collect())
+    }
+
     fn eval_at(&self, expr: &super::mechanism::Expr, generated: &Generated, own: &[GroupDraw], i: usize) -> f64 {
         let position = |name: &str| self.nodes.iter().position(|m| m.node == name);
         let value = |name: &str| position(name).map_or(f64::NAN, |k| generated.values[k].real_at(i));
@@ -389,12 +410,21 @@ impl Simulation {
             })
         };
         let departure = |term: &DepartureTerm| {
-            let level = position(&term.group).and_then(|k| match &generated.values[k] {
-                NodeValues::Category(codes) => Some(codes[i] as usize),
-                _ => None,
-            });
+            let code = |c: &str| {
+                position(c).and_then(|k| match &generated.values[k] {
+                    NodeValues::Category(codes) => Some(codes[i] as usize),
+                    _ => None,
+                })
+            };
+            let level = match &term.within {
+                None => code(&term.group),
+                Some(outer) => match self.mechanism(&term.group) {
+                    Some(Mechanism::Category { levels, .. }) => code(outer).zip(code(&term.group)).map(|(o, c)| o * levels.len() + c),
+                    _ => None,
+                },
+            };
             own.iter()
-                .find(|d| d.group == term.group && d.slope == term.slope)
+                .find(|d| d.group == term.group && d.within == term.within && d.slope == term.slope)
                 .zip(level)
                 .and_then(|(d, l)| d.departures.get(l).copied())
                 .unwrap_or(f64::NAN)
@@ -428,14 +458,21 @@ impl Simulation {
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, DepartureTerm { group, spread, slope, correlation, with_slopes })| {
-                let levels = match self.mechanism(&group) {
+            .map(|(g, DepartureTerm { group, spread, slope, correlation, with_slopes, within })| {
+                let levels_of = |c: &str| match self.mechanism(c) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
                 };
+                let levels = match &within {
+                    Some(outer) => {
+                        let inner = levels_of(&group);
+                        levels_of(outer).iter().flat_map(|o| inner.iter().map(move |i| nested_level(i, o))).collect()
+                    }
+                    None => levels_of(&group),
+                };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, slope, correlation, with_slopes, departures }
+                GroupDraw { group, levels, spread, slope, correlation, with_slopes, within, departures }
             })
             .collect();
         correlate_departures(&mut draws);
