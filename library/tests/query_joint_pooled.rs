@@ -235,7 +235,12 @@ fit whole with nuts chains 1 settle 200 draws 200 seed 3
 ";
     let out = run(setup);
     assert!(out.error.is_none(), "{}", out.error.map(|e| e.describe()).unwrap_or_default());
-    for (words, said) in [(" in new site", "every row in one new site"), (" in site s2", "existing site s2"), ("", "own site")] {
+    for (words, said) in [
+        (" in new site", "every row in one new site"),
+        (" in new site per row", "each row in a new site of its own"),
+        (" in site s2", "existing site s2"),
+        ("", "own site"),
+    ] {
         let out = run(&format!("intervene whole: set cover 1 vs 0, watch insects{words} seed 4"));
         assert!(out.error.is_none(), "{words}: {}", out.error.map(|e| e.describe()).unwrap_or_default());
         let json = out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure");
