@@ -400,13 +400,14 @@ fn nested_simulation(y: &str, rows: usize, seed: u64) -> waypath::query::Simulat
     use waypath::graph::GraphBuilder;
     use waypath::query::{Simulation, SimulationSettings};
     let mut b = GraphBuilder::new("g");
-    for l in ["site -> y", "plot -> y"] {
+    for l in ["site -> y", "plot -> y", "x -> y"] {
         b.add_line(l).expect("graph line");
     }
     let g = b.finish().expect("graph");
     let body = [
         "site = category(s1 0.125, s2 0.125, s3 0.125, s4 0.125, s5 0.125, s6 0.125, s7 0.125, s8 0.125)".to_string(),
         "plot = category(p1 0.3, p2 0.3, p3 0.4)".to_string(),
+        "x = normal(1, 1)".to_string(),
         y.to_string(),
     ];
     Simulation::parse("fake", &g, SimulationSettings { rows, seed }, body.iter().enumerate().map(|(i, l)| (i + 2, l.as_str())))
@@ -475,5 +476,42 @@ fn bad_nested_departures_are_refused_with_the_line_named() {
             }
             other => panic!("{line} should be refused, got {:?}", other.map(|_| ())),
         }
+    }
+}
+
+/// A nested group's slope: `departure(plot within site, 0.3, x)` beside
+/// the pairs' intercept departures. Each pair's two departures are solved
+/// here from two rows of the noiseless twin (`y = 3 + 0.5·x + a + b·x`),
+/// and `recover` of `pooled plot within site with x` (centring off, so the
+/// model's departures are the mechanism's) must set them as the truths.
+#[test]
+fn recover_sets_a_nested_groups_slope_departures() {
+    use waypath::infer::nuts::NutsSettings;
+    use waypath::model::ModelSpec;
+    use waypath::query::recover;
+    let mechanism = |sd: &str| format!("y = normal(3 + 0.5 * x + departure(plot within site, 0.6) + departure(plot within site, 0.3, x), {sd})");
+    let twin = nested_simulation(&mechanism("0.000000001"), 2_000, 23).table().expect("table");
+    let (sites, plots) = (category_codes(&twin, "site"), category_codes(&twin, "plot"));
+    let (x, y) = (twin.column("x").and_then(|c| c.data.as_reals()).expect("x"), twin.column("y").and_then(|c| c.data.as_reals()).expect("y"));
+    let mut rows: BTreeMap<(u32, u32), Vec<usize>> = BTreeMap::new();
+    for i in 0..y.len() {
+        rows.entry((sites[i], plots[i])).or_default().push(i);
+    }
+    let sim = nested_simulation(&mechanism("0.5"), 2_000, 23);
+    let method = Method::Nuts(NutsSettings { chains: 2, settle: 300, draws: 300, seed: 6, ..NutsSettings::default() });
+    let spec = ModelSpec::from_lines("m", vec![(2, "y from x, pooled plot within site with x using fake"), (3, "centre off")]).expect("spec");
+    let r = recover(&spec, &sim, &method, &AtomicBool::new(false), 0.9).expect("recover");
+    let by_name = |name: &str| r.parameters.iter().find(|p| p.name == name).unwrap_or_else(|| panic!("no {name}"));
+    assert_eq!(by_name("plot x spread").truth, Some(0.3));
+    let levels = ["s1", "s2", "s3", "s4", "s5", "s6", "s7", "s8"];
+    let labels = ["p1", "p2", "p3"];
+    for (&(s, p), at) in &rows {
+        let (i, j) = (at[0], at[1]);
+        let b = (y[i] - y[j]) / (x[i] - x[j]) - 0.5;
+        let a = y[i] - 3.0 - (0.5 + b) * x[i];
+        let pair = format!("{} in {}", labels[p as usize], levels[s as usize]);
+        let truth_a = by_name(&format!("plot departure[{pair}]")).truth.expect("a truth");
+        let truth_b = by_name(&format!("plot x departure[{pair}]")).truth.expect("a truth");
+        assert!((truth_a - a).abs() < 1e-6 && (truth_b - b).abs() < 1e-6, "{pair}: ({truth_a}, {truth_b}) vs ({a}, {b})");
     }
 }
