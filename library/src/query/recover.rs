@@ -219,8 +219,9 @@ fn true_parameters(
 /// the mechanism drew none). With centring, a slope's design column is the
 /// predictor less `c` (`shifts`), so the model's intercept departures are
 /// `a₀ⱼ + Σₓ cₓ·aₓⱼ`, of spread `√(τ₀² + Σ cₓ²τₓ²)` and correlation
-/// `cₓτₓ / that` with slope `x`; the slopes' departures were drawn
-/// independently, so their correlations are 0.
+/// `cₓτₓ / that` with slope `x` when the departures were drawn apart; with
+/// stated correlations every spread and correlation comes from the stated
+/// covariance ([`StatedCovariance`]).
 fn group_truth(
     group: &GroupTerm,
     intercept: Option<&GroupDraw>,
