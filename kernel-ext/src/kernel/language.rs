@@ -659,7 +659,7 @@ mod tests {
         let header = "simulate s from orchard rows 50 seed 7:";
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
-            ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "normal(", "poisson(", "weibull("]),
+            ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "levels(", "normal(", "poisson(", "weibull("]),
             ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
             ("n = poisson(", &["departure(", "exp(", "log", "log("]),
             ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),

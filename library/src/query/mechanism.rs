@@ -53,7 +53,7 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, EXPONENTIAL, WEIBULL];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, LEVELS, EXPONENTIAL, WEIBULL];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
@@ -63,6 +63,9 @@ pub const BETA: &str = "beta";
 pub const EXPONENTIAL: &str = "exponential";
 pub const WEIBULL: &str = "weibull";
 pub const GRADED: &str = "graded";
+/// A category drawn by softmax from each level's log odds against the
+/// first: `levels(herb, shrub = 0.4 + departure(site, 0.8), tree = -0.2)`.
+pub const LEVELS: &str = "levels";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -114,6 +117,9 @@ pub enum Expr {
 pub struct DepartureTerm {
     /// The category whose levels depart.
     pub group: String,
+    /// In a `levels(…)` mechanism, the outcome level whose log odds the
+    /// departure moves (set by [`Mechanism::departures`]; `None` elsewhere).
+    pub outcome_level: Option<String>,
     /// The stated spread of the departures.
     pub spread: f64,
     /// The numeric parent whose slope departs (`None`: the intercept's departure).
@@ -226,7 +232,9 @@ impl Expr {
 pub enum Mechanism {
     /// Levels in declared order, drawn with fixed shares, or for a graded
     /// category (`score` given) by cutting each row's latent score.
-    Category { levels: Vec<String>, shares: Vec<f64>, score: Option<LatentScore> },
+    /// With `log_odds` (one per level after the first, `levels(…)`), each
+    /// row's level is drawn by softmax from them, the first level's 0.
+    Category { levels: Vec<String>, shares: Vec<f64>, score: Option<LatentScore>, log_odds: Vec<Expr> },
     Normal { mean: Expr, sd: Expr },
     /// `p` is the probability, or its logit when `logit` is true.
     Bernoulli { p: Expr, logit: bool },
@@ -255,7 +263,9 @@ impl Mechanism {
     /// Every `departure(…)` the mechanism draws, in reading order.
     pub fn departures(&self) -> Vec<DepartureTerm> {
         match self {
-            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.departures()).collect(),
+            Mechanism::Category { score, .. } => {
+                score.iter().flat_map(|s| s.score.departures()).chain(self.level_departures()).collect()
+            }
             Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
             Mechanism::Bernoulli { p, .. } => p.departures(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
@@ -277,14 +287,28 @@ impl Mechanism {
             Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
             Mechanism::Time { mean, log: true, .. } => mean.departures(),
             Mechanism::Category { score: Some(s), .. } => s.score.departures(),
+            Mechanism::Category { .. } => self.level_departures(),
             _ => Vec::new(),
         }
+    }
+
+    /// The departures of a `levels(…)` mechanism, each tagged with the
+    /// outcome level whose log odds it moves.
+    fn level_departures(&self) -> Vec<DepartureTerm> {
+        let Mechanism::Category { levels, log_odds, .. } = self else { return Vec::new() };
+        levels[1..]
+            .iter()
+            .zip(log_odds)
+            .flat_map(|(level, e)| e.departures().into_iter().map(|t| DepartureTerm { outcome_level: Some(level.clone()), ..t }))
+            .collect()
     }
 
     /// Every node the mechanism reads.
     pub fn uses(&self) -> Vec<(String, Use)> {
         match self {
-            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.uses()).collect(),
+            Mechanism::Category { score, log_odds, .. } => {
+                score.iter().flat_map(|s| s.score.uses()).chain(log_odds.iter().flat_map(Expr::uses)).collect()
+            }
             Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
             Mechanism::Bernoulli { p, .. } => p.uses(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
@@ -299,6 +323,7 @@ impl Mechanism {
 impl fmt::Display for Mechanism {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let name = match self {
+            Mechanism::Category { score: None, log_odds, .. } if !log_odds.is_empty() => LEVELS,
             Mechanism::Category { score: None, .. } => CATEGORY,
             Mechanism::Category { score: Some(_), .. } => GRADED,
             Mechanism::Normal { .. } => NORMAL,
@@ -344,6 +369,15 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
     let mechanism = match (dist, args.as_slice()) {
         (CATEGORY, items) => parse_category(name, items)?,
         (GRADED, [score, lowest, rest @ ..]) if !rest.is_empty() => parse_graded(name, score, lowest, rest)?,
+        (LEVELS, [reference, rest @ ..]) if !rest.is_empty() => parse_levels(name, reference, rest)?,
+        (LEVELS, _) => {
+            return Err(format!(
+                "levels takes the first level, then each other level with its log odds against the first \
+                 (`levels(herb, shrub = 0.4 + departure(site, 0.8), tree = -0.2)`), not {} argument{}",
+                args.len(),
+                if args.len() == 1 { "" } else { "s" }
+            ))
+        }
         (GRADED, _) => {
             return Err(format!(
                 "graded takes the latent score, the lowest level, then each higher level with the cut below it \
@@ -399,7 +433,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
         }
     };
     let terms = mechanism.departures();
-    let same = |a: &DepartureTerm, b: &DepartureTerm| a.group == b.group && a.within == b.within && a.slope == b.slope;
+    let same = |a: &DepartureTerm, b: &DepartureTerm| a.key() == b.key() && a.slope == b.slope;
     if let Some(term) = terms.iter().enumerate().find(|(i, t)| terms[..*i].iter().any(|u| same(u, t))).map(|(_, t)| t) {
         let group = &term.group;
         return Err(match &term.slope {
@@ -411,7 +445,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ),
         });
     }
-    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.group == t.group && u.within == t.within && u.slope.is_none())) {
+    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.key() == t.key() && u.slope.is_none())) {
         return Err(format!(
             "the mechanism of {name} states a correlation for departure({g}, …, {x}) with the intercept's departures, but draws \
              no departure({g}, spread) for the intercept; add one, or leave the correlation out",
@@ -429,7 +463,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
 fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), String> {
     for term in terms {
         for (w, _) in &term.with_slopes {
-            let other = terms.iter().find(|u| u.group == term.group && u.within == term.within && u.slope.as_deref() == Some(w.as_str()));
+            let other = terms.iter().find(|u| u.key() == term.key() && u.slope.as_deref() == Some(w.as_str()));
             let x = term.slope.as_deref().unwrap_or("");
             let Some(other) = other else {
                 return Err(format!(
@@ -447,8 +481,9 @@ fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), S
             }
         }
     }
-    for (group, within) in departure_groups(terms) {
-        let effects: Vec<&DepartureTerm> = group_effects(terms, group, within);
+    for key in departure_groups(terms) {
+        let group = key.0;
+        let effects: Vec<&DepartureTerm> = group_effects(terms, key);
         if effects.len() > 1 && correlation_factor(&effects).is_none() {
             return Err(format!(
                 "the correlations stated for the departures of {group} in the mechanism of {name} do not make a \
@@ -460,19 +495,29 @@ fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), S
     Ok(())
 }
 
-/// The categories `terms` draw departures for (each with the category it
-/// is nested in, if any), each once.
-pub fn departure_groups(terms: &[DepartureTerm]) -> Vec<(&str, Option<&str>)> {
-    let mut groups: Vec<(&str, Option<&str>)> = terms.iter().map(|t| (t.group.as_str(), t.within.as_deref())).collect();
+/// What makes departures one group: the category, the category it is
+/// nested in and the outcome level they move (each if any).
+pub type GroupKey<'t> = (&'t str, Option<&'t str>, Option<&'t str>);
+
+impl DepartureTerm {
+    /// The group this departure belongs to.
+    pub fn key(&self) -> GroupKey<'_> {
+        (self.group.as_str(), self.within.as_deref(), self.outcome_level.as_deref())
+    }
+}
+
+/// The groups `terms` draw departures for, each once.
+pub fn departure_groups(terms: &[DepartureTerm]) -> Vec<GroupKey<'_>> {
+    let mut groups: Vec<GroupKey<'_>> = terms.iter().map(DepartureTerm::key).collect();
     groups.sort_unstable();
     groups.dedup();
     groups
 }
 
-/// The departures of category `group` (nested `within`, if any) among
-/// `terms`: the intercept's first (when drawn), then the slopes' in reading order.
-pub fn group_effects<'t>(terms: &'t [DepartureTerm], group: &str, within: Option<&str>) -> Vec<&'t DepartureTerm> {
-    let of = terms.iter().filter(|t| t.group == group && t.within.as_deref() == within);
+/// The departures of group `key` among `terms`: the intercept's first
+/// (when drawn), then the slopes' in reading order.
+pub fn group_effects<'t>(terms: &'t [DepartureTerm], key: GroupKey<'_>) -> Vec<&'t DepartureTerm> {
+    let of = terms.iter().filter(|t| t.key() == key);
     of.clone().filter(|t| t.slope.is_none()).chain(of.filter(|t| t.slope.is_some())).collect()
 }
 
@@ -560,7 +605,30 @@ fn parse_category(name: &str, items: &[&str]) -> Result<Mechanism, String> {
     if (total - 1.0).abs() > 1e-6 {
         return Err(format!("the shares of {name} add up to {}, not 1; adjust them", crate::model::prior::short_number(total)));
     }
-    Ok(Mechanism::Category { levels, shares, score: None })
+    Ok(Mechanism::Category { levels, shares, score: None, log_odds: Vec::new() })
+}
+
+/// `levels(first, level = log odds, …)`: the first level the reference,
+/// each other level with its log odds against it.
+fn parse_levels(name: &str, reference: &str, rest: &[&str]) -> Result<Mechanism, String> {
+    let mut levels = vec![reference.trim().to_string()];
+    if !is_name(&levels[0]) {
+        return Err(format!("`{}` is not a level name for {name}; the first argument of levels is the reference level", levels[0]));
+    }
+    let mut log_odds = Vec::with_capacity(rest.len());
+    for item in rest {
+        let (level, expr) = item
+            .split_once('=')
+            .map(|(l, e)| (l.trim().to_string(), e))
+            .filter(|(l, _)| is_name(l))
+            .ok_or_else(|| format!("levels item `{}` needs a level and its log odds, like `shrub = 0.4 + 0.1 * girth`", item.trim()))?;
+        if levels.contains(&level) {
+            return Err(format!("level {level} of {name} is listed twice; list each level once"));
+        }
+        levels.push(level);
+        log_odds.push(parse_expr(expr)?);
+    }
+    Ok(Mechanism::Category { levels, shares: Vec::new(), score: None, log_odds })
 }
 
 /// `graded(score, lowest, level cut, …)`: the levels lowest first, each
@@ -593,7 +661,7 @@ fn parse_graded(name: &str, score: &str, lowest: &str, rest: &[&str]) -> Result<
         levels.push(level);
         cuts.push(cut);
     }
-    Ok(Mechanism::Category { levels, shares: Vec::new(), score: Some(LatentScore { score: parse_expr(score)?, cuts }) })
+    Ok(Mechanism::Category { levels, shares: Vec::new(), score: Some(LatentScore { score: parse_expr(score)?, cuts }), log_odds: Vec::new() })
 }
 
 /// Split at commas outside brackets.
@@ -849,6 +917,7 @@ impl Parser<'_> {
         }
         Ok(Expr::Departure(DepartureTerm {
             group: group.to_string(),
+            outcome_level: None,
             spread,
             slope: slope.map(str::to_string),
             correlation,

@@ -111,6 +111,9 @@ pub(crate) struct GroupDraw {
     /// then `levels` are every pair, shown `p1 in A` like a nested pooled
     /// group's, outer level by outer level.
     pub(crate) within: Option<String>,
+    /// In a `levels(…)` mechanism, the outcome level whose log odds these
+    /// departures move.
+    pub(crate) outcome_level: Option<String>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
 }
@@ -120,6 +123,7 @@ impl GroupDraw {
     pub(crate) fn term(&self) -> DepartureTerm {
         DepartureTerm {
             group: self.group.clone(),
+            outcome_level: self.outcome_level.clone(),
             spread: self.spread,
             slope: self.slope.clone(),
             correlation: self.correlation,
@@ -141,8 +145,8 @@ impl GroupDraw {
 /// parser made sure the matrix is positive definite.
 fn correlate_departures(draws: &mut [GroupDraw]) {
     let terms: Vec<DepartureTerm> = draws.iter().map(GroupDraw::term).collect();
-    for (group, within) in super::mechanism::departure_groups(&terms) {
-        let effects = super::mechanism::group_effects(&terms, group, within);
+    for key in super::mechanism::departure_groups(&terms) {
+        let effects = super::mechanism::group_effects(&terms, key);
         if effects.iter().all(|t| t.correlation.is_none() && t.with_slopes.is_empty()) {
             continue;
         }
@@ -345,6 +349,28 @@ impl Simulation {
         }
     }
 
+    /// A `levels(…)` node's log odds of each level after the first against
+    /// it, in every generated row (`None` for any other node).
+    pub(crate) fn level_log_odds_truth(&self, node: &str, generated: &Generated) -> Option<Vec<Vec<f64>>> {
+        let k = self.nodes.iter().position(|m| m.node == node)?;
+        let Mechanism::Category { levels, log_odds, .. } = &self.nodes[k].mechanism else { return None };
+        if log_odds.is_empty() {
+            return None;
+        }
+        let n = generated.values[k].len();
+        let own = &generated.departures[k];
+        Some(
+            levels[1..]
+                .iter()
+                .zip(log_odds)
+                .map(|(level, e)| {
+                    let mine: Vec<GroupDraw> = own.iter().filter(|d| d.outcome_level.as_deref() == Some(level.as_str())).cloned().collect();
+                    (0..n).map(|i| self.eval_at(e, generated, &mine, i)).collect()
+                })
+                .collect(),
+        )
+    }
+
     fn index(&self, node: &str, place: &str) -> Result<usize, QueryError> {
         self.nodes.iter().position(|m| m.node == node).ok_or_else(|| {
             QueryError::request(format!("{place}: {node} is not a node of graph {}", self.graph.name()))
@@ -458,7 +484,7 @@ impl Simulation {
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, DepartureTerm { group, spread, slope, correlation, with_slopes, within })| {
+            .map(|(g, DepartureTerm { group, spread, slope, correlation, with_slopes, within, outcome_level })| {
                 let levels_of = |c: &str| match self.mechanism(c) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
@@ -472,7 +498,7 @@ impl Simulation {
                 };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, slope, correlation, with_slopes, within, departures }
+                GroupDraw { group, levels, spread, slope, correlation, with_slopes, within, outcome_level, departures }
             })
             .collect();
         correlate_departures(&mut draws);
@@ -491,6 +517,29 @@ impl Simulation {
         let what = format!("simulate {}", self.name);
         let stop = |i: usize| if i % CANCEL_EVERY == 0 { QueryError::stop_if(cancel, &what) } else { Ok(()) };
         Ok(match &m.mechanism {
+            Mechanism::Category { levels, log_odds, .. } if !log_odds.is_empty() => {
+                let by_level: Vec<Vec<GroupDraw>> = levels[1..]
+                    .iter()
+                    .map(|l| own.iter().filter(|d| d.outcome_level.as_deref() == Some(l.as_str())).cloned().collect())
+                    .collect();
+                let mut out = Vec::with_capacity(rows);
+                let mut eta = vec![0.0; levels.len()];
+                for i in 0..rows {
+                    stop(i)?;
+                    for (k, (e, mine)) in log_odds.iter().zip(&by_level).enumerate() {
+                        eta[k + 1] = self.eval_at(e, so_far, mine, i);
+                        if !eta[k + 1].is_finite() {
+                            return Err(bad(i, format!("the log odds of {} is {}, but it must be a finite number", levels[k + 1], short(eta[k + 1]))));
+                        }
+                    }
+                    let top = eta.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                    let weights: Vec<f64> = eta.iter().map(|e| (e - top).exp()).collect();
+                    let u: f64 = rng.random::<f64>() * weights.iter().sum::<f64>();
+                    let mut total = 0.0;
+                    out.push(weights.iter().position(|w| { total += w; u < total }).unwrap_or(levels.len() - 1) as u32);
+                }
+                NodeValues::Category(out)
+            }
             Mechanism::Category { score: Some(latent), .. } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
