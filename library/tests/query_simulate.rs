@@ -318,7 +318,7 @@ fn mechanism_errors_name_the_line_and_the_fix() {
         .assert_eq(&error(&shares));
     let mut dist = ORCHARD.to_vec();
     dist[2] = "yield = gamma(2, 3)";
-    expect_test::expect![[r#"simulate line 4: unknown distribution `gamma`; use category, normal, bernoulli, poisson, gamma_poisson, beta, graded, exponential or weibull"#]]
+    expect_test::expect![[r#"simulate line 4: unknown distribution `gamma`; use category, normal, bernoulli, poisson, gamma_poisson, beta, graded, levels, exponential or weibull"#]]
         .assert_eq(&error(&dist));
     let mut syntax = ORCHARD.to_vec();
     syntax[2] = "yield = normal(2 + * girth, 3)";

@@ -165,3 +165,149 @@ def test_lkj_prior_draws_have_the_published_beta_marginals(probe):
                 for c in range(r):
                     omega[r, c] = omega[c, r] = next(lower)
             assert np.linalg.eigvalsh(omega).min() > 0
+
+
+def sites_with_plots(groups=40, plots=4, per=12, seed=36):
+    """Plots labelled p1..p4 in every site (labels repeat across sites):
+    each site departs with sd 1.6, each plot of a site with sd 0.9."""
+    rng = np.random.default_rng(seed)
+    site, plot = [], []
+    for s in range(groups):
+        for p in range(plots):
+            n = int(rng.integers(per // 2, per * 3 // 2))
+            site += [s] * n
+            plot += [p] * n
+    site, plot = np.array(site), np.array(plot)
+    n = len(site)
+    moisture = rng.normal(30, 6, n)
+    site_shift = rng.normal(0, 1.6, groups)
+    plot_shift = rng.normal(0, 0.9, (groups, plots))
+    growth = 12 + 0.4 * moisture + site_shift[site] + plot_shift[site, plot] + rng.normal(0, 2.0, n)
+    return site, plot, moisture, growth
+
+
+def test_normal_nested_plots_match_mixedlm_reml(probe):
+    """`pooled site, pooled plot within site` against MixedLM with a random
+    intercept per site and a variance component for the plots within each
+    site (vc_formula "0 + C(plot)", evaluated within each site's rows, so
+    plot p1 of one site is not p1 of another), REML."""
+    site, plot, moisture, growth = sites_with_plots()
+    sites = [f"S{k + 1}" for k in range(site.max() + 1)]
+    plots = [f"p{k + 1}" for k in range(plot.max() + 1)]
+    answer = probe("model", {
+        "action": "nuts", "chains": 2, "settle": 300, "draws": 500, "seed": 7,
+        "columns": {"site": {"category": {"codes": site.tolist(), "levels": sites}},
+                    "plot": {"category": {"codes": plot.tolist(), "levels": plots}},
+                    "moisture": {"real": moisture.tolist()}, "growth": {"real": growth.tolist()}},
+        "model": "growth from moisture, pooled site, pooled plot within site using plots\n" + WIDE,
+    })
+    assert "error" not in answer, answer
+    names = answer["names"]
+    mean = dict(zip(names, answer["mean"]))
+    median = dict(zip(names, answer["median"]))
+    sd = dict(zip(names, answer["sd"]))
+    assert answer["divergences"] == 0, answer["divergences"]
+    worst = int(np.argmax(answer["r_hat"]))
+    assert answer["largest_r_hat"] < 1.05, (names[worst], answer["largest_r_hat"], answer.get("notes"))
+    # One departure per (site, plot) pair, named plot first.
+    assert sum(n.startswith("plot departure[") for n in names) == len(sites) * len(plots)
+
+    centred = moisture - moisture.mean()
+    import pandas as pd
+    data = pd.DataFrame({"growth": growth, "centred": centred, "site": site, "plot": plot})
+    reml = smf.mixedlm("growth ~ centred", data, groups="site", re_formula="1",
+                       vc_formula={"plot": "0 + C(plot)"}).fit(reml=True, method="lbfgs")
+    # The default optimiser stops short on these data; L-BFGS reaches the
+    # optimum that Nelder-Mead and Powell also reach (same REML criterion).
+    assert reml.converged
+    for ours, theirs in [("intercept", "Intercept"), ("moisture slope", "centred")]:
+        se = reml.bse[theirs]
+        assert abs(mean[ours] - reml.params[theirs]) < 0.25 * se, (ours, mean[ours], reml.params[theirs], se)
+        assert abs(sd[ours] / se - 1) < 0.2, (ours, sd[ours], se)
+    tau_site = np.sqrt(reml.cov_re.iloc[0, 0])
+    tau_plot = np.sqrt(reml.vcomp[0])
+    sigma = np.sqrt(reml.scale)
+    assert abs(median["site spread"] / tau_site - 1) < 0.08, (median["site spread"], tau_site)
+    assert abs(median["plot spread"] / tau_plot - 1) < 0.08, (median["plot spread"], tau_plot)
+    assert abs(median["spread"] / sigma - 1) < 0.01, (median["spread"], sigma)
+    # Predicted departures: the site's, and each plot's within its site
+    # (statsmodels lists a group's random effects, then its plots' components).
+    for k, s in enumerate(sites):
+        effects = reml.random_effects[k]
+        assert abs(mean[f"site departure[{s}]"] - effects.iloc[0]) < 0.15, (s, mean[f"site departure[{s}]"], effects.iloc[0])
+        for j, p in enumerate(plots):
+            ours = mean[f"plot departure[{p} in {s}]"]
+            assert abs(ours - effects.iloc[1 + j]) < 0.15, (p, s, ours, effects.iloc[1 + j])
+
+
+def sites_with_two_slopes(groups=40, per=150, seed=46):
+    """Each site departs in its intercept (sd 1.8), its moisture slope (sd
+    0.15) and its shade slope (sd 0.06), correlated 0.4, -0.3 and 0.25.
+    Many rows per site, so each site's rows pin its slopes well (the
+    automatic choice samples the group centred)."""
+    rng = np.random.default_rng(seed)
+    sizes = rng.integers(per * 3 // 4, per * 5 // 4, groups)
+    site = np.repeat(np.arange(groups), sizes)
+    n = len(site)
+    moisture = rng.normal(30, 6, n)
+    shade = rng.normal(50, 15, n)
+    sd = np.array([1.8, 0.15, 0.06])
+    corr = np.array([[1, 0.4, -0.3], [0.4, 1, 0.25], [-0.3, 0.25, 1]])
+    shift = rng.multivariate_normal([0, 0, 0], corr * np.outer(sd, sd), groups)
+    cm, cs = moisture - moisture.mean(), shade - shade.mean()
+    growth = (24 + 0.4 * cm - 0.1 * cs + shift[site, 0] + shift[site, 1] * cm + shift[site, 2] * cs
+              + rng.normal(0, 2.5, n))
+    return site, moisture, shade, growth
+
+
+def test_normal_two_varying_slopes_match_mixedlm_reml(probe):
+    """`pooled site with (moisture, shade)` against MixedLM with a random
+    intercept and two random slopes and their full covariance (re_formula
+    "~cm + cs"), REML; lkj(1) is flat over correlation matrices. With 40
+    sites the posterior of a spread or correlation is wide, so each is
+    compared with REML in units of its posterior sd."""
+    site, moisture, shade, growth = sites_with_two_slopes()
+    levels = [f"S{k + 1}" for k in range(site.max() + 1)]
+    answer = probe("model", {
+        "action": "nuts", "chains": 2, "settle": 400, "draws": 600, "seed": 6,
+        "columns": {"site": {"category": {"codes": site.tolist(), "levels": levels}},
+                    "moisture": {"real": moisture.tolist()}, "shade": {"real": shade.tolist()},
+                    "growth": {"real": growth.tolist()}},
+        "model": "growth from moisture, shade, pooled site with (moisture, shade) using plots\n" + WIDE
+                 + "prior pooled correlations: lkj(1)\n",
+    })
+    assert "error" not in answer, answer
+    names = answer["names"]
+    mean = dict(zip(names, answer["mean"]))
+    median = dict(zip(names, answer["median"]))
+    sd = dict(zip(names, answer["sd"]))
+    assert answer["divergences"] == 0, answer["divergences"]
+    worst = int(np.argmax(answer["r_hat"]))
+    assert answer["largest_r_hat"] < 1.05, (names[worst], answer["largest_r_hat"], answer.get("notes"))
+
+    import pandas as pd
+    data = pd.DataFrame({"growth": growth, "cm": moisture - moisture.mean(), "cs": shade - shade.mean(), "site": site})
+    # L-BFGS reaches a higher REML criterion here than Nelder-Mead does (its
+    # note that the optimum may be on the boundary is statsmodels' generic check).
+    reml = smf.mixedlm("growth ~ cm + cs", data, groups="site", re_formula="~cm + cs").fit(reml=True, method="lbfgs")
+    assert reml.converged
+    for ours, theirs in [("intercept", "Intercept"), ("moisture slope", "cm"), ("shade slope", "cs")]:
+        se = reml.bse[theirs]
+        assert abs(mean[ours] - reml.params[theirs]) < 0.25 * se, (ours, mean[ours], reml.params[theirs], se)
+        assert abs(sd[ours] / se - 1) < 0.2, (ours, sd[ours], se)
+    cov = reml.cov_re.values
+    taus = np.sqrt(np.diag(cov))
+    rho = cov / np.outer(taus, taus)
+    theirs = {"site spread": taus[0], "site moisture spread": taus[1], "site shade spread": taus[2],
+              "site correlation[intercept, moisture]": rho[1, 0],
+              "site correlation[intercept, shade]": rho[2, 0],
+              "site correlation[moisture, shade]": rho[2, 1]}
+    for name, value in theirs.items():
+        assert abs(median[name] - value) < 0.5 * sd[name], (name, median[name], value, sd[name])
+    sigma = np.sqrt(reml.scale)
+    assert abs(median["spread"] / sigma - 1) < 0.01, (median["spread"], sigma)
+    blups = np.array([reml.random_effects[k].values for k in range(len(levels))])
+    for j, (label, bound) in enumerate([("site departure", 0.15), ("site moisture departure", 0.015),
+                                        ("site shade departure", 0.006)]):
+        ours = np.array([mean[f"{label}[{lv}]"] for lv in levels])
+        assert np.max(np.abs(ours - blups[:, j])) < bound, (label, np.max(np.abs(ours - blups[:, j])))

@@ -588,7 +588,8 @@ mod tests {
             ("yield from rootstock, girth per rootstock ", &["using"]),
             // README "Pooled groups": `pooled block`, `pooled block with girth`,
             // `parameterise block centred|noncentred`.
-            ("yield from girth, pooled block ", &["using", "with"]),
+            ("yield from girth, pooled block ", &["using", "with", "within"]),
+            ("yield from girth, pooled plot within site ", &["using", "with"]),
             ("yield from girth, pooled block with girth ", &["using"]),
             ("yield from girth, po", &["pooled", "powers("]),
             ("parameterise block ", &["centred", "noncentred"]),
@@ -658,7 +659,7 @@ mod tests {
         let header = "simulate s from orchard rows 50 seed 7:";
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
-            ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "normal(", "poisson(", "weibull("]),
+            ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "levels(", "normal(", "poisson(", "weibull("]),
             ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
             ("n = poisson(", &["departure(", "exp(", "log", "log("]),
             ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),

@@ -417,7 +417,11 @@ pub fn shrinkage(s: &crate::query::Shrinkage, model: &Model, table: &Table) -> R
         .iter()
         .map(|l| ShrinkageRow { label: l.level.clone(), rows: l.rows, raw: l.raw, mean: l.mean, lower: l.lower, upper: l.upper })
         .collect();
-    shrinkage_figure(&format!("{} levels of {}", s.model, s.group), &value, &interval_label(s.mass), s.population, &rows)
+    let subject = match &s.outcome_level {
+        Some(level) => format!("{} levels of {}, log odds of {level}", s.model, s.group),
+        None => format!("{} levels of {}", s.model, s.group),
+    };
+    shrinkage_figure(&subject, &value, &interval_label(s.mass), s.population, &rows)
 }
 
 /// A contrast: the density of its per-draw differences with both sides of

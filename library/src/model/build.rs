@@ -193,7 +193,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
 fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Result<Vec<GroupTerm>, ModelError> {
     let mut groups = Vec::new();
     for term in &spec.terms {
-        let TermSpec::Pooled { by, with } = term else { continue };
+        let TermSpec::Pooled { by, within, with } = term else { continue };
         if spec.family == Family::Graded {
             return Err(ModelError::Term {
                 term: term.to_string(),
@@ -204,7 +204,17 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
                 ),
             });
         }
-        let mut group = GroupTerm::plan(by, table).map_err(|e| match e {
+        if within.as_deref() == Some(spec.outcome.as_str()) {
+            return Err(ModelError::Term {
+                term: term.to_string(),
+                message: format!("`{}` is the outcome; a pooled group cannot be nested within it", spec.outcome),
+            });
+        }
+        let planned = match within {
+            Some(outer) => GroupTerm::plan_nested(by, outer, table),
+            None => GroupTerm::plan(by, table),
+        };
+        let mut group = planned.map_err(|e| match e {
             ModelError::Syntax { message } => ModelError::Term { term: term.to_string(), message },
             other => other,
         })?;
@@ -214,7 +224,10 @@ fn plan_groups(spec: &ModelSpec, table: &Table, recipes: &[TermRecipe]) -> Resul
         if groups.iter().any(|g: &GroupTerm| g.column == group.column) {
             return Err(ModelError::Term {
                 term: term.to_string(),
-                message: format!("`{by}` is pooled twice; keep one `pooled {by}` term (with its slope, if any)"),
+                message: format!(
+                    "`{by}` is pooled twice; keep one `pooled {by}` term (with its slope, if any){}",
+                    if within.is_some() { ", nested or not" } else { "" }
+                ),
             });
         }
         let rows = table.nrows();

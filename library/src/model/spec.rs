@@ -19,7 +19,9 @@
 //! * A term `pooled <category>`: each level of the category departs from
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
-//!   pooling: a level with few rows is pulled towards the population).
+//!   pooling: a level with few rows is pulled towards the population);
+//!   `pooled <category> within <outer>` for a category nested in another
+//!   whose labels repeat across the outer levels (its levels are the pairs).
 //! * `family normal | bernoulli | poisson | gamma_poisson | beta | levels | binomial out of <column>`,
 //!   or `family exponential | weibull`, optionally followed by
 //!   `cut short by <column>` (a yes/no column: the follow-up ended first).
@@ -78,6 +80,11 @@ pub const POOLED: &str = "pooled";
 /// slope varies with the category's intercept: `pooled block with girth`,
 /// or several in brackets: `pooled block with (girth, age)`.
 pub const POOLED_WITH: &str = "with";
+/// The word after a pooled category that names the category it is nested
+/// in: `pooled plot within site` pools the plots of each site, a plot
+/// being the pair of its own label and its site's (plot `p1` of site `A` is
+/// not plot `p1` of site `B`).
+pub const POOLED_WITHIN: &str = "within";
 /// The prior group of the correlations between a pooled group's intercept
 /// and its varying slopes: `prior pooled correlations: lkj(2)`.
 pub const POOLED_CORRELATIONS: &str = "pooled correlations";
@@ -104,8 +111,10 @@ pub enum TermSpec {
     /// population, the departures normal around 0 with a learned spread;
     /// `pooled c with x` also gives each level a departure of the slope of
     /// `x`, the two departures jointly normal with a learned correlation;
-    /// `pooled c with (x, w)` one per listed slope, all jointly normal.
-    Pooled { by: String, with: Vec<String> },
+    /// `pooled c with (x, w)` one per listed slope, all jointly normal;
+    /// `pooled c within s …` pools the pairs of `c` and `s` labels (`c`
+    /// nested in `s`).
+    Pooled { by: String, within: Option<String>, with: Vec<String> },
 }
 
 impl TermSpec {
@@ -126,11 +135,17 @@ impl fmt::Display for TermSpec {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
             TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
-            TermSpec::Pooled { by, with } => match with.as_slice() {
-                [] => write!(f, "{POOLED} {by}"),
-                [x] => write!(f, "{POOLED} {by} {POOLED_WITH} {x}"),
-                several => write!(f, "{POOLED} {by} {POOLED_WITH} ({})", several.join(", ")),
-            },
+            TermSpec::Pooled { by, within, with } => {
+                write!(f, "{POOLED} {by}")?;
+                if let Some(outer) = within {
+                    write!(f, " {POOLED_WITHIN} {outer}")?;
+                }
+                match with.as_slice() {
+                    [] => Ok(()),
+                    [x] => write!(f, " {POOLED_WITH} {x}"),
+                    several => write!(f, " {POOLED_WITH} ({})", several.join(", ")),
+                }
+            }
             TermSpec::Spline { predictor, functions, knots: None } => {
                 write!(f, "spline({predictor}, {functions})")
             }
@@ -391,20 +406,34 @@ fn split_terms(text: &str) -> Result<Vec<TermSpec>, ModelError> {
     Ok(terms)
 }
 
-/// `pooled c`, `pooled c with x` or `pooled c with (x, w, …)` (`rest` is
-/// what follows `pooled`).
+/// `pooled c`, `pooled c with x` or `pooled c with (x, w, …)`, each
+/// optionally with `within s` after `c` (`rest` is what follows `pooled`).
 fn parse_pooled(rest: &str, text: &str) -> Result<TermSpec, ModelError> {
     let form = || {
         ModelError::syntax(format!(
             "`{text}`: write `{POOLED} <category>`, `{POOLED} <category> {POOLED_WITH} <predictor>` or, for several \
-             varying slopes, `{POOLED} <category> {POOLED_WITH} (<predictor>, <predictor>, …)`"
+             varying slopes, `{POOLED} <category> {POOLED_WITH} (<predictor>, <predictor>, …)`; a category nested \
+             in another takes `{POOLED_WITHIN} <outer category>` after its name"
         ))
     };
     let (by, after) = rest.split_once(char::is_whitespace).unwrap_or((rest, ""));
     let by = identifier(by, "category after `pooled`")?;
-    let after = after.trim();
+    let mut after = after.trim();
+    let mut within = None;
+    if let Some(outer) = after.strip_prefix(POOLED_WITHIN).filter(|l| l.starts_with(char::is_whitespace)) {
+        let outer = outer.trim();
+        let (name, more) = outer.split_once(char::is_whitespace).unwrap_or((outer, ""));
+        let name = identifier(name, &format!("outer category after `{POOLED_WITHIN}`"))?;
+        if name == by {
+            return Err(ModelError::syntax(format!(
+                "`{text}`: `{by}` cannot be nested within itself; name the category its levels sit in"
+            )));
+        }
+        within = Some(name);
+        after = more.trim();
+    }
     if after.is_empty() {
-        return Ok(TermSpec::Pooled { by, with: Vec::new() });
+        return Ok(TermSpec::Pooled { by, within, with: Vec::new() });
     }
     let listed = after
         .strip_prefix(POOLED_WITH)
@@ -424,7 +453,7 @@ fn parse_pooled(rest: &str, text: &str) -> Result<TermSpec, ModelError> {
         }
         with.push(name);
     }
-    Ok(TermSpec::Pooled { by, with })
+    Ok(TermSpec::Pooled { by, within, with })
 }
 
 fn parse_term(text: &str) -> Result<TermSpec, ModelError> {

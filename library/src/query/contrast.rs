@@ -236,7 +236,12 @@ fn contrast_of(
             predictors.join(", ")
         )));
     }
-    let pooled: Vec<String> = model.pooled_groups().iter().map(|g| g.column.clone()).collect();
+    let pooled: Vec<String> = model
+        .pooled_groups()
+        .iter()
+        .flat_map(|g| std::iter::once(g.column.clone()).chain(g.outer().map(str::to_string)))
+        .collect();
+    check_nested_groups_held(model, request, &place)?;
     for (name, _) in &request.held {
         if !(is_predictor(name) || pooled.contains(name)) || *name == request.variable {
             return Err(QueryError::request(format!(
@@ -389,6 +394,34 @@ fn settings(
 /// Seed of the departures drawn for a new group in a contrast on means.
 pub const NEW_GROUP_SEED: u64 = 31_415;
 
+/// A nested group (`pooled plot within site`) held at an existing level
+/// needs both labels, `at site A, plot p1`, and the pair must be one the
+/// model was fitted on.
+fn check_nested_groups_held(model: &Model, request: &ContrastRequest, place: &str) -> Result<(), QueryError> {
+    let stated = |name: &str| request.held.iter().find(|(n, _)| n == name).map(|(_, v)| v.as_str());
+    for group in model.pooled_groups().iter().filter(|g| g.block() == 0) {
+        let Some(nesting) = &group.nesting else { continue };
+        let (c, outer) = (&group.column, &nesting.outer);
+        let Some(inner) = stated(c) else { continue };
+        let sites: Vec<&str> = nesting.pairs.iter().filter(|(_, i)| i == inner).map(|(o, _)| o.as_str()).collect();
+        let Some(at) = stated(outer) else {
+            return Err(QueryError::request(format!(
+                "{place}: pooled {c} is nested within {outer}, so {c} {inner} is known only with its {outer}{}; \
+                 write `at {outer} <level>, {c} {inner}`",
+                if sites.is_empty() { String::new() } else { format!(" ({c} {inner} was fitted in {outer} {})", sites.join(", ")) }
+            )));
+        };
+        if !sites.contains(&at) {
+            return Err(QueryError::request(format!(
+                "{place}: the model was not fitted on {c} {inner} in {outer} {at}{}; an existing {c} needs a pair the \
+                 rows held, or leave `{c}` out of `at` to ask for a new {c}",
+                if sites.is_empty() { format!(" (no {outer} has a {c} {inner})") } else { format!(" ({c} {inner} is in {outer} {})", sites.join(", ")) }
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Which of the three questions a contrast of a model with pooled groups
 /// answers, per group, said in `notes`; `true` when some group is a new
 /// one (its departure drawn per draw from the population).
@@ -399,7 +432,13 @@ fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed
         let name = &group.column;
         let stated = request.held.iter().find(|(n, _)| n == name);
         notes.push(match stated {
-            Some((_, level)) => format!("pooled {name}: for the existing {name} {level}, with its own departure"),
+            Some((_, level)) => match group.outer() {
+                Some(outer) => {
+                    let at = request.held.iter().find(|(n, _)| n == outer).map_or("", |(_, v)| v.as_str());
+                    format!("pooled {name} within {outer}: for the existing {name} {level} of {outer} {at}, with its own departure")
+                }
+                None => format!("pooled {name}: for the existing {name} {level}, with its own departure"),
+            },
             None if request.over_rows && table.column(name).is_some() => format!(
                 "pooled {name}: averaged over the observed {name} levels, each row keeping its own {name}'s departure"
             ),
@@ -426,10 +465,15 @@ fn notes_on_groups(model: &Model, request: &ContrastRequest, table: &Table, seed
                         )
                     }
                 };
+                let existing = match group.outer() {
+                    Some(outer) => format!("`at {outer} <level>, {name} <level>`"),
+                    None => format!("`at {name} <level>`"),
+                };
                 format!(
-                    "pooled {name}: for a new {name} drawn from the population: each draw adds {drawn} to both \
-                     settings (seed {seed}); `at {name} <level>` asks for an existing one, `over rows` averages over \
-                     the observed ones"
+                    "pooled {}: for a new {name} drawn from the population: each draw adds {drawn} to both \
+                     settings (seed {seed}); {existing} asks for an existing one, `over rows` averages over \
+                     the observed ones",
+                    group.written()
                 )
             }
         });

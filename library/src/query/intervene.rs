@@ -68,7 +68,11 @@ pub enum GroupQuestion {
     /// Every row in one new group of pooled column `column`, its
     /// departures drawn from the population per posterior draw.
     New { column: String },
+    /// Every row in a new group of pooled column `column` of its own: one
+    /// new group per row and posterior draw (`in new C per row`).
+    NewPerRow { column: String },
 }
+
 
 /// The contrast of one watched node (or one level of a watched category
 /// node) under the two interventions.
@@ -193,7 +197,8 @@ pub fn intervene_with_cancel(
         _ => base,
     };
     let new_column = match &request.groups {
-        GroupQuestion::New { column } => Some(column.as_str()),
+        GroupQuestion::New { column } => Some(NewGroups { column, per_row: false }),
+        GroupQuestion::NewPerRow { column } => Some(NewGroups { column, per_row: true }),
         _ => None,
     };
     let draws = fit.fits.iter().flatten().map(|f| f.draws.len()).min().ok_or_else(|| {
@@ -258,7 +263,9 @@ pub fn intervene_with_cancel(
 /// causes: putting every row in one of its levels would cut the effect
 /// that runs through it.
 fn refuse_groups_downstream(joint: &JointModel, x: &str, question: &GroupQuestion, place: &str) -> Result<(), QueryError> {
-    let (GroupQuestion::Existing { column, .. } | GroupQuestion::New { column }) = question else { return Ok(()) };
+    let (GroupQuestion::Existing { column, .. } | GroupQuestion::New { column } | GroupQuestion::NewPerRow { column }) = question else {
+        return Ok(());
+    };
     if joint.graph.nodes().iter().any(|n| n.name == *column) && joint.graph.descendants(x)?.contains(&column.as_str()) {
         return Err(QueryError::request(format!(
             "{place}: {column} is caused by {x} in graph {}, so placing every row in one {column} would cut part of the \
@@ -276,7 +283,7 @@ fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -
     let pools = |step: &Step, column: &str| step.model.pooled_groups().iter().any(|g| g.column == column);
     let asked = match question {
         GroupQuestion::Observed => None,
-        GroupQuestion::Existing { column, .. } | GroupQuestion::New { column } => Some(column.as_str()),
+        GroupQuestion::Existing { column, .. } | GroupQuestion::New { column } | GroupQuestion::NewPerRow { column } => Some(column.as_str()),
     };
     if let Some(column) = asked.filter(|c| !steps.iter().any(|s| pools(s, c))) {
         let pooling: Vec<&str> = steps.iter().filter(|s| !s.model.pooled_groups().is_empty()).map(|s| s.node).collect();
@@ -285,6 +292,16 @@ fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -
              leave out `in …` to keep each row's own group",
             if pooling.is_empty() { "none pools a column".to_string() } else { format!("pooled: {}", pooling.join(", ")) }
         )));
+    }
+    if let GroupQuestion::Existing { column, level } = question {
+        let nested = steps.iter().flat_map(|s| s.model.pooled_groups()).find_map(|g| g.outer().filter(|_| g.column == *column));
+        if let Some(outer) = nested {
+            return Err(QueryError::request(format!(
+                "{place}: pooled {column} is nested within {outer}, so `in {column} {level}` names no single {column} \
+                 (each {outer} has its own {column} {level}); ask `in new {column}`, or leave out `in …` to keep each \
+                 row's own {column}"
+            )));
+        }
     }
     let mut notes = Vec::new();
     for step in steps {
@@ -305,9 +322,17 @@ fn group_question_notes(steps: &[Step], question: &GroupQuestion, place: &str) -
                     step.node,
                     if group.slopes.is_empty() { "" } else { "s and correlations" }
                 ),
+                GroupQuestion::NewPerRow { column } if column == c => format!(
+                    "{}: pooled {c}, each row in a new {c} of its own drawn from the population: each draw takes every \
+                     row's {c} departure{} apart from the learned spread{}, the same under both settings",
+                    step.node,
+                    if group.slopes.is_empty() { "" } else { "s" },
+                    if group.slopes.is_empty() { "" } else { "s and correlations" }
+                ),
                 _ => format!(
                     "{}: pooled {c}, each row keeping its own {c}'s departure (averaged over the observed {c} levels in \
-                     the rows); `in {c} LEVEL` asks for an existing one, `in new {c}` for a new one",
+                     the rows); `in {c} LEVEL` asks for an existing one, `in new {c}` for one new one, `in new {c} per \
+                     row` for a new one per row",
                     step.node
                 ),
             });
@@ -411,9 +436,18 @@ fn simulation_steps<'a>(
     Ok(steps)
 }
 
-/// The rows after do(x = setting) at draw `d`; with `new_column`, every
-/// row of a node model that pools it sits in one new group, whose
-/// departures come from their own stream (the same under both settings).
+/// The pooled column whose rows sit in new groups, and whether each row
+/// has a new group of its own.
+#[derive(Clone, Copy)]
+struct NewGroups<'a> {
+    column: &'a str,
+    per_row: bool,
+}
+
+/// The rows after do(x = setting) at draw `d`; with `new_groups`, every
+/// row of a node model that pools its column sits in one new group (or,
+/// per row, in one of its own), whose departures come from their own
+/// stream (the same under both settings).
 fn simulate_draw(
     base: &Table,
     x: &str,
@@ -421,23 +455,36 @@ fn simulate_draw(
     steps: &[Step],
     d: usize,
     seed: u64,
-    new_column: Option<&str>,
+    new_groups: Option<NewGroups>,
 ) -> Result<Table, QueryError> {
     let mut current = with_column(base, setting.column(x, base.nrows()));
     for step in steps {
         let mut rows = step.model.new_rows(&current)?;
-        let mut new = Vec::new();
-        if let Some(column) = new_column {
-            let mut group_rng = StdRng::seed_from_u64(stream_seed(seed ^ NEW_GROUP_STREAM, d as u64, step.index + 1));
-            new = step.model.new_group_departures(&step.params[d], &mut group_rng);
-            for (group, levels) in step.model.pooled_groups().iter().zip(rows.groups.iter_mut()) {
-                if group.column == column {
-                    levels.iter_mut().for_each(|l| *l = None);
-                }
+        let mut group_rng = StdRng::seed_from_u64(stream_seed(seed ^ NEW_GROUP_STREAM, d as u64, step.index + 1));
+        let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, step.index + 1));
+        let params = &step.params[d];
+        let Some(NewGroups { column, per_row }) = new_groups else {
+            let values = step.model.outcome_draw_in_new_groups(params, &rows, &[], &mut rng)?;
+            current = with_column(&current, drawn_column(step.model, step.node, values));
+            continue;
+        };
+        for (group, levels) in step.model.pooled_groups().iter().zip(rows.groups.iter_mut()) {
+            if group.column == column {
+                levels.iter_mut().for_each(|l| *l = None);
             }
         }
-        let mut rng = StdRng::seed_from_u64(stream_seed(seed, d as u64, step.index + 1));
-        let values = step.model.outcome_draw_in_new_groups(&step.params[d], &rows, &new, &mut rng)?;
+        let values = if per_row {
+            // Row by row, each with departures of its own; the outcome stream is read in row order as for all rows at once.
+            let mut values = Vec::with_capacity(rows.design.nrows());
+            for r in 0..rows.design.nrows() {
+                let new = step.model.new_group_departures(params, &mut group_rng);
+                values.extend(step.model.outcome_draw_in_new_groups(params, &rows.select(&[r]), &new, &mut rng)?);
+            }
+            values
+        } else {
+            let new = step.model.new_group_departures(params, &mut group_rng);
+            step.model.outcome_draw_in_new_groups(params, &rows, &new, &mut rng)?
+        };
         current = with_column(&current, drawn_column(step.model, step.node, values));
     }
     Ok(current)

@@ -308,8 +308,10 @@ fn override_model(
 fn pooled_columns(joint: &str, graph: &Graph, node: &str, parents: &[String], model: &NodeModel) -> Result<Vec<String>, QueryError> {
     let NodeModel::Regression { model, .. } = model else { return Ok(Vec::new()) };
     let mut notes = Vec::new();
-    for group in model.pooled_groups().iter().filter(|g| g.block() == 0) {
-        let c = &group.column;
+    // A nested group reads its outer category too: both are checked.
+    let columns = model.pooled_groups().iter().filter(|g| g.block() == 0).flat_map(|g| std::iter::once(g.column.as_str()).chain(g.outer()));
+    for c in columns {
+        let c = &c.to_string();
         let is_node = graph.nodes().iter().any(|n| n.name == *c);
         if is_node && !parents.contains(c) {
             return Err(QueryError::request(format!(

@@ -40,7 +40,11 @@
 //! there: level j's slope departure is `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
 //! `z₀ⱼ` the intercept departure's standard score, so two slopes each
 //! correlated with the intercept correlate with each other by the product
-//! of their correlations. A node's
+//! of their correlations, unless a `correlation q with w` part of one of
+//! them states the correlation with slope w's departures (of the same
+//! category, in the same mechanism). A category's departures are drawn
+//! jointly through the Cholesky factor of that correlation matrix, which
+//! the parser checks is positive definite. A node's
 //! mechanism may name each category in at most one `departure(c, …)` and
 //! each pair of category and slope in at most one `departure(c, …, x)`.
 //!
@@ -49,7 +53,7 @@
 use std::fmt;
 
 /// The distributions of a mechanism, each written as a call.
-pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, EXPONENTIAL, WEIBULL];
+pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, LEVELS, EXPONENTIAL, WEIBULL];
 pub const CATEGORY: &str = "category";
 pub const NORMAL: &str = "normal";
 pub const BERNOULLI: &str = "bernoulli";
@@ -59,6 +63,9 @@ pub const BETA: &str = "beta";
 pub const EXPONENTIAL: &str = "exponential";
 pub const WEIBULL: &str = "weibull";
 pub const GRADED: &str = "graded";
+/// A category drawn by softmax from each level's log odds against the
+/// first: `levels(herb, shrub = 0.4 + departure(site, 0.8), tree = -0.2)`.
+pub const LEVELS: &str = "levels";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -72,6 +79,12 @@ pub const DEPARTURE: &str = "departure";
 /// The word before a slope departure's stated correlation with the
 /// intercept's (`departure(block, 0.1, girth, correlation 0.5)`).
 pub const CORRELATION_WORD: &str = "correlation";
+/// The word before the other slope of a correlation between two slopes'
+/// departures (`departure(block, 0.1, age, correlation 0.3 with girth)`).
+pub const CORRELATION_WITH: &str = "with";
+/// The word between a nested category and the category it sits in
+/// (`departure(plot within site, 0.5)`), as in a model's pooled term.
+pub const DEPARTURE_WITHIN: &str = "within";
 /// The deepest an expression may nest: parentheses, signs, functions and
 /// every operator of a chain each add one level. Evaluation recurses this
 /// deep, so the limit keeps a hostile line from overflowing the stack.
@@ -104,6 +117,9 @@ pub enum Expr {
 pub struct DepartureTerm {
     /// The category whose levels depart.
     pub group: String,
+    /// In a `levels(…)` mechanism, the outcome level whose log odds the
+    /// departure moves (set by [`Mechanism::departures`]; `None` elsewhere).
+    pub outcome_level: Option<String>,
     /// The stated spread of the departures.
     pub spread: f64,
     /// The numeric parent whose slope departs (`None`: the intercept's departure).
@@ -111,17 +127,28 @@ pub struct DepartureTerm {
     /// A slope's stated correlation with the intercept's departures
     /// (`None`: drawn independently of them).
     pub correlation: Option<f64>,
+    /// A slope's stated correlations with other slopes' departures of the
+    /// same category (`correlation q with x`), by the other slope's parent.
+    pub with_slopes: Vec<(String, f64)>,
+    /// For departures of `group` nested in another category
+    /// (`departure(plot within site, spread)`), that category: one
+    /// departure per pair of their levels.
+    pub within: Option<String>,
 }
 
 impl DepartureTerm {
     /// `departure(block, 0.8)` or `departure(block, 0.1, girth)`, with the
     /// spread written out by `spread`.
     pub fn written(&self, spread: &str) -> String {
-        match (&self.slope, self.correlation) {
-            (None, _) => format!("{DEPARTURE}({}, {spread})", self.group),
-            (Some(x), None) => format!("{DEPARTURE}({}, {spread}, {x})", self.group),
-            (Some(x), Some(r)) => format!("{DEPARTURE}({}, {spread}, {x}, {CORRELATION_WORD} {r})", self.group),
-        }
+        let group = match &self.within {
+            Some(outer) => format!("{} {DEPARTURE_WITHIN} {outer}", self.group),
+            None => self.group.clone(),
+        };
+        let Some(x) = &self.slope else { return format!("{DEPARTURE}({group}, {spread})") };
+        let mut parts = vec![group, spread.to_string(), x.clone()];
+        parts.extend(self.correlation.map(|r| format!("{CORRELATION_WORD} {r}")));
+        parts.extend(self.with_slopes.iter().map(|(w, q)| format!("{CORRELATION_WORD} {q} {CORRELATION_WITH} {w}")));
+        format!("{DEPARTURE}({})", parts.join(", "))
     }
 }
 
@@ -186,6 +213,7 @@ impl Expr {
             Expr::Indicator { name, level } => out.push((name.clone(), Use::Level(level.clone()))),
             Expr::Departure(term) => {
                 out.push((term.group.clone(), Use::Group));
+                out.extend(term.within.iter().map(|outer| (outer.clone(), Use::Group)));
                 if let Some(x) = &term.slope {
                     out.push((x.clone(), Use::Number));
                 }
@@ -204,7 +232,9 @@ impl Expr {
 pub enum Mechanism {
     /// Levels in declared order, drawn with fixed shares, or for a graded
     /// category (`score` given) by cutting each row's latent score.
-    Category { levels: Vec<String>, shares: Vec<f64>, score: Option<LatentScore> },
+    /// With `log_odds` (one per level after the first, `levels(…)`), each
+    /// row's level is drawn by softmax from them, the first level's 0.
+    Category { levels: Vec<String>, shares: Vec<f64>, score: Option<LatentScore>, log_odds: Vec<Expr> },
     Normal { mean: Expr, sd: Expr },
     /// `p` is the probability, or its logit when `logit` is true.
     Bernoulli { p: Expr, logit: bool },
@@ -233,7 +263,9 @@ impl Mechanism {
     /// Every `departure(…)` the mechanism draws, in reading order.
     pub fn departures(&self) -> Vec<DepartureTerm> {
         match self {
-            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.departures()).collect(),
+            Mechanism::Category { score, .. } => {
+                score.iter().flat_map(|s| s.score.departures()).chain(self.level_departures()).collect()
+            }
             Mechanism::Normal { mean, sd } => mean.departures().into_iter().chain(sd.departures()).collect(),
             Mechanism::Bernoulli { p, .. } => p.departures(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
@@ -255,14 +287,28 @@ impl Mechanism {
             Mechanism::Beta { mean, logit: true, .. } => mean.departures(),
             Mechanism::Time { mean, log: true, .. } => mean.departures(),
             Mechanism::Category { score: Some(s), .. } => s.score.departures(),
+            Mechanism::Category { .. } => self.level_departures(),
             _ => Vec::new(),
         }
+    }
+
+    /// The departures of a `levels(…)` mechanism, each tagged with the
+    /// outcome level whose log odds it moves.
+    fn level_departures(&self) -> Vec<DepartureTerm> {
+        let Mechanism::Category { levels, log_odds, .. } = self else { return Vec::new() };
+        levels[1..]
+            .iter()
+            .zip(log_odds)
+            .flat_map(|(level, e)| e.departures().into_iter().map(|t| DepartureTerm { outcome_level: Some(level.clone()), ..t }))
+            .collect()
     }
 
     /// Every node the mechanism reads.
     pub fn uses(&self) -> Vec<(String, Use)> {
         match self {
-            Mechanism::Category { score, .. } => score.iter().flat_map(|s| s.score.uses()).collect(),
+            Mechanism::Category { score, log_odds, .. } => {
+                score.iter().flat_map(|s| s.score.uses()).chain(log_odds.iter().flat_map(Expr::uses)).collect()
+            }
             Mechanism::Normal { mean, sd } => mean.uses().into_iter().chain(sd.uses()).collect(),
             Mechanism::Bernoulli { p, .. } => p.uses(),
             Mechanism::Poisson { rate, overdispersion, .. } => {
@@ -277,6 +323,7 @@ impl Mechanism {
 impl fmt::Display for Mechanism {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let name = match self {
+            Mechanism::Category { score: None, log_odds, .. } if !log_odds.is_empty() => LEVELS,
             Mechanism::Category { score: None, .. } => CATEGORY,
             Mechanism::Category { score: Some(_), .. } => GRADED,
             Mechanism::Normal { .. } => NORMAL,
@@ -322,6 +369,15 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
     let mechanism = match (dist, args.as_slice()) {
         (CATEGORY, items) => parse_category(name, items)?,
         (GRADED, [score, lowest, rest @ ..]) if !rest.is_empty() => parse_graded(name, score, lowest, rest)?,
+        (LEVELS, [reference, rest @ ..]) if !rest.is_empty() => parse_levels(name, reference, rest)?,
+        (LEVELS, _) => {
+            return Err(format!(
+                "levels takes the first level, then each other level with its log odds against the first \
+                 (`levels(herb, shrub = 0.4 + departure(site, 0.8), tree = -0.2)`), not {} argument{}",
+                args.len(),
+                if args.len() == 1 { "" } else { "s" }
+            ))
+        }
         (GRADED, _) => {
             return Err(format!(
                 "graded takes the latent score, the lowest level, then each higher level with the cut below it \
@@ -377,7 +433,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
         }
     };
     let terms = mechanism.departures();
-    let same = |a: &DepartureTerm, b: &DepartureTerm| a.group == b.group && a.slope == b.slope;
+    let same = |a: &DepartureTerm, b: &DepartureTerm| a.key() == b.key() && a.slope == b.slope;
     if let Some(term) = terms.iter().enumerate().find(|(i, t)| terms[..*i].iter().any(|u| same(u, t))).map(|(_, t)| t) {
         let group = &term.group;
         return Err(match &term.slope {
@@ -389,7 +445,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             ),
         });
     }
-    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.group == t.group && u.slope.is_none())) {
+    if let Some(term) = terms.iter().find(|t| t.correlation.is_some() && !terms.iter().any(|u| u.key() == t.key() && u.slope.is_none())) {
         return Err(format!(
             "the mechanism of {name} states a correlation for departure({g}, …, {x}) with the intercept's departures, but draws \
              no departure({g}, spread) for the intercept; add one, or leave the correlation out",
@@ -397,18 +453,123 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
             x = term.slope.as_deref().unwrap_or("")
         ));
     }
+    check_slope_correlations(name, &terms)?;
     Ok(Some((name.to_string(), mechanism)))
 }
 
-/// The `correlation r` of `departure(c, spread, x, correlation r)`: r
-/// strictly between −1 and 1.
-fn read_correlation(stated: &str, inside: &str, form: &str) -> Result<f64, String> {
-    let value = stated.strip_prefix(CORRELATION_WORD).map(str::trim).ok_or_else(|| {
-        format!("the fourth part of `departure({inside})` must read `{CORRELATION_WORD} r`, not `{stated}`; write {form}")
+/// Each `correlation q with x` names another slope departure of the same
+/// category in the mechanism, each pair once, and every category's stated
+/// correlations make a correlation matrix (positive definite).
+fn check_slope_correlations(name: &str, terms: &[DepartureTerm]) -> Result<(), String> {
+    for term in terms {
+        for (w, _) in &term.with_slopes {
+            let other = terms.iter().find(|u| u.key() == term.key() && u.slope.as_deref() == Some(w.as_str()));
+            let x = term.slope.as_deref().unwrap_or("");
+            let Some(other) = other else {
+                return Err(format!(
+                    "the mechanism of {name} states a correlation of departure({g}, …, {x}) with {w}'s, but draws no \
+                     departure({g}, spread, {w}); add one, or leave the correlation out",
+                    g = term.group
+                ));
+            };
+            if other.with_slopes.iter().any(|(v, _)| v == x) {
+                return Err(format!(
+                    "the mechanism of {name} states the correlation of the {x} and {w} slopes' departures of {} twice \
+                     (once in each departure); keep one",
+                    term.group
+                ));
+            }
+        }
+    }
+    for key in departure_groups(terms) {
+        let group = key.0;
+        let effects: Vec<&DepartureTerm> = group_effects(terms, key);
+        if effects.len() > 1 && correlation_factor(&effects).is_none() {
+            return Err(format!(
+                "the correlations stated for the departures of {group} in the mechanism of {name} do not make a \
+                 correlation matrix (it is not positive definite; between two slopes without a stated correlation it \
+                 is the product of their correlations with the intercept); state smaller or other correlations"
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// What makes departures one group: the category, the category it is
+/// nested in and the outcome level they move (each if any).
+pub type GroupKey<'t> = (&'t str, Option<&'t str>, Option<&'t str>);
+
+impl DepartureTerm {
+    /// The group this departure belongs to.
+    pub fn key(&self) -> GroupKey<'_> {
+        (self.group.as_str(), self.within.as_deref(), self.outcome_level.as_deref())
+    }
+}
+
+/// The groups `terms` draw departures for, each once.
+pub fn departure_groups(terms: &[DepartureTerm]) -> Vec<GroupKey<'_>> {
+    let mut groups: Vec<GroupKey<'_>> = terms.iter().map(DepartureTerm::key).collect();
+    groups.sort_unstable();
+    groups.dedup();
+    groups
+}
+
+/// The departures of group `key` among `terms`: the intercept's first
+/// (when drawn), then the slopes' in reading order.
+pub fn group_effects<'t>(terms: &'t [DepartureTerm], key: GroupKey<'_>) -> Vec<&'t DepartureTerm> {
+    let of = terms.iter().filter(|t| t.key() == key);
+    of.clone().filter(|t| t.slope.is_none()).chain(of.filter(|t| t.slope.is_some())).collect()
+}
+
+/// The stated correlation of two departures of one category: 1 with
+/// itself; a slope's with the intercept's as stated (0 without); two
+/// slopes' as stated by either (`correlation q with x`), else the product
+/// of their correlations with the intercept.
+pub fn stated_correlation(a: &DepartureTerm, b: &DepartureTerm) -> f64 {
+    match (&a.slope, &b.slope) {
+        (None, None) => 1.0,
+        (None, Some(_)) => b.correlation.unwrap_or(0.0),
+        (Some(_), None) => a.correlation.unwrap_or(0.0),
+        (Some(x), Some(w)) if x == w => 1.0,
+        (Some(x), Some(w)) => {
+            let named = |t: &DepartureTerm, other: &str| t.with_slopes.iter().find(|(v, _)| v == other).map(|(_, q)| *q);
+            named(a, w).or_else(|| named(b, x)).unwrap_or(a.correlation.unwrap_or(0.0) * b.correlation.unwrap_or(0.0))
+        }
+    }
+}
+
+/// The lower Cholesky factor of the stated correlation matrix of
+/// `effects` (in their order), `None` when it is not positive definite.
+pub fn correlation_factor(effects: &[&DepartureTerm]) -> Option<nalgebra::DMatrix<f64>> {
+    let k = effects.len();
+    let matrix = nalgebra::DMatrix::from_fn(k, k, |i, j| stated_correlation(effects[i], effects[j]));
+    matrix.cholesky().map(|c| c.l())
+}
+
+/// A `correlation r` (with the intercept's departures) or `correlation q
+/// with x` (with slope x's) of `departure(c, spread, x, …)`: the number
+/// strictly between −1 and 1, and the other slope if named.
+fn read_correlation(stated: &str, inside: &str, form: &str) -> Result<(f64, Option<String>), String> {
+    let rest = stated.strip_prefix(CORRELATION_WORD).map(str::trim).ok_or_else(|| {
+        format!(
+            "`departure({inside})` needs the form {form}: the parts after the slope must read `{CORRELATION_WORD} r` or \
+             `{CORRELATION_WORD} q {CORRELATION_WITH} <slope>`, not `{stated}`"
+        )
     })?;
-    value.parse().ok().filter(|r: &f64| r.abs() < 1.0).ok_or_else(|| {
+    let (value, other) = match rest.split_once(char::is_whitespace) {
+        Some((value, tail)) => {
+            let other = tail.trim().strip_prefix(CORRELATION_WITH).filter(|o| o.starts_with(char::is_whitespace)).map(str::trim);
+            match other {
+                Some(o) if !o.is_empty() => (value, Some(o.to_string())),
+                _ => return Err(format!("`{stated}` in `departure({inside})`: write `{CORRELATION_WORD} q {CORRELATION_WITH} <slope>`")),
+            }
+        }
+        None => (rest, None),
+    };
+    let r = value.parse().ok().filter(|r: &f64| r.abs() < 1.0).ok_or_else(|| {
         format!("the correlation `{value}` in `departure({inside})` must be a number strictly between −1 and 1")
-    })
+    })?;
+    Ok((r, other))
 }
 
 /// `logit = expr` → `expr` when the argument starts with that keyword.
@@ -444,7 +605,30 @@ fn parse_category(name: &str, items: &[&str]) -> Result<Mechanism, String> {
     if (total - 1.0).abs() > 1e-6 {
         return Err(format!("the shares of {name} add up to {}, not 1; adjust them", crate::model::prior::short_number(total)));
     }
-    Ok(Mechanism::Category { levels, shares, score: None })
+    Ok(Mechanism::Category { levels, shares, score: None, log_odds: Vec::new() })
+}
+
+/// `levels(first, level = log odds, …)`: the first level the reference,
+/// each other level with its log odds against it.
+fn parse_levels(name: &str, reference: &str, rest: &[&str]) -> Result<Mechanism, String> {
+    let mut levels = vec![reference.trim().to_string()];
+    if !is_name(&levels[0]) {
+        return Err(format!("`{}` is not a level name for {name}; the first argument of levels is the reference level", levels[0]));
+    }
+    let mut log_odds = Vec::with_capacity(rest.len());
+    for item in rest {
+        let (level, expr) = item
+            .split_once('=')
+            .map(|(l, e)| (l.trim().to_string(), e))
+            .filter(|(l, _)| is_name(l))
+            .ok_or_else(|| format!("levels item `{}` needs a level and its log odds, like `shrub = 0.4 + 0.1 * girth`", item.trim()))?;
+        if levels.contains(&level) {
+            return Err(format!("level {level} of {name} is listed twice; list each level once"));
+        }
+        levels.push(level);
+        log_odds.push(parse_expr(expr)?);
+    }
+    Ok(Mechanism::Category { levels, shares: Vec::new(), score: None, log_odds })
 }
 
 /// `graded(score, lowest, level cut, …)`: the levels lowest first, each
@@ -477,7 +661,7 @@ fn parse_graded(name: &str, score: &str, lowest: &str, rest: &[&str]) -> Result<
         levels.push(level);
         cuts.push(cut);
     }
-    Ok(Mechanism::Category { levels, shares: Vec::new(), score: Some(LatentScore { score: parse_expr(score)?, cuts }) })
+    Ok(Mechanism::Category { levels, shares: Vec::new(), score: Some(LatentScore { score: parse_expr(score)?, cuts }), log_odds: Vec::new() })
 }
 
 /// Split at commas outside brackets.
@@ -682,18 +866,42 @@ impl Parser<'_> {
     fn departure(&mut self) -> Result<Expr, String> {
         let form = "departure(category, spread) with a category parent and a positive number, like departure(block, 0.8), \
                     or departure(category, spread, parent) for a slope's departure, like departure(block, 0.1, girth), \
-                    optionally correlated with the intercept's, like departure(block, 0.1, girth, correlation 0.5)";
+                    optionally correlated with the intercept's, like departure(block, 0.1, girth, correlation 0.5), and \
+                    with another slope's departures, like departure(block, 0.1, age, correlation 0.3 with girth)";
         let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
         let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
         let inside = &self.text[start..start + close];
         let parts: Vec<&str> = inside.split(',').map(str::trim).collect();
-        let (group, spread, slope, correlation) = match parts[..] {
-            [group, spread] => (group, spread, None, None),
-            [group, spread, slope] => (group, spread, Some(slope), None),
-            [group, spread, slope, stated] => (group, spread, Some(slope), Some(read_correlation(stated, inside, form)?)),
+        let (group, spread, slope, stated) = match parts[..] {
+            [group, spread] => (group, spread, None, &[][..]),
+            [group, spread, slope, ref stated @ ..] => (group, spread, Some(slope), stated),
             _ => return Err(format!("`departure({inside})` needs the form {form}")),
         };
-        for name in std::iter::once(group).chain(slope) {
+        let mut correlation = None;
+        let mut with_slopes: Vec<(String, f64)> = Vec::new();
+        for part in stated {
+            match read_correlation(part, inside, form)? {
+                (r, None) if correlation.is_none() => correlation = Some(r),
+                (_, None) => return Err(format!("`departure({inside})` states the correlation with the intercept twice; keep one")),
+                (q, Some(w)) => {
+                    if slope == Some(w.as_str()) || with_slopes.iter().any(|(v, _)| *v == w) {
+                        return Err(format!(
+                            "`departure({inside})` states a correlation with {w} {}; name each other slope once",
+                            if slope == Some(w.as_str()) { "for the departures of the same slope" } else { "twice" }
+                        ));
+                    }
+                    with_slopes.push((w, q));
+                }
+            }
+        }
+        let (group, within) = match group.split_once(&*format!(" {DEPARTURE_WITHIN} ")) {
+            Some((inner, outer)) => (inner.trim(), Some(outer.trim())),
+            None => (group, None),
+        };
+        if within == Some(group) {
+            return Err(format!("`departure({inside})`: {group} cannot be nested within itself"));
+        }
+        for name in std::iter::once(group).chain(within).chain(slope).chain(with_slopes.iter().map(|(w, _)| w.as_str())) {
             if !is_name(name) {
                 return Err(format!("`{name}` in `departure({inside})` is not a node name; write {form}"));
             }
@@ -707,7 +915,15 @@ impl Parser<'_> {
         while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
             self.at += 1;
         }
-        Ok(Expr::Departure(DepartureTerm { group: group.to_string(), spread, slope: slope.map(str::to_string), correlation }))
+        Ok(Expr::Departure(DepartureTerm {
+            group: group.to_string(),
+            outcome_level: None,
+            spread,
+            slope: slope.map(str::to_string),
+            correlation,
+            with_slopes,
+            within: within.map(str::to_string),
+        }))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

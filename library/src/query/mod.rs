@@ -75,6 +75,6 @@ pub use routes::{front_door_route, FrontDoorRoute};
 pub use set_routes::{other_set_routes, SetRoute, MOST_OTHER_SETS};
 pub use direct_route::{controlled_direct_route, DirectRoute};
 pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
-pub use shrinkage::{shrinkage, LevelShrinkage, Shrinkage};
+pub use shrinkage::{level_shrinkages, shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;

@@ -27,7 +27,7 @@ use crate::model::terms::GroupTerm;
 use crate::model::{Family, Model, ModelSpec};
 
 use super::error::QueryError;
-use super::mechanism::{DepartureTerm, Mechanism};
+use super::mechanism::{stated_correlation, Mechanism};
 use super::simulate::{GroupDraw, Simulation};
 use super::support::{interval_words, ContrastSummary};
 
@@ -146,6 +146,9 @@ fn true_parameters(
     notes: &mut Vec<String>,
 ) -> Option<Vec<Option<f64>>> {
     let outcome = model.outcome_name();
+    if *model.family() == Family::Levels {
+        return true_level_parameters(model, simulation, generated, notes);
+    }
     let matches = matches!(
         (simulation.mechanism(outcome), model.family()),
         (Some(Mechanism::Normal { .. }), Family::Normal)
@@ -165,7 +168,7 @@ fn true_parameters(
     let on_link = simulation.mechanism(outcome).map(Mechanism::link_departures).unwrap_or_default();
     let all_draws = simulation.group_draws(outcome, generated);
     let draws: Vec<&GroupDraw> =
-        all_draws.iter().filter(|d| on_link.iter().any(|t| t.group == d.group && t.slope == d.slope)).collect();
+        all_draws.iter().filter(|d| on_link.iter().any(|t| t.group == d.group && t.within == d.within && t.slope == d.slope)).collect();
     if draws.len() < all_draws.len() {
         notes.push(format!(
             "the mechanism of {outcome} draws a departure outside its linear predictor on the link scale (in an sd, \
@@ -175,7 +178,10 @@ fn true_parameters(
     let mut group_truths = Vec::new();
     let mut used = vec![false; draws.len()];
     for group in model.pooled_groups() {
-        let find = |slope: Option<&str>| draws.iter().position(|d| d.group == group.column && d.slope.as_deref() == slope);
+        // A nested group stands for `departure(plot within site, …)`, whose levels are the same pairs.
+        let find = |slope: Option<&str>| {
+            draws.iter().position(|d| d.group == group.column && d.within.as_deref() == group.outer() && d.slope.as_deref() == slope)
+        };
         let intercept = find(None);
         let slopes: Vec<Option<usize>> = group.slopes.iter().map(|s| find(Some(&s.column))).collect();
         if intercept.is_none() && slopes.iter().all(Option::is_none) {
@@ -199,7 +205,7 @@ fn true_parameters(
     for (draw, _) in draws.iter().zip(&used).filter(|(_, u)| !**u) {
         notes.push(format!(
             "the mechanism of {outcome} draws {}, which model {} does not pool",
-            DepartureTerm { group: draw.group.clone(), spread: draw.spread, slope: draw.slope.clone(), correlation: draw.correlation }.written(&super::support::short(draw.spread)),
+            draw.term().written(&super::support::short(draw.spread)),
             model.name()
         ));
     }
@@ -211,13 +217,118 @@ fn true_parameters(
     Some(truth)
 }
 
+/// The coefficients on the model's (shared) design whose linear
+/// predictor is `eta` exactly, or `None` with a note when no combination
+/// of the design's columns gives it.
+fn exact_coefficients(model: &Model, eta: Vec<f64>, notes: &mut Vec<String>) -> Option<Vec<f64>> {
+    let outcome = model.outcome_name();
+    let x = model.design_matrix();
+    let y = DVector::from_vec(eta);
+    let beta = x.clone().svd(true, true).solve(&y, 1e-12).ok()?;
+    let residual = (x * &beta - &y).norm() / (y.len() as f64).sqrt();
+    let mean = y.mean();
+    let scale = (y.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / y.len() as f64).sqrt().max(1.0);
+    if residual.is_nan() || residual > EXACT * scale {
+        notes.push(format!(
+            "the mechanism of {outcome} is not a linear combination of the model's terms (a hidden cause, a missing \
+             parent or a non-linear term), so its coefficients have no single true value"
+        ));
+        return None;
+    }
+    Some(beta.iter().copied().collect())
+}
+
+/// [`true_parameters`] of a category outcome (`family levels`) simulated
+/// by a `levels(…)` mechanism: each outcome level's coefficients solved
+/// from its stated log odds less the departures its pooled groups stand
+/// for, then every group's (per outcome level) truths.
+fn true_level_parameters(
+    model: &Model,
+    simulation: &Simulation,
+    generated: &super::simulate::Generated,
+    notes: &mut Vec<String>,
+) -> Option<Vec<Option<f64>>> {
+    let outcome = model.outcome_name();
+    let (Some(mut etas), Some(Mechanism::Category { levels: stated, .. })) =
+        (simulation.level_log_odds_truth(outcome, generated), simulation.mechanism(outcome))
+    else {
+        notes.push(format!(
+            "the mechanism of {outcome} is not a levels(…) mechanism (log odds per level), so no parameter has a true value"
+        ));
+        return None;
+    };
+    let levels = model.outcome_levels()?;
+    if stated.as_slice() != levels {
+        notes.push(format!(
+            "the model's levels of {outcome} ({}) are not the mechanism's ({}), so no parameter has a true value",
+            levels.join(", "),
+            stated.join(", ")
+        ));
+        return None;
+    }
+    let draws = simulation.group_draws(outcome, generated);
+    let mut used = vec![false; draws.len()];
+    let mut group_truths = Vec::new();
+    for group in model.pooled_groups() {
+        let level = levels[group.block() + 1].as_str();
+        let find = |slope: Option<&str>| {
+            draws.iter().position(|d| {
+                d.group == group.column
+                    && d.within.as_deref() == group.outer()
+                    && d.outcome_level.as_deref() == Some(level)
+                    && d.slope.as_deref() == slope
+            })
+        };
+        let intercept = find(None);
+        let slopes: Vec<Option<usize>> = group.slopes.iter().map(|s| find(Some(&s.column))).collect();
+        if intercept.is_none() && slopes.iter().all(Option::is_none) {
+            notes.push(format!(
+                "the log odds of {level} in the mechanism of {outcome} draw no departure({}, …), so pooled {} has no \
+                 true spread or departures there",
+                group.column,
+                group.written()
+            ));
+            group_truths.extend(std::iter::repeat_n(None, group.labels().len()));
+            continue;
+        }
+        for &k in intercept.iter().chain(slopes.iter().flatten()) {
+            used[k] = true;
+            for (e, d) in etas[group.block()].iter_mut().zip(simulation.departure_in_rows(&draws[k], generated)) {
+                *e -= d;
+            }
+        }
+        let shifts: Vec<f64> = group.slopes.iter().map(|s| centring_of(model, simulation, generated, &s.column, s.design_column)).collect();
+        let slope_draws: Vec<Option<&GroupDraw>> = slopes.iter().map(|k| k.map(|k| &draws[k])).collect();
+        group_truths.extend(group_truth(group, intercept.map(|k| &draws[k]), &slope_draws, &shifts, notes));
+    }
+    for (draw, _) in draws.iter().zip(&used).filter(|(_, u)| !**u) {
+        notes.push(format!(
+            "the log odds of {} in the mechanism of {outcome} draw {}, which model {} does not pool",
+            draw.outcome_level.as_deref().unwrap_or(""),
+            draw.term().written(&super::support::short(draw.spread)),
+            model.name()
+        ));
+    }
+    let width = model.design_matrix().ncols();
+    let mut truth = Vec::with_capacity(model.first_group_index() + group_truths.len());
+    for eta in etas {
+        match exact_coefficients(model, eta, notes) {
+            Some(beta) => truth.extend(beta.into_iter().map(Some)),
+            None => truth.extend(std::iter::repeat_n(None, width)),
+        }
+    }
+    truth.extend(group_truths);
+    Some(truth)
+}
+
 /// The truth of pooled group `group`'s parameters (in its label order)
 /// from the draws of its intercept's and slopes' departures (`None` where
 /// the mechanism drew none). With centring, a slope's design column is the
 /// predictor less `c` (`shifts`), so the model's intercept departures are
 /// `a₀ⱼ + Σₓ cₓ·aₓⱼ`, of spread `√(τ₀² + Σ cₓ²τₓ²)` and correlation
-/// `cₓτₓ / that` with slope `x`; the slopes' departures were drawn
-/// independently, so their correlations are 0.
+/// `cₓτₓ / that` with slope `x` when the departures were drawn apart; with
+/// stated correlations every spread and correlation comes from the stated
+/// covariance ([`StatedCovariance`]).
 fn group_truth(
     group: &GroupTerm,
     intercept: Option<&GroupDraw>,
@@ -260,13 +371,13 @@ fn group_truth(
             });
         }
     }
-    let stated = slopes.iter().flatten().any(|d| d.correlation.is_some());
+    let stated = slopes.iter().flatten().any(|d| d.correlation.is_some() || !d.with_slopes.is_empty());
     if !slopes.is_empty() && intercept.is_some() && slopes.iter().all(Option::is_some) {
         notes.push(format!(
             "{} correlations: {}{}",
             group.column,
             if stated {
-                "the intercept's with each slope as stated (0 where none is), and between two slopes the product of their stated correlations with the intercept"
+                "the intercept's with each slope as stated (0 where none is), and between two slopes as stated (`correlation q with x`), else the product of their stated correlations with the intercept"
             } else {
                 "the simulation draws every departure independently, so the true correlations are 0"
             },
@@ -278,9 +389,10 @@ fn group_truth(
 
 /// The covariance matrix of a group's stated departures, intercept first
 /// then each slope: spreads τ on the diagonal, `r·τ₀·τₓ` between the
-/// intercept and a slope with stated correlation r, `rₓ·r_w·τₓ·τ_w`
-/// between two slopes (both mixed from the intercept's scores,
-/// `simulate::correlate_with_intercepts`); 0 where a departure is missing.
+/// intercept and a slope with stated correlation r, `q·τₓ·τ_w` between two
+/// slopes with stated correlation q, else `rₓ·r_w·τₓ·τ_w`
+/// (`mechanism::stated_correlation`, what `simulate::correlate_departures`
+/// draws); 0 where a departure is missing.
 struct StatedCovariance(Vec<Vec<f64>>);
 
 impl StatedCovariance {
@@ -298,7 +410,9 @@ impl StatedCovariance {
                     .map(|j| match (i, j) {
                         _ if i == j => spread(i) * spread(i),
                         (0, e) | (e, 0) => with_intercept(e) * spread(0) * spread(e),
-                        _ => with_intercept(i) * with_intercept(j) * spread(i) * spread(j),
+                        _ => slopes[i - 1].zip(slopes[j - 1]).map_or(0.0, |(a, b)| stated_correlation(&a.term(), &b.term()))
+                            * spread(i)
+                            * spread(j),
                     })
                     .collect()
             })
@@ -359,21 +473,8 @@ fn centring_of(model: &Model, simulation: &Simulation, generated: &super::simula
 /// the span of the model's design.
 fn fixed_truths(model: &Model, eta: Vec<f64>, spread: Option<f64>, notes: &mut Vec<String>) -> Vec<Option<f64>> {
     let outcome = model.outcome_name();
-    let unknown = || vec![None; model.first_group_index()];
-    let x = model.design_matrix();
-    let y = DVector::from_vec(eta);
-    let Ok(beta) = x.clone().svd(true, true).solve(&y, 1e-12) else { return unknown() };
-    let residual = (x * &beta - &y).norm() / (y.len() as f64).sqrt();
-    let mean = y.mean();
-    let scale = (y.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / y.len() as f64).sqrt().max(1.0);
-    if residual.is_nan() || residual > EXACT * scale {
-        notes.push(format!(
-            "the mechanism of {outcome} is not a linear combination of the model's terms (a hidden cause, a missing \
-             parent or a non-linear term), so its coefficients have no single true value"
-        ));
-        return unknown();
-    }
-    let mut truth: Vec<Option<f64>> = beta.iter().map(|&b| Some(b)).collect();
+    let Some(beta) = exact_coefficients(model, eta, notes) else { return vec![None; model.first_group_index()] };
+    let mut truth: Vec<Option<f64>> = beta.into_iter().map(Some).collect();
     if let Some(name) = model.family_parameter() {
         if spread.is_none() {
             let what = if model.has_spread() { "sd" } else { name };

@@ -30,6 +30,7 @@ use crate::table::{Column, ColumnData, Table};
 use super::error::QueryError;
 use super::mechanism::{parse_mechanism_line, DepartureTerm, Mechanism, Use};
 use super::support::{short, stream_seed};
+use crate::model::terms::groups::nested_level;
 
 /// Rows generated between two reads of the cancel flag.
 const CANCEL_EVERY: usize = 4096;
@@ -103,27 +104,60 @@ pub(crate) struct GroupDraw {
     /// The stated correlation of a slope's departures with the
     /// intercept's (`None`: independent).
     pub(crate) correlation: Option<f64>,
+    /// The stated correlations of a slope's departures with other slopes'
+    /// (`correlation q with x`).
+    pub(crate) with_slopes: Vec<(String, f64)>,
+    /// The category `group` is nested in (`departure(plot within site, …)`):
+    /// then `levels` are every pair, shown `p1 in A` like a nested pooled
+    /// group's, outer level by outer level.
+    pub(crate) within: Option<String>,
+    /// In a `levels(…)` mechanism, the outcome level whose log odds these
+    /// departures move.
+    pub(crate) outcome_level: Option<String>,
     /// One departure per level.
     pub(crate) departures: Vec<f64>,
 }
 
-/// Mix each slope departure with a stated correlation into its group's
-/// intercept departures: level j's becomes `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`,
-/// `z₀ⱼ` the intercept departure over its spread and `zⱼ` the slope's own
-/// standard normal draw (a bivariate normal with correlation r; the
-/// mechanism's parser made sure the intercept's departure is there).
-fn correlate_with_intercepts(draws: &mut [GroupDraw]) {
-    let intercepts: Vec<(String, Vec<f64>)> = draws
-        .iter()
-        .filter(|d| d.slope.is_none())
-        .map(|d| (d.group.clone(), d.departures.iter().map(|a| a / d.spread).collect()))
-        .collect();
-    for draw in draws.iter_mut() {
-        let (Some(r), Some(_)) = (draw.correlation, &draw.slope) else { continue };
-        let Some((_, scores)) = intercepts.iter().find(|(g, _)| *g == draw.group) else { continue };
-        let rest = (1.0 - r * r).sqrt();
-        for (a, z0) in draw.departures.iter_mut().zip(scores) {
-            *a = draw.spread * (r * z0 + rest * (*a / draw.spread));
+impl GroupDraw {
+    /// The `departure(…)` this draw comes from.
+    pub(crate) fn term(&self) -> DepartureTerm {
+        DepartureTerm {
+            group: self.group.clone(),
+            outcome_level: self.outcome_level.clone(),
+            spread: self.spread,
+            slope: self.slope.clone(),
+            correlation: self.correlation,
+            with_slopes: self.with_slopes.clone(),
+            within: self.within.clone(),
+        }
+    }
+}
+
+/// Give each category's departures their stated correlations: with `L`
+/// the lower Cholesky factor of the stated correlation matrix of the
+/// category's effects (intercept first, then slopes in reading order;
+/// `mechanism::stated_correlation`) and `zₘⱼ` effect m's own standard
+/// normal draw for level j, effect e's departure of level j becomes
+/// `spreadₑ·Σₘ Lₑₘ·zₘⱼ`, so the effects of a level are jointly normal with
+/// that correlation matrix (`L·Lᵀ`). With only correlations with the
+/// intercept stated, a slope's row of `L` is `(r, 0, …, √(1 − r²))`: the
+/// slope's departure is `spread·(r·z₀ⱼ + √(1 − r²)·zⱼ)`. The mechanism's
+/// parser made sure the matrix is positive definite.
+fn correlate_departures(draws: &mut [GroupDraw]) {
+    let terms: Vec<DepartureTerm> = draws.iter().map(GroupDraw::term).collect();
+    for key in super::mechanism::departure_groups(&terms) {
+        let effects = super::mechanism::group_effects(&terms, key);
+        if effects.iter().all(|t| t.correlation.is_none() && t.with_slopes.is_empty()) {
+            continue;
+        }
+        let Some(l) = super::mechanism::correlation_factor(&effects) else { continue };
+        let at: Vec<usize> = effects.iter().filter_map(|e| terms.iter().position(|t| std::ptr::eq(t, *e))).collect();
+        let scores: Vec<Vec<f64>> = at.iter().map(|&i| draws[i].departures.iter().map(|a| a / draws[i].spread).collect()).collect();
+        for (e, &i) in at.iter().enumerate() {
+            let spread = draws[i].spread;
+            for (j, a) in draws[i].departures.iter_mut().enumerate() {
+                *a = spread * (0..=e).map(|m| l[(e, m)] * scores[m][j]).sum::<f64>();
+            }
         }
     }
 }
@@ -315,6 +349,28 @@ impl Simulation {
         }
     }
 
+    /// A `levels(…)` node's log odds of each level after the first against
+    /// it, in every generated row (`None` for any other node).
+    pub(crate) fn level_log_odds_truth(&self, node: &str, generated: &Generated) -> Option<Vec<Vec<f64>>> {
+        let k = self.nodes.iter().position(|m| m.node == node)?;
+        let Mechanism::Category { levels, log_odds, .. } = &self.nodes[k].mechanism else { return None };
+        if log_odds.is_empty() {
+            return None;
+        }
+        let n = generated.values[k].len();
+        let own = &generated.departures[k];
+        Some(
+            levels[1..]
+                .iter()
+                .zip(log_odds)
+                .map(|(level, e)| {
+                    let mine: Vec<GroupDraw> = own.iter().filter(|d| d.outcome_level.as_deref() == Some(level.as_str())).cloned().collect();
+                    (0..n).map(|i| self.eval_at(e, generated, &mine, i)).collect()
+                })
+                .collect(),
+        )
+    }
+
     fn index(&self, node: &str, place: &str) -> Result<usize, QueryError> {
         self.nodes.iter().position(|m| m.node == node).ok_or_else(|| {
             QueryError::request(format!("{place}: {node} is not a node of graph {}", self.graph.name()))
@@ -336,12 +392,8 @@ impl Simulation {
     /// Each generated row's departure in `draw` (that of its level of the
     /// category; for a slope's departure, times the row's value of the slope's parent).
     pub(crate) fn departure_in_rows(&self, draw: &GroupDraw, generated: &Generated) -> Vec<f64> {
-        let codes = self.nodes.iter().position(|m| m.node == draw.group).and_then(|k| match &generated.values[k] {
-            NodeValues::Category(codes) => Some(codes),
-            _ => None,
-        });
         let slope = draw.slope.as_ref().map(|x| self.nodes.iter().position(|m| m.node == *x));
-        let Some(codes) = codes else { return Vec::new() };
+        let Some(codes) = self.departure_levels(&draw.group, draw.within.as_deref(), generated) else { return Vec::new() };
         codes
             .iter()
             .enumerate()
@@ -355,6 +407,25 @@ impl Simulation {
             .collect()
     }
 
+    /// Each generated row's level index among the departures of `group`
+    /// (nested `within` another category: the pair's index, outer level by
+    /// outer level); `None` when a category was not generated.
+    fn departure_levels(&self, group: &str, within: Option<&str>, generated: &Generated) -> Option<Vec<u32>> {
+        let codes_of = |c: &str| {
+            self.nodes.iter().position(|m| m.node == c).and_then(|k| match generated.values.get(k)? {
+                NodeValues::Category(codes) => Some(codes),
+                _ => None,
+            })
+        };
+        let inner = codes_of(group)?;
+        let Some(outer) = within else { return Some(inner.clone()) };
+        let width = match self.mechanism(group) {
+            Some(Mechanism::Category { levels, .. }) => levels.len() as u32,
+            _ => return None,
+        };
+        Some(codes_of(outer)?.iter().zip(inner).map(|(o, i)| o * width + i).collect())
+    }
+
     fn eval_at(&self, expr: &super::mechanism::Expr, generated: &Generated, own: &[GroupDraw], i: usize) -> f64 {
         let position = |name: &str| self.nodes.iter().position(|m| m.node == name);
         let value = |name: &str| position(name).map_or(f64::NAN, |k| generated.values[k].real_at(i));
@@ -365,12 +436,21 @@ impl Simulation {
             })
         };
         let departure = |term: &DepartureTerm| {
-            let level = position(&term.group).and_then(|k| match &generated.values[k] {
-                NodeValues::Category(codes) => Some(codes[i] as usize),
-                _ => None,
-            });
+            let code = |c: &str| {
+                position(c).and_then(|k| match &generated.values[k] {
+                    NodeValues::Category(codes) => Some(codes[i] as usize),
+                    _ => None,
+                })
+            };
+            let level = match &term.within {
+                None => code(&term.group),
+                Some(outer) => match self.mechanism(&term.group) {
+                    Some(Mechanism::Category { levels, .. }) => code(outer).zip(code(&term.group)).map(|(o, c)| o * levels.len() + c),
+                    _ => None,
+                },
+            };
             own.iter()
-                .find(|d| d.group == term.group && d.slope == term.slope)
+                .find(|d| d.group == term.group && d.within == term.within && d.slope == term.slope)
                 .zip(level)
                 .and_then(|(d, l)| d.departures.get(l).copied())
                 .unwrap_or(f64::NAN)
@@ -404,17 +484,24 @@ impl Simulation {
             .departures()
             .into_iter()
             .enumerate()
-            .map(|(g, DepartureTerm { group, spread, slope, correlation })| {
-                let levels = match self.mechanism(&group) {
+            .map(|(g, DepartureTerm { group, spread, slope, correlation, with_slopes, within, outcome_level })| {
+                let levels_of = |c: &str| match self.mechanism(c) {
                     Some(Mechanism::Category { levels, .. }) => levels.clone(),
                     _ => Vec::new(),
                 };
+                let levels = match &within {
+                    Some(outer) => {
+                        let inner = levels_of(&group);
+                        levels_of(outer).iter().flat_map(|o| inner.iter().map(move |i| nested_level(i, o))).collect()
+                    }
+                    None => levels_of(&group),
+                };
                 let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 3 + g as u64));
                 let departures = levels.iter().map(|_| { let z: f64 = StandardNormal.sample(&mut rng); spread * z }).collect::<Vec<f64>>();
-                GroupDraw { group, levels, spread, slope, correlation, departures }
+                GroupDraw { group, levels, spread, slope, correlation, with_slopes, within, outcome_level, departures }
             })
             .collect();
-        correlate_with_intercepts(&mut draws);
+        correlate_departures(&mut draws);
         draws
     }
 
@@ -430,6 +517,29 @@ impl Simulation {
         let what = format!("simulate {}", self.name);
         let stop = |i: usize| if i % CANCEL_EVERY == 0 { QueryError::stop_if(cancel, &what) } else { Ok(()) };
         Ok(match &m.mechanism {
+            Mechanism::Category { levels, log_odds, .. } if !log_odds.is_empty() => {
+                let by_level: Vec<Vec<GroupDraw>> = levels[1..]
+                    .iter()
+                    .map(|l| own.iter().filter(|d| d.outcome_level.as_deref() == Some(l.as_str())).cloned().collect())
+                    .collect();
+                let mut out = Vec::with_capacity(rows);
+                let mut eta = vec![0.0; levels.len()];
+                for i in 0..rows {
+                    stop(i)?;
+                    for (k, (e, mine)) in log_odds.iter().zip(&by_level).enumerate() {
+                        eta[k + 1] = self.eval_at(e, so_far, mine, i);
+                        if !eta[k + 1].is_finite() {
+                            return Err(bad(i, format!("the log odds of {} is {}, but it must be a finite number", levels[k + 1], short(eta[k + 1]))));
+                        }
+                    }
+                    let top = eta.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                    let weights: Vec<f64> = eta.iter().map(|e| (e - top).exp()).collect();
+                    let u: f64 = rng.random::<f64>() * weights.iter().sum::<f64>();
+                    let mut total = 0.0;
+                    out.push(weights.iter().position(|w| { total += w; u < total }).unwrap_or(levels.len() - 1) as u32);
+                }
+                NodeValues::Category(out)
+            }
             Mechanism::Category { score: Some(latent), .. } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {

@@ -14,7 +14,7 @@ use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{
     GroupLayout, CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, LKJ, PARAMETERISE_LINE, PER, POOLED,
-    POOLED_CORRELATIONS, POOLED_WITH, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
+    POOLED_CORRELATIONS, POOLED_WITH, POOLED_WITHIN, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
 };
 use crate::model::PriorGroup;
 use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
@@ -121,13 +121,16 @@ fn outcome_line(typed: &str, words: &[&str]) -> Next {
     if last == FROM || typed.trim_end().ends_with(',') {
         return next(&[POOLED], TERM_CALLS, true);
     }
-    if last == PER || last == USING || last == POOLED || last == POOLED_WITH {
+    if last == PER || last == USING || last == POOLED || last == POOLED_WITH || last == POOLED_WITHIN {
         return next(&[], &[], true);
     }
     if !words.contains(&FROM) {
         return Next::default();
     }
     if before_last == Some(POOLED) {
+        return next(&[POOLED_WITH, POOLED_WITHIN, USING], &[], false);
+    }
+    if before_last == Some(POOLED_WITHIN) {
         return next(&[POOLED_WITH, USING], &[], false);
     }
     if before_last == Some(PER) || before_last == Some(POOLED_WITH) || last.ends_with(')') {

@@ -450,9 +450,20 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
         _ => return Err(CellError::at(line, format!("the shrinkage figure shows one pooled group at a time; write `plot {name} shrinkage of GROUP`"))),
     };
     let mass = session.interval_mass(None);
-    let result = crate::query::shrinkage(model, &fit.draws, &group, mass).map_err(|e| CellError::at(line, e.to_string()))?;
+    // A category outcome's group: one figure per outcome level after the reference.
+    let results = crate::query::level_shrinkages(model, &fit.draws, &group, mass).map_err(|e| CellError::at(line, e.to_string()))?;
     let table = session.require_table(model.table_name(), line)?;
-    let svg = figures::shrinkage(&result, model, table).map_err(|e| CellError::at(line, e.to_string()))?;
+    let mut shown = Vec::with_capacity(results.len());
+    for result in &results {
+        shown.extend(shrinkage_display(result, model, table, name, line)?);
+    }
+    Ok(shown)
+}
+
+/// One shrinkage as a figure, a table, notes and JSON.
+fn shrinkage_display(result: &crate::query::Shrinkage, model: &crate::model::Model, table: &crate::table::Table, name: &str, line: usize) -> Result<Vec<Display>, CellError> {
+    let (group, mass) = (&result.group, result.mass);
+    let svg = figures::shrinkage(result, model, table).map_err(|e| CellError::at(line, e.to_string()))?;
     let pooled_head = format!("pooled {}", fit_summary::estimate_head(mass));
     let mut grid = Grid::new(&["level", "rows", "own rows' mean", &pooled_head]).numeric_columns(&[1, 2]);
     let number = crate::cells::format::num;
@@ -473,13 +484,20 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
         format!("population (a new level, no departure): {} ({} to {})", number(centre), number(low), number(high)),
     ];
     let mut notes = notes;
-    if !matches!(model.family(), crate::model::Family::Normal) {
-        notes.push(
+    match (model.family(), &result.outcome_level) {
+        (crate::model::Family::Normal, _) => {}
+        (_, Some(level)) => notes.push(format!(
+            "a level whose rows hold no {level} or no reference outcome has no finite own log odds; each share is taken as at least 0.001"
+        )),
+        _ => notes.push(
             "a level whose rows are all 0 or all at the top (a share of 0 or 1, a mean count of 0) has no finite own value on the link scale; it is shown as if its share were 0.001 or 0.999 (its mean count 0.001)"
                 .into(),
-        );
+        ),
     }
-    let heading = format!("shrinkage of {group} in {name}");
+    let heading = match &result.outcome_level {
+        Some(level) => format!("shrinkage of {group} in {name}, on the log odds of {level}"),
+        None => format!("shrinkage of {group} in {name}"),
+    };
     let plain = format!("{heading}\n{}\n{}", grid.to_text(), notes.iter().map(|n| format!("• {n}")).collect::<Vec<_>>().join("\n"));
     let html = html_block(&heading, &[grid.to_html(), html_list(&notes)]);
     let json = serde_json::to_value(&result).unwrap_or(serde_json::Value::Null);

@@ -359,6 +359,11 @@ fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionReque
         if words[i] == GROUPS_WORD {
             request.groups = read_group_question(words.get(i + 1).copied(), words.get(i + 2).copied())?;
             i += 3;
+            let per_row = words.get(i..i + 2).is_some_and(|w| w == PER_ROW);
+            if let (crate::query::GroupQuestion::New { column }, true) = (&request.groups, per_row) {
+                request.groups = crate::query::GroupQuestion::NewPerRow { column: column.clone() };
+                i += 2;
+            }
             continue;
         }
         match (words[i], words.get(i + 1)) {
@@ -382,6 +387,8 @@ fn read_intervention(head: &str, line: usize) -> Result<(&str, InterventionReque
 
 /// The word that opens `in new C` / `in C LEVEL` of `intervene`.
 const GROUPS_WORD: &str = "in";
+/// The words after `in new C` that give every row a new group of its own.
+const PER_ROW: [&str; 2] = ["per", "row"];
 
 /// `in new C` (a new group of pooled column C) or `in C LEVEL` (its
 /// existing level LEVEL), the two words after `in`.
@@ -390,7 +397,7 @@ fn read_group_question(first: Option<&str>, second: Option<&str>) -> Result<crat
     match (first, second) {
         (Some("new"), Some(column)) => Ok(GroupQuestion::New { column: column.to_string() }),
         (Some(column), Some(level)) => Ok(GroupQuestion::Existing { column: column.to_string(), level: level.to_string() }),
-        _ => Err("`in` takes a pooled column and one of its levels (`in site north`) or `new` and the column (`in new site`)".to_string()),
+        _ => Err("`in` takes a pooled column and one of its levels (`in site north`) or `new` and the column (`in new site`, or `in new site per row` for a new site per row)".to_string()),
     }
 }
 

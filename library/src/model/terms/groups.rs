@@ -15,6 +15,18 @@
 //! maps the rows of any table to level indices. Labels are written by
 //! [`super::design`] (`block spread`, `block departure[B1]`).
 //!
+//! # Nested groups
+//!
+//! Plots within sites are often labelled per site (`p1`, `p2`, … again in
+//! every site), so a plot is the pair of its own label and its site's.
+//! `pooled plot within site` plans the group on those pairs: one level per
+//! pair present in the fitted rows, ordered by the outer category's levels
+//! and then the inner one's, each shown as `p1 in A` ([`nested_level`]).
+//! Nothing else changes: the pairs are levels like any other, so the
+//! density, the sampling choice and the predictions need no case of their
+//! own. A row belongs to a fitted plot only when both its labels match one
+//! pair; a table without either column holds new plots.
+//!
 //! # Centred or non-centred
 //!
 //! The departures can be sampled as themselves (*centred*) or as standard
@@ -64,6 +76,8 @@
 //! The predictors are not taken out of the level means or slopes, so the
 //! rule is a guide; a `parameterise` line overrides it, and the model's
 //! notes say which form was taken and why.
+
+use std::collections::HashMap;
 
 use crate::table::Table;
 
@@ -162,6 +176,24 @@ pub struct GroupTerm {
     /// other family. Such a model pools a column once per outcome level
     /// after the reference, each with a spread of its own.
     pub outcome_level: Option<OutcomeLevel>,
+    /// For a nested group (`pooled plot within site`), the outer category
+    /// and each level's pair of labels; `None` otherwise.
+    pub nesting: Option<Nesting>,
+}
+
+/// What a nested group's levels are made of.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Nesting {
+    /// The outer category (`site`).
+    pub outer: String,
+    /// Each level's (outer label, inner label), in the order of the levels.
+    pub pairs: Vec<(String, String)>,
+}
+
+/// How a level of a nested group is shown: the inner label, then the
+/// outer one (`p1 in A`).
+pub fn nested_level(inner: &str, outer: &str) -> String {
+    format!("{inner} in {outer}")
 }
 
 /// The outcome level (after the reference) a levels-family group's
@@ -211,7 +243,62 @@ impl GroupTerm {
             choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0, slopes: Vec::new() },
             slopes: Vec::new(),
             outcome_level: None,
+            nesting: None,
         })
+    }
+
+    /// Plan the group of category `column` nested within category `outer`
+    /// on `table`: one level per pair of labels present in the rows.
+    pub fn plan_nested(column: &str, outer: &str, table: &Table) -> Result<GroupTerm, ModelError> {
+        let role = format!("the column after `pooled {column} within`");
+        let (outer_codes, outer_levels) = category_levels(find_column(table, outer)?, &role)?;
+        let (inner_codes, inner_levels) = category_levels(find_column(table, column)?, "the column after `pooled`")?;
+        let width = inner_levels.len().max(1);
+        let mut rows_per_pair: HashMap<usize, usize> = HashMap::new();
+        for (&o, &i) in outer_codes.iter().zip(inner_codes) {
+            *rows_per_pair.entry(o as usize * width + i as usize).or_insert(0) += 1;
+        }
+        let mut present: Vec<(usize, usize)> = rows_per_pair.into_iter().collect();
+        present.sort_unstable();
+        if present.len() < 2 {
+            return Err(ModelError::Column {
+                column: column.to_string(),
+                message: format!(
+                    "a pooled group needs at least 2 levels to learn how they vary, but the rows hold {} pair{} of \
+                     `{column}` and `{outer}`",
+                    present.len(),
+                    if present.len() == 1 { "" } else { "s" }
+                ),
+            });
+        }
+        let pairs: Vec<(String, String)> = present
+            .iter()
+            .map(|&(key, _)| (outer_levels[key / width].clone(), inner_levels[key % width].clone()))
+            .collect();
+        Ok(GroupTerm {
+            column: column.to_string(),
+            levels: pairs.iter().map(|(o, i)| nested_level(i, o)).collect(),
+            rows_per_level: present.iter().map(|&(_, n)| n).collect(),
+            layout: GroupLayout::NonCentred,
+            choice: LayoutChoice::FromData { median_ratio: 0.0, rough_spread: 0.0, slopes: Vec::new() },
+            slopes: Vec::new(),
+            outcome_level: None,
+            nesting: Some(Nesting { outer: outer.to_string(), pairs }),
+        })
+    }
+
+    /// The outer category of a nested group.
+    pub fn outer(&self) -> Option<&str> {
+        self.nesting.as_ref().map(|n| n.outer.as_str())
+    }
+
+    /// How the group is written in a model line, without its slopes:
+    /// `block`, or `plot within site`.
+    pub fn written(&self) -> String {
+        match self.outer() {
+            Some(outer) => format!("{} {} {outer}", self.column, crate::model::spec::POOLED_WITHIN),
+            None => self.column.clone(),
+        }
     }
 
     /// The same group for outcome level `block + 1` of a category outcome,
@@ -274,6 +361,9 @@ impl GroupTerm {
     /// fitted data did not have, or for every row when the table lacks the
     /// column: such rows belong to a new group).
     pub fn level_of_rows(&self, table: &Table) -> Result<Vec<Option<usize>>, ModelError> {
+        if let Some(nesting) = &self.nesting {
+            return self.nested_level_of_rows(nesting, table);
+        }
         let Some(found) = table.column(&self.column) else {
             return Ok(vec![None; table.nrows()]);
         };
@@ -281,6 +371,23 @@ impl GroupTerm {
         let mapping: Vec<Option<usize>> =
             table_levels.iter().map(|label| self.levels.iter().position(|l| l == label)).collect();
         Ok(codes.iter().map(|&c| mapping[c as usize]).collect())
+    }
+
+    /// [`GroupTerm::level_of_rows`] of a nested group: a row's level is its
+    /// pair of labels, `None` for a pair the fitted rows did not hold.
+    fn nested_level_of_rows(&self, nesting: &Nesting, table: &Table) -> Result<Vec<Option<usize>>, ModelError> {
+        let (Some(outer), Some(inner)) = (table.column(&nesting.outer), table.column(&self.column)) else {
+            return Ok(vec![None; table.nrows()]);
+        };
+        let (outer_codes, outer_levels) = category_levels(outer, "the outer category of a nested pooled group")?;
+        let (inner_codes, inner_levels) = category_levels(inner, "a pooled group")?;
+        let index: HashMap<(&str, &str), usize> =
+            nesting.pairs.iter().enumerate().map(|(k, (o, i))| ((o.as_str(), i.as_str()), k)).collect();
+        Ok(outer_codes
+            .iter()
+            .zip(inner_codes)
+            .map(|(&o, &i)| index.get(&(outer_levels[o as usize].as_str(), inner_levels[i as usize].as_str())).copied())
+            .collect())
     }
 
     /// A note on the group for the model table: levels, rows, the layout
@@ -355,10 +462,18 @@ impl GroupTerm {
             Some(o) => format!(" on the log odds of {}", o.prefix.trim_end_matches([':', ' '])),
             None => String::new(),
         };
+        let nested = match self.outer() {
+            Some(outer) => format!(
+                " (each a pair of a {c} label and its {outer}, so {c} labels may repeat across {outer} levels; shown as \
+                 `<{c}> in <{outer}>`)",
+                c = self.column
+            ),
+            None => String::new(),
+        };
         format!(
-            "pooled {}{outcome_level}: {} levels ({} to {} rows each), each departing from the population by its own amount on \
+            "pooled {}{outcome_level}: {} levels{nested} ({} to {} rows each), each departing from the population by its own amount on \
              the link scale, {what}; sampled {} ({why})",
-            self.column,
+            self.written(),
             self.levels.len(),
             fewest,
             most,
