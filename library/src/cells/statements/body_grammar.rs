@@ -8,13 +8,13 @@
 //! to keep in step. Names (columns, levels, nodes) are not known here:
 //! [`Next::values`] says where one fits.
 
-use super::grammar::{tokens, Next};
+use super::grammar::{tokens, Names, Next, Wanted};
 use crate::model::family::survival::{TimeForm, CUT_SHORT_BY};
 use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{
     GroupLayout, CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, LKJ, PARAMETERISE_LINE, PER, POOLED,
-    POOLED_CORRELATIONS, POOLED_WITH, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
+    POOLED_CORRELATIONS, POOLED_WITH, PRIOR_FOR, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
 };
 use crate::model::PriorGroup;
 use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
@@ -86,8 +86,12 @@ fn model_line(typed: &str) -> Next {
         }
         [PRIOR_LINE] => {
             let mut words = PriorGroup::words();
-            words.push(POOLED_CORRELATIONS);
+            words.extend([POOLED_CORRELATIONS, PRIOR_FOR]);
             next(&words, &[], false)
+        }
+        [PRIOR_LINE, PRIOR_FOR, .., ":"] => next(&[], PRIOR_DISTRIBUTIONS, false),
+        [PRIOR_LINE, PRIOR_FOR, ..] => {
+            Next { words: Vec::new(), calls: Vec::new(), values: true, names: vec![Wanted { names: Names::Parameter, of: Vec::new() }] }
         }
         [PRIOR_LINE, pooled, correlations, ":"] if format!("{pooled} {correlations}") == POOLED_CORRELATIONS => {
             next(&[], &[LKJ], false)

@@ -46,6 +46,11 @@ pub enum Names {
     /// A level of the column or node named just before (in a `b vs a`
     /// pair, the last column or node named).
     Level,
+    /// A parameter label of the model a `model` block declares (`prior for
+    /// …`), known once that model has been built in the session; a label
+    /// holds spaces and brackets, so the kernel offers the rest of each
+    /// label after the part already typed.
+    Parameter,
 }
 
 /// A kind of name wanted at the cursor, with the names typed earlier in

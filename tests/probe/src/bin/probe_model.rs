@@ -16,7 +16,8 @@
 //! * `tail_functions` — `shape`, `scale`, `p` and `at`; answers `quantiles`
 //!   at the shares `p` and `log_densities` at the values `at`.
 //! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
-//! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`.
+//! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`;
+//!   with `draws` and `seed` also `sample`, that many draws from the prior.
 //! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
 //!   one chain, 300 settling iterations); answers the calibration structure (ranks,
 //!   chi-square and p-value per parameter).
@@ -178,7 +179,15 @@ fn basis(request: &Value) -> Result<Value, String> {
 fn prior(request: &Value) -> Result<Value, String> {
     let prior = Prior::parse(request["prior"].as_str().ok_or("prior must be text")?).map_err(|e| e.to_string())?;
     let values: Vec<f64> = numbers(&request["x"])?.into_iter().map(|x| prior.log_density_and_derivative(x).0).collect();
-    Ok(json!({ "log_density": values }))
+    let sample: Vec<f64> = match (request["draws"].as_u64(), request["seed"].as_u64()) {
+        (Some(n), Some(seed)) => {
+            use waypath::rand::SeedableRng;
+            let mut rng = waypath::rand::rngs::StdRng::seed_from_u64(seed);
+            (0..n).map(|_| prior.sample(&mut rng)).collect()
+        }
+        _ => Vec::new(),
+    };
+    Ok(json!({ "log_density": values, "sample": sample }))
 }
 
 fn calibrate(request: &Value) -> Result<Value, String> {
