@@ -795,4 +795,26 @@ mod tests {
         // another model's cell, or one not run yet, offers no labels
         assert!(offered(&session, "model other:\n    yield from girth using trees\n    prior for gi").is_empty());
     }
+
+    /// README "Statements", `simulate`: a time's follow-up rule, `days =
+    /// weibull(log = 2.5, 1.6) followed until uniform(8, 30) cut short by
+    /// unsprouted`, offered word by word after the closing bracket.
+    #[test]
+    fn time_mechanisms_offer_their_follow_up_rule() {
+        let session = Session::new(".");
+        let header = "simulate s from orchard rows 50 seed 7:";
+        let cases: &[(&str, &[&str])] = &[
+            ("days = weibull(log = 2.5, 1.6) ", &["followed"]),
+            ("days = exponential(12) ", &["followed"]),
+            ("days = weibull(log = 2.5, 1.6) followed ", &["until"]),
+            ("days = weibull(log = 2.5, 1.6) followed until un", &["uniform("]),
+            ("days = weibull(log = 2.5, 1.6) followed until uniform(8, 30) ", &["cut"]),
+            ("days = weibull(log = 2.5, 1.6) followed until 30 cut ", &["short"]),
+            ("days = weibull(log = 2.5, 1.6) followed until 30 cut short ", &["by"]),
+        ];
+        for (line, want) in cases {
+            assert_eq!(offered_in(&session, header, line), *want, "after {line:?}");
+        }
+        assert!(!offered_in(&session, header, "x = normal(1, 2) ").contains(&"followed".to_string()));
+    }
 }

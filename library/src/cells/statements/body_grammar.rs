@@ -17,7 +17,9 @@ use crate::model::spec::{
     POOLED_CORRELATIONS, POOLED_WITH, PRIOR_FOR, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
 };
 use crate::model::PriorGroup;
-use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
+use crate::query::mechanism::{
+    BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, EXPONENTIAL, FOLLOWED_UNTIL, FUNCTIONS, LOG, LOGIT, POISSON, UNIFORM, WEIBULL,
+};
 use crate::graph::{ARROW, HIDDEN};
 use crate::table::condition::{Comparison, AND, NOT, OR};
 use crate::table::rules::{CATEGORY, DROP, IN, KEEP, KINDS, MISSING, WHERE};
@@ -228,6 +230,25 @@ fn mechanism_line(typed: &str) -> Next {
         [] => next(&[], &[], true),
         [_] => next(&["="], &[], false),
         [_, "="] => next(&[], DISTRIBUTIONS, false),
+        [_, "=", dist, ..] if [EXPONENTIAL, WEIBULL].iter().any(|t| dist.starts_with(&format!("{t}("))) => follow_up_next(typed, &words),
         _ => Next::default(),
+    }
+}
+
+/// After a time mechanism's closing bracket: `followed until END cut short
+/// by COLUMN`, END a value or `uniform(LO, HI)`.
+fn follow_up_next(typed: &str, words: &[&str]) -> Next {
+    let [followed, until] = FOLLOWED_UNTIL;
+    let Some(at) = words.iter().position(|w| *w == followed) else {
+        return if typed.trim_end().ends_with(')') { next(&[followed], &[], false) } else { Next::default() };
+    };
+    let rule = &words[at + 1..];
+    match rule {
+        [] => next(&[until], &[], false),
+        [w] if *w == until => next(&[], &[UNIFORM], true),
+        [_, .., c, s, b] if [*c, *s, *b] == CUT_SHORT_BY => next(&[], &[], true),
+        [_, .., c, s] if [*c, *s] == CUT_SHORT_BY[..2] => next(&[CUT_SHORT_BY[2]], &[], false),
+        [_, .., c] if *c == CUT_SHORT_BY[0] => next(&[CUT_SHORT_BY[1]], &[], false),
+        _ => next(&[CUT_SHORT_BY[0]], &[], false),
     }
 }
