@@ -101,7 +101,7 @@ fn inverse_gamma_derivative_matches_central_differences() {
 fn unknown_labels_are_refused_naming_the_line_and_the_labels_there_are() {
     let table = orchard(60, 2);
     let text = build_error("yield from girth, pooled soil using trees\nprior for girth slop: normal(0, 1)", &table);
-    assert!(text.contains("model line 3"), "{text}");
+    assert!(text.starts_with("model line 3: prior for `girth slop`"), "placed once, on its own line: {text}");
     assert!(text.contains("`girth slop`"), "{text}");
     for label in ["`intercept`", "`girth slope`", "`spread`", "`soil spread`"] {
         assert!(text.contains(label), "{label} missing from: {text}");
