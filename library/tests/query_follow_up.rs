@@ -93,6 +93,8 @@ fn the_simulate_cell_says_how_many_rows_were_cut_short() {
     let plain = &out.displays.last().expect("display").plain;
     let cut = column(&session, "unsprouted").iter().sum::<f64>() as usize;
     assert!(plain.contains(&format!("days: {cut} of 300 rows cut short by the follow-up rule")), "{plain}");
+    let listed = &out.displays.last().and_then(|d| d.json.clone()).expect("json")["cut_short"];
+    assert_eq!(*listed, serde_json::json!([{"node": "days", "column": "unsprouted", "rows": cut}]));
 }
 
 /// The notes of `recover` for model `body` on the trays of `session`, and
