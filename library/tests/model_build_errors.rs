@@ -75,14 +75,14 @@ fn outcome_must_fit_the_family() {
         .assert_eq(&build_error("soil from girth, pooled rootstock using trees\nfamily graded", &t));
     expect!["prior for gaps: this model has no gaps; remove the prior line"]
         .assert_eq(&build_error("yield from girth using trees\nprior gaps: lognormal(0, 1)", &t));
-    expect!["prior for gaps: normal(0, 1) allows negative values but the gaps between cut points are positive; use exponential, half_normal or lognormal"]
+    expect!["prior for gaps: normal(0, 1) allows negative values but the gaps between cut points are positive; use exponential, half_normal, lognormal or inverse_gamma"]
         .assert_eq(&build_error("soil from girth using trees\nfamily graded\nprior gaps: normal(0, 1)", &t));
 }
 
 #[test]
 fn priors_must_suit_their_group() {
     let t = orchard(30, 2);
-    expect!["prior for spread: normal(0, 1) allows negative values but the spread is positive; use exponential, half_normal or lognormal"]
+    expect!["prior for spread: normal(0, 1) allows negative values but the spread is positive; use exponential, half_normal, lognormal or inverse_gamma"]
         .assert_eq(&build_error("yield from girth using trees\nprior spread: normal(0, 1)", &t));
     expect!["prior for slopes: exponential(1) allows only positive values but slopes can be negative; use normal or student"]
         .assert_eq(&build_error("yield from girth using trees\nprior slopes: exponential(1)", &t));
@@ -93,7 +93,7 @@ fn priors_must_suit_their_group() {
         .assert_eq(&build_error("fruit from girth using trees\nfamily poisson\nprior overdispersion: exponential(1)", &t));
     expect![[r#"prior for spread: this model has no spread; remove the prior line"#]]
         .assert_eq(&build_error("fruit from girth using trees\nfamily gamma_poisson\nprior spread: exponential(1)", &t));
-    expect!["prior for overdispersion: normal(0, 1) allows negative values but the overdispersion is positive; use exponential, half_normal or lognormal"]
+    expect!["prior for overdispersion: normal(0, 1) allows negative values but the overdispersion is positive; use exponential, half_normal, lognormal or inverse_gamma"]
         .assert_eq(&build_error("fruit from girth using trees\nfamily gamma_poisson\nprior overdispersion: normal(0, 1)", &t));
     expect![[r#"prior for weights: this model has no weights; remove the prior line"#]]
         .assert_eq(&build_error("yield from girth using trees\nprior weights: normal(0, 1)", &t));

@@ -84,11 +84,11 @@ fn syntax_errors_say_what_to_write() {
         .assert_eq(&line_error("family binomial"));
     expect!["`family gamma`: use normal, bernoulli, poisson, gamma_poisson, beta, levels, graded, binomial out of <column>, exponential or weibull (either with `cut short by <column>`)"]
         .assert_eq(&line_error("family gamma"));
-    expect!["`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student, exponential, half_normal, lognormal or uniform"]
+    expect!["`cauchy(0, 1)`: unknown distribution `cauchy`; use normal, student, exponential, half_normal, lognormal, inverse_gamma or uniform"]
         .assert_eq(&line_error("prior slopes: cauchy(0, 1)"));
     expect![[r#"`normal(0)`: normal takes 2 numbers (mean, sd), not 1"#]].assert_eq(&line_error("prior slopes: normal(0)"));
     expect![[r#"`normal(0, -1)`: the sd must be positive"#]].assert_eq(&line_error("prior slopes: normal(0, -1)"));
-    expect![[r#"`noise` is not a prior group; use intercepts, slopes, weights, spread, pooled spreads, overdispersion or precision"#]]
+    expect!["`noise` is not a prior group; use intercepts, slopes, weights, spread, pooled spreads, overdispersion, precision, shape, gaps, `pooled correlations`, or `prior for <parameter>:` for one parameter by its label"]
         .assert_eq(&line_error("prior noise: exponential(1)"));
     expect![[r#"`yield from girth` is not a model line; an outcome line ends with `using <table>`, other lines start with family, prior or centre"#]]
         .assert_eq(&line_error("yield from girth"));

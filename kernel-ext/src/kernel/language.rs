@@ -8,6 +8,7 @@ use waypath::cells::parse::{is_incomplete, split_statements};
 use waypath::cells::statements::body_grammar::{body_next_words, Block};
 use waypath::cells::statements::grammar::{next_words, statement_words, Names, Next, Wanted};
 use waypath::cells::Session;
+use waypath::model::spec::{PRIOR_FOR, PRIOR_LINE};
 use waypath::table::Table;
 
 use crate::rust_cells::{rust_source, RUST_MAGIC};
@@ -144,9 +145,31 @@ fn line_words(session: &Session, code: &str, before: &str, typed: &str) -> Vec<S
         words.extend(session_words(session));
     }
     for wanted in &next.names {
-        words.extend(names_for(session, wanted));
+        if wanted.names == Names::Parameter {
+            words.extend(label_rests(session, before, typed));
+        } else {
+            words.extend(names_for(session, wanted));
+        }
     }
     words
+}
+
+/// The rest of each parameter label of the model the block above declares
+/// (`model NAME:`, built in the session by an earlier run of the cell)
+/// after the part of the label typed so far on `prior for …`, so that a
+/// label with spaces and brackets completes in one step.
+fn label_rests(session: &Session, before: &str, typed: &str) -> Vec<String> {
+    let Some(header) = header_line(before) else { return Vec::new() };
+    let name = header.split_whitespace().nth(1).unwrap_or("").trim_end_matches(':');
+    let Some(model) = session.model(name) else { return Vec::new() };
+    let typed_label = typed.trim_start().strip_prefix(PRIOR_LINE).map(str::trim_start).and_then(|r| r.strip_prefix(PRIOR_FOR));
+    let Some(typed_label) = typed_label.map(str::trim_start) else { return Vec::new() };
+    model
+        .priors_used()
+        .iter()
+        .flat_map(|u| u.parameters.iter())
+        .filter_map(|label| label.strip_prefix(typed_label).map(str::to_string))
+        .collect()
 }
 
 /// The session's names of the kind `wanted` asks for.
@@ -156,7 +179,7 @@ fn names_for(session: &Session, wanted: &Wanted) -> Vec<String> {
     };
     match wanted.names {
         Names::Any => session_words(session),
-        Names::New => Vec::new(),
+        Names::New | Names::Parameter => Vec::new(),
         Names::Table => objects(&["table"]),
         Names::Graph => objects(&["graph"]),
         Names::Model => objects(&["model", "joint model"]),
@@ -190,8 +213,12 @@ fn tables_of<'s>(session: &'s Session, named: &[String]) -> Vec<&'s Table> {
 /// The block whose body the cursor is in: the statement of the nearest
 /// header line (one that is not indented) above the cursor's line.
 fn block_at(before: &str) -> Option<Block> {
-    let header = before.lines().rev().skip(1).find(|l| !l.trim().is_empty() && !l.starts_with([' ', '\t']))?;
-    Block::of_header(header)
+    Block::of_header(header_line(before)?)
+}
+
+/// The nearest header line (one that is not indented) above the cursor's line.
+fn header_line(before: &str) -> Option<&str> {
+    before.lines().rev().skip(1).find(|l| !l.trim().is_empty() && !l.starts_with([' ', '\t']))
 }
 
 /// Every name a cell could refer to: objects, columns, category levels.
@@ -431,7 +458,7 @@ mod tests {
             ("fit m with nuts ", &["acceptance", "chains", "doublings", "draws", "mass", "seed", "settle"]),
             ("fit m with nuts chains 2 ", &["acceptance", "doublings", "draws", "mass", "seed", "settle"]),
             ("fit m with laplace ", &["draws", "seed"]),
-            ("contrast m: x 1 vs 0 on ", &["means", "outcomes"]),
+            ("contrast m: x 1 vs 0 on ", &["log-times", "means", "medians", "outcomes", "scores"]),
             ("contrast m: x along z ", &["from"]),
             ("contrast m: x over ", &["rows"]),
             ("contrast m: x 1 ", &["along", "at", "by", "intervals", "on", "over", "seed", "vs"]),
@@ -579,9 +606,10 @@ mod tests {
             ("family ", &["bernoulli", "beta", "binomial", "exponential", "gamma_poisson", "graded", "levels", "normal", "poisson", "weibull"]),
             ("family binomial ", &["out"]),
             ("family binomial out ", &["of"]),
-            ("prior ", &["gaps", "intercepts", "overdispersion", "pooled correlations", "pooled spreads", "precision", "shape", "slopes", "spread", "weights"]),
+            ("prior ", &["for", "gaps", "intercepts", "overdispersion", "pooled correlations", "pooled spreads", "precision", "shape", "slopes", "spread", "weights"]),
             ("prior pooled correlations: ", &["lkj("]),
-            ("prior slopes: ", &["exponential(", "half_normal(", "lognormal(", "normal(", "student(", "uniform("]),
+            ("prior slopes: ", &["exponential(", "half_normal(", "inverse_gamma(", "lognormal(", "normal(", "student(", "uniform("]),
+            ("prior for girth slope: ", &["exponential(", "half_normal(", "inverse_gamma(", "lognormal(", "normal(", "student(", "uniform("]),
             ("centre ", &["off", "on"]),
             ("yield ", &["from", "using"]),
             ("yield from rootstock ", &["per", "using"]),
@@ -738,5 +766,56 @@ mod tests {
         assert_eq!(reply["matches"], json!(["paths"]));
         assert_eq!(reply["cursor_start"], 0);
         assert_eq!(reply["cursor_end"], 2);
+    }
+
+    /// README "Statements", `model NAME:`: `prior for girth slope:
+    /// normal(0, 1)` — the label as the estimates table prints it. Once the
+    /// cell has run, the model's labels complete there, the rest of a label
+    /// after what is typed (labels hold spaces and brackets).
+    #[test]
+    fn prior_for_offers_the_labels_of_the_model_the_cell_declares() {
+        use waypath::cells::RunControl;
+        use waypath::table::{Column, ColumnData, Table};
+        let mut session = Session::new(".");
+        session.put_table("trees", Table {
+            name: "trees".into(),
+            columns: vec![
+                Column::new("girth", ColumnData::Real(vec![20.0, 31.0, 25.0, 28.0])),
+                Column::new("rootstock", ColumnData::Category { codes: vec![0, 1, 0, 1], levels: vec!["dwarf".into(), "standard".into()] }),
+                Column::new("yield", ColumnData::Real(vec![21.0, 40.0, 27.5, 36.0])),
+            ],
+        });
+        let cell = "model m:\n    yield from rootstock, girth using trees\n";
+        let (cancel, progress) = (std::sync::atomic::AtomicBool::new(false), |_: &str| {});
+        assert!(session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress }).error.is_none());
+        let at = |line: &str| offered(&session, &format!("{cell}    {line}"));
+        assert_eq!(at("prior for "), ["girth slope", "rootstock[dwarf]", "rootstock[standard]", "spread"]);
+        assert_eq!(at("prior for gi"), ["girth slope"]);
+        assert_eq!(at("prior for girth s"), ["slope"]);
+        assert_eq!(at("prior for rootstock["), ["dwarf]", "standard]"]);
+        // another model's cell, or one not run yet, offers no labels
+        assert!(offered(&session, "model other:\n    yield from girth using trees\n    prior for gi").is_empty());
+    }
+
+    /// README "Statements", `simulate`: a time's follow-up rule, `days =
+    /// weibull(log = 2.5, 1.6) followed until uniform(8, 30) cut short by
+    /// unsprouted`, offered word by word after the closing bracket.
+    #[test]
+    fn time_mechanisms_offer_their_follow_up_rule() {
+        let session = Session::new(".");
+        let header = "simulate s from orchard rows 50 seed 7:";
+        let cases: &[(&str, &[&str])] = &[
+            ("days = weibull(log = 2.5, 1.6) ", &["followed"]),
+            ("days = exponential(12) ", &["followed"]),
+            ("days = weibull(log = 2.5, 1.6) followed ", &["until"]),
+            ("days = weibull(log = 2.5, 1.6) followed until un", &["uniform("]),
+            ("days = weibull(log = 2.5, 1.6) followed until uniform(8, 30) ", &["cut"]),
+            ("days = weibull(log = 2.5, 1.6) followed until 30 cut ", &["short"]),
+            ("days = weibull(log = 2.5, 1.6) followed until 30 cut short ", &["by"]),
+        ];
+        for (line, want) in cases {
+            assert_eq!(offered_in(&session, header, line), *want, "after {line:?}");
+        }
+        assert!(!offered_in(&session, header, "x = normal(1, 2) ").contains(&"followed".to_string()));
     }
 }

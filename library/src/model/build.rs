@@ -36,10 +36,11 @@ use super::prior::short_number;
 impl Model {
     /// Build the model of `spec` on `table` (the table `spec.table` names;
     /// the caller resolves the name). Errors name the cell line of the
-    /// outcome line where one is known.
+    /// outcome line where one is known (an error already placed on its own
+    /// line, such as a `prior for` line's, keeps that line).
     pub fn build(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         build_model(spec, table).map_err(|e| match spec.formula_line {
-            Some(line) if !matches!(e, ModelError::Prior { .. }) => e.at_line(line),
+            Some(line) if !matches!(e, ModelError::Prior { .. } | ModelError::AtLine { .. }) => e.at_line(line),
             _ => e,
         })
     }

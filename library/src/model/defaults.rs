@@ -105,7 +105,7 @@ use super::family::softmax::level_prefix;
 use super::family::survival::mean_time;
 use super::family::Family;
 use super::outcome::OutcomeValues;
-use super::prior::{short_number, Prior, PriorGroup};
+use super::prior::{short_number, Prior, PriorGroup, POSITIVE_DISTRIBUTIONS};
 use super::spec::ModelSpec;
 use super::terms::design::group_spread_label;
 use super::terms::recipe::{mean_and_sd, TermRecipe};
@@ -128,6 +128,9 @@ pub struct PriorUse {
     pub prior: Prior,
     /// `true` if declared in the cell, `false` for a default.
     pub declared: bool,
+    /// `true` if declared for this parameter by its label (`prior for …`),
+    /// not for its group.
+    pub for_parameter: bool,
     /// `true` for a default intercept prior placed on the prediction at the
     /// average row rather than on the raw intercept.
     pub at_average_row: bool,
@@ -229,73 +232,49 @@ pub fn assign_priors(
             let labels: Vec<String> = recipe.labels().iter().map(|l| format!("{}{l}", block.prefix)).collect();
             let group = recipe.group();
             let intercept = matches!(recipe, TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. });
-            let width = labels.len();
-            match spec.declared_prior(group) {
-                Some(prior) => {
-                    plan.coefficients.extend(std::iter::repeat_n(prior.clone(), width));
-                    plan.at_average_row.extend(std::iter::repeat_n(false, width));
-                    plan.uses.push(PriorUse { group, parameters: labels, prior: prior.clone(), declared: true, at_average_row: false });
-                }
-                None => {
-                    for (k, label) in labels.into_iter().enumerate() {
-                        let prior = if intercept {
-                            Prior::Normal { mean: block.centre, sd: target }
-                        } else {
-                            Prior::Normal { mean: 0.0, sd: share_of_budget(target, columns.sd[column + k], varying) }
-                        };
-                        plan.coefficients.push(prior.clone());
-                        plan.at_average_row.push(intercept);
-                        plan.uses.push(PriorUse { group, parameters: vec![label], prior, declared: false, at_average_row: intercept });
+            for (k, label) in labels.into_iter().enumerate() {
+                let default = || {
+                    if intercept {
+                        Prior::Normal { mean: block.centre, sd: target }
+                    } else {
+                        Prior::Normal { mean: 0.0, sd: share_of_budget(target, columns.sd[column + k], varying) }
                     }
-                }
+                };
+                let mut used = choose(spec, group, label, default);
+                used.at_average_row = intercept && !used.declared;
+                plan.coefficients.push(used.prior.clone());
+                plan.at_average_row.push(used.at_average_row);
+                plan.uses.push(used);
             }
-            column += width;
+            column += recipe.labels().len();
         }
     }
     if let Some(label) = spec.family.family_parameter() {
-        let group = family_parameter_group(&spec.family);
-        let declared = spec.declared_prior(group);
-        let prior = declared.cloned().unwrap_or_else(|| match spec.family {
+        let used = choose(spec, family_parameter_group(&spec.family), label.into(), || match spec.family {
             Family::Beta => Prior::LogNormal { log_mean: moment_precision(&outcome.y).ln() + 1.0, log_sd: 1.0 },
             Family::Times { .. } => Prior::LogNormal { log_mean: 0.0, log_sd: 1.0 },
             _ => Prior::HalfNormal { sd: target },
         });
-        plan.uses.push(PriorUse {
-            group,
-            parameters: vec![label.into()],
-            prior: prior.clone(),
-            declared: declared.is_some(),
-            at_average_row: false,
-        });
-        plan.family_parameter = Some(prior);
+        plan.family_parameter = Some(used.prior.clone());
+        plan.uses.push(used);
     }
     if spec.family == Family::Graded {
         plan.gaps = gap_priors(spec, outcome, &mut plan.uses);
     }
-    let declared = spec.declared_prior(PriorGroup::PooledSpreads);
     for group in groups {
-        let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: target / (varying.max(1) as f64).sqrt() });
-        plan.uses.push(PriorUse {
-            group: PriorGroup::PooledSpreads,
-            parameters: vec![format!("{}{}", group.label_prefix(), group_spread_label(&group.column))],
-            prior: prior.clone(),
-            declared: declared.is_some(),
-            at_average_row: false,
-        });
-        plan.group_spreads.push(prior);
+        let label = format!("{}{}", group.label_prefix(), group_spread_label(&group.column));
+        let used = choose(spec, PriorGroup::PooledSpreads, label, || Prior::HalfNormal { sd: target / (varying.max(1) as f64).sqrt() });
+        plan.group_spreads.push(used.prior.clone());
+        plan.uses.push(used);
         let slope_priors: Vec<Prior> = group
             .slopes
             .iter()
             .map(|slope| {
                 let share = share_of_budget(target, columns.sd[slope.design_column], varying);
-                let prior = declared.cloned().unwrap_or(Prior::HalfNormal { sd: share });
-                plan.uses.push(PriorUse {
-                    group: PriorGroup::PooledSpreads,
-                    parameters: vec![format!("{}{}", group.label_prefix(), group_spread_label(&format!("{} {}", group.column, slope.column)))],
-                    prior: prior.clone(),
-                    declared: declared.is_some(),
-                    at_average_row: false,
-                });
+                let label = format!("{}{}", group.label_prefix(), group_spread_label(&format!("{} {}", group.column, slope.column)));
+                let used = choose(spec, PriorGroup::PooledSpreads, label, || Prior::HalfNormal { sd: share });
+                let prior = used.prior.clone();
+                plan.uses.push(used);
                 prior
             })
             .collect();
@@ -309,7 +288,43 @@ pub fn assign_priors(
                 .into(),
         });
     }
+    check_parameter_priors(spec, &plan.uses)?;
     Ok(plan)
+}
+
+/// The prior of the parameter `label` of `group`: the one declared for it
+/// (`prior for <label>: …`), else its group's declared prior, else
+/// `default()`.
+fn choose(spec: &ModelSpec, group: PriorGroup, label: String, default: impl FnOnce() -> Prior) -> PriorUse {
+    let (prior, declared, for_parameter) = match (spec.declared_for(&label), spec.declared_prior(group)) {
+        (Some(prior), _) => (prior.clone(), true, true),
+        (None, Some(prior)) => (prior.clone(), true, false),
+        (None, None) => (default(), false, false),
+    };
+    PriorUse { group, parameters: vec![label], prior, declared, for_parameter, at_average_row: false }
+}
+
+/// Every `prior for <label>` names a parameter that takes a prior of its
+/// own, and its distribution suits that parameter; errors name the cell
+/// line and, for a label not found, the labels there are.
+fn check_parameter_priors(spec: &ModelSpec, uses: &[PriorUse]) -> Result<(), ModelError> {
+    for declared in &spec.parameter_priors {
+        let at = |e: ModelError| e.at_line(declared.line);
+        let Some(used) = uses.iter().find(|u| u.parameters.contains(&declared.label)) else {
+            let labels: Vec<String> = uses.iter().flat_map(|u| u.parameters.iter().map(|l| format!("`{l}`"))).collect();
+            return Err(at(ModelError::Prior {
+                group: format!("`{}`", declared.label),
+                message: format!(
+                    "this model has no parameter of that label that takes a prior of its own; the labels are {} \
+                     (pooled departures take their group's spread, correlations `prior {}: lkj(η)`)",
+                    labels.join(", "),
+                    super::spec::POOLED_CORRELATIONS
+                ),
+            }));
+        };
+        check_suits(used.group, &declared.prior, &format!("`{}`", declared.label)).map_err(at)?;
+    }
+    Ok(())
 }
 
 /// The prior of each gap between a graded outcome's cut points: the
@@ -318,20 +333,17 @@ pub fn assign_priors(
 /// ([`marginal_cuts`]), recorded under the label of the cut above the gap.
 fn gap_priors(spec: &ModelSpec, outcome: &OutcomeValues, uses: &mut Vec<PriorUse>) -> Vec<Prior> {
     let Some(levels) = &outcome.levels else { return Vec::new() };
-    let declared = spec.declared_prior(PriorGroup::Gaps);
     let (_, log_gaps) = marginal_cuts(&outcome.level_shares());
     log_gaps
         .iter()
         .zip(levels.iter().skip(2))
         .map(|(&log_gap, level)| {
-            let prior = declared.cloned().unwrap_or(Prior::LogNormal { log_mean: log_gap, log_sd: 1.0 });
-            uses.push(PriorUse {
-                group: PriorGroup::Gaps,
-                parameters: vec![cut_label(&spec.outcome, level)],
-                prior: prior.clone(),
-                declared: declared.is_some(),
-                at_average_row: false,
+            let used = choose(spec, PriorGroup::Gaps, cut_label(&spec.outcome, level), || Prior::LogNormal {
+                log_mean: log_gap,
+                log_sd: 1.0,
             });
+            let prior = used.prior.clone();
+            uses.push(used);
             prior
         })
         .collect()
@@ -409,7 +421,6 @@ fn share_of_budget(target: f64, column_sd: f64, varying: usize) -> f64 {
 /// Declared priors must suit their group, and the group must exist.
 fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]) -> Result<(), ModelError> {
     for (group, prior) in &spec.priors {
-        let problem = |message: String| Err(ModelError::Prior { group: group.name().into(), message });
         let present = if matches!(group, PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Shape) {
             spec.family.family_parameter().is_some() && family_parameter_group(&spec.family) == *group
         } else if *group == PriorGroup::Gaps {
@@ -420,42 +431,60 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
             recipes.iter().any(|r| r.group() == *group)
         };
         if !present {
-            return problem(format!("this model has no {}; remove the prior line", group.name()));
+            return Err(ModelError::Prior {
+                group: group.name().into(),
+                message: format!("this model has no {}; remove the prior line", group.name()),
+            });
         }
-        if let Prior::Uniform { lower, upper } = prior {
-            // A flat prior with hard ends puts a cliff in the density at each
-            // end: NUTS diverges there and a normal approximation is poor near it.
-            let instead = if group.is_positive() {
-                format!("half_normal({}) or lognormal", short_number(*upper / 2.0))
-            } else {
-                format!("normal({}, {})", short_number((lower + upper) / 2.0), short_number((upper - lower) / 4.0))
-            };
-            return problem(format!(
-                "{prior} stops the {} at hard ends, where sampling fails and approximations are poor; \
-                 use a prior without ends such as {instead}",
-                group.name()
-            ));
-        }
-        if group.is_positive() && prior.allows_negative() {
-            return problem(format!(
-                "{prior} allows negative values but {} positive; use exponential, half_normal \
-                 or lognormal",
-                match group {
-                    PriorGroup::Spread => "the spread is",
-                    PriorGroup::Overdispersion => "the overdispersion is",
-                    PriorGroup::Precision => "the precision is",
-                    PriorGroup::Shape => "the shape is",
-                    PriorGroup::Gaps => "the gaps between cut points are",
-                    _ => "pooled spreads are",
-                }
-            ));
-        }
-        if !group.is_positive() && prior.is_positive_only() {
-            return problem(format!(
-                "{prior} allows only positive values but {} can be negative; use normal or student",
-                group.name()
-            ));
-        }
+        check_suits(*group, prior, group.name())?;
     }
     Ok(())
+}
+
+/// A prior suits a parameter of `group`: no hard ends, positive-only for a
+/// positive parameter and not for one that can be negative. `what` names
+/// the group or the parameter in the message.
+fn check_suits(group: PriorGroup, prior: &Prior, what: &str) -> Result<(), ModelError> {
+    let problem = |message: String| Err(ModelError::Prior { group: what.into(), message });
+    if let Prior::Uniform { lower, upper } = prior {
+        // A flat prior with hard ends puts a cliff in the density at each
+        // end: NUTS diverges there and a normal approximation is poor near it.
+        let instead = if group.is_positive() {
+            format!("half_normal({}) or lognormal", short_number(*upper / 2.0))
+        } else {
+            format!("normal({}, {})", short_number((lower + upper) / 2.0), short_number((upper - lower) / 4.0))
+        };
+        return problem(format!(
+            "{prior} stops the {} at hard ends, where sampling fails and approximations are poor; \
+             use a prior without ends such as {instead}",
+            group.name()
+        ));
+    }
+    if group.is_positive() && prior.allows_negative() {
+        return problem(format!(
+            "{prior} allows negative values but {} positive; use {}",
+            match group {
+                PriorGroup::Spread => "the spread is",
+                PriorGroup::Overdispersion => "the overdispersion is",
+                PriorGroup::Precision => "the precision is",
+                PriorGroup::Shape => "the shape is",
+                PriorGroup::Gaps => "the gaps between cut points are",
+                _ => "pooled spreads are",
+            },
+            or_list(POSITIVE_DISTRIBUTIONS)
+        ));
+    }
+    if !group.is_positive() && prior.is_positive_only() {
+        return problem(format!("{prior} allows only positive values but {} can be negative; use normal or student", group.name()));
+    }
+    Ok(())
+}
+
+/// `a, b or c`.
+fn or_list(words: &[&str]) -> String {
+    match words {
+        [] => String::new(),
+        [one] => one.to_string(),
+        [init @ .., last] => format!("{} or {last}", init.join(", ")),
+    }
 }

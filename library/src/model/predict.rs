@@ -21,7 +21,7 @@ use super::family::correlated::{cholesky_of_correlations, lower_times, pair_coun
 use super::family::gaussian::GaussianStats;
 use super::family::ordered::level_probabilities as graded_level_probabilities;
 use super::family::softmax::level_probabilities;
-use super::family::survival::{draw_time, TimeForm, TimeShape};
+use super::family::survival::{self, draw_time, TimeForm, TimeShape};
 use super::family::Family;
 use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
@@ -120,6 +120,42 @@ impl Model {
         let linear = linear.swap_remove(0);
         let mean = linear.iter().map(|&eta| self.family.inverse_link(eta)).collect();
         Ok(Prediction { linear, mean })
+    }
+
+    /// Each new row's linear predictor at constrained `params`, with
+    /// `new_group` as in [`Model::predict_mean_in_new_groups`]: a graded
+    /// outcome's latent score without its logistic error, a time's log mean
+    /// time. Models with one linear predictor only (every family but
+    /// `levels`).
+    pub fn linear_predictor_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Vec<f64>, ModelError> {
+        self.check_length(params)?;
+        if self.family == Family::Levels {
+            return Err(ModelError::Family {
+                message: format!(
+                    "model `{}` has one linear predictor per level of {} after the first, not one score",
+                    self.name, self.outcome
+                ),
+            });
+        }
+        let beta = nalgebra::DVector::from_column_slice(&params[..self.labels.len()]);
+        let mut linear = vec![(&rows.design * beta).iter().copied().collect::<Vec<f64>>()];
+        self.add_departures(params, rows, new_group, &mut linear);
+        Ok(linear.swap_remove(0))
+    }
+
+    /// Each new row's median time (time families): `λ·(ln 2)^(1/k)` with
+    /// the scale λ whose mean is the row's mean time
+    /// ([`survival::median_time`]).
+    pub fn median_time_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Vec<f64>, ModelError> {
+        let Family::Times { form, .. } = &self.family else {
+            return Err(ModelError::Family { message: format!("model `{}` does not model times", self.name) });
+        };
+        let shape = match form {
+            TimeForm::Exponential => TimeShape::exponential(),
+            TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
+        };
+        let linear = self.linear_predictor_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::median_time(eta, shape)).collect())
     }
 
     /// The probability of every outcome level (reference first, in

@@ -107,6 +107,9 @@ pub enum Prior {
     Exponential { rate: f64 },
     HalfNormal { sd: f64 },
     LogNormal { log_mean: f64, log_sd: f64 },
+    /// The law of `1/G` for `G` gamma with shape `shape` and rate `scale`:
+    /// density `scaleᵃ/Γ(a) · x^(−a−1) · e^(−scale/x)` on x > 0.
+    InverseGamma { shape: f64, scale: f64 },
     Uniform { lower: f64, upper: f64 },
 }
 
@@ -131,7 +134,7 @@ impl Prior {
     /// Whether the prior puts all its mass on positive values.
     pub fn is_positive_only(&self) -> bool {
         match self {
-            Prior::Exponential { .. } | Prior::HalfNormal { .. } | Prior::LogNormal { .. } => true,
+            Prior::Exponential { .. } | Prior::HalfNormal { .. } | Prior::LogNormal { .. } | Prior::InverseGamma { .. } => true,
             Prior::Uniform { lower, .. } => *lower >= 0.0,
             Prior::Normal { .. } | Prior::StudentT { .. } => false,
         }
@@ -160,6 +163,7 @@ impl Prior {
                 let (lp, d) = normal_log_density(x.ln(), log_mean, log_sd);
                 (lp - x.ln(), (d - 1.0) / x)
             }
+            Prior::InverseGamma { shape, scale } if x > 0.0 => inverse_gamma_log_density(x, shape, scale),
             Prior::Uniform { lower, upper } if x >= lower && x <= upper => (-(upper - lower).ln(), 0.0),
             _ => (f64::NEG_INFINITY, 0.0),
         }
@@ -174,6 +178,8 @@ impl Prior {
             Prior::Exponential { rate } => 1.0 / rate,
             Prior::HalfNormal { sd } => sd * (2.0 / PI).sqrt(),
             Prior::LogNormal { log_mean, .. } => log_mean.exp(),
+            // the mode, which every inverse-gamma has (its mean needs shape > 1)
+            Prior::InverseGamma { shape, scale } => scale / (shape + 1.0),
             Prior::Uniform { lower, upper } => 0.5 * (lower + upper),
         }
     }
@@ -187,6 +193,9 @@ impl Prior {
             Prior::StudentT { scale, .. } => scale,
             Prior::Exponential { rate } => 1.0 / rate,
             Prior::LogNormal { log_mean, log_sd } => log_mean.exp() * log_sd,
+            // the log of an inverse-gamma draw has sd √ψ′(a) ≈ 1/√a, so a
+            // draw lies about mode/√a from the mode (its sd needs shape > 2)
+            Prior::InverseGamma { shape, scale } => scale / (shape + 1.0) / shape.sqrt(),
             Prior::Uniform { lower, upper } => 0.25 * (upper - lower),
         }
     }
@@ -205,6 +214,7 @@ impl Prior {
                 bad("degrees of freedom and scale must be positive")
             }
             Prior::Exponential { rate } if rate <= 0.0 => bad("the rate must be positive"),
+            Prior::InverseGamma { shape, scale } if shape <= 0.0 || scale <= 0.0 => bad("the shape and the scale must be positive"),
             Prior::Uniform { lower, upper } if lower >= upper => bad("the lower end must be below the upper end"),
             _ => Ok(()),
         }
@@ -222,6 +232,7 @@ impl fmt::Display for Prior {
             Prior::Exponential { rate } => write!(f, "exponential({})", n(rate)),
             Prior::HalfNormal { sd } => write!(f, "half_normal({})", n(sd)),
             Prior::LogNormal { log_mean, log_sd } => write!(f, "lognormal({}, {})", n(log_mean), n(log_sd)),
+            Prior::InverseGamma { shape, scale } => write!(f, "{INVERSE_GAMMA}({}, {})", n(shape), n(scale)),
             Prior::Uniform { lower, upper } => write!(f, "uniform({}, {})", n(lower), n(upper)),
         }
     }
@@ -259,6 +270,14 @@ fn student_t_log_density(x: f64, df: f64, location: f64, scale: f64) -> (f64, f6
     (lp, d)
 }
 
+/// `ln p(x)` and its derivative for the inverse gamma of `shape` a and
+/// `scale` b: `a·ln b − ln Γ(a) − (a + 1)·ln x − b/x`, derivative
+/// `−(a + 1)/x + b/x²`.
+fn inverse_gamma_log_density(x: f64, shape: f64, scale: f64) -> (f64, f64) {
+    let lp = shape * scale.ln() - ln_gamma(shape) - (shape + 1.0) * x.ln() - scale / x;
+    (lp, (scale / x - (shape + 1.0)) / x)
+}
+
 fn parse_numbers(inner: &str, whole: &str) -> Result<Vec<f64>, ModelError> {
     inner
         .split(',')
@@ -273,8 +292,13 @@ fn parse_numbers(inner: &str, whole: &str) -> Result<Vec<f64>, ModelError> {
 
 /// Student's t as a `prior` line writes it: `student(centre, scale, df)`.
 pub const STUDENT: &str = "student";
+/// The inverse gamma as a `prior` line writes it: `inverse_gamma(shape, scale)`.
+pub const INVERSE_GAMMA: &str = "inverse_gamma";
 /// The distributions a `prior` line may name, each written as a call.
-pub const PRIOR_DISTRIBUTIONS: &[&str] = &["normal", STUDENT, "exponential", "half_normal", "lognormal", "uniform"];
+pub const PRIOR_DISTRIBUTIONS: &[&str] =
+    &["normal", STUDENT, "exponential", "half_normal", "lognormal", INVERSE_GAMMA, "uniform"];
+/// The distributions a positive parameter (a spread, a shape, a gap) may take.
+pub const POSITIVE_DISTRIBUTIONS: &[&str] = &["exponential", "half_normal", "lognormal", INVERSE_GAMMA];
 
 fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError> {
     if !PRIOR_DISTRIBUTIONS.contains(&name) {
@@ -286,6 +310,7 @@ fn build_prior(name: &str, args: &[f64], text: &str) -> Result<Prior, ModelError
         ("exponential", [rate]) => Ok(Prior::Exponential { rate: *rate }),
         ("half_normal", [sd]) => Ok(Prior::HalfNormal { sd: *sd }),
         ("lognormal", [m, s]) => Ok(Prior::LogNormal { log_mean: *m, log_sd: *s }),
+        (INVERSE_GAMMA, [shape, scale]) => Ok(Prior::InverseGamma { shape: *shape, scale: *scale }),
         ("uniform", [lower, upper]) => Ok(Prior::Uniform { lower: *lower, upper: *upper }),
         _ => Err(unknown_prior(name, args.len(), text)),
     }
@@ -298,6 +323,7 @@ fn unknown_prior(name: &str, given: usize, text: &str) -> ModelError {
         "exponential" => "1 number (rate)",
         "half_normal" => "1 number (sd)",
         "lognormal" => "2 numbers (mean and sd of the log)",
+        INVERSE_GAMMA => "2 numbers (shape, scale)",
         "uniform" => "2 numbers (lower, upper)",
         _ => {
             return ModelError::syntax(format!(
@@ -314,7 +340,7 @@ impl Prior {
     /// One draw from the prior with `rng` (for prior predictive checks and
     /// simulation-based calibration; seed the generator).
     pub fn sample<R: rand::Rng + ?Sized>(&self, rng: &mut R) -> f64 {
-        use rand_distr::{Distribution, Exp, LogNormal, StandardNormal, StudentT};
+        use rand_distr::{Distribution, Exp, Gamma, LogNormal, StandardNormal, StudentT};
         match *self {
             Prior::Normal { mean, sd } => {
                 let e: f64 = StandardNormal.sample(rng);
@@ -332,6 +358,10 @@ impl Prior {
             Prior::LogNormal { log_mean, log_sd } => {
                 LogNormal::new(log_mean, log_sd).map(|d| d.sample(rng)).unwrap_or(log_mean.exp())
             }
+            // 1/G with G gamma of shape a and rate b (scale 1/b)
+            Prior::InverseGamma { shape, scale } => {
+                Gamma::new(shape, 1.0 / scale).map(|g| 1.0 / g.sample(rng)).unwrap_or(scale / (shape + 1.0))
+            }
             Prior::Uniform { lower, upper } => lower + (upper - lower) * rand::RngExt::random::<f64>(rng),
         }
     }
@@ -347,7 +377,7 @@ mod tests {
     #[test]
     fn every_listed_distribution_parses() {
         for name in PRIOR_DISTRIBUTIONS {
-            let built = ["(1)", "(0, 2)", "(0, 2, 3)"].iter().any(|args| Prior::parse(&format!("{name}{args}")).is_ok());
+            let built = ["(1)", "(0, 2)", "(1, 2)", "(0, 2, 3)"].iter().any(|args| Prior::parse(&format!("{name}{args}")).is_ok());
             assert!(built, "{name} is listed but no argument count parses");
         }
         assert!(Prior::parse("cauchy(0, 1)").is_err());

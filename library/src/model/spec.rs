@@ -29,7 +29,13 @@
 //!   for a category, `normal` otherwise.
 //! * `prior <group>: <distribution>`, group one of intercepts, slopes,
 //!   weights (spline weights), spread, pooled spreads, overdispersion, precision,
-//!   shape.
+//!   shape, gaps.
+//! * `prior for <parameter label>: <distribution>` — one parameter's prior,
+//!   by its label as the estimates table prints it (`girth slope[dwarf]`,
+//!   `block spread`, `grade cut[severe]`); it takes the place of its group's
+//!   prior for that parameter alone. A label may itself hold a colon (a
+//!   category outcome's `form[shrub vs herb]: shade slope`): the
+//!   distribution follows the last one.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
 //! * `parameterise <category> centred | noncentred | centred N` — how a
@@ -51,6 +57,9 @@ pub use super::terms::groups::GroupLayout;
 pub const FAMILY_LINE: &str = "family";
 /// The first word of a prior line.
 pub const PRIOR_LINE: &str = "prior";
+/// The word after `prior` that turns a prior line to one parameter:
+/// `prior for girth slope: normal(0, 1)`.
+pub const PRIOR_FOR: &str = "for";
 /// The first word of a centring line.
 pub const CENTRE_LINE: &str = "centre";
 /// The words that start a body line other than the outcome line.
@@ -171,6 +180,8 @@ pub enum ModelLine {
     Formula(Formula),
     Family(Family),
     Prior { group: PriorGroup, prior: Prior },
+    /// `prior for <label>: <distribution>`, the label's spaces collapsed to one.
+    ParameterPrior { label: String, prior: Prior },
     Centring(bool),
     /// `parameterise <category> centred | noncentred`.
     Parameterise { group: String, layout: GroupLayout },
@@ -178,6 +189,16 @@ pub enum ModelLine {
     CorrelationPrior(f64),
     /// A blank or comment-only line.
     Blank,
+}
+
+/// A prior declared for one parameter by its label (`prior for …`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ParameterPrior {
+    /// The cell line it was declared on (1-based), to place build errors.
+    pub line: usize,
+    /// The label as the estimates table prints it, spaces collapsed.
+    pub label: String,
+    pub prior: Prior,
 }
 
 /// A whole model specification, ready to be built against a table.
@@ -195,6 +216,9 @@ pub struct ModelSpec {
     pub family_declared: bool,
     /// Declared priors; groups not listed get data-scaled defaults.
     pub priors: Vec<(PriorGroup, Prior)>,
+    /// Priors declared for one parameter each, by label (`prior for …`);
+    /// each takes the place of its group's prior for that parameter.
+    pub parameter_priors: Vec<ParameterPrior>,
     /// Whether real predictors are centred at their mean.
     pub centre: bool,
     /// Cell line of the outcome line (1-based), used to place build errors.
@@ -216,6 +240,7 @@ impl ModelSpec {
         let mut formula: Option<(usize, Formula)> = None;
         let mut family: Option<(usize, Family)> = None;
         let mut priors: Vec<(PriorGroup, Prior)> = Vec::new();
+        let mut parameter_priors: Vec<ParameterPrior> = Vec::new();
         let mut centre = true;
         let mut layouts: Vec<(String, GroupLayout)> = Vec::new();
         let mut correlation_prior: Option<(usize, f64)> = None;
@@ -232,6 +257,15 @@ impl ModelSpec {
                         ))));
                     }
                     priors.push((group, prior));
+                }
+                ModelLine::ParameterPrior { label, prior } => {
+                    if let Some(first) = parameter_priors.iter().find(|p| p.label == label) {
+                        return Err(at(ModelError::syntax(format!(
+                            "a prior for `{label}` is already declared on line {}; keep one",
+                            first.line
+                        ))));
+                    }
+                    parameter_priors.push(ParameterPrior { line, label, prior });
                 }
                 ModelLine::CorrelationPrior(eta) => {
                     set_once(&mut correlation_prior, line, eta, "prior for pooled correlations").map_err(at)?;
@@ -261,6 +295,7 @@ impl ModelSpec {
             family_declared: family.is_some(),
             family: family.map(|(_, f)| f).unwrap_or(Family::Normal),
             priors,
+            parameter_priors,
             centre,
             formula_line: Some(formula_line),
             layouts,
@@ -271,6 +306,11 @@ impl ModelSpec {
     /// The declared prior for a group, if any.
     pub fn declared_prior(&self, group: PriorGroup) -> Option<&Prior> {
         self.priors.iter().find(|(g, _)| *g == group).map(|(_, p)| p)
+    }
+
+    /// The prior declared for the parameter `label` itself, if any.
+    pub fn declared_for(&self, label: &str) -> Option<&Prior> {
+        self.parameter_priors.iter().find(|p| p.label == label).map(|p| &p.prior)
     }
 }
 
@@ -301,6 +341,9 @@ pub fn parse_model_line(text: &str) -> Result<ModelLine, ModelError> {
 }
 
 fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
+    if let Some(label) = rest.strip_prefix(PRIOR_FOR).filter(|r| r.starts_with(char::is_whitespace)) {
+        return parse_parameter_prior(label.trim());
+    }
     let (group_word, dist) = rest.split_once(':').ok_or_else(|| {
         ModelError::syntax(format!(
             "`prior {rest}` needs a colon, like `prior slopes: normal(0, 1)`"
@@ -311,11 +354,30 @@ fn parse_prior_line(rest: &str) -> Result<ModelLine, ModelError> {
     }
     let group = PriorGroup::parse(group_word).ok_or_else(|| {
         ModelError::syntax(format!(
-            "`{}` is not a prior group; use intercepts, slopes, weights, spread, pooled spreads, overdispersion or precision",
-            group_word.trim()
+            "`{}` is not a prior group; use {}, `{POOLED_CORRELATIONS}`, or `{PRIOR_LINE} {PRIOR_FOR} <parameter>:` for one \
+             parameter by its label",
+            group_word.trim(),
+            PriorGroup::words().join(", ")
         ))
     })?;
     Ok(ModelLine::Prior { group, prior: Prior::parse(dist)? })
+}
+
+/// `<label>: <distribution>` after `prior for`; the distribution follows
+/// the last colon, since a label may hold one.
+fn parse_parameter_prior(rest: &str) -> Result<ModelLine, ModelError> {
+    let usage = || {
+        ModelError::syntax(format!(
+            "`{PRIOR_LINE} {PRIOR_FOR} {rest}`: write the parameter's label as the estimates table prints it, a colon \
+             and the distribution, like `{PRIOR_LINE} {PRIOR_FOR} girth slope: normal(0, 1)`"
+        ))
+    };
+    let (label, dist) = rest.rsplit_once(':').ok_or_else(usage)?;
+    let label = label.split_whitespace().collect::<Vec<_>>().join(" ");
+    if label.is_empty() {
+        return Err(usage());
+    }
+    Ok(ModelLine::ParameterPrior { label, prior: Prior::parse(dist)? })
 }
 
 /// `lkj(η)`, η a positive finite number.

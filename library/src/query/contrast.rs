@@ -8,7 +8,13 @@
 //! * on the mean (default): the difference of expected outcomes;
 //! * on outcomes: for each draw, one outcome simulated at each setting
 //!   (drawn independently from a seeded stream), so the contrast shows how
-//!   far apart two units' outcomes may lie, not only their means.
+//!   far apart two units' outcomes may lie, not only their means;
+//! * on scores (graded outcomes): the difference of the latent scores, the
+//!   linear predictor the cuts slice into levels, on its log-odds scale;
+//! * on log-times and on medians (exponential and Weibull times): the
+//!   difference of the log mean times — a log ratio, the same for median
+//!   times since the shape is shared — and the difference of median times,
+//!   `λ·(ln 2)^(1/k)`.
 //!
 //! Other predictors are either held at stated values (by default a real
 //! predictor at its table mean and a category at its first level), or the
@@ -44,7 +50,41 @@ pub enum On {
     Means,
     /// The difference of simulated outcomes, seeded.
     Outcomes { seed: u64 },
+    /// A graded outcome's latent score (its linear predictor).
+    Scores,
+    /// A time's log mean time (its linear predictor).
+    LogTimes,
+    /// A time's median.
+    Medians,
 }
+
+impl On {
+    /// The option word after `on`.
+    pub fn word(self) -> &'static str {
+        match self {
+            On::Means => "means",
+            On::Outcomes { .. } => "outcomes",
+            On::Scores => SCORES,
+            On::LogTimes => LOG_TIMES,
+            On::Medians => MEDIANS,
+        }
+    }
+
+    /// Whether the contrast is of a summary computed per draw (every
+    /// scale but simulated outcomes).
+    fn of_draws(self) -> bool {
+        !matches!(self, On::Outcomes { .. })
+    }
+}
+
+/// `on scores`: a graded outcome's latent score.
+pub const SCORES: &str = "scores";
+/// `on log-times`: a time's log mean time.
+pub const LOG_TIMES: &str = "log-times";
+/// `on medians`: a time's median.
+pub const MEDIANS: &str = "medians";
+/// The words after `on` in a contrast.
+pub const SCALES: &[&str] = &["outcomes", "means", SCORES, LOG_TIMES, MEDIANS];
 
 /// `along X from LO to HI [by STEP]`.
 #[derive(Debug, Clone, PartialEq)]
@@ -189,7 +229,8 @@ impl Contrast {
 /// (the table the model was built on). A model of a category outcome has
 /// one contrast per level: ask [`level_contrasts`] for them.
 pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastRequest) -> Result<Contrast, QueryError> {
-    if let Some(levels) = model.outcome_levels() {
+    check_scale(model, request.on)?;
+    if let (Some(levels), false) = (model.outcome_levels(), request.on == On::Scores) {
         return Err(QueryError::request(format!(
             "contrast {}: the outcome {} is a category ({}), whose contrasts compare each level's share one by one",
             model.name(),
@@ -206,10 +247,40 @@ pub fn contrast(model: &Model, draws: &Draws, table: &Table, request: &ContrastR
 /// computed from the same paired draws (on outcomes, the same simulated
 /// levels, so each draw's differences sum to zero across the levels).
 pub fn level_contrasts(model: &Model, draws: &Draws, table: &Table, request: &ContrastRequest) -> Result<Vec<Contrast>, QueryError> {
-    match model.outcome_levels() {
+    check_scale(model, request.on)?;
+    match model.outcome_levels().filter(|_| request.on != On::Scores) {
         Some(levels) => (0..levels.len()).map(|k| contrast_of(model, draws, table, request, Some(k))).collect(),
         None => Ok(vec![contrast_of(model, draws, table, request, None)?]),
     }
+}
+
+/// The scales `on` asks for exist for the model's family: scores for a
+/// graded outcome, log-times and medians for times.
+fn check_scale(model: &Model, on: On) -> Result<(), QueryError> {
+    let fits = match on {
+        On::Means | On::Outcomes { .. } => true,
+        On::Scores => *model.family() == Family::Graded,
+        On::LogTimes | On::Medians => matches!(model.family(), Family::Times { .. }),
+    };
+    if fits {
+        return Ok(());
+    }
+    let theirs = match model.family() {
+        Family::Graded => format!("`on means` (each level's probability), `on outcomes` or `on {SCORES}`"),
+        Family::Times { .. } => format!("`on means`, `on outcomes`, `on {LOG_TIMES}` or `on {MEDIANS}`"),
+        _ => "`on means` or `on outcomes`".to_string(),
+    };
+    let needs = match on {
+        On::Scores => "a graded outcome (`family graded`)",
+        _ => "a time outcome (`family exponential` or `weibull`)",
+    };
+    Err(QueryError::request(format!(
+        "contrast {}: `on {}` needs {needs}; model {} ({} family) takes {theirs}",
+        model.name(),
+        on.word(),
+        model.name(),
+        model.family().name()
+    )))
 }
 
 /// [`contrast`] of the mean, or of the probability of outcome level
@@ -276,7 +347,7 @@ fn contrast_of(
     };
     let new_group_seed = match request.on {
         On::Outcomes { seed } => seed,
-        On::Means => NEW_GROUP_SEED,
+        _ => NEW_GROUP_SEED,
     };
     let new_groups = notes_on_groups(model, request, table, new_group_seed, &mut notes);
     let pairing = Pairing {
@@ -289,19 +360,14 @@ fn contrast_of(
         new_groups: new_groups.then_some(new_group_seed),
         level,
     };
-    let means = match request.on {
-        On::Means => pairing.means(&base)?,
-        On::Outcomes { .. } => Vec::new(),
-    };
-    let values = match request.on {
-        On::Means => means.iter().map(|(a, b)| a - b).collect(),
-        On::Outcomes { .. } => pairing.draws(&base)?,
-    };
+    let means = if request.on.of_draws() { pairing.means(&base)? } else { Vec::new() };
+    let values = if request.on.of_draws() { means.iter().map(|(a, b)| a - b).collect() } else { pairing.draws(&base)? };
     let summary = ContrastSummary::of(&values, request.mass)?;
     let grid = match &request.along {
         Some(g) => grid_points(&pairing, &base, g, &predictors, &place, request.mass)?,
         None => Vec::new(),
     };
+    notes.extend(scale_notes(model, request.on, request.over_rows));
     if let On::Outcomes { .. } = request.on {
         notes.push(if request.over_rows {
             "each draw compares two outcomes simulated for one row picked at random from the table".into()
@@ -313,7 +379,7 @@ fn contrast_of(
         Some(l) => level_scale_words(model.outcome_name(), l, request.on),
         None => scale_words(model, request.on, request.over_rows),
     };
-    let probability = level.is_some() || is_probability(model, request.on);
+    let unitless = level.is_some() || without_outcome_unit(model, request.on);
     let compared = format!("{} {} vs {}", request.variable, to.text(), from.text());
     Ok(Contrast {
         contrast: match &level_name {
@@ -325,13 +391,10 @@ fn contrast_of(
         variable: request.variable.clone(),
         to: to.text(),
         from: from.text(),
-        on: match request.on {
-            On::Means => "means".into(),
-            On::Outcomes { .. } => "outcomes".into(),
-        },
+        on: request.on.word().into(),
         scale,
-        in_outcome_unit: !probability,
-        unit: if probability {
+        in_outcome_unit: !unitless,
+        unit: if unitless {
             None
         } else {
             table.column(model.outcome_name()).and_then(|c| c.unit.clone())
@@ -349,8 +412,8 @@ fn contrast_of(
         along: request.along.as_ref().map(|g| g.variable.clone()),
         grid,
         seed: match request.on {
-            On::Means => None,
             On::Outcomes { seed } => Some(seed),
+            _ => None,
         },
         notes,
         draws: values,
@@ -535,6 +598,12 @@ fn held_row(
 /// probability, its outcome a count out of a number of trials.
 pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
     let y = model.outcome_name();
+    match on {
+        On::Scores => return format!("latent score of {y} (log-odds scale of the cumulative logit)"),
+        On::LogTimes => return format!("log of the mean {y} (the change is the log of the ratio of mean times)"),
+        On::Medians => return format!("median {y}"),
+        On::Means | On::Outcomes { .. } => {}
+    }
     let means = matches!(on, On::Means);
     match (model.family(), means) {
         (Family::Binomial { trials }, true) => format!("per-trial probability of {y} (a share of {trials})"),
@@ -554,15 +623,43 @@ pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
 /// The scale of a contrast of one level's share of a category outcome.
 fn level_scale_words(y: &str, level: &str, on: On) -> String {
     match on {
-        On::Means => format!("probability that {y} is {level}"),
         On::Outcomes { .. } => format!("simulated {y} being {level}, as 1 (yes) or 0 (no)"),
+        _ => format!("probability that {y} is {level}"),
     }
 }
 
-/// Whether the contrast is on a probability scale rather than in the
-/// outcome's unit.
-fn is_probability(model: &Model, on: On) -> bool {
-    matches!(on, On::Means) && matches!(model.family(), Family::Binomial { .. } | Family::Bernoulli | Family::Beta)
+/// What a reader must know of the scales of scores, log-times and medians.
+fn scale_notes(model: &Model, on: On, over_rows: bool) -> Vec<String> {
+    let y = model.outcome_name();
+    let averaged = if over_rows { ", averaged over the rows" } else { "" };
+    match on {
+        On::Scores => vec![format!(
+            "on the latent score of {y}: each draw's change in the linear predictor{averaged}, on the log-odds \
+             scale of the cumulative logit, where a change of d moves the odds of {y} above any cut by a factor e^d; \
+             it has no unit and is the same at every level, unlike the change in each level's probability (`on means`)"
+        )],
+        On::LogTimes => vec![format!(
+            "on the log scale of {y}: each draw's change in the log of the mean time{averaged}; e raised to it is the \
+             ratio of the mean times at the two settings, and of the median times too, since both settings share \
+             one shape"
+        )],
+        On::Medians => vec![format!(
+            "on the median {y}: each draw's change in the median time{averaged} (a Weibull time's median is \
+             scale·(ln 2)^(1/shape), an exponential time's mean·ln 2); over rows it is the average of each row's \
+             median, not the median of all rows together"
+        )],
+        On::Means | On::Outcomes { .. } => Vec::new(),
+    }
+}
+
+/// Whether the contrast is on a probability scale (or on another scale
+/// without the outcome's unit) rather than in the outcome's unit.
+fn without_outcome_unit(model: &Model, on: On) -> bool {
+    match on {
+        On::Scores | On::LogTimes => true,
+        On::Medians | On::Outcomes { .. } => false,
+        On::Means => matches!(model.family(), Family::Binomial { .. } | Family::Bernoulli | Family::Beta),
+    }
 }
 
 /// The trials column of a binomial model.
@@ -685,9 +782,17 @@ impl Pairing<'_> {
             .enumerate()
             .map(|(d, theta)| {
                 let new = self.new_group(theta, d);
-                let (a, b) = match self.level {
-                    Some(k) => (self.level_share(theta, &rows_to, k, &new)?, self.level_share(theta, &rows_from, k, &new)?),
-                    None => {
+                let (a, b) = match (self.level, self.on) {
+                    (Some(k), _) => (self.level_share(theta, &rows_to, k, &new)?, self.level_share(theta, &rows_from, k, &new)?),
+                    (None, On::Scores | On::LogTimes) => (
+                        self.model.linear_predictor_in_new_groups(theta, &rows_to, &new)?,
+                        self.model.linear_predictor_in_new_groups(theta, &rows_from, &new)?,
+                    ),
+                    (None, On::Medians) => (
+                        self.model.median_time_in_new_groups(theta, &rows_to, &new)?,
+                        self.model.median_time_in_new_groups(theta, &rows_from, &new)?,
+                    ),
+                    (None, _) => {
                         let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
                         let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
                         (a, b)

@@ -48,9 +48,20 @@
 //! mechanism may name each category in at most one `departure(c, …)` and
 //! each pair of category and slope in at most one `departure(c, …, x)`.
 //!
+//! A time mechanism may end with a follow-up rule,
+//! `followed until END cut short by COLUMN`: each row is followed until END
+//! (an expression of numbers and parents, or `uniform(LO, HI)` for an end
+//! drawn per row between two such expressions), and a row whose time comes
+//! later is written with its follow-up end as its time and yes in COLUMN, a
+//! column of the table that is not a node — what a time model's
+//! `cut short by COLUMN` reads. The rule is how the rows are observed, not
+//! part of the world: other nodes read the times before the cut.
+//!
 //! Parsing knows nothing of the graph; [`super::simulate`] checks the names.
 
 use std::fmt;
+
+use crate::model::family::survival::CUT_SHORT_BY;
 
 /// The distributions of a mechanism, each written as a call.
 pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, LEVELS, EXPONENTIAL, WEIBULL];
@@ -66,6 +77,10 @@ pub const GRADED: &str = "graded";
 /// A category drawn by softmax from each level's log odds against the
 /// first: `levels(herb, shrub = 0.4 + departure(site, 0.8), tree = -0.2)`.
 pub const LEVELS: &str = "levels";
+/// The words before a time mechanism's follow-up end.
+pub const FOLLOWED_UNTIL: [&str; 2] = ["followed", "until"];
+/// A follow-up end drawn per row, uniformly between two values.
+pub const UNIFORM: &str = "uniform";
 /// The keyword of a bernoulli mechanism given on the logit scale.
 pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
@@ -246,8 +261,35 @@ pub enum Mechanism {
     /// precision `precision`.
     Beta { mean: Expr, logit: bool, precision: Expr },
     /// A positive time with mean `mean` (or its log when `log` is true):
-    /// exponential without a `shape`, Weibull with one.
-    Time { mean: Expr, log: bool, shape: Option<Expr> },
+    /// exponential without a `shape`, Weibull with one; with a follow-up
+    /// rule, rows observed past their end are cut short.
+    Time { mean: Expr, log: bool, shape: Option<Expr>, follow_up: Option<FollowUp> },
+}
+
+/// `followed until END cut short by COLUMN` after a time mechanism.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FollowUp {
+    pub end: FollowUpEnd,
+    /// The yes/no column written beside the time: yes where the row was cut short.
+    pub column: String,
+}
+
+/// The end of a row's follow-up.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FollowUpEnd {
+    /// The same expression for every row (a number, or of the parents).
+    At(Expr),
+    /// Drawn per row uniformly between the two expressions.
+    Uniform(Expr, Expr),
+}
+
+impl FollowUpEnd {
+    fn exprs(&self) -> Vec<&Expr> {
+        match self {
+            FollowUpEnd::At(e) => vec![e],
+            FollowUpEnd::Uniform(a, b) => vec![a, b],
+        }
+    }
 }
 
 /// The latent score of a graded category: `score` plus a standard
@@ -272,7 +314,12 @@ impl Mechanism {
                 rate.departures().into_iter().chain(overdispersion.iter().flat_map(Expr::departures)).collect()
             }
             Mechanism::Beta { mean, precision, .. } => mean.departures().into_iter().chain(precision.departures()).collect(),
-            Mechanism::Time { mean, shape, .. } => mean.departures().into_iter().chain(shape.iter().flat_map(Expr::departures)).collect(),
+            Mechanism::Time { mean, shape, follow_up, .. } => mean
+                .departures()
+                .into_iter()
+                .chain(shape.iter().flat_map(Expr::departures))
+                .chain(follow_up.iter().flat_map(|f| f.end.exprs()).flat_map(Expr::departures))
+                .collect(),
         }
     }
 
@@ -315,7 +362,20 @@ impl Mechanism {
                 rate.uses().into_iter().chain(overdispersion.iter().flat_map(Expr::uses)).collect()
             }
             Mechanism::Beta { mean, precision, .. } => mean.uses().into_iter().chain(precision.uses()).collect(),
-            Mechanism::Time { mean, shape, .. } => mean.uses().into_iter().chain(shape.iter().flat_map(Expr::uses)).collect(),
+            Mechanism::Time { mean, shape, follow_up, .. } => mean
+                .uses()
+                .into_iter()
+                .chain(shape.iter().flat_map(Expr::uses))
+                .chain(follow_up.iter().flat_map(|f| f.end.exprs()).flat_map(Expr::uses))
+                .collect(),
+        }
+    }
+
+    /// The follow-up rule of a time mechanism, if it has one.
+    pub fn follow_up(&self) -> Option<&FollowUp> {
+        match self {
+            Mechanism::Time { follow_up, .. } => follow_up.as_ref(),
+            _ => None,
         }
     }
 }
@@ -341,9 +401,43 @@ impl fmt::Display for Mechanism {
 /// A time mechanism from its mean argument (`log = η` or the mean) and shape.
 fn time_mechanism(mean: &str, shape: Option<Expr>) -> Result<Mechanism, String> {
     Ok(match keyword_argument(mean, LOG) {
-        Some(eta) => Mechanism::Time { mean: parse_expr(eta)?, log: true, shape },
-        None => Mechanism::Time { mean: parse_expr(mean)?, log: false, shape },
+        Some(eta) => Mechanism::Time { mean: parse_expr(eta)?, log: true, shape, follow_up: None },
+        None => Mechanism::Time { mean: parse_expr(mean)?, log: false, shape, follow_up: None },
     })
+}
+
+/// Split `dist(…) followed until END cut short by COLUMN` into the
+/// distribution and its follow-up rule, read.
+fn split_follow_up<'a>(name: &str, rest: &'a str) -> Result<(&'a str, Option<FollowUp>), String> {
+    let marker = format!(" {} ", FOLLOWED_UNTIL.join(" "));
+    let Some(at) = rest.find(&marker) else { return Ok((rest, None)) };
+    let usage = || {
+        format!(
+            "the follow-up rule of {name} reads `{} END {} COLUMN`, END a number, an expression of the parents or \
+             `{UNIFORM}(LO, HI)` for an end drawn per row, COLUMN a new yes/no column (such as `{} 30 {} unsprouted`)",
+            FOLLOWED_UNTIL.join(" "),
+            CUT_SHORT_BY.join(" "),
+            FOLLOWED_UNTIL.join(" "),
+            CUT_SHORT_BY.join(" ")
+        )
+    };
+    let rule = &rest[at + marker.len()..];
+    let cut = format!(" {} ", CUT_SHORT_BY.join(" "));
+    let (end, column) = rule.rsplit_once(&cut).ok_or_else(usage)?;
+    let column = column.trim();
+    if !is_name(column) {
+        return Err(usage());
+    }
+    let end = end.trim();
+    let end = match end.strip_prefix(UNIFORM).map(str::trim_start).filter(|e| e.starts_with('(') && e.ends_with(')')) {
+        Some(call) => match split_top_level(&call[1..call.len() - 1]).as_slice() {
+            [lo, hi] => FollowUpEnd::Uniform(parse_expr(lo)?, parse_expr(hi)?),
+            _ => return Err(usage()),
+        },
+        None if end.is_empty() => return Err(usage()),
+        None => FollowUpEnd::At(parse_expr(end)?),
+    };
+    Ok((rest[..at].trim_end(), Some(FollowUp { end, column: column.to_string() })))
 }
 
 /// Read one body line: `None` for a blank or comment line, else the node
@@ -360,7 +454,7 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
     if !is_name(name) {
         return Err(format!("`{name}` is not a node name; names are letters, digits and `_`, starting with a letter"));
     }
-    let rest = rest.trim();
+    let (rest, follow_up) = split_follow_up(name, rest.trim())?;
     let open = rest.find('(').filter(|_| rest.ends_with(')')).ok_or_else(|| {
         format!("the mechanism of {name} must be a distribution such as normal(mean, sd), not `{rest}`")
     })?;
@@ -431,6 +525,16 @@ pub fn parse_mechanism_line(text: &str) -> Result<Option<(String, Mechanism)>, S
                 DISTRIBUTIONS[DISTRIBUTIONS.len() - 1]
             ))
         }
+    };
+    let mechanism = match (mechanism, follow_up) {
+        (Mechanism::Time { mean, log, shape, .. }, Some(rule)) => Mechanism::Time { mean, log, shape, follow_up: Some(rule) },
+        (other, Some(_)) => {
+            return Err(format!(
+                "only a time ({EXPONENTIAL} or {WEIBULL}) has a follow-up rule; {name} is {other}, so leave out `{} …`",
+                FOLLOWED_UNTIL.join(" ")
+            ))
+        }
+        (mechanism, None) => mechanism,
     };
     let terms = mechanism.departures();
     let same = |a: &DepartureTerm, b: &DepartureTerm| a.key() == b.key() && a.slope == b.slope;

@@ -28,7 +28,7 @@ use crate::model::{Family, Model, ModelSpec};
 
 use super::error::QueryError;
 use super::mechanism::{stated_correlation, Mechanism};
-use super::simulate::{GroupDraw, Simulation};
+use super::simulate::{Generated, GroupDraw, Simulation};
 use super::support::{interval_words, ContrastSummary};
 
 /// Largest residual, relative to the spread of the truth, that still counts
@@ -89,6 +89,7 @@ pub fn recover_fitted(
     let fit = fit_model(&model, method, cancel, progress)
         .map_err(|e| QueryError::Fit { what: format!("model {} on {}", spec.name, simulation.name), message: e.to_string() })?;
     let mut notes = fit.warnings.clone();
+    notes.extend(follow_up_notes(&model, simulation, &generated));
     let truths = true_parameters(&model, simulation, &generated, &mut notes);
     let parameters = model
         .parameter_names()
@@ -117,6 +118,27 @@ pub fn recover_fitted(
         notes,
     };
     Ok((recovery, model, fit))
+}
+
+/// What the outcome's follow-up rule did to the rows, and whether the
+/// model reads the column it wrote: a time model without `cut short by`
+/// takes every follow-up end for an event, which pulls its times down.
+fn follow_up_notes(model: &Model, simulation: &Simulation, generated: &Generated) -> Vec<String> {
+    let Some(cut) = simulation.cut_short(generated).into_iter().find(|c| c.node == model.outcome_name()) else { return Vec::new() };
+    let read = matches!(model.family(), Family::Times { cut_short: Some(c), .. } if *c == cut.column);
+    let mut notes = vec![format!(
+        "{} of {} rows of {} were cut short by the simulation's follow-up rule (column {})",
+        cut.rows, cut.of, cut.node, cut.column
+    )];
+    if !read && cut.rows > 0 {
+        notes.push(format!(
+            "warning: model {} does not read {col}, so it takes each follow-up end for an event and its times come out \
+             too short; add `cut short by {col}` to its family line",
+            model.name(),
+            col = cut.column
+        ));
+    }
+    notes
 }
 
 /// The true cuts of a graded model above its first (fixed at 0): the

@@ -14,6 +14,12 @@
 //! node's own stream, before its rows; they are kept with the generated
 //! values ([`GroupDraw`]) so that `recover` can set them beside a pooled
 //! model's departures, and an intervention elsewhere leaves them as they were.
+//!
+//! A time's follow-up rule (`followed until END cut short by COLUMN`) draws
+//! each row's follow-up end from a stream of its own after the node's
+//! times, and keeps it beside them ([`Generated::follow_up_ends`]); the
+//! times stay whole for the nodes that read them and for true effects, and
+//! only the observed table cuts them and writes COLUMN beside the time.
 
 use std::sync::atomic::AtomicBool;
 
@@ -28,7 +34,7 @@ use crate::model::family::survival::{draw_time, TimeShape};
 use crate::table::{Column, ColumnData, Table};
 
 use super::error::QueryError;
-use super::mechanism::{parse_mechanism_line, DepartureTerm, Mechanism, Use};
+use super::mechanism::{parse_mechanism_line, DepartureTerm, FollowUpEnd, Mechanism, Use};
 use super::support::{short, stream_seed};
 use crate::model::terms::groups::nested_level;
 
@@ -167,6 +173,18 @@ pub(crate) struct Generated {
     pub(crate) values: Vec<NodeValues>,
     /// Per node, the departures its mechanism drew.
     pub(crate) departures: Vec<Vec<GroupDraw>>,
+    /// Per node, each row's follow-up end under its follow-up rule (`None`
+    /// for a node without one).
+    pub(crate) follow_up_ends: Vec<Option<Vec<f64>>>,
+}
+
+/// How many rows of a time node the follow-up rule cut short.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CutShort {
+    pub node: String,
+    pub column: String,
+    pub rows: usize,
+    pub of: usize,
 }
 
 /// A value an intervention sets a node to.
@@ -211,8 +229,11 @@ impl Simulation {
         for m in &nodes {
             check_uses(graph, &nodes, m)?;
         }
-        // Generated values and the table made of them: two copies of every node's rows.
-        let bytes = bytes_for(&[settings.rows, nodes.len().max(1), 2]);
+        check_follow_up_columns(graph, &nodes)?;
+        // Generated values and the table made of them: two copies of every
+        // node's rows, and of each follow-up rule's ends and column.
+        let rules = nodes.iter().filter(|m| m.mechanism.follow_up().is_some()).count();
+        let bytes = bytes_for(&[settings.rows, nodes.len().max(1) + rules, 2]);
         check_memory(&format!("simulate {name}: {} rows of {} nodes", settings.rows, nodes.len()), bytes).map_err(QueryError::request)?;
         Ok(Simulation { name: name.to_string(), graph: graph.clone(), settings, nodes })
     }
@@ -235,6 +256,15 @@ impl Simulation {
         let mut columns = Vec::new();
         for node in self.graph.nodes().iter().filter(|n| !n.hidden) {
             let Some(k) = self.nodes.iter().position(|m| m.node == node.name) else { continue };
+            if let (Some(rule), Some(ends), NodeValues::Real(times)) =
+                (self.nodes[k].mechanism.follow_up(), &generated.follow_up_ends[k], &generated.values[k])
+            {
+                let cut: Vec<bool> = times.iter().zip(ends).map(|(t, e)| t > e).collect();
+                let seen = times.iter().zip(ends).map(|(t, e)| t.min(*e)).collect();
+                columns.push(Column::new(node.name.clone(), ColumnData::Real(seen)));
+                columns.push(Column::new(rule.column.clone(), ColumnData::Binary(cut)));
+                continue;
+            }
             let data = match (&generated.values[k], &self.nodes[k].mechanism) {
                 (NodeValues::Category(codes), Mechanism::Category { levels, .. }) => {
                     ColumnData::Category { codes: codes.clone(), levels: levels.clone() }
@@ -247,6 +277,20 @@ impl Simulation {
             columns.push(Column::new(node.name.clone(), data));
         }
         Ok(Table::from_columns(self.name.clone(), columns)?)
+    }
+
+    /// Per time node with a follow-up rule, how many of the generated rows
+    /// the rule cut short.
+    pub(crate) fn cut_short(&self, generated: &Generated) -> Vec<CutShort> {
+        self.nodes
+            .iter()
+            .zip(generated.values.iter().zip(&generated.follow_up_ends))
+            .filter_map(|(m, (values, ends))| {
+                let (rule, ends, NodeValues::Real(times)) = (m.mechanism.follow_up()?, ends.as_ref()?, values) else { return None };
+                let rows = times.iter().zip(ends).filter(|(t, e)| t > e).count();
+                Some(CutShort { node: m.node.clone(), column: rule.column.clone(), rows, of: times.len() })
+            })
+            .collect()
     }
 
     /// Generate `rows` rows with `seed`, and the full set of node values
@@ -298,6 +342,16 @@ impl Simulation {
         Ok(found)
     }
 
+    /// Every observed time node with a follow-up rule: the node and the
+    /// column its rule writes.
+    pub fn follow_up_columns(&self) -> Vec<(String, String)> {
+        self.nodes
+            .iter()
+            .filter_map(|m| m.mechanism.follow_up().map(|rule| (m.node.clone(), rule.column.clone())))
+            .filter(|(node, _)| !self.graph.is_hidden(node).unwrap_or(true))
+            .collect()
+    }
+
     /// The node's mechanism, if it has one.
     pub fn mechanism(&self, node: &str) -> Option<&Mechanism> {
         self.nodes.iter().find(|m| m.node == node).map(|m| &m.mechanism)
@@ -341,7 +395,7 @@ impl Simulation {
                 let eta = |i: usize| if *logit { eval(mean, i) } else { let q = eval(mean, i); (q / (1.0 - q)).ln() };
                 Some(((0..n).map(eta).collect(), phi))
             }
-            Mechanism::Time { mean, log, shape } => {
+            Mechanism::Time { mean, log, shape, .. } => {
                 // A Weibull node's second truth is its shape, when it is one number.
                 let k = shape.as_ref().and_then(|k| k.uses().is_empty().then(|| eval(k, 0)));
                 Some(((0..n).map(|i| if *log { eval(mean, i) } else { eval(mean, i).ln() }).collect(), k))
@@ -460,7 +514,9 @@ impl Simulation {
 
     /// Generate `rows` rows, optionally with node `forced.0` set to a value.
     fn generate(&self, rows: usize, seed: u64, forced: Option<(usize, Forced)>, cancel: &AtomicBool) -> Result<Generated, QueryError> {
-        let mut generated = Generated { values: Vec::with_capacity(self.nodes.len()), departures: Vec::with_capacity(self.nodes.len()) };
+        let n = self.nodes.len();
+        let mut generated =
+            Generated { values: Vec::with_capacity(n), departures: Vec::with_capacity(n), follow_up_ends: Vec::with_capacity(n) };
         for (k, m) in self.nodes.iter().enumerate() {
             QueryError::stop_if(cancel, &format!("simulate {}", self.name))?;
             let own = self.draw_departures(k, seed);
@@ -468,10 +524,74 @@ impl Simulation {
                 Some((f, value)) if *f == k => forced_values(&m.mechanism, value, rows),
                 _ => self.draw_node(k, rows, seed, &generated, &own, cancel)?,
             };
+            let ends = match m.mechanism.follow_up() {
+                Some(rule) => Some(self.follow_up_ends(k, &rule.end, rows, seed, &generated, &own, cancel)?),
+                None => None,
+            };
             generated.values.push(values);
             generated.departures.push(own);
+            generated.follow_up_ends.push(ends);
         }
         Ok(generated)
+    }
+
+    /// Each row's follow-up end for node `k`'s rule, from a stream of its
+    /// own (so the rule leaves the node's times as they were drawn); an
+    /// end must be positive and finite.
+    #[allow(clippy::too_many_arguments)]
+    fn follow_up_ends(
+        &self,
+        k: usize,
+        end: &FollowUpEnd,
+        rows: usize,
+        seed: u64,
+        so_far: &Generated,
+        own: &[GroupDraw],
+        cancel: &AtomicBool,
+    ) -> Result<Vec<f64>, QueryError> {
+        let m = &self.nodes[k];
+        let mut rng = StdRng::seed_from_u64(stream_seed(seed, k as u64, 1));
+        let what = format!("simulate {}", self.name);
+        let mut out = Vec::with_capacity(rows);
+        for i in 0..rows {
+            if i % CANCEL_EVERY == 0 {
+                QueryError::stop_if(cancel, &what)?;
+            }
+            let eval = |e: &super::mechanism::Expr| self.eval_at(e, so_far, own, i);
+            let value = match end {
+                FollowUpEnd::At(e) => eval(e),
+                FollowUpEnd::Uniform(lo, hi) => {
+                    let (lo, hi) = (eval(lo), eval(hi));
+                    if !(lo <= hi) {
+                        return Err(QueryError::Mechanism {
+                            line: m.line,
+                            message: format!(
+                                "in simulated row {}, the follow-up end of {} is drawn between {} and {}, but the first must not exceed the second",
+                                i + 1,
+                                m.node,
+                                short(lo),
+                                short(hi)
+                            ),
+                        });
+                    }
+                    lo + (hi - lo) * rng.random::<f64>()
+                }
+            };
+            // Written so that a NaN end is refused too.
+            if !(value.is_finite() && value > 0.0) {
+                return Err(QueryError::Mechanism {
+                    line: m.line,
+                    message: format!(
+                        "in simulated row {}, the follow-up end of {} is {}, but it must be a positive time; change the rule",
+                        i + 1,
+                        m.node,
+                        short(value)
+                    ),
+                });
+            }
+            out.push(value);
+        }
+        Ok(out)
     }
 
     /// The departures of node `k`'s mechanism: for its `g`-th
@@ -632,7 +752,7 @@ impl Simulation {
                 }
                 NodeValues::Real(out)
             }
-            Mechanism::Time { mean, log, shape } => {
+            Mechanism::Time { mean, log, shape, .. } => {
                 let mut out = Vec::with_capacity(rows);
                 for i in 0..rows {
                     stop(i)?;
@@ -664,6 +784,30 @@ fn forced_values(mechanism: &Mechanism, value: &Forced, rows: usize) -> NodeValu
         (Mechanism::Bernoulli { .. }, Forced::Number(x)) => NodeValues::Binary(vec![*x > 0.5; rows]),
         (_, Forced::Number(x)) => NodeValues::Real(vec![*x; rows]),
     }
+}
+
+/// A follow-up rule's column is new: not a node of the graph, and named by
+/// one rule only.
+fn check_follow_up_columns(graph: &Graph, nodes: &[NodeMechanism]) -> Result<(), QueryError> {
+    for (i, m) in nodes.iter().enumerate() {
+        let Some(rule) = m.mechanism.follow_up() else { continue };
+        let at = |message: String| QueryError::Mechanism { line: m.line, message };
+        if graph.nodes().iter().any(|n| n.name == rule.column) {
+            return Err(at(format!(
+                "the follow-up rule of {} writes its cut-short column as {c}, but {c} is a node of graph {}; name a new column",
+                m.node,
+                graph.name(),
+                c = rule.column
+            )));
+        }
+        if let Some(other) = nodes[..i].iter().find(|o| o.mechanism.follow_up().is_some_and(|r| r.column == rule.column)) {
+            return Err(at(format!(
+                "the follow-up rule of {} writes column {}, which the rule of {} on line {} writes already; name another",
+                m.node, rule.column, other.node, other.line
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// A mechanism may read only its node's parents: numeric parents by name,

@@ -8,16 +8,18 @@
 //! to keep in step. Names (columns, levels, nodes) are not known here:
 //! [`Next::values`] says where one fits.
 
-use super::grammar::{tokens, Next};
+use super::grammar::{tokens, Names, Next, Wanted};
 use crate::model::family::survival::{TimeForm, CUT_SHORT_BY};
 use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{
     GroupLayout, CENTRE_LINE, CENTRINGS, FAMILY_LINE, FROM, KNOTS, LINE_WORDS, LKJ, PARAMETERISE_LINE, PER, POOLED,
-    POOLED_CORRELATIONS, POOLED_WITH, POOLED_WITHIN, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
+    POOLED_CORRELATIONS, POOLED_WITH, POOLED_WITHIN, PRIOR_FOR, PRIOR_LINE, SPLINE, TERM_CALLS, USING,
 };
 use crate::model::PriorGroup;
-use crate::query::mechanism::{BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, FUNCTIONS, LOG, LOGIT, POISSON};
+use crate::query::mechanism::{
+    BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, EXPONENTIAL, FOLLOWED_UNTIL, FUNCTIONS, LOG, LOGIT, POISSON, UNIFORM, WEIBULL,
+};
 use crate::graph::{ARROW, HIDDEN};
 use crate::table::condition::{Comparison, AND, NOT, OR};
 use crate::table::rules::{CATEGORY, DISK, DROP, IN, KEEP, KINDS, MISSING, ON, STAY, WHERE};
@@ -86,8 +88,12 @@ fn model_line(typed: &str) -> Next {
         }
         [PRIOR_LINE] => {
             let mut words = PriorGroup::words();
-            words.push(POOLED_CORRELATIONS);
+            words.extend([POOLED_CORRELATIONS, PRIOR_FOR]);
             next(&words, &[], false)
+        }
+        [PRIOR_LINE, PRIOR_FOR, .., ":"] => next(&[], PRIOR_DISTRIBUTIONS, false),
+        [PRIOR_LINE, PRIOR_FOR, ..] => {
+            Next { words: Vec::new(), calls: Vec::new(), values: true, names: vec![Wanted { names: Names::Parameter, of: Vec::new() }] }
         }
         [PRIOR_LINE, pooled, correlations, ":"] if format!("{pooled} {correlations}") == POOLED_CORRELATIONS => {
             next(&[], &[LKJ], false)
@@ -230,6 +236,25 @@ fn mechanism_line(typed: &str) -> Next {
         [] => next(&[], &[], true),
         [_] => next(&["="], &[], false),
         [_, "="] => next(&[], DISTRIBUTIONS, false),
+        [_, "=", dist, ..] if [EXPONENTIAL, WEIBULL].iter().any(|t| dist.starts_with(&format!("{t}("))) => follow_up_next(typed, &words),
         _ => Next::default(),
+    }
+}
+
+/// After a time mechanism's closing bracket: `followed until END cut short
+/// by COLUMN`, END a value or `uniform(LO, HI)`.
+fn follow_up_next(typed: &str, words: &[&str]) -> Next {
+    let [followed, until] = FOLLOWED_UNTIL;
+    let Some(at) = words.iter().position(|w| *w == followed) else {
+        return if typed.trim_end().ends_with(')') { next(&[followed], &[], false) } else { Next::default() };
+    };
+    let rule = &words[at + 1..];
+    match rule {
+        [] => next(&[until], &[], false),
+        [w] if *w == until => next(&[], &[UNIFORM], true),
+        [_, .., c, s, b] if [*c, *s, *b] == CUT_SHORT_BY => next(&[], &[], true),
+        [_, .., c, s] if [*c, *s] == CUT_SHORT_BY[..2] => next(&[CUT_SHORT_BY[2]], &[], false),
+        [_, .., c] if *c == CUT_SHORT_BY[0] => next(&[CUT_SHORT_BY[1]], &[], false),
+        _ => next(&[CUT_SHORT_BY[0]], &[], false),
     }
 }

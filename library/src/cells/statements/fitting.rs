@@ -157,6 +157,7 @@ fn priors_grid(model: &Model) -> Grid {
             PriorGroup::Spread | PriorGroup::Overdispersion | PriorGroup::Precision | PriorGroup::Shape | PriorGroup::Gaps
         );
         let source = match (p.declared, p.at_average_row, own) {
+            (true, _, _) if p.for_parameter => "declared in the cell for this parameter",
             (true, _, _) => "declared in the cell",
             (false, true, _) => "Waypath default (shared budget), on the average row",
             (false, false, true) => "Waypath default (family parameter)",

@@ -46,6 +46,11 @@ pub enum Names {
     /// A level of the column or node named just before (in a `b vs a`
     /// pair, the last column or node named).
     Level,
+    /// A parameter label of the model a `model` block declares (`prior for
+    /// …`), known once that model has been built in the session; a label
+    /// holds spaces and brackets, so the kernel offers the rest of each
+    /// label after the part already typed.
+    Parameter,
 }
 
 /// A kind of name wanted at the cursor, with the names typed earlier in
@@ -307,7 +312,7 @@ pub const SAVE: Form = Form {
     usage: "save figure to \"FILE.svg\"",
 };
 const CONTRAST_OPTIONS: &[&[Slot]] = &[
-    &[Word("on"), Choice(&["outcomes", "means"])],
+    &[Word("on"), Choice(crate::query::contrast::SCALES)],
     SEED,
     &[Word("at"), Name(Col), Name(Lv)],
     &[Word("along"), Name(Col), Word("from"), Value, Word("to"), Value],
@@ -316,7 +321,7 @@ const CONTRAST_OPTIONS: &[&[Slot]] = &[
     INTERVALS_OPTION,
 ];
 const CONTRAST_USAGE: &str =
-    "contrast MODEL: X b vs a [on outcomes] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows] [intervals P%]";
+    "contrast MODEL: X b vs a [on outcomes|scores|log-times|medians] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows] [intervals P%]";
 /// `contrast MODEL: X [options]` (one step of X).
 pub const CONTRAST: Form = Form {
     slots: &[Word("contrast"), Name(Md), Word(":"), Name(Col)],

@@ -27,6 +27,7 @@ use crate::graph::EffectKind;
 use crate::infer::fit::Method;
 use crate::infer::nuts::Progress;
 use crate::model::ModelSpec;
+use crate::query::contrast::{LOG_TIMES, MEDIANS, SCORES};
 use crate::plot::DensityArrangement;
 use crate::query::{
     answer_effect_with_progress, build_joint, AskOptions, check_implications, fit_joint_with_progress, intervene, Contrast,
@@ -262,6 +263,14 @@ fn read_contrast_options(request: &mut ContrastRequest, text: &str) -> Result<()
                 t
             }
             ("on", ["means", t @ ..]) => t,
+            ("on", [scale, t @ ..]) if [SCORES, LOG_TIMES, MEDIANS].contains(scale) => {
+                request.on = match *scale {
+                    SCORES => On::Scores,
+                    LOG_TIMES => On::LogTimes,
+                    _ => On::Medians,
+                };
+                t
+            }
             ("over", ["rows", t @ ..]) => {
                 request.over_rows = true;
                 t

@@ -429,6 +429,16 @@ pub(crate) fn simulate(session: &mut Session, st: &Statement, control: &RunContr
     let warnings = unused_parent_warnings(&simulation, g).map_err(|e| query_error(e, line))?;
     let mut notes: Vec<String> = warnings.iter().map(|w| format!("warning: {w}")).collect();
     notes.push(format!("simulated from graph {g} with seed {seed}: each node from its own random stream, in causal order; hidden nodes are generated but left out of the table"));
+    let mut cut_short = Vec::new();
+    for (node, column) in simulation.follow_up_columns() {
+        let cut = table.column(&column).and_then(|c| c.data.as_reals()).map_or(0, |v| v.iter().filter(|&&x| x > 0.0).count());
+        cut_short.push(json!({"node": node, "column": column, "rows": cut}));
+        notes.push(format!(
+            "{node}: {cut} of {} rows cut short by the follow-up rule (time written as the follow-up end, {column} yes); \
+             a model of {node} reads them with `family … cut short by {column}`; the other nodes read the whole times",
+            table.nrows()
+        ));
+    }
     display.plain = format!("{}\nmechanisms:\n{}", display.plain, grid.to_text());
     for n in &notes {
         display.plain.push_str(&format!("\n• {n}"));
@@ -447,6 +457,7 @@ pub(crate) fn simulate(session: &mut Session, st: &Statement, control: &RunContr
             .collect();
         map.insert("mechanisms".into(), Value::Array(listed));
         map.insert("warnings".into(), json!(warnings));
+        map.insert("cut_short".into(), Value::Array(cut_short));
     }
     session.put_table(name, table);
     session.simulations.insert(name.to_string(), SimulationRecord { simulation, mechanisms });

@@ -168,6 +168,13 @@ pub fn draw_time<R: Rng + ?Sized>(eta: f64, shape: TimeShape, rng: &mut R) -> f6
     shape.log_scale(eta).exp() * (-u.ln()).powf(1.0 / shape.k)
 }
 
+/// The median time of a row with mean `e^eta` and shape `k`:
+/// `λ·(ln 2)^(1/k)`, where the survival function `exp(−(t/λ)^k)` is one
+/// half (the exponential's `λ·ln 2` at k = 1).
+pub fn median_time(eta: f64, shape: TimeShape) -> f64 {
+    (shape.log_scale(eta) + std::f64::consts::LN_2.ln() / shape.k).exp()
+}
+
 /// Each row's time, cut at its follow-up limit (`None`: followed until the
 /// event), with whether it was cut.
 pub fn cut_at_follow_up(times: &[f64], limits: &[Option<f64>]) -> (Vec<f64>, Vec<bool>) {

@@ -16,7 +16,8 @@
 //! * `tail_functions` — `shape`, `scale`, `p` and `at`; answers `quantiles`
 //!   at the shares `p` and `log_densities` at the values `at`.
 //! * `basis` — `x`, `knots` (full vector), `degree`; answers `rows`.
-//! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`.
+//! * `prior` — `prior` (text such as `normal(0, 2)`) and `x`; answers `log_density`;
+//!   with `draws` and `seed` also `sample`, that many draws from the prior.
 //! * `calibrate` — as `fit`, plus `reps`, `seed` and `draws` (NUTS draws of
 //!   one chain, 300 settling iterations); answers the calibration structure (ranks,
 //!   chi-square and p-value per parameter).
@@ -32,7 +33,9 @@
 //!   answers `names`, `params` (constrained draws), `to`, `from` and
 //!   `differences` (per draw); for a category outcome, `levels` (one
 //!   `{level, differences}` per outcome level) in place of `differences`.
-//!   An optional `between` (`[b, a]`) compares `b` with `a`.
+//!   An optional `between` (`[b, a]`) compares `b` with `a`; an optional
+//!   `on` (`scores`, `log-times`, `medians`) sets the scale, and the answer
+//!   then also has `notes` and `unit_free` (no outcome unit).
 //! * `implications` — `columns`, `graph` (body lines), `draws`, `seed` and
 //!   `mass`: the graph's implications checked against the columns with a
 //!   Laplace fit; answers the report (checks with their associations).
@@ -178,7 +181,15 @@ fn basis(request: &Value) -> Result<Value, String> {
 fn prior(request: &Value) -> Result<Value, String> {
     let prior = Prior::parse(request["prior"].as_str().ok_or("prior must be text")?).map_err(|e| e.to_string())?;
     let values: Vec<f64> = numbers(&request["x"])?.into_iter().map(|x| prior.log_density_and_derivative(x).0).collect();
-    Ok(json!({ "log_density": values }))
+    let sample: Vec<f64> = match (request["draws"].as_u64(), request["seed"].as_u64()) {
+        (Some(n), Some(seed)) => {
+            use waypath::rand::SeedableRng;
+            let mut rng = waypath::rand::rngs::StdRng::seed_from_u64(seed);
+            (0..n).map(|_| prior.sample(&mut rng)).collect()
+        }
+        _ => Vec::new(),
+    };
+    Ok(json!({ "log_density": values, "sample": sample }))
 }
 
 fn calibrate(request: &Value) -> Result<Value, String> {
@@ -201,12 +212,20 @@ fn contrast(request: &Value) -> Result<Value, String> {
     if let Some([b, a]) = request["between"].as_array().map(Vec::as_slice) {
         ask = ask.between(b.as_str().ok_or("between takes text")?, a.as_str().ok_or("between takes text")?);
     }
+    ask.on = match request["on"].as_str() {
+        None => waypath::query::On::Means,
+        Some("scores") => waypath::query::On::Scores,
+        Some("log-times") => waypath::query::On::LogTimes,
+        Some("medians") => waypath::query::On::Medians,
+        Some(other) => return Err(format!("unknown scale {other}")),
+    };
     let contrasts = waypath::query::level_contrasts(&model, &fit.draws, &table, &ask).map_err(|e| e.to_string())?;
     let names = model.parameter_names();
     let columns: Vec<&[f64]> = names.iter().map(|n| fit.draws.get(n).ok_or("missing draws")).collect::<Result<_, _>>()?;
     let params: Vec<Vec<f64>> = (0..fit.draws.len()).map(|d| columns.iter().map(|c| c[d]).collect()).collect();
     let c = &contrasts[0];
-    let mut answer = json!({ "names": names, "params": params, "to": c.to, "from": c.from, "scale": c.scale });
+    let mut answer = json!({ "names": names, "params": params, "to": c.to, "from": c.from, "scale": c.scale,
+                             "notes": c.notes, "unit_free": !c.in_outcome_unit });
     if c.level.is_some() {
         answer["levels"] = json!(contrasts.iter().map(|c| json!({"level": c.level, "differences": c.draws})).collect::<Vec<_>>());
     } else {
