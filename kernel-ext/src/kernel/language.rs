@@ -653,14 +653,16 @@ mod tests {
 
     /// README "Statements", `table NAME from "FILE.csv":`: `x: real in cm`,
     /// `c: category(a, b)`, `n: count`, `flag: binary`, `drop missing`,
-    /// `keep where COND`.
+    /// `keep where COND`, `stay on disk`.
     #[test]
     fn table_body_lines_offer_the_words_of_the_table_parser() {
         let empty = Session::new(".");
         let header = "table trees from \"orchard.csv\":";
         let cases: &[(&str, &[&str])] = &[
-            ("", &["drop", "keep"]),
+            ("", &["drop", "keep", "stay"]),
             ("drop ", &["missing"]),
+            ("stay ", &["on"]),
+            ("stay on ", &["disk"]),
             ("keep ", &["where"]),
             ("x: ", &["binary", "category", "category(", "count", "real"]),
             ("x: real ", &["in"]),
