@@ -152,7 +152,7 @@ fn the_demo_refit_mixes() {
     let diagnostics = json["diagnostics"].as_array().unwrap();
     assert_eq!(diagnostics.len(), 2, "{diagnostics:?}");
     for d in diagnostics {
-        let (rhat, bulk, tail) = (d["rhat"].as_f64().unwrap(), d["ess_bulk"].as_f64().unwrap(), d["ess_tail"].as_f64().unwrap());
+        let (rhat, bulk, tail) = (d["r_hat"].as_f64().unwrap(), d["effective_draws"]["bulk"].as_f64().unwrap(), d["effective_draws"]["tail"].as_f64().unwrap());
         eprintln!("{}: R-hat {rhat:.4}, bulk ESS {bulk:.0}, tail ESS {tail:.0}", d["quantity"]);
         assert!(rhat <= 1.01, "{d}");
         assert!(bulk >= 800.0 && tail >= 800.0, "{d}");

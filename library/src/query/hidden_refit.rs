@@ -43,13 +43,20 @@ pub struct StrengthSummary {
     pub upper: f64,
 }
 
-/// R-hat and ESS of one quantity of the refit.
+/// R-hat and ESS of one quantity of the refit, in the words of a fit's
+/// `health` (`r_hat`, `effective_draws.bulk`, `effective_draws.tail`).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RefitDiagnostics {
     pub quantity: String,
-    pub rhat: f64,
-    pub ess_bulk: f64,
-    pub ess_tail: f64,
+    pub r_hat: f64,
+    pub effective_draws: EffectiveDraws,
+}
+
+/// Bulk and tail effective draws.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct EffectiveDraws {
+    pub bulk: f64,
+    pub tail: f64,
 }
 
 /// The slope fitted without and with the simulated hidden node.
@@ -153,7 +160,11 @@ pub fn hidden_refit(
         let slices: Vec<&[f64]> = chains.iter().map(Vec::as_slice).collect();
         let d = diagnose(&slices);
         warnings.extend(parameter_warnings(&label, &d));
-        diagnostics.push(RefitDiagnostics { quantity: label, rhat: d.rhat, ess_bulk: d.ess_bulk, ess_tail: d.ess_tail });
+        diagnostics.push(RefitDiagnostics {
+            quantity: label,
+            r_hat: d.rhat,
+            effective_draws: EffectiveDraws { bulk: d.ess_bulk, tail: d.ess_tail },
+        });
     }
     let refitted_draws: Vec<f64> = slope_chains.concat();
     let summary = |label: &str, prior: &str, k: usize| -> Result<StrengthSummary, QueryError> {

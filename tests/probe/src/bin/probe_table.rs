@@ -5,7 +5,9 @@
 //! of Parquet files) and `body` (the lines of a `table` cell body). Answers
 //! `summary` (the cell's table summary), `rows_read`, `dropped_missing` and
 //! `columns` (name → `{"kind", "values"}`, values as numbers, booleans or
-//! level labels), or `error` (the sentence a cell would show).
+//! level labels), or `error` (the sentence a cell would show); and always
+//! `on_disk`, whether the probe was built with that feature (its engine's
+//! Parquet reader brings the codecs `columnar` alone leaves out).
 
 use serde_json::{json, Map, Value};
 
@@ -13,7 +15,9 @@ use waypath::table::{load_table, parse_table_line, summary_json, ColumnData, Tab
 
 fn main() {
     let request = waypath_probe::read_request();
-    waypath_probe::write_answer(&load(&request));
+    let mut answer = load(&request);
+    answer["on_disk"] = json!(cfg!(feature = "on_disk"));
+    waypath_probe::write_answer(&answer);
 }
 
 fn load(request: &Value) -> Value {
