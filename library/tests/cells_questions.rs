@@ -3,16 +3,12 @@
 //! statement gives its documented JSON keys (README, "Output structures"),
 //! and the numbers agree with sources outside the code under test.
 
-use std::sync::atomic::AtomicBool;
+mod common;
+
+use common::cells::run;
 
 use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::Session;
 
 /// Run a cell that must succeed; the JSON of its last display.
 fn last_json(session: &mut Session, cell: &str) -> Value {

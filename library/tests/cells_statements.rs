@@ -2,16 +2,13 @@
 //! the documented JSON structures (README, "Output structures"), errors name
 //! the cell line, and nothing is dropped silently.
 
+mod common;
+
+use common::cells::run;
+
 use std::io::Write;
-use std::sync::atomic::AtomicBool;
 
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::Session;
 
 fn orchard_csv(dir: &std::path::Path) {
     // Invented rows; one has a non-positive girth so `keep where` must drop it.

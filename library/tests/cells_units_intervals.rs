@@ -12,20 +12,16 @@
 //! mean ± z·sd with z = Φ⁻¹((1 + m)/2): 0.6745 for 50%, 1.2816 for 80%,
 //! 1.6449 for 90%.
 
-use std::sync::atomic::AtomicBool;
+mod common;
+
+use common::cells::run;
 
 use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::Session;
 
 const Z50: f64 = 0.6745;
 const Z80: f64 = 1.2816;
 const Z90: f64 = 1.6449;
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
 
 fn last(session: &mut Session, cell: &str) -> (String, Value) {
     let out = run(session, cell);

@@ -12,19 +12,13 @@
 
 mod common;
 
-use std::sync::atomic::AtomicBool;
+use common::cells::run;
 
 use serde_json::Value;
 use statrs::distribution::{Binomial, DiscreteCDF};
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::Session;
 
 use common::linear_sem::{write_csv, Sem, Stream, NODES};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
 
 fn last_json(session: &mut Session, cell: &str) -> Value {
     let out = run(session, cell);

@@ -6,17 +6,13 @@
 //! interval gives (statrs). The unadjusted regression, which the hidden
 //! cause biases, is shown to miss the truth on the same data.
 
-use std::sync::atomic::AtomicBool;
+mod common;
+
+use common::cells::run;
 
 use serde_json::Value;
 use statrs::distribution::{Binomial, DiscreteCDF};
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::Session;
 
 fn last_json(session: &mut Session, cell: &str) -> Value {
     let out = run(session, cell);

@@ -13,17 +13,14 @@
 //! (the hidden cause's covariance with x given w, over x's residual
 //! variance; Wooldridge, Introductory Econometrics §3.3, recalled).
 
+mod common;
+
+use common::cells::run;
+
 use std::path::Path;
-use std::sync::atomic::AtomicBool;
 
 use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::Session;
 
 fn last_json(session: &mut Session, cell: &str) -> Value {
     let out = run(session, cell);

@@ -12,25 +12,12 @@
 
 mod common;
 
-use std::sync::atomic::AtomicBool;
+use common::cells::{last_json, run};
 
-use serde_json::Value;
 use statrs::distribution::{Binomial, DiscreteCDF};
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::{CellOutcome, Session};
 
 use common::linear_sem::{write_csv, Sem, Stream, NODES};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
-
-fn last_json(session: &mut Session, cell: &str) -> Value {
-    let out = run(session, cell);
-    assert!(out.error.is_none(), "{cell}\n{}", out.error.map(|e| e.describe()).unwrap_or_default());
-    out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure")
-}
 
 /// Whether a hidden cause of `sem` has a child on a directed path from `x`
 /// to `y` (x excluded): the nodes a simulation of do(x) must draw. Written

@@ -3,24 +3,22 @@
 //! refits without each row made here through the table and model API, and
 //! the statement's refusals.
 
+mod common;
+
+use common::cells::run;
+
 use std::sync::atomic::AtomicBool;
 
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
 use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::Session;
 use waypath::draws::importance::left_out_estimate;
 use waypath::infer::fit::{fit_model, Method};
 use waypath::infer::nuts::NutsSettings;
 use waypath::model::{Model, ModelSpec};
 use waypath::query::left_out::{exact_left_out, score_predictions};
 use waypath::table::Table;
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
 
 fn last_json(session: &mut Session, cell: &str) -> (String, Value) {
     let out = run(session, cell);

@@ -7,8 +7,9 @@
 
 mod common;
 
+use common::cells::run;
+
 use std::path::PathBuf;
-use std::sync::atomic::AtomicBool;
 
 use rand::rngs::StdRng;
 use rand::SeedableRng;
@@ -16,7 +17,7 @@ use rand_distr::{Distribution, Normal};
 use statrs::distribution::{Continuous, ContinuousCDF, Normal as NormalDist};
 
 use waypath::cells::statements::grammar::{next_words, PLOT, PLOT_KINDS, RETIRED_PLOT_KINDS};
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::Session;
 use waypath::plot::palette::{self, BLUE, BLUISH_GREEN, ORANGE, REDDISH_PURPLE, VERMILLION};
 use waypath::plot::*;
 
@@ -26,12 +27,6 @@ fn repo() -> PathBuf {
     let manifest = std::env::var_os("CARGO_MANIFEST_DIR").map(PathBuf::from);
     let manifest = manifest.unwrap_or_else(|| PathBuf::from(env!("CARGO_MANIFEST_DIR")));
     manifest.parent().expect("library/ sits in the repository").to_path_buf()
-}
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
 }
 
 fn normals(seed: u64, n: usize, mean: f64, sd: f64) -> Vec<f64> {

@@ -3,13 +3,17 @@
 //! shrinkage figure (`plot M shrinkage`) against numbers computed here from
 //! the table and from the exported draws.
 
+mod common;
+
+use common::cells::run;
+
 use std::collections::BTreeMap;
 use std::io::Write;
 use std::sync::atomic::AtomicBool;
 
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
-use waypath::cells::{CellOutcome, RunControl, Session};
+use waypath::cells::Session;
 use waypath::graph::{Graph, GraphBuilder};
 use waypath::infer::fit::Method;
 use waypath::infer::nuts::NutsSettings;
@@ -352,12 +356,6 @@ fn recover_sets_the_drawn_departures_beside_a_pooled_model() {
     assert_eq!(truth.len(), 16);
     assert!(covered >= 11, "{covered} of 16 departure intervals hold the truth");
     assert!(r.notes.iter().any(|n| n.contains("site spread: the true value is the stated 1.5")), "{:?}", r.notes);
-}
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
 }
 
 /// Invented clinics of unequal size, a normal outcome in mmHg and a yes/no

@@ -5,17 +5,13 @@
 //! recalled) for the expected number of rows cut short; the rest are
 //! properties of the rule read off the generated rows.
 
-use std::sync::atomic::AtomicBool;
+mod common;
+
+use common::cells::run;
 
 use serde_json::Value;
 use statrs::function::gamma::ln_gamma;
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::{CellOutcome, Session};
 
 fn json(out: &CellOutcome) -> Value {
     assert!(out.error.is_none(), "{:?}", out.error);

@@ -6,16 +6,12 @@
 
 mod model_fixtures;
 
-use std::sync::atomic::AtomicBool;
+mod common;
+
+use common::cells::run;
 
 use model_fixtures::{orchard, orchard_with_times};
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::Session;
 
 fn fitted(body: &str, table: waypath::table::Table) -> Session {
     let mut session = Session::new(".");

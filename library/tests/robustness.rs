@@ -9,16 +9,10 @@
 
 mod common;
 
-use std::sync::atomic::AtomicBool;
+use common::cells::run;
 
 use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
+use waypath::cells::Session;
 
 fn last_json(session: &mut Session, cell: &str) -> Value {
     let out = run(session, cell);

@@ -4,22 +4,11 @@
 //! simulated linear model is path-traced (Wright 1934): the one directed
 //! path x → m → y, 0.8 × 0.5.
 
-use std::sync::atomic::AtomicBool;
+mod common;
 
-use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
+use common::cells::last_json;
 
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
-
-fn last_json(session: &mut Session, cell: &str) -> Value {
-    let out = run(session, cell);
-    assert!(out.error.is_none(), "{cell}\n{}", out.error.map(|e| e.describe()).unwrap_or_default());
-    out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure")
-}
+use waypath::cells::Session;
 
 const TRUTH: f64 = 0.4;
 

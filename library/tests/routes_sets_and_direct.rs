@@ -13,24 +13,13 @@
 
 mod common;
 
+use common::cells::{last_json, run};
+
 use std::path::Path;
-use std::sync::atomic::AtomicBool;
 
 use common::linear_sem::Stream;
 use serde_json::Value;
-use waypath::cells::{CellOutcome, RunControl, Session};
-
-fn run(session: &mut Session, cell: &str) -> CellOutcome {
-    let cancel = AtomicBool::new(false);
-    let progress = |_: &str| {};
-    session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress })
-}
-
-fn last_json(session: &mut Session, cell: &str) -> Value {
-    let out = run(session, cell);
-    assert!(out.error.is_none(), "{cell}\n{}", out.error.map(|e| e.describe()).unwrap_or_default());
-    out.displays.iter().rev().find_map(|d| d.json.clone()).expect("a JSON structure")
-}
+use waypath::cells::Session;
 
 /// A linear-Gaussian model: nodes in causal order, edges with coefficients.
 struct Linear {

@@ -1,6 +1,7 @@
 //! Helpers shared by several integration tests (each test file that uses
 //! them declares `mod common;`).
 
+pub mod cells;
 pub mod linear_sem;
 pub mod sbc;
 pub mod text_boxes;
