@@ -553,6 +553,52 @@ fn contrast_shading_splits_area_by_the_normal_tail_probability() {
     );
 }
 
+/// Heavy tails do not squash the contrast figure: Cauchy(1, 1) draws
+/// (quantile 1 + tan(π(p − ½)), closed form) span thousands, but the axis
+/// spans about the central 99.5% (the 99.75% quantile is 1 + tan(0.4975π)
+/// ≈ 128.3), the note counts the draws left out (each side about 0.25% of
+/// 4000 = 10; binomial sd 3.2), and the written share above zero still uses
+/// every draw: P(X > 0) = ½ + atan(1)/π = 0.75.
+#[test]
+fn contrast_axis_is_cut_to_the_central_draws_when_tails_are_long() {
+    let mut rng = StdRng::seed_from_u64(44);
+    let draws: Vec<f64> = (0..4000)
+        .map(|_| 1.0 + (std::f64::consts::PI * (rand::RngExt::random::<f64>(&mut rng) - 0.5)).tan())
+        .collect();
+    let widest = draws.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    assert!(widest > 1000.0, "the seeded draws should have a long tail (widest {widest})");
+    let svg = contrast_figure("mulch vs bare", &Quantity::new("difference"), &draws).expect("draws");
+    let doc = roxmltree::Document::parse(&svg).expect("well-formed");
+    let texts: Vec<String> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .map(|n| n.text().unwrap_or_default().to_string())
+        .collect();
+    let ticks: Vec<f64> = texts
+        .iter()
+        .filter_map(|t| t.replace('\u{2212}', "-").parse::<f64>().ok())
+        .collect();
+    assert!(ticks.len() >= 3, "tick labels: {texts:?}");
+    let reach = ticks.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    assert!(reach < 200.0, "axis reaches {reach}: the tail squashes the bulk");
+    let note = texts.iter().find(|t| t.starts_with("not drawn:")).expect("a note on the draws left out");
+    let counts: Vec<usize> = note
+        .split(|c: char| !c.is_ascii_digit())
+        .filter_map(|w| w.parse().ok())
+        .collect();
+    assert_eq!(counts.len(), 2, "{note}");
+    for c in &counts {
+        assert!((1..=30).contains(c), "{note}");
+    }
+    let above = texts.iter().find(|t| t.starts_with("above 0:")).expect("share above zero");
+    let pct: f64 = above
+        .trim_start_matches("above 0: ")
+        .trim_end_matches("% of draws")
+        .parse()
+        .expect("a percentage");
+    assert!((pct - 75.0).abs() <= 2.0, "{above}");
+}
+
 /// A contrast entirely above zero shades nothing in the below-zero colour.
 #[test]
 fn contrast_all_above_zero_has_no_below_zero_shading() {

@@ -481,3 +481,56 @@ fn shrinkage_figure_numbers_match_the_table_and_the_draws() {
     assert!(message.contains("has no pooled group"), "{message}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A time outcome's own value per level is the time followed over the events
+/// seen — the maximum-likelihood mean of an exponential with rows cut short
+/// on the right (total time at risk over events; Cox & Oakes 1984, *Analysis
+/// of Survival Data*, §3.2, recalled) — on the log scale, computed here from
+/// the CSV; a level whose rows were all cut short has no own value.
+#[test]
+fn shrinkage_of_a_time_outcome_uses_time_per_event() {
+    let dir = std::env::temp_dir().join(format!("wp-shrinkage-times-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut f = std::fs::File::create(dir.join("trays.csv")).unwrap();
+    writeln!(f, "bench,days,unsprouted").unwrap();
+    let mut state: u64 = 777;
+    let mut uniform = move || {
+        state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    };
+    for (bench, rows, mean, all_cut) in [("north", 20, 9.0, false), ("south", 12, 14.0, false), ("shed", 6, 6.0, false), ("porch", 3, 10.0, true)] {
+        for _ in 0..rows {
+            let time = -mean * uniform().ln();
+            let cut = all_cut || time > 20.0;
+            writeln!(f, "{bench},{:.3},{}", time.min(20.0), if cut { "yes" } else { "no" }).unwrap();
+        }
+    }
+    drop(f);
+    let (_, rows) = read_csv(&dir.join("trays.csv"));
+    let mut followed: BTreeMap<String, (f64, f64)> = BTreeMap::new();
+    for r in &rows {
+        let e = followed.entry(r[0].clone()).or_default();
+        e.0 += r[1].parse::<f64>().unwrap();
+        e.1 += f64::from(u8::from(r[2] == "no"));
+    }
+    let mut session = Session::new(&dir);
+    let cell = "table trays from \"trays.csv\":\n    days: real in days\n    unsprouted: binary\n\nmodel sprout:\n    days from pooled bench using trays\n    family exponential cut short by unsprouted\n\nfit sprout with nuts chains 2 settle 300 draws 300 seed 3\nplot sprout shrinkage\n";
+    let out = run(&mut session, cell);
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let shown = out.displays.last().unwrap();
+    let json = shown.json.as_ref().expect("json");
+    for l in json["levels"].as_array().unwrap() {
+        let name = l["level"].as_str().unwrap();
+        let (time, events) = followed[name];
+        if events == 0.0 {
+            assert!(l["raw"].is_null(), "{name}: every row cut short, no own value: {l}");
+        } else {
+            let expected = (time / events).ln();
+            assert!((l["raw"].as_f64().unwrap() - expected).abs() < 1e-9, "{name}: {l} vs {expected}");
+        }
+    }
+    assert!(shown.plain.contains("own time per event"), "{}", shown.plain);
+    assert!(shown.plain.contains("rows cut short add their time but no event"), "{}", shown.plain);
+    assert!(!shown.plain.contains("share of 0 or 1"), "{}", shown.plain);
+    let _ = std::fs::remove_dir_all(&dir);
+}

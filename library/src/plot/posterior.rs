@@ -207,7 +207,9 @@ struct SplitHistogram {
     heights: Vec<f64>,
 }
 
-fn split_histogram(sorted: &[f64]) -> SplitHistogram {
+/// `sorted` holds the draws drawn; heights are densities of all `total`
+/// draws, so the bars' area is the share of all draws they hold.
+fn split_histogram(sorted: &[f64], total: usize) -> SplitHistogram {
     let (lo, hi) = (sorted[0], sorted[sorted.len() - 1]);
     let bins = ((sorted.len() as f64).sqrt().round() as usize).clamp(12, 48) as f64;
     let width = if hi > lo {
@@ -226,7 +228,7 @@ fn split_histogram(sorted: &[f64]) -> SplitHistogram {
             (((v / width).ceil() as i64) - 1 - first).clamp(0, counts.len() as i64 - 1) as usize;
         counts[k] += 1;
     }
-    let n = sorted.len() as f64;
+    let n = total as f64;
     let heights = counts.iter().map(|c| *c as f64 / (n * width)).collect();
     SplitHistogram { edges, heights }
 }
@@ -245,6 +247,42 @@ fn step_area(frame: &Frame, h: &SplitHistogram, range: std::ops::Range<usize>) -
     }
     points.push((frame.px(h.edges[range.end]), base));
     polygon_d(points)
+}
+
+/// The central share of draws a contrast figure's axis spans when the tails
+/// are long: the 0.25% and 99.75% quantiles.
+const SHOWN_TAIL: f64 = 0.0025;
+
+/// The draws a contrast figure draws, and how many lie beyond each end.
+struct ShownDraws<'a> {
+    shown: &'a [f64],
+    below: usize,
+    above: usize,
+}
+
+/// Keep every draw unless the whole span is more than 1.5 times the central
+/// span (a heavy tail that would squash the bulk into a few pixels); then
+/// keep the draws between the central quantiles.
+fn shown_draws(sorted: &[f64]) -> ShownDraws<'_> {
+    let whole = ShownDraws { shown: sorted, below: 0, above: 0 };
+    let (lo, hi) = (quantile(sorted, SHOWN_TAIL), quantile(sorted, 1.0 - SHOWN_TAIL));
+    let span = sorted[sorted.len() - 1] - sorted[0];
+    if !(hi > lo) || span <= 1.5 * (hi - lo) {
+        return whole;
+    }
+    let start = sorted.partition_point(|v| *v < lo);
+    let end = sorted.partition_point(|v| *v <= hi);
+    ShownDraws { shown: &sorted[start..end], below: start, above: sorted.len() - end }
+}
+
+/// The note under a trimmed axis, or `None` when every draw is drawn.
+fn beyond_note(d: &ShownDraws) -> Option<String> {
+    (d.below + d.above > 0).then(|| {
+        format!(
+            "not drawn: {} draws left of the axis, {} right of it (shares above use every draw)",
+            d.below, d.above
+        )
+    })
 }
 
 /// Format a share as a percentage with no decimals, or one below 1%.
@@ -275,7 +313,9 @@ pub fn contrast_figure(
     let n = sorted.len() as f64;
     let above = sorted.iter().filter(|v| **v > 0.0).count() as f64 / n;
     let below = 1.0 - above;
-    let hist = split_histogram(&sorted);
+    let shown = shown_draws(&sorted);
+    let note = beyond_note(&shown);
+    let hist = split_histogram(shown.shown, sorted.len());
     let step = hist.edges[1] - hist.edges[0];
     let (lo, hi) = (
         hist.edges[0].min(0.0) - step,
@@ -300,12 +340,14 @@ pub fn contrast_figure(
     };
     let mean = sorted.iter().sum::<f64>() / n;
     let desc = format!(
-        "Posterior density of the contrast {subject} from {} draws, mean {mean:.3}: {} of draws lie above zero (shaded blue) and {} at or below zero (shaded orange).",
+        "Posterior density of the contrast {subject} from {} draws, mean {mean:.3}: {} of draws lie above zero (shaded blue) and {} at or below zero (shaded orange).{}",
         sorted.len(),
         percent(above),
-        percent(below)
+        percent(below),
+        note.as_ref().map(|n| format!(" The axis is cut to the central draws; {n}.")).unwrap_or_default()
     );
-    let mut sheet = Sheet::new(WIDTH, frame.bottom() + 52.0, "contrast", subject, &desc);
+    let foot = if note.is_some() { 70.0 } else { 52.0 };
+    let mut sheet = Sheet::new(WIDTH, frame.bottom() + foot, "contrast", subject, &desc);
     let split = hist
         .edges
         .iter()
@@ -337,5 +379,8 @@ pub fn contrast_figure(
     sheet.push(text(right - 17.0, row, &above_text, SMALL, Anchor::End));
     frame.x_axis(&mut sheet, Some(&value.label()));
     frame.y_axis(&mut sheet, Some("density"));
+    if let Some(n) = &note {
+        sheet.push(text(frame.left, frame.bottom() + 62.0, n, SMALL, Anchor::Start));
+    }
     Ok(sheet.finish())
 }

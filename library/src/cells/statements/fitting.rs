@@ -466,7 +466,11 @@ fn shrinkage_display(result: &crate::query::Shrinkage, model: &crate::model::Mod
     let (group, mass) = (&result.group, result.mass);
     let svg = figures::shrinkage(result, model, table).map_err(|e| CellError::at(line, e.to_string()))?;
     let pooled_head = format!("pooled {}", fit_summary::estimate_head(mass));
-    let mut grid = Grid::new(&["level", "rows", "own rows' mean", &pooled_head]).numeric_columns(&[1, 2]);
+    let own_head = match model.family() {
+        crate::model::Family::Times { .. } => "own time per event",
+        _ => "own rows' mean",
+    };
+    let mut grid = Grid::new(&["level", "rows", own_head, &pooled_head]).numeric_columns(&[1, 2]);
     let number = crate::cells::format::num;
     for l in &result.levels {
         grid.push(vec![
@@ -485,16 +489,7 @@ fn shrinkage_display(result: &crate::query::Shrinkage, model: &crate::model::Mod
         format!("population (a new level, no departure): {} ({} to {})", number(centre), number(low), number(high)),
     ];
     let mut notes = notes;
-    match (model.family(), &result.outcome_level) {
-        (crate::model::Family::Normal, _) => {}
-        (_, Some(level)) => notes.push(format!(
-            "a level whose rows hold no {level} or no reference outcome has no finite own log odds; each share is taken as at least 0.001"
-        )),
-        _ => notes.push(
-            "a level whose rows are all 0 or all at the top (a share of 0 or 1, a mean count of 0) has no finite own value on the link scale; it is shown as if its share were 0.001 or 0.999 (its mean count 0.001)"
-                .into(),
-        ),
-    }
+    notes.extend(own_value_note(model.family(), result.outcome_level.as_deref()));
     let heading = match &result.outcome_level {
         Some(level) => format!("shrinkage of {group} in {name}, on the log odds of {level}"),
         None => format!("shrinkage of {group} in {name}"),
@@ -503,6 +498,24 @@ fn shrinkage_display(result: &crate::query::Shrinkage, model: &crate::model::Mod
     let html = html_block(&heading, &[grid.to_html(), html_list(&notes)]);
     let json = serde_json::to_value(&result).unwrap_or(serde_json::Value::Null);
     Ok(vec![Display { plain, html: Some(html), svg: Some(svg), json: Some(json) }])
+}
+
+/// What a level's own value is when the link scale cannot hold it, in the
+/// words of the outcome's family (`None` for a normal outcome).
+fn own_value_note(family: &crate::model::Family, outcome_level: Option<&str>) -> Option<String> {
+    use crate::model::Family;
+    let note = match (family, outcome_level) {
+        (Family::Normal, _) => return None,
+        (_, Some(level)) => format!(
+            "a level whose rows hold no {level} or no reference outcome has no finite own log odds; each share is taken as at least 0.001"
+        ),
+        (Family::Bernoulli | Family::Binomial { .. }, _) => "a level whose rows are all failures or all successes (a share of 0 or 1) has no finite own log odds; it is shown as if its share were 0.001 or 0.999".into(),
+        (Family::Beta, _) => "a level's own value is the mean of its rows' shares, on the log odds".into(),
+        (Family::Poisson | Family::GammaPoisson, _) => "a level whose counts are all 0 has no finite own log mean; it is shown as if its mean count were 0.001".into(),
+        (Family::Times { .. }, _) => "a level's own value is the time its rows were followed over the events they saw (rows cut short add their time but no event), the mean time of an exponential fitted to those rows alone; a level with no events has none (—)".into(),
+        (Family::Levels | Family::Graded, None) => return None,
+    };
+    Some(note)
 }
 
 /// The latest fit of model `name`, for a statement that needs the model's
