@@ -7,27 +7,13 @@ mod model_fixtures;
 
 use std::sync::atomic::AtomicBool;
 
-use model_fixtures::{assert_gradient_matches, build, build_error, category, column, orchard, value_and_gradient};
+use model_fixtures::{assert_gradient_matches, build, build_error, category, column, orchard_with_plots, value_and_gradient};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Normal};
 use waypath::infer::fit::{fit_model, Method};
 use waypath::model::LogDensity;
 use waypath::table::{ColumnData, Table};
-
-/// The orchard of the model tests with a `plot` column of 12 levels
-/// (plots of unequal size) and a `row` column of 4 levels.
-fn orchard_with_plots(n: usize, seed: u64) -> Table {
-    let mut table = orchard(n, seed);
-    let mut rng = StdRng::seed_from_u64(seed + 100);
-    let plots: Vec<u32> = (0..n).map(|_| (rng.random::<f64>().powi(2) * 12.0) as u32).collect();
-    let rows: Vec<u32> = (0..n).map(|i| (i % 4) as u32).collect();
-    let names: Vec<String> = (1..=12).map(|k| format!("P{k}")).collect();
-    let names: Vec<&str> = names.iter().map(String::as_str).collect();
-    table.columns.push(column("plot", category(plots, &names)));
-    table.columns.push(column("row", category(rows, &["r1", "r2", "r3", "r4"])));
-    table
-}
 
 fn check_gradient(body: &str, seed: u64) {
     let table = orchard_with_plots(150, 7);
