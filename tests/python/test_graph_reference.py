@@ -230,35 +230,32 @@ def test_d_separation_agrees_with_networkx(answered):
     report(problems)
 
 
+def check_effects(answered, first, kind):
+    """Check every answer of one kind (the effects alternate total, direct)
+    with effect_check; the random graphs must exercise both verdicts."""
+    problems = []
+    kinds = {"identifiable": 0, "not": 0}
+    for c in answered:
+        for a in c["effects"][first::2]:
+            assert a["query"] == f"{kind} effect", a
+            kinds["identifiable" if a["identifiable"] else "not"] += 1
+            problems += effect_check(c, a, kind)
+    assert kinds["identifiable"] > 50 and kinds["not"] > 20, kinds
+    report(problems)
+
+
 def test_total_effect_sets_satisfy_backdoor_and_are_minimal(answered):
     """(b)+(c) Each set passes the backdoor criterion (Pearl 2009 §3.3, checked with
     networkx.is_d_separator), no proper subset does, and the list equals the
     brute-force list of minimal sets, so "not identifiable" means none exists."""
-    problems = []
-    kinds = {"identifiable": 0, "not": 0}
-    for c in answered:
-        for a in c["effects"][0::2]:
-            assert a["query"] == "total effect", a
-            kinds["identifiable" if a["identifiable"] else "not"] += 1
-            problems += effect_check(c, a, "total")
-    # The random graphs must exercise both verdicts.
-    assert kinds["identifiable"] > 50 and kinds["not"] > 20, kinds
-    report(problems)
+    check_effects(answered, 0, "total")
 
 
 def test_direct_effect_sets_satisfy_single_door_and_are_minimal(answered):
     """(e) Each set passes the single-door criterion (Pearl 2009 Thm 5.3.1, checked
     with networkx.is_d_separator on the graph without X -> Y) and is minimal;
     the list equals the brute-force list."""
-    problems = []
-    kinds = {"identifiable": 0, "not": 0}
-    for c in answered:
-        for a in c["effects"][1::2]:
-            assert a["query"] == "direct effect", a
-            kinds["identifiable" if a["identifiable"] else "not"] += 1
-            problems += effect_check(c, a, "direct")
-    assert kinds["identifiable"] > 50 and kinds["not"] > 20, kinds
-    report(problems)
+    check_effects(answered, 1, "direct")
 
 
 def test_implications_are_minimal_observed_separators(answered):
