@@ -33,7 +33,7 @@
 use statrs::function::gamma::ln_gamma;
 
 use super::kernels::{exp, softplus_and_logistic};
-use super::shaped::{beta_row, count_tally, gamma_difference_total, BetaPrecision, BetaShare, GammaShape};
+use super::shaped::{beta_row, beta_rows, count_tally, gamma_difference_total, BetaPrecision, BetaShare, GammaShape};
 use super::survival::{time_row, TimeForm, TimeRow, TimeShape};
 
 /// Rows per block of the stored design.
@@ -305,11 +305,14 @@ impl GlmData {
                 }
             }
             GlmOutcome::Beta { shares, .. } => {
-                for (i, &share) in shares[rows].iter().enumerate() {
-                    let (term, d_eta, d_shape) = beta_row(share, eta[i], shape.beta);
-                    terms[i] += term;
-                    slope[i] = d_eta;
-                    d_u[i] += d_shape;
+                // Rows past `used` hold a share of ½ and are not added in.
+                let mut block = [BetaShare { logit: 0.0, log_complement: -std::f64::consts::LN_2 }; BLOCK];
+                block[..used].copy_from_slice(&shares[rows]);
+                let (term, d_eta, d_shape) = beta_rows(&block, eta, shape.beta);
+                for i in 0..used {
+                    terms[i] += term[i];
+                    slope[i] = d_eta[i];
+                    d_u[i] += d_shape[i];
                 }
             }
             GlmOutcome::Times { rows: times, .. } => {
