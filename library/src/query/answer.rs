@@ -156,7 +156,7 @@ pub fn answer_effect_with_progress(
     }
     let formula_route = identification.beyond.as_ref().filter(|b| b.identified && kind == EffectKind::Total);
     if let (false, Some(beyond), Some(formula)) = (identification.identifiable, formula_route, formula_route.and_then(|b| b.formula.as_ref())) {
-        if let Err(why) = check_formula(formula, exposure, outcome, &beyond.also_set) {
+        if let Err(why) = check_formula(table, formula, exposure, outcome, &beyond.also_set) {
             answer.why.extend(beyond.lines());
             answer.why.push(format!("{why}; nothing was fitted"));
             return Ok(answer);

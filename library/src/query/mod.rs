@@ -12,7 +12,9 @@
 //!   adjustment model and its contrasts, with the reason for the set, or,
 //!   where no set exists but a formula identifies the effect,
 //!   [`formula_estimate`]: the formula evaluated per posterior draw from
-//!   fitted conditionals.
+//!   fitted conditionals, or, for shapes that simulation over the rows
+//!   cannot take, [`formula_chain`]: evaluated exactly on a fitted chain
+//!   of normal regressions.
 //! * [`joint`]: one regression per observed node of a graph (a whole-graph
 //!   model), and [`intervene`]: simulated interventions through it.
 //! * [`mechanism`] and [`simulate`]: synthetic data from stated mechanisms,
@@ -40,6 +42,7 @@ pub mod calibrate;
 pub mod contrast;
 pub mod e_value;
 mod error;
+pub mod formula_chain;
 pub mod formula_estimate;
 pub mod hidden_refit;
 pub mod implications;
