@@ -78,7 +78,9 @@ pub(crate) fn chain_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
 
 /// Fit the chain over the formula's nodes and contrast `E[y | do(x)]`
 /// between the settings of `simulation` (numbers), evaluating the formula
-/// exactly per posterior draw.
+/// exactly per posterior draw; `also_set` are held at their means over
+/// the simulation's rows, the nodes of `stated` at the values given
+/// (a controlled direct effect's mediators).
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn chain_estimate(
     table: &Table,
@@ -91,6 +93,7 @@ pub(crate) fn chain_estimate(
     mass: f64,
     progress: &(dyn Fn(Progress) + Sync),
     simulation: &FormulaSimulation,
+    stated: &[(String, f64)],
 ) -> Result<FormulaFit, QueryError> {
     let place = format!("ask total effect of {x} on {y} by its identifying formula");
     let nodes = chain_nodes(table, formula, x, y, also_set, &place)?;
@@ -117,6 +120,7 @@ pub(crate) fn chain_estimate(
             column_mean(column).map(|v| (a.clone(), v)).ok_or_else(|| QueryError::request(format!("{place}: {a} has no values to hold it at")))
         })
         .collect::<Result<_, _>>()?;
+    let held: BTreeMap<String, f64> = held.into_iter().chain(stated.iter().cloned()).collect();
     let mut contrasts = Vec::new();
     let mut worst_mass = 0.0_f64;
     for (to, from) in &simulation.settings {

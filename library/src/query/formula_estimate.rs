@@ -207,7 +207,7 @@ pub(crate) fn formula_estimate_with(
             if chain_nodes(table, formula, x, y, also_set, &place).is_err() {
                 return Err(shape);
             }
-            return chain_estimate(table, x, y, formula, also_set, method, cancel, mass, progress, simulation);
+            return chain_estimate(table, x, y, formula, also_set, method, cancel, mass, progress, simulation, &[]);
         }
     };
     for c in &plan.copies {

@@ -42,6 +42,7 @@ pub mod calibrate;
 pub mod contrast;
 pub mod e_value;
 mod error;
+mod direct_formula;
 pub mod formula_chain;
 pub mod formula_estimate;
 pub mod hidden_refit;
@@ -65,6 +66,7 @@ pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, pr
 pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RATE_RATIO, RISK_RATIO, RISK_RATIO_STEPS};
 pub use error::QueryError;
+pub use direct_formula::DIRECT_FORMULA_ROUTE;
 pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
 pub use hidden_refit::{hidden_refit, HiddenRefit, RefitDiagnostics, StrengthSummary};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};
