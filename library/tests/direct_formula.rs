@@ -124,6 +124,13 @@ fn direct_effect_intervals_cover_the_edge_and_routes_are_given() {
             assert!(routes["adjustment"].is_null() && routes["joint"].is_null(), "{routes}");
             let notes = routes["notes"].to_string();
             assert!(notes.contains("is confounded; no joint route"), "{notes}");
+            // With the hidden cause on the mediator next to v3 the
+            // controlled direct effect has a hedge: nothing is fitted.
+            last_json(&mut session, "graph bow:\n    v0 -> v2 -> v3\n    v0 -> v3\n    hidden u0 -> v2, v3");
+            let refused = last_json(&mut session, "ask direct effect of v0 on v3 in bow using t with laplace");
+            assert!(refused["contrasts"].as_array().is_none_or(|c| c.is_empty()), "{refused}");
+            let why = refused.to_string();
+            assert!(why.contains("is not identifiable either") && why.contains("nothing was fitted"), "{why}");
         }
     }
     std::fs::remove_dir_all(&dir).ok();

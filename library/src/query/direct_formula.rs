@@ -13,7 +13,7 @@
 
 use std::sync::atomic::AtomicBool;
 
-use crate::graph::{Complete, Graph};
+use crate::graph::{Complete, Graph, GraphError};
 use crate::infer::fit::{Fit, Method};
 use crate::infer::nuts::Progress;
 use crate::model::Model;
@@ -44,7 +44,14 @@ pub(super) fn direct_by_formula(
     mut answer: EffectAnswer,
 ) -> Result<EffectAnswer, QueryError> {
     let place = format!("ask direct effect of {x} on {y}");
-    let Some(direct) = graph.identify_controlled_direct(x, y, cancel)? else {
+    let found = match graph.identify_controlled_direct(x, y, cancel) {
+        Err(e @ (GraphError::Hidden { .. } | GraphError::TooHard { .. })) => {
+            answer.why.push(format!("the controlled direct effect was not identified: {e}; nothing was fitted"));
+            return Ok(answer);
+        }
+        other => other?,
+    };
+    let Some(direct) = found else {
         answer.why.push(format!("a parent of {y} that {x} causes is hidden, so the controlled direct effect cannot hold it; nothing was fitted"));
         return Ok(answer);
     };
