@@ -65,17 +65,9 @@ fn covariance(sem: &Sem) -> Vec<Vec<f64>> {
         noise[*a][*b] += la * lb;
         noise[*b][*a] += la * lb;
     }
-    let mut cov = vec![vec![0.0; NODES]; NODES];
-    for i in 0..NODES {
-        for j in 0..NODES {
-            for k in 0..NODES {
-                for l in 0..NODES {
-                    cov[i][j] += t(k, i) * noise[k][l] * t(l, j);
-                }
-            }
-        }
-    }
-    cov
+    // cov[i][j] = Σ_k Σ_l T[k→i] · noise[k][l] · T[l→j].
+    let entry = |i: usize, j: usize| -> f64 { noise.iter().enumerate().map(|(k, row)| row.iter().enumerate().map(|(l, n)| t(k, i) * n * t(l, j)).sum::<f64>()).sum() };
+    (0..NODES).map(|i| (0..NODES).map(|j| entry(i, j)).collect()).collect()
 }
 
 /// Whether the row evaluator cannot take the formula: a ratio below the
@@ -107,7 +99,7 @@ fn nested_cases(seeds: std::ops::Range<u64>) -> Vec<(u64, usize, usize, Formula,
                 // and the complete algorithm's (the front door comes first).
                 let id = g.total_effect(&xs, &ys).unwrap();
                 let Some(beyond) = id.beyond.filter(|b| !id.identifiable && b.identified) else { continue };
-                if let Some(formula) = beyond.formula.filter(|f| beyond_rows(f)) {
+                if let Some(formula) = beyond.formula.filter(beyond_rows) {
                     out.push((seed, x, y, formula, beyond.also_set));
                 }
             }
