@@ -119,7 +119,7 @@ impl Beyond {
         }
         if !self.instruments_complete {
             out.push(format!(
-                "the instrument search stopped after {INSTRUMENT_TRIES} conditioning sets, so a node that is an instrument only given some larger set may be missing"
+                "the instrument search stopped at its limit of conditioning sets ({INSTRUMENT_TRIES}, fewer on a large graph), so a node that is an instrument only given some larger set may be missing"
             ));
         }
         out
