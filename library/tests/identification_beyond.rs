@@ -154,3 +154,20 @@ fn a_hidden_cause_of_thousands_of_nodes_is_refused_before_it_is_projected() {
     assert_eq!(beyond.route, "undetermined");
     assert!(beyond.reason.contains("more than 2000000 pairs"), "{}", beyond.reason);
 }
+
+#[test]
+fn instrument_search_says_when_it_stops_at_its_limit() {
+    // z ← c → y with x → y confounded by u: z is no instrument (its one
+    // path to x runs through the collider y), so every conditioning set is
+    // tried; with 20 more unconnected nodes there are 2^22 sets, beyond the
+    // limit, and the answer must say the list may be short.
+    let mut lines = vec!["c -> z".to_string(), "c -> y".to_string(), "x -> y".to_string(), "hidden u -> x, y".to_string()];
+    lines.extend((0..20).map(|i| format!("n{i}")));
+    let refs: Vec<&str> = lines.iter().map(String::as_str).collect();
+    let beyond = graph("wide", &refs).total_effect("x", "y").unwrap().beyond.expect("no adjustment set");
+    assert!(!beyond.instruments_complete);
+    assert!(beyond.lines().iter().any(|l| l.contains("stopped at its limit")), "{:?}", beyond.lines());
+    // Without the extra nodes the search settles every candidate.
+    let small = graph("narrow", &["c -> z", "c -> y", "x -> y", "hidden u -> x, y"]).total_effect("x", "y").unwrap().beyond.unwrap();
+    assert!(small.instruments_complete && small.instruments.is_empty(), "{small:?}");
+}

@@ -22,7 +22,7 @@ use serde::Serialize;
 use super::complete::{Complete, Hedge};
 use super::dag::Dag;
 use super::formula::Formula;
-use super::instruments::{Instrument, INSTRUMENT_ASSUMPTION};
+use super::instruments::{Instrument, INSTRUMENT_ASSUMPTION, INSTRUMENT_TRIES};
 use super::paths::{all_paths, Opening, RawPath};
 use super::separators::{minimal_adjustment_sets, SetSearch};
 use super::{Graph, GraphError};
@@ -96,6 +96,9 @@ pub struct Beyond {
     pub hedge: Option<Hedge>,
     /// Observed nodes that qualify as instruments for the effect.
     pub instruments: Vec<Instrument>,
+    /// Whether the instrument search settled every candidate (false when
+    /// its subset search reached its limit; the list may then be short).
+    pub instruments_complete: bool,
     /// Sentences saying what was found and why.
     pub reason: String,
 }
@@ -113,6 +116,11 @@ impl Beyond {
         }
         if !self.instruments.is_empty() {
             out.push(INSTRUMENT_ASSUMPTION.to_owned());
+        }
+        if !self.instruments_complete {
+            out.push(format!(
+                "the instrument search stopped at its limit of conditioning sets ({INSTRUMENT_TRIES}, fewer on a large graph), so a node that is an instrument only given some larger set may be missing"
+            ));
         }
         out
     }
@@ -243,7 +251,8 @@ impl Graph {
     /// for a total effect no adjustment set identifies.
     fn beyond_adjustment(&self, x: usize, y: usize, cancel: &AtomicBool) -> Result<Beyond, GraphError> {
         let (exposure, outcome) = (self.label(x).to_owned(), self.label(y).to_owned());
-        let instruments = self.instruments(x, y);
+        let search = self.instruments(x, y);
+        let (instruments, instruments_complete) = (search.found, search.complete);
         let set = [exposure.clone()];
         // Bound copies of the exposure and of the outcome are written primed.
         let free = [exposure.clone(), outcome.clone()];
@@ -265,6 +274,7 @@ impl Graph {
             formula: Some(formula),
             hedge: None,
             instruments: instruments.clone(),
+            instruments_complete,
             reason,
         };
         if let Some((m, formula)) = self.front_door_with_cancel(&exposure, &outcome, cancel)? {
@@ -288,6 +298,7 @@ impl Graph {
                     also_set: Vec::new(),
                     hedge: None,
                     instruments,
+                    instruments_complete,
                     reason: format!("No front-door set was found, and the complete identification algorithm was not run to the end: {e}."),
                 })
             }
@@ -319,6 +330,7 @@ impl Graph {
                     also_set: Vec::new(),
                     hedge: Some(hedge),
                     instruments,
+                    instruments_complete,
                     reason,
                 })
             }

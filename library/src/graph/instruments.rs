@@ -17,13 +17,39 @@
 //! anyone's exposure against its direction; then the ratio is the effect
 //! among those whose exposure Z moves; Imbens & Angrist 1994, recalled).
 //!
-//! W is one minimal separator of Z and Y among the allowed nodes; a node
-//! that qualifies only with some other W is not listed, so the list names
-//! instruments found, not necessarily every one.
+//! For each candidate Z the search first tries the two minimal separators
+//! of Z and Y in the graph without X's outgoing edges — the one nearest to
+//! Y and the one nearest to Z (van der Zander, Liśkiewicz & Textor 2015,
+//! "Efficiently finding conditional instruments for causal inference",
+//! IJCAI, search ancestral sets nearest to Y; recalled) — and, when neither
+//! leaves Z connected to X, every set of allowed nodes, smallest first. The
+//! ancestral sets alone miss instruments: a set may need a node that is no
+//! one's ancestor, a collider that opens Z's only path to X (Z ← U₁ → C ←
+//! U₂ → X with C observed: Z moves X only given C). When no allowed set
+//! separates Z and Y, none is tried, since then the allowed ancestors do
+//! not either (Tian, Paz & Pearl 1998, recalled). The subset search stops
+//! after [`INSTRUMENT_TRIES`] sets per graph (fewer on a large graph), and
+//! the answer then says the list may be short.
+//! `tests/python/test_instruments_reference.py` checks the list against
+//! networkx d-separation over every conditioning set on random small graphs.
 
 use serde::Serialize;
 
-use super::Graph;
+use super::{Graph, GraphError};
+
+/// The most conditioning sets the subset search tries for one effect.
+pub const INSTRUMENT_TRIES: usize = 200_000;
+
+/// The most node-and-edge visits the subset search may make.
+const INSTRUMENT_WORK: usize = 40_000_000;
+
+/// The instruments found, and whether every candidate was settled.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct InstrumentSearch {
+    pub(crate) found: Vec<Instrument>,
+    /// False when the subset search stopped at its limit.
+    pub(crate) complete: bool,
+}
 
 /// A node that qualifies as an instrument, and what to condition on.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -41,26 +67,105 @@ or, for a yes/no exposure, monotonicity (the instrument never pushes anyone's ex
 the effect among units whose exposure the instrument moves)";
 
 impl Graph {
+    /// Every observed node that is an instrument for the total effect of
+    /// `exposure` on `outcome` given some set of observed nodes, each with
+    /// one such set.
+    pub fn instruments_for(&self, exposure: &str, outcome: &str) -> Result<Vec<Instrument>, GraphError> {
+        let (x, y) = self.pair(exposure, outcome)?;
+        Ok(self.instruments(x, y).found)
+    }
+
     /// Observed nodes that are instruments for the total effect of `x` on
     /// `y` (indices already resolved), each with a conditioning set.
-    pub(crate) fn instruments(&self, x: usize, y: usize) -> Vec<Instrument> {
+    pub(crate) fn instruments(&self, x: usize, y: usize) -> InstrumentSearch {
         let cut = self.dag.keep_edges(|a, _| a != x);
         let below_x = self.dag.descendants_of(&[x]);
-        let mut out = Vec::new();
+        let limit = INSTRUMENT_TRIES.min(INSTRUMENT_WORK / (self.nodes.len() + self.edges.len() + 1)).max(1);
+        let mut search = Subsets { cut: &cut, tries: 0, limit, complete: true };
+        let mut found = Vec::new();
         for &z in &self.order {
             if z == x || z == y || self.nodes[z].hidden || below_x[z] {
                 continue;
             }
             let allowed: Vec<bool> =
                 (0..self.nodes.len()).map(|i| !self.nodes[i].hidden && !below_x[i] && i != z && i != x && i != y).collect();
-            let Some(w) = cut.minimal_separator(z, y, &allowed) else {
-                continue;
-            };
-            if self.dag.d_separated(&[z], &[x], &self.dag.mask_of(&w)) {
-                continue;
+            if let Some(w) = self.instrument_set(&mut search, x, y, z, &allowed) {
+                found.push(Instrument { node: self.label(z).to_owned(), given: self.owned_names(&self.dag.mask_of(&w)) });
             }
-            out.push(Instrument { node: self.label(z).to_owned(), given: self.owned_names(&self.dag.mask_of(&w)) });
         }
-        out
+        InstrumentSearch { found, complete: search.complete }
+    }
+
+    /// A set given which `z` is an instrument, if the search finds one.
+    fn instrument_set(&self, search: &mut Subsets, x: usize, y: usize, z: usize, allowed: &[bool]) -> Option<Vec<usize>> {
+        let works = |w: &[bool]| search.cut.d_separated(&[z], &[y], w) && !self.dag.d_separated(&[z], &[x], w);
+        let nearest_y = search.cut.minimal_separator(y, z, allowed)?;
+        let nearest_z = search.cut.minimal_separator(z, y, allowed)?;
+        for w in [nearest_y, nearest_z] {
+            if works(&self.dag.mask_of(&w)) {
+                return Some(w);
+            }
+        }
+        let members: Vec<usize> = (0..allowed.len()).filter(|&i| allowed[i]).collect();
+        for size in 0..=members.len() {
+            let mut pick: Vec<usize> = (0..size).collect();
+            loop {
+                if search.tries >= search.limit {
+                    search.complete = false;
+                    return None;
+                }
+                search.tries += 1;
+                let w: Vec<usize> = pick.iter().map(|&k| members[k]).collect();
+                if works(&self.dag.mask_of(&w)) {
+                    return Some(w);
+                }
+                if !next_combination(&mut pick, members.len()) {
+                    break;
+                }
+            }
+        }
+        None
+    }
+}
+
+/// The state of the subset search over one effect's candidates.
+struct Subsets<'g> {
+    cut: &'g super::dag::Dag,
+    tries: usize,
+    limit: usize,
+    complete: bool,
+}
+
+/// Advance `pick` (increasing indices below `n`) to the next combination of
+/// its size in lexicographic order; false after the last.
+fn next_combination(pick: &mut [usize], n: usize) -> bool {
+    let k = pick.len();
+    for i in (0..k).rev() {
+        if pick[i] < n - k + i {
+            pick[i] += 1;
+            for j in i + 1..k {
+                pick[j] = pick[j - 1] + 1;
+            }
+            return true;
+        }
+    }
+    false
+}
+
+#[cfg(test)]
+mod tests {
+    use super::next_combination;
+
+    #[test]
+    fn combinations_of_two_from_four_in_order() {
+        // C(4, 2) = 6 combinations, lexicographic.
+        let mut pick = vec![0, 1];
+        let mut all = vec![pick.clone()];
+        while next_combination(&mut pick, 4) {
+            all.push(pick.clone());
+        }
+        assert_eq!(all, vec![vec![0, 1], vec![0, 2], vec![0, 3], vec![1, 2], vec![1, 3], vec![2, 3]]);
+        let mut none: Vec<usize> = Vec::new();
+        assert!(!next_combination(&mut none, 3));
     }
 }

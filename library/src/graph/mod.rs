@@ -52,7 +52,7 @@ use std::collections::HashMap;
 pub use build::{GraphBuilder, ARROW, HIDDEN, MAX_EDGES};
 pub use dot::{from_dot, MAX_DOT_NESTING};
 pub use error::GraphError;
-pub use complete::{Complete, Hedge, IDENTIFY_STEPS};
+pub use complete::{Complete, ControlledDirect, Hedge, IDENTIFY_STEPS};
 pub use formula::Formula;
 pub use front_door::FRONT_DOOR_TRIES;
 pub use identify::{Beyond, EffectKind, Identification};

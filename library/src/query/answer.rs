@@ -12,7 +12,9 @@
 //! first for a category exposure, one unit above the mean against the mean
 //! for a numeric one. A total effect that no set identifies but a formula
 //! does (the front door, the complete algorithm) is estimated from that
-//! formula ([`super::formula_estimate`]). When the graph says the effect is
+//! formula ([`super::formula_estimate`]); a direct effect that no
+//! single-door set identifies, as a controlled direct effect by the
+//! complete algorithm ([`super::direct_formula`]). When the graph says the effect is
 //! not identifiable, nothing is fitted and the answer says why. When the graph itself says the
 //! effect is zero (no directed path, or no edge for a direct effect), that is
 //! the answer: nothing is fitted unless the caller asks to check the zero,
@@ -30,6 +32,7 @@ use crate::model::{Family, Model, ModelSpec};
 use crate::table::{ColumnData, Table};
 
 use super::contrast::{level_contrasts, Contrast, ContrastRequest};
+use super::direct_formula::direct_by_formula;
 use super::error::QueryError;
 use super::formula_estimate::{check_formula, formula_estimate};
 use super::support::require_column;
@@ -156,7 +159,7 @@ pub fn answer_effect_with_progress(
     }
     let formula_route = identification.beyond.as_ref().filter(|b| b.identified && kind == EffectKind::Total);
     if let (false, Some(beyond), Some(formula)) = (identification.identifiable, formula_route, formula_route.and_then(|b| b.formula.as_ref())) {
-        if let Err(why) = check_formula(formula, exposure, outcome, &beyond.also_set) {
+        if let Err(why) = check_formula(table, formula, exposure, outcome, &beyond.also_set) {
             answer.why.extend(beyond.lines());
             answer.why.push(format!("{why}; nothing was fitted"));
             return Ok(answer);
@@ -175,6 +178,9 @@ pub fn answer_effect_with_progress(
         answer.fit = Some(y_fit);
         answer.other_models = fitted;
         return Ok(answer);
+    }
+    if kind == EffectKind::Direct && !identification.identifiable && !identification.zero_by_graph {
+        return direct_by_formula(graph, table, exposure, outcome, options, method, cancel, mass, progress, answer);
     }
     let Some(set) = identification.adjustment_sets.first().filter(|_| identification.identifiable) else {
         if identification.identifiable {

@@ -63,6 +63,7 @@ use crate::table::{Column, ColumnData, Table};
 use super::answer::family_for;
 use super::contrast::{scale_words, Contrast, On};
 use super::error::QueryError;
+use super::formula_chain::{chain_estimate, chain_nodes};
 use super::support::{column_mean, drawn_column, interval_words, parameter_rows, require_column, stream_seed, ContrastSummary, Setting};
 
 /// The seed of the simulated node values.
@@ -200,12 +201,20 @@ pub(crate) fn formula_estimate_with(
     simulation: &FormulaSimulation,
 ) -> Result<FormulaFit, QueryError> {
     let place = format!("ask total effect of {x} on {y} by its identifying formula");
-    let plan = plan(formula, x, y, also_set, &place)?;
+    let plan = match plan(formula, x, y, also_set, &place) {
+        Ok(plan) => plan,
+        Err(shape) => {
+            if chain_nodes(table, formula, x, y, also_set, &place).is_err() {
+                return Err(shape);
+            }
+            return chain_estimate(table, x, y, formula, also_set, method, cancel, mass, progress, simulation, &[]);
+        }
+    };
     for c in &plan.copies {
         require_column(table, &c.column, &place)?;
         require_column(simulation.rows, &c.column, &place)?;
     }
-    let y_family = family_for(table, y, &place)?;
+    family_for(table, y, &place)?;
     let n = simulation.rows.nrows();
     check_memory(&format!("{place}: {} simulated node copies over {n} rows", plan.copies.len()), bytes_for(&[n.max(1), plan.copies.len().max(1), 2]))
         .map_err(QueryError::request)?;
@@ -238,36 +247,8 @@ pub(crate) fn formula_estimate_with(
             changes.push(under_to - under_from);
             means.push((under_to, under_from));
         }
-        let s = ContrastSummary::of(&changes, mass)?;
-        let is_probability = matches!(y_family, Family::Bernoulli | Family::Binomial { .. });
-        contrasts.push(Contrast {
-            contrast: format!("{x} {} vs {}", to.text(), from.text()),
-            model: outcome_model.name().to_string(),
-            variable: x.to_string(),
-            to: to.text(),
-            from: from.text(),
-            on: "means".to_string(),
-            scale: scale_words(outcome_model, On::Means, true),
-            in_outcome_unit: !is_probability,
-            unit: if is_probability { None } else { table.column(y).and_then(|c| c.unit.clone()) },
-            mean: s.mean,
-            lower: s.lower,
-            upper: s.upper,
-            share_above_zero: s.share_above_zero,
-            share_below_zero: s.share_below_zero,
-            mass,
-            interval: interval_words(mass),
-            held: Vec::new(),
-            held_how: how_words(&plan, &held, x, y, n, simulation.seed),
-            over_rows: true,
-            along: None,
-            grid: Vec::new(),
-            seed: Some(simulation.seed),
-            notes: Vec::new(),
-            draws: changes,
-            means,
-            level: None,
-        });
+        let how = how_words(&plan, &held, x, y, n, simulation.seed);
+        contrasts.push(formula_contrast(table, x, y, outcome_model, to, from, changes, means, mass, how, Some(simulation.seed))?);
     }
     if plan.weighted() && least_share < WEIGHT_SHARE_WARNING {
         warnings.push(format!(
@@ -280,10 +261,66 @@ pub(crate) fn formula_estimate_with(
     Ok(FormulaFit { conditionals, from_rows, contrasts, warnings })
 }
 
-/// Whether `formula` can be evaluated by simulation (see the module
-/// notes); the error says why not.
-pub fn check_formula(formula: &Formula, x: &str, y: &str, also_set: &[String]) -> Result<(), QueryError> {
-    plan(formula, x, y, also_set, &format!("ask total effect of {x} on {y} by its identifying formula")).map(|_| ())
+/// The contrast of `E[y | do(x)]` between two settings from its per-draw
+/// changes and means, with the simulation described in `held_how`.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn formula_contrast(
+    table: &Table,
+    x: &str,
+    y: &str,
+    outcome_model: &Model,
+    to: &Setting,
+    from: &Setting,
+    changes: Vec<f64>,
+    means: Vec<(f64, f64)>,
+    mass: f64,
+    held_how: String,
+    seed: Option<u64>,
+) -> Result<Contrast, QueryError> {
+    let s = ContrastSummary::of(&changes, mass)?;
+    let is_probability = matches!(outcome_model.family(), Family::Bernoulli | Family::Binomial { .. });
+    Ok(Contrast {
+        contrast: format!("{x} {} vs {}", to.text(), from.text()),
+        model: outcome_model.name().to_string(),
+        variable: x.to_string(),
+        to: to.text(),
+        from: from.text(),
+        on: "means".to_string(),
+        scale: scale_words(outcome_model, On::Means, true),
+        in_outcome_unit: !is_probability,
+        unit: if is_probability { None } else { table.column(y).and_then(|c| c.unit.clone()) },
+        mean: s.mean,
+        lower: s.lower,
+        upper: s.upper,
+        share_above_zero: s.share_above_zero,
+        share_below_zero: s.share_below_zero,
+        mass,
+        interval: interval_words(mass),
+        held: Vec::new(),
+        held_how,
+        over_rows: true,
+        along: None,
+        grid: Vec::new(),
+        seed,
+        notes: Vec::new(),
+        draws: changes,
+        means,
+        level: None,
+    })
+}
+
+/// Whether `formula` can be evaluated on `table`: by simulation over the
+/// rows (see the module notes), or else exactly on a chain of normal
+/// regressions ([`super::formula_chain`]); the error gives both reasons.
+pub fn check_formula(table: &Table, formula: &Formula, x: &str, y: &str, also_set: &[String]) -> Result<(), QueryError> {
+    let place = format!("ask total effect of {x} on {y} by its identifying formula");
+    let Err(shape) = plan(formula, x, y, also_set, &place) else {
+        return Ok(());
+    };
+    match chain_nodes(table, formula, x, y, also_set, &place) {
+        Ok(_) => Ok(()),
+        Err(chain) => Err(QueryError::request(format!("{shape}; {}", chain.to_string().trim_start_matches(&format!("{place}: "))))),
+    }
 }
 
 /// Every level against the first for a category exposure; mean + 1 vs mean
@@ -566,7 +603,7 @@ fn chain(copies: &[Copy], mut left: Vec<Factor>, place: &str) -> Result<Vec<(Fac
 }
 
 /// Build and fit `node from given… using T`, with the family of the node's kind.
-fn fit_conditional(
+pub(super) fn fit_conditional(
     table: &Table,
     node: &str,
     given: &[String],

@@ -192,7 +192,7 @@ impl FormulaRoute<'_> {
         }
         match self.joint.graph.identify_intervention_with_cancel(&[x.as_str()], &[w], cancel)? {
             Complete::Identified { formula, also_set } => {
-                check_formula(&formula, x, w, &also_set).map_err(|e| {
+                check_formula(self.table, &formula, x, w, &also_set).map_err(|e| {
                     QueryError::request(format!("{place}: {obstacle}; the effect of {x} on {w} is identifiable by {}, but {e}", formula_text(x, w, &formula, &also_set)))
                 })?;
                 Ok((w.to_string(), formula, also_set))

@@ -12,7 +12,9 @@
 //!   adjustment model and its contrasts, with the reason for the set, or,
 //!   where no set exists but a formula identifies the effect,
 //!   [`formula_estimate`]: the formula evaluated per posterior draw from
-//!   fitted conditionals.
+//!   fitted conditionals, or, for shapes that simulation over the rows
+//!   cannot take, [`formula_chain`]: evaluated exactly on a fitted chain
+//!   of normal regressions.
 //! * [`joint`]: one regression per observed node of a graph (a whole-graph
 //!   model), and [`intervene`]: simulated interventions through it.
 //! * [`mechanism`] and [`simulate`]: synthetic data from stated mechanisms,
@@ -40,6 +42,8 @@ pub mod calibrate;
 pub mod contrast;
 pub mod e_value;
 mod error;
+mod direct_formula;
+pub mod formula_chain;
 pub mod formula_estimate;
 pub mod hidden_refit;
 pub mod implications;
@@ -62,6 +66,7 @@ pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, pr
 pub use contrast::{contrast, level_contrasts, Contrast, ContrastRequest, GridPoint, GridRequest, HeldValue, On};
 pub use e_value::{bounding_factor, e_value, risk_ratio_robustness, RatioYardstick, RiskRatioRobustness, RATE_RATIO, RISK_RATIO, RISK_RATIO_STEPS};
 pub use error::QueryError;
+pub use direct_formula::DIRECT_FORMULA_ROUTE;
 pub use formula_estimate::{formula_estimate, FittedConditional, FormulaFit, FORMULA_SEED};
 pub use hidden_refit::{hidden_refit, HiddenRefit, RefitDiagnostics, StrengthSummary};
 pub use implications::{check_implications, ImplicationCheck, ImplicationsReport};

@@ -63,15 +63,22 @@ impl DirectRoutes<'_> {
         let unit = first.unit.as_deref();
         let set = self.answer.adjustment_set.clone().unwrap_or_default();
         let first_summary = first.summary();
-        let mut rows: Vec<(String, ContrastSummary)> = vec![(format!("adjustment (stratify by {})", set_words(&set)), first_summary.clone())];
+        // A direct effect no single-door set identifies comes by the
+        // complete algorithm's formula instead of an adjustment set.
+        let by_formula = self.answer.route.as_deref() != Some("adjustment");
+        let (first_name, first_short) = if by_formula { ("identifying formula".to_string(), "formula") } else { (format!("adjustment (stratify by {})", set_words(&set)), "adjustment") };
+        let mut rows: Vec<(String, ContrastSummary)> = vec![(first_name, first_summary.clone())];
         rows.extend(self.others.rows.iter().cloned());
-        let mut notes: Vec<String> = self.answer.estimand.iter().map(|e| format!("adjustment route's estimand: {e}")).collect();
+        let mut notes: Vec<String> = self.answer.estimand.iter().map(|e| format!("{first_short} route's estimand: {e}")).collect();
+        if by_formula {
+            notes.extend(self.answer.why.iter().cloned());
+        }
         let (joint_json, difference_json, joint_mean) = match &self.joint {
             Ok(route) => {
                 let s = route.contrast.summary();
                 let d = paired_difference(&first.draws, &route.contrast.draws, mass)?;
                 rows.push((format!("joint model (controlled direct effect, {} held)", held_words(&route.held)), s.clone()));
-                rows.push(("difference (adjustment − joint)".to_string(), d.clone()));
+                rows.push((format!("difference ({first_short} − joint)"), d.clone()));
                 notes.push(format!(
                     "the joint model's route sets {x} and holds the parents of {y} that {x} causes ({}); {y}'s node regression ({}) is then all the simulation needs, averaged over the rows' other parents",
                     held_words(&route.held),
@@ -100,18 +107,18 @@ impl DirectRoutes<'_> {
         notes.extend(self.others_note.iter().cloned());
         notes.extend(self.others.notes.iter().cloned());
         notes.push("the routes are fitted separately, so each difference pairs draws at random; it is wide by design".to_string());
-        notes.extend(self.answer.warnings.iter().map(|w| format!("adjustment route: {w}")));
+        notes.extend(self.answer.warnings.iter().map(|w| format!("{first_short} route: {w}")));
         notes.push(format!("fitted with {}; intervals are {}s", self.method, first.interval));
         notes.push(CAUSAL_NOTE.to_string());
         let count = 1 + self.others.json.len() + usize::from(joint_mean.is_some());
         let heading = match joint_mean {
             Some(m) => format!(
-                "direct effect of {x} on {y} in {g}, {}: {count} routes, adjustment {} vs joint model {}",
+                "direct effect of {x} on {y} in {g}, {}: {count} routes, {first_short} {} vs joint model {}",
                 first.contrast,
                 with_unit(first.mean, unit),
                 with_unit(m, unit)
             ),
-            None => format!("direct effect of {x} on {y} in {g}, {}: {count} route{}, adjustment {}", first.contrast, if count == 1 { "" } else { "s" }, with_unit(first.mean, unit)),
+            None => format!("direct effect of {x} on {y} in {g}, {}: {count} route{}, {first_short} {}", first.contrast, if count == 1 { "" } else { "s" }, with_unit(first.mean, unit)),
         };
         let mut grid = summary_grid(&["route"], mass);
         for (name, s) in &rows {
@@ -120,17 +127,23 @@ impl DirectRoutes<'_> {
             grid.push(row);
         }
         let (plain, html) = super::questions::render(&heading, &[], &[("", &grid)], &notes);
-        let mut named: Vec<(String, &[f64])> = vec![("adjustment route".to_string(), first.draws.as_slice())];
+        let mut named: Vec<(String, &[f64])> = vec![(format!("{first_short} route"), first.draws.as_slice())];
         if let Ok(route) = &self.joint {
             named.push(("joint route".to_string(), route.contrast.draws.as_slice()));
         }
         let svg = figures::differences(&format!("direct effect of {x} on {y}, {}: routes", first.contrast), table, y, &named, DensityArrangement::Shared).ok();
-        let mut adjustment_json = json_of(&first_summary);
-        adjustment_json["adjustment_set"] = json!(set);
-        adjustment_json["model"] = json!(self.answer.model_text);
+        let mut first_json = json_of(&first_summary);
+        first_json["model"] = json!(self.answer.model_text);
+        let (adjustment_json, formula_json) = if by_formula {
+            first_json["route"] = json!(self.answer.route);
+            (Value::Null, first_json)
+        } else {
+            first_json["adjustment_set"] = json!(set);
+            (first_json, Value::Null)
+        };
         let json = json!({
             "question": self.answer.question, "contrast": first.contrast, "to": first.to, "from": first.from,
-            "unit": first.unit, "interval_mass": mass, "identifiable": true,
+            "unit": first.unit, "interval_mass": mass, "identifiable": !by_formula, "formula_route": formula_json,
             "adjustment": adjustment_json, "joint": joint_json, "difference": difference_json,
             "other_sets": self.others.json, "front_door": null, "difference_front_door": null, "notes": notes,
         });

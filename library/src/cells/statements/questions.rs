@@ -599,7 +599,7 @@ pub(crate) fn compare_routes(
                           "adjustment": null, "joint": null, "difference": null, "notes": answer.why});
         return Ok(vec![Display { plain, html: Some(html), svg: None, json: Some(json) }]);
     };
-    if answer.route.as_deref() != Some("adjustment") {
+    if answer.route.as_deref() != Some("adjustment") && effect == EffectKind::Total {
         let second = joint_formula_route(&answer, graph, table, x, y, &method, mass, control, &label, line)?;
         return Ok(vec![formula_routes(&answer, x, y, g, mass, second)]);
     }

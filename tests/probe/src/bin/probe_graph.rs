@@ -6,7 +6,8 @@
 //! "exposure", "outcome"}`, `{"kind": "paths" | "listing", "from", "to", "given"}`,
 //! `{"kind": "implications"}`, `{"kind": "identify", "set": [..], "watch": [..]}` (the complete
 //! algorithm: `{"verdict": "identified", "formula"}` or `{"verdict": "not_identified", "hedge"}`),
-//! `{"kind": "front_door", "exposure", "outcome"}` (`[set, formula]` or null). `listing` answers with the bounded path listing
+//! `{"kind": "front_door", "exposure", "outcome"}` (`[set, formula]` or null),
+//! `{"kind": "instruments", "exposure", "outcome"}` (`[{"node", "given"}…]`). `listing` answers with the bounded path listing
 //! (`paths`, `complete`, `separated`, `directed_paths`).
 //!
 //! Answer: `{"graphs": [{"name", "error"?, "order", "answers": [..]}]}`, one answer per
@@ -71,6 +72,7 @@ fn answer_query(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
         "implications" => json!(graph.implications()),
         "identify" => json!(graph.identify_intervention(&strings(&q["set"]), &strings(&q["watch"]))?),
         "front_door" => json!(graph.front_door(&text("exposure"), &text("outcome"))?),
+        "instruments" => json!(graph.instruments_for(&text("exposure"), &text("outcome"))?),
         other => json!({ "error": format!("unknown query kind `{other}`") }),
     })
 }
