@@ -28,6 +28,7 @@ use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
+use super::steps::{StepTerm, DEFAULT_STEP_CONCENTRATION};
 use super::terms::recipe::mean_and_sd;
 use super::terms::groups::{GroupLayout, SlopeEvidence, VaryingSlope};
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
@@ -52,6 +53,7 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_scales(spec, table)?;
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
+    refuse_steps_with_levels(spec, &recipes)?;
     let mut groups = for_outcome_levels(plan_groups(spec, table, &recipes)?, spec, outcome.levels.as_deref());
     let blocks = predictor_blocks(spec, &outcome);
     let design = design_matrix(&recipes, table)?;
@@ -163,6 +165,14 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             Likelihood::Glm(glm_data(&design, &spec.family, &outcome).with_groups(group_indices(&design, &groups, &group_rows)))
         }
     };
+    let steps = step_terms(&recipes, &priors.coefficients);
+    if !steps.is_empty() && spec.family == Family::Normal {
+        notes.push(
+            "a steps term's effects are its whole effect times the shares, not linear in what is sampled, so a \
+             normal model with one is fitted by Laplace or NUTS, never by the exact normal draws"
+                .into(),
+        );
+    }
     Ok(Model {
         name: spec.name.clone(),
         outcome: spec.outcome.clone(),
@@ -184,9 +194,46 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         group_rows,
         pooling,
         family_prior,
+        steps,
         #[cfg(feature = "on_disk")]
         on_disk: None,
     })
+}
+
+/// The `steps(…)` terms among `recipes`, each with its first coefficient's
+/// position and the whole effect's prior (the one every step's slot holds).
+fn step_terms(recipes: &[TermRecipe], priors: &[Prior]) -> Vec<StepTerm> {
+    let mut at = 0;
+    let mut terms = Vec::new();
+    for recipe in recipes {
+        let width = recipe.labels().len();
+        if let TermRecipe::Steps { column, .. } = recipe {
+            terms.push(StepTerm {
+                column: column.clone(),
+                first: at,
+                steps: width,
+                concentration: DEFAULT_STEP_CONCENTRATION,
+                whole_prior: priors[at].clone(),
+            });
+        }
+        at += width;
+    }
+    terms
+}
+
+/// A category outcome (levels family) has one linear predictor per level;
+/// a steps term is not offered there.
+fn refuse_steps_with_levels(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelError> {
+    match recipes.iter().find(|r| matches!(r, TermRecipe::Steps { .. })) {
+        Some(TermRecipe::Steps { column, .. }) if spec.family == Family::Levels => Err(ModelError::Column {
+            column: column.clone(),
+            message: format!(
+                "a `steps({column})` term is not offered with a category outcome (family levels) yet; list `{column}` as \
+                 a plain term, or model the outcome as `family graded` if its levels are ordered"
+            ),
+        }),
+        _ => Ok(()),
+    }
 }
 
 /// The pooled groups of `spec` planned on `table`, checked against the

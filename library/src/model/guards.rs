@@ -77,7 +77,7 @@ pub fn check_design_size(spec: &ModelSpec, table: &Table) -> Result<(), ModelErr
         let width = match term {
             TermSpec::Spline { functions, .. } => *functions,
             TermSpec::Powers { degree, .. } => *degree,
-            TermSpec::Column(_) | TermSpec::Per { .. } | TermSpec::Pooled { .. } => continue,
+            TermSpec::Column(_) | TermSpec::Per { .. } | TermSpec::Pooled { .. } | TermSpec::Steps { .. } => continue,
         };
         check_memory(&format!("the term {term}: {width} columns over {rows} rows"), bytes_for(&[rows.max(1), width, 3]))
             .map_err(|message| ModelError::Term { term: term.to_string(), message: without_prefix(&message, term) })?;

@@ -15,7 +15,9 @@
 //!   intercept per level, a real column a slope), `<x> per <category>` (one
 //!   slope of x per level), `powers(<x>, <degree>)` (raw powers 1 to degree of
 //!   the standardised x), `spline(<x>, <functions>)`
-//!   or `spline(<x>, <functions>, knots <k1> <k2> …)`.
+//!   or `spline(<x>, <functions>, knots <k1> <k2> …)`, `steps(<c>)` or
+//!   `steps(<c>: <lowest>, …, <highest>)` (an ordered category whose effect
+//!   climbs or falls level by level, [`crate::model::steps`]).
 //! * A term `pooled <category>`: each level of the category departs from
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
@@ -77,8 +79,12 @@ pub const PER: &str = "per";
 pub const POWERS: &str = "powers";
 /// The B-spline term `spline(x, k[, knots …])`.
 pub const SPLINE: &str = "spline";
+/// The ordered-category term `steps(c)` or `steps(c: low, …, high)`: one
+/// whole effect from the lowest level to the highest, shared out over the
+/// steps between neighbouring levels, every step the same sign.
+pub const STEPS: &str = "steps";
 /// The terms written as calls.
-pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE];
+pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE, STEPS];
 /// The word before listed interior knots of a spline term.
 pub const KNOTS: &str = "knots";
 /// The term `pooled <category>`: one departure per level of the category,
@@ -116,6 +122,10 @@ pub enum TermSpec {
     /// `spline(x, k)`: k cubic B-spline basis functions of `x`, interior knots
     /// at quantiles unless listed.
     Spline { predictor: String, functions: usize, knots: Option<Vec<f64>> },
+    /// `steps(c)` or `steps(c: low, …, high)`: the ordered category `c`
+    /// with monotone steps, its levels in the table's declared order or
+    /// the order listed.
+    Steps { predictor: String, order: Option<Vec<String>> },
     /// `pooled c`: one departure per level of category `c` from the
     /// population, the departures normal around 0 with a learned spread;
     /// `pooled c with x` also gives each level a departure of the slope of
@@ -133,7 +143,8 @@ impl TermSpec {
             TermSpec::Column(name) | TermSpec::Pooled { by: name, .. } => name,
             TermSpec::Per { predictor, .. }
             | TermSpec::Powers { predictor, .. }
-            | TermSpec::Spline { predictor, .. } => predictor,
+            | TermSpec::Spline { predictor, .. }
+            | TermSpec::Steps { predictor, .. } => predictor,
         }
     }
 }
@@ -144,6 +155,8 @@ impl fmt::Display for TermSpec {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
             TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
+            TermSpec::Steps { predictor, order: None } => write!(f, "{STEPS}({predictor})"),
+            TermSpec::Steps { predictor, order: Some(levels) } => write!(f, "{STEPS}({predictor}: {})", levels.join(", ")),
             TermSpec::Pooled { by, within, with } => {
                 write!(f, "{POOLED} {by}")?;
                 if let Some(outer) = within {
@@ -529,6 +542,9 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     if let Some(inner) = call_arguments(text, SPLINE) {
         return parse_spline(inner, text);
     }
+    if let Some(inner) = call_arguments(text, STEPS) {
+        return parse_steps(inner, text);
+    }
     if let Some(rest) = text.strip_prefix(POOLED).filter(|rest| rest.starts_with(char::is_whitespace)) {
         return parse_pooled(rest.trim(), text);
     }
@@ -570,6 +586,35 @@ fn parse_spline(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
     };
     let functions = positive_integer(k, whole, "number of basis functions")?;
     Ok(TermSpec::Spline { predictor: identifier(x, "predictor")?, functions, knots })
+}
+
+/// `c` or `c: low, …, high` inside `steps( … )`.
+fn parse_steps(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
+    let usage = || {
+        ModelError::syntax(format!(
+            "`{whole}`: write {STEPS}(<category>) for its declared level order, or {STEPS}(<category>: <lowest>, …, \
+             <highest>) listing every level lowest first"
+        ))
+    };
+    let (name, listed) = match inner.split_once(':') {
+        Some((name, listed)) => (name, Some(listed)),
+        None => (inner, None),
+    };
+    let predictor = identifier(name.trim(), "category").map_err(|_| usage())?;
+    let order = match listed {
+        None => None,
+        Some(listed) => {
+            let levels: Vec<String> = listed.split(',').map(|l| l.trim().to_string()).collect();
+            if levels.iter().any(String::is_empty) {
+                return Err(usage());
+            }
+            if let Some(twice) = levels.iter().enumerate().find(|(i, l)| levels[..*i].contains(l)).map(|(_, l)| l) {
+                return Err(ModelError::syntax(format!("`{whole}`: level `{twice}` is listed twice; list each level once")));
+            }
+            Some(levels)
+        }
+    };
+    Ok(TermSpec::Steps { predictor, order })
 }
 
 fn parse_knots(listed: &str, whole: &str) -> Option<Result<Vec<f64>, ModelError>> {
