@@ -207,9 +207,10 @@ fn step_terms(recipes: &[TermRecipe], priors: &[Prior]) -> Vec<StepTerm> {
     let mut terms = Vec::new();
     for recipe in recipes {
         let width = recipe.labels().len();
-        if let TermRecipe::Steps { column, .. } = recipe {
+        if let TermRecipe::Steps { column, levels } = recipe {
             terms.push(StepTerm {
                 column: column.clone(),
+                levels: levels.clone(),
                 first: at,
                 steps: width,
                 concentration: DEFAULT_STEP_CONCENTRATION,

@@ -44,6 +44,12 @@ pub fn step_label(column: &str, lower: &str, upper: &str) -> String {
     format!("{column} {STEP}[{lower} to {upper}]")
 }
 
+/// The label of a step's share of the whole effect, derived from the
+/// draws for the estimates table: `grade share[none to mild]`.
+pub fn share_label(column: &str, lower: &str, upper: &str) -> String {
+    format!("{column} share[{lower} to {upper}]")
+}
+
 /// The label of the whole effect of a steps term, the name its prior is
 /// listed and declared under: `grade steps`.
 pub fn whole_effect_label(column: &str) -> String {
@@ -55,6 +61,8 @@ pub fn whole_effect_label(column: &str) -> String {
 pub struct StepTerm {
     /// The category column.
     pub column: String,
+    /// Its levels, lowest first.
+    pub levels: Vec<String>,
     /// The position of its first coefficient (the first step).
     pub first: usize,
     /// The number of steps, `K − 1`.
@@ -257,6 +265,7 @@ mod tests {
     fn term_gradient_matches_central_differences() {
         let term = StepTerm {
             column: "grade".into(),
+            levels: ["a", "b", "c", "d", "e"].map(String::from).to_vec(),
             first: 1,
             steps: 4,
             concentration: 2.5,
