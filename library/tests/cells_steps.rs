@@ -9,15 +9,16 @@ use common::cells::{last_json, run};
 use waypath::cells::Session;
 
 /// The yield climbs with the canopy by unequal steps, 1, 0.3, 2 and
-/// 0.7 kg, written as indicator terms of the stated levels: the effect
-/// at a level is the sum of the steps below it.
+/// 0.7 kg: a whole effect of 4 kg shared 0.25, 0.075, 0.5 and 0.175 by
+/// the mechanism's `steps(…)`; the effect at a level is the sum of the
+/// steps below it.
 const ORCHARD: &str = "graph g:
     canopy -> yield
     girth -> yield
 simulate orchard from g rows 400 seed 23:
     canopy = category(open 0.2, sparse 0.2, partial 0.2, dense 0.2, closed 0.2)
     girth = normal(20, 4)
-    yield = normal(10 + 1 * [canopy = sparse] + 1.3 * [canopy = partial] + 3.3 * [canopy = dense] + 4 * [canopy = closed] + 0.5 * girth, 1)
+    yield = normal(10 + steps(canopy, 4: sparse 0.25, partial 0.075, dense 0.5, closed 0.175) + 0.5 * girth, 1)
 ";
 const STEPS: [(&str, f64); 4] =
     [("open to sparse", 1.0), ("sparse to partial", 0.3), ("partial to dense", 2.0), ("dense to closed", 0.7)];
@@ -101,4 +102,14 @@ fn predictive_checks_run_on_a_steps_model() {
         assert_eq!(json["sets"], 50);
         assert!(json["statistics"].as_array().is_some_and(|s| !s.is_empty()), "{json}");
     }
+}
+
+#[test]
+fn a_steps_mechanism_names_real_levels_and_shares_adding_to_one() {
+    let mut session = Session::new(".");
+    let cell = |steps: &str| ORCHARD.replace("steps(canopy, 4: sparse 0.25, partial 0.075, dense 0.5, closed 0.175)", steps);
+    let error = run(&mut session, &cell("steps(canopy, 4: sparse 0.25, partial 0.075, thick 0.5, closed 0.175)")).error.expect("refused");
+    assert!(error.describe().contains("thick"), "{}", error.describe());
+    let error = run(&mut session, &cell("steps(canopy, 4: sparse 0.5, partial 0.075, dense 0.5, closed 0.175)")).error.expect("refused");
+    assert!(error.describe().contains("add to"), "{}", error.describe());
 }
