@@ -60,6 +60,7 @@ fn gradient_matches_finite_differences() {
         "yield from steps(canopy), girth using trees",
         "healthy from steps(canopy), girth using trees\nfamily bernoulli",
         "fruit from girth, steps(canopy) using trees\nfamily poisson\nprior for canopy steps: normal(1, 2)",
+        "yield from steps(canopy) using trees\nprior for canopy shares: dirichlet(0.7)",
     ]
     .iter()
     .enumerate()
@@ -84,6 +85,10 @@ fn labels_follow_the_stated_or_listed_order() {
     assert!(listed.coefficient_names().contains(&"canopy step[closed to dense]".to_string()), "{:?}", listed.coefficient_names());
     // The prior of the whole effect is listed under its own label.
     assert!(model.priors_used().iter().any(|u| u.parameters == ["canopy steps"]));
+    // The shares' concentration as declared, said in the notes.
+    let declared = build("yield from steps(canopy) using trees\nprior for canopy shares: dirichlet(3.5)", &table);
+    assert!(declared.notes().iter().any(|n| n.contains("dirichlet(3.5)")), "{:?}", declared.notes());
+    assert!(model.notes().iter().any(|n| n.contains("dirichlet(2)")), "{:?}", model.notes());
 }
 
 #[test]
@@ -99,6 +104,11 @@ fn unordered_or_mislisted_columns_are_refused_with_the_way_out() {
     assert!(error.contains("girth") && error.contains("category"), "{error}");
     let error = build_error("yield from steps(canopy), girth using trees\nprior for canopy step[open to sparse]: normal(0, 1)", &canopy_orchard(60, 3, true));
     assert!(error.contains("canopy steps"), "the labels listed name the whole effect: {error}");
+    let ordered = canopy_orchard(60, 3, true);
+    let error = build_error("yield from steps(canopy), girth using trees\nprior for girth shares: dirichlet(2)", &ordered);
+    assert!(error.contains("girth shares") && error.contains("`canopy shares`") && error.contains("line 3"), "{error}");
+    let error = model_fixtures::try_spec("yield from steps(canopy) using trees\nprior for canopy shares: dirichlet(0)").unwrap_err().to_string();
+    assert!(error.contains("α > 0"), "{error}");
 }
 
 /// Least squares on indicator columns (the textbook normal equations,

@@ -38,6 +38,8 @@
 //!   prior for that parameter alone. A label may itself hold a colon (a
 //!   category outcome's `form[shrub vs herb]: shade slope`): the
 //!   distribution follows the last one.
+//! * `prior for <c> shares: dirichlet(α)` — the prior of the shares of the
+//!   steps term `steps(c)`, the symmetric Dirichlet of concentration α.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
 //! * `parameterise <category> centred | noncentred | centred N` — how a
@@ -87,6 +89,9 @@ pub const STEPS: &str = "steps";
 pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE, STEPS];
 /// The word before listed interior knots of a spline term.
 pub const KNOTS: &str = "knots";
+/// The prior of a steps term's shares, `prior for grade shares:
+/// dirichlet(α)`: the symmetric Dirichlet with concentration α > 0.
+pub const DIRICHLET: &str = "dirichlet";
 /// The term `pooled <category>`: one departure per level of the category,
 /// drawn from a normal population whose spread the data teach (partial
 /// pooling; [`crate::model::terms::groups`]).
@@ -195,6 +200,8 @@ pub enum ModelLine {
     Prior { group: PriorGroup, prior: Prior },
     /// `prior for <label>: <distribution>`, the label's spaces collapsed to one.
     ParameterPrior { label: String, prior: Prior },
+    /// `prior for <column> shares: dirichlet(α)`, a steps term's shares.
+    SharePrior { label: String, concentration: f64 },
     Centring(bool),
     /// `parameterise <category> centred | noncentred`.
     Parameterise { group: String, layout: GroupLayout },
@@ -241,6 +248,19 @@ pub struct ModelSpec {
     pub layouts: Vec<(String, GroupLayout)>,
     /// The η of a `prior pooled correlations: lkj(η)` line, if written.
     pub correlation_prior: Option<f64>,
+    /// The Dirichlet concentrations declared for steps terms' shares
+    /// (`prior for grade shares: dirichlet(3)`).
+    pub share_priors: Vec<SharePrior>,
+}
+
+/// A declared prior of a steps term's shares.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SharePrior {
+    /// The cell line it was declared on (1-based).
+    pub line: usize,
+    /// The label as written, spaces collapsed: `grade shares`.
+    pub label: String,
+    pub concentration: f64,
 }
 
 impl ModelSpec {
@@ -257,6 +277,7 @@ impl ModelSpec {
         let mut centre = true;
         let mut layouts: Vec<(String, GroupLayout)> = Vec::new();
         let mut correlation_prior: Option<(usize, f64)> = None;
+        let mut share_priors: Vec<SharePrior> = Vec::new();
         for (line, text) in lines {
             let at = |e: ModelError| e.at_line(line);
             match parse_model_line(text).map_err(at)? {
@@ -279,6 +300,15 @@ impl ModelSpec {
                         ))));
                     }
                     parameter_priors.push(ParameterPrior { line, label, prior });
+                }
+                ModelLine::SharePrior { label, concentration } => {
+                    if let Some(first) = share_priors.iter().find(|p| p.label == label) {
+                        return Err(at(ModelError::syntax(format!(
+                            "a prior for `{label}` is already declared on line {}; keep one",
+                            first.line
+                        ))));
+                    }
+                    share_priors.push(SharePrior { line, label, concentration });
                 }
                 ModelLine::CorrelationPrior(eta) => {
                     set_once(&mut correlation_prior, line, eta, "prior for pooled correlations").map_err(at)?;
@@ -313,12 +343,20 @@ impl ModelSpec {
             formula_line: Some(formula_line),
             layouts,
             correlation_prior: correlation_prior.map(|(_, eta)| eta),
+            share_priors,
         })
     }
 
     /// The declared prior for a group, if any.
     pub fn declared_prior(&self, group: PriorGroup) -> Option<&Prior> {
         self.priors.iter().find(|(g, _)| *g == group).map(|(_, p)| p)
+    }
+
+    /// The Dirichlet concentration declared for the shares of the steps
+    /// term of `column` (`prior for <column> shares: dirichlet(α)`), if any.
+    pub fn share_concentration(&self, column: &str) -> Option<f64> {
+        let label = super::steps::shares_label(column);
+        self.share_priors.iter().find(|p| p.label == label).map(|p| p.concentration)
     }
 
     /// The prior declared for the parameter `label` itself, if any.
@@ -389,6 +427,15 @@ fn parse_parameter_prior(rest: &str) -> Result<ModelLine, ModelError> {
     let label = label.split_whitespace().collect::<Vec<_>>().join(" ");
     if label.is_empty() {
         return Err(usage());
+    }
+    if let Some(inner) = call_arguments(dist.trim(), DIRICHLET) {
+        let concentration = inner.trim().parse::<f64>().ok().filter(|a| *a > 0.0 && a.is_finite()).ok_or_else(|| {
+            ModelError::syntax(format!(
+                "`{PRIOR_LINE} {PRIOR_FOR} {rest}`: write `{DIRICHLET}(α)` with α > 0 (1 is flat over the shares, larger \
+                 values favour equal steps)"
+            ))
+        })?;
+        return Ok(ModelLine::SharePrior { label, concentration });
     }
     Ok(ModelLine::ParameterPrior { label, prior: Prior::parse(dist)? })
 }

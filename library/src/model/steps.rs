@@ -50,6 +50,12 @@ pub fn share_label(column: &str, lower: &str, upper: &str) -> String {
     format!("{column} share[{lower} to {upper}]")
 }
 
+/// The label a `prior for` line gives a steps term's shares, whose prior
+/// is `dirichlet(α)`: `grade shares`.
+pub fn shares_label(column: &str) -> String {
+    format!("{column} shares")
+}
+
 /// The label of the whole effect of a steps term, the name its prior is
 /// listed and declared under: `grade steps`.
 pub fn whole_effect_label(column: &str) -> String {

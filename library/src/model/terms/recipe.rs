@@ -178,14 +178,13 @@ impl Planner<'_> {
         }
         self.notes.push(format!(
             "{STEPS}({name}): {} in that order; the whole effect from {} to {}, `{}`, is shared out over the {} steps, \
-             every step of its sign, the shares with the prior dirichlet({}) (equal steps most likely a priori); the \
-             estimates are each step's effect",
+             every step of its sign, the shares with the prior dirichlet({}); the estimates are each step's effect",
             levels.join(" < "),
             levels[0],
             levels[levels.len() - 1],
             whole_effect_label(name),
             levels.len() - 1,
-            short_number(DEFAULT_STEP_CONCENTRATION)
+            short_number(self.spec.share_concentration(name).unwrap_or(DEFAULT_STEP_CONCENTRATION))
         ));
         self.recipes.push(TermRecipe::Steps { column: name.to_string(), levels });
         Ok(())
