@@ -30,6 +30,7 @@ fn canopy_orchard(n: usize, seed: u64, stated: bool) -> Table {
     let mut rng = StdRng::seed_from_u64(seed);
     let noise = Normal::new(0.0, 1.0).expect("valid normal");
     let (mut canopy, mut girth, mut yield_kg, mut healthy, mut fruit) = (vec![], vec![], vec![], vec![], vec![]);
+    let block: Vec<u32> = (0..n).map(|i| (i % 6) as u32).collect();
     for _ in 0..n {
         let level = rng.random_range(0..CANOPY.len() as u32);
         let g = 20.0 + 4.0 * noise.sample(&mut rng);
@@ -49,6 +50,7 @@ fn canopy_orchard(n: usize, seed: u64, stated: bool) -> Table {
             column("yield", ColumnData::Real(yield_kg)),
             column("healthy", ColumnData::Binary(healthy)),
             column("fruit", ColumnData::Count(fruit)),
+            column("block", category(block, &["b1", "b2", "b3", "b4", "b5", "b6"])),
         ],
     }
 }
@@ -61,6 +63,8 @@ fn gradient_matches_finite_differences() {
         "healthy from steps(canopy), girth using trees\nfamily bernoulli",
         "fruit from girth, steps(canopy) using trees\nfamily poisson\nprior for canopy steps: normal(1, 2)",
         "yield from steps(canopy) using trees\nprior for canopy shares: dirichlet(0.7)",
+        "yield from steps(canopy), girth, pooled block using trees",
+        "healthy from steps(canopy), pooled block using trees\nfamily bernoulli\nparameterise block noncentred",
     ]
     .iter()
     .enumerate()
@@ -83,6 +87,9 @@ fn labels_follow_the_stated_or_listed_order() {
     let unordered = canopy_orchard(60, 2, false);
     let listed = build("yield from steps(canopy: closed, dense, partial, sparse, open) using trees", &unordered);
     assert!(listed.coefficient_names().contains(&"canopy step[closed to dense]".to_string()), "{:?}", listed.coefficient_names());
+    // Not linear in the sampled coordinates: no exact normal draws.
+    assert!(model.normal_linear().is_none());
+    assert!(build("yield from canopy, girth using trees", &table).normal_linear().is_some());
     // The prior of the whole effect is listed under its own label.
     assert!(model.priors_used().iter().any(|u| u.parameters == ["canopy steps"]));
     // The shares' concentration as declared, said in the notes.
