@@ -41,6 +41,8 @@ fn canopy_orchard(n: usize, seed: u64, stated: bool) -> Table {
         healthy.push(rng.random::<f64>() < 1.0 / (1.0 + (-(effect - 2.0) * 0.6).exp()));
         fruit.push((3.0 + effect + rng.random_range(0.0..3.0)).floor() as u64);
     }
+    // An ordered outcome for the graded family: the yield cut at 11 and 13 kg.
+    let grade = category(yield_kg.iter().map(|y| u32::from(*y > 11.0) + u32::from(*y > 13.0)).collect(), &["low", "fair", "high"]);
     let canopy = column("canopy", category(canopy, &CANOPY));
     Table {
         name: "trees".into(),
@@ -51,6 +53,7 @@ fn canopy_orchard(n: usize, seed: u64, stated: bool) -> Table {
             column("healthy", ColumnData::Binary(healthy)),
             column("fruit", ColumnData::Count(fruit)),
             column("block", category(block, &["b1", "b2", "b3", "b4", "b5", "b6"])),
+            column("grade", grade).with_stated_order(),
         ],
     }
 }
@@ -64,6 +67,7 @@ fn gradient_matches_finite_differences() {
         "fruit from girth, steps(canopy) using trees\nfamily poisson\nprior for canopy steps: normal(1, 2)",
         "yield from steps(canopy) using trees\nprior for canopy shares: dirichlet(0.7)",
         "yield from steps(canopy), girth, pooled block using trees",
+        "grade from steps(canopy), girth using trees\nfamily graded",
         "healthy from steps(canopy), pooled block using trees\nfamily bernoulli\nparameterise block noncentred",
     ]
     .iter()
