@@ -625,6 +625,7 @@ mod tests {
             ("yield from spline(girth, 5, ", &["knots"]),
             ("fam", &["family"]),
             ("yield from rootstock, pow", &["powers("]),
+            ("yield from rootstock, ste", &["steps("]),
         ];
         for (line, want) in cases {
             assert_eq!(offered_in(&empty, "model m:", line), *want, "after {line:?}");
@@ -690,9 +691,9 @@ mod tests {
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
             ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "levels(", "normal(", "poisson(", "weibull("]),
-            ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
-            ("n = poisson(", &["departure(", "exp(", "log", "log("]),
-            ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),
+            ("f = bernoulli(", &["departure(", "exp(", "log(", "logit", "steps("]),
+            ("n = poisson(", &["departure(", "exp(", "log", "log(", "steps("]),
+            ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log(", "steps("]),
             ("x = no", &["normal("]),
         ];
         for (line, want) in cases {
