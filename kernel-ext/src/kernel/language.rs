@@ -164,10 +164,13 @@ fn label_rests(session: &Session, before: &str, typed: &str) -> Vec<String> {
     let Some(model) = session.model(name) else { return Vec::new() };
     let typed_label = typed.trim_start().strip_prefix(PRIOR_LINE).map(str::trim_start).and_then(|r| r.strip_prefix(PRIOR_FOR));
     let Some(typed_label) = typed_label.map(str::trim_start) else { return Vec::new() };
+    // A steps term's shares take `dirichlet(α)`, a prior that is no `PriorUse`.
+    let shares = model.step_terms().iter().map(|t| waypath::model::steps::shares_label(&t.column));
     model
         .priors_used()
         .iter()
-        .flat_map(|u| u.parameters.iter())
+        .flat_map(|u| u.parameters.iter().cloned())
+        .chain(shares)
         .filter_map(|label| label.strip_prefix(typed_label).map(str::to_string))
         .collect()
 }
@@ -625,6 +628,7 @@ mod tests {
             ("yield from spline(girth, 5, ", &["knots"]),
             ("fam", &["family"]),
             ("yield from rootstock, pow", &["powers("]),
+            ("yield from rootstock, ste", &["steps("]),
         ];
         for (line, want) in cases {
             assert_eq!(offered_in(&empty, "model m:", line), *want, "after {line:?}");
@@ -690,9 +694,9 @@ mod tests {
         let cases: &[(&str, &[&str])] = &[
             ("x ", &["="]),
             ("x = ", &["bernoulli(", "beta(", "category(", "exponential(", "gamma_poisson(", "graded(", "levels(", "normal(", "poisson(", "weibull("]),
-            ("f = bernoulli(", &["departure(", "exp(", "log(", "logit"]),
-            ("n = poisson(", &["departure(", "exp(", "log", "log("]),
-            ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log("]),
+            ("f = bernoulli(", &["departure(", "exp(", "log(", "logit", "steps("]),
+            ("n = poisson(", &["departure(", "exp(", "log", "log(", "steps("]),
+            ("x = normal(2 + 0.5 * ", &["departure(", "exp(", "log(", "steps("]),
             ("x = no", &["normal("]),
         ];
         for (line, want) in cases {
@@ -785,8 +789,15 @@ mod tests {
                 Column::new("girth", ColumnData::Real(vec![20.0, 31.0, 25.0, 28.0])),
                 Column::new("rootstock", ColumnData::Category { codes: vec![0, 1, 0, 1], levels: vec!["dwarf".into(), "standard".into()] }),
                 Column::new("yield", ColumnData::Real(vec![21.0, 40.0, 27.5, 36.0])),
+                Column::new("canopy", ColumnData::Category { codes: vec![0, 1, 2, 1], levels: vec!["low".into(), "mid".into(), "high".into()] })
+                    .with_stated_order(),
             ],
         });
+        let steps = "model s:\n    yield from steps(canopy) using trees\n";
+        let (cancel, progress) = (std::sync::atomic::AtomicBool::new(false), |_: &str| {});
+        assert!(session.run_cell(steps, &RunControl { cancel: &cancel, progress: &progress }).error.is_none());
+        // a steps term: its whole effect (a normal prior) and its shares (dirichlet)
+        assert_eq!(offered(&session, &format!("{steps}    prior for canopy s")), ["shares", "steps"]);
         let cell = "model m:\n    yield from rootstock, girth using trees\n";
         let (cancel, progress) = (std::sync::atomic::AtomicBool::new(false), |_: &str| {});
         assert!(session.run_cell(cell, &RunControl { cancel: &cancel, progress: &progress }).error.is_none());

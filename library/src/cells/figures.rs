@@ -424,6 +424,21 @@ pub fn shrinkage(s: &crate::query::Shrinkage, model: &Model, table: &Table) -> R
     shrinkage_figure(&subject, &value, &interval_label(s.mass), s.population, &rows)
 }
 
+/// The steps of an ordered category: each level's effect against the
+/// lowest, in the outcome's unit for a normal outcome, on the link scale
+/// otherwise.
+pub fn steps(levels: &[crate::query::steps::LevelEffect], column: &str, model: &Model, table: &Table, mass: f64) -> Result<String, PlotError> {
+    let (name, unit) = match model.family() {
+        Family::Normal => (format!("mean {} against the lowest {column}", model.outcome_name()), quantity(table, model.outcome_name()).unit),
+        _ => (format!("linear predictor of {} against the lowest {column}", model.outcome_name()), None),
+    };
+    let rows: Vec<crate::plot::StepLevel> = levels
+        .iter()
+        .map(|l| crate::plot::StepLevel { label: l.level.clone(), mean: l.mean, lower: l.lower, upper: l.upper })
+        .collect();
+    crate::plot::steps_figure(&format!("{column} in {}", model.name()), &Quantity { name, unit }, &interval_label(mass), &rows)
+}
+
 /// A contrast: the density of its per-draw differences with both sides of
 /// zero shaded, or, along a grid, its band with a zero line.
 pub fn contrast(c: &Contrast, table: &Table, outcome: &str) -> Result<String, PlotError> {

@@ -28,6 +28,7 @@ use super::outcome::{read_outcome, OutcomeValues};
 use super::posterior::{Likelihood, Model};
 use super::prior::Prior;
 use super::spec::{ModelSpec, TermSpec};
+use super::steps::{shares_label, StepTerm, DEFAULT_STEP_CONCENTRATION};
 use super::terms::recipe::mean_and_sd;
 use super::terms::groups::{GroupLayout, SlopeEvidence, VaryingSlope};
 use super::terms::{design_matrix, plan_terms, GroupTerm, TermRecipe};
@@ -52,6 +53,8 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     check_scales(spec, table)?;
     check_design_size(spec, table)?;
     let (recipes, mut notes) = plan_terms(spec, table)?;
+    refuse_steps_with_levels(spec, &recipes)?;
+    check_share_priors(spec, &recipes)?;
     let mut groups = for_outcome_levels(plan_groups(spec, table, &recipes)?, spec, outcome.levels.as_deref());
     let blocks = predictor_blocks(spec, &outcome);
     let design = design_matrix(&recipes, table)?;
@@ -163,6 +166,14 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
             Likelihood::Glm(glm_data(&design, &spec.family, &outcome).with_groups(group_indices(&design, &groups, &group_rows)))
         }
     };
+    let steps = step_terms(spec, &recipes, &priors.coefficients);
+    if !steps.is_empty() && spec.family == Family::Normal {
+        notes.push(
+            "a steps term's effects are its whole effect times the shares, not linear in what is sampled, so a \
+             normal model with one is fitted by Laplace or NUTS, never by the exact normal draws"
+                .into(),
+        );
+    }
     Ok(Model {
         name: spec.name.clone(),
         outcome: spec.outcome.clone(),
@@ -184,9 +195,71 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
         group_rows,
         pooling,
         family_prior,
+        steps,
         #[cfg(feature = "on_disk")]
         on_disk: None,
     })
+}
+
+/// The `steps(…)` terms among `recipes`, each with its first coefficient's
+/// position and the whole effect's prior (the one every step's slot holds).
+fn step_terms(spec: &ModelSpec, recipes: &[TermRecipe], priors: &[Prior]) -> Vec<StepTerm> {
+    let mut at = 0;
+    let mut terms = Vec::new();
+    for recipe in recipes {
+        let width = recipe.labels().len();
+        if let TermRecipe::Steps { column, levels } = recipe {
+            terms.push(StepTerm {
+                column: column.clone(),
+                levels: levels.clone(),
+                first: at,
+                steps: width,
+                concentration: spec.share_concentration(column).unwrap_or(DEFAULT_STEP_CONCENTRATION),
+                whole_prior: priors[at].clone(),
+            });
+        }
+        at += width;
+    }
+    terms
+}
+
+/// Every `prior for … shares: dirichlet(α)` names a steps term's shares;
+/// the error names the cell line and the labels there are.
+fn check_share_priors(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelError> {
+    let labels: Vec<String> = recipes
+        .iter()
+        .filter_map(|r| if let TermRecipe::Steps { column, .. } = r { Some(shares_label(column)) } else { None })
+        .collect();
+    match spec.share_priors.iter().find(|p| !labels.contains(&p.label)) {
+        None => Ok(()),
+        Some(declared) => Err(ModelError::Prior {
+            group: format!("`{}`", declared.label),
+            message: if labels.is_empty() {
+                "dirichlet(α) is the prior of a steps(…) term's shares, and this model has none".to_string()
+            } else {
+                format!(
+                    "dirichlet(α) is the prior of a steps(…) term's shares; this model's are {}",
+                    labels.iter().map(|l| format!("`{l}`")).collect::<Vec<_>>().join(", ")
+                )
+            },
+        }
+        .at_line(declared.line)),
+    }
+}
+
+/// A category outcome (levels family) has one linear predictor per level;
+/// a steps term is not offered there.
+fn refuse_steps_with_levels(spec: &ModelSpec, recipes: &[TermRecipe]) -> Result<(), ModelError> {
+    match recipes.iter().find(|r| matches!(r, TermRecipe::Steps { .. })) {
+        Some(TermRecipe::Steps { column, .. }) if spec.family == Family::Levels => Err(ModelError::Column {
+            column: column.clone(),
+            message: format!(
+                "a `steps({column})` term is not offered with a category outcome (family levels) yet; list `{column}` as \
+                 a plain term, or model the outcome as `family graded` if its levels are ordered"
+            ),
+        }),
+        _ => Ok(()),
+    }
 }
 
 /// The pooled groups of `spec` planned on `table`, checked against the

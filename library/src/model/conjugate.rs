@@ -38,6 +38,10 @@ impl Model {
         let Likelihood::Gaussian { stats, spread_prior } = &self.likelihood else {
             return None;
         };
+        if !self.steps.is_empty() {
+            // A step's effect is the whole effect times its share: not linear in what is sampled.
+            return None;
+        }
         if !self.pooling.is_empty() {
             // The departures' prior depends on their spread: not this layout.
             return None;

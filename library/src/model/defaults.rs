@@ -25,6 +25,14 @@
 //! its own `normal(centre, T)`, so the levels may differ by about √2·`T` on
 //! top of the slopes' budget.
 //!
+//! **Steps** of an ordered category (`steps(grade)`, [`super::steps`]):
+//! the whole effect from the lowest level to the highest, `grade steps`,
+//! gets `normal(0, T / (s·√K))` with `s` the mean sd of the term's
+//! indicator columns (about the sd of the rows' share of the whole effect)
+//! and the term counted once in `K`; the shares of the steps get the
+//! symmetric `dirichlet(2)`, equal steps most likely a priori and no share
+//! pushed to 0.
+//!
 //! **Spread** (normal family): `half_normal(s_y)`: with no predictor at all
 //! the spread is `s_y`; the prior keeps it below about 2·`s_y`.
 //!
@@ -107,6 +115,7 @@ use super::family::Family;
 use super::outcome::OutcomeValues;
 use super::prior::{short_number, Prior, PriorGroup, POSITIVE_DISTRIBUTIONS};
 use super::spec::ModelSpec;
+use super::steps::whole_effect_label;
 use super::terms::design::group_spread_label;
 use super::terms::recipe::{mean_and_sd, TermRecipe};
 use super::terms::GroupTerm;
@@ -215,7 +224,9 @@ pub fn assign_priors(
     // budget is per linear predictor, so count the first predictor's groups.
     let first_block = || groups.iter().filter(|g| g.block() == 0);
     let slopes = first_block().map(|g| g.slopes.len()).sum::<usize>();
-    let varying = columns.sd.len() - intercepts.len() + first_block().count() + slopes;
+    // A steps term varies as one column, its whole effect times the rows' share of it.
+    let step_extra: usize = recipes.iter().map(|r| if let TermRecipe::Steps { levels, .. } = r { levels.len() - 2 } else { 0 }).sum();
+    let varying = columns.sd.len() - intercepts.len() - step_extra + first_block().count() + slopes;
     let mut plan = PriorPlan {
         coefficients: Vec::new(),
         at_average_row: Vec::new(),
@@ -232,6 +243,19 @@ pub fn assign_priors(
             let labels: Vec<String> = recipe.labels().iter().map(|l| format!("{}{l}", block.prefix)).collect();
             let group = recipe.group();
             let intercept = matches!(recipe, TermRecipe::Intercept | TermRecipe::LevelIntercepts { .. });
+            if let TermRecipe::Steps { column: name, .. } = recipe {
+                let width = labels.len();
+                let score_sd = columns.sd[column..column + width].iter().sum::<f64>() / width as f64;
+                let label = format!("{}{}", block.prefix, whole_effect_label(name));
+                let used = choose(spec, group, label, || Prior::Normal { mean: 0.0, sd: share_of_budget(target, score_sd, varying) });
+                // Every step's slot carries the whole effect's prior; the density reads the first
+                // (`model::steps`), and the shares' Dirichlet prior is the term's own.
+                plan.coefficients.extend(std::iter::repeat_n(used.prior.clone(), width));
+                plan.at_average_row.extend(std::iter::repeat_n(false, width));
+                plan.uses.push(used);
+                column += width;
+                continue;
+            }
             for (k, label) in labels.into_iter().enumerate() {
                 let default = || {
                     if intercept {

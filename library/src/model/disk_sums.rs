@@ -91,9 +91,9 @@ impl RowLayout {
                     let by = layout.levels_input(by, levels);
                     layout.parts.extend((0..levels.len()).map(|level| Part::CentredAt { input, centre: *centre, by, level }));
                 }
-                TermRecipe::Powers { column, .. } | TermRecipe::Spline { column, .. } => {
+                TermRecipe::Powers { column, .. } | TermRecipe::Spline { column, .. } | TermRecipe::Steps { column, .. } => {
                     return Err(format!(
-                        "the terms powers(…) and spline(…) of {column} are not fitted on a table on disk yet; use {column} \
+                        "the terms powers(…), spline(…) and steps(…) of {column} are not fitted on a table on disk yet; use {column} \
                          as a plain slope, or load the table into memory (without \"stay on disk\")"
                     ));
                 }

@@ -77,6 +77,11 @@ pub fn check_design_size(spec: &ModelSpec, table: &Table) -> Result<(), ModelErr
         let width = match term {
             TermSpec::Spline { functions, .. } => *functions,
             TermSpec::Powers { degree, .. } => *degree,
+            // A steps term has a column per level after the lowest.
+            TermSpec::Steps { predictor, .. } => match table.column(predictor).and_then(|c| c.data.levels()) {
+                Some(levels) => levels.len().saturating_sub(1),
+                None => continue,
+            },
             TermSpec::Column(_) | TermSpec::Per { .. } | TermSpec::Pooled { .. } => continue,
         };
         check_memory(&format!("the term {term}: {width} columns over {rows} rows"), bytes_for(&[rows.max(1), width, 3]))

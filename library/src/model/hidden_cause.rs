@@ -78,7 +78,8 @@ impl<'m> HiddenCause<'m> {
     /// exposure; `None` when the model is not a normal regression without
     /// pooled groups or the exposure does not vary.
     pub fn new(model: &'m Model, slope: usize, to_exposure: Prior, to_outcome: Prior) -> Option<HiddenCause<'m>> {
-        if !model.has_spread() || model.first_group_index() != model.labels.len() + 1 {
+        // A steps term's slots are not linear coefficients (`model::steps`).
+        if !model.has_spread() || model.first_group_index() != model.labels.len() + 1 || !model.steps.is_empty() {
             return None;
         }
         let design = model.design_matrix();

@@ -44,7 +44,9 @@ impl Model {
         for recipe in &self.recipes {
             match recipe {
                 TermRecipe::Intercept => {}
-                TermRecipe::LevelIntercepts { column, levels } | TermRecipe::LevelOffsets { column, levels } => {
+                TermRecipe::LevelIntercepts { column, levels }
+                | TermRecipe::LevelOffsets { column, levels }
+                | TermRecipe::Steps { column, levels } => {
                     push(Input::Category { column: column.clone(), levels: levels.clone() })
                 }
                 TermRecipe::Slope { column, centre, .. } | TermRecipe::Powers { column, centre, .. } => {
@@ -86,7 +88,9 @@ impl Model {
         for recipe in &self.recipes {
             let reads = match recipe {
                 TermRecipe::Intercept => false,
-                TermRecipe::LevelIntercepts { column: c, .. } | TermRecipe::LevelOffsets { column: c, .. } => c == column,
+                TermRecipe::LevelIntercepts { column: c, .. }
+                | TermRecipe::LevelOffsets { column: c, .. }
+                | TermRecipe::Steps { column: c, .. } => c == column,
                 TermRecipe::Slope { column: c, .. } => {
                     if c == column {
                         found = Some(start);

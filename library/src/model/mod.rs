@@ -69,6 +69,7 @@ mod times;
 pub mod prior;
 pub mod spec;
 pub mod spline;
+pub mod steps;
 pub mod terms;
 
 pub use conjugate::NormalLinear;

@@ -194,6 +194,7 @@ fn build(spec: &ModelSpec, table: &DiskTable, cancel: &AtomicBool) -> Result<Mod
         group_rows: Vec::new(),
         pooling: Pooling::new(&[], &[], &[], priors.correlation_lkj, None, p),
         family_prior: None,
+        steps: Vec::new(),
         on_disk: Some(OnDisk { table: table.clone(), layout, rows: n as usize, nonzero: sums.nonzero, xtx, passes }),
     })
 }

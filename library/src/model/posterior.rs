@@ -22,6 +22,7 @@ use super::family::pooling::Pooling;
 use super::family::Family;
 use super::prior::Prior;
 use super::terms::design::is_spread_label;
+use super::steps::{whole_effect_label, StepTerm};
 use super::terms::{GroupTerm, TermRecipe};
 use super::LogDensity;
 
@@ -74,6 +75,10 @@ pub struct Model {
     /// GLM family that has one (gamma-poisson: the overdispersion); the
     /// normal family keeps its spread's prior in [`Likelihood::Gaussian`].
     pub(crate) family_prior: Option<Prior>,
+    /// The `steps(…)` terms: their slots of the unconstrained vector hold
+    /// the whole effect and the shares' stick-breaking coordinates, their
+    /// constrained values are the steps' effects ([`super::steps`]).
+    pub(crate) steps: Vec<StepTerm>,
     /// The table on disk the model was built on (no rows in `design`).
     #[cfg(feature = "on_disk")]
     pub(crate) on_disk: Option<super::on_disk::OnDisk>,
@@ -171,6 +176,12 @@ impl Model {
     /// spread, and so on for the family's parameter).
     pub fn unconstrained_names(&self) -> Vec<String> {
         let mut names = self.labels.clone();
+        for term in &self.steps {
+            let whole = whole_effect_label(&term.column);
+            for (k, name) in names[term.first..term.first + term.steps].iter_mut().enumerate() {
+                *name = if k == 0 { whole.clone() } else { format!("{whole} stick {k}") };
+            }
+        }
         if let Some(name) = self.family_parameter() {
             names.push(format!("log({name})"));
         }
@@ -197,10 +208,30 @@ impl Model {
             let cuts = cut_points(&params[p..]);
             params[p..].copy_from_slice(&cuts[1..]);
         }
+        for term in &self.steps {
+            term.write_effects(theta, &mut params);
+        }
         if theta.len() > first_group {
             params.extend(self.pooling.constrain(&theta[first_group..], &self.pooling.anchor(theta)));
         }
         params
+    }
+
+    /// The unconstrained point with every steps term's slots holding its
+    /// steps' effects: the coefficients the design multiplies, beside the
+    /// other coordinates unchanged.
+    fn with_step_effects(&self, theta: &[f64]) -> Vec<f64> {
+        let mut point = theta.to_vec();
+        for term in &self.steps {
+            term.write_effects(theta, &mut point);
+        }
+        point
+    }
+
+    /// Whether coefficient `j` is a slot of a steps term (its prior is the
+    /// term's own).
+    fn in_steps(&self, j: usize) -> bool {
+        self.steps.iter().any(|t| (t.first..t.first + t.steps).contains(&j))
     }
 
     /// The index of the first pooled group's parameter (after the
@@ -230,6 +261,11 @@ impl Model {
             Likelihood::Graded(graded) => graded.levels().saturating_sub(2),
             _ => usize::from(self.family_parameter().is_some()),
         }
+    }
+
+    /// The model's `steps(…)` terms ([`super::steps`]).
+    pub fn step_terms(&self) -> &[StepTerm] {
+        &self.steps
     }
 
     /// Pooled groups of the model, planned on the fitted data.
@@ -267,6 +303,12 @@ impl Model {
                 ),
             })?;
             theta[p..p + gaps.len()].copy_from_slice(&gaps);
+        }
+        for term in &self.steps {
+            let coordinates = term
+                .coordinates_of(&params[term.first..term.first + term.steps])
+                .map_err(|message| ModelError::Parameters { message })?;
+            theta[term.first..term.first + term.steps].copy_from_slice(&coordinates);
         }
         let first_group = self.first_group_index();
         let pooled = self.pooling.unconstrain(&params[first_group..], &self.pooling.anchor(params)).map_err(|at| ModelError::Parameters {
@@ -320,7 +362,7 @@ impl Model {
                 *value = moved;
             }
         }
-        let mut point = self.from_prior_values(values);
+        let mut point = self.dispersed_coefficients(values, z);
         for j in p..self.first_group_index() {
             point.push(self.start[j] + z.get(j).copied().unwrap_or(0.0));
         }
@@ -330,6 +372,29 @@ impl Model {
         let anchor = self.pooling.anchor(&self.start);
         point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[]), &anchor));
         point
+    }
+
+    /// The dispersed coefficients `values` as a starting point: each
+    /// anchored intercept moved back by the block's shift; a steps term's
+    /// slots become its whole effect (moved by `z` times its prior's
+    /// typical distance) and its stick coordinates (moved by `z`), the
+    /// shift reading the steps' effects they stand for.
+    fn dispersed_coefficients(&self, mut values: Vec<f64>, z: &[f64]) -> Vec<f64> {
+        if self.steps.is_empty() {
+            return self.from_prior_values(values);
+        }
+        for term in &self.steps {
+            let at = term.first;
+            values[at] = self.start[at] + z.get(at).copied().unwrap_or(0.0) * term.whole_prior.typical_distance();
+            for j in at + 1..at + term.steps {
+                values[j] = self.start[j] + z.get(j).copied().unwrap_or(0.0);
+            }
+        }
+        let mut shifted = self.from_prior_values(self.with_step_effects(&values));
+        for term in &self.steps {
+            shifted[term.first..term.first + term.steps].copy_from_slice(&values[term.first..term.first + term.steps]);
+        }
+        shifted
     }
 
     /// Every prior in use, declared or default, for printing.
@@ -357,8 +422,10 @@ impl Model {
 
     /// The full log-likelihood at constrained parameters `params`.
     pub fn log_likelihood(&self, params: &[f64]) -> Result<f64, ModelError> {
-        let theta = self.unconstrain(params)?;
+        let mut theta = self.unconstrain(params)?;
         let p = self.labels.len();
+        // The constrained coefficients are what the design multiplies (a steps term's effects).
+        theta[..p].copy_from_slice(&params[..p]);
         let coefficients = self.coefficients_with_departures(&theta);
         let mut scratch = vec![0.0; coefficients.len()];
         Ok(match &self.likelihood {
@@ -442,6 +509,9 @@ impl Model {
             let at = block * width;
             let shift = self.average_row_shift(betas, at);
             for (k, &b) in betas.iter().enumerate() {
+                if self.in_steps(at + k) {
+                    continue;
+                }
                 let anchored = self.at_average_row[at + k];
                 let (lp, d) = self.coefficient_priors[at + k].log_density_and_derivative(if anchored { b + shift } else { b });
                 total += lp;
@@ -516,7 +586,32 @@ impl LogDensity for Model {
         self.first_group_index() + self.pooling.dim()
     }
 
+    /// With steps terms: the density at the steps' effects, its gradient
+    /// in them pulled back to each term's coordinates with the term's
+    /// priors and Jacobian ([`StepTerm::pull_back`]).
     fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        if self.steps.is_empty() {
+            return self.linear_log_density_and_gradient(theta, grad);
+        }
+        let mut total = self.linear_log_density_and_gradient(&self.with_step_effects(theta), grad);
+        if total == f64::NEG_INFINITY {
+            return total;
+        }
+        for term in &self.steps {
+            total += term.pull_back(theta, grad);
+        }
+        if total.is_finite() {
+            total
+        } else {
+            f64::NEG_INFINITY
+        }
+    }
+}
+
+impl Model {
+    /// The log density at `theta` whose coefficients are all linear (a
+    /// steps term's slots holding its steps' effects, without its priors).
+    fn linear_log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
         let p = self.labels.len();
         let mut total = self.log_prior_of_coefficients(&theta[..p], &mut grad[..p]);
         if total == f64::NEG_INFINITY {

@@ -15,7 +15,9 @@
 //!   intercept per level, a real column a slope), `<x> per <category>` (one
 //!   slope of x per level), `powers(<x>, <degree>)` (raw powers 1 to degree of
 //!   the standardised x), `spline(<x>, <functions>)`
-//!   or `spline(<x>, <functions>, knots <k1> <k2> …)`.
+//!   or `spline(<x>, <functions>, knots <k1> <k2> …)`, `steps(<c>)` or
+//!   `steps(<c>: <lowest>, …, <highest>)` (an ordered category whose effect
+//!   climbs or falls level by level, [`crate::model::steps`]).
 //! * A term `pooled <category>`: each level of the category departs from
 //!   the population's prediction by its own amount, the departures drawn
 //!   from `normal(0, <category> spread)` with the spread learned (partial
@@ -36,6 +38,8 @@
 //!   prior for that parameter alone. A label may itself hold a colon (a
 //!   category outcome's `form[shrub vs herb]: shade slope`): the
 //!   distribution follows the last one.
+//! * `prior for <c> shares: dirichlet(α)` — the prior of the shares of the
+//!   steps term `steps(c)`, the symmetric Dirichlet of concentration α.
 //! * `centre on | off` — whether real predictors are centred at their mean
 //!   (on by default).
 //! * `parameterise <category> centred | noncentred | centred N` — how a
@@ -77,10 +81,17 @@ pub const PER: &str = "per";
 pub const POWERS: &str = "powers";
 /// The B-spline term `spline(x, k[, knots …])`.
 pub const SPLINE: &str = "spline";
+/// The ordered-category term `steps(c)` or `steps(c: low, …, high)`: one
+/// whole effect from the lowest level to the highest, shared out over the
+/// steps between neighbouring levels, every step the same sign.
+pub const STEPS: &str = "steps";
 /// The terms written as calls.
-pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE];
+pub const TERM_CALLS: &[&str] = &[POWERS, SPLINE, STEPS];
 /// The word before listed interior knots of a spline term.
 pub const KNOTS: &str = "knots";
+/// The prior of a steps term's shares, `prior for grade shares:
+/// dirichlet(α)`: the symmetric Dirichlet with concentration α > 0.
+pub const DIRICHLET: &str = "dirichlet";
 /// The term `pooled <category>`: one departure per level of the category,
 /// drawn from a normal population whose spread the data teach (partial
 /// pooling; [`crate::model::terms::groups`]).
@@ -116,6 +127,10 @@ pub enum TermSpec {
     /// `spline(x, k)`: k cubic B-spline basis functions of `x`, interior knots
     /// at quantiles unless listed.
     Spline { predictor: String, functions: usize, knots: Option<Vec<f64>> },
+    /// `steps(c)` or `steps(c: low, …, high)`: the ordered category `c`
+    /// with monotone steps, its levels in the table's declared order or
+    /// the order listed.
+    Steps { predictor: String, order: Option<Vec<String>> },
     /// `pooled c`: one departure per level of category `c` from the
     /// population, the departures normal around 0 with a learned spread;
     /// `pooled c with x` also gives each level a departure of the slope of
@@ -133,7 +148,8 @@ impl TermSpec {
             TermSpec::Column(name) | TermSpec::Pooled { by: name, .. } => name,
             TermSpec::Per { predictor, .. }
             | TermSpec::Powers { predictor, .. }
-            | TermSpec::Spline { predictor, .. } => predictor,
+            | TermSpec::Spline { predictor, .. }
+            | TermSpec::Steps { predictor, .. } => predictor,
         }
     }
 }
@@ -144,6 +160,8 @@ impl fmt::Display for TermSpec {
             TermSpec::Column(name) => write!(f, "{name}"),
             TermSpec::Per { predictor, by } => write!(f, "{predictor} per {by}"),
             TermSpec::Powers { predictor, degree } => write!(f, "{POWERS}({predictor}, {degree})"),
+            TermSpec::Steps { predictor, order: None } => write!(f, "{STEPS}({predictor})"),
+            TermSpec::Steps { predictor, order: Some(levels) } => write!(f, "{STEPS}({predictor}: {})", levels.join(", ")),
             TermSpec::Pooled { by, within, with } => {
                 write!(f, "{POOLED} {by}")?;
                 if let Some(outer) = within {
@@ -182,6 +200,8 @@ pub enum ModelLine {
     Prior { group: PriorGroup, prior: Prior },
     /// `prior for <label>: <distribution>`, the label's spaces collapsed to one.
     ParameterPrior { label: String, prior: Prior },
+    /// `prior for <column> shares: dirichlet(α)`, a steps term's shares.
+    SharePrior { label: String, concentration: f64 },
     Centring(bool),
     /// `parameterise <category> centred | noncentred`.
     Parameterise { group: String, layout: GroupLayout },
@@ -228,6 +248,19 @@ pub struct ModelSpec {
     pub layouts: Vec<(String, GroupLayout)>,
     /// The η of a `prior pooled correlations: lkj(η)` line, if written.
     pub correlation_prior: Option<f64>,
+    /// The Dirichlet concentrations declared for steps terms' shares
+    /// (`prior for grade shares: dirichlet(3)`).
+    pub share_priors: Vec<SharePrior>,
+}
+
+/// A declared prior of a steps term's shares.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SharePrior {
+    /// The cell line it was declared on (1-based).
+    pub line: usize,
+    /// The label as written, spaces collapsed: `grade shares`.
+    pub label: String,
+    pub concentration: f64,
 }
 
 impl ModelSpec {
@@ -244,6 +277,7 @@ impl ModelSpec {
         let mut centre = true;
         let mut layouts: Vec<(String, GroupLayout)> = Vec::new();
         let mut correlation_prior: Option<(usize, f64)> = None;
+        let mut share_priors: Vec<SharePrior> = Vec::new();
         for (line, text) in lines {
             let at = |e: ModelError| e.at_line(line);
             match parse_model_line(text).map_err(at)? {
@@ -266,6 +300,15 @@ impl ModelSpec {
                         ))));
                     }
                     parameter_priors.push(ParameterPrior { line, label, prior });
+                }
+                ModelLine::SharePrior { label, concentration } => {
+                    if let Some(first) = share_priors.iter().find(|p| p.label == label) {
+                        return Err(at(ModelError::syntax(format!(
+                            "a prior for `{label}` is already declared on line {}; keep one",
+                            first.line
+                        ))));
+                    }
+                    share_priors.push(SharePrior { line, label, concentration });
                 }
                 ModelLine::CorrelationPrior(eta) => {
                     set_once(&mut correlation_prior, line, eta, "prior for pooled correlations").map_err(at)?;
@@ -300,12 +343,20 @@ impl ModelSpec {
             formula_line: Some(formula_line),
             layouts,
             correlation_prior: correlation_prior.map(|(_, eta)| eta),
+            share_priors,
         })
     }
 
     /// The declared prior for a group, if any.
     pub fn declared_prior(&self, group: PriorGroup) -> Option<&Prior> {
         self.priors.iter().find(|(g, _)| *g == group).map(|(_, p)| p)
+    }
+
+    /// The Dirichlet concentration declared for the shares of the steps
+    /// term of `column` (`prior for <column> shares: dirichlet(α)`), if any.
+    pub fn share_concentration(&self, column: &str) -> Option<f64> {
+        let label = super::steps::shares_label(column);
+        self.share_priors.iter().find(|p| p.label == label).map(|p| p.concentration)
     }
 
     /// The prior declared for the parameter `label` itself, if any.
@@ -376,6 +427,15 @@ fn parse_parameter_prior(rest: &str) -> Result<ModelLine, ModelError> {
     let label = label.split_whitespace().collect::<Vec<_>>().join(" ");
     if label.is_empty() {
         return Err(usage());
+    }
+    if let Some(inner) = call_arguments(dist.trim(), DIRICHLET) {
+        let concentration = inner.trim().parse::<f64>().ok().filter(|a| *a > 0.0 && a.is_finite()).ok_or_else(|| {
+            ModelError::syntax(format!(
+                "`{PRIOR_LINE} {PRIOR_FOR} {rest}`: write `{DIRICHLET}(α)` with α > 0 (1 is flat over the shares, larger \
+                 values favour equal steps)"
+            ))
+        })?;
+        return Ok(ModelLine::SharePrior { label, concentration });
     }
     Ok(ModelLine::ParameterPrior { label, prior: Prior::parse(dist)? })
 }
@@ -529,6 +589,9 @@ fn parse_term(text: &str) -> Result<TermSpec, ModelError> {
     if let Some(inner) = call_arguments(text, SPLINE) {
         return parse_spline(inner, text);
     }
+    if let Some(inner) = call_arguments(text, STEPS) {
+        return parse_steps(inner, text);
+    }
     if let Some(rest) = text.strip_prefix(POOLED).filter(|rest| rest.starts_with(char::is_whitespace)) {
         return parse_pooled(rest.trim(), text);
     }
@@ -570,6 +633,35 @@ fn parse_spline(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
     };
     let functions = positive_integer(k, whole, "number of basis functions")?;
     Ok(TermSpec::Spline { predictor: identifier(x, "predictor")?, functions, knots })
+}
+
+/// `c` or `c: low, …, high` inside `steps( … )`.
+fn parse_steps(inner: &str, whole: &str) -> Result<TermSpec, ModelError> {
+    let usage = || {
+        ModelError::syntax(format!(
+            "`{whole}`: write {STEPS}(<category>) for its declared level order, or {STEPS}(<category>: <lowest>, …, \
+             <highest>) listing every level lowest first"
+        ))
+    };
+    let (name, listed) = match inner.split_once(':') {
+        Some((name, listed)) => (name, Some(listed)),
+        None => (inner, None),
+    };
+    let predictor = identifier(name.trim(), "category").map_err(|_| usage())?;
+    let order = match listed {
+        None => None,
+        Some(listed) => {
+            let levels: Vec<String> = listed.split(',').map(|l| l.trim().to_string()).collect();
+            if levels.iter().any(String::is_empty) {
+                return Err(usage());
+            }
+            if let Some(twice) = levels.iter().enumerate().find(|(i, l)| levels[..*i].contains(l)).map(|(_, l)| l) {
+                return Err(ModelError::syntax(format!("`{whole}`: level `{twice}` is listed twice; list each level once")));
+            }
+            Some(levels)
+        }
+    };
+    Ok(TermSpec::Steps { predictor, order })
 }
 
 fn parse_knots(listed: &str, whole: &str) -> Option<Result<Vec<f64>, ModelError>> {

@@ -194,7 +194,17 @@ pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryErro
         Ok(used.prior.sample(rng))
     };
     let first_group = model.first_group_index();
-    let mut values: Vec<f64> = names[..first_group].iter().map(|n| sample(n, rng)).collect::<Result<_, QueryError>>()?;
+    let steps = model.step_terms();
+    let in_steps = |j: usize| steps.iter().any(|t| (t.first..t.first + t.steps).contains(&j));
+    let mut values: Vec<f64> = names[..first_group]
+        .iter()
+        .enumerate()
+        .map(|(j, n)| if in_steps(j) { Ok(0.0) } else { sample(n, rng) })
+        .collect::<Result<_, QueryError>>()?;
+    for term in steps {
+        let effects = step_effects_draw(term, rng).map_err(|e| QueryError::request(format!("model {}: {e}", model.name())))?;
+        values[term.first..term.first + term.steps].copy_from_slice(&effects);
+    }
     let mut at = first_group;
     for group in model.pooled_groups() {
         let (n, k) = (group.levels.len(), 1 + group.slopes.len());
@@ -215,6 +225,19 @@ pub fn prior_draw(model: &Model, rng: &mut StdRng) -> Result<Vec<f64>, QueryErro
         at += k * (1 + n) + pair_count(k);
     }
     Ok(model.from_prior_values(values))
+}
+
+/// A steps term's effects drawn from its priors: the whole effect from its
+/// normal prior times shares from the symmetric Dirichlet, drawn as
+/// independent gamma(α, 1) values over their sum (the Dirichlet's gamma
+/// representation, e.g. Devroye 1986, Non-Uniform Random Variate
+/// Generation, §XI.4 (recalled)).
+fn step_effects_draw(term: &crate::model::steps::StepTerm, rng: &mut StdRng) -> Result<Vec<f64>, String> {
+    let whole = term.whole_prior.sample(rng);
+    let gamma = rand_distr::Gamma::new(term.concentration, 1.0).map_err(|e| format!("the steps' prior cannot be drawn ({e})"))?;
+    let raw: Vec<f64> = (0..term.steps).map(|_| rand_distr::Distribution::sample(&gamma, rng)).collect();
+    let sum: f64 = raw.iter().sum();
+    Ok(raw.iter().map(|g| whole * g / sum).collect())
 }
 
 /// The Cholesky factor of a `k × k` correlation matrix drawn from the

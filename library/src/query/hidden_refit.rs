@@ -116,7 +116,7 @@ pub fn hidden_refit(
     })?;
     let density = HiddenCause::new(model, slope, to_exposure.1, to_outcome.1).ok_or_else(|| {
         QueryError::request(format!(
-            "{place}: the refit takes a normal outcome without pooled groups and an exposure that varies; model {} is not one",
+            "{place}: the refit takes a normal outcome without pooled groups or steps(…) terms and an exposure that varies; model {} is not one",
             model.name()
         ))
     })?;

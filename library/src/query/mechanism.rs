@@ -24,7 +24,9 @@
 //! after the first with the cut below it (increasing numbers), what a
 //! `graded` model assumes. Expressions use numbers, parent
 //! names, `+ - * /`, parentheses, `log(…)`, `exp(…)` and indicators
-//! `[c = level]` (1 when category c is at that level, else 0), and
+//! `[c = level]` (1 when category c is at that level, else 0),
+//! `steps(c, whole: level share, …)` (monotone steps of an ordered
+//! category, written out as indicators of the named levels), and
 //! `departure(c, spread)`: clustered data. Each level of category c gets its
 //! own departure, drawn once per simulation from `normal(0, spread)` (the
 //! spread a positive number), and a row takes the departure of its level —
@@ -86,8 +88,17 @@ pub const LOGIT: &str = "logit";
 /// The keyword of a poisson mechanism given on the log scale.
 pub const LOG: &str = "log";
 /// The functions of a mechanism expression: `log(…)`, `exp(…)`,
-/// `departure(category, spread)`.
-pub const FUNCTIONS: &[&str] = &[LOG, EXP, DEPARTURE];
+/// `departure(category, spread)`, `steps(category, whole: level share, …)`.
+pub const FUNCTIONS: &[&str] = &[LOG, EXP, DEPARTURE, STEPS];
+/// Monotone steps of an ordered category parent: `steps(canopy, 4:
+/// sparse 0.25, partial 0.1, dense 0.5, closed 0.15)` adds, at each level
+/// named, the whole effect times the shares of the steps up to it (0 at
+/// the lowest level, left unnamed), the same effects a model's
+/// `steps(canopy)` term learns. It is written out as indicators, so every
+/// other part of a simulation reads it as such.
+pub const STEPS: &str = "steps";
+/// The most levels a `steps(…)` of a mechanism may name.
+const MOST_STEP_LEVELS: usize = 100;
 const EXP: &str = "exp";
 /// The word of a per-level departure drawn from a stated spread.
 pub const DEPARTURE: &str = "departure";
@@ -919,6 +930,10 @@ impl Parser<'_> {
                         self.at += 1;
                         Ok((self.departure()?, 1))
                     }
+                    (STEPS, Some('(')) => {
+                        self.at += 1;
+                        self.steps()
+                    }
                     (LOG | EXP, Some('(')) => {
                         self.at += 1;
                         let (inner, depth) = self.sum()?;
@@ -1028,6 +1043,67 @@ impl Parser<'_> {
             with_slopes,
             within: within.map(str::to_string),
         }))
+    }
+
+    /// The inside of `steps(category, whole: level share, …)` after its
+    /// `(`, up to and including the `)`: the sum over the named levels of
+    /// `whole · (shares up to the level) · [category = level]`.
+    fn steps(&mut self) -> Result<Parsed, String> {
+        let form = "steps(category, whole: level share, level share, …) with each level above the lowest, lowest first, and \
+                    the share of the whole effect its step takes (shares at least 0, adding to 1), like steps(canopy, 4: \
+                    sparse 0.25, partial 0.1, dense 0.5, closed 0.15)";
+        let start = self.chars.get(self.at).map_or(self.text.len(), |&(i, _)| i);
+        let close = self.text[start..].find(')').ok_or_else(|| format!("a `)` is missing in `{}`; write {form}", self.text.trim()))?;
+        let inside = &self.text[start..start + close];
+        let usage = || format!("`steps({inside})` needs the form {form}");
+        let (head, listed) = inside.split_once(':').ok_or_else(usage)?;
+        let (name, whole) = head.split_once(',').ok_or_else(usage)?;
+        let name = name.trim();
+        let whole: f64 = whole.trim().parse().ok().filter(|w: &f64| w.is_finite()).ok_or_else(usage)?;
+        if !is_name(name) {
+            return Err(usage());
+        }
+        let mut steps: Vec<(String, f64)> = Vec::new();
+        for item in listed.split(',') {
+            let (level, share) = item.trim().rsplit_once(char::is_whitespace).ok_or_else(usage)?;
+            let share: f64 = share.parse().ok().filter(|s: &f64| *s >= 0.0 && s.is_finite()).ok_or_else(|| {
+                format!("`steps({inside})`: the share of {} must be a number of at least 0", level.trim())
+            })?;
+            let level = level.trim().to_string();
+            if steps.iter().any(|(l, _)| *l == level) {
+                return Err(format!("`steps({inside})`: level {level} is named twice; name each level above the lowest once"));
+            }
+            steps.push((level, share));
+        }
+        if steps.len() > MOST_STEP_LEVELS {
+            return Err(format!("`steps(…)` of {name} names {} levels; at most {MOST_STEP_LEVELS}", steps.len()));
+        }
+        let total: f64 = steps.iter().map(|(_, s)| s).sum();
+        if (total - 1.0).abs() > 1e-9 {
+            return Err(format!("`steps({inside})`: the shares add to {total}, not 1; each is the part of the whole effect its step takes"));
+        }
+        let end = start + close + 1;
+        while self.chars.get(self.at).is_some_and(|&(i, _)| i < end) {
+            self.at += 1;
+        }
+        let mut reached = 0.0;
+        let mut sum: Option<Expr> = None;
+        let mut depth = 1;
+        for (level, share) in steps {
+            reached += share;
+            let term = Expr::Multiply(
+                Box::new(Expr::Number(whole * reached)),
+                Box::new(Expr::Indicator { name: name.to_string(), level }),
+            );
+            sum = Some(match sum {
+                None => term,
+                Some(before) => {
+                    depth = deeper(depth, 2)?;
+                    Expr::Add(Box::new(before), Box::new(term))
+                }
+            });
+        }
+        Ok((sum.ok_or_else(usage)?, deeper(depth, 1)?))
     }
 
     fn indicator(&mut self) -> Result<Expr, String> {

@@ -35,6 +35,9 @@
 //!   `compare routes` — the front door, the graph's other adjustment sets,
 //!   and a joint model's controlled direct effect.
 //!
+//! * [`steps`]: the whole effect, the shares and the effect per level of
+//!   an ordered category's `steps(c)` term, from the steps' draws.
+//!
 //! The query layer never reads files and never renders.
 
 pub mod answer;
@@ -59,6 +62,7 @@ pub mod direct_route;
 pub mod robustness;
 pub mod shrinkage;
 pub mod simulate;
+pub mod steps;
 mod support;
 
 pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectAnswer};

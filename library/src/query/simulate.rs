@@ -274,7 +274,9 @@ impl Simulation {
                 (NodeValues::Binary(v), _) => ColumnData::Binary(v.clone()),
                 (NodeValues::Category(codes), _) => ColumnData::Count(codes.iter().map(|&c| c as u64).collect()),
             };
-            columns.push(Column::new(node.name.clone(), data));
+            let stated = matches!(data, ColumnData::Category { .. });
+            let column = Column::new(node.name.clone(), data);
+            columns.push(if stated { column.with_stated_order() } else { column });
         }
         Ok(Table::from_columns(self.name.clone(), columns)?)
     }

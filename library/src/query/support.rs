@@ -166,7 +166,8 @@ pub fn predictor_columns(model: &Model) -> Vec<String> {
             | TermRecipe::LevelOffsets { column, .. }
             | TermRecipe::Slope { column, .. }
             | TermRecipe::Powers { column, .. }
-            | TermRecipe::Spline { column, .. } => add(column),
+            | TermRecipe::Spline { column, .. }
+            | TermRecipe::Steps { column, .. } => add(column),
             TermRecipe::SlopePer { column, by, .. } => {
                 add(column);
                 add(by);

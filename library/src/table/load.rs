@@ -325,7 +325,8 @@ fn type_column(place: &Place, decl: Option<&ColumnDecl>, raw: &RawColumn) -> Res
         },
     };
     let unit = decl.and_then(|d| d.unit.clone());
-    Ok(TypedColumn { column: Column { name: name.to_string(), unit, data }, inferred, missing })
+    let ordered = decl.is_some_and(|d| d.levels.is_some());
+    Ok(TypedColumn { column: Column { name: name.to_string(), unit, data, ordered }, inferred, missing })
 }
 
 /// A column read as real because most values are numbers gets advice to

@@ -167,12 +167,22 @@ pub struct Column {
     pub name: String,
     pub unit: Option<String>,
     pub data: ColumnData,
+    /// A category whose level order was stated (a `table` cell's
+    /// `c: category(a, b, c)`, a simulated category's mechanism), so the
+    /// order means something: lowest first. Levels in order of first
+    /// appearance are not ordered.
+    pub ordered: bool,
 }
 
 impl Column {
-    /// A column without a unit.
+    /// A column without a unit (a category's levels not ordered).
     pub fn new(name: impl Into<String>, data: ColumnData) -> Self {
-        Column { name: name.into(), unit: None, data }
+        Column { name: name.into(), unit: None, data, ordered: false }
+    }
+
+    /// The same column, its category levels in a stated order.
+    pub fn with_stated_order(self) -> Self {
+        Column { ordered: true, ..self }
     }
 
     /// The kind as a `table` cell declares it, so an inferred schema can be
@@ -283,7 +293,7 @@ impl Table {
             columns: self
                 .columns
                 .iter()
-                .map(|c| Column { name: c.name.clone(), unit: c.unit.clone(), data: c.data.filter(mask) })
+                .map(|c| Column { name: c.name.clone(), unit: c.unit.clone(), data: c.data.filter(mask), ordered: c.ordered })
                 .collect(),
         }
     }

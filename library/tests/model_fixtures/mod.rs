@@ -13,7 +13,7 @@ use waypath::model::{LogDensity, Model, ModelSpec};
 use waypath::table::{Column, ColumnData, Table};
 
 pub fn column(name: &str, data: ColumnData) -> Column {
-    Column { name: name.to_string(), unit: None, data }
+    Column::new(name, data)
 }
 
 pub fn category(codes: Vec<u32>, levels: &[&str]) -> ColumnData {

@@ -294,11 +294,18 @@ fn option_range(key: &str) -> (u64, u64) {
 /// sentence, and the warnings ([`crate::cells::fit_summary`]).
 pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table::Table>, mass: f64) -> Result<Display, CellError> {
     let spec = SummarySpec { mass, hdi: false };
-    let summaries = fit.draws.summarise(&spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
+    let mut summaries = fit.draws.summarise(&spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
     let pct = format!("{}%", crate::model::prior::short_number(mass * 100.0));
     let heading = format!("fit {}, {:.2} s: {}", model.name(), fit.seconds, fit.method.describe());
-    let units = parameter_units(model, table, &fit.draws.names);
-    let behind = rows_behind(model, &fit.draws.names);
+    let mut units = parameter_units(model, table, &fit.draws.names);
+    let mut behind = rows_behind(model, &fit.draws.names);
+    let derived = step_rows(model, fit, table, &spec)?;
+    let derived_labels: Vec<String> = derived.iter().map(|(s, _)| s.name.clone()).collect();
+    for (summary, unit) in derived {
+        summaries.push(summary);
+        units.push(unit);
+        behind.push(None);
+    }
     let rows: Vec<fit_summary::EstimateRow> = summaries
         .iter()
         .zip(units.iter().zip(&behind))
@@ -313,6 +320,13 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table
     let health = fit_summary::health(&[(fit, fit.draws.names.clone())]);
     let priors = priors_grid(model);
     let mut notes = vec![format!("intervals are central {pct} quantile intervals of the posterior draws")];
+    if !derived_labels.is_empty() {
+        notes.push(format!(
+            "{} are worked out from the steps' draws, draw by draw: the whole effect from the lowest level to the highest is the \
+             steps' sum, and each share a step's part of it",
+            derived_labels.join(", ")
+        ));
+    }
     if let Some(route) = &fit.route {
         notes.insert(0, route.clone());
     }
@@ -353,6 +367,34 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table
     });
     let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
     Ok(Display { plain, html: Some(html), svg, json: Some(json) })
+}
+
+/// The summaries of a model's steps terms beyond the steps (the whole
+/// effect, in the steps' unit, and each share, without one), each with
+/// its unit, for the estimates table ([`crate::query::steps`]).
+fn step_rows(
+    model: &Model,
+    fit: &Fit,
+    table: Option<&crate::table::Table>,
+    spec: &SummarySpec,
+) -> Result<Vec<(crate::draws::Summary, Option<String>)>, CellError> {
+    let derived = crate::query::steps::derived_step_draws(model, &fit.draws).map_err(|e| CellError { line: None, message: e.to_string() })?;
+    let step_unit = |column: &str| {
+        let term = model.step_terms().iter().find(|t| t.column == column)?;
+        let first = crate::model::steps::step_label(column, &term.levels[0], &term.levels[1]);
+        let at = fit.draws.names.iter().position(|n| *n == first)?;
+        parameter_units(model, table, &fit.draws.names).swap_remove(at)
+    };
+    derived
+        .into_iter()
+        .map(|(label, values)| {
+            let mut summary = crate::draws::summary::summarise_values(&values, spec).map_err(|e| CellError { line: None, message: e.to_string() })?;
+            let whole = model.step_terms().iter().find(|t| crate::model::steps::whole_effect_label(&t.column) == label);
+            let unit = whole.and_then(|t| step_unit(&t.column));
+            summary.name = label;
+            Ok((summary, unit))
+        })
+        .collect()
 }
 
 /// The unit of each parameter named in `names` (the draws' order), from
@@ -461,6 +503,47 @@ fn shrinkage_plot(session: &Session, st: &Statement, name: &str, chosen: &[Strin
     Ok(shown)
 }
 
+/// `plot NAME steps [of COLUMN]`: the effect of each level of an ordered
+/// category's `steps(…)` term against its lowest level, as a figure, a
+/// table and JSON.
+fn steps_plot(session: &Session, st: &Statement, name: &str, chosen: &[String], mass: Option<f64>) -> Result<Vec<Display>, CellError> {
+    let line = st.header.number;
+    let fit = require_fit(session, name, line)?;
+    let model = &session.models[name];
+    let terms: Vec<&str> = model.step_terms().iter().map(|t| t.column.as_str()).collect();
+    let column = match (chosen, terms.as_slice()) {
+        ([], [only]) => only.to_string(),
+        ([], []) => {
+            return Err(CellError::at(
+                line,
+                format!("model {name} has no steps(…) term to show; write one on its outcome line, such as `steps(grade)`, and fit it again"),
+            ))
+        }
+        ([], _) => return Err(CellError::at(line, format!("model {name} has steps of {}; name one: `plot {name} steps of {}`", terms.join(" and "), terms[0]))),
+        ([one], _) => one.trim().to_string(),
+        _ => return Err(CellError::at(line, format!("the steps figure shows one ordered category at a time; write `plot {name} steps of COLUMN`"))),
+    };
+    let mass = session.interval_mass(mass);
+    let levels = crate::query::steps::level_effects(model, &fit.draws, &column, mass).map_err(|e| CellError::at(line, e.to_string()))?;
+    let table = session.require_table(model.table_name(), line)?;
+    let svg = figures::steps(&levels, &column, model, table, mass).map_err(|e| CellError::at(line, e.to_string()))?;
+    let mut grid = Grid::new(&["level", &format!("against {} {}", levels[0].level, fit_summary::estimate_head(mass))]).numeric_columns(&[1]);
+    let number = crate::cells::format::num;
+    for l in &levels {
+        grid.push(vec![l.level.clone(), format!("{} ({} to {})", number(l.mean), number(l.lower), number(l.upper))]);
+    }
+    let heading = format!("steps of {column} in {name}");
+    let note = format!(
+        "each level's effect is the sum of the steps below it, draw by draw; every draw's steps share one sign, so the effect never turns back between {} and {}",
+        levels[0].level,
+        levels[levels.len() - 1].level
+    );
+    let plain = format!("{heading}\n{}\n• {note}", grid.to_text());
+    let html = html_block(&heading, &[grid.to_html(), html_list(&[note])]);
+    let json = json!({"model": name, "column": column, "interval_mass": mass, "levels": levels});
+    Ok(vec![Display { plain, html: Some(html), svg: Some(svg), json: Some(json) }])
+}
+
 /// One shrinkage as a figure, a table, notes and JSON.
 fn shrinkage_display(result: &crate::query::Shrinkage, model: &crate::model::Model, table: &crate::table::Table, name: &str, line: usize) -> Result<Vec<Display>, CellError> {
     let (group, mass) = (&result.group, result.mass);
@@ -563,7 +646,7 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
         Err(_) => return Err(form_error(st, PLOT.usage)),
     };
     let (mass, rest) = interval_option(rest, st.header.number)?;
-    if mass.is_some() && !matches!(kind, "lines" | "spline") {
+    if mass.is_some() && !matches!(kind, "lines" | "spline" | "steps") {
         return Err(CellError::at(
             st.header.number,
             format!("`intervals` sets the bands of the lines and spline figures; the form is: {}", PLOT.usage),
@@ -601,6 +684,9 @@ pub(crate) fn plot(session: &mut Session, st: &Statement) -> Result<Vec<Display>
     }
     if kind == "shrinkage" {
         return shrinkage_plot(session, st, name, &chosen);
+    }
+    if kind == "steps" {
+        return steps_plot(session, st, name, &chosen, mass);
     }
     let chosen = chosen
         .iter()

@@ -202,8 +202,9 @@ const EFFECT_KINDS: &[&str] = &["total", "direct"];
 /// the parameters' `estimates`, whether the chains `mixing` agree, the
 /// fitted `lines` over the data, the `spline` curve with its weights, and
 /// outcome sets simulated from the `prior` or compared in a `check`, and how
-/// far partial pooling pulled each level of a pooled group (`shrinkage`).
-pub const PLOT_KINDS: &[&str] = &["estimates", "mixing", "lines", "spline", "prior", "check", "shrinkage"];
+/// far partial pooling pulled each level of a pooled group (`shrinkage`),
+/// and an ordered category's effect level by level (`steps`).
+pub const PLOT_KINDS: &[&str] = &["estimates", "mixing", "lines", "spline", "prior", "check", "shrinkage", "steps"];
 /// Figure words of earlier versions, each with the word that replaced it;
 /// `plot` refuses them with an error naming the new word.
 pub const RETIRED_PLOT_KINDS: &[(&str, &str)] =
@@ -303,7 +304,7 @@ pub const PLOT: Form = Form {
     slots: &[Word("plot"), Name(Md), Choice(PLOT_KINDS)],
     options: &[&[Word("of"), Value], &[Word("over"), Name(Col)], INTERVALS_OPTION],
     method: false,
-    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X] [intervals P%]  or  plot NAME spline [intervals P%]  or  plot NAME prior|check  or  plot NAME shrinkage [of GROUP]",
+    usage: "plot NAME estimates|mixing [of PARAMETER, …]  or  plot NAME lines [over X] [intervals P%]  or  plot NAME spline [intervals P%]  or  plot NAME prior|check  or  plot NAME shrinkage [of GROUP]  or  plot NAME steps [of COLUMN] [intervals P%]",
 };
 pub const SAVE: Form = Form {
     slots: &[Word("save"), Word("figure"), Word("to"), Quoted],

@@ -7,7 +7,8 @@
 //! `soil[sandy vs loam]` (offset of a level from the first level);
 //! `girth slope`; `girth slope[dwarf]` (slope within a level);
 //! `day power 2` (coefficient of the squared standardised day);
-//! `age spline 3` (weight of B-spline function 3); for a pooled group
+//! `age spline 3` (weight of B-spline function 3); `grade step[none to
+//! mild]` (the effect of one step of an ordered category); for a pooled group
 //! `block spread` and `block departure[B1]`. Column names hold no
 //! spaces, so a label with a role word never equals a column-based one.
 
@@ -20,6 +21,7 @@ use super::super::error::ModelError;
 use super::super::prior::PriorGroup;
 use super::groups::GroupTerm;
 use super::recipe::TermRecipe;
+use super::super::steps::step_label;
 
 /// The role word of a slope's label.
 pub const SLOPE: &str = "slope";
@@ -171,6 +173,7 @@ impl TermRecipe {
             }
             TermRecipe::Powers { column, degree, .. } => (1..=*degree).map(|j| format!("{column} {POWER} {j}")).collect(),
             TermRecipe::Spline { column, basis } => (2..=basis.len()).map(|j| format!("{column} {SPLINE} {j}")).collect(),
+            TermRecipe::Steps { column, levels } => levels.windows(2).map(|w| step_label(column, &w[0], &w[1])).collect(),
         }
     }
 
@@ -235,6 +238,14 @@ impl TermRecipe {
                 let x = real_values(find_column(table, column)?, "a spline")?;
                 let rows: Vec<Vec<f64>> = x.iter().map(|v| basis.row(v.clamp(lower, upper))).collect();
                 (1..basis.len()).map(|j| rows.iter().map(|r| r[j]).collect()).collect()
+            }
+            TermRecipe::Steps { column, levels } => {
+                let mut at_or_above = indicators(table, column, levels, 1)?;
+                for k in (0..at_or_above.len().saturating_sub(1)).rev() {
+                    let (lower, upper) = at_or_above.split_at_mut(k + 1);
+                    lower[k].iter_mut().zip(&upper[0]).for_each(|(a, b)| *a += b);
+                }
+                at_or_above
             }
         })
     }

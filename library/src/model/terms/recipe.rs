@@ -10,7 +10,8 @@ use crate::table::Table;
 use super::super::columns::{category_levels, find_column, real_values};
 use super::super::error::ModelError;
 use super::super::prior::short_number;
-use super::super::spec::{ModelSpec, TermSpec, POWERS};
+use super::super::spec::{ModelSpec, TermSpec, POWERS, STEPS};
+use super::super::steps::{whole_effect_label, DEFAULT_STEP_CONCENTRATION};
 use super::super::spline::{quantile_knots, BSplineBasis};
 
 /// Degree of spline bases (cubic).
@@ -34,6 +35,9 @@ pub enum TermRecipe {
     Powers { column: String, centre: f64, scale: f64, degree: usize, power_scales: Vec<f64> },
     /// B-spline basis functions 2..=k of `x` (the first is dropped).
     Spline { column: String, basis: BSplineBasis },
+    /// `[c ≥ level]` for every level of ordered category `c` after the
+    /// lowest: the steps of a `steps(c)` term ([`crate::model::steps`]).
+    Steps { column: String, levels: Vec<String> },
 }
 
 /// Plan every term of `spec` on `table`; also returns the notes that explain
@@ -75,6 +79,7 @@ impl Planner<'_> {
             TermSpec::Spline { predictor, functions, knots } => {
                 self.plan_spline(predictor, *functions, knots.as_deref())
             }
+            TermSpec::Steps { predictor, order } => self.plan_steps(predictor, order.as_deref()),
             // Planned as a group (`terms::groups`), not as design columns.
             TermSpec::Pooled { .. } => Ok(()),
         }
@@ -120,6 +125,69 @@ impl Planner<'_> {
             ));
             self.recipes.push(TermRecipe::LevelOffsets { column: name.to_string(), levels });
         }
+    }
+
+    /// The levels of an ordered category, lowest first: as listed in the
+    /// term (every level of the column once), else the table's stated
+    /// order; a column whose levels only came in order of appearance is
+    /// refused.
+    fn plan_steps(&mut self, name: &str, listed: Option<&[String]>) -> Result<(), ModelError> {
+        let column = find_column(self.table, name)?;
+        let (_, present) = category_levels(column, &format!("the column of `{STEPS}({name})`"))?;
+        let levels = match listed {
+            Some(listed) => {
+                let missing: Vec<&str> = present.iter().filter(|l| !listed.contains(l)).map(String::as_str).collect();
+                let extra: Vec<&str> = listed.iter().filter(|l| !present.contains(l)).map(String::as_str).collect();
+                if !missing.is_empty() || !extra.is_empty() {
+                    return Err(ModelError::Column {
+                        column: name.to_string(),
+                        message: format!(
+                            "the levels listed in `{STEPS}({name}: …)` must be the column's levels, each once ({}){}{}",
+                            present.join(", "),
+                            if missing.is_empty() { String::new() } else { format!("; not listed: {}", missing.join(", ")) },
+                            if extra.is_empty() { String::new() } else { format!("; not in the column: {}", extra.join(", ")) },
+                        ),
+                    });
+                }
+                listed.to_vec()
+            }
+            None if column.ordered => present.to_vec(),
+            None => {
+                return Err(ModelError::Column {
+                    column: name.to_string(),
+                    message: format!(
+                        "`{STEPS}({name})` needs the levels' order, but they are in order of first appearance ({}); declare \
+                         them lowest first in the table cell, `{name}: category({})`, or list them in the term, \
+                         `{STEPS}({name}: {})`",
+                        present.join(", "),
+                        present.join(", "),
+                        present.join(", ")
+                    ),
+                });
+            }
+        };
+        if levels.len() < 3 {
+            return Err(ModelError::Column {
+                column: name.to_string(),
+                message: format!(
+                    "has {} levels, a single step at most; `{STEPS}(…)` shares an effect over two steps or more, so list \
+                     `{name}` as a plain term",
+                    levels.len()
+                ),
+            });
+        }
+        self.notes.push(format!(
+            "{STEPS}({name}): {} in that order; the whole effect from {} to {}, `{}`, is shared out over the {} steps, \
+             every step of its sign, the shares with the prior dirichlet({}); the estimates are each step's effect",
+            levels.join(" < "),
+            levels[0],
+            levels[levels.len() - 1],
+            whole_effect_label(name),
+            levels.len() - 1,
+            short_number(self.spec.share_concentration(name).unwrap_or(DEFAULT_STEP_CONCENTRATION))
+        ));
+        self.recipes.push(TermRecipe::Steps { column: name.to_string(), levels });
+        Ok(())
     }
 
     fn plan_per(&mut self, predictor: &str, by: &str) -> Result<(), ModelError> {

@@ -105,7 +105,7 @@ fn table(request: &Value) -> Result<Table, String> {
         .as_object()
         .ok_or("columns must be an object")?
         .iter()
-        .map(|(name, v)| Ok(Column { name: name.clone(), unit: None, data: column_data(v)? }))
+        .map(|(name, v)| Ok(Column::new(name.clone(), column_data(v)?)))
         .collect::<Result<Vec<_>, String>>()?;
     Ok(Table { name: "data".into(), columns })
 }
