@@ -147,6 +147,32 @@ impl Model {
     /// the scale λ whose mean is the row's mean time
     /// ([`survival::median_time`]).
     pub fn median_time_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Vec<f64>, ModelError> {
+        let (linear, shape) = self.time_predictors_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::median_time(eta, shape)).collect())
+    }
+
+    /// Each new row's time by which a share `q` of its events has come
+    /// ([`survival::quantile_time`]); time families only.
+    pub fn quantile_time_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64], q: f64) -> Result<Vec<f64>, ModelError> {
+        let (linear, shape) = self.time_predictors_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::quantile_time(q, eta, shape)).collect())
+    }
+
+    /// Each new row's chance that its event has come by time `t`
+    /// ([`survival::event_chance_by`]); time families only.
+    pub fn event_chance_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64], t: f64) -> Result<Vec<f64>, ModelError> {
+        let (linear, shape) = self.time_predictors_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::event_chance_by(t, eta, shape)).collect())
+    }
+
+    /// Each new row's log mean time η with the shape at `params` (the
+    /// exponential's k = 1): what every summary of a time is computed from.
+    pub fn time_predictors_in_new_groups(
+        &self,
+        params: &[f64],
+        rows: &NewRows,
+        new_group: &[f64],
+    ) -> Result<(Vec<f64>, TimeShape), ModelError> {
         let Family::Times { form, .. } = &self.family else {
             return Err(ModelError::Family { message: format!("model `{}` does not model times", self.name) });
         };
@@ -154,8 +180,7 @@ impl Model {
             TimeForm::Exponential => TimeShape::exponential(),
             TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
         };
-        let linear = self.linear_predictor_in_new_groups(params, rows, new_group)?;
-        Ok(linear.into_iter().map(|eta| survival::median_time(eta, shape)).collect())
+        Ok((self.linear_predictor_in_new_groups(params, rows, new_group)?, shape))
     }
 
     /// The probability of every outcome level (reference first, in

@@ -30,6 +30,7 @@ mod posterior;
 mod recovery;
 mod robustness;
 mod shrinkage;
+mod survival;
 mod trends;
 
 pub use checks::{
@@ -42,6 +43,7 @@ pub use graph::{
 pub use posterior::{contrast_figure, posterior_figure, DensityArrangement, ParameterDraws};
 pub use robustness::{robustness_figure, RobustnessPicture, StrengthScale};
 pub use shrinkage::{shrinkage_figure, ShrinkageRow};
+pub use survival::{survival_figure, CurveBand, SurvivalMark, SurvivalPicture, SurvivalSetting};
 pub use recovery::{calibration_figure, recovery_figure, RecoveryRow};
 pub use trends::{
     contrast_grid_figure, lines_figure, spline_figure, BasisPicture, GridContrast, LineGroup,

@@ -267,6 +267,7 @@ pub(crate) fn formula_estimate_with(
             draws: changes,
             means,
             level: None,
+            curves: None,
         });
     }
     if plan.weighted() && least_share < WEIGHT_SHARE_WARNING {

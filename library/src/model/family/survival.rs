@@ -175,6 +175,35 @@ pub fn median_time(eta: f64, shape: TimeShape) -> f64 {
     (shape.log_scale(eta) + std::f64::consts::LN_2.ln() / shape.k).exp()
 }
 
+/// The time by which a share `q` (strictly between 0 and 1) of the events
+/// has come: `λ·(−log(1 − q))^(1/k)`, the inverse of `1 − S(t)`, with
+/// `log(1 − q)` taken as `ln_1p(−q)` so a small q keeps its digits.
+pub fn quantile_time(q: f64, eta: f64, shape: TimeShape) -> f64 {
+    (shape.log_scale(eta) + (-(-q).ln_1p()).ln() / shape.k).exp()
+}
+
+/// `w = (t/λ)^k`, the cumulative hazard at time `t > 0`.
+fn cumulative_hazard(t: f64, eta: f64, shape: TimeShape) -> f64 {
+    (shape.k * (t.ln() - shape.log_scale(eta))).exp()
+}
+
+/// The chance that the event has come by time `t`: `1 − exp(−(t/λ)^k)`,
+/// written as `−expm1(−w)` so that a small chance keeps its digits.
+pub fn event_chance_by(t: f64, eta: f64, shape: TimeShape) -> f64 {
+    -(-cumulative_hazard(t, eta, shape)).exp_m1()
+}
+
+/// The log of the survival function at time `t`, `−(t/λ)^k`.
+pub fn log_survival(t: f64, eta: f64, shape: TimeShape) -> f64 {
+    -cumulative_hazard(t, eta, shape)
+}
+
+/// The hazard at time `t > 0`: `(k/t)·(t/λ)^k`, the density over the
+/// survival function (infinite at 0 when k < 1).
+pub fn hazard(t: f64, eta: f64, shape: TimeShape) -> f64 {
+    shape.k / t * cumulative_hazard(t, eta, shape)
+}
+
 /// Each row's time, cut at its follow-up limit (`None`: followed until the
 /// event), with whether it was cut.
 pub fn cut_at_follow_up(times: &[f64], limits: &[Option<f64>]) -> (Vec<f64>, Vec<bool>) {

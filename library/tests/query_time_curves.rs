@@ -1,0 +1,84 @@
+//! A time contrast through cells: the scales `on events by T` and
+//! `on quantile q`, their refusals naming the cell line, and the survival
+//! and hazard figure shown under the contrast. The numbers are checked
+//! against scipy in tests/python/test_time_curves_reference.py.
+
+mod model_fixtures;
+
+mod common;
+
+use common::cells::run;
+
+use model_fixtures::{orchard, orchard_with_times};
+use waypath::cells::Session;
+
+fn fitted(body: &str, table: waypath::table::Table) -> Session {
+    let mut session = Session::new(".");
+    session.put_table("trees", table);
+    let out = run(&mut session, &format!("model m:\n    {}\nfit m with laplace draws 300 seed 2\n", body.replace('\n', "\n    ")));
+    assert!(out.error.is_none(), "{:?}", out.error);
+    session
+}
+
+fn times_session() -> Session {
+    fitted("ripening from girth using trees\nfamily weibull cut short by season_over", orchard_with_times(120, 3))
+}
+
+#[test]
+fn events_by_a_time_is_a_probability_and_the_figure_marks_the_time() {
+    let mut session = times_session();
+    let out = run(&mut session, "contrast m: girth 30 vs 20 on events by 20\n");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let json = out.displays[0].json.as_ref().expect("json");
+    assert_eq!((json["on"].as_str(), json["in_outcome_unit"].as_bool(), json["unit"].is_null()), (Some("events"), Some(false), true));
+    let (lower, upper) = (json["lower"].as_f64().expect("lower"), json["upper"].as_f64().expect("upper"));
+    assert!((-1.0..=1.0).contains(&lower) && (-1.0..=1.0).contains(&upper), "{json}");
+    let curves = &json["curves"];
+    assert_eq!(curves["settings"].as_array().map(Vec::len), Some(2), "{json}");
+    // the figure: a second output under the contrast, two panels, the time marked
+    assert_eq!(out.displays.len(), 2);
+    let svg = out.displays[1].svg.as_deref().expect("a figure");
+    assert!(svg.contains("<title>survival curves: girth 30 vs 20 (m)</title>"), "{svg}");
+    assert!(svg.contains("share without the event") && svg.contains("hazard (per"), "{svg}");
+    assert!(svg.contains("ripening = 20") && svg.contains("band: 90% interval"), "{svg}");
+    std::fs::write("/tmp/h18h-survival.svg", svg).unwrap();
+    assert!(out.displays[1].plain.contains("survival and hazard of m at girth 30 and at 20"), "{}", out.displays[1].plain);
+}
+
+#[test]
+fn a_quantile_is_in_the_outcome_unit_and_its_band_follows_intervals() {
+    let mut session = times_session();
+    let out = run(&mut session, "contrast m: girth 30 vs 20 on quantile 0.9 over rows intervals 80%\n");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let json = out.displays[0].json.as_ref().expect("json");
+    assert_eq!((json["on"].as_str(), json["in_outcome_unit"].as_bool()), (Some("quantile"), Some(true)));
+    assert!(out.displays[0].plain.contains("a share 0.9 of the events"), "{}", out.displays[0].plain);
+    let svg = out.displays[1].svg.as_deref().expect("a figure");
+    assert!(svg.contains("band: 80% interval") && svg.contains("a share 0.9 of events"), "{svg}");
+}
+
+#[test]
+fn bad_times_and_shares_are_refused_on_their_line() {
+    let mut session = times_session();
+    for (cell, words) in [
+        ("contrast m: girth on quantile 1.5\n", "strictly between 0 and 1"),
+        ("contrast m: girth on events by -4\n", "needs a positive time"),
+        ("contrast m: girth on events by soon\n", "takes a number, not `soon`"),
+        ("contrast m: girth on quantile\n", "cannot read `on`"),
+    ] {
+        let error = run(&mut session, cell).error.unwrap_or_else(|| panic!("{cell} refused"));
+        assert_eq!(error.line, Some(1), "{error:?}");
+        assert!(error.message.contains(words), "{cell}: {}", error.message);
+    }
+    let mut session = fitted("yield from girth using trees", orchard(60, 1));
+    let error = run(&mut session, "contrast m: girth on events by 3\n").error.expect("refused");
+    assert!(error.message.contains("needs a time outcome"), "{}", error.message);
+}
+
+#[test]
+fn a_contrast_of_another_family_has_no_curves() {
+    let mut session = fitted("yield from girth using trees", orchard(60, 1));
+    let out = run(&mut session, "contrast m: girth\n");
+    assert_eq!(out.displays.len(), 1);
+    assert!(out.displays[0].json.as_ref().expect("json").get("curves").is_none());
+}
