@@ -62,6 +62,7 @@ impl Model {
     /// family) in `rows` (laid out by [`Model::fitted_rows`], or a
     /// selection of them) at constrained parameters `params`.
     pub fn log_density_of_rows(&self, params: &[f64], rows: &NewRows, y: &[f64]) -> Result<Vec<f64>, ModelError> {
+        self.refuse_bounded_times("scoring each row's density (`score predictions`)")?;
         if rows.design.nrows() != y.len() {
             return Err(ModelError::Parameters {
                 message: format!(
@@ -133,6 +134,7 @@ impl Model {
     /// they were built on every row, so that fitting it gives the exact
     /// leave-one-out posterior. Its parameters are laid out as this model's.
     pub fn leaving_out(&self, row: usize) -> Result<Model, ModelError> {
+        self.refuse_bounded_times("refitting without one row")?;
         let n = self.y.len();
         if row >= n {
             return Err(ModelError::Parameters { message: format!("model `{}` has {n} fitted rows, not a row {}", self.name, row + 1) });
@@ -152,7 +154,7 @@ impl Model {
             },
             Likelihood::Glm(glm) => {
                 let cut_short = self.cut_short_rows().map(|c| c.into_iter().enumerate().filter(|(i, _)| *i != row).map(|(_, c)| c).collect());
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short };
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short, upper: None };
                 Likelihood::Glm(
                     glm_data(&design, &self.family, &outcome).with_groups(group_indices(&design, &self.groups, &group_rows)),
                 )

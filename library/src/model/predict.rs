@@ -422,7 +422,7 @@ impl Model {
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None, cut_short };
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None, cut_short, upper: None };
                 Likelihood::Glm(
                     glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
                 )

@@ -10,16 +10,42 @@
 //! estimated), and a predictive set of times has the data's censoring.
 
 use super::family::survival::cut_at_follow_up;
+use super::error::ModelError;
 use super::family::Family;
 use super::posterior::{Likelihood, Model};
 
 impl Model {
+    /// The `came by` column of a time model whose rows may lie between two
+    /// bounds.
+    pub fn came_by_column(&self) -> Option<&str> {
+        match &self.family {
+            Family::Times { came_by, .. } => came_by.as_deref(),
+            _ => None,
+        }
+    }
+
+    /// Refuse `what` for a model with rows between bounds: simulated times
+    /// are not yet turned into bounds like the data's, and single rows'
+    /// densities are not yet scored (README, Limits).
+    pub fn refuse_bounded_times(&self, what: &str) -> Result<(), ModelError> {
+        match self.came_by_column() {
+            Some(column) => Err(ModelError::Family {
+                message: format!(
+                    "model `{}` reads times between bounds (`came by {column}`); {what} is not available for such a \
+                     model yet — fit it and ask contrasts, or model the rows with `cut short by` alone",
+                    self.name
+                ),
+            }),
+            None => Ok(()),
+        }
+    }
+
     /// Per fitted row, whether its follow-up was cut short (`None` for a
     /// model that is not a time model with a `cut short by` column).
     pub fn cut_short_rows(&self) -> Option<Vec<bool>> {
         match (&self.family, &self.likelihood) {
             (Family::Times { cut_short: Some(_), .. }, Likelihood::Glm(glm)) => {
-                glm.time_rows().map(|rows| rows.iter().map(|r| r.event == 0.0).collect())
+                glm.time_rows().map(|rows| rows.iter().map(|r| !r.had_event()).collect())
             }
             _ => None,
         }

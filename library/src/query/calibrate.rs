@@ -81,6 +81,7 @@ pub fn calibrate_with_progress(
     cancel: &AtomicBool,
     progress: &(dyn Fn(usize) + Sync),
 ) -> Result<Calibration, QueryError> {
+    model.refuse_bounded_times("`calibrate`")?;
     let names = model.parameter_names();
     let place = format!("calibrate {}", model.name());
     check_memory(&format!("{place}: {reps} replications of {} parameters", names.len()), bytes_for(&[reps, names.len().max(1)]))
@@ -300,6 +301,7 @@ pub struct PredictiveSets {
 /// `sets` outcome sets simulated from parameters drawn from the priors, for
 /// the rows of `table` (the model's own table).
 pub fn prior_predictive(model: &Model, table: &Table, sets: usize, seed: u64) -> Result<PredictiveSets, QueryError> {
+    model.refuse_bounded_times("`prior check`")?;
     let rows = model.new_rows(table)?;
     let replicated = (0..sets)
         .map(|s| {
@@ -315,6 +317,7 @@ pub fn prior_predictive(model: &Model, table: &Table, sets: usize, seed: u64) ->
 /// `sets` outcome sets simulated at posterior draws spread evenly through
 /// `draws`, for the rows of `table` (the model's own table).
 pub fn posterior_predictive(model: &Model, draws: &Draws, table: &Table, sets: usize, seed: u64) -> Result<PredictiveSets, QueryError> {
+    model.refuse_bounded_times("`check`")?;
     let rows = model.new_rows(table)?;
     let params = parameter_rows(model, draws)?;
     if params.is_empty() {
