@@ -41,7 +41,6 @@ fn events_by_a_time_is_a_probability_and_the_figure_marks_the_time() {
     assert!(svg.contains("<title>survival curves: girth 30 vs 20 (m)</title>"), "{svg}");
     assert!(svg.contains("share without the event") && svg.contains("hazard (per"), "{svg}");
     assert!(svg.contains("ripening = 20") && svg.contains("band: 90% interval"), "{svg}");
-    std::fs::write("/tmp/h18h-survival.svg", svg).unwrap();
     assert!(out.displays[1].plain.contains("survival and hazard of m at girth 30 and at 20"), "{}", out.displays[1].plain);
 }
 

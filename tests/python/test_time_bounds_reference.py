@@ -151,3 +151,26 @@ def test_a_bounded_model_refuses_scoring_rows(probe):
     answer = probe("model", {"action": "pointwise", "columns": columns(d), "model": model,
                              "params": [2.0, 2.0, 2.0, 0.0, 1.0]})
     assert "not available for such a model yet" in answer.get("error", ""), answer
+
+
+def test_calibration_between_looks_passes_scipy_chisquare(probe):
+    """Talts et al. (2018): ranks of prior draws among NUTS posterior draws
+    are uniform for a correct posterior. Each replication's times are drawn
+    by the model and seen at the data's own looks (fixed, so the check stays
+    exact); scipy.stats.chisquare on 10 equal bins does not reject at 1%."""
+    d = visits(40, 5)
+    cols = columns(d)
+    cols["warmth"] = {"real": (d["warmth"] - 20).tolist()}
+    del cols["tray"]
+    model = ("days from warmth using seeds\nfamily weibull came by sprouted_by cut short by unsprouted\n"
+             "prior intercepts: normal(2.5, 0.5)\nprior slopes: normal(0, 0.1)\n"
+             "prior shape: lognormal(0.4, 0.3)\n")
+    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
+                             "reps": 150, "seed": 71, "draws": 297})
+    assert "error" not in answer, answer
+    assert answer["reps"] == 150 and answer["failures"] == 0
+    for p in answer["parameters"]:
+        observed = np.bincount(np.asarray(p["ranks"]) // 10, minlength=10)
+        reference = st.chisquare(observed)
+        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
+        assert reference.pvalue > 0.01, (p["name"], reference)

@@ -408,12 +408,20 @@ impl Model {
     /// outcomes simulated from the prior for simulation-based calibration,
     /// where the priors must not move with the simulated data. For the
     /// levels family `y` holds level indices; a time model cuts the new
-    /// times short where the data were ([`Model::cut_like_the_data`]).
+    /// times short where the data were ([`Model::cut_like_the_data`]), and
+    /// one with rows between bounds sees them at the data's looks
+    /// ([`Model::bounded_like_the_data`]).
     pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
         if y.len() != self.y.len() {
             return Err(ModelError::Parameters {
                 message: format!("{} outcome values were given for the {} rows of model `{}`", y.len(), self.y.len(), self.name),
             });
+        }
+        if let Some(outcome) = self.bounded_like_the_data(&y) {
+            let likelihood = Likelihood::Glm(
+                glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
+            );
+            return Ok(Model { y: outcome.y, likelihood, ..self.clone() });
         }
         let (y, cut_short) = self.cut_like_the_data(y);
         let likelihood = match &self.likelihood {

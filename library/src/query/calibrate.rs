@@ -81,7 +81,6 @@ pub fn calibrate_with_progress(
     cancel: &AtomicBool,
     progress: &(dyn Fn(usize) + Sync),
 ) -> Result<Calibration, QueryError> {
-    model.refuse_bounded_times("`calibrate`")?;
     let names = model.parameter_names();
     let place = format!("calibrate {}", model.name());
     check_memory(&format!("{place}: {reps} replications of {} parameters", names.len()), bytes_for(&[reps, names.len().max(1)]))
