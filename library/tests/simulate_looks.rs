@@ -90,7 +90,7 @@ fn recover_of_a_model_between_looks_covers_the_truth() {
     // Binomial(6, 0.9) with probability 0.016).
     let mut covered = [0; 2];
     for seed in 1..=6 {
-        let mut session = seeds(LOOKS, 400, seed);
+        let mut session = seeds(LOOKS, 600, seed);
         let body = "days from warmth using trays\n    family weibull came by sprouted_by cut short by unsprouted";
         let answer = json(&run(&mut session, &format!("model m:\n    {body}\nrecover m on trays with laplace seed 5\n")));
         let notes: Vec<&str> = answer["notes"].as_array().expect("notes").iter().filter_map(Value::as_str).collect();
@@ -98,7 +98,7 @@ fn recover_of_a_model_between_looks_covers_the_truth() {
         let params = answer["parameters"].as_array().expect("parameters");
         for (c, (name, truth)) in covered.iter_mut().zip([("warmth slope", -0.06), ("shape", 1.6)]) {
             let p = params.iter().find(|p| p["name"] == name).expect(name);
-            assert!((p["truth"].as_f64().expect("truth") - truth).abs() < 1e-12, "{p}");
+            assert!((p["truth"].as_f64().unwrap_or_else(|| panic!("{p} {notes:?}")) - truth).abs() < 1e-12, "{p}");
             *c += usize::from(p["covered"] == true);
         }
     }

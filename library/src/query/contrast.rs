@@ -36,7 +36,7 @@ use crate::model::{Family, Model, NewRows};
 use crate::table::{ColumnData, Table};
 
 use super::error::QueryError;
-use super::time_curves::{band_of, curve_times, curves_of_draw, SettingCurves, TimeCurves};
+use super::time_curves::{band_of, curve_draws, curve_times, curves_of_draw, SettingCurves, TimeCurves};
 use super::support::{
     column_mean, interval_words, parameter_rows, predictor_columns, require_column, short, stream_seed, with_column,
     ContrastSummary, Setting,
@@ -896,7 +896,8 @@ impl Pairing<'_> {
         for setting in [self.to, self.from] {
             let rows = self.model.new_rows(&with_column(base, setting.column(self.variable, n)))?;
             let (mut survival, mut hazard) = (Vec::new(), Vec::new());
-            for (d, theta) in self.params.iter().enumerate() {
+            for d in curve_draws(self.params.len()) {
+                let theta = &self.params[d];
                 let new = self.new_group(theta, d);
                 let (etas, shape) = self.model.time_predictors_in_new_groups(theta, &rows, &new)?;
                 let (s, h) = curves_of_draw(&etas, shape, &times);

@@ -55,6 +55,20 @@ pub struct TimeCurves {
     pub mass: f64,
 }
 
+/// Most posterior draws the curves are summarised from: a band's ends
+/// settle long before, and over rows every draw costs a pass over the
+/// table at every grid time.
+pub const CURVE_DRAWS: usize = 400;
+
+/// The draws the curves use: all of `total` up to [`CURVE_DRAWS`], else
+/// that many spread evenly through them.
+pub fn curve_draws(total: usize) -> Vec<usize> {
+    if total <= CURVE_DRAWS {
+        return (0..total).collect();
+    }
+    (0..CURVE_DRAWS).map(|i| i * total / CURVE_DRAWS).collect()
+}
+
 /// `CURVE_POINTS` evenly spaced times from `end / CURVE_POINTS` to `end`
 /// (the hazard of a shape below 1 is infinite at 0, so the grid starts
 /// after it).
