@@ -144,6 +144,13 @@ mod tests {
         }
     }
 
+    #[test]
+    fn many_draws_are_thinned_evenly_and_few_kept_whole() {
+        assert_eq!(curve_draws(7), (0..7).collect::<Vec<_>>());
+        let kept = curve_draws(4000);
+        assert_eq!((kept.len(), kept[0], kept[1], kept[399]), (CURVE_DRAWS, 0, 10, 3990));
+    }
+
     /// Far in the tail every row's survival underflows to 0; the units
     /// still without the event are then all of the longest-lived row, so
     /// the averaged hazard is that row's own.
