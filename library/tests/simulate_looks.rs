@@ -128,3 +128,22 @@ fn a_model_that_ignores_looks_from_zero_is_refused_naming_the_row() {
         .expect("refused");
     assert!(error.message.contains("column `days`") && error.message.contains("0 is not a positive time"), "{}", error.message);
 }
+
+/// Completion walks the looks word by word after the cut-short column, and
+/// a time family's line offers `came by` beside `cut short by`.
+#[test]
+fn completion_offers_the_looks_and_came_by() {
+    use waypath::cells::statements::body_grammar::{body_next_words, Block};
+    let rule = "days = weibull(2, 1.6) followed until 30 cut short by unsprouted";
+    for (typed, want) in [("", "looked"), (" looked", "at"), (" looked at", "every"), (" looked at every 4", "came"), (" looked at every 4 came", "by")] {
+        let offered = body_next_words(Block::Simulate, &format!("{rule}{typed} "));
+        assert!(offered.words.contains(&want), "after {typed:?}: {:?}", offered.words);
+    }
+    assert!(body_next_words(Block::Simulate, &format!("{rule} looked at every 4 came by ")).values);
+    let family = |typed: &str| body_next_words(Block::Model, typed).words;
+    assert_eq!(family("family weibull "), ["cut", "came"]);
+    assert_eq!(family("family weibull came "), ["by"]);
+    assert_eq!(family("family weibull cut short by unsprouted "), ["came"]);
+    assert_eq!(family("family exponential came by seen_by "), ["cut"]);
+    assert!(body_next_words(Block::Model, "family weibull came by ").values);
+}
