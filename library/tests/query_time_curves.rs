@@ -81,3 +81,34 @@ fn a_contrast_of_another_family_has_no_curves() {
     assert_eq!(out.displays.len(), 1);
     assert!(out.displays[0].json.as_ref().expect("json").get("curves").is_none());
 }
+
+/// A model of times between looks through cells: the fit notes count the
+/// rows between bounds and those from 0, a contrast draws its curves, and
+/// what cannot take bounds yet says so on its line.
+#[test]
+fn a_model_between_looks_fits_contrasts_and_refuses_checks() {
+    let mut table = orchard_with_times(120, 3);
+    let ripening = table.column("ripening").and_then(|c| c.data.as_reals()).expect("ripening").to_vec();
+    let lower: Vec<f64> = ripening.iter().enumerate().map(|(i, &t)| if i % 5 == 2 && i % 4 != 0 { 0.0 } else { t }).collect();
+    let upper: Vec<f64> = ripening.iter().enumerate().map(|(i, &t)| if i % 5 == 1 { t } else { t + 3.0 }).collect();
+    table.columns.retain(|c| c.name != "ripening");
+    table.columns.push(model_fixtures::column("ripening", waypath::table::ColumnData::Real(lower)));
+    table.columns.push(model_fixtures::column("ripe_by", waypath::table::ColumnData::Real(upper)));
+    let mut session = Session::new(".");
+    session.put_table("trees", table);
+    let body = "ripening from girth using trees\n    family weibull came by ripe_by cut short by season_over";
+    let out = run(&mut session, &format!("model m:\n    {body}\nfit m with laplace draws 300 seed 2\n"));
+    assert!(out.error.is_none(), "{:?}", out.error);
+    let shown: String = out.displays.iter().map(|d| d.plain.as_str()).collect();
+    // rows i % 5 = 2 start at 0; i % 5 = 1 are seen; i % 4 = 0 are cut short
+    let from_zero = (0..120).filter(|i| i % 5 == 2 && i % 4 != 0).count();
+    let between = (0..120).filter(|i| i % 5 != 1 && i % 4 != 0).count();
+    assert!(shown.contains(&format!("{between} of 120 rows had their event between their time and `ripe_by` ({from_zero} of them from 0")), "{shown}");
+    let out = run(&mut session, "contrast m: girth 30 vs 20 on events by 40\n");
+    assert!(out.error.is_none(), "{:?}", out.error);
+    assert!(out.displays[1].svg.as_deref().is_some_and(|s| s.contains("survival curves")));
+    for cell in ["check m\n", "prior check m\n"] {
+        let error = run(&mut session, cell).error.expect("refused");
+        assert!(error.message.contains("`came by ripe_by`") && error.message.contains("not available"), "{cell}: {}", error.message);
+    }
+}
