@@ -107,6 +107,18 @@ fn a_model_between_looks_fits_contrasts_and_refuses_checks() {
     let out = run(&mut session, "contrast m: girth 30 vs 20 on events by 40\n");
     assert!(out.error.is_none(), "{:?}", out.error);
     assert!(out.displays[1].svg.as_deref().is_some_and(|s| s.contains("survival curves")));
+    // Leaving one row out keeps the others' bounds: the model without row
+    // 3 (a row between bounds) has the log-likelihood of the whole model
+    // less that row's own term, at the same parameters.
+    let model = session.model("m").expect("model m");
+    let theta = vec![3.5, 0.02, 2.0];
+    let rows = model.pointwise_log_likelihood(&theta, &model.fitted_rows()).expect("rows");
+    let without = model.leaving_out(3).expect("refit model");
+    let whole = model.log_likelihood(&theta).expect("whole");
+    assert!((without.log_likelihood(&theta).expect("without") - (whole - rows[3])).abs() < 1e-9 * whole.abs());
+    assert!((rows.iter().sum::<f64>() - whole).abs() < 1e-9 * whole.abs());
+    let out = run(&mut session, "score predictions of m\n");
+    assert!(out.error.is_none(), "{:?}", out.error);
     for cell in ["check m\n", "prior check m\n"] {
         let error = run(&mut session, cell).error.expect("refused");
         assert!(error.message.contains("`came by ripe_by`") && error.message.contains("not available"), "{cell}: {}", error.message);

@@ -145,12 +145,16 @@ def test_a_negative_lower_bound_is_refused_naming_row_and_column(probe):
     bad(probe, d, "negative time", "days", 8)
 
 
-def test_a_bounded_model_refuses_scoring_rows(probe):
-    d = visits(60)
+def test_each_row_matches_scipy(probe):
+    """Each row's log density, chance between bounds or log survival (what
+    `score predictions` reads), every constant kept."""
+    d = visits(80, 3)
+    params = [2.3, 2.6, 2.2, -0.04, 1.8]
     model = TERMS + "family weibull came by sprouted_by cut short by unsprouted\n"
-    answer = probe("model", {"action": "pointwise", "columns": columns(d), "model": model,
-                             "params": [2.0, 2.0, 2.0, 0.0, 1.0]})
-    assert "not available for such a model yet" in answer.get("error", ""), answer
+    answer = probe("model", {"action": "pointwise", "columns": columns(d), "model": model, "params": params})
+    assert "error" not in answer, answer
+    reference = row_terms(d, design(d) @ params[:4], params[4])
+    np.testing.assert_allclose(answer["log_densities"], reference, rtol=1e-10, atol=1e-12)
 
 
 def test_calibration_between_looks_passes_scipy_chisquare(probe):

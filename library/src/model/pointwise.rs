@@ -62,7 +62,6 @@ impl Model {
     /// family) in `rows` (laid out by [`Model::fitted_rows`], or a
     /// selection of them) at constrained parameters `params`.
     pub fn log_density_of_rows(&self, params: &[f64], rows: &NewRows, y: &[f64]) -> Result<Vec<f64>, ModelError> {
-        self.refuse_bounded_times("scoring each row's density (`score predictions`)")?;
         if rows.design.nrows() != y.len() {
             return Err(ModelError::Parameters {
                 message: format!(
@@ -123,7 +122,11 @@ impl Model {
                     TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
                 };
                 let cut = |i: usize| rows.cut_short.as_ref().is_some_and(|c| c[i]);
-                linear.iter().zip(y).enumerate().map(|(i, (&eta, &v))| time_row_log_density(TimeRow::new(v, cut(i)), eta, shape)).collect()
+                let row = |i: usize, v: f64| match &rows.upper {
+                    Some(upper) if !cut(i) => TimeRow::between(v, upper[i]),
+                    _ => TimeRow::new(v, cut(i)),
+                };
+                linear.iter().zip(y).enumerate().map(|(i, (&eta, &v))| time_row_log_density(row(i, v), eta, shape)).collect()
             }
             Family::Levels | Family::Graded => unreachable!("a model of a category outcome answered above"),
         })
@@ -134,7 +137,6 @@ impl Model {
     /// they were built on every row, so that fitting it gives the exact
     /// leave-one-out posterior. Its parameters are laid out as this model's.
     pub fn leaving_out(&self, row: usize) -> Result<Model, ModelError> {
-        self.refuse_bounded_times("refitting without one row")?;
         let n = self.y.len();
         if row >= n {
             return Err(ModelError::Parameters { message: format!("model `{}` has {n} fitted rows, not a row {}", self.name, row + 1) });
@@ -154,7 +156,8 @@ impl Model {
             },
             Likelihood::Glm(glm) => {
                 let cut_short = self.cut_short_rows().map(|c| c.into_iter().enumerate().filter(|(i, _)| *i != row).map(|(_, c)| c).collect());
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short, upper: None };
+                let upper = self.upper_bounds().map(|u| without(&u));
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short, upper };
                 Likelihood::Glm(
                     glm_data(&design, &self.family, &outcome).with_groups(group_indices(&design, &self.groups, &group_rows)),
                 )

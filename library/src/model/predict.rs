@@ -40,12 +40,16 @@ pub struct NewRows {
     /// Per row, whether its follow-up was cut short (time families, when the
     /// table has the `cut short by` column; `None`: every row an event).
     pub cut_short: Option<Vec<bool>>,
+    /// Per row, the time by which its event came (time families, when the
+    /// table has the `came by` column; the outcome is then each row's lower
+    /// bound, equal to this for an event seen then).
+    pub upper: Option<Vec<f64>>,
 }
 
 impl NewRows {
     /// Rows without pooled groups (or of a new group in each).
     pub fn from_design(design: DMatrix<f64>, trials: Option<Vec<u64>>) -> NewRows {
-        NewRows { design, trials, groups: Vec::new(), cut_short: None }
+        NewRows { design, trials, groups: Vec::new(), cut_short: None, upper: None }
     }
 
     /// The rows at `indices`, in that order.
@@ -55,6 +59,7 @@ impl NewRows {
             trials: self.trials.as_ref().map(|t| indices.iter().map(|&i| t[i]).collect()),
             groups: self.groups.iter().map(|g| indices.iter().map(|&i| g[i]).collect()).collect(),
             cut_short: self.cut_short.as_ref().map(|c| indices.iter().map(|&i| c[i]).collect()),
+            upper: self.upper.as_ref().map(|u| indices.iter().map(|&i| u[i]).collect()),
         }
     }
 }
@@ -79,13 +84,15 @@ impl Model {
             _ => None,
         };
         let groups = self.groups.iter().map(|g| g.level_of_rows(table)).collect::<Result<_, _>>()?;
-        let cut_short = match &self.family {
-            Family::Times { cut_short: Some(column), .. } if table.column(column).is_some() => {
-                read_outcome(table, &self.outcome, &self.family).ok().and_then(|o| o.cut_short)
+        let (cut_short, upper) = match &self.family {
+            Family::Times { cut_short, came_by, .. }
+                if cut_short.iter().chain(came_by).any(|c| table.column(c).is_some()) =>
+            {
+                read_outcome(table, &self.outcome, &self.family).ok().map_or((None, None), |o| (o.cut_short, o.upper))
             }
-            _ => None,
+            _ => (None, None),
         };
-        Ok(NewRows { design, trials, groups, cut_short })
+        Ok(NewRows { design, trials, groups, cut_short, upper })
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
@@ -400,7 +407,7 @@ impl Model {
             Likelihood::Gaussian { .. } | Likelihood::Softmax(_) | Likelihood::Graded(_) => None,
         };
         let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
-        NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows() }
+        NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows(), upper: self.upper_bounds() }
     }
 
     /// The same model — design, recipes, priors and binomial trials

@@ -25,9 +25,18 @@ impl Model {
         }
     }
 
+    /// Per fitted row of a model with rows between bounds, the time by
+    /// which its event came: its upper bound, or its own time for an event
+    /// seen then or a row cut short (which [`Model::cut_short_rows`] marks).
+    pub fn upper_bounds(&self) -> Option<Vec<f64>> {
+        self.came_by_column()?;
+        let Likelihood::Glm(glm) = &self.likelihood else { return None };
+        let rows = glm.time_rows()?;
+        Some(rows.iter().zip(&self.y).map(|(r, &y)| if r.log_upper.is_finite() { r.log_upper.exp() } else { y }).collect())
+    }
+
     /// Refuse `what` for a model with rows between bounds: predictive
-    /// checks do not yet draw bounds, and single rows' densities are not
-    /// yet scored (README, Limits).
+    /// checks do not yet draw bounds (README, Limits).
     pub fn refuse_bounded_times(&self, what: &str) -> Result<(), ModelError> {
         match self.came_by_column() {
             Some(column) => Err(ModelError::Family {
