@@ -105,6 +105,24 @@ fn time_gradients_match_finite_differences() {
     check_gradient_on("ripening from girth, pooled soil using trees\nfamily weibull cut short by season_over", &table, 28);
 }
 
+/// Times between bounds (`came by`): rows from 0 (the event came before
+/// the upper bound), rows between two times, events seen at one time
+/// (equal bounds) and rows cut short, in the exponential and the Weibull
+/// (whose interval rows also move log(shape)).
+#[test]
+fn bounded_time_gradients_match_finite_differences() {
+    let mut table = orchard_with_times(120, 7);
+    let ripening = table.column("ripening").and_then(|c| c.data.as_reals()).expect("ripening").to_vec();
+    let lower: Vec<f64> = ripening.iter().enumerate().map(|(i, &t)| if i % 5 == 0 && i % 4 != 0 { 0.0 } else { t }).collect();
+    let upper: Vec<f64> = ripening.iter().enumerate().map(|(i, &t)| if i % 5 == 1 { t } else { 1.3 * t + 1.0 }).collect();
+    table.columns.retain(|c| c.name != "ripening");
+    table.columns.push(model_fixtures::column("ripening", waypath::table::ColumnData::Real(lower)));
+    table.columns.push(model_fixtures::column("ripe_by", waypath::table::ColumnData::Real(upper)));
+    check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily exponential came by ripe_by"), &table, 29);
+    check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily weibull came by ripe_by cut short by season_over"), &table, 30);
+    check_gradient_on("ripening from girth, pooled soil using trees\nfamily weibull came by ripe_by", &table, 31);
+}
+
 /// The levels family (softmax over soil's three levels; rootstock's two),
 /// with the family line written and left out (a category outcome takes the
 /// levels family by default).

@@ -10,7 +10,8 @@ use crate::plot::{
     DensityArrangement, EdgeMark, GraphPicture, GridContrast, ImplicationRow, LineGroup, NodeMark, ParameterDraws,
     PlotError, PredictiveKind, Quantity, RecoveryRow, Role, shrinkage_figure, ShrinkageRow,
 };
-use crate::query::{Calibration, Contrast, ImplicationsReport, PredictiveSets, Recovery, WatchedContrast};
+use crate::plot::{survival_figure, CurveBand, SurvivalMark, SurvivalPicture, SurvivalSetting};
+use crate::query::{Band, Calibration, Contrast, ImplicationsReport, On, PredictiveSets, Recovery, WatchedContrast};
 use crate::table::{Column, ColumnData, Table};
 
 /// How to mark a graph drawing: exposure, outcome, an adjustment set, and
@@ -457,6 +458,31 @@ pub fn contrast(c: &Contrast, table: &Table, outcome: &str) -> Result<String, Pl
         }
         None => contrast_figure(&subject, &value, &c.draws),
     }
+}
+
+/// A time contrast's survival and hazard curves at its two settings, with
+/// the stated time or share of events marked; `None` for other contrasts.
+pub fn survival_curves(c: &Contrast, on: On, table: &Table, outcome: &str) -> Option<Result<String, PlotError>> {
+    let curves = c.curves.as_ref()?;
+    let band = |b: &Band| CurveBand { mean: b.mean.clone(), lower: b.lower.clone(), upper: b.upper.clone() };
+    let settings = curves
+        .settings
+        .iter()
+        .map(|s| SurvivalSetting {
+            label: format!("{} {}", c.variable, s.setting),
+            survival: band(&s.survival),
+            hazard: band(&s.hazard),
+        })
+        .collect();
+    let mark = match on {
+        On::EventsBy(t) => Some(SurvivalMark::Time(t)),
+        On::Quantile(q) => Some(SurvivalMark::Share(q)),
+        On::Medians => Some(SurvivalMark::Share(0.5)),
+        _ => None,
+    };
+    let picture = SurvivalPicture { times: curves.times.clone(), settings, mark };
+    let subject = format!("{} ({})", c.contrast, c.model);
+    Some(survival_figure(&subject, &quantity(table, outcome), &interval_label(curves.mass), &picture))
 }
 
 /// The per-level contrasts of a category outcome: each level's change in

@@ -138,7 +138,10 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
              mean·(1 − mean)/(1 + φ)), sampled as log(precision) with the Jacobian of that change included"
                 .into(),
         ),
-        Family::Times { form, cut_short } => notes.extend(time_notes(*form, cut_short.as_deref(), outcome.cut_short.as_deref())),
+        Family::Times { form, cut_short, came_by } => {
+            let rows = outcome.time_rows();
+            notes.extend(time_notes(*form, cut_short.as_deref(), outcome.cut_short.as_deref(), came_by.as_deref().map(|c| (c, rows.as_slice()))))
+        }
         _ => {}
     }
     let likelihood = match (gaussian_spread, &outcome.levels) {
@@ -333,7 +336,7 @@ fn for_outcome_levels(groups: Vec<GroupTerm>, spec: &ModelSpec, levels: Option<&
 /// choosing how that level's pooled departures are sampled.
 fn one_level_outcome(outcome: &OutcomeValues, level: usize) -> OutcomeValues {
     let y = outcome.y.iter().map(|&v| f64::from(u8::from(v as usize == level))).collect();
-    OutcomeValues { y, trials: None, levels: None, cut_short: None }
+    OutcomeValues { y, trials: None, levels: None, cut_short: None, upper: None }
 }
 
 /// The varying slope of predictor `x`: `x` must enter the model as a plain

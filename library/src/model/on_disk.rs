@@ -166,7 +166,7 @@ fn build(spec: &ModelSpec, table: &DiskTable, cancel: &AtomicBool) -> Result<Mod
             let stats = GaussianStats::from_sums(xtx.clone(), DVector::from_vec(sums.xty.clone()), sums.yty, n, y_mean, intercepts);
             Likelihood::Gaussian { stats, spread_prior }
         }
-        _ => Likelihood::Glm(glm_data(&DMatrix::zeros(0, p), &spec.family, &OutcomeValues { y: Vec::new(), trials: None, levels: None, cut_short: None })),
+        _ => Likelihood::Glm(glm_data(&DMatrix::zeros(0, p), &spec.family, &OutcomeValues { y: Vec::new(), trials: None, levels: None, cut_short: None, upper: None })),
     };
     notes.push(format!(
         "the table stays on disk ({}): the engine gathered the sums this model needs over its {} rows",

@@ -24,6 +24,9 @@ pub struct OutcomeValues {
     /// Per row, whether its follow-up was cut short before the event (time
     /// families with a `cut short by` column).
     pub cut_short: Option<Vec<bool>>,
+    /// Per row, the time by which its event came (time families with a
+    /// `came by` column; the outcome is then the last time it had not).
+    pub upper: Option<Vec<f64>>,
 }
 
 impl OutcomeValues {
@@ -34,7 +37,7 @@ impl OutcomeValues {
     #[cfg(feature = "on_disk")]
     pub(crate) fn with_moments(mean: f64, sd: f64) -> Self {
         let half = sd / std::f64::consts::SQRT_2;
-        OutcomeValues { y: vec![mean - half, mean + half], trials: None, levels: None, cut_short: None }
+        OutcomeValues { y: vec![mean - half, mean + half], trials: None, levels: None, cut_short: None, upper: None }
     }
 
     /// The mean outcome per trial (per row for families without trials).
@@ -50,7 +53,11 @@ impl OutcomeValues {
     /// event when nothing was cut short).
     pub fn time_rows(&self) -> Vec<TimeRow> {
         let cut = |i: usize| self.cut_short.as_ref().is_some_and(|c| c[i]);
-        self.y.iter().enumerate().map(|(i, &t)| TimeRow::new(t, cut(i))).collect()
+        let row = |(i, &t): (usize, &f64)| match &self.upper {
+            Some(upper) if !cut(i) => TimeRow::between(t, upper[i]),
+            _ => TimeRow::new(t, cut(i)),
+        };
+        self.y.iter().enumerate().map(row).collect()
     }
 
     /// The share of rows at each level (levels family; empty otherwise).
@@ -98,16 +105,16 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
         message,
     };
     match family {
-        Family::Normal => check_varies(&y, name).map(|_| OutcomeValues { y, trials: None, levels: None, cut_short: None }),
+        Family::Normal => check_varies(&y, name).map(|_| OutcomeValues { y, trials: None, levels: None, cut_short: None, upper: None }),
         Family::Bernoulli => first_bad(&y, |v| v == 0.0 || v == 1.0)
             .map(|row| Err(place(row, format!("{} is not 0 or 1, which a bernoulli outcome must be", y[row]))))
-            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None, upper: None })),
         Family::Poisson | Family::GammaPoisson => first_bad(&y, is_count)
             .map(|row| {
                 let message = format!("{} is not a whole number ≥ 0, which a {} outcome must be", y[row], family.name());
                 Err(place(row, message))
             })
-            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None, upper: None })),
         Family::Binomial { trials } => read_binomial(table, name, y, trials),
         Family::Beta => first_bad(&y, |v| v > 0.0 && v < 1.0)
             .map(|row| {
@@ -119,8 +126,9 @@ pub fn read_outcome(table: &Table, name: &str, family: &Family) -> Result<Outcom
                 };
                 Err(place(row, format!("{} is not strictly between 0 and 1, which a beta outcome (a share) must be; {hint}", y[row])))
             })
-            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None })),
-        Family::Times { cut_short, .. } => read_times(table, name, y, cut_short.as_deref()),
+            .unwrap_or(Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None, upper: None })),
+        Family::Times { cut_short, came_by: None, .. } => read_times(table, name, y, cut_short.as_deref()),
+        Family::Times { cut_short, came_by: Some(upper), .. } => read_bounded_times(table, name, y, cut_short.as_deref(), upper),
         Family::Levels | Family::Graded => Err(ModelError::Column {
             column: name.to_string(),
             message: format!(
@@ -145,7 +153,7 @@ fn read_levels(name: &str, codes: &[u32], levels: &[String]) -> Result<OutcomeVa
         });
     }
     let y = codes.iter().map(|&c| f64::from(c)).collect();
-    Ok(OutcomeValues { y, trials: None, levels: Some(levels.to_vec()), cut_short: None })
+    Ok(OutcomeValues { y, trials: None, levels: Some(levels.to_vec()), cut_short: None, upper: None })
 }
 
 fn read_binomial(table: &Table, name: &str, y: Vec<f64>, trials_name: &str) -> Result<OutcomeValues, ModelError> {
@@ -168,7 +176,7 @@ fn read_binomial(table: &Table, name: &str, y: Vec<f64>, trials_name: &str) -> R
         );
         return Err(place(row, name, message));
     }
-    Ok(OutcomeValues { y, trials: Some(trials), levels: None, cut_short: None })
+    Ok(OutcomeValues { y, trials: Some(trials), levels: None, cut_short: None, upper: None })
 }
 
 /// Positive times, with each row's censoring from the `cut short by`
@@ -189,7 +197,7 @@ fn read_times(table: &Table, name: &str, y: Vec<f64>, cut_short: Option<&str>) -
         return Err(place(row, name, message));
     }
     let Some(column_name) = cut_short else {
-        return Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None });
+        return Ok(OutcomeValues { y, trials: None, levels: None, cut_short: None, upper: None });
     };
     let column = find_column(table, column_name)?;
     let flags = match &column.data {
@@ -221,7 +229,51 @@ fn read_times(table: &Table, name: &str, y: Vec<f64>, cut_short: Option<&str>) -
                 .into(),
         });
     }
-    Ok(OutcomeValues { y, trials: None, levels: None, cut_short: Some(flags) })
+    Ok(OutcomeValues { y, trials: None, levels: None, cut_short: Some(flags), upper: None })
+}
+
+/// Times known between two bounds: the outcome is each row's lower bound
+/// (0 or more: the last time its event had not come, 0 when it may have
+/// come from the start), `upper` the time by which it had come — equal to
+/// the outcome for an event seen at that time. Rows the `cut short by`
+/// column marks are cut short at their outcome time and their upper bound
+/// is not read. Errors name the first offending row and its column.
+fn read_bounded_times(table: &Table, name: &str, y: Vec<f64>, cut_short: Option<&str>, upper: &str) -> Result<OutcomeValues, ModelError> {
+    let place = |row: usize, column: &str, message: String| ModelError::Value {
+        table: table.name.clone(),
+        row: row + 1,
+        column: column.to_string(),
+        message,
+    };
+    if let Some(row) = first_bad(&y, |v| v >= 0.0 && v.is_finite()) {
+        let message = format!("{} is a negative time; with `came by {upper}` the outcome is the last time the event had not come, 0 or more", y[row]);
+        return Err(place(row, name, message));
+    }
+    let bounds = real_values(find_column(table, upper)?, "the `came by` column")?;
+    let flags = match cut_short {
+        Some(_) => read_times(table, name, y.iter().map(|&v| v.max(f64::MIN_POSITIVE)).collect(), cut_short)?.cut_short,
+        None => None,
+    };
+    let cut = |i: usize| flags.as_ref().is_some_and(|c| c[i]);
+    for (i, (&lower, &top)) in y.iter().zip(&bounds).enumerate() {
+        if cut(i) {
+            if lower == 0.0 {
+                return Err(place(i, name, "0 is not a time a row can be cut short at: its follow-up ended before it began".into()));
+            }
+            continue;
+        }
+        if !(top.is_finite() && top >= lower) {
+            let message = format!(
+                "{top} is below the row's {name} {lower}: the time by which the event came cannot come before the last \
+                 time it had not (equal times are an event seen then)"
+            );
+            return Err(place(i, upper, message));
+        }
+        if top == 0.0 {
+            return Err(place(i, upper, "0 is not a time by which an event can have come; times must be positive".into()));
+        }
+    }
+    Ok(OutcomeValues { y, trials: None, levels: None, cut_short: flags, upper: Some(bounds) })
 }
 
 fn check_varies(y: &[f64], name: &str) -> Result<(), ModelError> {

@@ -122,7 +122,11 @@ impl Model {
                     TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
                 };
                 let cut = |i: usize| rows.cut_short.as_ref().is_some_and(|c| c[i]);
-                linear.iter().zip(y).enumerate().map(|(i, (&eta, &v))| time_row_log_density(TimeRow::new(v, cut(i)), eta, shape)).collect()
+                let row = |i: usize, v: f64| match &rows.upper {
+                    Some(upper) if !cut(i) => TimeRow::between(v, upper[i]),
+                    _ => TimeRow::new(v, cut(i)),
+                };
+                linear.iter().zip(y).enumerate().map(|(i, (&eta, &v))| time_row_log_density(row(i, v), eta, shape)).collect()
             }
             Family::Levels | Family::Graded => unreachable!("a model of a category outcome answered above"),
         })
@@ -152,7 +156,8 @@ impl Model {
             },
             Likelihood::Glm(glm) => {
                 let cut_short = self.cut_short_rows().map(|c| c.into_iter().enumerate().filter(|(i, _)| *i != row).map(|(_, c)| c).collect());
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short };
+                let upper = self.upper_bounds().map(|u| without(&u));
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(without), levels: None, cut_short, upper };
                 Likelihood::Glm(
                     glm_data(&design, &self.family, &outcome).with_groups(group_indices(&design, &self.groups, &group_rows)),
                 )

@@ -40,12 +40,16 @@ pub struct NewRows {
     /// Per row, whether its follow-up was cut short (time families, when the
     /// table has the `cut short by` column; `None`: every row an event).
     pub cut_short: Option<Vec<bool>>,
+    /// Per row, the time by which its event came (time families, when the
+    /// table has the `came by` column; the outcome is then each row's lower
+    /// bound, equal to this for an event seen then).
+    pub upper: Option<Vec<f64>>,
 }
 
 impl NewRows {
     /// Rows without pooled groups (or of a new group in each).
     pub fn from_design(design: DMatrix<f64>, trials: Option<Vec<u64>>) -> NewRows {
-        NewRows { design, trials, groups: Vec::new(), cut_short: None }
+        NewRows { design, trials, groups: Vec::new(), cut_short: None, upper: None }
     }
 
     /// The rows at `indices`, in that order.
@@ -55,6 +59,7 @@ impl NewRows {
             trials: self.trials.as_ref().map(|t| indices.iter().map(|&i| t[i]).collect()),
             groups: self.groups.iter().map(|g| indices.iter().map(|&i| g[i]).collect()).collect(),
             cut_short: self.cut_short.as_ref().map(|c| indices.iter().map(|&i| c[i]).collect()),
+            upper: self.upper.as_ref().map(|u| indices.iter().map(|&i| u[i]).collect()),
         }
     }
 }
@@ -79,13 +84,15 @@ impl Model {
             _ => None,
         };
         let groups = self.groups.iter().map(|g| g.level_of_rows(table)).collect::<Result<_, _>>()?;
-        let cut_short = match &self.family {
-            Family::Times { cut_short: Some(column), .. } if table.column(column).is_some() => {
-                read_outcome(table, &self.outcome, &self.family).ok().and_then(|o| o.cut_short)
+        let (cut_short, upper) = match &self.family {
+            Family::Times { cut_short, came_by, .. }
+                if cut_short.iter().chain(came_by).any(|c| table.column(c).is_some()) =>
+            {
+                read_outcome(table, &self.outcome, &self.family).ok().map_or((None, None), |o| (o.cut_short, o.upper))
             }
-            _ => None,
+            _ => (None, None),
         };
-        Ok(NewRows { design, trials, groups, cut_short })
+        Ok(NewRows { design, trials, groups, cut_short, upper })
     }
 
     /// Linear predictor and mean at constrained parameters `params` (one
@@ -147,6 +154,32 @@ impl Model {
     /// the scale λ whose mean is the row's mean time
     /// ([`survival::median_time`]).
     pub fn median_time_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64]) -> Result<Vec<f64>, ModelError> {
+        let (linear, shape) = self.time_predictors_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::median_time(eta, shape)).collect())
+    }
+
+    /// Each new row's time by which a share `q` of its events has come
+    /// ([`survival::quantile_time`]); time families only.
+    pub fn quantile_time_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64], q: f64) -> Result<Vec<f64>, ModelError> {
+        let (linear, shape) = self.time_predictors_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::quantile_time(q, eta, shape)).collect())
+    }
+
+    /// Each new row's chance that its event has come by time `t`
+    /// ([`survival::event_chance_by`]); time families only.
+    pub fn event_chance_in_new_groups(&self, params: &[f64], rows: &NewRows, new_group: &[f64], t: f64) -> Result<Vec<f64>, ModelError> {
+        let (linear, shape) = self.time_predictors_in_new_groups(params, rows, new_group)?;
+        Ok(linear.into_iter().map(|eta| survival::event_chance_by(t, eta, shape)).collect())
+    }
+
+    /// Each new row's log mean time η with the shape at `params` (the
+    /// exponential's k = 1): what every summary of a time is computed from.
+    pub fn time_predictors_in_new_groups(
+        &self,
+        params: &[f64],
+        rows: &NewRows,
+        new_group: &[f64],
+    ) -> Result<(Vec<f64>, TimeShape), ModelError> {
         let Family::Times { form, .. } = &self.family else {
             return Err(ModelError::Family { message: format!("model `{}` does not model times", self.name) });
         };
@@ -154,8 +187,7 @@ impl Model {
             TimeForm::Exponential => TimeShape::exponential(),
             TimeForm::Weibull => TimeShape::from_log_shape(params[self.labels.len()].ln()),
         };
-        let linear = self.linear_predictor_in_new_groups(params, rows, new_group)?;
-        Ok(linear.into_iter().map(|eta| survival::median_time(eta, shape)).collect())
+        Ok((self.linear_predictor_in_new_groups(params, rows, new_group)?, shape))
     }
 
     /// The probability of every outcome level (reference first, in
@@ -375,7 +407,7 @@ impl Model {
             Likelihood::Gaussian { .. } | Likelihood::Softmax(_) | Likelihood::Graded(_) => None,
         };
         let groups = self.group_rows.iter().map(|g| g.iter().map(|&l| Some(l)).collect()).collect();
-        NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows() }
+        NewRows { design: self.design.clone(), trials, groups, cut_short: self.cut_short_rows(), upper: self.upper_bounds() }
     }
 
     /// The same model — design, recipes, priors and binomial trials
@@ -383,12 +415,20 @@ impl Model {
     /// outcomes simulated from the prior for simulation-based calibration,
     /// where the priors must not move with the simulated data. For the
     /// levels family `y` holds level indices; a time model cuts the new
-    /// times short where the data were ([`Model::cut_like_the_data`]).
+    /// times short where the data were ([`Model::cut_like_the_data`]), and
+    /// one with rows between bounds sees them at the data's looks
+    /// ([`Model::bounded_like_the_data`]).
     pub fn with_outcome(&self, y: Vec<f64>) -> Result<Model, ModelError> {
         if y.len() != self.y.len() {
             return Err(ModelError::Parameters {
                 message: format!("{} outcome values were given for the {} rows of model `{}`", y.len(), self.y.len(), self.name),
             });
+        }
+        if let Some(outcome) = self.bounded_like_the_data(&y) {
+            let likelihood = Likelihood::Glm(
+                glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
+            );
+            return Ok(Model { y: outcome.y, likelihood, ..self.clone() });
         }
         let (y, cut_short) = self.cut_like_the_data(y);
         let likelihood = match &self.likelihood {
@@ -397,7 +437,7 @@ impl Model {
                 spread_prior: spread_prior.clone(),
             },
             Likelihood::Glm(glm) => {
-                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None, cut_short };
+                let outcome = OutcomeValues { y: y.clone(), trials: glm.trials().map(<[f64]>::to_vec), levels: None, cut_short, upper: None };
                 Likelihood::Glm(
                     glm_data(&self.design, &self.family, &outcome).with_groups(group_indices(&self.design, &self.groups, &self.group_rows)),
                 )

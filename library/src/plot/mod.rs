@@ -31,6 +31,7 @@ mod recovery;
 mod robustness;
 mod shrinkage;
 mod steps;
+mod survival;
 mod trends;
 
 pub use checks::{
@@ -44,6 +45,7 @@ pub use posterior::{contrast_figure, posterior_figure, DensityArrangement, Param
 pub use robustness::{robustness_figure, RobustnessPicture, StrengthScale};
 pub use shrinkage::{shrinkage_figure, ShrinkageRow};
 pub use steps::{steps_figure, StepLevel};
+pub use survival::{survival_figure, CurveBand, SurvivalMark, SurvivalPicture, SurvivalSetting};
 pub use recovery::{calibration_figure, recovery_figure, RecoveryRow};
 pub use trends::{
     contrast_grid_figure, lines_figure, spline_figure, BasisPicture, GridContrast, LineGroup,

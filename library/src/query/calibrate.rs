@@ -323,6 +323,7 @@ pub struct PredictiveSets {
 /// `sets` outcome sets simulated from parameters drawn from the priors, for
 /// the rows of `table` (the model's own table).
 pub fn prior_predictive(model: &Model, table: &Table, sets: usize, seed: u64) -> Result<PredictiveSets, QueryError> {
+    model.refuse_bounded_times("`prior check`")?;
     let rows = model.new_rows(table)?;
     let replicated = (0..sets)
         .map(|s| {
@@ -338,6 +339,7 @@ pub fn prior_predictive(model: &Model, table: &Table, sets: usize, seed: u64) ->
 /// `sets` outcome sets simulated at posterior draws spread evenly through
 /// `draws`, for the rows of `table` (the model's own table).
 pub fn posterior_predictive(model: &Model, draws: &Draws, table: &Table, sets: usize, seed: u64) -> Result<PredictiveSets, QueryError> {
+    model.refuse_bounded_times("`check`")?;
     let rows = model.new_rows(table)?;
     let params = parameter_rows(model, draws)?;
     if params.is_empty() {

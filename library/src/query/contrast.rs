@@ -14,7 +14,10 @@
 //! * on log-times and on medians (exponential and Weibull times): the
 //!   difference of the log mean times — a log ratio, the same for median
 //!   times since the shape is shared — and the difference of median times,
-//!   `λ·(ln 2)^(1/k)`.
+//!   `λ·(ln 2)^(1/k)`;
+//! * on events by T and on quantile q (times): the difference in the chance
+//!   that the event has come by time T, `1 − S(T)`, and in the time by
+//!   which a share q of the events has come, `λ·(−log(1 − q))^(1/k)`.
 //!
 //! Other predictors are either held at stated values (by default a real
 //! predictor at its table mean and a category at its first level), or the
@@ -33,6 +36,7 @@ use crate::model::{Family, Model, NewRows};
 use crate::table::{ColumnData, Table};
 
 use super::error::QueryError;
+use super::time_curves::{band_of, curve_draws, curve_times, curves_of_draw, SettingCurves, TimeCurves};
 use super::support::{
     column_mean, interval_words, parameter_rows, predictor_columns, require_column, short, stream_seed, with_column,
     ContrastSummary, Setting,
@@ -56,6 +60,11 @@ pub enum On {
     LogTimes,
     /// A time's median.
     Medians,
+    /// A time's chance of an event by the stated time (`on events by T`).
+    EventsBy(f64),
+    /// The time by which the stated share of events has come
+    /// (`on quantile q`, q strictly between 0 and 1).
+    Quantile(f64),
 }
 
 impl On {
@@ -67,6 +76,8 @@ impl On {
             On::Scores => SCORES,
             On::LogTimes => LOG_TIMES,
             On::Medians => MEDIANS,
+            On::EventsBy(_) => EVENTS_BY,
+            On::Quantile(_) => QUANTILE,
         }
     }
 
@@ -83,8 +94,13 @@ pub const SCORES: &str = "scores";
 pub const LOG_TIMES: &str = "log-times";
 /// `on medians`: a time's median.
 pub const MEDIANS: &str = "medians";
+/// `on events by T`: a time's chance of an event by time T (the word
+/// `by` and the time follow).
+pub const EVENTS_BY: &str = "events";
+/// `on quantile q`: the time by which a share q of the events has come.
+pub const QUANTILE: &str = "quantile";
 /// The words after `on` in a contrast.
-pub const SCALES: &[&str] = &["outcomes", "means", SCORES, LOG_TIMES, MEDIANS];
+pub const SCALES: &[&str] = &["outcomes", "means", SCORES, LOG_TIMES, MEDIANS, EVENTS_BY, QUANTILE];
 
 /// `along X from LO to HI [by STEP]`.
 #[derive(Debug, Clone, PartialEq)]
@@ -209,6 +225,10 @@ pub struct Contrast {
     /// than the difference, such as a ratio of risks.
     #[serde(skip)]
     pub means: Vec<(f64, f64)>,
+    /// A time model's survival and hazard curves at both settings (not
+    /// along a grid), for the figure beside the contrast's own.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub curves: Option<TimeCurves>,
 }
 
 impl Contrast {
@@ -257,17 +277,37 @@ pub fn level_contrasts(model: &Model, draws: &Draws, table: &Table, request: &Co
 /// The scales `on` asks for exist for the model's family: scores for a
 /// graded outcome, log-times and medians for times.
 fn check_scale(model: &Model, on: On) -> Result<(), QueryError> {
+    match on {
+        On::EventsBy(t) if !(t.is_finite() && t > 0.0) => {
+            return Err(QueryError::request(format!(
+                "contrast {}: `on {EVENTS_BY} by {}` needs a positive time, in the unit of {}",
+                model.name(),
+                short(t),
+                model.outcome_name()
+            )))
+        }
+        On::Quantile(q) if !(q > 0.0 && q < 1.0) => {
+            return Err(QueryError::request(format!(
+                "contrast {}: `on {QUANTILE} {}` needs a share strictly between 0 and 1 (0.5 is the median)",
+                model.name(),
+                short(q)
+            )))
+        }
+        _ => {}
+    }
     let fits = match on {
         On::Means | On::Outcomes { .. } => true,
         On::Scores => *model.family() == Family::Graded,
-        On::LogTimes | On::Medians => matches!(model.family(), Family::Times { .. }),
+        On::LogTimes | On::Medians | On::EventsBy(_) | On::Quantile(_) => matches!(model.family(), Family::Times { .. }),
     };
     if fits {
         return Ok(());
     }
     let theirs = match model.family() {
         Family::Graded => format!("`on means` (each level's probability), `on outcomes` or `on {SCORES}`"),
-        Family::Times { .. } => format!("`on means`, `on outcomes`, `on {LOG_TIMES}` or `on {MEDIANS}`"),
+        Family::Times { .. } => format!(
+            "`on means`, `on outcomes`, `on {LOG_TIMES}`, `on {MEDIANS}`, `on {EVENTS_BY} by <time>` or `on {QUANTILE} <share>`"
+        ),
         _ => "`on means` or `on outcomes`".to_string(),
     };
     let needs = match on {
@@ -363,6 +403,10 @@ fn contrast_of(
     let means = if request.on.of_draws() { pairing.means(&base)? } else { Vec::new() };
     let values = if request.on.of_draws() { means.iter().map(|(a, b)| a - b).collect() } else { pairing.draws(&base)? };
     let summary = ContrastSummary::of(&values, request.mass)?;
+    let curves = match (model.family(), &request.along) {
+        (Family::Times { .. }, None) => Some(pairing.curves(&base, curve_end(model, table, request.on), request.mass)?),
+        _ => None,
+    };
     let grid = match &request.along {
         Some(g) => grid_points(&pairing, &base, g, &predictors, &place, request.mass)?,
         None => Vec::new(),
@@ -418,7 +462,22 @@ fn contrast_of(
         notes,
         draws: values,
         means,
+        curves,
     })
+}
+
+/// Where a time model's curves end: the longest time in the table's
+/// outcome column, or the contrast's stated time when later.
+fn curve_end(model: &Model, table: &Table, on: On) -> f64 {
+    let longest = table
+        .column(model.outcome_name())
+        .and_then(|c| c.data.as_reals())
+        .and_then(|v| v.into_iter().filter(|t| t.is_finite()).reduce(f64::max))
+        .unwrap_or(1.0);
+    match on {
+        On::EventsBy(t) => longest.max(t),
+        _ => longest,
+    }
 }
 
 /// The two settings `(to, from)`, defaulted when none are given.
@@ -602,6 +661,8 @@ pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
         On::Scores => return format!("latent score of {y} (log-odds scale of the cumulative logit)"),
         On::LogTimes => return format!("log of the mean {y} (the change is the log of the ratio of mean times)"),
         On::Medians => return format!("median {y}"),
+        On::EventsBy(t) => return format!("chance of the event by {y} = {}", short(t)),
+        On::Quantile(q) => return format!("{y} by which a share {} of the events has come", short(q)),
         On::Means | On::Outcomes { .. } => {}
     }
     let means = matches!(on, On::Means);
@@ -648,6 +709,20 @@ fn scale_notes(model: &Model, on: On, over_rows: bool) -> Vec<String> {
              scale·(ln 2)^(1/shape), an exponential time's mean·ln 2); over rows it is the average of each row's \
              median, not the median of all rows together"
         )],
+        On::EventsBy(t) => vec![format!(
+            "on the chance of the event by {y} = {}: each draw's change in 1 − S({}){averaged}, S the survival \
+             function exp(−(t/scale)^shape) (an exponential time's exp(−t/mean)); a probability, no unit",
+            short(t),
+            short(t)
+        )],
+        On::Quantile(q) => vec![format!(
+            "on the {y} by which a share {} of the events has come: each draw's change in \
+             scale·(−log(1 − {}))^(1/shape){averaged} (an exponential time's −mean·log(1 − {})); over rows it is the \
+             average of each row's quantile, not the quantile of all rows together",
+            short(q),
+            short(q),
+            short(q)
+        )],
         On::Means | On::Outcomes { .. } => Vec::new(),
     }
 }
@@ -656,8 +731,8 @@ fn scale_notes(model: &Model, on: On, over_rows: bool) -> Vec<String> {
 /// without the outcome's unit) rather than in the outcome's unit.
 fn without_outcome_unit(model: &Model, on: On) -> bool {
     match on {
-        On::Scores | On::LogTimes => true,
-        On::Medians | On::Outcomes { .. } => false,
+        On::Scores | On::LogTimes | On::EventsBy(_) => true,
+        On::Medians | On::Quantile(_) | On::Outcomes { .. } => false,
         On::Means => matches!(model.family(), Family::Binomial { .. } | Family::Bernoulli | Family::Beta),
     }
 }
@@ -792,6 +867,14 @@ impl Pairing<'_> {
                         self.model.median_time_in_new_groups(theta, &rows_to, &new)?,
                         self.model.median_time_in_new_groups(theta, &rows_from, &new)?,
                     ),
+                    (None, On::EventsBy(t)) => (
+                        self.model.event_chance_in_new_groups(theta, &rows_to, &new, t)?,
+                        self.model.event_chance_in_new_groups(theta, &rows_from, &new, t)?,
+                    ),
+                    (None, On::Quantile(q)) => (
+                        self.model.quantile_time_in_new_groups(theta, &rows_to, &new, q)?,
+                        self.model.quantile_time_in_new_groups(theta, &rows_from, &new, q)?,
+                    ),
                     (None, _) => {
                         let a = self.model.predict_mean_in_new_groups(theta, &rows_to, &new)?.mean;
                         let b = self.model.predict_mean_in_new_groups(theta, &rows_from, &new)?.mean;
@@ -801,6 +884,33 @@ impl Pairing<'_> {
                 Ok((a.iter().sum::<f64>() / n as f64, b.iter().sum::<f64>() / n as f64))
             })
             .collect()
+    }
+
+    /// The survival and hazard curves at both settings, averaged over the
+    /// rows of `base`, from the time grid ending at `end`
+    /// ([`time_curves`](super::time_curves)).
+    fn curves(&self, base: &Table, end: f64, mass: f64) -> Result<TimeCurves, QueryError> {
+        let times = curve_times(end);
+        let n = base.nrows();
+        let mut settings = Vec::new();
+        for setting in [self.to, self.from] {
+            let rows = self.model.new_rows(&with_column(base, setting.column(self.variable, n)))?;
+            let (mut survival, mut hazard) = (Vec::new(), Vec::new());
+            for d in curve_draws(self.params.len()) {
+                let theta = &self.params[d];
+                let new = self.new_group(theta, d);
+                let (etas, shape) = self.model.time_predictors_in_new_groups(theta, &rows, &new)?;
+                let (s, h) = curves_of_draw(&etas, shape, &times);
+                survival.push(s);
+                hazard.push(h);
+            }
+            settings.push(SettingCurves {
+                setting: setting.text(),
+                survival: band_of(&survival, times.len(), mass)?,
+                hazard: band_of(&hazard, times.len(), mass)?,
+            });
+        }
+        Ok(TimeCurves { times, settings, mass })
     }
 
     /// Each row's probability of outcome level `k` at parameters `theta`

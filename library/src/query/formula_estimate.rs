@@ -306,6 +306,7 @@ pub(super) fn formula_contrast(
         draws: changes,
         means,
         level: None,
+        curves: None,
     })
 }
 

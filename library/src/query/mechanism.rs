@@ -63,7 +63,7 @@
 
 use std::fmt;
 
-use crate::model::family::survival::CUT_SHORT_BY;
+use crate::model::family::survival::{CAME_BY, CUT_SHORT_BY};
 
 /// The distributions of a mechanism, each written as a call.
 pub const DISTRIBUTIONS: &[&str] = &[CATEGORY, NORMAL, BERNOULLI, POISSON, GAMMA_POISSON, BETA, GRADED, LEVELS, EXPONENTIAL, WEIBULL];
@@ -277,13 +277,42 @@ pub enum Mechanism {
     Time { mean: Expr, log: bool, shape: Option<Expr>, follow_up: Option<FollowUp> },
 }
 
-/// `followed until END cut short by COLUMN` after a time mechanism.
+/// `followed until END cut short by COLUMN [looked at every GAP came by
+/// UPPER]` after a time mechanism.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FollowUp {
     pub end: FollowUpEnd,
     /// The yes/no column written beside the time: yes where the row was cut short.
     pub column: String,
+    /// Looks every so often instead of watching: the event is seen only
+    /// between two looks.
+    pub looks: Option<Looks>,
 }
+
+/// `looked at every GAP came by UPPER`: each row is looked at at GAP, 2·GAP,
+/// … before its follow-up's end and at the end; the time written is the
+/// last look before the event (0 when the event came before the first)
+/// and UPPER the first look at or after it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Looks {
+    pub gap: f64,
+    /// The numeric column of the first look at or after the event.
+    pub column: String,
+}
+
+impl Looks {
+    /// The bounds `(lower, upper)` the looks give an event at time `t > 0`
+    /// within a follow-up ending at `end` (t ≤ end): the last look before
+    /// t and the first at or after it, the end being a look too; always
+    /// `lower < t ≤ upper`.
+    pub fn bounds(&self, t: f64, end: f64) -> (f64, f64) {
+        let looks_to_t = (t / self.gap).ceil();
+        ((looks_to_t - 1.0).max(0.0) * self.gap, (looks_to_t * self.gap).min(end))
+    }
+}
+
+/// The words before the gap between looks.
+pub const LOOKED_AT_EVERY: [&str; 3] = ["looked", "at", "every"];
 
 /// The end of a row's follow-up.
 #[derive(Debug, Clone, PartialEq)]
@@ -435,6 +464,7 @@ fn split_follow_up<'a>(name: &str, rest: &'a str) -> Result<(&'a str, Option<Fol
     let rule = &rest[at + marker.len()..];
     let cut = format!(" {} ", CUT_SHORT_BY.join(" "));
     let (end, column) = rule.rsplit_once(&cut).ok_or_else(usage)?;
+    let (column, looks) = split_looks(name, column)?;
     let column = column.trim();
     if !is_name(column) {
         return Err(usage());
@@ -448,7 +478,31 @@ fn split_follow_up<'a>(name: &str, rest: &'a str) -> Result<(&'a str, Option<Fol
         None if end.is_empty() => return Err(usage()),
         None => FollowUpEnd::At(parse_expr(end)?),
     };
-    Ok((rest[..at].trim_end(), Some(FollowUp { end, column: column.to_string() })))
+    Ok((rest[..at].trim_end(), Some(FollowUp { end, column: column.to_string(), looks })))
+}
+
+/// Split `COLUMN looked at every GAP came by UPPER` into the cut-short
+/// column and the looks.
+fn split_looks<'a>(name: &str, text: &'a str) -> Result<(&'a str, Option<Looks>), String> {
+    let marker = format!(" {} ", LOOKED_AT_EVERY.join(" "));
+    let Some(at) = text.find(&marker) else { return Ok((text, None)) };
+    let usage = || {
+        format!(
+            "the looks of {name} read `{} GAP {} COLUMN` after the cut-short column, GAP a positive number (the time \
+             between looks) and COLUMN a new numeric column (such as `{} 4 {} sprouted_by`)",
+            LOOKED_AT_EVERY.join(" "),
+            CAME_BY.join(" "),
+            LOOKED_AT_EVERY.join(" "),
+            CAME_BY.join(" ")
+        )
+    };
+    let words: Vec<&str> = text[at + marker.len()..].split_whitespace().collect();
+    let [gap, c, b, column] = words.as_slice() else { return Err(usage()) };
+    let gap: f64 = gap.parse().map_err(|_| usage())?;
+    if [*c, *b] != CAME_BY || !is_name(column) || !(gap.is_finite() && gap > 0.0) {
+        return Err(usage());
+    }
+    Ok((&text[..at], Some(Looks { gap, column: column.to_string() })))
 }
 
 /// Read one body line: `None` for a blank or comment line, else the node

@@ -64,6 +64,7 @@ pub mod shrinkage;
 pub mod simulate;
 pub mod steps;
 mod support;
+pub mod time_curves;
 
 pub use answer::{answer_effect, answer_effect_with_progress, AskOptions, EffectAnswer};
 pub use calibrate::{calibrate, calibrate_with_progress, posterior_predictive, prior_predictive, CalibratedParameter, Calibration, PredictiveSets};
@@ -87,3 +88,4 @@ pub use recover::{recover, recover_fitted, Recovery, RecoveryParameter};
 pub use shrinkage::{level_shrinkages, shrinkage, LevelShrinkage, Shrinkage};
 pub use simulate::{Simulation, SimulationSettings};
 pub use support::ContrastSummary;
+pub use time_curves::{Band, SettingCurves, TimeCurves};

@@ -138,6 +138,24 @@ fn follow_up_notes(model: &Model, simulation: &Simulation, generated: &Generated
             col = cut.column
         ));
     }
+    if let Some(looks) = simulation.looks_of(model.outcome_name()) {
+        let reads = matches!(model.family(), Family::Times { came_by: Some(c), .. } if *c == looks.column);
+        notes.push(format!(
+            "the other rows' events were seen only between looks {} apart: {} holds the last look before the event \
+             and {} the first at or after it",
+            crate::model::prior::short_number(looks.gap),
+            cut.node,
+            looks.column
+        ));
+        if !reads {
+            notes.push(format!(
+                "warning: model {} does not read {col}, so it takes each last look before an event for the event and \
+                 its times come out too short; add `came by {col}` to its family line",
+                model.name(),
+                col = looks.column
+            ));
+        }
+    }
     notes
 }
 

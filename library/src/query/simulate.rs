@@ -260,9 +260,24 @@ impl Simulation {
                 (self.nodes[k].mechanism.follow_up(), &generated.follow_up_ends[k], &generated.values[k])
             {
                 let cut: Vec<bool> = times.iter().zip(ends).map(|(t, e)| t > e).collect();
-                let seen = times.iter().zip(ends).map(|(t, e)| t.min(*e)).collect();
-                columns.push(Column::new(node.name.clone(), ColumnData::Real(seen)));
-                columns.push(Column::new(rule.column.clone(), ColumnData::Binary(cut)));
+                let seen: Vec<f64> = times.iter().zip(ends).map(|(t, e)| t.min(*e)).collect();
+                match &rule.looks {
+                    Some(looks) => {
+                        let (lower, upper): (Vec<f64>, Vec<f64>) = seen
+                            .iter()
+                            .zip(ends)
+                            .zip(&cut)
+                            .map(|((&t, &e), &c)| if c { (e, e) } else { looks.bounds(t, e) })
+                            .unzip();
+                        columns.push(Column::new(node.name.clone(), ColumnData::Real(lower)));
+                        columns.push(Column::new(rule.column.clone(), ColumnData::Binary(cut)));
+                        columns.push(Column::new(looks.column.clone(), ColumnData::Real(upper)));
+                    }
+                    None => {
+                        columns.push(Column::new(node.name.clone(), ColumnData::Real(seen)));
+                        columns.push(Column::new(rule.column.clone(), ColumnData::Binary(cut)));
+                    }
+                }
                 continue;
             }
             let data = match (&generated.values[k], &self.nodes[k].mechanism) {
@@ -279,6 +294,11 @@ impl Simulation {
             columns.push(if stated { column.with_stated_order() } else { column });
         }
         Ok(Table::from_columns(self.name.clone(), columns)?)
+    }
+
+    /// The looks of time node `node`'s follow-up rule, when it has them.
+    pub(crate) fn looks_of(&self, node: &str) -> Option<&super::mechanism::Looks> {
+        self.nodes.iter().find(|m| m.node == node)?.mechanism.follow_up()?.looks.as_ref()
     }
 
     /// Per time node with a follow-up rule, how many of the generated rows
@@ -801,6 +821,16 @@ fn check_follow_up_columns(graph: &Graph, nodes: &[NodeMechanism]) -> Result<(),
                 graph.name(),
                 c = rule.column
             )));
+        }
+        if let Some(looks) = &rule.looks {
+            if looks.column == rule.column || graph.nodes().iter().any(|n| n.name == looks.column) {
+                return Err(at(format!(
+                    "the looks of {} write their column as {}, which is a node of graph {} or the cut-short column; name a new column",
+                    m.node,
+                    looks.column,
+                    graph.name()
+                )));
+            }
         }
         if let Some(other) = nodes[..i].iter().find(|o| o.mechanism.follow_up().is_some_and(|r| r.column == rule.column)) {
             return Err(at(format!(

@@ -9,7 +9,7 @@
 //! [`Next::values`] says where one fits.
 
 use super::grammar::{tokens, Names, Next, Wanted};
-use crate::model::family::survival::{TimeForm, CUT_SHORT_BY};
+use crate::model::family::survival::{TimeForm, CAME_BY, CUT_SHORT_BY};
 use crate::model::family::{BINOMIAL, FAMILY_WORDS, OUT_OF};
 use crate::model::prior::PRIOR_DISTRIBUTIONS;
 use crate::model::spec::{
@@ -18,7 +18,8 @@ use crate::model::spec::{
 };
 use crate::model::PriorGroup;
 use crate::query::mechanism::{
-    BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, EXPONENTIAL, FOLLOWED_UNTIL, FUNCTIONS, LOG, LOGIT, POISSON, UNIFORM, WEIBULL,
+    BERNOULLI, CATEGORY as SHARES, DISTRIBUTIONS, EXPONENTIAL, FOLLOWED_UNTIL, FUNCTIONS, LOG, LOGIT, LOOKED_AT_EVERY, POISSON, UNIFORM,
+    WEIBULL,
 };
 use crate::graph::{ARROW, HIDDEN};
 use crate::table::condition::{Comparison, AND, NOT, OR};
@@ -77,15 +78,7 @@ fn model_line(typed: &str) -> Next {
         [FAMILY_LINE, BINOMIAL] => next(&OUT_OF[..1], &[], false),
         [FAMILY_LINE, BINOMIAL, out] if *out == OUT_OF[0] => next(&OUT_OF[1..], &[], false),
         [FAMILY_LINE, BINOMIAL, out, of] if [*out, *of] == OUT_OF => next(&[], &[], true),
-        [FAMILY_LINE, form, rest @ ..] if TimeForm::from_word(form).is_some() && rest.len() < CUT_SHORT_BY.len() => {
-            match CUT_SHORT_BY.get(rest.len()).filter(|_| rest.iter().zip(CUT_SHORT_BY).all(|(a, b)| *a == b)) {
-                Some(word) => next(&[*word], &[], false),
-                None => Next::default(),
-            }
-        }
-        [FAMILY_LINE, form, c, s, b] if TimeForm::from_word(form).is_some() && [*c, *s, *b] == CUT_SHORT_BY => {
-            next(&[], &[], true)
-        }
+        [FAMILY_LINE, form, rest @ ..] if TimeForm::from_word(form).is_some() => time_family_next(rest),
         [PRIOR_LINE] => {
             let mut words = PriorGroup::words();
             words.extend([POOLED_CORRELATIONS, PRIOR_FOR]);
@@ -241,14 +234,49 @@ fn mechanism_line(typed: &str) -> Next {
     }
 }
 
+/// The next word of a phrase `phrase` of which `typed` is the start
+/// (a value once the phrase is whole); `None` when `typed` does not start it.
+fn phrase_next(phrase: &[&'static str], typed: &[&str]) -> Option<Next> {
+    if typed.len() > phrase.len() || typed.iter().zip(phrase).any(|(a, b)| a != b) {
+        return None;
+    }
+    Some(match phrase.get(typed.len()) {
+        Some(word) => next(&[*word], &[], false),
+        None => next(&[], &[], true),
+    })
+}
+
+/// After `family exponential|weibull`: `cut short by C` and `came by U`,
+/// each once, in either order.
+fn time_family_next(mut rest: &[&str]) -> Next {
+    let (mut cut, mut came) = (false, false);
+    loop {
+        match rest {
+            [c, s, b, _, tail @ ..] if [*c, *s, *b] == CUT_SHORT_BY => (cut, rest) = (true, tail),
+            [c, b, _, tail @ ..] if [*c, *b] == CAME_BY => (came, rest) = (true, tail),
+            _ => break,
+        }
+    }
+    if rest.is_empty() {
+        let offered: Vec<&'static str> = [(!cut).then_some(CUT_SHORT_BY[0]), (!came).then_some(CAME_BY[0])].into_iter().flatten().collect();
+        return next(&offered, &[], false);
+    }
+    let phrases: [&[&'static str]; 2] = [&CUT_SHORT_BY, &CAME_BY];
+    phrases.iter().find_map(|p| phrase_next(p, rest)).unwrap_or_default()
+}
+
 /// After a time mechanism's closing bracket: `followed until END cut short
-/// by COLUMN`, END a value or `uniform(LO, HI)`.
+/// by COLUMN [looked at every GAP came by UPPER]`, END a value or
+/// `uniform(LO, HI)`.
 fn follow_up_next(typed: &str, words: &[&str]) -> Next {
     let [followed, until] = FOLLOWED_UNTIL;
     let Some(at) = words.iter().position(|w| *w == followed) else {
         return if typed.trim_end().ends_with(')') { next(&[followed], &[], false) } else { Next::default() };
     };
     let rule = &words[at + 1..];
+    if let Some(c) = rule.windows(3).position(|w| w == CUT_SHORT_BY).filter(|c| rule.len() > c + 3) {
+        return looks_next(&rule[c + 4..]);
+    }
     match rule {
         [] => next(&[until], &[], false),
         [w] if *w == until => next(&[], &[UNIFORM], true),
@@ -256,5 +284,17 @@ fn follow_up_next(typed: &str, words: &[&str]) -> Next {
         [_, .., c, s] if [*c, *s] == CUT_SHORT_BY[..2] => next(&[CUT_SHORT_BY[2]], &[], false),
         [_, .., c] if *c == CUT_SHORT_BY[0] => next(&[CUT_SHORT_BY[1]], &[], false),
         _ => next(&[CUT_SHORT_BY[0]], &[], false),
+    }
+}
+
+/// After the cut-short column of a follow-up rule: `looked at every GAP
+/// came by UPPER`.
+fn looks_next(rest: &[&str]) -> Next {
+    let every = LOOKED_AT_EVERY.len();
+    match rest {
+        [] => next(&[LOOKED_AT_EVERY[0]], &[], false),
+        _ if rest.len() <= every => phrase_next(&LOOKED_AT_EVERY, rest).unwrap_or_default(),
+        [.., _gap] if rest.len() == every + 1 => next(&[CAME_BY[0]], &[], false),
+        _ => phrase_next(&CAME_BY, &rest[every + 1..]).unwrap_or_default(),
     }
 }

@@ -322,7 +322,7 @@ const CONTRAST_OPTIONS: &[&[Slot]] = &[
     INTERVALS_OPTION,
 ];
 const CONTRAST_USAGE: &str =
-    "contrast MODEL: X b vs a [on outcomes|scores|log-times|medians] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows] [intervals P%]";
+    "contrast MODEL: X b vs a [on outcomes|scores|log-times|medians|events by T|quantile Q] [seed S] [at Z v, …] [along W from LO to HI [by STEP]] [over rows] [intervals P%]";
 /// `contrast MODEL: X [options]` (one step of X).
 pub const CONTRAST: Form = Form {
     slots: &[Word("contrast"), Name(Md), Word(":"), Name(Col)],

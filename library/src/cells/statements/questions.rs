@@ -27,7 +27,7 @@ use crate::graph::EffectKind;
 use crate::infer::fit::Method;
 use crate::infer::nuts::Progress;
 use crate::model::ModelSpec;
-use crate::query::contrast::{LOG_TIMES, MEDIANS, SCORES};
+use crate::query::contrast::{EVENTS_BY, LOG_TIMES, MEDIANS, QUANTILE, SCORES};
 use crate::plot::DensityArrangement;
 use crate::query::{
     answer_effect_with_progress, build_joint, AskOptions, check_implications, fit_joint_with_progress, intervene, Contrast,
@@ -187,10 +187,35 @@ pub(crate) fn contrast(session: &mut Session, st: &Statement) -> Result<Vec<Disp
     let model = &session.models[name];
     let table = session.require_table(model.table_name(), line)?;
     let contrasts = crate::query::level_contrasts(model, &fit.draws, table, &request).map_err(|e| query_error(e, line))?;
-    Ok(vec![match contrasts.as_slice() {
+    let mut displays = vec![match contrasts.as_slice() {
         [c] => describe_contrast(c, table, model.outcome_name(), &[]),
         levels => describe_level_contrasts(levels, table, model.outcome_name()),
-    }])
+    }];
+    if let Some(curves) = figures::survival_curves(&contrasts[0], request.on, table, model.outcome_name()) {
+        displays.push(survival_display(&contrasts[0], curves));
+    }
+    Ok(displays)
+}
+
+/// The figure of a time contrast's survival and hazard curves, under a line
+/// saying what they are.
+fn survival_display(c: &Contrast, figure: Result<String, crate::plot::PlotError>) -> Display {
+    let held = if c.over_rows { "averaged over the table's rows" } else { "at the contrast's held values" };
+    match figure {
+        Ok(svg) => Display {
+            plain: format!(
+                "survival and hazard of {} at {} {} and at {} (posterior means with {} bands), {held}",
+                c.model,
+                c.variable,
+                c.to,
+                c.from,
+                crate::model::prior::short_number(c.mass * 100.0) + "%"
+            ),
+            svg: Some(svg),
+            ..Display::default()
+        },
+        Err(e) => Display::text(format!("the survival curves could not be drawn: {e}")),
+    }
 }
 
 /// The display of the per-level contrasts of a category outcome: one row
@@ -263,6 +288,14 @@ fn read_contrast_options(request: &mut ContrastRequest, text: &str) -> Result<()
                 t
             }
             ("on", ["means", t @ ..]) => t,
+            ("on", [EVENTS_BY, "by", time, t @ ..]) => {
+                request.on = On::EventsBy(number(time, "`on events by`")?);
+                t
+            }
+            ("on", [QUANTILE, share, t @ ..]) => {
+                request.on = On::Quantile(number(share, "`on quantile`")?);
+                t
+            }
             ("on", [scale, t @ ..]) if [SCORES, LOG_TIMES, MEDIANS].contains(scale) => {
                 request.on = match *scale {
                     SCORES => On::Scores,

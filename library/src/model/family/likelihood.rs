@@ -473,7 +473,7 @@ fn log_likelihood_constant(outcome: &GlmOutcome) -> f64 {
             .sum(),
         GlmOutcome::Poisson { y } | GlmOutcome::GammaPoisson { y } => -y.iter().map(|&v| log_factorial(v)).sum::<f64>(),
         GlmOutcome::Beta { y, shares } => -y.iter().zip(shares).map(|(&v, s)| v.ln() + s.log_complement).sum::<f64>(),
-        GlmOutcome::Times { rows, .. } => -rows.iter().map(|r| r.event * r.log_time).sum::<f64>(),
+        GlmOutcome::Times { rows, .. } => -rows.iter().map(TimeRow::log_time_of_event).sum::<f64>(),
     }
 }
 

@@ -57,8 +57,10 @@ pub enum Family {
     Beta,
     /// Positive time, log link to its mean, exponential or Weibull
     /// (`shape` learned); rows where the column `cut_short` is yes add their
-    /// log survival ([`survival`]).
-    Times { form: TimeForm, cut_short: Option<String> },
+    /// log survival, and with a `came_by` column each row whose bounds
+    /// differ the log chance between its time and that column's
+    /// ([`survival`]).
+    Times { form: TimeForm, cut_short: Option<String>, came_by: Option<String> },
     /// Category outcome: one linear predictor per level after the first
     /// (the reference, whose predictor is 0), softmax link. The levels come
     /// from the outcome column when the model is built.
@@ -98,7 +100,7 @@ impl Family {
     pub fn parse(text: &str) -> Result<Family, ModelError> {
         let words: Vec<&str> = text.split_whitespace().collect();
         if let Some(times) = parse_time_family(&words) {
-            return times.map(|(form, cut_short)| Family::Times { form, cut_short });
+            return times.map(|(form, c)| Family::Times { form, cut_short: c.cut_short, came_by: c.came_by });
         }
         match words[..] {
             [NORMAL] => Ok(Family::Normal),

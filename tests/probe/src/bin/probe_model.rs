@@ -34,8 +34,12 @@
 //!   `differences` (per draw); for a category outcome, `levels` (one
 //!   `{level, differences}` per outcome level) in place of `differences`.
 //!   An optional `between` (`[b, a]`) compares `b` with `a`; an optional
-//!   `on` (`scores`, `log-times`, `medians`) sets the scale, and the answer
-//!   then also has `notes` and `unit_free` (no outcome unit).
+//!   `on` (`scores`, `log-times`, `medians`, `events by T`, `quantile q`)
+//!   sets the scale, and the answer then also has `notes` and `unit_free`
+//!   (no outcome unit); `mass` sets the interval mass and `over_rows: false`
+//!   holds the other predictors instead of averaging over the rows. A time
+//!   model's answer has `curves` (`times`, and per setting the survival and
+//!   hazard bands).
 //! * `implications` — `columns`, `graph` (body lines), `draws`, `seed` and
 //!   `mass`: the graph's implications checked against the columns with a
 //!   Laplace fit; answers the report (checks with their associations).
@@ -217,15 +221,25 @@ fn contrast(request: &Value) -> Result<Value, String> {
         Some("scores") => waypath::query::On::Scores,
         Some("log-times") => waypath::query::On::LogTimes,
         Some("medians") => waypath::query::On::Medians,
-        Some(other) => return Err(format!("unknown scale {other}")),
+        Some(other) => match other.split_whitespace().collect::<Vec<_>>().as_slice() {
+            ["events", "by", t] => waypath::query::On::EventsBy(t.parse().map_err(|_| format!("bad time {t}"))?),
+            ["quantile", q] => waypath::query::On::Quantile(q.parse().map_err(|_| format!("bad share {q}"))?),
+            _ => return Err(format!("unknown scale {other}")),
+        },
     };
+    if let Some(mass) = request["mass"].as_f64() {
+        ask.mass = mass;
+    }
+    if let Some(false) = request["over_rows"].as_bool() {
+        ask.over_rows = false;
+    }
     let contrasts = waypath::query::level_contrasts(&model, &fit.draws, &table, &ask).map_err(|e| e.to_string())?;
     let names = model.parameter_names();
     let columns: Vec<&[f64]> = names.iter().map(|n| fit.draws.get(n).ok_or("missing draws")).collect::<Result<_, _>>()?;
     let params: Vec<Vec<f64>> = (0..fit.draws.len()).map(|d| columns.iter().map(|c| c[d]).collect()).collect();
     let c = &contrasts[0];
     let mut answer = json!({ "names": names, "params": params, "to": c.to, "from": c.from, "scale": c.scale,
-                             "notes": c.notes, "unit_free": !c.in_outcome_unit });
+                             "notes": c.notes, "unit_free": !c.in_outcome_unit, "curves": c.curves });
     if c.level.is_some() {
         answer["levels"] = json!(contrasts.iter().map(|c| json!({"level": c.level, "differences": c.draws})).collect::<Vec<_>>());
     } else {
