@@ -33,7 +33,7 @@
 use statrs::function::gamma::ln_gamma;
 
 use super::kernels::{exp, softplus_and_logistic};
-use super::shaped::{beta_row, beta_rows, count_tally, gamma_difference_total, BetaPrecision, BetaShare, GammaShape};
+use super::shaped::{beta_rows, count_tally, gamma_difference_total, BetaPrecision, BetaShare, GammaShape};
 use super::survival::{time_row, TimeForm, TimeRow, TimeShape};
 
 /// Rows per block of the stored design.
@@ -528,7 +528,7 @@ mod tests {
 
     /// A beta row at precision 1 (`u = 0`), as [`gamma_poisson_at_one`].
     fn beta_at_one(share: BetaShare, eta: f64) -> (f64, f64) {
-        let (term, slope, _) = beta_row(share, eta, BetaPrecision::from_log_precision(0.0));
+        let (term, slope, _) = super::super::shaped::beta_row(share, eta, BetaPrecision::from_log_precision(0.0));
         (term, slope)
     }
 
