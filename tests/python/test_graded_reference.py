@@ -14,6 +14,8 @@ import pytest
 import scipy.stats as st
 from statsmodels.miscmodels.ordinal_model import OrderedModel
 
+from calibration import assert_ranks_uniform
+
 GRADES = ["none", "mild", "marked", "severe"]
 VARIETIES = ["early", "late", "russet"]
 # Wide normal priors on the coefficients; lognormal(0, s) on a gap has
@@ -138,13 +140,5 @@ def test_calibration_ranks_pass_scipy_chisquare(probe):
     model = ("blight from shade using trees\nfamily graded\n"
              "prior intercepts: normal(0, 1)\nprior slopes: normal(0, 0.7)\n"
              "prior gaps: lognormal(0, 0.4)\n")
-    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
-                             "reps": 150, "seed": 67, "draws": 297})
-    assert "error" not in answer, answer
-    assert answer["reps"] == 150 and answer["failures"] == 0
+    answer = assert_ranks_uniform(probe, cols, model, seed=67)
     assert [p["name"] for p in answer["parameters"]] == ["intercept", "shade slope", "blight cut[marked]"]
-    for p in answer["parameters"]:
-        observed = np.bincount(np.asarray(p["ranks"]) // 10, minlength=10)
-        reference = st.chisquare(observed)
-        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
-        assert reference.pvalue > 0.01, (p["name"], reference)

@@ -11,6 +11,8 @@ import pytest
 import scipy.stats as st
 import statsmodels.api as sm
 
+from calibration import assert_ranks_uniform
+
 # Wide normal priors on the coefficients; lognormal(0, s) on κ has density
 # ∝ exp(−(log κ)²/2s²)/κ, whose 1/κ the Jacobian of κ = e^u cancels, so with a
 # wide s the mode in log κ is the maximum-likelihood κ.
@@ -100,12 +102,4 @@ def test_calibration_ranks_pass_scipy_chisquare(probe):
     model = ("seedlings from gap using plots\nfamily gamma_poisson\n"
              "prior intercepts: normal(1, 0.5)\nprior slopes: normal(0, 0.5)\n"
              "prior overdispersion: half_normal(0.7)\n")
-    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
-                             "reps": 150, "seed": 47, "draws": 297})
-    assert "error" not in answer, answer
-    assert answer["reps"] == 150 and answer["failures"] == 0
-    for p in answer["parameters"]:
-        observed = np.bincount(np.asarray(p["ranks"]) // 10, minlength=10)
-        reference = st.chisquare(observed)
-        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
-        assert reference.pvalue > 0.01, (p["name"], reference)
+    assert_ranks_uniform(probe, cols, model, seed=47)

@@ -14,6 +14,8 @@ import scipy.stats as st
 from scipy.special import expit
 from statsmodels.othermod.betareg import BetaModel
 
+from calibration import assert_ranks_uniform
+
 # Wide normal priors on the coefficients; lognormal(0, s) on φ has density
 # ∝ exp(−(log φ)²/2s²)/φ, whose 1/φ the Jacobian of φ = e^u cancels, so with a
 # wide s the mode in log φ is the maximum-likelihood φ.
@@ -92,12 +94,4 @@ def test_calibration_ranks_pass_scipy_chisquare(probe):
     model = ("moss from gap using plots\nfamily beta\n"
              "prior intercepts: normal(0, 0.7)\nprior slopes: normal(0, 0.5)\n"
              "prior precision: lognormal(2.5, 0.5)\n")
-    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
-                             "reps": 150, "seed": 59, "draws": 297})
-    assert "error" not in answer, answer
-    assert answer["reps"] == 150 and answer["failures"] == 0
-    for p in answer["parameters"]:
-        observed = np.bincount(np.asarray(p["ranks"]) // 10, minlength=10)
-        reference = st.chisquare(observed)
-        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
-        assert reference.pvalue > 0.01, (p["name"], reference)
+    assert_ranks_uniform(probe, cols, model, seed=59)

@@ -17,6 +17,8 @@ import scipy.optimize as opt
 import scipy.stats as st
 from scipy.special import gammaln
 
+from calibration import assert_ranks_uniform
+
 TRAYS = ["clay", "peat", "sand"]
 TERMS = "days from tray, warmth using seeds\n"
 WIDE = "prior intercepts: normal(0, 1000000)\nprior slopes: normal(0, 1000000)\nprior shape: lognormal(0, 1000000)\n"
@@ -169,12 +171,4 @@ def test_calibration_between_looks_passes_scipy_chisquare(probe):
     model = ("days from warmth using seeds\nfamily weibull came by sprouted_by cut short by unsprouted\n"
              "prior intercepts: normal(2.5, 0.5)\nprior slopes: normal(0, 0.1)\n"
              "prior shape: lognormal(0.4, 0.3)\n")
-    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
-                             "reps": 150, "seed": 71, "draws": 297})
-    assert "error" not in answer, answer
-    assert answer["reps"] == 150 and answer["failures"] == 0
-    for p in answer["parameters"]:
-        observed = np.bincount(np.asarray(p["ranks"]) // 10, minlength=10)
-        reference = st.chisquare(observed)
-        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
-        assert reference.pvalue > 0.01, (p["name"], reference)
+    assert_ranks_uniform(probe, cols, model, seed=71)

@@ -22,6 +22,8 @@ import scipy.stats as st
 import statsmodels.api as sm
 from scipy.special import gammaln
 
+from calibration import assert_ranks_uniform
+
 # Wide normal priors on the coefficients; lognormal(0, s) on the shape k has
 # density ∝ exp(−(log k)²/2s²)/k, whose 1/k the Jacobian of k = e^u cancels,
 # so with a wide s the mode in log k is the maximum-likelihood k.
@@ -168,12 +170,4 @@ def test_calibration_with_rows_cut_short_passes_scipy_chisquare(probe):
     model = ("days from warmth using seeds\nfamily weibull cut short by unsprouted\n"
              "prior intercepts: normal(2.5, 0.5)\nprior slopes: normal(0, 0.1)\n"
              "prior shape: lognormal(0.4, 0.3)\n")
-    answer = probe("model", {"action": "calibrate", "columns": cols, "model": model,
-                             "reps": 150, "seed": 67, "draws": 297})
-    assert "error" not in answer, answer
-    assert answer["reps"] == 150 and answer["failures"] == 0
-    for p in answer["parameters"]:
-        observed = np.bincount(np.asarray(p["ranks"]) // 10, minlength=10)
-        reference = st.chisquare(observed)
-        assert p["chi_square"] == pytest.approx(reference.statistic, rel=1e-9)
-        assert reference.pvalue > 0.01, (p["name"], reference)
+    assert_ranks_uniform(probe, cols, model, seed=67)
