@@ -461,7 +461,8 @@ mod tests {
             ("fit m with nuts ", &["acceptance", "chains", "doublings", "draws", "mass", "seed", "settle"]),
             ("fit m with nuts chains 2 ", &["acceptance", "doublings", "draws", "mass", "seed", "settle"]),
             ("fit m with laplace ", &["draws", "seed"]),
-            ("contrast m: x 1 vs 0 on ", &["log-times", "means", "medians", "outcomes", "scores"]),
+            // README: scales `on means|outcomes|scores|log-times|medians|events by T|quantile Q`.
+            ("contrast m: x 1 vs 0 on ", &["events", "log-times", "means", "medians", "outcomes", "quantile", "scores"]),
             ("contrast m: x along z ", &["from"]),
             ("contrast m: x over ", &["rows"]),
             ("contrast m: x 1 ", &["along", "at", "by", "intervals", "on", "over", "seed", "vs"]),

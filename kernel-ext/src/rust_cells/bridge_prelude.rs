@@ -8,7 +8,10 @@
 //! declaration per column in the `table` cell's own syntax
 //! (`rootstock: category(dwarf, standard)`, `girth: real in cm`). Reading
 //! goes through the library's CSV loader with those declarations, so kinds,
-//! level order and units come back exactly. Before a cell the kernel writes
+//! level order and units come back exactly. A category whose levels came in
+//! order of first appearance (not a stated, lowest-first order) is named in a
+//! third file, `NAME.unordered`, one column per line, so it comes back
+//! unordered too (a `steps(c)` term refuses it on both sides). Before a cell the kernel writes
 //! the session's tables to `tables/`; a cell's `wp_publish` writes to
 //! `published/`, which the kernel reads back after the cell. The draws of
 //! each fitted model are in `draws/MODEL.csv` (columns `chain`, `draw`, then
@@ -67,7 +70,14 @@ pub fn wp_write_table(dir: &Path, name: &str, table: &Table) -> Result<(), Strin
     }
     let declarations: String =
         table.columns.iter().map(|c| format!("{}: {}\n", c.name, c.describe_kind())).collect();
+    let unordered: String = table
+        .columns
+        .iter()
+        .filter(|c| matches!(c.data, ColumnData::Category { .. }) && !c.ordered)
+        .map(|c| format!("{}\n", c.name))
+        .collect();
     std::fs::write(dir.join(format!("{name}.csv")), csv).map_err(fail)?;
+    std::fs::write(dir.join(format!("{name}.unordered")), unordered).map_err(fail)?;
     std::fs::write(dir.join(format!("{name}.columns")), declarations).map_err(fail)
 }
 
@@ -82,7 +92,13 @@ pub fn wp_read_table(dir: &Path, name: &str) -> Result<Table, String> {
         let rule = parse_table_line(line).map_err(|e| format!("table {name}: {e}"))?;
         spec.add_rule(rule).map_err(|e| format!("table {name}: {e}"))?;
     }
-    load_table(&spec).map(|(table, _)| table).map_err(|e| format!("table {name}: {e}"))
+    let mut table = load_table(&spec).map(|(table, _)| table).map_err(|e| format!("table {name}: {e}"))?;
+    // Written by wp_write_table; a table written without it keeps the declared order.
+    let unordered = std::fs::read_to_string(dir.join(format!("{name}.unordered"))).unwrap_or_default();
+    for column in table.columns.iter_mut().filter(|c| unordered.lines().any(|l| l == c.name)) {
+        column.ordered = false;
+    }
+    Ok(table)
 }
 
 /// Table names become file names: the session's own rule for names

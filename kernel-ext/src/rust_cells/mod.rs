@@ -423,7 +423,13 @@ mod tests {
         );
         let watered = Column::new("watered", ColumnData::Binary(vec![true, false, true]));
         let visits = Column::new("visits", ColumnData::Count(vec![0, 4, 2]));
-        let table = Table::from_columns("trees", vec![girth, stock, watered, visits]).expect("valid columns");
+        // A category in a stated order keeps it; `rootstock`'s order is only that of first appearance.
+        let canopy = Column::new(
+            "canopy",
+            ColumnData::Category { codes: vec![2, 0, 1], levels: vec!["open".into(), "sparse".into(), "dense".into()] },
+        )
+        .with_stated_order();
+        let table = Table::from_columns("trees", vec![girth, stock, watered, visits, canopy]).expect("valid columns");
         bridge_prelude::wp_write_table(&dir, "trees", &table).expect("writes");
         let back = bridge_prelude::wp_read_table(&dir, "trees").expect("reads");
         let _ = std::fs::remove_dir_all(&dir);
