@@ -475,11 +475,13 @@ impl DesignSums {
     }
 
     /// The settings to carry in a plan.
+    #[cfg(feature = "across_machines")]
     pub(crate) fn encode(&self) -> Vec<u8> {
         self.json.clone().into_bytes()
     }
 
     /// The aggregate `name` from carried settings; `Err` says what is wrong.
+    #[cfg(feature = "across_machines")]
     pub(crate) fn decode(name: &str, bytes: &[u8]) -> Result<AggregateUDF, String> {
         let settings: Settings = serde_json::from_slice(bytes).map_err(|e| format!("the settings of {name} could not be read: {e}"))?;
         if settings.gathered.name() != name {
