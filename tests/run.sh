@@ -59,16 +59,13 @@ cargo build --release --workspace --locked
 echo "== Rust tests"
 cargo test --release --workspace --locked
 
-echo "== the features columnar (Parquet and Arrow tables), on_disk (DataFusion) and across_machines (Ballista)"
+echo "== the features columnar (Parquet and Arrow tables) and on_disk (DataFusion)"
 # Built after the default builds above, which stay without them as the
-# README's first command builds. across_machines includes on_disk, which
-# includes columnar, so one build of the library (and of DataFusion, whose
-# default features Ballista turns on) serves the three tests, the
-# waypath-machines binary the last one starts, and the probes the Python
-# checks call (the cell probe runs tables on disk, the table probe reads
-# Parquet).
-cargo build --release --locked -p waypath-probe --features columnar,on_disk,across_machines
-cargo test --release --locked -p waypath --features across_machines --test table_columnar --test table_on_disk --test table_across_machines
+# README's first command builds. on_disk includes columnar, so one build of
+# the library serves both tests and the probes the Python checks call (the
+# cell probe runs tables on disk, the table probe reads Parquet).
+cargo build --release --locked -p waypath-probe --features columnar,on_disk
+cargo test --release --locked -p waypath --features on_disk --test table_columnar --test table_on_disk
 
 echo "== Python reference checks"
 export WAYPATH_BIN_DIR="$CARGO_TARGET_DIR/release"
