@@ -286,6 +286,10 @@ fn stay_on_disk_without_the_feature_is_refused_with_the_feature_named() {
     let error = outcome.error.expect("refused").to_string();
     assert!(error.contains("\"stay on disk\" needs a Waypath built with the cargo feature \"on_disk\""), "{error}");
     assert!(session.table("plots").is_none());
+    let outcome = run(&mut session, "table plots from \"plots.parquet\":\n    stay on disk across machines at 127.0.0.1:50050");
+    let error = outcome.error.expect("refused").to_string();
+    assert!(error.contains("needs a Waypath built with the cargo feature \"across_machines\""), "{error}");
+    assert!(session.table("plots").is_none());
 }
 
 /// README "Default priors": the coefficients' defaults are shares of one

@@ -127,9 +127,32 @@ fn unrecognised_lines_say_what_a_line_can_be() {
 
 #[test]
 fn stay_on_disk_is_a_rule_and_sets_the_spec() {
-    assert_eq!(parse_table_line("stay  on disk").unwrap(), TableRule::StayOnDisk);
-    let spec = waypath::table::TableSpec::with_rules("t", "plots.parquet", [TableRule::StayOnDisk]).unwrap();
-    assert!(spec.on_disk);
+    assert_eq!(parse_table_line("stay  on disk").unwrap(), TableRule::StayOnDisk { scheduler: None });
+    let spec = waypath::table::TableSpec::with_rules("t", "plots.parquet", [TableRule::StayOnDisk { scheduler: None }]).unwrap();
+    assert!(spec.on_disk && spec.scheduler.is_none());
     let error = parse_table_line("stay here").unwrap_err().to_string();
     assert!(error.contains("write \"stay on disk\""), "{error}");
+}
+
+/// README "Across machines": `stay on disk across machines at HOST:PORT`
+/// names the scheduler; an address without a host or a usable port (1 to
+/// 65535, RFC 6335's range less the reserved 0) is refused with the form.
+#[test]
+fn across_machines_names_the_scheduler_and_refuses_bad_addresses() {
+    let rule = parse_table_line("stay on disk across machines at 10.0.0.5:50050").unwrap();
+    assert_eq!(rule, TableRule::StayOnDisk { scheduler: Some("10.0.0.5:50050".into()) });
+    let spec = TableSpec::with_rules("t", "plots.parquet", [rule]).unwrap();
+    assert!(spec.on_disk);
+    assert_eq!(spec.scheduler.as_deref(), Some("10.0.0.5:50050"));
+    for (line, wanted) in [
+        ("stay on disk across machines at somewhere", "write HOST:PORT"),
+        ("stay on disk across machines at host:0", "is not a port"),
+        ("stay on disk across machines at host:65536", "is not a port"),
+        ("stay on disk across machines at :50050", "is not a host name"),
+        ("stay on disk across machines", "stay on disk across machines at HOST:PORT"),
+        ("stay on disk elsewhere", "stay on disk across machines at HOST:PORT"),
+    ] {
+        let error = problem(line);
+        assert!(error.contains(wanted), "{line}: {error}");
+    }
 }

@@ -658,7 +658,7 @@ mod tests {
 
     /// README "Statements", `table NAME from "FILE.csv":`: `x: real in cm`,
     /// `c: category(a, b)`, `n: count`, `flag: binary`, `drop missing`,
-    /// `keep where COND`, `stay on disk`.
+    /// `keep where COND`, `stay on disk [across machines at HOST:PORT]`.
     #[test]
     fn table_body_lines_offer_the_words_of_the_table_parser() {
         let empty = Session::new(".");
@@ -668,6 +668,9 @@ mod tests {
             ("drop ", &["missing"]),
             ("stay ", &["on"]),
             ("stay on ", &["disk"]),
+            ("stay on disk ", &["across"]),
+            ("stay on disk across ", &["machines"]),
+            ("stay on disk across machines ", &["at"]),
             ("keep ", &["where"]),
             ("x: ", &["binary", "category", "category(", "count", "real"]),
             ("x: real ", &["in"]),

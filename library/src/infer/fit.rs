@@ -231,9 +231,13 @@ fn route(model: &Model, passes_before: usize) -> Option<String> {
         } else {
             "on the normal family's sufficient statistics (XᵀX, Xᵀy, yᵀy), no further pass".to_string()
         };
+        let engine = match disk.scheduler() {
+            Some(scheduler) => format!("the scheduler at {scheduler} and its executors (Apache Ballista)"),
+            None => "the embedded engine (DataFusion)".to_string(),
+        };
         return Some(format!(
-            "table on disk: {} rows of {} stayed there; the embedded engine (DataFusion) made {} {} while the model \
-             was built ({:.2} s); fitted {how}",
+            "table on disk: {} rows of {} stayed there; {engine} made {} {} while the model was built ({:.2} s); \
+             fitted {how}",
             disk.rows(),
             disk.source(),
             passes_before,

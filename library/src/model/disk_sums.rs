@@ -19,8 +19,15 @@
 //! [`TermRecipe`] lays out in memory: an intercept, one indicator per level
 //! of the first category, offsets of a later category, centred slopes and
 //! slopes per level. The cancel flag is read once per batch.
+//!
+//! Each aggregate is a [`DesignSums`] whose settings (the row layout, the
+//! outcome's centre or the coefficients) serialize to JSON, floats as their
+//! bits: with the feature `across_machines` the plan codecs
+//! (`model::plan_codec`) carry them to a scheduler and its executors, which
+//! rebuild the same aggregate there.
 
 use std::collections::HashMap;
+use std::hash::{Hash, Hasher};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 
@@ -28,8 +35,9 @@ use datafusion::arrow::array::{Array, ArrayRef, AsArray, BinaryArray};
 use datafusion::arrow::datatypes::{DataType, Float64Type};
 use datafusion::common::ScalarValue;
 use datafusion::error::{DataFusionError, Result as EngineResult};
-use datafusion::logical_expr::function::{AccumulatorArgs, AccumulatorFactoryFunction};
-use datafusion::logical_expr::{create_udaf, Accumulator, Expr, Volatility};
+use datafusion::logical_expr::function::AccumulatorArgs;
+use datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Expr, Signature, Volatility};
+use serde::{Deserialize, Serialize};
 
 use crate::table::on_disk::DiskTable;
 
@@ -37,29 +45,70 @@ use super::family::Family;
 use super::terms::TermRecipe;
 
 /// The error text an accumulator returns when the cancel flag is set.
-pub(crate) const INTERRUPTED: &str = "waypath: interrupted";
+pub(crate) use crate::table::on_disk::INTERRUPTED;
+
+/// The names of the two aggregates.
+pub(crate) const CROSS_PRODUCTS: &str = "waypath_cross_products";
+pub(crate) const NEWTON_SUMS: &str = "waypath_newton_sums";
 
 /// One input of the aggregate beside the outcome.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 enum Input {
     Number(String),
     Levels { column: String, levels: Vec<String> },
 }
 
 /// Where a design column's value comes from.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 enum Part {
     One,
     /// `[input = level]`.
     Indicator { input: usize, level: usize },
     /// `x − centre`.
-    Centred { input: usize, centre: f64 },
+    Centred {
+        input: usize,
+        #[serde(with = "exact")]
+        centre: f64,
+    },
     /// `(x − centre) · [c = level]`.
-    CentredAt { input: usize, centre: f64, by: usize, level: usize },
+    CentredAt {
+        input: usize,
+        #[serde(with = "exact")]
+        centre: f64,
+        by: usize,
+        level: usize,
+    },
+}
+
+/// Floats in an aggregate's settings travel as their bits, so a centre or
+/// a coefficient arrives on another machine exactly as it left.
+mod exact {
+    use serde::{Deserialize, Deserializer, Serializer};
+
+    pub fn serialize<S: Serializer>(value: &f64, to: S) -> Result<S::Ok, S::Error> {
+        to.serialize_u64(value.to_bits())
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(from: D) -> Result<f64, D::Error> {
+        u64::deserialize(from).map(f64::from_bits)
+    }
+}
+
+/// [`exact`] for a list of floats.
+mod exact_all {
+    use serde::{Deserialize, Deserializer, Serializer};
+
+    pub fn serialize<S: Serializer>(values: &[f64], to: S) -> Result<S::Ok, S::Error> {
+        to.collect_seq(values.iter().map(|v| v.to_bits()))
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(from: D) -> Result<Vec<f64>, D::Error> {
+        Vec::<u64>::deserialize(from).map(|bits| bits.into_iter().map(f64::from_bits).collect())
+    }
 }
 
 /// The design row of a model's recipes, read from the engine's arrays.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub(crate) struct RowLayout {
     inputs: Vec<Input>,
     parts: Vec<Part>,
@@ -125,8 +174,9 @@ impl RowLayout {
         }
     }
 
-    /// The aggregate's arguments: the outcome, then each input.
-    fn arguments(&self, table: &DiskTable, outcome: &str) -> Result<(Vec<Expr>, Vec<DataType>), String> {
+    /// The aggregate's arguments: the outcome, then each input; and
+    /// whether each is text (else a 64-bit float).
+    fn arguments(&self, table: &DiskTable, outcome: &str) -> Result<(Vec<Expr>, Vec<bool>), String> {
         let mut exprs = Vec::new();
         let mut types = Vec::new();
         for name in std::iter::once(outcome).chain(self.inputs.iter().map(|i| match i {
@@ -134,7 +184,7 @@ impl RowLayout {
         })) {
             let column = table.column(name).ok_or_else(|| format!("table {} has no column {name}", table.name))?;
             exprs.push(table.value_expr(column));
-            types.push(if column.text { DataType::Utf8 } else { DataType::Float64 });
+            types.push(column.text);
         }
         Ok((exprs, types))
     }
@@ -232,9 +282,10 @@ trait RowSums: Send + Sync + std::fmt::Debug + 'static {
 }
 
 /// Normal family: `[n, ycᵀyc, Xᵀyc (p), column sums (p), non-zero rows (p), XᵀX (p·p)]`.
-#[derive(Debug)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 struct CrossProducts {
     p: usize,
+    #[serde(with = "exact")]
     y_centre: f64,
 }
 
@@ -264,8 +315,9 @@ impl RowSums for CrossProducts {
 }
 
 /// Bernoulli or poisson at `beta`: `[log-likelihood, gradient (p), information (p·p)]`.
-#[derive(Debug)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 struct NewtonSums {
+    #[serde(with = "exact_all")]
     beta: Vec<f64>,
     poisson: bool,
 }
@@ -354,17 +406,129 @@ fn from_bytes(bytes: &[u8]) -> impl Iterator<Item = f64> + '_ {
     bytes.chunks_exact(8).map(|c| f64::from_le_bytes(c.try_into().expect("eight bytes")))
 }
 
-/// Runs one aggregate of `rows` over the table's kept rows; the packed sums.
+/// What one aggregate adds up.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+enum Gathered {
+    CrossProducts(CrossProducts),
+    NewtonSums(NewtonSums),
+}
+
+impl Gathered {
+    fn name(&self) -> &'static str {
+        match self {
+            Gathered::CrossProducts(_) => CROSS_PRODUCTS,
+            Gathered::NewtonSums(_) => NEWTON_SUMS,
+        }
+    }
+
+    fn length(&self) -> usize {
+        match self {
+            Gathered::CrossProducts(rows) => rows.length(),
+            Gathered::NewtonSums(rows) => rows.length(),
+        }
+    }
+}
+
+/// Everything an aggregate needs besides its arguments: what travels with
+/// the plan to another machine.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+struct Settings {
+    layout: RowLayout,
+    gathered: Gathered,
+    /// Per argument (outcome, then inputs): text, else a 64-bit float.
+    text: Vec<bool>,
+}
+
+/// One of the two aggregates, with its settings. Two are the same function
+/// when their settings are (the engine compares plans by it).
+#[derive(Debug)]
+pub(crate) struct DesignSums {
+    settings: Settings,
+    /// The settings as JSON: what the plan codecs carry.
+    json: String,
+    signature: Signature,
+    /// Set when the run is interrupted; an aggregate rebuilt on another
+    /// machine gets a flag of its own that nothing sets (the caller stops
+    /// waiting instead).
+    cancel: Arc<AtomicBool>,
+}
+
+impl PartialEq for DesignSums {
+    fn eq(&self, other: &Self) -> bool {
+        self.json == other.json
+    }
+}
+
+impl Eq for DesignSums {}
+
+impl Hash for DesignSums {
+    fn hash<H: Hasher>(&self, state: &mut H) {
+        self.json.hash(state);
+    }
+}
+
+impl DesignSums {
+    fn new(settings: Settings, cancel: Arc<AtomicBool>) -> DesignSums {
+        let json = serde_json::to_string(&settings).expect("settings serialize");
+        let types = settings.text.iter().map(|&text| if text { DataType::Utf8 } else { DataType::Float64 }).collect();
+        DesignSums { settings, json, signature: Signature::exact(types, Volatility::Immutable), cancel }
+    }
+
+    /// The settings to carry in a plan.
+    #[cfg(feature = "across_machines")]
+    pub(crate) fn encode(&self) -> Vec<u8> {
+        self.json.clone().into_bytes()
+    }
+
+    /// The aggregate `name` from carried settings; `Err` says what is wrong.
+    #[cfg(feature = "across_machines")]
+    pub(crate) fn decode(name: &str, bytes: &[u8]) -> Result<AggregateUDF, String> {
+        let settings: Settings = serde_json::from_slice(bytes).map_err(|e| format!("the settings of {name} could not be read: {e}"))?;
+        if settings.gathered.name() != name {
+            return Err(format!("the settings carried for {name} are those of {}", settings.gathered.name()));
+        }
+        if settings.text.len() != 1 + settings.layout.inputs.len() {
+            return Err(format!("the settings of {name} name {} arguments for {} inputs", settings.text.len(), settings.layout.inputs.len()));
+        }
+        Ok(AggregateUDF::from(DesignSums::new(settings, Arc::new(AtomicBool::new(false)))))
+    }
+
+    fn accumulator_of<S: RowSums + Clone>(&self, rows: &S) -> Box<dyn Accumulator> {
+        Box::new(SumsAccumulator {
+            layout: Arc::new(self.settings.layout.clone()),
+            rows: Arc::new(rows.clone()),
+            sums: vec![0.0; rows.length()],
+            cancel: Arc::clone(&self.cancel),
+        })
+    }
+}
+
+impl AggregateUDFImpl for DesignSums {
+    fn name(&self) -> &str {
+        self.settings.gathered.name()
+    }
+
+    fn signature(&self) -> &Signature {
+        &self.signature
+    }
+
+    fn return_type(&self, _: &[DataType]) -> EngineResult<DataType> {
+        Ok(DataType::Binary)
+    }
+
+    fn accumulator(&self, _: AccumulatorArgs<'_>) -> EngineResult<Box<dyn Accumulator>> {
+        Ok(match &self.settings.gathered {
+            Gathered::CrossProducts(rows) => self.accumulator_of(rows),
+            Gathered::NewtonSums(rows) => self.accumulator_of(rows),
+        })
+    }
+}
+
+/// Runs one aggregate over the table's kept rows; the packed sums.
 /// The accumulators read a flag of their own, which a watcher sets when
-/// `cancel` is set (the engine's tasks outlive any borrow).
-fn gather<S: RowSums>(
-    table: &DiskTable,
-    outcome: &str,
-    layout: &RowLayout,
-    rows: S,
-    name: &str,
-    cancel: &AtomicBool,
-) -> Result<Vec<f64>, String> {
+/// `cancel` is set (the engine's tasks outlive any borrow); across
+/// machines the engine stops waiting when it is set.
+fn gather(table: &DiskTable, outcome: &str, layout: &RowLayout, gathered: Gathered, cancel: &AtomicBool) -> Result<Vec<f64>, String> {
     let flag = Arc::new(AtomicBool::new(cancel.load(Ordering::Relaxed)));
     let done = AtomicBool::new(false);
     std::thread::scope(|scope| {
@@ -376,36 +540,27 @@ fn gather<S: RowSums>(
                 std::thread::sleep(std::time::Duration::from_millis(20));
             }
         });
-        let result = run_aggregate(table, outcome, layout, rows, name, &flag);
+        let result = run_aggregate(table, outcome, layout, gathered, &flag);
         done.store(true, Ordering::Relaxed);
         result
     })
 }
 
-fn run_aggregate<S: RowSums>(
-    table: &DiskTable,
-    outcome: &str,
-    layout: &RowLayout,
-    rows: S,
-    name: &str,
-    cancel: &Arc<AtomicBool>,
-) -> Result<Vec<f64>, String> {
-    let (arguments, types) = layout.arguments(table, outcome)?;
-    let length = rows.length();
-    let (layout, rows, flag) = (Arc::new(layout.clone()), Arc::new(rows), Arc::clone(cancel));
-    let factory: AccumulatorFactoryFunction = Arc::new(move |_: AccumulatorArgs<'_>| {
-        let accumulator = SumsAccumulator { layout: Arc::clone(&layout), rows: Arc::clone(&rows), sums: vec![0.0; length], cancel: Arc::clone(&flag) };
-        Ok::<Box<dyn Accumulator>, DataFusionError>(Box::new(accumulator))
-    });
-    let function = create_udaf(name, types, Arc::new(DataType::Binary), Volatility::Immutable, factory, Arc::new(vec![DataType::Binary]));
+fn run_aggregate(table: &DiskTable, outcome: &str, layout: &RowLayout, gathered: Gathered, cancel: &Arc<AtomicBool>) -> Result<Vec<f64>, String> {
+    let (arguments, text) = layout.arguments(table, outcome)?;
+    let length = gathered.length();
+    let function = AggregateUDF::from(DesignSums::new(Settings { layout: layout.clone(), gathered, text }, Arc::clone(cancel)));
     let frame = table.frame.clone().aggregate(vec![], vec![function.call(arguments).alias("sums")]).map_err(|e| e.to_string())?;
-    let batches = table.engine.collect(frame).map_err(|e| {
+    let batches = table.engine.collect_until(frame, cancel).map_err(|e| {
         let text = e.to_string();
         if text.contains(INTERRUPTED) { INTERRUPTED.to_string() } else { text }
     })?;
     let batch = batches.iter().find(|b| b.num_rows() > 0).ok_or("the engine returned no sums")?;
     let packed = batch.column(0).as_binary::<i32>();
     let sums: Vec<f64> = if packed.is_valid(0) { from_bytes(packed.value(0)).collect() } else { vec![0.0; length] };
+    if sums.len() != length {
+        return Err(format!("the engine returned {} sums where {length} were expected", sums.len()));
+    }
     Ok(sums)
 }
 
@@ -430,7 +585,7 @@ pub(crate) fn cross_products(
     cancel: &AtomicBool,
 ) -> Result<CrossSums, String> {
     let p = layout.width();
-    let sums = gather(table, outcome, layout, CrossProducts { p, y_centre }, "waypath_cross_products", cancel)?;
+    let sums = gather(table, outcome, layout, Gathered::CrossProducts(CrossProducts { p, y_centre }), cancel)?;
     let mut xtx = sums[2 + 3 * p..].to_vec();
     mirror(&mut xtx, p);
     Ok(CrossSums {
@@ -455,7 +610,7 @@ pub(crate) fn newton_sums(
 ) -> Result<(f64, Vec<f64>, Vec<f64>), String> {
     let p = beta.len();
     let rows = NewtonSums { beta: beta.to_vec(), poisson: *family == Family::Poisson };
-    let sums = gather(table, outcome, layout, rows, "waypath_newton_sums", cancel)?;
+    let sums = gather(table, outcome, layout, Gathered::NewtonSums(rows), cancel)?;
     let mut information = sums[1 + p..].to_vec();
     mirror(&mut information, p);
     Ok((sums[0], sums[1..1 + p].to_vec(), information))

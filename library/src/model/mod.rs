@@ -61,6 +61,8 @@ pub mod family;
 mod inputs;
 #[cfg(feature = "on_disk")]
 pub mod on_disk;
+#[cfg(feature = "across_machines")]
+pub mod plan_codec;
 mod outcome;
 mod pointwise;
 mod posterior;

@@ -81,6 +81,12 @@ impl OnDisk {
         &self.table.source
     }
 
+    /// The scheduler (`HOST:PORT`) whose executors run the passes, `None`
+    /// when the embedded engine runs them.
+    pub fn scheduler(&self) -> Option<&str> {
+        self.table.engine.scheduler()
+    }
+
     /// The rows the model was fitted to.
     pub fn rows(&self) -> usize {
         self.rows

@@ -15,6 +15,10 @@
 //! * [`columnar`]: Parquet files, folders of them and Arrow IPC files, typed
 //!   by the same steps as CSV (cargo feature `columnar`; without it such a
 //!   file is refused with the feature named).
+//! * `on_disk`: tables whose rows stay in their Parquet file, the engine
+//!   planning the rules and a fit's sums (cargo feature `on_disk`), and
+//!   `across_machines`: the same plans on an Apache Ballista scheduler
+//!   (cargo feature `across_machines`).
 //! * [`condition`]: `keep where` conditions.
 //! * [`report`]: what loading did, and [`summary_json`] for the cells module.
 //! * [`error`]: [`TableError`], one sentence per failure.
@@ -24,6 +28,8 @@
 pub mod columnar;
 #[cfg(feature = "on_disk")]
 pub mod on_disk;
+#[cfg(feature = "across_machines")]
+pub mod across_machines;
 pub mod condition;
 pub mod error;
 pub mod load;

@@ -65,10 +65,16 @@ pub struct DiskColumn {
 /// table's passes run on one core.
 pub const ENGINE_THREADS: usize = 1;
 
-/// The engine that runs a table's plans: a runtime and a session context.
+/// The error text an engine pass returns when the cancel flag is set.
+pub const INTERRUPTED: &str = "waypath: interrupted";
+
+/// The engine that runs a table's plans: a runtime and a session context,
+/// embedded or sending its plans to a scheduler (`across_machines`).
 pub struct Engine {
     runtime: tokio::runtime::Runtime,
     context: SessionContext,
+    /// The scheduler's `HOST:PORT` when the plans run across machines.
+    scheduler: Option<String>,
 }
 
 impl std::fmt::Debug for Engine {
@@ -84,12 +90,28 @@ impl Engine {
             .build()
             .map_err(|e| columnar(label, format!("the engine could not start: {e}")))?;
         let config = SessionConfig::new().with_target_partitions(ENGINE_THREADS).with_batch_size(8192);
-        Ok(Engine { runtime, context: SessionContext::new_with_config(config) })
+        Ok(Engine { runtime, context: SessionContext::new_with_config(config), scheduler: None })
+    }
+
+    /// The scheduler the plans run on (`HOST:PORT`), `None` when embedded.
+    pub fn scheduler(&self) -> Option<&str> {
+        self.scheduler.as_deref()
     }
 
     /// Runs `frame` to completion (its batches are small: aggregates).
     pub fn collect(&self, frame: DataFrame) -> datafusion::error::Result<Vec<RecordBatch>> {
         self.runtime.block_on(frame.collect())
+    }
+
+    /// [`Engine::collect`], giving up once `cancel` is set when the plan
+    /// runs across machines (embedded, the aggregates read the flag).
+    pub fn collect_until(&self, frame: DataFrame, cancel: &AtomicBool) -> datafusion::error::Result<Vec<RecordBatch>> {
+        #[cfg(feature = "across_machines")]
+        if self.scheduler.is_some() {
+            return self.runtime.block_on(super::across_machines::until_cancelled(frame.collect(), cancel));
+        }
+        let _ = cancel;
+        self.collect(frame)
     }
 }
 
@@ -109,11 +131,42 @@ pub struct DiskTable {
 impl DiskTable {
     /// Plans the table of `spec` over its Parquet file or folder and
     /// counts what the rules do. Reads no more than the engine's batches.
+    /// A table that runs across machines is opened by
+    /// [`DiskTable::open_across`], which needs the plan codecs.
     pub fn open(spec: &TableSpec, cancel: &AtomicBool) -> Result<DiskTable, TableError> {
         let label = spec.path.display().to_string();
+        if let Some(scheduler) = &spec.scheduler {
+            return Err(columnar(&label, across_refusal(scheduler)));
+        }
         check_source(&spec.path, &label)?;
         let engine = Arc::new(Engine::new(&label)?);
-        let path = spec.path.to_str().ok_or_else(|| columnar(&label, "the path is not valid UTF-8 text".into()))?;
+        Self::open_on(spec, engine, &label, cancel)
+    }
+
+    /// [`DiskTable::open`] for a table whose plans run on the scheduler
+    /// its spec names (`stay on disk across machines at HOST:PORT`), the
+    /// aggregates carried by `codecs`.
+    #[cfg(feature = "across_machines")]
+    pub fn open_across(
+        spec: &TableSpec,
+        codecs: &super::across_machines::PlanCodecs,
+        cancel: &AtomicBool,
+    ) -> Result<DiskTable, TableError> {
+        let label = spec.path.display().to_string();
+        let Some(scheduler) = &spec.scheduler else { return Self::open(spec, cancel) };
+        check_source(&spec.path, &label)?;
+        let (runtime, context) = super::across_machines::remote_engine(scheduler, codecs, &label)?;
+        let engine = Arc::new(Engine { runtime, context, scheduler: Some(scheduler.clone()) });
+        Self::open_on(spec, engine, &label, cancel)
+    }
+
+    fn open_on(spec: &TableSpec, engine: Arc<Engine>, label: &str, cancel: &AtomicBool) -> Result<DiskTable, TableError> {
+        let label = label.to_string();
+        // Executors read the path as given: across machines it must not
+        // depend on this process's working folder.
+        let absolute = std::path::absolute(&spec.path).map_err(|e| columnar(&label, format!("the path could not be made absolute: {e}")))?;
+        let source = if engine.scheduler.is_some() { absolute.as_path() } else { spec.path.as_path() };
+        let path = source.to_str().ok_or_else(|| columnar(&label, "the path is not valid UTF-8 text".into()))?;
         let path = if spec.path.is_dir() && !path.ends_with('/') { format!("{path}/") } else { path.to_string() };
         let frame = engine
             .runtime
@@ -183,6 +236,19 @@ impl DiskTable {
             .collect();
         values.sort();
         values
+    }
+}
+
+/// Why [`DiskTable::open`] does not run a table across machines.
+fn across_refusal(scheduler: &str) -> String {
+    if cfg!(feature = "across_machines") {
+        format!("the table runs on the scheduler at {scheduler}: open it with DiskTable::open_across and the plan codecs")
+    } else {
+        format!(
+            "\"across machines at {scheduler}\" needs a Waypath built with the cargo feature \"across_machines\" \
+             (cargo build --release -p waypath-kernel --features across_machines); write \"stay on disk\" alone to \
+             run the engine on this machine"
+        )
     }
 }
 

@@ -34,6 +34,12 @@ pub const WHERE: &str = "where";
 pub const STAY: &str = "stay";
 pub const ON: &str = "on";
 pub const DISK: &str = "disk";
+/// The words that run a table on disk's passes across machines, on an
+/// Apache Ballista scheduler (`stay on disk across machines at HOST:PORT`,
+/// cargo feature `across_machines`).
+pub const ACROSS: &str = "across";
+pub const MACHINES: &str = "machines";
+pub const AT: &str = "at";
 /// The word before a column's unit.
 pub const IN: &str = "in";
 /// The word of the column kind that may list its levels in brackets.
@@ -61,8 +67,9 @@ pub enum TableRule {
     /// Keep only the rows where the condition holds.
     KeepWhere(Condition),
     /// Leave the rows in the file: the engine plans the rules and a
-    /// model's sums over it (`table::on_disk`).
-    StayOnDisk,
+    /// model's sums over it (`table::on_disk`); with a scheduler's address,
+    /// the plans run across machines (`table::across_machines`).
+    StayOnDisk { scheduler: Option<String> },
 }
 
 /// Everything a `table` cell asks for: where the data is, the declared
@@ -76,6 +83,8 @@ pub struct TableSpec {
     pub filters: Vec<Condition>,
     /// `stay on disk`: the rows are never loaded into memory.
     pub on_disk: bool,
+    /// `… across machines at HOST:PORT`: the scheduler that runs the plans.
+    pub scheduler: Option<String>,
 }
 
 impl TableSpec {
@@ -89,6 +98,7 @@ impl TableSpec {
             drop_missing: false,
             filters: Vec::new(),
             on_disk: false,
+            scheduler: None,
         }
     }
 
@@ -116,7 +126,10 @@ impl TableSpec {
             }
             TableRule::DropMissing => self.drop_missing = true,
             TableRule::KeepWhere(condition) => self.filters.push(condition),
-            TableRule::StayOnDisk => self.on_disk = true,
+            TableRule::StayOnDisk { scheduler } => {
+                self.on_disk = true;
+                self.scheduler = scheduler;
+            }
         }
         Ok(())
     }
@@ -140,7 +153,16 @@ pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
     let words: Vec<&str> = line.split_whitespace().collect();
     match words.as_slice() {
         [DROP, MISSING] => return Ok(TableRule::DropMissing),
-        [STAY, ON, DISK] => return Ok(TableRule::StayOnDisk),
+        [STAY, ON, DISK] => return Ok(TableRule::StayOnDisk { scheduler: None }),
+        [STAY, ON, DISK, ACROSS, MACHINES, AT, address] => {
+            return scheduler_address(address).map(|a| TableRule::StayOnDisk { scheduler: Some(a) }).map_err(fail);
+        }
+        [STAY, ON, DISK, ..] => {
+            return Err(fail(format!(
+                "write \"stay on disk\", or \"stay on disk across machines at HOST:PORT\" with the address of a \
+                 scheduler (e.g. {STAY} {ON} {DISK} {ACROSS} {MACHINES} {AT} 127.0.0.1:50050)"
+            )))
+        }
         [KEEP, WHERE, ..] => {
             let rest = line[KEEP.len()..].trim_start()[WHERE.len()..].trim();
             return Condition::parse(rest).map(TableRule::KeepWhere).map_err(fail);
@@ -158,6 +180,23 @@ pub fn parse_table_line(text: &str) -> Result<TableRule, TableError> {
         Some(_) => "expected a column declaration such as \"girth: real in cm\", \"drop missing\" or \"keep where\" and a condition".to_string(),
     };
     Err(fail(problem))
+}
+
+/// A scheduler's address as `HOST:PORT` (a name or an IP address, a port
+/// from 1 to 65535); `Err` says what is wrong with it.
+fn scheduler_address(text: &str) -> Result<String, String> {
+    let text = text.trim_matches('"');
+    let Some((host, port)) = text.rsplit_once(':') else {
+        return Err(format!("\"{text}\" is not an address: write HOST:PORT, e.g. 127.0.0.1:50050"));
+    };
+    let host_ok = !host.is_empty() && host.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_'));
+    if !host_ok {
+        return Err(format!("\"{host}\" is not a host name or IP address (write HOST:PORT, e.g. 127.0.0.1:50050)"));
+    }
+    match port.parse::<u16>() {
+        Ok(p) if p > 0 => Ok(format!("{host}:{p}")),
+        _ => Err(format!("\"{port}\" is not a port (a whole number from 1 to 65535)")),
+    }
 }
 
 /// The column kinds of a declaration and the word of each.

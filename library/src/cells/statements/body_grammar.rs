@@ -23,7 +23,7 @@ use crate::query::mechanism::{
 };
 use crate::graph::{ARROW, HIDDEN};
 use crate::table::condition::{Comparison, AND, NOT, OR};
-use crate::table::rules::{CATEGORY, DISK, DROP, IN, KEEP, KINDS, MISSING, ON, STAY, WHERE};
+use crate::table::rules::{ACROSS, AT, CATEGORY, DISK, DROP, IN, KEEP, KINDS, MACHINES, MISSING, ON, STAY, WHERE};
 
 /// The block statements whose body lines have words of their own.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -163,7 +163,7 @@ fn open_call(typed: &str) -> Option<(&str, usize, bool)> {
 }
 
 /// A `table` body line: a column declaration, `drop missing`, `keep where …`
-/// or `stay on disk`.
+/// or `stay on disk [across machines at HOST:PORT]`.
 fn table_line(typed: &str) -> Next {
     let words = words_of(typed);
     match words.as_slice() {
@@ -171,6 +171,9 @@ fn table_line(typed: &str) -> Next {
         [DROP] => next(&[MISSING], &[], false),
         [STAY] => next(&[ON], &[], false),
         [STAY, ON] => next(&[DISK], &[], false),
+        [STAY, ON, DISK] => next(&[ACROSS], &[], false),
+        [STAY, ON, DISK, ACROSS] => next(&[MACHINES], &[], false),
+        [STAY, ON, DISK, ACROSS, MACHINES] => next(&[AT], &[], false),
         [KEEP] => next(&[WHERE], &[], false),
         [KEEP, WHERE, condition @ ..] => condition_next(condition),
         [_, ":"] => {

@@ -38,7 +38,11 @@ pub(crate) fn table(session: &mut Session, st: &Statement, control: &RunControl)
 /// A table whose rows stay in their Parquet file or folder (`stay on disk`).
 #[cfg(feature = "on_disk")]
 fn on_disk(session: &mut Session, spec: &TableSpec, name: &str, path: &str, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
-    let mut table = crate::table::on_disk::DiskTable::open(spec, control.cancel).map_err(|e| CellError::at(st.header.number, e.to_string()))?;
+    #[cfg(feature = "across_machines")]
+    let opened = crate::table::on_disk::DiskTable::open_across(spec, &crate::model::plan_codec::plan_codecs(), control.cancel);
+    #[cfg(not(feature = "across_machines"))]
+    let opened = crate::table::on_disk::DiskTable::open(spec, control.cancel);
+    let mut table = opened.map_err(|e| CellError::at(st.header.number, e.to_string()))?;
     table.report.source = path.to_string();
     table.source = path.to_string();
     let display = describe_on_disk(name, &table);
@@ -48,12 +52,13 @@ fn on_disk(session: &mut Session, spec: &TableSpec, name: &str, path: &str, st: 
 
 /// Without the feature: the command that builds it.
 #[cfg(not(feature = "on_disk"))]
-fn on_disk(_: &mut Session, _: &TableSpec, _: &str, path: &str, st: &Statement, _: &RunControl) -> Result<Vec<Display>, CellError> {
+fn on_disk(_: &mut Session, spec: &TableSpec, _: &str, path: &str, st: &Statement, _: &RunControl) -> Result<Vec<Display>, CellError> {
+    let (line, feature) = if spec.scheduler.is_some() { ("stay on disk across machines", "across_machines") } else { ("stay on disk", "on_disk") };
     Err(CellError::at(
         st.header.number,
         format!(
-            "{path}: \"stay on disk\" needs a Waypath built with the cargo feature \"on_disk\" (cargo build --release \
-             -p waypath-kernel --features on_disk); without the line the table is loaded into memory"
+            "{path}: \"{line}\" needs a Waypath built with the cargo feature \"{feature}\" (cargo build --release \
+             -p waypath-kernel --features {feature}); without the line the table is loaded into memory"
         ),
     ))
 }
@@ -76,11 +81,14 @@ fn describe_on_disk(name: &str, table: &crate::table::on_disk::DiskTable) -> Dis
         ]);
     }
     let mut notes = load_notes(&table.report);
-    notes.push(
-        "the rows stay on disk: the embedded engine counted them and plans every model's sums over the file; \
-         statements that need rows in memory (contrast, check, score, robustness …) are refused"
-            .into(),
-    );
+    let engine = match table.engine.scheduler() {
+        Some(scheduler) => format!("the executors of the scheduler at {scheduler} (Apache Ballista) counted them and run"),
+        None => "the embedded engine counted them and plans".to_string(),
+    };
+    notes.push(format!(
+        "the rows stay on disk: {engine} every model's sums over the file; statements that need rows in memory \
+         (contrast, check, score, robustness …) are refused"
+    ));
     let mut plain = format!("{heading}\n{}", grid.to_text());
     for n in &notes {
         plain.push_str(&format!("\n• {n}"));
@@ -90,7 +98,7 @@ fn describe_on_disk(name: &str, table: &crate::table::on_disk::DiskTable) -> Dis
         .iter()
         .map(|c| serde_json::json!({"name": c.name, "kind": c.kind.name(), "levels": c.levels, "missing": reports.get(c.name.as_str()).map_or(0, |r| r.missing)}))
         .collect();
-    let json = serde_json::json!({"name": name, "rows": table.rows(), "columns": columns, "on_disk": true, "load": table.report});
+    let json = serde_json::json!({"name": name, "rows": table.rows(), "columns": columns, "on_disk": true, "scheduler": table.engine.scheduler(), "load": table.report});
     Display { plain, html: Some(html_block(&heading, &[grid.to_html(), html_list(&notes)])), svg: None, json: Some(json) }
 }
 

@@ -363,7 +363,7 @@ pub(crate) fn describe_fit(model: &Model, fit: &Fit, table: Option<&crate::table
         "model": model.name(), "method": fit.method.name(), "seed": fit.method.seed(),
         "settings": method_settings(&fit.method), "interval_mass": mass, "estimates": estimates,
         "health": health.map(|h| h.json), "warnings": fit.warnings, "seconds": fit.seconds,
-        "path": if fit.route.is_some() { "on disk" } else { "in memory" }, "route": fit.route,
+        "path": fit_path(model, fit), "route": fit.route,
     });
     let html = html_block(&heading, &[grid.to_html(), "<p class=\"wp-head\">priors</p>".to_string(), priors.to_html(), html_list(&notes)]);
     Ok(Display { plain, html: Some(html), svg, json: Some(json) })
@@ -395,6 +395,21 @@ fn step_rows(
             Ok((summary, unit))
         })
         .collect()
+}
+
+/// Where the fit's rows were: `in memory`, `on disk`, or `across machines`
+/// (a table on disk whose passes ran on a scheduler's executors).
+fn fit_path(model: &Model, fit: &Fit) -> &'static str {
+    #[cfg(feature = "on_disk")]
+    if model.on_disk().is_some_and(|d| d.scheduler().is_some()) {
+        return "across machines";
+    }
+    let _ = model;
+    if fit.route.is_some() {
+        "on disk"
+    } else {
+        "in memory"
+    }
 }
 
 /// The unit of each parameter named in `names` (the draws' order), from
