@@ -22,6 +22,9 @@
 //! temporary folder (10^6 rows).
 #![cfg(feature = "across_machines")]
 
+mod common;
+
+use common::seeded::Seeded;
 use std::net::{TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
@@ -48,23 +51,6 @@ fn folder(name: &str) -> PathBuf {
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
     dir
-}
-
-/// A small seeded generator (xorshift64*), so the data need no crate.
-struct Seeded(u64);
-
-impl Seeded {
-    fn uniform(&mut self) -> f64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
-    }
-
-    fn normal(&mut self) -> f64 {
-        let (u, v) = (self.uniform().max(1e-300), self.uniform());
-        (-2.0 * u.ln()).sqrt() * (std::f64::consts::TAU * v).cos()
-    }
 }
 
 /// Invented orchard plots: region (text), ground slope (real, some

@@ -4,4 +4,5 @@
 pub mod cells;
 pub mod linear_sem;
 pub mod sbc;
+pub mod seeded;
 pub mod text_boxes;
