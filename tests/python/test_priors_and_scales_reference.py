@@ -36,35 +36,14 @@ def test_inverse_gamma_draws_follow_scipy(probe):
 
 from scipy.special import gammaln  # noqa: E402
 
-TRAYS = ["clay", "peat", "sand"]
+from germination import linear_predictors  # noqa: E402
+from germination import germination as germination_with_days  # noqa: E402
 
 
 def germination(n=160, seed=5, shape=1.8):
-    """Invented days to germination by tray and warmth, some trays' trials
-    ending before the seed sprouted (the time is then the days followed)."""
-    rng = np.random.default_rng(seed)
-    tray = rng.integers(0, 3, n)
-    warmth = rng.uniform(12, 28, n)
-    eta = 2.5 - 0.05 * (warmth - 20) + 0.25 * (tray == 1)
-    event = np.exp(eta - gammaln(1 + 1 / shape)) * rng.weibull(shape, n)
-    end = rng.uniform(10, 40, n)
-    cut = event > end
-    return {
-        "tray": {"category": {"codes": tray.tolist(), "levels": TRAYS}},
-        "warmth": {"real": warmth.tolist()},
-        "days": {"real": np.where(cut, end, event).tolist()},
-        "unsprouted": {"binary": cut.astype(int).tolist()},
-    }, tray, warmth
-
-
-def linear_predictors(answer, tray, warmth, setting):
-    """Each draw's η per row with warmth set to `setting` in every row
-    (centred at the table's mean warmth, the model's default)."""
-    names = answer["names"]
-    params = np.array(answer["params"])
-    level = params[:, [names.index(f"tray[{t}]") for t in TRAYS]][:, tray]
-    slope = params[:, names.index("warmth slope")][:, None]
-    return level + slope * (setting - warmth.mean()), params
+    """The shared germination data with this file's seed and shape."""
+    cols, tray, warmth, _ = germination_with_days(n, seed, shape)
+    return cols, tray, warmth
 
 
 @pytest.mark.parametrize("form", ["weibull", "exponential"])

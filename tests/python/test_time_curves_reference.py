@@ -16,37 +16,16 @@ import pytest
 import scipy.stats as st
 from scipy.special import gammaln
 
-TRAYS = ["clay", "peat", "sand"]
+from germination import germination, linear_predictors
+
 MODEL = "days from tray, warmth using seeds\nfamily {form} cut short by unsprouted\n"
-
-
-def germination(n=160, seed=11, shape=1.6):
-    rng = np.random.default_rng(seed)
-    tray = rng.integers(0, 3, n)
-    warmth = rng.uniform(12, 28, n)
-    eta = 2.5 - 0.05 * (warmth - 20) + 0.25 * (tray == 1)
-    event = np.exp(eta - gammaln(1 + 1 / shape)) * rng.weibull(shape, n)
-    end = rng.uniform(10, 40, n)
-    cut = event > end
-    days = np.where(cut, end, event)
-    cols = {
-        "tray": {"category": {"codes": tray.tolist(), "levels": TRAYS}},
-        "warmth": {"real": warmth.tolist()},
-        "days": {"real": days.tolist()},
-        "unsprouted": {"binary": cut.astype(int).tolist()},
-    }
-    return cols, tray, warmth, days
 
 
 def etas(answer, tray, warmth, setting, held):
     """Per draw (rows) and per contrast row (columns), η with warmth set to
     `setting`; held: one row at the first tray, else every table row."""
-    names = answer["names"]
-    params = np.array(answer["params"])
     trays = np.zeros(1, dtype=int) if held else tray
-    level = params[:, [names.index(f"tray[{t}]") for t in TRAYS]][:, trays]
-    slope = params[:, names.index("warmth slope")][:, None]
-    return level + slope * (setting - warmth.mean()), params
+    return linear_predictors(answer, trays, warmth, setting)
 
 
 def distribution(form, eta, params, names):
