@@ -429,15 +429,30 @@ pub fn shrinkage(s: &crate::query::Shrinkage, model: &Model, table: &Table) -> R
 /// lowest, in the outcome's unit for a normal outcome, on the link scale
 /// otherwise.
 pub fn steps(levels: &[crate::query::steps::LevelEffect], column: &str, model: &Model, table: &Table, mass: f64) -> Result<String, PlotError> {
+    let lowest = levels.first().map_or(column, |l| l.level.as_str());
     let (name, unit) = match model.family() {
-        Family::Normal => (format!("mean {} against the lowest {column}", model.outcome_name()), quantity(table, model.outcome_name()).unit),
-        _ => (format!("linear predictor of {} against the lowest {column}", model.outcome_name()), None),
+        Family::Normal => (format!("mean {} against {lowest}", model.outcome_name()), quantity(table, model.outcome_name()).unit),
+        family => (format!("{} against {lowest}", link_scale_words(family, model.outcome_name())), None),
     };
     let rows: Vec<crate::plot::StepLevel> = levels
         .iter()
         .map(|l| crate::plot::StepLevel { label: l.level.clone(), mean: l.mean, lower: l.lower, upper: l.upper })
         .collect();
     crate::plot::steps_figure(&format!("{column} in {}", model.name()), &Quantity { name, unit }, &interval_label(mass), &rows)
+}
+
+/// What a family's linear predictor measures, in words short enough for an
+/// axis: `log odds of blight` rather than "linear predictor".
+fn link_scale_words(family: &Family, outcome: &str) -> String {
+    match family {
+        Family::Bernoulli => format!("log odds of {outcome}"),
+        Family::Binomial { .. } => format!("log odds of {outcome} per trial"),
+        Family::Beta => format!("log odds of mean {outcome}"),
+        Family::Poisson | Family::GammaPoisson => format!("log of mean {outcome}"),
+        Family::Times { .. } => format!("log of mean time {outcome}"),
+        Family::Graded => format!("latent score of {outcome}"),
+        Family::Normal | Family::Levels => format!("linear predictor of {outcome}"),
+    }
 }
 
 /// A contrast: the density of its per-draw differences with both sides of
