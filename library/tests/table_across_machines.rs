@@ -24,6 +24,7 @@
 
 mod common;
 
+use common::scratch::fresh_folder;
 use common::seeded::Seeded;
 use std::net::{TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
@@ -45,13 +46,6 @@ use waypath::table::{load_table_with_cancel, parse_table_line, TableSpec};
 const REGIONS: [&str; 3] = ["north", "middle", "south"];
 const ROWS: usize = 1_000_000;
 const FILES: usize = 4;
-
-fn folder(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("waypath-machines-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
 
 /// Invented orchard plots: region (text), ground slope (real, some
 /// missing), trees (count), yield (real) and a yes/no outcome `blight`
@@ -221,7 +215,7 @@ impl Drop for Cluster {
 
 #[test]
 fn a_million_rows_give_the_same_sums_and_modes_across_machines_as_embedded_and_in_memory() {
-    let dir = folder("agree");
+    let dir = fresh_folder("machines", "agree");
     let data = plots(ROWS, 41);
     let parts = dir.join("plots");
     std::fs::create_dir_all(&parts).unwrap();
@@ -287,7 +281,7 @@ fn a_million_rows_give_the_same_sums_and_modes_across_machines_as_embedded_and_i
 
 #[test]
 fn an_address_where_no_scheduler_answers_is_refused_naming_it() {
-    let dir = folder("refused");
+    let dir = fresh_folder("machines", "refused");
     write_parts(&dir, &plots(1_000, 5));
     let address = format!("127.0.0.1:{}", free_port());
     let started = Instant::now();

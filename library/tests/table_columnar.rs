@@ -5,6 +5,9 @@
 //! tests/python/test_columnar_reference.py checks files written by pyarrow
 //! against their CSV twins.
 
+#[cfg(feature = "columnar")]
+mod common;
+
 use std::sync::atomic::AtomicBool;
 
 use waypath::table::{load_table_with_cancel, parse_table_line, TableSpec};
@@ -25,20 +28,12 @@ fn without_the_feature_a_parquet_file_is_refused_with_the_feature_named() {
 #[cfg(feature = "columnar")]
 mod with_the_feature {
     use super::*;
-    use std::path::PathBuf;
+    use crate::common::scratch::fresh_folder;
     use std::sync::Arc;
 
     use arrow_array::{ArrayRef, Float64Array, RecordBatch, StringArray};
     use parquet::arrow::ArrowWriter;
     use parquet::file::properties::WriterProperties;
-
-    /// A fresh folder for one test.
-    fn folder(name: &str) -> PathBuf {
-        let dir = std::env::temp_dir().join(format!("waypath-columnar-{}-{name}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&dir);
-        std::fs::create_dir_all(&dir).unwrap();
-        dir
-    }
 
     /// `site` and `depth` columns written in row groups of `group_rows`.
     fn write(path: &std::path::Path, sites: &[&str], depths: &[f64], group_rows: usize) {
@@ -55,7 +50,7 @@ mod with_the_feature {
 
     #[test]
     fn an_unknown_level_is_placed_in_its_row_group() {
-        let dir = folder("level");
+        let dir = fresh_folder("columnar", "level");
         let path = dir.join("survey.parquet");
         let sites = ["pool", "run", "pool", "run", "pool", "weir", "run"];
         write(&path, &sites, &[0.5; 7], 2);
@@ -67,7 +62,7 @@ mod with_the_feature {
 
     #[test]
     fn an_interrupt_stops_reading() {
-        let dir = folder("interrupt");
+        let dir = fresh_folder("columnar", "interrupt");
         let path = dir.join("survey.parquet");
         write(&path, &["pool", "run"], &[0.5, 0.7], 1);
         let error = load_table_with_cancel(&spec(&path, &[]), &AtomicBool::new(true)).unwrap_err();
@@ -76,7 +71,7 @@ mod with_the_feature {
 
     #[test]
     fn a_folder_without_parquet_files_is_refused() {
-        let dir = folder("empty");
+        let dir = fresh_folder("columnar", "empty");
         std::fs::write(dir.join("notes.txt"), "not data").unwrap();
         let error = load_table_with_cancel(&spec(&dir, &[]), &AtomicBool::new(false)).unwrap_err();
         assert!(error.to_string().contains("holds no .parquet files"), "{error}");
@@ -84,7 +79,7 @@ mod with_the_feature {
 
     #[test]
     fn folder_rows_follow_file_name_order() {
-        let dir = folder("order");
+        let dir = fresh_folder("columnar", "order");
         write(&dir.join("b.parquet"), &["run"], &[2.0], 10);
         write(&dir.join("a.parquet"), &["pool", "pool"], &[1.0, 1.5], 10);
         let (table, report) = load_table_with_cancel(&spec(&dir, &[]), &AtomicBool::new(false)).unwrap();
@@ -95,7 +90,7 @@ mod with_the_feature {
     #[test]
     fn a_session_never_writes_over_a_file_of_a_folder_it_read() {
         use waypath::cells::{RunControl, Session};
-        let dir = folder("guard");
+        let dir = fresh_folder("columnar", "guard");
         std::fs::create_dir(dir.join("parts")).unwrap();
         let depths = [0.2, 0.4, 0.5, 0.7, 0.9, 1.1];
         write(&dir.join("parts/a.parquet"), &["pool", "run", "pool", "run", "pool", "run"], &depths, 4);

@@ -19,8 +19,9 @@
 
 mod common;
 
+use common::scratch::fresh_folder;
 use common::seeded::Seeded;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::sync::atomic::AtomicBool;
 use std::sync::Arc;
 
@@ -35,14 +36,6 @@ use waypath::table::on_disk::DiskTable;
 use waypath::table::{load_table_with_cancel, parse_table_line, TableSpec};
 
 const REGIONS: [&str; 3] = ["north", "middle", "south"];
-
-/// A fresh folder for one test.
-fn folder(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("waypath-on-disk-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
 
 /// Invented orchard plots: region (text), slope of the ground (real, some
 /// missing), trees (count), irrigated (yes/no), yield (real) and a yes/no
@@ -135,7 +128,7 @@ fn relative(a: &[f64], b: &[f64]) -> f64 {
 
 #[test]
 fn rows_kept_and_dropped_are_counted_as_the_csv_reader_counts_them() {
-    let dir = folder("accounting");
+    let dir = fresh_folder("on-disk", "accounting");
     let data = plots(20_000, 7);
     write_parquet(&dir.join("plots.parquet"), &data);
     write_csv(&dir.join("plots.csv"), &data);
@@ -153,7 +146,7 @@ fn rows_kept_and_dropped_are_counted_as_the_csv_reader_counts_them() {
 
 #[test]
 fn missing_values_without_drop_missing_are_refused_with_the_column_named() {
-    let dir = folder("missing");
+    let dir = fresh_folder("on-disk", "missing");
     write_parquet(&dir.join("plots.parquet"), &plots(2_000, 3));
     let error = DiskTable::open(&spec(&dir.join("plots.parquet"), &on_disk(&BODY[..1])), &AtomicBool::new(false)).unwrap_err();
     let text = error.to_string();
@@ -196,7 +189,7 @@ fn cross_products_by_hand(data: &Plots) -> (Vec<f64>, Vec<f64>, f64, f64) {
 
 #[test]
 fn a_million_rows_give_the_same_sufficient_statistics_and_draws_on_disk_as_in_memory() {
-    let dir = folder("gaussian");
+    let dir = fresh_folder("on-disk", "gaussian");
     let data = plots(1_000_000, 11);
     let path = dir.join("plots.parquet");
     write_parquet(&path, &data);
@@ -240,7 +233,7 @@ fn a_million_rows_give_the_same_sufficient_statistics_and_draws_on_disk_as_in_me
 
 #[test]
 fn the_laplace_mode_of_a_logistic_model_on_disk_is_the_in_memory_mode() {
-    let dir = folder("logistic");
+    let dir = fresh_folder("on-disk", "logistic");
     let path = dir.join("plots.parquet");
     write_parquet(&path, &plots(200_000, 23));
     let cancel = AtomicBool::new(false);
@@ -264,7 +257,7 @@ fn the_laplace_mode_of_a_logistic_model_on_disk_is_the_in_memory_mode() {
 
 #[test]
 fn nuts_on_a_logistic_table_on_disk_is_refused_with_the_reason() {
-    let dir = folder("nuts");
+    let dir = fresh_folder("on-disk", "nuts");
     let path = dir.join("plots.parquet");
     write_parquet(&path, &plots(5_000, 29));
     let cancel = AtomicBool::new(false);
@@ -278,7 +271,7 @@ fn nuts_on_a_logistic_table_on_disk_is_refused_with_the_reason() {
 
 #[test]
 fn an_undeclared_category_and_an_interrupt_are_refused() {
-    let dir = folder("refusals");
+    let dir = fresh_folder("on-disk", "refusals");
     let path = dir.join("plots.parquet");
     write_parquet(&path, &plots(3_000, 31));
     let cancel = AtomicBool::new(false);

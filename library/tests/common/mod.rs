@@ -4,5 +4,6 @@
 pub mod cells;
 pub mod linear_sem;
 pub mod sbc;
+pub mod scratch;
 pub mod seeded;
 pub mod text_boxes;
