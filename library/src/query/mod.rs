@@ -48,6 +48,7 @@ mod error;
 mod direct_formula;
 pub mod formula_chain;
 pub mod formula_estimate;
+pub mod formula_levels;
 pub mod hidden_refit;
 pub mod implications;
 pub mod intervene;
