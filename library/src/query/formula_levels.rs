@@ -122,6 +122,17 @@ impl Support {
     }
 }
 
+/// How many levels a discrete column takes in the chain (`None` for a
+/// real column), without building them.
+fn level_count(column: &Column) -> Option<usize> {
+    match &column.data {
+        ColumnData::Real(_) => None,
+        ColumnData::Binary(_) => Some(2),
+        ColumnData::Category { levels, .. } => Some(levels.len()),
+        ColumnData::Count(v) => Some(usize::try_from(count_top(v.iter().copied().max().unwrap_or(0))).unwrap_or(usize::MAX).saturating_add(1)),
+    }
+}
+
 /// The top value a count is enumerated to, from the largest value seen:
 /// six standard deviations of a Poisson count at that mean above it, and
 /// ten more, so that only a chain far off the data leaves mass beyond.
@@ -356,12 +367,22 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
         }
     }
     let refuse = |why: String| QueryError::request(format!("{place}: the formula is evaluated on a chain of fitted conditionals over the levels of its nodes, and {why}"));
+    let outcome = require_column(table, y, place)?;
+    let mut sizes = Vec::with_capacity(names.len() + 1);
+    for v in &names {
+        let size = level_count(require_column(table, v, place)?).ok_or_else(|| refuse(format!("{v} is a real column (only the outcome may be real there)")))?;
+        sizes.push((v.as_str(), size));
+    }
+    sizes.extend(level_count(outcome).map(|size| (y, size)));
+    let cells = sizes.iter().fold(1usize, |acc, (_, k)| acc.saturating_mul(*k));
+    let columns = sizes.iter().fold(4usize, |acc, (_, k)| acc.saturating_add(*k));
+    let listed: Vec<String> = sizes.iter().map(|(v, k)| format!("{v} ({k} values)")).collect();
+    check_memory(&format!("{place}: the table of every combination of the levels of {} ({cells} combinations)", listed.join(", ")), bytes_for(&[cells, columns]))
+        .map_err(QueryError::request)?;
     let mut nodes = Vec::with_capacity(names.len() + 1);
     for v in &names {
-        let column = require_column(table, v, place)?;
-        nodes.push(Support::of(column).ok_or_else(|| refuse(format!("{v} is a real column (only the outcome may be real there)")))?);
+        nodes.push(Support::of(require_column(table, v, place)?).expect("a discrete column has a support"));
     }
-    let outcome = require_column(table, y, place)?;
     if let Some(levels) = outcome.data.levels() {
         return Err(refuse(format!("the outcome {y} is a category ({}), which has no mean to compare", levels.join(", "))));
     }
@@ -467,12 +488,6 @@ pub(crate) fn level_estimate(
         names.push(y.to_string());
     }
     let discrete = supports;
-    let cells = combinations(&discrete);
-    check_memory(
-        &format!("{place}: the table of every combination of the levels of {} ({cells} combinations)", words(&discrete)),
-        bytes_for(&[cells, 4 + discrete.len()]),
-    )
-    .map_err(QueryError::request)?;
     let mut conditionals = Vec::with_capacity(names.len());
     for (i, node) in names.iter().enumerate() {
         QueryError::stop_if(cancel, &place)?;
@@ -582,10 +597,6 @@ pub(crate) fn usual_level(column: &Column) -> usize {
         ColumnData::Count(v) => (v.iter().sum::<u64>() as f64 / v.len().max(1) as f64).round() as usize,
         ColumnData::Real(_) => 0,
     }
-}
-
-fn words(nodes: &[Support]) -> String {
-    nodes.iter().map(|s| format!("{} ({} values)", s.name, s.values.len())).collect::<Vec<_>>().join(", ")
 }
 
 /// The route in words, for the contrast's `held_how`.
