@@ -366,6 +366,7 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
             names.push(v.to_string());
         }
     }
+    let names = causal_order(formula, names);
     let refuse = |why: String| QueryError::request(format!("{place}: the formula is evaluated on a chain of fitted conditionals over the levels of its nodes, and {why}"));
     let outcome = require_column(table, y, place)?;
     let mut sizes = Vec::with_capacity(names.len() + 1);
@@ -395,6 +396,43 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
         },
     }
     Ok(nodes)
+}
+
+/// `names` ordered so that, where the formula's conditionals allow, the
+/// nodes a conditional is given come before the nodes it draws (and the
+/// nodes of one joint factor keep their order): the complete algorithm
+/// writes `Pr[v | the nodes before v]` in the graph's order, so this is
+/// the graph's order over the formula's nodes, and each regression of the
+/// chain is then a node on the nodes that may cause it. The joint's table
+/// is the same in any order with saturated conditionals; with additive
+/// ones the causal order keeps them closest to the structure. Ties, and
+/// nodes the formula does not relate, keep their order in `names`.
+fn causal_order(formula: &Formula, names: Vec<String>) -> Vec<String> {
+    fn edges(f: &Formula, out: &mut Vec<(String, String)>) {
+        match f {
+            Formula::Probability { of, given } => {
+                for (i, o) in of.iter().enumerate() {
+                    out.extend(given.iter().chain(&of[..i]).map(|g| (g.clone(), o.clone())));
+                }
+            }
+            Formula::Product { factors } => factors.iter().for_each(|g| edges(g, out)),
+            Formula::Sum { body, .. } => edges(body, out),
+            Formula::Ratio { numerator, denominator } => {
+                edges(numerator, out);
+                edges(denominator, out);
+            }
+        }
+    }
+    let mut pairs = Vec::new();
+    edges(formula, &mut pairs);
+    pairs.retain(|(a, b)| a != b && names.contains(a) && names.contains(b));
+    let mut left = names;
+    let mut order = Vec::with_capacity(left.len());
+    while !left.is_empty() {
+        let free = left.iter().position(|v| !pairs.iter().any(|(a, b)| b == v && left.contains(a))).unwrap_or(0);
+        order.push(left.remove(free));
+    }
+    order
 }
 
 /// The number of combinations of the nodes' levels, saturating.
@@ -646,6 +684,21 @@ mod tests {
         assert_eq!(appearances(&twice, "y").unwrap(), 2);
         let divided = Formula::ratio(Formula::probability(s(&["x"]), vec![]), py.clone());
         assert!(appearances(&divided, "y").unwrap_err().contains("divides"));
+    }
+
+    #[test]
+    fn the_chain_follows_the_order_the_conditionals_give() {
+        // Pr[c | a, b] · Pr[b | a] · Pr[a]: a, then b, then c, whatever the
+        // names' own order.
+        let f = Formula::product(vec![
+            Formula::probability(s(&["c"]), s(&["a", "b"])),
+            Formula::probability(s(&["b"]), s(&["a"])),
+            Formula::probability(s(&["a"]), vec![]),
+        ]);
+        assert_eq!(causal_order(&f, s(&["c", "b", "a", "d"])), s(&["a", "b", "c", "d"]));
+        // A joint factor keeps its order: Pr[b, a] puts b first.
+        let joint = Formula::probability(s(&["b", "a"]), vec![]);
+        assert_eq!(causal_order(&joint, s(&["a", "b"])), s(&["b", "a"]));
     }
 
     #[test]
