@@ -344,3 +344,69 @@ fn yes_no_controlled_direct_effect_intervals_cover_the_enumerated_effect() {
     assert!(at_least > 0.98, "{at_least}");
     assert!(covered >= 15, "{covered} of {wanted} intervals covered the truth; missed:\n{}", missed.join("\n"));
 }
+
+/// The yes/no orchard with the crop graded poor, fair or good (softmax
+/// against poor on pollination, slope and frost).
+fn crop_shares(pollinated: f64, slope: f64, frost: f64) -> [f64; 3] {
+    let fair = (0.2 + 0.8 * pollinated - 0.3 * slope - 0.9 * frost).exp();
+    let good = (-0.4 + 1.5 * pollinated + 0.2 * slope - 1.4 * frost).exp();
+    let total = 1.0 + fair + good;
+    [1.0 / total, fair / total, good / total]
+}
+
+#[test]
+fn a_category_outcome_compares_each_level_probability() {
+    let orchard = Orchard { slope: [0.0, 1.2], netting: [-0.6, 1.2, 1.2], pollinated: [-0.5, 0.8, 1.2], crop: [0.0; 4] };
+    // Truth: Pr[crop = level | do(netting = n)] by enumeration.
+    let truth = |n: f64| {
+        let bern = |p: f64, v: f64| if v == 1.0 { p } else { 1.0 - p };
+        let mut out = [0.0; 3];
+        for grower in [0.0, 1.0] {
+            for frost in [0.0, 1.0] {
+                for slope in [0.0, 1.0] {
+                    for pollinated in [0.0, 1.0] {
+                        let p = 0.25 * bern(orchard.p_slope(grower), slope) * bern(orchard.p_pollinated(slope, n), pollinated);
+                        crop_shares(pollinated, slope, frost).iter().enumerate().for_each(|(k, s)| out[k] += p * s);
+                    }
+                }
+            }
+        }
+        out
+    };
+    let mut s = Seeded(0x5EED_17A0_0004);
+    let mut text = String::from("slope,netting,pollinated,crop\n");
+    let draw = |p: f64, s: &mut Seeded| f64::from(u8::from(s.uniform() < p));
+    for _ in 0..1500 {
+        let (grower, frost) = (draw(0.5, &mut s), draw(0.5, &mut s));
+        let slope = draw(orchard.p_slope(grower), &mut s);
+        let netting = draw(orchard.p_netting(grower, frost), &mut s);
+        let pollinated = draw(orchard.p_pollinated(slope, netting), &mut s);
+        let shares = crop_shares(pollinated, slope, frost);
+        let u = s.uniform();
+        let level = if u < shares[0] { "poor" } else if u < shares[0] + shares[1] { "fair" } else { "good" };
+        text.push_str(&format!("{slope},{netting},{pollinated},{level}\n"));
+    }
+    let dir = folder("graded");
+    write(&dir, "crops.csv", &text);
+    let mut session = Session::new(&dir);
+    let declare = "    slope: binary\n    netting: binary\n    pollinated: binary\n    crop: category(poor, fair, good)\n";
+    last_json(&mut session, &format!("table t from \"crops.csv\":\n{declare}{}", GRAPH.replace("good_crop", "crop")));
+    let json = last_json(&mut session, "ask total effect of netting on crop in g using t with laplace seed 9");
+    std::fs::remove_dir_all(&dir).ok();
+    assert!(json["estimand"].as_str().unwrap().contains("probability of each level of crop"), "{json}");
+    let contrasts = json["contrasts"].as_array().unwrap();
+    assert_eq!(contrasts.len(), 3, "{json}");
+    let (to, from) = (truth(1.0), truth(0.0));
+    let mut sum_of_means = 0.0;
+    for (k, c) in contrasts.iter().enumerate() {
+        assert_eq!(c["level"].as_str(), Some(["poor", "fair", "good"][k]), "{c}");
+        let (lo, hi, mean) = (c["lower"].as_f64().unwrap(), c["upper"].as_f64().unwrap(), c["mean"].as_f64().unwrap());
+        let change = to[k] - from[k];
+        eprintln!("crop {}: truth {change:.4}, interval [{lo:.4}, {hi:.4}]", c["level"]);
+        // One data set: a single seeded check per level, not a coverage rate.
+        assert!(lo <= change && change <= hi, "level {k}: truth {change:.3}, interval [{lo:.3}, {hi:.3}]");
+        sum_of_means += mean;
+    }
+    // The level probabilities add to 1 under each setting, so their changes add to 0.
+    assert!(sum_of_means.abs() < 1e-9, "{sum_of_means}");
+}

@@ -10,7 +10,8 @@ enumerating every configuration, hidden nodes included (the definition of
 an intervention, Pearl 2009, Causality, §3.2.1, recalled); the observed
 table the probe receives sums the hidden nodes out of the same
 enumeration. Waypath's evaluator must give the true mean of the outcome,
-and a distribution of mass 1, to 1e-9.
+each level's true probability (what a category outcome compares), and a
+distribution of mass 1, to 1e-9.
 
 A real outcome is made from the same models by giving each outcome level
 a random real value: its mean given any observed nodes is then the
@@ -155,6 +156,10 @@ def check(levels, seed, real):
             assert abs(answer["mass"] - 1.0) < TOL, (answer, c["g"].edges)
             expected = truth(c, level, real)
             assert abs(answer["mean"] - expected) < TOL, (c["x"], c["y"], list(c["g"].edges), answer, expected)
+            if not real:
+                # Each level's probability, as a category outcome is compared.
+                shares = marginal(enumerate_joint(c["g"], c["sizes"], c["tables"], c["order"], {c["x"]: level}), c["order"], [c["y"]])
+                assert np.allclose(answer["shares"], shares, rtol=0.0, atol=TOL), (answer["shares"], shares)
     return evaluated, refused, hidden
 
 

@@ -107,7 +107,13 @@ pub(super) fn direct_by_formula(
         let numbers: Vec<(String, f64)> = held.iter().map(|(n, s)| (n.clone(), if let Setting::Number(v) = s { *v } else { 0.0 })).collect();
         chain_estimate(table, x, y, &formula, &also_set, method, cancel, mass, progress, &simulation, &numbers)?
     };
-    let held_words: Vec<String> = held.iter().map(|(n, v)| format!("{n} = {}", v.text())).collect();
+    let held_words: Vec<String> = held
+        .iter()
+        .map(|(n, v)| match v {
+            Setting::Number(v) => format!("{n} = {v:.4}"),
+            level => format!("{n} = {}", level.text()),
+        })
+        .collect();
     answer.estimand = Some(format!(
         "controlled direct effect on the mean outcome with {} held, by the identifying formula of the complete algorithm, evaluated {}",
         if held_words.is_empty() { "nothing else".to_string() } else { held_words.join(", ") },

@@ -23,8 +23,10 @@
 //! 3. *Sums enumerate.* A sum over nodes runs over every combination of
 //!    their levels; a product multiplies, a ratio divides. Evaluated at
 //!    each level of the outcome, the formula gives its distribution under
-//!    the exposure as set; its mean is the answer under that draw, and its
-//!    mass (1 for a formula that is a distribution) is checked.
+//!    the exposure as set; its mean is the answer under that draw (for a
+//!    category outcome, which has no mean, each level's probability is
+//!    compared instead), and its mass (1 for a formula that is a
+//!    distribution) is checked.
 //!
 //! A real outcome may join discrete nodes: regressed last, on every
 //! discrete node, it adds to the table each combination's probability
@@ -49,6 +51,7 @@ use crate::limits::{bytes_for, check_memory};
 use crate::model::{Model, NewRows};
 use crate::table::{Column, ColumnData, Table};
 
+use super::contrast::{level_scale_words, On};
 use super::error::QueryError;
 use super::formula_estimate::{fit_conditional, formula_contrast, FittedConditional, FormulaFit, FormulaSimulation};
 use super::support::{parameter_rows, require_column, Setting};
@@ -319,6 +322,7 @@ fn appearances(formula: &Formula, name: &str) -> Result<usize, String> {
 /// at their levels, and the mass of the formula's distribution of `y`.
 /// `nodes` are the joint's discrete nodes; a real `y` is not among them
 /// and is read from the joint's first moments.
+#[allow(clippy::too_many_arguments)]
 pub fn effect_on_levels(
     formula: &Formula,
     x: &str,
@@ -346,19 +350,43 @@ pub fn effect_on_levels(
         scope.insert(y.to_string(), Slot::Integrated);
         return Ok((mean, evaluator.eval(formula, &scope)?));
     };
-    let (mut mean, mut mass) = (0.0, 0.0);
-    for (level, value) in outcome.values.iter().enumerate() {
-        scope.insert(y.to_string(), Slot::Level(level));
-        let share = evaluator.eval(formula, &scope)?;
-        mean += value * share;
-        mass += share;
-    }
-    Ok((mean, mass))
+    let shares = shares_of(&evaluator, formula, y, outcome, scope)?;
+    Ok((outcome.values.iter().zip(&shares).map(|(v, s)| v * s).sum(), shares.iter().sum()))
+}
+
+/// `Pr[y = level | do(x = x_level)]` of `formula` on `joint` for every
+/// level of the discrete outcome `y`, with the nodes of `held` at their
+/// levels (they add to 1 for a formula that is a distribution).
+#[allow(clippy::too_many_arguments)]
+pub fn shares_on_levels(
+    formula: &Formula,
+    x: &str,
+    y: &str,
+    x_level: usize,
+    held: &BTreeMap<String, usize>,
+    nodes: &[Support],
+    joint: &LevelJoint,
+    cancel: &AtomicBool,
+) -> Result<Vec<f64>, String> {
+    let outcome = nodes.iter().find(|s| s.name == y).ok_or_else(|| format!("the chain has no discrete node {y}"))?;
+    let evaluator = Evaluator { joint, nodes, real: None, cancel, cache: RefCell::new(HashMap::new()), terms: RefCell::new(0) };
+    let mut scope: BTreeMap<String, Slot> = held.iter().map(|(k, v)| (k.clone(), Slot::Level(*v))).collect();
+    scope.insert(x.to_string(), Slot::Level(x_level));
+    shares_of(&evaluator, formula, y, outcome, scope)
+}
+
+fn shares_of(evaluator: &Evaluator, formula: &Formula, y: &str, outcome: &Support, mut scope: BTreeMap<String, Slot>) -> Result<Vec<f64>, String> {
+    (0..outcome.values.len())
+        .map(|level| {
+            scope.insert(y.to_string(), Slot::Level(level));
+            evaluator.eval(formula, &scope)
+        })
+        .collect()
 }
 
 /// The chain's nodes (the outcome last) and their supports, or why this
-/// route does not apply: a real node other than the outcome, a category
-/// outcome, or a real outcome the formula does not meet in one factor.
+/// route does not apply: a real node other than the outcome, or a real
+/// outcome the formula does not meet in one factor.
 pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -> Result<Vec<Support>, QueryError> {
     let mut names: Vec<String> = formula.nodes().into_iter().filter(|v| v != y).collect();
     for v in std::iter::once(x).chain(also_set.iter().map(String::as_str)) {
@@ -383,9 +411,6 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
     let mut nodes = Vec::with_capacity(names.len() + 1);
     for v in &names {
         nodes.push(Support::of(require_column(table, v, place)?).expect("a discrete column has a support"));
-    }
-    if let Some(levels) = outcome.data.levels() {
-        return Err(refuse(format!("the outcome {y} is a category ({}), which has no mean to compare", levels.join(", "))));
     }
     match Support::of(outcome) {
         Some(support) => nodes.push(support),
@@ -549,28 +574,54 @@ pub(crate) fn level_estimate(
         .map(|(to, from)| Ok((x_support.level_of(to)?, x_support.level_of(from)?)))
         .collect::<Result<_, String>>()
         .map_err(|e| QueryError::request(format!("{place}: {e}")))?;
-    let mut changes = vec![Vec::with_capacity(draws); settings.len()];
-    let mut means = vec![Vec::with_capacity(draws); settings.len()];
+    // One compared quantity per outcome level for a category (its
+    // probability), else one: the outcome's mean.
+    let labels = discrete.last().filter(|s| s.name == y).and_then(|s| s.labels.clone());
+    let quantities = labels.as_ref().map_or(1, Vec::len);
+    let mut changes = vec![vec![Vec::with_capacity(draws); quantities]; settings.len()];
+    let mut means = vec![vec![Vec::with_capacity(draws); quantities]; settings.len()];
     let (mut worst_mass, mut worst_tail) = (0.0_f64, 0.0_f64);
     for d in 0..draws {
         QueryError::stop_if(cancel, &place)?;
         let (joint, tail) = joint_at(&chain, &discrete, real_outcome, d)?;
         worst_tail = worst_tail.max(tail);
+        let at = |level| -> Result<(Vec<f64>, f64), QueryError> {
+            let read = if labels.is_some() {
+                shares_on_levels(formula, x, y, level, &held, &discrete, &joint, cancel).map(|s| {
+                    let total = s.iter().sum();
+                    (s, total)
+                })
+            } else {
+                effect_on_levels(formula, x, y, level, &held, &discrete, &joint, cancel).map(|(m, total)| (vec![m], total))
+            };
+            read.map_err(|e| QueryError::request(format!("{place}: {e}")))
+        };
         for (k, (to, from)) in settings.iter().enumerate() {
-            let at = |level| effect_on_levels(formula, x, y, level, &held, &discrete, &joint, cancel).map_err(|e| QueryError::request(format!("{place}: {e}")));
             let (under_to, mass_to) = at(*to)?;
             let (under_from, mass_from) = at(*from)?;
             worst_mass = worst_mass.max((mass_to - 1.0).abs()).max((mass_from - 1.0).abs());
-            changes[k].push(under_to - under_from);
-            means[k].push((under_to, under_from));
+            for q in 0..quantities {
+                changes[k][q].push(under_to[q] - under_from[q]);
+                means[k][q].push((under_to[q], under_from[q]));
+            }
         }
     }
     let counts: Vec<&Support> = discrete.iter().filter(|s| s.count).collect();
-    let how = how_words(x, y, &names, &held, &counts, worst_tail);
+    let how = how_words(x, y, &names, &held, &counts, worst_tail, labels.is_some());
     let outcome_model = &conditionals.last().expect("the outcome's conditional is fitted").model;
-    let mut contrasts = Vec::with_capacity(settings.len());
+    let mut contrasts = Vec::with_capacity(settings.len() * quantities);
     for (((to, from), changes), means) in simulation.settings.iter().zip(changes).zip(means) {
-        contrasts.push(formula_contrast(table, x, y, outcome_model, to, from, changes, means, mass, how.clone(), None)?);
+        for (q, (changes, means)) in changes.into_iter().zip(means).enumerate() {
+            let mut c = formula_contrast(table, x, y, outcome_model, to, from, changes, means, mass, how.clone(), None)?;
+            if let Some(labels) = &labels {
+                c.contrast = format!("{}, {y} {}", c.contrast, labels[q]);
+                c.scale = level_scale_words(y, &labels[q], On::Means);
+                c.level = Some(labels[q].clone());
+                c.in_outcome_unit = false;
+                c.unit = None;
+            }
+            contrasts.push(c);
+        }
     }
     if worst_tail > TAIL_WARNING {
         warnings.push(format!(
@@ -638,15 +689,16 @@ pub(crate) fn usual_level(column: &Column) -> usize {
 }
 
 /// The route in words, for the contrast's `held_how`.
-fn how_words(x: &str, y: &str, names: &[String], held: &BTreeMap<String, usize>, counts: &[&Support], tail: f64) -> String {
+fn how_words(x: &str, y: &str, names: &[String], held: &BTreeMap<String, usize>, counts: &[&Support], tail: f64, category: bool) -> String {
     let at: Vec<String> = held.iter().map(|(a, l)| format!("{a} at level {l}")).collect();
     let counted: Vec<String> = counts.iter().map(|s| format!("{} enumerated to {}", s.name, s.values.len() - 1)).collect();
     format!(
         "identifying formula evaluated exactly over every combination of the levels of {} (each regressed on the ones before it with its column's family) \
-         with {x} set{}{}; {y}'s mean under each posterior draw",
+         with {x} set{}{}; {y}'s {} under each posterior draw",
         names.join(", "),
         if at.is_empty() { String::new() } else { format!(" and {} held", at.join(", ")) },
-        if counted.is_empty() { String::new() } else { format!("; {} (largest tail left out {tail:.1e})", counted.join(", ")) }
+        if counted.is_empty() { String::new() } else { format!("; {} (largest tail left out {tail:.1e})", counted.join(", ")) },
+        if category { "level probabilities" } else { "mean" }
     )
 }
 

@@ -11,7 +11,8 @@
 //! `{"kind": "levels", "set": [x], "watch": [y], "nodes": [{"name", "size"}], "joint": [..],
 //! "moment": [..] | null, "x_level", "held": {name: level}}` (the complete algorithm's formula
 //! evaluated by `query::formula_levels` on the joint table given over `nodes`, first varying
-//! slowest; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "also_set"}`, or
+//! slowest; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "shares", "also_set"}`
+//! (`shares`: each level's probability of a discrete `y`, else null), or
 //! `{"verdict": "not_identified"}`). `listing` answers with the bounded path listing
 //! (`paths`, `complete`, `separated`, `directed_paths`).
 //!
@@ -23,7 +24,7 @@ use std::collections::BTreeMap;
 use std::sync::atomic::AtomicBool;
 
 use waypath::graph::{from_dot, Complete, Graph, GraphBuilder, GraphError};
-use waypath::query::formula_levels::{effect_on_levels, LevelJoint, Support};
+use waypath::query::formula_levels::{effect_on_levels, shares_on_levels, LevelJoint, Support};
 
 fn main() {
     let request = waypath_probe::read_request();
@@ -111,8 +112,9 @@ fn levels(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
     let held: BTreeMap<String, usize> = also_set.iter().map(|a| (a.clone(), q["held"][a].as_u64().unwrap_or(0) as usize)).collect();
     let never = AtomicBool::new(false);
     let x_level = q["x_level"].as_u64().unwrap_or(0) as usize;
+    let shares = if joint.moment.is_none() { shares_on_levels(&formula, &set[0], &watch[0], x_level, &held, &nodes, &joint, &never).ok() } else { None };
     Ok(match effect_on_levels(&formula, &set[0], &watch[0], x_level, &held, &nodes, &joint, &never) {
-        Ok((mean, mass)) => json!({ "mean": mean, "mass": mass, "also_set": also_set }),
+        Ok((mean, mass)) => json!({ "mean": mean, "mass": mass, "shares": shares, "also_set": also_set }),
         Err(e) => json!({ "error": e }),
     })
 }
