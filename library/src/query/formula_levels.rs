@@ -189,6 +189,10 @@ enum Slot {
     Integrated,
 }
 
+/// The marginals computed so far, by node indices and whether they are
+/// first moments.
+type Marginals = HashMap<(Vec<usize>, bool), Vec<f64>>;
+
 /// Evaluates a formula on one [`LevelJoint`].
 struct Evaluator<'a> {
     joint: &'a LevelJoint,
@@ -197,7 +201,7 @@ struct Evaluator<'a> {
     /// The real outcome's name, if the outcome is real.
     real: Option<&'a str>,
     cancel: &'a AtomicBool,
-    cache: RefCell<HashMap<(Vec<usize>, bool), Vec<f64>>>,
+    cache: RefCell<Marginals>,
     terms: RefCell<u64>,
 }
 
@@ -280,7 +284,7 @@ impl Evaluator<'_> {
     fn count_term(&self) -> Result<(), String> {
         let mut terms = self.terms.borrow_mut();
         *terms += 1;
-        if *terms % CANCEL_EVERY == 0 && self.cancel.load(Ordering::Relaxed) {
+        if terms.is_multiple_of(CANCEL_EVERY) && self.cancel.load(Ordering::Relaxed) {
             return Err("interrupted".into());
         }
         Ok(())
