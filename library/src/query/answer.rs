@@ -166,7 +166,11 @@ pub fn answer_effect_with_progress(
         }
         let estimate = formula_estimate(table, exposure, outcome, formula, &beyond.also_set, method, cancel, mass, progress)?;
         answer.why.extend(beyond.lines());
-        answer.estimand = Some(formula_estimand(beyond, exposure, outcome));
+        let mut estimand = formula_estimand(beyond, exposure, outcome);
+        if estimate.contrasts.iter().any(|c| c.level.is_some()) {
+            estimand = estimand.replacen("on the mean outcome", &format!("on the probability of each level of {outcome}"), 1);
+        }
+        answer.estimand = Some(estimand);
         answer.method = Some(method.describe());
         answer.warnings.extend(estimate.warnings);
         answer.contrasts = estimate.contrasts;

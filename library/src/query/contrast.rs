@@ -682,7 +682,7 @@ pub fn scale_words(model: &Model, on: On, over_rows: bool) -> String {
 }
 
 /// The scale of a contrast of one level's share of a category outcome.
-fn level_scale_words(y: &str, level: &str, on: On) -> String {
+pub(super) fn level_scale_words(y: &str, level: &str, on: On) -> String {
     match on {
         On::Outcomes { .. } => format!("simulated {y} being {level}, as 1 (yes) or 0 (no)"),
         _ => format!("probability that {y} is {level}"),

@@ -8,8 +8,11 @@
 //! function of the observed distribution: the complete algorithm
 //! ([`crate::graph::Graph::identify_controlled_direct`]) decides, and its
 //! formula is evaluated on the chain of normal regressions
-//! ([`super::formula_chain`]) with X at the settings compared and each
-//! mediator held at its mean or at the value `at M v` states.
+//! ([`super::formula_chain`]) when every node it names is a real column,
+//! else on the chain over the levels of its discrete nodes
+//! ([`super::formula_levels`]), with X at the settings compared and each
+//! mediator held at its mean (a discrete one at its usual level) or at the
+//! value `at M v` states.
 
 use std::sync::atomic::AtomicBool;
 
@@ -17,12 +20,13 @@ use crate::graph::{Complete, Graph, GraphError};
 use crate::infer::fit::{Fit, Method};
 use crate::infer::nuts::Progress;
 use crate::model::Model;
-use crate::table::Table;
+use crate::table::{ColumnData, Table};
 
 use super::answer::{AskOptions, EffectAnswer};
 use super::error::QueryError;
 use super::formula_chain::{chain_estimate, chain_nodes};
 use super::formula_estimate::{settings, FormulaSimulation};
+use super::formula_levels::{level_estimate, level_nodes, level_settings, usual_level};
 use super::support::{column_mean, require_column, Setting};
 
 /// The route's name in answers and `compare routes`.
@@ -80,23 +84,44 @@ pub(super) fn direct_by_formula(
         set.join(", "),
         formula.render(&free)
     ));
-    let held = held_values(table, &m, options, &place)?;
-    if let Err(why) = chain_nodes(table, &formula, x, y, &also_set, &place) {
-        answer.why.push(format!("{why}; nothing was fitted"));
-        return Ok(answer);
-    }
+    let by_levels = match (chain_nodes(table, &formula, x, y, &also_set, &place), level_nodes(table, &formula, x, y, &also_set, &place)) {
+        (Ok(_), _) => false,
+        (Err(_), Ok(_)) => true,
+        (Err(normal), Err(levels)) => {
+            let levels = levels.to_string();
+            answer.why.push(format!("{normal}; {}; nothing was fitted", levels.trim_start_matches(&format!("{place}: "))));
+            return Ok(answer);
+        }
+    };
     let column = require_column(table, x, &place)?;
     let compared = match &options.settings {
         Some((to, from)) => vec![(Setting::read(column, to, &place)?, Setting::read(column, from, &place)?)],
+        None if by_levels => level_settings(column, &place)?,
         None => settings(column, &place)?,
     };
     let simulation = FormulaSimulation { settings: compared, rows: table, seed: super::formula_estimate::FORMULA_SEED };
-    let estimate = chain_estimate(table, x, y, &formula, &also_set, method, cancel, mass, progress, &simulation, &held)?;
-    let held_words: Vec<String> = held.iter().map(|(n, v)| format!("{n} = {v:.4}")).collect();
+    let held = held_values(table, &m, options, &place)?;
+    let estimate = if by_levels {
+        level_estimate(table, x, y, &formula, &also_set, method, cancel, mass, progress, &simulation, &held)?
+    } else {
+        let numbers: Vec<(String, f64)> = held.iter().map(|(n, s)| (n.clone(), if let Setting::Number(v) = s { *v } else { 0.0 })).collect();
+        chain_estimate(table, x, y, &formula, &also_set, method, cancel, mass, progress, &simulation, &numbers)?
+    };
+    let held_words: Vec<String> = held
+        .iter()
+        .map(|(n, v)| match v {
+            Setting::Number(v) => format!("{n} = {v:.4}"),
+            level => format!("{n} = {}", level.text()),
+        })
+        .collect();
     answer.estimand = Some(format!(
-        "controlled direct effect on the mean outcome with {} held, by the identifying formula of the complete algorithm, evaluated on the normal joint \
-         of the nodes it names",
-        if held_words.is_empty() { "nothing else".to_string() } else { held_words.join(", ") }
+        "controlled direct effect on the mean outcome with {} held, by the identifying formula of the complete algorithm, evaluated {}",
+        if held_words.is_empty() { "nothing else".to_string() } else { held_words.join(", ") },
+        if by_levels {
+            "over every combination of the levels of the nodes it names, on a chain of regressions with each column's family"
+        } else {
+            "on the normal joint of the nodes it names"
+        }
     ));
     answer.method = Some(method.describe());
     answer.warnings.extend(estimate.warnings);
@@ -111,8 +136,10 @@ pub(super) fn direct_by_formula(
     Ok(answer)
 }
 
-/// Each mediator's value: stated by `at M v`, else its mean.
-fn held_values(table: &Table, m: &[String], options: &AskOptions, place: &str) -> Result<Vec<(String, f64)>, QueryError> {
+/// Each mediator's value: stated by `at M v` (a level's label for a
+/// category), else its mean, or for a yes/no, count or category mediator
+/// its usual level ([`usual_level`]).
+fn held_values(table: &Table, m: &[String], options: &AskOptions, place: &str) -> Result<Vec<(String, Setting)>, QueryError> {
     if let Some((name, _)) = options.held.iter().find(|(n, _)| !m.contains(n)) {
         return Err(QueryError::request(format!("{place}: `at {name} …` holds a node the controlled direct effect does not set; it sets {}", words(m))));
     }
@@ -120,10 +147,14 @@ fn held_values(table: &Table, m: &[String], options: &AskOptions, place: &str) -
         .map(|node| {
             let column = require_column(table, node, place)?;
             let value = match options.held.iter().find(|(n, _)| n == node) {
-                Some((_, text)) => text
-                    .parse::<f64>()
-                    .map_err(|_| QueryError::request(format!("{place}: `at {node} {text}` needs a number, as {node} is numeric")))?,
-                None => column_mean(column).ok_or_else(|| QueryError::request(format!("{place}: {node} has no values to hold it at")))?,
+                Some((_, text)) => Setting::read(column, text, place)?,
+                None => match &column.data {
+                    ColumnData::Real(_) => {
+                        Setting::Number(column_mean(column).ok_or_else(|| QueryError::request(format!("{place}: {node} has no values to hold it at")))?)
+                    }
+                    ColumnData::Category { levels, .. } => Setting::Level { code: usual_level(column) as u32, levels: levels.clone() },
+                    _ => Setting::Number(usual_level(column) as f64),
+                },
             };
             Ok((node.clone(), value))
         })

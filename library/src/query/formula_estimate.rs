@@ -64,6 +64,7 @@ use super::answer::family_for;
 use super::contrast::{scale_words, Contrast, On};
 use super::error::QueryError;
 use super::formula_chain::{chain_estimate, chain_nodes};
+use super::formula_levels::{level_estimate, level_nodes, level_settings};
 use super::support::{column_mean, drawn_column, interval_words, parameter_rows, require_column, stream_seed, ContrastSummary, Setting};
 
 /// The seed of the simulated node values.
@@ -180,7 +181,9 @@ pub fn formula_estimate(
 ) -> Result<FormulaFit, QueryError> {
     let place = format!("ask total effect of {x} on {y} by its identifying formula");
     let column = require_column(table, x, &place)?;
-    let simulation = FormulaSimulation { settings: settings(column, &place)?, rows: table, seed: FORMULA_SEED };
+    let by_levels = plan(formula, x, y, also_set, &place).is_err() && chain_nodes(table, formula, x, y, also_set, &place).is_err();
+    let compared = if by_levels { level_settings(column, &place)? } else { settings(column, &place)? };
+    let simulation = FormulaSimulation { settings: compared, rows: table, seed: FORMULA_SEED };
     formula_estimate_with(table, x, y, formula, also_set, method, cancel, mass, progress, &simulation)
 }
 
@@ -204,10 +207,13 @@ pub(crate) fn formula_estimate_with(
     let plan = match plan(formula, x, y, also_set, &place) {
         Ok(plan) => plan,
         Err(shape) => {
-            if chain_nodes(table, formula, x, y, also_set, &place).is_err() {
-                return Err(shape);
+            if chain_nodes(table, formula, x, y, also_set, &place).is_ok() {
+                return chain_estimate(table, x, y, formula, also_set, method, cancel, mass, progress, simulation, &[]);
             }
-            return chain_estimate(table, x, y, formula, also_set, method, cancel, mass, progress, simulation, &[]);
+            if level_nodes(table, formula, x, y, also_set, &place).is_ok() {
+                return level_estimate(table, x, y, formula, also_set, method, cancel, mass, progress, simulation, &[]);
+            }
+            return Err(shape);
         }
     };
     for c in &plan.copies {
@@ -312,16 +318,18 @@ pub(super) fn formula_contrast(
 
 /// Whether `formula` can be evaluated on `table`: by simulation over the
 /// rows (see the module notes), or else exactly on a chain of normal
-/// regressions ([`super::formula_chain`]); the error gives both reasons.
+/// regressions ([`super::formula_chain`]) or on a chain over the levels of
+/// discrete nodes ([`super::formula_levels`]); the error gives every reason.
 pub fn check_formula(table: &Table, formula: &Formula, x: &str, y: &str, also_set: &[String]) -> Result<(), QueryError> {
     let place = format!("ask total effect of {x} on {y} by its identifying formula");
     let Err(shape) = plan(formula, x, y, also_set, &place) else {
         return Ok(());
     };
-    match chain_nodes(table, formula, x, y, also_set, &place) {
-        Ok(_) => Ok(()),
-        Err(chain) => Err(QueryError::request(format!("{shape}; {}", chain.to_string().trim_start_matches(&format!("{place}: "))))),
-    }
+    let (Err(normal), Err(levels)) = (chain_nodes(table, formula, x, y, also_set, &place), level_nodes(table, formula, x, y, also_set, &place)) else {
+        return Ok(());
+    };
+    let trim = |e: QueryError| e.to_string().trim_start_matches(&format!("{place}: ")).to_string();
+    Err(QueryError::request(format!("{shape}; {}; {}", trim(normal), trim(levels))))
 }
 
 /// Every level against the first for a category exposure; mean + 1 vs mean

@@ -14,7 +14,8 @@
 //!   [`formula_estimate`]: the formula evaluated per posterior draw from
 //!   fitted conditionals, or, for shapes that simulation over the rows
 //!   cannot take, [`formula_chain`]: evaluated exactly on a fitted chain
-//!   of normal regressions.
+//!   of normal regressions, or [`formula_levels`]: evaluated exactly over
+//!   the levels of count, yes/no and category nodes.
 //! * [`joint`]: one regression per observed node of a graph (a whole-graph
 //!   model), and [`intervene`]: simulated interventions through it.
 //! * [`mechanism`] and [`simulate`]: synthetic data from stated mechanisms,
@@ -48,6 +49,7 @@ mod error;
 mod direct_formula;
 pub mod formula_chain;
 pub mod formula_estimate;
+pub mod formula_levels;
 pub mod hidden_refit;
 pub mod implications;
 pub mod intervene;

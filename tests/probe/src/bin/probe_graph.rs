@@ -7,14 +7,24 @@
 //! `{"kind": "implications"}`, `{"kind": "identify", "set": [..], "watch": [..]}` (the complete
 //! algorithm: `{"verdict": "identified", "formula"}` or `{"verdict": "not_identified", "hedge"}`),
 //! `{"kind": "front_door", "exposure", "outcome"}` (`[set, formula]` or null),
-//! `{"kind": "instruments", "exposure", "outcome"}` (`[{"node", "given"}…]`). `listing` answers with the bounded path listing
+//! `{"kind": "instruments", "exposure", "outcome"}` (`[{"node", "given"}…]`),
+//! `{"kind": "levels", "set": [x], "watch": [y], "nodes": [{"name", "size"}], "joint": [..],
+//! "moment": [..] | null, "x_level", "held": {name: level}}` (the complete algorithm's formula
+//! evaluated by `query::formula_levels` on the joint table given over `nodes`, first varying
+//! slowest; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "shares", "also_set"}`
+//! (`shares`: each level's probability of a discrete `y`, else null), or
+//! `{"verdict": "not_identified"}`). `listing` answers with the bounded path listing
 //! (`paths`, `complete`, `separated`, `directed_paths`).
 //!
 //! Answer: `{"graphs": [{"name", "error"?, "order", "answers": [..]}]}`, one answer per
 //! query, or `{"error": message}` in its place.
 
 use serde_json::{json, Value};
-use waypath::graph::{from_dot, Graph, GraphBuilder, GraphError};
+use std::collections::BTreeMap;
+use std::sync::atomic::AtomicBool;
+
+use waypath::graph::{from_dot, Complete, Graph, GraphBuilder, GraphError};
+use waypath::query::formula_levels::{effect_on_levels, shares_on_levels, LevelJoint, Support};
 
 fn main() {
     let request = waypath_probe::read_request();
@@ -73,7 +83,39 @@ fn answer_query(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
         "identify" => json!(graph.identify_intervention(&strings(&q["set"]), &strings(&q["watch"]))?),
         "front_door" => json!(graph.front_door(&text("exposure"), &text("outcome"))?),
         "instruments" => json!(graph.instruments_for(&text("exposure"), &text("outcome"))?),
+        "levels" => levels(graph, q)?,
         other => json!({ "error": format!("unknown query kind `{other}`") }),
+    })
+}
+
+/// The complete algorithm's formula evaluated on a given joint table.
+fn levels(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
+    let (set, watch) = (strings(&q["set"]), strings(&q["watch"]));
+    let (formula, also_set) = match graph.identify_intervention(&set, &watch)? {
+        Complete::Identified { formula, also_set } => (formula, also_set),
+        Complete::NotIdentified { .. } => return Ok(json!({ "verdict": "not_identified" })),
+    };
+    let nodes: Vec<Support> = q["nodes"]
+        .as_array()
+        .cloned()
+        .unwrap_or_default()
+        .iter()
+        .map(|n| Support {
+            name: n["name"].as_str().unwrap_or("").to_owned(),
+            values: (0..n["size"].as_u64().unwrap_or(0)).map(|k| k as f64).collect(),
+            labels: None,
+            count: false,
+        })
+        .collect();
+    let numbers = |v: &Value| v.as_array().map(|a| a.iter().filter_map(Value::as_f64).collect::<Vec<f64>>());
+    let joint = LevelJoint { sizes: nodes.iter().map(|s| s.values.len()).collect(), p: numbers(&q["joint"]).unwrap_or_default(), moment: numbers(&q["moment"]) };
+    let held: BTreeMap<String, usize> = also_set.iter().map(|a| (a.clone(), q["held"][a].as_u64().unwrap_or(0) as usize)).collect();
+    let never = AtomicBool::new(false);
+    let x_level = q["x_level"].as_u64().unwrap_or(0) as usize;
+    let shares = if joint.moment.is_none() { shares_on_levels(&formula, &set[0], &watch[0], x_level, &held, &nodes, &joint, &never).ok() } else { None };
+    Ok(match effect_on_levels(&formula, &set[0], &watch[0], x_level, &held, &nodes, &joint, &never) {
+        Ok((mean, mass)) => json!({ "mean": mean, "mass": mass, "shares": shares, "also_set": also_set }),
+        Err(e) => json!({ "error": e }),
     })
 }
 
