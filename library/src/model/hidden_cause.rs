@@ -6,10 +6,16 @@
 //! by the model's own design plus `b·uᵢ`:
 //!
 //! * `xᵢ ~ normal(wᵢ·α + a·uᵢ, σx)` — `w` the design without the exposure's
-//!   column, `x` standardised inside (so `α` and `σx` get priors that fit any
-//!   scale: `normal(0, 10 / sd of the column)` per non-constant column,
-//!   `normal(0, 10)` per constant one, `half_normal(2)` for `σx`), while `a`
-//!   stays in the exposure's unit per standard deviation of `u`;
+//!   column; `a` in the exposure's unit per standard deviation of `u`. The
+//!   priors of `α` and `σx` come one of two ways ([`ExposurePriors`]).
+//!   Waypath's default standardises `x` inside by its observed mean and sd
+//!   (so `α` and `σx` get priors that fit any scale: `normal(0, 10 / sd of
+//!   the column)` per non-constant column, `normal(0, 10)` per constant one,
+//!   `half_normal(2)` for `σx`); those priors move with the data, which a
+//!   calibration over the prior cannot allow. Stated priors are in the
+//!   exposure's own unit (`x` as in the table, the design column plus the
+//!   centre the model took off it): one for the intercept columns, one for
+//!   every other column, one for `σx`, none of them reading the data;
 //! * `yᵢ ~ normal(zᵢ·β + b·uᵢ, σy)` with the model's own priors on `β` and
 //!   `σy` ([`Model::log_prior_and_gradient`]);
 //! * `a` and `b` take the priors the user states.
@@ -45,14 +51,33 @@ const EXPOSURE_PRIOR_WIDTH: f64 = 10.0;
 /// The scale of the standardised exposure's residual spread prior.
 const EXPOSURE_SPREAD_SCALE: f64 = 2.0;
 
+/// Where the exposure model's priors come from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ExposurePriors {
+    /// Waypath's: set on the exposure standardised by its observed mean and
+    /// sd (they move with the data).
+    ObservedSpread,
+    /// Stated in the exposure's own unit: `intercepts` for every intercept
+    /// column (the intercept, or one per level of the first category term),
+    /// `slopes` for every other column, `spread` for the residual spread.
+    Stated { intercepts: Prior, slopes: Prior, spread: Prior },
+}
+
 /// The refit's log density.
 pub struct HiddenCause<'m> {
     model: &'m Model,
     design: &'m DMatrix<f64>,
     y: &'m [f64],
-    /// The exposure, standardised, and its scale.
+    /// The exposure as the density sees it, `(d − shift) / scale` with `d`
+    /// the design column: standardised under Waypath's priors, in its own
+    /// unit (`shift` minus the model's centre, `scale` 1) under stated ones.
     x: Vec<f64>,
+    x_shift: f64,
     x_sd: f64,
+    /// The exposure's design column and the centre the model took off it.
+    slope: usize,
+    centre: f64,
+    stated: bool,
     /// The design without the exposure's column.
     others: DMatrix<f64>,
     others_priors: Vec<Prior>,
@@ -75,9 +100,11 @@ pub struct HiddenLayout {
 
 impl<'m> HiddenCause<'m> {
     /// The refit of normal `model` with its design column `slope` as the
-    /// exposure; `None` when the model is not a normal regression without
-    /// pooled groups or the exposure does not vary.
-    pub fn new(model: &'m Model, slope: usize, to_exposure: Prior, to_outcome: Prior) -> Option<HiddenCause<'m>> {
+    /// exposure, whose model takes `exposure` priors; `None` when the model
+    /// is not a normal regression without pooled groups or the exposure
+    /// does not vary. `centre` is what the model took off the exposure's
+    /// column ([`Model::linear_slope_centre`]).
+    pub fn new(model: &'m Model, slope: usize, centre: f64, exposure: &ExposurePriors, to_exposure: Prior, to_outcome: Prior) -> Option<HiddenCause<'m>> {
         // A steps term's slots are not linear coefficients (`model::steps`).
         if !model.has_spread() || model.first_group_index() != model.labels.len() + 1 || !model.steps.is_empty() {
             return None;
@@ -90,27 +117,76 @@ impl<'m> HiddenCause<'m> {
         }
         let keep: Vec<usize> = (0..design.ncols()).filter(|&j| j != slope).collect();
         let others = design.select_columns(&keep);
-        let others_priors = others
-            .column_iter()
-            .map(|c| {
-                let values: Vec<f64> = c.iter().copied().collect();
-                let (_, s) = mean_sd(&values);
-                let width = if s > 1e-12 { EXPOSURE_PRIOR_WIDTH / s } else { EXPOSURE_PRIOR_WIDTH / c[0].abs().max(1e-12) };
-                Prior::Normal { mean: 0.0, sd: width }
-            })
-            .collect();
+        let (x_shift, x_sd, others_priors, spread_prior) = match exposure {
+            ExposurePriors::ObservedSpread => (mean, sd, observed_spread_priors(&others), Prior::HalfNormal { sd: EXPOSURE_SPREAD_SCALE }),
+            ExposurePriors::Stated { intercepts, slopes, spread } => {
+                let intercept_columns = model.intercept_columns();
+                let priors = keep.iter().map(|j| if intercept_columns.contains(j) { intercepts.clone() } else { slopes.clone() }).collect();
+                (-centre, 1.0, priors, spread.clone())
+            }
+        };
         Some(HiddenCause {
             model,
             design,
             y: model.outcome_values(),
-            x: raw.iter().map(|v| (v - mean) / sd).collect(),
-            x_sd: sd,
+            x: raw.iter().map(|v| (v - x_shift) / x_sd).collect(),
+            x_shift,
+            x_sd,
+            slope,
+            centre,
+            stated: matches!(exposure, ExposurePriors::Stated { .. }),
             others,
             others_priors,
-            spread_prior: Prior::HalfNormal { sd: EXPOSURE_SPREAD_SCALE },
+            spread_prior,
             to_exposure,
             to_outcome,
         })
+    }
+
+    /// The exposure model's priors in the exposure's own unit, one per
+    /// coefficient (design order without the exposure's column) and then
+    /// the spread's: a stated prior as stated; Waypath's standardised prior
+    /// `normal(0, w)` turned back into the unit, `normal(0, w·sd)` for a
+    /// slope, `normal(mean, w·sd)` for an intercept column, and
+    /// `half_normal(2·sd)` for the spread.
+    pub fn exposure_priors_in_unit(&self) -> Vec<Prior> {
+        if self.stated {
+            let mut priors = self.others_priors.clone();
+            priors.push(self.spread_prior.clone());
+            return priors;
+        }
+        let intercept_columns = self.model.intercept_columns();
+        let mut priors: Vec<Prior> = self
+            .others_priors
+            .iter()
+            .zip((0..self.design.ncols()).filter(|&j| j != self.slope))
+            .map(|(prior, j)| match *prior {
+                Prior::Normal { mean, sd } => {
+                    let shift = if intercept_columns.contains(&j) { self.x_shift + self.centre } else { 0.0 };
+                    Prior::Normal { mean: mean * self.x_sd + shift, sd: sd * self.x_sd }
+                }
+                ref other => other.clone(),
+            })
+            .collect();
+        priors.push(Prior::HalfNormal { sd: EXPOSURE_SPREAD_SCALE * self.x_sd });
+        priors
+    }
+
+    /// The exposure's mean, in its own unit, and its sd over the fitted rows.
+    pub fn exposure_observed(&self) -> (f64, f64) {
+        let own: Vec<f64> = self.x.iter().map(|v| v * self.x_sd + self.x_shift + self.centre).collect();
+        mean_sd(&own)
+    }
+
+    /// The labels of the exposure model's parameters, in
+    /// [`HiddenCause::exposure_priors_in_unit`] order: `exposure LABEL` for
+    /// each of the model's coefficient labels but the exposure's slope, then
+    /// `exposure spread`.
+    pub fn exposure_labels(&self) -> Vec<String> {
+        let labels = self.model.coefficient_names();
+        let mut out: Vec<String> = (0..labels.len()).filter(|&j| j != self.slope).map(|j| format!("exposure {}", labels[j])).collect();
+        out.push("exposure spread".to_string());
+        out
     }
 
     /// The blocks of the parameter vector.
@@ -265,6 +341,21 @@ impl LogDensity for HiddenCause<'_> {
     }
 }
 
+/// Waypath's priors of the exposure model's coefficients on the
+/// standardised exposure: `normal(0, 10 / sd)` per column of `others`, a
+/// constant column's width set by its value.
+fn observed_spread_priors(others: &DMatrix<f64>) -> Vec<Prior> {
+    others
+        .column_iter()
+        .map(|c| {
+            let values: Vec<f64> = c.iter().copied().collect();
+            let (_, s) = mean_sd(&values);
+            let width = if s > 1e-12 { EXPOSURE_PRIOR_WIDTH / s } else { EXPOSURE_PRIOR_WIDTH / c[0].abs().max(1e-12) };
+            Prior::Normal { mean: 0.0, sd: width }
+        })
+        .collect()
+}
+
 fn mean_sd(v: &[f64]) -> (f64, f64) {
     let n = v.len() as f64;
     let mean = v.iter().sum::<f64>() / n.max(1.0);
@@ -278,8 +369,12 @@ mod tests {
     use crate::model::ModelSpec;
     use crate::table::{Column, ColumnData, Table};
 
+    fn exposure_values() -> Vec<f64> {
+        (0..40).map(|i| (i as f64 * 0.37).sin() * 2.0 + 5.0).collect()
+    }
+
     fn model() -> Model {
-        let x: Vec<f64> = (0..40).map(|i| (i as f64 * 0.37).sin() * 2.0 + 5.0).collect();
+        let x = exposure_values();
         let w: Vec<f64> = (0..40).map(|i| (i as f64 * 0.11).cos()).collect();
         let y: Vec<f64> = x.iter().zip(&w).enumerate().map(|(i, (a, b))| 1.0 + 0.5 * a - b + (i as f64 * 1.7).sin()).collect();
         let table = Table {
@@ -290,9 +385,18 @@ mod tests {
         Model::build(&spec, &table).unwrap()
     }
 
-    fn density(m: &Model) -> HiddenCause<'_> {
+    fn stated() -> ExposurePriors {
+        ExposurePriors::Stated {
+            intercepts: Prior::Normal { mean: 5.0, sd: 3.0 },
+            slopes: Prior::Normal { mean: 0.0, sd: 2.0 },
+            spread: Prior::LogNormal { log_mean: 0.0, log_sd: 0.5 },
+        }
+    }
+
+    fn density<'m>(m: &'m Model, exposure: &ExposurePriors) -> HiddenCause<'m> {
         let slope = m.linear_slope_position("x").unwrap();
-        HiddenCause::new(m, slope, Prior::Normal { mean: 0.4, sd: 0.2 }, Prior::Normal { mean: -0.3, sd: 0.5 }).unwrap()
+        let centre = m.linear_slope_centre("x").unwrap();
+        HiddenCause::new(m, slope, centre, exposure, Prior::Normal { mean: 0.4, sd: 0.2 }, Prior::Normal { mean: -0.3, sd: 0.5 }).unwrap()
     }
 
     /// Points away from every symmetry: strengths of both signs, spreads
@@ -304,9 +408,9 @@ mod tests {
     #[test]
     fn gradient_matches_central_differences() {
         let m = model();
-        let d = density(&m);
-        let dim = d.dim();
-        for theta in points(dim) {
+        for (exposure, theta) in [ExposurePriors::ObservedSpread, stated()].iter().flat_map(|e| points(density(&m, e).dim()).into_iter().map(move |t| (e, t))) {
+            let d = density(&m, exposure);
+            let dim = d.dim();
             let mut grad = vec![0.0; dim];
             let f = d.log_density_and_gradient(&theta, &mut grad);
             assert!(f.is_finite());
@@ -325,18 +429,36 @@ mod tests {
     /// The row density with the hidden value integrated out, against the
     /// definition integrated numerically: `∫ φ(u)·N(rx; a_s·u, σx)·N(ry; b·u, σy) du`
     /// by composite Simpson over u in [−12, 12] (4000 panels), the residuals
-    /// worked out here from the design and the standardised exposure.
+    /// worked out here from the design and the exposure: standardised by
+    /// its sample mean and sd under Waypath's priors, the table's own values
+    /// (`a_s = a`) under stated ones.
     #[test]
     fn row_density_matches_the_integral_over_the_hidden_value() {
         let m = model();
-        let d = density(&m);
-        let l = d.layout();
         let design = m.design_matrix();
         let slope = m.linear_slope_position("x").unwrap();
         let raw: Vec<f64> = design.column(slope).iter().copied().collect();
         let (mean, sd) = mean_sd(&raw);
+        let table_x = exposure_values();
+        for exposure in [ExposurePriors::ObservedSpread, stated()] {
+            let d = density(&m, &exposure);
+            let own_unit = matches!(exposure, ExposurePriors::Stated { .. });
+            let exposure_at = |i: usize| if own_unit { table_x[i] } else { (raw[i] - mean) / sd };
+            let sd = if own_unit { 1.0 } else { sd };
+            // In x's own unit the exposure's intercept sits near 5, the
+            // centre of the values, so the hidden value's mass stays
+            // inside the integration range.
+            row_density_case(&m, &d, &exposure_at, sd, if own_unit { 5.0 } else { 0.0 });
+        }
+    }
+
+    fn row_density_case(m: &Model, d: &HiddenCause<'_>, exposure_at: &dyn Fn(usize) -> f64, sd: f64, intercept: f64) {
+        let l = d.layout();
+        let design = m.design_matrix();
+        let slope = m.linear_slope_position("x").unwrap();
         let normal = |v: f64, s: f64| (-0.5 * (v / s).powi(2)).exp() / (s * std::f64::consts::TAU.sqrt());
-        for theta in points(l.dim) {
+        for mut theta in points(l.dim) {
+            theta[l.exposure_coefficients] += intercept;
             let rows = d.row_log_densities(&theta);
             let (a_s, b) = (theta[l.to_exposure] / sd, theta[l.to_outcome]);
             let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread].exp());
@@ -352,7 +474,7 @@ mod tests {
                         others += 1;
                     }
                 }
-                let (rx, ry) = ((raw[i] - mean) / sd - mean_x, m.outcome_values()[i] - mean_y);
+                let (rx, ry) = (exposure_at(i) - mean_x, m.outcome_values()[i] - mean_y);
                 let panels = 4000;
                 let h = 24.0 / panels as f64;
                 let integral: f64 = (0..=panels)
@@ -370,12 +492,39 @@ mod tests {
         }
     }
 
+    /// Waypath's priors told in the exposure's unit are the same law: a
+    /// coefficient α on the exposure standardised by its sample mean m and
+    /// sd s is s·α in the unit (s·α + m for the intercept, the model's
+    /// centre added back), and the spread s·σ; a change of scale by s moves
+    /// a log density by −log s.
+    #[test]
+    fn observed_spread_priors_told_in_the_unit_are_the_same_law() {
+        let m = model();
+        let d = density(&m, &ExposurePriors::ObservedSpread);
+        let table_x = exposure_values();
+        let n = table_x.len() as f64;
+        let mean = table_x.iter().sum::<f64>() / n;
+        let s = (table_x.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+        let told = d.exposure_priors_in_unit();
+        let labels = d.exposure_labels();
+        assert_eq!(labels, ["exposure intercept", "exposure w slope", "exposure spread"]);
+        let standardised: Vec<&Prior> = d.others_priors.iter().chain(std::iter::once(&d.spread_prior)).collect();
+        for (k, (unit, std)) in told.iter().zip(&standardised).enumerate() {
+            let shift = if k == 0 { mean } else { 0.0 };
+            for alpha in [0.05, 0.3, 1.7] {
+                let (in_std, _) = std.log_density_and_derivative(alpha);
+                let (in_unit, _) = unit.log_density_and_derivative(s * alpha + shift);
+                assert!((in_unit - (in_std - s.ln())).abs() < 1e-10, "{}: {unit} at {} against {std} at {alpha}", labels[k], s * alpha + shift);
+            }
+        }
+    }
+
     /// With both strengths at zero the two residuals are independent, so
     /// the row density is the sum of two normal log densities.
     #[test]
     fn strengths_at_zero_give_two_independent_normals() {
         let m = model();
-        let d = density(&m);
+        let d = density(&m, &ExposurePriors::ObservedSpread);
         let l = d.layout();
         let mut theta = points(l.dim)[1].clone();
         theta[l.to_exposure] = 0.0;

@@ -76,10 +76,11 @@ pub mod terms;
 
 pub use conjugate::NormalLinear;
 pub use defaults::PriorUse;
+pub(crate) use defaults::check_suits as check_prior_suits;
 pub use density::LogDensity;
 pub use error::ModelError;
 pub use family::Family;
-pub use hidden_cause::{HiddenCause, HiddenLayout};
+pub use hidden_cause::{ExposurePriors, HiddenCause, HiddenLayout};
 pub use inputs::{Input, SplineTerm};
 pub use posterior::Model;
 pub use predict::{NewRows, Prediction};
