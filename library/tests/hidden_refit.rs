@@ -288,3 +288,42 @@ fn temp_residual_variance(csv: &Path) -> f64 {
     let sum: f64 = rows.iter().map(|r| (r[3] - (0..3).map(|j| coefficients[j] * r[j]).sum::<f64>()).powi(2)).sum();
     sum / (rows.len() - 3) as f64
 }
+
+/// A yes/no outcome with a hidden cause of both, simulated here: yes with
+/// chance `logistic(−0.5 + SLOPE·x + 0.7·w + 1.5·u)`, x as above. The
+/// refit's model is the one the rows come from with u integrated out, so
+/// with strength priors on the truth its 98% interval covers the true
+/// log-odds slope, while the plain fit leans on x for u's part.
+#[test]
+fn a_yes_no_refit_with_priors_on_the_truth_covers_the_true_log_odds_slope() {
+    let dir = std::env::temp_dir().join(format!("wp-hidden-yes-no-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut s = Stream(51u64.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1);
+    let mut text = String::from("w,x,y\n");
+    for _ in 0..400 {
+        let (u, w) = (s.normal(), s.normal());
+        let x = 0.5 * w + TO_X * u + s.normal();
+        let eta = -0.5 + SLOPE * x + 0.7 * w + 1.5 * u;
+        let yes = s.uniform() < 1.0 / (1.0 + (-eta).exp());
+        text.push_str(&format!("{w:.6},{x:.6},{}\n", if yes { "yes" } else { "no" }));
+    }
+    std::fs::write(dir.join("yesno.csv"), text).unwrap();
+    let mut session = Session::new(&dir);
+    last_json(
+        &mut session,
+        "table t from \"yesno.csv\":\n    w: real\n    x: real\n    y: binary\nmodel m:\n    y from x, w using t\n    family bernoulli\nfit m with nuts seed 3",
+    );
+    let json = last_json(
+        &mut session,
+        "robustness of m: x refit with hidden to x normal(0.8, 0.05) and to y normal(1.5, 0.1) \
+         exposure priors intercepts normal(0, 5), slopes normal(0, 5), spread half_normal(3) intervals 98% with nuts seed 8",
+    );
+    std::fs::remove_dir_all(&dir).ok();
+    assert_eq!(json["scale"], "log odds");
+    let (fm, fl, fu) = summary(&json["fitted"]);
+    let (rm, rl, ru) = summary(&json["refitted"]);
+    eprintln!("fitted {fm:.3} [{fl:.3}, {fu:.3}], refitted {rm:.3} [{rl:.3}, {ru:.3}]");
+    assert!(rl <= SLOPE && SLOPE <= ru, "true slope {SLOPE} outside the refit's 98% interval [{rl}, {ru}] (mean {rm})");
+    assert!(rm < fm, "the refit should take u's part off the plain slope: fitted {fm}, refitted {rm}");
+    assert!(json["warnings"].as_array().unwrap().is_empty(), "{}", json["warnings"]);
+}

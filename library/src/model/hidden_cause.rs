@@ -36,13 +36,21 @@
 //! the slope widens by what they leave open. With both strengths held at
 //! zero the outcome's part is the model's own posterior.
 //!
+//! A yes/no (bernoulli) outcome takes `logistic(zᵢ·β + b·uᵢ)` as its
+//! chance of a yes in place of the normal outcome line. The hidden value is
+//! integrated out the same way, but the outcome's part then has no closed
+//! form: given the exposure's residual the hidden value is normal, and the
+//! logistic's mean over it is a trapezoid sum per row
+//! ([`super::hidden_yes_no`]). `b` is then on the log-odds scale.
+//!
 //! Unconstrained parameters, in order: `β` (the model's coefficients),
-//! `log σy`, `α`, `log σx`, `a`, `b`.
+//! `log σy` (a normal outcome only), `α`, `log σx`, `a`, `b`.
 
 use nalgebra::{DMatrix, DVector};
 
+use super::hidden_yes_no::yes_no_row;
 use super::prior::Prior;
-use super::{LogDensity, Model};
+use super::{Family, LogDensity, Model};
 
 /// The width of the exposure model's coefficient priors, in standard
 /// deviations of the (standardised) exposure per standard deviation of a column.
@@ -78,6 +86,8 @@ pub struct HiddenCause<'m> {
     slope: usize,
     centre: f64,
     stated: bool,
+    /// A yes/no outcome ([`super::hidden_yes_no`]) rather than a normal one.
+    yes_no: bool,
     /// The design without the exposure's column.
     others: DMatrix<f64>,
     others_priors: Vec<Prior>,
@@ -89,8 +99,11 @@ pub struct HiddenCause<'m> {
 /// Where each block of the parameter vector starts.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct HiddenLayout {
-    /// The outcome's coefficients start at 0; its log spread follows.
-    pub outcome_spread: usize,
+    /// The outcome model's parameters are `0..outcome_end`: its
+    /// coefficients from 0, then a normal outcome's log spread.
+    pub outcome_end: usize,
+    /// A normal outcome's log spread (a yes/no outcome has none).
+    pub outcome_spread: Option<usize>,
     pub exposure_coefficients: usize,
     pub exposure_spread: usize,
     pub to_exposure: usize,
@@ -106,7 +119,9 @@ impl<'m> HiddenCause<'m> {
     /// column ([`Model::linear_slope_centre`]).
     pub fn new(model: &'m Model, slope: usize, centre: f64, exposure: &ExposurePriors, to_exposure: Prior, to_outcome: Prior) -> Option<HiddenCause<'m>> {
         // A steps term's slots are not linear coefficients (`model::steps`).
-        if !model.has_spread() || model.first_group_index() != model.labels.len() + 1 || !model.steps.is_empty() {
+        let yes_no = matches!(model.family(), Family::Bernoulli);
+        let plain = model.first_group_index() == model.labels.len() + usize::from(!yes_no);
+        if !(model.has_spread() || yes_no) || !plain || !model.steps.is_empty() {
             return None;
         }
         let design = model.design_matrix();
@@ -135,6 +150,7 @@ impl<'m> HiddenCause<'m> {
             slope,
             centre,
             stated: matches!(exposure, ExposurePriors::Stated { .. }),
+            yes_no,
             others,
             others_priors,
             spread_prior,
@@ -193,10 +209,11 @@ impl<'m> HiddenCause<'m> {
     pub fn layout(&self) -> HiddenLayout {
         let p = self.design.ncols();
         let q = self.others.ncols();
-        let exposure_coefficients = p + 1;
+        let exposure_coefficients = if self.yes_no { p } else { p + 1 };
         let exposure_spread = exposure_coefficients + q;
         HiddenLayout {
-            outcome_spread: p,
+            outcome_end: exposure_coefficients,
+            outcome_spread: (!self.yes_no).then_some(p),
             exposure_coefficients,
             exposure_spread,
             to_exposure: exposure_spread + 1,
@@ -216,27 +233,38 @@ impl<'m> HiddenCause<'m> {
         let l = self.layout();
         let score = |i: usize| z.get(i).copied().unwrap_or(0.0);
         let mut theta: Vec<f64> = (0..l.dim).map(|i| 0.1 * score(i)).collect();
-        theta[..=l.outcome_spread].copy_from_slice(&outcome_start[..=l.outcome_spread]);
+        theta[..l.outcome_end].copy_from_slice(&outcome_start[..l.outcome_end]);
         for (k, prior) in [(l.to_exposure, &self.to_exposure), (l.to_outcome, &self.to_outcome)] {
             theta[k] = prior.central_point() + 0.5 * score(k) * prior.typical_distance();
         }
         theta
     }
 
-    /// Each row's log density of its standardised exposure and its outcome
-    /// with the hidden value integrated out, at `theta` (every constant
-    /// kept; the exposure's is the density of its standardised value).
+    /// Each row's log density of its exposure (on the density's scale) and
+    /// its outcome with the hidden value integrated out, at `theta` (every
+    /// constant kept).
     pub fn row_log_densities(&self, theta: &[f64]) -> Vec<f64> {
-        let pair = self.pair(theta);
         let (rx, ry) = self.residuals(theta);
+        if self.yes_no {
+            let l = self.layout();
+            let (a, sx, b) = (theta[l.to_exposure] / self.x_sd, theta[l.exposure_spread].exp(), theta[l.to_outcome]);
+            let eta = self.linear_predictor(theta);
+            return (0..self.y.len()).map(|i| yes_no_row(rx[i], eta[i], self.y[i] > 0.5, a, sx, b).log_density).collect();
+        }
+        let pair = self.pair(theta);
         (0..self.y.len()).map(|i| pair.log_density(rx[i] * rx[i], ry[i] * ry[i], rx[i] * ry[i], 1.0)).collect()
     }
 
-    /// The residuals of the standardised exposure from `w·α` and of the
-    /// outcome from `z·β`.
+    /// The outcome's linear predictor `z·β` per row.
+    fn linear_predictor(&self, theta: &[f64]) -> DVector<f64> {
+        self.design * DVector::from_column_slice(&theta[..self.design.ncols()])
+    }
+
+    /// The residuals of the exposure (on the density's scale) from `w·α`
+    /// and of the outcome from `z·β`.
     fn residuals(&self, theta: &[f64]) -> (DVector<f64>, DVector<f64>) {
         let l = self.layout();
-        let beta = DVector::from_column_slice(&theta[..l.outcome_spread]);
+        let beta = DVector::from_column_slice(&theta[..self.design.ncols()]);
         let alpha = DVector::from_column_slice(&theta[l.exposure_coefficients..l.exposure_spread]);
         let mean_y = self.design * &beta;
         let mean_x = &self.others * &alpha;
@@ -250,7 +278,8 @@ impl<'m> HiddenCause<'m> {
         let l = self.layout();
         let a_std = theta[l.to_exposure] / self.x_sd;
         let b = theta[l.to_outcome];
-        let (vx, vy) = ((2.0 * theta[l.exposure_spread]).exp(), (2.0 * theta[l.outcome_spread]).exp());
+        let log_sy = l.outcome_spread.map_or(0.0, |k| theta[k]);
+        let (vx, vy) = ((2.0 * theta[l.exposure_spread]).exp(), (2.0 * log_sy).exp());
         Pair { xx: a_std * a_std + vx, yy: b * b + vy, xy: a_std * b }
     }
 }
@@ -295,49 +324,106 @@ impl LogDensity for HiddenCause<'_> {
 
     fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
         let l = self.layout();
-        let n = self.y.len() as f64;
         grad.iter_mut().for_each(|g| *g = 0.0);
-        let mut total = self.model.log_prior_and_gradient(&theta[..=l.outcome_spread], &mut grad[..=l.outcome_spread]);
-        let (rx, ry) = self.residuals(theta);
-        let (sxx, syy, sxy) = (rx.dot(&rx), ry.dot(&ry), rx.dot(&ry));
-        let pair = self.pair(theta);
-        total += pair.log_density(sxx, syy, sxy, n);
-        // Each row's residuals: d/drx = −(yy·rx − xy·ry)/det, d/dry = −(xx·ry − xy·rx)/det;
-        // a residual falls by its design row, so the coefficients' gradients are Xᵀ of the negatives.
-        let det = pair.determinant();
-        let pull_x = (&rx * pair.yy - &ry * pair.xy) / det;
-        let pull_y = (&ry * pair.xx - &rx * pair.xy) / det;
-        let d_beta = self.design.tr_mul(&pull_y);
-        for (g, d) in grad[..l.outcome_spread].iter_mut().zip(d_beta.iter()) {
-            *g += d;
-        }
-        let d_alpha = self.others.tr_mul(&pull_x);
-        let alpha = &theta[l.exposure_coefficients..l.exposure_spread];
-        for (k, prior) in self.others_priors.iter().enumerate() {
-            let (lp, d) = prior.log_density_and_derivative(alpha[k]);
-            total += lp;
-            grad[l.exposure_coefficients + k] = d_alpha[k] + d;
-        }
-        let (d_xx, d_yy, d_xy) = pair.derivatives(sxx, syy, sxy, n);
-        let (a, b) = (theta[l.to_exposure], theta[l.to_outcome]);
-        let a_std = a / self.x_sd;
-        let (log_sy, log_sx) = (theta[l.outcome_spread], theta[l.exposure_spread]);
-        let (vy, vx) = ((2.0 * log_sy).exp(), (2.0 * log_sx).exp());
-        grad[l.outcome_spread] += d_yy * 2.0 * vy;
-        let sx = log_sx.exp();
-        let (lp, d_spread) = self.spread_prior.log_density_and_derivative(sx);
-        total += lp + log_sx;
-        grad[l.exposure_spread] = d_xx * 2.0 * vx + d_spread * sx + 1.0;
-        let (lp_a, dp_a) = self.to_exposure.log_density_and_derivative(a);
-        let (lp_b, dp_b) = self.to_outcome.log_density_and_derivative(b);
-        total += lp_a + lp_b;
-        grad[l.to_exposure] = (d_xx * 2.0 * a_std + d_xy * b) / self.x_sd + dp_a;
-        grad[l.to_outcome] = d_yy * 2.0 * b + d_xy * a_std + dp_b;
+        let mut total = self.model.log_prior_and_gradient(&theta[..l.outcome_end], &mut grad[..l.outcome_end]);
+        total += if self.yes_no { self.yes_no_likelihood(theta, grad) } else { self.normal_likelihood(theta, grad) };
+        total += self.exposure_priors(theta, grad);
         if total.is_finite() {
             total
         } else {
             f64::NEG_INFINITY
         }
+    }
+}
+
+impl HiddenCause<'_> {
+    /// A normal outcome's likelihood from the residuals' sums of squares
+    /// and products; its gradient added to `grad`.
+    fn normal_likelihood(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let l = self.layout();
+        let n = self.y.len() as f64;
+        let (rx, ry) = self.residuals(theta);
+        let (sxx, syy, sxy) = (rx.dot(&rx), ry.dot(&ry), rx.dot(&ry));
+        let pair = self.pair(theta);
+        // Each row's residuals: d/drx = −(yy·rx − xy·ry)/det, d/dry = −(xx·ry − xy·rx)/det;
+        // a residual falls by its design row, so the coefficients' gradients are Xᵀ of the negatives.
+        let det = pair.determinant();
+        let pull_x = (&rx * pair.yy - &ry * pair.xy) / det;
+        let pull_y = (&ry * pair.xx - &rx * pair.xy) / det;
+        self.add_row_gradients(grad, &pull_y, &pull_x);
+        let (d_xx, d_yy, d_xy) = pair.derivatives(sxx, syy, sxy, n);
+        let (a, b) = (theta[l.to_exposure], theta[l.to_outcome]);
+        let a_std = a / self.x_sd;
+        let spread = l.outcome_spread.expect("a normal outcome has a spread");
+        let (vy, vx) = ((2.0 * theta[spread]).exp(), (2.0 * theta[l.exposure_spread]).exp());
+        grad[spread] += d_yy * 2.0 * vy;
+        grad[l.exposure_spread] += d_xx * 2.0 * vx;
+        grad[l.to_exposure] += (d_xx * 2.0 * a_std + d_xy * b) / self.x_sd;
+        grad[l.to_outcome] += d_yy * 2.0 * b + d_xy * a_std;
+        pair.log_density(sxx, syy, sxy, n)
+    }
+
+    /// A yes/no outcome's likelihood, row by row; its gradient added to `grad`.
+    fn yes_no_likelihood(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let l = self.layout();
+        let (rx, _) = self.residuals(theta);
+        let eta = self.linear_predictor(theta);
+        let (a, sx, b) = (theta[l.to_exposure] / self.x_sd, theta[l.exposure_spread].exp(), theta[l.to_outcome]);
+        let n = self.y.len();
+        let (mut d_eta, mut d_rx) = (DVector::zeros(n), DVector::zeros(n));
+        let (mut total, mut d_a, mut d_sx, mut d_b) = (0.0, 0.0, 0.0, 0.0);
+        for i in 0..n {
+            let row = yes_no_row(rx[i], eta[i], self.y[i] > 0.5, a, sx, b);
+            total += row.log_density;
+            d_eta[i] = row.d_eta;
+            // The pull of a residual is minus its derivative.
+            d_rx[i] = -row.d_rx;
+            d_a += row.d_a;
+            d_sx += row.d_spread;
+            d_b += row.d_b;
+        }
+        self.add_row_gradients(grad, &d_eta, &d_rx);
+        grad[l.exposure_spread] += d_sx * sx;
+        grad[l.to_exposure] += d_a / self.x_sd;
+        grad[l.to_outcome] += d_b;
+        total
+    }
+
+    /// Add `Zᵀ·d_outcome` to the outcome's coefficients and `Wᵀ·pull_x`
+    /// (the exposure residual falls as `w·α` rises) to the exposure's.
+    fn add_row_gradients(&self, grad: &mut [f64], d_outcome: &DVector<f64>, pull_x: &DVector<f64>) {
+        let l = self.layout();
+        let d_beta = self.design.tr_mul(d_outcome);
+        for (g, d) in grad[..self.design.ncols()].iter_mut().zip(d_beta.iter()) {
+            *g += d;
+        }
+        let d_alpha = self.others.tr_mul(pull_x);
+        for (g, d) in grad[l.exposure_coefficients..l.exposure_spread].iter_mut().zip(d_alpha.iter()) {
+            *g += d;
+        }
+    }
+
+    /// The exposure model's and the strengths' priors (the exposure
+    /// spread's with the Jacobian of its log); their gradient added to `grad`.
+    fn exposure_priors(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let l = self.layout();
+        let mut total = 0.0;
+        let alpha = &theta[l.exposure_coefficients..l.exposure_spread];
+        for (k, prior) in self.others_priors.iter().enumerate() {
+            let (lp, d) = prior.log_density_and_derivative(alpha[k]);
+            total += lp;
+            grad[l.exposure_coefficients + k] += d;
+        }
+        let log_sx = theta[l.exposure_spread];
+        let sx = log_sx.exp();
+        let (lp, d_spread) = self.spread_prior.log_density_and_derivative(sx);
+        total += lp + log_sx;
+        grad[l.exposure_spread] += d_spread * sx + 1.0;
+        let (lp_a, dp_a) = self.to_exposure.log_density_and_derivative(theta[l.to_exposure]);
+        let (lp_b, dp_b) = self.to_outcome.log_density_and_derivative(theta[l.to_outcome]);
+        grad[l.to_exposure] += dp_a;
+        grad[l.to_outcome] += dp_b;
+        total + lp_a + lp_b
     }
 }
 
@@ -393,6 +479,19 @@ mod tests {
         }
     }
 
+    /// The same rows with a yes/no outcome, yes where y is above its middle.
+    fn yes_no_model() -> Model {
+        let x = exposure_values();
+        let w: Vec<f64> = (0..40).map(|i| (i as f64 * 0.11).cos()).collect();
+        let y: Vec<bool> = x.iter().zip(&w).enumerate().map(|(i, (a, b))| 0.5 * a - b + (i as f64 * 1.7).sin() > 2.2).collect();
+        let table = Table {
+            name: "t".into(),
+            columns: vec![Column::new("x", ColumnData::Real(x)), Column::new("w", ColumnData::Real(w)), Column::new("y", ColumnData::Binary(y))],
+        };
+        let spec = ModelSpec::from_lines("m", [(1, "y from x, w using t"), (2, "family bernoulli")].into_iter()).unwrap();
+        Model::build(&spec, &table).unwrap()
+    }
+
     fn density<'m>(m: &'m Model, exposure: &ExposurePriors) -> HiddenCause<'m> {
         let slope = m.linear_slope_position("x").unwrap();
         let centre = m.linear_slope_centre("x").unwrap();
@@ -407,9 +506,10 @@ mod tests {
 
     #[test]
     fn gradient_matches_central_differences() {
-        let m = model();
-        for (exposure, theta) in [ExposurePriors::ObservedSpread, stated()].iter().flat_map(|e| points(density(&m, e).dim()).into_iter().map(move |t| (e, t))) {
-            let d = density(&m, exposure);
+        let (normal, yes_no) = (model(), yes_no_model());
+        let cases = [(&normal, ExposurePriors::ObservedSpread), (&normal, stated()), (&yes_no, ExposurePriors::ObservedSpread), (&yes_no, stated())];
+        for (m, exposure, theta) in cases.iter().flat_map(|(m, e)| points(density(m, e).dim()).into_iter().map(move |t| (*m, e, t))) {
+            let d = density(m, exposure);
             let dim = d.dim();
             let mut grad = vec![0.0; dim];
             let f = d.log_density_and_gradient(&theta, &mut grad);
@@ -461,7 +561,7 @@ mod tests {
             theta[l.exposure_coefficients] += intercept;
             let rows = d.row_log_densities(&theta);
             let (a_s, b) = (theta[l.to_exposure] / sd, theta[l.to_outcome]);
-            let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread].exp());
+            let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread.unwrap()].exp());
             let mut others = 0;
             for i in 0..design.nrows() {
                 let mut mean_y = 0.0;
@@ -531,7 +631,7 @@ mod tests {
         theta[l.to_outcome] = 0.0;
         let pair = d.pair(&theta);
         let (rx, ry) = d.residuals(&theta);
-        let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread].exp());
+        let (sx, sy) = (theta[l.exposure_spread].exp(), theta[l.outcome_spread.unwrap()].exp());
         let log_normal = |r: f64, s: f64| -0.5 * (r / s).powi(2) - s.ln() - 0.5 * std::f64::consts::TAU.ln();
         for (i, row) in d.row_log_densities(&theta).iter().enumerate() {
             let expected = log_normal(rx[i], sx) + log_normal(ry[i], sy);

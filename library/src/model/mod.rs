@@ -56,6 +56,7 @@ mod density;
 mod disk_sums;
 pub mod guards;
 mod hidden_cause;
+mod hidden_yes_no;
 pub mod error;
 pub mod family;
 mod inputs;

@@ -1,7 +1,8 @@
 //! The fully Bayesian answer to "what if a hidden common cause of X and
 //! the outcome exists?": refit the model beside a simulated hidden node
 //! whose strengths have priors the user states, and set the slope's
-//! widened interval beside the fitted one.
+//! widened interval beside the fitted one. The outcome is normal, or
+//! yes/no with the slope and the outcome's strength on the log-odds scale.
 //!
 //! The density is [`crate::model::HiddenCause`]: one standard normal
 //! hidden value per row, entering the exposure with strength `a` (exposure
@@ -91,6 +92,11 @@ pub struct ExposurePrior {
     pub prior: String,
 }
 
+/// The scale of a normal outcome's slope.
+pub const DIFFERENCE: &str = "difference";
+/// The scale of a yes/no outcome's slope.
+pub const LOG_ODDS: &str = "log odds";
+
 /// Who set the exposure model's priors when they were stated.
 pub const STATED_IN_THE_CELL: &str = "stated in the cell";
 
@@ -119,6 +125,9 @@ pub struct HiddenRefit {
     pub outcome: String,
     /// The slope's unit (outcome unit per exposure unit), when both have one.
     pub unit: Option<String>,
+    /// The slope's scale: [`DIFFERENCE`] for a normal outcome, [`LOG_ODDS`]
+    /// for a yes/no one.
+    pub scale: &'static str,
     /// The fitted one-unit contrast (the slope) as the model was fitted.
     pub fitted: ContrastSummary,
     /// The same after the refit beside the hidden node.
@@ -179,6 +188,7 @@ pub fn hidden_refit(
         exposure: x.to_string(),
         outcome: model.outcome_name().to_string(),
         unit: model.parameter_units(table).get(slope).cloned().flatten(),
+        scale: if model.has_spread() { DIFFERENCE } else { LOG_ODDS },
         refitted: ContrastSummary::of(&refitted_draws, mass)?,
         fitted,
         strengths,
@@ -221,7 +231,7 @@ pub fn refit_beside_hidden(
     })?;
     let density = HiddenCause::new(model, slope, centre, &priors.exposure, priors.to_exposure.1.clone(), priors.to_outcome.1.clone()).ok_or_else(|| {
         QueryError::request(format!(
-            "{place}: the refit takes a normal outcome without pooled groups or steps(…) terms and an exposure that varies; model {} is not one",
+            "{place}: the refit takes a normal or yes/no (bernoulli) outcome without pooled groups or steps(…) terms and an exposure that varies; model {} is not one",
             model.name()
         ))
     })?;
@@ -233,8 +243,8 @@ pub fn refit_beside_hidden(
     let starts: Vec<Vec<f64>> = scores
         .iter()
         .map(|z| {
-            let mut outcome = model.dispersed_point(&z[..=layout.outcome_spread]);
-            outcome.truncate(layout.outcome_spread + 1);
+            let mut outcome = model.dispersed_point(&z[..layout.outcome_end]);
+            outcome.truncate(layout.outcome_end);
             density.start(&outcome, z)
         })
         .collect();
@@ -272,11 +282,11 @@ pub fn refit_beside_hidden(
     names.extend(density.exposure_labels());
     names.push(strength_label(x));
     names.push(strength_label(model.outcome_name()));
-    let positive = [layout.outcome_spread, layout.exposure_spread];
+    let positive = [layout.outcome_spread, Some(layout.exposure_spread)];
     let constrained: Vec<Vec<Vec<f64>>> = run
         .draws
         .iter()
-        .map(|c| c.iter().map(|t| t.iter().enumerate().map(|(k, v)| if positive.contains(&k) { v.exp() } else { *v }).collect()).collect())
+        .map(|c| c.iter().map(|t| t.iter().enumerate().map(|(k, v)| if positive.contains(&Some(k)) { v.exp() } else { *v }).collect()).collect())
         .collect();
     let draws = Draws::from_chains(names, constrained).map_err(|e| QueryError::request(format!("{place}: {e}")))?;
     Ok(HiddenRun {

@@ -165,8 +165,10 @@ fn split_outside_brackets(text: &str) -> Vec<&str> {
 fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     let (x, y) = (&r.exposure, &r.outcome);
     let unit = r.unit.as_deref();
+    let yes_no = r.scale == crate::query::hidden_refit::LOG_ODDS;
+    let on = if yes_no { format!("{y}'s log odds") } else { y.clone() };
     let heading = format!(
-        "robustness of {name}: {x}'s slope on {y} refitted beside a hidden common cause with stated strengths: {} ({} {} to {}), against {} ({} to {}) as fitted",
+        "robustness of {name}: {x}'s slope on {on} refitted beside a hidden common cause with stated strengths: {} ({} {} to {}), against {} ({} to {}) as fitted",
         with_unit(r.refitted.mean, unit),
         r.interval,
         num(r.refitted.lower),
@@ -193,12 +195,19 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     let exposure_heading = format!("{x}'s own model beside the hidden cause, its priors in {x}'s unit:");
     let widened = (r.refitted.upper - r.refitted.lower) / (r.fitted.upper - r.fitted.lower).max(f64::MIN_POSITIVE);
     let mut notes = vec![
+        if yes_no {
+            format!(
+                "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y}'s log odds by the second (each per standard deviation of the hidden value), and integrates it out (given {x}, the hidden value is normal, and the chance of a yes is averaged over it by a trapezoid sum); {y}'s regression keeps the model's priors",
+                r.rows
+            )
+        } else {
+            format!(
+                "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value), and integrates it out: each row's {x} and {y} are then jointly normal; {y}'s regression keeps the model's priors",
+                r.rows
+            )
+        },
         format!(
-            "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value), and integrates it out: each row's {x} and {y} are then jointly normal; {y}'s regression keeps the model's priors",
-            r.rows
-        ),
-        format!(
-            "the data cannot tell the product of the strengths ({} on average, {} {} to {}) from {x}'s own slope, so the stated priors carry the assumption; the interval is {}× as wide as fitted",
+            "the data say little about the strengths' product ({} on average, {} {} to {}) apart from {x}'s own slope, so the stated priors carry the assumption; the interval is {}× as wide as fitted",
             num(r.product.mean),
             r.interval,
             num(r.product.lower),
@@ -220,7 +229,13 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     notes.push(CAUSAL_NOTE.to_string());
     let (plain, html) = render(&heading, &[], &[("", &slopes), ("strengths of the hidden cause:", &strengths), (&exposure_heading, &exposure)], &notes);
     let named: Vec<(String, &[f64])> = vec![("as fitted".to_string(), r.fitted_draws.as_slice()), ("with the hidden cause".to_string(), r.refitted_draws.as_slice())];
-    let svg = crate::cells::figures::differences(&format!("{x}'s slope on {y}, as fitted and beside a hidden cause"), table, y, &named, DensityArrangement::Shared).ok();
+    let subject = format!("{x}'s slope on {on}, as fitted and beside a hidden cause");
+    let svg = if yes_no {
+        let params: Vec<crate::plot::ParameterDraws> = named.iter().map(|(n, d)| crate::plot::ParameterDraws { name: n, draws: d }).collect();
+        crate::plot::posterior_figure(&subject, &crate::plot::Quantity::new(format!("change in {y}'s log odds per unit of {x}")), &params, DensityArrangement::Shared).ok()
+    } else {
+        crate::cells::figures::differences(&subject, table, y, &named, DensityArrangement::Shared).ok()
+    };
     let json = serde_json::to_value(r).unwrap_or_default();
     Display { plain, html: Some(html), svg, json: Some(json) }
 }
