@@ -88,7 +88,7 @@ struct Case {
 }
 
 const NORMAL: Case = Case { lines: &MODEL_LINES, parameters: &PARAMETERS, yes_no: false, rows: ROWS };
-const YES_NO: Case = Case { lines: &YES_NO_LINES, parameters: &YES_NO_PARAMETERS, yes_no: true, rows: 40 };
+const YES_NO: Case = Case { lines: &YES_NO_LINES, parameters: &YES_NO_PARAMETERS, yes_no: true, rows: ROWS };
 
 fn refit_priors() -> RefitPriors {
     let read = |text: &str| (text.to_string(), Prior::parse(text).unwrap());

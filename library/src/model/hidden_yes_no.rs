@@ -10,23 +10,24 @@
 //! `q = ±1` for a yes or a no. That expectation of a logistic over a normal
 //! has no closed form. Gauss–Hermite quadrature loses digits once `|b|·s`
 //! passes about 2 (the logistic becomes a steep step on the nodes' scale),
-//! so it is taken by the trapezoid rule on `z` over [−9, 9]: for a function
+//! so it is taken by the trapezoid rule on `z` over [−8.5, 8.5]: for a function
 //! analytic in a strip the rule's error falls like `e^(−2π·d/h)` with `d`
 //! the strip's half-width (Trefethen & Weideman 2014, "The exponentially
 //! convergent trapezoidal rule", SIAM Review; recalled), and the logistic's
 //! nearest poles lie `π / (|b|·s)` from the real line, so the step
-//! `h = min(0.5, 0.7 / (|b|·s))` keeps the error near `e^(−28)` whatever the
-//! strength. The step moves with the parameters, so the density is smooth
+//! `h = min(0.8, 0.7 / (|b|·s))` keeps the error near `e^(−28)` whatever the
+//! strength (the normal density alone, entire, leaves `2·e^(−2π²/h²)`,
+//! below `10⁻¹³` at `h = 0.8`). The step moves with the parameters, so the density is smooth
 //! only to that error, far below what a sampler can notice.
 
 /// Half-width of the range of the standard normal `z` the rule covers.
-const REACH: f64 = 9.0;
+const REACH: f64 = 8.5;
 
 /// The trapezoid rule's step `h` and half count of nodes (nodes `j·h`
 /// for `|j| ≤ half`, weights `h·φ(j·h)`) for a logistic whose argument
 /// moves by `k` per unit of `z`.
 fn rule(k: f64) -> (f64, i64) {
-    let h = (0.7 / k.abs().max(1e-12)).min(0.5);
+    let h = (0.7 / k.abs().max(1e-12)).min(0.8);
     (h, (REACH / h).ceil() as i64)
 }
 
@@ -60,8 +61,12 @@ pub(crate) fn yes_no_row(rx: f64, eta: f64, yes: bool, a: f64, sx: f64, b: f64) 
     let (mut top, mut total, mut g, mut gz) = (f64::NEG_INFINITY, 0.0, 0.0, 0.0);
     for j in -half..=half {
         let z = j as f64 * h;
-        let e = centre + b * s * z;
-        let l = log_weight - 0.5 * z * z - softplus(-q * e);
+        let x = -q * (centre + b * s * z);
+        // softplus(x) and logistic(x) from one exponential.
+        let small = (-x.abs()).exp();
+        let softplus = x.max(0.0) + small.ln_1p();
+        let logistic = if x >= 0.0 { 1.0 / (1.0 + small) } else { small / (1.0 + small) };
+        let l = log_weight - 0.5 * z * z - softplus;
         if l > top {
             let scale = (top - l).exp();
             total *= scale;
@@ -70,7 +75,7 @@ pub(crate) fn yes_no_row(rx: f64, eta: f64, yes: bool, a: f64, sx: f64, b: f64) 
             top = l;
         }
         let t = (l - top).exp();
-        let d = t * q * logistic(-q * e);
+        let d = t * q * logistic;
         total += t;
         g += d;
         gz += d * z;
@@ -95,25 +100,20 @@ pub(crate) fn yes_no_row(rx: f64, eta: f64, yes: bool, a: f64, sx: f64, b: f64) 
     }
 }
 
-fn softplus(x: f64) -> f64 {
-    if x > 0.0 {
-        x + (-x).exp().ln_1p()
-    } else {
-        x.exp().ln_1p()
-    }
-}
-
-fn logistic(x: f64) -> f64 {
-    1.0 / (1.0 + (-x).exp())
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
 
+    fn logistic(x: f64) -> f64 {
+        1.0 / (1.0 + (-x).exp())
+    }
+
     /// The rule integrates the normal law's first even moments,
     /// E[Z⁰] = 1, E[Z²] = 1, E[Z⁴] = 3 (the moments of the normal law), at
-    /// every step it takes.
+    /// every step it takes, within the trapezoid rule's aliasing error: at
+    /// step h about `2·P(2π/h)·e^(−2π²/h²)` with P the moment's polynomial
+    /// in the frequency ω = 2π/h (for Z², `ω² − 1`; for Z⁴, `ω⁴ − 6ω² + 3`),
+    /// some 5·10⁻¹² and 3·10⁻¹⁰ at h = 0.8.
     #[test]
     fn rule_gives_the_normal_moments() {
         for k in [0.0, 1.0, 3.0, 10.0] {
@@ -123,7 +123,7 @@ mod tests {
                     .map(|j| j as f64 * h)
                     .map(|z| h * (-0.5 * z * z).exp() / std::f64::consts::TAU.sqrt() * z.powi(power))
                     .sum();
-                assert!((moment - expected).abs() < 1e-12, "k {k}: E[Z^{power}] = {moment}");
+                assert!((moment - expected).abs() < 1e-9, "k {k}: E[Z^{power}] = {moment}");
             }
         }
     }
