@@ -160,9 +160,9 @@ fn ranks(case: &Case, widen: f64, seed: u64) -> Vec<Vec<usize>> {
         let table = simulate(&truth, &w, case.yes_no, &mut rng);
         let model = Model::build(&spec, &table).unwrap();
         let settings = NutsSettings {
-            chains: 3,
+            chains: 1,
             settle: 300,
-            draws: KEPT * THIN / 3,
+            draws: KEPT * THIN,
             acceptance: 0.9,
             seed: seed ^ rep,
             threads: 1,

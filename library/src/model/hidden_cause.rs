@@ -1,5 +1,6 @@
-//! A normal outcome's regression refitted beside a simulated hidden common
-//! cause of one of its predictors (the exposure) and the outcome.
+//! A normal or yes/no outcome's regression refitted beside a simulated
+//! hidden common cause of one of its predictors (the exposure) and the
+//! outcome.
 //!
 //! Each row has its own hidden value `uᵢ ~ normal(0, 1)`. The exposure is
 //! modelled from the model's other design columns plus `a·uᵢ`, the outcome
@@ -112,13 +113,14 @@ pub struct HiddenLayout {
 }
 
 impl<'m> HiddenCause<'m> {
-    /// The refit of normal `model` with its design column `slope` as the
-    /// exposure, whose model takes `exposure` priors; `None` when the model
-    /// is not a normal regression without pooled groups or the exposure
-    /// does not vary. `centre` is what the model took off the exposure's
+    /// The refit of normal or bernoulli `model` with its design column
+    /// `slope` as the exposure, whose model takes `exposure` priors; `None`
+    /// when the model is not such a regression without pooled groups or
+    /// steps, or the exposure does not vary. `centre` is what the model took off the exposure's
     /// column ([`Model::linear_slope_centre`]).
     pub fn new(model: &'m Model, slope: usize, centre: f64, exposure: &ExposurePriors, to_exposure: Prior, to_outcome: Prior) -> Option<HiddenCause<'m>> {
-        // A steps term's slots are not linear coefficients (`model::steps`).
+        // A steps term's slots are not linear coefficients (`model::steps`);
+        // a pooled group's would follow the family's parameters.
         let yes_no = matches!(model.family(), Family::Bernoulli);
         let plain = model.first_group_index() == model.labels.len() + usize::from(!yes_no);
         if !(model.has_spread() || yes_no) || !plain || !model.steps.is_empty() {
