@@ -188,9 +188,11 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     for s in &r.strengths {
         strengths.push(vec![s.strength.clone(), s.prior.clone(), num(s.mean), num(s.lower), num(s.upper)]);
     }
+    let stated = r.exposure_priors.set_by == crate::query::hidden_refit::STATED_IN_THE_CELL;
+    let set_by = if stated { r.exposure_priors.set_by.as_str() } else { "Waypath default" };
     let mut exposure = Grid::new(&["parameter", "prior", "set by"]);
     for p in &r.exposure_priors.parameters {
-        exposure.push(vec![p.parameter.clone(), p.prior.clone(), r.exposure_priors.set_by.clone()]);
+        exposure.push(vec![p.parameter.clone(), p.prior.clone(), set_by.to_string()]);
     }
     let exposure_heading = format!("{x}'s own model beside the hidden cause, its priors in {x}'s unit:");
     let widened = (r.refitted.upper - r.refitted.lower) / (r.fitted.upper - r.fitted.lower).max(f64::MIN_POSITIVE);
@@ -214,11 +216,12 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
             num(r.product.upper),
             num(widened)
         ),
-        if r.exposure_priors.set_by == crate::query::hidden_refit::STATED_IN_THE_CELL {
+        if stated {
             format!("{x}'s own model (from the model's other terms) takes the exposure priors stated in the cell, in {x}'s unit; none of the refit's added priors reads the data")
         } else {
             format!(
-                "{x}'s own model (from the model's other terms) takes Waypath's priors, set on {x}'s observed spread; `{EXPOSURE_PRIORS_WORDS} intercepts …, slopes …, spread …` states them in {x}'s unit instead, without a look at the data"
+                "the priors of {x}'s own model (from the model's other terms): {}; `{EXPOSURE_PRIORS_WORDS} intercepts …, slopes …, spread …` states them in {x}'s unit instead, without a look at the data",
+                r.exposure_priors.set_by
             )
         },
         if r.refitted.excludes_zero() { format!("the refitted {} still excludes zero", r.interval) } else { format!("the refitted {} holds zero", r.interval) },
