@@ -704,7 +704,12 @@ strengths and refits the model beside a simulated hidden value per reach,
 so the uncertainty about the hidden cause widens the slope's interval. The
 hidden values are integrated out, so the refit samples only the model's own
 parameters and a few more; still read its warnings before the numbers, and
-refit with more `draws` (`… with nuts draws 4000`) when it names any.
+refit with more `draws` (`… with nuts draws 4000`) when it names any. The
+refit also models temperature from gradient and buffer; its priors there are
+Waypath's, set on the spread of the temperatures observed, and the result
+lists them in °C. Writing `exposure priors intercepts normal(12, 5), slopes
+normal(0, 2), spread half_normal(3)` after the strengths states them in °C
+instead, without a look at the data.
 """),
     code("""
 robustness of nymphs: temp refit with hidden to temp normal(-0.5, 0.25) and to mayflies normal(3, 1.5)

@@ -12,6 +12,11 @@
 //! ordinary fit is biased by the omitted-variable bias `b·a / (a² + 1)`
 //! (the hidden cause's covariance with x given w, over x's residual
 //! variance; Wooldridge, Introductory Econometrics §3.3, recalled).
+//! The same holds with the exposure model's priors stated in the
+//! exposure's unit (`exposure priors …`), and the result names the priors
+//! it used: stated ones as written, Waypath's in the exposure's unit,
+//! centred on its sample mean with widths ten sample sds, checked against
+//! the mean and sd worked out here from the rows.
 
 mod common;
 
@@ -50,6 +55,10 @@ const SLOPE: f64 = 0.4;
 
 /// Rows of w, x, y with a hidden standard normal u behind x and y.
 fn write_rows(dir: &Path, seed: u64, n: usize) {
+    std::fs::write(dir.join(format!("hidden{seed}.csv")), rows_text(seed, n)).unwrap();
+}
+
+fn rows_text(seed: u64, n: usize) -> String {
     let mut s = Stream(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1);
     let mut text = String::from("w,x,y\n");
     for _ in 0..n {
@@ -58,7 +67,14 @@ fn write_rows(dir: &Path, seed: u64, n: usize) {
         let y = 1.0 + SLOPE * x + 0.7 * w + TO_Y * u + s.normal();
         text.push_str(&format!("{w:.6},{x:.6},{y:.6}\n"));
     }
-    std::fs::write(dir.join(format!("hidden{seed}.csv")), text).unwrap();
+    text
+}
+
+/// The sample mean and sd (n − 1) of column x of the rows.
+fn exposure_mean_sd(seed: u64, n: usize) -> (f64, f64) {
+    let x: Vec<f64> = rows_text(seed, n).lines().skip(1).map(|l| l.split(',').nth(1).unwrap().parse().unwrap()).collect();
+    let mean = x.iter().sum::<f64>() / n as f64;
+    (mean, (x.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1) as f64).sqrt())
 }
 
 fn session_with(dir: &Path, seed: u64) -> Session {
@@ -91,6 +107,52 @@ fn strengths_held_at_zero_reproduce_the_ordinary_fit() {
     assert!(((ru - rl) / width - 1.0).abs() < 0.15, "fitted [{fl}, {fu}], refitted [{rl}, {ru}]");
     let warnings = json["warnings"].as_array().unwrap();
     assert!(warnings.is_empty(), "{warnings:?}");
+    // Waypath's exposure priors, told in x's unit: the intercept's centred
+    // on x's sample mean, ten sample sds wide; the spread's half_normal(2 sds).
+    let (mean, sd) = exposure_mean_sd(11, 300);
+    let used = &json["exposure_priors"];
+    assert!(used["set_by"].as_str().unwrap().starts_with("Waypath default"), "{used}");
+    let prior = |k: usize| waypath::model::Prior::parse(used["parameters"][k]["prior"].as_str().unwrap()).unwrap();
+    assert_eq!(used["parameters"][0]["parameter"], "exposure intercept");
+    match prior(0) {
+        waypath::model::Prior::Normal { mean: m, sd: s } => {
+            assert!((m - mean).abs() < 1e-3 * mean.abs().max(1.0) && (s / (10.0 * sd) - 1.0).abs() < 1e-3, "{m}, {s} against {mean}, {sd}")
+        }
+        other => panic!("{other}"),
+    }
+    assert_eq!(used["parameters"][2]["parameter"], "exposure spread");
+    match prior(2) {
+        waypath::model::Prior::HalfNormal { sd: s } => assert!((s / (2.0 * sd) - 1.0).abs() < 1e-3, "{s} against {sd}"),
+        other => panic!("{other}"),
+    }
+}
+
+/// Stated exposure priors, in x's unit and wide, with strength priors on
+/// the truth: the 98% interval covers the true slope, and the result lists
+/// the stated priors as the ones used.
+#[test]
+fn stated_exposure_priors_recover_the_slope_and_are_named() {
+    let dir = std::env::temp_dir().join(format!("wp-hidden-stated-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut session = session_with(&dir, 41);
+    let json = last_json(
+        &mut session,
+        "robustness of m: x refit with hidden to x normal(0.8, 0.05) and to y normal(0.9, 0.05) \
+         exposure priors spread half_normal(3), intercepts normal(0, 5), slopes normal(0, 5) intervals 98% with nuts seed 7",
+    );
+    std::fs::remove_dir_all(&dir).ok();
+    let (rm, rl, ru) = summary(&json["refitted"]);
+    assert!(rl <= SLOPE && SLOPE <= ru, "true slope {SLOPE} outside the refit's 98% interval [{rl}, {ru}] (mean {rm})");
+    let used = &json["exposure_priors"];
+    assert_eq!(used["set_by"], "stated in the cell");
+    let listed: Vec<(String, String)> = used["parameters"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| (p["parameter"].as_str().unwrap().to_string(), p["prior"].as_str().unwrap().to_string()))
+        .collect();
+    let expected = [("exposure intercept", "normal(0, 5)"), ("exposure w slope", "normal(0, 5)"), ("exposure spread", "half_normal(3)")];
+    assert_eq!(listed, expected.map(|(a, b)| (a.to_string(), b.to_string())));
 }
 
 #[test]
@@ -124,6 +186,26 @@ fn refit_refuses_what_it_cannot_do() {
         ("robustness of m: x refit with hidden to x normal(0, 1) and to y wide", "not a distribution"),
         ("robustness of m: x refit with hidden to x normal(0, 1) and to y normal(0, 1) with laplace", "use `with nuts"),
         ("robustness of m: x wobble", "not an option of robustness"),
+        (
+            "robustness of m: x refit with hidden to x normal(0, 1) and to y normal(0, 1) exposure priors intercepts normal(0, 5), slopes normal(0, 5)",
+            "the exposure priors miss spread",
+        ),
+        (
+            "robustness of m: x refit with hidden to x normal(0, 1) and to y normal(0, 1) exposure priors intercepts normal(0, 5), slopes normal(0, 5), spread normal(0, 1)",
+            "allows negative values",
+        ),
+        (
+            "robustness of m: x refit with hidden to x normal(0, 1) and to y normal(0, 1) exposure priors intercepts normal(0, 5), slope normal(0, 5), spread half_normal(1)",
+            "`slope normal(0, 5)` is not one of the exposure priors",
+        ),
+        (
+            "robustness of m: x refit with hidden to x normal(0, 1) and to y normal(0, 1) exposure priors intercepts normal(0, 5), slopes normal(0, 5), slopes normal(0, 1), spread half_normal(1)",
+            "written twice",
+        ),
+        (
+            "robustness of m: x refit with hidden to x normal(0, 1) and to y normal(0, 1) exposure priors intercepts uniform(0, 5), slopes normal(0, 5), spread half_normal(1)",
+            "hard ends",
+        ),
     ] {
         let out = run(&mut session, cell);
         let error = out.error.expect(cell).describe();
@@ -205,4 +287,45 @@ fn temp_residual_variance(csv: &Path) -> f64 {
         .collect();
     let sum: f64 = rows.iter().map(|r| (r[3] - (0..3).map(|j| coefficients[j] * r[j]).sum::<f64>()).powi(2)).sum();
     sum / (rows.len() - 3) as f64
+}
+
+/// A yes/no outcome with a hidden cause of both, simulated here: yes with
+/// chance `logistic(−0.5 + SLOPE·x + 0.7·w + 1.5·u)`, x as above. The
+/// refit's model is the one the rows come from with u integrated out, so
+/// with strength priors on the truth its 98% interval covers the true
+/// log-odds slope, while the plain fit leans on x for u's part.
+#[test]
+fn a_yes_no_refit_with_priors_on_the_truth_covers_the_true_log_odds_slope() {
+    let dir = std::env::temp_dir().join(format!("wp-hidden-yes-no-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut s = Stream(51u64.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1);
+    let mut text = String::from("w,x,y\n");
+    for _ in 0..300 {
+        let (u, w) = (s.normal(), s.normal());
+        let x = 0.5 * w + TO_X * u + s.normal();
+        let eta = -0.5 + SLOPE * x + 0.7 * w + 1.5 * u;
+        let yes = s.uniform() < 1.0 / (1.0 + (-eta).exp());
+        text.push_str(&format!("{w:.6},{x:.6},{}\n", if yes { "yes" } else { "no" }));
+    }
+    std::fs::write(dir.join("yesno.csv"), text).unwrap();
+    let mut session = Session::new(&dir);
+    last_json(
+        &mut session,
+        "table t from \"yesno.csv\":\n    w: real\n    x: real\n    y: binary\nmodel m:\n    y from x, w using t\n    family bernoulli\nfit m with nuts seed 3",
+    );
+    let json = last_json(
+        &mut session,
+        "robustness of m: x refit with hidden to x normal(0.8, 0.05) and to y normal(1.5, 0.1) \
+         exposure priors intercepts normal(0, 5), slopes normal(0, 5), spread half_normal(3) intervals 98% \
+         with nuts chains 2 settle 500 draws 500 seed 8",
+    );
+    std::fs::remove_dir_all(&dir).ok();
+    assert_eq!(json["scale"], "log odds");
+    let (fm, fl, fu) = summary(&json["fitted"]);
+    let (rm, rl, ru) = summary(&json["refitted"]);
+    eprintln!("fitted {fm:.3} [{fl:.3}, {fu:.3}], refitted {rm:.3} [{rl:.3}, {ru:.3}]");
+    assert!(rl <= SLOPE && SLOPE <= ru, "true slope {SLOPE} outside the refit's 98% interval [{rl}, {ru}] (mean {rm})");
+    assert!(rm < fm, "the refit should take u's part off the plain slope: fitted {fm}, refitted {rm}");
+    let warnings = json["warnings"].to_string();
+    assert!(!warnings.contains("divergent"), "{warnings}");
 }

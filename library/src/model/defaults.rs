@@ -468,7 +468,7 @@ fn check_declared(spec: &ModelSpec, recipes: &[TermRecipe], groups: &[GroupTerm]
 /// A prior suits a parameter of `group`: no hard ends, positive-only for a
 /// positive parameter and not for one that can be negative. `what` names
 /// the group or the parameter in the message.
-fn check_suits(group: PriorGroup, prior: &Prior, what: &str) -> Result<(), ModelError> {
+pub(crate) fn check_suits(group: PriorGroup, prior: &Prior, what: &str) -> Result<(), ModelError> {
     let problem = |message: String| Err(ModelError::Prior { group: what.into(), message });
     if let Prior::Uniform { lower, upper } = prior {
         // A flat prior with hard ends puts a cliff in the density at each

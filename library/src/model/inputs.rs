@@ -108,6 +108,23 @@ impl Model {
         found
     }
 
+    /// The centre taken off `column` in its one linear slope's design
+    /// column (`column − centre`; 0 under `centre off`), when it enters
+    /// through that slope alone ([`Model::linear_slope_position`]).
+    pub fn linear_slope_centre(&self, column: &str) -> Option<f64> {
+        self.linear_slope_position(column)?;
+        self.recipes.iter().find_map(|r| match r {
+            TermRecipe::Slope { column: c, centre, .. } if c == column => Some(*centre),
+            _ => None,
+        })
+    }
+
+    /// The design columns that are intercepts: the intercept, or one per
+    /// level of the first category term.
+    pub fn intercept_columns(&self) -> Vec<usize> {
+        super::build::intercept_columns(&self.recipes)
+    }
+
     /// The spline terms of the model.
     pub fn spline_terms(&self) -> Vec<SplineTerm<'_>> {
         let mut start = 0;

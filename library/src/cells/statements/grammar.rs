@@ -354,14 +354,18 @@ pub const JOINT: Form = Form {
 };
 /// The words that open the refit option of `robustness`.
 pub const REFIT_WORDS: &[&str] = &["refit", "with", "hidden", "to"];
+/// The words that open the refit's exposure-model priors, stated in the
+/// exposure's own unit.
+pub const EXPOSURE_PRIORS_WORDS: &str = "exposure priors";
 /// `robustness of MODEL: X` — the contrast under an assumed hidden common
 /// cause; with `refit with hidden to X PRIOR and to Y PRIOR`, the model
-/// refitted beside a simulated hidden node whose strengths take those priors.
+/// refitted beside a simulated hidden node whose strengths take those
+/// priors (and X's own model the `exposure priors`, in X's unit, if stated).
 pub const ROBUSTNESS: Form = Form {
     slots: &[Word("robustness"), Word("of"), Name(Md), Word(":"), Name(Col)],
     options: &[INTERVALS_OPTION, &[Word("refit"), Word("with"), Word("hidden"), Word("to"), Value]],
     method: true,
-    usage: "robustness of MODEL: X [refit with hidden to X PRIOR and to Y PRIOR [with nuts …]] [intervals P%]",
+    usage: "robustness of MODEL: X [refit with hidden to X PRIOR and to Y PRIOR [exposure priors intercepts PRIOR, slopes PRIOR, spread PRIOR] [with nuts …]] [intervals P%]",
 };
 pub const INTERVENE: Form = Form {
     slots: &[Word("intervene"), Name(Md), Word(":"), Word("set"), Name(Col), Name(Lv), Word("vs"), Name(Lv), Word("watch")],

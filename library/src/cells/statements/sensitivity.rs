@@ -9,10 +9,12 @@
 //! the two strengths. With `refit with hidden to X PRIOR and to Y PRIOR`
 //! the model is refitted beside a simulated hidden node instead
 //! ([`crate::query::hidden_refit`]), and the slope's interval is shown as
-//! fitted and as refitted, with both densities.
+//! fitted and as refitted, with both densities; `exposure priors …` after
+//! the strengths states the exposure model's priors in X's own unit, in
+//! place of Waypath's, which are set on X's observed spread.
 
 use super::fitting::require_fit;
-use super::grammar::{REFIT_WORDS, ROBUSTNESS};
+use super::grammar::{EXPOSURE_PRIORS_WORDS, REFIT_WORDS, ROBUSTNESS};
 use super::questions::{bounds, check_cancel, method_or, query_error, render, sampler_progress, stopped_or, summary_cells, summary_grid, CAUSAL_NOTE};
 use super::{header, interval_option};
 use crate::cells::format::{num, with_unit};
@@ -21,12 +23,13 @@ use crate::cells::parse::Statement;
 use crate::cells::session::{RunControl, Session};
 use crate::infer::fit::Method;
 use crate::infer::nuts::NutsSettings;
-use crate::model::{Family, Prior};
+use crate::model::{ExposurePriors, Family, Prior, PriorGroup};
 use crate::plot::{DensityArrangement, RobustnessPicture, StrengthScale};
+use crate::query::hidden_refit::RefitPriors;
 use crate::query::{HiddenRefit, Robustness, RiskRatioRobustness};
 use crate::table::Table;
 
-/// `robustness of M: X [refit with hidden to X PRIOR and to Y PRIOR [with nuts …]] [intervals P%]`.
+/// `robustness of M: X [refit with hidden to X PRIOR and to Y PRIOR [exposure priors …] [with nuts …]] [intervals P%]`.
 pub(crate) fn robustness(session: &mut Session, st: &Statement, control: &RunControl) -> Result<Vec<Display>, CellError> {
     let line = st.header.number;
     let ([name, x], options) = header(st, &ROBUSTNESS)?;
@@ -47,7 +50,7 @@ pub(crate) fn robustness(session: &mut Session, st: &Statement, control: &RunCon
         let label = format!("robustness of {name}: {x} refit");
         let progress = sampler_progress(control, &label);
         (control.progress)(&format!("{label}: NUTS beside a hidden value per row, integrated out"));
-        let r = crate::query::hidden_refit(model, &fit.draws, table, x, (&refit.to_exposure.0, refit.to_exposure.1), (&refit.to_outcome.0, refit.to_outcome.1), &settings, mass, control.cancel, &progress)
+        let r = crate::query::hidden_refit(model, &fit.draws, table, x, &refit.priors, &settings, mass, control.cancel, &progress)
             .map_err(|e| stopped_or(control, &label, line, e))?;
         check_cancel(control, &label, line)?;
         return Ok(vec![refit_display(name, table, &r)]);
@@ -60,16 +63,15 @@ pub(crate) fn robustness(session: &mut Session, st: &Statement, control: &RunCon
     Ok(vec![slope_display(name, &r)])
 }
 
-/// The refit option as read: each strength's prior (as written, parsed)
-/// and the sampler options after it.
+/// The refit option as read: the priors (each strength's as written and
+/// parsed, the exposure model's) and the sampler options after them.
 struct RefitOption {
-    to_exposure: (String, Prior),
-    to_outcome: (String, Prior),
+    priors: RefitPriors,
     method: String,
 }
 
-/// Read `refit with hidden to X PRIOR and to Y PRIOR [with …]`, the two
-/// strengths in either order.
+/// Read `refit with hidden to X PRIOR and to Y PRIOR [exposure priors …]
+/// [with …]`, the two strengths in either order.
 fn read_refit(text: &str, x: &str, y: &str) -> Result<RefitOption, String> {
     let text = text.trim();
     let words: Vec<&str> = text.split_whitespace().collect();
@@ -80,6 +82,10 @@ fn read_refit(text: &str, x: &str, y: &str) -> Result<RefitOption, String> {
     let (priors, method) = match body.find(" with ") {
         Some(at) => (&body[..at], body[at + 1..].trim()),
         None => (body, ""),
+    };
+    let (priors, exposure) = match priors.find(&format!(" {EXPOSURE_PRIORS_WORDS}")) {
+        Some(at) => (&priors[..at], read_exposure_priors(priors[at + EXPOSURE_PRIORS_WORDS.len() + 1..].trim(), x)?),
+        None => (priors, ExposurePriors::ObservedSpread),
     };
     let parts: Vec<&str> = priors.split(" and ").map(str::trim).collect();
     let [first, second] = parts.as_slice() else {
@@ -97,7 +103,61 @@ fn read_refit(text: &str, x: &str, y: &str) -> Result<RefitOption, String> {
         (p, q) if p == y && q == x => (b, a),
         _ => return Err(format!("the strengths go to the exposure {x} and the outcome {y}; name those two")),
     };
-    Ok(RefitOption { to_exposure: (ex.1, ex.2), to_outcome: (out.1, out.2), method: method.to_string() })
+    Ok(RefitOption {
+        priors: RefitPriors { to_exposure: (ex.1, ex.2), to_outcome: (out.1, out.2), exposure },
+        method: method.to_string(),
+    })
+}
+
+/// The groups of the exposure model's priors, by their word.
+const EXPOSURE_GROUPS: [(&str, PriorGroup); 3] =
+    [("intercepts", PriorGroup::Intercepts), ("slopes", PriorGroup::Slopes), ("spread", PriorGroup::Spread)];
+
+/// Read `intercepts PRIOR, slopes PRIOR, spread PRIOR` (any order, each
+/// once, all three): the exposure model's priors in `x`'s own unit.
+fn read_exposure_priors(text: &str, x: &str) -> Result<ExposurePriors, String> {
+    let form = format!("`{EXPOSURE_PRIORS_WORDS} intercepts PRIOR, slopes PRIOR, spread PRIOR`, each in {x}'s own unit");
+    let mut found: [Option<Prior>; 3] = [None, None, None];
+    for item in split_outside_brackets(text) {
+        let (word, prior) = item.split_once(char::is_whitespace).unwrap_or((item, ""));
+        let k = EXPOSURE_GROUPS.iter().position(|(w, _)| *w == word).ok_or_else(|| format!("`{item}` is not one of the exposure priors; write {form}"))?;
+        if found[k].is_some() {
+            return Err(format!("the exposure prior `{word}` is written twice; write it once"));
+        }
+        let what = format!("exposure {word}");
+        let parsed = Prior::parse(prior).map_err(|e| format!("the {what}: {e}"))?;
+        crate::model::check_prior_suits(EXPOSURE_GROUPS[k].1, &parsed, &what).map_err(|e| e.to_string())?;
+        found[k] = Some(parsed);
+    }
+    match found {
+        [Some(intercepts), Some(slopes), Some(spread)] => Ok(ExposurePriors::Stated { intercepts, slopes, spread }),
+        _ => {
+            let missing: Vec<&str> = EXPOSURE_GROUPS.iter().zip(&found).filter(|(_, f)| f.is_none()).map(|((w, _), _)| *w).collect();
+            Err(format!(
+                "the exposure priors miss {}: state all three, {form} (left out, all three are Waypath's, set on {x}'s observed spread)",
+                missing.join(" and ")
+            ))
+        }
+    }
+}
+
+/// `text` cut at the commas outside parentheses, each part trimmed.
+fn split_outside_brackets(text: &str) -> Vec<&str> {
+    let mut parts = Vec::new();
+    let (mut depth, mut start) = (0i32, 0);
+    for (i, c) in text.char_indices() {
+        match c {
+            '(' => depth += 1,
+            ')' => depth -= 1,
+            ',' if depth == 0 => {
+                parts.push(text[start..i].trim());
+                start = i + 1;
+            }
+            _ => {}
+        }
+    }
+    parts.push(text[start..].trim());
+    parts
 }
 
 /// The slope fitted without and with the simulated hidden node, the
@@ -105,8 +165,10 @@ fn read_refit(text: &str, x: &str, y: &str) -> Result<RefitOption, String> {
 fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     let (x, y) = (&r.exposure, &r.outcome);
     let unit = r.unit.as_deref();
+    let yes_no = r.scale == crate::query::hidden_refit::LOG_ODDS;
+    let on = if yes_no { format!("{y}'s log odds") } else { y.clone() };
     let heading = format!(
-        "robustness of {name}: {x}'s slope on {y} refitted beside a hidden common cause with stated strengths: {} ({} {} to {}), against {} ({} to {}) as fitted",
+        "robustness of {name}: {x}'s slope on {on} refitted beside a hidden common cause with stated strengths: {} ({} {} to {}), against {} ({} to {}) as fitted",
         with_unit(r.refitted.mean, unit),
         r.interval,
         num(r.refitted.lower),
@@ -126,29 +188,57 @@ fn refit_display(name: &str, table: &Table, r: &HiddenRefit) -> Display {
     for s in &r.strengths {
         strengths.push(vec![s.strength.clone(), s.prior.clone(), num(s.mean), num(s.lower), num(s.upper)]);
     }
+    let stated = r.exposure_priors.set_by == crate::query::hidden_refit::STATED_IN_THE_CELL;
+    let set_by = if stated { r.exposure_priors.set_by.as_str() } else { "Waypath default" };
+    let mut exposure = Grid::new(&["parameter", "prior", "set by"]);
+    for p in &r.exposure_priors.parameters {
+        exposure.push(vec![p.parameter.clone(), p.prior.clone(), set_by.to_string()]);
+    }
+    let exposure_heading = format!("{x}'s own model beside the hidden cause, its priors in {x}'s unit:");
     let widened = (r.refitted.upper - r.refitted.lower) / (r.fitted.upper - r.fitted.lower).max(f64::MIN_POSITIVE);
     let mut notes = vec![
+        if yes_no {
+            format!(
+                "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y}'s log odds by the second (each per standard deviation of the hidden value), and integrates it out (given {x}, the hidden value is normal, and the chance of a yes is averaged over it by a trapezoid sum); {y}'s regression keeps the model's priors",
+                r.rows
+            )
+        } else {
+            format!(
+                "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value), and integrates it out: each row's {x} and {y} are then jointly normal; {y}'s regression keeps the model's priors",
+                r.rows
+            )
+        },
         format!(
-            "the refit gives each of the {} rows its own hidden value, standard normal, which moves {x} by the first strength and {y} by the second (each per standard deviation of the hidden value), and integrates it out: each row's {x} and {y} are then jointly normal; {y}'s regression keeps the model's priors",
-            r.rows
-        ),
-        format!(
-            "the data cannot tell the product of the strengths ({} on average, {} {} to {}) from {x}'s own slope, so the stated priors carry the assumption; the interval is {}× as wide as fitted",
+            "the data say little about the strengths' product ({} on average, {} {} to {}) apart from {x}'s own slope, so the stated priors carry the assumption; the interval is {}× as wide as fitted",
             num(r.product.mean),
             r.interval,
             num(r.product.lower),
             num(r.product.upper),
             num(widened)
         ),
+        if stated {
+            format!("{x}'s own model (from the model's other terms) takes the exposure priors stated in the cell, in {x}'s unit; none of the refit's added priors reads the data")
+        } else {
+            format!(
+                "the priors of {x}'s own model (from the model's other terms): {}; `{EXPOSURE_PRIORS_WORDS} intercepts …, slopes …, spread …` states them in {x}'s unit instead, without a look at the data",
+                r.exposure_priors.set_by
+            )
+        },
         if r.refitted.excludes_zero() { format!("the refitted {} still excludes zero", r.interval) } else { format!("the refitted {} holds zero", r.interval) },
         format!("sampled with {}", r.method),
     ];
     notes.extend(r.warnings.iter().map(|w| format!("warning: {w}")));
     notes.push("a hidden cause of this strength is an assumption stated in the priors, not a finding".to_string());
     notes.push(CAUSAL_NOTE.to_string());
-    let (plain, html) = render(&heading, &[], &[("", &slopes), ("strengths of the hidden cause:", &strengths)], &notes);
+    let (plain, html) = render(&heading, &[], &[("", &slopes), ("strengths of the hidden cause:", &strengths), (&exposure_heading, &exposure)], &notes);
     let named: Vec<(String, &[f64])> = vec![("as fitted".to_string(), r.fitted_draws.as_slice()), ("with the hidden cause".to_string(), r.refitted_draws.as_slice())];
-    let svg = crate::cells::figures::differences(&format!("{x}'s slope on {y}, as fitted and beside a hidden cause"), table, y, &named, DensityArrangement::Shared).ok();
+    let subject = format!("{x}'s slope on {on}, as fitted and beside a hidden cause");
+    let svg = if yes_no {
+        let params: Vec<crate::plot::ParameterDraws> = named.iter().map(|(n, d)| crate::plot::ParameterDraws { name: n, draws: d }).collect();
+        crate::plot::posterior_figure(&subject, &crate::plot::Quantity::new(format!("change in {y}'s log odds per unit of {x}")), &params, DensityArrangement::Shared).ok()
+    } else {
+        crate::cells::figures::differences(&subject, table, y, &named, DensityArrangement::Shared).ok()
+    };
     let json = serde_json::to_value(r).unwrap_or_default();
     Display { plain, html: Some(html), svg, json: Some(json) }
 }
