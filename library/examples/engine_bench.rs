@@ -46,7 +46,11 @@
 //! * `m` — the yield of 5,000 orchard trees against their canopy class
 //!   (open, sparse, partial, dense, closed: `steps(canopy)`, a whole effect
 //!   shared out over four monotone steps) and 3 standardised site
-//!   measures, normal family, NUTS.
+//!   measures, normal family, NUTS;
+//! * `n` — days from planting to first flower of 600 seedlings against
+//!   the shade over them, at 3 nursery sites pooled (`pooled site`, few
+//!   levels, so the intercept is barely told from the site means), Weibull
+//!   family, NUTS.
 //!
 //! Each row shows wall seconds, the smallest bulk ESS over the parameters,
 //! that ESS per wall second and per CPU second, the smallest tail ESS, the
@@ -150,6 +154,9 @@ fn main() {
     }
     if wants("m") {
         rows.push(case_canopy_steps(nuts));
+    }
+    if wants("n") {
+        rows.push(case_few_sites(nuts));
     }
     println!("{}", render(&rows));
     if let Some(path) = chart {
@@ -340,6 +347,16 @@ fn case_times(nuts: &NutsSettings) -> Row {
     let model = build("m_days", body, &table);
     let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
     row("(k) weibull, rows cut short, 5 predictors, n = 5,000, NUTS", started, &fit, &model)
+}
+
+/// (n) Weibull with a pooled site of only 3 levels, n = 600.
+fn case_few_sites(nuts: &NutsSettings) -> Row {
+    let table = nursery_sites(600, 3, 23);
+    reset_peak_memory();
+    let started = Clock::start();
+    let model = build("m_flower", "days from shade, pooled site using seedlings\nfamily weibull", &table);
+    let fit = run_fit(&model, &Method::Nuts(nuts.clone()));
+    row("(n) weibull, pooled site (3), 1 predictor, n = 600, NUTS", started, &fit, &model)
 }
 
 /// (l) Cumulative logit on 5 predictors, 4 ordered grades, n = 5,000.
@@ -698,6 +715,37 @@ fn germination(n: usize, seed: u64) -> Table {
     named.push(("days".into(), ColumnData::Real(days)));
     named.push(("unsprouted".into(), ColumnData::Binary(unsprouted)));
     Table { name: "seeds".into(), columns: named.into_iter().map(|(n, d)| Column::new(n, d)).collect() }
+}
+
+/// Seedlings at `sites` nursery sites (rows shared out in turn): days to
+/// first flower, Weibull with shape 1.6 and mean `e^η`,
+/// `η = 3 + 0.5·shade + site departure` (departures of sd 0.3).
+fn nursery_sites(n: usize, sites: usize, seed: u64) -> Table {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let noise = Normal::new(0.0, 1.0).expect("valid normal");
+    let departures: Vec<f64> = (0..sites).map(|_| 0.3 * noise.sample(&mut rng)).collect();
+    let shape = 1.6f64;
+    // Γ(1 + 1/1.6) = Γ(1.625) ≈ 0.8966 (scipy.special.gamma): the scale whose mean is e^η.
+    let mean_over_scale = 0.8966;
+    let (mut site, mut shade, mut days) = (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
+    for i in 0..n {
+        let s = i % sites;
+        let x: f64 = rng.random_range(0.0..1.0);
+        let u: f64 = 1.0 - rng.random::<f64>();
+        let eta = 3.0 + 0.5 * x + departures[s];
+        site.push(s as u32);
+        shade.push(x);
+        days.push(eta.exp() / mean_over_scale * (-u.ln()).powf(1.0 / shape));
+    }
+    let levels = (1..=sites).map(|k| format!("N{k}")).collect();
+    table(
+        "seedlings",
+        vec![
+            ("site", ColumnData::Category { codes: site, levels }),
+            ("shade", ColumnData::Real(shade)),
+            ("days", ColumnData::Real(days)),
+        ],
+    )
 }
 
 /// Orchard trees: a blight grade from a latent score (5 standardised site

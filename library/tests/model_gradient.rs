@@ -103,6 +103,10 @@ fn time_gradients_match_finite_differences() {
     check_gradient_on(&format!("ripening from {TERMS} using trees\nfamily weibull cut short by season_over"), &table, 26);
     check_gradient_on(&format!("ripening from {SPLINE_TERMS} using trees\nfamily weibull\nprior shape: exponential(0.5)"), &table, 27);
     check_gradient_on("ripening from girth, pooled soil using trees\nfamily weibull cut short by season_over", &table, 28);
+    // Three soils sampled centred: the intercept's coordinate is its score about the soils' means.
+    let body = "ripening from girth, pooled soil using trees\nfamily weibull\nparameterise soil centred";
+    assert!(build(body, &table).unconstrained_names()[0].contains("score about the soil level means"));
+    check_gradient_on(body, &table, 32);
 }
 
 /// Times between bounds (`came by`): rows from 0 (the event came before

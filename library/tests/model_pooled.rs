@@ -58,48 +58,161 @@ fn gradient_of_every_family_and_layout_matches_finite_differences() {
 }
 
 /// Change of variables (any probability text, e.g. Casella & Berger,
-/// Statistical Inference, 2nd ed., Thm 2.1.5; recalled): with departures
-/// `a = τ·z`, the non-centred density at `z` equals the centred density at
-/// `a = τz` plus `J·log τ`, the log Jacobian of the J departures (the
-/// centred group here is sampled as level means `intercept + a`, a shift
-/// with unit Jacobian). The two layouts must also give the same
-/// constrained parameters.
+/// Statistical Inference, 2nd ed., Thm 2.1.5 and its many-variable form
+/// §4.6; recalled): two coordinate systems of one posterior differ in log
+/// density by the log |det| of the Jacobian of the map between them. The
+/// centred layout (the intercept as its standard score about the level
+/// means, then the level means) and the non-centred one (the intercept,
+/// then the departures' standard scores) are mapped into each other through
+/// the constrained parameters, `T = unconstrain_nc ∘ constrain_c`; `T`'s
+/// Jacobian is taken here by central differences (error O(h²), Nocedal &
+/// Wright, Numerical Optimization, 2nd ed., §8.1; recalled), not from the
+/// formula the model uses. Checked on many levels (plots, normal family)
+/// and on three (soils, Weibull), the case the score layout is for.
 #[test]
 fn centred_and_noncentred_layouts_are_one_density() {
-    let table = orchard_with_plots(150, 3);
-    let body = |layout: &str| format!("yield from girth, pooled plot using trees\nparameterise plot {layout}");
-    let centred = build(&body("centred"), &table);
-    let noncentred = build(&body("noncentred"), &table);
-    let first = centred.first_group_index();
-    assert_eq!(centred.unconstrained_names()[first + 1], "intercept + plot departure[P1]");
-    assert_eq!(noncentred.unconstrained_names()[first + 1], "plot departure[P1] / plot spread");
-    let mut rng = StdRng::seed_from_u64(4);
-    for _ in 0..5 {
-        let mut z: Vec<f64> = noncentred.initial_point();
-        for v in z.iter_mut() {
-            *v += rng.random_range(-0.8..0.8);
+    let plots = orchard_with_plots(150, 3);
+    let times = model_fixtures::orchard_with_times(120, 3);
+    let cases = [
+        ("yield from girth, pooled plot using trees\nparameterise plot ", &plots, "plot", "P1"),
+        ("ripening from girth, pooled soil using trees\nfamily weibull\nparameterise soil ", &times, "soil", "loam"),
+    ];
+    for (body, table, group, level) in cases {
+        let centred = build(&format!("{body}centred"), table);
+        let noncentred = build(&format!("{body}noncentred"), table);
+        let first = centred.first_group_index();
+        assert_eq!(centred.unconstrained_names()[0], format!("intercept: score about the {group} level means"));
+        assert_eq!(centred.unconstrained_names()[first + 1], format!("intercept + {group} departure[{level}]"));
+        assert_eq!(noncentred.unconstrained_names()[0], "intercept");
+        assert_eq!(noncentred.unconstrained_names()[first + 1], format!("{group} departure[{level}] / {group} spread"));
+        let across = |theta: &[f64]| noncentred.unconstrain(&centred.constrain(theta)).expect("valid parameters");
+        let mut rng = StdRng::seed_from_u64(4);
+        for _ in 0..4 {
+            let theta: Vec<f64> = centred.initial_point().iter().map(|v| v + rng.random_range(-0.8..0.8)).collect();
+            let dim = theta.len();
+            let h = 1e-5;
+            let mut jacobian = nalgebra::DMatrix::<f64>::zeros(dim, dim);
+            for k in 0..dim {
+                let (mut up, mut down) = (theta.clone(), theta.clone());
+                up[k] += h;
+                down[k] -= h;
+                let (a, b) = (across(&up), across(&down));
+                for i in 0..dim {
+                    jacobian[(i, k)] = (a[i] - b[i]) / (2.0 * h);
+                }
+            }
+            let log_det = jacobian.determinant().abs().ln();
+            let (value_c, _) = value_and_gradient(&centred, &theta);
+            let (value_n, _) = value_and_gradient(&noncentred, &across(&theta));
+            assert!(
+                (value_c - (value_n + log_det)).abs() < 1e-6 * value_c.abs().max(1.0),
+                "{body}: centred {value_c} vs non-centred {value_n} + log|det J| {log_det}"
+            );
+            let back = centred.unconstrain(&centred.constrain(&theta)).expect("valid parameters");
+            for (x, y) in back.iter().zip(&theta) {
+                assert!((x - y).abs() < 1e-9 * x.abs().max(1.0), "{body}: round trip {x} vs {y}");
+            }
         }
-        let log_tau = z[first];
-        let mut a = z.clone();
-        for v in a[first + 1..].iter_mut() {
-            *v = *v * log_tau.exp() + z[0];
+    }
+}
+
+/// Normal–normal hierarchical model with known data variances and a
+/// learned population spread: Gelman et al., Bayesian Data Analysis, 3rd
+/// ed., §5.4 (recalled). With `μ` flat, `p(τ | y) ∝ p(τ)·V_μ^½·Π normal(ȳⱼ |
+/// μ̂, σⱼ² + τ²)`, and given `τ` the posterior means of `μ` and `θⱼ` are
+/// `μ̂(τ)` and `θ̂ⱼ(τ)` (formulas in the next test's notes). One-dimensional
+/// quadrature over `τ` gives the posterior means of `τ`, `μ` and each `θⱼ`;
+/// NUTS on Waypath's model with three levels (the centred layout, whose
+/// intercept is sampled as its score about the level means) must agree
+/// within Monte Carlo error. The `normal(0, 1000)` intercept prior is flat
+/// against the data; the spread is pinned by a lognormal prior of log-sd
+/// 0.0005.
+#[test]
+fn three_level_posterior_with_learned_spread_matches_quadrature() {
+    let (sigma, sizes) = (2.0_f64, [4usize, 6, 10]);
+    let centres = [9.0, 10.5, 11.5];
+    let mut rng = StdRng::seed_from_u64(71);
+    let unit = Normal::new(0.0, 1.0).expect("valid normal");
+    let (mut y, mut codes) = (Vec::new(), Vec::new());
+    for (j, (&n, c)) in sizes.iter().zip(centres).enumerate() {
+        for _ in 0..n {
+            y.push(c + sigma * unit.sample(&mut rng));
+            codes.push(j as u32);
         }
-        let levels = (a.len() - first - 1) as f64;
-        let (value_z, _) = value_and_gradient(&noncentred, &z);
-        let (value_a, _) = value_and_gradient(&centred, &a);
-        assert!(
-            (value_z - (value_a + levels * log_tau)).abs() < 1e-9 * value_z.abs(),
-            "non-centred {value_z} vs centred {value_a} + J log τ {}",
-            levels * log_tau
-        );
-        let (pz, pa) = (noncentred.constrain(&z), centred.constrain(&a));
-        for (x, y) in pz.iter().zip(&pa) {
-            assert!((x - y).abs() < 1e-12 * x.abs().max(1.0), "constrained {x} vs {y}");
+    }
+    let table = Table {
+        name: "t".into(),
+        columns: vec![column("y", ColumnData::Real(y.clone())), column("g", category(codes.clone(), &["G1", "G2", "G3"]))],
+    };
+    let means: Vec<f64> = (0..sizes.len())
+        .map(|j| {
+            let rows: Vec<f64> = y.iter().zip(&codes).filter(|(_, &c)| c as usize == j).map(|(v, _)| *v).collect();
+            rows.iter().sum::<f64>() / rows.len() as f64
+        })
+        .collect();
+    let noise: Vec<f64> = sizes.iter().map(|&n| sigma * sigma / n as f64).collect();
+    // Quadrature over τ on (0, 12] (the half-normal(1.5) prior leaves < 1e-12 beyond), Simpson's rule.
+    let prior_sd = 1.5;
+    let given_tau = |tau: f64| {
+        let weights: Vec<f64> = noise.iter().map(|s| 1.0 / (s + tau * tau)).collect();
+        let v_mu = 1.0 / weights.iter().sum::<f64>();
+        let mu_hat = v_mu * means.iter().zip(&weights).map(|(m, w)| m * w).sum::<f64>();
+        let log_like: f64 = means
+            .iter()
+            .zip(&noise)
+            .map(|(m, s)| -0.5 * (m - mu_hat).powi(2) / (s + tau * tau) - 0.5 * (s + tau * tau).ln())
+            .sum();
+        let density = (-0.5 * (tau / prior_sd).powi(2) + 0.5 * v_mu.ln() + log_like).exp();
+        let thetas: Vec<f64> = means
+            .iter()
+            .zip(&noise)
+            .map(|(m, s)| (m / s + mu_hat / (tau * tau)) / (1.0 / s + 1.0 / (tau * tau)))
+            .collect();
+        (density, mu_hat, thetas)
+    };
+    let steps = 4000;
+    let h = 12.0 / steps as f64;
+    let (mut mass, mut tau_sum, mut tau2_sum, mut mu_sum, mut theta_sums) = (0.0, 0.0, 0.0, 0.0, [0.0; 3]);
+    for k in 1..=steps {
+        let tau = k as f64 * h;
+        let w = if k == steps { 1.0 } else if k % 2 == 1 { 4.0 } else { 2.0 };
+        let (d, mu, thetas) = given_tau(tau);
+        mass += w * d;
+        tau_sum += w * d * tau;
+        tau2_sum += w * d * tau * tau;
+        mu_sum += w * d * mu;
+        for (t, v) in theta_sums.iter_mut().zip(&thetas) {
+            *t += w * d * v;
         }
-        let back = centred.unconstrain(&pa).expect("valid parameters");
-        for (x, y) in back.iter().zip(&a) {
-            assert!((x - y).abs() < 1e-12 * x.abs().max(1.0), "round trip {x} vs {y}");
-        }
+    }
+    let (tau_mean, mu_mean) = (tau_sum / mass, mu_sum / mass);
+    let tau_sd = (tau2_sum / mass - tau_mean * tau_mean).sqrt();
+    let body = format!(
+        "y from pooled g using t\nprior intercepts: normal(0, 1000)\nprior spread: lognormal({}, 0.0005)\n\
+         prior pooled spreads: half_normal({prior_sd})\nparameterise g centred",
+        sigma.ln()
+    );
+    let model = build(&body, &table);
+    assert!(model.unconstrained_names()[0].contains("score about"), "{:?}", model.unconstrained_names());
+    let settings = waypath::infer::nuts::NutsSettings { seed: 5, acceptance: 0.95, ..Default::default() };
+    let fit = fit_model(&model, &Method::Nuts(settings), &AtomicBool::new(false), &|_| {}).expect("NUTS fit");
+    let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    let sd = |v: &[f64]| (v.iter().map(|x| (x - mean(v)).powi(2)).sum::<f64>() / (v.len() - 1) as f64).sqrt();
+    // Four Monte Carlo errors of a mean over 1,000 effective draws (the
+    // kept draws number 8,000).
+    let close = |draws: &[f64], want: f64, what: &str| {
+        let tolerance = 4.0 * sd(draws) / 1000f64.sqrt();
+        assert!((mean(draws) - want).abs() < tolerance, "{what}: NUTS {} vs quadrature {want} (± {tolerance})", mean(draws));
+    };
+    let tau = fit.draws.get("g spread").expect("spread draws");
+    close(tau, tau_mean, "spread");
+    assert!((sd(tau) / tau_sd - 1.0).abs() < 0.1, "spread sd: NUTS {} vs quadrature {tau_sd}", sd(tau));
+    let intercept = fit.draws.get("intercept").expect("intercept draws");
+    close(intercept, mu_mean, "intercept");
+    for (j, sum) in theta_sums.iter().enumerate() {
+        let departure = fit.draws.get(&format!("g departure[G{}]", j + 1)).expect("departure draws");
+        let theta: Vec<f64> = intercept.iter().zip(departure).map(|(a, b)| a + b).collect();
+        close(&theta, sum / mass, &format!("level mean G{}", j + 1));
     }
 }
 

@@ -463,6 +463,9 @@ mod tests {
             ("fit m with laplace ", &["draws", "seed"]),
             // README: scales `on means|outcomes|scores|log-times|medians|events by T|quantile Q`.
             ("contrast m: x 1 vs 0 on ", &["events", "log-times", "means", "medians", "outcomes", "quantile", "scores"]),
+            // `on events by T`: only `by` goes on; `on quantile Q` takes a share (no session names here).
+            ("contrast m: x 1 vs 0 on events ", &["by"]),
+            ("contrast m: x 1 vs 0 on quantile ", &[]),
             ("contrast m: x along z ", &["from"]),
             ("contrast m: x over ", &["rows"]),
             ("contrast m: x 1 ", &["along", "at", "by", "intervals", "on", "over", "seed", "vs"]),

@@ -97,8 +97,14 @@ fn build_model(spec: &ModelSpec, table: &Table) -> Result<Model, ModelError> {
     if let Some(group) = pooling.groups.iter().zip(&groups).find(|(p, _)| p.around_intercept).map(|(_, g)| g) {
         notes.push(format!(
             "pooled {} is sampled around the intercept: its coordinates are the level means (intercept plus \
-             departure), which the data pin down apart from the intercept; its draws are still the departures",
-            group.column
+             departure), which the data pin down apart from the intercept; its draws are still the departures{}",
+            group.column,
+            if group.slopes.is_empty() {
+                "; the intercept itself is sampled as its standard score about those means, which does not narrow \
+                 as the spread shrinks"
+            } else {
+                ""
+            }
         ));
     }
     let term_labels: Vec<String> = recipes.iter().flat_map(TermRecipe::labels).collect();

@@ -191,12 +191,18 @@ impl Model {
         for (group, pooled) in self.groups.iter().zip(&self.pooling.groups) {
             names.extend(group.unconstrained_labels(pooled.around_intercept));
         }
+        if let Some((j, _, _)) = self.pooling.scored_intercept(self.first_group_index()) {
+            if let Some(group) = self.groups.iter().zip(&self.pooling.groups).find(|(_, p)| p.around_intercept).map(|(g, _)| g) {
+                names[j] = format!("{}: score about the {} level means", names[j], group.column);
+            }
+        }
         names
     }
 
     /// Constrained parameters from an unconstrained point.
     pub fn constrain(&self, theta: &[f64]) -> Vec<f64> {
         let first_group = self.first_group_index();
+        let theta = &self.pooling.with_intercept(theta, first_group);
         let mut params = theta[..first_group.min(theta.len())].to_vec();
         if self.family_parameter().is_some() {
             if let Some(last) = params.last_mut() {
@@ -282,6 +288,13 @@ impl Model {
     /// The unconstrained point of constrained parameters (checks the length
     /// and that the spread, or the family's other parameter, is positive).
     pub fn unconstrain(&self, params: &[f64]) -> Result<Vec<f64>, ModelError> {
+        let point = self.unconstrain_with_intercept(params)?;
+        Ok(self.pooling.with_intercept_score(&point, self.first_group_index()))
+    }
+
+    /// [`Model::unconstrain`] with the intercept itself where the sampler
+    /// has its score about the level means ([`Pooling::with_intercept`]).
+    fn unconstrain_with_intercept(&self, params: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.check_length(params)?;
         let mut theta = params.to_vec();
         if let Some(name) = self.family_parameter() {
@@ -333,7 +346,7 @@ impl Model {
     /// coefficients at 0, the spread at the outcome's sd — each moved to
     /// its prior's centre if outside the prior's support.
     pub fn initial_point(&self) -> Vec<f64> {
-        self.start.clone()
+        self.pooling.with_intercept_score(&self.start, self.first_group_index())
     }
 
     /// A starting point moved away from [`Model::initial_point`] by `z`
@@ -371,6 +384,12 @@ impl Model {
         // undispersed intercept), not wherever a wide intercept prior sent it.
         let anchor = self.pooling.anchor(&self.start);
         point.extend(self.pooling.start(z.get(first_group..).unwrap_or(&[]), &anchor));
+        // An intercept sampled as its score about the level means starts at
+        // that score moved by z (it is standard normal a priori).
+        let mut point = self.pooling.with_intercept_score(&point, first_group);
+        if let Some((j, _, _)) = self.pooling.scored_intercept(first_group) {
+            point[j] = z.get(j).copied().unwrap_or(0.0);
+        }
         point
     }
 
@@ -422,7 +441,7 @@ impl Model {
 
     /// The full log-likelihood at constrained parameters `params`.
     pub fn log_likelihood(&self, params: &[f64]) -> Result<f64, ModelError> {
-        let mut theta = self.unconstrain(params)?;
+        let mut theta = self.unconstrain_with_intercept(params)?;
         let p = self.labels.len();
         // The constrained coefficients are what the design multiplies (a steps term's effects).
         theta[..p].copy_from_slice(&params[..p]);
@@ -586,10 +605,33 @@ impl LogDensity for Model {
         self.first_group_index() + self.pooling.dim()
     }
 
-    /// With steps terms: the density at the steps' effects, its gradient
-    /// in them pulled back to each term's coordinates with the term's
-    /// priors and Jacobian ([`StepTerm::pull_back`]).
+    /// With the intercept sampled as its score about the level means: the
+    /// density at the intercept, its gradient pulled back to the score with
+    /// the change's log Jacobian ([`Pooling::pull_back_intercept`]).
     fn log_density_and_gradient(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
+        let first_group = self.first_group_index();
+        if self.pooling.scored_intercept(first_group).is_none() {
+            return self.log_density_at_intercept(theta, grad);
+        }
+        let total = self.log_density_at_intercept(&self.pooling.with_intercept(theta, first_group), grad);
+        if total == f64::NEG_INFINITY {
+            return total;
+        }
+        let total = total + self.pooling.pull_back_intercept(theta, first_group, grad);
+        if total.is_finite() {
+            total
+        } else {
+            f64::NEG_INFINITY
+        }
+    }
+}
+
+impl Model {
+    /// The log density at a point holding the intercept itself. With steps
+    /// terms: the density at the steps' effects, its gradient in them
+    /// pulled back to each term's coordinates with the term's priors and
+    /// Jacobian ([`StepTerm::pull_back`]).
+    fn log_density_at_intercept(&self, theta: &[f64], grad: &mut [f64]) -> f64 {
         if self.steps.is_empty() {
             return self.linear_log_density_and_gradient(theta, grad);
         }

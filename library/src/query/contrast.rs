@@ -99,8 +99,9 @@ pub const MEDIANS: &str = "medians";
 pub const EVENTS_BY: &str = "events";
 /// `on quantile q`: the time by which a share q of the events has come.
 pub const QUANTILE: &str = "quantile";
-/// The words after `on` in a contrast.
-pub const SCALES: &[&str] = &["outcomes", "means", SCORES, LOG_TIMES, MEDIANS, EVENTS_BY, QUANTILE];
+/// The words after `on` in a contrast that need nothing more
+/// ([`EVENTS_BY`] and [`QUANTILE`] take a value after them).
+pub const PLAIN_SCALES: &[&str] = &["outcomes", "means", SCORES, LOG_TIMES, MEDIANS];
 
 /// `along X from LO to HI [by STEP]`.
 #[derive(Debug, Clone, PartialEq)]

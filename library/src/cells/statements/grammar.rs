@@ -312,8 +312,13 @@ pub const SAVE: Form = Form {
     method: false,
     usage: "save figure to \"FILE.svg\"",
 };
+/// `on SCALE`: a scale alone, or one that takes a value (`events by T`,
+/// `quantile Q`); three options opening with the same word, told apart by
+/// the word after it.
 const CONTRAST_OPTIONS: &[&[Slot]] = &[
-    &[Word("on"), Choice(crate::query::contrast::SCALES)],
+    &[Word("on"), Choice(crate::query::contrast::PLAIN_SCALES)],
+    &[Word("on"), Word(crate::query::contrast::EVENTS_BY), Word("by"), Value],
+    &[Word("on"), Word(crate::query::contrast::QUANTILE), Value],
     SEED,
     &[Word("at"), Name(Col), Name(Lv)],
     &[Word("along"), Name(Col), Word("from"), Value, Word("to"), Value],
@@ -516,6 +521,9 @@ pub fn next_words(typed: &str) -> Next {
 
 /// What may come once the fixed places of `form` are filled (`filled`)
 /// and `tail` words follow; `after_comma` when the text typed ends in one.
+/// Options may open with the same word (`on means`, `on events by T`): the
+/// words of the option being read are kept, and every option that takes
+/// them is followed.
 fn after_fixed(form: &Form, filled: &[(Slot, &str)], tail: &[&str], after_comma: bool, next: &mut Next) {
     if form.method {
         if let Some(at) = tail.iter().position(|w| *w == "with") {
@@ -525,53 +533,71 @@ fn after_fixed(form: &Form, filled: &[(Slot, &str)], tail: &[&str], after_comma:
     if form.options.is_empty() && !form.method {
         return;
     }
-    // the option being read and how many of its words are typed (a list
-    // such as `given A, B` or `at z 2, w 3` repeats its values past the end)
-    let mut inside: Option<(&[Slot], usize)> = None;
+    // the words of the option being read (a list such as `given A, B` or
+    // `at z 2, w 3` repeats its values past the end)
+    let mut inside: Vec<&str> = Vec::new();
     let mut used: Vec<&str> = Vec::new();
     let mut typed: Vec<(Slot, &str)> = filled.to_vec();
     for w in tail {
-        inside = match inside {
-            Some((option, k)) if k < option.len() && option[k].accepts(w) => Some((option, k + 1)),
-            Some((option, k)) if k >= option.len() && is_list(option) && !is_option_word(form, w) => Some((option, k + 1)),
-            _ => form.options.iter().find(|o| o[0].accepts(w)).map(|o| (*o, 1)),
+        let longer: Vec<&str> = inside.iter().copied().chain([*w]).collect();
+        inside = if !inside.is_empty() && options_taking(form, &longer).next().is_some() {
+            longer
+        } else if form.options.iter().any(|o| o[0].accepts(w)) {
+            vec![*w]
+        } else {
+            Vec::new()
         };
-        if let Some((option, k)) = inside {
-            typed.push((place(option, k - 1), *w));
-            if k == 1 {
+        if let Some(option) = options_taking(form, &inside).next() {
+            typed.push((place(option, inside.len() - 1), *w));
+            if inside.len() == 1 {
                 used.extend(option[0].words());
             }
         }
     }
-    match inside {
-        Some((option, k)) if k < option.len() => next.slot(&option[k], &typed),
-        _ => {
-            let open: Vec<&'static str> = form.option_words().into_iter().filter(|w| !used.contains(w)).collect();
-            next.add(&open);
-            if form.method {
-                next.add(&["with"]);
-            }
-            // a list of values goes on after an option ending in a value
-            // (`given A, B`) or after fixed places ending in a word (`watch Y, Z`)
-            let (list, boundary) = match inside {
-                Some((option, k)) if is_list(option) => (Some(place(option, k)), (k - 1) % (option.len() - 1) == 0),
-                None if matches!(form.slots.last(), Some(Word(_))) => (Some(Value), true),
-                _ => (None, false),
-            };
-            if let Some(slot) = list {
-                let before: Vec<(Slot, &str)> = match slot {
-                    // a level's column is the word just typed, not the list's last
-                    Name(Lv) => typed.clone(),
-                    _ => filled.to_vec(),
-                };
-                next.slot(&slot, &before);
-                let names_a_list = matches!(slot, Name(_)) || inside.is_none();
-                if names_a_list && boundary && !after_comma && !tail.is_empty() {
-                    next.add(&[","]);
-                }
-            }
+    let k = inside.len();
+    let candidates: Vec<&[Slot]> = if inside.is_empty() { Vec::new() } else { options_taking(form, &inside).collect() };
+    for option in candidates.iter().filter(|o| k < o.len()) {
+        next.slot(&option[k], &typed);
+    }
+    let complete = candidates.iter().find(|o| k >= o.len());
+    if !candidates.is_empty() && complete.is_none() {
+        return;
+    }
+    let open: Vec<&'static str> = form.option_words().into_iter().filter(|w| !used.contains(w)).collect();
+    next.add(&open);
+    if form.method {
+        next.add(&["with"]);
+    }
+    // a list of values goes on after an option ending in a value
+    // (`given A, B`) or after fixed places ending in a word (`watch Y, Z`)
+    let (list, boundary) = match complete {
+        Some(option) if is_list(option) => (Some(place(option, k)), (k - 1) % (option.len() - 1) == 0),
+        None if matches!(form.slots.last(), Some(Word(_))) => (Some(Value), true),
+        _ => (None, false),
+    };
+    if let Some(slot) = list {
+        let before: Vec<(Slot, &str)> = match slot {
+            // a level's column is the word just typed, not the list's last
+            Name(Lv) => typed.clone(),
+            _ => filled.to_vec(),
+        };
+        next.slot(&slot, &before);
+        let names_a_list = matches!(slot, Name(_)) || complete.is_none();
+        if names_a_list && boundary && !after_comma && !tail.is_empty() {
+            next.add(&[","]);
         }
     }
+}
+
+/// The options of `form` whose places take `words` (the option's first
+/// word first; past a list's end, values that are no option word).
+fn options_taking<'f>(form: &'f Form, words: &'f [&str]) -> impl Iterator<Item = &'f [Slot]> + 'f {
+    form.options.iter().copied().filter(move |option| {
+        words.iter().enumerate().all(|(i, w)| match i < option.len() {
+            true => option[i].accepts(w),
+            false => is_list(option) && !is_option_word(form, w),
+        })
+    })
 }
 
 /// Whether an option takes a list: its places after the first word are values.
@@ -628,6 +654,28 @@ mod tests {
         let after = next_words("fit m with nuts mass low-rank").words;
         assert!(after.contains(&"seed") && !after.contains(&"mass"), "{after:?}");
         assert!(!next_words("fit m with nuts seed").words.contains(&"diagonal"));
+    }
+
+    /// README, `contrast`: `on events by T` goes on with `by` and a time,
+    /// `on quantile Q` with a share; the other options come only after the
+    /// value, and `on` is not offered twice.
+    #[test]
+    fn a_scale_that_takes_a_value_asks_for_it_first() {
+        let head = "contrast m: x 1 vs 0 on";
+        assert_eq!(next_words(&format!("{head} events")).words, ["by"]);
+        for typed in [format!("{head} events by"), format!("{head} quantile")] {
+            let next = next_words(&typed);
+            assert!(next.words.is_empty() && next.values, "after {typed:?}: {next:?}");
+        }
+        let scales = next_words(head).words;
+        for scale in ["outcomes", "means", "scores", "log-times", "medians", "events", "quantile"] {
+            assert!(scales.contains(&scale), "{scale} missing after `on`: {scales:?}");
+        }
+        for typed in [format!("{head} events by 30"), format!("{head} quantile 0.9"), format!("{head} medians")] {
+            let words = next_words(&typed).words;
+            assert!(words.contains(&"seed") && words.contains(&"at") && !words.contains(&"on"), "after {typed:?}: {words:?}");
+        }
+        assert_eq!(next_words(&format!("{head} medians seed")).words, Vec::<&str>::new());
     }
 
     #[test]

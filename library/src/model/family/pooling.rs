@@ -23,6 +23,24 @@
 //! (intercept, a)` has unit Jacobian. The constrained draws are still the
 //! departures `aⱼ`.
 //!
+//! **The intercept as a score about the level means.** With few levels
+//! the intercept, given the level means, is still loose: its spread there
+//! is `τ/√J`, which with a loosely known `τ` makes a funnel (NUTS diverges
+//! in its neck). When the group sampled around the intercept has no
+//! varying slopes, the sampler's coordinate in the intercept's place is
+//! therefore its standard score about the level means,
+//! `s = (intercept − b̄)·√J/τ`, so that `intercept = b̄ + τ·s/√J`. Since
+//! `Σ(bⱼ − intercept)² = Σ(bⱼ − b̄)² + J·(b̄ − intercept)²` (the split of
+//! a sum of squares about the mean; any regression text, recalled), the
+//! levels' prior times the Jacobian `τ/√J` of the change is
+//! `τ^−(J−1)·exp(−Σ(bⱼ − b̄)²/2τ²)·exp(−s²/2)` up to constants: `s` is
+//! standard normal and apart from `τ` and the level means, whatever `τ`
+//! is (only the intercept's own, usually wide, prior ties them). The
+//! model maps the point to one with the intercept before the density and
+//! pulls the gradient back ([`Pooling::with_intercept`],
+//! [`Pooling::pull_back_intercept`]); every other part of this module sees
+//! the intercept itself.
+//!
 //! **Varying slopes** (`pooled block with girth`, or several:
 //! `pooled block with (girth, age)`) give each level `K = 1 + k`
 //! departures — the intercept's `a₀ⱼ` and one per slope of a numeric
@@ -174,6 +192,71 @@ impl Pooling {
     /// slopes).
     pub fn slope_anchor_positions(&self) -> &[usize] {
         self.groups.iter().find(|g| g.around_intercept).map_or(&[], |g| g.slope_coefficients.as_slice())
+    }
+
+    /// Where the intercept's standard score stands in for the intercept
+    /// (module docs), when it does: the intercept's position in the
+    /// model's point, the group's `log(spread)` position (the level means
+    /// follow it), both counted from the start of a point whose groups'
+    /// block starts at `first_group`, and the number of levels.
+    pub fn scored_intercept(&self, first_group: usize) -> Option<(usize, usize, usize)> {
+        let j = self.intercept?;
+        let mut at = first_group;
+        for g in &self.groups {
+            if g.around_intercept {
+                return g.slopes.is_empty().then_some((j, at, g.levels));
+            }
+            at += g.dim();
+        }
+        None
+    }
+
+    /// The intercept `b̄ + τ·s/√J` from the score at `theta[j]` (positions
+    /// of [`Pooling::scored_intercept`]).
+    fn intercept_of(theta: &[f64], (j, u, levels): (usize, usize, usize)) -> f64 {
+        let means = &theta[u + 1..u + 1 + levels];
+        let mean = means.iter().sum::<f64>() / levels as f64;
+        mean + theta[u].exp() * theta[j] / (levels as f64).sqrt()
+    }
+
+    /// The sampler's point `theta` with the intercept's score replaced by
+    /// the intercept itself (unchanged when no score stands in for it):
+    /// the point every other part of the density reads.
+    pub fn with_intercept(&self, theta: &[f64], first_group: usize) -> Vec<f64> {
+        let mut point = theta.to_vec();
+        if let Some(at) = self.scored_intercept(first_group) {
+            point[at.0] = Self::intercept_of(theta, at);
+        }
+        point
+    }
+
+    /// The inverse of [`Pooling::with_intercept`]: a point holding the
+    /// intercept becomes the sampler's, holding its score
+    /// `(intercept − b̄)·√J/τ`.
+    pub fn with_intercept_score(&self, point: &[f64], first_group: usize) -> Vec<f64> {
+        let mut theta = point.to_vec();
+        if let Some((j, u, levels)) = self.scored_intercept(first_group) {
+            let means = &point[u + 1..u + 1 + levels];
+            let mean = means.iter().sum::<f64>() / levels as f64;
+            theta[j] = (point[j] - mean) * (levels as f64).sqrt() / point[u].exp();
+        }
+        theta
+    }
+
+    /// The chain rule through [`Pooling::with_intercept`]: `grad` holds the
+    /// gradient in the point with the intercept and becomes the gradient in
+    /// the sampler's `theta`; returns the log Jacobian `log τ − ½·log J`
+    /// of the change (its derivative in `log τ`, 1, added). With `G` the
+    /// derivative in the intercept: `∂/∂s = G·τ/√J`, each level mean gains
+    /// `G/J`, `log τ` gains `G·τ·s/√J`.
+    pub fn pull_back_intercept(&self, theta: &[f64], first_group: usize, grad: &mut [f64]) -> f64 {
+        let Some((j, u, levels)) = self.scored_intercept(first_group) else { return 0.0 };
+        let (tau, root) = (theta[u].exp(), (levels as f64).sqrt());
+        let d = grad[j];
+        grad[j] = d * tau / root;
+        grad[u] += d * tau * theta[j] / root + 1.0;
+        grad[u + 1..u + 1 + levels].iter_mut().for_each(|g| *g += d / levels as f64);
+        theta[u] - root.ln()
     }
 
     /// Whether the model has no pooled group.
