@@ -105,6 +105,7 @@ fn levels(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
             values: (0..n["size"].as_u64().unwrap_or(0)).map(|k| k as f64).collect(),
             labels: None,
             count: false,
+            weights: None,
         })
         .collect();
     let numbers = |v: &Value| v.as_array().map(|a| a.iter().filter_map(Value::as_f64).collect::<Vec<f64>>());
