@@ -87,7 +87,7 @@ const PROPOSAL_WIDENING: f64 = 1.25;
 /// With a real node, the formula is evaluated on at most this many
 /// posterior draws, evenly spaced: each draw's sums run over the real
 /// node's values, and the interval needs no more.
-const REAL_POSTERIOR_DRAWS: usize = 1000;
+const REAL_POSTERIOR_DRAWS: usize = 400;
 
 /// Above this Monte Carlo error, as a share of the posterior sd, the
 /// answer warns that the draw sets disagree.
