@@ -444,12 +444,12 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
     let mut sizes = Vec::with_capacity(names.len() + 1);
     for v in &names {
         let column = require_column(table, v, place)?;
-        if Support::of(column).is_none() && proposal(column).is_none() {
+        if matches!(column.data, ColumnData::Real(_)) && proposal(column).is_none() {
             return Err(refuse(format!("the real node {v} has no spread to draw its values from")));
         }
         sizes.push((v.as_str(), level_count(column)));
     }
-    if Support::of(outcome).is_some() {
+    if !matches!(outcome.data, ColumnData::Real(_)) {
         sizes.push((y, level_count(outcome)));
     }
     let cells = sizes.iter().fold(1usize, |acc, (_, k)| acc.saturating_mul(*k));
