@@ -37,8 +37,21 @@
 //! (sums and products are linear in it); a sum over a copy of the outcome
 //! under the same condition integrates it out (`∫ Pr[y, A | B] dy =
 //! Pr[A | B]`). Both are exact, so this route adds no Monte Carlo error
-//! to the posterior's. Real nodes elsewhere in the formula are refused
-//! with the reason.
+//! to the posterior's.
+//!
+//! A real node elsewhere (a real mediator, a real exposure) cannot be
+//! enumerated, so it joins the table as a node of `S` drawn values
+//! ([`realise`]): one per stratum of a normal `q` about its column, each
+//! carrying the weight `1/(S·q(value))` beside its fitted conditional
+//! density (a normal regression's, or a discrete child's GLM at that
+//! value). A factor given the node's value is a ratio in which the weight
+//! cancels, so it stays exact; a sum over the node becomes an importance
+//! sum of its density (self-normalised where the formula divides by the
+//! table's total). The values the answer sets are added with a negligible
+//! weight, so they can be given without moving any sum. This is the one
+//! place the route adds Monte Carlo error, so it runs on two independent
+//! draw sets, averages them, and reports half their root mean square
+//! difference against the posterior sd.
 
 use std::cell::RefCell;
 use std::collections::{BTreeMap, HashMap};
