@@ -11,7 +11,8 @@
 //! `{"kind": "levels", "set": [x], "watch": [y], "nodes": [{"name", "size"}], "joint": [..],
 //! "moment": [..] | null, "x_level", "held": {name: level}}` (the complete algorithm's formula
 //! evaluated by `query::formula_levels` on the joint table given over `nodes`, first varying
-//! slowest; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "shares", "also_set"}`
+//! slowest; a real node among `nodes` is given as its drawn values' levels, their weights
+//! already in `joint`; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "shares", "also_set"}`
 //! (`shares`: each level's probability of a discrete `y`, else null), or
 //! `{"verdict": "not_identified"}`). `listing` answers with the bounded path listing
 //! (`paths`, `complete`, `separated`, `directed_paths`).
