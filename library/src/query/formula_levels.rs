@@ -1023,6 +1023,26 @@ mod tests {
     }
 
     #[test]
+    fn a_real_node_s_weighted_values_integrate_a_density_to_one() {
+        // ∫ N(v; m, s) dv = 1 for a conditional narrower than the column and
+        // off its centre: the weighted sum over the drawn values is an
+        // importance estimate of that integral.
+        let values: Vec<f64> = (0..500).map(|i| 10.0 + 2.0 * ((i as f64 * 0.37).sin())).collect();
+        let table = Table { name: "t".into(), columns: vec![Column::new("r", ColumnData::Real(values))] };
+        let set = BTreeMap::from([("r".to_string(), vec![11.5])]);
+        let nodes = realise(&[Support::real("r")], &table, &set, 7, "test").unwrap();
+        let (v, w) = (&nodes[0].values, nodes[0].weights.as_ref().unwrap());
+        assert_eq!(v.len(), REAL_DRAWS + 1);
+        assert_eq!(v[REAL_DRAWS], 11.5, "the set value is added last");
+        let normal = |x: f64, m: f64, s: f64| (-0.5 * ((x - m) / s).powi(2)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt());
+        let total: f64 = v[..REAL_DRAWS].iter().zip(w).map(|(&x, &wt)| wt * normal(x, 11.0, 0.8)).sum();
+        assert!((total - 1.0).abs() < 1e-3, "{total}");
+        assert!(w[REAL_DRAWS] * normal(11.5, 11.0, 0.8) < 1e-8, "the set value barely counts in a sum");
+        let constant = Column::new("c", ColumnData::Real(vec![3.0; 10]));
+        assert!(proposal(&constant).is_none(), "a column without spread has no proposal");
+    }
+
+    #[test]
     fn an_interrupt_stops_a_long_sum() {
         // Twelve binary nodes summed over: 4096 terms reach the check.
         let nodes: Vec<Support> = (0..13).map(|i| binary(&format!("v{i}"))).collect();
