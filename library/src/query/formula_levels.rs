@@ -37,8 +37,21 @@
 //! (sums and products are linear in it); a sum over a copy of the outcome
 //! under the same condition integrates it out (`∫ Pr[y, A | B] dy =
 //! Pr[A | B]`). Both are exact, so this route adds no Monte Carlo error
-//! to the posterior's. Real nodes elsewhere in the formula are refused
-//! with the reason.
+//! to the posterior's.
+//!
+//! A real node elsewhere (a real mediator, a real exposure) cannot be
+//! enumerated, so it joins the table as a node of `S` drawn values
+//! ([`realise`]): one per stratum of a normal `q` about its column, each
+//! carrying the weight `1/(S·q(value))` beside its fitted conditional
+//! density (a normal regression's, or a discrete child's GLM at that
+//! value). A factor given the node's value is a ratio in which the weight
+//! cancels, so it stays exact; a sum over the node becomes an importance
+//! sum of its density (self-normalised where the formula divides by the
+//! table's total). The values the answer sets are added with a negligible
+//! weight, so they can be given without moving any sum. This is the one
+//! place the route adds Monte Carlo error, so it runs on two independent
+//! draw sets, averages them, and reports half their root mean square
+//! difference against the posterior sd.
 
 use std::cell::RefCell;
 use std::collections::{BTreeMap, HashMap};
@@ -54,7 +67,7 @@ use crate::table::{Column, ColumnData, Table};
 use super::contrast::{level_scale_words, On};
 use super::error::QueryError;
 use super::formula_estimate::{fit_conditional, formula_contrast, FittedConditional, FormulaFit, FormulaSimulation};
-use super::support::{parameter_rows, require_column, Setting};
+use super::support::{column_mean, parameter_rows, require_column, stream_seed, Setting};
 
 /// How far the formula's mass may stray from 1 (after the left-out count
 /// tail is allowed for) before a warning.
@@ -68,7 +81,33 @@ const TAIL_WARNING: f64 = 1e-4;
 /// interrupt.
 const CANCEL_EVERY: u64 = 4096;
 
-/// The levels one discrete node takes in the chain.
+/// How many values a real node takes in one draw set.
+pub const REAL_DRAWS: usize = 200;
+
+/// Room kept in a real node's values for the values the answer sets
+/// (the exposure's settings, a held node's value).
+const SET_SLOTS: usize = 8;
+
+/// The weight of a set value against the drawn ones: small enough that a
+/// sum over the node does not feel it, large enough that no product
+/// underflows.
+const SET_WEIGHT: f64 = 1e-9;
+
+/// The proposal's spread over the column's standard deviation: wider than
+/// the column, so that the tails of each conditional are drawn too.
+const PROPOSAL_WIDENING: f64 = 1.25;
+
+/// With a real node, the formula is evaluated on at most this many
+/// posterior draws, evenly spaced: each draw's sums run over the real
+/// node's values, and the interval needs no more.
+const REAL_POSTERIOR_DRAWS: usize = 400;
+
+/// Above this Monte Carlo error, as a share of the posterior sd, the
+/// answer warns that the draw sets disagree.
+const DRAW_ERROR_WARNING: f64 = 0.1;
+
+/// The levels one node takes in the chain: a discrete node's levels, or
+/// a real node's drawn values.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Support {
     pub name: String,
@@ -79,23 +118,36 @@ pub struct Support {
     pub labels: Option<Vec<String>>,
     /// Whether the node is a count (its top level leaves a tail out).
     pub count: bool,
+    /// A real node's weight per value, `1/(S·q(value))` for a value drawn
+    /// from the proposal `q`, [`SET_WEIGHT`] times that for a value set;
+    /// `None` for a discrete node. Empty until [`realise`] draws them.
+    pub weights: Option<Vec<f64>>,
 }
 
 impl Support {
-    /// The support of `column`, or `None` for a real column.
+    /// The support of a discrete `column`, or `None` for a real column.
     fn of(column: &Column) -> Option<Support> {
         let name = column.name.clone();
+        let discrete = |values, labels, count| Some(Support { name: name.clone(), values, labels, count, weights: None });
         match &column.data {
             ColumnData::Real(_) => None,
-            ColumnData::Binary(_) => Some(Support { name, values: vec![0.0, 1.0], labels: None, count: false }),
-            ColumnData::Category { levels, .. } => {
-                Some(Support { name, values: (0..levels.len()).map(|c| c as f64).collect(), labels: Some(levels.clone()), count: false })
-            }
+            ColumnData::Binary(_) => discrete(vec![0.0, 1.0], None, false),
+            ColumnData::Category { levels, .. } => discrete((0..levels.len()).map(|c| c as f64).collect(), Some(levels.clone()), false),
             ColumnData::Count(v) => {
                 let top = count_top(v.iter().copied().max().unwrap_or(0));
-                Some(Support { name, values: (0..=top).map(|k| k as f64).collect(), labels: None, count: true })
+                discrete((0..=top).map(|k| k as f64).collect(), None, true)
             }
         }
+    }
+
+    /// A real node, its values not yet drawn.
+    fn real(name: &str) -> Support {
+        Support { name: name.to_string(), values: Vec::new(), labels: None, count: false, weights: Some(Vec::new()) }
+    }
+
+    /// Whether the node is real (its values drawn, weighted).
+    pub fn is_real(&self) -> bool {
+        self.weights.is_some()
     }
 
     /// The level that stands for `setting`, or why there is none.
@@ -127,12 +179,12 @@ impl Support {
 
 /// How many levels a discrete column takes in the chain (`None` for a
 /// real column), without building them.
-fn level_count(column: &Column) -> Option<usize> {
+fn level_count(column: &Column) -> usize {
     match &column.data {
-        ColumnData::Real(_) => None,
-        ColumnData::Binary(_) => Some(2),
-        ColumnData::Category { levels, .. } => Some(levels.len()),
-        ColumnData::Count(v) => Some(usize::try_from(count_top(v.iter().copied().max().unwrap_or(0))).unwrap_or(usize::MAX).saturating_add(1)),
+        ColumnData::Real(_) => REAL_DRAWS + SET_SLOTS,
+        ColumnData::Binary(_) => 2,
+        ColumnData::Category { levels, .. } => levels.len(),
+        ColumnData::Count(v) => usize::try_from(count_top(v.iter().copied().max().unwrap_or(0))).unwrap_or(usize::MAX).saturating_add(1),
     }
 }
 
@@ -388,9 +440,10 @@ fn shares_of(evaluator: &Evaluator, formula: &Formula, y: &str, outcome: &Suppor
         .collect()
 }
 
-/// The chain's nodes (the outcome last) and their supports, or why this
-/// route does not apply: a real node other than the outcome, or a real
-/// outcome the formula does not meet in one factor.
+/// The chain's nodes (the outcome last) and their supports (a real node's
+/// values not yet drawn, [`realise`]), or why this route does not apply: a
+/// real outcome the formula does not meet in one factor, a real node
+/// without spread, or a table too large.
 pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, also_set: &[String], place: &str) -> Result<Vec<Support>, QueryError> {
     let mut names: Vec<String> = formula.nodes().into_iter().filter(|v| v != y).collect();
     for v in std::iter::once(x).chain(also_set.iter().map(String::as_str)) {
@@ -403,10 +456,15 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
     let outcome = require_column(table, y, place)?;
     let mut sizes = Vec::with_capacity(names.len() + 1);
     for v in &names {
-        let size = level_count(require_column(table, v, place)?).ok_or_else(|| refuse(format!("{v} is a real column (only the outcome may be real there)")))?;
-        sizes.push((v.as_str(), size));
+        let column = require_column(table, v, place)?;
+        if matches!(column.data, ColumnData::Real(_)) && proposal(column).is_none() {
+            return Err(refuse(format!("the real node {v} has no spread to draw its values from")));
+        }
+        sizes.push((v.as_str(), level_count(column)));
     }
-    sizes.extend(level_count(outcome).map(|size| (y, size)));
+    if !matches!(outcome.data, ColumnData::Real(_)) {
+        sizes.push((y, level_count(outcome)));
+    }
     let cells = sizes.iter().fold(1usize, |acc, (_, k)| acc.saturating_mul(*k));
     let columns = sizes.iter().fold(4usize, |acc, (_, k)| acc.saturating_add(*k));
     let listed: Vec<String> = sizes.iter().map(|(v, k)| format!("{v} ({k} values)")).collect();
@@ -414,7 +472,7 @@ pub(crate) fn level_nodes(table: &Table, formula: &Formula, x: &str, y: &str, al
         .map_err(QueryError::request)?;
     let mut nodes = Vec::with_capacity(names.len() + 1);
     for v in &names {
-        nodes.push(Support::of(require_column(table, v, place)?).expect("a discrete column has a support"));
+        nodes.push(Support::of(require_column(table, v, place)?).unwrap_or_else(|| Support::real(v)));
     }
     match Support::of(outcome) {
         Some(support) => nodes.push(support),
@@ -493,8 +551,9 @@ impl Link {
     }
 }
 
-/// The chain's joint table under draw `d`, and the largest probability
-/// any count's conditional puts beyond its top value.
+/// The chain's joint table under draw `d` (a real node's density times
+/// its value's weight), and the largest probability any count's
+/// conditional puts beyond its top value.
 fn joint_at(chain: &[(&Model, Link)], nodes: &[Support], real_outcome: bool, d: usize) -> Result<(LevelJoint, f64), QueryError> {
     let mut p = vec![1.0];
     let mut tail = 0.0_f64;
@@ -506,9 +565,10 @@ fn joint_at(chain: &[(&Model, Link)], nodes: &[Support], real_outcome: bool, d: 
         let mut kept = vec![0.0; p.len()];
         for (level, value) in support.values.iter().enumerate() {
             let log = model.log_density_of_rows(&link.params[d], &link.rows, &vec![*value; p.len()])?;
+            let weight = support.weights.as_ref().map_or(1.0, |w| w[level]);
             for (row, l) in log.iter().enumerate() {
                 let share = l.exp();
-                next[row * k + level] = p[row] * share;
+                next[row * k + level] = p[row] * share * weight;
                 kept[row] += share;
             }
         }
@@ -528,11 +588,204 @@ fn joint_at(chain: &[(&Model, Link)], nodes: &[Support], real_outcome: bool, d: 
     Ok((LevelJoint { sizes, p, moment }, tail))
 }
 
+/// The per-draw answers of one evaluation of the formula over the chain:
+/// for each setting pair and compared quantity, the change and the two
+/// means per draw.
+struct Run {
+    changes: Vec<Vec<Vec<f64>>>,
+    means: Vec<Vec<Vec<(f64, f64)>>>,
+    worst_mass: f64,
+    worst_tail: f64,
+}
+
+/// What one evaluation needs besides its nodes.
+struct Setup<'a> {
+    table: &'a Table,
+    formula: &'a Formula,
+    x: &'a str,
+    y: &'a str,
+    also_set: &'a [String],
+    stated: &'a [(String, Setting)],
+    simulation: &'a FormulaSimulation<'a>,
+    conditionals: &'a [FittedConditional],
+    real_outcome: bool,
+    labels: Option<&'a Vec<String>>,
+    cancel: &'a AtomicBool,
+    place: &'a str,
+}
+
+/// Evaluate the formula under every posterior draw on the chain over
+/// `nodes` (real nodes' values drawn); `warnings` hears of unpaired draws.
+fn run_draws(setup: &Setup, nodes: &[Support], warnings: &mut Vec<String>) -> Result<Run, QueryError> {
+    let Setup { table, formula, x, y, cancel, place, .. } = *setup;
+    let links: Vec<Link> = setup.conditionals.iter().enumerate().map(|(i, c)| Link::of(c, &nodes[..i.min(nodes.len())])).collect::<Result<_, _>>()?;
+    let draws = links.iter().map(|l| l.params.len()).min().unwrap_or(0);
+    if links.iter().any(|l| l.params.len() != draws) {
+        let note = format!("the chain's fits kept different numbers of draws; the first {draws} of each are paired");
+        if !warnings.contains(&note) {
+            warnings.push(note);
+        }
+    }
+    if draws == 0 {
+        return Err(QueryError::request(format!("{place}: the fits kept no draws")));
+    }
+    let chain: Vec<(&Model, Link)> = setup.conditionals.iter().map(|c| &c.model).zip(links).collect();
+    let held = held_levels(table, nodes, setup.also_set, setup.stated, place)?;
+    let x_support = nodes.iter().find(|s| s.name == x).expect("the exposure is a node of the chain");
+    let settings: Vec<(usize, usize)> = setup
+        .simulation
+        .settings
+        .iter()
+        .map(|(to, from)| Ok((x_support.level_of(to)?, x_support.level_of(from)?)))
+        .collect::<Result<_, String>>()
+        .map_err(|e| QueryError::request(format!("{place}: {e}")))?;
+    let quantities = setup.labels.map_or(1, Vec::len);
+    let mut run = Run {
+        changes: vec![vec![Vec::with_capacity(draws); quantities]; settings.len()],
+        means: vec![vec![Vec::with_capacity(draws); quantities]; settings.len()],
+        worst_mass: 0.0,
+        worst_tail: 0.0,
+    };
+    let step = if nodes.iter().any(Support::is_real) { draws.div_ceil(REAL_POSTERIOR_DRAWS) } else { 1 };
+    for d in (0..draws).step_by(step) {
+        QueryError::stop_if(cancel, place)?;
+        let (joint, tail) = joint_at(&chain, nodes, setup.real_outcome, d)?;
+        run.worst_tail = run.worst_tail.max(tail);
+        let at = |level| -> Result<(Vec<f64>, f64), QueryError> {
+            let read = if setup.labels.is_some() {
+                shares_on_levels(formula, x, y, level, &held, nodes, &joint, cancel).map(|s| {
+                    let total = s.iter().sum();
+                    (s, total)
+                })
+            } else {
+                effect_on_levels(formula, x, y, level, &held, nodes, &joint, cancel).map(|(m, total)| (vec![m], total))
+            };
+            read.map_err(|e| QueryError::request(format!("{place}: {e}")))
+        };
+        for (k, (to, from)) in settings.iter().enumerate() {
+            let (under_to, mass_to) = at(*to)?;
+            let (under_from, mass_from) = at(*from)?;
+            run.worst_mass = run.worst_mass.max((mass_to - 1.0).abs()).max((mass_from - 1.0).abs());
+            for q in 0..quantities {
+                run.changes[k][q].push(under_to[q] - under_from[q]);
+                run.means[k][q].push((under_to[q], under_from[q]));
+            }
+        }
+    }
+    Ok(run)
+}
+
+/// Two runs on independent draw sets of the real nodes, averaged per
+/// posterior draw, and the Monte Carlo error of that average as a share
+/// of the posterior sd: half the root mean square of the runs' difference
+/// (each run's error is that difference over √2, the average's over 2),
+/// the largest over the compared quantities.
+fn average_runs(a: Run, b: Run) -> (Run, f64) {
+    let mut share = 0.0_f64;
+    let mut changes = a.changes.clone();
+    let mut means = a.means.clone();
+    for k in 0..changes.len() {
+        for q in 0..changes[k].len() {
+            let (ca, cb) = (&a.changes[k][q], &b.changes[k][q]);
+            let n = ca.len().min(cb.len());
+            let average: Vec<f64> = (0..n).map(|d| 0.5 * (ca[d] + cb[d])).collect();
+            let error = ((0..n).map(|d| (ca[d] - cb[d]).powi(2)).sum::<f64>() / n.max(1) as f64).sqrt() / 2.0;
+            let centre = average.iter().sum::<f64>() / n.max(1) as f64;
+            let sd = (average.iter().map(|c| (c - centre).powi(2)).sum::<f64>() / (n.max(2) - 1) as f64).sqrt();
+            share = share.max(if sd > 0.0 { error / sd } else if error > 0.0 { f64::INFINITY } else { 0.0 });
+            changes[k][q] = average;
+            let (ma, mb) = (&a.means[k][q], &b.means[k][q]);
+            means[k][q] = (0..n).map(|d| (0.5 * (ma[d].0 + mb[d].0), 0.5 * (ma[d].1 + mb[d].1))).collect();
+        }
+    }
+    let run = Run { changes, means, worst_mass: a.worst_mass.max(b.worst_mass), worst_tail: a.worst_tail.max(b.worst_tail) };
+    (run, share)
+}
+
+/// The values the answer sets on each real node: the exposure's settings,
+/// a held node's mean, a stated node's value.
+fn set_values(table: &Table, nodes: &[Support], x: &str, simulation: &FormulaSimulation, also_set: &[String], stated: &[(String, Setting)], place: &str) -> Result<BTreeMap<String, Vec<f64>>, QueryError> {
+    let mut set: BTreeMap<String, Vec<f64>> = BTreeMap::new();
+    let number = |s: &Setting| match s {
+        Setting::Number(v) => Some(*v),
+        Setting::Level { .. } => None,
+    };
+    for node in nodes.iter().filter(|s| s.is_real()) {
+        let values = set.entry(node.name.clone()).or_default();
+        if node.name == x {
+            values.extend(simulation.settings.iter().flat_map(|(to, from)| [number(to), number(from)]).flatten());
+        }
+        if also_set.contains(&node.name) {
+            values.extend(column_mean(require_column(table, &node.name, place)?));
+        }
+        values.extend(stated.iter().filter(|(n, _)| *n == node.name).filter_map(|(_, s)| number(s)));
+    }
+    Ok(set)
+}
+
+/// The mean and spread of the normal a real column's values are drawn
+/// from, or `None` when the column has no spread.
+fn proposal(column: &Column) -> Option<(f64, f64)> {
+    let values = column.data.as_reals()?;
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    let sd = (values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+    (sd.is_finite() && sd > 0.0 && mean.is_finite()).then_some((mean, PROPOSAL_WIDENING * sd))
+}
+
+/// `nodes` with every real node's values drawn: [`REAL_DRAWS`] values
+/// from the normal `q` of [`proposal`], one in each of its `S` strata of
+/// equal probability (a uniform draw within the stratum through the
+/// normal's quantile; the sum stays unbiased and its error falls far
+/// faster than with independent draws for the smooth densities here),
+/// each weighted `1/(S·q(value))`, so
+/// that a sum over the node is an importance sum of its conditional
+/// density (self-normalised where the formula divides by the table's
+/// total); then each value `set` names, weighted [`SET_WEIGHT`] times the
+/// drawn weights' mean, so that a conditional given it is exact (the
+/// weight cancels) and a sum barely feels it.
+fn realise(nodes: &[Support], table: &Table, set: &BTreeMap<String, Vec<f64>>, seed: u64, place: &str) -> Result<Vec<Support>, QueryError> {
+    use rand::{RngExt, SeedableRng};
+    use statrs::distribution::ContinuousCDF;
+    let standard = statrs::distribution::Normal::standard();
+    nodes
+        .iter()
+        .enumerate()
+        .map(|(i, node)| {
+            if !node.is_real() {
+                return Ok(node.clone());
+            }
+            let (mean, sd) = proposal(require_column(table, &node.name, place)?)
+                .ok_or_else(|| QueryError::request(format!("{place}: the real node {} has no spread to draw its values from", node.name)))?;
+            let mut rng = rand::rngs::StdRng::seed_from_u64(stream_seed(seed, i as u64, 0x4EA1));
+            let mut values: Vec<f64> = (0..REAL_DRAWS)
+                .map(|i| {
+                    let u = (i as f64 + rng.random::<f64>()) / REAL_DRAWS as f64;
+                    mean + sd * standard.inverse_cdf(u.clamp(f64::MIN_POSITIVE, 1.0 - f64::EPSILON))
+                })
+                .collect();
+            let density = |v: f64| (-0.5 * ((v - mean) / sd).powi(2)).exp() / (sd * (2.0 * std::f64::consts::PI).sqrt());
+            let mut weights: Vec<f64> = values.iter().map(|&v| 1.0 / (REAL_DRAWS as f64 * density(v))).collect();
+            let set_weight = SET_WEIGHT * weights.iter().sum::<f64>() / REAL_DRAWS as f64;
+            for &v in set.get(&node.name).into_iter().flatten() {
+                if !values.contains(&v) {
+                    values.push(v);
+                    weights.push(set_weight);
+                }
+            }
+            Ok(Support { values, weights: Some(weights), ..node.clone() })
+        })
+        .collect()
+}
+
 /// Fit the chain over the formula's nodes and contrast `E[y | do(x)]`
-/// between the settings of `simulation`, evaluating the formula exactly on
-/// the chain's table per posterior draw; `also_set` are held at their most
-/// frequent level (a count at its rounded mean), the nodes of `stated` at
-/// the values given (a controlled direct effect's mediators).
+/// between the settings of `simulation`, evaluating the formula on the
+/// chain's table per posterior draw (exactly over discrete nodes; over a
+/// real node as an importance sum on two independent draw sets, averaged,
+/// whose disagreement gives the Monte Carlo error); `also_set` are held at
+/// their most frequent level (a count at its rounded mean, a real node at
+/// its mean), the nodes of `stated` at the values given (a controlled
+/// direct effect's mediators).
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn level_estimate(
     table: &Table,
@@ -554,67 +807,38 @@ pub(crate) fn level_estimate(
     if real_outcome {
         names.push(y.to_string());
     }
-    let discrete = supports;
     let mut conditionals = Vec::with_capacity(names.len());
     for (i, node) in names.iter().enumerate() {
         QueryError::stop_if(cancel, &place)?;
         conditionals.push(fit_conditional(table, node, &names[..i], method, cancel, progress, &place)?);
     }
     let mut warnings: Vec<String> = conditionals.iter().flat_map(|c| c.fit.warnings.iter().cloned()).collect();
-    let links: Vec<Link> = conditionals.iter().enumerate().map(|(i, c)| Link::of(c, &discrete[..i.min(discrete.len())])).collect::<Result<_, _>>()?;
-    let draws = links.iter().map(|l| l.params.len()).min().unwrap_or(0);
-    if links.iter().any(|l| l.params.len() != draws) {
-        warnings.push(format!("the chain's fits kept different numbers of draws; the first {draws} of each are paired"));
-    }
-    if draws == 0 {
-        return Err(QueryError::request(format!("{place}: the fits kept no draws")));
-    }
-    let chain: Vec<(&Model, Link)> = conditionals.iter().map(|c| &c.model).zip(links).collect();
-    let held = held_levels(table, &discrete, also_set, stated, &place)?;
-    let x_support = discrete.iter().find(|s| s.name == x).expect("the exposure is a node of the chain");
-    let settings: Vec<(usize, usize)> = simulation
-        .settings
-        .iter()
-        .map(|(to, from)| Ok((x_support.level_of(to)?, x_support.level_of(from)?)))
-        .collect::<Result<_, String>>()
-        .map_err(|e| QueryError::request(format!("{place}: {e}")))?;
     // One compared quantity per outcome level for a category (its
     // probability), else one: the outcome's mean.
-    let labels = discrete.last().filter(|s| s.name == y).and_then(|s| s.labels.clone());
-    let quantities = labels.as_ref().map_or(1, Vec::len);
-    let mut changes = vec![vec![Vec::with_capacity(draws); quantities]; settings.len()];
-    let mut means = vec![vec![Vec::with_capacity(draws); quantities]; settings.len()];
-    let (mut worst_mass, mut worst_tail) = (0.0_f64, 0.0_f64);
-    for d in 0..draws {
-        QueryError::stop_if(cancel, &place)?;
-        let (joint, tail) = joint_at(&chain, &discrete, real_outcome, d)?;
-        worst_tail = worst_tail.max(tail);
-        let at = |level| -> Result<(Vec<f64>, f64), QueryError> {
-            let read = if labels.is_some() {
-                shares_on_levels(formula, x, y, level, &held, &discrete, &joint, cancel).map(|s| {
-                    let total = s.iter().sum();
-                    (s, total)
-                })
-            } else {
-                effect_on_levels(formula, x, y, level, &held, &discrete, &joint, cancel).map(|(m, total)| (vec![m], total))
-            };
-            read.map_err(|e| QueryError::request(format!("{place}: {e}")))
-        };
-        for (k, (to, from)) in settings.iter().enumerate() {
-            let (under_to, mass_to) = at(*to)?;
-            let (under_from, mass_from) = at(*from)?;
-            worst_mass = worst_mass.max((mass_to - 1.0).abs()).max((mass_from - 1.0).abs());
-            for q in 0..quantities {
-                changes[k][q].push(under_to[q] - under_from[q]);
-                means[k][q].push((under_to[q], under_from[q]));
-            }
+    let labels = supports.last().filter(|s| s.name == y).and_then(|s| s.labels.clone());
+    let setup = Setup { table, formula, x, y, also_set, stated, simulation, conditionals: &conditionals, real_outcome, labels: labels.as_ref(), cancel, place: &place };
+    let reals: Vec<&str> = supports.iter().filter(|s| s.is_real()).map(|s| s.name.as_str()).collect();
+    let (run, draw_error) = if reals.is_empty() {
+        (run_draws(&setup, &supports, &mut warnings)?, None)
+    } else {
+        let set = set_values(table, &supports, x, simulation, also_set, stated, &place)?;
+        let mut runs = Vec::with_capacity(2);
+        for k in 0..2 {
+            let nodes = realise(&supports, table, &set, stream_seed(simulation.seed, 0x17, k), &place)?;
+            runs.push(run_draws(&setup, &nodes, &mut warnings)?);
         }
-    }
-    let counts: Vec<&Support> = discrete.iter().filter(|s| s.count).collect();
-    let how = how_words(x, y, &names, &held, &counts, worst_tail, labels.is_some());
+        let second = runs.pop().expect("two runs");
+        let (run, share) = average_runs(runs.pop().expect("two runs"), second);
+        (run, Some(share))
+    };
+    let counts: Vec<&Support> = supports.iter().filter(|s| s.count).collect();
+    let held_words = held_words(table, &supports, also_set, stated, &place)?;
+    let used = run.changes.first().and_then(|c| c.first()).map_or(0, Vec::len);
+    let real_words = draw_error.map(|share| (reals.as_slice(), share, simulation.seed, used));
+    let how = how_words(x, y, &names, &held_words, &counts, run.worst_tail, labels.is_some(), real_words);
     let outcome_model = &conditionals.last().expect("the outcome's conditional is fitted").model;
-    let mut contrasts = Vec::with_capacity(settings.len() * quantities);
-    for (((to, from), changes), means) in simulation.settings.iter().zip(changes).zip(means) {
+    let mut contrasts = Vec::with_capacity(run.changes.len() * labels.as_ref().map_or(1, Vec::len));
+    for (((to, from), changes), means) in simulation.settings.iter().zip(run.changes).zip(run.means) {
         for (q, (changes, means)) in changes.into_iter().zip(means).enumerate() {
             let mut c = formula_contrast(table, x, y, outcome_model, to, from, changes, means, mass, how.clone(), None)?;
             if let Some(labels) = &labels {
@@ -627,30 +851,43 @@ pub(crate) fn level_estimate(
             contrasts.push(c);
         }
     }
-    if worst_tail > TAIL_WARNING {
+    if let Some(share) = draw_error.filter(|&s| s > DRAW_ERROR_WARNING) {
+        warnings.push(format!(
+            "the two independent draw sets of {} disagree: the Monte Carlo error of the averaged answer is {:.0}% of its posterior sd; the real node's conditionals may be far from the normal its values are drawn from",
+            reals.join(", "),
+            100.0 * share
+        ));
+    }
+    if run.worst_tail > TAIL_WARNING {
         warnings.push(format!(
             "under some draw a count's conditional puts {:.2e} of its probability beyond the top value enumerated ({}); the formula leaves that tail out",
-            worst_tail,
+            run.worst_tail,
             counts.iter().map(|s| format!("{} ≤ {}", s.name, s.values.len() - 1)).collect::<Vec<_>>().join(", ")
         ));
     }
-    if worst_mass > MASS_TOLERANCE + 2.0 * worst_tail * counts.len() as f64 {
+    if run.worst_mass > MASS_TOLERANCE + 2.0 * run.worst_tail * counts.len() as f64 {
         warnings.push(format!(
             "under some draw the formula's distribution of {y} has mass {:.6} instead of 1; the chain's joint may strain the graph's constraints there",
-            1.0 + worst_mass
+            1.0 + run.worst_mass
         ));
     }
     Ok(FormulaFit { conditionals, from_rows: Vec::new(), contrasts, warnings })
 }
 
 /// The level each held node is held at: as stated, else a category's or
-/// yes/no node's most frequent level, a count's rounded mean.
+/// yes/no node's most frequent level, a count's rounded mean, a real
+/// node's mean (a value [`realise`] adds).
 fn held_levels(table: &Table, nodes: &[Support], also_set: &[String], stated: &[(String, Setting)], place: &str) -> Result<BTreeMap<String, usize>, QueryError> {
     let mut held = BTreeMap::new();
     for name in also_set {
         let support = nodes.iter().find(|s| &s.name == name).expect("a node held is a node of the chain");
-        held.insert(name.clone(), usual_level(require_column(table, name, place)?));
-        debug_assert!(held[name] < support.values.len());
+        let column = require_column(table, name, place)?;
+        let level = match column_mean(column).filter(|_| support.is_real()) {
+            Some(mean) => support.level_of(&Setting::Number(mean)).map_err(|e| QueryError::request(format!("{place}: {e}")))?,
+            None => usual_level(column),
+        };
+        debug_assert!(level < support.values.len());
+        held.insert(name.clone(), level);
     }
     for (name, setting) in stated {
         let support = nodes
@@ -692,13 +929,41 @@ pub(crate) fn usual_level(column: &Column) -> usize {
     }
 }
 
-/// The route in words, for the contrast's `held_how`.
-fn how_words(x: &str, y: &str, names: &[String], held: &BTreeMap<String, usize>, counts: &[&Support], tail: f64, category: bool) -> String {
-    let at: Vec<String> = held.iter().map(|(a, l)| format!("{a} at level {l}")).collect();
+/// The held nodes in words: each at its stated value, else at its level
+/// or (a real node) its mean.
+fn held_words(table: &Table, nodes: &[Support], also_set: &[String], stated: &[(String, Setting)], place: &str) -> Result<Vec<String>, QueryError> {
+    let mut words = Vec::with_capacity(also_set.len() + stated.len());
+    for name in also_set.iter().filter(|a| !stated.iter().any(|(n, _)| n == *a)) {
+        let column = require_column(table, name, place)?;
+        let real = nodes.iter().any(|s| &s.name == name && s.is_real());
+        words.push(match column_mean(column).filter(|_| real) {
+            Some(mean) => format!("{name} at its mean {mean:.4}"),
+            None => format!("{name} at level {}", usual_level(column)),
+        });
+    }
+    words.extend(stated.iter().map(|(name, setting)| format!("{name} at {}", setting.text())));
+    Ok(words)
+}
+
+/// The route in words, for the contrast's `held_how`; `reals` names the
+/// real nodes drawn, the Monte Carlo error's share of the posterior sd,
+/// the seed and the posterior draws used.
+#[allow(clippy::too_many_arguments)]
+fn how_words(x: &str, y: &str, names: &[String], at: &[String], counts: &[&Support], tail: f64, category: bool, reals: Option<(&[&str], f64, u64, usize)>) -> String {
     let counted: Vec<String> = counts.iter().map(|s| format!("{} enumerated to {}", s.name, s.values.len() - 1)).collect();
+    let drawn = reals.map_or(String::new(), |(reals, share, seed, used)| {
+        format!(
+            "; the real node{} {} taken at {REAL_DRAWS} values drawn, one per stratum of equal probability, from a normal about its column \
+             and weighted as an importance sum, averaged over two independent draw sets (seed {seed}) whose disagreement puts the Monte Carlo \
+             error at {:.1}% of the posterior sd (on {used} posterior draws, evenly spaced)",
+            if reals.len() == 1 { "" } else { "s" },
+            reals.join(", "),
+            100.0 * share
+        )
+    });
     format!(
         "identifying formula evaluated exactly over every combination of the levels of {} (each regressed on the ones before it with its column's family) \
-         with {x} set{}{}; {y}'s {} under each posterior draw",
+         with {x} set{}{}{drawn}; {y}'s {} under each posterior draw",
         names.join(", "),
         if at.is_empty() { String::new() } else { format!(" and {} held", at.join(", ")) },
         if counted.is_empty() { String::new() } else { format!("; {} (largest tail left out {tail:.1e})", counted.join(", ")) },
@@ -715,7 +980,7 @@ mod tests {
     }
 
     fn binary(name: &str) -> Support {
-        Support { name: name.into(), values: vec![0.0, 1.0], labels: None, count: false }
+        Support { name: name.into(), values: vec![0.0, 1.0], labels: None, count: false, weights: None }
     }
 
     #[test]
@@ -755,6 +1020,26 @@ mod tests {
         // A joint factor keeps its order: Pr[b, a] puts b first.
         let joint = Formula::probability(s(&["b", "a"]), vec![]);
         assert_eq!(causal_order(&joint, s(&["a", "b"])), s(&["b", "a"]));
+    }
+
+    #[test]
+    fn a_real_node_s_weighted_values_integrate_a_density_to_one() {
+        // ∫ N(v; m, s) dv = 1 for a conditional narrower than the column and
+        // off its centre: the weighted sum over the drawn values is an
+        // importance estimate of that integral.
+        let values: Vec<f64> = (0..500).map(|i| 10.0 + 2.0 * ((i as f64 * 0.37).sin())).collect();
+        let table = Table { name: "t".into(), columns: vec![Column::new("r", ColumnData::Real(values))] };
+        let set = BTreeMap::from([("r".to_string(), vec![11.5])]);
+        let nodes = realise(&[Support::real("r")], &table, &set, 7, "test").unwrap();
+        let (v, w) = (&nodes[0].values, nodes[0].weights.as_ref().unwrap());
+        assert_eq!(v.len(), REAL_DRAWS + 1);
+        assert_eq!(v[REAL_DRAWS], 11.5, "the set value is added last");
+        let normal = |x: f64, m: f64, s: f64| (-0.5 * ((x - m) / s).powi(2)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt());
+        let total: f64 = v[..REAL_DRAWS].iter().zip(w).map(|(&x, &wt)| wt * normal(x, 11.0, 0.8)).sum();
+        assert!((total - 1.0).abs() < 1e-3, "{total}");
+        assert!(w[REAL_DRAWS] * normal(11.5, 11.0, 0.8) < 1e-8, "the set value barely counts in a sum");
+        let constant = Column::new("c", ColumnData::Real(vec![3.0; 10]));
+        assert!(proposal(&constant).is_none(), "a column without spread has no proposal");
     }
 
     #[test]

@@ -15,7 +15,8 @@
 //!   fitted conditionals, or, for shapes that simulation over the rows
 //!   cannot take, [`formula_chain`]: evaluated exactly on a fitted chain
 //!   of normal regressions, or [`formula_levels`]: evaluated exactly over
-//!   the levels of count, yes/no and category nodes.
+//!   the levels of count, yes/no and category nodes (a real node among
+//!   them summed over weighted draws of its values).
 //! * [`joint`]: one regression per observed node of a graph (a whole-graph
 //!   model), and [`intervene`]: simulated interventions through it.
 //! * [`mechanism`] and [`simulate`]: synthetic data from stated mechanisms,

@@ -11,7 +11,8 @@
 //! `{"kind": "levels", "set": [x], "watch": [y], "nodes": [{"name", "size"}], "joint": [..],
 //! "moment": [..] | null, "x_level", "held": {name: level}}` (the complete algorithm's formula
 //! evaluated by `query::formula_levels` on the joint table given over `nodes`, first varying
-//! slowest; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "shares", "also_set"}`
+//! slowest; a real node among `nodes` is given as its drawn values' levels, their weights
+//! already in `joint`; with `moment`, `y` is real and not among `nodes`: `{"mean", "mass", "shares", "also_set"}`
 //! (`shares`: each level's probability of a discrete `y`, else null), or
 //! `{"verdict": "not_identified"}`). `listing` answers with the bounded path listing
 //! (`paths`, `complete`, `separated`, `directed_paths`).
@@ -105,6 +106,7 @@ fn levels(graph: &Graph, q: &Value) -> Result<Value, GraphError> {
             values: (0..n["size"].as_u64().unwrap_or(0)).map(|k| k as f64).collect(),
             labels: None,
             count: false,
+            weights: None,
         })
         .collect();
     let numbers = |v: &Value| v.as_array().map(|a| a.iter().filter_map(Value::as_f64).collect::<Vec<f64>>());
