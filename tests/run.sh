@@ -59,13 +59,21 @@ cargo build --release --workspace --locked
 echo "== Rust tests"
 cargo test --release --workspace --locked
 
-echo "== the features columnar (Parquet and Arrow tables) and on_disk (DataFusion)"
+echo "== the features columnar (Parquet and Arrow tables), on_disk (DataFusion) and across_machines (Ballista)"
 # Built after the default builds above, which stay without them as the
-# README's first command builds. on_disk includes columnar, so one build of
-# the library serves both tests and the probes the Python checks call (the
-# cell probe runs tables on disk, the table probe reads Parquet).
-cargo build --release --locked -p waypath-probe --features columnar,on_disk
-cargo test --release --locked -p waypath --features on_disk --test table_columnar --test table_on_disk
+# README's first command builds. across_machines includes on_disk, which
+# includes columnar. The probes the Python checks call (the cell probe runs
+# tables on disk, the table probe reads Parquet) and the three tests are
+# built in one cargo call with one feature set: the tests' dev-dependencies
+# then unify features with the probes', so DataFusion and Arrow compile once
+# (with the features Ballista asks for), not once per call. The
+# across-machines test starts a scheduler and two executors of
+# waypath-machines on 127.0.0.1.
+feature_step=(--release --locked -p waypath -p waypath-probe
+    --features waypath/across_machines,waypath-probe/columnar,waypath-probe/on_disk
+    --test table_columnar --test table_on_disk --test table_across_machines)
+cargo build "${feature_step[@]}" --bins
+cargo test "${feature_step[@]}"
 
 echo "== Python reference checks"
 export WAYPATH_BIN_DIR="$CARGO_TARGET_DIR/release"
