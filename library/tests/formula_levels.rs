@@ -32,6 +32,7 @@ mod common;
 use std::path::Path;
 
 use common::cells::{last_json, run};
+use common::scratch::fresh_folder;
 use common::seeded::Seeded;
 use serde_json::Value;
 use statrs::distribution::{Binomial, DiscreteCDF};
@@ -116,12 +117,6 @@ impl Orchard {
     }
 }
 
-fn folder(name: &str) -> std::path::PathBuf {
-    let dir = std::env::temp_dir().join(format!("wp-formula-levels-{name}-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
-
 fn write(dir: &Path, file: &str, text: &str) {
     std::fs::write(dir.join(file), text).unwrap();
 }
@@ -134,7 +129,7 @@ fn interval(json: &Value) -> (f64, f64, String) {
 #[test]
 fn yes_no_formula_intervals_cover_the_enumerated_effect() {
     let wanted = 30;
-    let dir = folder("cover");
+    let dir = fresh_folder("formula-levels", "cover");
     let mut s = Seeded(0x5EED_17A0_0001);
     let (mut covered, mut missed) = (0, Vec::new());
     for k in 0..wanted {
@@ -227,7 +222,7 @@ impl Mixed {
 
 #[test]
 fn a_category_mediator_a_count_exposure_and_a_real_outcome_run_end_to_end() {
-    let dir = folder("mixed");
+    let dir = fresh_folder("formula-levels", "mixed");
     write(&dir, "mixed.csv", &Mixed::rows(&mut Seeded(0x5EED_17A0_0002), 1500));
     let mut session = Session::new(&dir);
     let declare = "    slope: binary\n    netting: count\n    pollinated: category(none, some, full)\n    good_crop: real\n";
@@ -248,7 +243,7 @@ fn a_category_mediator_a_count_exposure_and_a_real_outcome_run_end_to_end() {
 
 #[test]
 fn a_huge_count_or_too_many_levels_is_refused_before_fitting() {
-    let dir = folder("huge");
+    let dir = fresh_folder("formula-levels", "huge");
     // A count whose largest value makes its range alone too large to enumerate.
     write(&dir, "huge.csv", "slope,netting,pollinated,good_crop\n0,3,0,1\n1,400000000000,1,0\n1,2,1,1\n0,0,0,0\n");
     let mut session = Session::new(&dir);
@@ -316,7 +311,7 @@ impl Direct {
 #[test]
 fn yes_no_controlled_direct_effect_intervals_cover_the_enumerated_effect() {
     let wanted = 20;
-    let dir = folder("direct");
+    let dir = fresh_folder("formula-levels", "direct");
     let mut s = Seeded(0x5EED_17A0_0003);
     let (mut covered, mut missed) = (0, Vec::new());
     let graph = "graph g:\n    netting -> wet_canopy -> fungus -> good_crop\n    netting -> good_crop\n    hidden soil -> wet_canopy, good_crop\n";
@@ -388,7 +383,7 @@ fn a_category_outcome_compares_each_level_probability() {
         let level = if u < shares[0] { "poor" } else if u < shares[0] + shares[1] { "fair" } else { "good" };
         text.push_str(&format!("{slope},{netting},{pollinated},{level}\n"));
     }
-    let dir = folder("graded");
+    let dir = fresh_folder("formula-levels", "graded");
     write(&dir, "crops.csv", &text);
     let mut session = Session::new(&dir);
     let declare = "    slope: binary\n    netting: binary\n    pollinated: binary\n    crop: category(poor, fair, good)\n";
@@ -416,7 +411,7 @@ fn a_category_outcome_compares_each_level_probability() {
 #[test]
 fn intervene_takes_the_chain_over_levels_where_hidden_causes_touch() {
     let orchard = Orchard { slope: [0.0, 1.2], netting: [-0.6, 1.2, 1.2], pollinated: [-0.5, 0.8, 1.2], crop: [-0.5, 1.2, 0.3, -1.2] };
-    let dir = folder("intervene");
+    let dir = fresh_folder("formula-levels", "intervene");
     write(&dir, "blocks.csv", &orchard.rows(&mut Seeded(0x5EED_17A0_0005), 1500));
     let mut session = Session::new(&dir);
     let declare = "    slope: binary\n    netting: binary\n    pollinated: binary\n    good_crop: binary\n";

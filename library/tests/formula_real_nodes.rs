@@ -30,6 +30,7 @@ mod common;
 use std::path::Path;
 
 use common::cells::last_json;
+use common::scratch::fresh_folder;
 use common::seeded::Seeded;
 use serde_json::Value;
 use statrs::distribution::{Binomial, DiscreteCDF};
@@ -132,12 +133,6 @@ impl Orchard {
     }
 }
 
-fn folder(name: &str) -> std::path::PathBuf {
-    let dir = std::env::temp_dir().join(format!("wp-formula-real-{name}-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
-
 fn write(dir: &Path, file: &str, text: &str) {
     std::fs::write(dir.join(file), text).unwrap();
 }
@@ -156,7 +151,7 @@ fn draw_error(how: &str) -> f64 {
 #[test]
 fn a_real_mediator_among_yes_no_nodes_covers_the_integrated_effect() {
     let wanted = 6;
-    let dir = folder("cover");
+    let dir = fresh_folder("formula-real", "cover");
     let mut s = Seeded(0x5EED_17B0_0001);
     let (mut covered, mut missed, mut worst) = (0, Vec::new(), 0.0_f64);
     for k in 0..wanted {
@@ -246,7 +241,7 @@ impl Hours {
 #[test]
 fn a_real_exposure_among_yes_no_nodes_is_set_to_values_added_to_its_draws() {
     let hours = Hours { slope: [0.0, 1.2], hours: [2.0, 0.8, 0.8, 0.7], pollinated: [-2.0, 0.8, 0.9], crop: [-0.5, 1.2, 0.3, -1.2] };
-    let dir = folder("hours");
+    let dir = fresh_folder("formula-real", "hours");
     write(&dir, "blocks.csv", &hours.rows(&mut Seeded(0x5EED_17B0_0002), 800));
     let mut session = Session::new(&dir);
     let declare = "    slope: binary\n    hours: real\n    pollinated: binary\n    good_crop: binary\n";
